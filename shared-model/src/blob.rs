@@ -1,0 +1,343 @@
+//! The model blob: the bytes that travel to flash.
+//!
+//! | offset  | size | field                                                    |
+//! |---------|------|----------------------------------------------------------|
+//! | 0       | 4    | magic `LGMB` (`4C 47 4D 42`)                             |
+//! | 4       | 2    | format version, u16 little-endian ([`FORMAT_VERSION`])   |
+//! | 6       | 1    | channel count                                            |
+//! | 7       | 2    | payload length `N`, u16 little-endian                    |
+//! | 9       | N    | postcard encoding of [`FixedModel`]                      |
+//! | 9 + N   | 4    | CRC-32/ISO-HDLC of bytes `0 .. 9+N`, little-endian       |
+//!
+//! The full specification, with the payload's field order, is in
+//! `shared-model/FORMAT.md`. Stability rule: any change to this layout or to
+//! the payload's fields bumps [`FORMAT_VERSION`]; a decoder refuses versions
+//! it does not know.
+
+use crate::MAX_CHANNELS;
+use crate::error::{DecodeError, EncodeError};
+use crate::model::{CheckedModel, FixedModel};
+
+/// The four bytes every Linegate blob starts with.
+pub const MAGIC: [u8; 4] = *b"LGMB";
+/// The blob layout version this build writes and reads.
+pub const FORMAT_VERSION: u16 = 1;
+/// Bytes before the payload: magic, version, channel count, payload length.
+pub const HEADER_LEN: usize = 9;
+/// Bytes of the trailing CRC-32.
+pub const CRC_LEN: usize = 4;
+/// Largest payload a valid model can need (every varint at its longest, every name full).
+pub const MAX_PAYLOAD_LEN: usize =
+    16 + 5 + 3 * 10 + 1 + MAX_CHANNELS * (1 + crate::NAME_CAPACITY + 5 * 5 + 1);
+/// A buffer of this size holds any blob.
+pub const MAX_BLOB_LEN: usize = HEADER_LEN + MAX_PAYLOAD_LEN + CRC_LEN;
+
+/// CRC-32/ISO-HDLC (poly 0x04C11DB7, reflected, init and xorout 0xFFFFFFFF): the CRC of
+/// zip, PNG and Ethernet. Bitwise, without a table, to keep ~1 KiB out of device flash;
+/// blobs are small and checked once at start-up.
+pub const CRC32: crc::Crc<u32, crc::NoTable> =
+    crc::Crc::<u32, crc::NoTable>::new(&crc::CRC_32_ISO_HDLC);
+
+/// Writes the blob for `model` into `out` and returns its length.
+///
+/// # Errors
+/// [`EncodeError::BufferTooSmall`] if `out` is shorter than the blob; a
+/// buffer of [`MAX_BLOB_LEN`] bytes always suffices.
+pub fn encode(model: &CheckedModel, out: &mut [u8]) -> Result<usize, EncodeError> {
+    let (header, rest) = out
+        .split_at_mut_checked(HEADER_LEN)
+        .ok_or(EncodeError::BufferTooSmall)?;
+    let n = postcard::to_slice(model.model(), rest)
+        .map_err(|_| EncodeError::BufferTooSmall)?
+        .len();
+    let len16 = u16::try_from(n).map_err(|_| EncodeError::BufferTooSmall)?;
+    let count = u8::try_from(model.channel_count()).map_err(|_| EncodeError::BufferTooSmall)?;
+    let [m0, m1, m2, m3] = MAGIC;
+    let [v0, v1] = FORMAT_VERSION.to_le_bytes();
+    let [l0, l1] = len16.to_le_bytes();
+    header.copy_from_slice(&[m0, m1, m2, m3, v0, v1, count, l0, l1]);
+    let body_len = HEADER_LEN + n;
+    let total = body_len + CRC_LEN;
+    let body = out.get(..body_len).ok_or(EncodeError::BufferTooSmall)?;
+    let crc = CRC32.checksum(body);
+    out.get_mut(body_len..total)
+        .ok_or(EncodeError::BufferTooSmall)?
+        .copy_from_slice(&crc.to_le_bytes());
+    Ok(total)
+}
+
+/// Decodes and validates a blob. Never panics, whatever the bytes.
+///
+/// # Errors
+/// The first problem found, in this order: [`DecodeError::Truncated`],
+/// [`DecodeError::BadMagic`], [`DecodeError::UnsupportedVersion`],
+/// [`DecodeError::ChannelOverCapacity`], [`DecodeError::TrailingBytes`],
+/// [`DecodeError::CrcMismatch`], [`DecodeError::MalformedPayload`],
+/// [`DecodeError::InconsistentLengths`], [`DecodeError::Invalid`].
+pub fn decode(bytes: &[u8]) -> Result<CheckedModel, DecodeError> {
+    let header = Header::read(bytes)?;
+    let body_len = HEADER_LEN + usize::from(header.payload_len);
+    let (body, crc_bytes) = bytes
+        .split_at_checked(body_len)
+        .ok_or(DecodeError::Truncated {
+            needed: body_len + CRC_LEN,
+            got: bytes.len(),
+        })?;
+    let stored = u32::from_le_bytes(crc_bytes.try_into().map_err(|_| {
+        if crc_bytes.len() < CRC_LEN {
+            DecodeError::Truncated {
+                needed: body_len + CRC_LEN,
+                got: bytes.len(),
+            }
+        } else {
+            DecodeError::TrailingBytes {
+                expected: body_len + CRC_LEN,
+                got: bytes.len(),
+            }
+        }
+    })?);
+    let computed = CRC32.checksum(body);
+    if stored != computed {
+        return Err(DecodeError::CrcMismatch { stored, computed });
+    }
+    let payload = body
+        .get(HEADER_LEN..)
+        .ok_or(DecodeError::MalformedPayload)?;
+    let (model, rest) = postcard::take_from_bytes::<FixedModel>(payload)
+        .map_err(|_| DecodeError::MalformedPayload)?;
+    if !rest.is_empty() || model.channels.len() != usize::from(header.channel_count) {
+        return Err(DecodeError::InconsistentLengths);
+    }
+    Ok(CheckedModel::new(model)?)
+}
+
+/// The fixed header, as read from a blob.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Header {
+    /// Format version.
+    pub version: u16,
+    /// Declared channel count.
+    pub channel_count: u8,
+    /// Declared payload length.
+    pub payload_len: u16,
+}
+
+impl Header {
+    /// Reads and checks the header: length, magic, version, channel capacity.
+    ///
+    /// # Errors
+    /// [`DecodeError::Truncated`], [`DecodeError::BadMagic`],
+    /// [`DecodeError::UnsupportedVersion`] or [`DecodeError::ChannelOverCapacity`].
+    pub fn read(bytes: &[u8]) -> Result<Self, DecodeError> {
+        let truncated = DecodeError::Truncated {
+            needed: HEADER_LEN + CRC_LEN,
+            got: bytes.len(),
+        };
+        let magic = bytes.get(0..4).ok_or(truncated)?;
+        if magic != MAGIC {
+            return Err(DecodeError::BadMagic);
+        }
+        let h: &[u8; HEADER_LEN] = bytes
+            .get(..HEADER_LEN)
+            .and_then(|h| h.try_into().ok())
+            .ok_or(truncated)?;
+        let [_, _, _, _, v0, v1, channel_count, l0, l1] = *h;
+        let version = u16::from_le_bytes([v0, v1]);
+        if version != FORMAT_VERSION {
+            return Err(DecodeError::UnsupportedVersion(version));
+        }
+        if usize::from(channel_count) > MAX_CHANNELS {
+            return Err(DecodeError::ChannelOverCapacity(channel_count));
+        }
+        Ok(Self {
+            version,
+            channel_count,
+            payload_len: u16::from_le_bytes([l0, l1]),
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::ModelError;
+    use crate::model::{AuditMark, ChannelSpec};
+    use std::vec::Vec;
+
+    fn model_with(channels: usize, weight_bits: u8) -> CheckedModel {
+        let mut m = FixedModel::example_two_channel();
+        m.channels.clear();
+        let wmax = ((1i64 << (weight_bits - 1)) - 1) as i32;
+        for i in 0..channels {
+            let mut c: ChannelSpec = FixedModel::example_two_channel().channels[0].clone();
+            c.name = heapless::String::try_from("ch").unwrap();
+            c.weight = if i % 2 == 0 {
+                wmax - i as i32
+            } else {
+                -(wmax - i as i32)
+            };
+            m.channels.push(c).unwrap();
+        }
+        m.weight_bits = weight_bits;
+        m.weight_frac_bits = weight_bits - 1;
+        m.acc_bits = 64;
+        m.model_id = [0xA5; 16];
+        CheckedModel::new(m).unwrap()
+    }
+
+    fn encoded(m: &CheckedModel) -> Vec<u8> {
+        let mut buf = [0u8; MAX_BLOB_LEN];
+        let n = encode(m, &mut buf).unwrap();
+        buf[..n].to_vec()
+    }
+
+    #[test]
+    fn round_trip_1_5_32_channels_8_16_32_bit_weights() {
+        for channels in [1, 5, 32] {
+            for bits in [8, 16, 32] {
+                let m = model_with(channels, bits);
+                let b = encoded(&m);
+                assert_eq!(
+                    decode(&b).unwrap(),
+                    m,
+                    "{channels} channels, {bits}-bit weights"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn golden_bytes_of_the_example_model() {
+        // Pinned layout: any change here is a format change and must bump FORMAT_VERSION.
+        let b = encoded(&CheckedModel::new(FixedModel::example_two_channel()).unwrap());
+        let want: &[u8] = &[
+            0x4C, 0x47, 0x4D, 0x42, // magic "LGMB"
+            0x01, 0x00, // version 1
+            0x02, // channels
+            0x35, 0x00, // payload length 53
+            0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0,    // model id
+            0x00, // audit: NotAudited
+            16, 8, 7, 32, // input bits, weight bits, weight frac, acc bits
+            0x00, 0x00, 0x02, // bias 0, nogo_max 0, go_min 1 (zigzag varints)
+            0x02, // channel vec length
+            // name "a"; raw_min 0, raw_max 1000 (zigzag 2000 = D0 0F), offset 500 (E8 07),
+            // multiplier 4_294_836 (zigzag 8_589_672 = E8 A2 8C 04), shift 16, weight 100 (C8 01)
+            0x01, b'a', 0x00, 0xD0, 0x0F, 0xE8, 0x07, 0xE8, 0xA2, 0x8C, 0x04, 0x10, 0xC8,
+            0x01, // channel a
+            0x01, b'b', 0x00, 0xD0, 0x0F, 0xE8, 0x07, 0xE8, 0xA2, 0x8C, 0x04, 0x10, 0xC7,
+            0x01, // channel b
+        ];
+        let crc = CRC32.checksum(want).to_le_bytes();
+        assert_eq!(&b[..want.len()], want);
+        assert_eq!(&b[want.len()..], &crc);
+    }
+
+    #[test]
+    fn crc32_check_value() {
+        // CRC-32/ISO-HDLC check value for ASCII "123456789" is 0xCBF43926, as published in
+        // the "Catalogue of parametrised CRC algorithms" (reveng.sourceforge.net/crc-catalogue,
+        // entry CRC-32/ISO-HDLC, field `check`); the number is quoted from memory of that entry.
+        assert_eq!(CRC32.checksum(b"123456789"), 0xCBF4_3926);
+    }
+
+    #[test]
+    fn every_single_bit_flip_of_a_5_channel_blob_is_rejected() {
+        let b = encoded(&model_with(5, 16));
+        for i in 0..b.len() * 8 {
+            let mut f = b.clone();
+            f[i / 8] ^= 1 << (i % 8);
+            assert!(decode(&f).is_err(), "flip of bit {i} accepted");
+        }
+    }
+
+    #[test]
+    fn every_truncation_is_rejected() {
+        let b = encoded(&model_with(5, 16));
+        for n in 0..b.len() {
+            let e = decode(&b[..n]).unwrap_err();
+            assert!(
+                matches!(e, DecodeError::Truncated { .. }),
+                "length {n}: {e:?}"
+            );
+        }
+    }
+
+    #[test]
+    fn trailing_bytes_newer_version_and_capacity() {
+        let mut b = encoded(&model_with(5, 16));
+        b.push(0);
+        assert!(matches!(decode(&b), Err(DecodeError::TrailingBytes { .. })));
+        b.pop();
+        let mut v = b.clone();
+        v[4] = 2;
+        assert_eq!(decode(&v), Err(DecodeError::UnsupportedVersion(2)));
+        let mut c = b.clone();
+        c[6] = 33;
+        assert_eq!(decode(&c), Err(DecodeError::ChannelOverCapacity(33)));
+        let mut m = b;
+        m[0] = b'X';
+        assert_eq!(decode(&m), Err(DecodeError::BadMagic));
+    }
+
+    /// Re-seals a header + payload with a correct CRC, to reach the checks behind the CRC.
+    fn seal(count: u8, payload: &[u8]) -> Vec<u8> {
+        let mut b = Vec::from(MAGIC);
+        b.extend_from_slice(&FORMAT_VERSION.to_le_bytes());
+        b.push(count);
+        b.extend_from_slice(&(payload.len() as u16).to_le_bytes());
+        b.extend_from_slice(payload);
+        let crc = CRC32.checksum(&b);
+        b.extend_from_slice(&crc.to_le_bytes());
+        b
+    }
+
+    #[test]
+    fn checks_behind_the_crc() {
+        let good = model_with(5, 16);
+        let mut buf = [0u8; MAX_BLOB_LEN];
+        let payload = postcard::to_slice(good.model(), &mut buf).unwrap().to_vec();
+        assert_eq!(decode(&seal(5, &payload)).unwrap(), good);
+        assert_eq!(
+            decode(&seal(4, &payload)),
+            Err(DecodeError::InconsistentLengths)
+        );
+        let mut extra = payload.clone();
+        extra.push(0);
+        assert_eq!(
+            decode(&seal(5, &extra)),
+            Err(DecodeError::InconsistentLengths)
+        );
+        assert_eq!(
+            decode(&seal(5, &payload[..payload.len() - 3])),
+            Err(DecodeError::MalformedPayload)
+        );
+        let mut bad = good.into_inner();
+        bad.nogo_max = bad.go_min;
+        let p = postcard::to_slice(&bad, &mut buf).unwrap().to_vec();
+        assert_eq!(
+            decode(&seal(5, &p)),
+            Err(DecodeError::Invalid(ModelError::ThresholdsOutOfOrder))
+        );
+    }
+
+    #[test]
+    fn largest_model_fits_max_blob_len() {
+        let mut m = model_with(MAX_CHANNELS, 32).into_inner();
+        for c in m.channels.iter_mut() {
+            c.name = heapless::String::try_from("ABCDEFGHIJKLMNOP").unwrap();
+            c.raw_min = i32::MIN;
+            c.raw_max = i32::MIN;
+            c.offset = i32::MIN;
+            c.multiplier = i32::MAX;
+            c.weight = -(i32::MAX);
+        }
+        m.bias = i64::MIN + 1;
+        m.nogo_max = i64::MIN + 1;
+        m.go_min = i64::MAX;
+        m.audit = AuditMark::Overridden;
+        let m = CheckedModel::new(m).unwrap();
+        let b = encoded(&m);
+        assert!(b.len() <= MAX_BLOB_LEN, "{} > {}", b.len(), MAX_BLOB_LEN);
+        assert_eq!(decode(&b).unwrap(), m);
+    }
+}

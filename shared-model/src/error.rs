@@ -1,0 +1,231 @@
+//! Typed errors, one enum per phase: building a model, encoding, decoding, classifying.
+
+use core::fmt;
+
+/// Why a [`FixedModel`](crate::FixedModel) was refused by validation.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ModelError {
+    /// The model has no channels.
+    ZeroChannels,
+    /// `input_bits` is not 8 or 16.
+    InputFormat(u8),
+    /// `weight_bits` is outside 2..=32 or `weight_frac_bits` outside 0..=62.
+    WeightFormat {
+        /// Declared weight word length.
+        bits: u8,
+        /// Declared fractional bits.
+        frac: u8,
+    },
+    /// `acc_bits` is not 32 or 64.
+    AccumulatorFormat(u8),
+    /// `raw_min > raw_max` on this channel.
+    InvertedRange {
+        /// Channel index.
+        channel: u8,
+    },
+    /// Multiplier below 1 or shift above 62 on this channel.
+    Conversion {
+        /// Channel index.
+        channel: u8,
+    },
+    /// A reading inside the valid range would scale outside the input word.
+    ConversionOutOfRange {
+        /// Channel index.
+        channel: u8,
+    },
+    /// The weight does not fit the declared weight word.
+    WeightOutOfRange {
+        /// Channel index.
+        channel: u8,
+    },
+    /// Thresholds out of order: `nogo_max` must be below `go_min`.
+    ThresholdsOutOfOrder,
+    /// Some in-range input could overflow the declared accumulator.
+    AccumulatorOverflow {
+        /// Bits the worst-case score needs, sign included.
+        needed_bits: u8,
+        /// Bits declared.
+        declared_bits: u8,
+    },
+}
+
+impl fmt::Display for ModelError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match *self {
+            Self::ZeroChannels => f.write_str("model has no channels"),
+            Self::InputFormat(b) => {
+                write!(f, "input word of {b} bits is not supported (use 8 or 16)")
+            }
+            Self::WeightFormat { bits, frac } => write!(
+                f,
+                "weight Q-format with {bits}-bit words and {frac} fractional bits is out of range (words 2..=32, fraction 0..=62)"
+            ),
+            Self::AccumulatorFormat(b) => {
+                write!(f, "accumulator of {b} bits is not supported (use 32 or 64)")
+            }
+            Self::InvertedRange { channel } => {
+                write!(f, "channel {channel}: valid range is inverted (min > max)")
+            }
+            Self::Conversion { channel } => write!(
+                f,
+                "channel {channel}: conversion multiplier must be >= 1 and shift <= 62"
+            ),
+            Self::ConversionOutOfRange { channel } => {
+                write!(
+                    f,
+                    "channel {channel}: an in-range reading scales outside the input word"
+                )
+            }
+            Self::WeightOutOfRange { channel } => {
+                write!(
+                    f,
+                    "channel {channel}: weight does not fit the declared weight word"
+                )
+            }
+            Self::ThresholdsOutOfOrder => {
+                f.write_str("thresholds out of order: NO-GO maximum must be below GO minimum")
+            }
+            Self::AccumulatorOverflow {
+                needed_bits,
+                declared_bits,
+            } => write!(
+                f,
+                "worst-case score needs {needed_bits} bits but the accumulator declares {declared_bits}"
+            ),
+        }
+    }
+}
+
+impl core::error::Error for ModelError {}
+
+/// Why a blob could not be decoded.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum DecodeError {
+    /// Fewer bytes than the header or the declared payload needs.
+    Truncated {
+        /// Bytes the blob must have.
+        needed: usize,
+        /// Bytes given.
+        got: usize,
+    },
+    /// The blob does not start with the Linegate magic.
+    BadMagic,
+    /// The format version is not one this build reads.
+    UnsupportedVersion(u16),
+    /// Bytes follow the CRC.
+    TrailingBytes {
+        /// Bytes the blob should have.
+        expected: usize,
+        /// Bytes given.
+        got: usize,
+    },
+    /// The stored CRC-32 does not match the bytes.
+    CrcMismatch {
+        /// CRC stored in the blob.
+        stored: u32,
+        /// CRC computed over the blob.
+        computed: u32,
+    },
+    /// The header declares more channels than [`MAX_CHANNELS`](crate::MAX_CHANNELS).
+    ChannelOverCapacity(u8),
+    /// The payload does not parse as a model.
+    MalformedPayload,
+    /// The header's channel count disagrees with the payload, or the payload has unread bytes.
+    InconsistentLengths,
+    /// The payload parsed but the model is not valid.
+    Invalid(ModelError),
+}
+
+impl fmt::Display for DecodeError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match *self {
+            Self::Truncated { needed, got } => {
+                write!(f, "blob truncated: needs {needed} bytes, got {got}")
+            }
+            Self::BadMagic => f.write_str("not a Linegate model blob (bad magic)"),
+            Self::UnsupportedVersion(v) => write!(
+                f,
+                "blob format version {v} is not supported by this build (reads version {})",
+                crate::blob::FORMAT_VERSION
+            ),
+            Self::TrailingBytes { expected, got } => {
+                write!(
+                    f,
+                    "blob has trailing bytes: expected {expected} bytes, got {got}"
+                )
+            }
+            Self::CrcMismatch { stored, computed } => write!(
+                f,
+                "blob CRC mismatch: stored {stored:#010x}, computed {computed:#010x} (corrupt blob)"
+            ),
+            Self::ChannelOverCapacity(n) => write!(
+                f,
+                "blob declares {n} channels; this build holds at most {}",
+                crate::MAX_CHANNELS
+            ),
+            Self::MalformedPayload => f.write_str("blob payload is malformed"),
+            Self::InconsistentLengths => f.write_str("blob header and payload disagree on lengths"),
+            Self::Invalid(e) => write!(f, "blob holds an invalid model: {e}"),
+        }
+    }
+}
+
+impl core::error::Error for DecodeError {}
+
+impl From<ModelError> for DecodeError {
+    fn from(e: ModelError) -> Self {
+        Self::Invalid(e)
+    }
+}
+
+/// Why a model could not be encoded.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum EncodeError {
+    /// The output buffer is too small; [`MAX_BLOB_LEN`](crate::blob::MAX_BLOB_LEN) always suffices.
+    BufferTooSmall,
+}
+
+impl fmt::Display for EncodeError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("output buffer too small for the model blob")
+    }
+}
+
+impl core::error::Error for EncodeError {}
+
+/// Why a set of readings could not be classified. The device treats every fault as NO-GO.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Fault {
+    /// The number of readings differs from the model's channel count.
+    ReadingCount {
+        /// Channels in the model.
+        expected: u8,
+        /// Readings given.
+        got: usize,
+    },
+    /// A reading lies outside its channel's valid raw range.
+    OutOfRange {
+        /// Channel index.
+        channel: u8,
+        /// The refused raw reading.
+        raw: i32,
+    },
+}
+
+impl fmt::Display for Fault {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match *self {
+            Self::ReadingCount { expected, got } => {
+                write!(f, "expected {expected} readings, got {got}")
+            }
+            Self::OutOfRange { channel, raw } => {
+                write!(
+                    f,
+                    "channel {channel}: reading {raw} is outside the valid range"
+                )
+            }
+        }
+    }
+}
+
+impl core::error::Error for Fault {}

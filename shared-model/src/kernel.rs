@@ -1,0 +1,293 @@
+//! The integer inference kernel: raw readings → scaled inputs → score → verdict.
+//!
+//! Widths: readings `i32`, scaled inputs `i64` holding at most 16 significant
+//! bits, weights `i32`, products and the accumulator `i64`. Validation
+//! ([`CheckedModel::new`]) proved `|bias| + Σ|w_i|·max|x_i|` fits the declared
+//! accumulator (at most 64 bits), and that `(r - offset)·multiplier` stays
+//! below 2^62 for in-range `r`; so the `wrapping_*` operations below never
+//! wrap. They are used instead of `+`/`*` only to keep panic paths out of the
+//! device image.
+#![warn(clippy::arithmetic_side_effects)]
+
+use crate::error::Fault;
+use crate::model::{ChannelSpec, CheckedModel};
+
+/// The three outcomes a device shows.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Verdict {
+    /// The unit passes.
+    Go,
+    /// The unit fails.
+    NoGo,
+    /// The score lies in the RECHECK band: retest the unit.
+    Recheck,
+}
+
+impl Verdict {
+    /// Upper-case name as the device and `replay` print it.
+    pub const fn as_str(self) -> &'static str {
+        match self {
+            Self::Go => "GO",
+            Self::NoGo => "NO-GO",
+            Self::Recheck => "RECHECK",
+        }
+    }
+}
+
+/// A classification: the exact integer score and the verdict it gives.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Decision {
+    /// `bias + Σ weight_i · x_i`, in accumulator units.
+    pub score: i64,
+    /// The verdict for `score`.
+    pub verdict: Verdict,
+}
+
+impl ChannelSpec {
+    /// Scales one raw reading, or `None` if it lies outside the valid range.
+    ///
+    /// Only call on a channel of a [`CheckedModel`]; the no-overflow argument rests on its validation.
+    #[inline]
+    fn scale_checked(&self, raw: i32) -> Option<i64> {
+        if raw < self.raw_min || raw > self.raw_max {
+            return None;
+        }
+        // |raw - offset| · multiplier < 2^62 (validated): neither step wraps.
+        let p = i64::from(raw)
+            .wrapping_sub(i64::from(self.offset))
+            .wrapping_mul(i64::from(self.multiplier));
+        Some(if self.shift == 0 {
+            p
+        } else {
+            // shift in 1..=62 (validated); adding 2^(shift-1) < 2^62 to |p| < 2^62 stays in i64.
+            p.wrapping_add(1i64 << (self.shift & 63).wrapping_sub(1)) >> (self.shift & 63)
+        })
+    }
+}
+
+impl CheckedModel {
+    /// Scales every reading into `out` (scaled integer inputs, Q(input_bits-1)).
+    ///
+    /// # Errors
+    /// [`Fault::ReadingCount`] if `raw` or `out` does not hold one value per
+    /// channel; [`Fault::OutOfRange`] for the first reading outside its range.
+    pub fn scale(&self, raw: &[i32], out: &mut [i64]) -> Result<(), Fault> {
+        let n = self.channel_count();
+        if raw.len() != n || out.len() != n {
+            return Err(Fault::ReadingCount {
+                expected: count_u8(n),
+                got: raw.len(),
+            });
+        }
+        for (i, ((c, &r), x)) in self
+            .model()
+            .channels
+            .iter()
+            .zip(raw)
+            .zip(out.iter_mut())
+            .enumerate()
+        {
+            *x = c.scale_checked(r).ok_or(Fault::OutOfRange {
+                channel: count_u8(i),
+                raw: r,
+            })?;
+        }
+        Ok(())
+    }
+
+    /// The score for scaled inputs already in range (the output of [`scale`](Self::scale)).
+    ///
+    /// Inputs beyond the validated range make the result meaningless but never panic.
+    #[inline]
+    pub fn score_scaled(&self, x: &[i64]) -> i64 {
+        self.model()
+            .channels
+            .iter()
+            .zip(x)
+            .fold(self.model().bias, |acc, (c, &xi)| {
+                acc.wrapping_add(i64::from(c.weight).wrapping_mul(xi))
+            })
+    }
+
+    /// The verdict for a score, by the model's thresholds.
+    #[inline]
+    pub fn verdict(&self, score: i64) -> Verdict {
+        let m = self.model();
+        if score >= m.go_min {
+            Verdict::Go
+        } else if score <= m.nogo_max {
+            Verdict::NoGo
+        } else {
+            Verdict::Recheck
+        }
+    }
+
+    /// Classifies one set of raw readings, one per channel in model order.
+    ///
+    /// This is the one function the host audit, `replay` and the firmware call.
+    ///
+    /// # Errors
+    /// A [`Fault`] if the reading count is wrong or a reading is out of range;
+    /// the device must then show NO-GO.
+    pub fn classify(&self, raw: &[i32]) -> Result<Decision, Fault> {
+        let n = self.channel_count();
+        if raw.len() != n {
+            return Err(Fault::ReadingCount {
+                expected: count_u8(n),
+                got: raw.len(),
+            });
+        }
+        let mut acc = self.model().bias;
+        for (i, (c, &r)) in self.model().channels.iter().zip(raw).enumerate() {
+            let x = c.scale_checked(r).ok_or(Fault::OutOfRange {
+                channel: count_u8(i),
+                raw: r,
+            })?;
+            // |Σ| <= validated score bound < 2^63.
+            acc = acc.wrapping_add(i64::from(c.weight).wrapping_mul(x));
+        }
+        Ok(Decision {
+            score: acc,
+            verdict: self.verdict(acc),
+        })
+    }
+}
+
+fn count_u8(n: usize) -> u8 {
+    u8::try_from(n).unwrap_or(u8::MAX)
+}
+
+#[cfg(test)]
+#[allow(clippy::arithmetic_side_effects)]
+mod tests {
+    use super::*;
+    use crate::model::{FixedModel, scale_wide};
+    use proptest::prelude::*;
+
+    fn example() -> CheckedModel {
+        CheckedModel::new(FixedModel::example_two_channel()).unwrap()
+    }
+
+    #[test]
+    fn conversion_rounds_half_up() {
+        // multiplier 1, shift 1: x = floor((r - 0 + 1) / 2), so 1 → 1, -1 → 0, 3 → 2, -3 → -1.
+        let c = ChannelSpec {
+            raw_min: -10,
+            raw_max: 10,
+            multiplier: 1,
+            shift: 1,
+            ..Default::default()
+        };
+        let got: [i64; 4] = [1, -1, 3, -3].map(|r| c.scale_checked(r).unwrap());
+        assert_eq!(got, [1, 0, 2, -1]);
+    }
+
+    #[test]
+    fn out_of_range_and_count_faults() {
+        let m = example();
+        assert_eq!(
+            m.classify(&[1001, 0]),
+            Err(Fault::OutOfRange {
+                channel: 0,
+                raw: 1001
+            })
+        );
+        assert_eq!(
+            m.classify(&[0, -1]),
+            Err(Fault::OutOfRange {
+                channel: 1,
+                raw: -1
+            })
+        );
+        assert_eq!(
+            m.classify(&[0]),
+            Err(Fault::ReadingCount {
+                expected: 2,
+                got: 1
+            })
+        );
+        assert!(m.classify(&[1000, 0]).is_ok());
+        assert!(m.classify(&[0, 1000]).is_ok());
+    }
+
+    #[test]
+    fn thresholds_at_their_exact_edges() {
+        let mut fm = FixedModel::example_two_channel();
+        fm.nogo_max = -10;
+        fm.go_min = 10;
+        let m = CheckedModel::new(fm).unwrap();
+        let cases = [
+            (-11, Verdict::NoGo),
+            (-10, Verdict::NoGo),
+            (-9, Verdict::Recheck),
+            (0, Verdict::Recheck),
+            (9, Verdict::Recheck),
+            (10, Verdict::Go),
+            (11, Verdict::Go),
+        ];
+        for (score, want) in cases {
+            assert_eq!(m.verdict(score), want, "score {score}");
+        }
+    }
+
+    fn arb_channel() -> impl Strategy<Value = ChannelSpec> {
+        (
+            -100_000i32..100_000,
+            1i32..200_000,
+            16u8..40,
+            -8_000_000i32..8_000_000,
+        )
+            .prop_map(|(lo, span, shift, w)| {
+                let hi = lo + span;
+                let offset = lo + span / 2;
+                let half = i64::from(span - span / 2).max(1);
+                // Largest multiplier that keeps the scaled range within ±32767.
+                let mul = ((32767i64 << shift) / half).clamp(1, i64::from(i32::MAX)) as i32;
+                ChannelSpec {
+                    raw_min: lo,
+                    raw_max: hi,
+                    offset,
+                    multiplier: mul,
+                    shift,
+                    weight: w,
+                    ..Default::default()
+                }
+            })
+    }
+
+    proptest! {
+        /// Differential check against an exact reference in i128 (the style of
+        /// csv-core's `parses_to!`: every case through two implementations).
+        #[test]
+        fn kernel_equals_exact_i128_reference(
+            chans in prop::collection::vec(arb_channel(), 1..=crate::MAX_CHANNELS),
+            bias in -(1i64 << 40)..(1i64 << 40),
+            picks in prop::collection::vec(any::<u32>(), crate::MAX_CHANNELS),
+        ) {
+            let mut fm = FixedModel::example_two_channel();
+            fm.channels.clear();
+            for c in &chans { fm.channels.push(c.clone()).unwrap(); }
+            fm.weight_bits = 24;
+            fm.acc_bits = 64;
+            fm.bias = bias;
+            fm.nogo_max = -1;
+            fm.go_min = 1;
+            let m = CheckedModel::new(fm).unwrap();
+            let raw: std::vec::Vec<i32> = chans.iter().zip(&picks).map(|(c, &p)| {
+                let span = (i64::from(c.raw_max) - i64::from(c.raw_min) + 1) as u64;
+                (i64::from(c.raw_min) + (u64::from(p) % span) as i64) as i32
+            }).collect();
+            let exact: i128 = chans.iter().zip(&raw)
+                .map(|(c, &r)| i128::from(c.weight) * scale_wide(c, r))
+                .sum::<i128>() + i128::from(bias);
+            let d = m.classify(&raw).unwrap();
+            prop_assert_eq!(i128::from(d.score), exact);
+            let want = if exact >= 1 { Verdict::Go } else if exact <= -1 { Verdict::NoGo } else { Verdict::Recheck };
+            prop_assert_eq!(d.verdict, want);
+            // The two-step path (scale, then score) agrees with classify.
+            let mut x = [0i64; crate::MAX_CHANNELS];
+            m.scale(&raw, &mut x[..raw.len()]).unwrap();
+            prop_assert_eq!(m.score_scaled(&x[..raw.len()]), d.score);
+        }
+    }
+}

@@ -1,0 +1,81 @@
+//! The Linegate model: what the host trainer produces and what the device runs.
+//!
+//! Three layers, in the order data crosses them:
+//!
+//! 1. [`model`]: the fixed-point model as plain data ([`FixedModel`]) and its
+//!    validated form ([`CheckedModel`]). Validation proves, once, that every
+//!    in-range reading gives an exact score without overflow.
+//! 2. [`blob`]: the byte format that travels to flash: magic, format version,
+//!    a postcard payload and a CRC-32. The layout is written down in
+//!    `shared-model/FORMAT.md`; any layout change bumps [`blob::FORMAT_VERSION`].
+//! 3. [`kernel`]: raw readings → scaled integer inputs → integer score →
+//!    [`Verdict`]. Integer only, explicit widths.
+//!
+//! # Contract
+//!
+//! Validate once, then stay infallible: [`blob::decode`] and
+//! [`CheckedModel::new`] check magic, version, lengths, CRC, ranges and the
+//! accumulator bound. After that no accessor and no kernel call can panic or
+//! overflow; the only run-time outcomes are a [`Decision`] or a [`Fault`]
+//! naming the reading that was refused.
+//!
+//! The crate is `#![no_std]`, uses no heap and no floating point, so the host
+//! audit and the firmware execute the same code and agree bit for bit.
+//!
+//! ```
+//! use shared_model::{blob, ChannelSpec, FixedModel, Verdict};
+//!
+//! let mut model = FixedModel::example_two_channel();
+//! let checked = shared_model::CheckedModel::new(model.clone()).unwrap();
+//! let mut buf = [0u8; blob::MAX_BLOB_LEN];
+//! let n = blob::encode(&checked, &mut buf).unwrap();
+//! let back = blob::decode(&buf[..n]).unwrap();
+//! assert_eq!(back.model(), checked.model());
+//! let d = back.classify(&[900, 100]).unwrap();
+//! assert_eq!(d.verdict, Verdict::Go);
+//! # model.bias = 0; let _ = model;
+//! # let _ = ChannelSpec::default();
+//! ```
+#![no_std]
+#![forbid(unsafe_code)]
+#![deny(missing_docs)]
+#![warn(
+    clippy::cast_possible_truncation,
+    clippy::cast_sign_loss,
+    clippy::cast_possible_wrap,
+    clippy::indexing_slicing,
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic
+)]
+#![cfg_attr(
+    test,
+    allow(
+        clippy::indexing_slicing,
+        clippy::unwrap_used,
+        clippy::expect_used,
+        clippy::panic,
+        clippy::cast_possible_truncation,
+        clippy::cast_possible_wrap,
+        clippy::cast_sign_loss,
+        clippy::arithmetic_side_effects
+    )
+)]
+
+#[cfg(test)]
+extern crate std;
+
+pub mod blob;
+pub mod error;
+pub mod kernel;
+pub mod model;
+
+pub use error::{DecodeError, EncodeError, Fault, ModelError};
+pub use kernel::{Decision, Verdict};
+pub use model::{AuditMark, ChannelSpec, CheckedModel, FixedModel};
+
+/// Most channels a model may fuse. Fixed at compile time so the device needs no heap.
+pub const MAX_CHANNELS: usize = 32;
+
+/// Longest channel name, in UTF-8 bytes.
+pub const NAME_CAPACITY: usize = 16;

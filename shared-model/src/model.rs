@@ -1,0 +1,297 @@
+//! The fixed-point model: plain data ([`FixedModel`]) and its validated form ([`CheckedModel`]).
+//!
+//! Per channel the device turns a raw reading `r` (ADC counts or sensor
+//! integer units) into a scaled integer input
+//!
+//! ```text
+//! x = floor(((r - offset) * multiplier + 2^(shift-1)) / 2^shift)      (shift > 0)
+//! x = (r - offset) * multiplier                                         (shift = 0)
+//! ```
+//!
+//! i.e. the exact rational value rounded to nearest with ties towards +∞,
+//! in Q(input_bits-1). The score is `bias + Σ weight_i · x_i` in units of
+//! 2^-(weight_frac_bits + input_bits - 1). Verdict: `score >= go_min` → GO,
+//! `score <= nogo_max` → NO-GO, anything between → RECHECK.
+
+use heapless::{String, Vec};
+use serde::{Deserialize, Serialize};
+
+use crate::error::ModelError;
+use crate::{MAX_CHANNELS, NAME_CAPACITY};
+
+/// How the model reached the blob: recorded so an auditor can see an override.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub enum AuditMark {
+    /// Packed without a release audit.
+    #[default]
+    NotAudited,
+    /// The release audit passed.
+    Passed,
+    /// The audit failed and the user packed it anyway with an explicit override.
+    Overridden,
+}
+
+/// One input channel: valid raw range, raw → scaled conversion, weight.
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct ChannelSpec {
+    /// Short name for reports; may be empty.
+    pub name: String<NAME_CAPACITY>,
+    /// Smallest valid raw reading; the device refuses anything below.
+    pub raw_min: i32,
+    /// Largest valid raw reading; the device refuses anything above.
+    pub raw_max: i32,
+    /// Raw reading that maps to scaled 0.
+    pub offset: i32,
+    /// Integer multiplier of the conversion (>= 1).
+    pub multiplier: i32,
+    /// Right shift of the conversion (0..=62), rounding to nearest, ties up.
+    pub shift: u8,
+    /// Weight, an integer in the declared weight word.
+    pub weight: i32,
+}
+
+/// A fixed-point linear classifier as plain data. Build one, then call [`CheckedModel::new`].
+#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct FixedModel {
+    /// 128-bit identity of the training inputs, filled in by the host.
+    pub model_id: [u8; 16],
+    /// Whether the release audit passed.
+    pub audit: AuditMark,
+    /// Scaled input word: 8 or 16 bits, i.e. Q7 or Q15.
+    pub input_bits: u8,
+    /// Weight word length in bits (2..=32).
+    pub weight_bits: u8,
+    /// Fractional bits of the weights' Q-format (0..=62).
+    pub weight_frac_bits: u8,
+    /// Accumulator width the overflow proof is made for: 32 or 64.
+    pub acc_bits: u8,
+    /// Bias in accumulator units.
+    pub bias: i64,
+    /// Scores at or below this are NO-GO.
+    pub nogo_max: i64,
+    /// Scores at or above this are GO; between the two is RECHECK.
+    pub go_min: i64,
+    /// The channels, in the order the device reads them.
+    pub channels: Vec<ChannelSpec, MAX_CHANNELS>,
+}
+
+impl FixedModel {
+    /// A small valid two-channel model (raw 0..=1000, Q15 inputs, Q7 8-bit weights) for examples and tests.
+    pub fn example_two_channel() -> Self {
+        let ch = |name: &str, weight: i32| ChannelSpec {
+            name: String::try_from(name).unwrap_or_default(),
+            raw_min: 0,
+            raw_max: 1000,
+            offset: 500,
+            // floor(32767 · 2^16 / 500): full range maps onto ±32767.
+            multiplier: 4_294_836,
+            shift: 16,
+            weight,
+        };
+        let mut channels = Vec::new();
+        let _ = channels.push(ch("a", 100));
+        let _ = channels.push(ch("b", -100));
+        Self {
+            model_id: [0; 16],
+            audit: AuditMark::NotAudited,
+            input_bits: 16,
+            weight_bits: 8,
+            weight_frac_bits: 7,
+            acc_bits: 32,
+            bias: 0,
+            nogo_max: 0,
+            go_min: 1,
+            channels,
+        }
+    }
+
+    /// Largest magnitude a scaled input may take: 2^(input_bits-1) - 1.
+    pub fn input_limit(&self) -> i64 {
+        (1i64 << (self.input_bits.clamp(2, 16) - 1)) - 1
+    }
+
+    /// The worst-case |score| over every in-range reading, computed exactly (i128).
+    ///
+    /// Only meaningful on a model whose channels passed validation.
+    pub fn score_bound(&self) -> i128 {
+        self.channels
+            .iter()
+            .fold(i128::from(self.bias).abs(), |acc, c| {
+                let lo = scale_wide(c, c.raw_min).abs();
+                let hi = scale_wide(c, c.raw_max).abs();
+                acc.saturating_add(i128::from(c.weight).abs().saturating_mul(lo.max(hi)))
+            })
+    }
+
+    fn validate(&self) -> Result<(), ModelError> {
+        if self.channels.is_empty() {
+            return Err(ModelError::ZeroChannels);
+        }
+        if self.input_bits != 8 && self.input_bits != 16 {
+            return Err(ModelError::InputFormat(self.input_bits));
+        }
+        if !(2..=32).contains(&self.weight_bits) || self.weight_frac_bits > 62 {
+            return Err(ModelError::WeightFormat {
+                bits: self.weight_bits,
+                frac: self.weight_frac_bits,
+            });
+        }
+        if self.acc_bits != 32 && self.acc_bits != 64 {
+            return Err(ModelError::AccumulatorFormat(self.acc_bits));
+        }
+        let limit = i128::from(self.input_limit());
+        let weight_limit = (1i64 << (self.weight_bits - 1)) - 1;
+        for (i, c) in self.channels.iter().enumerate() {
+            // MAX_CHANNELS < 256, so the index fits a u8.
+            let channel = u8::try_from(i).unwrap_or(u8::MAX);
+            if c.raw_min > c.raw_max {
+                return Err(ModelError::InvertedRange { channel });
+            }
+            if c.multiplier < 1 || c.shift > 62 {
+                return Err(ModelError::Conversion { channel });
+            }
+            // The kernel forms (r - offset) · multiplier in i64 and adds the rounding half;
+            // keeping both ends below 2^62 leaves room for that addition.
+            let span =
+                |r: i32| (i128::from(r) - i128::from(c.offset)).abs() * i128::from(c.multiplier);
+            if span(c.raw_min).max(span(c.raw_max)) >= 1i128 << 62 {
+                return Err(ModelError::ConversionOutOfRange { channel });
+            }
+            // The conversion is monotonic in r, so the ends of the range bound every reading.
+            if scale_wide(c, c.raw_min).abs() > limit || scale_wide(c, c.raw_max).abs() > limit {
+                return Err(ModelError::ConversionOutOfRange { channel });
+            }
+            if i64::from(c.weight).abs() > weight_limit {
+                return Err(ModelError::WeightOutOfRange { channel });
+            }
+        }
+        if self.nogo_max >= self.go_min {
+            return Err(ModelError::ThresholdsOutOfOrder);
+        }
+        let bound = self.score_bound();
+        let needed_bits = u8::try_from(129 - bound.leading_zeros()).unwrap_or(u8::MAX);
+        if needed_bits > self.acc_bits {
+            return Err(ModelError::AccumulatorOverflow {
+                needed_bits,
+                declared_bits: self.acc_bits,
+            });
+        }
+        Ok(())
+    }
+}
+
+/// The conversion of one reading in i128, used by validation and as the exact reference.
+pub(crate) fn scale_wide(c: &ChannelSpec, raw: i32) -> i128 {
+    let p = (i128::from(raw) - i128::from(c.offset)) * i128::from(c.multiplier);
+    if c.shift == 0 {
+        p
+    } else {
+        (p + (1i128 << (c.shift - 1))) >> c.shift
+    }
+}
+
+/// A model that passed validation; the kernel runs only on this type.
+///
+/// Holding one is the proof that every reading inside the channels' valid
+/// ranges yields an exact score that fits the declared accumulator.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct CheckedModel {
+    model: FixedModel,
+}
+
+impl CheckedModel {
+    /// Validates `model` and wraps it.
+    ///
+    /// # Errors
+    /// The first [`ModelError`] found: formats, ranges, conversions, weights,
+    /// threshold order, then the accumulator bound.
+    pub fn new(model: FixedModel) -> Result<Self, ModelError> {
+        model.validate()?;
+        Ok(Self { model })
+    }
+
+    /// The validated model, read-only.
+    pub fn model(&self) -> &FixedModel {
+        &self.model
+    }
+
+    /// Gives the plain model back, e.g. to edit and validate again.
+    pub fn into_inner(self) -> FixedModel {
+        self.model
+    }
+
+    /// Number of channels (1..=[`MAX_CHANNELS`]).
+    pub fn channel_count(&self) -> usize {
+        self.model.channels.len()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn example_is_valid() {
+        assert!(CheckedModel::new(FixedModel::example_two_channel()).is_ok());
+    }
+
+    #[test]
+    fn rejects_each_invalid_field() {
+        let base = FixedModel::example_two_channel();
+        type Edit = fn(&mut FixedModel);
+        let cases: [(Edit, ModelError); 9] = [
+            (|m| m.channels.clear(), ModelError::ZeroChannels),
+            (|m| m.input_bits = 12, ModelError::InputFormat(12)),
+            (
+                |m| m.weight_bits = 33,
+                ModelError::WeightFormat { bits: 33, frac: 7 },
+            ),
+            (|m| m.acc_bits = 48, ModelError::AccumulatorFormat(48)),
+            (
+                |m| m.channels[1].raw_min = 2000,
+                ModelError::InvertedRange { channel: 1 },
+            ),
+            (
+                |m| m.channels[0].multiplier = 0,
+                ModelError::Conversion { channel: 0 },
+            ),
+            (
+                |m| m.channels[0].multiplier *= 2,
+                ModelError::ConversionOutOfRange { channel: 0 },
+            ),
+            (
+                |m| m.channels[1].weight = 128,
+                ModelError::WeightOutOfRange { channel: 1 },
+            ),
+            (|m| m.go_min = m.nogo_max, ModelError::ThresholdsOutOfOrder),
+        ];
+        for (edit, want) in cases {
+            let mut m = base.clone();
+            edit(&mut m);
+            assert_eq!(CheckedModel::new(m), Err(want));
+        }
+    }
+
+    #[test]
+    fn accumulator_bound_is_enforced_at_the_edge() {
+        // 2 · 127 · 32767 = 8_322_818 → 24 bits + sign; a bias pushing the bound to 2^31 needs 33.
+        let mut m = FixedModel::example_two_channel();
+        m.channels[0].weight = 127;
+        m.channels[1].weight = 127;
+        m.bias = (1i64 << 31) - 1 - 2 * 127 * 32767;
+        assert!(
+            CheckedModel::new(m.clone()).is_ok(),
+            "bound exactly 2^31-1 fits 32 bits"
+        );
+        m.bias += 1;
+        assert_eq!(
+            CheckedModel::new(m.clone()),
+            Err(ModelError::AccumulatorOverflow {
+                needed_bits: 33,
+                declared_bits: 32
+            })
+        );
+        m.acc_bits = 64;
+        assert!(CheckedModel::new(m).is_ok());
+    }
+}
