@@ -1,1 +1,45 @@
+//! Linegate on the device: load a model blob from flash, read sensors, classify,
+//! drive GO / NO-GO lines, and fall to NO-GO on any fault.
+//!
+//! Layers, bottom up:
+//!
+//! - [`Classifier`]: a model blob validated once at start-up
+//!   ([`shared_model::blob::decode`]); afterwards classification cannot panic.
+//! - [`SensorSource`]: what a board implements to fill one raw reading per channel.
+//! - [`GoNoGoLines`]: the output driver, generic over embedded-hal 1.0
+//!   [`OutputPin`](embedded_hal::digital::OutputPin)s. It owns its pins and
+//!   keeps one invariant: NO-GO is asserted whenever GO is not, and GO is
+//!   always dropped before anything else changes.
+//! - [`Station`]: the loop body tying the three together, with fault
+//!   reporting that tells a new fault from a repeated one.
+//!
+//! No heap, no floating point, no `unsafe`.
 #![no_std]
+#![forbid(unsafe_code)]
+#![deny(missing_docs)]
+#![warn(
+    clippy::indexing_slicing,
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic
+)]
+#![cfg_attr(
+    test,
+    allow(
+        clippy::indexing_slicing,
+        clippy::unwrap_used,
+        clippy::expect_used,
+        clippy::panic
+    )
+)]
+
+mod classifier;
+mod driver;
+mod sensor;
+mod station;
+
+pub use classifier::Classifier;
+pub use driver::GoNoGoLines;
+pub use sensor::SensorSource;
+pub use shared_model::{Decision, DecodeError, Fault, Verdict};
+pub use station::{Station, StationFault, Step};

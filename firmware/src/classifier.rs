@@ -1,0 +1,53 @@
+//! The model as the device holds it.
+
+use shared_model::{CheckedModel, Decision, DecodeError, Fault, blob};
+
+/// A validated model, ready to classify.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Classifier {
+    model: CheckedModel,
+}
+
+impl Classifier {
+    /// Validates the blob stored in a flash region.
+    ///
+    /// The region may be longer than the blob (erased flash after it): the
+    /// header's payload length says where the blob ends.
+    ///
+    /// # Errors
+    /// Any [`DecodeError`]: the device must then hold NO-GO.
+    pub fn from_flash(region: &[u8]) -> Result<Self, DecodeError> {
+        let header = blob::Header::read(region)?;
+        let len = blob::HEADER_LEN + usize::from(header.payload_len) + blob::CRC_LEN;
+        let bytes = region.get(..len).ok_or(DecodeError::Truncated {
+            needed: len,
+            got: region.len(),
+        })?;
+        Ok(Self {
+            model: blob::decode(bytes)?,
+        })
+    }
+
+    /// Classifies one reading per channel with the shared kernel.
+    ///
+    /// # Errors
+    /// A [`Fault`] if the count is wrong or a reading is outside its valid range.
+    pub fn classify(&self, raw: &[i32]) -> Result<Decision, Fault> {
+        self.model.classify(raw)
+    }
+
+    /// Number of channels the sensor source must fill.
+    pub fn channel_count(&self) -> usize {
+        self.model.channel_count()
+    }
+
+    /// The model id recorded by the host, for logs.
+    pub fn model_id(&self) -> [u8; 16] {
+        self.model.model().model_id
+    }
+
+    /// The validated model.
+    pub fn model(&self) -> &CheckedModel {
+        &self.model
+    }
+}
