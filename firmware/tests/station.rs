@@ -181,11 +181,12 @@ fn go_and_nogo_are_never_asserted_together() {
 #[test]
 fn fault_injection_never_asserts_go_and_reports_each_fault_once() {
     // Valid range is 0..=1000; an ADC stuck at a rail reads 0xFFF (4095) or -1 here.
-    let cases: Vec<(
-        &str,
+    type Case = (
+        &'static str,
         Vec<Result<[i32; 2], BusError>>,
         StationFault<BusError>,
-    )> = vec![
+    );
+    let cases: Vec<Case> = vec![
         (
             "read failure",
             vec![Err(BusError); 3],
