@@ -1,1 +1,28 @@
+//! Linegate host tool: bench logs in, audited fixed-point model blobs out.
+//!
+//! The modules follow the data: [`log`] → [`dataset`] → [`scaling`] →
+//! [`trainer`] / [`maxmargin`] / [`separability`] → [`float_model`] →
+//! [`quantise`] → [`audit`] → [`pack`] (blob, Intel HEX) → device. [`eval`],
+//! [`report`], [`replay`] and [`demo`] sit beside the flow. Every fixed-point
+//! decision is made by `shared_model`'s kernel, the same code the firmware runs.
+//!
+//! The library returns typed errors; only the `linegate` binary picks exit codes.
+#![forbid(unsafe_code)]
 
+pub mod audit;
+pub mod dataset;
+pub mod demo;
+pub mod error;
+pub mod eval;
+pub mod float_model;
+pub mod hex;
+pub mod log;
+pub mod maxmargin;
+pub mod output;
+pub mod pack;
+pub mod quantise;
+pub mod replay;
+pub mod report;
+pub mod scaling;
+pub mod separability;
+pub mod trainer;

@@ -1,0 +1,138 @@
+//! A bench log in memory: raw readings per unit, labels, and where each unit came from.
+//!
+//! Readings are kept as the raw integers the device will see (4 bytes each);
+//! trainers scale them on the fly, so a log costs the memory of its data as f32.
+
+use std::path::{Path, PathBuf};
+
+use rand::SeedableRng;
+use rand::seq::SliceRandom;
+use rand_chacha::ChaCha8Rng;
+
+use crate::log::SkipReport;
+use crate::scaling::ChannelScale;
+
+/// Units of one bench log, with the channel scaling that turned readings into raw integers.
+#[derive(Clone, Debug)]
+pub struct Dataset {
+    /// The file read.
+    pub path: PathBuf,
+    /// SHA-256 of the file, hex.
+    pub sha256: String,
+    /// Per-channel scaling, in column order.
+    pub scales: Vec<ChannelScale>,
+    /// Raw readings, row-major: unit `i`, channel `j` at `i * dim + j`.
+    pub raw: Vec<i32>,
+    /// +1 for GO, -1 for NO-GO.
+    pub labels: Vec<i8>,
+    /// 1-based line of each unit in the file.
+    pub lines: Vec<u64>,
+    /// Unit ids, if the log has a unit-id column (else empty).
+    pub unit_ids: Vec<String>,
+    /// Rows skipped under `--skip-bad-rows`.
+    pub skipped: SkipReport,
+}
+
+impl Dataset {
+    /// An empty dataset for `path` with the given scaling.
+    pub fn empty(path: &Path, scales: Vec<ChannelScale>) -> Self {
+        Self {
+            path: path.to_path_buf(),
+            sha256: String::new(),
+            scales,
+            raw: Vec::new(),
+            labels: Vec::new(),
+            lines: Vec::new(),
+            unit_ids: Vec::new(),
+            skipped: SkipReport::default(),
+        }
+    }
+
+    /// Builds a dataset from points already in [-1, 1] (tests and references).
+    ///
+    /// Each channel gets range [-1, 1] at an lsb of 1e-9, so the scaled values equal the points to 1e-9.
+    pub fn from_scaled(points: &[Vec<f64>], labels: &[i8]) -> Self {
+        let d = points.first().map_or(0, Vec::len);
+        let scales: Vec<ChannelScale> = (0..d)
+            .map(|j| {
+                ChannelScale::new(&format!("x{j}"), "", -1.0, 1.0, 1e-9, 0.0).expect("valid range")
+            })
+            .collect();
+        let mut ds = Self::empty(Path::new("<memory>"), scales);
+        for (i, (p, &l)) in points.iter().zip(labels).enumerate() {
+            for (v, s) in p.iter().zip(&ds.scales) {
+                ds.raw.push(s.to_raw(*v).expect("point inside [-1, 1]"));
+            }
+            ds.labels.push(l);
+            ds.lines.push(i as u64 + 2);
+        }
+        ds
+    }
+
+    /// Number of units.
+    pub fn len(&self) -> usize {
+        self.labels.len()
+    }
+
+    /// True if there are no units.
+    pub fn is_empty(&self) -> bool {
+        self.labels.is_empty()
+    }
+
+    /// Number of channels.
+    pub fn dim(&self) -> usize {
+        self.scales.len()
+    }
+
+    /// Raw readings of unit `i`.
+    pub fn raw_row(&self, i: usize) -> &[i32] {
+        let d = self.dim();
+        &self.raw[i * d..(i + 1) * d]
+    }
+
+    /// Scaled readings of unit `i` into `out` (length `dim`).
+    #[inline]
+    pub fn scaled_row(&self, i: usize, out: &mut [f64]) {
+        for ((o, &r), s) in out.iter_mut().zip(self.raw_row(i)).zip(&self.scales) {
+            *o = s.scaled(r);
+        }
+    }
+
+    /// Label of unit `i` as ±1.0.
+    #[inline]
+    pub fn y(&self, i: usize) -> f64 {
+        f64::from(self.labels[i])
+    }
+
+    /// A name for unit `i` in reports: its unit id, or its line in the file.
+    pub fn unit_name(&self, i: usize) -> String {
+        match self.unit_ids.get(i) {
+            Some(u) if !u.is_empty() => u.clone(),
+            _ => format!("line {}", self.lines[i]),
+        }
+    }
+
+    /// Every unit index.
+    pub fn all(&self) -> Vec<usize> {
+        (0..self.len()).collect()
+    }
+
+    /// Splits the units into `k` folds after a seeded shuffle; each fold keeps the class ratio.
+    pub fn folds(&self, k: usize, seed: u64) -> Vec<Vec<usize>> {
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        let mut folds = vec![Vec::new(); k.max(1)];
+        for class in [1i8, -1] {
+            let mut idx: Vec<usize> = (0..self.len())
+                .filter(|&i| self.labels[i] == class)
+                .collect();
+            idx.shuffle(&mut rng);
+            for (n, i) in idx.into_iter().enumerate() {
+                folds[n % k.max(1)].push(i);
+            }
+        }
+        for f in &mut folds {
+            f.sort_unstable();
+        }
+        folds
+    }
+}

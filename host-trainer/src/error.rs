@@ -1,0 +1,242 @@
+//! Host errors: every message names the file, and where it applies the line and column.
+
+use std::path::PathBuf;
+
+/// A problem with a bench log or channel sheet. The CLI maps these to exit code 2.
+#[derive(Debug, thiserror::Error)]
+pub enum InputError {
+    /// The file could not be opened or read.
+    #[error("{path}: cannot read: {source}")]
+    Io {
+        /// File.
+        path: PathBuf,
+        /// Cause.
+        source: std::io::Error,
+    },
+    /// The file has no header row.
+    #[error("{path}: the file is empty (a header row naming the columns is required)")]
+    Empty {
+        /// File.
+        path: PathBuf,
+    },
+    /// The header has a name twice.
+    #[error("{path}: line 1: column name '{name}' appears twice in the header; rename one")]
+    DuplicateHeader {
+        /// File.
+        path: PathBuf,
+        /// Repeated name.
+        name: String,
+    },
+    /// A named column is not in the header.
+    #[error("{path}: no column '{name}' in the header (columns: {columns})")]
+    UnknownColumn {
+        /// File.
+        path: PathBuf,
+        /// Missing name.
+        name: String,
+        /// What the header has.
+        columns: String,
+    },
+    /// No label column given or found.
+    #[error(
+        "{path}: no label column; name it with --label (looked for: label, verdict, result, status)"
+    )]
+    NoLabel {
+        /// File.
+        path: PathBuf,
+    },
+    /// A row has the wrong number of fields.
+    #[error("{path}: line {line}: expected {expected} fields, found {found} (ragged row)")]
+    Ragged {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// Fields in the header.
+        expected: usize,
+        /// Fields in the row.
+        found: usize,
+    },
+    /// A cell is empty.
+    #[error("{path}: line {line}, column '{column}': empty cell")]
+    Missing {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// Column name.
+        column: String,
+    },
+    /// A cell is not a number.
+    #[error(
+        "{path}: line {line}, column '{column}': '{value}' is not a number (exclude the column with --ignore, or the row with --skip-bad-rows)"
+    )]
+    NotNumeric {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// Column name.
+        column: String,
+        /// The cell, lossily decoded.
+        value: String,
+    },
+    /// A cell is NaN, infinite, or too large to be a reading.
+    #[error("{path}: line {line}, column '{column}': '{value}' is not a finite reading")]
+    NotFinite {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// Column name.
+        column: String,
+        /// The cell.
+        value: String,
+    },
+    /// A reading is outside the channel's declared valid range.
+    #[error(
+        "{path}: line {line}, column '{column}': {value} is outside the valid range [{min}, {max}] of the channel sheet"
+    )]
+    OutOfRange {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// Column name.
+        column: String,
+        /// The reading.
+        value: f64,
+        /// Range minimum.
+        min: f64,
+        /// Range maximum.
+        max: f64,
+    },
+    /// The label cell is not a known GO or NO-GO token.
+    #[error(
+        "{path}: line {line}, column '{column}': unknown label '{value}' (GO: {go}; NO-GO: {nogo}; set --go-labels / --nogo-labels)"
+    )]
+    UnknownLabel {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// Label column.
+        column: String,
+        /// The cell.
+        value: String,
+        /// Accepted GO tokens.
+        go: String,
+        /// Accepted NO-GO tokens.
+        nogo: String,
+    },
+    /// A line is longer than the reader accepts.
+    #[error("{path}: line {line}: longer than {max} bytes; is this a bench log?")]
+    LineTooLong {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+        /// Limit in bytes.
+        max: usize,
+    },
+    /// The header is not UTF-8.
+    #[error("{path}: line 1: the header is not valid UTF-8")]
+    HeaderNotUtf8 {
+        /// File.
+        path: PathBuf,
+    },
+    /// The log has a header but no usable rows.
+    #[error("{path}: no data rows{skipped}")]
+    NoRows {
+        /// File.
+        path: PathBuf,
+        /// Note on skipped rows, if any.
+        skipped: String,
+    },
+    /// Only one class is present.
+    #[error(
+        "{path}: every one of the {rows} units is {class}; training needs both GO and NO-GO units"
+    )]
+    OneClass {
+        /// File.
+        path: PathBuf,
+        /// Units read.
+        rows: usize,
+        /// The only class.
+        class: &'static str,
+    },
+    /// A channel never changes.
+    #[error(
+        "{path}: channel '{column}' has zero spread (every unit reads {value}); drop it with --ignore {column} or declare its range in a channel sheet"
+    )]
+    ZeroSpread {
+        /// File.
+        path: PathBuf,
+        /// Column name.
+        column: String,
+        /// The constant value.
+        value: f64,
+    },
+    /// More channels than a model holds.
+    #[error(
+        "{path}: {count} channels selected; a model holds at most {max} (choose with --channels)"
+    )]
+    TooManyChannels {
+        /// File.
+        path: PathBuf,
+        /// Channels selected.
+        count: usize,
+        /// Capacity.
+        max: usize,
+    },
+    /// No channel selected.
+    #[error(
+        "{path}: no channel columns left after removing label, unit id, timestamp and ignored columns"
+    )]
+    NoChannels {
+        /// File.
+        path: PathBuf,
+    },
+    /// Channel sheet problem.
+    #[error("{path}: {message}")]
+    Sheet {
+        /// File.
+        path: PathBuf,
+        /// What is wrong.
+        message: String,
+    },
+    /// A file written by this tool could not be parsed.
+    #[error("{path}: {message}")]
+    Format {
+        /// File.
+        path: PathBuf,
+        /// What is wrong.
+        message: String,
+    },
+}
+
+impl InputError {
+    /// Wraps an I/O error with its file.
+    pub fn io(path: impl Into<PathBuf>, source: std::io::Error) -> Self {
+        Self::Io {
+            path: path.into(),
+            source,
+        }
+    }
+}
+
+/// A problem writing output. Nothing partial is left behind.
+#[derive(Debug, thiserror::Error)]
+pub enum OutputError {
+    /// The target exists and `--force` was not given.
+    #[error("{0}: already exists; pass --force to overwrite")]
+    Exists(PathBuf),
+    /// Writing failed.
+    #[error("{path}: cannot write: {source}")]
+    Io {
+        /// File.
+        path: PathBuf,
+        /// Cause.
+        source: std::io::Error,
+    },
+}

@@ -1,0 +1,186 @@
+//! Evaluation: holdout logs and k-fold cross-validation, per trainer.
+
+use serde::Serialize;
+
+use crate::dataset::Dataset;
+use crate::maxmargin::{SvmConfig, max_margin};
+use crate::trainer::{Linear, PerceptronConfig, PerceptronKind, perceptron};
+
+/// The trainers `linegate train` offers.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum TrainerKind {
+    /// Classic perceptron (Novikoff form).
+    Perceptron,
+    /// Averaged perceptron.
+    Averaged,
+    /// Pocket perceptron.
+    Pocket,
+    /// Maximum margin: hard when separable, soft (hinge, C) otherwise.
+    MaxMargin,
+}
+
+impl TrainerKind {
+    /// Every trainer, in report order.
+    pub const ALL: [Self; 4] = [
+        Self::Perceptron,
+        Self::Averaged,
+        Self::Pocket,
+        Self::MaxMargin,
+    ];
+
+    /// Name as printed and stored.
+    pub fn name(self) -> &'static str {
+        match self {
+            Self::Perceptron => "perceptron",
+            Self::Averaged => "averaged",
+            Self::Pocket => "pocket",
+            Self::MaxMargin => "max-margin",
+        }
+    }
+}
+
+/// Training settings shared by all trainers.
+#[derive(Clone, Copy, Debug)]
+pub struct TrainConfig {
+    /// Epoch cap for the perceptron family.
+    pub epochs: u32,
+    /// Seed.
+    pub seed: u64,
+    /// Soft-margin penalty used when the data are not separable.
+    pub c: f64,
+    /// Whether the full training log is separable (decides hard vs soft margin).
+    pub separable: bool,
+}
+
+/// A trained model and what the trainer reports.
+#[derive(Clone, Debug)]
+pub struct Trained {
+    /// The classifier.
+    pub model: Linear,
+    /// Perceptron updates, if applicable.
+    pub updates: Option<u64>,
+    /// Soft-margin C, if the soft margin was used.
+    pub c: Option<f64>,
+}
+
+/// Trains one trainer on the units `idx`.
+pub fn train(ds: &Dataset, idx: &[usize], kind: TrainerKind, cfg: TrainConfig) -> Trained {
+    let pc = PerceptronConfig {
+        epochs: cfg.epochs,
+        seed: cfg.seed,
+    };
+    let p = |k| {
+        let r = perceptron(ds, idx, k, pc);
+        Trained {
+            model: r.model,
+            updates: Some(r.updates),
+            c: None,
+        }
+    };
+    match kind {
+        TrainerKind::Perceptron => p(PerceptronKind::Classic),
+        TrainerKind::Averaged => p(PerceptronKind::Averaged),
+        TrainerKind::Pocket => p(PerceptronKind::Pocket),
+        TrainerKind::MaxMargin => {
+            let (svm, c) = if cfg.separable {
+                (SvmConfig::hard(), None)
+            } else {
+                (SvmConfig::soft(cfg.c), Some(cfg.c))
+            };
+            Trained {
+                model: max_margin(ds, idx, svm).model,
+                updates: None,
+                c,
+            }
+        }
+    }
+}
+
+/// Decision counts on a set of units.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize)]
+pub struct Counts {
+    /// Units evaluated.
+    pub units: usize,
+    /// Correct decisions.
+    pub correct: usize,
+    /// NO-GO units the model passes.
+    pub false_go: usize,
+    /// GO units the model fails.
+    pub false_nogo: usize,
+}
+
+impl Counts {
+    /// Fraction correct.
+    pub fn accuracy(&self) -> f64 {
+        if self.units == 0 {
+            0.0
+        } else {
+            self.correct as f64 / self.units as f64
+        }
+    }
+
+    fn add(&mut self, o: Counts) {
+        self.units += o.units;
+        self.correct += o.correct;
+        self.false_go += o.false_go;
+        self.false_nogo += o.false_nogo;
+    }
+}
+
+/// Counts decisions of `model` (GO when score > `threshold`) on the units `idx`.
+pub fn evaluate(model: &Linear, threshold: f64, ds: &Dataset, idx: &[usize]) -> Counts {
+    let mut c = Counts::default();
+    for (s, &i) in model.scores(ds, idx).iter().zip(idx) {
+        let go = *s > threshold;
+        c.units += 1;
+        match (go, ds.labels[i] > 0) {
+            (true, true) | (false, false) => c.correct += 1,
+            (true, false) => c.false_go += 1,
+            (false, true) => c.false_nogo += 1,
+        }
+    }
+    c
+}
+
+/// One row of the per-trainer table.
+#[derive(Clone, Debug, Serialize)]
+pub struct EvalRow {
+    /// Trainer.
+    pub trainer: TrainerKind,
+    /// Pooled counts over the held-out folds (or the holdout log).
+    pub counts: Counts,
+    /// Accuracy.
+    pub accuracy: f64,
+}
+
+/// k-fold cross-validation of each trainer; counts are pooled over the folds.
+pub fn cross_validate(
+    ds: &Dataset,
+    k: usize,
+    kinds: &[TrainerKind],
+    cfg: TrainConfig,
+) -> Vec<EvalRow> {
+    let folds = ds.folds(k, cfg.seed);
+    kinds
+        .iter()
+        .map(|&kind| {
+            let mut total = Counts::default();
+            for (f, test) in folds.iter().enumerate() {
+                let train_idx: Vec<usize> = folds
+                    .iter()
+                    .enumerate()
+                    .filter(|(g, _)| *g != f)
+                    .flat_map(|(_, v)| v.iter().copied())
+                    .collect();
+                let t = train(ds, &train_idx, kind, cfg);
+                total.add(evaluate(&t.model, 0.0, ds, test));
+            }
+            EvalRow {
+                trainer: kind,
+                counts: total,
+                accuracy: total.accuracy(),
+            }
+        })
+        .collect()
+}

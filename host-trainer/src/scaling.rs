@@ -1,0 +1,304 @@
+//! Channel scaling: physical reading → raw integer → scaled value in [-1, 1].
+//!
+//! The device reads raw integers (ADC counts or sensor units). Per channel,
+//! `raw = round((physical - zero) / lsb)`. The float trainer sees
+//! `x = (raw - offset) / half`, so every channel's valid range lands in
+//! [-1, 1] whatever its unit. The fixed-point conversion stored in the blob
+//! is `x_q = round((raw - offset) · multiplier / 2^shift)`, with
+//! `multiplier / 2^shift ≈ (2^(bits-1) - 1) / half`; the quantiser accounts
+//! for the small ratio between the two exactly.
+//!
+//! A channel sheet (TOML) declares ranges; without one, the observed range
+//! with 10 % headroom on each side is used.
+//!
+//! ```toml
+//! # Linegate channel sheet
+//! [[channel]]
+//! name = "supply_current"   # column in the bench log
+//! unit = "mA"
+//! min = 150.0                # valid physical range; the device refuses readings outside
+//! max = 900.0
+//! lsb = 0.1                  # physical units per raw count (ADC gain); default 1
+//! zero = 0.0                 # physical value at raw 0 (ADC offset); default 0
+//! noise = 2.0                # optional: sensor noise, for the tolerance analysis
+//! ```
+
+use std::path::Path;
+
+use serde::{Deserialize, Serialize};
+
+use crate::error::InputError;
+
+/// One channel's scaling, as stored in the float model.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ChannelScale {
+    /// Column name in the bench log.
+    pub name: String,
+    /// Physical unit, for reports.
+    pub unit: String,
+    /// Smallest valid physical reading.
+    pub min: f64,
+    /// Largest valid physical reading.
+    pub max: f64,
+    /// Physical units per raw count.
+    pub lsb: f64,
+    /// Physical value at raw 0.
+    pub zero: f64,
+    /// Declared noise (physical units), if any.
+    pub noise: Option<f64>,
+    /// Raw value of `min`.
+    pub raw_min: i32,
+    /// Raw value of `max`.
+    pub raw_max: i32,
+    /// Raw value that scales to 0.
+    pub offset: i32,
+    /// Raw counts that scale to 1.0.
+    pub half: i64,
+}
+
+impl ChannelScale {
+    /// Builds the scaling from a physical range and raw conversion.
+    ///
+    /// # Errors
+    /// A message if the range is empty, not finite, or does not fit 32-bit raw values.
+    pub fn new(
+        name: &str,
+        unit: &str,
+        min: f64,
+        max: f64,
+        lsb: f64,
+        zero: f64,
+    ) -> Result<Self, String> {
+        if !(min.is_finite() && max.is_finite() && lsb.is_finite() && zero.is_finite()) {
+            return Err(format!(
+                "channel '{name}': min, max, lsb and zero must be finite numbers"
+            ));
+        }
+        if min >= max {
+            return Err(format!(
+                "channel '{name}': min ({min}) must be below max ({max})"
+            ));
+        }
+        if lsb <= 0.0 {
+            return Err(format!("channel '{name}': lsb must be positive, got {lsb}"));
+        }
+        let to_raw = |v: f64| ((v - zero) / lsb).round();
+        let (lo, hi) = (to_raw(min), to_raw(max));
+        let limit = f64::from(i32::MAX / 2);
+        if lo.abs() > limit || hi.abs() > limit {
+            return Err(format!(
+                "channel '{name}': range [{min}, {max}] at lsb {lsb} needs raw values beyond ±2^30; use a coarser lsb"
+            ));
+        }
+        if lo == hi {
+            return Err(format!(
+                "channel '{name}': range [{min}, {max}] is narrower than one lsb ({lsb})"
+            ));
+        }
+        let (raw_min, raw_max) = (lo as i32, hi as i32);
+        let offset = raw_min + (raw_max - raw_min) / 2;
+        let half = i64::from(raw_max - offset)
+            .max(i64::from(offset - raw_min))
+            .max(1);
+        Ok(Self {
+            name: name.to_string(),
+            unit: unit.to_string(),
+            min,
+            max,
+            lsb,
+            zero,
+            noise: None,
+            raw_min,
+            raw_max,
+            offset,
+            half,
+        })
+    }
+
+    /// The observed range with 10 % headroom each side and a decimal lsb giving at least 20 000 counts.
+    ///
+    /// # Errors
+    /// A message if the range is degenerate.
+    pub fn observed(name: &str, lo: f64, hi: f64) -> Result<Self, String> {
+        let span = hi - lo;
+        let (min, max) = (lo - 0.1 * span, hi + 0.1 * span);
+        let lsb = 10f64.powf(((max - min) / 20_000.0).log10().floor());
+        Self::new(name, "", min, max, lsb, 0.0)
+    }
+
+    /// The raw reading for a physical value, or `None` if it is outside the valid range.
+    pub fn to_raw(&self, physical: f64) -> Option<i32> {
+        let r = ((physical - self.zero) / self.lsb).round();
+        if r >= f64::from(self.raw_min) && r <= f64::from(self.raw_max) {
+            Some(r as i32)
+        } else {
+            None
+        }
+    }
+
+    /// The physical value of a raw reading.
+    pub fn physical(&self, raw: i32) -> f64 {
+        self.zero + f64::from(raw) * self.lsb
+    }
+
+    /// The float trainer's input for a raw reading, in [-1, 1] for valid readings.
+    #[inline]
+    pub fn scaled(&self, raw: i32) -> f64 {
+        (i64::from(raw) - i64::from(self.offset)) as f64 / self.half as f64
+    }
+
+    /// The fixed-point conversion for an input word of `input_bits`: (multiplier, shift).
+    ///
+    /// Picks the largest shift whose multiplier fits an i32, so the ratio is as exact as the blob allows.
+    pub fn conversion(&self, input_bits: u8) -> (i32, u8) {
+        let limit = (1i128 << (input_bits - 1)) - 1;
+        for shift in (0..=46u8).rev() {
+            let mul = (limit << shift) / i128::from(self.half);
+            if mul >= 1
+                && mul <= i128::from(i32::MAX)
+                && mul * i128::from(self.half) < (1i128 << 62)
+            {
+                return (mul as i32, shift);
+            }
+        }
+        (1, 0)
+    }
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SheetFile {
+    channel: Vec<SheetChannel>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SheetChannel {
+    name: String,
+    #[serde(default)]
+    unit: String,
+    min: f64,
+    max: f64,
+    #[serde(default = "one")]
+    lsb: f64,
+    #[serde(default)]
+    zero: f64,
+    noise: Option<f64>,
+}
+
+fn one() -> f64 {
+    1.0
+}
+
+/// A channel sheet: declared ranges, raw conversion and noise per channel.
+#[derive(Clone, Debug, Default)]
+pub struct ChannelSheet {
+    /// Declared channels, in file order.
+    pub channels: Vec<ChannelScale>,
+}
+
+impl ChannelSheet {
+    /// Reads a channel sheet.
+    ///
+    /// # Errors
+    /// [`InputError::Io`] or [`InputError::Sheet`] naming the problem.
+    pub fn read(path: &Path) -> Result<Self, InputError> {
+        let text = std::fs::read_to_string(path).map_err(|e| InputError::io(path, e))?;
+        Self::parse(&text).map_err(|message| InputError::Sheet {
+            path: path.to_path_buf(),
+            message,
+        })
+    }
+
+    /// Parses a channel sheet's text.
+    ///
+    /// # Errors
+    /// A message naming the line or channel at fault.
+    pub fn parse(text: &str) -> Result<Self, String> {
+        let file: SheetFile =
+            toml::from_str(text).map_err(|e| e.to_string().trim_end().to_string())?;
+        let mut channels: Vec<ChannelScale> = Vec::new();
+        for c in file.channel {
+            if channels.iter().any(|d| d.name == c.name) {
+                return Err(format!("channel '{}' is declared twice", c.name));
+            }
+            let mut s = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)?;
+            if let Some(n) = c.noise {
+                if !(n.is_finite() && n >= 0.0) {
+                    return Err(format!(
+                        "channel '{}': noise must be a non-negative number",
+                        c.name
+                    ));
+                }
+            }
+            s.noise = c.noise;
+            channels.push(s);
+        }
+        Ok(Self { channels })
+    }
+
+    /// The declared scaling of a channel.
+    pub fn get(&self, name: &str) -> Option<&ChannelScale> {
+        self.channels.iter().find(|c| c.name == name)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn scaled_range_is_unit_interval() {
+        let c = ChannelScale::new("i", "mA", 150.0, 900.0, 0.1, 0.0).unwrap();
+        assert_eq!(
+            (c.raw_min, c.raw_max, c.offset, c.half),
+            (1500, 9000, 5250, 3750)
+        );
+        assert_eq!(c.scaled(c.raw_min), -1.0);
+        assert_eq!(c.scaled(c.raw_max), 1.0);
+        assert_eq!(c.to_raw(900.04), Some(9000));
+        assert_eq!(c.to_raw(900.06), None);
+    }
+
+    #[test]
+    fn conversion_keeps_the_range_inside_the_input_word() {
+        for (lo, hi, lsb) in [
+            (0.0, 1.0, 1e-6),
+            (-5.0, 5.0, 0.001),
+            (0.0, 4095.0, 1.0),
+            (0.0, 3.0, 1.0),
+        ] {
+            let c = ChannelScale::new("c", "", lo, hi, lsb, 0.0).unwrap();
+            for bits in [8u8, 16] {
+                let (mul, shift) = c.conversion(bits);
+                let x = |r: i32| {
+                    let p = (i128::from(r) - i128::from(c.offset)) * i128::from(mul);
+                    if shift == 0 {
+                        p
+                    } else {
+                        (p + (1 << (shift - 1))) >> shift
+                    }
+                };
+                let limit = (1i128 << (bits - 1)) - 1;
+                assert!(
+                    x(c.raw_max) <= limit && x(c.raw_min) >= -limit,
+                    "{lo}..{hi} at {bits} bits"
+                );
+                assert!(x(c.raw_max) >= limit - 1, "range uses the word");
+            }
+        }
+    }
+
+    #[test]
+    fn sheet_errors_name_the_channel() {
+        let e = ChannelSheet::parse("[[channel]]\nname='a'\nmin=1\nmax=0\n").unwrap_err();
+        assert!(e.contains("'a'") && e.contains("below"), "{e}");
+        let e = ChannelSheet::parse("[[channel]]\nname='a'\nmin=0\nmax=1\nbogus=2\n").unwrap_err();
+        assert!(e.contains("bogus"), "{e}");
+        let e = ChannelSheet::parse(
+            "[[channel]]\nname='a'\nmin=0\nmax=1\n[[channel]]\nname='a'\nmin=0\nmax=1\n",
+        )
+        .unwrap_err();
+        assert!(e.contains("twice"), "{e}");
+    }
+}

@@ -1,0 +1,205 @@
+//! Exact linear-separability test.
+//!
+//! Two classes are linearly separable exactly when their convex hulls do not
+//! meet. The test solves the linear programme
+//!
+//! ```text
+//! find λ ≥ 0 with  Σ_{GO} λᵢ = 1,  Σ_{NO-GO} λᵢ = 1,  Σ λᵢ·yᵢ·xᵢ = 0
+//! ```
+//!
+//! (a point common to both hulls). Feasible: not separable, and a basic
+//! solution names at most d + 2 units that no hyperplane can split. Infeasible:
+//! separable; the hard-margin solver then gives γ* and its support units, and
+//! the separator is verified on every unit.
+
+use microlp::{ComparisonOp, OptimizationDirection, Problem};
+use serde::Serialize;
+
+use crate::dataset::Dataset;
+use crate::maxmargin::{SvmConfig, homogeneous_margin, max_margin};
+use crate::trainer::{Linear, PerceptronConfig, PerceptronKind, perceptron, radius};
+
+/// A unit named in a report.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct UnitRef {
+    /// Index in the dataset.
+    pub index: usize,
+    /// 1-based line in the log.
+    pub line: u64,
+    /// Unit id or "line N".
+    pub unit: String,
+    /// "GO" or "NO-GO".
+    pub label: &'static str,
+    /// Dual weight (support units) or hull weight λ (conflicting units).
+    pub weight: f64,
+}
+
+/// The margin expressed along one channel, in its physical unit.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ChannelMargin {
+    /// Channel name.
+    pub channel: String,
+    /// How far a support unit must move along this channel alone to reach the boundary.
+    pub margin: f64,
+    /// Physical unit.
+    pub unit: String,
+}
+
+/// Everything `linegate check` reports.
+#[derive(Clone, Debug, Serialize)]
+pub struct SeparabilityReport {
+    /// Units examined.
+    pub units: usize,
+    /// Channels.
+    pub channels: usize,
+    /// The LP's verdict.
+    pub separable: bool,
+    /// γ*: the free-bias maximum margin in scaled units (each channel's range is [-1, 1]).
+    pub margin: Option<f64>,
+    /// γ* along each channel, in physical units.
+    pub margin_physical: Vec<ChannelMargin>,
+    /// Support units of the maximum-margin separator.
+    pub support: Vec<UnitRef>,
+    /// Units whose hulls meet: no hyperplane splits them (when not separable).
+    pub conflict: Vec<UnitRef>,
+    /// R = max ‖(x, 1)‖ over the units, in scaled units.
+    pub radius: f64,
+    /// The perceptron theorem's γ: unit-norm separator through the origin of z = (x, 1)/R.
+    pub novikoff_margin: Option<f64>,
+    /// Novikoff's bound 1/γ² on perceptron updates.
+    pub novikoff_bound: Option<f64>,
+    /// Updates the classic perceptron actually made.
+    pub perceptron_updates: u64,
+    /// Epochs it ran.
+    pub perceptron_epochs: u32,
+    /// Whether it converged within the epoch cap.
+    pub perceptron_converged: bool,
+    /// The maximum-margin separator (when separable).
+    #[serde(skip)]
+    pub separator: Option<Linear>,
+}
+
+/// Decides separability by LP; returns `Some(conflicting units with λ)` when not separable.
+pub fn hull_intersection(ds: &Dataset, idx: &[usize]) -> Option<Vec<(usize, f64)>> {
+    let d = ds.dim();
+    let mut lp = Problem::new(OptimizationDirection::Minimize);
+    let vars: Vec<_> = idx.iter().map(|_| lp.add_var(0.0, (0.0, 1.0))).collect();
+    for class in [1i8, -1] {
+        let terms: Vec<_> = vars
+            .iter()
+            .zip(idx)
+            .filter(|&(_, &i)| ds.labels[i] == class)
+            .map(|(&v, _)| (v, 1.0))
+            .collect();
+        lp.add_constraint(terms.as_slice(), ComparisonOp::Eq, 1.0);
+    }
+    let mut x = vec![0.0; d];
+    let mut rows: Vec<Vec<(microlp::Variable, f64)>> = vec![Vec::with_capacity(idx.len()); d];
+    for (&v, &i) in vars.iter().zip(idx) {
+        ds.scaled_row(i, &mut x);
+        for (row, xj) in rows.iter_mut().zip(&x) {
+            if *xj != 0.0 {
+                row.push((v, ds.y(i) * xj));
+            }
+        }
+    }
+    for row in rows {
+        lp.add_constraint(row.as_slice(), ComparisonOp::Eq, 0.0);
+    }
+    let sol = lp.solve().ok()?;
+    let mut conflict: Vec<(usize, f64)> = vars
+        .iter()
+        .zip(idx)
+        .map(|(&v, &i)| (i, *sol.var_value(v)))
+        .filter(|(_, l)| *l > 1e-12)
+        .collect();
+    conflict.sort_by_key(|c| c.0);
+    Some(conflict)
+}
+
+/// Runs the full separability analysis on the units `idx`.
+pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> SeparabilityReport {
+    let unit_ref = |i: usize, weight: f64| UnitRef {
+        index: i,
+        line: ds.lines[i],
+        unit: ds.unit_name(i),
+        label: if ds.labels[i] > 0 { "GO" } else { "NO-GO" },
+        weight,
+    };
+    let r = radius(ds, idx);
+    let run = perceptron(
+        ds,
+        idx,
+        PerceptronKind::Classic,
+        PerceptronConfig { epochs, seed },
+    );
+    let mut report = SeparabilityReport {
+        units: idx.len(),
+        channels: ds.dim(),
+        separable: false,
+        margin: None,
+        margin_physical: Vec::new(),
+        support: Vec::new(),
+        conflict: Vec::new(),
+        radius: r,
+        novikoff_margin: None,
+        novikoff_bound: None,
+        perceptron_updates: run.updates,
+        perceptron_epochs: run.epochs,
+        perceptron_converged: run.converged,
+        separator: None,
+    };
+    if let Some(conflict) = hull_intersection(ds, idx) {
+        report.conflict = conflict.into_iter().map(|(i, l)| unit_ref(i, l)).collect();
+        return report;
+    }
+    let svm = max_margin(ds, idx, SvmConfig::hard());
+    // Verify: the LP said separable; the separator must show it on every unit.
+    if !svm.converged || svm.model.geometric_margin(ds, idx) <= 0.0 {
+        return report;
+    }
+    report.separable = true;
+    report.margin = Some(svm.margin);
+    report.margin_physical = ds
+        .scales
+        .iter()
+        .zip(&svm.model.w)
+        .map(|(s, w)| ChannelMargin {
+            channel: s.name.clone(),
+            margin: if *w == 0.0 {
+                f64::INFINITY
+            } else {
+                s.half as f64 * s.lsb / w.abs()
+            },
+            unit: s.unit.clone(),
+        })
+        .collect();
+    report.support = svm.support.iter().map(|&(i, a)| unit_ref(i, a)).collect();
+    if let Some((g, _)) = homogeneous_margin(ds, idx, r) {
+        report.novikoff_margin = Some(g);
+        report.novikoff_bound = Some(1.0 / (g * g));
+    }
+    report.separator = Some(svm.model);
+    report
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn xor_is_not_separable_and_all_four_points_conflict() {
+        // XOR: the classic non-separable set (any text on the perceptron).
+        let pts = [
+            vec![-0.5, -0.5],
+            vec![0.5, 0.5],
+            vec![-0.5, 0.5],
+            vec![0.5, -0.5],
+        ];
+        let ds = Dataset::from_scaled(&pts, &[1, 1, -1, -1]);
+        let r = check(&ds, &ds.all(), 20, 1);
+        assert!(!r.separable);
+        assert_eq!(r.conflict.len(), 4);
+        assert!(!r.perceptron_converged);
+    }
+}
