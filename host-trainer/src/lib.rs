@@ -26,3 +26,4 @@ pub mod report;
 pub mod scaling;
 pub mod separability;
 pub mod trainer;
+pub mod workflow;

@@ -1,1 +1,129 @@
-//! TODO
+//! Packing: the model blob, raw `.bin` and Intel HEX images, and `inspect`.
+
+use serde::Serialize;
+use shared_model::{CheckedModel, DecodeError, blob};
+
+/// The blob bytes of a model.
+pub fn blob_bytes(model: &CheckedModel) -> Vec<u8> {
+    let mut buf = [0u8; blob::MAX_BLOB_LEN];
+    // MAX_BLOB_LEN holds any valid model, so encode cannot fail here.
+    let n = blob::encode(model, &mut buf).unwrap_or(0);
+    buf[..n].to_vec()
+}
+
+/// One channel as `inspect` shows it.
+#[derive(Clone, Debug, Serialize)]
+pub struct InspectChannel {
+    /// Name.
+    pub name: String,
+    /// Valid raw range.
+    pub raw_min: i32,
+    /// Valid raw range.
+    pub raw_max: i32,
+    /// Conversion offset.
+    pub offset: i32,
+    /// Conversion multiplier.
+    pub multiplier: i32,
+    /// Conversion shift.
+    pub shift: u8,
+    /// Integer weight.
+    pub weight: i32,
+}
+
+/// What `inspect` reports of a blob, valid or not.
+#[derive(Clone, Debug, Serialize)]
+pub struct Inspection {
+    /// Bytes in the file.
+    pub bytes: usize,
+    /// Format version in the header, if readable.
+    pub version: Option<u16>,
+    /// CRC stored in the blob, if present.
+    pub crc_stored: Option<String>,
+    /// CRC computed over the bytes before it.
+    pub crc_computed: Option<String>,
+    /// "ok" or the decode error.
+    pub status: String,
+    /// Model id, hex.
+    pub model_id: Option<String>,
+    /// Audit mark.
+    pub audit: Option<String>,
+    /// Input word bits.
+    pub input_bits: Option<u8>,
+    /// Weight word bits.
+    pub weight_bits: Option<u8>,
+    /// Weight fractional bits.
+    pub weight_frac_bits: Option<u8>,
+    /// Accumulator bits.
+    pub acc_bits: Option<u8>,
+    /// Bias.
+    pub bias: Option<i64>,
+    /// NO-GO at or below.
+    pub nogo_max: Option<i64>,
+    /// GO at or above.
+    pub go_min: Option<i64>,
+    /// Channels.
+    pub channels: Vec<InspectChannel>,
+}
+
+/// Decodes a blob for display; a corrupt blob still shows what can be read.
+pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) {
+    let decoded = blob::decode(bytes);
+    let header = blob::Header::read(bytes).ok();
+    let (mut crc_stored, mut crc_computed) = (None, None);
+    if let Some(h) = header {
+        let body = blob::HEADER_LEN + usize::from(h.payload_len);
+        if let Some(c) = bytes.get(body..body + blob::CRC_LEN) {
+            crc_stored = Some(format!(
+                "{:#010x}",
+                u32::from_le_bytes([c[0], c[1], c[2], c[3]])
+            ));
+            crc_computed = Some(format!("{:#010x}", blob::CRC32.checksum(&bytes[..body])));
+        }
+    }
+    let mut ins = Inspection {
+        bytes: bytes.len(),
+        version: header.map(|h| h.version),
+        crc_stored,
+        crc_computed,
+        status: match &decoded {
+            Ok(_) => "ok".into(),
+            Err(e) => e.to_string(),
+        },
+        model_id: None,
+        audit: None,
+        input_bits: None,
+        weight_bits: None,
+        weight_frac_bits: None,
+        acc_bits: None,
+        bias: None,
+        nogo_max: None,
+        go_min: None,
+        channels: Vec::new(),
+    };
+    if let Ok(m) = &decoded {
+        let m = m.model();
+        ins.model_id = Some(m.model_id.iter().map(|b| format!("{b:02x}")).collect());
+        ins.audit = Some(format!("{:?}", m.audit));
+        ins.input_bits = Some(m.input_bits);
+        ins.weight_bits = Some(m.weight_bits);
+        ins.weight_frac_bits = Some(m.weight_frac_bits);
+        ins.acc_bits = Some(m.acc_bits);
+        ins.bias = Some(m.bias);
+        ins.nogo_max = Some(m.nogo_max);
+        ins.go_min = Some(m.go_min);
+        ins.channels = m
+            .channels
+            .iter()
+            .map(|c| InspectChannel {
+                name: c.name.to_string(),
+                raw_min: c.raw_min,
+                raw_max: c.raw_max,
+                offset: c.offset,
+                multiplier: c.multiplier,
+                shift: c.shift,
+                weight: c.weight,
+            })
+            .collect();
+    }
+    (ins, decoded)
+}

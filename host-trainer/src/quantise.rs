@@ -1,1 +1,329 @@
-//! TODO
+//! Quantiser: float model → fixed-point model.
+//!
+//! Per channel the blob's conversion gives `x_q = round(κᵢ·(raw − offsetᵢ))`
+//! with κᵢ = multiplierᵢ / 2^shiftᵢ ≈ (2^(bits−1) − 1)/halfᵢ, while the float
+//! model scores `wᵢ·(raw − offsetᵢ)/halfᵢ`. So the ideal integer weight is
+//! `Wᵢ* = A·wᵢ/(halfᵢ·κᵢ)` for an accumulator scale A = 2^k, the largest power
+//! of two that keeps every |Wᵢ*| inside the weight word. Weights and bias are
+//! rounded to nearest, ties to even (the rule of the `fixed` crate's
+//! `from_num`); thresholds are exact: GO ⇔ acc > τ·A ⇔ acc ≥ ⌊τ·A⌋ + 1.
+//!
+//! Margin-preserving rounding then tries ±1 LSB moves of each weight and of
+//! the bias, keeping a move only if it raises the smallest fixed-point margin
+//! over the correctly classified training units, as computed by the shared
+//! kernel.
+
+use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
+
+use crate::dataset::Dataset;
+use crate::float_model::FloatModel;
+
+/// Quantiser settings.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct QuantConfig {
+    /// Scaled input word: 8 or 16 bits.
+    pub input_bits: u8,
+    /// Weight word: 2..=32 bits.
+    pub weight_bits: u8,
+    /// Search the integer neighbourhood for a larger minimum margin.
+    pub optimise: bool,
+    /// Force the accumulator width (32 or 64); `None` picks the narrowest that is proved safe.
+    pub acc_bits: Option<u8>,
+    /// Half-width of the RECHECK band, in float score units.
+    pub recheck_band: f64,
+}
+
+impl Default for QuantConfig {
+    fn default() -> Self {
+        Self {
+            input_bits: 16,
+            weight_bits: 16,
+            optimise: true,
+            acc_bits: None,
+            recheck_band: 0.0,
+        }
+    }
+}
+
+/// Why quantisation failed.
+#[derive(Debug, thiserror::Error)]
+pub enum QuantError {
+    /// The word lengths are outside what the blob supports.
+    #[error("unsupported format: {0} (inputs 8 or 16 bits, weights 2..=32 bits)")]
+    Format(String),
+    /// The model fails validation, e.g. the accumulator could overflow.
+    #[error("the fixed-point model is refused: {0}")]
+    Model(#[from] ModelError),
+    /// A channel name is too long for the blob.
+    #[error("channel name '{0}' is longer than {max} bytes", max = shared_model::NAME_CAPACITY)]
+    Name(String),
+}
+
+/// A quantised model with what the audit needs to bound its rounding error.
+#[derive(Clone, Debug)]
+pub struct Quantised {
+    /// The validated fixed-point model.
+    pub model: CheckedModel,
+    /// Accumulator units per float score unit (A).
+    pub scale: f64,
+    /// κᵢ = multiplierᵢ / 2^shiftᵢ.
+    pub kappa: Vec<f64>,
+    /// Ideal real weights Wᵢ*.
+    pub ideal_weights: Vec<f64>,
+    /// Ideal real bias b·A.
+    pub ideal_bias: f64,
+    /// Threshold τ·A, real.
+    pub threshold_acc: f64,
+    /// Integer weights from plain rounding, before the search.
+    pub plain_weights: Vec<i32>,
+    /// Integer bias from plain rounding.
+    pub plain_bias: i64,
+    /// Bits the worst-case score needs (sign included).
+    pub needed_bits: u8,
+    /// Smallest fixed margin (LSB) over correct training units: plain rounding.
+    pub plain_min_margin: Option<f64>,
+    /// The same after the search.
+    pub optimised_min_margin: Option<f64>,
+    /// Search moves kept.
+    pub moves: usize,
+}
+
+/// Rounds `v · 2^frac` to the nearest integer, ties to even: the Q-format conversion used for weights.
+pub fn to_q(v: f64, frac: i32) -> f64 {
+    (v * 2f64.powi(frac)).round_ties_even()
+}
+
+/// The fixed margin of a unit, in LSB: positive when the fixed verdict matches its label.
+///
+/// GO units are measured from `go_min − ½`, NO-GO units from `nogo_max + ½`.
+pub fn fixed_margin(m: &FixedModel, score: i64, label: i8) -> f64 {
+    if label > 0 {
+        score as f64 - (m.go_min as f64 - 0.5)
+    } else {
+        (m.nogo_max as f64 + 0.5) - score as f64
+    }
+}
+
+/// Quantises `fm`; with `train` and `cfg.optimise`, searches for a larger minimum margin on it.
+///
+/// # Errors
+/// [`QuantError`] if the format is unsupported or the model cannot be proved overflow-free.
+pub fn quantise(
+    fm: &FloatModel,
+    train: Option<&Dataset>,
+    cfg: QuantConfig,
+) -> Result<Quantised, QuantError> {
+    if cfg.input_bits != 8 && cfg.input_bits != 16 || !(2..=32).contains(&cfg.weight_bits) {
+        return Err(QuantError::Format(format!(
+            "{}-bit inputs, {}-bit weights",
+            cfg.input_bits, cfg.weight_bits
+        )));
+    }
+    let conv: Vec<(i32, u8)> = fm
+        .channels
+        .iter()
+        .map(|c| c.conversion(cfg.input_bits))
+        .collect();
+    let kappa: Vec<f64> = conv
+        .iter()
+        .map(|&(m, s)| f64::from(m) / 2f64.powi(i32::from(s)))
+        .collect();
+    let ratio: Vec<f64> = fm
+        .weights
+        .iter()
+        .zip(&fm.channels)
+        .zip(&kappa)
+        .map(|((w, c), k)| w / (c.half as f64 * k))
+        .collect();
+    let max_r = ratio.iter().fold(0.0f64, |m, r| m.max(r.abs()));
+    let wmax = ((1i64 << (cfg.weight_bits - 1)) - 1) as f64;
+    let fx = i32::from(cfg.input_bits) - 1;
+    // A = 2^k with k - fx (the weights' fractional bits) kept in 0..=62.
+    let k = if max_r > 0.0 {
+        (wmax / max_r).log2().floor() as i32
+    } else {
+        fx
+    };
+    let k = k.clamp(fx, fx + 62);
+    let scale = 2f64.powi(k);
+    let ideal_weights: Vec<f64> = ratio.iter().map(|r| r * scale).collect();
+    let plain_weights: Vec<i32> = ratio
+        .iter()
+        .map(|r| to_q(*r, k).clamp(-wmax, wmax) as i32)
+        .collect();
+    let ideal_bias = fm.bias * scale;
+    let plain_bias = ideal_bias.round_ties_even() as i64;
+    let threshold_acc = fm.threshold * scale;
+    let band = cfg.recheck_band.max(0.0) * scale;
+    let mut channels = heapless::Vec::new();
+    for ((c, &(multiplier, shift)), &weight) in fm.channels.iter().zip(&conv).zip(&plain_weights) {
+        let name = heapless::String::try_from(c.name.as_str())
+            .map_err(|_| QuantError::Name(c.name.clone()))?;
+        let spec = ChannelSpec {
+            name,
+            raw_min: c.raw_min,
+            raw_max: c.raw_max,
+            offset: c.offset,
+            multiplier,
+            shift,
+            weight,
+        };
+        channels
+            .push(spec)
+            .map_err(|_| QuantError::Format(format!("{} channels", fm.channels.len())))?;
+    }
+    let mut model = FixedModel {
+        model_id: fm.id_bytes(),
+        audit: AuditMark::NotAudited,
+        input_bits: cfg.input_bits,
+        weight_bits: cfg.weight_bits,
+        weight_frac_bits: (k - fx) as u8,
+        acc_bits: 64,
+        bias: plain_bias,
+        nogo_max: (threshold_acc - band).floor() as i64,
+        go_min: (threshold_acc + band).floor() as i64 + 1,
+        channels,
+    };
+    let needed = |m: &FixedModel| (129 - m.score_bound().leading_zeros()) as u8;
+    let fit_acc = |m: &mut FixedModel| {
+        m.acc_bits = cfg
+            .acc_bits
+            .unwrap_or(if needed(m) <= 32 { 32 } else { 64 })
+    };
+    fit_acc(&mut model);
+    let plain = CheckedModel::new(model.clone())?;
+    let mut q = Quantised {
+        needed_bits: needed(&model),
+        model: plain,
+        scale,
+        kappa,
+        ideal_weights,
+        ideal_bias,
+        threshold_acc,
+        plain_weights,
+        plain_bias,
+        plain_min_margin: None,
+        optimised_min_margin: None,
+        moves: 0,
+    };
+    if let Some(ds) = train {
+        let correct = correct_units(fm, ds);
+        q.plain_min_margin = min_margin(&q.model, ds, &correct);
+        q.optimised_min_margin = q.plain_min_margin;
+        if cfg.optimise && !correct.is_empty() {
+            let (m, moves) = search(&q.model, ds, &correct, wmax as i64);
+            let mut m = m;
+            fit_acc(&mut m);
+            if let Ok(better) = CheckedModel::new(m) {
+                let opt = min_margin(&better, ds, &correct);
+                if opt > q.plain_min_margin {
+                    q.needed_bits = needed(better.model());
+                    q.model = better;
+                    q.optimised_min_margin = opt;
+                    q.moves = moves;
+                }
+            }
+        }
+    }
+    Ok(q)
+}
+
+/// Units the float model classifies correctly.
+pub fn correct_units(fm: &FloatModel, ds: &Dataset) -> Vec<usize> {
+    let lin = fm.linear();
+    lin.scores(ds, &ds.all())
+        .iter()
+        .enumerate()
+        .filter(|&(i, s)| (*s > fm.threshold) == (ds.labels[i] > 0))
+        .map(|(i, _)| i)
+        .collect()
+}
+
+/// Smallest fixed margin over `idx`, by the shared kernel; `None` if a reading is refused or `idx` is empty.
+pub fn min_margin(m: &CheckedModel, ds: &Dataset, idx: &[usize]) -> Option<f64> {
+    idx.iter()
+        .map(|&i| {
+            m.classify(ds.raw_row(i))
+                .ok()
+                .map(|d| fixed_margin(m.model(), d.score, ds.labels[i]))
+        })
+        .try_fold(f64::INFINITY, |acc, v| v.map(|v| acc.min(v)))
+        .filter(|v| v.is_finite())
+}
+
+/// Greedy ±1 LSB coordinate search on the units with the smallest margins.
+fn search(m: &CheckedModel, ds: &Dataset, correct: &[usize], wmax: i64) -> (FixedModel, usize) {
+    let d = ds.dim();
+    let mut rows: Vec<(f64, i8, Vec<i64>)> = correct
+        .iter()
+        .filter_map(|&i| {
+            let mut x = vec![0i64; d];
+            m.scale(ds.raw_row(i), &mut x).ok()?;
+            let s = m.score_scaled(&x);
+            Some((fixed_margin(m.model(), s, ds.labels[i]), ds.labels[i], x))
+        })
+        .collect();
+    rows.sort_by(|a, b| a.0.total_cmp(&b.0));
+    rows.truncate(4096);
+    let mut model = m.model().clone();
+    let mut margins: Vec<f64> = rows.iter().map(|r| r.0).collect();
+    let mut moves = 0;
+    for _ in 0..256 {
+        let current = margins.iter().copied().fold(f64::INFINITY, f64::min);
+        let mut best: Option<(f64, usize, i64)> = None;
+        for coord in 0..=d {
+            for delta in [1i64, -1] {
+                if coord < d && (i64::from(model.channels[coord].weight) + delta).abs() > wmax {
+                    continue;
+                }
+                let new_min = rows
+                    .iter()
+                    .zip(&margins)
+                    .map(|((_, y, x), mg)| {
+                        mg + f64::from(*y)
+                            * delta as f64
+                            * if coord < d { x[coord] as f64 } else { 1.0 }
+                    })
+                    .fold(f64::INFINITY, f64::min);
+                if new_min > current && best.is_none_or(|b| new_min > b.0) {
+                    best = Some((new_min, coord, delta));
+                }
+            }
+        }
+        let Some((_, coord, delta)) = best else { break };
+        for ((_, y, x), mg) in rows.iter().zip(margins.iter_mut()) {
+            *mg += f64::from(*y) * delta as f64 * if coord < d { x[coord] as f64 } else { 1.0 };
+        }
+        if coord < d {
+            model.channels[coord].weight += delta as i32;
+        } else {
+            model.bias += delta;
+        }
+        moves += 1;
+    }
+    (model, moves)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use fixed::types::extra::{U7, U15};
+    use fixed::{FixedI8, FixedI16};
+
+    #[test]
+    fn q_conversion_matches_the_fixed_crate_at_half_lsb_edges() {
+        // Reference: the `fixed` crate's from_num (round to nearest, ties to even).
+        for k in -300i32..300 {
+            for off in [-1e-9, 0.0, 1e-9] {
+                let v = (f64::from(k) + 0.5) / 128.0 + off; // exact half-LSB edges in Q7
+                if let Some(f) = FixedI8::<U7>::checked_from_num(v) {
+                    assert_eq!(to_q(v, 7), f64::from(f.to_bits()), "Q7 at {v}");
+                }
+                let v15 = (f64::from(k) + 0.5) / 32768.0 + off;
+                if let Some(f) = FixedI16::<U15>::checked_from_num(v15) {
+                    assert_eq!(to_q(v15, 15), f64::from(f.to_bits()), "Q15 at {v15}");
+                }
+            }
+        }
+    }
+}

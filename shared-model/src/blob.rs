@@ -324,7 +324,7 @@ mod tests {
     fn largest_model_fits_max_blob_len() {
         let mut m = model_with(MAX_CHANNELS, 32).into_inner();
         for c in m.channels.iter_mut() {
-            c.name = heapless::String::try_from("ABCDEFGHIJKLMNOP").unwrap();
+            c.name = heapless::String::try_from("ABCDEFGHIJKLMNOPQRSTUVWX").unwrap();
             c.raw_min = i32::MIN;
             c.raw_max = i32::MIN;
             c.offset = i32::MIN;

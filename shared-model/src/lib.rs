@@ -78,4 +78,4 @@ pub use model::{AuditMark, ChannelSpec, CheckedModel, FixedModel};
 pub const MAX_CHANNELS: usize = 32;
 
 /// Longest channel name, in UTF-8 bytes.
-pub const NAME_CAPACITY: usize = 16;
+pub const NAME_CAPACITY: usize = 24;

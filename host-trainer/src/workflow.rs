@@ -1,0 +1,158 @@
+//! The steps a user runs, each as one call: load, check, train, release (quantise + audit).
+//! The CLI and the demo both go through here, so they cannot drift apart.
+
+use std::path::Path;
+
+use serde::Serialize;
+
+use crate::dataset::Dataset;
+use crate::error::InputError;
+use crate::eval::{Counts, EvalRow, TrainConfig, TrainerKind, cross_validate, evaluate, train};
+use crate::float_model::{FloatModel, InputFile, Provenance, TrainingSummary};
+use crate::log::{LogOptions, ScaleFrom, read_log};
+use crate::scaling::ChannelSheet;
+use crate::separability::{SeparabilityReport, check};
+use crate::trainer::threshold_for_false_go;
+
+/// Reads a training log with an optional channel sheet.
+///
+/// # Errors
+/// Any [`InputError`] of the log or the sheet.
+pub fn load(
+    log: &Path,
+    opts: &LogOptions,
+    sheet: Option<&Path>,
+) -> Result<(Dataset, Option<(ChannelSheet, InputFile)>), InputError> {
+    let sheet = match sheet {
+        Some(p) => {
+            let s = ChannelSheet::read(p)?;
+            let bytes = std::fs::read(p).map_err(|e| InputError::io(p, e))?;
+            Some((
+                s,
+                InputFile {
+                    path: p.to_path_buf(),
+                    sha256: sha256_hex(&bytes),
+                },
+            ))
+        }
+        None => None,
+    };
+    let scale = sheet
+        .as_ref()
+        .map_or(ScaleFrom::Observed, |(s, _)| ScaleFrom::Sheet(s));
+    Ok((read_log(log, opts, scale)?, sheet))
+}
+
+/// Reads a log with the channels and scaling of a trained model (holdout, audit, replay).
+///
+/// # Errors
+/// Any [`InputError`]; a reading outside the model's valid range is an error unless skipped.
+pub fn load_for_model(
+    log: &Path,
+    opts: &LogOptions,
+    fm: &FloatModel,
+) -> Result<Dataset, InputError> {
+    read_log(log, opts, ScaleFrom::Model(&fm.channels))
+}
+
+/// Hex SHA-256 of bytes.
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::Digest;
+    sha2::Sha256::digest(bytes)
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
+/// What to train.
+#[derive(Clone, Debug)]
+pub struct TrainRequest {
+    /// Trainer.
+    pub trainer: TrainerKind,
+    /// Epochs, seed, soft-margin C.
+    pub epochs: u32,
+    /// Seed.
+    pub seed: u64,
+    /// Soft-margin penalty when not separable.
+    pub c: f64,
+    /// Asymmetric risk: at most this many NO-GO training units may pass.
+    pub max_false_go: Option<usize>,
+    /// k for cross-validation (0 or 1: none).
+    pub folds: usize,
+}
+
+/// Everything `train` found.
+#[derive(Clone, Debug, Serialize)]
+pub struct TrainOutcome {
+    /// The model.
+    pub model: FloatModel,
+    /// The separability analysis of the training log.
+    pub check: SeparabilityReport,
+    /// Decisions on the training log.
+    pub training: Counts,
+    /// Decisions on the holdout log.
+    pub holdout: Option<Counts>,
+    /// Cross-validation, per trainer.
+    pub cross_validation: Vec<EvalRow>,
+}
+
+/// Trains a float model on `ds`.
+pub fn train_model(
+    ds: &Dataset,
+    sheet: Option<&InputFile>,
+    holdout: Option<&Dataset>,
+    req: &TrainRequest,
+) -> TrainOutcome {
+    let idx = ds.all();
+    let report = check(ds, &idx, req.epochs, req.seed);
+    let cfg = TrainConfig {
+        epochs: req.epochs,
+        seed: req.seed,
+        c: req.c,
+        separable: report.separable,
+    };
+    let t = train(ds, &idx, req.trainer, cfg);
+    let shift = req
+        .max_false_go
+        .map(|n| threshold_for_false_go(&t.model, ds, &idx, n));
+    let threshold = shift.as_ref().map_or(0.0, |s| s.threshold);
+    let training = evaluate(&t.model, threshold, ds, &idx);
+    let go = ds.labels.iter().filter(|&&l| l > 0).count();
+    let summary = TrainingSummary {
+        units: ds.len(),
+        go,
+        nogo: ds.len() - go,
+        separable: report.separable,
+        geometric_margin: t.model.geometric_margin(ds, &idx),
+        training_errors: training.units - training.correct,
+        updates: t.updates,
+        threshold_shift: shift,
+        skipped: ds.skipped.clone(),
+    };
+    let provenance = Provenance {
+        training_log: InputFile {
+            path: ds.path.clone(),
+            sha256: ds.sha256.clone(),
+        },
+        channel_sheet: sheet.cloned(),
+        trainer: req.trainer.name().into(),
+        seed: req.seed,
+        epochs: req.epochs,
+        c: t.c,
+        max_false_go: req.max_false_go,
+    };
+    let model = FloatModel::new(provenance, ds.scales.clone(), &t.model, threshold, summary);
+    let holdout = holdout.map(|h| evaluate(&model.linear(), model.threshold, h, &h.all()));
+    let cross_validation = if req.folds >= 2 {
+        cross_validate(ds, req.folds, &TrainerKind::ALL, cfg)
+    } else {
+        Vec::new()
+    };
+    TrainOutcome {
+        model,
+        check: report,
+        training,
+        holdout,
+        cross_validation,
+    }
+}
