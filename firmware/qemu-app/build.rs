@@ -1,0 +1,50 @@
+//! Puts memory.x on the linker path and links in the test vectors named by
+//! LINEGATE_VECTORS (one unit per line, raw readings separated by spaces).
+
+use std::env;
+use std::fmt::Write;
+use std::fs;
+use std::path::PathBuf;
+
+fn main() {
+    let out = PathBuf::from(env::var_os("OUT_DIR").expect("OUT_DIR"));
+    fs::copy("memory.x", out.join("memory.x")).expect("copy memory.x");
+    println!("cargo:rustc-link-search={}", out.display());
+    println!("cargo:rerun-if-changed=memory.x");
+    println!("cargo:rerun-if-env-changed=LINEGATE_VECTORS");
+    let mut rows: Vec<Vec<i32>> = Vec::new();
+    if let Some(path) = env::var_os("LINEGATE_VECTORS") {
+        println!("cargo:rerun-if-changed={}", PathBuf::from(&path).display());
+        let text = fs::read_to_string(&path).expect("read LINEGATE_VECTORS");
+        for (n, line) in text
+            .lines()
+            .enumerate()
+            .filter(|(_, l)| !l.trim().is_empty())
+        {
+            let row: Vec<i32> = line
+                .split_whitespace()
+                .map(|v| {
+                    v.parse()
+                        .unwrap_or_else(|_| panic!("vectors line {}: '{v}' is not an i32", n + 1))
+                })
+                .collect();
+            rows.push(row);
+        }
+    }
+    let width = rows.first().map_or(0, Vec::len);
+    assert!(
+        rows.iter().all(|r| r.len() == width),
+        "vectors: every line needs the same number of readings"
+    );
+    let mut src = format!(
+        "/// Readings per vector.\npub const WIDTH: usize = {width};\n/// Test vectors, row-major.\npub static VECTORS: [i32; {}] = [",
+        width * rows.len()
+    );
+    for r in &rows {
+        for v in r {
+            let _ = write!(src, "{v},");
+        }
+    }
+    src.push_str("];\n");
+    fs::write(out.join("vectors.rs"), src).expect("write vectors.rs");
+}

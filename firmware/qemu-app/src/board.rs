@@ -1,0 +1,117 @@
+//! The board side of the example: the model region, pins and a sensor source.
+//!
+//! All `unsafe` of the application is in this module.
+
+use core::convert::Infallible;
+use core::sync::atomic::{AtomicBool, Ordering};
+
+use embedded_hal::digital::{ErrorType, OutputPin};
+use firmware::SensorSource;
+
+unsafe extern "C" {
+    // Defined in memory.x: the flash region that holds the model blob.
+    static _model_start: u8;
+    static _model_len: u8;
+}
+
+/// The model region in flash.
+pub fn model_region() -> &'static [u8] {
+    // SAFETY: memory.x defines `_model_start` as the start of a 4 KiB flash region that is
+    // always mapped and readable, and `_model_len` (the symbol's address) as its length.
+    // Nothing writes flash while the firmware runs, so a shared 'static slice is sound.
+    unsafe {
+        let start = core::ptr::addr_of!(_model_start);
+        let len = core::ptr::addr_of!(_model_len) as usize;
+        core::slice::from_raw_parts(start, len)
+    }
+}
+
+/// A result line: its level lives in an atomic the test harness can read (a GPIO on a real board).
+pub struct Line(pub &'static AtomicBool);
+
+impl ErrorType for Line {
+    type Error = Infallible;
+}
+
+impl OutputPin for Line {
+    fn set_low(&mut self) -> Result<(), Infallible> {
+        self.0.store(false, Ordering::SeqCst);
+        Ok(())
+    }
+    fn set_high(&mut self) -> Result<(), Infallible> {
+        self.0.store(true, Ordering::SeqCst);
+        Ok(())
+    }
+}
+
+/// GO line level.
+pub static GO: AtomicBool = AtomicBool::new(false);
+/// NO-GO line level.
+pub static NOGO: AtomicBool = AtomicBool::new(false);
+/// RECHECK line level.
+pub static RECHECK: AtomicBool = AtomicBool::new(false);
+
+/// Plays linked-in vectors as sensor readings, one vector per read.
+pub struct Vectors {
+    pub data: &'static [i32],
+    pub width: usize,
+    pub next: usize,
+}
+
+/// The vectors ran out or do not fit the model.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct NoMoreReadings;
+
+impl SensorSource for Vectors {
+    type Error = NoMoreReadings;
+    fn read(&mut self, readings: &mut [i32]) -> Result<(), NoMoreReadings> {
+        if readings.len() != self.width {
+            return Err(NoMoreReadings);
+        }
+        let start = self.next.checked_mul(self.width).ok_or(NoMoreReadings)?;
+        let v = self
+            .data
+            .get(start..start + self.width)
+            .ok_or(NoMoreReadings)?;
+        readings.copy_from_slice(v);
+        self.next += 1;
+        Ok(())
+    }
+}
+
+/// Bytes left unpainted just below the caller's stack pointer: room for this function's own frame.
+const PAINT_SLACK: usize = 64;
+
+/// Fills the free RAM between the end of .bss and `top - PAINT_SLACK` with a pattern, where
+/// `top` is the caller's stack pointer; returns the start of the painted range.
+#[inline(never)]
+pub fn paint_stack(top: usize) -> usize {
+    unsafe extern "C" {
+        static mut __sheap: u32;
+    }
+    let end = top - PAINT_SLACK;
+    // SAFETY: [__sheap, top - PAINT_SLACK) is RAM above .bss and below the caller's frame; this
+    // function's own frame (a few pushed registers) fits in the slack, and no heap exists, so
+    // nothing else owns that memory.
+    unsafe {
+        let start = core::ptr::addr_of_mut!(__sheap) as usize;
+        let mut p = start;
+        while p < end {
+            core::ptr::write_volatile(p as *mut u32, 0xA5A5_A5A5);
+            p += 4;
+        }
+        start
+    }
+}
+
+/// Stack bytes used below `top` since [`paint_stack`]: `top` minus the lowest overwritten word.
+pub fn stack_used(start: usize, top: usize) -> usize {
+    let mut p = start;
+    // SAFETY: reads RAM in [start, top), the range `paint_stack` wrote (or above it, still RAM).
+    unsafe {
+        while p < top && core::ptr::read_volatile(p as *const u32) == 0xA5A5_A5A5 {
+            p += 4;
+        }
+    }
+    top - p
+}

@@ -1,0 +1,78 @@
+//! Example device application: validates the model blob in flash, classifies the
+//! linked-in vectors, prints one line per vector over semihosting (the same lines
+//! as `linegate replay`), and exits QEMU: 0 after the vectors, 2 on a bad blob.
+#![no_std]
+#![no_main]
+
+mod board;
+
+use cortex_m_rt::entry;
+use cortex_m_semihosting::{debug, hprintln};
+use firmware::{GoNoGoLines, Station, StationFault, Step};
+use panic_semihosting as _;
+
+mod vectors {
+    include!(concat!(env!("OUT_DIR"), "/vectors.rs"));
+}
+
+#[entry]
+fn main() -> ! {
+    let lines = match GoNoGoLines::new(
+        board::Line(&board::GO),
+        board::Line(&board::NOGO),
+        Some(board::Line(&board::RECHECK)),
+    ) {
+        Ok(l) => l,
+        Err(e) => match e {},
+    };
+    let sensor = board::Vectors {
+        data: &vectors::VECTORS,
+        width: vectors::WIDTH,
+        next: 0,
+    };
+    let mut station = Station::new(board::model_region(), sensor, lines);
+    if let Err(e) = station.classifier() {
+        let _ = station.step();
+        hprintln!("FAULT blob: {}", e);
+        report_lines();
+        debug::exit(Err(()));
+        loop {}
+    }
+    let count = if vectors::WIDTH == 0 {
+        0
+    } else {
+        vectors::VECTORS.len() / vectors::WIDTH
+    };
+    let mut deepest = 0usize;
+    for i in 0..count {
+        let top = cortex_m::register::msp::read() as usize;
+        let painted = board::paint_stack(top);
+        let step = station.step();
+        deepest = deepest.max(board::stack_used(painted, top));
+        match step {
+            Ok(Step::Decided(d)) => hprintln!("{} {} {}", i, d.verdict.as_str(), d.score),
+            Ok(Step::Faulted {
+                fault: StationFault::Reading(shared_model::Fault::OutOfRange { channel, .. }),
+                ..
+            }) => {
+                hprintln!("{} FAULT ch{}", i, channel)
+            }
+            Ok(Step::Faulted { .. }) => hprintln!("{} FAULT count", i),
+            Err(e) => match e {},
+        }
+    }
+    hprintln!("# stack bytes used by one step: {}", deepest);
+    report_lines();
+    debug::exit(Ok(()));
+    loop {}
+}
+
+fn report_lines() {
+    use core::sync::atomic::Ordering::SeqCst;
+    hprintln!(
+        "# lines: GO={} NO-GO={} RECHECK={}",
+        u8::from(board::GO.load(SeqCst)),
+        u8::from(board::NOGO.load(SeqCst)),
+        u8::from(board::RECHECK.load(SeqCst))
+    );
+}
