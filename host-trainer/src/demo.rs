@@ -299,6 +299,10 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         &holdout_ds.all(),
     ));
     let train = fm_probe;
+    // Reports name the logs where the user finds them.
+    let (mut train_ds, mut holdout_ds) = (train_ds, holdout_ds);
+    train_ds.path = out.join(logs[0].0);
+    holdout_ds.path = out.join(logs[2].0);
     let check_drift = crate::separability::check(&drift_ds, &drift_ds.all(), 200, 1);
     let fm = &train.model;
     let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();

@@ -1,13 +1,17 @@
 //! Maximum-margin linear classifiers.
 //!
-//! - [`max_margin`]: the free-bias SVM, min ½‖w‖² + C·Σξ subject to
-//!   yᵢ(w·xᵢ + b) ≥ 1 − ξᵢ (hard margin when C = ∞). Solved in the dual by
-//!   sequential minimal optimisation with second-order working-set selection,
-//!   on a working set of units that grows with the worst violators until every
-//!   unit satisfies the optimality conditions.
+//! - [`max_margin`] with C = ∞: the hard-margin, free-bias SVM. Its margin is
+//!   half the distance between the convex hulls of the two classes, so it is
+//!   solved exactly as the minimum-norm point of their difference by Wolfe's
+//!   active-set algorithm (finite, with a corral of at most d + 1 vertices; each
+//!   step scans the units once). Tiny margins cost no extra iterations.
+//! - [`max_margin`] with finite C: the soft-margin SVM, min ½‖w‖² + C·Σξ
+//!   subject to yᵢ(w·xᵢ + b) ≥ 1 − ξᵢ, solved in the dual by sequential minimal
+//!   optimisation with second-order working-set selection, on a working set
+//!   that grows with the worst violators until every unit is optimal.
 //! - [`homogeneous_margin`]: the margin in the perceptron theorem's own
-//!   convention: augmented z = (x, 1)/R, no free bias, unit-norm separator.
-//!   Solved by dual coordinate descent.
+//!   convention: augmented z = (x, 1)/R, no free bias, unit-norm separator:
+//!   the distance from the origin to the hull of the yᵢ·zᵢ, by the same algorithm.
 
 use crate::dataset::Dataset;
 use crate::trainer::Linear;
@@ -102,6 +106,9 @@ fn initial(ds: &Dataset, idx: &[usize], per_class: usize) -> Vec<usize> {
 
 /// Trains the free-bias maximum-margin classifier on the units `idx`.
 pub fn max_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
+    if cfg.c.is_infinite() {
+        return hard_margin(ds, idx, cfg.max_iter);
+    }
     let d = ds.dim();
     let mut work = Work {
         d,
@@ -326,44 +333,225 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
 ///
 /// Returns (γ, separator over (x, 1) with ‖w‖ = 1).
 pub fn homogeneous_margin(ds: &Dataset, idx: &[usize], radius: f64) -> Option<(f64, Vec<f64>)> {
-    let d = ds.dim();
-    let mut zs: Vec<f64> = Vec::with_capacity(idx.len() * (d + 1));
-    let mut x = vec![0.0; d];
-    for &i in idx {
-        ds.scaled_row(i, &mut x);
-        zs.extend(x.iter().map(|v| v / radius));
-        zs.push(1.0 / radius);
+    let first = *idx.first()?;
+    let start = (first, vertex_of(ds, first, radius));
+    let oracle = |p: &[f64]| {
+        let mut x = vec![0.0; ds.dim()];
+        let (mut best, mut bv) = (first, f64::INFINITY);
+        for &i in idx {
+            ds.scaled_row(i, &mut x);
+            // ⟨p, yᵢ·(x, 1)/R⟩
+            let v = ds.y(i) * (dot(p, &x) + p[x.len()]) / radius;
+            if v < bv {
+                bv = v;
+                best = i;
+            }
+        }
+        (best, vertex_of(ds, best, radius))
+    };
+    let out = wolfe(start, oracle, 100_000);
+    let g = dot(&out.point, &out.point).sqrt();
+    if !out.converged || g <= 1e-12 {
+        return None;
     }
-    let z = |t: usize| &zs[t * (d + 1)..(t + 1) * (d + 1)];
-    let qd: Vec<f64> = (0..idx.len()).map(|t| dot(z(t), z(t))).collect();
-    let mut alpha = vec![0.0; idx.len()];
-    let mut w = vec![0.0; d + 1];
-    for _sweep in 0..1_000_000 {
-        let mut worst: f64 = 0.0;
-        for t in 0..idx.len() {
-            let y = ds.y(idx[t]);
-            let g = y * dot(&w, z(t)) - 1.0;
-            let pg = if alpha[t] == 0.0 { g.min(0.0) } else { g };
-            worst = worst.max(pg.abs());
-            if pg != 0.0 {
-                let new = (alpha[t] - g / qd[t]).max(0.0);
-                let delta = (new - alpha[t]) * y;
-                alpha[t] = new;
-                for (wk, zk) in w.iter_mut().zip(z(t)) {
-                    *wk += delta * zk;
+    Some((g, out.point.iter().map(|v| v / g).collect()))
+}
+
+fn vertex_of(ds: &Dataset, i: usize, radius: f64) -> Vec<f64> {
+    let mut x = vec![0.0; ds.dim()];
+    ds.scaled_row(i, &mut x);
+    let y = ds.y(i);
+    let mut z: Vec<f64> = x.iter().map(|v| y * v / radius).collect();
+    z.push(y / radius);
+    z
+}
+
+/// Hard margin as the nearest points of the two class hulls.
+fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
+    let d = ds.dim();
+    let row = |i: usize| {
+        let mut x = vec![0.0; d];
+        ds.scaled_row(i, &mut x);
+        x
+    };
+    let go = idx.iter().copied().find(|&i| ds.labels[i] > 0);
+    let nogo = idx.iter().copied().find(|&i| ds.labels[i] < 0);
+    let (Some(g0), Some(n0)) = (go, nogo) else {
+        let model = Linear { w: vec![0.0; d], b: if go.is_some() { 1.0 } else { -1.0 } };
+        return SvmRun { model, support: Vec::new(), iterations: 0, converged: false, margin: 0.0 };
+    };
+    let diff = |i: usize, j: usize| row(i).iter().zip(row(j)).map(|(a, b)| a - b).collect::<Vec<f64>>();
+    // Oracle over the Minkowski difference: min over GO of ⟨p, x⟩ minus max over NO-GO.
+    let oracle = |p: &[f64]| {
+        let mut x = vec![0.0; d];
+        let (mut bi, mut bv, mut bj, mut bw) = (g0, f64::INFINITY, n0, f64::NEG_INFINITY);
+        for &i in idx {
+            ds.scaled_row(i, &mut x);
+            let v = dot(p, &x);
+            if ds.labels[i] > 0 {
+                if v < bv {
+                    bv = v;
+                    bi = i;
+                }
+            } else if v > bw {
+                bw = v;
+                bj = i;
+            }
+        }
+        ((bi, bj), diff(bi, bj))
+    };
+    let out = wolfe(((g0, n0), diff(g0, n0)), oracle, max_iter.min(1_000_000) as usize);
+    let z = &out.point;
+    let zz = dot(z, z);
+    let mut p = vec![0.0; d];
+    let mut q = vec![0.0; d];
+    let mut weights: Vec<(usize, f64)> = Vec::new();
+    for &((i, j), l) in &out.corral {
+        for (pk, v) in p.iter_mut().zip(row(i)) {
+            *pk += l * v;
+        }
+        for (qk, v) in q.iter_mut().zip(row(j)) {
+            *qk += l * v;
+        }
+        weights.push((i, l));
+        weights.push((j, l));
+    }
+    if zz <= 1e-24 {
+        let model = Linear { w: vec![0.0; d], b: 0.0 };
+        return SvmRun { model, support: Vec::new(), iterations: out.iterations, converged: false, margin: 0.0 };
+    }
+    // w = 2(p − q)/‖p − q‖² puts p and q at scores ±1; the boundary bisects them.
+    let w: Vec<f64> = z.iter().map(|v| 2.0 * v / zz).collect();
+    let b = -(dot(&w, &p) + dot(&w, &q)) / 2.0;
+    weights.sort_by_key(|w| w.0);
+    let mut support: Vec<(usize, f64)> = Vec::new();
+    for (i, l) in weights {
+        match support.last_mut() {
+            Some(last) if last.0 == i => last.1 += 2.0 * l / zz,
+            _ => support.push((i, 2.0 * l / zz)),
+        }
+    }
+    SvmRun { model: Linear { w, b }, support, iterations: out.iterations, converged: out.converged, margin: zz.sqrt() / 2.0 }
+}
+
+/// The result of [`wolfe`].
+struct MinNorm<Id> {
+    point: Vec<f64>,
+    corral: Vec<(Id, f64)>,
+    iterations: u64,
+    converged: bool,
+}
+
+/// Wolfe's minimum-norm-point algorithm over the hull of the vertices the oracle returns:
+/// `oracle(x)` gives a vertex minimising ⟨x, v⟩. Stops when no vertex improves on x
+/// (⟨x, x⟩ − min⟨x, v⟩ ≤ 1e-13·⟨x, x⟩), or at `max_major` major cycles.
+fn wolfe<Id: Copy + PartialEq>(start: (Id, Vec<f64>), mut oracle: impl FnMut(&[f64]) -> (Id, Vec<f64>), max_major: usize) -> MinNorm<Id> {
+    let mut ids = vec![start.0];
+    let mut pts = vec![start.1];
+    let mut lambda = vec![1.0];
+    let mut x = pts[0].clone();
+    let mut iterations = 0u64;
+    let mut converged = false;
+    let combine = |pts: &[Vec<f64>], l: &[f64]| {
+        let mut out = vec![0.0; pts[0].len()];
+        for (p, w) in pts.iter().zip(l) {
+            for (o, v) in out.iter_mut().zip(p) {
+                *o += w * v;
+            }
+        }
+        out
+    };
+    for _ in 0..max_major {
+        iterations += 1;
+        let (id, v) = oracle(&x);
+        let xx = dot(&x, &x);
+        if xx <= 1e-30 || xx - dot(&x, &v) <= 1e-13 * xx {
+            converged = true;
+            break;
+        }
+        if ids.contains(&id) {
+            // The best vertex is already in the corral: x is optimal to rounding.
+            converged = true;
+            break;
+        }
+        ids.push(id);
+        pts.push(v);
+        lambda.push(0.0);
+        loop {
+            let Some(alpha) = affine_min_norm(&pts) else {
+                return MinNorm { point: x, corral: ids.into_iter().zip(lambda).collect(), iterations, converged };
+            };
+            if alpha.iter().all(|a| *a > 1e-14) {
+                lambda = alpha;
+                x = combine(&pts, &lambda);
+                break;
+            }
+            // Move from λ towards α until the first weight reaches zero, and drop it.
+            let theta = lambda
+                .iter()
+                .zip(&alpha)
+                .filter(|(_, a)| **a <= 1e-14)
+                .map(|(l, a)| l / (l - a))
+                .fold(1.0f64, f64::min)
+                .clamp(0.0, 1.0);
+            for (l, a) in lambda.iter_mut().zip(&alpha) {
+                *l = theta * a + (1.0 - theta) * *l;
+            }
+            let mut k = 0;
+            while k < lambda.len() {
+                if lambda[k] <= 1e-14 && lambda.len() > 1 {
+                    lambda.remove(k);
+                    pts.remove(k);
+                    ids.remove(k);
+                } else {
+                    k += 1;
+                }
+            }
+            let s: f64 = lambda.iter().sum();
+            lambda.iter_mut().for_each(|l| *l /= s);
+            x = combine(&pts, &lambda);
+            if pts.len() == 1 {
+                break;
+            }
+        }
+    }
+    MinNorm { point: x, corral: ids.into_iter().zip(lambda).collect(), iterations, converged }
+}
+
+/// Weights α (Σα = 1) of the minimum-norm point of the affine hull of `pts`;
+/// `None` if the points are affinely dependent to working precision.
+fn affine_min_norm(pts: &[Vec<f64>]) -> Option<Vec<f64>> {
+    // Bordered system [G 1; 1ᵀ 0][α; μ] = [0; 1], G the Gram matrix.
+    let k = pts.len();
+    let n = k + 1;
+    let mut a = vec![vec![0.0; n + 1]; n];
+    for r in 0..k {
+        for c in 0..k {
+            a[r][c] = dot(&pts[r], &pts[c]);
+        }
+        a[r][k] = 1.0;
+        a[k][r] = 1.0;
+    }
+    a[k][n] = 1.0;
+    let scale = a.iter().flat_map(|r| r.iter()).fold(0.0f64, |m, v| m.max(v.abs()));
+    for col in 0..n {
+        let piv = (col..n).max_by(|&x, &y| a[x][col].abs().total_cmp(&a[y][col].abs()))?;
+        if a[piv][col].abs() <= 1e-14 * scale {
+            return None;
+        }
+        a.swap(col, piv);
+        for r in 0..n {
+            if r != col {
+                let f = a[r][col] / a[col][col];
+                if f != 0.0 {
+                    for c in col..=n {
+                        a[r][c] -= f * a[col][c];
+                    }
                 }
             }
         }
-        let norm = dot(&w, &w).sqrt();
-        if !norm.is_finite() || norm > 1e12 {
-            return None;
-        }
-        if worst < 1e-10 {
-            let gamma = 1.0 / norm;
-            return Some((gamma, w.iter().map(|v| v / norm).collect()));
-        }
     }
-    None
+    Some((0..k).map(|r| a[r][n] / a[r][r]).collect())
 }
 
 #[cfg(test)]

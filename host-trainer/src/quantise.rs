@@ -3,15 +3,19 @@
 //! Per channel the blob's conversion gives `x_q = round(κᵢ·(raw − offsetᵢ))`
 //! with κᵢ = multiplierᵢ / 2^shiftᵢ ≈ (2^(bits−1) − 1)/halfᵢ, while the float
 //! model scores `wᵢ·(raw − offsetᵢ)/halfᵢ`. So the ideal integer weight is
-//! `Wᵢ* = A·wᵢ/(halfᵢ·κᵢ)` for an accumulator scale A = 2^k, the largest power
-//! of two that keeps every |Wᵢ*| inside the weight word. Weights and bias are
-//! rounded to nearest, ties to even (the rule of the `fixed` crate's
-//! `from_num`); thresholds are exact: GO ⇔ acc > τ·A ⇔ acc ≥ ⌊τ·A⌋ + 1.
+//! `Wᵢ* = A·wᵢ/(halfᵢ·κᵢ)` for an accumulator scale A chosen so the largest
+//! |Wᵢ*| is exactly the largest word value: the weights use the whole word. The
+//! blob's Q-format reports ⌊log₂ A⌋ − (input_bits − 1) fractional bits. Weights
+//! and bias are rounded to nearest, ties to even (the rule of the `fixed`
+//! crate's `from_num`, see [`to_q`]); thresholds are exact: GO ⇔ acc > τ·A ⇔
+//! acc ≥ ⌊τ·A⌋ + 1.
 //!
 //! Margin-preserving rounding then tries ±1 LSB moves of each weight and of
-//! the bias, keeping a move only if it raises the smallest fixed-point margin
-//! over the correctly classified training units, as computed by the shared
-//! kernel.
+//! the bias, keeping a move only if it raises the guarantee's slack: the
+//! smallest fixed-point margin over the correctly classified training units
+//! (computed by the shared kernel) minus the rounding-error bound of the audit.
+//! Maximising the margin alone would favour moves that merely scale the weights
+//! up, which widen the bound as fast as the margin.
 
 use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
 
@@ -138,21 +142,17 @@ pub fn quantise(
     let max_r = ratio.iter().fold(0.0f64, |m, r| m.max(r.abs()));
     let wmax = ((1i64 << (cfg.weight_bits - 1)) - 1) as f64;
     let fx = i32::from(cfg.input_bits) - 1;
-    // A = 2^k with k - fx (the weights' fractional bits) kept in 0..=62.
-    let k = if max_r > 0.0 {
-        (wmax / max_r).log2().floor() as i32
-    } else {
-        fx
-    };
-    let k = k.clamp(fx, fx + 62);
-    let scale = 2f64.powi(k);
+    // A fills the weight word: the largest ideal weight is exactly ±Wmax. The float score's unit
+    // is arbitrary, so this costs nothing; a pure power of two would leave up to one bit unused.
+    let scale = if max_r > 0.0 { wmax / max_r } else { 2f64.powi(fx) };
+    let k = (scale.log2().floor() as i32).clamp(fx, fx + 62);
     let ideal_weights: Vec<f64> = ratio.iter().map(|r| r * scale).collect();
-    let plain_weights: Vec<i32> = ratio
+    let plain_weights: Vec<i32> = ideal_weights
         .iter()
-        .map(|r| to_q(*r, k).clamp(-wmax, wmax) as i32)
+        .map(|w| to_q(*w, 0).clamp(-wmax, wmax) as i32)
         .collect();
     let ideal_bias = fm.bias * scale;
-    let plain_bias = ideal_bias.round_ties_even() as i64;
+    let plain_bias = to_q(ideal_bias, 0) as i64;
     let threshold_acc = fm.threshold * scale;
     let band = cfg.recheck_band.max(0.0) * scale;
     let mut channels = heapless::Vec::new();
@@ -211,12 +211,22 @@ pub fn quantise(
         q.plain_min_margin = min_margin(&q.model, ds, &correct);
         q.optimised_min_margin = q.plain_min_margin;
         if cfg.optimise && !correct.is_empty() {
-            let (m, moves) = search(&q.model, ds, &correct, wmax as i64);
+            let xmax: Vec<f64> = q
+                .model
+                .model()
+                .channels
+                .iter()
+                .zip(&q.kappa)
+                .map(|(c, k)| k * f64::from(c.raw_max.abs_diff(c.offset).max(c.offset.abs_diff(c.raw_min))))
+                .collect();
+            let bound = Bound { ideal_w: &q.ideal_weights, ideal_b: q.ideal_bias, xmax: &xmax };
+            let (m, moves) = search(&q.model, ds, &correct, wmax as i64, &bound);
             let mut m = m;
             fit_acc(&mut m);
             if let Ok(better) = CheckedModel::new(m) {
                 let opt = min_margin(&better, ds, &correct);
-                if opt > q.plain_min_margin {
+                let slack = |mm: Option<f64>, m: &FixedModel| mm.map(|v| v - bound.of(m));
+                if moves > 0 && slack(opt, better.model()) > slack(q.plain_min_margin, q.model.model()) {
                     q.needed_bits = needed(better.model());
                     q.model = better;
                     q.optimised_min_margin = opt;
@@ -251,8 +261,29 @@ pub fn min_margin(m: &CheckedModel, ds: &Dataset, idx: &[usize]) -> Option<f64> 
         .filter(|v| v.is_finite())
 }
 
-/// Greedy ±1 LSB coordinate search on the units with the smallest margins.
-fn search(m: &CheckedModel, ds: &Dataset, correct: &[usize], wmax: i64) -> (FixedModel, usize) {
+/// The audit's rounding bound, as a function of the integer weights and bias.
+struct Bound<'a> {
+    ideal_w: &'a [f64],
+    ideal_b: f64,
+    xmax: &'a [f64],
+}
+
+impl Bound<'_> {
+    /// ½·Σ|Wᵢ| + Σ|Wᵢ − Wᵢ*|·Xmaxᵢ + |B − B*| (see the audit module).
+    fn of(&self, m: &FixedModel) -> f64 {
+        m.channels
+            .iter()
+            .zip(self.ideal_w)
+            .zip(self.xmax)
+            .map(|((c, w), x)| 0.5 * f64::from(c.weight).abs() + (f64::from(c.weight) - w).abs() * x)
+            .sum::<f64>()
+            + (m.bias as f64 - self.ideal_b).abs()
+    }
+}
+
+/// Greedy ±1 LSB coordinate search on the units with the smallest margins, maximising
+/// (smallest margin − rounding bound).
+fn search(m: &CheckedModel, ds: &Dataset, correct: &[usize], wmax: i64, bound: &Bound<'_>) -> (FixedModel, usize) {
     let d = ds.dim();
     let mut rows: Vec<(f64, i8, Vec<i64>)> = correct
         .iter()
@@ -269,24 +300,28 @@ fn search(m: &CheckedModel, ds: &Dataset, correct: &[usize], wmax: i64) -> (Fixe
     let mut margins: Vec<f64> = rows.iter().map(|r| r.0).collect();
     let mut moves = 0;
     for _ in 0..256 {
-        let current = margins.iter().copied().fold(f64::INFINITY, f64::min);
+        let current = margins.iter().copied().fold(f64::INFINITY, f64::min) - bound.of(&model);
         let mut best: Option<(f64, usize, i64)> = None;
         for coord in 0..=d {
             for delta in [1i64, -1] {
                 if coord < d && (i64::from(model.channels[coord].weight) + delta).abs() > wmax {
                     continue;
                 }
-                let new_min = rows
+                let mut trial = model.clone();
+                if coord < d {
+                    trial.channels[coord].weight += delta as i32;
+                } else {
+                    trial.bias += delta;
+                }
+                let step = |x: &[i64]| delta as f64 * if coord < d { x[coord] as f64 } else { 1.0 };
+                let slack = rows
                     .iter()
                     .zip(&margins)
-                    .map(|((_, y, x), mg)| {
-                        mg + f64::from(*y)
-                            * delta as f64
-                            * if coord < d { x[coord] as f64 } else { 1.0 }
-                    })
-                    .fold(f64::INFINITY, f64::min);
-                if new_min > current && best.is_none_or(|b| new_min > b.0) {
-                    best = Some((new_min, coord, delta));
+                    .map(|((_, y, x), mg)| mg + f64::from(*y) * step(x))
+                    .fold(f64::INFINITY, f64::min)
+                    - bound.of(&trial);
+                if slack > current && best.is_none_or(|b| slack > b.0) {
+                    best = Some((slack, coord, delta));
                 }
             }
         }

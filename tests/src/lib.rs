@@ -1,1 +1,1 @@
-
+//! Holds no code: the checks live in `tests/tests/`.

@@ -1,0 +1,84 @@
+//! On-device proof: the real firmware binary on an emulated Cortex-M3 (QEMU lm3s6965evb),
+//! flashed with the Intel HEX image from the packer, must print exactly the lines of
+//! `replay` for the holdout vectors; a bit-flipped blob must show the fault and hold NO-GO.
+
+use std::path::Path;
+use std::process::Command;
+
+fn have_qemu_and_target() -> Result<(), String> {
+    Command::new("qemu-system-arm").arg("--version").output().map_err(|_| "qemu-system-arm not found (apt-get install qemu-system-arm)".to_string())?;
+    let sysroot = Command::new("rustc").args(["--print", "sysroot"]).output().map_err(|e| e.to_string())?;
+    let sysroot = String::from_utf8_lossy(&sysroot.stdout).trim().to_string();
+    if !Path::new(&sysroot).join("lib/rustlib/thumbv7m-none-eabi").exists() {
+        return Err("rust target thumbv7m-none-eabi not installed (rustup target add thumbv7m-none-eabi)".into());
+    }
+    Ok(())
+}
+
+fn run_qemu(elf: &Path, loader: &str) -> (i32, String) {
+    let out = Command::new("timeout")
+        .args(["60", "qemu-system-arm", "-cpu", "cortex-m3", "-machine", "lm3s6965evb", "-nographic"])
+        .args(["-semihosting-config", "enable=on,target=native", "-kernel"])
+        .arg(elf)
+        .args(["-device", loader])
+        .output()
+        .expect("run qemu");
+    (out.status.code().unwrap_or(-1), String::from_utf8_lossy(&out.stdout).into_owned())
+}
+
+#[test]
+fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
+    if let Err(why) = have_qemu_and_target() {
+        return crate::skip_or_fail("QEMU end-to-end", &why);
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    host_trainer::demo::run(&out, false).unwrap();
+    let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt")).unwrap().lines().take(300).map(String::from).collect();
+    assert_eq!(vectors.len(), 300);
+    let vpath = dir.path().join("vectors.txt");
+    std::fs::write(&vpath, vectors.join("\n") + "\n").unwrap();
+    let app = crate::root().join("firmware/qemu-app");
+    let st = Command::new("cargo")
+        .args(["build", "--release", "--bin", "linegate-qemu-app"])
+        .current_dir(&app)
+        .env("LINEGATE_VECTORS", &vpath)
+        .env_remove("CARGO_TARGET_DIR")
+        .status()
+        .unwrap();
+    assert!(st.success(), "device build failed");
+    let elf = app.join("target/thumbv7m-none-eabi/release/linegate-qemu-app");
+
+    // The HEX image is flashed by QEMU's generic loader at the address it names (0x3F000).
+    let hex = out.join("model.hex");
+    let (code, stdout) = run_qemu(&elf, &format!("loader,file={}", hex.display()));
+    assert_eq!(code, 0, "device run failed:\n{stdout}");
+    let device: Vec<&str> = stdout.lines().filter(|l| !l.starts_with('#')).collect();
+    let replay = std::fs::read_to_string(out.join("replay-holdout.txt")).unwrap();
+    let host: Vec<&str> = replay.lines().take(300).collect();
+    assert_eq!(device.len(), 300, "device printed:\n{stdout}");
+    for (i, (d, h)) in device.iter().zip(&host).enumerate() {
+        assert_eq!(d, h, "vector {i}: device and replay differ");
+    }
+    let last = host.last().unwrap();
+    let want = if last.contains(" GO ") { "# lines: GO=1 NO-GO=0" } else { "# lines: GO=0 NO-GO=1" };
+    assert!(stdout.contains(want), "final lines should show the last verdict:\n{stdout}");
+    let stack: usize = stdout.lines().find_map(|l| l.strip_prefix("# stack bytes used by one step: ")).unwrap().trim().parse().unwrap();
+    assert!(stack > 0 && stack < 512, "stack {stack} bytes");
+
+    // A single flipped bit: the device reports the fault and holds NO-GO.
+    let mut blob = std::fs::read(out.join("model.lgb")).unwrap();
+    blob[20] ^= 0x04;
+    let bad = dir.path().join("bad.bin");
+    std::fs::write(&bad, &blob).unwrap();
+    let (code, stdout) = run_qemu(&elf, &format!("loader,file={},addr=0x3F000,force-raw=on", bad.display()));
+    assert_eq!(code, 1, "corrupt blob must exit with failure:\n{stdout}");
+    assert!(stdout.contains("FAULT blob: blob CRC mismatch"), "{stdout}");
+    assert!(stdout.contains("# lines: GO=0 NO-GO=1 RECHECK=0"), "{stdout}");
+    assert!(!stdout.lines().any(|l| l.contains(" GO ")), "no verdict may be shown: {stdout}");
+
+    // Erased flash (no blob at all) is refused the same way.
+    let (code, stdout) = run_qemu(&elf, "loader,addr=0x3F000,data=0,data-len=4");
+    assert_eq!(code, 1, "{stdout}");
+    assert!(stdout.contains("FAULT blob") && stdout.contains("NO-GO=1"), "{stdout}");
+}
