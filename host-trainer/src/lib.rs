@@ -25,5 +25,6 @@ pub mod replay;
 pub mod report;
 pub mod scaling;
 pub mod separability;
+pub mod synth;
 pub mod trainer;
 pub mod workflow;

@@ -190,6 +190,30 @@ enum Cmd {
         #[arg(long)]
         force: bool,
     },
+    /// Write a SYNTHETIC separable bench log of any size (and its channel sheet), to try Linegate at scale.
+    #[command(
+        after_help = "Example:\n  linegate generate --rows 1000000 --channels 16 -o big.csv   # also writes big.toml"
+    )]
+    Generate {
+        /// Units.
+        #[arg(long, default_value_t = 10_000)]
+        rows: usize,
+        /// Channels (1..=32).
+        #[arg(long, default_value_t = 16)]
+        channels: usize,
+        /// Empty gap kept around the hidden boundary (scaled units).
+        #[arg(long, default_value_t = 0.02)]
+        margin: f64,
+        /// Seed.
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Output log; the channel sheet goes beside it with extension .toml.
+        #[arg(long, short)]
+        output: PathBuf,
+        /// Overwrite existing files.
+        #[arg(long)]
+        force: bool,
+    },
     /// Run the whole job on built-in synthetic data (an invented fan-module test station).
     #[command(after_help = "Example:\n  linegate demo --out linegate-demo")]
     Demo {
@@ -568,6 +592,31 @@ fn run(cli: &Cli) -> Result<()> {
                 let mut set = OutputSet::default();
                 set.add(v, replay::vectors(&ds));
                 set.commit(*force)?;
+            }
+        }
+        Cmd::Generate {
+            rows,
+            channels,
+            margin,
+            seed,
+            output,
+            force,
+        } => {
+            if *channels == 0 || *channels > shared_model::MAX_CHANNELS {
+                bail!("--channels must be 1..={}", shared_model::MAX_CHANNELS);
+            }
+            let mut log = Vec::new();
+            host_trainer::synth::write_log(&mut log, *rows, *channels, *margin, *seed)?;
+            let mut set = OutputSet::default();
+            set.add(output, log);
+            set.add(
+                output.with_extension("toml"),
+                host_trainer::synth::sheet(*channels),
+            );
+            for f in set.commit(*force)? {
+                if !quiet {
+                    println!("wrote {}", f.display());
+                }
             }
         }
         Cmd::Demo { out, force } => {

@@ -377,10 +377,25 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
     let go = idx.iter().copied().find(|&i| ds.labels[i] > 0);
     let nogo = idx.iter().copied().find(|&i| ds.labels[i] < 0);
     let (Some(g0), Some(n0)) = (go, nogo) else {
-        let model = Linear { w: vec![0.0; d], b: if go.is_some() { 1.0 } else { -1.0 } };
-        return SvmRun { model, support: Vec::new(), iterations: 0, converged: false, margin: 0.0 };
+        let model = Linear {
+            w: vec![0.0; d],
+            b: if go.is_some() { 1.0 } else { -1.0 },
+        };
+        return SvmRun {
+            model,
+            support: Vec::new(),
+            iterations: 0,
+            converged: false,
+            margin: 0.0,
+        };
     };
-    let diff = |i: usize, j: usize| row(i).iter().zip(row(j)).map(|(a, b)| a - b).collect::<Vec<f64>>();
+    let diff = |i: usize, j: usize| {
+        row(i)
+            .iter()
+            .zip(row(j))
+            .map(|(a, b)| a - b)
+            .collect::<Vec<f64>>()
+    };
     // Oracle over the Minkowski difference: min over GO of ⟨p, x⟩ minus max over NO-GO.
     let oracle = |p: &[f64]| {
         let mut x = vec![0.0; d];
@@ -400,7 +415,11 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
         }
         ((bi, bj), diff(bi, bj))
     };
-    let out = wolfe(((g0, n0), diff(g0, n0)), oracle, max_iter.min(1_000_000) as usize);
+    let out = wolfe(
+        ((g0, n0), diff(g0, n0)),
+        oracle,
+        max_iter.min(1_000_000) as usize,
+    );
     let z = &out.point;
     let zz = dot(z, z);
     let mut p = vec![0.0; d];
@@ -417,8 +436,17 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
         weights.push((j, l));
     }
     if zz <= 1e-24 {
-        let model = Linear { w: vec![0.0; d], b: 0.0 };
-        return SvmRun { model, support: Vec::new(), iterations: out.iterations, converged: false, margin: 0.0 };
+        let model = Linear {
+            w: vec![0.0; d],
+            b: 0.0,
+        };
+        return SvmRun {
+            model,
+            support: Vec::new(),
+            iterations: out.iterations,
+            converged: false,
+            margin: 0.0,
+        };
     }
     // w = 2(p − q)/‖p − q‖² puts p and q at scores ±1; the boundary bisects them.
     let w: Vec<f64> = z.iter().map(|v| 2.0 * v / zz).collect();
@@ -431,7 +459,13 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
             _ => support.push((i, 2.0 * l / zz)),
         }
     }
-    SvmRun { model: Linear { w, b }, support, iterations: out.iterations, converged: out.converged, margin: zz.sqrt() / 2.0 }
+    SvmRun {
+        model: Linear { w, b },
+        support,
+        iterations: out.iterations,
+        converged: out.converged,
+        margin: zz.sqrt() / 2.0,
+    }
 }
 
 /// The result of [`wolfe`].
@@ -445,7 +479,11 @@ struct MinNorm<Id> {
 /// Wolfe's minimum-norm-point algorithm over the hull of the vertices the oracle returns:
 /// `oracle(x)` gives a vertex minimising ⟨x, v⟩. Stops when no vertex improves on x
 /// (⟨x, x⟩ − min⟨x, v⟩ ≤ 1e-13·⟨x, x⟩), or at `max_major` major cycles.
-fn wolfe<Id: Copy + PartialEq>(start: (Id, Vec<f64>), mut oracle: impl FnMut(&[f64]) -> (Id, Vec<f64>), max_major: usize) -> MinNorm<Id> {
+fn wolfe<Id: Copy + PartialEq>(
+    start: (Id, Vec<f64>),
+    mut oracle: impl FnMut(&[f64]) -> (Id, Vec<f64>),
+    max_major: usize,
+) -> MinNorm<Id> {
     let mut ids = vec![start.0];
     let mut pts = vec![start.1];
     let mut lambda = vec![1.0];
@@ -479,7 +517,12 @@ fn wolfe<Id: Copy + PartialEq>(start: (Id, Vec<f64>), mut oracle: impl FnMut(&[f
         lambda.push(0.0);
         loop {
             let Some(alpha) = affine_min_norm(&pts) else {
-                return MinNorm { point: x, corral: ids.into_iter().zip(lambda).collect(), iterations, converged };
+                return MinNorm {
+                    point: x,
+                    corral: ids.into_iter().zip(lambda).collect(),
+                    iterations,
+                    converged,
+                };
             };
             if alpha.iter().all(|a| *a > 1e-14) {
                 lambda = alpha;
@@ -515,7 +558,12 @@ fn wolfe<Id: Copy + PartialEq>(start: (Id, Vec<f64>), mut oracle: impl FnMut(&[f
             }
         }
     }
-    MinNorm { point: x, corral: ids.into_iter().zip(lambda).collect(), iterations, converged }
+    MinNorm {
+        point: x,
+        corral: ids.into_iter().zip(lambda).collect(),
+        iterations,
+        converged,
+    }
 }
 
 /// Weights α (Σα = 1) of the minimum-norm point of the affine hull of `pts`;
@@ -533,7 +581,10 @@ fn affine_min_norm(pts: &[Vec<f64>]) -> Option<Vec<f64>> {
         a[k][r] = 1.0;
     }
     a[k][n] = 1.0;
-    let scale = a.iter().flat_map(|r| r.iter()).fold(0.0f64, |m, v| m.max(v.abs()));
+    let scale = a
+        .iter()
+        .flat_map(|r| r.iter())
+        .fold(0.0f64, |m, v| m.max(v.abs()));
     for col in 0..n {
         let piv = (col..n).max_by(|&x, &y| a[x][col].abs().total_cmp(&a[y][col].abs()))?;
         if a[piv][col].abs() <= 1e-14 * scale {

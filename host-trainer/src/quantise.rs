@@ -144,7 +144,11 @@ pub fn quantise(
     let fx = i32::from(cfg.input_bits) - 1;
     // A fills the weight word: the largest ideal weight is exactly ±Wmax. The float score's unit
     // is arbitrary, so this costs nothing; a pure power of two would leave up to one bit unused.
-    let scale = if max_r > 0.0 { wmax / max_r } else { 2f64.powi(fx) };
+    let scale = if max_r > 0.0 {
+        wmax / max_r
+    } else {
+        2f64.powi(fx)
+    };
     let k = (scale.log2().floor() as i32).clamp(fx, fx + 62);
     let ideal_weights: Vec<f64> = ratio.iter().map(|r| r * scale).collect();
     let plain_weights: Vec<i32> = ideal_weights
@@ -217,16 +221,28 @@ pub fn quantise(
                 .channels
                 .iter()
                 .zip(&q.kappa)
-                .map(|(c, k)| k * f64::from(c.raw_max.abs_diff(c.offset).max(c.offset.abs_diff(c.raw_min))))
+                .map(|(c, k)| {
+                    k * f64::from(
+                        c.raw_max
+                            .abs_diff(c.offset)
+                            .max(c.offset.abs_diff(c.raw_min)),
+                    )
+                })
                 .collect();
-            let bound = Bound { ideal_w: &q.ideal_weights, ideal_b: q.ideal_bias, xmax: &xmax };
+            let bound = Bound {
+                ideal_w: &q.ideal_weights,
+                ideal_b: q.ideal_bias,
+                xmax: &xmax,
+            };
             let (m, moves) = search(&q.model, ds, &correct, wmax as i64, &bound);
             let mut m = m;
             fit_acc(&mut m);
             if let Ok(better) = CheckedModel::new(m) {
                 let opt = min_margin(&better, ds, &correct);
                 let slack = |mm: Option<f64>, m: &FixedModel| mm.map(|v| v - bound.of(m));
-                if moves > 0 && slack(opt, better.model()) > slack(q.plain_min_margin, q.model.model()) {
+                if moves > 0
+                    && slack(opt, better.model()) > slack(q.plain_min_margin, q.model.model())
+                {
                     q.needed_bits = needed(better.model());
                     q.model = better;
                     q.optimised_min_margin = opt;
@@ -275,7 +291,9 @@ impl Bound<'_> {
             .iter()
             .zip(self.ideal_w)
             .zip(self.xmax)
-            .map(|((c, w), x)| 0.5 * f64::from(c.weight).abs() + (f64::from(c.weight) - w).abs() * x)
+            .map(|((c, w), x)| {
+                0.5 * f64::from(c.weight).abs() + (f64::from(c.weight) - w).abs() * x
+            })
             .sum::<f64>()
             + (m.bias as f64 - self.ideal_b).abs()
     }
@@ -283,12 +301,18 @@ impl Bound<'_> {
 
 /// Greedy ±1 LSB coordinate search on the units with the smallest margins, maximising
 /// (smallest margin − rounding bound).
-fn search(m: &CheckedModel, ds: &Dataset, correct: &[usize], wmax: i64, bound: &Bound<'_>) -> (FixedModel, usize) {
+fn search(
+    m: &CheckedModel,
+    ds: &Dataset,
+    correct: &[usize],
+    wmax: i64,
+    bound: &Bound<'_>,
+) -> (FixedModel, usize) {
     let d = ds.dim();
-    let mut rows: Vec<(f64, i8, Vec<i64>)> = correct
+    let mut rows: Vec<(f64, i8, Vec<i32>)> = correct
         .iter()
         .filter_map(|&i| {
-            let mut x = vec![0i64; d];
+            let mut x = vec![0i32; d];
             m.scale(ds.raw_row(i), &mut x).ok()?;
             let s = m.score_scaled(&x);
             Some((fixed_margin(m.model(), s, ds.labels[i]), ds.labels[i], x))
@@ -313,7 +337,8 @@ fn search(m: &CheckedModel, ds: &Dataset, correct: &[usize], wmax: i64, bound: &
                 } else {
                     trial.bias += delta;
                 }
-                let step = |x: &[i64]| delta as f64 * if coord < d { x[coord] as f64 } else { 1.0 };
+                let step =
+                    |x: &[i32]| delta as f64 * if coord < d { f64::from(x[coord]) } else { 1.0 };
                 let slack = rows
                     .iter()
                     .zip(&margins)
@@ -327,7 +352,7 @@ fn search(m: &CheckedModel, ds: &Dataset, correct: &[usize], wmax: i64, bound: &
         }
         let Some((_, coord, delta)) = best else { break };
         for ((_, y, x), mg) in rows.iter().zip(margins.iter_mut()) {
-            *mg += f64::from(*y) * delta as f64 * if coord < d { x[coord] as f64 } else { 1.0 };
+            *mg += f64::from(*y) * delta as f64 * if coord < d { f64::from(x[coord]) } else { 1.0 };
         }
         if coord < d {
             model.channels[coord].weight += delta as i32;

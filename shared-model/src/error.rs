@@ -23,7 +23,7 @@ pub enum ModelError {
         /// Channel index.
         channel: u8,
     },
-    /// Multiplier below 1 or shift above 62 on this channel.
+    /// Multiplier below 1, shift above 62, offset outside the valid range, or a range of 2^31 or wider.
     Conversion {
         /// Channel index.
         channel: u8,

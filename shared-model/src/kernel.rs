@@ -1,12 +1,14 @@
 //! The integer inference kernel: raw readings → scaled inputs → score → verdict.
 //!
-//! Widths: readings `i32`, scaled inputs `i64` holding at most 16 significant
-//! bits, weights `i32`, products and the accumulator `i64`. Validation
-//! ([`CheckedModel::new`]) proved `|bias| + Σ|w_i|·max|x_i|` fits the declared
-//! accumulator (at most 64 bits), and that `(r - offset)·multiplier` stays
-//! below 2^62 for in-range `r`; so the `wrapping_*` operations below never
-//! wrap. They are used instead of `+`/`*` only to keep panic paths out of the
-//! device image.
+//! Widths: readings `i32`; `r - offset` in `i32` (validation keeps the offset
+//! inside a range narrower than 2^31); the conversion product in `i64`
+//! (32×32→64, one long multiply); scaled inputs `i32` holding at most 16
+//! significant bits; weights `i32`; products and the accumulator `i64`
+//! (32×32→64 multiply-accumulate). Validation ([`CheckedModel::new`]) proved
+//! `|bias| + Σ|w_i|·max|x_i|` fits the declared accumulator (at most 64 bits)
+//! and that `(r - offset)·multiplier` stays below 2^62 for in-range `r`; so the
+//! `wrapping_*` operations below never wrap. They are used instead of `+`/`*`
+//! only to keep panic paths out of the device image.
 #![warn(clippy::arithmetic_side_effects)]
 
 use crate::error::Fault;
@@ -48,20 +50,23 @@ impl ChannelSpec {
     ///
     /// Only call on a channel of a [`CheckedModel`]; the no-overflow argument rests on its validation.
     #[inline]
-    fn scale_checked(&self, raw: i32) -> Option<i64> {
+    fn scale_checked(&self, raw: i32) -> Option<i32> {
         if raw < self.raw_min || raw > self.raw_max {
             return None;
         }
-        // |raw - offset| · multiplier < 2^62 (validated): neither step wraps.
-        let p = i64::from(raw)
-            .wrapping_sub(i64::from(self.offset))
-            .wrapping_mul(i64::from(self.multiplier));
-        Some(if self.shift == 0 {
+        // offset ∈ [raw_min, raw_max] and raw_max - raw_min < 2^31 (validated): d fits i32.
+        let d = raw.wrapping_sub(self.offset);
+        // |d| · multiplier < 2^62 (validated).
+        let p = i64::from(d).wrapping_mul(i64::from(self.multiplier));
+        let x = if self.shift == 0 {
             p
         } else {
             // shift in 1..=62 (validated); adding 2^(shift-1) < 2^62 to |p| < 2^62 stays in i64.
             p.wrapping_add(1i64 << (self.shift & 63).wrapping_sub(1)) >> (self.shift & 63)
-        })
+        };
+        // |x| <= 2^(input_bits-1) - 1 <= 32767 (validated at both ends of the monotonic range).
+        #[allow(clippy::cast_possible_truncation)]
+        Some(x as i32)
     }
 }
 
@@ -71,7 +76,7 @@ impl CheckedModel {
     /// # Errors
     /// [`Fault::ReadingCount`] if `raw` or `out` does not hold one value per
     /// channel; [`Fault::OutOfRange`] for the first reading outside its range.
-    pub fn scale(&self, raw: &[i32], out: &mut [i64]) -> Result<(), Fault> {
+    pub fn scale(&self, raw: &[i32], out: &mut [i32]) -> Result<(), Fault> {
         let n = self.channel_count();
         if raw.len() != n || out.len() != n {
             return Err(Fault::ReadingCount {
@@ -99,13 +104,13 @@ impl CheckedModel {
     ///
     /// Inputs beyond the validated range make the result meaningless but never panic.
     #[inline]
-    pub fn score_scaled(&self, x: &[i64]) -> i64 {
+    pub fn score_scaled(&self, x: &[i32]) -> i64 {
         self.model()
             .channels
             .iter()
             .zip(x)
             .fold(self.model().bias, |acc, (c, &xi)| {
-                acc.wrapping_add(i64::from(c.weight).wrapping_mul(xi))
+                acc.wrapping_add(i64::from(c.weight).wrapping_mul(i64::from(xi)))
             })
     }
 
@@ -144,7 +149,7 @@ impl CheckedModel {
                 raw: r,
             })?;
             // |Σ| <= validated score bound < 2^63.
-            acc = acc.wrapping_add(i64::from(c.weight).wrapping_mul(x));
+            acc = acc.wrapping_add(i64::from(c.weight).wrapping_mul(i64::from(x)));
         }
         Ok(Decision {
             score: acc,
@@ -178,7 +183,7 @@ mod tests {
             shift: 1,
             ..Default::default()
         };
-        let got: [i64; 4] = [1, -1, 3, -3].map(|r| c.scale_checked(r).unwrap());
+        let got: [i32; 4] = [1, -1, 3, -3].map(|r| c.scale_checked(r).unwrap());
         assert_eq!(got, [1, 0, 2, -1]);
     }
 
@@ -285,7 +290,7 @@ mod tests {
             let want = if exact >= 1 { Verdict::Go } else if exact <= -1 { Verdict::NoGo } else { Verdict::Recheck };
             prop_assert_eq!(d.verdict, want);
             // The two-step path (scale, then score) agrees with classify.
-            let mut x = [0i64; crate::MAX_CHANNELS];
+            let mut x = [0i32; crate::MAX_CHANNELS];
             m.scale(&raw, &mut x[..raw.len()]).unwrap();
             prop_assert_eq!(m.score_scaled(&x[..raw.len()]), d.score);
         }

@@ -7,7 +7,8 @@
 //!    in-range reading gives an exact score without overflow.
 //! 2. [`blob`]: the byte format that travels to flash: magic, format version,
 //!    a postcard payload and a CRC-32. The layout is written down in
-//!    `shared-model/FORMAT.md`; any layout change bumps [`blob::FORMAT_VERSION`].
+//!    `shared-model/FORMAT.md`, rendered here as [`format`]; any layout change
+//!    bumps [`blob::FORMAT_VERSION`].
 //! 3. [`kernel`]: raw readings → scaled integer inputs → integer score →
 //!    [`Verdict`]. Integer only, explicit widths.
 //!
@@ -67,6 +68,8 @@ extern crate std;
 
 pub mod blob;
 pub mod error;
+#[doc = include_str!("../FORMAT.md")]
+pub mod format {}
 pub mod kernel;
 pub mod model;
 

@@ -147,7 +147,15 @@ impl FixedModel {
             if c.raw_min > c.raw_max {
                 return Err(ModelError::InvertedRange { channel });
             }
-            if c.multiplier < 1 || c.shift > 62 {
+            // The offset sits inside the range and the range is narrower than 2^31, so the
+            // kernel can form `raw - offset` in an i32.
+            let narrow = i64::from(c.raw_max) - i64::from(c.raw_min) <= i64::from(i32::MAX);
+            if c.multiplier < 1
+                || c.shift > 62
+                || c.offset < c.raw_min
+                || c.offset > c.raw_max
+                || !narrow
+            {
                 return Err(ModelError::Conversion { channel });
             }
             // The kernel forms (r - offset) · multiplier in i64 and adds the rounding half;

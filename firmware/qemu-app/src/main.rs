@@ -8,7 +8,7 @@ mod board;
 
 use cortex_m_rt::entry;
 use cortex_m_semihosting::{debug, hprintln};
-use firmware::{GoNoGoLines, Station, StationFault, Step};
+use firmware::{Classifier, Decision, Fault, GoNoGoLines, Station, StationFault, Step};
 use panic_semihosting as _;
 
 mod vectors {
@@ -49,6 +49,20 @@ fn main() -> ! {
         let painted = board::paint_stack(top);
         let step = station.step();
         deepest = deepest.max(board::stack_used(painted, top));
+        // The kernel alone, once more, behind a call boundary the footprint script can count.
+        if let (Ok(c), Some(v)) = (
+            station.classifier(),
+            vectors::VECTORS.get(i * vectors::WIDTH..(i + 1) * vectors::WIDTH),
+        ) {
+            let _ = core::hint::black_box(classify_once(c, v));
+            // And the dot-product stage alone, on inputs already scaled.
+            let mut x = [0i32; shared_model::MAX_CHANNELS];
+            if let Some(x) = x.get_mut(..v.len()) {
+                if c.model().scale(v, x).is_ok() {
+                    let _ = core::hint::black_box(score_once(c, x));
+                }
+            }
+        }
         match step {
             Ok(Step::Decided(d)) => hprintln!("{} {} {}", i, d.verdict.as_str(), d.score),
             Ok(Step::Faulted {
@@ -65,6 +79,18 @@ fn main() -> ! {
     report_lines();
     debug::exit(Ok(()));
     loop {}
+}
+
+/// One classification by the shared kernel (not inlined, so its instructions can be counted).
+#[inline(never)]
+fn classify_once(c: &Classifier, raw: &[i32]) -> Result<Decision, Fault> {
+    c.classify(raw)
+}
+
+/// The dot-product stage only: bias + Σ weight·x over scaled inputs (not inlined, to be counted).
+#[inline(never)]
+fn score_once(c: &Classifier, x: &[i32]) -> i64 {
+    c.model().score_scaled(x)
 }
 
 fn report_lines() {

@@ -10,28 +10,56 @@ fn demo_outputs_decode_pass_audit_and_are_byte_identical_across_runs() {
     let s = host_trainer::demo::run(&a, false).unwrap();
     host_trainer::demo::run(&b, false).unwrap();
     assert!(s.check_train.separable, "training log must be separable");
-    assert!(!s.check_drift.separable, "second-shift log must not be separable");
+    assert!(
+        !s.check_drift.separable,
+        "second-shift log must not be separable"
+    );
     assert!(!s.check_drift.conflict.is_empty());
-    assert!(s.audit.passed && s.audit.guaranteed, "{:?}", s.audit.reasons);
+    assert!(
+        s.audit.passed && s.audit.guaranteed,
+        "{:?}",
+        s.audit.reasons
+    );
     let bound = s.check_train.novikoff_bound.unwrap();
     assert!(s.perceptron_updates as f64 <= bound);
     let blob = std::fs::read(a.join("model.lgb")).unwrap();
     let m = shared_model::blob::decode(&blob).unwrap();
     assert_eq!(m.model().audit, shared_model::AuditMark::Passed);
     let fm = FloatModel::read(&a.join("model.json")).unwrap();
-    assert_eq!(m.model().model_id, fm.id_bytes(), "blob carries the float model's id");
-    let audit: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(a.join("audit.json")).unwrap()).unwrap();
+    assert_eq!(
+        m.model().model_id,
+        fm.id_bytes(),
+        "blob carries the float model's id"
+    );
+    let audit: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(a.join("audit.json")).unwrap()).unwrap();
     assert_eq!(audit["model_id"], fm.model_id);
     assert_eq!(audit["passed"], true);
-    let (addr, img) = host_trainer::hex::from_hex(&std::fs::read_to_string(a.join("model.hex")).unwrap()).unwrap();
+    let (addr, img) =
+        host_trainer::hex::from_hex(&std::fs::read_to_string(a.join("model.hex")).unwrap())
+            .unwrap();
     assert_eq!((addr, img), (host_trainer::demo::MODEL_REGION, blob));
-    assert!(std::fs::read_to_string(a.join("audit.html")).unwrap().contains("<svg"));
+    assert!(
+        std::fs::read_to_string(a.join("audit.html"))
+            .unwrap()
+            .contains("<svg")
+    );
     for f in &s.files {
         let name = f.file_name().unwrap();
-        let (x, y) = (std::fs::read(a.join(name)).unwrap(), std::fs::read(b.join(name)).unwrap());
+        let (x, y) = (
+            std::fs::read(a.join(name)).unwrap(),
+            std::fs::read(b.join(name)).unwrap(),
+        );
         // Provenance names the output folder, which differs by design; everything else is identical.
-        let norm = |v: Vec<u8>, p: &std::path::Path| String::from_utf8_lossy(&v).replace(&p.display().to_string(), "<out>");
-        assert_eq!(norm(x, &a), norm(y, &b), "{} differs between runs", name.to_string_lossy());
+        let norm = |v: Vec<u8>, p: &std::path::Path| {
+            String::from_utf8_lossy(&v).replace(&p.display().to_string(), "<out>")
+        };
+        assert_eq!(
+            norm(x, &a),
+            norm(y, &b),
+            "{} differs between runs",
+            name.to_string_lossy()
+        );
     }
 }
 
@@ -43,7 +71,11 @@ fn demo_refuses_to_overwrite_without_force_and_writes_nothing_partial() {
     std::fs::write(out.join("model.lgb"), b"keep me").unwrap();
     assert!(host_trainer::demo::run(&out, false).is_err());
     assert_eq!(std::fs::read(out.join("model.lgb")).unwrap(), b"keep me");
-    assert_eq!(std::fs::read_dir(&out).unwrap().count(), 1, "nothing else written");
+    assert_eq!(
+        std::fs::read_dir(&out).unwrap().count(),
+        1,
+        "nothing else written"
+    );
     host_trainer::demo::run(&out, true).unwrap();
 }
 
@@ -56,8 +88,20 @@ fn readme_commands_are_the_ones_ci_runs() {
     let root = crate::root();
     let readme = std::fs::read_to_string(root.join("README.md")).unwrap();
     let ci = std::fs::read_to_string(root.join(".ci/run")).unwrap();
-    assert!(readme.contains(DEMO_COMMAND), "README must give the demo command `{DEMO_COMMAND}`");
-    assert!(readme.contains(TEST_COMMAND), "README must give the test command `{TEST_COMMAND}`");
-    assert!(ci.contains("cargo test --workspace"), ".ci/run must run the workspace tests");
-    assert!(readme.contains("not by itself a safety function"), "README must carry the caution");
+    assert!(
+        readme.contains(DEMO_COMMAND),
+        "README must give the demo command `{DEMO_COMMAND}`"
+    );
+    assert!(
+        readme.contains(TEST_COMMAND),
+        "README must give the test command `{TEST_COMMAND}`"
+    );
+    assert!(
+        ci.contains("cargo test --workspace"),
+        ".ci/run must run the workspace tests"
+    );
+    assert!(
+        readme.contains("not by itself a safety function"),
+        "README must carry the caution"
+    );
 }

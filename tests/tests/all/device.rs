@@ -6,24 +6,47 @@ use std::path::Path;
 use std::process::Command;
 
 fn have_qemu_and_target() -> Result<(), String> {
-    Command::new("qemu-system-arm").arg("--version").output().map_err(|_| "qemu-system-arm not found (apt-get install qemu-system-arm)".to_string())?;
-    let sysroot = Command::new("rustc").args(["--print", "sysroot"]).output().map_err(|e| e.to_string())?;
+    Command::new("qemu-system-arm")
+        .arg("--version")
+        .output()
+        .map_err(|_| "qemu-system-arm not found (apt-get install qemu-system-arm)".to_string())?;
+    let sysroot = Command::new("rustc")
+        .args(["--print", "sysroot"])
+        .output()
+        .map_err(|e| e.to_string())?;
     let sysroot = String::from_utf8_lossy(&sysroot.stdout).trim().to_string();
-    if !Path::new(&sysroot).join("lib/rustlib/thumbv7m-none-eabi").exists() {
-        return Err("rust target thumbv7m-none-eabi not installed (rustup target add thumbv7m-none-eabi)".into());
+    if !Path::new(&sysroot)
+        .join("lib/rustlib/thumbv7m-none-eabi")
+        .exists()
+    {
+        return Err(
+            "rust target thumbv7m-none-eabi not installed (rustup target add thumbv7m-none-eabi)"
+                .into(),
+        );
     }
     Ok(())
 }
 
 fn run_qemu(elf: &Path, loader: &str) -> (i32, String) {
     let out = Command::new("timeout")
-        .args(["60", "qemu-system-arm", "-cpu", "cortex-m3", "-machine", "lm3s6965evb", "-nographic"])
+        .args([
+            "60",
+            "qemu-system-arm",
+            "-cpu",
+            "cortex-m3",
+            "-machine",
+            "lm3s6965evb",
+            "-nographic",
+        ])
         .args(["-semihosting-config", "enable=on,target=native", "-kernel"])
         .arg(elf)
         .args(["-device", loader])
         .output()
         .expect("run qemu");
-    (out.status.code().unwrap_or(-1), String::from_utf8_lossy(&out.stdout).into_owned())
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+    )
 }
 
 #[test]
@@ -34,7 +57,12 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("demo");
     host_trainer::demo::run(&out, false).unwrap();
-    let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt")).unwrap().lines().take(300).map(String::from).collect();
+    let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt"))
+        .unwrap()
+        .lines()
+        .take(300)
+        .map(String::from)
+        .collect();
     assert_eq!(vectors.len(), 300);
     let vpath = dir.path().join("vectors.txt");
     std::fs::write(&vpath, vectors.join("\n") + "\n").unwrap();
@@ -61,9 +89,22 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
         assert_eq!(d, h, "vector {i}: device and replay differ");
     }
     let last = host.last().unwrap();
-    let want = if last.contains(" GO ") { "# lines: GO=1 NO-GO=0" } else { "# lines: GO=0 NO-GO=1" };
-    assert!(stdout.contains(want), "final lines should show the last verdict:\n{stdout}");
-    let stack: usize = stdout.lines().find_map(|l| l.strip_prefix("# stack bytes used by one step: ")).unwrap().trim().parse().unwrap();
+    let want = if last.contains(" GO ") {
+        "# lines: GO=1 NO-GO=0"
+    } else {
+        "# lines: GO=0 NO-GO=1"
+    };
+    assert!(
+        stdout.contains(want),
+        "final lines should show the last verdict:\n{stdout}"
+    );
+    let stack: usize = stdout
+        .lines()
+        .find_map(|l| l.strip_prefix("# stack bytes used by one step: "))
+        .unwrap()
+        .trim()
+        .parse()
+        .unwrap();
     assert!(stack > 0 && stack < 512, "stack {stack} bytes");
 
     // A single flipped bit: the device reports the fault and holds NO-GO.
@@ -71,14 +112,26 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
     blob[20] ^= 0x04;
     let bad = dir.path().join("bad.bin");
     std::fs::write(&bad, &blob).unwrap();
-    let (code, stdout) = run_qemu(&elf, &format!("loader,file={},addr=0x3F000,force-raw=on", bad.display()));
+    let (code, stdout) = run_qemu(
+        &elf,
+        &format!("loader,file={},addr=0x3F000,force-raw=on", bad.display()),
+    );
     assert_eq!(code, 1, "corrupt blob must exit with failure:\n{stdout}");
     assert!(stdout.contains("FAULT blob: blob CRC mismatch"), "{stdout}");
-    assert!(stdout.contains("# lines: GO=0 NO-GO=1 RECHECK=0"), "{stdout}");
-    assert!(!stdout.lines().any(|l| l.contains(" GO ")), "no verdict may be shown: {stdout}");
+    assert!(
+        stdout.contains("# lines: GO=0 NO-GO=1 RECHECK=0"),
+        "{stdout}"
+    );
+    assert!(
+        !stdout.lines().any(|l| l.contains(" GO ")),
+        "no verdict may be shown: {stdout}"
+    );
 
     // Erased flash (no blob at all) is refused the same way.
     let (code, stdout) = run_qemu(&elf, "loader,addr=0x3F000,data=0,data-len=4");
     assert_eq!(code, 1, "{stdout}");
-    assert!(stdout.contains("FAULT blob") && stdout.contains("NO-GO=1"), "{stdout}");
+    assert!(
+        stdout.contains("FAULT blob") && stdout.contains("NO-GO=1"),
+        "{stdout}"
+    );
 }

@@ -7,7 +7,10 @@ use host_trainer::hex::{from_hex, to_hex};
 #[test]
 fn intel_hex_equals_the_blob_byte_for_byte_through_objcopy() {
     let Ok(out) = Command::new("objcopy").arg("--version").output() else {
-        return crate::skip_or_fail("Intel HEX vs objcopy", "objcopy not found (apt-get install binutils)");
+        return crate::skip_or_fail(
+            "Intel HEX vs objcopy",
+            "objcopy not found (apt-get install binutils)",
+        );
     };
     assert!(out.status.success());
     let dir = tempfile::tempdir().unwrap();
@@ -17,15 +20,31 @@ fn intel_hex_equals_the_blob_byte_for_byte_through_objcopy() {
         let hex = to_hex(addr, &blob);
         // Every record's checksum makes its bytes sum to 0 mod 256 (the format's definition).
         for line in hex.lines() {
-            let bytes: Vec<u8> = (1..line.len()).step_by(2).map(|i| u8::from_str_radix(&line[i..i + 2], 16).unwrap()).collect();
-            assert_eq!(bytes.iter().fold(0u8, |s, b| s.wrapping_add(*b)), 0, "{line}");
+            let bytes: Vec<u8> = (1..line.len())
+                .step_by(2)
+                .map(|i| u8::from_str_radix(&line[i..i + 2], 16).unwrap())
+                .collect();
+            assert_eq!(
+                bytes.iter().fold(0u8, |s, b| s.wrapping_add(*b)),
+                0,
+                "{line}"
+            );
         }
         assert_eq!(from_hex(&hex).unwrap(), (addr, blob.clone()));
         let hp = dir.path().join("m.hex");
         let bp = dir.path().join("m.bin");
         std::fs::write(&hp, &hex).unwrap();
-        let st = Command::new("objcopy").args(["-I", "ihex", "-O", "binary"]).arg(&hp).arg(&bp).status().unwrap();
+        let st = Command::new("objcopy")
+            .args(["-I", "ihex", "-O", "binary"])
+            .arg(&hp)
+            .arg(&bp)
+            .status()
+            .unwrap();
         assert!(st.success(), "objcopy refused the HEX at {addr:#x}");
-        assert_eq!(std::fs::read(&bp).unwrap(), blob, "objcopy image differs at {addr:#x}");
+        assert_eq!(
+            std::fs::read(&bp).unwrap(),
+            blob,
+            "objcopy image differs at {addr:#x}"
+        );
     }
 }

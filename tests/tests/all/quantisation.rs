@@ -1,11 +1,11 @@
 //! The fixed-point side against outside references: exact rational arithmetic
 //! (num-rational), brute force over readings for the rounding bound, and the gate.
 
-use host_trainer::audit::{audit, error_bound, sweep, AuditConfig};
+use host_trainer::audit::{AuditConfig, audit, error_bound, sweep};
 use host_trainer::dataset::Dataset;
 use host_trainer::eval::TrainerKind;
-use host_trainer::quantise::{quantise, QuantConfig, Quantised};
-use host_trainer::workflow::{train_model, TrainRequest};
+use host_trainer::quantise::{QuantConfig, Quantised, quantise};
+use host_trainer::workflow::{TrainRequest, train_model};
 use num_rational::Ratio;
 use num_traits::ToPrimitive;
 use proptest::prelude::*;
@@ -60,7 +60,14 @@ proptest! {
 /// A float model on `pts` trained by max-margin, for the quantiser tests.
 fn trained(pts: &[Vec<f64>], labels: &[i8]) -> (host_trainer::float_model::FloatModel, Dataset) {
     let ds = Dataset::from_scaled(pts, labels);
-    let req = TrainRequest { trainer: TrainerKind::MaxMargin, epochs: 100, seed: 1, c: 10.0, max_false_go: None, folds: 0 };
+    let req = TrainRequest {
+        trainer: TrainerKind::MaxMargin,
+        epochs: 100,
+        seed: 1,
+        c: 10.0,
+        max_false_go: None,
+        folds: 0,
+    };
     (train_model(&ds, None, None, &req).model, ds)
 }
 
@@ -72,23 +79,49 @@ fn rounding_error_never_exceeds_the_bound() {
     let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
     for trial in 0..30 {
         let d = rng.gen_range(1..4);
-        let pts: Vec<Vec<f64>> = (0..40).map(|_| (0..d).map(|_| rng.gen_range(-1.0..1.0)).collect()).collect();
+        let pts: Vec<Vec<f64>> = (0..40)
+            .map(|_| (0..d).map(|_| rng.gen_range(-1.0..1.0)).collect())
+            .collect();
         let w: Vec<f64> = (0..d).map(|_| rng.gen_range(-1.0..1.0)).collect();
-        let labels: Vec<i8> = pts.iter().map(|p| if p.iter().zip(&w).map(|(a, b)| a * b).sum::<f64>() > 0.1 { 1 } else { -1 }).collect();
+        let labels: Vec<i8> = pts
+            .iter()
+            .map(|p| {
+                if p.iter().zip(&w).map(|(a, b)| a * b).sum::<f64>() > 0.1 {
+                    1
+                } else {
+                    -1
+                }
+            })
+            .collect();
         if labels.iter().all(|&l| l == labels[0]) {
             continue;
         }
         let (mut fm, _) = trained(&pts, &labels);
         // Coarse raw ranges so every reading can be enumerated.
         for c in fm.channels.iter_mut() {
-            *c = host_trainer::scaling::ChannelScale::new(&c.name, "", -1.0, 1.0, 1.0 / 150.0, 0.0).unwrap();
+            *c = host_trainer::scaling::ChannelScale::new(&c.name, "", -1.0, 1.0, 1.0 / 150.0, 0.0)
+                .unwrap();
         }
         for bits in [4u8, 8, 12] {
-            let q = quantise(&fm, None, QuantConfig { weight_bits: bits, input_bits: 8, optimise: false, ..Default::default() }).unwrap();
+            let q = quantise(
+                &fm,
+                None,
+                QuantConfig {
+                    weight_bits: bits,
+                    input_bits: 8,
+                    optimise: false,
+                    ..Default::default()
+                },
+            )
+            .unwrap();
             let bound = error_bound(&q).total;
             let m = q.model.model();
             let mut raw = vec![0i32; d];
-            let total: usize = m.channels.iter().map(|c| (c.raw_max - c.raw_min + 1) as usize).product();
+            let total: usize = m
+                .channels
+                .iter()
+                .map(|c| (c.raw_max - c.raw_min + 1) as usize)
+                .product();
             let mut worst: f64 = 0.0;
             for k in 0..total.min(200_000) {
                 let mut r = k;
@@ -98,10 +131,20 @@ fn rounding_error_never_exceeds_the_bound() {
                     r /= span;
                 }
                 let acc = q.model.classify(&raw).unwrap().score as f64;
-                let exact = fm.channels.iter().zip(&fm.weights).zip(&raw).map(|((s, w), &r)| w * s.scaled(r)).sum::<f64>() + fm.bias;
+                let exact = fm
+                    .channels
+                    .iter()
+                    .zip(&fm.weights)
+                    .zip(&raw)
+                    .map(|((s, w), &r)| w * s.scaled(r))
+                    .sum::<f64>()
+                    + fm.bias;
                 worst = worst.max((acc - exact * q.scale).abs());
             }
-            assert!(worst <= bound * (1.0 + 1e-12) + 1e-9, "trial {trial}, {bits} bits: error {worst} > bound {bound}");
+            assert!(
+                worst <= bound * (1.0 + 1e-12) + 1e-9,
+                "trial {trial}, {bits} bits: error {worst} > bound {bound}"
+            );
         }
     }
 }
@@ -111,7 +154,15 @@ fn bound_is_attained_on_a_constructed_worst_case() {
     // One channel with x = round((r + 1)/2 − ½) exact at ties: r = 9 gives X = 4.5 → x = 5 (δx = +½);
     // ideal weight 2.6 → 3 (δw = +0.4), ideal bias 0.6 → 1 (δb = +0.4). All three errors add:
     // acc = 3·5 + 1 = 16, exact = 2.6·4.5 + 0.6 = 12.3, error 3.7 = ½·3 + 0.4·4.5 + 0.4.
-    let spec = ChannelSpec { raw_min: -9, raw_max: 9, offset: 0, multiplier: 1, shift: 1, weight: 3, ..Default::default() };
+    let spec = ChannelSpec {
+        raw_min: -9,
+        raw_max: 9,
+        offset: 0,
+        multiplier: 1,
+        shift: 1,
+        weight: 3,
+        ..Default::default()
+    };
     let mut m = FixedModel::example_two_channel();
     m.channels.clear();
     m.channels.push(spec).unwrap();
@@ -135,7 +186,11 @@ fn bound_is_attained_on_a_constructed_worst_case() {
     let acc = model.classify(&[9]).unwrap().score as f64;
     let err = acc - (2.6 * 4.5 + 0.6);
     assert!((b.total - 3.7).abs() < 1e-12, "bound {}", b.total);
-    assert!((err - b.total).abs() < 1e-12, "error {err} vs bound {}", b.total);
+    assert!(
+        (err - b.total).abs() < 1e-12,
+        "error {err} vs bound {}",
+        b.total
+    );
     assert!(b.textbook >= b.total);
 }
 
@@ -152,14 +207,32 @@ fn tiny_margin_fails_at_8_bits_passes_at_16_and_the_sweep_recommends_16() {
     let data = |m: f64| -> (Vec<Vec<f64>>, Vec<i8>) {
         let mut pts = Vec::new();
         let mut labels = Vec::new();
-        for (s, d) in [(-0.3, m), (0.3, m), (-0.25, -m), (0.35, -m), (0.1, 0.4), (-0.2, 0.6), (0.0, -0.5), (0.2, -0.7)] {
+        for (s, d) in [
+            (-0.3, m),
+            (0.3, m),
+            (-0.25, -m),
+            (0.35, -m),
+            (0.1, 0.4),
+            (-0.2, 0.6),
+            (0.0, -0.5),
+            (0.2, -0.7),
+        ] {
             pts.push(vec![s * t[0] + d * n[0], s * t[1] + d * n[1]]);
             labels.push(if d > 0.0 { 1 } else { -1 });
         }
         (pts, labels)
     };
     let bound_at = |fm: &host_trainer::float_model::FloatModel, bits| {
-        let q = quantise(fm, None, QuantConfig { weight_bits: bits, optimise: false, ..Default::default() }).unwrap();
+        let q = quantise(
+            fm,
+            None,
+            QuantConfig {
+                weight_bits: bits,
+                optimise: false,
+                ..Default::default()
+            },
+        )
+        .unwrap();
         error_bound(&q).total / q.scale
     };
     let (p, l) = data(0.01);
@@ -170,10 +243,23 @@ fn tiny_margin_fails_at_8_bits_passes_at_16_and_the_sweep_recommends_16() {
     let m = (b12 * b16).sqrt();
     let (p, l) = data(m);
     let (fm, ds) = trained(&p, &l);
-    assert!((fm.weights[1] / fm.weights[0] - c).abs() < 1e-6 && fm.bias.abs() < 1e-6, "model {:?} {}", fm.weights, fm.bias);
+    assert!(
+        (fm.weights[1] / fm.weights[0] - c).abs() < 1e-6 && fm.bias.abs() < 1e-6,
+        "model {:?} {}",
+        fm.weights,
+        fm.bias
+    );
     let cfg = AuditConfig::default();
     let at = |bits| {
-        let q = quantise(&fm, Some(&ds), QuantConfig { weight_bits: bits, ..Default::default() }).unwrap();
+        let q = quantise(
+            &fm,
+            Some(&ds),
+            QuantConfig {
+                weight_bits: bits,
+                ..Default::default()
+            },
+        )
+        .unwrap();
         audit(&q, &fm, &ds, None, &[], cfg)
     };
     assert!(!at(8).passed, "8-bit weights must fail");
@@ -192,7 +278,10 @@ fn audit_mark_survives_packing() {
     let q = quantise(&fm, Some(&ds), QuantConfig::default()).unwrap();
     let marked = host_trainer::audit::mark(&q.model, AuditMark::Overridden);
     let bytes = host_trainer::pack::blob_bytes(&marked);
-    assert_eq!(shared_model::blob::decode(&bytes).unwrap().model().audit, AuditMark::Overridden);
+    assert_eq!(
+        shared_model::blob::decode(&bytes).unwrap().model().audit,
+        AuditMark::Overridden
+    );
     let r = audit(&q, &fm, &ds, None, &[], AuditConfig::default());
     assert!(r.passed && r.guaranteed);
     assert_eq!(r.flips.len(), 0);

@@ -3,12 +3,14 @@
 //! reference optimiser, XOR, a constructed known margin, and Novikoff's theorem.
 
 use clarabel::algebra::CscMatrix;
-use clarabel::solver::{DefaultSettingsBuilder, DefaultSolver, IPSolver, NonnegativeConeT, SolverStatus};
+use clarabel::solver::{
+    DefaultSettingsBuilder, DefaultSolver, IPSolver, NonnegativeConeT, SolverStatus,
+};
 use host_trainer::dataset::Dataset;
-use host_trainer::maxmargin::{homogeneous_margin, max_margin, SvmConfig};
+use host_trainer::maxmargin::{SvmConfig, homogeneous_margin, max_margin};
 use host_trainer::scaling::ChannelScale;
 use host_trainer::separability::check;
-use host_trainer::trainer::{perceptron, radius, PerceptronConfig, PerceptronKind};
+use host_trainer::trainer::{PerceptronConfig, PerceptronKind, perceptron, radius};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
@@ -62,7 +64,10 @@ fn iris_pair(a: usize, b: usize) -> Dataset {
     let iris = linfa_datasets::iris();
     let (records, targets) = (iris.records(), iris.targets());
     let names = ["sepal_length", "sepal_width", "petal_length", "petal_width"];
-    let scales: Vec<ChannelScale> = names.iter().map(|n| ChannelScale::new(n, "cm", 0.0, 10.0, 1e-8, 0.0).unwrap()).collect();
+    let scales: Vec<ChannelScale> = names
+        .iter()
+        .map(|n| ChannelScale::new(n, "cm", 0.0, 10.0, 1e-8, 0.0).unwrap())
+        .collect();
     let mut ds = Dataset::empty(std::path::Path::new("iris"), scales);
     for (i, (row, &t)) in records.outer_iter().zip(targets.iter()).enumerate() {
         if t != a && t != b {
@@ -98,7 +103,10 @@ fn iris_setosa_vs_versicolor_is_separable_and_margin_matches_clarabel() {
     let (pts, ys) = scaled_points(&ds);
     let reference = clarabel_margin(&pts, &ys, true).expect("Clarabel solves the hard-margin QP");
     let rel = (ours - reference).abs() / reference;
-    assert!(rel <= 1e-6, "γ* {ours} vs Clarabel {reference}: relative error {rel:e}");
+    assert!(
+        rel <= 1e-6,
+        "γ* {ours} vs Clarabel {reference}: relative error {rel:e}"
+    );
 }
 
 #[test]
@@ -108,8 +116,14 @@ fn iris_versicolor_vs_virginica_is_not_separable() {
     let r = check(&ds, &ds.all(), 200, 1);
     assert!(!r.separable);
     // The LP certificate: a basic solution names at most d + 2 units, from both classes.
-    assert!(!r.conflict.is_empty() && r.conflict.len() <= ds.dim() + 2, "{} units", r.conflict.len());
-    assert!(r.conflict.iter().any(|u| u.label == "GO") && r.conflict.iter().any(|u| u.label == "NO-GO"));
+    assert!(
+        !r.conflict.is_empty() && r.conflict.len() <= ds.dim() + 2,
+        "{} units",
+        r.conflict.len()
+    );
+    assert!(
+        r.conflict.iter().any(|u| u.label == "GO") && r.conflict.iter().any(|u| u.label == "NO-GO")
+    );
     // Clarabel agrees: the hard-margin QP is infeasible.
     let (pts, ys) = scaled_points(&ds);
     assert_eq!(clarabel_margin(&pts, &ys, true), None);
@@ -118,7 +132,15 @@ fn iris_versicolor_vs_virginica_is_not_separable() {
 #[test]
 fn xor_is_not_separable() {
     // XOR, the classic set no hyperplane separates.
-    let ds = Dataset::from_scaled(&[vec![0.0, 0.0], vec![1.0, 1.0], vec![0.0, 1.0], vec![1.0, 0.0]], &[-1, -1, 1, 1]);
+    let ds = Dataset::from_scaled(
+        &[
+            vec![0.0, 0.0],
+            vec![1.0, 1.0],
+            vec![0.0, 1.0],
+            vec![1.0, 0.0],
+        ],
+        &[-1, -1, 1, 1],
+    );
     let r = check(&ds, &ds.all(), 100, 1);
     assert!(!r.separable && !r.perceptron_converged);
     assert_eq!(r.conflict.len(), 4);
@@ -136,27 +158,45 @@ fn constructed_margin_is_recovered() {
     let mut labels = Vec::new();
     let mut rng = ChaCha8Rng::seed_from_u64(5);
     for (s, dist) in [(-0.3, gamma), (0.3, gamma), (-0.25, -gamma), (0.35, -gamma)] {
-        pts.push(vec![s * t[0] + (dist - 0.1) * n[0], s * t[1] + (dist - 0.1) * n[1]]);
+        pts.push(vec![
+            s * t[0] + (dist - 0.1) * n[0],
+            s * t[1] + (dist - 0.1) * n[1],
+        ]);
         labels.push(if dist > 0.0 { 1 } else { -1 });
     }
     while pts.len() < 60 {
         let (s, dist): (f64, f64) = (rng.gen_range(-0.5..0.5), rng.gen_range(0.1..0.4));
         let sign = if pts.len() % 2 == 0 { 1.0 } else { -1.0 };
-        pts.push(vec![s * t[0] + (sign * dist - 0.1) * n[0], s * t[1] + (sign * dist - 0.1) * n[1]]);
+        pts.push(vec![
+            s * t[0] + (sign * dist - 0.1) * n[0],
+            s * t[1] + (sign * dist - 0.1) * n[1],
+        ]);
         labels.push(sign as i8);
     }
     let ds = Dataset::from_scaled(&pts, &labels);
     let r = check(&ds, &ds.all(), 10_000, 1);
     assert!(r.separable);
-    assert!((r.margin.unwrap() - gamma).abs() < 1e-7, "γ* = {} vs constructed {gamma}", r.margin.unwrap());
+    assert!(
+        (r.margin.unwrap() - gamma).abs() < 1e-7,
+        "γ* = {} vs constructed {gamma}",
+        r.margin.unwrap()
+    );
     // The four constructed units lie exactly on the margin; the support set names units of both classes.
     let sep = r.separator.as_ref().unwrap();
     for (i, x) in pts.iter().enumerate().take(4) {
         let f = f64::from(labels[i]) * sep.score(x);
-        assert!((f - 1.0).abs() < 1e-6, "unit {i} should sit on the margin: y·f = {f}");
+        assert!(
+            (f - 1.0).abs() < 1e-6,
+            "unit {i} should sit on the margin: y·f = {f}"
+        );
     }
-    assert!(r.support.iter().all(|u| u.index < 4), "only constructed units support the margin");
-    assert!(r.support.iter().any(|u| u.label == "GO") && r.support.iter().any(|u| u.label == "NO-GO"));
+    assert!(
+        r.support.iter().all(|u| u.index < 4),
+        "only constructed units support the margin"
+    );
+    assert!(
+        r.support.iter().any(|u| u.label == "GO") && r.support.iter().any(|u| u.label == "NO-GO")
+    );
 }
 
 #[test]
@@ -193,14 +233,30 @@ fn perceptron_updates_never_exceed_the_novikoff_bound() {
             })
             .collect();
         let ys: Vec<f64> = labels.iter().map(|&l| f64::from(l)).collect();
-        let gamma = clarabel_margin(&z, &ys, false).expect("separable through the origin after augmentation");
-        let run = perceptron(&ds, &idx, PerceptronKind::Classic, PerceptronConfig { epochs: 100_000, seed: trial });
+        let gamma = clarabel_margin(&z, &ys, false)
+            .expect("separable through the origin after augmentation");
+        let run = perceptron(
+            &ds,
+            &idx,
+            PerceptronKind::Classic,
+            PerceptronConfig {
+                epochs: 100_000,
+                seed: trial,
+            },
+        );
         assert!(run.converged, "trial {trial}");
         let bound = 1.0 / (gamma * gamma);
-        assert!(run.updates as f64 <= bound, "trial {trial}: {} updates > bound {bound}", run.updates);
+        assert!(
+            run.updates as f64 <= bound,
+            "trial {trial}: {} updates > bound {bound}",
+            run.updates
+        );
         // Our own solver for the same γ agrees with the reference.
         let (ours, _) = homogeneous_margin(&ds, &idx, r).unwrap();
-        assert!((ours - gamma).abs() / gamma < 1e-6, "trial {trial}: γ {ours} vs {gamma}");
+        assert!(
+            (ours - gamma).abs() / gamma < 1e-6,
+            "trial {trial}: γ {ours} vs {gamma}"
+        );
         checked += 1;
     }
     assert_eq!(checked, 40);
