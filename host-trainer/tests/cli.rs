@@ -1,0 +1,452 @@
+//! The `linegate` command line: malformed input gives its specific message and exit code
+//! and leaves no output; gates exit 1; packing and inspecting behave as documented.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn linegate(args: &[&str], dir: &Path) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_linegate"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("run linegate")
+}
+
+fn write(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
+    let p = dir.join(name);
+    std::fs::write(&p, bytes).unwrap();
+    p
+}
+
+const GOOD: &str =
+    "unit_id,a,b,label\nU1,1.0,2.0,GO\nU2,2.0,1.5,GO\nU3,-1.0,-2.0,NO-GO\nU4,-2.0,-1.0,NO-GO\n";
+
+#[test]
+fn malformed_logs_give_specific_errors_exit_2_and_no_output() {
+    let long_line = format!("U1,{},2,GO\n", "9".repeat(10_000_000));
+    let cases: Vec<(&str, Vec<u8>, &str)> = vec![
+        (
+            "not a number",
+            b"a,b,label\n1,2,GO\n1,x7,NO-GO\n".to_vec(),
+            "line 3, column 'b': 'x7' is not a number",
+        ),
+        (
+            "NaN",
+            b"a,b,label\n1,2,GO\nNaN,1,NO-GO\n".to_vec(),
+            "line 3, column 'a': 'NaN' is not a finite reading",
+        ),
+        (
+            "inf",
+            b"a,b,label\n1,2,GO\n3,-inf,NO-GO\n".to_vec(),
+            "line 3, column 'b': '-inf' is not a finite reading",
+        ),
+        (
+            "1e308",
+            b"a,b,label\n1,2,GO\n1e308,1,NO-GO\n".to_vec(),
+            "line 3, column 'a': '1e308' is not a finite reading",
+        ),
+        (
+            "empty cell",
+            b"a,b,label\n1,,GO\n2,1,NO-GO\n".to_vec(),
+            "line 2, column 'b': empty cell",
+        ),
+        (
+            "unknown label",
+            b"a,b,label\n1,2,GO\n2,1,maybe\n".to_vec(),
+            "line 3, column 'label': unknown label 'maybe'",
+        ),
+        (
+            "ragged row",
+            b"a,b,label\n1,2,GO\n2,NO-GO\n".to_vec(),
+            "line 3: expected 3 fields, found 2 (ragged row)",
+        ),
+        ("empty file", b"".to_vec(), "the file is empty"),
+        ("header only", b"a,b,label\n".to_vec(), "no data rows"),
+        (
+            "one class",
+            b"a,b,label\n1,2,GO\n2,1,GO\n".to_vec(),
+            "every one of the 2 units is GO",
+        ),
+        (
+            "zero spread",
+            b"a,b,label\n1,5,GO\n2,5,NO-GO\n".to_vec(),
+            "channel 'b' has zero spread",
+        ),
+        (
+            "duplicate header",
+            b"a,a,label\n1,2,GO\n2,1,NO-GO\n".to_vec(),
+            "column name 'a' appears twice",
+        ),
+        ("no label column", b"a,b\n1,2\n".to_vec(), "no label column"),
+        (
+            "non-UTF-8 cell",
+            b"a,b,label\n1,2,GO\n\xff\xfe,1,NO-GO\n".to_vec(),
+            "line 3, column 'a'",
+        ),
+        (
+            "10-million-character line",
+            format!("unit_id,a,b,label\nU0,1,2,GO\n{long_line}").into_bytes(),
+            "line 3: longer than 1048576 bytes",
+        ),
+    ];
+    let dir = tempfile::tempdir().unwrap();
+    for (name, bytes, want) in cases {
+        let log = write(dir.path(), "log.csv", &bytes);
+        let out = dir.path().join("model.json");
+        let o = linegate(
+            &[
+                "train",
+                log.to_str().unwrap(),
+                "-o",
+                out.to_str().unwrap(),
+                "--folds",
+                "0",
+            ],
+            dir.path(),
+        );
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{name}: exit code; stderr: {err}");
+        assert!(err.contains(want), "{name}: expected '{want}' in: {err}");
+        assert!(
+            err.contains("log.csv"),
+            "{name}: the message names the file: {err}"
+        );
+        assert!(!out.exists(), "{name}: no output may be written");
+    }
+}
+
+#[test]
+fn quoted_fields_crlf_and_bom_are_read() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = "\u{feff}\"unit_id\",\"a\",\"b\",\"label\"\r\n\"U,1\",\"1.0\",2.0,go\r\nU2,2.0,1.5,Pass\r\nU3,-1.0,-2.0,FAIL\r\nU4,-2.0,-1.0,nogo\r\n";
+    let log = write(dir.path(), "log.csv", text.as_bytes());
+    let o = linegate(&["check", log.to_str().unwrap()], dir.path());
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(String::from_utf8_lossy(&o.stdout).contains("4 units, 2 channels: LINEARLY SEPARABLE"));
+    let tsv = write(dir.path(), "log.tsv", GOOD.replace(',', "\t").as_bytes());
+    assert_eq!(
+        linegate(&["check", tsv.to_str().unwrap()], dir.path())
+            .status
+            .code(),
+        Some(0)
+    );
+}
+
+#[test]
+fn skip_bad_rows_counts_what_it_skipped() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = format!("{GOOD}U5,x,1,GO\nU6,1,,NO-GO\nU7,1,2,maybe\n");
+    let log = write(dir.path(), "log.csv", text.as_bytes());
+    let out = dir.path().join("m.json");
+    let o = linegate(
+        &[
+            "train",
+            log.to_str().unwrap(),
+            "--skip-bad-rows",
+            "--folds",
+            "0",
+            "-o",
+            out.to_str().unwrap(),
+            "--json",
+        ],
+        dir.path(),
+    );
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["model"]["summary"]["skipped"]["total"], 3);
+    assert_eq!(v["model"]["summary"]["units"], 4);
+}
+
+#[test]
+fn check_exits_1_on_xor_and_names_the_conflicting_units() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = write(
+        dir.path(),
+        "xor.csv",
+        b"unit,a,b,label\nP1,0,0,GO\nP2,1,1,GO\nN1,0,1,NO-GO\nN2,1,0,NO-GO\n",
+    );
+    let o = linegate(&["check", log.to_str().unwrap()], dir.path());
+    assert_eq!(o.status.code(), Some(1));
+    let out = String::from_utf8_lossy(&o.stdout);
+    for u in ["P1", "P2", "N1", "N2"] {
+        assert!(out.contains(u), "{u} missing from: {out}");
+    }
+}
+
+/// A log whose two classes sit 2e-4 of the range apart: 8-bit weights cannot keep that margin.
+fn tiny_margin_log(dir: &Path) -> PathBuf {
+    let mut s = String::from("a,b,label\n");
+    for (a, b, l) in [
+        (0.5001, 0.3, "GO"),
+        (0.9, 0.1, "GO"),
+        (0.7, -0.5, "GO"),
+        (0.4999, 0.31, "NO-GO"),
+        (0.1, 0.9, "NO-GO"),
+        (0.2, -0.3, "NO-GO"),
+    ] {
+        s.push_str(&format!("{a},{b},{l}\n"));
+    }
+    let sheet = "[[channel]]\nname='a'\nmin=-1\nmax=1\nlsb=1e-6\n[[channel]]\nname='b'\nmin=-1\nmax=1\nlsb=1e-6\n";
+    write(dir, "tiny.toml", sheet.as_bytes());
+    write(dir, "tiny.csv", s.as_bytes())
+}
+
+#[test]
+fn pack_refuses_a_failing_model_and_records_an_override() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = tiny_margin_log(dir.path());
+    let d = dir.path();
+    let o = linegate(
+        &[
+            "train",
+            log.to_str().unwrap(),
+            "--sheet",
+            "tiny.toml",
+            "--folds",
+            "0",
+            "-o",
+            "m.json",
+        ],
+        d,
+    );
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let o = linegate(
+        &[
+            "pack",
+            "--model",
+            "m.json",
+            "--train",
+            "tiny.csv",
+            "--weight-bits",
+            "8",
+            "-o",
+            "m.lgb",
+        ],
+        d,
+    );
+    assert_eq!(
+        o.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(String::from_utf8_lossy(&o.stderr).contains("audit failed, nothing written"));
+    assert!(!d.join("m.lgb").exists());
+    let o = linegate(
+        &[
+            "audit",
+            "--model",
+            "m.json",
+            "--train",
+            "tiny.csv",
+            "--weight-bits",
+            "8",
+            "-q",
+        ],
+        d,
+    );
+    assert_eq!(o.status.code(), Some(1));
+    let o = linegate(
+        &[
+            "pack",
+            "--model",
+            "m.json",
+            "--train",
+            "tiny.csv",
+            "--weight-bits",
+            "8",
+            "-o",
+            "m.lgb",
+            "--override-audit",
+        ],
+        d,
+    );
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let o = linegate(&["inspect", "m.lgb"], d);
+    assert!(String::from_utf8_lossy(&o.stdout).contains("audit: Overridden"));
+    // 32-bit weights keep the margin: the audit passes and the blob says so.
+    let o = linegate(
+        &[
+            "pack",
+            "--model",
+            "m.json",
+            "--train",
+            "tiny.csv",
+            "--weight-bits",
+            "32",
+            "-o",
+            "ok.lgb",
+            "--hex",
+            "0x3F000",
+        ],
+        d,
+    );
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let o = linegate(&["inspect", "ok.hex", "--model", "m.json"], d);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(String::from_utf8_lossy(&o.stdout).contains("audit: Passed"));
+    // Existing files are not overwritten without --force.
+    let o = linegate(
+        &[
+            "pack",
+            "--model",
+            "m.json",
+            "--train",
+            "tiny.csv",
+            "--weight-bits",
+            "32",
+            "-o",
+            "ok.lgb",
+        ],
+        d,
+    );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("already exists; pass --force"));
+}
+
+#[test]
+fn inspect_catches_a_flipped_bit_and_a_mismatched_model() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let o = linegate(&["-q", "demo", "--out", "demo"], d);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let blob = std::fs::read(d.join("demo/model.lgb")).unwrap();
+    let o = linegate(
+        &[
+            "inspect",
+            "demo/model.lgb",
+            "--model",
+            "demo/model.json",
+            "--report",
+            "demo/audit.json",
+        ],
+        d,
+    );
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let stdout = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        stdout.contains("status: ok") && stdout.contains("matches audit report"),
+        "{stdout}"
+    );
+    for bit in [0usize, 37, 200, blob.len() * 8 - 1] {
+        let mut f = blob.clone();
+        f[bit / 8] ^= 1 << (bit % 8);
+        write(d, "flipped.lgb", &f);
+        let o = linegate(&["inspect", "flipped.lgb"], d);
+        assert_eq!(o.status.code(), Some(1), "bit {bit}");
+        assert!(!String::from_utf8_lossy(&o.stderr).is_empty());
+    }
+    let mut f = blob.clone();
+    f[30] ^= 0x08;
+    write(d, "flipped.lgb", &f);
+    let o = linegate(&["inspect", "flipped.lgb"], d);
+    assert!(
+        String::from_utf8_lossy(&o.stderr).contains("CRC mismatch"),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    // A blob from other training inputs does not match the model.
+    let o = linegate(
+        &[
+            "train",
+            "demo/drift-synthetic.csv",
+            "--sheet",
+            "demo/channels.toml",
+            "--folds",
+            "0",
+            "-o",
+            "other.json",
+        ],
+        d,
+    );
+    assert_eq!(o.status.code(), Some(0));
+    let o = linegate(&["inspect", "demo/model.lgb", "--model", "other.json"], d);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("does not match"));
+}
+
+#[test]
+fn replay_prints_the_demo_lines() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    assert_eq!(
+        linegate(&["-q", "demo", "--out", "demo"], d).status.code(),
+        Some(0)
+    );
+    let o = linegate(
+        &[
+            "replay",
+            "--blob",
+            "demo/model.lgb",
+            "--model",
+            "demo/model.json",
+            "demo/holdout-synthetic.csv",
+        ],
+        d,
+    );
+    assert_eq!(o.status.code(), Some(0));
+    assert_eq!(
+        String::from_utf8_lossy(&o.stdout),
+        std::fs::read_to_string(d.join("demo/replay-holdout.txt")).unwrap()
+    );
+}
+
+#[test]
+fn every_subcommand_help_has_an_example() {
+    let dir = tempfile::tempdir().unwrap();
+    for cmd in [
+        "check", "train", "audit", "pack", "inspect", "replay", "generate", "demo",
+    ] {
+        let o = linegate(&[cmd, "--help"], dir.path());
+        assert_eq!(o.status.code(), Some(0));
+        assert!(
+            String::from_utf8_lossy(&o.stdout).contains("Example"),
+            "{cmd} --help has no example"
+        );
+    }
+    assert_eq!(
+        linegate(&["train"], dir.path()).status.code(),
+        Some(2),
+        "usage error exits 2"
+    );
+}
