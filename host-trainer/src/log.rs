@@ -346,9 +346,9 @@ fn scan(
             }
             let lf = trim(rec.get(cols.label).unwrap_or_default());
             let token = String::from_utf8_lossy(lf).to_lowercase();
-            let label = if opts.go_labels.iter().any(|t| *t == token) {
+            let label = if opts.go_labels.contains(&token) {
                 1
-            } else if opts.nogo_labels.iter().any(|t| *t == token) {
+            } else if opts.nogo_labels.contains(&token) {
                 -1
             } else {
                 return Err(InputError::UnknownLabel {
@@ -511,7 +511,7 @@ pub fn read_log(
     }
     ds.sha256 = sha;
     ds.skipped = skipped;
-    if ds.len() == 0 {
+    if ds.is_empty() {
         return Err(no_rows(path, &ds.skipped));
     }
     let go = ds.labels.iter().filter(|&&l| l > 0).count();

@@ -3,6 +3,8 @@
 //! failed (not separable, audit failed, blob corrupt or not matching), 2 usage,
 //! input or output error.
 
+#![allow(clippy::result_large_err)]
+
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -361,17 +363,17 @@ fn main() -> ExitCode {
     }
 }
 
-fn release_inputs(
-    r: &ReleaseArgs,
-    quiet: bool,
-) -> Result<(
-    FloatModel,
-    host_trainer::dataset::Dataset,
-    Option<host_trainer::dataset::Dataset>,
-    QuantConfig,
-    Vec<Option<f64>>,
-    AuditConfig,
-)> {
+/// What `audit` and `pack` work from.
+struct Release {
+    fm: FloatModel,
+    train: host_trainer::dataset::Dataset,
+    holdout: Option<host_trainer::dataset::Dataset>,
+    qc: QuantConfig,
+    noise: Vec<Option<f64>>,
+    ac: AuditConfig,
+}
+
+fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
     let fm = FloatModel::read(&r.model)?;
     let opts = r.log_args.options(quiet);
     let train = workflow::load_for_model(&r.train, &opts, &fm)?;
@@ -409,7 +411,14 @@ fn release_inputs(
         max_flips: r.max_flips,
         require_guarantee: !r.no_require_guarantee,
     };
-    Ok((fm, train, holdout, qc, noise, ac))
+    Ok(Release {
+        fm,
+        train,
+        holdout,
+        qc,
+        noise,
+        ac,
+    })
 }
 
 fn to_json<T: serde::Serialize>(v: &T) -> String {
@@ -494,7 +503,14 @@ fn run(cli: &Cli) -> Result<()> {
             force,
             json,
         } => {
-            let (fm, train, holdout, qc, noise, ac) = release_inputs(release, quiet)?;
+            let Release {
+                fm,
+                train,
+                holdout,
+                qc,
+                noise,
+                ac,
+            } = release_inputs(release, quiet)?;
             let (_, r) = audit::release(&fm, &train, holdout.as_ref(), qc, &noise, ac)?;
             let sw = if *sweep {
                 Some(audit::sweep(&fm, &train, holdout.as_ref(), qc, ac)?)
@@ -531,7 +547,14 @@ fn run(cli: &Cli) -> Result<()> {
             override_audit,
             force,
         } => {
-            let (fm, train, holdout, qc, noise, ac) = release_inputs(release, quiet)?;
+            let Release {
+                fm,
+                train,
+                holdout,
+                qc,
+                noise,
+                ac,
+            } = release_inputs(release, quiet)?;
             let (q, r) = audit::release(&fm, &train, holdout.as_ref(), qc, &noise, ac)?;
             let mark = match (r.passed, override_audit) {
                 (true, _) => shared_model::AuditMark::Passed,

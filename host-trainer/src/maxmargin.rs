@@ -178,6 +178,8 @@ pub fn max_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
 }
 
 /// SMO on the working set, warm-started from its α. Returns (iterations, converged).
+// Index loops walk the parallel arrays α, y, G and the rows together.
+#[allow(clippy::needless_range_loop)]
 fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64) -> (u64, bool) {
     let n = work.y.len();
     let c = cfg.c;
@@ -568,6 +570,7 @@ fn wolfe<Id: Copy + PartialEq>(
 
 /// Weights α (Σα = 1) of the minimum-norm point of the affine hull of `pts`;
 /// `None` if the points are affinely dependent to working precision.
+#[allow(clippy::needless_range_loop)]
 fn affine_min_norm(pts: &[Vec<f64>]) -> Option<Vec<f64>> {
     // Bordered system [G 1; 1ᵀ 0][α; μ] = [0; 1], G the Gram matrix.
     let k = pts.len();

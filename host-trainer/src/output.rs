@@ -28,10 +28,13 @@ impl OutputSet {
     /// # Errors
     /// [`OutputError::Exists`] or the first I/O failure.
     pub fn commit(self, force: bool) -> Result<Vec<PathBuf>, OutputError> {
-        if !force {
-            if let Some((p, _)) = self.files.iter().find(|(p, _)| p.exists()) {
-                return Err(OutputError::Exists(p.clone()));
-            }
+        if let Some((p, _)) = self
+            .files
+            .iter()
+            .find(|(p, _)| p.exists())
+            .filter(|_| !force)
+        {
+            return Err(OutputError::Exists(p.clone()));
         }
         let mut written = Vec::new();
         for (path, bytes) in self.files {

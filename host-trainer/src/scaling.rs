@@ -223,13 +223,11 @@ impl ChannelSheet {
                 return Err(format!("channel '{}' is declared twice", c.name));
             }
             let mut s = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)?;
-            if let Some(n) = c.noise {
-                if !(n.is_finite() && n >= 0.0) {
-                    return Err(format!(
-                        "channel '{}': noise must be a non-negative number",
-                        c.name
-                    ));
-                }
+            if c.noise.is_some_and(|n| !(n.is_finite() && n >= 0.0)) {
+                return Err(format!(
+                    "channel '{}': noise must be a non-negative number",
+                    c.name
+                ));
             }
             s.noise = c.noise;
             channels.push(s);

@@ -36,13 +36,14 @@ fn main() -> ! {
         hprintln!("FAULT blob: {}", e);
         report_lines();
         debug::exit(Err(()));
-        loop {}
+        loop {
+            cortex_m::asm::wfi();
+        }
     }
-    let count = if vectors::WIDTH == 0 {
-        0
-    } else {
-        vectors::VECTORS.len() / vectors::WIDTH
-    };
+    let count = vectors::VECTORS
+        .len()
+        .checked_div(vectors::WIDTH)
+        .unwrap_or(0);
     let mut deepest = 0usize;
     for i in 0..count {
         let top = cortex_m::register::msp::read() as usize;
@@ -57,10 +58,10 @@ fn main() -> ! {
             let _ = core::hint::black_box(classify_once(c, v));
             // And the dot-product stage alone, on inputs already scaled.
             let mut x = [0i32; shared_model::MAX_CHANNELS];
-            if let Some(x) = x.get_mut(..v.len()) {
-                if c.model().scale(v, x).is_ok() {
-                    let _ = core::hint::black_box(score_once(c, x));
-                }
+            if let Some(x) = x.get_mut(..v.len())
+                && c.model().scale(v, x).is_ok()
+            {
+                let _ = core::hint::black_box(score_once(c, x));
             }
         }
         match step {
@@ -78,7 +79,9 @@ fn main() -> ! {
     hprintln!("# stack bytes used by one step: {}", deepest);
     report_lines();
     debug::exit(Ok(()));
-    loop {}
+    loop {
+        cortex_m::asm::wfi();
+    }
 }
 
 /// One classification by the shared kernel (not inlined, so its instructions can be counted).
