@@ -68,7 +68,7 @@ impl fmt::Display for ModelError {
             }
             Self::Conversion { channel } => write!(
                 f,
-                "channel {channel}: conversion multiplier must be >= 1 and shift <= 62"
+                "channel {channel}: conversion needs multiplier >= 1, shift <= 62, offset inside the valid range and a range narrower than 2^31"
             ),
             Self::ConversionOutOfRange { channel } => {
                 write!(
