@@ -5,6 +5,27 @@
 
 #![allow(clippy::result_large_err)]
 
+/// `println!` that ends the process quietly when the reader has gone away (e.g. `| head`),
+/// with the exit status a shell gives a process killed by SIGPIPE.
+macro_rules! say {
+    ($($t:tt)*) => {{
+        use std::io::Write as _;
+        if writeln!(std::io::stdout().lock(), $($t)*).is_err() {
+            std::process::exit(141);
+        }
+    }};
+}
+
+/// `print!` with the same handling as [`say!`].
+macro_rules! say_raw {
+    ($($t:tt)*) => {{
+        use std::io::Write as _;
+        if write!(std::io::stdout().lock(), $($t)*).is_err() {
+            std::process::exit(141);
+        }
+    }};
+}
+
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -439,7 +460,7 @@ fn run(cli: &Cli) -> Result<()> {
             let (ds, _) = workflow::load(log, &log_args.options(quiet), sheet.as_deref())?;
             let r = host_trainer::separability::check(&ds, &ds.all(), *epochs, *seed);
             if *json {
-                print!("{}", to_json(&r));
+                say_raw!("{}", to_json(&r));
             } else if !quiet {
                 print_check(&r, &ds);
             }
@@ -491,7 +512,7 @@ fn run(cli: &Cli) -> Result<()> {
             set.add(output, out.model.to_json());
             set.commit(*force)?;
             if *json {
-                print!("{}", to_json(&out));
+                say_raw!("{}", to_json(&out));
             } else if !quiet {
                 print_train(&out, output);
             }
@@ -526,14 +547,14 @@ fn run(cli: &Cli) -> Result<()> {
                 set.commit(*force)?;
             }
             if *json {
-                print!(
+                say_raw!(
                     "{}",
                     to_json(
                         &serde_json::json!({ "audit": r, "sweep": sw.as_ref().map(|s| &s.0), "recommended": sw.as_ref().and_then(|s| s.1) })
                     )
                 );
             } else if !quiet {
-                print!("{md}");
+                say_raw!("{md}");
             }
             if !r.passed {
                 return Err(CheckFailed(format!("audit failed: {}", r.reasons.join("; "))).into());
@@ -575,7 +596,7 @@ fn run(cli: &Cli) -> Result<()> {
             }
             let files = set.commit(*force)?;
             if !quiet {
-                println!(
+                say!(
                     "audit {}; model id {}; {} bytes",
                     if r.passed {
                         "passed"
@@ -586,7 +607,7 @@ fn run(cli: &Cli) -> Result<()> {
                     blob.len()
                 );
                 for f in files {
-                    println!("wrote {}", f.display());
+                    say!("wrote {}", f.display());
                 }
             }
         }
@@ -610,7 +631,7 @@ fn run(cli: &Cli) -> Result<()> {
             let m = shared_model::blob::decode(&bytes)
                 .map_err(|e| anyhow::anyhow!("{}: {e}", blob.display()))?;
             let ds = workflow::load_for_model(log, &log_args.options(quiet), &fm)?;
-            print!("{}", replay::replay(&m, &ds));
+            say_raw!("{}", replay::replay(&m, &ds));
             if let Some(v) = vectors {
                 let mut set = OutputSet::default();
                 set.add(v, replay::vectors(&ds));
@@ -638,7 +659,7 @@ fn run(cli: &Cli) -> Result<()> {
             );
             for f in set.commit(*force)? {
                 if !quiet {
-                    println!("wrote {}", f.display());
+                    say!("wrote {}", f.display());
                 }
             }
         }
@@ -675,26 +696,26 @@ fn inspect(
     };
     let (ins, decoded) = pack::inspect(&bytes);
     if json {
-        print!("{}", to_json(&ins));
+        say_raw!("{}", to_json(&ins));
     } else if !quiet {
-        println!(
+        say!(
             "{}: {} bytes, format version {}",
             path.display(),
             ins.bytes,
             ins.version.map_or("?".into(), |v| v.to_string())
         );
-        println!(
+        say!(
             "CRC-32: stored {}, computed {}",
             ins.crc_stored.as_deref().unwrap_or("–"),
             ins.crc_computed.as_deref().unwrap_or("–")
         );
-        println!("status: {}", ins.status);
+        say!("status: {}", ins.status);
         if let Some(id) = &ins.model_id {
-            println!(
+            say!(
                 "model id: {id}\naudit: {}",
                 ins.audit.as_deref().unwrap_or("?")
             );
-            println!(
+            say!(
                 "inputs Q{} ({}-bit); weights {}-bit, {} fractional bits; accumulator {} bits",
                 ins.input_bits.unwrap_or(0).saturating_sub(1),
                 ins.input_bits.unwrap_or(0),
@@ -702,20 +723,32 @@ fn inspect(
                 ins.weight_frac_bits.unwrap_or(0),
                 ins.acc_bits.unwrap_or(0)
             );
-            println!(
+            say!(
                 "bias {}; NO-GO at score <= {}; GO at score >= {}",
                 ins.bias.unwrap_or(0),
                 ins.nogo_max.unwrap_or(0),
                 ins.go_min.unwrap_or(0)
             );
-            println!(
+            say!(
                 "{:<18} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
-                "channel", "raw_min", "raw_max", "offset", "multiplier", "shift", "weight"
+                "channel",
+                "raw_min",
+                "raw_max",
+                "offset",
+                "multiplier",
+                "shift",
+                "weight"
             );
             for c in &ins.channels {
-                println!(
+                say!(
                     "{:<18} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
-                    c.name, c.raw_min, c.raw_max, c.offset, c.multiplier, c.shift, c.weight
+                    c.name,
+                    c.raw_min,
+                    c.raw_max,
+                    c.offset,
+                    c.multiplier,
+                    c.shift,
+                    c.weight
                 );
             }
         }
@@ -737,7 +770,7 @@ fn inspect(
             )));
         }
         if !quiet && !json {
-            println!("matches float model {}", p.display());
+            say!("matches float model {}", p.display());
         }
     }
     if let Some(p) = rep {
@@ -765,7 +798,7 @@ fn inspect(
             )));
         }
         if !quiet && !json {
-            println!("matches audit report {}", p.display());
+            say!("matches audit report {}", p.display());
         }
     }
     Ok(())
@@ -775,77 +808,95 @@ fn print_check(
     r: &host_trainer::separability::SeparabilityReport,
     ds: &host_trainer::dataset::Dataset,
 ) {
-    println!(
+    say!(
         "{} units, {} channels: {}",
         r.units,
         r.channels,
         if r.separable {
-            "LINEARLY SEPARABLE (decided by LP)"
+            "LINEARLY SEPARABLE"
         } else {
-            "NOT linearly separable (decided by LP)"
+            "NOT linearly separable"
         }
     );
+    say!("decided by: {}", r.decided_by);
     if let Some(g) = r.margin {
-        println!(
+        say!(
             "maximum margin γ* = {g:.6} (free bias; scaled units, every channel's valid range mapped to [-1, 1])"
         );
         for c in &r.margin_physical {
-            println!("  along {:<22} {:>12.4} {}", c.channel, c.margin, c.unit);
+            say!("  along {:<22} {:>12.4} {}", c.channel, c.margin, c.unit);
         }
-        println!("support units:");
+        say!("support units:");
         for u in &r.support {
-            println!(
+            say!(
                 "  {} ({}, line {}, α = {:.4})",
-                u.unit, u.label, u.line, u.weight
+                u.unit,
+                u.label,
+                u.line,
+                u.weight
             );
         }
     }
-    println!("R = max ‖(x, 1)‖ = {:.4}", r.radius);
+    say!("R = max ‖(x, 1)‖ = {:.4}", r.radius);
     match (r.novikoff_margin, r.novikoff_bound) {
-        (Some(g), Some(b)) => println!(
+        (Some(g), Some(b)) => say!(
             "Novikoff: γ = {g:.6} (constant-1 feature appended, scaled into the unit ball, unit-norm separator through the origin); bound 1/γ² = {b:.0} updates; perceptron made {} in {} epochs",
-            r.perceptron_updates, r.perceptron_epochs
+            r.perceptron_updates,
+            r.perceptron_epochs
         ),
-        _ => println!(
+        _ => say!(
             "perceptron: {} updates in {} epochs, converged: {}",
-            r.perceptron_updates, r.perceptron_epochs, r.perceptron_converged
+            r.perceptron_updates,
+            r.perceptron_epochs,
+            r.perceptron_converged
         ),
     }
     if !r.conflict.is_empty() {
-        println!("units no hyperplane can split (their convex hulls meet; weights λ):");
+        say!("units no hyperplane can split (their convex hulls meet; weights λ):");
         for u in &r.conflict {
-            println!(
+            say!(
                 "  {} ({}, line {}, λ = {:.4})",
-                u.unit, u.label, u.line, u.weight
+                u.unit,
+                u.label,
+                u.line,
+                u.weight
             );
         }
     }
     if ds.skipped.total > 0 {
-        println!(
+        say!(
             "skipped {} bad rows: {:?}",
-            ds.skipped.total, ds.skipped.by_reason
+            ds.skipped.total,
+            ds.skipped.by_reason
         );
     }
 }
 
 fn print_train(o: &workflow::TrainOutcome, path: &Path) {
     let m = &o.model;
-    println!(
+    say!(
         "trained {} on {} units ({} GO, {} NO-GO); separable: {}",
-        m.provenance.trainer, m.summary.units, m.summary.go, m.summary.nogo, m.summary.separable
+        m.provenance.trainer,
+        m.summary.units,
+        m.summary.go,
+        m.summary.nogo,
+        m.summary.separable
     );
-    println!(
+    say!(
         "geometric margin {:.6}; training errors {}; threshold {:.6}",
-        m.summary.geometric_margin, m.summary.training_errors, m.threshold
+        m.summary.geometric_margin,
+        m.summary.training_errors,
+        m.threshold
     );
     if let Some(s) = &m.summary.threshold_shift {
-        println!(
+        say!(
             "--max-false-go: {} NO-GO units pass, {} GO units lost",
-            s.false_go, s.go_lost
+            s.false_go,
+            s.go_lost
         );
     }
     if let Some(h) = &o.holdout {
-        println!(
+        say!(
             "holdout: accuracy {:.4}, false GO {}, false NO-GO {}",
             h.accuracy(),
             h.false_go,
@@ -853,12 +904,15 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
         );
     }
     if !o.cross_validation.is_empty() {
-        println!(
+        say!(
             "{:<12} {:>9} {:>9} {:>12}",
-            "trainer", "accuracy", "false GO", "false NO-GO"
+            "trainer",
+            "accuracy",
+            "false GO",
+            "false NO-GO"
         );
         for r in &o.cross_validation {
-            println!(
+            say!(
                 "{:<12} {:>9.4} {:>9} {:>12}",
                 r.trainer.name(),
                 r.accuracy,
@@ -867,34 +921,33 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
             );
         }
     }
-    println!("wrote {} (model id {})", path.display(), m.model_id);
+    say!("wrote {} (model id {})", path.display(), m.model_id);
 }
 
 fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
     let c = &s.check_train;
-    println!(
-        "Linegate demo: SYNTHETIC end-of-line test of a brushless fan module (invented scenario)"
-    );
-    println!(
+    say!("Linegate demo: SYNTHETIC end-of-line test of a brushless fan module (invented scenario)");
+    say!(
         "training log: {} units, separable: {}, γ* = {:.5}",
         c.units,
         c.separable,
         c.margin.unwrap_or(0.0)
     );
     if let Some(b) = c.novikoff_bound {
-        println!(
+        say!(
             "  Novikoff bound {:.0} updates; classic perceptron made {}",
-            b, s.perceptron_updates
+            b,
+            s.perceptron_updates
         );
     }
-    println!(
+    say!(
         "second-shift log: {} units, separable: {}; {} conflicting units named",
         s.check_drift.units,
         s.check_drift.separable,
         s.check_drift.conflict.len()
     );
     if let Some(h) = &s.train.holdout {
-        println!(
+        say!(
             "max-margin model: holdout accuracy {:.4} (false GO {}, false NO-GO {})",
             h.accuracy(),
             h.false_go,
@@ -903,13 +956,15 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
     }
     if let Some(i) = s.sweep.1 {
         let r = &s.sweep.0[i];
-        println!(
+        say!(
             "sweep recommends {}-bit weights, {}-bit inputs ({} bytes)",
-            r.weight_bits, r.input_bits, r.blob_bytes
+            r.weight_bits,
+            r.input_bits,
+            r.blob_bytes
         );
     }
     let a = &s.audit;
-    println!(
+    say!(
         "audit {}: flips {}, guaranteed {}, min margin {} LSB > bound {:.1} LSB",
         if a.passed { "PASSED" } else { "FAILED" },
         a.flips.len(),
@@ -918,9 +973,9 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
             .map_or("–".into(), |v| format!("{v:.1}")),
         a.bound.total
     );
-    println!("wrote into {}:", out.display());
+    say!("wrote into {}:", out.display());
     for f in &s.files {
-        println!("  {}", f.display());
+        say!("  {}", f.display());
     }
-    println!("done in {:.1} s", took.as_secs_f64());
+    say!("done in {:.1} s", took.as_secs_f64());
 }

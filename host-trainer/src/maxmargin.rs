@@ -352,11 +352,17 @@ pub fn homogeneous_margin(ds: &Dataset, idx: &[usize], radius: f64) -> Option<(f
         (best, vertex_of(ds, best, radius))
     };
     let out = wolfe(start, oracle, 100_000);
-    let g = dot(&out.point, &out.point).sqrt();
-    if !out.converged || g <= 1e-12 {
+    // ‖x‖ bounds γ from above (x is in the hull); the worst unit under x/‖x‖ bounds it from below.
+    let upper = dot(&out.point, &out.point).sqrt();
+    if upper <= 1e-12 {
         return None;
     }
-    Some((g, out.point.iter().map(|v| v / g).collect()))
+    let u: Vec<f64> = out.point.iter().map(|v| v / upper).collect();
+    let lower = idx
+        .iter()
+        .map(|&i| dot(&u, &vertex_of(ds, i, radius)))
+        .fold(f64::INFINITY, f64::min);
+    (lower > 0.0 && upper - lower <= 1e-9 * upper).then_some((upper, u))
 }
 
 fn vertex_of(ds: &Dataset, i: usize, radius: f64) -> Vec<f64> {
@@ -461,12 +467,18 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
             _ => support.push((i, 2.0 * l / zz)),
         }
     }
+    // Certificate instead of trust: ‖p − q‖/2 bounds γ* from above (p − q lies in the difference
+    // of the hulls), the separator's worst unit bounds it from below. Converged when they agree.
+    let model = Linear { w, b };
+    let upper = zz.sqrt() / 2.0;
+    let lower = model.geometric_margin(ds, idx);
+    let converged = lower > 0.0 && (upper - lower) <= 1e-9 * upper;
     SvmRun {
-        model: Linear { w, b },
+        model,
         support,
         iterations: out.iterations,
-        converged: out.converged,
-        margin: zz.sqrt() / 2.0,
+        converged,
+        margin: upper,
     }
 }
 
@@ -475,7 +487,6 @@ struct MinNorm<Id> {
     point: Vec<f64>,
     corral: Vec<(Id, f64)>,
     iterations: u64,
-    converged: bool,
 }
 
 /// Wolfe's minimum-norm-point algorithm over the hull of the vertices the oracle returns:
@@ -491,7 +502,6 @@ fn wolfe<Id: Copy + PartialEq>(
     let mut lambda = vec![1.0];
     let mut x = pts[0].clone();
     let mut iterations = 0u64;
-    let mut converged = false;
     let combine = |pts: &[Vec<f64>], l: &[f64]| {
         let mut out = vec![0.0; pts[0].len()];
         for (p, w) in pts.iter().zip(l) {
@@ -505,13 +515,12 @@ fn wolfe<Id: Copy + PartialEq>(
         iterations += 1;
         let (id, v) = oracle(&x);
         let xx = dot(&x, &x);
-        if xx <= 1e-30 || xx - dot(&x, &v) <= 1e-13 * xx {
-            converged = true;
+        // Below 1e-24 (a distance of 1e-12 between points of size ~1) the hulls touch to f64 precision.
+        if xx <= 1e-24 || xx - dot(&x, &v) <= 1e-13 * xx {
             break;
         }
         if ids.contains(&id) {
             // The best vertex is already in the corral: x is optimal to rounding.
-            converged = true;
             break;
         }
         ids.push(id);
@@ -523,7 +532,6 @@ fn wolfe<Id: Copy + PartialEq>(
                     point: x,
                     corral: ids.into_iter().zip(lambda).collect(),
                     iterations,
-                    converged,
                 };
             };
             if alpha.iter().all(|a| *a > 1e-14) {
@@ -564,7 +572,6 @@ fn wolfe<Id: Copy + PartialEq>(
         point: x,
         corral: ids.into_iter().zip(lambda).collect(),
         iterations,
-        converged,
     }
 }
 

@@ -271,3 +271,35 @@ fn soft_margin_on_overlapping_data_converges() {
     // Versicolor vs virginica: a linear classifier gets about 95–98 % (common practice; from memory).
     assert!(acc > 0.93, "accuracy {acc}");
 }
+
+#[test]
+fn logs_above_the_lp_limit_are_decided_and_certified() {
+    // Regression: on a 25 000-unit log the full LP is skipped; the verdict must still be
+    // certified (a separator checked on every unit, or a verified common point of both hulls).
+    use host_trainer::log::{LogOptions, ScaleFrom, read_log};
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("big.csv");
+    let mut buf = Vec::new();
+    host_trainer::synth::write_log(&mut buf, 25_000, 8, 0.01, 3).unwrap();
+    std::fs::write(&path, &buf).unwrap();
+    let sheet = host_trainer::scaling::ChannelSheet::parse(&host_trainer::synth::sheet(8)).unwrap();
+    let ds = read_log(&path, &LogOptions::default(), ScaleFrom::Sheet(&sheet)).unwrap();
+    assert!(ds.len() > host_trainer::separability::LP_FULL_LIMIT);
+    let r = check(&ds, &ds.all(), 5, 1);
+    assert!(r.separable, "{}", r.decided_by);
+    assert!(r.decided_by.contains("verified"), "{}", r.decided_by);
+    // The same readings once more with the other label: now the hulls share a point.
+    let mut flipped = ds.clone();
+    let copy = flipped.raw_row(17).to_vec();
+    flipped.raw.extend_from_slice(&copy);
+    flipped.labels.push(-flipped.labels[17]);
+    flipped.lines.push(99_999);
+    let r = check(&flipped, &flipped.all(), 5, 1);
+    assert!(!r.separable);
+    assert!(
+        !r.conflict.is_empty() && r.conflict.len() <= flipped.dim() + 2,
+        "{} units: {}",
+        r.conflict.len(),
+        r.decided_by
+    );
+}
