@@ -98,6 +98,16 @@ impl Dataset {
         }
     }
 
+    /// A scaler for hot loops: multiplies by precomputed reciprocals instead of dividing.
+    /// Its values may differ from [`scaled_row`](Self::scaled_row) in the last bit.
+    pub fn scaler(&self) -> Scaler {
+        Scaler {
+            off: self.scales.iter().map(|s| f64::from(s.offset)).collect(),
+            inv: self.scales.iter().map(|s| 1.0 / s.half as f64).collect(),
+            dim: self.dim(),
+        }
+    }
+
     /// Label of unit `i` as ±1.0.
     #[inline]
     pub fn y(&self, i: usize) -> f64 {
@@ -135,4 +145,41 @@ impl Dataset {
         }
         folds
     }
+}
+
+/// Fast row scaling, from [`Dataset::scaler`].
+#[derive(Clone, Debug)]
+pub struct Scaler {
+    off: Vec<f64>,
+    inv: Vec<f64>,
+    dim: usize,
+}
+
+impl Scaler {
+    /// Scaled readings of unit `i` of `ds` into `out`.
+    #[inline]
+    pub fn row(&self, ds: &Dataset, i: usize, out: &mut [f64]) {
+        let raw = &ds.raw[i * self.dim..(i + 1) * self.dim];
+        for (((o, &r), off), inv) in out.iter_mut().zip(raw).zip(&self.off).zip(&self.inv) {
+            *o = (f64::from(r) - off) * inv;
+        }
+    }
+}
+
+/// Dot product with four independent partial sums: the additions no longer wait on each
+/// other, which is several times faster than one running sum. Deterministic for given inputs.
+#[inline]
+pub fn dot(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len().min(b.len());
+    let (a, b) = (&a[..n], &b[..n]);
+    let mut acc = [0.0f64; 4];
+    let (ca, cb) = (a.chunks_exact(4), b.chunks_exact(4));
+    let (ra, rb) = (ca.remainder(), cb.remainder());
+    for (x, y) in ca.zip(cb) {
+        for k in 0..4 {
+            acc[k] += x[k] * y[k];
+        }
+    }
+    let tail: f64 = ra.iter().zip(rb).map(|(x, y)| x * y).sum();
+    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
 }

@@ -85,9 +85,7 @@ impl Work {
     }
 }
 
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
-}
+use crate::dataset::dot;
 
 /// Initial working set: up to `per_class` units of each class, evenly spread through the log.
 fn initial(ds: &Dataset, idx: &[usize], per_class: usize) -> Vec<usize> {
@@ -336,22 +334,56 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
 /// Returns (γ, separator over (x, 1) with ‖w‖ = 1).
 pub fn homogeneous_margin(ds: &Dataset, idx: &[usize], radius: f64) -> Option<(f64, Vec<f64>)> {
     let first = *idx.first()?;
-    let start = (first, vertex_of(ds, first, radius));
-    let oracle = |p: &[f64]| {
-        let mut x = vec![0.0; ds.dim()];
-        let (mut best, mut bv) = (first, f64::INFINITY);
-        for &i in idx {
-            ds.scaled_row(i, &mut x);
-            // ⟨p, yᵢ·(x, 1)/R⟩
-            let v = ds.y(i) * (dot(p, &x) + p[x.len()]) / radius;
-            if v < bv {
-                bv = v;
-                best = i;
+    let sc = ds.scaler();
+    let d = ds.dim();
+    // ⟨p, yᵢ·(xᵢ, 1)/R⟩: the oracle's value of unit i.
+    let value = |p: &[f64], i: usize, buf: &mut [f64]| {
+        sc.row(ds, i, buf);
+        ds.y(i) * (dot(p, buf) + p[d]) / radius
+    };
+    // Solve on a working set; a scan of every unit adds those below the set's minimum.
+    let mut set: Vec<usize> = if idx.len() <= WORKING_SET {
+        idx.to_vec()
+    } else {
+        initial(ds, idx, WORKING_SET / 8)
+    };
+    let mut in_set = vec![false; ds.len()];
+    set.iter().for_each(|&i| in_set[i] = true);
+    let mut buf = vec![0.0; d];
+    let out = loop {
+        let oracle = |p: &[f64]| {
+            let mut x = vec![0.0; d];
+            let best = set.iter().copied().min_by(|&a, &b| {
+                value(p, a, &mut x)
+                    .total_cmp(&value(p, b, &mut x))
+                    .then(a.cmp(&b))
+            });
+            let best = best.unwrap_or(first);
+            (best, vertex_of(ds, best, radius))
+        };
+        let out = wolfe((set[0], vertex_of(ds, set[0], radius)), oracle, 100_000);
+        if set.len() == idx.len() {
+            break out;
+        }
+        let floor = set
+            .iter()
+            .map(|&i| value(&out.point, i, &mut buf))
+            .fold(f64::INFINITY, f64::min);
+        let mut below: Vec<(f64, usize)> = Vec::new();
+        for &i in idx.iter().filter(|&&i| !in_set[i]) {
+            let v = value(&out.point, i, &mut buf);
+            if v < floor {
+                push_bounded(&mut below, (v, i), WORKING_SET / 4);
             }
         }
-        (best, vertex_of(ds, best, radius))
+        if below.is_empty() {
+            break out;
+        }
+        for (_, i) in below {
+            in_set[i] = true;
+            set.push(i);
+        }
     };
-    let out = wolfe(start, oracle, 100_000);
     // ‖x‖ bounds γ from above (x is in the hull); the worst unit under x/‖x‖ bounds it from below.
     let upper = dot(&out.point, &out.point).sqrt();
     if upper <= 1e-12 {
@@ -360,7 +392,7 @@ pub fn homogeneous_margin(ds: &Dataset, idx: &[usize], radius: f64) -> Option<(f
     let u: Vec<f64> = out.point.iter().map(|v| v / upper).collect();
     let lower = idx
         .iter()
-        .map(|&i| dot(&u, &vertex_of(ds, i, radius)))
+        .map(|&i| value(&u, i, &mut buf))
         .fold(f64::INFINITY, f64::min);
     (lower > 0.0 && upper - lower <= 1e-9 * upper).then_some((upper, u))
 }
@@ -373,6 +405,18 @@ fn vertex_of(ds: &Dataset, i: usize, radius: f64) -> Vec<f64> {
     z.push(y / radius);
     z
 }
+
+/// Pushes `item`, keeping only about the `keep` smallest once the vector doubles.
+fn push_bounded(v: &mut Vec<(f64, usize)>, item: (f64, usize), keep: usize) {
+    v.push(item);
+    if v.len() >= 2 * keep {
+        v.select_nth_unstable_by(keep, |a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        v.truncate(keep);
+    }
+}
+
+/// Units in the hard-margin solver's first working set on large logs.
+const WORKING_SET: usize = 16_000;
 
 /// Hard margin as the nearest points of the two class hulls.
 fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
@@ -397,37 +441,78 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
             margin: 0.0,
         };
     };
-    let diff = |i: usize, j: usize| {
-        row(i)
-            .iter()
-            .zip(row(j))
-            .map(|(a, b)| a - b)
-            .collect::<Vec<f64>>()
+    let sc = ds.scaler();
+    // Large logs: solve on a working set, then let one scan of every unit add the units that
+    // the current nearest points fail to account for, until none is left.
+    let mut set: Vec<usize> = if idx.len() <= WORKING_SET {
+        idx.to_vec()
+    } else {
+        initial(ds, idx, WORKING_SET / 8)
     };
-    // Oracle over the Minkowski difference: min over GO of ⟨p, x⟩ minus max over NO-GO.
-    let oracle = |p: &[f64]| {
-        let mut x = vec![0.0; d];
-        let (mut bi, mut bv, mut bj, mut bw) = (g0, f64::INFINITY, n0, f64::NEG_INFINITY);
-        for &i in idx {
-            ds.scaled_row(i, &mut x);
-            let v = dot(p, &x);
-            if ds.labels[i] > 0 {
-                if v < bv {
-                    bv = v;
-                    bi = i;
-                }
-            } else if v > bw {
-                bw = v;
-                bj = i;
+    let mut in_set = vec![false; ds.len()];
+    set.iter().for_each(|&i| in_set[i] = true);
+    let mut iterations = 0;
+    let out = loop {
+        let out = wolfe(
+            ((g0, n0), pair_difference(ds, g0, n0)),
+            hull_oracle(ds, &sc, &set, (g0, n0)),
+            max_iter.min(1_000_000) as usize,
+        );
+        iterations += out.iterations;
+        if set.len() == idx.len() {
+            break out;
+        }
+        let x = &out.point;
+        let xx = dot(x, x);
+        let mut row_buf = vec![0.0; d];
+        // A GO unit i and NO-GO unit j improve on x when ⟨x, xᵢ − xⱼ⟩ < ‖x‖²; only units beyond
+        // the set's own extremes can. Keep the most violating few (bounded memory).
+        let (set_go, set_nogo) =
+            set.iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(g, n), &i| {
+                    sc.row(ds, i, &mut row_buf);
+                    let v = dot(x, &row_buf);
+                    if ds.labels[i] > 0 {
+                        (g.min(v), n)
+                    } else {
+                        (g, n.max(v))
+                    }
+                });
+        let keep = WORKING_SET / 4;
+        let mut go: Vec<(f64, usize)> = Vec::new();
+        let mut nogo: Vec<(f64, usize)> = Vec::new();
+        for &i in idx.iter().filter(|&&i| !in_set[i]) {
+            sc.row(ds, i, &mut row_buf);
+            let v = dot(x, &row_buf);
+            if ds.labels[i] > 0 && v < set_go {
+                push_bounded(&mut go, (v, i), keep);
+            } else if ds.labels[i] < 0 && v > set_nogo {
+                push_bounded(&mut nogo, (-v, i), keep);
             }
         }
-        ((bi, bj), diff(bi, bj))
+        let gap_limit = set_go - set_nogo - 1e-12 * xx.max(1e-300);
+        go.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        nogo.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        go.truncate(keep);
+        nogo.truncate(keep);
+        let best_nogo = nogo
+            .first()
+            .map_or(f64::NEG_INFINITY, |v| -v.0)
+            .max(set_nogo);
+        let best_go = go.first().map_or(f64::INFINITY, |v| v.0).min(set_go);
+        if best_go - best_nogo >= gap_limit {
+            break out;
+        }
+        let before = set.len();
+        for &(_, i) in go.iter().chain(nogo.iter()) {
+            in_set[i] = true;
+            set.push(i);
+        }
+        if set.len() == before {
+            break out;
+        }
     };
-    let out = wolfe(
-        ((g0, n0), diff(g0, n0)),
-        oracle,
-        max_iter.min(1_000_000) as usize,
-    );
+    let out = MinNorm { iterations, ..out };
     let z = &out.point;
     let zz = dot(z, z);
     let mut p = vec![0.0; d];
@@ -480,6 +565,43 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
         converged,
         margin: upper,
     }
+}
+
+/// Oracle over the Minkowski difference of the hulls, restricted to `set`: the vertex
+/// xᵢ − xⱼ minimising ⟨p, ·⟩ (i GO with least ⟨p, xᵢ⟩, j NO-GO with greatest ⟨p, xⱼ⟩).
+fn hull_oracle<'a>(
+    ds: &'a Dataset,
+    sc: &'a crate::dataset::Scaler,
+    set: &'a [usize],
+    first: (usize, usize),
+) -> impl FnMut(&[f64]) -> ((usize, usize), Vec<f64>) + 'a {
+    move |p: &[f64]| {
+        let mut x = vec![0.0; ds.dim()];
+        let (mut bi, mut bv, mut bj, mut bw) = (first.0, f64::INFINITY, first.1, f64::NEG_INFINITY);
+        for &i in set {
+            sc.row(ds, i, &mut x);
+            let v = dot(p, &x);
+            if ds.labels[i] > 0 {
+                if v < bv {
+                    bv = v;
+                    bi = i;
+                }
+            } else if v > bw {
+                bw = v;
+                bj = i;
+            }
+        }
+        ((bi, bj), pair_difference(ds, bi, bj))
+    }
+}
+
+/// xᵢ − xⱼ in scaled units.
+fn pair_difference(ds: &Dataset, i: usize, j: usize) -> Vec<f64> {
+    let d = ds.dim();
+    let (mut a, mut b) = (vec![0.0; d], vec![0.0; d]);
+    ds.scaled_row(i, &mut a);
+    ds.scaled_row(j, &mut b);
+    a.iter().zip(&b).map(|(x, y)| x - y).collect()
 }
 
 /// The result of [`wolfe`].
