@@ -243,6 +243,8 @@ pub struct AuditReport {
 
 struct Acc {
     s: SetSummary,
+    /// Smallest float margin over correctly classified units, in LSB.
+    float_min: f64,
     flips: Vec<(usize, f64)>,
     tight: Vec<(f64, usize)>,
     margins: Vec<(f64, f64)>,
@@ -255,12 +257,7 @@ const HISTOGRAM_SAMPLE: usize = 20_000;
 /// Audits one log with the shared kernel. Parallel over units.
 fn audit_set(name: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, bound: f64) -> Acc {
     let m = &q.model;
-    let coef: Vec<(f64, f64)> = fm
-        .weights
-        .iter()
-        .zip(&fm.channels)
-        .map(|(w, c)| (w / c.half as f64, f64::from(c.offset)))
-        .collect();
+    let float = crate::dataset::RawForm::new(ds, &fm.weights, fm.bias);
     let band = (fm.threshold * q.scale, m.model());
     let stride = (ds.len() / HISTOGRAM_SAMPLE).max(1);
     let empty = || Acc {
@@ -269,6 +266,7 @@ fn audit_set(name: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, bound: f6
             path: ds.path.display().to_string(),
             ..Default::default()
         },
+        float_min: f64::INFINITY,
         flips: Vec::new(),
         tight: Vec::new(),
         margins: Vec::new(),
@@ -293,24 +291,25 @@ fn audit_set(name: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, bound: f6
         a.tight.truncate(TIGHTEST);
         a.margins.extend(b.margins);
         a.min_fixed_abs = a.min_fixed_abs.min(b.min_fixed_abs);
+        a.float_min = a.float_min.min(b.float_min);
         a
     };
     (0..ds.len())
         .into_par_iter()
-        .with_min_len(4096)
+        .with_min_len(1 << 16)
         .fold(empty, |mut a, i| {
             let raw = ds.raw_row(i);
-            let fs = raw
-                .iter()
-                .zip(&coef)
-                .map(|(&r, (w, off))| w * (f64::from(r) - off))
-                .sum::<f64>()
-                + fm.bias;
+            let fs = float.score(raw);
             let label = ds.labels[i];
             let float_go = fs > fm.threshold;
             let float_ok = float_go == (label > 0);
             a.s.units += 1;
             a.s.float_correct += usize::from(float_ok);
+            if float_ok {
+                a.float_min = a
+                    .float_min
+                    .min(f64::from(label) * (fs - fm.threshold) * q.scale);
+            }
             match m.classify(raw) {
                 Err(_) => {
                     a.s.faults += 1;
@@ -411,6 +410,7 @@ pub fn audit(
     let mut fixed_margins = Vec::new();
     let mut float_margins = Vec::new();
     let mut min_all = f64::INFINITY;
+    let mut float_min = f64::INFINITY;
     for (name, ds) in std::iter::once(("train", train)).chain(holdout.map(|h| ("holdout", h))) {
         let a = audit_set(name, q, fm, ds, bound.total);
         flips.extend(a.flips.iter().map(|&(i, _)| unit_row(name, q, fm, ds, i)));
@@ -420,6 +420,9 @@ pub fn audit(
             fixed_margins.push(*x);
         }
         min_all = min_all.min(a.min_fixed_abs);
+        if name == "train" {
+            float_min = a.float_min;
+        }
         sets.push(a.s);
     }
     tight.sort_by(|a, b| a.0.total_cmp(&b.0));
@@ -429,16 +432,6 @@ pub fn audit(
         .map(|&(_, n, ds, i)| unit_row(n, q, fm, ds, i))
         .collect();
     let guaranteed = sets.iter().all(|s| s.within_bound == 0 && s.faults == 0);
-    let float_min = {
-        let lin = fm.linear();
-        let t = fm.threshold;
-        lin.scores(train, &train.all())
-            .iter()
-            .zip(&train.labels)
-            .filter(|(s, l)| (**s > t) == (**l > 0))
-            .map(|(s, l)| f64::from(*l) * (s - t) * q.scale)
-            .fold(None, |a: Option<f64>, v| Some(a.map_or(v, |a| a.min(v))))
-    };
     let channel_margin = fm
         .channels
         .iter()
@@ -487,7 +480,7 @@ pub fn audit(
         scale: q.scale,
         blob_bytes,
         sets,
-        float_min_margin_lsb: float_min,
+        float_min_margin_lsb: float_min.is_finite().then_some(float_min),
         plain_min_margin_lsb: q.plain_min_margin,
         optimised_min_margin_lsb: q.optimised_min_margin,
         search_moves: q.moves,

@@ -28,7 +28,7 @@ pub struct Dataset {
     /// 1-based line of each unit in the file.
     pub lines: Vec<u64>,
     /// Unit ids, if the log has a unit-id column (else empty).
-    pub unit_ids: Vec<String>,
+    pub unit_ids: UnitIds,
     /// Rows skipped under `--skip-bad-rows`.
     pub skipped: SkipReport,
 }
@@ -43,7 +43,7 @@ impl Dataset {
             raw: Vec::new(),
             labels: Vec::new(),
             lines: Vec::new(),
-            unit_ids: Vec::new(),
+            unit_ids: UnitIds::default(),
             skipped: SkipReport::default(),
         }
     }
@@ -117,7 +117,7 @@ impl Dataset {
     /// A name for unit `i` in reports: its unit id, or its line in the file.
     pub fn unit_name(&self, i: usize) -> String {
         match self.unit_ids.get(i) {
-            Some(u) if !u.is_empty() => u.clone(),
+            Some(u) if !u.is_empty() => u.to_string(),
             _ => format!("line {}", self.lines[i]),
         }
     }
@@ -182,4 +182,97 @@ pub fn dot(a: &[f64], b: &[f64]) -> f64 {
     }
     let tail: f64 = ra.iter().zip(rb).map(|(x, y)| x * y).sum();
     (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
+}
+
+/// Unit ids packed into one string: a million ids cost their bytes plus four per id, not an
+/// allocation each.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct UnitIds {
+    text: String,
+    ends: Vec<u32>,
+}
+
+impl UnitIds {
+    /// Appends an id (lossily decoded).
+    pub fn push(&mut self, id: &[u8]) {
+        self.text.push_str(&String::from_utf8_lossy(id));
+        self.ends
+            .push(u32::try_from(self.text.len()).unwrap_or(u32::MAX));
+    }
+
+    /// The id of unit `i`.
+    pub fn get(&self, i: usize) -> Option<&str> {
+        let end = *self.ends.get(i)? as usize;
+        let start = if i == 0 { 0 } else { self.ends[i - 1] as usize };
+        self.text.get(start..end)
+    }
+
+    /// Number of ids.
+    pub fn len(&self) -> usize {
+        self.ends.len()
+    }
+
+    /// True if there are none.
+    pub fn is_empty(&self) -> bool {
+        self.ends.is_empty()
+    }
+
+    /// Removes every id.
+    pub fn clear(&mut self) {
+        self.text.clear();
+        self.ends.clear();
+    }
+}
+
+/// A linear score on scaled inputs rewritten over raw readings, Σ wⱼ·rawⱼ + c, so hot loops
+/// convert and multiply once per reading, with four independent partial sums.
+#[derive(Clone, Debug)]
+pub struct RawForm {
+    w: Vec<f64>,
+    c: f64,
+}
+
+impl RawForm {
+    /// For `weights·x + bias` with xⱼ = (rawⱼ − offsetⱼ)/halfⱼ.
+    pub fn new(ds: &Dataset, weights: &[f64], bias: f64) -> Self {
+        let w: Vec<f64> = ds
+            .scales
+            .iter()
+            .zip(weights)
+            .map(|(s, wj)| wj / s.half as f64)
+            .collect();
+        let c = bias
+            - ds.scales
+                .iter()
+                .zip(&w)
+                .map(|(s, wj)| wj * f64::from(s.offset))
+                .sum::<f64>();
+        Self { w, c }
+    }
+
+    /// For the perceptron's `v·z/R` over augmented inputs z = (x, 1).
+    pub fn augmented(ds: &Dataset, v: &[f64], r: f64) -> Self {
+        let d = ds.dim();
+        let scaled: Vec<f64> = v[..d].iter().map(|vj| vj / r).collect();
+        Self::new(ds, &scaled, v[d] / r)
+    }
+
+    /// The score of one unit's raw readings.
+    #[inline]
+    pub fn score(&self, raw: &[i32]) -> f64 {
+        let mut acc = [0.0f64; 4];
+        let (cw, cr) = (self.w.chunks_exact(4), raw.chunks_exact(4));
+        let tail: f64 = cw
+            .remainder()
+            .iter()
+            .zip(cr.remainder())
+            .map(|(w, &x)| w * f64::from(x))
+            .sum();
+        for (w, x) in cw.zip(cr) {
+            for k in 0..4 {
+                acc[k] += w[k] * f64::from(x[k]);
+            }
+        }
+        (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail + self.c
+    }
 }

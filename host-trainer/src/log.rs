@@ -209,6 +209,8 @@ const BLOCK: usize = 8 << 20;
 struct Row<'r> {
     line: u64,
     values: &'r [f64],
+    /// Raw readings, when the scan was given the channel scaling (else empty).
+    raw: &'r [i32],
     label: i8,
     unit: Option<&'r [u8]>,
 }
@@ -219,39 +221,76 @@ struct Parser<'a> {
     opts: &'a LogOptions,
     cols: &'a Columns,
     delimiter: u8,
+    /// Convert to raw readings (and refuse out-of-range ones) while parsing.
+    scales: Option<&'a [ChannelScale]>,
 }
 
-/// A run of parsed records, in file order: values row-major, and per record either a row or an error.
+/// A run of parsed records, in file order: values (or raw readings) row-major, and per record
+/// either a row or an error.
 #[derive(Default)]
 struct Parsed {
     values: Vec<f64>,
+    raw: Vec<i32>,
     labels: Vec<i8>,
     lines: Vec<u64>,
-    units: Vec<Vec<u8>>,
+    unit_bytes: Vec<u8>,
+    unit_ends: Vec<usize>,
     items: Vec<Result<(), InputError>>,
 }
 
-/// Splits a record (without its line end) into fields: directly when it has no quote,
-/// through the csv crate (RFC 4180 quoting) when it has.
+/// A record's fields as byte ranges of one buffer.
+struct Fields<'a> {
+    src: &'a [u8],
+    ranges: &'a [(usize, usize)],
+}
+
+impl Fields<'_> {
+    fn len(&self) -> usize {
+        self.ranges.len()
+    }
+
+    fn get(&self, i: usize) -> &[u8] {
+        self.ranges
+            .get(i)
+            .map_or(&[][..], |&(a, b)| &self.src[a..b])
+    }
+}
+
+/// Splits a record (without its line end) into fields: as ranges of `record` when it has no
+/// quote, or of `owned` (filled by the csv crate, RFC 4180 quoting) when it has. Returns the
+/// buffer the ranges index.
 fn fields<'b>(
     record: &'b [u8],
     delimiter: u8,
     owned: &'b mut csv::ByteRecord,
-    out: &mut Vec<&'b [u8]>,
-) -> Result<(), String> {
-    out.clear();
-    if !record.contains(&b'"') {
-        out.extend(record.split(|&b| b == delimiter));
-        return Ok(());
+    ranges: &mut Vec<(usize, usize)>,
+) -> Result<&'b [u8], String> {
+    ranges.clear();
+    // Fields are short: a plain loop beats a vectorised search here.
+    let mut start = 0;
+    let mut quoted = false;
+    for (k, &b) in record.iter().enumerate() {
+        if b == delimiter {
+            ranges.push((start, k));
+            start = k + 1;
+        } else if b == b'"' {
+            quoted = true;
+            break;
+        }
     }
+    if !quoted {
+        ranges.push((start, record.len()));
+        return Ok(record);
+    }
+    ranges.clear();
     let mut rdr = csv::ReaderBuilder::new()
         .delimiter(delimiter)
         .has_headers(false)
         .flexible(true)
         .from_reader(record);
     rdr.read_byte_record(owned).map_err(|e| e.to_string())?;
-    out.extend(owned.iter());
-    Ok(())
+    ranges.extend((0..owned.len()).filter_map(|i| owned.range(i).map(|r| (r.start, r.end))));
+    Ok(owned.as_slice())
 }
 
 /// The record without its line end (`\n` or `\r\n`).
@@ -263,11 +302,14 @@ fn strip_line_end(r: &[u8]) -> &[u8] {
 /// Ends (exclusive offsets) of the complete records in `body`: a record ends at a line feed
 /// outside quotes. `in_quote` carries the quote state in and out.
 fn record_ends(body: &[u8], in_quote: &mut bool) -> Vec<usize> {
+    if !*in_quote && memchr::memchr(b'"', body).is_none() {
+        return memchr::memchr_iter(b'\n', body).map(|k| k + 1).collect();
+    }
     let mut ends = Vec::new();
-    for (k, &b) in body.iter().enumerate() {
-        if b == b'"' {
+    for k in memchr::memchr2_iter(b'"', b'\n', body) {
+        if body[k] == b'"' {
             *in_quote = !*in_quote;
-        } else if b == b'\n' && !*in_quote {
+        } else if !*in_quote {
             ends.push(k + 1);
         }
     }
@@ -275,14 +317,14 @@ fn record_ends(body: &[u8], in_quote: &mut bool) -> Vec<usize> {
 }
 
 fn count_lf(b: &[u8]) -> u64 {
-    b.iter().filter(|&&c| c == b'\n').count() as u64
+    memchr::memchr_iter(b'\n', b).count() as u64
 }
 
 impl Parser<'_> {
     /// Parses one record's fields into `values`; `Ok(None)` for a blank line.
     fn record(
         &self,
-        f: &[&[u8]],
+        f: &Fields<'_>,
         raw_len: usize,
         line: u64,
         values: &mut [f64],
@@ -296,7 +338,7 @@ impl Parser<'_> {
                 max: opts.max_line_len,
             });
         }
-        if f.len() == 1 && f[0].is_empty() {
+        if f.len() == 1 && f.get(0).is_empty() {
             return Ok(None);
         }
         if f.len() != cols.names.len() {
@@ -308,7 +350,7 @@ impl Parser<'_> {
             });
         }
         for (v, &c) in values.iter_mut().zip(&cols.channels) {
-            let cell = trim(f[c]);
+            let cell = trim(f.get(c));
             let column = || cols.names[c].clone();
             if cell.is_empty() {
                 return Err(InputError::Missing {
@@ -335,7 +377,7 @@ impl Parser<'_> {
             }
             *v = x;
         }
-        let lf = trim(f[cols.label]);
+        let lf = trim(f.get(cols.label));
         let token = String::from_utf8_lossy(lf).to_lowercase();
         if opts.go_labels.contains(&token) {
             Ok(Some(1))
@@ -353,15 +395,40 @@ impl Parser<'_> {
         }
     }
 
+    /// Converts parsed readings to raw integers; refuses a reading outside its channel's range.
+    fn to_raw(
+        &self,
+        scales: &[ChannelScale],
+        vals: &[f64],
+        out: &mut [i32],
+        line: u64,
+    ) -> Result<(), InputError> {
+        for (k, ((o, &v), s)) in out.iter_mut().zip(vals).zip(scales).enumerate() {
+            *o = s.to_raw(v).ok_or_else(|| InputError::OutOfRange {
+                path: self.path.into(),
+                line,
+                column: self.cols.names[self.cols.channels[k]].clone(),
+                value: v,
+                min: s.min,
+                max: s.max,
+            })?;
+        }
+        Ok(())
+    }
+
     /// Parses whole records `bytes` (ending at record ends) whose first byte is on `first_line`.
     fn piece(&self, bytes: &[u8], first_line: u64) -> Parsed {
         let d = self.cols.channels.len();
-        let mut out = Parsed {
-            values: Vec::with_capacity(bytes.len() / 4),
-            ..Parsed::default()
-        };
+        let mut out = Parsed::default();
+        if self.scales.is_some() {
+            out.raw.reserve(bytes.len() / 6);
+        } else {
+            out.values.reserve(bytes.len() / 6);
+        }
         let mut vals = vec![0.0; d];
-        let ncols = self.cols.names.len();
+        let mut raw_row = vec![0i32; d];
+        let mut owned = csv::ByteRecord::new();
+        let mut ranges: Vec<(usize, usize)> = Vec::with_capacity(self.cols.names.len());
         let mut line = first_line;
         let mut quote = false;
         let mut start = 0;
@@ -372,11 +439,25 @@ impl Parser<'_> {
         }
         for end in ends {
             let raw = &bytes[start..end];
-            let rec = strip_line_end(raw);
-            let mut owned = csv::ByteRecord::new();
-            let mut f: Vec<&[u8]> = Vec::with_capacity(ncols);
-            let parsed = match fields(rec, self.delimiter, &mut owned, &mut f) {
-                Ok(()) => self.record(&f, raw.len(), line, &mut vals),
+            let parsed = match fields(strip_line_end(raw), self.delimiter, &mut owned, &mut ranges)
+            {
+                Ok(src) => {
+                    let f = Fields {
+                        src,
+                        ranges: &ranges,
+                    };
+                    self.record(&f, raw.len(), line, &mut vals)
+                        .and_then(|label| {
+                            if let (Some(_), Some(scales)) = (label, self.scales) {
+                                self.to_raw(scales, &vals, &mut raw_row, line)?;
+                            }
+                            if let (Some(_), Some(u)) = (label, self.cols.unit) {
+                                out.unit_bytes.extend_from_slice(trim(f.get(u)));
+                                out.unit_ends.push(out.unit_bytes.len());
+                            }
+                            Ok(label)
+                        })
+                }
                 Err(message) => Err(InputError::Format {
                     path: self.path.into(),
                     message: format!("line {line}: {message}"),
@@ -385,12 +466,13 @@ impl Parser<'_> {
             match parsed {
                 Ok(None) => {}
                 Ok(Some(label)) => {
-                    out.values.extend_from_slice(&vals);
+                    if self.scales.is_some() {
+                        out.raw.extend_from_slice(&raw_row);
+                    } else {
+                        out.values.extend_from_slice(&vals);
+                    }
                     out.labels.push(label);
                     out.lines.push(line);
-                    if let Some(u) = self.cols.unit {
-                        out.units.push(trim(f[u]).to_vec());
-                    }
                     out.items.push(Ok(()));
                 }
                 Err(e) => out.items.push(Err(e)),
@@ -409,10 +491,11 @@ fn scan(
     path: &Path,
     opts: &LogOptions,
     model: Option<&[ChannelScale]>,
+    scales: Option<&[ChannelScale]>,
     skipped: &mut SkipReport,
     on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError>,
 ) -> Result<(Columns, String), InputError> {
-    scan_blocks(path, opts, model, skipped, on_row, BLOCK)
+    scan_blocks(path, opts, model, scales, skipped, on_row, BLOCK)
 }
 
 /// [`scan`] with a given block size (small blocks exercise the block seams in tests).
@@ -420,6 +503,7 @@ fn scan_blocks(
     path: &Path,
     opts: &LogOptions,
     model: Option<&[ChannelScale]>,
+    scales: Option<&[ChannelScale]>,
     skipped: &mut SkipReport,
     mut on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError>,
     block: usize,
@@ -442,7 +526,8 @@ fn scan_blocks(
     let mut hasher = Sha256::new();
     let mut buf: Vec<u8> = Vec::new();
     let mut eof = false;
-    // Appends up to `block` more bytes to `buf`, hashing them.
+    // Appends up to `block` more bytes to `buf`; they are hashed later, beside the parsing.
+    let mut hashed = 0usize;
     let mut refill = |buf: &mut Vec<u8>, eof: &mut bool| -> Result<(), InputError> {
         let start = buf.len();
         buf.resize(start + block, 0);
@@ -456,7 +541,6 @@ fn scan_blocks(
             n += got;
         }
         buf.truncate(n);
-        hasher.update(&buf[start..]);
         if let Some(b) = &bar {
             b.inc((n - start) as u64);
         }
@@ -496,14 +580,19 @@ fn scan_blocks(
         return Err(InputError::Empty { path: path.into() });
     }
     let mut owned = csv::ByteRecord::new();
-    let mut hf = Vec::new();
-    fields(header, delimiter, &mut owned, &mut hf).map_err(|message| InputError::Format {
-        path: path.into(),
-        message,
+    let mut ranges = Vec::new();
+    let src = fields(header, delimiter, &mut owned, &mut ranges).map_err(|message| {
+        InputError::Format {
+            path: path.into(),
+            message,
+        }
     })?;
-    let names = hf
-        .iter()
-        .map(|f| std::str::from_utf8(f).map(|s| s.trim().to_string()))
+    let hf = Fields {
+        src,
+        ranges: &ranges,
+    };
+    let names = (0..hf.len())
+        .map(|i| std::str::from_utf8(hf.get(i)).map(|s| s.trim().to_string()))
         .collect::<Result<Vec<_>, _>>()
         .map_err(|_| InputError::HeaderNotUtf8 { path: path.into() })?;
     let mut line = 1 + count_lf(&buf[pos..header_end]);
@@ -514,6 +603,7 @@ fn scan_blocks(
         opts,
         cols: &cols,
         delimiter,
+        scales,
     };
     let mut feed = |parsed: Parsed, skipped: &mut SkipReport| -> Result<(), InputError> {
         let d = cols.channels.len();
@@ -523,9 +613,13 @@ fn scan_blocks(
                 Ok(()) => {
                     let row = Row {
                         line: parsed.lines[k],
-                        values: &parsed.values[k * d..(k + 1) * d],
+                        values: parsed.values.get(k * d..(k + 1) * d).unwrap_or(&[]),
+                        raw: parsed.raw.get(k * d..(k + 1) * d).unwrap_or(&[]),
                         label: parsed.labels[k],
-                        unit: parsed.units.get(k).map(Vec::as_slice),
+                        unit: parsed.unit_ends.get(k).map(|&e| {
+                            let b = if k == 0 { 0 } else { parsed.unit_ends[k - 1] };
+                            &parsed.unit_bytes[b..e]
+                        }),
                     };
                     k += 1;
                     on_row(&cols, row)
@@ -597,23 +691,35 @@ fn scan_blocks(
                 starts.push(l);
                 l += count_lf(&chunk[w[0]..w[1]]);
             }
-            let parsed: Vec<Parsed> = bounds
-                .windows(2)
-                .zip(&starts)
-                .collect::<Vec<_>>()
-                .into_par_iter()
-                .map(|(w, &first)| parser.piece(&chunk[w[0]..w[1]], first))
-                .collect();
+            let unhashed = &buf[hashed..];
+            let (parsed, ()): (Vec<Parsed>, ()) = rayon::join(
+                || {
+                    bounds
+                        .windows(2)
+                        .zip(&starts)
+                        .collect::<Vec<_>>()
+                        .into_par_iter()
+                        .map(|(w, &first)| parser.piece(&chunk[w[0]..w[1]], first))
+                        .collect()
+                },
+                || hasher.update(unhashed),
+            );
+            hashed = buf.len();
             for p in parsed {
                 feed(p, skipped)?;
             }
             line = l;
             pos += cut;
         }
+        if hashed < buf.len() {
+            hasher.update(&buf[hashed..]);
+            hashed = buf.len();
+        }
         if eof && pos >= buf.len() {
             break;
         }
         buf.drain(..pos);
+        hashed -= pos;
         pos = 0;
         refill(&mut buf, &mut eof)?;
     }
@@ -670,7 +776,7 @@ pub fn read_log(
     if model.is_none() && names.iter().any(|n| sheet.and_then(|s| s.get(n)).is_none()) {
         let mut skipped = SkipReport::default();
         let mut rows = 0usize;
-        scan(path, opts, model, &mut skipped, |_, row| {
+        scan(path, opts, model, None, &mut skipped, |_, row| {
             if ranges.is_empty() {
                 ranges = row.values.iter().map(|&v| (v, v)).collect();
             }
@@ -719,29 +825,13 @@ pub fn read_log(
         ds.lines.reserve_exact(rows);
     }
     let mut skipped = SkipReport::default();
-    let (cols2, sha) = scan(path, opts, model, &mut skipped, |cols, row| {
-        let d = ds.scales.len();
-        for (i, (&v, s)) in row.values.iter().zip(&ds.scales).enumerate() {
-            match s.to_raw(v) {
-                Some(r) => ds.raw.push(r),
-                None => {
-                    ds.raw.truncate(ds.raw.len() - i);
-                    return Err(InputError::OutOfRange {
-                        path: path.into(),
-                        line: row.line,
-                        column: cols.names[cols.channels[i]].clone(),
-                        value: v,
-                        min: s.min,
-                        max: s.max,
-                    });
-                }
-            }
-        }
-        debug_assert_eq!(ds.raw.len() % d, 0);
+    let scales = ds.scales.clone();
+    let (cols2, sha) = scan(path, opts, model, Some(&scales), &mut skipped, |_, row| {
+        ds.raw.extend_from_slice(row.raw);
         ds.labels.push(row.label);
         ds.lines.push(row.line);
         if let Some(u) = row.unit {
-            ds.unit_ids.push(String::from_utf8_lossy(u).into_owned());
+            ds.unit_ids.push(u);
         }
         Ok(())
     })?;
@@ -836,17 +926,21 @@ pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, In
 mod tests {
     use super::*;
 
-    /// Every row seen by `scan_blocks` at a block size: (line, values, label, unit) and the hash.
+    /// One row as seen by the callback: line, values, label, unit id.
+    type Seen = (u64, Vec<f64>, i8, Option<Vec<u8>>);
+
+    /// Every row seen by `scan_blocks` at a block size, the hash, and the rows skipped.
     fn rows(
         path: &Path,
         opts: &LogOptions,
         block: usize,
-    ) -> Result<(Vec<(u64, Vec<f64>, i8, Option<Vec<u8>>)>, String, usize), String> {
+    ) -> Result<(Vec<Seen>, String, usize), String> {
         let mut out = Vec::new();
         let mut skipped = SkipReport::default();
         let (_, hash) = scan_blocks(
             path,
             opts,
+            None,
             None,
             &mut skipped,
             |_, r| {

@@ -10,7 +10,7 @@ use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
 
-use crate::dataset::Dataset;
+use crate::dataset::{Dataset, RawForm};
 
 /// A float linear classifier on scaled inputs: GO when `w·x + b > threshold`.
 #[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -103,7 +103,7 @@ pub fn radius(ds: &Dataset, idx: &[usize]) -> f64 {
 }
 
 /// Units per block of the perceptron's visit order.
-const BLOCK: usize = 64;
+const BLOCK: usize = 4096;
 
 /// Trains a member of the perceptron family on the units `idx`.
 pub fn perceptron(
@@ -120,32 +120,31 @@ pub fn perceptron(
     let mut c = 1.0f64;
     let mut pocket: Option<(usize, Vec<f64>)> = None;
     let mut z = vec![0.0f64; d + 1];
-    // Visit order: a seeded shuffle of blocks of consecutive units, each block in its own
-    // order. The theorem holds for any order; whole-unit shuffles would cost a cache miss per
-    // unit on large logs.
+    // Visit order: a seeded shuffle of blocks of consecutive units, each block read in file
+    // order. The theorem holds for any order; shuffling single units would cost a cache miss
+    // per unit on large logs, streaming through a block costs none.
     let mut blocks: Vec<&[usize]> = idx.chunks(BLOCK).collect();
-    let mut order: Vec<usize> = Vec::with_capacity(BLOCK);
     let mut rng = ChaCha8Rng::seed_from_u64(cfg.seed);
     let sc = ds.scaler();
+    let mut on_raw = RawForm::augmented(ds, &v, r);
     let (mut updates, mut epochs, mut converged) = (0u64, 0u32, false);
     while epochs < cfg.epochs {
         epochs += 1;
         blocks.shuffle(&mut rng);
         let mut mistakes = 0usize;
         for b in &blocks {
-            order.clear();
-            order.extend_from_slice(b);
-            order.shuffle(&mut rng);
-            for &i in &order {
-                sc.row(ds, i, &mut z[..d]);
-                z[d] = 1.0;
+            for &i in b.iter() {
+                // v·z/R evaluated on the raw readings: (v·z)/R = Σ (vⱼ/(halfⱼ·R))·rawⱼ + const.
                 let y = ds.y(i);
-                let s: f64 = crate::dataset::dot(&v, &z) / r;
+                let s = on_raw.score(ds.raw_row(i));
                 if y * s <= 0.0 {
+                    sc.row(ds, i, &mut z[..d]);
+                    z[d] = 1.0;
                     for ((vj, uj), zj) in v.iter_mut().zip(u.iter_mut()).zip(&z) {
                         *vj += y * zj / r;
                         *uj += c * y * zj / r;
                     }
+                    on_raw = RawForm::augmented(ds, &v, r);
                     updates += 1;
                     mistakes += 1;
                 }
