@@ -58,15 +58,19 @@ impl ChannelSpec {
         let d = raw.wrapping_sub(self.offset);
         // |d| · multiplier < 2^62 (validated).
         let p = i64::from(d).wrapping_mul(i64::from(self.multiplier));
-        let x = if self.shift == 0 {
-            p
-        } else {
-            // shift in 1..=62 (validated); adding 2^(shift-1) < 2^62 to |p| < 2^62 stays in i64.
-            p.wrapping_add(1i64 << (self.shift & 63).wrapping_sub(1)) >> (self.shift & 63)
-        };
-        // |x| <= 2^(input_bits-1) - 1 <= 32767 (validated at both ends of the monotonic range).
+        // |x| <= 2^(input_bits-1) - 1 <= 32767 (validated at both ends of the monotonic range),
+        // so the narrowing casts below keep every bit.
         #[allow(clippy::cast_possible_truncation)]
-        Some(x as i32)
+        let x = if self.shift == 0 {
+            p as i32
+        } else {
+            // floor((p + 2^(s-1)) / 2^s) = floor((floor(p / 2^(s-1)) + 1) / 2): with
+            // p = q·2^(s-1) + r, 0 <= r < 2^(s-1), the r / 2^s < 1/2 never carries into the floor.
+            // q is within ±(2·32767 + 1), so after the one 64-bit shift the rest is 32-bit.
+            let q = (p >> (self.shift & 63).wrapping_sub(1)) as i32;
+            q.wrapping_add(1) >> 1
+        };
+        Some(x)
     }
 }
 
