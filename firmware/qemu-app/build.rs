@@ -16,10 +16,11 @@ fn main() {
     if let Some(path) = env::var_os("LINEGATE_VECTORS") {
         println!("cargo:rerun-if-changed={}", PathBuf::from(&path).display());
         let text = fs::read_to_string(&path).expect("read LINEGATE_VECTORS");
+        // Lines starting with '#' (the model line) are comments.
         for (n, line) in text
             .lines()
             .enumerate()
-            .filter(|(_, l)| !l.trim().is_empty())
+            .filter(|(_, l)| !l.trim().is_empty() && !l.starts_with('#'))
         {
             let row: Vec<i32> = line
                 .split_whitespace()

@@ -353,7 +353,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     );
     set.add(
         out.join("vectors-holdout.txt"),
-        crate::replay::vectors(&holdout_ds),
+        crate::replay::vectors(&model, &holdout_ds),
     );
     let files = set.commit(force)?;
     Ok(DemoSummary {

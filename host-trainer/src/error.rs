@@ -129,6 +129,14 @@ pub enum InputError {
         /// Accepted NO-GO tokens.
         nogo: String,
     },
+    /// The log holds more units than the reader keeps in memory.
+    #[error("{path}: more than {max} units; split the log or raise --max-rows")]
+    TooManyRows {
+        /// File.
+        path: PathBuf,
+        /// The limit.
+        max: usize,
+    },
     /// A line is longer than the reader accepts.
     #[error("{path}: line {line}: longer than {max} bytes; is this a bench log?")]
     LineTooLong {

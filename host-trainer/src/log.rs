@@ -54,6 +54,8 @@ pub struct LogOptions {
     pub skip_bad_rows: bool,
     /// Longest accepted line, in bytes.
     pub max_line_len: usize,
+    /// Most units held in memory (4 bytes per reading each).
+    pub max_rows: usize,
     /// Show a progress bar.
     pub progress: bool,
 }
@@ -70,6 +72,7 @@ impl Default for LogOptions {
             nogo_labels: NOGO_TOKENS.iter().map(|s| s.to_string()).collect(),
             skip_bad_rows: false,
             max_line_len: 1 << 20,
+            max_rows: 50_000_000,
             progress: false,
         }
     }
@@ -827,6 +830,12 @@ pub fn read_log(
     let mut skipped = SkipReport::default();
     let scales = ds.scales.clone();
     let (cols2, sha) = scan(path, opts, model, Some(&scales), &mut skipped, |_, row| {
+        if ds.labels.len() >= opts.max_rows {
+            return Err(InputError::TooManyRows {
+                path: path.into(),
+                max: opts.max_rows,
+            });
+        }
         ds.raw.extend_from_slice(row.raw);
         ds.labels.push(row.label);
         ds.lines.push(row.line);

@@ -275,6 +275,9 @@ struct LogArgs {
     /// Skip bad rows (counted and reported) instead of stopping at the first.
     #[arg(long)]
     skip_bad_rows: bool,
+    /// Most units to hold in memory (4 bytes per reading each).
+    #[arg(long, default_value_t = 50_000_000)]
+    max_rows: usize,
 }
 
 impl LogArgs {
@@ -294,6 +297,7 @@ impl LogArgs {
             nogo_labels: lower(&self.nogo_labels, d.nogo_labels),
             skip_bad_rows: self.skip_bad_rows,
             max_line_len: d.max_line_len,
+            max_rows: self.max_rows,
             progress: !quiet && std::io::stderr().is_terminal(),
         }
     }
@@ -634,7 +638,7 @@ fn run(cli: &Cli) -> Result<()> {
             say_raw!("{}", replay::replay(&m, &ds));
             if let Some(v) = vectors {
                 let mut set = OutputSet::default();
-                set.add(v, replay::vectors(&ds));
+                set.add(v, replay::vectors(&m, &ds));
                 set.commit(*force)?;
             }
         }

@@ -1,6 +1,6 @@
 //! Replay: the shared kernel over a log, printing exactly the lines the device prints.
 //!
-//! Line format, one per unit in log order (0-based index):
+//! First line `# model <model id>`, then one line per unit in log order (0-based index):
 //! `<index> <GO|NO-GO|RECHECK> <score>` or `<index> FAULT ch<channel>`.
 
 use shared_model::{CheckedModel, Fault};
@@ -16,23 +16,35 @@ pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
     }
 }
 
-/// Every unit's line, joined with newlines (trailing newline included).
-pub fn replay(model: &CheckedModel, ds: &Dataset) -> String {
-    (0..ds.len())
-        .map(|i| line(i, model, ds.raw_row(i)) + "\n")
-        .collect()
+/// The first line, `# model <id>`, as the device prints it.
+pub fn model_line(model: &CheckedModel) -> String {
+    let id: String = model
+        .model()
+        .model_id
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    format!("# model {id}\n")
 }
 
-/// The raw test vectors, one unit per line, readings separated by spaces (input for the device build).
-pub fn vectors(ds: &Dataset) -> String {
-    (0..ds.len())
-        .map(|i| {
-            ds.raw_row(i)
-                .iter()
-                .map(|r| r.to_string())
-                .collect::<Vec<_>>()
-                .join(" ")
-                + "\n"
-        })
-        .collect()
+/// The model line, then every unit's line (trailing newline included).
+pub fn replay(model: &CheckedModel, ds: &Dataset) -> String {
+    let mut out = model_line(model);
+    for i in 0..ds.len() {
+        out.push_str(&line(i, model, ds.raw_row(i)));
+        out.push('\n');
+    }
+    out
+}
+
+/// The raw test vectors for the device build: the model line of the model they were prepared
+/// for, then one unit per line, readings separated by spaces.
+pub fn vectors(model: &CheckedModel, ds: &Dataset) -> String {
+    let mut out = model_line(model);
+    for i in 0..ds.len() {
+        let row: Vec<String> = ds.raw_row(i).iter().map(|r| r.to_string()).collect();
+        out.push_str(&row.join(" "));
+        out.push('\n');
+    }
+    out
 }

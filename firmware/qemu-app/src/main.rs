@@ -7,7 +7,7 @@
 mod board;
 
 use cortex_m_rt::entry;
-use cortex_m_semihosting::{debug, hprintln};
+use cortex_m_semihosting::{debug, hprint, hprintln};
 use firmware::{Classifier, Decision, Fault, GoNoGoLines, Station, StationFault, Step};
 use panic_semihosting as _;
 
@@ -31,6 +31,14 @@ fn main() -> ! {
         next: 0,
     };
     let mut station = Station::new(board::model_region(), sensor, lines);
+    if let Ok(c) = station.classifier() {
+        // The same first line as `linegate replay`: which model this device runs.
+        hprint!("# model ");
+        for b in c.model_id() {
+            hprint!("{:02x}", b);
+        }
+        hprintln!();
+    }
     if let Err(e) = station.classifier() {
         let _ = station.step();
         hprintln!("FAULT blob: {}", e);

@@ -60,10 +60,10 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
     let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt"))
         .unwrap()
         .lines()
-        .take(300)
+        .take(301)
         .map(String::from)
         .collect();
-    assert_eq!(vectors.len(), 300);
+    assert_eq!(vectors.len(), 301, "the model line and 300 vectors");
     let vpath = dir.path().join("vectors.txt");
     std::fs::write(&vpath, vectors.join("\n") + "\n").unwrap();
     let app = crate::root().join("firmware/qemu-app");
@@ -81,10 +81,26 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
     let hex = out.join("model.hex");
     let (code, stdout) = run_qemu(&elf, &format!("loader,file={}", hex.display()));
     assert_eq!(code, 0, "device run failed:\n{stdout}");
-    let device: Vec<&str> = stdout.lines().filter(|l| !l.starts_with('#')).collect();
     let replay = std::fs::read_to_string(out.join("replay-holdout.txt")).unwrap();
-    let host: Vec<&str> = replay.lines().take(300).collect();
-    assert_eq!(device.len(), 300, "device printed:\n{stdout}");
+    let model_line = replay.lines().next().unwrap();
+    assert!(model_line.starts_with("# model "), "{model_line}");
+    assert!(
+        stdout.lines().any(|l| l == model_line),
+        "the device names the same model:\n{stdout}"
+    );
+    let device: Vec<&str> = stdout.lines().filter(|l| !l.starts_with('#')).collect();
+    let host: Vec<&str> = replay
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .take(300)
+        .collect();
+    let tail: Vec<&str> = stdout.lines().rev().take(4).collect();
+    assert_eq!(
+        device.len(),
+        300,
+        "device printed {} result lines; last lines: {tail:?}",
+        device.len()
+    );
     for (i, (d, h)) in device.iter().zip(&host).enumerate() {
         assert_eq!(d, h, "vector {i}: device and replay differ");
     }
