@@ -398,6 +398,20 @@ struct Release {
     ac: AuditConfig,
 }
 
+impl Release {
+    /// Quantises and audits: the step `audit` and `pack` share.
+    fn run(&self) -> Result<(host_trainer::quantise::Quantised, audit::AuditReport)> {
+        Ok(audit::release(
+            &self.fm,
+            &self.train,
+            self.holdout.as_ref(),
+            self.qc,
+            &self.noise,
+            self.ac,
+        )?)
+    }
+}
+
 fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
     let fm = FloatModel::read(&r.model)?;
     let opts = r.log_args.options(quiet);
@@ -528,15 +542,16 @@ fn run(cli: &Cli) -> Result<()> {
             force,
             json,
         } => {
+            let rel = release_inputs(release, quiet)?;
+            let (_, r) = rel.run()?;
             let Release {
                 fm,
                 train,
                 holdout,
                 qc,
-                noise,
                 ac,
-            } = release_inputs(release, quiet)?;
-            let (_, r) = audit::release(&fm, &train, holdout.as_ref(), qc, &noise, ac)?;
+                ..
+            } = rel;
             let sw = if *sweep {
                 Some(audit::sweep(&fm, &train, holdout.as_ref(), qc, ac)?)
             } else {
@@ -572,15 +587,9 @@ fn run(cli: &Cli) -> Result<()> {
             override_audit,
             force,
         } => {
-            let Release {
-                fm,
-                train,
-                holdout,
-                qc,
-                noise,
-                ac,
-            } = release_inputs(release, quiet)?;
-            let (q, r) = audit::release(&fm, &train, holdout.as_ref(), qc, &noise, ac)?;
+            let rel = release_inputs(release, quiet)?;
+            let (q, r) = rel.run()?;
+            let fm = rel.fm;
             let mark = match (r.passed, override_audit) {
                 (true, _) => shared_model::AuditMark::Passed,
                 (false, true) => shared_model::AuditMark::Overridden,
