@@ -863,6 +863,42 @@ pub fn read_log(
     Ok(ds)
 }
 
+/// One unit as streamed by [`stream_units`].
+pub struct StreamedUnit<'a> {
+    /// 1-based line in the file.
+    pub line: u64,
+    /// Raw readings, in the order of `scales`.
+    pub raw: &'a [i32],
+    /// +1 GO, -1 NO-GO.
+    pub label: i8,
+    /// The unit id cell, if the log has a unit-id column.
+    pub unit: Option<&'a [u8]>,
+}
+
+/// Streams the units of a log converted to raw readings with `scales` (from a trained model),
+/// without holding the log in memory: for logs of any length. Returns the file's SHA-256.
+///
+/// # Errors
+/// The first [`InputError`] (row errors are skipped and counted under `skip_bad_rows`), or
+/// whatever `on_unit` returns.
+pub fn stream_units(
+    path: &Path,
+    opts: &LogOptions,
+    scales: &[ChannelScale],
+    skipped: &mut SkipReport,
+    mut on_unit: impl FnMut(StreamedUnit<'_>) -> Result<(), InputError>,
+) -> Result<String, InputError> {
+    let (_, sha) = scan(path, opts, Some(scales), Some(scales), skipped, |_, row| {
+        on_unit(StreamedUnit {
+            line: row.line,
+            raw: row.raw,
+            label: row.label,
+            unit: row.unit,
+        })
+    })?;
+    Ok(sha)
+}
+
 /// Rows in the file, estimated from the first 256 KiB (2 % extra), or `None` for small files.
 fn estimate_rows(path: &Path) -> Option<usize> {
     let len = std::fs::metadata(path).ok()?.len();

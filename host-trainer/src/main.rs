@@ -144,6 +144,9 @@ enum Cmd {
         /// Write audit.md, audit.html and audit.json here.
         #[arg(long)]
         report_dir: Option<PathBuf>,
+        /// Write every unit's float and fixed scores, verdicts and margins to this CSV file.
+        #[arg(long, value_name = "FILE")]
+        units: Option<PathBuf>,
         /// Overwrite existing report files.
         #[arg(long)]
         force: bool,
@@ -539,11 +542,12 @@ fn run(cli: &Cli) -> Result<()> {
             release,
             sweep,
             report_dir,
+            units,
             force,
             json,
         } => {
             let rel = release_inputs(release, quiet)?;
-            let (_, r) = rel.run()?;
+            let (q, r) = rel.run()?;
             let Release {
                 fm,
                 train,
@@ -558,13 +562,20 @@ fn run(cli: &Cli) -> Result<()> {
                 None
             };
             let md = report::markdown(&fm, &r, sw.as_ref());
+            let mut set = OutputSet::default();
             if let Some(dir) = report_dir {
-                let mut set = OutputSet::default();
                 set.add(dir.join("audit.md"), md.as_bytes());
                 set.add(dir.join("audit.html"), report::html(&fm, &r, &md));
                 set.add(dir.join("audit.json"), to_json(&r));
-                set.commit(*force)?;
             }
+            if let Some(path) = units {
+                let mut sets = vec![("train", &train)];
+                if let Some(h) = &holdout {
+                    sets.push(("holdout", h));
+                }
+                set.add(path, audit::units_csv(&q, &fm, &sets));
+            }
+            set.commit(*force)?;
             if *json {
                 say_raw!(
                     "{}",
@@ -643,11 +654,30 @@ fn run(cli: &Cli) -> Result<()> {
                 std::fs::read(blob).with_context(|| format!("{}: cannot read", blob.display()))?;
             let m = shared_model::blob::decode(&bytes)
                 .map_err(|e| anyhow::anyhow!("{}: {e}", blob.display()))?;
-            let ds = workflow::load_for_model(log, &log_args.options(quiet), &fm)?;
-            say_raw!("{}", replay::replay(&m, &ds));
-            if let Some(v) = vectors {
+            // Streams: a log of any length, one line out per unit in.
+            let mut vec_text = vectors.as_ref().map(|_| replay::model_line(&m));
+            say_raw!("{}", replay::model_line(&m));
+            let mut index = 0usize;
+            let mut skipped = host_trainer::log::SkipReport::default();
+            host_trainer::log::stream_units(
+                log,
+                &log_args.options(quiet),
+                &fm.channels,
+                &mut skipped,
+                |u| {
+                    say!("{}", replay::line(index, &m, u.raw));
+                    if let Some(t) = vec_text.as_mut() {
+                        let row: Vec<String> = u.raw.iter().map(|r| r.to_string()).collect();
+                        t.push_str(&row.join(" "));
+                        t.push('\n');
+                    }
+                    index += 1;
+                    Ok(())
+                },
+            )?;
+            if let (Some(v), Some(text)) = (vectors, vec_text) {
                 let mut set = OutputSet::default();
-                set.add(v, replay::vectors(&m, &ds));
+                set.add(v, text);
                 set.commit(*force)?;
             }
         }

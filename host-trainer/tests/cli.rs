@@ -432,6 +432,74 @@ fn replay_prints_the_demo_lines() {
 }
 
 #[test]
+fn audit_lists_every_unit_with_the_kernel_scores() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    assert_eq!(
+        linegate(&["-q", "demo", "--out", "demo"], d).status.code(),
+        Some(0)
+    );
+    // Audit in the format the demo packed, so the kernel scores are the device's.
+    let model: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.join("demo/audit.json")).unwrap()).unwrap();
+    let (wb, ib) = (
+        model["weight_bits"].to_string(),
+        model["input_bits"].to_string(),
+    );
+    let args = [
+        "audit",
+        "--model",
+        "demo/model.json",
+        "--train",
+        "demo/train-synthetic.csv",
+        "--weight-bits",
+        &wb,
+        "--input-bits",
+        &ib,
+    ];
+    let o = linegate(
+        &[
+            &args[..],
+            &[
+                "--holdout",
+                "demo/holdout-synthetic.csv",
+                "--units",
+                "units.csv",
+                "-q",
+            ],
+        ]
+        .concat(),
+        d,
+    );
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let csv = std::fs::read_to_string(d.join("units.csv")).unwrap();
+    let rows: Vec<&str> = csv.lines().skip(1).collect();
+    assert_eq!(rows.len(), 800 + 400, "every training and holdout unit");
+    let replay = std::fs::read_to_string(d.join("demo/replay-holdout.txt")).unwrap();
+    let device: Vec<&str> = replay
+        .lines()
+        .skip(1)
+        .map(|l| l.split(' ').nth(2).unwrap())
+        .collect();
+    let audit: Vec<&str> = rows
+        .iter()
+        .filter(|r| r.split(',').nth(1) == Some("holdout"))
+        .map(|r| r.split(',').nth(7).unwrap())
+        .collect();
+    assert_eq!(audit, device, "audit's fixed scores are the device's");
+    assert!(
+        rows.iter()
+            .all(|r| r.starts_with(model["model_id"].as_str().unwrap())),
+        "every row names the model"
+    );
+}
+
+#[test]
 fn every_subcommand_help_has_an_example() {
     let dir = tempfile::tempdir().unwrap();
     for cmd in [
