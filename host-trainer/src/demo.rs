@@ -282,6 +282,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         c: 10.0,
         max_false_go: None,
         folds: 5,
+        progress: false,
     };
     // Provenance names the files as the user will find them in `out`.
     let mut train_named = train_ds.clone();

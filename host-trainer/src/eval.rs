@@ -154,27 +154,43 @@ pub struct EvalRow {
     pub accuracy: f64,
 }
 
-/// k-fold cross-validation of each trainer; counts are pooled over the folds.
+/// k-fold cross-validation of each trainer; counts are pooled over the folds. Folds and
+/// trainers run in parallel; the pooled integer counts do not depend on the order.
 pub fn cross_validate(
     ds: &Dataset,
     k: usize,
     kinds: &[TrainerKind],
     cfg: TrainConfig,
+    progress: Option<&indicatif::ProgressBar>,
 ) -> Vec<EvalRow> {
+    use rayon::prelude::*;
     let folds = ds.folds(k, cfg.seed);
+    let jobs: Vec<(usize, usize)> = (0..kinds.len())
+        .flat_map(|t| (0..folds.len()).map(move |f| (t, f)))
+        .collect();
+    let results: Vec<(usize, Counts)> = jobs
+        .par_iter()
+        .map(|&(t, f)| {
+            let train_idx: Vec<usize> = folds
+                .iter()
+                .enumerate()
+                .filter(|(g, _)| *g != f)
+                .flat_map(|(_, v)| v.iter().copied())
+                .collect();
+            let model = train(ds, &train_idx, kinds[t], cfg).model;
+            if let Some(p) = progress {
+                p.inc(1);
+            }
+            (t, evaluate(&model, 0.0, ds, &folds[f]))
+        })
+        .collect();
     kinds
         .iter()
-        .map(|&kind| {
+        .enumerate()
+        .map(|(t, &kind)| {
             let mut total = Counts::default();
-            for (f, test) in folds.iter().enumerate() {
-                let train_idx: Vec<usize> = folds
-                    .iter()
-                    .enumerate()
-                    .filter(|(g, _)| *g != f)
-                    .flat_map(|(_, v)| v.iter().copied())
-                    .collect();
-                let t = train(ds, &train_idx, kind, cfg);
-                total.add(evaluate(&t.model, 0.0, ds, test));
+            for (_, c) in results.iter().filter(|(u, _)| *u == t) {
+                total.add(*c);
             }
             EvalRow {
                 trainer: kind,

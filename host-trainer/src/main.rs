@@ -518,6 +518,7 @@ fn run(cli: &Cli) -> Result<()> {
                 c: *c,
                 max_false_go: *max_false_go,
                 folds: *folds,
+                progress: !quiet && std::io::stderr().is_terminal(),
             };
             let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), None, &req);
             if let Some(h) = holdout {

@@ -79,6 +79,8 @@ pub struct TrainRequest {
     pub max_false_go: Option<usize>,
     /// k for cross-validation (0 or 1: none).
     pub folds: usize,
+    /// Show a progress bar on long work.
+    pub progress: bool,
 }
 
 /// Everything `train` found.
@@ -144,7 +146,7 @@ pub fn train_model(
     let model = FloatModel::new(provenance, ds.scales.clone(), &t.model, threshold, summary);
     let holdout = holdout.map(|h| evaluate(&model.linear(), model.threshold, h, &h.all()));
     let cross_validation = if req.folds >= 2 {
-        cross_validate(ds, req.folds, &TrainerKind::ALL, cfg)
+        cross_validate_with_bar(ds, req, cfg)
     } else {
         Vec::new()
     };
@@ -155,4 +157,22 @@ pub fn train_model(
         holdout,
         cross_validation,
     }
+}
+
+fn cross_validate_with_bar(ds: &Dataset, req: &TrainRequest, cfg: TrainConfig) -> Vec<EvalRow> {
+    let jobs = (req.folds * TrainerKind::ALL.len()) as u64;
+    let bar = (req.progress && ds.len() >= 100_000).then(|| {
+        let b = indicatif::ProgressBar::new(jobs);
+        b.set_style(
+            indicatif::ProgressStyle::with_template("{msg} [{bar:30}] {pos}/{len} ({eta})")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        b.set_message(format!("{}-fold cross-validation", req.folds));
+        b
+    });
+    let rows = cross_validate(ds, req.folds, &TrainerKind::ALL, cfg, bar.as_ref());
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    rows
 }

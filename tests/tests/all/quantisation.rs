@@ -67,6 +67,7 @@ fn trained(pts: &[Vec<f64>], labels: &[i8]) -> (host_trainer::float_model::Float
         c: 10.0,
         max_false_go: None,
         folds: 0,
+        progress: false,
     };
     (train_model(&ds, None, None, &req).model, ds)
 }
