@@ -102,6 +102,23 @@ pub fn radius(ds: &Dataset, idx: &[usize]) -> f64 {
         .fold(1.0, f64::max)
 }
 
+/// Position in `units` of the first unit on the wrong side of (or on) the boundary.
+fn first_mistake(f: &RawForm, ds: &Dataset, units: &[usize]) -> Option<usize> {
+    let d = ds.dim();
+    if let (Some(&a), Some(&z)) = (units.first(), units.last()) {
+        // A run of consecutive units: stream the rows directly.
+        if z >= a && z - a + 1 == units.len() {
+            let rows = ds.raw[a * d..(z + 1) * d].chunks_exact(d);
+            return rows
+                .zip(&ds.labels[a..=z])
+                .position(|(row, &l)| f64::from(l) * f.score(row) <= 0.0);
+        }
+    }
+    units
+        .iter()
+        .position(|&i| ds.y(i) * f.score(ds.raw_row(i)) <= 0.0)
+}
+
 /// Units per block of the perceptron's visit order.
 const BLOCK: usize = 4096;
 
@@ -133,23 +150,26 @@ pub fn perceptron(
         blocks.shuffle(&mut rng);
         let mut mistakes = 0usize;
         for b in &blocks {
-            for &i in b.iter() {
-                // v·z/R evaluated on the raw readings: (v·z)/R = Σ (vⱼ/(halfⱼ·R))·rawⱼ + const.
+            let mut start = 0;
+            // v·z/R is evaluated on the raw readings, (v·z)/R = Σ (vⱼ/(halfⱼ·R))·rawⱼ + const,
+            // and the block is scanned in a tight loop up to its next mistake.
+            while let Some(p) = first_mistake(&on_raw, ds, &b[start..]) {
+                let i = b[start + p];
+                c += p as f64;
                 let y = ds.y(i);
-                let s = on_raw.score(ds.raw_row(i));
-                if y * s <= 0.0 {
-                    sc.row(ds, i, &mut z[..d]);
-                    z[d] = 1.0;
-                    for ((vj, uj), zj) in v.iter_mut().zip(u.iter_mut()).zip(&z) {
-                        *vj += y * zj / r;
-                        *uj += c * y * zj / r;
-                    }
-                    on_raw = RawForm::augmented(ds, &v, r);
-                    updates += 1;
-                    mistakes += 1;
+                sc.row(ds, i, &mut z[..d]);
+                z[d] = 1.0;
+                for ((vj, uj), zj) in v.iter_mut().zip(u.iter_mut()).zip(&z) {
+                    *vj += y * zj / r;
+                    *uj += c * y * zj / r;
                 }
+                on_raw = RawForm::augmented(ds, &v, r);
+                updates += 1;
+                mistakes += 1;
                 c += 1.0;
+                start += p + 1;
             }
+            c += (b.len() - start) as f64;
         }
         if kind == PerceptronKind::Pocket {
             let errors = errors_of(ds, idx, &v, r);
