@@ -381,10 +381,18 @@ impl Parser<'_> {
             *v = x;
         }
         let lf = trim(f.get(cols.label));
-        let token = String::from_utf8_lossy(lf).to_lowercase();
-        if opts.go_labels.contains(&token) {
+        // Tokens are compared case-insensitively; ASCII labels (the usual case) need no allocation.
+        let is = |tokens: &[String]| {
+            if lf.is_ascii() {
+                tokens.iter().any(|t| t.as_bytes().eq_ignore_ascii_case(lf))
+            } else {
+                let token = String::from_utf8_lossy(lf).to_lowercase();
+                tokens.contains(&token)
+            }
+        };
+        if is(&opts.go_labels) {
             Ok(Some(1))
-        } else if opts.nogo_labels.contains(&token) {
+        } else if is(&opts.nogo_labels) {
             Ok(Some(-1))
         } else {
             Err(InputError::UnknownLabel {
