@@ -1,7 +1,7 @@
 //! Packing: the model blob, raw `.bin` and Intel HEX images, and `inspect`.
 
 use serde::Serialize;
-use shared_model::{CheckedModel, DecodeError, blob};
+use shared_model::{ChannelSpec, CheckedModel, DecodeError, blob};
 
 /// The blob bytes of a model.
 pub fn blob_bytes(model: &CheckedModel) -> Vec<u8> {
@@ -9,25 +9,6 @@ pub fn blob_bytes(model: &CheckedModel) -> Vec<u8> {
     // MAX_BLOB_LEN holds any valid model, so encode cannot fail here.
     let n = blob::encode(model, &mut buf).unwrap_or(0);
     buf[..n].to_vec()
-}
-
-/// One channel as `inspect` shows it.
-#[derive(Clone, Debug, Serialize)]
-pub struct InspectChannel {
-    /// Name.
-    pub name: String,
-    /// Valid raw range.
-    pub raw_min: i32,
-    /// Valid raw range.
-    pub raw_max: i32,
-    /// Conversion offset.
-    pub offset: i32,
-    /// Conversion multiplier.
-    pub multiplier: i32,
-    /// Conversion shift.
-    pub shift: u8,
-    /// Integer weight.
-    pub weight: i32,
 }
 
 /// What `inspect` reports of a blob, valid or not.
@@ -61,8 +42,8 @@ pub struct Inspection {
     pub nogo_max: Option<i64>,
     /// GO at or above.
     pub go_min: Option<i64>,
-    /// Channels.
-    pub channels: Vec<InspectChannel>,
+    /// Channels, as stored.
+    pub channels: Vec<ChannelSpec>,
 }
 
 /// Decodes a blob for display; a corrupt blob still shows what can be read.
@@ -111,19 +92,7 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) 
         ins.bias = Some(m.bias);
         ins.nogo_max = Some(m.nogo_max);
         ins.go_min = Some(m.go_min);
-        ins.channels = m
-            .channels
-            .iter()
-            .map(|c| InspectChannel {
-                name: c.name.to_string(),
-                raw_min: c.raw_min,
-                raw_max: c.raw_max,
-                offset: c.offset,
-                multiplier: c.multiplier,
-                shift: c.shift,
-                weight: c.weight,
-            })
-            .collect();
+        ins.channels = m.channels.iter().cloned().collect();
     }
     (ins, decoded)
 }
