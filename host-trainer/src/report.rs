@@ -199,7 +199,19 @@ pub fn margin_svg(r: &AuditReport) -> String {
             .chain(&r.fixed_margins)
             .fold(1.0f64, |m, v| m.max(v.abs()));
         let bins = 40usize;
-        let bin = |v: f64| (((v / scale + 1.0) / 2.0 * bins as f64) as usize).min(bins - 1);
+        // Show [-1, 1] only when some unit is on the wrong side; otherwise [0, 1].
+        let lo = if r
+            .float_margins
+            .iter()
+            .chain(&r.fixed_margins)
+            .any(|v| *v < 0.0)
+        {
+            -1.0
+        } else {
+            0.0
+        };
+        let w = (1.0 - lo) / bins as f64;
+        let bin = |v: f64| (((v / scale - lo) / w).max(0.0) as usize).min(bins - 1);
         let mut hf = vec![0u32; bins];
         let mut hq = vec![0u32; bins];
         r.float_margins.iter().for_each(|v| hf[bin(*v)] += 1);
@@ -213,20 +225,19 @@ pub fn margin_svg(r: &AuditReport) -> String {
             .margin(10)
             .x_label_area_size(30)
             .y_label_area_size(40)
-            .build_cartesian_2d(-1.0f64..1.0f64, 0u32..top + 1)
+            .build_cartesian_2d(lo..1.0f64, 0u32..top + 1)
         {
             let _ = chart
                 .configure_mesh()
                 .x_desc("margin / largest margin")
                 .y_desc("units")
                 .draw();
-            let w = 2.0 / bins as f64;
             let _ = chart.draw_series(hf.iter().enumerate().map(|(i, &c)| {
-                let x0 = -1.0 + i as f64 * w;
+                let x0 = lo + i as f64 * w;
                 Rectangle::new([(x0, 0), (x0 + w * 0.5, c)], BLUE.mix(0.6).filled())
             }));
             let _ = chart.draw_series(hq.iter().enumerate().map(|(i, &c)| {
-                let x0 = -1.0 + i as f64 * w + w * 0.5;
+                let x0 = lo + i as f64 * w + w * 0.5;
                 Rectangle::new([(x0, 0), (x0 + w * 0.5, c)], RED.mix(0.6).filled())
             }));
         }
