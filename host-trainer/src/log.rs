@@ -8,7 +8,7 @@
 
 use std::collections::BTreeMap;
 use std::fs::File;
-use std::io::{BufRead, BufReader, Read};
+use std::io::Read;
 use std::path::Path;
 
 use sha2::{Digest, Sha256};
@@ -495,6 +495,110 @@ impl Parser<'_> {
     }
 }
 
+/// Reads a file in blocks, advancing an optional progress bar.
+struct BlockReader {
+    file: File,
+    bar: Option<indicatif::ProgressBar>,
+    block: usize,
+    eof: bool,
+}
+
+impl BlockReader {
+    /// Appends up to one block to `buf`; sets `eof` at the end of the file.
+    fn refill(&mut self, buf: &mut Vec<u8>) -> Result<(), std::io::Error> {
+        let start = buf.len();
+        buf.resize(start + self.block, 0);
+        let mut n = start;
+        while n < buf.len() {
+            let got = self.file.read(&mut buf[n..])?;
+            if got == 0 {
+                self.eof = true;
+                break;
+            }
+            n += got;
+        }
+        buf.truncate(n);
+        if let Some(b) = &self.bar {
+            b.inc((n - start) as u64);
+        }
+        Ok(())
+    }
+}
+
+/// The header record as read into the buffer.
+struct Header {
+    names: Vec<String>,
+    /// Offset of the header's first byte (after a byte-order mark).
+    start: usize,
+    /// Offset just past the header's line end.
+    end: usize,
+    delimiter: u8,
+}
+
+/// Reads the first record (the header) into `buf`, refilling until it is complete.
+fn read_header(
+    path: &Path,
+    opts: &LogOptions,
+    reader: &mut BlockReader,
+    buf: &mut Vec<u8>,
+) -> Result<Header, InputError> {
+    let io = |e| InputError::io(path, e);
+    reader.refill(buf).map_err(io)?;
+    // A UTF-8 byte-order mark before the header is common in spreadsheet exports.
+    let start = if buf.starts_with(b"\xEF\xBB\xBF") {
+        3
+    } else {
+        0
+    };
+    let tsv = path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
+    let delimiter = if tsv { b'\t' } else { b',' };
+    let end = loop {
+        let mut q = false;
+        if let Some(&e) = record_ends(&buf[start..], &mut q).first() {
+            break start + e;
+        }
+        if reader.eof {
+            break buf.len();
+        }
+        if buf.len() > opts.max_line_len {
+            return Err(InputError::LineTooLong {
+                path: path.into(),
+                line: 1,
+                max: opts.max_line_len,
+            });
+        }
+        reader.refill(buf).map_err(io)?;
+    };
+    let header = strip_line_end(&buf[start..end]);
+    if header.is_empty() && end >= buf.len() {
+        return Err(InputError::Empty { path: path.into() });
+    }
+    let mut owned = csv::ByteRecord::new();
+    let mut ranges = Vec::new();
+    let src = fields(header, delimiter, &mut owned, &mut ranges).map_err(|message| {
+        InputError::Format {
+            path: path.into(),
+            message,
+        }
+    })?;
+    let hf = Fields {
+        src,
+        ranges: &ranges,
+    };
+    let names = (0..hf.len())
+        .map(|i| std::str::from_utf8(hf.get(i)).map(|s| s.trim().to_string()))
+        .collect::<Result<Vec<_>, _>>()
+        .map_err(|_| InputError::HeaderNotUtf8 { path: path.into() })?;
+    Ok(Header {
+        names,
+        start,
+        end,
+        delimiter,
+    })
+}
+
 /// Streams the log once, calling `on_row` for each good row in file order. Returns the
 /// file's SHA-256. The file is read in blocks; each block's complete records are split
 /// into pieces parsed in parallel, then handed on in order.
@@ -521,7 +625,7 @@ fn scan_blocks(
 ) -> Result<(Columns, String), InputError> {
     use rayon::prelude::*;
     let io = |e| InputError::io(path, e);
-    let mut file = File::open(path).map_err(io)?;
+    let file = File::open(path).map_err(io)?;
     let len = file.metadata().map(|m| m.len()).unwrap_or(0);
     let bar = (opts.progress && len > 16 << 20).then(|| {
         let b = indicatif::ProgressBar::new(len);
@@ -535,77 +639,21 @@ fn scan_blocks(
         b
     });
     let mut hasher = Sha256::new();
+    let mut reader = BlockReader {
+        file,
+        bar: bar.clone(),
+        block,
+        eof: false,
+    };
     let mut buf: Vec<u8> = Vec::new();
-    let mut eof = false;
-    // Appends up to `block` more bytes to `buf`; they are hashed later, beside the parsing.
+    // Bytes are hashed later, beside the parsing; `hashed` counts those already hashed.
     let mut hashed = 0usize;
-    let mut refill = |buf: &mut Vec<u8>, eof: &mut bool| -> Result<(), InputError> {
-        let start = buf.len();
-        buf.resize(start + block, 0);
-        let mut n = start;
-        while n < buf.len() {
-            let got = file.read(&mut buf[n..]).map_err(io)?;
-            if got == 0 {
-                *eof = true;
-                break;
-            }
-            n += got;
-        }
-        buf.truncate(n);
-        if let Some(b) = &bar {
-            b.inc((n - start) as u64);
-        }
-        Ok(())
-    };
-    refill(&mut buf, &mut eof)?;
-    // A UTF-8 byte-order mark before the header is common in spreadsheet exports.
-    let mut pos = if buf.starts_with(b"\xEF\xBB\xBF") {
-        3
-    } else {
-        0
-    };
-    let tsv = path
-        .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
-    let delimiter = if tsv { b'\t' } else { b',' };
-    // The header: the first record, read with more bytes until it is complete.
-    let header_end = loop {
-        let mut q = false;
-        if let Some(&e) = record_ends(&buf[pos..], &mut q).first() {
-            break pos + e;
-        }
-        if eof {
-            break buf.len();
-        }
-        if buf.len() > opts.max_line_len {
-            return Err(InputError::LineTooLong {
-                path: path.into(),
-                line: 1,
-                max: opts.max_line_len,
-            });
-        }
-        refill(&mut buf, &mut eof)?;
-    };
-    let header = strip_line_end(&buf[pos..header_end]);
-    if header.is_empty() && header_end >= buf.len() {
-        return Err(InputError::Empty { path: path.into() });
-    }
-    let mut owned = csv::ByteRecord::new();
-    let mut ranges = Vec::new();
-    let src = fields(header, delimiter, &mut owned, &mut ranges).map_err(|message| {
-        InputError::Format {
-            path: path.into(),
-            message,
-        }
-    })?;
-    let hf = Fields {
-        src,
-        ranges: &ranges,
-    };
-    let names = (0..hf.len())
-        .map(|i| std::str::from_utf8(hf.get(i)).map(|s| s.trim().to_string()))
-        .collect::<Result<Vec<_>, _>>()
-        .map_err(|_| InputError::HeaderNotUtf8 { path: path.into() })?;
+    let Header {
+        names,
+        start: mut pos,
+        end: header_end,
+        delimiter,
+    } = read_header(path, opts, &mut reader, &mut buf)?;
     let mut line = 1 + count_lf(&buf[pos..header_end]);
     pos = header_end;
     let cols = Columns::resolve(path, names, opts, model)?;
@@ -652,7 +700,7 @@ fn scan_blocks(
         let body = &buf[pos..];
         let mut q = in_quote;
         let mut ends = record_ends(body, &mut q);
-        if eof && ends.last() != Some(&body.len()) && !body.is_empty() {
+        if reader.eof && ends.last() != Some(&body.len()) && !body.is_empty() {
             ends.push(body.len());
         }
         if discarding {
@@ -726,13 +774,13 @@ fn scan_blocks(
             hasher.update(&buf[hashed..]);
             hashed = buf.len();
         }
-        if eof && pos >= buf.len() {
+        if reader.eof && pos >= buf.len() {
             break;
         }
         buf.drain(..pos);
         hashed -= pos;
         pos = 0;
-        refill(&mut buf, &mut eof)?;
+        reader.refill(&mut buf).map_err(io)?;
     }
     if let Some(b) = &bar {
         b.finish_and_clear();
@@ -936,38 +984,14 @@ fn no_rows(path: &Path, skipped: &SkipReport) -> InputError {
 /// Header problems: empty file, duplicate or unknown names, no label.
 pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, InputError> {
     let file = File::open(path).map_err(|e| InputError::io(path, e))?;
-    let mut r = BufReader::new(file);
-    if r.fill_buf()
-        .map_err(|e| InputError::io(path, e))?
-        .starts_with(b"\xEF\xBB\xBF")
-    {
-        r.consume(3);
-    }
-    let tsv = path
-        .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
-    let mut rdr = csv::ReaderBuilder::new()
-        .delimiter(if tsv { b'\t' } else { b',' })
-        .has_headers(false)
-        .flexible(true)
-        .from_reader(r);
-    let mut rec = csv::ByteRecord::new();
-    match rdr.read_byte_record(&mut rec) {
-        Ok(true) => {}
-        Ok(false) => return Err(InputError::Empty { path: path.into() }),
-        Err(e) => {
-            return Err(InputError::Format {
-                path: path.into(),
-                message: e.to_string(),
-            });
-        }
-    }
-    let names = rec
-        .iter()
-        .map(|f| std::str::from_utf8(f).map(|s| s.trim().to_string()))
-        .collect::<Result<Vec<_>, _>>()
-        .map_err(|_| InputError::HeaderNotUtf8 { path: path.into() })?;
-    let cols = Columns::resolve(path, names, opts, None)?;
+    let mut reader = BlockReader {
+        file,
+        bar: None,
+        block: 64 << 10,
+        eof: false,
+    };
+    let header = read_header(path, opts, &mut reader, &mut Vec::new())?;
+    let cols = Columns::resolve(path, header.names, opts, None)?;
     Ok(cols
         .channels
         .iter()
