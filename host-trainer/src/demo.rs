@@ -273,7 +273,13 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         .collect::<Result<_, _>>()?;
     let sheet_path = write_in("channels.toml", &sheet_text)?;
     let opts = LogOptions::default();
-    let (train_ds, sheet) = workflow::load(&paths[0], &opts, Some(&sheet_path))?;
+    // Provenance and reports name the files as the user will find them in `out`.
+    let (mut train_ds, sheet) = workflow::load(&paths[0], &opts, Some(&sheet_path))?;
+    train_ds.path = out.join(logs[0].0);
+    let sheet = sheet.map(|(_, mut f)| {
+        f.path = out.join("channels.toml");
+        f
+    });
     let (drift_ds, _) = workflow::load(&paths[1], &opts, Some(&sheet_path))?;
     let req = TrainRequest {
         trainer: TrainerKind::MaxMargin,
@@ -284,26 +290,10 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         folds: 5,
         progress: false,
     };
-    // Provenance names the files as the user will find them in `out`.
-    let mut train_named = train_ds.clone();
-    train_named.path = out.join(logs[0].0);
-    let mut sheet_named = sheet.map(|(_, f)| f);
-    if let Some(f) = sheet_named.as_mut() {
-        f.path = out.join("channels.toml");
-    }
-    let mut fm_probe = workflow::train_model(&train_named, sheet_named.as_ref(), None, &req);
-    let holdout_ds = workflow::load_for_model(&paths[2], &opts, &fm_probe.model)?;
-    fm_probe.holdout = Some(crate::eval::evaluate(
-        &fm_probe.model.linear(),
-        fm_probe.model.threshold,
-        &holdout_ds,
-        &holdout_ds.all(),
-    ));
-    let train = fm_probe;
-    // Reports name the logs where the user finds them.
-    let (mut train_ds, mut holdout_ds) = (train_ds, holdout_ds);
-    train_ds.path = out.join(logs[0].0);
+    let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req);
+    let mut holdout_ds = workflow::load_for_model(&paths[2], &opts, &train.model)?;
     holdout_ds.path = out.join(logs[2].0);
+    train.evaluate_holdout(&holdout_ds);
     let check_drift = crate::separability::check(&drift_ds, &drift_ds.all(), 200, 1);
     let fm = &train.model;
     let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();

@@ -520,15 +520,10 @@ fn run(cli: &Cli) -> Result<()> {
                 folds: *folds,
                 progress: !quiet && std::io::stderr().is_terminal(),
             };
-            let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), None, &req);
+            let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req);
             if let Some(h) = holdout {
                 let hd = workflow::load_for_model(h, &opts, &out.model)?;
-                out.holdout = Some(host_trainer::eval::evaluate(
-                    &out.model.linear(),
-                    out.model.threshold,
-                    &hd,
-                    &hd.all(),
-                ));
+                out.evaluate_holdout(&hd);
             }
             let mut set = OutputSet::default();
             set.add(output, out.model.to_json());

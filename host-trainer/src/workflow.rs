@@ -98,13 +98,20 @@ pub struct TrainOutcome {
     pub cross_validation: Vec<EvalRow>,
 }
 
+impl TrainOutcome {
+    /// Evaluates the model on a holdout log (read with the model's scaling, so only after training).
+    pub fn evaluate_holdout(&mut self, holdout: &Dataset) {
+        self.holdout = Some(evaluate(
+            &self.model.linear(),
+            self.model.threshold,
+            holdout,
+            &holdout.all(),
+        ));
+    }
+}
+
 /// Trains a float model on `ds`.
-pub fn train_model(
-    ds: &Dataset,
-    sheet: Option<&InputFile>,
-    holdout: Option<&Dataset>,
-    req: &TrainRequest,
-) -> TrainOutcome {
+pub fn train_model(ds: &Dataset, sheet: Option<&InputFile>, req: &TrainRequest) -> TrainOutcome {
     let idx = ds.all();
     let report = check(ds, &idx, req.epochs, req.seed);
     let cfg = TrainConfig {
@@ -144,7 +151,6 @@ pub fn train_model(
         max_false_go: req.max_false_go,
     };
     let model = FloatModel::new(provenance, ds.scales.clone(), &t.model, threshold, summary);
-    let holdout = holdout.map(|h| evaluate(&model.linear(), model.threshold, h, &h.all()));
     let cross_validation = if req.folds >= 2 {
         cross_validate_with_bar(ds, req, cfg)
     } else {
@@ -154,7 +160,7 @@ pub fn train_model(
         model,
         check: report,
         training,
-        holdout,
+        holdout: None,
         cross_validation,
     }
 }

@@ -69,7 +69,7 @@ fn trained(pts: &[Vec<f64>], labels: &[i8]) -> (host_trainer::float_model::Float
         folds: 0,
         progress: false,
     };
-    (train_model(&ds, None, None, &req).model, ds)
+    (train_model(&ds, None, &req).model, ds)
 }
 
 #[test]
