@@ -26,6 +26,11 @@ use crate::log::SkipReport;
 use crate::scaling::ChannelScale;
 use crate::trainer::{Linear, ThresholdShift};
 
+/// Lower-case hex of `bytes`: how model ids and file hashes are written everywhere.
+pub fn lower_hex(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
+}
+
 /// Format tag in every float model file.
 pub const FORMAT: &str = "linegate-float-model";
 /// Layout version of the float model file.
@@ -152,10 +157,7 @@ impl FloatModel {
             h.update(c.name.as_bytes());
             h.update([0]);
         }
-        h.finalize()[..16]
-            .iter()
-            .map(|b| format!("{b:02x}"))
-            .collect()
+        lower_hex(&h.finalize()[..16])
     }
 
     /// The model id as 16 bytes.

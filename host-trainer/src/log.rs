@@ -786,7 +786,7 @@ fn scan_blocks(
         b.finish_and_clear();
     }
     let hash = hasher.finalize();
-    Ok((cols, hash.iter().map(|b| format!("{b:02x}")).collect()))
+    Ok((cols, crate::float_model::lower_hex(&hash)))
 }
 
 fn is_row_error(e: &InputError) -> bool {

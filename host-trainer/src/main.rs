@@ -793,12 +793,7 @@ fn inspect(
         }
     }
     let m = decoded.map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
-    let id: String = m
-        .model()
-        .model_id
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect();
+    let id = host_trainer::float_model::lower_hex(&m.model().model_id);
     if let Some(p) = model {
         let fm = FloatModel::read(p)?;
         if fm.model_id != id {

@@ -18,13 +18,10 @@ pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
 
 /// The first line, `# model <id>`, as the device prints it.
 pub fn model_line(model: &CheckedModel) -> String {
-    let id: String = model
-        .model()
-        .model_id
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect();
-    format!("# model {id}\n")
+    format!(
+        "# model {}\n",
+        crate::float_model::lower_hex(&model.model().model_id)
+    )
 }
 
 /// The model line, then every unit's line (trailing newline included).

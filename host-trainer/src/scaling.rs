@@ -204,7 +204,15 @@ impl ChannelSheet {
     /// [`InputError::Io`] or [`InputError::Sheet`] naming the problem.
     pub fn read(path: &Path) -> Result<Self, InputError> {
         let text = std::fs::read_to_string(path).map_err(|e| InputError::io(path, e))?;
-        Self::parse(&text).map_err(|message| InputError::Sheet {
+        Self::from_text(path, &text)
+    }
+
+    /// Parses the text of the sheet file `path` (named in errors).
+    ///
+    /// # Errors
+    /// [`InputError::Sheet`] naming the problem.
+    pub fn from_text(path: &Path, text: &str) -> Result<Self, InputError> {
+        Self::parse(text).map_err(|message| InputError::Sheet {
             path: path.to_path_buf(),
             message,
         })

@@ -25,13 +25,14 @@ pub fn load(
 ) -> Result<(Dataset, Option<(ChannelSheet, InputFile)>), InputError> {
     let sheet = match sheet {
         Some(p) => {
-            let s = ChannelSheet::read(p)?;
-            let bytes = std::fs::read(p).map_err(|e| InputError::io(p, e))?;
+            // Read once: the same text is parsed and hashed for provenance.
+            let text = std::fs::read_to_string(p).map_err(|e| InputError::io(p, e))?;
+            let s = ChannelSheet::from_text(p, &text)?;
             Some((
                 s,
                 InputFile {
                     path: p.to_path_buf(),
-                    sha256: sha256_hex(&bytes),
+                    sha256: sha256_hex(text.as_bytes()),
                 },
             ))
         }
@@ -58,10 +59,7 @@ pub fn load_for_model(
 /// Hex SHA-256 of bytes.
 pub fn sha256_hex(bytes: &[u8]) -> String {
     use sha2::Digest;
-    sha2::Sha256::digest(bytes)
-        .iter()
-        .map(|b| format!("{b:02x}"))
-        .collect()
+    crate::float_model::lower_hex(&sha2::Sha256::digest(bytes))
 }
 
 /// What to train.
