@@ -249,13 +249,24 @@ struct Acc {
     tight: Vec<(f64, usize)>,
     margins: Vec<(f64, f64)>,
     min_fixed_abs: f64,
+    /// Units whose verdict declared noise could change, in file order (at most `AT_RISK`).
+    at_risk: Vec<usize>,
 }
 
 const TIGHTEST: usize = 20;
+const AT_RISK: usize = 1000;
 const HISTOGRAM_SAMPLE: usize = 20_000;
 
 /// Audits one log with the shared kernel. Parallel over units.
-fn audit_set(name: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, bound: f64) -> Acc {
+/// `risk`: the score change declared noise can cause, if any noise is declared.
+fn audit_set(
+    name: &str,
+    q: &Quantised,
+    fm: &FloatModel,
+    ds: &Dataset,
+    bound: f64,
+    risk: Option<f64>,
+) -> Acc {
     let m = &q.model;
     let float = crate::dataset::RawForm::new(ds, &fm.weights, fm.bias);
     let band = (fm.threshold * q.scale, m.model());
@@ -271,6 +282,7 @@ fn audit_set(name: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, bound: f6
         tight: Vec::new(),
         margins: Vec::new(),
         min_fixed_abs: f64::INFINITY,
+        at_risk: Vec::new(),
     };
     let merge = |mut a: Acc, b: Acc| {
         a.s.units += b.s.units;
@@ -292,6 +304,9 @@ fn audit_set(name: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, bound: f6
         a.margins.extend(b.margins);
         a.min_fixed_abs = a.min_fixed_abs.min(b.min_fixed_abs);
         a.float_min = a.float_min.min(b.float_min);
+        // Chunks merge in file order, so the first AT_RISK units are kept.
+        a.at_risk.extend(b.at_risk);
+        a.at_risk.truncate(AT_RISK);
         a
     };
     (0..ds.len())
@@ -331,6 +346,9 @@ fn audit_set(name: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, bound: f6
                             Some(a.s.min_margin_lsb.map_or(margin, |v: f64| v.min(margin)));
                         a.s.within_bound += usize::from(margin <= bound);
                         a.min_fixed_abs = a.min_fixed_abs.min(margin);
+                    }
+                    if risk.is_some_and(|r| margin.abs() <= r) && a.at_risk.len() < AT_RISK {
+                        a.at_risk.push(i);
                     }
                     if a.tight.len() < TIGHTEST
                         || margin < a.tight.last().map_or(f64::INFINITY, |t| t.0)
@@ -451,8 +469,15 @@ pub fn audit(
     let mut float_margins = Vec::new();
     let mut min_all = f64::INFINITY;
     let mut float_min = f64::INFINITY;
+    let risk = noise_radius(q, fm, noise);
+    let mut units_at_risk = Vec::new();
     for (name, ds) in std::iter::once(("train", train)).chain(holdout.map(|h| ("holdout", h))) {
-        let a = audit_set(name, q, fm, ds, bound.total);
+        let a = audit_set(name, q, fm, ds, bound.total, risk);
+        for &i in &a.at_risk {
+            if units_at_risk.len() < AT_RISK {
+                units_at_risk.push(format!("{name}: {}", ds.unit_name(i)));
+            }
+        }
         flips.extend(a.flips.iter().map(|&(i, _)| unit_row(name, q, fm, ds, i)));
         tight.extend(a.tight.iter().map(|&(mg, i)| (mg, name, ds, i)));
         for (f, x) in &a.margins {
@@ -478,7 +503,7 @@ pub fn audit(
         .zip(physical_margins(q, fm, min_all))
         .map(|(c, v)| (c.name.clone(), v, c.unit.clone()))
         .collect();
-    let tolerance = tolerance(q, fm, noise, &sets, train, holdout);
+    let tolerance = risk.map(|radius| tolerance(q, fm, noise, &sets, radius, units_at_risk));
     let total_flips: usize = sets.iter().map(|s| s.flips).sum();
     let faults: usize = sets.iter().map(|s| s.faults).sum();
     let mut reasons = Vec::new();
@@ -537,31 +562,41 @@ pub fn audit(
     }
 }
 
+/// The most the declared noise can move a score, in LSB; `None` if no noise is declared.
+fn noise_radius(q: &Quantised, fm: &FloatModel, noise: &[Option<f64>]) -> Option<f64> {
+    if noise.iter().all(Option::is_none) {
+        return None;
+    }
+    // A reading moved by Δraw moves x_q by at most κ·|Δraw| + 1 (the two roundings differ by < 1 LSB).
+    Some(
+        q.model
+            .model()
+            .channels
+            .iter()
+            .zip(&q.kappa)
+            .zip(fm.channels.iter().zip(noise))
+            .map(|((c, k), (s, n))| {
+                f64::from(c.weight).abs() * n.map_or(0.0, |n| k * n / s.lsb + 1.0)
+            })
+            .sum(),
+    )
+}
+
 fn tolerance(
     q: &Quantised,
     fm: &FloatModel,
     noise: &[Option<f64>],
     sets: &[SetSummary],
-    train: &Dataset,
-    holdout: Option<&Dataset>,
-) -> Option<Tolerance> {
-    if noise.iter().all(Option::is_none) {
-        return None;
-    }
-    let m = q.model.model();
-    // A reading moved by Δraw moves x_q by at most κ·|Δraw| + 1 (the two roundings differ by < 1 LSB).
-    let radius: f64 = m
-        .channels
-        .iter()
-        .zip(&q.kappa)
-        .zip(fm.channels.iter().zip(noise))
-        .map(|((c, k), (s, n))| f64::from(c.weight).abs() * n.map_or(0.0, |n| k * n / s.lsb + 1.0))
-        .sum();
+    radius: f64,
+    units_at_risk: Vec<String>,
+) -> Tolerance {
     let min_margin = sets
         .iter()
         .filter_map(|s| s.min_margin_lsb)
         .fold(f64::INFINITY, f64::min);
-    let channels = m
+    let channels = q
+        .model
+        .model()
         .channels
         .iter()
         .zip(&q.kappa)
@@ -577,23 +612,12 @@ fn tolerance(
             unit: s.unit.clone(),
         })
         .collect();
-    let mut units_at_risk = Vec::new();
-    for (name, ds) in std::iter::once(("train", train)).chain(holdout.map(|h| ("holdout", h))) {
-        for i in 0..ds.len() {
-            if let Ok(d) = q.model.classify(ds.raw_row(i)) {
-                let mg = fixed_margin(m, d.score, ds.labels[i]);
-                if mg.abs() <= radius && units_at_risk.len() < 1000 {
-                    units_at_risk.push(format!("{name}: {}", ds.unit_name(i)));
-                }
-            }
-        }
-    }
-    Some(Tolerance {
+    Tolerance {
         channels,
         noise_radius_lsb: radius,
         units_at_risk,
         suggested_band: radius / q.scale,
-    })
+    }
 }
 
 /// One row of the word-length sweep.
