@@ -257,6 +257,16 @@ impl RawForm {
         Self::new(ds, &scaled, v[d] / r)
     }
 
+    /// The weights on raw readings.
+    pub fn weights(&self) -> &[f64] {
+        &self.w
+    }
+
+    /// The constant term.
+    pub fn constant(&self) -> f64 {
+        self.c
+    }
+
     /// The score of one unit's raw readings.
     #[inline]
     pub fn score(&self, raw: &[i32]) -> f64 {

@@ -9,6 +9,7 @@
 use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
+use wide::{f32x4, i32x4};
 
 use crate::dataset::{Dataset, RawForm};
 
@@ -93,30 +94,212 @@ pub struct PerceptronRun {
 
 /// Augmented radius R = max ‖(x, 1)‖ over `idx`.
 pub fn radius(ds: &Dataset, idx: &[usize]) -> f64 {
-    let mut x = vec![0.0; ds.dim()];
-    idx.iter()
-        .map(|&i| {
-            ds.scaled_row(i, &mut x);
-            (x.iter().map(|v| v * v).sum::<f64>() + 1.0).sqrt()
+    extent(ds, idx).0
+}
+
+/// R, and each channel's largest raw magnitude over `idx`, in one parallel pass.
+///
+/// R is the largest ‖(x, 1)‖ with x computed exactly as [`Dataset::scaled_row`] does, but
+/// only rows whose norm, computed faster with reciprocals (relative error below 10⁻¹⁴), is
+/// within 10⁻¹² of the largest are computed that way.
+fn extent(ds: &Dataset, idx: &[usize]) -> (f64, Vec<f64>) {
+    use rayon::prelude::*;
+    let d = ds.dim();
+    let off: Vec<f64> = ds.scales.iter().map(|s| f64::from(s.offset)).collect();
+    let inv: Vec<f64> = ds.scales.iter().map(|s| 1.0 / s.half as f64).collect();
+    let near = |q: f64, top: f64| q >= top * (1.0 - 1e-12);
+    let (top, mut candidates, big) = idx
+        .par_chunks(1 << 16)
+        .map(|chunk| {
+            let mut big = vec![0u32; d];
+            let mut top = 0.0f64;
+            let mut candidates = Vec::new();
+            for &i in chunk {
+                let row = ds.raw_row(i);
+                let mut q = 0.0;
+                for ((&r, o), v) in row.iter().zip(&off).zip(&inv) {
+                    let x = (f64::from(r) - o) * v;
+                    q += x * x;
+                }
+                if q > 0.0 && near(q, top) {
+                    top = top.max(q);
+                    candidates.push((i, q));
+                }
+                for (m, &r) in big.iter_mut().zip(row) {
+                    *m = (*m).max(r.unsigned_abs());
+                }
+            }
+            (top, candidates, big)
         })
-        .fold(1.0, f64::max)
+        .reduce(
+            || (0.0, Vec::new(), vec![0; d]),
+            |(t1, mut c1, b1), (t2, c2, b2)| {
+                c1.extend(c2);
+                let big = b1.iter().zip(&b2).map(|(a, b)| *a.max(b)).collect();
+                (t1.max(t2), c1, big)
+            },
+        );
+    candidates.retain(|&(_, q)| near(q, top));
+    let mut x = vec![0.0; d];
+    let r = candidates.iter().fold(1.0f64, |r, &(i, _)| {
+        ds.scaled_row(i, &mut x);
+        r.max((x.iter().map(|v| v * v).sum::<f64>() + 1.0).sqrt())
+    });
+    (r, big.into_iter().map(f64::from).collect())
+}
+
+/// The mistake test y·score ≤ 0 screened in single precision.
+///
+/// Most units are far from the boundary, and for them a single-precision score decides the
+/// test at twice the speed; only units whose single-precision score is within its proven
+/// error bound of zero are decided in double precision. The decisions are those of the
+/// double-precision test on every unit. The bound: rounding w and x to f32 and multiplying
+/// err by at most 3.01u·|wⱼxⱼ| each, and summing n terms in any order by (n − 1)u·Σ|terms|
+/// (u = 2⁻²⁴; Higham, Accuracy and Stability of Numerical Algorithms, §3.1, from memory);
+/// with S = Σ|wⱼ|·maxⱼ|x| + |c|, the error is below (n + 4)·u·S, and the screen takes twice
+/// that, which also covers the double-precision score's own error.
+struct Screen {
+    /// Weights in lanes of four, the last padded with zeros.
+    w: Vec<f32x4>,
+    /// Channels.
+    d: usize,
+    c: f32,
+    bound: f32,
+}
+
+impl Screen {
+    fn new(f: &RawForm, max_abs: &[f64]) -> Self {
+        let (w, c) = (f.weights(), f.constant());
+        let s: f64 = w.iter().zip(max_abs).map(|(w, m)| w.abs() * m).sum::<f64>() + c.abs();
+        let terms = (w.len() + 1) as f64;
+        let bound = 2.0 * (terms + 4.0) * f64::from(f32::EPSILON) * 0.5 * s * 1.01;
+        // Weights below f32's normal range lose their relative accuracy: no screening then.
+        let tiny = w.iter().any(|&v| v != 0.0 && v.abs() < 1e-30);
+        let usable = bound.is_finite() && bound < 1e30 && !tiny;
+        let lanes = w.chunks(4).map(|c| {
+            let mut l = [0.0f32; 4];
+            for (o, &v) in l.iter_mut().zip(c) {
+                *o = v as f32;
+            }
+            f32x4::new(l)
+        });
+        Self {
+            w: lanes.collect(),
+            d: w.len(),
+            c: c as f32,
+            bound: if usable { bound as f32 } else { f32::INFINITY },
+        }
+    }
+
+    /// True if a unit with `label`, readings `raw` and single-precision score `s` is on the
+    /// wrong side of (or on) the boundary of `f`.
+    #[inline(always)]
+    fn decide(&self, f: &RawForm, label: i8, s: f32, raw: &[i32]) -> bool {
+        let ys = f32::from(label) * (s + self.c);
+        if ys > self.bound {
+            false
+        } else if ys < -self.bound {
+            true
+        } else {
+            f64::from(label) * f.score(raw) <= 0.0
+        }
+    }
+
+    /// Position of the first mistake among consecutive rows (`labels.len()` rows of `raw`).
+    fn first_in_rows(&self, f: &RawForm, raw: &[i32], labels: &[i8]) -> Option<usize> {
+        // The channel count as a constant lets the compiler unroll and vectorise the dot
+        // product; a loop over a run-time length is twice as slow.
+        macro_rules! by_dim {
+            ($($n:literal)*) => {
+                match self.d {
+                    $($n => self.first_in_rows_of::<$n>(f, raw, labels),)*
+                    _ => labels
+                        .iter()
+                        .zip(raw.chunks_exact(self.d))
+                        .position(|(&l, x)| self.decide(f, l, score_f32(&self.w, x), x)),
+                }
+            };
+        }
+        by_dim!(1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19 20 21 22 23 24 25 26 27 28 29 30 31 32)
+    }
+
+    fn first_in_rows_of<const D: usize>(
+        &self,
+        f: &RawForm,
+        raw: &[i32],
+        labels: &[i8],
+    ) -> Option<usize> {
+        let w = self.w.as_slice();
+        // Four rows at a time: independent sums keep the loads of several rows in flight.
+        let (groups, rest) = raw.as_chunks::<D>();
+        debug_assert!(rest.is_empty());
+        let (quads, _) = groups.as_chunks::<4>();
+        let mut base = 0;
+        for (q, l) in quads.iter().zip(labels.chunks_exact(4)) {
+            let s = [
+                score_of(w, &q[0]),
+                score_of(w, &q[1]),
+                score_of(w, &q[2]),
+                score_of(w, &q[3]),
+            ];
+            for k in 0..4 {
+                if self.decide(f, l[k], s[k], &q[k]) {
+                    return Some(base + k);
+                }
+            }
+            base += 4;
+        }
+        groups
+            .get(base..)?
+            .iter()
+            .zip(labels.get(base..)?)
+            .position(|(x, &l)| self.decide(f, l, score_of(w, x), x))
+            .map(|p| base + p)
+    }
+}
+
+/// A dot product of a known length in single precision, for the screen; `w` is padded with
+/// zeros to whole lanes of four.
+#[inline(always)]
+fn score_of<const D: usize>(w: &[f32x4], x: &[i32; D]) -> f32 {
+    let (xc, xt) = x.as_chunks::<4>();
+    let mut acc = f32x4::ZERO;
+    for (a, b) in w.iter().zip(xc) {
+        acc += *a * i32x4::new(*b).round_float();
+    }
+    if let (Some(a), false) = (w.get(xc.len()), xt.is_empty()) {
+        let mut b = [0i32; 4];
+        b[..xt.len()].copy_from_slice(xt);
+        acc += *a * i32x4::new(b).round_float();
+    }
+    acc.reduce_add()
+}
+
+/// A dot product in single precision, for the screen.
+#[inline]
+fn score_f32(w: &[f32x4], x: &[i32]) -> f32 {
+    let mut acc = f32x4::ZERO;
+    for (a, b) in w.iter().zip(x.chunks(4)) {
+        let mut v = [0i32; 4];
+        v[..b.len()].copy_from_slice(b);
+        acc += *a * i32x4::new(v).round_float();
+    }
+    acc.reduce_add()
 }
 
 /// Position in `units` of the first unit on the wrong side of (or on) the boundary.
-fn first_mistake(f: &RawForm, ds: &Dataset, units: &[usize]) -> Option<usize> {
+fn first_mistake(f: &RawForm, screen: &Screen, ds: &Dataset, units: &[usize]) -> Option<usize> {
     let d = ds.dim();
     if let (Some(&a), Some(&z)) = (units.first(), units.last()) {
         // A run of consecutive units: stream the rows directly.
         if z >= a && z - a + 1 == units.len() {
-            let rows = ds.raw[a * d..(z + 1) * d].chunks_exact(d);
-            return rows
-                .zip(&ds.labels[a..=z])
-                .position(|(row, &l)| f64::from(l) * f.score(row) <= 0.0);
+            return screen.first_in_rows(f, &ds.raw[a * d..(z + 1) * d], &ds.labels[a..=z]);
         }
     }
-    units
-        .iter()
-        .position(|&i| ds.y(i) * f.score(ds.raw_row(i)) <= 0.0)
+    units.iter().position(|&i| {
+        let x = ds.raw_row(i);
+        screen.decide(f, ds.labels[i], score_f32(&screen.w, x), x)
+    })
 }
 
 /// Units per block of the perceptron's visit order.
@@ -130,7 +313,6 @@ pub fn perceptron(
     cfg: PerceptronConfig,
 ) -> PerceptronRun {
     let d = ds.dim();
-    let r = radius(ds, idx);
     let mut v = vec![0.0f64; d + 1];
     // Averaging by the standard trick: avg = v - u / c, with u accumulating c·y·z.
     let mut u = vec![0.0f64; d + 1];
@@ -143,7 +325,9 @@ pub fn perceptron(
     let mut blocks: Vec<&[usize]> = idx.chunks(BLOCK).collect();
     let mut rng = ChaCha8Rng::seed_from_u64(cfg.seed);
     let sc = ds.scaler();
+    let (r, max_abs) = extent(ds, idx);
     let mut on_raw = RawForm::augmented(ds, &v, r);
+    let mut screen = Screen::new(&on_raw, &max_abs);
     let (mut updates, mut epochs, mut converged) = (0u64, 0u32, false);
     while epochs < cfg.epochs {
         epochs += 1;
@@ -153,7 +337,7 @@ pub fn perceptron(
             let mut start = 0;
             // v·z/R is evaluated on the raw readings, (v·z)/R = Σ (vⱼ/(halfⱼ·R))·rawⱼ + const,
             // and the block is scanned in a tight loop up to its next mistake.
-            while let Some(p) = first_mistake(&on_raw, ds, &b[start..]) {
+            while let Some(p) = first_mistake(&on_raw, &screen, ds, &b[start..]) {
                 let i = b[start + p];
                 c += p as f64;
                 let y = ds.y(i);
@@ -164,6 +348,7 @@ pub fn perceptron(
                     *uj += c * y * zj / r;
                 }
                 on_raw = RawForm::augmented(ds, &v, r);
+                screen = Screen::new(&on_raw, &max_abs);
                 updates += 1;
                 mistakes += 1;
                 c += 1.0;

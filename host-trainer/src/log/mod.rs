@@ -17,6 +17,8 @@ use crate::dataset::Dataset;
 use crate::error::InputError;
 use crate::scaling::{ChannelScale, ChannelSheet};
 
+mod fast;
+
 /// Readings beyond this magnitude are refused as not finite: no sensor reports 1e15 of anything.
 pub const MAX_READING: f64 = 1e15;
 
@@ -226,10 +228,12 @@ struct Parser<'a> {
     delimiter: u8,
     /// Convert to raw readings (and refuse out-of-range ones) while parsing.
     scales: Option<&'a [ChannelScale]>,
+    /// The one-pass reader for plain records, when every channel allows it.
+    fast: Option<fast::FastPlan>,
 }
 
-/// A run of parsed records, in file order: values (or raw readings) row-major, and per record
-/// either a row or an error.
+/// A run of parsed records, in file order: values (or raw readings) row-major, and the errors,
+/// each placed after the rows that precede it. Buffers are reused from block to block.
 #[derive(Default)]
 struct Parsed {
     values: Vec<f64>,
@@ -238,7 +242,20 @@ struct Parsed {
     lines: Vec<u64>,
     unit_bytes: Vec<u8>,
     unit_ends: Vec<usize>,
-    items: Vec<Result<(), InputError>>,
+    /// Each error with the number of rows before it in this run.
+    errors: Vec<(usize, InputError)>,
+}
+
+impl Parsed {
+    fn clear(&mut self) {
+        self.values.clear();
+        self.raw.clear();
+        self.labels.clear();
+        self.lines.clear();
+        self.unit_bytes.clear();
+        self.unit_ends.clear();
+        self.errors.clear();
+    }
 }
 
 /// A record's fields as byte ranges of one buffer.
@@ -427,15 +444,11 @@ impl Parser<'_> {
         Ok(())
     }
 
-    /// Parses whole records `bytes` (ending at record ends) whose first byte is on `first_line`.
-    fn piece(&self, bytes: &[u8], first_line: u64) -> Parsed {
+    /// Parses whole records `bytes` (ending at record ends) whose first byte is on `first_line`
+    /// into `out` (cleared first).
+    fn piece(&self, bytes: &[u8], first_line: u64, out: &mut Parsed) {
         let d = self.cols.channels.len();
-        let mut out = Parsed::default();
-        if self.scales.is_some() {
-            out.raw.reserve(bytes.len() / 6);
-        } else {
-            out.values.reserve(bytes.len() / 6);
-        }
+        out.clear();
         let mut vals = vec![0.0; d];
         let mut raw_row = vec![0i32; d];
         let mut owned = csv::ByteRecord::new();
@@ -448,10 +461,29 @@ impl Parser<'_> {
         if ends.last() != Some(&bytes.len()) && !bytes.is_empty() {
             ends.push(bytes.len());
         }
+        // Without a quote in the run, a record holds exactly one line feed, at its end.
+        let fast = self
+            .fast
+            .as_ref()
+            .filter(|_| memchr::memchr(b'"', bytes).is_none());
         for end in ends {
             let raw = &bytes[start..end];
-            let parsed = match fields(strip_line_end(raw), self.delimiter, &mut owned, &mut ranges)
-            {
+            start = end;
+            let rec = strip_line_end(raw);
+            if let Some(f) = fast {
+                if let Some(r) = f.record(rec, raw.len(), out.raw_row_slot(d)) {
+                    if let Some((a, b)) = r.unit {
+                        out.unit_bytes.extend_from_slice(&rec[a..b]);
+                        out.unit_ends.push(out.unit_bytes.len());
+                    }
+                    out.labels.push(r.label);
+                    out.lines.push(line);
+                    line += u64::from(raw.last() == Some(&b'\n'));
+                    continue;
+                }
+                out.raw.truncate(out.labels.len() * d);
+            }
+            let parsed = match fields(rec, self.delimiter, &mut owned, &mut ranges) {
                 Ok(src) => {
                     let f = Fields {
                         src,
@@ -484,14 +516,20 @@ impl Parser<'_> {
                     }
                     out.labels.push(label);
                     out.lines.push(line);
-                    out.items.push(Ok(()));
                 }
-                Err(e) => out.items.push(Err(e)),
+                Err(e) => out.errors.push((out.labels.len(), e)),
             }
             line += count_lf(raw);
-            start = end;
         }
-        out
+    }
+}
+
+impl Parsed {
+    /// Appends a zeroed row of `d` raw readings and returns it, for the fast path to fill.
+    fn raw_row_slot(&mut self, d: usize) -> &mut [i32] {
+        let n = self.raw.len();
+        self.raw.resize(n + d, 0);
+        &mut self.raw[n..]
     }
 }
 
@@ -506,20 +544,15 @@ struct BlockReader {
 impl BlockReader {
     /// Appends up to one block to `buf`; sets `eof` at the end of the file.
     fn refill(&mut self, buf: &mut Vec<u8>) -> Result<(), std::io::Error> {
-        let start = buf.len();
-        buf.resize(start + self.block, 0);
-        let mut n = start;
-        while n < buf.len() {
-            let got = self.file.read(&mut buf[n..])?;
-            if got == 0 {
-                self.eof = true;
-                break;
-            }
-            n += got;
+        // `read_to_end` fills spare capacity without zeroing it first; reserving the block
+        // up front keeps it from doubling the buffer.
+        buf.reserve(self.block);
+        let n = (&mut self.file).take(self.block as u64).read_to_end(buf)?;
+        if n < self.block {
+            self.eof = true;
         }
-        buf.truncate(n);
         if let Some(b) = &self.bar {
-            b.inc((n - start) as u64);
+            b.inc(n as u64);
         }
         Ok(())
     }
@@ -608,7 +641,7 @@ fn scan(
     model: Option<&[ChannelScale]>,
     scales: Option<&[ChannelScale]>,
     skipped: &mut SkipReport,
-    on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError>,
+    on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError> + Send,
 ) -> Result<(Columns, String), InputError> {
     scan_blocks(path, opts, model, scales, skipped, on_row, BLOCK)
 }
@@ -620,10 +653,9 @@ fn scan_blocks(
     model: Option<&[ChannelScale]>,
     scales: Option<&[ChannelScale]>,
     skipped: &mut SkipReport,
-    mut on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError>,
+    mut on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError> + Send,
     block: usize,
 ) -> Result<(Columns, String), InputError> {
-    use rayon::prelude::*;
     let io = |e| InputError::io(path, e);
     let file = File::open(path).map_err(io)?;
     let len = file.metadata().map(|m| m.len()).unwrap_or(0);
@@ -663,29 +695,33 @@ fn scan_blocks(
         cols: &cols,
         delimiter,
         scales,
+        fast: scales.and_then(|s| fast::FastPlan::new(&cols, s, delimiter, opts)),
     };
-    let mut feed = |parsed: Parsed, skipped: &mut SkipReport| -> Result<(), InputError> {
+    let mut feed = |parsed: &mut Parsed, skipped: &mut SkipReport| -> Result<(), InputError> {
         let d = cols.channels.len();
-        let mut k = 0;
-        for item in parsed.items {
-            let result = match item {
-                Ok(()) => {
-                    let row = Row {
-                        line: parsed.lines[k],
-                        values: parsed.values.get(k * d..(k + 1) * d).unwrap_or(&[]),
-                        raw: parsed.raw.get(k * d..(k + 1) * d).unwrap_or(&[]),
-                        label: parsed.labels[k],
-                        unit: parsed.unit_ends.get(k).map(|&e| {
-                            let b = if k == 0 { 0 } else { parsed.unit_ends[k - 1] };
-                            &parsed.unit_bytes[b..e]
-                        }),
-                    };
-                    k += 1;
-                    on_row(&cols, row)
+        let mut errors = parsed.errors.drain(..).peekable();
+        for k in 0..=parsed.labels.len() {
+            while let Some((_, e)) = errors.next_if(|(at, _)| *at == k) {
+                if opts.skip_bad_rows && is_row_error(&e) {
+                    skipped.add(&e);
+                } else {
+                    return Err(e);
                 }
-                Err(e) => Err(e),
+            }
+            let Some(&label) = parsed.labels.get(k) else {
+                break;
             };
-            match result {
+            let row = Row {
+                line: parsed.lines[k],
+                values: parsed.values.get(k * d..(k + 1) * d).unwrap_or(&[]),
+                raw: parsed.raw.get(k * d..(k + 1) * d).unwrap_or(&[]),
+                label,
+                unit: parsed.unit_ends.get(k).map(|&e| {
+                    let b = if k == 0 { 0 } else { parsed.unit_ends[k - 1] };
+                    &parsed.unit_bytes[b..e]
+                }),
+            };
+            match on_row(&cols, row) {
                 Ok(()) => {}
                 Err(e) if opts.skip_bad_rows && is_row_error(&e) => skipped.add(&e),
                 Err(e) => return Err(e),
@@ -694,6 +730,13 @@ fn scan_blocks(
         Ok(())
     };
     let pieces = rayon::current_num_threads() * 4;
+    // Parsed runs are reused: fresh buffers for every block would cost page faults.
+    let mut pool: Vec<Parsed> = Vec::new();
+    // The previous block's parsed runs, handed on while the next block is parsed.
+    let mut ready: Vec<Parsed> = Vec::new();
+    let mut ready_len = 0usize;
+    // The next block is read into `next` while this one is parsed and hashed.
+    let mut next: Vec<u8> = Vec::new();
     let mut in_quote = false;
     let mut discarding = false; // inside an over-long line being skipped
     loop {
@@ -703,6 +746,9 @@ fn scan_blocks(
         if reader.eof && ends.last() != Some(&body.len()) && !body.is_empty() {
             ends.push(body.len());
         }
+        // Complete records to parse now, as (start, end) of `buf`, split into pieces.
+        let mut work: Vec<(usize, usize)> = Vec::new();
+        let mut starts: Vec<u64> = Vec::new();
         if discarding {
             match ends.first() {
                 Some(&e) => {
@@ -733,54 +779,74 @@ fn scan_blocks(
             in_quote = q;
         } else if let Some(&cut) = ends.last() {
             // Split the complete records into pieces of about equal size, at record ends.
-            let mut bounds = vec![0usize];
             let step = cut / pieces + 1;
+            let mut from = 0;
             for &e in &ends {
-                if e - bounds[bounds.len() - 1] >= step {
-                    bounds.push(e);
+                if e - from >= step || e == cut {
+                    starts.push(line);
+                    line += count_lf(&body[from..e]);
+                    work.push((pos + from, pos + e));
+                    from = e;
                 }
             }
-            if bounds[bounds.len() - 1] != cut {
-                bounds.push(cut);
-            }
-            let chunk = &body[..cut];
-            let mut starts = Vec::with_capacity(bounds.len());
-            let mut l = line;
-            for w in bounds.windows(2) {
-                starts.push(l);
-                l += count_lf(&chunk[w[0]..w[1]]);
-            }
-            let unhashed = &buf[hashed..];
-            let (parsed, ()): (Vec<Parsed>, ()) = rayon::join(
-                || {
-                    bounds
-                        .windows(2)
-                        .zip(&starts)
-                        .collect::<Vec<_>>()
-                        .into_par_iter()
-                        .map(|(w, &first)| parser.piece(&chunk[w[0]..w[1]], first))
-                        .collect()
-                },
-                || hasher.update(unhashed),
-            );
-            hashed = buf.len();
-            for p in parsed {
-                feed(p, skipped)?;
-            }
-            line = l;
             pos += cut;
         }
-        if hashed < buf.len() {
-            hasher.update(&buf[hashed..]);
-            hashed = buf.len();
+        let done = reader.eof && pos >= buf.len();
+        next.clear();
+        next.extend_from_slice(&buf[pos..]);
+        let carried = next.len();
+        if pool.len() < work.len() {
+            pool.resize_with(work.len(), Parsed::default);
         }
-        if reader.eof && pos >= buf.len() {
+        let (unhashed, whole) = (&buf[hashed..], &buf[..]);
+        // Four jobs at once: parse this block, hash it, read the next, and hand on the rows
+        // of the previous one (in file order, so the first error is still the first).
+        let ((), (read, fed)) = rayon::join(
+            || {
+                use rayon::prelude::*;
+                rayon::join(
+                    || {
+                        pool.par_iter_mut()
+                            .zip(work.par_iter().zip(&starts))
+                            .for_each(|(out, (&(a, b), &first))| {
+                                parser.piece(&whole[a..b], first, out);
+                            });
+                    },
+                    || hasher.update(unhashed),
+                );
+            },
+            || {
+                rayon::join(
+                    || {
+                        if done {
+                            Ok(())
+                        } else {
+                            reader.refill(&mut next)
+                        }
+                    },
+                    || {
+                        ready
+                            .iter_mut()
+                            .take(ready_len)
+                            .try_for_each(|p| feed(p, skipped))
+                    },
+                )
+            },
+        );
+        fed?;
+        read.map_err(io)?;
+        std::mem::swap(&mut pool, &mut ready);
+        ready_len = work.len();
+        if done {
+            for p in ready.iter_mut().take(ready_len) {
+                feed(p, skipped)?;
+            }
             break;
         }
-        buf.drain(..pos);
-        hashed -= pos;
+        std::mem::swap(&mut buf, &mut next);
+        // The carried-over tail was hashed with the block it came from.
+        hashed = carried;
         pos = 0;
-        reader.refill(&mut buf).map_err(io)?;
     }
     if let Some(b) = &bar {
         b.finish_and_clear();
@@ -942,7 +1008,7 @@ pub fn stream_units(
     opts: &LogOptions,
     scales: &[ChannelScale],
     skipped: &mut SkipReport,
-    mut on_unit: impl FnMut(StreamedUnit<'_>) -> Result<(), InputError>,
+    mut on_unit: impl FnMut(StreamedUnit<'_>) -> Result<(), InputError> + Send,
 ) -> Result<String, InputError> {
     let (_, sha) = scan(path, opts, Some(scales), Some(scales), skipped, |_, row| {
         on_unit(StreamedUnit {

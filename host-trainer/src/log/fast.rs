@@ -1,0 +1,215 @@
+//! The fast path for ordinary records.
+//!
+//! Most records of a bench log are plain: no quotes, no padding, decimals in channels whose lsb
+//! is a power of ten. Such a record is split and converted to raw counts in one pass over its
+//! bytes with integer arithmetic only. Anything else makes [`FastPlan::record`] return `None`
+//! and the record takes the general path, which also words every error. The fast path never
+//! decides differently from the general one; [`DecimalChannel`] says why.
+
+use super::{Columns, LogOptions};
+use crate::scaling::ChannelScale;
+
+/// What the fast path does with one column.
+#[derive(Clone, Copy, Debug)]
+enum Role {
+    Skip,
+    Channel(usize),
+    Label,
+    Unit,
+}
+
+/// A channel whose raw count is the decimal reading shifted by `k` places: lsb = 10⁻ᵏ
+/// (the double nearest it, as the sheet parser gives) and zero = 0.
+///
+/// Why the counts agree with the general path's `round((v − 0) / lsb)` in doubles: for a
+/// decimal V with at most k fraction digits, N = V·10ᵏ is an integer. The parsed double is
+/// V(1 + δ₁), the lsb 10⁻ᵏ(1 + δ₂), the quotient is rounded once more (1 + δ₃), each
+/// |δ| ≤ 2⁻⁵³, so the general path's quotient is N(1 + ε) with |ε| < 4·10⁻¹⁶. The fast path
+/// only answers for |N| < 2³¹, where |N·ε| < 10⁻⁶ < ½, so rounding gives N exactly.
+#[derive(Clone, Copy, Debug)]
+struct DecimalChannel {
+    k: u32,
+    raw_min: i64,
+    raw_max: i64,
+}
+
+/// Most significant digits the fast path reads: 10¹⁵ is below 2⁵³ and below
+/// [`super::MAX_READING`], so no such number is refused as not finite.
+const MAX_DIGITS: u32 = 15;
+
+impl DecimalChannel {
+    fn for_scale(s: &ChannelScale) -> Option<Self> {
+        if s.zero != 0.0 {
+            return None;
+        }
+        let k = (0..=9u32).find(|k| format!("1e-{k}").parse::<f64>() == Ok(s.lsb))?;
+        Some(Self {
+            k,
+            raw_min: i64::from(s.raw_min),
+            raw_max: i64::from(s.raw_max),
+        })
+    }
+
+    /// Parses the field starting at `pos`: an optional `-`, digits, optionally `.` and more
+    /// digits. Returns the raw count and the position after the field.
+    #[inline]
+    fn parse(&self, rec: &[u8], mut pos: usize, delimiter: u8) -> Option<(i32, usize)> {
+        let neg = rec.get(pos) == Some(&b'-');
+        if neg {
+            pos += 1;
+        }
+        let mut mant = 0u64;
+        let mut digits = 0u32;
+        let mut point: Option<u32> = None;
+        while let Some(&b) = rec.get(pos) {
+            let d = b.wrapping_sub(b'0');
+            if d < 10 {
+                mant = mant.wrapping_mul(10).wrapping_add(u64::from(d));
+                digits += 1;
+            } else if b == b'.' && point.is_none() {
+                point = Some(digits);
+            } else if b == delimiter {
+                break;
+            } else {
+                return None;
+            }
+            pos += 1;
+        }
+        let whole = point.unwrap_or(digits);
+        let frac = digits - whole;
+        // "5." and ".5" are numbers too, but rare: the general path takes them.
+        if digits > MAX_DIGITS || whole == 0 || (point.is_some() && frac == 0) || frac > self.k {
+            return None;
+        }
+        let n = i64::try_from(mant.checked_mul(10u64.pow(self.k - frac))?).ok()?;
+        let n = if neg { -n } else { n };
+        if n < self.raw_min || n > self.raw_max {
+            return None;
+        }
+        Some((i32::try_from(n).ok()?, pos))
+    }
+}
+
+/// The fast path's plan for one log: each column's role and each channel's conversion.
+#[derive(Debug)]
+pub(super) struct FastPlan {
+    roles: Vec<Role>,
+    channels: Vec<DecimalChannel>,
+    delimiter: u8,
+    go: Vec<Vec<u8>>,
+    nogo: Vec<Vec<u8>>,
+    max_line_len: usize,
+}
+
+/// A record the fast path read.
+pub(super) struct FastRecord {
+    /// +1 GO, −1 NO-GO.
+    pub label: i8,
+    /// The unit-id field, as a range of the record.
+    pub unit: Option<(usize, usize)>,
+}
+
+impl FastPlan {
+    /// The plan, or `None` if some channel is not a plain decimal shift (then every record
+    /// takes the general path).
+    pub(super) fn new(
+        cols: &Columns,
+        scales: &[ChannelScale],
+        delimiter: u8,
+        opts: &LogOptions,
+    ) -> Option<Self> {
+        let channels = scales
+            .iter()
+            .map(DecimalChannel::for_scale)
+            .collect::<Option<Vec<_>>>()?;
+        if channels.len() != cols.channels.len() {
+            return None;
+        }
+        let mut roles = vec![Role::Skip; cols.names.len()];
+        *roles.get_mut(cols.label)? = Role::Label;
+        if let Some(u) = cols.unit {
+            *roles.get_mut(u)? = Role::Unit;
+        }
+        for (j, &c) in cols.channels.iter().enumerate() {
+            *roles.get_mut(c)? = Role::Channel(j);
+        }
+        let tokens = |t: &[String]| t.iter().map(|s| s.as_bytes().to_vec()).collect();
+        Some(Self {
+            roles,
+            channels,
+            delimiter,
+            go: tokens(&opts.go_labels),
+            nogo: tokens(&opts.nogo_labels),
+            max_line_len: opts.max_line_len,
+        })
+    }
+
+    /// Reads one record (without its line end, and known to hold no quote) into `raw`, or
+    /// `None` if the general path must read it.
+    pub(super) fn record(
+        &self,
+        rec: &[u8],
+        line_len: usize,
+        raw: &mut [i32],
+    ) -> Option<FastRecord> {
+        if line_len > self.max_line_len {
+            return None;
+        }
+        let last = self.roles.len().checked_sub(1)?;
+        let mut pos = 0usize;
+        let mut label = None;
+        let mut unit = None;
+        for (c, &role) in self.roles.iter().enumerate() {
+            let start = pos;
+            if let Role::Channel(j) = role {
+                let (value, end) = self.channels.get(j)?.parse(rec, pos, self.delimiter)?;
+                *raw.get_mut(j)? = value;
+                pos = end;
+            } else {
+                // Fields are short: a plain loop beats a vectorised search here.
+                while rec.get(pos).is_some_and(|&b| b != self.delimiter) {
+                    pos += 1;
+                }
+                let field = rec.get(start..pos)?;
+                match role {
+                    Role::Label => label = Some(self.label(field)?),
+                    Role::Unit => {
+                        // The general path trims ids; only untrimmed ones are read here.
+                        let padded = |b: Option<&u8>| b.is_some_and(u8::is_ascii_whitespace);
+                        if padded(field.first()) || padded(field.last()) {
+                            return None;
+                        }
+                        unit = Some((start, pos));
+                    }
+                    Role::Skip | Role::Channel(_) => {}
+                }
+            }
+            if c < last {
+                if rec.get(pos) != Some(&self.delimiter) {
+                    return None;
+                }
+                pos += 1;
+            } else if pos != rec.len() {
+                return None;
+            }
+        }
+        Some(FastRecord {
+            label: label?,
+            unit,
+        })
+    }
+
+    /// The label of a token, compared as the general path does for ASCII tokens.
+    fn label(&self, field: &[u8]) -> Option<i8> {
+        let is = |tokens: &[Vec<u8>]| tokens.iter().any(|t| t.eq_ignore_ascii_case(field));
+        if !field.is_ascii() {
+            None
+        } else if is(&self.go) {
+            Some(1)
+        } else if is(&self.nogo) {
+            Some(-1)
+        } else {
+            None
+        }
+    }
+}
