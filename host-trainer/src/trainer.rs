@@ -484,4 +484,94 @@ mod tests {
             "{t:?}"
         );
     }
+
+    /// Random points in [-1, 1]^d (seeded).
+    fn random_set(n: usize, d: usize, seed: u64) -> Dataset {
+        use rand::Rng;
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        let points: Vec<Vec<f64>> = (0..n)
+            .map(|_| (0..d).map(|_| rng.gen_range(-1.0..1.0)).collect())
+            .collect();
+        let labels: Vec<i8> = (0..n).map(|i| if i % 3 == 0 { -1 } else { 1 }).collect();
+        Dataset::from_scaled(&points, &labels)
+    }
+
+    #[test]
+    fn screened_mistake_test_decides_as_double_precision() {
+        use rand::Rng;
+        let mut rng = ChaCha8Rng::seed_from_u64(3);
+        // 33 channels has no unrolled kernel: the run-time-length one is checked too.
+        for d in [1, 2, 3, 4, 5, 7, 8, 13, 16, 17, 32, 33] {
+            let ds = random_set(203, d, d as u64);
+            let all = ds.all();
+            let (_, max_abs) = extent(&ds, &all);
+            for trial in 0..40 {
+                let w: Vec<f64> = (0..d).map(|_| rng.gen_range(-2.0..2.0)).collect();
+                // Put unit k exactly on the boundary (as far as doubles go), or a hair off it.
+                let k = rng.gen_range(0..ds.len());
+                let probe = RawForm::new(&ds, &w, 0.0);
+                let hair = [0.0, 1e-300, -1e-15, 1e-9, -1e-8, 1e-7, -3e-7, 1e-6, -3e-6, 1e-5][trial % 10];
+                let f = RawForm::new(&ds, &w, -probe.score(ds.raw_row(k)) + hair);
+                let screen = Screen::new(&f, &max_abs);
+                let want: Vec<bool> = (0..ds.len())
+                    .map(|i| ds.y(i) * f.score(ds.raw_row(i)) <= 0.0)
+                    .collect();
+                for (i, &wanted) in want.iter().enumerate() {
+                    let x = ds.raw_row(i);
+                    let s = score_f32(&screen.w, x);
+                    // The single-precision error stays within half the screen (the proof's
+                    // bound; the other half covers the double-precision score).
+                    let err = (f64::from(s + screen.c) - f.score(x)).abs();
+                    assert!(err <= f64::from(screen.bound) / 2.0, "d {d}: error {err}");
+                    assert_eq!(
+                        screen.decide(&f, ds.labels[i], s, x),
+                        wanted,
+                        "d {d}, unit {i}"
+                    );
+                }
+                // The first mistake of every suffix, through the unrolled kernels.
+                for start in [0, 1, 5, k, ds.len() - 3] {
+                    let got = first_mistake(&f, &screen, &ds, &all[start..]);
+                    let expect = want[start..].iter().position(|&m| m);
+                    assert_eq!(got, expect, "d {d}, from {start}");
+                }
+                // Units out of order take the per-unit path.
+                let odd: Vec<usize> = (0..ds.len()).rev().step_by(2).collect();
+                let expect = odd.iter().position(|&i| want[i]);
+                assert_eq!(first_mistake(&f, &screen, &ds, &odd), expect, "d {d}");
+            }
+        }
+    }
+
+    #[test]
+    fn radius_is_the_largest_augmented_norm_exactly() {
+        // Many units of nearly equal norm: the fast pre-selection must not lose the largest.
+        use rand::Rng;
+        let mut rng = ChaCha8Rng::seed_from_u64(11);
+        let points: Vec<Vec<f64>> = (0..5000)
+            .map(|_| {
+                let p: Vec<f64> = (0..6).map(|_| rng.gen_range(-1.0..1.0)).collect();
+                let n = p.iter().map(|v| v * v).sum::<f64>().sqrt();
+                p.iter().map(|v| 0.9 * v / n).collect()
+            })
+            .collect();
+        let labels = vec![1i8; points.len()];
+        let ds = Dataset::from_scaled(&points, &labels);
+        let mut x = vec![0.0; ds.dim()];
+        let want = (0..ds.len())
+            .map(|i| {
+                ds.scaled_row(i, &mut x);
+                (x.iter().map(|v| v * v).sum::<f64>() + 1.0).sqrt()
+            })
+            .fold(1.0, f64::max);
+        let idx = ds.all();
+        let (r, big) = extent(&ds, &idx);
+        assert_eq!(r, want);
+        for (j, m) in big.iter().enumerate() {
+            let exact = (0..ds.len())
+                .map(|i| f64::from(ds.raw_row(i)[j]).abs())
+                .fold(0.0, f64::max);
+            assert_eq!(*m, exact, "channel {j}");
+        }
+    }
 }

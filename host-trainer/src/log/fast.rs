@@ -213,3 +213,83 @@ impl FastPlan {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    fn channel(lsb: f64, min: f64, max: f64) -> ChannelScale {
+        ChannelScale::new("c", "", min, max, lsb, 0.0).unwrap()
+    }
+
+    /// The general path's answer: the standard library's correctly rounded decimal parser
+    /// (IEEE 754 round-to-nearest) and the sheet's conversion.
+    fn general(text: &str, s: &ChannelScale) -> Option<i32> {
+        s.to_raw(text.parse::<f64>().ok()?)
+    }
+
+    #[test]
+    fn plain_decimals_take_the_fast_path() {
+        let s = channel(0.001, 0.0, 1000.0);
+        let c = DecimalChannel::for_scale(&s).unwrap();
+        for (text, want) in [
+            ("888.790", 888_790),
+            ("0", 0),
+            ("1000", 1_000_000),
+            ("5.1", 5_100),
+        ] {
+            assert_eq!(
+                c.parse(text.as_bytes(), 0, b','),
+                Some((want, text.len())),
+                "{text}"
+            );
+            assert_eq!(general(text, &s), Some(want), "{text}");
+        }
+        // More fraction digits than the lsb has, exponents, padding, out of range: general path.
+        for text in [
+            "0.0005", "1e3", " 5", "5 ", "+5", "5.", ".5", "1000.001", "-0.001", "--1",
+        ] {
+            assert_eq!(c.parse(text.as_bytes(), 0, b','), None, "{text}");
+        }
+        // A channel with a zero point or an lsb that is not a power of ten has no fast path.
+        assert!(
+            DecimalChannel::for_scale(&ChannelScale::new("c", "", 0.0, 1.0, 0.002, 0.0).unwrap())
+                .is_none()
+        );
+        assert!(
+            DecimalChannel::for_scale(&ChannelScale::new("c", "", 0.0, 1.0, 0.001, 0.5).unwrap())
+                .is_none()
+        );
+    }
+
+    proptest! {
+        /// Whenever the fast path answers, it answers as the general path does.
+        #[test]
+        fn fast_path_agrees_with_the_general_path(
+            neg in any::<bool>(),
+            whole in "[0-9]{0,12}",
+            point in any::<bool>(),
+            frac in "[0-9]{0,9}",
+            k in 0u32..=9,
+            span in 1u32..1_000_000_000,
+        ) {
+            let lsb: f64 = format!("1e-{k}").parse().unwrap();
+            let half = f64::from(span) * lsb;
+            let s = channel(lsb, -half, half);
+            let c = DecimalChannel::for_scale(&s).unwrap();
+            let text = format!("{}{whole}{}{}", if neg { "-" } else { "" }, if point { "." } else { "" }, if point { &frac } else { "" });
+            let fast = c.parse(text.as_bytes(), 0, b',');
+            if let Some((raw, end)) = fast {
+                prop_assert_eq!(end, text.len());
+                prop_assert_eq!(Some(raw), general(&text, &s), "{}", text);
+            }
+            // Short plain decimals inside the range are always taken.
+            let plain = !whole.is_empty() && (!point || (!frac.is_empty() && frac.len() as u32 <= k))
+                && whole.len() + frac.len() <= 15;
+            if plain && general(&text, &s).is_some() {
+                prop_assert!(fast.is_some(), "{} not taken", text);
+            }
+        }
+    }
+}

@@ -1158,4 +1158,90 @@ mod tests {
             );
         }
     }
+
+    #[test]
+    fn fast_and_general_paths_read_the_same_rows_and_errors() {
+        use rand::{Rng, SeedableRng};
+        let path = Path::new("log.csv");
+        let opts = LogOptions {
+            ignore: vec!["note".into()],
+            ..LogOptions::default()
+        };
+        let names: Vec<String> = ["unit_id", "a", "note", "b", "label"]
+            .map(String::from)
+            .to_vec();
+        let cols = Columns::resolve(path, names, &opts, None).unwrap();
+        let scales = [
+            ChannelScale::new("a", "", -100.0, 100.0, 0.01, 0.0).unwrap(),
+            ChannelScale::new("b", "", 0.0, 5000.0, 1.0, 0.0).unwrap(),
+        ];
+        let fast = fast::FastPlan::new(&cols, &scales, b',', &opts);
+        assert!(fast.is_some(), "both channels are plain decimal shifts");
+        let parser = |fast| Parser {
+            path,
+            opts: &opts,
+            cols: &cols,
+            delimiter: b',',
+            scales: Some(&scales),
+            fast,
+        };
+        let (with, without) = (parser(fast), parser(None));
+        // Every kind of cell the fast path must either read exactly or hand on.
+        let a_cells = [
+            "12.34", "-0.5", "100", "-100.00", "12.345", "12.355", "1e1", " 5", "5 ", "", "x",
+            "100.01", ".5", "5.", "+5", "-0", "0.00", "99.99",
+        ];
+        let b_cells = ["0", "5000", "5001", "17", "17.0", "-1", "4999"];
+        let labels = ["GO", "no-go", "Pass", " GO", "maybe", "gö", "NG", "0"];
+        let units = ["U1", " U2", "U3 ", "", "ü4"];
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let mut text = String::new();
+        for _ in 0..3000 {
+            let pick = |rng: &mut rand_chacha::ChaCha8Rng, xs: &[&'static str]| {
+                xs[rng.gen_range(0..xs.len())]
+            };
+            // Mostly plain rows, some of every other kind.
+            let a = if rng.gen_bool(0.6) {
+                "12.34"
+            } else {
+                pick(&mut rng, &a_cells)
+            };
+            let b = if rng.gen_bool(0.6) {
+                "17"
+            } else {
+                pick(&mut rng, &b_cells)
+            };
+            let l = if rng.gen_bool(0.6) {
+                "GO"
+            } else {
+                pick(&mut rng, &labels)
+            };
+            let u = if rng.gen_bool(0.8) {
+                "U1"
+            } else {
+                pick(&mut rng, &units)
+            };
+            match rng.gen_range(0..20) {
+                0 => text.push('\n'),
+                1 => text.push_str(&format!("{u},{a},n,{b}\n")),
+                2 => text.push_str(&format!("{u},{a},n,{b},{l},extra\n")),
+                3 => text.push_str(&format!("{u},{a},n,{b},{l}\r\n")),
+                _ => text.push_str(&format!("{u},{a},n,{b},{l}\n")),
+            }
+        }
+        let (mut p, mut q) = (Parsed::default(), Parsed::default());
+        with.piece(text.as_bytes(), 2, &mut p);
+        without.piece(text.as_bytes(), 2, &mut q);
+        assert!(p.labels.len() > 1000, "most rows are good");
+        assert_eq!(p.raw, q.raw);
+        assert_eq!(p.labels, q.labels);
+        assert_eq!(p.lines, q.lines);
+        assert_eq!(p.unit_bytes, q.unit_bytes);
+        assert_eq!(p.unit_ends, q.unit_ends);
+        let errors = |x: &Parsed| -> Vec<(usize, String)> {
+            x.errors.iter().map(|(k, e)| (*k, e.to_string())).collect()
+        };
+        assert!(q.errors.len() > 100, "the bad rows are there");
+        assert_eq!(errors(&p), errors(&q));
+    }
 }
