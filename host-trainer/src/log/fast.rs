@@ -50,38 +50,44 @@ impl DecimalChannel {
         })
     }
 
-    /// Parses the field starting at `pos`: an optional `-`, digits, optionally `.` and more
-    /// digits. Returns the raw count and the position after the field.
+    /// Parses the number starting at `pos`: an optional `-`, digits, optionally `.` and more
+    /// digits. Returns the raw count and the position of the first byte after it.
     #[inline]
-    fn parse(&self, rec: &[u8], mut pos: usize, delimiter: u8) -> Option<(i32, usize)> {
+    fn parse(&self, rec: &[u8], mut pos: usize) -> Option<(i32, usize)> {
         let neg = rec.get(pos) == Some(&b'-');
         if neg {
             pos += 1;
         }
+        // Whole digits, then fraction digits: two tight loops instead of one with a branch
+        // for the point on every byte.
+        let digits = |pos: &mut usize, mant: &mut u64| {
+            let from = *pos;
+            while let Some(d) = rec
+                .get(*pos)
+                .map(|b| b.wrapping_sub(b'0'))
+                .filter(|&d| d < 10)
+            {
+                *mant = mant.wrapping_mul(10).wrapping_add(u64::from(d));
+                *pos += 1;
+            }
+            (*pos - from) as u32
+        };
         let mut mant = 0u64;
-        let mut digits = 0u32;
-        let mut point: Option<u32> = None;
-        while let Some(&b) = rec.get(pos) {
-            let d = b.wrapping_sub(b'0');
-            if d < 10 {
-                mant = mant.wrapping_mul(10).wrapping_add(u64::from(d));
-                digits += 1;
-            } else if b == b'.' && point.is_none() {
-                point = Some(digits);
-            } else if b == delimiter {
-                break;
-            } else {
+        let whole = digits(&mut pos, &mut mant);
+        let mut frac = 0;
+        if rec.get(pos) == Some(&b'.') {
+            pos += 1;
+            frac = digits(&mut pos, &mut mant);
+            // "5." is a number too, but rare: the general path takes it.
+            if frac == 0 {
                 return None;
             }
-            pos += 1;
         }
-        let whole = point.unwrap_or(digits);
-        let frac = digits - whole;
-        // "5." and ".5" are numbers too, but rare: the general path takes them.
-        if digits > MAX_DIGITS || whole == 0 || (point.is_some() && frac == 0) || frac > self.k {
+        // So is ".5".
+        if whole + frac > MAX_DIGITS || whole == 0 || frac > self.k {
             return None;
         }
-        let n = i64::try_from(mant.checked_mul(10u64.pow(self.k - frac))?).ok()?;
+        let n = i64::try_from(mant.checked_mul(*POW10.get((self.k - frac) as usize)?)?).ok()?;
         let n = if neg { -n } else { n };
         if n < self.raw_min || n > self.raw_max {
             return None;
@@ -89,6 +95,17 @@ impl DecimalChannel {
         Some((i32::try_from(n).ok()?, pos))
     }
 }
+
+/// 10⁰ … 10¹⁹.
+const POW10: [u64; 20] = {
+    let mut p = [1u64; 20];
+    let mut i = 1;
+    while i < 20 {
+        p[i] = p[i - 1] * 10;
+        i += 1;
+    }
+    p
+};
 
 /// The fast path's plan for one log: each column's role and each channel's conversion.
 #[derive(Debug)]
@@ -105,7 +122,7 @@ pub(super) struct FastPlan {
 pub(super) struct FastRecord {
     /// +1 GO, −1 NO-GO.
     pub label: i8,
-    /// The unit-id field, as a range of the record.
+    /// The unit-id field, as a range of the run.
     pub unit: Option<(usize, usize)>,
 }
 
@@ -118,6 +135,10 @@ impl FastPlan {
         delimiter: u8,
         opts: &LogOptions,
     ) -> Option<Self> {
+        // A delimiter that can be part of a number would make fields ambiguous.
+        if delimiter.is_ascii_digit() || matches!(delimiter, b'.' | b'-' | b'"') {
+            return None;
+        }
         let channels = scales
             .iter()
             .map(DecimalChannel::for_scale)
@@ -144,59 +165,81 @@ impl FastPlan {
         })
     }
 
-    /// Reads one record (without its line end, and known to hold no quote) into `raw`, or
-    /// `None` if the general path must read it.
-    pub(super) fn record(
+    /// Reads the record starting at `pos` of `bytes` (which hold no quote) into `raw`, and
+    /// returns it with the position after its line end, or `None` if the general path must
+    /// read it.
+    pub(super) fn record_at(
         &self,
-        rec: &[u8],
-        line_len: usize,
+        bytes: &[u8],
+        pos: usize,
         raw: &mut [i32],
-    ) -> Option<FastRecord> {
-        if line_len > self.max_line_len {
-            return None;
-        }
+    ) -> Option<(FastRecord, usize)> {
         let last = self.roles.len().checked_sub(1)?;
-        let mut pos = 0usize;
+        let start_of_record = pos;
+        let mut pos = pos;
         let mut label = None;
         let mut unit = None;
         for (c, &role) in self.roles.iter().enumerate() {
             let start = pos;
+            let mut end;
             if let Role::Channel(j) = role {
-                let (value, end) = self.channels.get(j)?.parse(rec, pos, self.delimiter)?;
+                let (value, e) = self.channels.get(j)?.parse(bytes, pos)?;
                 *raw.get_mut(j)? = value;
-                pos = end;
+                end = e;
+                pos = e;
             } else {
                 // Fields are short: a plain loop beats a vectorised search here.
-                while rec.get(pos).is_some_and(|&b| b != self.delimiter) {
+                while bytes
+                    .get(pos)
+                    .is_some_and(|&b| b != self.delimiter && b != b'\n')
+                {
                     pos += 1;
                 }
-                let field = rec.get(start..pos)?;
-                match role {
-                    Role::Label => label = Some(self.label(field)?),
-                    Role::Unit => {
-                        // The general path trims ids; only untrimmed ones are read here.
-                        let padded = |b: Option<&u8>| b.is_some_and(u8::is_ascii_whitespace);
-                        if padded(field.first()) || padded(field.last()) {
-                            return None;
-                        }
-                        unit = Some((start, pos));
-                    }
-                    Role::Skip | Role::Channel(_) => {}
-                }
+                end = pos;
             }
             if c < last {
-                if rec.get(pos) != Some(&self.delimiter) {
+                if bytes.get(pos) != Some(&self.delimiter) {
                     return None;
                 }
                 pos += 1;
-            } else if pos != rec.len() {
-                return None;
+            } else {
+                // The record ends here: at a line feed, a CR LF, or the end of the run.
+                match bytes.get(pos) {
+                    None => {}
+                    Some(b'\n') => pos += 1,
+                    Some(b'\r') if matches!(bytes.get(pos + 1), Some(b'\n') | None) => {
+                        pos = (pos + 2).min(bytes.len());
+                    }
+                    Some(_) => return None,
+                }
+                if !matches!(role, Role::Channel(_)) && end > start && bytes[end - 1] == b'\r' {
+                    end -= 1;
+                }
+            }
+            let field = bytes.get(start..end)?;
+            match role {
+                Role::Label => label = Some(self.label(field)?),
+                Role::Unit => {
+                    // The general path trims ids; only untrimmed ones are read here.
+                    let padded = |b: Option<&u8>| b.is_some_and(u8::is_ascii_whitespace);
+                    if padded(field.first()) || padded(field.last()) {
+                        return None;
+                    }
+                    unit = Some((start, end));
+                }
+                Role::Skip | Role::Channel(_) => {}
             }
         }
-        Some(FastRecord {
-            label: label?,
-            unit,
-        })
+        if pos - start_of_record > self.max_line_len {
+            return None;
+        }
+        Some((
+            FastRecord {
+                label: label?,
+                unit,
+            },
+            pos,
+        ))
     }
 
     /// The label of a token, compared as the general path does for ASCII tokens.
@@ -223,6 +266,13 @@ mod tests {
         ChannelScale::new("c", "", min, max, lsb, 0.0).unwrap()
     }
 
+    /// The fast reader's answer for a whole field.
+    fn field(c: &DecimalChannel, text: &str) -> Option<i32> {
+        c.parse(text.as_bytes(), 0)
+            .filter(|&(_, end)| end == text.len())
+            .map(|(v, _)| v)
+    }
+
     /// The general path's answer: the standard library's correctly rounded decimal parser
     /// (IEEE 754 round-to-nearest) and the sheet's conversion.
     fn general(text: &str, s: &ChannelScale) -> Option<i32> {
@@ -239,18 +289,14 @@ mod tests {
             ("1000", 1_000_000),
             ("5.1", 5_100),
         ] {
-            assert_eq!(
-                c.parse(text.as_bytes(), 0, b','),
-                Some((want, text.len())),
-                "{text}"
-            );
+            assert_eq!(field(&c, text), Some(want), "{text}");
             assert_eq!(general(text, &s), Some(want), "{text}");
         }
         // More fraction digits than the lsb has, exponents, padding, out of range: general path.
         for text in [
             "0.0005", "1e3", " 5", "5 ", "+5", "5.", ".5", "1000.001", "-0.001", "--1",
         ] {
-            assert_eq!(c.parse(text.as_bytes(), 0, b','), None, "{text}");
+            assert_eq!(field(&c, text), None, "{text}");
         }
         // A channel with a zero point or an lsb that is not a power of ten has no fast path.
         assert!(
@@ -279,10 +325,9 @@ mod tests {
             let s = channel(lsb, -half, half);
             let c = DecimalChannel::for_scale(&s).unwrap();
             let text = format!("{}{whole}{}{}", if neg { "-" } else { "" }, if point { "." } else { "" }, if point { &frac } else { "" });
-            let fast = c.parse(text.as_bytes(), 0, b',');
-            if let Some((raw, end)) = fast {
-                prop_assert_eq!(end, text.len());
-                prop_assert_eq!(Some(raw), general(&text, &s), "{}", text);
+            let fast = field(&c, &text);
+            if fast.is_some() {
+                prop_assert_eq!(fast, general(&text, &s), "{}", text);
             }
             // Short plain decimals inside the range are always taken.
             let plain = !whole.is_empty() && (!point || (!frac.is_empty() && frac.len() as u32 <= k))

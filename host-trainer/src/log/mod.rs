@@ -446,14 +446,49 @@ impl Parser<'_> {
 
     /// Parses whole records `bytes` (ending at record ends) whose first byte is on `first_line`
     /// into `out` (cleared first).
-    fn piece(&self, bytes: &[u8], first_line: u64, out: &mut Parsed) {
+    /// `plain` says the bytes are known to hold no quote.
+    fn piece(&self, bytes: &[u8], first_line: u64, plain: bool, out: &mut Parsed) {
         let d = self.cols.channels.len();
         out.clear();
-        let mut vals = vec![0.0; d];
-        let mut raw_row = vec![0i32; d];
-        let mut owned = csv::ByteRecord::new();
-        let mut ranges: Vec<(usize, usize)> = Vec::with_capacity(self.cols.names.len());
+        let mut scratch = Scratch {
+            vals: vec![0.0; d],
+            raw_row: vec![0i32; d],
+            owned: csv::ByteRecord::new(),
+            ranges: Vec::with_capacity(self.cols.names.len()),
+        };
         let mut line = first_line;
+        // Without a quote in the run, a record is a line: the fast reader finds its end as it
+        // goes, and hands what it cannot read to the general path.
+        let fast = self
+            .fast
+            .as_ref()
+            .filter(|_| plain || memchr::memchr(b'"', bytes).is_none());
+        if let Some(f) = fast {
+            let mut pos = 0;
+            while pos < bytes.len() {
+                let end = match f.record_at(bytes, pos, out.raw_row_slot(d)) {
+                    Some((r, end)) => {
+                        if let Some((a, b)) = r.unit {
+                            out.unit_bytes.extend_from_slice(&bytes[a..b]);
+                            out.unit_ends.push(out.unit_bytes.len());
+                        }
+                        out.labels.push(r.label);
+                        out.lines.push(line);
+                        end
+                    }
+                    None => {
+                        out.raw.truncate(out.labels.len() * d);
+                        let end = memchr::memchr(b'\n', &bytes[pos..])
+                            .map_or(bytes.len(), |k| pos + k + 1);
+                        self.general(&bytes[pos..end], line, out, &mut scratch);
+                        end
+                    }
+                };
+                line += u64::from(bytes[end - 1] == b'\n');
+                pos = end;
+            }
+            return;
+        }
         let mut quote = false;
         let mut start = 0;
         // Records end at line feeds outside quotes; the last one may lack its line feed.
@@ -461,67 +496,63 @@ impl Parser<'_> {
         if ends.last() != Some(&bytes.len()) && !bytes.is_empty() {
             ends.push(bytes.len());
         }
-        // Without a quote in the run, a record holds exactly one line feed, at its end.
-        let fast = self
-            .fast
-            .as_ref()
-            .filter(|_| memchr::memchr(b'"', bytes).is_none());
         for end in ends {
             let raw = &bytes[start..end];
             start = end;
-            let rec = strip_line_end(raw);
-            if let Some(f) = fast {
-                if let Some(r) = f.record(rec, raw.len(), out.raw_row_slot(d)) {
-                    if let Some((a, b)) = r.unit {
-                        out.unit_bytes.extend_from_slice(&rec[a..b]);
-                        out.unit_ends.push(out.unit_bytes.len());
-                    }
-                    out.labels.push(r.label);
-                    out.lines.push(line);
-                    line += u64::from(raw.last() == Some(&b'\n'));
-                    continue;
-                }
-                out.raw.truncate(out.labels.len() * d);
-            }
-            let parsed = match fields(rec, self.delimiter, &mut owned, &mut ranges) {
-                Ok(src) => {
-                    let f = Fields {
-                        src,
-                        ranges: &ranges,
-                    };
-                    self.record(&f, raw.len(), line, &mut vals)
-                        .and_then(|label| {
-                            if let (Some(_), Some(scales)) = (label, self.scales) {
-                                self.to_raw(scales, &vals, &mut raw_row, line)?;
-                            }
-                            if let (Some(_), Some(u)) = (label, self.cols.unit) {
-                                out.unit_bytes.extend_from_slice(trim(f.get(u)));
-                                out.unit_ends.push(out.unit_bytes.len());
-                            }
-                            Ok(label)
-                        })
-                }
-                Err(message) => Err(InputError::Format {
-                    path: self.path.into(),
-                    message: format!("line {line}: {message}"),
-                }),
-            };
-            match parsed {
-                Ok(None) => {}
-                Ok(Some(label)) => {
-                    if self.scales.is_some() {
-                        out.raw.extend_from_slice(&raw_row);
-                    } else {
-                        out.values.extend_from_slice(&vals);
-                    }
-                    out.labels.push(label);
-                    out.lines.push(line);
-                }
-                Err(e) => out.errors.push((out.labels.len(), e)),
-            }
+            self.general(raw, line, out, &mut scratch);
             line += count_lf(raw);
         }
     }
+
+    /// Reads one record (with its line end) on `line` the general way, into `out`.
+    fn general(&self, raw: &[u8], line: u64, out: &mut Parsed, scratch: &mut Scratch) {
+        let Scratch {
+            vals,
+            raw_row,
+            owned,
+            ranges,
+        } = scratch;
+        let parsed = match fields(strip_line_end(raw), self.delimiter, owned, ranges) {
+            Ok(src) => {
+                let f = Fields { src, ranges };
+                self.record(&f, raw.len(), line, vals).and_then(|label| {
+                    if let (Some(_), Some(scales)) = (label, self.scales) {
+                        self.to_raw(scales, vals, raw_row, line)?;
+                    }
+                    if let (Some(_), Some(u)) = (label, self.cols.unit) {
+                        out.unit_bytes.extend_from_slice(trim(f.get(u)));
+                        out.unit_ends.push(out.unit_bytes.len());
+                    }
+                    Ok(label)
+                })
+            }
+            Err(message) => Err(InputError::Format {
+                path: self.path.into(),
+                message: format!("line {line}: {message}"),
+            }),
+        };
+        match parsed {
+            Ok(None) => {}
+            Ok(Some(label)) => {
+                if self.scales.is_some() {
+                    out.raw.extend_from_slice(raw_row);
+                } else {
+                    out.values.extend_from_slice(vals);
+                }
+                out.labels.push(label);
+                out.lines.push(line);
+            }
+            Err(e) => out.errors.push((out.labels.len(), e)),
+        }
+    }
+}
+
+/// Buffers the general path reuses from record to record.
+struct Scratch {
+    vals: Vec<f64>,
+    raw_row: Vec<i32>,
+    owned: csv::ByteRecord,
+    ranges: Vec<(usize, usize)>,
 }
 
 impl Parsed {
@@ -742,16 +773,34 @@ fn scan_blocks(
     loop {
         let body = &buf[pos..];
         let mut q = in_quote;
-        let mut ends = record_ends(body, &mut q);
-        if reader.eof && ends.last() != Some(&body.len()) && !body.is_empty() {
+        // Without a quote, record ends are line feeds, searched for only where needed;
+        // with quotes, all record ends are listed.
+        let plain = !in_quote && memchr::memchr(b'"', body).is_none();
+        let mut ends = if plain {
+            Vec::new()
+        } else {
+            record_ends(body, &mut q)
+        };
+        let (mut first_end, mut last_end) = if plain {
+            let lf = |k: usize| k + 1;
+            (
+                memchr::memchr(b'\n', body).map(lf),
+                memchr::memrchr(b'\n', body).map(lf),
+            )
+        } else {
+            (ends.first().copied(), ends.last().copied())
+        };
+        if reader.eof && last_end != Some(body.len()) && !body.is_empty() {
             ends.push(body.len());
+            last_end = Some(body.len());
+            first_end = first_end.or(last_end);
         }
         // Complete records to parse now, as (start, end) of `buf`, split into pieces.
         let mut work: Vec<(usize, usize)> = Vec::new();
         let mut starts: Vec<u64> = Vec::new();
         if discarding {
-            match ends.first() {
-                Some(&e) => {
+            match first_end {
+                Some(e) => {
                     line += count_lf(&body[..e]);
                     pos += e;
                     discarding = false;
@@ -763,7 +812,7 @@ fn scan_blocks(
                     in_quote = q;
                 }
             }
-        } else if ends.is_empty() && body.len() > opts.max_line_len {
+        } else if first_end.is_none() && body.len() > opts.max_line_len {
             let e = InputError::LineTooLong {
                 path: path.into(),
                 line,
@@ -777,17 +826,41 @@ fn scan_blocks(
             line += count_lf(body);
             pos = buf.len();
             in_quote = q;
-        } else if let Some(&cut) = ends.last() {
+        } else if let Some(cut) = last_end {
             // Split the complete records into pieces of about equal size, at record ends.
             let step = cut / pieces + 1;
-            let mut from = 0;
-            for &e in &ends {
-                if e - from >= step || e == cut {
-                    starts.push(line);
-                    line += count_lf(&body[from..e]);
-                    work.push((pos + from, pos + e));
+            let mut bounds = Vec::with_capacity(pieces + 1);
+            if plain {
+                let mut from = 0;
+                while from < cut {
+                    let e = memchr::memchr(b'\n', &body[(from + step).min(cut)..cut])
+                        .map_or(cut, |k| (from + step).min(cut) + k + 1);
+                    bounds.push(e);
                     from = e;
                 }
+            } else {
+                let mut from = 0;
+                for &e in &ends {
+                    if e - from >= step || e == cut {
+                        bounds.push(e);
+                        from = e;
+                    }
+                }
+            }
+            // Line feeds per piece, counted in parallel, give each piece its first line.
+            let mut from = 0;
+            for e in bounds {
+                work.push((pos + from, pos + e));
+                from = e;
+            }
+            use rayon::prelude::*;
+            let counts: Vec<u64> = work
+                .par_iter()
+                .map(|&(a, b)| count_lf(&buf[a..b]))
+                .collect();
+            for n in counts {
+                starts.push(line);
+                line += n;
             }
             pos += cut;
         }
@@ -809,7 +882,7 @@ fn scan_blocks(
                         pool.par_iter_mut()
                             .zip(work.par_iter().zip(&starts))
                             .for_each(|(out, (&(a, b), &first))| {
-                                parser.piece(&whole[a..b], first, out);
+                                parser.piece(&whole[a..b], first, plain, out);
                             });
                     },
                     || hasher.update(unhashed),
@@ -1165,6 +1238,7 @@ mod tests {
         let path = Path::new("log.csv");
         let opts = LogOptions {
             ignore: vec!["note".into()],
+            max_line_len: 40,
             ..LogOptions::default()
         };
         let names: Vec<String> = ["unit_id", "a", "note", "b", "label"]
@@ -1226,12 +1300,17 @@ mod tests {
                 1 => text.push_str(&format!("{u},{a},n,{b}\n")),
                 2 => text.push_str(&format!("{u},{a},n,{b},{l},extra\n")),
                 3 => text.push_str(&format!("{u},{a},n,{b},{l}\r\n")),
+                4 => text.push_str(&format!("{u},{a},n,{b},{l}\r\r\n")),
+                5 => text.push_str(&format!("{u}\r,{a},n,{b},{l}\n")),
+                6 => text.push_str(&format!("{u},{a},n,{b},{l}{}\n", " ".repeat(30))),
                 _ => text.push_str(&format!("{u},{a},n,{b},{l}\n")),
             }
         }
+        // The run may end without a line feed, even in a CR.
+        text.push_str("U9,1.5,n,2,GO\r");
         let (mut p, mut q) = (Parsed::default(), Parsed::default());
-        with.piece(text.as_bytes(), 2, &mut p);
-        without.piece(text.as_bytes(), 2, &mut q);
+        with.piece(text.as_bytes(), 2, false, &mut p);
+        without.piece(text.as_bytes(), 2, false, &mut q);
         assert!(p.labels.len() > 1000, "most rows are good");
         assert_eq!(p.raw, q.raw);
         assert_eq!(p.labels, q.labels);
@@ -1243,5 +1322,11 @@ mod tests {
         };
         assert!(q.errors.len() > 100, "the bad rows are there");
         assert_eq!(errors(&p), errors(&q));
+        assert_eq!(p.labels.last(), Some(&1), "the last record is read");
+        assert!(
+            q.errors
+                .iter()
+                .any(|(_, e)| matches!(e, InputError::LineTooLong { .. }))
+        );
     }
 }
