@@ -662,32 +662,38 @@ mod tests {
     #[test]
     fn radius_is_the_largest_augmented_norm_exactly() {
         // Many units of nearly equal norm: the fast pre-selection must not lose the largest.
+        // Channel counts with and without an unrolled pass, units in and out of order.
         use rand::Rng;
         let mut rng = ChaCha8Rng::seed_from_u64(11);
-        let points: Vec<Vec<f64>> = (0..5000)
-            .map(|_| {
-                let p: Vec<f64> = (0..6).map(|_| rng.gen_range(-1.0..1.0)).collect();
-                let n = p.iter().map(|v| v * v).sum::<f64>().sqrt();
-                p.iter().map(|v| 0.9 * v / n).collect()
-            })
-            .collect();
-        let labels = vec![1i8; points.len()];
-        let ds = Dataset::from_scaled(&points, &labels);
-        let mut x = vec![0.0; ds.dim()];
-        let want = (0..ds.len())
-            .map(|i| {
-                ds.scaled_row(i, &mut x);
+        for d in [1, 6, 16, 33] {
+            let points: Vec<Vec<f64>> = (0..5001)
+                .map(|_| {
+                    let p: Vec<f64> = (0..d).map(|_| rng.gen_range(-1.0..1.0)).collect();
+                    let n = p.iter().map(|v| v * v).sum::<f64>().sqrt();
+                    p.iter().map(|v| 0.9 * v / n).collect()
+                })
+                .collect();
+            let labels = vec![1i8; points.len()];
+            let ds = Dataset::from_scaled(&points, &labels);
+            let mut x = vec![0.0; ds.dim()];
+            let norm = |i: usize, x: &mut [f64]| {
+                ds.scaled_row(i, x);
                 (x.iter().map(|v| v * v).sum::<f64>() + 1.0).sqrt()
-            })
-            .fold(1.0, f64::max);
-        let idx = ds.all();
-        let (r, big) = extent(&ds, &idx);
-        assert_eq!(r, want);
-        for (j, m) in big.iter().enumerate() {
-            let exact = (0..ds.len())
-                .map(|i| f64::from(ds.raw_row(i)[j]).abs())
-                .fold(0.0, f64::max);
-            assert_eq!(*m, exact, "channel {j}");
+            };
+            let all = ds.all();
+            let odd: Vec<usize> = all.iter().rev().copied().step_by(2).collect();
+            for idx in [&all, &odd] {
+                let want = idx.iter().map(|&i| norm(i, &mut x)).fold(1.0, f64::max);
+                let (r, big) = extent(&ds, idx);
+                assert_eq!(r, want, "{d} channels");
+                for (j, m) in big.iter().enumerate() {
+                    let exact = idx
+                        .iter()
+                        .map(|&i| f64::from(ds.raw_row(i)[j]).abs())
+                        .fold(0.0, f64::max);
+                    assert_eq!(*m, exact, "{d} channels, channel {j}");
+                }
+            }
         }
     }
 }

@@ -209,7 +209,7 @@ impl Columns {
 }
 
 /// Bytes read per block by the parallel reader.
-const BLOCK: usize = 8 << 20;
+const BLOCK: usize = 4 << 20;
 
 struct Row<'r> {
     line: u64,
