@@ -243,11 +243,10 @@ fn extent_rows<const D: usize>(raw: &[i32], first: usize, off: &[f64], inv: &[f6
             let mut norm = |row: &[i32; D]| -> f64 {
                 let mut q = f64x4::ZERO;
                 let (whole, tail) = row.as_chunks::<4>();
-                let mut pad = [0i32; 4];
-                pad[..tail.len()].copy_from_slice(tail);
-                let chunks = whole.iter().chain((!tail.is_empty()).then_some(&pad));
+                let tail = (!tail.is_empty()).then(|| lane(tail));
+                let chunks = whole.iter().map(|r| i32x4::new(*r)).chain(tail);
                 for (((r, o), v), b) in chunks.zip(&off).zip(&inv).zip(big.iter_mut()) {
-                    let r = f64x4::from_i32x4(i32x4::new(*r));
+                    let r = f64x4::from_i32x4(r);
                     let x = (r - *o) * *v;
                     q += x * x;
                     // Readings are finite: the fast maximum needs no NaN handling.
@@ -281,19 +280,25 @@ fn extent_rows<const D: usize>(raw: &[i32], first: usize, off: &[f64], inv: &[f6
 /// The mistake test y·score ≤ 0 screened in single precision.
 ///
 /// Most units are far from the boundary, and for them a single-precision score decides the
-/// test at twice the speed; only units whose single-precision score is within its proven
-/// error bound of zero are decided in double precision. The decisions are those of the
-/// double-precision test on every unit. The bound: rounding w and x to f32 and multiplying
-/// err by at most 3.01u·|wⱼxⱼ| each, and summing n terms in any order by (n − 1)u·Σ|terms|
-/// (u = 2⁻²⁴; Higham, Accuracy and Stability of Numerical Algorithms, §3.1, from memory);
-/// with S = Σ|wⱼ|·maxⱼ|x| + |c|, the error is below (n + 4)·u·S, and the screen takes twice
-/// that, which also covers the double-precision score's own error.
+/// test at twice the speed; only units whose single-precision score lies within its proven
+/// error bound of zero are decided in double precision. So the decisions are those of the
+/// double-precision test on every unit.
+///
+/// The bound, with u = 2⁻²⁴: rounding wⱼ and xⱼ to f32 and multiplying them errs by at most
+/// 3.01u·|wⱼxⱼ| per term, and summing n terms in any order by at most (n − 1)u·Σ|terms|
+/// (the standard floating-point summation bound; Higham, *Accuracy and Stability of
+/// Numerical Algorithms*, ch. 3, from memory). With S = Σ|wⱼ|·max|xⱼ| + |c| over the n =
+/// channels + 1 terms, the error is below (n + 4)·u·S; the screen is twice that, which also
+/// covers the double-precision score's own error. Weights below 10⁻³⁰ (near f32's subnormal
+/// range) or S above 10³⁰ (near its overflow) turn the screen off.
 struct Screen {
     /// Weights in lanes of four, the last padded with zeros.
     w: Vec<f32x4>,
-    /// Channels.
+    /// Channel count.
     d: usize,
+    /// Constant term.
     c: f32,
+    /// Single-precision scores within this of zero are decided in double precision.
     bound: f32,
 }
 
@@ -383,9 +388,7 @@ fn score_of<const D: usize>(w: &[f32x4], x: &[i32; D]) -> f32 {
         acc += *a * i32x4::new(*b).round_float();
     }
     if let (Some(a), false) = (w.get(xc.len()), xt.is_empty()) {
-        let mut b = [0i32; 4];
-        b[..xt.len()].copy_from_slice(xt);
-        acc += *a * i32x4::new(b).round_float();
+        acc += *a * lane(xt).round_float();
     }
     acc.reduce_add()
 }
@@ -393,13 +396,20 @@ fn score_of<const D: usize>(w: &[f32x4], x: &[i32; D]) -> f32 {
 /// A dot product in single precision, for the screen.
 #[inline]
 fn score_f32(w: &[f32x4], x: &[i32]) -> f32 {
-    let mut acc = f32x4::ZERO;
-    for (a, b) in w.iter().zip(x.chunks(4)) {
-        let mut v = [0i32; 4];
-        v[..b.len()].copy_from_slice(b);
-        acc += *a * i32x4::new(v).round_float();
-    }
-    acc.reduce_add()
+    let products = w
+        .iter()
+        .zip(x.chunks(4))
+        .map(|(a, b)| *a * lane(b).round_float());
+    products.fold(f32x4::ZERO, |acc, p| acc + p).reduce_add()
+}
+
+/// Up to four readings as a lane, padded with zeros.
+#[inline(always)]
+fn lane(x: &[i32]) -> i32x4 {
+    let mut v = [0i32; 4];
+    let n = x.len().min(4);
+    v[..n].copy_from_slice(&x[..n]);
+    i32x4::new(v)
 }
 
 /// Position in `units` of the first unit on the wrong side of (or on) the boundary.

@@ -813,6 +813,11 @@ fn scan_blocks(
                 }
             }
         } else if first_end.is_none() && body.len() > opts.max_line_len {
+            // The rows before this line come first, errors included.
+            for p in ready.iter_mut().take(ready_len) {
+                feed(p, skipped)?;
+            }
+            ready_len = 0;
             let e = InputError::LineTooLong {
                 path: path.into(),
                 line,
@@ -1271,30 +1276,16 @@ mod tests {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
         let mut text = String::new();
         for _ in 0..3000 {
-            let pick = |rng: &mut rand_chacha::ChaCha8Rng, xs: &[&'static str]| {
-                xs[rng.gen_range(0..xs.len())]
+            // Mostly plain cells, some of every other kind.
+            let mut cell = |plain: &'static str, others: &[&'static str]| {
+                if rng.gen_bool(0.6) {
+                    plain
+                } else {
+                    others[rng.gen_range(0..others.len())]
+                }
             };
-            // Mostly plain rows, some of every other kind.
-            let a = if rng.gen_bool(0.6) {
-                "12.34"
-            } else {
-                pick(&mut rng, &a_cells)
-            };
-            let b = if rng.gen_bool(0.6) {
-                "17"
-            } else {
-                pick(&mut rng, &b_cells)
-            };
-            let l = if rng.gen_bool(0.6) {
-                "GO"
-            } else {
-                pick(&mut rng, &labels)
-            };
-            let u = if rng.gen_bool(0.8) {
-                "U1"
-            } else {
-                pick(&mut rng, &units)
-            };
+            let (a, b) = (cell("12.34", &a_cells), cell("17", &b_cells));
+            let (l, u) = (cell("GO", &labels), cell("U1", &units));
             match rng.gen_range(0..20) {
                 0 => text.push('\n'),
                 1 => text.push_str(&format!("{u},{a},n,{b}\n")),
@@ -1328,5 +1319,46 @@ mod tests {
                 .iter()
                 .any(|(_, e)| matches!(e, InputError::LineTooLong { .. }))
         );
+    }
+
+    #[test]
+    fn an_over_long_line_comes_after_the_errors_before_it() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("log.csv");
+        // The bad row right before the long line is parsed in the block before the one where
+        // the long line is found.
+        let mut text = String::from("a,label\n");
+        for i in 0..200 {
+            text.push_str(&format!("{i},NO-GO\n"));
+        }
+        text.push_str("x,GO\n");
+        text.push_str(&"9".repeat(500));
+        text.push_str(",GO\n7,GO\n");
+        std::fs::write(&path, &text).unwrap();
+        let strict = LogOptions {
+            max_line_len: 100,
+            ..LogOptions::default()
+        };
+        for block in [64, 256, 1 << 20] {
+            let e = rows(&path, &strict, block).unwrap_err();
+            assert!(e.contains("line 202"), "block {block}: {e}");
+            let skip = LogOptions {
+                skip_bad_rows: true,
+                ..strict.clone()
+            };
+            let mut skipped = SkipReport::default();
+            scan_blocks(&path, &skip, None, None, &mut skipped, |_, _| Ok(()), block).unwrap();
+            assert_eq!(skipped.total, 2, "block {block}");
+            assert!(
+                skipped.examples[0].contains("line 202"),
+                "{:?}",
+                skipped.examples
+            );
+            assert!(
+                skipped.examples[1].contains("line 203"),
+                "{:?}",
+                skipped.examples
+            );
+        }
     }
 }
