@@ -1237,34 +1237,104 @@ mod tests {
         }
     }
 
-    #[test]
-    fn fast_and_general_paths_read_the_same_rows_and_errors() {
-        use rand::{Rng, SeedableRng};
-        let path = Path::new("log.csv");
-        let opts = LogOptions {
-            ignore: vec!["note".into()],
-            max_line_len: 40,
-            ..LogOptions::default()
-        };
+    /// `bytes` as records of `unit_id,a,note,b,label` (note ignored) read with the fast path
+    /// (told the bytes hold no quote if `plain`) and by the general path alone.
+    fn both_paths(opts: &LogOptions, bytes: &[u8], plain: bool) -> (Parsed, Parsed) {
         let names: Vec<String> = ["unit_id", "a", "note", "b", "label"]
             .map(String::from)
             .to_vec();
-        let cols = Columns::resolve(path, names, &opts, None).unwrap();
+        let path = Path::new("log.csv");
+        let cols = Columns::resolve(path, names, opts, None).unwrap();
         let scales = [
             ChannelScale::new("a", "", -100.0, 100.0, 0.01, 0.0).unwrap(),
             ChannelScale::new("b", "", 0.0, 5000.0, 1.0, 0.0).unwrap(),
         ];
-        let fast = fast::FastPlan::new(&cols, &scales, b',', &opts);
+        let fast = fast::FastPlan::new(&cols, &scales, b',', opts);
         assert!(fast.is_some(), "both channels are plain decimal shifts");
         let parser = |fast| Parser {
             path,
-            opts: &opts,
+            opts,
             cols: &cols,
             delimiter: b',',
             scales: Some(&scales),
             fast,
         };
-        let (with, without) = (parser(fast), parser(None));
+        let (mut p, mut q) = (Parsed::default(), Parsed::default());
+        parser(fast).piece(bytes, 2, plain, &mut p);
+        parser(None).piece(bytes, 2, false, &mut q);
+        (p, q)
+    }
+
+    /// What a run of records parses to: rows, unit ids and errors (as text).
+    fn parsed_view(p: &Parsed) -> (Vec<i32>, Vec<i8>, Vec<u64>, Vec<u8>, Vec<(usize, String)>) {
+        (
+            p.raw.clone(),
+            p.labels.clone(),
+            p.lines.clone(),
+            p.unit_bytes.clone(),
+            p.errors.iter().map(|(k, e)| (*k, e.to_string())).collect(),
+        )
+    }
+
+    proptest::proptest! {
+        /// On any bytes from the alphabet of bench logs, the fast path reads what the general
+        /// path reads.
+        #[test]
+        fn fast_path_agrees_on_arbitrary_bytes(
+            bytes in proptest::collection::vec(proptest::sample::select(
+                b"0123456789012345678901234567890123456789.-,,,,,,,\n\n\r \"eEGOgoNU+x\xc3\xbc".to_vec()
+            ), 0..400),
+            plain in proptest::bool::ANY,
+        ) {
+            let opts = LogOptions {
+                ignore: vec!["note".into()],
+                max_line_len: 30,
+                ..LogOptions::default()
+            };
+            // `plain` may only be claimed for bytes without quotes.
+            let plain = plain && !bytes.contains(&b'"');
+            let (p, q) = both_paths(&opts, &bytes, plain);
+            proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
+        }
+
+        /// Records built from cells of every kind, good and bad, read alike by both paths.
+        #[test]
+        fn fast_path_agrees_on_records_of_any_cells(
+            records in proptest::collection::vec((
+                proptest::collection::vec(proptest::sample::select(vec![
+                    // Good cells often, so that many records are good rows.
+                    "1", "12.34", "17", "GO", "no-go", "1", "12.34", "17", "GO", "no-go",
+                    "1", "12.34", "17", "GO", "no-go", "-0.5", "100", "5000", "0", "-0",
+                    "12.345", "1e1", " 5", "5 ", "", "x", ".5", "5.", "+5", " GO", "gö",
+                    "maybe", "\"3,4\"", "99999999999999999999", "0.0000001",
+                ]), 4..6),
+                proptest::sample::select(vec!["\n", "\r\n", "\r", "\r\r\n", ""]),
+            ), 0..40),
+        ) {
+            let opts = LogOptions {
+                ignore: vec!["note".into()],
+                max_line_len: 40,
+                ..LogOptions::default()
+            };
+            let mut text = String::new();
+            for (cells, end) in &records {
+                text.push_str(&cells.join(","));
+                text.push_str(if end.is_empty() { "\n" } else { end });
+            }
+            let plain = !text.contains('"');
+            let (p, q) = both_paths(&opts, text.as_bytes(), plain);
+            proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
+        }
+    }
+
+    #[test]
+    fn fast_and_general_paths_read_the_same_rows_and_errors() {
+        use rand::{Rng, SeedableRng};
+        let opts = LogOptions {
+            ignore: vec!["note".into()],
+            max_line_len: 40,
+            ..LogOptions::default()
+        };
         // Every kind of cell the fast path must either read exactly or hand on.
         let a_cells = [
             "12.34", "-0.5", "100", "-100.00", "12.345", "12.355", "1e1", " 5", "5 ", "", "x",
@@ -1299,9 +1369,7 @@ mod tests {
         }
         // The run may end without a line feed, even in a CR.
         text.push_str("U9,1.5,n,2,GO\r");
-        let (mut p, mut q) = (Parsed::default(), Parsed::default());
-        with.piece(text.as_bytes(), 2, false, &mut p);
-        without.piece(text.as_bytes(), 2, false, &mut q);
+        let (p, q) = both_paths(&opts, text.as_bytes(), false);
         assert!(p.labels.len() > 1000, "most rows are good");
         assert_eq!(p.raw, q.raw);
         assert_eq!(p.labels, q.labels);
