@@ -1266,14 +1266,25 @@ mod tests {
     }
 
     /// What a run of records parses to: rows, unit ids and errors (as text).
-    fn parsed_view(p: &Parsed) -> (Vec<i32>, Vec<i8>, Vec<u64>, Vec<u8>, Vec<(usize, String)>) {
-        (
-            p.raw.clone(),
-            p.labels.clone(),
-            p.lines.clone(),
-            p.unit_bytes.clone(),
-            p.errors.iter().map(|(k, e)| (*k, e.to_string())).collect(),
-        )
+    #[derive(Debug, PartialEq)]
+    struct View {
+        raw: Vec<i32>,
+        labels: Vec<i8>,
+        lines: Vec<u64>,
+        units: Vec<u8>,
+        unit_ends: Vec<usize>,
+        errors: Vec<(usize, String)>,
+    }
+
+    fn parsed_view(p: &Parsed) -> View {
+        View {
+            raw: p.raw.clone(),
+            labels: p.labels.clone(),
+            lines: p.lines.clone(),
+            units: p.unit_bytes.clone(),
+            unit_ends: p.unit_ends.clone(),
+            errors: p.errors.iter().map(|(k, e)| (*k, e.to_string())).collect(),
+        }
     }
 
     proptest::proptest! {
