@@ -2,7 +2,7 @@
 //!
 //! Most records of a bench log are plain: no quotes, no padding, decimals in channels whose lsb
 //! is a power of ten. Such a record is split and converted to raw counts in one pass over its
-//! bytes with integer arithmetic only. Anything else makes [`FastPlan::record`] return `None`
+//! bytes with integer arithmetic only. Anything else makes [`FastPlan::record_at`] return `None`
 //! and the record takes the general path, which also words every error. The fast path never
 //! decides differently from the general one; [`DecimalChannel`] says why.
 
