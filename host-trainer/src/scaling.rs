@@ -122,7 +122,10 @@ impl ChannelScale {
     pub fn observed(name: &str, lo: f64, hi: f64) -> Result<Self, String> {
         let span = hi - lo;
         let (min, max) = (lo - 0.1 * span, hi + 0.1 * span);
-        let lsb = 10f64.powf(((max - min) / 20_000.0).log10().floor());
+        let e = ((max - min) / 20_000.0).log10().floor();
+        // The correctly rounded 10^e (as a sheet's "1e-3" would read), which the log reader's
+        // integer fast path recognises; `powf` need not round correctly.
+        let lsb = format!("1e{e}").parse().unwrap_or_else(|_| 10f64.powf(e));
         Self::new(name, "", min, max, lsb, 0.0)
     }
 

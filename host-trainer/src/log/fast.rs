@@ -309,6 +309,24 @@ mod tests {
         );
     }
 
+    #[test]
+    fn observed_ranges_take_the_fast_path() {
+        for (lo, hi) in [
+            (0.0, 1000.0),
+            (-5.0, 5.0),
+            (0.001, 0.002),
+            (20.0, 80.0),
+            (1.0, 2.0),
+        ] {
+            let s = ChannelScale::observed("c", lo, hi).unwrap();
+            assert!(
+                DecimalChannel::for_scale(&s).is_some(),
+                "[{lo}, {hi}]: lsb {}",
+                s.lsb
+            );
+        }
+    }
+
     proptest! {
         /// Whenever the fast path answers, it answers as the general path does.
         #[test]
