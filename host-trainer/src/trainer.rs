@@ -9,6 +9,9 @@
 use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::{Arc, Mutex};
+
 use wide::{f32x4, i32x4};
 
 use crate::dataset::{Dataset, RawForm};
@@ -426,6 +429,122 @@ fn first_mistake(f: &RawForm, screen: &Screen, ds: &Dataset, units: &[usize]) ->
     })
 }
 
+/// Weights as the mistake scan uses them.
+struct Weights {
+    f: RawForm,
+    screen: Screen,
+}
+
+/// A scan for the look-ahead thread: the first mistake in `units` under `w`.
+struct Job<'a> {
+    ticket: u64,
+    units: &'a [usize],
+    w: Arc<Weights>,
+}
+
+/// The perceptron's look-ahead thread and its mailbox.
+///
+/// The weights change only at a mistake, so while one thread scans a block, another can scan
+/// the next block under the same weights; if the first finds no mistake, the second's answer
+/// is the answer for the next block. Results are the sequential scan's exactly: an answer is
+/// used only for the block and weights it was asked for.
+#[derive(Default)]
+struct Lookahead<'a> {
+    mail: Mutex<Mail<'a>>,
+    /// Ticket of the one job whose answer is still wanted (0: none).
+    live: AtomicU64,
+    stop: AtomicBool,
+}
+
+#[derive(Default)]
+struct Mail<'a> {
+    job: Option<Job<'a>>,
+    done: Option<(u64, Option<usize>)>,
+}
+
+/// Units the look-ahead scans between checks that its answer is still wanted.
+const LOOKAHEAD_STEP: usize = 512;
+
+impl<'a> Lookahead<'a> {
+    fn mail(&self) -> std::sync::MutexGuard<'_, Mail<'a>> {
+        self.mail
+            .lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner)
+    }
+
+    /// Asks for the first mistake in `units` under `w`.
+    fn post(&self, ticket: u64, units: &'a [usize], w: Arc<Weights>) {
+        // Wanted before it is posted: the thread may take it at once and check.
+        self.live.store(ticket, Ordering::Release);
+        self.mail().job = Some(Job { ticket, units, w });
+    }
+
+    /// Withdraws the question (the weights changed).
+    fn cancel(&self) {
+        self.live.store(0, Ordering::Release);
+        self.mail().job = None;
+    }
+
+    /// The answer to `ticket`: `Some(first mistake)`, or `None` if the thread had not begun
+    /// (the question is withdrawn and the caller scans the block itself).
+    fn result(&self, ticket: u64) -> Option<Option<usize>> {
+        loop {
+            {
+                let mut m = self.mail();
+                if let Some((t, found)) = m.done
+                    && t == ticket
+                {
+                    m.done = None;
+                    return Some(found);
+                }
+                if m.job.as_ref().is_some_and(|j| j.ticket == ticket) {
+                    m.job = None;
+                    self.live.store(0, Ordering::Release);
+                    return None;
+                }
+            }
+            std::hint::spin_loop();
+        }
+    }
+
+    fn stop(&self) {
+        self.stop.store(true, Ordering::Release);
+    }
+
+    /// The look-ahead thread: answers questions until stopped.
+    fn serve(&self, ds: &Dataset) {
+        let mut idle = 0u32;
+        while !self.stop.load(Ordering::Acquire) {
+            let Some(job) = self.mail().job.take() else {
+                // Spin while questions come fast; yield the core when they do not.
+                idle = idle.saturating_add(1);
+                if idle > 1000 {
+                    std::thread::yield_now();
+                } else {
+                    std::hint::spin_loop();
+                }
+                continue;
+            };
+            idle = 0;
+            let mut found = None;
+            let mut wanted = true;
+            for (k, piece) in job.units.chunks(LOOKAHEAD_STEP).enumerate() {
+                if self.live.load(Ordering::Acquire) != job.ticket {
+                    wanted = false;
+                    break;
+                }
+                if let Some(p) = first_mistake(&job.w.f, &job.w.screen, ds, piece) {
+                    found = Some(k * LOOKAHEAD_STEP + p);
+                    break;
+                }
+            }
+            if wanted {
+                self.mail().done = Some((job.ticket, found));
+            }
+        }
+    }
+}
+
 /// Units per block of the perceptron's visit order.
 const BLOCK: usize = 4096;
 
@@ -450,20 +569,60 @@ pub fn perceptron(
     let mut rng = ChaCha8Rng::seed_from_u64(cfg.seed);
     let sc = ds.scaler();
     let (r, max_abs) = extent(ds, idx);
-    let mut on_raw = RawForm::augmented(ds, &v, r);
-    let mut screen = Screen::new(&on_raw, &max_abs);
+    let weights = |v: &[f64]| {
+        let f = RawForm::augmented(ds, v, r);
+        let screen = Screen::new(&f, &max_abs);
+        Arc::new(Weights { f, screen })
+    };
+    let mut w = weights(&v);
     let (mut updates, mut epochs, mut converged) = (0u64, 0u32, false);
-    while epochs < cfg.epochs {
-        epochs += 1;
-        blocks.shuffle(&mut rng);
-        let mut mistakes = 0usize;
-        for b in &blocks {
-            let mut start = 0;
-            // v·z/R is evaluated on the raw readings, (v·z)/R = Σ (vⱼ/(halfⱼ·R))·rawⱼ + const,
-            // and the block is scanned in a tight loop up to its next mistake.
-            while let Some(p) = first_mistake(&on_raw, &screen, ds, &b[start..]) {
-                let i = b[start + p];
-                c += p as f64;
+    let ahead = Lookahead::default();
+    // A second thread scans the block after the current one with the same weights, when
+    // there is a core for it: not inside a parallel job (cross-validation folds), not for
+    // a log of one block.
+    let spare_core = std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2)
+        && rayon::current_thread_index().is_none()
+        && blocks.len() >= 4;
+    std::thread::scope(|scope| {
+        if spare_core {
+            scope.spawn(|| ahead.serve(ds));
+        }
+        let mut ticket = 0u64;
+        while epochs < cfg.epochs {
+            epochs += 1;
+            blocks.shuffle(&mut rng);
+            let mut mistakes = 0usize;
+            // The next unit to visit is blocks[bi][start]; `posted` is the ticket of the
+            // look-ahead scan of blocks[bi + 1] under the current weights.
+            let (mut bi, mut start) = (0usize, 0usize);
+            let mut posted: Option<u64> = None;
+            while bi < blocks.len() {
+                if spare_core && posted.is_none() && bi + 1 < blocks.len() {
+                    ticket += 1;
+                    ahead.post(ticket, blocks[bi + 1], Arc::clone(&w));
+                    posted = Some(ticket);
+                }
+                // v·z/R is evaluated on the raw readings, (v·z)/R = Σ (vⱼ/(halfⱼ·R))·rawⱼ +
+                // const, and the block is scanned in a tight loop up to its next mistake.
+                let p = match first_mistake(&w.f, &w.screen, ds, &blocks[bi][start..]) {
+                    Some(p) => start + p,
+                    None => {
+                        c += (blocks[bi].len() - start) as f64;
+                        (bi, start) = (bi + 1, 0);
+                        match posted.take().and_then(|t| ahead.result(t)) {
+                            // The look-ahead found the next block clean: skip it.
+                            Some(None) => {
+                                c += blocks[bi].len() as f64;
+                                bi += 1;
+                                continue;
+                            }
+                            Some(Some(p)) => p,
+                            None => continue,
+                        }
+                    }
+                };
+                let i = blocks[bi][p];
+                c += (p - start) as f64;
                 let y = ds.y(i);
                 sc.row(ds, i, &mut z[..d]);
                 z[d] = 1.0;
@@ -471,26 +630,28 @@ pub fn perceptron(
                     *vj += y * zj / r;
                     *uj += c * y * zj / r;
                 }
-                on_raw = RawForm::augmented(ds, &v, r);
-                screen = Screen::new(&on_raw, &max_abs);
+                // New weights: a look-ahead under the old ones is void.
+                ahead.cancel();
+                posted = None;
+                w = weights(&v);
                 updates += 1;
                 mistakes += 1;
                 c += 1.0;
-                start += p + 1;
+                start = p + 1;
             }
-            c += (b.len() - start) as f64;
-        }
-        if kind == PerceptronKind::Pocket {
-            let errors = errors_of(ds, idx, &v, r);
-            if pocket.as_ref().is_none_or(|(e, _)| errors < *e) {
-                pocket = Some((errors, v.clone()));
+            if kind == PerceptronKind::Pocket {
+                let errors = errors_of(ds, idx, &v, r);
+                if pocket.as_ref().is_none_or(|(e, _)| errors < *e) {
+                    pocket = Some((errors, v.clone()));
+                }
+            }
+            if mistakes == 0 {
+                converged = true;
+                break;
             }
         }
-        if mistakes == 0 {
-            converged = true;
-            break;
-        }
-    }
+        ahead.stop();
+    });
     let final_v = match kind {
         PerceptronKind::Classic => v,
         PerceptronKind::Averaged => v.iter().zip(&u).map(|(a, b)| a - b / c).collect(),
@@ -704,6 +865,52 @@ mod tests {
                     assert_eq!(*m, exact, "{d} channels, channel {j}");
                 }
             }
+        }
+    }
+
+    #[test]
+    fn look_ahead_gives_the_sequential_run_exactly() {
+        // 40 000 units (ten blocks) on both sides of a hyperplane, none closer than 0.01 to
+        // it: the first epochs have many mistakes, the last ones whole blocks without.
+        use rand::Rng;
+        let mut rng = ChaCha8Rng::seed_from_u64(5);
+        let side = |p: &[f64]| p[0] - 0.5 * p[1] + 0.25 * p[3] - 0.1;
+        let points: Vec<Vec<f64>> = std::iter::repeat_with(|| {
+            (0..5)
+                .map(|_| rng.gen_range(-1.0..1.0))
+                .collect::<Vec<f64>>()
+        })
+        .filter(|p| side(p).abs() > 0.01)
+        .take(40_000)
+        .collect();
+        let labels: Vec<i8> = points
+            .iter()
+            .map(|p| if side(p) > 0.0 { 1 } else { -1 })
+            .collect();
+        let ds = Dataset::from_scaled(&points, &labels);
+        let idx = ds.all();
+        // Inside a rayon pool there is no look-ahead thread: the sequential scan.
+        let sequential = rayon::ThreadPoolBuilder::new()
+            .num_threads(1)
+            .build()
+            .unwrap();
+        for kind in [
+            PerceptronKind::Classic,
+            PerceptronKind::Averaged,
+            PerceptronKind::Pocket,
+        ] {
+            let cfg = PerceptronConfig {
+                epochs: 12,
+                seed: 9,
+            };
+            let with = perceptron(&ds, &idx, kind, cfg);
+            let without = sequential.install(|| perceptron(&ds, &idx, kind, cfg));
+            assert!(with.updates > 1000, "{kind:?}: a run with many updates");
+            assert_eq!(with.model, without.model, "{kind:?}");
+            assert_eq!(
+                (with.updates, with.epochs),
+                (without.updates, without.epochs)
+            );
         }
     }
 }
