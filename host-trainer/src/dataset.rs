@@ -195,7 +195,11 @@ pub struct UnitIds {
 impl UnitIds {
     /// Appends an id (lossily decoded).
     pub fn push(&mut self, id: &[u8]) {
-        self.text.push_str(&String::from_utf8_lossy(id));
+        // The strict check is the fast one; ids are nearly always valid UTF-8.
+        match std::str::from_utf8(id) {
+            Ok(text) => self.text.push_str(text),
+            Err(_) => self.text.push_str(&String::from_utf8_lossy(id)),
+        }
         self.ends
             .push(u32::try_from(self.text.len()).unwrap_or(u32::MAX));
     }
