@@ -578,8 +578,8 @@ pub fn perceptron(
     let (mut updates, mut epochs, mut converged) = (0u64, 0u32, false);
     let ahead = Lookahead::default();
     // A second thread scans the block after the current one with the same weights, when
-    // there is a core for it: not inside a parallel job (cross-validation folds), not for
-    // a log of one block.
+    // there is a core for it: not inside a parallel job (cross-validation folds), and not
+    // for logs of a few blocks, where starting a thread costs more than it saves.
     let spare_core = std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2)
         && rayon::current_thread_index().is_none()
         && blocks.len() >= 4;
