@@ -486,9 +486,13 @@ impl<'a> Lookahead<'a> {
     }
 
     /// The answer to `ticket`: `Some(first mistake)`, or `None` if the thread had not begun
-    /// (the question is withdrawn and the caller scans the block itself).
-    fn result(&self, ticket: u64) -> Option<Option<usize>> {
+    /// or has ended (the question is withdrawn and the caller scans the block itself).
+    fn result(&self, ticket: u64, serving: impl Fn() -> bool) -> Option<Option<usize>> {
         loop {
+            if !serving() {
+                self.cancel();
+                return None;
+            }
             {
                 let mut m = self.mail();
                 if let Some((t, found)) = m.done
@@ -584,9 +588,10 @@ pub fn perceptron(
         && rayon::current_thread_index().is_none()
         && blocks.len() >= 4;
     std::thread::scope(|scope| {
-        if spare_core {
-            scope.spawn(|| ahead.serve(ds));
-        }
+        let helper = spare_core.then(|| scope.spawn(|| ahead.serve(ds)));
+        // Should the thread end early (it can only by a panic, which the scope then raises),
+        // its questions are withdrawn rather than waited for.
+        let serving = || helper.as_ref().is_some_and(|h| !h.is_finished());
         let mut ticket = 0u64;
         while epochs < cfg.epochs {
             epochs += 1;
@@ -609,7 +614,7 @@ pub fn perceptron(
                     None => {
                         c += (blocks[bi].len() - start) as f64;
                         (bi, start) = (bi + 1, 0);
-                        match posted.take().and_then(|t| ahead.result(t)) {
+                        match posted.take().and_then(|t| ahead.result(t, serving)) {
                             // The look-ahead found the next block clean: skip it.
                             Some(None) => {
                                 c += blocks[bi].len() as f64;
