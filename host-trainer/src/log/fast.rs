@@ -1,10 +1,12 @@
 //! The fast path for ordinary records.
 //!
-//! Most records of a bench log are plain: no quotes, no padding, decimals in channels whose lsb
-//! is a power of ten. Such a record is split and converted to raw counts in one pass over its
-//! bytes with integer arithmetic only. Anything else makes [`FastPlan::record_at`] return `None`
-//! and the record takes the general path, which also words every error. The fast path never
-//! decides differently from the general one; [`DecimalChannel`] says why.
+//! Most records of a bench log are plain: no quotes, no padding, short decimals. Such a
+//! record is split and read in one pass over its bytes: to raw counts with integer
+//! arithmetic when every channel's lsb is a power of ten (the usual sheet), or to physical
+//! values (the first pass of observed scaling) by one exact division. Anything else makes
+//! [`FastPlan::record_at`] return `None` and the record takes the general path, which also
+//! words every error. The fast path never decides differently from the general one;
+//! [`DecimalChannel`] and [`Decimal::value`] say why.
 
 use super::{Columns, LogOptions};
 use crate::scaling::ChannelScale;
@@ -50,50 +52,87 @@ impl DecimalChannel {
         })
     }
 
-    /// Parses the number starting at `pos`: an optional `-`, digits, optionally `.` and more
-    /// digits. Returns the raw count and the position of the first byte after it.
+    /// The raw count of the number at `pos`, and the position of the first byte after it.
     #[inline]
-    fn parse(&self, rec: &[u8], mut pos: usize) -> Option<(i32, usize)> {
-        let neg = rec.get(pos) == Some(&b'-');
-        if neg {
-            pos += 1;
-        }
-        // Whole digits, then fraction digits: two tight loops instead of one with a branch
-        // for the point on every byte.
-        let digits = |pos: &mut usize, mant: &mut u64| {
-            let from = *pos;
-            while let Some(d) = rec
-                .get(*pos)
-                .map(|b| b.wrapping_sub(b'0'))
-                .filter(|&d| d < 10)
-            {
-                *mant = mant.wrapping_mul(10).wrapping_add(u64::from(d));
-                *pos += 1;
-            }
-            (*pos - from) as u32
-        };
-        let mut mant = 0u64;
-        let whole = digits(&mut pos, &mut mant);
-        let mut frac = 0;
-        if rec.get(pos) == Some(&b'.') {
-            pos += 1;
-            frac = digits(&mut pos, &mut mant);
-            // "5." is a number too, but rare: the general path takes it.
-            if frac == 0 {
-                return None;
-            }
-        }
-        // So is ".5".
-        if whole + frac > MAX_DIGITS || whole == 0 || frac > self.k {
+    fn raw(&self, rec: &[u8], pos: usize) -> Option<(i32, usize)> {
+        let d = decimal(rec, pos)?;
+        if d.frac > self.k {
             return None;
         }
-        let n = i64::try_from(mant.checked_mul(*POW10.get((self.k - frac) as usize)?)?).ok()?;
-        let n = if neg { -n } else { n };
+        let n = i64::try_from(
+            d.mant
+                .checked_mul(*POW10.get((self.k - d.frac) as usize)?)?,
+        )
+        .ok()?;
+        let n = if d.neg { -n } else { n };
         if n < self.raw_min || n > self.raw_max {
             return None;
         }
-        Some((i32::try_from(n).ok()?, pos))
+        Some((i32::try_from(n).ok()?, d.end))
     }
+}
+
+/// A plain decimal as read: sign, all its digits as one integer, how many of them follow
+/// the point, and the position of the first byte after it.
+struct Decimal {
+    neg: bool,
+    mant: u64,
+    frac: u32,
+    end: usize,
+}
+
+impl Decimal {
+    /// The double nearest the decimal. Exact by the classic fast path (Clinger 1990): the
+    /// mantissa (at most 15 digits) and 10^frac (at most 10¹⁵) are exact doubles, so one
+    /// correctly rounded division gives the nearest double, as any correct parser does.
+    fn value(&self) -> Option<f64> {
+        let x = self.mant as f64 / *POW10.get(self.frac as usize)? as f64;
+        Some(if self.neg { -x } else { x })
+    }
+}
+
+/// Reads the number at `pos`: an optional `-`, digits, optionally `.` and more digits; at
+/// most [`MAX_DIGITS`] digits. `None` for anything else ("5.", ".5", exponents, signs…),
+/// which the general path reads.
+#[inline]
+fn decimal(rec: &[u8], mut pos: usize) -> Option<Decimal> {
+    let neg = rec.get(pos) == Some(&b'-');
+    if neg {
+        pos += 1;
+    }
+    // Whole digits, then fraction digits: two tight loops instead of one with a branch for
+    // the point on every byte.
+    let digits = |pos: &mut usize, mant: &mut u64| {
+        let from = *pos;
+        while let Some(d) = rec
+            .get(*pos)
+            .map(|b| b.wrapping_sub(b'0'))
+            .filter(|&d| d < 10)
+        {
+            *mant = mant.wrapping_mul(10).wrapping_add(u64::from(d));
+            *pos += 1;
+        }
+        (*pos - from) as u32
+    };
+    let mut mant = 0u64;
+    let whole = digits(&mut pos, &mut mant);
+    let mut frac = 0;
+    if rec.get(pos) == Some(&b'.') {
+        pos += 1;
+        frac = digits(&mut pos, &mut mant);
+        if frac == 0 {
+            return None;
+        }
+    }
+    if whole + frac > MAX_DIGITS || whole == 0 {
+        return None;
+    }
+    Some(Decimal {
+        neg,
+        mant,
+        frac,
+        end: pos,
+    })
 }
 
 /// 10⁰ … 10¹⁹.
@@ -107,15 +146,25 @@ const POW10: [u64; 20] = {
     p
 };
 
-/// The fast path's plan for one log: each column's role and each channel's conversion.
+/// The fast path's plan for one log: each column's role and, when reading raw counts, each
+/// channel's conversion.
 #[derive(Debug)]
 pub(super) struct FastPlan {
     roles: Vec<Role>,
-    channels: Vec<DecimalChannel>,
+    /// Raw counts per channel; `None` reads physical values.
+    channels: Option<Vec<DecimalChannel>>,
     delimiter: u8,
     go: Vec<Vec<u8>>,
     nogo: Vec<Vec<u8>>,
     max_line_len: usize,
+}
+
+/// Where the fast path puts a record's readings.
+pub(super) enum Out<'o> {
+    /// Raw counts (the plan was made with scales).
+    Raw(&'o mut [i32]),
+    /// Physical values (the plan was made without).
+    Values(&'o mut [f64]),
 }
 
 /// A record the fast path read.
@@ -127,11 +176,11 @@ pub(super) struct FastRecord {
 }
 
 impl FastPlan {
-    /// The plan, or `None` if some channel is not a plain decimal shift (then every record
-    /// takes the general path).
+    /// The plan for raw counts under `scales`, or for physical values without; `None` if
+    /// some channel is not a plain decimal shift (then every record takes the general path).
     pub(super) fn new(
         cols: &Columns,
-        scales: &[ChannelScale],
+        scales: Option<&[ChannelScale]>,
         delimiter: u8,
         opts: &LogOptions,
     ) -> Option<Self> {
@@ -139,13 +188,19 @@ impl FastPlan {
         if delimiter.is_ascii_digit() || matches!(delimiter, b'.' | b'-' | b'"') {
             return None;
         }
-        let channels = scales
-            .iter()
-            .map(DecimalChannel::for_scale)
-            .collect::<Option<Vec<_>>>()?;
-        if channels.len() != cols.channels.len() {
-            return None;
-        }
+        let channels = match scales {
+            Some(scales) => {
+                let c = scales
+                    .iter()
+                    .map(DecimalChannel::for_scale)
+                    .collect::<Option<Vec<_>>>()?;
+                if c.len() != cols.channels.len() {
+                    return None;
+                }
+                Some(c)
+            }
+            None => None,
+        };
         let mut roles = vec![Role::Skip; cols.names.len()];
         *roles.get_mut(cols.label)? = Role::Label;
         if let Some(u) = cols.unit {
@@ -165,14 +220,14 @@ impl FastPlan {
         })
     }
 
-    /// Reads the record starting at `pos` of `bytes` (which hold no quote) into `raw`, and
+    /// Reads the record starting at `pos` of `bytes` (which hold no quote) into `out`, and
     /// returns it with the position after its line end, or `None` if the general path must
     /// read it.
     pub(super) fn record_at(
         &self,
         bytes: &[u8],
         pos: usize,
-        raw: &mut [i32],
+        mut out: Out<'_>,
     ) -> Option<(FastRecord, usize)> {
         let last = self.roles.len().checked_sub(1)?;
         let start_of_record = pos;
@@ -183,10 +238,20 @@ impl FastPlan {
             let start = pos;
             let mut end;
             if let Role::Channel(j) = role {
-                let (value, e) = self.channels.get(j)?.parse(bytes, pos)?;
-                *raw.get_mut(j)? = value;
-                end = e;
-                pos = e;
+                end = match (&mut out, &self.channels) {
+                    (Out::Raw(raw), Some(channels)) => {
+                        let (value, e) = channels.get(j)?.raw(bytes, pos)?;
+                        *raw.get_mut(j)? = value;
+                        e
+                    }
+                    (Out::Values(values), None) => {
+                        let d = decimal(bytes, pos)?;
+                        *values.get_mut(j)? = d.value()?;
+                        d.end
+                    }
+                    _ => return None,
+                };
+                pos = end;
             } else {
                 // Fields are short: a plain loop beats a vectorised search here.
                 while bytes
@@ -268,7 +333,7 @@ mod tests {
 
     /// The fast reader's answer for a whole field.
     fn field(c: &DecimalChannel, text: &str) -> Option<i32> {
-        c.parse(text.as_bytes(), 0)
+        c.raw(text.as_bytes(), 0)
             .filter(|&(_, end)| end == text.len())
             .map(|(v, _)| v)
     }
@@ -328,6 +393,30 @@ mod tests {
     }
 
     proptest! {
+        /// Decimals read as values are the nearest doubles, as the standard library's
+        /// correctly rounded parser (IEEE 754 round-to-nearest) gives them, bit for bit.
+        #[test]
+        fn values_are_the_nearest_doubles(
+            neg in any::<bool>(),
+            whole in "[0-9]{1,15}",
+            frac in "[0-9]{0,14}",
+        ) {
+            let text = if frac.is_empty() {
+                format!("{}{whole}", if neg { "-" } else { "" })
+            } else {
+                format!("{}{whole}.{frac}", if neg { "-" } else { "" })
+            };
+            let d = decimal(text.as_bytes(), 0);
+            if whole.len() + frac.len() <= MAX_DIGITS as usize {
+                let d = d.expect("a plain decimal of at most 15 digits is read");
+                prop_assert_eq!(d.end, text.len());
+                let want: f64 = text.parse().unwrap();
+                prop_assert_eq!(d.value().map(f64::to_bits), Some(want.to_bits()), "{}", text);
+            } else {
+                prop_assert!(d.is_none(), "{} has too many digits", text);
+            }
+        }
+
         /// Whenever the fast path answers, it answers as the general path does.
         #[test]
         fn fast_path_agrees_with_the_general_path(

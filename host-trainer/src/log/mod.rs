@@ -466,7 +466,12 @@ impl Parser<'_> {
         if let Some(f) = fast {
             let mut pos = 0;
             while pos < bytes.len() {
-                let end = match f.record_at(bytes, pos, out.raw_row_slot(d)) {
+                let slot = if self.scales.is_some() {
+                    fast::Out::Raw(grow(&mut out.raw, d))
+                } else {
+                    fast::Out::Values(grow(&mut out.values, d))
+                };
+                let end = match f.record_at(bytes, pos, slot) {
                     Some((r, end)) => {
                         if let Some((a, b)) = r.unit {
                             out.unit_bytes.extend_from_slice(&bytes[a..b]);
@@ -478,6 +483,7 @@ impl Parser<'_> {
                     }
                     None => {
                         out.raw.truncate(out.labels.len() * d);
+                        out.values.truncate(out.labels.len() * d);
                         let end = memchr::memchr(b'\n', &bytes[pos..])
                             .map_or(bytes.len(), |k| pos + k + 1);
                         self.general(&bytes[pos..end], line, out, &mut scratch);
@@ -555,13 +561,11 @@ struct Scratch {
     ranges: Vec<(usize, usize)>,
 }
 
-impl Parsed {
-    /// Appends a zeroed row of `d` raw readings and returns it, for the fast path to fill.
-    fn raw_row_slot(&mut self, d: usize) -> &mut [i32] {
-        let n = self.raw.len();
-        self.raw.resize(n + d, 0);
-        &mut self.raw[n..]
-    }
+/// Appends `d` zeros to `v` and returns them, for the fast path to fill.
+fn grow<T: Copy + Default>(v: &mut Vec<T>, d: usize) -> &mut [T] {
+    let n = v.len();
+    v.resize(n + d, T::default());
+    &mut v[n..]
 }
 
 /// Reads a file in blocks, advancing an optional progress bar.
@@ -726,7 +730,7 @@ fn scan_blocks(
         cols: &cols,
         delimiter,
         scales,
-        fast: scales.and_then(|s| fast::FastPlan::new(&cols, s, delimiter, opts)),
+        fast: fast::FastPlan::new(&cols, scales, delimiter, opts),
     };
     let mut feed = |parsed: &mut Parsed, skipped: &mut SkipReport| -> Result<(), InputError> {
         let d = cols.channels.len();
@@ -1238,25 +1242,27 @@ mod tests {
     }
 
     /// `bytes` as records of `unit_id,a,note,b,label` (note ignored) read with the fast path
-    /// (told the bytes hold no quote if `plain`) and by the general path alone.
-    fn both_paths(opts: &LogOptions, bytes: &[u8], plain: bool) -> (Parsed, Parsed) {
+    /// (told the bytes hold no quote if `plain`) and by the general path alone, as raw counts
+    /// or, without `raw`, as physical values.
+    fn both_paths(opts: &LogOptions, bytes: &[u8], plain: bool, raw: bool) -> (Parsed, Parsed) {
         let names: Vec<String> = ["unit_id", "a", "note", "b", "label"]
             .map(String::from)
             .to_vec();
         let path = Path::new("log.csv");
         let cols = Columns::resolve(path, names, opts, None).unwrap();
-        let scales = [
+        let sheet = [
             ChannelScale::new("a", "", -100.0, 100.0, 0.01, 0.0).unwrap(),
             ChannelScale::new("b", "", 0.0, 5000.0, 1.0, 0.0).unwrap(),
         ];
-        let fast = fast::FastPlan::new(&cols, &scales, b',', opts);
+        let scales = raw.then_some(&sheet[..]);
+        let fast = fast::FastPlan::new(&cols, scales, b',', opts);
         assert!(fast.is_some(), "both channels are plain decimal shifts");
         let parser = |fast| Parser {
             path,
             opts,
             cols: &cols,
             delimiter: b',',
-            scales: Some(&scales),
+            scales,
             fast,
         };
         let (mut p, mut q) = (Parsed::default(), Parsed::default());
@@ -1269,6 +1275,8 @@ mod tests {
     #[derive(Debug, PartialEq)]
     struct View {
         raw: Vec<i32>,
+        /// Values by their bits: -0.0 and 0.0 must agree too.
+        values: Vec<u64>,
         labels: Vec<i8>,
         lines: Vec<u64>,
         units: Vec<u8>,
@@ -1279,6 +1287,7 @@ mod tests {
     fn parsed_view(p: &Parsed) -> View {
         View {
             raw: p.raw.clone(),
+            values: p.values.iter().map(|v| v.to_bits()).collect(),
             labels: p.labels.clone(),
             lines: p.lines.clone(),
             units: p.unit_bytes.clone(),
@@ -1296,6 +1305,7 @@ mod tests {
                 b"0123456789012345678901234567890123456789.-,,,,,,,\n\n\r \"eEGOgoNU+x\xc3\xbc".to_vec()
             ), 0..400),
             plain in proptest::bool::ANY,
+            raw in proptest::bool::ANY,
         ) {
             let opts = LogOptions {
                 ignore: vec!["note".into()],
@@ -1304,7 +1314,7 @@ mod tests {
             };
             // `plain` may only be claimed for bytes without quotes.
             let plain = plain && !bytes.contains(&b'"');
-            let (p, q) = both_paths(&opts, &bytes, plain);
+            let (p, q) = both_paths(&opts, &bytes, plain, raw);
             proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
         }
 
@@ -1321,6 +1331,7 @@ mod tests {
                 ]), 4..6),
                 proptest::sample::select(vec!["\n", "\r\n", "\r", "\r\r\n", ""]),
             ), 0..40),
+            raw in proptest::bool::ANY,
         ) {
             let opts = LogOptions {
                 ignore: vec!["note".into()],
@@ -1333,7 +1344,7 @@ mod tests {
                 text.push_str(if end.is_empty() { "\n" } else { end });
             }
             let plain = !text.contains('"');
-            let (p, q) = both_paths(&opts, text.as_bytes(), plain);
+            let (p, q) = both_paths(&opts, text.as_bytes(), plain, raw);
             proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
         }
     }
@@ -1380,7 +1391,10 @@ mod tests {
         }
         // The run may end without a line feed, even in a CR.
         text.push_str("U9,1.5,n,2,GO\r");
-        let (p, q) = both_paths(&opts, text.as_bytes(), false);
+        let (p, q) = both_paths(&opts, text.as_bytes(), false, true);
+        let (pv, qv) = both_paths(&opts, text.as_bytes(), false, false);
+        assert_eq!(parsed_view(&pv), parsed_view(&qv), "as physical values");
+        assert!(pv.values.len() > 2000, "most rows are good as values too");
         assert!(p.labels.len() > 1000, "most rows are good");
         assert!(q.errors.len() > 100, "the bad rows are there");
         assert_eq!(parsed_view(&p), parsed_view(&q));
