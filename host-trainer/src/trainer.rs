@@ -12,7 +12,7 @@ use rand_chacha::ChaCha8Rng;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
 use std::sync::{Arc, Mutex};
 
-use wide::{f32x4, i32x4};
+use wide::{f32x4, f64x4, i32x4};
 
 use crate::dataset::{Dataset, RawForm};
 
@@ -131,8 +131,8 @@ struct Extent {
     top: f64,
     /// Units whose approximate ‖x‖² came within 10⁻¹² of the largest so far.
     candidates: Vec<(usize, f64)>,
-    /// Largest |raw| per channel.
-    big: Vec<f64>,
+    /// Largest |raw| per channel, in lanes of four.
+    big: Vec<f64x4>,
 }
 
 impl Extent {
@@ -140,11 +140,11 @@ impl Extent {
         q > 0.0 && q >= top * (1.0 - 1e-12)
     }
 
-    fn empty(d: usize) -> Self {
+    fn empty(big: Vec<f64x4>) -> Self {
         Self {
             top: 0.0,
             candidates: Vec::new(),
-            big: vec![0.0; d],
+            big,
         }
     }
 
@@ -160,10 +160,50 @@ impl Extent {
     fn merge(mut self, other: Self) -> Self {
         self.candidates.extend(other.candidates);
         for (a, b) in self.big.iter_mut().zip(other.big) {
-            *a = (*a).max(b);
+            *a = a.fast_max(b);
         }
         self.top = self.top.max(other.top);
         self
+    }
+}
+
+/// Approximate squared norms of scaled rows, ((raw − offset)·(1/half))² summed in lanes of
+/// four, and the largest |raw| per channel seen so far.
+struct Norms {
+    off: Vec<f64x4>,
+    inv: Vec<f64x4>,
+}
+
+impl Norms {
+    fn new(ds: &Dataset) -> Self {
+        let lanes = |v: Vec<f64>| v.chunks(4).map(|c| f64x4::new(pad4(c))).collect();
+        Self {
+            off: lanes(ds.scales.iter().map(|s| f64::from(s.offset)).collect()),
+            inv: lanes(ds.scales.iter().map(|s| 1.0 / s.half as f64).collect()),
+        }
+    }
+
+    /// The approximate ‖x‖² of one row (a padded lane adds (0 − 0)·0 = 0); raises `big`.
+    #[inline(always)]
+    fn norm(&self, row: &[i32], big: &mut [f64x4]) -> f64 {
+        let mut q = f64x4::ZERO;
+        // The tail as a padded copy chained by reference: mapping the whole lanes to vectors
+        // and chaining the tail's vector ran a quarter slower.
+        let (whole, tail) = row.as_chunks::<4>();
+        let pad = pad4(tail);
+        let chunks = whole.iter().chain((!tail.is_empty()).then_some(&pad));
+        for (((r, o), v), b) in chunks.zip(&self.off).zip(&self.inv).zip(big.iter_mut()) {
+            let r = f64x4::from_i32x4(i32x4::new(*r));
+            let x = (r - *o) * *v;
+            q += x * x;
+            // Readings are finite: the fast maximum needs no NaN handling.
+            *b = b.fast_max(r.abs());
+        }
+        q.reduce_add()
+    }
+
+    fn no_big(&self) -> Vec<f64x4> {
+        vec![f64x4::ZERO; self.off.len()]
     }
 }
 
@@ -175,35 +215,23 @@ impl Extent {
 fn extent(ds: &Dataset, idx: &[usize]) -> (f64, Vec<f64>) {
     use rayon::prelude::*;
     let d = ds.dim();
-    let off: Vec<f64> = ds.scales.iter().map(|s| f64::from(s.offset)).collect();
-    let inv: Vec<f64> = ds.scales.iter().map(|s| 1.0 / s.half as f64).collect();
-    let approx = |row: &[i32]| -> f64 {
-        let mut q = 0.0;
-        for ((&r, o), v) in row.iter().zip(&off).zip(&inv) {
-            let x = (f64::from(r) - o) * v;
-            q += x * x;
-        }
-        q
-    };
+    let norms = Norms::new(ds);
     let by_unit = || {
         idx.par_chunks(1 << 16)
             .map(|chunk| {
-                let mut e = Extent::empty(d);
+                let mut e = Extent::empty(norms.no_big());
                 for &i in chunk {
-                    let row = ds.raw_row(i);
-                    e.add(i, approx(row));
-                    for (m, &r) in e.big.iter_mut().zip(row) {
-                        *m = m.max(f64::from(r).abs());
-                    }
+                    let q = norms.norm(ds.raw_row(i), &mut e.big);
+                    e.add(i, q);
                 }
                 e
             })
-            .reduce(|| Extent::empty(d), Extent::merge)
+            .reduce(|| Extent::empty(norms.no_big()), Extent::merge)
     };
     let found = match consecutive(idx) {
         Some(a) => {
             let raw = &ds.raw[a * d..(a + idx.len()) * d];
-            by_dim!(d, D => extent_rows::<D>(raw, a, &off, &inv), _ => by_unit())
+            by_dim!(d, D => extent_rows::<D>(raw, a, &norms), _ => by_unit())
         }
         None => by_unit(),
     };
@@ -217,67 +245,47 @@ fn extent(ds: &Dataset, idx: &[usize]) -> (f64, Vec<f64>) {
             ds.scaled_row(i, &mut x);
             r.max((x.iter().map(|v| v * v).sum::<f64>() + 1.0).sqrt())
         });
-    (r, found.big)
+    let big = found
+        .big
+        .iter()
+        .flat_map(|b| b.to_array())
+        .take(d)
+        .collect();
+    (r, big)
 }
 
 /// [`extent`]'s pass over consecutive rows of `D` channels, the first being unit `first`.
-fn extent_rows<const D: usize>(raw: &[i32], first: usize, off: &[f64], inv: &[f64]) -> Extent {
+fn extent_rows<const D: usize>(raw: &[i32], first: usize, norms: &Norms) -> Extent {
     use rayon::prelude::*;
-    use wide::f64x4;
-    // Lanes of four, the last padded with zeros (a padded lane adds (0 − 0)·0 = 0).
-    let lanes = |v: &[f64]| -> Vec<f64x4> {
-        v.chunks(4)
-            .map(|c| {
-                let mut l = [0.0; 4];
-                l[..c.len()].copy_from_slice(c);
-                f64x4::new(l)
-            })
-            .collect()
-    };
-    let (off, inv) = (lanes(off), lanes(inv));
     const CHUNK: usize = 1 << 16;
     raw.as_chunks::<D>()
         .0
         .par_chunks(CHUNK)
         .enumerate()
         .map(|(c, rows)| {
-            let mut e = Extent::empty(D);
-            let mut big = vec![f64x4::ZERO; off.len()];
-            let mut norm = |row: &[i32; D]| -> f64 {
-                let mut q = f64x4::ZERO;
-                let (whole, tail) = row.as_chunks::<4>();
-                let tail = (!tail.is_empty()).then(|| lane(tail));
-                let chunks = whole.iter().map(|r| i32x4::new(*r)).chain(tail);
-                for (((r, o), v), b) in chunks.zip(&off).zip(&inv).zip(big.iter_mut()) {
-                    let r = f64x4::from_i32x4(r);
-                    let x = (r - *o) * *v;
-                    q += x * x;
-                    // Readings are finite: the fast maximum needs no NaN handling.
-                    *b = b.fast_max(r.abs());
-                }
-                q.reduce_add()
-            };
+            let mut e = Extent::empty(Vec::new());
+            let mut big = norms.no_big();
             // Four rows at a time keep several rows' loads in flight.
             let (quads, rest) = rows.as_chunks::<4>();
             for (k, quad) in quads.iter().enumerate() {
                 let q = [
-                    norm(&quad[0]),
-                    norm(&quad[1]),
-                    norm(&quad[2]),
-                    norm(&quad[3]),
+                    norms.norm(&quad[0], &mut big),
+                    norms.norm(&quad[1], &mut big),
+                    norms.norm(&quad[2], &mut big),
+                    norms.norm(&quad[3], &mut big),
                 ];
                 for (m, q) in q.into_iter().enumerate() {
                     e.add(first + c * CHUNK + 4 * k + m, q);
                 }
             }
             for (k, row) in rest.iter().enumerate() {
-                let q = norm(row);
+                let q = norms.norm(row, &mut big);
                 e.add(first + c * CHUNK + 4 * quads.len() + k, q);
             }
-            e.big = big.iter().flat_map(|b| b.to_array()).take(D).collect();
+            e.big = big;
             e
         })
-        .reduce(|| Extent::empty(D), Extent::merge)
+        .reduce(|| Extent::empty(norms.no_big()), Extent::merge)
 }
 
 /// The mistake test y·score ≤ 0 screened in single precision.
@@ -314,13 +322,7 @@ impl Screen {
         // Weights below f32's normal range lose their relative accuracy: no screening then.
         let tiny = w.iter().any(|&v| v != 0.0 && v.abs() < 1e-30);
         let usable = bound.is_finite() && bound < 1e30 && !tiny;
-        let lanes = w.chunks(4).map(|c| {
-            let mut l = [0.0f32; 4];
-            for (o, &v) in l.iter_mut().zip(c) {
-                *o = v as f32;
-            }
-            f32x4::new(l)
-        });
+        let lanes = w.chunks(4).map(|c| f32x4::new(pad4(c).map(|v| v as f32)));
         Self {
             w: lanes.collect(),
             d: w.len(),
@@ -406,13 +408,19 @@ fn score_f32(w: &[f32x4], x: &[i32]) -> f32 {
     products.fold(f32x4::ZERO, |acc, p| acc + p).reduce_add()
 }
 
+/// Up to four values as one lane of four, padded with zeros.
+#[inline(always)]
+fn pad4<T: Copy + Default>(x: &[T]) -> [T; 4] {
+    let mut v = [T::default(); 4];
+    let n = x.len().min(4);
+    v[..n].copy_from_slice(&x[..n]);
+    v
+}
+
 /// Up to four readings as a lane, padded with zeros.
 #[inline(always)]
 fn lane(x: &[i32]) -> i32x4 {
-    let mut v = [0i32; 4];
-    let n = x.len().min(4);
-    v[..n].copy_from_slice(&x[..n]);
-    i32x4::new(v)
+    i32x4::new(pad4(x))
 }
 
 /// Position in `units` of the first unit on the wrong side of (or on) the boundary.
