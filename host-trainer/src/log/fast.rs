@@ -8,7 +8,7 @@
 //! words every error. The fast path never decides differently from the general one;
 //! [`DecimalChannel`] and [`Decimal::value`] say why.
 
-use super::{Columns, LogOptions};
+use super::{Columns, LogOptions, label_of};
 use crate::scaling::ChannelScale;
 
 /// What the fast path does with one column.
@@ -154,8 +154,8 @@ pub(super) struct FastPlan {
     /// Raw counts per channel; `None` reads physical values.
     channels: Option<Vec<DecimalChannel>>,
     delimiter: u8,
-    go: Vec<Vec<u8>>,
-    nogo: Vec<Vec<u8>>,
+    go: Vec<String>,
+    nogo: Vec<String>,
     max_line_len: usize,
 }
 
@@ -209,13 +209,12 @@ impl FastPlan {
         for (j, &c) in cols.channels.iter().enumerate() {
             *roles.get_mut(c)? = Role::Channel(j);
         }
-        let tokens = |t: &[String]| t.iter().map(|s| s.as_bytes().to_vec()).collect();
         Some(Self {
             roles,
             channels,
             delimiter,
-            go: tokens(&opts.go_labels),
-            nogo: tokens(&opts.nogo_labels),
+            go: opts.go_labels.clone(),
+            nogo: opts.nogo_labels.clone(),
             max_line_len: opts.max_line_len,
         })
     }
@@ -283,7 +282,7 @@ impl FastPlan {
             }
             let field = bytes.get(start..end)?;
             match role {
-                Role::Label => label = Some(self.label(field)?),
+                Role::Label => label = Some(label_of(field, &self.go, &self.nogo)?),
                 Role::Unit => {
                     // The general path trims ids; only untrimmed ones are read here.
                     let padded = |b: Option<&u8>| b.is_some_and(u8::is_ascii_whitespace);
@@ -305,20 +304,6 @@ impl FastPlan {
             },
             pos,
         ))
-    }
-
-    /// The label of a token, compared as the general path does for ASCII tokens.
-    fn label(&self, field: &[u8]) -> Option<i8> {
-        let is = |tokens: &[Vec<u8>]| tokens.iter().any(|t| t.eq_ignore_ascii_case(field));
-        if !field.is_ascii() {
-            None
-        } else if is(&self.go) {
-            Some(1)
-        } else if is(&self.nogo) {
-            Some(-1)
-        } else {
-            None
-        }
     }
 }
 

@@ -398,28 +398,16 @@ impl Parser<'_> {
             *v = x;
         }
         let lf = trim(f.get(cols.label));
-        // Tokens are compared case-insensitively; ASCII labels (the usual case) need no allocation.
-        let is = |tokens: &[String]| {
-            if lf.is_ascii() {
-                tokens.iter().any(|t| t.as_bytes().eq_ignore_ascii_case(lf))
-            } else {
-                let token = String::from_utf8_lossy(lf).to_lowercase();
-                tokens.contains(&token)
-            }
-        };
-        if is(&opts.go_labels) {
-            Ok(Some(1))
-        } else if is(&opts.nogo_labels) {
-            Ok(Some(-1))
-        } else {
-            Err(InputError::UnknownLabel {
+        match label_of(lf, &opts.go_labels, &opts.nogo_labels) {
+            Some(label) => Ok(Some(label)),
+            None => Err(InputError::UnknownLabel {
                 path: path.into(),
                 line,
                 column: cols.names[cols.label].clone(),
                 value: cell_text(lf),
                 go: opts.go_labels.join(", "),
                 nogo: opts.nogo_labels.join(", "),
-            })
+            }),
         }
     }
 
@@ -935,6 +923,28 @@ fn scan_blocks(
     }
     let hash = hasher.finalize();
     Ok((cols, crate::float_model::lower_hex(&hash)))
+}
+
+/// The label `token` stands for, +1 GO or −1 NO-GO (lower-case `go` and `nogo` tokens,
+/// compared case-insensitively), or `None`. ASCII tokens (the usual case) need no allocation.
+fn label_of(token: &[u8], go: &[String], nogo: &[String]) -> Option<i8> {
+    let is = |tokens: &[String]| {
+        if token.is_ascii() {
+            tokens
+                .iter()
+                .any(|t| t.as_bytes().eq_ignore_ascii_case(token))
+        } else {
+            let token = String::from_utf8_lossy(token).to_lowercase();
+            tokens.contains(&token)
+        }
+    };
+    if is(go) {
+        Some(1)
+    } else if is(nogo) {
+        Some(-1)
+    } else {
+        None
+    }
 }
 
 fn is_row_error(e: &InputError) -> bool {
