@@ -122,10 +122,8 @@ impl ChannelScale {
     pub fn observed(name: &str, lo: f64, hi: f64) -> Result<Self, String> {
         let span = hi - lo;
         let (min, max) = (lo - 0.1 * span, hi + 0.1 * span);
-        let e = ((max - min) / 20_000.0).log10().floor();
-        // The correctly rounded 10^e (as a sheet's "1e-3" would read), which the log reader's
-        // integer fast path recognises; `powf` need not round correctly.
-        let lsb = format!("1e{e}").parse().unwrap_or_else(|_| 10f64.powf(e));
+        // Saturating conversion: a degenerate span gives 0 or ∞, refused below.
+        let lsb = power_of_ten(((max - min) / 20_000.0).log10().floor() as i32);
         Self::new(name, "", min, max, lsb, 0.0)
     }
 
@@ -166,6 +164,12 @@ impl ChannelScale {
         }
         (1, 0)
     }
+}
+
+/// 10^e as the nearest double, as a sheet's `1e-3` reads (which the log reader's integer
+/// fast path recognises); `powf` need not round correctly.
+pub(crate) fn power_of_ten(e: i32) -> f64 {
+    format!("1e{e}").parse().unwrap_or(f64::NAN)
 }
 
 #[derive(Deserialize)]

@@ -9,7 +9,7 @@
 //! [`DecimalChannel`] and [`Decimal::value`] say why.
 
 use super::{Columns, LogOptions, label_of};
-use crate::scaling::ChannelScale;
+use crate::scaling::{ChannelScale, power_of_ten};
 
 /// What the fast path does with one column.
 #[derive(Clone, Copy, Debug)]
@@ -44,7 +44,7 @@ impl DecimalChannel {
         if s.zero != 0.0 {
             return None;
         }
-        let k = (0..=9u32).find(|k| format!("1e-{k}").parse::<f64>() == Ok(s.lsb))?;
+        let k = (0..=9u32).find(|&k| power_of_ten(-(k as i32)) == s.lsb)?;
         Some(Self {
             k,
             raw_min: i64::from(s.raw_min),
@@ -412,7 +412,7 @@ mod tests {
             k in 0u32..=9,
             span in 1u32..1_000_000_000,
         ) {
-            let lsb: f64 = format!("1e-{k}").parse().unwrap();
+            let lsb = power_of_ten(-(k as i32));
             let half = f64::from(span) * lsb;
             let s = channel(lsb, -half, half);
             let c = DecimalChannel::for_scale(&s).unwrap();
