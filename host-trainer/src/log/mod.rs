@@ -720,34 +720,38 @@ fn scan_blocks(
         scales,
         fast: fast::FastPlan::new(&cols, scales, delimiter, opts),
     };
-    let mut feed = |parsed: &mut Parsed, skipped: &mut SkipReport| -> Result<(), InputError> {
+    // Hands on the rows of parsed runs in file order. A row's error is skipped and counted
+    // under `skip_bad_rows`; any other error ends the scan.
+    let mut feed = |runs: &mut [Parsed], skipped: &mut SkipReport| -> Result<(), InputError> {
         let d = cols.channels.len();
-        let mut errors = parsed.errors.drain(..).peekable();
-        for k in 0..=parsed.labels.len() {
-            while let Some((_, e)) = errors.next_if(|(at, _)| *at == k) {
-                if opts.skip_bad_rows && is_row_error(&e) {
-                    skipped.add(&e);
-                } else {
-                    return Err(e);
-                }
+        let mut settle = |e: InputError| {
+            if opts.skip_bad_rows && is_row_error(&e) {
+                skipped.add(&e);
+                Ok(())
+            } else {
+                Err(e)
             }
-            let Some(&label) = parsed.labels.get(k) else {
-                break;
-            };
-            let row = Row {
-                line: parsed.lines[k],
-                values: parsed.values.get(k * d..(k + 1) * d).unwrap_or(&[]),
-                raw: parsed.raw.get(k * d..(k + 1) * d).unwrap_or(&[]),
-                label,
-                unit: parsed.unit_ends.get(k).map(|&e| {
-                    let b = if k == 0 { 0 } else { parsed.unit_ends[k - 1] };
-                    &parsed.unit_bytes[b..e]
-                }),
-            };
-            match on_row(&cols, row) {
-                Ok(()) => {}
-                Err(e) if opts.skip_bad_rows && is_row_error(&e) => skipped.add(&e),
-                Err(e) => return Err(e),
+        };
+        for parsed in runs {
+            let mut errors = parsed.errors.drain(..).peekable();
+            for k in 0..=parsed.labels.len() {
+                while let Some((_, e)) = errors.next_if(|(at, _)| *at == k) {
+                    settle(e)?;
+                }
+                let Some(&label) = parsed.labels.get(k) else {
+                    break;
+                };
+                let row = Row {
+                    line: parsed.lines[k],
+                    values: parsed.values.get(k * d..(k + 1) * d).unwrap_or(&[]),
+                    raw: parsed.raw.get(k * d..(k + 1) * d).unwrap_or(&[]),
+                    label,
+                    unit: parsed.unit_ends.get(k).map(|&e| {
+                        let b = if k == 0 { 0 } else { parsed.unit_ends[k - 1] };
+                        &parsed.unit_bytes[b..e]
+                    }),
+                };
+                on_row(&cols, row).or_else(&mut settle)?;
             }
         }
         Ok(())
@@ -806,9 +810,7 @@ fn scan_blocks(
             }
         } else if first_end.is_none() && body.len() > opts.max_line_len {
             // The rows before this line come first, errors included.
-            for p in ready.iter_mut().take(ready_len) {
-                feed(p, skipped)?;
-            }
+            feed(&mut ready[..ready_len], skipped)?;
             ready_len = 0;
             let e = InputError::LineTooLong {
                 path: path.into(),
@@ -894,12 +896,7 @@ fn scan_blocks(
                             reader.refill(&mut next)
                         }
                     },
-                    || {
-                        ready
-                            .iter_mut()
-                            .take(ready_len)
-                            .try_for_each(|p| feed(p, skipped))
-                    },
+                    || feed(&mut ready[..ready_len], skipped),
                 )
             },
         );
@@ -908,9 +905,7 @@ fn scan_blocks(
         std::mem::swap(&mut pool, &mut ready);
         ready_len = work.len();
         if done {
-            for p in ready.iter_mut().take(ready_len) {
-                feed(p, skipped)?;
-            }
+            feed(&mut ready[..ready_len], skipped)?;
             break;
         }
         std::mem::swap(&mut buf, &mut next);
