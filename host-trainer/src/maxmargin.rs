@@ -269,24 +269,20 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
             let sum = ai + aj;
             ni = ai - delta;
             nj = aj + delta;
-            if sum > c {
-                if ni > c {
-                    ni = c;
-                    nj = sum - c;
+            // The sum stays fixed; clip one of the pair into [0, c], then the other.
+            let clip = |a: &mut f64, b: &mut f64| {
+                if sum > c {
+                    if *a > c {
+                        *a = c;
+                        *b = sum - c;
+                    }
+                } else if *b < 0.0 {
+                    *b = 0.0;
+                    *a = sum;
                 }
-            } else if nj < 0.0 {
-                nj = 0.0;
-                ni = sum;
-            }
-            if sum > c {
-                if nj > c {
-                    nj = c;
-                    ni = sum - c;
-                }
-            } else if ni < 0.0 {
-                ni = 0.0;
-                nj = sum;
-            }
+            };
+            clip(&mut ni, &mut nj);
+            clip(&mut nj, &mut ni);
         }
         let (di, dj) = ((ni - ai) * yi, (nj - aj) * yj);
         work.alpha[i] = ni;
