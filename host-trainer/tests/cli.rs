@@ -12,6 +12,16 @@ fn linegate(args: &[&str], dir: &Path) -> Output {
         .expect("run linegate")
 }
 
+/// Asserts the exit code, showing what the tool wrote to stderr if it differs.
+fn exits(o: &Output, code: i32) {
+    assert_eq!(
+        o.status.code(),
+        Some(code),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+}
+
 fn write(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
     let p = dir.join(name);
     std::fs::write(&p, bytes).unwrap();
@@ -121,12 +131,7 @@ fn quoted_fields_crlf_and_bom_are_read() {
     let text = "\u{feff}\"unit_id\",\"a\",\"b\",\"label\"\r\n\"U,1\",\"1.0\",2.0,go\r\nU2,2.0,1.5,Pass\r\nU3,-1.0,-2.0,FAIL\r\nU4,-2.0,-1.0,nogo\r\n";
     let log = write(dir.path(), "log.csv", text.as_bytes());
     let o = linegate(&["check", log.to_str().unwrap()], dir.path());
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     assert!(String::from_utf8_lossy(&o.stdout).contains("4 units, 2 channels: LINEARLY SEPARABLE"));
     let tsv = write(dir.path(), "log.tsv", GOOD.replace(',', "\t").as_bytes());
     assert_eq!(
@@ -156,12 +161,7 @@ fn skip_bad_rows_counts_what_it_skipped() {
         ],
         dir.path(),
     );
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(v["model"]["summary"]["skipped"]["total"], 3);
     assert_eq!(v["model"]["summary"]["units"], 4);
@@ -176,7 +176,7 @@ fn check_exits_1_on_xor_and_names_the_conflicting_units() {
         b"unit,a,b,label\nP1,0,0,GO\nP2,1,1,GO\nN1,0,1,NO-GO\nN2,1,0,NO-GO\n",
     );
     let o = linegate(&["check", log.to_str().unwrap()], dir.path());
-    assert_eq!(o.status.code(), Some(1));
+    exits(&o, 1);
     let out = String::from_utf8_lossy(&o.stdout);
     for u in ["P1", "P2", "N1", "N2"] {
         assert!(out.contains(u), "{u} missing from: {out}");
@@ -219,12 +219,7 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
         ],
         d,
     );
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     let o = linegate(
         &[
             "pack",
@@ -239,12 +234,7 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
         ],
         d,
     );
-    assert_eq!(
-        o.status.code(),
-        Some(1),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 1);
     assert!(String::from_utf8_lossy(&o.stderr).contains("audit failed, nothing written"));
     assert!(!d.join("m.lgb").exists());
     let o = linegate(
@@ -260,7 +250,7 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
         ],
         d,
     );
-    assert_eq!(o.status.code(), Some(1));
+    exits(&o, 1);
     let o = linegate(
         &[
             "pack",
@@ -276,12 +266,7 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
         ],
         d,
     );
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     let o = linegate(&["inspect", "m.lgb"], d);
     assert!(String::from_utf8_lossy(&o.stdout).contains("audit: Overridden"));
     // 32-bit weights keep the margin: the audit passes and the blob says so.
@@ -301,19 +286,9 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
         ],
         d,
     );
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     let o = linegate(&["inspect", "ok.hex", "--model", "m.json"], d);
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     assert!(String::from_utf8_lossy(&o.stdout).contains("audit: Passed"));
     // Existing files are not overwritten without --force.
     let o = linegate(
@@ -330,7 +305,7 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
         ],
         d,
     );
-    assert_eq!(o.status.code(), Some(2));
+    exits(&o, 2);
     assert!(String::from_utf8_lossy(&o.stderr).contains("already exists; pass --force"));
 }
 
@@ -339,12 +314,7 @@ fn inspect_catches_a_flipped_bit_and_a_mismatched_model() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     let o = linegate(&["-q", "demo", "--out", "demo"], d);
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     let blob = std::fs::read(d.join("demo/model.lgb")).unwrap();
     let o = linegate(
         &[
@@ -357,12 +327,7 @@ fn inspect_catches_a_flipped_bit_and_a_mismatched_model() {
         ],
         d,
     );
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     let stdout = String::from_utf8_lossy(&o.stdout);
     assert!(
         stdout.contains("status: ok") && stdout.contains("matches audit report"),
@@ -399,9 +364,9 @@ fn inspect_catches_a_flipped_bit_and_a_mismatched_model() {
         ],
         d,
     );
-    assert_eq!(o.status.code(), Some(0));
+    exits(&o, 0);
     let o = linegate(&["inspect", "demo/model.lgb", "--model", "other.json"], d);
-    assert_eq!(o.status.code(), Some(1));
+    exits(&o, 1);
     assert!(String::from_utf8_lossy(&o.stderr).contains("does not match"));
 }
 
@@ -424,7 +389,7 @@ fn replay_prints_the_demo_lines() {
         ],
         d,
     );
-    assert_eq!(o.status.code(), Some(0));
+    exits(&o, 0);
     assert_eq!(
         String::from_utf8_lossy(&o.stdout),
         std::fs::read_to_string(d.join("demo/replay-holdout.txt")).unwrap()
@@ -471,12 +436,7 @@ fn audit_lists_every_unit_with_the_kernel_scores() {
         .concat(),
         d,
     );
-    assert_eq!(
-        o.status.code(),
-        Some(0),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
+    exits(&o, 0);
     let csv = std::fs::read_to_string(d.join("units.csv")).unwrap();
     let rows: Vec<&str> = csv.lines().skip(1).collect();
     assert_eq!(rows.len(), 800 + 400, "every training and holdout unit");
@@ -506,7 +466,7 @@ fn every_subcommand_help_has_an_example() {
         "check", "train", "audit", "pack", "inspect", "replay", "generate", "demo",
     ] {
         let o = linegate(&[cmd, "--help"], dir.path());
-        assert_eq!(o.status.code(), Some(0));
+        exits(&o, 0);
         assert!(
             String::from_utf8_lossy(&o.stdout).contains("Example"),
             "{cmd} --help has no example"
