@@ -592,9 +592,9 @@ pub fn perceptron(
     // A second thread scans the block after the current one with the same weights, when
     // there is a core for it: not inside a parallel job (cross-validation folds), and not
     // for logs of a few blocks, where starting a thread costs more than it saves.
-    let spare_core = std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2)
+    let spare_core = blocks.len() >= 4
         && rayon::current_thread_index().is_none()
-        && blocks.len() >= 4;
+        && std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2);
     std::thread::scope(|scope| {
         let helper = spare_core.then(|| scope.spawn(|| ahead.serve(ds)));
         // Should the thread end early (it can only by a panic, which the scope then raises),
