@@ -10,12 +10,12 @@ use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
 
-use host_trainer::audit::{AuditConfig, audit};
-use host_trainer::log::{LogOptions, ScaleFrom, read_log};
-use host_trainer::maxmargin::{SvmConfig, max_margin};
-use host_trainer::quantise::{QuantConfig, quantise};
-use host_trainer::scaling::ChannelSheet;
-use host_trainer::trainer::{PerceptronConfig, PerceptronKind, perceptron};
+use host_trainer::ingest::scaling::ChannelSheet;
+use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
+use host_trainer::release::audit::{AuditConfig, audit};
+use host_trainer::release::quantise::{QuantConfig, quantise};
+use host_trainer::train::maxmargin::{SvmConfig, max_margin};
+use host_trainer::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 
 fn peak_rss_mib() -> f64 {
     std::fs::read_to_string("/proc/self/status")
@@ -70,8 +70,8 @@ fn main() {
     let rss = peak_rss_mib();
 
     // Audit: quantise once, then audit every unit with the device kernel.
-    let prov = host_trainer::float_model::Provenance {
-        training_log: host_trainer::float_model::InputFile {
+    let prov = host_trainer::train::float_model::Provenance {
+        training_log: host_trainer::train::float_model::InputFile {
             path: log.clone(),
             sha256: ds.sha256.clone(),
         },
@@ -82,7 +82,7 @@ fn main() {
         c: None,
         max_false_go: None,
     };
-    let summary = host_trainer::float_model::TrainingSummary {
+    let summary = host_trainer::train::float_model::TrainingSummary {
         units: ds.len(),
         go: 0,
         nogo: 0,
@@ -93,7 +93,7 @@ fn main() {
         threshold_shift: None,
         skipped: Default::default(),
     };
-    let fm = host_trainer::float_model::FloatModel::new(
+    let fm = host_trainer::train::float_model::FloatModel::new(
         prov,
         ds.scales.clone(),
         &svm.model,

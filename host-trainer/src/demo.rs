@@ -15,14 +15,14 @@ use std::path::{Path, PathBuf};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
-use crate::audit::{self, AuditConfig, AuditReport, SweepRow};
 use crate::error::{InputError, OutputError};
-use crate::eval::TrainerKind;
-use crate::log::LogOptions;
+use crate::ingest::LogOptions;
 use crate::output::OutputSet;
-use crate::pack;
-use crate::quantise::{QuantConfig, QuantError};
-use crate::separability::SeparabilityReport;
+use crate::release::audit::{self, AuditConfig, AuditReport, SweepRow};
+use crate::release::pack;
+use crate::release::quantise::{QuantConfig, QuantError};
+use crate::train::eval::TrainerKind;
+use crate::train::separability::SeparabilityReport;
 use crate::workflow::{self, TrainOutcome, TrainRequest};
 
 /// Where the demo places the model in flash: the last 4 KiB of the 256 KiB part the QEMU example uses.
@@ -294,7 +294,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     let mut holdout_ds = workflow::load_for_model(&paths[2], &opts, &train.model)?;
     holdout_ds.path = out.join(logs[2].0);
     train.evaluate_holdout(&holdout_ds);
-    let check_drift = crate::separability::check(&drift_ds, &drift_ds.all(), 200, 1);
+    let check_drift = crate::train::separability::check(&drift_ds, &drift_ds.all(), 200, 1);
     let fm = &train.model;
     let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
     let acfg = AuditConfig::default();
@@ -336,15 +336,15 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     set.add(out.join("model.lgb"), blob.clone());
     set.add(
         out.join("model.hex"),
-        crate::hex::to_hex(MODEL_REGION, &blob),
+        crate::release::hex::to_hex(MODEL_REGION, &blob),
     );
     set.add(
         out.join("replay-holdout.txt"),
-        crate::replay::replay(&model, &holdout_ds),
+        crate::release::replay::replay(&model, &holdout_ds),
     );
     set.add(
         out.join("vectors-holdout.txt"),
-        crate::replay::vectors(&model, &holdout_ds),
+        crate::release::replay::vectors(&model, &holdout_ds),
     );
     let files = set.commit(force)?;
     Ok(DemoSummary {

@@ -1,33 +1,37 @@
 //! Linegate host tool: bench logs in, audited fixed-point model blobs out.
 //!
-//! The modules follow the data: [`log`] → [`dataset`] → [`scaling`] →
-//! [`trainer`] / [`maxmargin`] / [`separability`] → [`float_model`] →
-//! [`quantise`] → [`audit`] → [`pack`] (blob, Intel HEX) → device. [`eval`],
-//! [`report`], [`replay`] and [`demo`] sit beside the flow. Every fixed-point
-//! decision is made by `shared_model`'s kernel, the same code the firmware runs.
+//! The folders follow the data:
+//!
+//! 1. [`ingest`]: a bench log (CSV/TSV) and its channel sheet → a [`Dataset`] of raw
+//!    readings with each channel's scaling.
+//! 2. [`train`]: the dataset → a float linear model ([`FloatModel`]), with the exact
+//!    separability test, evaluation and cross-validation.
+//! 3. [`release`]: the float model → quantised fixed-point model → release audit → blob,
+//!    Intel HEX image, replay of the device's lines. Every fixed-point decision is made
+//!    by `shared_model`'s kernel, the same code the firmware runs.
+//! 4. [`report`]: the audit as Markdown, HTML and SVG.
+//!
+//! [`workflow`] runs the steps as single calls (the CLI and [`demo`] both use it);
+//! [`synth`] writes synthetic logs of any size; [`output`] writes files atomically;
+//! [`digest`] and [`error`] are the leaves every step uses. Imports point down this
+//! list only: no module imports one that imports it back.
 //!
 //! The library returns typed errors; only the `linegate` binary picks exit codes.
+//!
+//! [`Dataset`]: ingest::dataset::Dataset
+//! [`FloatModel`]: train::float_model::FloatModel
 #![forbid(unsafe_code)]
 // Errors carry file, line, column and the offending text; they are built once, on the
 // cold path, so their size does not matter.
 #![allow(clippy::result_large_err)]
 
-pub mod audit;
-pub mod dataset;
 pub mod demo;
+pub mod digest;
 pub mod error;
-pub mod eval;
-pub mod float_model;
-pub mod hex;
-pub mod log;
-pub mod maxmargin;
+pub mod ingest;
 pub mod output;
-pub mod pack;
-pub mod quantise;
-pub mod replay;
+pub mod release;
 pub mod report;
-pub mod scaling;
-pub mod separability;
 pub mod synth;
-pub mod trainer;
+pub mod train;
 pub mod workflow;

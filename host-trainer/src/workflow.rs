@@ -5,14 +5,17 @@ use std::path::Path;
 
 use serde::Serialize;
 
-use crate::dataset::Dataset;
+use crate::digest::sha256_hex;
 use crate::error::InputError;
-use crate::eval::{Counts, EvalRow, TrainConfig, TrainerKind, cross_validate, evaluate, train};
-use crate::float_model::{FloatModel, InputFile, Provenance, TrainingSummary};
-use crate::log::{LogOptions, ScaleFrom, read_log};
-use crate::scaling::ChannelSheet;
-use crate::separability::{SeparabilityReport, check};
-use crate::trainer::threshold_for_false_go;
+use crate::ingest::dataset::Dataset;
+use crate::ingest::scaling::ChannelSheet;
+use crate::ingest::{LogOptions, ScaleFrom, read_log};
+use crate::train::eval::{
+    Counts, EvalRow, TrainConfig, TrainerKind, cross_validate, evaluate, train,
+};
+use crate::train::float_model::{FloatModel, InputFile, Provenance, TrainingSummary};
+use crate::train::linear::threshold_for_false_go;
+use crate::train::separability::{SeparabilityReport, check};
 
 /// Reads a training log with an optional channel sheet.
 ///
@@ -54,12 +57,6 @@ pub fn load_for_model(
     fm: &FloatModel,
 ) -> Result<Dataset, InputError> {
     read_log(log, opts, ScaleFrom::Model(&fm.channels))
-}
-
-/// Hex SHA-256 of bytes.
-pub fn sha256_hex(bytes: &[u8]) -> String {
-    use sha2::Digest;
-    crate::float_model::lower_hex(&sha2::Sha256::digest(bytes))
 }
 
 /// What to train.

@@ -14,23 +14,12 @@
 //! the payload's fields bumps [`FORMAT_VERSION`]; a decoder refuses versions
 //! it does not know.
 
-use crate::MAX_CHANNELS;
 use crate::error::{DecodeError, EncodeError};
+use crate::limits::MAX_CHANNELS;
+pub use crate::limits::{
+    CRC_LEN, FORMAT_VERSION, HEADER_LEN, MAGIC, MAX_BLOB_LEN, MAX_PAYLOAD_LEN,
+};
 use crate::model::{CheckedModel, FixedModel};
-
-/// The four bytes every Linegate blob starts with.
-pub const MAGIC: [u8; 4] = *b"LGMB";
-/// The blob layout version this build writes and reads.
-pub const FORMAT_VERSION: u16 = 1;
-/// Bytes before the payload: magic, version, channel count, payload length.
-pub const HEADER_LEN: usize = 9;
-/// Bytes of the trailing CRC-32.
-pub const CRC_LEN: usize = 4;
-/// Largest payload a valid model can need (every varint at its longest, every name full).
-pub const MAX_PAYLOAD_LEN: usize =
-    16 + 5 + 3 * 10 + 1 + MAX_CHANNELS * (1 + crate::NAME_CAPACITY + 5 * 5 + 1);
-/// A buffer of this size holds any blob.
-pub const MAX_BLOB_LEN: usize = HEADER_LEN + MAX_PAYLOAD_LEN + CRC_LEN;
 
 /// CRC-32/ISO-HDLC (poly 0x04C11DB7, reflected, init and xorout 0xFFFFFFFF): the CRC of
 /// zip, PNG and Ethernet. Bitwise, without a table, to keep ~1 KiB out of device flash;
@@ -160,7 +149,7 @@ impl Header {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::ModelError;
+    use crate::error::ModelError;
     use crate::model::{AuditMark, ChannelSpec};
     use std::vec::Vec;
 

@@ -2,7 +2,7 @@
 
 use core::fmt;
 
-/// Why a [`FixedModel`](crate::FixedModel) was refused by validation.
+/// Why a fixed model was refused by validation (`CheckedModel::new`).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum ModelError {
     /// The model has no channels.
@@ -126,7 +126,7 @@ pub enum DecodeError {
         /// CRC computed over the blob.
         computed: u32,
     },
-    /// The header declares more channels than [`MAX_CHANNELS`](crate::MAX_CHANNELS).
+    /// The header declares more channels than [`MAX_CHANNELS`](crate::limits::MAX_CHANNELS).
     ChannelOverCapacity(u8),
     /// The payload does not parse as a model.
     MalformedPayload,
@@ -146,7 +146,7 @@ impl fmt::Display for DecodeError {
             Self::UnsupportedVersion(v) => write!(
                 f,
                 "blob format version {v} is not supported by this build (reads version {})",
-                crate::blob::FORMAT_VERSION
+                crate::limits::FORMAT_VERSION
             ),
             Self::TrailingBytes { expected, got } => {
                 write!(
@@ -161,7 +161,7 @@ impl fmt::Display for DecodeError {
             Self::ChannelOverCapacity(n) => write!(
                 f,
                 "blob declares {n} channels; this build holds at most {}",
-                crate::MAX_CHANNELS
+                crate::limits::MAX_CHANNELS
             ),
             Self::MalformedPayload => f.write_str("blob payload is malformed"),
             Self::InconsistentLengths => f.write_str("blob header and payload disagree on lengths"),
@@ -181,7 +181,7 @@ impl From<ModelError> for DecodeError {
 /// Why a model could not be encoded.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum EncodeError {
-    /// The output buffer is too small; [`MAX_BLOB_LEN`](crate::blob::MAX_BLOB_LEN) always suffices.
+    /// The output buffer is too small; [`MAX_BLOB_LEN`](crate::limits::MAX_BLOB_LEN) always suffices.
     BufferTooSmall,
 }
 

@@ -269,9 +269,9 @@ mod tests {
         /// csv-core's `parses_to!`: every case through two implementations).
         #[test]
         fn kernel_equals_exact_i128_reference(
-            chans in prop::collection::vec(arb_channel(), 1..=crate::MAX_CHANNELS),
+            chans in prop::collection::vec(arb_channel(), 1..=crate::limits::MAX_CHANNELS),
             bias in -(1i64 << 40)..(1i64 << 40),
-            picks in prop::collection::vec(any::<u32>(), crate::MAX_CHANNELS),
+            picks in prop::collection::vec(any::<u32>(), crate::limits::MAX_CHANNELS),
         ) {
             let mut fm = FixedModel::example_two_channel();
             fm.channels.clear();
@@ -294,7 +294,7 @@ mod tests {
             let want = if exact >= 1 { Verdict::Go } else if exact <= -1 { Verdict::NoGo } else { Verdict::Recheck };
             prop_assert_eq!(d.verdict, want);
             // The two-step path (scale, then score) agrees with classify.
-            let mut x = [0i32; crate::MAX_CHANNELS];
+            let mut x = [0i32; crate::limits::MAX_CHANNELS];
             m.scale(&raw, &mut x[..raw.len()]).unwrap();
             prop_assert_eq!(m.score_scaled(&x[..raw.len()]), d.score);
         }

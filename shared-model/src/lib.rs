@@ -9,6 +9,9 @@
 //!    a postcard payload and a CRC-32. The layout is written down in
 //!    `shared-model/FORMAT.md`, rendered here as [`format`]; any layout change
 //!    bumps [`blob::FORMAT_VERSION`].
+//!
+//! [`limits`] holds the capacities and layout constants all three share; [`error`] the
+//! error enums. Imports point one way: `limits` ← `error` ← `model` ← `blob`, `kernel`.
 //! 3. [`kernel`]: raw readings → scaled integer inputs → integer score →
 //!    [`Verdict`]. Integer only, explicit widths.
 //!
@@ -71,14 +74,10 @@ pub mod error;
 #[doc = include_str!("../FORMAT.md")]
 pub mod format {}
 pub mod kernel;
+pub mod limits;
 pub mod model;
 
 pub use error::{DecodeError, EncodeError, Fault, ModelError};
 pub use kernel::{Decision, Verdict};
+pub use limits::{MAX_CHANNELS, NAME_CAPACITY};
 pub use model::{AuditMark, ChannelSpec, CheckedModel, FixedModel};
-
-/// Most channels a model may fuse. Fixed at compile time so the device needs no heap.
-pub const MAX_CHANNELS: usize = 32;
-
-/// Longest channel name, in UTF-8 bytes.
-pub const NAME_CAPACITY: usize = 24;

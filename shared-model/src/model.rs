@@ -17,7 +17,7 @@ use heapless::{String, Vec};
 use serde::{Deserialize, Serialize};
 
 use crate::error::ModelError;
-use crate::{MAX_CHANNELS, NAME_CAPACITY};
+use crate::limits::{MAX_CHANNELS, NAME_CAPACITY};
 
 /// How the model reached the blob: recorded so an auditor can see an override.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]

@@ -1,7 +1,7 @@
 //! Any bytes as a bench log: reading returns a dataset or an error, never panics.
 #![no_main]
 
-use host_trainer::log::{read_log, LogOptions, ScaleFrom};
+use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
@@ -12,7 +12,10 @@ fuzz_target!(|data: &[u8]| {
         return;
     }
     for skip in [false, true] {
-        let opts = LogOptions { skip_bad_rows: skip, ..LogOptions::default() };
+        let opts = LogOptions {
+            skip_bad_rows: skip,
+            ..LogOptions::default()
+        };
         if let Ok(ds) = read_log(&path, &opts, ScaleFrom::Observed) {
             assert_eq!(ds.raw.len(), ds.len() * ds.dim());
             assert!(ds.len() > 0);

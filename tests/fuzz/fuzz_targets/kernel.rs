@@ -50,20 +50,33 @@ fuzz_target!(|data: &[u8]| {
     m.bias = b.i64();
     m.nogo_max = b.i64();
     m.go_min = b.i64();
-    let Ok(checked) = CheckedModel::new(m.clone()) else { return };
+    let Ok(checked) = CheckedModel::new(m.clone()) else {
+        return;
+    };
     let raw: Vec<i32> = m.channels.iter().map(|_| b.i32()).collect();
-    let exact = m.channels.iter().zip(&raw).try_fold(i128::from(m.bias), |acc, (c, &r)| {
-        if r < c.raw_min || r > c.raw_max {
-            return None;
-        }
-        let p = (i128::from(r) - i128::from(c.offset)) * i128::from(c.multiplier);
-        let x = if c.shift == 0 { p } else { (p + (1i128 << (c.shift - 1))) >> c.shift };
-        Some(acc + i128::from(c.weight) * x)
-    });
+    let exact = m
+        .channels
+        .iter()
+        .zip(&raw)
+        .try_fold(i128::from(m.bias), |acc, (c, &r)| {
+            if r < c.raw_min || r > c.raw_max {
+                return None;
+            }
+            let p = (i128::from(r) - i128::from(c.offset)) * i128::from(c.multiplier);
+            let x = if c.shift == 0 {
+                p
+            } else {
+                (p + (1i128 << (c.shift - 1))) >> c.shift
+            };
+            Some(acc + i128::from(c.weight) * x)
+        });
     match (checked.classify(&raw), exact) {
         (Ok(d), Some(e)) => {
             assert_eq!(i128::from(d.score), e);
-            assert!(e.unsigned_abs() < 1u128 << (m.acc_bits - 1), "score beyond the declared accumulator");
+            assert!(
+                e.unsigned_abs() < 1u128 << (m.acc_bits - 1),
+                "score beyond the declared accumulator"
+            );
         }
         (Err(Fault::OutOfRange { .. }), None) => {}
         (got, want) => panic!("kernel {got:?} vs reference {want:?}"),

@@ -1,7 +1,7 @@
 //! First contact: the demo runs end to end, its outputs decode and pass audit, it is
 //! deterministic, and the README's commands are the ones CI runs.
 
-use host_trainer::float_model::FloatModel;
+use host_trainer::train::float_model::FloatModel;
 
 #[test]
 fn demo_outputs_decode_pass_audit_and_are_byte_identical_across_runs() {
@@ -35,9 +35,10 @@ fn demo_outputs_decode_pass_audit_and_are_byte_identical_across_runs() {
         serde_json::from_str(&std::fs::read_to_string(a.join("audit.json")).unwrap()).unwrap();
     assert_eq!(audit["model_id"], fm.model_id);
     assert_eq!(audit["passed"], true);
-    let (addr, img) =
-        host_trainer::hex::from_hex(&std::fs::read_to_string(a.join("model.hex")).unwrap())
-            .unwrap();
+    let (addr, img) = host_trainer::release::hex::from_hex(
+        &std::fs::read_to_string(a.join("model.hex")).unwrap(),
+    )
+    .unwrap();
     assert_eq!((addr, img), (host_trainer::demo::MODEL_REGION, blob));
     assert!(
         std::fs::read_to_string(a.join("audit.html"))

@@ -2,7 +2,7 @@
 
 use std::process::Command;
 
-use host_trainer::hex::{from_hex, to_hex};
+use host_trainer::release::hex::{from_hex, to_hex};
 
 #[test]
 fn intel_hex_equals_the_blob_byte_for_byte_through_objcopy() {

@@ -3,6 +3,7 @@
 
 mod demo;
 mod device;
+mod house;
 mod images;
 mod quantisation;
 mod reference;

@@ -1,10 +1,10 @@
 //! The fixed-point side against outside references: exact rational arithmetic
 //! (num-rational), brute force over readings for the rounding bound, and the gate.
 
-use host_trainer::audit::{AuditConfig, audit, error_bound, sweep};
-use host_trainer::dataset::Dataset;
-use host_trainer::eval::TrainerKind;
-use host_trainer::quantise::{QuantConfig, Quantised, quantise};
+use host_trainer::ingest::dataset::Dataset;
+use host_trainer::release::audit::{AuditConfig, audit, error_bound, sweep};
+use host_trainer::release::quantise::{QuantConfig, Quantised, quantise};
+use host_trainer::train::eval::TrainerKind;
 use host_trainer::workflow::{TrainRequest, train_model};
 use num_rational::Ratio;
 use num_traits::ToPrimitive;
@@ -58,7 +58,10 @@ proptest! {
 }
 
 /// A float model on `pts` trained by max-margin, for the quantiser tests.
-fn trained(pts: &[Vec<f64>], labels: &[i8]) -> (host_trainer::float_model::FloatModel, Dataset) {
+fn trained(
+    pts: &[Vec<f64>],
+    labels: &[i8],
+) -> (host_trainer::train::float_model::FloatModel, Dataset) {
     let ds = Dataset::from_scaled(pts, labels);
     let req = TrainRequest {
         trainer: TrainerKind::MaxMargin,
@@ -100,8 +103,15 @@ fn rounding_error_never_exceeds_the_bound() {
         let (mut fm, _) = trained(&pts, &labels);
         // Coarse raw ranges so every reading can be enumerated.
         for c in fm.channels.iter_mut() {
-            *c = host_trainer::scaling::ChannelScale::new(&c.name, "", -1.0, 1.0, 1.0 / 150.0, 0.0)
-                .unwrap();
+            *c = host_trainer::ingest::scaling::ChannelScale::new(
+                &c.name,
+                "",
+                -1.0,
+                1.0,
+                1.0 / 150.0,
+                0.0,
+            )
+            .unwrap();
         }
         for bits in [4u8, 8, 12] {
             let q = quantise(
@@ -223,7 +233,7 @@ fn tiny_margin_fails_at_8_bits_passes_at_16_and_the_sweep_recommends_16() {
         }
         (pts, labels)
     };
-    let bound_at = |fm: &host_trainer::float_model::FloatModel, bits| {
+    let bound_at = |fm: &host_trainer::train::float_model::FloatModel, bits| {
         let q = quantise(
             fm,
             None,
@@ -277,8 +287,8 @@ fn audit_mark_survives_packing() {
     let pts: Vec<Vec<f64>> = [0.5, 0.9, -0.5, -0.9].iter().map(|&v| vec![v]).collect();
     let (fm, ds) = trained(&pts, &[1, 1, -1, -1]);
     let q = quantise(&fm, Some(&ds), QuantConfig::default()).unwrap();
-    let marked = host_trainer::audit::mark(&q.model, AuditMark::Overridden);
-    let bytes = host_trainer::pack::blob_bytes(&marked);
+    let marked = host_trainer::release::audit::mark(&q.model, AuditMark::Overridden);
+    let bytes = host_trainer::release::pack::blob_bytes(&marked);
     assert_eq!(
         shared_model::blob::decode(&bytes).unwrap().model().audit,
         AuditMark::Overridden

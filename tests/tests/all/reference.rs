@@ -6,11 +6,11 @@ use clarabel::algebra::CscMatrix;
 use clarabel::solver::{
     DefaultSettingsBuilder, DefaultSolver, IPSolver, NonnegativeConeT, SolverStatus,
 };
-use host_trainer::dataset::Dataset;
-use host_trainer::maxmargin::{SvmConfig, homogeneous_margin, max_margin};
-use host_trainer::scaling::ChannelScale;
-use host_trainer::separability::check;
-use host_trainer::trainer::{PerceptronConfig, PerceptronKind, perceptron, radius};
+use host_trainer::ingest::dataset::Dataset;
+use host_trainer::ingest::scaling::ChannelScale;
+use host_trainer::train::maxmargin::{SvmConfig, homogeneous_margin, max_margin};
+use host_trainer::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron, radius};
+use host_trainer::train::separability::check;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
@@ -267,7 +267,7 @@ fn soft_margin_on_overlapping_data_converges() {
     let ds = iris_pair(1, 2);
     let run = max_margin(&ds, &ds.all(), SvmConfig::soft(10.0));
     assert!(run.converged);
-    let acc = host_trainer::eval::evaluate(&run.model, 0.0, &ds, &ds.all()).accuracy();
+    let acc = host_trainer::train::eval::evaluate(&run.model, 0.0, &ds, &ds.all()).accuracy();
     // Versicolor vs virginica: a linear classifier gets about 95–98 % (common practice; from memory).
     assert!(acc > 0.93, "accuracy {acc}");
 }
@@ -276,15 +276,16 @@ fn soft_margin_on_overlapping_data_converges() {
 fn logs_above_the_lp_limit_are_decided_and_certified() {
     // Regression: on a 25 000-unit log the full LP is skipped; the verdict must still be
     // certified (a separator checked on every unit, or a verified common point of both hulls).
-    use host_trainer::log::{LogOptions, ScaleFrom, read_log};
+    use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("big.csv");
     let mut buf = Vec::new();
     host_trainer::synth::write_log(&mut buf, 25_000, 8, 0.01, 3).unwrap();
     std::fs::write(&path, &buf).unwrap();
-    let sheet = host_trainer::scaling::ChannelSheet::parse(&host_trainer::synth::sheet(8)).unwrap();
+    let sheet =
+        host_trainer::ingest::scaling::ChannelSheet::parse(&host_trainer::synth::sheet(8)).unwrap();
     let ds = read_log(&path, &LogOptions::default(), ScaleFrom::Sheet(&sheet)).unwrap();
-    assert!(ds.len() > host_trainer::separability::LP_FULL_LIMIT);
+    assert!(ds.len() > host_trainer::train::separability::LP_FULL_LIMIT);
     let r = check(&ds, &ds.all(), 5, 1);
     assert!(r.separable, "{}", r.decided_by);
     assert!(r.decided_by.contains("verified"), "{}", r.decided_by);

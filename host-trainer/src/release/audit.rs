@@ -21,9 +21,9 @@ use rayon::prelude::*;
 use serde::Serialize;
 use shared_model::{CheckedModel, Verdict, blob};
 
-use crate::dataset::Dataset;
-use crate::float_model::FloatModel;
-use crate::quantise::{QuantConfig, QuantError, Quantised, fixed_margin, quantise};
+use crate::ingest::dataset::Dataset;
+use crate::release::quantise::{QuantConfig, QuantError, Quantised, fixed_margin, quantise};
+use crate::train::float_model::FloatModel;
 
 /// Gate thresholds.
 #[derive(Clone, Copy, Debug)]
@@ -268,7 +268,7 @@ fn audit_set(
     risk: Option<f64>,
 ) -> Acc {
     let m = &q.model;
-    let float = crate::dataset::RawForm::new(ds, &fm.weights, fm.bias);
+    let float = crate::ingest::dataset::RawForm::new(ds, &fm.weights, fm.bias);
     let band = (fm.threshold * q.scale, m.model());
     let stride = (ds.len() / HISTOGRAM_SAMPLE).max(1);
     let empty = || Acc {

@@ -8,8 +8,9 @@
 //! words every error. The fast path never decides differently from the general one;
 //! [`DecimalChannel`] and [`Decimal::value`] say why.
 
-use super::{Columns, LogOptions, label_of};
-use crate::scaling::{ChannelScale, power_of_ten};
+use super::header::Columns;
+use super::options::{LogOptions, label_of};
+use crate::ingest::scaling::{ChannelScale, power_of_ten};
 
 /// What the fast path does with one column.
 #[derive(Clone, Copy, Debug)]
@@ -36,7 +37,7 @@ struct DecimalChannel {
 }
 
 /// Most significant digits the fast path reads: 10¹⁵ is below 2⁵³ and below
-/// [`super::MAX_READING`], so no such number is refused as not finite.
+/// [`MAX_READING`](super::MAX_READING), so no such number is refused as not finite.
 const MAX_DIGITS: u32 = 15;
 
 impl DecimalChannel {

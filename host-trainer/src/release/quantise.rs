@@ -19,8 +19,8 @@
 
 use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
 
-use crate::dataset::Dataset;
-use crate::float_model::FloatModel;
+use crate::ingest::dataset::Dataset;
+use crate::train::float_model::FloatModel;
 
 /// Quantiser settings.
 #[derive(Clone, Copy, Debug, PartialEq)]

@@ -2,9 +2,10 @@
 
 use serde::Serialize;
 
-use crate::dataset::Dataset;
-use crate::maxmargin::{SvmConfig, max_margin};
-use crate::trainer::{Linear, PerceptronConfig, PerceptronKind, perceptron};
+use crate::ingest::dataset::Dataset;
+use crate::train::linear::Linear;
+use crate::train::maxmargin::{SvmConfig, max_margin};
+use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 
 /// The trainers `linegate train` offers.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum, Serialize)]

@@ -9,8 +9,8 @@ use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
 
-use crate::log::SkipReport;
-use crate::scaling::ChannelScale;
+use crate::ingest::SkipReport;
+use crate::ingest::scaling::ChannelScale;
 
 /// Units of one bench log, with the channel scaling that turned readings into raw integers.
 #[derive(Clone, Debug)]

@@ -22,9 +22,10 @@
 use microlp::{ComparisonOp, OptimizationDirection, Problem};
 use serde::Serialize;
 
-use crate::dataset::Dataset;
-use crate::maxmargin::{SvmConfig, homogeneous_margin, max_margin};
-use crate::trainer::{Linear, PerceptronConfig, PerceptronKind, perceptron, radius};
+use crate::ingest::dataset::Dataset;
+use crate::train::linear::Linear;
+use crate::train::maxmargin::{SvmConfig, homogeneous_margin, max_margin};
+use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron, radius};
 
 /// A unit named in a report.
 #[derive(Clone, Debug, PartialEq, Serialize)]

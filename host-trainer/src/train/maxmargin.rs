@@ -13,8 +13,8 @@
 //!   convention: augmented z = (x, 1)/R, no free bias, unit-norm separator:
 //!   the distance from the origin to the hull of the yᵢ·zᵢ, by the same algorithm.
 
-use crate::dataset::Dataset;
-use crate::trainer::Linear;
+use crate::ingest::dataset::Dataset;
+use crate::train::linear::Linear;
 
 /// Settings of the maximum-margin solver.
 #[derive(Clone, Copy, Debug)]
@@ -85,7 +85,7 @@ impl Work {
     }
 }
 
-use crate::dataset::dot;
+use crate::ingest::dataset::dot;
 
 /// Initial working set: up to `per_class` units of each class, evenly spread through the log.
 fn initial(ds: &Dataset, idx: &[usize], per_class: usize) -> Vec<usize> {
@@ -567,7 +567,7 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
 /// xᵢ − xⱼ minimising ⟨p, ·⟩ (i GO with least ⟨p, xᵢ⟩, j NO-GO with greatest ⟨p, xⱼ⟩).
 fn hull_oracle<'a>(
     ds: &'a Dataset,
-    sc: &'a crate::dataset::Scaler,
+    sc: &'a crate::ingest::dataset::Scaler,
     set: &'a [usize],
     first: (usize, usize),
 ) -> impl FnMut(&[f64]) -> ((usize, usize), Vec<f64>) + 'a {

@@ -21,15 +21,11 @@ use std::path::{Path, PathBuf};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
+use crate::digest::lower_hex;
 use crate::error::InputError;
-use crate::log::SkipReport;
-use crate::scaling::ChannelScale;
-use crate::trainer::{Linear, ThresholdShift};
-
-/// Lower-case hex of `bytes`: how model ids and file hashes are written everywhere.
-pub fn lower_hex(bytes: &[u8]) -> String {
-    bytes.iter().map(|b| format!("{b:02x}")).collect()
-}
+use crate::ingest::SkipReport;
+use crate::ingest::scaling::ChannelScale;
+use crate::train::linear::{Linear, ThresholdShift};
 
 /// Format tag in every float model file.
 pub const FORMAT: &str = "linegate-float-model";

@@ -83,7 +83,7 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) 
     };
     if let Ok(m) = &decoded {
         let m = m.model();
-        ins.model_id = Some(crate::float_model::lower_hex(&m.model_id));
+        ins.model_id = Some(crate::digest::lower_hex(&m.model_id));
         ins.audit = Some(format!("{:?}", m.audit));
         ins.input_bits = Some(m.input_bits);
         ins.weight_bits = Some(m.weight_bits);

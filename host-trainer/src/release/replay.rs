@@ -5,7 +5,7 @@
 
 use shared_model::{CheckedModel, Fault};
 
-use crate::dataset::Dataset;
+use crate::ingest::dataset::Dataset;
 
 /// The device's line for one set of raw readings.
 pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
@@ -20,7 +20,7 @@ pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
 pub fn model_line(model: &CheckedModel) -> String {
     format!(
         "# model {}\n",
-        crate::float_model::lower_hex(&model.model().model_id)
+        crate::digest::lower_hex(&model.model().model_id)
     )
 }
 

@@ -1,4 +1,4 @@
-//! Trainers of the perceptron family, and the float linear model they produce.
+//! Trainers of the perceptron family: classic (Novikoff form), averaged and pocket.
 //!
 //! The classic perceptron is run exactly as the convergence theorem states it:
 //! append the constant-1 feature, divide every augmented vector by
@@ -14,50 +14,8 @@ use std::sync::{Arc, Mutex};
 
 use wide::{f32x4, f64x4, i32x4};
 
-use crate::dataset::{Dataset, RawForm};
-
-/// A float linear classifier on scaled inputs: GO when `w·x + b > threshold`.
-#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct Linear {
-    /// Weights, one per channel.
-    pub w: Vec<f64>,
-    /// Bias.
-    pub b: f64,
-}
-
-impl Linear {
-    /// The score of a scaled input.
-    #[inline]
-    pub fn score(&self, x: &[f64]) -> f64 {
-        crate::dataset::dot(&self.w, x) + self.b
-    }
-
-    /// Scores of the units `idx` of `ds`.
-    pub fn scores(&self, ds: &Dataset, idx: &[usize]) -> Vec<f64> {
-        let mut x = vec![0.0; ds.dim()];
-        idx.iter()
-            .map(|&i| {
-                ds.scaled_row(i, &mut x);
-                self.score(&x)
-            })
-            .collect()
-    }
-
-    /// Euclidean norm of `w` (bias excluded).
-    pub fn norm(&self) -> f64 {
-        self.w.iter().map(|w| w * w).sum::<f64>().sqrt()
-    }
-
-    /// The smallest geometric margin y·(w·x + b)/‖w‖ over `idx` (negative if some unit is misclassified).
-    pub fn geometric_margin(&self, ds: &Dataset, idx: &[usize]) -> f64 {
-        let n = self.norm();
-        self.scores(ds, idx)
-            .iter()
-            .zip(idx)
-            .map(|(s, &i)| ds.y(i) * s / n)
-            .fold(f64::INFINITY, f64::min)
-    }
-}
+use crate::ingest::dataset::{Dataset, RawForm};
+use crate::train::linear::Linear;
 
 /// Which member of the perceptron family.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -696,50 +654,6 @@ fn errors_of(ds: &Dataset, idx: &[usize], v: &[f64], r: f64) -> usize {
         .count()
 }
 
-/// The result of moving the threshold for asymmetric risk.
-#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct ThresholdShift {
-    /// GO when score > threshold.
-    pub threshold: f64,
-    /// NO-GO training units that still pass.
-    pub false_go: usize,
-    /// GO training units turned away by the move (compared with threshold 0).
-    pub go_lost: usize,
-}
-
-/// Raises the threshold so at most `max_false_go` NO-GO units of `idx` score above it.
-pub fn threshold_for_false_go(
-    model: &Linear,
-    ds: &Dataset,
-    idx: &[usize],
-    max_false_go: usize,
-) -> ThresholdShift {
-    let scores = model.scores(ds, idx);
-    let mut nogo: Vec<f64> = scores
-        .iter()
-        .zip(idx)
-        .filter(|&(_, &i)| ds.labels[i] < 0)
-        .map(|(s, _)| *s)
-        .collect();
-    nogo.sort_by(|a, b| b.total_cmp(a));
-    let threshold = nogo
-        .get(max_false_go)
-        .copied()
-        .unwrap_or(f64::NEG_INFINITY)
-        .max(0.0);
-    let false_go = nogo.iter().filter(|&&s| s > threshold).count();
-    let go_lost = scores
-        .iter()
-        .zip(idx)
-        .filter(|&(s, &i)| ds.labels[i] > 0 && *s > 0.0 && *s <= threshold)
-        .count();
-    ThresholdShift {
-        threshold,
-        false_go,
-        go_lost,
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -758,29 +672,6 @@ mod tests {
         );
         assert!(run.converged);
         assert!(run.model.geometric_margin(&ds, &ds.all()) > 0.0);
-    }
-
-    #[test]
-    fn false_go_threshold_counts() {
-        // Scores 0.9, 0.5 (GO), 0.3, 0.1 (NO-GO, both false GO at threshold 0).
-        let ds = Dataset::from_scaled(
-            &[vec![0.9], vec![0.5], vec![0.3], vec![0.1]],
-            &[1, 1, -1, -1],
-        );
-        let m = Linear {
-            w: vec![1.0],
-            b: 0.0,
-        };
-        let t = threshold_for_false_go(&m, &ds, &ds.all(), 1);
-        assert!(
-            (t.threshold - 0.1).abs() < 1e-6 && t.false_go == 1 && t.go_lost == 0,
-            "{t:?}"
-        );
-        let t = threshold_for_false_go(&m, &ds, &ds.all(), 0);
-        assert!(
-            (t.threshold - 0.3).abs() < 1e-6 && t.false_go == 0 && t.go_lost == 0,
-            "{t:?}"
-        );
     }
 
     /// Random points in [-1, 1]^d (seeded).

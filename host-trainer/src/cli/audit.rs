@@ -1,0 +1,92 @@
+//! `linegate audit`: quantise, run the release audit, write its reports.
+
+use std::path::PathBuf;
+
+use anyhow::Result;
+use clap::Args;
+
+use super::args::{Release, ReleaseArgs, release_inputs};
+use super::{CheckFailed, to_json};
+use host_trainer::output::OutputSet;
+use host_trainer::release::audit;
+use host_trainer::report;
+
+/// Flags of `linegate audit`.
+#[derive(Args)]
+pub struct AuditArgs {
+    #[command(flatten)]
+    pub release: ReleaseArgs,
+    /// Also run the word-length sweep (weights 8/12/16/24/32 × inputs 8/16).
+    #[arg(long)]
+    pub sweep: bool,
+    /// Write audit.md, audit.html and audit.json here.
+    #[arg(long)]
+    pub report_dir: Option<PathBuf>,
+    /// Write every unit's float and fixed scores, verdicts and margins to this CSV file.
+    #[arg(long, value_name = "FILE")]
+    pub units: Option<PathBuf>,
+    /// Overwrite existing report files.
+    #[arg(long)]
+    pub force: bool,
+    /// Print the report as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl AuditArgs {
+    /// Runs `linegate audit`.
+    pub fn run(&self, quiet: bool) -> Result<()> {
+        let Self {
+            release,
+            sweep,
+            report_dir,
+            units,
+            force,
+            json,
+        } = self;
+        let rel = release_inputs(release, quiet)?;
+        let (q, r) = rel.run()?;
+        let Release {
+            fm,
+            train,
+            holdout,
+            qc,
+            ac,
+            ..
+        } = rel;
+        let sw = if *sweep {
+            Some(audit::sweep(&fm, &train, holdout.as_ref(), qc, ac)?)
+        } else {
+            None
+        };
+        let md = report::markdown(&fm, &r, sw.as_ref());
+        let mut set = OutputSet::default();
+        if let Some(dir) = report_dir {
+            set.add(dir.join("audit.md"), md.as_bytes());
+            set.add(dir.join("audit.html"), report::html(&fm, &r, &md));
+            set.add(dir.join("audit.json"), to_json(&r));
+        }
+        if let Some(path) = units {
+            let mut sets = vec![("train", &train)];
+            if let Some(h) = &holdout {
+                sets.push(("holdout", h));
+            }
+            set.add(path, audit::units_csv(&q, &fm, &sets));
+        }
+        set.commit(*force)?;
+        if *json {
+            say_raw!(
+                "{}",
+                to_json(
+                    &serde_json::json!({ "audit": r, "sweep": sw.as_ref().map(|s| &s.0), "recommended": sw.as_ref().and_then(|s| s.1) })
+                )
+            );
+        } else if !quiet {
+            say_raw!("{md}");
+        }
+        if !r.passed {
+            return Err(CheckFailed(format!("audit failed: {}", r.reasons.join("; "))).into());
+        }
+        Ok(())
+    }
+}

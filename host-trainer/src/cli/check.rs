@@ -1,0 +1,129 @@
+//! `linegate check`: is the log linearly separable, exactly, and by how much.
+
+use std::path::PathBuf;
+
+use anyhow::Result;
+use clap::Args;
+
+use super::args::LogArgs;
+use super::{CheckFailed, to_json};
+use host_trainer::workflow;
+
+/// Flags of `linegate check`.
+#[derive(Args)]
+pub struct CheckArgs {
+    /// Bench log (CSV, or TSV by extension).
+    pub log: PathBuf,
+    #[command(flatten)]
+    pub log_args: LogArgs,
+    /// Channel sheet (TOML) with valid ranges, raw conversion and noise.
+    #[arg(long)]
+    pub sheet: Option<PathBuf>,
+    /// Epoch cap for the perceptron run shown beside the bound.
+    #[arg(long, default_value_t = 1000)]
+    pub epochs: u32,
+    /// Seed for the perceptron's shuffle.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Print JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl CheckArgs {
+    /// Runs `linegate check`.
+    pub fn run(&self, quiet: bool) -> Result<()> {
+        let Self {
+            log,
+            log_args,
+            sheet,
+            epochs,
+            seed,
+            json,
+        } = self;
+        let (ds, _) = workflow::load(log, &log_args.options(quiet), sheet.as_deref())?;
+        let r = host_trainer::train::separability::check(&ds, &ds.all(), *epochs, *seed);
+        if *json {
+            say_raw!("{}", to_json(&r));
+        } else if !quiet {
+            print_check(&r, &ds);
+        }
+        if !r.separable {
+            return Err(CheckFailed(format!(
+                "{}: not linearly separable ({} conflicting units named above)",
+                log.display(),
+                r.conflict.len()
+            ))
+            .into());
+        }
+        Ok(())
+    }
+}
+
+fn print_check(
+    r: &host_trainer::train::separability::SeparabilityReport,
+    ds: &host_trainer::ingest::dataset::Dataset,
+) {
+    say!(
+        "{} units, {} channels: {}",
+        r.units,
+        r.channels,
+        if r.separable {
+            "LINEARLY SEPARABLE"
+        } else {
+            "NOT linearly separable"
+        }
+    );
+    say!("decided by: {}", r.decided_by);
+    if let Some(g) = r.margin {
+        say!(
+            "maximum margin γ* = {g:.6} (free bias; scaled units, every channel's valid range mapped to [-1, 1])"
+        );
+        for c in &r.margin_physical {
+            say!("  along {:<22} {:>12.4} {}", c.channel, c.margin, c.unit);
+        }
+        say!("support units:");
+        for u in &r.support {
+            say!(
+                "  {} ({}, line {}, α = {:.4})",
+                u.unit,
+                u.label,
+                u.line,
+                u.weight
+            );
+        }
+    }
+    say!("R = max ‖(x, 1)‖ = {:.4}", r.radius);
+    match (r.novikoff_margin, r.novikoff_bound) {
+        (Some(g), Some(b)) => say!(
+            "Novikoff: γ = {g:.6} (constant-1 feature appended, scaled into the unit ball, unit-norm separator through the origin); bound 1/γ² = {b:.0} updates; perceptron made {} in {} epochs",
+            r.perceptron_updates,
+            r.perceptron_epochs
+        ),
+        _ => say!(
+            "perceptron: {} updates in {} epochs, converged: {}",
+            r.perceptron_updates,
+            r.perceptron_epochs,
+            r.perceptron_converged
+        ),
+    }
+    if !r.conflict.is_empty() {
+        say!("units no hyperplane can split (their convex hulls meet; weights λ):");
+        for u in &r.conflict {
+            say!(
+                "  {} ({}, line {}, λ = {:.4})",
+                u.unit,
+                u.label,
+                u.line,
+                u.weight
+            );
+        }
+    }
+    if ds.skipped.total > 0 {
+        say!(
+            "skipped {} bad rows: {:?}",
+            ds.skipped.total,
+            ds.skipped.by_reason
+        );
+    }
+}

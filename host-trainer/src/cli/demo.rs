@@ -1,0 +1,88 @@
+//! `linegate demo`: the whole job on built-in synthetic data.
+
+use std::path::{Path, PathBuf};
+
+use anyhow::Result;
+use clap::Args;
+
+use host_trainer::demo;
+
+/// Flags of `linegate demo`.
+#[derive(Args)]
+pub struct DemoArgs {
+    /// Output folder.
+    #[arg(long, default_value = "linegate-demo")]
+    pub out: PathBuf,
+    /// Overwrite files from an earlier demo.
+    #[arg(long)]
+    pub force: bool,
+}
+
+impl DemoArgs {
+    /// Runs `linegate demo`.
+    pub fn run(&self, quiet: bool) -> Result<()> {
+        let Self { out, force } = self;
+        let t0 = std::time::Instant::now();
+        let s = demo::run(out, *force)?;
+        if !quiet {
+            print_demo(&s, out, t0.elapsed());
+        }
+        Ok(())
+    }
+}
+
+fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
+    let c = &s.check_train;
+    say!("Linegate demo: SYNTHETIC end-of-line test of a brushless fan module (invented scenario)");
+    say!(
+        "training log: {} units, separable: {}, γ* = {:.5}",
+        c.units,
+        c.separable,
+        c.margin.unwrap_or(0.0)
+    );
+    if let Some(b) = c.novikoff_bound {
+        say!(
+            "  Novikoff bound {:.0} updates; classic perceptron made {}",
+            b,
+            s.perceptron_updates
+        );
+    }
+    say!(
+        "second-shift log: {} units, separable: {}; {} conflicting units named",
+        s.check_drift.units,
+        s.check_drift.separable,
+        s.check_drift.conflict.len()
+    );
+    if let Some(h) = &s.train.holdout {
+        say!(
+            "max-margin model: holdout accuracy {:.4} (false GO {}, false NO-GO {})",
+            h.accuracy(),
+            h.false_go,
+            h.false_nogo
+        );
+    }
+    if let Some(i) = s.sweep.1 {
+        let r = &s.sweep.0[i];
+        say!(
+            "sweep recommends {}-bit weights, {}-bit inputs ({} bytes)",
+            r.weight_bits,
+            r.input_bits,
+            r.blob_bytes
+        );
+    }
+    let a = &s.audit;
+    say!(
+        "audit {}: flips {}, guaranteed {}, min margin {} LSB > bound {:.1} LSB",
+        if a.passed { "PASSED" } else { "FAILED" },
+        a.flips.len(),
+        a.guaranteed,
+        a.optimised_min_margin_lsb
+            .map_or("–".into(), |v| format!("{v:.1}")),
+        a.bound.total
+    );
+    say!("wrote into {}:", out.display());
+    for f in &s.files {
+        say!("  {}", f.display());
+    }
+    say!("done in {:.1} s", took.as_secs_f64());
+}

@@ -1,0 +1,165 @@
+//! `linegate inspect`: decode a blob or HEX image, check it against a model or report.
+
+use std::path::{Path, PathBuf};
+
+use anyhow::{Context, Result, bail};
+use clap::Args;
+
+use super::{CheckFailed, to_json};
+use host_trainer::release::{hex, pack};
+use host_trainer::train::float_model::FloatModel;
+
+/// Flags of `linegate inspect`.
+#[derive(Args)]
+pub struct InspectArgs {
+    /// Blob (.lgb/.bin) or Intel HEX (.hex).
+    pub blob: PathBuf,
+    /// Check the blob was made from this float model.
+    #[arg(long)]
+    pub model: Option<PathBuf>,
+    /// Check the blob matches this audit report (audit.json).
+    #[arg(long)]
+    pub report: Option<PathBuf>,
+    /// Print JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl InspectArgs {
+    /// Runs `linegate inspect`.
+    pub fn run(&self, quiet: bool) -> Result<()> {
+        let Self {
+            blob,
+            model,
+            report: rep,
+            json,
+        } = self;
+        inspect(blob, model.as_deref(), rep.as_deref(), *json, quiet)?;
+        Ok(())
+    }
+}
+
+fn inspect(
+    path: &Path,
+    model: Option<&Path>,
+    rep: Option<&Path>,
+    json: bool,
+    quiet: bool,
+) -> Result<()> {
+    let raw = std::fs::read(path).with_context(|| format!("{}: cannot read", path.display()))?;
+    let bytes = if path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("hex"))
+    {
+        let text = String::from_utf8(raw)
+            .with_context(|| format!("{}: not a text HEX file", path.display()))?;
+        hex::from_hex(&text)
+            .map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?
+            .1
+    } else {
+        raw
+    };
+    let (ins, decoded) = pack::inspect(&bytes);
+    if json {
+        say_raw!("{}", to_json(&ins));
+    } else if !quiet {
+        say!(
+            "{}: {} bytes, format version {}",
+            path.display(),
+            ins.bytes,
+            ins.version.map_or("?".into(), |v| v.to_string())
+        );
+        say!(
+            "CRC-32: stored {}, computed {}",
+            ins.crc_stored.as_deref().unwrap_or("–"),
+            ins.crc_computed.as_deref().unwrap_or("–")
+        );
+        say!("status: {}", ins.status);
+        if let Some(id) = &ins.model_id {
+            say!(
+                "model id: {id}\naudit: {}",
+                ins.audit.as_deref().unwrap_or("?")
+            );
+            say!(
+                "inputs Q{} ({}-bit); weights {}-bit, {} fractional bits; accumulator {} bits",
+                ins.input_bits.unwrap_or(0).saturating_sub(1),
+                ins.input_bits.unwrap_or(0),
+                ins.weight_bits.unwrap_or(0),
+                ins.weight_frac_bits.unwrap_or(0),
+                ins.acc_bits.unwrap_or(0)
+            );
+            say!(
+                "bias {}; NO-GO at score <= {}; GO at score >= {}",
+                ins.bias.unwrap_or(0),
+                ins.nogo_max.unwrap_or(0),
+                ins.go_min.unwrap_or(0)
+            );
+            say!(
+                "{:<18} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
+                "channel",
+                "raw_min",
+                "raw_max",
+                "offset",
+                "multiplier",
+                "shift",
+                "weight"
+            );
+            for c in &ins.channels {
+                say!(
+                    "{:<18} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
+                    c.name,
+                    c.raw_min,
+                    c.raw_max,
+                    c.offset,
+                    c.multiplier,
+                    c.shift,
+                    c.weight
+                );
+            }
+        }
+    }
+    let m = decoded.map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
+    let id = host_trainer::digest::lower_hex(&m.model().model_id);
+    if let Some(p) = model {
+        let fm = FloatModel::read(p)?;
+        if fm.model_id != id {
+            bail!(CheckFailed(format!(
+                "blob model id {id} does not match {} ({})",
+                p.display(),
+                fm.model_id
+            )));
+        }
+        if !quiet && !json {
+            say!("matches float model {}", p.display());
+        }
+    }
+    if let Some(p) = rep {
+        let text =
+            std::fs::read_to_string(p).with_context(|| format!("{}: cannot read", p.display()))?;
+        let v: serde_json::Value =
+            serde_json::from_str(&text).with_context(|| format!("{}: not JSON", p.display()))?;
+        let r = v.get("audit").unwrap_or(&v);
+        let same_id = r.get("model_id").and_then(|x| x.as_str()) == Some(id.as_str());
+        let weights: Vec<i64> = m
+            .model()
+            .channels
+            .iter()
+            .map(|c| i64::from(c.weight))
+            .collect();
+        let rw: Option<Vec<i64>> = r
+            .get("weights")
+            .and_then(|w| serde_json::from_value(w.clone()).ok());
+        let same_model = rw.as_ref() == Some(&weights)
+            && r.get("bias").and_then(|b| b.as_i64()) == Some(m.model().bias);
+        if !(same_id && same_model) {
+            bail!(CheckFailed(format!(
+                "blob does not match audit report {} (model id or integer weights differ)",
+                p.display()
+            )));
+        }
+        if !quiet && !json {
+            say!("matches audit report {}", p.display());
+        }
+    }
+    Ok(())
+}

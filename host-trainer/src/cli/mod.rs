@@ -1,0 +1,139 @@
+//! The command line: one module per subcommand, each typed flags → a validated
+//! configuration → one library call → printing. [`run`] dispatches; `main` picks the
+//! exit code from the error it returns ([`CheckFailed`] is exit 1, anything else 2).
+
+/// `println!` that ends the process quietly when the reader has gone away (e.g. `| head`),
+/// with the exit status a shell gives a process killed by SIGPIPE.
+macro_rules! say {
+    ($($t:tt)*) => {{
+        use std::io::Write as _;
+        if writeln!(std::io::stdout().lock(), $($t)*).is_err() {
+            std::process::exit(141);
+        }
+    }};
+}
+
+/// `print!` with the same handling as [`say!`].
+macro_rules! say_raw {
+    ($($t:tt)*) => {{
+        use std::io::Write as _;
+        if write!(std::io::stdout().lock(), $($t)*).is_err() {
+            std::process::exit(141);
+        }
+    }};
+}
+
+mod args;
+mod audit;
+mod check;
+mod demo;
+mod generate;
+mod inspect;
+mod pack;
+mod replay;
+mod train;
+
+use anyhow::Result;
+use clap::{Parser, Subcommand};
+
+#[derive(Parser)]
+#[command(
+    name = "linegate",
+    version,
+    about = "Train, audit and pack go/no-go classifiers for microcontrollers without an FPU.",
+    long_about = "Linegate turns bench logs (units × sensor channels, each judged GO or NO-GO) into a \
+fixed-point linear classifier for a small microcontroller, proves that rounding cannot change the \
+validated decisions, and packs a checked model blob and flash image.\n\n\
+Typical flow:\n  linegate check  bench.csv --sheet channels.toml\n  linegate train  bench.csv --sheet channels.toml -o model.json\n  \
+linegate audit  --model model.json --train bench.csv --holdout holdout.csv --sweep\n  \
+linegate pack   --model model.json --train bench.csv --holdout holdout.csv -o model.lgb --hex 0x3F000\n  \
+linegate inspect model.lgb\n\n\
+Exit codes: 0 success; 1 a check ran and failed (not separable, audit failed, corrupt or mismatched blob); \
+2 usage, input or output error.\n\n\
+A go/no-go classifier is not by itself a safety function."
+)]
+pub struct Cli {
+    /// No progress bars or summaries; errors only.
+    #[arg(long, short, global = true)]
+    pub quiet: bool,
+    #[command(subcommand)]
+    pub cmd: Cmd,
+}
+
+/// The subcommands.
+#[derive(Subcommand)]
+pub enum Cmd {
+    /// Decide exactly whether a bench log is linearly separable (LP), with γ*, support units and the Novikoff bound.
+    #[command(
+        after_help = "Example:\n  linegate check bench.csv --sheet channels.toml\n\nExit 0: separable; 1: not separable (conflicting units listed); 2: input error."
+    )]
+    Check(check::CheckArgs),
+    /// Train a float model from a bench log; writes our JSON float-model file.
+    #[command(
+        after_help = "Example:\n  linegate train bench.csv --sheet channels.toml --trainer max-margin --holdout holdout.csv -o model.json\n  linegate train bench.csv --trainer pocket --epochs 200 --max-false-go 0 -o model.json"
+    )]
+    Train(train::TrainArgs),
+    /// Quantise and run the release audit; exit 1 if it fails.
+    #[command(
+        after_help = "Example:\n  linegate audit --model model.json --train bench.csv --holdout holdout.csv --sweep --report-dir audit/\n  linegate audit --model model.json --train bench.csv --weight-bits 8 --noise vibration_mg=2.5 --json"
+    )]
+    Audit(audit::AuditArgs),
+    /// Quantise, audit, and write the model blob (and flash images) only if the audit passes.
+    #[command(
+        after_help = "Example:\n  linegate pack --model model.json --train bench.csv --holdout holdout.csv -o model.lgb --hex 0x3F000 --bin\n\nWith --override-audit a failing model is packed anyway; the blob records the override."
+    )]
+    Pack(pack::PackArgs),
+    /// Decode a blob (or an Intel HEX image of one) and print its contents, CRC status and model id.
+    #[command(
+        after_help = "Example:\n  linegate inspect model.lgb --model model.json --report audit.json\n\nExit 1 if the blob is corrupt or does not match the given model or report."
+    )]
+    Inspect(inspect::InspectArgs),
+    /// Run the device kernel over a log and print the device's lines (compare with `diff`).
+    #[command(
+        after_help = "Example:\n  linegate replay --blob model.lgb --model model.json holdout.csv > host.txt"
+    )]
+    Replay(replay::ReplayArgs),
+    /// Write a SYNTHETIC separable bench log of any size (and its channel sheet), to try Linegate at scale.
+    #[command(
+        after_help = "Example:\n  linegate generate --rows 1000000 --channels 16 -o big.csv   # also writes big.toml"
+    )]
+    Generate(generate::GenerateArgs),
+    /// Run the whole job on built-in synthetic data (an invented fan-module test station).
+    #[command(after_help = "Example:\n  linegate demo --out linegate-demo")]
+    Demo(demo::DemoArgs),
+}
+
+/// An error that means "a check failed" (exit 1) rather than a usage problem (exit 2).
+#[derive(Debug)]
+pub struct CheckFailed(pub String);
+
+impl std::fmt::Display for CheckFailed {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.0)
+    }
+}
+
+impl std::error::Error for CheckFailed {}
+
+/// Pretty JSON with a final line feed, as every `--json` prints.
+fn to_json<T: serde::Serialize>(v: &T) -> String {
+    serde_json::to_string_pretty(v).unwrap_or_default() + "\n"
+}
+
+/// Runs the parsed command line.
+///
+/// # Errors
+/// [`CheckFailed`] when a check ran and failed; any other error for usage, input or output.
+pub fn run(cli: &Cli) -> Result<()> {
+    let quiet = cli.quiet;
+    match &cli.cmd {
+        Cmd::Check(a) => a.run(quiet),
+        Cmd::Train(a) => a.run(quiet),
+        Cmd::Audit(a) => a.run(quiet),
+        Cmd::Pack(a) => a.run(quiet),
+        Cmd::Inspect(a) => a.run(quiet),
+        Cmd::Replay(a) => a.run(quiet),
+        Cmd::Generate(a) => a.run(quiet),
+        Cmd::Demo(a) => a.run(quiet),
+    }
+}

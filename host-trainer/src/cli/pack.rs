@@ -1,0 +1,94 @@
+//! `linegate pack`: the model blob and flash images, only from a model that passed its audit.
+
+use std::path::PathBuf;
+
+use anyhow::Result;
+use clap::Args;
+
+use super::CheckFailed;
+use super::args::{ReleaseArgs, release_inputs};
+use host_trainer::output::OutputSet;
+use host_trainer::release::audit;
+use host_trainer::release::{hex, pack};
+
+/// Flags of `linegate pack`.
+#[derive(Args)]
+pub struct PackArgs {
+    #[command(flatten)]
+    pub release: ReleaseArgs,
+    /// Output blob.
+    #[arg(long, short)]
+    pub output: PathBuf,
+    /// Also write an Intel HEX image placing the blob at this flash address (e.g. 0x3F000).
+    #[arg(long, value_name = "ADDRESS", value_parser = parse_address)]
+    pub hex: Option<u32>,
+    /// Also write the raw image (.bin).
+    #[arg(long)]
+    pub bin: bool,
+    /// Pack even if the audit fails; recorded in the blob.
+    #[arg(long)]
+    pub override_audit: bool,
+    /// Overwrite existing files.
+    #[arg(long)]
+    pub force: bool,
+}
+
+impl PackArgs {
+    /// Runs `linegate pack`.
+    pub fn run(&self, quiet: bool) -> Result<()> {
+        let Self {
+            release,
+            output,
+            hex: hex_addr,
+            bin,
+            override_audit,
+            force,
+        } = self;
+        let rel = release_inputs(release, quiet)?;
+        let (q, r) = rel.run()?;
+        let fm = rel.fm;
+        let mark = match (r.passed, override_audit) {
+                (true, _) => shared_model::AuditMark::Passed,
+                (false, true) => shared_model::AuditMark::Overridden,
+                (false, false) => {
+                    return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into())
+                }
+            };
+        let model = audit::mark(&q.model, mark);
+        let blob = pack::blob_bytes(&model);
+        let mut set = OutputSet::default();
+        set.add(output, blob.clone());
+        if let Some(a) = hex_addr {
+            set.add(output.with_extension("hex"), hex::to_hex(*a, &blob));
+        }
+        if *bin {
+            set.add(output.with_extension("bin"), blob.clone());
+        }
+        let files = set.commit(*force)?;
+        if !quiet {
+            say!(
+                "audit {}; model id {}; {} bytes",
+                if r.passed {
+                    "passed"
+                } else {
+                    "FAILED (override recorded in the blob)"
+                },
+                fm.model_id,
+                blob.len()
+            );
+            for f in files {
+                say!("wrote {}", f.display());
+            }
+        }
+        Ok(())
+    }
+}
+
+fn parse_address(s: &str) -> Result<u32, String> {
+    let t = s.trim();
+    let r = match t.strip_prefix("0x").or_else(|| t.strip_prefix("0X")) {
+        Some(h) => u32::from_str_radix(&h.replace('_', ""), 16),
+        None => t.replace('_', "").parse(),
+    };
+    r.map_err(|_| format!("'{s}' is not an address (use e.g. 0x3F000 or 258048)"))
+}

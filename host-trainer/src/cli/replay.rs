@@ -1,0 +1,78 @@
+//! `linegate replay`: the device kernel over a log, printing the lines the device prints.
+
+use std::path::PathBuf;
+
+use anyhow::{Context, Result};
+use clap::Args;
+
+use super::args::LogArgs;
+use host_trainer::output::OutputSet;
+use host_trainer::release::replay;
+use host_trainer::train::float_model::FloatModel;
+
+/// Flags of `linegate replay`.
+#[derive(Args)]
+pub struct ReplayArgs {
+    /// Bench log.
+    pub log: PathBuf,
+    #[command(flatten)]
+    pub log_args: LogArgs,
+    /// The blob.
+    #[arg(long)]
+    pub blob: PathBuf,
+    /// The float model (its channel scaling converts physical readings to raw).
+    #[arg(long)]
+    pub model: PathBuf,
+    /// Also write the raw test vectors here (one unit per line).
+    #[arg(long)]
+    pub vectors: Option<PathBuf>,
+    /// Overwrite the vectors file.
+    #[arg(long)]
+    pub force: bool,
+}
+
+impl ReplayArgs {
+    /// Runs `linegate replay`.
+    pub fn run(&self, quiet: bool) -> Result<()> {
+        let Self {
+            log,
+            log_args,
+            blob,
+            model,
+            vectors,
+            force,
+        } = self;
+        let fm = FloatModel::read(model)?;
+        let bytes =
+            std::fs::read(blob).with_context(|| format!("{}: cannot read", blob.display()))?;
+        let m = shared_model::blob::decode(&bytes)
+            .map_err(|e| anyhow::anyhow!("{}: {e}", blob.display()))?;
+        // Streams: a log of any length, one line out per unit in.
+        let mut vec_text = vectors.as_ref().map(|_| replay::model_line(&m));
+        say_raw!("{}", replay::model_line(&m));
+        let mut index = 0usize;
+        let mut skipped = host_trainer::ingest::SkipReport::default();
+        host_trainer::ingest::stream_units(
+            log,
+            &log_args.options(quiet),
+            &fm.channels,
+            &mut skipped,
+            |u| {
+                say!("{}", replay::line(index, &m, u.raw));
+                if let Some(t) = vec_text.as_mut() {
+                    let row: Vec<String> = u.raw.iter().map(|r| r.to_string()).collect();
+                    t.push_str(&row.join(" "));
+                    t.push('\n');
+                }
+                index += 1;
+                Ok(())
+            },
+        )?;
+        if let (Some(v), Some(text)) = (vectors, vec_text) {
+            let mut set = OutputSet::default();
+            set.add(v, text);
+            set.commit(*force)?;
+        }
+        Ok(())
+    }
+}

@@ -1,0 +1,153 @@
+//! `linegate train`: a float model from a bench log, with holdout and cross-validation.
+
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+
+use anyhow::Result;
+use clap::Args;
+
+use super::args::LogArgs;
+use super::to_json;
+use host_trainer::output::OutputSet;
+use host_trainer::train::eval::TrainerKind;
+use host_trainer::workflow;
+
+/// Flags of `linegate train`.
+#[derive(Args)]
+pub struct TrainArgs {
+    /// Bench log.
+    pub log: PathBuf,
+    #[command(flatten)]
+    pub log_args: LogArgs,
+    /// Channel sheet (TOML).
+    #[arg(long)]
+    pub sheet: Option<PathBuf>,
+    /// Trainer.
+    #[arg(long, value_enum, default_value_t = TrainerKind::MaxMargin)]
+    pub trainer: TrainerKind,
+    /// Epoch cap for the perceptron family.
+    #[arg(long, default_value_t = 1000)]
+    pub epochs: u32,
+    /// Seed for shuffles and folds.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// Soft-margin penalty C, used when the log is not separable.
+    #[arg(long, default_value_t = 10.0)]
+    pub c: f64,
+    /// Move the threshold so at most N NO-GO training units pass.
+    #[arg(long, value_name = "N")]
+    pub max_false_go: Option<usize>,
+    /// Holdout log to evaluate on.
+    #[arg(long)]
+    pub holdout: Option<PathBuf>,
+    /// k-fold cross-validation of every trainer (0: off).
+    #[arg(long, default_value_t = 5)]
+    pub folds: usize,
+    /// Output float model (JSON).
+    #[arg(long, short)]
+    pub output: PathBuf,
+    /// Overwrite existing files.
+    #[arg(long)]
+    pub force: bool,
+    /// Print the outcome as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+impl TrainArgs {
+    /// Runs `linegate train`.
+    pub fn run(&self, quiet: bool) -> Result<()> {
+        let Self {
+            log,
+            log_args,
+            sheet,
+            trainer,
+            epochs,
+            seed,
+            c,
+            max_false_go,
+            holdout,
+            folds,
+            output,
+            force,
+            json,
+        } = self;
+        let opts = log_args.options(quiet);
+        let (ds, sheet) = workflow::load(log, &opts, sheet.as_deref())?;
+        let req = workflow::TrainRequest {
+            trainer: *trainer,
+            epochs: *epochs,
+            seed: *seed,
+            c: *c,
+            max_false_go: *max_false_go,
+            folds: *folds,
+            progress: !quiet && std::io::stderr().is_terminal(),
+        };
+        let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req);
+        if let Some(h) = holdout {
+            let hd = workflow::load_for_model(h, &opts, &out.model)?;
+            out.evaluate_holdout(&hd);
+        }
+        let mut set = OutputSet::default();
+        set.add(output, out.model.to_json());
+        set.commit(*force)?;
+        if *json {
+            say_raw!("{}", to_json(&out));
+        } else if !quiet {
+            print_train(&out, output);
+        }
+        Ok(())
+    }
+}
+
+fn print_train(o: &workflow::TrainOutcome, path: &Path) {
+    let m = &o.model;
+    say!(
+        "trained {} on {} units ({} GO, {} NO-GO); separable: {}",
+        m.provenance.trainer,
+        m.summary.units,
+        m.summary.go,
+        m.summary.nogo,
+        m.summary.separable
+    );
+    say!(
+        "geometric margin {:.6}; training errors {}; threshold {:.6}",
+        m.summary.geometric_margin,
+        m.summary.training_errors,
+        m.threshold
+    );
+    if let Some(s) = &m.summary.threshold_shift {
+        say!(
+            "--max-false-go: {} NO-GO units pass, {} GO units lost",
+            s.false_go,
+            s.go_lost
+        );
+    }
+    if let Some(h) = &o.holdout {
+        say!(
+            "holdout: accuracy {:.4}, false GO {}, false NO-GO {}",
+            h.accuracy(),
+            h.false_go,
+            h.false_nogo
+        );
+    }
+    if !o.cross_validation.is_empty() {
+        say!(
+            "{:<12} {:>9} {:>9} {:>12}",
+            "trainer",
+            "accuracy",
+            "false GO",
+            "false NO-GO"
+        );
+        for r in &o.cross_validation {
+            say!(
+                "{:<12} {:>9.4} {:>9} {:>12}",
+                r.trainer.name(),
+                r.accuracy,
+                r.counts.false_go,
+                r.counts.false_nogo
+            );
+        }
+    }
+    say!("wrote {} (model id {})", path.display(), m.model_id);
+}

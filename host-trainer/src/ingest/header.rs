@@ -1,0 +1,191 @@
+//! The header row: its names, the delimiter, and which column is the label, the unit id,
+//! the timestamp and each channel.
+
+use std::fs::File;
+use std::path::Path;
+
+use super::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES};
+use super::records::{BlockReader, Fields, fields, record_ends, strip_line_end};
+use crate::error::InputError;
+use crate::ingest::scaling::ChannelScale;
+
+pub(super) struct Columns {
+    pub(super) names: Vec<String>,
+    pub(super) label: usize,
+    pub(super) unit: Option<usize>,
+    pub(super) channels: Vec<usize>,
+}
+
+pub(super) fn find(names: &[String], wanted: &str) -> Option<usize> {
+    names.iter().position(|n| n.eq_ignore_ascii_case(wanted))
+}
+
+impl Columns {
+    pub(super) fn resolve(
+        path: &Path,
+        names: Vec<String>,
+        opts: &LogOptions,
+        model: Option<&[ChannelScale]>,
+    ) -> Result<Self, InputError> {
+        for (i, n) in names.iter().enumerate() {
+            if names[..i].iter().any(|m| m == n) {
+                return Err(InputError::DuplicateHeader {
+                    path: path.into(),
+                    name: n.clone(),
+                });
+            }
+        }
+        let unknown = |name: &str| InputError::UnknownColumn {
+            path: path.into(),
+            name: name.to_string(),
+            columns: names.join(", "),
+        };
+        let pick =
+            |given: &Option<String>, defaults: &[&str]| -> Result<Option<usize>, InputError> {
+                match given {
+                    Some(n) => find(&names, n).map(Some).ok_or_else(|| unknown(n)),
+                    None => Ok(defaults.iter().find_map(|d| find(&names, d))),
+                }
+            };
+        let label =
+            pick(&opts.label, LABEL_NAMES)?.ok_or(InputError::NoLabel { path: path.into() })?;
+        let unit = pick(&opts.unit_id, UNIT_NAMES)?;
+        let time = pick(&opts.timestamp, TIME_NAMES)?;
+        for n in &opts.ignore {
+            find(&names, n).ok_or_else(|| unknown(n))?;
+        }
+        let wanted: Option<Vec<String>> = match (model, &opts.channels) {
+            (Some(m), _) => Some(m.iter().map(|c| c.name.clone()).collect()),
+            (None, Some(list)) => Some(list.clone()),
+            (None, None) => None,
+        };
+        let channels = match wanted {
+            Some(list) => list
+                .iter()
+                .map(|n| find(&names, n).ok_or_else(|| unknown(n)))
+                .collect::<Result<_, _>>()?,
+            None => (0..names.len())
+                .filter(|&i| {
+                    i != label
+                        && Some(i) != unit
+                        && Some(i) != time
+                        && !opts
+                            .ignore
+                            .iter()
+                            .any(|n| n.eq_ignore_ascii_case(&names[i]))
+                })
+                .collect::<Vec<_>>(),
+        };
+        if channels.is_empty() {
+            return Err(InputError::NoChannels { path: path.into() });
+        }
+        if channels.len() > shared_model::MAX_CHANNELS {
+            return Err(InputError::TooManyChannels {
+                path: path.into(),
+                count: channels.len(),
+                max: shared_model::MAX_CHANNELS,
+            });
+        }
+        Ok(Self {
+            names,
+            label,
+            unit,
+            channels,
+        })
+    }
+}
+
+/// The header record as read into the buffer.
+pub(super) struct Header {
+    pub(super) names: Vec<String>,
+    /// Offset of the header's first byte (after a byte-order mark).
+    pub(super) start: usize,
+    /// Offset just past the header's line end.
+    pub(super) end: usize,
+    pub(super) delimiter: u8,
+}
+
+/// Reads the first record (the header) into `buf`, refilling until it is complete.
+pub(super) fn read_header(
+    path: &Path,
+    opts: &LogOptions,
+    reader: &mut BlockReader,
+    buf: &mut Vec<u8>,
+) -> Result<Header, InputError> {
+    let io = |e| InputError::io(path, e);
+    reader.refill(buf).map_err(io)?;
+    // A UTF-8 byte-order mark before the header is common in spreadsheet exports.
+    let start = if buf.starts_with(b"\xEF\xBB\xBF") {
+        3
+    } else {
+        0
+    };
+    let tsv = path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
+    let delimiter = if tsv { b'\t' } else { b',' };
+    let end = loop {
+        let mut q = false;
+        if let Some(&e) = record_ends(&buf[start..], &mut q).first() {
+            break start + e;
+        }
+        if reader.eof {
+            break buf.len();
+        }
+        if buf.len() > opts.max_line_len {
+            return Err(InputError::LineTooLong {
+                path: path.into(),
+                line: 1,
+                max: opts.max_line_len,
+            });
+        }
+        reader.refill(buf).map_err(io)?;
+    };
+    let header = strip_line_end(&buf[start..end]);
+    if header.is_empty() && end >= buf.len() {
+        return Err(InputError::Empty { path: path.into() });
+    }
+    let mut owned = csv::ByteRecord::new();
+    let mut ranges = Vec::new();
+    let src = fields(header, delimiter, &mut owned, &mut ranges).map_err(|message| {
+        InputError::Format {
+            path: path.into(),
+            message,
+        }
+    })?;
+    let hf = Fields {
+        src,
+        ranges: &ranges,
+    };
+    let names = (0..hf.len())
+        .map(|i| std::str::from_utf8(hf.get(i)).map(|s| s.trim().to_string()))
+        .collect::<Result<Vec<_>, _>>()
+        .map_err(|_| InputError::HeaderNotUtf8 { path: path.into() })?;
+    Ok(Header {
+        names,
+        start,
+        end,
+        delimiter,
+    })
+}
+
+/// The channel names a log would use under `opts`, from its header alone.
+///
+/// # Errors
+/// Header problems: empty file, duplicate or unknown names, no label.
+pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, InputError> {
+    let file = File::open(path).map_err(|e| InputError::io(path, e))?;
+    let mut reader = BlockReader {
+        file,
+        bar: None,
+        block: 64 << 10,
+        eof: false,
+    };
+    let header = read_header(path, opts, &mut reader, &mut Vec::new())?;
+    let cols = Columns::resolve(path, header.names, opts, None)?;
+    Ok(cols
+        .channels
+        .iter()
+        .map(|&c| cols.names[c].clone())
+        .collect())
+}

@@ -1,0 +1,37 @@
+//! Ingest: bench logs (CSV or TSV with a header row) into a [`Dataset`] of raw readings.
+//!
+//! Columns are found by name. The label column holds GO / NO-GO tokens
+//! (case-insensitive); optional unit-id and timestamp columns are kept out of
+//! the channels. Every channel cell must be a finite number. Problems are
+//! reported with file, line and column; `skip_bad_rows` counts and skips
+//! them instead.
+//!
+//! The reader, in the order a byte crosses it:
+//! `records` (blocks, record ends, fields) → `header` (names and columns) →
+//! `parse` (one record to one row; `fast` for plain decimal records) → `scan`
+//! (the pipelined pass, rows in file order) → `read` ([`read_log`], [`stream_units`]).
+//! `skip` says which errors are about one row and counts the rows skipped.
+//! [`scaling`] maps each channel's valid range to the kernel's inputs and reads
+//! channel sheets; [`dataset`] holds what was read.
+//!
+//! [`Dataset`]: dataset::Dataset
+
+pub mod dataset;
+mod fast;
+mod header;
+mod options;
+mod parse;
+mod read;
+mod records;
+pub mod scaling;
+mod scan;
+mod skip;
+#[cfg(test)]
+mod tests;
+
+pub use header::header_channels;
+pub use options::{
+    GO_TOKENS, LABEL_NAMES, LogOptions, MAX_READING, NOGO_TOKENS, ScaleFrom, TIME_NAMES, UNIT_NAMES,
+};
+pub use read::{StreamedUnit, read_log, stream_units};
+pub use skip::SkipReport;

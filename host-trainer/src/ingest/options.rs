@@ -1,0 +1,97 @@
+//! How a log is read: the options, the default column names and label tokens.
+
+use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+
+/// Readings beyond this magnitude are refused as not finite: no sensor reports 1e15 of anything.
+pub const MAX_READING: f64 = 1e15;
+
+/// Default GO tokens.
+pub const GO_TOKENS: &[&str] = &["go", "pass", "ok", "good", "1", "true"];
+/// Default NO-GO tokens.
+pub const NOGO_TOKENS: &[&str] = &[
+    "nogo", "no-go", "no_go", "fail", "ng", "bad", "reject", "0", "false",
+];
+/// Label column names looked for when none is given.
+pub const LABEL_NAMES: &[&str] = &["label", "verdict", "result", "status"];
+/// Unit-id column names looked for when none is given.
+pub const UNIT_NAMES: &[&str] = &["unit_id", "unit", "serial"];
+/// Timestamp column names looked for when none is given.
+pub const TIME_NAMES: &[&str] = &["timestamp", "time", "date"];
+
+/// How to read a bench log.
+#[derive(Clone, Debug)]
+pub struct LogOptions {
+    /// Channel columns, in order; `None` means every remaining column.
+    pub channels: Option<Vec<String>>,
+    /// Label column; `None` looks for [`LABEL_NAMES`].
+    pub label: Option<String>,
+    /// Unit-id column; `None` looks for [`UNIT_NAMES`].
+    pub unit_id: Option<String>,
+    /// Timestamp column; `None` looks for [`TIME_NAMES`].
+    pub timestamp: Option<String>,
+    /// Columns to leave out.
+    pub ignore: Vec<String>,
+    /// GO tokens, lower case.
+    pub go_labels: Vec<String>,
+    /// NO-GO tokens, lower case.
+    pub nogo_labels: Vec<String>,
+    /// Skip and count bad rows instead of failing.
+    pub skip_bad_rows: bool,
+    /// Longest accepted line, in bytes.
+    pub max_line_len: usize,
+    /// Most units held in memory (4 bytes per reading each).
+    pub max_rows: usize,
+    /// Show a progress bar.
+    pub progress: bool,
+}
+
+impl Default for LogOptions {
+    fn default() -> Self {
+        Self {
+            channels: None,
+            label: None,
+            unit_id: None,
+            timestamp: None,
+            ignore: Vec::new(),
+            go_labels: GO_TOKENS.iter().map(|s| s.to_string()).collect(),
+            nogo_labels: NOGO_TOKENS.iter().map(|s| s.to_string()).collect(),
+            skip_bad_rows: false,
+            max_line_len: 1 << 20,
+            max_rows: 50_000_000,
+            progress: false,
+        }
+    }
+}
+
+/// Where channel scaling comes from.
+#[derive(Clone, Copy, Debug)]
+pub enum ScaleFrom<'a> {
+    /// Observed ranges with headroom for every channel.
+    Observed,
+    /// A channel sheet; channels it does not declare use observed ranges.
+    Sheet(&'a ChannelSheet),
+    /// Exactly these channels and scalings (from a trained model).
+    Model(&'a [ChannelScale]),
+}
+
+/// The label `token` stands for, +1 GO or −1 NO-GO (lower-case `go` and `nogo` tokens,
+/// compared case-insensitively), or `None`. ASCII tokens (the usual case) need no allocation.
+pub(super) fn label_of(token: &[u8], go: &[String], nogo: &[String]) -> Option<i8> {
+    let is = |tokens: &[String]| {
+        if token.is_ascii() {
+            tokens
+                .iter()
+                .any(|t| t.as_bytes().eq_ignore_ascii_case(token))
+        } else {
+            let token = String::from_utf8_lossy(token).to_lowercase();
+            tokens.contains(&token)
+        }
+    };
+    if is(go) {
+        Some(1)
+    } else if is(nogo) {
+        Some(-1)
+    } else {
+        None
+    }
+}

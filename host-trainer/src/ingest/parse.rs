@@ -1,0 +1,269 @@
+//! One record to one row: cells to numbers (or raw counts), the label token to ±1, with
+//! an error naming file, line and column for every cell that cannot be read.
+
+use std::path::Path;
+
+use super::fast;
+use super::header::Columns;
+use super::options::{LogOptions, MAX_READING, label_of};
+use super::records::{Fields, count_lf, fields, record_ends, strip_line_end};
+use crate::error::InputError;
+use crate::ingest::scaling::ChannelScale;
+
+/// What the parser needs to know to turn a record into a row.
+pub(super) struct Parser<'a> {
+    pub(super) path: &'a Path,
+    pub(super) opts: &'a LogOptions,
+    pub(super) cols: &'a Columns,
+    pub(super) delimiter: u8,
+    /// Convert to raw readings (and refuse out-of-range ones) while parsing.
+    pub(super) scales: Option<&'a [ChannelScale]>,
+    /// The one-pass reader for plain records, when every channel allows it.
+    pub(super) fast: Option<fast::FastPlan>,
+}
+
+/// A run of parsed records, in file order: values (or raw readings) row-major, and the errors,
+/// each placed after the rows that precede it. Buffers are reused from block to block.
+#[derive(Default)]
+pub(super) struct Parsed {
+    pub(super) values: Vec<f64>,
+    pub(super) raw: Vec<i32>,
+    pub(super) labels: Vec<i8>,
+    pub(super) lines: Vec<u64>,
+    pub(super) unit_bytes: Vec<u8>,
+    pub(super) unit_ends: Vec<usize>,
+    /// Each error with the number of rows before it in this run.
+    pub(super) errors: Vec<(usize, InputError)>,
+}
+
+impl Parsed {
+    pub(super) fn clear(&mut self) {
+        self.values.clear();
+        self.raw.clear();
+        self.labels.clear();
+        self.lines.clear();
+        self.unit_bytes.clear();
+        self.unit_ends.clear();
+        self.errors.clear();
+    }
+}
+
+impl Parser<'_> {
+    /// Parses one record's fields into `values`; `Ok(None)` for a blank line.
+    pub(super) fn record(
+        &self,
+        f: &Fields<'_>,
+        raw_len: usize,
+        line: u64,
+        values: &mut [f64],
+    ) -> Result<Option<i8>, InputError> {
+        let (path, opts, cols) = (self.path, self.opts, self.cols);
+        let cell_text = |f: &[u8]| String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned();
+        if raw_len > opts.max_line_len {
+            return Err(InputError::LineTooLong {
+                path: path.into(),
+                line,
+                max: opts.max_line_len,
+            });
+        }
+        if f.len() == 1 && f.get(0).is_empty() {
+            return Ok(None);
+        }
+        if f.len() != cols.names.len() {
+            return Err(InputError::Ragged {
+                path: path.into(),
+                line,
+                expected: cols.names.len(),
+                found: f.len(),
+            });
+        }
+        for (v, &c) in values.iter_mut().zip(&cols.channels) {
+            let cell = trim(f.get(c));
+            let column = || cols.names[c].clone();
+            if cell.is_empty() {
+                return Err(InputError::Missing {
+                    path: path.into(),
+                    line,
+                    column: column(),
+                });
+            }
+            // fast-float2 parses the bytes directly (no UTF-8 pass) and accepts exactly a whole
+            // decimal number, like str::parse, several times faster.
+            let x: f64 = fast_float2::parse(cell).map_err(|_| InputError::NotNumeric {
+                path: path.into(),
+                line,
+                column: column(),
+                value: cell_text(cell),
+            })?;
+            if !x.is_finite() || x.abs() > MAX_READING {
+                return Err(InputError::NotFinite {
+                    path: path.into(),
+                    line,
+                    column: column(),
+                    value: cell_text(cell),
+                });
+            }
+            *v = x;
+        }
+        let lf = trim(f.get(cols.label));
+        match label_of(lf, &opts.go_labels, &opts.nogo_labels) {
+            Some(label) => Ok(Some(label)),
+            None => Err(InputError::UnknownLabel {
+                path: path.into(),
+                line,
+                column: cols.names[cols.label].clone(),
+                value: cell_text(lf),
+                go: opts.go_labels.join(", "),
+                nogo: opts.nogo_labels.join(", "),
+            }),
+        }
+    }
+
+    /// Converts parsed readings to raw integers; refuses a reading outside its channel's range.
+    pub(super) fn to_raw(
+        &self,
+        scales: &[ChannelScale],
+        vals: &[f64],
+        out: &mut [i32],
+        line: u64,
+    ) -> Result<(), InputError> {
+        for (k, ((o, &v), s)) in out.iter_mut().zip(vals).zip(scales).enumerate() {
+            *o = s.to_raw(v).ok_or_else(|| InputError::OutOfRange {
+                path: self.path.into(),
+                line,
+                column: self.cols.names[self.cols.channels[k]].clone(),
+                value: v,
+                min: s.min,
+                max: s.max,
+            })?;
+        }
+        Ok(())
+    }
+
+    /// Parses whole records `bytes` (ending at record ends) whose first byte is on `first_line`
+    /// into `out` (cleared first).
+    /// `plain` says the bytes are known to hold no quote.
+    pub(super) fn piece(&self, bytes: &[u8], first_line: u64, plain: bool, out: &mut Parsed) {
+        let d = self.cols.channels.len();
+        out.clear();
+        let mut scratch = Scratch {
+            vals: vec![0.0; d],
+            raw_row: vec![0i32; d],
+            owned: csv::ByteRecord::new(),
+            ranges: Vec::with_capacity(self.cols.names.len()),
+        };
+        let mut line = first_line;
+        // Without a quote in the run, a record is a line: the fast reader finds its end as it
+        // goes, and hands what it cannot read to the general path.
+        let fast = self
+            .fast
+            .as_ref()
+            .filter(|_| plain || memchr::memchr(b'"', bytes).is_none());
+        if let Some(f) = fast {
+            let mut pos = 0;
+            while pos < bytes.len() {
+                let slot = if self.scales.is_some() {
+                    fast::Out::Raw(grow(&mut out.raw, d))
+                } else {
+                    fast::Out::Values(grow(&mut out.values, d))
+                };
+                let end = match f.record_at(bytes, pos, slot) {
+                    Some((r, end)) => {
+                        if let Some((a, b)) = r.unit {
+                            out.unit_bytes.extend_from_slice(&bytes[a..b]);
+                            out.unit_ends.push(out.unit_bytes.len());
+                        }
+                        out.labels.push(r.label);
+                        out.lines.push(line);
+                        end
+                    }
+                    None => {
+                        out.raw.truncate(out.labels.len() * d);
+                        out.values.truncate(out.labels.len() * d);
+                        let end = memchr::memchr(b'\n', &bytes[pos..])
+                            .map_or(bytes.len(), |k| pos + k + 1);
+                        self.general(&bytes[pos..end], line, out, &mut scratch);
+                        end
+                    }
+                };
+                line += u64::from(bytes[end - 1] == b'\n');
+                pos = end;
+            }
+            return;
+        }
+        let mut quote = false;
+        let mut start = 0;
+        // Records end at line feeds outside quotes; the last one may lack its line feed.
+        let mut ends = record_ends(bytes, &mut quote);
+        if ends.last() != Some(&bytes.len()) && !bytes.is_empty() {
+            ends.push(bytes.len());
+        }
+        for end in ends {
+            let raw = &bytes[start..end];
+            start = end;
+            self.general(raw, line, out, &mut scratch);
+            line += count_lf(raw);
+        }
+    }
+
+    /// Reads one record (with its line end) on `line` the general way, into `out`.
+    pub(super) fn general(&self, raw: &[u8], line: u64, out: &mut Parsed, scratch: &mut Scratch) {
+        let Scratch {
+            vals,
+            raw_row,
+            owned,
+            ranges,
+        } = scratch;
+        let parsed = match fields(strip_line_end(raw), self.delimiter, owned, ranges) {
+            Ok(src) => {
+                let f = Fields { src, ranges };
+                self.record(&f, raw.len(), line, vals).and_then(|label| {
+                    if let (Some(_), Some(scales)) = (label, self.scales) {
+                        self.to_raw(scales, vals, raw_row, line)?;
+                    }
+                    if let (Some(_), Some(u)) = (label, self.cols.unit) {
+                        out.unit_bytes.extend_from_slice(trim(f.get(u)));
+                        out.unit_ends.push(out.unit_bytes.len());
+                    }
+                    Ok(label)
+                })
+            }
+            Err(message) => Err(InputError::Format {
+                path: self.path.into(),
+                message: format!("line {line}: {message}"),
+            }),
+        };
+        match parsed {
+            Ok(None) => {}
+            Ok(Some(label)) => {
+                if self.scales.is_some() {
+                    out.raw.extend_from_slice(raw_row);
+                } else {
+                    out.values.extend_from_slice(vals);
+                }
+                out.labels.push(label);
+                out.lines.push(line);
+            }
+            Err(e) => out.errors.push((out.labels.len(), e)),
+        }
+    }
+}
+
+/// Buffers the general path reuses from record to record.
+pub(super) struct Scratch {
+    pub(super) vals: Vec<f64>,
+    pub(super) raw_row: Vec<i32>,
+    pub(super) owned: csv::ByteRecord,
+    pub(super) ranges: Vec<(usize, usize)>,
+}
+
+/// Appends `d` zeros to `v` and returns them, for the fast path to fill.
+pub(super) fn grow<T: Copy + Default>(v: &mut Vec<T>, d: usize) -> &mut [T] {
+    let n = v.len();
+    v.resize(n + d, T::default());
+    &mut v[n..]
+}
+
+pub(super) fn trim(f: &[u8]) -> &[u8] {
+    f.trim_ascii()
+}

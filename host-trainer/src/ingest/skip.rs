@@ -1,0 +1,50 @@
+//! Rows and their errors: which errors are about one row (skipped and counted under
+//! `skip_bad_rows`) and the report of what was skipped.
+
+use std::collections::BTreeMap;
+
+use crate::error::InputError;
+
+/// Rows skipped under `skip_bad_rows`, by reason.
+#[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct SkipReport {
+    /// Rows skipped in all.
+    pub total: usize,
+    /// Count per reason.
+    pub by_reason: BTreeMap<String, usize>,
+    /// The first few messages, for the user to look at.
+    pub examples: Vec<String>,
+}
+
+impl SkipReport {
+    pub(super) fn add(&mut self, e: &InputError) {
+        self.total += 1;
+        let reason = match e {
+            InputError::Ragged { .. } => "ragged row",
+            InputError::Missing { .. } => "empty cell",
+            InputError::NotNumeric { .. } => "not a number",
+            InputError::NotFinite { .. } => "not finite",
+            InputError::OutOfRange { .. } => "outside valid range",
+            InputError::UnknownLabel { .. } => "unknown label",
+            InputError::LineTooLong { .. } => "line too long",
+            _ => "other",
+        };
+        *self.by_reason.entry(reason.to_string()).or_default() += 1;
+        if self.examples.len() < 5 {
+            self.examples.push(e.to_string());
+        }
+    }
+}
+
+pub(super) fn is_row_error(e: &InputError) -> bool {
+    matches!(
+        e,
+        InputError::Ragged { .. }
+            | InputError::Missing { .. }
+            | InputError::NotNumeric { .. }
+            | InputError::NotFinite { .. }
+            | InputError::OutOfRange { .. }
+            | InputError::UnknownLabel { .. }
+            | InputError::LineTooLong { .. }
+    )
+}

@@ -1,0 +1,308 @@
+//! Reader tests: block seams, both parsing paths, errors in file order.
+
+use std::path::Path;
+
+use super::fast;
+use super::header::*;
+use super::options::*;
+use super::parse::*;
+use super::scan::*;
+use super::skip::*;
+use crate::error::InputError;
+use crate::ingest::scaling::ChannelScale;
+
+/// One row as seen by the callback: line, values, label, unit id.
+type Seen = (u64, Vec<f64>, i8, Option<Vec<u8>>);
+
+/// Every row seen by `scan_blocks` at a block size, the hash, and the rows skipped.
+fn rows(
+    path: &Path,
+    opts: &LogOptions,
+    block: usize,
+) -> Result<(Vec<Seen>, String, usize), String> {
+    let mut out = Vec::new();
+    let mut skipped = SkipReport::default();
+    let (_, hash) = scan_blocks(
+        path,
+        opts,
+        None,
+        None,
+        &mut skipped,
+        |_, r| {
+            out.push((
+                r.line,
+                r.values.to_vec(),
+                r.label,
+                r.unit.map(<[u8]>::to_vec),
+            ));
+            Ok(())
+        },
+        block,
+    )
+    .map_err(|e| e.to_string())?;
+    Ok((out, hash, skipped.total))
+}
+
+#[test]
+fn block_seams_quotes_and_crlf_give_the_same_rows_as_one_block() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("log.csv");
+    let mut text = String::from("\u{feff}unit_id,a,b,label\r\n");
+    for i in 0..300 {
+        let unit = if i == 200 {
+            "\"U,200\"".to_string()
+        } else {
+            format!("U{i}")
+        };
+        let blank = if i % 97 == 0 { "\r\n" } else { "" };
+        let bad = if i == 150 { "x" } else { "" };
+        text.push_str(&format!(
+            "{blank}{unit},{i}.5{bad},{},{}\r\n",
+            -i,
+            if i % 3 == 0 { "NO-GO" } else { "GO" }
+        ));
+    }
+    std::fs::write(&path, &text).unwrap();
+    let opts = LogOptions {
+        skip_bad_rows: true,
+        ..LogOptions::default()
+    };
+    let whole = rows(&path, &opts, 1 << 20).unwrap();
+    assert_eq!(whole.0.len(), 299);
+    assert_eq!(whole.0[0].0, 3, "U0 follows the header and a blank line");
+    assert_eq!(
+        whole.0[199].3.as_deref(),
+        Some(&b"U,200"[..]),
+        "quoted unit id (U150 was skipped)"
+    );
+    assert_eq!(whole.2, 1, "the bad row is skipped and counted");
+    assert_eq!(whole.1, crate::digest::sha256_hex(text.as_bytes()));
+    for block in [7, 64, 100, 1000] {
+        let got = rows(&path, &opts, block).unwrap();
+        let first_diff = got.0.iter().zip(&whole.0).position(|(a, b)| a != b);
+        assert!(
+            got == whole,
+            "block size {block}: {} vs {} rows, first difference at {first_diff:?}",
+            got.0.len(),
+            whole.0.len()
+        );
+    }
+    // Without skipping, every block size reports the same first error, at the same line.
+    let strict = LogOptions::default();
+    let want = rows(&path, &strict, 1 << 20).unwrap_err();
+    // U150 is on line 154: header, then blank lines before U0 and U97.
+    assert!(want.contains("line 154, column 'a'"), "{want}");
+    for block in [7, 64, 100, 1000] {
+        assert_eq!(
+            rows(&path, &strict, block).unwrap_err(),
+            want,
+            "block size {block}"
+        );
+    }
+}
+
+/// `bytes` as records of `unit_id,a,note,b,label` (note ignored) read with the fast path
+/// (told the bytes hold no quote if `plain`) and by the general path alone, as raw counts
+/// or, without `raw`, as physical values.
+fn both_paths(opts: &LogOptions, bytes: &[u8], plain: bool, raw: bool) -> (Parsed, Parsed) {
+    let names: Vec<String> = ["unit_id", "a", "note", "b", "label"]
+        .map(String::from)
+        .to_vec();
+    let path = Path::new("log.csv");
+    let cols = Columns::resolve(path, names, opts, None).unwrap();
+    let sheet = [
+        ChannelScale::new("a", "", -100.0, 100.0, 0.01, 0.0).unwrap(),
+        ChannelScale::new("b", "", 0.0, 5000.0, 1.0, 0.0).unwrap(),
+    ];
+    let scales = raw.then_some(&sheet[..]);
+    let fast = fast::FastPlan::new(&cols, scales, b',', opts);
+    assert!(fast.is_some(), "both channels are plain decimal shifts");
+    let parser = |fast| Parser {
+        path,
+        opts,
+        cols: &cols,
+        delimiter: b',',
+        scales,
+        fast,
+    };
+    let (mut p, mut q) = (Parsed::default(), Parsed::default());
+    parser(fast).piece(bytes, 2, plain, &mut p);
+    parser(None).piece(bytes, 2, false, &mut q);
+    (p, q)
+}
+
+/// What a run of records parses to: rows, unit ids and errors (as text).
+#[derive(Debug, PartialEq)]
+struct View {
+    raw: Vec<i32>,
+    /// Values by their bits: -0.0 and 0.0 must agree too.
+    values: Vec<u64>,
+    labels: Vec<i8>,
+    lines: Vec<u64>,
+    units: Vec<u8>,
+    unit_ends: Vec<usize>,
+    errors: Vec<(usize, String)>,
+}
+
+fn parsed_view(p: &Parsed) -> View {
+    View {
+        raw: p.raw.clone(),
+        values: p.values.iter().map(|v| v.to_bits()).collect(),
+        labels: p.labels.clone(),
+        lines: p.lines.clone(),
+        units: p.unit_bytes.clone(),
+        unit_ends: p.unit_ends.clone(),
+        errors: p.errors.iter().map(|(k, e)| (*k, e.to_string())).collect(),
+    }
+}
+
+proptest::proptest! {
+    /// On any bytes from the alphabet of bench logs, the fast path reads what the general
+    /// path reads.
+    #[test]
+    fn fast_path_agrees_on_arbitrary_bytes(
+        bytes in proptest::collection::vec(proptest::sample::select(
+            b"0123456789012345678901234567890123456789.-,,,,,,,\n\n\r \"eEGOgoNU+x\xc3\xbc".to_vec()
+        ), 0..400),
+        plain in proptest::bool::ANY,
+        raw in proptest::bool::ANY,
+    ) {
+        let opts = LogOptions {
+            ignore: vec!["note".into()],
+            max_line_len: 30,
+            ..LogOptions::default()
+        };
+        // `plain` may only be claimed for bytes without quotes.
+        let plain = plain && !bytes.contains(&b'"');
+        let (p, q) = both_paths(&opts, &bytes, plain, raw);
+        proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
+    }
+
+    /// Records built from cells of every kind, good and bad, read alike by both paths.
+    #[test]
+    fn fast_path_agrees_on_records_of_any_cells(
+        records in proptest::collection::vec((
+            proptest::collection::vec(proptest::sample::select(vec![
+                // Good cells often, so that many records are good rows.
+                "1", "12.34", "17", "GO", "no-go", "1", "12.34", "17", "GO", "no-go",
+                "1", "12.34", "17", "GO", "no-go", "-0.5", "100", "5000", "0", "-0",
+                "12.345", "1e1", " 5", "5 ", "", "x", ".5", "5.", "+5", " GO", "gö",
+                "maybe", "\"3,4\"", "99999999999999999999", "0.0000001",
+            ]), 4..6),
+            proptest::sample::select(vec!["\n", "\r\n", "\r", "\r\r\n", ""]),
+        ), 0..40),
+        raw in proptest::bool::ANY,
+    ) {
+        let opts = LogOptions {
+            ignore: vec!["note".into()],
+            max_line_len: 40,
+            ..LogOptions::default()
+        };
+        let mut text = String::new();
+        for (cells, end) in &records {
+            text.push_str(&cells.join(","));
+            text.push_str(if end.is_empty() { "\n" } else { end });
+        }
+        let plain = !text.contains('"');
+        let (p, q) = both_paths(&opts, text.as_bytes(), plain, raw);
+        proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
+    }
+}
+
+#[test]
+fn fast_and_general_paths_read_the_same_rows_and_errors() {
+    use rand::{Rng, SeedableRng};
+    let opts = LogOptions {
+        ignore: vec!["note".into()],
+        max_line_len: 40,
+        ..LogOptions::default()
+    };
+    // Every kind of cell the fast path must either read exactly or hand on.
+    let a_cells = [
+        "12.34", "-0.5", "100", "-100.00", "12.345", "12.355", "1e1", " 5", "5 ", "", "x",
+        "100.01", ".5", "5.", "+5", "-0", "0.00", "99.99",
+    ];
+    let b_cells = ["0", "5000", "5001", "17", "17.0", "-1", "4999"];
+    let labels = ["GO", "no-go", "Pass", " GO", "maybe", "gö", "NG", "0"];
+    let units = ["U1", " U2", "U3 ", "", "ü4"];
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+    let mut text = String::new();
+    for _ in 0..3000 {
+        // Mostly plain cells, some of every other kind.
+        let mut cell = |plain: &'static str, others: &[&'static str]| {
+            if rng.gen_bool(0.6) {
+                plain
+            } else {
+                others[rng.gen_range(0..others.len())]
+            }
+        };
+        let (a, b) = (cell("12.34", &a_cells), cell("17", &b_cells));
+        let (l, u) = (cell("GO", &labels), cell("U1", &units));
+        match rng.gen_range(0..20) {
+            0 => text.push('\n'),
+            1 => text.push_str(&format!("{u},{a},n,{b}\n")),
+            2 => text.push_str(&format!("{u},{a},n,{b},{l},extra\n")),
+            3 => text.push_str(&format!("{u},{a},n,{b},{l}\r\n")),
+            4 => text.push_str(&format!("{u},{a},n,{b},{l}\r\r\n")),
+            5 => text.push_str(&format!("{u}\r,{a},n,{b},{l}\n")),
+            6 => text.push_str(&format!("{u},{a},n,{b},{l}{}\n", " ".repeat(30))),
+            _ => text.push_str(&format!("{u},{a},n,{b},{l}\n")),
+        }
+    }
+    // The run may end without a line feed, even in a CR.
+    text.push_str("U9,1.5,n,2,GO\r");
+    let (p, q) = both_paths(&opts, text.as_bytes(), false, true);
+    let (pv, qv) = both_paths(&opts, text.as_bytes(), false, false);
+    assert_eq!(parsed_view(&pv), parsed_view(&qv), "as physical values");
+    assert!(pv.values.len() > 2000, "most rows are good as values too");
+    assert!(p.labels.len() > 1000, "most rows are good");
+    assert!(q.errors.len() > 100, "the bad rows are there");
+    assert_eq!(parsed_view(&p), parsed_view(&q));
+    assert_eq!(p.labels.last(), Some(&1), "the last record is read");
+    assert!(
+        q.errors
+            .iter()
+            .any(|(_, e)| matches!(e, InputError::LineTooLong { .. }))
+    );
+}
+
+#[test]
+fn an_over_long_line_comes_after_the_errors_before_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("log.csv");
+    // The bad row right before the long line is parsed in the block before the one where
+    // the long line is found.
+    let mut text = String::from("a,label\n");
+    for i in 0..200 {
+        text.push_str(&format!("{i},NO-GO\n"));
+    }
+    text.push_str("x,GO\n");
+    text.push_str(&"9".repeat(500));
+    text.push_str(",GO\n7,GO\n");
+    std::fs::write(&path, &text).unwrap();
+    let strict = LogOptions {
+        max_line_len: 100,
+        ..LogOptions::default()
+    };
+    for block in [64, 256, 1 << 20] {
+        let e = rows(&path, &strict, block).unwrap_err();
+        assert!(e.contains("line 202"), "block {block}: {e}");
+        let skip = LogOptions {
+            skip_bad_rows: true,
+            ..strict.clone()
+        };
+        let mut skipped = SkipReport::default();
+        scan_blocks(&path, &skip, None, None, &mut skipped, |_, _| Ok(()), block).unwrap();
+        assert_eq!(skipped.total, 2, "block {block}");
+        assert!(
+            skipped.examples[0].contains("line 202"),
+            "{:?}",
+            skipped.examples
+        );
+        assert!(
+            skipped.examples[1].contains("line 203"),
+            "{:?}",
+            skipped.examples
+        );
+    }
+}

@@ -1,0 +1,12 @@
+//! Release: a float model in, a checked fixed-point blob and flash images out.
+//!
+//! [`quantise`] turns the float model into integer weights, conversions and thresholds;
+//! [`audit`] runs `shared_model`'s kernel (the code the firmware runs) over every unit and
+//! proves the rounding bound; [`pack`] writes the blob and inspects one; [`hex`] writes and
+//! reads Intel HEX images; [`replay`] prints the lines the device prints.
+
+pub mod audit;
+pub mod hex;
+pub mod pack;
+pub mod quantise;
+pub mod replay;

@@ -1,0 +1,25 @@
+//! The numbers every other module agrees on: capacities and the blob's layout constants.
+//!
+//! A leaf: `model`, `blob`, `error` and `kernel` all depend on it and it depends on none of
+//! them, so the format version and the capacities have one home. The layout itself is
+//! specified in `shared-model/FORMAT.md`; any change to it bumps [`FORMAT_VERSION`].
+
+/// Most channels a model may fuse. Fixed at compile time so the device needs no heap.
+pub const MAX_CHANNELS: usize = 32;
+
+/// Longest channel name, in UTF-8 bytes.
+pub const NAME_CAPACITY: usize = 24;
+
+/// The four bytes every Linegate blob starts with.
+pub const MAGIC: [u8; 4] = *b"LGMB";
+/// The blob layout version this build writes and reads.
+pub const FORMAT_VERSION: u16 = 1;
+/// Bytes before the payload: magic, version, channel count, payload length.
+pub const HEADER_LEN: usize = 9;
+/// Bytes of the trailing CRC-32.
+pub const CRC_LEN: usize = 4;
+/// Largest payload a valid model can need (every varint at its longest, every name full).
+pub const MAX_PAYLOAD_LEN: usize =
+    16 + 5 + 3 * 10 + 1 + MAX_CHANNELS * (1 + NAME_CAPACITY + 5 * 5 + 1);
+/// A buffer of this size holds any blob.
+pub const MAX_BLOB_LEN: usize = HEADER_LEN + MAX_PAYLOAD_LEN + CRC_LEN;
