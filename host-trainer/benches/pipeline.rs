@@ -106,10 +106,10 @@ fn main() {
         .build()
         .unwrap();
     let t = Instant::now();
-    let r1 = single.install(|| audit(&q, &fm, &ds, None, &[], AuditConfig::default()));
+    let r1 = single.install(|| audit(&q, &fm, &ds, &[], &[], AuditConfig::default()));
     let t_audit1 = t.elapsed().as_secs_f64();
     let t = Instant::now();
-    let r2 = audit(&q, &fm, &ds, None, &[], AuditConfig::default());
+    let r2 = audit(&q, &fm, &ds, &[], &[], AuditConfig::default());
     let t_audit_par = t.elapsed().as_secs_f64();
     assert_eq!(r1.sets[0].flips, r2.sets[0].flips);
 

@@ -299,14 +299,23 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
     let acfg = AuditConfig::default();
     let base = QuantConfig::default();
-    let sweep = audit::sweep(fm, &train_ds, Some(&holdout_ds), base, acfg)?;
-    let chosen = sweep.1.map(|i| &sweep.0[i]);
-    let qc = QuantConfig {
-        weight_bits: chosen.map_or(16, |r| r.weight_bits),
-        input_bits: chosen.map_or(16, |r| r.input_bits),
-        ..base
+    // The demo applies what a release engineer would: the sweep's recommended word lengths
+    // and the RECHECK band the declared noise calls for.
+    let apply = audit::Apply {
+        recommended_format: true,
+        suggested_band: true,
     };
-    let (q, report) = audit::release(fm, &train_ds, Some(&holdout_ds), qc, &noise, acfg)?;
+    let done = audit::release_applying(
+        fm,
+        &train_ds,
+        &[("holdout", &holdout_ds)],
+        base,
+        &noise,
+        acfg,
+        apply,
+    )?;
+    let (q, report) = (done.q, done.report);
+    let sweep = done.sweep.unwrap_or_default();
     let mark = if report.passed {
         shared_model::AuditMark::Passed
     } else {

@@ -407,9 +407,10 @@ fn audit_lists_every_unit_with_the_kernel_scores() {
     // Audit in the format the demo packed, so the kernel scores are the device's.
     let model: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(d.join("demo/audit.json")).unwrap()).unwrap();
-    let (wb, ib) = (
+    let (wb, ib, band) = (
         model["weight_bits"].to_string(),
         model["input_bits"].to_string(),
+        model["recheck_band"].to_string(),
     );
     let args = [
         "audit",
@@ -421,6 +422,8 @@ fn audit_lists_every_unit_with_the_kernel_scores() {
         &wb,
         "--input-bits",
         &ib,
+        "--recheck-band",
+        &band,
     ];
     let o = linegate(
         &[
@@ -477,4 +480,97 @@ fn every_subcommand_help_has_an_example() {
         Some(2),
         "usage error exits 2"
     );
+}
+
+#[test]
+fn audit_refuses_a_training_log_the_model_was_not_trained_on() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    for cmd in ["audit", "pack"] {
+        let mut args = vec![
+            cmd,
+            "--model",
+            "demo/model.json",
+            "--train",
+            "demo/holdout-synthetic.csv",
+        ];
+        if cmd == "pack" {
+            args.extend(["-o", "m.lgb"]);
+        }
+        let o = linegate(&args, d);
+        exits(&o, 2);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert!(
+            err.contains(
+                "demo/holdout-synthetic.csv: this is not the log demo/model.json was trained on"
+            ),
+            "{err}"
+        );
+        assert!(!d.join("m.lgb").exists());
+    }
+}
+
+#[test]
+fn validation_logs_are_audited_and_gated_each_on_its_own() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    let o = linegate(
+        &[
+            "audit",
+            "--model",
+            "demo/model.json",
+            "--train",
+            "demo/train-synthetic.csv",
+            "--holdout",
+            "demo/holdout-synthetic.csv",
+            "--validate",
+            "demo/holdout-synthetic.csv",
+            "--validate",
+            "demo/holdout-synthetic.csv",
+            "--apply-suggested-band",
+            "--max-false-nogo",
+            "0",
+            "--json",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let names: Vec<&str> = v["audit"]["sets"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["name"].as_str().unwrap())
+        .collect();
+    assert_eq!(names, ["train", "holdout", "validation-1", "validation-2"]);
+    for log in &names {
+        for gate in ["false GO", "false NO-GO", "RECHECK", "noise"] {
+            assert!(
+                v["audit"]["gates"]
+                    .as_array()
+                    .unwrap()
+                    .iter()
+                    .any(|g| g["gate"] == gate && g["log"] == *log && g["limit"].is_string()),
+                "no {gate} gate on {log}"
+            );
+        }
+    }
+    assert!(String::from_utf8_lossy(&o.stderr).contains("applied: RECHECK half-band"));
+    // A bad limit is a usage error naming the flag's syntax.
+    let o = linegate(
+        &[
+            "audit",
+            "--model",
+            "demo/model.json",
+            "--train",
+            "demo/train-synthetic.csv",
+            "--max-recheck",
+            "lots",
+        ],
+        d,
+    );
+    exits(&o, 2);
+    assert!(String::from_utf8_lossy(&o.stderr).contains("not a count or a rate"));
 }

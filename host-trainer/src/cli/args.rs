@@ -4,11 +4,11 @@
 use std::io::IsTerminal;
 use std::path::PathBuf;
 
-use anyhow::{Context, Result};
+use anyhow::{Context, Result, bail};
 use clap::Args;
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
-use host_trainer::release::audit::{self, AuditConfig};
+use host_trainer::release::audit::{self, AuditConfig, Limit};
 use host_trainer::release::quantise::{QuantConfig, Quantised};
 use host_trainer::train::float_model::FloatModel;
 use host_trainer::workflow;
@@ -76,9 +76,13 @@ pub struct ReleaseArgs {
     /// The training log the model was trained on.
     #[arg(long)]
     pub train: PathBuf,
-    /// A holdout log, audited too.
+    /// A holdout log, audited too (named "holdout" in the reports).
     #[arg(long)]
     pub holdout: Option<PathBuf>,
+    /// Further validation logs, each audited and gated on its own (repeat the flag; named
+    /// "validation-1", "validation-2", … in the reports).
+    #[arg(long, value_name = "LOG")]
+    pub validate: Vec<PathBuf>,
     #[command(flatten)]
     pub log_args: LogArgs,
     /// Weight word length in bits (2..=32).
@@ -108,29 +112,68 @@ pub struct ReleaseArgs {
     /// Do not require the analytic rounding guarantee.
     #[arg(long)]
     pub no_require_guarantee: bool,
+    /// Most NO-GO units the device may pass, per log: a count (e.g. 0) or a rate (e.g. 0.1%).
+    #[arg(long, value_name = "LIMIT", default_value = "0")]
+    pub max_false_go: Limit,
+    /// Most GO units the device may turn away (NO-GO, or FAULT on a GO unit), per log: a count
+    /// or a rate.
+    #[arg(long, value_name = "LIMIT", default_value = "1%")]
+    pub max_false_nogo: Limit,
+    /// Most units sent to retest (RECHECK), per log: a count or a rate.
+    #[arg(long, value_name = "LIMIT", default_value = "5%")]
+    pub max_recheck: Limit,
+    /// Do not fail units whose GO/NO-GO verdict the declared noise could swap (by default
+    /// such a unit must fall in the RECHECK band).
+    #[arg(long)]
+    pub no_noise_gate: bool,
+    /// Widen the RECHECK band to the one the noise analysis suggests (until no unit's GO/NO-GO
+    /// verdict can be swapped by the declared noise); the report records the band used.
+    #[arg(long)]
+    pub apply_suggested_band: bool,
+    /// Use the word lengths the sweep recommends (the narrowest that pass) instead of
+    /// --weight-bits/--input-bits; the report records them.
+    #[arg(long)]
+    pub apply_recommended_format: bool,
 }
 
 /// What `audit` and `pack` work from.
 pub struct Release {
     pub fm: FloatModel,
     pub train: Dataset,
-    pub holdout: Option<Dataset>,
+    /// Holdout and validation logs, with their report names.
+    pub others: Vec<(String, Dataset)>,
     pub qc: QuantConfig,
     pub noise: Vec<Option<f64>>,
     pub ac: AuditConfig,
+    pub apply: audit::Apply,
+    pub quiet: bool,
 }
 
 impl Release {
-    /// Quantises and audits: the step `audit` and `pack` share.
-    pub fn run(&self) -> Result<(Quantised, audit::AuditReport)> {
-        Ok(audit::release(
+    /// The holdout and validation logs as the audit takes them.
+    pub fn named_others(&self) -> Vec<(&str, &Dataset)> {
+        self.others.iter().map(|(n, d)| (n.as_str(), d)).collect()
+    }
+
+    /// Quantises and audits, applying what `--apply-…` asked: the step `audit` and `pack`
+    /// share. Says on stderr what it chose, so no default changes a verdict silently.
+    pub fn run(&mut self) -> Result<(Quantised, audit::AuditReport)> {
+        let done = audit::release_applying(
             &self.fm,
             &self.train,
-            self.holdout.as_ref(),
+            &self.named_others(),
             self.qc,
             &self.noise,
             self.ac,
-        )?)
+            self.apply,
+        )?;
+        if !self.quiet {
+            for a in &done.report.applied {
+                eprintln!("applied: {a}");
+            }
+        }
+        self.qc = done.qc;
+        Ok((done.q, done.report))
     }
 }
 
@@ -142,11 +185,30 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
     let fm = FloatModel::read(&r.model)?;
     let opts = r.log_args.options(quiet);
     let train = workflow::load_for_model(&r.train, &opts, &fm)?;
-    let holdout = r
-        .holdout
-        .as_ref()
-        .map(|h| workflow::load_for_model(h, &opts, &fm))
-        .transpose()?;
+    let recorded = &fm.provenance.training_log;
+    if train.sha256 != recorded.sha256 {
+        bail!(
+            "{}: this is not the log {} was trained on (its SHA-256 is {}, the model records {} for {}); audit with the training log the model names",
+            r.train.display(),
+            r.model.display(),
+            train.sha256,
+            recorded.sha256,
+            recorded.path.display()
+        );
+    }
+    let mut others = Vec::new();
+    if let Some(h) = &r.holdout {
+        others.push((
+            "holdout".to_string(),
+            workflow::load_for_model(h, &opts, &fm)?,
+        ));
+    }
+    for (k, v) in r.validate.iter().enumerate() {
+        others.push((
+            format!("validation-{}", k + 1),
+            workflow::load_for_model(v, &opts, &fm)?,
+        ));
+    }
     let mut noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
     for spec in &r.noise {
         let (name, value) = spec
@@ -175,13 +237,22 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
         min_margin_lsb: r.min_margin_lsb,
         max_flips: r.max_flips,
         require_guarantee: !r.no_require_guarantee,
+        max_false_go: r.max_false_go,
+        max_false_nogo: r.max_false_nogo,
+        max_recheck: r.max_recheck,
+        noise_gate: !r.no_noise_gate,
     };
     Ok(Release {
         fm,
         train,
-        holdout,
+        others,
         qc,
         noise,
         ac,
+        apply: audit::Apply {
+            recommended_format: r.apply_recommended_format,
+            suggested_band: r.apply_suggested_band,
+        },
+        quiet,
     })
 }

@@ -44,34 +44,28 @@ impl AuditArgs {
             force,
             json,
         } = self;
-        let rel = release_inputs(release, quiet)?;
+        let mut rel = release_inputs(release, quiet)?;
         let (q, r) = rel.run()?;
+        let others = rel.named_others();
         let Release {
-            fm,
-            train,
-            holdout,
-            qc,
-            ac,
-            ..
-        } = rel;
+            fm, train, qc, ac, ..
+        } = &rel;
         let sw = if *sweep {
-            Some(audit::sweep(&fm, &train, holdout.as_ref(), qc, ac)?)
+            Some(audit::sweep(fm, train, &others, *qc, *ac)?)
         } else {
             None
         };
-        let md = report::markdown(&fm, &r, sw.as_ref());
+        let md = report::markdown(fm, &r, sw.as_ref());
         let mut set = OutputSet::default();
         if let Some(dir) = report_dir {
             set.add(dir.join("audit.md"), md.as_bytes());
-            set.add(dir.join("audit.html"), report::html(&fm, &r, &md));
+            set.add(dir.join("audit.html"), report::html(fm, &r, &md));
             set.add(dir.join("audit.json"), to_json(&r));
         }
         if let Some(path) = units {
-            let mut sets = vec![("train", &train)];
-            if let Some(h) = &holdout {
-                sets.push(("holdout", h));
-            }
-            set.add(path, audit::units_csv(&q, &fm, &sets));
+            let mut sets = vec![("train", train)];
+            sets.extend(others.iter().copied());
+            set.add(path, audit::units_csv(&q, fm, &sets));
         }
         set.commit(*force)?;
         if *json {

@@ -71,13 +71,18 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
         );
     }
     let a = &s.audit;
+    let count = |f: fn(&host_trainer::release::audit::SetSummary) -> usize| -> usize {
+        a.sets.iter().map(f).sum()
+    };
     say!(
-        "audit {}: flips {}, guaranteed {}, min margin {} LSB > bound {:.1} LSB",
+        "audit {}: false GO {}, false NO-GO {}, RECHECK {} (half-band {:.4}), flips {}, rounding guaranteed {} (bound {:.1} LSB)",
         if a.passed { "PASSED" } else { "FAILED" },
+        count(|t| t.false_go),
+        count(|t| t.false_nogo),
+        count(|t| t.recheck),
+        a.recheck_band,
         a.flips.len(),
         a.guaranteed,
-        a.optimised_min_margin_lsb
-            .map_or("–".into(), |v| format!("{v:.1}")),
         a.bound.total
     );
     say!("wrote into {}:", out.display());

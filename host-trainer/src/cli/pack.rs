@@ -44,7 +44,7 @@ impl PackArgs {
             override_audit,
             force,
         } = self;
-        let rel = release_inputs(release, quiet)?;
+        let mut rel = release_inputs(release, quiet)?;
         let (q, r) = rel.run()?;
         let fm = rel.fm;
         let mark = match (r.passed, override_audit) {

@@ -25,25 +25,113 @@ use crate::ingest::dataset::Dataset;
 use crate::release::quantise::{QuantConfig, QuantError, Quantised, fixed_margin, quantise};
 use crate::train::float_model::FloatModel;
 
-/// Gate thresholds.
+/// A cap on a count of units in one log: at most `N` units, or at most a share of the log.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub enum Limit {
+    /// At most this many units.
+    Count(usize),
+    /// At most this fraction of the log's units (0.01 is 1 %).
+    Rate(f64),
+}
+
+impl Limit {
+    /// Whether `n` of `units` is within the cap.
+    ///
+    /// ```
+    /// use host_trainer::release::audit::Limit;
+    /// assert!(Limit::Rate(0.01).allows(1, 100) && !Limit::Rate(0.01).allows(2, 100));
+    /// assert!(Limit::Count(0).allows(0, 5) && !Limit::Count(0).allows(1, 5));
+    /// ```
+    pub fn allows(self, n: usize, units: usize) -> bool {
+        match self {
+            Self::Count(c) => n <= c,
+            // Compared in integers where possible: n / units <= r exactly as n <= r * units.
+            Self::Rate(r) => n as f64 <= r * units as f64,
+        }
+    }
+}
+
+impl std::fmt::Display for Limit {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Self::Count(c) => write!(f, "{c}"),
+            Self::Rate(r) => write!(f, "{}%", r * 100.0),
+        }
+    }
+}
+
+impl std::str::FromStr for Limit {
+    type Err = String;
+
+    /// `"3"` is a count, `"1%"` or `"0.5%"` a rate.
+    fn from_str(s: &str) -> Result<Self, String> {
+        let t = s.trim();
+        match t.strip_suffix('%') {
+            Some(p) => p
+                .trim()
+                .parse::<f64>()
+                .ok()
+                .filter(|v| v.is_finite() && (0.0..=100.0).contains(v))
+                .map(|v| Self::Rate(v / 100.0))
+                .ok_or_else(|| format!("'{s}' is not a rate (use e.g. 1% or 0.5%)")),
+            None => t
+                .parse::<usize>()
+                .map(Self::Count)
+                .map_err(|_| format!("'{s}' is not a count or a rate (use e.g. 0, 3 or 1%)")),
+        }
+    }
+}
+
+/// Gate thresholds. Every gate applies to every audited log on its own.
 #[derive(Clone, Copy, Debug)]
 pub struct AuditConfig {
-    /// Smallest acceptable fixed margin over correctly classified units, in LSB.
+    /// Smallest acceptable fixed margin over correctly decided units, in LSB.
     pub min_margin_lsb: f64,
     /// Largest acceptable number of decision flips versus the float model.
     pub max_flips: usize,
     /// Require the analytic guarantee.
     pub require_guarantee: bool,
+    /// NO-GO units the device would pass (GO): the dangerous error.
+    pub max_false_go: Limit,
+    /// GO units the device would turn away (NO-GO, or FAULT on a GO unit): lost yield.
+    pub max_false_nogo: Limit,
+    /// Units sent to retest (RECHECK): neither right nor wrong, but they cost a retest.
+    pub max_recheck: Limit,
+    /// Where noise is declared, a unit whose GO/NO-GO verdict the noise could swap must be
+    /// in the RECHECK band.
+    pub noise_gate: bool,
 }
 
 impl Default for AuditConfig {
+    /// The cautious defaults: no false GO at all, at most 1 % false NO-GO and 5 % RECHECK
+    /// per log, margin at least 1 LSB, no flips, the rounding guarantee and the noise gate.
     fn default() -> Self {
         Self {
             min_margin_lsb: 1.0,
             max_flips: 0,
             require_guarantee: true,
+            max_false_go: Limit::Count(0),
+            max_false_nogo: Limit::Rate(0.01),
+            max_recheck: Limit::Rate(0.05),
+            noise_gate: true,
         }
     }
+}
+
+/// One gate on one log (or on all logs, for the model-wide gates).
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Gate {
+    /// What is gated: "false GO", "false NO-GO", "RECHECK", "flips", "min margin",
+    /// "guarantee", "noise".
+    pub gate: &'static str,
+    /// The log it applies to, or "all".
+    pub log: String,
+    /// The measured value.
+    pub value: String,
+    /// The limit it was held to.
+    pub limit: String,
+    /// Whether it held.
+    pub passed: bool,
 }
 
 /// The rounding-error bound, in accumulator LSB.
@@ -146,7 +234,14 @@ pub struct SetSummary {
     pub faults: usize,
     /// Fixed verdicts of RECHECK.
     pub recheck: usize,
-    /// Smallest fixed margin over float-correct units (LSB).
+    /// NO-GO units the device passes (fixed verdict GO).
+    pub false_go: usize,
+    /// GO units the device turns away: fixed verdict NO-GO, or a FAULT (a faulted GO unit
+    /// is a false NO-GO; a faulted NO-GO unit is a safe NO-GO).
+    pub false_nogo: usize,
+    /// Units whose GO/NO-GO verdict the declared noise could swap (outside the RECHECK band).
+    pub noise_unsafe: usize,
+    /// Smallest fixed margin over float-correct units the device decides (LSB).
     pub min_margin_lsb: Option<f64>,
     /// Float-correct units whose fixed margin does not exceed the bound.
     pub within_bound: usize,
@@ -225,13 +320,22 @@ pub struct AuditReport {
     pub channel_margin: Vec<(String, f64, String)>,
     /// Units whose decision flipped.
     pub flips: Vec<UnitRow>,
+    /// Units behind the decision gates: every false GO, false NO-GO (FAULT included) and
+    /// noise-unsafe unit, in log order (at most 200 per log).
+    pub wrong: Vec<UnitRow>,
     /// The units closest to the boundary.
     pub tightest: Vec<UnitRow>,
     /// Sensor-noise analysis, when noise is declared.
     pub tolerance: Option<Tolerance>,
-    /// The gate's verdict.
+    /// RECHECK half-band used, in float score units (0: none).
+    pub recheck_band: f64,
+    /// Choices the tool made on the user's request (`--apply-…`), in words.
+    pub applied: Vec<String>,
+    /// Every gate on every log, passed or not.
+    pub gates: Vec<Gate>,
+    /// The audit's verdict: every gate passed.
     pub passed: bool,
-    /// Why it failed.
+    /// Why it failed: one line per failed gate.
     pub reasons: Vec<String>,
     /// Fixed margins of the audited units (for the histogram), in LSB.
     #[serde(skip)]
@@ -251,10 +355,22 @@ struct Acc {
     min_fixed_abs: f64,
     /// Units whose verdict declared noise could change, in file order (at most `AT_RISK`).
     at_risk: Vec<usize>,
+    /// False GO, false NO-GO and noise-unsafe units, in file order (at most `WRONG`).
+    wrong: Vec<usize>,
+}
+
+impl Acc {
+    /// Notes a unit behind a decision gate (the first `WRONG` of a log are kept).
+    fn note_wrong(&mut self, i: usize) {
+        if self.wrong.len() < WRONG && self.wrong.last() != Some(&i) {
+            self.wrong.push(i);
+        }
+    }
 }
 
 const TIGHTEST: usize = 20;
 const AT_RISK: usize = 1000;
+const WRONG: usize = 200;
 const HISTOGRAM_SAMPLE: usize = 20_000;
 
 /// Audits one log with the shared kernel. Parallel over units.
@@ -270,6 +386,12 @@ fn audit_set(
     let m = &q.model;
     let float = crate::ingest::dataset::RawForm::new(ds, &fm.weights, fm.bias);
     let band = (fm.threshold * q.scale, m.model());
+    // How far each decision edge lies beyond the float threshold, in LSB: the edges the
+    // margins are measured from (go_min − ½, nogo_max + ½) against ⌊A·t⌋ + ½, where they sit
+    // without a band.
+    let t_floor = band.0.floor();
+    let go_past = (band.1.go_min as f64 - 1.0 - t_floor).max(0.0);
+    let nogo_past = (t_floor - band.1.nogo_max as f64).max(0.0);
     let stride = (ds.len() / HISTOGRAM_SAMPLE).max(1);
     let empty = || Acc {
         s: SetSummary {
@@ -283,6 +405,7 @@ fn audit_set(
         margins: Vec::new(),
         min_fixed_abs: f64::INFINITY,
         at_risk: Vec::new(),
+        wrong: Vec::new(),
     };
     let merge = |mut a: Acc, b: Acc| {
         a.s.units += b.s.units;
@@ -291,6 +414,9 @@ fn audit_set(
         a.s.flips += b.s.flips;
         a.s.faults += b.s.faults;
         a.s.recheck += b.s.recheck;
+        a.s.false_go += b.s.false_go;
+        a.s.false_nogo += b.s.false_nogo;
+        a.s.noise_unsafe += b.s.noise_unsafe;
         a.s.within_bound += b.s.within_bound;
         a.s.min_margin_lsb = match (a.s.min_margin_lsb, b.s.min_margin_lsb) {
             (Some(x), Some(y)) => Some(x.min(y)),
@@ -307,6 +433,8 @@ fn audit_set(
         // Chunks merge in file order, so the first AT_RISK units are kept.
         a.at_risk.extend(b.at_risk);
         a.at_risk.truncate(AT_RISK);
+        a.wrong.extend(b.wrong);
+        a.wrong.truncate(WRONG);
         a
     };
     (0..ds.len())
@@ -314,59 +442,90 @@ fn audit_set(
         .with_min_len(1 << 16)
         .fold(empty, |mut a, i| {
             let raw = ds.raw_row(i);
-            let fs = float.score(raw);
             let label = ds.labels[i];
+            a.s.units += 1;
+            let d = match m.classify(raw) {
+                Ok(d) => d,
+                Err(_) => {
+                    // The device shows NO-GO on a fault: wrong for a GO unit, safe for a NO-GO one.
+                    a.s.faults += 1;
+                    if label > 0 {
+                        a.s.false_nogo += 1;
+                        a.note_wrong(i);
+                    }
+                    return a;
+                }
+            };
+            let fs = float.score(raw);
             let float_go = fs > fm.threshold;
             let float_ok = float_go == (label > 0);
-            a.s.units += 1;
             a.s.float_correct += usize::from(float_ok);
             if float_ok {
                 a.float_min = a
                     .float_min
                     .min(f64::from(label) * (fs - fm.threshold) * q.scale);
             }
-            match m.classify(raw) {
-                Err(_) => {
-                    a.s.faults += 1;
-                    a.flips.push((i, f64::NAN));
+            let margin = fixed_margin(band.1, d.score, label);
+            // A RECHECK is a retest: no decision, so neither right nor wrong, and not part of
+            // the margin and guarantee figures, which are about decisions.
+            let decided = d.verdict != Verdict::Recheck;
+            a.s.fixed_correct += usize::from(decided && margin > 0.0);
+            a.s.recheck += usize::from(!decided);
+            match (d.verdict, label > 0) {
+                (Verdict::Go, false) => {
+                    a.s.false_go += 1;
+                    a.note_wrong(i);
                 }
-                Ok(d) => {
-                    let margin = fixed_margin(band.1, d.score, label);
-                    let fixed_ok = margin > 0.0 && d.verdict != Verdict::Recheck;
-                    a.s.fixed_correct += usize::from(fixed_ok);
-                    a.s.recheck += usize::from(d.verdict == Verdict::Recheck);
-                    let float_verdict = if float_go { Verdict::Go } else { Verdict::NoGo };
-                    // With a RECHECK band a RECHECK is not a flip; a GO/NO-GO swap is.
-                    if d.verdict != Verdict::Recheck && d.verdict != float_verdict {
-                        a.s.flips += 1;
-                        a.flips.push((i, margin));
-                    }
-                    if float_ok {
-                        a.s.min_margin_lsb =
-                            Some(a.s.min_margin_lsb.map_or(margin, |v: f64| v.min(margin)));
-                        a.s.within_bound += usize::from(margin <= bound);
-                        a.min_fixed_abs = a.min_fixed_abs.min(margin);
-                    }
-                    if risk.is_some_and(|r| margin.abs() <= r) && a.at_risk.len() < AT_RISK {
-                        a.at_risk.push(i);
-                    }
-                    if a.tight.len() < TIGHTEST
-                        || margin < a.tight.last().map_or(f64::INFINITY, |t| t.0)
-                    {
-                        a.tight.push((margin, i));
-                        a.tight
-                            .sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
-                        a.tight.truncate(TIGHTEST);
-                    }
-                    if i % stride == 0 {
-                        let fmargin = if label > 0 {
-                            fs * q.scale - band.0
-                        } else {
-                            band.0 - fs * q.scale
-                        };
-                        a.margins.push((fmargin, margin));
-                    }
+                (Verdict::NoGo, true) => {
+                    a.s.false_nogo += 1;
+                    a.note_wrong(i);
                 }
+                _ => {}
+            }
+            let float_verdict = if float_go { Verdict::Go } else { Verdict::NoGo };
+            // With a RECHECK band a RECHECK is not a flip; a GO/NO-GO swap is.
+            if decided && d.verdict != float_verdict {
+                a.s.flips += 1;
+                a.flips.push((i, margin));
+            }
+            if float_ok && decided {
+                a.s.min_margin_lsb =
+                    Some(a.s.min_margin_lsb.map_or(margin, |v: f64| v.min(margin)));
+                // Rounding swaps a decision only across the float threshold; with a RECHECK
+                // band the unit's own edge lies beyond it by the band (0 without one).
+                let past = if label > 0 { go_past } else { nogo_past };
+                a.s.within_bound += usize::from(margin + past <= bound);
+                a.min_fixed_abs = a.min_fixed_abs.min(margin);
+            }
+            if let Some(r) = risk {
+                if margin.abs() <= r && a.at_risk.len() < AT_RISK {
+                    a.at_risk.push(i);
+                }
+                // How far the score may move before the opposite decision: GO units from
+                // nogo_max + ½, NO-GO units from go_min − ½ (the same edges as the margins).
+                let room = match d.verdict {
+                    Verdict::Go => d.score as f64 - (band.1.nogo_max as f64 + 0.5),
+                    Verdict::NoGo => (band.1.go_min as f64 - 0.5) - d.score as f64,
+                    Verdict::Recheck => f64::INFINITY,
+                };
+                if room <= r {
+                    a.s.noise_unsafe += 1;
+                    a.note_wrong(i);
+                }
+            }
+            if a.tight.len() < TIGHTEST || margin < a.tight.last().map_or(f64::INFINITY, |t| t.0) {
+                a.tight.push((margin, i));
+                a.tight
+                    .sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
+                a.tight.truncate(TIGHTEST);
+            }
+            if i % stride == 0 {
+                let fmargin = if label > 0 {
+                    fs * q.scale - band.0
+                } else {
+                    band.0 - fs * q.scale
+                };
+                a.margins.push((fmargin, margin));
             }
             a
         })
@@ -451,12 +610,13 @@ fn physical_margins(q: &Quantised, fm: &FloatModel, lsb: f64) -> Vec<f64> {
         .collect()
 }
 
-/// Audits a quantised model on the training log and, if given, a holdout log.
+/// Audits a quantised model on the training log and on `others` (holdout and validation
+/// logs, each with its name), gate by gate.
 pub fn audit(
     q: &Quantised,
     fm: &FloatModel,
     train: &Dataset,
-    holdout: Option<&Dataset>,
+    others: &[(&str, &Dataset)],
     noise: &[Option<f64>],
     cfg: AuditConfig,
 ) -> AuditReport {
@@ -464,6 +624,7 @@ pub fn audit(
     let bound = error_bound(q);
     let mut sets = Vec::new();
     let mut flips = Vec::new();
+    let mut wrong = Vec::new();
     let mut tight: Vec<(f64, &str, &Dataset, usize)> = Vec::new();
     let mut fixed_margins = Vec::new();
     let mut float_margins = Vec::new();
@@ -471,7 +632,7 @@ pub fn audit(
     let mut float_min = f64::INFINITY;
     let risk = noise_radius(q, fm, noise);
     let mut units_at_risk = Vec::new();
-    for (name, ds) in std::iter::once(("train", train)).chain(holdout.map(|h| ("holdout", h))) {
+    for &(name, ds) in std::iter::once(&("train", train)).chain(others) {
         let a = audit_set(name, q, fm, ds, bound.total, risk);
         for &i in &a.at_risk {
             if units_at_risk.len() < AT_RISK {
@@ -479,6 +640,7 @@ pub fn audit(
             }
         }
         flips.extend(a.flips.iter().map(|&(i, _)| unit_row(name, q, fm, ds, i)));
+        wrong.extend(a.wrong.iter().map(|&i| unit_row(name, q, fm, ds, i)));
         tight.extend(a.tight.iter().map(|&(mg, i)| (mg, name, ds, i)));
         for (f, x) in &a.margins {
             float_margins.push(*f);
@@ -496,7 +658,9 @@ pub fn audit(
         .iter()
         .map(|&(_, n, ds, i)| unit_row(n, q, fm, ds, i))
         .collect();
-    let guaranteed = sets.iter().all(|s| s.within_bound == 0 && s.faults == 0);
+    // Faults are decisions of their own (NO-GO), gated as false NO-GO on GO units; the
+    // rounding guarantee is about the units the kernel scores.
+    let guaranteed = sets.iter().all(|s| s.within_bound == 0);
     let channel_margin = fm
         .channels
         .iter()
@@ -504,30 +668,8 @@ pub fn audit(
         .map(|(c, v)| (c.name.clone(), v, c.unit.clone()))
         .collect();
     let tolerance = risk.map(|radius| tolerance(q, fm, noise, &sets, radius, units_at_risk));
-    let total_flips: usize = sets.iter().map(|s| s.flips).sum();
-    let faults: usize = sets.iter().map(|s| s.faults).sum();
-    let mut reasons = Vec::new();
-    if total_flips > cfg.max_flips {
-        reasons.push(format!(
-            "{total_flips} decision flips versus the float model (allowed: {})",
-            cfg.max_flips
-        ));
-    }
-    if faults > 0 {
-        reasons.push(format!(
-            "{faults} units have readings the device would refuse (outside the valid range)"
-        ));
-    }
-    if min_all.is_finite() && min_all < cfg.min_margin_lsb {
-        reasons.push(format!(
-            "smallest fixed margin {min_all:.1} LSB is below the required {} LSB",
-            cfg.min_margin_lsb
-        ));
-    }
-    if cfg.require_guarantee && !guaranteed {
-        let n: usize = sets.iter().map(|s| s.within_bound).sum();
-        reasons.push(format!("not guaranteed: {n} correctly classified units have a margin within the rounding bound ({:.1} LSB)", bound.total));
-    }
+    let gates = gates(&sets, cfg, risk.is_some(), min_all, guaranteed, bound.total);
+    let reasons: Vec<String> = gates.iter().filter(|g| !g.passed).map(reason).collect();
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
     let blob_bytes = blob::encode(&q.model, &mut buf).unwrap_or(0);
     AuditReport {
@@ -553,12 +695,106 @@ pub fn audit(
         guaranteed,
         channel_margin,
         flips,
+        wrong,
         tightest,
         tolerance,
+        recheck_band: q.recheck_band,
+        applied: Vec::new(),
+        gates,
         passed: reasons.is_empty(),
         reasons,
         fixed_margins,
         float_margins,
+    }
+}
+
+/// Every gate: the decision gates on each log, then the model-wide ones.
+fn gates(
+    sets: &[SetSummary],
+    cfg: AuditConfig,
+    noise_declared: bool,
+    min_margin: f64,
+    guaranteed: bool,
+    bound: f64,
+) -> Vec<Gate> {
+    let mut out = Vec::new();
+    for s in sets {
+        let of = |n: usize| format!("{n} of {}", s.units);
+        for (gate, n, limit) in [
+            ("false GO", s.false_go, cfg.max_false_go),
+            ("false NO-GO", s.false_nogo, cfg.max_false_nogo),
+            ("RECHECK", s.recheck, cfg.max_recheck),
+        ] {
+            out.push(Gate {
+                gate,
+                log: s.name.clone(),
+                value: of(n),
+                limit: limit.to_string(),
+                passed: limit.allows(n, s.units),
+            });
+        }
+        if noise_declared && cfg.noise_gate {
+            out.push(Gate {
+                gate: "noise",
+                log: s.name.clone(),
+                value: of(s.noise_unsafe),
+                limit: "0 outside the RECHECK band".into(),
+                passed: s.noise_unsafe == 0,
+            });
+        }
+    }
+    let flips: usize = sets.iter().map(|s| s.flips).sum();
+    out.push(Gate {
+        gate: "flips",
+        log: "all".into(),
+        value: flips.to_string(),
+        limit: cfg.max_flips.to_string(),
+        passed: flips <= cfg.max_flips,
+    });
+    out.push(Gate {
+        gate: "min margin",
+        log: "all".into(),
+        value: if min_margin.is_finite() {
+            format!("{min_margin:.1} LSB")
+        } else {
+            "no decided unit".into()
+        },
+        limit: format!("{} LSB", cfg.min_margin_lsb),
+        passed: !(min_margin.is_finite() && min_margin < cfg.min_margin_lsb),
+    });
+    if cfg.require_guarantee {
+        let n: usize = sets.iter().map(|s| s.within_bound).sum();
+        out.push(Gate {
+            gate: "guarantee",
+            log: "all".into(),
+            value: format!("{n} decided units within the bound ({bound:.1} LSB)"),
+            limit: "0".into(),
+            passed: guaranteed,
+        });
+    }
+    out
+}
+
+/// The line a failed gate adds to the audit's reasons.
+fn reason(g: &Gate) -> String {
+    match g.gate {
+        "flips" => format!(
+            "{} decision flips versus the float model (allowed: {})",
+            g.value, g.limit
+        ),
+        "min margin" => format!(
+            "smallest fixed margin {} is below the required {}",
+            g.value, g.limit
+        ),
+        "guarantee" => format!("not guaranteed: {}", g.value),
+        "noise" => format!(
+            "{}: {} units could swap GO/NO-GO within the declared noise (widen --recheck-band, e.g. --apply-suggested-band)",
+            g.log, g.value
+        ),
+        _ => format!(
+            "{}: {} {} units (allowed: {})",
+            g.log, g.value, g.gate, g.limit
+        ),
     }
 }
 
@@ -653,7 +889,7 @@ pub struct SweepRow {
 pub fn sweep(
     fm: &FloatModel,
     train: &Dataset,
-    holdout: Option<&Dataset>,
+    others: &[(&str, &Dataset)],
     base: QuantConfig,
     cfg: AuditConfig,
 ) -> Result<(Vec<SweepRow>, Option<usize>), QuantError> {
@@ -667,7 +903,7 @@ pub fn sweep(
                 ..base
             };
             let q = quantise(fm, Some(train), qc)?;
-            let r = audit(&q, fm, train, holdout, &[], cfg);
+            let r = audit(&q, fm, train, others, &[], cfg);
             let n = q.model.channel_count();
             let min = r
                 .sets
@@ -708,13 +944,13 @@ pub fn sweep(
 pub fn release(
     fm: &FloatModel,
     train: &Dataset,
-    holdout: Option<&Dataset>,
+    others: &[(&str, &Dataset)],
     qc: QuantConfig,
     noise: &[Option<f64>],
     cfg: AuditConfig,
 ) -> Result<(Quantised, AuditReport), QuantError> {
     let q = quantise(fm, Some(train), qc)?;
-    let r = audit(&q, fm, train, holdout, noise, cfg);
+    let r = audit(&q, fm, train, others, noise, cfg);
     Ok((q, r))
 }
 
@@ -723,4 +959,91 @@ pub fn mark(model: &CheckedModel, mark: shared_model::AuditMark) -> CheckedModel
     let mut m = model.model().clone();
     m.audit = mark;
     CheckedModel::new(m).unwrap_or_else(|_| model.clone())
+}
+
+/// Choices `release_applying` may make for the user.
+#[derive(Clone, Copy, Debug, Default)]
+pub struct Apply {
+    /// Use the sweep's recommended word lengths (the narrowest that pass).
+    pub recommended_format: bool,
+    /// Widen the RECHECK band to the suggested one until the noise gate passes.
+    pub suggested_band: bool,
+}
+
+/// What `release_applying` settled on.
+pub struct Released {
+    /// The quantised model.
+    pub q: Quantised,
+    /// Its audit, with `applied` saying what was chosen.
+    pub report: AuditReport,
+    /// The configuration actually used.
+    pub qc: QuantConfig,
+    /// The sweep, when it was run to pick the format.
+    pub sweep: Option<(Vec<SweepRow>, Option<usize>)>,
+}
+
+/// [`release`], first applying what `apply` asks: the sweep's recommended word lengths, then
+/// the suggested RECHECK band, widened until no unit's GO/NO-GO verdict can be swapped by
+/// the declared noise (a few rounds at most: the band only grows).
+///
+/// # Errors
+/// [`QuantError`] from the quantiser.
+pub fn release_applying(
+    fm: &FloatModel,
+    train: &Dataset,
+    others: &[(&str, &Dataset)],
+    mut qc: QuantConfig,
+    noise: &[Option<f64>],
+    cfg: AuditConfig,
+    apply: Apply,
+) -> Result<Released, QuantError> {
+    let mut applied = Vec::new();
+    let mut sw = None;
+    if apply.recommended_format {
+        let s = sweep(fm, train, others, qc, cfg)?;
+        match s.1.and_then(|i| s.0.get(i)) {
+            Some(row) => {
+                qc.weight_bits = row.weight_bits;
+                qc.input_bits = row.input_bits;
+                applied.push(format!(
+                    "word lengths from the sweep: {}-bit weights, {}-bit inputs",
+                    row.weight_bits, row.input_bits
+                ));
+            }
+            None => applied
+                .push("no format of the sweep passes; the given word lengths were kept".into()),
+        }
+        sw = Some(s);
+    }
+    let (mut q, mut r) = release(fm, train, others, qc, noise, cfg)?;
+    if apply.suggested_band {
+        for _ in 0..8 {
+            let unsafe_units: usize = r.sets.iter().map(|s| s.noise_unsafe).sum();
+            let Some(t) = &r.tolerance else { break };
+            if unsafe_units == 0 {
+                break;
+            }
+            // The band must reach past the noise radius of the model it will be applied to;
+            // widen by at least an eighth a round so the loop ends.
+            let next = t.suggested_band.max(qc.recheck_band * 1.125);
+            if next <= qc.recheck_band {
+                break;
+            }
+            qc.recheck_band = next;
+            (q, r) = release(fm, train, others, qc, noise, cfg)?;
+        }
+        if qc.recheck_band > 0.0 {
+            applied.push(format!(
+                "RECHECK half-band {:.6} (float score units) from the noise analysis",
+                qc.recheck_band
+            ));
+        }
+    }
+    r.applied = applied;
+    Ok(Released {
+        q,
+        report: r,
+        qc,
+        sweep: sw,
+    })
 }

@@ -90,6 +90,8 @@ pub struct Quantised {
     pub optimised_min_margin: Option<f64>,
     /// Search moves kept.
     pub moves: usize,
+    /// RECHECK half-band it was built with, in float score units.
+    pub recheck_band: f64,
 }
 
 /// Rounds `v · 2^frac` to the nearest integer, ties to even: the Q-format conversion used for weights.
@@ -209,6 +211,7 @@ pub fn quantise(
         plain_min_margin: None,
         optimised_min_margin: None,
         moves: 0,
+        recheck_band: cfg.recheck_band.max(0.0),
     };
     if let Some(ds) = train {
         let correct = correct_units(fm, ds);
@@ -267,11 +270,16 @@ pub fn correct_units(fm: &FloatModel, ds: &Dataset) -> Vec<usize> {
 
 /// Smallest fixed margin over `idx`, by the shared kernel; `None` if a reading is refused or `idx` is empty.
 pub fn min_margin(m: &CheckedModel, ds: &Dataset, idx: &[usize]) -> Option<f64> {
+    // A unit in the RECHECK band gets no decision, so it has no decision margin.
     idx.iter()
         .map(|&i| {
-            m.classify(ds.raw_row(i))
-                .ok()
-                .map(|d| fixed_margin(m.model(), d.score, ds.labels[i]))
+            m.classify(ds.raw_row(i)).ok().map(|d| {
+                if d.verdict == shared_model::Verdict::Recheck {
+                    f64::INFINITY
+                } else {
+                    fixed_margin(m.model(), d.score, ds.labels[i])
+                }
+            })
         })
         .try_fold(f64::INFINITY, |acc, v| v.map(|v| acc.min(v)))
         .filter(|v| v.is_finite())

@@ -42,6 +42,16 @@ pub fn markdown(
         "- thresholds: NO-GO at score ≤ {}, GO at score ≥ {}; blob {} bytes",
         r.nogo_max, r.go_min, r.blob_bytes
     );
+    if r.recheck_band > 0.0 {
+        let _ = writeln!(
+            s,
+            "- RECHECK half-band: {:.6} float score units around the threshold",
+            r.recheck_band
+        );
+    }
+    for a in &r.applied {
+        let _ = writeln!(s, "- applied on request: {a}");
+    }
     if !r.reasons.is_empty() {
         let _ = writeln!(s, "\n## Why it failed\n");
         for x in &r.reasons {
@@ -50,22 +60,69 @@ pub fn markdown(
     }
     let _ = writeln!(
         s,
-        "\n## Decisions\n\n| log | units | float correct | fixed correct | flips | faults | RECHECK | min fixed margin (LSB) | within bound |\n|---|---|---|---|---|---|---|---|---|"
+        "\n## Decisions per log (device kernel against the labels)\n\n| log | units | false GO | false NO-GO | RECHECK | FAULT | float correct | fixed correct | flips | min fixed margin (LSB) | within bound |\n|---|---|---|---|---|---|---|---|---|---|---|"
     );
     for t in &r.sets {
         let _ = writeln!(
             s,
-            "| {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+            "| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
             t.name,
             t.units,
+            t.false_go,
+            t.false_nogo,
+            t.recheck,
+            t.faults,
             t.float_correct,
             t.fixed_correct,
             t.flips,
-            t.faults,
-            t.recheck,
             opt(t.min_margin_lsb),
             t.within_bound
         );
+    }
+    let _ = writeln!(
+        s,
+        "\nFalse GO: a NO-GO unit the device passes. False NO-GO: a GO unit it turns away, a FAULT on a GO unit included (a FAULT on a NO-GO unit is a safe NO-GO). RECHECK: a retest, neither right nor wrong. Margins are measured from go_min − ½ (GO units) and nogo_max + ½ (NO-GO units), over units the device decides."
+    );
+    let _ = writeln!(
+        s,
+        "\n## Gates\n\n| gate | log | value | limit | result |\n|---|---|---|---|---|"
+    );
+    for g in &r.gates {
+        let _ = writeln!(
+            s,
+            "| {} | {} | {} | {} | {} |",
+            g.gate,
+            g.log,
+            g.value,
+            g.limit,
+            if g.passed { "pass" } else { "FAIL" }
+        );
+    }
+    if !r.wrong.is_empty() {
+        let _ = writeln!(
+            s,
+            "\n## Units behind the decision gates\n\n| log | line | unit | label | fixed verdict | fixed score | margin (LSB) |\n|---|---|---|---|---|---|---|"
+        );
+        for u in r.wrong.iter().take(50) {
+            let _ = writeln!(
+                s,
+                "| {} | {} | {} | {} | {} | {} | {:.1} |",
+                u.set,
+                u.line,
+                u.unit,
+                u.label,
+                u.fixed_verdict,
+                u.fixed_score.map_or("–".into(), |v| v.to_string()),
+                u.margin_lsb
+            );
+        }
+        if r.wrong.len() > 50 {
+            let _ = writeln!(
+                s,
+                "\n{} more in audit.json and in `--units`.",
+                r.wrong.len() - 50
+            );
+        }
     }
     let _ = writeln!(
         s,

@@ -192,6 +192,7 @@ fn bound_is_attained_on_a_constructed_worst_case() {
         plain_min_margin: None,
         optimised_min_margin: None,
         moves: 0,
+        recheck_band: 0.0,
     };
     let b = error_bound(&q);
     let acc = model.classify(&[9]).unwrap().score as f64;
@@ -271,13 +272,13 @@ fn tiny_margin_fails_at_8_bits_passes_at_16_and_the_sweep_recommends_16() {
             },
         )
         .unwrap();
-        audit(&q, &fm, &ds, None, &[], cfg)
+        audit(&q, &fm, &ds, &[], &[], cfg)
     };
     assert!(!at(8).passed, "8-bit weights must fail");
     assert!(!at(12).passed, "12-bit weights must fail");
     let r16 = at(16);
     assert!(r16.passed, "16-bit weights must pass: {:?}", r16.reasons);
-    let (rows, best) = sweep(&fm, &ds, None, QuantConfig::default(), cfg).unwrap();
+    let (rows, best) = sweep(&fm, &ds, &[], QuantConfig::default(), cfg).unwrap();
     let best = &rows[best.expect("some format passes")];
     assert_eq!((best.weight_bits, best.input_bits), (16, 16));
 }
@@ -293,7 +294,7 @@ fn audit_mark_survives_packing() {
         shared_model::blob::decode(&bytes).unwrap().model().audit,
         AuditMark::Overridden
     );
-    let r = audit(&q, &fm, &ds, None, &[], AuditConfig::default());
+    let r = audit(&q, &fm, &ds, &[], &[], AuditConfig::default());
     assert!(r.passed && r.guaranteed);
     assert_eq!(r.flips.len(), 0);
     // Margins reported against the kernel's own scores.

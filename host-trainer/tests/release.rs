@@ -1,0 +1,179 @@
+//! The release audit's gates, on the demo's logs: decisions are held against the labels,
+//! declared noise gates, and the suggested RECHECK band passes the gate it was made for.
+//! (The demo data is synthetic; these check the gates' rules, not any product.)
+
+use std::path::Path;
+
+use host_trainer::ingest::LogOptions;
+use host_trainer::ingest::dataset::Dataset;
+use host_trainer::release::audit::{self, Apply, AuditConfig, AuditReport, Limit};
+use host_trainer::release::quantise::QuantConfig;
+use host_trainer::train::float_model::FloatModel;
+use host_trainer::workflow;
+
+/// The demo's model and logs, written into `dir`.
+fn demo(dir: &Path) -> (FloatModel, Dataset, Dataset) {
+    host_trainer::demo::run(&dir.join("d"), false).unwrap();
+    let fm = FloatModel::read(&dir.join("d/model.json")).unwrap();
+    let opts = LogOptions::default();
+    let train = workflow::load_for_model(&dir.join("d/train-synthetic.csv"), &opts, &fm).unwrap();
+    let holdout =
+        workflow::load_for_model(&dir.join("d/holdout-synthetic.csv"), &opts, &fm).unwrap();
+    (fm, train, holdout)
+}
+
+fn noise(fm: &FloatModel) -> Vec<Option<f64>> {
+    fm.channels.iter().map(|c| c.noise).collect()
+}
+
+fn gate<'a>(r: &'a AuditReport, gate: &str, log: &str) -> &'a audit::Gate {
+    r.gates
+        .iter()
+        .find(|g| g.gate == gate && g.log == log)
+        .unwrap_or_else(|| panic!("no gate {gate} on {log}: {:?}", r.gates))
+}
+
+#[test]
+fn a_threshold_that_passes_nogo_units_fails_the_false_go_gate() {
+    let dir = tempfile::tempdir().unwrap();
+    let (mut fm, train, holdout) = demo(dir.path());
+    // Every unit scores above this threshold: the fixed model says GO to all of them, which
+    // agrees with the float model (no flip) but not with the labels.
+    fm.threshold = -1e308;
+    let others = [("holdout", &holdout)];
+    let (_, r) = audit::release(
+        &fm,
+        &train,
+        &others,
+        QuantConfig::default(),
+        &[],
+        AuditConfig::default(),
+    )
+    .unwrap();
+    assert!(!r.passed);
+    let nogo = train.labels.iter().filter(|&&l| l < 0).count();
+    let g = gate(&r, "false GO", "train");
+    assert!(!g.passed);
+    assert_eq!(g.value, format!("{nogo} of {}", train.len()));
+    assert_eq!(r.sets[0].false_go, nogo);
+    assert!(
+        r.reasons.iter().any(|x| x.contains("false GO")),
+        "{:?}",
+        r.reasons
+    );
+    // The units behind it are listed, in log order, each a NO-GO the device passes.
+    assert!(!r.wrong.is_empty());
+    assert!(
+        r.wrong
+            .iter()
+            .all(|u| u.label == "NO-GO" && u.fixed_verdict == "GO")
+    );
+    assert!(
+        r.wrong
+            .windows(2)
+            .all(|w| w[0].set != w[1].set || w[0].line < w[1].line)
+    );
+    // A cap that allows them lets that gate pass (and only that one changes).
+    let lax = AuditConfig {
+        max_false_go: Limit::Rate(1.0),
+        ..AuditConfig::default()
+    };
+    let (_, r2) = audit::release(&fm, &train, &others, QuantConfig::default(), &[], lax).unwrap();
+    assert!(gate(&r2, "false GO", "train").passed);
+}
+
+#[test]
+fn declared_noise_gates_and_the_suggested_band_passes_its_own_gate() {
+    let dir = tempfile::tempdir().unwrap();
+    let (fm, train, holdout) = demo(dir.path());
+    let others = [("holdout", &holdout)];
+    let n = noise(&fm);
+    let cfg = AuditConfig::default();
+    let qc = QuantConfig::default();
+    // Without a band: units whose GO/NO-GO the noise could swap fail the noise gate.
+    let (_, r0) = audit::release(&fm, &train, &others, qc, &n, cfg).unwrap();
+    let t = r0.tolerance.as_ref().expect("the demo declares noise");
+    let unsafe0: usize = r0.sets.iter().map(|s| s.noise_unsafe).sum();
+    assert!(unsafe0 > 0);
+    assert!(!gate(&r0, "noise", "train").passed);
+    assert!(!r0.passed);
+    // Without the noise gate the same audit passes: the gate is what failed it.
+    let off = AuditConfig {
+        noise_gate: false,
+        ..cfg
+    };
+    assert!(
+        audit::release(&fm, &train, &others, qc, &n, off)
+            .unwrap()
+            .1
+            .passed
+    );
+    // The suggested band, applied once by hand, passes the noise gate on the same data, and
+    // the units it catches are RECHECKs, not errors.
+    let banded = QuantConfig {
+        recheck_band: t.suggested_band,
+        ..qc
+    };
+    let (_, r1) = audit::release(&fm, &train, &others, banded, &n, cfg).unwrap();
+    for log in ["train", "holdout"] {
+        assert!(gate(&r1, "noise", log).passed, "{:?}", r1.gates);
+        assert!(gate(&r1, "false GO", log).passed && gate(&r1, "false NO-GO", log).passed);
+    }
+    let rechecks: usize = r1.sets.iter().map(|s| s.recheck).sum();
+    assert!(
+        rechecks >= unsafe0,
+        "{rechecks} RECHECKs for {unsafe0} units at risk"
+    );
+    assert!(r1.passed, "{:?}", r1.reasons);
+    // `--apply-suggested-band` does the same and says so.
+    let done = audit::release_applying(
+        &fm,
+        &train,
+        &others,
+        qc,
+        &n,
+        cfg,
+        Apply {
+            suggested_band: true,
+            recommended_format: false,
+        },
+    )
+    .unwrap();
+    assert!(done.report.passed, "{:?}", done.report.reasons);
+    assert!(done.qc.recheck_band >= t.suggested_band);
+    assert!(done.report.applied.iter().any(|a| a.contains("RECHECK")));
+}
+
+#[test]
+fn a_recheck_is_neither_right_nor_wrong_but_is_capped() {
+    let dir = tempfile::tempdir().unwrap();
+    let (fm, train, _) = demo(dir.path());
+    // A band as wide as the scores: every unit is sent to retest.
+    let wide = QuantConfig {
+        recheck_band: 1e3,
+        ..QuantConfig::default()
+    };
+    let (_, r) = audit::release(&fm, &train, &[], wide, &[], AuditConfig::default()).unwrap();
+    let s = &r.sets[0];
+    assert_eq!(s.recheck, train.len());
+    assert_eq!((s.false_go, s.false_nogo, s.flips), (0, 0, 0));
+    assert!(!gate(&r, "RECHECK", "train").passed);
+    let lax = AuditConfig {
+        max_recheck: Limit::Rate(1.0),
+        ..AuditConfig::default()
+    };
+    let (_, r) = audit::release(&fm, &train, &[], wide, &[], lax).unwrap();
+    assert!(gate(&r, "RECHECK", "train").passed);
+}
+
+#[test]
+fn limits_parse_counts_and_rates() {
+    assert_eq!("0".parse::<Limit>(), Ok(Limit::Count(0)));
+    assert_eq!("12".parse::<Limit>(), Ok(Limit::Count(12)));
+    assert_eq!("0.5%".parse::<Limit>(), Ok(Limit::Rate(0.005)));
+    for bad in ["-1", "x", "150%", "1.5", "%"] {
+        assert!(bad.parse::<Limit>().is_err(), "{bad}");
+    }
+    // 1 % of 200 units is 2.
+    assert!(Limit::Rate(0.01).allows(2, 200) && !Limit::Rate(0.01).allows(3, 200));
+}
