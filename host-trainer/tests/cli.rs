@@ -574,3 +574,176 @@ fn validation_logs_are_audited_and_gated_each_on_its_own() {
     exits(&o, 2);
     assert!(String::from_utf8_lossy(&o.stderr).contains("not a count or a rate"));
 }
+
+/// The demo's holdout log with two readings pushed far outside their channel's range: unit 0
+/// (GO) on the third channel, unit 2 (NO-GO) on the first.
+fn holdout_with_faults(d: &Path) -> PathBuf {
+    let text = std::fs::read_to_string(d.join("demo/holdout-synthetic.csv")).unwrap();
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    for (row, col) in [(1, 4), (3, 2)] {
+        let mut cells: Vec<&str> = lines[row].split(',').collect();
+        cells[col] = "1e9";
+        lines[row] = cells.join(",");
+    }
+    assert!(lines[1].ends_with(",GO") && lines[3].ends_with(",NO-GO"));
+    write(d, "holdout-fault.csv", (lines.join("\n") + "\n").as_bytes())
+}
+
+#[test]
+fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    holdout_with_faults(d);
+    let units = std::fs::read_to_string(d.join("demo/holdout-synthetic.csv"))
+        .unwrap()
+        .lines()
+        .count()
+        - 1;
+    // Replay: the device's FAULT line at each faulted index, every other line as before.
+    let good = linegate(
+        &[
+            "replay",
+            "--blob",
+            "demo/model.lgb",
+            "--model",
+            "demo/model.json",
+            "demo/holdout-synthetic.csv",
+        ],
+        d,
+    );
+    let bad = linegate(
+        &[
+            "replay",
+            "--blob",
+            "demo/model.lgb",
+            "--model",
+            "demo/model.json",
+            "holdout-fault.csv",
+        ],
+        d,
+    );
+    exits(&bad, 0);
+    let (good, bad) = (
+        String::from_utf8_lossy(&good.stdout),
+        String::from_utf8_lossy(&bad.stdout),
+    );
+    let (g, b): (Vec<&str>, Vec<&str>) = (good.lines().collect(), bad.lines().collect());
+    assert_eq!(b.len(), units + 1);
+    assert_eq!(b[1], "0 FAULT ch2");
+    assert_eq!(b[3], "2 FAULT ch0");
+    for k in (0..b.len()).filter(|k| ![1, 3].contains(k)) {
+        assert_eq!(g[k], b[k]);
+    }
+    // Holdout evaluation: the faulted GO unit is a false NO-GO, the faulted NO-GO unit a
+    // correct NO-GO.
+    let o = linegate(
+        &[
+            "train",
+            "demo/train-synthetic.csv",
+            "--sheet",
+            "demo/channels.toml",
+            "--holdout",
+            "holdout-fault.csv",
+            "--folds",
+            "0",
+            "-o",
+            "m.json",
+            "--json",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["holdout"]["faults"], 2);
+    assert_eq!(v["holdout"]["false_nogo"], 1);
+    assert_eq!(v["holdout"]["units"], units);
+    // Audit: both counted as FAULT, the GO one gated as a false NO-GO and listed by line.
+    let o = linegate(
+        &[
+            "audit",
+            "--model",
+            "demo/model.json",
+            "--train",
+            "demo/train-synthetic.csv",
+            "--holdout",
+            "holdout-fault.csv",
+            "--apply-suggested-band",
+            "--max-false-nogo",
+            "0",
+            "--json",
+        ],
+        d,
+    );
+    exits(&o, 1);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let h = &v["audit"]["sets"][1];
+    assert_eq!(
+        (
+            h["units"].as_u64(),
+            h["faults"].as_u64(),
+            h["false_nogo"].as_u64()
+        ),
+        (Some(units as u64), Some(2), Some(1))
+    );
+    let wrong = v["audit"]["wrong"].as_array().unwrap();
+    assert!(
+        wrong
+            .iter()
+            .any(|u| u["line"] == 2 && u["fixed_verdict"] == "FAULT"),
+        "{wrong:?}"
+    );
+    assert!(String::from_utf8_lossy(&o.stderr).contains("holdout: 1 of"));
+}
+
+#[test]
+fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    let text = std::fs::read_to_string(d.join("demo/holdout-synthetic.csv")).unwrap();
+    let mut lines: Vec<String> = text.lines().map(String::from).collect();
+    let mut cells: Vec<&str> = lines[5].split(',').collect();
+    cells[3] = "n/a";
+    lines[5] = cells.join(",");
+    write(d, "holdout-bad.csv", (lines.join("\n") + "\n").as_bytes());
+    let o = linegate(
+        &[
+            "replay",
+            "--blob",
+            "demo/model.lgb",
+            "--model",
+            "demo/model.json",
+            "holdout-bad.csv",
+            "--skip-bad-rows",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("holdout-bad.csv: skipped 1 unreadable rows (1 not a number)"),
+        "{err}"
+    );
+    assert!(err.contains("line 6"), "{err}");
+    let o = linegate(
+        &[
+            "audit",
+            "--model",
+            "demo/model.json",
+            "--train",
+            "demo/train-synthetic.csv",
+            "--holdout",
+            "holdout-bad.csv",
+            "--skip-bad-rows",
+            "--apply-suggested-band",
+            "--json",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    assert!(String::from_utf8_lossy(&o.stderr).contains("skipped 1 unreadable rows"));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["audit"]["sets"][1]["skipped_rows"], 1);
+    assert_eq!(v["audit"]["sets"][1]["units"], lines.len() - 2);
+}

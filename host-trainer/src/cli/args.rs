@@ -242,6 +242,12 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
         max_recheck: r.max_recheck,
         noise_gate: !r.no_noise_gate,
     };
+    if !quiet {
+        super::warn_skipped(&r.train, &train.skipped);
+        for (_, ds) in &others {
+            super::warn_skipped(&ds.path, &ds.skipped);
+        }
+    }
     Ok(Release {
         fm,
         train,

@@ -115,6 +115,25 @@ impl std::fmt::Display for CheckFailed {
 
 impl std::error::Error for CheckFailed {}
 
+/// Says on stderr how many rows of `path` were skipped as unreadable (`--skip-bad-rows`),
+/// by reason: a skipped row is a unit the report does not show, so it is never silent.
+fn warn_skipped(path: &std::path::Path, skipped: &host_trainer::ingest::SkipReport) {
+    if skipped.total > 0 {
+        let reasons: Vec<String> = skipped
+            .by_reason
+            .iter()
+            .map(|(r, n)| format!("{n} {r}"))
+            .collect();
+        eprintln!(
+            "warning: {}: skipped {} unreadable rows ({}); first: {}",
+            path.display(),
+            skipped.total,
+            reasons.join(", "),
+            skipped.examples.first().map_or("", String::as_str)
+        );
+    }
+}
+
 /// Pretty JSON with a final line feed, as every `--json` prints.
 fn to_json<T: serde::Serialize>(v: &T) -> String {
     serde_json::to_string_pretty(v).unwrap_or_default() + "\n"

@@ -52,13 +52,27 @@ impl ReplayArgs {
         say_raw!("{}", replay::model_line(&m));
         let mut index = 0usize;
         let mut skipped = host_trainer::ingest::SkipReport::default();
-        host_trainer::ingest::stream_units(
+        // Lines are written in 64 KiB batches: one write per unit would be a system call
+        // per unit. A reader that goes away ends the process quietly, as `say!` does.
+        let mut out: Vec<u8> = Vec::with_capacity(1 << 16);
+        let flush = |out: &mut Vec<u8>| {
+            use std::io::Write as _;
+            if std::io::stdout().write_all(out).is_err() {
+                std::process::exit(141);
+            }
+            out.clear();
+        };
+        let streamed = host_trainer::ingest::stream_units(
             log,
             &log_args.options(quiet),
             &fm.channels,
             &mut skipped,
             |u| {
-                say!("{}", replay::line(index, &m, u.raw));
+                out.extend_from_slice(replay::line(index, &m, u.raw).as_bytes());
+                out.push(b'\n');
+                if out.len() >= 1 << 16 {
+                    flush(&mut out);
+                }
                 if let Some(t) = vec_text.as_mut() {
                     let row: Vec<String> = u.raw.iter().map(|r| r.to_string()).collect();
                     t.push_str(&row.join(" "));
@@ -67,7 +81,13 @@ impl ReplayArgs {
                 index += 1;
                 Ok(())
             },
-        )?;
+        );
+        // The lines before an error are the device's too: they go out before the error.
+        flush(&mut out);
+        streamed?;
+        if !quiet {
+            super::warn_skipped(log, &skipped);
+        }
         if let (Some(v), Some(text)) = (vectors, vec_text) {
             let mut set = OutputSet::default();
             set.add(v, text);

@@ -74,6 +74,9 @@ impl TrainArgs {
         } = self;
         let opts = log_args.options(quiet);
         let (ds, sheet) = workflow::load(log, &opts, sheet.as_deref())?;
+        if !quiet {
+            super::warn_skipped(log, &ds.skipped);
+        }
         let req = workflow::TrainRequest {
             trainer: *trainer,
             epochs: *epochs,
@@ -86,6 +89,9 @@ impl TrainArgs {
         let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req);
         if let Some(h) = holdout {
             let hd = workflow::load_for_model(h, &opts, &out.model)?;
+            if !quiet {
+                super::warn_skipped(h, &hd.skipped);
+            }
             out.evaluate_holdout(&hd);
         }
         let mut set = OutputSet::default();
@@ -125,10 +131,11 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
     }
     if let Some(h) = &o.holdout {
         say!(
-            "holdout: accuracy {:.4}, false GO {}, false NO-GO {}",
+            "holdout: accuracy {:.4}, false GO {}, false NO-GO {}, FAULT {} (readings outside their range: the device shows NO-GO)",
             h.accuracy(),
             h.false_go,
-            h.false_nogo
+            h.false_nogo,
+            h.faults
         );
     }
     if !o.cross_validation.is_empty() {

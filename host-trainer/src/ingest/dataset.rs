@@ -108,6 +108,15 @@ impl Dataset {
         }
     }
 
+    /// The first channel whose raw reading of unit `i` is outside its valid range: the
+    /// channel the device would report as a FAULT, or `None`.
+    pub fn fault(&self, i: usize) -> Option<usize> {
+        self.raw_row(i)
+            .iter()
+            .zip(&self.scales)
+            .position(|(&r, s)| r < s.raw_min || r > s.raw_max)
+    }
+
     /// Label of unit `i` as ±1.0.
     #[inline]
     pub fn y(&self, i: usize) -> f64 {

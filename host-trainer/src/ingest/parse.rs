@@ -16,8 +16,12 @@ pub(super) struct Parser<'a> {
     pub(super) opts: &'a LogOptions,
     pub(super) cols: &'a Columns,
     pub(super) delimiter: u8,
-    /// Convert to raw readings (and refuse out-of-range ones) while parsing.
+    /// Convert to raw readings while parsing.
     pub(super) scales: Option<&'a [ChannelScale]>,
+    /// Keep a reading outside its channel's range as the raw count the device would read
+    /// (the kernel then FAULTs the unit), instead of refusing the row. Set for a trained
+    /// model's scaling: the host must show every unit the device would see.
+    pub(super) keep_faults: bool,
     /// The one-pass reader for plain records, when every channel allows it.
     pub(super) fast: Option<fast::FastPlan>,
 }
@@ -119,7 +123,8 @@ impl Parser<'_> {
         }
     }
 
-    /// Converts parsed readings to raw integers; refuses a reading outside its channel's range.
+    /// Converts parsed readings to raw integers; a reading outside its channel's range is
+    /// refused, or kept as the device's raw count under `keep_faults`.
     pub(super) fn to_raw(
         &self,
         scales: &[ChannelScale],
@@ -128,6 +133,10 @@ impl Parser<'_> {
         line: u64,
     ) -> Result<(), InputError> {
         for (k, ((o, &v), s)) in out.iter_mut().zip(vals).zip(scales).enumerate() {
+            if self.keep_faults {
+                *o = s.to_raw(v).unwrap_or_else(|| s.raw_reading(v));
+                continue;
+            }
             *o = s.to_raw(v).ok_or_else(|| InputError::OutOfRange {
                 path: self.path.into(),
                 line,

@@ -137,6 +137,19 @@ impl ChannelScale {
         }
     }
 
+    /// The raw count a device reads for a physical value, in range or not: rounded as
+    /// [`to_raw`](Self::to_raw) rounds, saturated to the 32-bit raw word.
+    ///
+    /// ```
+    /// let s = host_trainer::ingest::scaling::ChannelScale::new("i", "mA", 0.0, 10.0, 0.5, 0.0).unwrap();
+    /// assert_eq!(s.to_raw(12.0), None);
+    /// assert_eq!(s.raw_reading(12.0), 24);
+    /// ```
+    pub fn raw_reading(&self, physical: f64) -> i32 {
+        // `as` saturates, and NaN cannot reach here (the reader refuses it as not finite).
+        ((physical - self.zero) / self.lsb).round() as i32
+    }
+
     /// The physical value of a raw reading.
     pub fn physical(&self, raw: i32) -> f64 {
         self.zero + f64::from(raw) * self.lsb

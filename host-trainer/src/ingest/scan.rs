@@ -90,6 +90,7 @@ pub(super) fn scan_blocks(
         cols: &cols,
         delimiter,
         scales,
+        keep_faults: model.is_some(),
         fast: fast::FastPlan::new(&cols, scales, delimiter, opts),
     };
     // Hands on the rows of parsed runs in file order. A row's error is skipped and counted

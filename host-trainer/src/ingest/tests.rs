@@ -123,6 +123,7 @@ fn both_paths(opts: &LogOptions, bytes: &[u8], plain: bool, raw: bool) -> (Parse
         cols: &cols,
         delimiter: b',',
         scales,
+        keep_faults: false,
         fast,
     };
     let (mut p, mut q) = (Parsed::default(), Parsed::default());

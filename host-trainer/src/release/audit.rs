@@ -222,6 +222,10 @@ pub struct SetSummary {
     pub name: String,
     /// Log path.
     pub path: String,
+    /// SHA-256 of the log, hex.
+    pub sha256: String,
+    /// Rows skipped as unreadable (`skip_bad_rows`): not units, so in no other count.
+    pub skipped_rows: usize,
     /// Units.
     pub units: usize,
     /// Units the float model gets right.
@@ -397,6 +401,8 @@ fn audit_set(
         s: SetSummary {
             name: name.into(),
             path: ds.path.display().to_string(),
+            sha256: ds.sha256.clone(),
+            skipped_rows: ds.skipped.total,
             ..Default::default()
         },
         float_min: f64::INFINITY,

@@ -60,12 +60,12 @@ pub fn markdown(
     }
     let _ = writeln!(
         s,
-        "\n## Decisions per log (device kernel against the labels)\n\n| log | units | false GO | false NO-GO | RECHECK | FAULT | float correct | fixed correct | flips | min fixed margin (LSB) | within bound |\n|---|---|---|---|---|---|---|---|---|---|---|"
+        "\n## Decisions per log (device kernel against the labels)\n\n| log | units | false GO | false NO-GO | RECHECK | FAULT | float correct | fixed correct | flips | min fixed margin (LSB) | within bound | rows skipped |\n|---|---|---|---|---|---|---|---|---|---|---|---|"
     );
     for t in &r.sets {
         let _ = writeln!(
             s,
-            "| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+            "| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
             t.name,
             t.units,
             t.false_go,
@@ -76,12 +76,13 @@ pub fn markdown(
             t.fixed_correct,
             t.flips,
             opt(t.min_margin_lsb),
-            t.within_bound
+            t.within_bound,
+            t.skipped_rows
         );
     }
     let _ = writeln!(
         s,
-        "\nFalse GO: a NO-GO unit the device passes. False NO-GO: a GO unit it turns away, a FAULT on a GO unit included (a FAULT on a NO-GO unit is a safe NO-GO). RECHECK: a retest, neither right nor wrong. Margins are measured from go_min − ½ (GO units) and nogo_max + ½ (NO-GO units), over units the device decides."
+        "\nFalse GO: a NO-GO unit the device passes. False NO-GO: a GO unit it turns away, a FAULT on a GO unit included (a FAULT on a NO-GO unit is a safe NO-GO). RECHECK: a retest, neither right nor wrong. Margins are measured from go_min − ½ (GO units) and nogo_max + ½ (NO-GO units), over units the device decides. Rows skipped as unreadable (`--skip-bad-rows`) are not units and appear in no other column."
     );
     let _ = writeln!(
         s,

@@ -107,8 +107,11 @@ pub struct Counts {
     pub correct: usize,
     /// NO-GO units the model passes.
     pub false_go: usize,
-    /// GO units the model fails.
+    /// GO units the model fails, FAULTs on GO units included.
     pub false_nogo: usize,
+    /// Units with a reading outside its channel's range: the device shows FAULT and NO-GO
+    /// (a false NO-GO for a GO unit, a correct NO-GO for a NO-GO unit).
+    pub faults: usize,
 }
 
 impl Counts {
@@ -126,6 +129,7 @@ impl Counts {
         self.correct += o.correct;
         self.false_go += o.false_go;
         self.false_nogo += o.false_nogo;
+        self.faults += o.faults;
     }
 }
 
@@ -133,8 +137,10 @@ impl Counts {
 pub fn evaluate(model: &Linear, threshold: f64, ds: &Dataset, idx: &[usize]) -> Counts {
     let mut c = Counts::default();
     for (s, &i) in model.scores(ds, idx).iter().zip(idx) {
-        let go = *s > threshold;
         c.units += 1;
+        let fault = ds.fault(i).is_some();
+        c.faults += usize::from(fault);
+        let go = !fault && *s > threshold;
         match (go, ds.labels[i] > 0) {
             (true, true) | (false, false) => c.correct += 1,
             (true, false) => c.false_go += 1,
