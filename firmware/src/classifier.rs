@@ -6,6 +6,7 @@ use shared_model::{CheckedModel, Decision, DecodeError, Fault, blob};
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct Classifier {
     model: CheckedModel,
+    blob_id: u32,
 }
 
 impl Classifier {
@@ -23,9 +24,10 @@ impl Classifier {
             needed: len,
             got: region.len(),
         })?;
-        Ok(Self {
-            model: blob::decode(bytes)?,
-        })
+        let model = blob::decode(bytes)?;
+        // decode proved the length, so the id is there; 0 is never reached.
+        let blob_id = blob::blob_id(bytes).unwrap_or(0);
+        Ok(Self { model, blob_id })
     }
 
     /// Classifies one reading per channel with the shared kernel.
@@ -44,6 +46,11 @@ impl Classifier {
     /// The model id recorded by the host, for logs.
     pub fn model_id(&self) -> [u8; 16] {
         self.model.model().model_id
+    }
+
+    /// The blob id (its CRC-32, see `shared_model::blob::blob_id`), for logs.
+    pub fn blob_id(&self) -> u32 {
+        self.blob_id
     }
 
     /// The validated model.

@@ -747,3 +747,91 @@ fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
     assert_eq!(v["audit"]["sets"][1]["skipped_rows"], 1);
     assert_eq!(v["audit"]["sets"][1]["units"], lines.len() - 2);
 }
+
+#[test]
+fn an_edited_model_file_is_refused_and_a_rewritten_blob_fails_inspect_against_the_report() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    // The threshold moved so every unit passes: the model file's digest no longer matches.
+    let text = std::fs::read_to_string(d.join("demo/model.json")).unwrap();
+    let edited = text.replace("\"threshold\": 0.0,", "\"threshold\": -1e308,");
+    assert_ne!(edited, text);
+    write(d, "edited.json", edited.as_bytes());
+    for cmd in ["audit", "pack"] {
+        let mut args = vec![
+            cmd,
+            "--model",
+            "edited.json",
+            "--train",
+            "demo/train-synthetic.csv",
+        ];
+        if cmd == "pack" {
+            args.extend(["-o", "x.lgb"]);
+        }
+        let o = linegate(&args, d);
+        exits(&o, 2);
+        assert!(
+            String::from_utf8_lossy(&o.stderr)
+                .contains("edited.json: the file was changed after it was written"),
+            "{}",
+            String::from_utf8_lossy(&o.stderr)
+        );
+        assert!(!d.join("x.lgb").exists());
+    }
+    // A blob whose thresholds were rewritten and whose CRC was recomputed decodes, but is
+    // not the audited blob.
+    let blob = std::fs::read(d.join("demo/model.lgb")).unwrap();
+    let mut m = shared_model::blob::decode(&blob).unwrap().model().clone();
+    m.nogo_max = i64::MIN;
+    m.go_min = i64::MIN + 1;
+    let forged = shared_model::CheckedModel::new(m).unwrap();
+    let mut buf = [0u8; shared_model::blob::MAX_BLOB_LEN];
+    let n = shared_model::blob::encode(&forged, &mut buf).unwrap();
+    write(d, "forged.lgb", &buf[..n]);
+    let o = linegate(&["inspect", "forged.lgb", "--report", "demo/audit.json"], d);
+    exits(&o, 1);
+    assert!(String::from_utf8_lossy(&o.stderr).contains("does not match audit report"));
+    // The audited blob matches its report, and names its blob id as the device does.
+    let o = linegate(
+        &[
+            "inspect",
+            "demo/model.lgb",
+            "--report",
+            "demo/audit.json",
+            "--model",
+            "demo/model.json",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.join("demo/audit.json")).unwrap()).unwrap();
+    let id = report["blob_id"].as_str().unwrap();
+    assert_eq!(id.len(), 8);
+    assert!(String::from_utf8_lossy(&o.stdout).contains(&format!("blob id: {id}")));
+    let replay = std::fs::read_to_string(d.join("demo/replay-holdout.txt")).unwrap();
+    assert!(replay.starts_with(&format!(
+        "# model {} blob {id}\n",
+        report["model_id"].as_str().unwrap()
+    )));
+    // Other word lengths give another blob, and another blob id.
+    let o = linegate(
+        &[
+            "pack",
+            "--model",
+            "demo/model.json",
+            "--train",
+            "demo/train-synthetic.csv",
+            "--weight-bits",
+            "16",
+            "--apply-suggested-band",
+            "-o",
+            "w16.lgb",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    let other = shared_model::blob::blob_id(&std::fs::read(d.join("w16.lgb")).unwrap()).unwrap();
+    assert_ne!(format!("{other:08x}"), id);
+}

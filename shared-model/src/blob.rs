@@ -27,6 +27,28 @@ use crate::model::{CheckedModel, FixedModel};
 pub const CRC32: crc::Crc<u32, crc::NoTable> =
     crc::Crc::<u32, crc::NoTable>::new(&crc::CRC_32_ISO_HDLC);
 
+/// The blob's id: the CRC-32 it stores (its last four bytes, little-endian), which the
+/// device prints beside the model id. One float model quantised at other word lengths or
+/// with another RECHECK band gives another blob and so another id. It tells blobs apart;
+/// like the CRC it is, it does not protect against a deliberate rewrite.
+///
+/// `None` if `blob` is shorter than a header and CRC.
+///
+/// ```
+/// use shared_model::{blob, CheckedModel, FixedModel};
+/// let m = CheckedModel::new(FixedModel::example_two_channel()).unwrap();
+/// let mut buf = [0u8; blob::MAX_BLOB_LEN];
+/// let n = blob::encode(&m, &mut buf).unwrap();
+/// let crc = blob::CRC32.checksum(&buf[..n - blob::CRC_LEN]);
+/// assert_eq!(blob::blob_id(&buf[..n]), Some(crc));
+/// ```
+pub fn blob_id(blob: &[u8]) -> Option<u32> {
+    if blob.len() < HEADER_LEN + CRC_LEN {
+        return None;
+    }
+    blob.last_chunk::<CRC_LEN>().map(|b| u32::from_le_bytes(*b))
+}
+
 /// Writes the blob for `model` into `out` and returns its length.
 ///
 /// # Errors

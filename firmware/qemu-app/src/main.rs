@@ -37,7 +37,7 @@ fn main() -> ! {
         for b in c.model_id() {
             hprint!("{:02x}", b);
         }
-        hprintln!();
+        hprintln!(" blob {:08x}", c.blob_id());
     }
     if let Err(e) = station.classifier() {
         let _ = station.step();

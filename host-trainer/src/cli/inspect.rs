@@ -77,7 +77,9 @@ fn inspect(
         say!("status: {}", ins.status);
         if let Some(id) = &ins.model_id {
             say!(
-                "model id: {id}\naudit: {}",
+                "model id: {id}; blob id: {}; SHA-256 {}\naudit: {}",
+                ins.blob_id.as_deref().unwrap_or("?"),
+                ins.sha256,
                 ins.audit.as_deref().unwrap_or("?")
             );
             say!(
@@ -139,22 +141,13 @@ fn inspect(
         let v: serde_json::Value =
             serde_json::from_str(&text).with_context(|| format!("{}: not JSON", p.display()))?;
         let r = v.get("audit").unwrap_or(&v);
-        let same_id = r.get("model_id").and_then(|x| x.as_str()) == Some(id.as_str());
-        let weights: Vec<i64> = m
-            .model()
-            .channels
-            .iter()
-            .map(|c| i64::from(c.weight))
-            .collect();
-        let rw: Option<Vec<i64>> = r
-            .get("weights")
-            .and_then(|w| serde_json::from_value(w.clone()).ok());
-        let same_model = rw.as_ref() == Some(&weights)
-            && r.get("bias").and_then(|b| b.as_i64()) == Some(m.model().bias);
-        if !(same_id && same_model) {
+        let recorded = r.get("blob_sha256").and_then(|x| x.as_str());
+        if recorded != Some(ins.sha256.as_str()) {
             bail!(CheckFailed(format!(
-                "blob does not match audit report {} (model id or integer weights differ)",
-                p.display()
+                "blob does not match audit report {}: the blob's SHA-256 is {}, the report records {} (a blob is released only as audited, byte for byte)",
+                p.display(),
+                ins.sha256,
+                recorded.unwrap_or("none")
             )));
         }
         if !quiet && !json {

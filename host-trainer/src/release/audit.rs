@@ -282,6 +282,13 @@ pub struct ChannelTolerance {
 pub struct AuditReport {
     /// Model id (hex).
     pub model_id: String,
+    /// The model file's content digest (SHA-256, hex; `content_sha256` in model.json).
+    pub model_sha256: String,
+    /// SHA-256 of the blob `pack` writes for this audit (marked passed, or overridden if
+    /// the audit failed): `inspect --report` compares a blob's bytes with it.
+    pub blob_sha256: String,
+    /// That blob's id (its CRC-32, eight hex digits), as the device prints it.
+    pub blob_id: String,
     /// Input word bits.
     pub input_bits: u8,
     /// Weight word bits.
@@ -676,10 +683,20 @@ pub fn audit(
     let tolerance = risk.map(|radius| tolerance(q, fm, noise, &sets, radius, units_at_risk));
     let gates = gates(&sets, cfg, risk.is_some(), min_all, guaranteed, bound.total);
     let reasons: Vec<String> = gates.iter().filter(|g| !g.passed).map(reason).collect();
-    let mut buf = [0u8; blob::MAX_BLOB_LEN];
-    let blob_bytes = blob::encode(&q.model, &mut buf).unwrap_or(0);
+    let passed = reasons.is_empty();
+    let packed = crate::release::pack::blob_bytes(&mark(
+        &q.model,
+        if passed {
+            shared_model::AuditMark::Passed
+        } else {
+            shared_model::AuditMark::Overridden
+        },
+    ));
     AuditReport {
         model_id: fm.model_id.clone(),
+        model_sha256: fm.content_digest(),
+        blob_sha256: crate::digest::sha256_hex(&packed),
+        blob_id: blob::blob_id(&packed).map_or(String::new(), |id| format!("{id:08x}")),
         input_bits: m.input_bits,
         weight_bits: m.weight_bits,
         weight_frac_bits: m.weight_frac_bits,
@@ -691,7 +708,7 @@ pub fn audit(
         nogo_max: m.nogo_max,
         go_min: m.go_min,
         scale: q.scale,
-        blob_bytes,
+        blob_bytes: packed.len(),
         sets,
         float_min_margin_lsb: float_min.is_finite().then_some(float_min),
         plain_min_margin_lsb: q.plain_min_margin,
@@ -707,7 +724,7 @@ pub fn audit(
         recheck_band: q.recheck_band,
         applied: Vec::new(),
         gates,
-        passed: reasons.is_empty(),
+        passed,
         reasons,
         fixed_margins,
         float_margins,

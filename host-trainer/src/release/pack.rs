@@ -26,6 +26,10 @@ pub struct Inspection {
     pub status: String,
     /// Model id, hex.
     pub model_id: Option<String>,
+    /// Blob id (its stored CRC-32, eight hex digits), as the device prints it.
+    pub blob_id: Option<String>,
+    /// SHA-256 of the blob's bytes, hex (what an audit report records of the blob).
+    pub sha256: String,
     /// Audit mark.
     pub audit: Option<String>,
     /// Input word bits.
@@ -71,6 +75,8 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) 
             Err(e) => e.to_string(),
         },
         model_id: None,
+        blob_id: None,
+        sha256: crate::digest::sha256_hex(bytes),
         audit: None,
         input_bits: None,
         weight_bits: None,
@@ -84,6 +90,7 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) 
     if let Ok(m) = &decoded {
         let m = m.model();
         ins.model_id = Some(crate::digest::lower_hex(&m.model_id));
+        ins.blob_id = blob::blob_id(bytes).map(|id| format!("{id:08x}"));
         ins.audit = Some(format!("{:?}", m.audit));
         ins.input_bits = Some(m.input_bits);
         ins.weight_bits = Some(m.weight_bits);

@@ -1,6 +1,7 @@
 //! Replay: the shared kernel over a log, printing exactly the lines the device prints.
 //!
-//! First line `# model <model id>`, then one line per unit in log order (0-based index):
+//! First line `# model <model id> blob <blob id>` (the blob id is the blob's CRC-32 in
+//! eight hex digits), then one line per unit in log order (0-based index):
 //! `<index> <GO|NO-GO|RECHECK> <score>` or `<index> FAULT ch<channel>`.
 
 use shared_model::{CheckedModel, Fault};
@@ -16,17 +17,23 @@ pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
     }
 }
 
-/// The first line, `# model <id>`, as the device prints it.
-pub fn model_line(model: &CheckedModel) -> String {
+/// The first line, `# model <id> blob <blob id>`, as the device prints it; `blob_id` is
+/// [`shared_model::blob::blob_id`] of the blob the model came from.
+pub fn model_line(model: &CheckedModel, blob_id: u32) -> String {
     format!(
-        "# model {}\n",
+        "# model {} blob {blob_id:08x}\n",
         crate::digest::lower_hex(&model.model().model_id)
     )
 }
 
+/// The blob id of a model's own blob (as `pack` writes it for that model).
+pub fn own_blob_id(model: &CheckedModel) -> u32 {
+    shared_model::blob::blob_id(&crate::release::pack::blob_bytes(model)).unwrap_or(0)
+}
+
 /// The model line, then every unit's line (trailing newline included).
 pub fn replay(model: &CheckedModel, ds: &Dataset) -> String {
-    let mut out = model_line(model);
+    let mut out = model_line(model, own_blob_id(model));
     for i in 0..ds.len() {
         out.push_str(&line(i, model, ds.raw_row(i)));
         out.push('\n');
@@ -37,7 +44,7 @@ pub fn replay(model: &CheckedModel, ds: &Dataset) -> String {
 /// The raw test vectors for the device build: the model line of the model they were prepared
 /// for, then one unit per line, readings separated by spaces.
 pub fn vectors(model: &CheckedModel, ds: &Dataset) -> String {
-    let mut out = model_line(model);
+    let mut out = model_line(model, own_blob_id(model));
     for i in 0..ds.len() {
         let row: Vec<String> = ds.raw_row(i).iter().map(|r| r.to_string()).collect();
         out.push_str(&row.join(" "));

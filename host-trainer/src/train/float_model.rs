@@ -29,8 +29,8 @@ use crate::train::linear::{Linear, ThresholdShift};
 
 /// Format tag in every float model file.
 pub const FORMAT: &str = "linegate-float-model";
-/// Layout version of the float model file.
-pub const FORMAT_VERSION: u32 = 1;
+/// Layout version of the float model file (2: the file carries a digest of its content).
+pub const FORMAT_VERSION: u32 = 2;
 
 /// A file that went into a model.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -106,6 +106,10 @@ pub struct FloatModel {
     pub threshold: f64,
     /// Training figures.
     pub summary: TrainingSummary,
+    /// SHA-256 (hex) of this file's JSON with this field empty: a file edited after
+    /// training is refused on load.
+    #[serde(default)]
+    pub content_sha256: String,
 }
 
 impl FloatModel {
@@ -130,12 +134,15 @@ impl FloatModel {
             bias: linear.b / scale,
             threshold: threshold / scale,
             summary,
+            content_sha256: String::new(),
         };
         m.model_id = m.derive_id();
         m
     }
 
-    /// Hash of the training inputs and settings: the same inputs give the same id.
+    /// Hash of the training inputs and settings and of everything that decides a verdict
+    /// (scaling, weights, bias, threshold): the same inputs give the same id, and a model
+    /// that decides differently has another.
     fn derive_id(&self) -> String {
         let mut h = Sha256::new();
         h.update(FORMAT.as_bytes());
@@ -152,6 +159,16 @@ impl FloatModel {
         for c in &self.channels {
             h.update(c.name.as_bytes());
             h.update([0]);
+            for v in [c.min, c.max, c.lsb, c.zero] {
+                h.update(v.to_le_bytes());
+            }
+            for v in [c.raw_min, c.raw_max, c.offset] {
+                h.update(v.to_le_bytes());
+            }
+            h.update(c.half.to_le_bytes());
+        }
+        for v in self.weights.iter().chain([&self.bias, &self.threshold]) {
+            h.update(v.to_le_bytes());
         }
         lower_hex(&h.finalize()[..16])
     }
@@ -177,33 +194,98 @@ impl FloatModel {
         }
     }
 
-    /// Serialises to pretty JSON with a trailing newline (deterministic).
+    /// The digest [`content_sha256`](Self::content_sha256) holds: SHA-256 of the pretty JSON
+    /// with that field empty.
+    pub fn content_digest(&self) -> String {
+        let mut blank = self.clone();
+        blank.content_sha256.clear();
+        crate::digest::sha256_hex(
+            serde_json::to_string_pretty(&blank)
+                .unwrap_or_default()
+                .as_bytes(),
+        )
+    }
+
+    /// Serialises to pretty JSON with a trailing newline (deterministic), with its content
+    /// digest filled in.
     pub fn to_json(&self) -> String {
-        let mut s = serde_json::to_string_pretty(self).unwrap_or_default();
+        let mut m = self.clone();
+        m.content_sha256 = self.content_digest();
+        let mut s = serde_json::to_string_pretty(&m).unwrap_or_default();
         s.push('\n');
         s
     }
 
-    /// Reads a float model file.
+    /// Reads a float model file and checks it: format, content digest, and every field a
+    /// later step divides by or relies on.
     ///
     /// # Errors
-    /// I/O, JSON, or a format tag/version this build does not read.
+    /// I/O, JSON, a format tag/version this build does not read, a file edited after it
+    /// was written, or a field out of its domain.
     pub fn read(path: &Path) -> Result<Self, InputError> {
         let text = std::fs::read_to_string(path).map_err(|e| InputError::io(path, e))?;
         let fmt = |message: String| InputError::Format {
             path: path.into(),
             message,
         };
-        let m: Self = serde_json::from_str(&text)
+        let probe: serde_json::Value = serde_json::from_str(&text)
             .map_err(|e| fmt(format!("not a Linegate float model: {e}")))?;
-        if m.format != FORMAT || m.format_version != FORMAT_VERSION {
+        let (tag, version) = (probe.get("format"), probe.get("format_version"));
+        if tag.and_then(|t| t.as_str()) != Some(FORMAT)
+            || version.and_then(|v| v.as_u64()) != Some(u64::from(FORMAT_VERSION))
+        {
             return Err(fmt(format!(
-                "format '{}' version {} is not readable by this build (reads '{FORMAT}' version {FORMAT_VERSION})",
-                m.format, m.format_version
+                "not a Linegate float model this build reads: format {} version {} (reads '{FORMAT}' version {FORMAT_VERSION}; retrain to write it)",
+                tag.map_or("none".into(), |t| t.to_string()),
+                version.map_or("none".into(), |v| v.to_string())
             )));
+        }
+        let m: Self = serde_json::from_value(probe)
+            .map_err(|e| fmt(format!("not a Linegate float model: {e}")))?;
+        if m.content_sha256 != m.content_digest() {
+            return Err(fmt(
+                "the file was changed after it was written (its content digest does not match); retrain to make a new model rather than editing it".into(),
+            ));
+        }
+        if m.model_id != m.derive_id() {
+            return Err(fmt(
+                "the model id does not match the model's content; retrain to make a new model"
+                    .into(),
+            ));
         }
         if m.weights.len() != m.channels.len() || m.channels.is_empty() {
             return Err(fmt("weights and channels disagree in number".into()));
+        }
+        if !(m.weights.iter().all(|w| w.is_finite())
+            && m.bias.is_finite()
+            && m.threshold.is_finite())
+        {
+            return Err(fmt(
+                "weights, bias and threshold must be finite numbers".into()
+            ));
+        }
+        if m.weights.iter().all(|&w| w == 0.0) {
+            return Err(fmt(
+                "every weight is zero: the model has no direction to decide by".into(),
+            ));
+        }
+        for c in &m.channels {
+            let fresh = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)
+                .map_err(|e| fmt(format!("channel '{}': {e}", c.name)))?;
+            if (fresh.raw_min, fresh.raw_max, fresh.offset, fresh.half)
+                != (c.raw_min, c.raw_max, c.offset, c.half)
+            {
+                return Err(fmt(format!(
+                    "channel '{}': raw range, offset or half do not follow from min, max, lsb and zero",
+                    c.name
+                )));
+            }
+            if c.noise.is_some_and(|n| !(n.is_finite() && n >= 0.0)) {
+                return Err(fmt(format!(
+                    "channel '{}': noise must be a non-negative number",
+                    c.name
+                )));
+            }
         }
         Ok(m)
     }
