@@ -290,7 +290,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         folds: 5,
         progress: false,
     };
-    let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req);
+    let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;
     let mut holdout_ds = workflow::load_for_model(&paths[2], &opts, &train.model)?;
     holdout_ds.path = out.join(logs[2].0);
     train.evaluate_holdout(&holdout_ds);

@@ -173,6 +173,16 @@ pub enum InputError {
         /// The only class.
         class: &'static str,
     },
+    /// Training ended without a direction to decide by (every weight zero, or not finite).
+    #[error(
+        "{path}: training found no separating direction ({detail}); no model written. The classes overlap too much for this trainer: run `linegate check` to see the units in conflict, or try --trainer pocket or a smaller --c"
+    )]
+    NoDirection {
+        /// The training log.
+        path: PathBuf,
+        /// What the trainer produced.
+        detail: String,
+    },
     /// A channel never changes.
     #[error(
         "{path}: channel '{column}' has zero spread (every unit reads {value}); drop it with --ignore {column} or declare its range in a channel sheet"

@@ -106,7 +106,15 @@ impl TrainOutcome {
 }
 
 /// Trains a float model on `ds`.
-pub fn train_model(ds: &Dataset, sheet: Option<&InputFile>, req: &TrainRequest) -> TrainOutcome {
+///
+/// # Errors
+/// [`InputError::NoDirection`] when the trainer ends with every weight zero or a value
+/// that is not finite: such a model decides nothing, and is never written.
+pub fn train_model(
+    ds: &Dataset,
+    sheet: Option<&InputFile>,
+    req: &TrainRequest,
+) -> Result<TrainOutcome, InputError> {
     let idx = ds.all();
     let report = check(ds, &idx, req.epochs, req.seed);
     let cfg = TrainConfig {
@@ -116,6 +124,20 @@ pub fn train_model(ds: &Dataset, sheet: Option<&InputFile>, req: &TrainRequest) 
         separable: report.separable,
     };
     let t = train(ds, &idx, req.trainer, cfg);
+    let finite = t.model.w.iter().all(|w| w.is_finite()) && t.model.b.is_finite();
+    if !finite || t.model.w.iter().all(|&w| w == 0.0) {
+        return Err(InputError::NoDirection {
+            path: ds.path.clone(),
+            detail: if finite {
+                format!("{} ended with every weight zero", req.trainer.name())
+            } else {
+                format!(
+                    "{} ended with weights that are not finite numbers",
+                    req.trainer.name()
+                )
+            },
+        });
+    }
     let shift = req
         .max_false_go
         .map(|n| threshold_for_false_go(&t.model, ds, &idx, n));
@@ -151,13 +173,13 @@ pub fn train_model(ds: &Dataset, sheet: Option<&InputFile>, req: &TrainRequest) 
     } else {
         Vec::new()
     };
-    TrainOutcome {
+    Ok(TrainOutcome {
         model,
         check: report,
         training,
         holdout: None,
         cross_validation,
-    }
+    })
 }
 
 fn cross_validate_with_bar(ds: &Dataset, req: &TrainRequest, cfg: TrainConfig) -> Vec<EvalRow> {

@@ -181,6 +181,8 @@ fn check_exits_1_on_xor_and_names_the_conflicting_units() {
     for u in ["P1", "P2", "N1", "N2"] {
         assert!(out.contains(u), "{u} missing from: {out}");
     }
+    // The Novikoff figures are missing, and check says why.
+    assert!(out.contains("Novikoff: not separable: the Novikoff bound does not apply"), "{out}");
 }
 
 /// A log whose two classes sit 2e-4 of the range apart: 8-bit weights cannot keep that margin.
@@ -834,4 +836,24 @@ fn an_edited_model_file_is_refused_and_a_rewritten_blob_fails_inspect_against_th
     exits(&o, 0);
     let other = shared_model::blob::blob_id(&std::fs::read(d.join("w16.lgb")).unwrap()).unwrap();
     assert_ne!(format!("{other:08x}"), id);
+}
+
+#[test]
+fn training_that_finds_no_direction_is_refused_and_writes_nothing() {
+    // XOR: the soft margin's best answer at the default C is w = 0, which decides nothing.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write(
+        d,
+        "xor.csv",
+        b"unit,a,b,label\nP1,0,0,GO\nP2,1,1,GO\nN1,0,1,NO-GO\nN2,1,0,NO-GO\n",
+    );
+    let o = linegate(&["train", "xor.csv", "-o", "m.json", "--folds", "0"], d);
+    exits(&o, 2);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("xor.csv: training found no separating direction"),
+        "{err}"
+    );
+    assert!(!d.join("m.json").exists());
 }

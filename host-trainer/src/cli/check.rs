@@ -107,6 +107,9 @@ fn print_check(
             r.perceptron_converged
         ),
     }
+    if let Some(n) = &r.novikoff_note {
+        say!("Novikoff: {n}");
+    }
     if !r.conflict.is_empty() {
         say!("units no hyperplane can split (their convex hulls meet; weights λ):");
         for u in &r.conflict {

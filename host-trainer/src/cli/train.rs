@@ -86,7 +86,7 @@ impl TrainArgs {
             folds: *folds,
             progress: !quiet && std::io::stderr().is_terminal(),
         };
-        let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req);
+        let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)?;
         if let Some(h) = holdout {
             let hd = workflow::load_for_model(h, &opts, &out.model)?;
             if !quiet {

@@ -57,6 +57,11 @@ pub struct ThresholdShift {
 }
 
 /// Raises the threshold so at most `max_false_go` NO-GO units of `idx` score above it.
+///
+/// The threshold is put halfway between the highest NO-GO score that must stay NO-GO and
+/// the next higher score of any unit, not on that score itself: a unit exactly on the
+/// threshold is one rounding away from passing, in float (scores computed another way
+/// differ in the last bit) and in fixed point.
 pub fn threshold_for_false_go(
     model: &Linear,
     ds: &Dataset,
@@ -71,11 +76,24 @@ pub fn threshold_for_false_go(
         .map(|(s, _)| *s)
         .collect();
     nogo.sort_by(|a, b| b.total_cmp(a));
-    let threshold = nogo
-        .get(max_false_go)
-        .copied()
-        .unwrap_or(f64::NEG_INFINITY)
-        .max(0.0);
+    let threshold = match nogo.get(max_false_go).copied() {
+        // Fewer NO-GO units than allowed to pass, or the one to stop is already well
+        // below 0: the threshold stays at 0.
+        None => 0.0,
+        Some(s) if s < 0.0 => 0.0,
+        Some(s) => {
+            let next = scores
+                .iter()
+                .copied()
+                .filter(|&x| x > s)
+                .fold(f64::INFINITY, f64::min);
+            if next.is_finite() {
+                s + (next - s) / 2.0
+            } else {
+                s + s.abs().max(1.0) * 1e-9
+            }
+        }
+    };
     let false_go = nogo.iter().filter(|&&s| s > threshold).count();
     let go_lost = scores
         .iter()
@@ -104,14 +122,16 @@ mod tests {
             w: vec![1.0],
             b: 0.0,
         };
+        // One may pass: halfway between 0.1 (stays NO-GO) and 0.3, the next score up.
         let t = threshold_for_false_go(&m, &ds, &ds.all(), 1);
         assert!(
-            (t.threshold - 0.1).abs() < 1e-6 && t.false_go == 1 && t.go_lost == 0,
+            (t.threshold - 0.2).abs() < 1e-6 && t.false_go == 1 && t.go_lost == 0,
             "{t:?}"
         );
+        // None may pass: halfway between 0.3 and 0.5.
         let t = threshold_for_false_go(&m, &ds, &ds.all(), 0);
         assert!(
-            (t.threshold - 0.3).abs() < 1e-6 && t.false_go == 0 && t.go_lost == 0,
+            (t.threshold - 0.4).abs() < 1e-6 && t.false_go == 0 && t.go_lost == 0,
             "{t:?}"
         );
     }

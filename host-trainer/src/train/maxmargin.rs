@@ -329,6 +329,23 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
 ///
 /// Returns (γ, separator over (x, 1) with ‖w‖ = 1).
 pub fn homogeneous_margin(ds: &Dataset, idx: &[usize], radius: f64) -> Option<(f64, Vec<f64>)> {
+    let b = homogeneous_bounds(ds, idx, radius)?;
+    (b.upper - b.lower <= 1e-9 * b.upper).then_some((b.upper, b.separator))
+}
+
+/// What the solver proved of the perceptron theorem's margin γ: `lower ≤ γ ≤ upper`.
+pub struct MarginBounds {
+    /// The worst unit's value under `separator`: a margin γ surely reaches.
+    pub lower: f64,
+    /// ‖x‖ of the nearest hull point found: γ is at most this.
+    pub upper: f64,
+    /// The unit-norm separator over (x, 1) that achieves `lower`.
+    pub separator: Vec<f64>,
+}
+
+/// [`homogeneous_margin`]'s bounds even when they have not met: `None` if no separator
+/// through the origin was found (lower bound not positive).
+pub fn homogeneous_bounds(ds: &Dataset, idx: &[usize], radius: f64) -> Option<MarginBounds> {
     let first = *idx.first()?;
     let sc = ds.scaler();
     let d = ds.dim();
@@ -390,7 +407,11 @@ pub fn homogeneous_margin(ds: &Dataset, idx: &[usize], radius: f64) -> Option<(f
         .iter()
         .map(|&i| value(&u, i, &mut buf))
         .fold(f64::INFINITY, f64::min);
-    (lower > 0.0 && upper - lower <= 1e-9 * upper).then_some((upper, u))
+    (lower > 0.0).then_some(MarginBounds {
+        lower,
+        upper,
+        separator: u,
+    })
 }
 
 fn vertex_of(ds: &Dataset, i: usize, radius: f64) -> Vec<f64> {

@@ -24,7 +24,7 @@ use serde::Serialize;
 
 use crate::ingest::dataset::Dataset;
 use crate::train::linear::Linear;
-use crate::train::maxmargin::{SvmConfig, homogeneous_margin, max_margin};
+use crate::train::maxmargin::{SvmConfig, homogeneous_bounds, max_margin};
 use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron, radius};
 
 /// A unit named in a report.
@@ -76,6 +76,9 @@ pub struct SeparabilityReport {
     pub novikoff_margin: Option<f64>,
     /// Novikoff's bound 1/γ² on perceptron updates.
     pub novikoff_bound: Option<f64>,
+    /// Why the Novikoff figures are missing, or how far they are settled when only bounds
+    /// were proved (then `novikoff_margin` is the certified lower bound on γ).
+    pub novikoff_note: Option<String>,
     /// Updates the classic perceptron actually made.
     pub perceptron_updates: u64,
     /// Epochs it ran.
@@ -162,6 +165,7 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
         radius: r,
         novikoff_margin: None,
         novikoff_bound: None,
+        novikoff_note: None,
         perceptron_updates: run.updates,
         perceptron_epochs: run.epochs,
         perceptron_converged: run.converged,
@@ -172,7 +176,11 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
     let full_lp = (idx.len() <= LP_FULL_LIMIT).then(|| hull_intersection(ds, idx));
     let svm = max_margin(ds, idx, SvmConfig::hard());
     let separator_ok = svm.margin > MIN_MARGIN && svm.model.geometric_margin(ds, idx) > 0.0;
+    let not_separable_note = Some(
+        "not separable: the Novikoff bound does not apply (the classic perceptron never stops on such a log)".to_string(),
+    );
     if let Some(Some(conflict)) = full_lp {
+        report.novikoff_note = not_separable_note;
         // A verified common point of both hulls: no separator can exist.
         report.decided_by =
             "LP: the convex hulls of GO and NO-GO meet (certificate verified)".into();
@@ -180,6 +188,7 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
         return report;
     }
     if !separator_ok {
+        report.novikoff_note = not_separable_note;
         // Above the LP limit: certify on the units that keep the hulls from parting first.
         let scores = svm.model.scores(ds, idx);
         let mut cand: Vec<usize> = svm.support.iter().map(|s| s.0).collect();
@@ -228,9 +237,26 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
         })
         .collect();
     report.support = svm.support.iter().map(|&(i, a)| unit_ref(i, a)).collect();
-    if let Some((g, _)) = homogeneous_margin(ds, idx, r) {
-        report.novikoff_margin = Some(g);
-        report.novikoff_bound = Some(1.0 / (g * g));
+    match homogeneous_bounds(ds, idx, r) {
+        Some(b) if b.upper - b.lower <= 1e-9 * b.upper => {
+            report.novikoff_margin = Some(b.upper);
+            report.novikoff_bound = Some(1.0 / (b.upper * b.upper));
+        }
+        // A separator through the origin was found but the solver's limit came before the
+        // bounds met: γ ≥ lower still gives a valid (looser) bound on the updates.
+        Some(b) => {
+            report.novikoff_margin = Some(b.lower);
+            report.novikoff_bound = Some(1.0 / (b.lower * b.lower));
+            report.novikoff_note = Some(format!(
+                "γ is between {:.6e} and {:.6e}; the bound uses the certified lower value",
+                b.lower, b.upper
+            ));
+        }
+        None => {
+            report.novikoff_note = Some(
+                "no separator through the origin with the constant-1 feature was certified within the solver's limit, so γ and the bound are not given".into(),
+            );
+        }
     }
     report.separator = Some(svm.model);
     report

@@ -72,7 +72,7 @@ fn trained(
         folds: 0,
         progress: false,
     };
-    (train_model(&ds, None, &req).model, ds)
+    (train_model(&ds, None, &req).unwrap().model, ds)
 }
 
 #[test]

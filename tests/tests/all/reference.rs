@@ -304,3 +304,45 @@ fn logs_above_the_lp_limit_are_decided_and_certified() {
         r.decided_by
     );
 }
+
+#[test]
+fn a_false_go_cap_of_zero_keeps_every_nogo_unit_strictly_nogo_in_float_and_fixed() {
+    // Fisher's iris data (linfa-datasets): versicolor (GO) vs virginica (NO-GO) overlap, so
+    // the soft margin (C = 1) leaves NO-GO units on the GO side; --max-false-go 0 must move
+    // the threshold past every one of them, with room for rounding.
+    let ds = iris_pair(1, 2);
+    let req = host_trainer::workflow::TrainRequest {
+        trainer: host_trainer::train::eval::TrainerKind::MaxMargin,
+        epochs: 100,
+        seed: 1,
+        c: 1.0,
+        max_false_go: Some(0),
+        folds: 0,
+        progress: false,
+    };
+    let fm = host_trainer::workflow::train_model(&ds, None, &req)
+        .unwrap()
+        .model;
+    let shift = fm.summary.threshold_shift.as_ref().unwrap();
+    assert_eq!(shift.false_go, 0);
+    // Float: by the trainer's scores and by the audit's (raw-reading) scores.
+    let lin = fm.linear();
+    let raw_form = host_trainer::ingest::dataset::RawForm::new(&ds, &fm.weights, fm.bias);
+    for (i, s) in lin.scores(&ds, &ds.all()).iter().enumerate() {
+        if ds.labels[i] < 0 {
+            assert!(*s < fm.threshold, "unit {i}: {s} vs {}", fm.threshold);
+            assert!(raw_form.score(ds.raw_row(i)) < fm.threshold);
+        }
+    }
+    // Fixed: the device kernel says NO-GO to every NO-GO unit.
+    let q = host_trainer::release::quantise::quantise(
+        &fm,
+        Some(&ds),
+        host_trainer::release::quantise::QuantConfig::default(),
+    )
+    .unwrap();
+    for i in (0..ds.len()).filter(|&i| ds.labels[i] < 0) {
+        let d = q.model.classify(ds.raw_row(i)).unwrap();
+        assert_eq!(d.verdict, shared_model::Verdict::NoGo, "unit {i}");
+    }
+}
