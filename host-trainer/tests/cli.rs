@@ -182,7 +182,10 @@ fn check_exits_1_on_xor_and_names_the_conflicting_units() {
         assert!(out.contains(u), "{u} missing from: {out}");
     }
     // The Novikoff figures are missing, and check says why.
-    assert!(out.contains("Novikoff: not separable: the Novikoff bound does not apply"), "{out}");
+    assert!(
+        out.contains("Novikoff: not separable: the Novikoff bound does not apply"),
+        "{out}"
+    );
 }
 
 /// A log whose two classes sit 2e-4 of the range apart: 8-bit weights cannot keep that margin.

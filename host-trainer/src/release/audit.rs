@@ -309,8 +309,22 @@ pub struct AuditReport {
     pub nogo_max: i64,
     /// GO at or above.
     pub go_min: i64,
-    /// Accumulator units per float score unit.
+    /// A: accumulator units per float score unit. Each ideal weight is
+    /// Wᵢ* = A·wᵢ/(halfᵢ·κᵢ) with κᵢ = multiplierᵢ/2^shiftᵢ, the ideal bias B* = A·b.
     pub scale: f64,
+    /// A·t, the float threshold t in accumulator units.
+    pub threshold_acc: f64,
+    /// Wᵢ*, the ideal (real) integer-scale weights.
+    pub ideal_weights: Vec<f64>,
+    /// B*, the ideal bias.
+    pub ideal_bias: f64,
+    /// The weights after plain rounding (ties to even), before the ±1 LSB search.
+    pub plain_weights: Vec<i32>,
+    /// The bias after plain rounding.
+    pub plain_bias: i64,
+    /// What the search moved: each channel (or "bias") whose final value differs from the
+    /// plain rounding, with both values.
+    pub search_changes: Vec<String>,
     /// Blob size in bytes.
     pub blob_bytes: usize,
     /// Per-log figures.
@@ -708,6 +722,21 @@ pub fn audit(
         nogo_max: m.nogo_max,
         go_min: m.go_min,
         scale: q.scale,
+        threshold_acc: q.threshold_acc,
+        ideal_weights: q.ideal_weights.clone(),
+        ideal_bias: q.ideal_bias,
+        plain_weights: q.plain_weights.clone(),
+        plain_bias: q.plain_bias,
+        search_changes: m
+            .channels
+            .iter()
+            .zip(&q.plain_weights)
+            .filter(|(c, p)| c.weight != **p)
+            .map(|(c, p)| format!("{}: {} -> {}", c.name, p, c.weight))
+            .chain(
+                (m.bias != q.plain_bias).then(|| format!("bias: {} -> {}", q.plain_bias, m.bias)),
+            )
+            .collect(),
         blob_bytes: packed.len(),
         sets,
         float_min_margin_lsb: float_min.is_finite().then_some(float_min),

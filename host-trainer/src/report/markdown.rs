@@ -42,6 +42,14 @@ pub fn markdown(
         "- thresholds: NO-GO at score ≤ {}, GO at score ≥ {}; blob {} bytes",
         r.nogo_max, r.go_min, r.blob_bytes
     );
+    let _ = writeln!(
+        s,
+        "- model file content SHA-256 `{}`; blob (as packed) SHA-256 `{}`, blob id `{}`",
+        r.model_sha256, r.blob_sha256, r.blob_id
+    );
+    for t in &r.sets {
+        let _ = writeln!(s, "- {} log `{}`, SHA-256 `{}`", t.name, t.path, t.sha256);
+    }
     if r.recheck_band > 0.0 {
         let _ = writeln!(
             s,
@@ -208,6 +216,51 @@ pub fn markdown(
             u.margin_lsb
         );
     }
+    let _ = writeln!(
+        s,
+        "\n## Method (every figure above from these inputs)\n\n\
+- Physical → raw: raw = round((physical − zero)/lsb), halves away from zero (per channel: zero, lsb in model.json).\n\
+- Kernel (FORMAT.md): xᵢ = ⌊((raw − offsetᵢ)·multiplierᵢ + 2^(shiftᵢ−1)) / 2^shiftᵢ⌋ (halves towards +∞); score = bias + Σ weightᵢ·xᵢ; GO if score ≥ go_min, NO-GO if score ≤ nogo_max, else RECHECK; a raw reading outside [raw_min, raw_max] is a FAULT (NO-GO).\n\
+- Float model: s = b + Σ wᵢ·(raw − offsetᵢ)/halfᵢ; GO if s > t (t = {t}).\n\
+- A = {a} accumulator units per float score unit; κᵢ = multiplierᵢ/2^shiftᵢ; ideal weights Wᵢ* = A·wᵢ/(halfᵢ·κᵢ), ideal bias B* = A·b = {ib}; A·t = {ta}.\n\
+- Weights and bias are Wᵢ* and B* rounded to nearest, halves to even, then moved by at most ±1 LSB where that raises (smallest margin − bound) on the training log.\n\
+- Margin of a decided unit, in LSB: score − (go_min − ½) for GO units, (nogo_max + ½) − score for NO-GO units; RECHECK and FAULT units have none.\n\
+- Bound = ½·Σ|Wᵢ| + Σ|Wᵢ − Wᵢ*|·Xmaxᵢ + |B − B*|, Xmaxᵢ = κᵢ·max(|raw_maxᵢ − offsetᵢ|, |offsetᵢ − raw_minᵢ|). A correctly decided unit is within the bound when its margin plus the distance of its edge beyond ⌊A·t⌋ + ½ (the RECHECK band, 0 without one) is at most the bound; \"guaranteed\" means no unit is.\n\
+- Noise: a reading moved by Δ moves xᵢ by at most κᵢ·Δ/lsbᵢ + 1, the score by Σ|Wᵢ|·(κᵢ·noiseᵢ/lsbᵢ + 1); a GO (NO-GO) unit whose score is within that of nogo_max + ½ (go_min − ½) fails the noise gate.\n",
+        t = fm.threshold,
+        a = r.scale,
+        ib = r.ideal_bias,
+        ta = r.threshold_acc
+    );
+    let _ = writeln!(
+        s,
+        "| channel | wᵢ (float) | Wᵢ* (ideal) | plain rounding | final Wᵢ |\n|---|---|---|---|---|"
+    );
+    for (k, c) in fm.channels.iter().enumerate() {
+        let _ = writeln!(
+            s,
+            "| {} | {} | {} | {} | {} |",
+            c.name,
+            fm.weights.get(k).copied().unwrap_or(f64::NAN),
+            r.ideal_weights.get(k).copied().unwrap_or(f64::NAN),
+            r.plain_weights.get(k).copied().unwrap_or(0),
+            r.weights.get(k).copied().unwrap_or(0)
+        );
+    }
+    let _ = writeln!(
+        s,
+        "| bias | {} | {} | {} | {} |",
+        fm.bias, r.ideal_bias, r.plain_bias, r.bias
+    );
+    let _ = writeln!(
+        s,
+        "\nMoved by the search: {}.",
+        if r.search_changes.is_empty() {
+            "nothing".to_string()
+        } else {
+            r.search_changes.join("; ")
+        }
+    );
     if let Some((rows, best)) = sweep {
         let _ = writeln!(
             s,

@@ -136,6 +136,11 @@ impl FloatModel {
             summary,
             content_sha256: String::new(),
         };
+        // The file holds one threshold unit: the shift's threshold is on the same
+        // normalised scale as `threshold`.
+        if let Some(t) = m.summary.threshold_shift.as_mut() {
+            t.threshold /= scale;
+        }
         m.model_id = m.derive_id();
         m
     }
