@@ -860,3 +860,49 @@ fn training_that_finds_no_direction_is_refused_and_writes_nothing() {
     );
     assert!(!d.join("m.json").exists());
 }
+
+#[test]
+fn replay_scores_new_units_without_a_label_column() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    let text = std::fs::read_to_string(d.join("demo/holdout-synthetic.csv")).unwrap();
+    // Drop the verdict column (the last): units measured, not yet judged.
+    let unlabelled: String = text
+        .lines()
+        .map(|l| l.rsplit_once(',').unwrap().0.to_string() + "\n")
+        .collect();
+    assert!(!unlabelled.lines().next().unwrap().contains("verdict"));
+    write(d, "new-units.csv", unlabelled.as_bytes());
+    let run = |log: &str| {
+        let o = linegate(
+            &[
+                "replay",
+                "--blob",
+                "demo/model.lgb",
+                "--model",
+                "demo/model.json",
+                log,
+            ],
+            d,
+        );
+        exits(&o, 0);
+        o.stdout
+    };
+    assert_eq!(run("new-units.csv"), run("demo/holdout-synthetic.csv"));
+    // Training and audit still need labels.
+    let o = linegate(
+        &[
+            "audit",
+            "--model",
+            "demo/model.json",
+            "--train",
+            "demo/train-synthetic.csv",
+            "--holdout",
+            "new-units.csv",
+        ],
+        d,
+    );
+    exits(&o, 2);
+    assert!(String::from_utf8_lossy(&o.stderr).contains("label"));
+}

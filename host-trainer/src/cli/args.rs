@@ -64,6 +64,7 @@ impl LogArgs {
             max_line_len: d.max_line_len,
             max_rows: self.max_rows,
             progress: !quiet && std::io::stderr().is_terminal(),
+            label_optional: false,
         }
     }
 }

@@ -67,13 +67,14 @@ impl PackArgs {
         let files = set.commit(*force)?;
         if !quiet {
             say!(
-                "audit {}; model id {}; {} bytes",
+                "audit {}; model id {}; blob id {:08x}; {} bytes",
                 if r.passed {
                     "passed"
                 } else {
                     "FAILED (override recorded in the blob)"
                 },
                 fm.model_id,
+                shared_model::blob::blob_id(&blob).unwrap_or(0),
                 blob.len()
             );
             for f in files {

@@ -4,6 +4,7 @@ use std::path::PathBuf;
 
 use anyhow::{Context, Result};
 use clap::Args;
+use host_trainer::ingest::LogOptions;
 
 use super::args::LogArgs;
 use host_trainer::output::OutputSet;
@@ -65,7 +66,11 @@ impl ReplayArgs {
         };
         let streamed = host_trainer::ingest::stream_units(
             log,
-            &log_args.options(quiet),
+            // New units have no verdict yet: replay scores logs without a label column.
+            &LogOptions {
+                label_optional: true,
+                ..log_args.options(quiet)
+            },
             &fm.channels,
             &mut skipped,
             |u| {

@@ -158,6 +158,8 @@ pub(super) struct FastPlan {
     go: Vec<String>,
     nogo: Vec<String>,
     max_line_len: usize,
+    /// The log has no label column (replay of new units): every label is 0.
+    unlabelled: bool,
 }
 
 /// Where the fast path puts a record's readings.
@@ -203,7 +205,9 @@ impl FastPlan {
             None => None,
         };
         let mut roles = vec![Role::Skip; cols.names.len()];
-        *roles.get_mut(cols.label)? = Role::Label;
+        if let Some(l) = cols.label {
+            *roles.get_mut(l)? = Role::Label;
+        }
         if let Some(u) = cols.unit {
             *roles.get_mut(u)? = Role::Unit;
         }
@@ -217,6 +221,7 @@ impl FastPlan {
             go: opts.go_labels.clone(),
             nogo: opts.nogo_labels.clone(),
             max_line_len: opts.max_line_len,
+            unlabelled: cols.label.is_none(),
         })
     }
 
@@ -232,7 +237,8 @@ impl FastPlan {
         let last = self.roles.len().checked_sub(1)?;
         let start_of_record = pos;
         let mut pos = pos;
-        let mut label = None;
+        // A log without a label column gives every unit label 0 (unknown).
+        let mut label = self.unlabelled.then_some(0);
         let mut unit = None;
         for (c, &role) in self.roles.iter().enumerate() {
             let start = pos;

@@ -11,7 +11,8 @@ use crate::ingest::scaling::ChannelScale;
 
 pub(super) struct Columns {
     pub(super) names: Vec<String>,
-    pub(super) label: usize,
+    /// The label column; `None` only when the options allow a log without one.
+    pub(super) label: Option<usize>,
     pub(super) unit: Option<usize>,
     pub(super) channels: Vec<usize>,
 }
@@ -47,8 +48,11 @@ impl Columns {
                     None => Ok(defaults.iter().find_map(|d| find(&names, d))),
                 }
             };
-        let label =
-            pick(&opts.label, LABEL_NAMES)?.ok_or(InputError::NoLabel { path: path.into() })?;
+        let label = match pick(&opts.label, LABEL_NAMES)? {
+            Some(l) => Some(l),
+            None if opts.label_optional => None,
+            None => return Err(InputError::NoLabel { path: path.into() }),
+        };
         let unit = pick(&opts.unit_id, UNIT_NAMES)?;
         let time = pick(&opts.timestamp, TIME_NAMES)?;
         for n in &opts.ignore {
@@ -66,7 +70,7 @@ impl Columns {
                 .collect::<Result<_, _>>()?,
             None => (0..names.len())
                 .filter(|&i| {
-                    i != label
+                    Some(i) != label
                         && Some(i) != unit
                         && Some(i) != time
                         && !opts

@@ -43,6 +43,9 @@ pub struct LogOptions {
     pub max_rows: usize,
     /// Show a progress bar.
     pub progress: bool,
+    /// A log may lack a label column (scoring new units, as `replay` does); its units then
+    /// carry label 0. Training and audit always need labels.
+    pub label_optional: bool,
 }
 
 impl Default for LogOptions {
@@ -59,6 +62,7 @@ impl Default for LogOptions {
             max_line_len: 1 << 20,
             max_rows: 50_000_000,
             progress: false,
+            label_optional: false,
         }
     }
 }

@@ -109,13 +109,17 @@ impl Parser<'_> {
             }
             *v = x;
         }
-        let lf = trim(f.get(cols.label));
+        // A log without a label column gives every unit label 0 (unknown).
+        let Some(lc) = cols.label else {
+            return Ok(Some(0));
+        };
+        let lf = trim(f.get(lc));
         match label_of(lf, &opts.go_labels, &opts.nogo_labels) {
             Some(label) => Ok(Some(label)),
             None => Err(InputError::UnknownLabel {
                 path: path.into(),
                 line,
-                column: cols.names[cols.label].clone(),
+                column: cols.names[lc].clone(),
                 value: cell_text(lf),
                 go: opts.go_labels.join(", "),
                 nogo: opts.nogo_labels.join(", "),
