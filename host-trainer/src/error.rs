@@ -13,6 +13,26 @@ pub enum InputError {
         /// Cause.
         source: std::io::Error,
     },
+    /// The path is not a regular file (a FIFO, a device, a directory).
+    #[error(
+        "{path}: not a regular file; Linegate reads its inputs more than once (e.g. to hash and to parse), so a pipe, device or stdin cannot serve: save it to a file first"
+    )]
+    NotAFile {
+        /// The path.
+        path: PathBuf,
+    },
+    /// A file read whole is larger than any valid file of its kind.
+    #[error("{path}: {size} bytes is more than a {kind} can be (at most {max} bytes)")]
+    TooLarge {
+        /// The path.
+        path: PathBuf,
+        /// What it should have been.
+        kind: &'static str,
+        /// Its size.
+        size: u64,
+        /// The limit.
+        max: u64,
+    },
     /// The file has no header row.
     #[error("{path}: the file is empty (a header row naming the columns is required)")]
     Empty {
@@ -249,6 +269,16 @@ pub enum OutputError {
     /// The target exists and `--force` was not given.
     #[error("{0}: already exists; pass --force to overwrite")]
     Exists(PathBuf),
+    /// The target exists and is not a regular file; nothing else is ever replaced.
+    #[error(
+        "{0}: exists and is not a regular file (a device, folder or link); Linegate replaces only regular files, even with --force"
+    )]
+    NotAFile(PathBuf),
+    /// Another run is writing into the same folder.
+    #[error(
+        "{0}: another linegate run is writing into this folder; wait for it to finish, or write elsewhere"
+    )]
+    Busy(PathBuf),
     /// Writing failed.
     #[error("{path}: cannot write: {source}")]
     Io {

@@ -12,8 +12,8 @@
 //! 4. [`report`]: the audit as Markdown, HTML and SVG.
 //!
 //! [`workflow`] runs the steps as single calls (the CLI and [`demo`] both use it);
-//! [`synth`] writes synthetic logs of any size; [`output`] writes files atomically;
-//! [`digest`] and [`error`] are the leaves every step uses. Imports point down this
+//! [`synth`] writes synthetic logs of any size; [`output`] writes files atomically and
+//! [`input`] opens them with bounds; [`digest`] and [`error`] are the leaves every step uses. Imports point down this
 //! list only: no module imports one that imports it back.
 //!
 //! The library returns typed errors; only the `linegate` binary picks exit codes.
@@ -29,6 +29,7 @@ pub mod demo;
 pub mod digest;
 pub mod error;
 pub mod ingest;
+pub mod input;
 pub mod output;
 pub mod release;
 pub mod report;

@@ -23,9 +23,9 @@ fn main() -> ExitCode {
                 "error"
             };
             if !(failed && cli.quiet) {
-                eprintln!("{tag}: {e}");
+                eprintln!("{tag}: {}", cli::shown(&e.to_string()));
                 for cause in e.chain().skip(1) {
-                    eprintln!("  caused by: {cause}");
+                    eprintln!("  caused by: {}", cli::shown(&cause.to_string()));
                 }
             }
             ExitCode::from(if failed { 1 } else { 2 })

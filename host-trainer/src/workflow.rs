@@ -29,7 +29,7 @@ pub fn load(
     let sheet = match sheet {
         Some(p) => {
             // Read once: the same text is parsed and hashed for provenance.
-            let text = std::fs::read_to_string(p).map_err(|e| InputError::io(p, e))?;
+            let text = crate::input::read_text(p, "channel sheet", crate::input::MAX_TEXT_FILE)?;
             let s = ChannelSheet::from_text(p, &text)?;
             Some((
                 s,

@@ -41,7 +41,11 @@ impl CheckArgs {
             seed,
             json,
         } = self;
-        let (ds, _) = workflow::load(log, &log_args.options(quiet), sheet.as_deref())?;
+        let (ds, sheet) = workflow::load(log, &log_args.options(quiet), sheet.as_deref())?;
+        if !quiet {
+            super::warn_skipped(log, &ds.skipped);
+            super::warn_sheet(log, &ds, sheet.as_ref());
+        }
         let r = host_trainer::train::separability::check(&ds, &ds.all(), *epochs, *seed);
         if *json {
             say_raw!("{}", to_json(&r));
@@ -86,7 +90,7 @@ fn print_check(
         for u in &r.support {
             say!(
                 "  {} ({}, line {}, α = {:.4})",
-                u.unit,
+                super::shown(&u.unit),
                 u.label,
                 u.line,
                 u.weight
@@ -115,7 +119,7 @@ fn print_check(
         for u in &r.conflict {
             say!(
                 "  {} ({}, line {}, λ = {:.4})",
-                u.unit,
+                super::shown(&u.unit),
                 u.label,
                 u.line,
                 u.weight

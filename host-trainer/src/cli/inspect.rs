@@ -46,18 +46,27 @@ fn inspect(
     json: bool,
     quiet: bool,
 ) -> Result<()> {
-    let raw = std::fs::read(path).with_context(|| format!("{}: cannot read", path.display()))?;
-    let bytes = if path
+    let raw = host_trainer::input::read_bounded(
+        path,
+        "model blob or flash image",
+        host_trainer::input::MAX_IMAGE_FILE,
+    )?;
+    let is_hex = path
         .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("hex"))
-    {
-        let text = String::from_utf8(raw)
-            .with_context(|| format!("{}: not a text HEX file", path.display()))?;
-        hex::from_hex(&text)
-            .map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?
-            .1
+        .is_some_and(|e| e.eq_ignore_ascii_case("hex"));
+    // A corrupt HEX image is a corrupt blob: exit 1, as for a bad CRC.
+    let (load_address, bytes) = if is_hex {
+        let text = String::from_utf8(raw).map_err(|_| {
+            CheckFailed(format!(
+                "{}: not an Intel HEX file (not text)",
+                path.display()
+            ))
+        })?;
+        let (a, b) =
+            hex::from_hex(&text).map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
+        (Some(a), b)
     } else {
-        raw
+        (None, raw)
     };
     let (ins, decoded) = pack::inspect(&bytes);
     if json {
@@ -69,6 +78,9 @@ fn inspect(
             ins.bytes,
             ins.version.map_or("?".into(), |v| v.to_string())
         );
+        if let Some(a) = load_address {
+            say!("Intel HEX image: the blob loads at {a:#010x}");
+        }
         say!(
             "CRC-32: stored {}, computed {}",
             ins.crc_stored.as_deref().unwrap_or("–"),
@@ -109,7 +121,7 @@ fn inspect(
             for c in &ins.channels {
                 say!(
                     "{:<18} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
-                    c.name,
+                    super::shown(c.name.as_str()),
                     c.raw_min,
                     c.raw_max,
                     c.offset,
@@ -137,7 +149,7 @@ fn inspect(
     }
     if let Some(p) = rep {
         let text =
-            std::fs::read_to_string(p).with_context(|| format!("{}: cannot read", p.display()))?;
+            host_trainer::input::read_text(p, "audit report", host_trainer::input::MAX_TEXT_FILE)?;
         let v: serde_json::Value =
             serde_json::from_str(&text).with_context(|| format!("{}: not JSON", p.display()))?;
         let r = v.get("audit").unwrap_or(&v);

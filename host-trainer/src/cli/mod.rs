@@ -134,6 +134,63 @@ fn warn_skipped(path: &std::path::Path, skipped: &host_trainer::ingest::SkipRepo
     }
 }
 
+/// Says on stderr where a channel sheet and a log disagree: a log channel the sheet does not
+/// declare gets its observed range (so the device's range check is the data's, not a
+/// declared one), and a sheet channel the log does not have is not used.
+fn warn_sheet(
+    log: &std::path::Path,
+    ds: &host_trainer::ingest::dataset::Dataset,
+    sheet: Option<&(
+        host_trainer::ingest::scaling::ChannelSheet,
+        host_trainer::train::float_model::InputFile,
+    )>,
+) {
+    let Some((sheet, file)) = sheet else { return };
+    for c in &ds.scales {
+        if sheet.get(&c.name).is_none() {
+            eprintln!(
+                "warning: {}: channel '{}' of {} is not declared there; its observed range [{}, {}] is the device's valid range",
+                file.path.display(),
+                c.name.escape_debug(),
+                log.display(),
+                c.min,
+                c.max
+            );
+        }
+    }
+    for c in &sheet.channels {
+        if !ds
+            .scales
+            .iter()
+            .any(|d| d.name.eq_ignore_ascii_case(&c.name))
+        {
+            eprintln!(
+                "warning: {}: channel '{}' is not a channel of {}; it is not used",
+                file.path.display(),
+                c.name.escape_debug(),
+                log.display()
+            );
+        }
+    }
+}
+
+/// Text from a file made safe for a terminal: control characters (an escape sequence in a
+/// cell or a column name could retitle or clear the screen) are shown escaped, `\u{1b}`.
+pub fn shown(text: &str) -> String {
+    if !text.chars().any(char::is_control) {
+        return text.to_string();
+    }
+    text.chars()
+        .map(|c| {
+            if c.is_control() {
+                c.escape_debug().to_string()
+            } else {
+                c.to_string()
+            }
+        })
+        .collect()
+}
+
 /// Pretty JSON with a final line feed, as every `--json` prints.
 fn to_json<T: serde::Serialize>(v: &T) -> String {
     serde_json::to_string_pretty(v).unwrap_or_default() + "\n"

@@ -59,6 +59,7 @@ impl PackArgs {
         let mut set = OutputSet::default();
         set.add(output, blob.clone());
         if let Some(a) = hex_addr {
+            hex::check_placement(*a, blob.len())?;
             set.add(output.with_extension("hex"), hex::to_hex(*a, &blob));
         }
         if *bin {

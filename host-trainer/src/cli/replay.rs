@@ -2,7 +2,7 @@
 
 use std::path::PathBuf;
 
-use anyhow::{Context, Result};
+use anyhow::Result;
 use clap::Args;
 use host_trainer::ingest::LogOptions;
 
@@ -44,8 +44,11 @@ impl ReplayArgs {
             force,
         } = self;
         let fm = FloatModel::read(model)?;
-        let bytes =
-            std::fs::read(blob).with_context(|| format!("{}: cannot read", blob.display()))?;
+        let bytes = host_trainer::input::read_bounded(
+            blob,
+            "model blob",
+            host_trainer::input::MAX_IMAGE_FILE,
+        )?;
         let m = shared_model::blob::decode(&bytes)
             .map_err(|e| anyhow::anyhow!("{}: {e}", blob.display()))?;
         // Streams: a log of any length, one line out per unit in.

@@ -76,6 +76,7 @@ impl TrainArgs {
         let (ds, sheet) = workflow::load(log, &opts, sheet.as_deref())?;
         if !quiet {
             super::warn_skipped(log, &ds.skipped);
+            super::warn_sheet(log, &ds, sheet.as_ref());
         }
         let req = workflow::TrainRequest {
             trainer: *trainer,

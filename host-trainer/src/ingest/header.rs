@@ -28,8 +28,10 @@ impl Columns {
         opts: &LogOptions,
         model: Option<&[ChannelScale]>,
     ) -> Result<Self, InputError> {
-        for (i, n) in names.iter().enumerate() {
-            if names[..i].iter().any(|m| m == n) {
+        // A set, not a scan per name: a header of 100,000 columns must not take minutes.
+        let mut seen = std::collections::HashSet::with_capacity(names.len());
+        for n in &names {
+            if !seen.insert(n.as_str()) {
                 return Err(InputError::DuplicateHeader {
                     path: path.into(),
                     name: n.clone(),
@@ -178,6 +180,7 @@ pub(super) fn read_header(
 /// # Errors
 /// Header problems: empty file, duplicate or unknown names, no label.
 pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, InputError> {
+    crate::input::regular_file(path)?;
     let file = File::open(path).map_err(|e| InputError::io(path, e))?;
     let mut reader = BlockReader {
         file,

@@ -63,7 +63,11 @@ pub fn read_log(
             .iter()
             .enumerate()
             .map(|(i, n)| match sheet.and_then(|s| s.get(n)) {
-                Some(s) => Ok(s.clone()),
+                // The log's spelling names the channel from here on.
+                Some(s) => Ok(ChannelScale {
+                    name: n.clone(),
+                    ..s.clone()
+                }),
                 None => {
                     let (lo, hi) = ranges.get(i).copied().unwrap_or((0.0, 0.0));
                     if lo == hi {
@@ -86,6 +90,13 @@ pub fn read_log(
     // Reserve once from an estimate of the row count: growing by doubling would briefly hold
     // the old and the new buffer, half again the data's size.
     if let Some(rows) = estimate_rows(path) {
+        // An estimate is never trusted alone: a record holds at least one byte and one
+        // delimiter (or line end) per channel and for the label, so the file's size bounds
+        // the rows, and --max-rows bounds them too (a log that starts with blank lines
+        // would otherwise ask for many times its size).
+        let len = std::fs::metadata(path).map_or(0, |m| m.len());
+        let most = usize::try_from(len / (2 * (ds.scales.len() as u64 + 1))).unwrap_or(usize::MAX);
+        let rows = rows.min(most).min(opts.max_rows);
         ds.raw.reserve_exact(rows * ds.scales.len());
         ds.labels.reserve_exact(rows);
         ds.lines.reserve_exact(rows);

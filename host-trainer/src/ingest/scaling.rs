@@ -82,12 +82,26 @@ impl ChannelScale {
         if lsb <= 0.0 {
             return Err(format!("channel '{name}': lsb must be positive, got {lsb}"));
         }
+        if name.len() > shared_model::NAME_CAPACITY {
+            return Err(format!(
+                "channel '{}': the name is {} bytes; the device keeps at most {} (shorten the column or sheet name)",
+                name.escape_debug(),
+                name.len(),
+                shared_model::NAME_CAPACITY
+            ));
+        }
+        if name.chars().any(char::is_control) {
+            return Err(format!(
+                "channel '{}': control characters are not allowed in a channel name",
+                name.escape_debug()
+            ));
+        }
         let to_raw = |v: f64| ((v - zero) / lsb).round();
         let (lo, hi) = (to_raw(min), to_raw(max));
         let limit = f64::from(i32::MAX / 2);
         if lo.abs() > limit || hi.abs() > limit {
             return Err(format!(
-                "channel '{name}': range [{min}, {max}] at lsb {lsb} needs raw values beyond ±2^30; use a coarser lsb"
+                "channel '{name}': range [{min}, {max}] at lsb {lsb} needs raw values beyond ±2^30; declare the channel in a channel sheet with a coarser lsb, or a zero near the readings"
             ));
         }
         if lo == hi {
@@ -223,7 +237,7 @@ impl ChannelSheet {
     /// # Errors
     /// [`InputError::Io`] or [`InputError::Sheet`] naming the problem.
     pub fn read(path: &Path) -> Result<Self, InputError> {
-        let text = std::fs::read_to_string(path).map_err(|e| InputError::io(path, e))?;
+        let text = crate::input::read_text(path, "channel sheet", crate::input::MAX_TEXT_FILE)?;
         Self::from_text(path, &text)
     }
 
@@ -246,9 +260,15 @@ impl ChannelSheet {
         let file: SheetFile =
             toml::from_str(text).map_err(|e| e.to_string().trim_end().to_string())?;
         let mut channels: Vec<ChannelScale> = Vec::new();
+        // Names compare as log columns do (ASCII case-insensitively), through a set: a
+        // sheet of 100,000 channels must not take minutes.
+        let mut seen = std::collections::HashSet::new();
         for c in file.channel {
-            if channels.iter().any(|d| d.name == c.name) {
-                return Err(format!("channel '{}' is declared twice", c.name));
+            if !seen.insert(c.name.to_ascii_lowercase()) {
+                return Err(format!(
+                    "channel '{}' is declared twice (names compare without case, as log columns do)",
+                    c.name.escape_debug()
+                ));
             }
             let mut s = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)?;
             if c.noise.is_some_and(|n| !(n.is_finite() && n >= 0.0)) {
@@ -263,9 +283,12 @@ impl ChannelSheet {
         Ok(Self { channels })
     }
 
-    /// The declared scaling of a channel.
+    /// The declared scaling of a channel, matched as log columns are (ASCII
+    /// case-insensitively).
     pub fn get(&self, name: &str) -> Option<&ChannelScale> {
-        self.channels.iter().find(|c| c.name == name)
+        self.channels
+            .iter()
+            .find(|c| c.name.eq_ignore_ascii_case(name))
     }
 }
 

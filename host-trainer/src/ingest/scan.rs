@@ -52,6 +52,7 @@ pub(super) fn scan_blocks(
     block: usize,
 ) -> Result<(Columns, String), InputError> {
     let io = |e| InputError::io(path, e);
+    crate::input::regular_file(path)?;
     let file = File::open(path).map_err(io)?;
     let len = file.metadata().map(|m| m.len()).unwrap_or(0);
     let bar = (opts.progress && len > 16 << 20).then(|| {

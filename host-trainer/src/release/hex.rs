@@ -5,8 +5,42 @@
 //! is data, 01 end of file, 04 extended linear address (the upper 16 bits of
 //! the 32-bit address for the data records that follow).
 
+/// Why an image cannot be written at an address.
+#[derive(Debug, PartialEq, Eq, thiserror::Error)]
+pub enum PlaceError {
+    /// The image would run past the top of the 32-bit address space (and wrap to 0).
+    #[error(
+        "an image of {len} bytes at {address:#010x} runs past the top of the 32-bit address space (it would wrap to address 0, the vector table on most parts); choose an address at or below {last:#010x}"
+    )]
+    PastTop {
+        /// Where it was to start.
+        address: u32,
+        /// Its length.
+        len: usize,
+        /// The highest start address that fits.
+        last: u64,
+    },
+}
+
+/// Checks that `len` bytes fit at `address` without wrapping past 4 GiB.
+///
+/// # Errors
+/// [`PlaceError::PastTop`] if they do not.
+pub fn check_placement(address: u32, len: usize) -> Result<(), PlaceError> {
+    let end = u64::from(address) + len as u64;
+    if end > 1 << 32 {
+        return Err(PlaceError::PastTop {
+            address,
+            len,
+            last: (1u64 << 32).saturating_sub(len as u64),
+        });
+    }
+    Ok(())
+}
+
 /// Writes `data` placed at `address` as Intel HEX: 16-byte data records, an extended
 /// linear address record wherever the upper 16 address bits change, and the EOF record.
+/// The caller checks the placement first ([`check_placement`]); data past 4 GiB would wrap.
 pub fn to_hex(address: u32, data: &[u8]) -> String {
     let mut out = String::new();
     let mut upper: Option<u16> = None;
@@ -59,6 +93,15 @@ pub enum HexError {
     /// No EOF record.
     #[error("no end-of-file record")]
     NoEof,
+    /// Something other than blank lines follows the end-of-file record.
+    #[error("line {0}: content after the end-of-file record")]
+    AfterEof(usize),
+    /// A record other than a data record carries a non-zero address field.
+    #[error("line {0}: the address field of an extended linear address record must be 0000")]
+    AddressField(usize),
+    /// Data run past the top of the 32-bit address space.
+    #[error("line {0}: data run past the top of the 32-bit address space")]
+    PastTop(usize),
 }
 
 /// Reads contiguous data back: (start address, bytes). Verifies every checksum.
@@ -69,18 +112,28 @@ pub fn from_hex(text: &str) -> Result<(u32, Vec<u8>), HexError> {
     let mut upper = 0u32;
     let mut start: Option<u32> = None;
     let mut data = Vec::new();
+    let mut eof: Option<(u32, Vec<u8>)> = None;
     for (n, line) in text.lines().enumerate().map(|(n, l)| (n + 1, l.trim())) {
         if line.is_empty() {
             continue;
         }
+        if eof.is_some() {
+            return Err(HexError::AfterEof(n));
+        }
         let body = line.strip_prefix(':').ok_or(HexError::Malformed(n))?;
-        if body.len() % 2 != 0 || body.len() < 10 {
+        // Hex digits only: `from_str_radix` alone would take a sign, and slicing text that
+        // is not ASCII could split a character.
+        if !body.bytes().all(|b| b.is_ascii_hexdigit()) || body.len() % 2 != 0 || body.len() < 10 {
             return Err(HexError::Malformed(n));
         }
-        let bytes: Vec<u8> = (0..body.len() / 2)
-            .map(|i| u8::from_str_radix(&body[2 * i..2 * i + 2], 16))
-            .collect::<Result<_, _>>()
-            .map_err(|_| HexError::Malformed(n))?;
+        let bytes: Vec<u8> = body
+            .as_bytes()
+            .chunks_exact(2)
+            .map(|p| {
+                let digit = |c: u8| char::from(c).to_digit(16).unwrap_or(0) as u8;
+                digit(p[0]) << 4 | digit(p[1])
+            })
+            .collect();
         if bytes.iter().fold(0u8, |s, b| s.wrapping_add(*b)) != 0 {
             return Err(HexError::Checksum(n));
         }
@@ -94,19 +147,27 @@ pub fn from_hex(text: &str) -> Result<(u32, Vec<u8>), HexError> {
             0x00 => {
                 let full = upper | addr;
                 let s = *start.get_or_insert(full);
-                if full != s.wrapping_add(data.len() as u32) {
+                if u64::from(full) + len as u64 > 1 << 32 {
+                    return Err(HexError::PastTop(n));
+                }
+                if u64::from(full) != u64::from(s) + data.len() as u64 {
                     return Err(HexError::Gap(n));
                 }
                 data.extend_from_slice(payload);
             }
-            0x01 => return Ok((start.unwrap_or(0), data)),
+            0x01 if len == 0 && addr == 0 => {
+                eof = Some((start.unwrap_or(0), std::mem::take(&mut data)))
+            }
             0x04 if len == 2 => {
+                if addr != 0 {
+                    return Err(HexError::AddressField(n));
+                }
                 upper = u32::from(u16::from_be_bytes([payload[0], payload[1]])) << 16
             }
             _ => return Err(HexError::Malformed(n)),
         }
     }
-    Err(HexError::NoEof)
+    eof.ok_or(HexError::NoEof)
 }
 
 #[cfg(test)]
@@ -135,5 +196,39 @@ mod tests {
         let mut h = to_hex(0, &[1, 2, 3]);
         h.replace_range(9..11, "02");
         assert!(matches!(from_hex(&h), Err(HexError::Checksum(1))));
+    }
+
+    #[test]
+    fn hostile_records_are_refused() {
+        let good = to_hex(0x3F000, &[1, 2, 3]);
+        assert!(from_hex(&good).is_ok());
+        // A sign where a hex digit belongs (from_str_radix would take "+1").
+        let plus = good.replacen(":03F00000", ":+3F00000", 1);
+        assert!(matches!(from_hex(&plus), Err(HexError::Malformed(_))));
+        // Multi-byte UTF-8 in a record: refused, not split mid-character.
+        assert!(matches!(
+            from_hex(":0300é0000010203F7\n:00000001FF\n"),
+            Err(HexError::Malformed(1))
+        ));
+        // Records or junk after the end-of-file record.
+        assert_eq!(
+            from_hex(&(good.clone() + ":00000001FF\n")),
+            Err(HexError::AfterEof(4))
+        );
+        assert_eq!(
+            from_hex(&(good.clone() + "junk\n")),
+            Err(HexError::AfterEof(4))
+        );
+        // An extended linear address record with a non-zero address field (checksum fixed).
+        let bad04 = good.replacen(":020000040003F7", ":020001040003F6", 1);
+        assert_eq!(from_hex(&bad04), Err(HexError::AddressField(1)));
+        // Data past 4 GiB: refused when writing and when reading.
+        assert!(check_placement(0xFFFF_FFF0, 16).is_ok());
+        assert!(matches!(
+            check_placement(0xFFFF_FFF0, 17),
+            Err(PlaceError::PastTop { .. })
+        ));
+        let top = ":02000004FFFFFC\n:10FFF8000102030405060708090A0B0C0D0E0F1071\n:00000001FF\n";
+        assert_eq!(from_hex(top), Err(HexError::PastTop(2)));
     }
 }

@@ -228,7 +228,7 @@ impl FloatModel {
     /// I/O, JSON, a format tag/version this build does not read, a file edited after it
     /// was written, or a field out of its domain.
     pub fn read(path: &Path) -> Result<Self, InputError> {
-        let text = std::fs::read_to_string(path).map_err(|e| InputError::io(path, e))?;
+        let text = crate::input::read_text(path, "float model file", crate::input::MAX_TEXT_FILE)?;
         let fmt = |message: String| InputError::Format {
             path: path.into(),
             message,
