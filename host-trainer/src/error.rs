@@ -59,15 +59,19 @@ pub enum InputError {
     },
     /// No label column given or found.
     #[error(
-        "{path}: no label column; name it with --label (looked for: label, verdict, result, status)"
+        "{path}: no label column; name it with --label (looked for: label, verdict, result, status){hint}"
     )]
     NoLabel {
         /// File.
         path: PathBuf,
+        /// What the header suggests instead (separator, line ends), or empty.
+        hint: String,
     },
     /// A row has the wrong number of fields.
-    #[error("{path}: line {line}: expected {expected} fields, found {found} (ragged row)")]
+    #[error("{path}: line {line}: expected {expected} fields, found {found} (ragged row){hint}")]
     Ragged {
+        /// What the row suggests (an unclosed quote), or empty.
+        hint: String,
         /// File.
         path: PathBuf,
         /// 1-based line.

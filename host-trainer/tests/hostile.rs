@@ -270,3 +270,31 @@ fn sheet_channels_match_log_columns_without_case_and_mismatches_are_said() {
         ("Current", 0.0, 500.0, "mA")
     );
 }
+
+#[test]
+fn messages_say_what_is_really_wrong() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    for (name, bytes, says) in [
+        (
+            "semi.csv",
+            &b"a;b;label\n1;2;GO\n"[..],
+            "looks semicolon-separated",
+        ),
+        ("cr.csv", &b"a,b,label\r1,2,GO\r2,1,NO-GO\r"[..], "CR only"),
+        (
+            "tabs.csv",
+            &b"a\tb\tlabel\n1\t2\tGO\n"[..],
+            "name the file .tsv",
+        ),
+        (
+            "quote.csv",
+            &b"a,b,label\n1,2,GO\n\"3,1,NO-GO\n4,4,GO\n"[..],
+            "a quote opened here is never closed",
+        ),
+    ] {
+        write(d, name, bytes);
+        let err = exits(&linegate(&["check", name], d), 2);
+        assert!(err.contains(name) && err.contains(says), "{name}: {err}");
+    }
+}

@@ -53,7 +53,12 @@ impl Columns {
         let label = match pick(&opts.label, LABEL_NAMES)? {
             Some(l) => Some(l),
             None if opts.label_optional => None,
-            None => return Err(InputError::NoLabel { path: path.into() }),
+            None => {
+                return Err(InputError::NoLabel {
+                    path: path.into(),
+                    hint: header_hint(&names),
+                });
+            }
         };
         let unit = pick(&opts.unit_id, UNIT_NAMES)?;
         let time = pick(&opts.timestamp, TIME_NAMES)?;
@@ -195,4 +200,19 @@ pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, In
         .iter()
         .map(|&c| cols.names[c].clone())
         .collect())
+}
+
+/// Why a header may have no label column that a user would not guess: the file is
+/// separated by something else, or its line ends are CR only.
+fn header_hint(names: &[String]) -> String {
+    let all = names.join(",");
+    if all.contains('\r') {
+        "; the header holds a carriage return inside it: the line ends look like CR only, and a log needs LF or CR LF line ends".into()
+    } else if names.len() == 1 && all.contains(';') {
+        "; the header is one column holding ';': the file looks semicolon-separated, and a log is comma-separated (.csv) or tab-separated (.tsv, .tab)".into()
+    } else if names.len() == 1 && all.contains('\t') {
+        "; the header is one column holding tabs: name the file .tsv or .tab to read it tab-separated".into()
+    } else {
+        String::new()
+    }
 }

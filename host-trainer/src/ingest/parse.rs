@@ -75,6 +75,7 @@ impl Parser<'_> {
         }
         if f.len() != cols.names.len() {
             return Err(InputError::Ragged {
+                hint: String::new(),
                 path: path.into(),
                 line,
                 expected: cols.names.len(),
@@ -230,7 +231,15 @@ impl Parser<'_> {
         let parsed = match fields(strip_line_end(raw), self.delimiter, owned, ranges) {
             Ok(src) => {
                 let f = Fields { src, ranges };
-                self.record(&f, raw.len(), line, vals).and_then(|label| {
+                let read = self.record(&f, raw.len(), line, vals).map_err(|mut e| {
+                    if let InputError::Ragged { hint, .. } = &mut e
+                        && raw.iter().filter(|&&b| b == b'"').count() % 2 == 1
+                    {
+                        *hint = "; a quote opened here is never closed, so the rest of the file became this row".into();
+                    }
+                    e
+                });
+                read.and_then(|label| {
                     if let (Some(_), Some(scales)) = (label, self.scales) {
                         self.to_raw(scales, vals, raw_row, line)?;
                     }
