@@ -112,6 +112,13 @@ fn main() {
     let r2 = audit(&q, &fm, &ds, &[], &[], AuditConfig::default());
     let t_audit_par = t.elapsed().as_secs_f64();
     assert_eq!(r1.sets[0].flips, r2.sets[0].flips);
+    // The release step as audit and pack run it: quantise with the ±1 LSB margin search
+    // over the training log, then the audit; peak memory read after it.
+    let t = Instant::now();
+    let qs = quantise(&fm, Some(&ds), QuantConfig::default()).unwrap();
+    let t_quant = t.elapsed().as_secs_f64();
+    let _ = audit(&qs, &fm, &ds, &[], &[], AuditConfig::default());
+    let rss_release = peak_rss_mib();
 
     println!(
         "Linegate pipeline benchmark: {rows} units × {channels} channels ({:.0} MiB of CSV)",
@@ -129,6 +136,14 @@ fn main() {
     println!(
         "  peak memory                      {rss:8.1} MiB  (data as f32: {data_f32_mib:.1} MiB; ratio {:.2})",
         rss / data_f32_mib
+    );
+    println!(
+        "  quantise + margin search         {t_quant:8.3} s   ({} moves kept)",
+        qs.moves
+    );
+    println!(
+        "  peak memory after the release    {rss_release:8.1} MiB  (ratio {:.2} to the data as f32)",
+        rss_release / data_f32_mib
     );
     println!(
         "  audit, 1 thread                  {t_audit1:8.3} s   ({:.1} M units/s)",

@@ -17,6 +17,7 @@
 //! Maximising the margin alone would favour moves that merely scale the weights
 //! up, which widen the bound as fast as the margin.
 
+use rayon::prelude::*;
 use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
 
 use crate::ingest::dataset::Dataset;
@@ -317,17 +318,48 @@ fn search(
     bound: &Bound<'_>,
 ) -> (FixedModel, usize) {
     let d = ds.dim();
-    let mut rows: Vec<(f64, i8, Vec<i32>)> = correct
-        .iter()
-        .filter_map(|&i| {
+    // The search works on the units of smallest margin only. They are picked chunk by chunk
+    // (a linear selection per chunk, bounded memory), not by scaling and sorting every unit:
+    // the same units in the same order as a stable sort by margin would keep, since ties go
+    // by index.
+    const KEEP: usize = 4096;
+    let order = |a: &(f64, usize), b: &(f64, usize)| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1));
+    let smallest = |v: &mut Vec<(f64, usize)>| {
+        if v.len() > KEEP {
+            v.select_nth_unstable_by(KEEP, order);
+            v.truncate(KEEP);
+        }
+    };
+    let mut picked: Vec<(f64, usize)> = correct
+        .par_chunks(1 << 16)
+        .map(|chunk| {
             let mut x = vec![0i32; d];
-            m.scale(ds.raw_row(i), &mut x).ok()?;
-            let s = m.score_scaled(&x);
-            Some((fixed_margin(m.model(), s, ds.labels[i]), ds.labels[i], x))
+            let mut v: Vec<(f64, usize)> = chunk
+                .iter()
+                .filter_map(|&i| {
+                    m.scale(ds.raw_row(i), &mut x).ok()?;
+                    let s = m.score_scaled(&x);
+                    Some((fixed_margin(m.model(), s, ds.labels[i]), i))
+                })
+                .collect();
+            smallest(&mut v);
+            v
+        })
+        .reduce(Vec::new, |mut a, b| {
+            a.extend(b);
+            smallest(&mut a);
+            a
+        });
+    picked.sort_by(order);
+    let rows: Vec<(f64, i8, Vec<i32>)> = picked
+        .into_iter()
+        .map(|(mg, i)| {
+            let mut x = vec![0i32; d];
+            // These units scaled above, so they scale again.
+            let _ = m.scale(ds.raw_row(i), &mut x);
+            (mg, ds.labels[i], x)
         })
         .collect();
-    rows.sort_by(|a, b| a.0.total_cmp(&b.0));
-    rows.truncate(4096);
     let mut model = m.model().clone();
     let mut margins: Vec<f64> = rows.iter().map(|r| r.0).collect();
     let mut moves = 0;

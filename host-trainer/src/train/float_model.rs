@@ -229,11 +229,20 @@ impl FloatModel {
     /// was written, or a field out of its domain.
     pub fn read(path: &Path) -> Result<Self, InputError> {
         let text = crate::input::read_text(path, "float model file", crate::input::MAX_TEXT_FILE)?;
+        Self::from_text(path, &text)
+    }
+
+    /// Parses and checks the text of the model file `path` (named in errors), as
+    /// [`read`](Self::read) does.
+    ///
+    /// # Errors
+    /// As [`read`](Self::read), but for I/O.
+    pub fn from_text(path: &Path, text: &str) -> Result<Self, InputError> {
         let fmt = |message: String| InputError::Format {
             path: path.into(),
             message,
         };
-        let probe: serde_json::Value = serde_json::from_str(&text)
+        let probe: serde_json::Value = serde_json::from_str(text)
             .map_err(|e| fmt(format!("not a Linegate float model: {e}")))?;
         let (tag, version) = (probe.get("format"), probe.get("format_version"));
         if tag.and_then(|t| t.as_str()) != Some(FORMAT)
