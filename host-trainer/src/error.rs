@@ -119,7 +119,7 @@ pub enum InputError {
     },
     /// A reading is outside the channel's declared valid range.
     #[error(
-        "{path}: line {line}, column '{column}': {value} is outside the valid range [{min}, {max}] of the channel sheet"
+        "{path}: line {line}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)"
     )]
     OutOfRange {
         /// File.
