@@ -298,3 +298,82 @@ fn messages_say_what_is_really_wrong() {
         assert!(err.contains(name) && err.contains(says), "{name}: {err}");
     }
 }
+
+/// The blob and HEX image of a set in `d`: both or neither, and the image holds the blob.
+fn set_is_whole(d: &Path, stem: &str) -> bool {
+    let (blob, hex) = (d.join(format!("{stem}.lgb")), d.join(format!("{stem}.hex")));
+    match (blob.exists(), hex.exists()) {
+        (false, false) => true,
+        (true, true) => {
+            let img = host_trainer::release::hex::from_hex(&std::fs::read_to_string(&hex).unwrap());
+            img.is_ok_and(|(_, bytes)| bytes == std::fs::read(&blob).unwrap())
+        }
+        _ => false,
+    }
+}
+
+#[test]
+fn killed_and_concurrent_packs_leave_whole_sets_and_no_temporary_files() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    let pack = |bits: &str, out: &str| {
+        Command::new(env!("CARGO_BIN_EXE_linegate"))
+            .args([
+                "-q",
+                "pack",
+                "--model",
+                "demo/model.json",
+                "--train",
+                "demo/train-synthetic.csv",
+                "--apply-suggested-band",
+                "--weight-bits",
+                bits,
+                "-o",
+                out,
+                "--hex",
+                "0x3F000",
+                "--force",
+            ])
+            .current_dir(d)
+            .stdout(Stdio::null())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap()
+    };
+    // Killed at spread-out moments (kill -9): never a partial set.
+    for k in 0..30u64 {
+        let mut child = pack("16", "out/k.lgb");
+        std::thread::sleep(std::time::Duration::from_millis(k * 7 % 120));
+        let _ = child.kill();
+        let _ = child.wait();
+        assert!(set_is_whole(&d.join("out"), "k"), "run {k}: partial set");
+    }
+    // The next run clears what killed runs left behind.
+    assert!(pack("16", "out/k.lgb").wait().unwrap().success());
+    let left: Vec<String> = std::fs::read_dir(d.join("out"))
+        .unwrap()
+        .flatten()
+        .map(|e| e.file_name().to_string_lossy().into_owned())
+        .collect();
+    assert!(
+        left.iter().all(|n| n == "k.lgb" || n == "k.hex"),
+        "{left:?}"
+    );
+    // Two packs of different blobs into the same paths at once: the set is one run's.
+    for _ in 0..10 {
+        let (mut a, mut b) = (pack("8", "c/m.lgb"), pack("16", "c/m.lgb"));
+        let (ra, rb) = (a.wait().unwrap(), b.wait().unwrap());
+        assert!(ra.success() || rb.success());
+        if !(ra.success() && rb.success()) {
+            let mut err = String::new();
+            let loser = if ra.success() { &mut b } else { &mut a };
+            std::io::Read::read_to_string(loser.stderr.as_mut().unwrap(), &mut err).unwrap();
+            assert!(
+                err.contains("another linegate run is writing into this folder"),
+                "{err}"
+            );
+        }
+        assert!(set_is_whole(&d.join("c"), "m"), "mixed set");
+    }
+}
