@@ -2,11 +2,14 @@
 
 use shared_model::{CheckedModel, Decision, DecodeError, Fault, blob};
 
+use crate::ReleaseKey;
+
 /// A validated model, ready to classify.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct Classifier {
     model: CheckedModel,
     blob_id: u32,
+    key_id: Option<[u8; blob::KEY_ID_LEN]>,
 }
 
 impl Classifier {
@@ -18,16 +21,39 @@ impl Classifier {
     /// # Errors
     /// Any [`DecodeError`]: the device must then hold NO-GO.
     pub fn from_flash(region: &[u8]) -> Result<Self, DecodeError> {
+        Self::load(region, None)
+    }
+
+    /// Validates the blob in a flash region and requires its signature to verify against
+    /// `key`: a version-1 (unsigned) blob, another key's blob or a bad signature is refused.
+    ///
+    /// # Errors
+    /// Any [`DecodeError`], including [`DecodeError::Unsigned`],
+    /// [`DecodeError::UnknownKey`] and [`DecodeError::BadSignature`].
+    pub fn from_flash_signed(region: &[u8], key: &ReleaseKey) -> Result<Self, DecodeError> {
+        Self::load(region, Some(key))
+    }
+
+    /// Validates a blob in `region`, checking its signature first when `key` is given.
+    pub(crate) fn load(region: &[u8], key: Option<&ReleaseKey>) -> Result<Self, DecodeError> {
         let header = blob::Header::read(region)?;
-        let len = blob::HEADER_LEN + usize::from(header.payload_len) + blob::CRC_LEN;
+        let len = header.blob_len();
         let bytes = region.get(..len).ok_or(DecodeError::Truncated {
             needed: len,
             got: region.len(),
         })?;
+        if let Some(k) = key {
+            k.verify(bytes)?;
+        }
         let model = blob::decode(bytes)?;
         // decode proved the length, so the id is there; 0 is never reached.
         let blob_id = blob::blob_id(bytes).unwrap_or(0);
-        Ok(Self { model, blob_id })
+        let key_id = blob::signature(bytes).map(|s| s.key_id);
+        Ok(Self {
+            model,
+            blob_id,
+            key_id,
+        })
     }
 
     /// Classifies one reading per channel with the shared kernel.
@@ -51,6 +77,12 @@ impl Classifier {
     /// The blob id (its CRC-32, see `shared_model::blob::blob_id`), for logs.
     pub fn blob_id(&self) -> u32 {
         self.blob_id
+    }
+
+    /// The id of the key that signed the blob, for a signed blob (checked only when the
+    /// classifier was loaded with [`from_flash_signed`](Self::from_flash_signed)).
+    pub fn key_id(&self) -> Option<[u8; blob::KEY_ID_LEN]> {
+        self.key_id
     }
 
     /// The validated model.

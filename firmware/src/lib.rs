@@ -5,6 +5,8 @@
 //!
 //! - [`Classifier`]: a model blob validated once at start-up
 //!   ([`shared_model::blob::decode`]); afterwards classification cannot panic.
+//! - [`ReleaseKey`]: with one, only a blob signed by its owner (Ed25519, format
+//!   version 2) is accepted; verified once at load, never per unit.
 //! - [`SensorSource`]: what a board implements to fill one raw reading per channel.
 //! - [`GoNoGoLines`]: the output driver, generic over embedded-hal 1.0
 //!   [`OutputPin`](embedded_hal::digital::OutputPin)s. It owns its pins and
@@ -35,11 +37,13 @@
 
 mod classifier;
 mod driver;
+mod release_key;
 mod sensor;
 mod station;
 
 pub use classifier::Classifier;
 pub use driver::GoNoGoLines;
+pub use release_key::{ReleaseKey, key_id};
 pub use sensor::SensorSource;
 pub use shared_model::{Decision, DecodeError, Fault, Verdict};
 pub use station::{Station, StationFault, Step};

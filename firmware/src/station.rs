@@ -4,7 +4,7 @@ use embedded_hal::digital::OutputPin;
 use heapless::Vec;
 use shared_model::{Decision, DecodeError, Fault, MAX_CHANNELS};
 
-use crate::{Classifier, GoNoGoLines, SensorSource};
+use crate::{Classifier, GoNoGoLines, ReleaseKey, SensorSource};
 
 /// Why a step showed NO-GO without classifying.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -37,6 +37,8 @@ pub struct Station<S: SensorSource, G, N, R> {
     sensor: S,
     lines: GoNoGoLines<G, N, R>,
     last_fault: Option<StationFault<S::Error>>,
+    /// With a key, only blobs signed with it load (at start-up and on every reload).
+    key: Option<ReleaseKey>,
 }
 
 impl<S, G, N, R, E> Station<S, G, N, R>
@@ -51,11 +53,24 @@ where
     ///
     /// `lines` are already in the safe state ([`GoNoGoLines::new`]).
     pub fn new(flash: &[u8], sensor: S, lines: GoNoGoLines<G, N, R>) -> Self {
+        Self::with_key(flash, None, sensor, lines)
+    }
+
+    /// As [`new`](Self::new), but a blob must be signed with `key` (a signed-release
+    /// build): an unsigned blob, another key's blob or a bad signature holds NO-GO like a
+    /// bad CRC. `None` accepts unsigned and signed blobs alike, without checking.
+    pub fn with_key(
+        flash: &[u8],
+        key: Option<ReleaseKey>,
+        sensor: S,
+        lines: GoNoGoLines<G, N, R>,
+    ) -> Self {
         Self {
-            classifier: Classifier::from_flash(flash),
+            classifier: Classifier::load(flash, key.as_ref()),
             sensor,
             lines,
             last_fault: None,
+            key,
         }
     }
 
@@ -66,7 +81,7 @@ where
     /// # Errors
     /// A pin error while showing NO-GO for the new model.
     pub fn reload(&mut self, flash: &[u8]) -> Result<(), E> {
-        self.classifier = Classifier::from_flash(flash);
+        self.classifier = Classifier::load(flash, self.key.as_ref());
         self.lines.safe()
     }
 

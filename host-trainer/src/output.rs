@@ -23,12 +23,21 @@ const TMP_PREFIX: &str = ".linegate-tmp-";
 #[derive(Default)]
 pub struct OutputSet {
     files: Vec<(PathBuf, Vec<u8>)>,
+    /// Files only the owner may read (private keys): created 0600.
+    private: Vec<PathBuf>,
 }
 
 impl OutputSet {
     /// Queues a file.
     pub fn add(&mut self, path: impl Into<PathBuf>, bytes: impl Into<Vec<u8>>) {
         self.files.push((path.into(), bytes.into()));
+    }
+
+    /// Queues a file only its owner may read (mode 0600 whatever the umask): a private key.
+    pub fn add_private(&mut self, path: impl Into<PathBuf>, bytes: impl Into<Vec<u8>>) {
+        let path = path.into();
+        self.private.push(path.clone());
+        self.files.push((path, bytes.into()));
     }
 
     /// Paths queued, in order.
@@ -70,7 +79,7 @@ impl OutputSet {
             }
         };
         for (k, (path, bytes)) in self.files.iter().enumerate() {
-            match write_temp(path, k, bytes) {
+            match write_temp(path, k, bytes, self.private.contains(path)) {
                 Ok(tmp) => temps.push((tmp, path)),
                 Err(e) => {
                     undo(&temps, 0);
@@ -135,7 +144,7 @@ fn remove_stale(dir: &Path) {
 }
 
 /// Writes `bytes` to a new temporary file beside `path` and syncs it.
-fn write_temp(path: &Path, k: usize, bytes: &[u8]) -> Result<PathBuf, OutputError> {
+fn write_temp(path: &Path, k: usize, bytes: &[u8], private: bool) -> Result<PathBuf, OutputError> {
     let name = path
         .file_name()
         .map_or_else(|| "out".into(), |n| n.to_string_lossy().into_owned());
@@ -150,7 +159,7 @@ fn write_temp(path: &Path, k: usize, bytes: &[u8]) -> Result<PathBuf, OutputErro
     {
         use std::os::unix::fs::OpenOptionsExt;
         // 0666 less the umask, as any tool creates files (tempfile's default is 0600).
-        opts.mode(0o666);
+        opts.mode(if private { 0o600 } else { 0o666 });
     }
     let result = opts.open(&tmp).and_then(|mut f| {
         f.write_all(bytes)?;

@@ -906,3 +906,114 @@ fn replay_scores_new_units_without_a_label_column() {
     exits(&o, 2);
     assert!(String::from_utf8_lossy(&o.stderr).contains("label"));
 }
+
+#[test]
+fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhere() {
+    use std::os::unix::fs::PermissionsExt;
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    let o = linegate(&["key", "new", "-o", "owner"], d);
+    exits(&o, 0);
+    let secret = std::fs::read_to_string(d.join("owner.key")).unwrap();
+    let hex = secret
+        .lines()
+        .find_map(|l| l.strip_prefix("ed25519-secret "))
+        .unwrap();
+    assert!(
+        !String::from_utf8_lossy(&o.stdout).contains(hex),
+        "the private key is never printed"
+    );
+    let mode = std::fs::metadata(d.join("owner.key"))
+        .unwrap()
+        .permissions()
+        .mode()
+        & 0o777;
+    assert_eq!(mode, 0o600);
+    exits(&linegate(&["-q", "key", "new", "-o", "stranger"], d), 0);
+    let release = |extra: &[&str]| {
+        let mut a = vec![
+            "--model",
+            "demo/model.json",
+            "--train",
+            "demo/train-synthetic.csv",
+            "--apply-suggested-band",
+            "--apply-recommended-format",
+            "--sign",
+            "owner.key",
+        ];
+        a.extend_from_slice(extra);
+        a.iter().map(|s| s.to_string()).collect::<Vec<_>>()
+    };
+    let run = |args: Vec<String>| {
+        let v: Vec<&str> = args.iter().map(String::as_str).collect();
+        linegate(&v, d)
+    };
+    let mut a = vec!["pack".to_string()];
+    a.extend(release(&["-o", "signed.lgb"]));
+    exits(&run(a.clone()), 0);
+    let mut a2 = vec!["pack".to_string()];
+    a2.extend(release(&["-o", "again.lgb"]));
+    exits(&run(a2), 0);
+    assert_eq!(
+        std::fs::read(d.join("signed.lgb")).unwrap(),
+        std::fs::read(d.join("again.lgb")).unwrap(),
+        "signing is deterministic"
+    );
+    let mut au = vec!["audit".to_string()];
+    au.extend(release(&["--report-dir", "rep"]));
+    exits(&run(au), 0);
+    let o = linegate(
+        &[
+            "inspect",
+            "signed.lgb",
+            "--public-key",
+            "owner.pub",
+            "--report",
+            "rep/audit.json",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    let out = String::from_utf8_lossy(&o.stdout);
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.join("rep/audit.json")).unwrap()).unwrap();
+    let key_id = report["key_id"].as_str().unwrap();
+    assert!(
+        out.contains(&format!("signed: key id {key_id}")) && out.contains("signature valid"),
+        "{out}"
+    );
+    // Another key's public file, an unsigned blob: exit 1.
+    exits(
+        &linegate(
+            &["inspect", "signed.lgb", "--public-key", "stranger.pub"],
+            d,
+        ),
+        1,
+    );
+    let o = linegate(
+        &["inspect", "demo/model.lgb", "--public-key", "owner.pub"],
+        d,
+    );
+    exits(&o, 1);
+    assert!(String::from_utf8_lossy(&o.stderr).contains("not signed"));
+    // Replay names the key, as the device does.
+    let o = linegate(
+        &[
+            "replay",
+            "--blob",
+            "signed.lgb",
+            "--model",
+            "demo/model.json",
+            "demo/holdout-synthetic.csv",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    let first = String::from_utf8_lossy(&o.stdout)
+        .lines()
+        .next()
+        .unwrap()
+        .to_string();
+    assert!(first.ends_with(&format!(" key {key_id}")), "{first}");
+}

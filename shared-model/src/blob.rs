@@ -17,7 +17,8 @@
 use crate::error::{DecodeError, EncodeError};
 use crate::limits::MAX_CHANNELS;
 pub use crate::limits::{
-    CRC_LEN, FORMAT_VERSION, HEADER_LEN, MAGIC, MAX_BLOB_LEN, MAX_PAYLOAD_LEN,
+    CRC_LEN, FORMAT_VERSION, HEADER_LEN, KEY_ID_LEN, MAGIC, MAX_BLOB_LEN, MAX_PAYLOAD_LEN,
+    SIGNATURE_LEN, SIGNATURE_SECTION_LEN, SIGNED_VERSION,
 };
 use crate::model::{CheckedModel, FixedModel};
 
@@ -43,10 +44,60 @@ pub const CRC32: crc::Crc<u32, crc::NoTable> =
 /// assert_eq!(blob::blob_id(&buf[..n]), Some(crc));
 /// ```
 pub fn blob_id(blob: &[u8]) -> Option<u32> {
-    if blob.len() < HEADER_LEN + CRC_LEN {
+    let h = Header::read(blob).ok()?;
+    let at = HEADER_LEN + usize::from(h.payload_len);
+    let crc: &[u8; CRC_LEN] = blob.get(at..at + CRC_LEN)?.try_into().ok()?;
+    Some(u32::from_le_bytes(*crc))
+}
+
+/// The signature section of a version-2 blob, and the bytes it signs.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Signed<'a> {
+    /// Which key signed: the first 8 bytes of SHA-512 of its 32-byte public key.
+    pub key_id: [u8; KEY_ID_LEN],
+    /// The Ed25519 signature (RFC 8032) over `signed`.
+    pub signature: [u8; SIGNATURE_LEN],
+    /// Every byte before the signature: header, payload, CRC and key id.
+    pub signed: &'a [u8],
+}
+
+/// The signature section of `blob`, or `None` if it is not a whole version-2 blob. The
+/// signature is not checked here: that needs the public key (firmware, `linegate inspect`).
+pub fn signature(blob: &[u8]) -> Option<Signed<'_>> {
+    let h = Header::read(blob).ok()?;
+    if h.version != SIGNED_VERSION || blob.len() != h.blob_len() {
         return None;
     }
-    blob.last_chunk::<CRC_LEN>().map(|b| u32::from_le_bytes(*b))
+    let crc_end = HEADER_LEN + usize::from(h.payload_len) + CRC_LEN;
+    let key_id = blob.get(crc_end..crc_end + KEY_ID_LEN)?.try_into().ok()?;
+    let signed = blob.get(..crc_end + KEY_ID_LEN)?;
+    let signature = blob.get(crc_end + KEY_ID_LEN..)?.try_into().ok()?;
+    Some(Signed {
+        key_id,
+        signature,
+        signed,
+    })
+}
+
+/// Writes a version-2 blob for `model` up to and including `key_id` into `out` and
+/// returns that length: the bytes to sign. The caller writes the 64-byte signature
+/// right after them, at `out[n..n + SIGNATURE_LEN]`.
+///
+/// # Errors
+/// [`EncodeError::BufferTooSmall`] if `out` cannot hold the whole signed blob.
+pub fn encode_for_signing(
+    model: &CheckedModel,
+    key_id: [u8; KEY_ID_LEN],
+    out: &mut [u8],
+) -> Result<usize, EncodeError> {
+    let n = encode_version(model, SIGNED_VERSION, out)?;
+    out.get_mut(n..n + KEY_ID_LEN)
+        .ok_or(EncodeError::BufferTooSmall)?
+        .copy_from_slice(&key_id);
+    if out.len() < n + SIGNATURE_SECTION_LEN {
+        return Err(EncodeError::BufferTooSmall);
+    }
+    Ok(n + KEY_ID_LEN)
 }
 
 /// Writes the blob for `model` into `out` and returns its length.
@@ -55,6 +106,15 @@ pub fn blob_id(blob: &[u8]) -> Option<u32> {
 /// [`EncodeError::BufferTooSmall`] if `out` is shorter than the blob; a
 /// buffer of [`MAX_BLOB_LEN`] bytes always suffices.
 pub fn encode(model: &CheckedModel, out: &mut [u8]) -> Result<usize, EncodeError> {
+    encode_version(model, FORMAT_VERSION, out)
+}
+
+/// Header, payload and CRC with the given version number.
+fn encode_version(
+    model: &CheckedModel,
+    version: u16,
+    out: &mut [u8],
+) -> Result<usize, EncodeError> {
     let (header, rest) = out
         .split_at_mut_checked(HEADER_LEN)
         .ok_or(EncodeError::BufferTooSmall)?;
@@ -64,7 +124,7 @@ pub fn encode(model: &CheckedModel, out: &mut [u8]) -> Result<usize, EncodeError
     let len16 = u16::try_from(n).map_err(|_| EncodeError::BufferTooSmall)?;
     let count = u8::try_from(model.channel_count()).map_err(|_| EncodeError::BufferTooSmall)?;
     let [m0, m1, m2, m3] = MAGIC;
-    let [v0, v1] = FORMAT_VERSION.to_le_bytes();
+    let [v0, v1] = version.to_le_bytes();
     let [l0, l1] = len16.to_le_bytes();
     header.copy_from_slice(&[m0, m1, m2, m3, v0, v1, count, l0, l1]);
     let body_len = HEADER_LEN + n;
@@ -88,25 +148,33 @@ pub fn encode(model: &CheckedModel, out: &mut [u8]) -> Result<usize, EncodeError
 pub fn decode(bytes: &[u8]) -> Result<CheckedModel, DecodeError> {
     let header = Header::read(bytes)?;
     let body_len = HEADER_LEN + usize::from(header.payload_len);
-    let (body, crc_bytes) = bytes
+    let total = header.blob_len();
+    if bytes.len() < total {
+        return Err(DecodeError::Truncated {
+            needed: total,
+            got: bytes.len(),
+        });
+    }
+    if bytes.len() > total {
+        return Err(DecodeError::TrailingBytes {
+            expected: total,
+            got: bytes.len(),
+        });
+    }
+    let (body, rest) = bytes
         .split_at_checked(body_len)
         .ok_or(DecodeError::Truncated {
-            needed: body_len + CRC_LEN,
+            needed: total,
             got: bytes.len(),
         })?;
-    let stored = u32::from_le_bytes(crc_bytes.try_into().map_err(|_| {
-        if crc_bytes.len() < CRC_LEN {
-            DecodeError::Truncated {
-                needed: body_len + CRC_LEN,
+    let crc_bytes: &[u8; CRC_LEN] =
+        rest.get(..CRC_LEN)
+            .and_then(|c| c.try_into().ok())
+            .ok_or(DecodeError::Truncated {
+                needed: total,
                 got: bytes.len(),
-            }
-        } else {
-            DecodeError::TrailingBytes {
-                expected: body_len + CRC_LEN,
-                got: bytes.len(),
-            }
-        }
-    })?);
+            })?;
+    let stored = u32::from_le_bytes(*crc_bytes);
     let computed = CRC32.checksum(body);
     if stored != computed {
         return Err(DecodeError::CrcMismatch { stored, computed });
@@ -134,6 +202,17 @@ pub struct Header {
 }
 
 impl Header {
+    /// The whole blob's length: header, payload, CRC, and for version 2 the signature
+    /// section.
+    pub fn blob_len(&self) -> usize {
+        let unsigned = HEADER_LEN + usize::from(self.payload_len) + CRC_LEN;
+        if self.version == SIGNED_VERSION {
+            unsigned + SIGNATURE_SECTION_LEN
+        } else {
+            unsigned
+        }
+    }
+
     /// Reads and checks the header: length, magic, version, channel capacity.
     ///
     /// # Errors
@@ -154,7 +233,7 @@ impl Header {
             .ok_or(truncated)?;
         let [_, _, _, _, v0, v1, channel_count, l0, l1] = *h;
         let version = u16::from_le_bytes([v0, v1]);
-        if version != FORMAT_VERSION {
+        if version != FORMAT_VERSION && version != SIGNED_VERSION {
             return Err(DecodeError::UnsupportedVersion(version));
         }
         if usize::from(channel_count) > MAX_CHANNELS {
@@ -280,14 +359,56 @@ mod tests {
         assert!(matches!(decode(&b), Err(DecodeError::TrailingBytes { .. })));
         b.pop();
         let mut v = b.clone();
-        v[4] = 2;
-        assert_eq!(decode(&v), Err(DecodeError::UnsupportedVersion(2)));
+        v[4] = 3;
+        assert_eq!(decode(&v), Err(DecodeError::UnsupportedVersion(3)));
+        // Version 2 declares a signature section the bytes do not have.
+        let mut v2 = b.clone();
+        v2[4] = 2;
+        assert!(matches!(decode(&v2), Err(DecodeError::Truncated { .. })));
         let mut c = b.clone();
         c[6] = 33;
         assert_eq!(decode(&c), Err(DecodeError::ChannelOverCapacity(33)));
         let mut m = b;
         m[0] = b'X';
         assert_eq!(decode(&m), Err(DecodeError::BadMagic));
+    }
+
+    #[test]
+    fn a_signed_blob_is_version_1_bytes_then_key_id_then_signature() {
+        let m = model_with(3, 16);
+        let plain = encoded(&m);
+        let mut buf = [0u8; MAX_BLOB_LEN];
+        let key_id = [1, 2, 3, 4, 5, 6, 7, 8];
+        let n = encode_for_signing(&m, key_id, &mut buf).unwrap();
+        // Same bytes but the version, and a CRC over them; then the key id.
+        assert_eq!(n, plain.len() + KEY_ID_LEN);
+        assert_eq!(buf[4..6], SIGNED_VERSION.to_le_bytes());
+        assert_eq!(
+            buf[6..plain.len() - CRC_LEN],
+            plain[6..plain.len() - CRC_LEN]
+        );
+        assert_eq!(buf[plain.len()..n], key_id);
+        buf[n..n + SIGNATURE_LEN].copy_from_slice(&[0xAB; SIGNATURE_LEN]);
+        let blob = &buf[..n + SIGNATURE_LEN];
+        assert_eq!(decode(blob).unwrap().model(), m.model());
+        let s = signature(blob).unwrap();
+        assert_eq!(
+            (s.key_id, s.signature, s.signed),
+            (key_id, [0xAB; SIGNATURE_LEN], &blob[..n])
+        );
+        let crc = CRC32.checksum(&blob[..plain.len() - CRC_LEN]);
+        assert_eq!(blob_id(blob), Some(crc));
+        assert!(
+            signature(&plain).is_none(),
+            "a version-1 blob has no signature"
+        );
+        let mut longer = blob.to_vec();
+        longer.push(0);
+        assert!(matches!(
+            decode(&longer),
+            Err(DecodeError::TrailingBytes { .. })
+        ));
+        assert!(signature(&longer).is_none());
     }
 
     /// Re-seals a header + payload with a correct CRC, to reach the checks behind the CRC.

@@ -134,6 +134,12 @@ pub enum DecodeError {
     InconsistentLengths,
     /// The payload parsed but the model is not valid.
     Invalid(ModelError),
+    /// A signature is required and the blob has none (a version-1 blob).
+    Unsigned,
+    /// The blob is signed by a key this device does not hold.
+    UnknownKey,
+    /// The signature does not verify over the blob's bytes.
+    BadSignature,
 }
 
 impl fmt::Display for DecodeError {
@@ -145,8 +151,9 @@ impl fmt::Display for DecodeError {
             Self::BadMagic => f.write_str("not a Linegate model blob (bad magic)"),
             Self::UnsupportedVersion(v) => write!(
                 f,
-                "blob format version {v} is not supported by this build (reads version {})",
-                crate::limits::FORMAT_VERSION
+                "blob format version {v} is not supported by this build (reads versions {} and {})",
+                crate::limits::FORMAT_VERSION,
+                crate::limits::SIGNED_VERSION
             ),
             Self::TrailingBytes { expected, got } => {
                 write!(
@@ -166,6 +173,11 @@ impl fmt::Display for DecodeError {
             Self::MalformedPayload => f.write_str("blob payload is malformed"),
             Self::InconsistentLengths => f.write_str("blob header and payload disagree on lengths"),
             Self::Invalid(e) => write!(f, "blob holds an invalid model: {e}"),
+            Self::Unsigned => f.write_str("blob is not signed, and a signature is required"),
+            Self::UnknownKey => f.write_str("blob is signed by a key this device does not accept"),
+            Self::BadSignature => {
+                f.write_str("blob signature does not verify (the blob was changed after signing)")
+            }
         }
     }
 }

@@ -12,8 +12,16 @@ pub const NAME_CAPACITY: usize = 24;
 
 /// The four bytes every Linegate blob starts with.
 pub const MAGIC: [u8; 4] = *b"LGMB";
-/// The blob layout version this build writes and reads.
+/// The blob layout version of an unsigned blob.
 pub const FORMAT_VERSION: u16 = 1;
+/// The blob layout version of a signed blob: version 1's bytes, then a signature section.
+pub const SIGNED_VERSION: u16 = 2;
+/// Bytes of a key id: the first 8 bytes of SHA-512 of the 32-byte Ed25519 public key.
+pub const KEY_ID_LEN: usize = 8;
+/// Bytes of an Ed25519 signature (RFC 8032).
+pub const SIGNATURE_LEN: usize = 64;
+/// Bytes of the signature section of a version-2 blob: key id, then signature.
+pub const SIGNATURE_SECTION_LEN: usize = KEY_ID_LEN + SIGNATURE_LEN;
 /// Bytes before the payload: magic, version, channel count, payload length.
 pub const HEADER_LEN: usize = 9;
 /// Bytes of the trailing CRC-32.
@@ -21,5 +29,5 @@ pub const CRC_LEN: usize = 4;
 /// Largest payload a valid model can need (every varint at its longest, every name full).
 pub const MAX_PAYLOAD_LEN: usize =
     16 + 5 + 3 * 10 + 1 + MAX_CHANNELS * (1 + NAME_CAPACITY + 5 * 5 + 1);
-/// A buffer of this size holds any blob.
-pub const MAX_BLOB_LEN: usize = HEADER_LEN + MAX_PAYLOAD_LEN + CRC_LEN;
+/// A buffer of this size holds any blob, signed or not.
+pub const MAX_BLOB_LEN: usize = HEADER_LEN + MAX_PAYLOAD_LEN + CRC_LEN + SIGNATURE_SECTION_LEN;

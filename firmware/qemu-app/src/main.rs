@@ -37,7 +37,14 @@ fn main() -> ! {
         for b in c.model_id() {
             hprint!("{:02x}", b);
         }
-        hprintln!(" blob {:08x}", c.blob_id());
+        hprint!(" blob {:08x}", c.blob_id());
+        if let Some(k) = c.key_id() {
+            hprint!(" key ");
+            for b in k {
+                hprint!("{:02x}", b);
+            }
+        }
+        hprintln!();
     }
     if let Err(e) = station.classifier() {
         let _ = station.step();

@@ -10,6 +10,7 @@ use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::release::audit::{self, AuditConfig, Limit};
 use host_trainer::release::quantise::{QuantConfig, Quantised};
+use host_trainer::release::sign;
 use host_trainer::train::float_model::FloatModel;
 use host_trainer::workflow;
 
@@ -135,6 +136,11 @@ pub struct ReleaseArgs {
     /// --weight-bits/--input-bits; the report records them.
     #[arg(long)]
     pub apply_recommended_format: bool,
+    /// Sign the blob with this private key file (from `linegate key new`): a version-2
+    /// blob that a device built with the matching public key requires. The audit report
+    /// then records the key id and the signed blob's SHA-256.
+    #[arg(long, value_name = "KEY_FILE")]
+    pub sign: Option<PathBuf>,
 }
 
 /// What `audit` and `pack` work from.
@@ -148,6 +154,8 @@ pub struct Release {
     pub ac: AuditConfig,
     pub apply: audit::Apply,
     pub quiet: bool,
+    /// The release key, when the blob is to be signed.
+    pub signer: Option<ed25519_dalek::SigningKey>,
 }
 
 impl Release {
@@ -174,7 +182,24 @@ impl Release {
             }
         }
         self.qc = done.qc;
-        Ok((done.q, done.report))
+        let mut report = done.report;
+        if let Some(k) = &self.signer {
+            // The report names the blob pack writes: signed, with its key.
+            let mark = if report.passed {
+                shared_model::AuditMark::Passed
+            } else {
+                shared_model::AuditMark::Overridden
+            };
+            let signed = sign::signed_blob(&audit::mark(&done.q.model, mark), k);
+            report.blob_sha256 = host_trainer::digest::sha256_hex(&signed);
+            report.blob_id = shared_model::blob::blob_id(&signed)
+                .map_or(String::new(), |id| format!("{id:08x}"));
+            report.blob_bytes = signed.len();
+            report.key_id = Some(host_trainer::digest::lower_hex(&sign::key_id(
+                &k.verifying_key(),
+            )));
+        }
+        Ok((done.q, report))
     }
 }
 
@@ -261,5 +286,6 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
             suggested_band: r.apply_suggested_band,
         },
         quiet,
+        signer: r.sign.as_deref().map(sign::read_secret).transpose()?,
     })
 }

@@ -20,6 +20,11 @@ pub struct InspectArgs {
     /// Check the blob matches this audit report (audit.json).
     #[arg(long)]
     pub report: Option<PathBuf>,
+    /// Require a valid signature by this public key file (from `linegate key new`), as a
+    /// device built with it does; exit 1 if the blob is unsigned, signed by another key, or
+    /// changed after signing.
+    #[arg(long, value_name = "PUB_FILE")]
+    pub public_key: Option<PathBuf>,
     /// Print JSON.
     #[arg(long)]
     pub json: bool,
@@ -32,9 +37,17 @@ impl InspectArgs {
             blob,
             model,
             report: rep,
+            public_key,
             json,
         } = self;
-        inspect(blob, model.as_deref(), rep.as_deref(), *json, quiet)?;
+        inspect(
+            blob,
+            model.as_deref(),
+            rep.as_deref(),
+            public_key.as_deref(),
+            *json,
+            quiet,
+        )?;
         Ok(())
     }
 }
@@ -43,6 +56,7 @@ fn inspect(
     path: &Path,
     model: Option<&Path>,
     rep: Option<&Path>,
+    public_key: Option<&Path>,
     json: bool,
     quiet: bool,
 ) -> Result<()> {
@@ -130,6 +144,21 @@ fn inspect(
                     c.weight
                 );
             }
+        }
+    }
+    if !quiet && !json {
+        match (&ins.key_id, ins.version) {
+            (Some(k), _) => say!("signed: key id {k}"),
+            (None, Some(1)) => say!("unsigned (format version 1)"),
+            _ => {}
+        }
+    }
+    if let Some(p) = public_key {
+        let key = host_trainer::release::sign::read_public(p)?;
+        host_trainer::release::sign::verify(&bytes, &key)
+            .map_err(|e| CheckFailed(format!("{}: {e} ({})", path.display(), p.display())))?;
+        if !quiet && !json {
+            say!("signature valid for {}", p.display());
         }
     }
     let m = decoded.map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;

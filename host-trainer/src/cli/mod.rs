@@ -29,6 +29,7 @@ mod check;
 mod demo;
 mod generate;
 mod inspect;
+mod key;
 mod pack;
 mod replay;
 mod train;
@@ -101,6 +102,8 @@ pub enum Cmd {
     /// Run the whole job on built-in synthetic data (an invented fan-module test station).
     #[command(after_help = "Example:\n  linegate demo --out linegate-demo")]
     Demo(demo::DemoArgs),
+    /// Create the owner's release key pair, to sign model blobs that devices then require.
+    Key(key::KeyArgs),
 }
 
 /// An error that means "a check failed" (exit 1) rather than a usage problem (exit 2).
@@ -211,5 +214,6 @@ pub fn run(cli: &Cli) -> Result<()> {
         Cmd::Replay(a) => a.run(quiet),
         Cmd::Generate(a) => a.run(quiet),
         Cmd::Demo(a) => a.run(quiet),
+        Cmd::Key(a) => a.run(quiet),
     }
 }

@@ -46,7 +46,7 @@ impl PackArgs {
         } = self;
         let mut rel = release_inputs(release, quiet)?;
         let (q, r) = rel.run()?;
-        let fm = rel.fm;
+        let (fm, signer) = (rel.fm, rel.signer);
         let mark = match (r.passed, override_audit) {
                 (true, _) => shared_model::AuditMark::Passed,
                 (false, true) => shared_model::AuditMark::Overridden,
@@ -55,7 +55,10 @@ impl PackArgs {
                 }
             };
         let model = audit::mark(&q.model, mark);
-        let blob = pack::blob_bytes(&model);
+        let blob = match &signer {
+            Some(k) => host_trainer::release::sign::signed_blob(&model, k),
+            None => pack::blob_bytes(&model),
+        };
         let mut set = OutputSet::default();
         set.add(output, blob.clone());
         if let Some(a) = hex_addr {

@@ -52,9 +52,9 @@ impl ReplayArgs {
         let m = shared_model::blob::decode(&bytes)
             .map_err(|e| anyhow::anyhow!("{}: {e}", blob.display()))?;
         // Streams: a log of any length, one line out per unit in.
-        let id = shared_model::blob::blob_id(&bytes).unwrap_or(0);
-        let mut vec_text = vectors.as_ref().map(|_| replay::model_line(&m, id));
-        say_raw!("{}", replay::model_line(&m, id));
+        let line = replay::model_line(&m, &bytes);
+        let mut vec_text = vectors.as_ref().map(|_| line.clone());
+        say_raw!("{line}");
         let mut index = 0usize;
         let mut skipped = host_trainer::ingest::SkipReport::default();
         // Lines are written in 64 KiB batches: one write per unit would be a system call

@@ -289,6 +289,8 @@ pub struct AuditReport {
     pub blob_sha256: String,
     /// That blob's id (its CRC-32, eight hex digits), as the device prints it.
     pub blob_id: String,
+    /// The release key's id when the blob is signed (`--sign`), hex.
+    pub key_id: Option<String>,
     /// Input word bits.
     pub input_bits: u8,
     /// Weight word bits.
@@ -711,6 +713,7 @@ pub fn audit(
         model_sha256: fm.content_digest(),
         blob_sha256: crate::digest::sha256_hex(&packed),
         blob_id: blob::blob_id(&packed).map_or(String::new(), |id| format!("{id:08x}")),
+        key_id: None,
         input_bits: m.input_bits,
         weight_bits: m.weight_bits,
         weight_frac_bits: m.weight_frac_bits,

@@ -3,10 +3,12 @@
 //! [`quantise`] turns the float model into integer weights, conversions and thresholds;
 //! [`audit`] runs `shared_model`'s kernel (the code the firmware runs) over every unit and
 //! proves the rounding bound; [`pack`] writes the blob and inspects one; [`hex`] writes and
-//! reads Intel HEX images; [`replay`] prints the lines the device prints.
+//! reads Intel HEX images; [`replay`] prints the lines the device prints; [`sign`] holds the
+//! owner's release key and signs blobs (format version 2).
 
 pub mod audit;
 pub mod hex;
 pub mod pack;
 pub mod quantise;
 pub mod replay;
+pub mod sign;

@@ -30,6 +30,8 @@ pub struct Inspection {
     pub blob_id: Option<String>,
     /// SHA-256 of the blob's bytes, hex (what an audit report records of the blob).
     pub sha256: String,
+    /// The signing key's id, for a signed (version-2) blob.
+    pub key_id: Option<String>,
     /// Audit mark.
     pub audit: Option<String>,
     /// Input word bits.
@@ -77,6 +79,7 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) 
         model_id: None,
         blob_id: None,
         sha256: crate::digest::sha256_hex(bytes),
+        key_id: blob::signature(bytes).map(|s| crate::digest::lower_hex(&s.key_id)),
         audit: None,
         input_bits: None,
         weight_bits: None,

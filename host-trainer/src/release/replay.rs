@@ -17,23 +17,22 @@ pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
     }
 }
 
-/// The first line, `# model <id> blob <blob id>`, as the device prints it; `blob_id` is
-/// [`shared_model::blob::blob_id`] of the blob the model came from.
-pub fn model_line(model: &CheckedModel, blob_id: u32) -> String {
+/// The first line, `# model <id> blob <blob id>`, with ` key <key id>` for a signed blob,
+/// as the device prints it; `blob` is the blob the model came from.
+pub fn model_line(model: &CheckedModel, blob: &[u8]) -> String {
+    let key = shared_model::blob::signature(blob).map_or(String::new(), |s| {
+        format!(" key {}", crate::digest::lower_hex(&s.key_id))
+    });
     format!(
-        "# model {} blob {blob_id:08x}\n",
-        crate::digest::lower_hex(&model.model().model_id)
+        "# model {} blob {:08x}{key}\n",
+        crate::digest::lower_hex(&model.model().model_id),
+        shared_model::blob::blob_id(blob).unwrap_or(0)
     )
-}
-
-/// The blob id of a model's own blob (as `pack` writes it for that model).
-pub fn own_blob_id(model: &CheckedModel) -> u32 {
-    shared_model::blob::blob_id(&crate::release::pack::blob_bytes(model)).unwrap_or(0)
 }
 
 /// The model line, then every unit's line (trailing newline included).
 pub fn replay(model: &CheckedModel, ds: &Dataset) -> String {
-    let mut out = model_line(model, own_blob_id(model));
+    let mut out = model_line(model, &crate::release::pack::blob_bytes(model));
     for i in 0..ds.len() {
         out.push_str(&line(i, model, ds.raw_row(i)));
         out.push('\n');
@@ -44,7 +43,7 @@ pub fn replay(model: &CheckedModel, ds: &Dataset) -> String {
 /// The raw test vectors for the device build: the model line of the model they were prepared
 /// for, then one unit per line, readings separated by spaces.
 pub fn vectors(model: &CheckedModel, ds: &Dataset) -> String {
-    let mut out = model_line(model, own_blob_id(model));
+    let mut out = model_line(model, &crate::release::pack::blob_bytes(model));
     for i in 0..ds.len() {
         let row: Vec<String> = ds.raw_row(i).iter().map(|r| r.to_string()).collect();
         out.push_str(&row.join(" "));

@@ -44,8 +44,15 @@ pub fn markdown(
     );
     let _ = writeln!(
         s,
-        "- model file content SHA-256 `{}`; blob (as packed) SHA-256 `{}`, blob id `{}`",
-        r.model_sha256, r.blob_sha256, r.blob_id
+        "- model file content SHA-256 `{}`; blob (as packed) SHA-256 `{}`, blob id `{}`{}",
+        r.model_sha256,
+        r.blob_sha256,
+        r.blob_id,
+        r.key_id
+            .as_ref()
+            .map_or(", unsigned".to_string(), |k| format!(
+                ", signed with key `{k}`"
+            ))
     );
     for t in &r.sets {
         let _ = writeln!(s, "- {} log `{}`, SHA-256 `{}`", t.name, t.path, t.sha256);

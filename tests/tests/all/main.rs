@@ -7,6 +7,7 @@ mod house;
 mod images;
 mod quantisation;
 mod reference;
+mod signing;
 mod verifier;
 
 /// Prints a loud SKIPPED line, or fails when running in CI (CI=true), where every tool must be present.
