@@ -1,5 +1,7 @@
-//! Puts memory.x on the linker path and links in the test vectors named by
-//! LINEGATE_VECTORS (one unit per line, raw readings separated by spaces).
+//! Puts memory.x on the linker path, links in the test vectors named by
+//! LINEGATE_VECTORS (one unit per line, raw readings separated by spaces), and compiles in
+//! the release key named by LINEGATE_PUBLIC_KEY (a `.pub` file from `linegate key new`):
+//! a build with a key is a signed-release build, which loads only blobs signed with it.
 
 use std::env;
 use std::fmt::Write;
@@ -48,4 +50,24 @@ fn main() {
     }
     src.push_str("];\n");
     fs::write(out.join("vectors.rs"), src).expect("write vectors.rs");
+    println!("cargo:rerun-if-env-changed=LINEGATE_PUBLIC_KEY");
+    let key = env::var_os("LINEGATE_PUBLIC_KEY").map(|path| {
+        println!("cargo:rerun-if-changed={}", PathBuf::from(&path).display());
+        let text = fs::read_to_string(&path).expect("read LINEGATE_PUBLIC_KEY");
+        let hex = text
+            .lines()
+            .find_map(|l| l.strip_prefix("ed25519-public "))
+            .expect("LINEGATE_PUBLIC_KEY: no 'ed25519-public' line (give the .pub file)")
+            .trim()
+            .to_string();
+        assert_eq!(hex.len(), 64, "LINEGATE_PUBLIC_KEY: 64 hex digits expected");
+        (0..32)
+            .map(|i| format!("0x{},", &hex[2 * i..2 * i + 2]))
+            .collect::<String>()
+    });
+    let key_src = match key {
+        Some(bytes) => format!("/// The release key a blob must be signed with.\npub const RELEASE_KEY: Option<[u8; 32]> = Some([{bytes}]);\n"),
+        None => "/// No release key: an unsigned build accepts any valid blob.\npub const RELEASE_KEY: Option<[u8; 32]> = None;\n".into(),
+    };
+    fs::write(out.join("release_key.rs"), key_src).expect("write release_key.rs");
 }

@@ -15,6 +15,10 @@ mod vectors {
     include!(concat!(env!("OUT_DIR"), "/vectors.rs"));
 }
 
+mod release_key {
+    include!(concat!(env!("OUT_DIR"), "/release_key.rs"));
+}
+
 #[entry]
 fn main() -> ! {
     let lines = match GoNoGoLines::new(
@@ -30,7 +34,14 @@ fn main() -> ! {
         width: vectors::WIDTH,
         next: 0,
     };
-    let mut station = Station::new(board::model_region(), sensor, lines);
+    // A signed-release build (a key compiled in) loads only blobs signed with that key; a key
+    // that is not a valid point loads nothing, so the station holds NO-GO.
+    let key = release_key::RELEASE_KEY.map(|k| firmware::ReleaseKey::from_bytes(&k));
+    let mut station = match key {
+        None => Station::new(board::model_region(), sensor, lines),
+        Some(Some(k)) => Station::with_key(board::model_region(), Some(k), sensor, lines),
+        Some(None) => Station::new(&[], sensor, lines),
+    };
     if let Ok(c) = station.classifier() {
         // The same first line as `linegate replay`: which model this device runs.
         hprint!("# model ");

@@ -151,3 +151,99 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
         "{stdout}"
     );
 }
+
+#[test]
+fn a_signed_release_build_runs_only_the_owners_blob() {
+    if let Err(why) = have_qemu_and_target() {
+        return crate::skip_or_fail("QEMU signed release", &why);
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    host_trainer::demo::run(&out, false).unwrap();
+    // The owner's key (fixed here, so the build is reproducible) and its public file.
+    let owner = ed25519_dalek::SigningKey::from_bytes(&[42u8; 32]);
+    let public = dir.path().join("owner.pub");
+    std::fs::write(
+        &public,
+        host_trainer::release::sign::public_text(&owner.verifying_key()),
+    )
+    .unwrap();
+    let plain = std::fs::read(out.join("model.lgb")).unwrap();
+    let model = shared_model::blob::decode(&plain).unwrap();
+    let signed = host_trainer::release::sign::signed_blob(&model, &owner);
+    let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt"))
+        .unwrap()
+        .lines()
+        .take(51)
+        .map(String::from)
+        .collect();
+    let vpath = dir.path().join("vectors.txt");
+    std::fs::write(&vpath, vectors.join("\n") + "\n").unwrap();
+    let app = crate::root().join("firmware/qemu-app");
+    // Its own target folder: the unsigned build of the other test must not be overwritten.
+    let target = app.join("target/signed");
+    let st = Command::new("cargo")
+        .args(["build", "--release", "--bin", "linegate-qemu-app"])
+        .current_dir(&app)
+        .env("LINEGATE_VECTORS", &vpath)
+        .env("LINEGATE_PUBLIC_KEY", &public)
+        .env("CARGO_TARGET_DIR", &target)
+        .status()
+        .unwrap();
+    assert!(st.success(), "signed device build failed");
+    let elf = target.join("thumbv7m-none-eabi/release/linegate-qemu-app");
+    let raw = |name: &str, bytes: &[u8]| {
+        let p = dir.path().join(name);
+        std::fs::write(&p, bytes).unwrap();
+        format!("loader,file={},addr=0x3F000,force-raw=on", p.display())
+    };
+    // The owner's blob runs, and the device names the key, as replay does.
+    let (code, stdout) = run_qemu(&elf, &raw("signed.bin", &signed));
+    assert_eq!(code, 0, "{stdout}");
+    let m = shared_model::blob::decode(&signed).unwrap();
+    let line = host_trainer::release::replay::model_line(&m, &signed);
+    assert!(
+        stdout.lines().any(|l| l == line.trim_end()),
+        "{line}\n{stdout}"
+    );
+    assert_eq!(stdout.lines().filter(|l| !l.starts_with('#')).count(), 50);
+    // The threshold forgery (CRC recomputed, the owner's signature kept), an unsigned blob
+    // and another key's blob: the fault is printed and NO-GO held.
+    let mut fm = model.model().clone();
+    fm.nogo_max = i64::MIN;
+    fm.go_min = i64::MIN + 1;
+    let mut buf = [0u8; shared_model::blob::MAX_BLOB_LEN];
+    let key_id = host_trainer::release::sign::key_id(&owner.verifying_key());
+    let n = shared_model::blob::encode_for_signing(
+        &shared_model::CheckedModel::new(fm).unwrap(),
+        key_id,
+        &mut buf,
+    )
+    .unwrap();
+    buf[n..n + 64].copy_from_slice(&signed[signed.len() - 64..]);
+    let other = host_trainer::release::sign::signed_blob(
+        &model,
+        &ed25519_dalek::SigningKey::from_bytes(&[7u8; 32]),
+    );
+    for (name, bytes, says) in [
+        ("forged.bin", &buf[..n + 64], "signature does not verify"),
+        ("unsigned.bin", &plain[..], "not signed"),
+        (
+            "other.bin",
+            &other[..],
+            "signed by a key this device does not accept",
+        ),
+    ] {
+        let (code, stdout) = run_qemu(&elf, &raw(name, bytes));
+        assert_eq!(code, 1, "{name}: {stdout}");
+        assert!(
+            stdout.contains("FAULT blob") && stdout.contains(says),
+            "{name}: {stdout}"
+        );
+        assert!(stdout.contains("# lines: GO=0 NO-GO=1"), "{name}: {stdout}");
+        assert!(
+            !stdout.lines().any(|l| l.contains(" GO ")),
+            "{name}: {stdout}"
+        );
+    }
+}
