@@ -14,6 +14,29 @@ pub fn lower_hex(bytes: &[u8]) -> String {
     bytes.iter().map(|b| format!("{b:02x}")).collect()
 }
 
+/// The bytes `text` spells in hex, two digits a byte (either case); `None` unless every
+/// character is an ASCII hex digit and there is an even number of them. Stricter than
+/// `u8::from_str_radix`, which takes a sign.
+///
+/// ```
+/// use host_trainer::digest::parse_hex;
+/// assert_eq!(parse_hex("0aFF"), Some(vec![0x0a, 0xff]));
+/// assert_eq!(parse_hex("+1"), None);
+/// assert_eq!(parse_hex("abc"), None);
+/// ```
+pub fn parse_hex(text: &str) -> Option<Vec<u8>> {
+    let b = text.as_bytes();
+    if !b.len().is_multiple_of(2) || !b.iter().all(u8::is_ascii_hexdigit) {
+        return None;
+    }
+    let digit = |c: u8| char::from(c).to_digit(16).unwrap_or(0) as u8;
+    Some(
+        b.chunks_exact(2)
+            .map(|p| digit(p[0]) << 4 | digit(p[1]))
+            .collect(),
+    )
+}
+
 /// Lower-case hex SHA-256 of `bytes`.
 ///
 /// ```

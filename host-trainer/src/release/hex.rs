@@ -121,19 +121,10 @@ pub fn from_hex(text: &str) -> Result<(u32, Vec<u8>), HexError> {
             return Err(HexError::AfterEof(n));
         }
         let body = line.strip_prefix(':').ok_or(HexError::Malformed(n))?;
-        // Hex digits only: `from_str_radix` alone would take a sign, and slicing text that
-        // is not ASCII could split a character.
-        if !body.bytes().all(|b| b.is_ascii_hexdigit()) || body.len() % 2 != 0 || body.len() < 10 {
-            return Err(HexError::Malformed(n));
-        }
-        let bytes: Vec<u8> = body
-            .as_bytes()
-            .chunks_exact(2)
-            .map(|p| {
-                let digit = |c: u8| char::from(c).to_digit(16).unwrap_or(0) as u8;
-                digit(p[0]) << 4 | digit(p[1])
-            })
-            .collect();
+        // Hex digits only (no sign, and no slicing of text that is not ASCII).
+        let bytes = crate::digest::parse_hex(body)
+            .filter(|b| b.len() >= 5)
+            .ok_or(HexError::Malformed(n))?;
         if bytes.iter().fold(0u8, |s, b| s.wrapping_add(*b)) != 0 {
             return Err(HexError::Checksum(n));
         }

@@ -67,15 +67,9 @@ fn field(path: &Path, text: &str, name: &str) -> Result<[u8; 32], InputError> {
             ))
         })?
         .trim();
-    if hex.len() != 64 || !hex.bytes().all(|b| b.is_ascii_hexdigit()) {
-        return Err(bad(format!("'{name}' must be 64 hex digits")));
-    }
-    let mut out = [0u8; 32];
-    for (o, p) in out.iter_mut().zip(hex.as_bytes().chunks_exact(2)) {
-        let d = |c: u8| char::from(c).to_digit(16).unwrap_or(0) as u8;
-        *o = d(p[0]) << 4 | d(p[1]);
-    }
-    Ok(out)
+    crate::digest::parse_hex(hex)
+        .and_then(|b| b.try_into().ok())
+        .ok_or_else(|| bad(format!("'{name}' must be 64 hex digits")))
 }
 
 /// Reads a private key file.
