@@ -316,12 +316,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     )?;
     let (q, report) = (done.q, done.report);
     let sweep = done.sweep.unwrap_or_default();
-    let mark = if report.passed {
-        shared_model::AuditMark::Passed
-    } else {
-        shared_model::AuditMark::Overridden
-    };
-    let model = audit::mark(&q.model, mark);
+    let model = audit::mark(&q.model, audit::release_mark(report.passed));
     let blob = pack::blob_bytes(&model);
     let md = crate::report::markdown(fm, &report, Some(&sweep));
     let mut set = OutputSet::default();

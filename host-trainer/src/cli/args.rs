@@ -185,19 +185,7 @@ impl Release {
         let mut report = done.report;
         if let Some(k) = &self.signer {
             // The report names the blob pack writes: signed, with its key.
-            let mark = if report.passed {
-                shared_model::AuditMark::Passed
-            } else {
-                shared_model::AuditMark::Overridden
-            };
-            let signed = sign::signed_blob(&audit::mark(&done.q.model, mark), k);
-            report.blob_sha256 = host_trainer::digest::sha256_hex(&signed);
-            report.blob_id = shared_model::blob::blob_id(&signed)
-                .map_or(String::new(), |id| format!("{id:08x}"));
-            report.blob_bytes = signed.len();
-            report.key_id = Some(host_trainer::digest::lower_hex(&sign::key_id(
-                &k.verifying_key(),
-            )));
+            report.name_blob(&audit::released_blob(&done.q.model, report.passed, Some(k)));
         }
         Ok((done.q, report))
     }

@@ -9,7 +9,7 @@ use super::CheckFailed;
 use super::args::{ReleaseArgs, release_inputs};
 use host_trainer::output::OutputSet;
 use host_trainer::release::audit;
-use host_trainer::release::{hex, pack};
+use host_trainer::release::hex;
 
 /// Flags of `linegate pack`.
 #[derive(Args)]
@@ -47,18 +47,10 @@ impl PackArgs {
         let mut rel = release_inputs(release, quiet)?;
         let (q, r) = rel.run()?;
         let (fm, signer) = (rel.fm, rel.signer);
-        let mark = match (r.passed, override_audit) {
-                (true, _) => shared_model::AuditMark::Passed,
-                (false, true) => shared_model::AuditMark::Overridden,
-                (false, false) => {
-                    return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into())
-                }
-            };
-        let model = audit::mark(&q.model, mark);
-        let blob = match &signer {
-            Some(k) => host_trainer::release::sign::signed_blob(&model, k),
-            None => pack::blob_bytes(&model),
-        };
+        if !r.passed && !override_audit {
+            return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
+        }
+        let blob = audit::released_blob(&q.model, r.passed, signer.as_ref());
         let mut set = OutputSet::default();
         set.add(output, blob.clone());
         if let Some(a) = hex_addr {

@@ -700,19 +700,12 @@ pub fn audit(
     let gates = gates(&sets, cfg, risk.is_some(), min_all, guaranteed, bound.total);
     let reasons: Vec<String> = gates.iter().filter(|g| !g.passed).map(reason).collect();
     let passed = reasons.is_empty();
-    let packed = crate::release::pack::blob_bytes(&mark(
-        &q.model,
-        if passed {
-            shared_model::AuditMark::Passed
-        } else {
-            shared_model::AuditMark::Overridden
-        },
-    ));
-    AuditReport {
+    let packed = released_blob(&q.model, passed, None);
+    let mut r = AuditReport {
         model_id: fm.model_id.clone(),
         model_sha256: fm.content_digest(),
-        blob_sha256: crate::digest::sha256_hex(&packed),
-        blob_id: blob::blob_id(&packed).map_or(String::new(), |id| format!("{id:08x}")),
+        blob_sha256: String::new(),
+        blob_id: String::new(),
         key_id: None,
         input_bits: m.input_bits,
         weight_bits: m.weight_bits,
@@ -740,7 +733,7 @@ pub fn audit(
                 (m.bias != q.plain_bias).then(|| format!("bias: {} -> {}", q.plain_bias, m.bias)),
             )
             .collect(),
-        blob_bytes: packed.len(),
+        blob_bytes: 0,
         sets,
         float_min_margin_lsb: float_min.is_finite().then_some(float_min),
         plain_min_margin_lsb: q.plain_min_margin,
@@ -760,7 +753,9 @@ pub fn audit(
         reasons,
         fixed_margins,
         float_margins,
-    }
+    };
+    r.name_blob(&packed);
+    r
 }
 
 /// Every gate: the decision gates on each log, then the model-wide ones.
@@ -1007,6 +1002,41 @@ pub fn release(
     let q = quantise(fm, Some(train), qc)?;
     let r = audit(&q, fm, train, others, noise, cfg);
     Ok((q, r))
+}
+
+/// The mark a released blob carries: passed, or overridden (a failed audit packed with
+/// `--override-audit`).
+pub fn release_mark(passed: bool) -> shared_model::AuditMark {
+    if passed {
+        shared_model::AuditMark::Passed
+    } else {
+        shared_model::AuditMark::Overridden
+    }
+}
+
+/// The blob `pack` writes for an audit outcome: marked passed, or overridden (a failed
+/// audit packed with `--override-audit`), and signed when a release key is given.
+pub fn released_blob(
+    model: &CheckedModel,
+    passed: bool,
+    signer: Option<&ed25519_dalek::SigningKey>,
+) -> Vec<u8> {
+    let marked = mark(model, release_mark(passed));
+    match signer {
+        Some(k) => crate::release::sign::signed_blob(&marked, k),
+        None => crate::release::pack::blob_bytes(&marked),
+    }
+}
+
+impl AuditReport {
+    /// Names `blob`, the bytes `pack` writes for this audit, in the report: its SHA-256,
+    /// blob id, size and, for a signed blob, the key id.
+    pub fn name_blob(&mut self, blob: &[u8]) {
+        self.blob_sha256 = crate::digest::sha256_hex(blob);
+        self.blob_id = blob::blob_id(blob).map_or(String::new(), |id| format!("{id:08x}"));
+        self.blob_bytes = blob.len();
+        self.key_id = blob::signature(blob).map(|s| crate::digest::lower_hex(&s.key_id));
+    }
 }
 
 /// Marks a checked model with the audit outcome (for packing).

@@ -14,7 +14,6 @@ use host_trainer::release::audit::{self, Apply, AuditConfig};
 use host_trainer::release::quantise::QuantConfig;
 use host_trainer::train::eval::TrainerKind;
 use host_trainer::workflow::{self, TrainRequest};
-use shared_model::AuditMark;
 
 fn python() -> Option<&'static str> {
     Command::new("python3")
@@ -88,12 +87,7 @@ fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c
         serde_json::to_string_pretty(r).unwrap(),
     )
     .unwrap();
-    let mark = if r.passed {
-        AuditMark::Passed
-    } else {
-        AuditMark::Overridden
-    };
-    let blob = host_trainer::release::pack::blob_bytes(&audit::mark(&done.q.model, mark));
+    let blob = audit::released_blob(&done.q.model, r.passed, None);
     std::fs::write(dir.join("model.lgb"), blob).unwrap();
 }
 
