@@ -87,15 +87,7 @@ fn print_check(
             say!("  along {:<22} {:>12.4} {}", c.channel, c.margin, c.unit);
         }
         say!("support units:");
-        for u in &r.support {
-            say!(
-                "  {} ({}, line {}, α = {:.4})",
-                super::shown(&u.unit),
-                u.label,
-                u.line,
-                u.weight
-            );
-        }
+        print_units(&r.support, "α");
     }
     say!("R = max ‖(x, 1)‖ = {:.4}", r.radius);
     match (r.novikoff_margin, r.novikoff_bound) {
@@ -116,21 +108,26 @@ fn print_check(
     }
     if !r.conflict.is_empty() {
         say!("units no hyperplane can split (their convex hulls meet; weights λ):");
-        for u in &r.conflict {
-            say!(
-                "  {} ({}, line {}, λ = {:.4})",
-                super::shown(&u.unit),
-                u.label,
-                u.line,
-                u.weight
-            );
-        }
+        print_units(&r.conflict, "λ");
     }
     if ds.skipped.total > 0 {
         say!(
             "skipped {} bad rows: {:?}",
             ds.skipped.total,
             ds.skipped.by_reason
+        );
+    }
+}
+
+/// One line per unit: its id (escaped), label, line and weight under `symbol`.
+fn print_units(units: &[host_trainer::train::separability::UnitRef], symbol: &str) {
+    for u in units {
+        say!(
+            "  {} ({}, line {}, {symbol} = {:.4})",
+            super::shown(&u.unit),
+            u.label,
+            u.line,
+            u.weight
         );
     }
 }

@@ -355,13 +355,7 @@ pub fn homogeneous_bounds(ds: &Dataset, idx: &[usize], radius: f64) -> Option<Ma
         ds.y(i) * (dot(p, buf) + p[d]) / radius
     };
     // Solve on a working set; a scan of every unit adds those below the set's minimum.
-    let mut set: Vec<usize> = if idx.len() <= WORKING_SET {
-        idx.to_vec()
-    } else {
-        initial(ds, idx, WORKING_SET / 8)
-    };
-    let mut in_set = vec![false; ds.len()];
-    set.iter().for_each(|&i| in_set[i] = true);
+    let (mut set, mut in_set) = working_set(ds, idx);
     let mut buf = vec![0.0; d];
     let out = loop {
         let oracle = |p: &[f64]| {
@@ -435,6 +429,19 @@ fn push_bounded(v: &mut Vec<(f64, usize)>, item: (f64, usize), keep: usize) {
 /// Units in the hard-margin solver's first working set on large logs.
 const WORKING_SET: usize = 16_000;
 
+/// The first working set of the Wolfe solvers: every unit of a small log, else a few per
+/// class from `initial`; and which units of `ds` are in it.
+fn working_set(ds: &Dataset, idx: &[usize]) -> (Vec<usize>, Vec<bool>) {
+    let set: Vec<usize> = if idx.len() <= WORKING_SET {
+        idx.to_vec()
+    } else {
+        initial(ds, idx, WORKING_SET / 8)
+    };
+    let mut in_set = vec![false; ds.len()];
+    set.iter().for_each(|&i| in_set[i] = true);
+    (set, in_set)
+}
+
 /// Hard margin as the nearest points of the two class hulls.
 fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
     let d = ds.dim();
@@ -461,13 +468,7 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
     let sc = ds.scaler();
     // Large logs: solve on a working set, then let one scan of every unit add the units that
     // the current nearest points fail to account for, until none is left.
-    let mut set: Vec<usize> = if idx.len() <= WORKING_SET {
-        idx.to_vec()
-    } else {
-        initial(ds, idx, WORKING_SET / 8)
-    };
-    let mut in_set = vec![false; ds.len()];
-    set.iter().for_each(|&i| in_set[i] = true);
+    let (mut set, mut in_set) = working_set(ds, idx);
     let mut iterations = 0;
     let out = loop {
         let out = wolfe(
