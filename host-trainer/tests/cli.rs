@@ -22,6 +22,20 @@ fn exits(o: &Output, code: i32) {
     );
 }
 
+/// `cmd --model demo/model.json --train demo/train-synthetic.csv` and then `extra`: the
+/// release commands run on the demo's model and training log.
+fn on_demo<'a>(cmd: &'a str, extra: &[&'a str]) -> Vec<&'a str> {
+    let mut a = vec![
+        cmd,
+        "--model",
+        "demo/model.json",
+        "--train",
+        "demo/train-synthetic.csv",
+    ];
+    a.extend_from_slice(extra);
+    a
+}
+
 fn write(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
     let p = dir.join(name);
     std::fs::write(&p, bytes).unwrap();
@@ -522,23 +536,21 @@ fn validation_logs_are_audited_and_gated_each_on_its_own() {
     let d = dir.path();
     exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
     let o = linegate(
-        &[
+        &on_demo(
             "audit",
-            "--model",
-            "demo/model.json",
-            "--train",
-            "demo/train-synthetic.csv",
-            "--holdout",
-            "demo/holdout-synthetic.csv",
-            "--validate",
-            "demo/holdout-synthetic.csv",
-            "--validate",
-            "demo/holdout-synthetic.csv",
-            "--apply-suggested-band",
-            "--max-false-nogo",
-            "0",
-            "--json",
-        ],
+            &[
+                "--holdout",
+                "demo/holdout-synthetic.csv",
+                "--validate",
+                "demo/holdout-synthetic.csv",
+                "--validate",
+                "demo/holdout-synthetic.csv",
+                "--apply-suggested-band",
+                "--max-false-nogo",
+                "0",
+                "--json",
+            ],
+        ),
         d,
     );
     exits(&o, 0);
@@ -564,18 +576,7 @@ fn validation_logs_are_audited_and_gated_each_on_its_own() {
     }
     assert!(String::from_utf8_lossy(&o.stderr).contains("applied: RECHECK half-band"));
     // A bad limit is a usage error naming the flag's syntax.
-    let o = linegate(
-        &[
-            "audit",
-            "--model",
-            "demo/model.json",
-            "--train",
-            "demo/train-synthetic.csv",
-            "--max-recheck",
-            "lots",
-        ],
-        d,
-    );
+    let o = linegate(&on_demo("audit", &["--max-recheck", "lots"]), d);
     exits(&o, 2);
     assert!(String::from_utf8_lossy(&o.stderr).contains("not a count or a rate"));
 }
@@ -583,15 +584,23 @@ fn validation_logs_are_audited_and_gated_each_on_its_own() {
 /// The demo's holdout log with two readings pushed far outside their channel's range: unit 0
 /// (GO) on the third channel, unit 2 (NO-GO) on the first.
 fn holdout_with_faults(d: &Path) -> PathBuf {
+    let lines = edited_holdout(d, "holdout-fault.csv", &[(1, 4, "1e9"), (3, 2, "1e9")]);
+    assert!(lines[1].ends_with(",GO") && lines[3].ends_with(",NO-GO"));
+    d.join("holdout-fault.csv")
+}
+
+/// The demo's holdout log with cells replaced, `(line index, column, text)`, written to
+/// `name`; returns its lines.
+fn edited_holdout(d: &Path, name: &str, edits: &[(usize, usize, &str)]) -> Vec<String> {
     let text = std::fs::read_to_string(d.join("demo/holdout-synthetic.csv")).unwrap();
     let mut lines: Vec<String> = text.lines().map(String::from).collect();
-    for (row, col) in [(1, 4), (3, 2)] {
+    for &(row, col, value) in edits {
         let mut cells: Vec<&str> = lines[row].split(',').collect();
-        cells[col] = "1e9";
+        cells[col] = value;
         lines[row] = cells.join(",");
     }
-    assert!(lines[1].ends_with(",GO") && lines[3].ends_with(",NO-GO"));
-    write(d, "holdout-fault.csv", (lines.join("\n") + "\n").as_bytes())
+    write(d, name, (lines.join("\n") + "\n").as_bytes());
+    lines
 }
 
 #[test]
@@ -665,19 +674,17 @@ fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
     assert_eq!(v["holdout"]["units"], units);
     // Audit: both counted as FAULT, the GO one gated as a false NO-GO and listed by line.
     let o = linegate(
-        &[
+        &on_demo(
             "audit",
-            "--model",
-            "demo/model.json",
-            "--train",
-            "demo/train-synthetic.csv",
-            "--holdout",
-            "holdout-fault.csv",
-            "--apply-suggested-band",
-            "--max-false-nogo",
-            "0",
-            "--json",
-        ],
+            &[
+                "--holdout",
+                "holdout-fault.csv",
+                "--apply-suggested-band",
+                "--max-false-nogo",
+                "0",
+                "--json",
+            ],
+        ),
         d,
     );
     exits(&o, 1);
@@ -706,12 +713,7 @@ fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
-    let text = std::fs::read_to_string(d.join("demo/holdout-synthetic.csv")).unwrap();
-    let mut lines: Vec<String> = text.lines().map(String::from).collect();
-    let mut cells: Vec<&str> = lines[5].split(',').collect();
-    cells[3] = "n/a";
-    lines[5] = cells.join(",");
-    write(d, "holdout-bad.csv", (lines.join("\n") + "\n").as_bytes());
+    let lines = edited_holdout(d, "holdout-bad.csv", &[(5, 3, "n/a")]);
     let o = linegate(
         &[
             "replay",
@@ -732,18 +734,16 @@ fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
     );
     assert!(err.contains("line 6"), "{err}");
     let o = linegate(
-        &[
+        &on_demo(
             "audit",
-            "--model",
-            "demo/model.json",
-            "--train",
-            "demo/train-synthetic.csv",
-            "--holdout",
-            "holdout-bad.csv",
-            "--skip-bad-rows",
-            "--apply-suggested-band",
-            "--json",
-        ],
+            &[
+                "--holdout",
+                "holdout-bad.csv",
+                "--skip-bad-rows",
+                "--apply-suggested-band",
+                "--json",
+            ],
+        ),
         d,
     );
     exits(&o, 0);
@@ -822,18 +822,16 @@ fn an_edited_model_file_is_refused_and_a_rewritten_blob_fails_inspect_against_th
     )));
     // Other word lengths give another blob, and another blob id.
     let o = linegate(
-        &[
+        &on_demo(
             "pack",
-            "--model",
-            "demo/model.json",
-            "--train",
-            "demo/train-synthetic.csv",
-            "--weight-bits",
-            "16",
-            "--apply-suggested-band",
-            "-o",
-            "w16.lgb",
-        ],
+            &[
+                "--weight-bits",
+                "16",
+                "--apply-suggested-band",
+                "-o",
+                "w16.lgb",
+            ],
+        ),
         d,
     );
     exits(&o, 0);
@@ -891,18 +889,7 @@ fn replay_scores_new_units_without_a_label_column() {
     };
     assert_eq!(run("new-units.csv"), run("demo/holdout-synthetic.csv"));
     // Training and audit still need labels.
-    let o = linegate(
-        &[
-            "audit",
-            "--model",
-            "demo/model.json",
-            "--train",
-            "demo/train-synthetic.csv",
-            "--holdout",
-            "new-units.csv",
-        ],
-        d,
-    );
+    let o = linegate(&on_demo("audit", &["--holdout", "new-units.csv"]), d);
     exits(&o, 2);
     assert!(String::from_utf8_lossy(&o.stderr).contains("label"));
 }

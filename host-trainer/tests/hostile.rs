@@ -23,6 +23,20 @@ fn exits(o: &Output, code: i32) -> String {
     err
 }
 
+/// `cmd --model demo/model.json --train demo/train-synthetic.csv` and then `extra`: the
+/// release commands run on the demo's model and training log.
+fn on_demo<'a>(cmd: &'a str, extra: &[&'a str]) -> Vec<&'a str> {
+    let mut a = vec![
+        cmd,
+        "--model",
+        "demo/model.json",
+        "--train",
+        "demo/train-synthetic.csv",
+    ];
+    a.extend_from_slice(extra);
+    a
+}
+
 fn write(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
     let p = dir.join(name);
     std::fs::write(&p, bytes).unwrap();
@@ -55,18 +69,16 @@ fn hex_images_with_foreign_text_junk_or_a_wrapping_address_are_refused() {
     // An image that would run past 4 GiB is refused at pack, and nothing is written.
     let err = exits(
         &linegate(
-            &[
+            &on_demo(
                 "pack",
-                "--model",
-                "demo/model.json",
-                "--train",
-                "demo/train-synthetic.csv",
-                "--apply-suggested-band",
-                "-o",
-                "top.lgb",
-                "--hex",
-                "0xFFFFFF80",
-            ],
+                &[
+                    "--apply-suggested-band",
+                    "-o",
+                    "top.lgb",
+                    "--hex",
+                    "0xFFFFFF80",
+                ],
+            ),
             d,
         ),
         2,
@@ -117,17 +129,10 @@ fn pipes_devices_and_endless_files_are_refused_at_once() {
     std::fs::create_dir(d.join("out.lgb")).unwrap();
     let err = exits(
         &linegate(
-            &[
+            &on_demo(
                 "pack",
-                "--model",
-                "demo/model.json",
-                "--train",
-                "demo/train-synthetic.csv",
-                "--apply-suggested-band",
-                "-o",
-                "out.lgb",
-                "--force",
-            ],
+                &["--apply-suggested-band", "-o", "out.lgb", "--force"],
+            ),
             d,
         ),
         2,
