@@ -1,46 +1,11 @@
 //! The `linegate` command line: malformed input gives its specific message and exit code
 //! and leaves no output; gates exit 1; packing and inspecting behave as documented.
 
+mod common;
+
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 
-fn linegate(args: &[&str], dir: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_linegate"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("run linegate")
-}
-
-/// Asserts the exit code, showing what the tool wrote to stderr if it differs.
-fn exits(o: &Output, code: i32) {
-    assert_eq!(
-        o.status.code(),
-        Some(code),
-        "{}",
-        String::from_utf8_lossy(&o.stderr)
-    );
-}
-
-/// `cmd --model demo/model.json --train demo/train-synthetic.csv` and then `extra`: the
-/// release commands run on the demo's model and training log.
-fn on_demo<'a>(cmd: &'a str, extra: &[&'a str]) -> Vec<&'a str> {
-    let mut a = vec![
-        cmd,
-        "--model",
-        "demo/model.json",
-        "--train",
-        "demo/train-synthetic.csv",
-    ];
-    a.extend_from_slice(extra);
-    a
-}
-
-fn write(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, bytes).unwrap();
-    p
-}
+use common::{demo, exits, linegate, on_demo, write};
 
 const GOOD: &str =
     "unit_id,a,b,label\nU1,1.0,2.0,GO\nU2,2.0,1.5,GO\nU3,-1.0,-2.0,NO-GO\nU4,-2.0,-1.0,NO-GO\n";
@@ -505,7 +470,7 @@ fn every_subcommand_help_has_an_example() {
 fn audit_refuses_a_training_log_the_model_was_not_trained_on() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    demo(d);
     for cmd in ["audit", "pack"] {
         let mut args = vec![
             cmd,
@@ -534,7 +499,7 @@ fn audit_refuses_a_training_log_the_model_was_not_trained_on() {
 fn validation_logs_are_audited_and_gated_each_on_its_own() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    demo(d);
     let o = linegate(
         &on_demo(
             "audit",
@@ -607,7 +572,7 @@ fn edited_holdout(d: &Path, name: &str, edits: &[(usize, usize, &str)]) -> Vec<S
 fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    demo(d);
     holdout_with_faults(d);
     let units = std::fs::read_to_string(d.join("demo/holdout-synthetic.csv"))
         .unwrap()
@@ -712,7 +677,7 @@ fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
 fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    demo(d);
     let lines = edited_holdout(d, "holdout-bad.csv", &[(5, 3, "n/a")]);
     let o = linegate(
         &[
@@ -757,7 +722,7 @@ fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
 fn an_edited_model_file_is_refused_and_a_rewritten_blob_fails_inspect_against_the_report() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    demo(d);
     // The threshold moved so every unit passes: the model file's digest no longer matches.
     let text = std::fs::read_to_string(d.join("demo/model.json")).unwrap();
     let edited = text.replace("\"threshold\": 0.0,", "\"threshold\": -1e308,");
@@ -863,7 +828,7 @@ fn training_that_finds_no_direction_is_refused_and_writes_nothing() {
 fn replay_scores_new_units_without_a_label_column() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    demo(d);
     let text = std::fs::read_to_string(d.join("demo/holdout-synthetic.csv")).unwrap();
     // Drop the verdict column (the last): units measured, not yet judged.
     let unlabelled: String = text
@@ -899,7 +864,7 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
     use std::os::unix::fs::PermissionsExt;
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    demo(d);
     let o = linegate(&["key", "new", "-o", "owner"], d);
     exits(&o, 0);
     let secret = std::fs::read_to_string(d.join("owner.key")).unwrap();

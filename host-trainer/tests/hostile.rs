@@ -1,51 +1,12 @@
 //! Hostile files and places: each is refused cleanly (no panic, no hang, no runaway
 //! allocation), with a message naming the file, and nothing is written.
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output, Stdio};
+mod common;
 
-fn linegate(args: &[&str], dir: &Path) -> Output {
-    // A hang guard only (the commands here finish in well under a second): `timeout`
-    // turns a hang into exit 124 instead of a stuck test.
-    Command::new("timeout")
-        .arg("120")
-        .arg(env!("CARGO_BIN_EXE_linegate"))
-        .args(args)
-        .current_dir(dir)
-        .stdin(Stdio::null())
-        .output()
-        .expect("run linegate")
-}
+use std::path::Path;
+use std::process::{Command, Stdio};
 
-fn exits(o: &Output, code: i32) -> String {
-    let err = String::from_utf8_lossy(&o.stderr).into_owned();
-    assert_eq!(o.status.code(), Some(code), "{err}");
-    err
-}
-
-/// `cmd --model demo/model.json --train demo/train-synthetic.csv` and then `extra`: the
-/// release commands run on the demo's model and training log.
-fn on_demo<'a>(cmd: &'a str, extra: &[&'a str]) -> Vec<&'a str> {
-    let mut a = vec![
-        cmd,
-        "--model",
-        "demo/model.json",
-        "--train",
-        "demo/train-synthetic.csv",
-    ];
-    a.extend_from_slice(extra);
-    a
-}
-
-fn write(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, bytes).unwrap();
-    p
-}
-
-fn demo(d: &Path) {
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
-}
+use common::{demo, exits, linegate, on_demo, write};
 
 #[test]
 fn hex_images_with_foreign_text_junk_or_a_wrapping_address_are_refused() {
