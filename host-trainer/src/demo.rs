@@ -288,6 +288,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         c: 10.0,
         max_false_go: None,
         folds: 5,
+        cv_trainers: crate::workflow::CvTrainers::All,
         progress: false,
     };
     let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;

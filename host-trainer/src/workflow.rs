@@ -11,7 +11,7 @@ use crate::ingest::dataset::Dataset;
 use crate::ingest::scaling::ChannelSheet;
 use crate::ingest::{LogOptions, ScaleFrom, read_log};
 use crate::train::eval::{
-    Counts, EvalRow, TrainConfig, TrainerKind, cross_validate, evaluate, train,
+    Counts, EvalRow, TrainConfig, Trained, TrainerKind, cross_validate, evaluate, train,
 };
 use crate::train::float_model::{FloatModel, InputFile, Provenance, TrainingSummary};
 use crate::train::linear::threshold_for_false_go;
@@ -74,8 +74,36 @@ pub struct TrainRequest {
     pub max_false_go: Option<usize>,
     /// k for cross-validation (0 or 1: none).
     pub folds: usize,
+    /// Which trainers cross-validation compares.
+    pub cv_trainers: CvTrainers,
     /// Show a progress bar on long work.
     pub progress: bool,
+}
+
+/// Which trainers cross-validation compares.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum CvTrainers {
+    /// Every trainer up to [`CV_ALL_LIMIT`] units, only the chosen one above.
+    Auto,
+    /// Every trainer.
+    All,
+    /// Only the chosen trainer.
+    Chosen,
+}
+
+/// Largest log on which `CvTrainers::Auto` cross-validates every trainer. Above it, four
+/// trainers × k folds would cost 4·k trainings of a log whose one training is already long.
+pub const CV_ALL_LIMIT: usize = 100_000;
+
+impl CvTrainers {
+    /// The trainers compared on a log of `units` units when `chosen` is trained.
+    pub fn kinds(self, units: usize, chosen: TrainerKind) -> Vec<TrainerKind> {
+        match self {
+            Self::All => TrainerKind::ALL.to_vec(),
+            Self::Auto if units <= CV_ALL_LIMIT => TrainerKind::ALL.to_vec(),
+            Self::Auto | Self::Chosen => vec![chosen],
+        }
+    }
 }
 
 /// Everything `train` found.
@@ -123,7 +151,16 @@ pub fn train_model(
         c: req.c,
         separable: report.separable,
     };
-    let t = train(ds, &idx, req.trainer, cfg);
+    // The check has solved the hard margin already: a separable log's maximum-margin model
+    // is its separator, not a second solve.
+    let t = match (&report.separator, req.trainer) {
+        (Some(sep), TrainerKind::MaxMargin) if report.separable => Trained {
+            model: sep.clone(),
+            updates: None,
+            c: None,
+        },
+        _ => train(ds, &idx, req.trainer, cfg),
+    };
     let finite = t.model.w.iter().all(|w| w.is_finite()) && t.model.b.is_finite();
     if !finite || t.model.w.iter().all(|&w| w == 0.0) {
         return Err(InputError::NoDirection {
@@ -183,17 +220,22 @@ pub fn train_model(
 }
 
 fn cross_validate_with_bar(ds: &Dataset, req: &TrainRequest, cfg: TrainConfig) -> Vec<EvalRow> {
-    let jobs = (req.folds * TrainerKind::ALL.len()) as u64;
+    let kinds = req.cv_trainers.kinds(ds.len(), req.trainer);
+    let jobs = (req.folds * kinds.len()) as u64;
     let bar = (req.progress && ds.len() >= 100_000).then(|| {
         let b = indicatif::ProgressBar::new(jobs);
         b.set_style(
-            indicatif::ProgressStyle::with_template("{msg} [{bar:30}] {pos}/{len} ({eta})")
+            indicatif::ProgressStyle::with_template(
+                "{prefix} {msg} [{bar:30}] {pos}/{len} trainings, {elapsed} elapsed, about {eta} left",
+            )
                 .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
         );
-        b.set_message(format!("{}-fold cross-validation", req.folds));
+        b.set_prefix(format!("{}-fold cross-validation", req.folds));
+        // Redraw on a timer: a training can take seconds, and the clock must not stand still.
+        b.enable_steady_tick(std::time::Duration::from_millis(250));
         b
     });
-    let rows = cross_validate(ds, req.folds, &TrainerKind::ALL, cfg, bar.as_ref());
+    let rows = cross_validate(ds, req.folds, &kinds, cfg, bar.as_ref());
     if let Some(b) = bar {
         b.finish_and_clear();
     }

@@ -205,6 +205,9 @@ fn to_json<T: serde::Serialize>(v: &T) -> String {
 /// [`CheckFailed`] when a check ran and failed; any other error for usage, input or output.
 pub fn run(cli: &Cli) -> Result<()> {
     let quiet = cli.quiet;
+    if !quiet {
+        host_trainer::train::maxmargin::watch_rounds(show_round);
+    }
     match &cli.cmd {
         Cmd::Check(a) => a.run(quiet),
         Cmd::Train(a) => a.run(quiet),
@@ -215,5 +218,20 @@ pub fn run(cli: &Cli) -> Result<()> {
         Cmd::Generate(a) => a.run(quiet),
         Cmd::Demo(a) => a.run(quiet),
         Cmd::Key(a) => a.run(quiet),
+    }
+}
+
+/// A hard-margin solve that has run for over a second shows each round's bounds on γ*.
+fn show_round(r: &host_trainer::train::maxmargin::Round) {
+    if r.elapsed.as_secs_f64() >= 1.0 {
+        eprintln!(
+            "maximum margin: round {}, {} units in the working set, {} cycles, γ* in [{:.6}, {:.6}] ({:.1} s)",
+            r.round,
+            r.working_set,
+            r.iterations,
+            r.lower,
+            r.upper,
+            r.elapsed.as_secs_f64()
+        );
     }
 }

@@ -10,7 +10,7 @@ use super::args::LogArgs;
 use super::to_json;
 use host_trainer::output::OutputSet;
 use host_trainer::train::eval::TrainerKind;
-use host_trainer::workflow;
+use host_trainer::workflow::{self, CvTrainers};
 
 /// Flags of `linegate train`.
 #[derive(Args)]
@@ -40,9 +40,15 @@ pub struct TrainArgs {
     /// Holdout log to evaluate on.
     #[arg(long)]
     pub holdout: Option<PathBuf>,
-    /// k-fold cross-validation of every trainer (0: off).
+    /// k-fold cross-validation (0: off). Each fold trains on the other k − 1 folds, so it
+    /// costs about k trainings per trainer validated (see --cv-trainers).
     #[arg(long, default_value_t = 5)]
     pub folds: usize,
+    /// Which trainers cross-validation compares. auto: every trainer on logs of up to
+    /// 100000 units, only the chosen trainer above that, so that on large logs `train` costs
+    /// about (1 + k/cores) trainings rather than 4·k; all: every trainer; chosen: only --trainer.
+    #[arg(long, value_enum, default_value_t = CvTrainers::Auto)]
+    pub cv_trainers: CvTrainers,
     /// Output float model (JSON).
     #[arg(long, short)]
     pub output: PathBuf,
@@ -68,6 +74,7 @@ impl TrainArgs {
             max_false_go,
             holdout,
             folds,
+            cv_trainers,
             output,
             force,
             json,
@@ -85,6 +92,7 @@ impl TrainArgs {
             c: *c,
             max_false_go: *max_false_go,
             folds: *folds,
+            cv_trainers: *cv_trainers,
             progress: !quiet && std::io::stderr().is_terminal(),
         };
         let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)?;

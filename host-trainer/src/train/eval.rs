@@ -184,6 +184,14 @@ pub fn cross_validate(
                 .filter(|(g, _)| *g != f)
                 .flat_map(|(_, v)| v.iter().copied())
                 .collect();
+            if let Some(p) = progress {
+                p.set_message(format!(
+                    "{} fold {}/{}",
+                    kinds[t].name(),
+                    f + 1,
+                    folds.len()
+                ));
+            }
             let model = train(ds, &train_idx, kinds[t], cfg).model;
             if let Some(p) = progress {
                 p.inc(1);

@@ -70,6 +70,7 @@ fn trained(
         c: 10.0,
         max_false_go: None,
         folds: 0,
+        cv_trainers: host_trainer::workflow::CvTrainers::Auto,
         progress: false,
     };
     (train_model(&ds, None, &req).unwrap().model, ds)
