@@ -241,26 +241,39 @@ fn sheet_channels_match_log_columns_without_case_and_mismatches_are_said() {
 fn messages_say_what_is_really_wrong() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    for (name, bytes, says) in [
+    // Semicolons and tabs are detected; only a forced comma leaves the hint to give.
+    for (name, bytes, says, forced) in [
         (
             "semi.csv",
             &b"a;b;label\n1;2;GO\n"[..],
-            "looks semicolon-separated",
+            "pass --delimiter ';'",
+            true,
         ),
-        ("cr.csv", &b"a,b,label\r1,2,GO\r2,1,NO-GO\r"[..], "CR only"),
+        (
+            "cr.csv",
+            &b"a,b,label\r1,2,GO\r2,1,NO-GO\r"[..],
+            "CR only",
+            false,
+        ),
         (
             "tabs.csv",
             &b"a\tb\tlabel\n1\t2\tGO\n"[..],
-            "name the file .tsv",
+            "pass --delimiter tab",
+            true,
         ),
         (
             "quote.csv",
             &b"a,b,label\n1,2,GO\n\"3,1,NO-GO\n4,4,GO\n"[..],
             "a quote opened here is never closed",
+            false,
         ),
     ] {
         write(d, name, bytes);
-        let err = exits(&linegate(&["check", name], d), 2);
+        let mut args = vec!["check", name];
+        if forced {
+            args.extend(["--delimiter", "comma"]);
+        }
+        let err = exits(&linegate(&args, d), 2);
         assert!(err.contains(name) && err.contains(says), "{name}: {err}");
     }
 }

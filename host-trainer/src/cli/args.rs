@@ -43,6 +43,28 @@ pub struct LogArgs {
     /// Most units to hold in memory (4 bytes per reading each).
     #[arg(long, default_value_t = 50_000_000)]
     pub max_rows: usize,
+    /// Field delimiter: comma, semicolon, tab or pipe (or the character itself). Default:
+    /// tab for .tsv and .tab files, otherwise the most frequent of the four in the header row.
+    #[arg(long, value_parser = parse_delimiter, value_name = "DELIMITER")]
+    pub delimiter: Option<u8>,
+    /// A comma in a number is the decimal mark (5,1 = 5.1). Default: on for files not
+    /// separated by commas (semicolon exports of spreadsheets set to a decimal comma), off
+    /// for comma-separated ones. A cell holding both '.' and ',' is refused.
+    #[arg(long)]
+    pub decimal_comma: bool,
+}
+
+/// `--delimiter`'s value: a name or the character.
+fn parse_delimiter(s: &str) -> Result<u8, String> {
+    match s.to_ascii_lowercase().as_str() {
+        "comma" | "," => Ok(b','),
+        "semicolon" | ";" => Ok(b';'),
+        "tab" | "\\t" | "\t" => Ok(b'\t'),
+        "pipe" | "|" => Ok(b'|'),
+        _ => Err(format!(
+            "'{s}' is not a delimiter: use comma, semicolon, tab or pipe"
+        )),
+    }
 }
 
 impl LogArgs {
@@ -66,6 +88,8 @@ impl LogArgs {
             max_rows: self.max_rows,
             progress: !quiet && std::io::stderr().is_terminal(),
             label_optional: false,
+            delimiter: self.delimiter,
+            decimal_comma: self.decimal_comma.then_some(true),
         }
     }
 }

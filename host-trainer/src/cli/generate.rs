@@ -45,7 +45,11 @@ impl GenerateArgs {
             bail!("--channels must be 1..={}", shared_model::MAX_CHANNELS);
         }
         let mut log = Vec::new();
-        host_trainer::synth::write_log(&mut log, *rows, *channels, *margin, *seed)?;
+        // The file says what it holds: tab-separated for .tsv, .tab and .txt.
+        let delimiter = host_trainer::synth::delimiter_for(output);
+        host_trainer::synth::write_log_delimited(
+            &mut log, *rows, *channels, *margin, *seed, delimiter,
+        )?;
         let mut set = OutputSet::default();
         set.add(output, log);
         set.add(

@@ -135,6 +135,14 @@ fn warn_skipped(path: &std::path::Path, skipped: &host_trainer::ingest::SkipRepo
             skipped.examples.first().map_or("", String::as_str)
         );
     }
+    if skipped.empty_rows > 0 || skipped.empty_columns > 0 {
+        eprintln!(
+            "note: {}: left out {} empty rows and {} unnamed empty columns at the header's end (as spreadsheets export them)",
+            path.display(),
+            skipped.empty_rows,
+            skipped.empty_columns
+        );
+    }
 }
 
 /// Says on stderr where a channel sheet and a log disagree: a log channel the sheet does not

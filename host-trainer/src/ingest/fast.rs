@@ -16,6 +16,8 @@ use crate::ingest::scaling::{ChannelScale, power_of_ten};
 #[derive(Clone, Copy, Debug)]
 enum Role {
     Skip,
+    /// Under a trailing unnamed header column: must be empty.
+    Empty,
     Channel(usize),
     Label,
     Unit,
@@ -205,6 +207,7 @@ impl FastPlan {
             None => None,
         };
         let mut roles = vec![Role::Skip; cols.names.len()];
+        roles.resize(cols.width, Role::Empty);
         if let Some(l) = cols.label {
             *roles.get_mut(l)? = Role::Label;
         }
@@ -297,6 +300,11 @@ impl FastPlan {
                         return None;
                     }
                     unit = Some((start, end));
+                }
+                Role::Empty => {
+                    if !field.trim_ascii().is_empty() {
+                        return None;
+                    }
                 }
                 Role::Skip | Role::Channel(_) => {}
             }

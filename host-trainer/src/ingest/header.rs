@@ -15,6 +15,9 @@ pub(super) struct Columns {
     pub(super) label: Option<usize>,
     pub(super) unit: Option<usize>,
     pub(super) channels: Vec<usize>,
+    /// Fields a record may have: the named columns and the header's trailing empty ones
+    /// (spreadsheet exports), whose cells must then be empty.
+    pub(super) width: usize,
 }
 
 pub(super) fn find(names: &[String], wanted: &str) -> Option<usize> {
@@ -97,11 +100,13 @@ impl Columns {
                 max: shared_model::MAX_CHANNELS,
             });
         }
+        let width = names.len();
         Ok(Self {
             names,
             label,
             unit,
             channels,
+            width,
         })
     }
 }
@@ -114,6 +119,8 @@ pub(super) struct Header {
     /// Offset just past the header's line end.
     pub(super) end: usize,
     pub(super) delimiter: u8,
+    /// Empty names at the header's end (a spreadsheet's unused columns), left out of `names`.
+    pub(super) trailing_empty: usize,
 }
 
 /// Reads the first record (the header) into `buf`, refilling until it is complete.
@@ -131,10 +138,6 @@ pub(super) fn read_header(
     } else {
         0
     };
-    let tsv = path
-        .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
-    let delimiter = if tsv { b'\t' } else { b',' };
     let end = loop {
         let mut q = false;
         if let Some(&e) = record_ends(&buf[start..], &mut q).first() {
@@ -153,6 +156,14 @@ pub(super) fn read_header(
         reader.refill(buf).map_err(io)?;
     };
     let header = strip_line_end(&buf[start..end]);
+    let tsv = path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
+    let delimiter = match opts.delimiter {
+        Some(d) => d,
+        None if tsv => b'\t',
+        None => detect_delimiter(header),
+    };
     if header.is_empty() && end >= buf.len() {
         return Err(InputError::Empty { path: path.into() });
     }
@@ -168,16 +179,47 @@ pub(super) fn read_header(
         src,
         ranges: &ranges,
     };
-    let names = (0..hf.len())
+    let mut names = (0..hf.len())
         .map(|i| std::str::from_utf8(hf.get(i)).map(|s| s.trim().to_string()))
         .collect::<Result<Vec<_>, _>>()
         .map_err(|_| InputError::HeaderNotUtf8 { path: path.into() })?;
+    let named = names
+        .iter()
+        .rposition(|n| !n.is_empty())
+        .map_or(0, |k| k + 1);
+    let trailing_empty = names.len() - named;
+    names.truncate(named);
     Ok(Header {
         names,
         start,
         end,
         delimiter,
+        trailing_empty,
     })
+}
+
+/// Delimiters a log may use, in the order that breaks a tie.
+pub const DELIMITERS: [u8; 4] = [b',', b';', b'\t', b'|'];
+
+/// The delimiter of a header row: the most frequent of [`DELIMITERS`] outside quotes; a
+/// comma when none occurs (a one-column header).
+fn detect_delimiter(header: &[u8]) -> u8 {
+    let mut counts = [0usize; DELIMITERS.len()];
+    let mut quoted = false;
+    for &b in header {
+        if b == b'"' {
+            quoted = !quoted;
+        } else if !quoted && let Some(k) = DELIMITERS.iter().position(|&d| d == b) {
+            counts[k] += 1;
+        }
+    }
+    let mut best = 0;
+    for k in 1..DELIMITERS.len() {
+        if counts[k] > counts[best] {
+            best = k;
+        }
+    }
+    DELIMITERS[best]
 }
 
 /// The channel names a log would use under `opts`, from its header alone.
@@ -209,9 +251,9 @@ fn header_hint(names: &[String]) -> String {
     if all.contains('\r') {
         "; the header holds a carriage return inside it: the line ends look like CR only, and a log needs LF or CR LF line ends".into()
     } else if names.len() == 1 && all.contains(';') {
-        "; the header is one column holding ';': the file looks semicolon-separated, and a log is comma-separated (.csv) or tab-separated (.tsv, .tab)".into()
+        "; the header is one column holding ';': the file looks semicolon-separated; leave --delimiter out to detect it, or pass --delimiter ';'".into()
     } else if names.len() == 1 && all.contains('\t') {
-        "; the header is one column holding tabs: name the file .tsv or .tab to read it tab-separated".into()
+        "; the header is one column holding tabs: leave --delimiter out to detect it, or pass --delimiter tab".into()
     } else {
         String::new()
     }

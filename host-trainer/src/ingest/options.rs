@@ -43,6 +43,13 @@ pub struct LogOptions {
     pub max_rows: usize,
     /// Show a progress bar.
     pub progress: bool,
+    /// Field delimiter; `None` takes tab for `.tsv`/`.tab` files and otherwise the most
+    /// frequent of comma, semicolon, tab and pipe in the header row (comma if none).
+    pub delimiter: Option<u8>,
+    /// Whether a comma in a number is its decimal mark (`5,1`); `None` says yes exactly when
+    /// the delimiter is not a comma (a semicolon file from a spreadsheet set to a decimal
+    /// comma), where a comma inside a cell cannot be a delimiter.
+    pub decimal_comma: Option<bool>,
     /// A log may lack a label column (scoring new units, as `replay` does); its units then
     /// carry label 0. Training and audit always need labels.
     pub label_optional: bool,
@@ -63,6 +70,8 @@ impl Default for LogOptions {
             max_rows: 50_000_000,
             progress: false,
             label_optional: false,
+            delimiter: None,
+            decimal_comma: None,
         }
     }
 }

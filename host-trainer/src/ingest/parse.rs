@@ -16,6 +16,8 @@ pub(super) struct Parser<'a> {
     pub(super) opts: &'a LogOptions,
     pub(super) cols: &'a Columns,
     pub(super) delimiter: u8,
+    /// A comma in a number is its decimal mark.
+    pub(super) decimal_comma: bool,
     /// Convert to raw readings while parsing.
     pub(super) scales: Option<&'a [ChannelScale]>,
     /// Keep a reading outside its channel's range as the raw count the device would read
@@ -38,6 +40,8 @@ pub(super) struct Parsed {
     pub(super) unit_ends: Vec<usize>,
     /// Each error with the number of rows before it in this run.
     pub(super) errors: Vec<(usize, InputError)>,
+    /// Rows with no cell filled, left out.
+    pub(super) empty_rows: usize,
 }
 
 impl Parsed {
@@ -49,6 +53,7 @@ impl Parsed {
         self.unit_bytes.clear();
         self.unit_ends.clear();
         self.errors.clear();
+        self.empty_rows = 0;
     }
 }
 
@@ -70,10 +75,14 @@ impl Parser<'_> {
                 max: opts.max_line_len,
             });
         }
-        if f.len() == 1 && f.get(0).is_empty() {
+        if (0..f.len()).all(|i| trim(f.get(i)).is_empty()) {
             return Ok(None);
         }
-        if f.len() != cols.names.len() {
+        // Cells under the header's trailing unnamed columns may be there, but empty.
+        let extra_empty = f.len() > cols.names.len()
+            && f.len() <= cols.width
+            && (cols.names.len()..f.len()).all(|i| trim(f.get(i)).is_empty());
+        if f.len() != cols.names.len() && !extra_empty {
             return Err(InputError::Ragged {
                 hint: String::new(),
                 path: path.into(),
@@ -94,12 +103,13 @@ impl Parser<'_> {
             }
             // fast-float2 parses the bytes directly (no UTF-8 pass) and accepts exactly a whole
             // decimal number, like str::parse, several times faster.
-            let x: f64 = fast_float2::parse(cell).map_err(|_| InputError::NotNumeric {
-                path: path.into(),
-                line,
-                column: column(),
-                value: cell_text(cell),
-            })?;
+            let x: f64 =
+                parse_number(cell, self.decimal_comma).ok_or_else(|| InputError::NotNumeric {
+                    path: path.into(),
+                    line,
+                    column: column(),
+                    value: cell_text(cell),
+                })?;
             if !x.is_finite() || x.abs() > MAX_READING {
                 return Err(InputError::NotFinite {
                     path: path.into(),
@@ -256,7 +266,7 @@ impl Parser<'_> {
             }),
         };
         match parsed {
-            Ok(None) => {}
+            Ok(None) => out.empty_rows += 1,
             Ok(Some(label)) => {
                 if self.scales.is_some() {
                     out.raw.extend_from_slice(raw_row);
@@ -284,6 +294,28 @@ pub(super) fn grow<T: Copy + Default>(v: &mut Vec<T>, d: usize) -> &mut [T] {
     let n = v.len();
     v.resize(n + d, T::default());
     &mut v[n..]
+}
+
+/// A whole decimal number; with `decimal_comma`, one comma may stand for the decimal point
+/// (`-5,25`), and a cell holding both marks is refused: thousands separators are not read,
+/// since `1.234` would mean 1234 in one locale and 1.234 in another.
+pub(super) fn parse_number(cell: &[u8], decimal_comma: bool) -> Option<f64> {
+    if let Ok(x) = fast_float2::parse(cell) {
+        return Some(x);
+    }
+    let comma = memchr::memchr(b',', cell)?;
+    if !decimal_comma
+        || cell.len() > 64
+        || memchr::memchr2(b',', b'.', &cell[comma + 1..]).is_some()
+        || memchr::memchr(b'.', &cell[..comma]).is_some()
+    {
+        return None;
+    }
+    let mut buf = [0u8; 64];
+    let copy = buf.get_mut(..cell.len())?;
+    copy.copy_from_slice(cell);
+    copy[comma] = b'.';
+    fast_float2::parse(copy).ok()
 }
 
 pub(super) fn trim(f: &[u8]) -> &[u8] {

@@ -81,15 +81,19 @@ pub(super) fn scan_blocks(
         start: mut pos,
         end: header_end,
         delimiter,
+        trailing_empty,
     } = read_header(path, opts, &mut reader, &mut buf)?;
     let mut line = 1 + count_lf(&buf[pos..header_end]);
     pos = header_end;
-    let cols = Columns::resolve(path, names, opts, model)?;
+    let mut cols = Columns::resolve(path, names, opts, model)?;
+    cols.width += trailing_empty;
+    skipped.empty_columns = trailing_empty;
     let parser = Parser {
         path,
         opts,
         cols: &cols,
         delimiter,
+        decimal_comma: opts.decimal_comma.unwrap_or(delimiter != b','),
         scales,
         keep_faults: model.is_some(),
         fast: fast::FastPlan::new(&cols, scales, delimiter, opts),
@@ -98,6 +102,7 @@ pub(super) fn scan_blocks(
     // under `skip_bad_rows`; any other error ends the scan.
     let mut feed = |runs: &mut [Parsed], skipped: &mut SkipReport| -> Result<(), InputError> {
         let d = cols.channels.len();
+        skipped.empty_rows += runs.iter().map(|p| p.empty_rows).sum::<usize>();
         let mut settle = |e: InputError| {
             if opts.skip_bad_rows && is_row_error(&e) {
                 skipped.add(&e);
@@ -106,7 +111,7 @@ pub(super) fn scan_blocks(
                 Err(e)
             }
         };
-        for parsed in runs {
+        for parsed in runs.iter_mut() {
             let mut errors = parsed.errors.drain(..).peekable();
             for k in 0..=parsed.labels.len() {
                 while let Some((_, e)) = errors.next_if(|(at, _)| *at == k) {

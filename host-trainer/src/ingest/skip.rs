@@ -14,6 +14,17 @@ pub struct SkipReport {
     pub by_reason: BTreeMap<String, usize>,
     /// The first few messages, for the user to look at.
     pub examples: Vec<String>,
+    /// Rows with no cell filled (blank lines, or only delimiters as spreadsheets export
+    /// them): not units, left out and counted.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub empty_rows: usize,
+    /// Unnamed columns at the header's end (spreadsheet exports) whose cells are all empty.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub empty_columns: usize,
+}
+
+fn is_zero(n: &usize) -> bool {
+    *n == 0
 }
 
 impl SkipReport {

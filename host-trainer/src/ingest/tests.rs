@@ -122,6 +122,7 @@ fn both_paths(opts: &LogOptions, bytes: &[u8], plain: bool, raw: bool) -> (Parse
         opts,
         cols: &cols,
         delimiter: b',',
+        decimal_comma: false,
         scales,
         keep_faults: false,
         fast,
