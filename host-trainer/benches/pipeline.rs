@@ -81,6 +81,7 @@ fn main() {
         epochs: 50,
         c: None,
         max_false_go: None,
+        holdout_split: None,
     };
     let summary = host_trainer::train::float_model::TrainingSummary {
         units: ds.len(),

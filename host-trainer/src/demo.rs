@@ -289,6 +289,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         max_false_go: None,
         folds: 5,
         cv_trainers: crate::workflow::CvTrainers::All,
+        holdout_split: None,
         progress: false,
     };
     let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;

@@ -76,6 +76,9 @@ pub struct TrainRequest {
     pub folds: usize,
     /// Which trainers cross-validation compares.
     pub cv_trainers: CvTrainers,
+    /// The holdout taken out of the training log before `ds` was formed, if any (recorded in
+    /// the model's provenance).
+    pub holdout_split: Option<crate::train::float_model::HoldoutSplit>,
     /// Show a progress bar on long work.
     pub progress: bool,
 }
@@ -203,6 +206,7 @@ pub fn train_model(
         epochs: req.epochs,
         c: t.c,
         max_false_go: req.max_false_go,
+        holdout_split: req.holdout_split.clone(),
     };
     let model = FloatModel::new(provenance, ds.scales.clone(), &t.model, threshold, summary);
     let cross_validation = if req.folds >= 2 {

@@ -90,6 +90,7 @@ impl LogArgs {
             label_optional: false,
             delimiter: self.delimiter,
             decimal_comma: self.decimal_comma.then_some(true),
+            keep_times: false,
         }
     }
 }

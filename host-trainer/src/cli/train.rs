@@ -38,8 +38,18 @@ pub struct TrainArgs {
     #[arg(long, value_name = "N")]
     pub max_false_go: Option<usize>,
     /// Holdout log to evaluate on.
-    #[arg(long)]
+    #[arg(long, conflicts_with_all = ["holdout_fraction", "holdout_after"])]
     pub holdout: Option<PathBuf>,
+    /// Hold out this fraction of each class of the training log (seeded by --seed), train on
+    /// the rest and evaluate on it. The split is recorded in the model's provenance.
+    #[arg(long, value_name = "F", value_parser = parse_fraction, conflicts_with = "holdout_after")]
+    pub holdout_fraction: Option<f64>,
+    /// Hold out the units whose timestamp comes after T (the timestamp column: timestamp,
+    /// time or date, or --timestamp), train on the earlier ones and evaluate on the later.
+    /// Numbers compare as numbers (epoch seconds), anything else as text, which orders ISO
+    /// 8601 times of one format (2026-11-30T14:05:00).
+    #[arg(long, value_name = "T")]
+    pub holdout_after: Option<String>,
     /// k-fold cross-validation (0: off). Each fold trains on the other k − 1 folds, so it
     /// costs about k trainings per trainer validated (see --cv-trainers).
     #[arg(long, default_value_t = 5)]
@@ -73,14 +83,50 @@ impl TrainArgs {
             c,
             max_false_go,
             holdout,
+            holdout_fraction,
+            holdout_after,
             folds,
             cv_trainers,
             output,
             force,
             json,
         } = self;
-        let opts = log_args.options(quiet);
-        let (ds, sheet) = workflow::load(log, &opts, sheet.as_deref())?;
+        let mut opts = log_args.options(quiet);
+        opts.keep_times = holdout_after.is_some();
+        let (full, sheet) = workflow::load(log, &opts, sheet.as_deref())?;
+        // A holdout taken out of the training log: train on the rest, evaluate on it.
+        let split = match (holdout_fraction, holdout_after) {
+            (Some(f), _) => Some(("fraction", full.split_fraction(*f, *seed))),
+            (None, Some(t)) => Some((
+                "after",
+                full.split_after(t)
+                    .map_err(|m| anyhow::anyhow!("{}: --holdout-after: {m}", log.display()))?,
+            )),
+            (None, None) => None,
+        };
+        let (ds, held, holdout_split) = match split {
+            Some((method, (train_idx, hold_idx))) => {
+                if hold_idx.is_empty() || train_idx.is_empty() {
+                    anyhow::bail!(
+                        "{}: the holdout split leaves {} units to train on and {} to hold out; both need some",
+                        log.display(),
+                        train_idx.len(),
+                        hold_idx.len()
+                    );
+                }
+                let record = host_trainer::train::float_model::HoldoutSplit {
+                    method: method.into(),
+                    fraction: *holdout_fraction,
+                    seed: holdout_fraction.map(|_| *seed),
+                    after: holdout_after.clone(),
+                    held_out: hold_idx.len(),
+                    trained_on: train_idx.len(),
+                };
+                let held = full.subset(&hold_idx);
+                (full.subset(&train_idx), Some(held), Some(record))
+            }
+            None => (full, None, None),
+        };
         if !quiet {
             super::warn_skipped(log, &ds.skipped);
             super::warn_sheet(log, &ds, sheet.as_ref());
@@ -93,9 +139,13 @@ impl TrainArgs {
             max_false_go: *max_false_go,
             folds: *folds,
             cv_trainers: *cv_trainers,
+            holdout_split,
             progress: !quiet && std::io::stderr().is_terminal(),
         };
         let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)?;
+        if let Some(hd) = &held {
+            out.evaluate_holdout(hd);
+        }
         if let Some(h) = holdout {
             let hd = workflow::load_for_model(h, &opts, &out.model)?;
             if !quiet {
@@ -166,4 +216,14 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
         }
     }
     say!("wrote {} (model id {})", path.display(), m.model_id);
+}
+
+/// `--holdout-fraction`'s value: strictly between 0 and 1.
+fn parse_fraction(s: &str) -> Result<f64, String> {
+    match s.parse::<f64>() {
+        Ok(f) if f > 0.0 && f < 1.0 => Ok(f),
+        _ => Err(format!(
+            "'{s}' is not a fraction between 0 and 1 (e.g. 0.2)"
+        )),
+    }
 }

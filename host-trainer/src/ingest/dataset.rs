@@ -31,6 +31,8 @@ pub struct Dataset {
     pub unit_ids: UnitIds,
     /// Rows skipped under `--skip-bad-rows`.
     pub skipped: SkipReport,
+    /// Timestamp cells, when read for a holdout split by time (else empty).
+    pub times: UnitIds,
 }
 
 impl Dataset {
@@ -45,6 +47,7 @@ impl Dataset {
             lines: Vec::new(),
             unit_ids: UnitIds::default(),
             skipped: SkipReport::default(),
+            times: UnitIds::default(),
         }
     }
 
@@ -134,6 +137,73 @@ impl Dataset {
     /// Every unit index.
     pub fn all(&self) -> Vec<usize> {
         (0..self.len()).collect()
+    }
+
+    /// The units `idx` as a dataset of their own (same file, scaling and lines).
+    pub fn subset(&self, idx: &[usize]) -> Self {
+        let mut out = Self::empty(&self.path, self.scales.clone());
+        out.sha256 = self.sha256.clone();
+        out.skipped = self.skipped.clone();
+        for &i in idx {
+            out.raw.extend_from_slice(self.raw_row(i));
+            out.labels.push(self.labels[i]);
+            out.lines.push(self.lines[i]);
+            if let Some(u) = self.unit_ids.get(i) {
+                out.unit_ids.push(u.as_bytes());
+            }
+            if let Some(t) = self.times.get(i) {
+                out.times.push(t.as_bytes());
+            }
+        }
+        out
+    }
+
+    /// A seeded, stratified holdout: `fraction` of each class (rounded, and at least one
+    /// unit of each class left to train on) goes to the second list. Both lists are in file
+    /// order.
+    pub fn split_fraction(&self, fraction: f64, seed: u64) -> (Vec<usize>, Vec<usize>) {
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        let (mut train, mut hold) = (Vec::new(), Vec::new());
+        for class in [1i8, -1] {
+            let mut idx: Vec<usize> = (0..self.len())
+                .filter(|&i| self.labels[i] == class)
+                .collect();
+            idx.shuffle(&mut rng);
+            let n =
+                ((idx.len() as f64 * fraction).round() as usize).min(idx.len().saturating_sub(1));
+            hold.extend_from_slice(&idx[..n]);
+            train.extend_from_slice(&idx[n..]);
+        }
+        train.sort_unstable();
+        hold.sort_unstable();
+        (train, hold)
+    }
+
+    /// A holdout by time: units whose timestamp comes after `after` go to the second list.
+    /// Timestamps compare as numbers when both are numbers (epoch seconds), otherwise as
+    /// text, which orders ISO 8601 times (`2026-11-30T14:05:00`) of one format correctly.
+    ///
+    /// # Errors
+    /// The log was read without timestamps, or a unit's timestamp is empty (its line).
+    pub fn split_after(&self, after: &str) -> Result<(Vec<usize>, Vec<usize>), String> {
+        if self.times.len() != self.len() {
+            return Err("the log has no timestamp column (timestamp, time or date; or name it with --timestamp)".into());
+        }
+        let limit = after.trim();
+        let limit_num = limit.parse::<f64>().ok();
+        let (mut train, mut hold) = (Vec::new(), Vec::new());
+        for i in 0..self.len() {
+            let t = self.times.get(i).unwrap_or("");
+            if t.is_empty() {
+                return Err(format!("line {}: the timestamp is empty", self.lines[i]));
+            }
+            let later = match (t.parse::<f64>().ok(), limit_num) {
+                (Some(a), Some(b)) => a > b,
+                _ => t > limit,
+            };
+            if later { hold.push(i) } else { train.push(i) }
+        }
+        Ok((train, hold))
     }
 
     /// Splits the units into `k` folds after a seeded shuffle; each fold keeps the class ratio.

@@ -189,6 +189,10 @@ impl FastPlan {
         delimiter: u8,
         opts: &LogOptions,
     ) -> Option<Self> {
+        // Timestamps are kept by the general path only (a holdout split by time is rare).
+        if opts.keep_times && cols.time.is_some() {
+            return None;
+        }
         // A delimiter that can be part of a number would make fields ambiguous.
         if delimiter.is_ascii_digit() || matches!(delimiter, b'.' | b'-' | b'"') {
             return None;

@@ -14,6 +14,8 @@ pub(super) struct Columns {
     /// The label column; `None` only when the options allow a log without one.
     pub(super) label: Option<usize>,
     pub(super) unit: Option<usize>,
+    /// The timestamp column, if any.
+    pub(super) time: Option<usize>,
     pub(super) channels: Vec<usize>,
     /// Fields a record may have: the named columns and the header's trailing empty ones
     /// (spreadsheet exports), whose cells must then be empty.
@@ -105,6 +107,7 @@ impl Columns {
             names,
             label,
             unit,
+            time,
             channels,
             width,
         })

@@ -50,6 +50,8 @@ pub struct LogOptions {
     /// the delimiter is not a comma (a semicolon file from a spreadsheet set to a decimal
     /// comma), where a comma inside a cell cannot be a delimiter.
     pub decimal_comma: Option<bool>,
+    /// Keep each unit's timestamp cell (for a holdout split by time).
+    pub keep_times: bool,
     /// A log may lack a label column (scoring new units, as `replay` does); its units then
     /// carry label 0. Training and audit always need labels.
     pub label_optional: bool,
@@ -72,6 +74,7 @@ impl Default for LogOptions {
             label_optional: false,
             delimiter: None,
             decimal_comma: None,
+            keep_times: false,
         }
     }
 }

@@ -38,6 +38,9 @@ pub(super) struct Parsed {
     pub(super) lines: Vec<u64>,
     pub(super) unit_bytes: Vec<u8>,
     pub(super) unit_ends: Vec<usize>,
+    /// Timestamp cells, packed like the unit ids (only under `keep_times`).
+    pub(super) time_bytes: Vec<u8>,
+    pub(super) time_ends: Vec<usize>,
     /// Each error with the number of rows before it in this run.
     pub(super) errors: Vec<(usize, InputError)>,
     /// Rows with no cell filled, left out.
@@ -52,6 +55,8 @@ impl Parsed {
         self.lines.clear();
         self.unit_bytes.clear();
         self.unit_ends.clear();
+        self.time_bytes.clear();
+        self.time_ends.clear();
         self.errors.clear();
         self.empty_rows = 0;
     }
@@ -256,6 +261,11 @@ impl Parser<'_> {
                     if let (Some(_), Some(u)) = (label, self.cols.unit) {
                         out.unit_bytes.extend_from_slice(trim(f.get(u)));
                         out.unit_ends.push(out.unit_bytes.len());
+                    }
+                    if let (Some(_), Some(t), true) = (label, self.cols.time, self.opts.keep_times)
+                    {
+                        out.time_bytes.extend_from_slice(trim(f.get(t)));
+                        out.time_ends.push(out.time_bytes.len());
                     }
                     Ok(label)
                 })

@@ -116,6 +116,9 @@ pub fn read_log(
         if let Some(u) = row.unit {
             ds.unit_ids.push(u);
         }
+        if let Some(t) = row.time {
+            ds.times.push(t);
+        }
         Ok(())
     })?;
     if cols2.unit.is_none() {

@@ -25,6 +25,8 @@ pub(super) struct Row<'r> {
     pub(super) raw: &'r [i32],
     pub(super) label: i8,
     pub(super) unit: Option<&'r [u8]>,
+    /// The timestamp cell, under `keep_times`.
+    pub(super) time: Option<&'r [u8]>,
 }
 
 /// Streams the log once, calling `on_row` for each good row in file order. Returns the
@@ -128,6 +130,10 @@ pub(super) fn scan_blocks(
                     unit: parsed.unit_ends.get(k).map(|&e| {
                         let b = if k == 0 { 0 } else { parsed.unit_ends[k - 1] };
                         &parsed.unit_bytes[b..e]
+                    }),
+                    time: parsed.time_ends.get(k).map(|&e| {
+                        let b = if k == 0 { 0 } else { parsed.time_ends[k - 1] };
+                        &parsed.time_bytes[b..e]
                     }),
                 };
                 on_row(&cols, row).or_else(&mut settle)?;

@@ -58,6 +58,30 @@ pub struct Provenance {
     pub c: Option<f64>,
     /// `--max-false-go`, if given.
     pub max_false_go: Option<usize>,
+    /// The holdout split taken out of the training log, if any: the model was trained on
+    /// the other units.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub holdout_split: Option<HoldoutSplit>,
+}
+
+/// A holdout taken out of the training log by `train`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct HoldoutSplit {
+    /// `fraction` (seeded, stratified by class) or `after` (by timestamp).
+    pub method: String,
+    /// The fraction of each class held out, for `fraction`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub fraction: Option<f64>,
+    /// The seed of the shuffle, for `fraction`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub seed: Option<u64>,
+    /// Units with a timestamp after this were held out, for `after`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub after: Option<String>,
+    /// Units held out.
+    pub held_out: usize,
+    /// Units trained on.
+    pub trained_on: usize,
 }
 
 /// Training figures kept with the model.

@@ -71,6 +71,7 @@ fn trained(
         max_false_go: None,
         folds: 0,
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
+        holdout_split: None,
         progress: false,
     };
     (train_model(&ds, None, &req).unwrap().model, ds)

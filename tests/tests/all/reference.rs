@@ -319,6 +319,7 @@ fn a_false_go_cap_of_zero_keeps_every_nogo_unit_strictly_nogo_in_float_and_fixed
         max_false_go: Some(0),
         folds: 0,
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
+        holdout_split: None,
         progress: false,
     };
     let fm = host_trainer::workflow::train_model(&ds, None, &req)

@@ -55,6 +55,7 @@ fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c
         max_false_go: None,
         folds: 0,
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
+        holdout_split: None,
         progress: false,
     };
     let fm = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)
