@@ -297,7 +297,7 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
 fn inspect_catches_a_flipped_bit_and_a_mismatched_model() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    let o = linegate(&["-q", "demo", "--out", "demo"], d);
+    let o = linegate(&["-q", "demo", "--out-dir", "demo"], d);
     exits(&o, 0);
     let blob = std::fs::read(d.join("demo/model.lgb")).unwrap();
     let o = linegate(
@@ -359,7 +359,9 @@ fn replay_prints_the_demo_lines() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     assert_eq!(
-        linegate(&["-q", "demo", "--out", "demo"], d).status.code(),
+        linegate(&["-q", "demo", "--out-dir", "demo"], d)
+            .status
+            .code(),
         Some(0)
     );
     let o = linegate(
@@ -913,7 +915,7 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
         "signing is deterministic"
     );
     let mut au = vec!["audit".to_string()];
-    au.extend(release(&["--report-dir", "rep"]));
+    au.extend(release(&["--out-dir", "rep"]));
     exits(&run(au), 0);
     let o = linegate(
         &[

@@ -19,8 +19,8 @@ pub struct AuditArgs {
     /// Also run the word-length sweep (weights 8/12/16/24/32 × inputs 8/16).
     #[arg(long)]
     pub sweep: bool,
-    /// Write audit.md, audit.html and audit.json here.
-    #[arg(long)]
+    /// Output folder for audit.md, audit.html and audit.json.
+    #[arg(long = "out-dir", alias = "report-dir", value_name = "DIR")]
     pub report_dir: Option<PathBuf>,
     /// Write every unit's float and fixed scores, verdicts and margins to this CSV file.
     #[arg(long, value_name = "FILE")]

@@ -11,7 +11,7 @@ use host_trainer::demo;
 #[derive(Args)]
 pub struct DemoArgs {
     /// Output folder.
-    #[arg(long, default_value = "linegate-demo")]
+    #[arg(long = "out-dir", alias = "out", default_value = "linegate-demo")]
     pub out: PathBuf,
     /// Overwrite files from an earlier demo.
     #[arg(long)]

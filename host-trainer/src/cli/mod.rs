@@ -66,41 +66,43 @@ pub struct Cli {
 pub enum Cmd {
     /// Decide exactly whether a bench log is linearly separable (LP), with γ*, support units and the Novikoff bound.
     #[command(
-        after_help = "Example:\n  linegate check bench.csv --sheet channels.toml\n\nExit 0: separable; 1: not separable (conflicting units listed); 2: input error."
+        after_help = "Example:\n  linegate check bench.csv --sheet channels.toml\n\nExit codes: 0 separable; 1 not separable (conflicting units listed); 2 usage, input or output error."
     )]
     Check(check::CheckArgs),
     /// Train a float model from a bench log; writes our JSON float-model file.
     #[command(
-        after_help = "Example:\n  linegate train bench.csv --sheet channels.toml --trainer max-margin --holdout holdout.csv -o model.json\n  linegate train bench.csv --trainer pocket --epochs 200 --max-false-go 0 -o model.json"
+        after_help = "Example:\n  linegate train bench.csv --sheet channels.toml --trainer max-margin --holdout holdout.csv -o model.json\n  linegate train bench.csv --trainer pocket --epochs 200 --max-false-go 0 -o model.json\n  linegate train export.csv --holdout-fraction 0.2 -o model.json        # seeded, stratified\n  linegate train bench.csv --holdout-after 2026-11-01 -o model.json     # later units held out\n\nComputes: the exact separability check with the hard margin (reused as the max-margin model), the chosen trainer, k-fold cross-validation (--folds, --cv-trainers), the holdout.\n\nExit codes: 0 model written; 2 usage, input or output error (nothing written), or a model with no direction."
     )]
     Train(train::TrainArgs),
     /// Quantise and run the release audit; exit 1 if it fails.
     #[command(
-        after_help = "Example:\n  linegate audit --model model.json --train bench.csv --holdout holdout.csv --sweep --report-dir audit/\n  linegate audit --model model.json --train bench.csv --weight-bits 8 --noise vibration_mg=2.5 --json"
+        after_help = "Example:\n  linegate audit --model model.json --train bench.csv --holdout holdout.csv --sweep --out-dir audit/\n  linegate audit --model model.json --train bench.csv --weight-bits 8 --noise vibration_mg=2.5 --json\n\nExit codes: 0 every gate passed; 1 the audit ran and a gate failed; 2 usage, input or output error."
     )]
     Audit(audit::AuditArgs),
     /// Quantise, audit, and write the model blob (and flash images) only if the audit passes.
     #[command(
-        after_help = "Example:\n  linegate pack --model model.json --train bench.csv --holdout holdout.csv -o model.lgb --hex 0x3F000 --bin\n\nWith --override-audit a failing model is packed anyway; the blob records the override."
+        after_help = "Example:\n  linegate pack --model model.json --train bench.csv --holdout holdout.csv -o model.lgb --hex 0x3F000 --bin\n\nWith --override-audit a failing model is packed anyway; the blob records the override.\n\nExit codes: 0 blob written; 1 the audit failed (nothing written); 2 usage, input or output error."
     )]
     Pack(pack::PackArgs),
     /// Decode a blob (or an Intel HEX image of one) and print its contents, CRC status and model id.
     #[command(
-        after_help = "Example:\n  linegate inspect model.lgb --model model.json --report audit.json\n\nExit 1 if the blob is corrupt or does not match the given model or report."
+        after_help = "Example:\n  linegate inspect model.lgb --model model.json --report audit.json\n\nExit codes: 0 the blob decodes and matches what was given; 1 corrupt, or it does not match the model, report or key; 2 usage or input error."
     )]
     Inspect(inspect::InspectArgs),
     /// Run the device kernel over a log and print the device's lines (compare with `diff`).
     #[command(
-        after_help = "Example:\n  linegate replay --blob model.lgb --model model.json holdout.csv > host.txt"
+        after_help = "Example:\n  linegate replay --blob model.lgb --model model.json holdout.csv > host.txt\n\nExit codes: 0 every unit replayed (FAULT units included: they are device lines); 1 the blob is corrupt or does not match; 2 usage, input or output error."
     )]
     Replay(replay::ReplayArgs),
     /// Write a SYNTHETIC separable bench log of any size (and its channel sheet), to try Linegate at scale.
     #[command(
-        after_help = "Example:\n  linegate generate --rows 1000000 --channels 16 -o big.csv   # also writes big.toml"
+        after_help = "Example:\n  linegate generate --rows 1000000 --channels 16 -o big.csv   # also writes big.toml\n  linegate generate --rows 1000 -o small.tsv                 # tab-separated, by extension\n\nExit codes: 0 written; 2 usage or output error."
     )]
     Generate(generate::GenerateArgs),
     /// Run the whole job on built-in synthetic data (an invented fan-module test station).
-    #[command(after_help = "Example:\n  linegate demo --out linegate-demo")]
+    #[command(
+        after_help = "Example:\n  linegate demo --out-dir linegate-demo\n\nExit codes: 0 demo written; 2 output error (nothing half-written)."
+    )]
     Demo(demo::DemoArgs),
     /// Create the owner's release key pair, to sign model blobs that devices then require.
     Key(key::KeyArgs),

@@ -51,5 +51,5 @@ pub fn write(dir: &Path, name: &str, bytes: &[u8]) -> PathBuf {
 
 /// Writes the demo into `d/demo`.
 pub fn demo(d: &Path) {
-    exits(&linegate(&["-q", "demo", "--out", "demo"], d), 0);
+    exits(&linegate(&["-q", "demo", "--out-dir", "demo"], d), 0);
 }

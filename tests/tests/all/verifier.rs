@@ -42,7 +42,7 @@ fn verify(blob: &Path, model: &Path, report: &Path, logs: &[PathBuf]) -> (i32, S
     )
 }
 
-/// Trains, audits and packs as `linegate train` / `audit --report-dir` / `pack` do, writing
+/// Trains, audits and packs as `linegate train` / `audit --out-dir` / `pack` do, writing
 /// model.json, audit.json and model.lgb (the blob the report names) into `dir`.
 fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c: f64) {
     let opts = LogOptions::default();
