@@ -67,10 +67,16 @@ fn main() {
         let runs = if rows > 2_000_000 { 1 } else { 3 };
         let t0 = time(
             &bin,
-            &["-q", "train", l, "--sheet", s, "--folds", "0", "-o", o, "--force"],
+            &[
+                "-q", "train", l, "--sheet", s, "--folds", "0", "-o", o, "--force",
+            ],
             runs,
         );
-        let td = time(&bin, &["-q", "train", l, "--sheet", s, "-o", o, "--force"], runs);
+        let td = time(
+            &bin,
+            &["-q", "train", l, "--sheet", s, "-o", o, "--force"],
+            runs,
+        );
         println!(
             "{rows} x 16: train default {td:.2} s / train --folds 0 {t0:.2} s = {:.2}x (goal <= 3x)",
             td / t0
@@ -82,17 +88,12 @@ fn main() {
             cn / cs
         );
         // The hard margin on each fold of the default cross-validation (seed 1, 5 folds).
-        let (ds, _) = host_trainer::workflow::load(&log, &LogOptions::default(), Some(&sheet))
-            .unwrap();
+        let (ds, _) =
+            host_trainer::workflow::load(&log, &LogOptions::default(), Some(&sheet)).unwrap();
         let folds = ds.folds(5, 1);
         let mut cycles = Vec::new();
         for f in 0..folds.len() {
-            let idx: Vec<usize> = folds
-                .iter()
-                .enumerate()
-                .filter(|(g, _)| *g != f)
-                .flat_map(|(_, v)| v.iter().copied())
-                .collect();
+            let idx = host_trainer::ingest::dataset::Dataset::training_of_fold(&folds, f);
             let t = Instant::now();
             let run = max_margin(&ds, &idx, SvmConfig::hard());
             let secs = t.elapsed().as_secs_f64();

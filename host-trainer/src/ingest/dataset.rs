@@ -206,6 +206,16 @@ impl Dataset {
         Ok((train, hold))
     }
 
+    /// The units that train fold `f` of `folds`: every other fold's, in fold order.
+    pub fn training_of_fold(folds: &[Vec<usize>], f: usize) -> Vec<usize> {
+        folds
+            .iter()
+            .enumerate()
+            .filter(|(g, _)| *g != f)
+            .flat_map(|(_, v)| v.iter().copied())
+            .collect()
+    }
+
     /// Splits the units into `k` folds after a seeded shuffle; each fold keeps the class ratio.
     pub fn folds(&self, k: usize, seed: u64) -> Vec<Vec<usize>> {
         let mut rng = ChaCha8Rng::seed_from_u64(seed);

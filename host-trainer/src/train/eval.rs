@@ -178,12 +178,7 @@ pub fn cross_validate(
     let results: Vec<(usize, Counts)> = jobs
         .par_iter()
         .map(|&(t, f)| {
-            let train_idx: Vec<usize> = folds
-                .iter()
-                .enumerate()
-                .filter(|(g, _)| *g != f)
-                .flat_map(|(_, v)| v.iter().copied())
-                .collect();
+            let train_idx = Dataset::training_of_fold(&folds, f);
             if let Some(p) = progress {
                 p.set_message(format!(
                     "{} fold {}/{}",

@@ -1005,12 +1005,7 @@ mod tests {
         let folds = ds.folds(5, 1);
         let mut cycles: Vec<u64> = (0..folds.len())
             .map(|f| {
-                let idx: Vec<usize> = folds
-                    .iter()
-                    .enumerate()
-                    .filter(|(g, _)| *g != f)
-                    .flat_map(|(_, v)| v.iter().copied())
-                    .collect();
+                let idx = Dataset::training_of_fold(&folds, f);
                 let run = max_margin(&ds, &idx, SvmConfig::hard());
                 assert!(run.converged, "fold {f} not certified");
                 run.iterations
