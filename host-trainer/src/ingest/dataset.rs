@@ -165,10 +165,7 @@ impl Dataset {
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
         let (mut train, mut hold) = (Vec::new(), Vec::new());
         for class in [1i8, -1] {
-            let mut idx: Vec<usize> = (0..self.len())
-                .filter(|&i| self.labels[i] == class)
-                .collect();
-            idx.shuffle(&mut rng);
+            let idx = self.shuffled_class(class, &mut rng);
             let n =
                 ((idx.len() as f64 * fraction).round() as usize).min(idx.len().saturating_sub(1));
             hold.extend_from_slice(&idx[..n]);
@@ -206,6 +203,16 @@ impl Dataset {
         Ok((train, hold))
     }
 
+    /// The units of one class in a seeded random order (folds and holdout splits draw
+    /// GO first, then NO-GO, from one generator).
+    fn shuffled_class(&self, class: i8, rng: &mut ChaCha8Rng) -> Vec<usize> {
+        let mut idx: Vec<usize> = (0..self.len())
+            .filter(|&i| self.labels[i] == class)
+            .collect();
+        idx.shuffle(rng);
+        idx
+    }
+
     /// The units that train fold `f` of `folds`: every other fold's, in fold order.
     pub fn training_of_fold(folds: &[Vec<usize>], f: usize) -> Vec<usize> {
         folds
@@ -221,10 +228,7 @@ impl Dataset {
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
         let mut folds = vec![Vec::new(); k.max(1)];
         for class in [1i8, -1] {
-            let mut idx: Vec<usize> = (0..self.len())
-                .filter(|&i| self.labels[i] == class)
-                .collect();
-            idx.shuffle(&mut rng);
+            let idx = self.shuffled_class(class, &mut rng);
             for (n, i) in idx.into_iter().enumerate() {
                 folds[n % k.max(1)].push(i);
             }

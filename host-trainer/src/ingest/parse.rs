@@ -315,12 +315,12 @@ pub(super) fn parse_number(cell: &[u8], decimal_comma: bool) -> Option<f64> {
     }
     let comma = memchr::memchr(b',', cell)?;
     if !decimal_comma
-        || cell.len() > 64
         || memchr::memchr2(b',', b'.', &cell[comma + 1..]).is_some()
         || memchr::memchr(b'.', &cell[..comma]).is_some()
     {
         return None;
     }
+    // No number needs more than 64 bytes; a longer cell is not one.
     let mut buf = [0u8; 64];
     let copy = buf.get_mut(..cell.len())?;
     copy.copy_from_slice(cell);

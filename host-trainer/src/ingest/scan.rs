@@ -127,14 +127,8 @@ pub(super) fn scan_blocks(
                     values: parsed.values.get(k * d..(k + 1) * d).unwrap_or(&[]),
                     raw: parsed.raw.get(k * d..(k + 1) * d).unwrap_or(&[]),
                     label,
-                    unit: parsed.unit_ends.get(k).map(|&e| {
-                        let b = if k == 0 { 0 } else { parsed.unit_ends[k - 1] };
-                        &parsed.unit_bytes[b..e]
-                    }),
-                    time: parsed.time_ends.get(k).map(|&e| {
-                        let b = if k == 0 { 0 } else { parsed.time_ends[k - 1] };
-                        &parsed.time_bytes[b..e]
-                    }),
+                    unit: packed_cell(&parsed.unit_bytes, &parsed.unit_ends, k),
+                    time: packed_cell(&parsed.time_bytes, &parsed.time_ends, k),
                 };
                 on_row(&cols, row).or_else(&mut settle)?;
             }
@@ -303,4 +297,11 @@ pub(super) fn scan_blocks(
     }
     let hash = hasher.finalize();
     Ok((cols, crate::digest::lower_hex(&hash)))
+}
+
+/// Cell `k` of cells packed end to end in `bytes`, `ends[k]` marking where each ends.
+fn packed_cell<'b>(bytes: &'b [u8], ends: &[usize], k: usize) -> Option<&'b [u8]> {
+    let end = *ends.get(k)?;
+    let start = k.checked_sub(1).map_or(0, |j| ends[j]);
+    bytes.get(start..end)
 }
