@@ -49,3 +49,22 @@ pub fn parse_hex(text: &str) -> Option<Vec<u8>> {
 pub fn sha256_hex(bytes: &[u8]) -> String {
     lower_hex(&Sha256::digest(bytes))
 }
+
+/// Lower-case hex SHA-256 of the file at `path`, read in 1 MiB blocks.
+///
+/// # Errors
+/// Any read error.
+pub fn sha256_file(path: &std::path::Path) -> std::io::Result<String> {
+    use std::io::Read;
+    let mut file = std::fs::File::open(path)?;
+    let mut hasher = Sha256::new();
+    let mut block = vec![0u8; 1 << 20];
+    loop {
+        let n = file.read(&mut block)?;
+        if n == 0 {
+            break;
+        }
+        hasher.update(&block[..n]);
+    }
+    Ok(lower_hex(&hasher.finalize()))
+}

@@ -82,36 +82,36 @@ pub enum InputError {
         found: usize,
     },
     /// A cell is empty.
-    #[error("{path}: line {line}, column '{column}': empty cell")]
+    #[error("{path}: {at}, column '{column}': empty cell")]
     Missing {
         /// File.
         path: PathBuf,
-        /// 1-based line.
-        line: u64,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
         /// Column name.
         column: String,
     },
     /// A cell is not a number.
     #[error(
-        "{path}: line {line}, column '{column}': '{value}' is not a number (exclude the column with --ignore, or the row with --skip-bad-rows)"
+        "{path}: {at}, column '{column}': '{value}' is not a number (exclude the column with --ignore, or the row with --skip-bad-rows)"
     )]
     NotNumeric {
         /// File.
         path: PathBuf,
-        /// 1-based line.
-        line: u64,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
         /// Column name.
         column: String,
         /// The cell, lossily decoded.
         value: String,
     },
     /// A cell is NaN, infinite, or too large to be a reading.
-    #[error("{path}: line {line}, column '{column}': '{value}' is not a finite reading")]
+    #[error("{path}: {at}, column '{column}': '{value}' is not a finite reading")]
     NotFinite {
         /// File.
         path: PathBuf,
-        /// 1-based line.
-        line: u64,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
         /// Column name.
         column: String,
         /// The cell.
@@ -119,13 +119,13 @@ pub enum InputError {
     },
     /// A reading is outside the channel's declared valid range.
     #[error(
-        "{path}: line {line}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)"
+        "{path}: {at}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)"
     )]
     OutOfRange {
         /// File.
         path: PathBuf,
-        /// 1-based line.
-        line: u64,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
         /// Column name.
         column: String,
         /// The reading.
@@ -137,21 +137,19 @@ pub enum InputError {
     },
     /// The label cell is not a known GO or NO-GO token.
     #[error(
-        "{path}: line {line}, column '{column}': unknown label '{value}' (GO: {go}; NO-GO: {nogo}; set --go-labels / --nogo-labels)"
+        "{path}: {at}, column '{column}': unknown label '{value}' ({tokens}; set --go-labels / --nogo-labels)"
     )]
     UnknownLabel {
         /// File.
         path: PathBuf,
-        /// 1-based line.
-        line: u64,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
         /// Label column.
         column: String,
         /// The cell.
         value: String,
-        /// Accepted GO tokens.
-        go: String,
-        /// Accepted NO-GO tokens.
-        nogo: String,
+        /// The accepted tokens, as `GO: …; NO-GO: …`.
+        tokens: String,
     },
     /// The log holds more units than the reader keeps in memory.
     #[error("{path}: more than {max} units; split the log or raise --max-rows")]
@@ -247,6 +245,28 @@ pub enum InputError {
         /// What is wrong.
         message: String,
     },
+    /// A column read as a channel holds values that are not numbers (a Parquet column's type).
+    #[error(
+        "{path}: column '{column}' holds {found}, not numbers; a channel column must hold integers, floating-point or decimal numbers, or text that reads as numbers (leave it out with --ignore {column})"
+    )]
+    ColumnType {
+        /// File.
+        path: PathBuf,
+        /// Column name.
+        column: String,
+        /// The column's type, as the file declares it.
+        found: String,
+    },
+    /// A Parquet file could not be decoded.
+    #[error("{path}: {at}: cannot decode the Parquet file: {message}")]
+    Parquet {
+        /// File.
+        path: PathBuf,
+        /// Where decoding stopped (its footer, or a row group).
+        at: String,
+        /// The decoder's message.
+        message: String,
+    },
     /// A file written by this tool could not be parsed.
     #[error("{path}: {message}")]
     Format {
@@ -255,6 +275,44 @@ pub enum InputError {
         /// What is wrong.
         message: String,
     },
+}
+
+/// Where a row sits in a log, as error messages name it.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Place {
+    /// A line of a text log, counted from 1 as editors count.
+    Line(u64),
+    /// A row of a Parquet log, counted from 0 as Parquet tools count.
+    Row {
+        /// The row group.
+        group: u32,
+        /// The row within its group.
+        row: u64,
+        /// The row within the file.
+        file_row: u64,
+    },
+}
+
+impl From<u64> for Place {
+    fn from(line: u64) -> Self {
+        Self::Line(line)
+    }
+}
+
+impl std::fmt::Display for Place {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Self::Line(n) => write!(f, "line {n}"),
+            Self::Row {
+                group,
+                row,
+                file_row,
+            } => write!(
+                f,
+                "row group {group}, row {row} (row {file_row} of the file; counted from 0)"
+            ),
+        }
+    }
 }
 
 impl InputError {

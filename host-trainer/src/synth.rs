@@ -49,17 +49,37 @@ pub fn write_log_delimited(
     delimiter: u8,
 ) -> std::io::Result<()> {
     let sep = char::from(delimiter);
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let w: Vec<f64> = (0..channels).map(|_| rng.gen_range(-1.0..1.0)).collect();
-    let norm = w.iter().map(|v| v * v).sum::<f64>().sqrt();
-    let b: f64 = rng.gen_range(-0.2..0.2) * norm;
     write!(out, "unit_id")?;
     for j in 0..channels {
         write!(out, "{sep}ch{j:02}")?;
     }
     writeln!(out, "{sep}label")?;
-    let mut x = vec![0.0f64; channels];
     let mut line = String::with_capacity(16 * channels);
+    units(rows, channels, margin, seed, |n, x, go| {
+        line.clear();
+        line.push_str(&format!("U{n}"));
+        for v in x {
+            line.push_str(&format!("{sep}{v:.3}"));
+        }
+        line.push(sep);
+        line.push_str(if go { "GO\n" } else { "NO-GO\n" });
+        out.write_all(line.as_bytes())
+    })
+}
+
+/// Calls `unit` with each unit's number, readings and verdict (true for GO).
+fn units<E>(
+    rows: usize,
+    channels: usize,
+    margin: f64,
+    seed: u64,
+    mut unit: impl FnMut(usize, &[f64], bool) -> Result<(), E>,
+) -> Result<(), E> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let w: Vec<f64> = (0..channels).map(|_| rng.gen_range(-1.0..1.0)).collect();
+    let norm = w.iter().map(|v| v * v).sum::<f64>().sqrt();
+    let b: f64 = rng.gen_range(-0.2..0.2) * norm;
+    let mut x = vec![0.0f64; channels];
     let mut n = 0;
     while n < rows {
         for v in x.iter_mut() {
@@ -74,17 +94,79 @@ pub fn write_log_delimited(
         if s.abs() < margin * norm {
             continue;
         }
-        line.clear();
-        line.push_str(&format!("U{n}"));
-        for v in &x {
-            line.push_str(&format!("{sep}{v:.3}"));
-        }
-        line.push(sep);
-        line.push_str(if s > 0.0 { "GO\n" } else { "NO-GO\n" });
-        out.write_all(line.as_bytes())?;
+        unit(n, &x, s > 0.0)?;
         n += 1;
     }
     Ok(())
+}
+
+/// [`write_log`] as a Parquet file (snappy-compressed, 131,072 rows per row group): the
+/// same units, `unit_id` and `label` as text and each channel as a 64-bit float holding
+/// exactly what the CSV's three-decimal text parses to.
+///
+/// # Errors
+/// Any write or encoding error.
+pub fn write_log_parquet(
+    out: &mut Vec<u8>,
+    rows: usize,
+    channels: usize,
+    margin: f64,
+    seed: u64,
+) -> Result<(), parquet::errors::ParquetError> {
+    use std::sync::Arc;
+
+    use arrow_array::builder::{ArrayBuilder, Float64Builder, StringBuilder};
+    use arrow_array::{ArrayRef, RecordBatch};
+    use arrow_schema::{DataType, Field, Schema};
+    use parquet::arrow::ArrowWriter;
+    use parquet::basic::Compression;
+    use parquet::file::properties::WriterProperties;
+
+    const GROUP: usize = 131_072;
+    let mut fields = vec![Field::new("unit_id", DataType::Utf8, false)];
+    fields.extend((0..channels).map(|j| Field::new(format!("ch{j:02}"), DataType::Float64, false)));
+    fields.push(Field::new("label", DataType::Utf8, false));
+    let schema = Arc::new(Schema::new(fields));
+    let props = WriterProperties::builder()
+        .set_compression(Compression::SNAPPY)
+        .set_max_row_group_row_count(Some(GROUP))
+        .build();
+    let mut writer = ArrowWriter::try_new(out, schema.clone(), Some(props))?;
+    let mut ids = StringBuilder::new();
+    let mut chans: Vec<Float64Builder> = (0..channels).map(|_| Float64Builder::new()).collect();
+    let mut labels = StringBuilder::new();
+    let mut flush = |ids: &mut StringBuilder,
+                     chans: &mut [Float64Builder],
+                     labels: &mut StringBuilder|
+     -> Result<(), parquet::errors::ParquetError> {
+        let mut cols: Vec<ArrayRef> = vec![Arc::new(ids.finish())];
+        cols.extend(chans.iter_mut().map(|c| Arc::new(c.finish()) as ArrayRef));
+        cols.push(Arc::new(labels.finish()));
+        let batch = RecordBatch::try_new(schema.clone(), cols)?;
+        writer.write(&batch)
+    };
+    units(rows, channels, margin, seed, |n, x, go| {
+        ids.append_value(format!("U{n}"));
+        for (c, &v) in chans.iter_mut().zip(x) {
+            c.append_value(v);
+        }
+        labels.append_value(if go { "GO" } else { "NO-GO" });
+        if ids.len() == GROUP {
+            flush(&mut ids, &mut chans, &mut labels)?;
+        }
+        Ok::<(), parquet::errors::ParquetError>(())
+    })?;
+    if !ids.is_empty() {
+        flush(&mut ids, &mut chans, &mut labels)?;
+    }
+    writer.close()?;
+    Ok(())
+}
+
+/// Whether a log written to `path` should be Parquet (extension `.parquet` or `.pq`).
+pub fn is_parquet_path(path: &std::path::Path) -> bool {
+    path.extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("parquet") || e.eq_ignore_ascii_case("pq"))
 }
 
 /// A channel sheet for [`write_log`]'s channels: range [0, 1000] at lsb 0.001.

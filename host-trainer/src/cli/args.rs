@@ -45,11 +45,13 @@ pub struct LogArgs {
     pub max_rows: usize,
     /// Field delimiter: comma, semicolon, tab or pipe (or the character itself). Default:
     /// tab for .tsv and .tab files, otherwise the most frequent of the four in the header row.
+    /// A Parquet file has columns, not delimiters: the option does not apply to it.
     #[arg(long, value_parser = parse_delimiter, value_name = "DELIMITER")]
     pub delimiter: Option<u8>,
     /// A comma in a number is the decimal mark (5,1 = 5.1). Default: on for files not
     /// separated by commas (semicolon exports of spreadsheets set to a decimal comma), off
-    /// for comma-separated ones. A cell holding both '.' and ',' is refused.
+    /// for comma-separated ones and for a Parquet file's text columns. A cell holding both
+    /// '.' and ',' is refused.
     #[arg(long)]
     pub decimal_comma: bool,
 }

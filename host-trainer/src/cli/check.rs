@@ -12,7 +12,7 @@ use host_trainer::workflow;
 /// Flags of `linegate check`.
 #[derive(Args)]
 pub struct CheckArgs {
-    /// Bench log (CSV, or TSV by extension).
+    /// Bench log: delimited text (CSV, TSV, semicolon…) or Parquet.
     pub log: PathBuf,
     #[command(flatten)]
     pub log_args: LogArgs,

@@ -22,7 +22,8 @@ pub struct GenerateArgs {
     /// Seed.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
-    /// Output log; the channel sheet goes beside it with extension .toml.
+    /// Output log: Parquet for .parquet or .pq, tab-separated for .tsv, .tab or .txt,
+    /// comma-separated otherwise. The channel sheet goes beside it with extension .toml.
     #[arg(long, short)]
     pub output: PathBuf,
     /// Overwrite existing files.
@@ -45,11 +46,16 @@ impl GenerateArgs {
             bail!("--channels must be 1..={}", shared_model::MAX_CHANNELS);
         }
         let mut log = Vec::new();
-        // The file says what it holds: tab-separated for .tsv, .tab and .txt.
-        let delimiter = host_trainer::synth::delimiter_for(output);
-        host_trainer::synth::write_log_delimited(
-            &mut log, *rows, *channels, *margin, *seed, delimiter,
-        )?;
+        // The file says what it holds: Parquet for .parquet and .pq, tab-separated for
+        // .tsv, .tab and .txt, comma-separated otherwise.
+        if host_trainer::synth::is_parquet_path(output) {
+            host_trainer::synth::write_log_parquet(&mut log, *rows, *channels, *margin, *seed)?;
+        } else {
+            let delimiter = host_trainer::synth::delimiter_for(output);
+            host_trainer::synth::write_log_delimited(
+                &mut log, *rows, *channels, *margin, *seed, delimiter,
+            )?;
+        }
         let mut set = OutputSet::default();
         set.add(output, log);
         set.add(

@@ -14,7 +14,7 @@ use host_trainer::train::float_model::FloatModel;
 /// Flags of `linegate replay`.
 #[derive(Args)]
 pub struct ReplayArgs {
-    /// Bench log.
+    /// Bench log: delimited text (CSV, TSV, semicolon…) or Parquet.
     pub log: PathBuf,
     #[command(flatten)]
     pub log_args: LogArgs,

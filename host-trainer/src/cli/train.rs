@@ -15,7 +15,7 @@ use host_trainer::workflow::{self, CvTrainers};
 /// Flags of `linegate train`.
 #[derive(Args)]
 pub struct TrainArgs {
-    /// Bench log.
+    /// Bench log: delimited text (CSV, TSV, semicolon…) or Parquet.
     pub log: PathBuf,
     #[command(flatten)]
     pub log_args: LogArgs,

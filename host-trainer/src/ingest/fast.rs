@@ -57,8 +57,8 @@ impl DecimalChannel {
 
     /// The raw count of the number at `pos`, and the position of the first byte after it.
     #[inline]
-    fn raw(&self, rec: &[u8], pos: usize) -> Option<(i32, usize)> {
-        let d = decimal(rec, pos)?;
+    fn raw(&self, rec: &[u8], pos: usize, comma: bool) -> Option<(i32, usize)> {
+        let d = decimal(rec, pos, comma)?;
         if d.frac > self.k {
             return None;
         }
@@ -94,11 +94,11 @@ impl Decimal {
     }
 }
 
-/// Reads the number at `pos`: an optional `-`, digits, optionally `.` and more digits; at
-/// most [`MAX_DIGITS`] digits. `None` for anything else ("5.", ".5", exponents, signs…),
-/// which the general path reads.
+/// Reads the number at `pos`: an optional `-`, digits, optionally `.` (or `,` if `comma`)
+/// and more digits; at most [`MAX_DIGITS`] digits. `None` for anything else ("5.", ".5",
+/// exponents, signs…), which the general path reads.
 #[inline]
-fn decimal(rec: &[u8], mut pos: usize) -> Option<Decimal> {
+fn decimal(rec: &[u8], mut pos: usize, comma: bool) -> Option<Decimal> {
     let neg = rec.get(pos) == Some(&b'-');
     if neg {
         pos += 1;
@@ -120,7 +120,7 @@ fn decimal(rec: &[u8], mut pos: usize) -> Option<Decimal> {
     let mut mant = 0u64;
     let whole = digits(&mut pos, &mut mant);
     let mut frac = 0;
-    if rec.get(pos) == Some(&b'.') {
+    if rec.get(pos) == Some(&b'.') || (comma && rec.get(pos) == Some(&b',')) {
         pos += 1;
         frac = digits(&mut pos, &mut mant);
         if frac == 0 {
@@ -157,6 +157,8 @@ pub(super) struct FastPlan {
     /// Raw counts per channel; `None` reads physical values.
     channels: Option<Vec<DecimalChannel>>,
     delimiter: u8,
+    /// A comma in a number is its decimal mark (never when commas delimit fields).
+    comma: bool,
     go: Vec<String>,
     nogo: Vec<String>,
     max_line_len: usize,
@@ -183,10 +185,12 @@ pub(super) struct FastRecord {
 impl FastPlan {
     /// The plan for raw counts under `scales`, or for physical values without; `None` if
     /// some channel is not a plain decimal shift (then every record takes the general path).
+    /// `decimal_comma` as the general path reads it.
     pub(super) fn new(
         cols: &Columns,
         scales: Option<&[ChannelScale]>,
         delimiter: u8,
+        decimal_comma: bool,
         opts: &LogOptions,
     ) -> Option<Self> {
         // Timestamps are kept by the general path only (a holdout split by time is rare).
@@ -225,6 +229,7 @@ impl FastPlan {
             roles,
             channels,
             delimiter,
+            comma: decimal_comma && delimiter != b',',
             go: opts.go_labels.clone(),
             nogo: opts.nogo_labels.clone(),
             max_line_len: opts.max_line_len,
@@ -253,12 +258,12 @@ impl FastPlan {
             if let Role::Channel(j) = role {
                 end = match (&mut out, &self.channels) {
                     (Out::Raw(raw), Some(channels)) => {
-                        let (value, e) = channels.get(j)?.raw(bytes, pos)?;
+                        let (value, e) = channels.get(j)?.raw(bytes, pos, self.comma)?;
                         *raw.get_mut(j)? = value;
                         e
                     }
                     (Out::Values(values), None) => {
-                        let d = decimal(bytes, pos)?;
+                        let d = decimal(bytes, pos, self.comma)?;
                         *values.get_mut(j)? = d.value()?;
                         d.end
                     }
@@ -337,7 +342,7 @@ mod tests {
 
     /// The fast reader's answer for a whole field.
     fn field(c: &DecimalChannel, text: &str) -> Option<i32> {
-        c.raw(text.as_bytes(), 0)
+        c.raw(text.as_bytes(), 0, false)
             .filter(|&(_, end)| end == text.len())
             .map(|(v, _)| v)
     }
@@ -410,7 +415,7 @@ mod tests {
             } else {
                 format!("{}{whole}.{frac}", if neg { "-" } else { "" })
             };
-            let d = decimal(text.as_bytes(), 0);
+            let d = decimal(text.as_bytes(), 0, false);
             if whole.len() + frac.len() <= MAX_DIGITS as usize {
                 let d = d.expect("a plain decimal of at most 15 digits is read");
                 prop_assert_eq!(d.end, text.len());

@@ -225,21 +225,26 @@ fn detect_delimiter(header: &[u8]) -> u8 {
     DELIMITERS[best]
 }
 
-/// The channel names a log would use under `opts`, from its header alone.
+/// The channel names a log would use under `opts`, from its header (or a Parquet file's
+/// schema) alone.
 ///
 /// # Errors
 /// Header problems: empty file, duplicate or unknown names, no label.
 pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, InputError> {
     crate::input::regular_file(path)?;
-    let file = File::open(path).map_err(|e| InputError::io(path, e))?;
-    let mut reader = BlockReader {
-        file,
-        bar: None,
-        block: 64 << 10,
-        eof: false,
+    let names = if super::parquet::is_parquet(path) {
+        super::parquet::column_names(path)?
+    } else {
+        let file = File::open(path).map_err(|e| InputError::io(path, e))?;
+        let mut reader = BlockReader {
+            file,
+            bar: None,
+            block: 64 << 10,
+            eof: false,
+        };
+        read_header(path, opts, &mut reader, &mut Vec::new())?.names
     };
-    let header = read_header(path, opts, &mut reader, &mut Vec::new())?;
-    let cols = Columns::resolve(path, header.names, opts, None)?;
+    let cols = Columns::resolve(path, names, opts, None)?;
     Ok(cols
         .channels
         .iter()

@@ -20,6 +20,7 @@ pub mod dataset;
 mod fast;
 mod header;
 mod options;
+mod parquet;
 mod parse;
 mod read;
 mod records;

@@ -79,6 +79,17 @@ impl Default for LogOptions {
     }
 }
 
+impl LogOptions {
+    /// The accepted label tokens, as error messages list them.
+    pub(super) fn tokens(&self) -> String {
+        format!(
+            "GO: {}; NO-GO: {}",
+            self.go_labels.join(", "),
+            self.nogo_labels.join(", ")
+        )
+    }
+}
+
 /// Where channel scaling comes from.
 #[derive(Clone, Copy, Debug)]
 pub enum ScaleFrom<'a> {

@@ -7,7 +7,7 @@ use super::fast;
 use super::header::Columns;
 use super::options::{LogOptions, MAX_READING, label_of};
 use super::records::{Fields, count_lf, fields, record_ends, strip_line_end};
-use crate::error::InputError;
+use crate::error::{InputError, Place};
 use crate::ingest::scaling::ChannelScale;
 
 /// What the parser needs to know to turn a record into a row.
@@ -102,7 +102,7 @@ impl Parser<'_> {
             if cell.is_empty() {
                 return Err(InputError::Missing {
                     path: path.into(),
-                    line,
+                    at: line.into(),
                     column: column(),
                 });
             }
@@ -111,14 +111,14 @@ impl Parser<'_> {
             let x: f64 =
                 parse_number(cell, self.decimal_comma).ok_or_else(|| InputError::NotNumeric {
                     path: path.into(),
-                    line,
+                    at: line.into(),
                     column: column(),
                     value: cell_text(cell),
                 })?;
             if !x.is_finite() || x.abs() > MAX_READING {
                 return Err(InputError::NotFinite {
                     path: path.into(),
-                    line,
+                    at: line.into(),
                     column: column(),
                     value: cell_text(cell),
                 });
@@ -134,11 +134,10 @@ impl Parser<'_> {
             Some(label) => Ok(Some(label)),
             None => Err(InputError::UnknownLabel {
                 path: path.into(),
-                line,
+                at: line.into(),
                 column: cols.names[lc].clone(),
                 value: cell_text(lf),
-                go: opts.go_labels.join(", "),
-                nogo: opts.nogo_labels.join(", "),
+                tokens: opts.tokens(),
             }),
         }
     }
@@ -152,21 +151,8 @@ impl Parser<'_> {
         out: &mut [i32],
         line: u64,
     ) -> Result<(), InputError> {
-        for (k, ((o, &v), s)) in out.iter_mut().zip(vals).zip(scales).enumerate() {
-            if self.keep_faults {
-                *o = s.to_raw(v).unwrap_or_else(|| s.raw_reading(v));
-                continue;
-            }
-            *o = s.to_raw(v).ok_or_else(|| InputError::OutOfRange {
-                path: self.path.into(),
-                line,
-                column: self.cols.names[self.cols.channels[k]].clone(),
-                value: v,
-                min: s.min,
-                max: s.max,
-            })?;
-        }
-        Ok(())
+        raw_readings(scales, vals, out, self.keep_faults)
+            .map_err(|k| out_of_range(self.path, self.cols, scales, vals, k, line.into()))
     }
 
     /// Parses whole records `bytes` (ending at record ends) whose first byte is on `first_line`
@@ -288,6 +274,44 @@ impl Parser<'_> {
             }
             Err(e) => out.errors.push((out.labels.len(), e)),
         }
+    }
+}
+
+/// Converts readings to raw integers; a reading outside its channel's range is refused
+/// (`Err` with its channel), or kept as the device's raw count under `keep_faults`.
+pub(super) fn raw_readings(
+    scales: &[ChannelScale],
+    vals: &[f64],
+    out: &mut [i32],
+    keep_faults: bool,
+) -> Result<(), usize> {
+    for (k, ((o, &v), s)) in out.iter_mut().zip(vals).zip(scales).enumerate() {
+        *o = match s.to_raw(v) {
+            Some(r) => r,
+            None if keep_faults => s.raw_reading(v),
+            None => return Err(k),
+        };
+    }
+    Ok(())
+}
+
+/// The error for channel `k`'s reading in `vals` being outside its range.
+pub(super) fn out_of_range(
+    path: &Path,
+    cols: &Columns,
+    scales: &[ChannelScale],
+    vals: &[f64],
+    k: usize,
+    at: Place,
+) -> InputError {
+    let s = &scales[k];
+    InputError::OutOfRange {
+        path: path.into(),
+        at,
+        column: cols.names[cols.channels[k]].clone(),
+        value: vals[k],
+        min: s.min,
+        max: s.max,
     }
 }
 

@@ -89,7 +89,15 @@ pub fn read_log(
     let mut ds = Dataset::empty(path, scales);
     // Reserve once from an estimate of the row count: growing by doubling would briefly hold
     // the old and the new buffer, half again the data's size.
-    if let Some(rows) = estimate_rows(path) {
+    if super::parquet::is_parquet(path) {
+        // The footer counts the rows (bounded by the file's size).
+        let rows = super::parquet::row_count(path)
+            .unwrap_or(0)
+            .min(opts.max_rows);
+        ds.raw.reserve_exact(rows * ds.scales.len());
+        ds.labels.reserve_exact(rows);
+        ds.lines.reserve_exact(rows);
+    } else if let Some(rows) = estimate_rows(path) {
         // An estimate is never trusted alone: a record holds at least one byte and one
         // delimiter (or line end) per channel and for the label, so the file's size bounds
         // the rows, and --max-rows bounds them too (a log that starts with blank lines

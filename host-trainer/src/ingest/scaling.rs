@@ -96,7 +96,7 @@ impl ChannelScale {
                 name.escape_debug()
             ));
         }
-        let to_raw = |v: f64| ((v - zero) / lsb).round();
+        let to_raw = |v: f64| round_half_away((v - zero) / lsb);
         let (lo, hi) = (to_raw(min), to_raw(max));
         let limit = f64::from(i32::MAX / 2);
         if lo.abs() > limit || hi.abs() > limit {
@@ -143,7 +143,7 @@ impl ChannelScale {
 
     /// The raw reading for a physical value, or `None` if it is outside the valid range.
     pub fn to_raw(&self, physical: f64) -> Option<i32> {
-        let r = ((physical - self.zero) / self.lsb).round();
+        let r = round_half_away((physical - self.zero) / self.lsb);
         if r >= f64::from(self.raw_min) && r <= f64::from(self.raw_max) {
             Some(r as i32)
         } else {
@@ -161,7 +161,7 @@ impl ChannelScale {
     /// ```
     pub fn raw_reading(&self, physical: f64) -> i32 {
         // `as` saturates, and NaN cannot reach here (the reader refuses it as not finite).
-        ((physical - self.zero) / self.lsb).round() as i32
+        round_half_away((physical - self.zero) / self.lsb) as i32
     }
 
     /// The physical value of a raw reading.
@@ -292,9 +292,69 @@ impl ChannelSheet {
     }
 }
 
+/// `x.round()` (halves away from zero) up to the sign of a zero result, without the call to
+/// the C library's `round` that `f64::round` makes on x86-64's baseline (no SSE4.1): every
+/// reading of a log passes through here. Below 2^52 a double's fraction `x - trunc(x)` is
+/// exact, so comparing it with ±0.5 rounds exactly as `round` does; larger magnitudes, NaN
+/// and infinities take `round` itself.
+#[inline]
+fn round_half_away(x: f64) -> f64 {
+    if x.is_nan() || x.abs() >= 4_503_599_627_370_496.0 {
+        return x.round();
+    }
+    // `as` truncates towards zero; the magnitude is below 2^52, so the integer is exact.
+    let t = x as i64 as f64;
+    let frac = x - t;
+    if frac >= 0.5 {
+        t + 1.0
+    } else if frac <= -0.5 {
+        t - 1.0
+    } else {
+        t
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The reference is the standard library's `f64::round` (IEEE 754 roundToIntegralTiesAway).
+    #[test]
+    fn round_half_away_is_round() {
+        let edges = [
+            0.5,
+            1.5,
+            2.5,
+            -0.5,
+            -2.5,
+            0.49999999999999994,
+            -0.49999999999999994,
+            4_503_599_627_370_495.5,
+            4_503_599_627_370_496.0,
+            -4_503_599_627_370_495.5,
+            9.3e18,
+            -9.3e18,
+            1e300,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+            f64::MIN_POSITIVE,
+            0.0,
+            -0.0,
+        ];
+        for x in edges {
+            assert_eq!(round_half_away(x), x.round(), "{x}");
+        }
+        assert!(round_half_away(f64::NAN).is_nan());
+        let mut rng = <rand_chacha::ChaCha8Rng as rand::SeedableRng>::seed_from_u64(7);
+        for _ in 0..1_000_000 {
+            let x = f64::from_bits(rand::Rng::r#gen::<u64>(&mut rng));
+            let y = rand::Rng::gen_range(&mut rng, -1e7..1e7) / 8.0;
+            for v in [x, y] {
+                let (a, b) = (round_half_away(v), v.round());
+                assert!(a == b || (a.is_nan() && b.is_nan()), "{v}: {a} against {b}");
+            }
+        }
+    }
 
     #[test]
     fn scaled_range_is_unit_interval() {

@@ -30,7 +30,8 @@ pub(super) struct Row<'r> {
 }
 
 /// Streams the log once, calling `on_row` for each good row in file order. Returns the
-/// file's SHA-256. The file is read in blocks; each block's complete records are split
+/// file's SHA-256. A Parquet file (known by its magic) goes to the Parquet reader; a text
+/// log is read in blocks; each block's complete records are split
 /// into pieces parsed in parallel, then handed on in order.
 pub(super) fn scan(
     path: &Path,
@@ -40,6 +41,10 @@ pub(super) fn scan(
     skipped: &mut SkipReport,
     on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError> + Send,
 ) -> Result<(Columns, String), InputError> {
+    crate::input::regular_file(path)?;
+    if super::parquet::is_parquet(path) {
+        return super::parquet::scan_parquet(path, opts, model, scales, skipped, on_row);
+    }
     scan_blocks(path, opts, model, scales, skipped, on_row, BLOCK)
 }
 
@@ -90,15 +95,16 @@ pub(super) fn scan_blocks(
     let mut cols = Columns::resolve(path, names, opts, model)?;
     cols.width += trailing_empty;
     skipped.empty_columns = trailing_empty;
+    let decimal_comma = opts.decimal_comma.unwrap_or(delimiter != b',');
     let parser = Parser {
         path,
         opts,
         cols: &cols,
         delimiter,
-        decimal_comma: opts.decimal_comma.unwrap_or(delimiter != b','),
+        decimal_comma,
         scales,
         keep_faults: model.is_some(),
-        fast: fast::FastPlan::new(&cols, scales, delimiter, opts),
+        fast: fast::FastPlan::new(&cols, scales, delimiter, decimal_comma, opts),
     };
     // Hands on the rows of parsed runs in file order. A row's error is skipped and counted
     // under `skip_bad_rows`; any other error ends the scan.

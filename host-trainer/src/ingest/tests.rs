@@ -105,6 +105,18 @@ fn block_seams_quotes_and_crlf_give_the_same_rows_as_one_block() {
 /// (told the bytes hold no quote if `plain`) and by the general path alone, as raw counts
 /// or, without `raw`, as physical values.
 fn both_paths(opts: &LogOptions, bytes: &[u8], plain: bool, raw: bool) -> (Parsed, Parsed) {
+    both_paths_split(opts, bytes, plain, raw, b',', false)
+}
+
+/// [`both_paths`] with another delimiter and decimal mark.
+fn both_paths_split(
+    opts: &LogOptions,
+    bytes: &[u8],
+    plain: bool,
+    raw: bool,
+    delimiter: u8,
+    decimal_comma: bool,
+) -> (Parsed, Parsed) {
     let names: Vec<String> = ["unit_id", "a", "note", "b", "label"]
         .map(String::from)
         .to_vec();
@@ -115,14 +127,14 @@ fn both_paths(opts: &LogOptions, bytes: &[u8], plain: bool, raw: bool) -> (Parse
         ChannelScale::new("b", "", 0.0, 5000.0, 1.0, 0.0).unwrap(),
     ];
     let scales = raw.then_some(&sheet[..]);
-    let fast = fast::FastPlan::new(&cols, scales, b',', opts);
+    let fast = fast::FastPlan::new(&cols, scales, delimiter, decimal_comma, opts);
     assert!(fast.is_some(), "both channels are plain decimal shifts");
     let parser = |fast| Parser {
         path,
         opts,
         cols: &cols,
-        delimiter: b',',
-        decimal_comma: false,
+        delimiter,
+        decimal_comma,
         scales,
         keep_faults: false,
         fast,
@@ -209,6 +221,57 @@ proptest::proptest! {
         let (p, q) = both_paths(&opts, text.as_bytes(), plain, raw);
         proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
     }
+
+    /// Semicolon-separated records with decimal commas (a spreadsheet in a European locale),
+    /// and cells mixing both marks, read alike by both paths; `decimal_comma` forced off too.
+    #[test]
+    fn fast_path_agrees_on_semicolon_records_with_decimal_commas(
+        records in proptest::collection::vec((
+            proptest::collection::vec(proptest::sample::select(vec![
+                "1", "12,34", "17", "GO", "no-go", "1", "12,34", "17", "GO", "no-go",
+                "-0,5", "100", "5000", "0", "-0", "12.34", "12,345", "1,2,3", "1.2,3",
+                "1,", ",5", "", "x", "5;", "\"3;4\"", "\"3,4\"", " 5,5", "1e1",
+            ]), 4..6),
+            proptest::sample::select(vec!["\n", "\r\n", ""]),
+        ), 0..40),
+        raw in proptest::bool::ANY,
+        decimal_comma in proptest::bool::ANY,
+    ) {
+        let opts = LogOptions {
+            ignore: vec!["note".into()],
+            max_line_len: 40,
+            ..LogOptions::default()
+        };
+        let mut text = String::new();
+        for (cells, end) in &records {
+            text.push_str(&cells.join(";"));
+            text.push_str(if end.is_empty() { "\n" } else { end });
+        }
+        let plain = !text.contains('"');
+        let (p, q) = both_paths_split(&opts, text.as_bytes(), plain, raw, b';', decimal_comma);
+        proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
+    }
+}
+
+/// A decimal comma is read only where the general path reads one: in a semicolon file
+/// with `decimal_comma`, and never as a number when it is off.
+#[test]
+fn decimal_comma_fast_path_reads_only_what_the_general_path_reads() {
+    let opts = LogOptions {
+        ignore: vec!["note".into()],
+        ..LogOptions::default()
+    };
+    let text = b"U1;12,34;x;17;GO\nU2;-0,5;x;5000;no-go\nU3;1.5;x;17;GO\n";
+    for decimal_comma in [true, false] {
+        let (p, q) = both_paths_split(&opts, text, true, true, b';', decimal_comma);
+        assert_eq!(parsed_view(&p), parsed_view(&q));
+        let rows = if decimal_comma { 3 } else { 1 };
+        assert_eq!(p.labels.len(), rows, "decimal_comma {decimal_comma}");
+    }
+    assert_eq!(
+        both_paths_split(&opts, text, true, true, b';', true).0.raw,
+        [1234, 17, -50, 5000, 150, 17]
+    );
 }
 
 #[test]
