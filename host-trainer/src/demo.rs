@@ -306,6 +306,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     let apply = audit::Apply {
         recommended_format: true,
         suggested_band: true,
+        progress: false,
     };
     let done = audit::release_applying(
         fm,

@@ -136,6 +136,7 @@ fn declared_noise_gates_and_the_suggested_band_passes_its_own_gate() {
         Apply {
             suggested_band: true,
             recommended_format: false,
+            progress: false,
         },
     )
     .unwrap();

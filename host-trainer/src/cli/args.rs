@@ -299,6 +299,7 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
         apply: audit::Apply {
             recommended_format: r.apply_recommended_format,
             suggested_band: r.apply_suggested_band,
+            progress: !quiet && std::io::stderr().is_terminal(),
         },
         quiet,
         signer: r.sign.as_deref().map(sign::read_secret).transpose()?,

@@ -1,5 +1,6 @@
 //! `linegate audit`: quantise, run the release audit, write its reports.
 
+use std::io::IsTerminal;
 use std::path::PathBuf;
 
 use anyhow::Result;
@@ -51,7 +52,8 @@ impl AuditArgs {
             fm, train, qc, ac, ..
         } = &rel;
         let sw = if *sweep {
-            Some(audit::sweep(fm, train, &others, *qc, *ac)?)
+            let progress = !quiet && std::io::stderr().is_terminal();
+            Some(audit::sweep(fm, train, &others, *qc, *ac, progress)?)
         } else {
             None
         };

@@ -931,8 +931,17 @@ pub struct SweepRow {
     pub mac_cost: String,
 }
 
+/// Weight word lengths the sweep tries, for each input word length in [`SWEEP_INPUTS`].
+pub const SWEEP_WEIGHTS: [u8; 5] = [8, 12, 16, 24, 32];
+/// Input word lengths the sweep tries.
+pub const SWEEP_INPUTS: [u8; 2] = [8, 16];
+
 /// The word-length sweep: weights 8/12/16/24/32 × inputs 8/16. Returns rows and the recommended
 /// row: the passing format with the narrowest weights, then the narrowest inputs.
+///
+/// Each format costs one quantisation (with its margin search on the training log) and one
+/// audit of every log: the same work as an audit, ten times. With `progress`, a bar on
+/// stderr names the format being tried and estimates the time left.
 ///
 /// # Errors
 /// A [`QuantError`] other than a refused format (refused formats appear as failing rows).
@@ -942,10 +951,28 @@ pub fn sweep(
     others: &[(&str, &Dataset)],
     base: QuantConfig,
     cfg: AuditConfig,
+    progress: bool,
 ) -> Result<(Vec<SweepRow>, Option<usize>), QuantError> {
     let mut rows = Vec::new();
-    for input_bits in [8u8, 16] {
-        for weight_bits in [8u8, 12, 16, 24, 32] {
+    let formats = SWEEP_INPUTS.len() * SWEEP_WEIGHTS.len();
+    let bar = progress.then(|| {
+        let b = indicatif::ProgressBar::new(formats as u64);
+        b.set_style(
+            indicatif::ProgressStyle::with_template(
+                "word-length sweep: {msg} [{bar:20}] {pos}/{len} formats, {elapsed} elapsed, about {eta} left",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        b.enable_steady_tick(std::time::Duration::from_millis(250));
+        b
+    });
+    for input_bits in SWEEP_INPUTS {
+        for weight_bits in SWEEP_WEIGHTS {
+            if let Some(b) = &bar {
+                b.set_message(format!(
+                    "{weight_bits}-bit weights × {input_bits}-bit inputs"
+                ));
+            }
             let qc = QuantConfig {
                 input_bits,
                 weight_bits,
@@ -976,6 +1003,9 @@ pub fn sweep(
                     format!("{n} × SMLAL (64-bit)")
                 },
             });
+            if let Some(b) = &bar {
+                b.inc(1);
+            }
         }
     }
     let best = rows
@@ -1051,6 +1081,8 @@ pub fn mark(model: &CheckedModel, mark: shared_model::AuditMark) -> CheckedModel
 pub struct Apply {
     /// Use the sweep's recommended word lengths (the narrowest that pass).
     pub recommended_format: bool,
+    /// Show the sweep's progress on stderr.
+    pub progress: bool,
     /// Widen the RECHECK band to the suggested one until the noise gate passes.
     pub suggested_band: bool,
 }
@@ -1085,7 +1117,7 @@ pub fn release_applying(
     let mut applied = Vec::new();
     let mut sw = None;
     if apply.recommended_format {
-        let s = sweep(fm, train, others, qc, cfg)?;
+        let s = sweep(fm, train, others, qc, cfg, apply.progress)?;
         match s.1.and_then(|i| s.0.get(i)) {
             Some(row) => {
                 qc.weight_bits = row.weight_bits;

@@ -280,7 +280,7 @@ fn tiny_margin_fails_at_8_bits_passes_at_16_and_the_sweep_recommends_16() {
     assert!(!at(12).passed, "12-bit weights must fail");
     let r16 = at(16);
     assert!(r16.passed, "16-bit weights must pass: {:?}", r16.reasons);
-    let (rows, best) = sweep(&fm, &ds, &[], QuantConfig::default(), cfg).unwrap();
+    let (rows, best) = sweep(&fm, &ds, &[], QuantConfig::default(), cfg, false).unwrap();
     let best = &rows[best.expect("some format passes")];
     assert_eq!((best.weight_bits, best.input_bits), (16, 16));
 }

@@ -80,6 +80,7 @@ fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c
         Apply {
             suggested_band: true,
             recommended_format: false,
+            progress: false,
         },
     )
     .unwrap();
