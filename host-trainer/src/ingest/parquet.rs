@@ -205,25 +205,25 @@ impl Plan<'_> {
             numbers(&array, self.kinds[j], self.decimal_comma, &mut values);
             let mut bad = Vec::new();
             let mut raw = Vec::new();
-            let scale = self.scales.and_then(|s| s.get(j));
-            if scale.is_some() {
-                raw.reserve_exact(values.len());
-            }
-            for (i, &v) in values.iter().enumerate() {
-                let mut refused = !v.is_finite() || v.abs() > MAX_READING;
-                if let Some(s) = scale {
-                    raw.push(match s.to_raw(v) {
-                        Some(r) => r,
-                        None if self.keep_faults && !refused => s.raw_reading(v),
-                        None => {
-                            refused = true;
-                            0
+            let refused = |v: f64| !v.is_finite() || v.abs() > MAX_READING;
+            match self.scales.and_then(|s| s.get(j)) {
+                Some(s) => {
+                    raw.resize(values.len(), 0);
+                    for (i, (r, &v)) in raw.iter_mut().zip(&values).enumerate() {
+                        match s.to_raw(v) {
+                            Some(x) if !refused(v) => *r = x,
+                            None if self.keep_faults && !refused(v) => *r = s.raw_reading(v),
+                            _ => bad.push(i as u32),
                         }
-                    });
+                    }
                 }
-                if refused {
-                    bad.push(i as u32);
-                }
+                None => bad.extend(
+                    values
+                        .iter()
+                        .enumerate()
+                        .filter(|&(_, &v)| refused(v))
+                        .map(|(i, _)| i as u32),
+                ),
             }
             return Ok(Decoded::Channel {
                 values,
