@@ -291,6 +291,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         cv_trainers: crate::workflow::CvTrainers::All,
         holdout_split: None,
         progress: false,
+        figures: crate::train::separability::Figures::ALL,
     };
     let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;
     let mut holdout_ds = workflow::load_for_model(&paths[2], &opts, &train.model)?;
@@ -355,7 +356,8 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     );
     let files = set.commit(force)?;
     Ok(DemoSummary {
-        perceptron_updates: train.check.perceptron_updates,
+        // The demo asks for every figure, so the run is there.
+        perceptron_updates: train.check.perceptron_updates.unwrap_or(0),
         check_train: train.check.clone(),
         check_drift,
         train,

@@ -15,7 +15,8 @@ use crate::train::eval::{
 };
 use crate::train::float_model::{FloatModel, InputFile, Provenance, TrainingSummary};
 use crate::train::linear::threshold_for_false_go;
-use crate::train::separability::{SeparabilityReport, check};
+use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
+use crate::train::separability::{Figures, SeparabilityReport, check_with};
 
 /// Reads a training log with an optional channel sheet.
 ///
@@ -81,6 +82,9 @@ pub struct TrainRequest {
     pub holdout_split: Option<crate::train::float_model::HoldoutSplit>,
     /// Show a progress bar on long work.
     pub progress: bool,
+    /// The separability figures to compute beside the verdict (`train` shows none of them;
+    /// the demo shows all).
+    pub figures: Figures,
 }
 
 /// Which trainers cross-validation compares.
@@ -136,7 +140,10 @@ impl TrainOutcome {
     }
 }
 
-/// Trains a float model on `ds`.
+/// Trains a float model on `ds`: one separability check (the verdict decides hard or soft
+/// margin and is recorded; its hard-margin solve is the maximum-margin model of a separable
+/// log), the chosen trainer (the classic perceptron's run doubles as the check's), the
+/// threshold, cross-validation. Novikoff's figures only when `req.figures` asks.
 ///
 /// # Errors
 /// [`InputError::NoDirection`] when the trainer ends with every weight zero or a value
@@ -147,7 +154,24 @@ pub fn train_model(
     req: &TrainRequest,
 ) -> Result<TrainOutcome, InputError> {
     let idx = ds.all();
-    let report = check(ds, &idx, req.epochs, req.seed);
+    // The classic perceptron's training run is the run the check would show: made once.
+    let classic = (req.trainer == TrainerKind::Perceptron).then(|| {
+        perceptron(
+            ds,
+            &idx,
+            PerceptronKind::Classic,
+            PerceptronConfig {
+                epochs: req.epochs,
+                seed: req.seed,
+            },
+        )
+    });
+    // The maximum-margin trainer's model is the check's hard-margin separator.
+    let figures = Figures {
+        margin: req.figures.margin || req.trainer == TrainerKind::MaxMargin,
+        ..req.figures
+    };
+    let report = check_with(ds, &idx, req.epochs, req.seed, figures, classic.as_ref());
     let cfg = TrainConfig {
         epochs: req.epochs,
         seed: req.seed,
@@ -156,10 +180,15 @@ pub fn train_model(
     };
     // The check has solved the hard margin already: a separable log's maximum-margin model
     // is its separator, not a second solve.
-    let t = match (&report.separator, req.trainer) {
-        (Some(sep), TrainerKind::MaxMargin) if report.separable => Trained {
+    let t = match (&report.separator, classic) {
+        (Some(sep), _) if report.separable && req.trainer == TrainerKind::MaxMargin => Trained {
             model: sep.clone(),
             updates: None,
+            c: None,
+        },
+        (_, Some(run)) => Trained {
+            model: run.model,
+            updates: Some(run.updates),
             c: None,
         },
         _ => train(ds, &idx, req.trainer, cfg),

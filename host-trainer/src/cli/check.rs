@@ -90,18 +90,17 @@ fn print_check(
         print_units(&r.support, "α");
     }
     say!("R = max ‖(x, 1)‖ = {:.4}", r.radius);
+    // `check` always runs the perceptron; the figures are there.
+    let (updates, epochs, converged) = (
+        r.perceptron_updates.unwrap_or(0),
+        r.perceptron_epochs.unwrap_or(0),
+        r.perceptron_converged.unwrap_or(false),
+    );
     match (r.novikoff_margin, r.novikoff_bound) {
         (Some(g), Some(b)) => say!(
-            "Novikoff: γ = {g:.6} (constant-1 feature appended, scaled into the unit ball, unit-norm separator through the origin); bound 1/γ² = {b:.0} updates; perceptron made {} in {} epochs",
-            r.perceptron_updates,
-            r.perceptron_epochs
+            "Novikoff: γ = {g:.6} (constant-1 feature appended, scaled into the unit ball, unit-norm separator through the origin); bound 1/γ² = {b:.0} updates; perceptron made {updates} in {epochs} epochs"
         ),
-        _ => say!(
-            "perceptron: {} updates in {} epochs, converged: {}",
-            r.perceptron_updates,
-            r.perceptron_epochs,
-            r.perceptron_converged
-        ),
+        _ => say!("perceptron: {updates} updates in {epochs} epochs, converged: {converged}"),
     }
     if let Some(n) = &r.novikoff_note {
         say!("Novikoff: {n}");

@@ -66,12 +66,12 @@ pub struct Cli {
 pub enum Cmd {
     /// Decide exactly whether a bench log is linearly separable (LP), with γ*, support units and the Novikoff bound.
     #[command(
-        after_help = "Example:\n  linegate check bench.csv --sheet channels.toml\n\nExit codes: 0 separable; 1 not separable (conflicting units listed); 2 usage, input or output error."
+        after_help = "Example:\n  linegate check bench.csv --sheet channels.toml\n  linegate check export.parquet --json\n\nComputes: the verdict, certified (an LP certificate of overlap, or a separator checked on every unit); the maximum margin γ* with its support units; Novikoff's γ and bound (a second solve, through the origin); a classic perceptron run beside the bound. A converged perceptron proves separability first, and the two solves then run side by side.\n\nExit codes: 0 separable; 1 not separable (conflicting units listed); 2 usage, input or output error."
     )]
     Check(check::CheckArgs),
     /// Train a float model from a bench log; writes our JSON float-model file.
     #[command(
-        after_help = "Example:\n  linegate train bench.csv --sheet channels.toml --trainer max-margin --holdout holdout.csv -o model.json\n  linegate train bench.csv --trainer pocket --epochs 200 --max-false-go 0 -o model.json\n  linegate train export.csv --holdout-fraction 0.2 -o model.json        # seeded, stratified\n  linegate train bench.csv --holdout-after 2026-11-01 -o model.json     # later units held out\n\nComputes: the exact separability check with the hard margin (reused as the max-margin model), the chosen trainer, k-fold cross-validation (--folds, --cv-trainers), the holdout.\n\nExit codes: 0 model written; 2 usage, input or output error (nothing written), or a model with no direction."
+        after_help = "Example:\n  linegate train bench.csv --sheet channels.toml --trainer max-margin --holdout holdout.csv -o model.json\n  linegate train bench.csv --trainer pocket --epochs 200 --max-false-go 0 -o model.json\n  linegate train export.csv --holdout-fraction 0.2 -o model.json        # seeded, stratified\n  linegate train bench.csv --holdout-after 2026-11-01 -o model.json     # later units held out\n\nComputes: the separability verdict (recorded in the model; it picks the hard or soft margin), the chosen trainer, k-fold cross-validation (--folds, --cv-trainers), the holdout. The verdict costs one hard-margin solve, reused as the max-margin model; for the perceptron, a converged training run settles it with no solve. Novikoff's figures are left to `linegate check`.\n\nExit codes: 0 model written; 2 usage, input or output error (nothing written), or a model with no direction."
     )]
     Train(train::TrainArgs),
     /// Quantise and run the release audit; exit 1 if it fails.
@@ -96,7 +96,7 @@ pub enum Cmd {
     Replay(replay::ReplayArgs),
     /// Write a SYNTHETIC separable bench log of any size (and its channel sheet), to try Linegate at scale.
     #[command(
-        after_help = "Example:\n  linegate generate --rows 1000000 --channels 16 -o big.csv   # also writes big.toml\n  linegate generate --rows 1000 -o small.tsv                 # tab-separated, by extension\n\nExit codes: 0 written; 2 usage or output error."
+        after_help = "Example:\n  linegate generate --rows 1000000 --channels 16 -o big.csv   # also writes big.toml\n  linegate generate --rows 1000 -o small.tsv                 # tab-separated, by extension\n  linegate generate --rows 1000000 -o big.parquet            # Parquet, by extension\n\nExit codes: 0 written; 2 usage or output error."
     )]
     Generate(generate::GenerateArgs),
     /// Run the whole job on built-in synthetic data (an invented fan-module test station).

@@ -141,6 +141,7 @@ impl TrainArgs {
             cv_trainers: *cv_trainers,
             holdout_split,
             progress: !quiet && std::io::stderr().is_terminal(),
+            figures: host_trainer::train::separability::Figures::VERDICT,
         };
         let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)?;
         if let Some(hd) = &held {

@@ -1,7 +1,6 @@
 //! The header row: its names, the delimiter, and which column is the label, the unit id,
 //! the timestamp and each channel.
 
-use std::fs::File;
 use std::path::Path;
 
 use super::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES};
@@ -223,33 +222,6 @@ fn detect_delimiter(header: &[u8]) -> u8 {
         }
     }
     DELIMITERS[best]
-}
-
-/// The channel names a log would use under `opts`, from its header (or a Parquet file's
-/// schema) alone.
-///
-/// # Errors
-/// Header problems: empty file, duplicate or unknown names, no label.
-pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, InputError> {
-    crate::input::regular_file(path)?;
-    let names = if super::parquet::is_parquet(path) {
-        super::parquet::column_names(path)?
-    } else {
-        let file = File::open(path).map_err(|e| InputError::io(path, e))?;
-        let mut reader = BlockReader {
-            file,
-            bar: None,
-            block: 64 << 10,
-            eof: false,
-        };
-        read_header(path, opts, &mut reader, &mut Vec::new())?.names
-    };
-    let cols = Columns::resolve(path, names, opts, None)?;
-    Ok(cols
-        .channels
-        .iter()
-        .map(|&c| cols.names[c].clone())
-        .collect())
 }
 
 /// Why a header may have no label column that a user would not guess: the file is

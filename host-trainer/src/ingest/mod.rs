@@ -30,9 +30,8 @@ mod skip;
 #[cfg(test)]
 mod tests;
 
-pub use header::header_channels;
 pub use options::{
     GO_TOKENS, LABEL_NAMES, LogOptions, MAX_READING, NOGO_TOKENS, ScaleFrom, TIME_NAMES, UNIT_NAMES,
 };
-pub use read::{StreamedUnit, read_log, stream_units};
+pub use read::{StreamedUnit, header_channels, read_log, stream_units};
 pub use skip::SkipReport;

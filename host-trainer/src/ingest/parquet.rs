@@ -31,8 +31,7 @@ use parquet::arrow::arrow_reader::{
 
 use super::header::Columns;
 use super::options::{LogOptions, MAX_READING, label_of};
-use super::parse::{out_of_range, parse_number, raw_readings, trim};
-use super::scan::Row;
+use super::parse::{Row, out_of_range, parse_number, raw_readings, trim};
 use super::skip::{SkipReport, is_row_error};
 use crate::error::{InputError, Place};
 use crate::ingest::scaling::ChannelScale;

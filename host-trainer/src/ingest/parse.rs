@@ -315,6 +315,18 @@ pub(super) fn out_of_range(
     }
 }
 
+/// One good row as a scan hands it on (a text log's or a Parquet log's).
+pub(super) struct Row<'r> {
+    pub(super) line: u64,
+    pub(super) values: &'r [f64],
+    /// Raw readings, when the scan was given the channel scaling (else empty).
+    pub(super) raw: &'r [i32],
+    pub(super) label: i8,
+    pub(super) unit: Option<&'r [u8]>,
+    /// The timestamp cell, under `keep_times`.
+    pub(super) time: Option<&'r [u8]>,
+}
+
 /// Buffers the general path reuses from record to record.
 pub(super) struct Scratch {
     pub(super) vals: Vec<f64>,

@@ -5,8 +5,9 @@ use std::fs::File;
 use std::io::Read;
 use std::path::Path;
 
-use super::header::header_channels;
+use super::header::{Columns, read_header};
 use super::options::{LogOptions, ScaleFrom};
+use super::records::BlockReader;
 use super::scan::scan;
 use super::skip::SkipReport;
 use crate::error::InputError;
@@ -205,4 +206,31 @@ pub(super) fn no_rows(path: &Path, skipped: &SkipReport) -> InputError {
             String::new()
         },
     }
+}
+
+/// The channel names a log would use under `opts`, from its header (or a Parquet file's
+/// schema) alone.
+///
+/// # Errors
+/// Header problems: empty file, duplicate or unknown names, no label.
+pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, InputError> {
+    crate::input::regular_file(path)?;
+    let names = if super::parquet::is_parquet(path) {
+        super::parquet::column_names(path)?
+    } else {
+        let file = File::open(path).map_err(|e| InputError::io(path, e))?;
+        let mut reader = BlockReader {
+            file,
+            bar: None,
+            block: 64 << 10,
+            eof: false,
+        };
+        read_header(path, opts, &mut reader, &mut Vec::new())?.names
+    };
+    let cols = Columns::resolve(path, names, opts, None)?;
+    Ok(cols
+        .channels
+        .iter()
+        .map(|&c| cols.names[c].clone())
+        .collect())
 }

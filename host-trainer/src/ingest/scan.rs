@@ -9,7 +9,7 @@ use sha2::{Digest, Sha256};
 use super::fast;
 use super::header::{Columns, Header, read_header};
 use super::options::LogOptions;
-use super::parse::{Parsed, Parser};
+use super::parse::{Parsed, Parser, Row};
 use super::records::{BlockReader, count_lf, record_ends};
 use super::skip::{SkipReport, is_row_error};
 use crate::error::InputError;
@@ -17,17 +17,6 @@ use crate::ingest::scaling::ChannelScale;
 
 /// Bytes read per block by the parallel reader.
 pub(super) const BLOCK: usize = 4 << 20;
-
-pub(super) struct Row<'r> {
-    pub(super) line: u64,
-    pub(super) values: &'r [f64],
-    /// Raw readings, when the scan was given the channel scaling (else empty).
-    pub(super) raw: &'r [i32],
-    pub(super) label: i8,
-    pub(super) unit: Option<&'r [u8]>,
-    /// The timestamp cell, under `keep_times`.
-    pub(super) time: Option<&'r [u8]>,
-}
 
 /// Streams the log once, calling `on_row` for each good row in file order. Returns the
 /// file's SHA-256. A Parquet file (known by its magic) goes to the Parquet reader; a text

@@ -13,6 +13,8 @@
 //!   convention: augmented z = (x, 1)/R, no free bias, unit-norm separator:
 //!   the distance from the origin to the hull of the yᵢ·zᵢ, by the same algorithm.
 
+use rayon::prelude::*;
+
 use crate::ingest::dataset::Dataset;
 use crate::train::linear::Linear;
 
@@ -409,13 +411,25 @@ pub fn homogeneous_bounds(ds: &Dataset, idx: &[usize], radius: f64) -> Option<Ma
             .iter()
             .map(|&i| value(&out.point, i, &mut buf))
             .fold(f64::INFINITY, f64::min);
-        let mut below: Vec<(f64, usize)> = Vec::new();
-        for &i in idx.iter().filter(|&&i| !in_set[i]) {
-            let v = value(&out.point, i, &mut buf);
-            if v < floor {
-                push_bounded(&mut below, (v, i), WORKING_SET / 4);
-            }
-        }
+        let keep = WORKING_SET / 4;
+        let below = idx
+            .par_chunks(SCAN_CHUNK)
+            .map(|chunk| {
+                let mut buf = vec![0.0; d];
+                let mut below = Vec::new();
+                for &i in chunk.iter().filter(|&&i| !in_set[i]) {
+                    let v = value(&out.point, i, &mut buf);
+                    if v < floor {
+                        push_bounded(&mut below, (v, i), keep);
+                    }
+                }
+                below
+            })
+            .reduce(Vec::new, |a, b| merge_bounded(a, b, keep));
+        // Exactly the `keep` lowest, so the working set does not depend on the chunking.
+        let mut below = below;
+        below.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+        below.truncate(keep);
         if below.is_empty() {
             break out;
         }
@@ -431,9 +445,15 @@ pub fn homogeneous_bounds(ds: &Dataset, idx: &[usize], radius: f64) -> Option<Ma
     }
     let u: Vec<f64> = out.point.iter().map(|v| v / upper).collect();
     let lower = idx
-        .iter()
-        .map(|&i| value(&u, i, &mut buf))
-        .fold(f64::INFINITY, f64::min);
+        .par_chunks(SCAN_CHUNK)
+        .map(|chunk| {
+            let mut buf = vec![0.0; d];
+            chunk
+                .iter()
+                .map(|&i| value(&u, i, &mut buf))
+                .fold(f64::INFINITY, f64::min)
+        })
+        .reduce(|| f64::INFINITY, f64::min);
     (lower > 0.0).then_some(MarginBounds {
         lower,
         upper,
@@ -448,6 +468,19 @@ fn vertex_of(ds: &Dataset, i: usize, radius: f64) -> Vec<f64> {
     let mut z: Vec<f64> = x.iter().map(|v| y * v / radius).collect();
     z.push(y / radius);
     z
+}
+
+/// Units per chunk of the solvers' parallel scans of every unit.
+const SCAN_CHUNK: usize = 1 << 14;
+
+/// `a` and `b` (each holding the smallest of their units, as [`push_bounded`] keeps them)
+/// merged, keeping at least the `keep` smallest of both. How many more it keeps depends on
+/// the merge order: callers sort and truncate to `keep`.
+fn merge_bounded(mut a: Vec<(f64, usize)>, b: Vec<(f64, usize)>, keep: usize) -> Vec<(f64, usize)> {
+    for item in b {
+        push_bounded(&mut a, item, keep);
+    }
+    a
 }
 
 /// Pushes `item`, keeping only about the `keep` smallest once the vector doubles.
@@ -531,17 +564,28 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
                     }
                 });
         let keep = WORKING_SET / 4;
-        let mut go: Vec<(f64, usize)> = Vec::new();
-        let mut nogo: Vec<(f64, usize)> = Vec::new();
-        for &i in idx.iter().filter(|&&i| !in_set[i]) {
-            sc.row(ds, i, &mut row_buf);
-            let v = dot(x, &row_buf);
-            if ds.labels[i] > 0 && v < set_go {
-                push_bounded(&mut go, (v, i), keep);
-            } else if ds.labels[i] < 0 && v > set_nogo {
-                push_bounded(&mut nogo, (-v, i), keep);
-            }
-        }
+        // The scan of every unit, in parallel chunks: each keeps its few most violating units
+        // and the merge keeps the fewest overall, the same ones whatever the chunking.
+        let (mut go, mut nogo) = idx
+            .par_chunks(SCAN_CHUNK)
+            .map(|chunk| {
+                let mut buf = vec![0.0; d];
+                let (mut go, mut nogo) = (Vec::new(), Vec::new());
+                for &i in chunk.iter().filter(|&&i| !in_set[i]) {
+                    sc.row(ds, i, &mut buf);
+                    let v = dot(x, &buf);
+                    if ds.labels[i] > 0 && v < set_go {
+                        push_bounded(&mut go, (v, i), keep);
+                    } else if ds.labels[i] < 0 && v > set_nogo {
+                        push_bounded(&mut nogo, (-v, i), keep);
+                    }
+                }
+                (go, nogo)
+            })
+            .reduce(
+                || (Vec::new(), Vec::new()),
+                |(a, b), (c, e)| (merge_bounded(a, c, keep), merge_bounded(b, e, keep)),
+            );
         let gap_limit = set_go - set_nogo - 1e-12 * xx.max(1e-300);
         go.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
         nogo.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));

@@ -25,7 +25,9 @@ use serde::Serialize;
 use crate::ingest::dataset::Dataset;
 use crate::train::linear::Linear;
 use crate::train::maxmargin::{SvmConfig, homogeneous_bounds, max_margin};
-use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron, radius};
+use crate::train::perceptron::{
+    PerceptronConfig, PerceptronKind, PerceptronRun, perceptron, radius,
+};
 
 /// A unit named in a report.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -79,12 +81,12 @@ pub struct SeparabilityReport {
     /// Why the Novikoff figures are missing, or how far they are settled when only bounds
     /// were proved (then `novikoff_margin` is the certified lower bound on γ).
     pub novikoff_note: Option<String>,
-    /// Updates the classic perceptron actually made.
-    pub perceptron_updates: u64,
+    /// Updates the classic perceptron actually made (`None` when no run was asked for).
+    pub perceptron_updates: Option<u64>,
     /// Epochs it ran.
-    pub perceptron_epochs: u32,
+    pub perceptron_epochs: Option<u32>,
     /// Whether it converged within the epoch cap.
-    pub perceptron_converged: bool,
+    pub perceptron_converged: Option<bool>,
     /// How the verdict was reached and certified.
     pub decided_by: String,
     /// The maximum-margin separator (when separable).
@@ -138,8 +140,51 @@ pub fn hull_intersection(ds: &Dataset, idx: &[usize]) -> Option<Vec<(usize, f64)
     Some(conflict)
 }
 
+/// Which of the check's figures beyond the verdict, γ* and the separator to compute.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Figures {
+    /// γ*, the support units, the physical margins and the maximum-margin separator: the
+    /// hard-margin solve. Without it, a converged perceptron settles the verdict alone.
+    pub margin: bool,
+    /// Novikoff's γ and bound: a second hard-margin solve, on (x, 1)/R through the origin.
+    pub novikoff: bool,
+    /// A run of the classic perceptron (epochs, updates, converged) to show beside the bound.
+    pub perceptron: bool,
+}
+
+impl Figures {
+    /// Everything: what `linegate check` shows.
+    pub const ALL: Self = Self {
+        margin: true,
+        novikoff: true,
+        perceptron: true,
+    };
+    /// The verdict only: what training a perceptron needs.
+    pub const VERDICT: Self = Self {
+        margin: false,
+        novikoff: false,
+        perceptron: false,
+    };
+}
+
 /// Runs the full separability analysis on the units `idx`.
 pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> SeparabilityReport {
+    check_with(ds, idx, epochs, seed, Figures::ALL, None)
+}
+
+/// The separability analysis with only the `figures` asked for. `run` is a classic
+/// perceptron run on `idx` with `epochs` and `seed` the caller has made (its training run),
+/// used instead of a second. A classic perceptron that converges proves the log separable:
+/// the hard-margin and Novikoff solves then run side by side, or, when neither figure is
+/// asked for, not at all (its separator is checked on every unit instead).
+pub fn check_with(
+    ds: &Dataset,
+    idx: &[usize],
+    epochs: u32,
+    seed: u64,
+    figures: Figures,
+    run: Option<&PerceptronRun>,
+) -> SeparabilityReport {
     let unit_ref = |i: usize, weight: f64| UnitRef {
         index: i,
         line: ds.lines[i],
@@ -148,12 +193,15 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
         weight,
     };
     let r = radius(ds, idx);
-    let run = perceptron(
-        ds,
-        idx,
-        PerceptronKind::Classic,
-        PerceptronConfig { epochs, seed },
-    );
+    let own = (figures.perceptron && run.is_none()).then(|| {
+        perceptron(
+            ds,
+            idx,
+            PerceptronKind::Classic,
+            PerceptronConfig { epochs, seed },
+        )
+    });
+    let run = run.or(own.as_ref());
     let mut report = SeparabilityReport {
         units: idx.len(),
         channels: ds.dim(),
@@ -165,22 +213,42 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
         radius: r,
         novikoff_margin: None,
         novikoff_bound: None,
-        novikoff_note: None,
-        perceptron_updates: run.updates,
-        perceptron_epochs: run.epochs,
-        perceptron_converged: run.converged,
+        novikoff_note: (!figures.novikoff).then(|| {
+            "not computed here (linegate check computes Novikoff's γ and bound)".to_string()
+        }),
+        perceptron_updates: run.map(|p| p.updates),
+        perceptron_epochs: run.map(|p| p.epochs),
+        perceptron_converged: run.map(|p| p.converged),
         decided_by: String::new(),
         separator: None,
     };
+    // A converged perceptron has proved separability: Novikoff's solve cannot be wasted, so
+    // it runs beside the hard margin instead of after it.
+    let proved = run.filter(|p| p.converged && p.model.geometric_margin(ds, idx) > 0.0);
+    if let (false, false, Some(p)) = (figures.margin, figures.novikoff, proved) {
+        report.separable = true;
+        report.decided_by =
+            "the classic perceptron converged: its separator classifies every unit correctly (γ* not computed)".into();
+        report.separator = Some(p.model.clone());
+        return report;
+    }
+    let proved = proved.is_some();
+    let (svm, early_bounds) = if figures.novikoff && proved {
+        rayon::join(
+            || max_margin(ds, idx, SvmConfig::hard()),
+            || Some(homogeneous_bounds(ds, idx, r)),
+        )
+    } else {
+        (max_margin(ds, idx, SvmConfig::hard()), None)
+    };
     // The full LP decides whenever the log is small enough for it.
     let full_lp = (idx.len() <= LP_FULL_LIMIT).then(|| hull_intersection(ds, idx));
-    let svm = max_margin(ds, idx, SvmConfig::hard());
     let separator_ok = svm.margin > MIN_MARGIN && svm.model.geometric_margin(ds, idx) > 0.0;
     let not_separable_note = Some(
         "not separable: the Novikoff bound does not apply (the classic perceptron never stops on such a log)".to_string(),
     );
     if let Some(Some(conflict)) = full_lp {
-        report.novikoff_note = not_separable_note;
+        report.novikoff_note = not_separable_note.filter(|_| figures.novikoff);
         // A verified common point of both hulls: no separator can exist.
         report.decided_by =
             "LP: the convex hulls of GO and NO-GO meet (certificate verified)".into();
@@ -188,7 +256,7 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
         return report;
     }
     if !separator_ok {
-        report.novikoff_note = not_separable_note;
+        report.novikoff_note = not_separable_note.filter(|_| figures.novikoff);
         // Above the LP limit: certify on the units that keep the hulls from parting first.
         let scores = svm.model.scores(ds, idx);
         let mut cand: Vec<usize> = svm.support.iter().map(|s| s.0).collect();
@@ -237,7 +305,12 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
         })
         .collect();
     report.support = svm.support.iter().map(|&(i, a)| unit_ref(i, a)).collect();
-    match homogeneous_bounds(ds, idx, r) {
+    if !figures.novikoff {
+        report.separator = Some(svm.model);
+        return report;
+    }
+    let bounds = early_bounds.unwrap_or_else(|| homogeneous_bounds(ds, idx, r));
+    match bounds {
         Some(b) if b.upper - b.lower <= 1e-9 * b.upper => {
             report.novikoff_margin = Some(b.upper);
             report.novikoff_bound = Some(1.0 / (b.upper * b.upper));
@@ -279,6 +352,6 @@ mod tests {
         let r = check(&ds, &ds.all(), 20, 1);
         assert!(!r.separable);
         assert_eq!(r.conflict.len(), 4);
-        assert!(!r.perceptron_converged);
+        assert_eq!(r.perceptron_converged, Some(false));
     }
 }

@@ -73,6 +73,7 @@ fn trained(
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
         holdout_split: None,
         progress: false,
+        figures: host_trainer::train::separability::Figures::ALL,
     };
     (train_model(&ds, None, &req).unwrap().model, ds)
 }

@@ -142,7 +142,7 @@ fn xor_is_not_separable() {
         &[-1, -1, 1, 1],
     );
     let r = check(&ds, &ds.all(), 100, 1);
-    assert!(!r.separable && !r.perceptron_converged);
+    assert!(!r.separable && r.perceptron_converged == Some(false));
     assert_eq!(r.conflict.len(), 4);
 }
 
@@ -321,6 +321,7 @@ fn a_false_go_cap_of_zero_keeps_every_nogo_unit_strictly_nogo_in_float_and_fixed
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
         holdout_split: None,
         progress: false,
+        figures: host_trainer::train::separability::Figures::ALL,
     };
     let fm = host_trainer::workflow::train_model(&ds, None, &req)
         .unwrap()

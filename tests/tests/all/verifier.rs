@@ -57,6 +57,7 @@ fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
         holdout_split: None,
         progress: false,
+        figures: host_trainer::train::separability::Figures::ALL,
     };
     let fm = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)
         .unwrap()
