@@ -216,9 +216,10 @@ pub fn quantise(
     };
     if let Some(ds) = train {
         let correct = correct_units(fm, ds);
-        q.plain_min_margin = min_margin(&q.model, ds, &correct);
-        q.optimised_min_margin = q.plain_min_margin;
-        if cfg.optimise && !correct.is_empty() {
+        if !cfg.optimise || correct.is_empty() {
+            q.plain_min_margin = min_margin(&q.model, ds, &correct);
+            q.optimised_min_margin = q.plain_min_margin;
+        } else {
             let xmax: Vec<f64> = q
                 .model
                 .model()
@@ -238,7 +239,10 @@ pub fn quantise(
                 ideal_b: q.ideal_bias,
                 xmax: &xmax,
             };
-            let (m, moves) = search(&q.model, ds, &correct, wmax as i64, &bound);
+            // The search's pass over every unit yields the plain model's minimum margin too.
+            let (m, moves, plain) = search(&q.model, ds, &correct, wmax as i64, &bound);
+            q.plain_min_margin = plain;
+            q.optimised_min_margin = plain;
             let mut m = m;
             fit_acc(&mut m);
             if let Ok(better) = CheckedModel::new(m) {
@@ -261,28 +265,40 @@ pub fn quantise(
 /// Units the float model classifies correctly.
 pub fn correct_units(fm: &FloatModel, ds: &Dataset) -> Vec<usize> {
     let lin = fm.linear();
-    lin.scores(ds, &ds.all())
-        .iter()
-        .enumerate()
-        .filter(|&(i, s)| (*s > fm.threshold) == (ds.labels[i] > 0))
-        .map(|(i, _)| i)
+    // The score of each unit as `Linear::scores` computes it, without holding them all.
+    (0..ds.len())
+        .into_par_iter()
+        .map_init(
+            || vec![0.0; ds.dim()],
+            |x, i| {
+                ds.scaled_row(i, x);
+                ((lin.score(x) > fm.threshold) == (ds.labels[i] > 0)).then_some(i)
+            },
+        )
+        .flatten_iter()
         .collect()
 }
 
 /// Smallest fixed margin over `idx`, by the shared kernel; `None` if a reading is refused or `idx` is empty.
 pub fn min_margin(m: &CheckedModel, ds: &Dataset, idx: &[usize]) -> Option<f64> {
-    // A unit in the RECHECK band gets no decision, so it has no decision margin.
-    idx.iter()
-        .map(|&i| {
-            m.classify(ds.raw_row(i)).ok().map(|d| {
-                if d.verdict == shared_model::Verdict::Recheck {
-                    f64::INFINITY
-                } else {
-                    fixed_margin(m.model(), d.score, ds.labels[i])
-                }
-            })
+    // A unit in the RECHECK band gets no decision, so it has no decision margin. Chunks in
+    // parallel: the minimum does not depend on the order.
+    idx.par_chunks(1 << 14)
+        .map(|chunk| {
+            chunk
+                .iter()
+                .map(|&i| {
+                    m.classify(ds.raw_row(i)).ok().map(|d| {
+                        if d.verdict == shared_model::Verdict::Recheck {
+                            f64::INFINITY
+                        } else {
+                            fixed_margin(m.model(), d.score, ds.labels[i])
+                        }
+                    })
+                })
+                .try_fold(f64::INFINITY, |acc, v| v.map(|v| acc.min(v)))
         })
-        .try_fold(f64::INFINITY, |acc, v| v.map(|v| acc.min(v)))
+        .reduce(|| Some(f64::INFINITY), |a, b| Some(a?.min(b?)))
         .filter(|v| v.is_finite())
 }
 
@@ -309,14 +325,15 @@ impl Bound<'_> {
 }
 
 /// Greedy ±1 LSB coordinate search on the units with the smallest margins, maximising
-/// (smallest margin − rounding bound).
+/// (smallest margin − rounding bound). Returns the model, its moves, and [`min_margin`] of
+/// the model it started from (computed in the same pass over the units).
 fn search(
     m: &CheckedModel,
     ds: &Dataset,
     correct: &[usize],
     wmax: i64,
     bound: &Bound<'_>,
-) -> (FixedModel, usize) {
+) -> (FixedModel, usize, Option<f64>) {
     let d = ds.dim();
     // The search works on the units of smallest margin only. They are picked chunk by chunk
     // (a linear selection per chunk, bounded memory), not by scaling and sorting every unit:
@@ -330,26 +347,38 @@ fn search(
             v.truncate(KEEP);
         }
     };
-    let mut picked: Vec<(f64, usize)> = correct
+    // Each chunk: its tightest units, and its minimum margin as `min_margin` counts it (a
+    // RECHECK unit has none; a unit the kernel refuses leaves the model without one).
+    let (mut picked, plain) = correct
         .par_chunks(1 << 16)
         .map(|chunk| {
-            let mut x = vec![0i32; d];
+            let mut least = Some(f64::INFINITY);
             let mut v: Vec<(f64, usize)> = chunk
                 .iter()
                 .filter_map(|&i| {
-                    m.scale(ds.raw_row(i), &mut x).ok()?;
-                    let s = m.score_scaled(&x);
-                    Some((fixed_margin(m.model(), s, ds.labels[i]), i))
+                    let Ok(dec) = m.classify(ds.raw_row(i)) else {
+                        least = None;
+                        return None;
+                    };
+                    let mg = fixed_margin(m.model(), dec.score, ds.labels[i]);
+                    if dec.verdict != shared_model::Verdict::Recheck {
+                        least = least.map(|l| l.min(mg));
+                    }
+                    Some((mg, i))
                 })
                 .collect();
             smallest(&mut v);
-            v
+            (v, least)
         })
-        .reduce(Vec::new, |mut a, b| {
-            a.extend(b);
-            smallest(&mut a);
-            a
-        });
+        .reduce(
+            || (Vec::new(), Some(f64::INFINITY)),
+            |(mut a, la), (b, lb)| {
+                a.extend(b);
+                smallest(&mut a);
+                (a, la.and_then(|x| Some(x.min(lb?))))
+            },
+        );
+    let plain = plain.filter(|v| v.is_finite());
     picked.sort_by(order);
     let rows: Vec<(f64, i8, Vec<i32>)> = picked
         .into_iter()
@@ -401,7 +430,7 @@ fn search(
         }
         moves += 1;
     }
-    (model, moves)
+    (model, moves, plain)
 }
 
 #[cfg(test)]

@@ -20,12 +20,17 @@ impl Linear {
 
     /// Scores of the units `idx` of `ds`.
     pub fn scores(&self, ds: &Dataset, idx: &[usize]) -> Vec<f64> {
-        let mut x = vec![0.0; ds.dim()];
-        idx.iter()
-            .map(|&i| {
-                ds.scaled_row(i, &mut x);
-                self.score(&x)
-            })
+        use rayon::prelude::*;
+        // In parallel, in the order of `idx`; each score is computed alone, so the values do
+        // not depend on the threads.
+        idx.par_iter()
+            .map_init(
+                || vec![0.0; ds.dim()],
+                |x, &i| {
+                    ds.scaled_row(i, x);
+                    self.score(x)
+                },
+            )
             .collect()
     }
 
