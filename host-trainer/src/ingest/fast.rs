@@ -31,11 +31,17 @@ enum Role {
 /// V(1 + δ₁), the lsb 10⁻ᵏ(1 + δ₂), the quotient is rounded once more (1 + δ₃), each
 /// |δ| ≤ 2⁻⁵³, so the general path's quotient is N(1 + ε) with |ε| < 4·10⁻¹⁶. The fast path
 /// only answers for |N| < 2³¹, where |N·ε| < 10⁻⁶ < ½, so rounding gives N exactly.
-#[derive(Clone, Copy, Debug)]
+///
+/// A decimal with more fraction digits than k (a log read with observed scaling, whose lsb
+/// is coarser than the log's own digits) is converted as the general path converts it: its
+/// double (the same as the standard parser's, see [`Decimal::value`]) through
+/// [`ChannelScale::to_raw`] itself.
+#[derive(Clone, Debug)]
 struct DecimalChannel {
     k: u32,
     raw_min: i64,
     raw_max: i64,
+    scale: ChannelScale,
 }
 
 /// Most significant digits the fast path reads: 10¹⁵ is below 2⁵³ and below
@@ -52,6 +58,7 @@ impl DecimalChannel {
             k,
             raw_min: i64::from(s.raw_min),
             raw_max: i64::from(s.raw_max),
+            scale: s.clone(),
         })
     }
 
@@ -60,7 +67,7 @@ impl DecimalChannel {
     fn raw(&self, rec: &[u8], pos: usize, comma: bool) -> Option<(i32, usize)> {
         let d = decimal(rec, pos, comma)?;
         if d.frac > self.k {
-            return None;
+            return Some((self.scale.to_raw(d.value()?)?, d.end));
         }
         let n = i64::try_from(
             d.mant
@@ -366,9 +373,24 @@ mod tests {
             assert_eq!(field(&c, text), Some(want), "{text}");
             assert_eq!(general(text, &s), Some(want), "{text}");
         }
-        // More fraction digits than the lsb has, exponents, padding, out of range: general path.
+        // More fraction digits than the lsb has: the general path's own conversion of the
+        // same double (0.0005 / 0.001 rounds half away from zero to 1; 999.9994 to 999 999).
+        for text in ["0.0005", "0.00049", "999.9994", "12.3455", "0.0004999999"] {
+            assert_eq!(field(&c, text), general(text, &s), "{text}");
+        }
+        assert_eq!(field(&c, "0.0005"), Some(1));
+        // Exponents, padding, out of range: general path.
         for text in [
-            "0.0005", "1e3", " 5", "5 ", "+5", "5.", ".5", "1000.001", "-0.001", "--1",
+            "1e3",
+            " 5",
+            "5 ",
+            "+5",
+            "5.",
+            ".5",
+            "1000.001",
+            "-0.001",
+            "--1",
+            "1000.0005",
         ] {
             assert_eq!(field(&c, text), None, "{text}");
         }

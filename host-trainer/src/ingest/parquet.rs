@@ -402,6 +402,7 @@ pub(super) fn scan_parquet(
     scales: Option<&[ChannelScale]>,
     skipped: &mut SkipReport,
     mut on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError> + Send,
+    hash: bool,
 ) -> Result<(Columns, String), InputError> {
     let Opened { meta, names } = open(path)?;
     let cols = Columns::resolve(path, names, opts, model)?;
@@ -480,7 +481,13 @@ pub(super) fn scan_parquet(
     // that hands rows on in file order, and the hasher. A bounded queue between decoder and
     // feeder keeps at most a few slices in memory.
     let (hash, read) = std::thread::scope(|scope| {
-        let hasher = scope.spawn(|| crate::digest::sha256_file(path));
+        let hasher = scope.spawn(|| {
+            if hash {
+                crate::digest::sha256_file(path)
+            } else {
+                Ok(String::new())
+            }
+        });
         let (tx, rx) = std::sync::mpsc::sync_channel::<Slice>(2);
         let bar = &bar;
         let feeder = scope.spawn(move || -> Result<(), InputError> {

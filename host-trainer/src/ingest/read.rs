@@ -43,7 +43,8 @@ pub fn read_log(
     if model.is_none() && names.iter().any(|n| sheet.and_then(|s| s.get(n)).is_none()) {
         let mut skipped = SkipReport::default();
         let mut rows = 0usize;
-        scan(path, opts, model, None, &mut skipped, |_, row| {
+        // The second pass hashes the file; this one need not.
+        let first_pass = |_: &_, row: super::parse::Row<'_>| {
             if ranges.is_empty() {
                 ranges = row.values.iter().map(|&v| (v, v)).collect();
             }
@@ -53,7 +54,8 @@ pub fn read_log(
             }
             rows += 1;
             Ok(())
-        })?;
+        };
+        scan(path, opts, model, None, &mut skipped, first_pass, false)?;
         if rows == 0 {
             return Err(no_rows(path, &skipped));
         }
@@ -112,24 +114,32 @@ pub fn read_log(
     }
     let mut skipped = SkipReport::default();
     let scales = ds.scales.clone();
-    let (cols2, sha) = scan(path, opts, model, Some(&scales), &mut skipped, |_, row| {
-        if ds.labels.len() >= opts.max_rows {
-            return Err(InputError::TooManyRows {
-                path: path.into(),
-                max: opts.max_rows,
-            });
-        }
-        ds.raw.extend_from_slice(row.raw);
-        ds.labels.push(row.label);
-        ds.lines.push(row.line);
-        if let Some(u) = row.unit {
-            ds.unit_ids.push(u);
-        }
-        if let Some(t) = row.time {
-            ds.times.push(t);
-        }
-        Ok(())
-    })?;
+    let (cols2, sha) = scan(
+        path,
+        opts,
+        model,
+        Some(&scales),
+        &mut skipped,
+        |_, row| {
+            if ds.labels.len() >= opts.max_rows {
+                return Err(InputError::TooManyRows {
+                    path: path.into(),
+                    max: opts.max_rows,
+                });
+            }
+            ds.raw.extend_from_slice(row.raw);
+            ds.labels.push(row.label);
+            ds.lines.push(row.line);
+            if let Some(u) = row.unit {
+                ds.unit_ids.push(u);
+            }
+            if let Some(t) = row.time {
+                ds.times.push(t);
+            }
+            Ok(())
+        },
+        true,
+    )?;
     if cols2.unit.is_none() {
         ds.unit_ids.clear();
     }
@@ -174,14 +184,22 @@ pub fn stream_units(
     skipped: &mut SkipReport,
     mut on_unit: impl FnMut(StreamedUnit<'_>) -> Result<(), InputError> + Send,
 ) -> Result<String, InputError> {
-    let (_, sha) = scan(path, opts, Some(scales), Some(scales), skipped, |_, row| {
-        on_unit(StreamedUnit {
-            line: row.line,
-            raw: row.raw,
-            label: row.label,
-            unit: row.unit,
-        })
-    })?;
+    let (_, sha) = scan(
+        path,
+        opts,
+        Some(scales),
+        Some(scales),
+        skipped,
+        |_, row| {
+            on_unit(StreamedUnit {
+                line: row.line,
+                raw: row.raw,
+                label: row.label,
+                unit: row.unit,
+            })
+        },
+        true,
+    )?;
     Ok(sha)
 }
 

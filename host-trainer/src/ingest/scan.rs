@@ -19,7 +19,7 @@ use crate::ingest::scaling::ChannelScale;
 pub(super) const BLOCK: usize = 4 << 20;
 
 /// Streams the log once, calling `on_row` for each good row in file order. Returns the
-/// file's SHA-256. A Parquet file (known by its magic) goes to the Parquet reader; a text
+/// file's SHA-256 (empty unless `hash`: a first pass for observed ranges needs none). A Parquet file (known by its magic) goes to the Parquet reader; a text
 /// log is read in blocks; each block's complete records are split
 /// into pieces parsed in parallel, then handed on in order.
 pub(super) fn scan(
@@ -29,15 +29,25 @@ pub(super) fn scan(
     scales: Option<&[ChannelScale]>,
     skipped: &mut SkipReport,
     on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError> + Send,
+    hash: bool,
 ) -> Result<(Columns, String), InputError> {
     crate::input::regular_file(path)?;
     if super::parquet::is_parquet(path) {
-        return super::parquet::scan_parquet(path, opts, model, scales, skipped, on_row);
+        return super::parquet::scan_parquet(path, opts, model, scales, skipped, on_row, hash);
     }
-    scan_blocks(path, opts, model, scales, skipped, on_row, BLOCK)
+    let pass = Pass { block: BLOCK, hash };
+    scan_blocks(path, opts, model, scales, skipped, on_row, pass)
 }
 
-/// [`scan`] with a given block size (small blocks exercise the block seams in tests).
+/// How a text scan reads: bytes per block, and whether it hashes the file.
+#[derive(Clone, Copy, Debug)]
+pub(super) struct Pass {
+    pub(super) block: usize,
+    pub(super) hash: bool,
+}
+
+/// [`scan`] of a text log with a given block size (small blocks exercise the block seams in
+/// tests).
 pub(super) fn scan_blocks(
     path: &Path,
     opts: &LogOptions,
@@ -45,8 +55,9 @@ pub(super) fn scan_blocks(
     scales: Option<&[ChannelScale]>,
     skipped: &mut SkipReport,
     mut on_row: impl FnMut(&Columns, Row<'_>) -> Result<(), InputError> + Send,
-    block: usize,
+    pass: Pass,
 ) -> Result<(Columns, String), InputError> {
+    let Pass { block, hash } = pass;
     let io = |e| InputError::io(path, e);
     crate::input::regular_file(path)?;
     let file = File::open(path).map_err(io)?;
@@ -258,7 +269,11 @@ pub(super) fn scan_blocks(
                                 parser.piece(&whole[a..b], first, plain, out);
                             });
                     },
-                    || hasher.update(unhashed),
+                    || {
+                        if hash {
+                            hasher.update(unhashed);
+                        }
+                    },
                 );
             },
             || {
@@ -290,8 +305,12 @@ pub(super) fn scan_blocks(
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
-    let hash = hasher.finalize();
-    Ok((cols, crate::digest::lower_hex(&hash)))
+    let digest = if hash {
+        crate::digest::lower_hex(&hasher.finalize())
+    } else {
+        String::new()
+    };
+    Ok((cols, digest))
 }
 
 /// Cell `k` of cells packed end to end in `bytes`, `ends[k]` marking where each ends.

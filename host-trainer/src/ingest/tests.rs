@@ -37,7 +37,7 @@ fn rows(
             ));
             Ok(())
         },
-        block,
+        Pass { block, hash: true },
     )
     .map_err(|e| e.to_string())?;
     Ok((out, hash, skipped.total))
@@ -357,7 +357,16 @@ fn an_over_long_line_comes_after_the_errors_before_it() {
             ..strict.clone()
         };
         let mut skipped = SkipReport::default();
-        scan_blocks(&path, &skip, None, None, &mut skipped, |_, _| Ok(()), block).unwrap();
+        scan_blocks(
+            &path,
+            &skip,
+            None,
+            None,
+            &mut skipped,
+            |_, _| Ok(()),
+            Pass { block, hash: true },
+        )
+        .unwrap();
         assert_eq!(skipped.total, 2, "block {block}");
         assert!(
             skipped.examples[0].contains("line 202"),
