@@ -18,8 +18,8 @@ done
 lg() { (cd "$root" && cargo run -q --release -p host-trainer -- -q "$@"); }
 lg generate --rows 2000 --channels 16 --seed 7 -o "$work/gen16.csv"
 lg train "$work/gen16.csv" --sheet "$work/gen16.toml" --folds 0 -o "$work/m16.json"
-lg pack --model "$work/m16.json" --train "$work/gen16.csv" -o "$work/m16.lgb" --hex 0x3F000
-lg replay --blob "$work/m16.lgb" --model "$work/m16.json" "$work/gen16.csv" --vectors "$work/v.txt" > /dev/null
+lg pack --model "$work/m16.json" --train "$work/gen16.csv" -o "$work/m16.lgmb" --hex 0x3F000
+lg replay --blob "$work/m16.lgmb" --model "$work/m16.json" "$work/gen16.csv" --vectors "$work/v.txt" > /dev/null
 head -5 "$work/v.txt" > "$work/v4.txt"  # the model line and 4 vectors
 (cd "$here" && LINEGATE_VECTORS="$work/v4.txt" cargo build -q --release --bin linegate-qemu-app)
 elf="$here/target/thumbv7m-none-eabi/release/linegate-qemu-app"

@@ -341,7 +341,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         out.join("audit.html"),
         crate::report::html(fm, &report, &md),
     );
-    set.add(out.join("model.lgb"), blob.clone());
+    set.add(out.join("model.lgmb"), blob.clone());
     set.add(
         out.join("model.hex"),
         crate::release::hex::to_hex(MODEL_REGION, &blob),

@@ -196,10 +196,10 @@ mod tests {
         // first file must not appear either.
         std::fs::write(d.join("blocker"), b"x").unwrap();
         let mut set = OutputSet::default();
-        set.add(d.join("a.lgb"), b"blob".to_vec());
+        set.add(d.join("a.lgmb"), b"blob".to_vec());
         set.add(d.join("blocker/a.hex"), b"hex".to_vec());
         assert!(set.commit(false).is_err());
-        assert!(!d.join("a.lgb").exists());
+        assert!(!d.join("a.lgmb").exists());
         let left: Vec<_> = std::fs::read_dir(d)
             .unwrap()
             .flatten()
@@ -212,21 +212,21 @@ mod tests {
     fn stale_temporary_files_are_removed_and_a_second_writer_fails() {
         let dir = tempfile::tempdir().unwrap();
         let d = dir.path();
-        std::fs::write(d.join(format!("{TMP_PREFIX}999-0-old.lgb")), b"half").unwrap();
-        write_atomic(&d.join("m.lgb"), b"new").unwrap();
+        std::fs::write(d.join(format!("{TMP_PREFIX}999-0-old.lgmb")), b"half").unwrap();
+        write_atomic(&d.join("m.lgmb"), b"new").unwrap();
         let names: Vec<_> = std::fs::read_dir(d)
             .unwrap()
             .flatten()
             .map(|e| e.file_name())
             .collect();
-        assert_eq!(names, ["m.lgb"]);
+        assert_eq!(names, ["m.lgmb"]);
         // Hold the folder's lock as another run would.
         let held = lock(d).unwrap();
         let mut set = OutputSet::default();
-        set.add(d.join("n.lgb"), b"n".to_vec());
+        set.add(d.join("n.lgmb"), b"n".to_vec());
         assert!(matches!(set.commit(false), Err(OutputError::Busy(_))));
         drop(held);
-        assert!(write_atomic(&d.join("n.lgb"), b"n").is_ok());
+        assert!(write_atomic(&d.join("n.lgmb"), b"n").is_ok());
     }
 
     #[cfg(unix)]

@@ -214,13 +214,13 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
             "--weight-bits",
             "8",
             "-o",
-            "m.lgb",
+            "m.lgmb",
         ],
         d,
     );
     exits(&o, 1);
     assert!(String::from_utf8_lossy(&o.stderr).contains("audit failed, nothing written"));
-    assert!(!d.join("m.lgb").exists());
+    assert!(!d.join("m.lgmb").exists());
     let o = linegate(
         &[
             "audit",
@@ -245,13 +245,13 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
             "--weight-bits",
             "8",
             "-o",
-            "m.lgb",
+            "m.lgmb",
             "--override-audit",
         ],
         d,
     );
     exits(&o, 0);
-    let o = linegate(&["inspect", "m.lgb"], d);
+    let o = linegate(&["inspect", "m.lgmb"], d);
     assert!(String::from_utf8_lossy(&o.stdout).contains("audit: Overridden"));
     // 32-bit weights keep the margin: the audit passes and the blob says so.
     let o = linegate(
@@ -264,7 +264,7 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
             "--weight-bits",
             "32",
             "-o",
-            "ok.lgb",
+            "ok.lgmb",
             "--hex",
             "0x3F000",
         ],
@@ -285,7 +285,7 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
             "--weight-bits",
             "32",
             "-o",
-            "ok.lgb",
+            "ok.lgmb",
         ],
         d,
     );
@@ -299,11 +299,11 @@ fn inspect_catches_a_flipped_bit_and_a_mismatched_model() {
     let d = dir.path();
     let o = linegate(&["-q", "demo", "--out-dir", "demo"], d);
     exits(&o, 0);
-    let blob = std::fs::read(d.join("demo/model.lgb")).unwrap();
+    let blob = std::fs::read(d.join("demo/model.lgmb")).unwrap();
     let o = linegate(
         &[
             "inspect",
-            "demo/model.lgb",
+            "demo/model.lgmb",
             "--model",
             "demo/model.json",
             "--report",
@@ -320,15 +320,15 @@ fn inspect_catches_a_flipped_bit_and_a_mismatched_model() {
     for bit in [0usize, 37, 200, blob.len() * 8 - 1] {
         let mut f = blob.clone();
         f[bit / 8] ^= 1 << (bit % 8);
-        write(d, "flipped.lgb", &f);
-        let o = linegate(&["inspect", "flipped.lgb"], d);
+        write(d, "flipped.lgmb", &f);
+        let o = linegate(&["inspect", "flipped.lgmb"], d);
         assert_eq!(o.status.code(), Some(1), "bit {bit}");
         assert!(!String::from_utf8_lossy(&o.stderr).is_empty());
     }
     let mut f = blob.clone();
     f[30] ^= 0x08;
-    write(d, "flipped.lgb", &f);
-    let o = linegate(&["inspect", "flipped.lgb"], d);
+    write(d, "flipped.lgmb", &f);
+    let o = linegate(&["inspect", "flipped.lgmb"], d);
     assert!(
         String::from_utf8_lossy(&o.stderr).contains("CRC mismatch"),
         "{}",
@@ -349,7 +349,7 @@ fn inspect_catches_a_flipped_bit_and_a_mismatched_model() {
         d,
     );
     exits(&o, 0);
-    let o = linegate(&["inspect", "demo/model.lgb", "--model", "other.json"], d);
+    let o = linegate(&["inspect", "demo/model.lgmb", "--model", "other.json"], d);
     exits(&o, 1);
     assert!(String::from_utf8_lossy(&o.stderr).contains("does not match"));
 }
@@ -368,7 +368,7 @@ fn replay_prints_the_demo_lines() {
         &[
             "replay",
             "--blob",
-            "demo/model.lgb",
+            "demo/model.lgmb",
             "--model",
             "demo/model.json",
             "demo/holdout-synthetic.csv",
@@ -482,7 +482,7 @@ fn audit_refuses_a_training_log_the_model_was_not_trained_on() {
             "demo/holdout-synthetic.csv",
         ];
         if cmd == "pack" {
-            args.extend(["-o", "m.lgb"]);
+            args.extend(["-o", "m.lgmb"]);
         }
         let o = linegate(&args, d);
         exits(&o, 2);
@@ -493,7 +493,7 @@ fn audit_refuses_a_training_log_the_model_was_not_trained_on() {
             ),
             "{err}"
         );
-        assert!(!d.join("m.lgb").exists());
+        assert!(!d.join("m.lgmb").exists());
     }
 }
 
@@ -586,7 +586,7 @@ fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
         &[
             "replay",
             "--blob",
-            "demo/model.lgb",
+            "demo/model.lgmb",
             "--model",
             "demo/model.json",
             "demo/holdout-synthetic.csv",
@@ -597,7 +597,7 @@ fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
         &[
             "replay",
             "--blob",
-            "demo/model.lgb",
+            "demo/model.lgmb",
             "--model",
             "demo/model.json",
             "holdout-fault.csv",
@@ -685,7 +685,7 @@ fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
         &[
             "replay",
             "--blob",
-            "demo/model.lgb",
+            "demo/model.lgmb",
             "--model",
             "demo/model.json",
             "holdout-bad.csv",
@@ -739,7 +739,7 @@ fn an_edited_model_file_is_refused_and_a_rewritten_blob_fails_inspect_against_th
             "demo/train-synthetic.csv",
         ];
         if cmd == "pack" {
-            args.extend(["-o", "x.lgb"]);
+            args.extend(["-o", "x.lgmb"]);
         }
         let o = linegate(&args, d);
         exits(&o, 2);
@@ -749,26 +749,29 @@ fn an_edited_model_file_is_refused_and_a_rewritten_blob_fails_inspect_against_th
             "{}",
             String::from_utf8_lossy(&o.stderr)
         );
-        assert!(!d.join("x.lgb").exists());
+        assert!(!d.join("x.lgmb").exists());
     }
     // A blob whose thresholds were rewritten and whose CRC was recomputed decodes, but is
     // not the audited blob.
-    let blob = std::fs::read(d.join("demo/model.lgb")).unwrap();
+    let blob = std::fs::read(d.join("demo/model.lgmb")).unwrap();
     let mut m = shared_model::blob::decode(&blob).unwrap().model().clone();
     m.nogo_max = i64::MIN;
     m.go_min = i64::MIN + 1;
     let forged = shared_model::CheckedModel::new(m).unwrap();
     let mut buf = [0u8; shared_model::blob::MAX_BLOB_LEN];
     let n = shared_model::blob::encode(&forged, &mut buf).unwrap();
-    write(d, "forged.lgb", &buf[..n]);
-    let o = linegate(&["inspect", "forged.lgb", "--report", "demo/audit.json"], d);
+    write(d, "forged.lgmb", &buf[..n]);
+    let o = linegate(
+        &["inspect", "forged.lgmb", "--report", "demo/audit.json"],
+        d,
+    );
     exits(&o, 1);
     assert!(String::from_utf8_lossy(&o.stderr).contains("does not match audit report"));
     // The audited blob matches its report, and names its blob id as the device does.
     let o = linegate(
         &[
             "inspect",
-            "demo/model.lgb",
+            "demo/model.lgmb",
             "--report",
             "demo/audit.json",
             "--model",
@@ -796,13 +799,13 @@ fn an_edited_model_file_is_refused_and_a_rewritten_blob_fails_inspect_against_th
                 "16",
                 "--apply-suggested-band",
                 "-o",
-                "w16.lgb",
+                "w16.lgmb",
             ],
         ),
         d,
     );
     exits(&o, 0);
-    let other = shared_model::blob::blob_id(&std::fs::read(d.join("w16.lgb")).unwrap()).unwrap();
+    let other = shared_model::blob::blob_id(&std::fs::read(d.join("w16.lgmb")).unwrap()).unwrap();
     assert_ne!(format!("{other:08x}"), id);
 }
 
@@ -844,7 +847,7 @@ fn replay_scores_new_units_without_a_label_column() {
             &[
                 "replay",
                 "--blob",
-                "demo/model.lgb",
+                "demo/model.lgmb",
                 "--model",
                 "demo/model.json",
                 log,
@@ -904,14 +907,14 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
         linegate(&v, d)
     };
     let mut a = vec!["pack".to_string()];
-    a.extend(release(&["-o", "signed.lgb"]));
+    a.extend(release(&["-o", "signed.lgmb"]));
     exits(&run(a.clone()), 0);
     let mut a2 = vec!["pack".to_string()];
-    a2.extend(release(&["-o", "again.lgb"]));
+    a2.extend(release(&["-o", "again.lgmb"]));
     exits(&run(a2), 0);
     assert_eq!(
-        std::fs::read(d.join("signed.lgb")).unwrap(),
-        std::fs::read(d.join("again.lgb")).unwrap(),
+        std::fs::read(d.join("signed.lgmb")).unwrap(),
+        std::fs::read(d.join("again.lgmb")).unwrap(),
         "signing is deterministic"
     );
     let mut au = vec!["audit".to_string()];
@@ -920,7 +923,7 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
     let o = linegate(
         &[
             "inspect",
-            "signed.lgb",
+            "signed.lgmb",
             "--public-key",
             "owner.pub",
             "--report",
@@ -940,13 +943,13 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
     // Another key's public file, an unsigned blob: exit 1.
     exits(
         &linegate(
-            &["inspect", "signed.lgb", "--public-key", "stranger.pub"],
+            &["inspect", "signed.lgmb", "--public-key", "stranger.pub"],
             d,
         ),
         1,
     );
     let o = linegate(
-        &["inspect", "demo/model.lgb", "--public-key", "owner.pub"],
+        &["inspect", "demo/model.lgmb", "--public-key", "owner.pub"],
         d,
     );
     exits(&o, 1);
@@ -956,7 +959,7 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
         &[
             "replay",
             "--blob",
-            "signed.lgb",
+            "signed.lgmb",
             "--model",
             "demo/model.json",
             "demo/holdout-synthetic.csv",

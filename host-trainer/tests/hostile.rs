@@ -35,7 +35,7 @@ fn hex_images_with_foreign_text_junk_or_a_wrapping_address_are_refused() {
                 &[
                     "--apply-suggested-band",
                     "-o",
-                    "top.lgb",
+                    "top.lgmb",
                     "--hex",
                     "0xFFFFFF80",
                 ],
@@ -48,7 +48,7 @@ fn hex_images_with_foreign_text_junk_or_a_wrapping_address_are_refused() {
         err.contains("past the top of the 32-bit address space"),
         "{err}"
     );
-    assert!(!d.join("top.lgb").exists() && !d.join("top.hex").exists());
+    assert!(!d.join("top.lgmb").exists() && !d.join("top.hex").exists());
 }
 
 #[test]
@@ -80,26 +80,26 @@ fn pipes_devices_and_endless_files_are_refused_at_once() {
         assert!(err.contains("not a regular file"), "{args:?}: {err}");
     }
     // A file read whole that is larger than any of its kind.
-    write(d, "big.lgb", &vec![0u8; 2 << 20]);
-    let err = exits(&linegate(&["inspect", "big.lgb"], d), 2);
+    write(d, "big.lgmb", &vec![0u8; 2 << 20]);
+    let err = exits(&linegate(&["inspect", "big.lgmb"], d), 2);
     assert!(
         err.contains("more than a model blob or flash image can be"),
         "{err}"
     );
     // --force never turns a device or a folder into a regular file.
-    std::fs::create_dir(d.join("out.lgb")).unwrap();
+    std::fs::create_dir(d.join("out.lgmb")).unwrap();
     let err = exits(
         &linegate(
             &on_demo(
                 "pack",
-                &["--apply-suggested-band", "-o", "out.lgb", "--force"],
+                &["--apply-suggested-band", "-o", "out.lgmb", "--force"],
             ),
             d,
         ),
         2,
     );
     assert!(err.contains("is not a regular file"), "{err}");
-    assert!(d.join("out.lgb").is_dir());
+    assert!(d.join("out.lgmb").is_dir());
 }
 
 #[test]
@@ -280,7 +280,10 @@ fn messages_say_what_is_really_wrong() {
 
 /// The blob and HEX image of a set in `d`: both or neither, and the image holds the blob.
 fn set_is_whole(d: &Path, stem: &str) -> bool {
-    let (blob, hex) = (d.join(format!("{stem}.lgb")), d.join(format!("{stem}.hex")));
+    let (blob, hex) = (
+        d.join(format!("{stem}.lgmb")),
+        d.join(format!("{stem}.hex")),
+    );
     match (blob.exists(), hex.exists()) {
         (false, false) => true,
         (true, true) => {
@@ -322,26 +325,26 @@ fn killed_and_concurrent_packs_leave_whole_sets_and_no_temporary_files() {
     };
     // Killed at spread-out moments (kill -9): never a partial set.
     for k in 0..30u64 {
-        let mut child = pack("16", "out/k.lgb");
+        let mut child = pack("16", "out/k.lgmb");
         std::thread::sleep(std::time::Duration::from_millis(k * 7 % 120));
         let _ = child.kill();
         let _ = child.wait();
         assert!(set_is_whole(&d.join("out"), "k"), "run {k}: partial set");
     }
     // The next run clears what killed runs left behind.
-    assert!(pack("16", "out/k.lgb").wait().unwrap().success());
+    assert!(pack("16", "out/k.lgmb").wait().unwrap().success());
     let left: Vec<String> = std::fs::read_dir(d.join("out"))
         .unwrap()
         .flatten()
         .map(|e| e.file_name().to_string_lossy().into_owned())
         .collect();
     assert!(
-        left.iter().all(|n| n == "k.lgb" || n == "k.hex"),
+        left.iter().all(|n| n == "k.lgmb" || n == "k.hex"),
         "{left:?}"
     );
     // Two packs of different blobs into the same paths at once: the set is one run's.
     for _ in 0..10 {
-        let (mut a, mut b) = (pack("8", "c/m.lgb"), pack("16", "c/m.lgb"));
+        let (mut a, mut b) = (pack("8", "c/m.lgmb"), pack("16", "c/m.lgmb"));
         let (ra, rb) = (a.wait().unwrap(), b.wait().unwrap());
         assert!(ra.success() || rb.success());
         if !(ra.success() && rb.success()) {

@@ -394,14 +394,17 @@ fn train_and_replay_from_parquet_match_csv() {
     exits(
         &linegate(
             &[
-                "-q", "pack", "--model", "pq.json", "--train", &pq, "-o", "m.lgb",
+                "-q", "pack", "--model", "pq.json", "--train", &pq, "-o", "m.lgmb",
             ],
             d,
         ),
         0,
     );
     let replay = |log: &str| {
-        let o = linegate(&["replay", "--blob", "m.lgb", "--model", "pq.json", log], d);
+        let o = linegate(
+            &["replay", "--blob", "m.lgmb", "--model", "pq.json", log],
+            d,
+        );
         exits(&o, 0);
         o.stdout
     };

@@ -12,7 +12,7 @@ use host_trainer::train::float_model::FloatModel;
 /// Flags of `linegate inspect`.
 #[derive(Args)]
 pub struct InspectArgs {
-    /// Blob (.lgb/.bin) or Intel HEX (.hex).
+    /// Blob (.lgmb/.bin) or Intel HEX (.hex).
     pub blob: PathBuf,
     /// Check the blob was made from this float model.
     #[arg(long)]

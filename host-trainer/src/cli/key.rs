@@ -20,7 +20,7 @@ pub struct KeyArgs {
 pub enum KeyAction {
     /// Create a key pair: NAME.key (private, mode 0600, never printed) and NAME.pub.
     #[command(
-        after_help = "Example:\n  linegate key new -o release\n  linegate pack ... --sign release.key\n  linegate inspect model.lgb --public-key release.pub\n\nKeep NAME.key off test-station PCs and out of version control; give NAME.pub to the firmware build.\n\nExit codes: 0 key pair written; 2 usage or output error (an existing key is never overwritten without --force)."
+        after_help = "Example:\n  linegate key new -o release\n  linegate pack ... --sign release.key\n  linegate inspect model.lgmb --public-key release.pub\n\nKeep NAME.key off test-station PCs and out of version control; give NAME.pub to the firmware build.\n\nExit codes: 0 key pair written; 2 usage or output error (an existing key is never overwritten without --force)."
     )]
     New {
         /// Name of the pair; writes NAME.key and NAME.pub.

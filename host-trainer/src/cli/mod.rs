@@ -47,8 +47,8 @@ fixed-point linear classifier for a small microcontroller, proves that rounding 
 validated decisions, and packs a checked model blob and flash image.\n\n\
 Typical flow:\n  linegate check  bench.csv --sheet channels.toml\n  linegate train  bench.csv --sheet channels.toml -o model.json\n  \
 linegate audit  --model model.json --train bench.csv --holdout holdout.csv --sweep\n  \
-linegate pack   --model model.json --train bench.csv --holdout holdout.csv -o model.lgb --hex 0x3F000\n  \
-linegate inspect model.lgb\n\n\
+linegate pack   --model model.json --train bench.csv --holdout holdout.csv -o model.lgmb --hex 0x3F000\n  \
+linegate inspect model.lgmb\n\n\
 Exit codes: 0 success; 1 a check ran and failed (not separable, audit failed, corrupt or mismatched blob); \
 2 usage, input or output error.\n\n\
 A go/no-go classifier is not by itself a safety function."
@@ -76,22 +76,22 @@ pub enum Cmd {
     Train(train::TrainArgs),
     /// Quantise and run the release audit; exit 1 if it fails.
     #[command(
-        after_help = "Example:\n  linegate audit --model model.json --train bench.csv --holdout holdout.csv --sweep --out-dir audit/\n  linegate audit --model model.json --train bench.csv --weight-bits 8 --noise vibration_mg=2.5 --json\n\nExit codes: 0 every gate passed; 1 the audit ran and a gate failed; 2 usage, input or output error."
+        after_help = "Example:\n  linegate audit --model model.json --train bench.csv --holdout holdout.csv --sweep --out-dir audit/\n  linegate audit --model model.json --train bench.csv --weight-bits 8 --noise vibration_mg=2.5 --json\n\nComputes: the quantisation (a ±1 LSB search on the training log's tightest units for the most margin over the rounding bound), one pass of the device kernel over every unit of every log, the gates. --sweep repeats quantisation and pass for each of its 10 formats.\n\nExit codes: 0 every gate passed; 1 the audit ran and a gate failed; 2 usage, input or output error."
     )]
     Audit(audit::AuditArgs),
     /// Quantise, audit, and write the model blob (and flash images) only if the audit passes.
     #[command(
-        after_help = "Example:\n  linegate pack --model model.json --train bench.csv --holdout holdout.csv -o model.lgb --hex 0x3F000 --bin\n\nWith --override-audit a failing model is packed anyway; the blob records the override.\n\nExit codes: 0 blob written; 1 the audit failed (nothing written); 2 usage, input or output error."
+        after_help = "Example:\n  linegate pack --model model.json --train bench.csv --holdout holdout.csv -o model.lgmb --hex 0x3F000 --bin\n\nWith --override-audit a failing model is packed anyway; the blob records the override.\n\nExit codes: 0 blob written; 1 the audit failed (nothing written); 2 usage, input or output error."
     )]
     Pack(pack::PackArgs),
     /// Decode a blob (or an Intel HEX image of one) and print its contents, CRC status and model id.
     #[command(
-        after_help = "Example:\n  linegate inspect model.lgb --model model.json --report audit.json\n\nExit codes: 0 the blob decodes and matches what was given; 1 corrupt, or it does not match the model, report or key; 2 usage or input error."
+        after_help = "Example:\n  linegate inspect model.lgmb --model model.json --report audit.json\n\nExit codes: 0 the blob decodes and matches what was given; 1 corrupt, or it does not match the model, report or key; 2 usage or input error."
     )]
     Inspect(inspect::InspectArgs),
     /// Run the device kernel over a log and print the device's lines (compare with `diff`).
     #[command(
-        after_help = "Example:\n  linegate replay --blob model.lgb --model model.json holdout.csv > host.txt\n\nExit codes: 0 every unit replayed (FAULT units included: they are device lines); 1 the blob is corrupt or does not match; 2 usage, input or output error."
+        after_help = "Example:\n  linegate replay --blob model.lgmb --model model.json holdout.csv > host.txt\n\nExit codes: 0 every unit replayed (FAULT units included: they are device lines); 1 the blob is corrupt or does not match; 2 usage, input or output error."
     )]
     Replay(replay::ReplayArgs),
     /// Write a SYNTHETIC separable bench log of any size (and its channel sheet), to try Linegate at scale.

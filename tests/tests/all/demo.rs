@@ -25,7 +25,7 @@ fn demo_outputs_decode_pass_audit_and_are_byte_identical_across_runs() {
     );
     let bound = s.check_train.novikoff_bound.unwrap();
     assert!(s.perceptron_updates as f64 <= bound);
-    let blob = std::fs::read(a.join("model.lgb")).unwrap();
+    let blob = std::fs::read(a.join("model.lgmb")).unwrap();
     let m = shared_model::blob::decode(&blob).unwrap();
     assert_eq!(m.model().audit, shared_model::AuditMark::Passed);
     let fm = FloatModel::read(&a.join("model.json")).unwrap();
@@ -62,9 +62,9 @@ fn demo_refuses_to_overwrite_without_force_and_writes_nothing_partial() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("d");
     std::fs::create_dir_all(&out).unwrap();
-    std::fs::write(out.join("model.lgb"), b"keep me").unwrap();
+    std::fs::write(out.join("model.lgmb"), b"keep me").unwrap();
     assert!(host_trainer::demo::run(&out, false).is_err());
-    assert_eq!(std::fs::read(out.join("model.lgb")).unwrap(), b"keep me");
+    assert_eq!(std::fs::read(out.join("model.lgmb")).unwrap(), b"keep me");
     assert_eq!(
         std::fs::read_dir(&out).unwrap().count(),
         1,

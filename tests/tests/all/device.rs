@@ -124,7 +124,7 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
     assert!(stack > 0 && stack < 512, "stack {stack} bytes");
 
     // A single flipped bit: the device reports the fault and holds NO-GO.
-    let mut blob = std::fs::read(out.join("model.lgb")).unwrap();
+    let mut blob = std::fs::read(out.join("model.lgmb")).unwrap();
     blob[20] ^= 0x04;
     let bad = dir.path().join("bad.bin");
     std::fs::write(&bad, &blob).unwrap();
@@ -168,7 +168,7 @@ fn a_signed_release_build_runs_only_the_owners_blob() {
         host_trainer::release::sign::public_text(&owner.verifying_key()),
     )
     .unwrap();
-    let plain = std::fs::read(out.join("model.lgb")).unwrap();
+    let plain = std::fs::read(out.join("model.lgmb")).unwrap();
     let model = shared_model::blob::decode(&plain).unwrap();
     let signed = host_trainer::release::sign::signed_blob(&model, &owner);
     let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt"))

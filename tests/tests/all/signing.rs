@@ -50,7 +50,7 @@ fn the_device_verifier_passes_rfc_8032_test_vectors() {
 fn a_signed_blob_loads_and_every_forgery_is_refused() {
     let dir = tempfile::tempdir().unwrap();
     host_trainer::demo::run(&dir.path().join("d"), false).unwrap();
-    let plain = std::fs::read(dir.path().join("d/model.lgb")).unwrap();
+    let plain = std::fs::read(dir.path().join("d/model.lgmb")).unwrap();
     let model = blob::decode(&plain).unwrap();
     let owner = ed25519_dalek::SigningKey::from_bytes(&[42u8; 32]);
     let device_key = ReleaseKey::from_bytes(owner.verifying_key().as_bytes()).unwrap();

@@ -43,7 +43,7 @@ fn verify(blob: &Path, model: &Path, report: &Path, logs: &[PathBuf]) -> (i32, S
 }
 
 /// Trains, audits and packs as `linegate train` / `audit --out-dir` / `pack` do, writing
-/// model.json, audit.json and model.lgb (the blob the report names) into `dir`.
+/// model.json, audit.json and model.lgmb (the blob the report names) into `dir`.
 fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c: f64) {
     let opts = LogOptions::default();
     let (ds, sheet) = workflow::load(train, &opts, sheet).unwrap();
@@ -92,7 +92,7 @@ fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c
     )
     .unwrap();
     let blob = audit::released_blob(&done.q.model, r.passed, None);
-    std::fs::write(dir.join("model.lgb"), blob).unwrap();
+    std::fs::write(dir.join("model.lgmb"), blob).unwrap();
 }
 
 #[test]
@@ -111,7 +111,7 @@ fn the_independent_verifier_agrees_with_the_report() {
         demo.join("holdout-synthetic.csv"),
     ];
     let (code, out) = verify(
-        &demo.join("model.lgb"),
+        &demo.join("model.lgmb"),
         &demo.join("model.json"),
         &demo.join("audit.json"),
         &logs,
@@ -142,7 +142,7 @@ fn the_independent_verifier_agrees_with_the_report() {
         serde_json::from_str(&std::fs::read_to_string(rel.join("audit.json")).unwrap()).unwrap();
     assert_eq!(report["sets"][1]["faults"], 3);
     let (code, out) = verify(
-        &rel.join("model.lgb"),
+        &rel.join("model.lgmb"),
         &rel.join("model.json"),
         &rel.join("audit.json"),
         &[logs[0].clone(), faulty],
@@ -168,7 +168,7 @@ fn the_independent_verifier_agrees_with_the_report() {
         std::fs::write(&log, csv).unwrap();
         release(&sub, &log, None, &[], 1.0);
         let (code, out) = verify(
-            &sub.join("model.lgb"),
+            &sub.join("model.lgmb"),
             &sub.join("model.json"),
             &sub.join("audit.json"),
             std::slice::from_ref(&log),
@@ -184,7 +184,7 @@ fn the_independent_verifier_agrees_with_the_report() {
     let bad = d.join("audit-bad.json");
     std::fs::write(&bad, serde_json::to_string(&r).unwrap()).unwrap();
     let (code, out) = verify(
-        &demo.join("model.lgb"),
+        &demo.join("model.lgmb"),
         &demo.join("model.json"),
         &bad,
         &logs,
