@@ -335,7 +335,10 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     set.add(out.join("check-train.json"), json(&train.check));
     set.add(out.join("check-drift.json"), json(&check_drift));
     set.add(out.join("model.json"), fm.to_json());
-    set.add(out.join("audit.json"), json(&report));
+    set.add(
+        out.join("audit.json"),
+        crate::report::json(&report, Some(&sweep)),
+    );
     set.add(out.join("audit.md"), md.as_bytes());
     set.add(
         out.join("audit.html"),

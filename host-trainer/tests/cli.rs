@@ -974,3 +974,42 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
         .to_string();
     assert!(first.ends_with(&format!(" key {key_id}")), "{first}");
 }
+
+/// The audit.json a CI job gates on holds the word-length sweep, as `--json` prints it, and
+/// the demo's holds the sweep it applied.
+#[test]
+fn audit_json_holds_the_sweep() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(&linegate(&["-q", "demo", "--out-dir", "demo"], d), 0);
+    let args = [
+        "audit",
+        "--model",
+        "demo/model.json",
+        "--train",
+        "demo/train-synthetic.csv",
+        "--sweep",
+    ];
+    let mut with_dir = args.to_vec();
+    with_dir.extend(["-q", "--out-dir", "rep"]);
+    let code = linegate(&with_dir, d).status.code();
+    let mut with_json = args.to_vec();
+    with_json.push("--json");
+    let o = linegate(&with_json, d);
+    assert_eq!(o.status.code(), code, "same verdict both ways");
+    let printed: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let read = |p: &str| -> serde_json::Value {
+        serde_json::from_str(&std::fs::read_to_string(d.join(p)).unwrap()).unwrap()
+    };
+    let file = read("rep/audit.json");
+    assert_eq!(file["sweep"].as_array().map(Vec::len), Some(10));
+    assert_eq!(file["sweep"], printed["sweep"]);
+    assert_eq!(file["recommended"], printed["recommended"]);
+    assert_eq!(file["passed"], printed["audit"]["passed"]);
+    let demo = read("demo/audit.json");
+    assert_eq!(demo["sweep"].as_array().map(Vec::len), Some(10));
+    assert!(
+        demo["recommended"].is_u64(),
+        "the demo applies a recommended format"
+    );
+}

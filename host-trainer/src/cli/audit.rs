@@ -62,7 +62,7 @@ impl AuditArgs {
         if let Some(dir) = report_dir {
             set.add(dir.join("audit.md"), md.as_bytes());
             set.add(dir.join("audit.html"), report::html(fm, &r, &md));
-            set.add(dir.join("audit.json"), to_json(&r));
+            set.add(dir.join("audit.json"), report::json(&r, sw.as_ref()));
         }
         if let Some(path) = units {
             let mut sets = vec![("train", train)];

@@ -1,10 +1,12 @@
-//! Human reports of an audit: [`markdown`], and a self-contained [`html`] page with SVG
-//! charts ([`margin_svg`], [`bars_svg`]).
+//! Reports of an audit: [`markdown`], a self-contained [`html`] page with SVG charts
+//! ([`margin_svg`], [`bars_svg`]), and [`json`] for machines.
 
 mod html;
+mod json;
 mod markdown;
 mod svg;
 
 pub use html::html;
+pub use json::json;
 pub use markdown::markdown;
 pub use svg::{bars_svg, margin_svg};
