@@ -1013,3 +1013,72 @@ fn audit_json_holds_the_sweep() {
         "the demo applies a recommended format"
     );
 }
+
+/// The audit page shows the report's tables as HTML tables, and text from a log (unit ids)
+/// as text: markup in a unit id is never interpreted.
+#[test]
+fn audit_page_renders_tables_and_escapes_log_text() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    exits(
+        &linegate(
+            &[
+                "-q",
+                "generate",
+                "--rows",
+                "2000",
+                "--channels",
+                "4",
+                "-o",
+                "g.csv",
+            ],
+            d,
+        ),
+        0,
+    );
+    let text = std::fs::read_to_string(d.join("g.csv")).unwrap();
+    let marked: String = text
+        .lines()
+        .enumerate()
+        .map(|(k, l)| match (k, l.split_once(',')) {
+            (0, _) | (_, None) => format!("{l}\n"),
+            (_, Some((id, rest))) => format!("<i>{id}</i>,{rest}\n"),
+        })
+        .collect();
+    write(d, "g.csv", marked.as_bytes());
+    exits(
+        &linegate(
+            &[
+                "-q", "train", "g.csv", "--sheet", "g.toml", "--folds", "0", "-o", "m.json",
+            ],
+            d,
+        ),
+        0,
+    );
+    let o = linegate(
+        &[
+            "-q",
+            "audit",
+            "--model",
+            "m.json",
+            "--train",
+            "g.csv",
+            "--out-dir",
+            "rep",
+        ],
+        d,
+    );
+    assert!(matches!(o.status.code(), Some(0 | 1)), "the audit ran");
+    let page = std::fs::read_to_string(d.join("rep/audit.html")).unwrap();
+    assert!(
+        page.contains("<table>") && page.contains("<th>"),
+        "tables rendered"
+    );
+    assert!(!page.contains("<pre>"), "no preformatted block");
+    assert!(page.contains("&lt;i&gt;U"), "unit ids shown as text");
+    assert!(
+        !page.contains("<i>U"),
+        "markup from the log is not interpreted"
+    );
+    assert_eq!(page.matches("<h1>").count(), 1, "one title");
+}

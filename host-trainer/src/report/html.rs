@@ -1,4 +1,5 @@
-//! The audit as one self-contained HTML page: the charts, then the Markdown text.
+//! The audit as one self-contained HTML page: the verdict, the charts, then the report
+//! rendered from its Markdown (tables as tables, by pulldown-cmark), printable.
 
 use std::fmt::Write;
 
@@ -6,17 +7,34 @@ use super::svg::{bars_svg, margin_svg};
 use crate::release::audit::AuditReport;
 use crate::train::float_model::FloatModel;
 
-/// A self-contained HTML page: the Markdown text in a `<pre>`, then the plots.
+/// Page style: our own (slate text, one accent), tables ruled for print and never split
+/// across a page, readable in black and white.
+const STYLE: &str = "body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;color:#1f2933;max-width:62em;margin:2em auto;padding:0 1em;line-height:1.45}\
+h1{border-bottom:3px solid #0b6e4f;padding-bottom:.2em}h2{color:#0b6e4f;margin-top:1.6em}\
+table{border-collapse:collapse;margin:.6em 0;font-size:.92em;font-variant-numeric:tabular-nums}\
+th,td{border:1px solid #9aa5b1;padding:.25em .55em;text-align:left}th{background:#e4e7eb}\
+tr,table,svg{page-break-inside:avoid;break-inside:avoid}code{font-size:.95em}\
+@media print{body{max-width:none;margin:0}h2{page-break-after:avoid}}";
+
+/// The Markdown report as HTML: tables become tables. Any HTML inside the text (a unit id
+/// from a log may hold some) is shown as text, never interpreted.
+fn render_markdown(md: &str) -> String {
+    use pulldown_cmark::{Event, Options, Parser};
+    let events = Parser::new_ext(md, Options::ENABLE_TABLES).map(|e| match e {
+        Event::Html(t) | Event::InlineHtml(t) => Event::Text(t),
+        e => e,
+    });
+    let mut out = String::new();
+    pulldown_cmark::html::push_html(&mut out, events);
+    out
+}
+
+/// A self-contained HTML page: the verdict, the plots, then the report's tables and text.
 pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
-    let esc = |s: &str| {
-        s.replace('&', "&amp;")
-            .replace('<', "&lt;")
-            .replace('>', "&gt;")
-    };
     let names: Vec<String> = fm.channels.iter().map(|c| c.name.clone()).collect();
     let weights: Vec<f64> = r.weights.iter().map(|w| f64::from(*w)).collect();
-    let mut page = String::from(
-        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>Linegate audit</title>\n<style>body{font-family:sans-serif;max-width:60em;margin:2em auto}pre{white-space:pre-wrap;background:#f6f6f6;padding:1em}</style></head><body>\n",
+    let mut page = format!(
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>Linegate audit</title>\n<style>{STYLE}</style></head><body>\n"
     );
     let _ = writeln!(
         page,
@@ -51,10 +69,11 @@ pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
             bars_svg("Largest safe drift ÷ declared noise", &names, &v)
         );
     }
-    let _ = writeln!(
-        page,
-        "<h2>Report</h2><pre>{}</pre>\n</body></html>",
-        esc(md)
-    );
+    // The report's own title repeats the page's.
+    let body = md
+        .strip_prefix("# ")
+        .and_then(|rest| rest.split_once('\n'))
+        .map_or(md, |(_, rest)| rest);
+    let _ = writeln!(page, "{}\n</body></html>", render_markdown(body));
     page
 }
