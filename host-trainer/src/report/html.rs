@@ -49,25 +49,24 @@ pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
     let _ = writeln!(
         page,
         "<h2>Weights</h2>{}",
-        bars_svg("Integer weight per channel", &names, &weights)
+        bars_svg("Integer weight per channel", &names, &weights, None)
     );
     if let Some(t) = &r.tolerance {
-        let v: Vec<f64> = t
+        // Only channels with declared noise have a ratio to show.
+        let (names, ratios): (Vec<String>, Vec<f64>) = t
             .channels
             .iter()
-            .map(|c| {
-                if c.noise > 0.0 {
-                    c.max_drift / c.noise
-                } else {
-                    0.0
-                }
-            })
-            .collect();
-        let _ = writeln!(
-            page,
-            "<h2>Tolerance</h2>{}",
-            bars_svg("Largest safe drift ÷ declared noise", &names, &v)
-        );
+            .zip(&names)
+            .filter(|(c, _)| c.noise > 0.0)
+            .map(|(c, n)| (n.clone(), c.max_drift / c.noise))
+            .unzip();
+        if !names.is_empty() {
+            let _ = writeln!(
+                page,
+                "<h2>Tolerance</h2><p>Largest drift each channel may take alone before a decision can change, over its declared noise: at 1 or more the declared noise cannot change a decision.</p>{}",
+                bars_svg("Drift allowed ÷ declared noise", &names, &ratios, Some(1.0))
+            );
+        }
     }
     // The report's own title repeats the page's.
     let body = md

@@ -223,6 +223,34 @@ pub fn markdown(
             u.margin_lsb
         );
     }
+    if let Some((rows, best)) = sweep {
+        let _ = writeln!(
+            s,
+            "\n## Word-length sweep\n\n| weights | inputs | acc | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes | MAC cost |\n|---|---|---|---|---|---|---|---|---|---|"
+        );
+        for (i, w) in rows.iter().enumerate() {
+            let mark = if Some(i) == *best {
+                " **(recommended)**"
+            } else {
+                ""
+            };
+            let _ = writeln!(
+                s,
+                "| {}-bit{mark} | {}-bit | {} | {} | {} | {} | {} | {} | {} | {} |",
+                w.weight_bits,
+                w.input_bits,
+                w.acc_bits,
+                opt(w.min_margin_lsb),
+                w.margin_over_bound
+                    .map_or("–".into(), |v| format!("{v:.2}")),
+                w.flips,
+                if w.guaranteed { "yes" } else { "no" },
+                if w.passed { "yes" } else { "no" },
+                w.blob_bytes,
+                w.mac_cost
+            );
+        }
+    }
     let _ = writeln!(
         s,
         "\n## Method (every figure above from these inputs)\n\n\
@@ -268,34 +296,6 @@ pub fn markdown(
             r.search_changes.join("; ")
         }
     );
-    if let Some((rows, best)) = sweep {
-        let _ = writeln!(
-            s,
-            "\n## Word-length sweep\n\n| weights | inputs | acc | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes | MAC cost |\n|---|---|---|---|---|---|---|---|---|---|"
-        );
-        for (i, w) in rows.iter().enumerate() {
-            let mark = if Some(i) == *best {
-                " **(recommended)**"
-            } else {
-                ""
-            };
-            let _ = writeln!(
-                s,
-                "| {}-bit{mark} | {}-bit | {} | {} | {} | {} | {} | {} | {} | {} |",
-                w.weight_bits,
-                w.input_bits,
-                w.acc_bits,
-                opt(w.min_margin_lsb),
-                w.margin_over_bound
-                    .map_or("–".into(), |v| format!("{v:.2}")),
-                w.flips,
-                if w.guaranteed { "yes" } else { "no" },
-                if w.passed { "yes" } else { "no" },
-                w.blob_bytes,
-                w.mac_cost
-            );
-        }
-    }
     let _ = writeln!(
         s,
         "\n*A go/no-go classifier is not by itself a safety function. This audit shows that rounding does not change the validated decisions; it does not validate the decisions.*"
