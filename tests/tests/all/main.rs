@@ -1,6 +1,7 @@
 //! Linegate's cross-crate checks, one binary with a module per area.
 //! Each check against an outside source names the source beside it.
 
+mod browser;
 mod demo;
 mod device;
 mod house;

@@ -1,0 +1,108 @@
+//! The audit page as a reviewer sees it: loaded by a real browser (headless Chromium, from
+//! Debian's `chromium` package, which `.ci/run` installs), rendered to PNG and to PDF.
+//! The page must load without errors, must not be blank, and its text, as the browser
+//! holds it after loading, must carry the verdict, each log's unit counts and the
+//! sweep's recommendation from audit.json.
+
+use std::path::Path;
+use std::process::{Command, Output};
+
+/// The Chromium binary on this machine, if any.
+fn chromium() -> Option<&'static str> {
+    ["chromium", "chromium-browser", "google-chrome"]
+        .into_iter()
+        .find(|b| {
+            Command::new(b)
+                .arg("--version")
+                .output()
+                .is_ok_and(|o| o.status.success())
+        })
+}
+
+/// Headless Chromium on `page` with `args`. No sandbox: CI runs as root in a container.
+fn headless(bin: &str, page: &Path, args: &[String]) -> Output {
+    Command::new(bin)
+        .args([
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--hide-scrollbars",
+            "--no-pdf-header-footer",
+        ])
+        .args(args)
+        .arg(format!("file://{}", page.display()))
+        .output()
+        .expect("chromium runs")
+}
+
+#[test]
+fn the_demo_audit_page_renders_in_a_browser() {
+    let Some(bin) = chromium() else {
+        crate::skip_or_fail(
+            "audit page in a browser",
+            "Chromium is not installed (apt-get install chromium)",
+        );
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path().join("demo");
+    host_trainer::demo::run(&d, false).unwrap();
+    let page = d.join("audit.html");
+    let audit: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.join("audit.json")).unwrap()).unwrap();
+
+    // The page as the browser holds it after loading: no load errors, the figures there.
+    let dom = headless(bin, &page, &["--dump-dom".into()]);
+    assert!(dom.status.success(), "chromium --dump-dom failed");
+    let err = String::from_utf8_lossy(&dom.stderr);
+    for bad in ["Uncaught", "net::ERR_", "Failed to load resource"] {
+        assert!(!err.contains(bad), "the page loads without errors: {err}");
+    }
+    let text = String::from_utf8_lossy(&dom.stdout);
+    let verdict = if audit["passed"] == true {
+        "PASSED"
+    } else {
+        "FAILED"
+    };
+    assert!(
+        text.contains(&format!("Linegate release audit: {verdict}")),
+        "verdict"
+    );
+    for set in audit["sets"].as_array().unwrap() {
+        let name = set["name"].as_str().unwrap();
+        let units = set["units"].as_u64().unwrap();
+        let row = format!("<td>{name}</td><td>{units}</td>");
+        assert!(text.contains(&row), "{name}: {units} units in its row");
+    }
+    let best = audit["recommended"]
+        .as_u64()
+        .expect("the demo recommends a format") as usize;
+    let row = &audit["sweep"][best];
+    let recommended = format!(
+        "{}-bit <strong>(recommended)</strong></td><td>{}-bit",
+        row["weight_bits"], row["input_bits"]
+    );
+    assert!(text.contains(&recommended), "the sweep's recommendation");
+
+    // Rendered: a screenshot that is not blank, and a PDF for the release record.
+    let png = dir.path().join("audit.png");
+    let shot = headless(
+        bin,
+        &page,
+        &[
+            format!("--screenshot={}", png.display()),
+            "--window-size=1200,3000".into(),
+        ],
+    );
+    assert!(shot.status.success(), "screenshot");
+    let bytes = std::fs::read(&png).unwrap();
+    assert!(bytes.starts_with(b"\x89PNG\r\n\x1a\n"), "a PNG");
+    // A blank 1200 × 3000 page compresses to a few KiB; text, tables and charts do not.
+    assert!(bytes.len() > 100_000, "not blank: {} bytes", bytes.len());
+    let pdf = dir.path().join("audit.pdf");
+    let printed = headless(bin, &page, &[format!("--print-to-pdf={}", pdf.display())]);
+    assert!(printed.status.success(), "print to PDF");
+    let bytes = std::fs::read(&pdf).unwrap();
+    assert!(bytes.starts_with(b"%PDF-"), "a PDF");
+    assert!(bytes.len() > 50_000, "not blank: {} bytes", bytes.len());
+}
