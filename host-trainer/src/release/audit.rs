@@ -249,6 +249,25 @@ pub struct SetSummary {
     pub min_margin_lsb: Option<f64>,
     /// Float-correct units whose fixed margin does not exceed the bound.
     pub within_bound: usize,
+    /// Every decided unit counted by its fixed margin plus its decision edge's distance
+    /// beyond the float threshold (the RECHECK band; 0 without one), the quantity
+    /// `within_bound` compares with the bound, in the bins of [`margin_bin_edges`]: at most 0,
+    /// then between successive edges (closed on the right), then beyond the last.
+    pub margin_histogram: Vec<u64>,
+}
+
+/// Bins of the margin histogram: at most 0 LSB, then (0, u], (u, 2u], (2u, 4u], … doubling
+/// up to 2¹⁵·u, then beyond; u is the rounding bound (1 LSB when the bound is 0).
+pub const MARGIN_BINS: usize = 18;
+
+/// The edges of the margin histogram's bins, in LSB, for a rounding bound `bound`.
+pub fn margin_bin_edges(bound: f64) -> [f64; MARGIN_BINS - 1] {
+    let u = if bound > 0.0 { bound } else { 1.0 };
+    let mut e = [0.0; MARGIN_BINS - 1];
+    for (k, v) in e.iter_mut().enumerate().skip(1) {
+        *v = u * f64::from(1u32 << (k - 1));
+    }
+    e
 }
 
 /// Sensitivity to declared sensor noise.
@@ -364,7 +383,9 @@ pub struct AuditReport {
     pub passed: bool,
     /// Why it failed: one line per failed gate.
     pub reasons: Vec<String>,
-    /// Fixed margins of the audited units (for the histogram), in LSB.
+    /// Fixed margins of a sample of the audited units (at most 20,000 per log, evenly
+    /// spread), in LSB: for plotting one unit against another. Counts of every unit are in
+    /// each log's `margin_histogram`.
     #[serde(skip)]
     pub fixed_margins: Vec<f64>,
     /// Float margins of the audited units, in LSB.
@@ -374,6 +395,8 @@ pub struct AuditReport {
 
 struct Acc {
     s: SetSummary,
+    /// The margin histogram's bin edges.
+    edges: [f64; MARGIN_BINS - 1],
     /// Smallest float margin over correctly classified units, in LSB.
     float_min: f64,
     flips: Vec<(usize, f64)>,
@@ -429,6 +452,7 @@ fn audit_set(
             ..Default::default()
         },
         float_min: f64::INFINITY,
+        edges: margin_bin_edges(bound),
         flips: Vec::new(),
         tight: Vec::new(),
         margins: Vec::new(),
@@ -447,6 +471,13 @@ fn audit_set(
         a.s.false_nogo += b.s.false_nogo;
         a.s.noise_unsafe += b.s.noise_unsafe;
         a.s.within_bound += b.s.within_bound;
+        if a.s.margin_histogram.is_empty() {
+            a.s.margin_histogram = b.s.margin_histogram;
+        } else {
+            for (x, y) in a.s.margin_histogram.iter_mut().zip(&b.s.margin_histogram) {
+                *x += y;
+            }
+        }
         a.s.min_margin_lsb = match (a.s.min_margin_lsb, b.s.min_margin_lsb) {
             (Some(x), Some(y)) => Some(x.min(y)),
             (x, y) => x.or(y),
@@ -498,6 +529,19 @@ fn audit_set(
             // A RECHECK is a retest: no decision, so neither right nor wrong, and not part of
             // the margin and guarantee figures, which are about decisions.
             let decided = d.verdict != Verdict::Recheck;
+            if decided {
+                if a.s.margin_histogram.is_empty() {
+                    a.s.margin_histogram = vec![0; MARGIN_BINS];
+                }
+                // The quantity the bound is compared with: the margin plus its edge's
+                // distance beyond the float threshold (the RECHECK band, 0 without one).
+                let past = if label > 0 { go_past } else { nogo_past };
+                // Bins are closed on the right, as `within_bound` counts a unit at the bound.
+                let bin = a.edges.partition_point(|&e| e < margin + past);
+                if let Some(c) = a.s.margin_histogram.get_mut(bin) {
+                    *c += 1;
+                }
+            }
             a.s.fixed_correct += usize::from(decided && margin > 0.0);
             a.s.recheck += usize::from(!decided);
             match (d.verdict, label > 0) {

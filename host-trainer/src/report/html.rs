@@ -3,7 +3,7 @@
 
 use std::fmt::Write;
 
-use super::svg::{bars_svg, margin_svg};
+use super::svg::{bars_svg, margin_bins_svg, margin_svg};
 use crate::release::audit::AuditReport;
 use crate::train::float_model::FloatModel;
 
@@ -43,7 +43,13 @@ pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
     );
     let _ = writeln!(
         page,
-        "<h2>Margins</h2><p>Blue: float model; red: fixed-point model, by the device kernel.</p>{}",
+        "<h2>Margins</h2><p>Every decided unit of every log, by its fixed margin from the device kernel (plus the RECHECK band, if any: the distance the rounding bound is compared with). Only a unit left of the red line, within the bound, could have had its decision changed by rounding.</p>{}",
+        margin_bins_svg(r)
+    );
+    let sampled = r.fixed_margins.len();
+    let _ = writeln!(
+        page,
+        "<p>Float against fixed margins, of {sampled} units sampled evenly from the logs (blue: float model; red: fixed-point model):</p>{}",
         margin_svg(r)
     );
     let _ = writeln!(

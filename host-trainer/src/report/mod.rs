@@ -9,4 +9,4 @@ mod svg;
 pub use html::html;
 pub use json::json;
 pub use markdown::markdown;
-pub use svg::{bars_svg, margin_svg};
+pub use svg::{bars_svg, margin_bins_svg, margin_svg};

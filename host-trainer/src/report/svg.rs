@@ -2,7 +2,135 @@
 
 use plotters::prelude::*;
 
-use crate::release::audit::AuditReport;
+use crate::release::audit::{AuditReport, MARGIN_BINS, margin_bin_edges};
+
+/// Colours of the logs in the margin histogram, in the report's order (train first).
+const SET_COLOURS: [RGBColor; 4] = [
+    RGBColor(11, 110, 79),
+    RGBColor(52, 88, 140),
+    RGBColor(140, 110, 40),
+    RGBColor(110, 110, 110),
+];
+
+/// The names of the margin histogram's bins, in multiples of the rounding bound B.
+fn bin_names() -> Vec<String> {
+    let mut v = vec!["≤ 0".to_string(), "0–B".to_string(), "B–2B".to_string()];
+    for k in 1..MARGIN_BINS - 3 {
+        v.push(format!("{}–{}B", 1u32 << k, 1u32 << (k + 1)));
+    }
+    v.push(format!("> {}B", 1u32 << (MARGIN_BINS - 3)));
+    v
+}
+
+/// The fixed margin of every decided unit of every log, in LSB, binned in multiples of
+/// the rounding bound B (`SetSummary::margin_histogram`), with the bound marked: units left
+/// of the mark are those rounding could have moved. RECHECK units have no margin; their
+/// count is in the caption.
+pub fn margin_bins_svg(r: &AuditReport) -> String {
+    let names = bin_names();
+    let sets: Vec<_> = r
+        .sets
+        .iter()
+        .filter(|s| s.margin_histogram.len() == MARGIN_BINS)
+        .collect();
+    let top = sets
+        .iter()
+        .flat_map(|s| s.margin_histogram.iter().copied())
+        .max()
+        .unwrap_or(1)
+        .max(1) as f64;
+    let edges = margin_bin_edges(r.bound.total);
+    let recheck: usize = r.sets.iter().map(|s| s.recheck).sum();
+    // Up to the last bin holding a unit (and at least past the bound's bins).
+    let shown = sets
+        .iter()
+        .filter_map(|s| s.margin_histogram.iter().rposition(|&c| c > 0))
+        .max()
+        .map_or(4, |k| (k + 2).clamp(4, MARGIN_BINS));
+    let mut out = String::new();
+    {
+        let root = SVGBackend::with_string(&mut out, (800, 420)).into_drawing_area();
+        let _ = root.fill(&WHITE);
+        let bins = shown as f64;
+        // Bin i spans [i, i + 1); the logs' bars share its middle 80 %. Below zero: the
+        // bins' names.
+        let floor = -0.12 * top;
+        if let Ok(mut chart) = ChartBuilder::on(&root)
+            .caption(
+                format!(
+                    "Fixed margin of every decided unit from the threshold; B = rounding bound = {:.1} LSB; RECHECK: {recheck}",
+                    edges[1]
+                ),
+                ("sans-serif", 17),
+            )
+            .margin(12)
+            .x_label_area_size(30)
+            .y_label_area_size(80)
+            .build_cartesian_2d(0.0..bins, floor..top * 1.15)
+        {
+            let _ = chart
+                .configure_mesh()
+                .disable_x_mesh()
+                .x_labels(0)
+                .y_label_style(("sans-serif", 15))
+                .y_label_formatter(&|v| if *v < 0.0 { String::new() } else { format!("{v:.0}") })
+                .x_desc("fixed margin plus RECHECK band, in multiples of the rounding bound B (left of the red line: within B)")
+                .y_desc("units")
+                .draw();
+            let _ = chart.draw_series(names.iter().take(shown).enumerate().map(|(i, n)| {
+                Text::new(
+                    n.clone(),
+                    (i as f64 + 0.08, floor * 0.45),
+                    ("sans-serif", 12).into_font(),
+                )
+            }));
+            let k = sets.len().max(1) as f64;
+            for (j, s) in sets.iter().enumerate() {
+                let colour = SET_COLOURS[j.min(SET_COLOURS.len() - 1)];
+                let w = 0.8 / k;
+                let _ = chart
+                    .draw_series(s.margin_histogram.iter().take(shown).enumerate().map(|(i, &c)| {
+                        let x0 = i as f64 + 0.1 + j as f64 * w;
+                        Rectangle::new([(x0, 0.0), (x0 + w, c as f64)], colour.filled())
+                    }))
+                    .map(|a| {
+                        a.label(format!("{} ({} units)", s.name, s.units))
+                            .legend(move |(x, y)| {
+                                Rectangle::new([(x, y - 5), (x + 12, y + 5)], colour.filled())
+                            })
+                    });
+                // Counts written over the bins within the bound: the units a reviewer asks
+                // about, however small their bars.
+                let _ = chart.draw_series(
+                    s.margin_histogram
+                        .iter()
+                        .enumerate()
+                        .take(2)
+                        .filter(|(_, c)| **c > 0)
+                        .map(|(i, &c)| {
+                            Text::new(
+                                c.to_string(),
+                                (i as f64 + 0.1 + j as f64 * w, c as f64 + 0.03 * top),
+                                ("sans-serif", 12).into_font().color(&FAIL),
+                            )
+                        }),
+                );
+            }
+            let _ = chart.draw_series(std::iter::once(PathElement::new(
+                vec![(2.0, 0.0), (2.0, top * 1.1)],
+                FAIL.stroke_width(2),
+            )));
+            let _ = chart
+                .configure_series_labels()
+                .border_style(BLACK)
+                .background_style(WHITE.mix(0.9))
+                .label_font(("sans-serif", 14))
+                .draw();
+        }
+        let _ = root.present();
+    }
+    out
+}
 
 /// Histogram of float and fixed margins (as fractions of the largest), as SVG.
 pub fn margin_svg(r: &AuditReport) -> String {

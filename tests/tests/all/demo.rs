@@ -99,3 +99,32 @@ fn readme_commands_are_the_ones_ci_runs() {
         "README must carry the caution"
     );
 }
+
+/// The margin histogram counts every decided unit of each log once, and its bins up to the
+/// rounding bound hold exactly the units the audit counts within the bound (the demo's
+/// float model decides every unit correctly, so no wrong unit adds to them).
+#[test]
+fn the_margin_histogram_counts_every_decided_unit() {
+    let dir = tempfile::tempdir().unwrap();
+    let s = host_trainer::demo::run(&dir.path().join("d"), false).unwrap();
+    for set in &s.audit.sets {
+        assert_eq!(
+            set.margin_histogram.len(),
+            host_trainer::release::audit::MARGIN_BINS
+        );
+        let counted: u64 = set.margin_histogram.iter().sum();
+        assert_eq!(
+            counted as usize,
+            set.units - set.recheck - set.faults,
+            "{}: every decided unit once",
+            set.name
+        );
+        assert_eq!(set.float_correct, set.units - set.faults, "{}", set.name);
+        assert_eq!(
+            (set.margin_histogram[0] + set.margin_histogram[1]) as usize,
+            set.within_bound,
+            "{}: the bins up to B are the units within the bound",
+            set.name
+        );
+    }
+}
