@@ -1006,6 +1006,15 @@ fn audit_json_holds_the_sweep() {
     assert_eq!(file["sweep"], printed["sweep"]);
     assert_eq!(file["recommended"], printed["recommended"]);
     assert_eq!(file["passed"], printed["audit"]["passed"]);
+    // The release record says what ran it: the tool's version and the exact command line.
+    let md = std::fs::read_to_string(d.join("rep/audit.md")).unwrap();
+    let want = "command: `linegate audit --model demo/model.json --train demo/train-synthetic.csv --sweep -q --out-dir rep`";
+    assert!(md.contains(want), "{md}");
+    assert!(md.contains(&format!("- tool: linegate {}", env!("CARGO_PKG_VERSION"))));
+    assert_eq!(
+        file["command_line"],
+        "linegate audit --model demo/model.json --train demo/train-synthetic.csv --sweep -q --out-dir rep"
+    );
     let demo = read("demo/audit.json");
     assert_eq!(demo["sweep"].as_array().map(Vec::len), Some(10));
     assert!(

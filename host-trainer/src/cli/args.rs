@@ -214,8 +214,29 @@ impl Release {
             // The report names the blob pack writes: signed, with its key.
             report.name_blob(&audit::released_blob(&done.q.model, report.passed, Some(k)));
         }
+        report.command_line = Some(command_line());
         Ok((done.q, report))
     }
+}
+
+/// This process's command line as a shell would take it back: the program's name, then
+/// each argument, quoted with single quotes where it holds anything but plain characters.
+fn command_line() -> String {
+    let plain = |a: &str| {
+        !a.is_empty()
+            && a.bytes()
+                .all(|b| b.is_ascii_alphanumeric() || b"-_./=:,+@%".contains(&b))
+    };
+    std::iter::once("linegate".to_string())
+        .chain(std::env::args().skip(1).map(|a| {
+            if plain(&a) {
+                a
+            } else {
+                format!("'{}'", a.replace('\'', "'\\''"))
+            }
+        }))
+        .collect::<Vec<_>>()
+        .join(" ")
 }
 
 /// Reads the model and logs and validates the flags `audit` and `pack` share.

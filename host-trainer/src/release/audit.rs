@@ -383,6 +383,10 @@ pub struct AuditReport {
     pub passed: bool,
     /// Why it failed: one line per failed gate.
     pub reasons: Vec<String>,
+    /// The command line that ran the audit, as the CLI records it for the release record
+    /// (absent when a library call made the report).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub command_line: Option<String>,
     /// Fixed margins of a sample of the audited units (at most 20,000 per log, evenly
     /// spread), in LSB: for plotting one unit against another. Counts of every unit are in
     /// each log's `margin_histogram`.
@@ -795,6 +799,7 @@ pub fn audit(
         gates,
         passed,
         reasons,
+        command_line: None,
         fixed_margins,
         float_margins,
     };

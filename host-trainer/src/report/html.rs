@@ -29,7 +29,9 @@ fn render_markdown(md: &str) -> String {
     out
 }
 
-/// A self-contained HTML page: the verdict, the plots, then the report's tables and text.
+/// A self-contained HTML page: the verdict, then the report's sections in its order, each
+/// chart inside the section it illustrates (margins with the margin and bound, weights with
+/// the channels, tolerance with the sensor tolerance).
 pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
     let names: Vec<String> = fm.channels.iter().map(|c| c.name.clone()).collect();
     let weights: Vec<f64> = r.weights.iter().map(|w| f64::from(*w)).collect();
@@ -41,23 +43,14 @@ pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
         "<h1>Linegate release audit: {}</h1>",
         if r.passed { "PASSED" } else { "FAILED" }
     );
-    let _ = writeln!(
-        page,
-        "<h2>Margins</h2><p>Every decided unit of every log, by its fixed margin from the device kernel (plus the RECHECK band, if any: the distance the rounding bound is compared with). Only a unit left of the red line, within the bound, could have had its decision changed by rounding.</p>{}",
-        margin_bins_svg(r)
-    );
-    let sampled = r.fixed_margins.len();
-    let _ = writeln!(
-        page,
-        "<p>Float against fixed margins, of {sampled} units sampled evenly from the logs (blue: float model; red: fixed-point model):</p>{}",
+    let margins = format!(
+        "<p>Every decided unit of every log, by its fixed margin from the device kernel (plus the RECHECK band, if any: the distance the rounding bound is compared with). Only a unit left of the red line, within the bound, could have had its decision changed by rounding.</p>{}\n<p>Float against fixed margins, of {} units sampled evenly from the logs (blue: float model; red: fixed-point model):</p>{}",
+        margin_bins_svg(r),
+        r.fixed_margins.len(),
         margin_svg(r)
     );
-    let _ = writeln!(
-        page,
-        "<h2>Weights</h2>{}",
-        bars_svg("Integer weight per channel", &names, &weights, None)
-    );
-    if let Some(t) = &r.tolerance {
+    let weights_chart = bars_svg("Integer weight per channel", &names, &weights, None);
+    let tolerance = r.tolerance.as_ref().and_then(|t| {
         // Only channels with declared noise have a ratio to show.
         let (names, ratios): (Vec<String>, Vec<f64>) = t
             .channels
@@ -66,19 +59,40 @@ pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
             .filter(|(c, _)| c.noise > 0.0)
             .map(|(c, n)| (n.clone(), c.max_drift / c.noise))
             .unzip();
-        if !names.is_empty() {
-            let _ = writeln!(
-                page,
-                "<h2>Tolerance</h2><p>Largest drift each channel may take alone before a decision can change, over its declared noise: at 1 or more the declared noise cannot change a decision.</p>{}",
-                bars_svg("Drift allowed ÷ declared noise", &names, &ratios, Some(1.0))
-            );
-        }
-    }
+        (!names.is_empty()).then(|| format!(
+            "<p>Largest drift each channel may take alone before a decision can change, over its declared noise: at 1 or more the declared noise cannot change a decision.</p>{}",
+            bars_svg("Drift allowed ÷ declared noise", &names, &ratios, Some(1.0))
+        ))
+    });
     // The report's own title repeats the page's.
     let body = md
         .strip_prefix("# ")
         .and_then(|rest| rest.split_once('\n'))
         .map_or(md, |(_, rest)| rest);
-    let _ = writeln!(page, "{}\n</body></html>", render_markdown(body));
+    let rendered = render_markdown(body);
+    let (mut placed_margins, mut placed_weights) = (false, false);
+    for (k, part) in rendered.split("<h2>").enumerate() {
+        if k > 0 {
+            page.push_str("<h2>");
+        }
+        page.push_str(part);
+        if part.starts_with("Margin and the rounding bound") {
+            page.push_str(&margins);
+            placed_margins = true;
+        } else if part.starts_with("Channels") {
+            page.push_str(&weights_chart);
+            placed_weights = true;
+        } else if part.starts_with("Sensor tolerance") {
+            page.push_str(tolerance.as_deref().unwrap_or_default());
+        }
+    }
+    // A report without those sections still shows every chart.
+    if !placed_margins {
+        let _ = writeln!(page, "<h2>Margins</h2>{margins}");
+    }
+    if !placed_weights {
+        let _ = writeln!(page, "<h2>Weights</h2>{weights_chart}");
+    }
+    page.push_str("\n</body></html>\n");
     page
 }

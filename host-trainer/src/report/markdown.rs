@@ -18,6 +18,14 @@ pub fn markdown(
     let mut s = String::new();
     let verdict = if r.passed { "PASSED" } else { "FAILED" };
     let _ = writeln!(s, "# Linegate release audit: {verdict}\n");
+    let _ = writeln!(
+        s,
+        "- tool: linegate {}{}",
+        env!("CARGO_PKG_VERSION"),
+        r.command_line
+            .as_ref()
+            .map_or(String::new(), |c| format!("; command: `{c}`"))
+    );
     let _ = writeln!(s, "- model id: `{}`", r.model_id);
     let _ = writeln!(
         s,
