@@ -108,10 +108,30 @@ fn against_references(bin: &Path, root: &Path, log: &str, sheet: &str, rows: usi
         program: py,
         args: vec![script, mode, log],
     };
-    let ours = |args: &[&'static str]| {
-        let mut a: Vec<&str> = vec!["-q"];
+    // `linegate -q ARGS LOG --sheet SHEET`.
+    fn linegate<'a>(bin: &'a Path, args: &[&'a str], log: &'a str, sheet: &'a str) -> Proc<'a> {
+        let mut a = vec!["-q"];
         a.extend_from_slice(args);
-        a
+        a.extend([log, "--sheet", sheet]);
+        Proc {
+            program: bin,
+            args: a,
+        }
+    }
+    let ours = |args: &[&'static str]| linegate(bin, args, log, sheet);
+    // A scratch file, not /dev/null: the output is written beside and renamed into place.
+    let train = |trainer| {
+        let args = [
+            "train",
+            "--trainer",
+            trainer,
+            "--folds",
+            "0",
+            "--force",
+            "-o",
+            scratch,
+        ];
+        linegate(bin, &args, log, sheet)
     };
     let runs = if rows > 2_000_000 { 1 } else { 3 };
     let skipped = |what: &str| {
@@ -119,65 +139,21 @@ fn against_references(bin: &Path, root: &Path, log: &str, sheet: &str, rows: usi
             "SKIPPED: {what}: python3 with polars, pandas, scikit-learn and liblinear-official is needed (pip install polars pandas scikit-learn liblinear-official)"
         );
     };
-    let mut check_args = ours(&["check"]);
-    check_args.extend([log, "--sheet", sheet]);
-    match pair(
-        &Proc {
-            program: bin,
-            args: check_args,
-        },
-        &theirs("polars-load"),
-        runs,
-    ) {
+    match pair(&ours(&["check"]), &theirs("polars-load"), runs) {
         Some((a, b, _)) => println!(
             "{rows} x 16: linegate check {a:.2} s, polars reading the CSV alone {b:.2} s: check {:.2}x faster (goal >= 3x)",
             b / a
         ),
         None => skipped("check against polars"),
     }
-    let mut perc = ours(&[
-        "train",
-        "--trainer",
-        "perceptron",
-        "--folds",
-        "0",
-        "--force",
-        "-o",
-    ]);
-    // A scratch file, not /dev/null: the output is written beside and renamed into place.
-    perc.extend([scratch, log, "--sheet", sheet]);
-    match pair(
-        &Proc {
-            program: bin,
-            args: perc,
-        },
-        &theirs("sklearn-perceptron"),
-        runs,
-    ) {
+    match pair(&train("perceptron"), &theirs("sklearn-perceptron"), runs) {
         Some((a, b, _)) => println!(
             "{rows} x 16: linegate train --trainer perceptron {a:.2} s, pandas + scikit-learn Perceptron {b:.2} s: {:.2}x faster (goal >= 6x)",
             b / a
         ),
         None => skipped("train perceptron against scikit-learn"),
     }
-    let mut mm = ours(&[
-        "train",
-        "--trainer",
-        "max-margin",
-        "--folds",
-        "0",
-        "--force",
-        "-o",
-    ]);
-    mm.extend([scratch, log, "--sheet", sheet]);
-    match pair(
-        &Proc {
-            program: bin,
-            args: mm,
-        },
-        &theirs("liblinear"),
-        runs,
-    ) {
+    match pair(&train("max-margin"), &theirs("liblinear"), runs) {
         Some((a, b, out)) => {
             let check = Command::new(bin)
                 .args(["-q", "check", log, "--sheet", sheet, "--json"])

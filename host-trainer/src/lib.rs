@@ -31,6 +31,7 @@ pub mod error;
 pub mod ingest;
 pub mod input;
 pub mod output;
+pub mod progress;
 pub mod release;
 pub mod report;
 pub mod synth;

@@ -256,16 +256,12 @@ fn cross_validate_with_bar(ds: &Dataset, req: &TrainRequest, cfg: TrainConfig) -
     let kinds = req.cv_trainers.kinds(ds.len(), req.trainer);
     let jobs = (req.folds * kinds.len()) as u64;
     let bar = (req.progress && ds.len() >= 100_000).then(|| {
-        let b = indicatif::ProgressBar::new(jobs);
-        b.set_style(
-            indicatif::ProgressStyle::with_template(
-                "{prefix} {msg} [{bar:30}] {pos}/{len} trainings, {elapsed} elapsed, about {eta} left",
-            )
-                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        // Redrawn on a timer: a training can take seconds, and the clock must not stand still.
+        let b = crate::progress::ticking_bar(
+            jobs,
+            "{prefix} {msg} [{bar:30}] {pos}/{len} trainings, {elapsed} elapsed, about {eta} left",
         );
         b.set_prefix(format!("{}-fold cross-validation", req.folds));
-        // Redraw on a timer: a training can take seconds, and the clock must not stand still.
-        b.enable_steady_tick(std::time::Duration::from_millis(250));
         b
     });
     let rows = cross_validate(ds, req.folds, &kinds, cfg, bar.as_ref());

@@ -981,21 +981,11 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
 fn audit_json_holds_the_sweep() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    exits(&linegate(&["-q", "demo", "--out-dir", "demo"], d), 0);
-    let args = [
-        "audit",
-        "--model",
-        "demo/model.json",
-        "--train",
-        "demo/train-synthetic.csv",
-        "--sweep",
-    ];
-    let mut with_dir = args.to_vec();
-    with_dir.extend(["-q", "--out-dir", "rep"]);
-    let code = linegate(&with_dir, d).status.code();
-    let mut with_json = args.to_vec();
-    with_json.push("--json");
-    let o = linegate(&with_json, d);
+    demo(d);
+    let code = linegate(&on_demo("audit", &["--sweep", "-q", "--out-dir", "rep"]), d)
+        .status
+        .code();
+    let o = linegate(&on_demo("audit", &["--sweep", "--json"]), d);
     assert_eq!(o.status.code(), code, "same verdict both ways");
     let printed: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     let read = |p: &str| -> serde_json::Value {

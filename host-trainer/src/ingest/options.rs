@@ -5,6 +5,11 @@ use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 /// Readings beyond this magnitude are refused as not finite: no sensor reports 1e15 of anything.
 pub const MAX_READING: f64 = 1e15;
 
+/// Whether `x` can be a reading: finite and at most [`MAX_READING`] in magnitude.
+pub(super) fn is_reading(x: f64) -> bool {
+    x.is_finite() && x.abs() <= MAX_READING
+}
+
 /// Default GO tokens.
 pub const GO_TOKENS: &[&str] = &["go", "pass", "ok", "good", "1", "true"];
 /// Default NO-GO tokens.

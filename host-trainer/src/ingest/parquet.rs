@@ -30,9 +30,9 @@ use parquet::arrow::arrow_reader::{
 };
 
 use super::header::Columns;
-use super::options::{LogOptions, MAX_READING, label_of};
-use super::parse::{Row, out_of_range, parse_number, raw_readings, trim};
-use super::skip::{SkipReport, is_row_error};
+use super::options::{LogOptions, is_reading, label_of};
+use super::parse::{Row, label_cell, out_of_range, parse_number, raw_readings, trim};
+use super::skip::SkipReport;
 use crate::error::{InputError, Place};
 use crate::ingest::scaling::ChannelScale;
 
@@ -204,7 +204,7 @@ impl Plan<'_> {
             numbers(&array, self.kinds[j], self.decimal_comma, &mut values);
             let mut bad = Vec::new();
             let mut raw = Vec::new();
-            let refused = |v: f64| !v.is_finite() || v.abs() > MAX_READING;
+            let refused = |v: f64| !is_reading(v);
             match self.scales.and_then(|s| s.get(j)) {
                 Some(s) => {
                     raw.resize(values.len(), 0);
@@ -456,12 +456,9 @@ pub(super) fn scan_parquet(
         used,
     };
     let bar = (opts.progress && total > 1_000_000).then(|| {
-        let b = indicatif::ProgressBar::new(total);
-        b.set_style(
-            indicatif::ProgressStyle::with_template(
-                "{msg} [{bar:30}] {human_pos}/{human_len} rows ({eta})",
-            )
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        let b = crate::progress::bar(
+            total,
+            "{msg} [{bar:30}] {human_pos}/{human_len} rows ({eta})",
         );
         b.set_message(format!("reading {}", path.display()));
         b
@@ -622,9 +619,8 @@ impl Rows<'_> {
                 ),
                 Err(e) => Err(e),
             };
-            match out {
-                Err(e) if plan.opts.skip_bad_rows && is_row_error(&e) => skipped.add(&e),
-                other => other?,
+            if let Err(e) = out {
+                skipped.settle(plan.opts.skip_bad_rows, e)?;
             }
         }
         Ok(())
@@ -653,22 +649,12 @@ impl Rows<'_> {
             return Ok(None);
         }
         for (j, &v) in self.values.iter().enumerate() {
-            if !v.is_finite() || v.abs() > MAX_READING {
+            if !is_reading(v) {
                 return Err(plan.bad_cell(j, channels[j].array, i, at));
             }
         }
         let label = match (label, cols.label) {
-            (Some(t), Some(lc)) => {
-                label_of(t, &opts.go_labels, &opts.nogo_labels).ok_or_else(|| {
-                    InputError::UnknownLabel {
-                        path: path.into(),
-                        at,
-                        column: cols.names[lc].clone(),
-                        value: String::from_utf8_lossy(&t[..t.len().min(40)]).into_owned(),
-                        tokens: opts.tokens(),
-                    }
-                })?
-            }
+            (Some(t), Some(lc)) => label_cell(t, opts, path, at, &cols.names[lc])?,
             _ => 0,
         };
         if let Some(s) = plan.scales {

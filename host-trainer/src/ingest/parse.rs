@@ -5,7 +5,7 @@ use std::path::Path;
 
 use super::fast;
 use super::header::Columns;
-use super::options::{LogOptions, MAX_READING, label_of};
+use super::options::{LogOptions, is_reading, label_of};
 use super::records::{Fields, count_lf, fields, record_ends, strip_line_end};
 use crate::error::{InputError, Place};
 use crate::ingest::scaling::ChannelScale;
@@ -72,7 +72,6 @@ impl Parser<'_> {
         values: &mut [f64],
     ) -> Result<Option<i8>, InputError> {
         let (path, opts, cols) = (self.path, self.opts, self.cols);
-        let cell_text = |f: &[u8]| String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned();
         if raw_len > opts.max_line_len {
             return Err(InputError::LineTooLong {
                 path: path.into(),
@@ -115,7 +114,7 @@ impl Parser<'_> {
                     column: column(),
                     value: cell_text(cell),
                 })?;
-            if !x.is_finite() || x.abs() > MAX_READING {
+            if !is_reading(x) {
                 return Err(InputError::NotFinite {
                     path: path.into(),
                     at: line.into(),
@@ -129,17 +128,7 @@ impl Parser<'_> {
         let Some(lc) = cols.label else {
             return Ok(Some(0));
         };
-        let lf = trim(f.get(lc));
-        match label_of(lf, &opts.go_labels, &opts.nogo_labels) {
-            Some(label) => Ok(Some(label)),
-            None => Err(InputError::UnknownLabel {
-                path: path.into(),
-                at: line.into(),
-                column: cols.names[lc].clone(),
-                value: cell_text(lf),
-                tokens: opts.tokens(),
-            }),
-        }
+        label_cell(trim(f.get(lc)), opts, path, line.into(), &cols.names[lc]).map(Some)
     }
 
     /// Converts parsed readings to raw integers; a reading outside its channel's range is
@@ -275,6 +264,29 @@ impl Parser<'_> {
             Err(e) => out.errors.push((out.labels.len(), e)),
         }
     }
+}
+
+/// A cell as error messages show it: its first 40 bytes, lossily decoded.
+pub(super) fn cell_text(f: &[u8]) -> String {
+    String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned()
+}
+
+/// The label `token` (trimmed) of the label column `column` stands for, or the error naming
+/// the place and the tokens accepted.
+pub(super) fn label_cell(
+    token: &[u8],
+    opts: &LogOptions,
+    path: &Path,
+    at: Place,
+    column: &str,
+) -> Result<i8, InputError> {
+    label_of(token, &opts.go_labels, &opts.nogo_labels).ok_or_else(|| InputError::UnknownLabel {
+        path: path.into(),
+        at,
+        column: column.to_string(),
+        value: cell_text(token),
+        tokens: opts.tokens(),
+    })
 }
 
 /// Converts readings to raw integers; a reading outside its channel's range is refused

@@ -11,7 +11,7 @@ use super::header::{Columns, Header, read_header};
 use super::options::LogOptions;
 use super::parse::{Parsed, Parser, Row};
 use super::records::{BlockReader, count_lf, record_ends};
-use super::skip::{SkipReport, is_row_error};
+use super::skip::SkipReport;
 use crate::error::InputError;
 use crate::ingest::scaling::ChannelScale;
 
@@ -63,13 +63,7 @@ pub(super) fn scan_blocks(
     let file = File::open(path).map_err(io)?;
     let len = file.metadata().map(|m| m.len()).unwrap_or(0);
     let bar = (opts.progress && len > 16 << 20).then(|| {
-        let b = indicatif::ProgressBar::new(len);
-        b.set_style(
-            indicatif::ProgressStyle::with_template(
-                "{msg} [{bar:30}] {bytes}/{total_bytes} ({eta})",
-            )
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
-        );
+        let b = crate::progress::bar(len, "{msg} [{bar:30}] {bytes}/{total_bytes} ({eta})");
         b.set_message(format!("reading {}", path.display()));
         b
     });
@@ -111,14 +105,7 @@ pub(super) fn scan_blocks(
     let mut feed = |runs: &mut [Parsed], skipped: &mut SkipReport| -> Result<(), InputError> {
         let d = cols.channels.len();
         skipped.empty_rows += runs.iter().map(|p| p.empty_rows).sum::<usize>();
-        let mut settle = |e: InputError| {
-            if opts.skip_bad_rows && is_row_error(&e) {
-                skipped.add(&e);
-                Ok(())
-            } else {
-                Err(e)
-            }
-        };
+        let mut settle = |e: InputError| skipped.settle(opts.skip_bad_rows, e);
         for parsed in runs.iter_mut() {
             let mut errors = parsed.errors.drain(..).peekable();
             for k in 0..=parsed.labels.len() {

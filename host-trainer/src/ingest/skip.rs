@@ -47,6 +47,19 @@ impl SkipReport {
     }
 }
 
+impl SkipReport {
+    /// What a scan does with an error: under `skip_bad_rows` an error about one row is
+    /// counted here and the scan goes on; any other error ends it.
+    pub(super) fn settle(&mut self, skip_bad_rows: bool, e: InputError) -> Result<(), InputError> {
+        if skip_bad_rows && is_row_error(&e) {
+            self.add(&e);
+            Ok(())
+        } else {
+            Err(e)
+        }
+    }
+}
+
 pub(super) fn is_row_error(e: &InputError) -> bool {
     matches!(
         e,

@@ -170,6 +170,26 @@ fn parsed_view(p: &Parsed) -> View {
     }
 }
 
+/// The options the record proptests read with: one ignored text column, short lines.
+fn record_options() -> LogOptions {
+    LogOptions {
+        ignore: vec!["note".into()],
+        max_line_len: 40,
+        ..LogOptions::default()
+    }
+}
+
+/// Records as text: cells joined by `sep`, each record ended by its line end (a missing one
+/// by a line feed).
+fn records_text(records: &[(Vec<&str>, &str)], sep: &str) -> String {
+    let mut text = String::new();
+    for (cells, end) in records {
+        text.push_str(&cells.join(sep));
+        text.push_str(if end.is_empty() { "\n" } else { end });
+    }
+    text
+}
+
 proptest::proptest! {
     /// On any bytes from the alphabet of bench logs, the fast path reads what the general
     /// path reads.
@@ -207,16 +227,8 @@ proptest::proptest! {
         ), 0..40),
         raw in proptest::bool::ANY,
     ) {
-        let opts = LogOptions {
-            ignore: vec!["note".into()],
-            max_line_len: 40,
-            ..LogOptions::default()
-        };
-        let mut text = String::new();
-        for (cells, end) in &records {
-            text.push_str(&cells.join(","));
-            text.push_str(if end.is_empty() { "\n" } else { end });
-        }
+        let opts = record_options();
+        let text = records_text(&records, ",");
         let plain = !text.contains('"');
         let (p, q) = both_paths(&opts, text.as_bytes(), plain, raw);
         proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));
@@ -237,16 +249,8 @@ proptest::proptest! {
         raw in proptest::bool::ANY,
         decimal_comma in proptest::bool::ANY,
     ) {
-        let opts = LogOptions {
-            ignore: vec!["note".into()],
-            max_line_len: 40,
-            ..LogOptions::default()
-        };
-        let mut text = String::new();
-        for (cells, end) in &records {
-            text.push_str(&cells.join(";"));
-            text.push_str(if end.is_empty() { "\n" } else { end });
-        }
+        let opts = record_options();
+        let text = records_text(&records, ";");
         let plain = !text.contains('"');
         let (p, q) = both_paths_split(&opts, text.as_bytes(), plain, raw, b';', decimal_comma);
         proptest::prop_assert_eq!(parsed_view(&p), parsed_view(&q));

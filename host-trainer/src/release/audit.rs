@@ -1005,15 +1005,10 @@ pub fn sweep(
     let mut rows = Vec::new();
     let formats = SWEEP_INPUTS.len() * SWEEP_WEIGHTS.len();
     let bar = progress.then(|| {
-        let b = indicatif::ProgressBar::new(formats as u64);
-        b.set_style(
-            indicatif::ProgressStyle::with_template(
-                "word-length sweep: {msg} [{bar:20}] {pos}/{len} formats, {elapsed} elapsed, about {eta} left",
-            )
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
-        );
-        b.enable_steady_tick(std::time::Duration::from_millis(250));
-        b
+        crate::progress::ticking_bar(
+            formats as u64,
+            "word-length sweep: {msg} [{bar:20}] {pos}/{len} formats, {elapsed} elapsed, about {eta} left",
+        )
     });
     for input_bits in SWEEP_INPUTS {
         for weight_bits in SWEEP_WEIGHTS {
