@@ -342,7 +342,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     set.add(out.join("audit.md"), md.as_bytes());
     set.add(
         out.join("audit.html"),
-        crate::report::html(fm, &report, &md),
+        crate::report::html(fm, &report, Some(&sweep), &md),
     );
     set.add(out.join("model.lgmb"), blob.clone());
     set.add(

@@ -1081,3 +1081,167 @@ fn audit_page_renders_tables_and_escapes_log_text() {
     );
     assert_eq!(page.matches("<h1>").count(), 1, "one title");
 }
+
+/// The audit's rounding-error histogram counts every scored unit once, in the bins its
+/// definition gives (fixed score − A·float score, in tenths of the bound), and the bound
+/// holds: no unit outside ±B. Checked against the per-unit listing (`--units`), recomputed
+/// here from its columns, on a coarse format where rounding is large.
+#[test]
+fn rounding_histogram_recomputed_from_the_unit_listing() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    let o = linegate(
+        &on_demo(
+            "audit",
+            &[
+                "-q",
+                "--weight-bits",
+                "6",
+                "--input-bits",
+                "8",
+                "--holdout",
+                "demo/holdout-synthetic.csv",
+                "--units",
+                "u.csv",
+                "--out-dir",
+                "rep",
+            ],
+        ),
+        d,
+    );
+    assert!(matches!(o.status.code(), Some(0 | 1)), "the audit ran");
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.join("rep/audit.json")).unwrap()).unwrap();
+    let a = report["scale"].as_f64().unwrap();
+    let b = report["bound"]["total"].as_f64().unwrap();
+    let mut rd = csv::Reader::from_path(d.join("u.csv")).unwrap();
+    let h = rd.headers().unwrap().clone();
+    let col = |n: &str| h.iter().position(|c| c == n).unwrap();
+    let (log, fs, xs) = (col("log"), col("float_score"), col("fixed_score"));
+    let mut want: std::collections::BTreeMap<String, (Vec<u64>, f64)> = Default::default();
+    for r in rd.records() {
+        let r = r.unwrap();
+        let entry = want
+            .entry(r[log].to_string())
+            .or_insert_with(|| (vec![0; 22], 0.0));
+        if r[xs].is_empty() {
+            continue; // a FAULT has no score
+        }
+        let err = r[xs].parse::<f64>().unwrap() - a * r[fs].parse::<f64>().unwrap();
+        entry.1 = entry.1.max(err.abs());
+        // Below −B; twenty bins of B/10, each closed away from zero; above B.
+        let t = err / b * 10.0;
+        let bin = if t < -10.0 {
+            0
+        } else if t > 10.0 {
+            21
+        } else if t > 0.0 {
+            (t.ceil() as usize + 10).clamp(11, 20)
+        } else {
+            (t.floor() as i64 + 11).clamp(1, 10) as usize
+        };
+        entry.0[bin] += 1;
+    }
+    let sets = report["sets"].as_array().unwrap();
+    assert_eq!(sets.len(), 2, "train and holdout");
+    for s in sets {
+        let name = s["name"].as_str().unwrap();
+        let got: Vec<u64> = s["rounding_histogram"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_u64().unwrap())
+            .collect();
+        let (bins, max) = &want[name];
+        let total: u64 = got.iter().sum();
+        assert_eq!(
+            total as usize,
+            (s["units"].as_u64().unwrap() - s["faults"].as_u64().unwrap()) as usize,
+            "{name}: every scored unit once"
+        );
+        // Units on a bin edge may fall either side through the float score's last digit.
+        let moved: u64 = got.iter().zip(bins).map(|(x, y)| x.abs_diff(*y)).sum();
+        assert!(moved <= 2, "{name}: {got:?} against {bins:?}");
+        assert_eq!((got[0], got[21]), (0, 0), "{name}: the bound holds");
+        let seen = s["rounding_max_lsb"].as_f64().unwrap();
+        assert!(
+            (seen - max).abs() <= 1e-6 * max.max(1.0),
+            "{name}: {seen} vs {max}"
+        );
+        assert!(
+            seen <= b,
+            "{name}: largest error {seen} within the bound {b}"
+        );
+        assert!(seen > 0.0, "{name}: a coarse format rounds");
+    }
+}
+
+/// The report's sections come in the order a reviewer reads them, and a failed audit
+/// opens with the failed gates and the units behind them, wrong decisions first.
+#[test]
+fn failed_audit_opens_with_its_gates_and_units_in_reading_order() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    let o = linegate(
+        &on_demo(
+            "audit",
+            &[
+                "-q",
+                "--weight-bits",
+                "8",
+                "--input-bits",
+                "8",
+                "--holdout",
+                "demo/drift-synthetic.csv",
+                "--sweep",
+                "--out-dir",
+                "rep",
+            ],
+        ),
+        d,
+    );
+    assert_eq!(o.status.code(), Some(1), "this audit fails");
+    let md = std::fs::read_to_string(d.join("rep/audit.md")).unwrap();
+    let order = [
+        "## Verdict",
+        "| failed gate |",
+        "| false GO | holdout |",
+        "## Provenance",
+        "## Decisions per log",
+        "## Margin and the rounding bound",
+        "## Channels",
+        "## Sensor tolerance",
+        "## Units at risk from sensor noise",
+        "## Units closest to the boundary",
+        "## Word-length sweep",
+        "## Method",
+    ];
+    let at: Vec<usize> = order
+        .iter()
+        .map(|h| md.find(h).unwrap_or_else(|| panic!("{h} missing:\n{md}")))
+        .collect();
+    assert!(at.windows(2).all(|w| w[0] < w[1]), "order {at:?}");
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.join("rep/audit.json")).unwrap()).unwrap();
+    let risk = &json["tolerance"];
+    assert!(risk["units_at_risk_count"].as_u64().unwrap() > 0);
+    assert!(
+        risk["units_at_risk"][0]["line"].is_u64(),
+        "units at risk are rows"
+    );
+    let page = std::fs::read_to_string(d.join("rep/audit.html")).unwrap();
+    // The sweep's chart names every format tried (SVG text elements, trimmed).
+    let texts: Vec<&str> = page
+        .split('>')
+        .filter_map(|t| t.split('<').next())
+        .map(str::trim)
+        .collect();
+    for row in json["sweep"].as_array().unwrap() {
+        let name = format!("{}/{}", row["weight_bits"], row["input_bits"]);
+        assert!(texts.contains(&name.as_str()), "{name} on the sweep chart");
+    }
+    assert!(page.contains("Rounding error of every scored unit"));
+    assert!(!page.contains("sampled"), "no chart of a sample");
+}

@@ -61,7 +61,10 @@ impl AuditArgs {
         let mut set = OutputSet::default();
         if let Some(dir) = report_dir {
             set.add(dir.join("audit.md"), md.as_bytes());
-            set.add(dir.join("audit.html"), report::html(fm, &r, &md));
+            set.add(
+                dir.join("audit.html"),
+                report::html(fm, &r, sw.as_ref(), &md),
+            );
             set.add(dir.join("audit.json"), report::json(&r, sw.as_ref()));
         }
         if let Some(path) = units {

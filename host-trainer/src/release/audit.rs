@@ -254,6 +254,28 @@ pub struct SetSummary {
     /// `within_bound` compares with the bound, in the bins of [`margin_bin_edges`]: at most 0,
     /// then between successive edges (closed on the right), then beyond the last.
     pub margin_histogram: Vec<u64>,
+    /// Every scored unit (faults have no score) counted by its rounding error, the fixed
+    /// score minus A times the float score, in LSB, in the bins of
+    /// [`rounding_bin_edges`]: below −bound, twenty equal bins from −bound to +bound
+    /// (each closed on the side away from zero, so ±bound itself is inside), then above
+    /// +bound. The bound proves the two outer bins empty.
+    pub rounding_histogram: Vec<u64>,
+    /// The largest rounding error of any scored unit, |fixed score − A·float score|, in LSB.
+    pub rounding_max_lsb: f64,
+}
+
+/// Bins of the rounding-error histogram: below −B, 20 bins of B/10 from −B to B, above B.
+pub const ROUNDING_BINS: usize = 22;
+
+/// The edges of the rounding-error histogram's bins, in LSB, for a rounding bound `bound`
+/// (1 LSB when the bound is 0): −B, −0.9·B, …, 0.9·B, B.
+pub fn rounding_bin_edges(bound: f64) -> [f64; ROUNDING_BINS - 1] {
+    let u = if bound > 0.0 { bound } else { 1.0 };
+    let mut e = [0.0; ROUNDING_BINS - 1];
+    for (k, v) in e.iter_mut().enumerate() {
+        *v = u * (k as f64 - 10.0) / 10.0;
+    }
+    e
 }
 
 /// Bins of the margin histogram: at most 0 LSB, then (0, u], (u, 2u], (2u, 4u], … doubling
@@ -277,8 +299,11 @@ pub struct Tolerance {
     pub channels: Vec<ChannelTolerance>,
     /// Worst score change the declared noise can cause (LSB).
     pub noise_radius_lsb: f64,
-    /// Units whose verdict can change within the declared noise.
-    pub units_at_risk: Vec<String>,
+    /// Units whose verdict can change within the declared noise: their fixed margin is
+    /// within the noise radius (the first 1,000 of each log, in log order).
+    pub units_at_risk: Vec<UnitRow>,
+    /// How many units, in all logs, are at risk (`units_at_risk` lists at most 1,000 per log).
+    pub units_at_risk_count: usize,
     /// Suggested RECHECK half-band in float score units (catches every unit at risk).
     pub suggested_band: f64,
 }
@@ -387,14 +412,6 @@ pub struct AuditReport {
     /// (absent when a library call made the report).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub command_line: Option<String>,
-    /// Fixed margins of a sample of the audited units (at most 20,000 per log, evenly
-    /// spread), in LSB: for plotting one unit against another. Counts of every unit are in
-    /// each log's `margin_histogram`.
-    #[serde(skip)]
-    pub fixed_margins: Vec<f64>,
-    /// Float margins of the audited units, in LSB.
-    #[serde(skip)]
-    pub float_margins: Vec<f64>,
 }
 
 struct Acc {
@@ -405,7 +422,10 @@ struct Acc {
     float_min: f64,
     flips: Vec<(usize, f64)>,
     tight: Vec<(f64, usize)>,
-    margins: Vec<(f64, f64)>,
+    /// The rounding-error histogram's bin edges.
+    rounding_edges: [f64; ROUNDING_BINS - 1],
+    /// Units at risk from declared noise, in all of the log (`at_risk` keeps the first).
+    at_risk_count: usize,
     min_fixed_abs: f64,
     /// Units whose verdict declared noise could change, in file order (at most `AT_RISK`).
     at_risk: Vec<usize>,
@@ -425,7 +445,6 @@ impl Acc {
 const TIGHTEST: usize = 20;
 const AT_RISK: usize = 1000;
 const WRONG: usize = 200;
-const HISTOGRAM_SAMPLE: usize = 20_000;
 
 /// Audits one log with the shared kernel. Parallel over units.
 /// `risk`: the score change declared noise can cause, if any noise is declared.
@@ -446,7 +465,6 @@ fn audit_set(
     let t_floor = band.0.floor();
     let go_past = (band.1.go_min as f64 - 1.0 - t_floor).max(0.0);
     let nogo_past = (t_floor - band.1.nogo_max as f64).max(0.0);
-    let stride = (ds.len() / HISTOGRAM_SAMPLE).max(1);
     let empty = || Acc {
         s: SetSummary {
             name: name.into(),
@@ -459,7 +477,8 @@ fn audit_set(
         edges: margin_bin_edges(bound),
         flips: Vec::new(),
         tight: Vec::new(),
-        margins: Vec::new(),
+        rounding_edges: rounding_bin_edges(bound),
+        at_risk_count: 0,
         min_fixed_abs: f64::INFINITY,
         at_risk: Vec::new(),
         wrong: Vec::new(),
@@ -475,13 +494,10 @@ fn audit_set(
         a.s.false_nogo += b.s.false_nogo;
         a.s.noise_unsafe += b.s.noise_unsafe;
         a.s.within_bound += b.s.within_bound;
-        if a.s.margin_histogram.is_empty() {
-            a.s.margin_histogram = b.s.margin_histogram;
-        } else {
-            for (x, y) in a.s.margin_histogram.iter_mut().zip(&b.s.margin_histogram) {
-                *x += y;
-            }
-        }
+        add_counts(&mut a.s.margin_histogram, b.s.margin_histogram);
+        add_counts(&mut a.s.rounding_histogram, b.s.rounding_histogram);
+        a.s.rounding_max_lsb = a.s.rounding_max_lsb.max(b.s.rounding_max_lsb);
+        a.at_risk_count += b.at_risk_count;
         a.s.min_margin_lsb = match (a.s.min_margin_lsb, b.s.min_margin_lsb) {
             (Some(x), Some(y)) => Some(x.min(y)),
             (x, y) => x.or(y),
@@ -491,7 +507,6 @@ fn audit_set(
         a.tight
             .sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
         a.tight.truncate(TIGHTEST);
-        a.margins.extend(b.margins);
         a.min_fixed_abs = a.min_fixed_abs.min(b.min_fixed_abs);
         a.float_min = a.float_min.min(b.float_min);
         // Chunks merge in file order, so the first AT_RISK units are kept.
@@ -521,6 +536,21 @@ fn audit_set(
                 }
             };
             let fs = float.score(raw);
+            // Rounding error of the score itself, the quantity the bound bounds.
+            let err = d.score as f64 - fs * q.scale;
+            if a.s.rounding_histogram.is_empty() {
+                a.s.rounding_histogram = vec![0; ROUNDING_BINS];
+            }
+            // Closed on the side away from zero, so a unit exactly at ±bound counts inside.
+            let bin = if err > 0.0 {
+                a.rounding_edges.partition_point(|&e| e < err)
+            } else {
+                a.rounding_edges.partition_point(|&e| e <= err)
+            };
+            if let Some(c) = a.s.rounding_histogram.get_mut(bin) {
+                *c += 1;
+            }
+            a.s.rounding_max_lsb = a.s.rounding_max_lsb.max(err.abs());
             let float_go = fs > fm.threshold;
             let float_ok = float_go == (label > 0);
             a.s.float_correct += usize::from(float_ok);
@@ -575,8 +605,11 @@ fn audit_set(
                 a.min_fixed_abs = a.min_fixed_abs.min(margin);
             }
             if let Some(r) = risk {
-                if margin.abs() <= r && a.at_risk.len() < AT_RISK {
-                    a.at_risk.push(i);
+                if margin.abs() <= r {
+                    a.at_risk_count += 1;
+                    if a.at_risk.len() < AT_RISK {
+                        a.at_risk.push(i);
+                    }
                 }
                 // How far the score may move before the opposite decision: GO units from
                 // nogo_max + ½, NO-GO units from go_min − ½ (the same edges as the margins).
@@ -596,17 +629,20 @@ fn audit_set(
                     .sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
                 a.tight.truncate(TIGHTEST);
             }
-            if i % stride == 0 {
-                let fmargin = if label > 0 {
-                    fs * q.scale - band.0
-                } else {
-                    band.0 - fs * q.scale
-                };
-                a.margins.push((fmargin, margin));
-            }
             a
         })
         .reduce(empty, merge)
+}
+
+/// Adds one chunk's bin counts to another's (either may not have started counting).
+fn add_counts(into: &mut Vec<u64>, from: Vec<u64>) {
+    if into.is_empty() {
+        *into = from;
+    } else {
+        for (x, y) in into.iter_mut().zip(&from) {
+            *x += y;
+        }
+    }
 }
 
 fn unit_row(set: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, i: usize) -> UnitRow {
@@ -703,26 +739,18 @@ pub fn audit(
     let mut flips = Vec::new();
     let mut wrong = Vec::new();
     let mut tight: Vec<(f64, &str, &Dataset, usize)> = Vec::new();
-    let mut fixed_margins = Vec::new();
-    let mut float_margins = Vec::new();
     let mut min_all = f64::INFINITY;
     let mut float_min = f64::INFINITY;
     let risk = noise_radius(q, fm, noise);
     let mut units_at_risk = Vec::new();
+    let mut at_risk_count = 0;
     for &(name, ds) in std::iter::once(&("train", train)).chain(others) {
         let a = audit_set(name, q, fm, ds, bound.total, risk);
-        for &i in &a.at_risk {
-            if units_at_risk.len() < AT_RISK {
-                units_at_risk.push(format!("{name}: {}", ds.unit_name(i)));
-            }
-        }
+        units_at_risk.extend(a.at_risk.iter().map(|&i| unit_row(name, q, fm, ds, i)));
+        at_risk_count += a.at_risk_count;
         flips.extend(a.flips.iter().map(|&(i, _)| unit_row(name, q, fm, ds, i)));
         wrong.extend(a.wrong.iter().map(|&i| unit_row(name, q, fm, ds, i)));
         tight.extend(a.tight.iter().map(|&(mg, i)| (mg, name, ds, i)));
-        for (f, x) in &a.margins {
-            float_margins.push(*f);
-            fixed_margins.push(*x);
-        }
         min_all = min_all.min(a.min_fixed_abs);
         if name == "train" {
             float_min = a.float_min;
@@ -744,7 +772,8 @@ pub fn audit(
         .zip(physical_margins(q, fm, min_all))
         .map(|(c, v)| (c.name.clone(), v, c.unit.clone()))
         .collect();
-    let tolerance = risk.map(|radius| tolerance(q, fm, noise, &sets, radius, units_at_risk));
+    let tolerance =
+        risk.map(|radius| tolerance(q, fm, noise, &sets, radius, (units_at_risk, at_risk_count)));
     let gates = gates(&sets, cfg, risk.is_some(), min_all, guaranteed, bound.total);
     let reasons: Vec<String> = gates.iter().filter(|g| !g.passed).map(reason).collect();
     let passed = reasons.is_empty();
@@ -800,8 +829,6 @@ pub fn audit(
         passed,
         reasons,
         command_line: None,
-        fixed_margins,
-        float_margins,
     };
     r.name_blob(&packed);
     r
@@ -923,7 +950,7 @@ fn tolerance(
     noise: &[Option<f64>],
     sets: &[SetSummary],
     radius: f64,
-    units_at_risk: Vec<String>,
+    (units_at_risk, units_at_risk_count): (Vec<UnitRow>, usize),
 ) -> Tolerance {
     let min_margin = sets
         .iter()
@@ -951,6 +978,7 @@ fn tolerance(
         channels,
         noise_radius_lsb: radius,
         units_at_risk,
+        units_at_risk_count,
         suggested_band: radius / q.scale,
     }
 }
@@ -976,8 +1004,21 @@ pub struct SweepRow {
     pub passed: bool,
     /// Blob bytes.
     pub blob_bytes: usize,
-    /// Multiply-accumulates per classification and the instruction that does them on a 32-bit MCU.
-    pub mac_cost: String,
+    /// What one classification costs the device, in words: multiply-adds per
+    /// classification and the accumulator width they run in (an estimate until the
+    /// footprint runs measure each format).
+    pub kernel_cost: String,
+}
+
+/// A format's cost on the device in plain words: one multiply-add per channel, in a 32-bit
+/// accumulator (one instruction on any 32-bit core) or a 64-bit one (one instruction on
+/// cores with a long multiply, a library call per channel on those without).
+fn kernel_cost(channels: usize, acc_bits: u8) -> String {
+    if acc_bits <= 32 {
+        format!("{channels} multiply-adds, 32-bit sums")
+    } else {
+        format!("{channels} multiply-adds, 64-bit sums")
+    }
 }
 
 /// Weight word lengths the sweep tries, for each input word length in [`SWEEP_INPUTS`].
@@ -1041,11 +1082,7 @@ pub fn sweep(
                 guaranteed: r.guaranteed,
                 passed: r.passed,
                 blob_bytes: r.blob_bytes,
-                mac_cost: if r.acc_bits == 32 {
-                    format!("{n} × MLA (32-bit)")
-                } else {
-                    format!("{n} × SMLAL (64-bit)")
-                },
+                kernel_cost: kernel_cost(n, r.acc_bits),
             });
             if let Some(b) = &bar {
                 b.inc(1);

@@ -3,8 +3,8 @@
 
 use std::fmt::Write;
 
-use super::svg::{bars_svg, margin_bins_svg, margin_svg};
-use crate::release::audit::AuditReport;
+use super::svg::{bars_svg, margin_bins_svg, rounding_svg, sweep_svg};
+use crate::release::audit::{AuditReport, SweepRow};
 use crate::train::float_model::FloatModel;
 
 /// Page style: our own (slate text, one accent), tables ruled for print and never split
@@ -32,7 +32,12 @@ fn render_markdown(md: &str) -> String {
 /// A self-contained HTML page: the verdict, then the report's sections in its order, each
 /// chart inside the section it illustrates (margins with the margin and bound, weights with
 /// the channels, tolerance with the sensor tolerance).
-pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
+pub fn html(
+    fm: &FloatModel,
+    r: &AuditReport,
+    sweep: Option<&(Vec<SweepRow>, Option<usize>)>,
+    md: &str,
+) -> String {
     let names: Vec<String> = fm.channels.iter().map(|c| c.name.clone()).collect();
     let weights: Vec<f64> = r.weights.iter().map(|w| f64::from(*w)).collect();
     let mut page = format!(
@@ -44,11 +49,16 @@ pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
         if r.passed { "PASSED" } else { "FAILED" }
     );
     let margins = format!(
-        "<p>Every decided unit of every log, by its fixed margin from the device kernel (plus the RECHECK band, if any: the distance the rounding bound is compared with). Only a unit left of the red line, within the bound, could have had its decision changed by rounding.</p>{}\n<p>Float against fixed margins, of {} units sampled evenly from the logs (blue: float model; red: fixed-point model):</p>{}",
+        "<p>Every decided unit of every log, by its fixed margin from the device kernel (plus the RECHECK band, if any: the distance the rounding bound is compared with). Only a unit left of the red line, within the bound, could have had its decision changed by rounding.</p>{}\n<p>Float against fixed, unit by unit: every scored unit of every log by how far rounding moved its score (fixed score minus A times the float score). The bound says no unit lies outside the red lines at ±B.</p>{}",
         margin_bins_svg(r),
-        r.fixed_margins.len(),
-        margin_svg(r)
+        rounding_svg(r)
     );
+    let sweep_chart = sweep.map(|(rows, best)| {
+        format!(
+            "<p>Each format tried (named weight bits/input bits), by its smallest margin over its rounding bound and its blob's size: above the black line at 1 rounding cannot change a decision. Filled dots passed the gates, crosses failed; the recommended format is ringed.</p>{}",
+            sweep_svg(rows, *best)
+        )
+    });
     let weights_chart = bars_svg("Integer weight per channel", &names, &weights, None);
     let tolerance = r.tolerance.as_ref().and_then(|t| {
         // Only channels with declared noise have a ratio to show.
@@ -84,6 +94,8 @@ pub fn html(fm: &FloatModel, r: &AuditReport, md: &str) -> String {
             placed_weights = true;
         } else if part.starts_with("Sensor tolerance") {
             page.push_str(tolerance.as_deref().unwrap_or_default());
+        } else if part.starts_with("Word-length sweep") {
+            page.push_str(sweep_chart.as_deref().unwrap_or_default());
         }
     }
     // A report without those sections still shows every chart.

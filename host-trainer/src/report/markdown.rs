@@ -1,12 +1,76 @@
-//! The audit as Markdown: the text `audit.md` holds and `audit` prints.
+//! The audit as Markdown: the text `audit.md` holds and `audit` prints. Sections in the
+//! order a reviewer reads: verdict (and, if failed, the gates and units behind it),
+//! provenance, decisions per log, margin against the bound, channels, sensor tolerance,
+//! units at risk, units closest to the boundary, the word-length sweep, the method.
 
 use std::fmt::Write;
 
-use crate::release::audit::{AuditReport, SweepRow};
+use crate::release::audit::{AuditReport, SweepRow, UnitRow};
 use crate::train::float_model::FloatModel;
 
 fn opt(v: Option<f64>) -> String {
     v.map_or("–".into(), |v| format!("{v:.1}"))
+}
+
+/// Table cells may hold text from a log (unit ids): a pipe would end the cell.
+fn cell(t: &str) -> String {
+    t.replace('|', "\\|")
+}
+
+/// The gate a unit behind the decision gates fails: false GO, false NO-GO (a FAULT on a
+/// GO unit included), or else the noise gate.
+fn gate_of(u: &UnitRow) -> &'static str {
+    match (u.label, u.fixed_verdict) {
+        ("NO-GO", "GO") => "false GO",
+        ("GO", "NO-GO" | "FAULT") => "false NO-GO",
+        _ => "noise",
+    }
+}
+
+/// A table of units (at most `limit` rows), then how many more the JSON holds. With
+/// `gates`, a first column names the gate each unit fails.
+fn unit_table(
+    s: &mut String,
+    title: &str,
+    rows: &[UnitRow],
+    limit: usize,
+    total: usize,
+    gates: bool,
+) {
+    let (head, rule) = if gates { ("| gate ", "|---") } else { ("", "") };
+    let _ = writeln!(
+        s,
+        "\n{title}\n\n{head}| log | line | unit | label | float verdict | fixed verdict | fixed score | margin (LSB) |\n{rule}|---|---|---|---|---|---|---|---|"
+    );
+    for u in rows.iter().take(limit) {
+        if gates {
+            let _ = write!(s, "| {} ", gate_of(u));
+        }
+        let _ = writeln!(
+            s,
+            "| {} | {} | {} | {} | {} | {} | {} | {:.1} |",
+            u.set,
+            u.line,
+            cell(&u.unit),
+            u.label,
+            u.float_verdict,
+            u.fixed_verdict,
+            u.fixed_score.map_or("–".into(), |v| v.to_string()),
+            u.margin_lsb
+        );
+    }
+    let shown = limit.min(rows.len());
+    if total > shown {
+        let held = if rows.len() >= total {
+            format!("audit.json lists all {total}")
+        } else {
+            format!(
+                "audit.json lists the first {}, `--units` every unit",
+                rows.len()
+            )
+        };
+        let _ = writeln!(s, "\n{} more: {held}.", total - shown);
+    }
 }
 
 /// The audit as Markdown.
@@ -18,6 +82,67 @@ pub fn markdown(
     let mut s = String::new();
     let verdict = if r.passed { "PASSED" } else { "FAILED" };
     let _ = writeln!(s, "# Linegate release audit: {verdict}\n");
+    let _ = writeln!(s, "## Verdict\n");
+    let units: usize = r.sets.iter().map(|t| t.units).sum();
+    let failed: Vec<_> = r.gates.iter().filter(|g| !g.passed).collect();
+    if r.passed {
+        let _ = writeln!(
+            s,
+            "**PASSED**: all {} gates held on {} log(s), {units} units.",
+            r.gates.len(),
+            r.sets.len()
+        );
+    } else {
+        let _ = writeln!(
+            s,
+            "**FAILED**: {} of {} gates failed on {} log(s), {units} units. Why:\n",
+            failed.len(),
+            r.gates.len(),
+            r.sets.len()
+        );
+        for x in &r.reasons {
+            let _ = writeln!(s, "- {x}");
+        }
+        let _ = writeln!(
+            s,
+            "\n| failed gate | log | value | limit |\n|---|---|---|---|"
+        );
+        for g in &failed {
+            let _ = writeln!(s, "| {} | {} | {} | {} |", g.gate, g.log, g.value, g.limit);
+        }
+        if failed
+            .iter()
+            .any(|g| g.gate == "guarantee" || g.gate == "min margin")
+        {
+            let _ = writeln!(
+                s,
+                "\nThe units behind the margin gates are the first rows of \"Units closest to the boundary\" below; `--units` lists every unit's margin."
+            );
+        }
+    }
+    if !r.wrong.is_empty() {
+        let total: usize = r
+            .sets
+            .iter()
+            .map(|t| t.false_go + t.false_nogo + t.noise_unsafe)
+            .sum();
+        // Wrong decisions before units that only fail the noise gate.
+        let mut rows = r.wrong.clone();
+        rows.sort_by_key(|u| match gate_of(u) {
+            "false GO" => 0,
+            "false NO-GO" => 1,
+            _ => 2,
+        });
+        unit_table(
+            &mut s,
+            "Units behind the decision gates, wrong decisions first:",
+            &rows,
+            50,
+            total.max(r.wrong.len()),
+            true,
+        );
+    }
+    let _ = writeln!(s, "\n## Provenance\n");
     let _ = writeln!(
         s,
         "- tool: linegate {}{}",
@@ -75,12 +200,6 @@ pub fn markdown(
     for a in &r.applied {
         let _ = writeln!(s, "- applied on request: {a}");
     }
-    if !r.reasons.is_empty() {
-        let _ = writeln!(s, "\n## Why it failed\n");
-        for x in &r.reasons {
-            let _ = writeln!(s, "- {x}");
-        }
-    }
     let _ = writeln!(
         s,
         "\n## Decisions per log (device kernel against the labels)\n\n| log | units | false GO | false NO-GO | RECHECK | FAULT | float correct | fixed correct | flips | min fixed margin (LSB) | within bound | rows skipped |\n|---|---|---|---|---|---|---|---|---|---|---|---|"
@@ -109,7 +228,7 @@ pub fn markdown(
     );
     let _ = writeln!(
         s,
-        "\n## Gates\n\n| gate | log | value | limit | result |\n|---|---|---|---|---|"
+        "\n### Every gate\n\n| gate | log | value | limit | result |\n|---|---|---|---|---|"
     );
     for g in &r.gates {
         let _ = writeln!(
@@ -121,32 +240,6 @@ pub fn markdown(
             g.limit,
             if g.passed { "pass" } else { "FAIL" }
         );
-    }
-    if !r.wrong.is_empty() {
-        let _ = writeln!(
-            s,
-            "\n## Units behind the decision gates\n\n| log | line | unit | label | fixed verdict | fixed score | margin (LSB) |\n|---|---|---|---|---|---|---|"
-        );
-        for u in r.wrong.iter().take(50) {
-            let _ = writeln!(
-                s,
-                "| {} | {} | {} | {} | {} | {} | {:.1} |",
-                u.set,
-                u.line,
-                u.unit,
-                u.label,
-                u.fixed_verdict,
-                u.fixed_score.map_or("–".into(), |v| v.to_string()),
-                u.margin_lsb
-            );
-        }
-        if r.wrong.len() > 50 {
-            let _ = writeln!(
-                s,
-                "\n{} more in audit.json and in `--units`.",
-                r.wrong.len() - 50
-            );
-        }
     }
     let _ = writeln!(
         s,
@@ -171,70 +264,109 @@ pub fn markdown(
         "\nBound = ½·Σ|Wᵢ| (inputs: {:.1}) + Σ|Wᵢ−Wᵢ*|·Xmaxᵢ (weights: {:.1}) + |B−b·A| (bias: {:.2}); textbook form Σ|Wᵢ*|εx + ΣXmaxᵢ·εw + n·εx·εw + εb = {:.1}.",
         r.bound.inputs, r.bound.weights, r.bound.bias, r.bound.textbook
     );
+    let worst = r
+        .sets
+        .iter()
+        .map(|t| t.rounding_max_lsb)
+        .fold(0.0, f64::max);
+    let _ = writeln!(
+        s,
+        "\nRounding error of the score, fixed score − A·float score, over every scored unit: largest {worst:.2} LSB, {:.0} % of the bound; units beyond the bound (the bound proves none): {}.",
+        if r.bound.total > 0.0 {
+            100.0 * worst / r.bound.total
+        } else {
+            0.0
+        },
+        r.sets
+            .iter()
+            .map(|t| {
+                let h = &t.rounding_histogram;
+                h.first().copied().unwrap_or(0)
+                    + if h.len() > 1 {
+                        h.last().copied().unwrap_or(0)
+                    } else {
+                        0
+                    }
+            })
+            .sum::<u64>()
+    );
+    if !r.flips.is_empty() {
+        let n: usize = r.sets.iter().map(|t| t.flips).sum();
+        unit_table(
+            &mut s,
+            "### Flipped decisions (fixed verdict differs from float)",
+            &r.flips,
+            50,
+            n,
+            false,
+        );
+    }
     let _ = writeln!(
         s,
         "\n## Channels\n\n| channel | unit | weight | smallest margin along this channel |\n|---|---|---|---|"
     );
     for ((name, m, unit), w) in r.channel_margin.iter().zip(&r.weights) {
-        let _ = writeln!(s, "| {name} | {unit} | {w} | {m:.4} {unit} |");
+        let _ = writeln!(s, "| {} | {unit} | {w} | {m:.4} {unit} |", cell(name));
     }
     if let Some(t) = &r.tolerance {
         let _ = writeln!(
             s,
             "\n## Sensor tolerance\n\nDeclared noise moves the score by at most {:.1} LSB. Units that could change verdict: {}. Suggested RECHECK half-band: {:.6} (float score units).\n",
-            t.noise_radius_lsb,
-            t.units_at_risk.len(),
-            t.suggested_band
+            t.noise_radius_lsb, t.units_at_risk_count, t.suggested_band
         );
         let _ = writeln!(
             s,
-            "| channel | noise | largest drift before any unit flips |\n|---|---|---|"
+            "| channel | declared noise | largest drift before any unit flips | drift ÷ noise |\n|---|---|---|---|"
         );
         for c in &t.channels {
+            let ratio = if c.noise > 0.0 {
+                format!("{:.2}", c.max_drift / c.noise)
+            } else {
+                "–".into()
+            };
             let _ = writeln!(
                 s,
-                "| {} | {} {} | {:.4} {} |",
-                c.channel, c.noise, c.unit, c.max_drift, c.unit
+                "| {} | {} {} | {:.4} {} | {ratio} |",
+                cell(&c.channel),
+                c.noise,
+                c.unit,
+                c.max_drift,
+                c.unit
             );
         }
-        for u in t.units_at_risk.iter().take(20) {
-            let _ = writeln!(s, "- at risk: {u}");
-        }
-    }
-    if !r.flips.is_empty() {
-        let _ = writeln!(
-            s,
-            "\n## Flipped decisions\n\n| log | unit | line | label | float | fixed | margin (LSB) |\n|---|---|---|---|---|---|---|"
-        );
-        for u in &r.flips {
+        let _ = writeln!(s, "\n## Units at risk from sensor noise");
+        if t.units_at_risk.is_empty() {
             let _ = writeln!(
                 s,
-                "| {} | {} | {} | {} | {} | {} | {:.1} |",
-                u.set, u.unit, u.line, u.label, u.float_verdict, u.fixed_verdict, u.margin_lsb
+                "\nNone: no decided unit's margin is within the noise radius ({:.1} LSB).",
+                t.noise_radius_lsb
+            );
+        } else {
+            unit_table(
+                &mut s,
+                &format!(
+                    "Units whose fixed margin is within the noise radius ({:.1} LSB), in log order:",
+                    t.noise_radius_lsb
+                ),
+                &t.units_at_risk,
+                50,
+                t.units_at_risk_count,
+                false,
             );
         }
     }
-    let _ = writeln!(
-        s,
-        "\n## Units closest to the boundary\n\n| log | unit | line | label | fixed verdict | score | margin (LSB) |\n|---|---|---|---|---|---|---|"
+    unit_table(
+        &mut s,
+        "## Units closest to the boundary",
+        &r.tightest,
+        r.tightest.len(),
+        r.tightest.len(),
+        false,
     );
-    for u in &r.tightest {
-        let _ = writeln!(
-            s,
-            "| {} | {} | {} | {} | {} | {} | {:.1} |",
-            u.set,
-            u.unit,
-            u.line,
-            u.label,
-            u.fixed_verdict,
-            u.fixed_score.map_or("–".into(), |v| v.to_string()),
-            u.margin_lsb
-        );
-    }
     if let Some((rows, best)) = sweep {
         let _ = writeln!(
             s,
-            "\n## Word-length sweep\n\n| weights | inputs | acc | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes | MAC cost |\n|---|---|---|---|---|---|---|---|---|---|"
+            "\n## Word-length sweep\n\n| weights | inputs | acc | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes | device cost (estimate) |\n|---|---|---|---|---|---|---|---|---|---|"
         );
         for (i, w) in rows.iter().enumerate() {
             let mark = if Some(i) == *best {
@@ -255,26 +387,82 @@ pub fn markdown(
                 if w.guaranteed { "yes" } else { "no" },
                 if w.passed { "yes" } else { "no" },
                 w.blob_bytes,
-                w.mac_cost
+                w.kernel_cost
             );
         }
+        let _ = writeln!(
+            s,
+            "\nDevice cost: one multiply-add per channel per classification. 32-bit sums take one instruction each on any 32-bit core; 64-bit sums take one on cores with a long multiply (Cortex-M3, M4, M33) and a library call each on those without (Cortex-M0, M0+). Recommended: the passing format with the narrowest weights, then the narrowest inputs."
+        );
     }
     let _ = writeln!(
         s,
-        "\n## Method (every figure above from these inputs)\n\n\
-- Physical → raw: raw = round((physical − zero)/lsb), halves away from zero (per channel: zero, lsb in model.json).\n\
-- Kernel (FORMAT.md): xᵢ = ⌊((raw − offsetᵢ)·multiplierᵢ + 2^(shiftᵢ−1)) / 2^shiftᵢ⌋ (halves towards +∞); score = bias + Σ weightᵢ·xᵢ; GO if score ≥ go_min, NO-GO if score ≤ nogo_max, else RECHECK; a raw reading outside [raw_min, raw_max] is a FAULT (NO-GO).\n\
-- Float model: s = b + Σ wᵢ·(raw − offsetᵢ)/halfᵢ; GO if s > t (t = {t}).\n\
-- A = {a} accumulator units per float score unit; κᵢ = multiplierᵢ/2^shiftᵢ; ideal weights Wᵢ* = A·wᵢ/(halfᵢ·κᵢ), ideal bias B* = A·b = {ib}; A·t = {ta}.\n\
-- Weights and bias are Wᵢ* and B* rounded to nearest, halves to even, then moved by at most ±1 LSB where that raises (smallest margin − bound) on the training log.\n\
-- Margin of a decided unit, in LSB: score − (go_min − ½) for GO units, (nogo_max + ½) − score for NO-GO units; RECHECK and FAULT units have none.\n\
-- Bound = ½·Σ|Wᵢ| + Σ|Wᵢ − Wᵢ*|·Xmaxᵢ + |B − B*|, Xmaxᵢ = κᵢ·max(|raw_maxᵢ − offsetᵢ|, |offsetᵢ − raw_minᵢ|). A correctly decided unit is within the bound when its margin plus the distance of its edge beyond ⌊A·t⌋ + ½ (the RECHECK band, 0 without one) is at most the bound; \"guaranteed\" means no unit is.\n\
-- Noise: a reading moved by Δ moves xᵢ by at most κᵢ·Δ/lsbᵢ + 1, the score by Σ|Wᵢ|·(κᵢ·noiseᵢ/lsbᵢ + 1); a GO (NO-GO) unit whose score is within that of nogo_max + ½ (go_min − ½) fails the noise gate.\n",
-        t = fm.threshold,
-        a = r.scale,
-        ib = r.ideal_bias,
-        ta = r.threshold_acc
+        "\n## Method (every figure above from these inputs)\n\n| step | formula | inputs in this audit |\n|---|---|---|"
     );
+    let method: [(&str, &str, String); 9] = [
+        (
+            "physical → raw",
+            "raw = round((physical − zero) / lsb), halves away from zero",
+            "zero, lsb per channel (model.json)".into(),
+        ),
+        (
+            "input scaling (device kernel, FORMAT.md)",
+            "xᵢ = ⌊((raw − offsetᵢ)·multiplierᵢ + 2^(shiftᵢ−1)) / 2^shiftᵢ⌋, halves towards +∞",
+            format!("Q{} inputs ({}-bit)", r.input_bits - 1, r.input_bits),
+        ),
+        (
+            "score and decision",
+            "score = bias + Σ weightᵢ·xᵢ; GO if score ≥ go_min, NO-GO if score ≤ nogo_max, else RECHECK; raw outside [raw_min, raw_max]: FAULT (NO-GO)",
+            format!(
+                "bias = {}, go_min = {}, nogo_max = {}, {}-bit weights, {}-bit accumulator",
+                r.bias, r.go_min, r.nogo_max, r.weight_bits, r.acc_bits
+            ),
+        ),
+        (
+            "float model",
+            "s = b + Σ wᵢ·(raw − offsetᵢ)/halfᵢ; GO if s > t",
+            format!("b = {}, t = {}", fm.bias, fm.threshold),
+        ),
+        (
+            "ideal integer model",
+            "κᵢ = multiplierᵢ/2^shiftᵢ; Wᵢ* = A·wᵢ/(halfᵢ·κᵢ); B* = A·b",
+            format!(
+                "A = {}, B* = {}, A·t = {}",
+                r.scale, r.ideal_bias, r.threshold_acc
+            ),
+        ),
+        (
+            "quantisation",
+            "Wᵢ, B: Wᵢ*, B* rounded to nearest (halves to even), then each moved by at most ±1 LSB where that raises (smallest margin − bound) on the training log",
+            format!("{} moves kept", r.search_moves),
+        ),
+        (
+            "margin (LSB)",
+            "GO unit: score − (go_min − ½); NO-GO unit: (nogo_max + ½) − score; RECHECK and FAULT: none",
+            "every decided unit".into(),
+        ),
+        (
+            "rounding bound B",
+            "B = ½·Σ\\|Wᵢ\\| + Σ\\|Wᵢ − Wᵢ*\\|·Xmaxᵢ + \\|B − B*\\|, Xmaxᵢ = κᵢ·max(\\|raw_maxᵢ − offsetᵢ\\|, \\|offsetᵢ − raw_minᵢ\\|); a decided unit is within B when its margin plus its edge's distance beyond ⌊A·t⌋ + ½ (the RECHECK band) is at most B; guaranteed: no unit is",
+            format!(
+                "{:.1} + {:.1} + {:.2} = {:.1} LSB (textbook Σ\\|Wᵢ*\\|εx + ΣXmaxᵢ·εw + n·εx·εw + εb = {:.1})",
+                r.bound.inputs, r.bound.weights, r.bound.bias, r.bound.total, r.bound.textbook
+            ),
+        ),
+        (
+            "sensor noise",
+            "a reading moved by Δ moves xᵢ by at most κᵢ·Δ/lsbᵢ + 1, the score by Σ\\|Wᵢ\\|·(κᵢ·noiseᵢ/lsbᵢ + 1); a GO (NO-GO) unit whose score is within that of nogo_max + ½ (go_min − ½) fails the noise gate",
+            r.tolerance
+                .as_ref()
+                .map_or("no noise declared".into(), |t| {
+                    format!("radius {:.1} LSB", t.noise_radius_lsb)
+                }),
+        ),
+    ];
+    for (step, formula, inputs) in method {
+        let _ = writeln!(s, "| {step} | {formula} | {inputs} |");
+    }
+    let _ = writeln!(s);
     let _ = writeln!(
         s,
         "| channel | wᵢ (float) | Wᵢ* (ideal) | plain rounding | final Wᵢ |\n|---|---|---|---|---|"

@@ -1,8 +1,11 @@
-//! The audit's charts as SVG (plotters): margins, and one bar per channel.
+//! The audit's charts as SVG (plotters): margins and rounding errors of every unit, one bar
+//! per channel, and the word-length sweep.
 
 use plotters::prelude::*;
 
-use crate::release::audit::{AuditReport, MARGIN_BINS, margin_bin_edges};
+use crate::release::audit::{
+    AuditReport, MARGIN_BINS, ROUNDING_BINS, SweepRow, margin_bin_edges, rounding_bin_edges,
+};
 
 /// Colours of the logs in the margin histogram, in the report's order (train first).
 const SET_COLOURS: [RGBColor; 4] = [
@@ -22,92 +25,86 @@ fn bin_names() -> Vec<String> {
     v
 }
 
-/// The fixed margin of every decided unit of every log, in LSB, binned in multiples of
-/// the rounding bound B (`SetSummary::margin_histogram`), with the bound marked: units left
-/// of the mark are those rounding could have moved. RECHECK units have no margin; their
-/// count is in the caption.
-pub fn margin_bins_svg(r: &AuditReport) -> String {
-    let names = bin_names();
-    let sets: Vec<_> = r
-        .sets
+/// A histogram of every log side by side: bin i spans [i, i + 1) on the x axis.
+struct Binned<'a> {
+    caption: String,
+    x_desc: &'a str,
+    /// Text under the axis, each at its x.
+    labels: Vec<(f64, String)>,
+    /// Each log's name, unit count and bin counts.
+    series: Vec<(String, usize, &'a [u64])>,
+    /// Bins drawn (from the first).
+    shown: usize,
+    /// Red vertical lines, at these x, each named at its top.
+    marks: Vec<(f64, &'static str)>,
+    /// Bins whose counts are written over the bar, in red, whenever they hold a unit.
+    counted: Vec<usize>,
+}
+
+fn binned_svg(b: &Binned) -> String {
+    let top = b
+        .series
         .iter()
-        .filter(|s| s.margin_histogram.len() == MARGIN_BINS)
-        .collect();
-    let top = sets
-        .iter()
-        .flat_map(|s| s.margin_histogram.iter().copied())
+        .flat_map(|s| s.2.iter().copied())
         .max()
         .unwrap_or(1)
         .max(1) as f64;
-    let edges = margin_bin_edges(r.bound.total);
-    let recheck: usize = r.sets.iter().map(|s| s.recheck).sum();
-    // Up to the last bin holding a unit (and at least past the bound's bins).
-    let shown = sets
-        .iter()
-        .filter_map(|s| s.margin_histogram.iter().rposition(|&c| c > 0))
-        .max()
-        .map_or(4, |k| (k + 2).clamp(4, MARGIN_BINS));
     let mut out = String::new();
     {
         let root = SVGBackend::with_string(&mut out, (800, 420)).into_drawing_area();
         let _ = root.fill(&WHITE);
-        let bins = shown as f64;
-        // Bin i spans [i, i + 1); the logs' bars share its middle 80 %. Below zero: the
-        // bins' names.
+        // Below zero: the bins' names.
         let floor = -0.12 * top;
         if let Ok(mut chart) = ChartBuilder::on(&root)
-            .caption(
-                format!(
-                    "Fixed margin of every decided unit from the threshold; B = rounding bound = {:.1} LSB; RECHECK: {recheck}",
-                    edges[1]
-                ),
-                ("sans-serif", 17),
-            )
+            .caption(&b.caption, ("sans-serif", 17))
             .margin(12)
             .x_label_area_size(30)
             .y_label_area_size(80)
-            .build_cartesian_2d(0.0..bins, floor..top * 1.15)
+            .build_cartesian_2d(0.0..b.shown as f64, floor..top * 1.15)
         {
             let _ = chart
                 .configure_mesh()
                 .disable_x_mesh()
                 .x_labels(0)
                 .y_label_style(("sans-serif", 15))
-                .y_label_formatter(&|v| if *v < 0.0 { String::new() } else { format!("{v:.0}") })
-                .x_desc("fixed margin plus RECHECK band, in multiples of the rounding bound B (left of the red line: within B)")
+                .y_label_formatter(&|v| {
+                    if *v < 0.0 {
+                        String::new()
+                    } else {
+                        format!("{v:.0}")
+                    }
+                })
+                .x_desc(b.x_desc)
                 .y_desc("units")
                 .draw();
-            let _ = chart.draw_series(names.iter().take(shown).enumerate().map(|(i, n)| {
+            let _ = chart.draw_series(b.labels.iter().map(|(x, n)| {
                 Text::new(
                     n.clone(),
-                    (i as f64 + 0.08, floor * 0.45),
+                    (*x, floor * 0.45),
                     ("sans-serif", 12).into_font(),
                 )
             }));
-            let k = sets.len().max(1) as f64;
-            for (j, s) in sets.iter().enumerate() {
+            // The logs' bars share the middle 80 % of each bin.
+            let w = 0.8 / b.series.len().max(1) as f64;
+            for (j, (name, units, counts)) in b.series.iter().enumerate() {
                 let colour = SET_COLOURS[j.min(SET_COLOURS.len() - 1)];
-                let w = 0.8 / k;
                 let _ = chart
-                    .draw_series(s.margin_histogram.iter().take(shown).enumerate().map(|(i, &c)| {
+                    .draw_series(counts.iter().take(b.shown).enumerate().map(|(i, &c)| {
                         let x0 = i as f64 + 0.1 + j as f64 * w;
                         Rectangle::new([(x0, 0.0), (x0 + w, c as f64)], colour.filled())
                     }))
                     .map(|a| {
-                        a.label(format!("{} ({} units)", s.name, s.units))
+                        a.label(format!("{name} ({units} units)"))
                             .legend(move |(x, y)| {
                                 Rectangle::new([(x, y - 5), (x + 12, y + 5)], colour.filled())
                             })
                     });
-                // Counts written over the bins within the bound: the units a reviewer asks
-                // about, however small their bars.
+                // The counts a reviewer asks about, however small their bars.
                 let _ = chart.draw_series(
-                    s.margin_histogram
+                    b.counted
                         .iter()
-                        .enumerate()
-                        .take(2)
-                        .filter(|(_, c)| **c > 0)
-                        .map(|(i, &c)| {
+                        .filter_map(|&i| counts.get(i).filter(|c| **c > 0).map(|&c| (i, c)))
+                        .map(|(i, c)| {
                             Text::new(
                                 c.to_string(),
                                 (i as f64 + 0.1 + j as f64 * w, c as f64 + 0.03 * top),
@@ -116,10 +113,16 @@ pub fn margin_bins_svg(r: &AuditReport) -> String {
                         }),
                 );
             }
-            let _ = chart.draw_series(std::iter::once(PathElement::new(
-                vec![(2.0, 0.0), (2.0, top * 1.1)],
-                FAIL.stroke_width(2),
-            )));
+            let _ = chart.draw_series(b.marks.iter().map(|&(x, _)| {
+                PathElement::new(vec![(x, 0.0), (x, top * 1.1)], FAIL.stroke_width(2))
+            }));
+            let _ = chart.draw_series(b.marks.iter().map(|&(x, name)| {
+                Text::new(
+                    name,
+                    (x + 0.1, top * 1.12),
+                    ("sans-serif", 13).into_font().color(&FAIL),
+                )
+            }));
             let _ = chart
                 .configure_series_labels()
                 .border_style(BLACK)
@@ -132,59 +135,152 @@ pub fn margin_bins_svg(r: &AuditReport) -> String {
     out
 }
 
-/// Histogram of float and fixed margins (as fractions of the largest), as SVG.
-pub fn margin_svg(r: &AuditReport) -> String {
+/// The fixed margin of every decided unit of every log, in LSB, binned in multiples of
+/// the rounding bound B (`SetSummary::margin_histogram`), with the bound marked: units left
+/// of the mark are those rounding could have moved. RECHECK units have no margin; their
+/// count is in the caption.
+pub fn margin_bins_svg(r: &AuditReport) -> String {
+    let series: Vec<_> = r
+        .sets
+        .iter()
+        .filter(|s| s.margin_histogram.len() == MARGIN_BINS)
+        .map(|s| (s.name.clone(), s.units, s.margin_histogram.as_slice()))
+        .collect();
+    let recheck: usize = r.sets.iter().map(|s| s.recheck).sum();
+    // Up to the last bin holding a unit (and at least past the bound's bins).
+    let shown = series
+        .iter()
+        .filter_map(|s| s.2.iter().rposition(|&c| c > 0))
+        .max()
+        .map_or(4, |k| (k + 2).clamp(4, MARGIN_BINS));
+    binned_svg(&Binned {
+        caption: format!(
+            "Fixed margin of every decided unit from the threshold; B = rounding bound = {:.1} LSB; RECHECK: {recheck}",
+            margin_bin_edges(r.bound.total)[1]
+        ),
+        x_desc: "fixed margin plus RECHECK band, in multiples of the rounding bound B (left of the red line: within B)",
+        labels: bin_names()
+            .into_iter()
+            .take(shown)
+            .enumerate()
+            .map(|(i, n)| (i as f64 + 0.08, n))
+            .collect(),
+        series,
+        shown,
+        marks: vec![(2.0, "B")],
+        counted: vec![0, 1],
+    })
+}
+
+/// Every scored unit of every log by its rounding error, fixed score − A·float score in
+/// LSB, in tenths of the rounding bound B (`SetSummary::rounding_histogram`), with ±B
+/// marked: the bound says no unit lies outside the red lines, and the chart shows how much
+/// of it the units use. Counts outside, if any, are written in red.
+pub fn rounding_svg(r: &AuditReport) -> String {
+    let series: Vec<_> = r
+        .sets
+        .iter()
+        .filter(|s| s.rounding_histogram.len() == ROUNDING_BINS)
+        .map(|s| {
+            (
+                s.name.clone(),
+                s.units - s.faults,
+                s.rounding_histogram.as_slice(),
+            )
+        })
+        .collect();
+    let worst = r
+        .sets
+        .iter()
+        .map(|s| s.rounding_max_lsb)
+        .fold(0.0, f64::max);
+    let b = rounding_bin_edges(r.bound.total)[ROUNDING_BINS - 2];
+    let mut labels = vec![(0.05, "< −B".to_string())];
+    for (x, n) in [(6.0, "−½B"), (11.0, "0"), (16.0, "½B")] {
+        labels.push((x - 0.2, n.to_string()));
+    }
+    labels.push((21.15, "> B".to_string()));
+    binned_svg(&Binned {
+        caption: format!(
+            "Rounding error of every scored unit: B = {b:.1} LSB, largest seen {worst:.1} LSB ({:.0} % of B)",
+            100.0 * worst / b
+        ),
+        x_desc: "fixed score − A·float score, LSB of the accumulator, in tenths of the bound B (the red lines at ±B)",
+        labels,
+        series,
+        shown: ROUNDING_BINS,
+        marks: vec![(1.0, "−B"), (21.0, "+B")],
+        counted: vec![0, ROUNDING_BINS - 1],
+    })
+}
+
+/// The word-length sweep: each format's smallest margin over the rounding bound against
+/// its blob's size, the line at 1 (above it rounding cannot change a decision), the
+/// recommended format ringed. Passing formats are filled teal dots, failing ones red
+/// crosses, each named (weights/inputs bits), so it reads in black and white.
+pub fn sweep_svg(rows: &[SweepRow], best: Option<usize>) -> String {
+    // Margins at or below 0.01 of the bound (flips included) sit on the floor of the log axis.
+    const FLOOR: f64 = 0.01;
+    let y = |r: &SweepRow| r.margin_over_bound.map(|v| v.max(FLOOR));
+    let top = rows.iter().filter_map(y).fold(10.0f64, f64::max) * 3.0;
+    let (x0, x1) = rows.iter().fold((usize::MAX, 0), |(a, b), r| {
+        (a.min(r.blob_bytes), b.max(r.blob_bytes))
+    });
+    let pad = ((x1.saturating_sub(x0)) as f64 * 0.12).max(8.0);
+    let (x0, x1) = (x0 as f64 - pad, x1 as f64 + pad);
     let mut out = String::new();
     {
-        let root = SVGBackend::with_string(&mut out, (640, 320)).into_drawing_area();
+        let root = SVGBackend::with_string(&mut out, (800, 420)).into_drawing_area();
         let _ = root.fill(&WHITE);
-        let scale = r
-            .float_margins
-            .iter()
-            .chain(&r.fixed_margins)
-            .fold(1.0f64, |m, v| m.max(v.abs()));
-        let bins = 40usize;
-        // Show [-1, 1] only when some unit is on the wrong side; otherwise [0, 1].
-        let lo = if r
-            .float_margins
-            .iter()
-            .chain(&r.fixed_margins)
-            .any(|v| *v < 0.0)
-        {
-            -1.0
-        } else {
-            0.0
-        };
-        let w = (1.0 - lo) / bins as f64;
-        let bin = |v: f64| (((v / scale - lo) / w).max(0.0) as usize).min(bins - 1);
-        let mut hf = vec![0u32; bins];
-        let mut hq = vec![0u32; bins];
-        r.float_margins.iter().for_each(|v| hf[bin(*v)] += 1);
-        r.fixed_margins.iter().for_each(|v| hq[bin(*v)] += 1);
-        let top = hf.iter().chain(&hq).copied().max().unwrap_or(1).max(1);
         if let Ok(mut chart) = ChartBuilder::on(&root)
             .caption(
-                "Margins of audited units (float vs fixed, scaled to the largest)",
-                ("sans-serif", 16),
+                "Word-length sweep: margin over the rounding bound against blob size",
+                ("sans-serif", 17),
             )
-            .margin(10)
-            .x_label_area_size(30)
-            .y_label_area_size(40)
-            .build_cartesian_2d(lo..1.0f64, 0u32..top + 1)
+            .margin(12)
+            .x_label_area_size(40)
+            .y_label_area_size(70)
+            .build_cartesian_2d(x0..x1, (FLOOR * 0.7..top).log_scale())
         {
             let _ = chart
                 .configure_mesh()
-                .x_desc("margin / largest margin")
-                .y_desc("units")
+                .x_label_style(("sans-serif", 15))
+                .y_label_style(("sans-serif", 15))
+                .x_desc("blob bytes")
+                .y_desc("smallest margin ÷ rounding bound (log)")
+                .x_label_formatter(&|v| format!("{v:.0}"))
+                .y_label_formatter(&|v| format!("{v}"))
                 .draw();
-            let _ = chart.draw_series(hf.iter().enumerate().map(|(i, &c)| {
-                let x0 = lo + i as f64 * w;
-                Rectangle::new([(x0, 0), (x0 + w * 0.5, c)], BLUE.mix(0.6).filled())
-            }));
-            let _ = chart.draw_series(hq.iter().enumerate().map(|(i, &c)| {
-                let x0 = lo + i as f64 * w + w * 0.5;
-                Rectangle::new([(x0, 0), (x0 + w * 0.5, c)], RED.mix(0.6).filled())
-            }));
+            let _ = chart.draw_series(std::iter::once(PathElement::new(
+                vec![(x0, 1.0), (x1, 1.0)],
+                BLACK.stroke_width(2),
+            )));
+            for (i, r) in rows.iter().enumerate() {
+                let Some(v) = y(r) else { continue };
+                let p = (r.blob_bytes as f64, v);
+                let name = format!("{}/{}", r.weight_bits, r.input_bits);
+                if r.passed {
+                    let _ = chart.draw_series(std::iter::once(Circle::new(p, 5, PASS.filled())));
+                } else {
+                    let _ =
+                        chart.draw_series(std::iter::once(Cross::new(p, 5, FAIL.stroke_width(2))));
+                }
+                // Beside the point, in pixels.
+                let _ = chart.draw_series(std::iter::once(
+                    EmptyElement::at(p) + Text::new(name, (7, -16), ("sans-serif", 13).into_font()),
+                ));
+                if Some(i) == best {
+                    let _ = chart.draw_series(std::iter::once(Circle::new(
+                        p,
+                        11,
+                        BLACK.stroke_width(2),
+                    )));
+                    let _ = chart.draw_series(std::iter::once(
+                        EmptyElement::at(p)
+                            + Text::new("recommended", (12, 4), ("sans-serif", 14).into_font()),
+                    ));
+                }
+            }
         }
         let _ = root.present();
     }
@@ -287,6 +383,41 @@ mod tests {
             let px: f64 = size.split('"').next().unwrap().parse().unwrap();
             assert!(px >= 12.0, "font size {px}");
         }
+    }
+
+    fn row(weight_bits: u8, ratio: Option<f64>, passed: bool) -> SweepRow {
+        SweepRow {
+            weight_bits,
+            input_bits: 16,
+            acc_bits: 32,
+            min_margin_lsb: ratio.map(|r| r * 10.0),
+            margin_over_bound: ratio,
+            flips: 0,
+            guaranteed: passed,
+            passed,
+            blob_bytes: 180 + usize::from(weight_bits),
+            kernel_cost: String::new(),
+        }
+    }
+
+    #[test]
+    fn the_sweep_chart_marks_the_recommendation_once() {
+        let rows = [
+            row(8, Some(-0.5), false),
+            row(12, Some(1.5), true),
+            row(16, None, false),
+            row(24, Some(300.0), true),
+        ];
+        let svg = sweep_svg(&rows, Some(1));
+        assert_eq!(svg.matches("recommended").count(), 1);
+        for n in ["8/16", "12/16", "24/16"] {
+            assert!(svg.contains(n), "{n} drawn");
+        }
+        assert!(
+            !svg.contains("16/16"),
+            "a format without a margin has no point"
+        );
+        assert!(!sweep_svg(&rows, None).contains("recommended"));
     }
 
     #[test]
