@@ -32,7 +32,9 @@ struct Binned<'a> {
     /// Text under the axis, each at its x.
     labels: Vec<(f64, String)>,
     /// Each log's name, unit count and bin counts.
-    series: Vec<(String, usize, &'a [u64])>,
+    series: Vec<(String, usize, Vec<u64>)>,
+    /// A band shaded grey behind the bars, from x to x, named at its top.
+    shaded: Option<(f64, f64, &'static str)>,
     /// Bins drawn (from the first).
     shown: usize,
     /// Red vertical lines, at these x, each named at its top.
@@ -84,6 +86,17 @@ fn binned_svg(b: &Binned) -> String {
                     ("sans-serif", 12).into_font(),
                 )
             }));
+            if let Some((x0, x1, name)) = b.shaded {
+                let _ = chart.draw_series(std::iter::once(Rectangle::new(
+                    [(x0, 0.0), (x1, top * 1.1)],
+                    RGBColor(228, 231, 235).filled(),
+                )));
+                let _ = chart.draw_series(std::iter::once(Text::new(
+                    name,
+                    (x0 + 0.05, top * 1.12),
+                    ("sans-serif", 13).into_font(),
+                )));
+            }
             // The logs' bars share the middle 80 % of each bin.
             let w = 0.8 / b.series.len().max(1) as f64;
             for (j, (name, units, counts)) in b.series.iter().enumerate() {
@@ -137,14 +150,20 @@ fn binned_svg(b: &Binned) -> String {
 
 /// The fixed margin of every decided unit of every log, in LSB, binned in multiples of
 /// the rounding bound B (`SetSummary::margin_histogram`), with the bound marked: units left
-/// of the mark are those rounding could have moved. RECHECK units have no margin; their
-/// count is in the caption.
+/// of the mark are those rounding could have moved. RECHECK units have no margin: they
+/// stand first, in the shaded RECHECK band.
 pub fn margin_bins_svg(r: &AuditReport) -> String {
     let series: Vec<_> = r
         .sets
         .iter()
         .filter(|s| s.margin_histogram.len() == MARGIN_BINS)
-        .map(|s| (s.name.clone(), s.units, s.margin_histogram.as_slice()))
+        .map(|s| {
+            // The RECHECK units first, in the band of their own.
+            let counts: Vec<u64> = std::iter::once(s.recheck as u64)
+                .chain(s.margin_histogram.iter().copied())
+                .collect();
+            (s.name.clone(), s.units, counts)
+        })
         .collect();
     let recheck: usize = r.sets.iter().map(|s| s.recheck).sum();
     // Up to the last bin holding a unit (and at least past the bound's bins).
@@ -152,23 +171,24 @@ pub fn margin_bins_svg(r: &AuditReport) -> String {
         .iter()
         .filter_map(|s| s.2.iter().rposition(|&c| c > 0))
         .max()
-        .map_or(4, |k| (k + 2).clamp(4, MARGIN_BINS));
+        .map_or(5, |k| (k + 2).clamp(5, MARGIN_BINS + 1));
     binned_svg(&Binned {
         caption: format!(
             "Fixed margin of every decided unit from the threshold; B = rounding bound = {:.1} LSB; RECHECK: {recheck}",
             margin_bin_edges(r.bound.total)[1]
         ),
         x_desc: "fixed margin plus RECHECK band, in multiples of the rounding bound B (left of the red line: within B)",
-        labels: bin_names()
-            .into_iter()
+        labels: std::iter::once("RECHECK".to_string())
+            .chain(bin_names())
             .take(shown)
             .enumerate()
             .map(|(i, n)| (i as f64 + 0.08, n))
             .collect(),
         series,
+        shaded: (recheck > 0 || r.recheck_band > 0.0).then_some((0.0, 1.0, "RECHECK band")),
         shown,
-        marks: vec![(2.0, "B")],
-        counted: vec![0, 1],
+        marks: vec![(3.0, "B")],
+        counted: vec![0, 1, 2],
     })
 }
 
@@ -185,7 +205,7 @@ pub fn rounding_svg(r: &AuditReport) -> String {
             (
                 s.name.clone(),
                 s.units - s.faults,
-                s.rounding_histogram.as_slice(),
+                s.rounding_histogram.clone(),
             )
         })
         .collect();
@@ -208,6 +228,7 @@ pub fn rounding_svg(r: &AuditReport) -> String {
         x_desc: "fixed score − A·float score, LSB of the accumulator, in tenths of the bound B (the red lines at ±B)",
         labels,
         series,
+        shaded: None,
         shown: ROUNDING_BINS,
         marks: vec![(1.0, "−B"), (21.0, "+B")],
         counted: vec![0, ROUNDING_BINS - 1],
