@@ -4,7 +4,9 @@
 //! inside a range narrower than 2^31); the conversion product in `i64`
 //! (32×32→64, one long multiply); scaled inputs `i32` holding at most 16
 //! significant bits; weights `i32`; products and the accumulator `i64`
-//! (32×32→64 multiply-accumulate). Validation ([`CheckedModel::new`]) proved
+//! (32×32→64 multiply-accumulate). A narrow model ([`CheckedModel::is_narrow`]: a proved
+//! 32-bit accumulator and conversion products below 2^31) runs the same steps in `i32`
+//! only, which cores without a 64-bit multiply (Cortex-M0/M0+) do in single instructions. Validation ([`CheckedModel::new`]) proved
 //! `|bias| + Σ|w_i|·max|x_i|` fits the declared accumulator (at most 64 bits)
 //! and that `(r - offset)·multiplier` stays below 2^62 for in-range `r`; so the
 //! `wrapping_*` operations below never wrap. They are used instead of `+`/`*`
@@ -71,6 +73,22 @@ impl ChannelSpec {
             q.wrapping_add(1) >> 1
         };
         Some(x)
+    }
+
+    /// [`scale_checked`](Self::scale_checked) in 32-bit arithmetic, for a channel of a
+    /// narrow model: the product (r − offset)·multiplier is below 2^31 and the shift at
+    /// most 31 (both validated), so every step below is exact and equals the 64-bit one.
+    #[inline]
+    fn scale_narrow(&self, raw: i32) -> Option<i32> {
+        if raw < self.raw_min || raw > self.raw_max {
+            return None;
+        }
+        let p = raw.wrapping_sub(self.offset).wrapping_mul(self.multiplier);
+        Some(if self.shift == 0 {
+            p
+        } else {
+            (p >> (self.shift & 31).wrapping_sub(1)).wrapping_add(1) >> 1
+        })
     }
 }
 
@@ -146,6 +164,9 @@ impl CheckedModel {
                 got: raw.len(),
             });
         }
+        if self.is_narrow() {
+            return self.classify_narrow(raw);
+        }
         let mut acc = self.model().bias;
         for (i, (c, &r)) in self.model().channels.iter().zip(raw).enumerate() {
             let x = c.scale_checked(r).ok_or(Fault::OutOfRange {
@@ -158,6 +179,30 @@ impl CheckedModel {
         Ok(Decision {
             score: acc,
             verdict: self.verdict(acc),
+        })
+    }
+}
+
+impl CheckedModel {
+    /// [`classify`](Self::classify) for a narrow model ([`is_narrow`](Self::is_narrow)):
+    /// the 32-bit accumulator is proved (|bias| + Σ|wᵢ|·max|xᵢ| < 2^31), so the sums and
+    /// products below never wrap; the score is the same as the 64-bit path's.
+    #[inline]
+    fn classify_narrow(&self, raw: &[i32]) -> Result<Decision, Fault> {
+        // bias fits: |bias| is part of the proved bound.
+        #[allow(clippy::cast_possible_truncation)]
+        let mut acc = self.model().bias as i32;
+        for (i, (c, &r)) in self.model().channels.iter().zip(raw).enumerate() {
+            let x = c.scale_narrow(r).ok_or(Fault::OutOfRange {
+                channel: count_u8(i),
+                raw: r,
+            })?;
+            acc = acc.wrapping_add(c.weight.wrapping_mul(x));
+        }
+        let score = i64::from(acc);
+        Ok(Decision {
+            score,
+            verdict: self.verdict(score),
         })
     }
 }
@@ -297,6 +342,59 @@ mod tests {
             let mut x = [0i32; crate::limits::MAX_CHANNELS];
             m.scale(&raw, &mut x[..raw.len()]).unwrap();
             prop_assert_eq!(m.score_scaled(&x[..raw.len()]), d.score);
+        }
+
+        /// The 32-bit path (ADC-sized ranges, 8-bit weights, a proved 32-bit accumulator)
+        /// against the same exact i128 reference, and against the 64-bit path of the same
+        /// model declared with a 64-bit accumulator.
+        #[test]
+        fn narrow_kernel_equals_exact_i128_reference(
+            chans in prop::collection::vec(
+                (0i32..4096, 1i32..4096, 0u8..=15, -127i32..=127),
+                1..=crate::limits::MAX_CHANNELS,
+            ),
+            bias in -(1i64 << 20)..(1i64 << 20),
+            picks in prop::collection::vec(any::<u32>(), crate::limits::MAX_CHANNELS),
+        ) {
+            let mut fm = FixedModel::example_two_channel();
+            fm.channels.clear();
+            for &(lo, span, shift, w) in &chans {
+                let half = i64::from(span - span / 2).max(1);
+                let mul = ((32767i64 << shift) / half).clamp(1, i64::from(i32::MAX)) as i32;
+                fm.channels.push(ChannelSpec {
+                    raw_min: lo,
+                    raw_max: lo + span,
+                    offset: lo + span / 2,
+                    multiplier: mul,
+                    shift,
+                    weight: w,
+                    ..Default::default()
+                }).unwrap();
+            }
+            fm.weight_bits = 8;
+            fm.acc_bits = 32;
+            fm.bias = bias;
+            fm.nogo_max = -1;
+            fm.go_min = 1;
+            let m = CheckedModel::new(fm.clone()).unwrap();
+            prop_assert!(m.is_narrow());
+            fm.acc_bits = 64;
+            let wide = CheckedModel::new(fm).unwrap();
+            prop_assert!(!wide.is_narrow());
+            let raw: std::vec::Vec<i32> = m.model().channels.iter().zip(&picks).map(|(c, &p)| {
+                let span = (i64::from(c.raw_max) - i64::from(c.raw_min) + 1) as u64;
+                (i64::from(c.raw_min) + (u64::from(p) % span) as i64) as i32
+            }).collect();
+            let exact: i128 = m.model().channels.iter().zip(&raw)
+                .map(|(c, &r)| i128::from(c.weight) * scale_wide(c, r))
+                .sum::<i128>() + i128::from(bias);
+            let d = m.classify(&raw).unwrap();
+            prop_assert_eq!(i128::from(d.score), exact);
+            prop_assert_eq!(wide.classify(&raw).unwrap(), d);
+            // Faults are the same on both paths.
+            let mut bad = raw.clone();
+            bad[0] = m.model().channels[0].raw_max.wrapping_add(1);
+            prop_assert_eq!(m.classify(&bad), wide.classify(&bad));
         }
     }
 }

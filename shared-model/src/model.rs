@@ -205,6 +205,11 @@ pub(crate) fn scale_wide(c: &ChannelSpec, raw: i32) -> i128 {
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct CheckedModel {
     model: FixedModel,
+    /// Every product and sum fits 32 bits: a 32-bit accumulator is declared and proved,
+    /// and each channel's conversion product `(r − offset)·multiplier` stays below 2^31
+    /// with a shift of at most 31. The kernel then runs in 32-bit arithmetic only (one
+    /// instruction per multiply on every 32-bit core, no 64-bit multiply routine).
+    narrow: bool,
 }
 
 impl CheckedModel {
@@ -215,7 +220,20 @@ impl CheckedModel {
     /// threshold order, then the accumulator bound.
     pub fn new(model: FixedModel) -> Result<Self, ModelError> {
         model.validate()?;
-        Ok(Self { model })
+        let narrow = model.acc_bits == 32
+            && model.channels.iter().all(|c| {
+                let span = |r: i32| {
+                    (i128::from(r) - i128::from(c.offset)).abs() * i128::from(c.multiplier)
+                };
+                c.shift <= 31 && span(c.raw_min).max(span(c.raw_max)) < 1i128 << 31
+            });
+        Ok(Self { model, narrow })
+    }
+
+    /// Whether the kernel runs in 32-bit arithmetic only (see the type's docs): the
+    /// result is the same either way, only the instructions differ.
+    pub fn is_narrow(&self) -> bool {
+        self.narrow
     }
 
     /// The validated model, read-only.
