@@ -52,6 +52,7 @@ where
     /// Validates the blob in `flash`; a bad blob leaves the station holding NO-GO.
     ///
     /// `lines` are already in the safe state ([`GoNoGoLines::new`]).
+    #[inline(always)]
     pub fn new(flash: &[u8], sensor: S, lines: GoNoGoLines<G, N, R>) -> Self {
         Self::with_key(flash, None, sensor, lines)
     }
@@ -59,6 +60,10 @@ where
     /// As [`new`](Self::new), but a blob must be signed with `key` (a signed-release
     /// build): an unsigned blob, another key's blob or a bad signature holds NO-GO like a
     /// bad CRC. `None` accepts unsigned and signed blobs alike, without checking.
+    ///
+    /// Always inlined, so that with a constant `None` the signature verifier drops out of
+    /// the image (see `Classifier::load`).
+    #[inline(always)]
     pub fn with_key(
         flash: &[u8],
         key: Option<ReleaseKey>,

@@ -20,7 +20,7 @@ pub use crate::limits::{
     CRC_LEN, FORMAT_VERSION, HEADER_LEN, KEY_ID_LEN, MAGIC, MAX_BLOB_LEN, MAX_PAYLOAD_LEN,
     SIGNATURE_LEN, SIGNATURE_SECTION_LEN, SIGNED_VERSION,
 };
-use crate::model::{CheckedModel, FixedModel};
+use crate::model::{ChannelSpec, CheckedModel, FixedModel};
 
 /// CRC-32/ISO-HDLC (poly 0x04C11DB7, reflected, init and xorout 0xFFFFFFFF): the CRC of
 /// zip, PNG and Ethernet. Bitwise, without a table, to keep ~1 KiB out of device flash;
@@ -182,12 +182,56 @@ pub fn decode(bytes: &[u8]) -> Result<CheckedModel, DecodeError> {
     let payload = body
         .get(HEADER_LEN..)
         .ok_or(DecodeError::MalformedPayload)?;
-    let (model, rest) = postcard::take_from_bytes::<FixedModel>(payload)
-        .map_err(|_| DecodeError::MalformedPayload)?;
+    let (model, rest) = take_model(payload)?;
     if !rest.is_empty() || model.channels.len() != usize::from(header.channel_count) {
         return Err(DecodeError::InconsistentLengths);
     }
     Ok(CheckedModel::new(model)?)
+}
+
+/// One postcard value from the front of `bytes`.
+fn take<'a, T: serde::Deserialize<'a>>(bytes: &'a [u8]) -> Result<(T, &'a [u8]), DecodeError> {
+    postcard::take_from_bytes(bytes).map_err(|_| DecodeError::MalformedPayload)
+}
+
+/// The payload's model, field by field in declaration order (exactly what serde's derive
+/// reads for [`FixedModel`]: a struct is its fields in order, a sequence its varint length
+/// then its elements), with each channel pushed straight into the model. Reading the whole
+/// struct through serde builds the channel list in several stack frames (about 15 KiB on
+/// a Cortex-M, too much for a 16 KiB part); this reads it in one.
+#[inline(always)]
+fn take_model(payload: &[u8]) -> Result<(FixedModel, &[u8]), DecodeError> {
+    let mut m = FixedModel::default();
+    let rest = payload;
+    let rest = {
+        let (v, r) = take(rest)?;
+        m.model_id = v;
+        r
+    };
+    let rest = {
+        let (v, r) = take(rest)?;
+        m.audit = v;
+        r
+    };
+    let (input_bits, rest) = take(rest)?;
+    let (weight_bits, rest) = take(rest)?;
+    let (weight_frac_bits, rest) = take(rest)?;
+    let (acc_bits, rest) = take(rest)?;
+    let (bias, rest) = take(rest)?;
+    let (nogo_max, rest) = take(rest)?;
+    let (go_min, rest) = take(rest)?;
+    (m.input_bits, m.weight_bits, m.weight_frac_bits, m.acc_bits) =
+        (input_bits, weight_bits, weight_frac_bits, acc_bits);
+    (m.bias, m.nogo_max, m.go_min) = (bias, nogo_max, go_min);
+    let (count, mut rest): (u32, _) = take(rest)?;
+    for _ in 0..count {
+        let (c, r) = take::<ChannelSpec>(rest)?;
+        m.channels
+            .push(c)
+            .map_err(|_| DecodeError::MalformedPayload)?;
+        rest = r;
+    }
+    Ok((m, rest))
 }
 
 /// The fixed header, as read from a blob.
@@ -251,8 +295,69 @@ impl Header {
 mod tests {
     use super::*;
     use crate::error::ModelError;
-    use crate::model::{AuditMark, ChannelSpec};
+    use crate::model::AuditMark;
+    use proptest::prelude::*;
     use std::vec::Vec;
+
+    /// Any model as plain data (valid or not: the reader must match serde on both).
+    fn arb_model() -> impl Strategy<Value = FixedModel> {
+        let channel = ("[a-z_0-9]{0,24}", any::<(i32, i32, i32, i32, u8, i32)>()).prop_map(
+            |(name, (raw_min, raw_max, offset, multiplier, shift, weight))| ChannelSpec {
+                name: heapless::String::try_from(name.as_str()).unwrap(),
+                raw_min,
+                raw_max,
+                offset,
+                multiplier,
+                shift,
+                weight,
+            },
+        );
+        (
+            any::<([u8; 16], u8, u8, u8, u8, i64, i64, i64)>(),
+            0u8..3,
+            prop::collection::vec(channel, 0..=MAX_CHANNELS),
+        )
+            .prop_map(
+                |((id, ib, wb, wf, ab, bias, lo, hi), audit, chans)| FixedModel {
+                    model_id: id,
+                    audit: [
+                        AuditMark::NotAudited,
+                        AuditMark::Passed,
+                        AuditMark::Overridden,
+                    ][usize::from(audit)],
+                    input_bits: ib,
+                    weight_bits: wb,
+                    weight_frac_bits: wf,
+                    acc_bits: ab,
+                    bias,
+                    nogo_max: lo,
+                    go_min: hi,
+                    channels: chans.into_iter().collect(),
+                },
+            )
+    }
+
+    proptest! {
+        /// The field-by-field reader and serde's derived reader (postcard's reference
+        /// deserialisation) agree on every encoded model and on arbitrary bytes: the same
+        /// model and remainder, or both refuse.
+        #[test]
+        fn payload_reader_matches_serde(m in arb_model(), tail in prop::collection::vec(any::<u8>(), 0..4)) {
+            let mut buf = [0u8; 4096];
+            let mut bytes = postcard::to_slice(&m, &mut buf).unwrap().to_vec();
+            bytes.extend_from_slice(&tail);
+            let (got, rest) = take_model(&bytes).unwrap();
+            prop_assert_eq!(&got, &m);
+            prop_assert_eq!(rest, &tail[..]);
+        }
+
+        #[test]
+        fn payload_reader_matches_serde_on_any_bytes(bytes in prop::collection::vec(any::<u8>(), 0..400)) {
+            let ours = take_model(&bytes).ok();
+            let serde = postcard::take_from_bytes::<FixedModel>(&bytes).ok();
+            prop_assert_eq!(ours, serde);
+        }
+    }
 
     fn model_with(channels: usize, weight_bits: u8) -> CheckedModel {
         let mut m = FixedModel::example_two_channel();

@@ -2,6 +2,7 @@
 //! Each check against an outside source names the source beside it.
 
 mod browser;
+mod c_api;
 mod demo;
 mod device;
 mod house;

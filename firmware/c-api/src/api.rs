@@ -1,0 +1,100 @@
+//! The safe half: Linegate's Rust types to the C interface's, and back.
+
+use firmware::{Classifier, Decision, DecodeError, Fault, StationFault, Step, Verdict};
+
+use crate::{lg_fault, lg_result, lg_status, lg_verdict};
+
+/// The status a blob's validation error maps to.
+pub fn status_of(e: DecodeError) -> lg_status {
+    match e {
+        DecodeError::Truncated { .. } => lg_status::LG_ERR_TRUNCATED,
+        DecodeError::BadMagic => lg_status::LG_ERR_BAD_MAGIC,
+        DecodeError::UnsupportedVersion(_) => lg_status::LG_ERR_VERSION,
+        DecodeError::TrailingBytes { .. } => lg_status::LG_ERR_TRAILING_BYTES,
+        DecodeError::CrcMismatch { .. } => lg_status::LG_ERR_CRC,
+        DecodeError::ChannelOverCapacity(_) => lg_status::LG_ERR_TOO_MANY_CHANNELS,
+        DecodeError::MalformedPayload => lg_status::LG_ERR_MALFORMED,
+        DecodeError::InconsistentLengths => lg_status::LG_ERR_INCONSISTENT,
+        DecodeError::Invalid(_) => lg_status::LG_ERR_INVALID_MODEL,
+        DecodeError::Unsigned => lg_status::LG_ERR_UNSIGNED,
+        DecodeError::UnknownKey => lg_status::LG_ERR_UNKNOWN_KEY,
+        DecodeError::BadSignature => lg_status::LG_ERR_BAD_SIGNATURE,
+    }
+}
+
+fn verdict_of(v: Verdict) -> lg_verdict {
+    match v {
+        Verdict::Go => lg_verdict::LG_GO,
+        Verdict::NoGo => lg_verdict::LG_NOGO,
+        Verdict::Recheck => lg_verdict::LG_RECHECK,
+    }
+}
+
+/// A NO-GO result for `fault`, with nothing else set.
+fn faulted(fault: lg_fault) -> lg_result {
+    lg_result {
+        score: 0,
+        verdict: lg_verdict::LG_NOGO,
+        fault,
+        channel: 0,
+        raw: 0,
+        first: false,
+    }
+}
+
+fn reading_fault(f: Fault) -> lg_result {
+    match f {
+        Fault::ReadingCount { .. } => faulted(lg_fault::LG_FAULT_COUNT),
+        Fault::OutOfRange { channel, raw } => lg_result {
+            channel: u32::from(channel),
+            raw,
+            ..faulted(lg_fault::LG_FAULT_RANGE)
+        },
+    }
+}
+
+/// The result of one classification: the decision, or NO-GO with the fault.
+pub fn result_of(r: Result<Decision, Fault>) -> lg_result {
+    match r {
+        Ok(d) => lg_result {
+            score: d.score,
+            verdict: verdict_of(d.verdict),
+            ..faulted(lg_fault::LG_FAULT_NONE)
+        },
+        Err(f) => reading_fault(f),
+    }
+}
+
+/// The result of one station step.
+pub fn step_result<SE>(s: Step<SE>) -> lg_result {
+    match s {
+        Step::Decided(d) => result_of(Ok(d)),
+        Step::Faulted { fault, first } => lg_result {
+            first,
+            ..match fault {
+                StationFault::Blob(_) => faulted(lg_fault::LG_FAULT_BLOB),
+                StationFault::Sensor(_) => faulted(lg_fault::LG_FAULT_SENSOR),
+                StationFault::Reading(f) => reading_fault(f),
+            }
+        },
+    }
+}
+
+/// Copies channel `index`'s name into `buf` with a terminating NUL.
+pub fn channel_name(c: &Classifier, index: usize, buf: &mut [u8]) -> lg_status {
+    let Some(ch) = c.model().model().channels.get(index) else {
+        return lg_status::LG_ERR_INDEX;
+    };
+    let name = ch.name.as_bytes();
+    let Some(dst) = buf.get_mut(..name.len()) else {
+        return lg_status::LG_ERR_BUFFER;
+    };
+    dst.copy_from_slice(name);
+    match buf.get_mut(name.len()) {
+        Some(nul) => {
+            *nul = 0;
+            lg_status::LG_OK
+        }
+        None => lg_status::LG_ERR_BUFFER,
+    }
+}

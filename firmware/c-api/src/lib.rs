@@ -1,0 +1,169 @@
+//! Linegate's device side for C firmware: the very kernel the host audit runs
+//! ([`shared_model`]) and the firmware's fail-safe station logic ([`firmware::Station`]),
+//! behind a C interface with plain C types. The header, `include/linegate.h`, is
+//! generated from this crate by cbindgen.
+//!
+//! - [`lg_load`] (and `lg_load_signed` with the `signed` feature) validate a blob in a memory region once, into a
+//!   caller-owned [`lg_classifier`] (no heap);
+//! - [`lg_classify`] turns one set of raw readings into score, verdict and fault;
+//! - [`lg_model_id`], [`lg_blob_id`], [`lg_channel_count`], [`lg_channel_name`] say what
+//!   was loaded;
+//! - [`lg_station_init`] / [`lg_station_step`] (and [`lg_station_ids`]) run the firmware's station: read the
+//!   sensors through a callback, classify, and drive the GO / NO-GO / RECHECK lines through
+//!   a callback, falling to NO-GO on any fault.
+//!
+//! Every function returns an [`lg_status`]; none panics: a device release build that could
+//! panic does not link (`panic-never`). With the `signed` feature (signed releases,
+//! [`lg_load_signed`]) the Ed25519 verifier keeps one bounds check the compiler cannot
+//! remove, so that build instead calls `void lg_fatal(void)`, which the C firmware
+//! defines (drive NO-GO, then reset). All `unsafe` lives in the `ffi` module.
+#![no_std]
+#![deny(missing_docs)]
+#![warn(
+    clippy::indexing_slicing,
+    clippy::unwrap_used,
+    clippy::expect_used,
+    clippy::panic
+)]
+// The C names are the interface.
+#![allow(non_camel_case_types)]
+
+mod api;
+mod ffi;
+
+pub use ffi::*;
+
+// A device release build links only if no panic path is left (the handler refers to a
+// symbol that does not exist). The desktop build, for tests against `linegate replay`,
+// links with the host's precompiled `core`, which keeps panic paths of its own: there a
+// panic aborts the process (see `ffi`).
+#[cfg(all(target_os = "none", not(feature = "signed")))]
+use panic_never as _;
+
+/// Status of every call. `LG_OK` is 0; anything else means the call did nothing more
+/// than report it, and a station holds NO-GO.
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum lg_status {
+    /// Success.
+    LG_OK = 0,
+    /// A pointer argument was NULL.
+    LG_ERR_NULL = 1,
+    /// The classifier or station was not set up by a successful load or init.
+    LG_ERR_NOT_LOADED = 2,
+    /// The region is shorter than the blob's header or its declared length.
+    LG_ERR_TRUNCATED = 3,
+    /// The region does not start with the blob magic `LGMB`.
+    LG_ERR_BAD_MAGIC = 4,
+    /// The blob's format version is not one this build reads.
+    LG_ERR_VERSION = 5,
+    /// Bytes follow the blob's CRC.
+    LG_ERR_TRAILING_BYTES = 6,
+    /// The stored CRC-32 does not match the bytes.
+    LG_ERR_CRC = 7,
+    /// More channels than this build holds.
+    LG_ERR_TOO_MANY_CHANNELS = 8,
+    /// The payload does not parse as a model.
+    LG_ERR_MALFORMED = 9,
+    /// The header and the payload disagree.
+    LG_ERR_INCONSISTENT = 10,
+    /// The model parsed but failed validation (ranges, conversion, accumulator proof).
+    LG_ERR_INVALID_MODEL = 11,
+    /// A signed blob is required and this one is unsigned.
+    LG_ERR_UNSIGNED = 12,
+    /// The blob is signed with another key.
+    LG_ERR_UNKNOWN_KEY = 13,
+    /// The signature does not verify.
+    LG_ERR_BAD_SIGNATURE = 14,
+    /// The release key given is not a valid Ed25519 public key.
+    LG_ERR_BAD_KEY = 15,
+    /// A channel index beyond the model's channels.
+    LG_ERR_INDEX = 16,
+    /// The caller's buffer is too small (a channel name and its terminating NUL).
+    LG_ERR_BUFFER = 17,
+    /// A line callback reported failure; the lines were driven as far as they could
+    /// towards NO-GO.
+    LG_ERR_LINE = 18,
+    /// A release key was given to a library built without signed releases (the `signed`
+    /// feature).
+    LG_ERR_NO_SIGNING = 19,
+}
+
+/// The decision a device shows.
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum lg_verdict {
+    /// The unit fails, or something is wrong: the safe state.
+    LG_NOGO = 0,
+    /// The unit passes.
+    LG_GO = 1,
+    /// Too close to call: retest.
+    LG_RECHECK = 2,
+}
+
+/// Why a result is NO-GO without a decision, if it is.
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum lg_fault {
+    /// No fault: the verdict is the model's decision.
+    LG_FAULT_NONE = 0,
+    /// The number of readings differs from the model's channel count.
+    LG_FAULT_COUNT = 1,
+    /// A reading lies outside its channel's valid raw range (`channel`, `raw` say which).
+    LG_FAULT_RANGE = 2,
+    /// The sensor callback reported a failure.
+    LG_FAULT_SENSOR = 3,
+    /// No valid model is loaded (the station's blob failed validation).
+    LG_FAULT_BLOB = 4,
+}
+
+/// The outcome of one classification or station step.
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct lg_result {
+    /// The integer score (accumulator units); 0 on a fault.
+    pub score: i64,
+    /// The verdict shown: `LG_NOGO` on any fault.
+    pub verdict: lg_verdict,
+    /// The fault, or `LG_FAULT_NONE`.
+    pub fault: lg_fault,
+    /// For `LG_FAULT_RANGE`: the channel's index (0-based); otherwise 0.
+    pub channel: u32,
+    /// For `LG_FAULT_RANGE`: the refused raw reading; otherwise 0.
+    pub raw: i32,
+    /// For a station step: 1 the first time this fault is seen in a row (report it then).
+    pub first: bool,
+}
+
+/// The three lines a station drives.
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum lg_line {
+    /// The GO line.
+    LG_LINE_GO = 0,
+    /// The NO-GO line.
+    LG_LINE_NOGO = 1,
+    /// The RECHECK line.
+    LG_LINE_RECHECK = 2,
+}
+
+/// 64-bit words of storage in an [`lg_classifier`].
+pub const LG_CLASSIFIER_WORDS: usize = 320;
+/// 64-bit words of storage in an [`lg_station`].
+pub const LG_STATION_WORDS: usize = 336;
+
+/// A validated model, in storage the caller owns (a static or a stack variable; no heap).
+/// Set it up with [`lg_load`]; its contents are private.
+#[repr(C)]
+pub struct lg_classifier {
+    /// Private.
+    pub opaque: [u64; LG_CLASSIFIER_WORDS],
+}
+
+/// A station: model, sensor callback and line callback, in storage the caller owns. Set it
+/// up with [`lg_station_init`]; its contents are private.
+#[repr(C)]
+pub struct lg_station {
+    /// Private.
+    pub opaque: [u64; LG_STATION_WORDS],
+}

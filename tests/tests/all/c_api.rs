@@ -1,0 +1,208 @@
+//! The C interface (firmware/c-api): its committed header is the one cbindgen generates
+//! from the source, and the C example station built against it on this machine prints,
+//! for 100,000 vectors, exactly the lines `linegate replay` prints.
+
+use std::path::Path;
+use std::process::Command;
+
+/// The header cbindgen (the registry's C-binding generator) makes from the crate now.
+fn generated_header() -> String {
+    let krate = crate::root().join("firmware/c-api");
+    let config = cbindgen::Config::from_file(krate.join("cbindgen.toml")).unwrap();
+    let mut out = Vec::new();
+    cbindgen::Builder::new()
+        .with_crate(&krate)
+        .with_config(config)
+        .generate()
+        .unwrap()
+        .write(&mut out);
+    String::from_utf8(out).unwrap()
+}
+
+/// `LINEGATE_BLESS=1 cargo test -p tests c_header` rewrites the committed header.
+#[test]
+fn c_header_is_the_one_cbindgen_generates() {
+    let path = crate::root().join("firmware/c-api/include/linegate.h");
+    let fresh = generated_header();
+    if std::env::var("LINEGATE_BLESS").is_ok_and(|v| v == "1") {
+        std::fs::write(&path, &fresh).unwrap();
+    }
+    let committed = std::fs::read_to_string(&path).unwrap_or_default();
+    assert!(
+        committed == fresh,
+        "firmware/c-api/include/linegate.h is stale: run LINEGATE_BLESS=1 cargo test -p tests c_header"
+    );
+    for f in [
+        "lg_load",
+        "lg_classify",
+        "lg_model_id",
+        "lg_blob_id",
+        "lg_channel_count",
+        "lg_channel_name",
+        "lg_station_init",
+        "lg_station_step",
+        "lg_station_ids",
+    ] {
+        assert!(fresh.contains(&format!(" {f}(")), "{f} declared");
+    }
+}
+
+fn tool(name: &str) -> Result<(), String> {
+    Command::new(name)
+        .arg("--version")
+        .output()
+        .map(|_| ())
+        .map_err(|_| format!("{name} not found"))
+}
+
+/// The `linegate` binary, built in release (the tests crate has no binary of its own).
+pub fn linegate_bin() -> std::path::PathBuf {
+    let st = Command::new("cargo")
+        .args(["build", "-q", "--release", "-p", "host-trainer"])
+        .current_dir(crate::root())
+        .status()
+        .unwrap();
+    assert!(st.success(), "building linegate failed");
+    std::env::var_os("CARGO_TARGET_DIR")
+        .map_or_else(|| crate::root().join("target"), Into::into)
+        .join("release/linegate")
+}
+
+fn linegate(dir: &Path, args: &[&str]) -> std::process::Output {
+    let o = Command::new(linegate_bin())
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "linegate {args:?}: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    o
+}
+
+/// Builds the static library for `target` (None: this machine) in release.
+pub fn build_c_library(target: Option<&str>) {
+    let mut cmd = Command::new("cargo");
+    cmd.args(["build", "--release", "-q"]);
+    if let Some(t) = target {
+        cmd.args(["--target", t]);
+    }
+    let st = cmd
+        .current_dir(crate::root().join("firmware/c-api"))
+        .env_remove("CARGO_TARGET_DIR")
+        .status()
+        .unwrap();
+    assert!(st.success(), "c-api build for {target:?} failed");
+}
+
+#[test]
+fn c_example_on_the_host_prints_what_replay_prints_for_100000_vectors() {
+    if let Err(why) = tool("gcc").and_then(|_| tool("make")) {
+        return crate::skip_or_fail("C example on the host", &why);
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    linegate(
+        d,
+        &[
+            "-q",
+            "generate",
+            "--rows",
+            "100000",
+            "--channels",
+            "16",
+            "--seed",
+            "11",
+            "-o",
+            "g.csv",
+        ],
+    );
+    linegate(
+        d,
+        &[
+            "-q", "train", "g.csv", "--sheet", "g.toml", "--folds", "0", "-o", "m.json",
+        ],
+    );
+    linegate(
+        d,
+        &[
+            "-q",
+            "pack",
+            "--model",
+            "m.json",
+            "--train",
+            "g.csv",
+            "-o",
+            "m.lgmb",
+            "--override-audit",
+        ],
+    );
+    // Every 997th unit gets a reading far outside its channel's range: a FAULT line each.
+    let text = std::fs::read_to_string(d.join("g.csv")).unwrap();
+    let mut faulted = 0;
+    let log: String = text
+        .lines()
+        .enumerate()
+        .map(|(k, l)| {
+            if k > 0 && k % 997 == 0 {
+                faulted += 1;
+                let mut cells: Vec<&str> = l.split(',').collect();
+                let c = 1 + k % 16; // a channel column (after the unit id)
+                cells[c] = "99999999";
+                cells.join(",") + "\n"
+            } else {
+                format!("{l}\n")
+            }
+        })
+        .collect();
+    std::fs::write(d.join("faulty.csv"), log).unwrap();
+    let replay = linegate(
+        d,
+        &[
+            "replay",
+            "--blob",
+            "m.lgmb",
+            "--model",
+            "m.json",
+            "faulty.csv",
+            "--vectors",
+            "v.txt",
+        ],
+    )
+    .stdout;
+    let replay = String::from_utf8(replay).unwrap();
+
+    build_c_library(None);
+    let example = crate::root().join("firmware/c-example");
+    let bin = d.join("station-host");
+    let st = Command::new("make")
+        .args(["-s", "host"])
+        .arg(format!("OUT={}", bin.display()))
+        .current_dir(&example)
+        .status()
+        .unwrap();
+    assert!(st.success(), "make host failed");
+    let o = Command::new(&bin)
+        .arg(d.join("m.lgmb"))
+        .arg(d.join("v.txt"))
+        .output()
+        .unwrap();
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let c = String::from_utf8(o.stdout).unwrap();
+    let host: Vec<&str> = replay.lines().collect();
+    let device: Vec<&str> = c.lines().filter(|l| !l.starts_with("# lines")).collect();
+    assert_eq!(host.len(), 100_001, "the model line and 100,000 units");
+    assert_eq!(device.len(), host.len(), "one line per unit");
+    for (i, (a, b)) in device.iter().zip(&host).enumerate() {
+        assert_eq!(a, b, "line {i}: the C station and replay differ");
+    }
+    let faults = host.iter().filter(|l| l.contains(" FAULT ch")).count();
+    assert_eq!(faults, faulted, "each damaged unit is a FAULT");
+}
