@@ -19,7 +19,19 @@ static int semihost(int op, const void *arg) {
     return r0;
 }
 
-void board_write(const char *s) { semihost(0x04 /* SYS_WRITE0 */, s); }
+/* The host's standard output: SYS_OPEN of ":tt" for writing (mode 4), opened once. */
+static int console = -1;
+
+void board_write(const char *s) {
+    if (console < 0) {
+        const void *open_args[3] = {":tt", (const void *)4, (const void *)3};
+        console = semihost(0x01 /* SYS_OPEN */, open_args);
+    }
+    uint32_t n = 0;
+    while (s[n]) n++;
+    const void *write_args[3] = {(const void *)(intptr_t)console, s, (const void *)(uintptr_t)n};
+    semihost(0x05 /* SYS_WRITE */, write_args);
+}
 
 static void board_exit(int code) {
     /* SYS_EXIT with ADS_Stopped_ApplicationExit: QEMU exits with status 0; anything else

@@ -206,3 +206,157 @@ fn c_example_on_the_host_prints_what_replay_prints_for_100000_vectors() {
     let faults = host.iter().filter(|l| l.contains(" FAULT ch")).count();
     assert_eq!(faults, faulted, "each damaged unit is a FAULT");
 }
+
+/// The C example station, built by the Debian Arm GCC against the device static library,
+/// on an emulated Cortex-M0 (QEMU microbit) and Cortex-M4F (mps2-an386): each prints
+/// `linegate replay`'s lines for the same vectors (FAULTs included), drives the lines to
+/// the last verdict, and reports its stack and static RAM.
+#[test]
+fn c_example_on_cortex_m0_and_m4f_prints_what_replay_prints() {
+    if let Err(why) = tool("arm-none-eabi-gcc")
+        .and_then(|_| tool("qemu-system-arm"))
+        .and_then(|_| tool("make"))
+    {
+        return crate::skip_or_fail("C example under QEMU", &why);
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    linegate(
+        d,
+        &[
+            "-q",
+            "generate",
+            "--rows",
+            "2000",
+            "--channels",
+            "16",
+            "--seed",
+            "5",
+            "-o",
+            "g.csv",
+        ],
+    );
+    linegate(
+        d,
+        &[
+            "-q", "train", "g.csv", "--sheet", "g.toml", "--folds", "0", "-o", "m.json",
+        ],
+    );
+    linegate(
+        d,
+        &[
+            "-q",
+            "pack",
+            "--model",
+            "m.json",
+            "--train",
+            "g.csv",
+            "-o",
+            "m.lgmb",
+            "--override-audit",
+        ],
+    );
+    // 300 units, every 37th with a reading out of range.
+    let text = std::fs::read_to_string(d.join("g.csv")).unwrap();
+    let log: String = text
+        .lines()
+        .take(301)
+        .enumerate()
+        .map(|(k, l)| {
+            if k > 0 && k % 37 == 0 {
+                let mut cells: Vec<&str> = l.split(',').collect();
+                cells[1 + k % 16] = "-99999999";
+                cells.join(",") + "\n"
+            } else {
+                format!("{l}\n")
+            }
+        })
+        .collect();
+    std::fs::write(d.join("u.csv"), log).unwrap();
+    let replay = linegate(
+        d,
+        &[
+            "replay",
+            "--blob",
+            "m.lgmb",
+            "--model",
+            "m.json",
+            "u.csv",
+            "--vectors",
+            "v.txt",
+        ],
+    )
+    .stdout;
+    let replay = String::from_utf8(replay).unwrap();
+    assert_eq!(replay.lines().count(), 301);
+    for (board, make, machine, cpu, target) in [
+        (
+            "Cortex-M0",
+            "m0",
+            "microbit",
+            "cortex-m0",
+            "thumbv6m-none-eabi",
+        ),
+        (
+            "Cortex-M4F",
+            "m4f",
+            "mps2-an386",
+            "cortex-m4",
+            "thumbv7em-none-eabihf",
+        ),
+    ] {
+        build_c_library(Some(target));
+        let st = Command::new("make")
+            .args(["-s", make])
+            .arg(format!("BLOB={}", d.join("m.lgmb").display()))
+            .arg(format!("VECTORS={}", d.join("v.txt").display()))
+            .arg(format!("BUILD={}", d.display()))
+            .current_dir(crate::root().join("firmware/c-example"))
+            .status()
+            .unwrap();
+        assert!(
+            st.success(),
+            "{board}: make {make} failed (the panic-never proof is part of the link)"
+        );
+        let elf = d.join(format!("station-{make}.elf"));
+        let o = Command::new("timeout")
+            .args([
+                "120",
+                "qemu-system-arm",
+                "-machine",
+                machine,
+                "-cpu",
+                cpu,
+                "-nographic",
+            ])
+            .args(["-semihosting-config", "enable=on,target=native", "-kernel"])
+            .arg(&elf)
+            .output()
+            .unwrap();
+        let out = String::from_utf8_lossy(&o.stdout).into_owned();
+        assert_eq!(o.status.code(), Some(0), "{board}: {out}");
+        let lines: Vec<&str> = out
+            .lines()
+            .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
+            .collect();
+        let want: Vec<&str> = replay.lines().collect();
+        assert_eq!(lines, want, "{board}: the device and replay differ");
+        let last = want.last().unwrap();
+        let go = if last.contains(" GO ") { 1 } else { 0 };
+        assert!(
+            out.contains(&format!("# lines: GO={go} NO-GO={}", 1 - go)),
+            "{board}: {out}"
+        );
+        let stack: u32 = out
+            .lines()
+            .find_map(|l| l.strip_prefix("# stack bytes used: "))
+            .unwrap()
+            .parse()
+            .unwrap();
+        assert!(
+            stack > 0 && stack < 12 * 1024,
+            "{board}: stack {stack} bytes within 16 KiB RAM"
+        );
+        eprintln!("{board}: C example agrees with replay on 300 vectors; stack {stack} bytes");
+    }
+}
