@@ -1,4 +1,4 @@
-//! Puts memory.x on the linker path, links in the test vectors named by
+//! Puts the board's memory layout (memory.x, by target) on the linker path, links in the test vectors named by
 //! LINEGATE_VECTORS (one unit per line, raw readings separated by spaces), and compiles in
 //! the release key named by LINEGATE_PUBLIC_KEY (a `.pub` file from `linegate key new`):
 //! a build with a key is a signed-release build, which loads only blobs signed with it.
@@ -10,9 +10,18 @@ use std::path::PathBuf;
 
 fn main() {
     let out = PathBuf::from(env::var_os("OUT_DIR").expect("OUT_DIR"));
-    fs::copy("memory.x", out.join("memory.x")).expect("copy memory.x");
+    // One memory layout per board (the M3 and M4F boards share one: flash at 0, RAM at
+    // 0x20000000). None is called memory.x: the linker would find that in this folder first.
+    let target = env::var("TARGET").unwrap_or_default();
+    let memory = match target.as_str() {
+        "thumbv6m-none-eabi" => "memory-microbit.x",
+        "thumbv8m.main-none-eabihf" => "memory-an505.x",
+        "riscv32imac-unknown-none-elf" => "memory-sifive-e.x",
+        _ => "memory-lm3s6965.x",
+    };
+    fs::copy(memory, out.join("memory.x")).expect("copy the memory layout");
     println!("cargo:rustc-link-search={}", out.display());
-    println!("cargo:rerun-if-changed=memory.x");
+    println!("cargo:rerun-if-changed={memory}");
     println!("cargo:rerun-if-env-changed=LINEGATE_VECTORS");
     let mut rows: Vec<Vec<i32>> = Vec::new();
     if let Some(path) = env::var_os("LINEGATE_VECTORS") {

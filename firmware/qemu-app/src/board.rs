@@ -8,6 +8,42 @@ use core::sync::atomic::{AtomicBool, Ordering};
 use embedded_hal::digital::{ErrorType, OutputPin};
 use firmware::SensorSource;
 
+// The runtime and the semihosting console of each architecture, under one set of names.
+#[cfg(target_arch = "arm")]
+pub use cortex_m_rt::entry;
+#[cfg(target_arch = "arm")]
+pub use cortex_m_semihosting::{debug, hprint, hprintln};
+#[cfg(target_arch = "riscv32")]
+pub use riscv_rt::entry;
+#[cfg(target_arch = "riscv32")]
+pub use riscv_semihosting::{debug, hprint, hprintln};
+
+/// The current stack pointer.
+#[inline(always)]
+pub fn stack_pointer() -> usize {
+    #[cfg(target_arch = "arm")]
+    {
+        cortex_m::register::msp::read() as usize
+    }
+    #[cfg(target_arch = "riscv32")]
+    {
+        let sp: usize;
+        // SAFETY: reads the stack pointer register into a general register; no memory access.
+        unsafe { core::arch::asm!("mv {}, sp", out(reg) sp) };
+        sp
+    }
+}
+
+/// Waits for interrupts forever (after the semihosting exit, which QEMU honours at once).
+pub fn idle() -> ! {
+    loop {
+        #[cfg(target_arch = "arm")]
+        cortex_m::asm::wfi();
+        #[cfg(target_arch = "riscv32")]
+        riscv::asm::wfi();
+    }
+}
+
 unsafe extern "C" {
     // Defined in memory.x: the flash region that holds the model blob.
     static _model_start: u8;

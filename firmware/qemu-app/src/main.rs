@@ -1,4 +1,5 @@
-//! Example device application: validates the model blob in flash, classifies the
+//! Example device application (Cortex-M0, M3, M4F, M33 and RV32IMAC under QEMU; the board
+//! module holds what differs): validates the model blob in flash, classifies the
 //! linked-in vectors, prints one line per vector over semihosting (the same lines
 //! as `linegate replay`), and exits QEMU: 0 after the vectors, 2 on a bad blob.
 #![no_std]
@@ -6,10 +7,19 @@
 
 mod board;
 
-use cortex_m_rt::entry;
-use cortex_m_semihosting::{debug, hprint, hprintln};
+use board::{debug, entry, hprint, hprintln};
 use firmware::{Classifier, Decision, Fault, GoNoGoLines, Station, StationFault, Step};
+#[cfg(target_arch = "arm")]
 use panic_semihosting as _;
+
+/// On RISC-V there is no semihosting panic crate: report and exit with failure.
+#[cfg(target_arch = "riscv32")]
+#[panic_handler]
+fn panic(_: &core::panic::PanicInfo) -> ! {
+    hprintln!("panic");
+    debug::exit(debug::EXIT_FAILURE);
+    board::idle()
+}
 
 mod vectors {
     include!(concat!(env!("OUT_DIR"), "/vectors.rs"));
@@ -62,9 +72,7 @@ fn main() -> ! {
         hprintln!("FAULT blob: {}", e);
         report_lines();
         debug::exit(Err(()));
-        loop {
-            cortex_m::asm::wfi();
-        }
+        board::idle()
     }
     let count = vectors::VECTORS
         .len()
@@ -72,7 +80,7 @@ fn main() -> ! {
         .unwrap_or(0);
     let mut deepest = 0usize;
     for i in 0..count {
-        let top = cortex_m::register::msp::read() as usize;
+        let top = board::stack_pointer();
         let painted = board::paint_stack(top);
         let step = station.step();
         deepest = deepest.max(board::stack_used(painted, top));
@@ -105,9 +113,7 @@ fn main() -> ! {
     hprintln!("# stack bytes used by one step: {}", deepest);
     report_lines();
     debug::exit(Ok(()));
-    loop {
-        cortex_m::asm::wfi();
-    }
+    board::idle()
 }
 
 /// One classification by the shared kernel (not inlined, so its instructions can be counted).

@@ -247,3 +247,164 @@ fn a_signed_release_build_runs_only_the_owners_blob() {
         );
     }
 }
+
+/// Whether `target`'s standard library is installed (rustup target add).
+fn have_target(target: &str) -> Result<(), String> {
+    let sysroot = Command::new("rustc")
+        .args(["--print", "sysroot"])
+        .output()
+        .map_err(|e| e.to_string())?;
+    let sysroot = String::from_utf8_lossy(&sysroot.stdout).trim().to_string();
+    if Path::new(&sysroot)
+        .join("lib/rustlib")
+        .join(target)
+        .exists()
+    {
+        Ok(())
+    } else {
+        Err(format!(
+            "rust target {target} not installed (rustup target add {target})"
+        ))
+    }
+}
+
+/// The Rust example on every core of the device range, each on its QEMU board with the blob
+/// loaded raw at the board's model address: the same lines as `replay` for 300 holdout
+/// vectors, the lines left at the last verdict, and a small stack for one step.
+#[test]
+fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
+    let boards = [
+        (
+            "Cortex-M0",
+            "thumbv6m-none-eabi",
+            "qemu-system-arm",
+            "microbit",
+            Some("cortex-m0"),
+            "0x3F000",
+        ),
+        (
+            "Cortex-M3",
+            "thumbv7m-none-eabi",
+            "qemu-system-arm",
+            "lm3s6965evb",
+            Some("cortex-m3"),
+            "0x3F000",
+        ),
+        (
+            "Cortex-M4F",
+            "thumbv7em-none-eabihf",
+            "qemu-system-arm",
+            "mps2-an386",
+            Some("cortex-m4"),
+            "0x3F000",
+        ),
+        (
+            "Cortex-M33",
+            "thumbv8m.main-none-eabihf",
+            "qemu-system-arm",
+            "mps2-an505",
+            Some("cortex-m33"),
+            "0x1003F000",
+        ),
+        (
+            "RV32IMAC",
+            "riscv32imac-unknown-none-elf",
+            "qemu-system-riscv32",
+            "sifive_e",
+            None,
+            "0x2043F000",
+        ),
+    ];
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    host_trainer::demo::run(&out, false).unwrap();
+    let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt"))
+        .unwrap()
+        .lines()
+        .take(301)
+        .map(String::from)
+        .collect();
+    let vpath = dir.path().join("vectors.txt");
+    std::fs::write(&vpath, vectors.join("\n") + "\n").unwrap();
+    let replay = std::fs::read_to_string(out.join("replay-holdout.txt")).unwrap();
+    let want: Vec<&str> = replay.lines().take(301).collect();
+    let app = crate::root().join("firmware/qemu-app");
+    // Its own target folder: the other device tests build the M3 image with other vectors.
+    let target_dir = app.join("target/cores");
+    for (core, target, qemu, machine, cpu, addr) in boards {
+        let ready = Command::new(qemu)
+            .arg("--version")
+            .output()
+            .map_err(|_| {
+                format!("{qemu} not found (apt-get install qemu-system-arm qemu-system-misc)")
+            })
+            .and_then(|_| have_target(target));
+        if let Err(why) = ready {
+            crate::skip_or_fail(&format!("{core} under QEMU"), &why);
+            continue;
+        }
+        let st = Command::new("cargo")
+            .args([
+                "build",
+                "--release",
+                "--bin",
+                "linegate-qemu-app",
+                "--target",
+                target,
+            ])
+            .current_dir(&app)
+            .env("LINEGATE_VECTORS", &vpath)
+            .env("CARGO_TARGET_DIR", &target_dir)
+            .status()
+            .unwrap();
+        assert!(st.success(), "{core}: build failed");
+        let elf = target_dir.join(target).join("release/linegate-qemu-app");
+        let mut cmd = Command::new("timeout");
+        cmd.args(["120", qemu, "-machine", machine, "-nographic"]);
+        if let Some(cpu) = cpu {
+            cmd.args(["-cpu", cpu]);
+        } else {
+            cmd.args(["-bios", "none"]);
+        }
+        let o = cmd
+            .args(["-semihosting-config", "enable=on,target=native", "-kernel"])
+            .arg(&elf)
+            .arg("-device")
+            .arg(format!(
+                "loader,file={},addr={addr},force-raw=on",
+                out.join("model.lgmb").display()
+            ))
+            .output()
+            .unwrap();
+        let stdout = String::from_utf8_lossy(&o.stdout).into_owned();
+        assert_eq!(
+            o.status.code(),
+            Some(0),
+            "{core}: {stdout}{}",
+            String::from_utf8_lossy(&o.stderr)
+        );
+        let got: Vec<&str> = stdout
+            .lines()
+            .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
+            .collect();
+        assert_eq!(got, want, "{core}: the device and replay differ");
+        let last = want.last().unwrap();
+        let lines = if last.contains(" GO ") {
+            "# lines: GO=1 NO-GO=0"
+        } else {
+            "# lines: GO=0 NO-GO=1"
+        };
+        assert!(stdout.contains(lines), "{core}: {stdout}");
+        let stack: usize = stdout
+            .lines()
+            .find_map(|l| l.strip_prefix("# stack bytes used by one step: "))
+            .unwrap()
+            .trim()
+            .parse()
+            .unwrap();
+        assert!(stack > 0 && stack < 512, "{core}: stack {stack} bytes");
+        eprintln!(
+            "{core}: Rust example agrees with replay on 300 vectors; one step {stack} stack bytes"
+        );
+    }
+}

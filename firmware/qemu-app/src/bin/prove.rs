@@ -4,13 +4,13 @@
 #![no_std]
 #![no_main]
 
-#[allow(dead_code)]
+#[allow(dead_code, unused_imports)]
 #[path = "../board.rs"]
 mod board;
 
 use core::sync::atomic::{AtomicI32, AtomicU32, Ordering};
 
-use cortex_m_rt::entry;
+use board::entry;
 use firmware::{GoNoGoLines, SensorSource, Station, Step};
 use panic_never as _;
 
