@@ -109,12 +109,13 @@ fn inspect(
                 ins.audit.as_deref().unwrap_or("?")
             );
             say!(
-                "inputs Q{} ({}-bit); weights {}-bit, {} fractional bits; accumulator {} bits",
+                "inputs Q{} ({}-bit); weights {}-bit, {} fractional bits; accumulator {} bits; device kernel in {}-bit arithmetic",
                 ins.input_bits.unwrap_or(0).saturating_sub(1),
                 ins.input_bits.unwrap_or(0),
                 ins.weight_bits.unwrap_or(0),
                 ins.weight_frac_bits.unwrap_or(0),
-                ins.acc_bits.unwrap_or(0)
+                ins.acc_bits.unwrap_or(0),
+                if ins.narrow == Some(true) { 32 } else { 64 }
             );
             say!(
                 "bias {}; NO-GO at score <= {}; GO at score >= {}",

@@ -177,9 +177,22 @@ impl ChannelScale {
 
     /// The fixed-point conversion for an input word of `input_bits`: (multiplier, shift).
     ///
-    /// Picks the largest shift whose multiplier fits an i32, so the ratio is as exact as the blob allows.
+    /// Where it can, a narrow one: the product (raw − offset)·multiplier stays below 2^31
+    /// (shift at most 31) with a multiplier of at least 2^15, so the device converts in
+    /// 32-bit arithmetic (`CheckedModel::is_narrow`) at no cost to the rounding bound: the
+    /// ideal weights divide by the conversion's exact ratio κ, whatever its precision, and
+    /// the scaled input keeps its full word. Otherwise (ranges wider than about 2^16
+    /// counts) the largest shift whose multiplier fits an i32, the ratio as exact as the
+    /// blob allows.
     pub fn conversion(&self, input_bits: u8) -> (i32, u8) {
         let limit = (1i128 << (input_bits - 1)) - 1;
+        let half = i128::from(self.half);
+        for shift in (0..=31u8).rev() {
+            let mul = (limit << shift) / half;
+            if mul >= 1 << 15 && mul * half < 1i128 << 31 {
+                return (mul as i32, shift);
+            }
+        }
         for shift in (0..=46u8).rev() {
             let mul = (limit << shift) / i128::from(self.half);
             if mul >= 1
@@ -394,6 +407,14 @@ mod tests {
                     "{lo}..{hi} at {bits} bits"
                 );
                 assert!(x(c.raw_max) >= limit - 1, "range uses the word");
+                // ADC-sized ranges convert in 32 bits on the device.
+                let span = (i128::from(c.raw_max) - i128::from(c.offset))
+                    .max(i128::from(c.offset) - i128::from(c.raw_min));
+                assert_eq!(
+                    span * i128::from(mul) < 1 << 31 && shift <= 31,
+                    span < 1 << 16,
+                    "{lo}..{hi}: narrow exactly when the range allows"
+                );
             }
         }
     }

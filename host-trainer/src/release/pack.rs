@@ -42,6 +42,9 @@ pub struct Inspection {
     pub weight_frac_bits: Option<u8>,
     /// Accumulator bits.
     pub acc_bits: Option<u8>,
+    /// Whether the device kernel runs this model in 32-bit arithmetic only
+    /// (`CheckedModel::is_narrow`: a proved 32-bit accumulator and conversions below 2^31).
+    pub narrow: Option<bool>,
     /// Bias.
     pub bias: Option<i64>,
     /// NO-GO at or below.
@@ -85,12 +88,14 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) 
         weight_bits: None,
         weight_frac_bits: None,
         acc_bits: None,
+        narrow: None,
         bias: None,
         nogo_max: None,
         go_min: None,
         channels: Vec::new(),
     };
     if let Ok(m) = &decoded {
+        ins.narrow = Some(m.is_narrow());
         let m = m.model();
         ins.model_id = Some(crate::digest::lower_hex(&m.model_id));
         ins.blob_id = blob::blob_id(bytes).map(|id| format!("{id:08x}"));
