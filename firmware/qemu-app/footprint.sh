@@ -1,14 +1,24 @@
 #!/usr/bin/env bash
-# Footprint of the example device application on the QEMU lm3s6965evb (Cortex-M3), for a
-# 16-channel model: flash and RAM by section, stack used by one step (stack painting),
-# and instructions executed per classification (QEMU one-instruction-per-block trace).
-# Usage: firmware/qemu-app/footprint.sh   (needs qemu-system-arm, binutils-arm-none-eabi, python3)
+# Footprint of the example device application on every core it runs on, for a 16-channel
+# model at 8- and 16-bit weights: flash and RAM of the example and of Linegate's code in it,
+# stack used by one step (stack painting), and instructions executed per classification
+# (QEMU one-instruction-per-block trace): the dot product alone, the kernel's classify, and
+# the whole step (read + classify + drive lines). One Markdown table per target.
+# Usage: firmware/qemu-app/footprint.sh [target ...]
+#   (needs qemu-system-arm, qemu-system-riscv32 for RISC-V, binutils' nm, python3)
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
 root=$(cd "$here/../.." && pwd)
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
-for tool in qemu-system-arm arm-none-eabi-size arm-none-eabi-nm python3; do
+# target, QEMU, machine, CPU (or - for none), model address
+boards="thumbv6m-none-eabi qemu-system-arm microbit cortex-m0 0x3F000
+thumbv7m-none-eabi qemu-system-arm lm3s6965evb cortex-m3 0x3F000
+thumbv7em-none-eabihf qemu-system-arm mps2-an386 cortex-m4 0x3F000
+thumbv8m.main-none-eabihf qemu-system-arm mps2-an505 cortex-m33 0x1003F000
+riscv32imac-unknown-none-elf qemu-system-riscv32 sifive_e - 0x2043F000"
+wanted=("$@")
+for tool in qemu-system-arm nm python3; do
   if ! command -v "$tool" >/dev/null; then
     echo "======== SKIPPED: footprint: $tool not found ========"
     exit 0
@@ -17,55 +27,113 @@ done
 # Run from the workspace root: .cargo/config.toml here would build the host tool for the device.
 lg() { (cd "$root" && cargo run -q --release -p host-trainer -- -q "$@"); }
 lg generate --rows 2000 --channels 16 --seed 7 -o "$work/gen16.csv"
+# Readings as a 14-bit ADC gives them (20,000 counts per channel), not the generator's
+# 0.001 steps: the range a sensor channel on a small core has.
+sed -i 's/^lsb = 0.001$/lsb = 0.05/' "$work/gen16.toml"
 lg train "$work/gen16.csv" --sheet "$work/gen16.toml" --folds 0 -o "$work/m16.json"
-lg pack --model "$work/m16.json" --train "$work/gen16.csv" -o "$work/m16.lgmb" --hex 0x3F000
-lg replay --blob "$work/m16.lgmb" --model "$work/m16.json" "$work/gen16.csv" --vectors "$work/v.txt" > /dev/null
+for w in 8 16; do
+  lg pack --model "$work/m16.json" --train "$work/gen16.csv" --weight-bits "$w" -o "$work/m16-w$w.lgmb" --override-audit
+  (cd "$root" && cargo run -q --release -p host-trainer -- inspect "$work/m16-w$w.lgmb") \
+    | grep -o 'device kernel in [0-9]*-bit' | grep -o '[0-9]*-bit' > "$work/kernel-$w.txt"
+done
+lg replay --blob "$work/m16-w8.lgmb" --model "$work/m16.json" "$work/gen16.csv" --vectors "$work/v.txt" > /dev/null
 head -5 "$work/v.txt" > "$work/v4.txt"  # the model line and 4 vectors
-(cd "$here" && LINEGATE_VECTORS="$work/v4.txt" cargo build -q --release --bin linegate-qemu-app)
-elf="$here/target/thumbv7m-none-eabi/release/linegate-qemu-app"
-echo "== sections (bytes), linegate-qemu-app, release"
-arm-none-eabi-size -A "$elf" | awk '$1 ~ /^\.(vector_table|text|rodata|data|bss|uninit)$/ {print "  " $1, $2; if ($1==".data"||$1==".bss"||$1==".uninit") ram+=$2; else flash+=$2} END {print "  flash total " flash " bytes; RAM total " ram " bytes (no heap)"}'
-timeout 120 qemu-system-arm -cpu cortex-m3 -machine lm3s6965evb -nographic \
-  -semihosting-config enable=on,target=native -kernel "$elf" \
-  -device loader,file="$work/m16.hex" -singlestep -d nochain,exec -D "$work/trace.log" > "$work/out.txt" 2>/dev/null
-grep '^#' "$work/out.txt" | sed 's/^# /  /'
-arm-none-eabi-nm -C -S "$elf" > "$work/syms.txt"
-python3 - "$work/syms.txt" "$work/trace.log" <<'PY'
-import re, sys
-syms = {}
-for line in open(sys.argv[1]):
+while read -r target qemu machine cpu addr; do
+  if [ ${#wanted[@]} -gt 0 ] && [[ ! " ${wanted[*]} " == *" $target "* ]]; then continue; fi
+  if ! command -v "$qemu" >/dev/null; then
+    echo "======== SKIPPED: footprint on $target: $qemu not found ========"
+    continue
+  fi
+  if ! (cd "$here" && LINEGATE_VECTORS="$work/v4.txt" CARGO_TARGET_DIR="$here/target/footprint" \
+        cargo build -q --release --bin linegate-qemu-app --target "$target" < /dev/null); then
+    echo "======== SKIPPED: footprint on $target: build failed (rustup target add $target?) ========"
+    continue
+  fi
+  elf="$here/target/footprint/$target/release/linegate-qemu-app"
+  cpuarg=(-cpu "$cpu"); [ "$cpu" = - ] && cpuarg=(-bios none)
+  for w in 8 16; do
+    timeout 300 "$qemu" -machine "$machine" "${cpuarg[@]}" -nographic \
+      -semihosting-config enable=on,target=native -kernel "$elf" \
+      -device loader,file="$work/m16-w$w.lgmb",addr="$addr",force-raw=on \
+      -singlestep -d nochain,exec -D "$work/trace-$w.log" > "$work/out-$w.txt" 2>/dev/null < /dev/null || true
+  done
+  nm -C -S --size-sort "$elf" > "$work/syms.txt" 2>/dev/null || true
+  # Section sizes from the ELF headers (works for Arm and RISC-V alike).
+  python3 - "$target" "$elf" "$work" <<'PY'
+import re, struct, sys
+target, elf, work = sys.argv[1], sys.argv[2], sys.argv[3]
+data = open(elf, "rb").read()
+# ELF32 little-endian section headers.
+shoff, = struct.unpack_from("<I", data, 0x20)
+shentsize, shnum, shstrndx = struct.unpack_from("<HHH", data, 0x2E)
+def sh(i):
+    return struct.unpack_from("<IIIIIIIIII", data, shoff + i * shentsize)
+strtab = sh(shstrndx)
+names = data[strtab[4]:strtab[4] + strtab[5]]
+flash = ram = 0
+for i in range(shnum):
+    name_off, typ, flags, addr, off, size = sh(i)[:6]
+    name = names[name_off:names.index(b"\0", name_off)].decode()
+    if not flags & 2 or size == 0:  # SHF_ALLOC
+        continue
+    if typ == 8:  # NOBITS: .bss, .uninit, stack and heap reservations
+        if name in (".bss", ".uninit", ".sbss"):
+            ram += size
+    else:
+        if name in (".data", ".sdata"):
+            ram += size
+        flash += size
+# Linegate's own code and data in the image: the firmware and shared-model crates and the
+# format crates they decode with.
+ours = 0
+funcs = []
+for line in open(work + "/syms.txt"):
     p = line.split(None, 3)
-    if len(p) == 4 and p[2] in "tT":
-        syms[p[3].strip()] = (int(p[0], 16), int(p[1], 16))
-def find(pat):
-    for name, v in syms.items():
-        if re.search(pat, name):
-            return name, v
-    return None, None
-pcs = []
-for line in open(sys.argv[2]):
-    m = re.search(r"\[[0-9a-f]+/([0-9a-f]+)/", line)
-    if m:
-        pcs.append(int(m.group(1), 16))
-# Count executed instructions from a function's entry until control returns after the call
-# site (callees included): entry is reached by a 32-bit BL, so the return lands 4 bytes on.
-for label, pat in [
-    ("dot product only: bias + sum of weight x scaled input (16 channels)", r"score_once"),
-    ("kernel classify: range checks + conversion + dot product + verdict (16 channels)", r"classify_once"),
-    ("whole step: read sensors + classify + drive lines (16 channels)", r"Station.*::step$"),
-]:
-    name, v = find(pat)
-    if not v:
-        print(f"  {label}: symbol not found"); continue
-    start = v[0] & ~1
-    counts, k = [], 0
+    if len(p) == 4:
+        addr, size, kind, name = int(p[0], 16), int(p[1], 16), p[2], p[3].strip()
+        if kind in "tT":
+            funcs.append((addr & ~1, size, name))
+        if re.match(r"<?(firmware|shared_model|postcard|crc|heapless)::", name) and kind in "tTrR":
+            ours += size
+funcs.sort()
+def containing(pc):
+    for a, s, n in funcs:
+        if a <= pc < a + s:
+            return (a, s, n)
+    return None
+def count(trace, pat):
+    """Instructions from entry into the function matching `pat` until control is back in
+    the function that called it (callees included); the worst of all calls."""
+    entry = next(((a, s, n) for a, s, n in funcs if re.search(pat, n)), None)
+    if not entry:
+        return None
+    pcs = []
+    for line in open(trace, errors="replace"):
+        m = re.search(r"\[[0-9a-f]+/([0-9a-f]+)/", line)
+        if m:
+            pcs.append(int(m.group(1), 16))
+    best, k = [], 1
     while k < len(pcs):
-        if pcs[k] == start and k > 0:
-            ret, n, k = pcs[k - 1] + 4, 0, k + 1
-            while k < len(pcs) and pcs[k] != ret:
+        if pcs[k] == entry[0] and not (entry[0] <= pcs[k - 1] < entry[0] + entry[1]):
+            caller = containing(pcs[k - 1])
+            n, k = 1, k + 1
+            while k < len(pcs) and not (caller and caller[0] <= pcs[k] < caller[0] + caller[1]):
                 n, k = n + 1, k + 1
-            counts.append(n + 1)
+            best.append(n)
         k += 1
-    if counts:
-        print(f"  {label}: {max(counts)} instructions per call, worst of {len(counts)} calls (min {min(counts)})")
+    return max(best) if best else None
+print(f"\n### {target}\n")
+print("| weights | device kernel | flash (example) | RAM (example, static) | Linegate code in flash | stack from reset through start-up | stack, one step | dot product (16 ch) | classify (16 ch) | whole step (16 ch) |")
+print("|---|---|---|---|---|---|---|---|---|---|")
+for w in (8, 16):
+    out = open(f"{work}/out-{w}.txt").read()
+    stack = re.search(r"stack bytes used by one step: (\d+)", out)
+    startup = re.search(r"stack bytes used from reset through start-up: (\d+)", out)
+    trace = f"{work}/trace-{w}.log"
+    cols = [count(trace, p) for p in (r"score_once", r"classify_once", r"Station.*::step$")]
+    kernel = open(f"{work}/kernel-{w}.txt").read().strip() or "?"
+    cell = lambda v: "–" if v is None else f"{v} instructions"
+    print(f"| {w}-bit | {kernel} | {flash} B | {ram} B | {ours} B | {startup.group(1) if startup else '–'} B | {stack.group(1) if stack else '–'} B | "
+          + " | ".join(cell(c) for c in cols) + " |")
 PY
+done <<< "$boards"

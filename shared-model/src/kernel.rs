@@ -127,6 +127,18 @@ impl CheckedModel {
     /// Inputs beyond the validated range make the result meaningless but never panic.
     #[inline]
     pub fn score_scaled(&self, x: &[i32]) -> i64 {
+        if self.is_narrow() {
+            // The 32-bit accumulator is proved for inputs in range (see `classify_narrow`).
+            #[allow(clippy::cast_possible_truncation)]
+            let bias = self.model().bias as i32;
+            let acc = self
+                .model()
+                .channels
+                .iter()
+                .zip(x)
+                .fold(bias, |acc, (c, &xi)| acc.wrapping_add(c.weight.wrapping_mul(xi)));
+            return i64::from(acc);
+        }
         self.model()
             .channels
             .iter()
@@ -391,6 +403,9 @@ mod tests {
             let d = m.classify(&raw).unwrap();
             prop_assert_eq!(i128::from(d.score), exact);
             prop_assert_eq!(wide.classify(&raw).unwrap(), d);
+            let mut x = [0i32; crate::limits::MAX_CHANNELS];
+            m.scale(&raw, &mut x[..raw.len()]).unwrap();
+            prop_assert_eq!(m.score_scaled(&x[..raw.len()]), d.score);
             // Faults are the same on both paths.
             let mut bad = raw.clone();
             bad[0] = m.model().channels[0].raw_max.wrapping_add(1);

@@ -140,6 +140,16 @@ pub fn paint_stack(top: usize) -> usize {
     }
 }
 
+/// The top of the stack (its first address above RAM's last word), where it starts at reset.
+pub fn stack_start() -> usize {
+    unsafe extern "C" {
+        // Defined by the runtime's linker script (cortex-m-rt and riscv-rt alike).
+        static _stack_start: u32;
+    }
+    // Only the symbol's address is taken, never its contents.
+    core::ptr::addr_of!(_stack_start) as usize
+}
+
 /// Stack bytes used below `top` since [`paint_stack`]: `top` minus the lowest overwritten word.
 pub fn stack_used(start: usize, top: usize) -> usize {
     let mut p = start;

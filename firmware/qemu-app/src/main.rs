@@ -47,11 +47,15 @@ fn main() -> ! {
     // A signed-release build (a key compiled in) loads only blobs signed with that key; a key
     // that is not a valid point loads nothing, so the station holds NO-GO.
     let key = release_key::RELEASE_KEY.map(|k| firmware::ReleaseKey::from_bytes(&k));
+    // Stack for start-up (the blob's validation), counted from reset: main's own frame
+    // (which holds the station) included, so it is all the RAM the application needs.
+    let painted = board::paint_stack(board::stack_pointer());
     let mut station = match key {
         None => Station::new(board::model_region(), sensor, lines),
         Some(Some(k)) => Station::with_key(board::model_region(), Some(k), sensor, lines),
         Some(None) => Station::new(&[], sensor, lines),
     };
+    let startup = board::stack_used(painted, board::stack_start());
     if let Ok(c) = station.classifier() {
         // The same first line as `linegate replay`: which model this device runs.
         hprint!("# model ");
@@ -111,6 +115,7 @@ fn main() -> ! {
         }
     }
     hprintln!("# stack bytes used by one step: {}", deepest);
+    hprintln!("# stack bytes used from reset through start-up: {}", startup);
     report_lines();
     debug::exit(Ok(()));
     board::idle()
