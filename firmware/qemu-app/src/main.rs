@@ -115,7 +115,10 @@ fn main() -> ! {
         }
     }
     hprintln!("# stack bytes used by one step: {}", deepest);
-    hprintln!("# stack bytes used from reset through start-up: {}", startup);
+    hprintln!(
+        "# stack bytes used from reset through start-up: {}",
+        startup
+    );
     report_lines();
     debug::exit(Ok(()));
     board::idle()
