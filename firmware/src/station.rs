@@ -8,6 +8,7 @@ use crate::{Classifier, GoNoGoLines, ReleaseKey, SensorSource};
 
 /// Why a step showed NO-GO without classifying.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum StationFault<SE> {
     /// The model blob failed validation (at start-up or on reload).
     Blob(DecodeError),
@@ -19,6 +20,7 @@ pub enum StationFault<SE> {
 
 /// The outcome of one [`Station::step`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum Step<SE> {
     /// Readings classified and the verdict shown.
     Decided(Decision),

@@ -4,6 +4,7 @@ use core::fmt;
 
 /// Why a fixed model was refused by validation (`CheckedModel::new`).
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum ModelError {
     /// The model has no channels.
     ZeroChannels,
@@ -100,6 +101,7 @@ impl core::error::Error for ModelError {}
 
 /// Why a blob could not be decoded.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum DecodeError {
     /// Fewer bytes than the header or the declared payload needs.
     Truncated {
@@ -192,6 +194,7 @@ impl From<ModelError> for DecodeError {
 
 /// Why a model could not be encoded.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum EncodeError {
     /// The output buffer is too small; [`MAX_BLOB_LEN`](crate::limits::MAX_BLOB_LEN) always suffices.
     BufferTooSmall,
@@ -207,6 +210,7 @@ impl core::error::Error for EncodeError {}
 
 /// Why a set of readings could not be classified. The device treats every fault as NO-GO.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum Fault {
     /// The number of readings differs from the model's channel count.
     ReadingCount {

@@ -18,6 +18,7 @@ use crate::model::{ChannelSpec, CheckedModel};
 
 /// The three outcomes a device shows.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum Verdict {
     /// The unit passes.
     Go,
@@ -40,6 +41,7 @@ impl Verdict {
 
 /// A classification: the exact integer score and the verdict it gives.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Decision {
     /// `bias + Σ weight_i · x_i`, in accumulator units.
     pub score: i64,
