@@ -138,7 +138,9 @@ impl CheckedModel {
                 .channels
                 .iter()
                 .zip(x)
-                .fold(bias, |acc, (c, &xi)| acc.wrapping_add(c.weight.wrapping_mul(xi)));
+                .fold(bias, |acc, (c, &xi)| {
+                    acc.wrapping_add(c.weight.wrapping_mul(xi))
+                });
             return i64::from(acc);
         }
         self.model()

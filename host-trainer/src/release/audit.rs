@@ -1004,21 +1004,26 @@ pub struct SweepRow {
     pub passed: bool,
     /// Blob bytes.
     pub blob_bytes: usize,
-    /// What one classification costs the device, in words: multiply-adds per
-    /// classification and the accumulator width they run in (an estimate until the
-    /// footprint runs measure each format).
+    /// What one classification costs the device, in words: the arithmetic the device
+    /// kernel runs the format in, and the instructions that took per channel on the
+    /// footprint model (Cortex-M0 and M3), scaled to this model's channels.
     pub kernel_cost: String,
 }
 
-/// A format's cost on the device in plain words: one multiply-add per channel, in a 32-bit
-/// accumulator (one instruction on any 32-bit core) or a 64-bit one (one instruction on
-/// cores with a long multiply, a library call per channel on those without).
-fn kernel_cost(channels: usize, acc_bits: u8) -> String {
-    if acc_bits <= 32 {
-        format!("{channels} multiply-adds, 32-bit sums")
-    } else {
-        format!("{channels} multiply-adds, 64-bit sums")
-    }
+/// A format's cost on the device in plain words: which arithmetic the device kernel runs
+/// it in (`CheckedModel::is_narrow`) and what that measured on the footprint model.
+fn kernel_cost(channels: usize, narrow: bool) -> String {
+    // Measured by firmware/qemu-app/footprint.sh (16 channels, QEMU instruction trace,
+    // 2026-12-02): classify takes 714 (Cortex-M0) / 426 (Cortex-M3) instructions in 32-bit
+    // arithmetic, 2,378 / 520 in 64-bit. Scaled per channel here.
+    let (m0, m3) = if narrow { (714, 426) } else { (2378, 520) };
+    let per = |n: usize| n * channels / 16;
+    format!(
+        "{}-bit kernel: about {} (Cortex-M0) / {} (Cortex-M3) instructions",
+        if narrow { 32 } else { 64 },
+        per(m0),
+        per(m3)
+    )
 }
 
 /// Weight word lengths the sweep tries, for each input word length in [`SWEEP_INPUTS`].
@@ -1082,7 +1087,7 @@ pub fn sweep(
                 guaranteed: r.guaranteed,
                 passed: r.passed,
                 blob_bytes: r.blob_bytes,
-                kernel_cost: kernel_cost(n, r.acc_bits),
+                kernel_cost: kernel_cost(n, q.model.is_narrow()),
             });
             if let Some(b) = &bar {
                 b.inc(1);

@@ -366,7 +366,7 @@ pub fn markdown(
     if let Some((rows, best)) = sweep {
         let _ = writeln!(
             s,
-            "\n## Word-length sweep\n\n| weights | inputs | acc | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes | device cost (estimate) |\n|---|---|---|---|---|---|---|---|---|---|"
+            "\n## Word-length sweep\n\n| weights | inputs | acc | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes | device cost per classification |\n|---|---|---|---|---|---|---|---|---|---|"
         );
         for (i, w) in rows.iter().enumerate() {
             let mark = if Some(i) == *best {
@@ -392,7 +392,7 @@ pub fn markdown(
         }
         let _ = writeln!(
             s,
-            "\nDevice cost: one multiply-add per channel per classification. 32-bit sums take one instruction each on any 32-bit core; 64-bit sums take one on cores with a long multiply (Cortex-M3, M4, M33) and a library call each on those without (Cortex-M0, M0+). Recommended: the passing format with the narrowest weights, then the narrowest inputs."
+            "\nDevice cost: the arithmetic the device kernel runs the format in (32-bit when the accumulator proof allows it and every channel's range is ADC-sized, else 64-bit), and the instructions one classification took per channel on the footprint model under QEMU (`firmware/qemu-app/footprint.sh`, 16 channels), scaled to this model's channels. Cores without a 64-bit multiply (Cortex-M0, M0+) pay most for 64-bit. Recommended: the passing format with the narrowest weights, then the narrowest inputs."
         );
     }
     let _ = writeln!(
