@@ -35,13 +35,15 @@ enum Role {
 /// A decimal with more fraction digits than k (a log read with observed scaling, whose lsb
 /// is coarser than the log's own digits) is converted as the general path converts it: its
 /// double (the same as the standard parser's, see [`Decimal::value`]) through
-/// [`ChannelScale::to_raw`] itself.
+/// [`ChannelScale::to_raw`]'s result (by [`ChannelScale::to_raw_inv`], which equals it).
 #[derive(Clone, Debug)]
 struct DecimalChannel {
     k: u32,
     raw_min: i64,
     raw_max: i64,
     scale: ChannelScale,
+    /// `scale.inv_lsb()`, for [`ChannelScale::to_raw_inv`].
+    inv: f64,
 }
 
 /// Most significant digits the fast path reads: 10¹⁵ is below 2⁵³ and below
@@ -59,7 +61,29 @@ impl DecimalChannel {
             raw_min: i64::from(s.raw_min),
             raw_max: i64::from(s.raw_max),
             scale: s.clone(),
+            inv: s.inv_lsb(),
         })
+    }
+
+    /// The raw count of a decimal with more fraction digits than k: N·10^-j with j extra
+    /// digits, rounded half away from zero, as the general path's double arithmetic rounds
+    /// it. That path is off the exact quotient by under 10⁻⁶ (see [`DecimalChannel`]), so
+    /// the two round alike unless the dropped digits are within 10⁻⁶ of a half; those
+    /// (ties among them) take the double path itself.
+    #[inline]
+    fn finer(&self, d: &Decimal) -> Option<i32> {
+        let p = *POW10.get((d.frac - self.k) as usize)?;
+        let (q, r) = (d.mant / p, d.mant % p);
+        let off = (2 * u128::from(r)).abs_diff(u128::from(p));
+        if off * 1_000_000 <= 2 * u128::from(p) {
+            return self.scale.to_raw_inv(d.value()?, self.inv);
+        }
+        let n = i64::try_from(q + u64::from(2 * r > p)).ok()?;
+        let n = if d.neg { -n } else { n };
+        if n < self.raw_min || n > self.raw_max {
+            return None;
+        }
+        i32::try_from(n).ok()
     }
 
     /// The raw count of the number at `pos`, and the position of the first byte after it.
@@ -67,7 +91,7 @@ impl DecimalChannel {
     fn raw(&self, rec: &[u8], pos: usize, comma: bool) -> Option<(i32, usize)> {
         let d = decimal(rec, pos, comma)?;
         if d.frac > self.k {
-            return Some((self.scale.to_raw(d.value()?)?, d.end));
+            return Some((self.finer(&d)?, d.end));
         }
         let n = i64::try_from(
             d.mant
@@ -445,6 +469,26 @@ mod tests {
                 prop_assert_eq!(d.value().map(f64::to_bits), Some(want.to_bits()), "{}", text);
             } else {
                 prop_assert!(d.is_none(), "{} has too many digits", text);
+            }
+        }
+
+        /// Decimals with more digits than the lsb whose dropped digits are a half, or all
+        /// but a half (…4999…, …5000…1): where exact rounding and the general path's double
+        /// arithmetic could part, the fast path still answers as the general path does.
+        #[test]
+        fn finer_decimals_round_as_the_general_path_at_halves(
+            neg in any::<bool>(),
+            whole in "[1-9][0-9]{0,5}",
+            kept in "[0-9]{0,2}",
+            tail in prop::sample::select(vec!["5", "50", "500000", "49", "4999999", "5000001", "51", "4", "6"]),
+        ) {
+            let k = kept.len() as u32;
+            let lsb = power_of_ten(-(k as i32));
+            let s = channel(lsb, -1e6 - 1.0, 1e6 + 1.0);
+            let c = DecimalChannel::for_scale(&s).unwrap();
+            let text = format!("{}{whole}.{kept}{tail}", if neg { "-" } else { "" });
+            if whole.len() + kept.len() + tail.len() <= MAX_DIGITS as usize {
+                prop_assert_eq!(field(&c, &text), general(&text, &s), "{}", text);
             }
         }
 

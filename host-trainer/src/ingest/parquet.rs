@@ -207,14 +207,19 @@ impl Plan<'_> {
             let refused = |v: f64| !is_reading(v);
             match self.scales.and_then(|s| s.get(j)) {
                 Some(s) => {
-                    raw.resize(values.len(), 0);
-                    for (i, (r, &v)) in raw.iter_mut().zip(&values).enumerate() {
-                        match s.to_raw(v) {
-                            Some(x) if !refused(v) => *r = x,
-                            None if self.keep_faults && !refused(v) => *r = s.raw_reading(v),
-                            _ => bad.push(i as u32),
-                        }
-                    }
+                    raw = s
+                        .to_raw_each(&values)
+                        .zip(&values)
+                        .enumerate()
+                        .map(|(i, (r, &v))| match r {
+                            Some(x) if !refused(v) => x,
+                            None if self.keep_faults && !refused(v) => s.raw_reading(v),
+                            _ => {
+                                bad.push(i as u32);
+                                0
+                            }
+                        })
+                        .collect();
                 }
                 None => bad.extend(
                     values

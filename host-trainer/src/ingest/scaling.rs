@@ -151,6 +151,45 @@ impl ChannelScale {
         }
     }
 
+    /// [`to_raw`](Self::to_raw) of many values, with the same results, faster (see
+    /// [`to_raw_inv`](Self::to_raw_inv)).
+    pub fn to_raw_each<'a>(&'a self, values: &'a [f64]) -> impl Iterator<Item = Option<i32>> + 'a {
+        let inv = self.inv_lsb();
+        values.iter().map(move |&v| self.to_raw_inv(v, inv))
+    }
+
+    /// 1/lsb, as [`to_raw_inv`](Self::to_raw_inv) wants it.
+    pub fn inv_lsb(&self) -> f64 {
+        1.0 / self.lsb
+    }
+
+    /// [`to_raw`](Self::to_raw) with the same result, by one multiply with `inv` (which must
+    /// be [`inv_lsb`](Self::inv_lsb)) instead of a division where that cannot change the
+    /// rounding: below 2^31 in magnitude the product is within 3·2^-53 of the quotient
+    /// relatively, under 2^-20 absolutely, so only a value within 2^-12 of a half-way
+    /// point could round otherwise; those, and anything out of the word, take the division.
+    #[inline]
+    pub fn to_raw_inv(&self, physical: f64, inv: f64) -> Option<i32> {
+        let q = (physical - self.zero) * inv;
+        if q.abs() < 2_147_483_648.0 {
+            // `as` truncates towards zero; |q| < 2^31, so the integer is exact.
+            let t = q as i64 as f64;
+            let f = q - t;
+            if (f.abs() - 0.5).abs() > 1.0 / 4096.0 {
+                let r = if f >= 0.5 {
+                    t + 1.0
+                } else if f <= -0.5 {
+                    t - 1.0
+                } else {
+                    t
+                };
+                return (r >= f64::from(self.raw_min) && r <= f64::from(self.raw_max))
+                    .then_some(r as i32);
+            }
+        }
+        self.to_raw(physical)
+    }
+
     /// The raw count a device reads for a physical value, in range or not: rounded as
     /// [`to_raw`](Self::to_raw) rounds, saturated to the 32-bit raw word.
     ///
@@ -380,6 +419,31 @@ mod tests {
         assert_eq!(c.scaled(c.raw_max), 1.0);
         assert_eq!(c.to_raw(900.04), Some(9000));
         assert_eq!(c.to_raw(900.06), None);
+    }
+
+    proptest::proptest! {
+        /// The batch conversion equals the one-value one on any value, near half-way
+        /// points and out of range included.
+        #[test]
+        fn batch_raw_equals_single(
+            lsb_exp in -6i32..2,
+            zero in -10.0f64..10.0,
+            raws in proptest::collection::vec(-3_000_000i64..3_000_000, 1..64),
+            jitter in proptest::collection::vec(-1.0f64..1.0, 64),
+        ) {
+            let lsb = power_of_ten(lsb_exp);
+            let c = ChannelScale::new("c", "", zero - 1e6 * lsb, zero + 1e6 * lsb, lsb, zero).unwrap();
+            // Values on, beside and half-way between raw counts, and a few far off.
+            let values: Vec<f64> = raws
+                .iter()
+                .zip(&jitter)
+                .map(|(&r, &j)| zero + (r as f64 + [0.0, 0.5, -0.5, j][(r & 3) as usize]) * lsb)
+                .chain([f64::NAN, f64::INFINITY, 1e300, -1e300])
+                .collect();
+            let batch: Vec<Option<i32>> = c.to_raw_each(&values).collect();
+            let single: Vec<Option<i32>> = values.iter().map(|&v| c.to_raw(v)).collect();
+            proptest::prop_assert_eq!(batch, single);
+        }
     }
 
     #[test]
