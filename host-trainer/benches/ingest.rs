@@ -5,7 +5,7 @@
 //!
 //! - CSV with commas (the reference), and with semicolons and decimal commas (a spreadsheet
 //!   set to a European locale): the reader should keep its speed on both;
-//! - Parquet as `linegate generate` writes it (snappy, 131,072-row groups), and, when
+//! - Parquet as `linegate generate` writes it (snappy, 1,048,576-row groups), and, when
 //!   pyarrow is installed, as pyarrow writes it by default (snappy, one large group) and
 //!   with zstd: the goal is Parquet faster than CSV.
 //!
@@ -82,7 +82,7 @@ fn main() {
         std::fs::write(&pq, bytes).unwrap();
     }
     forms.push((
-        "Parquet (linegate generate: snappy, 131,072-row groups)",
+        "Parquet (linegate generate: snappy, 1,048,576-row groups)",
         pq,
     ));
     // pyarrow, a general-purpose writer from the registries, with its defaults and with zstd.

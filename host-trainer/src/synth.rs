@@ -100,7 +100,7 @@ fn units<E>(
     Ok(())
 }
 
-/// [`write_log`] as a Parquet file (snappy-compressed, 131,072 rows per row group): the
+/// [`write_log`] as a Parquet file (snappy-compressed, up to 1,048,576 rows per row group, as pyarrow writes by default): the
 /// same units, `unit_id` and `label` as text and each channel as a 64-bit float holding
 /// exactly what the CSV's three-decimal text parses to.
 ///
@@ -122,7 +122,7 @@ pub fn write_log_parquet(
     use parquet::basic::Compression;
     use parquet::file::properties::WriterProperties;
 
-    const GROUP: usize = 131_072;
+    const GROUP: usize = 1_048_576;
     let mut fields = vec![Field::new("unit_id", DataType::Utf8, false)];
     fields.extend((0..channels).map(|j| Field::new(format!("ch{j:02}"), DataType::Float64, false)));
     fields.push(Field::new("label", DataType::Utf8, false));

@@ -23,6 +23,7 @@ use std::path::Path;
 use arrow_array::cast::AsArray;
 use arrow_array::types::{Float32Type, Float64Type};
 use arrow_array::{Array, ArrayRef};
+use arrow_buffer::ScalarBuffer;
 use arrow_schema::DataType;
 use parquet::arrow::ProjectionMask;
 use parquet::arrow::arrow_reader::{
@@ -139,7 +140,7 @@ enum Decoded {
     /// when the scan converts, the rows whose cell is refused (not finite, or outside the
     /// range), and the column itself for the message.
     Channel {
-        values: Vec<f64>,
+        values: ScalarBuffer<f64>,
         raw: Vec<i32>,
         bad: Vec<u32>,
         array: ArrayRef,
@@ -200,26 +201,31 @@ impl Plan<'_> {
     /// Converts column `c`'s cells of one slice.
     fn convert(&self, c: usize, array: ArrayRef, g: usize) -> Result<Decoded, InputError> {
         if let Some(j) = self.cols.channels.iter().position(|&k| k == c) {
-            let mut values = Vec::with_capacity(array.len());
-            numbers(&array, self.kinds[j], self.decimal_comma, &mut values);
+            let values = numbers(&array, self.kinds[j], self.decimal_comma);
             let mut bad = Vec::new();
             let mut raw = Vec::new();
             let refused = |v: f64| !is_reading(v);
             match self.scales.and_then(|s| s.get(j)) {
                 Some(s) => {
-                    raw = s
-                        .to_raw_each(&values)
-                        .zip(&values)
-                        .enumerate()
-                        .map(|(i, (r, &v))| match r {
-                            Some(x) if !refused(v) => x,
-                            None if self.keep_faults && !refused(v) => s.raw_reading(v),
-                            _ => {
-                                bad.push(i as u32);
-                                0
-                            }
-                        })
-                        .collect();
+                    let mut out_of_range = Vec::new();
+                    s.to_raw_slice(&values, &mut raw, &mut out_of_range);
+                    for i in out_of_range {
+                        let v = values.get(i as usize).copied().unwrap_or(f64::NAN);
+                        match raw.get_mut(i as usize) {
+                            Some(r) if self.keep_faults && !refused(v) => *r = s.raw_reading(v),
+                            _ => bad.push(i),
+                        }
+                    }
+                    // A value in range may still be refused (beyond the largest reading).
+                    bad.extend(
+                        values
+                            .iter()
+                            .enumerate()
+                            .filter(|&(_, &v)| refused(v))
+                            .map(|(i, _)| i as u32),
+                    );
+                    bad.sort_unstable();
+                    bad.dedup();
                 }
                 None => bad.extend(
                     values
@@ -578,7 +584,11 @@ impl Rows<'_> {
                 array,
             }) = of(c)
             {
-                channels.push(Channel { values, raw, array });
+                channels.push(Channel {
+                    values: &values[..],
+                    raw,
+                    array,
+                });
                 bad.extend_from_slice(b);
             }
         }
@@ -677,11 +687,16 @@ struct Channel<'a> {
     array: &'a ArrayRef,
 }
 
-/// Appends a batch column's cells as numbers to `out`; a null cell, or text that is not a
-/// number, as NaN (told apart by [`bad_cell`] when the row is refused).
-fn numbers(a: &ArrayRef, kind: Numbers, decimal_comma: bool, out: &mut Vec<f64>) {
+/// A batch column's cells as numbers; a null cell, or text that is not a number, as NaN
+/// (told apart by [`bad_cell`] when the row is refused). A float64 column without nulls
+/// is its own buffer, shared, not copied.
+fn numbers(a: &ArrayRef, kind: Numbers, decimal_comma: bool) -> ScalarBuffer<f64> {
     use std::fmt::Write;
-    let start = out.len();
+    if matches!(kind, Numbers::F64) && a.logical_nulls().is_none() {
+        return a.as_primitive::<Float64Type>().values().clone();
+    }
+    let mut out = Vec::with_capacity(a.len());
+    let start = 0;
     match kind {
         Numbers::F64 => out.extend_from_slice(a.as_primitive::<Float64Type>().values()),
         Numbers::F32 => {
@@ -724,6 +739,7 @@ fn numbers(a: &ArrayRef, kind: Numbers, decimal_comma: bool, out: &mut Vec<f64>)
             }
         }
     }
+    ScalarBuffer::from(out)
 }
 
 /// Cell `i` of a text column, trimmed; empty if null.
