@@ -210,7 +210,8 @@ fn main() {
         let sheet = log.with_extension("toml");
         if !log.exists() {
             let st = Command::new(&bin)
-                .args(["-q", "generate", "--rows", &rows.to_string(), "-o"])
+                // --force: a sheet left from an earlier run (its log removed) is rewritten.
+                .args(["-q", "generate", "--force", "--rows", &rows.to_string(), "-o"])
                 .arg(&log)
                 .status()
                 .unwrap();
