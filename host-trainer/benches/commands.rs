@@ -211,7 +211,14 @@ fn main() {
         if !log.exists() {
             let st = Command::new(&bin)
                 // --force: a sheet left from an earlier run (its log removed) is rewritten.
-                .args(["-q", "generate", "--force", "--rows", &rows.to_string(), "-o"])
+                .args([
+                    "-q",
+                    "generate",
+                    "--force",
+                    "--rows",
+                    &rows.to_string(),
+                    "-o",
+                ])
                 .arg(&log)
                 .status()
                 .unwrap();
