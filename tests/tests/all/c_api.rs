@@ -98,7 +98,8 @@ pub fn build_c_library(target: Option<&str>) {
 }
 
 #[test]
-fn c_example_on_the_host_prints_what_replay_prints_for_100000_vectors() {
+fn c_example_on_the_host_prints_what_replay_prints_for_100000_vectors_and_the_interface_holds_at_its_edges()
+ {
     if let Err(why) = tool("gcc").and_then(|_| tool("make")) {
         return crate::skip_or_fail("C example on the host", &why);
     }
@@ -205,6 +206,28 @@ fn c_example_on_the_host_prints_what_replay_prints_for_100000_vectors() {
     }
     let faults = host.iter().filter(|l| l.contains(" FAULT ch")).count();
     assert_eq!(faults, faulted, "each damaged unit is a FAULT");
+
+    // The interface's edges from C: NULLs, storage never set up, damaged blobs, names and
+    // short buffers, wrong counts, a key without signed releases, failing callbacks.
+    let checks = d.join("checks");
+    let st = Command::new("make")
+        .args(["-s", "checks"])
+        .arg(format!("OUT={}", checks.display()))
+        .current_dir(&example)
+        .status()
+        .unwrap();
+    assert!(st.success(), "make checks failed");
+    let o = Command::new(&checks)
+        .arg(d.join("m.lgmb"))
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert_eq!(o.status.code(), Some(0), "{text}");
+    assert!(
+        text.lines().filter(|l| l.starts_with("ok: ")).count() >= 30,
+        "{text}"
+    );
+    assert!(!text.contains("FAILED"), "{text}");
 }
 
 /// The C example station, built by the Debian Arm GCC against the device static library,
