@@ -245,6 +245,10 @@ pub fn quantise(
             q.optimised_min_margin = plain;
             let mut m = m;
             fit_acc(&mut m);
+            // No move: the model is the plain one, whose margin the search already has.
+            if moves == 0 {
+                return Ok(q);
+            }
             if let Ok(better) = CheckedModel::new(m) {
                 let opt = min_margin(&better, ds, &correct);
                 let slack = |mm: Option<f64>, m: &FixedModel| mm.map(|v| v - bound.of(m));
