@@ -82,40 +82,30 @@ fn linegate(dir: &Path, args: &[&str]) -> std::process::Output {
     o
 }
 
-/// Builds the static library for `target` (None: this machine) in release.
-pub fn build_c_library(target: Option<&str>) {
-    let mut cmd = Command::new("cargo");
-    cmd.args(["build", "--release", "-q"]);
-    if let Some(t) = target {
-        cmd.args(["--target", t]);
-    }
-    let st = cmd
-        .current_dir(crate::root().join("firmware/c-api"))
-        .env_remove("CARGO_TARGET_DIR")
-        .status()
-        .unwrap();
-    assert!(st.success(), "c-api build for {target:?} failed");
-}
-
-#[test]
-fn c_example_on_the_host_prints_what_replay_prints_for_100000_vectors_and_the_interface_holds_at_its_edges()
- {
-    if let Err(why) = tool("gcc").and_then(|_| tool("make")) {
-        return crate::skip_or_fail("C example on the host", &why);
-    }
-    let dir = tempfile::tempdir().unwrap();
-    let d = dir.path();
+/// A generated 16-channel log of `rows` units (seed `seed`), its model and blob (m.lgmb)
+/// in `d`, and `replay`'s lines for its first `units` units, every `every`-th of which has
+/// one reading replaced by `bad` (out of range: a FAULT line). Returns the lines and how
+/// many units were damaged.
+fn replayed_fixture(
+    d: &Path,
+    rows: usize,
+    seed: u64,
+    units: usize,
+    every: usize,
+    bad: &str,
+) -> (String, usize) {
+    let (rows, seed) = (rows.to_string(), seed.to_string());
     linegate(
         d,
         &[
             "-q",
             "generate",
             "--rows",
-            "100000",
+            &rows,
             "--channels",
             "16",
             "--seed",
-            "11",
+            &seed,
             "-o",
             "g.csv",
         ],
@@ -140,26 +130,25 @@ fn c_example_on_the_host_prints_what_replay_prints_for_100000_vectors_and_the_in
             "--override-audit",
         ],
     );
-    // Every 997th unit gets a reading far outside its channel's range: a FAULT line each.
     let text = std::fs::read_to_string(d.join("g.csv")).unwrap();
-    let mut faulted = 0;
+    let mut damaged = 0;
     let log: String = text
         .lines()
+        .take(units + 1)
         .enumerate()
         .map(|(k, l)| {
-            if k > 0 && k % 997 == 0 {
-                faulted += 1;
+            if k > 0 && k % every == 0 {
+                damaged += 1;
                 let mut cells: Vec<&str> = l.split(',').collect();
-                let c = 1 + k % 16; // a channel column (after the unit id)
-                cells[c] = "99999999";
+                cells[1 + k % 16] = bad; // a channel column (after the unit id)
                 cells.join(",") + "\n"
             } else {
                 format!("{l}\n")
             }
         })
         .collect();
-    std::fs::write(d.join("faulty.csv"), log).unwrap();
-    let replay = linegate(
+    std::fs::write(d.join("u.csv"), log).unwrap();
+    let out = linegate(
         d,
         &[
             "replay",
@@ -167,13 +156,38 @@ fn c_example_on_the_host_prints_what_replay_prints_for_100000_vectors_and_the_in
             "m.lgmb",
             "--model",
             "m.json",
-            "faulty.csv",
+            "u.csv",
             "--vectors",
             "v.txt",
         ],
-    )
-    .stdout;
-    let replay = String::from_utf8(replay).unwrap();
+    );
+    (String::from_utf8(out.stdout).unwrap(), damaged)
+}
+
+/// Builds the static library for `target` (None: this machine) in release.
+pub fn build_c_library(target: Option<&str>) {
+    let mut cmd = Command::new("cargo");
+    cmd.args(["build", "--release", "-q"]);
+    if let Some(t) = target {
+        cmd.args(["--target", t]);
+    }
+    let st = cmd
+        .current_dir(crate::root().join("firmware/c-api"))
+        .env_remove("CARGO_TARGET_DIR")
+        .status()
+        .unwrap();
+    assert!(st.success(), "c-api build for {target:?} failed");
+}
+
+#[test]
+fn c_example_on_the_host_matches_replay_and_holds_at_its_edges() {
+    if let Err(why) = tool("gcc").and_then(|_| tool("make")) {
+        return crate::skip_or_fail("C example on the host", &why);
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // Every 997th unit gets a reading far outside its channel's range: a FAULT line each.
+    let (replay, faulted) = replayed_fixture(d, 100_000, 11, 100_000, 997, "99999999");
 
     build_c_library(None);
     let example = crate::root().join("firmware/c-example");
@@ -244,73 +258,8 @@ fn c_example_on_cortex_m0_and_m4f_prints_what_replay_prints() {
     }
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    linegate(
-        d,
-        &[
-            "-q",
-            "generate",
-            "--rows",
-            "2000",
-            "--channels",
-            "16",
-            "--seed",
-            "5",
-            "-o",
-            "g.csv",
-        ],
-    );
-    linegate(
-        d,
-        &[
-            "-q", "train", "g.csv", "--sheet", "g.toml", "--folds", "0", "-o", "m.json",
-        ],
-    );
-    linegate(
-        d,
-        &[
-            "-q",
-            "pack",
-            "--model",
-            "m.json",
-            "--train",
-            "g.csv",
-            "-o",
-            "m.lgmb",
-            "--override-audit",
-        ],
-    );
     // 300 units, every 37th with a reading out of range.
-    let text = std::fs::read_to_string(d.join("g.csv")).unwrap();
-    let log: String = text
-        .lines()
-        .take(301)
-        .enumerate()
-        .map(|(k, l)| {
-            if k > 0 && k % 37 == 0 {
-                let mut cells: Vec<&str> = l.split(',').collect();
-                cells[1 + k % 16] = "-99999999";
-                cells.join(",") + "\n"
-            } else {
-                format!("{l}\n")
-            }
-        })
-        .collect();
-    std::fs::write(d.join("u.csv"), log).unwrap();
-    let replay = linegate(
-        d,
-        &[
-            "replay",
-            "--blob",
-            "m.lgmb",
-            "--model",
-            "m.json",
-            "u.csv",
-            "--vectors",
-            "v.txt",
-        ],
-    )
-    .stdout;
-    let replay = String::from_utf8(replay).unwrap();
+    let (replay, _) = replayed_fixture(d, 2000, 5, 300, 37, "-99999999");
     assert_eq!(replay.lines().count(), 301);
     for (board, make, machine, cpu, target) in [
         (

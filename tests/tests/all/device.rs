@@ -27,6 +27,46 @@ fn have_qemu_and_target() -> Result<(), String> {
     Ok(())
 }
 
+/// The demo written into `dir/demo`, and its model line with the first 300 holdout vectors
+/// in `dir/vectors.txt` (what a device build links in). Returns both paths.
+fn demo_vectors(dir: &Path) -> (std::path::PathBuf, std::path::PathBuf) {
+    let out = dir.join("demo");
+    host_trainer::demo::run(&out, false).unwrap();
+    let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt"))
+        .unwrap()
+        .lines()
+        .take(301)
+        .map(String::from)
+        .collect();
+    assert_eq!(vectors.len(), 301, "the model line and 300 vectors");
+    let vpath = dir.join("vectors.txt");
+    std::fs::write(&vpath, vectors.join("\n") + "\n").unwrap();
+    (out, vpath)
+}
+
+/// Checks that a device run left its lines at the verdict of its `last` result line and
+/// that one step took a small stack; returns that stack in bytes.
+fn lines_and_stack(stdout: &str, last: &str, core: &str) -> usize {
+    let want = if last.contains(" GO ") {
+        "# lines: GO=1 NO-GO=0"
+    } else {
+        "# lines: GO=0 NO-GO=1"
+    };
+    assert!(
+        stdout.contains(want),
+        "{core}: the lines should show the last verdict:\n{stdout}"
+    );
+    let stack: usize = stdout
+        .lines()
+        .find_map(|l| l.strip_prefix("# stack bytes used by one step: "))
+        .unwrap()
+        .trim()
+        .parse()
+        .unwrap();
+    assert!(stack > 0 && stack < 512, "{core}: stack {stack} bytes");
+    stack
+}
+
 fn run_qemu(elf: &Path, loader: &str) -> (i32, String) {
     let out = Command::new("timeout")
         .args([
@@ -55,17 +95,7 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
         return crate::skip_or_fail("QEMU end-to-end", &why);
     }
     let dir = tempfile::tempdir().unwrap();
-    let out = dir.path().join("demo");
-    host_trainer::demo::run(&out, false).unwrap();
-    let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt"))
-        .unwrap()
-        .lines()
-        .take(301)
-        .map(String::from)
-        .collect();
-    assert_eq!(vectors.len(), 301, "the model line and 300 vectors");
-    let vpath = dir.path().join("vectors.txt");
-    std::fs::write(&vpath, vectors.join("\n") + "\n").unwrap();
+    let (out, vpath) = demo_vectors(dir.path());
     let app = crate::root().join("firmware/qemu-app");
     let st = Command::new("cargo")
         .args(["build", "--release", "--bin", "linegate-qemu-app"])
@@ -104,24 +134,7 @@ fn device_agrees_with_replay_line_for_line_and_fails_safe_on_a_corrupt_blob() {
     for (i, (d, h)) in device.iter().zip(&host).enumerate() {
         assert_eq!(d, h, "vector {i}: device and replay differ");
     }
-    let last = host.last().unwrap();
-    let want = if last.contains(" GO ") {
-        "# lines: GO=1 NO-GO=0"
-    } else {
-        "# lines: GO=0 NO-GO=1"
-    };
-    assert!(
-        stdout.contains(want),
-        "final lines should show the last verdict:\n{stdout}"
-    );
-    let stack: usize = stdout
-        .lines()
-        .find_map(|l| l.strip_prefix("# stack bytes used by one step: "))
-        .unwrap()
-        .trim()
-        .parse()
-        .unwrap();
-    assert!(stack > 0 && stack < 512, "stack {stack} bytes");
+    lines_and_stack(&stdout, host.last().unwrap(), "Cortex-M3");
 
     // A single flipped bit: the device reports the fault and holds NO-GO.
     let mut blob = std::fs::read(out.join("model.lgmb")).unwrap();
@@ -316,16 +329,7 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
         ),
     ];
     let dir = tempfile::tempdir().unwrap();
-    let out = dir.path().join("demo");
-    host_trainer::demo::run(&out, false).unwrap();
-    let vectors: Vec<String> = std::fs::read_to_string(out.join("vectors-holdout.txt"))
-        .unwrap()
-        .lines()
-        .take(301)
-        .map(String::from)
-        .collect();
-    let vpath = dir.path().join("vectors.txt");
-    std::fs::write(&vpath, vectors.join("\n") + "\n").unwrap();
+    let (out, vpath) = demo_vectors(dir.path());
     let replay = std::fs::read_to_string(out.join("replay-holdout.txt")).unwrap();
     let want: Vec<&str> = replay.lines().take(301).collect();
     let app = crate::root().join("firmware/qemu-app");
@@ -388,21 +392,7 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
             .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
             .collect();
         assert_eq!(got, want, "{core}: the device and replay differ");
-        let last = want.last().unwrap();
-        let lines = if last.contains(" GO ") {
-            "# lines: GO=1 NO-GO=0"
-        } else {
-            "# lines: GO=0 NO-GO=1"
-        };
-        assert!(stdout.contains(lines), "{core}: {stdout}");
-        let stack: usize = stdout
-            .lines()
-            .find_map(|l| l.strip_prefix("# stack bytes used by one step: "))
-            .unwrap()
-            .trim()
-            .parse()
-            .unwrap();
-        assert!(stack > 0 && stack < 512, "{core}: stack {stack} bytes");
+        let stack = lines_and_stack(&stdout, want.last().unwrap(), core);
         eprintln!(
             "{core}: Rust example agrees with replay on 300 vectors; one step {stack} stack bytes"
         );
