@@ -374,6 +374,11 @@ pub unsafe extern "C" fn lg_channel_name(
 /// station is usable whatever the blob: with a bad one every step shows NO-GO with
 /// `LG_FAULT_BLOB`, and the blob's status is returned. `ctx` is passed to both callbacks.
 ///
+/// No station is set up (steps answer `LG_ERR_NOT_LOADED`; the lines were driven towards
+/// NO-GO as far as they could be) when a line cannot be driven (`LG_ERR_LINE`), the key is
+/// not a valid Ed25519 public key (`LG_ERR_BAD_KEY`), or a key is given to a library built
+/// without signed releases (`LG_ERR_NO_SIGNING`).
+///
 /// # Safety
 /// `s` points to an `lg_station`; `region` to `len` readable bytes; `key` is NULL or
 /// points to 32 readable bytes; the callbacks are safe to call with `ctx` for as long as
