@@ -332,3 +332,47 @@ fn c_example_on_cortex_m0_and_m4f_prints_what_replay_prints() {
         eprintln!("{board}: C example agrees with replay on 300 vectors; stack {stack} bytes");
     }
 }
+
+/// The C example in the README's "On the device" section compiles against the committed
+/// header (with stand-ins for the board functions it names), so the README cannot drift
+/// from the interface.
+#[test]
+fn readme_c_example_compiles_against_the_header() {
+    if let Err(why) = tool("gcc") {
+        return crate::skip_or_fail("README C example", &why);
+    }
+    let readme = std::fs::read_to_string(crate::root().join("README.md")).unwrap();
+    let start = readme.find("```c\n").expect("a C example in the README") + 5;
+    let len = readme[start..].find("```").unwrap();
+    let example = &readme[start..start + len];
+    assert!(
+        example.contains("lg_station_step"),
+        "the example runs a station"
+    );
+    let dir = tempfile::tempdir().unwrap();
+    let src = dir.path().join("example.c");
+    let stand_ins = "#include <stdbool.h>\n#include <stddef.h>\n#include <stdint.h>\n\
+        bool adc_read_all(int32_t *raw, size_t n);\n\
+        bool gpio_write(int line, bool high);\n\
+        void log_fault(const char *fmt, ...);\n";
+    std::fs::write(&src, format!("{stand_ins}{example}")).unwrap();
+    let o = Command::new("gcc")
+        .args([
+            "-std=c11",
+            "-Wall",
+            "-Wextra",
+            "-Werror",
+            "-Wno-unused-parameter",
+            "-fsyntax-only",
+            "-I",
+        ])
+        .arg(crate::root().join("firmware/c-api/include"))
+        .arg(&src)
+        .output()
+        .unwrap();
+    assert!(
+        o.status.success(),
+        "the README's C example does not compile:\n{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+}
