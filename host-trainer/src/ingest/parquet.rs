@@ -211,23 +211,17 @@ impl Plan<'_> {
                 Some(s) => {
                     let mut out_of_range = Vec::new();
                     s.to_raw_slice(&values, &mut raw, &mut out_of_range);
-                    for i in out_of_range {
-                        let v = values.get(i as usize).copied().unwrap_or(f64::NAN);
-                        match raw.get_mut(i as usize) {
-                            Some(r) if self.keep_faults && !refused(v) => *r = s.raw_reading(v),
-                            _ => bad.push(i),
+                    // A refused value is bad, in range or not; one out of range is bad too,
+                    // unless faults are kept as the raw count the device would read.
+                    let mut out = out_of_range.into_iter().peekable();
+                    for (i, (r, &v)) in raw.iter_mut().zip(values.iter()).enumerate() {
+                        let outside = out.next_if_eq(&(i as u32)).is_some();
+                        if refused(v) || (outside && !self.keep_faults) {
+                            bad.push(i as u32);
+                        } else if outside {
+                            *r = s.raw_reading(v);
                         }
                     }
-                    // A value in range may still be refused (beyond the largest reading).
-                    bad.extend(
-                        values
-                            .iter()
-                            .enumerate()
-                            .filter(|&(_, &v)| refused(v))
-                            .map(|(i, _)| i as u32),
-                    );
-                    bad.sort_unstable();
-                    bad.dedup();
                 }
                 None => bad.extend(
                     values

@@ -151,39 +151,15 @@ impl ChannelScale {
         }
     }
 
-    /// [`to_raw`](Self::to_raw) of many values, with the same results, faster (see
-    /// [`to_raw_inv`](Self::to_raw_inv)).
-    pub fn to_raw_each<'a>(&'a self, values: &'a [f64]) -> impl Iterator<Item = Option<i32>> + 'a {
-        let inv = self.inv_lsb();
-        values.iter().map(move |&v| self.to_raw_inv(v, inv))
-    }
-
     /// [`to_raw`](Self::to_raw) of every value into `raw` (cleared first), with the
     /// indices of the values it refuses (out of range, or not a number) in `refused`.
-    /// One branch-free pass that the compiler vectorises does the usual case (see
-    /// [`to_raw_inv`](Self::to_raw_inv) for why its result is the same), then the few values
-    /// near a half-way point or out of the word take `to_raw` itself.
+    /// One branch-free pass that the compiler vectorises does the usual case
+    /// ([`usual_raw`]), then the few values near a half-way point or out of the word take
+    /// `to_raw` itself.
     pub fn to_raw_slice(&self, values: &[f64], raw: &mut Vec<i32>, refused: &mut Vec<u32>) {
         let inv = self.inv_lsb();
-        let (lo, hi, zero) = (f64::from(self.raw_min), f64::from(self.raw_max), self.zero);
         raw.clear();
-        // The usual case, or i32::MIN as a mark for a second look (never a valid count here:
-        // raw_min > i32::MIN, see `new`).
-        // Rounding by the magic number 1.5·2^52: below 2^31 in magnitude, q + M is exact to
-        // the unit, so (q + M) − M is q rounded to nearest (ties to even, but ties never get
-        // here: they are within 2^-12 of a half) and the integer sits in the low bits of
-        // q + M. Integer and float operations only, no conversion: the loop vectorises.
-        const M: f64 = 6_755_399_441_055_744.0;
-        let m_bits = M.to_bits() as i64;
-        raw.extend(values.iter().map(|&v| {
-            let q = (v - zero) * inv;
-            let s = q + M;
-            let r = s - M;
-            let far_from_half = 0.5 - (q - r).abs() > 1.0 / 4096.0;
-            let usual = q.abs() < 2_147_483_648.0 && far_from_half && r >= lo && r <= hi;
-            let n = (s.to_bits() as i64).wrapping_sub(m_bits) as i32;
-            if usual { n } else { i32::MIN }
-        }));
+        raw.extend(values.iter().map(|&v| self.usual_raw(v, inv)));
         for (i, (r, &v)) in raw.iter_mut().zip(values).enumerate() {
             if *r == i32::MIN {
                 match self.to_raw(v) {
@@ -201,29 +177,39 @@ impl ChannelScale {
 
     /// [`to_raw`](Self::to_raw) with the same result, by one multiply with `inv` (which must
     /// be [`inv_lsb`](Self::inv_lsb)) instead of a division where that cannot change the
-    /// rounding: below 2^31 in magnitude the product is within 3·2^-53 of the quotient
-    /// relatively, under 2^-20 absolutely, so only a value within 2^-12 of a half-way
-    /// point could round otherwise; those, and anything out of the word, take the division.
+    /// rounding ([`usual_raw`]); the rest take the division.
     #[inline]
     pub fn to_raw_inv(&self, physical: f64, inv: f64) -> Option<i32> {
-        let q = (physical - self.zero) * inv;
-        if q.abs() < 2_147_483_648.0 {
-            // `as` truncates towards zero; |q| < 2^31, so the integer is exact.
-            let t = q as i64 as f64;
-            let f = q - t;
-            if (f.abs() - 0.5).abs() > 1.0 / 4096.0 {
-                let r = if f >= 0.5 {
-                    t + 1.0
-                } else if f <= -0.5 {
-                    t - 1.0
-                } else {
-                    t
-                };
-                return (r >= f64::from(self.raw_min) && r <= f64::from(self.raw_max))
-                    .then_some(r as i32);
-            }
+        match self.usual_raw(physical, inv) {
+            i32::MIN => self.to_raw(physical),
+            n => Some(n),
         }
-        self.to_raw(physical)
+    }
+
+    /// The raw count of `physical` computed as (physical − zero)·inv, or `i32::MIN` (never a
+    /// valid count: `new` keeps counts within ±2^30) where that could differ from
+    /// [`to_raw`](Self::to_raw)'s division or the count is out of range.
+    ///
+    /// Why it equals the division elsewhere: below 2^31 in magnitude the product is within
+    /// 3·2^-53 of the quotient relatively, under 2^-20 absolutely, so only a value within
+    /// 2^-12 of a half-way point could round otherwise. Rounding is by the magic number
+    /// 1.5·2^52: below 2^31, q + M is exact to the unit, so (q + M) − M is q rounded to
+    /// nearest (ties to even, but ties are among the values left out) and the integer sits in
+    /// the low bits of q + M. No branch and no float-to-int conversion, so a loop over it
+    /// vectorises.
+    #[inline(always)]
+    fn usual_raw(&self, physical: f64, inv: f64) -> i32 {
+        const M: f64 = 6_755_399_441_055_744.0;
+        let q = (physical - self.zero) * inv;
+        let s = q + M;
+        let r = s - M;
+        let far_from_half = 0.5 - (q - r).abs() > 1.0 / 4096.0;
+        let usual = q.abs() < 2_147_483_648.0
+            && far_from_half
+            && r >= f64::from(self.raw_min)
+            && r <= f64::from(self.raw_max);
+        let n = (s.to_bits() as i64).wrapping_sub(M.to_bits() as i64) as i32;
+        if usual { n } else { i32::MIN }
     }
 
     /// The raw count a device reads for a physical value, in range or not: rounded as
@@ -269,11 +255,8 @@ impl ChannelScale {
             }
         }
         for shift in (0..=46u8).rev() {
-            let mul = (limit << shift) / i128::from(self.half);
-            if mul >= 1
-                && mul <= i128::from(i32::MAX)
-                && mul * i128::from(self.half) < (1i128 << 62)
-            {
+            let mul = (limit << shift) / half;
+            if mul >= 1 && mul <= i128::from(i32::MAX) && mul * half < (1i128 << 62) {
                 return (mul as i32, shift);
             }
         }
@@ -476,7 +459,8 @@ mod tests {
                 .map(|(&r, &j)| zero + (r as f64 + [0.0, 0.5, -0.5, j][(r & 3) as usize]) * lsb)
                 .chain([f64::NAN, f64::INFINITY, 1e300, -1e300])
                 .collect();
-            let batch: Vec<Option<i32>> = c.to_raw_each(&values).collect();
+            let inv = c.inv_lsb();
+            let batch: Vec<Option<i32>> = values.iter().map(|&v| c.to_raw_inv(v, inv)).collect();
             let single: Vec<Option<i32>> = values.iter().map(|&v| c.to_raw(v)).collect();
             proptest::prop_assert_eq!(&batch, &single);
             let (mut raw, mut refused) = (Vec::new(), Vec::new());
