@@ -4,13 +4,15 @@
 //! inside a range narrower than 2^31); the conversion product in `i64`
 //! (32×32→64, one long multiply); scaled inputs `i32` holding at most 16
 //! significant bits; weights `i32`; products and the accumulator `i64`
-//! (32×32→64 multiply-accumulate). A narrow model ([`CheckedModel::is_narrow`]: a proved
-//! 32-bit accumulator and conversion products below 2^31) runs the same steps in `i32`
-//! only, which cores without a 64-bit multiply (Cortex-M0/M0+) do in single instructions. Validation ([`CheckedModel::new`]) proved
+//! (32×32→64 multiply-accumulate). Validation ([`CheckedModel::new`]) proved
 //! `|bias| + Σ|w_i|·max|x_i|` fits the declared accumulator (at most 64 bits)
 //! and that `(r - offset)·multiplier` stays below 2^62 for in-range `r`; so the
 //! `wrapping_*` operations below never wrap. They are used instead of `+`/`*`
 //! only to keep panic paths out of the device image.
+//!
+//! A narrow model ([`CheckedModel::is_narrow`]: a proved 32-bit accumulator and
+//! conversion products below 2^31) runs the same steps in `i32` only, which cores
+//! without a 64-bit multiply (Cortex-M0/M0+) do in single instructions.
 #![warn(clippy::arithmetic_side_effects)]
 
 use crate::error::Fault;

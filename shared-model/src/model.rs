@@ -160,9 +160,7 @@ impl FixedModel {
             }
             // The kernel forms (r - offset) · multiplier in i64 and adds the rounding half;
             // keeping both ends below 2^62 leaves room for that addition.
-            let span =
-                |r: i32| (i128::from(r) - i128::from(c.offset)).abs() * i128::from(c.multiplier);
-            if span(c.raw_min).max(span(c.raw_max)) >= 1i128 << 62 {
+            if conversion_product(c) >= 1i128 << 62 {
                 return Err(ModelError::ConversionOutOfRange { channel });
             }
             // The conversion is monotonic in r, so the ends of the range bound every reading.
@@ -186,6 +184,13 @@ impl FixedModel {
         }
         Ok(())
     }
+}
+
+/// The largest |(r − offset)·multiplier| over the channel's valid readings (at an end of
+/// the range: the product is monotonic in r), which validation bounds for the kernel.
+fn conversion_product(c: &ChannelSpec) -> i128 {
+    let at = |r: i32| (i128::from(r) - i128::from(c.offset)).abs() * i128::from(c.multiplier);
+    at(c.raw_min).max(at(c.raw_max))
 }
 
 /// The conversion of one reading in i128, used by validation and as the exact reference.
@@ -221,12 +226,10 @@ impl CheckedModel {
     pub fn new(model: FixedModel) -> Result<Self, ModelError> {
         model.validate()?;
         let narrow = model.acc_bits == 32
-            && model.channels.iter().all(|c| {
-                let span = |r: i32| {
-                    (i128::from(r) - i128::from(c.offset)).abs() * i128::from(c.multiplier)
-                };
-                c.shift <= 31 && span(c.raw_min).max(span(c.raw_max)) < 1i128 << 31
-            });
+            && model
+                .channels
+                .iter()
+                .all(|c| c.shift <= 31 && conversion_product(c) < 1i128 << 31);
         Ok(Self { model, narrow })
     }
 
