@@ -196,13 +196,23 @@ pub unsafe extern "C" fn lg_load_signed(
     if key.is_null() {
         return lg_status::LG_ERR_NULL;
     }
-    // SAFETY: `key` points to 32 bytes per the contract; [u8; 32] has alignment 1.
-    let bytes = unsafe { &*key.cast::<[u8; 32]>() };
-    let Some(k) = ReleaseKey::from_bytes(bytes) else {
-        return lg_status::LG_ERR_BAD_KEY;
+    // SAFETY: `key` is non-null and points to 32 bytes per the contract.
+    let k = match unsafe { release_key(key) } {
+        Ok(k) => k,
+        Err(e) => return e,
     };
     // SAFETY: per this function's contract.
     unsafe { load(c, region, len, Some(&k)) }
+}
+
+/// The Ed25519 public key at `key[0..32]`, or `LG_ERR_BAD_KEY`.
+///
+/// # Safety
+/// `key` is non-null and points to 32 readable bytes.
+#[cfg(feature = "signed")]
+unsafe fn release_key(key: *const u8) -> Result<ReleaseKey, lg_status> {
+    // SAFETY: per the contract; [u8; 32] has alignment 1.
+    ReleaseKey::from_bytes(unsafe { &*key.cast::<[u8; 32]>() }).ok_or(lg_status::LG_ERR_BAD_KEY)
 }
 
 /// # Safety
@@ -254,6 +264,28 @@ unsafe fn classifier<'a>(c: *const lg_classifier) -> Result<&'a Classifier, lg_s
         .ok_or(lg_status::LG_ERR_NOT_LOADED)
 }
 
+/// Writes what `f` says of the classifier loaded in `c` to `*out`.
+///
+/// # Safety
+/// `c` is NULL or points to an `lg_classifier`; `out` is NULL or points to a writable `T`.
+unsafe fn answer<T>(
+    c: *const lg_classifier,
+    out: *mut T,
+    f: impl FnOnce(&Classifier) -> T,
+) -> lg_status {
+    // SAFETY: per the contract.
+    let model = match unsafe { classifier(c) } {
+        Ok(m) => m,
+        Err(e) => return e,
+    };
+    if out.is_null() {
+        return lg_status::LG_ERR_NULL;
+    }
+    // SAFETY: non-null and writable per the contract.
+    unsafe { out.write(f(model)) };
+    lg_status::LG_OK
+}
+
 /// Classifies one raw reading per channel (`raw[0..n]`, in the model's channel order)
 /// into `out`: the score and verdict, or NO-GO with the fault (a wrong count, or the first
 /// reading outside its valid range). Returns `LG_OK` whenever `out` was written.
@@ -293,17 +325,8 @@ pub unsafe extern "C" fn lg_classify(
 /// `c` points to an `lg_classifier`; `out` to 16 writable bytes.
 #[unsafe(no_mangle)]
 pub unsafe extern "C" fn lg_model_id(c: *const lg_classifier, out: *mut u8) -> lg_status {
-    // SAFETY: per the contract.
-    let model = match unsafe { classifier(c) } {
-        Ok(m) => m,
-        Err(e) => return e,
-    };
-    if out.is_null() {
-        return lg_status::LG_ERR_NULL;
-    }
-    // SAFETY: 16 writable bytes per the contract; [u8; 16] has alignment 1.
-    unsafe { out.cast::<[u8; 16]>().write(model.model_id()) };
-    lg_status::LG_OK
+    // SAFETY: per the contract: `out` is 16 writable bytes, and [u8; 16] has alignment 1.
+    unsafe { answer(c, out.cast::<[u8; 16]>(), Classifier::model_id) }
 }
 
 /// Writes the loaded blob's id (its CRC-32, as `linegate replay` prints it) to `*out`.
@@ -313,16 +336,7 @@ pub unsafe extern "C" fn lg_model_id(c: *const lg_classifier, out: *mut u8) -> l
 #[unsafe(no_mangle)]
 pub unsafe extern "C" fn lg_blob_id(c: *const lg_classifier, out: *mut u32) -> lg_status {
     // SAFETY: per the contract.
-    let model = match unsafe { classifier(c) } {
-        Ok(m) => m,
-        Err(e) => return e,
-    };
-    if out.is_null() {
-        return lg_status::LG_ERR_NULL;
-    }
-    // SAFETY: per the contract.
-    unsafe { out.write(model.blob_id()) };
-    lg_status::LG_OK
+    unsafe { answer(c, out, Classifier::blob_id) }
 }
 
 /// Writes the number of readings the model takes to `*out`.
@@ -332,16 +346,7 @@ pub unsafe extern "C" fn lg_blob_id(c: *const lg_classifier, out: *mut u32) -> l
 #[unsafe(no_mangle)]
 pub unsafe extern "C" fn lg_channel_count(c: *const lg_classifier, out: *mut usize) -> lg_status {
     // SAFETY: per the contract.
-    let model = match unsafe { classifier(c) } {
-        Ok(m) => m,
-        Err(e) => return e,
-    };
-    if out.is_null() {
-        return lg_status::LG_ERR_NULL;
-    }
-    // SAFETY: per the contract.
-    unsafe { out.write(model.channel_count()) };
-    lg_status::LG_OK
+    unsafe { answer(c, out, Classifier::channel_count) }
 }
 
 /// Copies channel `index`'s name, NUL-terminated, into `buf[0..cap]`
@@ -417,10 +422,10 @@ pub unsafe extern "C" fn lg_station_init(
     let key = if key.is_null() {
         None
     } else {
-        // SAFETY: 32 readable bytes per the contract; alignment 1.
-        match ReleaseKey::from_bytes(unsafe { &*key.cast::<[u8; 32]>() }) {
-            Some(k) => Some(k),
-            None => return lg_status::LG_ERR_BAD_KEY,
+        // SAFETY: non-null, 32 readable bytes per the contract.
+        match unsafe { release_key(key) } {
+            Ok(k) => Some(k),
+            Err(e) => return e,
         }
     };
     #[cfg(not(feature = "signed"))]
