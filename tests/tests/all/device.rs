@@ -1,6 +1,7 @@
 //! On-device proof: the real firmware binary on an emulated Cortex-M3 (QEMU lm3s6965evb),
 //! flashed with the Intel HEX image from the packer, must print exactly the lines of
 //! `replay` for the holdout vectors; a bit-flipped blob must show the fault and hold NO-GO.
+//! The same example on the other cores (M0, M4F, M33, RV32IMAC) must print the same lines.
 
 use std::path::Path;
 use std::process::Command;
@@ -10,21 +11,7 @@ fn have_qemu_and_target() -> Result<(), String> {
         .arg("--version")
         .output()
         .map_err(|_| "qemu-system-arm not found (apt-get install qemu-system-arm)".to_string())?;
-    let sysroot = Command::new("rustc")
-        .args(["--print", "sysroot"])
-        .output()
-        .map_err(|e| e.to_string())?;
-    let sysroot = String::from_utf8_lossy(&sysroot.stdout).trim().to_string();
-    if !Path::new(&sysroot)
-        .join("lib/rustlib/thumbv7m-none-eabi")
-        .exists()
-    {
-        return Err(
-            "rust target thumbv7m-none-eabi not installed (rustup target add thumbv7m-none-eabi)"
-                .into(),
-        );
-    }
-    Ok(())
+    have_target("thumbv7m-none-eabi")
 }
 
 /// The demo written into `dir/demo`, and its model line with the first 300 holdout vectors
