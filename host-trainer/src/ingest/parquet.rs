@@ -692,7 +692,6 @@ fn numbers(a: &ArrayRef, kind: Numbers, decimal_comma: bool) -> ScalarBuffer<f64
         return a.as_primitive::<Float64Type>().values().clone();
     }
     let mut out = Vec::with_capacity(a.len());
-    let start = 0;
     match kind {
         Numbers::F64 => out.extend_from_slice(a.as_primitive::<Float64Type>().values()),
         Numbers::F32 => {
@@ -730,7 +729,7 @@ fn numbers(a: &ArrayRef, kind: Numbers, decimal_comma: bool) -> ScalarBuffer<f64
             .enumerate()
             .filter_map(|(i, valid)| (!valid).then_some(i))
         {
-            if let Some(v) = out.get_mut(start + i) {
+            if let Some(v) = out.get_mut(i) {
                 *v = f64::NAN;
             }
         }
