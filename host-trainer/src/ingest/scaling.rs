@@ -154,7 +154,7 @@ impl ChannelScale {
     /// [`to_raw`](Self::to_raw) of every value into `raw` (cleared first), with the
     /// indices of the values it refuses (out of range, or not a number) in `refused`.
     /// One branch-free pass that the compiler vectorises does the usual case
-    /// ([`usual_raw`]), then the few values near a half-way point or out of the word take
+    /// (`usual_raw`, below), then the few values near a half-way point or out of the word take
     /// `to_raw` itself.
     pub fn to_raw_slice(&self, values: &[f64], raw: &mut Vec<i32>, refused: &mut Vec<u32>) {
         let inv = self.inv_lsb();
@@ -177,7 +177,7 @@ impl ChannelScale {
 
     /// [`to_raw`](Self::to_raw) with the same result, by one multiply with `inv` (which must
     /// be [`inv_lsb`](Self::inv_lsb)) instead of a division where that cannot change the
-    /// rounding ([`usual_raw`]); the rest take the division.
+    /// rounding (`usual_raw`, below); the rest take the division.
     #[inline]
     pub fn to_raw_inv(&self, physical: f64, inv: f64) -> Option<i32> {
         match self.usual_raw(physical, inv) {
