@@ -160,10 +160,49 @@ fn check_exits_1_on_xor_and_names_the_conflicting_units() {
     for u in ["P1", "P2", "N1", "N2"] {
         assert!(out.contains(u), "{u} missing from: {out}");
     }
-    // The Novikoff figures are missing, and check says why.
+    // Asked for, the Novikoff figures are missing, and check says why.
+    let o = linegate(&["check", log.to_str().unwrap(), "--novikoff"], dir.path());
+    exits(&o, 1);
+    let out = String::from_utf8_lossy(&o.stdout);
     assert!(
         out.contains("Novikoff: not separable: the Novikoff bound does not apply"),
         "{out}"
+    );
+}
+
+#[test]
+fn check_computes_novikoff_figures_only_when_asked() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = write(dir.path(), "log.csv", GOOD.as_bytes());
+    let json = |extra: &[&str]| {
+        let mut args = vec!["check", log.to_str().unwrap(), "--json"];
+        args.extend_from_slice(extra);
+        let o = linegate(&args, dir.path());
+        exits(&o, 0);
+        serde_json::from_slice::<serde_json::Value>(&o.stdout).unwrap()
+    };
+    let plain = json(&[]);
+    assert!(plain["margin"].as_f64().unwrap() > 0.0);
+    assert!(plain["novikoff_bound"].is_null() && plain["perceptron_updates"].is_null());
+    assert!(
+        plain["novikoff_note"]
+            .as_str()
+            .unwrap()
+            .contains("check --novikoff"),
+        "{plain}"
+    );
+    let asked = json(&["--novikoff"]);
+    assert_eq!(asked["margin"], plain["margin"]);
+    // Novikoff (1962): the classic perceptron makes at most 1/γ² updates.
+    let (bound, updates) = (
+        asked["novikoff_bound"].as_f64().unwrap(),
+        asked["perceptron_updates"].as_f64().unwrap(),
+    );
+    assert!(updates >= 1.0 && updates <= bound, "{asked}");
+    // --epochs and --seed steer that run only, so they need --novikoff.
+    exits(
+        &linegate(&["check", log.to_str().unwrap(), "--epochs", "5"], dir.path()),
+        2,
     );
 }
 

@@ -93,6 +93,7 @@ impl LogArgs {
             delimiter: self.delimiter,
             decimal_comma: self.decimal_comma.then_some(true),
             keep_times: false,
+            digest: true,
         }
     }
 }

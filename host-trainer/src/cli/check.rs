@@ -7,6 +7,8 @@ use clap::Args;
 
 use super::args::LogArgs;
 use super::{CheckFailed, to_json};
+use host_trainer::ingest::LogOptions;
+use host_trainer::train::separability::{self, Figures};
 use host_trainer::workflow;
 
 /// Flags of `linegate check`.
@@ -19,11 +21,15 @@ pub struct CheckArgs {
     /// Channel sheet (TOML) with valid ranges, raw conversion and noise.
     #[arg(long)]
     pub sheet: Option<PathBuf>,
-    /// Epoch cap for the perceptron run shown beside the bound.
-    #[arg(long, default_value_t = 1000)]
+    /// Also compute Novikoff's γ and bound 1/γ² (a second exact solve, through the origin)
+    /// and run the classic perceptron beside the bound.
+    #[arg(long)]
+    pub novikoff: bool,
+    /// Epoch cap for the perceptron run shown beside the bound (with --novikoff).
+    #[arg(long, default_value_t = 1000, requires = "novikoff")]
     pub epochs: u32,
-    /// Seed for the perceptron's shuffle.
-    #[arg(long, default_value_t = 1)]
+    /// Seed for the perceptron's shuffle (with --novikoff).
+    #[arg(long, default_value_t = 1, requires = "novikoff")]
     pub seed: u64,
     /// Print JSON.
     #[arg(long)]
@@ -37,16 +43,27 @@ impl CheckArgs {
             log,
             log_args,
             sheet,
+            novikoff,
             epochs,
             seed,
             json,
         } = self;
-        let (ds, sheet) = workflow::load(log, &log_args.options(quiet), sheet.as_deref())?;
+        // `check` records no provenance, so the log's digest would be work for nobody.
+        let opts = LogOptions {
+            digest: false,
+            ..log_args.options(quiet)
+        };
+        let (ds, sheet) = workflow::load(log, &opts, sheet.as_deref())?;
         if !quiet {
             super::warn_skipped(log, &ds.skipped);
             super::warn_sheet(log, &ds, sheet.as_ref());
         }
-        let r = host_trainer::train::separability::check(&ds, &ds.all(), *epochs, *seed);
+        let figures = Figures {
+            margin: true,
+            novikoff: *novikoff,
+            perceptron: *novikoff,
+        };
+        let r = separability::check_with(&ds, &ds.all(), *epochs, *seed, figures, None);
         if *json {
             say_raw!("{}", to_json(&r));
         } else if !quiet {
@@ -64,10 +81,7 @@ impl CheckArgs {
     }
 }
 
-fn print_check(
-    r: &host_trainer::train::separability::SeparabilityReport,
-    ds: &host_trainer::ingest::dataset::Dataset,
-) {
+fn print_check(r: &separability::SeparabilityReport, ds: &host_trainer::ingest::dataset::Dataset) {
     say!(
         "{} units, {} channels: {}",
         r.units,
@@ -90,17 +104,17 @@ fn print_check(
         print_units(&r.support, "α");
     }
     say!("R = max ‖(x, 1)‖ = {:.4}", r.radius);
-    // `check` always runs the perceptron; the figures are there.
-    let (updates, epochs, converged) = (
-        r.perceptron_updates.unwrap_or(0),
-        r.perceptron_epochs.unwrap_or(0),
-        r.perceptron_converged.unwrap_or(false),
-    );
-    match (r.novikoff_margin, r.novikoff_bound) {
-        (Some(g), Some(b)) => say!(
-            "Novikoff: γ = {g:.6} (constant-1 feature appended, scaled into the unit ball, unit-norm separator through the origin); bound 1/γ² = {b:.0} updates; perceptron made {updates} in {epochs} epochs"
+    match (r.novikoff_margin, r.novikoff_bound, r.perceptron_updates) {
+        (Some(g), Some(b), Some(updates)) => say!(
+            "Novikoff: γ = {g:.6} (constant-1 feature appended, scaled into the unit ball, unit-norm separator through the origin); bound 1/γ² = {b:.0} updates; perceptron made {updates} in {} epochs",
+            r.perceptron_epochs.unwrap_or(0)
         ),
-        _ => say!("perceptron: {updates} updates in {epochs} epochs, converged: {converged}"),
+        (_, _, Some(updates)) => say!(
+            "perceptron: {updates} updates in {} epochs, converged: {}",
+            r.perceptron_epochs.unwrap_or(0),
+            r.perceptron_converged.unwrap_or(false)
+        ),
+        _ => {}
     }
     if let Some(n) = &r.novikoff_note {
         say!("Novikoff: {n}");
@@ -119,7 +133,7 @@ fn print_check(
 }
 
 /// One line per unit: its id (escaped), label, line and weight under `symbol`.
-fn print_units(units: &[host_trainer::train::separability::UnitRef], symbol: &str) {
+fn print_units(units: &[separability::UnitRef], symbol: &str) {
     for u in units {
         say!(
             "  {} ({}, line {}, {symbol} = {:.4})",

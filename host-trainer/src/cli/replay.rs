@@ -70,8 +70,10 @@ impl ReplayArgs {
         let streamed = host_trainer::ingest::stream_units(
             log,
             // New units have no verdict yet: replay scores logs without a label column.
+            // Replay prints no digest of the log, so it hashes none.
             &LogOptions {
                 label_optional: true,
+                digest: false,
                 ..log_args.options(quiet)
             },
             &fm.channels,

@@ -17,7 +17,8 @@ use crate::ingest::scaling::ChannelScale;
 pub struct Dataset {
     /// The file read.
     pub path: PathBuf,
-    /// SHA-256 of the file, hex.
+    /// SHA-256 of the file, hex; empty when the reader was asked for no digest
+    /// ([`LogOptions::digest`](super::LogOptions::digest)).
     pub sha256: String,
     /// Per-channel scaling, in column order.
     pub scales: Vec<ChannelScale>,

@@ -60,6 +60,10 @@ pub struct LogOptions {
     /// A log may lack a label column (scoring new units, as `replay` does); its units then
     /// carry label 0. Training and audit always need labels.
     pub label_optional: bool,
+    /// Hash the file (SHA-256) into [`Dataset::sha256`](super::dataset::Dataset::sha256) for
+    /// provenance. Commands that record or compare no digest (`check`) turn it off: on a
+    /// large log the hash costs about a tenth of the read.
+    pub digest: bool,
 }
 
 impl Default for LogOptions {
@@ -80,6 +84,7 @@ impl Default for LogOptions {
             delimiter: None,
             decimal_comma: None,
             keep_times: false,
+            digest: true,
         }
     }
 }

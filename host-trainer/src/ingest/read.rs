@@ -138,7 +138,7 @@ pub fn read_log(
             }
             Ok(())
         },
-        true,
+        opts.digest,
     )?;
     if cols2.unit.is_none() {
         ds.unit_ids.clear();
@@ -172,7 +172,8 @@ pub struct StreamedUnit<'a> {
 }
 
 /// Streams the units of a log converted to raw readings with `scales` (from a trained model),
-/// without holding the log in memory: for logs of any length. Returns the file's SHA-256.
+/// without holding the log in memory: for logs of any length. Returns the file's SHA-256
+/// (empty unless [`LogOptions::digest`]).
 ///
 /// # Errors
 /// The first [`InputError`] (row errors are skipped and counted under `skip_bad_rows`), or
@@ -198,7 +199,7 @@ pub fn stream_units(
                 unit: row.unit,
             })
         },
-        true,
+        opts.digest,
     )?;
     Ok(sha)
 }

@@ -58,7 +58,8 @@ pub struct SvmRun {
     pub support: Vec<(usize, f64)>,
     /// Solver iterations.
     pub iterations: u64,
-    /// True if the optimality gap fell below the tolerance.
+    /// True if the optimality gap fell below the tolerance. For the hard margin this includes
+    /// the certificate: the separator was checked on every unit and puts each on its side.
     pub converged: bool,
     /// Geometric margin 1/‖w‖ (for the hard margin: the maximum margin γ*).
     pub margin: f64,
@@ -676,28 +677,40 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
 
 /// Oracle over the Minkowski difference of the hulls, restricted to `set`: the vertex
 /// xᵢ − xⱼ minimising ⟨p, ·⟩ (i GO with least ⟨p, xᵢ⟩, j NO-GO with greatest ⟨p, xⱼ⟩).
+///
+/// The set's scaled rows are copied once per round into one dense block per class: the
+/// oracle runs hundreds of times a round, and reading rows scattered through the log (and
+/// scaling them again each time) cost more than the products.
 fn hull_oracle<'a>(
     ds: &'a Dataset,
-    sc: &'a crate::ingest::dataset::Scaler,
-    set: &'a [usize],
+    sc: &crate::ingest::dataset::Scaler,
+    set: &[usize],
     first: (usize, usize),
 ) -> impl FnMut(&[f64]) -> ((usize, usize), Vec<f64>) + 'a {
-    move |p: &[f64]| {
-        let mut x = vec![0.0; ds.dim()];
-        let (mut bi, mut bv, mut bj, mut bw) = (first.0, f64::INFINITY, first.1, f64::NEG_INFINITY);
-        for &i in set {
-            sc.row(ds, i, &mut x);
-            let v = dot(p, &x);
-            if ds.labels[i] > 0 {
-                if v < bv {
-                    bv = v;
-                    bi = i;
-                }
-            } else if v > bw {
-                bw = v;
-                bj = i;
+    let d = ds.dim();
+    let (mut go, mut nogo) = ((Vec::new(), Vec::new()), (Vec::new(), Vec::new()));
+    for &i in set {
+        let (rows, ids): &mut (Vec<f64>, Vec<usize>) =
+            if ds.labels[i] > 0 { &mut go } else { &mut nogo };
+        let at = rows.len();
+        rows.resize(at + d, 0.0);
+        sc.row(ds, i, &mut rows[at..]);
+        ids.push(i);
+    }
+    // The first unit of the least (or greatest) product wins ties, in set order as before.
+    let best = move |(rows, ids): &(Vec<f64>, Vec<usize>), p: &[f64], sign: f64, none: usize| {
+        let (mut bi, mut bv) = (none, f64::INFINITY);
+        for (x, &i) in rows.chunks_exact(d.max(1)).zip(ids) {
+            let v = sign * dot(p, x);
+            if v < bv {
+                bv = v;
+                bi = i;
             }
         }
+        bi
+    };
+    move |p: &[f64]| {
+        let (bi, bj) = (best(&go, p, 1.0, first.0), best(&nogo, p, -1.0, first.1));
         ((bi, bj), pair_difference(ds, bi, bj))
     }
 }

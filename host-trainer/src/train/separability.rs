@@ -214,7 +214,7 @@ pub fn check_with(
         novikoff_margin: None,
         novikoff_bound: None,
         novikoff_note: (!figures.novikoff).then(|| {
-            "not computed here (linegate check computes Novikoff's γ and bound)".to_string()
+            "not computed (linegate check --novikoff computes Novikoff's γ and bound)".to_string()
         }),
         perceptron_updates: run.map(|p| p.updates),
         perceptron_epochs: run.map(|p| p.epochs),
@@ -243,7 +243,9 @@ pub fn check_with(
     };
     // The full LP decides whenever the log is small enough for it.
     let full_lp = (idx.len() <= LP_FULL_LIMIT).then(|| hull_intersection(ds, idx));
-    let separator_ok = svm.margin > MIN_MARGIN && svm.model.geometric_margin(ds, idx) > 0.0;
+    // A converged hard-margin run has checked its separator on every unit of `idx` already.
+    let separator_ok =
+        svm.margin > MIN_MARGIN && (svm.converged || svm.model.geometric_margin(ds, idx) > 0.0);
     let not_separable_note = Some(
         "not separable: the Novikoff bound does not apply (the classic perceptron never stops on such a log)".to_string(),
     );
