@@ -8,7 +8,8 @@
 //!   cycles against the median of its siblings (goal ≤ 5×);
 //! - against the tools a user would pick instead, each a whole process started the same way
 //!   and alternated with Linegate's run (`whole.py`): `check` against polars reading the CSV
-//!   alone (goal ≥ 3× faster), `train --trainer perceptron` against pandas + scikit-learn's
+//!   alone (goal ≥ 3× faster; `check --novikoff` beside it, for the figures it adds),
+//!   `train --trainer perceptron` against pandas + scikit-learn's
 //!   Perceptron (goal ≥ 6×), `train --trainer max-margin` against liblinear's hinge-loss
 //!   SVM at C = 1000 (goal ≥ 5×; both margins printed, Linegate's certified);
 //! - `audit` as a whole command: units per second (goal ≥ 3 million on 5,000,000 × 16) and
@@ -145,6 +146,14 @@ fn against_references(bin: &Path, root: &Path, log: &str, sheet: &str, rows: usi
             b / a
         ),
         None => skipped("check against polars"),
+    }
+    // With the figures `check` leaves out by default: the second solve and a perceptron run.
+    match pair(&ours(&["check", "--novikoff"]), &theirs("polars-load"), runs) {
+        Some((a, b, _)) => println!(
+            "{rows} x 16: linegate check --novikoff {a:.2} s, polars reading the CSV alone {b:.2} s: {:.2}x faster",
+            b / a
+        ),
+        None => skipped("check --novikoff against polars"),
     }
     match pair(&train("perceptron"), &theirs("sklearn-perceptron"), runs) {
         Some((a, b, _)) => println!(

@@ -201,7 +201,10 @@ fn check_computes_novikoff_figures_only_when_asked() {
     assert!(updates >= 1.0 && updates <= bound, "{asked}");
     // --epochs and --seed steer that run only, so they need --novikoff.
     exits(
-        &linegate(&["check", log.to_str().unwrap(), "--epochs", "5"], dir.path()),
+        &linegate(
+            &["check", log.to_str().unwrap(), "--epochs", "5"],
+            dir.path(),
+        ),
         2,
     );
 }

@@ -20,7 +20,7 @@
 use rayon::prelude::*;
 use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
 
-use crate::ingest::dataset::Dataset;
+use crate::ingest::dataset::{Dataset, RawForm};
 use crate::train::float_model::FloatModel;
 
 /// Quantiser settings.
@@ -215,8 +215,8 @@ pub fn quantise(
         recheck_band: cfg.recheck_band.max(0.0),
     };
     if let Some(ds) = train {
-        let correct = correct_units(fm, ds);
-        if !cfg.optimise || correct.is_empty() {
+        let correct = Correct::new(fm, ds);
+        if !cfg.optimise {
             q.plain_min_margin = min_margin(&q.model, ds, &correct);
             q.optimised_min_margin = q.plain_min_margin;
         } else {
@@ -240,17 +240,21 @@ pub fn quantise(
                 xmax: &xmax,
             };
             // The search's pass over every unit yields the plain model's minimum margin too.
-            let (m, moves, plain) = search(&q.model, ds, &correct, wmax as i64, &bound);
+            let Searched {
+                model: mut m,
+                moves,
+                plain,
+                moved,
+            } = search(&q.model, ds, &correct, wmax as i64, &bound);
             q.plain_min_margin = plain;
             q.optimised_min_margin = plain;
-            let mut m = m;
             fit_acc(&mut m);
             // No move: the model is the plain one, whose margin the search already has.
             if moves == 0 {
                 return Ok(q);
             }
             if let Ok(better) = CheckedModel::new(m) {
-                let opt = min_margin(&better, ds, &correct);
+                let opt = moved.or_else(|| min_margin(&better, ds, &correct));
                 let slack = |mm: Option<f64>, m: &FixedModel| mm.map(|v| v - bound.of(m));
                 if moves > 0
                     && slack(opt, better.model()) > slack(q.plain_min_margin, q.model.model())
@@ -266,43 +270,51 @@ pub fn quantise(
     Ok(q)
 }
 
-/// Units the float model classifies correctly.
-pub fn correct_units(fm: &FloatModel, ds: &Dataset) -> Vec<usize> {
-    let lin = fm.linear();
-    // The score of each unit as `Linear::scores` computes it, without holding them all.
-    (0..ds.len())
-        .into_par_iter()
-        .map_init(
-            || vec![0.0; ds.dim()],
-            |x, i| {
-                ds.scaled_row(i, x);
-                ((lin.score(x) > fm.threshold) == (ds.labels[i] > 0)).then_some(i)
-            },
-        )
-        .flatten_iter()
-        .collect()
+/// Which units the float model classifies correctly, by the score the audit computes (over
+/// raw readings, [`RawForm`]): the units whose fixed margins the quantiser maximises and the
+/// audit reports. Asked per unit inside each pass over the log, so no list of them is kept.
+pub struct Correct<'a> {
+    ds: &'a Dataset,
+    float: RawForm,
+    threshold: f64,
 }
 
-/// Smallest fixed margin over `idx`, by the shared kernel; `None` if a reading is refused or `idx` is empty.
-pub fn min_margin(m: &CheckedModel, ds: &Dataset, idx: &[usize]) -> Option<f64> {
+impl<'a> Correct<'a> {
+    /// For `fm` on the units of `ds`.
+    pub fn new(fm: &FloatModel, ds: &'a Dataset) -> Self {
+        Self {
+            ds,
+            float: RawForm::new(ds, &fm.weights, fm.bias),
+            threshold: fm.threshold,
+        }
+    }
+
+    /// Whether unit `i` is classified correctly.
+    #[inline]
+    pub fn holds(&self, i: usize) -> bool {
+        (self.float.score(self.ds.raw_row(i)) > self.threshold) == (self.ds.labels[i] > 0)
+    }
+}
+
+/// Smallest fixed margin over the units the float model gets right, by the shared kernel;
+/// `None` if a reading is refused or no such unit has a decision.
+pub fn min_margin(m: &CheckedModel, ds: &Dataset, correct: &Correct<'_>) -> Option<f64> {
     // A unit in the RECHECK band gets no decision, so it has no decision margin. Chunks in
     // parallel: the minimum does not depend on the order.
-    idx.par_chunks(1 << 14)
-        .map(|chunk| {
-            chunk
-                .iter()
-                .map(|&i| {
-                    m.classify(ds.raw_row(i)).ok().map(|d| {
-                        if d.verdict == shared_model::Verdict::Recheck {
-                            f64::INFINITY
-                        } else {
-                            fixed_margin(m.model(), d.score, ds.labels[i])
-                        }
-                    })
-                })
-                .try_fold(f64::INFINITY, |acc, v| v.map(|v| acc.min(v)))
+    (0..ds.len())
+        .into_par_iter()
+        .with_min_len(1 << 14)
+        .filter(|&i| correct.holds(i))
+        .map(|i| {
+            m.classify(ds.raw_row(i)).ok().map(|d| {
+                if d.verdict == shared_model::Verdict::Recheck {
+                    f64::INFINITY
+                } else {
+                    fixed_margin(m.model(), d.score, ds.labels[i])
+                }
+            })
         })
-        .reduce(|| Some(f64::INFINITY), |a, b| Some(a?.min(b?)))
+        .try_reduce(|| f64::INFINITY, |a, b| Some(a.min(b)))
         .filter(|v| v.is_finite())
 }
 
@@ -328,16 +340,36 @@ impl Bound<'_> {
     }
 }
 
+/// What [`search`] found.
+struct Searched {
+    /// The model after the moves.
+    model: FixedModel,
+    /// Moves made.
+    moves: usize,
+    /// [`min_margin`] of the model the search started from (from its pass over the units).
+    plain: Option<f64>,
+    /// [`min_margin`] of `model`, when the units the search kept settle it (see [`search`]);
+    /// `None` asks for a pass over every unit.
+    moved: Option<f64>,
+}
+
 /// Greedy ±1 LSB coordinate search on the units with the smallest margins, maximising
-/// (smallest margin − rounding bound). Returns the model, its moves, and [`min_margin`] of
-/// the model it started from (computed in the same pass over the units).
+/// (smallest margin − rounding bound).
+///
+/// The moved model's minimum margin comes without a second pass over the units when the
+/// kept units settle it. A unit's margin is affine in the weights: a move of the weights
+/// by δ (bias by δ_b) changes it by y·(Σ δᵢ·xᵢ + δ_b), at most D = Σ|δᵢ|·(Xmaxᵢ + 1) + |δ_b|
+/// in size (Xmaxᵢ bounds the scaled input, +1 for its rounding). Every unit left out had a
+/// margin of at least T, the largest kept; so if the smallest kept margin after the moves is
+/// at most T − D, no unit left out can be below it. That needs margins exact in f64 (score
+/// bound and decision edges below 2^51) and no RECHECK band (whose units have no margin).
 fn search(
     m: &CheckedModel,
     ds: &Dataset,
-    correct: &[usize],
+    correct: &Correct<'_>,
     wmax: i64,
     bound: &Bound<'_>,
-) -> (FixedModel, usize, Option<f64>) {
+) -> Searched {
     let d = ds.dim();
     // The search works on the units of smallest margin only. They are picked chunk by chunk
     // (a linear selection per chunk, bounded memory), not by scaling and sorting every unit:
@@ -353,13 +385,14 @@ fn search(
     };
     // Each chunk: its tightest units, and its minimum margin as `min_margin` counts it (a
     // RECHECK unit has none; a unit the kernel refuses leaves the model without one).
-    let (mut picked, plain) = correct
-        .par_chunks(1 << 16)
-        .map(|chunk| {
+    const CHUNK: usize = 1 << 16;
+    let (mut picked, plain, scored) = (0..ds.len().div_ceil(CHUNK))
+        .into_par_iter()
+        .map(|c| {
             let mut least = Some(f64::INFINITY);
-            let mut v: Vec<(f64, usize)> = chunk
-                .iter()
-                .filter_map(|&i| {
+            let mut v: Vec<(f64, usize)> = (c * CHUNK..ds.len().min((c + 1) * CHUNK))
+                .filter(|&i| correct.holds(i))
+                .filter_map(|i| {
                     let Ok(dec) = m.classify(ds.raw_row(i)) else {
                         least = None;
                         return None;
@@ -371,15 +404,16 @@ fn search(
                     Some((mg, i))
                 })
                 .collect();
+            let scored = v.len();
             smallest(&mut v);
-            (v, least)
+            (v, least, scored)
         })
         .reduce(
-            || (Vec::new(), Some(f64::INFINITY)),
-            |(mut a, la), (b, lb)| {
+            || (Vec::new(), Some(f64::INFINITY), 0),
+            |(mut a, la, na), (b, lb, nb)| {
                 a.extend(b);
                 smallest(&mut a);
-                (a, la.and_then(|x| Some(x.min(lb?))))
+                (a, la.and_then(|x| Some(x.min(lb?))), na + nb)
             },
         );
     let plain = plain.filter(|v| v.is_finite());
@@ -434,7 +468,52 @@ fn search(
         }
         moves += 1;
     }
-    (model, moves, plain)
+    let moved = settled(m.model(), &model, bound, (&rows, &margins), scored, plain);
+    Searched {
+        model,
+        moves,
+        plain,
+        moved,
+    }
+}
+
+/// The moved model's minimum margin from the kept units alone, when they settle it (see
+/// [`search`]): `kept` are the kept units (plain margin, label, scaled inputs; smallest
+/// margin first) and their margins under `moved`; `scored` the units the pass scored.
+fn settled(
+    plain_model: &FixedModel,
+    moved: &FixedModel,
+    bound: &Bound<'_>,
+    kept: (&[(f64, i8, Vec<i32>)], &[f64]),
+    scored: usize,
+    plain: Option<f64>,
+) -> Option<f64> {
+    let (rows, margins) = kept;
+    const EXACT: i128 = 1 << 51;
+    let exact = |m: &FixedModel| {
+        m.score_bound() < EXACT
+            && i128::from(m.go_min).abs() < EXACT
+            && i128::from(m.nogo_max).abs() < EXACT
+    };
+    // A refused reading (plain is None) or a RECHECK band: the full pass decides.
+    plain?;
+    if moved.go_min != moved.nogo_max + 1 || !exact(plain_model) || !exact(moved) {
+        return None;
+    }
+    let least = margins.iter().copied().fold(f64::INFINITY, f64::min);
+    if rows.len() == scored {
+        return least.is_finite().then_some(least);
+    }
+    let largest_kept = rows.last()?.0;
+    let reach = plain_model
+        .channels
+        .iter()
+        .zip(&moved.channels)
+        .zip(bound.xmax)
+        .map(|((a, b), x)| f64::from(a.weight.abs_diff(b.weight)) * (x + 1.0))
+        .sum::<f64>()
+        + plain_model.bias.abs_diff(moved.bias) as f64;
+    (least <= largest_kept - reach).then_some(least)
 }
 
 #[cfg(test)]
@@ -442,6 +521,143 @@ mod tests {
     use super::*;
     use fixed::types::extra::{U7, U15};
     use fixed::{FixedI8, FixedI16};
+
+    /// The moved model's minimum margin over every unit the float model gets right,
+    /// recomputed here unit by unit with the kernel (the definition, not the pass).
+    fn brute_min_margin(m: &CheckedModel, fm: &FloatModel, ds: &Dataset) -> Option<f64> {
+        let correct = Correct::new(fm, ds);
+        let mut least = f64::INFINITY;
+        for i in (0..ds.len()).filter(|&i| correct.holds(i)) {
+            let d = m.classify(ds.raw_row(i)).ok()?;
+            least = least.min(fixed_margin(m.model(), d.score, ds.labels[i]));
+        }
+        least.is_finite().then_some(least)
+    }
+
+    #[test]
+    fn a_move_too_large_for_the_kept_units_asks_for_the_full_pass() {
+        // Two kept units of margins 5.5 and 10.5 out of three scored; channel a's weight
+        // moves by one, so a unit left out (margin ≥ 10.5) may lose up to Xmax + 1.
+        let plain = FixedModel::example_two_channel();
+        let mut moved = plain.clone();
+        moved.channels[0].weight += 1;
+        let rows = vec![(5.5, 1i8, vec![0, 0]), (10.5, -1, vec![0, 0])];
+        let after = [4.5, 9.5];
+        let settle = |xmax: f64, scored: usize, m: &FixedModel| {
+            let xmax = [xmax, xmax];
+            let bound = Bound {
+                ideal_w: &[0.0, 0.0],
+                ideal_b: 0.0,
+                xmax: &xmax,
+            };
+            settled(&plain, m, &bound, (&rows, &after), scored, Some(5.5))
+        };
+        // Reach 1·(4 + 1) = 5: 4.5 ≤ 10.5 − 5, settled.
+        assert_eq!(settle(4.0, 3, &moved), Some(4.5));
+        // Reach 7: a unit left out could fall to 3.5, below 4.5.
+        assert_eq!(settle(6.0, 3, &moved), None);
+        // Every scored unit kept: nothing left out to fear.
+        assert_eq!(settle(1e6, 2, &moved), Some(4.5));
+        // A RECHECK band: its units have no margin, the full pass decides.
+        let mut banded = moved.clone();
+        banded.go_min += 2;
+        assert_eq!(settle(4.0, 3, &banded), None);
+        // A refused reading in the search's pass: no margin to report from the kept units.
+        let bound = Bound {
+            ideal_w: &[0.0, 0.0],
+            ideal_b: 0.0,
+            xmax: &[4.0, 4.0],
+        };
+        assert_eq!(
+            settled(&plain, &moved, &bound, (&rows, &after), 3, None),
+            None
+        );
+    }
+
+    #[test]
+    fn kept_units_settle_the_moved_margin_only_when_they_must() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        let (mut used, mut moved_runs) = (0, 0);
+        for trial in 0..12 {
+            // More units than the search keeps (4,096), so the shortcut has something to prove.
+            let n = 6_000 + 1_000 * trial;
+            let w: Vec<f64> = (0..3).map(|_| rng.gen_range(-1.0..1.0)).collect();
+            let mut pts = Vec::new();
+            let mut labels = Vec::new();
+            while pts.len() < n {
+                let p: Vec<f64> = (0..3).map(|_| rng.gen_range(-1.0..1.0)).collect();
+                let s: f64 = p.iter().zip(&w).map(|(a, b)| a * b).sum();
+                if s.abs() > 0.02 {
+                    labels.push(if s > 0.0 { 1 } else { -1 });
+                    pts.push(p);
+                }
+            }
+            let ds = Dataset::from_scaled(&pts, &labels);
+            let req = crate::workflow::TrainRequest {
+                trainer: crate::train::eval::TrainerKind::Averaged,
+                epochs: 3,
+                seed: trial as u64,
+                c: 10.0,
+                max_false_go: None,
+                folds: 0,
+                cv_trainers: crate::workflow::CvTrainers::Auto,
+                holdout_split: None,
+                progress: false,
+                figures: crate::train::separability::Figures::VERDICT,
+            };
+            let fm = crate::workflow::train_model(&ds, None, &req).unwrap().model;
+            for weight_bits in [5u8, 6, 8] {
+                let cfg = QuantConfig {
+                    weight_bits,
+                    ..QuantConfig::default()
+                };
+                let q = quantise(&fm, Some(&ds), cfg).unwrap();
+                // Whichever way it was found, the reported margin is the definition's.
+                assert_eq!(
+                    q.optimised_min_margin,
+                    brute_min_margin(&q.model, &fm, &ds),
+                    "trial {trial}, {weight_bits}-bit weights"
+                );
+                if q.moves > 0 {
+                    moved_runs += 1;
+                    // And the shortcut itself, where it answers, agrees with a full pass.
+                    let plain = quantise(&fm, None, cfg).unwrap();
+                    let xmax: Vec<f64> = plain
+                        .model
+                        .model()
+                        .channels
+                        .iter()
+                        .zip(&plain.kappa)
+                        .map(|(c, k)| {
+                            k * f64::from(
+                                c.raw_max
+                                    .abs_diff(c.offset)
+                                    .max(c.offset.abs_diff(c.raw_min)),
+                            )
+                        })
+                        .collect();
+                    let bound = Bound {
+                        ideal_w: &plain.ideal_weights,
+                        ideal_b: plain.ideal_bias,
+                        xmax: &xmax,
+                    };
+                    let wmax = (1i64 << (weight_bits - 1)) - 1;
+                    let found = search(&plain.model, &ds, &Correct::new(&fm, &ds), wmax, &bound);
+                    if let Some(v) = found.moved {
+                        used += 1;
+                        let m = CheckedModel::new(found.model).unwrap();
+                        assert_eq!(Some(v), brute_min_margin(&m, &fm, &ds));
+                    }
+                }
+            }
+        }
+        // The test means something only if both happened.
+        assert!(
+            moved_runs > 0 && used > 0,
+            "moved {moved_runs}, shortcut used {used}"
+        );
+    }
 
     #[test]
     fn q_conversion_matches_the_fixed_crate_at_half_lsb_edges() {
