@@ -148,7 +148,11 @@ fn against_references(bin: &Path, root: &Path, log: &str, sheet: &str, rows: usi
         None => skipped("check against polars"),
     }
     // With the figures `check` leaves out by default: the second solve and a perceptron run.
-    match pair(&ours(&["check", "--novikoff"]), &theirs("polars-load"), runs) {
+    match pair(
+        &ours(&["check", "--novikoff"]),
+        &theirs("polars-load"),
+        runs,
+    ) {
         Some((a, b, _)) => println!(
             "{rows} x 16: linegate check --novikoff {a:.2} s, polars reading the CSV alone {b:.2} s: {:.2}x faster",
             b / a

@@ -418,7 +418,7 @@ fn search(
         );
     let plain = plain.filter(|v| v.is_finite());
     picked.sort_by(order);
-    let rows: Vec<(f64, i8, Vec<i32>)> = picked
+    let rows: Vec<KeptUnit> = picked
         .into_iter()
         .map(|(mg, i)| {
             let mut x = vec![0i32; d];
@@ -477,6 +477,9 @@ fn search(
     }
 }
 
+/// A unit [`search`] keeps: its plain margin, label and scaled inputs.
+type KeptUnit = (f64, i8, Vec<i32>);
+
 /// The moved model's minimum margin from the kept units alone, when they settle it (see
 /// [`search`]): `kept` are the kept units (plain margin, label, scaled inputs; smallest
 /// margin first) and their margins under `moved`; `scored` the units the pass scored.
@@ -484,7 +487,7 @@ fn settled(
     plain_model: &FixedModel,
     moved: &FixedModel,
     bound: &Bound<'_>,
-    kept: (&[(f64, i8, Vec<i32>)], &[f64]),
+    kept: (&[KeptUnit], &[f64]),
     scored: usize,
     plain: Option<f64>,
 ) -> Option<f64> {
