@@ -16,7 +16,11 @@ use crate::ingest::scaling::ChannelScale;
 
 /// Reads a bench log into a [`Dataset`] of raw readings.
 ///
-/// With observed scaling the file is read twice: once for the ranges, once to convert.
+/// With observed scaling every channel's lsb comes from its range, known only at the end of
+/// the file. When no channel has a declared range the first pass keeps the readings (as the
+/// exact doubles a second pass would convert) and converts them once the ranges are known,
+/// up to [`KEEP_READINGS`] bytes of them; a longer log, or one with some channels in the
+/// sheet, is read twice: once for the ranges, once to convert.
 ///
 /// # Errors
 /// The first [`InputError`] (or, with `skip_bad_rows`, only errors that are not about one row).
@@ -24,6 +28,26 @@ pub fn read_log(
     path: &Path,
     opts: &LogOptions,
     scale: ScaleFrom<'_>,
+) -> Result<Dataset, InputError> {
+    read_log_keeping(path, opts, scale, KEEP_READINGS)
+}
+
+/// Bytes of readings (8 per reading) the first pass of observed scaling keeps to spare the
+/// second pass: 1 GiB, 8 million units of 16 channels.
+pub const KEEP_READINGS: usize = 1 << 30;
+
+/// The first pass's rows, kept for [`read_log`]'s single pass.
+struct Kept {
+    values: Vec<f64>,
+    rows: Dataset,
+}
+
+/// [`read_log`] keeping at most `keep` bytes of readings from the first pass.
+pub(super) fn read_log_keeping(
+    path: &Path,
+    opts: &LogOptions,
+    scale: ScaleFrom<'_>,
+    keep: usize,
 ) -> Result<Dataset, InputError> {
     let model = match scale {
         ScaleFrom::Model(m) => Some(m),
@@ -40,10 +64,31 @@ pub fn read_log(
     };
     // Pass 1, only if some channel has no declared range: observe min/max.
     let mut ranges: Vec<(f64, f64)> = Vec::new();
+    let mut kept: Option<Kept> = None;
+    let mut first_digest = String::new();
+    let mut first_skipped = SkipReport::default();
     if model.is_none() && names.iter().any(|n| sheet.and_then(|s| s.get(n)).is_none()) {
-        let mut skipped = SkipReport::default();
+        // Keep the rows only if no channel is in the sheet: a declared range can refuse a
+        // reading, and the second pass words that error.
+        let all_observed = names.iter().all(|n| sheet.and_then(|s| s.get(n)).is_none());
+        if all_observed && keep > 0 {
+            let mut rows = Dataset::empty(path, Vec::new());
+            let mut values = Vec::new();
+            if let Some(n) = estimate_rows(path) {
+                let len = std::fs::metadata(path).map_or(0, |m| m.len());
+                let most = usize::try_from(len / (2 * (names.len() as u64 + 1))).unwrap_or(0);
+                let cells = n.min(most).min(opts.max_rows).saturating_mul(names.len());
+                if cells.saturating_mul(8) <= keep {
+                    values.reserve_exact(cells);
+                    rows.labels.reserve_exact(cells / names.len().max(1));
+                    rows.lines.reserve_exact(cells / names.len().max(1));
+                }
+            }
+            kept = Some(Kept { values, rows });
+        }
+        // A pass that may be the only one hashes the file; else the second pass does.
+        let hash = kept.is_some() && opts.digest;
         let mut rows = 0usize;
-        // The second pass hashes the file; this one need not.
         let first_pass = |_: &_, row: super::parse::Row<'_>| {
             if ranges.is_empty() {
                 ranges = row.values.iter().map(|&v| (v, v)).collect();
@@ -53,12 +98,46 @@ pub fn read_log(
                 r.1 = r.1.max(v);
             }
             rows += 1;
+            if let Some(k) = kept.as_mut() {
+                if k.rows.labels.len() >= opts.max_rows {
+                    return Err(InputError::TooManyRows {
+                        path: path.into(),
+                        max: opts.max_rows,
+                    });
+                }
+                if (k.values.len() + row.values.len()) * 8 > keep {
+                    // Too long to keep: the second pass converts.
+                    kept = None;
+                } else {
+                    k.values.extend_from_slice(row.values);
+                    k.rows.labels.push(row.label);
+                    k.rows.lines.push(row.line);
+                    if let Some(u) = row.unit {
+                        k.rows.unit_ids.push(u);
+                    }
+                    if let Some(t) = row.time {
+                        k.rows.times.push(t);
+                    }
+                }
+            }
             Ok(())
         };
-        scan(path, opts, model, None, &mut skipped, first_pass, false)?;
+        let (cols1, digest) = scan(
+            path,
+            opts,
+            model,
+            None,
+            &mut first_skipped,
+            first_pass,
+            hash,
+        )?;
         if rows == 0 {
-            return Err(no_rows(path, &skipped));
+            return Err(no_rows(path, &first_skipped));
         }
+        if let (None, Some(k)) = (cols1.unit, kept.as_mut()) {
+            k.rows.unit_ids.clear();
+        }
+        first_digest = digest;
     }
     let scales: Vec<ChannelScale> = match model {
         Some(m) => m.to_vec(),
@@ -88,6 +167,14 @@ pub fn read_log(
             })
             .collect::<Result<_, _>>()?,
     };
+    if let Some(ds) = kept.and_then(|k| convert_kept(k, &scales)) {
+        let ds = Dataset {
+            sha256: first_digest,
+            skipped: first_skipped,
+            ..ds
+        };
+        return checked_classes(path, ds, model.is_some());
+    }
     // Pass 2: convert to raw.
     let mut ds = Dataset::empty(path, scales);
     // Reserve once from an estimate of the row count: growing by doubling would briefly hold
@@ -145,11 +232,41 @@ pub fn read_log(
     }
     ds.sha256 = sha;
     ds.skipped = skipped;
+    checked_classes(path, ds, model.is_some())
+}
+
+/// The kept rows of the first pass converted with `scales`, as the second pass would convert
+/// them (`to_raw_inv` equals `to_raw`); `None` if a reading is refused, which the observed
+/// ranges rule out, so that the second pass words it.
+fn convert_kept(kept: Kept, scales: &[ChannelScale]) -> Option<Dataset> {
+    use rayon::prelude::*;
+    let Kept { values, mut rows } = kept;
+    let d = scales.len().max(1);
+    let inv: Vec<f64> = scales.iter().map(ChannelScale::inv_lsb).collect();
+    let mut raw = vec![0i32; values.len()];
+    raw.par_chunks_mut(d * 4096)
+        .zip(values.par_chunks(d * 4096))
+        .try_for_each(|(out, vals)| {
+            for (o, v) in out.chunks_exact_mut(d).zip(vals.chunks_exact(d)) {
+                for (((o, &v), s), &inv) in o.iter_mut().zip(v).zip(scales).zip(&inv) {
+                    *o = s.to_raw_inv(v, inv)?;
+                }
+            }
+            Some(())
+        })?;
+    drop(values);
+    rows.raw = raw;
+    rows.scales = scales.to_vec();
+    Some(rows)
+}
+
+/// `ds`, unless it is empty or, for training (no model), holds one class only.
+fn checked_classes(path: &Path, ds: Dataset, for_model: bool) -> Result<Dataset, InputError> {
     if ds.is_empty() {
         return Err(no_rows(path, &ds.skipped));
     }
     let go = ds.labels.iter().filter(|&&l| l > 0).count();
-    if model.is_none() && (go == 0 || go == ds.len()) {
+    if !for_model && (go == 0 || go == ds.len()) {
         return Err(InputError::OneClass {
             path: path.into(),
             rows: ds.len(),

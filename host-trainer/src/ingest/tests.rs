@@ -384,3 +384,55 @@ fn an_over_long_line_comes_after_the_errors_before_it() {
         );
     }
 }
+
+/// What a read gave, for comparing two reads: every field of the dataset, or the error.
+fn read_view(r: Result<crate::ingest::dataset::Dataset, InputError>) -> Result<String, String> {
+    let ds = r.map_err(|e| e.to_string())?;
+    let ids: Vec<String> = (0..ds.len()).map(|i| ds.unit_name(i)).collect();
+    let times: Vec<Option<&str>> = (0..ds.len()).map(|i| ds.times.get(i)).collect();
+    Ok(format!(
+        "{:?} {:?} {:?} {:?} {ids:?} {times:?} {:?} {}",
+        ds.scales, ds.raw, ds.labels, ds.lines, ds.skipped.by_reason, ds.sha256
+    ))
+}
+
+proptest::proptest! {
+    #![proptest_config(proptest::prelude::ProptestConfig::with_cases(512))]
+    /// Observed scaling read in one pass (the first pass's readings kept and converted) gives
+    /// the dataset, skips, digest and errors of the two-pass read.
+    #[test]
+    fn observed_scaling_in_one_pass_equals_two_passes(
+        records in proptest::collection::vec((
+            proptest::collection::vec(proptest::sample::select(vec![
+                "1", "12.34", "17", "-0.5", "100", "5000", "0", "-0", "12.345", "0.0000001",
+                "1e1", "2.5e-3", " 5", "x", "", "1", "12.34", "17",
+            ]), 2..=2),
+            proptest::sample::select(vec!["GO", "no-go", "GO", "no-go", "maybe"]),
+            proptest::sample::select(vec!["U1", "U2", "", "\"U,3\""]),
+            proptest::sample::select(vec!["\n", "\r\n", ""]),
+        ), 0..30),
+        skip in proptest::bool::ANY,
+        times in proptest::bool::ANY,
+    ) {
+        let mut text = String::from("unit_id,a,b,time,label\n");
+        for (cells, label, unit, end) in &records {
+            text.push_str(&format!("{unit},{},{},2026-01-0{},{label}", cells[0], cells[1], cells.len()));
+            text.push_str(if end.is_empty() { "\n" } else { end });
+        }
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("log.csv");
+        std::fs::write(&path, &text).unwrap();
+        let opts = LogOptions {
+            skip_bad_rows: skip,
+            keep_times: times,
+            ..LogOptions::default()
+        };
+        let read = |keep| {
+            read_view(super::read::read_log_keeping(&path, &opts, ScaleFrom::Observed, keep))
+        };
+        let one = read(super::read::KEEP_READINGS);
+        proptest::prop_assert_eq!(&one, &read(0));
+        // A budget the log outgrows part-way falls back to the second pass, to the same end.
+        proptest::prop_assert_eq!(&one, &read(24));
+    }
+}
