@@ -245,3 +245,76 @@ impl fmt::Display for Fault {
 }
 
 impl core::error::Error for Fault {}
+
+/// Why a signal feature was refused by validation (`CheckedFeature::new`).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum SignalError {
+    /// `raw_min > raw_max`.
+    InvertedRange,
+    /// The offset lies outside the valid range, or the range is 2^31 counts or wider.
+    Offset,
+    /// The window length is 0 or above `MAX_WINDOW`.
+    Window(u16),
+    /// Some window of valid samples could overflow this feature's integers or its result.
+    Overflow(crate::features::Feature),
+    /// A Goertzel coefficient above 2^30 in size (2cos ω·2^29 never is).
+    Coefficient(i32),
+}
+
+impl fmt::Display for SignalError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match *self {
+            Self::InvertedRange => f.write_str("signal range is inverted (raw_min > raw_max)"),
+            Self::Offset => f.write_str(
+                "signal offset lies outside the valid range, or the range spans 2^31 counts or more",
+            ),
+            Self::Window(n) => write!(
+                f,
+                "window of {n} samples (use 1 to {})",
+                crate::limits::MAX_WINDOW
+            ),
+            Self::Overflow(feature) => write!(
+                f,
+                "{feature:?} of this window could overflow its integers: shorten the window or narrow the sample range"
+            ),
+            Self::Coefficient(c) => {
+                write!(f, "Goertzel coefficient {c} is above 2^30 in size")
+            }
+        }
+    }
+}
+
+/// Why a window of samples could not be reduced to its feature. The device treats it as a
+/// fault: NO-GO.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum WindowFault {
+    /// The window holds a different number of samples than declared.
+    Length {
+        /// Samples declared.
+        expected: u16,
+        /// Samples given.
+        got: usize,
+    },
+    /// A sample lies outside the signal's valid raw range.
+    OutOfRange {
+        /// Index of the first such sample in the window.
+        index: u16,
+        /// The refused raw sample.
+        raw: i32,
+    },
+}
+
+impl fmt::Display for WindowFault {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match *self {
+            Self::Length { expected, got } => {
+                write!(f, "expected a window of {expected} samples, got {got}")
+            }
+            Self::OutOfRange { index, raw } => {
+                write!(f, "sample {index}: {raw} is outside the valid range")
+            }
+        }
+    }
+}

@@ -11,7 +11,9 @@
 //!    bumps [`blob::FORMAT_VERSION`].
 //!
 //! [`limits`] holds the capacities and layout constants all three share; [`error`] the
-//! error enums. Imports point one way: `limits` ← `error` ← `model` ← `blob`, `kernel`.
+//! error enums. [`features`] reduces a window of raw samples to one integer reading (mean,
+//! RMS, band magnitude…), the same integer on the desk and on the device; it is not yet
+//! carried in the blob. Imports point one way: `limits` ← `error` ← `model` ← `blob`, `kernel`.
 //! 3. [`kernel`]: raw readings → scaled integer inputs → integer score →
 //!    [`Verdict`]. Integer only, explicit widths.
 //!
@@ -71,13 +73,14 @@ extern crate std;
 
 pub mod blob;
 pub mod error;
+pub mod features;
 #[doc = include_str!("../FORMAT.md")]
 pub mod format {}
 pub mod kernel;
 pub mod limits;
 pub mod model;
 
-pub use error::{DecodeError, EncodeError, Fault, ModelError};
+pub use error::{DecodeError, EncodeError, Fault, ModelError, SignalError, WindowFault};
 pub use kernel::{Decision, Verdict};
 pub use limits::{MAX_CHANNELS, NAME_CAPACITY};
 pub use model::{AuditMark, ChannelSpec, CheckedModel, FixedModel};

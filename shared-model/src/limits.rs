@@ -7,6 +7,9 @@
 /// Most channels a model may fuse. Fixed at compile time so the device needs no heap.
 pub const MAX_CHANNELS: usize = 32;
 
+/// Most samples in one signal window (a feature's overflow proof covers any length up to it).
+pub const MAX_WINDOW: usize = 4096;
+
 /// Longest channel name, in UTF-8 bytes.
 pub const NAME_CAPACITY: usize = 24;
 

@@ -5,6 +5,7 @@ mod browser;
 mod c_api;
 mod demo;
 mod device;
+mod features;
 mod house;
 mod images;
 mod quantisation;

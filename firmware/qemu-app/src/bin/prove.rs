@@ -1,6 +1,6 @@
-//! Link-time proof of panic-freedom: the decode + classify + drive path linked with
-//! `panic-never`, whose panic handler is an undefined symbol. If any panic path
-//! survives optimisation, this binary fails to link.
+//! Link-time proof of panic-freedom: the decode + classify + drive path, and every signal
+//! feature of a window, linked with `panic-never`, whose panic handler is an undefined
+//! symbol. If any panic path survives optimisation, this binary fails to link.
 #![no_std]
 #![no_main]
 
@@ -8,26 +8,64 @@
 #[path = "../board.rs"]
 mod board;
 
-use core::sync::atomic::{AtomicI32, AtomicU32, Ordering};
-
 use board::entry;
 use firmware::{GoNoGoLines, SensorSource, Station, Step};
 use panic_never as _;
 
-/// Readings arrive here from outside the program (a DMA target on a real board), so the
-/// optimiser cannot assume anything about them.
-static INPUT: [AtomicI32; shared_model::MAX_CHANNELS] =
-    [const { AtomicI32::new(0) }; shared_model::MAX_CHANNELS];
-/// Last score and verdict, observable from outside.
-static OUTPUT: [AtomicU32; 3] = [const { AtomicU32::new(0) }; 3];
+/// A value from outside the program (a DMA target or a register on a real board): the
+/// optimiser may assume nothing about it. A static the program never writes would not do:
+/// whole-program optimisation folds its loads to the initial value.
+fn outside() -> i32 {
+    core::hint::black_box(0)
+}
+
+/// A value handed to the outside world, so the work behind it must be done.
+fn observe(v: u32) {
+    core::hint::black_box(v);
+}
+
+const WINDOW: usize = 256;
+
+/// Every feature of a window whose description and samples the optimiser cannot know.
+fn window_features() {
+    use shared_model::features::{CheckedFeature, Feature, SignalSpec};
+    let window = outside();
+    let spec = SignalSpec {
+        raw_min: outside(),
+        raw_max: outside(),
+        offset: outside(),
+        window: u16::try_from(window).unwrap_or(0),
+    };
+    let mut buf = [0i32; WINDOW];
+    for b in buf.iter_mut() {
+        *b = outside();
+    }
+    let feature = match outside() {
+        0 => Feature::Mean,
+        1 => Feature::Rms,
+        2 => Feature::Min,
+        3 => Feature::Max,
+        4 => Feature::PeakToPeak,
+        5 => Feature::AbsPeak,
+        6 => Feature::StdDev,
+        7 => Feature::ZeroCrossings,
+        _ => Feature::Band { coeff: outside() },
+    };
+    let len = usize::try_from(window).unwrap_or(0);
+    let value = match (CheckedFeature::new(spec, feature), buf.get(..len)) {
+        (Ok(f), Some(window)) => f.compute(window).unwrap_or(i32::MIN),
+        _ => i32::MIN + 1,
+    };
+    observe(value as u32);
+}
 
 struct Inputs;
 
 impl SensorSource for Inputs {
     type Error = ();
     fn read(&mut self, readings: &mut [i32]) -> Result<(), ()> {
-        for (r, i) in readings.iter_mut().zip(INPUT.iter()) {
-            *r = i.load(Ordering::Relaxed);
+        for r in readings.iter_mut() {
+            *r = outside();
         }
         Ok(())
     }
@@ -42,16 +80,15 @@ fn main() -> ! {
     );
     let mut station = Station::new(board::model_region(), Inputs, lines);
     loop {
+        window_features();
         let Ok(step) = station.step();
         match step {
             Step::Decided(d) => {
-                OUTPUT[0].store(d.score as u32, Ordering::Relaxed);
-                OUTPUT[1].store((d.score >> 32) as u32, Ordering::Relaxed);
-                OUTPUT[2].store(d.verdict as u32, Ordering::Relaxed);
+                observe(d.score as u32);
+                observe((d.score >> 32) as u32);
+                observe(d.verdict as u32);
             }
-            Step::Faulted { first, .. } => {
-                OUTPUT[2].store(if first { 10 } else { 11 }, Ordering::Relaxed)
-            }
+            Step::Faulted { first, .. } => observe(if first { 10 } else { 11 }),
         }
     }
 }
