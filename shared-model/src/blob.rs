@@ -9,18 +9,23 @@
 //! | 9       | N    | postcard encoding of [`FixedModel`]                      |
 //! | 9 + N   | 4    | CRC-32/ISO-HDLC of bytes `0 .. 9+N`, little-endian       |
 //!
+//! A model with signal features ([`CheckedSignalModel`]) is written as format version 3
+//! (4 signed) by [`encode_signals`]: the same bytes, with the signal section after the
+//! model in the payload; [`decode_signals`] reads every version, [`decode`] versions 1 and 2
+//! (a station that passes only readings must not load a model that needs windows).
 //! The full specification, with the payload's field order, is in
 //! `shared-model/FORMAT.md`. Stability rule: any change to this layout or to
 //! the payload's fields bumps [`FORMAT_VERSION`]; a decoder refuses versions
 //! it does not know.
 
 use crate::error::{DecodeError, EncodeError};
+use crate::features::SignalSection;
 use crate::limits::MAX_CHANNELS;
 pub use crate::limits::{
     CRC_LEN, FORMAT_VERSION, HEADER_LEN, KEY_ID_LEN, MAGIC, MAX_BLOB_LEN, MAX_PAYLOAD_LEN,
-    SIGNATURE_LEN, SIGNATURE_SECTION_LEN, SIGNED_VERSION,
+    SIGNAL_VERSION, SIGNATURE_LEN, SIGNATURE_SECTION_LEN, SIGNED_SIGNAL_VERSION, SIGNED_VERSION,
 };
-use crate::model::{ChannelSpec, CheckedModel, FixedModel};
+use crate::model::{ChannelSpec, CheckedModel, CheckedSignalModel, FixedModel};
 
 /// CRC-32/ISO-HDLC (poly 0x04C11DB7, reflected, init and xorout 0xFFFFFFFF): the CRC of
 /// zip, PNG and Ethernet. Bitwise, without a table, to keep ~1 KiB out of device flash;
@@ -61,11 +66,12 @@ pub struct Signed<'a> {
     pub signed: &'a [u8],
 }
 
-/// The signature section of `blob`, or `None` if it is not a whole version-2 blob. The
+/// The signature section of `blob`, or `None` if it is not a whole signed (version 2 or
+/// 4) blob. The
 /// signature is not checked here: that needs the public key (firmware, `linegate inspect`).
 pub fn signature(blob: &[u8]) -> Option<Signed<'_>> {
     let h = Header::read(blob).ok()?;
-    if h.version != SIGNED_VERSION || blob.len() != h.blob_len() {
+    if !h.is_signed() || blob.len() != h.blob_len() {
         return None;
     }
     let crc_end = HEADER_LEN + usize::from(h.payload_len) + CRC_LEN;
@@ -90,7 +96,31 @@ pub fn encode_for_signing(
     key_id: [u8; KEY_ID_LEN],
     out: &mut [u8],
 ) -> Result<usize, EncodeError> {
-    let n = encode_version(model, SIGNED_VERSION, out)?;
+    let n = encode_version(model, None, SIGNED_VERSION, out)?;
+    sign_section(n, key_id, out)
+}
+
+/// [`encode_for_signing`] for a model with signal features: version 4.
+///
+/// # Errors
+/// [`EncodeError::BufferTooSmall`] if `out` cannot hold the whole signed blob.
+pub fn encode_signals_for_signing(
+    model: &CheckedSignalModel,
+    key_id: [u8; KEY_ID_LEN],
+    out: &mut [u8],
+) -> Result<usize, EncodeError> {
+    let n = encode_version(
+        model.model(),
+        Some(model.signals()),
+        SIGNED_SIGNAL_VERSION,
+        out,
+    )?;
+    sign_section(n, key_id, out)
+}
+
+/// Writes `key_id` after the `n` bytes of an unsigned blob and checks room for the
+/// signature: the length to sign.
+fn sign_section(n: usize, key_id: [u8; KEY_ID_LEN], out: &mut [u8]) -> Result<usize, EncodeError> {
     out.get_mut(n..n + KEY_ID_LEN)
         .ok_or(EncodeError::BufferTooSmall)?
         .copy_from_slice(&key_id);
@@ -106,21 +136,39 @@ pub fn encode_for_signing(
 /// [`EncodeError::BufferTooSmall`] if `out` is shorter than the blob; a
 /// buffer of [`MAX_BLOB_LEN`] bytes always suffices.
 pub fn encode(model: &CheckedModel, out: &mut [u8]) -> Result<usize, EncodeError> {
-    encode_version(model, FORMAT_VERSION, out)
+    encode_version(model, None, FORMAT_VERSION, out)
 }
 
-/// Header, payload and CRC with the given version number.
+/// Writes the blob of a model with signal features into `out` (format version 3) and
+/// returns its length.
+///
+/// # Errors
+/// [`EncodeError::BufferTooSmall`] if `out` is shorter than the blob; a buffer of
+/// [`MAX_BLOB_LEN`] bytes always suffices.
+pub fn encode_signals(model: &CheckedSignalModel, out: &mut [u8]) -> Result<usize, EncodeError> {
+    encode_version(model.model(), Some(model.signals()), SIGNAL_VERSION, out)
+}
+
+/// Header, payload (the model, then the signal section if given) and CRC with the given
+/// version number.
 fn encode_version(
     model: &CheckedModel,
+    signals: Option<&SignalSection>,
     version: u16,
     out: &mut [u8],
 ) -> Result<usize, EncodeError> {
     let (header, rest) = out
         .split_at_mut_checked(HEADER_LEN)
         .ok_or(EncodeError::BufferTooSmall)?;
-    let n = postcard::to_slice(model.model(), rest)
+    let mut n = postcard::to_slice(model.model(), rest)
         .map_err(|_| EncodeError::BufferTooSmall)?
         .len();
+    if let Some(signals) = signals {
+        let section = rest.get_mut(n..).ok_or(EncodeError::BufferTooSmall)?;
+        n += postcard::to_slice(signals, section)
+            .map_err(|_| EncodeError::BufferTooSmall)?
+            .len();
+    }
     let len16 = u16::try_from(n).map_err(|_| EncodeError::BufferTooSmall)?;
     let count = u8::try_from(model.channel_count()).map_err(|_| EncodeError::BufferTooSmall)?;
     let [m0, m1, m2, m3] = MAGIC;
@@ -147,6 +195,52 @@ fn encode_version(
 /// [`DecodeError::InconsistentLengths`], [`DecodeError::Invalid`].
 pub fn decode(bytes: &[u8]) -> Result<CheckedModel, DecodeError> {
     let header = Header::read(bytes)?;
+    if header.has_signals() {
+        return Err(DecodeError::Signals);
+    }
+    let payload = checked_payload(bytes, header)?;
+    let (model, rest) = take_model(payload)?;
+    model_of(model, rest, header)
+}
+
+/// Decodes and validates a blob of any version, a model with signal features (version 3
+/// or 4) or without (1 or 2, whose section is then empty). Never panics, whatever the
+/// bytes.
+///
+/// # Errors
+/// As [`decode`], with the signal section's checks: [`DecodeError::MalformedPayload`],
+/// [`DecodeError::InconsistentLengths`] (a version-3 blob whose section is empty),
+/// [`DecodeError::Invalid`] with the section's [`ModelError`](crate::ModelError).
+pub fn decode_signals(bytes: &[u8]) -> Result<CheckedSignalModel, DecodeError> {
+    let header = Header::read(bytes)?;
+    let payload = checked_payload(bytes, header)?;
+    let (model, mut rest) = take_model(payload)?;
+    let mut signals = SignalSection::default();
+    if header.has_signals() {
+        rest = take_signals(rest, &mut signals)?;
+        // A model without signals is written as version 1: one layout per model.
+        if signals.is_empty() {
+            return Err(DecodeError::InconsistentLengths);
+        }
+    }
+    let model = model_of(model, rest, header)?;
+    Ok(CheckedSignalModel::new(model, signals)?)
+}
+
+/// The model once its payload is read: nothing may follow it, its channel count must be
+/// the header's, and it must validate. Inlined: taking the model by value through a call
+/// would copy it (2 KiB on the stack at start-up).
+#[inline(always)]
+fn model_of(model: FixedModel, rest: &[u8], header: Header) -> Result<CheckedModel, DecodeError> {
+    if !rest.is_empty() || model.channels.len() != usize::from(header.channel_count) {
+        return Err(DecodeError::InconsistentLengths);
+    }
+    Ok(CheckedModel::new(model)?)
+}
+
+/// The payload of a blob whose length and CRC check.
+#[inline(always)]
+fn checked_payload(bytes: &[u8], header: Header) -> Result<&[u8], DecodeError> {
     let body_len = HEADER_LEN + usize::from(header.payload_len);
     let total = header.blob_len();
     if bytes.len() < total {
@@ -179,14 +273,7 @@ pub fn decode(bytes: &[u8]) -> Result<CheckedModel, DecodeError> {
     if stored != computed {
         return Err(DecodeError::CrcMismatch { stored, computed });
     }
-    let payload = body
-        .get(HEADER_LEN..)
-        .ok_or(DecodeError::MalformedPayload)?;
-    let (model, rest) = take_model(payload)?;
-    if !rest.is_empty() || model.channels.len() != usize::from(header.channel_count) {
-        return Err(DecodeError::InconsistentLengths);
-    }
-    Ok(CheckedModel::new(model)?)
+    body.get(HEADER_LEN..).ok_or(DecodeError::MalformedPayload)
 }
 
 /// One postcard value from the front of `bytes`.
@@ -234,6 +321,33 @@ fn take_model(payload: &[u8]) -> Result<(FixedModel, &[u8]), DecodeError> {
     Ok((m, rest))
 }
 
+/// The signal section after the model (format version 3), element by element into
+/// `section`, as [`take_model`] reads the channels: serde's reader for the whole section
+/// would build its lists in frames of their own. Kept out of line so that loading a
+/// version-1 blob does not reserve its stack.
+#[inline(never)]
+fn take_signals<'a>(bytes: &'a [u8], section: &mut SignalSection) -> Result<&'a [u8], DecodeError> {
+    let (count, mut rest): (u32, _) = take(bytes)?;
+    for _ in 0..count {
+        let (spec, r) = take(rest)?;
+        section
+            .signals
+            .push(spec)
+            .map_err(|_| DecodeError::MalformedPayload)?;
+        rest = r;
+    }
+    let (count, mut rest): (u32, _) = take(rest)?;
+    for _ in 0..count {
+        let (source, r) = take(rest)?;
+        section
+            .sources
+            .push(source)
+            .map_err(|_| DecodeError::MalformedPayload)?;
+        rest = r;
+    }
+    Ok(rest)
+}
+
 /// The fixed header, as read from a blob.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct Header {
@@ -246,15 +360,25 @@ pub struct Header {
 }
 
 impl Header {
-    /// The whole blob's length: header, payload, CRC, and for version 2 the signature
+    /// The whole blob's length: header, payload, CRC, and for a signed blob the signature
     /// section.
     pub fn blob_len(&self) -> usize {
         let unsigned = HEADER_LEN + usize::from(self.payload_len) + CRC_LEN;
-        if self.version == SIGNED_VERSION {
+        if self.is_signed() {
             unsigned + SIGNATURE_SECTION_LEN
         } else {
             unsigned
         }
+    }
+
+    /// Whether the blob ends in a signature section (version 2 or 4).
+    pub fn is_signed(&self) -> bool {
+        self.version == SIGNED_VERSION || self.version == SIGNED_SIGNAL_VERSION
+    }
+
+    /// Whether the payload carries the signal section after the model (version 3 or 4).
+    pub fn has_signals(&self) -> bool {
+        self.version == SIGNAL_VERSION || self.version == SIGNED_SIGNAL_VERSION
     }
 
     /// Reads and checks the header: length, magic, version, channel capacity.
@@ -277,7 +401,7 @@ impl Header {
             .ok_or(truncated)?;
         let [_, _, _, _, v0, v1, channel_count, l0, l1] = *h;
         let version = u16::from_le_bytes([v0, v1]);
-        if version != FORMAT_VERSION && version != SIGNED_VERSION {
+        if !(FORMAT_VERSION..=SIGNED_SIGNAL_VERSION).contains(&version) {
             return Err(DecodeError::UnsupportedVersion(version));
         }
         if usize::from(channel_count) > MAX_CHANNELS {
@@ -295,7 +419,9 @@ impl Header {
 mod tests {
     use super::*;
     use crate::error::ModelError;
+    use crate::features::{Feature, SignalSpec, Source};
     use crate::model::AuditMark;
+    use crate::model::CheckedSignalModel;
     use proptest::prelude::*;
     use std::vec::Vec;
 
@@ -464,8 +590,8 @@ mod tests {
         assert!(matches!(decode(&b), Err(DecodeError::TrailingBytes { .. })));
         b.pop();
         let mut v = b.clone();
-        v[4] = 3;
-        assert_eq!(decode(&v), Err(DecodeError::UnsupportedVersion(3)));
+        v[4] = 5;
+        assert_eq!(decode(&v), Err(DecodeError::UnsupportedVersion(5)));
         // Version 2 declares a signature section the bytes do not have.
         let mut v2 = b.clone();
         v2[4] = 2;
@@ -576,5 +702,142 @@ mod tests {
         let b = encoded(&m);
         assert!(b.len() <= MAX_BLOB_LEN, "{} > {}", b.len(), MAX_BLOB_LEN);
         assert_eq!(decode(&b).unwrap(), m);
+        // And with the largest signal section, signed: every varint at its longest, every
+        // channel a Band feature.
+        let mut signals = SignalSection::default();
+        for i in 0..crate::limits::MAX_SIGNALS {
+            signals
+                .signals
+                .push(SignalSpec {
+                    raw_min: i32::MIN,
+                    raw_max: i32::MIN + (1 << 20),
+                    offset: i32::MIN,
+                    window: 1 + i as u16,
+                })
+                .unwrap();
+        }
+        for _ in 0..MAX_CHANNELS {
+            let feature = Feature::Band { coeff: -(1 << 30) };
+            signals
+                .sources
+                .push(Source::Feature { signal: 7, feature })
+                .unwrap();
+        }
+        let m = CheckedSignalModel::new(m, signals).unwrap();
+        let mut buf = [0u8; MAX_BLOB_LEN];
+        let n = encode_signals_for_signing(&m, [7; KEY_ID_LEN], &mut buf).unwrap();
+        assert!(n + SIGNATURE_LEN <= MAX_BLOB_LEN);
+        assert_eq!(Header::read(&buf).unwrap().version, SIGNED_SIGNAL_VERSION);
+    }
+
+    /// The example model with channel `a` the band magnitude of a 12-bit, 64-sample signal
+    /// and `b` still a reading.
+    fn with_signal() -> CheckedSignalModel {
+        let mut m = FixedModel::example_two_channel();
+        m.acc_bits = 64;
+        let mut signals = SignalSection::default();
+        signals
+            .signals
+            .push(SignalSpec {
+                raw_min: 0,
+                raw_max: 4095,
+                offset: 2048,
+                window: 64,
+            })
+            .unwrap();
+        let band = Source::Feature {
+            signal: 0,
+            feature: Feature::Band { coeff: 0 },
+        };
+        signals.sources.push(band).unwrap();
+        signals.sources.push(Source::Reading).unwrap();
+        CheckedSignalModel::new(CheckedModel::new(m).unwrap(), signals).unwrap()
+    }
+
+    fn encoded_signals(m: &CheckedSignalModel) -> Vec<u8> {
+        let mut buf = [0u8; MAX_BLOB_LEN];
+        let n = encode_signals(m, &mut buf).unwrap();
+        buf[..n].to_vec()
+    }
+
+    #[test]
+    fn signals_travel_in_version_3_and_4_and_only_decode_signals_loads_them() {
+        let m = with_signal();
+        let b = encoded_signals(&m);
+        assert_eq!(Header::read(&b).unwrap().version, SIGNAL_VERSION);
+        assert_eq!(decode_signals(&b).unwrap(), m);
+        // A station that passes readings alone must not load it.
+        assert_eq!(decode(&b), Err(DecodeError::Signals));
+        // The model's own bytes come first, exactly version 1's payload; the section follows.
+        let v1 = encoded(m.model());
+        assert_eq!(Header::read(&v1).unwrap().version, FORMAT_VERSION);
+        assert_eq!(
+            &b[HEADER_LEN..v1.len() - CRC_LEN],
+            &v1[HEADER_LEN..v1.len() - CRC_LEN]
+        );
+        // Version 1 read as a model with signals: every channel a reading.
+        let plain = decode_signals(&v1).unwrap();
+        assert!(plain.signals().is_empty());
+        assert_eq!(plain.model(), m.model());
+        // Signed: version 4, and the signature section is found.
+        let mut buf = [0u8; MAX_BLOB_LEN];
+        let n = encode_signals_for_signing(&m, [1; KEY_ID_LEN], &mut buf).unwrap();
+        let signed = &buf[..n + SIGNATURE_LEN];
+        assert_eq!(Header::read(signed).unwrap().version, SIGNED_SIGNAL_VERSION);
+        assert_eq!(signature(signed).unwrap().key_id, [1; KEY_ID_LEN]);
+        assert_eq!(decode_signals(signed).unwrap(), m);
+    }
+
+    #[test]
+    fn a_signal_section_where_none_belongs_is_refused() {
+        let fix_crc = |v: &mut Vec<u8>| {
+            let n = v.len() - CRC_LEN;
+            let crc = CRC32.checksum(&v[..n]).to_le_bytes();
+            v[n..].copy_from_slice(&crc);
+        };
+        // Version 3 with an empty section: a model without signals is written as version 1.
+        let mut v = encoded(&CheckedModel::new(FixedModel::example_two_channel()).unwrap());
+        let n = v.len() - CRC_LEN;
+        v[4] = 3;
+        v.splice(n..n, [0u8, 0]);
+        v[7] += 2;
+        fix_crc(&mut v);
+        assert_eq!(decode_signals(&v), Err(DecodeError::InconsistentLengths));
+        // Version 1 with a section after the model: unread bytes.
+        let mut v = encoded_signals(&with_signal());
+        v[4] = 1;
+        fix_crc(&mut v);
+        assert_eq!(decode_signals(&v), Err(DecodeError::InconsistentLengths));
+        assert_eq!(decode(&v), Err(DecodeError::InconsistentLengths));
+        // A source naming a signal the model lacks; a source count that is not the channels'.
+        let m = with_signal();
+        let mut signals = m.signals().clone();
+        signals.sources[0] = Source::Feature {
+            signal: 1,
+            feature: Feature::Mean,
+        };
+        assert_eq!(
+            CheckedSignalModel::new(m.model().clone(), signals.clone()),
+            Err(ModelError::SignalIndex { channel: 0 })
+        );
+        signals.sources.pop();
+        assert_eq!(
+            CheckedSignalModel::new(m.model().clone(), signals),
+            Err(ModelError::Sources)
+        );
+    }
+
+    proptest! {
+        /// Any bytes: decode_signals never panics, and agrees with decode on every blob
+        /// that has no signals.
+        #[test]
+        fn decode_signals_agrees_with_decode_on_any_bytes(bytes in prop::collection::vec(any::<u8>(), 0..200)) {
+            let ours = decode_signals(&bytes);
+            match decode(&bytes) {
+                Ok(m) => prop_assert_eq!(ours.map(|s| s.model().clone()), Ok(m)),
+                Err(DecodeError::Signals) => {}
+                Err(e) => prop_assert_eq!(ours.err(), Some(e)),
+            }
+        }
     }
 }

@@ -48,6 +48,20 @@ pub enum ModelError {
         /// Bits declared.
         declared_bits: u8,
     },
+    /// The signal section lists a source count other than the channel count.
+    Sources,
+    /// A feature channel names a signal the model does not have.
+    SignalIndex {
+        /// Channel index.
+        channel: u8,
+    },
+    /// A feature channel's signal or feature was refused (see [`SignalError`]).
+    Signal {
+        /// Channel index.
+        channel: u8,
+        /// Why.
+        error: SignalError,
+    },
 }
 
 impl fmt::Display for ModelError {
@@ -93,6 +107,14 @@ impl fmt::Display for ModelError {
                 f,
                 "worst-case score needs {needed_bits} bits but the accumulator declares {declared_bits}"
             ),
+            Self::Sources => f.write_str("the signal section must give one source per channel"),
+            Self::SignalIndex { channel } => {
+                write!(
+                    f,
+                    "channel {channel}: its feature names a signal the model does not have"
+                )
+            }
+            Self::Signal { channel, error } => write!(f, "channel {channel}: {error}"),
         }
     }
 }
@@ -136,7 +158,10 @@ pub enum DecodeError {
     InconsistentLengths,
     /// The payload parsed but the model is not valid.
     Invalid(ModelError),
-    /// A signature is required and the blob has none (a version-1 blob).
+    /// The blob's model has signal features (version 3 or 4): it needs a station that
+    /// passes sample windows (`blob::decode_signals`), not readings alone.
+    Signals,
+    /// A signature is required and the blob has none (a version-1 or 3 blob).
     Unsigned,
     /// The blob is signed by a key this device does not hold.
     UnknownKey,
@@ -153,9 +178,12 @@ impl fmt::Display for DecodeError {
             Self::BadMagic => f.write_str("not a Linegate model blob (bad magic)"),
             Self::UnsupportedVersion(v) => write!(
                 f,
-                "blob format version {v} is not supported by this build (reads versions {} and {})",
+                "blob format version {v} is not supported by this build (reads versions {} to {})",
                 crate::limits::FORMAT_VERSION,
-                crate::limits::SIGNED_VERSION
+                crate::limits::SIGNED_SIGNAL_VERSION
+            ),
+            Self::Signals => f.write_str(
+                "blob's model has signal features: load it where sample windows are passed (decode_signals)",
             ),
             Self::TrailingBytes { expected, got } => {
                 write!(
@@ -256,8 +284,8 @@ pub enum SignalError {
     Offset,
     /// The window length is 0 or above `MAX_WINDOW`.
     Window(u16),
-    /// Some window of valid samples could overflow this feature's integers or its result.
-    Overflow(crate::features::Feature),
+    /// Some window of valid samples could overflow the feature's integers or its result.
+    Overflow,
     /// A Goertzel coefficient above 2^30 in size (2cos ω·2^29 never is).
     Coefficient(i32),
 }
@@ -274,9 +302,8 @@ impl fmt::Display for SignalError {
                 "window of {n} samples (use 1 to {})",
                 crate::limits::MAX_WINDOW
             ),
-            Self::Overflow(feature) => write!(
-                f,
-                "{feature:?} of this window could overflow its integers: shorten the window or narrow the sample range"
+            Self::Overflow => f.write_str(
+                "the feature of this window could overflow its integers: shorten the window or narrow the sample range",
             ),
             Self::Coefficient(c) => {
                 write!(f, "Goertzel coefficient {c} is above 2^30 in size")
@@ -318,3 +345,48 @@ impl fmt::Display for WindowFault {
         }
     }
 }
+
+/// Why a unit given as readings and sample windows could not be classified. The device
+/// treats every fault as NO-GO.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum SignalFault {
+    /// The number of windows differs from the model's signal count.
+    Windows {
+        /// Signals in the model.
+        expected: u8,
+        /// Windows given.
+        got: usize,
+    },
+    /// A signal's window was refused.
+    Window {
+        /// Signal index.
+        signal: u8,
+        /// Why.
+        fault: WindowFault,
+    },
+    /// A reading (or a feature, as its channel's reading) was refused.
+    Reading(Fault),
+}
+
+impl fmt::Display for SignalFault {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match *self {
+            Self::Windows { expected, got } => {
+                write!(f, "expected {expected} sample windows, got {got}")
+            }
+            Self::Window { signal, fault } => write!(f, "signal {signal}: {fault}"),
+            Self::Reading(fault) => fault.fmt(f),
+        }
+    }
+}
+
+impl From<Fault> for SignalFault {
+    fn from(f: Fault) -> Self {
+        Self::Reading(f)
+    }
+}
+
+impl core::error::Error for SignalError {}
+impl core::error::Error for WindowFault {}
+impl core::error::Error for SignalFault {}

@@ -60,8 +60,10 @@
 //! The tests check every feature against numpy and Python's `math.isqrt`, exactly, and the
 //! band magnitude against numpy's FFT within this bound.
 
+use heapless::Vec;
+
 use crate::error::{SignalError, WindowFault};
-use crate::limits::MAX_WINDOW;
+use crate::limits::{MAX_CHANNELS, MAX_SIGNALS, MAX_WINDOW};
 
 /// What a window is reduced to. See the module documentation for each integer.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -102,6 +104,45 @@ pub struct SignalSpec {
     pub offset: i32,
     /// Samples per window, 1 ..= [`MAX_WINDOW`].
     pub window: u16,
+}
+
+/// Where a channel's reading comes from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Source {
+    /// A reading the station passes in, as in a model without signals.
+    Reading,
+    /// A feature of one of the model's signals, computed from its window.
+    Feature {
+        /// Index into [`SignalSection::signals`].
+        signal: u8,
+        /// Which feature.
+        feature: Feature,
+    },
+}
+
+/// The signals of a model and the source of each channel: what a format-3 blob adds to the
+/// model. Empty for a model whose channels are all readings (a format-1 blob).
+#[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct SignalSection {
+    /// The signals' windows, in the order the station passes them. Their names stay on
+    /// the host (the feature channels' names carry them): the device needs only the
+    /// windows, and every byte here is held on its stack while a blob is loaded.
+    pub signals: Vec<SignalSpec, MAX_SIGNALS>,
+    /// One per channel, in channel order; empty when every channel is a reading.
+    pub sources: Vec<Source, MAX_CHANNELS>,
+}
+
+impl SignalSection {
+    /// Whether the model has no signals (every channel a reading).
+    pub fn is_empty(&self) -> bool {
+        self.signals.is_empty() && self.sources.is_empty()
+    }
+
+    /// The source of channel `i` (a reading when no sources are listed).
+    pub fn source(&self, i: usize) -> Source {
+        self.sources.get(i).copied().unwrap_or(Source::Reading)
+    }
 }
 
 /// Most a Goertzel state may reach: keeps the states in i64 and P's terms in i128.
@@ -156,7 +197,7 @@ impl CheckedFeature {
             return Err(SignalError::Window(spec.window));
         }
         let bound = Self::proved_bound(&spec, feature)?;
-        let bound = i32::try_from(bound).map_err(|_| SignalError::Overflow(feature))?;
+        let bound = i32::try_from(bound).map_err(|_| SignalError::Overflow)?;
         Ok(Self {
             spec,
             feature,
@@ -169,14 +210,13 @@ impl CheckedFeature {
     fn proved_bound(spec: &SignalSpec, feature: Feature) -> Result<u128, SignalError> {
         let n = u128::from(spec.window);
         let a = u128::from(spec.amplitude());
-        let overflow = SignalError::Overflow(feature);
         // Σcᵢ² ≤ N·A² is kept in u64 (Rms, StdDev).
         let squares_fit = n * a * a <= u128::from(u64::MAX);
         Ok(match feature {
             Feature::Mean => n * a,
             Feature::Rms if squares_fit => (n * a * a).isqrt(),
             Feature::StdDev if squares_fit => n * a,
-            Feature::Rms | Feature::StdDev => return Err(overflow),
+            Feature::Rms | Feature::StdDev => return Err(SignalError::Overflow),
             Feature::Min | Feature::Max | Feature::AbsPeak => a,
             Feature::PeakToPeak => {
                 u128::from((i64::from(spec.raw_max) - i64::from(spec.raw_min)).unsigned_abs())
@@ -189,7 +229,7 @@ impl CheckedFeature {
                 // S = (A + ½)·N(N + 1)/2, rounded up.
                 let states = ((2 * a + 1) * n * (n + 1)).div_ceil(4);
                 if states >= STATE_LIMIT {
-                    return Err(overflow);
+                    return Err(SignalError::Overflow);
                 }
                 n * a + (n * n).div_ceil(2) + (states / 2).isqrt() + 1
             }
@@ -382,7 +422,7 @@ mod tests {
         let wide = spec(-(1 << 20), 1 << 20, 0, 4096);
         assert_eq!(
             CheckedFeature::new(wide, Feature::Mean),
-            Err(SignalError::Overflow(Feature::Mean))
+            Err(SignalError::Overflow)
         );
         // A 16-bit ADC over 4,096 samples: every feature is proved.
         let adc = spec(0, 65_535, 32_768, 4096);

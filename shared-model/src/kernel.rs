@@ -15,8 +15,10 @@
 //! without a 64-bit multiply (Cortex-M0/M0+) do in single instructions.
 #![warn(clippy::arithmetic_side_effects)]
 
-use crate::error::Fault;
-use crate::model::{ChannelSpec, CheckedModel};
+use crate::error::{Fault, SignalFault, WindowFault};
+use crate::features::{CheckedFeature, Source};
+use crate::limits::MAX_CHANNELS;
+use crate::model::{ChannelSpec, CheckedModel, CheckedSignalModel};
 
 /// The three outcomes a device shows.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
@@ -229,10 +231,186 @@ fn count_u8(n: usize) -> u8 {
     u8::try_from(n).unwrap_or(u8::MAX)
 }
 
+/// Units of a model with signal features: readings and sample windows in, one decision out.
+impl CheckedSignalModel {
+    /// Channels fed by a reading (all of them in a model without signals).
+    pub fn reading_count(&self) -> usize {
+        (0..self.model().channel_count())
+            .filter(|&i| self.signals().source(i) == Source::Reading)
+            .count()
+    }
+
+    /// Signals whose windows [`classify_windows`](Self::classify_windows) takes.
+    pub fn signal_count(&self) -> usize {
+        self.signals().signals.len()
+    }
+
+    /// Classifies a unit given the readings of its reading channels (in channel order) and
+    /// one window of raw samples per signal (in signal order; slices the caller owns, such
+    /// as DMA buffers). Each feature channel's reading is its feature of its signal's window
+    /// ([`CheckedFeature::compute`]); then [`CheckedModel::classify`] as for readings.
+    ///
+    /// # Errors
+    /// [`SignalFault::Windows`] for a wrong window count, [`SignalFault::Window`] for a
+    /// window of the wrong length or with a sample out of range, [`SignalFault::Reading`]
+    /// for a wrong reading count or a reading (or feature) outside its channel's range.
+    pub fn classify_windows(
+        &self,
+        readings: &[i32],
+        windows: &[&[i32]],
+    ) -> Result<Decision, SignalFault> {
+        let section = self.signals();
+        if windows.len() != section.signals.len() {
+            return Err(SignalFault::Windows {
+                expected: count_u8(section.signals.len()),
+                got: windows.len(),
+            });
+        }
+        let expected = self.reading_count();
+        if readings.len() != expected {
+            return Err(SignalFault::Reading(Fault::ReadingCount {
+                expected: count_u8(expected),
+                got: readings.len(),
+            }));
+        }
+        let n = self.model().channel_count();
+        let mut values = [0i32; MAX_CHANNELS];
+        let mut next = readings.iter();
+        for (i, v) in values.iter_mut().enumerate().take(n) {
+            *v = match section.source(i) {
+                Source::Reading => next.next().copied().unwrap_or(0),
+                Source::Feature { signal, feature } => {
+                    let index = usize::from(signal);
+                    let window = windows.get(index).copied().unwrap_or(&[]);
+                    let spec = section.signals.get(index).copied();
+                    // Validation proved every feature; a refusal here would be a broken
+                    // model, reported as a refused window rather than a panic.
+                    let refused = SignalFault::Window {
+                        signal,
+                        fault: WindowFault::Length {
+                            expected: spec.map_or(0, |s| s.window),
+                            got: window.len(),
+                        },
+                    };
+                    let f = spec
+                        .and_then(|spec| CheckedFeature::new(spec, feature).ok())
+                        .ok_or(refused)?;
+                    f.compute(window)
+                        .map_err(|fault| SignalFault::Window { signal, fault })?
+                }
+            };
+        }
+        let values = values.get(..n).unwrap_or(&[]);
+        self.model().classify(values).map_err(SignalFault::Reading)
+    }
+}
+
 #[cfg(test)]
 #[allow(clippy::arithmetic_side_effects)]
 mod tests {
     use super::*;
+
+    /// A two-channel model whose channel 0 is `feature` of a 12-bit signal of `window`
+    /// samples and channel 1 a reading, with channel 0's range wide enough for any value.
+    fn signal_model(feature: crate::features::Feature, window: u16) -> CheckedSignalModel {
+        use crate::features::{SignalSection, SignalSpec, Source};
+        let mut m = crate::model::FixedModel::example_two_channel();
+        m.acc_bits = 64;
+        m.channels[0].raw_min = -(1 << 24);
+        m.channels[0].raw_max = 1 << 24;
+        m.channels[0].offset = 0;
+        m.channels[0].multiplier = 1;
+        m.channels[0].shift = 10;
+        let mut signals = SignalSection::default();
+        signals
+            .signals
+            .push(SignalSpec {
+                raw_min: 0,
+                raw_max: 4095,
+                offset: 2048,
+                window,
+            })
+            .unwrap();
+        signals
+            .sources
+            .push(Source::Feature { signal: 0, feature })
+            .unwrap();
+        signals.sources.push(Source::Reading).unwrap();
+        CheckedSignalModel::new(CheckedModel::new(m).unwrap(), signals).unwrap()
+    }
+
+    #[test]
+    fn window_faults_are_named() {
+        use crate::error::{SignalFault, WindowFault};
+        let m = signal_model(crate::features::Feature::Max, 4);
+        assert_eq!(m.reading_count(), 1);
+        assert_eq!(m.signal_count(), 1);
+        assert_eq!(
+            m.classify_windows(&[500], &[]),
+            Err(SignalFault::Windows {
+                expected: 1,
+                got: 0
+            })
+        );
+        assert_eq!(
+            m.classify_windows(&[500], &[&[1, 2, 3]]),
+            Err(SignalFault::Window {
+                signal: 0,
+                fault: WindowFault::Length {
+                    expected: 4,
+                    got: 3
+                }
+            })
+        );
+        assert_eq!(
+            m.classify_windows(&[500], &[&[1, 2, 4096, 3]]),
+            Err(SignalFault::Window {
+                signal: 0,
+                fault: WindowFault::OutOfRange {
+                    index: 2,
+                    raw: 4096
+                }
+            })
+        );
+        assert_eq!(
+            m.classify_windows(&[], &[&[1, 2, 3, 4]]),
+            Err(SignalFault::Reading(Fault::ReadingCount {
+                expected: 1,
+                got: 0
+            }))
+        );
+        assert_eq!(
+            m.classify_windows(&[1001], &[&[1, 2, 3, 4]]),
+            Err(SignalFault::Reading(Fault::OutOfRange {
+                channel: 1,
+                raw: 1001
+            }))
+        );
+    }
+
+    proptest! {
+        /// Windows in, decision out: the same as computing each feature and classifying the
+        /// readings it makes, for every feature.
+        #[test]
+        fn windows_classify_as_their_features_do(
+            samples in prop::collection::vec(0i32..4096, 16),
+            reading in 0i32..=1000,
+            which in 0usize..9,
+            coeff in -(1i32 << 30)..=(1 << 30),
+        ) {
+            use crate::features::{CheckedFeature, Feature};
+            let feature = [Feature::Mean, Feature::Rms, Feature::Min, Feature::Max,
+                Feature::PeakToPeak, Feature::AbsPeak, Feature::StdDev, Feature::ZeroCrossings,
+                Feature::Band { coeff }][which];
+            let m = signal_model(feature, 16);
+            let spec = m.signals().signals[0];
+            let value = CheckedFeature::new(spec, feature).unwrap().compute(&samples).unwrap();
+            prop_assert_eq!(
+                m.classify_windows(&[reading], &[&samples]).unwrap(),
+                m.model().classify(&[value, reading]).unwrap()
+            );
+        }
+    }
     use crate::model::{FixedModel, scale_wide};
     use proptest::prelude::*;
 

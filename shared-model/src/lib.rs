@@ -12,8 +12,11 @@
 //!
 //! [`limits`] holds the capacities and layout constants all three share; [`error`] the
 //! error enums. [`features`] reduces a window of raw samples to one integer reading (mean,
-//! RMS, band magnitude…), the same integer on the desk and on the device; it is not yet
-//! carried in the blob. Imports point one way: `limits` ← `error` ← `model` ← `blob`, `kernel`.
+//! RMS, band magnitude…), the same integer on the desk and on the device; a model whose
+//! channels include features ([`CheckedSignalModel`]) carries its signals in the blob
+//! (format version 3, [`blob::decode_signals`]) and classifies with
+//! [`CheckedSignalModel::classify_windows`]; a model without them pays nothing for it. Imports point one way: `limits` ←
+//! `error` ← `features` ← `model` ← `blob`, `kernel`.
 //! 3. [`kernel`]: raw readings → scaled integer inputs → integer score →
 //!    [`Verdict`]. Integer only, explicit widths.
 //!
@@ -80,7 +83,9 @@ pub mod kernel;
 pub mod limits;
 pub mod model;
 
-pub use error::{DecodeError, EncodeError, Fault, ModelError, SignalError, WindowFault};
+pub use error::{
+    DecodeError, EncodeError, Fault, ModelError, SignalError, SignalFault, WindowFault,
+};
 pub use kernel::{Decision, Verdict};
 pub use limits::{MAX_CHANNELS, NAME_CAPACITY};
-pub use model::{AuditMark, ChannelSpec, CheckedModel, FixedModel};
+pub use model::{AuditMark, ChannelSpec, CheckedModel, CheckedSignalModel, FixedModel};

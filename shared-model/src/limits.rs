@@ -19,6 +19,14 @@ pub const MAGIC: [u8; 4] = *b"LGMB";
 pub const FORMAT_VERSION: u16 = 1;
 /// The blob layout version of a signed blob: version 1's bytes, then a signature section.
 pub const SIGNED_VERSION: u16 = 2;
+/// The blob layout version of a model with signal features: version 1's payload followed
+/// by the signal section (the signals' windows and each channel's source).
+pub const SIGNAL_VERSION: u16 = 3;
+/// A signed blob of a model with signal features: version 3's bytes, then a signature
+/// section.
+pub const SIGNED_SIGNAL_VERSION: u16 = 4;
+/// Most signals (sample windows) one model may reduce to features.
+pub const MAX_SIGNALS: usize = 8;
 /// Bytes of a key id: the first 8 bytes of SHA-512 of the 32-byte Ed25519 public key.
 pub const KEY_ID_LEN: usize = 8;
 /// Bytes of an Ed25519 signature (RFC 8032).
@@ -29,8 +37,17 @@ pub const SIGNATURE_SECTION_LEN: usize = KEY_ID_LEN + SIGNATURE_LEN;
 pub const HEADER_LEN: usize = 9;
 /// Bytes of the trailing CRC-32.
 pub const CRC_LEN: usize = 4;
-/// Largest payload a valid model can need (every varint at its longest, every name full).
-pub const MAX_PAYLOAD_LEN: usize =
-    16 + 5 + 3 * 10 + 1 + MAX_CHANNELS * (1 + NAME_CAPACITY + 5 * 5 + 1);
+/// Largest payload a valid model can need (every varint at its longest, every name full):
+/// the model, then the signal section (each signal: three i32 and a u16; each source: tag,
+/// signal index, feature tag and coefficient).
+pub const MAX_PAYLOAD_LEN: usize = 16
+    + 5
+    + 3 * 10
+    + 1
+    + MAX_CHANNELS * (1 + NAME_CAPACITY + 5 * 5 + 1)
+    + 1
+    + MAX_SIGNALS * (3 * 5 + 3)
+    + 1
+    + MAX_CHANNELS * (5 + 1 + 5 + 5);
 /// A buffer of this size holds any blob, signed or not.
 pub const MAX_BLOB_LEN: usize = HEADER_LEN + MAX_PAYLOAD_LEN + CRC_LEN + SIGNATURE_SECTION_LEN;

@@ -17,6 +17,7 @@ use heapless::{String, Vec};
 use serde::{Deserialize, Serialize};
 
 use crate::error::ModelError;
+use crate::features::{CheckedFeature, SignalSection, Source};
 use crate::limits::{MAX_CHANNELS, NAME_CAPACITY};
 
 /// How the model reached the blob: recorded so an auditor can see an override.
@@ -174,6 +175,7 @@ impl FixedModel {
         if self.nogo_max >= self.go_min {
             return Err(ModelError::ThresholdsOutOfOrder);
         }
+
         let bound = self.score_bound();
         let needed_bits = u8::try_from(129 - bound.leading_zeros()).unwrap_or(u8::MAX);
         if needed_bits > self.acc_bits {
@@ -252,6 +254,53 @@ impl CheckedModel {
     /// Number of channels (1..=[`MAX_CHANNELS`]).
     pub fn channel_count(&self) -> usize {
         self.model.channels.len()
+    }
+}
+
+/// A validated model some of whose channels are features of sample windows: the model and
+/// its [`SignalSection`]. A model whose channels are all readings stays a [`CheckedModel`]
+/// and pays nothing for signals; this type is for the stations that pass windows.
+///
+/// Validation adds to the model's: one source per channel, every feature's signal present,
+/// and every feature proved not to overflow for any window of valid samples
+/// ([`CheckedFeature::new`]).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct CheckedSignalModel {
+    model: CheckedModel,
+    signals: SignalSection,
+}
+
+impl CheckedSignalModel {
+    /// Validates `signals` against `model`.
+    ///
+    /// # Errors
+    /// [`ModelError::Sources`], [`ModelError::SignalIndex`] or [`ModelError::Signal`].
+    pub fn new(model: CheckedModel, signals: SignalSection) -> Result<Self, ModelError> {
+        if !signals.is_empty() && signals.sources.len() != model.channel_count() {
+            return Err(ModelError::Sources);
+        }
+        for (i, source) in signals.sources.iter().enumerate() {
+            let channel = u8::try_from(i).unwrap_or(u8::MAX);
+            if let Source::Feature { signal, feature } = *source {
+                let spec = signals
+                    .signals
+                    .get(usize::from(signal))
+                    .ok_or(ModelError::SignalIndex { channel })?;
+                CheckedFeature::new(*spec, feature)
+                    .map_err(|error| ModelError::Signal { channel, error })?;
+            }
+        }
+        Ok(Self { model, signals })
+    }
+
+    /// The model.
+    pub fn model(&self) -> &CheckedModel {
+        &self.model
+    }
+
+    /// The signals and each channel's source.
+    pub fn signals(&self) -> &SignalSection {
+        &self.signals
     }
 }
 

@@ -57,6 +57,23 @@ fn window_features() {
         _ => i32::MIN + 1,
     };
     observe(value as u32);
+    // A whole unit of readings and windows through a model from flash.
+    if let Ok(m) = shared_model::blob::decode_signals(board::model_region()) {
+        let mut readings = [0i32; shared_model::MAX_CHANNELS];
+        for r in readings.iter_mut() {
+            *r = outside();
+        }
+        let count = usize::try_from(outside()).unwrap_or(0);
+        let readings = readings.get(..count).unwrap_or(&[]);
+        let windows = [buf.get(..len).unwrap_or(&[]); 2];
+        let windows = windows
+            .get(..usize::try_from(outside()).unwrap_or(0))
+            .unwrap_or(&[]);
+        match m.classify_windows(readings, windows) {
+            Ok(d) => observe(d.score as u32),
+            Err(_) => observe(12),
+        }
+    }
 }
 
 struct Inputs;
