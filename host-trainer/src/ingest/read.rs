@@ -19,7 +19,7 @@ use crate::ingest::scaling::ChannelScale;
 /// With observed scaling every channel's lsb comes from its range, known only at the end of
 /// the file. When no channel has a declared range the first pass keeps the readings (as the
 /// exact doubles a second pass would convert) and converts them once the ranges are known,
-/// up to [`KEEP_READINGS`] bytes of them; a longer log, or one with some channels in the
+/// up to 1 GiB of them (`KEEP_READINGS`); a longer log, or one with some channels in the
 /// sheet, is read twice: once for the ranges, once to convert.
 ///
 /// # Errors
