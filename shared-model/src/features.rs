@@ -252,6 +252,42 @@ impl CheckedFeature {
         self.bound
     }
 
+    /// The most the result can change when every sample of a window moves by at most
+    /// `delta` counts (declared sensor noise) and the window stays valid, in the result's
+    /// own counts:
+    ///
+    /// | feature | bound | why |
+    /// |---|---|---|
+    /// | mean | N·δ | a sum of N samples |
+    /// | RMS | ⌊√(N·δ²)⌋ + 2 | ‖c + e‖ − ‖c‖ ≤ ‖e‖ ≤ √N·δ; +1 rounding up the root, +1 the floor |
+    /// | min, max, absolute peak | δ | each moves with its sample |
+    /// | peak-to-peak | 2δ | both ends move |
+    /// | standard deviation | N·δ + 1 | √N·‖(c+e) − mean‖ − √N·‖c − mean‖ ≤ √N·‖e‖; +1 the floor |
+    /// | zero crossings | N − 1 | any sample near the mean can flip: no bound below the count's range |
+    /// | band magnitude | N·δ + 2R | \|X\| moves by at most Σ\|eᵢ\|; each result is within R of \|X(ω′)\| |
+    ///
+    /// R is the fixed-point rounding bound of the module documentation, with
+    /// uₘ = min(m + 1, U) and U = ⌈2³⁰ / ⌊√(2⁶⁰ − C²)⌋⌉ ≥ 1/|sin ω′| computed in integers:
+    /// ½(Σ_{m<N} uₘ + Σ_{m<N−1} uₘ) + √(S′/2) + 1 with S′ = (A + ½)·Σ_{m<N} uₘ. The
+    /// bound holds for any two valid windows whose samples differ by at most δ (tested by
+    /// simulation).
+    pub fn noise_bound(&self, delta: u32) -> u64 {
+        let n = u128::from(self.spec.window);
+        let d = u128::from(delta);
+        let bound = match self.feature {
+            Feature::Mean => n * d,
+            Feature::Rms => (n * d * d).isqrt() + 2,
+            Feature::Min | Feature::Max | Feature::AbsPeak => d,
+            Feature::PeakToPeak => 2 * d,
+            Feature::StdDev => n * d + 1,
+            Feature::ZeroCrossings => n.saturating_sub(1),
+            Feature::Band { coeff } => {
+                n * d + 2 * goertzel_rounding(n, u128::from(self.spec.amplitude()), coeff)
+            }
+        };
+        u64::try_from(bound).unwrap_or(u64::MAX)
+    }
+
     /// The feature of one window of raw samples.
     ///
     /// # Errors
@@ -331,6 +367,31 @@ fn sum_squares(samples: &[i32], off: i64) -> u64 {
 fn isqrt_u64(v: u64) -> i64 {
     // √(2^64) = 2^32: fits i64.
     i64::try_from(v.isqrt()).unwrap_or(i64::MAX)
+}
+
+/// R, the most the fixed-point band magnitude of an N-sample window with |cᵢ| ≤ A lies from
+/// |X(ω′)| (see [`CheckedFeature::noise_bound`]), rounded up. Integers only: the device
+/// may call it too.
+fn goertzel_rounding(n: u128, a: u128, coeff: i32) -> u128 {
+    // ⌊2³⁰·|sin ω′|⌋ = ⌊√(2⁶⁰ − C²)⌋; its reciprocal, rounded up, bounds 1/|sin ω′|.
+    let c = u128::from(coeff.unsigned_abs());
+    let sin = ((1u128 << 60).saturating_sub(c * c)).isqrt();
+    let u = if sin == 0 {
+        n
+    } else {
+        (1u128 << 30).div_ceil(sin).min(n)
+    };
+    // Σ_{m<k} min(m + 1, u).
+    let sum = |k: u128| {
+        if k <= u {
+            k * (k + 1) / 2
+        } else {
+            u * (u + 1) / 2 + (k - u) * u
+        }
+    };
+    let rounding = (sum(n) + sum(n.saturating_sub(1))).div_ceil(2);
+    let states = ((2 * a + 1) * sum(n)).div_ceil(2);
+    rounding + (states / 2).isqrt() + 2
 }
 
 /// The fixed-point Goertzel magnitude of the module documentation.
@@ -444,6 +505,40 @@ mod tests {
             ),
             Err(SignalError::Coefficient((1 << 30) + 1))
         );
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(2048))]
+        /// Declared noise, simulated: a window and the same window with every sample moved
+        /// by at most δ (both valid) give results no further apart than `noise_bound`.
+        #[test]
+        fn noise_moves_each_feature_within_its_bound(
+            base in proptest::collection::vec(64i32..4032, 64),
+            noise in proptest::collection::vec(-1000i32..=1000, 64),
+            delta in 0i32..=64,
+            window in 1u16..=64,
+            coeff in -(1i32 << 30)..=(1 << 30),
+            push_all in proptest::bool::ANY,
+        ) {
+            let s = spec(0, 4095, 2048, window);
+            let n = usize::from(window);
+            let w = &base[..n];
+            // Random moves within ±δ, or every sample pushed by +δ (the worst case for sums).
+            let moved: std::vec::Vec<i32> = w.iter().zip(&noise)
+                .map(|(&x, &e)| x + if push_all { delta } else { e * delta / 1000 })
+                .collect();
+            for f in [Feature::Mean, Feature::Rms, Feature::Min, Feature::Max, Feature::PeakToPeak,
+                      Feature::AbsPeak, Feature::StdDev, Feature::ZeroCrossings, Feature::Band { coeff }] {
+                let c = CheckedFeature::new(s, f).unwrap();
+                let change = (i64::from(c.compute(&moved).unwrap()) - i64::from(c.compute(w).unwrap())).unsigned_abs();
+                let bound = c.noise_bound(delta as u32);
+                proptest::prop_assert!(change <= bound, "{:?}: moved {} > bound {}", f, change, bound);
+                if push_all && f == Feature::Mean {
+                    // Pushing every sample the same way reaches the mean's bound exactly.
+                    proptest::prop_assert_eq!(change, bound);
+                }
+            }
+        }
     }
 
     proptest::proptest! {
