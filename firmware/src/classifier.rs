@@ -40,15 +40,7 @@ impl Classifier {
     /// out of the image, which keeps an unsigned build's panic-never proof free of it.
     #[inline(always)]
     pub(crate) fn load(region: &[u8], key: Option<&ReleaseKey>) -> Result<Self, DecodeError> {
-        let header = blob::Header::read(region)?;
-        let len = header.blob_len();
-        let bytes = region.get(..len).ok_or(DecodeError::Truncated {
-            needed: len,
-            got: region.len(),
-        })?;
-        if let Some(k) = key {
-            k.verify(bytes)?;
-        }
+        let bytes = blob_in(region, key)?;
         let model = blob::decode(bytes)?;
         // decode proved the length, so the id is there; 0 is never reached.
         let blob_id = blob::blob_id(bytes).unwrap_or(0);
@@ -93,4 +85,24 @@ impl Classifier {
     pub fn model(&self) -> &CheckedModel {
         &self.model
     }
+}
+
+/// The blob at the start of a flash region (the header says its length), its signature
+/// checked first when `key` is given. Always inlined, for the reason given at
+/// [`Classifier::load`].
+#[inline(always)]
+pub(crate) fn blob_in<'a>(
+    region: &'a [u8],
+    key: Option<&ReleaseKey>,
+) -> Result<&'a [u8], DecodeError> {
+    let header = blob::Header::read(region)?;
+    let len = header.blob_len();
+    let bytes = region.get(..len).ok_or(DecodeError::Truncated {
+        needed: len,
+        got: region.len(),
+    })?;
+    if let Some(k) = key {
+        k.verify(bytes)?;
+    }
+    Ok(bytes)
 }

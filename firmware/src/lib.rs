@@ -14,6 +14,9 @@
 //!   always dropped before anything else changes.
 //! - [`Station`]: the loop body tying the three together, with fault
 //!   reporting that tells a new fault from a repeated one.
+//! - [`WindowSource`] and [`SignalStation`]: the same for a model some of whose channels
+//!   are features of sample windows (blob format version 3); the board fills each window
+//!   into a buffer the caller owns.
 //!
 //! No heap, no floating point, no `unsafe`.
 #![no_std]
@@ -44,6 +47,6 @@ mod station;
 pub use classifier::Classifier;
 pub use driver::GoNoGoLines;
 pub use release_key::{ReleaseKey, key_id};
-pub use sensor::SensorSource;
+pub use sensor::{SensorSource, WindowSource};
 pub use shared_model::{Decision, DecodeError, Fault, Verdict};
-pub use station::{Station, StationFault, Step};
+pub use station::{SignalStation, Station, StationFault, Step};

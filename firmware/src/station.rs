@@ -2,9 +2,10 @@
 
 use embedded_hal::digital::OutputPin;
 use heapless::Vec;
-use shared_model::{Decision, DecodeError, Fault, MAX_CHANNELS};
+use shared_model::{CheckedSignalModel, Decision, DecodeError, Fault, MAX_CHANNELS, SignalFault};
 
-use crate::{Classifier, GoNoGoLines, ReleaseKey, SensorSource};
+use crate::classifier::blob_in;
+use crate::{Classifier, GoNoGoLines, ReleaseKey, SensorSource, WindowSource};
 
 /// Why a step showed NO-GO without classifying.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -16,6 +17,9 @@ pub enum StationFault<SE> {
     Sensor(SE),
     /// A reading was refused by the kernel (out of range).
     Reading(Fault),
+    /// A sample window was refused ([`SignalStation`]: too short a sample buffer for the
+    /// model's windows, or a sample outside its signal's range).
+    Window(SignalFault),
 }
 
 /// The outcome of one [`Station::step`].
@@ -114,23 +118,131 @@ where
                 }
             }
         };
-        match decided {
-            Ok(d) => {
-                self.last_fault = None;
-                self.lines.show(d.verdict)?;
-                Ok(Step::Decided(d))
-            }
-            Err(fault) => {
-                let first = self.last_fault != Some(fault);
-                self.last_fault = Some(fault);
-                self.lines.safe()?;
-                Ok(Step::Faulted { fault, first })
-            }
-        }
+        show(&mut self.lines, &mut self.last_fault, decided)
     }
 
     /// Gives the sensor source and the lines back.
     pub fn release(self) -> (S, GoNoGoLines<G, N, R>) {
         (self.sensor, self.lines)
     }
+}
+
+/// Shows a step's outcome: the verdict, or NO-GO for a fault, and whether the fault is new.
+fn show<SE: Copy + PartialEq, G, N, R, E>(
+    lines: &mut GoNoGoLines<G, N, R>,
+    last_fault: &mut Option<StationFault<SE>>,
+    decided: Result<Decision, StationFault<SE>>,
+) -> Result<Step<SE>, E>
+where
+    G: OutputPin<Error = E>,
+    N: OutputPin<Error = E>,
+    R: OutputPin<Error = E>,
+{
+    match decided {
+        Ok(d) => {
+            *last_fault = None;
+            lines.show(d.verdict)?;
+            Ok(Step::Decided(d))
+        }
+        Err(fault) => {
+            let first = *last_fault != Some(fault);
+            *last_fault = Some(fault);
+            lines.safe()?;
+            Ok(Step::Faulted { fault, first })
+        }
+    }
+}
+
+/// A station for a model with signal features (blob format version 3): each step reads the
+/// reading channels and fills one window per signal into `samples`, a buffer the caller
+/// owns (a static or a DMA target), then classifies with
+/// [`CheckedSignalModel::classify_windows`]. Faults and lines behave as [`Station`]'s.
+pub struct SignalStation<'w, S: WindowSource, G, N, R> {
+    model: Result<CheckedSignalModel, DecodeError>,
+    samples: &'w mut [i32],
+    sensor: S,
+    lines: GoNoGoLines<G, N, R>,
+    last_fault: Option<StationFault<S::Error>>,
+}
+
+impl<'w, S, G, N, R, E> SignalStation<'w, S, G, N, R>
+where
+    S: WindowSource,
+    S::Error: Copy + PartialEq,
+    G: OutputPin<Error = E>,
+    N: OutputPin<Error = E>,
+    R: OutputPin<Error = E>,
+{
+    /// Validates the blob in `flash` (any format version; one without signals has every
+    /// channel a reading), its signature first when `key` is given. A bad blob leaves the
+    /// station holding NO-GO. `samples` must hold every signal's window end to end.
+    pub fn new(
+        flash: &[u8],
+        key: Option<&ReleaseKey>,
+        samples: &'w mut [i32],
+        sensor: S,
+        lines: GoNoGoLines<G, N, R>,
+    ) -> Self {
+        Self {
+            model: blob_in(flash, key).and_then(shared_model::blob::decode_signals),
+            samples,
+            sensor,
+            lines,
+            last_fault: None,
+        }
+    }
+
+    /// The model in use, or why there is none.
+    pub fn model(&self) -> Result<&CheckedSignalModel, DecodeError> {
+        self.model.as_ref().map_err(|e| *e)
+    }
+
+    /// Reads, fills, classifies and shows one unit.
+    ///
+    /// # Errors
+    /// A pin error. The lines have then been driven as far as they could towards NO-GO.
+    pub fn step(&mut self) -> Result<Step<S::Error>, E> {
+        let decided = match &self.model {
+            Err(e) => Err(StationFault::Blob(*e)),
+            Ok(m) => unit(m, &mut self.sensor, self.samples),
+        };
+        show(&mut self.lines, &mut self.last_fault, decided)
+    }
+
+    /// Gives the source, the sample buffer and the lines back.
+    pub fn release(self) -> (S, &'w mut [i32], GoNoGoLines<G, N, R>) {
+        (self.sensor, self.samples, self.lines)
+    }
+}
+
+/// One unit of a signal model: readings, then each window carved from `samples` in turn.
+fn unit<S: WindowSource>(
+    m: &CheckedSignalModel,
+    sensor: &mut S,
+    samples: &mut [i32],
+) -> Result<Decision, StationFault<S::Error>> {
+    let mut readings: Vec<i32, MAX_CHANNELS> = Vec::new();
+    // reading_count <= channel count <= MAX_CHANNELS by validation.
+    let _ = readings.resize(m.reading_count(), 0);
+    sensor.read(&mut readings).map_err(StationFault::Sensor)?;
+    let signals = &m.signals().signals;
+    let mut windows: Vec<&[i32], { shared_model::limits::MAX_SIGNALS }> = Vec::new();
+    let mut rest = samples;
+    for (i, spec) in signals.iter().enumerate() {
+        let Some((window, tail)) = rest.split_at_mut_checked(usize::from(spec.window)) else {
+            return Err(StationFault::Window(SignalFault::Windows {
+                expected: u8::try_from(signals.len()).unwrap_or(u8::MAX),
+                got: i,
+            }));
+        };
+        sensor.fill(i, window).map_err(StationFault::Sensor)?;
+        // At most MAX_SIGNALS windows: the push cannot fail.
+        let _ = windows.push(window);
+        rest = tail;
+    }
+    m.classify_windows(&readings, &windows)
+        .map_err(|f| match f {
+            SignalFault::Reading(r) => StationFault::Reading(r),
+            other => StationFault::Window(other),
+        })
 }

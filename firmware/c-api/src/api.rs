@@ -78,6 +78,9 @@ pub fn step_result<SE>(s: Step<SE>) -> lg_result {
                 StationFault::Blob(_) => faulted(lg_fault::LG_FAULT_BLOB),
                 StationFault::Sensor(_) => faulted(lg_fault::LG_FAULT_SENSOR),
                 StationFault::Reading(f) => reading_fault(f),
+                // Only a station of sample windows reports these, and the C interface runs
+                // stations of readings; a refused window is a refused input all the same.
+                StationFault::Window(_) => faulted(lg_fault::LG_FAULT_RANGE),
             }
         },
     }

@@ -1,5 +1,6 @@
-//! Link-time proof of panic-freedom: the decode + classify + drive path, and every signal
-//! feature of a window, linked with `panic-never`, whose panic handler is an undefined
+//! Link-time proof of panic-freedom: the decode + classify + drive path for readings and for
+//! sample windows (`SignalStation`), and every signal feature of a window with its noise
+//! bound, linked with `panic-never`, whose panic handler is an undefined
 //! symbol. If any panic path survives optimisation, this binary fails to link.
 #![no_std]
 #![no_main]
@@ -9,7 +10,7 @@
 mod board;
 
 use board::entry;
-use firmware::{GoNoGoLines, SensorSource, Station, Step};
+use firmware::{GoNoGoLines, SensorSource, SignalStation, Station, Step, WindowSource};
 use panic_never as _;
 
 /// A value from outside the program (a DMA target or a register on a real board): the
@@ -57,23 +58,16 @@ fn window_features() {
         _ => i32::MIN + 1,
     };
     observe(value as u32);
-    // A whole unit of readings and windows through a model from flash.
-    if let Ok(m) = shared_model::blob::decode_signals(board::model_region()) {
-        let mut readings = [0i32; shared_model::MAX_CHANNELS];
-        for r in readings.iter_mut() {
-            *r = outside();
-        }
-        let count = usize::try_from(outside()).unwrap_or(0);
-        let readings = readings.get(..count).unwrap_or(&[]);
-        let windows = [buf.get(..len).unwrap_or(&[]); 2];
-        let windows = windows
-            .get(..usize::try_from(outside()).unwrap_or(0))
-            .unwrap_or(&[]);
-        match m.classify_windows(readings, windows) {
-            Ok(d) => observe(d.score as u32),
-            Err(_) => observe(12),
-        }
-    }
+    observe(c_noise(&spec, feature));
+}
+
+/// The noise bound of a feature too: integer arithmetic the device may run.
+fn c_noise(
+    spec: &shared_model::features::SignalSpec,
+    feature: shared_model::features::Feature,
+) -> u32 {
+    shared_model::features::CheckedFeature::new(*spec, feature)
+        .map_or(0, |f| f.noise_bound(outside() as u32) as u32)
 }
 
 struct Inputs;
@@ -88,24 +82,54 @@ impl SensorSource for Inputs {
     }
 }
 
+impl WindowSource for Inputs {
+    fn fill(&mut self, _signal: usize, window: &mut [i32]) -> Result<(), ()> {
+        for s in window.iter_mut() {
+            *s = outside();
+        }
+        Ok(())
+    }
+}
+
+/// Hands a step's outcome to the outside world.
+fn observe_step(step: Step<()>) {
+    match step {
+        Step::Decided(d) => {
+            observe(d.score as u32);
+            observe((d.score >> 32) as u32);
+            observe(d.verdict as u32);
+        }
+        Step::Faulted { first, .. } => observe(if first { 10 } else { 11 }),
+    }
+}
+
 #[entry]
 fn main() -> ! {
-    let Ok(lines) = GoNoGoLines::new(
-        board::Line(&board::GO),
-        board::Line(&board::NOGO),
-        Some(board::Line(&board::RECHECK)),
+    let lines = || {
+        GoNoGoLines::new(
+            board::Line(&board::GO),
+            board::Line(&board::NOGO),
+            Some(board::Line(&board::RECHECK)),
+        )
+    };
+    let Ok(readings_lines) = lines();
+    let Ok(window_lines) = lines();
+    let mut station = Station::new(board::model_region(), Inputs, readings_lines);
+    // The station of sample windows, on the same region: whichever kind of blob it holds,
+    // one of the two runs it, and both are linked and proved.
+    let mut samples = [0i32; WINDOW];
+    let mut windows = SignalStation::new(
+        board::model_region(),
+        None,
+        &mut samples,
+        Inputs,
+        window_lines,
     );
-    let mut station = Station::new(board::model_region(), Inputs, lines);
     loop {
         window_features();
         let Ok(step) = station.step();
-        match step {
-            Step::Decided(d) => {
-                observe(d.score as u32);
-                observe((d.score >> 32) as u32);
-                observe(d.verdict as u32);
-            }
-            Step::Faulted { first, .. } => observe(if first { 10 } else { 11 }),
-        }
+        observe_step(step);
+        let Ok(step) = windows.step();
+        observe_step(step);
     }
 }
