@@ -176,6 +176,9 @@ where
     /// Validates the blob in `flash` (any format version; one without signals has every
     /// channel a reading), its signature first when `key` is given. A bad blob leaves the
     /// station holding NO-GO. `samples` must hold every signal's window end to end.
+    ///
+    /// Always inlined, as [`Station::with_key`] is: the model is then built where it stays.
+    #[inline(always)]
     pub fn new(
         flash: &[u8],
         key: Option<&ReleaseKey>,

@@ -275,6 +275,10 @@ impl CheckedSignalModel {
     ///
     /// # Errors
     /// [`ModelError::Sources`], [`ModelError::SignalIndex`] or [`ModelError::Signal`].
+    ///
+    /// Always inlined: it moves the model, and on a device every move of it outlined is
+    /// kilobytes of start-up stack.
+    #[inline(always)]
     pub fn new(model: CheckedModel, signals: SignalSection) -> Result<Self, ModelError> {
         if !signals.is_empty() && signals.sources.len() != model.channel_count() {
             return Err(ModelError::Sources);

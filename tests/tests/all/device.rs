@@ -268,61 +268,70 @@ fn have_target(target: &str) -> Result<(), String> {
     }
 }
 
-/// The Rust example on every core of the device range, each on its QEMU board with the blob
-/// loaded raw at the board's model address: the same lines as `replay` for 300 holdout
-/// vectors, the lines left at the last verdict, and a small stack for one step.
-#[test]
-fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
-    let boards = [
-        (
-            "Cortex-M0",
-            "thumbv6m-none-eabi",
-            "qemu-system-arm",
-            "microbit",
-            Some("cortex-m0"),
-            "0x3F000",
-        ),
-        (
-            "Cortex-M3",
-            "thumbv7m-none-eabi",
-            "qemu-system-arm",
-            "lm3s6965evb",
-            Some("cortex-m3"),
-            "0x3F000",
-        ),
-        (
-            "Cortex-M4F",
-            "thumbv7em-none-eabihf",
-            "qemu-system-arm",
-            "mps2-an386",
-            Some("cortex-m4"),
-            "0x3F000",
-        ),
-        (
-            "Cortex-M33",
-            "thumbv8m.main-none-eabihf",
-            "qemu-system-arm",
-            "mps2-an505",
-            Some("cortex-m33"),
-            "0x1003F000",
-        ),
-        (
-            "RV32IMAC",
-            "riscv32imac-unknown-none-elf",
-            "qemu-system-riscv32",
-            "sifive_e",
-            None,
-            "0x2043F000",
-        ),
-    ];
-    let dir = tempfile::tempdir().unwrap();
-    let (out, vpath) = demo_vectors(dir.path());
-    let replay = std::fs::read_to_string(out.join("replay-holdout.txt")).unwrap();
-    let want: Vec<&str> = replay.lines().take(301).collect();
+/// A core of the device range: name, Rust target, QEMU program, board, CPU (none on
+/// RISC-V, which boots without a BIOS) and the board's model address.
+type Board = (
+    &'static str,
+    &'static str,
+    &'static str,
+    &'static str,
+    Option<&'static str>,
+    &'static str,
+);
+
+/// The device range.
+const BOARDS: [Board; 5] = [
+    (
+        "Cortex-M0",
+        "thumbv6m-none-eabi",
+        "qemu-system-arm",
+        "microbit",
+        Some("cortex-m0"),
+        "0x3F000",
+    ),
+    (
+        "Cortex-M3",
+        "thumbv7m-none-eabi",
+        "qemu-system-arm",
+        "lm3s6965evb",
+        Some("cortex-m3"),
+        "0x3F000",
+    ),
+    (
+        "Cortex-M4F",
+        "thumbv7em-none-eabihf",
+        "qemu-system-arm",
+        "mps2-an386",
+        Some("cortex-m4"),
+        "0x3F000",
+    ),
+    (
+        "Cortex-M33",
+        "thumbv8m.main-none-eabihf",
+        "qemu-system-arm",
+        "mps2-an505",
+        Some("cortex-m33"),
+        "0x1003F000",
+    ),
+    (
+        "RV32IMAC",
+        "riscv32imac-unknown-none-elf",
+        "qemu-system-riscv32",
+        "sifive_e",
+        None,
+        "0x2043F000",
+    ),
+];
+
+/// Builds `bin` of the QEMU application with `vectors` linked in for every core of
+/// [`BOARDS`] (in `target/<folder>`), runs it with `blob` loaded raw at the board's model
+/// address, and hands each core's name and stdout to `check`. A core whose QEMU or Rust
+/// target is missing is SKIPPED (a failure in CI).
+fn on_every_core(bin: &str, folder: &str, vectors: &Path, blob: &Path, check: impl Fn(&str, &str)) {
     let app = crate::root().join("firmware/qemu-app");
     // Its own target folder: the other device tests build the M3 image with other vectors.
-    let target_dir = app.join("target/cores");
-    for (core, target, qemu, machine, cpu, addr) in boards {
+    let target_dir = app.join("target").join(folder);
+    for (core, target, qemu, machine, cpu, addr) in BOARDS {
         let ready = Command::new(qemu)
             .arg("--version")
             .output()
@@ -335,21 +344,14 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
             continue;
         }
         let st = Command::new("cargo")
-            .args([
-                "build",
-                "--release",
-                "--bin",
-                "linegate-qemu-app",
-                "--target",
-                target,
-            ])
+            .args(["build", "--release", "--bin", bin, "--target", target])
             .current_dir(&app)
-            .env("LINEGATE_VECTORS", &vpath)
+            .env("LINEGATE_VECTORS", vectors)
             .env("CARGO_TARGET_DIR", &target_dir)
             .status()
             .unwrap();
         assert!(st.success(), "{core}: build failed");
-        let elf = target_dir.join(target).join("release/linegate-qemu-app");
+        let elf = target_dir.join(target).join("release").join(bin);
         let mut cmd = Command::new("timeout");
         cmd.args(["120", qemu, "-machine", machine, "-nographic"]);
         if let Some(cpu) = cpu {
@@ -363,8 +365,9 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
             .arg("-device")
             .arg(format!(
                 "loader,file={},addr={addr},force-raw=on",
-                out.join("model.lgmb").display()
+                blob.display()
             ))
+            .stdin(std::process::Stdio::null())
             .output()
             .unwrap();
         let stdout = String::from_utf8_lossy(&o.stdout).into_owned();
@@ -374,14 +377,189 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
             "{core}: {stdout}{}",
             String::from_utf8_lossy(&o.stderr)
         );
-        let got: Vec<&str> = stdout
-            .lines()
-            .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
+        check(core, &stdout);
+    }
+}
+
+/// The Rust example on every core of the device range, each on its QEMU board with the blob
+/// loaded raw at the board's model address: the same lines as `replay` for 300 holdout
+/// vectors, the lines left at the last verdict, and a small stack for one step.
+#[test]
+fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
+    let dir = tempfile::tempdir().unwrap();
+    let (out, vpath) = demo_vectors(dir.path());
+    let replay = std::fs::read_to_string(out.join("replay-holdout.txt")).unwrap();
+    let want: Vec<&str> = replay.lines().take(301).collect();
+    on_every_core(
+        "linegate-qemu-app",
+        "cores",
+        &vpath,
+        &out.join("model.lgmb"),
+        |core, stdout| {
+            let got: Vec<&str> = stdout
+                .lines()
+                .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
+                .collect();
+            assert_eq!(got, want, "{core}: the device and replay differ");
+            let stack = lines_and_stack(stdout, want.last().unwrap(), core);
+            eprintln!(
+                "{core}: Rust example agrees with replay on 300 vectors; one step {stack} stack bytes"
+            );
+        },
+    );
+}
+
+/// A model with signal features (a band magnitude and a standard deviation of a 64-sample
+/// vibration window, the RMS of a 32-sample current window, and a temperature reading),
+/// released as a version-3 blob: the signal example on every core prints, for 200 units
+/// and the faulty ones among them, exactly the lines the host computes with the same
+/// kernel (`CheckedSignalModel::classify_windows`). SYNTHETIC units, seeded.
+#[test]
+fn signal_model_on_five_cores_agrees_with_the_host() {
+    use rand::{Rng, SeedableRng};
+    use shared_model::features::{CheckedFeature, Feature, SignalSection, SignalSpec, Source};
+    use shared_model::{ChannelSpec, CheckedModel, CheckedSignalModel, FixedModel, blob};
+    let vib = SignalSpec {
+        raw_min: 0,
+        raw_max: 4095,
+        offset: 2048,
+        window: 64,
+    };
+    let cur = SignalSpec {
+        raw_min: 0,
+        raw_max: 4095,
+        offset: 0,
+        window: 32,
+    };
+    // Bin 4 of 64: round(2cos(2π·4/64)·2²⁹).
+    let coeff = (2.0 * (2.0 * std::f64::consts::PI * 4.0 / 64.0).cos() * f64::from(1u32 << 29))
+        .round() as i32;
+    let features = [
+        ("vib.band4", 0u8, Feature::Band { coeff }, vib, 40),
+        ("vib.std", 0, Feature::StdDev, vib, -25),
+        ("cur.rms", 1, Feature::Rms, cur, 30),
+    ];
+    let mut m = FixedModel::example_two_channel();
+    m.channels.clear();
+    m.acc_bits = 64;
+    m.weight_bits = 16;
+    m.nogo_max = -200_000;
+    m.go_min = 200_000;
+    let mut signals = SignalSection::default();
+    signals.signals.push(vib).unwrap();
+    signals.signals.push(cur).unwrap();
+    for (name, signal, feature, spec, weight) in features {
+        // The channel's range is the feature's proved range; full scale maps to ±32767.
+        let bound = CheckedFeature::new(spec, feature).unwrap().bound();
+        m.channels
+            .push(ChannelSpec {
+                name: heapless::String::try_from(name).unwrap(),
+                raw_min: -bound,
+                raw_max: bound,
+                offset: 0,
+                multiplier: ((32767i64 << 24) / i64::from(bound)) as i32,
+                shift: 24,
+                weight,
+            })
+            .unwrap();
+        signals
+            .sources
+            .push(Source::Feature { signal, feature })
+            .unwrap();
+    }
+    m.channels
+        .push(ChannelSpec {
+            name: heapless::String::try_from("temp").unwrap(),
+            raw_min: 0,
+            raw_max: 1000,
+            offset: 500,
+            multiplier: 4_294_836,
+            shift: 16,
+            weight: -20,
+        })
+        .unwrap();
+    signals.sources.push(Source::Reading).unwrap();
+    let model = CheckedSignalModel::new(CheckedModel::new(m).unwrap(), signals).unwrap();
+    let mut buf = [0u8; blob::MAX_BLOB_LEN];
+    let n = blob::encode_signals(&model, &mut buf).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let blob_path = dir.path().join("signals.lgmb");
+    std::fs::write(&blob_path, &buf[..n]).unwrap();
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(18);
+    let (mut rows, mut want) = (String::new(), Vec::new());
+    for i in 0..200 {
+        let amp: f64 = rng.gen_range(0.0..1500.0);
+        let level: f64 = rng.gen_range(100.0..3500.0);
+        let temp: i32 = if i % 50 == 7 {
+            1001
+        } else {
+            rng.gen_range(0..=1000)
+        };
+        let mut w: Vec<i32> = (0..64)
+            .map(|k| {
+                let t = 2.0 * std::f64::consts::PI * 4.0 * f64::from(k) / 64.0;
+                (2048.0 + amp * t.sin() + rng.gen_range(-300.0..300.0))
+                    .round()
+                    .clamp(0.0, 4095.0) as i32
+            })
             .collect();
-        assert_eq!(got, want, "{core}: the device and replay differ");
-        let stack = lines_and_stack(&stdout, want.last().unwrap(), core);
-        eprintln!(
-            "{core}: Rust example agrees with replay on 300 vectors; one step {stack} stack bytes"
+        if i % 50 == 23 {
+            w[17] = 4096;
+        }
+        let c: Vec<i32> = (0..32)
+            .map(|_| {
+                (level + rng.gen_range(-200.0..200.0))
+                    .round()
+                    .clamp(0.0, 4095.0) as i32
+            })
+            .collect();
+        let line = match model.classify_windows(&[temp], &[&w, &c]) {
+            Ok(d) => format!("{i} {} {}", d.verdict.as_str(), d.score),
+            Err(shared_model::SignalFault::Reading(shared_model::Fault::OutOfRange {
+                channel,
+                ..
+            })) => {
+                format!("{i} FAULT ch{channel}")
+            }
+            Err(shared_model::SignalFault::Window { signal, .. }) => {
+                format!("{i} FAULT signal{signal}")
+            }
+            Err(e) => panic!("unit {i}: {e}"),
+        };
+        want.push(line);
+        let row: Vec<String> = std::iter::once(temp)
+            .chain(w)
+            .chain(c)
+            .map(|v| v.to_string())
+            .collect();
+        rows.push_str(&row.join(" "));
+        rows.push('\n');
+    }
+    // The units span every verdict and both kinds of fault.
+    for kind in [" GO ", " NO-GO ", " RECHECK ", "FAULT ch3", "FAULT signal0"] {
+        assert!(
+            want.iter().any(|l| format!("{l} ").contains(kind)),
+            "no {kind} among the units"
         );
     }
+    let vpath = dir.path().join("units.txt");
+    std::fs::write(&vpath, rows).unwrap();
+    on_every_core("signals", "signals", &vpath, &blob_path, |core, stdout| {
+        let got: Vec<&str> = stdout.lines().filter(|l| !l.starts_with("# ")).collect();
+        assert_eq!(got, want, "{core}: the device and the host differ");
+        let startup: usize = stdout
+            .lines()
+            .find_map(|l| l.strip_prefix("# stack bytes used from reset through start-up: "))
+            .unwrap()
+            .parse()
+            .unwrap();
+        // The model, its windows' buffer (1 KiB) and the start-up fit a 16 KiB Cortex-M0.
+        assert!(
+            startup < 12 * 1024,
+            "{core}: start-up stack {startup} bytes"
+        );
+        eprintln!(
+            "{core}: signal example agrees with the host on 200 units; start-up stack {startup} bytes"
+        );
+    });
 }

@@ -1,0 +1,134 @@
+//! Example device application for a model with signal features (blob format version 3),
+//! on the same boards as the main example: a `SignalStation` over the model region, fed by
+//! linked-in units, each a row of LINEGATE_VECTORS holding the reading channels' readings
+//! and then every signal's window of samples, in the model's order. Prints one line per
+//! unit (`i VERDICT score`, or `i FAULT …`) over semihosting and exits QEMU: 0 after the
+//! units, 2 on a bad blob.
+#![no_std]
+#![no_main]
+
+// The board module serves the main example too; this one uses part of it.
+#[allow(dead_code, unused_imports)]
+#[path = "../board.rs"]
+mod board;
+
+use board::{debug, entry, hprintln};
+use firmware::{GoNoGoLines, SensorSource, SignalStation, StationFault, Step, WindowSource};
+#[cfg(target_arch = "arm")]
+use panic_semihosting as _;
+use shared_model::SignalFault;
+
+#[cfg(target_arch = "riscv32")]
+#[panic_handler]
+fn panic(_: &core::panic::PanicInfo) -> ! {
+    hprintln!("panic");
+    debug::exit(debug::EXIT_FAILURE);
+    board::idle()
+}
+
+mod vectors {
+    include!(concat!(env!("OUT_DIR"), "/vectors.rs"));
+}
+
+/// Samples the station may hold: every signal's window end to end.
+const SAMPLES: usize = 256;
+
+/// Plays the linked-in rows: `read` starts a row and takes its readings, `fill` takes the
+/// next window's samples from the same row.
+struct Units {
+    /// The row `read` starts next.
+    next: usize,
+    /// The row being read, and the position in it.
+    row: usize,
+    at: usize,
+}
+
+/// The rows ran out or do not fit the model.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+struct NoMoreUnits;
+
+impl Units {
+    fn take(&mut self, out: &mut [i32]) -> Result<(), NoMoreUnits> {
+        let start = self.row.checked_mul(vectors::WIDTH).ok_or(NoMoreUnits)?;
+        let row = vectors::VECTORS
+            .get(start..start + vectors::WIDTH)
+            .ok_or(NoMoreUnits)?;
+        let v = row.get(self.at..self.at + out.len()).ok_or(NoMoreUnits)?;
+        out.copy_from_slice(v);
+        self.at += out.len();
+        Ok(())
+    }
+}
+
+impl SensorSource for Units {
+    type Error = NoMoreUnits;
+    fn read(&mut self, readings: &mut [i32]) -> Result<(), NoMoreUnits> {
+        (self.row, self.at) = (self.next, 0);
+        self.next += 1;
+        self.take(readings)
+    }
+}
+
+impl WindowSource for Units {
+    fn fill(&mut self, _signal: usize, window: &mut [i32]) -> Result<(), NoMoreUnits> {
+        self.take(window)
+    }
+}
+
+#[entry]
+fn main() -> ! {
+    let lines = match GoNoGoLines::new(
+        board::Line(&board::GO),
+        board::Line(&board::NOGO),
+        Some(board::Line(&board::RECHECK)),
+    ) {
+        Ok(l) => l,
+        Err(e) => match e {},
+    };
+    let painted = board::paint_stack(board::stack_pointer());
+    let mut samples = [0i32; SAMPLES];
+    let units = Units {
+        next: 0,
+        row: 0,
+        at: 0,
+    };
+    let mut station = SignalStation::new(board::model_region(), None, &mut samples, units, lines);
+    let startup = board::stack_used(painted, board::stack_start());
+    if let Err(e) = station.model() {
+        let _ = station.step();
+        hprintln!("FAULT blob: {}", e);
+        debug::exit(Err(()));
+        board::idle()
+    }
+    let count = vectors::VECTORS
+        .len()
+        .checked_div(vectors::WIDTH)
+        .unwrap_or(0);
+    let mut deepest = 0usize;
+    for i in 0..count {
+        let top = board::stack_pointer();
+        let painted = board::paint_stack(top);
+        let step = station.step();
+        deepest = deepest.max(board::stack_used(painted, top));
+        match step {
+            Ok(Step::Decided(d)) => hprintln!("{} {} {}", i, d.verdict.as_str(), d.score),
+            Ok(Step::Faulted {
+                fault: StationFault::Reading(shared_model::Fault::OutOfRange { channel, .. }),
+                ..
+            }) => hprintln!("{} FAULT ch{}", i, channel),
+            Ok(Step::Faulted {
+                fault: StationFault::Window(SignalFault::Window { signal, .. }),
+                ..
+            }) => hprintln!("{} FAULT signal{}", i, signal),
+            Ok(Step::Faulted { .. }) => hprintln!("{} FAULT other", i),
+            Err(e) => match e {},
+        }
+    }
+    hprintln!("# stack bytes used by one step: {}", deepest);
+    hprintln!(
+        "# stack bytes used from reset through start-up: {}",
+        startup
+    );
+    debug::exit(Ok(()));
+    board::idle()
+}
