@@ -3,7 +3,9 @@
 # model at 8- and 16-bit weights: flash and RAM of the example and of Linegate's code in it,
 # stack used by one step (stack painting), and instructions executed per classification
 # (QEMU one-instruction-per-block trace): the dot product alone, the kernel's classify, and
-# the whole step (read + classify + drive lines). One Markdown table per target.
+# the whole step (read + classify + drive lines). One Markdown table per target, then the
+# instructions per sample of every signal feature on a 1,024-sample window (the signal
+# example's `cost_*` functions) and the stack one feature takes.
 # Usage: firmware/qemu-app/footprint.sh [target ...]
 #   (needs qemu-system-arm, qemu-system-riscv32 for RISC-V, binutils' nm, python3)
 set -euo pipefail
@@ -58,6 +60,17 @@ while read -r target qemu machine cpu addr; do
       -singlestep -d nochain,exec -D "$work/trace-$w.log" > "$work/out-$w.txt" 2>/dev/null < /dev/null || true
   done
   nm -C -S --size-sort "$elf" > "$work/syms.txt" 2>/dev/null || true
+  # Signal features: every feature of a 1,024-sample window, counted in the signal example
+  # (it measures them at start, before looking for a model, so no model is loaded).
+  rm -f "$work/sig-trace.log" "$work/sig-out.txt" "$work/sig-syms.txt"
+  if (cd "$here" && LINEGATE_VECTORS=/dev/null CARGO_TARGET_DIR="$here/target/footprint" \
+        cargo build -q --release --bin signals --target "$target" < /dev/null); then
+    sig="$here/target/footprint/$target/release/signals"
+    timeout 300 "$qemu" -machine "$machine" "${cpuarg[@]}" -nographic \
+      -semihosting-config enable=on,target=native -kernel "$sig" \
+      -singlestep -d nochain,exec -D "$work/sig-trace.log" > "$work/sig-out.txt" 2>/dev/null < /dev/null || true
+    nm -C -S --size-sort "$sig" > "$work/sig-syms.txt" 2>/dev/null || true
+  fi
   # Section sizes from the ELF headers (works for Arm and RISC-V alike).
   python3 - "$target" "$elf" "$work" <<'PY'
 import re, struct, sys
@@ -86,16 +99,19 @@ for i in range(shnum):
 # Linegate's own code and data in the image: the firmware and shared-model crates and the
 # format crates they decode with.
 ours = 0
-funcs = []
-for line in open(work + "/syms.txt"):
-    p = line.split(None, 3)
-    if len(p) == 4:
-        addr, size, kind, name = int(p[0], 16), int(p[1], 16), p[2], p[3].strip()
-        if kind in "tT":
-            funcs.append((addr & ~1, size, name))
-        if re.match(r"<?(firmware|shared_model|postcard|crc|heapless)::", name) and kind in "tTrR":
-            ours += size
-funcs.sort()
+def load_funcs(path):
+    """Functions (address, size, name) of an `nm -C -S` listing, and Linegate's bytes in it."""
+    out, ours = [], 0
+    for line in open(path):
+        p = line.split(None, 3)
+        if len(p) == 4:
+            addr, size, kind, name = int(p[0], 16), int(p[1], 16), p[2], p[3].strip()
+            if kind in "tT":
+                out.append((addr & ~1, size, name))
+            if re.match(r"<?(firmware|shared_model|postcard|crc|heapless)::", name) and kind in "tTrR":
+                ours += size
+    return sorted(out), ours
+funcs, ours = load_funcs(work + "/syms.txt")
 def containing(pc):
     for a, s, n in funcs:
         if a <= pc < a + s:
@@ -135,5 +151,17 @@ for w in (8, 16):
     cell = lambda v: "–" if v is None else f"{v} instructions"
     print(f"| {w}-bit | {kernel} | {flash} B | {ram} B | {ours} B | {startup.group(1) if startup else '–'} B | {stack.group(1) if stack else '–'} B | "
           + " | ".join(cell(c) for c in cols) + " |")
+import os
+if os.path.exists(f"{work}/sig-trace.log") and os.path.exists(f"{work}/sig-syms.txt"):
+    funcs, _ = load_funcs(f"{work}/sig-syms.txt")
+    out = open(f"{work}/sig-out.txt").read()
+    stack = re.search(r"stack bytes used by a feature of a 1024-sample window: (\d+)", out)
+    names = ["mean", "rms", "min", "max", "peak_to_peak", "abs_peak", "std_dev", "zero_crossings", "band"]
+    counts = [count(f"{work}/sig-trace.log", rf"::cost_{n}$") for n in names]
+    print(f"\nSignal features of one 1,024-sample window (12-bit samples, validation of the window included): instructions per sample; "
+          f"window buffer 4,096 B of RAM (i32 samples, the caller's), stack {stack.group(1) if stack else '–'} B\n")
+    print("| " + " | ".join(n.replace("_", " ") for n in names) + " |")
+    print("|" + "---|" * len(names))
+    print("| " + " | ".join("–" if c is None else f"{c / 1024:.1f}" for c in counts) + " |")
 PY
 done <<< "$boards"

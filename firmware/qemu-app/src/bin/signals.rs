@@ -75,8 +75,85 @@ impl WindowSource for Units {
     }
 }
 
+/// Samples of the window the feature costs are measured on.
+const COST_WINDOW: usize = 1024;
+
+/// One feature of a 1,024-sample window of a 12-bit signal.
+#[inline(always)]
+fn feature_of(feature: shared_model::features::Feature, window: &[i32]) -> i32 {
+    use shared_model::features::{CheckedFeature, SignalSpec};
+    let spec = SignalSpec {
+        raw_min: 0,
+        raw_max: 4095,
+        offset: 2048,
+        window: COST_WINDOW as u16,
+    };
+    CheckedFeature::new(spec, feature)
+        .ok()
+        .and_then(|f| f.compute(window).ok())
+        .unwrap_or(i32::MIN)
+}
+
+/// One function per feature, not inlined, named after it: the footprint script counts each
+/// one's instructions in the QEMU trace.
+macro_rules! cost {
+    ($($name:ident => $feature:expr;)*) => {$(
+        #[inline(never)]
+        fn $name(window: &[i32]) -> i32 {
+            use shared_model::features::Feature;
+            feature_of($feature, window)
+        }
+    )*};
+}
+
+cost! {
+    cost_mean => Feature::Mean;
+    cost_rms => Feature::Rms;
+    cost_min => Feature::Min;
+    cost_max => Feature::Max;
+    cost_peak_to_peak => Feature::PeakToPeak;
+    cost_abs_peak => Feature::AbsPeak;
+    cost_std_dev => Feature::StdDev;
+    cost_zero_crossings => Feature::ZeroCrossings;
+    // Bin 64 of 1024: round(2cos(2π/16)·2²⁹).
+    cost_band => Feature::Band { coeff: 992_008_094 };
+}
+
+/// Every feature once on a 1,024-sample window of a 12-bit signal (a tone and a ramp),
+/// with the stack each takes, for the footprint report.
+fn feature_costs() {
+    let mut window = [0i32; COST_WINDOW];
+    for (i, s) in window.iter_mut().enumerate() {
+        // Bin 64's tone plus a slow ramp, in integers: a triangle of period 16.
+        let t = (i % 16) as i32;
+        let tri = if t < 8 { t } else { 16 - t };
+        *s = 2048 + (tri - 4) * 200 + (i as i32 % 97);
+    }
+    let window = core::hint::black_box(&window[..]);
+    let top = board::stack_pointer();
+    let painted = board::paint_stack(top);
+    let values = [
+        cost_mean(window),
+        cost_rms(window),
+        cost_min(window),
+        cost_max(window),
+        cost_peak_to_peak(window),
+        cost_abs_peak(window),
+        cost_std_dev(window),
+        cost_zero_crossings(window),
+        cost_band(window),
+    ];
+    let stack = board::stack_used(painted, top);
+    hprintln!("# features of a 1024-sample window: {:?}", values);
+    hprintln!(
+        "# stack bytes used by a feature of a 1024-sample window: {}",
+        stack
+    );
+}
+
 #[entry]
 fn main() -> ! {
+    feature_costs();
     let lines = match GoNoGoLines::new(
         board::Line(&board::GO),
         board::Line(&board::NOGO),
