@@ -2,14 +2,10 @@
 //! windows the board filled, every fault shows NO-GO once, and the two kinds of blob stay
 //! apart (a station of readings refuses a model that needs windows).
 
-use std::cell::RefCell;
-use std::convert::Infallible;
-use std::rc::Rc;
+mod common;
 
-use embedded_hal::digital::{ErrorType, OutputPin};
-use firmware::{
-    GoNoGoLines, SensorSource, SignalStation, Station, StationFault, Step, WindowSource,
-};
+use common::recorded_lines as lines;
+use firmware::{SensorSource, SignalStation, Station, StationFault, Step, WindowSource};
 use shared_model::features::{Feature, SignalSection, SignalSpec, Source};
 use shared_model::{
     CheckedModel, CheckedSignalModel, DecodeError, FixedModel, SignalFault, WindowFault, blob,
@@ -79,38 +75,6 @@ impl WindowSource for Board {
     }
 }
 
-/// A pin that records what it was driven to, by name.
-struct Rec(&'static str, PinLog);
-
-impl ErrorType for Rec {
-    type Error = Infallible;
-}
-
-impl OutputPin for Rec {
-    fn set_low(&mut self) -> Result<(), Infallible> {
-        self.1.borrow_mut().push((self.0, false));
-        Ok(())
-    }
-    fn set_high(&mut self) -> Result<(), Infallible> {
-        self.1.borrow_mut().push((self.0, true));
-        Ok(())
-    }
-}
-
-/// What the pins were driven to, in order.
-type PinLog = Rc<RefCell<Vec<(&'static str, bool)>>>;
-
-fn lines() -> (GoNoGoLines<Rec, Rec, Rec>, PinLog) {
-    let log = Rc::new(RefCell::new(Vec::new()));
-    let l = GoNoGoLines::new(
-        Rec("go", log.clone()),
-        Rec("nogo", log.clone()),
-        Some(Rec("recheck", log.clone())),
-    )
-    .unwrap();
-    (l, log)
-}
-
 fn unit(reading: i32, window: [i32; 8]) -> Unit {
     Unit {
         reading: Ok(reading),
@@ -145,9 +109,9 @@ fn windows_are_classified_as_the_kernel_classifies_them() {
             .find(|(_, high)| *high)
             .map(|p| p.0);
         let name = match want.verdict {
-            firmware::Verdict::Go => "go",
-            firmware::Verdict::NoGo => "nogo",
-            firmware::Verdict::Recheck => "recheck",
+            firmware::Verdict::Go => "GO",
+            firmware::Verdict::NoGo => "NOGO",
+            firmware::Verdict::Recheck => "RECHECK",
         };
         assert_eq!(shown, Some(name));
     }
@@ -184,7 +148,7 @@ fn every_fault_shows_nogo_once() {
     let faults: Vec<(StationFault<BusError>, bool)> = (0..4)
         .map(|_| match st.step().unwrap() {
             Step::Faulted { fault, first } => {
-                assert_eq!(log.borrow().last(), Some(&("nogo", true)));
+                assert_eq!(log.borrow().last(), Some(&("NOGO", true)));
                 (fault, first)
             }
             other => panic!("unexpected {other:?}"),

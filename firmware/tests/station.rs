@@ -1,11 +1,9 @@
 //! Host tests of the device library: pin sequences with embedded-hal-mock, and
 //! fault injection with a scripted sensor source and order-recording pins.
 
-use std::cell::RefCell;
-use std::convert::Infallible;
-use std::rc::Rc;
+mod common;
 
-use embedded_hal::digital::{ErrorType, OutputPin};
+use common::{Log, Rec, recorded_lines};
 use embedded_hal_mock::eh1::digital::{Mock as PinMock, State, Transaction as T};
 use firmware::{GoNoGoLines, SensorSource, Station, StationFault, Step, Verdict};
 use shared_model::{CheckedModel, DecodeError, Fault, FixedModel, blob};
@@ -111,37 +109,11 @@ fn invalid_blob_holds_nogo_and_never_asserts_go() {
     rc.unwrap().done();
 }
 
-/// An output pin that appends (line, level) to a shared log, to check the order across lines.
-struct Rec(&'static str, Rc<RefCell<Vec<(&'static str, bool)>>>);
-
-impl ErrorType for Rec {
-    type Error = Infallible;
-}
-
-impl OutputPin for Rec {
-    fn set_low(&mut self) -> Result<(), Infallible> {
-        self.1.borrow_mut().push((self.0, false));
-        Ok(())
-    }
-    fn set_high(&mut self) -> Result<(), Infallible> {
-        self.1.borrow_mut().push((self.0, true));
-        Ok(())
-    }
-}
-
-type Log = Rc<RefCell<Vec<(&'static str, bool)>>>;
-
 fn recorded_station(
     flash: &[u8],
     script: Vec<Result<[i32; 2], BusError>>,
 ) -> (Station<Script, Rec, Rec, Rec>, Log) {
-    let log: Log = Rc::default();
-    let lines = GoNoGoLines::new(
-        Rec("GO", log.clone()),
-        Rec("NOGO", log.clone()),
-        Some(Rec("RECHECK", log.clone())),
-    )
-    .unwrap();
+    let (lines, log) = recorded_lines();
     (Station::new(flash, Script::new(script), lines), log)
 }
 

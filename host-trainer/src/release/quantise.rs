@@ -220,20 +220,7 @@ pub fn quantise(
             q.plain_min_margin = min_margin(&q.model, ds, &correct);
             q.optimised_min_margin = q.plain_min_margin;
         } else {
-            let xmax: Vec<f64> = q
-                .model
-                .model()
-                .channels
-                .iter()
-                .zip(&q.kappa)
-                .map(|(c, k)| {
-                    k * f64::from(
-                        c.raw_max
-                            .abs_diff(c.offset)
-                            .max(c.offset.abs_diff(c.raw_min)),
-                    )
-                })
-                .collect();
+            let xmax = input_extremes(&q);
             let bound = Bound {
                 ideal_w: &q.ideal_weights,
                 ideal_b: q.ideal_bias,
@@ -316,6 +303,24 @@ pub fn min_margin(m: &CheckedModel, ds: &Dataset, correct: &Correct<'_>) -> Opti
         })
         .try_reduce(|| f64::INFINITY, |a, b| Some(a.min(b)))
         .filter(|v| v.is_finite())
+}
+
+/// Xmaxᵢ, the largest |scaled input| of each channel over its valid range, before the
+/// conversion's rounding: κᵢ·max|raw − offset|.
+fn input_extremes(q: &Quantised) -> Vec<f64> {
+    q.model
+        .model()
+        .channels
+        .iter()
+        .zip(&q.kappa)
+        .map(|(c, k)| {
+            k * f64::from(
+                c.raw_max
+                    .abs_diff(c.offset)
+                    .max(c.offset.abs_diff(c.raw_min)),
+            )
+        })
+        .collect()
 }
 
 /// The audit's rounding bound, as a function of the integer weights and bias.
@@ -626,20 +631,7 @@ mod tests {
                     moved_runs += 1;
                     // And the shortcut itself, where it answers, agrees with a full pass.
                     let plain = quantise(&fm, None, cfg).unwrap();
-                    let xmax: Vec<f64> = plain
-                        .model
-                        .model()
-                        .channels
-                        .iter()
-                        .zip(&plain.kappa)
-                        .map(|(c, k)| {
-                            k * f64::from(
-                                c.raw_max
-                                    .abs_diff(c.offset)
-                                    .max(c.offset.abs_diff(c.raw_min)),
-                            )
-                        })
-                        .collect();
+                    let xmax = input_extremes(&plain);
                     let bound = Bound {
                         ideal_w: &plain.ideal_weights,
                         ideal_b: plain.ideal_bias,
