@@ -120,7 +120,9 @@ cost! {
 }
 
 /// Every feature once on a 1,024-sample window of a 12-bit signal (a tone and a ramp),
-/// with the stack each takes, for the footprint report.
+/// with the stack each takes, for the footprint report. Not inlined: its 4 KiB window
+/// must not stay in `main`'s frame beside the station.
+#[inline(never)]
 fn feature_costs() {
     let mut window = [0i32; COST_WINDOW];
     for (i, s) in window.iter_mut().enumerate() {
