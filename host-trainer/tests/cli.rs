@@ -1287,3 +1287,80 @@ fn failed_audit_opens_with_its_gates_and_units_in_reading_order() {
     assert!(page.contains("Rounding error of every scored unit"));
     assert!(!page.contains("sampled"), "no chart of a sample");
 }
+
+#[test]
+fn inspect_shows_a_signal_blob_and_replay_says_it_reads_readings_only() {
+    use shared_model::features::{Feature, SignalSection, SignalSpec, Source};
+    use shared_model::{CheckedModel, CheckedSignalModel, FixedModel, blob};
+    let dir = tempfile::tempdir().unwrap();
+    let mut signals = SignalSection::default();
+    signals
+        .signals
+        .push(SignalSpec {
+            raw_min: 0,
+            raw_max: 4095,
+            offset: 2048,
+            window: 64,
+        })
+        .unwrap();
+    signals
+        .sources
+        .push(Source::Feature {
+            signal: 0,
+            feature: Feature::PeakToPeak,
+        })
+        .unwrap();
+    signals.sources.push(Source::Reading).unwrap();
+    let m = CheckedSignalModel::new(
+        CheckedModel::new(FixedModel::example_two_channel()).unwrap(),
+        signals,
+    )
+    .unwrap();
+    let mut buf = [0u8; blob::MAX_BLOB_LEN];
+    let n = blob::encode_signals(&m, &mut buf).unwrap();
+    let path = write(dir.path(), "signals.lgmb", &buf[..n]);
+    let o = linegate(&["inspect", path.to_str().unwrap()], dir.path());
+    exits(&o, 0);
+    let out = String::from_utf8_lossy(&o.stdout);
+    for want in [
+        "format version 3",
+        "status: ok",
+        "signal 0: 64 samples, valid 0..=4095, zero at 2048",
+        "channel a = PeakToPeak of signal 0",
+    ] {
+        assert!(out.contains(want), "{want} missing from: {out}");
+    }
+    // Replay cannot feed windows yet: it says so instead of taking features for readings.
+    let log = write(dir.path(), "log.csv", GOOD.as_bytes());
+    exits(
+        &linegate(
+            &[
+                "train",
+                log.to_str().unwrap(),
+                "--folds",
+                "0",
+                "-o",
+                "model.json",
+            ],
+            dir.path(),
+        ),
+        0,
+    );
+    let o = linegate(
+        &[
+            "replay",
+            "--blob",
+            path.to_str().unwrap(),
+            "--model",
+            "model.json",
+            log.to_str().unwrap(),
+        ],
+        dir.path(),
+    );
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_ne!(o.status.code(), Some(0));
+    assert!(
+        err.contains("model.json") || err.contains("features of sample windows"),
+        "{err}"
+    );
+}

@@ -145,6 +145,7 @@ fn inspect(
                     c.weight
                 );
             }
+            print_signals(&ins);
         }
     }
     if !quiet && !json {
@@ -197,4 +198,33 @@ fn inspect(
         }
     }
     Ok(())
+}
+
+/// The signals of a format-3 blob and which channels are their features.
+fn print_signals(ins: &host_trainer::release::pack::Inspection) {
+    use shared_model::features::Source;
+    if ins.signals.is_empty() {
+        return;
+    }
+    say!(
+        "signals (windows of raw samples; a station must pass them, format version {}):",
+        ins.version.unwrap_or(0)
+    );
+    for (i, s) in ins.signals.iter().enumerate() {
+        say!(
+            "  signal {i}: {} samples, valid {}..={}, zero at {}",
+            s.window,
+            s.raw_min,
+            s.raw_max,
+            s.offset
+        );
+    }
+    for (c, source) in ins.channels.iter().zip(&ins.sources) {
+        if let Source::Feature { signal, feature } = source {
+            say!(
+                "  channel {} = {feature:?} of signal {signal}",
+                super::shown(c.name.as_str())
+            );
+        }
+    }
 }

@@ -49,8 +49,14 @@ impl ReplayArgs {
             "model blob",
             host_trainer::input::MAX_IMAGE_FILE,
         )?;
-        let m = shared_model::blob::decode(&bytes)
-            .map_err(|e| anyhow::anyhow!("{}: {e}", blob.display()))?;
+        let m = shared_model::blob::decode(&bytes).map_err(|e| match e {
+            shared_model::DecodeError::Signals => anyhow::anyhow!(
+                "{}: the model's channels include features of sample windows (format version {}); replay reads logs of readings only so far",
+                blob.display(),
+                shared_model::blob::Header::read(&bytes).map_or(0, |h| h.version)
+            ),
+            e => anyhow::anyhow!("{}: {e}", blob.display()),
+        })?;
         // Streams: a log of any length, one line out per unit in.
         let line = replay::model_line(&m, &bytes);
         let mut vec_text = vectors.as_ref().map(|_| line.clone());

@@ -1,6 +1,7 @@
 //! Packing: the model blob, raw `.bin` and Intel HEX images, and `inspect`.
 
 use serde::Serialize;
+use shared_model::features::{SignalSpec, Source};
 use shared_model::{ChannelSpec, CheckedModel, DecodeError, blob};
 
 /// The blob bytes of a model.
@@ -53,11 +54,20 @@ pub struct Inspection {
     pub go_min: Option<i64>,
     /// Channels, as stored.
     pub channels: Vec<ChannelSpec>,
+    /// The signals' windows (format version 3 or 4; empty otherwise).
+    pub signals: Vec<SignalSpec>,
+    /// Each channel's source, a reading or a signal's feature (empty without signals).
+    pub sources: Vec<Source>,
 }
 
-/// Decodes a blob for display; a corrupt blob still shows what can be read.
+/// Decodes a blob of any format version for display; a corrupt blob still shows what can
+/// be read.
 pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) {
-    let decoded = blob::decode(bytes);
+    let with_signals = blob::decode_signals(bytes);
+    let decoded = with_signals
+        .as_ref()
+        .map(|m| m.model().clone())
+        .map_err(|e| *e);
     let header = blob::Header::read(bytes).ok();
     let (mut crc_stored, mut crc_computed) = (None, None);
     if let Some(h) = header {
@@ -93,7 +103,13 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) 
         nogo_max: None,
         go_min: None,
         channels: Vec::new(),
+        signals: Vec::new(),
+        sources: Vec::new(),
     };
+    if let Ok(m) = &with_signals {
+        ins.signals = m.signals().signals.iter().copied().collect();
+        ins.sources = m.signals().sources.iter().copied().collect();
+    }
     if let Ok(m) = &decoded {
         ins.narrow = Some(m.is_narrow());
         let m = m.model();
