@@ -97,6 +97,7 @@ fn main() {
     let fm = host_trainer::train::float_model::FloatModel::new(
         prov,
         ds.scales.clone(),
+        Vec::new(),
         &svm.model,
         0.0,
         summary,

@@ -237,6 +237,19 @@ pub enum InputError {
         /// File.
         path: PathBuf,
     },
+    /// A unit of a signal log is not whole: a short or over-long window, a gap, a sample
+    /// that is not a valid number, a unit split in two places.
+    #[error("{path}: line {line}, unit '{unit}': {message}")]
+    Signal {
+        /// File.
+        path: PathBuf,
+        /// 1-based line of the row at fault.
+        line: u64,
+        /// The unit id.
+        unit: String,
+        /// What is wrong, naming the column and sample.
+        message: String,
+    },
     /// Channel sheet problem.
     #[error("{path}: {message}")]
     Sheet {

@@ -9,6 +9,7 @@ use crate::digest::sha256_hex;
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
 use crate::ingest::scaling::ChannelSheet;
+use crate::ingest::signals::{SignalChannels, read_signal_log};
 use crate::ingest::{LogOptions, ScaleFrom, read_log};
 use crate::train::eval::{
     Counts, EvalRow, TrainConfig, Trained, TrainerKind, cross_validate, evaluate, train,
@@ -42,6 +43,9 @@ pub fn load(
         }
         None => None,
     };
+    if let Some((s, _)) = sheet.as_ref().filter(|(s, _)| !s.signals.is_empty()) {
+        return Ok((read_signal_log(log, opts, SignalChannels::Sheet(s))?, sheet));
+    }
     let scale = sheet
         .as_ref()
         .map_or(ScaleFrom::Observed, |(s, _)| ScaleFrom::Sheet(s));
@@ -57,6 +61,16 @@ pub fn load_for_model(
     opts: &LogOptions,
     fm: &FloatModel,
 ) -> Result<Dataset, InputError> {
+    if !fm.signals.is_empty() {
+        return read_signal_log(
+            log,
+            opts,
+            SignalChannels::Model {
+                channels: &fm.channels,
+                signals: &fm.signals,
+            },
+        );
+    }
     read_log(log, opts, ScaleFrom::Model(&fm.channels))
 }
 
@@ -237,7 +251,14 @@ pub fn train_model(
         max_false_go: req.max_false_go,
         holdout_split: req.holdout_split.clone(),
     };
-    let model = FloatModel::new(provenance, ds.scales.clone(), &t.model, threshold, summary);
+    let model = FloatModel::new(
+        provenance,
+        ds.scales.clone(),
+        ds.signals.clone(),
+        &t.model,
+        threshold,
+        summary,
+    );
     let cross_validation = if req.folds >= 2 {
         cross_validate_with_bar(ds, req, cfg)
     } else {

@@ -252,6 +252,45 @@ impl CheckedFeature {
         self.bound
     }
 
+    /// The proved range of the result, `(lowest, highest)`: where the feature's channel may
+    /// set its valid raw range so that no valid window is refused.
+    ///
+    /// | feature | range |
+    /// |---|---|
+    /// | mean | N·(raw_min − offset) ..= N·(raw_max − offset) |
+    /// | min, max | raw_min − offset ..= raw_max − offset |
+    /// | peak-to-peak | 0 ..= raw_max − raw_min |
+    /// | absolute peak | 0 ..= A (the largest \|raw − offset\|) |
+    /// | zero crossings | 0 ..= N − 1 |
+    /// | RMS, standard deviation, band | 0 ..= [`bound`](Self::bound) |
+    ///
+    /// ```
+    /// use shared_model::features::{CheckedFeature, Feature, SignalSpec};
+    ///
+    /// let spec = SignalSpec { raw_min: 0, raw_max: 4095, offset: 2048, window: 8 };
+    /// assert_eq!(CheckedFeature::new(spec, Feature::Mean).unwrap().range(), (-16_384, 16_376));
+    /// assert_eq!(CheckedFeature::new(spec, Feature::ZeroCrossings).unwrap().range(), (0, 7));
+    /// ```
+    pub fn range(&self) -> (i32, i32) {
+        let s = &self.spec;
+        let n = i64::from(s.window);
+        let (lo, hi) = (
+            i64::from(s.raw_min) - i64::from(s.offset),
+            i64::from(s.raw_max) - i64::from(s.offset),
+        );
+        let range = match self.feature {
+            Feature::Mean => (n * lo, n * hi),
+            Feature::Min | Feature::Max => (lo, hi),
+            Feature::PeakToPeak => (0, hi - lo),
+            Feature::AbsPeak => (0, hi.max(-lo)),
+            Feature::ZeroCrossings => (0, n - 1),
+            Feature::Rms | Feature::StdDev | Feature::Band { .. } => (0, i64::from(self.bound)),
+        };
+        // Each end is within ±bound, which `new` proved fits an i32.
+        let fit = |v: i64| i32::try_from(v).unwrap_or(if v < 0 { -self.bound } else { self.bound });
+        (fit(range.0), fit(range.1))
+    }
+
     /// The most the result can change when every sample of a window moves by at most
     /// `delta` counts (declared sensor noise) and the window stays valid, in the result's
     /// own counts:
@@ -548,15 +587,20 @@ mod tests {
         fn results_stay_within_the_proved_bound(
             lo in -(1i32 << 16)..0, hi in 0i32..(1 << 16), window in 1u16..=256,
             pattern in proptest::collection::vec(proptest::bool::ANY, 256),
-            coeff in -(1i32 << 30)..=(1 << 30),
+            coeff in -(1i32 << 30)..=(1 << 30), at in 0u32..=1000,
         ) {
-            let s = spec(lo, hi, 0, window);
+            // The offset anywhere in the range: the range's ends move with it.
+            let offset = lo + ((i64::from(hi - lo) * i64::from(at)) / 1000) as i32;
+            let s = spec(lo, hi, offset, window);
             let w: std::vec::Vec<i32> = pattern.iter().take(usize::from(window)).map(|&b| if b { hi } else { lo }).collect();
             for f in [Feature::Mean, Feature::Rms, Feature::Min, Feature::Max, Feature::PeakToPeak,
                       Feature::AbsPeak, Feature::StdDev, Feature::ZeroCrossings, Feature::Band { coeff }] {
                 let c = CheckedFeature::new(s, f).unwrap();
                 let v = c.compute(&w).unwrap();
                 proptest::prop_assert!(v.unsigned_abs() <= c.bound().unsigned_abs(), "{:?}: {} > {}", f, v, c.bound());
+                let (lo, hi) = c.range();
+                proptest::prop_assert!(lo <= v && v <= hi, "{:?}: {} outside [{}, {}]", f, v, lo, hi);
+                proptest::prop_assert!(lo.unsigned_abs() <= c.bound().unsigned_abs() && hi.unsigned_abs() <= c.bound().unsigned_abs());
             }
         }
     }

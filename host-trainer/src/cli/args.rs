@@ -213,7 +213,7 @@ impl Release {
         let mut report = done.report;
         if let Some(k) = &self.signer {
             // The report names the blob pack writes: signed, with its key.
-            report.name_blob(&audit::released_blob(&done.q.model, report.passed, Some(k)));
+            report.name_blob(&audit::released_blob(&done.q, report.passed, Some(k)));
         }
         report.command_line = Some(command_line());
         Ok((done.q, report))

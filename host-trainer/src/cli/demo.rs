@@ -85,6 +85,23 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
         a.guaranteed,
         a.bound.total
     );
+    let g = &s.signals;
+    let features = g
+        .train
+        .model
+        .channels
+        .iter()
+        .filter(|c| c.source.is_some())
+        .count();
+    say!(
+        "signal scenario (SYNTHETIC): {} units, {} features computed from 2 sample windows by the device's integer code; holdout accuracy {:.4}; audit {}; field replay: {} of {} units refused (clipped vibration: FAULT)",
+        g.train.model.summary.units,
+        features,
+        g.train.holdout.as_ref().map_or(0.0, |h| h.accuracy()),
+        if g.audit.passed { "PASSED" } else { "FAILED" },
+        g.field_faults,
+        g.field_units
+    );
     say!("wrote into {}:", out.display());
     for f in &s.files {
         say!("  {}", f.display());

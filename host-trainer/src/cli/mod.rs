@@ -159,7 +159,8 @@ fn warn_sheet(
     )>,
 ) {
     let Some((sheet, file)) = sheet else { return };
-    for c in &ds.scales {
+    // Feature channels are declared by their [[feature]], their range proved from the signal.
+    for c in ds.scales.iter().filter(|c| c.source.is_none()) {
         if sheet.get(&c.name).is_none() {
             eprintln!(
                 "warning: {}: channel '{}' of {} is not declared there; its observed range [{}, {}] is the device's valid range",

@@ -50,7 +50,7 @@ impl PackArgs {
         if !r.passed && !override_audit {
             return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
         }
-        let blob = audit::released_blob(&q.model, r.passed, signer.as_ref());
+        let blob = audit::released_blob(&q, r.passed, signer.as_ref());
         let mut set = OutputSet::default();
         set.add(output, blob.clone());
         if let Some(a) = hex_addr {

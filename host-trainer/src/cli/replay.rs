@@ -49,11 +49,15 @@ impl ReplayArgs {
             "model blob",
             host_trainer::input::MAX_IMAGE_FILE,
         )?;
+        if !fm.signals.is_empty() {
+            return self.run_signals(&fm, &bytes, quiet);
+        }
         let m = shared_model::blob::decode(&bytes).map_err(|e| match e {
             shared_model::DecodeError::Signals => anyhow::anyhow!(
-                "{}: the model's channels include features of sample windows (format version {}); replay reads logs of readings only so far",
+                "{}: the blob's channels include features of sample windows (format version {}), but the float model {} has no signals: give the float model the blob was packed from",
                 blob.display(),
-                shared_model::blob::Header::read(&bytes).map_or(0, |h| h.version)
+                shared_model::blob::Header::read(&bytes).map_or(0, |h| h.version),
+                model.display()
             ),
             e => anyhow::anyhow!("{}: {e}", blob.display()),
         })?;
@@ -109,6 +113,83 @@ impl ReplayArgs {
             let mut set = OutputSet::default();
             set.add(v, text);
             set.commit(*force)?;
+        }
+        Ok(())
+    }
+
+    /// Replay of a model with signal features over a signal log: each unit's windows go to
+    /// the device's entry point ([`replay::signal_line`]). The vectors hold, per unit, the
+    /// reading channels' raw readings and then every signal's window, as the example
+    /// device application takes them.
+    fn run_signals(&self, fm: &FloatModel, bytes: &[u8], quiet: bool) -> Result<()> {
+        let m = shared_model::blob::decode_signals(bytes)
+            .map_err(|e| anyhow::anyhow!("{}: {e}", self.blob.display()))?;
+        if m.signals() != &fm.signal_section() {
+            anyhow::bail!(
+                "{}: the blob's signals or channel sources differ from those of the float model {}; give the float model the blob was packed from",
+                self.blob.display(),
+                self.model.display()
+            );
+        }
+        let line = replay::model_line(m.model(), bytes);
+        let mut vec_text = self.vectors.as_ref().map(|_| line.clone());
+        say_raw!("{line}");
+        let readings: Vec<String> = fm
+            .channels
+            .iter()
+            .filter(|c| c.source.is_none())
+            .map(|c| c.name.clone())
+            .collect();
+        let mut skipped = host_trainer::ingest::SkipReport::default();
+        let mut out: Vec<u8> = Vec::with_capacity(1 << 16);
+        let flush = |out: &mut Vec<u8>| {
+            use std::io::Write as _;
+            if std::io::stdout().write_all(out).is_err() {
+                std::process::exit(141);
+            }
+            out.clear();
+        };
+        let mut index = 0usize;
+        let streamed = host_trainer::ingest::signals::stream_signal_units(
+            &self.log,
+            &LogOptions {
+                label_optional: true,
+                digest: false,
+                ..self.log_args.options(quiet)
+            },
+            &fm.signals,
+            Some(&readings),
+            &mut skipped,
+            |u| {
+                let raw = host_trainer::ingest::signals::device_readings(&fm.channels, u);
+                let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
+                out.extend_from_slice(replay::signal_line(index, &m, &raw, &windows).as_bytes());
+                out.push(b'\n');
+                if out.len() >= 1 << 16 {
+                    flush(&mut out);
+                }
+                if let Some(t) = vec_text.as_mut() {
+                    let row: Vec<String> = raw
+                        .iter()
+                        .chain(u.windows.iter().flatten())
+                        .map(|r| r.to_string())
+                        .collect();
+                    t.push_str(&row.join(" "));
+                    t.push('\n');
+                }
+                index += 1;
+                Ok(())
+            },
+        );
+        flush(&mut out);
+        streamed?;
+        if !quiet {
+            super::warn_skipped(&self.log, &skipped);
+        }
+        if let (Some(v), Some(text)) = (&self.vectors, vec_text) {
+            let mut set = OutputSet::default();
+            set.add(v, text);
+            set.commit(self.force)?;
         }
         Ok(())
     }

@@ -11,6 +11,7 @@ use rand_chacha::ChaCha8Rng;
 
 use crate::ingest::SkipReport;
 use crate::ingest::scaling::ChannelScale;
+use crate::ingest::signal_scale::SignalScale;
 
 /// Units of one bench log, with the channel scaling that turned readings into raw integers.
 #[derive(Clone, Debug)]
@@ -22,6 +23,9 @@ pub struct Dataset {
     pub sha256: String,
     /// Per-channel scaling, in column order.
     pub scales: Vec<ChannelScale>,
+    /// The signals a signal log's feature channels are computed from (empty for a log of
+    /// readings).
+    pub signals: Vec<SignalScale>,
     /// Raw readings, row-major: unit `i`, channel `j` at `i * dim + j`.
     pub raw: Vec<i32>,
     /// +1 for GO, -1 for NO-GO.
@@ -43,6 +47,7 @@ impl Dataset {
             path: path.to_path_buf(),
             sha256: String::new(),
             scales,
+            signals: Vec::new(),
             raw: Vec::new(),
             labels: Vec::new(),
             lines: Vec::new(),
@@ -143,6 +148,7 @@ impl Dataset {
     /// The units `idx` as a dataset of their own (same file, scaling and lines).
     pub fn subset(&self, idx: &[usize]) -> Self {
         let mut out = Self::empty(&self.path, self.scales.clone());
+        out.signals = self.signals.clone();
         out.sha256 = self.sha256.clone();
         out.skipped = self.skipped.clone();
         for &i in idx {

@@ -205,7 +205,7 @@ pub const DELIMITERS: [u8; 4] = [b',', b';', b'\t', b'|'];
 
 /// The delimiter of a header row: the most frequent of [`DELIMITERS`] outside quotes; a
 /// comma when none occurs (a one-column header).
-fn detect_delimiter(header: &[u8]) -> u8 {
+pub(super) fn detect_delimiter(header: &[u8]) -> u8 {
     let mut counts = [0usize; DELIMITERS.len()];
     let mut quoted = false;
     for &b in header {

@@ -12,7 +12,9 @@
 //! (the pipelined pass, rows in file order) → `read` ([`read_log`], [`stream_units`]).
 //! `skip` says which errors are about one row and counts the rows skipped.
 //! [`scaling`] maps each channel's valid range to the kernel's inputs and reads
-//! channel sheets; [`dataset`] holds what was read.
+//! channel sheets; [`dataset`] holds what was read. Signal logs (a window of samples per
+//! unit) take their own path: [`signals`] reads them and reduces each window to the feature
+//! channels [`signal_scale`] describes.
 //!
 //! [`Dataset`]: dataset::Dataset
 
@@ -26,6 +28,8 @@ mod read;
 mod records;
 pub mod scaling;
 mod scan;
+pub mod signal_scale;
+pub mod signals;
 mod skip;
 #[cfg(test)]
 mod tests;

@@ -22,12 +22,43 @@
 //! zero = 0.0                 # physical value at raw 0 (ADC offset); default 0
 //! noise = 2.0                # optional: sensor noise, for the tolerance analysis
 //! ```
+//!
+//! A sheet may also declare signals (a window of samples per unit, read from a signal log)
+//! and feature channels computed from them by the device's own integer code (see
+//! [`signal_scale`](super::signal_scale) and [`signals`](super::signals)):
+//!
+//! ```toml
+//! [[signal]]
+//! name = "vibration"         # column in the signal log (one row per sample)
+//! unit = "g"
+//! lsb = 0.001                # physical units per raw count; default 1
+//! zero = -2.048              # physical value at raw 0; default 0
+//! raw_min = 0                # valid raw samples (ADC counts)
+//! raw_max = 4095
+//! window = 256               # samples per unit
+//! sample_rate = 2000.0       # optional, samples per second (for a band in Hz)
+//! noise = 0.004              # optional: noise per sample, physical units
+//! # offset = 2048            # optional: raw count features measure from; default physical zero
+//!
+//! [[feature]]
+//! name = "vib_rms"           # the channel's name in the model and reports
+//! signal = "vibration"
+//! kind = "rms"               # mean, rms, min, max, peak_to_peak, abs_peak, std_dev,
+//!                            # zero_crossings, band
+//!
+//! [[feature]]
+//! name = "vib_120hz"
+//! signal = "vibration"
+//! kind = "band"
+//! frequency = 120.0          # Hz (needs sample_rate), or cycles = 15.36 per window
+//! ```
 
 use std::path::Path;
 
 use serde::{Deserialize, Serialize};
 
 use crate::error::InputError;
+use crate::ingest::signal_scale::{FeatureSource, SignalScale};
 
 /// One channel's scaling, as stored in the float model.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -54,6 +85,10 @@ pub struct ChannelScale {
     pub offset: i32,
     /// Raw counts that scale to 1.0.
     pub half: i64,
+    /// For a feature channel, the signal and feature it is computed from; `None` for a
+    /// reading.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub source: Option<FeatureSource>,
 }
 
 impl ChannelScale {
@@ -126,7 +161,58 @@ impl ChannelScale {
             raw_max,
             offset,
             half,
+            source: None,
         })
+    }
+
+    /// The channel of a feature of `signal`: its valid raw range is the feature's proved
+    /// range ([`CheckedFeature::range`](shared_model::features::CheckedFeature::range)), so
+    /// no window of valid samples is refused, and its conversion is
+    /// [`FeatureSource::physical`]. Declared sample noise becomes the feature's noise
+    /// bound ([`CheckedFeature::noise_bound`](shared_model::features::CheckedFeature::noise_bound)) in physical units.
+    ///
+    /// # Errors
+    /// A message if the feature could overflow, is constant for this window (its range
+    /// is one value), or its range does not fit the model's raw words.
+    pub fn of_feature(
+        name: &str,
+        signal: &SignalScale,
+        source: FeatureSource,
+    ) -> Result<Self, String> {
+        let checked = source.checked(signal)?;
+        let (lo, hi) = checked.range();
+        let (lsb, zero, unit) = source.physical(signal);
+        let what = format!(
+            "feature channel '{}' ({} of signal '{}')",
+            name.escape_debug(),
+            source.kind(),
+            signal.name.escape_debug()
+        );
+        if lo == hi {
+            return Err(format!(
+                "{what}: the feature has one possible value for a {}-sample window; it cannot tell units apart",
+                signal.window
+            ));
+        }
+        let limit = i32::MAX / 2;
+        if lo < -limit || hi > limit {
+            return Err(format!(
+                "{what}: the feature's range [{lo}, {hi}] is beyond ±2^30 counts; shorten the window or narrow the signal's raw range"
+            ));
+        }
+        let (min, max) = (zero + lsb * f64::from(lo), zero + lsb * f64::from(hi));
+        let mut c = Self::new(name, &unit, min, max, lsb, zero)?;
+        // The physical ends must round back to the integer range exactly.
+        if (c.raw_min, c.raw_max) != (lo, hi) {
+            return Err(format!(
+                "{what}: its range [{lo}, {hi}] does not survive the conversion to physical units and back; report this with the sheet"
+            ));
+        }
+        c.noise = signal
+            .noise_counts()
+            .map(|d| checked.noise_bound(d) as f64 * lsb);
+        c.source = Some(source);
+        Ok(c)
     }
 
     /// The observed range with 10 % headroom each side and a decimal lsb giving at least 20 000 counts.
@@ -273,7 +359,12 @@ pub(crate) fn power_of_ten(e: i32) -> f64 {
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
 struct SheetFile {
+    #[serde(default)]
     channel: Vec<SheetChannel>,
+    #[serde(default)]
+    signal: Vec<SheetSignal>,
+    #[serde(default)]
+    feature: Vec<SheetFeature>,
 }
 
 #[derive(Deserialize)]
@@ -291,15 +382,48 @@ struct SheetChannel {
     noise: Option<f64>,
 }
 
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SheetSignal {
+    name: String,
+    #[serde(default)]
+    unit: String,
+    #[serde(default = "one")]
+    lsb: f64,
+    #[serde(default)]
+    zero: f64,
+    raw_min: i32,
+    raw_max: i32,
+    window: u16,
+    offset: Option<i32>,
+    noise: Option<f64>,
+    sample_rate: Option<f64>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SheetFeature {
+    name: String,
+    signal: String,
+    kind: String,
+    cycles: Option<f64>,
+    frequency: Option<f64>,
+}
+
 fn one() -> f64 {
     1.0
 }
 
-/// A channel sheet: declared ranges, raw conversion and noise per channel.
+/// A channel sheet: declared ranges, raw conversion and noise per channel, and the signals
+/// and feature channels of a signal log.
 #[derive(Clone, Debug, Default)]
 pub struct ChannelSheet {
-    /// Declared channels, in file order.
+    /// Declared reading channels, in file order.
     pub channels: Vec<ChannelScale>,
+    /// Declared signals, in file order (the order the device passes their windows).
+    pub signals: Vec<SignalScale>,
+    /// Feature channels ([`ChannelScale::source`] set), in file order.
+    pub features: Vec<ChannelScale>,
 }
 
 impl ChannelSheet {
@@ -330,17 +454,28 @@ impl ChannelSheet {
     pub fn parse(text: &str) -> Result<Self, String> {
         let file: SheetFile =
             toml::from_str(text).map_err(|e| e.to_string().trim_end().to_string())?;
+        if file.channel.is_empty() && file.signal.is_empty() {
+            return Err(
+                "the sheet declares no [[channel]] and no [[signal]]; declare at least one".into(),
+            );
+        }
         let mut channels: Vec<ChannelScale> = Vec::new();
         // Names compare as log columns do (ASCII case-insensitively), through a set: a
-        // sheet of 100,000 channels must not take minutes.
+        // sheet of 100,000 channels must not take minutes. Channels, signals and features
+        // share one set: each name means one thing in the log, the model and the reports.
         let mut seen = std::collections::HashSet::new();
-        for c in file.channel {
-            if !seen.insert(c.name.to_ascii_lowercase()) {
-                return Err(format!(
-                    "channel '{}' is declared twice (names compare without case, as log columns do)",
-                    c.name.escape_debug()
-                ));
+        let mut fresh = |name: &str, what: &str| {
+            if seen.insert(name.to_ascii_lowercase()) {
+                Ok(())
+            } else {
+                Err(format!(
+                    "{what} '{}' is declared twice (names compare without case, as log columns do; channels, signals and features share one set of names)",
+                    name.escape_debug()
+                ))
             }
+        };
+        for c in file.channel {
+            fresh(&c.name, "channel")?;
             let mut s = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)?;
             if c.noise.is_some_and(|n| !(n.is_finite() && n >= 0.0)) {
                 return Err(format!(
@@ -351,7 +486,74 @@ impl ChannelSheet {
             s.noise = c.noise;
             channels.push(s);
         }
-        Ok(Self { channels })
+        let mut signals: Vec<SignalScale> = Vec::new();
+        for g in file.signal {
+            fresh(&g.name, "signal")?;
+            let mut s = SignalScale::new(
+                &g.name,
+                &g.unit,
+                g.lsb,
+                g.zero,
+                (g.raw_min, g.raw_max),
+                g.window,
+                g.offset,
+                g.noise,
+            )?;
+            if g.sample_rate.is_some_and(|r| !(r.is_finite() && r > 0.0)) {
+                return Err(format!(
+                    "signal '{}': sample_rate must be a positive number of samples per second",
+                    g.name.escape_debug()
+                ));
+            }
+            s.sample_rate = g.sample_rate;
+            signals.push(s);
+        }
+        if signals.len() > shared_model::limits::MAX_SIGNALS {
+            return Err(format!(
+                "{} signals declared; a model holds at most {}",
+                signals.len(),
+                shared_model::limits::MAX_SIGNALS
+            ));
+        }
+        let mut features = Vec::new();
+        for f in file.feature {
+            fresh(&f.name, "feature")?;
+            let at = |m: String| format!("feature '{}': {m}", f.name.escape_debug());
+            let signal = signals
+                .iter()
+                .find(|s| s.name.eq_ignore_ascii_case(&f.signal))
+                .ok_or_else(|| at(format!("no [[signal]] named '{}'", f.signal.escape_debug())))?;
+            let cycles = match (f.cycles, f.frequency, signal.sample_rate) {
+                (Some(_), Some(_), _) => {
+                    return Err(at("give `cycles` or `frequency`, not both".into()));
+                }
+                (None, Some(hz), Some(rate)) => Some(hz * f64::from(signal.window) / rate),
+                (None, Some(_), None) => {
+                    return Err(at(format!(
+                        "`frequency` needs the signal's `sample_rate` (or give `cycles` per window); signal '{}' has none",
+                        signal.name.escape_debug()
+                    )));
+                }
+                (c, None, _) => c,
+            };
+            let source = FeatureSource::parse(signal, &f.kind, cycles).map_err(at)?;
+            features.push(ChannelScale::of_feature(&f.name, signal, source)?);
+        }
+        if let Some(s) = signals.iter().find(|s| {
+            !features
+                .iter()
+                .any(|f| f.source.as_ref().is_some_and(|src| src.signal == s.name))
+        }) {
+            return Err(format!(
+                "signal '{}' has no [[feature]]: declare one (e.g. kind = \"rms\") or remove the signal",
+                s.name.escape_debug()
+            ));
+        }
+        Ok(Self {
+            channels,
+            signals,
+            features,
+        })
     }
 
     /// The declared scaling of a channel, matched as log columns are (ASCII

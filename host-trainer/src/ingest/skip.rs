@@ -38,6 +38,7 @@ impl SkipReport {
             InputError::OutOfRange { .. } => "outside valid range",
             InputError::UnknownLabel { .. } => "unknown label",
             InputError::LineTooLong { .. } => "line too long",
+            InputError::Signal { .. } => "unit of a signal log not whole",
             _ => "other",
         };
         *self.by_reason.entry(reason.to_string()).or_default() += 1;

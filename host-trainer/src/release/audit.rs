@@ -793,7 +793,7 @@ pub fn audit(
     let gates = gates(&sets, cfg, risk.is_some(), min_all, guaranteed, bound.total);
     let reasons: Vec<String> = gates.iter().filter(|g| !g.passed).map(reason).collect();
     let passed = reasons.is_empty();
-    let packed = released_blob(&q.model, passed, None);
+    let packed = released_blob(q, passed, None);
     let mut r = AuditReport {
         model_id: fm.model_id.clone(),
         model_sha256: fm.content_digest(),
@@ -1147,16 +1147,22 @@ pub fn release_mark(passed: bool) -> shared_model::AuditMark {
 }
 
 /// The blob `pack` writes for an audit outcome: marked passed, or overridden (a failed
-/// audit packed with `--override-audit`), and signed when a release key is given.
+/// audit packed with `--override-audit`), and signed when a release key is given. A model
+/// with signal features is written as format version 3 (4 signed).
 pub fn released_blob(
-    model: &CheckedModel,
+    q: &Quantised,
     passed: bool,
     signer: Option<&ed25519_dalek::SigningKey>,
 ) -> Vec<u8> {
-    let marked = mark(model, release_mark(passed));
-    match signer {
-        Some(k) => crate::release::sign::signed_blob(&marked, k),
-        None => crate::release::pack::blob_bytes(&marked),
+    let marked = mark(&q.model, release_mark(passed));
+    let signal = q.signal_model().and_then(|m| {
+        shared_model::CheckedSignalModel::new(marked.clone(), m.signals().clone()).ok()
+    });
+    match (signal, signer) {
+        (Some(m), Some(k)) => crate::release::sign::signed_signal_blob(&m, k),
+        (Some(m), None) => crate::release::pack::signal_blob_bytes(&m),
+        (None, Some(k)) => crate::release::sign::signed_blob(&marked, k),
+        (None, None) => crate::release::pack::blob_bytes(&marked),
     }
 }
 

@@ -2,13 +2,21 @@
 
 use serde::Serialize;
 use shared_model::features::{SignalSpec, Source};
-use shared_model::{ChannelSpec, CheckedModel, DecodeError, blob};
+use shared_model::{ChannelSpec, CheckedModel, CheckedSignalModel, DecodeError, blob};
 
 /// The blob bytes of a model.
 pub fn blob_bytes(model: &CheckedModel) -> Vec<u8> {
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
     // MAX_BLOB_LEN holds any valid model, so encode cannot fail here.
     let n = blob::encode(model, &mut buf).unwrap_or(0);
+    buf[..n].to_vec()
+}
+
+/// The blob bytes of a model with signal features (format version 3).
+pub fn signal_blob_bytes(model: &CheckedSignalModel) -> Vec<u8> {
+    let mut buf = [0u8; blob::MAX_BLOB_LEN];
+    // MAX_BLOB_LEN holds any valid model with its largest signal section.
+    let n = blob::encode_signals(model, &mut buf).unwrap_or(0);
     buf[..n].to_vec()
 }
 

@@ -18,7 +18,10 @@
 //! up, which widen the bound as fast as the margin.
 
 use rayon::prelude::*;
-use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
+use shared_model::features::SignalSection;
+use shared_model::{
+    AuditMark, ChannelSpec, CheckedModel, CheckedSignalModel, FixedModel, ModelError,
+};
 
 use crate::ingest::dataset::{Dataset, RawForm};
 use crate::train::float_model::FloatModel;
@@ -93,6 +96,21 @@ pub struct Quantised {
     pub moves: usize,
     /// RECHECK half-band it was built with, in float score units.
     pub recheck_band: f64,
+    /// The signals and channel sources the blob carries (empty for a model of readings),
+    /// checked against the model by [`quantise`].
+    pub signals: SignalSection,
+}
+
+impl Quantised {
+    /// The model with its signals, for a signal blob; `None` for a model of readings.
+    pub fn signal_model(&self) -> Option<CheckedSignalModel> {
+        if self.signals.is_empty() {
+            return None;
+        }
+        // `quantise` built this pair once already; a model whose moves changed only weights
+        // keeps every channel's range, so the pair stays valid.
+        CheckedSignalModel::new(self.model.clone(), self.signals.clone()).ok()
+    }
 }
 
 /// Rounds `v · 2^frac` to the nearest integer, ties to even: the Q-format conversion used for weights.
@@ -199,7 +217,12 @@ pub fn quantise(
     };
     fit_acc(&mut model);
     let plain = CheckedModel::new(model.clone())?;
+    let signals = fm.signal_section();
+    if !signals.is_empty() {
+        CheckedSignalModel::new(plain.clone(), signals.clone())?;
+    }
     let mut q = Quantised {
+        signals,
         needed_bits: needed(&model),
         model: plain,
         scale,

@@ -2,9 +2,10 @@
 //!
 //! First line `# model <model id> blob <blob id>` (the blob id is the blob's CRC-32 in
 //! eight hex digits), then one line per unit in log order (0-based index):
-//! `<index> <GO|NO-GO|RECHECK> <score>` or `<index> FAULT ch<channel>`.
+//! `<index> <GO|NO-GO|RECHECK> <score>` or `<index> FAULT ch<channel>`; for a model with
+//! signal features also `<index> FAULT signal<k>` (a window refused: a sample out of range).
 
-use shared_model::{CheckedModel, Fault};
+use shared_model::{CheckedModel, CheckedSignalModel, Fault, SignalFault};
 
 use crate::ingest::dataset::Dataset;
 
@@ -14,6 +15,25 @@ pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
         Ok(d) => format!("{index} {} {}", d.verdict.as_str(), d.score),
         Err(Fault::OutOfRange { channel, .. }) => format!("{index} FAULT ch{channel}"),
         Err(Fault::ReadingCount { .. }) => format!("{index} FAULT count"),
+    }
+}
+
+/// The device's line for one unit of a model with signal features: its reading channels'
+/// raw readings and one window per signal. A refused window is `FAULT signal<k>` (k the
+/// signal's index), a refused reading `FAULT ch<channel>`.
+pub fn signal_line(
+    index: usize,
+    model: &CheckedSignalModel,
+    readings: &[i32],
+    windows: &[&[i32]],
+) -> String {
+    match model.classify_windows(readings, windows) {
+        Ok(d) => format!("{index} {} {}", d.verdict.as_str(), d.score),
+        Err(SignalFault::Reading(Fault::OutOfRange { channel, .. })) => {
+            format!("{index} FAULT ch{channel}")
+        }
+        Err(SignalFault::Window { signal, .. }) => format!("{index} FAULT signal{signal}"),
+        Err(_) => format!("{index} FAULT other"),
     }
 }
 

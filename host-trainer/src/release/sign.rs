@@ -10,7 +10,7 @@ use std::path::Path;
 
 use ed25519_dalek::{Signature, Signer, SigningKey, VerifyingKey};
 use sha2::{Digest, Sha512};
-use shared_model::{CheckedModel, blob};
+use shared_model::{CheckedModel, CheckedSignalModel, blob};
 
 use crate::digest::lower_hex;
 use crate::error::InputError;
@@ -104,8 +104,22 @@ pub fn signed_blob(model: &CheckedModel, key: &SigningKey) -> Vec<u8> {
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
     // MAX_BLOB_LEN holds any signed blob, so encoding cannot fail here.
     let n = blob::encode_for_signing(model, key_id(&key.verifying_key()), &mut buf).unwrap_or(0);
-    let sig: Signature = key.sign(&buf[..n]);
-    let mut out = buf[..n].to_vec();
+    with_signature(&buf[..n], key)
+}
+
+/// The signed (version-4) blob for a model with signal features.
+pub fn signed_signal_blob(model: &CheckedSignalModel, key: &SigningKey) -> Vec<u8> {
+    let mut buf = [0u8; blob::MAX_BLOB_LEN];
+    // MAX_BLOB_LEN holds any signed blob with its largest signal section.
+    let n = blob::encode_signals_for_signing(model, key_id(&key.verifying_key()), &mut buf)
+        .unwrap_or(0);
+    with_signature(&buf[..n], key)
+}
+
+/// The bytes to be signed, then their Ed25519 signature.
+fn with_signature(signed: &[u8], key: &SigningKey) -> Vec<u8> {
+    let sig: Signature = key.sign(signed);
+    let mut out = signed.to_vec();
     out.extend_from_slice(&sig.to_bytes());
     out
 }

@@ -25,12 +25,16 @@ use crate::digest::lower_hex;
 use crate::error::InputError;
 use crate::ingest::SkipReport;
 use crate::ingest::scaling::ChannelScale;
+use crate::ingest::signal_scale::SignalScale;
 use crate::train::linear::{Linear, ThresholdShift};
 
 /// Format tag in every float model file.
 pub const FORMAT: &str = "linegate-float-model";
 /// Layout version of the float model file (2: the file carries a digest of its content).
 pub const FORMAT_VERSION: u32 = 2;
+/// Layout version of a float model with signal features: version 2 plus `signals` and each
+/// feature channel's `source`. A model without signals is still written as version 2.
+pub const SIGNAL_FORMAT_VERSION: u32 = 3;
 
 /// A file that went into a model.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -122,6 +126,9 @@ pub struct FloatModel {
     pub provenance: Provenance,
     /// Channel scaling, in device order.
     pub channels: Vec<ChannelScale>,
+    /// The signals whose features are channels (format version 3; empty otherwise).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub signals: Vec<SignalScale>,
     /// Weights on scaled inputs.
     pub weights: Vec<f64>,
     /// Bias.
@@ -141,6 +148,7 @@ impl FloatModel {
     pub fn new(
         provenance: Provenance,
         channels: Vec<ChannelScale>,
+        signals: Vec<SignalScale>,
         linear: &Linear,
         threshold: f64,
         summary: TrainingSummary,
@@ -149,11 +157,16 @@ impl FloatModel {
         let scale = if scale > 0.0 { scale } else { 1.0 };
         let mut m = Self {
             format: FORMAT.into(),
-            format_version: FORMAT_VERSION,
+            format_version: if signals.is_empty() {
+                FORMAT_VERSION
+            } else {
+                SIGNAL_FORMAT_VERSION
+            },
             tool_version: env!("CARGO_PKG_VERSION").into(),
             model_id: String::new(),
             provenance,
             channels,
+            signals,
             weights: linear.w.iter().map(|w| w / scale).collect(),
             bias: linear.b / scale,
             threshold: threshold / scale,
@@ -195,11 +208,61 @@ impl FloatModel {
                 h.update(v.to_le_bytes());
             }
             h.update(c.half.to_le_bytes());
+            // Feature channels and signals only: a model of readings keeps the id it had.
+            if let Some(src) = &c.source {
+                h.update(src.signal.as_bytes());
+                h.update([0]);
+                h.update(src.kind().as_bytes());
+                if let shared_model::features::Feature::Band { coeff } = src.feature {
+                    h.update(coeff.to_le_bytes());
+                }
+            }
+        }
+        for s in &self.signals {
+            h.update(s.name.as_bytes());
+            h.update([0]);
+            for v in [s.lsb, s.zero] {
+                h.update(v.to_le_bytes());
+            }
+            for v in [s.raw_min, s.raw_max, s.offset] {
+                h.update(v.to_le_bytes());
+            }
+            h.update(s.window.to_le_bytes());
         }
         for v in self.weights.iter().chain([&self.bias, &self.threshold]) {
             h.update(v.to_le_bytes());
         }
         lower_hex(&h.finalize()[..16])
+    }
+
+    /// The signals and each channel's source as the blob carries them (empty for a model of
+    /// readings).
+    pub fn signal_section(&self) -> shared_model::features::SignalSection {
+        use shared_model::features::{SignalSection, Source};
+        let mut section = SignalSection::default();
+        if self.signals.is_empty() {
+            return section;
+        }
+        // `read` and training keep at most MAX_SIGNALS signals and MAX_CHANNELS channels,
+        // and every source names a signal of the model; the pushes cannot fail.
+        for s in &self.signals {
+            let _ = section.signals.push(s.spec());
+        }
+        for c in &self.channels {
+            let source = match &c.source {
+                None => Source::Reading,
+                Some(src) => Source::Feature {
+                    signal: self
+                        .signals
+                        .iter()
+                        .position(|s| s.name == src.signal)
+                        .map_or(u8::MAX, |j| j as u8),
+                    feature: src.feature,
+                },
+            };
+            let _ = section.sources.push(source);
+        }
+        section
     }
 
     /// The model id as 16 bytes.
@@ -269,11 +332,14 @@ impl FloatModel {
         let probe: serde_json::Value = serde_json::from_str(text)
             .map_err(|e| fmt(format!("not a Linegate float model: {e}")))?;
         let (tag, version) = (probe.get("format"), probe.get("format_version"));
+        let known = [FORMAT_VERSION, SIGNAL_FORMAT_VERSION].map(u64::from);
         if tag.and_then(|t| t.as_str()) != Some(FORMAT)
-            || version.and_then(|v| v.as_u64()) != Some(u64::from(FORMAT_VERSION))
+            || !version
+                .and_then(|v| v.as_u64())
+                .is_some_and(|v| known.contains(&v))
         {
             return Err(fmt(format!(
-                "not a Linegate float model this build reads: format {} version {} (reads '{FORMAT}' version {FORMAT_VERSION}; retrain to write it)",
+                "not a Linegate float model this build reads: format {} version {} (reads '{FORMAT}' versions {FORMAT_VERSION} and {SIGNAL_FORMAT_VERSION}; retrain to write it)",
                 tag.map_or("none".into(), |t| t.to_string()),
                 version.map_or("none".into(), |v| v.to_string())
             )));
@@ -307,7 +373,64 @@ impl FloatModel {
                 "every weight is zero: the model has no direction to decide by".into(),
             ));
         }
+        let want = if m.signals.is_empty() {
+            FORMAT_VERSION
+        } else {
+            SIGNAL_FORMAT_VERSION
+        };
+        if m.format_version != want {
+            return Err(fmt(format!(
+                "format version {} with {} signals: a model with signals is version {SIGNAL_FORMAT_VERSION}, one without is {FORMAT_VERSION}",
+                m.format_version,
+                m.signals.len()
+            )));
+        }
+        for g in &m.signals {
+            let mut fresh = SignalScale::new(
+                &g.name,
+                &g.unit,
+                g.lsb,
+                g.zero,
+                (g.raw_min, g.raw_max),
+                g.window,
+                Some(g.offset),
+                g.noise,
+            )
+            .map_err(fmt)?;
+            fresh.sample_rate = g.sample_rate;
+            if &fresh != g {
+                return Err(fmt(format!("signal '{}' is not a valid signal", g.name)));
+            }
+        }
+        if m.signals.len() > shared_model::limits::MAX_SIGNALS {
+            return Err(fmt(format!(
+                "{} signals; a model holds at most {}",
+                m.signals.len(),
+                shared_model::limits::MAX_SIGNALS
+            )));
+        }
         for c in &m.channels {
+            if let Some(src) = &c.source {
+                // A feature channel must be exactly what its signal and feature make.
+                let signal = m
+                    .signals
+                    .iter()
+                    .find(|s| s.name == src.signal)
+                    .ok_or_else(|| {
+                        fmt(format!(
+                            "channel '{}': no signal '{}' in the model",
+                            c.name, src.signal
+                        ))
+                    })?;
+                let fresh = ChannelScale::of_feature(&c.name, signal, src.clone()).map_err(fmt)?;
+                if &fresh != c {
+                    return Err(fmt(format!(
+                        "channel '{}': its range, conversion or noise do not follow from signal '{}' and its feature",
+                        c.name, src.signal
+                    )));
+                }
+                continue;
+            }
             let fresh = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)
                 .map_err(|e| fmt(format!("channel '{}': {e}", c.name)))?;
             if (fresh.raw_min, fresh.raw_max, fresh.offset, fresh.half)

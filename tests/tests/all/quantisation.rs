@@ -196,6 +196,7 @@ fn bound_is_attained_on_a_constructed_worst_case() {
         optimised_min_margin: None,
         moves: 0,
         recheck_band: 0.0,
+        signals: Default::default(),
     };
     let b = error_bound(&q);
     let acc = model.classify(&[9]).unwrap().score as f64;

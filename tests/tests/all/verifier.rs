@@ -91,7 +91,7 @@ fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c
         serde_json::to_string_pretty(r).unwrap(),
     )
     .unwrap();
-    let blob = audit::released_blob(&done.q.model, r.passed, None);
+    let blob = audit::released_blob(&done.q, r.passed, None);
     std::fs::write(dir.join("model.lgmb"), blob).unwrap();
 }
 

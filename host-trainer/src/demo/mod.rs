@@ -7,7 +7,7 @@
 //! when a hidden linear health index exceeds a limit; the training and
 //! holdout logs leave a small gap around the limit (separable, small margin),
 //! the second-shift log adds a temperature drift and label noise near the
-//! limit (not separable).
+//! limit (not separable). [`signals`] is the same station recording sample windows.
 
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -24,6 +24,8 @@ use crate::release::quantise::{QuantConfig, QuantError};
 use crate::train::eval::TrainerKind;
 use crate::train::separability::SeparabilityReport;
 use crate::workflow::{self, TrainOutcome, TrainRequest};
+
+pub mod signals;
 
 /// Where the demo places the model in flash: the last 4 KiB of the 256 KiB part the QEMU example uses.
 pub const MODEL_REGION: u32 = 0x0003_F000;
@@ -231,6 +233,8 @@ pub struct DemoSummary {
     pub audit: AuditReport,
     /// The sweep and its recommendation.
     pub sweep: (Vec<SweepRow>, Option<usize>),
+    /// The signal scenario (features computed from sample windows).
+    pub signals: signals::SignalDemo,
     /// Files written.
     pub files: Vec<PathBuf>,
 }
@@ -357,8 +361,10 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         out.join("vectors-holdout.txt"),
         crate::release::replay::vectors(&model, &holdout_ds),
     );
+    let signals = signals::run(tmp.path(), out, &mut set)?;
     let files = set.commit(force)?;
     Ok(DemoSummary {
+        signals,
         // The demo asks for every figure, so the run is there.
         perceptron_updates: train.check.perceptron_updates.unwrap_or(0),
         check_train: train.check.clone(),

@@ -1,0 +1,829 @@
+//! Signal logs: one row per sample, a window of samples per unit, reduced to feature channels
+//! by the device's own integer code.
+//!
+//! The layout a test station exports with a loop over its buffers: a unit-id column, one
+//! column per signal (physical values, converted to raw counts by the signal's `lsb` and
+//! `zero`), and on the same rows the unit's label and any reading channels. The rows of a
+//! unit are together and in sample order; a unit has as many rows as its longest window,
+//! and a signal with a shorter window leaves its cells empty after its last sample. An
+//! optional `sample` column numbers the rows of each unit from 0 (or 1) and catches gaps.
+//! The label and reading cells repeat on every row of a unit, or are left empty after its
+//! first row.
+//!
+//! ```text
+//! unit_id,sample,vibration,current,temperature,label
+//! FM-0001,0,0.012,1.204,31.5,GO
+//! FM-0001,1,-0.034,1.198,,
+//! …
+//! FM-0001,255,0.021,1.207,,
+//! FM-0002,0,0.140,1.420,33.0,NO-GO
+//! …
+//! ```
+//!
+//! Each unit is checked whole: a short or over-long window, a gap, an empty or
+//! non-numeric sample, a label or reading that changes within the unit, and a unit whose
+//! rows appear in two places are errors naming the line, unit, column and sample; under
+//! `--skip-bad-rows` a unit with such a fault is skipped whole and counted (a unit split in
+//! two places still ends the read: its rows cannot be told apart).
+//!
+//! Features are computed with [`CheckedFeature::compute`], the function the device runs,
+//! so training, audit, replay and the device see the same integers.
+
+use std::collections::HashMap;
+use std::io::Read;
+use std::path::Path;
+
+use sha2::{Digest, Sha256};
+use shared_model::WindowFault;
+use shared_model::features::CheckedFeature;
+
+use crate::error::{InputError, Place};
+use crate::ingest::dataset::Dataset;
+use crate::ingest::header::{detect_delimiter, find};
+use crate::ingest::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading};
+use crate::ingest::parse::{label_cell, parse_number};
+use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+use crate::ingest::signal_scale::SignalScale;
+use crate::ingest::skip::SkipReport;
+
+/// Names of the optional column that numbers a unit's samples.
+pub const SAMPLE_NAMES: &[&str] = &["sample", "sample_index"];
+
+/// One whole unit of a signal log.
+pub struct SignalUnit<'a> {
+    /// The unit id.
+    pub id: &'a str,
+    /// 1-based line of the unit's first row.
+    pub line: u64,
+    /// +1 GO, −1 NO-GO, 0 when the log has no label column.
+    pub label: i8,
+    /// The reading channels' values (physical), in the order the reader was given.
+    pub readings: &'a [f64],
+    /// Each signal's window of raw samples, in the order of the signals.
+    pub windows: &'a [Vec<i32>],
+    /// The line of each row of the unit (sample `k` of any signal is on `lines[k]`).
+    pub lines: &'a [u64],
+    /// The timestamp cell of its first row, when asked for and present.
+    pub time: Option<&'a str>,
+}
+
+impl SignalUnit<'_> {
+    /// The error for this unit at row `k` (its line), naming the unit.
+    pub fn error(&self, k: usize, path: &Path, message: String) -> InputError {
+        InputError::Signal {
+            path: path.into(),
+            line: self.lines.get(k).copied().unwrap_or(self.line),
+            unit: self.id.to_string(),
+            message,
+        }
+    }
+}
+
+/// What the reader found in the header.
+pub struct SignalLogHeader {
+    /// Reading channels, in log column order (or the order asked for).
+    pub readings: Vec<String>,
+    /// SHA-256 of the file, when asked for (else empty).
+    pub sha256: String,
+}
+
+/// Hashes what passes through, so the log is read once for both.
+struct Hashing<R> {
+    inner: R,
+    hasher: Option<Sha256>,
+}
+
+impl<R: Read> Read for Hashing<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        if let Some(h) = self.hasher.as_mut() {
+            h.update(&buf[..n]);
+        }
+        Ok(n)
+    }
+}
+
+/// The unit being read.
+#[derive(Default)]
+struct Open {
+    id: String,
+    rows: usize,
+    label: Option<i8>,
+    readings: Vec<Option<f64>>,
+    windows: Vec<Vec<i32>>,
+    lines: Vec<u64>,
+    first_sample: Option<i64>,
+    time: Option<String>,
+    /// The first fault, kept while the rest of the unit's rows are passed over (only under
+    /// `skip_bad_rows`).
+    fault: Option<InputError>,
+}
+
+/// Reads a signal log, calling `each` on every whole unit in file order.
+///
+/// `readings`: the reading channels to take (a model's), or `None` for every column that
+/// is not the unit id, label, sample number, timestamp, a signal, or left out with
+/// `opts.ignore` (`opts.channels` when given). Errors of one unit returned by `each`
+/// (an [`InputError::Signal`]) skip the unit under `opts.skip_bad_rows`, as the reader's own.
+///
+/// # Errors
+/// I/O, a missing column, a unit that is not whole (see the module documentation).
+pub fn stream_signal_units(
+    path: &Path,
+    opts: &LogOptions,
+    signals: &[SignalScale],
+    readings: Option<&[String]>,
+    skipped: &mut SkipReport,
+    mut each: impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
+) -> Result<SignalLogHeader, InputError> {
+    crate::input::regular_file(path)?;
+    if crate::ingest::parquet::is_parquet(path) {
+        return Err(InputError::Format {
+            path: path.into(),
+            message: "a signal log is read from delimited text (one row per sample); export it as CSV or TSV".into(),
+        });
+    }
+    let file = std::fs::File::open(path).map_err(|e| InputError::io(path, e))?;
+    let mut source = std::io::BufReader::with_capacity(
+        1 << 16,
+        Hashing {
+            inner: file,
+            hasher: opts.digest.then(Sha256::new),
+        },
+    );
+    let delimiter = match opts.delimiter {
+        Some(d) => d,
+        None => {
+            let tsv = path
+                .extension()
+                .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
+            let head =
+                std::io::BufRead::fill_buf(&mut source).map_err(|e| InputError::io(path, e))?;
+            let first = head.split(|&b| b == b'\n').next().unwrap_or_default();
+            if tsv { b'\t' } else { detect_delimiter(first) }
+        }
+    };
+    let decimal_comma = opts.decimal_comma.unwrap_or(delimiter != b',');
+    let mut rdr = csv::ReaderBuilder::new()
+        .delimiter(delimiter)
+        .has_headers(true)
+        .flexible(true)
+        .from_reader(&mut source);
+    let names: Vec<String> = match rdr.byte_headers() {
+        Ok(h) if h.iter().any(|n| !n.is_empty()) => h
+            .iter()
+            .map(|n| String::from_utf8_lossy(n).trim().to_string())
+            .collect(),
+        Ok(_) => return Err(InputError::Empty { path: path.into() }),
+        Err(e) => {
+            return Err(InputError::Format {
+                path: path.into(),
+                message: format!("cannot read the header: {e}"),
+            });
+        }
+    };
+    let cols = Columns::resolve(path, &names, opts, signals, readings)?;
+    let width = names.len();
+    let mut open = Open::default();
+    let mut seen: HashMap<String, u64> = HashMap::new();
+    let longest = signals
+        .iter()
+        .map(|s| usize::from(s.window))
+        .max()
+        .unwrap_or(0);
+    let mut record = csv::ByteRecord::new();
+    let mut any = false;
+    loop {
+        let more = rdr
+            .read_byte_record(&mut record)
+            .map_err(|e| InputError::Format {
+                path: path.into(),
+                message: format!("cannot read a row: {e}"),
+            })?;
+        if !more {
+            break;
+        }
+        let line = record.position().map_or(0, |p| p.line());
+        if record.iter().all(|f| f.trim_ascii().is_empty()) {
+            // A blank row (a spreadsheet's trailing line) belongs to no unit.
+            continue;
+        }
+        if record.len() != width {
+            return Err(InputError::Ragged {
+                hint: String::new(),
+                path: path.into(),
+                line,
+                expected: width,
+                found: record.len(),
+            });
+        }
+        let id = String::from_utf8_lossy(record[cols.unit].trim_ascii());
+        if id.is_empty() {
+            return Err(InputError::Missing {
+                path: path.into(),
+                at: Place::Line(line),
+                column: names[cols.unit].clone(),
+            });
+        }
+        if !any || id != open.id.as_str() {
+            if any {
+                finish(
+                    path, opts, &cols, signals, longest, &mut open, skipped, &mut each,
+                )?;
+            }
+            if let Some(first) = seen.insert(id.to_string(), line) {
+                return Err(InputError::Signal {
+                    path: path.into(),
+                    line,
+                    unit: id.into_owned(),
+                    message: format!(
+                        "the unit's rows appear again after other units (it began on line {first}); keep the rows of a unit together, in sample order"
+                    ),
+                });
+            }
+            open.start(&id, line, signals.len(), cols.readings.len());
+            any = true;
+        }
+        if open.fault.is_none()
+            && let Err(message) = open.row(&record, &cols, signals, longest, decimal_comma, opts)
+        {
+            let e = InputError::Signal {
+                path: path.into(),
+                line,
+                unit: open.id.clone(),
+                message,
+            };
+            if !opts.skip_bad_rows {
+                return Err(e);
+            }
+            open.fault = Some(e);
+        }
+        open.lines.push(line);
+        open.rows += 1;
+        if opts.keep_times
+            && open.rows == 1
+            && let Some(t) = cols.time
+        {
+            open.time = Some(String::from_utf8_lossy(record[t].trim_ascii()).into_owned());
+        }
+    }
+    if any {
+        finish(
+            path, opts, &cols, signals, longest, &mut open, skipped, &mut each,
+        )?;
+    }
+    drop(rdr);
+    let sha256 = source
+        .into_inner()
+        .hasher
+        .map_or(String::new(), |h| crate::digest::lower_hex(&h.finalize()));
+    Ok(SignalLogHeader {
+        readings: cols.readings.iter().map(|&i| names[i].clone()).collect(),
+        sha256,
+    })
+}
+
+/// Ends the open unit: checks it is whole, then hands it to `each` (or counts it skipped).
+#[allow(clippy::too_many_arguments)]
+fn finish(
+    path: &Path,
+    opts: &LogOptions,
+    cols: &Columns,
+    signals: &[SignalScale],
+    longest: usize,
+    open: &mut Open,
+    skipped: &mut SkipReport,
+    each: &mut impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
+) -> Result<(), InputError> {
+    let last = open.lines.last().copied().unwrap_or(0);
+    let fault = open.fault.take().or_else(|| {
+        (open.rows < longest).then(|| {
+            let short: Vec<String> = signals
+                .iter()
+                .filter(|s| usize::from(s.window) > open.rows)
+                .map(|s| format!("'{}' needs {}", s.name, s.window))
+                .collect();
+            InputError::Signal {
+                path: path.into(),
+                line: last,
+                unit: open.id.clone(),
+                message: format!(
+                    "short window: the unit has {} rows ({})",
+                    open.rows,
+                    short.join(", ")
+                ),
+            }
+        })
+    });
+    let result = match fault {
+        Some(e) => Err(e),
+        None => {
+            let readings: Vec<f64> = open.readings.iter().map(|r| r.unwrap_or(0.0)).collect();
+            let unit = SignalUnit {
+                id: &open.id,
+                line: open.lines.first().copied().unwrap_or(0),
+                label: if cols.label.is_some() {
+                    open.label.unwrap_or(0)
+                } else {
+                    0
+                },
+                readings: &readings,
+                windows: &open.windows,
+                lines: &open.lines,
+                time: open.time.as_deref(),
+            };
+            each(&unit)
+        }
+    };
+    match result {
+        Err(e @ InputError::Signal { .. }) if opts.skip_bad_rows => {
+            skipped.add(&e);
+            Ok(())
+        }
+        r => r,
+    }
+}
+
+impl Open {
+    fn start(&mut self, id: &str, _line: u64, signals: usize, readings: usize) {
+        self.id.clear();
+        self.id.push_str(id);
+        self.rows = 0;
+        self.label = None;
+        self.readings.clear();
+        self.readings.resize(readings, None);
+        self.windows.resize_with(signals, Vec::new);
+        self.windows.iter_mut().for_each(Vec::clear);
+        self.lines.clear();
+        self.first_sample = None;
+        self.time = None;
+        self.fault = None;
+    }
+
+    /// Takes one row of the unit; `Err` is the message of the unit's fault.
+    fn row(
+        &mut self,
+        record: &csv::ByteRecord,
+        cols: &Columns,
+        signals: &[SignalScale],
+        longest: usize,
+        decimal_comma: bool,
+        opts: &LogOptions,
+    ) -> Result<(), String> {
+        let k = self.rows;
+        if k >= longest {
+            return Err(format!(
+                "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?"
+            ));
+        }
+        let text = |f: &[u8]| String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned();
+        if let Some(c) = cols.sample {
+            let cell = record[c].trim_ascii();
+            let v = std::str::from_utf8(cell)
+                .ok()
+                .and_then(|t| t.parse::<i64>().ok())
+                .ok_or_else(|| {
+                    format!(
+                        "column '{}': '{}' is not a sample number (a whole number counting the unit's rows)",
+                        cols.names[c],
+                        text(cell)
+                    )
+                })?;
+            let base = *self.first_sample.get_or_insert(v);
+            if k == 0 && !(v == 0 || v == 1) {
+                return Err(format!(
+                    "column '{}': the unit's first sample is numbered {v}; number samples from 0 (or 1)",
+                    cols.names[c]
+                ));
+            }
+            let want = base + k as i64;
+            if v > want {
+                return Err(format!(
+                    "gap: sample {want} is missing (the row holds sample {v}, column '{}')",
+                    cols.names[c]
+                ));
+            }
+            if v < want {
+                return Err(format!(
+                    "sample {v} comes again or out of order (expected {want}, column '{}')",
+                    cols.names[c]
+                ));
+            }
+        }
+        for ((j, s), w) in signals.iter().enumerate().zip(self.windows.iter_mut()) {
+            let c = cols.signals[j];
+            let cell = record[c].trim_ascii();
+            let n = usize::from(s.window);
+            if k >= n {
+                if !cell.is_empty() {
+                    return Err(format!(
+                        "over-long window: signal '{}' has a sample {k} (0-based), beyond its window of {n} samples; leave its cells empty after the window",
+                        s.name
+                    ));
+                }
+                continue;
+            }
+            if cell.is_empty() {
+                return Err(format!(
+                    "gap: signal '{}' has no sample {k} (0-based; an empty cell)",
+                    s.name
+                ));
+            }
+            let v = parse_number(cell, decimal_comma)
+                .filter(|&v| is_reading(v))
+                .ok_or_else(|| {
+                    format!(
+                        "signal '{}', sample {k} (0-based): '{}' is not a finite number",
+                        s.name,
+                        text(cell)
+                    )
+                })?;
+            w.push(s.raw_sample(v));
+        }
+        if let Some(c) = cols.label {
+            let cell = record[c].trim_ascii();
+            if !(k > 0 && cell.is_empty()) {
+                let l = label_cell(cell, opts, Path::new(""), Place::Line(0), &cols.names[c])
+                    .map_err(|_| {
+                        format!(
+                            "column '{}': unknown label '{}' ({}; set --go-labels / --nogo-labels)",
+                            cols.names[c],
+                            text(cell),
+                            opts.tokens()
+                        )
+                    })?;
+                match self.label {
+                    Some(prev) if prev != l => {
+                        return Err(format!(
+                            "column '{}': the label changes within the unit (row {k} of the unit); a unit has one verdict",
+                            cols.names[c]
+                        ));
+                    }
+                    _ => self.label = Some(l),
+                }
+            }
+        }
+        for (r, &c) in self.readings.iter_mut().zip(&cols.readings) {
+            let cell = record[c].trim_ascii();
+            if k > 0 && cell.is_empty() {
+                continue;
+            }
+            if cell.is_empty() {
+                return Err(format!("column '{}': empty cell", cols.names[c]));
+            }
+            let v = parse_number(cell, decimal_comma)
+                .filter(|&v| is_reading(v))
+                .ok_or_else(|| {
+                    format!(
+                        "column '{}': '{}' is not a finite number",
+                        cols.names[c],
+                        text(cell)
+                    )
+                })?;
+            match *r {
+                Some(prev) if prev != v => {
+                    return Err(format!(
+                        "column '{}': the reading changes within the unit ({prev} on its first row, {v} here); a reading channel holds one value per unit",
+                        cols.names[c]
+                    ));
+                }
+                _ => *r = Some(v),
+            }
+        }
+        Ok(())
+    }
+}
+
+/// Where each kind of column is.
+struct Columns {
+    names: Vec<String>,
+    unit: usize,
+    label: Option<usize>,
+    sample: Option<usize>,
+    time: Option<usize>,
+    signals: Vec<usize>,
+    readings: Vec<usize>,
+}
+
+impl Columns {
+    fn resolve(
+        path: &Path,
+        names: &[String],
+        opts: &LogOptions,
+        signals: &[SignalScale],
+        readings: Option<&[String]>,
+    ) -> Result<Self, InputError> {
+        let mut seen = std::collections::HashSet::with_capacity(names.len());
+        for n in names {
+            if !seen.insert(n.to_ascii_lowercase()) {
+                return Err(InputError::DuplicateHeader {
+                    path: path.into(),
+                    name: n.clone(),
+                });
+            }
+        }
+        let unknown = |name: &str| InputError::UnknownColumn {
+            path: path.into(),
+            name: name.to_string(),
+            columns: names.join(", "),
+        };
+        let pick = |given: &Option<String>, defaults: &[&str]| match given {
+            Some(n) => find(names, n).map(Some).ok_or_else(|| unknown(n)),
+            None => Ok(defaults.iter().find_map(|d| find(names, d))),
+        };
+        let unit = pick(&opts.unit_id, UNIT_NAMES)?.ok_or_else(|| InputError::Format {
+            path: path.into(),
+            message: format!(
+                "a signal log needs a unit-id column to tell one unit's rows from the next (looked for: {}; name it with --unit-id)",
+                UNIT_NAMES.join(", ")
+            ),
+        })?;
+        let label = pick(&opts.label, LABEL_NAMES)?;
+        if label.is_none() && !opts.label_optional {
+            return Err(InputError::NoLabel {
+                path: path.into(),
+                hint: String::new(),
+            });
+        }
+        let sample = pick(&None, SAMPLE_NAMES)?;
+        let time = pick(&opts.timestamp, TIME_NAMES)?;
+        let signals = signals
+            .iter()
+            .map(|s| find(names, &s.name).ok_or_else(|| unknown(&s.name)))
+            .collect::<Result<Vec<_>, _>>()?;
+        let taken = |i: usize| {
+            i == unit
+                || Some(i) == label
+                || Some(i) == sample
+                || Some(i) == time
+                || signals.contains(&i)
+        };
+        let wanted = readings
+            .map(<[String]>::to_vec)
+            .or_else(|| opts.channels.clone());
+        let readings = match wanted {
+            Some(list) => list
+                .iter()
+                .map(|n| find(names, n).ok_or_else(|| unknown(n)))
+                .collect::<Result<Vec<_>, _>>()?,
+            None => (0..names.len())
+                .filter(|&i| {
+                    !taken(i)
+                        && !names[i].is_empty()
+                        && !opts
+                            .ignore
+                            .iter()
+                            .any(|g| g.eq_ignore_ascii_case(&names[i]))
+                })
+                .collect(),
+        };
+        if let Some(&i) = readings.iter().find(|&&i| taken(i)) {
+            return Err(InputError::Format {
+                path: path.into(),
+                message: format!(
+                    "column '{}' is asked for as a reading channel but is the unit id, label, sample number, timestamp or a signal",
+                    names[i]
+                ),
+            });
+        }
+        Ok(Self {
+            names: names.to_vec(),
+            unit,
+            label,
+            sample,
+            time,
+            signals,
+            readings,
+        })
+    }
+}
+
+/// Where a signal log's channels come from.
+pub enum SignalChannels<'a> {
+    /// A channel sheet with signals: its features, and every other column as a reading
+    /// channel (scaled by the sheet where declared, else by the observed range).
+    Sheet(&'a ChannelSheet),
+    /// A trained model's channels and signals (audit, holdout).
+    Model {
+        /// The model's channels, readings and features, in model order.
+        channels: &'a [ChannelScale],
+        /// The model's signals.
+        signals: &'a [SignalScale],
+    },
+}
+
+/// The refusal of a window, as an error of its unit naming the signal and sample.
+pub fn window_error(
+    path: &Path,
+    unit: &SignalUnit<'_>,
+    signal: &SignalScale,
+    fault: WindowFault,
+) -> InputError {
+    match fault {
+        WindowFault::OutOfRange { index, raw } => unit.error(
+            usize::from(index),
+            path,
+            format!(
+                "signal '{}', sample {index} (0-based): raw {raw} is outside the signal's valid samples [{}, {}]",
+                signal.name, signal.raw_min, signal.raw_max
+            ),
+        ),
+        WindowFault::Length { expected, got } => unit.error(
+            0,
+            path,
+            format!(
+                "signal '{}': {got} samples where the window is {expected}",
+                signal.name
+            ),
+        ),
+    }
+}
+
+/// Reads a signal log into a [`Dataset`] whose channels are the readings and the features
+/// (each unit's feature values computed by the shared integer code).
+///
+/// # Errors
+/// As [`stream_signal_units`]; a sample outside its signal's valid range or a reading
+/// outside its channel's range (the device would refuse the unit); too few units.
+pub fn read_signal_log(
+    path: &Path,
+    opts: &LogOptions,
+    from: SignalChannels<'_>,
+) -> Result<Dataset, InputError> {
+    let (signals, model) = match from {
+        SignalChannels::Sheet(s) => (&s.signals[..], None),
+        SignalChannels::Model { channels, signals } => (signals, Some(channels)),
+    };
+    // The feature channels, each with its signal's index and its proved computation.
+    let features: Vec<ChannelScale> = match (&from, model) {
+        (SignalChannels::Sheet(s), _) => s.features.clone(),
+        (_, Some(ch)) => ch.iter().filter(|c| c.source.is_some()).cloned().collect(),
+        _ => Vec::new(),
+    };
+    let computed = features
+        .iter()
+        .map(|c| {
+            let src = c
+                .source
+                .as_ref()
+                .ok_or_else(|| log_error(path, "a feature channel has no source"))?;
+            let j = signals
+                .iter()
+                .position(|s| s.name == src.signal)
+                .ok_or_else(|| log_error(path, &format!("no signal '{}'", src.signal)))?;
+            let f = src.checked(&signals[j]).map_err(|m| log_error(path, &m))?;
+            Ok((j, f))
+        })
+        .collect::<Result<Vec<(usize, CheckedFeature)>, InputError>>()?;
+    let reading_names: Option<Vec<String>> = model.map(|ch| {
+        ch.iter()
+            .filter(|c| c.source.is_none())
+            .map(|c| c.name.clone())
+            .collect()
+    });
+    let mut skipped = SkipReport::default();
+    let (mut physical, mut values, mut labels, mut lines) =
+        (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+    let (mut ids, mut times) = (Vec::<String>::new(), Vec::<String>::new());
+    let mut row = Vec::with_capacity(computed.len());
+    let header = stream_signal_units(
+        path,
+        opts,
+        signals,
+        reading_names.as_deref(),
+        &mut skipped,
+        |u| {
+            if ids.len() >= opts.max_rows {
+                return Err(InputError::TooManyRows {
+                    path: path.into(),
+                    max: opts.max_rows,
+                });
+            }
+            row.clear();
+            for &(j, f) in &computed {
+                let w = u.windows.get(j).map_or(&[][..], Vec::as_slice);
+                row.push(
+                    f.compute(w)
+                        .map_err(|e| window_error(path, u, &signals[j], e))?,
+                );
+            }
+            values.extend_from_slice(&row);
+            physical.extend_from_slice(u.readings);
+            labels.push(u.label);
+            lines.push(u.line);
+            ids.push(u.id.to_string());
+            if let Some(t) = u.time {
+                times.push(t.to_string());
+            }
+            Ok(())
+        },
+    )?;
+    let nr = header.readings.len();
+    // Reading channels' scaling: the model's; else the sheet's, or the observed range.
+    let reading_scales: Vec<ChannelScale> = match model {
+        Some(ch) => ch.iter().filter(|c| c.source.is_none()).cloned().collect(),
+        None => {
+            let SignalChannels::Sheet(sheet_decl) = from else {
+                unreachable!("a sheet when there is no model")
+            };
+            header
+                .readings
+                .iter()
+                .enumerate()
+                .map(|(r, name)| match sheet_decl.get(name) {
+                    Some(s) => Ok(s.clone()),
+                    None => {
+                        let (lo, hi) = physical
+                            .iter()
+                            .skip(r)
+                            .step_by(nr.max(1))
+                            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+                                (a.min(v), b.max(v))
+                            });
+                        ChannelScale::observed(name, lo, hi).map_err(|m| log_error(path, &m))
+                    }
+                })
+                .collect::<Result<_, _>>()?
+        }
+    };
+    // Channel order: the model's; for a sheet, the readings then the features.
+    let order: Vec<ChannelScale> = match model {
+        Some(ch) => ch.to_vec(),
+        None => reading_scales.iter().chain(&features).cloned().collect(),
+    };
+    let mut ds = Dataset::empty(path, order);
+    ds.signals = signals.to_vec();
+    ds.sha256 = header.sha256;
+    let nf = computed.len();
+    let mut raw_readings = vec![0i32; nr];
+    'units: for i in 0..labels.len() {
+        for (r, s) in reading_scales.iter().enumerate() {
+            let v = physical[i * nr + r];
+            match s.to_raw(v) {
+                Some(x) => raw_readings[r] = x,
+                None => {
+                    let e = InputError::OutOfRange {
+                        path: path.into(),
+                        at: Place::Line(lines[i]),
+                        column: s.name.clone(),
+                        value: v,
+                        min: s.min,
+                        max: s.max,
+                    };
+                    if opts.skip_bad_rows {
+                        skipped.add(&e);
+                        continue 'units;
+                    }
+                    return Err(e);
+                }
+            }
+        }
+        let feats = &values[i * nf..(i + 1) * nf];
+        let (mut next_r, mut next_f) = (raw_readings.iter(), feats.iter());
+        for c in &ds.scales {
+            let v = if c.source.is_some() {
+                next_f.next()
+            } else {
+                next_r.next()
+            };
+            ds.raw.push(v.copied().unwrap_or(0));
+        }
+        ds.labels.push(labels[i]);
+        ds.lines.push(lines[i]);
+        ds.unit_ids.push(ids[i].as_bytes());
+        if let Some(t) = times.get(i) {
+            ds.times.push(t.as_bytes());
+        }
+    }
+    ds.skipped = skipped;
+    if ds.is_empty() {
+        return Err(InputError::NoRows {
+            path: path.into(),
+            skipped: if ds.skipped.total > 0 {
+                format!(" ({} units skipped as bad)", ds.skipped.total)
+            } else {
+                String::new()
+            },
+        });
+    }
+    Ok(ds)
+}
+
+/// The raw readings of a unit's reading channels as the device reads them (in range or
+/// not), in the order of `channels`' readings.
+pub fn device_readings(channels: &[ChannelScale], unit: &SignalUnit<'_>) -> Vec<i32> {
+    channels
+        .iter()
+        .filter(|c| c.source.is_none())
+        .zip(unit.readings)
+        .map(|(c, &v)| c.raw_reading(v))
+        .collect()
+}
+
+/// An error about the log as a whole (the path is the log's).
+fn log_error(path: &Path, message: &str) -> InputError {
+    InputError::Format {
+        path: path.into(),
+        message: message.to_string(),
+    }
+}
