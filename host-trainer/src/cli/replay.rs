@@ -124,6 +124,14 @@ impl ReplayArgs {
     fn run_signals(&self, fm: &FloatModel, bytes: &[u8], quiet: bool) -> Result<()> {
         let m = shared_model::blob::decode_signals(bytes)
             .map_err(|e| anyhow::anyhow!("{}: {e}", self.blob.display()))?;
+        if m.signals().is_empty() {
+            anyhow::bail!(
+                "{}: the blob has no signals (format version {}): it was packed from a model of readings, not from the float model {}",
+                self.blob.display(),
+                shared_model::blob::Header::read(bytes).map_or(0, |h| h.version),
+                self.model.display()
+            );
+        }
         if m.signals() != &fm.signal_section() {
             anyhow::bail!(
                 "{}: the blob's signals or channel sources differ from those of the float model {}; give the float model the blob was packed from",

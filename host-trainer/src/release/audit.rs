@@ -412,6 +412,10 @@ pub struct AuditReport {
     /// (absent when a library call made the report).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub command_line: Option<String>,
+    /// Each signal feature's range, overflow proof and noise bound (empty for a model of
+    /// readings).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub features: Vec<crate::release::features::FeatureProof>,
 }
 
 struct Acc {
@@ -845,6 +849,7 @@ pub fn audit(
         passed,
         reasons,
         command_line: None,
+        features: crate::release::features::feature_proofs(fm),
     };
     r.name_blob(&packed);
     r

@@ -308,6 +308,43 @@ pub fn markdown(
     for ((name, m, unit), w) in r.channel_margin.iter().zip(&r.weights) {
         let _ = writeln!(s, "| {} | {unit} | {w} | {m:.4} {unit} |", cell(name));
     }
+    if !r.features.is_empty() {
+        let _ = writeln!(
+            s,
+            "\n## Signal features\n\nEach feature is an integer the device computes from its signal's window with the same code as this audit (shared-model). Its range is proved from the declared sample range and window; that range is the channel's valid raw range, so the rounding bound and noise analysis above cover the feature as a reading. cᵢ = sᵢ − offset; A = the largest \\|cᵢ\\|.\n\n| channel | signal | feature | window | valid samples | offset | A | proved range | noise per sample | noise bound (counts) | noise bound |\n|---|---|---|---|---|---|---|---|---|---|---|"
+        );
+        for f in &r.features {
+            let or_dash = |v: Option<String>| v.unwrap_or_else(|| "–".into());
+            let _ = writeln!(
+                s,
+                "| {} | {} | {} | {} | {}..={} | {} | {} | {}..={} | {} | {} | {} |",
+                cell(&f.channel),
+                cell(&f.signal),
+                cell(&f.feature),
+                f.window,
+                f.samples.0,
+                f.samples.1,
+                f.offset,
+                f.amplitude,
+                f.range.0,
+                f.range.1,
+                or_dash(f.noise_counts.map(|d| format!("{d} counts"))),
+                or_dash(f.noise_bound.map(|b| b.to_string())),
+                or_dash(f.noise_physical.map(|n| format!("{n:.6} {}", f.unit))),
+            );
+        }
+        let _ = writeln!(
+            s,
+            "\nWhy no feature can overflow (the checks `CheckedFeature::new` makes, with this model's numbers):\n"
+        );
+        for f in &r.features {
+            let _ = writeln!(s, "- **{}**: {}", cell(&f.channel), f.proof.join("; "));
+        }
+        let _ = writeln!(
+            s,
+            "\nNoise bounds per feature (every sample moved by at most δ counts): mean N·δ; RMS ⌊√(N·δ²)⌋ + 2; min, max, absolute peak δ; peak-to-peak 2δ; standard deviation N·δ + 1; zero crossings N − 1; band N·δ + 2R (R the fixed-point Goertzel bound). Each is tested by simulation in shared-model."
+        );
+    }
     if let Some(t) = &r.tolerance {
         let _ = writeln!(
             s,

@@ -327,7 +327,12 @@ const BOARDS: [Board; 5] = [
 /// [`BOARDS`] (in `target/<folder>`), runs it with `blob` loaded raw at the board's model
 /// address, and hands each core's name and stdout to `check`. A core whose QEMU or Rust
 /// target is missing is SKIPPED (a failure in CI).
+/// Serialises the tests that build the signal example into one target folder with
+/// different vectors: each builds and runs before the other builds.
+static SIGNAL_APP: std::sync::Mutex<()> = std::sync::Mutex::new(());
+
 fn on_every_core(bin: &str, folder: &str, vectors: &Path, blob: &Path, check: impl Fn(&str, &str)) {
+    let _serial = (bin == "signals").then(|| SIGNAL_APP.lock().unwrap_or_else(|e| e.into_inner()));
     let app = crate::root().join("firmware/qemu-app");
     // Its own target folder: the other device tests build the M3 image with other vectors.
     let target_dir = app.join("target").join(folder);
@@ -562,4 +567,42 @@ fn signal_model_on_five_cores_agrees_with_the_host() {
             "{core}: signal example agrees with the host on 200 units; start-up stack {startup} bytes"
         );
     });
+}
+
+/// The demo's signal scenario (SYNTHETIC): the model trained, audited and packed from a
+/// signal log by the host, and its field log, whose units include clipped vibration
+/// windows. The signal example on every core prints exactly the lines `linegate replay`
+/// printed for the same units, the model line first: the features computed on the device
+/// are the host's, line for line.
+#[test]
+fn demo_signal_model_on_five_cores_agrees_with_replay() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("demo");
+    host_trainer::demo::run(&out, false).unwrap();
+    let replay = std::fs::read_to_string(out.join("signal-replay-field.txt")).unwrap();
+    let want: Vec<&str> = replay.lines().collect();
+    assert!(want[0].starts_with("# model "));
+    for kind in [" GO ", " NO-GO ", "FAULT signal0"] {
+        assert!(
+            want.iter().any(|l| format!("{l} ").contains(kind)),
+            "no {kind} in the field replay"
+        );
+    }
+    on_every_core(
+        "signals",
+        "signals",
+        &out.join("signal-vectors-field.txt"),
+        &out.join("signal-model.lgmb"),
+        |core, stdout| {
+            let got: Vec<&str> = stdout
+                .lines()
+                .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
+                .collect();
+            assert_eq!(got, want, "{core}: the device and replay differ");
+            eprintln!(
+                "{core}: signal example agrees with replay on {} field units",
+                want.len() - 1
+            );
+        },
+    );
 }

@@ -12,7 +12,7 @@
 #[path = "../board.rs"]
 mod board;
 
-use board::{debug, entry, hprintln};
+use board::{debug, entry, hprint, hprintln};
 use firmware::{GoNoGoLines, SensorSource, SignalStation, StationFault, Step, WindowSource};
 #[cfg(target_arch = "arm")]
 use panic_semihosting as _;
@@ -30,8 +30,9 @@ mod vectors {
     include!(concat!(env!("OUT_DIR"), "/vectors.rs"));
 }
 
-/// Samples the station may hold: every signal's window end to end.
-const SAMPLES: usize = 256;
+/// Samples the station may hold: every signal's window end to end (the demo's signal
+/// model: 256 vibration and 128 current samples).
+const SAMPLES: usize = 384;
 
 /// Plays the linked-in rows: `read` starts a row and takes its readings, `fill` takes the
 /// next window's samples from the same row.
@@ -173,11 +174,22 @@ fn main() -> ! {
     };
     let mut station = SignalStation::new(board::model_region(), None, &mut samples, units, lines);
     let startup = board::stack_used(painted, board::stack_start());
-    if let Err(e) = station.model() {
-        let _ = station.step();
-        hprintln!("FAULT blob: {}", e);
-        debug::exit(Err(()));
-        board::idle()
+    match station.model() {
+        Ok(m) => {
+            // The same first line as `linegate replay`: which model this device runs.
+            hprint!("# model ");
+            for b in m.model().model().model_id {
+                hprint!("{:02x}", b);
+            }
+            let id = shared_model::blob::blob_id(board::model_region()).unwrap_or(0);
+            hprintln!(" blob {:08x}", id);
+        }
+        Err(e) => {
+            let _ = station.step();
+            hprintln!("FAULT blob: {}", e);
+            debug::exit(Err(()));
+            board::idle()
+        }
     }
     let count = vectors::VECTORS
         .len()
