@@ -100,7 +100,8 @@ pub struct SignalSpec {
     pub raw_min: i32,
     /// Largest valid raw sample.
     pub raw_max: i32,
-    /// The raw count of physical zero (inside the valid range).
+    /// The raw count the features measure samples from (cᵢ = sᵢ − offset; physical zero
+    /// unless declared otherwise), inside the valid range.
     pub offset: i32,
     /// Samples per window, 1 ..= [`MAX_WINDOW`].
     pub window: u16,
