@@ -545,12 +545,13 @@ impl Columns {
                 hint: String::new(),
             });
         }
-        let sample = pick(&None, SAMPLE_NAMES)?;
         let time = pick(&opts.timestamp, TIME_NAMES)?;
         let signals = signals
             .iter()
             .map(|s| find(names, &s.name).ok_or_else(|| unknown(&s.name)))
             .collect::<Result<Vec<_>, _>>()?;
+        // A signal named like the sample-number column is a signal.
+        let sample = pick(&None, SAMPLE_NAMES)?.filter(|i| !signals.contains(i));
         let taken = |i: usize| {
             i == unit
                 || Some(i) == label
