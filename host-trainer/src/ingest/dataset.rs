@@ -266,6 +266,45 @@ impl Scaler {
     }
 }
 
+impl Scaler {
+    /// ⟨x, scaled row⟩ as one affine function of the raw readings, Σ (xₖ/halfₖ)·rawₖ − c:
+    /// a pass over a million units reads the raw integers and multiplies once per reading,
+    /// instead of scaling each row first.
+    pub fn projection(&self, x: &[f64]) -> Projection {
+        let coef: Vec<f64> = x.iter().zip(&self.inv).map(|(x, inv)| x * inv).collect();
+        let constant = coef.iter().zip(&self.off).map(|(c, o)| c * o).sum();
+        Projection { coef, constant }
+    }
+}
+
+/// An affine function of a unit's raw readings, from [`Scaler::projection`].
+#[derive(Clone, Debug)]
+pub struct Projection {
+    coef: Vec<f64>,
+    constant: f64,
+}
+
+impl Projection {
+    /// The value for unit `i` of `ds`: equal to ⟨x, scaled row⟩ up to rounding.
+    #[inline]
+    pub fn of(&self, ds: &Dataset, i: usize) -> f64 {
+        let d = self.coef.len();
+        let raw = &ds.raw[i * d..(i + 1) * d];
+        let mut acc = [0.0f64; 4];
+        let mut k = 0;
+        while k + 4 <= d {
+            for (j, a) in acc.iter_mut().enumerate() {
+                *a += self.coef[k + j] * f64::from(raw[k + j]);
+            }
+            k += 4;
+        }
+        for (c, &r) in self.coef[k..].iter().zip(&raw[k..]) {
+            acc[0] += c * f64::from(r);
+        }
+        (acc[0] + acc[1]) + (acc[2] + acc[3]) - self.constant
+    }
+}
+
 /// Dot product with four independent partial sums: the additions no longer wait on each
 /// other, which is several times faster than one running sum. Deterministic for given inputs.
 #[inline]

@@ -125,15 +125,21 @@ use crate::ingest::dataset::dot;
 
 /// Initial working set: up to `per_class` units of each class, evenly spread through the log.
 fn initial(ds: &Dataset, idx: &[usize], per_class: usize) -> Vec<usize> {
-    let mut out = Vec::new();
-    for class in [1i8, -1] {
-        let members: Vec<usize> = idx
-            .iter()
-            .copied()
-            .filter(|&i| ds.labels[i] == class)
-            .collect();
-        let step = (members.len() / per_class).max(1);
-        out.extend(members.iter().step_by(step).take(per_class));
+    // Every `step`-th member of each class, in `idx` order, GO first: counted in one pass
+    // and picked in another, without a list of each class's members (half a million
+    // entries each on a large log).
+    let go = idx.iter().filter(|&&i| ds.labels[i] == 1).count();
+    let nogo = idx.iter().filter(|&&i| ds.labels[i] == -1).count();
+    let mut out = Vec::with_capacity(2 * per_class);
+    for (class, members) in [(1i8, go), (-1, nogo)] {
+        let step = (members / per_class.max(1)).max(1);
+        out.extend(
+            idx.iter()
+                .copied()
+                .filter(|&i| ds.labels[i] == class)
+                .step_by(step)
+                .take(per_class),
+        );
     }
     out
 }
@@ -538,26 +544,40 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
     let (mut set, mut in_set) = working_set(ds, idx);
     let mut iterations = 0;
     let (mut round, started) = (1u32, std::time::Instant::now());
+    // The least ⟨x, xᵢ⟩ over every GO unit and the greatest over every NO-GO unit, for the
+    // final point x, when the last scan saw every unit: the certificate below then needs no
+    // pass of its own.
+    let mut extremes: Option<(f64, f64)> = None;
+    let mut previous: Option<Vec<((usize, usize), f64)>> = None;
     let out = loop {
-        let out = wolfe(
-            ((g0, n0), pair_difference(ds, g0, n0)),
+        // The first round starts from one pair; later ones from the last round's corral.
+        let start = match &previous {
+            None => Corral {
+                ids: vec![(g0, n0)],
+                pts: vec![pair_difference(ds, g0, n0)],
+                lambda: vec![1.0],
+            },
+            Some(corral) => corral_of(ds, corral),
+        };
+        let out = wolfe_from(
+            start,
             hull_oracle(ds, &sc, &set, (g0, n0)),
             max_iter.min(1_000_000) as usize,
         );
+        previous = Some(out.corral.clone());
         iterations += out.iterations;
         if set.len() == idx.len() {
             break out;
         }
         let x = &out.point;
         let xx = dot(x, x);
-        let mut row_buf = vec![0.0; d];
+        let proj = sc.projection(x);
         // A GO unit i and NO-GO unit j improve on x when ⟨x, xᵢ − xⱼ⟩ < ‖x‖²; only units beyond
         // the set's own extremes can. Keep the most violating few (bounded memory).
         let (set_go, set_nogo) =
             set.iter()
                 .fold((f64::INFINITY, f64::NEG_INFINITY), |(g, n), &i| {
-                    sc.row(ds, i, &mut row_buf);
-                    let v = dot(x, &row_buf);
+                    let v = proj.of(ds, i);
                     if ds.labels[i] > 0 {
                         (g.min(v), n)
                     } else {
@@ -570,11 +590,9 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
         let (mut go, mut nogo) = idx
             .par_chunks(SCAN_CHUNK)
             .map(|chunk| {
-                let mut buf = vec![0.0; d];
                 let (mut go, mut nogo) = (Vec::new(), Vec::new());
                 for &i in chunk.iter().filter(|&&i| !in_set[i]) {
-                    sc.row(ds, i, &mut buf);
-                    let v = dot(x, &buf);
+                    let v = proj.of(ds, i);
                     if ds.labels[i] > 0 && v < set_go {
                         push_bounded(&mut go, (v, i), keep);
                     } else if ds.labels[i] < 0 && v > set_nogo {
@@ -609,6 +627,7 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
         });
         round += 1;
         if best_go - best_nogo >= gap_limit {
+            extremes = Some((best_go, best_nogo));
             break out;
         }
         let before = set.len();
@@ -617,6 +636,7 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
             set.push(i);
         }
         if set.len() == before {
+            extremes = Some((best_go, best_nogo));
             break out;
         }
     };
@@ -664,7 +684,15 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
     // of the hulls), the separator's worst unit bounds it from below. Converged when they agree.
     let model = Linear { w, b };
     let upper = zz.sqrt() / 2.0;
-    let lower = model.geometric_margin(ds, idx);
+    // With w = 2z/‖z‖², a unit's score is 2⟨z, xᵢ⟩/‖z‖² + b and ‖w‖ = 2/‖z‖: the worst unit
+    // of each class is the last scan's extreme, every unit having been compared there.
+    let lower = match extremes {
+        Some((go_min, nogo_max)) => {
+            let to_margin = |v: f64| (2.0 * v / zz + b) * zz.sqrt() / 2.0;
+            to_margin(go_min).min(-to_margin(nogo_max))
+        }
+        None => model.geometric_margin(ds, idx),
+    };
     let converged = lower > 0.0 && (upper - lower) <= 1e-9 * upper;
     SvmRun {
         model,
@@ -712,6 +740,18 @@ fn hull_oracle<'a>(
     move |p: &[f64]| {
         let (bi, bj) = (best(&go, p, 1.0, first.0), best(&nogo, p, -1.0, first.1));
         ((bi, bj), pair_difference(ds, bi, bj))
+    }
+}
+
+/// The corral of pairs `pairs` (convex weights) with their vertices, to start a round from.
+fn corral_of(ds: &Dataset, pairs: &[((usize, usize), f64)]) -> Corral<(usize, usize)> {
+    Corral {
+        ids: pairs.iter().map(|p| p.0).collect(),
+        pts: pairs
+            .iter()
+            .map(|&((i, j), _)| pair_difference(ds, i, j))
+            .collect(),
+        lambda: pairs.iter().map(|p| p.1).collect(),
     }
 }
 
@@ -829,15 +869,27 @@ impl<Id: Copy + PartialEq> Corral<Id> {
 /// in every cycle until the stopping test holds: no cycle repeats.
 fn wolfe<Id: Copy + PartialEq>(
     start: (Id, Vec<f64>),
-    mut oracle: impl FnMut(&[f64]) -> (Id, Vec<f64>),
+    oracle: impl FnMut(&[f64]) -> (Id, Vec<f64>),
     max_major: usize,
 ) -> MinNorm<Id> {
-    let mut corral = Corral {
+    let corral = Corral {
         ids: vec![start.0],
         pts: vec![start.1],
         lambda: vec![1.0],
     };
-    let mut x = corral.pts[0].clone();
+    wolfe_from(corral, oracle, max_major)
+}
+
+/// [`wolfe`] from a corral of several vertices (convex weights, summing to 1): the
+/// previous round's solution when the working set grows, so a round starts where the last
+/// one ended instead of from one vertex. Any point of the hull is a valid start; the
+/// stopping test and the decrease in every cycle are the same.
+fn wolfe_from<Id: Copy + PartialEq>(
+    mut corral: Corral<Id>,
+    mut oracle: impl FnMut(&[f64]) -> (Id, Vec<f64>),
+    max_major: usize,
+) -> MinNorm<Id> {
+    let mut x = corral.point();
     let mut iterations = 0u64;
     for _ in 0..max_major {
         iterations += 1;
