@@ -343,6 +343,32 @@ impl UnitIds {
             .push(u32::try_from(self.text.len()).unwrap_or(u32::MAX));
     }
 
+    /// Appends the ids packed in `bytes`, id `k` ending at `ends[k]` (as the reader packs
+    /// them): one UTF-8 check and one copy for a run of ids, each id as [`push`](Self::push)
+    /// would append it.
+    pub fn extend_packed(&mut self, bytes: &[u8], ends: &[usize]) {
+        // Valid as a whole with every end on a character boundary: then each id is valid
+        // on its own (two invalid halves can make one valid character across an end, which
+        // `push` would have decoded lossily, id by id).
+        match std::str::from_utf8(bytes) {
+            Ok(text) if ends.iter().all(|&e| text.is_char_boundary(e)) => {
+                let base = self.text.len();
+                self.text.push_str(text);
+                self.ends.extend(
+                    ends.iter()
+                        .map(|&e| u32::try_from(base + e).unwrap_or(u32::MAX)),
+                );
+            }
+            _ => {
+                let mut start = 0;
+                for &end in ends {
+                    self.push(bytes.get(start..end).unwrap_or_default());
+                    start = end;
+                }
+            }
+        }
+    }
+
     /// The id of unit `i`.
     pub fn get(&self, i: usize) -> Option<&str> {
         let end = *self.ends.get(i)? as usize;

@@ -7,6 +7,7 @@ use std::path::Path;
 
 use super::header::{Columns, read_header};
 use super::options::{LogOptions, ScaleFrom};
+use super::parse::Parsed;
 use super::records::BlockReader;
 use super::scan::scan;
 use super::skip::SkipReport;
@@ -89,25 +90,34 @@ pub(super) fn read_log_keeping(
         // A pass that may be the only one hashes the file; else the second pass does.
         let hash = kept.is_some() && opts.digest;
         let mut rows = 0usize;
-        let first_pass = |_: &_, row: super::parse::Row<'_>| {
+        // Both sinks update the ranges and the kept rows, one call at a time, in file order:
+        // a run of good rows as slices, rows one by one only around a bad row.
+        let state = std::sync::Mutex::new((&mut ranges, &mut rows, &mut kept));
+        let too_many = || InputError::TooManyRows {
+            path: path.into(),
+            max: opts.max_rows,
+        };
+        let observe = |ranges: &mut Vec<(f64, f64)>, values: &[f64]| {
             if ranges.is_empty() {
-                ranges = row.values.iter().map(|&v| (v, v)).collect();
+                *ranges = values.iter().map(|&v| (v, v)).collect();
             }
-            for (r, &v) in ranges.iter_mut().zip(row.values) {
+            for (r, &v) in ranges.iter_mut().zip(values) {
                 r.0 = r.0.min(v);
                 r.1 = r.1.max(v);
             }
-            rows += 1;
+        };
+        let first_pass = |_: &_, row: super::parse::Row<'_>| {
+            let mut st = state.lock().map_err(|_| too_many())?;
+            let (ranges, rows, kept) = &mut *st;
+            observe(ranges, row.values);
+            **rows += 1;
             if let Some(k) = kept.as_mut() {
                 if k.rows.labels.len() >= opts.max_rows {
-                    return Err(InputError::TooManyRows {
-                        path: path.into(),
-                        max: opts.max_rows,
-                    });
+                    return Err(too_many());
                 }
                 if (k.values.len() + row.values.len()) * 8 > keep {
                     // Too long to keep: the second pass converts.
-                    kept = None;
+                    **kept = None;
                 } else {
                     k.values.extend_from_slice(row.values);
                     k.rows.labels.push(row.label);
@@ -122,6 +132,36 @@ pub(super) fn read_log_keeping(
             }
             Ok(())
         };
+        let mut first_run = |cols: &Columns, p: &Parsed| -> Result<(), InputError> {
+            let mut st = state.lock().map_err(|_| too_many())?;
+            let (ranges, rows, kept) = &mut *st;
+            let d = cols.channels.len().max(1);
+            for values in p.values.chunks_exact(d) {
+                observe(ranges, values);
+            }
+            **rows += p.labels.len();
+            if let Some(k) = kept.as_mut() {
+                // As row by row: the limit on rows first, then the budget (once over it,
+                // nothing is kept whatever the order).
+                if k.rows.labels.len() + p.labels.len() > opts.max_rows {
+                    return Err(too_many());
+                }
+                if (k.values.len() + p.values.len()) * 8 > keep {
+                    **kept = None;
+                } else {
+                    k.values.extend_from_slice(&p.values);
+                    k.rows.labels.extend_from_slice(&p.labels);
+                    k.rows.lines.extend_from_slice(&p.lines);
+                    if cols.unit.is_some() {
+                        k.rows.unit_ids.extend_packed(&p.unit_bytes, &p.unit_ends);
+                    }
+                    if cols.time.is_some() && opts.keep_times {
+                        k.rows.times.extend_packed(&p.time_bytes, &p.time_ends);
+                    }
+                }
+            }
+            Ok(())
+        };
         let (cols1, digest) = scan(
             path,
             opts,
@@ -129,6 +169,7 @@ pub(super) fn read_log_keeping(
             None,
             &mut first_skipped,
             first_pass,
+            Some(&mut first_run),
             hash,
         )?;
         if rows == 0 {
@@ -201,6 +242,29 @@ pub(super) fn read_log_keeping(
     }
     let mut skipped = SkipReport::default();
     let scales = ds.scales.clone();
+    let too_many = || InputError::TooManyRows {
+        path: path.into(),
+        max: opts.max_rows,
+    };
+    // Runs of good rows are appended as slices; rows one by one only around a bad row. Both
+    // sinks append to the one dataset, in file order (the scan calls one at a time).
+    let shared = std::sync::Mutex::new(&mut ds);
+    let mut run = |cols: &Columns, p: &Parsed| -> Result<(), InputError> {
+        let mut ds = shared.lock().map_err(|_| too_many())?;
+        if ds.labels.len() + p.labels.len() > opts.max_rows {
+            return Err(too_many());
+        }
+        ds.raw.extend_from_slice(&p.raw);
+        ds.labels.extend_from_slice(&p.labels);
+        ds.lines.extend_from_slice(&p.lines);
+        if cols.unit.is_some() {
+            ds.unit_ids.extend_packed(&p.unit_bytes, &p.unit_ends);
+        }
+        if cols.time.is_some() && opts.keep_times {
+            ds.times.extend_packed(&p.time_bytes, &p.time_ends);
+        }
+        Ok(())
+    };
     let (cols2, sha) = scan(
         path,
         opts,
@@ -208,11 +272,9 @@ pub(super) fn read_log_keeping(
         Some(&scales),
         &mut skipped,
         |_, row| {
+            let mut ds = shared.lock().map_err(|_| too_many())?;
             if ds.labels.len() >= opts.max_rows {
-                return Err(InputError::TooManyRows {
-                    path: path.into(),
-                    max: opts.max_rows,
-                });
+                return Err(too_many());
             }
             ds.raw.extend_from_slice(row.raw);
             ds.labels.push(row.label);
@@ -225,6 +287,7 @@ pub(super) fn read_log_keeping(
             }
             Ok(())
         },
+        Some(&mut run),
         opts.digest,
     )?;
     if cols2.unit.is_none() {
@@ -316,6 +379,7 @@ pub fn stream_units(
                 unit: row.unit,
             })
         },
+        None,
         opts.digest,
     )?;
     Ok(sha)

@@ -28,15 +28,18 @@ fn rows(
         None,
         None,
         &mut skipped,
-        |_, r| {
-            out.push((
-                r.line,
-                r.values.to_vec(),
-                r.label,
-                r.unit.map(<[u8]>::to_vec),
-            ));
-            Ok(())
-        },
+        (
+            |_: &_, r: super::parse::Row<'_>| {
+                out.push((
+                    r.line,
+                    r.values.to_vec(),
+                    r.label,
+                    r.unit.map(<[u8]>::to_vec),
+                ));
+                Ok(())
+            },
+            None,
+        ),
         Pass { block, hash: true },
     )
     .map_err(|e| e.to_string())?;
@@ -367,7 +370,7 @@ fn an_over_long_line_comes_after_the_errors_before_it() {
             None,
             None,
             &mut skipped,
-            |_, _| Ok(()),
+            (|_: &_, _: super::parse::Row<'_>| Ok(()), None),
             Pass { block, hash: true },
         )
         .unwrap();
