@@ -305,18 +305,10 @@ fn convert_kept(kept: Kept, scales: &[ChannelScale]) -> Option<Dataset> {
     use rayon::prelude::*;
     let Kept { values, mut rows } = kept;
     let d = scales.len().max(1);
-    let inv: Vec<f64> = scales.iter().map(ChannelScale::inv_lsb).collect();
     let mut raw = vec![0i32; values.len()];
     raw.par_chunks_mut(d * 4096)
         .zip(values.par_chunks(d * 4096))
-        .try_for_each(|(out, vals)| {
-            for (o, v) in out.chunks_exact_mut(d).zip(vals.chunks_exact(d)) {
-                for (((o, &v), s), &inv) in o.iter_mut().zip(v).zip(scales).zip(&inv) {
-                    *o = s.to_raw_inv(v, inv)?;
-                }
-            }
-            Some(())
-        })?;
+        .try_for_each(|(out, vals)| ChannelScale::to_raw_rows(scales, vals, out))?;
     drop(values);
     rows.raw = raw;
     rows.scales = scales.to_vec();

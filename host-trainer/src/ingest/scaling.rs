@@ -298,6 +298,43 @@ impl ChannelScale {
         if usual { n } else { i32::MIN }
     }
 
+    /// [`to_raw`](Self::to_raw) of rows of readings, row-major with one column per scale in
+    /// `scales`, into `out` (the same length); `None` if any reading is refused. The usual
+    /// case runs as one branch-free pass per row over arrays of the columns' constants, which
+    /// the compiler vectorises across the columns (`usual_raw`'s arithmetic, one column per
+    /// lane); the few readings near a half-way point take `to_raw` itself.
+    pub fn to_raw_rows(scales: &[Self], values: &[f64], out: &mut [i32]) -> Option<()> {
+        const M: f64 = 6_755_399_441_055_744.0;
+        let d = scales.len();
+        if d == 0 || values.len() != out.len() {
+            return (values.is_empty() && out.is_empty()).then_some(());
+        }
+        let zero: Vec<f64> = scales.iter().map(|s| s.zero).collect();
+        let inv: Vec<f64> = scales.iter().map(Self::inv_lsb).collect();
+        let lo: Vec<f64> = scales.iter().map(|s| f64::from(s.raw_min)).collect();
+        let hi: Vec<f64> = scales.iter().map(|s| f64::from(s.raw_max)).collect();
+        for (o, v) in out.chunks_exact_mut(d).zip(values.chunks_exact(d)) {
+            for (((((o, &v), &z), &inv), &lo), &hi) in
+                o.iter_mut().zip(v).zip(&zero).zip(&inv).zip(&lo).zip(&hi)
+            {
+                // `usual_raw`, with the column's constants from arrays.
+                let q = (v - z) * inv;
+                let s = q + M;
+                let r = s - M;
+                let far_from_half = 0.5 - (q - r).abs() > 1.0 / 4096.0;
+                let usual = q.abs() < 2_147_483_648.0 && far_from_half && r >= lo && r <= hi;
+                let n = (s.to_bits() as i64).wrapping_sub(M.to_bits() as i64) as i32;
+                *o = if usual { n } else { i32::MIN };
+            }
+            for ((o, &v), s) in o.iter_mut().zip(v).zip(scales) {
+                if *o == i32::MIN {
+                    *o = s.to_raw(v)?;
+                }
+            }
+        }
+        Some(())
+    }
+
     /// The raw count a device reads for a physical value, in range or not: rounded as
     /// [`to_raw`](Self::to_raw) rounds, saturated to the 32-bit raw word.
     ///
@@ -672,7 +709,19 @@ mod tests {
                 .enumerate()
                 .map(|(i, &r)| (!refused.contains(&(i as u32))).then_some(r))
                 .collect();
-            proptest::prop_assert_eq!(sliced, single);
+            proptest::prop_assert_eq!(&sliced, &single);
+            // Row by row beside a second column with another scale: every row whose
+            // readings are all accepted converts as `to_raw` does, and a row with a refused
+            // reading refuses the batch.
+            let other = ChannelScale::new("o", "", -5.0, 5.0, 0.01, 0.0).unwrap();
+            let scales = [c.clone(), other.clone()];
+            for (k, &v) in values.iter().enumerate() {
+                let w = -4.995 + 0.37 * k as f64;
+                let want = c.to_raw(v).zip(other.to_raw(w));
+                let mut out = [0i32; 2];
+                let got = ChannelScale::to_raw_rows(&scales, &[v, w], &mut out).map(|()| (out[0], out[1]));
+                proptest::prop_assert_eq!(got, want);
+            }
         }
     }
 
