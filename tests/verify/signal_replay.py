@@ -18,7 +18,6 @@ import csv
 import math
 import os
 import sys
-import zlib
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 try:
@@ -27,7 +26,7 @@ except ImportError as e:
     print(f"missing: {e}", file=sys.stderr)
     sys.exit(3)
 from features import goertzel_fixed  # noqa: E402
-from verify_release import Reader, kernel, to_raw  # noqa: E402
+from verify_release import kernel, read_model, to_raw  # noqa: E402
 
 UNIT_NAMES = ["unit_id", "unit", "serial"]
 FEATURES = ["mean", "rms", "min", "max", "peak_to_peak", "abs_peak", "std_dev",
@@ -36,32 +35,8 @@ FEATURES = ["mean", "rms", "min", "max", "peak_to_peak", "abs_peak", "std_dev",
 
 def decode3(blob):
     """A version-3 blob (FORMAT.md): version 1's layout, then the signal section."""
-    if blob[:4] != b"LGMB":
-        raise ValueError("bad magic")
-    version = int.from_bytes(blob[4:6], "little")
-    if version != 3:
-        raise ValueError(f"version {version}, expected 3")
-    count = blob[6]
-    n = int.from_bytes(blob[7:9], "little")
-    if len(blob) != 9 + n + 4:
-        raise ValueError("length")
-    stored = int.from_bytes(blob[9 + n:], "little")
-    if zlib.crc32(blob[: 9 + n]) != stored:
-        raise ValueError("CRC")
-    r = Reader(blob[9: 9 + n])
-    m = {"model_id": r.take(16).hex(), "audit": r.varint()}
-    for k in ["input_bits", "weight_bits", "weight_frac_bits", "acc_bits"]:
-        m[k] = r.byte()
-    for k in ["bias", "nogo_max", "go_min"]:
-        m[k] = r.signed()
-    chans = []
-    for _ in range(r.varint()):
-        c = {"name": r.take(r.varint()).decode("utf-8")}
-        for k in ["raw_min", "raw_max", "offset", "multiplier"]:
-            c[k] = r.signed()
-        c["shift"] = r.byte()
-        c["weight"] = r.signed()
-        chans.append(c)
+    m, r, n, count = read_model(blob, 3)
+    chans = m["channels"]
     if len(chans) != count:
         raise ValueError("channel count")
     signals = []
@@ -80,8 +55,7 @@ def decode3(blob):
         sources.append((sig, kind, coeff))
     if r.i != n or len(sources) != len(chans):
         raise ValueError("payload length")
-    m["channels"], m["signals"], m["sources"] = chans, signals, sources
-    m["blob_id"] = f"{stored:08x}"
+    m["signals"], m["sources"] = signals, sources
     return m
 
 

@@ -69,11 +69,21 @@ class Reader:
 
 
 def decode(blob):
+    """A version-1 blob (FORMAT.md)."""
+    m, r, n, count = read_model(blob, 1)
+    if r.i != n or len(m["channels"]) != count:
+        raise ValueError("payload length")
+    return m
+
+
+def read_model(blob, want):
+    """Header, CRC and the model of a blob of format version `want`: the model, the payload
+    reader (left after the model), the payload length and the header's channel count."""
     if blob[:4] != b"LGMB":
         raise ValueError("bad magic")
     version = int.from_bytes(blob[4:6], "little")
-    if version != 1:
-        raise ValueError(f"version {version}")
+    if version != want:
+        raise ValueError(f"version {version}, expected {want}")
     count = blob[6]
     n = int.from_bytes(blob[7:9], "little")
     if len(blob) != 9 + n + 4:
@@ -96,11 +106,9 @@ def decode(blob):
         c["shift"] = r.byte()
         c["weight"] = r.signed()
         chans.append(c)
-    if r.i != n or len(chans) != count:
-        raise ValueError("payload length")
     m["channels"] = chans
     m["blob_id"] = f"{stored:08x}"
-    return m
+    return m, r, n, count
 
 
 def kernel(m, raw):

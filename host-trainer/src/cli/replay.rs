@@ -67,16 +67,7 @@ impl ReplayArgs {
         say_raw!("{line}");
         let mut index = 0usize;
         let mut skipped = host_trainer::ingest::SkipReport::default();
-        // Lines are written in 64 KiB batches: one write per unit would be a system call
-        // per unit. A reader that goes away ends the process quietly, as `say!` does.
         let mut out: Vec<u8> = Vec::with_capacity(1 << 16);
-        let flush = |out: &mut Vec<u8>| {
-            use std::io::Write as _;
-            if std::io::stdout().write_all(out).is_err() {
-                std::process::exit(141);
-            }
-            out.clear();
-        };
         let streamed = host_trainer::ingest::stream_units(
             log,
             // New units have no verdict yet: replay scores logs without a label column.
@@ -89,11 +80,7 @@ impl ReplayArgs {
             &fm.channels,
             &mut skipped,
             |u| {
-                out.extend_from_slice(replay::line(index, &m, u.raw).as_bytes());
-                out.push(b'\n');
-                if out.len() >= 1 << 16 {
-                    flush(&mut out);
-                }
+                put_line(&mut out, &replay::line(index, &m, u.raw));
                 if let Some(t) = vec_text.as_mut() {
                     let row: Vec<String> = u.raw.iter().map(|r| r.to_string()).collect();
                     t.push_str(&row.join(" "));
@@ -150,13 +137,6 @@ impl ReplayArgs {
             .collect();
         let mut skipped = host_trainer::ingest::SkipReport::default();
         let mut out: Vec<u8> = Vec::with_capacity(1 << 16);
-        let flush = |out: &mut Vec<u8>| {
-            use std::io::Write as _;
-            if std::io::stdout().write_all(out).is_err() {
-                std::process::exit(141);
-            }
-            out.clear();
-        };
         let mut index = 0usize;
         let streamed = host_trainer::ingest::signals::stream_signal_units(
             &self.log,
@@ -171,11 +151,7 @@ impl ReplayArgs {
             |u| {
                 let raw = host_trainer::ingest::signals::device_readings(&fm.channels, u);
                 let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
-                out.extend_from_slice(replay::signal_line(index, &m, &raw, &windows).as_bytes());
-                out.push(b'\n');
-                if out.len() >= 1 << 16 {
-                    flush(&mut out);
-                }
+                put_line(&mut out, &replay::signal_line(index, &m, &raw, &windows));
                 if let Some(t) = vec_text.as_mut() {
                     let row: Vec<String> = raw
                         .iter()
@@ -201,4 +177,23 @@ impl ReplayArgs {
         }
         Ok(())
     }
+}
+
+/// Lines go out in 64 KiB batches: one write per unit would be a system call per unit.
+fn put_line(out: &mut Vec<u8>, line: &str) {
+    out.extend_from_slice(line.as_bytes());
+    out.push(b'\n');
+    if out.len() >= 1 << 16 {
+        flush(out);
+    }
+}
+
+/// Writes the batch to stdout; a reader that goes away ends the process quietly, as `say!`
+/// does.
+fn flush(out: &mut Vec<u8>) {
+    use std::io::Write as _;
+    if std::io::stdout().write_all(out).is_err() {
+        std::process::exit(141);
+    }
+    out.clear();
 }

@@ -239,6 +239,16 @@ pub struct DemoSummary {
     pub files: Vec<PathBuf>,
 }
 
+/// Writes `text` to `dir/name` (the demo's scratch folder) and returns the path.
+fn write_file(dir: &Path, name: &str, text: &str) -> Result<PathBuf, DemoError> {
+    let p = dir.join(name);
+    std::fs::write(&p, text).map_err(|e| OutputError::Io {
+        path: p.clone(),
+        source: e,
+    })?;
+    Ok(p)
+}
+
 /// Runs the whole job on synthetic data into `out`.
 ///
 /// # Errors
@@ -248,14 +258,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         path: out.into(),
         source: e,
     })?;
-    let write_in = |name: &str, text: &str| -> Result<PathBuf, DemoError> {
-        let p = tmp.path().join(name);
-        std::fs::write(&p, text).map_err(|e| OutputError::Io {
-            path: p.clone(),
-            source: e,
-        })?;
-        Ok(p)
-    };
+    let write_in = |name: &str, text: &str| write_file(tmp.path(), name, text);
     let logs = [
         (
             "train-synthetic.csv",

@@ -16,7 +16,7 @@ use std::path::Path;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
-use super::{DemoError, normal};
+use super::{DemoError, normal, write_file};
 use crate::error::OutputError;
 use crate::ingest::LogOptions;
 use crate::output::OutputSet;
@@ -188,14 +188,7 @@ pub struct SignalDemo {
 /// # Errors
 /// [`DemoError`] of any step.
 pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, DemoError> {
-    let write_in = |name: &str, text: &str| -> Result<std::path::PathBuf, DemoError> {
-        let p = tmp.join(name);
-        std::fs::write(&p, text).map_err(|e| OutputError::Io {
-            path: p.clone(),
-            source: e,
-        })?;
-        Ok(p)
-    };
+    let write_in = |name: &str, text: &str| write_file(tmp, name, text);
     let logs = [
         (
             "signal-train-synthetic.csv",
