@@ -360,3 +360,21 @@ fn sheet_errors_name_the_signal_or_feature() {
         );
     }
 }
+
+/// A line longer than any record (here 2 MiB of digits) stops the read at that line, before
+/// the CSV reader would hold it whole: a file of one endless line cannot exhaust memory.
+#[test]
+fn an_endless_line_is_refused_by_its_number() {
+    let d = tempfile::tempdir().unwrap();
+    write(d.path(), "s.toml", SHEET.as_bytes());
+    let log = format!(
+        "unit_id,sample,x,verdict\nA,0,10,GO\nA,1,{}\n",
+        "1".repeat(2 << 20)
+    );
+    write(d.path(), "log.csv", log.as_bytes());
+    let err = exits(
+        &linegate(&["check", "log.csv", "--sheet", "s.toml"], d.path()),
+        2,
+    );
+    assert!(err.contains("log.csv: line 3: longer than"), "{err}");
+}

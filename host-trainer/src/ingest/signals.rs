@@ -87,17 +87,46 @@ pub struct SignalLogHeader {
     pub sha256: String,
 }
 
-/// Hashes what passes through, so the log is read once for both.
+/// Hashes what passes through, so the log is read once for both, and refuses a line longer
+/// than `max_line`: the CSV reader holds a whole record in memory, so a file of one endless
+/// line must stop here, as the log reader stops it.
 struct Hashing<R> {
     inner: R,
     hasher: Option<Sha256>,
+    max_line: usize,
+    /// Bytes since the last line feed, and line feeds seen.
+    since_lf: usize,
+    lines: u64,
 }
+
+/// The line number of a line refused as too long (in the io error's payload).
+#[derive(Debug)]
+struct LongLine(u64);
+
+impl std::fmt::Display for LongLine {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "line {} is too long", self.0)
+    }
+}
+
+impl std::error::Error for LongLine {}
 
 impl<R: Read> Read for Hashing<R> {
     fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
         let n = self.inner.read(buf)?;
+        let got = &buf[..n];
         if let Some(h) = self.hasher.as_mut() {
-            h.update(&buf[..n]);
+            h.update(got);
+        }
+        match memchr::memrchr(b'\n', got) {
+            Some(k) => {
+                self.lines += memchr::memchr_iter(b'\n', got).count() as u64;
+                self.since_lf = n - k - 1;
+            }
+            None => self.since_lf += n,
+        }
+        if self.since_lf > self.max_line {
+            return Err(std::io::Error::other(LongLine(self.lines + 1)));
         }
         Ok(n)
     }
@@ -149,6 +178,9 @@ pub fn stream_signal_units(
         Hashing {
             inner: file,
             hasher: opts.digest.then(Sha256::new),
+            max_line: opts.max_line_len,
+            since_lf: 0,
+            lines: 0,
         },
     );
     let delimiter = match opts.delimiter {
@@ -175,12 +207,7 @@ pub fn stream_signal_units(
             .map(|n| String::from_utf8_lossy(n).trim().to_string())
             .collect(),
         Ok(_) => return Err(InputError::Empty { path: path.into() }),
-        Err(e) => {
-            return Err(InputError::Format {
-                path: path.into(),
-                message: format!("cannot read the header: {e}"),
-            });
-        }
+        Err(e) => return Err(csv_error(path, opts, e)),
     };
     let cols = Columns::resolve(path, &names, opts, signals, readings)?;
     let width = names.len();
@@ -196,10 +223,7 @@ pub fn stream_signal_units(
     loop {
         let more = rdr
             .read_byte_record(&mut record)
-            .map_err(|e| InputError::Format {
-                path: path.into(),
-                message: format!("cannot read a row: {e}"),
-            })?;
+            .map_err(|e| csv_error(path, opts, e))?;
         if !more {
             break;
         }
@@ -281,6 +305,27 @@ pub fn stream_signal_units(
         readings: cols.readings.iter().map(|&i| names[i].clone()).collect(),
         sha256,
     })
+}
+
+/// A read error of the CSV reader: a line refused as too long names its line, an I/O error
+/// stays one, anything else is a malformed file.
+fn csv_error(path: &Path, opts: &LogOptions, e: csv::Error) -> InputError {
+    if let csv::ErrorKind::Io(io) = e.kind()
+        && let Some(&LongLine(line)) = io.get_ref().and_then(|r| r.downcast_ref::<LongLine>())
+    {
+        return InputError::LineTooLong {
+            path: path.into(),
+            line,
+            max: opts.max_line_len,
+        };
+    }
+    match e.into_kind() {
+        csv::ErrorKind::Io(io) => InputError::io(path, io),
+        other => InputError::Format {
+            path: path.into(),
+            message: format!("cannot read a row: {other:?}"),
+        },
+    }
 }
 
 /// Ends the open unit: checks it is whole, then hands it to `each` (or counts it skipped).
