@@ -285,17 +285,13 @@ impl ChannelScale {
     /// vectorises.
     #[inline(always)]
     fn usual_raw(&self, physical: f64, inv: f64) -> i32 {
-        const M: f64 = 6_755_399_441_055_744.0;
-        let q = (physical - self.zero) * inv;
-        let s = q + M;
-        let r = s - M;
-        let far_from_half = 0.5 - (q - r).abs() > 1.0 / 4096.0;
-        let usual = q.abs() < 2_147_483_648.0
-            && far_from_half
-            && r >= f64::from(self.raw_min)
-            && r <= f64::from(self.raw_max);
-        let n = (s.to_bits() as i64).wrapping_sub(M.to_bits() as i64) as i32;
-        if usual { n } else { i32::MIN }
+        usual_raw(
+            physical,
+            self.zero,
+            inv,
+            f64::from(self.raw_min),
+            f64::from(self.raw_max),
+        )
     }
 
     /// [`to_raw`](Self::to_raw) of rows of readings, row-major with one column per scale in
@@ -304,7 +300,6 @@ impl ChannelScale {
     /// the compiler vectorises across the columns (`usual_raw`'s arithmetic, one column per
     /// lane); the few readings near a half-way point take `to_raw` itself.
     pub fn to_raw_rows(scales: &[Self], values: &[f64], out: &mut [i32]) -> Option<()> {
-        const M: f64 = 6_755_399_441_055_744.0;
         let d = scales.len();
         if d == 0 || values.len() != out.len() {
             return (values.is_empty() && out.is_empty()).then_some(());
@@ -317,14 +312,7 @@ impl ChannelScale {
             for (((((o, &v), &z), &inv), &lo), &hi) in
                 o.iter_mut().zip(v).zip(&zero).zip(&inv).zip(&lo).zip(&hi)
             {
-                // `usual_raw`, with the column's constants from arrays.
-                let q = (v - z) * inv;
-                let s = q + M;
-                let r = s - M;
-                let far_from_half = 0.5 - (q - r).abs() > 1.0 / 4096.0;
-                let usual = q.abs() < 2_147_483_648.0 && far_from_half && r >= lo && r <= hi;
-                let n = (s.to_bits() as i64).wrapping_sub(M.to_bits() as i64) as i32;
-                *o = if usual { n } else { i32::MIN };
+                *o = usual_raw(v, z, inv, lo, hi);
             }
             for ((o, &v), s) in o.iter_mut().zip(v).zip(scales) {
                 if *o == i32::MIN {
@@ -385,6 +373,21 @@ impl ChannelScale {
         }
         (1, 0)
     }
+}
+
+/// [`ChannelScale::usual_raw`]'s arithmetic with the channel's constants passed in (zero,
+/// 1/lsb, the valid raw range as doubles), so that a loop over columns whose constants sit
+/// in arrays vectorises as well as a loop over one channel's values.
+#[inline(always)]
+fn usual_raw(physical: f64, zero: f64, inv: f64, lo: f64, hi: f64) -> i32 {
+    const M: f64 = 6_755_399_441_055_744.0;
+    let q = (physical - zero) * inv;
+    let s = q + M;
+    let r = s - M;
+    let far_from_half = 0.5 - (q - r).abs() > 1.0 / 4096.0;
+    let usual = q.abs() < 2_147_483_648.0 && far_from_half && r >= lo && r <= hi;
+    let n = (s.to_bits() as i64).wrapping_sub(M.to_bits() as i64) as i32;
+    if usual { n } else { i32::MIN }
 }
 
 /// 10^e as the nearest double, as a sheet's `1e-3` reads (which the log reader's integer
