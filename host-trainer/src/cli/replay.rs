@@ -129,40 +129,24 @@ impl ReplayArgs {
         let line = replay::model_line(m.model(), bytes);
         let mut vec_text = self.vectors.as_ref().map(|_| line.clone());
         say_raw!("{line}");
-        let readings: Vec<String> = fm
-            .channels
-            .iter()
-            .filter(|c| c.source.is_none())
-            .map(|c| c.name.clone())
-            .collect();
         let mut skipped = host_trainer::ingest::SkipReport::default();
         let mut out: Vec<u8> = Vec::with_capacity(1 << 16);
-        let mut index = 0usize;
-        let streamed = host_trainer::ingest::signals::stream_signal_units(
+        let streamed = replay::replay_signal_log(
             &self.log,
             &LogOptions {
                 label_optional: true,
                 digest: false,
                 ..self.log_args.options(quiet)
             },
-            &fm.signals,
-            Some(&readings),
+            fm,
+            &m,
             &mut skipped,
-            |u| {
-                let raw = host_trainer::ingest::signals::device_readings(&fm.channels, u);
-                let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
-                put_line(&mut out, &replay::signal_line(index, &m, &raw, &windows));
+            |line, raw, windows| {
+                put_line(&mut out, line);
                 if let Some(t) = vec_text.as_mut() {
-                    let row: Vec<String> = raw
-                        .iter()
-                        .chain(u.windows.iter().flatten())
-                        .map(|r| r.to_string())
-                        .collect();
-                    t.push_str(&row.join(" "));
+                    t.push_str(&replay::signal_vector(raw, windows));
                     t.push('\n');
                 }
-                index += 1;
-                Ok(())
             },
         );
         flush(&mut out);

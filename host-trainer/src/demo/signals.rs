@@ -255,36 +255,25 @@ pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, De
     // The field log replayed as `linegate replay` does: the device's lines, and its vectors.
     let mut replay = crate::release::replay::model_line(model.model(), &blob);
     let mut vectors = replay.clone();
-    let readings: Vec<String> = fm
-        .channels
-        .iter()
-        .filter(|c| c.source.is_none())
-        .map(|c| c.name.clone())
-        .collect();
-    let (mut index, mut faults) = (0usize, 0usize);
-    crate::ingest::signals::stream_signal_units(
+    let (mut units, mut faults) = (0usize, 0usize);
+    crate::release::replay::replay_signal_log(
         &paths[2],
         &LogOptions {
             label_optional: true,
             ..LogOptions::default()
         },
-        &fm.signals,
-        Some(&readings),
+        fm,
+        &model,
         &mut Default::default(),
-        |u| {
-            let raw = crate::ingest::signals::device_readings(&fm.channels, u);
-            let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
-            let line = crate::release::replay::signal_line(index, &model, &raw, &windows);
+        |line, raw, windows| {
             faults += usize::from(line.contains("FAULT"));
+            units += 1;
             let _ = writeln!(replay, "{line}");
-            let row: Vec<String> = raw
-                .iter()
-                .chain(u.windows.iter().flatten())
-                .map(i32::to_string)
-                .collect();
-            let _ = writeln!(vectors, "{}", row.join(" "));
-            index += 1;
-            Ok(())
+            let _ = writeln!(
+                vectors,
+                "{}",
+                crate::release::replay::signal_vector(raw, windows)
+            );
         },
     )?;
     let md = crate::report::markdown(fm, &done.report, None);
@@ -301,6 +290,6 @@ pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, De
         train,
         audit: done.report,
         field_faults: faults,
-        field_units: index,
+        field_units: units,
     })
 }

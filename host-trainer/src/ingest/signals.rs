@@ -696,16 +696,21 @@ pub fn read_signal_log(
     opts: &LogOptions,
     from: SignalChannels<'_>,
 ) -> Result<Dataset, InputError> {
-    let (signals, model) = match from {
-        SignalChannels::Sheet(s) => (&s.signals[..], None),
-        SignalChannels::Model { channels, signals } => (signals, Some(channels)),
+    // Where the signals, the feature channels and the reading channels' scaling come from.
+    let (signals, features, model, sheet) = match from {
+        SignalChannels::Sheet(s) => (&s.signals[..], s.features.clone(), None, Some(s)),
+        SignalChannels::Model { channels, signals } => (
+            signals,
+            channels
+                .iter()
+                .filter(|c| c.source.is_some())
+                .cloned()
+                .collect(),
+            Some(channels),
+            None,
+        ),
     };
     // The feature channels, each with its signal's index and its proved computation.
-    let features: Vec<ChannelScale> = match (&from, model) {
-        (SignalChannels::Sheet(s), _) => s.features.clone(),
-        (_, Some(ch)) => ch.iter().filter(|c| c.source.is_some()).cloned().collect(),
-        _ => Vec::new(),
-    };
     let computed = features
         .iter()
         .map(|c| {
@@ -721,12 +726,8 @@ pub fn read_signal_log(
             Ok((j, f))
         })
         .collect::<Result<Vec<(usize, CheckedFeature)>, InputError>>()?;
-    let reading_names: Option<Vec<String>> = model.map(|ch| {
-        ch.iter()
-            .filter(|c| c.source.is_none())
-            .map(|c| c.name.clone())
-            .collect()
-    });
+    let reading_names: Option<Vec<String>> =
+        model.map(|ch| reading_channels(ch).map(|c| c.name.clone()).collect());
     let mut skipped = SkipReport::default();
     let (mut physical, mut values, mut labels, mut lines) =
         (Vec::new(), Vec::new(), Vec::new(), Vec::new());
@@ -767,30 +768,25 @@ pub fn read_signal_log(
     let nr = header.readings.len();
     // Reading channels' scaling: the model's; else the sheet's, or the observed range.
     let reading_scales: Vec<ChannelScale> = match model {
-        Some(ch) => ch.iter().filter(|c| c.source.is_none()).cloned().collect(),
-        None => {
-            let SignalChannels::Sheet(sheet_decl) = from else {
-                unreachable!("a sheet when there is no model")
-            };
-            header
-                .readings
-                .iter()
-                .enumerate()
-                .map(|(r, name)| match sheet_decl.get(name) {
-                    Some(s) => Ok(s.clone()),
-                    None => {
-                        let (lo, hi) = physical
-                            .iter()
-                            .skip(r)
-                            .step_by(nr.max(1))
-                            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
-                                (a.min(v), b.max(v))
-                            });
-                        ChannelScale::observed(name, lo, hi).map_err(|m| log_error(path, &m))
-                    }
-                })
-                .collect::<Result<_, _>>()?
-        }
+        Some(ch) => reading_channels(ch).cloned().collect(),
+        None => header
+            .readings
+            .iter()
+            .enumerate()
+            .map(|(r, name)| match sheet.and_then(|s| s.get(name)) {
+                Some(s) => Ok(s.clone()),
+                None => {
+                    let (lo, hi) = physical
+                        .iter()
+                        .skip(r)
+                        .step_by(nr.max(1))
+                        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+                            (a.min(v), b.max(v))
+                        });
+                    ChannelScale::observed(name, lo, hi).map_err(|m| log_error(path, &m))
+                }
+            })
+            .collect::<Result<_, _>>()?,
     };
     // Channel order: the model's; for a sheet, the readings then the features.
     let order: Vec<ChannelScale> = match model {
@@ -855,12 +851,16 @@ pub fn read_signal_log(
     Ok(ds)
 }
 
+/// A model's reading channels (those that are not features), in channel order: the
+/// readings a station passes beside its windows.
+pub fn reading_channels(channels: &[ChannelScale]) -> impl Iterator<Item = &ChannelScale> {
+    channels.iter().filter(|c| c.source.is_none())
+}
+
 /// The raw readings of a unit's reading channels as the device reads them (in range or
 /// not), in the order of `channels`' readings.
 pub fn device_readings(channels: &[ChannelScale], unit: &SignalUnit<'_>) -> Vec<i32> {
-    channels
-        .iter()
-        .filter(|c| c.source.is_none())
+    reading_channels(channels)
         .zip(unit.readings)
         .map(|(c, &v)| c.raw_reading(v))
         .collect()

@@ -7,7 +7,13 @@
 
 use shared_model::{CheckedModel, CheckedSignalModel, Fault, SignalFault};
 
+use std::path::Path;
+
+use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
+use crate::ingest::signals::{device_readings, reading_channels, stream_signal_units};
+use crate::ingest::{LogOptions, SkipReport};
+use crate::train::float_model::FloatModel;
 
 /// The device's line for one set of raw readings.
 pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
@@ -35,6 +41,45 @@ pub fn signal_line(
         Err(SignalFault::Window { signal, .. }) => format!("{index} FAULT signal{signal}"),
         Err(_) => format!("{index} FAULT other"),
     }
+}
+
+/// Replays a signal log through `model` (a model with signal features, from the float
+/// model `fm`) as the device runs it: per unit in log order, `each` gets the device's line
+/// ([`signal_line`]) and the unit's raw readings and windows (for [`signal_vector`]).
+///
+/// # Errors
+/// The log's [`InputError`]: a unit that is not whole, unless skipped into `skipped`.
+pub fn replay_signal_log(
+    path: &Path,
+    opts: &LogOptions,
+    fm: &FloatModel,
+    model: &CheckedSignalModel,
+    skipped: &mut SkipReport,
+    mut each: impl FnMut(&str, &[i32], &[Vec<i32>]),
+) -> Result<(), InputError> {
+    let names: Vec<String> = reading_channels(&fm.channels)
+        .map(|c| c.name.clone())
+        .collect();
+    let mut index = 0usize;
+    stream_signal_units(path, opts, &fm.signals, Some(&names), skipped, |u| {
+        let raw = device_readings(&fm.channels, u);
+        let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
+        each(&signal_line(index, model, &raw, &windows), &raw, u.windows);
+        index += 1;
+        Ok(())
+    })?;
+    Ok(())
+}
+
+/// One unit as the example device takes it from its vectors: the reading channels' raw
+/// readings, then every signal's window, separated by spaces.
+pub fn signal_vector(readings: &[i32], windows: &[Vec<i32>]) -> String {
+    let row: Vec<String> = readings
+        .iter()
+        .chain(windows.iter().flatten())
+        .map(i32::to_string)
+        .collect();
+    row.join(" ")
 }
 
 /// The first line, `# model <id> blob <blob id>`, with ` key <key id>` for a signed blob,
