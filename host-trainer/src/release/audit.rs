@@ -1160,14 +1160,19 @@ pub fn released_blob(
     signer: Option<&ed25519_dalek::SigningKey>,
 ) -> Vec<u8> {
     let marked = mark(&q.model, release_mark(passed));
-    let signal = q.signal_model().and_then(|m| {
-        shared_model::CheckedSignalModel::new(marked.clone(), m.signals().clone()).ok()
-    });
-    match (signal, signer) {
+    if q.signals.is_empty() {
+        return match signer {
+            Some(k) => crate::release::sign::signed_blob(&marked, k),
+            None => crate::release::pack::blob_bytes(&marked),
+        };
+    }
+    // A model with signals is never written without them: were the pair refused (which
+    // `quantise` rules out), the blob would be empty and refused everywhere, not a blob
+    // whose features a station would take for readings.
+    match (q.with_signals(marked), signer) {
         (Some(m), Some(k)) => crate::release::sign::signed_signal_blob(&m, k),
         (Some(m), None) => crate::release::pack::signal_blob_bytes(&m),
-        (None, Some(k)) => crate::release::sign::signed_blob(&marked, k),
-        (None, None) => crate::release::pack::blob_bytes(&marked),
+        (None, _) => Vec::new(),
     }
 }
 

@@ -102,14 +102,15 @@ pub struct Quantised {
 }
 
 impl Quantised {
-    /// The model with its signals, for a signal blob; `None` for a model of readings.
-    pub fn signal_model(&self) -> Option<CheckedSignalModel> {
+    /// `model` (this model, perhaps marked by the audit) with this model's signals, for a
+    /// signal blob; `None` for a model of readings, or if the pair were refused, which
+    /// `quantise` rules out: it validated the same section against the same channels, and a
+    /// mark or a move of the weights changes no channel's range.
+    pub fn with_signals(&self, model: CheckedModel) -> Option<CheckedSignalModel> {
         if self.signals.is_empty() {
             return None;
         }
-        // `quantise` built this pair once already; a model whose moves changed only weights
-        // keeps every channel's range, so the pair stays valid.
-        CheckedSignalModel::new(self.model.clone(), self.signals.clone()).ok()
+        CheckedSignalModel::new(model, self.signals.clone()).ok()
     }
 }
 
