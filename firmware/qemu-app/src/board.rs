@@ -50,6 +50,23 @@ unsafe extern "C" {
     static _model_len: u8;
 }
 
+/// Prints the same first line as `linegate replay`: which model this device runs (its id,
+/// the blob id, and the key id of a signed blob).
+pub fn model_line(model_id: &[u8], blob_id: u32, key_id: Option<&[u8]>) {
+    hprint!("# model ");
+    for b in model_id {
+        hprint!("{:02x}", b);
+    }
+    hprint!(" blob {:08x}", blob_id);
+    if let Some(k) = key_id {
+        hprint!(" key ");
+        for b in k {
+            hprint!("{:02x}", b);
+        }
+    }
+    hprintln!();
+}
+
 /// The model region in flash.
 pub fn model_region() -> &'static [u8] {
     // SAFETY: memory.x defines `_model_start` as the start of a 4 KiB flash region that is

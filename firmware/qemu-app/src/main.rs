@@ -7,7 +7,7 @@
 
 mod board;
 
-use board::{debug, entry, hprint, hprintln};
+use board::{debug, entry, hprintln};
 use firmware::{Classifier, Decision, Fault, GoNoGoLines, Station, StationFault, Step};
 #[cfg(target_arch = "arm")]
 use panic_semihosting as _;
@@ -57,19 +57,11 @@ fn main() -> ! {
     };
     let startup = board::stack_used(painted, board::stack_start());
     if let Ok(c) = station.classifier() {
-        // The same first line as `linegate replay`: which model this device runs.
-        hprint!("# model ");
-        for b in c.model_id() {
-            hprint!("{:02x}", b);
-        }
-        hprint!(" blob {:08x}", c.blob_id());
-        if let Some(k) = c.key_id() {
-            hprint!(" key ");
-            for b in k {
-                hprint!("{:02x}", b);
-            }
-        }
-        hprintln!();
+        board::model_line(
+            &c.model_id(),
+            c.blob_id(),
+            c.key_id().as_ref().map(|k| &k[..]),
+        );
     }
     if let Err(e) = station.classifier() {
         let _ = station.step();

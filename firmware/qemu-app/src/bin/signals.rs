@@ -12,7 +12,7 @@
 #[path = "../board.rs"]
 mod board;
 
-use board::{debug, entry, hprint, hprintln};
+use board::{debug, entry, hprintln};
 use firmware::{GoNoGoLines, SensorSource, SignalStation, StationFault, Step, WindowSource};
 #[cfg(target_arch = "arm")]
 use panic_semihosting as _;
@@ -176,13 +176,8 @@ fn main() -> ! {
     let startup = board::stack_used(painted, board::stack_start());
     match station.model() {
         Ok(m) => {
-            // The same first line as `linegate replay`: which model this device runs.
-            hprint!("# model ");
-            for b in m.model().model().model_id {
-                hprint!("{:02x}", b);
-            }
             let id = shared_model::blob::blob_id(board::model_region()).unwrap_or(0);
-            hprintln!(" blob {:08x}", id);
+            board::model_line(&m.model().model().model_id, id, None);
         }
         Err(e) => {
             let _ = station.step();
