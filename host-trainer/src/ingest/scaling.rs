@@ -529,7 +529,7 @@ impl ChannelSheet {
         let mut signals: Vec<SignalScale> = Vec::new();
         for g in file.signal {
             fresh(&g.name, "signal")?;
-            let mut s = SignalScale::new(
+            let s = SignalScale::new(
                 &g.name,
                 &g.unit,
                 g.lsb,
@@ -538,14 +538,8 @@ impl ChannelSheet {
                 g.window,
                 g.offset,
                 g.noise,
-            )?;
-            if g.sample_rate.is_some_and(|r| !(r.is_finite() && r > 0.0)) {
-                return Err(format!(
-                    "signal '{}': sample_rate must be a positive number of samples per second",
-                    g.name.escape_debug()
-                ));
-            }
-            s.sample_rate = g.sample_rate;
+            )?
+            .with_sample_rate(g.sample_rate)?;
             signals.push(s);
         }
         if signals.len() > shared_model::limits::MAX_SIGNALS {

@@ -102,6 +102,21 @@ impl SignalScale {
         Ok(s)
     }
 
+    /// The signal with its sample rate (samples per second), if declared.
+    ///
+    /// # Errors
+    /// A message if the rate is not a positive number.
+    pub fn with_sample_rate(mut self, rate: Option<f64>) -> Result<Self, String> {
+        if rate.is_some_and(|r| !(r.is_finite() && r > 0.0)) {
+            return Err(format!(
+                "signal '{}': sample_rate must be a positive number of samples per second",
+                self.name.escape_debug()
+            ));
+        }
+        self.sample_rate = rate;
+        Ok(self)
+    }
+
     /// The window as the blob and the shared feature code describe it.
     pub fn spec(&self) -> SignalSpec {
         SignalSpec {

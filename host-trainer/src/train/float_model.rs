@@ -386,7 +386,7 @@ impl FloatModel {
             )));
         }
         for g in &m.signals {
-            let mut fresh = SignalScale::new(
+            let fresh = SignalScale::new(
                 &g.name,
                 &g.unit,
                 g.lsb,
@@ -396,8 +396,8 @@ impl FloatModel {
                 Some(g.offset),
                 g.noise,
             )
+            .and_then(|s| s.with_sample_rate(g.sample_rate))
             .map_err(fmt)?;
-            fresh.sample_rate = g.sample_rate;
             if &fresh != g {
                 return Err(fmt(format!("signal '{}' is not a valid signal", g.name)));
             }
