@@ -327,6 +327,15 @@ const BOARDS: [Board; 5] = [
 /// [`BOARDS`] (in `target/<folder>`), runs it with `blob` loaded raw at the board's model
 /// address, and hands each core's name and stdout to `check`. A core whose QEMU or Rust
 /// target is missing is SKIPPED (a failure in CI).
+/// The lines of a device's output that `linegate replay` prints too: the model line and
+/// one line per unit (its other `# ` lines are measurements).
+fn replay_lines(stdout: &str) -> Vec<&str> {
+    stdout
+        .lines()
+        .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
+        .collect()
+}
+
 /// Serialises the tests that build the signal example into one target folder with
 /// different vectors: each builds and runs before the other builds.
 static SIGNAL_APP: std::sync::Mutex<()> = std::sync::Mutex::new(());
@@ -401,11 +410,11 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
         &vpath,
         &out.join("model.lgmb"),
         |core, stdout| {
-            let got: Vec<&str> = stdout
-                .lines()
-                .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
-                .collect();
-            assert_eq!(got, want, "{core}: the device and replay differ");
+            assert_eq!(
+                replay_lines(stdout),
+                want,
+                "{core}: the device and replay differ"
+            );
             let stack = lines_and_stack(stdout, want.last().unwrap(), core);
             eprintln!(
                 "{core}: Rust example agrees with replay on 300 vectors; one step {stack} stack bytes"
@@ -594,11 +603,11 @@ fn demo_signal_model_on_five_cores_agrees_with_replay() {
         &out.join("signal-vectors-field.txt"),
         &out.join("signal-model.lgmb"),
         |core, stdout| {
-            let got: Vec<&str> = stdout
-                .lines()
-                .filter(|l| !l.starts_with("# ") || l.starts_with("# model"))
-                .collect();
-            assert_eq!(got, want, "{core}: the device and replay differ");
+            assert_eq!(
+                replay_lines(stdout),
+                want,
+                "{core}: the device and replay differ"
+            );
             eprintln!(
                 "{core}: signal example agrees with replay on {} field units",
                 want.len() - 1
