@@ -13,7 +13,8 @@
 //!
 //! [`workflow`] runs the steps as single calls (the CLI and [`demo`] both use it);
 //! [`synth`] writes synthetic logs of any size; [`output`] writes files atomically and
-//! [`input`] opens them with bounds; [`digest`] and [`error`] are the leaves every step uses. Imports point down this
+//! [`input`] opens them with bounds; [`digest`], [`error`] and [`confidence`] (exact binomial
+//! bounds on rates) are the leaves every step uses. Imports point down this
 //! list only: no module imports one that imports it back.
 //!
 //! The library returns typed errors; only the `linegate` binary picks exit codes.
@@ -25,6 +26,7 @@
 // cold path, so their size does not matter.
 #![allow(clippy::result_large_err)]
 
+pub mod confidence;
 pub mod demo;
 pub mod digest;
 pub mod error;

@@ -587,7 +587,7 @@ fn validation_logs_are_audited_and_gated_each_on_its_own() {
     // A bad limit is a usage error naming the flag's syntax.
     let o = linegate(&on_demo("audit", &["--max-recheck", "lots"]), d);
     exits(&o, 2);
-    assert!(String::from_utf8_lossy(&o.stderr).contains("not a count or a rate"));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("not a count, a rate or a bound"));
 }
 
 /// The demo's holdout log with two readings pushed far outside their channel's range: unit 0
@@ -714,7 +714,7 @@ fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
             .any(|u| u["line"] == 2 && u["fixed_verdict"] == "FAULT"),
         "{wrong:?}"
     );
-    assert!(String::from_utf8_lossy(&o.stderr).contains("holdout: 1 of"));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("holdout: false NO-GO 1 of"));
 }
 
 #[test]

@@ -54,7 +54,15 @@ fn a_threshold_that_passes_nogo_units_fails_the_false_go_gate() {
     let nogo = train.labels.iter().filter(|&&l| l < 0).count();
     let g = gate(&r, "false GO", "train");
     assert!(!g.passed);
-    assert_eq!(g.value, format!("{nogo} of {}", train.len()));
+    // A false GO is counted among the NO-GO units, the only units it can happen to.
+    let rate = g.rate.unwrap();
+    assert_eq!((rate.count, rate.of), (nogo as u64, nogo as u64));
+    assert!(
+        g.value
+            .starts_with(&format!("{nogo} of {nogo} NO-GO units")),
+        "{}",
+        g.value
+    );
     assert_eq!(r.sets[0].false_go, nogo);
     assert!(
         r.reasons.iter().any(|x| x.contains("false GO")),
@@ -168,11 +176,67 @@ fn a_recheck_is_neither_right_nor_wrong_but_is_capped() {
 }
 
 #[test]
+fn every_rate_carries_its_exact_bounds_and_a_bound_gate_says_how_many_units_it_needs() {
+    let dir = tempfile::tempdir().unwrap();
+    let (fm, train, holdout) = demo(dir.path());
+    let others = [("holdout", &holdout)];
+    let run = |cfg| {
+        audit::release(&fm, &train, &others, QuantConfig::default(), &[], cfg)
+            .unwrap()
+            .1
+    };
+    let r = run(AuditConfig::default());
+    for (s, ds) in r.sets.iter().zip([&train, &holdout]) {
+        let go = ds.labels.iter().filter(|&&l| l > 0).count();
+        assert_eq!((s.go_units, s.nogo_units), (go, ds.len() - go));
+        // Each rate among the units it can happen to; 0 of n NO-GO units is a rate below
+        // the rule of three's bound, not a rate of 0 (1 − 0.05^(1/n), the k = 0 closed form).
+        assert_eq!(s.rates.false_go.of, s.nogo_units as u64);
+        assert_eq!(s.rates.false_nogo.of, s.go_units as u64);
+        assert_eq!(s.rates.recheck.of, s.units as u64);
+        assert_eq!(s.rates.fault.count, s.faults as u64);
+        if s.false_go == 0 {
+            let n = s.nogo_units as f64;
+            let rule_of_three = -(0.05f64.ln() / n).exp_m1();
+            assert!((s.rates.false_go.upper - rule_of_three).abs() < 1e-9);
+        }
+    }
+    // The holdout's NO-GO units are too few to show a false-GO rate below 1 % at 95 %
+    // even with none wrong (299 are needed): the gate fails and says so.
+    let cfg = AuditConfig {
+        max_false_go: "1%@95%".parse().unwrap(),
+        ..AuditConfig::default()
+    };
+    let r = run(cfg);
+    let g = gate(&r, "false GO", "holdout");
+    assert!(r.sets[1].nogo_units < 299 && r.sets[1].false_go == 0);
+    assert!(!g.passed && g.units_needed == Some(299));
+    assert!(
+        r.reasons.iter().any(|x| x.contains("at least 299")),
+        "{:?}",
+        r.reasons
+    );
+    // A bound the logs can show passes: 5 % at 90 % needs 45 units.
+    let cfg = AuditConfig {
+        max_false_go: "5%@90%".parse().unwrap(),
+        ..AuditConfig::default()
+    };
+    assert!(gate(&run(cfg), "false GO", "holdout").passed);
+}
+
+#[test]
 fn limits_parse_counts_and_rates() {
     assert_eq!("0".parse::<Limit>(), Ok(Limit::Count(0)));
     assert_eq!("12".parse::<Limit>(), Ok(Limit::Count(12)));
     assert_eq!("0.5%".parse::<Limit>(), Ok(Limit::Rate(0.005)));
-    for bad in ["-1", "x", "150%", "1.5", "%"] {
+    assert_eq!(
+        "1%@95%".parse::<Limit>(),
+        Ok(Limit::Upper {
+            rate: 0.01,
+            confidence: 0.95
+        })
+    );
+    for bad in ["-1", "x", "150%", "1.5", "%", "1%@", "1%@100%", "1@95%"] {
         assert!(bad.parse::<Limit>().is_err(), "{bad}");
     }
     // 1 % of 200 units is 2.

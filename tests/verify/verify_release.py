@@ -158,10 +158,28 @@ def read_log(path, fm):
     return units
 
 
-def limit_allows(limit, n, units):
-    if limit.endswith("%"):
-        return n <= float(limit[:-1]) / 100.0 * units
-    return n <= int(limit)
+def limit_allows(rule, n, units):
+    """README "Release gates": a count, a rate of the units the gate counts among, or a
+    one-sided Clopper-Pearson upper bound at a confidence level. The bound is checked by
+    its definition, not by a quantile: upper <= rate exactly when a binomial(units, rate)
+    count is at most n with probability <= 1 - confidence."""
+    if "Count" in rule:
+        return n <= rule["Count"]
+    if "Rate" in rule:
+        return n <= rule["Rate"] * units
+    r, conf = rule["Upper"]["rate"], rule["Upper"]["confidence"]
+    if n >= units:
+        return r >= 1.0
+    if r <= 0.0:
+        return False
+    if r >= 1.0:
+        return True
+    cdf = sum(
+        math.exp(math.lgamma(units + 1) - math.lgamma(i + 1) - math.lgamma(units - i + 1)
+                 + i * math.log(r) + (units - i) * math.log1p(-r))
+        for i in range(n + 1)
+    )
+    return cdf <= 1.0 - conf
 
 
 def main(argv):
@@ -218,10 +236,12 @@ def main(argv):
             print(f"{name}: the audit skipped rows; this check reads whole logs only", file=sys.stderr)
             return 2
         units = read_log(path, fm)
-        c = dict(units=0, false_go=0, false_nogo=0, recheck=0, faults=0, flips=0, float_correct=0, within_bound=0)
+        c = dict(units=0, go_units=0, nogo_units=0, false_go=0, false_nogo=0, recheck=0, faults=0, flips=0, float_correct=0, within_bound=0)
         min_margin = None
         for line, raw, y in units:
             c["units"] += 1
+            c["go_units"] += y > 0
+            c["nogo_units"] += y < 0
             verdict, score = kernel(m, raw)
             if verdict == "FAULT":
                 c["faults"] += 1
@@ -246,9 +266,11 @@ def main(argv):
             check(f"{name}: {k}", v, s[k])
         check(f"{name}: smallest margin (LSB)", min_margin, s["min_margin_lsb"])
         for g in rep["gates"]:
-            key = {"false GO": "false_go", "false NO-GO": "false_nogo", "RECHECK": "recheck"}.get(g["gate"])
+            # Each rate among the units it can happen to (README "Release gates").
+            key, among = {"false GO": ("false_go", "nogo_units"), "false NO-GO": ("false_nogo", "go_units"),
+                          "RECHECK": ("recheck", "units")}.get(g["gate"], (None, None))
             if g["log"] == name and key:
-                check(f"{name}: {g['gate']} gate", limit_allows(g["limit"], c[key], c["units"]), g["passed"])
+                check(f"{name}: {g['gate']} gate", limit_allows(g["rule"], c[key], c[among]), g["passed"])
         total += c["units"]
         all_within += c["within_bound"]
     check("guaranteed", all_within == 0, rep["guaranteed"])

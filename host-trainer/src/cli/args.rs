@@ -142,14 +142,17 @@ pub struct ReleaseArgs {
     /// Do not require the analytic rounding guarantee.
     #[arg(long)]
     pub no_require_guarantee: bool,
-    /// Most NO-GO units the device may pass, per log: a count (e.g. 0) or a rate (e.g. 0.1%).
+    /// Most NO-GO units the device may pass, per log: a count (e.g. 0), a rate of the log's
+    /// NO-GO units (e.g. 0.1%), or a rate the log must show at a confidence level (e.g.
+    /// 1%@95%: the exact one-sided upper bound on the false-GO rate at most 1 %).
     #[arg(long, value_name = "LIMIT", default_value = "0")]
     pub max_false_go: Limit,
-    /// Most GO units the device may turn away (NO-GO, or FAULT on a GO unit), per log: a count
-    /// or a rate.
+    /// Most GO units the device may turn away (NO-GO, or FAULT on a GO unit), per log: a count,
+    /// a rate of the log's GO units, or a bound such as 2%@95%.
     #[arg(long, value_name = "LIMIT", default_value = "1%")]
     pub max_false_nogo: Limit,
-    /// Most units sent to retest (RECHECK), per log: a count or a rate.
+    /// Most units sent to retest (RECHECK), per log: a count, a rate of all its units, or a
+    /// bound such as 5%@95%.
     #[arg(long, value_name = "LIMIT", default_value = "5%")]
     pub max_recheck: Limit,
     /// Do not fail units whose GO/NO-GO verdict the declared noise could swap (by default

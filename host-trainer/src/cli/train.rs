@@ -1,5 +1,6 @@
 //! `linegate train`: a float model from a bench log, with holdout and cross-validation.
 
+use host_trainer::confidence::rate_text;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 
@@ -190,11 +191,12 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
         );
     }
     if let Some(h) = &o.holdout {
+        let (fg, fng) = h.rates();
         say!(
-            "holdout: accuracy {:.4}, false GO {}, false NO-GO {}, FAULT {} (readings outside their range: the device shows NO-GO)",
+            "holdout: accuracy {:.4}; false GO {}; false NO-GO {}; FAULT {} (readings outside their range: the device shows NO-GO)",
             h.accuracy(),
-            h.false_go,
-            h.false_nogo,
+            rate_text(&fg, "NO-GO units"),
+            rate_text(&fng, "GO units"),
             h.faults
         );
     }
@@ -213,6 +215,16 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
                 r.accuracy,
                 r.counts.false_go,
                 r.counts.false_nogo
+            );
+        }
+        // The pooled held-out counts as rates, each with its exact bounds.
+        for r in &o.cross_validation {
+            let (fg, fng) = r.counts.rates();
+            say!(
+                "{:<12} false GO {}; false NO-GO {}",
+                r.trainer.name(),
+                rate_text(&fg, "NO-GO units"),
+                rate_text(&fng, "GO units")
             );
         }
     }

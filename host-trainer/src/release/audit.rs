@@ -22,117 +22,10 @@ use serde::Serialize;
 use shared_model::{CheckedModel, Verdict, blob};
 
 use crate::ingest::dataset::Dataset;
+pub use crate::release::gates::{AuditConfig, Gate, Limit};
+use crate::release::gates::{LogCounts, SetRates, gates, reason};
 use crate::release::quantise::{QuantConfig, QuantError, Quantised, fixed_margin, quantise};
 use crate::train::float_model::FloatModel;
-
-/// A cap on a count of units in one log: at most `N` units, or at most a share of the log.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-pub enum Limit {
-    /// At most this many units.
-    Count(usize),
-    /// At most this fraction of the log's units (0.01 is 1 %).
-    Rate(f64),
-}
-
-impl Limit {
-    /// Whether `n` of `units` is within the cap.
-    ///
-    /// ```
-    /// use host_trainer::release::audit::Limit;
-    /// assert!(Limit::Rate(0.01).allows(1, 100) && !Limit::Rate(0.01).allows(2, 100));
-    /// assert!(Limit::Count(0).allows(0, 5) && !Limit::Count(0).allows(1, 5));
-    /// ```
-    pub fn allows(self, n: usize, units: usize) -> bool {
-        match self {
-            Self::Count(c) => n <= c,
-            // Compared in integers where possible: n / units <= r exactly as n <= r * units.
-            Self::Rate(r) => n as f64 <= r * units as f64,
-        }
-    }
-}
-
-impl std::fmt::Display for Limit {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            Self::Count(c) => write!(f, "{c}"),
-            Self::Rate(r) => write!(f, "{}%", r * 100.0),
-        }
-    }
-}
-
-impl std::str::FromStr for Limit {
-    type Err = String;
-
-    /// `"3"` is a count, `"1%"` or `"0.5%"` a rate.
-    fn from_str(s: &str) -> Result<Self, String> {
-        let t = s.trim();
-        match t.strip_suffix('%') {
-            Some(p) => p
-                .trim()
-                .parse::<f64>()
-                .ok()
-                .filter(|v| v.is_finite() && (0.0..=100.0).contains(v))
-                .map(|v| Self::Rate(v / 100.0))
-                .ok_or_else(|| format!("'{s}' is not a rate (use e.g. 1% or 0.5%)")),
-            None => t
-                .parse::<usize>()
-                .map(Self::Count)
-                .map_err(|_| format!("'{s}' is not a count or a rate (use e.g. 0, 3 or 1%)")),
-        }
-    }
-}
-
-/// Gate thresholds. Every gate applies to every audited log on its own.
-#[derive(Clone, Copy, Debug)]
-pub struct AuditConfig {
-    /// Smallest acceptable fixed margin over correctly decided units, in LSB.
-    pub min_margin_lsb: f64,
-    /// Largest acceptable number of decision flips versus the float model.
-    pub max_flips: usize,
-    /// Require the analytic guarantee.
-    pub require_guarantee: bool,
-    /// NO-GO units the device would pass (GO): the dangerous error.
-    pub max_false_go: Limit,
-    /// GO units the device would turn away (NO-GO, or FAULT on a GO unit): lost yield.
-    pub max_false_nogo: Limit,
-    /// Units sent to retest (RECHECK): neither right nor wrong, but they cost a retest.
-    pub max_recheck: Limit,
-    /// Where noise is declared, a unit whose GO/NO-GO verdict the noise could swap must be
-    /// in the RECHECK band.
-    pub noise_gate: bool,
-}
-
-impl Default for AuditConfig {
-    /// The cautious defaults: no false GO at all, at most 1 % false NO-GO and 5 % RECHECK
-    /// per log, margin at least 1 LSB, no flips, the rounding guarantee and the noise gate.
-    fn default() -> Self {
-        Self {
-            min_margin_lsb: 1.0,
-            max_flips: 0,
-            require_guarantee: true,
-            max_false_go: Limit::Count(0),
-            max_false_nogo: Limit::Rate(0.01),
-            max_recheck: Limit::Rate(0.05),
-            noise_gate: true,
-        }
-    }
-}
-
-/// One gate on one log (or on all logs, for the model-wide gates).
-#[derive(Clone, Debug, PartialEq, Serialize)]
-pub struct Gate {
-    /// What is gated: "false GO", "false NO-GO", "RECHECK", "flips", "min margin",
-    /// "guarantee", "noise".
-    pub gate: &'static str,
-    /// The log it applies to, or "all".
-    pub log: String,
-    /// The measured value.
-    pub value: String,
-    /// The limit it was held to.
-    pub limit: String,
-    /// Whether it held.
-    pub passed: bool,
-}
 
 /// The rounding-error bound, in accumulator LSB.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Serialize)]
@@ -228,6 +121,13 @@ pub struct SetSummary {
     pub skipped_rows: usize,
     /// Units.
     pub units: usize,
+    /// Units labelled GO.
+    pub go_units: usize,
+    /// Units labelled NO-GO.
+    pub nogo_units: usize,
+    /// False GO, false NO-GO, RECHECK and FAULT as rates among the units each can happen
+    /// to, with exact (Clopper–Pearson) bounds.
+    pub rates: SetRates,
     /// Units the float model gets right.
     pub float_correct: usize,
     /// Units the fixed model gets right.
@@ -262,6 +162,25 @@ pub struct SetSummary {
     pub rounding_histogram: Vec<u64>,
     /// The largest rounding error of any scored unit, |fixed score − A·float score|, in LSB.
     pub rounding_max_lsb: f64,
+}
+
+impl SetSummary {
+    /// The figures the gates read.
+    pub fn counts(&self) -> LogCounts<'_> {
+        LogCounts {
+            name: &self.name,
+            units: self.units,
+            go_units: self.go_units,
+            nogo_units: self.nogo_units,
+            false_go: self.false_go,
+            false_nogo: self.false_nogo,
+            recheck: self.recheck,
+            faults: self.faults,
+            noise_unsafe: self.noise_unsafe,
+            flips: self.flips,
+            within_bound: self.within_bound,
+        }
+    }
 }
 
 /// Bins of the rounding-error histogram: below −B, 20 bins of B/10 from −B to B, above B.
@@ -775,7 +694,11 @@ pub fn audit(
         if name == "train" {
             float_min = a.float_min;
         }
-        sets.push(a.s);
+        let mut s = a.s;
+        s.go_units = ds.labels.iter().filter(|&&l| l > 0).count();
+        s.nogo_units = s.units - s.go_units;
+        s.rates = SetRates::of(&s.counts());
+        sets.push(s);
     }
     tight.sort_by(|a, b| a.0.total_cmp(&b.0));
     tight.truncate(TIGHTEST);
@@ -794,7 +717,15 @@ pub fn audit(
         .collect();
     let tolerance =
         risk.map(|radius| tolerance(q, fm, noise, &sets, radius, (units_at_risk, at_risk_count)));
-    let gates = gates(&sets, cfg, risk.is_some(), min_all, guaranteed, bound.total);
+    let counts: Vec<LogCounts<'_>> = sets.iter().map(SetSummary::counts).collect();
+    let gates = gates(
+        &counts,
+        cfg,
+        risk.is_some(),
+        min_all,
+        guaranteed,
+        bound.total,
+    );
     let reasons: Vec<String> = gates.iter().filter(|g| !g.passed).map(reason).collect();
     let passed = reasons.is_empty();
     let packed = released_blob(q, passed, None);
@@ -853,96 +784,6 @@ pub fn audit(
     };
     r.name_blob(&packed);
     r
-}
-
-/// Every gate: the decision gates on each log, then the model-wide ones.
-fn gates(
-    sets: &[SetSummary],
-    cfg: AuditConfig,
-    noise_declared: bool,
-    min_margin: f64,
-    guaranteed: bool,
-    bound: f64,
-) -> Vec<Gate> {
-    let mut out = Vec::new();
-    for s in sets {
-        let of = |n: usize| format!("{n} of {}", s.units);
-        for (gate, n, limit) in [
-            ("false GO", s.false_go, cfg.max_false_go),
-            ("false NO-GO", s.false_nogo, cfg.max_false_nogo),
-            ("RECHECK", s.recheck, cfg.max_recheck),
-        ] {
-            out.push(Gate {
-                gate,
-                log: s.name.clone(),
-                value: of(n),
-                limit: limit.to_string(),
-                passed: limit.allows(n, s.units),
-            });
-        }
-        if noise_declared && cfg.noise_gate {
-            out.push(Gate {
-                gate: "noise",
-                log: s.name.clone(),
-                value: of(s.noise_unsafe),
-                limit: "0 outside the RECHECK band".into(),
-                passed: s.noise_unsafe == 0,
-            });
-        }
-    }
-    let flips: usize = sets.iter().map(|s| s.flips).sum();
-    out.push(Gate {
-        gate: "flips",
-        log: "all".into(),
-        value: flips.to_string(),
-        limit: cfg.max_flips.to_string(),
-        passed: flips <= cfg.max_flips,
-    });
-    out.push(Gate {
-        gate: "min margin",
-        log: "all".into(),
-        value: if min_margin.is_finite() {
-            format!("{min_margin:.1} LSB")
-        } else {
-            "no decided unit".into()
-        },
-        limit: format!("{} LSB", cfg.min_margin_lsb),
-        passed: !(min_margin.is_finite() && min_margin < cfg.min_margin_lsb),
-    });
-    if cfg.require_guarantee {
-        let n: usize = sets.iter().map(|s| s.within_bound).sum();
-        out.push(Gate {
-            gate: "guarantee",
-            log: "all".into(),
-            value: format!("{n} decided units within the bound ({bound:.1} LSB)"),
-            limit: "0".into(),
-            passed: guaranteed,
-        });
-    }
-    out
-}
-
-/// The line a failed gate adds to the audit's reasons.
-fn reason(g: &Gate) -> String {
-    match g.gate {
-        "flips" => format!(
-            "{} decision flips versus the float model (allowed: {})",
-            g.value, g.limit
-        ),
-        "min margin" => format!(
-            "smallest fixed margin {} is below the required {}",
-            g.value, g.limit
-        ),
-        "guarantee" => format!("not guaranteed: {}", g.value),
-        "noise" => format!(
-            "{}: {} units could swap GO/NO-GO within the declared noise (widen --recheck-band, e.g. --apply-suggested-band)",
-            g.log, g.value
-        ),
-        _ => format!(
-            "{}: {} {} units (allowed: {})",
-            g.log, g.value, g.gate, g.limit
-        ),
-    }
 }
 
 /// The most the declared noise can move a score, in LSB; `None` if no noise is declared.

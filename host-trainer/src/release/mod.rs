@@ -5,10 +5,12 @@
 //! proves the rounding bound; [`pack`] writes the blob and inspects one; [`hex`] writes and
 //! reads Intel HEX images; [`replay`] prints the lines the device prints; [`sign`] holds the
 //! owner's release key and signs blobs (format version 2). [`features`] audits a model's
-//! signal features: ranges, overflow proofs and noise bounds.
+//! signal features: ranges, overflow proofs and noise bounds. [`gates`] holds the release
+//! gates, each rate with its exact bounds (`crate::confidence`).
 
 pub mod audit;
 pub mod features;
+pub mod gates;
 pub mod hex;
 pub mod pack;
 pub mod quantise;

@@ -228,6 +228,34 @@ pub fn markdown(
     );
     let _ = writeln!(
         s,
+        "\n### Rates with their exact bounds\n\nEach rate among the units it can happen to, with its two-sided {conf} % Clopper–Pearson interval and one-sided {conf} % upper bound: a count of 0 shows a rate below the upper bound, not a rate of 0.\n\n| log | false GO (of NO-GO units) | false NO-GO (of GO units) | RECHECK (of all) | FAULT (of all) |\n|---|---|---|---|---|",
+        conf = crate::confidence::DEFAULT_CONFIDENCE * 100.0
+    );
+    for t in &r.sets {
+        let cell = |x: &crate::confidence::Rate| {
+            use crate::confidence::percent;
+            format!(
+                "{}/{}: {} % [{}–{} %], ≤ {} %",
+                x.count,
+                x.of,
+                percent(x.rate),
+                percent(x.low),
+                percent(x.high),
+                percent(x.upper)
+            )
+        };
+        let _ = writeln!(
+            s,
+            "| {} | {} | {} | {} | {} |",
+            t.name,
+            cell(&t.rates.false_go),
+            cell(&t.rates.false_nogo),
+            cell(&t.rates.recheck),
+            cell(&t.rates.fault)
+        );
+    }
+    let _ = writeln!(
+        s,
         "\n### Every gate\n\n| gate | log | value | limit | result |\n|---|---|---|---|---|"
     );
     for g in &r.gates {

@@ -1,5 +1,6 @@
 //! Evaluation: holdout logs and k-fold cross-validation, per trainer.
 
+use crate::confidence::{DEFAULT_CONFIDENCE, Rate};
 use serde::Serialize;
 
 use crate::ingest::dataset::Dataset;
@@ -103,6 +104,8 @@ pub fn train(ds: &Dataset, idx: &[usize], kind: TrainerKind, cfg: TrainConfig) -
 pub struct Counts {
     /// Units evaluated.
     pub units: usize,
+    /// Units labelled GO among them.
+    pub go_units: usize,
     /// Correct decisions.
     pub correct: usize,
     /// NO-GO units the model passes.
@@ -124,8 +127,23 @@ impl Counts {
         }
     }
 
+    /// False GO among the NO-GO units and false NO-GO among the GO units, with exact
+    /// (Clopper–Pearson) bounds at 95 %.
+    pub fn rates(&self) -> (Rate, Rate) {
+        let nogo = self.units - self.go_units;
+        (
+            Rate::new(self.false_go as u64, nogo as u64, DEFAULT_CONFIDENCE),
+            Rate::new(
+                self.false_nogo as u64,
+                self.go_units as u64,
+                DEFAULT_CONFIDENCE,
+            ),
+        )
+    }
+
     fn add(&mut self, o: Counts) {
         self.units += o.units;
+        self.go_units += o.go_units;
         self.correct += o.correct;
         self.false_go += o.false_go;
         self.false_nogo += o.false_nogo;
@@ -138,6 +156,7 @@ pub fn evaluate(model: &Linear, threshold: f64, ds: &Dataset, idx: &[usize]) -> 
     let mut c = Counts::default();
     for (s, &i) in model.scores(ds, idx).iter().zip(idx) {
         c.units += 1;
+        c.go_units += usize::from(ds.labels[i] > 0);
         let fault = ds.fault(i).is_some();
         c.faults += usize::from(fault);
         let go = !fault && *s > threshold;
