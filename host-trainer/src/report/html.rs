@@ -14,7 +14,47 @@ h1{border-bottom:3px solid #0b6e4f;padding-bottom:.2em}h2{color:#0b6e4f;margin-t
 table{border-collapse:collapse;margin:.6em 0;font-size:.92em;font-variant-numeric:tabular-nums}\
 th,td{border:1px solid #9aa5b1;padding:.25em .55em;text-align:left}th{background:#e4e7eb}\
 tr,table,svg{page-break-inside:avoid;break-inside:avoid}code{font-size:.95em}\
-@media print{body{max-width:none;margin:0}h2{page-break-after:avoid}}";
+.verdict{border:5px solid;padding:.7em 1em;margin:1em 0 1.5em;font-size:1.1em}\
+.verdict .mark{display:block;font-weight:700;font-size:1.6em;letter-spacing:.02em}\
+.verdict.failed{border-color:#b00020;color:#6b0013;border-style:double;border-width:9px;\
+background:repeating-linear-gradient(135deg,#fde3e6 0 14px,#fff 14px 28px)}\
+.verdict.passed{border-color:#0b6e4f;background:#e3f2ec}body.failed h1{border-bottom-color:#b00020}\
+@media print{body{max-width:none;margin:0}h2{page-break-after:avoid}\
+.verdict{-webkit-print-color-adjust:exact;print-color-adjust:exact}}";
+
+/// The verdict as a reviewer must see it before anything else: a failed audit in a red,
+/// hatched, double-ruled box naming the failed gates (it reads as failed in black and white
+/// too), a passed one in a plain green box.
+fn verdict_banner(r: &AuditReport) -> String {
+    let units: usize = r.sets.iter().map(|t| t.units).sum();
+    if r.passed {
+        format!(
+            "<div class=\"verdict passed\" role=\"status\"><span class=\"mark\">&#10003; PASSED</span>all {} gates held on {} log(s), {units} units.</div>",
+            r.gates.len(),
+            r.sets.len()
+        )
+    } else {
+        let failed = r.gates.iter().filter(|g| !g.passed).count();
+        let mut reasons = String::new();
+        for x in &r.reasons {
+            let _ = write!(reasons, "<li>{}</li>", escape(x));
+        }
+        format!(
+            "<div class=\"verdict failed\" role=\"alert\"><span class=\"mark\">&#10007; FAILED: do not release</span>{failed} of {} gates failed on {} log(s), {units} units:<ul>{reasons}</ul></div>",
+            r.gates.len(),
+            r.sets.len()
+        )
+    }
+}
+
+/// Text for HTML: the five characters that could start markup or end an attribute.
+fn escape(t: &str) -> String {
+    t.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+        .replace('\'', "&#39;")
+}
 
 /// The Markdown report as HTML: tables become tables. Any HTML inside the text (a unit id
 /// from a log may hold some) is shown as text, never interpreted.
@@ -40,14 +80,14 @@ pub fn html(
 ) -> String {
     let names: Vec<String> = fm.channels.iter().map(|c| c.name.clone()).collect();
     let weights: Vec<f64> = r.weights.iter().map(|w| f64::from(*w)).collect();
+    let verdict = if r.passed { "PASSED" } else { "FAILED" };
     let mut page = format!(
-        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>Linegate audit</title>\n<style>{STYLE}</style></head><body>\n"
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>Linegate audit: {verdict}</title>\n<style>{STYLE}</style></head><body class=\"{}\">\n",
+        verdict.to_ascii_lowercase()
     );
-    let _ = writeln!(
-        page,
-        "<h1>Linegate release audit: {}</h1>",
-        if r.passed { "PASSED" } else { "FAILED" }
-    );
+    let _ = writeln!(page, "<h1>Linegate release audit: {verdict}</h1>");
+    page.push_str(&verdict_banner(r));
+    page.push('\n');
     let margins = format!(
         "<p>Every decided unit of every log, by its fixed margin from the device kernel (plus the RECHECK band, if any: the distance the rounding bound is compared with). Only a unit left of the red line, within the bound, could have had its decision changed by rounding.</p>{}\n<p>Float against fixed, unit by unit: every scored unit of every log by how far rounding moved its score (fixed score minus A times the float score). The bound says no unit lies outside the red lines at ±B.</p>{}",
         margin_bins_svg(r),

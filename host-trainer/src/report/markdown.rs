@@ -9,7 +9,32 @@ use crate::release::audit::{AuditReport, SweepRow, UnitRow};
 use crate::train::float_model::FloatModel;
 
 fn opt(v: Option<f64>) -> String {
-    v.map_or("–".into(), |v| format!("{v:.1}"))
+    v.map_or("–".into(), lsb)
+}
+
+/// A count of LSB: one decimal; from a million on also its order of magnitude, since
+/// 959809745.5 is hard to read and a wide accumulator makes such margins common.
+fn lsb(v: f64) -> String {
+    if v.abs() < 1e6 || !v.is_finite() {
+        format!("{v:.1}")
+    } else {
+        let e = v.abs().log10().floor() as i32;
+        format!("{v:.1} (≈ {:.2}·10^{e})", v / 10f64.powi(e))
+    }
+}
+
+/// A physical quantity: four significant digits at any scale, so a margin of 0.00002 V on a
+/// small-range channel does not print as 0.0000.
+fn physical(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let e = v.abs().log10().floor() as i32;
+    if (-4..7).contains(&e) {
+        format!("{v:.*}", (3 - e).max(0) as usize)
+    } else {
+        format!("{v:.3e}")
+    }
 }
 
 /// Table cells may hold text from a log (unit ids): a pipe would end the cell.
@@ -334,7 +359,12 @@ pub fn markdown(
         "\n## Channels\n\n| channel | unit | weight | smallest margin along this channel |\n|---|---|---|---|"
     );
     for ((name, m, unit), w) in r.channel_margin.iter().zip(&r.weights) {
-        let _ = writeln!(s, "| {} | {unit} | {w} | {m:.4} {unit} |", cell(name));
+        let _ = writeln!(
+            s,
+            "| {} | {unit} | {w} | {} {unit} |",
+            cell(name),
+            physical(*m)
+        );
     }
     if !r.features.is_empty() {
         let _ = writeln!(
@@ -391,11 +421,11 @@ pub fn markdown(
             };
             let _ = writeln!(
                 s,
-                "| {} | {} {} | {:.4} {} | {ratio} |",
+                "| {} | {} {} | {} {} | {ratio} |",
                 cell(&c.channel),
                 c.noise,
                 c.unit,
-                c.max_drift,
+                physical(c.max_drift),
                 c.unit
             );
         }
@@ -562,4 +592,20 @@ pub fn markdown(
         "\n*A go/no-go classifier is not by itself a safety function. This audit shows that rounding does not change the validated decisions; it does not validate the decisions.*"
     );
     s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers_stay_readable_at_any_scale() {
+        assert_eq!(physical(0.000_021_37), "2.137e-5");
+        assert_eq!(physical(0.000_213_7), "0.0002137");
+        assert_eq!(physical(12.5), "12.50");
+        assert_eq!(physical(-0.5), "-0.5000");
+        assert_eq!(physical(3.2e-9), "3.200e-9");
+        assert_eq!(lsb(12.25), "12.2");
+        assert_eq!(lsb(959_809_745.5), "959809745.5 (≈ 9.60·10^8)");
+    }
 }

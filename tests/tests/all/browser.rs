@@ -106,3 +106,72 @@ fn the_demo_audit_page_renders_in_a_browser() {
     assert!(bytes.starts_with(b"%PDF-"), "a PDF");
     assert!(bytes.len() > 50_000, "not blank: {} bytes", bytes.len());
 }
+
+/// A failed audit must look failed at a glance, and a passed one must not: the browser's
+/// page of each carries its own verdict box first, the failed one naming its failed gates.
+#[test]
+fn a_failed_audit_page_looks_failed_and_a_passed_one_does_not() {
+    use host_trainer::ingest::LogOptions;
+    use host_trainer::release::audit::{self, AuditConfig};
+    use host_trainer::release::quantise::QuantConfig;
+    use host_trainer::train::float_model::FloatModel;
+    let Some(bin) = chromium() else {
+        crate::skip_or_fail(
+            "audit verdict in a browser",
+            "Chromium is not installed (apt-get install chromium)",
+        );
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path().join("demo");
+    host_trainer::demo::run(&d, false).unwrap();
+    let fm = FloatModel::read(&d.join("model.json")).unwrap();
+    let train = host_trainer::workflow::load_for_model(
+        &d.join("train-synthetic.csv"),
+        &LogOptions::default(),
+        &fm,
+    )
+    .unwrap();
+    for (cfg, passed) in [
+        (AuditConfig::default(), true),
+        // A margin no model of the demo's has fails the audit.
+        (
+            AuditConfig {
+                min_margin_lsb: 1e15,
+                ..AuditConfig::default()
+            },
+            false,
+        ),
+    ] {
+        let (_, r) = audit::release(&fm, &train, &[], QuantConfig::default(), &[], cfg).unwrap();
+        assert_eq!(r.passed, passed);
+        let md = host_trainer::report::markdown(&fm, &r, None);
+        let page = dir.path().join(format!("{passed}.html"));
+        std::fs::write(&page, host_trainer::report::html(&fm, &r, None, &md)).unwrap();
+        let dom = headless(bin, &page, &["--dump-dom".into()]);
+        assert!(dom.status.success(), "chromium --dump-dom failed");
+        let text = String::from_utf8_lossy(&dom.stdout);
+        let (mine, other) = if passed {
+            ("verdict passed", "verdict failed")
+        } else {
+            ("verdict failed", "verdict passed")
+        };
+        let at = text.find(mine).unwrap_or_else(|| panic!("no '{mine}' box"));
+        assert!(!text.contains(other), "only one verdict box");
+        // The box comes before any chart or table.
+        for later in ["<svg", "<table"] {
+            assert!(
+                text.find(later).is_none_or(|k| k > at),
+                "{later} before the verdict"
+            );
+        }
+        if !passed {
+            assert!(text.contains("FAILED: do not release"));
+            assert!(
+                text[at..].contains("smallest fixed margin"),
+                "the failed gate is named"
+            );
+            assert!(text.contains("<title>Linegate audit: FAILED</title>"));
+        }
+    }
+}
