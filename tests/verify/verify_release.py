@@ -236,7 +236,7 @@ def main(argv):
             print(f"{name}: the audit skipped rows; this check reads whole logs only", file=sys.stderr)
             return 2
         units = read_log(path, fm)
-        c = dict(units=0, go_units=0, nogo_units=0, false_go=0, false_nogo=0, recheck=0, faults=0, flips=0, float_correct=0, within_bound=0)
+        c = dict(units=0, go_units=0, nogo_units=0, false_go=0, false_nogo=0, recheck=0, recheck_go=0, faults=0, flips=0, float_correct=0, within_bound=0)
         min_margin = None
         for line, raw, y in units:
             c["units"] += 1
@@ -252,6 +252,7 @@ def main(argv):
             float_ok = float_go == (y > 0)
             c["float_correct"] += float_ok
             c["recheck"] += verdict == "RECHECK"
+            c["recheck_go"] += verdict == "RECHECK" and y > 0
             c["false_go"] += verdict == "GO" and y < 0
             c["false_nogo"] += verdict == "NO-GO" and y > 0
             decided = verdict != "RECHECK"

@@ -138,6 +138,9 @@ pub struct SetSummary {
     pub faults: usize,
     /// Fixed verdicts of RECHECK.
     pub recheck: usize,
+    /// GO units among the RECHECK verdicts (the rest are NO-GO units): what the band costs
+    /// in retests of good units, and what it catches of bad ones.
+    pub recheck_go: usize,
     /// NO-GO units the device passes (fixed verdict GO).
     pub false_go: usize,
     /// GO units the device turns away: fixed verdict NO-GO, or a FAULT (a faulted GO unit
@@ -413,6 +416,7 @@ fn audit_set(
         a.s.flips += b.s.flips;
         a.s.faults += b.s.faults;
         a.s.recheck += b.s.recheck;
+        a.s.recheck_go += b.s.recheck_go;
         a.s.false_go += b.s.false_go;
         a.s.false_nogo += b.s.false_nogo;
         a.s.noise_unsafe += b.s.noise_unsafe;
@@ -498,6 +502,7 @@ fn audit_set(
         }
         a.s.fixed_correct += usize::from(decided && margin > 0.0);
         a.s.recheck += usize::from(!decided);
+        a.s.recheck_go += usize::from(!decided && label > 0);
         match (d.verdict, label > 0) {
             (Verdict::Go, false) => {
                 a.s.false_go += 1;

@@ -216,10 +216,29 @@ pub fn markdown(
         let _ = writeln!(s, "- {} log `{}`, SHA-256 `{}`", t.name, t.path, t.sha256);
     }
     if r.recheck_band > 0.0 {
+        // The band in the units a reviewer reads: integer scores on the device, float score,
+        // and the units of each class it holds back on every log.
+        let caught: Vec<String> = r
+            .sets
+            .iter()
+            .map(|t| {
+                format!(
+                    "{}: {} GO + {} NO-GO units",
+                    t.name,
+                    t.recheck_go,
+                    t.recheck - t.recheck_go
+                )
+            })
+            .collect();
         let _ = writeln!(
             s,
-            "- RECHECK half-band: {:.6} float score units around the threshold",
-            r.recheck_band
+            "- RECHECK band: device scores {} to {} ({} LSB wide), a half-band of {:.6} float score units ({} LSB) around the threshold; it holds back {}",
+            r.nogo_max.saturating_add(1),
+            r.go_min.saturating_sub(1),
+            (i128::from(r.go_min) - i128::from(r.nogo_max) - 1).max(0),
+            r.recheck_band,
+            lsb(r.recheck_band * r.scale),
+            caught.join("; ")
         );
     }
     for a in &r.applied {
