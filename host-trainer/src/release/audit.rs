@@ -871,26 +871,23 @@ pub struct SweepRow {
     pub passed: bool,
     /// Blob bytes.
     pub blob_bytes: usize,
-    /// What one classification costs the device, in words: the arithmetic the device
-    /// kernel runs the format in, and the instructions that took per channel on the
-    /// footprint model (Cortex-M0 and M3), scaled to this model's channels.
-    pub kernel_cost: String,
+    /// The arithmetic the device kernel runs the format in: 32 or 64 bits
+    /// (`CheckedModel::is_narrow`). Not the accumulator's proved width: a 32-bit
+    /// accumulator still runs in 64 bits when a channel's range is not ADC-sized.
+    pub kernel_bits: u8,
+    /// About how many instructions one classification takes on a Cortex-M0 and a
+    /// Cortex-M3 (the footprint model's measurement scaled to this model's channels),
+    /// window features not included (they cost the same in every format).
+    pub kernel_instructions: (usize, usize),
 }
 
-/// A format's cost on the device in plain words: which arithmetic the device kernel runs
-/// it in (`CheckedModel::is_narrow`) and what that measured on the footprint model.
-fn kernel_cost(channels: usize, narrow: bool) -> String {
+/// A format's cost on the device: the instructions classify took on the footprint model.
+fn kernel_instructions(channels: usize, narrow: bool) -> (usize, usize) {
     // Measured by firmware/qemu-app/footprint.sh (16 channels, QEMU instruction trace,
     // 2026-12-02): classify takes 714 (Cortex-M0) / 426 (Cortex-M3) instructions in 32-bit
     // arithmetic, 2,378 / 520 in 64-bit. Scaled per channel here.
     let (m0, m3) = if narrow { (714, 426) } else { (2378, 520) };
-    let per = |n: usize| n * channels / 16;
-    format!(
-        "{}-bit kernel: about {} (Cortex-M0) / {} (Cortex-M3) instructions",
-        if narrow { 32 } else { 64 },
-        per(m0),
-        per(m3)
-    )
+    (m0 * channels / 16, m3 * channels / 16)
 }
 
 /// Weight word lengths the sweep tries, for each input word length in [`SWEEP_INPUTS`].
@@ -954,7 +951,8 @@ pub fn sweep(
                 guaranteed: r.guaranteed,
                 passed: r.passed,
                 blob_bytes: r.blob_bytes,
-                kernel_cost: kernel_cost(n, q.model.is_narrow()),
+                kernel_bits: if q.model.is_narrow() { 32 } else { 64 },
+                kernel_instructions: kernel_instructions(n, q.model.is_narrow()),
             });
             if let Some(b) = &bar {
                 b.inc(1);

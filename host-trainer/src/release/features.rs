@@ -40,6 +40,26 @@ pub struct FeatureProof {
     pub noise_physical: Option<f64>,
     /// The channel's physical unit.
     pub unit: String,
+    /// About how many instructions computing the feature over one window takes on a
+    /// Cortex-M0 and a Cortex-M3: the window times the per-sample cost measured on the
+    /// footprint model ([`per_sample_instructions`]).
+    pub instructions: (u64, u64),
+}
+
+/// Instructions per sample, on Cortex-M0 and Cortex-M3, of each feature over a 1,024-sample
+/// window of 12-bit samples, window validation included: measured by
+/// `firmware/qemu-app/footprint.sh` (QEMU instruction trace, 2026-12-03; README table).
+pub fn per_sample_instructions(f: Feature) -> (f64, f64) {
+    match f {
+        Feature::Mean => (32.6, 15.2),
+        Feature::Rms => (73.4, 19.4),
+        Feature::Min | Feature::Max => (33.6, 19.2),
+        Feature::PeakToPeak => (47.6, 22.2),
+        Feature::AbsPeak => (36.2, 24.2),
+        Feature::StdDev => (82.9, 26.4),
+        Feature::ZeroCrossings => (99.1, 36.2),
+        Feature::Band { .. } => (371.3, 69.6),
+    }
 }
 
 /// `n` with thousands separators, for proofs a person reads.
@@ -123,6 +143,8 @@ pub fn feature_proofs(fm: &FloatModel) -> Vec<FeatureProof> {
                 .unsigned_abs();
             let noise_counts = signal.noise_counts();
             let noise_bound = noise_counts.map(|d| f.noise_bound(d));
+            let (m0, m3) = per_sample_instructions(f.feature());
+            let n = f64::from(signal.window);
             Some(FeatureProof {
                 channel: c.name.clone(),
                 signal: signal.name.clone(),
@@ -140,6 +162,7 @@ pub fn feature_proofs(fm: &FloatModel) -> Vec<FeatureProof> {
                 noise_bound,
                 noise_physical: c.noise,
                 unit: c.unit.clone(),
+                instructions: ((m0 * n).round() as u64, (m3 * n).round() as u64),
             })
         })
         .collect()

@@ -388,13 +388,13 @@ pub fn markdown(
     if !r.features.is_empty() {
         let _ = writeln!(
             s,
-            "\n## Signal features\n\nEach feature is an integer the device computes from its signal's window with the same code as this audit (shared-model). Its range is proved from the declared sample range and window; that range is the channel's valid raw range, so the rounding bound and noise analysis above cover the feature as a reading. cᵢ = sᵢ − offset; A = the largest \\|cᵢ\\|.\n\n| channel | signal | feature | window | valid samples | offset | A | proved range | noise per sample | noise bound (counts) | noise bound |\n|---|---|---|---|---|---|---|---|---|---|---|"
+            "\n## Signal features\n\nEach feature is an integer the device computes from its signal's window with the same code as this audit (shared-model). Its range is proved from the declared sample range and window; that range is the channel's valid raw range, so the rounding bound and noise analysis above cover the feature as a reading. cᵢ = sᵢ − offset; A = the largest \\|cᵢ\\|.\n\n| channel | signal | feature | window | valid samples | offset | A | proved range | noise per sample | noise bound (counts) | noise bound | instructions M0 / M3 |\n|---|---|---|---|---|---|---|---|---|---|---|---|"
         );
         for f in &r.features {
             let or_dash = |v: Option<String>| v.unwrap_or_else(|| "–".into());
             let _ = writeln!(
                 s,
-                "| {} | {} | {} | {} | {}..={} | {} | {} | {}..={} | {} | {} | {} |",
+                "| {} | {} | {} | {} | {}..={} | {} | {} | {}..={} | {} | {} | {} | {} / {} |",
                 cell(&f.channel),
                 cell(&f.signal),
                 cell(&f.feature),
@@ -408,6 +408,8 @@ pub fn markdown(
                 or_dash(f.noise_counts.map(|d| format!("{d} counts"))),
                 or_dash(f.noise_bound.map(|b| b.to_string())),
                 or_dash(f.noise_physical.map(|n| format!("{n:.6} {}", f.unit))),
+                f.instructions.0,
+                f.instructions.1,
             );
         }
         let _ = writeln!(
@@ -480,7 +482,7 @@ pub fn markdown(
     if let Some((rows, best)) = sweep {
         let _ = writeln!(
             s,
-            "\n## Word-length sweep\n\n| weights | inputs | acc | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes | device cost per classification |\n|---|---|---|---|---|---|---|---|---|---|"
+            "\n## Word-length sweep\n\n| weights | inputs | accumulator (proved bits) | kernel arithmetic | instructions M0 / M3 | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes |\n|---|---|---|---|---|---|---|---|---|---|---|"
         );
         for (i, w) in rows.iter().enumerate() {
             let mark = if Some(i) == *best {
@@ -490,24 +492,36 @@ pub fn markdown(
             };
             let _ = writeln!(
                 s,
-                "| {}-bit{mark} | {}-bit | {} | {} | {} | {} | {} | {} | {} | {} |",
+                "| {}-bit{mark} | {}-bit | {} | {}-bit | {} / {} | {} | {} | {} | {} | {} | {} |",
                 w.weight_bits,
                 w.input_bits,
                 w.acc_bits,
+                w.kernel_bits,
+                w.kernel_instructions.0,
+                w.kernel_instructions.1,
                 opt(w.min_margin_lsb),
                 w.margin_over_bound
                     .map_or("–".into(), |v| format!("{v:.2}")),
                 w.flips,
                 if w.guaranteed { "yes" } else { "no" },
                 if w.passed { "yes" } else { "no" },
-                w.blob_bytes,
-                w.kernel_cost
+                w.blob_bytes
             );
         }
         let _ = writeln!(
             s,
-            "\nDevice cost: the arithmetic the device kernel runs the format in (32-bit when the accumulator proof allows it and every channel's range is ADC-sized, else 64-bit), and the instructions one classification took per channel on the footprint model under QEMU (`firmware/qemu-app/footprint.sh`, 16 channels), scaled to this model's channels. Cores without a 64-bit multiply (Cortex-M0, M0+) pay most for 64-bit. Recommended: the passing format with the narrowest weights, then the narrowest inputs."
+            "\nAccumulator: the width the overflow proof needs. Kernel arithmetic: what the device kernel runs the format in, 32-bit when the accumulator proof allows it and every channel's range is ADC-sized, else 64-bit (so a 32-bit accumulator can still run in 64 bits). Instructions: what one classification took per channel on the footprint model under QEMU (`firmware/qemu-app/footprint.sh`, 16 channels), scaled to this model's channels, on a Cortex-M0 and a Cortex-M3. Cores without a 64-bit multiply (Cortex-M0, M0+) pay most for 64-bit. Recommended: the passing format with the narrowest weights, then the narrowest inputs."
         );
+        let (m0, m3) = r.features.iter().fold((0, 0), |(a, b), f| {
+            (a + f.instructions.0, b + f.instructions.1)
+        });
+        if !r.features.is_empty() {
+            let _ = writeln!(
+                s,
+                "\nThe model's {} window features add about {m0} (Cortex-M0) / {m3} (Cortex-M3) instructions to every classification, whatever the format (per-sample costs measured by `footprint.sh` on 1,024-sample windows, times each feature's window; listed per feature under \"Signal features\").",
+                r.features.len()
+            );
+        }
     }
     let _ = writeln!(
         s,

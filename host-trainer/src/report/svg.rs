@@ -4,7 +4,8 @@
 use plotters::prelude::*;
 
 use crate::release::audit::{
-    AuditReport, MARGIN_BINS, ROUNDING_BINS, SweepRow, margin_bin_edges, rounding_bin_edges,
+    AuditReport, MARGIN_BINS, ROUNDING_BINS, SetSummary, SweepRow, margin_bin_edges,
+    rounding_bin_edges,
 };
 
 /// Colours of the logs in the margin histogram, in the report's order (train first).
@@ -31,8 +32,8 @@ struct Binned<'a> {
     x_desc: &'a str,
     /// Text under the axis, each at its x.
     labels: Vec<(f64, String)>,
-    /// Each log's name, unit count and bin counts.
-    series: Vec<(String, usize, Vec<u64>)>,
+    /// Each log's legend (its name and what the chart counts of it) and bin counts.
+    series: Vec<(String, Vec<u64>)>,
     /// A band shaded grey behind the bars, from x to x, named at its top.
     shaded: Option<(f64, f64, &'static str)>,
     /// Bins drawn (from the first).
@@ -43,11 +44,25 @@ struct Binned<'a> {
     counted: Vec<usize>,
 }
 
+/// A log's legend on the unit charts: they count every unit but the FAULTs, which have no
+/// score; saying so keeps the count here and the log's unit count elsewhere agreeing.
+fn legend(s: &SetSummary) -> String {
+    match s.faults {
+        0 => format!("{} ({} units)", s.name, s.units),
+        f => format!(
+            "{} ({} of {} units; {f} FAULT)",
+            s.name,
+            s.units - f,
+            s.units
+        ),
+    }
+}
+
 fn binned_svg(b: &Binned) -> String {
     let top = b
         .series
         .iter()
-        .flat_map(|s| s.2.iter().copied())
+        .flat_map(|s| s.1.iter().copied())
         .max()
         .unwrap_or(1)
         .max(1) as f64;
@@ -99,7 +114,7 @@ fn binned_svg(b: &Binned) -> String {
             }
             // The logs' bars share the middle 80 % of each bin.
             let w = 0.8 / b.series.len().max(1) as f64;
-            for (j, (name, units, counts)) in b.series.iter().enumerate() {
+            for (j, (legend, counts)) in b.series.iter().enumerate() {
                 let colour = SET_COLOURS[j.min(SET_COLOURS.len() - 1)];
                 let _ = chart
                     .draw_series(counts.iter().take(b.shown).enumerate().map(|(i, &c)| {
@@ -107,10 +122,9 @@ fn binned_svg(b: &Binned) -> String {
                         Rectangle::new([(x0, 0.0), (x0 + w, c as f64)], colour.filled())
                     }))
                     .map(|a| {
-                        a.label(format!("{name} ({units} units)"))
-                            .legend(move |(x, y)| {
-                                Rectangle::new([(x, y - 5), (x + 12, y + 5)], colour.filled())
-                            })
+                        a.label(legend).legend(move |(x, y)| {
+                            Rectangle::new([(x, y - 5), (x + 12, y + 5)], colour.filled())
+                        })
                     });
                 // The counts a reviewer asks about, however small their bars.
                 let _ = chart.draw_series(
@@ -162,14 +176,14 @@ pub fn margin_bins_svg(r: &AuditReport) -> String {
             let counts: Vec<u64> = std::iter::once(s.recheck as u64)
                 .chain(s.margin_histogram.iter().copied())
                 .collect();
-            (s.name.clone(), s.units, counts)
+            (legend(s), counts)
         })
         .collect();
     let recheck: usize = r.sets.iter().map(|s| s.recheck).sum();
     // Up to the last bin holding a unit (and at least past the bound's bins).
     let shown = series
         .iter()
-        .filter_map(|s| s.2.iter().rposition(|&c| c > 0))
+        .filter_map(|s| s.1.iter().rposition(|&c| c > 0))
         .max()
         .map_or(5, |k| (k + 2).clamp(5, MARGIN_BINS + 1));
     binned_svg(&Binned {
@@ -201,13 +215,7 @@ pub fn rounding_svg(r: &AuditReport) -> String {
         .sets
         .iter()
         .filter(|s| s.rounding_histogram.len() == ROUNDING_BINS)
-        .map(|s| {
-            (
-                s.name.clone(),
-                s.units - s.faults,
-                s.rounding_histogram.clone(),
-            )
-        })
+        .map(|s| (legend(s), s.rounding_histogram.clone()))
         .collect();
     let worst = r
         .sets
@@ -392,6 +400,20 @@ mod tests {
     use super::*;
 
     #[test]
+    fn a_log_with_faults_says_what_its_charts_count() {
+        let s = SetSummary {
+            name: "holdout".into(),
+            units: 171,
+            faults: 2,
+            ..Default::default()
+        };
+        // The charts count 169 units; the log has 171 everywhere else.
+        assert_eq!(legend(&s), "holdout (169 of 171 units; 2 FAULT)");
+        let s = SetSummary { faults: 0, ..s };
+        assert_eq!(legend(&s), "holdout (171 units)");
+    }
+
+    #[test]
     fn every_channel_is_labelled_up_to_32() {
         let names: Vec<String> = (0..32).map(|i| format!("chan_{i:02}")).collect();
         let values: Vec<f64> = (0..32).map(|i| f64::from(i) - 10.0).collect();
@@ -417,7 +439,8 @@ mod tests {
             guaranteed: passed,
             passed,
             blob_bytes: 180 + usize::from(weight_bits),
-            kernel_cost: String::new(),
+            kernel_bits: 32,
+            kernel_instructions: (0, 0),
         }
     }
 
