@@ -70,14 +70,20 @@ fn binned_svg(b: &Binned) -> String {
     {
         let root = SVGBackend::with_string(&mut out, (800, 420)).into_drawing_area();
         let _ = root.fill(&WHITE);
-        // Below zero: the bins' names.
-        let floor = -0.12 * top;
+        // Below zero: the bins' names, on two staggered rows when there are many bins, so
+        // neighbouring names never overlap.
+        let stagger = b.labels.len() > 10;
+        let floor = if stagger { -0.2 } else { -0.12 } * top;
+        // Headroom above the tallest bar for the legend (a row per log), so it never
+        // covers a bar.
+        let ceiling = top * (1.2 + 0.1 * b.series.len() as f64);
         if let Ok(mut chart) = ChartBuilder::on(&root)
             .caption(&b.caption, ("sans-serif", 17))
             .margin(12)
+            .margin_right(40)
             .x_label_area_size(30)
             .y_label_area_size(80)
-            .build_cartesian_2d(0.0..b.shown as f64, floor..top * 1.15)
+            .build_cartesian_2d(0.0..b.shown as f64, floor..ceiling)
         {
             let _ = chart
                 .configure_mesh()
@@ -94,12 +100,9 @@ fn binned_svg(b: &Binned) -> String {
                 .x_desc(b.x_desc)
                 .y_desc("units")
                 .draw();
-            let _ = chart.draw_series(b.labels.iter().map(|(x, n)| {
-                Text::new(
-                    n.clone(),
-                    (*x, floor * 0.45),
-                    ("sans-serif", 12).into_font(),
-                )
+            let _ = chart.draw_series(b.labels.iter().enumerate().map(|(i, (x, n))| {
+                let row = if stagger && i % 2 == 1 { 0.75 } else { 0.3 };
+                Text::new(n.clone(), (*x, floor * row), ("sans-serif", 12).into_font())
             }));
             if let Some((x0, x1, name)) = b.shaded {
                 let _ = chart.draw_series(std::iter::once(Rectangle::new(
@@ -152,6 +155,7 @@ fn binned_svg(b: &Binned) -> String {
             }));
             let _ = chart
                 .configure_series_labels()
+                .position(SeriesLabelPosition::UpperRight)
                 .border_style(BLACK)
                 .background_style(WHITE.mix(0.9))
                 .label_font(("sans-serif", 14))
