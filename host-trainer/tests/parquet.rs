@@ -472,3 +472,51 @@ fn damaged_parquet_files_are_refused() {
         "{err}"
     );
 }
+
+/// A page whose bytes no longer match its stored CRC-32 is refused, naming the file, the
+/// row group and the column; the same file with the bit intact reads. Outside reference:
+/// pyarrow writes the page checksums (`write_page_checksum=True`) and, reading with
+/// `page_checksum_verification=True`, refuses the damaged file too.
+#[test]
+fn a_page_whose_checksum_does_not_match_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // Plain (no dictionary, no compression) pages, so the values are the page's bytes: the
+    // flipped bit is found by locating column b's data page and 1234.5 inside it, and turns
+    // that reading into a tiny number no check of ranges would catch.
+    let script = r#"
+import sys, struct
+import pyarrow as pa, pyarrow.parquet as pq
+n = 1000
+a = [float(i % 97) for i in range(n)]
+b = [float(i % 89) for i in range(n)]
+b[777] = 1234.5
+lab = ["GO" if a[i] > 48 else "NO-GO" for i in range(n)]
+t = pa.table({"a": pa.array(a), "b": pa.array(b), "label": pa.array(lab)})
+good, bad = sys.argv[1] + "/good.parquet", sys.argv[1] + "/bad.parquet"
+pq.write_table(t, good, compression="NONE", use_dictionary=False, write_page_checksum=True)
+col = pq.ParquetFile(good).metadata.row_group(0).column(1)
+assert col.path_in_schema == "b"
+start = col.data_page_offset
+data = bytearray(open(good, "rb").read())
+# The page header's statistics hold 1234.5 too (as the maximum); the value is last.
+k = data.rindex(struct.pack("<d", 1234.5), start, start + col.total_compressed_size)
+data[k + 7] ^= 0x40
+open(bad, "wb").write(bytes(data))
+pq.read_table(good, page_checksum_verification=True)
+assert pq.read_table(bad)["b"][777].as_py() != 1234.5, "the flipped bit is in b's values"
+try:
+    pq.read_table(bad, page_checksum_verification=True)
+    sys.exit("pyarrow read the damaged page")
+except OSError as e:
+    assert "checksum" in str(e).lower() or "crc" in str(e).lower(), e
+"#;
+    if !pyarrow(script, &[d]) {
+        return;
+    }
+    exits(&linegate(&["check", "good.parquet"], d), 0);
+    let err = exits(&linegate(&["check", "bad.parquet"], d), 2);
+    for want in ["bad.parquet", "row group 0, column 'b'", "checksum"] {
+        assert!(err.contains(want), "wanted '{want}' in: {err}");
+    }
+}
