@@ -191,7 +191,7 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
     }
     if let Some(h) = &o.holdout {
         say!(
-            "holdout: accuracy {:.4}, false GO {}, false NO-GO {}, FAULT {} (readings outside their range: the device shows NO-GO)",
+            "holdout: accuracy {:.4}, false GO {}, false NO-GO {}, FAULT {} (a reading or window the device refuses: it shows NO-GO)",
             h.accuracy(),
             h.false_go,
             h.false_nogo,

@@ -46,6 +46,10 @@ use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 use crate::ingest::signal_scale::SignalScale;
 use crate::ingest::skip::SkipReport;
 
+/// Said where a training log refuses a unit whose window the device would refuse: a log
+/// evaluated by a model keeps it as a FAULT unit instead.
+const TRAINING_REFUSES: &str = " (a log read to train refuses such a unit; a holdout, audited or replayed log keeps it as a FAULT unit, as the device refuses it)";
+
 /// Names of the optional column that numbers a unit's samples.
 pub const SAMPLE_NAMES: &[&str] = &["sample", "sample_index"];
 
@@ -155,13 +159,19 @@ struct Open {
 /// `opts.ignore` (`opts.channels` when given). Errors of one unit returned by `each`
 /// (an [`InputError::Signal`]) skip the unit under `opts.skip_bad_rows`, as the reader's own.
 ///
+/// `keep_faults` (a log evaluated by a model: holdout, audit, replay): a window shorter or
+/// longer than its signal's is handed on as it is, so that the device's kernel refuses it
+/// (a FAULT unit), as it refuses a sample out of range; a training log refuses such a unit.
+///
 /// # Errors
 /// I/O, a missing column, a unit that is not whole (see the module documentation).
+#[allow(clippy::too_many_arguments)]
 pub fn stream_signal_units(
     path: &Path,
     opts: &LogOptions,
     signals: &[SignalScale],
     readings: Option<&[String]>,
+    keep_faults: bool,
     skipped: &mut SkipReport,
     mut each: impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
 ) -> Result<SignalLogHeader, InputError> {
@@ -252,7 +262,15 @@ pub fn stream_signal_units(
         if !any || id != open.id.as_str() {
             if any {
                 finish(
-                    path, opts, &cols, signals, longest, &mut open, skipped, &mut each,
+                    path,
+                    opts,
+                    &cols,
+                    signals,
+                    longest,
+                    keep_faults,
+                    &mut open,
+                    skipped,
+                    &mut each,
                 )?;
             }
             if let Some(first) = seen.insert(id.to_string(), line) {
@@ -269,7 +287,15 @@ pub fn stream_signal_units(
             any = true;
         }
         if open.fault.is_none()
-            && let Err(message) = open.row(&record, &cols, signals, longest, decimal_comma, opts)
+            && let Err(message) = open.row(
+                &record,
+                &cols,
+                signals,
+                longest,
+                keep_faults,
+                decimal_comma,
+                opts,
+            )
         {
             let e = InputError::Signal {
                 path: path.into(),
@@ -293,7 +319,15 @@ pub fn stream_signal_units(
     }
     if any {
         finish(
-            path, opts, &cols, signals, longest, &mut open, skipped, &mut each,
+            path,
+            opts,
+            &cols,
+            signals,
+            longest,
+            keep_faults,
+            &mut open,
+            skipped,
+            &mut each,
         )?;
     }
     drop(rdr);
@@ -336,13 +370,14 @@ fn finish(
     cols: &Columns,
     signals: &[SignalScale],
     longest: usize,
+    keep_faults: bool,
     open: &mut Open,
     skipped: &mut SkipReport,
     each: &mut impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
 ) -> Result<(), InputError> {
     let last = open.lines.last().copied().unwrap_or(0);
     let fault = open.fault.take().or_else(|| {
-        (open.rows < longest).then(|| {
+        (open.rows < longest && !keep_faults).then(|| {
             let short: Vec<String> = signals
                 .iter()
                 .filter(|s| usize::from(s.window) > open.rows)
@@ -353,7 +388,7 @@ fn finish(
                 line: last,
                 unit: open.id.clone(),
                 message: format!(
-                    "short window: the unit has {} rows ({})",
+                    "short window: the unit has {} rows ({}){TRAINING_REFUSES}",
                     open.rows,
                     short.join(", ")
                 ),
@@ -405,20 +440,23 @@ impl Open {
         self.fault = None;
     }
 
-    /// Takes one row of the unit; `Err` is the message of the unit's fault.
+    /// Takes one row of the unit; `Err` is the message of the unit's fault. `keep`: keep
+    /// windows of any length (see [`stream_signal_units`]).
+    #[allow(clippy::too_many_arguments)]
     fn row(
         &mut self,
         record: &csv::ByteRecord,
         cols: &Columns,
         signals: &[SignalScale],
         longest: usize,
+        keep: bool,
         decimal_comma: bool,
         opts: &LogOptions,
     ) -> Result<(), String> {
         let k = self.rows;
-        if k >= longest {
+        if k >= longest && !keep {
             return Err(format!(
-                "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?"
+                "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?{TRAINING_REFUSES}"
             ));
         }
         let text = |f: &[u8]| String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned();
@@ -459,19 +497,28 @@ impl Open {
             let c = cols.signals[j];
             let cell = record[c].trim_ascii();
             let n = usize::from(s.window);
-            if k >= n {
-                if !cell.is_empty() {
+            // Where faults are kept a window may end early or run on: its samples are the
+            // non-empty cells from the unit's first row on, without a gap.
+            if cell.is_empty() {
+                if k < n && !keep {
                     return Err(format!(
-                        "over-long window: signal '{}' has a sample {k} (0-based), beyond its window of {n} samples; leave its cells empty after the window",
+                        "gap: signal '{}' has no sample {k} (0-based; an empty cell)",
                         s.name
                     ));
                 }
                 continue;
             }
-            if cell.is_empty() {
+            if k >= n && !keep {
                 return Err(format!(
-                    "gap: signal '{}' has no sample {k} (0-based; an empty cell)",
+                    "over-long window: signal '{}' has a sample {k} (0-based), beyond its window of {n} samples; leave its cells empty after the window{TRAINING_REFUSES}",
                     s.name
+                ));
+            }
+            if w.len() != k {
+                return Err(format!(
+                    "gap: signal '{}' has no sample {} (0-based; an empty cell), but a sample {k}",
+                    s.name,
+                    w.len()
                 ));
             }
             let v = parse_number(cell, decimal_comma)
@@ -670,7 +717,7 @@ pub fn window_error(
             usize::from(index),
             path,
             format!(
-                "signal '{}', sample {index} (0-based): raw {raw} is outside the signal's valid samples [{}, {}]",
+                "signal '{}', sample {index} (0-based): raw {raw} is outside the signal's valid samples [{}, {}]{TRAINING_REFUSES}",
                 signal.name, signal.raw_min, signal.raw_max
             ),
         ),
@@ -678,7 +725,7 @@ pub fn window_error(
             0,
             path,
             format!(
-                "signal '{}': {got} samples where the window is {expected}",
+                "signal '{}': {got} samples where the window is {expected}{TRAINING_REFUSES}",
                 signal.name
             ),
         ),
@@ -689,8 +736,10 @@ pub fn window_error(
 /// (each unit's feature values computed by the shared integer code).
 ///
 /// # Errors
-/// As [`stream_signal_units`]; a sample outside its signal's valid range or a reading
-/// outside its channel's range (the device would refuse the unit); too few units.
+/// As [`stream_signal_units`]; too few units. In a training log (a sheet's channels) a
+/// window the device would refuse (a sample outside its signal's valid range, a window
+/// shorter or longer than declared) or a reading outside its channel's range is an error;
+/// in a log read for a model the unit is kept as the FAULT the device gives.
 pub fn read_signal_log(
     path: &Path,
     opts: &LogOptions,
@@ -733,11 +782,14 @@ pub fn read_signal_log(
         (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     let (mut ids, mut times) = (Vec::<String>::new(), Vec::<String>::new());
     let mut row = Vec::with_capacity(computed.len());
+    // A log read for a model keeps the units the device refuses, as FAULT units.
+    let keep_faults = model.is_some();
     let header = stream_signal_units(
         path,
         opts,
         signals,
         reading_names.as_deref(),
+        keep_faults,
         &mut skipped,
         |u| {
             if ids.len() >= opts.max_rows {
@@ -747,12 +799,16 @@ pub fn read_signal_log(
                 });
             }
             row.clear();
-            for &(j, f) in &computed {
+            for (&(j, f), c) in computed.iter().zip(&features) {
                 let w = u.windows.get(j).map_or(&[][..], Vec::as_slice);
-                row.push(
-                    f.compute(w)
-                        .map_err(|e| window_error(path, u, &signals[j], e))?,
-                );
+                row.push(match (f.compute(w), keep_faults) {
+                    (Ok(v), _) => v,
+                    // The device refuses the window: the unit is a FAULT, as one with a
+                    // reading out of range is (a count the kernel refuses on that channel).
+                    (Err(e), true) => refused_count(c)
+                        .ok_or_else(|| window_error(path, u, &signals[j], e))?,
+                    (Err(e), false) => return Err(window_error(path, u, &signals[j], e)),
+                });
             }
             values.extend_from_slice(&row);
             physical.extend_from_slice(u.readings);
@@ -803,6 +859,8 @@ pub fn read_signal_log(
             let v = physical[i * nr + r];
             match s.to_raw(v) {
                 Some(x) => raw_readings[r] = x,
+                // As the device reads it: the kernel FAULTs the unit.
+                None if keep_faults => raw_readings[r] = s.raw_reading(v),
                 None => {
                     let e = InputError::OutOfRange {
                         path: path.into(),
@@ -849,6 +907,12 @@ pub fn read_signal_log(
         });
     }
     Ok(ds)
+}
+
+/// A count outside channel `c`'s valid range, which the kernel refuses (FAULT) on that
+/// channel; `None` only for a channel whose range is every 32-bit count.
+fn refused_count(c: &ChannelScale) -> Option<i32> {
+    c.raw_max.checked_add(1).or_else(|| c.raw_min.checked_sub(1))
 }
 
 /// A model's reading channels (those that are not features), in channel order: the

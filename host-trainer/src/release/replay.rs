@@ -3,7 +3,8 @@
 //! First line `# model <model id> blob <blob id>` (the blob id is the blob's CRC-32 in
 //! eight hex digits), then one line per unit in log order (0-based index):
 //! `<index> <GO|NO-GO|RECHECK> <score>` or `<index> FAULT ch<channel>`; for a model with
-//! signal features also `<index> FAULT signal<k>` (a window refused: a sample out of range).
+//! signal features also `<index> FAULT signal<k>` (a window refused: a sample out of range,
+//! or a window shorter or longer than declared).
 
 use shared_model::{CheckedModel, CheckedSignalModel, Fault, SignalFault};
 
@@ -61,7 +62,7 @@ pub fn replay_signal_log(
         .map(|c| c.name.clone())
         .collect();
     let mut index = 0usize;
-    stream_signal_units(path, opts, &fm.signals, Some(&names), skipped, |u| {
+    stream_signal_units(path, opts, &fm.signals, Some(&names), true, skipped, |u| {
         let raw = device_readings(&fm.channels, u);
         let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
         each(&signal_line(index, model, &raw, &windows), &raw, u.windows);

@@ -1,0 +1,141 @@
+//! Units the device refuses, in signal logs: a sample outside its signal's valid range, a
+//! window shorter or longer than declared. The device's kernel (`classify_windows`) answers
+//! such a unit with a FAULT, so a log evaluated by a model (`train --holdout`, `audit`,
+//! `replay`) must count it as one FAULT unit, the same unit in every command; only a
+//! training log refuses it, saying why.
+
+mod common;
+
+use std::path::Path;
+
+use common::{exits, linegate, write};
+
+/// Signal `x`: 4 samples, raw 0..=100 (lsb 1), its mean and peak-to-peak as features.
+const SHEET: &str = "[[signal]]\nname = \"x\"\nraw_min = 0\nraw_max = 100\nwindow = 4\n\n\
+[[feature]]\nname = \"x_mean\"\nsignal = \"x\"\nkind = \"mean\"\n\n\
+[[feature]]\nname = \"x_p2p\"\nsignal = \"x\"\nkind = \"peak_to_peak\"\n";
+
+/// A unit's rows: id, samples (one row each), label on the first row.
+fn unit(id: &str, samples: &[i32], label: &str) -> String {
+    samples
+        .iter()
+        .enumerate()
+        .map(|(k, s)| format!("{id},{k},{s},{}\n", if k == 0 { label } else { "" }))
+        .collect()
+}
+
+/// Twenty units: GO units read low (10..=19), NO-GO units high (60..=69).
+fn training_log() -> String {
+    let mut log = String::from("unit_id,sample,x,verdict\n");
+    for i in 0..10 {
+        log += &unit(&format!("G{i}"), &[10 + i, 12, 11 + i, 10], "GO");
+        log += &unit(&format!("N{i}"), &[60 + i, 65, 62, 61 + i], "NO-GO");
+    }
+    log
+}
+
+/// A holdout log: two good units, then one unit of each kind the device refuses.
+fn holdout_log() -> String {
+    let mut log = String::from("unit_id,sample,x,verdict\n");
+    log += &unit("ok-go", &[11, 12, 13, 11], "GO");
+    log += &unit("ok-nogo", &[61, 63, 62, 64], "NO-GO");
+    // A sample of 101 > raw_max: refused by the kernel's range check of the window.
+    log += &unit("out-of-range", &[11, 101, 12, 11], "GO");
+    // Five samples where the window is four.
+    log += &unit("long", &[61, 63, 62, 64, 60], "NO-GO");
+    // Three samples where the window is four.
+    log += &unit("short", &[11, 12, 13], "GO");
+    log
+}
+
+/// Trains and packs the model of the training log in `d`.
+fn model(d: &Path) {
+    write(d, "s.toml", SHEET.as_bytes());
+    write(d, "train.csv", training_log().as_bytes());
+    write(d, "hold.csv", holdout_log().as_bytes());
+    let run = |args: &[&str]| exits(&linegate(args, d), 0);
+    run(&[
+        "-q", "train", "train.csv", "--sheet", "s.toml", "--folds", "0", "-o", "m.json",
+    ]);
+    run(&[
+        "-q", "pack", "--model", "m.json", "--train", "train.csv", "-o", "m.lgmb",
+    ]);
+}
+
+/// Replay prints a FAULT line for each refused unit and goes on; the audit counts the same
+/// three units as FAULTs (two on GO units: false NO-GO) and `train --holdout` evaluates the
+/// log instead of stopping.
+#[test]
+fn refused_windows_are_fault_units_in_replay_audit_and_holdout() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    model(d);
+    let o = linegate(
+        &["replay", "hold.csv", "--blob", "m.lgmb", "--model", "m.json"],
+        d,
+    );
+    exits(&o, 0);
+    let out = String::from_utf8_lossy(&o.stdout).into_owned();
+    let lines: Vec<&str> = out.lines().filter(|l| !l.starts_with('#')).collect();
+    assert_eq!(lines.len(), 5, "{out}");
+    assert!(lines[0].starts_with("0 GO "), "{out}");
+    assert!(lines[1].starts_with("1 NO-GO "), "{out}");
+    for (i, l) in lines.iter().enumerate().skip(2) {
+        assert_eq!(*l, format!("{i} FAULT signal0"), "{out}");
+    }
+    let o = linegate(
+        &[
+            "audit", "--model", "m.json", "--train", "train.csv", "--holdout", "hold.csv",
+            "--json",
+        ],
+        d,
+    );
+    // Two GO units turned away fail the false NO-GO gate (1 %): a check that failed.
+    exits(&o, 1);
+    let j: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let sets = j["audit"]["sets"].as_array().expect("sets");
+    let hold = sets
+        .iter()
+        .find(|s| s["name"] == "holdout")
+        .unwrap_or_else(|| panic!("no holdout set: {j}"));
+    assert_eq!(hold["units"], 5, "{hold}");
+    assert_eq!(hold["faults"], 3, "{hold}");
+    assert_eq!(hold["false_nogo"], 2, "{hold}");
+    let o = linegate(
+        &[
+            "train", "train.csv", "--sheet", "s.toml", "--folds", "0", "--holdout", "hold.csv",
+            "-o", "m2.json",
+        ],
+        d,
+    );
+    let err = exits(&o, 0);
+    let all = String::from_utf8_lossy(&o.stdout).into_owned() + &err;
+    assert!(all.contains("false NO-GO 2, FAULT 3"), "{all}");
+}
+
+/// The training log still refuses each kind, saying that an evaluated log would keep it.
+#[test]
+fn a_training_log_refuses_refused_windows_and_says_why() {
+    for (what, bad, needle) in [
+        ("out of range", unit("u", &[11, 101, 12, 11], "GO"), "raw 101 is outside"),
+        ("long", unit("u", &[11, 12, 13, 11, 12], "GO"), "over-long window"),
+        ("short", unit("u", &[11, 12, 13], "GO"), "short window"),
+    ] {
+        let dir = tempfile::tempdir().unwrap();
+        let d = dir.path();
+        write(d, "s.toml", SHEET.as_bytes());
+        write(d, "train.csv", (training_log() + &bad).as_bytes());
+        let err = exits(
+            &linegate(
+                &["train", "train.csv", "--sheet", "s.toml", "--folds", "0", "-o", "m.json"],
+                d,
+            ),
+            2,
+        );
+        assert!(err.contains("train.csv") && err.contains(needle), "{what}: {err}");
+        assert!(
+            err.contains("a log read to train refuses such a unit"),
+            "{what}: {err}"
+        );
+    }
+}
