@@ -154,24 +154,18 @@ struct Open {
 
 /// Reads a signal log, calling `each` on every whole unit in file order.
 ///
-/// `readings`: the reading channels to take (a model's), or `None` for every column that
-/// is not the unit id, label, sample number, timestamp, a signal, or left out with
-/// `opts.ignore` (`opts.channels` when given). Errors of one unit returned by `each`
-/// (an [`InputError::Signal`]) skip the unit under `opts.skip_bad_rows`, as the reader's own.
-///
-/// `keep_faults` (a log evaluated by a model: holdout, audit, replay): a window shorter or
-/// longer than its signal's is handed on as it is, so that the device's kernel refuses it
-/// (a FAULT unit), as it refuses a sample out of range; a training log refuses such a unit.
+/// `read_for` decides the reading channels and what becomes of a window the device would
+/// refuse (see [`ReadFor`]). Errors of one unit returned by `each` (an
+/// [`InputError::Signal`]) skip the unit under `opts.skip_bad_rows`, as the reader's own.
 ///
 /// # Errors
-/// I/O, a missing column, a unit that is not whole (see the module documentation).
-#[allow(clippy::too_many_arguments)]
+/// I/O, a missing column, a column that is no declared channel (training), a unit that is
+/// not whole (see the module documentation).
 pub fn stream_signal_units(
     path: &Path,
     opts: &LogOptions,
     signals: &[SignalScale],
-    readings: Option<&[String]>,
-    keep_faults: bool,
+    read_for: ReadFor<'_>,
     skipped: &mut SkipReport,
     mut each: impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
 ) -> Result<SignalLogHeader, InputError> {
@@ -219,7 +213,8 @@ pub fn stream_signal_units(
         Ok(_) => return Err(InputError::Empty { path: path.into() }),
         Err(e) => return Err(csv_error(path, opts, e)),
     };
-    let cols = Columns::resolve(path, &names, opts, signals, readings)?;
+    let cols = Columns::resolve(path, &names, opts, signals, &read_for)?;
+    let keep_faults = matches!(read_for, ReadFor::Model { .. });
     let width = names.len();
     let mut open = Open::default();
     let mut seen: HashMap<String, u64> = HashMap::new();
@@ -586,6 +581,27 @@ impl Open {
     }
 }
 
+/// What a signal log is read for: its reading channels, and what becomes of a unit whose
+/// window the device would refuse.
+pub enum ReadFor<'a> {
+    /// Training or a check, with a sheet: the reading channels are `--channels` when given,
+    /// else the columns the sheet declares (`[[channel]]`); any other column that is not the
+    /// unit id, label, sample number, timestamp or a signal is refused (unless left out with
+    /// `--ignore`), since it would be taken for a reading. A window the device would refuse
+    /// is an error.
+    Training {
+        /// The reading channels the sheet declares.
+        declared: &'a [String],
+    },
+    /// Evaluation by a model (holdout, audit, replay): its reading channels, every other
+    /// column passed over. A window shorter or longer than its signal's is handed on as it
+    /// is, so that the kernel refuses it (a FAULT unit), as it refuses a sample out of range.
+    Model {
+        /// The model's reading channels, in model order.
+        readings: &'a [String],
+    },
+}
+
 /// Where each kind of column is.
 struct Columns {
     names: Vec<String>,
@@ -603,7 +619,7 @@ impl Columns {
         names: &[String],
         opts: &LogOptions,
         signals: &[SignalScale],
-        readings: Option<&[String]>,
+        read_for: &ReadFor<'_>,
     ) -> Result<Self, InputError> {
         let mut seen = std::collections::HashSet::with_capacity(names.len());
         for n in names {
@@ -651,24 +667,45 @@ impl Columns {
                 || Some(i) == time
                 || signals.contains(&i)
         };
-        let wanted = readings
-            .map(<[String]>::to_vec)
-            .or_else(|| opts.channels.clone());
+        let (wanted, declared) = match *read_for {
+            ReadFor::Model { readings } => (Some(readings.to_vec()), &[][..]),
+            ReadFor::Training { declared } => (opts.channels.clone(), declared),
+        };
         let readings = match wanted {
             Some(list) => list
                 .iter()
                 .map(|n| find(names, n).ok_or_else(|| unknown(n)))
                 .collect::<Result<Vec<_>, _>>()?,
-            None => (0..names.len())
-                .filter(|&i| {
-                    !taken(i)
-                        && !names[i].is_empty()
-                        && !opts
-                            .ignore
-                            .iter()
-                            .any(|g| g.eq_ignore_ascii_case(&names[i]))
-                })
-                .collect(),
+            None => {
+                let (readings, other): (Vec<usize>, Vec<usize>) = (0..names.len())
+                    .filter(|&i| {
+                        !taken(i)
+                            && !names[i].is_empty()
+                            && !opts
+                                .ignore
+                                .iter()
+                                .any(|g| g.eq_ignore_ascii_case(&names[i]))
+                    })
+                    .partition(|&i| declared.iter().any(|d| d.eq_ignore_ascii_case(&names[i])));
+                if !other.is_empty() {
+                    let role = |what: &str, c: Option<usize>| {
+                        c.map(|c| format!(", {what} '{}'", names[c]))
+                            .unwrap_or_default()
+                    };
+                    return Err(undeclared_columns(
+                        path,
+                        other.iter().map(|&i| names[i].as_str()).collect(),
+                        format!(
+                            "unit id '{}'{}{}{}",
+                            names[unit],
+                            role("sample number", sample),
+                            role("label", label),
+                            role("timestamp", time),
+                        ),
+                    ));
+                }
+                readings
+            }
         };
         if let Some(&i) = readings.iter().find(|&&i| taken(i)) {
             return Err(InputError::Format {
@@ -688,6 +725,42 @@ impl Columns {
             signals,
             readings,
         })
+    }
+}
+
+/// The refusal of columns a training signal log would take for readings although the sheet
+/// declares none of them: a signal log's reading is one number per unit, so such a column
+/// (a time in seconds, an operator's note) would otherwise fail as a reading that changes
+/// within the unit, or enter the model unannounced. `recognised` lists the columns taken by
+/// role, so that a timestamp taken (or not taken) by its name is seen.
+fn undeclared_columns(path: &Path, columns: Vec<&str>, recognised: String) -> InputError {
+    let quoted: Vec<String> = columns.iter().map(|c| format!("'{c}'")).collect();
+    let like_time: Vec<&str> = columns
+        .iter()
+        .copied()
+        .filter(|c| {
+            let c = c.to_ascii_lowercase();
+            TIME_NAMES.iter().any(|t| c.starts_with(t))
+        })
+        .collect();
+    let time_hint = match like_time.first() {
+        Some(t) => format!(
+            "; if '{t}' is the timestamp, name it with --timestamp {t} (by name only {} are taken)",
+            TIME_NAMES.join(", ")
+        ),
+        None => String::new(),
+    };
+    InputError::Format {
+        path: path.into(),
+        message: format!(
+            "line 1: column{} {} {} neither a signal, a reading channel the sheet declares ([[channel]]), the unit id, label, sample number nor timestamp (recognised: {recognised}); leave {} out with --ignore {}, declare {} in the sheet, or choose the reading channels with --channels{time_hint}",
+            if columns.len() == 1 { "" } else { "s" },
+            quoted.join(", "),
+            if columns.len() == 1 { "is" } else { "are" },
+            if columns.len() == 1 { "it" } else { "them" },
+            columns.join(","),
+            if columns.len() == 1 { "it" } else { "them" },
+        ),
     }
 }
 
@@ -775,8 +848,11 @@ pub fn read_signal_log(
             Ok((j, f))
         })
         .collect::<Result<Vec<(usize, CheckedFeature)>, InputError>>()?;
-    let reading_names: Option<Vec<String>> =
-        model.map(|ch| reading_channels(ch).map(|c| c.name.clone()).collect());
+    let reading_names: Vec<String> = match (model, sheet) {
+        (Some(ch), _) => reading_channels(ch).map(|c| c.name.clone()).collect(),
+        (None, Some(s)) => s.channels.iter().map(|c| c.name.clone()).collect(),
+        (None, None) => Vec::new(),
+    };
     let mut skipped = SkipReport::default();
     let (mut physical, mut values, mut labels, mut lines) =
         (Vec::new(), Vec::new(), Vec::new(), Vec::new());
@@ -788,8 +864,15 @@ pub fn read_signal_log(
         path,
         opts,
         signals,
-        reading_names.as_deref(),
-        keep_faults,
+        if keep_faults {
+            ReadFor::Model {
+                readings: &reading_names,
+            }
+        } else {
+            ReadFor::Training {
+                declared: &reading_names,
+            }
+        },
         &mut skipped,
         |u| {
             if ids.len() >= opts.max_rows {

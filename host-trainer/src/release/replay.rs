@@ -12,7 +12,7 @@ use std::path::Path;
 
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
-use crate::ingest::signals::{device_readings, reading_channels, stream_signal_units};
+use crate::ingest::signals::{ReadFor, device_readings, reading_channels, stream_signal_units};
 use crate::ingest::{LogOptions, SkipReport};
 use crate::train::float_model::FloatModel;
 
@@ -62,7 +62,8 @@ pub fn replay_signal_log(
         .map(|c| c.name.clone())
         .collect();
     let mut index = 0usize;
-    stream_signal_units(path, opts, &fm.signals, Some(&names), true, skipped, |u| {
+    let read_for = ReadFor::Model { readings: &names };
+    stream_signal_units(path, opts, &fm.signals, read_for, skipped, |u| {
         let raw = device_readings(&fm.channels, u);
         let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
         each(&signal_line(index, model, &raw, &windows), &raw, u.windows);

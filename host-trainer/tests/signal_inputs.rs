@@ -1,8 +1,9 @@
-//! Units the device refuses, in signal logs: a sample outside its signal's valid range, a
-//! window shorter or longer than declared. The device's kernel (`classify_windows`) answers
-//! such a unit with a FAULT, so a log evaluated by a model (`train --holdout`, `audit`,
-//! `replay`) must count it as one FAULT unit, the same unit in every command; only a
-//! training log refuses it, saying why.
+//! Odd inputs in signal logs. Units the device refuses (a sample outside its signal's
+//! valid range, a window shorter or longer than declared): the device's kernel
+//! (`classify_windows`) answers such a unit with a FAULT, so a log evaluated by a model
+//! (`train --holdout`, `audit`, `replay`) must count it as one FAULT unit, the same unit in
+//! every command; only a training log refuses it, saying why. Columns the sheet does not
+//! declare: refused up front by name, never taken for a reading.
 
 mod common;
 
@@ -138,4 +139,64 @@ fn a_training_log_refuses_refused_windows_and_says_why() {
             "{what}: {err}"
         );
     }
+}
+
+/// A column that is neither a signal, a declared reading, the unit id, label, sample number
+/// nor a recognised timestamp is refused before any row is read, by name, with the ways out;
+/// the columns recognised by their names are listed, so a `time` taken as the timestamp
+/// (and a `time_s` that is not) is seen.
+#[test]
+fn undeclared_columns_of_a_signal_log_are_refused_by_name() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // A declared reading channel, `temp`, stays a reading.
+    let sheet = format!(
+        "{SHEET}\n[[channel]]\nname = \"temp\"\nmin = 0.0\nmax = 100.0\nlsb = 0.1\n"
+    );
+    write(d, "s.toml", sheet.as_bytes());
+    let with = |time: &str| {
+        let mut log = format!("unit_id,sample,x,{time},operator,temp,verdict\n");
+        for (i, line) in training_log().lines().skip(1).enumerate() {
+            let f: Vec<&str> = line.split(',').collect();
+            let first = f[1] == "0";
+            log += &format!(
+                "{},{},{},{},{},{},{}\n",
+                f[0],
+                f[1],
+                f[2],
+                i as f64 * 0.01,
+                if first { "ann" } else { "" },
+                if first { "31.5" } else { "" },
+                f[3]
+            );
+        }
+        log
+    };
+    write(d, "log.csv", with("time_s").as_bytes());
+    let err = exits(&linegate(&["check", "log.csv", "--sheet", "s.toml"], d), 2);
+    for want in [
+        "log.csv: line 1: columns 'time_s', 'operator' are neither a signal",
+        "--ignore time_s,operator",
+        "--timestamp time_s",
+        "recognised: unit id 'unit_id', sample number 'sample', label 'verdict')",
+    ] {
+        assert!(err.contains(want), "wanted '{want}' in: {err}");
+    }
+    let o = linegate(
+        &["check", "log.csv", "--sheet", "s.toml", "--ignore", "time_s,operator"],
+        d,
+    );
+    exits(&o, 0);
+    // Two features and the declared reading.
+    assert!(
+        String::from_utf8_lossy(&o.stdout).contains("20 units, 3 channels"),
+        "{o:?}"
+    );
+    write(d, "log.csv", with("time").as_bytes());
+    let err = exits(&linegate(&["check", "log.csv", "--sheet", "s.toml"], d), 2);
+    assert!(
+        err.contains("column 'operator' is neither")
+            && err.contains("label 'verdict', timestamp 'time')"),
+        "{err}"
+    );
 }
