@@ -117,6 +117,22 @@ pub enum InputError {
         /// The cell.
         value: String,
     },
+    /// A cell holds a finite number beyond the largest reading (a Parquet integer or decimal).
+    #[error(
+        "{path}: {at}, column '{column}': {value} is beyond the largest reading a channel takes (magnitude 1e15){detail}"
+    )]
+    BeyondReading {
+        /// File.
+        path: PathBuf,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
+        /// Column name.
+        column: String,
+        /// The cell, as stored.
+        value: String,
+        /// Why else it cannot be read (an integer no 64-bit float holds exactly), or empty.
+        detail: String,
+    },
     /// A reading is outside the channel's declared valid range.
     #[error(
         "{path}: {at}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)"
@@ -168,6 +184,16 @@ pub enum InputError {
         line: u64,
         /// Limit in bytes.
         max: usize,
+    },
+    /// A carriage return ends a line without a line feed (CR-only line ends).
+    #[error(
+        "{path}: line {line}: a carriage return (CR) ends a line without a line feed; the file looks like an old Mac export with CR-only line ends, which Linegate does not read (every row would seem to be on one line): convert the line ends to LF or CR LF (e.g. `tr '\\r' '\\n' < old.csv > new.csv`)"
+    )]
+    BareCr {
+        /// File.
+        path: PathBuf,
+        /// 1-based line (counted by line feeds) holding the carriage return.
+        line: u64,
     },
     /// The header is not UTF-8.
     #[error("{path}: line 1: the header is not valid UTF-8")]

@@ -520,3 +520,44 @@ except OSError as e:
         assert!(err.contains(want), "wanted '{want}' in: {err}");
     }
 }
+
+/// An integer cell beyond the largest reading is named as such, not as "not finite"; one
+/// above 2^53, which no 64-bit float holds exactly, says so too. pyarrow writes the int64
+/// columns.
+#[test]
+fn integers_beyond_the_largest_reading_are_named_as_such() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let script = r#"
+import sys
+import pyarrow as pa, pyarrow.parquet as pq
+n = 100
+lab = ["GO" if i % 2 else "NO-GO" for i in range(n)]
+def write(name, big):
+    a = [i for i in range(n)]
+    a[42] = big
+    pq.write_table(pa.table({"a": pa.array(a, pa.int64()), "b": pa.array([float(i % 7) for i in range(n)]),
+                             "label": pa.array(lab)}), sys.argv[1] + "/" + name)
+write("inexact.parquet", 2**53 + 1)
+write("large.parquet", 2 * 10**15)
+"#;
+    if !pyarrow(script, &[d]) {
+        return;
+    }
+    let at = "row group 0, row 42 (row 42 of the file; counted from 0), column 'a': ";
+    let err = exits(&linegate(&["check", "inexact.parquet"], d), 2);
+    for want in [
+        "inexact.parquet: ",
+        at,
+        "9007199254740993 is beyond the largest reading",
+        "cannot even be represented exactly as a 64-bit float",
+    ] {
+        assert!(err.contains(want), "wanted '{want}' in: {err}");
+    }
+    let err = exits(&linegate(&["check", "large.parquet"], d), 2);
+    assert!(
+        err.contains(at) && err.contains("2000000000000000 is beyond the largest reading"),
+        "{err}"
+    );
+    assert!(!err.contains("exactly") && !err.contains("finite"), "{err}");
+}

@@ -56,10 +56,25 @@ fn model(d: &Path) {
     write(d, "hold.csv", holdout_log().as_bytes());
     let run = |args: &[&str]| exits(&linegate(args, d), 0);
     run(&[
-        "-q", "train", "train.csv", "--sheet", "s.toml", "--folds", "0", "-o", "m.json",
+        "-q",
+        "train",
+        "train.csv",
+        "--sheet",
+        "s.toml",
+        "--folds",
+        "0",
+        "-o",
+        "m.json",
     ]);
     run(&[
-        "-q", "pack", "--model", "m.json", "--train", "train.csv", "-o", "m.lgmb",
+        "-q",
+        "pack",
+        "--model",
+        "m.json",
+        "--train",
+        "train.csv",
+        "-o",
+        "m.lgmb",
     ]);
 }
 
@@ -72,7 +87,9 @@ fn refused_windows_are_fault_units_in_replay_audit_and_holdout() {
     let d = dir.path();
     model(d);
     let o = linegate(
-        &["replay", "hold.csv", "--blob", "m.lgmb", "--model", "m.json"],
+        &[
+            "replay", "hold.csv", "--blob", "m.lgmb", "--model", "m.json",
+        ],
         d,
     );
     exits(&o, 0);
@@ -86,7 +103,13 @@ fn refused_windows_are_fault_units_in_replay_audit_and_holdout() {
     }
     let o = linegate(
         &[
-            "audit", "--model", "m.json", "--train", "train.csv", "--holdout", "hold.csv",
+            "audit",
+            "--model",
+            "m.json",
+            "--train",
+            "train.csv",
+            "--holdout",
+            "hold.csv",
             "--json",
         ],
         d,
@@ -104,8 +127,16 @@ fn refused_windows_are_fault_units_in_replay_audit_and_holdout() {
     assert_eq!(hold["false_nogo"], 2, "{hold}");
     let o = linegate(
         &[
-            "train", "train.csv", "--sheet", "s.toml", "--folds", "0", "--holdout", "hold.csv",
-            "-o", "m2.json",
+            "train",
+            "train.csv",
+            "--sheet",
+            "s.toml",
+            "--folds",
+            "0",
+            "--holdout",
+            "hold.csv",
+            "-o",
+            "m2.json",
         ],
         d,
     );
@@ -118,8 +149,16 @@ fn refused_windows_are_fault_units_in_replay_audit_and_holdout() {
 #[test]
 fn a_training_log_refuses_refused_windows_and_says_why() {
     for (what, bad, needle) in [
-        ("out of range", unit("u", &[11, 101, 12, 11], "GO"), "raw 101 is outside"),
-        ("long", unit("u", &[11, 12, 13, 11, 12], "GO"), "over-long window"),
+        (
+            "out of range",
+            unit("u", &[11, 101, 12, 11], "GO"),
+            "raw 101 is outside",
+        ),
+        (
+            "long",
+            unit("u", &[11, 12, 13, 11, 12], "GO"),
+            "over-long window",
+        ),
         ("short", unit("u", &[11, 12, 13], "GO"), "short window"),
     ] {
         let dir = tempfile::tempdir().unwrap();
@@ -128,12 +167,24 @@ fn a_training_log_refuses_refused_windows_and_says_why() {
         write(d, "train.csv", (training_log() + &bad).as_bytes());
         let err = exits(
             &linegate(
-                &["train", "train.csv", "--sheet", "s.toml", "--folds", "0", "-o", "m.json"],
+                &[
+                    "train",
+                    "train.csv",
+                    "--sheet",
+                    "s.toml",
+                    "--folds",
+                    "0",
+                    "-o",
+                    "m.json",
+                ],
                 d,
             ),
             2,
         );
-        assert!(err.contains("train.csv") && err.contains(needle), "{what}: {err}");
+        assert!(
+            err.contains("train.csv") && err.contains(needle),
+            "{what}: {err}"
+        );
         assert!(
             err.contains("a log read to train refuses such a unit"),
             "{what}: {err}"
@@ -150,9 +201,8 @@ fn undeclared_columns_of_a_signal_log_are_refused_by_name() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     // A declared reading channel, `temp`, stays a reading.
-    let sheet = format!(
-        "{SHEET}\n[[channel]]\nname = \"temp\"\nmin = 0.0\nmax = 100.0\nlsb = 0.1\n"
-    );
+    let sheet =
+        format!("{SHEET}\n[[channel]]\nname = \"temp\"\nmin = 0.0\nmax = 100.0\nlsb = 0.1\n");
     write(d, "s.toml", sheet.as_bytes());
     let with = |time: &str| {
         let mut log = format!("unit_id,sample,x,{time},operator,temp,verdict\n");
@@ -183,7 +233,14 @@ fn undeclared_columns_of_a_signal_log_are_refused_by_name() {
         assert!(err.contains(want), "wanted '{want}' in: {err}");
     }
     let o = linegate(
-        &["check", "log.csv", "--sheet", "s.toml", "--ignore", "time_s,operator"],
+        &[
+            "check",
+            "log.csv",
+            "--sheet",
+            "s.toml",
+            "--ignore",
+            "time_s,operator",
+        ],
         d,
     );
     exits(&o, 0);
@@ -199,4 +256,35 @@ fn undeclared_columns_of_a_signal_log_are_refused_by_name() {
             && err.contains("label 'verdict', timestamp 'time')"),
         "{err}"
     );
+}
+
+/// `--skip-bad-rows` on a signal log skips whole units and says so in units and their rows,
+/// with plural forms and thousands separators; a log of one row per unit says rows.
+#[test]
+fn skipped_units_are_counted_as_units_and_rows() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write(d, "s.toml", SHEET.as_bytes());
+    // A unit of 1,200 rows where the window is 4 (a unit id left out of the export).
+    let long: Vec<i32> = (0..1200).map(|i| 10 + i % 5).collect();
+    let log = training_log() + &unit("runaway", &long, "GO");
+    write(d, "log.csv", log.as_bytes());
+    let o = linegate(
+        &["check", "log.csv", "--sheet", "s.toml", "--skip-bad-rows"],
+        d,
+    );
+    let err = exits(&o, 0);
+    let out = String::from_utf8_lossy(&o.stdout).into_owned() + &err;
+    assert!(out.contains("skipped 1 unit (1,200 rows)"), "{out}");
+    assert!(!out.contains("bad rows"), "{out}");
+    // A plain log: rows, one of them.
+    write(
+        d,
+        "plain.csv",
+        b"a,b,label\n1,2,GO\n3,x,NO-GO\n-1,-2,NO-GO\n4,5,GO\n",
+    );
+    let o = linegate(&["check", "plain.csv", "--skip-bad-rows"], d);
+    let err = exits(&o, 0);
+    let out = String::from_utf8_lossy(&o.stdout).into_owned() + &err;
+    assert!(out.contains("skipped 1 row that"), "{out}");
 }

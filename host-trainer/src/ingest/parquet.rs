@@ -308,6 +308,29 @@ impl Plan<'_> {
                 value,
             };
         }
+        // A finite number too large to be a reading (integers and decimals): said as such,
+        // and an integer beyond 2^53 as one no 64-bit float holds exactly.
+        let v = numbers(&a.slice(i, 1), kind, self.decimal_comma)
+            .first()
+            .copied()
+            .unwrap_or(f64::NAN);
+        if v.is_finite() {
+            let inexact = value
+                .parse::<i128>()
+                .is_ok_and(|n| n.unsigned_abs() > 1u128 << 53);
+            return InputError::BeyondReading {
+                path,
+                at,
+                column,
+                value,
+                detail: if inexact {
+                    "; an integer above 2^53 cannot even be represented exactly as a 64-bit float"
+                        .into()
+                } else {
+                    String::new()
+                },
+            };
+        }
         InputError::NotFinite {
             path,
             at,

@@ -93,7 +93,9 @@ pub struct SignalLogHeader {
 
 /// Hashes what passes through, so the log is read once for both, and refuses a line longer
 /// than `max_line`: the CSV reader holds a whole record in memory, so a file of one endless
-/// line must stop here, as the log reader stops it.
+/// line must stop here, as the log reader stops it. Refuses a carriage return not followed
+/// by a line feed too: the CSV reader would end a record there without counting a line, so
+/// every row of a CR-only file would be named line 1 (the log reader refuses such files).
 struct Hashing<R> {
     inner: R,
     hasher: Option<Sha256>,
@@ -101,7 +103,25 @@ struct Hashing<R> {
     /// Bytes since the last line feed, and line feeds seen.
     since_lf: usize,
     lines: u64,
+    /// The last byte read was a carriage return.
+    cr: bool,
 }
+
+/// The line holding a carriage return without a line feed (in the io error's payload).
+#[derive(Debug)]
+struct BareCr(u64);
+
+impl std::fmt::Display for BareCr {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(
+            f,
+            "line {} holds a carriage return without a line feed",
+            self.0
+        )
+    }
+}
+
+impl std::error::Error for BareCr {}
 
 /// The line number of a line refused as too long (in the io error's payload).
 #[derive(Debug)]
@@ -122,6 +142,18 @@ impl<R: Read> Read for Hashing<R> {
         if let Some(h) = self.hasher.as_mut() {
             h.update(got);
         }
+        // A CR is followed by an LF, in this read or (the last byte) the next; at the end
+        // of the file by nothing, which is a bare CR too.
+        let bare = (self.cr && got.first() != Some(&b'\n'))
+            .then_some(0)
+            .or_else(|| {
+                memchr::memchr_iter(b'\r', got).find(|&i| i + 1 < n && got[i + 1] != b'\n')
+            });
+        if let Some(i) = bare {
+            let before = memchr::memchr_iter(b'\n', &got[..i]).count() as u64;
+            return Err(std::io::Error::other(BareCr(self.lines + before + 1)));
+        }
+        self.cr = got.last() == Some(&b'\r');
         match memchr::memrchr(b'\n', got) {
             Some(k) => {
                 self.lines += memchr::memchr_iter(b'\n', got).count() as u64;
@@ -185,6 +217,7 @@ pub fn stream_signal_units(
             max_line: opts.max_line_len,
             since_lf: 0,
             lines: 0,
+            cr: false,
         },
     );
     let delimiter = match opts.delimiter {
@@ -194,7 +227,7 @@ pub fn stream_signal_units(
                 .extension()
                 .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
             let head =
-                std::io::BufRead::fill_buf(&mut source).map_err(|e| InputError::io(path, e))?;
+                std::io::BufRead::fill_buf(&mut source).map_err(|e| read_error(path, opts, e))?;
             let first = head.split(|&b| b == b'\n').next().unwrap_or_default();
             if tsv { b'\t' } else { detect_delimiter(first) }
         }
@@ -336,20 +369,31 @@ pub fn stream_signal_units(
     })
 }
 
-/// A read error of the CSV reader: a line refused as too long names its line, an I/O error
-/// stays one, anything else is a malformed file.
-fn csv_error(path: &Path, opts: &LogOptions, e: csv::Error) -> InputError {
-    if let csv::ErrorKind::Io(io) = e.kind()
-        && let Some(&LongLine(line)) = io.get_ref().and_then(|r| r.downcast_ref::<LongLine>())
-    {
+/// A read error: a line refused as too long, or holding a bare carriage return, names its
+/// line; any other I/O error stays one.
+fn read_error(path: &Path, opts: &LogOptions, io: std::io::Error) -> InputError {
+    let inner = io.get_ref();
+    if let Some(&LongLine(line)) = inner.and_then(|r| r.downcast_ref::<LongLine>()) {
         return InputError::LineTooLong {
             path: path.into(),
             line,
             max: opts.max_line_len,
         };
     }
+    if let Some(&BareCr(line)) = inner.and_then(|r| r.downcast_ref::<BareCr>()) {
+        return InputError::BareCr {
+            path: path.into(),
+            line,
+        };
+    }
+    InputError::io(path, io)
+}
+
+/// A read error of the CSV reader: an I/O error as [`read_error`], anything else is a
+/// malformed file.
+fn csv_error(path: &Path, opts: &LogOptions, e: csv::Error) -> InputError {
     match e.into_kind() {
-        csv::ErrorKind::Io(io) => InputError::io(path, io),
+        csv::ErrorKind::Io(io) => read_error(path, opts, io),
         other => InputError::Format {
             path: path.into(),
             message: format!("cannot read a row: {other:?}"),
@@ -412,7 +456,7 @@ fn finish(
     };
     match result {
         Err(e @ InputError::Signal { .. }) if opts.skip_bad_rows => {
-            skipped.add(&e);
+            skipped.add_unit(&e, open.rows);
             Ok(())
         }
         r => r,
@@ -857,6 +901,7 @@ pub fn read_signal_log(
     let (mut physical, mut values, mut labels, mut lines) =
         (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     let (mut ids, mut times) = (Vec::<String>::new(), Vec::<String>::new());
+    let mut unit_rows = Vec::new();
     let mut row = Vec::with_capacity(computed.len());
     // A log read for a model keeps the units the device refuses, as FAULT units.
     let keep_faults = model.is_some();
@@ -888,8 +933,9 @@ pub fn read_signal_log(
                     (Ok(v), _) => v,
                     // The device refuses the window: the unit is a FAULT, as one with a
                     // reading out of range is (a count the kernel refuses on that channel).
-                    (Err(e), true) => refused_count(c)
-                        .ok_or_else(|| window_error(path, u, &signals[j], e))?,
+                    (Err(e), true) => {
+                        refused_count(c).ok_or_else(|| window_error(path, u, &signals[j], e))?
+                    }
                     (Err(e), false) => return Err(window_error(path, u, &signals[j], e)),
                 });
             }
@@ -897,6 +943,7 @@ pub fn read_signal_log(
             physical.extend_from_slice(u.readings);
             labels.push(u.label);
             lines.push(u.line);
+            unit_rows.push(u.lines.len());
             ids.push(u.id.to_string());
             if let Some(t) = u.time {
                 times.push(t.to_string());
@@ -954,7 +1001,7 @@ pub fn read_signal_log(
                         max: s.max,
                     };
                     if opts.skip_bad_rows {
-                        skipped.add(&e);
+                        skipped.add_unit(&e, unit_rows[i]);
                         continue 'units;
                     }
                     return Err(e);
@@ -983,7 +1030,7 @@ pub fn read_signal_log(
         return Err(InputError::NoRows {
             path: path.into(),
             skipped: if ds.skipped.total > 0 {
-                format!(" ({} units skipped as bad)", ds.skipped.total)
+                format!(" ({} skipped as bad)", ds.skipped.counted())
             } else {
                 String::new()
             },
@@ -995,7 +1042,9 @@ pub fn read_signal_log(
 /// A count outside channel `c`'s valid range, which the kernel refuses (FAULT) on that
 /// channel; `None` only for a channel whose range is every 32-bit count.
 fn refused_count(c: &ChannelScale) -> Option<i32> {
-    c.raw_max.checked_add(1).or_else(|| c.raw_min.checked_sub(1))
+    c.raw_max
+        .checked_add(1)
+        .or_else(|| c.raw_min.checked_sub(1))
 }
 
 /// A model's reading channels (those that are not features), in channel order: the
