@@ -187,7 +187,7 @@ pub enum InputError {
     },
     /// A carriage return ends a line without a line feed (CR-only line ends).
     #[error(
-        "{path}: line {line}: a carriage return (CR) ends a line without a line feed; the file looks like an old Mac export with CR-only line ends, which Linegate does not read (every row would seem to be on one line): convert the line ends to LF or CR LF (e.g. `tr '\\r' '\\n' < old.csv > new.csv`)"
+        "{path}: line {line}: a carriage return (CR) ends a line without a line feed; the line ends look like CR only (old Mac exports), which Linegate does not read (every row would seem to be on one line): convert the line ends to LF or CR LF (e.g. `tr '\\r' '\\n' < old.csv > new.csv`)"
     )]
     BareCr {
         /// File.

@@ -20,20 +20,19 @@
 //! …
 //! ```
 //!
-//! Each unit is checked whole: a short or over-long window, a gap, an empty or
-//! non-numeric sample, a label or reading that changes within the unit, and a unit whose
-//! rows appear in two places are errors naming the line, unit, column and sample; under
-//! `--skip-bad-rows` a unit with such a fault is skipped whole and counted (a unit split in
-//! two places still ends the read: its rows cannot be told apart).
+//! Each unit is checked whole: a gap, an empty or non-numeric sample, a label or reading
+//! that changes within the unit, and a unit whose rows appear in two places are errors
+//! naming the line, unit, column and sample; under `--skip-bad-rows` a unit with such a
+//! fault is skipped whole and counted (a unit split in two places still ends the read: its
+//! rows cannot be told apart). A short or over-long window is such an error in a training
+//! log; a log read for a model keeps it, as the device's kernel refuses it (see [`ReadFor`]).
 //!
 //! Features are computed with [`CheckedFeature::compute`], the function the device runs,
 //! so training, audit, replay and the device see the same integers.
 
 use std::collections::HashMap;
-use std::io::Read;
 use std::path::Path;
 
-use sha2::{Digest, Sha256};
 use shared_model::WindowFault;
 use shared_model::features::CheckedFeature;
 
@@ -44,6 +43,7 @@ use crate::ingest::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is
 use crate::ingest::parse::{label_cell, parse_number};
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 use crate::ingest::signal_scale::SignalScale;
+use crate::ingest::signal_source::{Hashing, csv_error, read_error};
 use crate::ingest::skip::SkipReport;
 
 /// Said where a training log refuses a unit whose window the device would refuse: a log
@@ -91,83 +91,6 @@ pub struct SignalLogHeader {
     pub sha256: String,
 }
 
-/// Hashes what passes through, so the log is read once for both, and refuses a line longer
-/// than `max_line`: the CSV reader holds a whole record in memory, so a file of one endless
-/// line must stop here, as the log reader stops it. Refuses a carriage return not followed
-/// by a line feed too: the CSV reader would end a record there without counting a line, so
-/// every row of a CR-only file would be named line 1 (the log reader refuses such files).
-struct Hashing<R> {
-    inner: R,
-    hasher: Option<Sha256>,
-    max_line: usize,
-    /// Bytes since the last line feed, and line feeds seen.
-    since_lf: usize,
-    lines: u64,
-    /// The last byte read was a carriage return.
-    cr: bool,
-}
-
-/// The line holding a carriage return without a line feed (in the io error's payload).
-#[derive(Debug)]
-struct BareCr(u64);
-
-impl std::fmt::Display for BareCr {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(
-            f,
-            "line {} holds a carriage return without a line feed",
-            self.0
-        )
-    }
-}
-
-impl std::error::Error for BareCr {}
-
-/// The line number of a line refused as too long (in the io error's payload).
-#[derive(Debug)]
-struct LongLine(u64);
-
-impl std::fmt::Display for LongLine {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "line {} is too long", self.0)
-    }
-}
-
-impl std::error::Error for LongLine {}
-
-impl<R: Read> Read for Hashing<R> {
-    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-        let n = self.inner.read(buf)?;
-        let got = &buf[..n];
-        if let Some(h) = self.hasher.as_mut() {
-            h.update(got);
-        }
-        // A CR is followed by an LF, in this read or (the last byte) the next; at the end
-        // of the file by nothing, which is a bare CR too.
-        let bare = (self.cr && got.first() != Some(&b'\n'))
-            .then_some(0)
-            .or_else(|| {
-                memchr::memchr_iter(b'\r', got).find(|&i| i + 1 < n && got[i + 1] != b'\n')
-            });
-        if let Some(i) = bare {
-            let before = memchr::memchr_iter(b'\n', &got[..i]).count() as u64;
-            return Err(std::io::Error::other(BareCr(self.lines + before + 1)));
-        }
-        self.cr = got.last() == Some(&b'\r');
-        match memchr::memrchr(b'\n', got) {
-            Some(k) => {
-                self.lines += memchr::memchr_iter(b'\n', got).count() as u64;
-                self.since_lf = n - k - 1;
-            }
-            None => self.since_lf += n,
-        }
-        if self.since_lf > self.max_line {
-            return Err(std::io::Error::other(LongLine(self.lines + 1)));
-        }
-        Ok(n)
-    }
-}
-
 /// The unit being read.
 #[derive(Default)]
 struct Open {
@@ -211,14 +134,7 @@ pub fn stream_signal_units(
     let file = std::fs::File::open(path).map_err(|e| InputError::io(path, e))?;
     let mut source = std::io::BufReader::with_capacity(
         1 << 16,
-        Hashing {
-            inner: file,
-            hasher: opts.digest.then(Sha256::new),
-            max_line: opts.max_line_len,
-            since_lf: 0,
-            lines: 0,
-            cr: false,
-        },
+        Hashing::new(file, opts.digest, opts.max_line_len),
     );
     let delimiter = match opts.delimiter {
         Some(d) => d,
@@ -359,46 +275,11 @@ pub fn stream_signal_units(
         )?;
     }
     drop(rdr);
-    let sha256 = source
-        .into_inner()
-        .hasher
-        .map_or(String::new(), |h| crate::digest::lower_hex(&h.finalize()));
+    let sha256 = source.into_inner().sha256();
     Ok(SignalLogHeader {
         readings: cols.readings.iter().map(|&i| names[i].clone()).collect(),
         sha256,
     })
-}
-
-/// A read error: a line refused as too long, or holding a bare carriage return, names its
-/// line; any other I/O error stays one.
-fn read_error(path: &Path, opts: &LogOptions, io: std::io::Error) -> InputError {
-    let inner = io.get_ref();
-    if let Some(&LongLine(line)) = inner.and_then(|r| r.downcast_ref::<LongLine>()) {
-        return InputError::LineTooLong {
-            path: path.into(),
-            line,
-            max: opts.max_line_len,
-        };
-    }
-    if let Some(&BareCr(line)) = inner.and_then(|r| r.downcast_ref::<BareCr>()) {
-        return InputError::BareCr {
-            path: path.into(),
-            line,
-        };
-    }
-    InputError::io(path, io)
-}
-
-/// A read error of the CSV reader: an I/O error as [`read_error`], anything else is a
-/// malformed file.
-fn csv_error(path: &Path, opts: &LogOptions, e: csv::Error) -> InputError {
-    match e.into_kind() {
-        csv::ErrorKind::Io(io) => read_error(path, opts, io),
-        other => InputError::Format {
-            path: path.into(),
-            message: format!("cannot read a row: {other:?}"),
-        },
-    }
 }
 
 /// Ends the open unit: checks it is whole, then hands it to `each` (or counts it skipped).
