@@ -119,7 +119,8 @@ pub enum InputError {
     },
     /// A cell holds a finite number beyond the largest reading (a Parquet integer or decimal).
     #[error(
-        "{path}: {at}, column '{column}': {value} is beyond the largest reading a channel takes (magnitude 1e15){detail}"
+        "{path}: {at}, column '{column}': {value} is beyond the largest reading a channel takes (magnitude 1e15){}",
+        if *inexact { "; an integer above 2^53 cannot even be represented exactly as a 64-bit float" } else { "" }
     )]
     BeyondReading {
         /// File.
@@ -130,8 +131,8 @@ pub enum InputError {
         column: String,
         /// The cell, as stored.
         value: String,
-        /// Why else it cannot be read (an integer no 64-bit float holds exactly), or empty.
-        detail: String,
+        /// An integer above 2^53, which no 64-bit float holds exactly.
+        inexact: bool,
     },
     /// A reading is outside the channel's declared valid range.
     #[error(

@@ -323,12 +323,7 @@ impl Plan<'_> {
                 at,
                 column,
                 value,
-                detail: if inexact {
-                    "; an integer above 2^53 cannot even be represented exactly as a 64-bit float"
-                        .into()
-                } else {
-                    String::new()
-                },
+                inexact,
             };
         }
         InputError::NotFinite {
