@@ -288,3 +288,96 @@ fn skipped_units_are_counted_as_units_and_rows() {
     let out = String::from_utf8_lossy(&o.stdout).into_owned() + &err;
     assert!(out.contains("skipped 1 row that"), "{out}");
 }
+
+/// A reading channel out of its range in a signal log evaluated by a model is the FAULT the
+/// device gives (`FAULT ch<k>`), counted by the audit, not an error that stops it.
+#[test]
+fn an_out_of_range_reading_in_an_evaluated_signal_log_is_a_fault_unit() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let sheet =
+        format!("{SHEET}\n[[channel]]\nname = \"temp\"\nmin = 0.0\nmax = 100.0\nlsb = 0.1\n");
+    write(d, "s.toml", sheet.as_bytes());
+    // The reading on each unit's first row, after the sample column.
+    let with_temp = |log: &str, hot: Option<&str>| -> String {
+        let mut out = String::from("unit_id,sample,x,temp,verdict\n");
+        for line in log.lines().skip(1) {
+            let f: Vec<&str> = line.split(',').collect();
+            let t = match (f[1], hot) {
+                ("0", Some(id)) if f[0] == id => "150.0",
+                ("0", _) => "31.5",
+                _ => "",
+            };
+            out += &format!("{},{},{},{t},{}\n", f[0], f[1], f[2], f[3]);
+        }
+        out
+    };
+    write(d, "train.csv", with_temp(&training_log(), None).as_bytes());
+    let mut hold = String::from("unit_id,sample,x,verdict\n");
+    hold += &unit("cool", &[11, 12, 13, 11], "GO");
+    hold += &unit("hot", &[12, 12, 13, 11], "GO");
+    write(d, "hold.csv", with_temp(&hold, Some("hot")).as_bytes());
+    let run = |args: &[&str], code: i32| {
+        let o = linegate(args, d);
+        exits(&o, code);
+        o
+    };
+    run(
+        &[
+            "-q",
+            "train",
+            "train.csv",
+            "--sheet",
+            "s.toml",
+            "--folds",
+            "0",
+            "-o",
+            "m.json",
+        ],
+        0,
+    );
+    run(
+        &[
+            "-q",
+            "pack",
+            "--model",
+            "m.json",
+            "--train",
+            "train.csv",
+            "-o",
+            "m.lgmb",
+        ],
+        0,
+    );
+    let o = run(
+        &[
+            "replay", "hold.csv", "--blob", "m.lgmb", "--model", "m.json",
+        ],
+        0,
+    );
+    let out = String::from_utf8_lossy(&o.stdout).into_owned();
+    let faults: Vec<&str> = out.lines().filter(|l| l.contains("FAULT")).collect();
+    assert_eq!(faults.len(), 1, "{out}");
+    assert!(faults[0].starts_with("1 FAULT ch"), "{out}");
+    let o = run(
+        &[
+            "audit",
+            "--model",
+            "m.json",
+            "--train",
+            "train.csv",
+            "--holdout",
+            "hold.csv",
+            "--json",
+        ],
+        1,
+    );
+    let j: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let hold = &j["audit"]["sets"][1];
+    assert_eq!(hold["name"], "holdout", "{hold}");
+    assert_eq!(
+        (&hold["units"], &hold["faults"]),
+        (&2.into(), &1.into()),
+        "{hold}"
+    );
+}
