@@ -117,6 +117,23 @@ pub enum InputError {
         /// The cell.
         value: String,
     },
+    /// A cell holds a finite number beyond the largest reading (a Parquet integer or decimal).
+    #[error(
+        "{path}: {at}, column '{column}': {value} is beyond the largest reading a channel takes (magnitude 1e15){}",
+        if *inexact { "; an integer above 2^53 cannot even be represented exactly as a 64-bit float" } else { "" }
+    )]
+    BeyondReading {
+        /// File.
+        path: PathBuf,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
+        /// Column name.
+        column: String,
+        /// The cell, as stored.
+        value: String,
+        /// An integer above 2^53, which no 64-bit float holds exactly.
+        inexact: bool,
+    },
     /// A reading is outside the channel's declared valid range.
     #[error(
         "{path}: {at}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)"
@@ -168,6 +185,16 @@ pub enum InputError {
         line: u64,
         /// Limit in bytes.
         max: usize,
+    },
+    /// A carriage return ends a line without a line feed (CR-only line ends).
+    #[error(
+        "{path}: line {line}: a carriage return (CR) ends a line without a line feed; the line ends look like CR only (old Mac exports), which Linegate does not read (every row would seem to be on one line): convert the line ends to LF or CR LF (e.g. `tr '\\r' '\\n' < old.csv > new.csv`)"
+    )]
+    BareCr {
+        /// File.
+        path: PathBuf,
+        /// 1-based line (counted by line feeds) holding the carriage return.
+        line: u64,
     },
     /// The header is not UTF-8.
     #[error("{path}: line 1: the header is not valid UTF-8")]

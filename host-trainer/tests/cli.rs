@@ -738,7 +738,7 @@ fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
     exits(&o, 0);
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(
-        err.contains("holdout-bad.csv: skipped 1 unreadable rows (1 not a number)"),
+        err.contains("holdout-bad.csv: skipped 1 row that could not be read (1 not a number)"),
         "{err}"
     );
     assert!(err.contains("line 6"), "{err}");
@@ -756,7 +756,7 @@ fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
         d,
     );
     exits(&o, 0);
-    assert!(String::from_utf8_lossy(&o.stderr).contains("skipped 1 unreadable rows"));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("skipped 1 row that could not be read"));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(v["audit"]["sets"][1]["skipped_rows"], 1);
     assert_eq!(v["audit"]["sets"][1]["units"], lines.len() - 2);

@@ -472,3 +472,92 @@ fn damaged_parquet_files_are_refused() {
         "{err}"
     );
 }
+
+/// A page whose bytes no longer match its stored CRC-32 is refused, naming the file, the
+/// row group and the column; the same file with the bit intact reads. Outside reference:
+/// pyarrow writes the page checksums (`write_page_checksum=True`) and, reading with
+/// `page_checksum_verification=True`, refuses the damaged file too.
+#[test]
+fn a_page_whose_checksum_does_not_match_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // Plain (no dictionary, no compression) pages, so the values are the page's bytes: the
+    // flipped bit is found by locating column b's data page and 1234.5 inside it, and turns
+    // that reading into a tiny number no check of ranges would catch.
+    let script = r#"
+import sys, struct
+import pyarrow as pa, pyarrow.parquet as pq
+n = 1000
+a = [float(i % 97) for i in range(n)]
+b = [float(i % 89) for i in range(n)]
+b[777] = 1234.5
+lab = ["GO" if a[i] > 48 else "NO-GO" for i in range(n)]
+t = pa.table({"a": pa.array(a), "b": pa.array(b), "label": pa.array(lab)})
+good, bad = sys.argv[1] + "/good.parquet", sys.argv[1] + "/bad.parquet"
+pq.write_table(t, good, compression="NONE", use_dictionary=False, write_page_checksum=True)
+col = pq.ParquetFile(good).metadata.row_group(0).column(1)
+assert col.path_in_schema == "b"
+start = col.data_page_offset
+data = bytearray(open(good, "rb").read())
+# The page header's statistics hold 1234.5 too (as the maximum); the value is last.
+k = data.rindex(struct.pack("<d", 1234.5), start, start + col.total_compressed_size)
+data[k + 7] ^= 0x40
+open(bad, "wb").write(bytes(data))
+pq.read_table(good, page_checksum_verification=True)
+assert pq.read_table(bad)["b"][777].as_py() != 1234.5, "the flipped bit is in b's values"
+try:
+    pq.read_table(bad, page_checksum_verification=True)
+    sys.exit("pyarrow read the damaged page")
+except OSError as e:
+    assert "checksum" in str(e).lower() or "crc" in str(e).lower(), e
+"#;
+    if !pyarrow(script, &[d]) {
+        return;
+    }
+    exits(&linegate(&["check", "good.parquet"], d), 0);
+    let err = exits(&linegate(&["check", "bad.parquet"], d), 2);
+    for want in ["bad.parquet", "row group 0, column 'b'", "checksum"] {
+        assert!(err.contains(want), "wanted '{want}' in: {err}");
+    }
+}
+
+/// An integer cell beyond the largest reading is named as such, not as "not finite"; one
+/// above 2^53, which no 64-bit float holds exactly, says so too. pyarrow writes the int64
+/// columns.
+#[test]
+fn integers_beyond_the_largest_reading_are_named_as_such() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let script = r#"
+import sys
+import pyarrow as pa, pyarrow.parquet as pq
+n = 100
+lab = ["GO" if i % 2 else "NO-GO" for i in range(n)]
+def write(name, big):
+    a = [i for i in range(n)]
+    a[42] = big
+    pq.write_table(pa.table({"a": pa.array(a, pa.int64()), "b": pa.array([float(i % 7) for i in range(n)]),
+                             "label": pa.array(lab)}), sys.argv[1] + "/" + name)
+write("inexact.parquet", 2**53 + 1)
+write("large.parquet", 2 * 10**15)
+"#;
+    if !pyarrow(script, &[d]) {
+        return;
+    }
+    let at = "row group 0, row 42 (row 42 of the file; counted from 0), column 'a': ";
+    let err = exits(&linegate(&["check", "inexact.parquet"], d), 2);
+    for want in [
+        "inexact.parquet: ",
+        at,
+        "9007199254740993 is beyond the largest reading",
+        "cannot even be represented exactly as a 64-bit float",
+    ] {
+        assert!(err.contains(want), "wanted '{want}' in: {err}");
+    }
+    let err = exits(&linegate(&["check", "large.parquet"], d), 2);
+    assert!(
+        err.contains(at) && err.contains("2000000000000000 is beyond the largest reading"),
+        "{err}"
+    );
+    assert!(!err.contains("exactly") && !err.contains("finite"), "{err}");
+}

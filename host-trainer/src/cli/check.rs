@@ -124,10 +124,16 @@ fn print_check(r: &separability::SeparabilityReport, ds: &host_trainer::ingest::
         print_units(&r.conflict, "λ");
     }
     if ds.skipped.total > 0 {
+        let reasons: Vec<String> = ds
+            .skipped
+            .by_reason
+            .iter()
+            .map(|(r, n)| format!("{n} {r}"))
+            .collect();
         say!(
-            "skipped {} bad rows: {:?}",
-            ds.skipped.total,
-            ds.skipped.by_reason
+            "skipped {} that could not be read: {}",
+            ds.skipped.counted(),
+            reasons.join(", ")
         );
     }
 }

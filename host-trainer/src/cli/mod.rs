@@ -130,9 +130,9 @@ fn warn_skipped(path: &std::path::Path, skipped: &host_trainer::ingest::SkipRepo
             .map(|(r, n)| format!("{n} {r}"))
             .collect();
         eprintln!(
-            "warning: {}: skipped {} unreadable rows ({}); first: {}",
+            "warning: {}: skipped {} that could not be read ({}); first: {}",
             path.display(),
-            skipped.total,
+            skipped.counted(),
             reasons.join(", "),
             skipped.examples.first().map_or("", String::as_str)
         );

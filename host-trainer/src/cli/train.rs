@@ -193,7 +193,7 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
     if let Some(h) = &o.holdout {
         let (fg, fng) = h.rates();
         say!(
-            "holdout: accuracy {:.4}; false GO {}; false NO-GO {}; FAULT {} (readings outside their range: the device shows NO-GO)",
+            "holdout: accuracy {:.4}; false GO {}; false NO-GO {}; FAULT {} (a reading or window the device refuses: it shows NO-GO)",
             h.accuracy(),
             rate_text(&fg, "NO-GO units"),
             rate_text(&fng, "GO units"),

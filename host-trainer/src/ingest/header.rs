@@ -158,6 +158,13 @@ pub(super) fn read_header(
         reader.refill(buf).map_err(io)?;
     };
     let header = strip_line_end(&buf[start..end]);
+    // Lines are counted by line feeds: a CR-only file would be one line of a header.
+    if header.contains(&b'\r') {
+        return Err(InputError::BareCr {
+            path: path.into(),
+            line: 1,
+        });
+    }
     let tsv = path
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));

@@ -13,7 +13,7 @@
 //! `skip` says which errors are about one row and counts the rows skipped.
 //! [`scaling`] maps each channel's valid range to the kernel's inputs and reads
 //! channel sheets; [`dataset`] holds what was read. Signal logs (a window of samples per
-//! unit) take their own path: [`signals`] reads them and reduces each window to the feature
+//! unit) take their own path: [`signals`] reads them (its bytes checked by `signal_source`) and reduces each window to the feature
 //! channels [`signal_scale`] describes.
 //!
 //! [`Dataset`]: dataset::Dataset
@@ -29,6 +29,7 @@ mod records;
 pub mod scaling;
 mod scan;
 pub mod signal_scale;
+mod signal_source;
 pub mod signals;
 mod skip;
 #[cfg(test)]

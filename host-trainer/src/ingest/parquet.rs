@@ -187,6 +187,28 @@ impl Plan<'_> {
         }
     }
 
+    /// A page of column `c` in row group `g` could not be decoded (a damaged page, or one
+    /// whose checksum does not match its bytes): the error names the column too.
+    fn column_error(&self, group: usize, c: usize, e: impl std::fmt::Display) -> InputError {
+        let message = e.to_string();
+        let message = if message.contains("CRC checksum mismatch") {
+            format!(
+                "{message} (the page's bytes are not the ones written: the file is damaged; \
+                 export it again)"
+            )
+        } else {
+            message
+        };
+        InputError::Parquet {
+            path: self.path.into(),
+            at: format!(
+                "row group {group}, column '{}'",
+                self.cols.names.get(c).map_or("?", String::as_str)
+            ),
+            message,
+        }
+    }
+
     /// A reader of column `c` in row group `g`: one per column, so that the columns of a
     /// group decode in parallel.
     fn reader(&self, g: usize, c: usize) -> Result<ParquetRecordBatchReader, InputError> {
@@ -197,7 +219,7 @@ impl Plan<'_> {
             .with_projection(mask)
             .with_batch_size(SLICE)
             .build()
-            .map_err(|e| self.group_error(g, e))
+            .map_err(|e| self.column_error(g, c, e))
     }
 
     /// Converts column `c`'s cells of one slice.
@@ -286,6 +308,24 @@ impl Plan<'_> {
                 value,
             };
         }
+        // A finite number too large to be a reading (integers and decimals): said as such,
+        // and an integer beyond 2^53 as one no 64-bit float holds exactly.
+        let v = numbers(&a.slice(i, 1), kind, self.decimal_comma)
+            .first()
+            .copied()
+            .unwrap_or(f64::NAN);
+        if v.is_finite() {
+            let inexact = value
+                .parse::<i128>()
+                .is_ok_and(|n| n.unsigned_abs() > 1u128 << 53);
+            return InputError::BeyondReading {
+                path,
+                at,
+                column,
+                value,
+                inexact,
+            };
+        }
         InputError::NotFinite {
             path,
             at,
@@ -345,9 +385,14 @@ impl Slices<'_> {
             let batches: Vec<Option<ArrayRef>> = self
                 .readers
                 .par_iter_mut()
-                .map(|r| r.next().transpose().map(|b| b.map(|b| b.column(0).clone())))
-                .collect::<Result<_, _>>()
-                .map_err(|e| plan.group_error(g, e))?;
+                .zip(&plan.used)
+                .map(|(r, &c)| {
+                    r.next()
+                        .transpose()
+                        .map(|b| b.map(|b| b.column(0).clone()))
+                        .map_err(|e| plan.column_error(g, c, e))
+                })
+                .collect::<Result<_, _>>()?;
             let lens: Vec<Option<usize>> = batches
                 .iter()
                 .map(|b| b.as_ref().map(|a| a.len()))

@@ -222,10 +222,12 @@ impl Parser<'_> {
             Ok(src) => {
                 let f = Fields { src, ranges };
                 let read = self.record(&f, raw.len(), line, vals).map_err(|mut e| {
-                    if let InputError::Ragged { hint, .. } = &mut e
-                        && raw.iter().filter(|&&b| b == b'"').count() % 2 == 1
-                    {
-                        *hint = "; a quote opened here is never closed, so the rest of the file became this row".into();
+                    if let InputError::Ragged { hint, .. } = &mut e {
+                        if raw.iter().filter(|&&b| b == b'"').count() % 2 == 1 {
+                            *hint = "; a quote opened here is never closed, so the rest of the file became this row".into();
+                        } else if strip_line_end(raw).contains(&b'\r') {
+                            *hint = "; the line holds a carriage return (CR) without a line feed: lines end only at a line feed (LF or CR LF), so a CR-only line end joins rows".into();
+                        }
                     }
                     e
                 });

@@ -393,7 +393,7 @@ pub(super) fn no_rows(path: &Path, skipped: &SkipReport) -> InputError {
     InputError::NoRows {
         path: path.into(),
         skipped: if skipped.total > 0 {
-            format!(" ({} rows skipped as bad)", skipped.total)
+            format!(" ({} skipped as bad)", skipped.counted())
         } else {
             String::new()
         },

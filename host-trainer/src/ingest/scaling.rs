@@ -117,6 +117,12 @@ impl ChannelScale {
         if lsb <= 0.0 {
             return Err(format!("channel '{name}': lsb must be positive, got {lsb}"));
         }
+        if !lsb.is_normal() {
+            return Err(format!(
+                "channel '{name}': lsb {lsb:e} is not a usable count size (below {:e}, a subnormal number); declare the physical size of one raw count",
+                f64::MIN_POSITIVE
+            ));
+        }
         if name.len() > shared_model::NAME_CAPACITY {
             return Err(format!(
                 "channel '{}': the name is {} bytes; the device keeps at most {} (shorten the column or sheet name)",

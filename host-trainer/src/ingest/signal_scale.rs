@@ -61,6 +61,20 @@ impl SignalScale {
                 "signal '{name_e}': lsb must be a positive number and zero a finite one"
             ));
         }
+        // A subnormal lsb turns every sample into a count beyond any range, which would
+        // then be blamed on the log.
+        if !lsb.is_normal() {
+            return Err(format!(
+                "signal '{name_e}': lsb {lsb:e} is not a usable count size (below {:e}, a subnormal number); declare the physical size of one raw count",
+                f64::MIN_POSITIVE
+            ));
+        }
+        if raw.0 > raw.1 {
+            return Err(format!(
+                "signal '{name_e}': raw_min ({}) is above raw_max ({}); the valid samples are raw_min..=raw_max",
+                raw.0, raw.1
+            ));
+        }
         if name.is_empty() || name.chars().any(char::is_control) {
             return Err(format!(
                 "signal '{name_e}': the name must be a log column's name (not empty, no control characters)"

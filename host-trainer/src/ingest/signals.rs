@@ -20,20 +20,19 @@
 //! …
 //! ```
 //!
-//! Each unit is checked whole: a short or over-long window, a gap, an empty or
-//! non-numeric sample, a label or reading that changes within the unit, and a unit whose
-//! rows appear in two places are errors naming the line, unit, column and sample; under
-//! `--skip-bad-rows` a unit with such a fault is skipped whole and counted (a unit split in
-//! two places still ends the read: its rows cannot be told apart).
+//! Each unit is checked whole: a gap, an empty or non-numeric sample, a label or reading
+//! that changes within the unit, and a unit whose rows appear in two places are errors
+//! naming the line, unit, column and sample; under `--skip-bad-rows` a unit with such a
+//! fault is skipped whole and counted (a unit split in two places still ends the read: its
+//! rows cannot be told apart). A short or over-long window is such an error in a training
+//! log; a log read for a model keeps it, as the device's kernel refuses it (see [`ReadFor`]).
 //!
 //! Features are computed with [`CheckedFeature::compute`], the function the device runs,
 //! so training, audit, replay and the device see the same integers.
 
 use std::collections::HashMap;
-use std::io::Read;
 use std::path::Path;
 
-use sha2::{Digest, Sha256};
 use shared_model::WindowFault;
 use shared_model::features::CheckedFeature;
 
@@ -44,7 +43,12 @@ use crate::ingest::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is
 use crate::ingest::parse::{label_cell, parse_number};
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 use crate::ingest::signal_scale::SignalScale;
+use crate::ingest::signal_source::{Hashing, csv_error, read_error};
 use crate::ingest::skip::SkipReport;
+
+/// Said where a training log refuses a unit whose window the device would refuse: a log
+/// evaluated by a model keeps it as a FAULT unit instead.
+const TRAINING_REFUSES: &str = " (a log read to train refuses such a unit; a holdout, audited or replayed log keeps it as a FAULT unit, as the device refuses it)";
 
 /// Names of the optional column that numbers a unit's samples.
 pub const SAMPLE_NAMES: &[&str] = &["sample", "sample_index"];
@@ -87,51 +91,6 @@ pub struct SignalLogHeader {
     pub sha256: String,
 }
 
-/// Hashes what passes through, so the log is read once for both, and refuses a line longer
-/// than `max_line`: the CSV reader holds a whole record in memory, so a file of one endless
-/// line must stop here, as the log reader stops it.
-struct Hashing<R> {
-    inner: R,
-    hasher: Option<Sha256>,
-    max_line: usize,
-    /// Bytes since the last line feed, and line feeds seen.
-    since_lf: usize,
-    lines: u64,
-}
-
-/// The line number of a line refused as too long (in the io error's payload).
-#[derive(Debug)]
-struct LongLine(u64);
-
-impl std::fmt::Display for LongLine {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        write!(f, "line {} is too long", self.0)
-    }
-}
-
-impl std::error::Error for LongLine {}
-
-impl<R: Read> Read for Hashing<R> {
-    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
-        let n = self.inner.read(buf)?;
-        let got = &buf[..n];
-        if let Some(h) = self.hasher.as_mut() {
-            h.update(got);
-        }
-        match memchr::memrchr(b'\n', got) {
-            Some(k) => {
-                self.lines += memchr::memchr_iter(b'\n', got).count() as u64;
-                self.since_lf = n - k - 1;
-            }
-            None => self.since_lf += n,
-        }
-        if self.since_lf > self.max_line {
-            return Err(std::io::Error::other(LongLine(self.lines + 1)));
-        }
-        Ok(n)
-    }
-}
-
 /// The unit being read.
 #[derive(Default)]
 struct Open {
@@ -150,18 +109,18 @@ struct Open {
 
 /// Reads a signal log, calling `each` on every whole unit in file order.
 ///
-/// `readings`: the reading channels to take (a model's), or `None` for every column that
-/// is not the unit id, label, sample number, timestamp, a signal, or left out with
-/// `opts.ignore` (`opts.channels` when given). Errors of one unit returned by `each`
-/// (an [`InputError::Signal`]) skip the unit under `opts.skip_bad_rows`, as the reader's own.
+/// `read_for` decides the reading channels and what becomes of a window the device would
+/// refuse (see [`ReadFor`]). Errors of one unit returned by `each` (an
+/// [`InputError::Signal`]) skip the unit under `opts.skip_bad_rows`, as the reader's own.
 ///
 /// # Errors
-/// I/O, a missing column, a unit that is not whole (see the module documentation).
+/// I/O, a missing column, a column that is no declared channel (training), a unit that is
+/// not whole (see the module documentation).
 pub fn stream_signal_units(
     path: &Path,
     opts: &LogOptions,
     signals: &[SignalScale],
-    readings: Option<&[String]>,
+    read_for: ReadFor<'_>,
     skipped: &mut SkipReport,
     mut each: impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
 ) -> Result<SignalLogHeader, InputError> {
@@ -175,13 +134,7 @@ pub fn stream_signal_units(
     let file = std::fs::File::open(path).map_err(|e| InputError::io(path, e))?;
     let mut source = std::io::BufReader::with_capacity(
         1 << 16,
-        Hashing {
-            inner: file,
-            hasher: opts.digest.then(Sha256::new),
-            max_line: opts.max_line_len,
-            since_lf: 0,
-            lines: 0,
-        },
+        Hashing::new(file, opts.digest, opts.max_line_len),
     );
     let delimiter = match opts.delimiter {
         Some(d) => d,
@@ -190,7 +143,7 @@ pub fn stream_signal_units(
                 .extension()
                 .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
             let head =
-                std::io::BufRead::fill_buf(&mut source).map_err(|e| InputError::io(path, e))?;
+                std::io::BufRead::fill_buf(&mut source).map_err(|e| read_error(path, opts, e))?;
             let first = head.split(|&b| b == b'\n').next().unwrap_or_default();
             if tsv { b'\t' } else { detect_delimiter(first) }
         }
@@ -209,7 +162,8 @@ pub fn stream_signal_units(
         Ok(_) => return Err(InputError::Empty { path: path.into() }),
         Err(e) => return Err(csv_error(path, opts, e)),
     };
-    let cols = Columns::resolve(path, &names, opts, signals, readings)?;
+    let cols = Columns::resolve(path, &names, opts, signals, &read_for)?;
+    let keep_faults = matches!(read_for, ReadFor::Model { .. });
     let width = names.len();
     let mut open = Open::default();
     let mut seen: HashMap<String, u64> = HashMap::new();
@@ -252,7 +206,15 @@ pub fn stream_signal_units(
         if !any || id != open.id.as_str() {
             if any {
                 finish(
-                    path, opts, &cols, signals, longest, &mut open, skipped, &mut each,
+                    path,
+                    opts,
+                    &cols,
+                    signals,
+                    longest,
+                    keep_faults,
+                    &mut open,
+                    skipped,
+                    &mut each,
                 )?;
             }
             if let Some(first) = seen.insert(id.to_string(), line) {
@@ -269,7 +231,15 @@ pub fn stream_signal_units(
             any = true;
         }
         if open.fault.is_none()
-            && let Err(message) = open.row(&record, &cols, signals, longest, decimal_comma, opts)
+            && let Err(message) = open.row(
+                &record,
+                &cols,
+                signals,
+                longest,
+                keep_faults,
+                decimal_comma,
+                opts,
+            )
         {
             let e = InputError::Signal {
                 path: path.into(),
@@ -293,39 +263,23 @@ pub fn stream_signal_units(
     }
     if any {
         finish(
-            path, opts, &cols, signals, longest, &mut open, skipped, &mut each,
+            path,
+            opts,
+            &cols,
+            signals,
+            longest,
+            keep_faults,
+            &mut open,
+            skipped,
+            &mut each,
         )?;
     }
     drop(rdr);
-    let sha256 = source
-        .into_inner()
-        .hasher
-        .map_or(String::new(), |h| crate::digest::lower_hex(&h.finalize()));
+    let sha256 = source.into_inner().sha256();
     Ok(SignalLogHeader {
         readings: cols.readings.iter().map(|&i| names[i].clone()).collect(),
         sha256,
     })
-}
-
-/// A read error of the CSV reader: a line refused as too long names its line, an I/O error
-/// stays one, anything else is a malformed file.
-fn csv_error(path: &Path, opts: &LogOptions, e: csv::Error) -> InputError {
-    if let csv::ErrorKind::Io(io) = e.kind()
-        && let Some(&LongLine(line)) = io.get_ref().and_then(|r| r.downcast_ref::<LongLine>())
-    {
-        return InputError::LineTooLong {
-            path: path.into(),
-            line,
-            max: opts.max_line_len,
-        };
-    }
-    match e.into_kind() {
-        csv::ErrorKind::Io(io) => InputError::io(path, io),
-        other => InputError::Format {
-            path: path.into(),
-            message: format!("cannot read a row: {other:?}"),
-        },
-    }
 }
 
 /// Ends the open unit: checks it is whole, then hands it to `each` (or counts it skipped).
@@ -336,13 +290,14 @@ fn finish(
     cols: &Columns,
     signals: &[SignalScale],
     longest: usize,
+    keep_faults: bool,
     open: &mut Open,
     skipped: &mut SkipReport,
     each: &mut impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
 ) -> Result<(), InputError> {
     let last = open.lines.last().copied().unwrap_or(0);
     let fault = open.fault.take().or_else(|| {
-        (open.rows < longest).then(|| {
+        (open.rows < longest && !keep_faults).then(|| {
             let short: Vec<String> = signals
                 .iter()
                 .filter(|s| usize::from(s.window) > open.rows)
@@ -353,7 +308,7 @@ fn finish(
                 line: last,
                 unit: open.id.clone(),
                 message: format!(
-                    "short window: the unit has {} rows ({})",
+                    "short window: the unit has {} rows ({}){TRAINING_REFUSES}",
                     open.rows,
                     short.join(", ")
                 ),
@@ -382,7 +337,7 @@ fn finish(
     };
     match result {
         Err(e @ InputError::Signal { .. }) if opts.skip_bad_rows => {
-            skipped.add(&e);
+            skipped.add_unit(&e, open.rows);
             Ok(())
         }
         r => r,
@@ -405,20 +360,23 @@ impl Open {
         self.fault = None;
     }
 
-    /// Takes one row of the unit; `Err` is the message of the unit's fault.
+    /// Takes one row of the unit; `Err` is the message of the unit's fault. `keep`: keep
+    /// windows of any length (see [`stream_signal_units`]).
+    #[allow(clippy::too_many_arguments)]
     fn row(
         &mut self,
         record: &csv::ByteRecord,
         cols: &Columns,
         signals: &[SignalScale],
         longest: usize,
+        keep: bool,
         decimal_comma: bool,
         opts: &LogOptions,
     ) -> Result<(), String> {
         let k = self.rows;
-        if k >= longest {
+        if k >= longest && !keep {
             return Err(format!(
-                "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?"
+                "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?{TRAINING_REFUSES}"
             ));
         }
         let text = |f: &[u8]| String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned();
@@ -459,19 +417,28 @@ impl Open {
             let c = cols.signals[j];
             let cell = record[c].trim_ascii();
             let n = usize::from(s.window);
-            if k >= n {
-                if !cell.is_empty() {
+            // Where faults are kept a window may end early or run on: its samples are the
+            // non-empty cells from the unit's first row on, without a gap.
+            if cell.is_empty() {
+                if k < n && !keep {
                     return Err(format!(
-                        "over-long window: signal '{}' has a sample {k} (0-based), beyond its window of {n} samples; leave its cells empty after the window",
+                        "gap: signal '{}' has no sample {k} (0-based; an empty cell)",
                         s.name
                     ));
                 }
                 continue;
             }
-            if cell.is_empty() {
+            if k >= n && !keep {
                 return Err(format!(
-                    "gap: signal '{}' has no sample {k} (0-based; an empty cell)",
+                    "over-long window: signal '{}' has a sample {k} (0-based), beyond its window of {n} samples; leave its cells empty after the window{TRAINING_REFUSES}",
                     s.name
+                ));
+            }
+            if w.len() != k {
+                return Err(format!(
+                    "gap: signal '{}' has no sample {} (0-based; an empty cell), but a sample {k}",
+                    s.name,
+                    w.len()
                 ));
             }
             let v = parse_number(cell, decimal_comma)
@@ -539,6 +506,27 @@ impl Open {
     }
 }
 
+/// What a signal log is read for: its reading channels, and what becomes of a unit whose
+/// window the device would refuse.
+pub enum ReadFor<'a> {
+    /// Training or a check, with a sheet: the reading channels are `--channels` when given,
+    /// else the columns the sheet declares (`[[channel]]`); any other column that is not the
+    /// unit id, label, sample number, timestamp or a signal is refused (unless left out with
+    /// `--ignore`), since it would be taken for a reading. A window the device would refuse
+    /// is an error.
+    Training {
+        /// The reading channels the sheet declares.
+        declared: &'a [String],
+    },
+    /// Evaluation by a model (holdout, audit, replay): its reading channels, every other
+    /// column passed over. A window shorter or longer than its signal's is handed on as it
+    /// is, so that the kernel refuses it (a FAULT unit), as it refuses a sample out of range.
+    Model {
+        /// The model's reading channels, in model order.
+        readings: &'a [String],
+    },
+}
+
 /// Where each kind of column is.
 struct Columns {
     names: Vec<String>,
@@ -556,7 +544,7 @@ impl Columns {
         names: &[String],
         opts: &LogOptions,
         signals: &[SignalScale],
-        readings: Option<&[String]>,
+        read_for: &ReadFor<'_>,
     ) -> Result<Self, InputError> {
         let mut seen = std::collections::HashSet::with_capacity(names.len());
         for n in names {
@@ -604,24 +592,45 @@ impl Columns {
                 || Some(i) == time
                 || signals.contains(&i)
         };
-        let wanted = readings
-            .map(<[String]>::to_vec)
-            .or_else(|| opts.channels.clone());
+        let (wanted, declared) = match *read_for {
+            ReadFor::Model { readings } => (Some(readings.to_vec()), &[][..]),
+            ReadFor::Training { declared } => (opts.channels.clone(), declared),
+        };
         let readings = match wanted {
             Some(list) => list
                 .iter()
                 .map(|n| find(names, n).ok_or_else(|| unknown(n)))
                 .collect::<Result<Vec<_>, _>>()?,
-            None => (0..names.len())
-                .filter(|&i| {
-                    !taken(i)
-                        && !names[i].is_empty()
-                        && !opts
-                            .ignore
-                            .iter()
-                            .any(|g| g.eq_ignore_ascii_case(&names[i]))
-                })
-                .collect(),
+            None => {
+                let (readings, other): (Vec<usize>, Vec<usize>) = (0..names.len())
+                    .filter(|&i| {
+                        !taken(i)
+                            && !names[i].is_empty()
+                            && !opts
+                                .ignore
+                                .iter()
+                                .any(|g| g.eq_ignore_ascii_case(&names[i]))
+                    })
+                    .partition(|&i| declared.iter().any(|d| d.eq_ignore_ascii_case(&names[i])));
+                if !other.is_empty() {
+                    let role = |what: &str, c: Option<usize>| {
+                        c.map(|c| format!(", {what} '{}'", names[c]))
+                            .unwrap_or_default()
+                    };
+                    return Err(undeclared_columns(
+                        path,
+                        other.iter().map(|&i| names[i].as_str()).collect(),
+                        format!(
+                            "unit id '{}'{}{}{}",
+                            names[unit],
+                            role("sample number", sample),
+                            role("label", label),
+                            role("timestamp", time),
+                        ),
+                    ));
+                }
+                readings
+            }
         };
         if let Some(&i) = readings.iter().find(|&&i| taken(i)) {
             return Err(InputError::Format {
@@ -641,6 +650,42 @@ impl Columns {
             signals,
             readings,
         })
+    }
+}
+
+/// The refusal of columns a training signal log would take for readings although the sheet
+/// declares none of them: a signal log's reading is one number per unit, so such a column
+/// (a time in seconds, an operator's note) would otherwise fail as a reading that changes
+/// within the unit, or enter the model unannounced. `recognised` lists the columns taken by
+/// role, so that a timestamp taken (or not taken) by its name is seen.
+fn undeclared_columns(path: &Path, columns: Vec<&str>, recognised: String) -> InputError {
+    let quoted: Vec<String> = columns.iter().map(|c| format!("'{c}'")).collect();
+    let like_time: Vec<&str> = columns
+        .iter()
+        .copied()
+        .filter(|c| {
+            let c = c.to_ascii_lowercase();
+            TIME_NAMES.iter().any(|t| c.starts_with(t))
+        })
+        .collect();
+    let time_hint = match like_time.first() {
+        Some(t) => format!(
+            "; if '{t}' is the timestamp, name it with --timestamp {t} (by name only {} are taken)",
+            TIME_NAMES.join(", ")
+        ),
+        None => String::new(),
+    };
+    InputError::Format {
+        path: path.into(),
+        message: format!(
+            "line 1: column{} {} {} neither a signal, a reading channel the sheet declares ([[channel]]), the unit id, label, sample number nor timestamp (recognised: {recognised}); leave {} out with --ignore {}, declare {} in the sheet, or choose the reading channels with --channels{time_hint}",
+            if columns.len() == 1 { "" } else { "s" },
+            quoted.join(", "),
+            if columns.len() == 1 { "is" } else { "are" },
+            if columns.len() == 1 { "it" } else { "them" },
+            columns.join(","),
+            if columns.len() == 1 { "it" } else { "them" },
+        ),
     }
 }
 
@@ -670,7 +715,7 @@ pub fn window_error(
             usize::from(index),
             path,
             format!(
-                "signal '{}', sample {index} (0-based): raw {raw} is outside the signal's valid samples [{}, {}]",
+                "signal '{}', sample {index} (0-based): raw {raw} is outside the signal's valid samples [{}, {}]{TRAINING_REFUSES}",
                 signal.name, signal.raw_min, signal.raw_max
             ),
         ),
@@ -678,7 +723,7 @@ pub fn window_error(
             0,
             path,
             format!(
-                "signal '{}': {got} samples where the window is {expected}",
+                "signal '{}': {got} samples where the window is {expected}{TRAINING_REFUSES}",
                 signal.name
             ),
         ),
@@ -689,8 +734,10 @@ pub fn window_error(
 /// (each unit's feature values computed by the shared integer code).
 ///
 /// # Errors
-/// As [`stream_signal_units`]; a sample outside its signal's valid range or a reading
-/// outside its channel's range (the device would refuse the unit); too few units.
+/// As [`stream_signal_units`]; too few units. In a training log (a sheet's channels) a
+/// window the device would refuse (a sample outside its signal's valid range, a window
+/// shorter or longer than declared) or a reading outside its channel's range is an error;
+/// in a log read for a model the unit is kept as the FAULT the device gives.
 pub fn read_signal_log(
     path: &Path,
     opts: &LogOptions,
@@ -726,18 +773,32 @@ pub fn read_signal_log(
             Ok((j, f))
         })
         .collect::<Result<Vec<(usize, CheckedFeature)>, InputError>>()?;
-    let reading_names: Option<Vec<String>> =
-        model.map(|ch| reading_channels(ch).map(|c| c.name.clone()).collect());
+    let reading_names: Vec<String> = match (model, sheet) {
+        (Some(ch), _) => reading_channels(ch).map(|c| c.name.clone()).collect(),
+        (None, Some(s)) => s.channels.iter().map(|c| c.name.clone()).collect(),
+        (None, None) => Vec::new(),
+    };
     let mut skipped = SkipReport::default();
     let (mut physical, mut values, mut labels, mut lines) =
         (Vec::new(), Vec::new(), Vec::new(), Vec::new());
     let (mut ids, mut times) = (Vec::<String>::new(), Vec::<String>::new());
+    let mut unit_rows = Vec::new();
     let mut row = Vec::with_capacity(computed.len());
+    // A log read for a model keeps the units the device refuses, as FAULT units.
+    let keep_faults = model.is_some();
     let header = stream_signal_units(
         path,
         opts,
         signals,
-        reading_names.as_deref(),
+        if keep_faults {
+            ReadFor::Model {
+                readings: &reading_names,
+            }
+        } else {
+            ReadFor::Training {
+                declared: &reading_names,
+            }
+        },
         &mut skipped,
         |u| {
             if ids.len() >= opts.max_rows {
@@ -747,17 +808,23 @@ pub fn read_signal_log(
                 });
             }
             row.clear();
-            for &(j, f) in &computed {
+            for (&(j, f), c) in computed.iter().zip(&features) {
                 let w = u.windows.get(j).map_or(&[][..], Vec::as_slice);
-                row.push(
-                    f.compute(w)
-                        .map_err(|e| window_error(path, u, &signals[j], e))?,
-                );
+                row.push(match (f.compute(w), keep_faults) {
+                    (Ok(v), _) => v,
+                    // The device refuses the window: the unit is a FAULT, as one with a
+                    // reading out of range is (a count the kernel refuses on that channel).
+                    (Err(e), true) => {
+                        refused_count(c).ok_or_else(|| window_error(path, u, &signals[j], e))?
+                    }
+                    (Err(e), false) => return Err(window_error(path, u, &signals[j], e)),
+                });
             }
             values.extend_from_slice(&row);
             physical.extend_from_slice(u.readings);
             labels.push(u.label);
             lines.push(u.line);
+            unit_rows.push(u.lines.len());
             ids.push(u.id.to_string());
             if let Some(t) = u.time {
                 times.push(t.to_string());
@@ -803,6 +870,8 @@ pub fn read_signal_log(
             let v = physical[i * nr + r];
             match s.to_raw(v) {
                 Some(x) => raw_readings[r] = x,
+                // As the device reads it: the kernel FAULTs the unit.
+                None if keep_faults => raw_readings[r] = s.raw_reading(v),
                 None => {
                     let e = InputError::OutOfRange {
                         path: path.into(),
@@ -813,7 +882,7 @@ pub fn read_signal_log(
                         max: s.max,
                     };
                     if opts.skip_bad_rows {
-                        skipped.add(&e);
+                        skipped.add_unit(&e, unit_rows[i]);
                         continue 'units;
                     }
                     return Err(e);
@@ -842,13 +911,21 @@ pub fn read_signal_log(
         return Err(InputError::NoRows {
             path: path.into(),
             skipped: if ds.skipped.total > 0 {
-                format!(" ({} units skipped as bad)", ds.skipped.total)
+                format!(" ({} skipped as bad)", ds.skipped.counted())
             } else {
                 String::new()
             },
         });
     }
     Ok(ds)
+}
+
+/// A count outside channel `c`'s valid range, which the kernel refuses (FAULT) on that
+/// channel; `None` only for a channel whose range is every 32-bit count.
+fn refused_count(c: &ChannelScale) -> Option<i32> {
+    c.raw_max
+        .checked_add(1)
+        .or_else(|| c.raw_min.checked_sub(1))
 }
 
 /// A model's reading channels (those that are not features), in channel order: the

@@ -3,7 +3,8 @@
 //! First line `# model <model id> blob <blob id>` (the blob id is the blob's CRC-32 in
 //! eight hex digits), then one line per unit in log order (0-based index):
 //! `<index> <GO|NO-GO|RECHECK> <score>` or `<index> FAULT ch<channel>`; for a model with
-//! signal features also `<index> FAULT signal<k>` (a window refused: a sample out of range).
+//! signal features also `<index> FAULT signal<k>` (a window refused: a sample out of range,
+//! or a window shorter or longer than declared).
 
 use shared_model::{CheckedModel, CheckedSignalModel, Fault, SignalFault};
 
@@ -11,7 +12,7 @@ use std::path::Path;
 
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
-use crate::ingest::signals::{device_readings, reading_channels, stream_signal_units};
+use crate::ingest::signals::{ReadFor, device_readings, reading_channels, stream_signal_units};
 use crate::ingest::{LogOptions, SkipReport};
 use crate::train::float_model::FloatModel;
 
@@ -61,7 +62,8 @@ pub fn replay_signal_log(
         .map(|c| c.name.clone())
         .collect();
     let mut index = 0usize;
-    stream_signal_units(path, opts, &fm.signals, Some(&names), skipped, |u| {
+    let read_for = ReadFor::Model { readings: &names };
+    stream_signal_units(path, opts, &fm.signals, read_for, skipped, |u| {
         let raw = device_readings(&fm.channels, u);
         let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
         each(&signal_line(index, model, &raw, &windows), &raw, u.windows);
