@@ -63,3 +63,98 @@ pub fn read_text(path: &Path, kind: &'static str, max: u64) -> Result<String, In
         message: format!("not a {kind}: the file is not UTF-8 text"),
     })
 }
+
+/// Checks that no JSON object in `text` names a key twice, at any depth.
+///
+/// A JSON parser keeps one of two equal keys (serde_json the last) without a word, so a
+/// file could carry a second `"bias"` that a reader other than ours takes; a record read
+/// for a release must mean one thing. Returns the first repeated key, with the path to its
+/// object (`provenance.training_log`) and serde_json's line and column.
+///
+/// # Errors
+/// The repeated key as a message, or the parser's own message for text that is not JSON.
+pub fn json_keys_unique(text: &str) -> Result<(), String> {
+    use serde::de::{DeserializeSeed, Deserializer, Error as _, MapAccess, SeqAccess, Visitor};
+
+    /// Walks one value; `path` names where it sits.
+    struct Walk<'p>(&'p str);
+
+    impl<'de> DeserializeSeed<'de> for Walk<'_> {
+        type Value = ();
+        fn deserialize<D: Deserializer<'de>>(self, d: D) -> Result<(), D::Error> {
+            d.deserialize_any(self)
+        }
+    }
+
+    impl<'de> Visitor<'de> for Walk<'_> {
+        type Value = ();
+        fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+            f.write_str("a JSON value")
+        }
+        fn visit_bool<E>(self, _: bool) -> Result<(), E> {
+            Ok(())
+        }
+        fn visit_i64<E>(self, _: i64) -> Result<(), E> {
+            Ok(())
+        }
+        fn visit_u64<E>(self, _: u64) -> Result<(), E> {
+            Ok(())
+        }
+        fn visit_f64<E>(self, _: f64) -> Result<(), E> {
+            Ok(())
+        }
+        fn visit_str<E>(self, _: &str) -> Result<(), E> {
+            Ok(())
+        }
+        fn visit_unit<E>(self) -> Result<(), E> {
+            Ok(())
+        }
+        fn visit_seq<A: SeqAccess<'de>>(self, mut seq: A) -> Result<(), A::Error> {
+            let mut i = 0usize;
+            loop {
+                let here = format!("{}[{i}]", self.0);
+                if seq.next_element_seed(Walk(&here))?.is_none() {
+                    return Ok(());
+                }
+                i += 1;
+            }
+        }
+        fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<(), A::Error> {
+            let mut seen = std::collections::HashSet::new();
+            while let Some(key) = map.next_key::<String>()? {
+                let here = if self.0.is_empty() {
+                    key.clone()
+                } else {
+                    format!("{}.{key}", self.0)
+                };
+                if !seen.insert(key) {
+                    return Err(A::Error::custom(format!("the key '{here}' appears twice")));
+                }
+                map.next_value_seed(Walk(&here))?;
+            }
+            Ok(())
+        }
+    }
+
+    let mut de = serde_json::Deserializer::from_str(text);
+    Walk("").deserialize(&mut de).map_err(|e| e.to_string())?;
+    de.end().map_err(|e| e.to_string())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::json_keys_unique;
+
+    #[test]
+    fn a_key_named_twice_is_found_at_any_depth() {
+        assert!(json_keys_unique(r#"{"a": 1, "b": [{"c": 2}, {"c": 3}]}"#).is_ok());
+        let e = json_keys_unique("{\"a\": 1,\n \"a\": 2}").unwrap_err();
+        assert!(
+            e.contains("'a' appears twice") && e.contains("line 2"),
+            "{e}"
+        );
+        let e = json_keys_unique(r#"{"p": {"x": [1, {"k": 0, "k": 1}]}}"#).unwrap_err();
+        assert!(e.contains("'p.x[1].k' appears twice"), "{e}");
+        assert!(json_keys_unique("{} {}").is_err());
+    }
+}

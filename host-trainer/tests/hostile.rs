@@ -359,3 +359,93 @@ fn killed_and_concurrent_packs_leave_whole_sets_and_no_temporary_files() {
         assert!(set_is_whole(&d.join("c"), "m"), "mixed set");
     }
 }
+
+/// The model file's digest covers the model as parsed, so the text itself must hold each
+/// field once and nothing else: a second `"bias"` (which another JSON reader may take), a
+/// field no model has, or megabytes of padding are refused, naming the key and its line.
+#[test]
+fn model_files_with_a_key_twice_or_an_unknown_field_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    let text = std::fs::read_to_string(d.join("demo/model.json")).unwrap();
+    let line_of = |key: &str| {
+        text.lines()
+            .find(|l| l.trim_start().starts_with(&format!("\"{key}\":")))
+            .unwrap_or_else(|| panic!("no {key} line"))
+            .to_string()
+    };
+    let bias = line_of("bias");
+    let id = line_of("model_id");
+    let weights_at = text.find("  \"weights\": [").unwrap();
+    let weights_end = weights_at + text[weights_at..].find("],").unwrap() + 2;
+    let weights = &text[weights_at..weights_end];
+    let pad = format!("{{\n  \"pad\": \"{}\",", "a".repeat(5 << 20));
+    let cases: Vec<(&str, String, &str)> = vec![
+        // Each copy holds the same value, so the parsed model (and its digest) is unchanged.
+        (
+            "bias",
+            text.replacen(&bias, &format!("{bias}\n{bias}"), 1),
+            "'bias' appears twice",
+        ),
+        (
+            "id",
+            text.replacen(&id, &format!("{id}\n{id}"), 1),
+            "'model_id' appears twice",
+        ),
+        (
+            "weights",
+            text.replacen(weights, &format!("{weights}\n{weights}"), 1),
+            "'weights' appears twice",
+        ),
+        (
+            "nested",
+            text.replacen(
+                "\"unit\": \"mA\",",
+                "\"unit\": \"mA\",\n \"unit\": \"mA\",",
+                1,
+            ),
+            "'channels[0].unit' appears twice",
+        ),
+        (
+            "unknown",
+            text.replacen("{", "{\n  \"note\": \"x\",", 1),
+            "unknown field `note`",
+        ),
+        (
+            "nested-unknown",
+            text.replacen(
+                "\"unit\": \"mA\",",
+                "\"unit\": \"mA\",\n \"comment\": 1,",
+                1,
+            ),
+            "unknown field `comment`",
+        ),
+        (
+            "padding",
+            text.replacen("{", &pad, 1),
+            "unknown field `pad`",
+        ),
+    ];
+    for (name, body, want) in cases {
+        let file = format!("{name}.json");
+        write(d, &file, body.as_bytes());
+        let err = exits(
+            &linegate(
+                &[
+                    "audit",
+                    "--model",
+                    &file,
+                    "--train",
+                    "demo/train-synthetic.csv",
+                ],
+                d,
+            ),
+            2,
+        );
+        assert!(err.contains(&file) && err.contains(want), "{name}: {err}");
+        if name != "padding" {
+            assert!(err.contains("line "), "{name}: the place is named: {err}");
+        }
+    }
+}

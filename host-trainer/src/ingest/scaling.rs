@@ -62,6 +62,7 @@ use crate::ingest::signal_scale::{FeatureSource, SignalScale};
 
 /// One channel's scaling, as stored in the float model.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct ChannelScale {
     /// Column name in the bench log.
     pub name: String,

@@ -13,6 +13,7 @@ use shared_model::features::{CheckedFeature, Feature, SignalSpec};
 
 /// One signal's window and conversion, as the sheet declares it and the float model keeps it.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct SignalScale {
     /// Column in the signal log.
     pub name: String,
@@ -157,6 +158,7 @@ impl SignalScale {
 
 /// Where a feature channel's reading comes from: one feature of one signal.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct FeatureSource {
     /// The signal's name.
     pub signal: String,

@@ -7,6 +7,7 @@ use crate::error::InputError;
 
 /// Rows skipped under `skip_bad_rows`, by reason.
 #[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct SkipReport {
     /// Rows skipped in all (units, for a signal log: see `unit_rows`).
     pub total: usize,

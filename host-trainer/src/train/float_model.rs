@@ -38,6 +38,7 @@ pub const SIGNAL_FORMAT_VERSION: u32 = 3;
 
 /// A file that went into a model.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct InputFile {
     /// Path as given.
     pub path: PathBuf,
@@ -47,6 +48,7 @@ pub struct InputFile {
 
 /// How the model was made.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Provenance {
     /// The training log.
     pub training_log: InputFile,
@@ -70,6 +72,7 @@ pub struct Provenance {
 
 /// A holdout taken out of the training log by `train`.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct HoldoutSplit {
     /// `fraction` (seeded, stratified by class) or `after` (by timestamp).
     pub method: String,
@@ -90,6 +93,7 @@ pub struct HoldoutSplit {
 
 /// Training figures kept with the model.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct TrainingSummary {
     /// Units trained on.
     pub units: usize,
@@ -113,6 +117,7 @@ pub struct TrainingSummary {
 
 /// A trained float model with the scaling the device will apply.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct FloatModel {
     /// Always [`FORMAT`].
     pub format: String,
@@ -329,6 +334,11 @@ impl FloatModel {
             path: path.into(),
             message,
         };
+        // The digest covers the model as parsed: a key named twice, or one no model has,
+        // would not show in it, so the text itself must hold each field once and nothing
+        // else.
+        crate::input::json_keys_unique(text)
+            .map_err(|e| fmt(format!("not a Linegate float model: {e}")))?;
         let probe: serde_json::Value = serde_json::from_str(text)
             .map_err(|e| fmt(format!("not a Linegate float model: {e}")))?;
         let (tag, version) = (probe.get("format"), probe.get("format_version"));
@@ -344,7 +354,8 @@ impl FloatModel {
                 version.map_or("none".into(), |v| v.to_string())
             )));
         }
-        let m: Self = serde_json::from_value(probe)
+        // From the text, not the probe, so an unknown field is named with its line.
+        let m: Self = serde_json::from_str(text)
             .map_err(|e| fmt(format!("not a Linegate float model: {e}")))?;
         if m.content_sha256 != m.content_digest() {
             return Err(fmt(

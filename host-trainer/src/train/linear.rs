@@ -60,6 +60,7 @@ impl Linear {
 
 /// The result of moving the threshold for asymmetric risk.
 #[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct ThresholdShift {
     /// GO when score > threshold.
     pub threshold: f64,
