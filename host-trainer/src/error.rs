@@ -280,6 +280,16 @@ pub enum InputError {
         /// The decoder's message.
         message: String,
     },
+    /// A private key file that group or others may read or write.
+    #[error(
+        "{path}: the private key file has mode {mode:03o}, open to group or others; nothing is signed with a key others may have read. Make it private: chmod 600 {path}"
+    )]
+    KeyFileOpen {
+        /// The key file.
+        path: PathBuf,
+        /// Its permission bits.
+        mode: u32,
+    },
     /// A file written by this tool could not be parsed.
     #[error("{path}: {message}")]
     Format {
