@@ -57,8 +57,9 @@ impl GenerateArgs {
             )?;
         }
         let mut set = OutputSet::default();
-        set.add(output, log);
-        set.add(
+        set.add_as("log (-o)", output, log);
+        set.add_as(
+            "channel sheet (the log's name with .toml)",
             output.with_extension("toml"),
             host_trainer::synth::sheet(*channels),
         );

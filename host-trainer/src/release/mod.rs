@@ -16,3 +16,4 @@ pub mod pack;
 pub mod quantise;
 pub mod replay;
 pub mod sign;
+pub mod units;
