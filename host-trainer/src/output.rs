@@ -118,8 +118,12 @@ impl OutputSet {
             private: false,
         };
         self.collisions(Some(&entry))?;
-        refuse_existing(&entry.path, force)?;
         let dir = folder(&entry.path);
+        // An existing folder's stale temporaries go even if the file is refused.
+        if dir.is_dir() {
+            self.hold(&dir)?;
+        }
+        refuse_existing(&entry.path, force)?;
         create_dir(&dir)?;
         self.hold(&dir)?;
         let tmp = self.temp_name(&entry.path);

@@ -80,7 +80,7 @@ fn margins_no_reading_keeps_are_refused_with_the_largest_accepted() {
         std::fs::remove_file(d.join("g.toml")).unwrap();
     }
     for margin in ["inf", "-inf", "NaN", "-0.5"] {
-        let o = generate(&["--margin", margin, "-o", "g.csv"], d);
+        let o = generate(&[&format!("--margin={margin}"), "-o", "g.csv"], d);
         let err = exits(&o, 2);
         assert!(err.contains("not a margin"), "{margin}: {err}");
     }
