@@ -82,14 +82,21 @@ fn a_public_key_file_whose_key_id_is_not_its_keys_is_refused() {
     exits(&linegate(&["-q", "key", "new", "-o", "owner"], d), 0);
     exits(&sign_with(d, "owner.key", "signed.lgmb"), 0);
     let text = std::fs::read_to_string(d.join("owner.pub")).unwrap();
-    let field = |name: &str| {
+    // The file `key new` wrote: the TOML layout (or the older lines, read the same).
+    let field = |name: &str, old: &str| {
         text.lines()
-            .find_map(|l| l.strip_prefix(&format!("{name} = \"")))
+            .find_map(|l| {
+                l.strip_prefix(&format!("{name} = \""))
+                    .or_else(|| l.strip_prefix(old))
+            })
             .unwrap()
             .trim_end_matches('"')
             .to_string()
     };
-    let (public, id) = (field("public_key"), field("key_id"));
+    let (public, id) = (
+        field("public_key", "ed25519-public "),
+        field("key_id", "key-id "),
+    );
     let other = "0123456789abcdef";
     // Both layouts: the new one edited, and the older one written as `key new` wrote it.
     std::fs::write(d.join("new.pub"), text.replace(&id, other)).unwrap();
