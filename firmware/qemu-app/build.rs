@@ -69,7 +69,10 @@ fn main() {
             .lines()
             .find_map(|l| {
                 l.strip_prefix("ed25519-public ").or_else(|| {
-                    let v = l.strip_prefix("public_key")?.trim_start().strip_prefix('=')?;
+                    let v = l
+                        .strip_prefix("public_key")?
+                        .trim_start()
+                        .strip_prefix('=')?;
                     v.trim().strip_prefix('"')?.strip_suffix('"')
                 })
             })
