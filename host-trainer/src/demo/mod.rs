@@ -26,6 +26,8 @@ use crate::train::separability::SeparabilityReport;
 use crate::workflow::{self, TrainOutcome, TrainRequest};
 
 pub mod signals;
+#[cfg(test)]
+mod units_reference;
 
 /// Where the demo places the model in flash: the last 4 KiB of the 256 KiB part the QEMU example uses.
 pub const MODEL_REGION: u32 = 0x0003_F000;

@@ -25,7 +25,9 @@ use std::path::Path;
 
 use ed25519_dalek::{SigningKey, VerifyingKey};
 
-use super::sign::key_id;
+use sha2::{Digest, Sha512};
+use shared_model::blob;
+
 use crate::digest::{lower_hex, parse_hex};
 use crate::error::InputError;
 
@@ -53,6 +55,14 @@ impl Kind {
             Self::Private => "private",
         }
     }
+}
+
+/// The key id of a public key: the first 8 bytes of its SHA-512 (FORMAT.md).
+pub fn key_id(public: &VerifyingKey) -> [u8; blob::KEY_ID_LEN] {
+    let h = Sha512::digest(public.as_bytes());
+    let mut id = [0u8; blob::KEY_ID_LEN];
+    id.copy_from_slice(&h[..blob::KEY_ID_LEN]);
+    id
 }
 
 /// The private key file's text (NAME.key).

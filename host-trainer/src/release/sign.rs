@@ -6,18 +6,9 @@
 //! give the same signed blob.
 
 use ed25519_dalek::{Signature, Signer, SigningKey, VerifyingKey};
-use sha2::{Digest, Sha512};
 use shared_model::{CheckedModel, CheckedSignalModel, blob};
 
 use crate::digest::lower_hex;
-
-/// The key id of a public key: the first 8 bytes of its SHA-512 (FORMAT.md).
-pub fn key_id(public: &VerifyingKey) -> [u8; blob::KEY_ID_LEN] {
-    let h = Sha512::digest(public.as_bytes());
-    let mut id = [0u8; blob::KEY_ID_LEN];
-    id.copy_from_slice(&h[..blob::KEY_ID_LEN]);
-    id
-}
 
 /// A new key pair from the operating system's random source.
 ///
@@ -32,7 +23,7 @@ pub fn generate() -> Result<SigningKey, String> {
     Ok(SigningKey::from_bytes(&seed))
 }
 
-pub use super::keyfile::{public_text, read_public, read_secret, secret_text};
+pub use super::keyfile::{key_id, public_text, read_public, read_secret, secret_text};
 
 /// The signed (version-2) blob for `model`.
 pub fn signed_blob(model: &CheckedModel, key: &SigningKey) -> Vec<u8> {
