@@ -67,3 +67,40 @@ fn streamed_units_csv_has_the_bytes_of_the_whole_one_on_the_demo() {
     assert_eq!(whole.lines().count(), 1 + train.len() + holdout.len());
     assert_eq!(String::from_utf8(streamed).unwrap(), whole);
 }
+
+#[test]
+fn streamed_units_csv_has_the_bytes_of_the_whole_one_on_a_generated_log() {
+    use crate::ingest::LogOptions;
+    use crate::release::quantise::{QuantConfig, quantise};
+    use crate::train::eval::TrainerKind;
+    use crate::workflow::{self, CvTrainers, TrainRequest};
+    let dir = tempfile::tempdir().unwrap();
+    let (log, sheet) = (dir.path().join("g.csv"), dir.path().join("g.toml"));
+    let mut text = Vec::new();
+    crate::synth::write_log(&mut text, 20_000, 6, 0.02, 5).unwrap();
+    std::fs::write(&log, text).unwrap();
+    std::fs::write(&sheet, crate::synth::sheet(6)).unwrap();
+    let (ds, sheet) = workflow::load(&log, &LogOptions::default(), Some(&sheet)).unwrap();
+    let req = TrainRequest {
+        trainer: TrainerKind::Perceptron,
+        epochs: 1000,
+        seed: 1,
+        c: 10.0,
+        max_false_go: None,
+        folds: 0,
+        cv_trainers: CvTrainers::Chosen,
+        holdout_split: None,
+        progress: false,
+        figures: crate::train::separability::Figures::VERDICT,
+    };
+    let fm = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)
+        .unwrap()
+        .model;
+    let q = quantise(&fm, Some(&ds), QuantConfig::default()).unwrap();
+    let sets = [("train", &ds)];
+    let mut streamed = Vec::new();
+    write_units_csv(&mut streamed, &q, &fm, &sets).unwrap();
+    let whole = units_csv_whole(&q, &fm, &sets);
+    assert_eq!(whole.lines().count(), 1 + ds.len());
+    assert_eq!(String::from_utf8(streamed).unwrap(), whole);
+}
