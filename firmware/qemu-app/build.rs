@@ -63,10 +63,20 @@ fn main() {
     let key = env::var_os("LINEGATE_PUBLIC_KEY").map(|path| {
         println!("cargo:rerun-if-changed={}", PathBuf::from(&path).display());
         let text = fs::read_to_string(&path).expect("read LINEGATE_PUBLIC_KEY");
+        // The key file's TOML layout (`public_key = "<64 hex>"`) or the older
+        // `ed25519-public <64 hex>` line; `linegate inspect` checks the rest of the file.
         let hex = text
             .lines()
-            .find_map(|l| l.strip_prefix("ed25519-public "))
-            .expect("LINEGATE_PUBLIC_KEY: no 'ed25519-public' line (give the .pub file)")
+            .find_map(|l| {
+                l.strip_prefix("ed25519-public ").or_else(|| {
+                    let v = l
+                        .strip_prefix("public_key")?
+                        .trim_start()
+                        .strip_prefix('=')?;
+                    v.trim().strip_prefix('"')?.strip_suffix('"')
+                })
+            })
+            .expect("LINEGATE_PUBLIC_KEY: no 'public_key' field (give the .pub file)")
             .trim()
             .to_string();
         assert_eq!(hex.len(), 64, "LINEGATE_PUBLIC_KEY: 64 hex digits expected");

@@ -307,6 +307,16 @@ pub enum InputError {
         /// The decoder's message.
         message: String,
     },
+    /// A private key file that group or others may read or write.
+    #[error(
+        "{path}: the private key file has mode {mode:03o}, open to group or others; nothing is signed with a key others may have read. Make it private: chmod 600 {path}"
+    )]
+    KeyFileOpen {
+        /// The key file.
+        path: PathBuf,
+        /// Its permission bits.
+        mode: u32,
+    },
     /// A file written by this tool could not be parsed.
     #[error("{path}: {message}")]
     Format {
@@ -376,6 +386,30 @@ pub enum OutputError {
         "{0}: exists and is not a regular file (a device, folder or link); Linegate replaces only regular files, even with --force"
     )]
     NotAFile(PathBuf),
+    /// Two outputs of one command would be the same file.
+    #[error(
+        "{path}: both the {first} and the {second} would be written to this one file; give them different names (nothing was written)"
+    )]
+    SameFile {
+        /// The file.
+        path: PathBuf,
+        /// The output queued first.
+        first: String,
+        /// The output queued second.
+        second: String,
+    },
+    /// An output would replace one of the command's inputs.
+    #[error(
+        "{path}: the {output} would be written over the {input}, an input of this command; write it elsewhere (nothing was written)"
+    )]
+    OverInput {
+        /// The file.
+        path: PathBuf,
+        /// The output's role.
+        output: String,
+        /// The input's role.
+        input: String,
+    },
     /// Another run is writing into the same folder.
     #[error(
         "{0}: another linegate run is writing into this folder; wait for it to finish, or write elsewhere"

@@ -1,11 +1,130 @@
 //! Synthetic separable bench logs of any size, for benchmarks, footprint runs and
 //! trying Linegate at scale. SYNTHETIC: a hidden random hyperplane labels uniform
 //! readings, and units closer to it than the requested margin are redrawn.
+//!
+//! A margin is refused before anything is drawn when redrawing could not end in practice
+//! ([`check_margin`]): readings lie in a box, so no unit is farther from the hyperplane than
+//! the box's farthest corner, and units near that corner are rare.
 
 use std::io::Write;
 
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
+
+/// Of the trial readings drawn to judge a margin, at least this share must keep it: a
+/// margin kept by fewer would cost more than [`MIN_KEPT`]⁻¹ draws per unit.
+const MIN_KEPT: f64 = 0.01;
+
+/// Trial readings drawn to judge a margin (a few milliseconds).
+const TRIALS: usize = 100_000;
+
+/// A margin no log can be generated with.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum MarginError {
+    /// Not a finite, non-negative number.
+    #[error("--margin {margin}: the margin must be a finite number, 0 or more")]
+    NotFinite {
+        /// The margin asked for.
+        margin: f64,
+    },
+    /// Too few readings keep the margin: drawing units until enough do would not end.
+    #[error(
+        "--margin {margin}: cannot be met with {channels} channels and seed {seed}: no reading in [0, 1000) is farther than {reach:.4} (scaled units) from this seed's hidden boundary, and fewer than 1 in {per} random readings is farther than {margin}; the largest margin accepted here is {largest}"
+    )]
+    Unattainable {
+        /// The margin asked for, as written in the message.
+        margin: String,
+        /// Channels.
+        channels: usize,
+        /// Seed.
+        seed: u64,
+        /// The farthest any reading can be from the boundary.
+        reach: f64,
+        /// The largest margin accepted (kept by at least 1 in `per` trial readings), rounded
+        /// down to 4 decimals so that the number shown is accepted.
+        largest: f64,
+        /// 1 / the smallest share of readings that must keep the margin.
+        per: u32,
+    },
+}
+
+/// The hidden hyperplane of `seed` (weights, their norm, bias) and the generator after it.
+fn boundary(channels: usize, seed: u64) -> (Vec<f64>, f64, f64, ChaCha8Rng) {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let w: Vec<f64> = (0..channels).map(|_| rng.gen_range(-1.0..1.0)).collect();
+    let norm = w.iter().map(|v| v * v).sum::<f64>().sqrt();
+    let b: f64 = rng.gen_range(-0.2..0.2) * norm;
+    (w, norm, b, rng)
+}
+
+/// One random reading (as [`write_log`] draws it) and its signed distance score.
+fn draw(rng: &mut ChaCha8Rng, w: &[f64], b: f64, x: &mut [f64]) -> f64 {
+    for v in x.iter_mut() {
+        *v = f64::from(rng.gen_range(0u32..1_000_000)) / 1000.0;
+    }
+    w.iter()
+        .zip(x.iter())
+        .map(|(w, v)| w * (v / 500.0 - 1.0))
+        .sum::<f64>()
+        + b
+}
+
+/// The largest margin [`write_log`] accepts for `channels` and `seed`: the one that at
+/// least 1 in 100 random readings keeps (judged on 100,000 trial readings from a stream of
+/// their own, so the log itself does not change), and never beyond the farthest reading.
+pub fn largest_margin(channels: usize, seed: u64) -> f64 {
+    let (w, norm, b, _) = boundary(channels, seed);
+    largest_with_reach(&w, norm, b, seed).0
+}
+
+/// (largest accepted margin, farthest any reading can be) for this hyperplane.
+fn largest_with_reach(w: &[f64], norm: f64, b: f64, seed: u64) -> (f64, f64) {
+    if norm == 0.0 || w.is_empty() {
+        return (0.0, 0.0);
+    }
+    // Scaled readings run from -1 (reading 0) to 0.999998 (reading 999.999).
+    let top = 999.999 / 500.0 - 1.0;
+    let hi: f64 = w.iter().map(|&w| (-w).max(w * top)).sum::<f64>() + b;
+    let lo: f64 = w.iter().map(|&w| (-w).min(w * top)).sum::<f64>() + b;
+    let reach = hi.max(-lo) / norm;
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    rng.set_stream(1);
+    let mut x = vec![0.0; w.len()];
+    let mut d: Vec<f64> = (0..TRIALS)
+        .map(|_| draw(&mut rng, w, b, &mut x).abs() / norm)
+        .collect();
+    let k = (TRIALS as f64 * MIN_KEPT) as usize;
+    // The k-th farthest trial: a margin up to it is kept by at least k of the trials.
+    let (_, kth, _) = d.select_nth_unstable_by(k - 1, |a, b| b.total_cmp(a));
+    (kth.min(reach), reach)
+}
+
+/// Refuses a margin the generator could not meet in practice (see [`largest_margin`]).
+///
+/// # Errors
+/// [`MarginError`], with the largest margin accepted.
+pub fn check_margin(channels: usize, margin: f64, seed: u64) -> Result<(), MarginError> {
+    if !margin.is_finite() || margin < 0.0 {
+        return Err(MarginError::NotFinite { margin });
+    }
+    let (w, norm, b, _) = boundary(channels, seed);
+    let (largest, reach) = largest_with_reach(&w, norm, b, seed);
+    if margin > largest {
+        return Err(MarginError::Unattainable {
+            margin: if margin < 1e6 {
+                margin.to_string()
+            } else {
+                format!("{margin:e}")
+            },
+            channels,
+            seed,
+            reach,
+            largest: (largest * 1e4).floor() / 1e4,
+            per: (1.0 / MIN_KEPT) as u32,
+        });
+    }
+    Ok(())
+}
 
 /// Writes `rows` units × `channels` readings in [0, 1000) with three decimals, labelled
 /// GO/NO-GO, comma-separated.
@@ -14,7 +133,7 @@ use rand_chacha::ChaCha8Rng;
 /// empty on each side, so the log is separable with at least that margin.
 ///
 /// # Errors
-/// Any write error.
+/// Any write error; a margin [`check_margin`] refuses, as [`std::io::ErrorKind::InvalidInput`].
 pub fn write_log(
     out: &mut impl Write,
     rows: usize,
@@ -39,7 +158,7 @@ pub fn delimiter_for(path: &std::path::Path) -> u8 {
 /// [`write_log`] with another field delimiter.
 ///
 /// # Errors
-/// Any write error.
+/// As [`write_log`].
 pub fn write_log_delimited(
     out: &mut impl Write,
     rows: usize,
@@ -48,6 +167,8 @@ pub fn write_log_delimited(
     seed: u64,
     delimiter: u8,
 ) -> std::io::Result<()> {
+    check_margin(channels, margin, seed)
+        .map_err(|e| std::io::Error::new(std::io::ErrorKind::InvalidInput, e))?;
     let sep = char::from(delimiter);
     write!(out, "unit_id")?;
     for j in 0..channels {
@@ -75,22 +196,12 @@ fn units<E>(
     seed: u64,
     mut unit: impl FnMut(usize, &[f64], bool) -> Result<(), E>,
 ) -> Result<(), E> {
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    let w: Vec<f64> = (0..channels).map(|_| rng.gen_range(-1.0..1.0)).collect();
-    let norm = w.iter().map(|v| v * v).sum::<f64>().sqrt();
-    let b: f64 = rng.gen_range(-0.2..0.2) * norm;
+    // The callers checked the margin (check_margin), so the loop ends.
+    let (w, norm, b, mut rng) = boundary(channels, seed);
     let mut x = vec![0.0f64; channels];
     let mut n = 0;
     while n < rows {
-        for v in x.iter_mut() {
-            *v = f64::from(rng.gen_range(0u32..1_000_000)) / 1000.0;
-        }
-        let s: f64 = w
-            .iter()
-            .zip(&x)
-            .map(|(w, v)| w * (v / 500.0 - 1.0))
-            .sum::<f64>()
-            + b;
+        let s = draw(&mut rng, &w, b, &mut x);
         if s.abs() < margin * norm {
             continue;
         }
@@ -105,7 +216,8 @@ fn units<E>(
 /// exactly what the CSV's three-decimal text parses to.
 ///
 /// # Errors
-/// Any write or encoding error.
+/// Any write or encoding error; a margin [`check_margin`] refuses, as
+/// [`parquet::errors::ParquetError::External`].
 pub fn write_log_parquet(
     out: &mut Vec<u8>,
     rows: usize,
@@ -122,6 +234,8 @@ pub fn write_log_parquet(
     use parquet::basic::Compression;
     use parquet::file::properties::WriterProperties;
 
+    check_margin(channels, margin, seed)
+        .map_err(|e| parquet::errors::ParquetError::External(Box::new(e)))?;
     const GROUP: usize = 1_048_576;
     let mut fields = vec![Field::new("unit_id", DataType::Utf8, false)];
     fields.extend((0..channels).map(|j| Field::new(format!("ch{j:02}"), DataType::Float64, false)));

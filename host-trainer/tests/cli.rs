@@ -917,8 +917,9 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
     let secret = std::fs::read_to_string(d.join("owner.key")).unwrap();
     let hex = secret
         .lines()
-        .find_map(|l| l.strip_prefix("ed25519-secret "))
-        .unwrap();
+        .find_map(|l| l.strip_prefix("secret_seed = \""))
+        .unwrap()
+        .trim_end_matches('"');
     assert!(
         !String::from_utf8_lossy(&o.stdout).contains(hex),
         "the private key is never printed"

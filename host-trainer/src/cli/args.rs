@@ -174,6 +174,23 @@ pub struct ReleaseArgs {
     pub sign: Option<PathBuf>,
 }
 
+impl ReleaseArgs {
+    /// The files this command reads, for the output set: no output may replace one.
+    pub fn name_inputs(&self, set: &mut host_trainer::output::OutputSet) {
+        set.input("float model (--model)", &self.model);
+        set.input("training log (--train)", &self.train);
+        if let Some(h) = &self.holdout {
+            set.input("holdout log (--holdout)", h);
+        }
+        for v in &self.validate {
+            set.input("validation log (--validate)", v);
+        }
+        if let Some(k) = &self.sign {
+            set.input("private key (--sign)", k);
+        }
+    }
+}
+
 /// What `audit` and `pack` work from.
 pub struct Release {
     pub fm: FloatModel,

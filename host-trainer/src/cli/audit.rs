@@ -9,7 +9,7 @@ use clap::Args;
 use super::args::{Release, ReleaseArgs, release_inputs};
 use super::{CheckFailed, to_json};
 use host_trainer::output::OutputSet;
-use host_trainer::release::audit;
+use host_trainer::release::{audit, units};
 use host_trainer::report;
 
 /// Flags of `linegate audit`.
@@ -59,18 +59,31 @@ impl AuditArgs {
         };
         let md = report::markdown(fm, &r, sw.as_ref());
         let mut set = OutputSet::default();
+        release.name_inputs(&mut set);
         if let Some(dir) = report_dir {
-            set.add(dir.join("audit.md"), md.as_bytes());
-            set.add(
+            set.add_as(
+                "report audit.md (--out-dir)",
+                dir.join("audit.md"),
+                md.as_bytes(),
+            );
+            set.add_as(
+                "report audit.html (--out-dir)",
                 dir.join("audit.html"),
                 report::html(fm, &r, sw.as_ref(), &md),
             );
-            set.add(dir.join("audit.json"), report::json(&r, sw.as_ref()));
+            set.add_as(
+                "report audit.json (--out-dir)",
+                dir.join("audit.json"),
+                report::json(&r, sw.as_ref()),
+            );
         }
         if let Some(path) = units {
             let mut sets = vec![("train", train)];
             sets.extend(others.iter().copied());
-            set.add(path, audit::units_csv(&q, fm, &sets));
+            // Streamed: the rows go to disk as they are made, never whole in memory.
+            set.add_written("units CSV (--units)", path, *force, |w| {
+                units::write_units_csv(w, &q, fm, &sets)
+            })?;
         }
         set.commit(*force)?;
         if *json {

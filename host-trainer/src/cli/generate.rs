@@ -16,8 +16,10 @@ pub struct GenerateArgs {
     /// Channels (1..=32).
     #[arg(long, default_value_t = 16)]
     pub channels: usize,
-    /// Empty gap kept around the hidden boundary (scaled units).
-    #[arg(long, default_value_t = 0.02)]
+    /// Empty gap kept around the hidden boundary (scaled units; readings scaled to [-1, 1]).
+    /// A finite number, 0 or more; one that too few random readings keep is refused with
+    /// the largest accepted for these channels and seed.
+    #[arg(long, default_value_t = 0.02, value_parser = parse_margin)]
     pub margin: f64,
     /// Seed.
     #[arg(long, default_value_t = 1)]
@@ -45,6 +47,7 @@ impl GenerateArgs {
         if *channels == 0 || *channels > shared_model::MAX_CHANNELS {
             bail!("--channels must be 1..={}", shared_model::MAX_CHANNELS);
         }
+        host_trainer::synth::check_margin(*channels, *margin, *seed)?;
         let mut log = Vec::new();
         // The file says what it holds: Parquet for .parquet and .pq, tab-separated for
         // .tsv, .tab and .txt, comma-separated otherwise.
@@ -57,8 +60,9 @@ impl GenerateArgs {
             )?;
         }
         let mut set = OutputSet::default();
-        set.add(output, log);
-        set.add(
+        set.add_as("log (-o)", output, log);
+        set.add_as(
+            "channel sheet (the log's name with .toml)",
             output.with_extension("toml"),
             host_trainer::synth::sheet(*channels),
         );
@@ -69,4 +73,13 @@ impl GenerateArgs {
         }
         Ok(())
     }
+}
+
+/// A margin: a finite number, 0 or more.
+fn parse_margin(s: &str) -> Result<f64, String> {
+    s.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|m| m.is_finite() && *m >= 0.0)
+        .ok_or_else(|| format!("'{s}' is not a margin: give a finite number, 0 or more"))
 }

@@ -40,8 +40,16 @@ impl KeyArgs {
                 let key = sign::generate().map_err(anyhow::Error::msg)?;
                 let public = key.verifying_key();
                 let mut set = OutputSet::default();
-                set.add_private(output.with_extension("key"), sign::secret_text(&key));
-                set.add(output.with_extension("pub"), sign::public_text(&public));
+                set.add_private(
+                    "private key (NAME.key)",
+                    output.with_extension("key"),
+                    sign::secret_text(&key),
+                );
+                set.add_as(
+                    "public key (NAME.pub)",
+                    output.with_extension("pub"),
+                    sign::public_text(&public),
+                );
                 let files = set.commit(*force)?;
                 if !quiet {
                     say!("key id {}", lower_hex(&sign::key_id(&public)));

@@ -52,13 +52,22 @@ impl PackArgs {
         }
         let blob = audit::released_blob(&q, r.passed, signer.as_ref());
         let mut set = OutputSet::default();
-        set.add(output, blob.clone());
+        release.name_inputs(&mut set);
+        set.add_as("blob (-o)", output, blob.clone());
         if let Some(a) = hex_addr {
             hex::check_placement(*a, blob.len())?;
-            set.add(output.with_extension("hex"), hex::to_hex(*a, &blob));
+            set.add_as(
+                "Intel HEX image (--hex, the blob's name with .hex)",
+                output.with_extension("hex"),
+                hex::to_hex(*a, &blob),
+            );
         }
         if *bin {
-            set.add(output.with_extension("bin"), blob.clone());
+            set.add_as(
+                "raw image (--bin, the blob's name with .bin)",
+                output.with_extension("bin"),
+                blob.clone(),
+            );
         }
         let files = set.commit(*force)?;
         if !quiet {

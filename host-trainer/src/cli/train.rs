@@ -156,7 +156,14 @@ impl TrainArgs {
             out.evaluate_holdout(&hd);
         }
         let mut set = OutputSet::default();
-        set.add(output, out.model.to_json());
+        set.input("bench log", log);
+        if let Some(s) = &self.sheet {
+            set.input("channel sheet (--sheet)", s);
+        }
+        if let Some(h) = holdout {
+            set.input("holdout log (--holdout)", h);
+        }
+        set.add_as("float model (-o)", output, out.model.to_json());
         set.commit(*force)?;
         if *json {
             say_raw!("{}", to_json(&out));

@@ -26,6 +26,8 @@ use crate::train::separability::SeparabilityReport;
 use crate::workflow::{self, TrainOutcome, TrainRequest};
 
 pub mod signals;
+#[cfg(test)]
+mod units_reference;
 
 /// Where the demo places the model in flash: the last 4 KiB of the 256 KiB part the QEMU example uses.
 pub const MODEL_REGION: u32 = 0x0003_F000;
@@ -254,11 +256,11 @@ fn write_file(dir: &Path, name: &str, text: &str) -> Result<PathBuf, DemoError> 
 /// # Errors
 /// [`DemoError`]; nothing is written unless every step succeeded.
 pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
-    let tmp = tempfile::tempdir().map_err(|e| OutputError::Io {
-        path: out.into(),
-        source: e,
-    })?;
-    let write_in = |name: &str, text: &str| write_file(tmp.path(), name, text);
+    // The scratch folder lives in `out`, under the set's lock: removed when the set ends,
+    // and by the next writer into `out` if this run is killed.
+    let mut set = OutputSet::default();
+    let tmp = set.scratch_dir(out)?;
+    let write_in = |name: &str, text: &str| write_file(&tmp, name, text);
     let logs = [
         (
             "train-synthetic.csv",
@@ -330,7 +332,6 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     let model = audit::mark(&q.model, audit::release_mark(report.passed));
     let blob = pack::blob_bytes(&model);
     let md = crate::report::markdown(fm, &report, Some(&sweep));
-    let mut set = OutputSet::default();
     for (name, text) in &logs {
         set.add(out.join(name), text.as_bytes());
     }
@@ -364,7 +365,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         out.join("vectors-holdout.txt"),
         crate::release::replay::vectors(&model, &holdout_ds),
     );
-    let signals = signals::run(tmp.path(), out, &mut set)?;
+    let signals = signals::run(&tmp, out, &mut set)?;
     let files = set.commit(force)?;
     Ok(DemoSummary {
         signals,

@@ -589,7 +589,14 @@ fn add_counts(into: &mut Vec<u64>, from: Vec<u64>) {
     }
 }
 
-fn unit_row(set: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, i: usize) -> UnitRow {
+/// One unit's row of the listings and of the units CSV.
+pub(crate) fn unit_row(
+    set: &str,
+    q: &Quantised,
+    fm: &FloatModel,
+    ds: &Dataset,
+    i: usize,
+) -> UnitRow {
     let m = q.model.model();
     let lin = fm.linear();
     let fs = lin.scores(ds, &[i])[0];
@@ -607,46 +614,6 @@ fn unit_row(set: &str, q: &Quantised, fm: &FloatModel, ds: &Dataset, i: usize) -
         margin_lsb: margin,
         margin_physical: physical_margins(q, fm, margin),
     }
-}
-
-/// Every unit of the logs as CSV: log, line, unit, label, float score and verdict, fixed score
-/// and verdict (by the device kernel), margin in LSB and along each channel in its unit.
-pub fn units_csv(q: &Quantised, fm: &FloatModel, sets: &[(&str, &Dataset)]) -> String {
-    let mut out = String::from(
-        "model_id,log,line,unit,label,float_score,float_verdict,fixed_score,fixed_verdict,margin_lsb",
-    );
-    for c in &fm.channels {
-        out.push_str(&format!(",margin_{}", c.name));
-    }
-    out.push('\n');
-    for (name, ds) in sets {
-        for i in 0..ds.len() {
-            let r = unit_row(name, q, fm, ds, i);
-            let unit = if r.unit.contains([',', '"']) {
-                format!("\"{}\"", r.unit.replace('"', "\"\""))
-            } else {
-                r.unit
-            };
-            out.push_str(&format!(
-                "{},{},{},{},{},{},{},{},{},{}",
-                fm.model_id,
-                r.set,
-                r.line,
-                unit,
-                r.label,
-                r.float_score,
-                r.float_verdict,
-                r.fixed_score.map_or(String::new(), |v| v.to_string()),
-                r.fixed_verdict,
-                r.margin_lsb
-            ));
-            for m in &r.margin_physical {
-                out.push_str(&format!(",{m}"));
-            }
-            out.push('\n');
-        }
-    }
-    out
 }
 
 /// A margin of `lsb` accumulator units, expressed along each channel alone in its physical unit.

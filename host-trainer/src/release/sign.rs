@@ -1,27 +1,14 @@
 //! Signed releases: the owner's Ed25519 key pair (RFC 8032), signing a model blob at pack
 //! time (format version 2), and checking a signature against a public key.
 //!
-//! Key files are our own short text: a title line, then `ed25519-secret <64 hex digits>`
-//! (the 32-byte seed; written 0600, never printed) or `ed25519-public <64 hex digits>` and
-//! `key-id <16 hex digits>`. Ed25519 signatures are deterministic, so the same inputs give
-//! the same signed blob.
-
-use std::path::Path;
+//! Key files (TOML, `format = "linegate-key"`; written 0600, never printed) are read and
+//! written by [`super::keyfile`]. Ed25519 signatures are deterministic, so the same inputs
+//! give the same signed blob.
 
 use ed25519_dalek::{Signature, Signer, SigningKey, VerifyingKey};
-use sha2::{Digest, Sha512};
 use shared_model::{CheckedModel, CheckedSignalModel, blob};
 
 use crate::digest::lower_hex;
-use crate::error::InputError;
-
-/// The key id of a public key: the first 8 bytes of its SHA-512 (FORMAT.md).
-pub fn key_id(public: &VerifyingKey) -> [u8; blob::KEY_ID_LEN] {
-    let h = Sha512::digest(public.as_bytes());
-    let mut id = [0u8; blob::KEY_ID_LEN];
-    id.copy_from_slice(&h[..blob::KEY_ID_LEN]);
-    id
-}
 
 /// A new key pair from the operating system's random source.
 ///
@@ -36,68 +23,7 @@ pub fn generate() -> Result<SigningKey, String> {
     Ok(SigningKey::from_bytes(&seed))
 }
 
-/// The private key file's text.
-pub fn secret_text(key: &SigningKey) -> String {
-    format!(
-        "linegate release key, PRIVATE: keep it off test stations and out of version control\ned25519-secret {}\n",
-        lower_hex(key.as_bytes())
-    )
-}
-
-/// The public key file's text.
-pub fn public_text(key: &VerifyingKey) -> String {
-    format!(
-        "linegate release key, public: give it to devices and to inspect\ned25519-public {}\nkey-id {}\n",
-        lower_hex(key.as_bytes()),
-        lower_hex(&key_id(key))
-    )
-}
-
-fn field(path: &Path, text: &str, name: &str) -> Result<[u8; 32], InputError> {
-    let bad = |message: String| InputError::Format {
-        path: path.into(),
-        message,
-    };
-    let hex = text
-        .lines()
-        .find_map(|l| l.strip_prefix(name).and_then(|r| r.strip_prefix(' ')))
-        .ok_or_else(|| {
-            bad(format!(
-                "no '{name}' line: not a Linegate key file of that kind"
-            ))
-        })?
-        .trim();
-    crate::digest::parse_hex(hex)
-        .and_then(|b| b.try_into().ok())
-        .ok_or_else(|| bad(format!("'{name}' must be 64 hex digits")))
-}
-
-/// Reads a private key file.
-///
-/// # Errors
-/// Unreadable, or not a private key file.
-pub fn read_secret(path: &Path) -> Result<SigningKey, InputError> {
-    let text = crate::input::read_text(path, "key file", 4096)?;
-    Ok(SigningKey::from_bytes(&field(
-        path,
-        &text,
-        "ed25519-secret",
-    )?))
-}
-
-/// Reads a public key file.
-///
-/// # Errors
-/// Unreadable, not a public key file, or not a valid Ed25519 point.
-pub fn read_public(path: &Path) -> Result<VerifyingKey, InputError> {
-    let text = crate::input::read_text(path, "key file", 4096)?;
-    VerifyingKey::from_bytes(&field(path, &text, "ed25519-public")?).map_err(|_| {
-        InputError::Format {
-            path: path.into(),
-            message: "the public key is not a valid Ed25519 key".into(),
-        }
-    })
-}
+pub use super::keyfile::{key_id, public_text, read_public, read_secret, secret_text};
 
 /// The signed (version-2) blob for `model`.
 pub fn signed_blob(model: &CheckedModel, key: &SigningKey) -> Vec<u8> {
@@ -209,6 +135,12 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let key = SigningKey::from_bytes(&[7u8; 32]);
         std::fs::write(dir.path().join("k.key"), secret_text(&key)).unwrap();
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            let private = std::fs::Permissions::from_mode(0o600);
+            std::fs::set_permissions(dir.path().join("k.key"), private).unwrap();
+        }
         std::fs::write(dir.path().join("k.pub"), public_text(&key.verifying_key())).unwrap();
         assert_eq!(
             read_secret(&dir.path().join("k.key")).unwrap().as_bytes(),
