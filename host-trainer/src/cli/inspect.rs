@@ -6,7 +6,7 @@ use anyhow::{Context, Result, bail};
 use clap::Args;
 
 use super::{CheckFailed, to_json};
-use host_trainer::release::{hex, pack};
+use host_trainer::release::{hex, matching, pack};
 use host_trainer::train::float_model::FloatModel;
 
 /// Flags of `linegate inspect`.
@@ -100,7 +100,15 @@ fn inspect(
             ins.crc_stored.as_deref().unwrap_or("–"),
             ins.crc_computed.as_deref().unwrap_or("–")
         );
-        say!("status: {}", ins.status);
+        // A signed blob is only as good as its signature: say when it was not checked.
+        if ins.key_id.is_some() && public_key.is_none() && decoded.is_ok() {
+            say!(
+                "status: {} (signature present, not checked: give --public-key)",
+                ins.status
+            );
+        } else {
+            say!("status: {}", ins.status);
+        }
         if let Some(id) = &ins.model_id {
             say!(
                 "model id: {id}; blob id: {}; SHA-256 {}\naudit: {}",
@@ -155,6 +163,11 @@ fn inspect(
             _ => {}
         }
     }
+    // A blob that does not decode is reported as what it is (truncated, bad magic…), not
+    // as unsigned.
+    decoded
+        .as_ref()
+        .map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
     if let Some(p) = public_key {
         let key = host_trainer::release::sign::read_public(p)?;
         host_trainer::release::sign::verify(&bytes, &key)
@@ -163,17 +176,15 @@ fn inspect(
             say!("signature valid for {}", p.display());
         }
     }
-    let m = decoded.map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
-    let id = host_trainer::digest::lower_hex(&m.model().model_id);
     if let Some(p) = model {
         let fm = FloatModel::read(p)?;
-        if fm.model_id != id {
-            bail!(CheckFailed(format!(
-                "blob model id {id} does not match {} ({})",
-                p.display(),
-                fm.model_id
-            )));
-        }
+        matching::decode_from(&fm, &bytes).map_err(|e| {
+            CheckFailed(format!(
+                "{}: does not match the float model {}: {e}",
+                path.display(),
+                p.display()
+            ))
+        })?;
         if !quiet && !json {
             say!("matches float model {}", p.display());
         }
