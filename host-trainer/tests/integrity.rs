@@ -273,3 +273,128 @@ fn replay_prints_nothing_before_its_checks_and_writes_its_file_whole() {
     let o = run(&["demo/holdout-synthetic.csv", "-o", "out.txt"]);
     exits(&o, 2);
 }
+
+/// One Intel HEX record, built here by hand (Intel HEX specification: `:LLAAAATT<data>CC`,
+/// the checksum making the record's bytes sum to 0 mod 256).
+fn record(addr: u16, kind: u8, data: &[u8]) -> String {
+    let mut b = vec![data.len() as u8, (addr >> 8) as u8, addr as u8, kind];
+    b.extend_from_slice(data);
+    let sum = b.iter().fold(0u8, |s, x| s.wrapping_add(*x));
+    b.push(sum.wrapping_neg());
+    let hex: String = b.iter().map(|x| format!("{x:02X}")).collect();
+    format!(":{hex}\n")
+}
+
+/// `data` at `segment`:0 with extended segment address records (type 02), as 16-bit tools
+/// write them, and start address records (types 03 and 05) before the end.
+fn segment_image(segment: u16, data: &[u8]) -> String {
+    let mut out = record(0, 0x02, &segment.to_be_bytes());
+    for (i, chunk) in data.chunks(16).enumerate() {
+        out += &record((i * 16) as u16, 0x00, chunk);
+    }
+    out += &record(0, 0x03, &[0x00, 0x00, 0x10, 0x00]);
+    out += &record(0, 0x05, &[0x00, 0x00, 0x10, 0x00]);
+    out + &record(0, 0x01, &[])
+}
+
+#[test]
+fn flash_images_with_erased_flash_and_segment_or_start_records_are_read() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    exits(&linegate(&["-q", "key", "new", "-o", "owner"], d), 0);
+    exits(
+        &linegate(
+            &common::on_demo(
+                "pack",
+                &[
+                    "--sign",
+                    "owner.key",
+                    "--apply-suggested-band",
+                    "-o",
+                    "signed.lgmb",
+                ],
+            ),
+            d,
+        ),
+        0,
+    );
+    let signed = std::fs::read(d.join("signed.lgmb")).unwrap();
+    // Erased flash after a signed blob (FORMAT.md: ignored), in a HEX image and a raw one.
+    let mut erased = signed.clone();
+    erased.extend_from_slice(&[0xFF; 100]);
+    write(d, "erased.hex", segment_image(0x3F00, &erased).as_bytes());
+    write(d, "erased.bin", &erased);
+    for f in ["erased.hex", "erased.bin"] {
+        let o = linegate(
+            &[
+                "inspect",
+                f,
+                "--public-key",
+                "owner.pub",
+                "--model",
+                "demo/model.json",
+            ],
+            d,
+        );
+        exits(&o, 0);
+        let out = String::from_utf8_lossy(&o.stdout);
+        assert!(out.contains("signature valid"), "{f}: {out}");
+    }
+    let o = linegate(&["inspect", "erased.hex"], d);
+    assert!(
+        String::from_utf8_lossy(&o.stdout).contains("loads at 0x0003f000"),
+        "segment 0x3F00 is base 0x3F000"
+    );
+    // Anything but erased flash after the blob is still refused.
+    let mut junk = erased.clone();
+    *junk.last_mut().unwrap() = 0x00;
+    write(d, "junk.hex", segment_image(0x3F00, &junk).as_bytes());
+    let err = exits(&linegate(&["inspect", "junk.hex"], d), 1);
+    assert!(err.contains("trailing bytes"), "{err}");
+    // As GNU objcopy writes an image with a start address, when it is installed.
+    let ok = std::process::Command::new("objcopy")
+        .args(["-I", "binary", "-O", "ihex", "--set-start", "0x1000"])
+        .arg(d.join("erased.bin"))
+        .arg(d.join("objcopy.hex"))
+        .status()
+        .is_ok_and(|s| s.success());
+    if ok {
+        let o = linegate(&["inspect", "objcopy.hex", "--public-key", "owner.pub"], d);
+        exits(&o, 0);
+    } else {
+        eprintln!(
+            "\n======== SKIPPED: objcopy is not installed: no image written by it ========\n"
+        );
+    }
+}
+
+#[test]
+fn inspect_names_what_is_wrong_under_q_and_with_a_key() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    exits(&linegate(&["-q", "key", "new", "-o", "owner"], d), 0);
+    let blob = std::fs::read(d.join("demo/model.lgmb")).unwrap();
+    let mut f = blob.clone();
+    f[30] ^= 0x08;
+    write(d, "flipped.lgmb", &f);
+    let o = linegate(&["-q", "inspect", "flipped.lgmb"], d);
+    let err = exits(&o, 1);
+    assert!(err.contains("CRC mismatch"), "-q still says why: {err:?}");
+    assert!(o.stdout.is_empty());
+    write(d, "short.lgmb", &blob[..blob.len() / 2]);
+    let mut bad = blob.clone();
+    bad[0] = b'X';
+    write(d, "magic.lgmb", &bad);
+    for (f, want) in [("short.lgmb", "truncated"), ("magic.lgmb", "bad magic")] {
+        let err = exits(
+            &linegate(&["inspect", f, "--public-key", "owner.pub"], d),
+            1,
+        );
+        assert!(
+            err.contains(want) && !err.contains("not signed"),
+            "{f}: {err}"
+        );
+    }
+}

@@ -82,6 +82,15 @@ fn inspect(
     } else {
         (None, raw)
     };
+    let is_image = is_hex
+        || path
+            .extension()
+            .is_some_and(|e| e.eq_ignore_ascii_case("bin"));
+    let bytes = if is_image {
+        pack::blob_of_image(&bytes).to_vec()
+    } else {
+        bytes
+    };
     let (ins, decoded) = pack::inspect(&bytes);
     if json {
         say_raw!("{}", to_json(&ins));
