@@ -398,3 +398,56 @@ fn inspect_names_what_is_wrong_under_q_and_with_a_key() {
         );
     }
 }
+
+#[test]
+fn a_mixed_pack_set_is_refused_wherever_it_is_inspected() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    let pack = |bits: &str| {
+        linegate(
+            &common::on_demo(
+                "pack",
+                &[
+                    "--weight-bits",
+                    bits,
+                    "--override-audit",
+                    "--hex",
+                    "0x3F000",
+                    "--bin",
+                    "--force",
+                    "-o",
+                    "rel.lgmb",
+                ],
+            ),
+            d,
+        )
+    };
+    exits(&pack("16"), 0);
+    for f in ["rel.lgmb", "rel.hex", "rel.bin"] {
+        exits(&linegate(&["inspect", f], d), 0);
+    }
+    // The .hex and .bin are compared with an audit report by the blob's SHA-256, as the .lgmb.
+    exits(
+        &linegate(
+            &["inspect", "demo/model.hex", "--report", "demo/audit.json"],
+            d,
+        ),
+        0,
+    );
+    // A pack stopped after its new blob: the old .hex and .bin stay beside it.
+    let old_hex = std::fs::read(d.join("rel.hex")).unwrap();
+    let old_bin = std::fs::read(d.join("rel.bin")).unwrap();
+    exits(&pack("12"), 0);
+    std::fs::write(d.join("rel.hex"), &old_hex).unwrap();
+    let err = exits(&linegate(&["inspect", "rel.lgmb"], d), 1);
+    assert!(err.contains("rel.hex holds another blob"), "{err}");
+    let err = exits(&linegate(&["inspect", "rel.bin"], d), 1);
+    assert!(err.contains("rel.hex holds another blob"), "{err}");
+    let err = exits(&linegate(&["inspect", "rel.hex"], d), 1);
+    assert!(err.contains("rel.lgmb holds another blob"), "{err}");
+    std::fs::write(d.join("rel.bin"), &old_bin).unwrap();
+    std::fs::remove_file(d.join("rel.hex")).unwrap();
+    let err = exits(&linegate(&["inspect", "rel.lgmb"], d), 1);
+    assert!(err.contains("rel.bin holds another blob"), "{err}");
+}

@@ -6,7 +6,7 @@ use anyhow::{Context, Result, bail};
 use clap::Args;
 
 use super::{CheckFailed, to_json};
-use host_trainer::release::{hex, matching, pack};
+use host_trainer::release::{image, matching, pack};
 use host_trainer::train::float_model::FloatModel;
 
 /// Flags of `linegate inspect`.
@@ -60,37 +60,17 @@ fn inspect(
     json: bool,
     quiet: bool,
 ) -> Result<()> {
-    let raw = host_trainer::input::read_bounded(
-        path,
-        "model blob or flash image",
-        host_trainer::input::MAX_IMAGE_FILE,
-    )?;
-    let is_hex = path
-        .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("hex"));
     // A corrupt HEX image is a corrupt blob: exit 1, as for a bad CRC.
-    let (load_address, bytes) = if is_hex {
-        let text = String::from_utf8(raw).map_err(|_| {
-            CheckFailed(format!(
-                "{}: not an Intel HEX file (not text)",
-                path.display()
-            ))
-        })?;
-        let (a, b) =
-            hex::from_hex(&text).map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
-        (Some(a), b)
-    } else {
-        (None, raw)
-    };
-    let is_image = is_hex
-        || path
-            .extension()
-            .is_some_and(|e| e.eq_ignore_ascii_case("bin"));
-    let bytes = if is_image {
-        pack::blob_of_image(&bytes).to_vec()
-    } else {
-        bytes
-    };
+    let image::Image {
+        load_address,
+        blob: bytes,
+    } = image::read(path).map_err(|e| {
+        if e.is_input() {
+            anyhow::Error::new(e)
+        } else {
+            anyhow::Error::new(CheckFailed(e.to_string()))
+        }
+    })?;
     let (ins, decoded) = pack::inspect(&bytes);
     if json {
         say_raw!("{}", to_json(&ins));
@@ -177,6 +157,8 @@ fn inspect(
     decoded
         .as_ref()
         .map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
+    // The other files of the same pack must hold the same blob.
+    image::check_set(path, &bytes).map_err(|e| CheckFailed(e.to_string()))?;
     if let Some(p) = public_key {
         let key = host_trainer::release::sign::read_public(p)?;
         host_trainer::release::sign::verify(&bytes, &key)
