@@ -451,3 +451,71 @@ fn a_mixed_pack_set_is_refused_wherever_it_is_inspected() {
     let err = exits(&linegate(&["inspect", "rel.lgmb"], d), 1);
     assert!(err.contains("rel.bin holds another blob"), "{err}");
 }
+
+/// Whether `line` is a unit line of the grammar README.md gives for replay.
+fn unit_line(line: &str) -> bool {
+    let mut w = line.split(' ');
+    let index_ok = w.next().is_some_and(|i| i.parse::<usize>().is_ok());
+    let rest: Vec<&str> = w.collect();
+    let word_ok = match rest.as_slice() {
+        [v, s] if ["GO", "NO-GO", "RECHECK"].contains(v) => s.parse::<i64>().is_ok(),
+        ["FAULT", what] => {
+            ["count", "other"].contains(what)
+                || what
+                    .strip_prefix("ch")
+                    .or_else(|| what.strip_prefix("signal"))
+                    .is_some_and(|n| n.parse::<u8>().is_ok())
+        }
+        _ => false,
+    };
+    index_ok && word_ok
+}
+
+#[test]
+fn replay_lines_follow_the_grammar_the_readme_gives() {
+    let readme =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("../README.md"))
+            .unwrap();
+    for form in [
+        "`# model <32 hex digits> blob <8 hex digits>`",
+        "` key <16 hex digits>`",
+        "`<index> GO <score>`",
+        "`<index> NO-GO <score>`",
+        "`<index> RECHECK <score>`",
+        "`<index> FAULT ch<n>`",
+        "`<index> FAULT signal<k>`",
+        "`<index> FAULT count`",
+    ] {
+        assert!(readme.contains(form), "README.md lacks {form}");
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    for (blob, model, log) in [
+        ("model.lgmb", "model.json", "holdout-synthetic.csv"),
+        ("signal-model.lgmb", "signal-model.json", "signal-field-synthetic.csv"),
+    ] {
+        let (blob, model, log) = (
+            format!("demo/{blob}"),
+            format!("demo/{model}"),
+            format!("demo/{log}"),
+        );
+        let o = linegate(&["replay", "--blob", &blob, "--model", &model, &log], d);
+        exits(&o, 0);
+        let out = String::from_utf8(o.stdout).unwrap();
+        let mut lines = out.lines();
+        let first: Vec<&str> = lines.next().unwrap().split(' ').collect();
+        assert!(
+            first.len() == 5
+                && first[..2] == ["#", "model"]
+                && first[2].len() == 32
+                && first[3] == "blob"
+                && first[4].len() == 8,
+            "{first:?}"
+        );
+        for (i, l) in lines.enumerate() {
+            assert!(unit_line(l), "{blob}: line {}: {l}", i + 2);
+            assert!(l.starts_with(&format!("{i} ")), "{l}");
+        }
+    }
+}
