@@ -493,7 +493,11 @@ fn replay_lines_follow_the_grammar_the_readme_gives() {
     demo(d);
     for (blob, model, log) in [
         ("model.lgmb", "model.json", "holdout-synthetic.csv"),
-        ("signal-model.lgmb", "signal-model.json", "signal-field-synthetic.csv"),
+        (
+            "signal-model.lgmb",
+            "signal-model.json",
+            "signal-field-synthetic.csv",
+        ),
     ] {
         let (blob, model, log) = (
             format!("demo/{blob}"),

@@ -23,6 +23,16 @@ use crate::train::float_model::FloatModel;
 /// Why a blob is not one its float model produces.
 #[derive(Debug, PartialEq, thiserror::Error)]
 pub enum Mismatch {
+    /// A blob of readings for a model with signals, or the other way round.
+    #[error("{}", if *.blob_has_signals {
+        "the blob's channels include features of sample windows, but the float model has no signals"
+    } else {
+        "the blob has no signals (a model of readings), but the float model has signal features"
+    })]
+    Signals {
+        /// Whether the blob is the one with signals.
+        blob_has_signals: bool,
+    },
     /// Another model id: other training inputs.
     #[error("the blob's model id is {blob}, the float model's is {model}")]
     ModelId {
@@ -91,6 +101,11 @@ pub fn check(
     model: &CheckedModel,
     signals: &SignalSection,
 ) -> Result<(), Mismatch> {
+    if signals.is_empty() != fm.signals.is_empty() {
+        return Err(Mismatch::Signals {
+            blob_has_signals: !signals.is_empty(),
+        });
+    }
     let b = model.model();
     let blob_id = crate::digest::lower_hex(&b.model_id);
     if b.model_id != fm.id_bytes() {
