@@ -22,11 +22,10 @@ fn main() -> ExitCode {
             } else {
                 "error"
             };
-            if !(failed && cli.quiet) {
-                eprintln!("{tag}: {}", cli::shown(&e.to_string()));
-                for cause in e.chain().skip(1) {
-                    eprintln!("  caused by: {}", cli::shown(&cause.to_string()));
-                }
+            // `-q` silences reports, never the reason for a non-zero exit.
+            eprintln!("{tag}: {}", cli::shown(&e.to_string()));
+            for cause in e.chain().skip(1) {
+                eprintln!("  caused by: {}", cli::shown(&cause.to_string()));
             }
             ExitCode::from(if failed { 1 } else { 2 })
         }

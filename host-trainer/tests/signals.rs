@@ -161,7 +161,8 @@ fn signal_logs_train_pack_and_replay_as_an_independent_replay_computes() {
         ],
         d,
     );
-    assert!(exits(&o, 2).contains("has no signals"));
+    // A blob its model does not produce is a failed check (exit 1), as for inspect.
+    assert!(exits(&o, 1).contains("has no signals"));
     let o = linegate(
         &[
             "replay",
@@ -174,7 +175,7 @@ fn signal_logs_train_pack_and_replay_as_an_independent_replay_computes() {
         d,
     );
     assert!(
-        exits(&o, 2).contains("has no signals (format version 1)"),
+        exits(&o, 1).contains("the blob has no signals"),
         "a blob of readings is not a signal blob"
     );
 }

@@ -6,7 +6,7 @@ use anyhow::{Context, Result, bail};
 use clap::Args;
 
 use super::{CheckFailed, to_json};
-use host_trainer::release::{hex, pack};
+use host_trainer::release::{image, matching, pack};
 use host_trainer::train::float_model::FloatModel;
 
 /// Flags of `linegate inspect`.
@@ -60,28 +60,17 @@ fn inspect(
     json: bool,
     quiet: bool,
 ) -> Result<()> {
-    let raw = host_trainer::input::read_bounded(
-        path,
-        "model blob or flash image",
-        host_trainer::input::MAX_IMAGE_FILE,
-    )?;
-    let is_hex = path
-        .extension()
-        .is_some_and(|e| e.eq_ignore_ascii_case("hex"));
     // A corrupt HEX image is a corrupt blob: exit 1, as for a bad CRC.
-    let (load_address, bytes) = if is_hex {
-        let text = String::from_utf8(raw).map_err(|_| {
-            CheckFailed(format!(
-                "{}: not an Intel HEX file (not text)",
-                path.display()
-            ))
-        })?;
-        let (a, b) =
-            hex::from_hex(&text).map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
-        (Some(a), b)
-    } else {
-        (None, raw)
-    };
+    let image::Image {
+        load_address,
+        blob: bytes,
+    } = image::read(path).map_err(|e| {
+        if e.is_input() {
+            anyhow::Error::new(e)
+        } else {
+            anyhow::Error::new(CheckFailed(e.to_string()))
+        }
+    })?;
     let (ins, decoded) = pack::inspect(&bytes);
     if json {
         say_raw!("{}", to_json(&ins));
@@ -100,7 +89,15 @@ fn inspect(
             ins.crc_stored.as_deref().unwrap_or("–"),
             ins.crc_computed.as_deref().unwrap_or("–")
         );
-        say!("status: {}", ins.status);
+        // A signed blob is only as good as its signature: say when it was not checked.
+        if ins.key_id.is_some() && public_key.is_none() && decoded.is_ok() {
+            say!(
+                "status: {} (signature present, not checked: give --public-key)",
+                ins.status
+            );
+        } else {
+            say!("status: {}", ins.status);
+        }
         if let Some(id) = &ins.model_id {
             say!(
                 "model id: {id}; blob id: {}; SHA-256 {}\naudit: {}",
@@ -155,6 +152,13 @@ fn inspect(
             _ => {}
         }
     }
+    // A blob that does not decode is reported as what it is (truncated, bad magic…), not
+    // as unsigned.
+    decoded
+        .as_ref()
+        .map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
+    // The other files of the same pack must hold the same blob.
+    image::check_set(path, &bytes).map_err(|e| CheckFailed(e.to_string()))?;
     if let Some(p) = public_key {
         let key = host_trainer::release::sign::read_public(p)?;
         host_trainer::release::sign::verify(&bytes, &key)
@@ -163,17 +167,15 @@ fn inspect(
             say!("signature valid for {}", p.display());
         }
     }
-    let m = decoded.map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
-    let id = host_trainer::digest::lower_hex(&m.model().model_id);
     if let Some(p) = model {
         let fm = FloatModel::read(p)?;
-        if fm.model_id != id {
-            bail!(CheckFailed(format!(
-                "blob model id {id} does not match {} ({})",
-                p.display(),
-                fm.model_id
-            )));
-        }
+        matching::decode_from(&fm, &bytes).map_err(|e| {
+            CheckFailed(format!(
+                "{}: does not match the float model {}: {e}",
+                path.display(),
+                p.display()
+            ))
+        })?;
         if !quiet && !json {
             say!("matches float model {}", p.display());
         }

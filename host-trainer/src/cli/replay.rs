@@ -6,9 +6,10 @@ use anyhow::Result;
 use clap::Args;
 use host_trainer::ingest::LogOptions;
 
+use super::CheckFailed;
 use super::args::LogArgs;
 use host_trainer::output::OutputSet;
-use host_trainer::release::replay;
+use host_trainer::release::{matching, replay, sign};
 use host_trainer::train::float_model::FloatModel;
 
 /// Flags of `linegate replay`.
@@ -21,66 +22,74 @@ pub struct ReplayArgs {
     /// The blob.
     #[arg(long)]
     pub blob: PathBuf,
-    /// The float model (its channel scaling converts physical readings to raw).
+    /// The float model (its channel scaling converts physical readings to raw). The blob
+    /// must be one this model produces; exit 1 if not.
     #[arg(long)]
     pub model: PathBuf,
+    /// Require a valid signature by this public key file (from `linegate key new`) before
+    /// replaying; exit 1 if the blob is unsigned, signed by another key, or changed after
+    /// signing.
+    #[arg(long, value_name = "PUB_FILE")]
+    pub public_key: Option<PathBuf>,
+    /// Write the lines to this file (all or nothing) instead of standard output.
+    #[arg(short = 'o', long)]
+    pub output: Option<PathBuf>,
     /// Also write the raw test vectors here (one unit per line).
     #[arg(long)]
     pub vectors: Option<PathBuf>,
-    /// Overwrite the vectors file.
+    /// Overwrite the output and vectors files.
     #[arg(long)]
     pub force: bool,
 }
 
 impl ReplayArgs {
-    /// Runs `linegate replay`.
+    /// Runs `linegate replay`. Every check that can fail on the blob, the model, the key or
+    /// the log's header runs before the first line is printed.
     pub fn run(&self, quiet: bool) -> Result<()> {
-        let Self {
-            log,
-            log_args,
-            blob,
-            model,
-            vectors,
-            force,
-        } = self;
-        let fm = FloatModel::read(model)?;
+        let fm = FloatModel::read(&self.model)?;
         let bytes = host_trainer::input::read_bounded(
-            blob,
+            &self.blob,
             "model blob",
             host_trainer::input::MAX_IMAGE_FILE,
         )?;
-        if !fm.signals.is_empty() {
-            return self.run_signals(&fm, &bytes, quiet);
-        }
-        let m = shared_model::blob::decode(&bytes).map_err(|e| match e {
-            shared_model::DecodeError::Signals => anyhow::anyhow!(
-                "{}: the blob's channels include features of sample windows (format version {}), but the float model {} has no signals: give the float model the blob was packed from",
-                blob.display(),
-                shared_model::blob::Header::read(&bytes).map_or(0, |h| h.version),
-                model.display()
-            ),
-            e => anyhow::anyhow!("{}: {e}", blob.display()),
+        let m = matching::decode_from(&fm, &bytes).map_err(|e| match e {
+            matching::BlobMismatch::Decode(e) => {
+                anyhow::Error::new(CheckFailed(format!("{}: {e}", self.blob.display())))
+            }
+            matching::BlobMismatch::Mismatch(e) => anyhow::Error::new(CheckFailed(format!(
+                "{}: not a blob of the float model {}: {e}; give the float model the blob was packed from",
+                self.blob.display(),
+                self.model.display()
+            ))),
         })?;
-        // Streams: a log of any length, one line out per unit in.
-        let line = replay::model_line(&m, &bytes);
-        let mut vec_text = vectors.as_ref().map(|_| line.clone());
-        say_raw!("{line}");
-        let mut index = 0usize;
+        if let Some(k) = &self.public_key {
+            let key = sign::read_public(k)?;
+            sign::verify(&bytes, &key).map_err(|e| {
+                CheckFailed(format!("{}: {e} ({})", self.blob.display(), k.display()))
+            })?;
+        } else if shared_model::blob::signature(&bytes).is_some() && !quiet {
+            eprintln!(
+                "note: {} is signed, but its signature was not checked: give --public-key",
+                self.blob.display()
+            );
+        }
+        let mut sink = Sink::new(replay::model_line(m.model(), &bytes), self.output.is_some());
+        let mut vec_text = self
+            .vectors
+            .as_ref()
+            .map(|_| replay::model_line(m.model(), &bytes));
         let mut skipped = host_trainer::ingest::SkipReport::default();
-        let mut out: Vec<u8> = Vec::with_capacity(1 << 16);
-        let streamed = host_trainer::ingest::stream_units(
-            log,
-            // New units have no verdict yet: replay scores logs without a label column.
-            // Replay prints no digest of the log, so it hashes none.
-            &LogOptions {
-                label_optional: true,
-                digest: false,
-                ..log_args.options(quiet)
-            },
-            &fm.channels,
-            &mut skipped,
-            |u| {
-                put_line(&mut out, &replay::line(index, &m, u.raw));
+        // New units have no verdict yet: replay scores logs without a label column.
+        // Replay prints no digest of the log, so it hashes none.
+        let opts = LogOptions {
+            label_optional: true,
+            digest: false,
+            ..self.log_args.options(quiet)
+        };
+        let streamed = if fm.signals.is_empty() {
+            let mut index = 0usize;
+            host_trainer::ingest::stream_units(&self.log, &opts, &fm.channels, &mut skipped, |u| {
+                sink.line(&replay::line(index, m.model(), u.raw));
                 if let Some(t) = vec_text.as_mut() {
                     let row: Vec<String> = u.raw.iter().map(|r| r.to_string()).collect();
                     t.push_str(&row.join(" "));
@@ -88,87 +97,81 @@ impl ReplayArgs {
                 }
                 index += 1;
                 Ok(())
-            },
-        );
-        // The lines before an error are the device's too: they go out before the error.
-        flush(&mut out);
-        streamed?;
-        if !quiet {
-            super::warn_skipped(log, &skipped);
-        }
-        if let (Some(v), Some(text)) = (vectors, vec_text) {
-            let mut set = OutputSet::default();
-            set.add(v, text);
-            set.commit(*force)?;
-        }
-        Ok(())
-    }
-
-    /// Replay of a model with signal features over a signal log: each unit's windows go to
-    /// the device's entry point ([`replay::signal_line`]). The vectors hold, per unit, the
-    /// reading channels' raw readings and then every signal's window, as the example
-    /// device application takes them.
-    fn run_signals(&self, fm: &FloatModel, bytes: &[u8], quiet: bool) -> Result<()> {
-        let m = shared_model::blob::decode_signals(bytes)
-            .map_err(|e| anyhow::anyhow!("{}: {e}", self.blob.display()))?;
-        if m.signals().is_empty() {
-            anyhow::bail!(
-                "{}: the blob has no signals (format version {}): it was packed from a model of readings, not from the float model {}",
-                self.blob.display(),
-                shared_model::blob::Header::read(bytes).map_or(0, |h| h.version),
-                self.model.display()
-            );
-        }
-        if m.signals() != &fm.signal_section() {
-            anyhow::bail!(
-                "{}: the blob's signals or channel sources differ from those of the float model {}; give the float model the blob was packed from",
-                self.blob.display(),
-                self.model.display()
-            );
-        }
-        let line = replay::model_line(m.model(), bytes);
-        let mut vec_text = self.vectors.as_ref().map(|_| line.clone());
-        say_raw!("{line}");
-        let mut skipped = host_trainer::ingest::SkipReport::default();
-        let mut out: Vec<u8> = Vec::with_capacity(1 << 16);
-        let streamed = replay::replay_signal_log(
-            &self.log,
-            &LogOptions {
-                label_optional: true,
-                digest: false,
-                ..self.log_args.options(quiet)
-            },
-            fm,
-            &m,
-            &mut skipped,
-            |line, raw, windows| {
-                put_line(&mut out, line);
+            })
+            .map(drop)
+        } else {
+            // Each unit's windows go to the device's entry point; the vectors hold the
+            // reading channels' raw readings and then every signal's window, as the example
+            // device application takes them.
+            replay::replay_signal_log(&self.log, &opts, &fm, &m, &mut skipped, |line, raw, w| {
+                sink.line(line);
                 if let Some(t) = vec_text.as_mut() {
-                    t.push_str(&replay::signal_vector(raw, windows));
+                    t.push_str(&replay::signal_vector(raw, w));
                     t.push('\n');
                 }
-            },
-        );
-        flush(&mut out);
+            })
+        };
+        // On standard output the lines before an error are the device's too: they go out
+        // before the error (none if the log failed before its first unit).
+        let text = sink.finish(streamed.is_ok());
         streamed?;
         if !quiet {
             super::warn_skipped(&self.log, &skipped);
         }
+        let mut set = OutputSet::default();
+        if let (Some(o), Some(text)) = (&self.output, text) {
+            set.add(o, text);
+        }
         if let (Some(v), Some(text)) = (&self.vectors, vec_text) {
-            let mut set = OutputSet::default();
             set.add(v, text);
+        }
+        if set.paths().next().is_some() {
             set.commit(self.force)?;
         }
         Ok(())
     }
 }
 
-/// Lines go out in 64 KiB batches: one write per unit would be a system call per unit.
-fn put_line(out: &mut Vec<u8>, line: &str) {
-    out.extend_from_slice(line.as_bytes());
-    out.push(b'\n');
-    if out.len() >= 1 << 16 {
-        flush(out);
+/// Where the lines go: standard output in 64 KiB batches (one write per unit would be a
+/// system call per unit), or a buffer for `-o`. The model line waits for the first unit,
+/// so a log that fails before it prints nothing.
+struct Sink {
+    pending: Option<String>,
+    out: Vec<u8>,
+    to_file: bool,
+}
+
+impl Sink {
+    fn new(model_line: String, to_file: bool) -> Self {
+        Self {
+            pending: Some(model_line),
+            out: Vec::with_capacity(1 << 16),
+            to_file,
+        }
+    }
+
+    fn line(&mut self, line: &str) {
+        if let Some(p) = self.pending.take() {
+            self.out.extend_from_slice(p.as_bytes());
+        }
+        self.out.extend_from_slice(line.as_bytes());
+        self.out.push(b'\n');
+        if !self.to_file && self.out.len() >= 1 << 16 {
+            flush(&mut self.out);
+        }
+    }
+
+    /// Ends the run: on success the model line goes out even after no unit; the text for
+    /// `-o`, if that is where the lines go.
+    fn finish(mut self, ok: bool) -> Option<Vec<u8>> {
+        if ok && let Some(p) = self.pending.take() {
+            self.out.extend_from_slice(p.as_bytes());
+        }
+        if self.to_file {
+            return Some(self.out);
+        }
+        flush(&mut self.out);
+        None
     }
 }
 

@@ -3,7 +3,11 @@
 //! Records are `:LLAAAATT<data>CC`: byte count, 16-bit address, type, data,
 //! and a checksum that makes the sum of all record bytes 0 mod 256. Type 00
 //! is data, 01 end of file, 04 extended linear address (the upper 16 bits of
-//! the 32-bit address for the data records that follow).
+//! the 32-bit address for the data records that follow), 02 extended segment
+//! address (a base of segment × 16 for the records that follow). Types 03 and
+//! 05 (start segment / start linear address: where a CPU would begin executing)
+//! are read and ignored: a blob is data, not a program. The writer uses 00, 01
+//! and 04 only.
 
 /// Why an image cannot be written at an address.
 #[derive(Debug, PartialEq, Eq, thiserror::Error)]
@@ -97,7 +101,9 @@ pub enum HexError {
     #[error("line {0}: content after the end-of-file record")]
     AfterEof(usize),
     /// A record other than a data record carries a non-zero address field.
-    #[error("line {0}: the address field of an extended linear address record must be 0000")]
+    #[error(
+        "line {0}: the address field of an extended address or start address record must be 0000"
+    )]
     AddressField(usize),
     /// Data run past the top of the 32-bit address space.
     #[error("line {0}: data run past the top of the 32-bit address space")]
@@ -109,7 +115,8 @@ pub enum HexError {
 /// # Errors
 /// [`HexError`] naming the line.
 pub fn from_hex(text: &str) -> Result<(u32, Vec<u8>), HexError> {
-    let mut upper = 0u32;
+    // The base the next data records' addresses add to (record type 04 or 02).
+    let mut base = 0u32;
     let mut start: Option<u32> = None;
     let mut data = Vec::new();
     let mut eof: Option<(u32, Vec<u8>)> = None;
@@ -136,11 +143,12 @@ pub fn from_hex(text: &str) -> Result<(u32, Vec<u8>), HexError> {
         let payload = &bytes[4..4 + len];
         match bytes[3] {
             0x00 => {
-                let full = upper | addr;
-                let s = *start.get_or_insert(full);
-                if u64::from(full) + len as u64 > 1 << 32 {
+                let wide = u64::from(base) + u64::from(addr);
+                if wide + len as u64 > 1 << 32 {
                     return Err(HexError::PastTop(n));
                 }
+                let full = wide as u32;
+                let s = *start.get_or_insert(full);
                 if u64::from(full) != u64::from(s) + data.len() as u64 {
                     return Err(HexError::Gap(n));
                 }
@@ -149,11 +157,17 @@ pub fn from_hex(text: &str) -> Result<(u32, Vec<u8>), HexError> {
             0x01 if len == 0 && addr == 0 => {
                 eof = Some((start.unwrap_or(0), std::mem::take(&mut data)))
             }
-            0x04 if len == 2 => {
+            0x02 | 0x04 if len == 2 => {
                 if addr != 0 {
                     return Err(HexError::AddressField(n));
                 }
-                upper = u32::from(u16::from_be_bytes([payload[0], payload[1]])) << 16
+                let v = u32::from(u16::from_be_bytes([payload[0], payload[1]]));
+                base = if bytes[3] == 0x04 { v << 16 } else { v << 4 };
+            }
+            0x03 | 0x05 if len == 4 => {
+                if addr != 0 {
+                    return Err(HexError::AddressField(n));
+                }
             }
             _ => return Err(HexError::Malformed(n)),
         }
@@ -187,6 +201,31 @@ mod tests {
         let mut h = to_hex(0, &[1, 2, 3]);
         h.replace_range(9..11, "02");
         assert!(matches!(from_hex(&h), Err(HexError::Checksum(1))));
+    }
+
+    /// Intel HEX specification (Intel, "Hexadecimal Object File Format Specification",
+    /// revision A, 1988): record type 02 sets a segment base of its value × 16; types 03
+    /// and 05 give a start address (CS:IP, EIP) and hold no data.
+    #[test]
+    fn segment_and_start_address_records_are_read() {
+        let rec = |addr: u16, kind: u8, data: &[u8]| {
+            let mut s = String::new();
+            record(&mut s, addr, kind, data);
+            s
+        };
+        // Segment 0x1000 → base 0x10000; data at offset 0x0010 → 0x10010.
+        let img = rec(0, 0x02, &[0x10, 0x00])
+            + &rec(0x0010, 0x00, &[1, 2, 3])
+            + &rec(0, 0x03, &[0x00, 0x00, 0x10, 0x00])
+            + &rec(0, 0x05, &[0x00, 0x00, 0x10, 0x00])
+            + &rec(0, 0x01, &[]);
+        assert_eq!(from_hex(&img), Ok((0x10010, vec![1, 2, 3])));
+        // The segment record ":020000021200EA" (segment 0x1200, base 0x12000).
+        let spec = ":020000021200EA\n:03000000010203F7\n:00000001FF\n";
+        assert_eq!(from_hex(spec), Ok((0x12000, vec![1, 2, 3])));
+        // A start address record of the wrong length is still malformed.
+        let bad = rec(0x0010, 0x00, &[1]) + &rec(0, 0x05, &[0, 0]) + &rec(0, 0x01, &[]);
+        assert_eq!(from_hex(&bad), Err(HexError::Malformed(2)));
     }
 
     #[test]

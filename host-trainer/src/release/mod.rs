@@ -2,18 +2,22 @@
 //!
 //! [`quantise`] turns the float model into integer weights, conversions and thresholds;
 //! [`audit`] runs `shared_model`'s kernel (the code the firmware runs) over every unit and
-//! proves the rounding bound; [`pack`] writes the blob and inspects one; [`hex`] writes and
-//! reads Intel HEX images; [`replay`] prints the lines the device prints; [`sign`] holds the
-//! owner's release key and signs blobs (format version 2); [`keyfile`] reads and writes
-//! its key files. [`features`] audits a model's signal features: ranges, overflow proofs
-//! and noise bounds. [`gates`] holds the release gates, each rate with its exact bounds
+//! proves the rounding bound; [`pack`] writes the blob and inspects one; [`matching`]
+//! checks a blob comes from a float model; [`hex`] writes and reads Intel HEX images;
+//! [`image`] reads a blob back from any file `pack` writes and checks a pack's files agree;
+//! [`replay`] prints the lines the device prints; [`sign`] holds the owner's release key
+//! and signs blobs (format version 2); [`keyfile`] reads and writes its key files.
+//! [`features`] audits a model's signal features: ranges, overflow proofs and noise bounds.
+//! [`gates`] holds the release gates, each rate with its exact bounds
 //! (`crate::confidence`); [`units`] streams every unit's scores to `--units`.
 
 pub mod audit;
 pub mod features;
 pub mod gates;
 pub mod hex;
+pub mod image;
 pub mod keyfile;
+pub mod matching;
 pub mod pack;
 pub mod quantise;
 pub mod replay;

@@ -20,6 +20,20 @@ pub fn signal_blob_bytes(model: &CheckedSignalModel) -> Vec<u8> {
     buf[..n].to_vec()
 }
 
+/// The blob within a flash image (`.hex` or `.bin`): erased flash (0xFF bytes) after the
+/// blob's declared end is not part of it (FORMAT.md, "Flash images"), whether the blob is
+/// signed or not. Anything else after it stays, for the decoder to refuse as trailing
+/// bytes.
+pub fn blob_of_image(image: &[u8]) -> &[u8] {
+    let Ok(h) = blob::Header::read(image) else {
+        return image;
+    };
+    match image.split_at_checked(h.blob_len()) {
+        Some((blob, rest)) if rest.iter().all(|&b| b == 0xFF) => blob,
+        _ => image,
+    }
+}
+
 /// What `inspect` reports of a blob, valid or not.
 #[derive(Clone, Debug, Serialize)]
 pub struct Inspection {

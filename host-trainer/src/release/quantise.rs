@@ -11,7 +11,7 @@
 //! acc ≥ ⌊τ·A⌋ + 1.
 //!
 //! Margin-preserving rounding then tries ±1 LSB moves of each weight and of
-//! the bias, keeping a move only if it raises the guarantee's slack: the
+//! the bias (never more than 1 away from the plain rounding in all), keeping a move only if it raises the guarantee's slack: the
 //! smallest fixed-point margin over the correctly classified training units
 //! (computed by the shared kernel) minus the rounding-error bound of the audit.
 //! Maximising the margin alone would favour moves that merely scale the weights
@@ -465,6 +465,17 @@ fn search(
         for coord in 0..=d {
             for delta in [1i64, -1] {
                 if coord < d && (i64::from(model.channels[coord].weight) + delta).abs() > wmax {
+                    continue;
+                }
+                // Each value stays within 1 of its plain rounding: what `matching` checks a
+                // blob against without the training log.
+                let moved = if coord < d {
+                    i64::from(model.channels[coord].weight) + delta
+                        - i64::from(m.model().channels[coord].weight)
+                } else {
+                    model.bias + delta - m.model().bias
+                };
+                if moved.abs() > 1 {
                     continue;
                 }
                 let mut trial = model.clone();

@@ -1,0 +1,284 @@
+//! Does this blob come from this float model? The check `inspect --model` and `replay` make.
+//!
+//! Without the training log the quantiser's margin search cannot be re-run, so the check
+//! re-derives what the float model fixes exactly and bounds what the search may move:
+//! - model id, channel names and order, valid ranges, offsets, multipliers, shifts, the
+//!   weights' fractional bits and the signal section must equal the quantiser's, field by
+//!   field, at the blob's word lengths;
+//! - each weight and the bias must lie within 1 LSB of the quantiser's plain rounding of
+//!   its ideal value (ideal = float value × scale), the reach of the ±1 LSB search;
+//! - the thresholds must be those of the float model's threshold with some RECHECK band
+//!   b ≥ 0: `nogo_max = ⌊τ·A − b⌋`, `go_min = ⌊τ·A + b⌋ + 1`.
+//!
+//! So a bit flipped in any field that decides a verdict, with its CRC recomputed, is caught
+//! (the search never moves a value by more than one), and the first field that differs is
+//! named.
+
+use shared_model::features::SignalSection;
+use shared_model::{CheckedModel, CheckedSignalModel};
+
+use crate::release::quantise::{QuantConfig, quantise};
+use crate::train::float_model::FloatModel;
+
+/// Why a blob is not one its float model produces.
+#[derive(Debug, PartialEq, thiserror::Error)]
+pub enum Mismatch {
+    /// A blob of readings for a model with signals, or the other way round.
+    #[error("{}", if *.blob_has_signals {
+        "the blob's channels include features of sample windows, but the float model has no signals"
+    } else {
+        "the blob has no signals (a model of readings), but the float model has signal features"
+    })]
+    Signals {
+        /// Whether the blob is the one with signals.
+        blob_has_signals: bool,
+    },
+    /// Another model id: other training inputs.
+    #[error("the blob's model id is {blob}, the float model's is {model}")]
+    ModelId {
+        /// The blob's model id, hex.
+        blob: String,
+        /// The float model's, hex.
+        model: String,
+    },
+    /// The float model cannot be quantised at the blob's word lengths.
+    #[error(
+        "the float model cannot be quantised to the blob's format ({input_bits}-bit inputs, {weight_bits}-bit weights): {message}"
+    )]
+    Format {
+        /// The blob's input word.
+        input_bits: u8,
+        /// The blob's weight word.
+        weight_bits: u8,
+        /// The quantiser's refusal.
+        message: String,
+    },
+    /// A field the float model fixes exactly differs.
+    #[error("{field}: the blob has {blob}, the float model gives {model}")]
+    Field {
+        /// The field, e.g. `channel 2 (vref) offset`.
+        field: String,
+        /// The blob's value.
+        blob: String,
+        /// The value the float model gives.
+        model: String,
+    },
+    /// A weight or the bias is further from its ideal value than the margin search moves it.
+    #[error(
+        "{field}: the blob has {blob}, the float model gives {ideal:.3} (rounded {plain}); the quantiser moves it by at most 1"
+    )]
+    Rounding {
+        /// `weight of channel <i> (<name>)` or `bias`.
+        field: String,
+        /// The blob's integer.
+        blob: i64,
+        /// The ideal real value at the blob's format.
+        ideal: f64,
+        /// Its plain rounding.
+        plain: i64,
+    },
+    /// The thresholds are not the float model's threshold with any RECHECK band.
+    #[error(
+        "thresholds: the blob has NO-GO at score <= {nogo_max}, GO at score >= {go_min}; the float model's threshold is {threshold:.3} in accumulator units, which no RECHECK band turns into these"
+    )]
+    Thresholds {
+        /// The blob's NO-GO bound.
+        nogo_max: i64,
+        /// The blob's GO bound.
+        go_min: i64,
+        /// τ·A.
+        threshold: f64,
+    },
+}
+
+/// Checks that `model` (with its signal section `signals`, empty for a model of readings)
+/// is a blob `fm` produces: see the module's rule. Returns the first field that differs.
+///
+/// # Errors
+/// [`Mismatch`] naming that field.
+pub fn check(
+    fm: &FloatModel,
+    model: &CheckedModel,
+    signals: &SignalSection,
+) -> Result<(), Mismatch> {
+    if signals.is_empty() != fm.signals.is_empty() {
+        return Err(Mismatch::Signals {
+            blob_has_signals: !signals.is_empty(),
+        });
+    }
+    let b = model.model();
+    let blob_id = crate::digest::lower_hex(&b.model_id);
+    if b.model_id != fm.id_bytes() {
+        return Err(Mismatch::ModelId {
+            blob: blob_id,
+            model: fm.model_id.clone(),
+        });
+    }
+    let field = |field: String, blob: &dyn std::fmt::Display, model: &dyn std::fmt::Display| {
+        Err(Mismatch::Field {
+            field,
+            blob: blob.to_string(),
+            model: model.to_string(),
+        })
+    };
+    if b.channels.len() != fm.channels.len() {
+        return field(
+            "channel count".into(),
+            &b.channels.len(),
+            &fm.channels.len(),
+        );
+    }
+    // The plain quantisation at the blob's words: no training log, no search. The
+    // accumulator width is left to the blob (its overflow proof was checked on decode).
+    let q = quantise(
+        fm,
+        None,
+        QuantConfig {
+            input_bits: b.input_bits,
+            weight_bits: b.weight_bits,
+            optimise: false,
+            acc_bits: None,
+            recheck_band: 0.0,
+        },
+    )
+    .map_err(|e| Mismatch::Format {
+        input_bits: b.input_bits,
+        weight_bits: b.weight_bits,
+        message: e.to_string(),
+    })?;
+    let p = q.model.model();
+    for (i, (c, e)) in b.channels.iter().zip(&p.channels).enumerate() {
+        let at = |what: &str| format!("channel {i} ({}) {what}", e.name);
+        if c.name != e.name {
+            return field(format!("channel {i} name"), &c.name, &e.name);
+        }
+        if (c.raw_min, c.raw_max) != (e.raw_min, e.raw_max) {
+            return field(
+                at("valid range"),
+                &format!("{}..={}", c.raw_min, c.raw_max),
+                &format!("{}..={}", e.raw_min, e.raw_max),
+            );
+        }
+        if c.offset != e.offset {
+            return field(at("offset"), &c.offset, &e.offset);
+        }
+        if (c.multiplier, c.shift) != (e.multiplier, e.shift) {
+            return field(
+                at("conversion"),
+                &format!("multiplier {} shift {}", c.multiplier, c.shift),
+                &format!("multiplier {} shift {}", e.multiplier, e.shift),
+            );
+        }
+    }
+    if b.weight_frac_bits != p.weight_frac_bits {
+        return field(
+            "weight fractional bits".into(),
+            &b.weight_frac_bits,
+            &p.weight_frac_bits,
+        );
+    }
+    let expected = fm.signal_section();
+    if *signals != expected {
+        return field(
+            "signals and channel sources".into(),
+            &format!(
+                "{} signals, {} sources",
+                signals.signals.len(),
+                signals.sources.len()
+            ),
+            &format!(
+                "{} signals, {} sources{}",
+                expected.signals.len(),
+                expected.sources.len(),
+                if signals.signals.len() == expected.signals.len() {
+                    " (their windows, ranges or features differ)"
+                } else {
+                    ""
+                }
+            ),
+        );
+    }
+    for (i, ((c, ideal), plain)) in b
+        .channels
+        .iter()
+        .zip(&q.ideal_weights)
+        .zip(&q.plain_weights)
+        .enumerate()
+    {
+        if (i64::from(c.weight) - i64::from(*plain)).abs() > 1 {
+            return Err(Mismatch::Rounding {
+                field: format!("weight of channel {i} ({})", c.name),
+                blob: i64::from(c.weight),
+                ideal: *ideal,
+                plain: i64::from(*plain),
+            });
+        }
+    }
+    if b.bias.abs_diff(q.plain_bias) > 1 {
+        return Err(Mismatch::Rounding {
+            field: "bias".into(),
+            blob: b.bias,
+            ideal: q.ideal_bias,
+            plain: q.plain_bias,
+        });
+    }
+    if !thresholds_fit(q.threshold_acc, b.nogo_max, b.go_min) {
+        return Err(Mismatch::Thresholds {
+            nogo_max: b.nogo_max,
+            go_min: b.go_min,
+            threshold: q.threshold_acc,
+        });
+    }
+    Ok(())
+}
+
+/// Decodes a blob of any format version and checks it comes from `fm` ([`check`]).
+///
+/// # Errors
+/// The blob's [`shared_model::DecodeError`] as a string, or the [`Mismatch`].
+pub fn decode_from(fm: &FloatModel, bytes: &[u8]) -> Result<CheckedSignalModel, BlobMismatch> {
+    let m = shared_model::blob::decode_signals(bytes).map_err(BlobMismatch::Decode)?;
+    check(fm, m.model(), m.signals())?;
+    Ok(m)
+}
+
+/// Why a blob's bytes are not a blob of a given float model.
+#[derive(Debug, PartialEq, thiserror::Error)]
+pub enum BlobMismatch {
+    /// The bytes are not a valid blob.
+    #[error("{0}")]
+    Decode(shared_model::DecodeError),
+    /// A valid blob, from another model or changed.
+    #[error("{0}")]
+    Mismatch(#[from] Mismatch),
+}
+
+/// Whether some band b ≥ 0 gives `nogo_max = ⌊t − b⌋` and `go_min = ⌊t + b⌋ + 1`, as the
+/// quantiser places them: b must lie in (t − nogo_max − 1, t − nogo_max] and in
+/// [go_min − 1 − t, go_min − t).
+fn thresholds_fit(t: f64, nogo_max: i64, go_min: i64) -> bool {
+    let (n, g) = (nogo_max as f64, go_min as f64);
+    let lo = (g - 1.0 - t).max(t - n - 1.0).max(0.0);
+    let hi = (t - n).min(g - t);
+    // Closed at both ends: a value exactly on an open end is a difference of one rounding
+    // of τ·A, not a moved threshold.
+    t.is_finite() && lo <= hi
+}
+
+#[cfg(test)]
+mod tests {
+    use super::thresholds_fit;
+
+    #[test]
+    fn thresholds_follow_the_band_rule() {
+        // No band: NO-GO at ⌊t⌋, GO from ⌊t⌋ + 1.
+        assert!(thresholds_fit(5.3, 5, 6));
+        assert!(thresholds_fit(5.0, 5, 6));
+        // A band of 2.
+        assert!(thresholds_fit(5.3, 3, 8));
+        // Moved: either bound shifted alone, or both.
+        assert!(!thresholds_fit(5.3, 5, 9));
+        assert!(!thresholds_fit(5.3, 2, 6));
+        assert!(!thresholds_fit(5.3, 13, 14));
+    }
+}
