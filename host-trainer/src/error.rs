@@ -168,6 +168,20 @@ pub enum InputError {
         /// The accepted tokens, as `GO: …; NO-GO: …`.
         tokens: String,
     },
+    /// The label cell is a number or boolean that no stated mapping covers.
+    #[error("{path}: {at}, column '{column}': label '{value}': {hint}")]
+    UnmappedLabel {
+        /// File.
+        path: PathBuf,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
+        /// Label column.
+        column: String,
+        /// The cell.
+        value: String,
+        /// How to state the mapping.
+        hint: String,
+    },
     /// The log holds more units than the reader keeps in memory.
     #[error("{path}: more than {max} units; split the log or raise --max-rows")]
     TooManyRows {

@@ -561,3 +561,47 @@ write("large.parquet", 2 * 10**15)
     );
     assert!(!err.contains("exactly") && !err.contains("finite"), "{err}");
 }
+
+/// Integer and boolean label columns have no default class: refused naming the row and
+/// column and how to state the mapping, and read as stated once it is.
+#[test]
+fn integer_and_boolean_labels_need_a_stated_mapping() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let script = r#"
+import sys
+import pyarrow as pa, pyarrow.parquet as pq
+a = [float(i % 7) for i in range(40)]
+b = [float(i % 5) for i in range(40)]
+good = [x > 3 for x in a]
+pq.write_table(pa.table({"a": a, "b": b, "label": pa.array([int(g) for g in good], pa.int8())}),
+               sys.argv[1] + "/int.parquet")
+pq.write_table(pa.table({"a": a, "b": b, "label": pa.array(good, pa.bool_())}),
+               sys.argv[1] + "/bool.parquet")
+"#;
+    if !pyarrow(script, &[d]) {
+        return;
+    }
+    for (file, one, zero) in [("int.parquet", "1", "0"), ("bool.parquet", "true", "false")] {
+        let err = exits(&linegate(&["check", file], d), 2);
+        let want = format!(
+            "row group 0, row 0 (row 0 of the file; counted from 0), column 'label': label '{zero}': a numeric or boolean label needs a stated mapping: pass --go-labels {one} --nogo-labels {zero}"
+        );
+        assert!(err.contains(file) && err.contains(&want), "{file}: {err}");
+        let o = linegate(
+            &[
+                "check",
+                file,
+                "--go-labels",
+                one,
+                "--nogo-labels",
+                zero,
+                "--json",
+            ],
+            d,
+        );
+        exits(&o, 0);
+        let j: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        assert_eq!(j["units"], 40, "{file}");
+    }
+}

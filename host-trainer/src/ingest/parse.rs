@@ -5,7 +5,7 @@ use std::path::Path;
 
 use super::fast;
 use super::header::Columns;
-use super::options::{LogOptions, is_reading, label_of};
+use super::options::{LogOptions, is_reading, label_of, unmapped_label_hint};
 use super::records::{Fields, count_lf, fields, record_ends, strip_line_end};
 use crate::error::{InputError, Place};
 use crate::ingest::scaling::ChannelScale;
@@ -282,12 +282,23 @@ pub(super) fn label_cell(
     at: Place,
     column: &str,
 ) -> Result<i8, InputError> {
-    label_of(token, &opts.go_labels, &opts.nogo_labels).ok_or_else(|| InputError::UnknownLabel {
-        path: path.into(),
-        at,
-        column: column.to_string(),
-        value: cell_text(token),
-        tokens: opts.tokens(),
+    label_of(token, &opts.go_labels, &opts.nogo_labels).ok_or_else(|| {
+        match unmapped_label_hint(token) {
+            Some(hint) => InputError::UnmappedLabel {
+                path: path.into(),
+                at,
+                column: column.to_string(),
+                value: cell_text(token),
+                hint,
+            },
+            None => InputError::UnknownLabel {
+                path: path.into(),
+                at,
+                column: column.to_string(),
+                value: cell_text(token),
+                tokens: opts.tokens(),
+            },
+        }
     })
 }
 

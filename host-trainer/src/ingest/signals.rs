@@ -39,7 +39,9 @@ use shared_model::features::CheckedFeature;
 use crate::error::{InputError, Place};
 use crate::ingest::dataset::Dataset;
 use crate::ingest::header::{detect_delimiter, find};
-use crate::ingest::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading};
+use crate::ingest::options::{
+    LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
+};
 use crate::ingest::parse::{label_cell, parse_number};
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 use crate::ingest::signal_scale::SignalScale;
@@ -456,13 +458,16 @@ impl Open {
             let cell = record[c].trim_ascii();
             if !(k > 0 && cell.is_empty()) {
                 let l = label_cell(cell, opts, Path::new(""), Place::Line(0), &cols.names[c])
-                    .map_err(|_| {
-                        format!(
+                    .map_err(|_| match unmapped_label_hint(cell) {
+                        Some(hint) => {
+                            format!("column '{}': label '{}': {hint}", cols.names[c], text(cell))
+                        }
+                        None => format!(
                             "column '{}': unknown label '{}' ({}; set --go-labels / --nogo-labels)",
                             cols.names[c],
                             text(cell),
                             opts.tokens()
-                        )
+                        ),
                     })?;
                 match self.label {
                     Some(prev) if prev != l => {
