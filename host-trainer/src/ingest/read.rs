@@ -315,8 +315,13 @@ fn convert_kept(kept: Kept, scales: &[ChannelScale]) -> Option<Dataset> {
     Some(rows)
 }
 
-/// `ds`, unless it is empty or, for training (no model), holds one class only.
-fn checked_classes(path: &Path, ds: Dataset, for_model: bool) -> Result<Dataset, InputError> {
+/// `ds`, unless it is empty or, for training (no model), holds one class only: the one
+/// rule for plain, Parquet and signal logs.
+pub(super) fn checked_classes(
+    path: &Path,
+    ds: Dataset,
+    for_model: bool,
+) -> Result<Dataset, InputError> {
     if ds.is_empty() {
         return Err(no_rows(path, &ds.skipped));
     }

@@ -43,6 +43,7 @@ use crate::ingest::options::{
     LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
 };
 use crate::ingest::parse::{label_cell, parse_number};
+use crate::ingest::read::checked_classes;
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 use crate::ingest::signal_scale::SignalScale;
 use crate::ingest::signal_source::{Hashing, csv_error, read_error};
@@ -912,17 +913,8 @@ pub fn read_signal_log(
         }
     }
     ds.skipped = skipped;
-    if ds.is_empty() {
-        return Err(InputError::NoRows {
-            path: path.into(),
-            skipped: if ds.skipped.total > 0 {
-                format!(" ({} skipped as bad)", ds.skipped.counted())
-            } else {
-                String::new()
-            },
-        });
-    }
-    Ok(ds)
+    // The rule a plain log follows: no units, or one class for training, is refused.
+    checked_classes(path, ds, keep_faults)
 }
 
 /// A count outside channel `c`'s valid range, which the kernel refuses (FAULT) on that
