@@ -260,15 +260,19 @@ pub enum InputError {
     },
     /// More channels than a model holds.
     #[error(
-        "{path}: {count} channels selected; a model holds at most {max} (choose with --channels)"
+        "{path}: {count} channels selected{detail}; a model on the device holds at most {max} ({hint})"
     )]
     TooManyChannels {
         /// File.
         path: PathBuf,
         /// Channels selected.
         count: usize,
+        /// Where they come from (a signal log's readings and features), or empty.
+        detail: String,
         /// Capacity.
         max: usize,
+        /// How to choose fewer.
+        hint: &'static str,
     },
     /// No channel selected.
     #[error(

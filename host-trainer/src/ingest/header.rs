@@ -98,7 +98,9 @@ impl Columns {
             return Err(InputError::TooManyChannels {
                 path: path.into(),
                 count: channels.len(),
+                detail: String::new(),
                 max: shared_model::MAX_CHANNELS,
+                hint: "choose with --channels",
             });
         }
         let width = names.len();

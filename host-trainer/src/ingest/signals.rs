@@ -523,6 +523,9 @@ pub enum ReadFor<'a> {
     Training {
         /// The reading channels the sheet declares.
         declared: &'a [String],
+        /// The feature channels the sheet declares, counted with the readings against the
+        /// device's capacity as soon as the header is read.
+        features: usize,
     },
     /// Evaluation by a model (holdout, audit, replay): its reading channels, every other
     /// column passed over. A window shorter or longer than its signal's is handed on as it
@@ -598,9 +601,9 @@ impl Columns {
                 || Some(i) == time
                 || signals.contains(&i)
         };
-        let (wanted, declared) = match *read_for {
-            ReadFor::Model { readings } => (Some(readings.to_vec()), &[][..]),
-            ReadFor::Training { declared } => (opts.channels.clone(), declared),
+        let (wanted, declared, features) = match *read_for {
+            ReadFor::Model { readings } => (Some(readings.to_vec()), &[][..], 0),
+            ReadFor::Training { declared, features } => (opts.channels.clone(), declared, features),
         };
         let readings = match wanted {
             Some(list) => list
@@ -645,6 +648,19 @@ impl Columns {
                     "column '{}' is asked for as a reading channel but is the unit id, label, sample number, timestamp or a signal",
                     names[i]
                 ),
+            });
+        }
+        let count = readings.len() + features;
+        if count > shared_model::MAX_CHANNELS {
+            return Err(InputError::TooManyChannels {
+                path: path.into(),
+                count,
+                detail: format!(
+                    " ({} reading columns and {features} features of the sheet)",
+                    readings.len()
+                ),
+                max: shared_model::MAX_CHANNELS,
+                hint: "declare fewer [[feature]] entries, or choose the readings with --channels",
             });
         }
         Ok(Self {
@@ -803,6 +819,7 @@ pub fn read_signal_log(
         } else {
             ReadFor::Training {
                 declared: &reading_names,
+                features: computed.len(),
             }
         },
         &mut skipped,
