@@ -248,7 +248,7 @@ pub enum InputError {
     },
     /// A channel never changes.
     #[error(
-        "{path}: channel '{column}' has zero spread (every unit reads {value}); drop it with --ignore {column} or declare its range in a channel sheet"
+        "{path}: channel '{column}' has zero spread (every unit reads {value}), so it cannot tell units apart; {hint}"
     )]
     ZeroSpread {
         /// File.
@@ -257,6 +257,8 @@ pub enum InputError {
         column: String,
         /// The constant value.
         value: f64,
+        /// Why it may be constant and what to do.
+        hint: String,
     },
     /// More channels than a model holds.
     #[error(

@@ -193,13 +193,9 @@ pub(super) fn read_log_keeping(
                 }),
                 None => {
                     let (lo, hi) = ranges.get(i).copied().unwrap_or((0.0, 0.0));
-                    if lo == hi {
-                        return Err(InputError::ZeroSpread {
-                            path: path.into(),
-                            column: n.clone(),
-                            value: lo,
-                        });
-                    }
+                    spread_checked(path, n, lo, hi, || {
+                        format!("drop it with --ignore {n} or declare its range in a channel sheet")
+                    })?;
                     ChannelScale::observed(n, lo, hi).map_err(|message| InputError::Sheet {
                         path: path.into(),
                         message,
@@ -313,6 +309,27 @@ fn convert_kept(kept: Kept, scales: &[ChannelScale]) -> Option<Dataset> {
     rows.raw = raw;
     rows.scales = scales.to_vec();
     Some(rows)
+}
+
+/// Refuses channel `column` whose every unit reads the same (`lo == hi`): the one rule for
+/// plain channels and a signal log's readings and features. `hint` says why it may be
+/// constant and what to do.
+pub(super) fn spread_checked(
+    path: &Path,
+    column: &str,
+    lo: f64,
+    hi: f64,
+    hint: impl FnOnce() -> String,
+) -> Result<(), InputError> {
+    if lo == hi {
+        return Err(InputError::ZeroSpread {
+            path: path.into(),
+            column: column.to_string(),
+            value: lo,
+            hint: hint(),
+        });
+    }
+    Ok(())
 }
 
 /// `ds`, unless it is empty or, for training (no model), holds one class only: the one

@@ -43,7 +43,7 @@ use crate::ingest::options::{
     LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
 };
 use crate::ingest::parse::{label_cell, parse_number};
-use crate::ingest::read::checked_classes;
+use crate::ingest::read::{checked_classes, spread_checked};
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 use crate::ingest::signal_scale::SignalScale;
 use crate::ingest::signal_source::{Hashing, csv_error, read_error};
@@ -806,6 +806,8 @@ pub fn read_signal_log(
     let (mut ids, mut times) = (Vec::<String>::new(), Vec::<String>::new());
     let mut unit_rows = Vec::new();
     let mut row = Vec::with_capacity(computed.len());
+    // Each signal's lowest and highest raw sample, to say why a feature may be constant.
+    let mut sample_ranges = vec![(i32::MAX, i32::MIN); signals.len()];
     // A log read for a model keeps the units the device refuses, as FAULT units.
     let keep_faults = model.is_some();
     let header = stream_signal_units(
@@ -843,6 +845,11 @@ pub fn read_signal_log(
                     (Err(e), false) => return Err(window_error(path, u, &signals[j], e)),
                 });
             }
+            for (r, w) in sample_ranges.iter_mut().zip(u.windows.iter()) {
+                for &x in w {
+                    *r = (r.0.min(x), r.1.max(x));
+                }
+            }
             values.extend_from_slice(&row);
             physical.extend_from_slice(u.readings);
             labels.push(u.label);
@@ -873,6 +880,9 @@ pub fn read_signal_log(
                         .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
                             (a.min(v), b.max(v))
                         });
+                    spread_checked(path, name, lo, hi, || {
+                        format!("drop it with --ignore {name} or declare its range in the sheet")
+                    })?;
                     ChannelScale::observed(name, lo, hi).map_err(|m| log_error(path, &m))
                 }
             })
@@ -930,8 +940,53 @@ pub fn read_signal_log(
         }
     }
     ds.skipped = skipped;
+    if !keep_faults && !ds.is_empty() {
+        constant_features(path, &ds, &computed, signals, &sample_ranges)?;
+    }
     // The rule a plain log follows: no units, or one class for training, is refused.
     checked_classes(path, ds, keep_faults)
+}
+
+/// Refuses a feature channel whose every unit of a training log has the same value, as a
+/// constant plain channel is refused; the message says whether its signal's samples were
+/// all one count (an lsb far too large, a stuck sensor) or the feature alone is constant.
+fn constant_features(
+    path: &Path,
+    ds: &Dataset,
+    computed: &[(usize, CheckedFeature)],
+    signals: &[SignalScale],
+    sample_ranges: &[(i32, i32)],
+) -> Result<(), InputError> {
+    let d = ds.dim();
+    let mut features = computed.iter();
+    for (k, c) in ds.scales.iter().enumerate() {
+        let Some(src) = &c.source else { continue };
+        let Some(&(j, _)) = features.next() else {
+            break;
+        };
+        let (lo, hi) = ds
+            .raw
+            .iter()
+            .skip(k)
+            .step_by(d.max(1))
+            .fold((i32::MAX, i32::MIN), |(a, b), &v| (a.min(v), b.max(v)));
+        let s = &signals[j];
+        spread_checked(path, &c.name, c.physical(lo), c.physical(hi), || {
+            let (slo, shi) = sample_ranges.get(j).copied().unwrap_or((0, 0));
+            if slo == shi {
+                format!(
+                    "it is computed from signal '{}', and every sample of that signal in this log is the raw count {slo} (lsb {:e}, zero {}): check the signal's lsb and zero in the sheet (an lsb far larger than the readings makes every sample one count), or remove the [[feature]]",
+                    src.signal, s.lsb, s.zero
+                )
+            } else {
+                format!(
+                    "it is computed from signal '{}', whose samples vary, but this feature is the same for every unit: remove the [[feature]] from the sheet",
+                    src.signal
+                )
+            }
+        })?;
+    }
+    Ok(())
 }
 
 /// A count outside channel `c`'s valid range, which the kernel refuses (FAULT) on that
