@@ -39,13 +39,17 @@ pub enum InputError {
         /// File.
         path: PathBuf,
     },
-    /// The header has a name twice.
-    #[error("{path}: line 1: column name '{name}' appears twice in the header; rename one")]
+    /// The header has a name twice (names compare without regard to case).
+    #[error(
+        "{path}: line 1: columns '{first}' and '{second}' have the same name (column names compare without regard to case); rename one"
+    )]
     DuplicateHeader {
         /// File.
         path: PathBuf,
-        /// Repeated name.
-        name: String,
+        /// The name's first column, as spelled there.
+        first: String,
+        /// The column repeating it, as spelled there.
+        second: String,
     },
     /// A named column is not in the header.
     #[error("{path}: no column '{name}' in the header (columns: {columns})")]

@@ -64,7 +64,7 @@ fn malformed_logs_give_specific_errors_exit_2_and_no_output() {
         (
             "duplicate header",
             b"a,a,label\n1,2,GO\n2,1,NO-GO\n".to_vec(),
-            "column name 'a' appears twice",
+            "columns 'a' and 'a' have the same name",
         ),
         ("no label column", b"a,b\n1,2\n".to_vec(), "no label column"),
         (

@@ -605,3 +605,26 @@ pq.write_table(pa.table({"a": a, "b": b, "label": pa.array(good, pa.bool_())}),
         assert_eq!(j["units"], 40, "{file}");
     }
 }
+
+/// Column names compare without regard to case in a Parquet schema as in a CSV header:
+/// `a` and `A` are one name twice, refused naming both.
+#[test]
+fn names_that_differ_only_in_case_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let script = r#"
+import sys
+import pyarrow as pa, pyarrow.parquet as pq
+pq.write_table(pa.table({"a": [1.0, 2.0, 3.0, 4.0], "A": [2.0, 1.0, 4.0, 3.0],
+                         "label": ["GO", "GO", "NO-GO", "NO-GO"]}), sys.argv[1] + "/case.parquet")
+"#;
+    if !pyarrow(script, &[d]) {
+        return;
+    }
+    let err = exits(&linegate(&["check", "case.parquet"], d), 2);
+    assert!(
+        err.contains("case.parquet")
+            && err.contains("columns 'a' and 'A' have the same name (column names compare without regard to case)"),
+        "{err}"
+    );
+}

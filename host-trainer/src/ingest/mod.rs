@@ -21,6 +21,7 @@
 pub mod dataset;
 mod fast;
 mod header;
+pub(crate) mod names;
 mod options;
 mod parquet;
 mod parse;

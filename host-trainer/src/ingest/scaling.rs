@@ -58,6 +58,7 @@ use std::path::Path;
 use serde::{Deserialize, Serialize};
 
 use crate::error::InputError;
+use crate::ingest::names::{name_key, same_name};
 use crate::ingest::signal_scale::{FeatureSource, SignalScale};
 
 /// One channel's scaling, as stored in the float model.
@@ -511,7 +512,7 @@ impl ChannelSheet {
         // share one set: each name means one thing in the log, the model and the reports.
         let mut seen = std::collections::HashSet::new();
         let mut fresh = |name: &str, what: &str| {
-            if seen.insert(name.to_ascii_lowercase()) {
+            if seen.insert(name_key(name)) {
                 Ok(())
             } else {
                 Err(format!(
@@ -561,7 +562,7 @@ impl ChannelSheet {
             let at = |m: String| format!("feature '{}': {m}", f.name.escape_debug());
             let signal = signals
                 .iter()
-                .find(|s| s.name.eq_ignore_ascii_case(&f.signal))
+                .find(|s| same_name(&s.name, &f.signal))
                 .ok_or_else(|| at(format!("no [[signal]] named '{}'", f.signal.escape_debug())))?;
             let cycles = match (f.cycles, f.frequency, signal.sample_rate) {
                 (Some(_), Some(_), _) => {
@@ -599,9 +600,7 @@ impl ChannelSheet {
     /// The declared scaling of a channel, matched as log columns are (ASCII
     /// case-insensitively).
     pub fn get(&self, name: &str) -> Option<&ChannelScale> {
-        self.channels
-            .iter()
-            .find(|c| c.name.eq_ignore_ascii_case(name))
+        self.channels.iter().find(|c| same_name(&c.name, name))
     }
 }
 

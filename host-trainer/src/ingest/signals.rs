@@ -39,6 +39,7 @@ use shared_model::features::CheckedFeature;
 use crate::error::{InputError, Place};
 use crate::ingest::dataset::Dataset;
 use crate::ingest::header::{detect_delimiter, find};
+use crate::ingest::names::{same_name, unique_names};
 use crate::ingest::options::{
     LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
 };
@@ -555,15 +556,7 @@ impl Columns {
         signals: &[SignalScale],
         read_for: &ReadFor<'_>,
     ) -> Result<Self, InputError> {
-        let mut seen = std::collections::HashSet::with_capacity(names.len());
-        for n in names {
-            if !seen.insert(n.to_ascii_lowercase()) {
-                return Err(InputError::DuplicateHeader {
-                    path: path.into(),
-                    name: n.clone(),
-                });
-            }
-        }
+        unique_names(path, names)?;
         let unknown = |name: &str| InputError::UnknownColumn {
             path: path.into(),
             name: name.to_string(),
@@ -615,12 +608,9 @@ impl Columns {
                     .filter(|&i| {
                         !taken(i)
                             && !names[i].is_empty()
-                            && !opts
-                                .ignore
-                                .iter()
-                                .any(|g| g.eq_ignore_ascii_case(&names[i]))
+                            && !opts.ignore.iter().any(|g| same_name(g, &names[i]))
                     })
-                    .partition(|&i| declared.iter().any(|d| d.eq_ignore_ascii_case(&names[i])));
+                    .partition(|&i| declared.iter().any(|d| same_name(d, &names[i])));
                 if !other.is_empty() {
                     let role = |what: &str, c: Option<usize>| {
                         c.map(|c| format!(", {what} '{}'", names[c]))
