@@ -2,6 +2,8 @@
 
 use std::path::PathBuf;
 
+use crate::ingest::names::{not_numeric_hint, shell_word, shown};
+
 /// A problem with a bench log or channel sheet. The CLI maps these to exit code 2.
 #[derive(Debug, thiserror::Error)]
 pub enum InputError {
@@ -52,7 +54,11 @@ pub enum InputError {
         second: String,
     },
     /// A named column is not in the header.
-    #[error("{path}: no column '{name}' in the header (columns: {columns})")]
+    #[error(
+        "{path}: no column '{name}' in the header (columns: {columns})",
+        name = shown(.name),
+        columns = shown(.columns)
+    )]
     UnknownColumn {
         /// File.
         path: PathBuf,
@@ -86,7 +92,7 @@ pub enum InputError {
         found: usize,
     },
     /// A cell is empty.
-    #[error("{path}: {at}, column '{column}': empty cell")]
+    #[error("{path}: {at}, column '{column}': the cell is empty; {hint}", column = shown(.column))]
     Missing {
         /// File.
         path: PathBuf,
@@ -94,10 +100,14 @@ pub enum InputError {
         at: Place,
         /// Column name.
         column: String,
+        /// What to do: fill it in, leave the column out, or skip the row.
+        hint: String,
     },
     /// A cell is not a number.
     #[error(
-        "{path}: {at}, column '{column}': '{value}' is not a number (exclude the column with --ignore, or the row with --skip-bad-rows)"
+        "{path}: {at}, column '{column}': '{value}' is not a number ({})",
+        not_numeric_hint(.column),
+        column = shown(.column)
     )]
     NotNumeric {
         /// File.
@@ -110,7 +120,7 @@ pub enum InputError {
         value: String,
     },
     /// A cell is NaN, infinite, or too large to be a reading.
-    #[error("{path}: {at}, column '{column}': '{value}' is not a finite reading")]
+    #[error("{path}: {at}, column '{column}': '{value}' is not a finite reading", column = shown(.column))]
     NotFinite {
         /// File.
         path: PathBuf,
@@ -124,8 +134,7 @@ pub enum InputError {
     /// A cell holds a finite number beyond the largest reading (a Parquet integer or decimal).
     #[error(
         "{path}: {at}, column '{column}': {value} is beyond the largest reading a channel takes (magnitude 1e15){}",
-        if *inexact { "; an integer above 2^53 cannot even be represented exactly as a 64-bit float" } else { "" }
-    )]
+        if *inexact { "; an integer above 2^53 cannot even be represented exactly as a 64-bit float" } else { "" }, column = shown(.column))]
     BeyondReading {
         /// File.
         path: PathBuf,
@@ -140,8 +149,7 @@ pub enum InputError {
     },
     /// A reading is outside the channel's declared valid range.
     #[error(
-        "{path}: {at}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)"
-    )]
+        "{path}: {at}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)", column = shown(.column))]
     OutOfRange {
         /// File.
         path: PathBuf,
@@ -158,8 +166,7 @@ pub enum InputError {
     },
     /// The label cell is not a known GO or NO-GO token.
     #[error(
-        "{path}: {at}, column '{column}': unknown label '{value}' ({tokens}; set --go-labels / --nogo-labels)"
-    )]
+        "{path}: {at}, column '{column}': unknown label '{value}' ({tokens}; set --go-labels / --nogo-labels)", column = shown(.column))]
     UnknownLabel {
         /// File.
         path: PathBuf,
@@ -173,7 +180,7 @@ pub enum InputError {
         tokens: String,
     },
     /// The label cell is a number or boolean that no stated mapping covers.
-    #[error("{path}: {at}, column '{column}': label '{value}': {hint}")]
+    #[error("{path}: {at}, column '{column}': label '{value}': {hint}", column = shown(.column))]
     UnmappedLabel {
         /// File.
         path: PathBuf,
@@ -252,8 +259,7 @@ pub enum InputError {
     },
     /// A channel never changes.
     #[error(
-        "{path}: channel '{column}' has zero spread (every unit reads {value}), so it cannot tell units apart; {hint}"
-    )]
+        "{path}: channel '{column}' has zero spread (every unit reads {value}), so it cannot tell units apart; {hint}", column = shown(.column))]
     ZeroSpread {
         /// File.
         path: PathBuf,
@@ -311,8 +317,7 @@ pub enum InputError {
     },
     /// A column read as a channel holds values that are not numbers (a Parquet column's type).
     #[error(
-        "{path}: column '{column}' holds {found}, not numbers; a channel column must hold integers, floating-point or decimal numbers, or text that reads as numbers (leave it out with --ignore {column})"
-    )]
+        "{path}: column '{column}' holds {found}, not numbers; a channel column must hold integers, floating-point or decimal numbers, or text that reads as numbers (leave it out with --ignore {})", shell_word(.column), column = shown(.column))]
     ColumnType {
         /// File.
         path: PathBuf,

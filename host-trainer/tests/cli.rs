@@ -35,9 +35,9 @@ fn malformed_logs_give_specific_errors_exit_2_and_no_output() {
             "line 3, column 'a': '1e308' is not a finite reading",
         ),
         (
-            "empty cell",
+            "the cell is empty",
             b"a,b,label\n1,,GO\n2,1,NO-GO\n".to_vec(),
-            "line 2, column 'b': empty cell",
+            "line 2, column 'b': the cell is empty; fill in the reading",
         ),
         (
             "unknown label",

@@ -309,7 +309,7 @@ pq.write_table(pa.table({"a": pa.array(a), "v": pa.array([[1.0, 2.0]] * n),
     let cases = [
         (
             "null.parquet",
-            "row group 2, row 234 (row 1234 of the file; counted from 0), column 'b': empty cell",
+            "row group 2, row 234 (row 1234 of the file; counted from 0), column 'b': the cell is empty; fill in the reading, leave the column out with --ignore b",
         ),
         (
             "nan.parquet",
@@ -321,7 +321,7 @@ pq.write_table(pa.table({"a": pa.array(a), "v": pa.array([[1.0, 2.0]] * n),
         ),
         (
             "blank.parquet",
-            "row group 1, row 100 (row 600 of the file; counted from 0), column 's': empty cell",
+            "row group 1, row 100 (row 600 of the file; counted from 0), column 's': the cell is empty",
         ),
         (
             "label.parquet",
@@ -329,7 +329,7 @@ pq.write_table(pa.table({"a": pa.array(a), "v": pa.array([[1.0, 2.0]] * n),
         ),
         (
             "nolabel.parquet",
-            "row group 0, row 10 (row 10 of the file; counted from 0), column 'label': unknown label ''",
+            "row group 0, row 10 (row 10 of the file; counted from 0), column 'label': the cell is empty; a unit needs its verdict",
         ),
     ];
     for (file, want) in cases {

@@ -64,8 +64,12 @@ pub(crate) fn shown_bytes(bytes: &[u8]) -> String {
 
 /// `name` as a shell argument: as it is when it holds only characters no shell treats
 /// specially, else in single quotes (a quote inside written `'\''`), so that a hint such as
-/// `--ignore 'serial number'` pastes into a shell.
+/// `--ignore 'serial number'` pastes into a shell. A name too long to echo is cut as
+/// [`shown`] cuts it: no one pastes 100 KB.
 pub(crate) fn shell_word(name: &str) -> String {
+    if name.chars().nth(SHOWN_CHARS).is_some() {
+        return shown(name);
+    }
     let plain = !name.is_empty()
         && name
             .bytes()
@@ -75,6 +79,40 @@ pub(crate) fn shell_word(name: &str) -> String {
     } else {
         format!("'{}'", name.replace('\'', r"'\''"))
     }
+}
+
+/// Whether a column name reads like a unit's id (`serial_number`, `unit`, `DUT id`), for
+/// hints: such a column holding text is more likely the unit id than a channel.
+fn looks_like_id(name: &str) -> bool {
+    let key = name_key(name);
+    ["serial", "unit", "uuid", "barcode", "device"]
+        .iter()
+        .any(|w| key.contains(w))
+        || key
+            .split(|c: char| !c.is_ascii_alphanumeric())
+            .any(|part| matches!(part, "id" | "sn" | "uid" | "dut"))
+}
+
+/// What to do about a cell of channel `column` that is not a number: leave the column out,
+/// or skip the row; for an id-looking column, name it as the unit id.
+pub(crate) fn not_numeric_hint(column: &str) -> String {
+    let q = shell_word(column);
+    if looks_like_id(column) {
+        format!(
+            "if '{}' identifies the units, name it with --unit-id {q}; else exclude the column with --ignore {q}, or the row with --skip-bad-rows",
+            shown(column)
+        )
+    } else {
+        format!("exclude the column with --ignore {q}, or the row with --skip-bad-rows")
+    }
+}
+
+/// What to do about an empty cell of channel `column`.
+pub(crate) fn empty_cell_hint(column: &str) -> String {
+    format!(
+        "fill in the reading, leave the column out with --ignore {}, or skip the row with --skip-bad-rows",
+        shell_word(column)
+    )
 }
 
 #[cfg(test)]
@@ -101,5 +139,14 @@ mod tests {
         assert_eq!(shell_word("a$b"), "'a$b'");
         assert_eq!(shell_word("it's"), r"'it'\''s'");
         assert_eq!(shell_word(""), "''");
+    }
+
+    #[test]
+    fn an_id_column_holding_text_suggests_both_roles() {
+        let h = not_numeric_hint("serial_number");
+        assert!(h.contains("--unit-id serial_number") && h.contains("--ignore serial_number"));
+        let h = not_numeric_hint("Serial Number");
+        assert!(h.contains("--unit-id 'Serial Number'"), "{h}");
+        assert!(!not_numeric_hint("voltage").contains("--unit-id"));
     }
 }

@@ -6,6 +6,7 @@ use std::io::Read;
 use std::path::Path;
 
 use super::header::{Columns, read_header};
+use super::names::shell_word;
 use super::options::{LogOptions, ScaleFrom};
 use super::parse::Parsed;
 use super::records::BlockReader;
@@ -194,7 +195,10 @@ pub(super) fn read_log_keeping(
                 None => {
                     let (lo, hi) = ranges.get(i).copied().unwrap_or((0.0, 0.0));
                     spread_checked(path, n, lo, hi, || {
-                        format!("drop it with --ignore {n} or declare its range in a channel sheet")
+                        format!(
+                            "drop it with --ignore {} or declare its range in a channel sheet",
+                            shell_word(n)
+                        )
                     })?;
                     ChannelScale::observed(n, lo, hi).map_err(|message| InputError::Sheet {
                         path: path.into(),

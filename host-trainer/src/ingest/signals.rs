@@ -39,7 +39,7 @@ use shared_model::features::CheckedFeature;
 use crate::error::{InputError, Place};
 use crate::ingest::dataset::Dataset;
 use crate::ingest::header::{detect_delimiter, find};
-use crate::ingest::names::{same_name, unique_names};
+use crate::ingest::names::{same_name, shell_word, shown, shown_bytes, unique_names};
 use crate::ingest::options::{
     LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
 };
@@ -205,6 +205,7 @@ pub fn stream_signal_units(
                 path: path.into(),
                 at: Place::Line(line),
                 column: names[cols.unit].clone(),
+                hint: "every row of a signal log needs its unit's id; fill it in, or skip the unit with --skip-bad-rows".into(),
             });
         }
         if !any || id != open.id.as_str() {
@@ -383,7 +384,7 @@ impl Open {
                 "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?{TRAINING_REFUSES}"
             ));
         }
-        let text = |f: &[u8]| String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned();
+        let text = shown_bytes;
         if let Some(c) = cols.sample {
             let cell = record[c].trim_ascii();
             let v = std::str::from_utf8(cell)
@@ -671,7 +672,7 @@ impl Columns {
 /// within the unit, or enter the model unannounced. `recognised` lists the columns taken by
 /// role, so that a timestamp taken (or not taken) by its name is seen.
 fn undeclared_columns(path: &Path, columns: Vec<&str>, recognised: String) -> InputError {
-    let quoted: Vec<String> = columns.iter().map(|c| format!("'{c}'")).collect();
+    let quoted: Vec<String> = columns.iter().map(|c| format!("'{}'", shown(c))).collect();
     let like_time: Vec<&str> = columns
         .iter()
         .copied()
@@ -682,7 +683,9 @@ fn undeclared_columns(path: &Path, columns: Vec<&str>, recognised: String) -> In
         .collect();
     let time_hint = match like_time.first() {
         Some(t) => format!(
-            "; if '{t}' is the timestamp, name it with --timestamp {t} (by name only {} are taken)",
+            "; if '{}' is the timestamp, name it with --timestamp {} (by name only {} are taken)",
+            shown(t),
+            shell_word(t),
             TIME_NAMES.join(", ")
         ),
         None => String::new(),
@@ -695,7 +698,7 @@ fn undeclared_columns(path: &Path, columns: Vec<&str>, recognised: String) -> In
             quoted.join(", "),
             if columns.len() == 1 { "is" } else { "are" },
             if columns.len() == 1 { "it" } else { "them" },
-            columns.join(","),
+            shell_word(&columns.join(",")),
             if columns.len() == 1 { "it" } else { "them" },
         ),
     }
@@ -871,7 +874,10 @@ pub fn read_signal_log(
                             (a.min(v), b.max(v))
                         });
                     spread_checked(path, name, lo, hi, || {
-                        format!("drop it with --ignore {name} or declare its range in the sheet")
+                        format!(
+                            "drop it with --ignore {} or declare its range in the sheet",
+                            shell_word(name)
+                        )
                     })?;
                     ChannelScale::observed(name, lo, hi).map_err(|m| log_error(path, &m))
                 }
