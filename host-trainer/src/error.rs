@@ -3,6 +3,7 @@
 use std::path::PathBuf;
 
 use crate::ingest::names::{not_numeric_hint, shell_word, shown};
+use crate::ingest::options::mapping_hint;
 
 /// A problem with a bench log or channel sheet. The CLI maps these to exit code 2.
 #[derive(Debug, thiserror::Error)]
@@ -180,7 +181,11 @@ pub enum InputError {
         tokens: String,
     },
     /// The label cell is a number or boolean that no stated mapping covers.
-    #[error("{path}: {at}, column '{column}': label '{value}': {hint}", column = shown(.column))]
+    #[error(
+        "{path}: {at}, column '{column}': label '{value}': {}",
+        mapping_hint(*boolean),
+        column = shown(.column)
+    )]
     UnmappedLabel {
         /// File.
         path: PathBuf,
@@ -190,8 +195,8 @@ pub enum InputError {
         column: String,
         /// The cell.
         value: String,
-        /// How to state the mapping.
-        hint: String,
+        /// Whether the label is a boolean (else a number): the mapping suggested differs.
+        boolean: bool,
     },
     /// The log holds more units than the reader keeps in memory.
     #[error("{path}: more than {max} units; split the log or raise --max-rows")]

@@ -22,7 +22,7 @@ pub mod dataset;
 mod fast;
 mod header;
 pub(crate) mod names;
-mod options;
+pub(crate) mod options;
 mod parquet;
 mod parse;
 mod read;

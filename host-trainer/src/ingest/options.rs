@@ -136,15 +136,30 @@ pub(super) fn label_of(token: &[u8], go: &[String], nogo: &[String]) -> Option<i
 /// `2.0`) no GO or NO-GO token covers, or `None` for any other cell. Which class such a value
 /// is cannot be guessed: in some exports 1 is a good unit, in others a defect.
 pub(crate) fn unmapped_label_hint(token: &[u8]) -> Option<String> {
+    unmapped_label(token).map(mapping_hint)
+}
+
+/// Whether `token` is a boolean (`Some(true)`) or a number (`Some(false)`) label, which
+/// needs a stated mapping; `None` for a word.
+pub(crate) fn unmapped_label(token: &[u8]) -> Option<bool> {
     let text = std::str::from_utf8(token).ok()?.trim();
-    let (one, zero) = if text.eq_ignore_ascii_case("true") || text.eq_ignore_ascii_case("false") {
-        ("true", "false")
+    if text.eq_ignore_ascii_case("true") || text.eq_ignore_ascii_case("false") {
+        Some(true)
     } else if text.parse::<f64>().is_ok_and(f64::is_finite) {
-        ("1", "0")
+        Some(false)
     } else {
-        return None;
+        None
+    }
+}
+
+/// How to state the mapping for boolean (`true`) or numeric (`false`) labels.
+pub(crate) fn mapping_hint(boolean: bool) -> String {
+    let (one, zero) = if boolean {
+        ("true", "false")
+    } else {
+        ("1", "0")
     };
-    Some(format!(
+    format!(
         "a numeric or boolean label needs a stated mapping: pass --go-labels {one} --nogo-labels {zero} where {one} means a good unit, or --go-labels {zero} --nogo-labels {one} where {one} means a defect (list every value the column holds)"
-    ))
+    )
 }

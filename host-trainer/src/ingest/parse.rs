@@ -6,7 +6,7 @@ use std::path::Path;
 use super::fast;
 use super::header::Columns;
 use super::names::{empty_cell_hint, shown_bytes};
-use super::options::{LogOptions, is_reading, label_of, unmapped_label_hint};
+use super::options::{LogOptions, is_reading, label_of, unmapped_label};
 use super::records::{Fields, count_lf, fields, record_ends, strip_line_end};
 use crate::error::{InputError, Place};
 use crate::ingest::scaling::ChannelScale;
@@ -293,13 +293,13 @@ pub(super) fn label_cell(
                 hint: empty_label_hint(opts),
             };
         }
-        match unmapped_label_hint(token) {
-            Some(hint) => InputError::UnmappedLabel {
+        match unmapped_label(token) {
+            Some(boolean) => InputError::UnmappedLabel {
                 path: path.into(),
                 at,
                 column: column.to_string(),
                 value: cell_text(token),
-                hint,
+                boolean,
             },
             None => InputError::UnknownLabel {
                 path: path.into(),

@@ -43,7 +43,7 @@ use crate::ingest::names::{same_name, shell_word, shown, shown_bytes, unique_nam
 use crate::ingest::options::{
     LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
 };
-use crate::ingest::parse::{label_cell, parse_number};
+use crate::ingest::parse::{empty_label_hint, label_cell, parse_number};
 use crate::ingest::read::{checked_classes, spread_checked};
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 use crate::ingest::signal_scale::SignalScale;
@@ -462,6 +462,11 @@ impl Open {
             if !(k > 0 && cell.is_empty()) {
                 let l = label_cell(cell, opts, Path::new(""), Place::Line(0), &cols.names[c])
                     .map_err(|_| match unmapped_label_hint(cell) {
+                        _ if cell.is_empty() => format!(
+                            "column '{}': the label cell is empty on the unit's first row; {}",
+                            shown(&cols.names[c]),
+                            empty_label_hint(opts)
+                        ),
                         Some(hint) => {
                             format!("column '{}': label '{}': {hint}", cols.names[c], text(cell))
                         }
