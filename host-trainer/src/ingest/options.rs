@@ -136,7 +136,7 @@ pub(super) fn label_of(token: &[u8], go: &[String], nogo: &[String]) -> Option<i
 /// `2.0`) no GO or NO-GO token covers, or `None` for any other cell. Which class such a value
 /// is cannot be guessed: in some exports 1 is a good unit, in others a defect.
 pub(crate) fn unmapped_label_hint(token: &[u8]) -> Option<String> {
-    unmapped_label(token).map(mapping_hint)
+    unmapped_label(token).map(crate::error::mapping_hint)
 }
 
 /// Whether `token` is a boolean (`Some(true)`) or a number (`Some(false)`) label, which
@@ -150,16 +150,4 @@ pub(crate) fn unmapped_label(token: &[u8]) -> Option<bool> {
     } else {
         None
     }
-}
-
-/// How to state the mapping for boolean (`true`) or numeric (`false`) labels.
-pub(crate) fn mapping_hint(boolean: bool) -> String {
-    let (one, zero) = if boolean {
-        ("true", "false")
-    } else {
-        ("1", "0")
-    };
-    format!(
-        "a numeric or boolean label needs a stated mapping: pass --go-labels {one} --nogo-labels {zero} where {one} means a good unit, or --go-labels {zero} --nogo-labels {one} where {one} means a defect (list every value the column holds)"
-    )
 }

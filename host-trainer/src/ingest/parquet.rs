@@ -31,11 +31,11 @@ use parquet::arrow::arrow_reader::{
 };
 
 use super::header::Columns;
-use super::names::{empty_cell_hint, shown as shown_text};
 use super::options::{LogOptions, is_reading, label_of};
 use super::parse::{Row, label_cell, out_of_range, parse_number, raw_readings, trim};
 use super::skip::SkipReport;
 use crate::error::{InputError, Place};
+use crate::error::{empty_cell_hint, shown as shown_text};
 use crate::ingest::scaling::ChannelScale;
 
 /// Parquet's magic, at the start and the end of every Parquet file.

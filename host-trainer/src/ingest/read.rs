@@ -6,13 +6,13 @@ use std::io::Read;
 use std::path::Path;
 
 use super::header::{Columns, read_header};
-use super::names::shell_word;
 use super::options::{LogOptions, ScaleFrom};
 use super::parse::Parsed;
 use super::records::BlockReader;
 use super::scan::scan;
 use super::skip::SkipReport;
 use crate::error::InputError;
+use crate::error::shell_word;
 use crate::ingest::dataset::Dataset;
 use crate::ingest::scaling::ChannelScale;
 

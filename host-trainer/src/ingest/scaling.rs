@@ -58,7 +58,8 @@ use std::path::Path;
 use serde::{Deserialize, Serialize};
 
 use crate::error::InputError;
-use crate::ingest::names::{name_key, same_name, shown};
+use crate::error::shown;
+use crate::ingest::names::{name_key, same_name};
 use crate::ingest::signal_scale::{FeatureSource, SignalScale};
 
 /// One channel's scaling, as stored in the float model.

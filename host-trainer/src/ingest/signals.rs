@@ -37,9 +37,10 @@ use shared_model::WindowFault;
 use shared_model::features::CheckedFeature;
 
 use crate::error::{InputError, Place};
+use crate::error::{shell_word, shown, shown_bytes};
 use crate::ingest::dataset::Dataset;
 use crate::ingest::header::{detect_delimiter, find};
-use crate::ingest::names::{same_name, shell_word, shown, shown_bytes, unique_names};
+use crate::ingest::names::{same_name, unique_names};
 use crate::ingest::options::{
     LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
 };
