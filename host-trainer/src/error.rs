@@ -39,16 +39,24 @@ pub enum InputError {
         /// File.
         path: PathBuf,
     },
-    /// The header has a name twice.
-    #[error("{path}: line 1: column name '{name}' appears twice in the header; rename one")]
+    /// The header has a name twice (names compare without regard to case).
+    #[error(
+        "{path}: line 1: columns '{first}' and '{second}' have the same name (column names compare without regard to case); rename one"
+    )]
     DuplicateHeader {
         /// File.
         path: PathBuf,
-        /// Repeated name.
-        name: String,
+        /// The name's first column, as spelled there.
+        first: String,
+        /// The column repeating it, as spelled there.
+        second: String,
     },
     /// A named column is not in the header.
-    #[error("{path}: no column '{name}' in the header (columns: {columns})")]
+    #[error(
+        "{path}: no column '{name}' in the header (columns: {columns})",
+        name = shown(.name),
+        columns = shown(.columns)
+    )]
     UnknownColumn {
         /// File.
         path: PathBuf,
@@ -82,7 +90,7 @@ pub enum InputError {
         found: usize,
     },
     /// A cell is empty.
-    #[error("{path}: {at}, column '{column}': empty cell")]
+    #[error("{path}: {at}, column '{column}': the cell is empty; {hint}", column = shown(.column))]
     Missing {
         /// File.
         path: PathBuf,
@@ -90,10 +98,14 @@ pub enum InputError {
         at: Place,
         /// Column name.
         column: String,
+        /// What to do: fill it in, leave the column out, or skip the row.
+        hint: String,
     },
     /// A cell is not a number.
     #[error(
-        "{path}: {at}, column '{column}': '{value}' is not a number (exclude the column with --ignore, or the row with --skip-bad-rows)"
+        "{path}: {at}, column '{column}': '{value}' is not a number ({})",
+        not_numeric_hint(.column),
+        column = shown(.column)
     )]
     NotNumeric {
         /// File.
@@ -106,7 +118,7 @@ pub enum InputError {
         value: String,
     },
     /// A cell is NaN, infinite, or too large to be a reading.
-    #[error("{path}: {at}, column '{column}': '{value}' is not a finite reading")]
+    #[error("{path}: {at}, column '{column}': '{value}' is not a finite reading", column = shown(.column))]
     NotFinite {
         /// File.
         path: PathBuf,
@@ -120,8 +132,7 @@ pub enum InputError {
     /// A cell holds a finite number beyond the largest reading (a Parquet integer or decimal).
     #[error(
         "{path}: {at}, column '{column}': {value} is beyond the largest reading a channel takes (magnitude 1e15){}",
-        if *inexact { "; an integer above 2^53 cannot even be represented exactly as a 64-bit float" } else { "" }
-    )]
+        if *inexact { "; an integer above 2^53 cannot even be represented exactly as a 64-bit float" } else { "" }, column = shown(.column))]
     BeyondReading {
         /// File.
         path: PathBuf,
@@ -136,8 +147,7 @@ pub enum InputError {
     },
     /// A reading is outside the channel's declared valid range.
     #[error(
-        "{path}: {at}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)"
-    )]
+        "{path}: {at}, column '{column}': {value} is outside the channel's valid range [{min}, {max}] (from the channel sheet; for a channel the sheet does not declare, the range observed in a first pass over this log, so a log that changes while it is read also ends here)", column = shown(.column))]
     OutOfRange {
         /// File.
         path: PathBuf,
@@ -154,8 +164,7 @@ pub enum InputError {
     },
     /// The label cell is not a known GO or NO-GO token.
     #[error(
-        "{path}: {at}, column '{column}': unknown label '{value}' ({tokens}; set --go-labels / --nogo-labels)"
-    )]
+        "{path}: {at}, column '{column}': unknown label '{value}' ({tokens}; set --go-labels / --nogo-labels)", column = shown(.column))]
     UnknownLabel {
         /// File.
         path: PathBuf,
@@ -167,6 +176,24 @@ pub enum InputError {
         value: String,
         /// The accepted tokens, as `GO: …; NO-GO: …`.
         tokens: String,
+    },
+    /// The label cell is a number or boolean that no stated mapping covers.
+    #[error(
+        "{path}: {at}, column '{column}': label '{value}': {}",
+        mapping_hint(*boolean),
+        column = shown(.column)
+    )]
+    UnmappedLabel {
+        /// File.
+        path: PathBuf,
+        /// The row: its line, or its Parquet row group and row.
+        at: Place,
+        /// Label column.
+        column: String,
+        /// The cell.
+        value: String,
+        /// Whether the label is a boolean (else a number): the mapping suggested differs.
+        boolean: bool,
     },
     /// The log holds more units than the reader keeps in memory.
     #[error("{path}: more than {max} units; split the log or raise --max-rows")]
@@ -234,8 +261,7 @@ pub enum InputError {
     },
     /// A channel never changes.
     #[error(
-        "{path}: channel '{column}' has zero spread (every unit reads {value}); drop it with --ignore {column} or declare its range in a channel sheet"
-    )]
+        "{path}: channel '{column}' has zero spread (every unit reads {value}), so it cannot tell units apart; {hint}", column = shown(.column))]
     ZeroSpread {
         /// File.
         path: PathBuf,
@@ -243,18 +269,24 @@ pub enum InputError {
         column: String,
         /// The constant value.
         value: f64,
+        /// Why it may be constant and what to do.
+        hint: String,
     },
     /// More channels than a model holds.
     #[error(
-        "{path}: {count} channels selected; a model holds at most {max} (choose with --channels)"
+        "{path}: {count} channels selected{detail}; a model on the device holds at most {max} ({hint})"
     )]
     TooManyChannels {
         /// File.
         path: PathBuf,
         /// Channels selected.
         count: usize,
+        /// Where they come from (a signal log's readings and features), or empty.
+        detail: String,
         /// Capacity.
         max: usize,
+        /// How to choose fewer.
+        hint: &'static str,
     },
     /// No channel selected.
     #[error(
@@ -287,8 +319,7 @@ pub enum InputError {
     },
     /// A column read as a channel holds values that are not numbers (a Parquet column's type).
     #[error(
-        "{path}: column '{column}' holds {found}, not numbers; a channel column must hold integers, floating-point or decimal numbers, or text that reads as numbers (leave it out with --ignore {column})"
-    )]
+        "{path}: column '{column}' holds {found}, not numbers; a channel column must hold integers, floating-point or decimal numbers, or text that reads as numbers (leave it out with --ignore {})", shell_word(.column), column = shown(.column))]
     ColumnType {
         /// File.
         path: PathBuf,
@@ -423,4 +454,92 @@ pub enum OutputError {
         /// Cause.
         source: std::io::Error,
     },
+}
+
+/// Characters of a name or cell echoed whole; longer ones are cut.
+const SHOWN_CHARS: usize = 80;
+
+/// `text` from a file as a message echoes it: whole up to 80 characters, else its first 80
+/// followed by `… (N bytes)`.
+pub(crate) fn shown(text: &str) -> String {
+    match text.char_indices().nth(SHOWN_CHARS) {
+        None => text.to_string(),
+        Some((cut, _)) => format!("{}… ({} bytes)", &text[..cut], text.len()),
+    }
+}
+
+/// [`shown`] for bytes, decoded lossily.
+pub(crate) fn shown_bytes(bytes: &[u8]) -> String {
+    // No more than 4 bytes a character: decode only what can be shown.
+    let head = String::from_utf8_lossy(&bytes[..bytes.len().min(4 * SHOWN_CHARS + 4)]);
+    match head.char_indices().nth(SHOWN_CHARS) {
+        None if bytes.len() <= 4 * SHOWN_CHARS + 4 => head.into_owned(),
+        None => format!("{head}… ({} bytes)", bytes.len()),
+        Some((cut, _)) => format!("{}… ({} bytes)", &head[..cut], bytes.len()),
+    }
+}
+
+/// `name` as a shell argument: as it is when it holds only characters no shell treats
+/// specially, else in single quotes (a quote inside written `'\''`), so that a hint such as
+/// `--ignore 'serial number'` pastes into a shell. A name too long to echo is cut as
+/// [`shown`] cuts it: no one pastes 100 KB.
+pub(crate) fn shell_word(name: &str) -> String {
+    if name.chars().nth(SHOWN_CHARS).is_some() {
+        return shown(name);
+    }
+    let plain = !name.is_empty()
+        && name
+            .bytes()
+            .all(|b| b.is_ascii_alphanumeric() || b"_-.,:/+=@%".contains(&b));
+    if plain {
+        name.to_string()
+    } else {
+        format!("'{}'", name.replace('\'', r"'\''"))
+    }
+}
+
+/// Whether a column name reads like a unit's id (`serial_number`, `unit`, `DUT id`), for
+/// hints: such a column holding text is more likely the unit id than a channel.
+fn looks_like_id(name: &str) -> bool {
+    let key = name.to_ascii_lowercase();
+    ["serial", "unit", "uuid", "barcode", "device"]
+        .iter()
+        .any(|w| key.contains(w))
+        || key
+            .split(|c: char| !c.is_ascii_alphanumeric())
+            .any(|part| matches!(part, "id" | "sn" | "uid" | "dut"))
+}
+
+/// What to do about a cell of channel `column` that is not a number: leave the column out,
+/// or skip the row; for an id-looking column, name it as the unit id.
+pub(crate) fn not_numeric_hint(column: &str) -> String {
+    let q = shell_word(column);
+    if looks_like_id(column) {
+        format!(
+            "if '{}' identifies the units, name it with --unit-id {q}; else exclude the column with --ignore {q}, or the row with --skip-bad-rows",
+            shown(column)
+        )
+    } else {
+        format!("exclude the column with --ignore {q}, or the row with --skip-bad-rows")
+    }
+}
+
+/// What to do about an empty cell of channel `column`.
+pub(crate) fn empty_cell_hint(column: &str) -> String {
+    format!(
+        "fill in the reading, leave the column out with --ignore {}, or skip the row with --skip-bad-rows",
+        shell_word(column)
+    )
+}
+
+/// How to state the mapping for boolean (`true`) or numeric (`false`) labels.
+pub(crate) fn mapping_hint(boolean: bool) -> String {
+    let (one, zero) = if boolean {
+        ("true", "false")
+    } else {
+        ("1", "0")
+    };
+    format!(
+        "a numeric or boolean label needs a stated mapping: pass --go-labels {one} --nogo-labels {zero} where {one} means a good unit, or --go-labels {zero} --nogo-labels {one} where {one} means a defect (list every value the column holds)"
+    )
 }

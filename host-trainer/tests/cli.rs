@@ -35,9 +35,9 @@ fn malformed_logs_give_specific_errors_exit_2_and_no_output() {
             "line 3, column 'a': '1e308' is not a finite reading",
         ),
         (
-            "empty cell",
+            "the cell is empty",
             b"a,b,label\n1,,GO\n2,1,NO-GO\n".to_vec(),
-            "line 2, column 'b': empty cell",
+            "line 2, column 'b': the cell is empty; fill in the reading",
         ),
         (
             "unknown label",
@@ -64,7 +64,7 @@ fn malformed_logs_give_specific_errors_exit_2_and_no_output() {
         (
             "duplicate header",
             b"a,a,label\n1,2,GO\n2,1,NO-GO\n".to_vec(),
-            "column name 'a' appears twice",
+            "columns 'a' and 'a' have the same name",
         ),
         ("no label column", b"a,b\n1,2\n".to_vec(), "no label column"),
         (

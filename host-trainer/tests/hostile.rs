@@ -448,4 +448,79 @@ fn model_files_with_a_key_twice_or_an_unknown_field_are_refused() {
             assert!(err.contains("line "), "{name}: the place is named: {err}");
         }
     }
+
+/// Names and cells echoed from a file are cut to a readable length: a 100 KB column name
+/// or a 200 KB line of a sheet does not fill the terminal.
+#[test]
+fn huge_names_and_sheet_lines_are_echoed_cut() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let name = "n".repeat(100_000);
+    write(
+        d,
+        "long-name.csv",
+        format!("{name},b,label\nabc,1,GO\n2,2,NO-GO\n").as_bytes(),
+    );
+    let err = exits(&linegate(&["check", "long-name.csv"], d), 2);
+    assert!(err.len() < 2_000, "{} bytes: {err:.300}", err.len());
+    assert!(
+        err.contains(&format!("column '{}… (100000 bytes)'", "n".repeat(80))),
+        "{err:.400}"
+    );
+    // An unknown --channels name lists the header, cut too.
+    let err = exits(
+        &linegate(&["check", "long-name.csv", "--channels", "zz"], d),
+        2,
+    );
+    assert!(err.len() < 2_000, "{} bytes: {err:.300}", err.len());
+    write(d, "log.csv", b"a,b,label\n1,2,GO\n2,1,NO-GO\n");
+    let sheet = format!(
+        "[[channel]]\nname = \"a\"\nmin = 0\nmax = 10\nlsb = 0.01\nunit = \"{}\n",
+        "u".repeat(200_000)
+    );
+    write(d, "long.toml", sheet.as_bytes());
+    let err = exits(
+        &linegate(&["check", "log.csv", "--sheet", "long.toml"], d),
+        2,
+    );
+    assert!(err.len() < 2_000, "{} bytes: {err:.300}", err.len());
+    assert!(
+        err.contains("long.toml") && err.contains("line 6") && err.contains("bytes)"),
+        "{err:.600}"
+    );
+}
+
+/// Hints name what to type: an id-looking column holding text is offered as the unit id as
+/// well as for --ignore; a name a shell would split is quoted; an empty cell says so.
+#[test]
+fn hints_paste_into_a_shell_and_name_every_way_out() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write(
+        d,
+        "serial.csv",
+        b"serial_number,a,label\nSN-001,1,GO\nSN-002,2,NO-GO\n",
+    );
+    let err = exits(&linegate(&["check", "serial.csv"], d), 2);
+    assert!(
+        err.contains("--unit-id serial_number") && err.contains("--ignore serial_number"),
+        "{err}"
+    );
+    write(
+        d,
+        "spaced.csv",
+        b"a,supply volts,label\n1,abc,GO\n2,3,NO-GO\n",
+    );
+    let err = exits(&linegate(&["check", "spaced.csv"], d), 2);
+    assert!(err.contains("--ignore 'supply volts'"), "{err}");
+    write(d, "flat.csv", b"a,b $x,label\n1,5,GO\n2,5,NO-GO\n");
+    let err = exits(&linegate(&["check", "flat.csv"], d), 2);
+    assert!(err.contains("--ignore 'b $x'"), "{err}");
+    write(d, "nolabel.csv", b"a,b,label\n1,5,\n2,4,NO-GO\n");
+    let err = exits(&linegate(&["check", "nolabel.csv"], d), 2);
+    assert!(
+        err.contains("line 2, column 'label': the cell is empty; a unit needs its verdict")
+            && err.contains("--skip-bad-rows"),
+        "{err}"
+    );
 }

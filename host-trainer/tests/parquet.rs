@@ -309,7 +309,7 @@ pq.write_table(pa.table({"a": pa.array(a), "v": pa.array([[1.0, 2.0]] * n),
     let cases = [
         (
             "null.parquet",
-            "row group 2, row 234 (row 1234 of the file; counted from 0), column 'b': empty cell",
+            "row group 2, row 234 (row 1234 of the file; counted from 0), column 'b': the cell is empty; fill in the reading, leave the column out with --ignore b",
         ),
         (
             "nan.parquet",
@@ -321,7 +321,7 @@ pq.write_table(pa.table({"a": pa.array(a), "v": pa.array([[1.0, 2.0]] * n),
         ),
         (
             "blank.parquet",
-            "row group 1, row 100 (row 600 of the file; counted from 0), column 's': empty cell",
+            "row group 1, row 100 (row 600 of the file; counted from 0), column 's': the cell is empty",
         ),
         (
             "label.parquet",
@@ -329,7 +329,7 @@ pq.write_table(pa.table({"a": pa.array(a), "v": pa.array([[1.0, 2.0]] * n),
         ),
         (
             "nolabel.parquet",
-            "row group 0, row 10 (row 10 of the file; counted from 0), column 'label': unknown label ''",
+            "row group 0, row 10 (row 10 of the file; counted from 0), column 'label': the cell is empty; a unit needs its verdict",
         ),
     ];
     for (file, want) in cases {
@@ -560,4 +560,71 @@ write("large.parquet", 2 * 10**15)
         "{err}"
     );
     assert!(!err.contains("exactly") && !err.contains("finite"), "{err}");
+}
+
+/// Integer and boolean label columns have no default class: refused naming the row and
+/// column and how to state the mapping, and read as stated once it is.
+#[test]
+fn integer_and_boolean_labels_need_a_stated_mapping() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let script = r#"
+import sys
+import pyarrow as pa, pyarrow.parquet as pq
+a = [float(i % 7) for i in range(40)]
+b = [float(i % 5) for i in range(40)]
+good = [x > 3 for x in a]
+pq.write_table(pa.table({"a": a, "b": b, "label": pa.array([int(g) for g in good], pa.int8())}),
+               sys.argv[1] + "/int.parquet")
+pq.write_table(pa.table({"a": a, "b": b, "label": pa.array(good, pa.bool_())}),
+               sys.argv[1] + "/bool.parquet")
+"#;
+    if !pyarrow(script, &[d]) {
+        return;
+    }
+    for (file, one, zero) in [("int.parquet", "1", "0"), ("bool.parquet", "true", "false")] {
+        let err = exits(&linegate(&["check", file], d), 2);
+        let want = format!(
+            "row group 0, row 0 (row 0 of the file; counted from 0), column 'label': label '{zero}': a numeric or boolean label needs a stated mapping: pass --go-labels {one} --nogo-labels {zero}"
+        );
+        assert!(err.contains(file) && err.contains(&want), "{file}: {err}");
+        let o = linegate(
+            &[
+                "check",
+                file,
+                "--go-labels",
+                one,
+                "--nogo-labels",
+                zero,
+                "--json",
+            ],
+            d,
+        );
+        exits(&o, 0);
+        let j: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        assert_eq!(j["units"], 40, "{file}");
+    }
+}
+
+/// Column names compare without regard to case in a Parquet schema as in a CSV header:
+/// `a` and `A` are one name twice, refused naming both.
+#[test]
+fn names_that_differ_only_in_case_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let script = r#"
+import sys
+import pyarrow as pa, pyarrow.parquet as pq
+pq.write_table(pa.table({"a": [1.0, 2.0, 3.0, 4.0], "A": [2.0, 1.0, 4.0, 3.0],
+                         "label": ["GO", "GO", "NO-GO", "NO-GO"]}), sys.argv[1] + "/case.parquet")
+"#;
+    if !pyarrow(script, &[d]) {
+        return;
+    }
+    let err = exits(&linegate(&["check", "case.parquet"], d), 2);
+    assert!(
+        err.contains("case.parquet")
+            && err.contains("columns 'a' and 'A' have the same name (column names compare without regard to case)"),
+        "{err}"
+    );
 }

@@ -21,8 +21,8 @@ import zlib
 
 # Default label column names and tokens, as the README documents them.
 LABEL_NAMES = ["label", "verdict", "result", "status"]
-GO = {"go", "pass", "ok", "good", "1", "true"}
-NOGO = {"nogo", "no-go", "no_go", "fail", "ng", "bad", "reject", "0", "false"}
+GO = {"go", "pass", "ok", "good"}
+NOGO = {"nogo", "no-go", "no_go", "fail", "ng", "bad", "reject"}
 
 problems = []
 

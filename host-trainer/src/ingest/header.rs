@@ -3,6 +3,7 @@
 
 use std::path::Path;
 
+use super::names::{same_name, unique_names};
 use super::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES};
 use super::records::{BlockReader, Fields, fields, record_ends, strip_line_end};
 use crate::error::InputError;
@@ -22,7 +23,7 @@ pub(super) struct Columns {
 }
 
 pub(super) fn find(names: &[String], wanted: &str) -> Option<usize> {
-    names.iter().position(|n| n.eq_ignore_ascii_case(wanted))
+    names.iter().position(|n| same_name(n, wanted))
 }
 
 impl Columns {
@@ -32,16 +33,7 @@ impl Columns {
         opts: &LogOptions,
         model: Option<&[ChannelScale]>,
     ) -> Result<Self, InputError> {
-        // A set, not a scan per name: a header of 100,000 columns must not take minutes.
-        let mut seen = std::collections::HashSet::with_capacity(names.len());
-        for n in &names {
-            if !seen.insert(n.as_str()) {
-                return Err(InputError::DuplicateHeader {
-                    path: path.into(),
-                    name: n.clone(),
-                });
-            }
-        }
+        unique_names(path, &names)?;
         let unknown = |name: &str| InputError::UnknownColumn {
             path: path.into(),
             name: name.to_string(),
@@ -84,10 +76,7 @@ impl Columns {
                     Some(i) != label
                         && Some(i) != unit
                         && Some(i) != time
-                        && !opts
-                            .ignore
-                            .iter()
-                            .any(|n| n.eq_ignore_ascii_case(&names[i]))
+                        && !opts.ignore.iter().any(|n| same_name(n, &names[i]))
                 })
                 .collect::<Vec<_>>(),
         };
@@ -98,7 +87,9 @@ impl Columns {
             return Err(InputError::TooManyChannels {
                 path: path.into(),
                 count: channels.len(),
+                detail: String::new(),
                 max: shared_model::MAX_CHANNELS,
+                hint: "choose with --channels",
             });
         }
         let width = names.len();

@@ -21,7 +21,8 @@
 pub mod dataset;
 mod fast;
 mod header;
-mod options;
+pub(crate) mod names;
+pub(crate) mod options;
 mod parquet;
 mod parse;
 mod read;

@@ -10,12 +10,11 @@ pub(super) fn is_reading(x: f64) -> bool {
     x.is_finite() && x.abs() <= MAX_READING
 }
 
-/// Default GO tokens.
-pub const GO_TOKENS: &[&str] = &["go", "pass", "ok", "good", "1", "true"];
-/// Default NO-GO tokens.
-pub const NOGO_TOKENS: &[&str] = &[
-    "nogo", "no-go", "no_go", "fail", "ng", "bad", "reject", "0", "false",
-];
+/// Default GO tokens. No number or boolean: whether `1` means a good unit or a defect
+/// differs from export to export, so it must be stated (`--go-labels 1 --nogo-labels 0`).
+pub const GO_TOKENS: &[&str] = &["go", "pass", "ok", "good"];
+/// Default NO-GO tokens (words only, as [`GO_TOKENS`]).
+pub const NOGO_TOKENS: &[&str] = &["nogo", "no-go", "no_go", "fail", "ng", "bad", "reject"];
 /// Label column names looked for when none is given.
 pub const LABEL_NAMES: &[&str] = &["label", "verdict", "result", "status"];
 /// Unit-id column names looked for when none is given.
@@ -128,6 +127,26 @@ pub(super) fn label_of(token: &[u8], go: &[String], nogo: &[String]) -> Option<i
         Some(1)
     } else if is(nogo) {
         Some(-1)
+    } else {
+        None
+    }
+}
+
+/// How to state a mapping for a label cell that is a number or a boolean (`1`, `0`, `true`,
+/// `2.0`) no GO or NO-GO token covers, or `None` for any other cell. Which class such a value
+/// is cannot be guessed: in some exports 1 is a good unit, in others a defect.
+pub(crate) fn unmapped_label_hint(token: &[u8]) -> Option<String> {
+    unmapped_label(token).map(crate::error::mapping_hint)
+}
+
+/// Whether `token` is a boolean (`Some(true)`) or a number (`Some(false)`) label, which
+/// needs a stated mapping; `None` for a word.
+pub(crate) fn unmapped_label(token: &[u8]) -> Option<bool> {
+    let text = std::str::from_utf8(token).ok()?.trim();
+    if text.eq_ignore_ascii_case("true") || text.eq_ignore_ascii_case("false") {
+        Some(true)
+    } else if text.parse::<f64>().is_ok_and(f64::is_finite) {
+        Some(false)
     } else {
         None
     }

@@ -35,6 +35,7 @@ use super::options::{LogOptions, is_reading, label_of};
 use super::parse::{Row, label_cell, out_of_range, parse_number, raw_readings, trim};
 use super::skip::SkipReport;
 use crate::error::{InputError, Place};
+use crate::error::{empty_cell_hint, shown as shown_text};
 use crate::ingest::scaling::ChannelScale;
 
 /// Parquet's magic, at the start and the end of every Parquet file.
@@ -294,9 +295,15 @@ impl Plan<'_> {
         let shown = arrow_cast::display::ArrayFormatter::try_new(a.as_ref(), &Default::default())
             .map(|f| f.value(i).to_string())
             .unwrap_or_default();
-        let value: String = shown.trim().chars().take(40).collect();
+        let value = shown_text(shown.trim());
         if blank(a, i, kind) {
-            return InputError::Missing { path, at, column };
+            let hint = empty_cell_hint(&column);
+            return InputError::Missing {
+                path,
+                at,
+                column,
+                hint,
+            };
         }
         if matches!(kind, Numbers::Text)
             && parse_number(value.as_bytes(), self.decimal_comma).is_none()

@@ -5,9 +5,10 @@ use std::path::Path;
 
 use super::fast;
 use super::header::Columns;
-use super::options::{LogOptions, is_reading, label_of};
+use super::options::{LogOptions, is_reading, label_of, unmapped_label};
 use super::records::{Fields, count_lf, fields, record_ends, strip_line_end};
 use crate::error::{InputError, Place};
+use crate::error::{empty_cell_hint, shown_bytes};
 use crate::ingest::scaling::ChannelScale;
 
 /// What the parser needs to know to turn a record into a row.
@@ -103,6 +104,7 @@ impl Parser<'_> {
                     path: path.into(),
                     at: line.into(),
                     column: column(),
+                    hint: empty_cell_hint(&cols.names[c]),
                 });
             }
             // fast-float2 parses the bytes directly (no UTF-8 pass) and accepts exactly a whole
@@ -268,9 +270,9 @@ impl Parser<'_> {
     }
 }
 
-/// A cell as error messages show it: its first 40 bytes, lossily decoded.
+/// A cell as error messages show it: cut to a readable length, lossily decoded.
 pub(super) fn cell_text(f: &[u8]) -> String {
-    String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned()
+    shown_bytes(f)
 }
 
 /// The label `token` (trimmed) of the label column `column` stands for, or the error naming
@@ -282,13 +284,40 @@ pub(super) fn label_cell(
     at: Place,
     column: &str,
 ) -> Result<i8, InputError> {
-    label_of(token, &opts.go_labels, &opts.nogo_labels).ok_or_else(|| InputError::UnknownLabel {
-        path: path.into(),
-        at,
-        column: column.to_string(),
-        value: cell_text(token),
-        tokens: opts.tokens(),
+    label_of(token, &opts.go_labels, &opts.nogo_labels).ok_or_else(|| {
+        if token.is_empty() {
+            return InputError::Missing {
+                path: path.into(),
+                at,
+                column: column.to_string(),
+                hint: empty_label_hint(opts),
+            };
+        }
+        match unmapped_label(token) {
+            Some(boolean) => InputError::UnmappedLabel {
+                path: path.into(),
+                at,
+                column: column.to_string(),
+                value: cell_text(token),
+                boolean,
+            },
+            None => InputError::UnknownLabel {
+                path: path.into(),
+                at,
+                column: column.to_string(),
+                value: cell_text(token),
+                tokens: opts.tokens(),
+            },
+        }
     })
+}
+
+/// What to do about an empty label cell.
+pub(super) fn empty_label_hint(opts: &LogOptions) -> String {
+    format!(
+        "a unit needs its verdict: fill in a label ({}), or skip the row with --skip-bad-rows",
+        opts.tokens()
+    )
 }
 
 /// Converts readings to raw integers; a reading outside its channel's range is refused

@@ -12,6 +12,7 @@ use super::records::BlockReader;
 use super::scan::scan;
 use super::skip::SkipReport;
 use crate::error::InputError;
+use crate::error::shell_word;
 use crate::ingest::dataset::Dataset;
 use crate::ingest::scaling::ChannelScale;
 
@@ -193,13 +194,12 @@ pub(super) fn read_log_keeping(
                 }),
                 None => {
                     let (lo, hi) = ranges.get(i).copied().unwrap_or((0.0, 0.0));
-                    if lo == hi {
-                        return Err(InputError::ZeroSpread {
-                            path: path.into(),
-                            column: n.clone(),
-                            value: lo,
-                        });
-                    }
+                    spread_checked(path, n, lo, hi, || {
+                        format!(
+                            "drop it with --ignore {} or declare its range in a channel sheet",
+                            shell_word(n)
+                        )
+                    })?;
                     ChannelScale::observed(n, lo, hi).map_err(|message| InputError::Sheet {
                         path: path.into(),
                         message,
@@ -315,8 +315,34 @@ fn convert_kept(kept: Kept, scales: &[ChannelScale]) -> Option<Dataset> {
     Some(rows)
 }
 
-/// `ds`, unless it is empty or, for training (no model), holds one class only.
-fn checked_classes(path: &Path, ds: Dataset, for_model: bool) -> Result<Dataset, InputError> {
+/// Refuses channel `column` whose every unit reads the same (`lo == hi`): the one rule for
+/// plain channels and a signal log's readings and features. `hint` says why it may be
+/// constant and what to do.
+pub(super) fn spread_checked(
+    path: &Path,
+    column: &str,
+    lo: f64,
+    hi: f64,
+    hint: impl FnOnce() -> String,
+) -> Result<(), InputError> {
+    if lo == hi {
+        return Err(InputError::ZeroSpread {
+            path: path.into(),
+            column: column.to_string(),
+            value: lo,
+            hint: hint(),
+        });
+    }
+    Ok(())
+}
+
+/// `ds`, unless it is empty or, for training (no model), holds one class only: the one
+/// rule for plain, Parquet and signal logs.
+pub(super) fn checked_classes(
+    path: &Path,
+    ds: Dataset,
+    for_model: bool,
+) -> Result<Dataset, InputError> {
     if ds.is_empty() {
         return Err(no_rows(path, &ds.skipped));
     }

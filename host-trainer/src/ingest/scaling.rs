@@ -58,6 +58,8 @@ use std::path::Path;
 use serde::{Deserialize, Serialize};
 
 use crate::error::InputError;
+use crate::error::shown;
+use crate::ingest::names::{name_key, same_name};
 use crate::ingest::signal_scale::{FeatureSource, SignalScale};
 
 /// One channel's scaling, as stored in the float model.
@@ -500,7 +502,7 @@ impl ChannelSheet {
     /// A message naming the line or channel at fault.
     pub fn parse(text: &str) -> Result<Self, String> {
         let file: SheetFile =
-            toml::from_str(text).map_err(|e| e.to_string().trim_end().to_string())?;
+            toml::from_str(text).map_err(|e: toml::de::Error| toml_error(text, &e))?;
         if file.channel.is_empty() && file.signal.is_empty() {
             return Err(
                 "the sheet declares no [[channel]] and no [[signal]]; declare at least one".into(),
@@ -512,7 +514,7 @@ impl ChannelSheet {
         // share one set: each name means one thing in the log, the model and the reports.
         let mut seen = std::collections::HashSet::new();
         let mut fresh = |name: &str, what: &str| {
-            if seen.insert(name.to_ascii_lowercase()) {
+            if seen.insert(name_key(name)) {
                 Ok(())
             } else {
                 Err(format!(
@@ -562,7 +564,7 @@ impl ChannelSheet {
             let at = |m: String| format!("feature '{}': {m}", f.name.escape_debug());
             let signal = signals
                 .iter()
-                .find(|s| s.name.eq_ignore_ascii_case(&f.signal))
+                .find(|s| same_name(&s.name, &f.signal))
                 .ok_or_else(|| at(format!("no [[signal]] named '{}'", f.signal.escape_debug())))?;
             let cycles = match (f.cycles, f.frequency, signal.sample_rate) {
                 (Some(_), Some(_), _) => {
@@ -600,10 +602,26 @@ impl ChannelSheet {
     /// The declared scaling of a channel, matched as log columns are (ASCII
     /// case-insensitively).
     pub fn get(&self, name: &str) -> Option<&ChannelScale> {
-        self.channels
-            .iter()
-            .find(|c| c.name.eq_ignore_ascii_case(name))
+        self.channels.iter().find(|c| same_name(&c.name, name))
     }
+}
+
+/// A TOML error as a message: its line and column and the line itself cut to a readable
+/// length (the parser's own text echoes the whole line, however long).
+fn toml_error(text: &str, e: &toml::de::Error) -> String {
+    let message = e.message().trim_end();
+    let Some(span) = e.span() else {
+        return message.to_string();
+    };
+    let at = span.start.min(text.len());
+    let start = text[..at].rfind('\n').map_or(0, |k| k + 1);
+    let end = text[at..].find('\n').map_or(text.len(), |k| at + k);
+    let line = text[..start].matches('\n').count() + 1;
+    let column = text[start..at].chars().count() + 1;
+    format!(
+        "TOML parse error at line {line}, column {column}: {message} (the line: {})",
+        shown(text[start..end].trim_end())
+    )
 }
 
 /// `x.round()` (halves away from zero) up to the sign of a zero result, without the call to

@@ -37,10 +37,15 @@ use shared_model::WindowFault;
 use shared_model::features::CheckedFeature;
 
 use crate::error::{InputError, Place};
+use crate::error::{shell_word, shown, shown_bytes};
 use crate::ingest::dataset::Dataset;
 use crate::ingest::header::{detect_delimiter, find};
-use crate::ingest::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading};
-use crate::ingest::parse::{label_cell, parse_number};
+use crate::ingest::names::{same_name, unique_names};
+use crate::ingest::options::{
+    LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
+};
+use crate::ingest::parse::{empty_label_hint, label_cell, parse_number};
+use crate::ingest::read::{checked_classes, spread_checked};
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 use crate::ingest::signal_scale::SignalScale;
 use crate::ingest::signal_source::{Hashing, csv_error, read_error};
@@ -201,6 +206,7 @@ pub fn stream_signal_units(
                 path: path.into(),
                 at: Place::Line(line),
                 column: names[cols.unit].clone(),
+                hint: "every row of a signal log needs its unit's id; fill it in, or skip the unit with --skip-bad-rows".into(),
             });
         }
         if !any || id != open.id.as_str() {
@@ -379,7 +385,7 @@ impl Open {
                 "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?{TRAINING_REFUSES}"
             ));
         }
-        let text = |f: &[u8]| String::from_utf8_lossy(&f[..f.len().min(40)]).into_owned();
+        let text = shown_bytes;
         if let Some(c) = cols.sample {
             let cell = record[c].trim_ascii();
             let v = std::str::from_utf8(cell)
@@ -456,13 +462,21 @@ impl Open {
             let cell = record[c].trim_ascii();
             if !(k > 0 && cell.is_empty()) {
                 let l = label_cell(cell, opts, Path::new(""), Place::Line(0), &cols.names[c])
-                    .map_err(|_| {
-                        format!(
+                    .map_err(|_| match unmapped_label_hint(cell) {
+                        _ if cell.is_empty() => format!(
+                            "column '{}': the label cell is empty on the unit's first row; {}",
+                            shown(&cols.names[c]),
+                            empty_label_hint(opts)
+                        ),
+                        Some(hint) => {
+                            format!("column '{}': label '{}': {hint}", cols.names[c], text(cell))
+                        }
+                        None => format!(
                             "column '{}': unknown label '{}' ({}; set --go-labels / --nogo-labels)",
                             cols.names[c],
                             text(cell),
                             opts.tokens()
-                        )
+                        ),
                     })?;
                 match self.label {
                     Some(prev) if prev != l => {
@@ -517,6 +531,9 @@ pub enum ReadFor<'a> {
     Training {
         /// The reading channels the sheet declares.
         declared: &'a [String],
+        /// The feature channels the sheet declares, counted with the readings against the
+        /// device's capacity as soon as the header is read.
+        features: usize,
     },
     /// Evaluation by a model (holdout, audit, replay): its reading channels, every other
     /// column passed over. A window shorter or longer than its signal's is handed on as it
@@ -546,15 +563,7 @@ impl Columns {
         signals: &[SignalScale],
         read_for: &ReadFor<'_>,
     ) -> Result<Self, InputError> {
-        let mut seen = std::collections::HashSet::with_capacity(names.len());
-        for n in names {
-            if !seen.insert(n.to_ascii_lowercase()) {
-                return Err(InputError::DuplicateHeader {
-                    path: path.into(),
-                    name: n.clone(),
-                });
-            }
-        }
+        unique_names(path, names)?;
         let unknown = |name: &str| InputError::UnknownColumn {
             path: path.into(),
             name: name.to_string(),
@@ -592,9 +601,9 @@ impl Columns {
                 || Some(i) == time
                 || signals.contains(&i)
         };
-        let (wanted, declared) = match *read_for {
-            ReadFor::Model { readings } => (Some(readings.to_vec()), &[][..]),
-            ReadFor::Training { declared } => (opts.channels.clone(), declared),
+        let (wanted, declared, features) = match *read_for {
+            ReadFor::Model { readings } => (Some(readings.to_vec()), &[][..], 0),
+            ReadFor::Training { declared, features } => (opts.channels.clone(), declared, features),
         };
         let readings = match wanted {
             Some(list) => list
@@ -606,12 +615,9 @@ impl Columns {
                     .filter(|&i| {
                         !taken(i)
                             && !names[i].is_empty()
-                            && !opts
-                                .ignore
-                                .iter()
-                                .any(|g| g.eq_ignore_ascii_case(&names[i]))
+                            && !opts.ignore.iter().any(|g| same_name(g, &names[i]))
                     })
-                    .partition(|&i| declared.iter().any(|d| d.eq_ignore_ascii_case(&names[i])));
+                    .partition(|&i| declared.iter().any(|d| same_name(d, &names[i])));
                 if !other.is_empty() {
                     let role = |what: &str, c: Option<usize>| {
                         c.map(|c| format!(", {what} '{}'", names[c]))
@@ -641,6 +647,19 @@ impl Columns {
                 ),
             });
         }
+        let count = readings.len() + features;
+        if count > shared_model::MAX_CHANNELS {
+            return Err(InputError::TooManyChannels {
+                path: path.into(),
+                count,
+                detail: format!(
+                    " ({} reading columns and {features} features of the sheet)",
+                    readings.len()
+                ),
+                max: shared_model::MAX_CHANNELS,
+                hint: "declare fewer [[feature]] entries, or choose the readings with --channels",
+            });
+        }
         Ok(Self {
             names: names.to_vec(),
             unit,
@@ -659,7 +678,7 @@ impl Columns {
 /// within the unit, or enter the model unannounced. `recognised` lists the columns taken by
 /// role, so that a timestamp taken (or not taken) by its name is seen.
 fn undeclared_columns(path: &Path, columns: Vec<&str>, recognised: String) -> InputError {
-    let quoted: Vec<String> = columns.iter().map(|c| format!("'{c}'")).collect();
+    let quoted: Vec<String> = columns.iter().map(|c| format!("'{}'", shown(c))).collect();
     let like_time: Vec<&str> = columns
         .iter()
         .copied()
@@ -670,7 +689,9 @@ fn undeclared_columns(path: &Path, columns: Vec<&str>, recognised: String) -> In
         .collect();
     let time_hint = match like_time.first() {
         Some(t) => format!(
-            "; if '{t}' is the timestamp, name it with --timestamp {t} (by name only {} are taken)",
+            "; if '{}' is the timestamp, name it with --timestamp {} (by name only {} are taken)",
+            shown(t),
+            shell_word(t),
             TIME_NAMES.join(", ")
         ),
         None => String::new(),
@@ -683,7 +704,7 @@ fn undeclared_columns(path: &Path, columns: Vec<&str>, recognised: String) -> In
             quoted.join(", "),
             if columns.len() == 1 { "is" } else { "are" },
             if columns.len() == 1 { "it" } else { "them" },
-            columns.join(","),
+            shell_word(&columns.join(",")),
             if columns.len() == 1 { "it" } else { "them" },
         ),
     }
@@ -784,6 +805,8 @@ pub fn read_signal_log(
     let (mut ids, mut times) = (Vec::<String>::new(), Vec::<String>::new());
     let mut unit_rows = Vec::new();
     let mut row = Vec::with_capacity(computed.len());
+    // Each signal's lowest and highest raw sample, to say why a feature may be constant.
+    let mut sample_ranges = vec![(i32::MAX, i32::MIN); signals.len()];
     // A log read for a model keeps the units the device refuses, as FAULT units.
     let keep_faults = model.is_some();
     let header = stream_signal_units(
@@ -797,6 +820,7 @@ pub fn read_signal_log(
         } else {
             ReadFor::Training {
                 declared: &reading_names,
+                features: computed.len(),
             }
         },
         &mut skipped,
@@ -819,6 +843,11 @@ pub fn read_signal_log(
                     }
                     (Err(e), false) => return Err(window_error(path, u, &signals[j], e)),
                 });
+            }
+            for (r, w) in sample_ranges.iter_mut().zip(u.windows.iter()) {
+                for &x in w {
+                    *r = (r.0.min(x), r.1.max(x));
+                }
             }
             values.extend_from_slice(&row);
             physical.extend_from_slice(u.readings);
@@ -850,6 +879,12 @@ pub fn read_signal_log(
                         .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
                             (a.min(v), b.max(v))
                         });
+                    spread_checked(path, name, lo, hi, || {
+                        format!(
+                            "drop it with --ignore {} or declare its range in the sheet",
+                            shell_word(name)
+                        )
+                    })?;
                     ChannelScale::observed(name, lo, hi).map_err(|m| log_error(path, &m))
                 }
             })
@@ -907,17 +942,53 @@ pub fn read_signal_log(
         }
     }
     ds.skipped = skipped;
-    if ds.is_empty() {
-        return Err(InputError::NoRows {
-            path: path.into(),
-            skipped: if ds.skipped.total > 0 {
-                format!(" ({} skipped as bad)", ds.skipped.counted())
-            } else {
-                String::new()
-            },
-        });
+    if !keep_faults && !ds.is_empty() {
+        constant_features(path, &ds, &computed, signals, &sample_ranges)?;
     }
-    Ok(ds)
+    // The rule a plain log follows: no units, or one class for training, is refused.
+    checked_classes(path, ds, keep_faults)
+}
+
+/// Refuses a feature channel whose every unit of a training log has the same value, as a
+/// constant plain channel is refused; the message says whether its signal's samples were
+/// all one count (an lsb far too large, a stuck sensor) or the feature alone is constant.
+fn constant_features(
+    path: &Path,
+    ds: &Dataset,
+    computed: &[(usize, CheckedFeature)],
+    signals: &[SignalScale],
+    sample_ranges: &[(i32, i32)],
+) -> Result<(), InputError> {
+    let d = ds.dim();
+    let mut features = computed.iter();
+    for (k, c) in ds.scales.iter().enumerate() {
+        let Some(src) = &c.source else { continue };
+        let Some(&(j, _)) = features.next() else {
+            break;
+        };
+        let (lo, hi) = ds
+            .raw
+            .iter()
+            .skip(k)
+            .step_by(d.max(1))
+            .fold((i32::MAX, i32::MIN), |(a, b), &v| (a.min(v), b.max(v)));
+        let s = &signals[j];
+        spread_checked(path, &c.name, c.physical(lo), c.physical(hi), || {
+            let (slo, shi) = sample_ranges.get(j).copied().unwrap_or((0, 0));
+            if slo == shi {
+                format!(
+                    "it is computed from signal '{}', and every sample of that signal in this log is the raw count {slo} (lsb {:e}, zero {}): check the signal's lsb and zero in the sheet (an lsb far larger than the readings makes every sample one count), or remove the [[feature]]",
+                    src.signal, s.lsb, s.zero
+                )
+            } else {
+                format!(
+                    "it is computed from signal '{}', whose samples vary, but this feature is the same for every unit: remove the [[feature]] from the sheet",
+                    src.signal
+                )
+            }
+        })?;
+    }
+    Ok(())
 }
 
 /// A count outside channel `c`'s valid range, which the kernel refuses (FAULT) on that
