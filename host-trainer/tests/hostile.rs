@@ -448,6 +448,7 @@ fn model_files_with_a_key_twice_or_an_unknown_field_are_refused() {
             assert!(err.contains("line "), "{name}: the place is named: {err}");
         }
     }
+}
 
 /// Names and cells echoed from a file are cut to a readable length: a 100 KB column name
 /// or a 200 KB line of a sheet does not fill the terminal.
