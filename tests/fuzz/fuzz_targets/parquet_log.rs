@@ -1,0 +1,55 @@
+//! Any bytes as a Parquet bench log, read as the CLI reads a log file: `read_log` (check,
+//! train) and `stream_units` (a trained model's scaling over a log of any length). Input that
+//! does not start with Parquet's magic gets it put in front, so every input reaches the
+//! Parquet reader. Never a panic; an accepted file reads the same twice, and streaming it
+//! with its own scaling gives the units `read_log` gave.
+#![no_main]
+
+use host_trainer::ingest::{LogOptions, ScaleFrom, SkipReport, read_log, stream_units};
+use libfuzzer_sys::fuzz_target;
+
+fuzz_target!(|data: &[u8]| {
+    let dir = std::env::temp_dir().join(format!("linegate-fuzz-parquet-{}", std::process::id()));
+    let _ = std::fs::create_dir_all(&dir);
+    let path = dir.join("log.parquet");
+    let bytes = if data.starts_with(b"PAR1") {
+        data.to_vec()
+    } else {
+        [b"PAR1", data].concat()
+    };
+    if std::fs::write(&path, &bytes).is_err() {
+        return;
+    }
+    for skip in [false, true] {
+        let opts = LogOptions {
+            skip_bad_rows: skip,
+            ..LogOptions::default()
+        };
+        let read = || {
+            read_log(&path, &opts, ScaleFrom::Observed)
+                .map(|ds| format!("{ds:?}"))
+                .map_err(|e| e.to_string())
+        };
+        let first = read();
+        assert_eq!(first, read(), "a second read differs");
+        let Ok(ds) = read_log(&path, &opts, ScaleFrom::Observed) else {
+            continue;
+        };
+        assert!(!ds.is_empty());
+        assert_eq!(ds.raw.len(), ds.len() * ds.dim());
+        // The model's view: the same file streamed with the scaling it was read with.
+        let mut skipped = SkipReport::default();
+        let mut units = Vec::new();
+        let streamed = stream_units(&path, &opts, &ds.scales, &mut skipped, |u| {
+            assert_eq!(u.raw.len(), ds.dim());
+            units.push((u.line, u.label, u.raw.to_vec()));
+            Ok(())
+        });
+        let streamed = streamed.expect("an accepted file streams with its own scaling");
+        assert_eq!(streamed, ds.sha256);
+        let read: Vec<_> = (0..ds.len())
+            .map(|i| (ds.lines[i], ds.labels[i], ds.raw_row(i).to_vec()))
+            .collect();
+        assert_eq!(units, read);
+    }
+});
