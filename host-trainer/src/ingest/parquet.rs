@@ -389,6 +389,9 @@ impl Slices<'_> {
                 self.done_rows = 0;
             }
             let declared = plan.group_starts[g + 1] - plan.group_starts[g];
+            // Every column's result first, then the first error in column order: a parallel
+            // collect into a Result keeps whichever error came first in time, so two reads
+            // of one damaged file could name different columns.
             let batches: Vec<Option<ArrayRef>> = self
                 .readers
                 .par_iter_mut()
@@ -399,6 +402,8 @@ impl Slices<'_> {
                         .map(|b| b.map(|b| b.column(0).clone()))
                         .map_err(|e| plan.column_error(g, c, e))
                 })
+                .collect::<Vec<_>>()
+                .into_iter()
                 .collect::<Result<_, _>>()?;
             let lens: Vec<Option<usize>> = batches
                 .iter()
@@ -439,6 +444,8 @@ impl Slices<'_> {
                     Some(a) => plan.convert(c, a, g),
                     None => Err(plan.group_error(g, "a column ended before the others")),
                 })
+                .collect::<Vec<_>>()
+                .into_iter()
                 .collect::<Result<_, _>>()?;
             return Ok(Some(Slice {
                 group: g,
