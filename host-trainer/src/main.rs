@@ -12,6 +12,18 @@ use std::process::ExitCode;
 use clap::Parser;
 
 fn main() -> ExitCode {
+    // The parquet crate can panic on a damaged page; the reader catches that and reports
+    // the file, row group and column as a damaged file, so the crate's own panic message
+    // would only read as a crash. Every other panic is reported as before.
+    let report = std::panic::take_hook();
+    std::panic::set_hook(Box::new(move |info| {
+        if !info
+            .location()
+            .is_some_and(|l| l.file().contains("/parquet-"))
+        {
+            report(info);
+        }
+    }));
     let cli = cli::Cli::parse();
     match cli::run(&cli) {
         Ok(()) => ExitCode::SUCCESS,

@@ -397,7 +397,16 @@ impl Slices<'_> {
                 .par_iter_mut()
                 .zip(&plan.used)
                 .map(|(r, &c)| {
-                    r.next()
+                    // The parquet crate can panic on a damaged page (an `expect` on a
+                    // dictionary the page never set): that is a damaged file, not a crash.
+                    // The reader is dropped with the error, so its state after the panic
+                    // is never used again.
+                    std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| r.next()))
+                        .unwrap_or_else(|_| {
+                            Some(Err(arrow_schema::ArrowError::ParquetError(
+                                "a page the reader cannot decode (the file is damaged)".into(),
+                            )))
+                        })
                         .transpose()
                         .map(|b| b.map(|b| b.column(0).clone()))
                         .map_err(|e| plan.column_error(g, c, e))
