@@ -68,12 +68,7 @@ impl OutputSet {
         path: impl Into<PathBuf>,
         bytes: impl Into<Vec<u8>>,
     ) {
-        self.files.push(Entry {
-            path: path.into(),
-            role: role.into(),
-            body: Body::Bytes(bytes.into()),
-            private: false,
-        });
+        self.push_bytes(role.into(), path.into(), bytes.into(), false);
     }
 
     /// Queues a file only its owner may read (mode 0600 whatever the umask, from its
@@ -84,11 +79,16 @@ impl OutputSet {
         path: impl Into<PathBuf>,
         bytes: impl Into<Vec<u8>>,
     ) {
+        self.push_bytes(role.into(), path.into(), bytes.into(), true);
+    }
+
+    /// Queues bytes to write, readable by others or by the owner only.
+    fn push_bytes(&mut self, role: String, path: PathBuf, bytes: Vec<u8>, private: bool) {
         self.files.push(Entry {
-            path: path.into(),
-            role: role.into(),
-            body: Body::Bytes(bytes.into()),
-            private: true,
+            path,
+            role,
+            body: Body::Bytes(bytes),
+            private,
         });
     }
 
