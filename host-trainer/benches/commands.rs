@@ -10,7 +10,7 @@
 //!   and alternated with Linegate's run (`whole.py`): `check` against polars reading the CSV
 //!   alone (goal ≥ 3× faster; `check --novikoff` beside it, for the figures it adds),
 //!   `train --trainer perceptron` against pandas + scikit-learn's
-//!   Perceptron (goal ≥ 6×), `train --trainer max-margin` against liblinear's hinge-loss
+//!   Perceptron (goal ≥ 6×), `train --trainer hard-margin` against liblinear's hinge-loss
 //!   SVM at C = 1000 (goal ≥ 5×; both margins printed, Linegate's certified);
 //! - `audit` as a whole command: units per second (goal ≥ 3 million on 5,000,000 × 16) and
 //!   peak memory against the readings as f32 (goal ≤ 2×), from GNU time.
@@ -166,7 +166,7 @@ fn against_references(bin: &Path, root: &Path, log: &str, sheet: &str, rows: usi
         ),
         None => skipped("train perceptron against scikit-learn"),
     }
-    match pair(&train("max-margin"), &theirs("liblinear"), runs) {
+    match pair(&train("hard-margin"), &theirs("liblinear"), runs) {
         Some((a, b, out)) => {
             let check = Command::new(bin)
                 .args(["-q", "check", log, "--sheet", sheet, "--json"])
@@ -174,13 +174,13 @@ fn against_references(bin: &Path, root: &Path, log: &str, sheet: &str, rows: usi
                 .unwrap();
             let j: serde_json::Value = serde_json::from_slice(&check.stdout).unwrap();
             println!(
-                "{rows} x 16: linegate train --trainer max-margin {a:.2} s (certified margin {}), liblinear -s 3 -c 1000 {b:.2} s ({}): {:.2}x faster (goal >= 5x)",
+                "{rows} x 16: linegate train --trainer hard-margin {a:.2} s (certified margin {}), liblinear -s 3 -c 1000 {b:.2} s ({}): {:.2}x faster (goal >= 5x)",
                 j["margin"],
                 out.trim(),
                 b / a
             );
         }
-        None => skipped("train max-margin against liblinear"),
+        None => skipped("train hard-margin against liblinear"),
     }
 }
 
@@ -258,7 +258,7 @@ fn main() {
             "{rows} x 16: train default {td:.2} s / train --folds 0 {t0:.2} s = {:.2}x (goal <= 3x)",
             td / t0
         );
-        // The model trained just above (max-margin, no folds) is the one audited.
+        // The model trained just above (hard-margin, no folds) is the one audited.
         audit_rate(&bin, o, l, rows);
         against_references(&bin, root, l, s, rows);
         let cs = time(&bin, &["-q", "check", l, "--sheet", s], runs);

@@ -76,10 +76,12 @@ fn main() {
             sha256: ds.sha256.clone(),
         },
         channel_sheet: None,
-        trainer: "max-margin".into(),
+        trainer: "hard-margin".into(),
         seed: 1,
         epochs: 50,
         c: None,
+        c_choice: None,
+        class_weight: None,
         max_false_go: None,
         holdout_split: None,
     };
@@ -93,6 +95,7 @@ fn main() {
         updates: None,
         threshold_shift: None,
         skipped: Default::default(),
+        soft_margin: None,
     };
     let fm = host_trainer::train::float_model::FloatModel::new(
         prov,

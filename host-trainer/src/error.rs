@@ -259,6 +259,24 @@ pub enum InputError {
         /// What the trainer produced.
         detail: String,
     },
+    /// The hard margin was asked for on a log that no hyperplane separates.
+    #[error(
+        "{path}: --trainer hard-margin needs a log that a hyperplane separates, and this one is not ({detail}); use --trainer max-margin (the soft margin, C chosen by cross-validation), or run `linegate check` to see the units in conflict"
+    )]
+    NotSeparable {
+        /// The training log.
+        path: PathBuf,
+        /// How the verdict was reached.
+        detail: String,
+    },
+    /// The operating point's target cannot be met on the held-out units.
+    #[error("{path}: no operating point: {detail}")]
+    NoOperatingPoint {
+        /// The training log.
+        path: PathBuf,
+        /// Why.
+        detail: String,
+    },
     /// A channel never changes.
     #[error(
         "{path}: channel '{column}' has zero spread (every unit reads {value}), so it cannot tell units apart; {hint}", column = shown(.column))]

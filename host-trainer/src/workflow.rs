@@ -11,11 +11,15 @@ use crate::ingest::dataset::Dataset;
 use crate::ingest::scaling::ChannelSheet;
 use crate::ingest::signals::{SignalChannels, read_signal_log};
 use crate::ingest::{LogOptions, ScaleFrom, read_log};
+use crate::train::c_choice::{CChoice, CPolicy, DEFAULT_C, choose_c, search_sample};
 use crate::train::eval::{
-    Counts, EvalRow, TrainConfig, Trained, TrainerKind, cross_validate, evaluate, train,
+    Counts, EvalRow, HeldOut, TrainConfig, Trained, TrainerKind, cross_validate, evaluate,
+    held_out, train,
 };
-use crate::train::float_model::{FloatModel, InputFile, Provenance, TrainingSummary};
+use crate::train::float_model::{FloatModel, InputFile, Provenance, SoftMargin, TrainingSummary};
 use crate::train::linear::threshold_for_false_go;
+use crate::train::maxmargin::ClassWeight;
+use crate::train::operating_point::{self, Target};
 use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 use crate::train::separability::{Figures, SeparabilityReport, check_with};
 
@@ -83,14 +87,25 @@ pub struct TrainRequest {
     pub epochs: u32,
     /// Seed.
     pub seed: u64,
-    /// Soft-margin penalty when not separable.
-    pub c: f64,
-    /// Asymmetric risk: at most this many NO-GO training units may pass.
+    /// The maximum-margin trainer's penalty C: searched by cross-validation or given.
+    pub c: CPolicy,
+    /// Multipliers of C per class.
+    pub class_weight: ClassWeight,
+    /// What a false GO costs against a false NO-GO, in the search for C.
+    pub false_go_weight: f64,
+    /// The rule the operating point (threshold and RECHECK band) meets on held-out scores;
+    /// `None`: threshold 0 and no band.
+    pub target: Option<Target>,
+    /// Asymmetric risk: at most this many NO-GO training units may pass (moves the threshold
+    /// on the training units instead of choosing an operating point).
     pub max_false_go: Option<usize>,
     /// k for cross-validation (0 or 1: none).
     pub folds: usize,
     /// Which trainers cross-validation compares.
     pub cv_trainers: CvTrainers,
+    /// The units held out of the training log (`--holdout-fraction`, `--holdout-after`):
+    /// the operating point is chosen on their scores when there is no cross-validation.
+    pub point_holdout: Option<Dataset>,
     /// The holdout taken out of the training log before `ds` was formed, if any (recorded in
     /// the model's provenance).
     pub holdout_split: Option<crate::train::float_model::HoldoutSplit>,
@@ -99,6 +114,33 @@ pub struct TrainRequest {
     /// The separability figures to compute beside the verdict (`train` shows none of them;
     /// the demo shows all).
     pub figures: Figures,
+}
+
+impl TrainRequest {
+    /// `trainer` with the CLI's defaults: C searched over the default grid on 5 folds, the
+    /// default false-GO weight and RECHECK budget, seed 1, no holdout, no progress bar.
+    pub fn new(trainer: TrainerKind) -> Self {
+        use crate::train::c_choice::{DEFAULT_FALSE_GO_WEIGHT, DEFAULT_GRID};
+        Self {
+            trainer,
+            epochs: 1000,
+            seed: 1,
+            c: CPolicy::Search(DEFAULT_GRID.to_vec()),
+            class_weight: ClassWeight::EVEN,
+            false_go_weight: DEFAULT_FALSE_GO_WEIGHT,
+            target: Some(Target::RecheckBudget {
+                share: operating_point::DEFAULT_RECHECK_BUDGET,
+                false_go_weight: DEFAULT_FALSE_GO_WEIGHT,
+            }),
+            max_false_go: None,
+            folds: 5,
+            cv_trainers: CvTrainers::Auto,
+            point_holdout: None,
+            holdout_split: None,
+            progress: false,
+            figures: Figures::VERDICT,
+        }
+    }
 }
 
 /// Which trainers cross-validation compares.
@@ -119,11 +161,15 @@ pub const CV_ALL_LIMIT: usize = 100_000;
 impl CvTrainers {
     /// The trainers compared on a log of `units` units when `chosen` is trained.
     pub fn kinds(self, units: usize, chosen: TrainerKind) -> Vec<TrainerKind> {
-        match self {
+        let mut kinds = match self {
             Self::All => TrainerKind::ALL.to_vec(),
             Self::Auto if units <= CV_ALL_LIMIT => TrainerKind::ALL.to_vec(),
             Self::Auto | Self::Chosen => vec![chosen],
+        };
+        if !kinds.contains(&chosen) {
+            kinds.push(chosen);
         }
+        kinds
     }
 }
 
@@ -140,6 +186,8 @@ pub struct TrainOutcome {
     pub holdout: Option<Counts>,
     /// Cross-validation, per trainer.
     pub cross_validation: Vec<EvalRow>,
+    /// What the user should know about choices made without being asked (printed on stderr).
+    pub notes: Vec<String>,
 }
 
 impl TrainOutcome {
@@ -186,24 +234,65 @@ pub fn train_model(
         ..req.figures
     };
     let report = check_with(ds, &idx, req.epochs, req.seed, figures, classic.as_ref());
-    let cfg = TrainConfig {
+    if req.trainer == TrainerKind::HardMargin && !report.separable {
+        return Err(InputError::NotSeparable {
+            path: ds.path.clone(),
+            detail: report.decided_by.clone(),
+        });
+    }
+    let mut notes = Vec::new();
+    let mut cfg = TrainConfig {
         epochs: req.epochs,
         seed: req.seed,
-        c: req.c,
-        separable: report.separable,
+        c: DEFAULT_C,
+        class_weight: req.class_weight,
     };
-    // The check has solved the hard margin already: a separable log's maximum-margin model
+    // C: searched on the log (or its sample) by the same folds as the table below.
+    let mut searched: Option<(CChoice, EvalRow)> = None;
+    if req.trainer == TrainerKind::MaxMargin {
+        match &req.c {
+            CPolicy::Fixed(c) => cfg.c = *c,
+            CPolicy::Search(_) if req.folds < 2 => notes.push(format!(
+                "C = {DEFAULT_C}: no cross-validation to choose it on (--folds {}); give --c or keep the default folds",
+                req.folds
+            )),
+            CPolicy::Search(grid) => {
+                let sample = search_sample(ds, req.seed);
+                let sub = (sample.len() < ds.len()).then(|| ds.subset(&sample));
+                let on = sub.as_ref().unwrap_or(ds);
+                let bar = training_bar(req, on.len(), (grid.len() * req.folds) as u64, "choosing C");
+                let (choice, row) =
+                    choose_c(on, req.folds, grid, req.false_go_weight, cfg, bar.as_ref());
+                if let Some(b) = bar {
+                    b.finish_and_clear();
+                }
+                cfg.c = choice.chosen;
+                if sub.is_some() {
+                    notes.push(format!(
+                        "C chosen on a stratified sample of {} of the {} units (seed {}); the whole log is trained with it",
+                        on.len(),
+                        ds.len(),
+                        req.seed
+                    ));
+                }
+                searched = Some((choice, row));
+            }
+        }
+    }
+    // The check has solved the hard margin already: a separable log's hard-margin model
     // is its separator, not a second solve.
     let t = match (&report.separator, classic) {
-        (Some(sep), _) if report.separable && req.trainer == TrainerKind::MaxMargin => Trained {
+        (Some(sep), _) if report.separable && req.trainer == TrainerKind::HardMargin => Trained {
             model: sep.clone(),
             updates: None,
             c: None,
+            soft: None,
         },
         (_, Some(run)) => Trained {
             model: run.model,
             updates: Some(run.updates),
             c: None,
+            soft: None,
         },
         _ => train(ds, &idx, req.trainer, cfg),
     };
@@ -221,10 +310,86 @@ pub fn train_model(
             },
         });
     }
+    let cross_validation = if req.folds >= 2 {
+        let on_whole_log = searched
+            .as_ref()
+            .is_some_and(|(c, _)| c.searched_units == ds.len());
+        let mut kinds = req.cv_trainers.kinds(ds.len(), req.trainer);
+        // The search's row at the chosen C is this trainer's cross-validation already.
+        if let Some((_, row)) = &searched {
+            kinds.retain(|k| *k != TrainerKind::MaxMargin || !on_whole_log && *k != req.trainer);
+            let mut rows = cross_validate_with_bar(ds, req, cfg, &kinds);
+            rows.push(row.clone());
+            rows.sort_by_key(|r| TrainerKind::ALL.iter().position(|k| *k == r.trainer));
+            rows
+        } else {
+            cross_validate_with_bar(ds, req, cfg, &kinds)
+        }
+    } else {
+        Vec::new()
+    };
     let shift = req
         .max_false_go
         .map(|n| threshold_for_false_go(&t.model, ds, &idx, n));
-    let threshold = shift.as_ref().map_or(0.0, |s| s.threshold);
+    // The operating point, from the chosen trainer's held-out scores.
+    let scale = t.model.w.iter().fold(0.0f64, |m, w| m.max(w.abs()));
+    let to_file = if scale > 0.0 {
+        t.model.norm() / scale
+    } else {
+        1.0
+    };
+    let op = match (req.target, &shift) {
+        (Some(target), None) => {
+            let held: Option<(Vec<HeldOut>, String)> = cross_validation
+                .iter()
+                .find(|r| r.trainer == req.trainer)
+                .map(|r| {
+                    (
+                        r.held_out.clone(),
+                        format!(
+                            "out-of-fold scores of {}-fold cross-validation ({} units{})",
+                            req.folds,
+                            r.held_out.len(),
+                            if r.held_out.len() < ds.len() {
+                                ", a stratified sample of the log"
+                            } else {
+                                ""
+                            }
+                        ),
+                    )
+                })
+                .or_else(|| {
+                    req.point_holdout.as_ref().map(|h| {
+                        (
+                            held_out(&t.model, h, &h.all()),
+                            format!("the holdout's scores ({} units)", h.len()),
+                        )
+                    })
+                });
+            match held {
+                Some((held, source)) => Some(
+                    operating_point::choose(&held, target, to_file, source).map_err(|e| {
+                        InputError::NoOperatingPoint {
+                            path: ds.path.clone(),
+                            detail: e.to_string(),
+                        }
+                    })?,
+                ),
+                None => {
+                    notes.push(
+                        "no operating point: no held-out scores to choose it on (no cross-validation and no holdout); threshold 0 and no RECHECK band".into(),
+                    );
+                    None
+                }
+            }
+        }
+        _ => None,
+    };
+    let threshold = match (&shift, &op) {
+        (Some(s), _) => s.threshold,
+        (None, Some(op)) => op.threshold * scale,
+        (None, None) => 0.0,
+    };
     let training = evaluate(&t.model, threshold, ds, &idx);
     let go = ds.labels.iter().filter(|&&l| l > 0).count();
     let summary = TrainingSummary {
@@ -237,6 +402,10 @@ pub fn train_model(
         updates: t.updates,
         threshold_shift: shift,
         skipped: ds.skipped.clone(),
+        soft_margin: t
+            .soft
+            .clone()
+            .map(|(objective, spread)| SoftMargin { objective, spread }),
     };
     let provenance = Provenance {
         training_log: InputFile {
@@ -248,10 +417,14 @@ pub fn train_model(
         seed: req.seed,
         epochs: req.epochs,
         c: t.c,
+        c_choice: searched.map(|(c, _)| c),
+        class_weight: (req.trainer == TrainerKind::MaxMargin
+            && req.class_weight != ClassWeight::EVEN)
+            .then_some(req.class_weight),
         max_false_go: req.max_false_go,
         holdout_split: req.holdout_split.clone(),
     };
-    let model = FloatModel::new(
+    let mut model = FloatModel::new(
         provenance,
         ds.scales.clone(),
         ds.signals.clone(),
@@ -259,33 +432,50 @@ pub fn train_model(
         threshold,
         summary,
     );
-    let cross_validation = if req.folds >= 2 {
-        cross_validate_with_bar(ds, req, cfg)
-    } else {
-        Vec::new()
-    };
+    if let Some(op) = op {
+        model = model.with_operating_point(op);
+    }
     Ok(TrainOutcome {
         model,
         check: report,
         training,
         holdout: None,
         cross_validation,
+        notes,
     })
 }
 
-fn cross_validate_with_bar(ds: &Dataset, req: &TrainRequest, cfg: TrainConfig) -> Vec<EvalRow> {
-    let kinds = req.cv_trainers.kinds(ds.len(), req.trainer);
-    let jobs = (req.folds * kinds.len()) as u64;
-    let bar = (req.progress && ds.len() >= 100_000).then(|| {
+/// A progress bar for `jobs` trainings on a log of `units` units, on large logs only.
+fn training_bar(
+    req: &TrainRequest,
+    units: usize,
+    jobs: u64,
+    what: &str,
+) -> Option<indicatif::ProgressBar> {
+    (req.progress && units >= 100_000).then(|| {
         // Redrawn on a timer: a training can take seconds, and the clock must not stand still.
         let b = crate::progress::ticking_bar(
             jobs,
             "{prefix} {msg} [{bar:30}] {pos}/{len} trainings, {elapsed} elapsed, about {eta} left",
         );
-        b.set_prefix(format!("{}-fold cross-validation", req.folds));
+        b.set_prefix(what.to_string());
         b
-    });
-    let rows = cross_validate(ds, req.folds, &kinds, cfg, bar.as_ref());
+    })
+}
+
+fn cross_validate_with_bar(
+    ds: &Dataset,
+    req: &TrainRequest,
+    cfg: TrainConfig,
+    kinds: &[TrainerKind],
+) -> Vec<EvalRow> {
+    if kinds.is_empty() {
+        return Vec::new();
+    }
+    let jobs = (req.folds * kinds.len()) as u64;
+    let what = format!("{}-fold cross-validation", req.folds);
+    let bar = training_bar(req, ds.len(), jobs, &what);
+    let rows = cross_validate(ds, req.folds, kinds, cfg, bar.as_ref());
     if let Some(b) = bar {
         b.finish_and_clear();
     }

@@ -238,6 +238,8 @@ fn pack_refuses_a_failing_model_and_records_an_override() {
             log.to_str().unwrap(),
             "--sheet",
             "tiny.toml",
+            "--trainer",
+            "hard-margin",
             "--folds",
             "0",
             "-o",

@@ -127,9 +127,10 @@ pub struct ReleaseArgs {
     /// Plain rounding only (no margin-preserving search).
     #[arg(long)]
     pub no_optimise: bool,
-    /// RECHECK half-band around the threshold, in float score units.
-    #[arg(long, default_value_t = 0.0)]
-    pub recheck_band: f64,
+    /// RECHECK half-band around the threshold, in float score units. Default: the band of
+    /// the model's operating point (chosen by `train` on held-out scores), else 0.
+    #[arg(long, value_name = "BAND")]
+    pub recheck_band: Option<f64>,
     /// Sensor noise per channel, physical units, e.g. --noise vibration_mg=2.5 (overrides the sheet).
     #[arg(long, value_name = "CHANNEL=VALUE", value_delimiter = ',')]
     pub noise: Vec<String>,
@@ -145,16 +146,22 @@ pub struct ReleaseArgs {
     /// Most NO-GO units the device may pass, per log: a count (e.g. 0), a rate of the log's
     /// NO-GO units (e.g. 0.1%), or a rate the log must show at a confidence level (e.g.
     /// 1%@95%: the exact one-sided upper bound on the false-GO rate at most 1 %).
-    #[arg(long, value_name = "LIMIT", default_value = "0")]
-    pub max_false_go: Limit,
+    /// Default: the model's operating point (its false-GO target, or the upper bound of the
+    /// false-GO rate on the held-out units it was chosen on), else 0.
+    #[arg(long, value_name = "LIMIT")]
+    pub max_false_go: Option<Limit>,
     /// Most GO units the device may turn away (NO-GO, or FAULT on a GO unit), per log: a count,
     /// a rate of the log's GO units, or a bound such as 2%@95%.
-    #[arg(long, value_name = "LIMIT", default_value = "1%")]
-    pub max_false_nogo: Limit,
+    /// Default: 1 %, or the upper bound of the false-NO-GO rate on the held-out units the
+    /// model's operating point was chosen on, if that is higher.
+    #[arg(long, value_name = "LIMIT")]
+    pub max_false_nogo: Option<Limit>,
     /// Most units sent to retest (RECHECK), per log: a count, a rate of all its units, or a
     /// bound such as 5%@95%.
-    #[arg(long, value_name = "LIMIT", default_value = "5%")]
-    pub max_recheck: Limit,
+    /// Default: 5 %, or the upper bound of the RECHECK share on the held-out units the model's
+    /// operating point was chosen on, if that is higher.
+    #[arg(long, value_name = "LIMIT")]
+    pub max_recheck: Option<Limit>,
     /// Do not fail units whose GO/NO-GO verdict the declared noise could swap (by default
     /// such a unit must fall in the RECHECK band).
     #[arg(long)]
@@ -204,6 +211,8 @@ pub struct Release {
     pub quiet: bool,
     /// The release key, when the blob is to be signed.
     pub signer: Option<ed25519_dalek::SigningKey>,
+    /// Settings taken from the model's operating point, in words (recorded in the report).
+    pub from_model: Vec<String>,
 }
 
 impl Release {
@@ -231,6 +240,12 @@ impl Release {
         }
         self.qc = done.qc;
         let mut report = done.report;
+        report.from_model = self.from_model.clone();
+        if !self.quiet {
+            for a in &report.from_model {
+                eprintln!("from the model's operating point: {a}");
+            }
+        }
         if let Some(k) = &self.signer {
             // The report names the blob pack writes: signed, with its key.
             report.name_blob(&audit::released_blob(&done.q, report.passed, Some(k)));
@@ -314,15 +329,30 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
         weight_bits: r.weight_bits,
         optimise: !r.no_optimise,
         acc_bits: r.acc_bits,
-        recheck_band: r.recheck_band,
+        recheck_band: match (r.recheck_band, &fm.operating_point) {
+            (Some(b), _) => b,
+            (None, Some(op)) => op.band,
+            (None, None) => 0.0,
+        },
     };
+    if let (Some(b), Some(op), false) = (r.recheck_band, &fm.operating_point, quiet)
+        && b != op.band
+    {
+        {
+            eprintln!(
+                "note: --recheck-band {b} replaces the band ±{} of the model's operating point, chosen by train on {}",
+                op.band, op.source
+            );
+        }
+    }
+    let (gates, from_model) = default_gates(r, &fm, qc.recheck_band);
     let ac = AuditConfig {
         min_margin_lsb: r.min_margin_lsb,
         max_flips: r.max_flips,
         require_guarantee: !r.no_require_guarantee,
-        max_false_go: r.max_false_go,
-        max_false_nogo: r.max_false_nogo,
-        max_recheck: r.max_recheck,
+        max_false_go: gates.0,
+        max_false_nogo: gates.1,
+        max_recheck: gates.2,
         noise_gate: !r.no_noise_gate,
     };
     if !quiet {
@@ -345,5 +375,94 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
         },
         quiet,
         signer: r.sign.as_deref().map(sign::read_secret).transpose()?,
+        from_model,
     })
+}
+
+/// The false-GO and false-NO-GO gates: the flags', else the model's operating point's, else
+/// 0 and 1 %; with a sentence for each setting taken from the model.
+fn default_gates(
+    r: &ReleaseArgs,
+    fm: &FloatModel,
+    band: f64,
+) -> ((Limit, Limit, Limit), Vec<String>) {
+    use host_trainer::confidence::{DEFAULT_CONFIDENCE, Rate};
+    use host_trainer::train::operating_point::Target;
+    let mut said = Vec::new();
+    let op = fm.operating_point.as_ref();
+    // Rounded up to 0.01 %: a gate that reads cleanly and is never below the bound.
+    let up = |r: f64| (r * 1e4).ceil() / 1e4;
+    if let (None, Some(op)) = (r.recheck_band, op) {
+        said.push(format!(
+            "RECHECK band ±{band} (model score units), chosen on {}",
+            op.source
+        ));
+    }
+    let fg = match (r.max_false_go, op) {
+        (Some(l), _) => l,
+        (None, None) => Limit::Count(0),
+        (None, Some(op)) => {
+            let l = match op.target {
+                Target::FalseGo { rate, confidence } => Limit::Upper { rate, confidence },
+                Target::RecheckBudget { .. } => Limit::Rate(up(Rate::new(
+                    op.counts.false_go as u64,
+                    op.nogo_units as u64,
+                    DEFAULT_CONFIDENCE,
+                )
+                .upper)),
+            };
+            said.push(format!(
+                "false-GO gate {l} of each log's NO-GO units ({}: {} false GO among {} held-out NO-GO units); --max-false-go sets another",
+                match op.target {
+                    Target::FalseGo { .. } => "the target train met",
+                    Target::RecheckBudget { .. } => "the 95 % upper bound of the rate train measured",
+                },
+                op.counts.false_go,
+                op.nogo_units
+            ));
+            l
+        }
+    };
+    // At least the fixed default, or what train measured on held-out units if higher.
+    let mut measured = |given: Option<Limit>, floor: f64, k: usize, of: usize, what: &str| match (
+        given, op,
+    ) {
+        (Some(l), _) => l,
+        (None, Some(_)) if of > 0 => {
+            let upper = up(Rate::new(k as u64, of as u64, DEFAULT_CONFIDENCE).upper);
+            if upper > floor {
+                said.push(format!(
+                        "{what} gate {:.2}% (the 95 % upper bound of the share train measured: {k} of {of} held-out units); a flag sets another",
+                        upper * 100.0
+                    ));
+                Limit::Rate(upper)
+            } else {
+                Limit::Rate(floor)
+            }
+        }
+        _ => Limit::Rate(floor),
+    };
+    let (fng_k, go, rc_k, all) = op.map_or((0, 0, 0, 0), |op| {
+        (
+            op.counts.false_nogo,
+            op.go_units,
+            op.counts.recheck(),
+            op.units,
+        )
+    });
+    let fng = measured(
+        r.max_false_nogo,
+        0.01,
+        fng_k,
+        go,
+        "false-NO-GO (of each log's GO units)",
+    );
+    let recheck = measured(
+        r.max_recheck,
+        0.05,
+        rc_k,
+        all,
+        "RECHECK (of each log's units)",
+    );
+    ((fg, fng, recheck), said)
 }

@@ -10,7 +10,11 @@ use clap::Args;
 use super::args::LogArgs;
 use super::to_json;
 use host_trainer::output::OutputSet;
+use host_trainer::release::audit::Limit;
+use host_trainer::train::c_choice::{self, CPolicy};
 use host_trainer::train::eval::TrainerKind;
+use host_trainer::train::maxmargin::ClassWeight;
+use host_trainer::train::operating_point::Target;
 use host_trainer::workflow::{self, CvTrainers};
 
 /// Flags of `linegate train`.
@@ -23,7 +27,10 @@ pub struct TrainArgs {
     /// Channel sheet (TOML).
     #[arg(long)]
     pub sheet: Option<PathBuf>,
-    /// Trainer.
+    /// Trainer. max-margin: the soft margin (hinge loss, penalty C) on every log, trained on
+    /// each channel's spread over the training units; hard-margin: the exact largest gap,
+    /// only for a separable log (it fits every unit, noise included); perceptron, averaged,
+    /// pocket: the perceptron family.
     #[arg(long, value_enum, default_value_t = TrainerKind::MaxMargin)]
     pub trainer: TrainerKind,
     /// Epoch cap for the perceptron family.
@@ -32,10 +39,45 @@ pub struct TrainArgs {
     /// Seed for shuffles and folds.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
-    /// Soft-margin penalty C, used when the log is not separable.
-    #[arg(long, default_value_t = 10.0)]
-    pub c: f64,
-    /// Move the threshold so at most N NO-GO training units pass.
+    /// The soft margin's penalty C: `auto` chooses it by stratified, seeded cross-validation
+    /// (--folds, --seed) over --c-grid, on the cost --false-go-weight × false GO + false
+    /// NO-GO of the held-out units (of equal costs the largest C); a number fixes it. Without
+    /// folds, auto means C = 1. The choice and its reason are printed and kept in the model.
+    #[arg(long, value_name = "auto|C", default_value = "auto", value_parser = c_choice::parse_policy)]
+    pub c: CPolicy,
+    /// The values of C that `--c auto` tries (standard-score units; each channel is trained
+    /// on its spread over the training units).
+    #[arg(
+        long,
+        value_name = "C,C,…",
+        default_value = "0.001,0.01,0.1,1,10,100,1000"
+    )]
+    pub c_grid: String,
+    /// What one false GO (a NO-GO unit passed) costs against one false NO-GO (a GO unit
+    /// turned away), in the choice of C and of the operating point.
+    #[arg(long, value_name = "W", default_value_t = c_choice::DEFAULT_FALSE_GO_WEIGHT)]
+    pub false_go_weight: f64,
+    /// Multipliers of C for GO and NO-GO units (`GO,NOGO`, e.g. 1,3 makes a NO-GO unit inside
+    /// the margin cost three times a GO one), or `balanced` (each class weighs
+    /// units ÷ (2 × its units)). Max-margin only.
+    #[arg(long, value_name = "GO,NOGO|balanced", default_value = "1,1")]
+    pub class_weight: String,
+    /// The operating point: the threshold and RECHECK band chosen on held-out scores
+    /// (out-of-fold units of cross-validation, else the holdout split) for the least
+    /// --false-go-weight × false GO + false NO-GO with RECHECK at most this share of units.
+    #[arg(long, value_name = "SHARE", default_value = "5%", value_parser = parse_share, conflicts_with_all = ["false_go_target", "no_operating_point", "max_false_go"])]
+    pub recheck_budget: Option<f64>,
+    /// The operating point instead meets a false-GO target on the held-out units, e.g. 1%@95%
+    /// (the exact upper bound at 95 % confidence at most 1 %), with the fewest GO units lost
+    /// and then the fewest RECHECK; refused, naming the units needed, if the held-out NO-GO
+    /// units are too few to show it.
+    #[arg(long, value_name = "RATE@CONF", conflicts_with_all = ["no_operating_point", "max_false_go"])]
+    pub false_go_target: Option<Limit>,
+    /// No operating point: threshold 0 and no RECHECK band.
+    #[arg(long)]
+    pub no_operating_point: bool,
+    /// Move the threshold so at most N NO-GO training units pass (training units, not held
+    /// out; replaces the operating point).
     #[arg(long, value_name = "N")]
     pub max_false_go: Option<usize>,
     /// Holdout log to evaluate on.
@@ -60,6 +102,10 @@ pub struct TrainArgs {
     /// about (1 + k/cores) trainings rather than 4·k; all: every trainer; chosen: only --trainer.
     #[arg(long, value_enum, default_value_t = CvTrainers::Auto)]
     pub cv_trainers: CvTrainers,
+    /// Also write the folds that chose C (CSV: repeat, fold, line, unit, label), so that the
+    /// choice can be checked with another tool on the same folds.
+    #[arg(long, value_name = "FILE")]
+    pub cv_output: Option<PathBuf>,
     /// Output float model (JSON).
     #[arg(long, short)]
     pub output: PathBuf,
@@ -82,12 +128,19 @@ impl TrainArgs {
             epochs,
             seed,
             c,
+            c_grid,
+            false_go_weight,
+            class_weight,
+            recheck_budget,
+            false_go_target,
+            no_operating_point,
             max_false_go,
             holdout,
             holdout_fraction,
             holdout_after,
             folds,
             cv_trainers,
+            cv_output,
             output,
             force,
             json,
@@ -132,19 +185,52 @@ impl TrainArgs {
             super::warn_skipped(log, &ds.skipped);
             super::warn_sheet(log, &ds, sheet.as_ref());
         }
+        if !false_go_weight.is_finite() || *false_go_weight <= 0.0 {
+            anyhow::bail!("--false-go-weight {false_go_weight}: give a positive number (e.g. 5)");
+        }
+        let c = match c {
+            CPolicy::Search(_) => CPolicy::Search(
+                c_choice::parse_grid(c_grid).map_err(|e| anyhow::anyhow!("--c-grid {e}"))?,
+            ),
+            fixed => fixed.clone(),
+        };
+        let target = match (false_go_target, max_false_go, no_operating_point) {
+            (_, Some(_), _) | (_, _, true) => None,
+            (Some(Limit::Upper { rate, confidence }), _, _) => Some(Target::FalseGo {
+                rate: *rate,
+                confidence: *confidence,
+            }),
+            (Some(other), _, _) => anyhow::bail!(
+                "--false-go-target {other}: give a rate at a confidence level, e.g. 1%@95%"
+            ),
+            (None, None, false) => Some(Target::RecheckBudget {
+                share: recheck_budget
+                    .unwrap_or(host_trainer::train::operating_point::DEFAULT_RECHECK_BUDGET),
+                false_go_weight: *false_go_weight,
+            }),
+        };
         let req = workflow::TrainRequest {
             trainer: *trainer,
             epochs: *epochs,
             seed: *seed,
-            c: *c,
+            c,
+            class_weight: parse_class_weight(class_weight, &ds)?,
+            false_go_weight: *false_go_weight,
+            target,
             max_false_go: *max_false_go,
             folds: *folds,
             cv_trainers: *cv_trainers,
+            point_holdout: held.clone(),
             holdout_split,
             progress: !quiet && std::io::stderr().is_terminal(),
             figures: host_trainer::train::separability::Figures::VERDICT,
         };
         let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)?;
+        if !quiet {
+            for n in &out.notes {
+                eprintln!("note: {n}");
+            }
+        }
         if let Some(hd) = &held {
             out.evaluate_holdout(hd);
         }
@@ -164,6 +250,14 @@ impl TrainArgs {
             set.input("holdout log (--holdout)", h);
         }
         set.add_as("float model (-o)", output, out.model.to_json());
+        if let Some(p) = cv_output {
+            let Some(choice) = &out.model.provenance.c_choice else {
+                anyhow::bail!(
+                    "--cv-output: no folds chose C here (it needs --trainer max-margin, --c auto and --folds 2 or more)"
+                );
+            };
+            set.add_as("folds (--cv-output)", p, c_choice::fold_table(&ds, choice));
+        }
         set.commit(*force)?;
         if *json {
             say_raw!("{}", to_json(&out));
@@ -190,6 +284,66 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
         m.summary.training_errors,
         m.threshold
     );
+    if let Some(ch) = &m.provenance.c_choice {
+        say!(
+            "{:>10} {:>9} {:>12} {:>9}",
+            "C",
+            "false GO",
+            "false NO-GO",
+            "cost"
+        );
+        for r in &ch.rows {
+            say!(
+                "{:>10} {:>9} {:>12} {:>9}{}",
+                r.c,
+                r.false_go,
+                r.false_nogo,
+                r.cost,
+                if r.c == ch.chosen { "  ← chosen" } else { "" }
+            );
+        }
+        say!("{}", ch.reason);
+    } else if let Some(c) = m.provenance.c {
+        say!("C = {c}");
+    }
+    if let Some(op) = &m.operating_point {
+        let c = &op.counts;
+        say!(
+            "operating point: threshold {:.6}, RECHECK band ±{:.6} (model score units), from {}",
+            op.threshold,
+            op.band,
+            op.source
+        );
+        say!(
+            "  on those units: false GO {}; false NO-GO {}; RECHECK {} ({} GO, {} NO-GO)",
+            rate_text(
+                &host_trainer::confidence::Rate::new(
+                    c.false_go as u64,
+                    op.nogo_units as u64,
+                    host_trainer::confidence::DEFAULT_CONFIDENCE
+                ),
+                "NO-GO units"
+            ),
+            rate_text(
+                &host_trainer::confidence::Rate::new(
+                    c.false_nogo as u64,
+                    op.go_units as u64,
+                    host_trainer::confidence::DEFAULT_CONFIDENCE
+                ),
+                "GO units"
+            ),
+            rate_text(
+                &host_trainer::confidence::Rate::new(
+                    c.recheck() as u64,
+                    op.units as u64,
+                    host_trainer::confidence::DEFAULT_CONFIDENCE
+                ),
+                "units"
+            ),
+            c.recheck_go,
+            c.recheck_nogo
+        );
+    }
     if let Some(s) = &m.summary.threshold_shift {
         say!(
             "--max-false-go: {} NO-GO units pass, {} GO units lost",
@@ -236,6 +390,52 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
         }
     }
     say!("wrote {} (model id {})", path.display(), m.model_id);
+}
+
+/// `--recheck-budget`'s value: a share such as 3% or 0.03, from 0 to 1.
+fn parse_share(s: &str) -> Result<f64, String> {
+    let t = s.trim();
+    let v = match t.strip_suffix('%') {
+        Some(p) => p.trim().parse::<f64>().map(|v| v / 100.0),
+        None => t.parse::<f64>(),
+    };
+    match v {
+        Ok(v) if (0.0..=1.0).contains(&v) => Ok(v),
+        _ => Err(format!(
+            "'{s}' is not a share between 0 and 1 (e.g. 3% or 0.03)"
+        )),
+    }
+}
+
+/// `--class-weight`: `GO,NOGO` multipliers, or `balanced` from the log's class counts.
+fn parse_class_weight(s: &str, ds: &host_trainer::ingest::dataset::Dataset) -> Result<ClassWeight> {
+    if s.trim().eq_ignore_ascii_case("balanced") {
+        let go = ds.labels.iter().filter(|&&l| l > 0).count().max(1) as f64;
+        let nogo = (ds.len() as f64 - go).max(1.0);
+        let n = ds.len() as f64;
+        return Ok(ClassWeight {
+            go: n / (2.0 * go),
+            nogo: n / (2.0 * nogo),
+        });
+    }
+    let parts: Vec<Option<f64>> = s
+        .split(',')
+        .map(|p| {
+            p.trim()
+                .parse::<f64>()
+                .ok()
+                .filter(|v| v.is_finite() && *v > 0.0)
+        })
+        .collect();
+    match parts.as_slice() {
+        [Some(go), Some(nogo)] => Ok(ClassWeight {
+            go: *go,
+            nogo: *nogo,
+        }),
+        _ => anyhow::bail!(
+            "--class-weight '{s}': give two positive numbers GO,NOGO (e.g. 1,3) or balanced"
+        ),
+    }
 }
 
 /// `--holdout-fraction`'s value: strictly between 0 and 1.

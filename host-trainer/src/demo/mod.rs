@@ -290,17 +290,13 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         f
     });
     let (drift_ds, _) = workflow::load(&paths[1], &opts, Some(&sheet_path))?;
+    // The demo's logs are separable: its model is the exact hard margin, threshold 0.
     let req = TrainRequest {
-        trainer: TrainerKind::MaxMargin,
-        epochs: 1000,
-        seed: 1,
-        c: 10.0,
-        max_false_go: None,
         folds: 5,
         cv_trainers: crate::workflow::CvTrainers::All,
-        holdout_split: None,
-        progress: false,
+        target: None,
         figures: crate::train::separability::Figures::ALL,
+        ..TrainRequest::new(TrainerKind::HardMargin)
     };
     let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;
     let mut holdout_ds = workflow::load_for_model(&paths[2], &opts, &train.model)?;

@@ -216,17 +216,13 @@ pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, De
         f.path = out.join("signal-channels.toml");
         f
     });
+    // The demo's logs are separable: its model is the exact hard margin, threshold 0.
     let req = TrainRequest {
-        trainer: TrainerKind::MaxMargin,
-        epochs: 1000,
-        seed: 1,
-        c: 10.0,
-        max_false_go: None,
         folds: 0,
         cv_trainers: crate::workflow::CvTrainers::All,
-        holdout_split: None,
-        progress: false,
+        target: None,
         figures: crate::train::separability::Figures::VERDICT,
+        ..TrainRequest::new(TrainerKind::HardMargin)
     };
     let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;
     let mut holdout_ds = workflow::load_for_model(&paths[1], &opts, &train.model)?;

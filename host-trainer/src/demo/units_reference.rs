@@ -82,16 +82,15 @@ fn streamed_units_csv_has_the_bytes_of_the_whole_one_on_a_generated_log() {
     std::fs::write(&sheet, crate::synth::sheet(6)).unwrap();
     let (ds, sheet) = workflow::load(&log, &LogOptions::default(), Some(&sheet)).unwrap();
     let req = TrainRequest {
-        trainer: TrainerKind::Perceptron,
         epochs: 1000,
         seed: 1,
-        c: 10.0,
+        c: crate::train::c_choice::CPolicy::Fixed(10.0),
         max_false_go: None,
         folds: 0,
         cv_trainers: CvTrainers::Chosen,
-        holdout_split: None,
-        progress: false,
         figures: crate::train::separability::Figures::VERDICT,
+        target: None,
+        ..TrainRequest::new(TrainerKind::Perceptron)
     };
     let fm = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)
         .unwrap()

@@ -9,7 +9,7 @@
 //! for the small ratio between the two exactly.
 //!
 //! A channel sheet (TOML) declares ranges; without one, the observed range
-//! with 10 % headroom on each side is used.
+//! with 50 % of its span added on each side is used.
 //!
 //! ```toml
 //! # Linegate channel sheet
@@ -61,6 +61,12 @@ use crate::error::InputError;
 use crate::error::shown;
 use crate::ingest::names::{name_key, same_name};
 use crate::ingest::signal_scale::{FeatureSource, SignalScale};
+
+/// Share of the observed span added on each side of a channel without a sheet entry. Wide on
+/// purpose: the device shows FAULT for a reading outside the valid range, and real units
+/// outside a few hundred training units' range are common (heavy-tailed channels); a sheet
+/// with the sensor's real range is better still.
+pub const OBSERVED_HEADROOM: f64 = 0.5;
 
 /// One channel's scaling, as stored in the float model.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -224,13 +230,14 @@ impl ChannelScale {
         Ok(c)
     }
 
-    /// The observed range with 10 % headroom each side and a decimal lsb giving at least 20 000 counts.
+    /// The observed range with [`OBSERVED_HEADROOM`] of its span added on each side, and a
+    /// decimal lsb giving at least 20 000 counts.
     ///
     /// # Errors
     /// A message if the range is degenerate.
     pub fn observed(name: &str, lo: f64, hi: f64) -> Result<Self, String> {
         let span = hi - lo;
-        let (min, max) = (lo - 0.1 * span, hi + 0.1 * span);
+        let (min, max) = (lo - OBSERVED_HEADROOM * span, hi + OBSERVED_HEADROOM * span);
         // Saturating conversion: a degenerate span gives 0 or ∞, refused below.
         let lsb = power_of_ten(((max - min) / 20_000.0).log10().floor() as i32);
         Self::new(name, "", min, max, lsb, 0.0)

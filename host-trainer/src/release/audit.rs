@@ -324,6 +324,9 @@ pub struct AuditReport {
     pub recheck_band: f64,
     /// Choices the tool made on the user's request (`--apply-…`), in words.
     pub applied: Vec<String>,
+    /// Settings taken from the model's operating point because no flag gave them, in words.
+    #[serde(default)]
+    pub from_model: Vec<String>,
     /// Every gate on every log, passed or not.
     pub gates: Vec<Gate>,
     /// The audit's verdict: every gate passed.
@@ -338,6 +341,13 @@ pub struct AuditReport {
     /// readings).
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub features: Vec<crate::release::features::FeatureProof>,
+    /// The model's operating point (threshold and RECHECK band chosen on held-out scores),
+    /// every figure a number with its exact bounds; absent for a model without one.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub operating_point: Option<crate::release::point_record::OperatingPointRecord>,
+    /// How cross-validation chose C (every C tried and why); absent when C was given.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub c_choice: Option<crate::train::c_choice::CChoice>,
 }
 
 struct Acc {
@@ -748,11 +758,17 @@ pub fn audit(
         tolerance,
         recheck_band: q.recheck_band,
         applied: Vec::new(),
+        from_model: Vec::new(),
         gates,
         passed,
         reasons,
         command_line: None,
         features: crate::release::features::feature_proofs(fm),
+        operating_point: fm
+            .operating_point
+            .as_ref()
+            .map(|op| crate::release::point_record::OperatingPointRecord::new(op, q.scale)),
+        c_choice: fm.provenance.c_choice.clone(),
     };
     r.name_blob(&packed);
     r

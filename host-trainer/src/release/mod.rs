@@ -19,6 +19,7 @@ pub mod image;
 pub mod keyfile;
 pub mod matching;
 pub mod pack;
+pub mod point_record;
 pub mod quantise;
 pub mod replay;
 pub mod sign;

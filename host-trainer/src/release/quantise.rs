@@ -638,16 +638,15 @@ mod tests {
             }
             let ds = Dataset::from_scaled(&pts, &labels);
             let req = crate::workflow::TrainRequest {
-                trainer: crate::train::eval::TrainerKind::Averaged,
                 epochs: 3,
                 seed: trial as u64,
-                c: 10.0,
+                c: crate::train::c_choice::CPolicy::Fixed(10.0),
                 max_false_go: None,
                 folds: 0,
                 cv_trainers: crate::workflow::CvTrainers::Auto,
-                holdout_split: None,
-                progress: false,
                 figures: crate::train::separability::Figures::VERDICT,
+                target: None,
+                ..crate::workflow::TrainRequest::new(crate::train::eval::TrainerKind::Averaged)
             };
             let fm = crate::workflow::train_model(&ds, None, &req).unwrap().model;
             for weight_bits in [5u8, 6, 8] {

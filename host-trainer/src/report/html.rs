@@ -3,7 +3,7 @@
 
 use std::fmt::Write;
 
-use super::svg::{bars_svg, margin_bins_svg, rounding_svg, sweep_svg};
+use super::svg::{bars_svg, margin_bins_svg, rounding_svg, sweep_svg, trade_off_svg};
 use crate::release::audit::{AuditReport, SweepRow};
 use crate::train::float_model::FloatModel;
 
@@ -71,7 +71,7 @@ fn render_markdown(md: &str) -> String {
 
 /// A self-contained HTML page: the verdict, then the report's sections in its order, each
 /// chart inside the section it illustrates (margins with the margin and bound, weights with
-/// the channels, tolerance with the sensor tolerance).
+/// the channels, tolerance with the sensor tolerance, the trade-off with the operating point).
 pub fn html(
     fm: &FloatModel,
     r: &AuditReport,
@@ -97,6 +97,12 @@ pub fn html(
         format!(
             "<p>Each format tried (named weight bits/input bits), by its smallest margin over its rounding bound and its blob's size: above the black line at 1 rounding cannot change a decision. Filled dots passed the gates, crosses failed; the recommended format is ringed.</p>{}",
             sweep_svg(rows, *best)
+        )
+    });
+    let trade_chart = r.operating_point.as_ref().map(|op| {
+        format!(
+            "<p>The trade-off above as a chart: each point is the best threshold and band at one RECHECK cap, by the share of held-out units it sends to RECHECK (x) and its false-GO and false-NO-GO rates (y). The model's operating point is ringed.</p>{}",
+            trade_off_svg(op)
         )
     });
     let weights_chart = bars_svg("Integer weight per channel", &names, &weights, None);
@@ -134,6 +140,8 @@ pub fn html(
             placed_weights = true;
         } else if part.starts_with("Sensor tolerance") {
             page.push_str(tolerance.as_deref().unwrap_or_default());
+        } else if part.starts_with("Operating point") {
+            page.push_str(trade_chart.as_deref().unwrap_or_default());
         } else if part.starts_with("Word-length sweep") {
             page.push_str(sweep_chart.as_deref().unwrap_or_default());
         }

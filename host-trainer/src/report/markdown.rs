@@ -1,26 +1,17 @@
 //! The audit as Markdown: the text `audit.md` holds and `audit` prints. Sections in the
 //! order a reviewer reads: verdict (and, if failed, the gates and units behind it),
-//! provenance, decisions per log, margin against the bound, channels, sensor tolerance,
-//! units at risk, units closest to the boundary, the word-length sweep, the method.
+//! provenance, the operating point and how C was chosen (when the model has them),
+//! decisions per log, margin against the bound, channels, sensor tolerance, units at risk,
+//! units closest to the boundary, the word-length sweep, the method.
 
 use std::fmt::Write;
 
+use super::numbers::lsb;
 use crate::release::audit::{AuditReport, SweepRow, UnitRow};
 use crate::train::float_model::FloatModel;
 
 fn opt(v: Option<f64>) -> String {
     v.map_or("–".into(), lsb)
-}
-
-/// A count of LSB: one decimal; from a million on also its order of magnitude, since
-/// 959809745.5 is hard to read and a wide accumulator makes such margins common.
-fn lsb(v: f64) -> String {
-    if v.abs() < 1e6 || !v.is_finite() {
-        format!("{v:.1}")
-    } else {
-        let e = v.abs().log10().floor() as i32;
-        format!("{v:.1} (≈ {:.2}·10^{e})", v / 10f64.powi(e))
-    }
 }
 
 /// A physical quantity: four significant digits at any scale, so a margin of 0.00002 V on a
@@ -243,6 +234,16 @@ pub fn markdown(
     }
     for a in &r.applied {
         let _ = writeln!(s, "- applied on request: {a}");
+    }
+    for a in &r.from_model {
+        let _ = writeln!(s, "- from the model's operating point: {a}");
+    }
+    // Only a model that has them: an older model's report is unchanged.
+    if let Some(op) = &r.operating_point {
+        super::operating::operating_point_markdown(&mut s, op, r.recheck_band);
+    }
+    if let Some(c) = &r.c_choice {
+        super::operating::c_choice_markdown(&mut s, c);
     }
     let _ = writeln!(
         s,

@@ -1,12 +1,15 @@
 //! The audit's charts as SVG (plotters): margins and rounding errors of every unit, one bar
-//! per channel, and the word-length sweep.
+//! per channel, the word-length sweep, and the operating point's trade-off.
 
 use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 
+use super::numbers::score;
 use crate::release::audit::{
     AuditReport, MARGIN_BINS, ROUNDING_BINS, SetSummary, SweepRow, margin_bin_edges,
     rounding_bin_edges,
 };
+use crate::release::point_record::OperatingPointRecord;
 
 /// Colours of the logs in the margin histogram, in the report's order (train first).
 const SET_COLOURS: [RGBColor; 4] = [
@@ -320,6 +323,142 @@ pub fn sweep_svg(rows: &[SweepRow], best: Option<usize>) -> String {
     out
 }
 
+/// The `id` of the trade-off chart's `<svg>` element in the HTML report.
+pub const TRADE_OFF_ID: &str = "trade-off-chart";
+
+/// The operating point's trade-off on the held-out units: for each trade-off point (the
+/// best point at each RECHECK cap) its RECHECK share on x against its false-GO rate (of
+/// the held-out NO-GO units; red line, round dots) and false-NO-GO rate (of the GO units;
+/// blue line, triangles) on y, with a legend; the chosen point is ringed on both lines and
+/// labelled with its threshold and half-band. The `<svg>` element has the id
+/// `trade-off-chart` and the class `trade-off`.
+pub fn trade_off_svg(op: &OperatingPointRecord) -> String {
+    const NOGO: RGBColor = SET_COLOURS[1];
+    let pct = |r: &crate::confidence::Rate| r.rate * 100.0;
+    // (RECHECK %, false GO %, false NO-GO %), left to right; equal points drawn once.
+    let mut pts: Vec<(f64, f64, f64)> = op
+        .trade_off
+        .iter()
+        .map(|t| {
+            (
+                pct(&t.rates.recheck),
+                pct(&t.rates.false_go),
+                pct(&t.rates.false_nogo),
+            )
+        })
+        .collect();
+    pts.sort_by(|a, b| {
+        a.0.total_cmp(&b.0)
+            .then(b.1.total_cmp(&a.1))
+            .then(b.2.total_cmp(&a.2))
+    });
+    pts.dedup();
+    let chosen = (
+        pct(&op.rates.recheck),
+        pct(&op.rates.false_go),
+        pct(&op.rates.false_nogo),
+    );
+    let all = || pts.iter().chain(std::iter::once(&chosen));
+    let x1 = all().map(|p| p.0).fold(1.0f64, f64::max) * 1.1;
+    // Headroom above the highest point for the legend and the chosen point's label, so
+    // neither covers a point or the other.
+    let y1 = all().flat_map(|p| [p.1, p.2]).fold(1.0f64, f64::max) * 1.6;
+    let mut out = String::new();
+    {
+        let root = SVGBackend::with_string(&mut out, (800, 420)).into_drawing_area();
+        let _ = root.fill(&WHITE);
+        if let Ok(mut chart) = ChartBuilder::on(&root)
+            .caption(
+                "Trade-off on the held-out units: false GO and false NO-GO against RECHECK",
+                ("sans-serif", 17),
+            )
+            .margin(12)
+            .margin_right(30)
+            .x_label_area_size(40)
+            .y_label_area_size(70)
+            .build_cartesian_2d(0.0..x1, 0.0..y1)
+        {
+            let x_desc = format!("RECHECK, % of the {} held-out units", op.units);
+            let _ = chart
+                .configure_mesh()
+                .x_label_style(("sans-serif", 15))
+                .y_label_style(("sans-serif", 15))
+                .x_desc(x_desc)
+                .y_desc("rate, %")
+                .x_label_formatter(&|v| format!("{v}"))
+                .y_label_formatter(&|v| format!("{v}"))
+                .draw();
+            let series = [
+                (
+                    format!("false GO (% of {} NO-GO units)", op.nogo_units),
+                    FAIL,
+                    pts.iter().map(|p| (p.0, p.1)).collect::<Vec<_>>(),
+                ),
+                (
+                    format!("false NO-GO (% of {} GO units)", op.go_units),
+                    NOGO,
+                    pts.iter().map(|p| (p.0, p.2)).collect(),
+                ),
+            ];
+            for (k, (name, colour, line)) in series.into_iter().enumerate() {
+                let _ = chart
+                    .draw_series(LineSeries::new(line.clone(), colour.stroke_width(2)))
+                    .map(|a| {
+                        a.label(name).legend(move |(x, y)| {
+                            PathElement::new(vec![(x, y), (x + 16, y)], colour.stroke_width(2))
+                        })
+                    });
+                // Told apart in black and white by their marks too.
+                if k == 0 {
+                    let _ =
+                        chart.draw_series(line.iter().map(|&p| Circle::new(p, 4, colour.filled())));
+                } else {
+                    let _ = chart.draw_series(
+                        line.iter()
+                            .map(|&p| TriangleMarker::new(p, 5, colour.filled())),
+                    );
+                }
+            }
+            let _ = chart.draw_series(
+                [(chosen.0, chosen.1), (chosen.0, chosen.2)]
+                    .into_iter()
+                    .map(|p| Circle::new(p, 10, BLACK.stroke_width(2))),
+            );
+            // Above the higher ring, towards the middle of the chart.
+            let left = chosen.0 > x1 / 2.0;
+            let (dx, h) = if left {
+                (-12, HPos::Right)
+            } else {
+                (12, HPos::Left)
+            };
+            let style =
+                TextStyle::from(("sans-serif", 15).into_font()).pos(Pos::new(h, VPos::Bottom));
+            let label = format!(
+                "chosen: threshold {}, band ±{}",
+                score(op.threshold),
+                score(op.band)
+            );
+            let _ = chart.draw_series(std::iter::once(
+                EmptyElement::at((chosen.0, chosen.1.max(chosen.2)))
+                    + Text::new(label, (dx, -14), style),
+            ));
+            let _ = chart
+                .configure_series_labels()
+                .position(SeriesLabelPosition::UpperRight)
+                .border_style(BLACK)
+                .background_style(WHITE.mix(0.9))
+                .label_font(("sans-serif", 14))
+                .draw();
+        }
+        let _ = root.present();
+    }
+    out.replacen(
+        "<svg ",
+        &format!("<svg id=\"{TRADE_OFF_ID}\" class=\"trade-off\" "),
+        1,
+    )
+}
+
 /// The report's colours: a teal for what passes, a brick red for what fails (told apart in
 /// black and white by the labels beside the bars).
 const PASS: RGBColor = RGBColor(11, 110, 79);
@@ -466,6 +605,39 @@ mod tests {
             "a format without a margin has no point"
         );
         assert!(!sweep_svg(&rows, None).contains("recommended"));
+    }
+
+    #[test]
+    fn the_trade_off_chart_has_two_series_and_one_chosen_point() {
+        use crate::train::eval::HeldOut;
+        use crate::train::operating_point::{Target, choose};
+        let held: Vec<HeldOut> = (0..200)
+            .map(|unit| {
+                let go = unit % 2 == 0;
+                let spread = (unit / 2) as f64 / 100.0;
+                HeldOut {
+                    unit,
+                    distance: if go { spread - 0.1 } else { 0.1 - spread },
+                    go,
+                    fault: false,
+                }
+            })
+            .collect();
+        let target = Target::RecheckBudget {
+            share: 0.05,
+            false_go_weight: 2.0,
+        };
+        let op = choose(&held, target, 1.0, "test".into()).unwrap();
+        let svg = trade_off_svg(&OperatingPointRecord::new(&op, 1.0));
+        assert!(svg.starts_with("<svg id=\"trade-off-chart\" class=\"trade-off\" "));
+        assert!(svg.contains("false GO (% of 100 NO-GO units)"));
+        assert!(svg.contains("false NO-GO (% of 100 GO units)"));
+        assert!(svg.contains("RECHECK, % of the 200 held-out units"));
+        assert_eq!(svg.matches("chosen: threshold").count(), 1);
+        for size in svg.split("font-size=\"").skip(1) {
+            let px: f64 = size.split('"').next().unwrap().parse().unwrap();
+            assert!(px >= 11.0, "font size {px}");
+        }
     }
 
     #[test]

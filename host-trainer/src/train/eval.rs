@@ -5,8 +5,9 @@ use serde::Serialize;
 
 use crate::ingest::dataset::Dataset;
 use crate::train::linear::Linear;
-use crate::train::maxmargin::{SvmConfig, max_margin};
+use crate::train::maxmargin::{ClassWeight, SvmConfig, max_margin};
 use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
+use crate::train::spread::Spread;
 
 /// The trainers `linegate train` offers.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum, Serialize)]
@@ -18,12 +19,17 @@ pub enum TrainerKind {
     Averaged,
     /// Pocket perceptron.
     Pocket,
-    /// Maximum margin: hard when separable, soft (hinge, C) otherwise.
+    /// Soft maximum margin (hinge loss, penalty C) on every log, separable or not, trained
+    /// on each channel's spread over the training units.
     MaxMargin,
+    /// Hard maximum margin, on device-scaled units: only for a separable log, where it is
+    /// the exactly largest gap (it fits every unit, noise included).
+    HardMargin,
 }
 
 impl TrainerKind {
-    /// Every trainer, in report order.
+    /// Every trainer cross-validation compares, in report order (the hard margin only by
+    /// name: on a log that is not separable it has no solution).
     pub const ALL: [Self; 4] = [
         Self::Perceptron,
         Self::Averaged,
@@ -38,6 +44,7 @@ impl TrainerKind {
             Self::Averaged => "averaged",
             Self::Pocket => "pocket",
             Self::MaxMargin => "max-margin",
+            Self::HardMargin => "hard-margin",
         }
     }
 }
@@ -49,10 +56,10 @@ pub struct TrainConfig {
     pub epochs: u32,
     /// Seed.
     pub seed: u64,
-    /// Soft-margin penalty used when the data are not separable.
+    /// Soft-margin penalty C of the maximum-margin trainer.
     pub c: f64,
-    /// Whether the full training log is separable (decides hard vs soft margin).
-    pub separable: bool,
+    /// Multipliers of C per class.
+    pub class_weight: ClassWeight,
 }
 
 /// A trained model and what the trainer reports.
@@ -64,6 +71,8 @@ pub struct Trained {
     pub updates: Option<u64>,
     /// Soft-margin C, if the soft margin was used.
     pub c: Option<f64>,
+    /// The soft margin's objective and the spread it was solved over.
+    pub soft: Option<(f64, Spread)>,
 }
 
 /// Trains one trainer on the units `idx`.
@@ -78,6 +87,7 @@ pub fn train(ds: &Dataset, idx: &[usize], kind: TrainerKind, cfg: TrainConfig) -
             model: r.model,
             updates: Some(r.updates),
             c: None,
+            soft: None,
         }
     };
     match kind {
@@ -85,17 +95,28 @@ pub fn train(ds: &Dataset, idx: &[usize], kind: TrainerKind, cfg: TrainConfig) -
         TrainerKind::Averaged => p(PerceptronKind::Averaged),
         TrainerKind::Pocket => p(PerceptronKind::Pocket),
         TrainerKind::MaxMargin => {
-            let (svm, c) = if cfg.separable {
-                (SvmConfig::hard(), None)
-            } else {
-                (SvmConfig::soft(cfg.c), Some(cfg.c))
-            };
+            let run = max_margin(
+                ds,
+                idx,
+                SvmConfig {
+                    class_weight: cfg.class_weight,
+                    standardise: true,
+                    ..SvmConfig::soft(cfg.c)
+                },
+            );
             Trained {
-                model: max_margin(ds, idx, svm).model,
+                model: run.model,
                 updates: None,
-                c,
+                c: Some(cfg.c),
+                soft: run.objective.zip(run.spread),
             }
         }
+        TrainerKind::HardMargin => Trained {
+            model: max_margin(ds, idx, SvmConfig::hard()).model,
+            updates: None,
+            c: None,
+            soft: None,
+        },
     }
 }
 
@@ -141,7 +162,8 @@ impl Counts {
         )
     }
 
-    fn add(&mut self, o: Counts) {
+    /// Adds another set's counts.
+    pub fn add(&mut self, o: Counts) {
         self.units += o.units;
         self.go_units += o.go_units;
         self.correct += o.correct;
@@ -178,6 +200,41 @@ pub struct EvalRow {
     pub counts: Counts,
     /// Accuracy.
     pub accuracy: f64,
+    /// Each held-out unit's score, in the order of the folds: what the operating point is
+    /// chosen from.
+    #[serde(skip)]
+    pub held_out: Vec<HeldOut>,
+}
+
+/// One unit scored by a model that did not train on it.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct HeldOut {
+    /// The unit's index in its dataset.
+    pub unit: usize,
+    /// Signed distance from the fold model's hyperplane in device-scaled units: score / ‖w‖,
+    /// a unit that models of different scale share.
+    pub distance: f64,
+    /// Whether the unit is GO.
+    pub go: bool,
+    /// Whether the device shows FAULT for it (its score does not decide).
+    pub fault: bool,
+}
+
+/// Every unit of `idx` as scored by `model`, for the operating point.
+pub fn held_out(model: &Linear, ds: &Dataset, idx: &[usize]) -> Vec<HeldOut> {
+    let norm = model.norm();
+    let norm = if norm > 0.0 { norm } else { 1.0 };
+    model
+        .scores(ds, idx)
+        .iter()
+        .zip(idx)
+        .map(|(s, &i)| HeldOut {
+            unit: i,
+            distance: s / norm,
+            go: ds.labels[i] > 0,
+            fault: ds.fault(i).is_some(),
+        })
+        .collect()
 }
 
 /// k-fold cross-validation of each trainer; counts are pooled over the folds. Folds and
@@ -194,7 +251,7 @@ pub fn cross_validate(
     let jobs: Vec<(usize, usize)> = (0..kinds.len())
         .flat_map(|t| (0..folds.len()).map(move |f| (t, f)))
         .collect();
-    let results: Vec<(usize, Counts)> = jobs
+    let results: Vec<(usize, Counts, Vec<HeldOut>)> = jobs
         .par_iter()
         .map(|&(t, f)| {
             let train_idx = Dataset::training_of_fold(&folds, f);
@@ -210,7 +267,11 @@ pub fn cross_validate(
             if let Some(p) = progress {
                 p.inc(1);
             }
-            (t, evaluate(&model, 0.0, ds, &folds[f]))
+            (
+                t,
+                evaluate(&model, 0.0, ds, &folds[f]),
+                held_out(&model, ds, &folds[f]),
+            )
         })
         .collect();
     kinds
@@ -218,13 +279,16 @@ pub fn cross_validate(
         .enumerate()
         .map(|(t, &kind)| {
             let mut total = Counts::default();
-            for (_, c) in results.iter().filter(|(u, _)| *u == t) {
+            let mut scores = Vec::new();
+            for (_, c, h) in results.iter().filter(|(u, _, _)| *u == t) {
                 total.add(*c);
+                scores.extend_from_slice(h);
             }
             EvalRow {
                 trainer: kind,
                 counts: total,
                 accuracy: total.accuracy(),
+                held_out: scores,
             }
         })
         .collect()

@@ -26,7 +26,11 @@ use crate::error::InputError;
 use crate::ingest::SkipReport;
 use crate::ingest::scaling::ChannelScale;
 use crate::ingest::signal_scale::SignalScale;
+use crate::train::c_choice::CChoice;
 use crate::train::linear::{Linear, ThresholdShift};
+use crate::train::maxmargin::ClassWeight;
+use crate::train::operating_point::OperatingPoint;
+use crate::train::spread::Spread;
 
 /// Format tag in every float model file.
 pub const FORMAT: &str = "linegate-float-model";
@@ -62,6 +66,12 @@ pub struct Provenance {
     pub epochs: u32,
     /// Soft-margin penalty, if the soft margin was used.
     pub c: Option<f64>,
+    /// How C was chosen, when cross-validation chose it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub c_choice: Option<CChoice>,
+    /// Multipliers of C per class, when not both 1.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub class_weight: Option<ClassWeight>,
     /// `--max-false-go`, if given.
     pub max_false_go: Option<usize>,
     /// The holdout split taken out of the training log, if any: the model was trained on
@@ -113,6 +123,20 @@ pub struct TrainingSummary {
     pub threshold_shift: Option<ThresholdShift>,
     /// Rows skipped as bad.
     pub skipped: SkipReport,
+    /// The soft margin's objective and the training units' spread it was solved over.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub soft_margin: Option<SoftMargin>,
+}
+
+/// What the soft margin solved, for an outside solver to check.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SoftMargin {
+    /// ½‖w‖² + Σ Cᵢ·max(0, 1 − yᵢ(w·zᵢ + b)) at the solution, over standard scores zᵢ.
+    pub objective: f64,
+    /// Each channel's mean and standard deviation over the training units (device-scaled
+    /// units): zᵢ = (xᵢ − mean) / std.
+    pub spread: Spread,
 }
 
 /// A trained float model with the scaling the device will apply.
@@ -140,6 +164,9 @@ pub struct FloatModel {
     pub bias: f64,
     /// GO when the score exceeds this.
     pub threshold: f64,
+    /// The threshold and RECHECK band chosen from held-out scores, if one was chosen.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub operating_point: Option<OperatingPoint>,
     /// Training figures.
     pub summary: TrainingSummary,
     /// SHA-256 (hex) of this file's JSON with this field empty: a file edited after
@@ -175,6 +202,7 @@ impl FloatModel {
             weights: linear.w.iter().map(|w| w / scale).collect(),
             bias: linear.b / scale,
             threshold: threshold / scale,
+            operating_point: None,
             summary,
             content_sha256: String::new(),
         };
@@ -185,6 +213,15 @@ impl FloatModel {
         }
         m.model_id = m.derive_id();
         m
+    }
+
+    /// Sets the operating point (threshold and RECHECK band, already in this file's score
+    /// units) and derives the id again: the band decides verdicts too.
+    pub fn with_operating_point(mut self, op: OperatingPoint) -> Self {
+        self.threshold = op.threshold;
+        self.operating_point = Some(op);
+        self.model_id = self.derive_id();
+        self
     }
 
     /// Hash of the training inputs and settings and of everything that decides a verdict
@@ -236,6 +273,16 @@ impl FloatModel {
         }
         for v in self.weights.iter().chain([&self.bias, &self.threshold]) {
             h.update(v.to_le_bytes());
+        }
+        // Only models that have them: older models keep the ids they had.
+        if let Some(w) = &p.class_weight {
+            h.update(b"class-weight");
+            h.update(w.go.to_le_bytes());
+            h.update(w.nogo.to_le_bytes());
+        }
+        if let Some(op) = &self.operating_point {
+            h.update(b"band");
+            h.update(op.band.to_le_bytes());
         }
         lower_hex(&h.finalize()[..16])
     }

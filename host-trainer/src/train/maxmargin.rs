@@ -17,6 +17,7 @@ use rayon::prelude::*;
 
 use crate::ingest::dataset::Dataset;
 use crate::train::linear::Linear;
+use crate::train::spread::Spread;
 
 /// Settings of the maximum-margin solver.
 #[derive(Clone, Copy, Debug)]
@@ -27,6 +28,32 @@ pub struct SvmConfig {
     pub tol: f64,
     /// Cap on solver iterations (all rounds together).
     pub max_iter: u64,
+    /// Multipliers of C for GO and NO-GO units: (1, 1) weighs both classes alike.
+    pub class_weight: ClassWeight,
+    /// Train the soft margin on each channel's standard score over the training units
+    /// ([`Spread`]) instead of on device-scaled units; the model comes back over device units.
+    pub standardise: bool,
+}
+
+/// Multipliers of the soft-margin penalty C per class: a unit of a class with weight 3 costs
+/// three times as much inside the margin.
+#[derive(Clone, Copy, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ClassWeight {
+    /// Weight of GO units.
+    pub go: f64,
+    /// Weight of NO-GO units.
+    pub nogo: f64,
+}
+
+impl ClassWeight {
+    /// Both classes alike.
+    pub const EVEN: Self = Self { go: 1.0, nogo: 1.0 };
+
+    /// The weight of a unit labelled `y` (±1).
+    fn of(self, y: f64) -> f64 {
+        if y > 0.0 { self.go } else { self.nogo }
+    }
 }
 
 impl SvmConfig {
@@ -36,15 +63,19 @@ impl SvmConfig {
             c: f64::INFINITY,
             tol: 1e-10,
             max_iter: 20_000_000,
+            class_weight: ClassWeight::EVEN,
+            standardise: false,
         }
     }
 
-    /// A soft-margin solver with penalty `c`.
+    /// A soft-margin solver with penalty `c` on device-scaled units, both classes alike.
     pub fn soft(c: f64) -> Self {
         Self {
             c,
             tol: 1e-8,
             max_iter: 20_000_000,
+            class_weight: ClassWeight::EVEN,
+            standardise: false,
         }
     }
 }
@@ -63,6 +94,11 @@ pub struct SvmRun {
     pub converged: bool,
     /// Geometric margin 1/‖w‖ (for the hard margin: the maximum margin γ*).
     pub margin: f64,
+    /// The soft margin's primal objective ½‖w‖² + Σ Cᵢξᵢ in the space it was solved in
+    /// (standard scores when `spread` is set); `None` for the hard margin.
+    pub objective: Option<f64>,
+    /// The training units' spread the soft margin was solved over, if standardised.
+    pub spread: Option<Spread>,
 }
 
 /// What the hard-margin solver has proved after one working-set round on a large log.
@@ -103,19 +139,39 @@ struct Work {
     d: usize,
     x: Vec<f64>,
     y: Vec<f64>,
+    /// Each unit's upper bound on α: C times its class's weight.
+    cap: Vec<f64>,
     alpha: Vec<f64>,
     idx: Vec<usize>,
+    spread: Option<Spread>,
+    c: f64,
+    weight: ClassWeight,
 }
 
 impl Work {
+    /// Unit `i`'s row as the solver sees it (standard scores when training by spread).
+    fn row_of(&self, ds: &Dataset, i: usize, out: &mut [f64]) {
+        ds.scaled_row(i, out);
+        if let Some(sp) = &self.spread {
+            sp.apply(out);
+        }
+    }
+
     fn push(&mut self, ds: &Dataset, i: usize) {
-        let start = self.x.len();
-        self.x.resize(start + self.d, 0.0);
-        ds.scaled_row(i, &mut self.x[start..]);
-        self.y.push(ds.y(i));
+        let mut row = vec![0.0; self.d];
+        self.row_of(ds, i, &mut row);
+        self.x.extend_from_slice(&row);
+        let y = ds.y(i);
+        self.y.push(y);
+        self.cap.push(self.cap_for(y));
         self.alpha.push(0.0);
         self.idx.push(i);
     }
+    /// The cap of a unit labelled `y`.
+    fn cap_for(&self, y: f64) -> f64 {
+        self.c * self.weight.of(y)
+    }
+
     fn row(&self, t: usize) -> &[f64] {
         &self.x[t * self.d..(t + 1) * self.d]
     }
@@ -149,13 +205,20 @@ pub fn max_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
     if cfg.c.is_infinite() {
         return hard_margin(ds, idx, cfg.max_iter);
     }
+    if idx.len() > SMO_LIMIT {
+        return large_soft_margin(ds, idx, cfg);
+    }
     let d = ds.dim();
     let mut work = Work {
         d,
         x: Vec::new(),
         y: Vec::new(),
+        cap: Vec::new(),
         alpha: Vec::new(),
         idx: Vec::new(),
+        spread: cfg.standardise.then(|| Spread::of(ds, idx)),
+        c: cfg.c,
+        weight: cfg.class_weight,
     };
     let mut in_set = vec![false; ds.len()];
     for i in initial(ds, idx, 2000) {
@@ -185,7 +248,7 @@ pub fn max_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
             .iter()
             .filter(|&&i| !in_set[i])
             .filter_map(|&i| {
-                ds.scaled_row(i, &mut x);
+                work.row_of(ds, i, &mut x);
                 let m = ds.y(i) * (dot(&w, &x) + b);
                 (m < 1.0 - 1e-9).then_some((m, i))
             })
@@ -206,7 +269,18 @@ pub fn max_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
         .filter(|(a, _)| **a > 0.0)
         .map(|(a, &i)| (i, *a))
         .collect();
-    let model = Linear { w, b };
+    let trained = Linear { w, b };
+    let objective = Some(primal_objective(
+        ds,
+        idx,
+        &trained,
+        &cfg,
+        work.spread.as_ref(),
+    ));
+    let model = match &work.spread {
+        Some(sp) => sp.to_device(&trained),
+        None => trained,
+    };
     let margin = 1.0 / model.norm();
     SvmRun {
         model,
@@ -214,7 +288,61 @@ pub fn max_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
         iterations,
         converged,
         margin,
+        objective,
+        spread: work.spread,
     }
+}
+
+/// Largest log the soft margin solves by SMO on a working set; above it, by dual coordinate
+/// descent ([`crate::train::soft_dual`]), whose cost grows with the units, not with the
+/// units inside the margin squared.
+pub const SMO_LIMIT: usize = 2_000;
+
+fn large_soft_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
+    let spread = cfg.standardise.then(|| Spread::of(ds, idx));
+    let (trained, iterations, converged) = crate::train::soft_dual::solve(
+        ds,
+        idx,
+        (cfg.c * cfg.class_weight.go, cfg.c * cfg.class_weight.nogo),
+        spread.as_ref(),
+    );
+    let objective = Some(primal_objective(ds, idx, &trained, &cfg, spread.as_ref()));
+    let model = match &spread {
+        Some(sp) => sp.to_device(&trained),
+        None => trained,
+    };
+    SvmRun {
+        margin: 1.0 / model.norm(),
+        model,
+        support: Vec::new(),
+        iterations,
+        converged,
+        objective,
+        spread,
+    }
+}
+
+/// ½‖w‖² + Σ Cᵢ·max(0, 1 − yᵢ(w·xᵢ + b)) over every unit of `idx`, in the space the solver
+/// worked in: the figure an outside solver of the same problem must reach.
+fn primal_objective(
+    ds: &Dataset,
+    idx: &[usize],
+    m: &Linear,
+    cfg: &SvmConfig,
+    spread: Option<&Spread>,
+) -> f64 {
+    let mut x = vec![0.0; ds.dim()];
+    let mut hinge = 0.0;
+    for &i in idx {
+        ds.scaled_row(i, &mut x);
+        if let Some(sp) = spread {
+            sp.apply(&mut x);
+        }
+        let y = ds.y(i);
+        let slack = (1.0 - y * m.score(&x)).max(0.0);
+        hinge += cfg.c * cfg.class_weight.of(y) * slack;
+    }
+    0.5 * dot(&m.w, &m.w) + hinge
 }
 
 /// SMO on the working set, warm-started from its α. Returns (iterations, converged).
@@ -222,7 +350,6 @@ pub fn max_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
 #[allow(clippy::needless_range_loop)]
 fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64) -> (u64, bool) {
     let n = work.y.len();
-    let c = cfg.c;
     // w from α (warm start keeps α of earlier rounds).
     w.iter_mut().for_each(|v| *v = 0.0);
     for t in 0..n {
@@ -238,14 +365,15 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
         .map(|t| work.y[t] * dot(w, work.row(t)) - 1.0)
         .collect();
     let kdiag: Vec<f64> = (0..n).map(|t| dot(work.row(t), work.row(t))).collect();
-    let up = |a: f64, y: f64| if y > 0.0 { a < c } else { a > 0.0 };
-    let low = |a: f64, y: f64| if y > 0.0 { a > 0.0 } else { a < c };
+    let cap = work.cap.clone();
+    let up = |t: usize, a: f64, y: f64| if y > 0.0 { a < cap[t] } else { a > 0.0 };
+    let low = |t: usize, a: f64, y: f64| if y > 0.0 { a > 0.0 } else { a < cap[t] };
     let mut iter = 0u64;
     let converged = loop {
         // i: maximal −y·G over I_up.
         let (mut gmax, mut i) = (f64::NEG_INFINITY, usize::MAX);
         for t in 0..n {
-            if up(work.alpha[t], work.y[t]) && -work.y[t] * g[t] >= gmax {
+            if up(t, work.alpha[t], work.y[t]) && -work.y[t] * g[t] >= gmax {
                 gmax = -work.y[t] * g[t];
                 i = t;
             }
@@ -255,7 +383,7 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
         if i != usize::MAX {
             let xi = work.row(i).to_vec();
             for t in 0..n {
-                if !low(work.alpha[t], work.y[t]) {
+                if !low(t, work.alpha[t], work.y[t]) {
                     continue;
                 }
                 let v = work.y[t] * g[t];
@@ -282,7 +410,10 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
         let (ai, aj) = (work.alpha[i], work.alpha[j]);
         let kij = dot(work.row(i), work.row(j));
         let quad = (kdiag[i] + kdiag[j] - 2.0 * kij).max(1e-12);
+        let (ci, cj) = (cap[i], cap[j]);
         let (mut ni, mut nj);
+        // The two-variable step with each unit's own cap (the class weights give GO and
+        // NO-GO units different caps).
         if yi != yj {
             let delta = (-g[i] - g[j]) / quad;
             let diff = ai - aj;
@@ -297,34 +428,38 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
                 ni = 0.0;
                 nj = -diff;
             }
-            if diff > 0.0 {
-                if ni > c {
-                    ni = c;
-                    nj = c - diff;
+            if diff > ci - cj {
+                if ni > ci {
+                    ni = ci;
+                    nj = ci - diff;
                 }
-            } else if nj > c {
-                nj = c;
-                ni = c + diff;
+            } else if nj > cj {
+                nj = cj;
+                ni = cj + diff;
             }
         } else {
             let delta = (g[i] - g[j]) / quad;
             let sum = ai + aj;
             ni = ai - delta;
             nj = aj + delta;
-            // The sum stays fixed; clip one of the pair into [0, c], then the other.
-            let clip = |a: &mut f64, b: &mut f64| {
-                if sum > c {
-                    if *a > c {
-                        *a = c;
-                        *b = sum - c;
-                    }
-                } else if *b < 0.0 {
-                    *b = 0.0;
-                    *a = sum;
+            if sum > ci {
+                if ni > ci {
+                    ni = ci;
+                    nj = sum - ci;
                 }
-            };
-            clip(&mut ni, &mut nj);
-            clip(&mut nj, &mut ni);
+            } else if nj < 0.0 {
+                nj = 0.0;
+                ni = sum;
+            }
+            if sum > cj {
+                if nj > cj {
+                    nj = cj;
+                    ni = sum - cj;
+                }
+            } else if ni < 0.0 {
+                ni = 0.0;
+                nj = sum;
+            }
         }
         let (di, dj) = ((ni - ai) * yi, (nj - aj) * yj);
         work.alpha[i] = ni;
@@ -348,10 +483,10 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
     for t in 0..n {
         let yg = work.y[t] * g[t];
         let a = work.alpha[t];
-        if a > 0.0 && a < c {
+        if a > 0.0 && a < cap[t] {
             sum += yg;
             free += 1;
-        } else if (work.y[t] > 0.0) == (a >= c) {
+        } else if (work.y[t] > 0.0) == (a >= cap[t]) {
             lb = lb.max(yg);
         } else {
             ub = ub.min(yg);
@@ -536,6 +671,8 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
             iterations: 0,
             converged: false,
             margin: 0.0,
+            objective: None,
+            spread: None,
         };
     };
     let sc = ds.scaler();
@@ -667,6 +804,8 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
             iterations: out.iterations,
             converged: false,
             margin: 0.0,
+            objective: None,
+            spread: None,
         };
     }
     // w = 2(p − q)/‖p − q‖² puts p and q at scores ±1; the boundary bisects them.
@@ -700,6 +839,8 @@ fn hard_margin(ds: &Dataset, idx: &[usize], max_iter: u64) -> SvmRun {
         iterations: out.iterations,
         converged,
         margin: upper,
+        objective: None,
+        spread: None,
     }
 }
 

@@ -6,9 +6,13 @@
 //! hyperplane splits the classes; [`eval`] runs trainers on holdout logs and k folds;
 //! [`float_model`] is the file that carries the trained model to the release step.
 
+pub mod c_choice;
 pub mod eval;
 pub mod float_model;
 pub mod linear;
 pub mod maxmargin;
+pub mod operating_point;
 pub mod perceptron;
 pub mod separability;
+pub mod soft_dual;
+pub mod spread;

@@ -175,3 +175,139 @@ fn a_failed_audit_page_looks_failed_and_a_passed_one_does_not() {
         }
     }
 }
+
+/// Measures, in the browser, every label of the trade-off chart as laid out: appended to
+/// the page as a script, it writes what it found into a `<pre id="probe">`.
+const LABEL_PROBE: &str = r#"<script>
+(() => {
+  const out = document.createElement('pre');
+  out.id = 'probe';
+  const svg = document.getElementById('trade-off-chart');
+  if (!svg) { out.textContent = 'no chart'; document.body.appendChild(out); return; }
+  const r = svg.getBoundingClientRect();
+  const boxes = [...svg.querySelectorAll('text')]
+    .filter(t => t.textContent.trim() !== '')
+    .map(t => ({ t: t.textContent.trim(), b: t.getBoundingClientRect() }));
+  const bad = [];
+  // One pixel of slack: the glyph boxes of neighbouring tick labels may touch.
+  for (let i = 0; i < boxes.length; i++) {
+    for (let j = i + 1; j < boxes.length; j++) {
+      const a = boxes[i].b, b = boxes[j].b;
+      if (a.left < b.right - 1 && b.left < a.right - 1 && a.top < b.bottom - 1 && b.top < a.bottom - 1) {
+        bad.push(boxes[i].t + ' / ' + boxes[j].t);
+      }
+    }
+  }
+  const outside = boxes
+    .filter(x => x.b.left < r.left - 1 || x.b.right > r.right + 1 || x.b.top < r.top - 1 || x.b.bottom > r.bottom + 1)
+    .map(x => x.t);
+  out.textContent = 'size ' + Math.round(r.width) + 'x' + Math.round(r.height) + '; labels ' + boxes.length
+    + '; overlaps: ' + (bad.join(' | ') || 'none') + '; outside: ' + (outside.join(' | ') || 'none') + ';';
+  document.body.appendChild(out);
+})();
+</script>"#;
+
+/// A model with an operating point: its page shows the trade-off chart (id
+/// `trade-off-chart`) inside the "Operating point" section, with both series in its legend
+/// and the chosen point labelled, and the browser lays it out with no two labels
+/// overlapping and none outside the chart.
+#[test]
+fn a_model_with_an_operating_point_shows_its_trade_off_chart() {
+    use host_trainer::ingest::LogOptions;
+    use host_trainer::release::audit::{self, AuditConfig};
+    use host_trainer::release::quantise::QuantConfig;
+    use host_trainer::train::eval::HeldOut;
+    use host_trainer::train::float_model::FloatModel;
+    use host_trainer::train::operating_point::{Target, choose};
+    let Some(bin) = chromium() else {
+        crate::skip_or_fail(
+            "trade-off chart in a browser",
+            "Chromium is not installed (apt-get install chromium)",
+        );
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path().join("demo");
+    host_trainer::demo::run(&d, false).unwrap();
+    let fm = FloatModel::read(&d.join("model.json")).unwrap();
+    let train = host_trainer::workflow::load_for_model(
+        &d.join("train-synthetic.csv"),
+        &LogOptions::default(),
+        &fm,
+    )
+    .unwrap();
+    // Held-out scores whose classes overlap around 0, two GO units FAULT.
+    let held: Vec<HeldOut> = (0..400)
+        .map(|unit| {
+            let go = unit % 2 == 0;
+            let spread = (unit / 2) as f64 / 200.0;
+            HeldOut {
+                unit,
+                distance: if go { spread - 0.15 } else { 0.15 - spread } * 1e-3,
+                go,
+                fault: go && unit % 200 == 0,
+            }
+        })
+        .collect();
+    let target = Target::RecheckBudget {
+        share: 0.05,
+        false_go_weight: 2.0,
+    };
+    let op = choose(&held, target, 1.0, "synthetic held-out scores".into()).unwrap();
+    let qc = QuantConfig {
+        recheck_band: op.band,
+        ..QuantConfig::default()
+    };
+    let fm = fm.with_operating_point(op);
+    let (_, r) = audit::release(&fm, &train, &[], qc, &[], AuditConfig::default()).unwrap();
+    let md = host_trainer::report::markdown(&fm, &r, None);
+    let html = host_trainer::report::html(&fm, &r, None, &md);
+    let page = dir.path().join("operating-point.html");
+    std::fs::write(
+        &page,
+        html.replace("</body>", &format!("{LABEL_PROBE}</body>")),
+    )
+    .unwrap();
+    let dom = headless(bin, &page, &["--dump-dom".into()]);
+    assert!(dom.status.success(), "chromium --dump-dom failed");
+    let err = String::from_utf8_lossy(&dom.stderr);
+    for bad in ["Uncaught", "net::ERR_", "Failed to load resource"] {
+        assert!(!err.contains(bad), "the page loads without errors: {err}");
+    }
+    let text = String::from_utf8_lossy(&dom.stdout);
+    let section = text
+        .find("<h2>Operating point</h2>")
+        .expect("an Operating point section");
+    let chart = text
+        .find("id=\"trade-off-chart\"")
+        .expect("the trade-off chart");
+    let next = text[section + 4..]
+        .find("<h2>")
+        .map_or(text.len(), |k| section + 4 + k);
+    assert!(
+        section < chart && chart < next,
+        "the chart is in its section"
+    );
+    let svg = &text[chart..chart + text[chart..].find("</svg>").unwrap()];
+    for label in [
+        "false GO (% of 200 NO-GO units)",
+        "false NO-GO (% of 200 GO units)",
+        "chosen: threshold",
+    ] {
+        assert!(svg.contains(label), "{label} on the chart");
+    }
+    let probe = text
+        .split("<pre id=\"probe\">")
+        .nth(1)
+        .and_then(|p| p.split("</pre>").next())
+        .expect("the probe ran");
+    assert!(
+        probe.starts_with("size 800x420;"),
+        "drawn at its size: {probe}"
+    );
+    assert!(probe.contains("overlaps: none;"), "labels overlap: {probe}");
+    assert!(
+        probe.contains("outside: none;"),
+        "labels outside the chart: {probe}"
+    );
+}

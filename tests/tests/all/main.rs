@@ -12,6 +12,7 @@ mod images;
 mod quantisation;
 mod reference;
 mod signing;
+mod soft_margin;
 mod verifier;
 
 /// Prints a loud SKIPPED line, or fails when running in CI (CI=true), where every tool must be present.

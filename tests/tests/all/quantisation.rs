@@ -57,23 +57,23 @@ proptest! {
     }
 }
 
-/// A float model on `pts` trained by max-margin, for the quantiser tests.
+/// A float model on `pts` trained by the hard margin (every caller's points are separable),
+/// for the quantiser tests.
 fn trained(
     pts: &[Vec<f64>],
     labels: &[i8],
 ) -> (host_trainer::train::float_model::FloatModel, Dataset) {
     let ds = Dataset::from_scaled(pts, labels);
     let req = TrainRequest {
-        trainer: TrainerKind::MaxMargin,
         epochs: 100,
         seed: 1,
-        c: 10.0,
+        c: host_trainer::train::c_choice::CPolicy::Fixed(10.0),
         max_false_go: None,
         folds: 0,
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
-        holdout_split: None,
-        progress: false,
         figures: host_trainer::train::separability::Figures::ALL,
+        target: None,
+        ..TrainRequest::new(TrainerKind::HardMargin)
     };
     (train_model(&ds, None, &req).unwrap().model, ds)
 }

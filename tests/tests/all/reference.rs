@@ -312,16 +312,17 @@ fn a_false_go_cap_of_zero_keeps_every_nogo_unit_strictly_nogo_in_float_and_fixed
     // the threshold past every one of them, with room for rounding.
     let ds = iris_pair(1, 2);
     let req = host_trainer::workflow::TrainRequest {
-        trainer: host_trainer::train::eval::TrainerKind::MaxMargin,
         epochs: 100,
         seed: 1,
-        c: 1.0,
+        c: host_trainer::train::c_choice::CPolicy::Fixed(1.0),
         max_false_go: Some(0),
         folds: 0,
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
-        holdout_split: None,
-        progress: false,
         figures: host_trainer::train::separability::Figures::ALL,
+        target: None,
+        ..host_trainer::workflow::TrainRequest::new(
+            host_trainer::train::eval::TrainerKind::MaxMargin,
+        )
     };
     let fm = host_trainer::workflow::train_model(&ds, None, &req)
         .unwrap()

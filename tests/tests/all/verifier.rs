@@ -48,16 +48,15 @@ fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c
     let opts = LogOptions::default();
     let (ds, sheet) = workflow::load(train, &opts, sheet).unwrap();
     let req = TrainRequest {
-        trainer: TrainerKind::MaxMargin,
         epochs: 100,
         seed: 1,
-        c,
+        c: host_trainer::train::c_choice::CPolicy::Fixed(c),
         max_false_go: None,
         folds: 0,
         cv_trainers: host_trainer::workflow::CvTrainers::Auto,
-        holdout_split: None,
-        progress: false,
         figures: host_trainer::train::separability::Figures::ALL,
+        target: None,
+        ..TrainRequest::new(TrainerKind::MaxMargin)
     };
     let fm = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)
         .unwrap()
