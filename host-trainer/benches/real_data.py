@@ -2,7 +2,10 @@
 """Real-data benchmark: Linegate's default flow against scikit-learn's linear classifiers.
 
     python3 host-trainer/benches/real_data.py --linegate target/release/linegate \
-        [--seeds 5] [--out table.md] [--verbose]
+        [--seeds 5] [--out table.md] [--verbose] [--train-args "--false-go-weight 3"]
+
+`--train-args` adds flags to every `train` (to compare settings; the table is then not the
+default flow's, and the notes say which flags were used).
 
 What it measures. For each data set and each seed 1..N, a stratified 70/30 split
 (`train_test_split(stratify=y, test_size=0.3, random_state=seed)`). Linegate gets the 70 %
@@ -58,8 +61,8 @@ and the amplitude 2|X_k|/N of the DFT X = rfft(x) at k = 1, 2, 3 (what Linegate'
 fixed-point Goertzel band approximates), so both sides see the same information.
 
 The tabular sets go in as plain bench logs without a sheet (Linegate's default: each
-channel's valid range is the training log's observed range with 10 % headroom, so a test
-reading beyond it is a FAULT, as on a device). Channel names must be at most 24 bytes
+channel's valid range is the training log's observed range widened by half its span on
+each side, so a test reading beyond it is a FAULT, as on a device). Channel names must be at most 24 bytes
 (the blob's NAME_CAPACITY; `train` refuses longer ones): breast cancer's names (spaces
 included, up to 23 bytes) are kept; wine has 'od280/od315_of_diluted_wines' (28 bytes),
 so wine's 13 channels are renamed c01..c13 in scikit-learn's feature order.
@@ -410,6 +413,8 @@ def main():
         f"verdict 'meets': LG FG <= better ref FG, LG errors <= better ref errors, RECHECK <= {RECHECK_LIMIT:.0%} of units.",
     ]
     notes += [f"{ds.name}: {ds.note}" for ds in sets if ds.note]
+    if TRAIN_ARGS:
+        notes.append(f"train ran with {' '.join(TRAIN_ARGS)}: not the default flow")
     if missing:
         notes.append(missing)
     for r in rows:

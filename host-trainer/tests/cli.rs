@@ -1367,3 +1367,131 @@ fn inspect_shows_a_signal_blob_and_replay_says_it_reads_readings_only() {
         "{err}"
     );
 }
+
+/// 240 units of two overlapping classes in three channels (a fixed pattern, no randomness):
+/// no hyperplane separates them.
+fn overlapping_log(dir: &Path) -> PathBuf {
+    let mut s = String::from("unit,a,b,c,label\n");
+    for k in 0..240u32 {
+        let go = k % 2 == 0;
+        let t = f64::from(k * 37 % 101) / 100.0;
+        let u = f64::from(k * 53 % 97) / 96.0;
+        let shift = if go { 0.25 } else { -0.25 };
+        let a = t + shift;
+        let b = u - shift * 0.5;
+        let c = (t * 3.0).sin() + f64::from(k % 7) * 0.01;
+        let l = if go { "GO" } else { "NO-GO" };
+        s.push_str(&format!("u{k},{a:.4},{b:.4},{c:.4},{l}\n"));
+    }
+    write(dir, "overlap.csv", s.as_bytes())
+}
+
+#[test]
+fn the_soft_margin_chooses_c_and_an_operating_point_and_the_audit_uses_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    overlapping_log(d);
+    // The hard margin by name is refused on a log no hyperplane separates.
+    let o = linegate(
+        &[
+            "train",
+            "overlap.csv",
+            "--trainer",
+            "hard-margin",
+            "-o",
+            "h.json",
+        ],
+        d,
+    );
+    let err = exits(&o, 2);
+    assert!(
+        err.contains("hard-margin") && err.contains("max-margin"),
+        "{err}"
+    );
+    assert!(!d.join("h.json").exists());
+    // The default: C searched, an operating point chosen, both said and kept. Two values
+    // of C and one trainer in the table keep the debug build's run short; the default grid
+    // is in the outside check (tests/verify/soft_margin.py).
+    let o = linegate(
+        &[
+            "train",
+            "overlap.csv",
+            "-o",
+            "m.json",
+            "--cv-output",
+            "folds.csv",
+            "--c-grid",
+            "0.1,1",
+            "--cv-trainers",
+            "chosen",
+        ],
+        d,
+    );
+    exits(&o, 0);
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        out.contains("← chosen") && out.contains("operating point:"),
+        "{out}"
+    );
+    let m: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(d.join("m.json")).unwrap()).unwrap();
+    let choice = &m["provenance"]["c_choice"];
+    let rows = choice["rows"].as_array().unwrap();
+    assert_eq!(rows.len(), 2);
+    // The chosen C is the cheapest row, the largest of equal costs.
+    let cost = |r: &serde_json::Value| r["cost"].as_f64().unwrap();
+    let min = rows.iter().map(cost).fold(f64::INFINITY, f64::min);
+    let largest = rows
+        .iter()
+        .filter(|r| cost(r) == min)
+        .map(|r| r["c"].as_f64().unwrap())
+        .fold(0.0, f64::max);
+    assert_eq!(choice["chosen"].as_f64().unwrap(), largest);
+    assert_eq!(m["provenance"]["c"].as_f64().unwrap(), largest);
+    let op = &m["operating_point"];
+    assert_eq!(op["threshold"], m["threshold"]);
+    let recheck = op["counts"]["recheck_go"].as_u64().unwrap()
+        + op["counts"]["recheck_nogo"].as_u64().unwrap();
+    assert!(recheck as f64 <= 0.05 * op["units"].as_f64().unwrap());
+    // Every unit in each repeat's folds exactly once.
+    let folds = std::fs::read_to_string(d.join("folds.csv")).unwrap();
+    let repeats = choice["repeats"].as_u64().unwrap() as usize;
+    assert_eq!(folds.lines().count(), 1 + 240 * repeats);
+    // The audit takes the model's band and says where its default gates came from.
+    let o = linegate(
+        &[
+            "audit",
+            "--model",
+            "m.json",
+            "--train",
+            "overlap.csv",
+            "--json",
+        ],
+        d,
+    );
+    let stderr = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        stderr.contains("from the model's operating point"),
+        "{stderr}"
+    );
+    let a: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(a["audit"]["recheck_band"], op["band"]);
+    // A false-GO target the held-out NO-GO units cannot show is refused, with the units needed.
+    let o = linegate(
+        &[
+            "train",
+            "overlap.csv",
+            "--false-go-target",
+            "0.1%@95%",
+            "--c",
+            "1",
+            "--cv-trainers",
+            "chosen",
+            "-o",
+            "t.json",
+        ],
+        d,
+    );
+    let err = exits(&o, 2);
+    assert!(err.contains("2995"), "{err}");
+}

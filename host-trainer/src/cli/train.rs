@@ -363,6 +363,9 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
     }
     if !o.cross_validation.is_empty() {
         say!(
+            "cross-validation (each unit decided by a model that did not train on it, threshold 0):"
+        );
+        say!(
             "{:<12} {:>9} {:>9} {:>12}",
             "trainer",
             "accuracy",

@@ -71,11 +71,16 @@ impl Limit {
 
 impl std::fmt::Display for Limit {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        // A share as a person writes it: 0.1003 is "10.03", not 10.030000000000001.
+        let pct = |v: f64| {
+            let t = format!("{:.6}", v * 100.0);
+            t.trim_end_matches('0').trim_end_matches('.').to_string()
+        };
         match self {
             Self::Count(c) => write!(f, "{c}"),
-            Self::Rate(r) => write!(f, "{}%", r * 100.0),
+            Self::Rate(r) => write!(f, "{}%", pct(*r)),
             Self::Upper { rate, confidence } => {
-                write!(f, "{}% at {}% confidence", rate * 100.0, confidence * 100.0)
+                write!(f, "{}% at {}% confidence", pct(*rate), pct(*confidence))
             }
         }
     }

@@ -208,6 +208,31 @@ pub fn max_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
     if idx.len() > SMO_LIMIT {
         return large_soft_margin(ds, idx, cfg);
     }
+    // SMO crawls when C is large and the classes overlap (hundreds of thousands of pair
+    // steps on a few hundred units); past a budget in proportion to the units, the Newton
+    // solve takes over.
+    let budget = cfg
+        .max_iter
+        .min(SMO_STEPS_PER_UNIT * idx.len() as u64 + 2_000);
+    let run = smo_margin(
+        ds,
+        idx,
+        SvmConfig {
+            max_iter: budget,
+            ..cfg
+        },
+    );
+    if run.converged {
+        return run;
+    }
+    large_soft_margin(ds, idx, cfg)
+}
+
+/// SMO pair steps allowed per unit before the Newton solve takes over.
+const SMO_STEPS_PER_UNIT: u64 = 50;
+
+/// The soft margin by SMO on a growing working set.
+fn smo_margin(ds: &Dataset, idx: &[usize], cfg: SvmConfig) -> SvmRun {
     let d = ds.dim();
     let mut work = Work {
         d,
