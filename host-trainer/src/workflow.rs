@@ -80,7 +80,7 @@ pub fn load_for_model(
 
 /// What to train.
 #[derive(Clone, Debug)]
-pub struct TrainRequest {
+pub struct TrainRequest<'a> {
     /// Trainer.
     pub trainer: TrainerKind,
     /// Epochs, seed, soft-margin C.
@@ -105,7 +105,7 @@ pub struct TrainRequest {
     pub cv_trainers: CvTrainers,
     /// The units held out of the training log (`--holdout-fraction`, `--holdout-after`):
     /// the operating point is chosen on their scores when there is no cross-validation.
-    pub point_holdout: Option<Dataset>,
+    pub point_holdout: Option<&'a Dataset>,
     /// The holdout taken out of the training log before `ds` was formed, if any (recorded in
     /// the model's provenance).
     pub holdout_split: Option<crate::train::float_model::HoldoutSplit>,
@@ -116,7 +116,7 @@ pub struct TrainRequest {
     pub figures: Figures,
 }
 
-impl TrainRequest {
+impl TrainRequest<'_> {
     /// `trainer` with the CLI's defaults: C searched over the default grid on 5 folds, the
     /// default false-GO weight and RECHECK budget, seed 1, no holdout, no progress bar.
     pub fn new(trainer: TrainerKind) -> Self {
@@ -213,7 +213,7 @@ impl TrainOutcome {
 pub fn train_model(
     ds: &Dataset,
     sheet: Option<&InputFile>,
-    req: &TrainRequest,
+    req: &TrainRequest<'_>,
 ) -> Result<TrainOutcome, InputError> {
     let idx = ds.all();
     // The classic perceptron's training run is the run the check would show: made once.
@@ -311,13 +311,10 @@ pub fn train_model(
         });
     }
     let cross_validation = if req.folds >= 2 {
-        let on_whole_log = searched
-            .as_ref()
-            .is_some_and(|(c, _)| c.searched_units == ds.len());
         let mut kinds = req.cv_trainers.kinds(ds.len(), req.trainer);
         // The search's row at the chosen C is this trainer's cross-validation already.
         if let Some((_, row)) = &searched {
-            kinds.retain(|k| *k != TrainerKind::MaxMargin || !on_whole_log && *k != req.trainer);
+            kinds.retain(|k| *k != TrainerKind::MaxMargin);
             let mut rows = cross_validate_with_bar(ds, req, cfg, &kinds);
             rows.push(row.clone());
             rows.sort_by_key(|r| TrainerKind::ALL.iter().position(|k| *k == r.trainer));
@@ -359,7 +356,7 @@ pub fn train_model(
                     )
                 })
                 .or_else(|| {
-                    req.point_holdout.as_ref().map(|h| {
+                    req.point_holdout.map(|h| {
                         (
                             held_out(&t.model, h, &h.all()),
                             format!("the holdout's scores ({} units)", h.len()),
@@ -447,7 +444,7 @@ pub fn train_model(
 
 /// A progress bar for `jobs` trainings on a log of `units` units, on large logs only.
 fn training_bar(
-    req: &TrainRequest,
+    req: &TrainRequest<'_>,
     units: usize,
     jobs: u64,
     what: &str,
@@ -465,7 +462,7 @@ fn training_bar(
 
 fn cross_validate_with_bar(
     ds: &Dataset,
-    req: &TrainRequest,
+    req: &TrainRequest<'_>,
     cfg: TrainConfig,
     kinds: &[TrainerKind],
 ) -> Vec<EvalRow> {

@@ -386,10 +386,13 @@ fn default_gates(
     fm: &FloatModel,
     band: f64,
 ) -> ((Limit, Limit, Limit), Vec<String>) {
-    use host_trainer::confidence::{DEFAULT_CONFIDENCE, Rate};
+    use host_trainer::confidence::Rate;
+    use host_trainer::release::point_record::HeldOutRates;
     use host_trainer::train::operating_point::Target;
     let mut said = Vec::new();
     let op = fm.operating_point.as_ref();
+    // The held-out rates the model's point was chosen on, as the report states them.
+    let rates = op.map(|op| HeldOutRates::new(&op.counts, op));
     // Rounded up to 0.01 %: a gate that reads cleanly and is never below the bound.
     let up = |r: f64| (r * 1e4).ceil() / 1e4;
     if let (None, Some(op)) = (r.recheck_band, op) {
@@ -398,18 +401,13 @@ fn default_gates(
             op.source
         ));
     }
-    let fg = match (r.max_false_go, op) {
+    let fg = match (r.max_false_go, op.zip(rates.as_ref())) {
         (Some(l), _) => l,
         (None, None) => Limit::Count(0),
-        (None, Some(op)) => {
+        (None, Some((op, rates))) => {
             let l = match op.target {
                 Target::FalseGo { rate, confidence } => Limit::Upper { rate, confidence },
-                Target::RecheckBudget { .. } => Limit::Rate(up(Rate::new(
-                    op.counts.false_go as u64,
-                    op.nogo_units as u64,
-                    DEFAULT_CONFIDENCE,
-                )
-                .upper)),
+                Target::RecheckBudget { .. } => Limit::Rate(up(rates.false_go.upper)),
             };
             said.push(format!(
                 "false-GO gate {l} of each log's NO-GO units ({}: {} false GO among {} held-out NO-GO units); --max-false-go sets another",
@@ -424,17 +422,19 @@ fn default_gates(
         }
     };
     // At least the fixed default, or what train measured on held-out units if higher.
-    let mut measured = |given: Option<Limit>, floor: f64, k: usize, of: usize, what: &str| match (
-        given, op,
+    let mut measured = |given: Option<Limit>, floor: f64, rate: Option<&Rate>, what: &str| match (
+        given, rate,
     ) {
         (Some(l), _) => l,
-        (None, Some(_)) if of > 0 => {
-            let upper = up(Rate::new(k as u64, of as u64, DEFAULT_CONFIDENCE).upper);
+        (None, Some(r)) if r.of > 0 => {
+            let upper = up(r.upper);
             if upper > floor {
                 said.push(format!(
-                        "{what} gate {:.2}% (the 95 % upper bound of the share train measured: {k} of {of} held-out units); a flag sets another",
-                        upper * 100.0
-                    ));
+                    "{what} gate {:.2}% (the 95 % upper bound of the share train measured: {} of {} held-out units); a flag sets another",
+                    upper * 100.0,
+                    r.count,
+                    r.of
+                ));
                 Limit::Rate(upper)
             } else {
                 Limit::Rate(floor)
@@ -442,26 +442,16 @@ fn default_gates(
         }
         _ => Limit::Rate(floor),
     };
-    let (fng_k, go, rc_k, all) = op.map_or((0, 0, 0, 0), |op| {
-        (
-            op.counts.false_nogo,
-            op.go_units,
-            op.counts.recheck(),
-            op.units,
-        )
-    });
     let fng = measured(
         r.max_false_nogo,
         0.01,
-        fng_k,
-        go,
+        rates.as_ref().map(|r| &r.false_nogo),
         "false-NO-GO (of each log's GO units)",
     );
     let recheck = measured(
         r.max_recheck,
         0.05,
-        rc_k,
-        all,
+        rates.as_ref().map(|r| &r.recheck),
         "RECHECK (of each log's units)",
     );
     ((fg, fng, recheck), said)

@@ -11,6 +11,7 @@ use super::args::LogArgs;
 use super::to_json;
 use host_trainer::output::OutputSet;
 use host_trainer::release::audit::Limit;
+use host_trainer::release::point_record::HeldOutRates;
 use host_trainer::train::c_choice::{self, CPolicy};
 use host_trainer::train::eval::TrainerKind;
 use host_trainer::train::maxmargin::ClassWeight;
@@ -220,7 +221,7 @@ impl TrainArgs {
             max_false_go: *max_false_go,
             folds: *folds,
             cv_trainers: *cv_trainers,
-            point_holdout: held.clone(),
+            point_holdout: held.as_ref(),
             holdout_split,
             progress: !quiet && std::io::stderr().is_terminal(),
             figures: host_trainer::train::separability::Figures::VERDICT,
@@ -308,6 +309,7 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
     }
     if let Some(op) = &m.operating_point {
         let c = &op.counts;
+        let rates = HeldOutRates::new(c, op);
         say!(
             "operating point: threshold {:.6}, RECHECK band ±{:.6} (model score units), from {}",
             op.threshold,
@@ -316,30 +318,9 @@ fn print_train(o: &workflow::TrainOutcome, path: &Path) {
         );
         say!(
             "  on those units: false GO {}; false NO-GO {}; RECHECK {} ({} GO, {} NO-GO)",
-            rate_text(
-                &host_trainer::confidence::Rate::new(
-                    c.false_go as u64,
-                    op.nogo_units as u64,
-                    host_trainer::confidence::DEFAULT_CONFIDENCE
-                ),
-                "NO-GO units"
-            ),
-            rate_text(
-                &host_trainer::confidence::Rate::new(
-                    c.false_nogo as u64,
-                    op.go_units as u64,
-                    host_trainer::confidence::DEFAULT_CONFIDENCE
-                ),
-                "GO units"
-            ),
-            rate_text(
-                &host_trainer::confidence::Rate::new(
-                    c.recheck() as u64,
-                    op.units as u64,
-                    host_trainer::confidence::DEFAULT_CONFIDENCE
-                ),
-                "units"
-            ),
+            rate_text(&rates.false_go, "NO-GO units"),
+            rate_text(&rates.false_nogo, "GO units"),
+            rate_text(&rates.recheck, "units"),
             c.recheck_go,
             c.recheck_nogo
         );

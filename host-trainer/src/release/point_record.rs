@@ -5,7 +5,6 @@
 use serde::Serialize;
 
 use crate::confidence::{DEFAULT_CONFIDENCE, Rate};
-use crate::train::c_choice::DEFAULT_FALSE_GO_WEIGHT;
 use crate::train::operating_point::{OperatingPoint, PointCounts, Target};
 
 /// What one point decides on the held-out units, RECHECK split by class and summed.
@@ -143,12 +142,7 @@ impl OperatingPointRecord {
             faults: op.faults,
             counts: HeldOutCounts::from(&op.counts),
             rates: HeldOutRates::new(&op.counts, op),
-            trade_off_false_go_weight: match op.target {
-                Target::RecheckBudget {
-                    false_go_weight, ..
-                } => false_go_weight,
-                Target::FalseGo { .. } => DEFAULT_FALSE_GO_WEIGHT,
-            },
+            trade_off_false_go_weight: op.target.trade_off_weight(),
             trade_off,
         }
     }

@@ -190,13 +190,6 @@ struct Pooled {
     pooled: crate::train::eval::Counts,
 }
 
-impl std::ops::Deref for Pooled {
-    type Target = EvalRow;
-    fn deref(&self) -> &EvalRow {
-        &self.first
-    }
-}
-
 fn pooled(runs: Vec<EvalRow>, units: usize) -> Pooled {
     let mut total = crate::train::eval::Counts::default();
     let mut sum = vec![0.0f64; units];

@@ -390,7 +390,7 @@ fn smo(work: &mut Work, w: &mut [f64], b: &mut f64, cfg: SvmConfig, budget: u64)
         .map(|t| work.y[t] * dot(w, work.row(t)) - 1.0)
         .collect();
     let kdiag: Vec<f64> = (0..n).map(|t| dot(work.row(t), work.row(t))).collect();
-    let cap = work.cap.clone();
+    let cap = &work.cap;
     let up = |t: usize, a: f64, y: f64| if y > 0.0 { a < cap[t] } else { a > 0.0 };
     let low = |t: usize, a: f64, y: f64| if y > 0.0 { a > 0.0 } else { a < cap[t] };
     let mut iter = 0u64;

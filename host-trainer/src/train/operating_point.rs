@@ -54,6 +54,19 @@ pub enum Target {
     },
 }
 
+impl Target {
+    /// The weight of a false GO the trade-off points are priced at: the rule's own, or the
+    /// default for a false-GO target (which prices nothing itself).
+    pub fn trade_off_weight(&self) -> f64 {
+        match *self {
+            Self::RecheckBudget {
+                false_go_weight, ..
+            } => false_go_weight,
+            Self::FalseGo { .. } => crate::train::c_choice::DEFAULT_FALSE_GO_WEIGHT,
+        }
+    }
+}
+
 /// Decision counts of one operating point on the held-out units.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -217,14 +230,7 @@ impl Sorted {
             .collect();
         by_size.sort_by(|a, b| a.0.abs().total_cmp(&b.0.abs()));
         // β = 0: GO above 0, NO-GO at or below it.
-        let go_total = self.go_below[n];
-        let mut c = PointCounts {
-            false_go: by_size.iter().filter(|(v, g)| !g && *v > 0.0).count(),
-            false_nogo: by_size.iter().filter(|(v, g)| *g && *v <= 0.0).count() + self.fault_go,
-            recheck_go: 0,
-            recheck_nogo: 0,
-        };
-        debug_assert!(c.false_nogo <= go_total + self.fault_go);
+        let mut c = self.at_zero();
         let mut best: Option<(f64, PointCounts, (f64, usize))> =
             allowed(&c).then(|| (0.0, c, key(&c)));
         let mut k = 0;
@@ -398,12 +404,7 @@ pub fn choose(
     }
     .ok_or(PointError::Empty)?;
     let (threshold, band) = (t * to_score, b * to_score);
-    let weight = match target {
-        Target::RecheckBudget {
-            false_go_weight, ..
-        } => false_go_weight,
-        Target::FalseGo { .. } => crate::train::c_choice::DEFAULT_FALSE_GO_WEIGHT,
-    };
+    let weight = target.trade_off_weight();
     let trade_off = TRADE_CAPS
         .iter()
         .filter_map(|&cap| {

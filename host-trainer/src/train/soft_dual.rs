@@ -47,6 +47,7 @@ struct Sums {
 }
 
 impl Sums {
+    /// Zero sums over `p` unknowns (0: the objective alone).
     fn zero(p: usize) -> Self {
         Self {
             loss: 0.0,
@@ -68,15 +69,12 @@ impl Rows<'_> {
     fn pass(&self, theta: &[f64], delta: f64, second: bool) -> Sums {
         let d = self.a.len();
         let p = d + 1;
+        let unknowns = if second { p } else { 0 };
         let parts: Vec<Sums> = self
             .idx
             .par_chunks(CHUNK)
             .map(|chunk| {
-                let mut s = Sums::zero(if second { p } else { 1 });
-                if !second {
-                    s.grad.clear();
-                    s.hess.clear();
-                }
+                let mut s = Sums::zero(unknowns);
                 let mut z = vec![0.0; p];
                 for &i in chunk {
                     for (((o, &r), a), c) in z
@@ -118,13 +116,7 @@ impl Rows<'_> {
                 s
             })
             .collect();
-        let p_out = if second { p } else { 1 };
-        let mut total = Sums::zero(p_out);
-        if !second {
-            total.grad.clear();
-            total.hess.clear();
-        }
-        parts.iter().fold(total, |t, s| t.add(s))
+        parts.iter().fold(Sums::zero(unknowns), |t, s| t.add(s))
     }
 }
 
