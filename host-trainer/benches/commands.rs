@@ -268,8 +268,12 @@ fn main() {
             cn / cs
         );
         // The hard margin on each fold of the default cross-validation (seed 1, 5 folds).
-        let (ds, _) =
-            host_trainer::workflow::load(&log, &LogOptions::default(), Some(&sheet)).unwrap();
+        let (ds, _) = host_trainer::workflow::load(
+            std::slice::from_ref(&log),
+            &LogOptions::default(),
+            Some(&sheet),
+        )
+        .unwrap();
         let folds = ds.folds(5, 1);
         let mut cycles = Vec::new();
         for f in 0..folds.len() {

@@ -84,6 +84,9 @@ fn main() {
         class_weight: None,
         max_false_go: None,
         holdout_split: None,
+        training_files: Vec::new(),
+        read_with: None,
+        settings: Vec::new(),
     };
     let summary = host_trainer::train::float_model::TrainingSummary {
         units: ds.len(),

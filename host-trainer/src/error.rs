@@ -101,6 +101,16 @@ pub enum InputError {
         /// What to do: fill it in, leave the column out, or skip the row.
         hint: String,
     },
+    /// A row repeats the header's names: files joined by hand.
+    #[error(
+        "{path}: line {line} repeats the header row (were files joined into one?); give each file as its own log file (e.g. `linegate train day-1.csv day-2.csv`, or `[logs] train = [\"day-*.csv\"]` in the project file): each is read with its header and hashed on its own"
+    )]
+    RepeatedHeader {
+        /// File.
+        path: PathBuf,
+        /// 1-based line.
+        line: u64,
+    },
     /// A cell is not a number.
     #[error(
         "{path}: {at}, column '{column}': '{value}' is not a number ({})",

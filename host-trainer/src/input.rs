@@ -141,6 +141,38 @@ pub fn json_keys_unique(text: &str) -> Result<(), String> {
     de.end().map_err(|e| e.to_string())
 }
 
+/// The files a log role names: each path as given, or, for a pattern holding `*`, `?` or
+/// `[` that names no file itself, the files it matches in name order. A pattern matching
+/// nothing is an error: a role silently short of a day's file would change the release.
+///
+/// # Errors
+/// [`InputError::Format`] for a pattern that is not valid or matches no file.
+pub fn expand_files(paths: &[std::path::PathBuf]) -> Result<Vec<std::path::PathBuf>, InputError> {
+    let mut out = Vec::new();
+    for p in paths {
+        let text = p.to_string_lossy();
+        if p.exists() || !text.contains(['*', '?', '[']) {
+            out.push(p.clone());
+            continue;
+        }
+        let bad = |message: String| InputError::Format {
+            path: p.clone(),
+            message,
+        };
+        let mut found: Vec<std::path::PathBuf> = glob::glob(&text)
+            .map_err(|e| bad(format!("not a file pattern: {e}")))?
+            .filter_map(Result::ok)
+            .filter(|f| f.is_file())
+            .collect();
+        if found.is_empty() {
+            return Err(bad("the pattern matches no file".to_string()));
+        }
+        found.sort();
+        out.extend(found);
+    }
+    Ok(out)
+}
+
 #[cfg(test)]
 mod tests {
     use super::json_keys_unique;

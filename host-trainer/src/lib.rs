@@ -34,6 +34,7 @@ pub mod ingest;
 pub mod input;
 pub mod output;
 pub mod progress;
+pub mod project;
 pub mod release;
 pub mod report;
 pub mod synth;

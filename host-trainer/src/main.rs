@@ -9,8 +9,6 @@ mod cli;
 use std::io::IsTerminal;
 use std::process::ExitCode;
 
-use clap::Parser;
-
 fn main() -> ExitCode {
     // The parquet crate can panic on a damaged page; the reader catches that and reports
     // the file, row group and column as a damaged file, so the crate's own panic message
@@ -24,8 +22,8 @@ fn main() -> ExitCode {
             report(info);
         }
     }));
-    let cli = cli::Cli::parse();
-    match cli::run(&cli) {
+    let parsed = cli::settings::parse();
+    match cli::run(&parsed.cli, parsed.settings) {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
             let failed = e.downcast_ref::<cli::CheckFailed>().is_some();

@@ -1,7 +1,7 @@
 //! The steps a user runs, each as one call: load, check, train, release (quantise + audit).
 //! The CLI and the demo both go through here, so they cannot drift apart.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use serde::Serialize;
 
@@ -10,7 +10,7 @@ use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
 use crate::ingest::scaling::ChannelSheet;
 use crate::ingest::signals::{SignalChannels, read_signal_log};
-use crate::ingest::{LogOptions, ScaleFrom, read_log};
+use crate::ingest::{LogOptions, ScaleFrom, read_logs};
 use crate::train::c_choice::{CChoice, CPolicy, DEFAULT_C, choose_c, search_sample};
 use crate::train::eval::{
     Counts, EvalRow, HeldOut, TrainConfig, Trained, TrainerKind, cross_validate, evaluate,
@@ -23,12 +23,13 @@ use crate::train::operating_point::{self, Target};
 use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 use crate::train::separability::{Figures, SeparabilityReport, check_with};
 
-/// Reads a training log with an optional channel sheet.
+/// Reads a training log (one or several files) with an optional channel sheet. The sheet
+/// may be a project file's inline `[sheet]`.
 ///
 /// # Errors
-/// Any [`InputError`] of the log or the sheet.
+/// Any [`InputError`] of the log or the sheet; files of one log whose columns differ.
 pub fn load(
-    log: &Path,
+    log: &[PathBuf],
     opts: &LogOptions,
     sheet: Option<&Path>,
 ) -> Result<(Dataset, Option<(ChannelSheet, InputFile)>), InputError> {
@@ -36,6 +37,7 @@ pub fn load(
         Some(p) => {
             // Read once: the same text is parsed and hashed for provenance.
             let text = crate::input::read_text(p, "channel sheet", crate::input::MAX_TEXT_FILE)?;
+            let text = crate::project::inline_sheet(&text).unwrap_or(text);
             let s = ChannelSheet::from_text(p, &text)?;
             Some((
                 s,
@@ -48,34 +50,58 @@ pub fn load(
         None => None,
     };
     if let Some((s, _)) = sheet.as_ref().filter(|(s, _)| !s.signals.is_empty()) {
-        return Ok((read_signal_log(log, opts, SignalChannels::Sheet(s))?, sheet));
+        return Ok((
+            each_file(log, |f| read_signal_log(f, opts, SignalChannels::Sheet(s)))?,
+            sheet,
+        ));
     }
     let scale = sheet
         .as_ref()
         .map_or(ScaleFrom::Observed, |(s, _)| ScaleFrom::Sheet(s));
-    Ok((read_log(log, opts, scale)?, sheet))
+    Ok((read_logs(log, opts, scale)?, sheet))
 }
 
-/// Reads a log with the channels and scaling of a trained model (holdout, audit, replay).
+/// Reads a log (one or several files) with the channels and scaling of a trained model
+/// (holdout, audit, replay).
 ///
 /// # Errors
 /// Any [`InputError`]; a reading outside the model's valid range is an error unless skipped.
 pub fn load_for_model(
-    log: &Path,
+    log: &[PathBuf],
     opts: &LogOptions,
     fm: &FloatModel,
 ) -> Result<Dataset, InputError> {
     if !fm.signals.is_empty() {
-        return read_signal_log(
-            log,
-            opts,
-            SignalChannels::Model {
-                channels: &fm.channels,
-                signals: &fm.signals,
-            },
-        );
+        return each_file(log, |f| {
+            read_signal_log(
+                f,
+                opts,
+                SignalChannels::Model {
+                    channels: &fm.channels,
+                    signals: &fm.signals,
+                },
+            )
+        });
     }
-    read_log(log, opts, ScaleFrom::Model(&fm.channels))
+    read_logs(log, opts, ScaleFrom::Model(&fm.channels))
+}
+
+/// Reads each file of a signal log with `read` and joins them into one log.
+fn each_file(
+    files: &[PathBuf],
+    read: impl Fn(&Path) -> Result<Dataset, InputError>,
+) -> Result<Dataset, InputError> {
+    let Some((first, rest)) = files.split_first() else {
+        return Err(InputError::Format {
+            path: PathBuf::new(),
+            message: "no log file given".into(),
+        });
+    };
+    let mut ds = read(first)?;
+    for f in rest {
+        ds.append(read(f)?);
+    }
+    Ok(ds)
 }
 
 /// What to train.
@@ -109,6 +135,10 @@ pub struct TrainRequest<'a> {
     /// The holdout taken out of the training log before `ds` was formed, if any (recorded in
     /// the model's provenance).
     pub holdout_split: Option<crate::train::float_model::HoldoutSplit>,
+    /// How the log was read, recorded in the model so later readings match.
+    pub read_with: Option<crate::ingest::options::RecordedOptions>,
+    /// The run's settings and their sources, recorded in the model.
+    pub settings: Vec<crate::project::Setting>,
     /// Show a progress bar on long work.
     pub progress: bool,
     /// The separability figures to compute beside the verdict (`train` shows none of them;
@@ -137,6 +167,8 @@ impl TrainRequest<'_> {
             cv_trainers: CvTrainers::Auto,
             point_holdout: None,
             holdout_split: None,
+            read_with: None,
+            settings: Vec::new(),
             progress: false,
             figures: Figures::VERDICT,
         }
@@ -420,6 +452,9 @@ pub fn train_model(
             .then_some(req.class_weight),
         max_false_go: req.max_false_go,
         holdout_split: req.holdout_split.clone(),
+        training_files: ds.parts.clone(),
+        read_with: req.read_with.clone(),
+        settings: req.settings.clone(),
     };
     let mut model = FloatModel::new(
         provenance,

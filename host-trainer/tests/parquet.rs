@@ -385,6 +385,7 @@ fn train_and_replay_from_parquet_match_csv() {
         // Provenance names the file and its hash; everything else must agree.
         v["provenance"]["training_log"] = serde_json::Value::Null;
         v["provenance"]["command_line"] = serde_json::Value::Null;
+        v["provenance"]["settings"] = serde_json::Value::Null;
         v["model_id"] = serde_json::Value::Null;
         v["content_sha256"] = serde_json::Value::Null;
         v

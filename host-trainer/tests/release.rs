@@ -16,9 +16,9 @@ fn demo(dir: &Path) -> (FloatModel, Dataset, Dataset) {
     host_trainer::demo::run(&dir.join("d"), false).unwrap();
     let fm = FloatModel::read(&dir.join("d/model.json")).unwrap();
     let opts = LogOptions::default();
-    let train = workflow::load_for_model(&dir.join("d/train-synthetic.csv"), &opts, &fm).unwrap();
+    let train = workflow::load_for_model(&[dir.join("d/train-synthetic.csv")], &opts, &fm).unwrap();
     let holdout =
-        workflow::load_for_model(&dir.join("d/holdout-synthetic.csv"), &opts, &fm).unwrap();
+        workflow::load_for_model(&[dir.join("d/holdout-synthetic.csv")], &opts, &fm).unwrap();
     (fm, train, holdout)
 }
 

@@ -8,6 +8,7 @@ use anyhow::{Context, Result, bail};
 use clap::Args;
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
+use host_trainer::project::Setting;
 use host_trainer::release::audit::{self, AuditConfig, Limit};
 use host_trainer::release::quantise::{QuantConfig, Quantised};
 use host_trainer::release::sign;
@@ -31,10 +32,11 @@ pub struct LogArgs {
     /// Columns to leave out, comma-separated.
     #[arg(long, value_delimiter = ',')]
     pub ignore: Vec<String>,
-    /// GO tokens, comma-separated, case-insensitive (default: go,pass,ok,good,1,true).
+    /// GO tokens, comma-separated, case-insensitive (default: go,pass,ok,good). A number or
+    /// boolean label is never guessed: map it, e.g. --go-labels 1 --nogo-labels 0.
     #[arg(long, value_delimiter = ',')]
     pub go_labels: Option<Vec<String>>,
-    /// NO-GO tokens (default: nogo,no-go,no_go,fail,ng,bad,reject,0,false).
+    /// NO-GO tokens (default: nogo,no-go,no_go,fail,ng,bad,reject).
     #[arg(long, value_delimiter = ',')]
     pub nogo_labels: Option<Vec<String>>,
     /// Skip bad rows (counted and reported) instead of stopping at the first.
@@ -98,19 +100,95 @@ impl LogArgs {
     }
 }
 
+impl LogArgs {
+    /// The reader options for a log the model `fm` (read from `path`) reads: what these
+    /// flags say, and where they say nothing, how the model's training log was read (each
+    /// value so taken is added to `settings` with the model as its source).
+    pub fn options_for_model(
+        &self,
+        quiet: bool,
+        fm: &FloatModel,
+        path: &std::path::Path,
+        settings: &mut Vec<Setting>,
+    ) -> LogOptions {
+        let mut o = self.options(quiet);
+        let Some(rw) = &fm.provenance.read_with else {
+            return o;
+        };
+        let mut took = |flag: &str, value: Vec<String>| {
+            settings.retain(|s| s.flag != flag);
+            settings.push(Setting {
+                flag: flag.into(),
+                value,
+                source: format!("model {}", path.display()),
+            });
+        };
+        let d = LogOptions::default();
+        let mut column = |given: &Option<String>,
+                          rec: &Option<String>,
+                          slot: &mut Option<String>,
+                          flag: &str| {
+            if let (None, Some(v)) = (given, rec) {
+                *slot = Some(v.clone());
+                took(flag, vec![v.clone()]);
+            }
+        };
+        column(&self.label, &rw.label, &mut o.label, "--label");
+        column(&self.unit_id, &rw.unit_id, &mut o.unit_id, "--unit-id");
+        column(
+            &self.timestamp,
+            &rw.timestamp,
+            &mut o.timestamp,
+            "--timestamp",
+        );
+        if self.ignore.is_empty() && !rw.ignore.is_empty() {
+            o.ignore = rw.ignore.clone();
+            took("--ignore", rw.ignore.clone());
+        }
+        if self.go_labels.is_none() && rw.go_labels != d.go_labels {
+            o.go_labels = rw.go_labels.clone();
+            took("--go-labels", rw.go_labels.clone());
+        }
+        if self.nogo_labels.is_none() && rw.nogo_labels != d.nogo_labels {
+            o.nogo_labels = rw.nogo_labels.clone();
+            took("--nogo-labels", rw.nogo_labels.clone());
+        }
+        if !self.skip_bad_rows && rw.skip_bad_rows {
+            o.skip_bad_rows = true;
+            took("--skip-bad-rows", vec!["true".into()]);
+        }
+        if let (None, Some(c)) = (self.delimiter, rw.delimiter)
+            && let Ok(b) = u8::try_from(u32::from(c))
+        {
+            o.delimiter = Some(b);
+            took("--delimiter", vec![c.to_string()]);
+        }
+        if let (false, Some(true)) = (self.decimal_comma, rw.decimal_comma) {
+            o.decimal_comma = Some(true);
+            took("--decimal-comma", vec!["true".into()]);
+        }
+        o
+    }
+}
+
 #[derive(Args, Clone)]
 pub struct ReleaseArgs {
-    /// Float model (from `linegate train`).
+    /// Float model (from `linegate train`; or `[outputs] model` in the project file).
     #[arg(long)]
-    pub model: PathBuf,
-    /// The training log the model was trained on.
-    #[arg(long)]
-    pub train: PathBuf,
-    /// A holdout log, audited too (named "holdout" in the reports).
-    #[arg(long)]
-    pub holdout: Option<PathBuf>,
+    pub model: Option<PathBuf>,
+    /// The training log's files (repeat the flag, or give a quoted glob pattern such as
+    /// 'logs/day-*.csv'). Default: the files the model records. Their SHA-256 must be the
+    /// model's; a holdout split recorded by `train` is taken out again and audited as the
+    /// log "held-out".
+    #[arg(long, value_name = "LOG")]
+    pub train: Vec<PathBuf>,
+    /// A holdout log, audited too (named "holdout" in the reports); repeat the flag or give
+    /// a glob pattern for a log of several files.
+    #[arg(long, value_name = "LOG")]
+    pub holdout: Vec<PathBuf>,
     /// Further validation logs, each audited and gated on its own (repeat the flag; named
-    /// "validation-1", "validation-2", … in the reports).
+    /// "validation-1", "validation-2", … in the reports). Each is a file, or a quoted glob
+    /// pattern naming the several files of one log.
     #[arg(long, value_name = "LOG")]
     pub validate: Vec<PathBuf>,
     #[command(flatten)]
@@ -184,9 +262,13 @@ pub struct ReleaseArgs {
 impl ReleaseArgs {
     /// The files this command reads, for the output set: no output may replace one.
     pub fn name_inputs(&self, set: &mut host_trainer::output::OutputSet) {
-        set.input("float model (--model)", &self.model);
-        set.input("training log (--train)", &self.train);
-        if let Some(h) = &self.holdout {
+        if let Some(m) = &self.model {
+            set.input("float model (--model)", m);
+        }
+        for t in &self.train {
+            set.input("training log (--train)", t);
+        }
+        for h in &self.holdout {
             set.input("holdout log (--holdout)", h);
         }
         for v in &self.validate {
@@ -213,6 +295,8 @@ pub struct Release {
     pub signer: Option<ed25519_dalek::SigningKey>,
     /// Settings taken from the model's operating point, in words (recorded in the report).
     pub from_model: Vec<String>,
+    /// Every setting with its source (recorded in the report; `pack` compares them).
+    pub settings: Vec<Setting>,
 }
 
 impl Release {
@@ -251,6 +335,8 @@ impl Release {
             report.name_blob(&audit::released_blob(&done.q, report.passed, Some(k)));
         }
         report.command_line = Some(command_line());
+        report.settings = self.settings.clone();
+        report.split = self.fm.provenance.holdout_split.clone();
         Ok((done.q, report))
     }
 }
@@ -279,32 +365,93 @@ fn command_line() -> String {
 ///
 /// # Errors
 /// Unreadable or mismatched files, and `--noise` entries that name no channel or no number.
-pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
-    let fm = FloatModel::read(&r.model)?;
-    let opts = r.log_args.options(quiet);
-    let train = workflow::load_for_model(&r.train, &opts, &fm)?;
+pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) -> Result<Release> {
+    let model_path = super::settings::required(&r.model, "--model", "[outputs] model")?;
+    let fm = FloatModel::read(model_path)?;
+    let mut opts = r
+        .log_args
+        .options_for_model(quiet, &fm, model_path, &mut settings);
+    let split = fm.provenance.holdout_split.clone();
+    opts.keep_times = split.as_ref().is_some_and(|s| s.after.is_some());
     let recorded = &fm.provenance.training_log;
-    if train.sha256 != recorded.sha256 {
+    let train_files = if r.train.is_empty() {
+        // The files the model was trained on, as it names them.
+        let files: Vec<PathBuf> = if fm.provenance.training_files.is_empty() {
+            vec![recorded.path.clone()]
+        } else {
+            fm.provenance
+                .training_files
+                .iter()
+                .map(|p| p.path.clone())
+                .collect()
+        };
+        settings.push(Setting {
+            flag: "--train".into(),
+            value: files.iter().map(|f| f.display().to_string()).collect(),
+            source: format!("model {}", model_path.display()),
+        });
+        files
+    } else {
+        host_trainer::input::expand_files(&r.train)?
+    };
+    let full = workflow::load_for_model(&train_files, &opts, &fm)?;
+    if full.sha256 != recorded.sha256 {
         bail!(
-            "{}: this is not the log {} was trained on (its SHA-256 is {}, the model records {} for {}); audit with the training log the model names",
-            r.train.display(),
-            r.model.display(),
-            train.sha256,
+            "{}: this is not the log {} was trained on (its SHA-256 is {}, the model records {} for {}){}; audit with the training log the model names",
+            train_files
+                .iter()
+                .map(|f| f.display().to_string())
+                .collect::<Vec<_>>()
+                .join(", "),
+            model_path.display(),
+            full.sha256,
             recorded.sha256,
-            recorded.path.display()
+            recorded.path.display(),
+            file_difference(&full, &fm)
         );
     }
     let mut others = Vec::new();
-    if let Some(h) = &r.holdout {
+    // The units train held out of the training log are audited as held out, not as training
+    // units: their errors are the model's errors on units it has not seen.
+    let train = match &split {
+        Some(sp) => {
+            let (t, h) = match (sp.fraction, sp.seed, &sp.after) {
+                (Some(f), Some(seed), _) => full.split_fraction(f, seed),
+                (_, _, Some(after)) => full.split_after(after).map_err(|m| {
+                    anyhow::anyhow!("{}: the model's holdout split: {m}", full.path.display())
+                })?,
+                _ => bail!(
+                    "{}: the holdout split it records names neither a fraction and seed nor a time",
+                    model_path.display()
+                ),
+            };
+            if t.len() != sp.trained_on || h.len() != sp.held_out {
+                bail!(
+                    "{}: the holdout split gives {} units to train and {} held out, the model records {} and {}; read the log as train did (same options)",
+                    full.path.display(),
+                    t.len(),
+                    h.len(),
+                    sp.trained_on,
+                    sp.held_out
+                );
+            }
+            others.push(("held-out".to_string(), full.subset(&h)));
+            full.subset(&t)
+        }
+        None => full,
+    };
+    if !r.holdout.is_empty() {
+        let files = host_trainer::input::expand_files(&r.holdout)?;
         others.push((
             "holdout".to_string(),
-            workflow::load_for_model(h, &opts, &fm)?,
+            workflow::load_for_model(&files, &opts, &fm)?,
         ));
     }
     for (k, v) in r.validate.iter().enumerate() {
+        let files = host_trainer::input::expand_files(std::slice::from_ref(v))?;
         others.push((
             format!("validation-{}", k + 1),
-            workflow::load_for_model(v, &opts, &fm)?,
+            workflow::load_for_model(&files, &opts, &fm)?,
         ));
     }
     let mut noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
@@ -356,7 +503,7 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
         noise_gate: !r.no_noise_gate,
     };
     if !quiet {
-        super::warn_skipped(&r.train, &train.skipped);
+        super::warn_skipped(&train.path, &train.skipped);
         for (_, ds) in &others {
             super::warn_skipped(&ds.path, &ds.skipped);
         }
@@ -376,7 +523,34 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool) -> Result<Release> {
         quiet,
         signer: r.sign.as_deref().map(sign::read_secret).transpose()?,
         from_model,
+        settings,
     })
+}
+
+/// Which file of a log of several differs from the model's record, in words (empty when
+/// the files cannot be matched one to one).
+fn file_difference(ds: &Dataset, fm: &FloatModel) -> String {
+    let rec = &fm.provenance.training_files;
+    if ds.parts.len() != rec.len() {
+        return format!(
+            "; the log has {} files, the model's had {}",
+            ds.parts.len().max(1),
+            rec.len().max(1)
+        );
+    }
+    ds.parts
+        .iter()
+        .zip(rec)
+        .find(|(a, b)| a.sha256 != b.sha256)
+        .map_or(String::new(), |(a, b)| {
+            format!(
+                "; first different file: {} (SHA-256 {}, the model's {} had {})",
+                a.path.display(),
+                a.sha256,
+                b.path.display(),
+                b.sha256
+            )
+        })
 }
 
 /// The false-GO and false-NO-GO gates: the flags', else the model's operating point's, else

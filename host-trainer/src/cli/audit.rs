@@ -36,7 +36,7 @@ pub struct AuditArgs {
 
 impl AuditArgs {
     /// Runs `linegate audit`.
-    pub fn run(&self, quiet: bool) -> Result<()> {
+    pub fn run(&self, quiet: bool, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
         let Self {
             release,
             sweep,
@@ -45,7 +45,7 @@ impl AuditArgs {
             force,
             json,
         } = self;
-        let mut rel = release_inputs(release, quiet)?;
+        let mut rel = release_inputs(release, quiet, settings)?;
         let (q, r) = rel.run()?;
         let others = rel.named_others();
         let Release {

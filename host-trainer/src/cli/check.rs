@@ -14,8 +14,10 @@ use host_trainer::workflow;
 /// Flags of `linegate check`.
 #[derive(Args)]
 pub struct CheckArgs {
-    /// Bench log: delimited text (CSV, TSV, semicolon…) or Parquet.
-    pub log: PathBuf,
+    /// Bench log: delimited text (CSV, TSV, semicolon…) or Parquet; several files (or a
+    /// quoted glob pattern) are one log. Default: `[logs] train` of the project file.
+    #[arg(value_name = "LOG")]
+    pub log: Vec<PathBuf>,
     #[command(flatten)]
     pub log_args: LogArgs,
     /// Channel sheet (TOML) with valid ranges, raw conversion and noise.
@@ -53,7 +55,12 @@ impl CheckArgs {
             digest: false,
             ..log_args.options(quiet)
         };
-        let (ds, sheet) = workflow::load(log, &opts, sheet.as_deref())?;
+        let files = super::log_files(
+            log,
+            "name the bench log (or several files of it), or set [logs] train in the project file",
+        )?;
+        let log = &files[0];
+        let (ds, sheet) = workflow::load(&files, &opts, sheet.as_deref())?;
         if !quiet {
             super::warn_skipped(log, &ds.skipped);
             super::warn_sheet(log, &ds, sheet.as_ref());

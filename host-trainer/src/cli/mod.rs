@@ -32,6 +32,7 @@ mod inspect;
 mod key;
 mod pack;
 mod replay;
+pub mod settings;
 mod train;
 
 use anyhow::Result;
@@ -45,18 +46,38 @@ use clap::{Parser, Subcommand};
     long_about = "Linegate turns bench logs (units × sensor channels, each judged GO or NO-GO) into a \
 fixed-point linear classifier for a small microcontroller, proves that rounding cannot change the \
 validated decisions, and packs a checked model blob and flash image.\n\n\
-Typical flow:\n  linegate check  bench.csv --sheet channels.toml\n  linegate train  bench.csv --sheet channels.toml -o model.json\n  \
-linegate audit  --model model.json --train bench.csv --holdout holdout.csv --sweep\n  \
-linegate pack   --model model.json --train bench.csv --holdout holdout.csv -o model.lgmb --hex 0x3F000\n  \
-linegate inspect model.lgmb\n\n\
-Exit codes: 0 success; 1 a check ran and failed (not separable, audit failed, corrupt or mismatched blob); \
-2 usage, input or output error.\n\n\
+Typical flow, with the release's settings in a project file (linegate.toml in the working folder):\n  \
+linegate check\n  linegate train\n  linegate audit --sweep\n  linegate pack\n  linegate inspect model.lgmb\n\n\
+The same with flags only:\n  linegate check  bench.csv --sheet channels.toml\n  linegate train  bench.csv --sheet channels.toml -o model.json\n  \
+linegate audit  --model model.json --holdout holdout.csv --out-dir audit\n  \
+linegate pack   --model model.json --holdout holdout.csv --audited audit/audit.json -o model.lgmb --hex 0x3F000\n\n\
+A project file (TOML) holds one release's settings; each key stands for the flag of the same \
+name, a flag on the command line overrides it, and every output records each setting with \
+its source (flag, project file, model, default). Paths are relative to the file. Example:\n\n\
+  [logs]\n  train = [\"logs/shift-*.csv\"]      # several files of one log: same columns\n  \
+holdout = \"logs/holdout.csv\"\n  validation = [\"site-b/*.csv\"]       # each entry one log\n  \
+[columns]\n  label = \"verdict\"\n  go = [\"pass\"]\n  nogo = [\"fail\"]\n  unit_id = \"serial\"\n  \
+ignore = [\"operator\"]\n  [sheet]\n  path = \"channels.toml\"            # or [[sheet.channel]] entries inline\n  \
+[split]\n  holdout_fraction = 0.2\n  [train]\n  trainer = \"max-margin\"\n  c = \"auto\"\n  \
+false_go_target = \"1%@95%\"\n  seed = 1\n  [device]\n  weight_bits = 16\n  input_bits = 16\n  \
+flash_address = \"0x3F000\"\n  [gates]\n  max_false_nogo = \"2%\"\n  noise = { vibration_mg = 2.5 }\n  \
+[release]\n  key = \"release.key\"\n  [outputs]\n  model = \"model.json\"\n  audit_dir = \"audit\"\n  blob = \"model.lgmb\"\n\n\
+Every key:\n\n{KEYS}\n\
+Exit codes: 0 success; 1 a check ran and failed (not separable, audit failed, corrupt or mismatched blob, \
+a blob that is not the audited one); 2 usage, input or output error.\n\n\
 A go/no-go classifier is not by itself a safety function."
 )]
 pub struct Cli {
     /// No progress bars or summaries; errors only.
     #[arg(long, short, global = true)]
     pub quiet: bool,
+    /// The project file holding this release's settings (default: linegate.toml in the
+    /// working folder, if there is one).
+    #[arg(long, global = true, value_name = "FILE")]
+    pub project: Option<std::path::PathBuf>,
+    /// Ignore linegate.toml in the working folder.
+    #[arg(long, global = true, conflicts_with = "project")]
+    pub no_project: bool,
     #[command(subcommand)]
     pub cmd: Cmd,
 }
@@ -188,6 +209,15 @@ fn warn_sheet(
     }
 }
 
+/// The files of one log: as given, glob patterns expanded; none is an error naming the
+/// flag and the project key that give them.
+fn log_files(given: &[std::path::PathBuf], how: &str) -> Result<Vec<std::path::PathBuf>> {
+    if given.is_empty() {
+        anyhow::bail!("no log given: {how}");
+    }
+    Ok(host_trainer::input::expand_files(given)?)
+}
+
 /// Text from a file made safe for a terminal: control characters (an escape sequence in a
 /// cell or a column name could retitle or clear the screen) are shown escaped, `\u{1b}`.
 pub fn shown(text: &str) -> String {
@@ -214,18 +244,19 @@ fn to_json<T: serde::Serialize>(v: &T) -> String {
 ///
 /// # Errors
 /// [`CheckFailed`] when a check ran and failed; any other error for usage, input or output.
-pub fn run(cli: &Cli) -> Result<()> {
+pub fn run(cli: &Cli, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
     let quiet = cli.quiet;
     if !quiet {
         host_trainer::train::maxmargin::watch_rounds(show_round);
     }
+    settings::announce(&settings, quiet);
     match &cli.cmd {
         Cmd::Check(a) => a.run(quiet),
-        Cmd::Train(a) => a.run(quiet),
-        Cmd::Audit(a) => a.run(quiet),
-        Cmd::Pack(a) => a.run(quiet),
+        Cmd::Train(a) => a.run(quiet, settings),
+        Cmd::Audit(a) => a.run(quiet, settings),
+        Cmd::Pack(a) => a.run(quiet, settings),
         Cmd::Inspect(a) => a.run(quiet),
-        Cmd::Replay(a) => a.run(quiet),
+        Cmd::Replay(a) => a.run(quiet, settings),
         Cmd::Generate(a) => a.run(quiet),
         Cmd::Demo(a) => a.run(quiet),
         Cmd::Key(a) => a.run(quiet),

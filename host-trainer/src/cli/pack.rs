@@ -9,6 +9,7 @@ use super::CheckFailed;
 use super::args::{ReleaseArgs, release_inputs};
 use host_trainer::output::OutputSet;
 use host_trainer::release::audit;
+use host_trainer::release::audit_record::AuditRecord;
 use host_trainer::release::hex;
 
 /// Flags of `linegate pack`.
@@ -16,9 +17,16 @@ use host_trainer::release::hex;
 pub struct PackArgs {
     #[command(flatten)]
     pub release: ReleaseArgs,
-    /// Output blob.
+    /// Output blob (default: `[outputs] blob` of the project file).
     #[arg(long, short)]
-    pub output: PathBuf,
+    pub output: Option<PathBuf>,
+    /// The audit record (audit.json, from `linegate audit --out-dir`) the blob must be:
+    /// pack refuses (exit 1, nothing written), naming each difference, unless its model,
+    /// logs, settings and blob bytes are the audited ones. Default: audit.json in
+    /// `[outputs] audit_dir` of the project file; without either, pack audits the model
+    /// itself and says so.
+    #[arg(long, value_name = "AUDIT_JSON")]
+    pub audited: Option<PathBuf>,
     /// Also write an Intel HEX image placing the blob at this flash address (e.g. 0x3F000).
     #[arg(long, value_name = "ADDRESS", value_parser = parse_address)]
     pub hex: Option<u32>,
@@ -35,22 +43,57 @@ pub struct PackArgs {
 
 impl PackArgs {
     /// Runs `linegate pack`.
-    pub fn run(&self, quiet: bool) -> Result<()> {
+    pub fn run(&self, quiet: bool, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
         let Self {
             release,
             output,
+            audited,
             hex: hex_addr,
             bin,
             override_audit,
             force,
         } = self;
-        let mut rel = release_inputs(release, quiet)?;
+        let output = super::settings::required(output, "-o/--output", "[outputs] blob")?;
+        let mut rel = release_inputs(release, quiet, settings)?;
         let (q, r) = rel.run()?;
         let (fm, signer) = (rel.fm, rel.signer);
         if !r.passed && !override_audit {
             return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
         }
         let blob = audit::released_blob(&q, r.passed, signer.as_ref());
+        match audited {
+            Some(path) => {
+                let record = AuditRecord::read(path)?;
+                if !record.passed && !override_audit {
+                    return Err(CheckFailed(format!(
+                        "{}: that audit failed ({}); nothing written",
+                        path.display(),
+                        record.reasons.join("; ")
+                    ))
+                    .into());
+                }
+                let differs = record.differences(&r, &release_flags());
+                if !differs.is_empty() {
+                    return Err(CheckFailed(format!(
+                        "{}: this is not the audited release, nothing written; what differs: {}. Run the audit again with these settings, or pack with the audit's",
+                        path.display(),
+                        differs.join("; ")
+                    ))
+                    .into());
+                }
+                if !quiet {
+                    eprintln!(
+                        "the blob is the one the audit {} passed (same model, logs, settings and SHA-256 {})",
+                        path.display(),
+                        r.blob_sha256
+                    );
+                }
+            }
+            None if !quiet => eprintln!(
+                "note: no audit record given (--audited, or [outputs] audit_dir in the project file): pack audited the model itself with the settings above"
+            ),
+            None => {}
+        }
         let mut set = OutputSet::default();
         release.name_inputs(&mut set);
         set.add_as("blob (-o)", output, blob.clone());
@@ -88,6 +131,16 @@ impl PackArgs {
         }
         Ok(())
     }
+}
+
+/// The flags that decide a release's blob and verdict (every flag `audit` and `pack`
+/// share): `pack` compares their values with the audit's.
+fn release_flags() -> Vec<String> {
+    use clap::Args as _;
+    ReleaseArgs::augment_args(clap::Command::new("release"))
+        .get_arguments()
+        .filter_map(|a| a.get_long().map(|l| format!("--{l}")))
+        .collect()
 }
 
 fn parse_address(s: &str) -> Result<u32, String> {

@@ -19,13 +19,15 @@ pub struct ReplayArgs {
     pub log: PathBuf,
     #[command(flatten)]
     pub log_args: LogArgs,
-    /// The blob.
+    /// The blob (default: `[outputs] blob` of the project file).
     #[arg(long)]
-    pub blob: PathBuf,
-    /// The float model (its channel scaling converts physical readings to raw). The blob
-    /// must be one this model produces; exit 1 if not.
+    pub blob: Option<PathBuf>,
+    /// The float model (its channel scaling converts physical readings to raw; the log is
+    /// read with the columns and label tokens it was trained with unless flags say
+    /// otherwise). The blob must be one this model produces; exit 1 if not. Default:
+    /// `[outputs] model` of the project file.
     #[arg(long)]
-    pub model: PathBuf,
+    pub model: Option<PathBuf>,
     /// Require a valid signature by this public key file (from `linegate key new`) before
     /// replaying; exit 1 if the blob is unsigned, signed by another key, or changed after
     /// signing.
@@ -45,32 +47,37 @@ pub struct ReplayArgs {
 impl ReplayArgs {
     /// Runs `linegate replay`. Every check that can fail on the blob, the model, the key or
     /// the log's header runs before the first line is printed.
-    pub fn run(&self, quiet: bool) -> Result<()> {
-        let fm = FloatModel::read(&self.model)?;
+    pub fn run(
+        &self,
+        quiet: bool,
+        mut settings: Vec<host_trainer::project::Setting>,
+    ) -> Result<()> {
+        let model = super::settings::required(&self.model, "--model", "[outputs] model")?;
+        let blob = super::settings::required(&self.blob, "--blob", "[outputs] blob")?;
+        let fm = FloatModel::read(model)?;
         let bytes = host_trainer::input::read_bounded(
-            &self.blob,
+            blob,
             "model blob",
             host_trainer::input::MAX_IMAGE_FILE,
         )?;
         let m = matching::decode_from(&fm, &bytes).map_err(|e| match e {
             matching::BlobMismatch::Decode(e) => {
-                anyhow::Error::new(CheckFailed(format!("{}: {e}", self.blob.display())))
+                anyhow::Error::new(CheckFailed(format!("{}: {e}", blob.display())))
             }
             matching::BlobMismatch::Mismatch(e) => anyhow::Error::new(CheckFailed(format!(
                 "{}: not a blob of the float model {}: {e}; give the float model the blob was packed from",
-                self.blob.display(),
-                self.model.display()
+                blob.display(),
+                model.display()
             ))),
         })?;
         if let Some(k) = &self.public_key {
             let key = sign::read_public(k)?;
-            sign::verify(&bytes, &key).map_err(|e| {
-                CheckFailed(format!("{}: {e} ({})", self.blob.display(), k.display()))
-            })?;
+            sign::verify(&bytes, &key)
+                .map_err(|e| CheckFailed(format!("{}: {e} ({})", blob.display(), k.display())))?;
         } else if shared_model::blob::signature(&bytes).is_some() && !quiet {
             eprintln!(
                 "note: {} is signed, but its signature was not checked: give --public-key",
-                self.blob.display()
+                blob.display()
             );
         }
         let mut sink = Sink::new(replay::model_line(m.model(), &bytes), self.output.is_some());
@@ -84,7 +91,9 @@ impl ReplayArgs {
         let opts = LogOptions {
             label_optional: true,
             digest: false,
-            ..self.log_args.options(quiet)
+            ..self
+                .log_args
+                .options_for_model(quiet, &fm, model, &mut settings)
         };
         let streamed = if fm.signals.is_empty() {
             let mut index = 0usize;

@@ -21,8 +21,11 @@ use host_trainer::workflow::{self, CvTrainers};
 /// Flags of `linegate train`.
 #[derive(Args)]
 pub struct TrainArgs {
-    /// Bench log: delimited text (CSV, TSV, semicolon…) or Parquet.
-    pub log: PathBuf,
+    /// Bench log: delimited text (CSV, TSV, semicolon…) or Parquet; several files (or a
+    /// quoted glob pattern) are one log of the same columns, each file hashed on its own.
+    /// Default: `[logs] train` of the project file.
+    #[arg(value_name = "LOG")]
+    pub log: Vec<PathBuf>,
     #[command(flatten)]
     pub log_args: LogArgs,
     /// Channel sheet (TOML).
@@ -81,9 +84,10 @@ pub struct TrainArgs {
     /// out; replaces the operating point).
     #[arg(long, value_name = "N")]
     pub max_false_go: Option<usize>,
-    /// Holdout log to evaluate on.
-    #[arg(long, conflicts_with_all = ["holdout_fraction", "holdout_after"])]
-    pub holdout: Option<PathBuf>,
+    /// Holdout log to evaluate on (repeat the flag, or a quoted glob pattern, for a log of
+    /// several files).
+    #[arg(long, value_name = "LOG", conflicts_with_all = ["holdout_fraction", "holdout_after"])]
+    pub holdout: Vec<PathBuf>,
     /// Hold out this fraction of each class of the training log (seeded by --seed), train on
     /// the rest and evaluate on it. The split is recorded in the model's provenance.
     #[arg(long, value_name = "F", value_parser = parse_fraction, conflicts_with = "holdout_after")]
@@ -107,9 +111,9 @@ pub struct TrainArgs {
     /// choice can be checked with another tool on the same folds.
     #[arg(long, value_name = "FILE")]
     pub cv_output: Option<PathBuf>,
-    /// Output float model (JSON).
+    /// Output float model (JSON). Default: `[outputs] model` of the project file.
     #[arg(long, short)]
-    pub output: PathBuf,
+    pub output: Option<PathBuf>,
     /// Overwrite existing files.
     #[arg(long)]
     pub force: bool,
@@ -120,7 +124,7 @@ pub struct TrainArgs {
 
 impl TrainArgs {
     /// Runs `linegate train`.
-    pub fn run(&self, quiet: bool) -> Result<()> {
+    pub fn run(&self, quiet: bool, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
         let Self {
             log,
             log_args,
@@ -146,9 +150,15 @@ impl TrainArgs {
             force,
             json,
         } = self;
+        let output = super::settings::required(output, "-o/--output", "[outputs] model")?;
+        let files = super::log_files(
+            log,
+            "name the bench log (or several files of it), or set [logs] train in the project file",
+        )?;
+        let log = &files[0];
         let mut opts = log_args.options(quiet);
         opts.keep_times = holdout_after.is_some();
-        let (full, sheet) = workflow::load(log, &opts, sheet.as_deref())?;
+        let (full, sheet) = workflow::load(&files, &opts, sheet.as_deref())?;
         // A holdout taken out of the training log: train on the rest, evaluate on it.
         let split = match (holdout_fraction, holdout_after) {
             (Some(f), _) => Some(("fraction", full.split_fraction(*f, *seed))),
@@ -185,6 +195,7 @@ impl TrainArgs {
         if !quiet {
             super::warn_skipped(log, &ds.skipped);
             super::warn_sheet(log, &ds, sheet.as_ref());
+            warn_observed(&ds, sheet.is_some());
         }
         if !false_go_weight.is_finite() || *false_go_weight <= 0.0 {
             anyhow::bail!("--false-go-weight {false_go_weight}: give a positive number (e.g. 5)");
@@ -223,6 +234,8 @@ impl TrainArgs {
             cv_trainers: *cv_trainers,
             point_holdout: held.as_ref(),
             holdout_split,
+            read_with: Some((&opts).into()),
+            settings,
             progress: !quiet && std::io::stderr().is_terminal(),
             figures: host_trainer::train::separability::Figures::VERDICT,
         };
@@ -235,19 +248,26 @@ impl TrainArgs {
         if let Some(hd) = &held {
             out.evaluate_holdout(hd);
         }
-        if let Some(h) = holdout {
-            let hd = workflow::load_for_model(h, &opts, &out.model)?;
+        let holdout_files = if holdout.is_empty() {
+            Vec::new()
+        } else {
+            host_trainer::input::expand_files(holdout)?
+        };
+        if !holdout_files.is_empty() {
+            let hd = workflow::load_for_model(&holdout_files, &opts, &out.model)?;
             if !quiet {
-                super::warn_skipped(h, &hd.skipped);
+                super::warn_skipped(&hd.path, &hd.skipped);
             }
             out.evaluate_holdout(&hd);
         }
         let mut set = OutputSet::default();
-        set.input("bench log", log);
+        for f in &files {
+            set.input("bench log", f);
+        }
         if let Some(s) = &self.sheet {
             set.input("channel sheet (--sheet)", s);
         }
-        if let Some(h) = holdout {
+        for h in &holdout_files {
             set.input("holdout log (--holdout)", h);
         }
         set.add_as("float model (-o)", output, out.model.to_json());
@@ -267,6 +287,26 @@ impl TrainArgs {
         }
         Ok(())
     }
+}
+
+/// Says on stderr which channels had no declared range: their valid range is the training
+/// units' observed one widened by half its span, so a later unit beyond it is a FAULT (the
+/// device answers NO-GO), and its lsb was chosen from that range.
+fn warn_observed(ds: &host_trainer::ingest::dataset::Dataset, sheet: bool) {
+    let observed: Vec<&str> = ds
+        .scales
+        .iter()
+        .filter(|c| c.source.is_none())
+        .map(|c| c.name.as_str())
+        .collect();
+    if observed.is_empty() || sheet {
+        // With a sheet, `warn_sheet` names each undeclared channel.
+        return;
+    }
+    eprintln!(
+        "note: no channel sheet: the valid range of all {} channels is the one observed in the training units, widened by half its span, and each lsb is chosen from it; a later unit with a reading outside that range is a FAULT (the device answers NO-GO). Declare the ranges your sensors really have in a sheet (`linegate sheet` writes one to start from) and train with --sheet",
+        observed.len()
+    );
 }
 
 fn print_train(o: &workflow::TrainOutcome, path: &Path) {

@@ -283,13 +283,14 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     let sheet_path = write_in("channels.toml", &sheet_text)?;
     let opts = LogOptions::default();
     // Provenance and reports name the files as the user will find them in `out`.
-    let (mut train_ds, sheet) = workflow::load(&paths[0], &opts, Some(&sheet_path))?;
+    let (mut train_ds, sheet) =
+        workflow::load(std::slice::from_ref(&paths[0]), &opts, Some(&sheet_path))?;
     train_ds.path = out.join(logs[0].0);
     let sheet = sheet.map(|(_, mut f)| {
         f.path = out.join("channels.toml");
         f
     });
-    let (drift_ds, _) = workflow::load(&paths[1], &opts, Some(&sheet_path))?;
+    let (drift_ds, _) = workflow::load(std::slice::from_ref(&paths[1]), &opts, Some(&sheet_path))?;
     // The demo's logs are separable: its model is the exact hard margin, threshold 0.
     let req = TrainRequest {
         folds: 5,
@@ -299,7 +300,8 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
         ..TrainRequest::new(TrainerKind::HardMargin)
     };
     let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;
-    let mut holdout_ds = workflow::load_for_model(&paths[2], &opts, &train.model)?;
+    let mut holdout_ds =
+        workflow::load_for_model(std::slice::from_ref(&paths[2]), &opts, &train.model)?;
     holdout_ds.path = out.join(logs[2].0);
     train.evaluate_holdout(&holdout_ds);
     let check_drift = crate::train::separability::check(&drift_ds, &drift_ds.all(), 200, 1);

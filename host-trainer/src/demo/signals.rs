@@ -210,7 +210,8 @@ pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, De
     let sheet_text = sheet();
     let sheet_path = write_in("signal-channels.toml", &sheet_text)?;
     let opts = LogOptions::default();
-    let (mut train_ds, sheet) = workflow::load(&paths[0], &opts, Some(&sheet_path))?;
+    let (mut train_ds, sheet) =
+        workflow::load(std::slice::from_ref(&paths[0]), &opts, Some(&sheet_path))?;
     train_ds.path = out.join(logs[0].0);
     let sheet = sheet.map(|(_, mut f)| {
         f.path = out.join("signal-channels.toml");
@@ -225,7 +226,8 @@ pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, De
         ..TrainRequest::new(TrainerKind::HardMargin)
     };
     let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;
-    let mut holdout_ds = workflow::load_for_model(&paths[1], &opts, &train.model)?;
+    let mut holdout_ds =
+        workflow::load_for_model(std::slice::from_ref(&paths[1]), &opts, &train.model)?;
     holdout_ds.path = out.join(logs[1].0);
     train.evaluate_holdout(&holdout_ds);
     let fm = &train.model;

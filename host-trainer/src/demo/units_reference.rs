@@ -17,7 +17,7 @@ pub(crate) fn units_csv_whole(q: &Quantised, fm: &FloatModel, sets: &[(&str, &Da
     for c in &fm.channels {
         out.push_str(&format!(",margin_{}", c.name));
     }
-    out.push('\n');
+    out.push_str(",file\n");
     for (name, ds) in sets {
         for i in 0..ds.len() {
             let r = unit_row(name, q, fm, ds, i);
@@ -42,7 +42,7 @@ pub(crate) fn units_csv_whole(q: &Quantised, fm: &FloatModel, sets: &[(&str, &Da
             for m in &r.margin_physical {
                 out.push_str(&format!(",{m}"));
             }
-            out.push('\n');
+            out.push_str(&format!(",{}\n", ds.file_of(i).display()));
         }
     }
     out
@@ -57,7 +57,7 @@ fn streamed_units_csv_has_the_bytes_of_the_whole_one_on_the_demo() {
     crate::demo::run(&out, false).unwrap();
     let fm = FloatModel::read(&out.join("model.json")).unwrap();
     let opts = LogOptions::default();
-    let load = |name: &str| crate::workflow::load_for_model(&out.join(name), &opts, &fm).unwrap();
+    let load = |name: &str| crate::workflow::load_for_model(&[out.join(name)], &opts, &fm).unwrap();
     let (train, holdout) = (load("train-synthetic.csv"), load("holdout-synthetic.csv"));
     let q = quantise(&fm, Some(&train), QuantConfig::default()).unwrap();
     let sets = [("train", &train), ("holdout", &holdout)];
@@ -80,7 +80,12 @@ fn streamed_units_csv_has_the_bytes_of_the_whole_one_on_a_generated_log() {
     crate::synth::write_log(&mut text, 20_000, 6, 0.02, 5).unwrap();
     std::fs::write(&log, text).unwrap();
     std::fs::write(&sheet, crate::synth::sheet(6)).unwrap();
-    let (ds, sheet) = workflow::load(&log, &LogOptions::default(), Some(&sheet)).unwrap();
+    let (ds, sheet) = workflow::load(
+        std::slice::from_ref(&log),
+        &LogOptions::default(),
+        Some(&sheet),
+    )
+    .unwrap();
     let req = TrainRequest {
         epochs: 1000,
         seed: 1,

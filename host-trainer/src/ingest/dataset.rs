@@ -13,6 +13,13 @@ use crate::ingest::SkipReport;
 use crate::ingest::scaling::ChannelScale;
 use crate::ingest::signal_scale::SignalScale;
 
+/// The digest of a log of several files: SHA-256 over each file's digest, one per line,
+/// in reading order (so the same files in another order are another log).
+pub fn combined_digest(parts: &[LogPart]) -> String {
+    let text: String = parts.iter().map(|p| format!("{}\n", p.sha256)).collect();
+    crate::digest::sha256_hex(text.as_bytes())
+}
+
 /// Units of one bench log, with the channel scaling that turned readings into raw integers.
 #[derive(Clone, Debug)]
 pub struct Dataset {
@@ -38,6 +45,21 @@ pub struct Dataset {
     pub skipped: SkipReport,
     /// Timestamp cells, when read for a holdout split by time (else empty).
     pub times: UnitIds,
+    /// The files of a log read from several, in reading order (empty for one file).
+    pub parts: Vec<LogPart>,
+    /// Each unit's index into [`parts`](Self::parts) (empty for one file).
+    pub part_of: Vec<u32>,
+}
+
+/// One file of a log read from several files.
+#[derive(Clone, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub struct LogPart {
+    /// The file.
+    pub path: PathBuf,
+    /// Its SHA-256, hex.
+    pub sha256: String,
+    /// The units read from it.
+    pub units: usize,
 }
 
 impl Dataset {
@@ -54,7 +76,63 @@ impl Dataset {
             unit_ids: UnitIds::default(),
             skipped: SkipReport::default(),
             times: UnitIds::default(),
+            parts: Vec::new(),
+            part_of: Vec::new(),
         }
+    }
+
+    /// The file unit `i` came from (the log's own path for a log of one file).
+    pub fn file_of(&self, i: usize) -> &Path {
+        self.part_of
+            .get(i)
+            .and_then(|&k| self.parts.get(k as usize))
+            .map_or(self.path.as_path(), |p| p.path.as_path())
+    }
+
+    /// Where unit `i` came from: `line N`, with the file's name first for a log of several
+    /// files (`day-2.csv line N`).
+    pub fn origin(&self, i: usize) -> String {
+        let line = self.lines.get(i).copied().unwrap_or(0);
+        if self.parts.is_empty() {
+            format!("line {line}")
+        } else {
+            format!("{} line {line}", self.file_of(i).display())
+        }
+    }
+
+    /// Appends the units of `next`, another file of the same log read with the same
+    /// channels and scaling: the log becomes one of several files, each kept in
+    /// [`parts`](Self::parts) with its digest, and the log's digest becomes the digest of the
+    /// files' digests in order.
+    pub fn append(&mut self, next: Dataset) {
+        if self.parts.is_empty() {
+            self.parts.push(LogPart {
+                path: self.path.clone(),
+                sha256: self.sha256.clone(),
+                units: self.len(),
+            });
+            self.part_of = vec![0; self.len()];
+        }
+        let k = self.parts.len() as u32;
+        self.parts.push(LogPart {
+            path: next.path.clone(),
+            sha256: next.sha256.clone(),
+            units: next.len(),
+        });
+        self.part_of.extend(std::iter::repeat_n(k, next.len()));
+        self.raw.extend_from_slice(&next.raw);
+        self.labels.extend_from_slice(&next.labels);
+        self.lines.extend_from_slice(&next.lines);
+        for i in 0..next.len() {
+            if let Some(u) = next.unit_ids.get(i) {
+                self.unit_ids.push(u.as_bytes());
+            }
+            if let Some(t) = next.times.get(i) {
+                self.times.push(t.as_bytes());
+            }
+        }
+        self.skipped.merge(&next.skipped);
+        self.sha256 = combined_digest(&self.parts);
     }
 
     /// Builds a dataset from points already in [-1, 1] (tests and references).
@@ -132,11 +210,11 @@ impl Dataset {
         f64::from(self.labels[i])
     }
 
-    /// A name for unit `i` in reports: its unit id, or its line in the file.
+    /// A name for unit `i` in reports: its unit id, or where it came from.
     pub fn unit_name(&self, i: usize) -> String {
         match self.unit_ids.get(i) {
             Some(u) if !u.is_empty() => u.to_string(),
-            _ => format!("line {}", self.lines[i]),
+            _ => self.origin(i),
         }
     }
 
@@ -151,7 +229,11 @@ impl Dataset {
         out.signals = self.signals.clone();
         out.sha256 = self.sha256.clone();
         out.skipped = self.skipped.clone();
+        out.parts = self.parts.clone();
         for &i in idx {
+            if let Some(&k) = self.part_of.get(i) {
+                out.part_of.push(k);
+            }
             out.raw.extend_from_slice(self.raw_row(i));
             out.labels.push(self.labels[i]);
             out.lines.push(self.lines[i]);
@@ -199,7 +281,7 @@ impl Dataset {
         for i in 0..self.len() {
             let t = self.times.get(i).unwrap_or("");
             if t.is_empty() {
-                return Err(format!("line {}: the timestamp is empty", self.lines[i]));
+                return Err(format!("{}: the timestamp is empty", self.origin(i)));
             }
             let later = match (t.parse::<f64>().ok(), limit_num) {
                 (Some(a), Some(b)) => a > b,

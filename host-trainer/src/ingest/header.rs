@@ -46,7 +46,12 @@ impl Columns {
                     None => Ok(defaults.iter().find_map(|d| find(&names, d))),
                 }
             };
-        let label = match pick(&opts.label, LABEL_NAMES)? {
+        // A log scored without verdicts (replay) may lack the label column a model records.
+        let label_given = match &opts.label {
+            Some(n) if opts.label_optional && find(&names, n).is_none() => &None,
+            given => given,
+        };
+        let label = match pick(label_given, LABEL_NAMES)? {
             Some(l) => Some(l),
             None if opts.label_optional => None,
             None => {

@@ -20,9 +20,10 @@
 
 pub mod dataset;
 mod fast;
+mod files;
 mod header;
 pub(crate) mod names;
-pub(crate) mod options;
+pub mod options;
 mod parquet;
 mod parse;
 mod read;
@@ -36,6 +37,7 @@ mod skip;
 #[cfg(test)]
 mod tests;
 
+pub use files::read_logs;
 pub use options::{
     GO_TOKENS, LABEL_NAMES, LogOptions, MAX_READING, NOGO_TOKENS, ScaleFrom, TIME_NAMES, UNIT_NAMES,
 };

@@ -99,6 +99,58 @@ impl LogOptions {
     }
 }
 
+/// How a log was read, as a float model records it: the choices a user makes about columns,
+/// labels and bad rows, so the model's later readings (audit, pack, replay) make the same.
+#[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RecordedOptions {
+    /// The channel columns, if named.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub channels: Option<Vec<String>>,
+    /// The label column, if named.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub label: Option<String>,
+    /// The unit-id column, if named.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub unit_id: Option<String>,
+    /// The timestamp column, if named.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub timestamp: Option<String>,
+    /// Columns left out.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub ignore: Vec<String>,
+    /// GO tokens.
+    pub go_labels: Vec<String>,
+    /// NO-GO tokens.
+    pub nogo_labels: Vec<String>,
+    /// Whether bad rows were skipped and counted.
+    #[serde(default)]
+    pub skip_bad_rows: bool,
+    /// The field delimiter, if given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub delimiter: Option<char>,
+    /// Whether a comma was the decimal mark, if given.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub decimal_comma: Option<bool>,
+}
+
+impl From<&LogOptions> for RecordedOptions {
+    fn from(o: &LogOptions) -> Self {
+        Self {
+            channels: o.channels.clone(),
+            label: o.label.clone(),
+            unit_id: o.unit_id.clone(),
+            timestamp: o.timestamp.clone(),
+            ignore: o.ignore.clone(),
+            go_labels: o.go_labels.clone(),
+            nogo_labels: o.nogo_labels.clone(),
+            skip_bad_rows: o.skip_bad_rows,
+            delimiter: o.delimiter.map(char::from),
+            decimal_comma: o.decimal_comma,
+        }
+    }
+}
+
 /// Where channel scaling comes from.
 #[derive(Clone, Copy, Debug)]
 pub enum ScaleFrom<'a> {

@@ -63,6 +63,16 @@ impl Parsed {
     }
 }
 
+/// Whether a record's cells are the header's names (ASCII case ignored): the header of a
+/// second file inside a log joined by hand.
+fn repeats_header(f: &Fields<'_>, names: &[String]) -> bool {
+    f.len() >= names.len()
+        && names
+            .iter()
+            .enumerate()
+            .all(|(i, n)| trim(f.get(i)).eq_ignore_ascii_case(n.trim().as_bytes()))
+}
+
 impl Parser<'_> {
     /// Parses one record's fields into `values`; `Ok(None)` for a blank line.
     pub(super) fn record(
@@ -109,13 +119,21 @@ impl Parser<'_> {
             }
             // fast-float2 parses the bytes directly (no UTF-8 pass) and accepts exactly a whole
             // decimal number, like str::parse, several times faster.
-            let x: f64 =
-                parse_number(cell, self.decimal_comma).ok_or_else(|| InputError::NotNumeric {
+            let Some(x) = parse_number(cell, self.decimal_comma) else {
+                // Logs joined by hand carry the second file's header as a row.
+                if repeats_header(f, &cols.names) {
+                    return Err(InputError::RepeatedHeader {
+                        path: path.into(),
+                        line,
+                    });
+                }
+                return Err(InputError::NotNumeric {
                     path: path.into(),
                     at: line.into(),
                     column: column(),
                     value: cell_text(cell),
-                })?;
+                });
+            };
             if !is_reading(x) {
                 return Err(InputError::NotFinite {
                     path: path.into(),

@@ -33,12 +33,30 @@ fn is_zero(n: &usize) -> bool {
 }
 
 impl SkipReport {
+    /// Adds the counts of another file's report (a log read from several files); the
+    /// examples keep the first few of both.
+    pub(crate) fn merge(&mut self, other: &SkipReport) {
+        self.total += other.total;
+        self.unit_rows += other.unit_rows;
+        for (r, n) in &other.by_reason {
+            *self.by_reason.entry(r.clone()).or_default() += n;
+        }
+        for e in &other.examples {
+            if self.examples.len() < 5 {
+                self.examples.push(e.clone());
+            }
+        }
+        self.empty_rows += other.empty_rows;
+        self.empty_columns = self.empty_columns.max(other.empty_columns);
+    }
+
     pub(super) fn add(&mut self, e: &InputError) {
         self.total += 1;
         let reason = match e {
             InputError::Ragged { .. } => "ragged row",
             InputError::Missing { .. } => "empty cell",
             InputError::NotNumeric { .. } => "not a number",
+            InputError::RepeatedHeader { .. } => "a repeated header row",
             InputError::NotFinite { .. } => "not finite",
             InputError::BeyondReading { .. } => "beyond the largest reading",
             InputError::OutOfRange { .. } => "outside valid range",
@@ -96,6 +114,7 @@ pub(super) fn is_row_error(e: &InputError) -> bool {
         InputError::Ragged { .. }
             | InputError::Missing { .. }
             | InputError::NotNumeric { .. }
+            | InputError::RepeatedHeader { .. }
             | InputError::NotFinite { .. }
             | InputError::BeyondReading { .. }
             | InputError::OutOfRange { .. }

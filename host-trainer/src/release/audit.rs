@@ -90,6 +90,9 @@ pub struct UnitRow {
     pub set: String,
     /// 1-based line in its log.
     pub line: u64,
+    /// The file the unit came from, for a log of several files.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub file: Option<String>,
     /// Unit id or "line N".
     pub unit: String,
     /// "GO" or "NO-GO".
@@ -115,8 +118,11 @@ pub struct SetSummary {
     pub name: String,
     /// Log path.
     pub path: String,
-    /// SHA-256 of the log, hex.
+    /// SHA-256 of the log, hex (of a log of several files: the digest of their digests).
     pub sha256: String,
+    /// The files of a log of several, each with its SHA-256 and units.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub files: Vec<crate::ingest::dataset::LogPart>,
     /// Rows skipped as unreadable (`skip_bad_rows`): not units, so in no other count.
     pub skipped_rows: usize,
     /// Units.
@@ -348,6 +354,14 @@ pub struct AuditReport {
     /// How cross-validation chose C (every C tried and why); absent when C was given.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub c_choice: Option<crate::train::c_choice::CChoice>,
+    /// The holdout split `train` recorded: its held-out units are audited as the log
+    /// "held-out", the others as "train".
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub split: Option<crate::train::float_model::HoldoutSplit>,
+    /// Every setting of the run with its source (flag, project file, model, default), as
+    /// the CLI records it; `pack` compares its own with these.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub settings: Vec<crate::project::Setting>,
 }
 
 struct Acc {
@@ -406,6 +420,7 @@ fn audit_set(
             name: name.into(),
             path: ds.path.display().to_string(),
             sha256: ds.sha256.clone(),
+            files: ds.parts.clone(),
             skipped_rows: ds.skipped.total,
             ..Default::default()
         },
@@ -615,6 +630,7 @@ pub(crate) fn unit_row(
     UnitRow {
         set: set.into(),
         line: ds.lines[i],
+        file: (!ds.parts.is_empty()).then(|| ds.file_of(i).display().to_string()),
         unit: ds.unit_name(i),
         label: if ds.labels[i] > 0 { "GO" } else { "NO-GO" },
         float_score: fs,
@@ -769,6 +785,8 @@ pub fn audit(
             .as_ref()
             .map(|op| crate::release::point_record::OperatingPointRecord::new(op, q.scale)),
         c_choice: fm.provenance.c_choice.clone(),
+        split: None,
+        settings: Vec::new(),
     };
     r.name_blob(&packed);
     r

@@ -12,6 +12,7 @@
 //! (`crate::confidence`); [`units`] streams every unit's scores to `--units`.
 
 pub mod audit;
+pub mod audit_record;
 pub mod features;
 pub mod gates;
 pub mod hex;

@@ -8,9 +8,18 @@ use super::quantise::Quantised;
 use crate::ingest::dataset::Dataset;
 use crate::train::float_model::FloatModel;
 
+/// A CSV cell: quoted when it holds a comma or a quote.
+pub(crate) fn csv_cell(t: &str) -> String {
+    if t.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", t.replace('"', "\"\""))
+    } else {
+        t.to_string()
+    }
+}
+
 /// Writes every unit of the logs as CSV: model id, log, line, unit, label, float score and
 /// verdict, fixed score and verdict (by the device kernel), margin in LSB and along each
-/// channel in its unit.
+/// channel in its unit, and the file the unit came from.
 ///
 /// # Errors
 /// The first write error.
@@ -27,15 +36,11 @@ pub fn write_units_csv(
     for c in &fm.channels {
         write!(out, ",margin_{}", c.name)?;
     }
-    writeln!(out)?;
+    writeln!(out, ",file")?;
     for (name, ds) in sets {
         for i in 0..ds.len() {
             let r = unit_row(name, q, fm, ds, i);
-            let unit = if r.unit.contains([',', '"']) {
-                format!("\"{}\"", r.unit.replace('"', "\"\""))
-            } else {
-                r.unit
-            };
+            let unit = csv_cell(&r.unit);
             write!(
                 out,
                 "{},{},{},{},{},{},{},",
@@ -48,7 +53,7 @@ pub fn write_units_csv(
             for m in &r.margin_physical {
                 write!(out, ",{m}")?;
             }
-            writeln!(out)?;
+            writeln!(out, ",{}", csv_cell(&ds.file_of(i).display().to_string()))?;
         }
     }
     Ok(())

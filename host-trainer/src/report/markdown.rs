@@ -29,7 +29,7 @@ fn physical(v: f64) -> String {
 }
 
 /// Table cells may hold text from a log (unit ids): a pipe would end the cell.
-fn cell(t: &str) -> String {
+pub(super) fn cell(t: &str) -> String {
     t.replace('|', "\\|")
 }
 
@@ -66,7 +66,9 @@ fn unit_table(
             s,
             "| {} | {} | {} | {} | {} | {} | {} | {:.1} |",
             u.set,
-            u.line,
+            u.file
+                .as_ref()
+                .map_or(u.line.to_string(), |f| format!("{} {}", cell(f), u.line)),
             cell(&u.unit),
             u.label,
             u.float_verdict,
@@ -206,6 +208,7 @@ pub fn markdown(
     for t in &r.sets {
         let _ = writeln!(s, "- {} log `{}`, SHA-256 `{}`", t.name, t.path, t.sha256);
     }
+    super::settings::split_and_files(&mut s, r);
     if r.recheck_band > 0.0 {
         // The band in the units a reviewer reads: integer scores on the device, float score,
         // and the units of each class it holds back on every log.
@@ -621,6 +624,7 @@ pub fn markdown(
             r.search_changes.join("; ")
         }
     );
+    super::settings::settings_markdown(&mut s, r);
     let _ = writeln!(
         s,
         "\n*A go/no-go classifier is not by itself a safety function. This audit shows that rounding does not change the validated decisions; it does not validate the decisions.*"

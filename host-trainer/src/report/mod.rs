@@ -7,6 +7,7 @@ mod json;
 mod markdown;
 mod numbers;
 mod operating;
+mod settings;
 mod svg;
 
 pub use html::html;

@@ -16,6 +16,9 @@
 //! The score is `Σ weights[i] · (raw_i − offset_i) / half_i + bias`; GO when it exceeds `threshold`.
 //! Weights are normalised so the largest magnitude is 1.
 
+use crate::ingest::dataset::LogPart;
+use crate::ingest::options::RecordedOptions;
+use crate::project::Setting;
 use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
@@ -78,6 +81,19 @@ pub struct Provenance {
     /// the other units.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub holdout_split: Option<HoldoutSplit>,
+    /// The files of a training log read from several, each with its digest and units
+    /// (`training_log` then holds the first file's path and the digest of the files'
+    /// digests, in order).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub training_files: Vec<LogPart>,
+    /// How the training log was read: `audit`, `pack` and `replay` read logs the same way
+    /// unless told otherwise.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub read_with: Option<RecordedOptions>,
+    /// Every setting of the `train` run, with where it came from (flag, project file,
+    /// default).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub settings: Vec<Setting>,
 }
 
 /// A holdout taken out of the training log by `train`.

@@ -1276,7 +1276,8 @@ mod tests {
         let sheet = dir.path().join("g.toml");
         std::fs::write(&sheet, crate::synth::sheet(16)).unwrap();
         let opts = crate::ingest::LogOptions::default();
-        let (ds, _) = crate::workflow::load(&log, &opts, Some(&sheet)).unwrap();
+        let (ds, _) =
+            crate::workflow::load(std::slice::from_ref(&log), &opts, Some(&sheet)).unwrap();
         let folds = ds.folds(5, 1);
         let mut cycles: Vec<u64> = (0..folds.len())
             .map(|f| {

@@ -127,7 +127,7 @@ fn a_failed_audit_page_looks_failed_and_a_passed_one_does_not() {
     host_trainer::demo::run(&d, false).unwrap();
     let fm = FloatModel::read(&d.join("model.json")).unwrap();
     let train = host_trainer::workflow::load_for_model(
-        &d.join("train-synthetic.csv"),
+        &[d.join("train-synthetic.csv")],
         &LogOptions::default(),
         &fm,
     )
@@ -231,7 +231,7 @@ fn a_model_with_an_operating_point_shows_its_trade_off_chart() {
     host_trainer::demo::run(&d, false).unwrap();
     let fm = FloatModel::read(&d.join("model.json")).unwrap();
     let train = host_trainer::workflow::load_for_model(
-        &d.join("train-synthetic.csv"),
+        &[d.join("train-synthetic.csv")],
         &LogOptions::default(),
         &fm,
     )

@@ -46,7 +46,7 @@ fn verify(blob: &Path, model: &Path, report: &Path, logs: &[PathBuf]) -> (i32, S
 /// model.json, audit.json and model.lgmb (the blob the report names) into `dir`.
 fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c: f64) {
     let opts = LogOptions::default();
-    let (ds, sheet) = workflow::load(train, &opts, sheet).unwrap();
+    let (ds, sheet) = workflow::load(&[train.to_path_buf()], &opts, sheet).unwrap();
     let req = TrainRequest {
         epochs: 100,
         seed: 1,
@@ -65,7 +65,7 @@ fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c
     let fm = host_trainer::train::float_model::FloatModel::read(&dir.join("model.json")).unwrap();
     let loaded: Vec<_> = others
         .iter()
-        .map(|p| workflow::load_for_model(p, &opts, &fm).unwrap())
+        .map(|p| workflow::load_for_model(std::slice::from_ref(p), &opts, &fm).unwrap())
         .collect();
     let named: Vec<(&str, &host_trainer::ingest::dataset::Dataset)> =
         loaded.iter().map(|d| ("holdout", d)).collect();

@@ -1,0 +1,113 @@
+//! An audit's record read back (`audit.json`): what `pack` must match to write exactly the
+//! blob the audit passed — the same model, the same logs, the same settings, the same bytes.
+
+use std::path::Path;
+
+use serde::Deserialize;
+
+use crate::error::InputError;
+use crate::project::Setting;
+use crate::release::audit::AuditReport;
+
+/// The parts of an audit report a later `pack` is compared with.
+#[derive(Clone, Debug, Deserialize)]
+pub struct AuditRecord {
+    /// The audited model's id.
+    pub model_id: String,
+    /// SHA-256 of the blob the audit named (as `pack` writes it).
+    pub blob_sha256: String,
+    /// Whether every gate passed.
+    pub passed: bool,
+    /// Why it failed, if it did.
+    #[serde(default)]
+    pub reasons: Vec<String>,
+    /// The audit's settings with their sources.
+    #[serde(default)]
+    pub settings: Vec<Setting>,
+    /// The logs audited.
+    pub sets: Vec<RecordedSet>,
+}
+
+/// One audited log, as the record names it.
+#[derive(Clone, Debug, Deserialize)]
+pub struct RecordedSet {
+    /// Its name in the report (`train`, `held-out`, `holdout`, `validation-1`, …).
+    pub name: String,
+    /// Its SHA-256.
+    pub sha256: String,
+}
+
+impl AuditRecord {
+    /// Reads an audit's `audit.json`.
+    ///
+    /// # Errors
+    /// The file cannot be read or is not an audit record.
+    pub fn read(path: &Path) -> Result<Self, InputError> {
+        let text = crate::input::read_text(path, "audit record", crate::input::MAX_TEXT_FILE)?;
+        serde_json::from_str(&text).map_err(|e| InputError::Format {
+            path: path.into(),
+            message: format!("not an audit record (audit.json of `linegate audit --out-dir`): {e}"),
+        })
+    }
+
+    /// What differs between this record and the audit `now` about to be packed, one line
+    /// each: the settings among `compared` flags (those that decide the blob and the
+    /// verdict), the model, the logs and the blob's bytes. Empty: `now` is the audited
+    /// release.
+    pub fn differences(&self, now: &AuditReport, compared: &[String]) -> Vec<String> {
+        let mut out = Vec::new();
+        for flag in compared {
+            let was = self.settings.iter().find(|s| &s.flag == flag);
+            let is = now.settings.iter().find(|s| &s.flag == flag);
+            if was.map(|s| &s.value) != is.map(|s| &s.value) {
+                let say = |s: Option<&Setting>| {
+                    s.map_or("not set".to_string(), |s| {
+                        format!("{} ({})", s.value_text(), s.source)
+                    })
+                };
+                out.push(format!(
+                    "{flag}: the audit had {}, pack has {}",
+                    say(was),
+                    say(is)
+                ));
+            }
+        }
+        if self.model_id != now.model_id {
+            out.push(format!(
+                "model: the audit was of model {}, pack has model {}",
+                self.model_id, now.model_id
+            ));
+        }
+        let logs = |names: Vec<(&str, &str)>| -> String {
+            names
+                .iter()
+                .map(|(n, s)| format!("{n} {}", &s[..s.len().min(12)]))
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
+        let was: Vec<(&str, &str)> = self
+            .sets
+            .iter()
+            .map(|s| (s.name.as_str(), s.sha256.as_str()))
+            .collect();
+        let is: Vec<(&str, &str)> = now
+            .sets
+            .iter()
+            .map(|s| (s.name.as_str(), s.sha256.as_str()))
+            .collect();
+        if was != is {
+            out.push(format!(
+                "logs (name and SHA-256): the audit read {}, pack read {}",
+                logs(was),
+                logs(is)
+            ));
+        }
+        if out.is_empty() && self.blob_sha256 != now.blob_sha256 {
+            out.push(format!(
+                "blob: the audit passed the blob with SHA-256 {}, pack would write {}",
+                self.blob_sha256, now.blob_sha256
+            ));
+        }
+        out
+    }
+}
