@@ -92,9 +92,9 @@ const KEYS: &[Key] = &[
         "logs",
         "holdout",
         "holdout",
-        &[],
+        RELEASE,
         Kind::Paths,
-        "the holdout log's files or glob patterns",
+        "the holdout log's files or glob patterns (audited and gated; train evaluates a holdout given with --holdout)",
     ),
     key(
         "logs",

@@ -351,3 +351,116 @@ fn a_project_file_with_an_unknown_key_or_value_is_refused_by_key() {
     let j: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(j["units"], 360);
 }
+
+/// The README's project file, as printed there (the first ```toml block of "One release,
+/// one project file").
+fn readme_project() -> String {
+    let readme =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("../README.md"))
+            .unwrap();
+    let section = &readme[readme.find("## One release, one project file").unwrap()..];
+    let start = section.find("```toml\n").unwrap() + 8;
+    let end = start + section[start..].find("```").unwrap();
+    section[start..end].to_string()
+}
+
+/// The README's flow, from a raw export of three shifts to a signed blob: one project file
+/// (the README's, as printed) and the same few commands, no flag.
+#[test]
+fn the_readme_flow_runs_as_written() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    write(d, "linegate.toml", readme_project().as_bytes());
+    for sub in ["export", "site-b", "out"] {
+        std::fs::create_dir(d.join(sub)).unwrap();
+    }
+    // The export's columns as the README's file names them; units kept clear of the
+    // boundary so the README's gates can pass.
+    let header = "serial,tested_at,operator,current_a,vibration_mg,case_temp_c,verdict\n";
+    let mut x: u64 = 99;
+    let mut next = || {
+        x = x
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        ((x >> 33) % 10_000) as f64 / 10_000.0
+    };
+    let mut rows = Vec::new();
+    while rows.len() < 5200 {
+        let (c, v, t) = (
+            1.0 + 2.0 * next(),
+            10.0 + 40.0 * next(),
+            30.0 + 20.0 * next(),
+        );
+        let score = 3.0 - c - v / 25.0;
+        if score.abs() < 0.25 {
+            continue;
+        }
+        let k = rows.len();
+        rows.push(format!(
+            "S{k:05},2026-11-{:02}T{:02}:00:00,op{},{c:.4},{v:.3},{t:.2},{}\n",
+            1 + k / 200,
+            k % 24,
+            k % 3,
+            if score > 0.0 { "pass" } else { "fail" }
+        ));
+    }
+    let file = |name: &str, rows: &[String]| {
+        let mut text = String::from(header);
+        text.extend(rows.iter().cloned());
+        write(d, name, text.as_bytes());
+    };
+    // A false-GO target of 1 % at 95 % needs at least 299 NO-GO units in every log.
+    file("export/shift-1.csv", &rows[..1200]);
+    file("export/shift-2.csv", &rows[1200..2400]);
+    file("export/shift-3.csv", &rows[2400..3600]);
+    file("export/holdout.csv", &rows[3600..4400]);
+    file("site-b/line-1.csv", &rows[4400..5200]);
+    write(
+        d,
+        "channels.toml",
+        b"[[channel]]\nname = \"current_a\"\nunit = \"A\"\nmin = 0\nmax = 5\nlsb = 0.0001\n\n[[channel]]\nname = \"vibration_mg\"\nunit = \"mg\"\nmin = 0\nmax = 100\nlsb = 0.001\n\n[[channel]]\nname = \"case_temp_c\"\nunit = \"degC\"\nmin = -20\nmax = 120\nlsb = 0.01\n",
+    );
+    exits(&linegate(&["-q", "key", "new", "-o", "owner"], d), 0);
+    for cmd in [&["check"][..], &["train"], &["audit", "--sweep"], &["pack"]] {
+        let mut a = vec!["-q"];
+        a.extend_from_slice(cmd);
+        exits(&linegate(&a, d), 0);
+    }
+    // The signed blob and its HEX image, the audited ones.
+    for f in ["out/model.lgmb", "out/model.hex", "out/audit/audit.html"] {
+        assert!(d.join(f).is_file(), "{f}");
+    }
+    let a = json(d, "out/audit/audit.json");
+    assert_eq!(a["passed"], true);
+    let blob = std::fs::read(d.join("out/model.lgmb")).unwrap();
+    assert_eq!(
+        a["blob_sha256"].as_str().unwrap(),
+        sha256sum(&d.join("out/model.lgmb"))
+            .unwrap_or_else(|| a["blob_sha256"].as_str().unwrap().to_string())
+    );
+    assert!(a["key_id"].is_string(), "signed with the project's key");
+    let names: Vec<&str> = a["sets"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["name"].as_str().unwrap())
+        .collect();
+    assert_eq!(names, ["train", "held-out", "holdout", "validation-1"]);
+    exits(
+        &linegate(
+            &[
+                "inspect",
+                "out/model.lgmb",
+                "--model",
+                "out/model.json",
+                "--report",
+                "out/audit/audit.json",
+                "--public-key",
+                "owner.pub",
+            ],
+            d,
+        ),
+        0,
+    );
+    assert!(!blob.is_empty());
+}

@@ -304,7 +304,7 @@ fn warn_observed(ds: &host_trainer::ingest::dataset::Dataset, sheet: bool) {
         return;
     }
     eprintln!(
-        "note: no channel sheet: the valid range of all {} channels is the one observed in the training units, widened by half its span, and each lsb is chosen from it; a later unit with a reading outside that range is a FAULT (the device answers NO-GO). Declare the ranges your sensors really have in a sheet (`linegate sheet` writes one to start from) and train with --sheet",
+        "note: no channel sheet: the valid range of all {} channels is the one observed in the training units, widened by half its span on each side, and each lsb is chosen from it; a later unit with a reading outside that range is a FAULT (the device answers NO-GO). Declare the ranges your sensors really have in a sheet (`linegate sheet` writes one to start from) and train with --sheet",
         observed.len()
     );
 }

@@ -6,7 +6,7 @@
 
 use std::fmt::Write;
 
-use super::numbers::lsb;
+use super::numbers::{cell, lsb};
 use crate::release::audit::{AuditReport, SweepRow, UnitRow};
 use crate::train::float_model::FloatModel;
 
@@ -26,11 +26,6 @@ fn physical(v: f64) -> String {
     } else {
         format!("{v:.3e}")
     }
-}
-
-/// Table cells may hold text from a log (unit ids): a pipe would end the cell.
-pub(super) fn cell(t: &str) -> String {
-    t.replace('|', "\\|")
 }
 
 /// The gate a unit behind the decision gates fails: false GO, false NO-GO (a FAULT on a

@@ -35,3 +35,8 @@ pub(super) fn score(v: f64) -> String {
         format!("{}e{x}", trim(m.to_string()))
     }
 }
+
+/// Table cells may hold text from a log (unit ids): a pipe would end the cell.
+pub(super) fn cell(t: &str) -> String {
+    t.replace('|', "\\|")
+}

@@ -54,8 +54,8 @@ pub(super) fn settings_markdown(s: &mut String, r: &AuditReport) {
             s,
             "| `{}` | {} | {} |",
             st.flag,
-            super::markdown::cell(&st.value_text()),
-            super::markdown::cell(&st.source)
+            super::numbers::cell(&st.value_text()),
+            super::numbers::cell(&st.source)
         );
     }
 }

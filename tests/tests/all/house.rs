@@ -273,7 +273,7 @@ fn host_trainer_folders_follow_the_data_flow() {
     // Lower layers may be imported by higher ones, never the other way round.
     let layers: &[&[&str]] = &[
         &["confidence", "digest", "error", "progress"],
-        &["input", "output"],
+        &["input", "output", "project"],
         &["ingest"],
         &["train"],
         &["release"],
