@@ -53,8 +53,7 @@ linegate audit  --model model.json --holdout holdout.csv --out-dir audit\n  \
 linegate pack   --model model.json --holdout holdout.csv --audited audit/audit.json -o model.lgmb --hex 0x3F000\n\n\
 A project file (TOML) holds one release's settings; each key stands for the flag of the same \
 name, a flag on the command line overrides it, and every output records each setting with \
-its source (flag, project file, model, default). Paths are relative to the file. Example:\n\n\
-  [logs]\n  train = [\"logs/shift-*.csv\"]      # several files of one log: same columns\n  \
+its source (flag, project file, model, default). Paths are relative to the file. Example:\n\n  [logs]\n  train = [\"logs/shift-*.csv\"]      # several files of one log: same columns\n  \
 holdout = \"logs/holdout.csv\"\n  validation = [\"site-b/*.csv\"]       # each entry one log\n  \
 [columns]\n  label = \"verdict\"\n  go = [\"pass\"]\n  nogo = [\"fail\"]\n  unit_id = \"serial\"\n  \
 ignore = [\"operator\"]\n  [sheet]\n  path = \"channels.toml\"            # or [[sheet.channel]] entries inline\n  \

@@ -134,11 +134,15 @@ impl PackArgs {
 }
 
 /// The flags that decide a release's blob and verdict (every flag `audit` and `pack`
-/// share): `pack` compares their values with the audit's.
+/// share): `pack` compares their values with the audit's. Files are left to their
+/// contents: the model's id, each log's SHA-256 and the blob's (key included) are compared
+/// themselves, so `logs/a.csv` and `./logs/a.csv` are the same log.
 fn release_flags() -> Vec<String> {
     use clap::Args as _;
+    const FILES: &[&str] = &["model", "train", "holdout", "validate", "sign"];
     ReleaseArgs::augment_args(clap::Command::new("release"))
         .get_arguments()
+        .filter(|a| !FILES.contains(&a.get_id().as_str()))
         .filter_map(|a| a.get_long().map(|l| format!("--{l}")))
         .collect()
 }
