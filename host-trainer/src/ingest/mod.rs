@@ -29,6 +29,9 @@ mod read;
 mod records;
 pub mod scaling;
 mod scan;
+mod signal_files;
+mod signal_parquet;
+mod signal_rows;
 pub mod signal_scale;
 mod signal_source;
 pub mod signals;
@@ -40,4 +43,5 @@ pub use options::{
     GO_TOKENS, LABEL_NAMES, LogOptions, MAX_READING, NOGO_TOKENS, ScaleFrom, TIME_NAMES, UNIT_NAMES,
 };
 pub use read::{StreamedUnit, header_channels, read_log, stream_units};
+pub use signal_files::{log_digest, signal_log_files};
 pub use skip::SkipReport;
