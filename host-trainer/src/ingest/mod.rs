@@ -14,7 +14,9 @@
 //! [`scaling`] maps each channel's valid range to the kernel's inputs and reads
 //! channel sheets; [`dataset`] holds what was read. Signal logs (a window of samples per
 //! unit) take their own path: [`signals`] reads them (its bytes checked by `signal_source`) and reduces each window to the feature
-//! channels [`signal_scale`] describes.
+//! channels [`signal_scale`] describes; `signal_rows` lays out other files (numbered sample
+//! columns, Parquet through `signal_parquet`, a file that is one unit) as its long rows, and
+//! [`signal_log_files`] expands a folder.
 //!
 //! [`Dataset`]: dataset::Dataset
 

@@ -19,7 +19,15 @@ use arrow_schema::DataType;
 use parquet::arrow::arrow_reader::{ParquetRecordBatchReader, ParquetRecordBatchReaderBuilder};
 
 use crate::error::InputError;
-use crate::ingest::signal_rows::FileRow;
+
+/// One row of the file: its line, its cells (a list column's cell empty), and the lists of
+/// the list columns (Parquet), in column order of `lists`.
+#[derive(Default)]
+pub(super) struct FileRow {
+    pub line: u64,
+    pub cells: csv::ByteRecord,
+    pub lists: Vec<csv::ByteRecord>,
+}
 
 /// Rows decoded at a time: bounded memory on large row groups.
 const BATCH: usize = 4096;

@@ -20,18 +20,9 @@ use crate::error::{InputError, shown};
 use crate::ingest::header::{detect_delimiter, find};
 use crate::ingest::names::same_name;
 use crate::ingest::options::{LABEL_NAMES, LogOptions, UNIT_NAMES, label_of};
-use crate::ingest::signal_parquet::ParquetRows;
+use crate::ingest::signal_parquet::{FileRow, ParquetRows};
 use crate::ingest::signal_scale::SignalScale;
 use crate::ingest::signal_source::{Hashing, csv_error, read_error};
-
-/// One row of the file: its line, its cells (a list column's cell empty), and the lists of
-/// the list columns (Parquet), in column order of `lists`.
-#[derive(Default)]
-pub(super) struct FileRow {
-    pub line: u64,
-    pub cells: csv::ByteRecord,
-    pub lists: Vec<csv::ByteRecord>,
-}
 
 /// Where a file's rows come from.
 enum Physical {
