@@ -195,7 +195,7 @@ fn one_row_per_unit_in_numbered_columns_reads_as_the_long_log() {
     let err = train(d, "wide.csv", "plain.toml", "m.json");
     assert!(err.contains("columns = \"x[*]\""), "{err}");
     // A unit's row twice is refused, not merged.
-    let twice = wide.clone() + &wide.lines().nth(1).unwrap().to_string() + "\n";
+    let twice = wide.clone() + wide.lines().nth(1).unwrap() + "\n";
     write(d, "again.csv", twice.as_bytes());
     let err = train(d, "again.csv", "s.toml", "m.json");
     assert!(err.contains("appear again"), "{err}");

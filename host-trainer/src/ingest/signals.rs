@@ -27,7 +27,7 @@
 //! rows cannot be told apart). A short or over-long window is such an error in a training
 //! log; a log read for a model keeps it, as the device's kernel refuses it (see [`ReadFor`]).
 //!
-//! Other layouts reach this reader as the same long rows ([`signal_rows`](super::signal_rows)):
+//! Other layouts reach this reader as the same long rows (`signal_rows`):
 //! one row per unit with numbered sample columns or a list per unit (Parquet), a file without
 //! unit-id column as one unit, a folder of files as one log. A signal declared with `take`
 //! ([`Take`]) keeps its first or last `window` samples of a longer window.
@@ -131,7 +131,7 @@ struct Open {
 
 /// Reads a signal log, calling `each` on every whole unit in file order.
 ///
-/// `path` is a file (delimited text or Parquet, in any layout [`signal_rows`] reads) or a
+/// `path` is a file (delimited text or Parquet, in any layout of the module documentation) or a
 /// folder of such files ([`signal_log_files`]). `read_for` decides the reading channels
 /// and what becomes of a window the device would refuse (see [`ReadFor`]). Errors of one
 /// unit returned by `each` (an [`InputError::Signal`]) skip the unit under
@@ -140,8 +140,6 @@ struct Open {
 /// # Errors
 /// I/O, a missing column, a column that is no declared channel (training), a unit that is
 /// not whole (see the module documentation).
-///
-/// [`signal_rows`]: super::signal_rows
 pub fn stream_signal_units(
     path: &Path,
     opts: &LogOptions,
