@@ -9,7 +9,8 @@ use crate::digest::sha256_hex;
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
 use crate::ingest::scaling::ChannelSheet;
-use crate::ingest::signals::{SignalChannels, read_signal_log};
+use crate::ingest::signal_log_files;
+use crate::ingest::signals::{SignalChannels, read_signal_files, read_signal_log};
 use crate::ingest::{LogOptions, ScaleFrom, read_logs};
 use crate::train::c_choice::{CChoice, CPolicy, DEFAULT_C, choose_c, search_sample};
 use crate::train::eval::{
@@ -50,10 +51,7 @@ pub fn load(
         None => None,
     };
     if let Some((s, _)) = sheet.as_ref().filter(|(s, _)| !s.signals.is_empty()) {
-        return Ok((
-            each_file(log, |f| read_signal_log(f, opts, SignalChannels::Sheet(s)))?,
-            sheet,
-        ));
+        return Ok((signal_files(log, opts, SignalChannels::Sheet(s))?, sheet));
     }
     let scale = sheet
         .as_ref()
@@ -72,36 +70,39 @@ pub fn load_for_model(
     fm: &FloatModel,
 ) -> Result<Dataset, InputError> {
     if !fm.signals.is_empty() {
-        return each_file(log, |f| {
-            read_signal_log(
-                f,
-                opts,
-                SignalChannels::Model {
-                    channels: &fm.channels,
-                    signals: &fm.signals,
-                },
-            )
-        });
+        return signal_files(
+            log,
+            opts,
+            SignalChannels::Model {
+                channels: &fm.channels,
+                signals: &fm.signals,
+            },
+        );
     }
     read_logs(log, opts, ScaleFrom::Model(&fm.channels))
 }
 
-/// Reads each file of a signal log with `read` and joins them into one log.
-fn each_file(
-    files: &[PathBuf],
-    read: impl Fn(&Path) -> Result<Dataset, InputError>,
+/// Reads a signal log given as one path (a file or a folder of files) or several (each a
+/// file or a folder), as one log.
+fn signal_files(
+    log: &[PathBuf],
+    opts: &LogOptions,
+    from: SignalChannels<'_>,
 ) -> Result<Dataset, InputError> {
-    let Some((first, rest)) = files.split_first() else {
-        return Err(InputError::Format {
+    match log {
+        [] => Err(InputError::Format {
             path: PathBuf::new(),
             message: "no log file given".into(),
-        });
-    };
-    let mut ds = read(first)?;
-    for f in rest {
-        ds.append(read(f)?);
+        }),
+        [one] => read_signal_log(one, opts, from),
+        [first, ..] => {
+            let mut files = Vec::new();
+            for p in log {
+                files.extend(signal_log_files(p)?);
+            }
+            read_signal_files(first, &files, opts, from, true)
+        }
     }
-    Ok(ds)
 }
 
 /// What to train.

@@ -376,15 +376,17 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
     let recorded = &fm.provenance.training_log;
     let train_files = if r.train.is_empty() {
         // The files the model was trained on, as it names them.
-        let files: Vec<PathBuf> = if fm.provenance.training_files.is_empty() {
-            vec![recorded.path.clone()]
-        } else {
-            fm.provenance
-                .training_files
-                .iter()
-                .map(|p| p.path.clone())
-                .collect()
-        };
+        // A folder (a signal log of one file per unit) is read as the folder it was.
+        let files: Vec<PathBuf> =
+            if fm.provenance.training_files.is_empty() || recorded.path.is_dir() {
+                vec![recorded.path.clone()]
+            } else {
+                fm.provenance
+                    .training_files
+                    .iter()
+                    .map(|p| p.path.clone())
+                    .collect()
+            };
         settings.push(Setting {
             flag: "--train".into(),
             value: files.iter().map(|f| f.display().to_string()).collect(),

@@ -14,7 +14,9 @@
 //! [`scaling`] maps each channel's valid range to the kernel's inputs and reads
 //! channel sheets; [`dataset`] holds what was read. Signal logs (a window of samples per
 //! unit) take their own path: [`signals`] reads them (its bytes checked by `signal_source`) and reduces each window to the feature
-//! channels [`signal_scale`] describes.
+//! channels [`signal_scale`] describes; `signal_rows` lays out other files (numbered sample
+//! columns, Parquet through `signal_parquet`, a file that is one unit) as its long rows, and
+//! [`signal_log_files`] expands a folder.
 //!
 //! [`Dataset`]: dataset::Dataset
 
@@ -30,6 +32,9 @@ mod read;
 mod records;
 pub mod scaling;
 mod scan;
+mod signal_files;
+mod signal_parquet;
+mod signal_rows;
 pub mod signal_scale;
 mod signal_source;
 pub mod signals;
@@ -42,4 +47,5 @@ pub use options::{
     GO_TOKENS, LABEL_NAMES, LogOptions, MAX_READING, NOGO_TOKENS, ScaleFrom, TIME_NAMES, UNIT_NAMES,
 };
 pub use read::{StreamedUnit, header_channels, read_log, stream_units};
+pub use signal_files::{log_digest, signal_log_files};
 pub use skip::SkipReport;

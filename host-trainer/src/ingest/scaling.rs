@@ -39,6 +39,9 @@
 //! sample_rate = 2000.0       # optional, samples per second (for a band in Hz)
 //! noise = 0.004              # optional: noise per sample, physical units
 //! # offset = 2048            # optional: raw count features measure from; default physical zero
+//! # take = "last"            # optional: a unit with more samples uses its first/last `window`
+//! # columns = "vibration_*"  # optional: a log with one row per unit holds the samples in
+//! #                          # columns vibration_0, vibration_1, … (the `*` is the number)
 //!
 //! [[feature]]
 //! name = "vib_rms"           # the channel's name in the model and reports
@@ -60,7 +63,7 @@ use serde::{Deserialize, Serialize};
 use crate::error::InputError;
 use crate::error::shown;
 use crate::ingest::names::{name_key, same_name};
-use crate::ingest::signal_scale::{FeatureSource, SignalScale};
+use crate::ingest::signal_scale::{FeatureSource, SignalScale, Take};
 
 /// Share of the observed span added on each side of a channel without a sheet entry. Wide on
 /// purpose: the device shows FAULT for a reading outside the valid range, and real units
@@ -454,6 +457,8 @@ struct SheetSignal {
     offset: Option<i32>,
     noise: Option<f64>,
     sample_rate: Option<f64>,
+    take: Option<Take>,
+    columns: Option<String>,
 }
 
 #[derive(Deserialize)]
@@ -555,7 +560,8 @@ impl ChannelSheet {
                 g.offset,
                 g.noise,
             )?
-            .with_sample_rate(g.sample_rate)?;
+            .with_sample_rate(g.sample_rate)?
+            .with_layout(g.take, g.columns)?;
             signals.push(s);
         }
         if signals.len() > shared_model::limits::MAX_SIGNALS {

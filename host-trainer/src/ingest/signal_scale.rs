@@ -37,6 +37,46 @@ pub struct SignalScale {
     /// Declared sensor noise per sample (physical units), if any.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub noise: Option<f64>,
+    /// Which `window` samples a unit with more samples uses (the sheet's `take`); `None`:
+    /// a longer window is refused (a FAULT in a log read for a model), as the device
+    /// refuses it. Recorded in the model so that audit and replay cut the same samples.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub take: Option<Take>,
+    /// The columns of a log with one row per unit that hold the samples, a pattern with
+    /// one `*` for the sample number (the sheet's `columns`, e.g. `vib_*`); `None`: only
+    /// the column named as the signal (one row per sample, or a list per unit).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub columns: Option<String>,
+}
+
+/// Which samples of a window longer than the signal's a unit uses: the station records
+/// more than the model needs (a pre-trigger, a long run), and the device is handed exactly
+/// `window` of them.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Take {
+    /// The first `window` samples.
+    First,
+    /// The last `window` samples.
+    Last,
+}
+
+impl Take {
+    /// The sheet's word for it.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Self::First => "first",
+            Self::Last => "last",
+        }
+    }
+
+    /// The `n` samples of `samples` this rule takes (all of them when there are at most `n`).
+    pub fn cut(self, samples: &[i32], n: usize) -> &[i32] {
+        match self {
+            Self::First => &samples[..n.min(samples.len())],
+            Self::Last => &samples[samples.len().saturating_sub(n)..],
+        }
+    }
 }
 
 impl SignalScale {
@@ -110,6 +150,8 @@ impl SignalScale {
             window,
             sample_rate: None,
             noise,
+            take: None,
+            columns: None,
         };
         // The shared validation (range, offset, window) by the cheapest feature.
         CheckedFeature::new(s.spec(), Feature::Min)
@@ -130,6 +172,49 @@ impl SignalScale {
         }
         self.sample_rate = rate;
         Ok(self)
+    }
+
+    /// The signal with the log-reading rules of its sheet entry: `take` for a longer
+    /// window, `columns` for a log with one row per unit.
+    ///
+    /// # Errors
+    /// A message if the pattern has no `*`, more than one, or nothing around it.
+    pub fn with_layout(
+        mut self,
+        take: Option<Take>,
+        columns: Option<String>,
+    ) -> Result<Self, String> {
+        if let Some(p) = &columns {
+            let stars = p.matches('*').count();
+            if stars != 1 || p.len() == 1 || p.chars().any(char::is_control) {
+                return Err(format!(
+                    "signal '{}': columns = \"{}\" needs exactly one `*` standing for the sample number, and a name around it (e.g. \"{}_*\" for columns {0}_0, {0}_1, …, or \"{0}[*]\")",
+                    self.name.escape_debug(),
+                    p.escape_debug(),
+                    self.name.escape_debug(),
+                ));
+            }
+        }
+        self.take = take;
+        self.columns = columns;
+        Ok(self)
+    }
+
+    /// The sample number column `name` holds under the signal's `columns` pattern (the
+    /// text around the `*` compared without case, as column names are; the `*` matching
+    /// decimal digits), or `None`.
+    pub fn sample_of_column(&self, name: &str) -> Option<u64> {
+        let (head, tail) = self.columns.as_deref()?.split_once('*')?;
+        let n = name.len().checked_sub(head.len() + tail.len())?;
+        let (h, rest) = (name.get(..head.len())?, name.get(head.len()..)?);
+        let (digits, t) = (rest.get(..n)?, rest.get(n..)?);
+        (h.eq_ignore_ascii_case(head)
+            && t.eq_ignore_ascii_case(tail)
+            && !digits.is_empty()
+            && digits.len() <= 9
+            && digits.bytes().all(|b| b.is_ascii_digit()))
+        .then(|| digits.parse().ok())
+        .flatten()
     }
 
     /// The window as the blob and the shared feature code describe it.

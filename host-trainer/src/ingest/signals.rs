@@ -27,19 +27,24 @@
 //! rows cannot be told apart). A short or over-long window is such an error in a training
 //! log; a log read for a model keeps it, as the device's kernel refuses it (see [`ReadFor`]).
 //!
+//! Other layouts reach this reader as the same long rows (`signal_rows`):
+//! one row per unit with numbered sample columns or a list per unit (Parquet), a file without
+//! unit-id column as one unit, a folder of files as one log. A signal declared with `take`
+//! ([`Take`]) keeps its first or last `window` samples of a longer window.
+//!
 //! Features are computed with [`CheckedFeature::compute`], the function the device runs,
 //! so training, audit, replay and the device see the same integers.
 
 use std::collections::HashMap;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use shared_model::WindowFault;
 use shared_model::features::CheckedFeature;
 
 use crate::error::{InputError, Place};
 use crate::error::{shell_word, shown, shown_bytes};
-use crate::ingest::dataset::Dataset;
-use crate::ingest::header::{detect_delimiter, find};
+use crate::ingest::dataset::{Dataset, LogPart};
+use crate::ingest::header::find;
 use crate::ingest::names::{same_name, unique_names};
 use crate::ingest::options::{
     LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES, is_reading, unmapped_label_hint,
@@ -47,8 +52,9 @@ use crate::ingest::options::{
 use crate::ingest::parse::{empty_label_hint, label_cell, parse_number};
 use crate::ingest::read::{checked_classes, spread_checked};
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
-use crate::ingest::signal_scale::SignalScale;
-use crate::ingest::signal_source::{Hashing, csv_error, read_error};
+use crate::ingest::signal_files::{log_digest, signal_log_files};
+use crate::ingest::signal_rows::LongRows;
+use crate::ingest::signal_scale::{SignalScale, Take};
 use crate::ingest::skip::SkipReport;
 
 /// Said where a training log refuses a unit whose window the device would refuse: a log
@@ -60,6 +66,8 @@ pub const SAMPLE_NAMES: &[&str] = &["sample", "sample_index"];
 
 /// One whole unit of a signal log.
 pub struct SignalUnit<'a> {
+    /// The file the unit is read from (one of a folder's).
+    pub file: &'a Path,
     /// The unit id.
     pub id: &'a str,
     /// 1-based line of the unit's first row.
@@ -68,8 +76,12 @@ pub struct SignalUnit<'a> {
     pub label: i8,
     /// The reading channels' values (physical), in the order the reader was given.
     pub readings: &'a [f64],
-    /// Each signal's window of raw samples, in the order of the signals.
+    /// Each signal's window of raw samples, in the order of the signals (cut to the
+    /// signal's window under its `take`).
     pub windows: &'a [Vec<i32>],
+    /// Each window's first sample's row of the unit (`lines` index; not 0 after a cut
+    /// under `take = "last"`).
+    pub firsts: &'a [usize],
     /// The line of each row of the unit (sample `k` of any signal is on `lines[k]`).
     pub lines: &'a [u64],
     /// The timestamp cell of its first row, when asked for and present.
@@ -92,8 +104,11 @@ impl SignalUnit<'_> {
 pub struct SignalLogHeader {
     /// Reading channels, in log column order (or the order asked for).
     pub readings: Vec<String>,
-    /// SHA-256 of the file, when asked for (else empty).
+    /// SHA-256 of the log, when asked for (else empty): the file's, or for several files
+    /// [`log_digest`]'s.
     pub sha256: String,
+    /// Each file read and its SHA-256 (empty when not asked for).
+    pub files: Vec<(PathBuf, String)>,
 }
 
 /// The unit being read.
@@ -104,6 +119,8 @@ struct Open {
     label: Option<i8>,
     readings: Vec<Option<f64>>,
     windows: Vec<Vec<i32>>,
+    /// The unit's row of each window's first sample (not 0 after `take = "last"`).
+    firsts: Vec<usize>,
     lines: Vec<u64>,
     first_sample: Option<i64>,
     time: Option<String>,
@@ -114,9 +131,11 @@ struct Open {
 
 /// Reads a signal log, calling `each` on every whole unit in file order.
 ///
-/// `read_for` decides the reading channels and what becomes of a window the device would
-/// refuse (see [`ReadFor`]). Errors of one unit returned by `each` (an
-/// [`InputError::Signal`]) skip the unit under `opts.skip_bad_rows`, as the reader's own.
+/// `path` is a file (delimited text or Parquet, in any layout of the module documentation) or a
+/// folder of such files ([`signal_log_files`]). `read_for` decides the reading channels
+/// and what becomes of a window the device would refuse (see [`ReadFor`]). Errors of one
+/// unit returned by `each` (an [`InputError::Signal`]) skip the unit under
+/// `opts.skip_bad_rows`, as the reader's own.
 ///
 /// # Errors
 /// I/O, a missing column, a column that is no declared channel (training), a unit that is
@@ -127,164 +146,166 @@ pub fn stream_signal_units(
     signals: &[SignalScale],
     read_for: ReadFor<'_>,
     skipped: &mut SkipReport,
+    each: impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
+) -> Result<SignalLogHeader, InputError> {
+    let files = signal_log_files(path)?;
+    stream_signal_files(path, &files, opts, signals, read_for, skipped, each)
+}
+
+/// [`stream_signal_units`] over the files `files`, read one after the other as one log
+/// named `name` (its digest: [`log_digest`]). A unit's rows lie in one file; a unit id
+/// found in two files is an error, as one found in two places of a file.
+///
+/// # Errors
+/// As [`stream_signal_units`]; files whose reading channels differ.
+pub fn stream_signal_files(
+    name: &Path,
+    files: &[PathBuf],
+    opts: &LogOptions,
+    signals: &[SignalScale],
+    read_for: ReadFor<'_>,
+    skipped: &mut SkipReport,
     mut each: impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
 ) -> Result<SignalLogHeader, InputError> {
-    crate::input::regular_file(path)?;
-    if crate::ingest::parquet::is_parquet(path) {
-        return Err(InputError::Format {
-            path: path.into(),
-            message: "a signal log is read from delimited text (one row per sample); export it as CSV or TSV".into(),
-        });
-    }
-    let file = std::fs::File::open(path).map_err(|e| InputError::io(path, e))?;
-    let mut source = std::io::BufReader::with_capacity(
-        1 << 16,
-        Hashing::new(file, opts.digest, opts.max_line_len),
-    );
-    let delimiter = match opts.delimiter {
-        Some(d) => d,
-        None => {
-            let tsv = path
-                .extension()
-                .is_some_and(|e| e.eq_ignore_ascii_case("tsv") || e.eq_ignore_ascii_case("tab"));
-            let head =
-                std::io::BufRead::fill_buf(&mut source).map_err(|e| read_error(path, opts, e))?;
-            let first = head.split(|&b| b == b'\n').next().unwrap_or_default();
-            if tsv { b'\t' } else { detect_delimiter(first) }
-        }
-    };
-    let decimal_comma = opts.decimal_comma.unwrap_or(delimiter != b',');
-    let mut rdr = csv::ReaderBuilder::new()
-        .delimiter(delimiter)
-        .has_headers(true)
-        .flexible(true)
-        .from_reader(&mut source);
-    let names: Vec<String> = match rdr.byte_headers() {
-        Ok(h) if h.iter().any(|n| !n.is_empty()) => h
-            .iter()
-            .map(|n| String::from_utf8_lossy(n).trim().to_string())
-            .collect(),
-        Ok(_) => return Err(InputError::Empty { path: path.into() }),
-        Err(e) => return Err(csv_error(path, opts, e)),
-    };
-    let cols = Columns::resolve(path, &names, opts, signals, &read_for)?;
     let keep_faults = matches!(read_for, ReadFor::Model { .. });
-    let width = names.len();
     let mut open = Open::default();
-    let mut seen: HashMap<String, u64> = HashMap::new();
+    // Each unit id's file and first line.
+    let mut seen: HashMap<String, (usize, u64)> = HashMap::new();
     let longest = signals
         .iter()
         .map(|s| usize::from(s.window))
         .max()
         .unwrap_or(0);
     let mut record = csv::ByteRecord::new();
-    let mut any = false;
-    loop {
-        let more = rdr
-            .read_byte_record(&mut record)
-            .map_err(|e| csv_error(path, opts, e))?;
-        if !more {
-            break;
-        }
-        let line = record.position().map_or(0, |p| p.line());
-        if record.iter().all(|f| f.trim_ascii().is_empty()) {
-            // A blank row (a spreadsheet's trailing line) belongs to no unit.
-            continue;
-        }
-        if record.len() != width {
-            return Err(InputError::Ragged {
-                hint: String::new(),
-                path: path.into(),
-                line,
-                expected: width,
-                found: record.len(),
-            });
-        }
-        let id = String::from_utf8_lossy(record[cols.unit].trim_ascii());
-        if id.is_empty() {
-            return Err(InputError::Missing {
-                path: path.into(),
-                at: Place::Line(line),
-                column: names[cols.unit].clone(),
-                hint: "every row of a signal log needs its unit's id; fill it in, or skip the unit with --skip-bad-rows".into(),
-            });
-        }
-        if !any || id != open.id.as_str() {
-            if any {
-                finish(
+    let mut readings: Option<(Vec<String>, &Path)> = None;
+    let mut digests = Vec::with_capacity(files.len());
+    for (f, path) in files.iter().enumerate() {
+        let path = path.as_path();
+        let mut rows = LongRows::open(path, opts, signals)?;
+        let mut cols = Columns::resolve(path, &rows.names, opts, signals, &read_for)?;
+        cols.wide = std::mem::take(&mut rows.wide);
+        cols.row_per_unit = rows.row_per_unit;
+        cols.one_unit = rows.one_unit.is_some();
+        let names: Vec<String> = cols
+            .readings
+            .iter()
+            .map(|&i| cols.names[i].clone())
+            .collect();
+        match &readings {
+            Some((first, at)) if first != &names => {
+                return Err(log_error(
                     path,
-                    opts,
+                    &format!(
+                        "its reading channels ({}) differ from those of {} ({}): the files of one log need the same columns",
+                        names.join(", "),
+                        at.display(),
+                        first.join(", ")
+                    ),
+                ));
+            }
+            Some(_) => {}
+            None => readings = Some((names, path)),
+        }
+        let decimal_comma = rows.decimal_comma;
+        let mut any = false;
+        while let Some(next) = rows.next(&mut record)? {
+            let line = next.line;
+            let id = String::from_utf8_lossy(record[cols.unit].trim_ascii());
+            if id.is_empty() {
+                return Err(InputError::Missing {
+                    path: path.into(),
+                    at: Place::Line(line),
+                    column: cols.names[cols.unit].clone(),
+                    hint: "every row of a signal log needs its unit's id; fill it in, or skip the unit with --skip-bad-rows".into(),
+                });
+            }
+            // In a log of one row per unit each row begins a unit, even one with the id
+            // of the row before it (which then appears twice).
+            let starts = id != open.id.as_str() || (cols.row_per_unit && next.new_file_row);
+            if !any || starts {
+                if any {
+                    finish(
+                        path,
+                        opts,
+                        &cols,
+                        signals,
+                        longest,
+                        keep_faults,
+                        &mut open,
+                        skipped,
+                        &mut each,
+                    )?;
+                }
+                if let Some((g, first)) = seen.insert(id.to_string(), (f, line)) {
+                    let where_ = if g == f {
+                        format!("it began on line {first}")
+                    } else {
+                        format!("it began on line {first} of {}", files[g].display())
+                    };
+                    return Err(InputError::Signal {
+                        path: path.into(),
+                        line,
+                        unit: id.into_owned(),
+                        message: format!(
+                            "the unit's rows appear again after other units ({where_}); keep the rows of a unit together, in sample order, and each unit id once"
+                        ),
+                    });
+                }
+                open.start(&id, line, signals.len(), cols.readings.len());
+                any = true;
+            }
+            if open.fault.is_none()
+                && let Err(message) = open.row(
+                    &record,
                     &cols,
                     signals,
                     longest,
                     keep_faults,
-                    &mut open,
-                    skipped,
-                    &mut each,
-                )?;
-            }
-            if let Some(first) = seen.insert(id.to_string(), line) {
-                return Err(InputError::Signal {
+                    decimal_comma,
+                    opts,
+                )
+            {
+                let e = InputError::Signal {
                     path: path.into(),
                     line,
-                    unit: id.into_owned(),
-                    message: format!(
-                        "the unit's rows appear again after other units (it began on line {first}); keep the rows of a unit together, in sample order"
-                    ),
-                });
+                    unit: open.id.clone(),
+                    message,
+                };
+                if !opts.skip_bad_rows {
+                    return Err(e);
+                }
+                open.fault = Some(e);
             }
-            open.start(&id, line, signals.len(), cols.readings.len());
-            any = true;
+            open.lines.push(line);
+            open.rows += 1;
+            if opts.keep_times
+                && open.rows == 1
+                && let Some(t) = cols.time
+            {
+                open.time = Some(String::from_utf8_lossy(record[t].trim_ascii()).into_owned());
+            }
         }
-        if open.fault.is_none()
-            && let Err(message) = open.row(
-                &record,
+        if any {
+            finish(
+                path,
+                opts,
                 &cols,
                 signals,
                 longest,
                 keep_faults,
-                decimal_comma,
-                opts,
-            )
-        {
-            let e = InputError::Signal {
-                path: path.into(),
-                line,
-                unit: open.id.clone(),
-                message,
-            };
-            if !opts.skip_bad_rows {
-                return Err(e);
-            }
-            open.fault = Some(e);
+                &mut open,
+                skipped,
+                &mut each,
+            )?;
         }
-        open.lines.push(line);
-        open.rows += 1;
-        if opts.keep_times
-            && open.rows == 1
-            && let Some(t) = cols.time
-        {
-            open.time = Some(String::from_utf8_lossy(record[t].trim_ascii()).into_owned());
-        }
+        // A unit ends with its file: the next file's first row begins one.
+        open.id.clear();
+        digests.push(rows.sha256()?);
     }
-    if any {
-        finish(
-            path,
-            opts,
-            &cols,
-            signals,
-            longest,
-            keep_faults,
-            &mut open,
-            skipped,
-            &mut each,
-        )?;
-    }
-    drop(rdr);
-    let sha256 = source.into_inner().sha256();
     Ok(SignalLogHeader {
-        readings: cols.readings.iter().map(|&i| names[i].clone()).collect(),
-        sha256,
+        readings: readings.map(|r| r.0).unwrap_or_default(),
+        sha256: log_digest(name, files, &digests),
+        files: files.iter().cloned().zip(digests).collect(),
     })
 }
 
@@ -314,18 +335,33 @@ fn finish(
                 line: last,
                 unit: open.id.clone(),
                 message: format!(
-                    "short window: the unit has {} rows ({}){TRAINING_REFUSES}",
+                    "short window: the unit has {} {} ({}){TRAINING_REFUSES}",
                     open.rows,
+                    cols.rows_word(),
                     short.join(", ")
                 ),
             }
         })
     });
+    // A longer window under `take` is cut to the samples the device is handed.
+    for ((w, s), first) in open.windows.iter_mut().zip(signals).zip(&mut open.firsts) {
+        let n = usize::from(s.window);
+        *first = 0;
+        match s.take {
+            Some(Take::First) => w.truncate(n),
+            Some(Take::Last) if w.len() > n => {
+                *first = w.len() - n;
+                w.drain(..w.len() - n);
+            }
+            _ => {}
+        }
+    }
     let result = match fault {
         Some(e) => Err(e),
         None => {
             let readings: Vec<f64> = open.readings.iter().map(|r| r.unwrap_or(0.0)).collect();
             let unit = SignalUnit {
+                file: path,
                 id: &open.id,
                 line: open.lines.first().copied().unwrap_or(0),
                 label: if cols.label.is_some() {
@@ -335,6 +371,7 @@ fn finish(
                 },
                 readings: &readings,
                 windows: &open.windows,
+                firsts: &open.firsts,
                 lines: &open.lines,
                 time: open.time.as_deref(),
             };
@@ -360,6 +397,8 @@ impl Open {
         self.readings.resize(readings, None);
         self.windows.resize_with(signals, Vec::new);
         self.windows.iter_mut().for_each(Vec::clear);
+        self.firsts.clear();
+        self.firsts.resize(signals, 0);
         self.lines.clear();
         self.first_sample = None;
         self.time = None;
@@ -380,9 +419,12 @@ impl Open {
         opts: &LogOptions,
     ) -> Result<(), String> {
         let k = self.rows;
-        if k >= longest && !keep {
+        // A unit may run on only where a signal takes part of a longer window; a wide
+        // row's trailing empty cells are checked signal by signal below.
+        if k >= longest && !keep && !cols.row_per_unit && signals.iter().all(|s| s.take.is_none()) {
             return Err(format!(
-                "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?{TRAINING_REFUSES}"
+                "over-long window: more than {longest} rows (the longest window is {longest} samples); is a unit id missing or repeated?{} If the station records longer windows, declare `take = \"first\"` or `take = \"last\"` in the [[signal]] to use the first or last samples{TRAINING_REFUSES}",
+                cols.one_unit_note()
             ));
         }
         let text = shown_bytes;
@@ -428,16 +470,19 @@ impl Open {
             if cell.is_empty() {
                 if k < n && !keep {
                     return Err(format!(
-                        "gap: signal '{}' has no sample {k} (0-based; an empty cell)",
-                        s.name
+                        "gap: signal '{}' has no sample {k} (0-based; an empty cell){}",
+                        s.name,
+                        cols.sample_column(j, k)
                     ));
                 }
                 continue;
             }
-            if k >= n && !keep {
+            if k >= n && !keep && s.take.is_none() {
                 return Err(format!(
-                    "over-long window: signal '{}' has a sample {k} (0-based), beyond its window of {n} samples; leave its cells empty after the window{TRAINING_REFUSES}",
-                    s.name
+                    "over-long window: signal '{}' has a sample {k} (0-based){}, beyond its window of {n} samples; leave its cells empty after the window, or declare `take = \"first\"` or `take = \"last\"` in its [[signal]] to use its first or last {n} samples{}{TRAINING_REFUSES}",
+                    s.name,
+                    cols.sample_column(j, k),
+                    cols.one_unit_note()
                 ));
             }
             if w.len() != k {
@@ -451,8 +496,9 @@ impl Open {
                 .filter(|&v| is_reading(v))
                 .ok_or_else(|| {
                     format!(
-                        "signal '{}', sample {k} (0-based): '{}' is not a finite number",
+                        "signal '{}', sample {k} (0-based){}: '{}' is not a finite number",
                         s.name,
+                        cols.sample_column(j, k),
                         text(cell)
                     )
                 })?;
@@ -553,6 +599,12 @@ struct Columns {
     time: Option<usize>,
     signals: Vec<usize>,
     readings: Vec<usize>,
+    /// Each signal's sample columns in a wide file (else empty), for messages.
+    wide: Vec<Vec<String>>,
+    /// Each row of the file is a unit (wide or list layout).
+    row_per_unit: bool,
+    /// The file has no unit-id column: it is one unit.
+    one_unit: bool,
 }
 
 impl Columns {
@@ -668,7 +720,34 @@ impl Columns {
             time,
             signals,
             readings,
+            wide: Vec::new(),
+            row_per_unit: false,
+            one_unit: false,
         })
+    }
+
+    /// " (column 'vib_5')" for sample `k` of signal `j` in a wide file, else "".
+    fn sample_column(&self, j: usize, k: usize) -> String {
+        self.wide
+            .get(j)
+            .and_then(|w| w.get(k))
+            .map(|c| format!(" (column '{c}')"))
+            .unwrap_or_default()
+    }
+
+    /// What a unit's rows are called in messages: rows of the file, or samples of the
+    /// unit's one row.
+    fn rows_word(&self) -> &'static str {
+        if self.row_per_unit { "samples" } else { "rows" }
+    }
+
+    /// Said of an over-long unit in a file without unit-id column.
+    fn one_unit_note(&self) -> &'static str {
+        if self.one_unit {
+            "; the file has no unit-id column (looked for: unit_id, unit, serial), so it is read as one unit: name its unit-id column with --unit-id if it holds several"
+        } else {
+            ""
+        }
     }
 }
 
@@ -726,14 +805,15 @@ pub enum SignalChannels<'a> {
 
 /// The refusal of a window, as an error of its unit naming the signal and sample.
 pub fn window_error(
-    path: &Path,
     unit: &SignalUnit<'_>,
-    signal: &SignalScale,
+    signals: &[SignalScale],
+    j: usize,
     fault: WindowFault,
 ) -> InputError {
+    let (path, signal) = (unit.file, &signals[j]);
     match fault {
         WindowFault::OutOfRange { index, raw } => unit.error(
-            usize::from(index),
+            usize::from(index) + unit.firsts.get(j).copied().unwrap_or(0),
             path,
             format!(
                 "signal '{}', sample {index} (0-based): raw {raw} is outside the signal's valid samples [{}, {}]{TRAINING_REFUSES}",
@@ -763,6 +843,24 @@ pub fn read_signal_log(
     path: &Path,
     opts: &LogOptions,
     from: SignalChannels<'_>,
+) -> Result<Dataset, InputError> {
+    read_signal_files(path, &signal_log_files(path)?, opts, from, false)
+}
+
+/// [`read_signal_log`] of the files `files`, read one after the other as one log named
+/// `path`; each unit remembers its file. With `listed` (files given one by one, not a
+/// folder's) the log's digest is the one a log of several files has
+/// ([`combined_digest`](crate::ingest::dataset::combined_digest)) and each file is kept
+/// in [`Dataset::parts`].
+///
+/// # Errors
+/// As [`read_signal_log`].
+pub fn read_signal_files(
+    path: &Path,
+    files: &[PathBuf],
+    opts: &LogOptions,
+    from: SignalChannels<'_>,
+    listed: bool,
 ) -> Result<Dataset, InputError> {
     // Where the signals, the feature channels and the reading channels' scaling come from.
     let (signals, features, model, sheet) = match from {
@@ -809,8 +907,10 @@ pub fn read_signal_log(
     let mut sample_ranges = vec![(i32::MAX, i32::MIN); signals.len()];
     // A log read for a model keeps the units the device refuses, as FAULT units.
     let keep_faults = model.is_some();
-    let header = stream_signal_units(
+    let mut unit_files: Vec<u32> = Vec::new();
+    let header = stream_signal_files(
         path,
+        files,
         opts,
         signals,
         if keep_faults {
@@ -839,9 +939,9 @@ pub fn read_signal_log(
                     // The device refuses the window: the unit is a FAULT, as one with a
                     // reading out of range is (a count the kernel refuses on that channel).
                     (Err(e), true) => {
-                        refused_count(c).ok_or_else(|| window_error(path, u, &signals[j], e))?
+                        refused_count(c).ok_or_else(|| window_error(u, signals, j, e))?
                     }
-                    (Err(e), false) => return Err(window_error(path, u, &signals[j], e)),
+                    (Err(e), false) => return Err(window_error(u, signals, j, e)),
                 });
             }
             for (r, w) in sample_ranges.iter_mut().zip(u.windows.iter()) {
@@ -858,6 +958,7 @@ pub fn read_signal_log(
             if let Some(t) = u.time {
                 times.push(t.to_string());
             }
+            unit_files.push(files.iter().position(|f| f == u.file).unwrap_or(0) as u32);
             Ok(())
         },
     )?;
@@ -939,6 +1040,26 @@ pub fn read_signal_log(
         ds.unit_ids.push(ids[i].as_bytes());
         if let Some(t) = times.get(i) {
             ds.times.push(t.as_bytes());
+        }
+        if files.len() > 1 {
+            ds.part_of.push(unit_files.get(i).copied().unwrap_or(0));
+        }
+    }
+    if files.len() > 1 {
+        ds.parts = files
+            .iter()
+            .enumerate()
+            .map(|(k, p)| LogPart {
+                path: p.clone(),
+                sha256: header
+                    .files
+                    .get(k)
+                    .map_or(String::new(), |(_, sha)| sha.clone()),
+                units: ds.part_of.iter().filter(|&&f| f as usize == k).count(),
+            })
+            .collect();
+        if listed && opts.digest {
+            ds.sha256 = crate::ingest::dataset::combined_digest(&ds.parts);
         }
     }
     ds.skipped = skipped;

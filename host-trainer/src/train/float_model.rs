@@ -286,6 +286,11 @@ impl FloatModel {
                 h.update(v.to_le_bytes());
             }
             h.update(s.window.to_le_bytes());
+            // Only signals that have one: older models keep the ids they had.
+            if let Some(t) = s.take {
+                h.update(b"take");
+                h.update(t.as_str().as_bytes());
+            }
         }
         for v in self.weights.iter().chain([&self.bias, &self.threshold]) {
             h.update(v.to_le_bytes());
@@ -471,6 +476,7 @@ impl FloatModel {
                 g.noise,
             )
             .and_then(|s| s.with_sample_rate(g.sample_rate))
+            .and_then(|s| s.with_layout(g.take, g.columns.clone()))
             .map_err(fmt)?;
             if &fresh != g {
                 return Err(fmt(format!("signal '{}' is not a valid signal", g.name)));
