@@ -103,7 +103,7 @@ impl ValuesArgs {
         } else if self.csv {
             csv(&info, &units)?
         } else {
-            table(&fm, &model, self.head(model_line, &model), &info, &units)
+            table(&model, self.head(model_line, &model), &info, &units)
         };
         say_raw!("{text}");
         Ok(())
@@ -163,7 +163,6 @@ fn physical_text(v: Option<f64>, lsb: f64) -> String {
 /// The readable table: per unit a heading with its score and replay line, then one row per
 /// channel.
 fn table(
-    fm: &FloatModel,
     model: &CheckedSignalModel,
     head: String,
     info: &[ChannelInfo],

@@ -13,6 +13,7 @@ mod quantisation;
 mod reference;
 mod signing;
 mod soft_margin;
+mod values;
 mod verifier;
 
 /// Prints a loud SKIPPED line, or fails when running in CI (CI=true), where every tool must be present.
