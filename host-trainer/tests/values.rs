@@ -119,9 +119,15 @@ fn a_blob_of_another_model_is_refused_and_the_csv_header_is_stable() {
     exits(&o, 0);
     let text = stdout(&o);
     // README, "values": the CSV columns, in this order.
-    assert_eq!(
-        text.lines().next().unwrap(),
-        "index,line,unit_id,channel,name,source,unit,physical,raw,scaled,fault,score,verdict,device_line"
+    let header = "index,line,unit_id,channel,name,source,unit,physical,raw,scaled,fault,score,verdict,device_line";
+    assert_eq!(text.lines().next().unwrap(), header);
+    let readme = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../README.md"),
+    )
+    .unwrap();
+    assert!(
+        readme.contains(&format!("`{header}`")),
+        "README.md lacks the CSV header"
     );
     let first: Vec<&str> = text.lines().nth(1).unwrap().split(',').collect();
     assert_eq!(
