@@ -250,3 +250,21 @@ fn fault_units_show_the_refused_channel_and_every_line_is_replays() {
         );
     }
 }
+
+#[test]
+fn help_teaches_with_examples_and_exit_codes() {
+    let dir = tempfile::tempdir().unwrap();
+    let o = linegate(&["values", "--help"], dir.path());
+    exits(&o, 0);
+    let text = stdout(&o);
+    for part in [
+        "Example",
+        "--unit FAN-C00012",
+        "--line 14",
+        "Exit codes",
+        "FAULT ch<n>",
+    ] {
+        assert!(text.contains(part), "values --help lacks {part}:\n{text}");
+    }
+    exits(&linegate(&["values"], dir.path()), 2);
+}
