@@ -34,6 +34,7 @@ mod pack;
 mod replay;
 pub mod settings;
 mod train;
+mod values;
 
 use anyhow::Result;
 use clap::{Parser, Subcommand};
@@ -114,6 +115,11 @@ pub enum Cmd {
         after_help = "Example:\n  linegate replay --blob model.lgmb --model model.json holdout.csv > host.txt\n\nExit codes: 0 every unit replayed (FAULT units included: they are device lines); 1 the blob is corrupt or does not match; 2 usage, input or output error."
     )]
     Replay(replay::ReplayArgs),
+    /// List each unit's channel values as the device computes them: physical, raw, scaled input, score.
+    #[command(
+        after_help = "Example:\n  linegate values --model model.json --blob model.lgmb holdout.csv --unit FAN-C00012\n  linegate values --model model.json --blob model.lgmb holdout.csv --line 14 --line 15\n  linegate values --model signal-model.json signal-field.csv --limit 3 --csv > values.csv\n  linegate values --model model.json holdout.csv --json       # no blob: the model quantised plainly\n\nComputes, per unit of the log (read as replay reads it): for each channel the physical value (zero + lsb·raw), the raw integer (a reading in counts; a feature of a signal log: the device's integer feature), the kernel's scaled input word; then the integer score and the unit's replay line (GO, NO-GO, RECHECK or FAULT, the same words). A refused reading or window shows as FAULT ch<n> or FAULT signal<k> in its channel's place.\n\nExit codes: 0 listed; 1 the blob is corrupt or not one the model produces; 2 usage, input or output error (an id or line no unit has is named; nothing is printed)."
+    )]
+    Values(values::ValuesArgs),
     /// Write a SYNTHETIC separable bench log of any size (and its channel sheet), to try Linegate at scale.
     #[command(
         after_help = "Example:\n  linegate generate --rows 1000000 --channels 16 -o big.csv   # also writes big.toml\n  linegate generate --rows 1000 -o small.tsv                 # tab-separated, by extension\n  linegate generate --rows 1000000 -o big.parquet            # Parquet, by extension\n\nExit codes: 0 written; 2 usage or output error."
@@ -256,6 +262,7 @@ pub fn run(cli: &Cli, settings: Vec<host_trainer::project::Setting>) -> Result<(
         Cmd::Pack(a) => a.run(quiet, settings),
         Cmd::Inspect(a) => a.run(quiet),
         Cmd::Replay(a) => a.run(quiet, settings),
+        Cmd::Values(a) => a.run(quiet, settings),
         Cmd::Generate(a) => a.run(quiet),
         Cmd::Demo(a) => a.run(quiet),
         Cmd::Key(a) => a.run(quiet),

@@ -9,7 +9,8 @@
 //! and signs blobs (format version 2); [`keyfile`] reads and writes its key files.
 //! [`features`] audits a model's signal features: ranges, overflow proofs and noise bounds.
 //! [`gates`] holds the release gates, each rate with its exact bounds
-//! (`crate::confidence`); [`units`] streams every unit's scores to `--units`.
+//! (`crate::confidence`); [`units`] streams every unit's scores to `--units`;
+//! [`values`] lists a unit's channel values as the device computes them.
 
 pub mod audit;
 pub mod audit_record;
@@ -25,3 +26,4 @@ pub mod quantise;
 pub mod replay;
 pub mod sign;
 pub mod units;
+pub mod values;

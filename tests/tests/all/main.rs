@@ -14,6 +14,7 @@ mod reference;
 mod signal_layouts;
 mod signing;
 mod soft_margin;
+mod values;
 mod verifier;
 
 /// Prints a loud SKIPPED line, or fails when running in CI (CI=true), where every tool must be present.
