@@ -19,6 +19,7 @@
 //! [`Dataset`]: dataset::Dataset
 
 pub mod dataset;
+pub mod draft;
 mod fast;
 mod header;
 pub(crate) mod names;
@@ -29,6 +30,7 @@ mod read;
 mod records;
 pub mod scaling;
 mod scan;
+mod sheet;
 pub mod signal_scale;
 mod signal_source;
 pub mod signals;
