@@ -153,7 +153,12 @@ impl SheetDraft {
                 let _ = writeln!(t, "name = {}", toml_string(&s.name));
             }
             let _ = writeln!(t, "unit = \"\"  # the channel's unit, for reports");
-            for (key, v) in [("min", s.min), ("max", s.max), ("lsb", s.lsb), ("zero", s.zero)] {
+            for (key, v) in [
+                ("min", s.min),
+                ("max", s.max),
+                ("lsb", s.lsb),
+                ("zero", s.zero),
+            ] {
                 let _ = writeln!(t, "{key} = {}", toml_float(v));
             }
             t.push_str("confirmed = false\n");
@@ -193,7 +198,13 @@ mod tests {
 
     #[test]
     fn strings_and_floats_read_back() {
-        let names = ["plain", "quote\"d", "back\\slash", "tab\tand\u{1b}esc", "ünï"];
+        let names = [
+            "plain",
+            "quote\"d",
+            "back\\slash",
+            "tab\tand\u{1b}esc",
+            "ünï",
+        ];
         let floats = [150.0, 0.001, 1e-7, -2.5e-300, 1.0e16, 123_456_789.125, -0.0];
         for n in names {
             for v in floats {
@@ -209,12 +220,16 @@ mod tests {
     #[test]
     fn suggested_names_avoid_taken_ones() {
         let long = "od280/od315_of_diluted_wines";
-        let taken: HashSet<String> = ["od280_od315_of_diluted", "od280_od315_of_dilute_2"]
+        let taken: HashSet<String> = ["OD280_od315_of_diluted", "od280_od315_of_diluted_2"]
             .iter()
             .map(|s| name_key(s))
             .collect();
         let n = fresh_name(long, &taken);
-        assert_eq!(n, "od280_od315_of_dilute_3");
+        assert_eq!(n, "od280_od315_of_diluted_3");
+        // A suggestion of the full 24 bytes gives up its end for the number.
+        let x = "x".repeat(30);
+        let taken: HashSet<String> = [name_key(&"x".repeat(24))].into();
+        assert_eq!(fresh_name(&x, &taken), format!("{}_2", "x".repeat(22)));
         assert!(n.len() <= NAME_CAPACITY);
     }
 

@@ -98,13 +98,23 @@ mod tests {
 
     #[test]
     fn short_names_keep_whole_words_that_fit() {
-        assert_eq!(short_name("od280/od315_of_diluted_wines", 24), "od280_od315_of_diluted");
+        assert_eq!(
+            short_name("od280/od315_of_diluted_wines", 24),
+            "od280_od315_of_diluted"
+        );
         assert_eq!(short_name("mean radius", 24), "mean_radius");
-        assert_eq!(short_name("Température moteur (°C)", 24), "Température_moteur_C");
+        assert_eq!(
+            short_name("Température moteur (°C)", 24),
+            "Température_moteur_C"
+        );
         assert_eq!(short_name("x".repeat(30).as_str(), 24), "x".repeat(24));
         assert_eq!(short_name("é".repeat(20).as_str(), 24), "é".repeat(12));
         assert_eq!(short_name("//", 24), "channel");
-        for s in ["a b c d e f g h i j k l m n", "___lead", "ünïcödé_wörds_ärë_lönger"] {
+        for s in [
+            "a b c d e f g h i j k l m n",
+            "___lead",
+            "ünïcödé_wörds_ärë_lönger",
+        ] {
             let n = short_name(s, 24);
             assert!(!n.is_empty() && n.len() <= 24, "{s}: {n}");
         }

@@ -68,7 +68,10 @@ pub(super) fn read_log_keeping(
             if let Some(s) = sheet {
                 no_alias_clash(path, &cols, s)?;
             }
-            cols.channels.iter().map(|&c| cols.names[c].clone()).collect()
+            cols.channels
+                .iter()
+                .map(|&c| cols.names[c].clone())
+                .collect()
         }
     };
     // Pass 1, only if some channel has no declared range: observe min/max.

@@ -149,7 +149,10 @@ pub(super) fn read_file(text: &str) -> Result<SheetFile, String> {
         Ok(())
     };
     for c in &mut file.channel {
-        if c.column.as_deref().is_some_and(|col| same_name(col, &c.name)) {
+        if c.column
+            .as_deref()
+            .is_some_and(|col| same_name(col, &c.name))
+        {
             c.column = None;
         }
         fresh(
@@ -219,7 +222,6 @@ fn toml_error(text: &str, e: &toml::de::Error) -> String {
     )
 }
 
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -228,18 +230,22 @@ mod tests {
     fn a_column_clashing_with_a_name_is_refused_naming_both() {
         let head = "[[channel]]\nname='short'\ncolumn='a_long_column'\nmin=0\nmax=1\n";
         // Another channel named like the column.
-        let e = read_file(&format!("{head}[[channel]]\nname='A_Long_Column'\nmin=0\nmax=1\n"))
-            .err()
-            .unwrap();
+        let e = read_file(&format!(
+            "{head}[[channel]]\nname='A_Long_Column'\nmin=0\nmax=1\n"
+        ))
+        .err()
+        .unwrap();
         assert!(
             e.contains("channel 'short' reads column 'a_long_column'")
                 && e.contains("channel 'A_Long_Column'"),
             "{e}"
         );
         // Another channel reading a column of the alias's name.
-        let e = read_file(&format!("{head}[[channel]]\nname='b'\ncolumn='SHORT'\nmin=0\nmax=1\n"))
-            .err()
-            .unwrap();
+        let e = read_file(&format!(
+            "{head}[[channel]]\nname='b'\ncolumn='SHORT'\nmin=0\nmax=1\n"
+        ))
+        .err()
+        .unwrap();
         assert!(
             e.contains("channel 'short'") && e.contains("channel 'b' reads column 'SHORT'"),
             "{e}"

@@ -795,7 +795,9 @@ pub fn read_signal_log(
         })
         .collect::<Result<Vec<(usize, CheckedFeature)>, InputError>>()?;
     let reading_names: Vec<String> = match (model, sheet) {
-        (Some(ch), _) => reading_channels(ch).map(|c| c.log_column().into()).collect(),
+        (Some(ch), _) => reading_channels(ch)
+            .map(|c| c.log_column().into())
+            .collect(),
         (None, Some(s)) => s.channels.iter().map(|c| c.log_column().into()).collect(),
         (None, None) => Vec::new(),
     };
