@@ -66,7 +66,7 @@ def lsb_for(lo, hi):
 
 
 def check_set(folder, name):
-    frame = pd.read_csv(f"{folder}/{name}.csv", float_precision="round_trip")
+    frame = pd.read_csv(f"{folder}/{name}.csv")
     with open(f"{folder}/{name}.toml", "rb") as f:
         sheet = tomllib.load(f)
     entries = sheet["channel"]

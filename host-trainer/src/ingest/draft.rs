@@ -3,7 +3,7 @@
 //! marked `confirmed = false` until someone puts the sensor's real range in.
 //!
 //! The sheet must train as the log does without one: its ranges come from
-//! [`observed_ranges`] (the rows `train`'s first pass reads) through
+//! `read.rs`'s `observed_ranges` (the rows `train`'s first pass reads) through
 //! [`ChannelScale::observed`], and its numbers are written in the shortest form that reads
 //! back to the same double. A column whose name the device cannot keep (over
 //! [`NAME_CAPACITY`] bytes, or holding control characters) gets a suggested `name` and is
@@ -15,7 +15,7 @@ use std::path::{Path, PathBuf};
 
 use shared_model::NAME_CAPACITY;
 
-use super::read::{header_columns, observed_ranges, spread_checked};
+use super::read::{ObservedColumn, header_columns, observed_ranges, spread_checked};
 use crate::error::{InputError, shell_word};
 use crate::ingest::SkipReport;
 use crate::ingest::names::{name_key, short_name};
@@ -60,7 +60,7 @@ pub fn draft_sheet(path: &Path, opts: &LogOptions) -> Result<SheetDraft, InputEr
     // Every column of the header is taken: a suggested name must not be another column's.
     let mut taken: HashSet<String> = cols.names.iter().map(|n| name_key(n)).collect();
     let mut channels = Vec::with_capacity(ranges.len());
-    for (column, lo, hi) in ranges {
+    for ObservedColumn { column, lo, hi } in ranges {
         spread_checked(path, &column, lo, hi, || {
             format!(
                 "drop it with --ignore {} or declare its range in the sheet by hand",

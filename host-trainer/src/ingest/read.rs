@@ -499,6 +499,16 @@ fn no_alias_clash(path: &Path, cols: &Columns, sheet: &ChannelSheet) -> Result<(
     Ok(())
 }
 
+/// A channel column's smallest and largest reading.
+pub struct ObservedColumn {
+    /// The column, as the log spells it.
+    pub column: String,
+    /// Smallest reading.
+    pub lo: f64,
+    /// Largest reading.
+    pub hi: f64,
+}
+
 /// Each channel column's smallest and largest reading under `opts`, as `train` observes
 /// them before it scales a channel the sheet does not declare (the same rows: bad ones are
 /// errors, or skipped and counted in `skipped` under `skip_bad_rows`), with the number of
@@ -510,7 +520,7 @@ pub fn observed_ranges(
     path: &Path,
     opts: &LogOptions,
     skipped: &mut SkipReport,
-) -> Result<(Vec<(String, f64, f64)>, usize), InputError> {
+) -> Result<(Vec<ObservedColumn>, usize), InputError> {
     let names = header_channels(path, opts)?;
     let state = std::sync::Mutex::new((Vec::<(f64, f64)>::new(), 0usize));
     let poisoned = || InputError::TooManyRows {
@@ -556,7 +566,7 @@ pub fn observed_ranges(
     let ranges = names
         .into_iter()
         .zip(ranges)
-        .map(|(n, (lo, hi))| (n, lo, hi))
+        .map(|(column, (lo, hi))| ObservedColumn { column, lo, hi })
         .collect();
     Ok((ranges, rows))
 }
