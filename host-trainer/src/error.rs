@@ -51,6 +51,25 @@ pub enum InputError {
         /// The column repeating it, as spelled there.
         second: String,
     },
+    /// A channel sheet names a channel like another column of the log than the one it reads.
+    #[error(
+        "{path}: line 1: the channel sheet reads column '{column}' as channel '{name}', but column {position} of the log is named '{other}': the model's and the reports' channel '{name}' would be taken for that column; choose another `name` for it in the sheet",
+        column = shown(.column),
+        name = shown(.name),
+        other = shown(.other)
+    )]
+    AliasClash {
+        /// The log.
+        path: PathBuf,
+        /// The channel's name in the sheet.
+        name: String,
+        /// The column it reads, as the log spells it.
+        column: String,
+        /// The other column of that name, as the log spells it.
+        other: String,
+        /// That column's place in the header, from 1.
+        position: usize,
+    },
     /// A named column is not in the header.
     #[error(
         "{path}: no column '{name}' in the header (columns: {columns})",

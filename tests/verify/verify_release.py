@@ -144,7 +144,8 @@ def read_log(path, fm):
     header = [h.strip() for h in rows[0]]
     lower = [h.lower() for h in header]
     label = next(lower.index(n) for n in LABEL_NAMES if n in lower)
-    cols = [lower.index(c["name"].lower()) for c in fm["channels"]]
+    # A channel is read from its "column" where the model file names one (README, model file).
+    cols = [lower.index(c.get("column", c["name"]).lower()) for c in fm["channels"]]
     units = []
     for line, row in enumerate(rows[1:], start=2):
         if not row or all(not c.strip() for c in row):
@@ -196,6 +197,7 @@ def main(argv):
     check("model id (model file)", m["model_id"], fm["model_id"])
     check("blob id", m["blob_id"], rep["blob_id"])
     check("blob SHA-256", hashlib.sha256(blob).hexdigest(), rep["blob_sha256"])
+    check("channel names (model file)", [c["name"] for c in m["channels"]], [c["name"] for c in fm["channels"]])
     check("integer weights", [c["weight"] for c in m["channels"]], rep["weights"])
     check("bias", m["bias"], rep["bias"])
     check("thresholds", (m["nogo_max"], m["go_min"]), (rep["nogo_max"], rep["go_min"]))

@@ -120,8 +120,14 @@ fn inspect(
                 ins.nogo_max.unwrap_or(0),
                 ins.go_min.unwrap_or(0)
             );
+            // As wide as the longest name (up to 24 bytes), 18 at least as before.
+            let w = ins
+                .channels
+                .iter()
+                .map(|c| super::shown(c.name.as_str()).chars().count())
+                .fold(18, usize::max);
             say!(
-                "{:<18} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
+                "{:<w$} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
                 "channel",
                 "raw_min",
                 "raw_max",
@@ -132,7 +138,7 @@ fn inspect(
             );
             for c in &ins.channels {
                 say!(
-                    "{:<18} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
+                    "{:<w$} {:>11} {:>11} {:>11} {:>11} {:>5} {:>11}",
                     super::shown(c.name.as_str()),
                     c.raw_min,
                     c.raw_max,

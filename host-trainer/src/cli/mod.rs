@@ -33,6 +33,7 @@ mod key;
 mod pack;
 mod replay;
 pub mod settings;
+mod sheet;
 mod train;
 mod values;
 
@@ -120,6 +121,11 @@ pub enum Cmd {
         after_help = "Example:\n  linegate values --model model.json --blob model.lgmb holdout.csv --unit FAN-C00012\n  linegate values --model model.json --blob model.lgmb holdout.csv --line 14 --line 15\n  linegate values --model signal-model.json signal-field.csv --limit 3 --csv > values.csv\n  linegate values --model model.json holdout.csv --json       # no blob: the model quantised plainly\n\nComputes, per unit of the log (read as replay reads it): for each channel the physical value (zero + lsb·raw), the raw integer (a reading in counts; a feature of a signal log: the device's integer feature), the kernel's scaled input word; then the integer score and the unit's replay line (GO, NO-GO, RECHECK or FAULT, the same words). A refused reading or window shows as FAULT ch<n> or FAULT signal<k> in its channel's place.\n\nExit codes: 0 listed; 1 the blob is corrupt or not one the model produces; 2 usage, input or output error (an id or line no unit has is named; nothing is printed)."
     )]
     Values(values::ValuesArgs),
+    /// Write a starting channel sheet from a log: each channel's observed range, as train uses it, to confirm.
+    #[command(
+        after_help = "Example:\n  linegate sheet bench.csv -o channels.toml\n  linegate sheet export.csv --ignore operator --label verdict -o channels.toml --force\n\nWrites one [[channel]] per channel column (the columns train would use with the same flags): the observed range widened by half its span on each side and a decimal lsb of at least 20,000 counts over it (what train uses without a sheet, so training with the sheet as written gives the same model ranges), unit empty, and `confirmed = false` with a comment. Put in each sensor's real range and set `confirmed = true`; train and check warn while entries are unconfirmed. A column whose name is longer than the device keeps (24 bytes) gets a suggested `name` and is read by `column`. The file is written whole or not at all, and an existing one only with --force.\n\nExit codes: 0 sheet written; 2 usage, input or output error (nothing written)."
+    )]
+    Sheet(sheet::SheetArgs),
     /// Write a SYNTHETIC separable bench log of any size (and its channel sheet), to try Linegate at scale.
     #[command(
         after_help = "Example:\n  linegate generate --rows 1000000 --channels 16 -o big.csv   # also writes big.toml\n  linegate generate --rows 1000 -o small.tsv                 # tab-separated, by extension\n  linegate generate --rows 1000000 -o big.parquet            # Parquet, by extension\n\nExit codes: 0 written; 2 usage or output error."
@@ -185,9 +191,19 @@ fn warn_sheet(
     )>,
 ) {
     let Some((sheet, file)) = sheet else { return };
+    let unconfirmed = sheet.unconfirmed();
+    if !unconfirmed.is_empty() {
+        eprintln!(
+            "warning: {}: {} of {} channel entries are still to be confirmed (`confirmed = false`: observed ranges, not the sensors'), first '{}'; check each range and set `confirmed = true`",
+            file.path.display(),
+            unconfirmed.len(),
+            sheet.channels.len(),
+            shown(&unconfirmed[0])
+        );
+    }
     // Feature channels are declared by their [[feature]], their range proved from the signal.
     for c in ds.scales.iter().filter(|c| c.source.is_none()) {
-        if sheet.get(&c.name).is_none() {
+        if sheet.get(c.log_column()).is_none() {
             eprintln!(
                 "warning: {}: channel '{}' of {} is not declared there; its observed range [{}, {}] is the device's valid range",
                 file.path.display(),
@@ -202,12 +218,12 @@ fn warn_sheet(
         if !ds
             .scales
             .iter()
-            .any(|d| d.name.eq_ignore_ascii_case(&c.name))
+            .any(|d| d.log_column().eq_ignore_ascii_case(c.log_column()))
         {
             eprintln!(
                 "warning: {}: channel '{}' is not a channel of {}; it is not used",
                 file.path.display(),
-                c.name.escape_debug(),
+                c.log_column().escape_debug(),
                 log.display()
             );
         }
@@ -263,6 +279,7 @@ pub fn run(cli: &Cli, settings: Vec<host_trainer::project::Setting>) -> Result<(
         Cmd::Inspect(a) => a.run(quiet),
         Cmd::Replay(a) => a.run(quiet, settings),
         Cmd::Values(a) => a.run(quiet, settings),
+        Cmd::Sheet(a) => a.run(quiet),
         Cmd::Generate(a) => a.run(quiet),
         Cmd::Demo(a) => a.run(quiet),
         Cmd::Key(a) => a.run(quiet),

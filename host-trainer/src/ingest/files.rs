@@ -2,12 +2,10 @@
 //! channel columns in every file, observed ranges over all of them, each file's digest
 //! kept, and each unit's file known.
 
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use super::options::{LogOptions, ScaleFrom};
-use super::parse::Parsed;
-use super::read::{header_channels, read_log, spread_checked};
-use super::scan::scan;
+use super::read::{ObservedColumn, header_channels, observed_ranges, read_log, spread_checked};
 use super::skip::SkipReport;
 use crate::error::{InputError, shell_word};
 use crate::ingest::dataset::Dataset;
@@ -45,10 +43,14 @@ pub fn read_logs(
                 _ => None,
             };
             let declared = |n: &str| sheet.and_then(|s| s.get(n)).cloned();
-            let ranges = if names.iter().all(|n| declared(n).is_some()) {
+            let ranges: Vec<(f64, f64)> = if names.iter().all(|n| declared(n).is_some()) {
                 Vec::new()
             } else {
-                observed_over(files, opts, names.len())?
+                observed_over(files, opts)?
+                    .0
+                    .iter()
+                    .map(|c| (c.lo, c.hi))
+                    .collect()
             };
             let channels = names
                 .iter()
@@ -71,10 +73,7 @@ pub fn read_logs(
                     }
                 })
                 .collect::<Result<Vec<_>, _>>()?;
-            derived = ChannelSheet {
-                channels,
-                ..ChannelSheet::default()
-            };
+            derived = ChannelSheet::of_channels(channels);
             ScaleFrom::Sheet(&derived)
         }
     };
@@ -132,59 +131,30 @@ fn difference(a: &[String], b: &[String]) -> String {
     }
 }
 
-/// Each channel's (min, max) over every file (readings only: a first pass that converts
-/// nothing).
-fn observed_over(
+/// Each channel column's smallest and largest reading over every file of a log (as
+/// [`observed_ranges`] reads one: the rows `train`'s first pass reads), the rows read and
+/// the rows skipped.
+///
+/// # Errors
+/// Any file's [`InputError`].
+pub fn observed_over(
     files: &[PathBuf],
     opts: &LogOptions,
-    dim: usize,
-) -> Result<Vec<(f64, f64)>, InputError> {
-    let mut ranges = vec![(f64::INFINITY, f64::NEG_INFINITY); dim];
-    for f in files {
-        observe_file(f, opts, &mut ranges)?;
-    }
-    Ok(ranges)
-}
-
-/// Widens `ranges` to the readings of `path`.
-fn observe_file(
-    path: &Path,
-    opts: &LogOptions,
-    ranges: &mut [(f64, f64)],
-) -> Result<(), InputError> {
-    let state = std::sync::Mutex::new(ranges);
-    let observe = |ranges: &mut [(f64, f64)], values: &[f64]| {
-        for (r, &v) in ranges.iter_mut().zip(values) {
-            r.0 = r.0.min(v);
-            r.1 = r.1.max(v);
-        }
-    };
-    let poisoned = || InputError::Format {
-        path: path.into(),
-        message: "the reader stopped".into(),
-    };
-    let mut run = |cols: &super::header::Columns, p: &Parsed| -> Result<(), InputError> {
-        let mut st = state.lock().map_err(|_| poisoned())?;
-        let d = cols.channels.len().max(1);
-        for values in p.values.chunks_exact(d) {
-            observe(&mut st, values);
-        }
-        Ok(())
-    };
+) -> Result<(Vec<ObservedColumn>, usize, SkipReport), InputError> {
     let mut skipped = SkipReport::default();
-    scan(
-        path,
-        opts,
-        None,
-        None,
-        &mut skipped,
-        |_, row| {
-            let mut st = state.lock().map_err(|_| poisoned())?;
-            observe(&mut st, row.values);
-            Ok(())
-        },
-        Some(&mut run),
-        false,
-    )?;
-    Ok(())
+    let mut all: Vec<ObservedColumn> = Vec::new();
+    let mut rows = 0;
+    for f in files {
+        let (ranges, n) = observed_ranges(f, opts, &mut skipped)?;
+        rows += n;
+        if all.is_empty() {
+            all = ranges;
+            continue;
+        }
+        for (a, r) in all.iter_mut().zip(ranges) {
+            a.lo = a.lo.min(r.lo);
+            a.hi = a.hi.max(r.hi);
+        }
+    }
+    Ok((all, rows, skipped))
 }

@@ -67,7 +67,7 @@ impl Columns {
             find(&names, n).ok_or_else(|| unknown(n))?;
         }
         let wanted: Option<Vec<String>> = match (model, &opts.channels) {
-            (Some(m), _) => Some(m.iter().map(|c| c.name.clone()).collect()),
+            (Some(m), _) => Some(m.iter().map(|c| c.log_column().to_string()).collect()),
             (None, Some(list)) => Some(list.clone()),
             (None, None) => None,
         };

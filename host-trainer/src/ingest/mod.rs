@@ -21,6 +21,7 @@
 //! [`Dataset`]: dataset::Dataset
 
 pub mod dataset;
+pub mod draft;
 mod fast;
 mod files;
 mod header;
@@ -32,6 +33,7 @@ mod read;
 mod records;
 pub mod scaling;
 mod scan;
+mod sheet;
 mod signal_files;
 mod signal_parquet;
 mod signal_rows;

@@ -21,6 +21,45 @@ pub(crate) fn name_key(name: &str) -> String {
     name.to_ascii_lowercase()
 }
 
+/// A name of at most `max` bytes for the column `column`, for a channel sheet to suggest:
+/// its letters, digits and underscores, any run of other characters one underscore, then
+/// whole words (split at underscores) while they fit, cut at a character only if the first
+/// word alone does not. `od280/od315_of_diluted_wines` gives `od280_od315_of_diluted` at 24.
+pub(crate) fn short_name(column: &str, max: usize) -> String {
+    let mut clean = String::with_capacity(column.len());
+    for c in column.chars() {
+        if c.is_alphanumeric() {
+            clean.push(c);
+        } else if !clean.is_empty() && !clean.ends_with('_') {
+            clean.push('_');
+        }
+    }
+    let clean = clean.trim_end_matches('_');
+    let mut out = String::new();
+    for word in clean.split('_') {
+        let extra = word.len() + usize::from(!out.is_empty());
+        if out.len() + extra > max {
+            break;
+        }
+        if !out.is_empty() {
+            out.push('_');
+        }
+        out.push_str(word);
+    }
+    if out.is_empty() {
+        for c in clean.chars() {
+            if out.len() + c.len_utf8() > max {
+                break;
+            }
+            out.push(c);
+        }
+    }
+    if out.is_empty() {
+        out.push_str("channel");
+    }
+    out
+}
+
 /// Refuses a header (or schema) holding one name twice, naming both columns as spelled.
 /// A map, not a scan per name: a header of 100,000 columns must not take minutes.
 pub(crate) fn unique_names(path: &Path, names: &[String]) -> Result<(), InputError> {
@@ -55,6 +94,30 @@ mod tests {
         );
         assert_eq!(shown_bytes(long.as_bytes()), s);
         assert_eq!(shown_bytes(b"a,b"), "a,b");
+    }
+
+    #[test]
+    fn short_names_keep_whole_words_that_fit() {
+        assert_eq!(
+            short_name("od280/od315_of_diluted_wines", 24),
+            "od280_od315_of_diluted"
+        );
+        assert_eq!(short_name("mean radius", 24), "mean_radius");
+        assert_eq!(
+            short_name("Température moteur (°C)", 24),
+            "Température_moteur_C"
+        );
+        assert_eq!(short_name("x".repeat(30).as_str(), 24), "x".repeat(24));
+        assert_eq!(short_name("é".repeat(20).as_str(), 24), "é".repeat(12));
+        assert_eq!(short_name("//", 24), "channel");
+        for s in [
+            "a b c d e f g h i j k l m n",
+            "___lead",
+            "ünïcödé_wörds_ärë_lönger",
+        ] {
+            let n = short_name(s, 24);
+            assert!(!n.is_empty() && n.len() <= 24, "{s}: {n}");
+        }
     }
 
     #[test]

@@ -14,7 +14,8 @@ use super::skip::SkipReport;
 use crate::error::InputError;
 use crate::error::shell_word;
 use crate::ingest::dataset::Dataset;
-use crate::ingest::scaling::ChannelScale;
+use crate::ingest::names::same_name;
+use crate::ingest::scaling::{ChannelScale, ChannelSheet};
 
 /// Reads a bench log into a [`Dataset`] of raw readings.
 ///
@@ -61,8 +62,17 @@ pub(super) fn read_log_keeping(
     };
     // The header alone settles the channel list; a model fixes it outright.
     let names: Vec<String> = match model {
-        Some(m) => m.iter().map(|c| c.name.clone()).collect(),
-        None => header_channels(path, opts)?,
+        Some(m) => m.iter().map(|c| c.log_column().to_string()).collect(),
+        None => {
+            let cols = header_columns(path, opts)?;
+            if let Some(s) = sheet {
+                no_alias_clash(path, &cols, s)?;
+            }
+            cols.channels
+                .iter()
+                .map(|&c| cols.names[c].clone())
+                .collect()
+        }
     };
     // Pass 1, only if some channel has no declared range: observe min/max.
     let mut ranges: Vec<(f64, f64)> = Vec::new();
@@ -187,7 +197,12 @@ pub(super) fn read_log_keeping(
             .iter()
             .enumerate()
             .map(|(i, n)| match sheet.and_then(|s| s.get(n)) {
-                // The log's spelling names the channel from here on.
+                // The log's spelling names the channel from here on, or its column when the
+                // sheet names the channel otherwise.
+                Some(s) if s.column.is_some() => Ok(ChannelScale {
+                    column: Some(n.clone()),
+                    ..s.clone()
+                }),
                 Some(s) => Ok(ChannelScale {
                     name: n.clone(),
                     ..s.clone()
@@ -432,6 +447,16 @@ pub(super) fn no_rows(path: &Path, skipped: &SkipReport) -> InputError {
 /// # Errors
 /// Header problems: empty file, duplicate or unknown names, no label.
 pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, InputError> {
+    let cols = header_columns(path, opts)?;
+    Ok(cols
+        .channels
+        .iter()
+        .map(|&c| cols.names[c].clone())
+        .collect())
+}
+
+/// The columns of a log under `opts`, from its header (or a Parquet file's schema) alone.
+pub(super) fn header_columns(path: &Path, opts: &LogOptions) -> Result<Columns, InputError> {
     crate::input::regular_file(path)?;
     let names = if super::parquet::is_parquet(path) {
         super::parquet::column_names(path)?
@@ -445,10 +470,103 @@ pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, In
         };
         read_header(path, opts, &mut reader, &mut Vec::new())?.names
     };
-    let cols = Columns::resolve(path, names, opts, None)?;
-    Ok(cols
-        .channels
-        .iter()
-        .map(|&c| cols.names[c].clone())
-        .collect())
+    Columns::resolve(path, names, opts, None)
+}
+
+/// Refuses a sheet channel that reads one column of the log under the name of another
+/// column (any column of the header: a report's channel must not be taken for another
+/// column), naming both.
+fn no_alias_clash(path: &Path, cols: &Columns, sheet: &ChannelSheet) -> Result<(), InputError> {
+    for &c in &cols.channels {
+        let Some(s) = sheet.get(&cols.names[c]).filter(|s| s.column.is_some()) else {
+            continue;
+        };
+        if let Some(other) = cols
+            .names
+            .iter()
+            .enumerate()
+            .find(|&(k, n)| k != c && same_name(n, &s.name))
+        {
+            return Err(InputError::AliasClash {
+                path: path.into(),
+                name: s.name.clone(),
+                column: cols.names[c].clone(),
+                other: other.1.clone(),
+                position: other.0 + 1,
+            });
+        }
+    }
+    Ok(())
+}
+
+/// A channel column's smallest and largest reading.
+pub struct ObservedColumn {
+    /// The column, as the log spells it.
+    pub column: String,
+    /// Smallest reading.
+    pub lo: f64,
+    /// Largest reading.
+    pub hi: f64,
+}
+
+/// Each channel column's smallest and largest reading under `opts`, as `train` observes
+/// them before it scales a channel the sheet does not declare (the same rows: bad ones are
+/// errors, or skipped and counted in `skipped` under `skip_bad_rows`), with the number of
+/// rows read. The labels are read and checked as a training log's; the file is not hashed.
+///
+/// # Errors
+/// The first [`InputError`] of the log; a log without rows.
+pub fn observed_ranges(
+    path: &Path,
+    opts: &LogOptions,
+    skipped: &mut SkipReport,
+) -> Result<(Vec<ObservedColumn>, usize), InputError> {
+    let names = header_channels(path, opts)?;
+    let state = std::sync::Mutex::new((Vec::<(f64, f64)>::new(), 0usize));
+    let poisoned = || InputError::TooManyRows {
+        path: path.into(),
+        max: opts.max_rows,
+    };
+    let observe = |st: &mut (Vec<(f64, f64)>, usize), values: &[f64]| {
+        if st.0.is_empty() {
+            st.0 = values.iter().map(|&v| (v, v)).collect();
+        }
+        for (r, &v) in st.0.iter_mut().zip(values) {
+            r.0 = r.0.min(v);
+            r.1 = r.1.max(v);
+        }
+    };
+    let mut run = |cols: &Columns, p: &Parsed| -> Result<(), InputError> {
+        let mut st = state.lock().map_err(|_| poisoned())?;
+        for values in p.values.chunks_exact(cols.channels.len().max(1)) {
+            observe(&mut st, values);
+        }
+        st.1 += p.labels.len();
+        Ok(())
+    };
+    scan(
+        path,
+        opts,
+        None,
+        None,
+        skipped,
+        |_: &_, row: super::parse::Row<'_>| {
+            let mut st = state.lock().map_err(|_| poisoned())?;
+            observe(&mut st, row.values);
+            st.1 += 1;
+            Ok(())
+        },
+        Some(&mut run),
+        false,
+    )?;
+    let (ranges, rows) = state.into_inner().map_err(|_| poisoned())?;
+    if rows == 0 {
+        return Err(no_rows(path, skipped));
+    }
+    let ranges = names
+        .into_iter()
+        .zip(ranges)
+        .map(|(column, (lo, hi))| ObservedColumn { column, lo, hi })
+        .collect();
+    Ok((ranges, rows))
 }

@@ -8,19 +8,21 @@
 //! `multiplier / 2^shift ≈ (2^(bits-1) - 1) / half`; the quantiser accounts
 //! for the small ratio between the two exactly.
 //!
-//! A channel sheet (TOML) declares ranges; without one, the observed range
-//! with 50 % of its span added on each side is used.
+//! A channel sheet (TOML; its file is read in `sheet.rs`) declares ranges; without one,
+//! the observed range with 50 % of its span added on each side is used.
 //!
 //! ```toml
 //! # Linegate channel sheet
 //! [[channel]]
-//! name = "supply_current"   # column in the bench log
+//! name = "supply_current"   # the channel's name; also its column in the bench log
+//! # column = "Supply current (mA), station 3"  # optional: the log column, if not `name`
 //! unit = "mA"
 //! min = 150.0                # valid physical range; the device refuses readings outside
 //! max = 900.0
 //! lsb = 0.1                  # physical units per raw count (ADC gain); default 1
 //! zero = 0.0                 # physical value at raw 0 (ADC offset); default 0
 //! noise = 2.0                # optional: sensor noise, for the tolerance analysis
+//! # confirmed = false         # optional: an observed range still to be checked
 //! ```
 //!
 //! A sheet may also declare signals (a window of samples per unit, read from a signal log)
@@ -61,9 +63,8 @@ use std::path::Path;
 use serde::{Deserialize, Serialize};
 
 use crate::error::InputError;
-use crate::error::shown;
-use crate::ingest::names::{name_key, same_name};
-use crate::ingest::signal_scale::{FeatureSource, SignalScale, Take};
+use crate::ingest::names::{same_name, short_name};
+use crate::ingest::signal_scale::{FeatureSource, SignalScale};
 
 /// Share of the observed span added on each side of a channel without a sheet entry. Wide on
 /// purpose: the device shows FAULT for a reading outside the valid range, and real units
@@ -75,8 +76,15 @@ pub const OBSERVED_HEADROOM: f64 = 0.5;
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct ChannelScale {
-    /// Column name in the bench log.
+    /// The channel's name in the model, the blob and every report; also its column in the
+    /// bench log unless [`column`](Self::column) names another.
     pub name: String,
+    /// The bench log's column, when it is not `name` (a channel sheet's `column`: a name
+    /// the device keeps is at most [`NAME_CAPACITY`](shared_model::NAME_CAPACITY) bytes, a
+    /// column's need not be). Absent from model files that do not need it, so theirs keep
+    /// their bytes.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub column: Option<String>,
     /// Physical unit, for reports.
     pub unit: String,
     /// Smallest valid physical reading.
@@ -137,10 +145,12 @@ impl ChannelScale {
         }
         if name.len() > shared_model::NAME_CAPACITY {
             return Err(format!(
-                "channel '{}': the name is {} bytes; the device keeps at most {} (shorten the column or sheet name)",
+                "channel '{}': the name is {} bytes; the device keeps at most {}: name the channel in a channel sheet and read the log column by `column`, e.g. [[channel]] name = \"{}\", column = \"{}\" (`linegate sheet LOG -o channels.toml` writes such a sheet)",
                 name.escape_debug(),
                 name.len(),
-                shared_model::NAME_CAPACITY
+                shared_model::NAME_CAPACITY,
+                short_name(name, shared_model::NAME_CAPACITY).escape_debug(),
+                name.escape_debug()
             ));
         }
         if name.chars().any(char::is_control) {
@@ -169,6 +179,7 @@ impl ChannelScale {
             .max(1);
         Ok(Self {
             name: name.to_string(),
+            column: None,
             unit: unit.to_string(),
             min,
             max,
@@ -244,6 +255,12 @@ impl ChannelScale {
         // Saturating conversion: a degenerate span gives 0 or ∞, refused below.
         let lsb = power_of_ten(((max - min) / 20_000.0).log10().floor() as i32);
         Self::new(name, "", min, max, lsb, 0.0)
+    }
+
+    /// The bench log's column the channel is read from: [`column`](Self::column), else the
+    /// name.
+    pub fn log_column(&self) -> &str {
+        self.column.as_deref().unwrap_or(&self.name)
     }
 
     /// The raw reading for a physical value, or `None` if it is outside the valid range.
@@ -415,66 +432,6 @@ pub(crate) fn power_of_ten(e: i32) -> f64 {
     format!("1e{e}").parse().unwrap_or(f64::NAN)
 }
 
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct SheetFile {
-    #[serde(default)]
-    channel: Vec<SheetChannel>,
-    #[serde(default)]
-    signal: Vec<SheetSignal>,
-    #[serde(default)]
-    feature: Vec<SheetFeature>,
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct SheetChannel {
-    name: String,
-    #[serde(default)]
-    unit: String,
-    min: f64,
-    max: f64,
-    #[serde(default = "one")]
-    lsb: f64,
-    #[serde(default)]
-    zero: f64,
-    noise: Option<f64>,
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct SheetSignal {
-    name: String,
-    #[serde(default)]
-    unit: String,
-    #[serde(default = "one")]
-    lsb: f64,
-    #[serde(default)]
-    zero: f64,
-    raw_min: i32,
-    raw_max: i32,
-    window: u16,
-    offset: Option<i32>,
-    noise: Option<f64>,
-    sample_rate: Option<f64>,
-    take: Option<Take>,
-    columns: Option<String>,
-}
-
-#[derive(Deserialize)]
-#[serde(deny_unknown_fields)]
-struct SheetFeature {
-    name: String,
-    signal: String,
-    kind: String,
-    cycles: Option<f64>,
-    frequency: Option<f64>,
-}
-
-fn one() -> f64 {
-    1.0
-}
-
 /// A channel sheet: declared ranges, raw conversion and noise per channel, and the signals
 /// and feature channels of a signal log.
 #[derive(Clone, Debug, Default)]
@@ -485,9 +442,20 @@ pub struct ChannelSheet {
     pub signals: Vec<SignalScale>,
     /// Feature channels ([`ChannelScale::source`] set), in file order.
     pub features: Vec<ChannelScale>,
+    /// Channels marked `confirmed = false`.
+    unconfirmed: Vec<String>,
 }
 
 impl ChannelSheet {
+    /// A sheet of these reading channels only (a log's scaling decided elsewhere, e.g. the
+    /// observed ranges over several files).
+    pub fn of_channels(channels: Vec<ChannelScale>) -> Self {
+        Self {
+            channels,
+            ..Self::default()
+        }
+    }
+
     /// Reads a channel sheet.
     ///
     /// # Errors
@@ -513,30 +481,10 @@ impl ChannelSheet {
     /// # Errors
     /// A message naming the line or channel at fault.
     pub fn parse(text: &str) -> Result<Self, String> {
-        let file: SheetFile =
-            toml::from_str(text).map_err(|e: toml::de::Error| toml_error(text, &e))?;
-        if file.channel.is_empty() && file.signal.is_empty() {
-            return Err(
-                "the sheet declares no [[channel]] and no [[signal]]; declare at least one".into(),
-            );
-        }
+        let file = super::sheet::read_file(text)?;
         let mut channels: Vec<ChannelScale> = Vec::new();
-        // Names compare as log columns do (ASCII case-insensitively), through a set: a
-        // sheet of 100,000 channels must not take minutes. Channels, signals and features
-        // share one set: each name means one thing in the log, the model and the reports.
-        let mut seen = std::collections::HashSet::new();
-        let mut fresh = |name: &str, what: &str| {
-            if seen.insert(name_key(name)) {
-                Ok(())
-            } else {
-                Err(format!(
-                    "{what} '{}' is declared twice (names compare without case, as log columns do; channels, signals and features share one set of names)",
-                    name.escape_debug()
-                ))
-            }
-        };
+        let mut unconfirmed = Vec::new();
         for c in file.channel {
-            fresh(&c.name, "channel")?;
             let mut s = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)?;
             if c.noise.is_some_and(|n| !(n.is_finite() && n >= 0.0)) {
                 return Err(format!(
@@ -545,11 +493,14 @@ impl ChannelSheet {
                 ));
             }
             s.noise = c.noise;
+            s.column = c.column;
+            if !c.confirmed {
+                unconfirmed.push(c.name);
+            }
             channels.push(s);
         }
         let mut signals: Vec<SignalScale> = Vec::new();
         for g in file.signal {
-            fresh(&g.name, "signal")?;
             let s = SignalScale::new(
                 &g.name,
                 &g.unit,
@@ -573,7 +524,6 @@ impl ChannelSheet {
         }
         let mut features = Vec::new();
         for f in file.feature {
-            fresh(&f.name, "feature")?;
             let at = |m: String| format!("feature '{}': {m}", f.name.escape_debug());
             let signal = signals
                 .iter()
@@ -609,32 +559,23 @@ impl ChannelSheet {
             channels,
             signals,
             features,
+            unconfirmed,
         })
     }
 
-    /// The declared scaling of a channel, matched as log columns are (ASCII
-    /// case-insensitively).
-    pub fn get(&self, name: &str) -> Option<&ChannelScale> {
-        self.channels.iter().find(|c| same_name(&c.name, name))
+    /// The declared scaling of the log column `column`, matched as log columns are (ASCII
+    /// case-insensitively) against each channel's [`log_column`](ChannelScale::log_column).
+    pub fn get(&self, column: &str) -> Option<&ChannelScale> {
+        self.channels
+            .iter()
+            .find(|c| same_name(c.log_column(), column))
     }
-}
 
-/// A TOML error as a message: its line and column and the line itself cut to a readable
-/// length (the parser's own text echoes the whole line, however long).
-fn toml_error(text: &str, e: &toml::de::Error) -> String {
-    let message = e.message().trim_end();
-    let Some(span) = e.span() else {
-        return message.to_string();
-    };
-    let at = span.start.min(text.len());
-    let start = text[..at].rfind('\n').map_or(0, |k| k + 1);
-    let end = text[at..].find('\n').map_or(text.len(), |k| at + k);
-    let line = text[..start].matches('\n').count() + 1;
-    let column = text[start..at].chars().count() + 1;
-    format!(
-        "TOML parse error at line {line}, column {column}: {message} (the line: {})",
-        shown(text[start..end].trim_end())
-    )
+    /// The names of the channels marked `confirmed = false` (ranges still to be checked, as
+    /// `linegate sheet` writes every entry), in file order.
+    pub fn unconfirmed(&self) -> &[String] {
+        &self.unconfirmed
+    }
 }
 
 /// `x.round()` (halves away from zero) up to the sign of a zero result, without the call to

@@ -893,8 +893,10 @@ pub fn read_signal_files(
         })
         .collect::<Result<Vec<(usize, CheckedFeature)>, InputError>>()?;
     let reading_names: Vec<String> = match (model, sheet) {
-        (Some(ch), _) => reading_channels(ch).map(|c| c.name.clone()).collect(),
-        (None, Some(s)) => s.channels.iter().map(|c| c.name.clone()).collect(),
+        (Some(ch), _) => reading_channels(ch)
+            .map(|c| c.log_column().into())
+            .collect(),
+        (None, Some(s)) => s.channels.iter().map(|c| c.log_column().into()).collect(),
         (None, None) => Vec::new(),
     };
     let mut skipped = SkipReport::default();

@@ -266,6 +266,12 @@ impl FloatModel {
                 h.update(v.to_le_bytes());
             }
             h.update(c.half.to_le_bytes());
+            // Only a channel read from a column of another name: other models keep their ids.
+            if let Some(column) = &c.column {
+                h.update(b"column");
+                h.update(column.as_bytes());
+                h.update([0]);
+            }
             // Feature channels and signals only: a model of readings keeps the id it had.
             if let Some(src) = &c.source {
                 h.update(src.signal.as_bytes());
@@ -513,6 +519,9 @@ impl FloatModel {
             }
             let fresh = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)
                 .map_err(|e| fmt(format!("channel '{}': {e}", c.name)))?;
+            if c.column.as_deref().is_some_and(|col| col.trim().is_empty()) {
+                return Err(fmt(format!("channel '{}': its column is empty", c.name)));
+            }
             if (fresh.raw_min, fresh.raw_max, fresh.offset, fresh.half)
                 != (c.raw_min, c.raw_max, c.offset, c.half)
             {

@@ -11,6 +11,7 @@ mod house;
 mod images;
 mod quantisation;
 mod reference;
+mod sheets;
 mod signal_layouts;
 mod signing;
 mod soft_margin;

@@ -25,7 +25,7 @@ fn python() -> Option<&'static str> {
 }
 
 /// Runs the verifier; its exit code and what it printed.
-fn verify(blob: &Path, model: &Path, report: &Path, logs: &[PathBuf]) -> (i32, String) {
+pub(crate) fn verify(blob: &Path, model: &Path, report: &Path, logs: &[PathBuf]) -> (i32, String) {
     let o = Command::new("python3")
         .arg(crate::root().join("tests/verify/verify_release.py"))
         .args([blob, model, report])
@@ -44,7 +44,7 @@ fn verify(blob: &Path, model: &Path, report: &Path, logs: &[PathBuf]) -> (i32, S
 
 /// Trains, audits and packs as `linegate train` / `audit --out-dir` / `pack` do, writing
 /// model.json, audit.json and model.lgmb (the blob the report names) into `dir`.
-fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c: f64) {
+pub(crate) fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[PathBuf], c: f64) {
     let opts = LogOptions::default();
     let (ds, sheet) = workflow::load(&[train.to_path_buf()], &opts, sheet).unwrap();
     let req = TrainRequest {
