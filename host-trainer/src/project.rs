@@ -522,7 +522,6 @@ const KEYS: &[Key] = &[
     ),
 ];
 
-#[allow(clippy::too_many_arguments)]
 const fn key(
     section: &'static str,
     key: &'static str,

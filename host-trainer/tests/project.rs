@@ -8,6 +8,17 @@ use std::path::Path;
 
 use common::{exits, linegate, write};
 
+/// A seeded stream of numbers in [0, 1) (Knuth's MMIX linear congruential generator).
+fn uniform(seed: u64) -> impl FnMut() -> f64 {
+    let mut x = seed;
+    move || {
+        x = x
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        ((x >> 33) % 10_000) as f64 / 10_000.0
+    }
+}
+
 /// An invented pump end-of-line station: three shift files of the same columns, units GO
 /// when the motor current and vibration stay low (with some overlap near the boundary).
 /// Returns the whole log's text (one header) and the GO and NO-GO counts.
@@ -20,13 +31,7 @@ fn shifts(d: &Path) -> (String, usize, usize) {
         String::from(header),
     ];
     let (mut go, mut nogo) = (0, 0);
-    let mut x: u64 = 12345;
-    let mut next = || {
-        x = x
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        ((x >> 33) % 10_000) as f64 / 10_000.0
-    };
+    let mut next = uniform(12345);
     for i in 0..360 {
         let current = 1.0 + 2.0 * next();
         let vib = 10.0 + 40.0 * next();
@@ -377,13 +382,7 @@ fn the_readme_flow_runs_as_written() {
     // The export's columns as the README's file names them; units kept clear of the
     // boundary so the README's gates can pass.
     let header = "serial,tested_at,operator,current_a,vibration_mg,case_temp_c,verdict\n";
-    let mut x: u64 = 99;
-    let mut next = || {
-        x = x
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        ((x >> 33) % 10_000) as f64 / 10_000.0
-    };
+    let mut next = uniform(99);
     let mut rows = Vec::new();
     while rows.len() < 5200 {
         let (c, v, t) = (

@@ -26,6 +26,39 @@ pub fn skip_or_fail(what: &str, why: &str) {
     eprintln!("\n======== SKIPPED: {what}: {why} ========\n");
 }
 
+/// Runs the outside check `tests/verify/<script>` with `args` in `dir`: its exit code and
+/// its output (stdout then stderr), or `None` after a loud SKIPPED line (a failure in CI)
+/// when Python cannot start or the script says (exit 3) that a package it needs is missing.
+pub fn python_check(
+    what: &str,
+    script: &str,
+    args: &[&std::ffi::OsStr],
+    dir: &std::path::Path,
+) -> Option<(Option<i32>, String)> {
+    let o = match std::process::Command::new("python3")
+        .arg(root().join("tests/verify").join(script))
+        .args(args)
+        .current_dir(dir)
+        .output()
+    {
+        Ok(o) => o,
+        Err(e) => {
+            skip_or_fail(what, &e.to_string());
+            return None;
+        }
+    };
+    let text = format!(
+        "{}{}",
+        String::from_utf8_lossy(&o.stdout),
+        String::from_utf8_lossy(&o.stderr)
+    );
+    if o.status.code() == Some(3) {
+        skip_or_fail(what, &text);
+        return None;
+    }
+    Some((o.status.code(), text))
+}
+
 /// The workspace root.
 pub fn root() -> std::path::PathBuf {
     std::path::Path::new(env!("CARGO_MANIFEST_DIR"))

