@@ -61,7 +61,8 @@ struct Key {
     key: &'static str,
     /// The flag's argument id (its field name in the command's flags).
     arg: &'static str,
-    /// The commands it applies to; empty: every command with that argument.
+    /// The commands it applies to; empty: every command that reads logs ([`READING`]) and
+    /// has that argument.
     commands: &'static [&'static str],
     kind: Kind,
     /// What the key holds, for `--help` and error messages.
@@ -69,6 +70,11 @@ struct Key {
 }
 
 const RELEASE: &[&str] = &["audit", "pack"];
+
+/// The commands that read logs: a key of `[columns]` or `[sheet]` applies to these only.
+const READING: &[&str] = &[
+    "check", "train", "audit", "pack", "replay", "values", "sheet",
+];
 
 /// Every key a project file may hold, one per line.
 #[rustfmt::skip]
@@ -272,7 +278,12 @@ impl Project {
         let mut out: Vec<Injected> = Vec::new();
         let shown = self.path.display();
         for k in KEYS {
-            if !(k.commands.is_empty() || k.commands.contains(&command)) || !has(k.arg) {
+            let applies = if k.commands.is_empty() {
+                READING.contains(&command)
+            } else {
+                k.commands.contains(&command)
+            };
+            if !applies || !has(k.arg) {
                 continue;
             }
             if out.iter().any(|i| i.arg == k.arg) {
@@ -338,6 +349,8 @@ fn values_of(k: &Key, v: &toml::Value, dir: &Path) -> Result<(Vec<String>, bool)
             toml::Value::String(s) => Ok(s.clone()),
             toml::Value::Integer(i) => Ok(i.to_string()),
             toml::Value::Float(f) if f.is_finite() => Ok(f.to_string()),
+            // An unquoted date or time reads as TOML's own kind: the text as written.
+            toml::Value::Datetime(d) => Ok(d.to_string()),
             other => Err(format!("{} is not a text or a number", other.type_str())),
         }
     };

@@ -309,6 +309,33 @@ fn several_files_are_one_log_with_each_file_hashed() {
             && err.contains("column 2 is 'vibration_mg' there and 'vibration' here"),
         "{err}"
     );
+    // A file given twice (by another name, or a copy) would count its units twice.
+    std::fs::copy(d.join("shift-1.csv"), d.join("copy.csv")).unwrap();
+    for twice in [
+        ["shift-1.csv", "./shift-1.csv"],
+        ["shift-1.csv", "copy.csv"],
+    ] {
+        let mut a = vec!["--no-project", "train", twice[0], twice[1]];
+        a.extend_from_slice(&common);
+        a.extend(["-o", "x.json"]);
+        let err = exits(&linegate(&a, d), 2);
+        assert!(err.contains("would count twice"), "{err}");
+    }
+    // A file without the unit-id column the others have: its units would take their ids.
+    let no_id: String = std::fs::read_to_string(d.join("shift-3.csv"))
+        .unwrap()
+        .lines()
+        .map(|l| l.split_once(',').unwrap().1.to_string() + "\n")
+        .collect();
+    write(d, "no-id.csv", no_id.as_bytes());
+    let mut a = vec!["--no-project", "train", "shift-1.csv", "no-id.csv"];
+    a.extend_from_slice(&common[..6]);
+    a.extend(["--folds", "0", "--c", "1", "-o", "x.json"]);
+    let err = exits(&linegate(&a, d), 2);
+    assert!(
+        err.contains("no-id.csv") && err.contains("unit-id column"),
+        "{err}"
+    );
     // Files joined by hand: the second header is named as such, with its line.
     let joined = format!(
         "{}{}",

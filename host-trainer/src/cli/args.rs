@@ -396,7 +396,17 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
     } else {
         host_trainer::input::expand_files(&r.train)?
     };
-    let full = workflow::load_for_model(&train_files, &opts, &fm)?;
+    let full = workflow::load_for_model(&train_files, &opts, &fm).map_err(|e| {
+        let e = anyhow::Error::new(e);
+        if r.train.is_empty() {
+            e.context(format!(
+                "reading the training files {} names (as train named them, from the folder it ran in); give them with --train",
+                model_path.display()
+            ))
+        } else {
+            e
+        }
+    })?;
     if full.sha256 != recorded.sha256 {
         bail!(
             "{}: this is not the log {} was trained on (its SHA-256 is {}, the model records {} for {}){}; audit with the training log the model names",
@@ -427,17 +437,29 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
                     model_path.display()
                 ),
             };
-            if t.len() != sp.trained_on || h.len() != sp.held_out {
+            let same_units = sp
+                .held_out_sha256
+                .as_ref()
+                .is_none_or(|d| *d == full.split_digest(&h));
+            if t.len() != sp.trained_on || h.len() != sp.held_out || !same_units {
                 bail!(
-                    "{}: the holdout split gives {} units to train and {} held out, the model records {} and {}; read the log as train did (same options)",
+                    "{}: the holdout split gives {} units to train and {} held out, the model records {} and {}{}; read the log as train did (same options)",
                     full.path.display(),
                     t.len(),
                     h.len(),
                     sp.trained_on,
-                    sp.held_out
+                    sp.held_out,
+                    if same_units {
+                        ""
+                    } else {
+                        " (and other units than those it held out)"
+                    }
                 );
             }
-            others.push(("held-out".to_string(), full.subset(&h)));
+            // The skipped rows are the training log's, counted once (with "train").
+            let mut held = full.subset(&h);
+            held.skipped = Default::default();
+            others.push(("held-out".to_string(), held));
             full.subset(&t)
         }
         None => full,
@@ -505,9 +527,9 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         noise_gate: !r.no_noise_gate,
     };
     if !quiet {
-        super::warn_skipped(&train.path, &train.skipped);
+        super::warn_skipped(&train.name(), &train.skipped);
         for (_, ds) in &others {
-            super::warn_skipped(&ds.path, &ds.skipped);
+            super::warn_skipped(&ds.name(), &ds.skipped);
         }
     }
     Ok(Release {

@@ -62,7 +62,7 @@ impl CheckArgs {
         let log = &files[0];
         let (ds, sheet) = workflow::load(&files, &opts, sheet.as_deref())?;
         if !quiet {
-            super::warn_skipped(log, &ds.skipped);
+            super::warn_skipped(&ds.name(), &ds.skipped);
             super::warn_sheet(log, &ds, sheet.as_ref());
         }
         let figures = Figures {

@@ -63,6 +63,12 @@ impl PackArgs {
         let blob = audit::released_blob(&q, r.passed, signer.as_ref());
         match audited {
             Some(path) => {
+                if !path.exists() {
+                    anyhow::bail!(
+                        "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",
+                        path.display()
+                    );
+                }
                 let record = AuditRecord::read(path)?;
                 if !record.passed && !override_audit {
                     return Err(CheckFailed(format!(

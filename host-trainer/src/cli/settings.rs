@@ -34,6 +34,9 @@ fn command() -> clap::Command {
     c.long_about(about)
 }
 
+/// Commands that take no setting of a release: a project file is not read for them.
+const NO_SETTINGS: &[&str] = &["generate", "demo", "key"];
+
 /// Arguments not recorded as settings: they choose no value of the release, only where
 /// and how its outputs are written (so a model file is the same whatever its name).
 const NOT_SETTINGS: &[&str] = &[
@@ -72,6 +75,13 @@ fn parse_from(args: &[OsString]) -> Result<Parsed, clap::Error> {
     };
     let sub = sub.as_str();
     let given = &given;
+    // Commands that take no setting of a release never read a project file.
+    if NO_SETTINGS.contains(&sub) {
+        return Cli::from_arg_matches(&first).map(|cli| Parsed {
+            cli,
+            settings: Vec::new(),
+        });
+    }
     let project =
         find_project(&first, given).map_err(|m| command().error(clap::error::ErrorKind::Io, m))?;
     let Some(sub_cmd) = command().find_subcommand(sub).cloned() else {
@@ -87,6 +97,18 @@ fn parse_from(args: &[OsString]) -> Result<Parsed, clap::Error> {
         .unwrap_or_default()
         .into_iter()
         .filter(|i| given.value_source(i.arg) != Some(ValueSource::CommandLine))
+        // A key whose flag conflicts with one the command line gives yields to it (a
+        // `--holdout-after` on the line overrides `[split] holdout_fraction`).
+        .filter(|i| {
+            !sub_cmd
+                .get_arguments()
+                .find(|a| a.get_id() == i.arg)
+                .is_some_and(|a| {
+                    sub_cmd.get_arg_conflicts_with(a).iter().any(|c| {
+                        given.value_source(c.get_id().as_str()) == Some(ValueSource::CommandLine)
+                    })
+                })
+        })
         .collect();
     let matches = if injected.is_empty() {
         first
@@ -139,6 +161,9 @@ fn find_project(top: &ArgMatches, sub: &ArgMatches) -> Result<Option<Project>, S
         .or_else(|| top.try_get_one::<PathBuf>("project").ok().flatten())
         .cloned();
     let path = match named {
+        Some(_) if flag("no_project") => {
+            return Err("--project and --no-project: give one".to_string());
+        }
         Some(p) => p,
         None if flag("no_project") => return Ok(None),
         None => {
@@ -308,6 +333,55 @@ mod tests {
         assert_eq!(log.value, [dirs]);
         let epochs = value_of(s, "--epochs").unwrap();
         assert_eq!(epochs.source, "default");
+    }
+
+    #[test]
+    fn a_flag_overrides_a_key_it_conflicts_with_and_other_commands_ignore_the_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("p.toml");
+        std::fs::write(
+            &p,
+            "[split]\nholdout_fraction = 0.2\n[columns]\nchannels = [\"a\", \"b\"]\n",
+        )
+        .unwrap();
+        let ps = p.display().to_string();
+        let parsed = parse_args(&[
+            "linegate",
+            "--project",
+            &ps,
+            "train",
+            "x.csv",
+            "--holdout-after",
+            "2026-10-10",
+            "-o",
+            "m.json",
+        ])
+        .unwrap();
+        assert!(value_of(&parsed.settings, "--holdout-fraction").is_none());
+        assert_eq!(
+            value_of(&parsed.settings, "--holdout-after")
+                .unwrap()
+                .source,
+            "flag"
+        );
+        // generate's --channels is a count, not the log's columns: the file is not read.
+        let parsed = parse_args(&[
+            "linegate",
+            "--project",
+            &ps,
+            "generate",
+            "--rows",
+            "5",
+            "-o",
+            "g.csv",
+        ])
+        .unwrap();
+        assert!(parsed.settings.is_empty());
+        let e = parse_args(&["linegate", "--project", &ps, "check", "--no-project"])
+            .err()
+            .unwrap()
+            .to_string();
+        assert!(e.contains("--project and --no-project"), "{e}");
     }
 
     #[test]

@@ -186,6 +186,7 @@ impl TrainArgs {
                     after: holdout_after.clone(),
                     held_out: hold_idx.len(),
                     trained_on: train_idx.len(),
+                    held_out_sha256: Some(full.split_digest(&hold_idx)),
                 };
                 let held = full.subset(&hold_idx);
                 (full.subset(&train_idx), Some(held), Some(record))
@@ -193,7 +194,7 @@ impl TrainArgs {
             None => (full, None, None),
         };
         if !quiet {
-            super::warn_skipped(log, &ds.skipped);
+            super::warn_skipped(&ds.name(), &ds.skipped);
             super::warn_sheet(log, &ds, sheet.as_ref());
             warn_observed(&ds, sheet.is_some());
         }
@@ -256,7 +257,7 @@ impl TrainArgs {
         if !holdout_files.is_empty() {
             let hd = workflow::load_for_model(&holdout_files, &opts, &out.model)?;
             if !quiet {
-                super::warn_skipped(&hd.path, &hd.skipped);
+                super::warn_skipped(&hd.name(), &hd.skipped);
             }
             out.evaluate_holdout(&hd);
         }

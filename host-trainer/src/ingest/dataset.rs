@@ -81,6 +81,22 @@ impl Dataset {
         }
     }
 
+    /// SHA-256 of the places (file and line, one per line) of the units `idx`: what a
+    /// holdout split records so that a later split of the same log can be shown equal.
+    pub fn split_digest(&self, idx: &[usize]) -> String {
+        let text: String = idx.iter().map(|&i| self.origin(i) + "\n").collect();
+        crate::digest::sha256_hex(text.as_bytes())
+    }
+
+    /// The log's name for messages: its file, or for a log of several files the first and
+    /// how many more (`day-1.csv and 2 more files`).
+    pub fn name(&self) -> std::path::PathBuf {
+        match self.parts.len() {
+            0 | 1 => self.path.clone(),
+            n => format!("{} and {} more files", self.path.display(), n - 1).into(),
+        }
+    }
+
     /// The file unit `i` came from (the log's own path for a log of one file).
     pub fn file_of(&self, i: usize) -> &Path {
         self.part_of
@@ -104,7 +120,46 @@ impl Dataset {
     /// channels and scaling: the log becomes one of several files, each kept in
     /// [`parts`](Self::parts) with its digest, and the log's digest becomes the digest of the
     /// files' digests in order.
-    pub fn append(&mut self, next: Dataset) {
+    ///
+    /// # Errors
+    /// [`InputError::Format`] when `next` is a file the log already holds (the same path,
+    /// or the same bytes under another name): its units would count twice.
+    pub fn append(&mut self, next: Dataset) -> Result<(), crate::error::InputError> {
+        let same = |a: &Path, b: &Path| {
+            a == b || matches!((a.canonicalize(), b.canonicalize()), (Ok(x), Ok(y)) if x == y)
+        };
+        let earlier = std::iter::once((self.path.as_path(), self.sha256.as_str())).chain(
+            self.parts
+                .iter()
+                .map(|p| (p.path.as_path(), p.sha256.as_str())),
+        );
+        for (p, sha) in earlier {
+            if same(p, &next.path)
+                || (!sha.is_empty() && sha == next.sha256 && self.parts.is_empty())
+            {
+                return Err(crate::error::InputError::Format {
+                    path: next.path.clone(),
+                    message: format!(
+                        "this file is already part of the log ({}): its units would count twice",
+                        p.display()
+                    ),
+                });
+            }
+        }
+        if let Some(p) = self
+            .parts
+            .iter()
+            .find(|p| !p.sha256.is_empty() && p.sha256 == next.sha256)
+        {
+            return Err(crate::error::InputError::Format {
+                path: next.path.clone(),
+                message: format!(
+                    "this file has the same bytes (SHA-256 {}) as {}, already part of the log: its units would count twice",
+                    next.sha256,
+                    p.path.display()
+                ),
+            });
+        }
         if self.parts.is_empty() {
             self.parts.push(LogPart {
                 path: self.path.clone(),
@@ -133,6 +188,7 @@ impl Dataset {
         }
         self.skipped.merge(&next.skipped);
         self.sha256 = combined_digest(&self.parts);
+        Ok(())
     }
 
     /// Builds a dataset from points already in [-1, 1] (tests and references).

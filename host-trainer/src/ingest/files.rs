@@ -86,9 +86,34 @@ pub fn read_logs(
                 max: opts.max_rows,
             });
         }
-        ds.append(next);
+        same_role_columns(&ds, &next)?;
+        ds.append(next)?;
     }
     Ok(ds)
+}
+
+/// Refuses a file whose unit-id or timestamp column is missing where the earlier files
+/// have one (or the other way round): its units would take other units' ids.
+fn same_role_columns(ds: &Dataset, next: &Dataset) -> Result<(), InputError> {
+    let differs = |a: bool, b: bool, what: &str| {
+        (a != b).then(|| InputError::Format {
+            path: next.path.clone(),
+            message: format!(
+                "{} a {what} column and {} {}; the files of one log need the same columns",
+                if b { "it has" } else { "it has no" },
+                ds.path.display(),
+                if a { "has one" } else { "has none" }
+            ),
+        })
+    };
+    let ids = |d: &Dataset| d.unit_ids.get(0).is_some();
+    let times = |d: &Dataset| d.times.get(0).is_some();
+    match differs(ids(ds), ids(next), "unit-id")
+        .or_else(|| differs(times(ds), times(next), "timestamp"))
+    {
+        Some(e) => Err(e),
+        None => Ok(()),
+    }
 }
 
 /// The channel columns every file shares, or an error naming the first file that differs

@@ -418,7 +418,7 @@ fn audit_set(
     let empty = || Acc {
         s: SetSummary {
             name: name.into(),
-            path: ds.path.display().to_string(),
+            path: ds.name().display().to_string(),
             sha256: ds.sha256.clone(),
             files: ds.parts.clone(),
             skipped_rows: ds.skipped.total,

@@ -16,6 +16,9 @@ pub struct AuditRecord {
     pub model_id: String,
     /// SHA-256 of the blob the audit named (as `pack` writes it).
     pub blob_sha256: String,
+    /// The release key's id, when the blob is signed.
+    #[serde(default)]
+    pub key_id: Option<String>,
     /// Whether every gate passed.
     pub passed: bool,
     /// Why it failed, if it did.
@@ -59,7 +62,7 @@ impl AuditRecord {
         for flag in compared {
             let was = self.settings.iter().find(|s| &s.flag == flag);
             let is = now.settings.iter().find(|s| &s.flag == flag);
-            if was.map(|s| &s.value) != is.map(|s| &s.value) {
+            if was.map(|s| canonical(&s.value)) != is.map(|s| canonical(&s.value)) {
                 let say = |s: Option<&Setting>| {
                     s.map_or("not set".to_string(), |s| {
                         format!("{} ({})", s.value_text(), s.source)
@@ -102,6 +105,17 @@ impl AuditRecord {
                 logs(is)
             ));
         }
+        if out.is_empty() && self.key_id != now.key_id {
+            let key = |k: &Option<String>| {
+                k.as_ref()
+                    .map_or("unsigned".to_string(), |k| format!("signed with key {k}"))
+            };
+            out.push(format!(
+                "signature: the audit's blob was {}, pack's would be {} (the key is `--sign`, or [release] key)",
+                key(&self.key_id),
+                key(&now.key_id)
+            ));
+        }
         if out.is_empty() && self.blob_sha256 != now.blob_sha256 {
             out.push(format!(
                 "blob: the audit passed the blob with SHA-256 {}, pack would write {}",
@@ -109,5 +123,64 @@ impl AuditRecord {
             ));
         }
         out
+    }
+}
+
+/// A setting's values as they compare: comma-separated pieces in order of their text, each
+/// number written one way (`10.0%` and `10%`, `016` and `16`, `1.0` and `1` are the same),
+/// words in lower case.
+fn canonical(values: &[String]) -> Vec<String> {
+    let number = |t: &str| -> String {
+        let (body, pct) = match t.strip_suffix('%') {
+            Some(b) => (b, "%"),
+            None => (t, ""),
+        };
+        match body.trim().parse::<f64>() {
+            Ok(v) if v.is_finite() => format!("{v}{pct}"),
+            _ => t.to_string(),
+        }
+    };
+    let mut out: Vec<String> = values
+        .iter()
+        .flat_map(|v| v.split(','))
+        .map(|piece| {
+            let piece = piece.trim().to_lowercase();
+            let mut text = String::new();
+            let mut token = String::new();
+            for c in piece.chars() {
+                if c == '=' || c == '@' {
+                    text.push_str(&number(&token));
+                    text.push(c);
+                    token.clear();
+                } else {
+                    token.push(c);
+                }
+            }
+            text.push_str(&number(&token));
+            text
+        })
+        .collect();
+    out.sort();
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::canonical;
+
+    fn same(a: &[&str], b: &[&str]) -> bool {
+        let v = |x: &[&str]| x.iter().map(|s| s.to_string()).collect::<Vec<_>>();
+        canonical(&v(a)) == canonical(&v(b))
+    }
+
+    #[test]
+    fn values_compare_as_numbers_and_sets() {
+        assert!(same(&["10.0%"], &["10%"]));
+        assert!(same(&["016"], &["16"]));
+        assert!(same(&["1%@95.0%"], &["1%@95%"]));
+        assert!(same(&["ch01=2,ch00=1"], &["ch00=1.0", "ch01=2"]));
+        assert!(!same(&["10%"], &["0.1"]));
+        assert!(!same(&["10%"], &["11%"]));
+        assert!(!same(&["Fail"], &["pass"]));
     }
 }

@@ -115,6 +115,10 @@ pub struct HoldoutSplit {
     pub held_out: usize,
     /// Units trained on.
     pub trained_on: usize,
+    /// SHA-256 of the held-out units' places (`Dataset::split_digest`), so a later reading
+    /// of the log can show it holds out the same units, not only as many.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub held_out_sha256: Option<String>,
 }
 
 /// Training figures kept with the model.
