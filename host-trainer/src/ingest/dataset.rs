@@ -122,7 +122,7 @@ impl Dataset {
     /// files' digests in order.
     ///
     /// # Errors
-    /// [`InputError::Format`] when `next` is a file the log already holds (the same path,
+    /// [`InputError::Format`](crate::error::InputError::Format) when `next` is a file the log already holds (the same path,
     /// or the same bytes under another name): its units would count twice.
     pub fn append(&mut self, next: Dataset) -> Result<(), crate::error::InputError> {
         let same = |a: &Path, b: &Path| {
