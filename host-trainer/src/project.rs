@@ -309,17 +309,9 @@ impl Project {
             if !e.given {
                 continue;
             }
-            let mut values = e.values.clone();
-            if k.arg == "audited" {
-                // The audit's folder names its record.
-                values = values
-                    .iter()
-                    .map(|v| Path::new(v).join("audit.json").display().to_string())
-                    .collect();
-            }
             out.push(Injected {
                 arg: k.arg,
-                values,
+                values: e.values.clone(),
                 switch: matches!(k.kind, Kind::Switch { .. }),
                 source,
             });

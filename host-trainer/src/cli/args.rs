@@ -427,20 +427,17 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
     // units: their errors are the model's errors on units it has not seen.
     let train = match &split {
         Some(sp) => {
-            let (t, h) = match (sp.fraction, sp.seed, &sp.after) {
-                (Some(f), Some(seed), _) => full.split_fraction(f, seed),
-                (_, _, Some(after)) => full.split_after(after).map_err(|m| {
-                    anyhow::anyhow!("{}: the model's holdout split: {m}", full.path.display())
-                })?,
-                _ => bail!(
-                    "{}: the holdout split it records names neither a fraction and seed nor a time",
+            let (t, h) = sp.units(&full).map_err(|m| {
+                anyhow::anyhow!(
+                    "{}: the holdout split {} records: {m}",
+                    full.path.display(),
                     model_path.display()
-                ),
-            };
-            let same_units = sp
-                .held_out_sha256
-                .as_ref()
-                .is_none_or(|d| *d == full.split_digest(&h));
+                )
+            })?;
+            let again = sp.clone().made(&full, &t, &h);
+            // A model from before the digest was kept is checked by its counts.
+            let same_units =
+                sp.held_out_sha256.is_none() || sp.held_out_sha256 == again.held_out_sha256;
             if t.len() != sp.trained_on || h.len() != sp.held_out || !same_units {
                 bail!(
                     "{}: the holdout split gives {} units to train and {} held out, the model records {} and {}{}; read the log as train did (same options)",

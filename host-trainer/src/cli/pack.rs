@@ -20,12 +20,13 @@ pub struct PackArgs {
     /// Output blob (default: `[outputs] blob` of the project file).
     #[arg(long, short)]
     pub output: Option<PathBuf>,
-    /// The audit record (audit.json, from `linegate audit --out-dir`) the blob must be:
+    /// The audit record (audit.json, from `linegate audit --out-dir`, or that folder) the
+    /// blob must be:
     /// pack refuses (exit 1, nothing written), naming each difference, unless its model,
     /// logs, settings and blob bytes are the audited ones. Default: audit.json in
     /// `[outputs] audit_dir` of the project file; without either, pack audits the model
     /// itself and says so.
-    #[arg(long, value_name = "AUDIT_JSON")]
+    #[arg(long, value_name = "AUDIT_JSON|DIR")]
     pub audited: Option<PathBuf>,
     /// Also write an Intel HEX image placing the blob at this flash address (e.g. 0x3F000).
     #[arg(long, value_name = "ADDRESS", value_parser = parse_address)]
@@ -62,7 +63,13 @@ impl PackArgs {
         }
         let blob = audit::released_blob(&q, r.passed, signer.as_ref());
         match audited {
-            Some(path) => {
+            Some(given) => {
+                // The audit's folder names its record.
+                let path = &if given.is_dir() {
+                    given.join("audit.json")
+                } else {
+                    given.clone()
+                };
                 if !path.exists() {
                     anyhow::bail!(
                         "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",

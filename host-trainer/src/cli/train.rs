@@ -14,6 +14,7 @@ use host_trainer::release::audit::Limit;
 use host_trainer::release::point_record::HeldOutRates;
 use host_trainer::train::c_choice::{self, CPolicy};
 use host_trainer::train::eval::TrainerKind;
+use host_trainer::train::float_model::HoldoutSplit;
 use host_trainer::train::maxmargin::ClassWeight;
 use host_trainer::train::operating_point::Target;
 use host_trainer::workflow::{self, CvTrainers};
@@ -160,17 +161,12 @@ impl TrainArgs {
         opts.keep_times = holdout_after.is_some();
         let (full, sheet) = workflow::load(&files, &opts, sheet.as_deref())?;
         // A holdout taken out of the training log: train on the rest, evaluate on it.
-        let split = match (holdout_fraction, holdout_after) {
-            (Some(f), _) => Some(("fraction", full.split_fraction(*f, *seed))),
-            (None, Some(t)) => Some((
-                "after",
-                full.split_after(t)
-                    .map_err(|m| anyhow::anyhow!("{}: --holdout-after: {m}", log.display()))?,
-            )),
-            (None, None) => None,
-        };
+        let split = HoldoutSplit::asked(*holdout_fraction, *seed, holdout_after.as_deref());
         let (ds, held, holdout_split) = match split {
-            Some((method, (train_idx, hold_idx))) => {
+            Some(sp) => {
+                let (train_idx, hold_idx) = sp
+                    .units(&full)
+                    .map_err(|m| anyhow::anyhow!("{}: --holdout-after: {m}", log.display()))?;
                 if hold_idx.is_empty() || train_idx.is_empty() {
                     anyhow::bail!(
                         "{}: the holdout split leaves {} units to train on and {} to hold out; both need some",
@@ -179,15 +175,7 @@ impl TrainArgs {
                         hold_idx.len()
                     );
                 }
-                let record = host_trainer::train::float_model::HoldoutSplit {
-                    method: method.into(),
-                    fraction: *holdout_fraction,
-                    seed: holdout_fraction.map(|_| *seed),
-                    after: holdout_after.clone(),
-                    held_out: hold_idx.len(),
-                    trained_on: train_idx.len(),
-                    held_out_sha256: Some(full.split_digest(&hold_idx)),
-                };
+                let record = sp.made(&full, &train_idx, &hold_idx);
                 let held = full.subset(&hold_idx);
                 (full.subset(&train_idx), Some(held), Some(record))
             }

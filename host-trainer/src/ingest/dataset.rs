@@ -128,36 +128,36 @@ impl Dataset {
         let same = |a: &Path, b: &Path| {
             a == b || matches!((a.canonicalize(), b.canonicalize()), (Ok(x), Ok(y)) if x == y)
         };
-        let earlier = std::iter::once((self.path.as_path(), self.sha256.as_str())).chain(
-            self.parts
-                .iter()
-                .map(|p| (p.path.as_path(), p.sha256.as_str())),
-        );
-        for (p, sha) in earlier {
-            if same(p, &next.path)
-                || (!sha.is_empty() && sha == next.sha256 && self.parts.is_empty())
-            {
-                return Err(crate::error::InputError::Format {
-                    path: next.path.clone(),
-                    message: format!(
-                        "this file is already part of the log ({}): its units would count twice",
-                        p.display()
-                    ),
-                });
-            }
-        }
-        if let Some(p) = self
-            .parts
-            .iter()
-            .find(|p| !p.sha256.is_empty() && p.sha256 == next.sha256)
-        {
-            return Err(crate::error::InputError::Format {
-                path: next.path.clone(),
-                message: format!(
+        // The files read so far: this log's one file until a second is appended.
+        let first;
+        let earlier: &[LogPart] = if self.parts.is_empty() {
+            first = [LogPart {
+                path: self.path.clone(),
+                sha256: self.sha256.clone(),
+                units: self.len(),
+            }];
+            &first
+        } else {
+            &self.parts
+        };
+        for p in earlier {
+            let message = if same(&p.path, &next.path) {
+                format!(
+                    "this file is already part of the log ({}): its units would count twice",
+                    p.path.display()
+                )
+            } else if !p.sha256.is_empty() && p.sha256 == next.sha256 {
+                format!(
                     "this file has the same bytes (SHA-256 {}) as {}, already part of the log: its units would count twice",
                     next.sha256,
                     p.path.display()
-                ),
+                )
+            } else {
+                continue;
+            };
+            return Err(crate::error::InputError::Format {
+                path: next.path.clone(),
+                message,
             });
         }
         if self.parts.is_empty() {

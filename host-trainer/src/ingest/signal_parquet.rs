@@ -13,7 +13,7 @@ use std::fs::File;
 use std::path::{Path, PathBuf};
 
 use arrow_array::cast::AsArray;
-use arrow_array::types::{Float32Type, Float64Type};
+use arrow_array::types::{ArrowPrimitiveType, Float32Type, Float64Type};
 use arrow_array::{Array, ArrayRef};
 use arrow_schema::DataType;
 use parquet::arrow::arrow_reader::{ParquetRecordBatchReader, ParquetRecordBatchReaderBuilder};
@@ -204,33 +204,26 @@ fn texts(a: &ArrayRef) -> Result<Texts, arrow_schema::ArrowError> {
 
 /// Scalar cells as the text their CSV export holds; a null as "".
 fn cells(a: &ArrayRef) -> Result<Vec<String>, arrow_schema::ArrowError> {
-    let null = |i: usize| a.is_null(i);
+    /// A float column's cells: `{:?}` is the shortest decimal that reads back to the same
+    /// float.
+    fn floats<T: ArrowPrimitiveType>(a: &ArrayRef) -> Vec<String>
+    where
+        T::Native: std::fmt::Debug,
+    {
+        let v = a.as_primitive::<T>();
+        (0..a.len())
+            .map(|i| {
+                if a.is_null(i) {
+                    String::new()
+                } else {
+                    format!("{:?}", v.value(i))
+                }
+            })
+            .collect()
+    }
     Ok(match a.data_type() {
-        // `{:?}` is the shortest decimal that reads back to the same float.
-        DataType::Float64 => {
-            let v = a.as_primitive::<Float64Type>();
-            (0..a.len())
-                .map(|i| {
-                    if null(i) {
-                        String::new()
-                    } else {
-                        format!("{:?}", v.value(i))
-                    }
-                })
-                .collect()
-        }
-        DataType::Float32 => {
-            let v = a.as_primitive::<Float32Type>();
-            (0..a.len())
-                .map(|i| {
-                    if null(i) {
-                        String::new()
-                    } else {
-                        format!("{:?}", v.value(i))
-                    }
-                })
-                .collect()
-        }
+        DataType::Float64 => floats::<Float64Type>(a),
+        DataType::Float32 => floats::<Float32Type>(a),
         _ => {
             let t = arrow_cast::cast(a, &DataType::Utf8)?;
             let s = t.as_string::<i32>();

@@ -910,6 +910,9 @@ pub fn read_signal_files(
     // A log read for a model keeps the units the device refuses, as FAULT units.
     let keep_faults = model.is_some();
     let mut unit_files: Vec<u32> = Vec::new();
+    // Units come in file order: the file of each is found from the last one's on, once
+    // per file rather than once per unit (a folder may hold one file per unit).
+    let mut file_at = 0usize;
     let header = stream_signal_files(
         path,
         files,
@@ -960,7 +963,10 @@ pub fn read_signal_files(
             if let Some(t) = u.time {
                 times.push(t.to_string());
             }
-            unit_files.push(files.iter().position(|f| f == u.file).unwrap_or(0) as u32);
+            if let Some(k) = files[file_at..].iter().position(|f| f == u.file) {
+                file_at += k;
+            }
+            unit_files.push(u32::try_from(file_at).unwrap_or(u32::MAX));
             Ok(())
         },
     )?;

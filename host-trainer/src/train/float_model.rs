@@ -16,7 +16,7 @@
 //! The score is `Σ weights[i] · (raw_i − offset_i) / half_i + bias`; GO when it exceeds `threshold`.
 //! Weights are normalised so the largest magnitude is 1.
 
-use crate::ingest::dataset::LogPart;
+use crate::ingest::dataset::{Dataset, LogPart};
 use crate::ingest::options::RecordedOptions;
 use crate::project::Setting;
 use std::path::{Path, PathBuf};
@@ -119,6 +119,50 @@ pub struct HoldoutSplit {
     /// of the log can show it holds out the same units, not only as many.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub held_out_sha256: Option<String>,
+}
+
+impl HoldoutSplit {
+    /// The split asked for by `--holdout-fraction` (seeded by `seed`) or `--holdout-after`,
+    /// before it is made (no counts yet); `None` when neither is given.
+    pub fn asked(fraction: Option<f64>, seed: u64, after: Option<&str>) -> Option<Self> {
+        let (method, after) = match (fraction, after) {
+            (Some(_), _) => ("fraction", None),
+            (None, Some(t)) => ("after", Some(t.to_string())),
+            (None, None) => return None,
+        };
+        Some(Self {
+            method: method.into(),
+            fraction,
+            seed: fraction.map(|_| seed),
+            after,
+            held_out: 0,
+            trained_on: 0,
+            held_out_sha256: None,
+        })
+    }
+
+    /// The units this split trains on and holds out of `ds`, both in file order: the one
+    /// rule `train` splits by and the audit splits again by.
+    ///
+    /// # Errors
+    /// A split by time over a unit without a timestamp; a record naming neither rule.
+    pub fn units(&self, ds: &Dataset) -> Result<(Vec<usize>, Vec<usize>), String> {
+        match (self.fraction, self.seed, &self.after) {
+            (Some(f), Some(seed), _) => Ok(ds.split_fraction(f, seed)),
+            (_, _, Some(after)) => ds.split_after(after),
+            _ => Err("the holdout split names neither a fraction and seed nor a time".into()),
+        }
+    }
+
+    /// This split as made on `ds`: its counts and the digest of the held-out units.
+    pub fn made(self, ds: &Dataset, trained: &[usize], held: &[usize]) -> Self {
+        Self {
+            held_out: held.len(),
+            trained_on: trained.len(),
+            held_out_sha256: Some(ds.split_digest(held)),
+            ..self
+        }
+    }
 }
 
 /// Training figures kept with the model.
