@@ -2,11 +2,9 @@
 //! files, the split `train` records audited as held out, and `pack` writing exactly the
 //! audited blob or refusing with what differs.
 
-mod common;
-
 use std::path::Path;
 
-use common::{exits, linegate, write};
+use crate::common::{exits, linegate, write};
 
 /// A seeded stream of numbers in [0, 1) (Knuth's MMIX linear congruential generator).
 fn uniform(seed: u64) -> impl FnMut() -> f64 {

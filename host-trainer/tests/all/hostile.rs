@@ -1,12 +1,10 @@
 //! Hostile files and places: each is refused cleanly (no panic, no hang, no runaway
 //! allocation), with a message naming the file, and nothing is written.
 
-mod common;
-
 use std::path::Path;
 use std::process::{Command, Stdio};
 
-use common::{demo, exits, linegate, on_demo, write};
+use crate::common::{demo, exits, linegate, on_demo, write};
 
 #[test]
 fn hex_images_with_foreign_text_junk_or_a_wrapping_address_are_refused() {

@@ -1,11 +1,9 @@
 //! The `linegate` command line: malformed input gives its specific message and exit code
 //! and leaves no output; gates exit 1; packing and inspecting behave as documented.
 
-mod common;
-
 use std::path::{Path, PathBuf};
 
-use common::{demo, exits, linegate, on_demo, write};
+use crate::common::{demo, exits, linegate, on_demo, write};
 
 const GOOD: &str =
     "unit_id,a,b,label\nU1,1.0,2.0,GO\nU2,2.0,1.5,GO\nU3,-1.0,-2.0,NO-GO\nU4,-2.0,-1.0,NO-GO\n";

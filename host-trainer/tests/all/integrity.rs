@@ -2,11 +2,10 @@
 //! model, a signed blob whose signature is not checked, and replay output left half-written
 //! are all caught by `inspect` and `replay`. (The demo data is synthetic.)
 
-mod common;
-
 use std::path::Path;
 
-use common::{demo, exits, linegate, write};
+use crate::common;
+use crate::common::{demo, exits, linegate, write};
 use shared_model::{CheckedModel, FixedModel, blob};
 
 /// The demo blob's model.

@@ -6,12 +6,10 @@
 //! `excel` dialect ends lines with CR LF, and the `utf-8-sig` codec writes the byte-order
 //! mark, as a spreadsheet's "CSV UTF-8" export does), not by Linegate.
 
-mod common;
-
 use std::path::Path;
 use std::process::Command;
 
-use common::{exits, linegate, write};
+use crate::common::{exits, linegate, write};
 
 /// `check --json` of `log` in `d` with `extra` flags: the verdict, margin and units.
 fn check_json(d: &Path, log: &str, extra: &[&str]) -> (serde_json::Value, String) {

@@ -2,13 +2,11 @@
 //! input, are refused before anything is written; temporary files and folders a killed run
 //! left are removed by the next command writing into that folder, even one that is refused.
 
-mod common;
-
 use std::path::Path;
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
-use common::{demo, exits, linegate, on_demo};
+use crate::common::{demo, exits, linegate, on_demo};
 
 /// The entries of `dir`, sorted.
 fn names(dir: &Path) -> Vec<String> {

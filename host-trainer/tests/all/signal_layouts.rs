@@ -7,12 +7,10 @@
 //! Outside reference for the Parquet files: pyarrow writes them (Linegate writes no
 //! Parquet); without pyarrow that test prints a loud SKIPPED line (and fails under CI=true).
 
-mod common;
-
 use std::path::Path;
 use std::process::Command;
 
-use common::{exits, linegate, write};
+use crate::common::{exits, linegate, write};
 
 /// Signal `x`: 4 samples, raw 0..=100 (lsb 1), its mean and peak-to-peak as features; `extra`
 /// goes into the [[signal]].

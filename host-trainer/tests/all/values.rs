@@ -3,9 +3,7 @@
 //! every unit's line equal to `replay`'s. The numbers themselves are checked against numpy
 //! in `tests/tests/all/values.rs`.
 
-mod common;
-
-use common::{demo, exits, linegate};
+use crate::common::{demo, exits, linegate};
 
 const BENCH: [&str; 5] = [
     "--model",

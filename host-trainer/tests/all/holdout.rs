@@ -2,11 +2,9 @@
 //! a time; recorded in the model's provenance, deterministic, and refused where it cannot
 //! be made.
 
-mod common;
-
 use std::path::Path;
 
-use common::{exits, linegate, write};
+use crate::common::{exits, linegate, write};
 
 /// A log of `n` units (GO when a + b > 10) with a timestamp per unit, day by day.
 fn timed_log(d: &Path, n: usize) -> (usize, usize) {

@@ -7,12 +7,10 @@
 //! same values. Linegate writes neither. Without pyarrow each test prints a loud SKIPPED
 //! line (and fails under CI=true).
 
-mod common;
-
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use common::{exits, linegate, write};
+use crate::common::{exits, linegate, write};
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::ingest::scaling::ChannelSheet;
 use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};

@@ -2,12 +2,10 @@
 //! key file with two keys or a key id that is not its key's is refused, and `key new`
 //! writes the TOML layout (README, "Signed releases").
 
-mod common;
-
 use std::os::unix::fs::PermissionsExt;
 use std::path::Path;
 
-use common::{demo, exits, linegate, on_demo};
+use crate::common::{demo, exits, linegate, on_demo};
 
 fn chmod(p: &Path, mode: u32) {
     std::fs::set_permissions(p, std::fs::Permissions::from_mode(mode)).unwrap();

@@ -2,12 +2,10 @@
 //! accepted one, which then generates; a margin that is not a finite number, 0 or more, is
 //! refused as the flags are read.
 
-mod common;
-
 use std::path::Path;
 use std::process::{Command, Output, Stdio};
 
-use common::exits;
+use crate::common::exits;
 
 /// `linegate generate` with a short hang guard: a run that spins is killed (exit 124).
 fn generate(args: &[&str], d: &Path) -> Output {

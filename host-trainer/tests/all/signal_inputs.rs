@@ -5,11 +5,9 @@
 //! every command; only a training log refuses it, saying why. Columns the sheet does not
 //! declare: refused up front by name, never taken for a reading.
 
-mod common;
-
 use std::path::Path;
 
-use common::{exits, linegate, write};
+use crate::common::{exits, linegate, write};
 
 /// Signal `x`: 4 samples, raw 0..=100 (lsb 1), its mean and peak-to-peak as features.
 const SHEET: &str = "[[signal]]\nname = \"x\"\nraw_min = 0\nraw_max = 100\nwindow = 4\n\n\

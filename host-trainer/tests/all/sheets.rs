@@ -3,11 +3,9 @@
 //! refused with the way out; `linegate sheet` writing a sheet that trains as the log does
 //! without one, and refusing to overwrite.
 
-mod common;
-
 use std::path::Path;
 
-use common::{exits, linegate, write};
+use crate::common::{exits, linegate, write};
 
 /// The long column of the test station's log: more than the 24 bytes a device keeps.
 const LONG: &str = "Supply current at full load (mA)";

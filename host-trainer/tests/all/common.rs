@@ -1,6 +1,6 @@
-//! Helpers the command-line test binaries share: run `linegate`, check its exit code,
+//! Helpers the test modules share: run `linegate`, check its exit code,
 //! write inputs, make the demo.
-// Each test binary uses its own subset of these.
+// Not every helper is used by every build of the modules.
 #![allow(dead_code)]
 
 use std::path::{Path, PathBuf};

@@ -4,12 +4,11 @@
 //! layout of FORMAT.md, sharing no code with Linegate); and every way a signal log or sheet
 //! can be wrong, each named by file, line, unit, column and sample.
 
-mod common;
-
 use std::path::Path;
 use std::process::Command;
 
-use common::{exits, linegate, write};
+use crate::common;
+use crate::common::{exits, linegate, write};
 
 /// The independent replay's verdict on `replay` (a file of `linegate replay` lines):
 /// `Some(stdout)` when it agrees, `None` (and a loud SKIPPED, or a failure in CI) without
