@@ -2,6 +2,7 @@
 //! and picks the exit code: 0 success, 1 a check ran and failed (not separable, audit
 //! failed, blob corrupt or not matching), 2 usage, input or output error.
 
+#![forbid(unsafe_code)]
 #![allow(clippy::result_large_err)]
 
 mod cli;
