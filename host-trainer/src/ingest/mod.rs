@@ -34,17 +34,21 @@ mod records;
 pub mod scaling;
 mod scan;
 mod sheet;
+mod signal_check;
+mod signal_columns;
 mod signal_files;
 mod signal_parquet;
 mod signal_rows;
 pub mod signal_scale;
 mod signal_source;
+mod signal_take;
+mod signal_units;
 pub mod signals;
 mod skip;
 #[cfg(test)]
 mod tests;
 
-pub use files::read_logs;
+pub use files::read;
 pub use options::{
     GO_TOKENS, LABEL_NAMES, LogOptions, MAX_READING, NOGO_TOKENS, ScaleFrom, TIME_NAMES, UNIT_NAMES,
 };

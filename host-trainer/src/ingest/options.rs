@@ -1,6 +1,7 @@
 //! How a log is read: the options, the default column names and label tokens.
 
 use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+use crate::ingest::signal_scale::SignalScale;
 
 /// Readings beyond this magnitude are refused as not finite: no sensor reports 1e15 of anything.
 pub const MAX_READING: f64 = 1e15;
@@ -151,15 +152,42 @@ impl From<&LogOptions> for RecordedOptions {
     }
 }
 
-/// Where channel scaling comes from.
+/// Where a log's channels and their scaling come from, for bench logs and signal logs
+/// alike: a sheet or a model that declares signals makes the log a signal log
+/// ([`ScaleFrom::signals`]).
 #[derive(Clone, Copy, Debug)]
 pub enum ScaleFrom<'a> {
     /// Observed ranges with headroom for every channel.
     Observed,
-    /// A channel sheet; channels it does not declare use observed ranges.
+    /// A channel sheet; channels it does not declare use observed ranges. With
+    /// `[[signal]]` entries, its features and every other column as a reading channel.
     Sheet(&'a ChannelSheet),
-    /// Exactly these channels and scalings (from a trained model).
-    Model(&'a [ChannelScale]),
+    /// Exactly a trained model's channels and scalings (holdout, audit, replay).
+    Model {
+        /// The model's channels (readings and features), in model order.
+        channels: &'a [ChannelScale],
+        /// The model's signals; empty for a model of readings.
+        signals: &'a [SignalScale],
+    },
+}
+
+impl<'a> ScaleFrom<'a> {
+    /// A model of readings only: exactly these channels.
+    pub fn model(channels: &'a [ChannelScale]) -> Self {
+        Self::Model {
+            channels,
+            signals: &[],
+        }
+    }
+
+    /// The signals the sheet or model declares (none: a bench log of readings).
+    pub fn signals(&self) -> &'a [SignalScale] {
+        match *self {
+            Self::Observed => &[],
+            Self::Sheet(s) => &s.signals,
+            Self::Model { signals, .. } => signals,
+        }
+    }
 }
 
 /// The label `token` stands for, +1 GO or −1 NO-GO (lower-case `go` and `nogo` tokens,

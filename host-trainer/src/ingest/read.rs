@@ -53,7 +53,7 @@ pub(super) fn read_log_keeping(
     keep: usize,
 ) -> Result<Dataset, InputError> {
     let model = match scale {
-        ScaleFrom::Model(m) => Some(m),
+        ScaleFrom::Model { channels, .. } => Some(channels),
         _ => None,
     };
     let sheet = match scale {
