@@ -8,7 +8,7 @@ use serde::Serialize;
 use crate::digest::sha256_hex;
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
-use crate::ingest::scaling::ChannelSheet;
+use crate::ingest::sheet::ChannelSheet;
 use crate::ingest::{LogOptions, ScaleFrom, read};
 use crate::train::c_choice::{CChoice, CPolicy, DEFAULT_C, choose_c, search_sample};
 use crate::train::eval::{

@@ -186,7 +186,7 @@ fn warn_sheet(
     log: &std::path::Path,
     ds: &host_trainer::ingest::dataset::Dataset,
     sheet: Option<&(
-        host_trainer::ingest::scaling::ChannelSheet,
+        host_trainer::ingest::sheet::ChannelSheet,
         host_trainer::train::float_model::InputFile,
     )>,
 ) {

@@ -202,7 +202,7 @@ fn toml_float(v: f64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::ingest::scaling::ChannelSheet;
+    use crate::ingest::sheet::ChannelSheet;
 
     #[test]
     fn strings_and_floats_read_back() {

@@ -11,7 +11,8 @@ use super::read::{ObservedColumn, header_channels, observed_ranges, read_log, sp
 use super::skip::SkipReport;
 use crate::error::{InputError, shell_word};
 use crate::ingest::dataset::Dataset;
-use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+use crate::ingest::scaling::ChannelScale;
+use crate::ingest::sheet::ChannelSheet;
 use crate::ingest::signal_files::signal_log_files;
 use crate::ingest::signals::{read_signal_files, read_signal_log};
 

@@ -33,7 +33,7 @@ mod read;
 mod records;
 pub mod scaling;
 mod scan;
-mod sheet;
+pub mod sheet;
 mod signal_check;
 mod signal_columns;
 mod signal_files;

@@ -1,6 +1,7 @@
 //! How a log is read: the options, the default column names and label tokens.
 
-use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+use crate::ingest::scaling::ChannelScale;
+use crate::ingest::sheet::ChannelSheet;
 use crate::ingest::signal_scale::SignalScale;
 
 /// Readings beyond this magnitude are refused as not finite: no sensor reports 1e15 of anything.

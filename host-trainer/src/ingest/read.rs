@@ -15,7 +15,8 @@ use crate::error::InputError;
 use crate::error::shell_word;
 use crate::ingest::dataset::Dataset;
 use crate::ingest::names::same_name;
-use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+use crate::ingest::scaling::ChannelScale;
+use crate::ingest::sheet::ChannelSheet;
 
 /// Reads a bench log into a [`Dataset`] of raw readings.
 ///

@@ -30,7 +30,6 @@ pub(super) struct Open {
     pub(super) fault: Option<InputError>,
 }
 
-
 impl Open {
     pub(super) fn start(&mut self, id: &str, _line: u64, signals: usize, readings: usize) {
         self.id.clear();

@@ -14,7 +14,6 @@ use crate::ingest::signal_scale::SignalScale;
 /// Names of the optional column that numbers a unit's samples.
 pub const SAMPLE_NAMES: &[&str] = &["sample", "sample_index"];
 
-
 /// What a signal log is read for: its reading channels, and what becomes of a unit whose
 /// window the device would refuse.
 pub enum ReadFor<'a> {

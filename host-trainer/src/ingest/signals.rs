@@ -43,8 +43,8 @@ use std::path::{Path, PathBuf};
 
 use shared_model::features::CheckedFeature;
 
-use crate::error::{InputError, Place};
 use crate::error::shell_word;
+use crate::error::{InputError, Place};
 use crate::ingest::dataset::{Dataset, LogPart};
 use crate::ingest::options::{LogOptions, ScaleFrom};
 use crate::ingest::read::{checked_classes, spread_checked};
@@ -92,7 +92,12 @@ pub fn read_signal_files(
 ) -> Result<Dataset, InputError> {
     // Where the signals, the feature channels and the reading channels' scaling come from.
     let (signals, features, model, sheet) = match from {
-        ScaleFrom::Observed => return Err(log_error(path, "a signal log needs a sheet or model that declares its signals")),
+        ScaleFrom::Observed => {
+            return Err(log_error(
+                path,
+                "a signal log needs a sheet or model that declares its signals",
+            ));
+        }
         ScaleFrom::Sheet(s) => (&s.signals[..], s.features.clone(), None, Some(s)),
         ScaleFrom::Model { channels, signals } => (
             signals,
