@@ -9,7 +9,7 @@ use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
 
-use crate::ingest::SkipReport;
+use crate::ingest::skip::SkipReport;
 use crate::ingest::scaling::ChannelScale;
 use crate::ingest::signal_scale::SignalScale;
 

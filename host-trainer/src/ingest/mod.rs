@@ -28,6 +28,8 @@ mod header;
 pub(crate) mod names;
 pub mod options;
 mod parquet;
+mod parquet_cells;
+mod parquet_file;
 mod parse;
 mod read;
 mod records;

@@ -236,9 +236,9 @@ pub(super) fn read_log_keeping(
     let mut ds = Dataset::empty(path, scales);
     // Reserve once from an estimate of the row count: growing by doubling would briefly hold
     // the old and the new buffer, half again the data's size.
-    if super::parquet::is_parquet(path) {
+    if super::parquet_file::is_parquet(path) {
         // The footer counts the rows (bounded by the file's size).
-        let rows = super::parquet::row_count(path)
+        let rows = super::parquet_file::row_count(path)
             .unwrap_or(0)
             .min(opts.max_rows);
         ds.raw.reserve_exact(rows * ds.scales.len());
@@ -459,8 +459,8 @@ pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, In
 /// The columns of a log under `opts`, from its header (or a Parquet file's schema) alone.
 pub(super) fn header_columns(path: &Path, opts: &LogOptions) -> Result<Columns, InputError> {
     crate::input::regular_file(path)?;
-    let names = if super::parquet::is_parquet(path) {
-        super::parquet::column_names(path)?
+    let names = if super::parquet_file::is_parquet(path) {
+        super::parquet_file::column_names(path)?
     } else {
         let file = File::open(path).map_err(|e| InputError::io(path, e))?;
         let mut reader = BlockReader {

@@ -34,7 +34,7 @@ pub(super) fn scan(
     hash: bool,
 ) -> Result<(Columns, String), InputError> {
     crate::input::regular_file(path)?;
-    if super::parquet::is_parquet(path) {
+    if super::parquet_file::is_parquet(path) {
         return super::parquet::scan_parquet(path, opts, model, scales, skipped, on_row, hash);
     }
     let pass = Pass { block: BLOCK, hash };

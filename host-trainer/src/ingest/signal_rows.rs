@@ -87,7 +87,7 @@ impl LongRows {
         signals: &[SignalScale],
     ) -> Result<Self, InputError> {
         crate::input::regular_file(path)?;
-        let (physical, names, lists, delimiter) = if crate::ingest::parquet::is_parquet(path) {
+        let (physical, names, lists, delimiter) = if crate::ingest::parquet_file::is_parquet(path) {
             let p = ParquetRows::open(path)?;
             let (names, lists) = (p.names.clone(), p.list_columns.clone());
             // Parquet numbers have no decimal mark; a text cell takes a comma only if asked.
