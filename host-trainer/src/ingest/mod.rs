@@ -36,6 +36,7 @@ mod records;
 pub mod scaling;
 mod scan;
 pub mod sheet;
+pub mod sheet_findings;
 mod signal_check;
 mod signal_columns;
 mod signal_files;
