@@ -20,6 +20,7 @@
 //!
 //! [`Dataset`]: dataset::Dataset
 
+pub mod classes;
 pub mod dataset;
 pub mod draft;
 mod fast;

@@ -32,7 +32,8 @@ use parquet::arrow::arrow_reader::{
 use super::header::Columns;
 use super::parquet_cells::{Numbers, blank, cell, numbers};
 use super::parquet_file::{Opened, open};
-use super::options::{LogOptions, is_reading, label_of};
+use super::options::{LogOptions, is_reading};
+use crate::ingest::classes::Classes;
 use super::parse::{Row, label_cell, out_of_range, parse_number, raw_readings};
 use super::skip::SkipReport;
 use crate::error::{InputError, Place};
@@ -86,6 +87,8 @@ struct Plan<'a> {
     group_starts: Vec<u64>,
     /// The columns read, in file order.
     used: Vec<usize>,
+    /// The classes the label cells name.
+    classes: Classes,
 }
 
 impl Plan<'_> {
@@ -174,7 +177,6 @@ impl Plan<'_> {
         if Some(c) != self.cols.label {
             return Ok(Decoded::Text(text));
         }
-        let (go, nogo) = (&self.opts.go_labels, &self.opts.nogo_labels);
         let cells = text.as_string::<i32>();
         let mut bad = Vec::new();
         // A label column holds a few tokens over and over: a cell like the one before it
@@ -184,7 +186,7 @@ impl Plan<'_> {
             .map(|i| {
                 let token = cell(cells, i);
                 if token != last.0 || i == 0 {
-                    last = (token, label_of(token, go, nogo));
+                    last = (token, self.classes.label(token));
                 }
                 last.1.unwrap_or_else(|| {
                     bad.push(i as u32);
@@ -438,6 +440,7 @@ pub(super) fn scan_parquet(
         keep_faults: model.is_some(),
         group_starts,
         used,
+        classes: opts.classes(),
     };
     let bar = (opts.progress && total > 1_000_000).then(|| {
         let b = crate::progress::bar(
@@ -642,7 +645,7 @@ impl Rows<'_> {
             }
         }
         let label = match (label, cols.label) {
-            (Some(t), Some(lc)) => label_cell(t, opts, path, at, &cols.names[lc])?,
+            (Some(t), Some(lc)) => label_cell(t, &plan.classes, opts, path, at, &cols.names[lc])?,
             _ => 0,
         };
         if let Some(s) = plan.scales {

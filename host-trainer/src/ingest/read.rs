@@ -14,6 +14,7 @@ use super::skip::SkipReport;
 use crate::error::InputError;
 use crate::error::shell_word;
 use crate::ingest::dataset::Dataset;
+use crate::ingest::classes::{Classes, GO, NO_GO};
 use crate::ingest::names::same_name;
 use crate::ingest::scaling::ChannelScale;
 use crate::ingest::sheet::ChannelSheet;
@@ -143,7 +144,7 @@ pub(super) fn read_log_keeping(
             skipped: first_skipped,
             ..ds
         };
-        return checked_classes(path, ds, model.is_some());
+        return checked_classes(path, ds, model.is_some(), opts.classes());
     }
     // Pass 2: convert to raw.
     let mut ds = Dataset::empty(path, scales);
@@ -224,7 +225,7 @@ pub(super) fn read_log_keeping(
     }
     ds.sha256 = sha;
     ds.skipped = skipped;
-    checked_classes(path, ds, model.is_some())
+    checked_classes(path, ds, model.is_some(), opts.classes())
 }
 
 /// The kept rows of the first pass converted with `scales`, as the second pass would convert
@@ -267,11 +268,14 @@ pub(super) fn spread_checked(
 
 /// `ds`, unless it is empty or, for training (no model), holds one class only: the one
 /// rule for plain, Parquet and signal logs.
+/// The dataset carries `classes`, the list its labels were read with.
 pub(super) fn checked_classes(
     path: &Path,
-    ds: Dataset,
+    mut ds: Dataset,
     for_model: bool,
+    classes: Classes,
 ) -> Result<Dataset, InputError> {
+    ds.classes = classes;
     if ds.is_empty() {
         return Err(no_rows(path, &ds.skipped));
     }
@@ -280,7 +284,7 @@ pub(super) fn checked_classes(
         return Err(InputError::OneClass {
             path: path.into(),
             rows: ds.len(),
-            class: if go == 0 { "NO-GO" } else { "GO" },
+            class: if go == 0 { NO_GO } else { GO },
         });
     }
     Ok(ds)
@@ -292,7 +296,7 @@ pub struct StreamedUnit<'a> {
     pub line: u64,
     /// Raw readings, in the order of `scales`.
     pub raw: &'a [i32],
-    /// +1 GO, -1 NO-GO.
+    /// The unit's class in the GO-vs-rest view (+1 GO, −1 any other class).
     pub label: i8,
     /// The unit id cell, if the log has a unit-id column.
     pub unit: Option<&'a [u8]>,

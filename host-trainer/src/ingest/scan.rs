@@ -109,6 +109,7 @@ pub(super) fn scan_blocks(
         scales,
         keep_faults: model.is_some(),
         fast: fast::FastPlan::new(&cols, scales, delimiter, decimal_comma, opts),
+        classes: opts.classes(),
     };
     // Hands on the rows of parsed runs in file order. A row's error is skipped and counted
     // under `skip_bad_rows`; any other error ends the scan.

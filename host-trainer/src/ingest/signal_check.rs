@@ -6,6 +6,7 @@
 use std::path::Path;
 
 use crate::error::{InputError, Place, shown, shown_bytes};
+use crate::ingest::classes::Classes;
 use crate::ingest::options::{LogOptions, is_reading, unmapped_label_hint};
 use crate::ingest::parse::{empty_label_hint, label_cell, parse_number};
 use crate::ingest::signal_columns::Columns;
@@ -59,6 +60,7 @@ impl Open {
         longest: usize,
         keep: bool,
         decimal_comma: bool,
+        classes: &Classes,
         opts: &LogOptions,
     ) -> Result<(), String> {
         let k = self.rows;
@@ -150,7 +152,14 @@ impl Open {
         if let Some(c) = cols.label {
             let cell = record[c].trim_ascii();
             if !(k > 0 && cell.is_empty()) {
-                let l = label_cell(cell, opts, Path::new(""), Place::Line(0), &cols.names[c])
+                let l = label_cell(
+                    cell,
+                    classes,
+                    opts,
+                    Path::new(""),
+                    Place::Line(0),
+                    &cols.names[c],
+                )
                     .map_err(|_| match unmapped_label_hint(cell) {
                         _ if cell.is_empty() => format!(
                             "column '{}': the label cell is empty on the unit's first row; {}",
@@ -164,7 +173,7 @@ impl Open {
                             "column '{}': unknown label '{}' ({}; set --go-labels / --nogo-labels)",
                             cols.names[c],
                             text(cell),
-                            opts.tokens()
+                            classes.tokens()
                         ),
                     })?;
                 match self.label {

@@ -30,7 +30,8 @@ pub struct SignalUnit<'a> {
     pub id: &'a str,
     /// 1-based line of the unit's first row.
     pub line: u64,
-    /// +1 GO, −1 NO-GO, 0 when the log has no label column.
+    /// The unit's class in the GO-vs-rest view (+1 GO, −1 any other), 0 when the log has
+    /// no label column.
     pub label: i8,
     /// The reading channels' values (physical), in the order the reader was given.
     pub readings: &'a [f64],
@@ -108,6 +109,7 @@ pub fn stream_signal_files(
     mut each: impl FnMut(&SignalUnit<'_>) -> Result<(), InputError>,
 ) -> Result<SignalLogHeader, InputError> {
     let keep_faults = matches!(read_for, ReadFor::Model { .. });
+    let classes = opts.classes();
     let mut open = Open::default();
     // Each unit id's file and first line.
     let mut seen: HashMap<String, (usize, u64)> = HashMap::new();
@@ -202,6 +204,7 @@ pub fn stream_signal_files(
                     longest,
                     keep_faults,
                     decimal_comma,
+                    &classes,
                     opts,
                 )
             {

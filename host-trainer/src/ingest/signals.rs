@@ -309,7 +309,7 @@ pub fn read_signal_files(
         constant_features(path, &ds, &computed, signals, &sample_ranges)?;
     }
     // The rule a plain log follows: no units, or one class for training, is refused.
-    checked_classes(path, ds, keep_faults)
+    checked_classes(path, ds, keep_faults, opts.classes())
 }
 
 /// Refuses a feature channel whose every unit of a training log has the same value, as a
