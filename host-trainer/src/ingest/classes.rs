@@ -66,10 +66,7 @@ impl Classes {
 
     /// The class `token` stands for (the first class whose tokens hold it), or `None`.
     pub fn class_of(&self, token: &[u8]) -> Option<ClassId> {
-        let k = self
-            .list
-            .iter()
-            .position(|c| token_in(token, &c.tokens))?;
+        let k = self.list.iter().position(|c| token_in(token, &c.tokens))?;
         ClassId::try_from(k).ok()
     }
 
@@ -134,7 +131,10 @@ mod tests {
 
     #[test]
     fn go_and_nogo_tokens_map_to_their_class_and_to_plus_minus_one() {
-        let c = Classes::go_nogo(&own(&["go", "pass", "ok"]), &own(&["nogo", "fail", "ärger"]));
+        let c = Classes::go_nogo(
+            &own(&["go", "pass", "ok"]),
+            &own(&["nogo", "fail", "ärger"]),
+        );
         assert_eq!(c.names().collect::<Vec<_>>(), ["GO", "NO-GO"]);
         assert_eq!(c.class_of(b"PASS"), Some(0));
         assert_eq!(c.class_of(b"Fail"), Some(1));
@@ -167,7 +167,11 @@ mod tests {
         });
         assert_eq!(c.class_of(b"recheck"), Some(2));
         assert_eq!(c.label(b"recheck"), Some(-1));
-        assert_eq!(c.class_of_sign(-1), None, "three classes: −1 does not tell which");
+        assert_eq!(
+            c.class_of_sign(-1),
+            None,
+            "three classes: −1 does not tell which"
+        );
         assert_eq!(c.tokens(), "GO: go; NO-GO: fail; RECHECK: recheck");
     }
 }

@@ -10,9 +10,9 @@ use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
 
 use crate::ingest::classes::{ClassId, Classes};
-use crate::ingest::skip::SkipReport;
 use crate::ingest::scaling::ChannelScale;
 use crate::ingest::signal_scale::SignalScale;
+use crate::ingest::skip::SkipReport;
 
 /// The digest of a log of several files: SHA-256 over each file's digest, one per line,
 /// in reading order (so the same files in another order are another log).
@@ -97,7 +97,10 @@ impl Dataset {
     pub fn class_counts(&self) -> Vec<(&str, usize)> {
         let mut counts = vec![0usize; self.classes.list.len()];
         for i in 0..self.labels.len() {
-            if let Some(c) = self.class_of(i).and_then(|c| counts.get_mut(usize::from(c))) {
+            if let Some(c) = self
+                .class_of(i)
+                .and_then(|c| counts.get_mut(usize::from(c)))
+            {
                 *c += 1;
             }
         }

@@ -30,14 +30,14 @@ use parquet::arrow::arrow_reader::{
 };
 
 use super::header::Columns;
+use super::options::{LogOptions, is_reading};
 use super::parquet_cells::{Numbers, blank, cell, numbers};
 use super::parquet_file::{Opened, open};
-use super::options::{LogOptions, is_reading};
-use crate::ingest::classes::Classes;
 use super::parse::{Row, label_cell, out_of_range, parse_number, raw_readings};
 use super::skip::SkipReport;
 use crate::error::{InputError, Place};
 use crate::error::{empty_cell_hint, shown as shown_text};
+use crate::ingest::classes::Classes;
 use crate::ingest::scaling::ChannelScale;
 
 /// Rows decoded at a time, per column: a slice of a row group, so that memory stays bounded

@@ -6,10 +6,10 @@ use std::path::Path;
 use super::fast;
 use super::header::Columns;
 use super::options::{LogOptions, is_reading, unmapped_label};
-use crate::ingest::classes::Classes;
 use super::records::{Fields, count_lf, fields, record_ends, strip_line_end};
 use crate::error::{InputError, Place};
 use crate::error::{empty_cell_hint, shown_bytes};
+use crate::ingest::classes::Classes;
 use crate::ingest::scaling::ChannelScale;
 
 /// What the parser needs to know to turn a record into a row.

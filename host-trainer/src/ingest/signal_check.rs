@@ -160,22 +160,22 @@ impl Open {
                     Place::Line(0),
                     &cols.names[c],
                 )
-                    .map_err(|_| match unmapped_label_hint(cell) {
-                        _ if cell.is_empty() => format!(
-                            "column '{}': the label cell is empty on the unit's first row; {}",
-                            shown(&cols.names[c]),
-                            empty_label_hint(opts)
-                        ),
-                        Some(hint) => {
-                            format!("column '{}': label '{}': {hint}", cols.names[c], text(cell))
-                        }
-                        None => format!(
-                            "column '{}': unknown label '{}' ({}; set --go-labels / --nogo-labels)",
-                            cols.names[c],
-                            text(cell),
-                            classes.tokens()
-                        ),
-                    })?;
+                .map_err(|_| match unmapped_label_hint(cell) {
+                    _ if cell.is_empty() => format!(
+                        "column '{}': the label cell is empty on the unit's first row; {}",
+                        shown(&cols.names[c]),
+                        empty_label_hint(opts)
+                    ),
+                    Some(hint) => {
+                        format!("column '{}': label '{}': {hint}", cols.names[c], text(cell))
+                    }
+                    None => format!(
+                        "column '{}': unknown label '{}' ({}; set --go-labels / --nogo-labels)",
+                        cols.names[c],
+                        text(cell),
+                        classes.tokens()
+                    ),
+                })?;
                 match self.label {
                     Some(prev) if prev != l => {
                         return Err(format!(

@@ -6,8 +6,7 @@
 use std::path::Path;
 
 use crate::error::{InputError, shell_word, shown};
-use crate::ingest::header::find;
-use crate::ingest::names::{same_name, unique_names};
+use crate::ingest::names::{Lookup, same_name};
 use crate::ingest::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES};
 use crate::ingest::signal_scale::SignalScale;
 
@@ -63,37 +62,30 @@ impl Columns {
         signals: &[SignalScale],
         read_for: &ReadFor<'_>,
     ) -> Result<Self, InputError> {
-        unique_names(path, names)?;
-        let unknown = |name: &str| InputError::UnknownColumn {
-            path: path.into(),
-            name: name.to_string(),
-            columns: names.join(", "),
-        };
-        let pick = |given: &Option<String>, defaults: &[&str]| match given {
-            Some(n) => find(names, n).map(Some).ok_or_else(|| unknown(n)),
-            None => Ok(defaults.iter().find_map(|d| find(names, d))),
-        };
-        let unit = pick(&opts.unit_id, UNIT_NAMES)?.ok_or_else(|| InputError::Format {
+        let look = Lookup::new(path, names, &opts.ignore)?;
+        let unit = look.pick(&opts.unit_id, UNIT_NAMES)?.ok_or_else(|| InputError::Format {
             path: path.into(),
             message: format!(
                 "a signal log needs a unit-id column to tell one unit's rows from the next (looked for: {}; name it with --unit-id)",
                 UNIT_NAMES.join(", ")
             ),
         })?;
-        let label = pick(&opts.label, LABEL_NAMES)?;
+        let label = look.pick(&opts.label, LABEL_NAMES)?;
         if label.is_none() && !opts.label_optional {
             return Err(InputError::NoLabel {
                 path: path.into(),
                 hint: String::new(),
             });
         }
-        let time = pick(&opts.timestamp, TIME_NAMES)?;
+        let time = look.pick(&opts.timestamp, TIME_NAMES)?;
         let signals = signals
             .iter()
-            .map(|s| find(names, &s.name).ok_or_else(|| unknown(&s.name)))
+            .map(|s| look.find(&s.name).ok_or_else(|| look.unknown(&s.name)))
             .collect::<Result<Vec<_>, _>>()?;
         // A signal named like the sample-number column is a signal.
-        let sample = pick(&None, SAMPLE_NAMES)?.filter(|i| !signals.contains(i));
+        let sample = look
+            .pick(&None, SAMPLE_NAMES)?
+            .filter(|i| !signals.contains(i));
         let taken = |i: usize| {
             i == unit
                 || Some(i) == label
@@ -106,16 +98,11 @@ impl Columns {
             ReadFor::Training { declared, features } => (opts.channels.clone(), declared, features),
         };
         let readings = match wanted {
-            Some(list) => list
-                .iter()
-                .map(|n| find(names, n).ok_or_else(|| unknown(n)))
-                .collect::<Result<Vec<_>, _>>()?,
+            Some(list) => look.columns(&list)?,
             None => {
                 let (readings, other): (Vec<usize>, Vec<usize>) = (0..names.len())
                     .filter(|&i| {
-                        !taken(i)
-                            && !names[i].is_empty()
-                            && !opts.ignore.iter().any(|g| same_name(g, &names[i]))
+                        !taken(i) && !names[i].is_empty() && !look.ignored(&opts.ignore, i)
                     })
                     .partition(|&i| declared.iter().any(|d| same_name(d, &names[i])));
                 if !other.is_empty() {

@@ -17,8 +17,8 @@
 use std::path::{Path, PathBuf};
 
 use crate::error::{InputError, shown};
-use crate::ingest::header::{detect_delimiter, find};
-use crate::ingest::names::same_name;
+use crate::ingest::header::detect_delimiter;
+use crate::ingest::names::{find, same_name};
 use crate::ingest::options::{LABEL_NAMES, LogOptions, UNIT_NAMES};
 use crate::ingest::signal_parquet::{FileRow, ParquetRows};
 use crate::ingest::signal_scale::SignalScale;
