@@ -559,7 +559,6 @@ fn observe_pass(
         Some(&mut on_run),
         hash,
     )?;
-    drop(state);
     if rows == 0 {
         return Err(no_rows(path, skipped));
     }

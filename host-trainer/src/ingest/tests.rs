@@ -465,12 +465,16 @@ fn a_bench_log_headed_temp_and_temp_is_refused_as_a_signal_log_is() {
     )
     .unwrap();
     let opts = LogOptions::default();
-    let bench_err = crate::ingest::read(&[bench.clone()], &opts, ScaleFrom::Observed)
+    let bench_err = crate::ingest::read(std::slice::from_ref(&bench), &opts, ScaleFrom::Observed)
         .unwrap_err()
         .to_string();
-    let signal_err = crate::ingest::read(&[signal.clone()], &opts, ScaleFrom::Sheet(&sheet))
-        .unwrap_err()
-        .to_string();
+    let signal_err = crate::ingest::read(
+        std::slice::from_ref(&signal),
+        &opts,
+        ScaleFrom::Sheet(&sheet),
+    )
+    .unwrap_err()
+    .to_string();
     let bench_cols = "columns 'Temp' and 'temp' have the same name (column names compare without regard to case): columns 1 and 2 of the header; rename one, or leave both out with --ignore Temp";
     assert!(bench_err.contains(bench_cols), "{bench_err}");
     assert!(
