@@ -30,7 +30,7 @@
 //! Other layouts reach this reader as the same long rows (`signal_rows`):
 //! one row per unit with numbered sample columns or a list per unit (Parquet), a file without
 //! unit-id column as one unit, a folder of files as one log. A signal declared with `take`
-//! ([`Take`]) keeps its first or last `window` samples of a longer window.
+//! ([`Take`](super::signal_scale::Take)) keeps its first or last `window` samples of a longer window.
 //!
 //! Features are computed with [`CheckedFeature::compute`], the function the device runs,
 //! so training, audit, replay and the device see the same integers.
