@@ -11,7 +11,10 @@ use crate::ingest::options::{LogOptions, is_reading, unmapped_label_hint};
 use crate::ingest::parse::{empty_label_hint, label_cell, parse_number};
 use crate::ingest::signal_columns::Columns;
 use crate::ingest::signal_scale::SignalScale;
-use crate::ingest::signal_units::TRAINING_REFUSES;
+
+/// Said where a training log refuses a unit whose window the device would refuse: a log
+/// evaluated by a model keeps it as a FAULT unit instead.
+pub(super) const TRAINING_REFUSES: &str = " (a log read to train refuses such a unit; a holdout, audited or replayed log keeps it as a FAULT unit, as the device refuses it)";
 
 /// The unit being read.
 #[derive(Default)]

@@ -10,17 +10,13 @@ use shared_model::WindowFault;
 
 use crate::error::{InputError, Place};
 use crate::ingest::options::LogOptions;
-use crate::ingest::signal_check::Open;
+use crate::ingest::signal_check::{Open, TRAINING_REFUSES};
 use crate::ingest::signal_columns::{Columns, ReadFor};
 use crate::ingest::signal_files::{log_digest, signal_log_files};
 use crate::ingest::signal_rows::LongRows;
 use crate::ingest::signal_scale::SignalScale;
 use crate::ingest::signal_take::cut_windows;
 use crate::ingest::skip::SkipReport;
-
-/// Said where a training log refuses a unit whose window the device would refuse: a log
-/// evaluated by a model keeps it as a FAULT unit instead.
-pub(super) const TRAINING_REFUSES: &str = " (a log read to train refuses such a unit; a holdout, audited or replayed log keeps it as a FAULT unit, as the device refuses it)";
 
 /// One whole unit of a signal log.
 pub struct SignalUnit<'a> {
