@@ -20,7 +20,7 @@ use std::process::Command;
 use std::time::Instant;
 
 use host_trainer::ingest::dataset::Dataset;
-use host_trainer::ingest::scaling::ChannelSheet;
+use host_trainer::ingest::sheet::ChannelSheet;
 use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
 
 /// Seconds of one read of `log`.

@@ -10,7 +10,7 @@ use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
 
-use host_trainer::ingest::scaling::ChannelSheet;
+use host_trainer::ingest::sheet::ChannelSheet;
 use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
 use host_trainer::release::audit::{AuditConfig, audit};
 use host_trainer::release::quantise::{QuantConfig, quantise};

@@ -41,7 +41,7 @@ pub enum InputError {
     },
     /// The header has a name twice (names compare without regard to case).
     #[error(
-        "{path}: line 1: columns '{first}' and '{second}' have the same name (column names compare without regard to case); rename one"
+        "{path}: line 1: columns '{first}' and '{second}' have the same name (column names compare without regard to case): columns {first_at} and {second_at} of the header; rename one, or leave both out with --ignore {ignore}"
     )]
     DuplicateHeader {
         /// File.
@@ -50,6 +50,12 @@ pub enum InputError {
         first: String,
         /// The column repeating it, as spelled there.
         second: String,
+        /// The first column's place in the header, from 1.
+        first_at: usize,
+        /// The repeating column's place, from 1.
+        second_at: usize,
+        /// The name as `--ignore` takes it (shell-quoted).
+        ignore: String,
     },
     /// A channel sheet names a channel like another column of the log than the one it reads.
     #[error(

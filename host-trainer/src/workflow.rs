@@ -8,10 +8,8 @@ use serde::Serialize;
 use crate::digest::sha256_hex;
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
-use crate::ingest::scaling::ChannelSheet;
-use crate::ingest::signal_log_files;
-use crate::ingest::signals::{SignalChannels, read_signal_files, read_signal_log};
-use crate::ingest::{LogOptions, ScaleFrom, read_logs};
+use crate::ingest::sheet::ChannelSheet;
+use crate::ingest::{LogOptions, ScaleFrom, read};
 use crate::train::c_choice::{CChoice, CPolicy, DEFAULT_C, choose_c, search_sample};
 use crate::train::eval::{
     Counts, EvalRow, HeldOut, TrainConfig, Trained, TrainerKind, cross_validate, evaluate,
@@ -50,13 +48,10 @@ pub fn load(
         }
         None => None,
     };
-    if let Some((s, _)) = sheet.as_ref().filter(|(s, _)| !s.signals.is_empty()) {
-        return Ok((signal_files(log, opts, SignalChannels::Sheet(s))?, sheet));
-    }
     let scale = sheet
         .as_ref()
         .map_or(ScaleFrom::Observed, |(s, _)| ScaleFrom::Sheet(s));
-    Ok((read_logs(log, opts, scale)?, sheet))
+    Ok((read(log, opts, scale)?, sheet))
 }
 
 /// Reads a log (one or several files) with the channels and scaling of a trained model
@@ -69,40 +64,14 @@ pub fn load_for_model(
     opts: &LogOptions,
     fm: &FloatModel,
 ) -> Result<Dataset, InputError> {
-    if !fm.signals.is_empty() {
-        return signal_files(
-            log,
-            opts,
-            SignalChannels::Model {
-                channels: &fm.channels,
-                signals: &fm.signals,
-            },
-        );
-    }
-    read_logs(log, opts, ScaleFrom::Model(&fm.channels))
-}
-
-/// Reads a signal log given as one path (a file or a folder of files) or several (each a
-/// file or a folder), as one log.
-fn signal_files(
-    log: &[PathBuf],
-    opts: &LogOptions,
-    from: SignalChannels<'_>,
-) -> Result<Dataset, InputError> {
-    match log {
-        [] => Err(InputError::Format {
-            path: PathBuf::new(),
-            message: "no log file given".into(),
-        }),
-        [one] => read_signal_log(one, opts, from),
-        [first, ..] => {
-            let mut files = Vec::new();
-            for p in log {
-                files.extend(signal_log_files(p)?);
-            }
-            read_signal_files(first, &files, opts, from, true)
-        }
-    }
+    read(
+        log,
+        opts,
+        ScaleFrom::Model {
+            channels: &fm.channels,
+            signals: &fm.signals,
+        },
+    )
 }
 
 /// What to train.

@@ -186,46 +186,31 @@ fn warn_sheet(
     log: &std::path::Path,
     ds: &host_trainer::ingest::dataset::Dataset,
     sheet: Option<&(
-        host_trainer::ingest::scaling::ChannelSheet,
+        host_trainer::ingest::sheet::ChannelSheet,
         host_trainer::train::float_model::InputFile,
     )>,
 ) {
+    use host_trainer::ingest::sheet_findings::{SheetFinding, sheet_findings};
     let Some((sheet, file)) = sheet else { return };
-    let unconfirmed = sheet.unconfirmed();
-    if !unconfirmed.is_empty() {
-        eprintln!(
-            "warning: {}: {} of {} channel entries are still to be confirmed (`confirmed = false`: observed ranges, not the sensors'), first '{}'; check each range and set `confirmed = true`",
-            file.path.display(),
-            unconfirmed.len(),
-            sheet.channels.len(),
-            shown(&unconfirmed[0])
-        );
-    }
-    // Feature channels are declared by their [[feature]], their range proved from the signal.
-    for c in ds.scales.iter().filter(|c| c.source.is_none()) {
-        if sheet.get(c.log_column()).is_none() {
-            eprintln!(
-                "warning: {}: channel '{}' of {} is not declared there; its observed range [{}, {}] is the device's valid range",
+    for finding in sheet_findings(sheet, ds) {
+        match finding {
+            SheetFinding::Unconfirmed { count, of, first } => eprintln!(
+                "warning: {}: {count} of {of} channel entries are still to be confirmed (`confirmed = false`: observed ranges, not the sensors'), first '{}'; check each range and set `confirmed = true`",
                 file.path.display(),
-                c.name.escape_debug(),
+                shown(&first)
+            ),
+            SheetFinding::Undeclared { channel, min, max } => eprintln!(
+                "warning: {}: channel '{}' of {} is not declared there; its observed range [{min}, {max}] is the device's valid range",
+                file.path.display(),
+                channel.escape_debug(),
                 log.display(),
-                c.min,
-                c.max
-            );
-        }
-    }
-    for c in &sheet.channels {
-        if !ds
-            .scales
-            .iter()
-            .any(|d| d.log_column().eq_ignore_ascii_case(c.log_column()))
-        {
-            eprintln!(
+            ),
+            SheetFinding::Unused { column } => eprintln!(
                 "warning: {}: channel '{}' is not a channel of {}; it is not used",
                 file.path.display(),
-                c.log_column().escape_debug(),
+                column.escape_debug(),
                 log.display()
-            );
+            ),
         }
     }
 }

@@ -9,9 +9,10 @@ use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
 
-use crate::ingest::SkipReport;
+use crate::ingest::classes::{ClassId, Classes};
 use crate::ingest::scaling::ChannelScale;
 use crate::ingest::signal_scale::SignalScale;
+use crate::ingest::skip::SkipReport;
 
 /// The digest of a log of several files: SHA-256 over each file's digest, one per line,
 /// in reading order (so the same files in another order are another log).
@@ -35,8 +36,12 @@ pub struct Dataset {
     pub signals: Vec<SignalScale>,
     /// Raw readings, row-major: unit `i`, channel `j` at `i * dim + j`.
     pub raw: Vec<i32>,
-    /// +1 for GO, -1 for NO-GO.
+    /// Each unit's class in the GO-vs-rest view every trainer reads: +1 for the GO class of
+    /// [`classes`](Self::classes), −1 for any other, 0 for a unit without label (a log
+    /// scored without verdicts). The unit's class itself: [`class_of`](Self::class_of).
     pub labels: Vec<i8>,
+    /// The classes the log's labels name (GO and NO-GO today), each with its tokens.
+    pub classes: Classes,
     /// 1-based line of each unit in the file.
     pub lines: Vec<u64>,
     /// Unit ids, if the log has a unit-id column (else empty).
@@ -72,6 +77,7 @@ impl Dataset {
             signals: Vec::new(),
             raw: Vec::new(),
             labels: Vec::new(),
+            classes: Classes::default(),
             lines: Vec::new(),
             unit_ids: UnitIds::default(),
             skipped: SkipReport::default(),
@@ -79,6 +85,26 @@ impl Dataset {
             parts: Vec::new(),
             part_of: Vec::new(),
         }
+    }
+
+    /// Unit `i`'s class: its index into [`classes`](Self::classes), from its label
+    /// (`None` for a unit without label).
+    pub fn class_of(&self, i: usize) -> Option<ClassId> {
+        self.classes.class_of_sign(*self.labels.get(i)?)
+    }
+
+    /// Each class's name and how many units it has, in class order.
+    pub fn class_counts(&self) -> Vec<(&str, usize)> {
+        let mut counts = vec![0usize; self.classes.list.len()];
+        for i in 0..self.labels.len() {
+            if let Some(c) = self
+                .class_of(i)
+                .and_then(|c| counts.get_mut(usize::from(c)))
+            {
+                *c += 1;
+            }
+        }
+        self.classes.names().zip(counts).collect()
     }
 
     /// SHA-256 of the places (file and line, one per line) of the units `idx`: what a

@@ -17,10 +17,10 @@ use shared_model::NAME_CAPACITY;
 
 use super::read::{ObservedColumn, header_columns, spread_checked};
 use crate::error::{InputError, shell_word};
-use crate::ingest::SkipReport;
 use crate::ingest::names::{name_key, short_name};
 use crate::ingest::options::LogOptions;
 use crate::ingest::scaling::ChannelScale;
+use crate::ingest::skip::SkipReport;
 
 /// One channel of a drawn sheet.
 #[derive(Clone, Debug)]
@@ -202,7 +202,7 @@ fn toml_float(v: f64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::ingest::scaling::ChannelSheet;
+    use crate::ingest::sheet::ChannelSheet;
 
     #[test]
     fn strings_and_floats_read_back() {

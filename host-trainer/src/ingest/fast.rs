@@ -9,7 +9,8 @@
 //! [`DecimalChannel`] and [`Decimal::value`] say why.
 
 use super::header::Columns;
-use super::options::{LogOptions, label_of};
+use super::options::LogOptions;
+use crate::ingest::classes::Classes;
 use crate::ingest::scaling::{ChannelScale, power_of_ten};
 
 /// What the fast path does with one column.
@@ -190,8 +191,8 @@ pub(super) struct FastPlan {
     delimiter: u8,
     /// A comma in a number is its decimal mark (never when commas delimit fields).
     comma: bool,
-    go: Vec<String>,
-    nogo: Vec<String>,
+    /// The classes the label cells name.
+    classes: Classes,
     max_line_len: usize,
     /// The log has no label column (replay of new units): every label is 0.
     unlabelled: bool,
@@ -261,8 +262,7 @@ impl FastPlan {
             channels,
             delimiter,
             comma: decimal_comma && delimiter != b',',
-            go: opts.go_labels.clone(),
-            nogo: opts.nogo_labels.clone(),
+            classes: opts.classes(),
             max_line_len: opts.max_line_len,
             unlabelled: cols.label.is_none(),
         })
@@ -332,7 +332,7 @@ impl FastPlan {
             }
             let field = bytes.get(start..end)?;
             match role {
-                Role::Label => label = Some(label_of(field, &self.go, &self.nogo)?),
+                Role::Label => label = Some(self.classes.label(field)?),
                 Role::Unit => {
                     // The general path trims ids; only untrimmed ones are read here.
                     let padded = |b: Option<&u8>| b.is_some_and(u8::is_ascii_whitespace);

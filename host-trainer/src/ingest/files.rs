@@ -1,6 +1,8 @@
-//! A log of several files (one per shift, day or station) read as one log: the same
-//! channel columns in every file, observed ranges over all of them, each file's digest
-//! kept, and each unit's file known.
+//! The one entry for reading a log: [`read`] takes a role's files (one or several, bench
+//! logs or signal logs) and where the channels come from, and goes the way the sheet or
+//! model says (declared signals: a signal log). A bench log of several files (one per
+//! shift, day or station) is read as one log: the same channel columns in every file,
+//! observed ranges over all of them, each file's digest kept, and each unit's file known.
 
 use std::path::PathBuf;
 
@@ -9,34 +11,64 @@ use super::read::{ObservedColumn, header_channels, observed_ranges, read_log, sp
 use super::skip::SkipReport;
 use crate::error::{InputError, shell_word};
 use crate::ingest::dataset::Dataset;
-use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+use crate::ingest::scaling::ChannelScale;
+use crate::ingest::sheet::ChannelSheet;
+use crate::ingest::signal_files::signal_log_files;
+use crate::ingest::signals::{read_signal_files, read_signal_log};
 
-/// Reads the files of one log (in the order given) into one [`Dataset`]. One file reads as
-/// [`read_log`] reads it. Several must have the same channel columns, in the same order;
-/// a channel without a declared range gets the range observed over all of them, so every
-/// file is converted alike.
+/// Reads the files of one log (in the order given) into one [`Dataset`]: the one entry for
+/// bench logs and signal logs. When `from` declares signals (a sheet's `[[signal]]`s, a
+/// model's signals) each path is a signal log's file or folder, read by
+/// [`read_signal_files`] with its features computed; otherwise each is a bench log, read as
+/// [`read_log`] reads one. Several bench files must have the same channel columns, in the
+/// same order; a channel without a declared range gets the range observed over all of them,
+/// so every file is converted alike.
 ///
 /// # Errors
 /// No file; files whose channel columns differ (both named); any error of a file.
-pub fn read_logs(
+pub fn read(
+    files: &[PathBuf],
+    opts: &LogOptions,
+    from: ScaleFrom<'_>,
+) -> Result<Dataset, InputError> {
+    if from.signals().is_empty() {
+        return read_logs(files, opts, from);
+    }
+    match files {
+        [] => Err(no_file()),
+        [one] => read_signal_log(one, opts, from),
+        [first, ..] => {
+            let mut listed = Vec::new();
+            for p in files {
+                listed.extend(signal_log_files(p)?);
+            }
+            read_signal_files(first, &listed, opts, from, true)
+        }
+    }
+}
+
+fn no_file() -> InputError {
+    InputError::Format {
+        path: PathBuf::new(),
+        message: "no log file given".into(),
+    }
+}
+
+/// [`read`] of bench logs (no signals declared).
+fn read_logs(
     files: &[PathBuf],
     opts: &LogOptions,
     scale: ScaleFrom<'_>,
 ) -> Result<Dataset, InputError> {
     let (first, rest) = match files {
-        [] => {
-            return Err(InputError::Format {
-                path: PathBuf::new(),
-                message: "no log file given".into(),
-            });
-        }
+        [] => return Err(no_file()),
         [one] => return read_log(one, opts, scale),
         [first, rest @ ..] => (first, rest),
     };
     let names = same_columns(files, opts)?;
     let derived;
     let scale = match scale {
-        ScaleFrom::Model(_) => scale,
+        ScaleFrom::Model { .. } => scale,
         ScaleFrom::Sheet(_) | ScaleFrom::Observed => {
             let sheet = match scale {
                 ScaleFrom::Sheet(s) => Some(s),

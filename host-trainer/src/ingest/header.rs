@@ -3,7 +3,7 @@
 
 use std::path::Path;
 
-use super::names::{same_name, unique_names};
+use super::names::Lookup;
 use super::options::{LABEL_NAMES, LogOptions, TIME_NAMES, UNIT_NAMES};
 use super::records::{BlockReader, Fields, fields, record_ends, strip_line_end};
 use crate::error::InputError;
@@ -22,10 +22,6 @@ pub(super) struct Columns {
     pub(super) width: usize,
 }
 
-pub(super) fn find(names: &[String], wanted: &str) -> Option<usize> {
-    names.iter().position(|n| same_name(n, wanted))
-}
-
 impl Columns {
     pub(super) fn resolve(
         path: &Path,
@@ -33,25 +29,13 @@ impl Columns {
         opts: &LogOptions,
         model: Option<&[ChannelScale]>,
     ) -> Result<Self, InputError> {
-        unique_names(path, &names)?;
-        let unknown = |name: &str| InputError::UnknownColumn {
-            path: path.into(),
-            name: name.to_string(),
-            columns: names.join(", "),
-        };
-        let pick =
-            |given: &Option<String>, defaults: &[&str]| -> Result<Option<usize>, InputError> {
-                match given {
-                    Some(n) => find(&names, n).map(Some).ok_or_else(|| unknown(n)),
-                    None => Ok(defaults.iter().find_map(|d| find(&names, d))),
-                }
-            };
+        let look = Lookup::new(path, &names, &opts.ignore)?;
         // A log scored without verdicts (replay) may lack the label column a model records.
         let label_given = match &opts.label {
-            Some(n) if opts.label_optional && find(&names, n).is_none() => &None,
+            Some(n) if opts.label_optional && look.find(n).is_none() => &None,
             given => given,
         };
-        let label = match pick(label_given, LABEL_NAMES)? {
+        let label = match look.pick(label_given, LABEL_NAMES)? {
             Some(l) => Some(l),
             None if opts.label_optional => None,
             None => {
@@ -61,10 +45,10 @@ impl Columns {
                 });
             }
         };
-        let unit = pick(&opts.unit_id, UNIT_NAMES)?;
-        let time = pick(&opts.timestamp, TIME_NAMES)?;
+        let unit = look.pick(&opts.unit_id, UNIT_NAMES)?;
+        let time = look.pick(&opts.timestamp, TIME_NAMES)?;
         for n in &opts.ignore {
-            find(&names, n).ok_or_else(|| unknown(n))?;
+            look.find(n).ok_or_else(|| look.unknown(n))?;
         }
         let wanted: Option<Vec<String>> = match (model, &opts.channels) {
             (Some(m), _) => Some(m.iter().map(|c| c.log_column().to_string()).collect()),
@@ -72,16 +56,13 @@ impl Columns {
             (None, None) => None,
         };
         let channels = match wanted {
-            Some(list) => list
-                .iter()
-                .map(|n| find(&names, n).ok_or_else(|| unknown(n)))
-                .collect::<Result<_, _>>()?,
+            Some(list) => look.columns(&list)?,
             None => (0..names.len())
                 .filter(|&i| {
                     Some(i) != label
                         && Some(i) != unit
                         && Some(i) != time
-                        && !opts.ignore.iter().any(|n| same_name(n, &names[i]))
+                        && !look.ignored(&opts.ignore, i)
                 })
                 .collect::<Vec<_>>(),
         };

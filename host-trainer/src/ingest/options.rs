@@ -1,6 +1,9 @@
 //! How a log is read: the options, the default column names and label tokens.
 
-use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+use crate::ingest::classes::Classes;
+use crate::ingest::scaling::ChannelScale;
+use crate::ingest::sheet::ChannelSheet;
+use crate::ingest::signal_scale::SignalScale;
 
 /// Readings beyond this magnitude are refused as not finite: no sensor reports 1e15 of anything.
 pub const MAX_READING: f64 = 1e15;
@@ -10,11 +13,7 @@ pub(super) fn is_reading(x: f64) -> bool {
     x.is_finite() && x.abs() <= MAX_READING
 }
 
-/// Default GO tokens. No number or boolean: whether `1` means a good unit or a defect
-/// differs from export to export, so it must be stated (`--go-labels 1 --nogo-labels 0`).
-pub const GO_TOKENS: &[&str] = &["go", "pass", "ok", "good"];
-/// Default NO-GO tokens (words only, as [`GO_TOKENS`]).
-pub const NOGO_TOKENS: &[&str] = &["nogo", "no-go", "no_go", "fail", "ng", "bad", "reject"];
+pub use crate::ingest::classes::{GO_TOKENS, NOGO_TOKENS};
 /// Label column names looked for when none is given.
 pub const LABEL_NAMES: &[&str] = &["label", "verdict", "result", "status"];
 /// Unit-id column names looked for when none is given.
@@ -89,13 +88,16 @@ impl Default for LogOptions {
 }
 
 impl LogOptions {
+    /// The classes the label column names, each with its tokens: GO (`go_labels`) and
+    /// NO-GO (`nogo_labels`). Readers map a label cell through this list only, so more
+    /// classes come by giving more tokens here.
+    pub fn classes(&self) -> Classes {
+        Classes::go_nogo(&self.go_labels, &self.nogo_labels)
+    }
+
     /// The accepted label tokens, as error messages list them.
     pub(super) fn tokens(&self) -> String {
-        format!(
-            "GO: {}; NO-GO: {}",
-            self.go_labels.join(", "),
-            self.nogo_labels.join(", ")
-        )
+        self.classes().tokens()
     }
 }
 
@@ -151,36 +153,41 @@ impl From<&LogOptions> for RecordedOptions {
     }
 }
 
-/// Where channel scaling comes from.
+/// Where a log's channels and their scaling come from, for bench logs and signal logs
+/// alike: a sheet or a model that declares signals makes the log a signal log
+/// ([`ScaleFrom::signals`]).
 #[derive(Clone, Copy, Debug)]
 pub enum ScaleFrom<'a> {
     /// Observed ranges with headroom for every channel.
     Observed,
-    /// A channel sheet; channels it does not declare use observed ranges.
+    /// A channel sheet; channels it does not declare use observed ranges. With
+    /// `[[signal]]` entries, its features and every other column as a reading channel.
     Sheet(&'a ChannelSheet),
-    /// Exactly these channels and scalings (from a trained model).
-    Model(&'a [ChannelScale]),
+    /// Exactly a trained model's channels and scalings (holdout, audit, replay).
+    Model {
+        /// The model's channels (readings and features), in model order.
+        channels: &'a [ChannelScale],
+        /// The model's signals; empty for a model of readings.
+        signals: &'a [SignalScale],
+    },
 }
 
-/// The label `token` stands for, +1 GO or −1 NO-GO (lower-case `go` and `nogo` tokens,
-/// compared case-insensitively), or `None`. ASCII tokens (the usual case) need no allocation.
-pub(super) fn label_of(token: &[u8], go: &[String], nogo: &[String]) -> Option<i8> {
-    let is = |tokens: &[String]| {
-        if token.is_ascii() {
-            tokens
-                .iter()
-                .any(|t| t.as_bytes().eq_ignore_ascii_case(token))
-        } else {
-            let token = String::from_utf8_lossy(token).to_lowercase();
-            tokens.contains(&token)
+impl<'a> ScaleFrom<'a> {
+    /// A model of readings only: exactly these channels.
+    pub fn model(channels: &'a [ChannelScale]) -> Self {
+        Self::Model {
+            channels,
+            signals: &[],
         }
-    };
-    if is(go) {
-        Some(1)
-    } else if is(nogo) {
-        Some(-1)
-    } else {
-        None
+    }
+
+    /// The signals the sheet or model declares (none: a bench log of readings).
+    pub fn signals(&self) -> &'a [SignalScale] {
+        match *self {
+            Self::Observed => &[],
+            Self::Sheet(s) => &s.signals,
+            Self::Model { signals, .. } => signals,
+        }
     }
 }
 

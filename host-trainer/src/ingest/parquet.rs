@@ -21,7 +21,6 @@ use std::fs::File;
 use std::path::Path;
 
 use arrow_array::cast::AsArray;
-use arrow_array::types::{Float32Type, Float64Type};
 use arrow_array::{Array, ArrayRef};
 use arrow_buffer::ScalarBuffer;
 use arrow_schema::DataType;
@@ -31,104 +30,15 @@ use parquet::arrow::arrow_reader::{
 };
 
 use super::header::Columns;
-use super::options::{LogOptions, is_reading, label_of};
-use super::parse::{Row, label_cell, out_of_range, parse_number, raw_readings, trim};
+use super::options::{LogOptions, is_reading};
+use super::parquet_cells::{Numbers, blank, cell, numbers};
+use super::parquet_file::{Opened, open};
+use super::parse::{Row, label_cell, out_of_range, parse_number, raw_readings};
 use super::skip::SkipReport;
 use crate::error::{InputError, Place};
 use crate::error::{empty_cell_hint, shown as shown_text};
+use crate::ingest::classes::Classes;
 use crate::ingest::scaling::ChannelScale;
-
-/// Parquet's magic, at the start and the end of every Parquet file.
-const MAGIC: &[u8; 4] = b"PAR1";
-
-/// Whether the file at `path` is a Parquet file (by its magic, whatever its extension).
-pub(super) fn is_parquet(path: &Path) -> bool {
-    use std::io::Read;
-    let mut head = [0u8; 4];
-    File::open(path)
-        .and_then(|mut f| f.read_exact(&mut head))
-        .is_ok()
-        && &head == MAGIC
-}
-
-/// How a channel column's cells become numbers.
-#[derive(Clone, Copy)]
-enum Numbers {
-    /// 64-bit floats, as stored.
-    F64,
-    /// 32-bit floats, through their shortest decimal.
-    F32,
-    /// Integers and decimals, cast to `f64` by `arrow-cast` (exact, or rounded once).
-    Cast,
-    /// Text, parsed as a text log's cells are.
-    Text,
-}
-
-impl Numbers {
-    fn of(t: &DataType) -> Option<Self> {
-        use DataType as T;
-        match t {
-            T::Float64 => Some(Self::F64),
-            T::Float32 => Some(Self::F32),
-            T::Int8
-            | T::Int16
-            | T::Int32
-            | T::Int64
-            | T::UInt8
-            | T::UInt16
-            | T::UInt32
-            | T::UInt64
-            | T::Decimal32(..)
-            | T::Decimal64(..)
-            | T::Decimal128(..)
-            | T::Decimal256(..) => Some(Self::Cast),
-            T::Utf8 | T::LargeUtf8 | T::Utf8View => Some(Self::Text),
-            T::Dictionary(_, v) => Self::of(v).map(|_| Self::Text),
-            _ => None,
-        }
-    }
-}
-
-/// A Parquet log's footer, decoded once and shared by every column reader.
-struct Opened {
-    meta: ArrowReaderMetadata,
-    names: Vec<String>,
-}
-
-fn footer_error(path: &Path, e: impl std::fmt::Display) -> InputError {
-    InputError::Parquet {
-        path: path.into(),
-        at: "footer".into(),
-        message: e.to_string(),
-    }
-}
-
-fn open(path: &Path) -> Result<Opened, InputError> {
-    crate::input::regular_file(path)?;
-    let file = File::open(path).map_err(|e| InputError::io(path, e))?;
-    let meta =
-        ArrowReaderMetadata::load(&file, Default::default()).map_err(|e| footer_error(path, e))?;
-    let names = meta
-        .schema()
-        .fields()
-        .iter()
-        .map(|f| f.name().clone())
-        .collect();
-    Ok(Opened { meta, names })
-}
-
-/// The names of a Parquet log's columns.
-pub(super) fn column_names(path: &Path) -> Result<Vec<String>, InputError> {
-    Ok(open(path)?.names)
-}
-
-/// Rows the file's footer declares, bounded by the file's size in bytes (a crafted footer
-/// must not make the reader reserve memory for rows that are not there).
-pub(super) fn row_count(path: &Path) -> Option<usize> {
-    let len = std::fs::metadata(path).ok()?.len();
-    let rows = open(path).ok()?.meta.metadata().file_metadata().num_rows();
-    usize::try_from(rows.max(0).min(len as i64)).ok()
-}
 
 /// Rows decoded at a time, per column: a slice of a row group, so that memory stays bounded
 /// however large the groups are (pyarrow writes one group of a million rows by default).
@@ -177,6 +87,8 @@ struct Plan<'a> {
     group_starts: Vec<u64>,
     /// The columns read, in file order.
     used: Vec<usize>,
+    /// The classes the label cells name.
+    classes: Classes,
 }
 
 impl Plan<'_> {
@@ -265,7 +177,6 @@ impl Plan<'_> {
         if Some(c) != self.cols.label {
             return Ok(Decoded::Text(text));
         }
-        let (go, nogo) = (&self.opts.go_labels, &self.opts.nogo_labels);
         let cells = text.as_string::<i32>();
         let mut bad = Vec::new();
         // A label column holds a few tokens over and over: a cell like the one before it
@@ -275,7 +186,7 @@ impl Plan<'_> {
             .map(|i| {
                 let token = cell(cells, i);
                 if token != last.0 || i == 0 {
-                    last = (token, label_of(token, go, nogo));
+                    last = (token, self.classes.label(token));
                 }
                 last.1.unwrap_or_else(|| {
                     bad.push(i as u32);
@@ -529,6 +440,7 @@ pub(super) fn scan_parquet(
         keep_faults: model.is_some(),
         group_starts,
         used,
+        classes: opts.classes(),
     };
     let bar = (opts.progress && total > 1_000_000).then(|| {
         let b = crate::progress::bar(
@@ -733,7 +645,7 @@ impl Rows<'_> {
             }
         }
         let label = match (label, cols.label) {
-            (Some(t), Some(lc)) => label_cell(t, opts, path, at, &cols.names[lc])?,
+            (Some(t), Some(lc)) => label_cell(t, &plan.classes, opts, path, at, &cols.names[lc])?,
             _ => 0,
         };
         if let Some(s) = plan.scales {
@@ -749,77 +661,4 @@ struct Channel<'a> {
     values: &'a [f64],
     raw: &'a [i32],
     array: &'a ArrayRef,
-}
-
-/// A batch column's cells as numbers; a null cell, or text that is not a number, as NaN
-/// (told apart by [`bad_cell`] when the row is refused). A float64 column without nulls
-/// is its own buffer, shared, not copied.
-fn numbers(a: &ArrayRef, kind: Numbers, decimal_comma: bool) -> ScalarBuffer<f64> {
-    use std::fmt::Write;
-    if matches!(kind, Numbers::F64) && a.logical_nulls().is_none() {
-        return a.as_primitive::<Float64Type>().values().clone();
-    }
-    let mut out = Vec::with_capacity(a.len());
-    match kind {
-        Numbers::F64 => out.extend_from_slice(a.as_primitive::<Float64Type>().values()),
-        Numbers::F32 => {
-            let mut text = String::new();
-            out.extend(a.as_primitive::<Float32Type>().values().iter().map(|&x| {
-                // Whole numbers need no decimal; others are printed shortest and parsed.
-                let wide = f64::from(x);
-                if wide.fract() == 0.0 || !x.is_finite() {
-                    return wide;
-                }
-                text.clear();
-                let _ = write!(text, "{x}");
-                text.parse().unwrap_or(wide)
-            }));
-        }
-        Numbers::Cast => match arrow_cast::cast(a, &DataType::Float64) {
-            Ok(c) => out.extend_from_slice(c.as_primitive::<Float64Type>().values()),
-            Err(_) => out.extend(std::iter::repeat_n(f64::NAN, a.len())),
-        },
-        Numbers::Text => match arrow_cast::cast(a, &DataType::Utf8) {
-            Ok(c) => {
-                let s = c.as_string::<i32>();
-                out.extend((0..s.len()).map(|i| {
-                    parse_number(trim(s.value(i).as_bytes()), decimal_comma).unwrap_or(f64::NAN)
-                }));
-            }
-            Err(_) => out.extend(std::iter::repeat_n(f64::NAN, a.len())),
-        },
-    }
-    // Null cells hold arbitrary values underneath; they become NaN after the fact, so the
-    // common case (no nulls) is a plain copy.
-    if let Some(nulls) = a.logical_nulls() {
-        for i in nulls
-            .iter()
-            .enumerate()
-            .filter_map(|(i, valid)| (!valid).then_some(i))
-        {
-            if let Some(v) = out.get_mut(i) {
-                *v = f64::NAN;
-            }
-        }
-    }
-    ScalarBuffer::from(out)
-}
-
-/// Cell `i` of a text column, trimmed; empty if null.
-fn cell(a: &arrow_array::StringArray, i: usize) -> &[u8] {
-    if a.is_null(i) {
-        &[]
-    } else {
-        trim(a.value(i).as_bytes())
-    }
-}
-
-/// Whether cell `i` is empty: null, or blank text.
-fn blank(a: &ArrayRef, i: usize, kind: Numbers) -> bool {
-    if a.is_null(i) {
-        return true;
-    }
-    matches!(kind, Numbers::Text)
-        && arrow_cast::cast(&a.slice(i, 1), &DataType::Utf8)
-            .is_ok_and(|s| s.as_string::<i32>().value(0).trim().is_empty())
 }

@@ -5,10 +5,11 @@ use std::path::Path;
 
 use super::fast;
 use super::header::Columns;
-use super::options::{LogOptions, is_reading, label_of, unmapped_label};
+use super::options::{LogOptions, is_reading, unmapped_label};
 use super::records::{Fields, count_lf, fields, record_ends, strip_line_end};
 use crate::error::{InputError, Place};
 use crate::error::{empty_cell_hint, shown_bytes};
+use crate::ingest::classes::Classes;
 use crate::ingest::scaling::ChannelScale;
 
 /// What the parser needs to know to turn a record into a row.
@@ -27,6 +28,8 @@ pub(super) struct Parser<'a> {
     pub(super) keep_faults: bool,
     /// The one-pass reader for plain records, when every channel allows it.
     pub(super) fast: Option<fast::FastPlan>,
+    /// The classes the label cells name ([`LogOptions::classes`], built once).
+    pub(super) classes: Classes,
 }
 
 /// A run of parsed records, in file order: values (or raw readings) row-major, and the errors,
@@ -148,7 +151,15 @@ impl Parser<'_> {
         let Some(lc) = cols.label else {
             return Ok(Some(0));
         };
-        label_cell(trim(f.get(lc)), opts, path, line.into(), &cols.names[lc]).map(Some)
+        label_cell(
+            trim(f.get(lc)),
+            &self.classes,
+            opts,
+            path,
+            line.into(),
+            &cols.names[lc],
+        )
+        .map(Some)
     }
 
     /// Converts parsed readings to raw integers; a reading outside its channel's range is
@@ -297,12 +308,13 @@ pub(super) fn cell_text(f: &[u8]) -> String {
 /// the place and the tokens accepted.
 pub(super) fn label_cell(
     token: &[u8],
+    classes: &Classes,
     opts: &LogOptions,
     path: &Path,
     at: Place,
     column: &str,
 ) -> Result<i8, InputError> {
-    label_of(token, &opts.go_labels, &opts.nogo_labels).ok_or_else(|| {
+    classes.label(token).ok_or_else(|| {
         if token.is_empty() {
             return InputError::Missing {
                 path: path.into(),
@@ -324,7 +336,7 @@ pub(super) fn label_cell(
                 at,
                 column: column.to_string(),
                 value: cell_text(token),
-                tokens: opts.tokens(),
+                tokens: classes.tokens(),
             },
         }
     })

@@ -13,9 +13,11 @@ use super::scan::scan;
 use super::skip::SkipReport;
 use crate::error::InputError;
 use crate::error::shell_word;
+use crate::ingest::classes::{Classes, GO, NO_GO};
 use crate::ingest::dataset::Dataset;
 use crate::ingest::names::same_name;
-use crate::ingest::scaling::{ChannelScale, ChannelSheet};
+use crate::ingest::scaling::ChannelScale;
+use crate::ingest::sheet::ChannelSheet;
 
 /// Reads a bench log into a [`Dataset`] of raw readings.
 ///
@@ -53,7 +55,7 @@ pub(super) fn read_log_keeping(
     keep: usize,
 ) -> Result<Dataset, InputError> {
     let model = match scale {
-        ScaleFrom::Model(m) => Some(m),
+        ScaleFrom::Model { channels, .. } => Some(channels),
         _ => None,
     };
     let sheet = match scale {
@@ -100,96 +102,9 @@ pub(super) fn read_log_keeping(
         }
         // A pass that may be the only one hashes the file; else the second pass does.
         let hash = kept.is_some() && opts.digest;
-        let mut rows = 0usize;
-        // Both sinks update the ranges and the kept rows, one call at a time, in file order:
-        // a run of good rows as slices, rows one by one only around a bad row.
-        let state = std::sync::Mutex::new((&mut ranges, &mut rows, &mut kept));
-        let too_many = || InputError::TooManyRows {
-            path: path.into(),
-            max: opts.max_rows,
-        };
-        let observe = |ranges: &mut Vec<(f64, f64)>, values: &[f64]| {
-            if ranges.is_empty() {
-                *ranges = values.iter().map(|&v| (v, v)).collect();
-            }
-            for (r, &v) in ranges.iter_mut().zip(values) {
-                r.0 = r.0.min(v);
-                r.1 = r.1.max(v);
-            }
-        };
-        let first_pass = |_: &_, row: super::parse::Row<'_>| {
-            let mut st = state.lock().map_err(|_| too_many())?;
-            let (ranges, rows, kept) = &mut *st;
-            observe(ranges, row.values);
-            **rows += 1;
-            if let Some(k) = kept.as_mut() {
-                if k.rows.labels.len() >= opts.max_rows {
-                    return Err(too_many());
-                }
-                if (k.values.len() + row.values.len()) * 8 > keep {
-                    // Too long to keep: the second pass converts.
-                    **kept = None;
-                } else {
-                    k.values.extend_from_slice(row.values);
-                    k.rows.labels.push(row.label);
-                    k.rows.lines.push(row.line);
-                    if let Some(u) = row.unit {
-                        k.rows.unit_ids.push(u);
-                    }
-                    if let Some(t) = row.time {
-                        k.rows.times.push(t);
-                    }
-                }
-            }
-            Ok(())
-        };
-        let mut first_run = |cols: &Columns, p: &Parsed| -> Result<(), InputError> {
-            let mut st = state.lock().map_err(|_| too_many())?;
-            let (ranges, rows, kept) = &mut *st;
-            let d = cols.channels.len().max(1);
-            for values in p.values.chunks_exact(d) {
-                observe(ranges, values);
-            }
-            **rows += p.labels.len();
-            if let Some(k) = kept.as_mut() {
-                // As row by row: the limit on rows first, then the budget (once over it,
-                // nothing is kept whatever the order).
-                if k.rows.labels.len() + p.labels.len() > opts.max_rows {
-                    return Err(too_many());
-                }
-                if (k.values.len() + p.values.len()) * 8 > keep {
-                    **kept = None;
-                } else {
-                    k.values.extend_from_slice(&p.values);
-                    k.rows.labels.extend_from_slice(&p.labels);
-                    k.rows.lines.extend_from_slice(&p.lines);
-                    if cols.unit.is_some() {
-                        k.rows.unit_ids.extend_packed(&p.unit_bytes, &p.unit_ends);
-                    }
-                    if cols.time.is_some() && opts.keep_times {
-                        k.rows.times.extend_packed(&p.time_bytes, &p.time_ends);
-                    }
-                }
-            }
-            Ok(())
-        };
-        let (cols1, digest) = scan(
-            path,
-            opts,
-            model,
-            None,
-            &mut first_skipped,
-            first_pass,
-            Some(&mut first_run),
-            hash,
-        )?;
-        if rows == 0 {
-            return Err(no_rows(path, &first_skipped));
-        }
-        if let (None, Some(k)) = (cols1.unit, kept.as_mut()) {
-            k.rows.unit_ids.clear();
-        }
-        first_digest = digest;
+        let pass = observe_pass(path, opts, &mut first_skipped, &mut kept, keep, hash)?;
+        ranges = pass.ranges;
+        first_digest = pass.digest;
     }
     let scales: Vec<ChannelScale> = match model {
         Some(m) => m.to_vec(),
@@ -229,15 +144,15 @@ pub(super) fn read_log_keeping(
             skipped: first_skipped,
             ..ds
         };
-        return checked_classes(path, ds, model.is_some());
+        return checked_classes(path, ds, model.is_some(), opts.classes());
     }
     // Pass 2: convert to raw.
     let mut ds = Dataset::empty(path, scales);
     // Reserve once from an estimate of the row count: growing by doubling would briefly hold
     // the old and the new buffer, half again the data's size.
-    if super::parquet::is_parquet(path) {
+    if super::parquet_file::is_parquet(path) {
         // The footer counts the rows (bounded by the file's size).
-        let rows = super::parquet::row_count(path)
+        let rows = super::parquet_file::row_count(path)
             .unwrap_or(0)
             .min(opts.max_rows);
         ds.raw.reserve_exact(rows * ds.scales.len());
@@ -310,7 +225,7 @@ pub(super) fn read_log_keeping(
     }
     ds.sha256 = sha;
     ds.skipped = skipped;
-    checked_classes(path, ds, model.is_some())
+    checked_classes(path, ds, model.is_some(), opts.classes())
 }
 
 /// The kept rows of the first pass converted with `scales`, as the second pass would convert
@@ -353,11 +268,14 @@ pub(super) fn spread_checked(
 
 /// `ds`, unless it is empty or, for training (no model), holds one class only: the one
 /// rule for plain, Parquet and signal logs.
+/// The dataset carries `classes`, the list its labels were read with.
 pub(super) fn checked_classes(
     path: &Path,
-    ds: Dataset,
+    mut ds: Dataset,
     for_model: bool,
+    classes: Classes,
 ) -> Result<Dataset, InputError> {
+    ds.classes = classes;
     if ds.is_empty() {
         return Err(no_rows(path, &ds.skipped));
     }
@@ -366,7 +284,7 @@ pub(super) fn checked_classes(
         return Err(InputError::OneClass {
             path: path.into(),
             rows: ds.len(),
-            class: if go == 0 { "NO-GO" } else { "GO" },
+            class: if go == 0 { NO_GO } else { GO },
         });
     }
     Ok(ds)
@@ -378,7 +296,7 @@ pub struct StreamedUnit<'a> {
     pub line: u64,
     /// Raw readings, in the order of `scales`.
     pub raw: &'a [i32],
-    /// +1 GO, -1 NO-GO.
+    /// The unit's class in the GO-vs-rest view (+1 GO, −1 any other class).
     pub label: i8,
     /// The unit id cell, if the log has a unit-id column.
     pub unit: Option<&'a [u8]>,
@@ -458,8 +376,8 @@ pub fn header_channels(path: &Path, opts: &LogOptions) -> Result<Vec<String>, In
 /// The columns of a log under `opts`, from its header (or a Parquet file's schema) alone.
 pub(super) fn header_columns(path: &Path, opts: &LogOptions) -> Result<Columns, InputError> {
     crate::input::regular_file(path)?;
-    let names = if super::parquet::is_parquet(path) {
-        super::parquet::column_names(path)?
+    let names = if super::parquet_file::is_parquet(path) {
+        super::parquet_file::column_names(path)?
     } else {
         let file = File::open(path).map_err(|e| InputError::io(path, e))?;
         let mut reader = BlockReader {
@@ -522,51 +440,134 @@ pub fn observed_ranges(
     skipped: &mut SkipReport,
 ) -> Result<(Vec<ObservedColumn>, usize), InputError> {
     let names = header_channels(path, opts)?;
-    let state = std::sync::Mutex::new((Vec::<(f64, f64)>::new(), 0usize));
-    let poisoned = || InputError::TooManyRows {
+    let pass = observe_pass(path, opts, skipped, &mut None, 0, false)?;
+    let ranges = names
+        .into_iter()
+        .zip(pass.ranges)
+        .map(|(column, (lo, hi))| ObservedColumn { column, lo, hi })
+        .collect();
+    Ok((ranges, pass.rows))
+}
+
+/// What [`observe_pass`] found.
+struct Observed {
+    /// Each channel's smallest and largest reading, in channel order.
+    ranges: Vec<(f64, f64)>,
+    /// Rows read.
+    rows: usize,
+    /// The file's SHA-256 when hashed, else empty.
+    digest: String,
+}
+
+/// The one pass that observes each channel's range over the rows `train` reads (bad rows
+/// errors, or skipped and counted under `skip_bad_rows`), for [`observed_ranges`] and the
+/// first pass of [`read_log`]. When `kept` holds rows, each row read is also kept there (as
+/// the doubles parsed, with label, line, id and time) while its readings fit in `keep`
+/// bytes; past that, `kept` becomes `None` and the caller converts in a second pass.
+///
+/// # Errors
+/// The first [`InputError`]; more than `max_rows` rows while keeping; no rows.
+fn observe_pass(
+    path: &Path,
+    opts: &LogOptions,
+    skipped: &mut SkipReport,
+    kept: &mut Option<Kept>,
+    keep: usize,
+    hash: bool,
+) -> Result<Observed, InputError> {
+    let mut ranges: Vec<(f64, f64)> = Vec::new();
+    let mut rows = 0usize;
+    // Both sinks update the ranges and the kept rows, one call at a time, in file order:
+    // a run of good rows as slices, rows one by one only around a bad row.
+    let state = std::sync::Mutex::new((&mut ranges, &mut rows, &mut *kept));
+    let too_many = || InputError::TooManyRows {
         path: path.into(),
         max: opts.max_rows,
     };
-    let observe = |st: &mut (Vec<(f64, f64)>, usize), values: &[f64]| {
-        if st.0.is_empty() {
-            st.0 = values.iter().map(|&v| (v, v)).collect();
+    let observe = |ranges: &mut Vec<(f64, f64)>, values: &[f64]| {
+        if ranges.is_empty() {
+            *ranges = values.iter().map(|&v| (v, v)).collect();
         }
-        for (r, &v) in st.0.iter_mut().zip(values) {
+        for (r, &v) in ranges.iter_mut().zip(values) {
             r.0 = r.0.min(v);
             r.1 = r.1.max(v);
         }
     };
-    let mut run = |cols: &Columns, p: &Parsed| -> Result<(), InputError> {
-        let mut st = state.lock().map_err(|_| poisoned())?;
-        for values in p.values.chunks_exact(cols.channels.len().max(1)) {
-            observe(&mut st, values);
+    let on_row = |_: &_, row: super::parse::Row<'_>| {
+        let mut st = state.lock().map_err(|_| too_many())?;
+        let (ranges, rows, kept) = &mut *st;
+        observe(ranges, row.values);
+        **rows += 1;
+        if let Some(k) = kept.as_mut() {
+            if k.rows.labels.len() >= opts.max_rows {
+                return Err(too_many());
+            }
+            if (k.values.len() + row.values.len()) * 8 > keep {
+                // Too long to keep: the second pass converts.
+                **kept = None;
+            } else {
+                k.values.extend_from_slice(row.values);
+                k.rows.labels.push(row.label);
+                k.rows.lines.push(row.line);
+                if let Some(u) = row.unit {
+                    k.rows.unit_ids.push(u);
+                }
+                if let Some(t) = row.time {
+                    k.rows.times.push(t);
+                }
+            }
         }
-        st.1 += p.labels.len();
         Ok(())
     };
-    scan(
+    let mut on_run = |cols: &Columns, p: &Parsed| -> Result<(), InputError> {
+        let mut st = state.lock().map_err(|_| too_many())?;
+        let (ranges, rows, kept) = &mut *st;
+        let d = cols.channels.len().max(1);
+        for values in p.values.chunks_exact(d) {
+            observe(ranges, values);
+        }
+        **rows += p.labels.len();
+        if let Some(k) = kept.as_mut() {
+            // As row by row: the limit on rows first, then the budget (once over it,
+            // nothing is kept whatever the order).
+            if k.rows.labels.len() + p.labels.len() > opts.max_rows {
+                return Err(too_many());
+            }
+            if (k.values.len() + p.values.len()) * 8 > keep {
+                **kept = None;
+            } else {
+                k.values.extend_from_slice(&p.values);
+                k.rows.labels.extend_from_slice(&p.labels);
+                k.rows.lines.extend_from_slice(&p.lines);
+                if cols.unit.is_some() {
+                    k.rows.unit_ids.extend_packed(&p.unit_bytes, &p.unit_ends);
+                }
+                if cols.time.is_some() && opts.keep_times {
+                    k.rows.times.extend_packed(&p.time_bytes, &p.time_ends);
+                }
+            }
+        }
+        Ok(())
+    };
+    let (cols, digest) = scan(
         path,
         opts,
         None,
         None,
         skipped,
-        |_: &_, row: super::parse::Row<'_>| {
-            let mut st = state.lock().map_err(|_| poisoned())?;
-            observe(&mut st, row.values);
-            st.1 += 1;
-            Ok(())
-        },
-        Some(&mut run),
-        false,
+        on_row,
+        Some(&mut on_run),
+        hash,
     )?;
-    let (ranges, rows) = state.into_inner().map_err(|_| poisoned())?;
     if rows == 0 {
         return Err(no_rows(path, skipped));
     }
-    let ranges = names
-        .into_iter()
-        .zip(ranges)
-        .map(|(column, (lo, hi))| ObservedColumn { column, lo, hi })
-        .collect();
-    Ok((ranges, rows))
+    if let (None, Some(k)) = (cols.unit, kept.as_mut()) {
+        k.rows.unit_ids.clear();
+    }
+    Ok(Observed {
+        ranges,
+        rows,
+        digest,
+    })
 }

@@ -8,62 +8,13 @@
 //! `multiplier / 2^shift ≈ (2^(bits-1) - 1) / half`; the quantiser accounts
 //! for the small ratio between the two exactly.
 //!
-//! A channel sheet (TOML; its file is read in `sheet.rs`) declares ranges; without one,
-//! the observed range with 50 % of its span added on each side is used.
-//!
-//! ```toml
-//! # Linegate channel sheet
-//! [[channel]]
-//! name = "supply_current"   # the channel's name; also its column in the bench log
-//! # column = "Supply current (mA), station 3"  # optional: the log column, if not `name`
-//! unit = "mA"
-//! min = 150.0                # valid physical range; the device refuses readings outside
-//! max = 900.0
-//! lsb = 0.1                  # physical units per raw count (ADC gain); default 1
-//! zero = 0.0                 # physical value at raw 0 (ADC offset); default 0
-//! noise = 2.0                # optional: sensor noise, for the tolerance analysis
-//! # confirmed = false         # optional: an observed range still to be checked
-//! ```
-//!
-//! A sheet may also declare signals (a window of samples per unit, read from a signal log)
-//! and feature channels computed from them by the device's own integer code (see
-//! [`signal_scale`](super::signal_scale) and [`signals`](super::signals)):
-//!
-//! ```toml
-//! [[signal]]
-//! name = "vibration"         # column in the signal log (one row per sample)
-//! unit = "g"
-//! lsb = 0.001                # physical units per raw count; default 1
-//! zero = -2.048              # physical value at raw 0; default 0
-//! raw_min = 0                # valid raw samples (ADC counts)
-//! raw_max = 4095
-//! window = 256               # samples per unit
-//! sample_rate = 2000.0       # optional, samples per second (for a band in Hz)
-//! noise = 0.004              # optional: noise per sample, physical units
-//! # offset = 2048            # optional: raw count features measure from; default physical zero
-//! # take = "last"            # optional: a unit with more samples uses its first/last `window`
-//! # columns = "vibration_*"  # optional: a log with one row per unit holds the samples in
-//! #                          # columns vibration_0, vibration_1, … (the `*` is the number)
-//!
-//! [[feature]]
-//! name = "vib_rms"           # the channel's name in the model and reports
-//! signal = "vibration"
-//! kind = "rms"               # mean, rms, min, max, peak_to_peak, abs_peak, std_dev,
-//!                            # zero_crossings, band
-//!
-//! [[feature]]
-//! name = "vib_120hz"
-//! signal = "vibration"
-//! kind = "band"
-//! frequency = 120.0          # Hz (needs sample_rate), or cycles = 15.36 per window
-//! ```
-
-use std::path::Path;
+//! Where the ranges come from: a channel sheet ([`ChannelSheet`](super::sheet::ChannelSheet),
+//! read in `sheet.rs`) declares them; without one, the observed range with 50 % of its
+//! span added on each side is used ([`ChannelScale::observed`]).
 
 use serde::{Deserialize, Serialize};
 
-use crate::error::InputError;
-use crate::ingest::names::{same_name, short_name};
+use crate::ingest::names::short_name;
 use crate::ingest::signal_scale::{FeatureSource, SignalScale};
 
 /// Share of the observed span added on each side of a channel without a sheet entry. Wide on
@@ -432,152 +383,6 @@ pub(crate) fn power_of_ten(e: i32) -> f64 {
     format!("1e{e}").parse().unwrap_or(f64::NAN)
 }
 
-/// A channel sheet: declared ranges, raw conversion and noise per channel, and the signals
-/// and feature channels of a signal log.
-#[derive(Clone, Debug, Default)]
-pub struct ChannelSheet {
-    /// Declared reading channels, in file order.
-    pub channels: Vec<ChannelScale>,
-    /// Declared signals, in file order (the order the device passes their windows).
-    pub signals: Vec<SignalScale>,
-    /// Feature channels ([`ChannelScale::source`] set), in file order.
-    pub features: Vec<ChannelScale>,
-    /// Channels marked `confirmed = false`.
-    unconfirmed: Vec<String>,
-}
-
-impl ChannelSheet {
-    /// A sheet of these reading channels only (a log's scaling decided elsewhere, e.g. the
-    /// observed ranges over several files).
-    pub fn of_channels(channels: Vec<ChannelScale>) -> Self {
-        Self {
-            channels,
-            ..Self::default()
-        }
-    }
-
-    /// Reads a channel sheet.
-    ///
-    /// # Errors
-    /// [`InputError::Io`] or [`InputError::Sheet`] naming the problem.
-    pub fn read(path: &Path) -> Result<Self, InputError> {
-        let text = crate::input::read_text(path, "channel sheet", crate::input::MAX_TEXT_FILE)?;
-        Self::from_text(path, &text)
-    }
-
-    /// Parses the text of the sheet file `path` (named in errors).
-    ///
-    /// # Errors
-    /// [`InputError::Sheet`] naming the problem.
-    pub fn from_text(path: &Path, text: &str) -> Result<Self, InputError> {
-        Self::parse(text).map_err(|message| InputError::Sheet {
-            path: path.to_path_buf(),
-            message,
-        })
-    }
-
-    /// Parses a channel sheet's text.
-    ///
-    /// # Errors
-    /// A message naming the line or channel at fault.
-    pub fn parse(text: &str) -> Result<Self, String> {
-        let file = super::sheet::read_file(text)?;
-        let mut channels: Vec<ChannelScale> = Vec::new();
-        let mut unconfirmed = Vec::new();
-        for c in file.channel {
-            let mut s = ChannelScale::new(&c.name, &c.unit, c.min, c.max, c.lsb, c.zero)?;
-            if c.noise.is_some_and(|n| !(n.is_finite() && n >= 0.0)) {
-                return Err(format!(
-                    "channel '{}': noise must be a non-negative number",
-                    c.name
-                ));
-            }
-            s.noise = c.noise;
-            s.column = c.column;
-            if !c.confirmed {
-                unconfirmed.push(c.name);
-            }
-            channels.push(s);
-        }
-        let mut signals: Vec<SignalScale> = Vec::new();
-        for g in file.signal {
-            let s = SignalScale::new(
-                &g.name,
-                &g.unit,
-                g.lsb,
-                g.zero,
-                (g.raw_min, g.raw_max),
-                g.window,
-                g.offset,
-                g.noise,
-            )?
-            .with_sample_rate(g.sample_rate)?
-            .with_layout(g.take, g.columns)?;
-            signals.push(s);
-        }
-        if signals.len() > shared_model::limits::MAX_SIGNALS {
-            return Err(format!(
-                "{} signals declared; a model holds at most {}",
-                signals.len(),
-                shared_model::limits::MAX_SIGNALS
-            ));
-        }
-        let mut features = Vec::new();
-        for f in file.feature {
-            let at = |m: String| format!("feature '{}': {m}", f.name.escape_debug());
-            let signal = signals
-                .iter()
-                .find(|s| same_name(&s.name, &f.signal))
-                .ok_or_else(|| at(format!("no [[signal]] named '{}'", f.signal.escape_debug())))?;
-            let cycles = match (f.cycles, f.frequency, signal.sample_rate) {
-                (Some(_), Some(_), _) => {
-                    return Err(at("give `cycles` or `frequency`, not both".into()));
-                }
-                (None, Some(hz), Some(rate)) => Some(hz * f64::from(signal.window) / rate),
-                (None, Some(_), None) => {
-                    return Err(at(format!(
-                        "`frequency` needs the signal's `sample_rate` (or give `cycles` per window); signal '{}' has none",
-                        signal.name.escape_debug()
-                    )));
-                }
-                (c, None, _) => c,
-            };
-            let source = FeatureSource::parse(signal, &f.kind, cycles).map_err(at)?;
-            features.push(ChannelScale::of_feature(&f.name, signal, source)?);
-        }
-        if let Some(s) = signals.iter().find(|s| {
-            !features
-                .iter()
-                .any(|f| f.source.as_ref().is_some_and(|src| src.signal == s.name))
-        }) {
-            return Err(format!(
-                "signal '{}' has no [[feature]]: declare one (e.g. kind = \"rms\") or remove the signal",
-                s.name.escape_debug()
-            ));
-        }
-        Ok(Self {
-            channels,
-            signals,
-            features,
-            unconfirmed,
-        })
-    }
-
-    /// The declared scaling of the log column `column`, matched as log columns are (ASCII
-    /// case-insensitively) against each channel's [`log_column`](ChannelScale::log_column).
-    pub fn get(&self, column: &str) -> Option<&ChannelScale> {
-        self.channels
-            .iter()
-            .find(|c| same_name(c.log_column(), column))
-    }
-
-    /// The names of the channels marked `confirmed = false` (ranges still to be checked, as
-    /// `linegate sheet` writes every entry), in file order.
-    pub fn unconfirmed(&self) -> &[String] {
-        &self.unconfirmed
-    }
-}
-
 /// `x.round()` (halves away from zero) up to the sign of a zero result, without the call to
 /// the C library's `round` that `f64::round` makes on x86-64's baseline (no SSE4.1): every
 /// reading of a log passes through here. Below 2^52 a double's fraction `x - trunc(x)` is
@@ -736,18 +541,5 @@ mod tests {
                 );
             }
         }
-    }
-
-    #[test]
-    fn sheet_errors_name_the_channel() {
-        let e = ChannelSheet::parse("[[channel]]\nname='a'\nmin=1\nmax=0\n").unwrap_err();
-        assert!(e.contains("'a'") && e.contains("below"), "{e}");
-        let e = ChannelSheet::parse("[[channel]]\nname='a'\nmin=0\nmax=1\nbogus=2\n").unwrap_err();
-        assert!(e.contains("bogus"), "{e}");
-        let e = ChannelSheet::parse(
-            "[[channel]]\nname='a'\nmin=0\nmax=1\n[[channel]]\nname='a'\nmin=0\nmax=1\n",
-        )
-        .unwrap_err();
-        assert!(e.contains("twice"), "{e}");
     }
 }

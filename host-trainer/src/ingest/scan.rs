@@ -34,7 +34,7 @@ pub(super) fn scan(
     hash: bool,
 ) -> Result<(Columns, String), InputError> {
     crate::input::regular_file(path)?;
-    if super::parquet::is_parquet(path) {
+    if super::parquet_file::is_parquet(path) {
         return super::parquet::scan_parquet(path, opts, model, scales, skipped, on_row, hash);
     }
     let pass = Pass { block: BLOCK, hash };
@@ -109,6 +109,7 @@ pub(super) fn scan_blocks(
         scales,
         keep_faults: model.is_some(),
         fast: fast::FastPlan::new(&cols, scales, delimiter, decimal_comma, opts),
+        classes: opts.classes(),
     };
     // Hands on the rows of parsed runs in file order. A row's error is skipped and counted
     // under `skip_bad_rows`; any other error ends the scan.

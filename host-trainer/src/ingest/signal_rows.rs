@@ -17,9 +17,9 @@
 use std::path::{Path, PathBuf};
 
 use crate::error::{InputError, shown};
-use crate::ingest::header::{detect_delimiter, find};
-use crate::ingest::names::same_name;
-use crate::ingest::options::{LABEL_NAMES, LogOptions, UNIT_NAMES, label_of};
+use crate::ingest::header::detect_delimiter;
+use crate::ingest::names::{find, same_name};
+use crate::ingest::options::{LABEL_NAMES, LogOptions, UNIT_NAMES};
 use crate::ingest::signal_parquet::{FileRow, ParquetRows};
 use crate::ingest::signal_scale::SignalScale;
 use crate::ingest::signal_source::{Hashing, csv_error, read_error};
@@ -87,7 +87,7 @@ impl LongRows {
         signals: &[SignalScale],
     ) -> Result<Self, InputError> {
         crate::input::regular_file(path)?;
-        let (physical, names, lists, delimiter) = if crate::ingest::parquet::is_parquet(path) {
+        let (physical, names, lists, delimiter) = if crate::ingest::parquet_file::is_parquet(path) {
             let p = ParquetRows::open(path)?;
             let (names, lists) = (p.names.clone(), p.list_columns.clone());
             // Parquet numbers have no decimal mark; a text cell takes a comma only if asked.
@@ -205,7 +205,7 @@ impl LongRows {
                 opts.label.is_some() || LABEL_NAMES.iter().any(|l| find(names, l).is_some());
             if !has_label {
                 let folder = folder_name(path);
-                if label_of(folder.as_bytes(), &opts.go_labels, &opts.nogo_labels).is_some() {
+                if opts.classes().label(folder.as_bytes()).is_some() {
                     self.names.push(LABEL_NAMES[0].into());
                     self.sources.push(Source::Const(folder.into_bytes()));
                 } else if !opts.label_optional {

@@ -141,6 +141,7 @@ fn both_paths_split(
         scales,
         keep_faults: false,
         fast,
+        classes: opts.classes(),
     };
     let (mut p, mut q) = (Parsed::default(), Parsed::default());
     parser(fast).piece(bytes, 2, plain, &mut p);
@@ -438,4 +439,59 @@ proptest::proptest! {
         // A budget the log outgrows part-way falls back to the second pass, to the same end.
         proptest::prop_assert_eq!(&one, &read(24));
     }
+}
+
+/// The one rule for case, on both kinds of log: a bench log headed `Temp,temp` is refused as
+/// a signal log is (it used to be read as two channels in an earlier build), naming both
+/// columns, their places and the fixes; left out with `--ignore`, both columns go.
+#[test]
+fn a_bench_log_headed_temp_and_temp_is_refused_as_a_signal_log_is() {
+    use crate::ingest::sheet::ChannelSheet;
+    let dir = tempfile::tempdir().unwrap();
+    let bench = dir.path().join("bench.csv");
+    std::fs::write(
+        &bench,
+        "Temp,temp,v,label\n1,2,3,GO\n2,1,5,NO-GO\n3,3,1,GO\n",
+    )
+    .unwrap();
+    let signal = dir.path().join("signal.csv");
+    std::fs::write(
+        &signal,
+        "unit_id,Temp,temp,vib,label\nU1,1,1,0.1,GO\nU1,,,0.2,\nU2,2,2,0.3,NO-GO\nU2,,,0.1,\n",
+    )
+    .unwrap();
+    let sheet = ChannelSheet::parse(
+        "[[signal]]\nname='vib'\nlsb=0.001\nraw_min=-4096\nraw_max=4095\nwindow=2\n[[feature]]\nname='vib_mean'\nsignal='vib'\nkind='mean'\n",
+    )
+    .unwrap();
+    let opts = LogOptions::default();
+    let bench_err = crate::ingest::read(std::slice::from_ref(&bench), &opts, ScaleFrom::Observed)
+        .unwrap_err()
+        .to_string();
+    let signal_err = crate::ingest::read(
+        std::slice::from_ref(&signal),
+        &opts,
+        ScaleFrom::Sheet(&sheet),
+    )
+    .unwrap_err()
+    .to_string();
+    let bench_cols = "columns 'Temp' and 'temp' have the same name (column names compare without regard to case): columns 1 and 2 of the header; rename one, or leave both out with --ignore Temp";
+    assert!(bench_err.contains(bench_cols), "{bench_err}");
+    assert!(
+        signal_err.contains("columns 'Temp' and 'temp' have the same name")
+            && signal_err.contains("columns 2 and 3 of the header"),
+        "{signal_err}"
+    );
+    let ignoring = LogOptions {
+        ignore: vec!["temp".into()],
+        ..LogOptions::default()
+    };
+    let ds = crate::ingest::read(&[bench], &ignoring, ScaleFrom::Observed).unwrap();
+    assert_eq!(ds.scales.len(), 1, "both Temp columns left out");
+    assert_eq!(ds.scales[0].name, "v");
+    let ds = crate::ingest::read(&[signal], &ignoring, ScaleFrom::Sheet(&sheet)).unwrap();
+    assert_eq!(ds.scales.len(), 1, "the feature alone");
+    // The classes the labels were read with travel with the dataset.
+    assert_eq!(ds.class_counts(), vec![("GO", 1), ("NO-GO", 1)]);
+    assert_eq!(ds.class_of(0), Some(0));
 }

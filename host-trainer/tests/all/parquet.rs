@@ -12,7 +12,7 @@ use std::process::Command;
 
 use crate::common::{exits, linegate, write};
 use host_trainer::ingest::dataset::Dataset;
-use host_trainer::ingest::scaling::ChannelSheet;
+use host_trainer::ingest::sheet::ChannelSheet;
 use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
 
 /// Runs a Python script with pyarrow; `false` (and a loud SKIPPED) without it.

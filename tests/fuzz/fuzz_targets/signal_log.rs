@@ -15,7 +15,7 @@ use std::sync::OnceLock;
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::ingest::scaling::{ChannelScale, ChannelSheet};
-use host_trainer::ingest::signals::{SignalChannels, read_signal_log};
+use host_trainer::ingest::{ScaleFrom, read};
 use host_trainer::ingest::SkipReport;
 use host_trainer::release::quantise::{QuantConfig, quantise};
 use host_trainer::release::{audit, replay};
@@ -169,10 +169,10 @@ fuzz_target!(|data: &[u8]| {
     let channels: Vec<ChannelScale> =
         sheet.channels.iter().chain(&sheet.features).cloned().collect();
     twice(nf, || {
-        read_signal_log(
-            &log,
+        read(
+            std::slice::from_ref(&log),
             &opts,
-            SignalChannels::Model {
+            ScaleFrom::Model {
                 channels: &channels,
                 signals: &sheet.signals,
             },

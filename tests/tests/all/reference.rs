@@ -283,7 +283,7 @@ fn logs_above_the_lp_limit_are_decided_and_certified() {
     host_trainer::synth::write_log(&mut buf, 25_000, 8, 0.01, 3).unwrap();
     std::fs::write(&path, &buf).unwrap();
     let sheet =
-        host_trainer::ingest::scaling::ChannelSheet::parse(&host_trainer::synth::sheet(8)).unwrap();
+        host_trainer::ingest::sheet::ChannelSheet::parse(&host_trainer::synth::sheet(8)).unwrap();
     let ds = read_log(&path, &LogOptions::default(), ScaleFrom::Sheet(&sheet)).unwrap();
     assert!(ds.len() > host_trainer::train::separability::LP_FULL_LIMIT);
     let r = check(&ds, &ds.all(), 5, 1);
