@@ -282,7 +282,8 @@ impl FloatModel {
     /// Sets the operating point (threshold and RECHECK band, already in this file's score
     /// units) and derives the id again: the band decides verdicts too.
     pub fn with_operating_point(mut self, op: OperatingPoint) -> Self {
-        self.threshold = op.threshold;
+        let [boundary] = op.boundaries();
+        self.threshold = boundary.threshold;
         self.operating_point = Some(op);
         self.model_id = self.derive_id();
         self
@@ -357,7 +358,8 @@ impl FloatModel {
         }
         if let Some(op) = &self.operating_point {
             h.update(b"band");
-            h.update(op.band.to_le_bytes());
+            let [boundary] = op.boundaries();
+            h.update(boundary.band.to_le_bytes());
         }
         lower_hex(&h.finalize()[..16])
     }
