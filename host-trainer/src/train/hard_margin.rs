@@ -316,3 +316,31 @@ fn pair_difference(ds: &Dataset, i: usize, j: usize) -> Vec<f64> {
     ds.scaled_row(j, &mut b);
     a.iter().zip(&b).map(|(x, y)| x - y).collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_round_shows_as_a_progress_line_once_the_solve_has_run_a_second() {
+        crate::progress::tests::listen();
+        let round = |round, secs| Round {
+            round,
+            working_set: 16_000,
+            iterations: 1234,
+            lower: 0.0123456789,
+            upper: 0.0124,
+            elapsed: std::time::Duration::from_secs_f64(secs),
+        };
+        round(1, 0.5).report();
+        round(2, 2.25).report();
+        // The line the command line printed for each round before it went through the
+        // progress module, to the character.
+        assert_eq!(
+            crate::progress::tests::heard("maximum margin:"),
+            [
+                "maximum margin: round 2, 16000 units in the working set, 1234 cycles, γ* in [0.012346, 0.012400] (2.2 s)"
+            ]
+        );
+    }
+}

@@ -1,8 +1,8 @@
 //! Working sets of the maximum-margin solvers: on a large log they solve on a few thousand
 //! units, then one scan of every unit adds those the solution fails to account for.
 //!
-//! Here: the first set ([`initial`], [`working_set`]) and the bounded keep of the scan
-//! ([`push_bounded`], [`merge_bounded`]), which picks the same units whatever the chunking of
+//! Here: the first set (`initial`, `working_set`) and the bounded keep of the scan
+//! (`push_bounded`, `merge_bounded`), which picks the same units whatever the chunking of
 //! the parallel scan.
 
 use crate::train::task::Binary;
