@@ -7,9 +7,10 @@ use serde::Serialize;
 
 use crate::ingest::dataset::Dataset;
 use crate::train::linear::Linear;
-use crate::train::maxmargin::{ClassWeight, SvmConfig, max_margin};
+use crate::train::maxmargin::max_margin;
 use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 use crate::train::spread::Spread;
+use crate::train::svm::{ClassWeight, SvmConfig};
 use crate::train::task::{AsBinary, Outcomes};
 
 /// The trainers `linegate train` offers.

@@ -31,9 +31,9 @@ use crate::ingest::scaling::ChannelScale;
 use crate::ingest::signal_scale::SignalScale;
 use crate::train::c_choice::CChoice;
 use crate::train::linear::{Linear, ThresholdShift};
-use crate::train::maxmargin::ClassWeight;
 use crate::train::operating_point::OperatingPoint;
 use crate::train::spread::Spread;
+use crate::train::svm::ClassWeight;
 
 /// Format tag in every float model file.
 pub const FORMAT: &str = "linegate-float-model";

@@ -11,7 +11,7 @@ use rayon::prelude::*;
 
 use crate::ingest::dataset::{Dataset, dot};
 use crate::train::linear::Linear;
-use crate::train::maxmargin::SvmRun;
+use crate::train::svm::SvmRun;
 use crate::train::task::Binary;
 use crate::train::wolfe::{Corral, MinNorm, wolfe_from};
 use crate::train::working_set::{

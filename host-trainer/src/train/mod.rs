@@ -4,7 +4,7 @@
 //! and produces a [`linear::Linear`]:
 //! - [`perceptron`] (classic in Novikoff form, averaged, pocket), its mistake scan
 //!   ([`mistake_scan`]), its radius ([`extent`]) and row helpers ([`lanes`]);
-//! - [`maxmargin`] (settings, result, which solver): the exact hard margin
+//! - [`maxmargin`] (which solver; settings and result in [`svm`]): the exact hard margin
 //!   ([`hard_margin`], by Wolfe's nearest-points algorithm, [`wolfe`]) and the soft margin
 //!   ([`soft_margin`] by SMO, [`soft_dual`] on larger logs), on [`working_set`]s;
 //!
@@ -30,6 +30,7 @@ pub mod separability;
 pub mod soft_dual;
 pub mod soft_margin;
 pub mod spread;
+pub mod svm;
 pub mod task;
 pub mod wolfe;
 pub mod working_set;

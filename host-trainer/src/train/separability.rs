@@ -24,9 +24,10 @@ use serde::Serialize;
 
 use crate::train::extent::radius;
 use crate::train::linear::Linear;
-use crate::train::maxmargin::{SvmConfig, max_margin};
+use crate::train::maxmargin::max_margin;
 use crate::train::novikoff::homogeneous_bounds;
 use crate::train::perceptron::{PerceptronConfig, PerceptronKind, PerceptronRun, perceptron};
+use crate::train::svm::SvmConfig;
 use crate::train::task::AsBinary;
 
 /// A unit named in a report.

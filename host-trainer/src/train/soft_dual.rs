@@ -238,7 +238,8 @@ fn cholesky_solve(h: &[f64], g: &[f64], p: usize) -> Option<Vec<f64>> {
 mod tests {
     use super::*;
     use crate::ingest::dataset::Dataset;
-    use crate::train::maxmargin::{SvmConfig, max_margin};
+    use crate::train::maxmargin::max_margin;
+    use crate::train::svm::SvmConfig;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 

@@ -7,8 +7,8 @@
 
 use crate::ingest::dataset::{Dataset, dot};
 use crate::train::linear::Linear;
-use crate::train::maxmargin::{ClassWeight, SvmConfig, SvmRun};
 use crate::train::spread::Spread;
+use crate::train::svm::{ClassWeight, SvmConfig, SvmRun};
 use crate::train::task::Binary;
 use crate::train::working_set::initial;
 

@@ -92,7 +92,7 @@ pub enum Outcomes {
 mod tests {
     use super::*;
     use crate::train::eval::{TrainConfig, TrainerKind, train};
-    use crate::train::maxmargin::ClassWeight;
+    use crate::train::svm::ClassWeight;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 
