@@ -292,6 +292,32 @@ pub(crate) mod tests {
         Dataset::from_scaled(&points, &labels)
     }
 
+    /// `n` random points of [-1, 1]^d (seeded) farther than `gap` from the plane
+    /// `side(p) = 0`, labelled by their side: a separable set.
+    pub(crate) fn separated(
+        n: usize,
+        d: usize,
+        seed: u64,
+        gap: f64,
+        side: impl Fn(&[f64]) -> f64,
+    ) -> Dataset {
+        use rand::Rng;
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        let points: Vec<Vec<f64>> = std::iter::repeat_with(|| {
+            (0..d)
+                .map(|_| rng.gen_range(-1.0..1.0))
+                .collect::<Vec<f64>>()
+        })
+        .filter(|p| side(p).abs() > gap)
+        .take(n)
+        .collect();
+        let labels: Vec<i8> = points
+            .iter()
+            .map(|p| if side(p) > 0.0 { 1 } else { -1 })
+            .collect();
+        Dataset::from_scaled(&points, &labels)
+    }
+
     #[test]
     fn screened_mistake_test_decides_as_double_precision() {
         use rand::Rng;

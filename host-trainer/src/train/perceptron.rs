@@ -204,7 +204,7 @@ fn errors_of(task: Binary<'_>, idx: &[usize], v: &[f64], r: f64) -> usize {
 mod tests {
     use super::*;
     use crate::ingest::dataset::Dataset;
-    use crate::train::mistake_scan::tests::random_set;
+    use crate::train::mistake_scan::tests::{random_set, separated};
 
     #[test]
     fn converges_on_a_separable_pair() {
@@ -263,22 +263,8 @@ mod tests {
     fn look_ahead_gives_the_sequential_run_exactly() {
         // 40 000 units (ten blocks) on both sides of a hyperplane, none closer than 0.01 to
         // it: the first epochs have many mistakes, the last ones whole blocks without.
-        use rand::Rng;
-        let mut rng = ChaCha8Rng::seed_from_u64(5);
         let side = |p: &[f64]| p[0] - 0.5 * p[1] + 0.25 * p[3] - 0.1;
-        let points: Vec<Vec<f64>> = std::iter::repeat_with(|| {
-            (0..5)
-                .map(|_| rng.gen_range(-1.0..1.0))
-                .collect::<Vec<f64>>()
-        })
-        .filter(|p| side(p).abs() > 0.01)
-        .take(40_000)
-        .collect();
-        let labels: Vec<i8> = points
-            .iter()
-            .map(|p| if side(p) > 0.0 { 1 } else { -1 })
-            .collect();
-        let ds = Dataset::from_scaled(&points, &labels);
+        let ds = separated(40_000, 5, 5, 0.01, side);
         let idx = ds.all();
         // Inside a rayon pool there is no look-ahead thread: the sequential scan.
         let sequential = rayon::ThreadPoolBuilder::new()

@@ -93,26 +93,11 @@ mod tests {
     use super::*;
     use crate::train::eval::{TrainConfig, TrainerKind, train};
     use crate::train::svm::ClassWeight;
-    use rand::{Rng, SeedableRng};
-    use rand_chacha::ChaCha8Rng;
 
     /// 300 units in 4 channels on both sides of a plane, none nearer than 0.05 to it.
     fn separable() -> Dataset {
-        let mut rng = ChaCha8Rng::seed_from_u64(31);
         let side = |p: &[f64]| p[0] - 0.4 * p[1] + 0.3 * p[3] - 0.1;
-        let points: Vec<Vec<f64>> = std::iter::repeat_with(|| {
-            (0..4)
-                .map(|_| rng.gen_range(-1.0..1.0))
-                .collect::<Vec<f64>>()
-        })
-        .filter(|p| side(p).abs() > 0.05)
-        .take(300)
-        .collect();
-        let labels: Vec<i8> = points
-            .iter()
-            .map(|p| if side(p) > 0.0 { 1 } else { -1 })
-            .collect();
-        Dataset::from_scaled(&points, &labels)
+        crate::train::mistake_scan::tests::separated(300, 4, 31, 0.05, side)
     }
 
     const CFG: TrainConfig = TrainConfig {
