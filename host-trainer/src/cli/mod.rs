@@ -253,7 +253,7 @@ fn to_json<T: serde::Serialize>(v: &T) -> String {
 pub fn run(cli: &Cli, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
     let quiet = cli.quiet;
     if !quiet {
-        host_trainer::train::maxmargin::watch_rounds(show_round);
+        host_trainer::progress::install(|l| eprintln!("{l}"));
     }
     settings::announce(&settings, quiet);
     match &cli.cmd {
@@ -268,20 +268,5 @@ pub fn run(cli: &Cli, settings: Vec<host_trainer::project::Setting>) -> Result<(
         Cmd::Generate(a) => a.run(quiet),
         Cmd::Demo(a) => a.run(quiet),
         Cmd::Key(a) => a.run(quiet),
-    }
-}
-
-/// A hard-margin solve that has run for over a second shows each round's bounds on γ*.
-fn show_round(r: &host_trainer::train::maxmargin::Round) {
-    if r.elapsed.as_secs_f64() >= 1.0 {
-        eprintln!(
-            "maximum margin: round {}, {} units in the working set, {} cycles, γ* in [{:.6}, {:.6}] ({:.1} s)",
-            r.round,
-            r.working_set,
-            r.iterations,
-            r.lower,
-            r.upper,
-            r.elapsed.as_secs_f64()
-        );
     }
 }

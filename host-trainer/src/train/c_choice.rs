@@ -15,6 +15,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::ingest::dataset::Dataset;
 use crate::train::eval::{EvalRow, TrainConfig, TrainerKind, cross_validate};
+use crate::train::task::AsBinary;
 
 /// The grid searched by default: seven decades around C = 1, the penalty that suits
 /// standard scores (each channel trained on its spread, see [`crate::train::spread`]).
@@ -96,17 +97,19 @@ pub fn search_sample(ds: &Dataset, seed: u64) -> Vec<usize> {
     ds.folds(parts, seed ^ 0x005e_edc5_a3c4).swap_remove(0)
 }
 
-/// Searches `grid` by `folds`-fold cross-validation of the maximum-margin trainer on `ds`
+/// Searches `grid` by `folds`-fold cross-validation of the maximum-margin trainer on `task`
 /// (the caller passes the sample on a large log). Returns the choice and the chosen C's
 /// pooled out-of-fold row, whose scores place the operating point.
 pub fn choose_c(
-    ds: &Dataset,
+    task: &impl AsBinary,
     folds: usize,
     grid: &[f64],
     false_go_weight: f64,
     cfg: TrainConfig,
     progress: Option<&indicatif::ProgressBar>,
 ) -> (CChoice, EvalRow) {
+    let task = task.binary();
+    let ds = task.ds;
     // Each C on the same folds: repeat r splits by seed + r.
     let reps = repeats(ds.len());
     let mut evaluated: Vec<(f64, Pooled)> = grid
@@ -116,7 +119,7 @@ pub fn choose_c(
                 .map(|r| {
                     let seed = cfg.seed.wrapping_add(r as u64);
                     cross_validate(
-                        ds,
+                        &task,
                         folds,
                         &[TrainerKind::MaxMargin],
                         TrainConfig { c, seed, ..cfg },

@@ -1,13 +1,17 @@
-//! Evaluation: holdout logs and k-fold cross-validation, per trainer.
+//! The trainer registry ([`TrainerKind`], [`train`]: each trainer gets its two-sided task
+//! through [`AsBinary`] and says how many outcomes it separates) and evaluation: holdout logs
+//! and k-fold cross-validation, per trainer.
 
 use crate::confidence::{DEFAULT_CONFIDENCE, Rate};
 use serde::Serialize;
 
 use crate::ingest::dataset::Dataset;
 use crate::train::linear::Linear;
-use crate::train::maxmargin::{ClassWeight, SvmConfig, max_margin};
+use crate::train::maxmargin::max_margin;
 use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 use crate::train::spread::Spread;
+use crate::train::svm::{ClassWeight, SvmConfig};
+use crate::train::task::{AsBinary, Outcomes};
 
 /// The trainers `linegate train` offers.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum, Serialize)]
@@ -36,6 +40,18 @@ impl TrainerKind {
         Self::Pocket,
         Self::MaxMargin,
     ];
+
+    /// How many outcomes the trainer separates in one model: two for every trainer of
+    /// today (a model of several classes would train them one class against the rest).
+    pub fn outcomes(self) -> Outcomes {
+        match self {
+            Self::Perceptron
+            | Self::Averaged
+            | Self::Pocket
+            | Self::MaxMargin
+            | Self::HardMargin => Outcomes::Two,
+        }
+    }
 
     /// Name as printed and stored.
     pub fn name(self) -> &'static str {
@@ -75,14 +91,16 @@ pub struct Trained {
     pub soft: Option<(f64, Spread)>,
 }
 
-/// Trains one trainer on the units `idx`.
-pub fn train(ds: &Dataset, idx: &[usize], kind: TrainerKind, cfg: TrainConfig) -> Trained {
+/// Trains one trainer on the units `idx` of a two-sided task (a [`Dataset`] is GO against
+/// NO-GO).
+pub fn train(task: &impl AsBinary, idx: &[usize], kind: TrainerKind, cfg: TrainConfig) -> Trained {
+    let task = task.binary();
     let pc = PerceptronConfig {
         epochs: cfg.epochs,
         seed: cfg.seed,
     };
     let p = |k| {
-        let r = perceptron(ds, idx, k, pc);
+        let r = perceptron(&task, idx, k, pc);
         Trained {
             model: r.model,
             updates: Some(r.updates),
@@ -96,7 +114,7 @@ pub fn train(ds: &Dataset, idx: &[usize], kind: TrainerKind, cfg: TrainConfig) -
         TrainerKind::Pocket => p(PerceptronKind::Pocket),
         TrainerKind::MaxMargin => {
             let run = max_margin(
-                ds,
+                &task,
                 idx,
                 SvmConfig {
                     class_weight: cfg.class_weight,
@@ -112,7 +130,7 @@ pub fn train(ds: &Dataset, idx: &[usize], kind: TrainerKind, cfg: TrainConfig) -
             }
         }
         TrainerKind::HardMargin => Trained {
-            model: max_margin(ds, idx, SvmConfig::hard()).model,
+            model: max_margin(&task, idx, SvmConfig::hard()).model,
             updates: None,
             c: None,
             soft: None,
@@ -174,15 +192,17 @@ impl Counts {
 }
 
 /// Counts decisions of `model` (GO when score > `threshold`) on the units `idx`.
-pub fn evaluate(model: &Linear, threshold: f64, ds: &Dataset, idx: &[usize]) -> Counts {
+pub fn evaluate(model: &Linear, threshold: f64, task: &impl AsBinary, idx: &[usize]) -> Counts {
+    let task = task.binary();
+    let ds = task.ds;
     let mut c = Counts::default();
     for (s, &i) in model.scores(ds, idx).iter().zip(idx) {
         c.units += 1;
-        c.go_units += usize::from(ds.labels[i] > 0);
+        c.go_units += usize::from(task.is_positive(i));
         let fault = ds.fault(i).is_some();
         c.faults += usize::from(fault);
         let go = !fault && *s > threshold;
-        match (go, ds.labels[i] > 0) {
+        match (go, task.is_positive(i)) {
             (true, true) | (false, false) => c.correct += 1,
             (true, false) => c.false_go += 1,
             (false, true) => c.false_nogo += 1,
@@ -221,7 +241,9 @@ pub struct HeldOut {
 }
 
 /// Every unit of `idx` as scored by `model`, for the operating point.
-pub fn held_out(model: &Linear, ds: &Dataset, idx: &[usize]) -> Vec<HeldOut> {
+pub fn held_out(model: &Linear, task: &impl AsBinary, idx: &[usize]) -> Vec<HeldOut> {
+    let task = task.binary();
+    let ds = task.ds;
     let norm = model.norm();
     let norm = if norm > 0.0 { norm } else { 1.0 };
     model
@@ -231,7 +253,7 @@ pub fn held_out(model: &Linear, ds: &Dataset, idx: &[usize]) -> Vec<HeldOut> {
         .map(|(s, &i)| HeldOut {
             unit: i,
             distance: s / norm,
-            go: ds.labels[i] > 0,
+            go: task.is_positive(i),
             fault: ds.fault(i).is_some(),
         })
         .collect()
@@ -240,14 +262,15 @@ pub fn held_out(model: &Linear, ds: &Dataset, idx: &[usize]) -> Vec<HeldOut> {
 /// k-fold cross-validation of each trainer; counts are pooled over the folds. Folds and
 /// trainers run in parallel; the pooled integer counts do not depend on the order.
 pub fn cross_validate(
-    ds: &Dataset,
+    task: &impl AsBinary,
     k: usize,
     kinds: &[TrainerKind],
     cfg: TrainConfig,
     progress: Option<&indicatif::ProgressBar>,
 ) -> Vec<EvalRow> {
     use rayon::prelude::*;
-    let folds = ds.folds(k, cfg.seed);
+    let task = task.binary();
+    let folds = task.ds.folds(k, cfg.seed);
     let jobs: Vec<(usize, usize)> = (0..kinds.len())
         .flat_map(|t| (0..folds.len()).map(move |f| (t, f)))
         .collect();
@@ -263,14 +286,14 @@ pub fn cross_validate(
                     folds.len()
                 ));
             }
-            let model = train(ds, &train_idx, kinds[t], cfg).model;
+            let model = train(&task, &train_idx, kinds[t], cfg).model;
             if let Some(p) = progress {
                 p.inc(1);
             }
             (
                 t,
-                evaluate(&model, 0.0, ds, &folds[f]),
-                held_out(&model, ds, &folds[f]),
+                evaluate(&model, 0.0, &task, &folds[f]),
+                held_out(&model, &task, &folds[f]),
             )
         })
         .collect();

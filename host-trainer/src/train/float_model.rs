@@ -31,9 +31,9 @@ use crate::ingest::scaling::ChannelScale;
 use crate::ingest::signal_scale::SignalScale;
 use crate::train::c_choice::CChoice;
 use crate::train::linear::{Linear, ThresholdShift};
-use crate::train::maxmargin::ClassWeight;
 use crate::train::operating_point::OperatingPoint;
 use crate::train::spread::Spread;
+use crate::train::svm::ClassWeight;
 
 /// Format tag in every float model file.
 pub const FORMAT: &str = "linegate-float-model";
@@ -282,7 +282,8 @@ impl FloatModel {
     /// Sets the operating point (threshold and RECHECK band, already in this file's score
     /// units) and derives the id again: the band decides verdicts too.
     pub fn with_operating_point(mut self, op: OperatingPoint) -> Self {
-        self.threshold = op.threshold;
+        let [boundary] = op.boundaries();
+        self.threshold = boundary.threshold;
         self.operating_point = Some(op);
         self.model_id = self.derive_id();
         self
@@ -357,7 +358,8 @@ impl FloatModel {
         }
         if let Some(op) = &self.operating_point {
             h.update(b"band");
-            h.update(op.band.to_le_bytes());
+            let [boundary] = op.boundaries();
+            h.update(boundary.band.to_le_bytes());
         }
         lower_hex(&h.finalize()[..16])
     }

@@ -1,6 +1,7 @@
 //! The float linear model every trainer produces, and the threshold move for asymmetric risk.
 
 use crate::ingest::dataset::Dataset;
+use crate::train::task::AsBinary;
 
 /// A float linear classifier on scaled inputs: GO when `w·x + b > threshold`.
 #[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -40,8 +41,10 @@ impl Linear {
     }
 
     /// The smallest geometric margin y·(w·x + b)/‖w‖ over `idx` (negative if some unit is misclassified).
-    pub fn geometric_margin(&self, ds: &Dataset, idx: &[usize]) -> f64 {
+    pub fn geometric_margin(&self, task: &impl AsBinary, idx: &[usize]) -> f64 {
         use rayon::prelude::*;
+        let task = task.binary();
+        let ds = task.ds;
         let n = self.norm();
         // The same score per unit as [`Linear::scores`], folded to its minimum where it is
         // made: no vector of a million scores to fill and read again. The minimum does not
@@ -51,7 +54,7 @@ impl Linear {
                 let mut x = vec![0.0; ds.dim()];
                 chunk.iter().fold(f64::INFINITY, |m, &i| {
                     ds.scaled_row(i, &mut x);
-                    m.min(ds.y(i) * self.score(&x) / n)
+                    m.min(task.y(i) * self.score(&x) / n)
                 })
             })
             .reduce(|| f64::INFINITY, f64::min)
@@ -78,15 +81,17 @@ pub struct ThresholdShift {
 /// differ in the last bit) and in fixed point.
 pub fn threshold_for_false_go(
     model: &Linear,
-    ds: &Dataset,
+    task: &impl AsBinary,
     idx: &[usize],
     max_false_go: usize,
 ) -> ThresholdShift {
+    let task = task.binary();
+    let ds = task.ds;
     let scores = model.scores(ds, idx);
     let mut nogo: Vec<f64> = scores
         .iter()
         .zip(idx)
-        .filter(|&(_, &i)| ds.labels[i] < 0)
+        .filter(|&(_, &i)| !task.is_positive(i))
         .map(|(s, _)| *s)
         .collect();
     nogo.sort_by(|a, b| b.total_cmp(a));
@@ -112,7 +117,7 @@ pub fn threshold_for_false_go(
     let go_lost = scores
         .iter()
         .zip(idx)
-        .filter(|&(s, &i)| ds.labels[i] > 0 && *s > 0.0 && *s <= threshold)
+        .filter(|&(s, &i)| task.is_positive(i) && *s > 0.0 && *s <= threshold)
         .count();
     ThresholdShift {
         threshold,

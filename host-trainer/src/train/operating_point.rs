@@ -67,6 +67,29 @@ impl Target {
     }
 }
 
+/// One decision boundary between two outcomes: the positive one (GO) when the score exceeds
+/// `threshold + band`, the other (NO-GO) below `threshold − band`, RECHECK between. An
+/// operating point of today has one; a model of several classes would have one per class
+/// against the rest, which is why the point hands its boundaries out through this type
+/// ([`OperatingPoint::boundaries`]) rather than as loose numbers.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Boundary {
+    /// Where the two outcomes meet, in model score units.
+    pub threshold: f64,
+    /// RECHECK half-band around `threshold`, in model score units.
+    pub band: f64,
+}
+
+impl Boundary {
+    /// The boundary scaled by `factor` (distance units to score units).
+    fn scaled(self, factor: f64) -> Self {
+        Self {
+            threshold: self.threshold * factor,
+            band: self.band * factor,
+        }
+    }
+}
+
 /// Decision counts of one operating point on the held-out units.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -127,6 +150,17 @@ pub struct OperatingPoint {
     pub counts: PointCounts,
     /// The best point at each RECHECK share, for the trade-off chart.
     pub trade_off: Vec<TradePoint>,
+}
+
+impl OperatingPoint {
+    /// The decision boundaries of the point, one per pair of outcomes it separates: one
+    /// today (the file keeps its numbers as `threshold` and `band`).
+    pub fn boundaries(&self) -> [Boundary; 1] {
+        [Boundary {
+            threshold: self.threshold,
+            band: self.band,
+        }]
+    }
 }
 
 /// Why no point meets a target.
@@ -215,12 +249,12 @@ impl Sorted {
     }
 
     /// The best band ±β around threshold 0 by `key` among those `allowed` (of equal keys the
-    /// narrowest): (threshold, band, counts) in distance units.
+    /// narrowest): the boundary in distance units, and its counts.
     fn best_around_zero(
         &self,
         allowed: &dyn Fn(&PointCounts) -> bool,
         key: &dyn Fn(&PointCounts) -> (f64, usize),
-    ) -> Option<(f64, f64, PointCounts)> {
+    ) -> Option<(Boundary, PointCounts)> {
         let n = self.s.len();
         let mut by_size: Vec<(f64, bool)> = self
             .s
@@ -267,7 +301,13 @@ impl Sorted {
                 }
             }
         }
-        best.map(|(beta, c, _)| (0.0, beta, c))
+        best.map(|(beta, c, _)| {
+            let at_zero = Boundary {
+                threshold: 0.0,
+                band: beta,
+            };
+            (at_zero, c)
+        })
     }
 
     /// The counts at threshold 0 without a band.
@@ -350,18 +390,26 @@ pub fn choose(
     let sorted = Sorted::new(held);
     let n = held.len();
     let move_threshold = sorted.nogo.min(n - sorted.nogo) >= MIN_UNITS_TO_MOVE;
-    // (threshold, band, counts) in distance units, by the rule's key.
+    // The boundary in distance units and its counts, by the rule's key.
     let search = |allowed: &dyn Fn(&PointCounts) -> bool,
                   key: &dyn Fn(&PointCounts) -> (f64, usize)| {
         if move_threshold {
             let moved = sorted.best(allowed, key).map(|(lo, hi, c)| {
                 let (a, b) = (sorted.value(lo), sorted.value(hi));
-                (0.5 * (a + b), 0.5 * (b - a), c)
+                let cut = Boundary {
+                    threshold: 0.5 * (a + b),
+                    band: 0.5 * (b - a),
+                };
+                (cut, c)
             });
             // The separator's own threshold, no band, wins a tie: a move must buy something.
             let own = sorted.at_zero();
+            let unmoved = Boundary {
+                threshold: 0.0,
+                band: 0.0,
+            };
             match moved {
-                Some(m) if allowed(&own) && key(&own) <= key(&m.2) => Some((0.0, 0.0, own)),
+                Some(m) if allowed(&own) && key(&own) <= key(&m.1) => Some((unmoved, own)),
                 other => other,
             }
         } else {
@@ -374,7 +422,7 @@ pub fn choose(
             (w * c.false_go as f64 + c.false_nogo as f64, c.recheck())
         })
     };
-    let (t, b, counts) = match target {
+    let (cut, counts) = match target {
         Target::RecheckBudget {
             share,
             false_go_weight,
@@ -403,16 +451,17 @@ pub fn choose(
         }
     }
     .ok_or(PointError::Empty)?;
-    let (threshold, band) = (t * to_score, b * to_score);
+    let Boundary { threshold, band } = cut.scaled(to_score);
     let weight = target.trade_off_weight();
     let trade_off = TRADE_CAPS
         .iter()
         .filter_map(|&cap| {
-            let (t, b, counts) = budget_best(cap, weight)?;
+            let (cut, counts) = budget_best(cap, weight)?;
+            let Boundary { threshold, band } = cut.scaled(to_score);
             Some(TradePoint {
                 recheck_cap: cap,
-                threshold: t * to_score,
-                band: b * to_score,
+                threshold,
+                band,
                 counts,
             })
         })

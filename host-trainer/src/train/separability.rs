@@ -22,12 +22,13 @@
 use microlp::{ComparisonOp, OptimizationDirection, Problem};
 use serde::Serialize;
 
-use crate::ingest::dataset::Dataset;
+use crate::train::extent::radius;
 use crate::train::linear::Linear;
-use crate::train::maxmargin::{SvmConfig, homogeneous_bounds, max_margin};
-use crate::train::perceptron::{
-    PerceptronConfig, PerceptronKind, PerceptronRun, perceptron, radius,
-};
+use crate::train::maxmargin::max_margin;
+use crate::train::novikoff::homogeneous_bounds;
+use crate::train::perceptron::{PerceptronConfig, PerceptronKind, PerceptronRun, perceptron};
+use crate::train::svm::SvmConfig;
+use crate::train::task::AsBinary;
 
 /// A unit named in a report.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -103,7 +104,9 @@ pub const MIN_MARGIN: f64 = 1e-9;
 /// Solves the hull-intersection LP on `idx`; returns the conflicting units with their λ,
 /// verified against the LP's equations, or `None` if the LP is infeasible or its answer
 /// does not verify.
-pub fn hull_intersection(ds: &Dataset, idx: &[usize]) -> Option<Vec<(usize, f64)>> {
+pub fn hull_intersection(task: &impl AsBinary, idx: &[usize]) -> Option<Vec<(usize, f64)>> {
+    let task = task.binary();
+    let ds = task.ds;
     let d = ds.dim();
     let mut lp = Problem::new(OptimizationDirection::Minimize);
     let vars: Vec<_> = idx.iter().map(|_| lp.add_var(0.0, (0.0, 1.0))).collect();
@@ -111,7 +114,7 @@ pub fn hull_intersection(ds: &Dataset, idx: &[usize]) -> Option<Vec<(usize, f64)
         let terms: Vec<_> = vars
             .iter()
             .zip(idx)
-            .filter(|&(_, &i)| ds.labels[i] == class)
+            .filter(|&(_, &i)| task.signs[i] == class)
             .map(|(&v, _)| (v, 1.0))
             .collect();
         lp.add_constraint(terms.as_slice(), ComparisonOp::Eq, 1.0);
@@ -122,7 +125,7 @@ pub fn hull_intersection(ds: &Dataset, idx: &[usize]) -> Option<Vec<(usize, f64)
         ds.scaled_row(i, &mut x);
         for (row, xj) in rows.iter_mut().zip(&x) {
             if *xj != 0.0 {
-                row.push((v, ds.y(i) * xj));
+                row.push((v, task.y(i) * xj));
             }
         }
     }
@@ -168,8 +171,8 @@ impl Figures {
 }
 
 /// Runs the full separability analysis on the units `idx`.
-pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> SeparabilityReport {
-    check_with(ds, idx, epochs, seed, Figures::ALL, None)
+pub fn check(task: &impl AsBinary, idx: &[usize], epochs: u32, seed: u64) -> SeparabilityReport {
+    check_with(task, idx, epochs, seed, Figures::ALL, None)
 }
 
 /// The separability analysis with only the `figures` asked for. `run` is a classic
@@ -178,24 +181,26 @@ pub fn check(ds: &Dataset, idx: &[usize], epochs: u32, seed: u64) -> Separabilit
 /// the hard-margin and Novikoff solves then run side by side, or, when neither figure is
 /// asked for, not at all (its separator is checked on every unit instead).
 pub fn check_with(
-    ds: &Dataset,
+    task: &impl AsBinary,
     idx: &[usize],
     epochs: u32,
     seed: u64,
     figures: Figures,
     run: Option<&PerceptronRun>,
 ) -> SeparabilityReport {
+    let task = task.binary();
+    let ds = task.ds;
     let unit_ref = |i: usize, weight: f64| UnitRef {
         index: i,
         line: ds.lines[i],
         unit: ds.unit_name(i),
-        label: if ds.labels[i] > 0 { "GO" } else { "NO-GO" },
+        label: if task.signs[i] > 0 { "GO" } else { "NO-GO" },
         weight,
     };
     let r = radius(ds, idx);
     let own = (figures.perceptron && run.is_none()).then(|| {
         perceptron(
-            ds,
+            &task,
             idx,
             PerceptronKind::Classic,
             PerceptronConfig { epochs, seed },
@@ -224,7 +229,7 @@ pub fn check_with(
     };
     // A converged perceptron has proved separability: Novikoff's solve cannot be wasted, so
     // it runs beside the hard margin instead of after it.
-    let proved = run.filter(|p| p.converged && p.model.geometric_margin(ds, idx) > 0.0);
+    let proved = run.filter(|p| p.converged && p.model.geometric_margin(&task, idx) > 0.0);
     if let (false, false, Some(p)) = (figures.margin, figures.novikoff, proved) {
         report.separable = true;
         report.decided_by =
@@ -235,17 +240,17 @@ pub fn check_with(
     let proved = proved.is_some();
     let (svm, early_bounds) = if figures.novikoff && proved {
         rayon::join(
-            || max_margin(ds, idx, SvmConfig::hard()),
-            || Some(homogeneous_bounds(ds, idx, r)),
+            || max_margin(&task, idx, SvmConfig::hard()),
+            || Some(homogeneous_bounds(&task, idx, r)),
         )
     } else {
-        (max_margin(ds, idx, SvmConfig::hard()), None)
+        (max_margin(&task, idx, SvmConfig::hard()), None)
     };
     // The full LP decides whenever the log is small enough for it.
-    let full_lp = (idx.len() <= LP_FULL_LIMIT).then(|| hull_intersection(ds, idx));
+    let full_lp = (idx.len() <= LP_FULL_LIMIT).then(|| hull_intersection(&task, idx));
     // A converged hard-margin run has checked its separator on every unit of `idx` already.
     let separator_ok =
-        svm.margin > MIN_MARGIN && (svm.converged || svm.model.geometric_margin(ds, idx) > 0.0);
+        svm.margin > MIN_MARGIN && (svm.converged || svm.model.geometric_margin(&task, idx) > 0.0);
     let not_separable_note = Some(
         "not separable: the Novikoff bound does not apply (the classic perceptron never stops on such a log)".to_string(),
     );
@@ -265,15 +270,15 @@ pub fn check_with(
         cand.extend(
             idx.iter()
                 .zip(&scores)
-                .filter(|&(&i, s)| ds.y(i) * s <= 1.0)
+                .filter(|&(&i, s)| task.y(i) * s <= 1.0)
                 .map(|(&i, _)| i)
                 .take(LP_FULL_LIMIT),
         );
         cand.sort_unstable();
         cand.dedup();
-        let mut conflict = hull_intersection(ds, &cand);
+        let mut conflict = hull_intersection(&task, &cand);
         if conflict.is_none() && full_lp.is_none() {
-            conflict = hull_intersection(ds, idx);
+            conflict = hull_intersection(&task, idx);
         }
         report.decided_by = match conflict {
             Some(_) => "LP on the units nearest the other class: the hulls meet (certificate verified)".into(),
@@ -311,7 +316,7 @@ pub fn check_with(
         report.separator = Some(svm.model);
         return report;
     }
-    let bounds = early_bounds.unwrap_or_else(|| homogeneous_bounds(ds, idx, r));
+    let bounds = early_bounds.unwrap_or_else(|| homogeneous_bounds(&task, idx, r));
     match bounds {
         Some(b) if b.upper - b.lower <= 1e-9 * b.upper => {
             report.novikoff_margin = Some(b.upper);
@@ -340,6 +345,7 @@ pub fn check_with(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::ingest::dataset::Dataset;
 
     #[test]
     fn xor_is_not_separable_and_all_four_points_conflict() {

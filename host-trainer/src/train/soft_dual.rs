@@ -17,9 +17,9 @@
 
 use rayon::prelude::*;
 
-use crate::ingest::dataset::Dataset;
 use crate::train::linear::Linear;
 use crate::train::spread::Spread;
+use crate::train::task::{AsBinary, Binary};
 
 /// Units per chunk of a pass.
 const CHUNK: usize = 16_384;
@@ -30,7 +30,7 @@ const WIDTHS: [f64; 7] = [1.0, 0.1, 1e-2, 1e-3, 1e-4, 1e-5, 1e-6];
 
 /// The rows the solver sees: z = raw·a + c per channel.
 struct Rows<'a> {
-    ds: &'a Dataset,
+    task: Binary<'a>,
     idx: &'a [usize],
     a: Vec<f64>,
     c: Vec<f64>,
@@ -79,14 +79,14 @@ impl Rows<'_> {
                 for &i in chunk {
                     for (((o, &r), a), c) in z
                         .iter_mut()
-                        .zip(self.ds.raw_row(i))
+                        .zip(self.task.ds.raw_row(i))
                         .zip(&self.a)
                         .zip(&self.c)
                     {
                         *o = f64::from(r) * a + c;
                     }
                     z[d] = 1.0;
-                    let y = self.ds.y(i);
+                    let y = self.task.y(i);
                     let cap = if y > 0.0 { self.cap_go } else { self.cap_nogo };
                     let m: f64 = y * z.iter().zip(theta).map(|(a, b)| a * b).sum::<f64>();
                     let u = 1.0 - m;
@@ -125,11 +125,13 @@ impl Rows<'_> {
 /// Returns the separator in the solver's space, the Newton steps taken and whether the
 /// last stage met its tolerance.
 pub fn solve(
-    ds: &Dataset,
+    task: &impl AsBinary,
     idx: &[usize],
     caps: (f64, f64),
     spread: Option<&Spread>,
 ) -> (Linear, u64, bool) {
+    let task = task.binary();
+    let ds = task.ds;
     let d = ds.dim();
     let p = d + 1;
     // x = (raw − offset)/half, then z = (x − m)/s.
@@ -140,7 +142,7 @@ pub fn solve(
         c[k] = -(f64::from(s.offset) / s.half as f64 + m) / sd;
     }
     let rows = Rows {
-        ds,
+        task,
         idx,
         a,
         c,
@@ -235,7 +237,9 @@ fn cholesky_solve(h: &[f64], g: &[f64], p: usize) -> Option<Vec<f64>> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::train::maxmargin::{SvmConfig, max_margin};
+    use crate::ingest::dataset::Dataset;
+    use crate::train::maxmargin::max_margin;
+    use crate::train::svm::SvmConfig;
     use rand::{Rng, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 

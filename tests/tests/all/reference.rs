@@ -8,8 +8,10 @@ use clarabel::solver::{
 };
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::ingest::scaling::ChannelScale;
-use host_trainer::train::maxmargin::{SvmConfig, homogeneous_margin, max_margin};
-use host_trainer::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron, radius};
+use host_trainer::train::extent::radius;
+use host_trainer::train::maxmargin::{SvmConfig, max_margin};
+use host_trainer::train::novikoff::homogeneous_margin;
+use host_trainer::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 use host_trainer::train::separability::check;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
