@@ -9,7 +9,10 @@ use clap::Args;
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::project::Setting;
-use host_trainer::release::audit::{self, AuditConfig, Limit};
+use host_trainer::release::applying::{self, Apply};
+use host_trainer::release::audit_report::AuditReport;
+use host_trainer::release::blob_release::released_blob;
+use host_trainer::release::gates::{AuditConfig, Limit};
 use host_trainer::release::quantise::{QuantConfig, Quantised};
 use host_trainer::release::sign;
 use host_trainer::train::float_model::FloatModel;
@@ -289,7 +292,7 @@ pub struct Release {
     pub qc: QuantConfig,
     pub noise: Vec<Option<f64>>,
     pub ac: AuditConfig,
-    pub apply: audit::Apply,
+    pub apply: Apply,
     pub quiet: bool,
     /// The release key, when the blob is to be signed.
     pub signer: Option<ed25519_dalek::SigningKey>,
@@ -307,8 +310,8 @@ impl Release {
 
     /// Quantises and audits, applying what `--apply-…` asked: the step `audit` and `pack`
     /// share. Says on stderr what it chose, so no default changes a verdict silently.
-    pub fn run(&mut self) -> Result<(Quantised, audit::AuditReport)> {
-        let done = audit::release_applying(
+    pub fn run(&mut self) -> Result<(Quantised, AuditReport)> {
+        let done = applying::release_applying(
             &self.fm,
             &self.train,
             &self.named_others(),
@@ -332,7 +335,7 @@ impl Release {
         }
         if let Some(k) = &self.signer {
             // The report names the blob pack writes: signed, with its key.
-            report.name_blob(&audit::released_blob(&done.q, report.passed, Some(k)));
+            report.name_blob(&released_blob(&done.q, report.passed, Some(k)));
         }
         report.command_line = Some(command_line());
         report.settings = self.settings.clone();
@@ -536,7 +539,7 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         qc,
         noise,
         ac,
-        apply: audit::Apply {
+        apply: Apply {
             recommended_format: r.apply_recommended_format,
             suggested_band: r.apply_suggested_band,
             progress: !quiet && std::io::stderr().is_terminal(),

@@ -9,7 +9,7 @@ use clap::Args;
 use super::args::{Release, ReleaseArgs, release_inputs};
 use super::{CheckFailed, to_json};
 use host_trainer::output::OutputSet;
-use host_trainer::release::{audit, units};
+use host_trainer::release::units;
 use host_trainer::report;
 
 /// Flags of `linegate audit`.
@@ -53,7 +53,9 @@ impl AuditArgs {
         } = &rel;
         let sw = if *sweep {
             let progress = !quiet && std::io::stderr().is_terminal();
-            Some(audit::sweep(fm, train, &others, *qc, *ac, progress)?)
+            Some(host_trainer::release::sweep::sweep(
+                fm, train, &others, *qc, *ac, progress,
+            )?)
         } else {
             None
         };

@@ -71,7 +71,7 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
         );
     }
     let a = &s.audit;
-    let count = |f: fn(&host_trainer::release::audit::SetSummary) -> usize| -> usize {
+    let count = |f: fn(&host_trainer::release::audit_report::SetSummary) -> usize| -> usize {
         a.sets.iter().map(f).sum()
     };
     say!(

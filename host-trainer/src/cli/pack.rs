@@ -8,8 +8,8 @@ use clap::Args;
 use super::CheckFailed;
 use super::args::{ReleaseArgs, release_inputs};
 use host_trainer::output::OutputSet;
-use host_trainer::release::audit;
 use host_trainer::release::audit_record::AuditRecord;
+use host_trainer::release::blob_release;
 use host_trainer::release::hex;
 
 /// Flags of `linegate pack`.
@@ -61,7 +61,7 @@ impl PackArgs {
         if !r.passed && !override_audit {
             return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
         }
-        let blob = audit::released_blob(&q, r.passed, signer.as_ref());
+        let blob = blob_release::released_blob(&q, r.passed, signer.as_ref());
         match audited {
             Some(given) => {
                 // The audit's folder names its record.

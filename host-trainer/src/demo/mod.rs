@@ -18,9 +18,13 @@ use rand_chacha::ChaCha8Rng;
 use crate::error::{InputError, OutputError};
 use crate::ingest::LogOptions;
 use crate::output::OutputSet;
-use crate::release::audit::{self, AuditConfig, AuditReport, SweepRow};
+use crate::release::applying::{self, Apply};
+use crate::release::audit_report::AuditReport;
+use crate::release::blob_release::{mark, release_mark};
+use crate::release::gates::AuditConfig;
 use crate::release::pack;
 use crate::release::quantise::{QuantConfig, QuantError};
+use crate::release::sweep::SweepRow;
 use crate::train::eval::TrainerKind;
 use crate::train::separability::SeparabilityReport;
 use crate::workflow::{self, TrainOutcome, TrainRequest};
@@ -311,12 +315,12 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     let base = QuantConfig::default();
     // The demo applies what a release engineer would: the sweep's recommended word lengths
     // and the RECHECK band the declared noise calls for.
-    let apply = audit::Apply {
+    let apply = Apply {
         recommended_format: true,
         suggested_band: true,
         progress: false,
     };
-    let done = audit::release_applying(
+    let done = applying::release_applying(
         fm,
         &train_ds,
         &[("holdout", &holdout_ds)],
@@ -327,7 +331,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     )?;
     let (q, report) = (done.q, done.report);
     let sweep = done.sweep.unwrap_or_default();
-    let model = audit::mark(&q.model, audit::release_mark(report.passed));
+    let model = mark(&q.model, release_mark(report.passed));
     let blob = pack::blob_bytes(&model);
     let md = crate::report::markdown(fm, &report, Some(&sweep));
     for (name, text) in &logs {

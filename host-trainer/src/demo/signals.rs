@@ -20,7 +20,10 @@ use super::{DemoError, normal, write_file};
 use crate::error::OutputError;
 use crate::ingest::LogOptions;
 use crate::output::OutputSet;
-use crate::release::audit::{self, AuditConfig, AuditReport};
+use crate::release::applying::{self, Apply};
+use crate::release::audit_report::AuditReport;
+use crate::release::blob_release::released_blob;
+use crate::release::gates::AuditConfig;
 use crate::release::quantise::QuantConfig;
 use crate::train::eval::TrainerKind;
 use crate::workflow::{self, TrainOutcome, TrainRequest};
@@ -232,20 +235,20 @@ pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, De
     train.evaluate_holdout(&holdout_ds);
     let fm = &train.model;
     let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
-    let done = audit::release_applying(
+    let done = applying::release_applying(
         fm,
         &train_ds,
         &[("holdout", &holdout_ds)],
         QuantConfig::default(),
         &noise,
         AuditConfig::default(),
-        audit::Apply {
+        Apply {
             recommended_format: false,
             suggested_band: true,
             progress: false,
         },
     )?;
-    let blob = audit::released_blob(&done.q, done.report.passed, None);
+    let blob = released_blob(&done.q, done.report.passed, None);
     let model = shared_model::blob::decode_signals(&blob).map_err(|e| OutputError::Io {
         path: out.join("signal-model.lgmb"),
         source: std::io::Error::other(e.to_string()),

@@ -4,7 +4,8 @@
 use std::fmt::Write;
 
 use super::svg::{bars_svg, margin_bins_svg, rounding_svg, sweep_svg, trade_off_svg};
-use crate::release::audit::{AuditReport, SweepRow};
+use crate::release::audit_report::AuditReport;
+use crate::release::sweep::SweepRow;
 use crate::train::float_model::FloatModel;
 
 /// Page style: our own (slate text, one accent), tables ruled for print and never split

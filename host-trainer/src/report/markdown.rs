@@ -7,7 +7,8 @@
 use std::fmt::Write;
 
 use super::numbers::{cell, lsb};
-use crate::release::audit::{AuditReport, SweepRow, UnitRow};
+use crate::release::audit_report::{AuditReport, UnitRow};
+use crate::release::sweep::SweepRow;
 use crate::train::float_model::FloatModel;
 
 fn opt(v: Option<f64>) -> String {

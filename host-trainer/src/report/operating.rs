@@ -154,7 +154,9 @@ pub(super) fn c_choice_markdown(s: &mut String, c: &CChoice) {
 mod tests {
     use super::*;
     use crate::ingest::dataset::Dataset;
-    use crate::release::audit::{AuditConfig, AuditReport, release};
+    use crate::release::applying::release;
+    use crate::release::audit_report::AuditReport;
+    use crate::release::gates::AuditConfig;
     use crate::release::quantise::QuantConfig;
     use crate::train::c_choice::CRow;
     use crate::train::eval::{HeldOut, TrainerKind};

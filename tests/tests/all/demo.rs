@@ -110,7 +110,7 @@ fn the_margin_histogram_counts_every_decided_unit() {
     for set in &s.audit.sets {
         assert_eq!(
             set.margin_histogram.len(),
-            host_trainer::release::audit::MARGIN_BINS
+            host_trainer::release::bound::MARGIN_BINS
         );
         let counted: u64 = set.margin_histogram.iter().sum();
         assert_eq!(
