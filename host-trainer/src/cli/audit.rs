@@ -59,7 +59,8 @@ impl AuditArgs {
         } else {
             None
         };
-        let md = report::markdown(fm, &r, sw.as_ref());
+        let doc = report::document(fm, &r, sw.as_ref());
+        let md = doc.markdown();
         let mut set = OutputSet::default();
         release.name_inputs(&mut set);
         if let Some(dir) = report_dir {
@@ -71,7 +72,7 @@ impl AuditArgs {
             set.add_as(
                 "report audit.html (--out-dir)",
                 dir.join("audit.html"),
-                report::html(fm, &r, sw.as_ref(), &md),
+                report::html(fm, &r, sw.as_ref(), &doc),
             );
             set.add_as(
                 "report audit.json (--out-dir)",

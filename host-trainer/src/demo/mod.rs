@@ -333,7 +333,8 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     let sweep = done.sweep.unwrap_or_default();
     let model = mark(&q.model, release_mark(report.passed));
     let blob = pack::blob_bytes(&model);
-    let md = crate::report::markdown(fm, &report, Some(&sweep));
+    let doc = crate::report::document(fm, &report, Some(&sweep));
+    let md = doc.markdown();
     for (name, text) in &logs {
         set.add(out.join(name), text.as_bytes());
     }
@@ -352,7 +353,7 @@ pub fn run(out: &Path, force: bool) -> Result<DemoSummary, DemoError> {
     set.add(out.join("audit.md"), md.as_bytes());
     set.add(
         out.join("audit.html"),
-        crate::report::html(fm, &report, Some(&sweep), &md),
+        crate::report::html(fm, &report, Some(&sweep), &doc),
     );
     set.add(out.join("model.lgmb"), blob.clone());
     set.add(

@@ -325,7 +325,7 @@ mod tests {
         // The same report serialises to the same bytes.
         assert_eq!(crate::report::json(&r, None), crate::report::json(&r, None));
         // The chart sits in the operating point's section of the page.
-        let page = crate::report::html(&fm, &r, None, &md);
+        let page = crate::report::html(&fm, &r, None, &crate::report::document(&fm, &r, None));
         let chart = page.find("id=\"trade-off-chart\"").unwrap();
         assert!(page.find("<h2>Operating point</h2>").unwrap() < chart);
         assert!(chart < page.find("<h2>How C was chosen</h2>").unwrap());
@@ -377,7 +377,7 @@ mod tests {
         }
         let json = crate::report::json(&r, None);
         assert!(!json.contains("operating_point") && !json.contains("c_choice"));
-        let page = crate::report::html(&fm, &r, None, &md);
+        let page = crate::report::html(&fm, &r, None, &crate::report::document(&fm, &r, None));
         assert!(!page.contains("trade-off"));
     }
 

@@ -146,9 +146,9 @@ fn a_failed_audit_page_looks_failed_and_a_passed_one_does_not() {
     ] {
         let (_, r) = applying::release(&fm, &train, &[], QuantConfig::default(), &[], cfg).unwrap();
         assert_eq!(r.passed, passed);
-        let md = host_trainer::report::markdown(&fm, &r, None);
+        let doc = host_trainer::report::document(&fm, &r, None);
         let page = dir.path().join(format!("{passed}.html"));
-        std::fs::write(&page, host_trainer::report::html(&fm, &r, None, &md)).unwrap();
+        std::fs::write(&page, host_trainer::report::html(&fm, &r, None, &doc)).unwrap();
         let dom = headless(bin, &page, &["--dump-dom".into()]);
         assert!(dom.status.success(), "chromium --dump-dom failed");
         let text = String::from_utf8_lossy(&dom.stdout);
@@ -262,8 +262,8 @@ fn a_model_with_an_operating_point_shows_its_trade_off_chart() {
     };
     let fm = fm.with_operating_point(op);
     let (_, r) = applying::release(&fm, &train, &[], qc, &[], AuditConfig::default()).unwrap();
-    let md = host_trainer::report::markdown(&fm, &r, None);
-    let html = host_trainer::report::html(&fm, &r, None, &md);
+    let doc = host_trainer::report::document(&fm, &r, None);
+    let html = host_trainer::report::html(&fm, &r, None, &doc);
     let page = dir.path().join("operating-point.html");
     std::fs::write(
         &page,
