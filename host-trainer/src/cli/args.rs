@@ -9,14 +9,12 @@ use clap::Args;
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::project::Setting;
-use host_trainer::release::applying::{self, Apply};
-use host_trainer::release::audit_report::AuditReport;
-use host_trainer::release::blob_release::released_blob;
+use host_trainer::release::applying::Apply;
 use host_trainer::release::gates::{AuditConfig, Limit};
-use host_trainer::release::quantise::{QuantConfig, Quantised};
+use host_trainer::release::quantise::QuantConfig;
 use host_trainer::release::sign;
 use host_trainer::train::float_model::FloatModel;
-use host_trainer::workflow;
+use host_trainer::workflow::{self, ReleaseOutcome, ReleaseRequest};
 
 #[derive(Args, Clone)]
 pub struct LogArgs {
@@ -308,39 +306,34 @@ impl Release {
         self.others.iter().map(|(n, d)| (n.as_str(), d)).collect()
     }
 
-    /// Quantises and audits, applying what `--apply-…` asked: the step `audit` and `pack`
-    /// share. Says on stderr what it chose, so no default changes a verdict silently.
-    pub fn run(&mut self) -> Result<(Quantised, AuditReport)> {
-        let done = applying::release_applying(
-            &self.fm,
-            &self.train,
-            &self.named_others(),
-            self.qc,
-            &self.noise,
-            self.ac,
-            self.apply,
-        )?;
+    /// The release step `audit` and `pack` share ([`workflow::release`]), applying what
+    /// `--apply-…` asked. Says on stderr what it chose, so no default changes a verdict
+    /// silently.
+    pub fn run(&mut self) -> Result<ReleaseOutcome> {
+        let others = self.named_others();
+        let done = workflow::release(&ReleaseRequest {
+            fm: &self.fm,
+            train: &self.train,
+            others: &others,
+            qc: self.qc,
+            noise: &self.noise,
+            ac: self.ac,
+            apply: self.apply,
+            signer: self.signer.as_ref(),
+            from_model: self.from_model.clone(),
+            settings: self.settings.clone(),
+            command_line: Some(command_line()),
+        })?;
         if !self.quiet {
             for a in &done.report.applied {
                 eprintln!("applied: {a}");
             }
-        }
-        self.qc = done.qc;
-        let mut report = done.report;
-        report.from_model = self.from_model.clone();
-        if !self.quiet {
-            for a in &report.from_model {
+            for a in &done.report.from_model {
                 eprintln!("from the model's operating point: {a}");
             }
         }
-        if let Some(k) = &self.signer {
-            // The report names the blob pack writes: signed, with its key.
-            report.name_blob(&released_blob(&done.q, report.passed, Some(k)));
-        }
-        report.command_line = Some(command_line());
-        report.settings = self.settings.clone();
-        report.split = self.fm.provenance.holdout_split.clone();
-        Ok((done.q, report))
+        self.qc = done.qc;
+        Ok(done)
     }
 }
 

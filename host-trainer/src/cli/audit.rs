@@ -46,7 +46,8 @@ impl AuditArgs {
             json,
         } = self;
         let mut rel = release_inputs(release, quiet, settings)?;
-        let (q, r) = rel.run()?;
+        let done = rel.run()?;
+        let (q, r) = (done.q, done.report);
         let others = rel.named_others();
         let Release {
             fm, train, qc, ac, ..

@@ -8,6 +8,7 @@
 //! choices); [`blob_release`] makes the marked, maybe signed bytes `pack` writes; [`pack`] writes the blob and inspects one; [`matching`]
 //! checks a blob comes from a float model; [`hex`] writes and reads Intel HEX images;
 //! [`image`] reads a blob back from any file `pack` writes and checks a pack's files agree;
+//! [`blob_match`] checks a blob against its key, model and audit report;
 //! [`replay`] prints the lines the device prints; [`sign`] holds the owner's release key
 //! and signs blobs (format version 2); [`keyfile`] reads and writes its key files.
 //! [`features`] audits a model's signal features: ranges, overflow proofs and noise bounds.
@@ -19,6 +20,7 @@ pub mod applying;
 pub mod audit;
 pub mod audit_record;
 pub mod audit_report;
+pub mod blob_match;
 pub mod blob_release;
 pub mod bound;
 pub mod features;
