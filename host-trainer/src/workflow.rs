@@ -1,5 +1,5 @@
-//! The steps a user runs, each as one call: load, check, train, release (quantise, audit,
-//! the blob).
+//! The steps a user runs, each as one call: load, check, train; the release step (the logs
+//! a model is audited on, quantise, audit, the blob) is `release_flow.rs`.
 //! The CLI and the demo both go through here, so they cannot drift apart.
 
 use std::path::{Path, PathBuf};
@@ -13,12 +13,6 @@ use crate::ingest::scaling::ChannelSheet;
 use crate::ingest::signal_log_files;
 use crate::ingest::signals::{SignalChannels, read_signal_files, read_signal_log};
 use crate::ingest::{LogOptions, ScaleFrom, read_logs};
-use crate::release::applying::{Apply, release_applying};
-use crate::release::audit_report::AuditReport;
-use crate::release::blob_release::released_blob;
-use crate::release::gates::AuditConfig;
-use crate::release::quantise::{QuantConfig, QuantError, Quantised};
-use crate::release::sweep::SweepRow;
 use crate::train::c_choice::{CChoice, CPolicy, DEFAULT_C, choose_c, search_sample};
 use crate::train::eval::{
     Counts, EvalRow, HeldOut, TrainConfig, Trained, TrainerKind, cross_validate, evaluate,
@@ -520,100 +514,4 @@ fn cross_validate_with_bar(
         b.finish_and_clear();
     }
     rows
-}
-
-/// What to release: a trained model, the logs to audit it on, and how (the step `audit`,
-/// `pack` and the demo share).
-#[derive(Clone, Debug)]
-pub struct ReleaseRequest<'a> {
-    /// The float model.
-    pub fm: &'a FloatModel,
-    /// The training log (without the units a recorded holdout split held out).
-    pub train: &'a Dataset,
-    /// Holdout and validation logs, each with its name in the reports.
-    pub others: &'a [(&'a str, &'a Dataset)],
-    /// Word lengths, search, RECHECK band.
-    pub qc: QuantConfig,
-    /// Declared noise per channel, physical units.
-    pub noise: &'a [Option<f64>],
-    /// The gates.
-    pub ac: AuditConfig,
-    /// What the tool may choose (sweep's format, suggested band).
-    pub apply: Apply,
-    /// The release key, when the blob is to be signed.
-    pub signer: Option<&'a ed25519_dalek::SigningKey>,
-    /// Settings taken from the model's operating point, in words (recorded in the report).
-    pub from_model: Vec<String>,
-    /// Every setting with its source (recorded in the report; `pack` compares them).
-    pub settings: Vec<crate::project::Setting>,
-    /// The command line that asked for it, recorded in the report.
-    pub command_line: Option<String>,
-}
-
-impl<'a> ReleaseRequest<'a> {
-    /// `fm` audited on `train` and `others` with the default format and gates, nothing
-    /// applied, unsigned, nothing recorded.
-    pub fn new(
-        fm: &'a FloatModel,
-        train: &'a Dataset,
-        others: &'a [(&'a str, &'a Dataset)],
-        noise: &'a [Option<f64>],
-    ) -> Self {
-        Self {
-            fm,
-            train,
-            others,
-            qc: QuantConfig::default(),
-            noise,
-            ac: AuditConfig::default(),
-            apply: Apply::default(),
-            signer: None,
-            from_model: Vec::new(),
-            settings: Vec::new(),
-            command_line: None,
-        }
-    }
-}
-
-/// What [`release`] made.
-pub struct ReleaseOutcome {
-    /// The quantised model.
-    pub q: Quantised,
-    /// Its audit, recording what was applied, taken from the model and set, and naming
-    /// `blob`.
-    pub report: AuditReport,
-    /// The configuration actually used.
-    pub qc: QuantConfig,
-    /// The sweep, when it was run to pick the format.
-    pub sweep: Option<(Vec<SweepRow>, Option<usize>)>,
-    /// The blob `pack` writes: marked passed or overridden, signed with the request's key.
-    pub blob: Vec<u8>,
-}
-
-/// Quantises and audits, applying what `req.apply` asks, and makes the blob: the report
-/// records the request's settings and the model's holdout split, and names the blob's bytes.
-///
-/// # Errors
-/// [`QuantError`] from the quantiser.
-pub fn release(req: &ReleaseRequest<'_>) -> Result<ReleaseOutcome, QuantError> {
-    let done = release_applying(
-        req.fm, req.train, req.others, req.qc, req.noise, req.ac, req.apply,
-    )?;
-    let mut report = done.report;
-    report.from_model = req.from_model.clone();
-    let blob = released_blob(&done.q, report.passed, req.signer);
-    if req.signer.is_some() {
-        // The report names the blob pack writes: signed, with its key.
-        report.name_blob(&blob);
-    }
-    report.command_line = req.command_line.clone();
-    report.settings = req.settings.clone();
-    report.split = req.fm.provenance.holdout_split.clone();
-    Ok(ReleaseOutcome {
-        q: done.q,
-        report,
-        qc: done.qc,
-        sweep: done.sweep,
-        blob,
-    })
 }

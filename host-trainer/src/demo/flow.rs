@@ -13,8 +13,9 @@ use crate::release::applying::Apply;
 use crate::release::audit_report::AuditReport;
 use crate::release::quantise::QuantError;
 use crate::release::sweep::SweepRow;
+use crate::release_flow::{self, ReleaseRequest};
 use crate::train::separability::SeparabilityReport;
-use crate::workflow::{self, ReleaseRequest, TrainOutcome, TrainRequest};
+use crate::workflow::{self, TrainOutcome, TrainRequest};
 
 /// Where the demo places the model in flash: the last 4 KiB of the 256 KiB part the QEMU example uses.
 pub const MODEL_REGION: u32 = 0x0003_F000;
@@ -156,7 +157,7 @@ pub(super) fn run_scenario(
     // Audit and pack: the release engineer's choices, the blob pack writes.
     let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
     let others = [("holdout", &holdout_ds)];
-    let done = workflow::release(&ReleaseRequest {
+    let done = release_flow::release(&ReleaseRequest {
         apply: sc.apply,
         ..ReleaseRequest::new(fm, &train_ds, &others, &noise)
     })?;
