@@ -1,6 +1,6 @@
 //! The demo's one flow: each scenario goes through the same steps a user runs (data, train,
 //! audit, pack, replay), each step one library call, and adds its files to the demo's
-//! output set. What differs between the scenarios is data ([`Scenario`]), not code.
+//! output set. What differs between the scenarios is data (`Scenario`), not code.
 
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -82,7 +82,8 @@ pub(super) struct Scenario {
 pub struct Outcome {
     /// The training.
     pub train: TrainOutcome,
-    /// The separability check of the log with [`Role::Checked`], if the scenario has one.
+    /// The separability check of the log only checked (the second shift's), if the
+    /// scenario has one.
     pub checked: Option<SeparabilityReport>,
     /// The audit of the released model.
     pub audit: AuditReport,
