@@ -4,7 +4,7 @@
 //! the gates (`gates.rs`) turn the counts into the report (`audit_report.rs`).
 
 use crate::ingest::dataset::Dataset;
-use crate::release::audit_report::{AuditReport, SetSummary, UnitRow};
+use crate::release::audit_report::{AuditReport, SetSummary, Tolerance, UnitRow};
 use crate::release::blob_release::released_blob;
 use crate::release::bound::{ErrorBound, error_bound};
 use crate::release::gates::{AuditConfig, LogCounts, SetRates, gates, reason};
@@ -118,7 +118,7 @@ fn assemble(
     bound: ErrorBound,
     guaranteed: bool,
     logs: Logs,
-    tolerance: Option<crate::release::tolerance::Tolerance>,
+    tolerance: Option<Tolerance>,
 ) -> AuditReport {
     let m = q.model.model();
     let channel_margin = fm

@@ -1,6 +1,7 @@
 //! What an audit found, as the reports and `audit.json` carry it: one unit's row of the
-//! listings ([`UnitRow`]), one log's figures ([`SetSummary`]) and the whole audit
-//! ([`AuditReport`]), which names the blob `pack` writes for it.
+//! listings ([`UnitRow`]), one log's figures ([`SetSummary`]), the noise tolerance
+//! ([`Tolerance`]) and the whole audit ([`AuditReport`]), which names the blob `pack` writes
+//! for it.
 //!
 //! Plain data: the audit pass (`audit.rs`) fills it, `report/` writes it, `audit_record.rs`
 //! reads the parts `pack` and `inspect` compare back.
@@ -10,7 +11,6 @@ use shared_model::blob;
 
 use crate::release::bound::ErrorBound;
 use crate::release::gates::{Gate, LogCounts, SetRates};
-use crate::release::tolerance::Tolerance;
 
 /// One unit in the audit listing.
 #[derive(Clone, Debug, Serialize)]
@@ -119,6 +119,35 @@ impl SetSummary {
             within_bound: self.within_bound,
         }
     }
+}
+
+/// Sensitivity to declared sensor noise.
+#[derive(Clone, Debug, Serialize)]
+pub struct Tolerance {
+    /// Per channel: name, declared noise (physical), drift before the first unit flips (physical), unit.
+    pub channels: Vec<ChannelTolerance>,
+    /// Worst score change the declared noise can cause (LSB).
+    pub noise_radius_lsb: f64,
+    /// Units whose verdict can change within the declared noise: their fixed margin is
+    /// within the noise radius (the first 1,000 of each log, in log order).
+    pub units_at_risk: Vec<UnitRow>,
+    /// How many units, in all logs, are at risk (`units_at_risk` lists at most 1,000 per log).
+    pub units_at_risk_count: usize,
+    /// Suggested RECHECK half-band in float score units (catches every unit at risk).
+    pub suggested_band: f64,
+}
+
+/// Tolerance figures of one channel.
+#[derive(Clone, Debug, Serialize)]
+pub struct ChannelTolerance {
+    /// Channel.
+    pub channel: String,
+    /// Declared noise, physical units.
+    pub noise: f64,
+    /// Largest drift of this channel alone before any audited unit could flip, physical units.
+    pub max_drift: f64,
+    /// Physical unit.
+    pub unit: String,
 }
 
 /// The audit result.

@@ -1,7 +1,7 @@
 //! The blob release: the bytes `pack` writes for an audit outcome, marked passed or
 //! overridden and signed when a release key is given.
 
-use shared_model::CheckedModel;
+use shared_model::{CheckedModel, CheckedSignalModel};
 
 use crate::release::quantise::Quantised;
 
@@ -33,7 +33,7 @@ pub fn released_blob(
     // A model with signals is never written without them: were the pair refused (which
     // `quantise` rules out), the blob would be empty and refused everywhere, not a blob
     // whose features a station would take for readings.
-    match (q.with_signals(marked), signer) {
+    match (with_signals(q, marked), signer) {
         (Some(m), Some(k)) => crate::release::sign::signed_signal_blob(&m, k),
         (Some(m), None) => crate::release::pack::signal_blob_bytes(&m),
         (None, _) => Vec::new(),
@@ -45,6 +45,17 @@ pub fn mark(model: &CheckedModel, mark: shared_model::AuditMark) -> CheckedModel
     let mut m = model.model().clone();
     m.audit = mark;
     CheckedModel::new(m).unwrap_or_else(|_| model.clone())
+}
+
+/// `model` (`q`'s model, perhaps marked by the audit) with `q`'s signals, for a signal blob;
+/// `None` for a model of readings, or if the pair were refused, which `quantise` rules out:
+/// it validated the same section against the same channels, and a mark or a move of the
+/// weights changes no channel's range.
+fn with_signals(q: &Quantised, model: CheckedModel) -> Option<CheckedSignalModel> {
+    if q.signals.is_empty() {
+        return None;
+    }
+    CheckedSignalModel::new(model, q.signals.clone()).ok()
 }
 
 #[cfg(test)]

@@ -7,40 +7,9 @@
 //! noise n (physical units, lsb per raw count) moves the score by at most
 //! |W|·(κ·n/lsb + 1) LSB; the radius is the sum over the channels with declared noise.
 
-use serde::Serialize;
-
-use crate::release::audit_report::{SetSummary, UnitRow};
+use crate::release::audit_report::{ChannelTolerance, SetSummary, Tolerance, UnitRow};
 use crate::release::quantise::Quantised;
 use crate::train::float_model::FloatModel;
-
-/// Sensitivity to declared sensor noise.
-#[derive(Clone, Debug, Serialize)]
-pub struct Tolerance {
-    /// Per channel: name, declared noise (physical), drift before the first unit flips (physical), unit.
-    pub channels: Vec<ChannelTolerance>,
-    /// Worst score change the declared noise can cause (LSB).
-    pub noise_radius_lsb: f64,
-    /// Units whose verdict can change within the declared noise: their fixed margin is
-    /// within the noise radius (the first 1,000 of each log, in log order).
-    pub units_at_risk: Vec<UnitRow>,
-    /// How many units, in all logs, are at risk (`units_at_risk` lists at most 1,000 per log).
-    pub units_at_risk_count: usize,
-    /// Suggested RECHECK half-band in float score units (catches every unit at risk).
-    pub suggested_band: f64,
-}
-
-/// Tolerance figures of one channel.
-#[derive(Clone, Debug, Serialize)]
-pub struct ChannelTolerance {
-    /// Channel.
-    pub channel: String,
-    /// Declared noise, physical units.
-    pub noise: f64,
-    /// Largest drift of this channel alone before any audited unit could flip, physical units.
-    pub max_drift: f64,
-    /// Physical unit.
-    pub unit: String,
-}
 
 /// The most the declared noise can move a score, in LSB; `None` if no noise is declared.
 pub(super) fn noise_radius(q: &Quantised, fm: &FloatModel, noise: &[Option<f64>]) -> Option<f64> {
