@@ -139,6 +139,17 @@ pub(super) fn margin_bin(edges: &[f64; MARGIN_BINS - 1], distance: f64) -> usize
     edges_below(edges, |e| e < distance)
 }
 
+/// Counts one unit in bin `bin` of `histogram`, which starts counting (`bins` zeros) at
+/// its first unit.
+pub(super) fn count_in(histogram: &mut Vec<u64>, bins: usize, bin: usize) {
+    if histogram.is_empty() {
+        *histogram = vec![0; bins];
+    }
+    if let Some(c) = histogram.get_mut(bin) {
+        *c += 1;
+    }
+}
+
 /// Adds one chunk's bin counts to another's (either may not have started counting).
 pub(super) fn add_counts(into: &mut Vec<u64>, from: Vec<u64>) {
     if into.is_empty() {

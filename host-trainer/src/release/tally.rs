@@ -9,7 +9,7 @@ use shared_model::{FixedModel, Verdict};
 use crate::ingest::dataset::{Dataset, RawForm};
 use crate::release::audit_report::SetSummary;
 use crate::release::bound::{
-    MARGIN_BINS, ROUNDING_BINS, add_counts, margin_bin, margin_bin_edges, rounding_bin,
+    MARGIN_BINS, ROUNDING_BINS, add_counts, count_in, margin_bin, margin_bin_edges, rounding_bin,
     rounding_bin_edges,
 };
 use crate::release::quantise::{Quantised, fixed_margin};
@@ -99,8 +99,8 @@ pub(super) struct Tally {
 impl Tally {
     /// Nothing counted yet, for the log `name` read as `ds`, against the rounding `bound`.
     fn new(name: &str, ds: &Dataset, bound: f64) -> Self {
-        Self {
-            s: SetSummary {
+        Self::with(
+            SetSummary {
                 name: name.into(),
                 path: ds.name().display().to_string(),
                 sha256: ds.sha256.clone(),
@@ -108,6 +108,14 @@ impl Tally {
                 skipped_rows: ds.skipped.total,
                 ..Default::default()
             },
+            bound,
+        )
+    }
+
+    /// Nothing counted yet into `s`, against the rounding `bound`.
+    fn with(s: SetSummary, bound: f64) -> Self {
+        Self {
+            s,
             float_min: f64::INFINITY,
             edges: margin_bin_edges(bound),
             flips: Vec::new(),
@@ -175,32 +183,16 @@ impl Tally {
     /// The rounding error of a scored unit, fixed score − A·float score in LSB: the quantity
     /// the bound bounds.
     fn count_rounding(&mut self, err: f64) {
-        if self.s.rounding_histogram.is_empty() {
-            self.s.rounding_histogram = vec![0; ROUNDING_BINS];
-        }
-        if let Some(c) = self
-            .s
-            .rounding_histogram
-            .get_mut(rounding_bin(&self.rounding_edges, err))
-        {
-            *c += 1;
-        }
+        let bin = rounding_bin(&self.rounding_edges, err);
+        count_in(&mut self.s.rounding_histogram, ROUNDING_BINS, bin);
         self.s.rounding_max_lsb = self.s.rounding_max_lsb.max(err.abs());
     }
 
     /// A decided unit's distance from the float threshold (its margin plus its edge's
     /// distance beyond the threshold), the quantity the bound is compared with.
     fn count_margin_bin(&mut self, distance: f64) {
-        if self.s.margin_histogram.is_empty() {
-            self.s.margin_histogram = vec![0; MARGIN_BINS];
-        }
-        if let Some(c) = self
-            .s
-            .margin_histogram
-            .get_mut(margin_bin(&self.edges, distance))
-        {
-            *c += 1;
-        }
+        let bin = margin_bin(&self.edges, distance);
+        count_in(&mut self.s.margin_histogram, MARGIN_BINS, bin);
     }
 
     /// The device's verdict against the label. A RECHECK is a retest: no decision, so
@@ -361,18 +353,7 @@ mod tests {
     use super::*;
 
     fn empty(bound: f64) -> Tally {
-        Tally {
-            s: SetSummary::default(),
-            edges: margin_bin_edges(bound),
-            float_min: f64::INFINITY,
-            flips: Vec::new(),
-            tight: Vec::new(),
-            rounding_edges: rounding_bin_edges(bound),
-            at_risk_count: 0,
-            min_fixed_abs: f64::INFINITY,
-            at_risk: Vec::new(),
-            wrong: Vec::new(),
-        }
+        Tally::with(SetSummary::default(), bound)
     }
 
     /// By hand: A·t = 10.3, so ⌊A·t⌋ + ½ = 10.5. Without a band (nogo_max 10, go_min 11) both
