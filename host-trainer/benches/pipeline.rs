@@ -12,7 +12,8 @@ use std::time::Instant;
 
 use host_trainer::ingest::sheet::ChannelSheet;
 use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
-use host_trainer::release::audit::{AuditConfig, audit};
+use host_trainer::release::audit::audit;
+use host_trainer::release::gates::AuditConfig;
 use host_trainer::release::quantise::{QuantConfig, quantise};
 use host_trainer::train::maxmargin::{SvmConfig, max_margin};
 use host_trainer::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};

@@ -1,4 +1,5 @@
-//! The steps a user runs, each as one call: load, check, train, release (quantise + audit).
+//! The steps a user runs, each as one call: load, check, train; the release step (the logs
+//! a model is audited on, quantise, audit, the blob) is `release_flow.rs`.
 //! The CLI and the demo both go through here, so they cannot drift apart.
 
 use std::path::{Path, PathBuf};

@@ -4,16 +4,17 @@
 use std::io::IsTerminal;
 use std::path::PathBuf;
 
-use anyhow::{Context, Result, bail};
+use anyhow::{Context, Result};
 use clap::Args;
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::project::Setting;
-use host_trainer::release::audit::{self, AuditConfig, Limit};
-use host_trainer::release::quantise::{QuantConfig, Quantised};
+use host_trainer::release::applying::Apply;
+use host_trainer::release::gates::{AuditConfig, Limit};
+use host_trainer::release::quantise::QuantConfig;
 use host_trainer::release::sign;
+use host_trainer::release_flow::{self, ReleaseLogs, ReleaseOutcome, ReleaseRequest};
 use host_trainer::train::float_model::FloatModel;
-use host_trainer::workflow;
 
 #[derive(Args, Clone)]
 pub struct LogArgs {
@@ -289,7 +290,7 @@ pub struct Release {
     pub qc: QuantConfig,
     pub noise: Vec<Option<f64>>,
     pub ac: AuditConfig,
-    pub apply: audit::Apply,
+    pub apply: Apply,
     pub quiet: bool,
     /// The release key, when the blob is to be signed.
     pub signer: Option<ed25519_dalek::SigningKey>,
@@ -305,39 +306,34 @@ impl Release {
         self.others.iter().map(|(n, d)| (n.as_str(), d)).collect()
     }
 
-    /// Quantises and audits, applying what `--apply-…` asked: the step `audit` and `pack`
-    /// share. Says on stderr what it chose, so no default changes a verdict silently.
-    pub fn run(&mut self) -> Result<(Quantised, audit::AuditReport)> {
-        let done = audit::release_applying(
-            &self.fm,
-            &self.train,
-            &self.named_others(),
-            self.qc,
-            &self.noise,
-            self.ac,
-            self.apply,
-        )?;
+    /// The release step `audit` and `pack` share ([`release_flow::release`]), applying what
+    /// `--apply-…` asked. Says on stderr what it chose, so no default changes a verdict
+    /// silently.
+    pub fn run(&mut self) -> Result<ReleaseOutcome> {
+        let others = self.named_others();
+        let done = release_flow::release(&ReleaseRequest {
+            fm: &self.fm,
+            train: &self.train,
+            others: &others,
+            qc: self.qc,
+            noise: &self.noise,
+            ac: self.ac,
+            apply: self.apply,
+            signer: self.signer.as_ref(),
+            from_model: self.from_model.clone(),
+            settings: self.settings.clone(),
+            command_line: Some(command_line()),
+        })?;
         if !self.quiet {
             for a in &done.report.applied {
                 eprintln!("applied: {a}");
             }
-        }
-        self.qc = done.qc;
-        let mut report = done.report;
-        report.from_model = self.from_model.clone();
-        if !self.quiet {
-            for a in &report.from_model {
+            for a in &done.report.from_model {
                 eprintln!("from the model's operating point: {a}");
             }
         }
-        if let Some(k) = &self.signer {
-            // The report names the blob pack writes: signed, with its key.
-            report.name_blob(&audit::released_blob(&done.q, report.passed, Some(k)));
-        }
-        report.command_line = Some(command_line());
-        report.settings = self.settings.clone();
-        report.split = self.fm.provenance.holdout_split.clone();
-        Ok((done.q, report))
+        self.qc = done.qc;
+        Ok(done)
     }
 }
 
@@ -371,110 +367,29 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
     let mut opts = r
         .log_args
         .options_for_model(quiet, &fm, model_path, &mut settings);
-    let split = fm.provenance.holdout_split.clone();
-    opts.keep_times = split.as_ref().is_some_and(|s| s.after.is_some());
-    let recorded = &fm.provenance.training_log;
-    let train_files = if r.train.is_empty() {
-        // The files the model was trained on, as it names them.
-        // A folder (a signal log of one file per unit) is read as the folder it was.
-        let files: Vec<PathBuf> =
-            if fm.provenance.training_files.is_empty() || recorded.path.is_dir() {
-                vec![recorded.path.clone()]
-            } else {
-                fm.provenance
-                    .training_files
-                    .iter()
-                    .map(|p| p.path.clone())
-                    .collect()
-            };
+    opts.keep_times = fm
+        .provenance
+        .holdout_split
+        .as_ref()
+        .is_some_and(|s| s.after.is_some());
+    if r.train.is_empty() {
         settings.push(Setting {
             flag: "--train".into(),
-            value: files.iter().map(|f| f.display().to_string()).collect(),
-            source: format!("model {}", model_path.display()),
-        });
-        files
-    } else {
-        host_trainer::input::expand_files(&r.train)?
-    };
-    let full = workflow::load_for_model(&train_files, &opts, &fm).map_err(|e| {
-        let e = anyhow::Error::new(e);
-        if r.train.is_empty() {
-            e.context(format!(
-                "reading the training files {} names (as train named them, from the folder it ran in); give them with --train",
-                model_path.display()
-            ))
-        } else {
-            e
-        }
-    })?;
-    if full.sha256 != recorded.sha256 {
-        bail!(
-            "{}: this is not the log {} was trained on (its SHA-256 is {}, the model records {} for {}){}; audit with the training log the model names",
-            train_files
+            value: release_flow::recorded_training_files(&fm)
                 .iter()
                 .map(|f| f.display().to_string())
-                .collect::<Vec<_>>()
-                .join(", "),
-            model_path.display(),
-            full.sha256,
-            recorded.sha256,
-            recorded.path.display(),
-            file_difference(&full, &fm)
-        );
+                .collect(),
+            source: format!("model {}", model_path.display()),
+        });
     }
-    let mut others = Vec::new();
-    // The units train held out of the training log are audited as held out, not as training
-    // units: their errors are the model's errors on units it has not seen.
-    let train = match &split {
-        Some(sp) => {
-            let (t, h) = sp.units(&full).map_err(|m| {
-                anyhow::anyhow!(
-                    "{}: the holdout split {} records: {m}",
-                    full.path.display(),
-                    model_path.display()
-                )
-            })?;
-            let again = sp.clone().made(&full, &t, &h);
-            // A model from before the digest was kept is checked by its counts.
-            let same_units =
-                sp.held_out_sha256.is_none() || sp.held_out_sha256 == again.held_out_sha256;
-            if t.len() != sp.trained_on || h.len() != sp.held_out || !same_units {
-                bail!(
-                    "{}: the holdout split gives {} units to train and {} held out, the model records {} and {}{}; read the log as train did (same options)",
-                    full.path.display(),
-                    t.len(),
-                    h.len(),
-                    sp.trained_on,
-                    sp.held_out,
-                    if same_units {
-                        ""
-                    } else {
-                        " (and other units than those it held out)"
-                    }
-                );
-            }
-            // The skipped rows are the training log's, counted once (with "train").
-            let mut held = full.subset(&h);
-            held.skipped = Default::default();
-            others.push(("held-out".to_string(), held));
-            full.subset(&t)
-        }
-        None => full,
-    };
-    if !r.holdout.is_empty() {
-        let files = host_trainer::input::expand_files(&r.holdout)?;
-        others.push((
-            "holdout".to_string(),
-            workflow::load_for_model(&files, &opts, &fm)?,
-        ));
-    }
-    for (k, v) in r.validate.iter().enumerate() {
-        let files = host_trainer::input::expand_files(std::slice::from_ref(v))?;
-        others.push((
-            format!("validation-{}", k + 1),
-            workflow::load_for_model(&files, &opts, &fm)?,
-        ));
-    }
+    let ReleaseLogs { train, others } = release_flow::load_logs(
+        &fm,
+        model_path,
+        (!r.train.is_empty()).then_some(r.train.as_slice()),
+        &r.holdout,
+        &r.validate,
+        &opts,
+    )?;
     let mut noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
     for spec in &r.noise {
         let (name, value) = spec
@@ -536,7 +451,7 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         qc,
         noise,
         ac,
-        apply: audit::Apply {
+        apply: Apply {
             recommended_format: r.apply_recommended_format,
             suggested_band: r.apply_suggested_band,
             progress: !quiet && std::io::stderr().is_terminal(),
@@ -546,32 +461,6 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         from_model,
         settings,
     })
-}
-
-/// Which file of a log of several differs from the model's record, in words (empty when
-/// the files cannot be matched one to one).
-fn file_difference(ds: &Dataset, fm: &FloatModel) -> String {
-    let rec = &fm.provenance.training_files;
-    if ds.parts.len() != rec.len() {
-        return format!(
-            "; the log has {} files, the model's had {}",
-            ds.parts.len().max(1),
-            rec.len().max(1)
-        );
-    }
-    ds.parts
-        .iter()
-        .zip(rec)
-        .find(|(a, b)| a.sha256 != b.sha256)
-        .map_or(String::new(), |(a, b)| {
-            format!(
-                "; first different file: {} (SHA-256 {}, the model's {} had {})",
-                a.path.display(),
-                a.sha256,
-                b.path.display(),
-                b.sha256
-            )
-        })
 }
 
 /// The false-GO and false-NO-GO gates: the flags', else the model's operating point's, else

@@ -9,7 +9,7 @@ use clap::Args;
 use super::args::{Release, ReleaseArgs, release_inputs};
 use super::{CheckFailed, to_json};
 use host_trainer::output::OutputSet;
-use host_trainer::release::{audit, units};
+use host_trainer::release::units;
 use host_trainer::report;
 
 /// Flags of `linegate audit`.
@@ -46,18 +46,22 @@ impl AuditArgs {
             json,
         } = self;
         let mut rel = release_inputs(release, quiet, settings)?;
-        let (q, r) = rel.run()?;
+        let done = rel.run()?;
+        let (q, r) = (done.q, done.report);
         let others = rel.named_others();
         let Release {
             fm, train, qc, ac, ..
         } = &rel;
         let sw = if *sweep {
             let progress = !quiet && std::io::stderr().is_terminal();
-            Some(audit::sweep(fm, train, &others, *qc, *ac, progress)?)
+            Some(host_trainer::release::sweep::sweep(
+                fm, train, &others, *qc, *ac, progress,
+            )?)
         } else {
             None
         };
-        let md = report::markdown(fm, &r, sw.as_ref());
+        let doc = report::document(fm, &r, sw.as_ref());
+        let md = doc.markdown();
         let mut set = OutputSet::default();
         release.name_inputs(&mut set);
         if let Some(dir) = report_dir {
@@ -69,7 +73,7 @@ impl AuditArgs {
             set.add_as(
                 "report audit.html (--out-dir)",
                 dir.join("audit.html"),
-                report::html(fm, &r, sw.as_ref(), &md),
+                report::html(fm, &r, sw.as_ref(), &doc),
             );
             set.add_as(
                 "report audit.json (--out-dir)",

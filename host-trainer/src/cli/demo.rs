@@ -32,7 +32,8 @@ impl DemoArgs {
 }
 
 fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
-    let c = &s.check_train;
+    let r = &s.readings;
+    let c = &r.train.check;
     say!("Linegate demo: SYNTHETIC end-of-line test of a brushless fan module (invented scenario)");
     say!(
         "training log: {} units, separable: {}, γ* = {:.5}",
@@ -44,16 +45,19 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
         say!(
             "  Novikoff bound {:.0} updates; classic perceptron made {}",
             b,
-            s.perceptron_updates
+            // The demo asks for every figure, so the run is there.
+            c.perceptron_updates.unwrap_or(0)
         );
     }
-    say!(
-        "second-shift log: {} units, separable: {}; {} conflicting units named",
-        s.check_drift.units,
-        s.check_drift.separable,
-        s.check_drift.conflict.len()
-    );
-    if let Some(h) = &s.train.holdout {
+    if let Some(d) = &r.checked {
+        say!(
+            "second-shift log: {} units, separable: {}; {} conflicting units named",
+            d.units,
+            d.separable,
+            d.conflict.len()
+        );
+    }
+    if let Some(h) = &r.train.holdout {
         say!(
             "max-margin model: holdout accuracy {:.4} (false GO {}, false NO-GO {})",
             h.accuracy(),
@@ -61,17 +65,17 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
             h.false_nogo
         );
     }
-    if let Some(i) = s.sweep.1 {
-        let r = &s.sweep.0[i];
+    if let Some((rows, Some(i))) = &r.sweep {
+        let w = &rows[*i];
         say!(
             "sweep recommends {}-bit weights, {}-bit inputs ({} bytes)",
-            r.weight_bits,
-            r.input_bits,
-            r.blob_bytes
+            w.weight_bits,
+            w.input_bits,
+            w.blob_bytes
         );
     }
-    let a = &s.audit;
-    let count = |f: fn(&host_trainer::release::audit::SetSummary) -> usize| -> usize {
+    let a = &r.audit;
+    let count = |f: fn(&host_trainer::release::audit_report::SetSummary) -> usize| -> usize {
         a.sets.iter().map(f).sum()
     };
     say!(
@@ -99,8 +103,8 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
         features,
         g.train.holdout.as_ref().map_or(0.0, |h| h.accuracy()),
         if g.audit.passed { "PASSED" } else { "FAILED" },
-        g.field_faults,
-        g.field_units
+        g.refused,
+        g.replayed
     );
     say!("wrote into {}:", out.display());
     for f in &s.files {

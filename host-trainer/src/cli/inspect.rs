@@ -2,12 +2,11 @@
 
 use std::path::{Path, PathBuf};
 
-use anyhow::{Context, Result, bail};
+use anyhow::Result;
 use clap::Args;
 
 use super::{CheckFailed, to_json};
-use host_trainer::release::{image, matching, pack};
-use host_trainer::train::float_model::FloatModel;
+use host_trainer::release::{blob_match, image, pack};
 
 /// Flags of `linegate inspect`.
 #[derive(Args)]
@@ -165,47 +164,34 @@ fn inspect(
         .map_err(|e| CheckFailed(format!("{}: {e}", path.display())))?;
     // The other files of the same pack must hold the same blob.
     image::check_set(path, &bytes).map_err(|e| CheckFailed(e.to_string()))?;
-    if let Some(p) = public_key {
-        let key = host_trainer::release::sign::read_public(p)?;
-        host_trainer::release::sign::verify(&bytes, &key)
-            .map_err(|e| CheckFailed(format!("{}: {e} ({})", path.display(), p.display())))?;
+    let say_ok = |line: String| {
         if !quiet && !json {
-            say!("signature valid for {}", p.display());
+            say!("{line}");
         }
+    };
+    if let Some(p) = public_key {
+        blob_match::signed_by(path, &bytes, p).map_err(failed)?;
+        say_ok(format!("signature valid for {}", p.display()));
     }
     if let Some(p) = model {
-        let fm = FloatModel::read(p)?;
-        matching::decode_from(&fm, &bytes).map_err(|e| {
-            CheckFailed(format!(
-                "{}: does not match the float model {}: {e}",
-                path.display(),
-                p.display()
-            ))
-        })?;
-        if !quiet && !json {
-            say!("matches float model {}", p.display());
-        }
+        blob_match::made_from(path, &bytes, p).map_err(failed)?;
+        say_ok(format!("matches float model {}", p.display()));
     }
     if let Some(p) = rep {
-        let text =
-            host_trainer::input::read_text(p, "audit report", host_trainer::input::MAX_TEXT_FILE)?;
-        let v: serde_json::Value =
-            serde_json::from_str(&text).with_context(|| format!("{}: not JSON", p.display()))?;
-        let r = v.get("audit").unwrap_or(&v);
-        let recorded = r.get("blob_sha256").and_then(|x| x.as_str());
-        if recorded != Some(ins.sha256.as_str()) {
-            bail!(CheckFailed(format!(
-                "blob does not match audit report {}: the blob's SHA-256 is {}, the report records {} (a blob is released only as audited, byte for byte)",
-                p.display(),
-                ins.sha256,
-                recorded.unwrap_or("none")
-            )));
-        }
-        if !quiet && !json {
-            say!("matches audit report {}", p.display());
-        }
+        blob_match::audited_as(&ins.sha256, p).map_err(failed)?;
+        say_ok(format!("matches audit report {}", p.display()));
     }
     Ok(())
+}
+
+/// A file that could not be read is a usage error (exit 2); a blob that does not belong with
+/// it is a failed check (exit 1).
+fn failed(e: blob_match::BlobCheck) -> anyhow::Error {
+    if e.is_input() {
+        anyhow::Error::new(e)
+    } else {
+        anyhow::Error::new(CheckFailed(e.to_string()))
+    }
 }
 
 /// The signals of a format-3 blob and which channels are their features.

@@ -8,7 +8,6 @@ use clap::Args;
 use super::CheckFailed;
 use super::args::{ReleaseArgs, release_inputs};
 use host_trainer::output::OutputSet;
-use host_trainer::release::audit;
 use host_trainer::release::audit_record::AuditRecord;
 use host_trainer::release::hex;
 
@@ -56,12 +55,11 @@ impl PackArgs {
         } = self;
         let output = super::settings::required(output, "-o/--output", "[outputs] blob")?;
         let mut rel = release_inputs(release, quiet, settings)?;
-        let (q, r) = rel.run()?;
-        let (fm, signer) = (rel.fm, rel.signer);
+        let done = rel.run()?;
+        let (r, blob, fm) = (done.report, done.blob, rel.fm);
         if !r.passed && !override_audit {
             return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
         }
-        let blob = audit::released_blob(&q, r.passed, signer.as_ref());
         match audited {
             Some(given) => {
                 // The audit's folder names its record.

@@ -10,7 +10,7 @@ use clap::Args;
 use super::args::LogArgs;
 use super::to_json;
 use host_trainer::output::OutputSet;
-use host_trainer::release::audit::Limit;
+use host_trainer::release::gates::Limit;
 use host_trainer::release::point_record::HeldOutRates;
 use host_trainer::train::c_choice::{self, CPolicy};
 use host_trainer::train::eval::TrainerKind;

@@ -11,19 +11,15 @@
 //! invalid, so the device refuses such a unit (FAULT, NO-GO); the field log has a few.
 
 use std::fmt::Write as _;
-use std::path::Path;
 
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
-use super::{DemoError, normal, write_file};
-use crate::error::OutputError;
-use crate::ingest::LogOptions;
-use crate::output::OutputSet;
-use crate::release::audit::{self, AuditConfig, AuditReport};
-use crate::release::quantise::QuantConfig;
+use super::flow::{Role, Scenario};
+use super::readings::normal;
+use crate::release::applying::Apply;
 use crate::train::eval::TrainerKind;
-use crate::workflow::{self, TrainOutcome, TrainRequest};
+use crate::workflow::TrainRequest;
 
 /// Samples per vibration window and per current window.
 const VIB_WINDOW: usize = 256;
@@ -170,124 +166,43 @@ pub fn generate_log(
     out
 }
 
-/// What the signal scenario did.
-pub struct SignalDemo {
-    /// The training.
-    pub train: TrainOutcome,
-    /// The audit of the released model.
-    pub audit: AuditReport,
-    /// Field units the device refuses (a clipped window).
-    pub field_faults: usize,
-    /// Field units replayed.
-    pub field_units: usize,
-}
-
-/// Runs the signal scenario: logs and sheet written in `tmp`, results added to `set` as
-/// files of `out`.
-///
-/// # Errors
-/// [`DemoError`] of any step.
-pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, DemoError> {
-    let write_in = |name: &str, text: &str| write_file(tmp, name, text);
-    let logs = [
-        (
-            "signal-train-synthetic.csv",
-            generate_log(44, 500, 'T', 0.5, true, None),
-        ),
-        (
-            "signal-holdout-synthetic.csv",
-            generate_log(55, 250, 'H', 0.5, true, None),
-        ),
-        (
-            "signal-field-synthetic.csv",
-            generate_log(66, 40, 'F', 0.0, false, Some(13)),
-        ),
-    ];
-    let paths = logs
-        .iter()
-        .map(|(n, t)| write_in(n, t))
-        .collect::<Result<Vec<_>, _>>()?;
-    let sheet_text = sheet();
-    let sheet_path = write_in("signal-channels.toml", &sheet_text)?;
-    let opts = LogOptions::default();
-    let (mut train_ds, sheet) =
-        workflow::load(std::slice::from_ref(&paths[0]), &opts, Some(&sheet_path))?;
-    train_ds.path = out.join(logs[0].0);
-    let sheet = sheet.map(|(_, mut f)| {
-        f.path = out.join("signal-channels.toml");
-        f
-    });
-    // The demo's logs are separable: its model is the exact hard margin, threshold 0.
-    let req = TrainRequest {
-        folds: 0,
-        cv_trainers: crate::workflow::CvTrainers::All,
-        target: None,
-        figures: crate::train::separability::Figures::VERDICT,
-        ..TrainRequest::new(TrainerKind::HardMargin)
-    };
-    let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &req)?;
-    let mut holdout_ds =
-        workflow::load_for_model(std::slice::from_ref(&paths[1]), &opts, &train.model)?;
-    holdout_ds.path = out.join(logs[1].0);
-    train.evaluate_holdout(&holdout_ds);
-    let fm = &train.model;
-    let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
-    let done = audit::release_applying(
-        fm,
-        &train_ds,
-        &[("holdout", &holdout_ds)],
-        QuantConfig::default(),
-        &noise,
-        AuditConfig::default(),
-        audit::Apply {
+/// The scenario: trained on the signal log without cross-validation, released with the band
+/// the declared noise calls for at the default word lengths, the field log replayed.
+pub(super) fn scenario() -> Scenario {
+    Scenario {
+        prefix: "signal-",
+        logs: vec![
+            (
+                "signal-train-synthetic.csv",
+                generate_log(44, 500, 'T', 0.5, true, None),
+                Role::Train,
+            ),
+            (
+                "signal-holdout-synthetic.csv",
+                generate_log(55, 250, 'H', 0.5, true, None),
+                Role::Holdout,
+            ),
+            (
+                "signal-field-synthetic.csv",
+                generate_log(66, 40, 'F', 0.0, false, Some(13)),
+                Role::Field,
+            ),
+        ],
+        sheet: ("signal-channels.toml", sheet()),
+        // The demo's logs are separable: its model is the exact hard margin, threshold 0.
+        train: TrainRequest {
+            folds: 0,
+            cv_trainers: crate::workflow::CvTrainers::All,
+            target: None,
+            figures: crate::train::separability::Figures::VERDICT,
+            ..TrainRequest::new(TrainerKind::HardMargin)
+        },
+        apply: Apply {
             recommended_format: false,
             suggested_band: true,
             progress: false,
         },
-    )?;
-    let blob = audit::released_blob(&done.q, done.report.passed, None);
-    let model = shared_model::blob::decode_signals(&blob).map_err(|e| OutputError::Io {
-        path: out.join("signal-model.lgmb"),
-        source: std::io::Error::other(e.to_string()),
-    })?;
-    // The field log replayed as `linegate replay` does: the device's lines, and its vectors.
-    let mut replay = crate::release::replay::model_line(model.model(), &blob);
-    let mut vectors = replay.clone();
-    let (mut units, mut faults) = (0usize, 0usize);
-    crate::release::replay::replay_signal_log(
-        &paths[2],
-        &LogOptions {
-            label_optional: true,
-            ..LogOptions::default()
-        },
-        fm,
-        &model,
-        &mut Default::default(),
-        |line, raw, windows| {
-            faults += usize::from(line.contains("FAULT"));
-            units += 1;
-            let _ = writeln!(replay, "{line}");
-            let _ = writeln!(
-                vectors,
-                "{}",
-                crate::release::replay::signal_vector(raw, windows)
-            );
-        },
-    )?;
-    let md = crate::report::markdown(fm, &done.report, None);
-    for (name, text) in &logs {
-        set.add(out.join(name), text.as_bytes());
+        replay: Role::Field,
+        full: false,
     }
-    set.add(out.join("signal-channels.toml"), sheet_text.as_bytes());
-    set.add(out.join("signal-model.json"), fm.to_json());
-    set.add(out.join("signal-audit.md"), md.as_bytes());
-    set.add(out.join("signal-model.lgmb"), blob);
-    set.add(out.join("signal-replay-field.txt"), replay);
-    set.add(out.join("signal-vectors-field.txt"), vectors);
-    Ok(SignalDemo {
-        train,
-        audit: done.report,
-        field_faults: faults,
-        field_units: units,
-    })
 }

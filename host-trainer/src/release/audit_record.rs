@@ -7,7 +7,7 @@ use serde::Deserialize;
 
 use crate::error::InputError;
 use crate::project::Setting;
-use crate::release::audit::AuditReport;
+use crate::release::audit_report::AuditReport;
 
 /// The parts of an audit report a later `pack` is compared with.
 #[derive(Clone, Debug, Deserialize)]

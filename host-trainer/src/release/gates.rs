@@ -33,7 +33,7 @@ impl Limit {
     /// Whether `n` of `units` is within the cap.
     ///
     /// ```
-    /// use host_trainer::release::audit::Limit;
+    /// use host_trainer::release::gates::Limit;
     /// assert!(Limit::Rate(0.01).allows(1, 100) && !Limit::Rate(0.01).allows(2, 100));
     /// assert!(Limit::Count(0).allows(0, 5) && !Limit::Count(0).allows(1, 5));
     /// // No failure in 299 units shows a rate below 1 % at 95 %; in 298 it does not.

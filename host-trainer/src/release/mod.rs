@@ -1,10 +1,14 @@
 //! Release: a float model in, a checked fixed-point blob and flash images out.
 //!
 //! [`quantise`] turns the float model into integer weights, conversions and thresholds;
-//! [`audit`] runs `shared_model`'s kernel (the code the firmware runs) over every unit and
-//! proves the rounding bound; [`pack`] writes the blob and inspects one; [`matching`]
+//! [`audit`] runs `shared_model`'s kernel (the code the firmware runs) over every unit of
+//! every log ([`tally`]) and proves the rounding bound ([`bound`]); [`tolerance`] says what
+//! declared noise can do; [`audit_report`] holds what the audit found; [`sweep`] audits every
+//! word length; [`applying`] is the release step (quantise + audit, applying the tool's
+//! choices); [`blob_release`] makes the marked, maybe signed bytes `pack` writes; [`pack`] writes the blob and inspects one; [`matching`]
 //! checks a blob comes from a float model; [`hex`] writes and reads Intel HEX images;
 //! [`image`] reads a blob back from any file `pack` writes and checks a pack's files agree;
+//! [`blob_match`] checks a blob against its key, model and audit report;
 //! [`replay`] prints the lines the device prints; [`sign`] holds the owner's release key
 //! and signs blobs (format version 2); [`keyfile`] reads and writes its key files.
 //! [`features`] audits a model's signal features: ranges, overflow proofs and noise bounds.
@@ -12,8 +16,13 @@
 //! (`crate::confidence`); [`units`] streams every unit's scores to `--units`;
 //! [`values`] lists a unit's channel values as the device computes them.
 
+pub mod applying;
 pub mod audit;
 pub mod audit_record;
+pub mod audit_report;
+pub mod blob_match;
+pub mod blob_release;
+pub mod bound;
 pub mod features;
 pub mod gates;
 pub mod hex;
@@ -25,5 +34,8 @@ pub mod point_record;
 pub mod quantise;
 pub mod replay;
 pub mod sign;
+pub mod sweep;
+pub mod tally;
+pub mod tolerance;
 pub mod units;
 pub mod values;

@@ -101,19 +101,6 @@ pub struct Quantised {
     pub signals: SignalSection,
 }
 
-impl Quantised {
-    /// `model` (this model, perhaps marked by the audit) with this model's signals, for a
-    /// signal blob; `None` for a model of readings, or if the pair were refused, which
-    /// `quantise` rules out: it validated the same section against the same channels, and a
-    /// mark or a move of the weights changes no channel's range.
-    pub fn with_signals(&self, model: CheckedModel) -> Option<CheckedSignalModel> {
-        if self.signals.is_empty() {
-            return None;
-        }
-        CheckedSignalModel::new(model, self.signals.clone()).ok()
-    }
-}
-
 /// Rounds `v · 2^frac` to the nearest integer, ties to even: the Q-format conversion used for weights.
 pub fn to_q(v: f64, frac: i32) -> f64 {
     (v * 2f64.powi(frac)).round_ties_even()

@@ -3,8 +3,10 @@
 
 use std::fmt::Write;
 
+use super::document::{Document, Part};
 use super::svg::{bars_svg, margin_bins_svg, rounding_svg, sweep_svg, trade_off_svg};
-use crate::release::audit::{AuditReport, SweepRow};
+use crate::release::audit_report::AuditReport;
+use crate::release::sweep::SweepRow;
 use crate::train::float_model::FloatModel;
 
 /// Page style: our own (slate text, one accent), tables ruled for print and never split
@@ -69,14 +71,15 @@ fn render_markdown(md: &str) -> String {
     out
 }
 
-/// A self-contained HTML page: the verdict, then the report's sections in its order, each
-/// chart inside the section it illustrates (margins with the margin and bound, weights with
-/// the channels, tolerance with the sensor tolerance, the trade-off with the operating point).
+/// A self-contained HTML page: the verdict, then the report's sections (`doc`, from
+/// [`document`](super::document())) in its order, each chart at the end of the section it
+/// illustrates (margins with the margin and bound, weights with the channels, tolerance with
+/// the sensor tolerance, the trade-off with the operating point, the sweep with the sweep).
 pub fn html(
     fm: &FloatModel,
     r: &AuditReport,
     sweep: Option<&(Vec<SweepRow>, Option<usize>)>,
-    md: &str,
+    doc: &Document,
 ) -> String {
     let names: Vec<String> = fm.channels.iter().map(|c| c.name.clone()).collect();
     let weights: Vec<f64> = r.weights.iter().map(|w| f64::from(*w)).collect();
@@ -121,32 +124,21 @@ pub fn html(
         ))
     });
     // The report's own title repeats the page's.
-    let body = md
-        .strip_prefix("# ")
-        .and_then(|rest| rest.split_once('\n'))
-        .map_or(md, |(_, rest)| rest);
-    let rendered = render_markdown(body);
-    let (mut placed_margins, mut placed_weights) = (false, false);
-    for (k, part) in rendered.split("<h2>").enumerate() {
-        if k > 0 {
-            page.push_str("<h2>");
-        }
-        page.push_str(part);
-        if part.starts_with("Margin and the rounding bound") {
-            page.push_str(&margins);
-            placed_margins = true;
-        } else if part.starts_with("Channels") {
-            page.push_str(&weights_chart);
-            placed_weights = true;
-        } else if part.starts_with("Sensor tolerance") {
-            page.push_str(tolerance.as_deref().unwrap_or_default());
-        } else if part.starts_with("Operating point") {
-            page.push_str(trade_chart.as_deref().unwrap_or_default());
-        } else if part.starts_with("Word-length sweep") {
-            page.push_str(sweep_chart.as_deref().unwrap_or_default());
-        }
+    for section in doc.sections.iter().filter(|s| s.part != Part::Title) {
+        page.push_str(&render_markdown(&section.text));
+        let chart = match section.part {
+            Part::Margins => Some(&margins),
+            Part::Channels => Some(&weights_chart),
+            Part::Tolerance => tolerance.as_ref(),
+            Part::OperatingPoint => trade_chart.as_ref(),
+            Part::Sweep => sweep_chart.as_ref(),
+            _ => None,
+        };
+        page.push_str(chart.map_or("", String::as_str));
     }
     // A report without those sections still shows every chart.
+    let placed_margins = doc.section(Part::Margins).is_some();
+    let placed_weights = doc.section(Part::Channels).is_some();
     if !placed_margins {
         let _ = writeln!(page, "<h2>Margins</h2>{margins}");
     }

@@ -1,7 +1,8 @@
 //! The audit report as JSON for machines (a CI job gates on it): every figure of the
 //! report, and the word-length sweep when one ran.
 
-use crate::release::audit::{AuditReport, SweepRow};
+use crate::release::audit_report::AuditReport;
+use crate::release::sweep::SweepRow;
 
 /// `audit.json`: the report's fields, plus `sweep` (every format tried) and `recommended`
 /// (the index of the recommended row, or null) when a sweep ran. Pretty, with a final

@@ -6,8 +6,10 @@
 
 use std::fmt::Write;
 
+use super::document::{Document, Part};
 use super::numbers::{cell, lsb};
-use crate::release::audit::{AuditReport, SweepRow, UnitRow};
+use crate::release::audit_report::{AuditReport, UnitRow};
+use crate::release::sweep::SweepRow;
 use crate::train::float_model::FloatModel;
 
 fn opt(v: Option<f64>) -> String {
@@ -92,9 +94,21 @@ pub fn markdown(
     r: &AuditReport,
     sweep: Option<&(Vec<SweepRow>, Option<usize>)>,
 ) -> String {
+    document(fm, r, sweep).markdown()
+}
+
+/// The audit as its sections, each with its Markdown.
+pub fn document(
+    fm: &FloatModel,
+    r: &AuditReport,
+    sweep: Option<&(Vec<SweepRow>, Option<usize>)>,
+) -> Document {
+    let mut d = Document::default();
     let mut s = String::new();
     let verdict = if r.passed { "PASSED" } else { "FAILED" };
+    d.open(Part::Title, &mut s);
     let _ = writeln!(s, "# Linegate release audit: {verdict}\n");
+    d.open(Part::Verdict, &mut s);
     let _ = writeln!(s, "## Verdict\n");
     let units: usize = r.sets.iter().map(|t| t.units).sum();
     let failed: Vec<_> = r.gates.iter().filter(|g| !g.passed).collect();
@@ -155,6 +169,7 @@ pub fn markdown(
             true,
         );
     }
+    d.open(Part::Provenance, &mut s);
     let _ = writeln!(s, "\n## Provenance\n");
     let _ = writeln!(
         s,
@@ -238,11 +253,14 @@ pub fn markdown(
     }
     // Only a model that has them: an older model's report is unchanged.
     if let Some(op) = &r.operating_point {
+        d.open(Part::OperatingPoint, &mut s);
         super::operating::operating_point_markdown(&mut s, op, r.recheck_band);
     }
     if let Some(c) = &r.c_choice {
+        d.open(Part::CChoice, &mut s);
         super::operating::c_choice_markdown(&mut s, c);
     }
+    d.open(Part::Decisions, &mut s);
     let _ = writeln!(
         s,
         "\n## Decisions per log (device kernel against the labels)\n\n| log | units | false GO | false NO-GO | RECHECK | FAULT | float correct | fixed correct | flips | min fixed margin (LSB) | within bound | rows skipped |\n|---|---|---|---|---|---|---|---|---|---|---|---|"
@@ -312,6 +330,7 @@ pub fn markdown(
             if g.passed { "pass" } else { "FAIL" }
         );
     }
+    d.open(Part::Margins, &mut s);
     let _ = writeln!(
         s,
         "\n## Margin and the rounding bound (LSB of the accumulator)\n"
@@ -372,6 +391,7 @@ pub fn markdown(
             false,
         );
     }
+    d.open(Part::Channels, &mut s);
     let _ = writeln!(
         s,
         "\n## Channels\n\n| channel | unit | weight | smallest margin along this channel |\n|---|---|---|---|"
@@ -385,6 +405,7 @@ pub fn markdown(
         );
     }
     if !r.features.is_empty() {
+        d.open(Part::SignalFeatures, &mut s);
         let _ = writeln!(
             s,
             "\n## Signal features\n\nEach feature is an integer the device computes from its signal's window with the same code as this audit (shared-model). Its range is proved from the declared sample range and window; that range is the channel's valid raw range, so the rounding bound and noise analysis above cover the feature as a reading. cᵢ = sᵢ − offset; A = the largest \\|cᵢ\\|.\n\n| channel | signal | feature | window | valid samples | offset | A | proved range | noise per sample | noise bound (counts) | noise bound | instructions M0 / M3 |\n|---|---|---|---|---|---|---|---|---|---|---|---|"
@@ -424,6 +445,7 @@ pub fn markdown(
         );
     }
     if let Some(t) = &r.tolerance {
+        d.open(Part::Tolerance, &mut s);
         let _ = writeln!(
             s,
             "\n## Sensor tolerance\n\nDeclared noise moves the score by at most {:.1} LSB. Units that could change verdict: {}. Suggested RECHECK half-band: {:.6} (float score units).\n",
@@ -449,6 +471,7 @@ pub fn markdown(
                 c.unit
             );
         }
+        d.open(Part::UnitsAtRisk, &mut s);
         let _ = writeln!(s, "\n## Units at risk from sensor noise");
         if t.units_at_risk.is_empty() {
             let _ = writeln!(
@@ -470,6 +493,7 @@ pub fn markdown(
             );
         }
     }
+    d.open(Part::Tightest, &mut s);
     unit_table(
         &mut s,
         "## Units closest to the boundary",
@@ -479,6 +503,7 @@ pub fn markdown(
         false,
     );
     if let Some((rows, best)) = sweep {
+        d.open(Part::Sweep, &mut s);
         let _ = writeln!(
             s,
             "\n## Word-length sweep\n\n| weights | inputs | accumulator (proved bits) | kernel arithmetic | instructions M0 / M3 | min margin (LSB) | margin / bound | flips | guaranteed | passed | blob bytes |\n|---|---|---|---|---|---|---|---|---|---|---|"
@@ -522,6 +547,7 @@ pub fn markdown(
             );
         }
     }
+    d.open(Part::Method, &mut s);
     let _ = writeln!(
         s,
         "\n## Method (every figure above from these inputs)\n\n| step | formula | inputs in this audit |\n|---|---|---|"
@@ -619,12 +645,16 @@ pub fn markdown(
             r.search_changes.join("; ")
         }
     );
+    if !r.settings.is_empty() {
+        d.open(Part::Settings, &mut s);
+    }
     super::settings::settings_markdown(&mut s, r);
     let _ = writeln!(
         s,
         "\n*A go/no-go classifier is not by itself a safety function. This audit shows that rounding does not change the validated decisions; it does not validate the decisions.*"
     );
-    s
+    d.close(&mut s);
+    d
 }
 
 #[cfg(test)]

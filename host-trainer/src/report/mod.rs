@@ -1,7 +1,9 @@
-//! Reports of an audit: [`markdown`], a self-contained [`html`] page with SVG charts
+//! Reports of an audit: its [`document`] of typed sections, [`markdown`] (the sections in
+//! order), a self-contained [`html`] page with SVG charts placed by section
 //! ([`margin_bins_svg`], [`rounding_svg`], [`bars_svg`], [`sweep_svg`],
 //! [`trade_off_svg`]), and [`json`] for machines.
 
+mod document;
 mod html;
 mod json;
 mod markdown;
@@ -10,7 +12,8 @@ mod operating;
 mod settings;
 mod svg;
 
+pub use document::{Document, Part, Section};
 pub use html::html;
 pub use json::json;
-pub use markdown::markdown;
+pub use markdown::{document, markdown};
 pub use svg::{bars_svg, margin_bins_svg, rounding_svg, sweep_svg, trade_off_svg};

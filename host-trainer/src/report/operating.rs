@@ -154,7 +154,9 @@ pub(super) fn c_choice_markdown(s: &mut String, c: &CChoice) {
 mod tests {
     use super::*;
     use crate::ingest::dataset::Dataset;
-    use crate::release::audit::{AuditConfig, AuditReport, release};
+    use crate::release::applying::release;
+    use crate::release::audit_report::AuditReport;
+    use crate::release::gates::AuditConfig;
     use crate::release::quantise::QuantConfig;
     use crate::train::c_choice::CRow;
     use crate::train::eval::{HeldOut, TrainerKind};
@@ -323,7 +325,7 @@ mod tests {
         // The same report serialises to the same bytes.
         assert_eq!(crate::report::json(&r, None), crate::report::json(&r, None));
         // The chart sits in the operating point's section of the page.
-        let page = crate::report::html(&fm, &r, None, &md);
+        let page = crate::report::html(&fm, &r, None, &crate::report::document(&fm, &r, None));
         let chart = page.find("id=\"trade-off-chart\"").unwrap();
         assert!(page.find("<h2>Operating point</h2>").unwrap() < chart);
         assert!(chart < page.find("<h2>How C was chosen</h2>").unwrap());
@@ -375,7 +377,7 @@ mod tests {
         }
         let json = crate::report::json(&r, None);
         assert!(!json.contains("operating_point") && !json.contains("c_choice"));
-        let page = crate::report::html(&fm, &r, None, &md);
+        let page = crate::report::html(&fm, &r, None, &crate::report::document(&fm, &r, None));
         assert!(!page.contains("trade-off"));
     }
 

@@ -3,7 +3,7 @@
 
 use std::fmt::Write as _;
 
-use crate::release::audit::AuditReport;
+use crate::release::audit_report::AuditReport;
 
 /// The split and the files of logs of several files, as lines of the provenance list.
 pub(super) fn split_and_files(s: &mut String, r: &AuditReport) {

@@ -5,11 +5,10 @@ use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use super::numbers::score;
-use crate::release::audit::{
-    AuditReport, MARGIN_BINS, ROUNDING_BINS, SetSummary, SweepRow, margin_bin_edges,
-    rounding_bin_edges,
-};
+use crate::release::audit_report::{AuditReport, SetSummary};
+use crate::release::bound::{MARGIN_BINS, ROUNDING_BINS, margin_bin_edges, rounding_bin_edges};
 use crate::release::point_record::OperatingPointRecord;
+use crate::release::sweep::SweepRow;
 
 /// Colours of the logs in the margin histogram, in the report's order (train first).
 const SET_COLOURS: [RGBColor; 4] = [

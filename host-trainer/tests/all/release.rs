@@ -6,7 +6,9 @@ use std::path::Path;
 
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
-use host_trainer::release::audit::{self, Apply, AuditConfig, AuditReport, Limit};
+use host_trainer::release::applying::{self, Apply};
+use host_trainer::release::audit_report::AuditReport;
+use host_trainer::release::gates::{self, AuditConfig, Limit};
 use host_trainer::release::quantise::QuantConfig;
 use host_trainer::train::float_model::FloatModel;
 use host_trainer::workflow;
@@ -26,7 +28,7 @@ fn noise(fm: &FloatModel) -> Vec<Option<f64>> {
     fm.channels.iter().map(|c| c.noise).collect()
 }
 
-fn gate<'a>(r: &'a AuditReport, gate: &str, log: &str) -> &'a audit::Gate {
+fn gate<'a>(r: &'a AuditReport, gate: &str, log: &str) -> &'a gates::Gate {
     r.gates
         .iter()
         .find(|g| g.gate == gate && g.log == log)
@@ -41,7 +43,7 @@ fn a_threshold_that_passes_nogo_units_fails_the_false_go_gate() {
     // agrees with the float model (no flip) but not with the labels.
     fm.threshold = -1e308;
     let others = [("holdout", &holdout)];
-    let (_, r) = audit::release(
+    let (_, r) = applying::release(
         &fm,
         &train,
         &others,
@@ -86,7 +88,8 @@ fn a_threshold_that_passes_nogo_units_fails_the_false_go_gate() {
         max_false_go: Limit::Rate(1.0),
         ..AuditConfig::default()
     };
-    let (_, r2) = audit::release(&fm, &train, &others, QuantConfig::default(), &[], lax).unwrap();
+    let (_, r2) =
+        applying::release(&fm, &train, &others, QuantConfig::default(), &[], lax).unwrap();
     assert!(gate(&r2, "false GO", "train").passed);
 }
 
@@ -99,7 +102,7 @@ fn declared_noise_gates_and_the_suggested_band_passes_its_own_gate() {
     let cfg = AuditConfig::default();
     let qc = QuantConfig::default();
     // Without a band: units whose GO/NO-GO the noise could swap fail the noise gate.
-    let (_, r0) = audit::release(&fm, &train, &others, qc, &n, cfg).unwrap();
+    let (_, r0) = applying::release(&fm, &train, &others, qc, &n, cfg).unwrap();
     let t = r0.tolerance.as_ref().expect("the demo declares noise");
     let unsafe0: usize = r0.sets.iter().map(|s| s.noise_unsafe).sum();
     assert!(unsafe0 > 0);
@@ -111,7 +114,7 @@ fn declared_noise_gates_and_the_suggested_band_passes_its_own_gate() {
         ..cfg
     };
     assert!(
-        audit::release(&fm, &train, &others, qc, &n, off)
+        applying::release(&fm, &train, &others, qc, &n, off)
             .unwrap()
             .1
             .passed
@@ -122,7 +125,7 @@ fn declared_noise_gates_and_the_suggested_band_passes_its_own_gate() {
         recheck_band: t.suggested_band,
         ..qc
     };
-    let (_, r1) = audit::release(&fm, &train, &others, banded, &n, cfg).unwrap();
+    let (_, r1) = applying::release(&fm, &train, &others, banded, &n, cfg).unwrap();
     for log in ["train", "holdout"] {
         assert!(gate(&r1, "noise", log).passed, "{:?}", r1.gates);
         assert!(gate(&r1, "false GO", log).passed && gate(&r1, "false NO-GO", log).passed);
@@ -134,7 +137,7 @@ fn declared_noise_gates_and_the_suggested_band_passes_its_own_gate() {
     );
     assert!(r1.passed, "{:?}", r1.reasons);
     // `--apply-suggested-band` does the same and says so.
-    let done = audit::release_applying(
+    let done = applying::release_applying(
         &fm,
         &train,
         &others,
@@ -162,7 +165,7 @@ fn a_recheck_is_neither_right_nor_wrong_but_is_capped() {
         recheck_band: 1e3,
         ..QuantConfig::default()
     };
-    let (_, r) = audit::release(&fm, &train, &[], wide, &[], AuditConfig::default()).unwrap();
+    let (_, r) = applying::release(&fm, &train, &[], wide, &[], AuditConfig::default()).unwrap();
     let s = &r.sets[0];
     assert_eq!(s.recheck, train.len());
     assert_eq!((s.false_go, s.false_nogo, s.flips), (0, 0, 0));
@@ -171,7 +174,7 @@ fn a_recheck_is_neither_right_nor_wrong_but_is_capped() {
         max_recheck: Limit::Rate(1.0),
         ..AuditConfig::default()
     };
-    let (_, r) = audit::release(&fm, &train, &[], wide, &[], lax).unwrap();
+    let (_, r) = applying::release(&fm, &train, &[], wide, &[], lax).unwrap();
     assert!(gate(&r, "RECHECK", "train").passed);
 }
 
@@ -181,7 +184,7 @@ fn every_rate_carries_its_exact_bounds_and_a_bound_gate_says_how_many_units_it_n
     let (fm, train, holdout) = demo(dir.path());
     let others = [("holdout", &holdout)];
     let run = |cfg| {
-        audit::release(&fm, &train, &others, QuantConfig::default(), &[], cfg)
+        applying::release(&fm, &train, &others, QuantConfig::default(), &[], cfg)
             .unwrap()
             .1
     };

@@ -18,7 +18,7 @@ use host_trainer::ingest::scaling::{ChannelScale, ChannelSheet};
 use host_trainer::ingest::{ScaleFrom, read};
 use host_trainer::ingest::SkipReport;
 use host_trainer::release::quantise::{QuantConfig, quantise};
-use host_trainer::release::{audit, replay};
+use host_trainer::release::{blob_release, replay};
 use host_trainer::train::eval::TrainerKind;
 use host_trainer::train::float_model::FloatModel;
 use host_trainer::workflow::{self, CvTrainers, TrainRequest};
@@ -86,7 +86,7 @@ fn fixed() -> &'static Fixed {
             .unwrap()
             .model;
         let q = quantise(&model, Some(&ds), QuantConfig::default()).unwrap();
-        let blob = audit::released_blob(&q, true, None);
+        let blob = blob_release::released_blob(&q, true, None);
         let device = shared_model::blob::decode_signals(&blob).unwrap();
         Fixed {
             sheet,

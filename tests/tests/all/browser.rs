@@ -112,7 +112,8 @@ fn the_demo_audit_page_renders_in_a_browser() {
 #[test]
 fn a_failed_audit_page_looks_failed_and_a_passed_one_does_not() {
     use host_trainer::ingest::LogOptions;
-    use host_trainer::release::audit::{self, AuditConfig};
+    use host_trainer::release::applying;
+    use host_trainer::release::gates::AuditConfig;
     use host_trainer::release::quantise::QuantConfig;
     use host_trainer::train::float_model::FloatModel;
     let Some(bin) = chromium() else {
@@ -143,11 +144,11 @@ fn a_failed_audit_page_looks_failed_and_a_passed_one_does_not() {
             false,
         ),
     ] {
-        let (_, r) = audit::release(&fm, &train, &[], QuantConfig::default(), &[], cfg).unwrap();
+        let (_, r) = applying::release(&fm, &train, &[], QuantConfig::default(), &[], cfg).unwrap();
         assert_eq!(r.passed, passed);
-        let md = host_trainer::report::markdown(&fm, &r, None);
+        let doc = host_trainer::report::document(&fm, &r, None);
         let page = dir.path().join(format!("{passed}.html"));
-        std::fs::write(&page, host_trainer::report::html(&fm, &r, None, &md)).unwrap();
+        std::fs::write(&page, host_trainer::report::html(&fm, &r, None, &doc)).unwrap();
         let dom = headless(bin, &page, &["--dump-dom".into()]);
         assert!(dom.status.success(), "chromium --dump-dom failed");
         let text = String::from_utf8_lossy(&dom.stdout);
@@ -214,7 +215,8 @@ const LABEL_PROBE: &str = r#"<script>
 #[test]
 fn a_model_with_an_operating_point_shows_its_trade_off_chart() {
     use host_trainer::ingest::LogOptions;
-    use host_trainer::release::audit::{self, AuditConfig};
+    use host_trainer::release::applying;
+    use host_trainer::release::gates::AuditConfig;
     use host_trainer::release::quantise::QuantConfig;
     use host_trainer::train::eval::HeldOut;
     use host_trainer::train::float_model::FloatModel;
@@ -259,9 +261,9 @@ fn a_model_with_an_operating_point_shows_its_trade_off_chart() {
         ..QuantConfig::default()
     };
     let fm = fm.with_operating_point(op);
-    let (_, r) = audit::release(&fm, &train, &[], qc, &[], AuditConfig::default()).unwrap();
-    let md = host_trainer::report::markdown(&fm, &r, None);
-    let html = host_trainer::report::html(&fm, &r, None, &md);
+    let (_, r) = applying::release(&fm, &train, &[], qc, &[], AuditConfig::default()).unwrap();
+    let doc = host_trainer::report::document(&fm, &r, None);
+    let html = host_trainer::report::html(&fm, &r, None, &doc);
     let page = dir.path().join("operating-point.html");
     std::fs::write(
         &page,

@@ -12,19 +12,20 @@ fn demo_outputs_decode_pass_audit_and_are_byte_identical_across_runs() {
     // A second run into the same folder (provenance names the folder, and the model file's
     // content digest covers it) must give the same bytes.
     host_trainer::demo::run(&a, true).unwrap();
-    assert!(s.check_train.separable, "training log must be separable");
-    assert!(
-        !s.check_drift.separable,
-        "second-shift log must not be separable"
+    let (check_train, drift) = (
+        &s.readings.train.check,
+        s.readings.checked.as_ref().unwrap(),
     );
-    assert!(!s.check_drift.conflict.is_empty());
+    assert!(check_train.separable, "training log must be separable");
+    assert!(!drift.separable, "second-shift log must not be separable");
+    assert!(!drift.conflict.is_empty());
     assert!(
-        s.audit.passed && s.audit.guaranteed,
+        s.readings.audit.passed && s.readings.audit.guaranteed,
         "{:?}",
-        s.audit.reasons
+        s.readings.audit.reasons
     );
-    let bound = s.check_train.novikoff_bound.unwrap();
-    assert!(s.perceptron_updates as f64 <= bound);
+    let bound = check_train.novikoff_bound.unwrap();
+    assert!(check_train.perceptron_updates.unwrap() as f64 <= bound);
     let blob = std::fs::read(a.join("model.lgmb")).unwrap();
     let m = shared_model::blob::decode(&blob).unwrap();
     assert_eq!(m.model().audit, shared_model::AuditMark::Passed);
@@ -107,10 +108,10 @@ fn readme_commands_are_the_ones_ci_runs() {
 fn the_margin_histogram_counts_every_decided_unit() {
     let dir = tempfile::tempdir().unwrap();
     let s = host_trainer::demo::run(&dir.path().join("d"), false).unwrap();
-    for set in &s.audit.sets {
+    for set in &s.readings.audit.sets {
         assert_eq!(
             set.margin_histogram.len(),
-            host_trainer::release::audit::MARGIN_BINS
+            host_trainer::release::bound::MARGIN_BINS
         );
         let counted: u64 = set.margin_histogram.iter().sum();
         assert_eq!(

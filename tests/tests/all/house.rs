@@ -278,7 +278,7 @@ fn host_trainer_folders_follow_the_data_flow() {
         &["train"],
         &["release"],
         &["report"],
-        &["synth", "workflow"],
+        &["synth", "workflow", "release_flow"],
         &["demo"],
     ];
     let layer = |top: &str| layers.iter().position(|l| l.contains(&top));

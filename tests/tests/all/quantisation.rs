@@ -2,8 +2,11 @@
 //! (num-rational), brute force over readings for the rounding bound, and the gate.
 
 use host_trainer::ingest::dataset::Dataset;
-use host_trainer::release::audit::{AuditConfig, audit, error_bound, sweep};
+use host_trainer::release::audit::audit;
+use host_trainer::release::bound::error_bound;
+use host_trainer::release::gates::AuditConfig;
 use host_trainer::release::quantise::{QuantConfig, Quantised, quantise};
+use host_trainer::release::sweep::sweep;
 use host_trainer::train::eval::TrainerKind;
 use host_trainer::workflow::{TrainRequest, train_model};
 use num_rational::Ratio;
@@ -292,7 +295,7 @@ fn audit_mark_survives_packing() {
     let pts: Vec<Vec<f64>> = [0.5, 0.9, -0.5, -0.9].iter().map(|&v| vec![v]).collect();
     let (fm, ds) = trained(&pts, &[1, 1, -1, -1]);
     let q = quantise(&fm, Some(&ds), QuantConfig::default()).unwrap();
-    let marked = host_trainer::release::audit::mark(&q.model, AuditMark::Overridden);
+    let marked = host_trainer::release::blob_release::mark(&q.model, AuditMark::Overridden);
     let bytes = host_trainer::release::pack::blob_bytes(&marked);
     assert_eq!(
         shared_model::blob::decode(&bytes).unwrap().model().audit,

@@ -10,7 +10,9 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use host_trainer::ingest::LogOptions;
-use host_trainer::release::audit::{self, Apply, AuditConfig};
+use host_trainer::release::applying::{self, Apply};
+use host_trainer::release::blob_release;
+use host_trainer::release::gates::AuditConfig;
 use host_trainer::release::quantise::QuantConfig;
 use host_trainer::train::eval::TrainerKind;
 use host_trainer::workflow::{self, TrainRequest};
@@ -70,7 +72,7 @@ pub(crate) fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[
     let named: Vec<(&str, &host_trainer::ingest::dataset::Dataset)> =
         loaded.iter().map(|d| ("holdout", d)).collect();
     let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
-    let done = audit::release_applying(
+    let done = applying::release_applying(
         &fm,
         &ds,
         &named,
@@ -90,7 +92,7 @@ pub(crate) fn release(dir: &Path, train: &Path, sheet: Option<&Path>, others: &[
         serde_json::to_string_pretty(r).unwrap(),
     )
     .unwrap();
-    let blob = audit::released_blob(&done.q, r.passed, None);
+    let blob = blob_release::released_blob(&done.q, r.passed, None);
     std::fs::write(dir.join("model.lgmb"), blob).unwrap();
 }
 
