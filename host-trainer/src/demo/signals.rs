@@ -246,15 +246,16 @@ pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, De
         },
     )?;
     let blob = audit::released_blob(&done.q, done.report.passed, None);
-    let model = shared_model::blob::decode_signals(&blob).map_err(|e| OutputError::Io {
-        path: out.join("signal-model.lgmb"),
-        source: std::io::Error::other(e.to_string()),
-    })?;
+    let model: shared_model::CheckedModel<shared_model::SignalSection> =
+        shared_model::blob::decode(&blob).map_err(|e| OutputError::Io {
+            path: out.join("signal-model.lgmb"),
+            source: std::io::Error::other(e.to_string()),
+        })?;
     // The field log replayed as `linegate replay` does: the device's lines, and its vectors.
-    let mut replay = crate::release::replay::model_line(model.model(), &blob);
+    let mut replay = crate::release::replay::model_line(&model, &blob);
     let mut vectors = replay.clone();
     let (mut units, mut faults) = (0usize, 0usize);
-    crate::release::replay::replay_signal_log(
+    crate::release::replay::replay_log(
         &paths[2],
         &LogOptions {
             label_optional: true,
@@ -267,11 +268,7 @@ pub fn run(tmp: &Path, out: &Path, set: &mut OutputSet) -> Result<SignalDemo, De
             faults += usize::from(line.contains("FAULT"));
             units += 1;
             let _ = writeln!(replay, "{line}");
-            let _ = writeln!(
-                vectors,
-                "{}",
-                crate::release::replay::signal_vector(raw, windows)
-            );
+            let _ = writeln!(vectors, "{}", crate::release::replay::vector(raw, windows));
         },
     )?;
     let md = crate::report::markdown(fm, &done.report, None);

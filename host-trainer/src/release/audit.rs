@@ -1015,8 +1015,8 @@ pub fn released_blob(
     // `quantise` rules out), the blob would be empty and refused everywhere, not a blob
     // whose features a station would take for readings.
     match (q.with_signals(marked), signer) {
-        (Some(m), Some(k)) => crate::release::sign::signed_signal_blob(&m, k),
-        (Some(m), None) => crate::release::pack::signal_blob_bytes(&m),
+        (Some(m), Some(k)) => crate::release::sign::signed_blob(&m, k),
+        (Some(m), None) => crate::release::pack::blob_bytes(&m),
         (None, _) => Vec::new(),
     }
 }

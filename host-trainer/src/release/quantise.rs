@@ -19,9 +19,7 @@
 
 use rayon::prelude::*;
 use shared_model::features::SignalSection;
-use shared_model::{
-    AuditMark, ChannelSpec, CheckedModel, CheckedSignalModel, FixedModel, ModelError,
-};
+use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
 
 use crate::ingest::dataset::{Dataset, RawForm};
 use crate::train::float_model::FloatModel;
@@ -106,11 +104,11 @@ impl Quantised {
     /// signal blob; `None` for a model of readings, or if the pair were refused, which
     /// `quantise` rules out: it validated the same section against the same channels, and a
     /// mark or a move of the weights changes no channel's range.
-    pub fn with_signals(&self, model: CheckedModel) -> Option<CheckedSignalModel> {
+    pub fn with_signals(&self, model: CheckedModel) -> Option<CheckedModel<SignalSection>> {
         if self.signals.is_empty() {
             return None;
         }
-        CheckedSignalModel::new(model, self.signals.clone()).ok()
+        CheckedModel::with_inputs(model.into_inner(), self.signals.clone()).ok()
     }
 }
 
@@ -220,7 +218,7 @@ pub fn quantise(
     let plain = CheckedModel::new(model.clone())?;
     let signals = fm.signal_section();
     if !signals.is_empty() {
-        CheckedSignalModel::new(plain.clone(), signals.clone())?;
+        CheckedModel::with_inputs(model.clone(), signals.clone())?;
     }
     let mut q = Quantised {
         signals,
