@@ -48,12 +48,13 @@ impl<I: Inputs> Classifier<I> {
     #[inline(always)]
     pub(crate) fn load(region: &[u8], key: Option<&ReleaseKey>) -> Result<Self, DecodeError> {
         let bytes = blob_in(region, key)?;
-        let model = blob::decode(bytes)?;
-        // decode proved the length, so the id is there; 0 is never reached.
+        // decode proves the length, so the id is there; 0 is never reached.
         let blob_id = blob::blob_id(bytes).unwrap_or(0);
         let key_id = blob::signature(bytes).map(|s| s.key_id);
+        // The model decoded straight into its place: a named temporary would be one more
+        // copy of it on the start-up stack.
         Ok(Self {
-            model,
+            model: blob::decode(bytes)?,
             blob_id,
             key_id,
         })

@@ -200,55 +200,79 @@ pub trait Gather<S: SensorSource>: Inputs {
 }
 
 impl<S: SensorSource> Gather<S> for Readings {
-    /// One reading per channel, then the kernel.
     #[inline]
     fn unit(
         model: &CheckedModel,
         sensor: &mut S,
         _samples: &mut [i32],
     ) -> Result<Decision, StationFault<S::Error>> {
-        let mut buf: Vec<i32, MAX_CHANNELS> = Vec::new();
-        // channel_count <= MAX_CHANNELS by validation, so the resize cannot fail.
-        let _ = buf.resize(model.channel_count(), 0);
-        sensor.read(&mut buf).map_err(StationFault::Sensor)?;
-        model.classify(&buf).map_err(StationFault::Reading)
+        readings_unit(model, sensor)
     }
+}
+
+/// A unit of a model without signals: one reading per channel, then the kernel.
+#[inline]
+fn readings_unit<I: Inputs, S: SensorSource>(
+    model: &CheckedModel<I>,
+    sensor: &mut S,
+) -> Result<Decision, StationFault<S::Error>> {
+    let mut buf: Vec<i32, MAX_CHANNELS> = Vec::new();
+    // channel_count <= MAX_CHANNELS by validation, so the resize cannot fail.
+    let _ = buf.resize(model.channel_count(), 0);
+    sensor.read(&mut buf).map_err(StationFault::Sensor)?;
+    model.classify(&buf).map_err(StationFault::Reading)
 }
 
 impl<S: WindowSource> Gather<S> for SignalSection {
     /// The readings, then each window carved from `samples` in turn, then the kernel's
-    /// [`CheckedModel::classify_windows`].
+    /// [`CheckedModel::classify_windows`]; a model without signals (a version-1 or 2 blob)
+    /// as a model of readings, which takes less stack for the same decision.
     fn unit(
         model: &CheckedModel<SignalSection>,
         sensor: &mut S,
         samples: &mut [i32],
     ) -> Result<Decision, StationFault<S::Error>> {
-        let mut readings: Vec<i32, MAX_CHANNELS> = Vec::new();
-        // reading_count <= channel count <= MAX_CHANNELS by validation.
-        let _ = readings.resize(model.reading_count(), 0);
-        sensor.read(&mut readings).map_err(StationFault::Sensor)?;
-        let signals = &model.signals().signals;
-        let mut windows: Vec<&[i32], { shared_model::limits::MAX_SIGNALS }> = Vec::new();
-        let mut rest = samples;
-        for (i, spec) in signals.iter().enumerate() {
-            let Some((window, tail)) = rest.split_at_mut_checked(usize::from(spec.window)) else {
-                return Err(StationFault::Window(SignalFault::Windows {
-                    expected: u8::try_from(signals.len()).unwrap_or(u8::MAX),
-                    got: i,
-                }));
-            };
-            sensor.fill(i, window).map_err(StationFault::Sensor)?;
-            // At most MAX_SIGNALS windows: the push cannot fail.
-            let _ = windows.push(window);
-            rest = tail;
+        if model.signal_count() == 0 {
+            return readings_unit(model, sensor);
         }
-        model
-            .classify_windows(&readings, &windows)
-            .map_err(|f| match f {
-                SignalFault::Reading(r) => StationFault::Reading(r),
-                other => StationFault::Window(other),
-            })
+        windows_unit(model, sensor, samples)
     }
+}
+
+/// A unit of a model with signals: the readings, then each window carved from `samples`
+/// in turn, then the kernel. Out of line, so that its frame (the readings, the windows'
+/// slices, the feature values) is not reserved when a model without signals steps.
+#[inline(never)]
+fn windows_unit<S: WindowSource>(
+    model: &CheckedModel<SignalSection>,
+    sensor: &mut S,
+    samples: &mut [i32],
+) -> Result<Decision, StationFault<S::Error>> {
+    let mut readings: Vec<i32, MAX_CHANNELS> = Vec::new();
+    // reading_count <= channel count <= MAX_CHANNELS by validation.
+    let _ = readings.resize(model.reading_count(), 0);
+    sensor.read(&mut readings).map_err(StationFault::Sensor)?;
+    let signals = &model.signals().signals;
+    let mut windows: Vec<&[i32], { shared_model::limits::MAX_SIGNALS }> = Vec::new();
+    let mut rest = samples;
+    for (i, spec) in signals.iter().enumerate() {
+        let Some((window, tail)) = rest.split_at_mut_checked(usize::from(spec.window)) else {
+            return Err(StationFault::Window(SignalFault::Windows {
+                expected: u8::try_from(signals.len()).unwrap_or(u8::MAX),
+                got: i,
+            }));
+        };
+        sensor.fill(i, window).map_err(StationFault::Sensor)?;
+        // At most MAX_SIGNALS windows: the push cannot fail.
+        let _ = windows.push(window);
+        rest = tail;
+    }
+    model
+        .classify_windows(&readings, &windows)
+        .map_err(|f| match f {
+            SignalFault::Reading(r) => StationFault::Reading(r),
+            other => StationFault::Window(other),
+        })
 }
 
 /// Shows a step's outcome: the verdict, or NO-GO for a fault, and whether the fault is new.

@@ -190,18 +190,17 @@ pub fn decode<I: Inputs>(bytes: &[u8]) -> Result<CheckedModel<I>, DecodeError> {
     }
     let payload = checked_payload(bytes, header)?;
     let (model, mut rest) = take_model(payload)?;
-    // `I::WINDOWS` first: for readings the section's code and stack drop out.
-    let inputs = if I::WINDOWS && header.has_signals() {
-        let mut signals = SignalSection::default();
-        rest = take_signals(rest, &mut signals)?;
+    let mut inputs = I::default();
+    // `I::WINDOWS` first: for readings the section's code drops out. The section is read
+    // in place: a section moved through an `Option` would be one more copy on the stack.
+    if I::WINDOWS && header.has_signals() {
+        let section = inputs.section_mut().ok_or(DecodeError::Signals)?;
+        rest = take_signals(rest, section)?;
         // A model without signals is written as version 1: one layout per model.
-        if signals.is_empty() {
+        if section.is_empty() {
             return Err(DecodeError::InconsistentLengths);
         }
-        I::from_section(signals).ok_or(DecodeError::Signals)?
-    } else {
-        I::default()
-    };
+    }
     if !rest.is_empty() || model.channels.len() != usize::from(header.channel_count) {
         return Err(DecodeError::InconsistentLengths);
     }

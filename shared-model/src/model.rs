@@ -220,8 +220,8 @@ pub trait Inputs: Clone + core::fmt::Debug + PartialEq + Eq + Default + sealed::
     /// The signal section, if this kind has one and it is not empty.
     fn section(&self) -> Option<&SignalSection>;
 
-    /// The kind for a section read from a blob; `None` where it cannot hold one.
-    fn from_section(section: SignalSection) -> Option<Self>;
+    /// The section to read a blob's into, in place; `None` where this kind has none.
+    fn section_mut(&mut self) -> Option<&mut SignalSection>;
 
     /// Checks the inputs against the model's channels (part of [`CheckedModel::with_inputs`]).
     ///
@@ -250,8 +250,8 @@ impl Inputs for Readings {
     }
 
     #[inline(always)]
-    fn from_section(section: SignalSection) -> Option<Self> {
-        section.is_empty().then_some(Readings)
+    fn section_mut(&mut self) -> Option<&mut SignalSection> {
+        None
     }
 
     #[inline(always)]
@@ -269,8 +269,8 @@ impl Inputs for SignalSection {
     }
 
     #[inline(always)]
-    fn from_section(section: SignalSection) -> Option<Self> {
-        Some(section)
+    fn section_mut(&mut self) -> Option<&mut SignalSection> {
+        Some(self)
     }
 
     /// One source per channel, every feature's signal present, and every feature proved

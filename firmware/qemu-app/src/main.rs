@@ -122,6 +122,13 @@ fn feature_costs() {
 #[entry]
 fn main() -> ! {
     feature_costs();
+    run()
+}
+
+/// The station over the linked-in units. Its own frame, not `main`'s: the feature costs'
+/// 4 KiB window must not stand on the stack beside the station (16 KiB on the M0 board).
+#[inline(never)]
+fn run() -> ! {
     let lines = match GoNoGoLines::new(
         board::Line(&board::GO),
         board::Line(&board::NOGO),
@@ -145,13 +152,13 @@ fn main() -> ! {
     // application needs.
     let painted = board::paint_stack(board::stack_pointer());
     let mut samples = [0i32; SAMPLES];
-    let mut station = match key {
-        None => Station::with_windows(board::model_region(), None, &mut samples, rows, lines),
-        Some(Some(k)) => {
-            Station::with_windows(board::model_region(), Some(k), &mut samples, rows, lines)
-        }
-        Some(None) => Station::with_windows(&[], None, &mut samples, rows, lines),
+    // One construction site: each would hold its own station in main's frame.
+    let (region, key) = match key {
+        None => (board::model_region(), None),
+        Some(Some(k)) => (board::model_region(), Some(k)),
+        Some(None) => (&[][..], None),
     };
+    let mut station = Station::with_windows(region, key, &mut samples, rows, lines);
     let startup = board::stack_used(painted, board::stack_start());
     match station.classifier() {
         Ok(c) => {
