@@ -61,14 +61,7 @@ pub struct Station<'w, S: SensorSource, G, N, R, I: Inputs = Readings> {
     key: Option<ReleaseKey>,
 }
 
-impl<S, G, N, R, E> Station<'static, S, G, N, R, Readings>
-where
-    S: SensorSource,
-    S::Error: Copy + PartialEq,
-    G: OutputPin<Error = E>,
-    N: OutputPin<Error = E>,
-    R: OutputPin<Error = E>,
-{
+impl<S: SensorSource, G, N, R> Station<'static, S, G, N, R, Readings> {
     /// A station for a model of readings: validates the blob in `flash` (format version 1
     /// or 2); a bad blob, or one whose model needs windows, leaves the station holding NO-GO.
     ///
@@ -95,14 +88,7 @@ where
     }
 }
 
-impl<'w, S, G, N, R, E> Station<'w, S, G, N, R, SignalSection>
-where
-    S: WindowSource,
-    S::Error: Copy + PartialEq,
-    G: OutputPin<Error = E>,
-    N: OutputPin<Error = E>,
-    R: OutputPin<Error = E>,
-{
+impl<'w, S: WindowSource, G, N, R> Station<'w, S, G, N, R, SignalSection> {
     /// A station for a model with signal features: validates the blob in `flash` (any
     /// format version; one without signals has every channel a reading), its signature
     /// first when `key` is given. Each step reads the reading channels and fills one
@@ -122,15 +108,7 @@ where
     }
 }
 
-impl<'w, S, G, N, R, E, I> Station<'w, S, G, N, R, I>
-where
-    S: SensorSource,
-    S::Error: Copy + PartialEq,
-    G: OutputPin<Error = E>,
-    N: OutputPin<Error = E>,
-    R: OutputPin<Error = E>,
-    I: Gather<S>,
-{
+impl<'w, S: SensorSource, G, N, R, I: Inputs> Station<'w, S, G, N, R, I> {
     /// The one constructor behind the public ones.
     #[inline(always)]
     fn load(
@@ -149,7 +127,17 @@ where
             key,
         }
     }
+}
 
+impl<'w, S, G, N, R, E, I> Station<'w, S, G, N, R, I>
+where
+    S: SensorSource,
+    S::Error: Copy + PartialEq,
+    G: OutputPin<Error = E>,
+    N: OutputPin<Error = E>,
+    R: OutputPin<Error = E>,
+    I: Gather<S>,
+{
     /// Replaces the model (e.g. after the flash region was rewritten). A bad
     /// blob drops the old model too: the station must not keep running a model
     /// its flash no longer holds.

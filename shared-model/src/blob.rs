@@ -781,20 +781,22 @@ mod tests {
         // Pinned layout of version 3: the example model (64-bit accumulator) with channel
         // `a` the band magnitude of a 64-sample signal; any change is a format change.
         let b = encoded_signals(&with_signal());
-        let want: &[u8] = &[
+        // The model's 53 bytes are version 1's, pinned by `golden_bytes_of_the_example_model`
+        // (here with a 64-bit accumulator); then the section.
+        let v1 = encoded(&CheckedModel::new(with_signal().into_inner()).unwrap());
+        let model = &v1[HEADER_LEN..v1.len() - CRC_LEN];
+        assert_eq!(
+            (model.len(), model[20]),
+            (53, 64),
+            "acc bits at payload byte 20"
+        );
+        let header: &[u8] = &[
             0x4C, 0x47, 0x4D, 0x42, // magic "LGMB"
             0x03, 0x00, // version 3
             0x02, // channels
             0x42, 0x00, // payload length 66: the model's 53 bytes, then the section's 13
-            0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0,    // model id
-            0x00, // audit: NotAudited
-            16, 8, 7, 64, // input bits, weight bits, weight frac, acc bits
-            0x00, 0x00, 0x02, // bias 0, nogo_max 0, go_min 1 (zigzag varints)
-            0x02, // channel vec length
-            0x01, b'a', 0x00, 0xD0, 0x0F, 0xE8, 0x07, 0xE8, 0xA2, 0x8C, 0x04, 0x10, 0xC8,
-            0x01, // channel a
-            0x01, b'b', 0x00, 0xD0, 0x0F, 0xE8, 0x07, 0xE8, 0xA2, 0x8C, 0x04, 0x10, 0xC7,
-            0x01, // channel b
+        ];
+        let section: &[u8] = &[
             0x01, // signal vec length
             // raw_min 0, raw_max 4095 (zigzag 8190 = FE 3F), offset 2048 (zigzag 4096 =
             // 80 20), window 64
@@ -803,6 +805,8 @@ mod tests {
             0x01, 0x00, 0x08, 0x00, // Feature { signal 0, Band { coeff 0 } }
             0x00, // Reading
         ];
+        let want = [header, model, section].concat();
+        let want = &want[..];
         let crc = CRC32.checksum(want).to_le_bytes();
         assert_eq!(&b[..want.len()], want);
         assert_eq!(&b[want.len()..], &crc);

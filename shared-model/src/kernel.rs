@@ -381,6 +381,26 @@ mod tests {
         );
     }
 
+    #[test]
+    fn a_model_of_readings_takes_no_window() {
+        // One path for both kinds: without signals a unit is its readings alone.
+        let m = example();
+        for raw in [[900, 100], [1001, 0], [0, 1000]] {
+            assert_eq!(
+                m.classify_windows(&raw, &[]),
+                m.classify(&raw).map_err(SignalFault::Reading)
+            );
+        }
+        assert_eq!(
+            m.classify_windows(&[900, 100], &[&[1]]),
+            Err(SignalFault::Windows {
+                expected: 0,
+                got: 1
+            })
+        );
+        assert_eq!((m.reading_count(), m.signal_count()), (2, 0));
+    }
+
     proptest! {
         /// Windows in, decision out: the same as computing each feature and classifying the
         /// readings it makes, for every feature.
