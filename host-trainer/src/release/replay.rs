@@ -8,7 +8,7 @@
 //!
 //! One path for both kinds of model: a unit is its reading channels' raw readings and one
 //! window per signal (none for a model of readings), classified by the kernel's
-//! `classify_windows` ([`line`]); [`replay_log`] reads a bench log or a signal log, as the
+//! `classify_windows` ([`line()`]); [`replay_log`] reads a bench log or a signal log, as the
 //! float model says, and hands each unit's line and vector on.
 
 use shared_model::{CheckedModel, Fault, Inputs, SignalFault, SignalSection};
@@ -44,7 +44,7 @@ pub fn line<I: Inputs>(
 
 /// Replays a log through `model` (decoded from a blob of the float model `fm`) as the
 /// device runs it: a bench log for a model of readings, a signal log for a model with
-/// signal features. Per unit in log order, `each` gets the device's line ([`line`]) and
+/// signal features. Per unit in log order, `each` gets the device's line ([`line()`]) and
 /// the unit's raw readings and windows (for [`vector`]; no windows for a bench log).
 ///
 /// # Errors

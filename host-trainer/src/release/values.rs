@@ -6,7 +6,7 @@
 //! [`stream_signal_units`] for a model, refused windows kept), and every number comes from
 //! the code the device runs: features from [`CheckedFeature::compute`], scaled inputs from
 //! [`CheckedModel::scale`](shared_model::CheckedModel::scale), the score from the kernel's
-//! classification, the line from [`replay::line`]. So what this
+//! classification, the line from [`replay::line()`]. So what this
 //! shows is what the device computed, channel by channel, including which channel it refused.
 
 use std::collections::BTreeSet;
