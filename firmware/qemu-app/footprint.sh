@@ -4,8 +4,8 @@
 # stack used by one step (stack painting), and instructions executed per classification
 # (QEMU one-instruction-per-block trace): the dot product alone, the kernel's classify, and
 # the whole step (read + classify + drive lines). One Markdown table per target, then the
-# instructions per sample of every signal feature on a 1,024-sample window (the signal
-# example's `cost_*` functions) and the stack one feature takes.
+# instructions per sample of every signal feature on a 1,024-sample window (the example's
+# `cost_*` functions, run at its start) and the stack one feature takes.
 # Usage: firmware/qemu-app/footprint.sh [target ...]
 #   (needs qemu-system-arm, qemu-system-riscv32 for RISC-V, binutils' nm, python3)
 set -euo pipefail
@@ -60,17 +60,6 @@ while read -r target qemu machine cpu addr; do
       -singlestep -d nochain,exec -D "$work/trace-$w.log" > "$work/out-$w.txt" 2>/dev/null < /dev/null || true
   done
   nm -C -S --size-sort "$elf" > "$work/syms.txt" 2>/dev/null || true
-  # Signal features: every feature of a 1,024-sample window, counted in the signal example
-  # (it measures them at start, before looking for a model, so no model is loaded).
-  rm -f "$work/sig-trace.log" "$work/sig-out.txt" "$work/sig-syms.txt"
-  if (cd "$here" && LINEGATE_VECTORS=/dev/null CARGO_TARGET_DIR="$here/target/footprint" \
-        cargo build -q --release --bin signals --target "$target" < /dev/null); then
-    sig="$here/target/footprint/$target/release/signals"
-    timeout 300 "$qemu" -machine "$machine" "${cpuarg[@]}" -nographic \
-      -semihosting-config enable=on,target=native -kernel "$sig" \
-      -singlestep -d nochain,exec -D "$work/sig-trace.log" > "$work/sig-out.txt" 2>/dev/null < /dev/null || true
-    nm -C -S --size-sort "$sig" > "$work/sig-syms.txt" 2>/dev/null || true
-  fi
   # Section sizes from the ELF headers (works for Arm and RISC-V alike).
   python3 - "$target" "$elf" "$work" <<'PY'
 import re, struct, sys
@@ -152,12 +141,13 @@ for w in (8, 16):
     print(f"| {w}-bit | {kernel} | {flash} B | {ram} B | {ours} B | {startup.group(1) if startup else '–'} B | {stack.group(1) if stack else '–'} B | "
           + " | ".join(cell(c) for c in cols) + " |")
 import os
-if os.path.exists(f"{work}/sig-trace.log") and os.path.exists(f"{work}/sig-syms.txt"):
-    funcs, _ = load_funcs(f"{work}/sig-syms.txt")
-    out = open(f"{work}/sig-out.txt").read()
+# The signal features: counted in the 8-bit run, where the example computes each of them
+# once at start, before it looks for a model.
+if os.path.exists(f"{work}/trace-8.log"):
+    out = open(f"{work}/out-8.txt").read()
     stack = re.search(r"stack bytes used by a feature of a 1024-sample window: (\d+)", out)
     names = ["mean", "rms", "min", "max", "peak_to_peak", "abs_peak", "std_dev", "zero_crossings", "band"]
-    counts = [count(f"{work}/sig-trace.log", rf"::cost_{n}$") for n in names]
+    counts = [count(f"{work}/trace-8.log", rf"::cost_{n}$") for n in names]
     print(f"\nSignal features of one 1,024-sample window (12-bit samples, validation of the window included): instructions per sample; "
           f"window buffer 4,096 B of RAM (i32 samples, the caller's), stack {stack.group(1) if stack else '–'} B\n")
     print("| " + " | ".join(n.replace("_", " ") for n in names) + " |")

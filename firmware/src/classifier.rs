@@ -1,19 +1,22 @@
 //! The model as the device holds it.
 
-use shared_model::{CheckedModel, Decision, DecodeError, Fault, blob};
+use shared_model::{CheckedModel, Decision, DecodeError, Fault, Inputs, Readings, blob};
 
 use crate::ReleaseKey;
 
-/// A validated model, ready to classify.
+/// A validated model, ready to classify: of readings alone (`Classifier`, the default
+/// kind) or of readings and sample windows (`Classifier<SignalSection>`, which loads every
+/// blob format version), as `shared_model::Inputs` says.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub struct Classifier {
-    model: CheckedModel,
+pub struct Classifier<I: Inputs = Readings> {
+    model: CheckedModel<I>,
     blob_id: u32,
     key_id: Option<[u8; blob::KEY_ID_LEN]>,
 }
 
 impl Classifier {
-    /// Validates the blob stored in a flash region.
+    /// Validates the blob stored in a flash region, for a station that passes readings
+    /// alone (a version-3 blob is refused: [`DecodeError::Signals`]).
     ///
     /// The region may be longer than the blob (erased flash after it): the
     /// header's payload length says where the blob ends.
@@ -33,20 +36,25 @@ impl Classifier {
     pub fn from_flash_signed(region: &[u8], key: &ReleaseKey) -> Result<Self, DecodeError> {
         Self::load(region, Some(key))
     }
+}
 
-    /// Validates a blob in `region`, checking its signature first when `key` is given.
+impl<I: Inputs> Classifier<I> {
+    /// Validates a blob in `region` into a model of input kind `I` (the one loader of
+    /// both kinds: [`from_flash`](Classifier::from_flash) for readings, the station's
+    /// `with_windows` for windows), checking its signature first when `key` is given.
     ///
     /// Always inlined: where `key` is a constant `None` the signature verifier then drops
     /// out of the image, which keeps an unsigned build's panic-never proof free of it.
     #[inline(always)]
     pub(crate) fn load(region: &[u8], key: Option<&ReleaseKey>) -> Result<Self, DecodeError> {
         let bytes = blob_in(region, key)?;
-        let model = blob::decode(bytes)?;
-        // decode proved the length, so the id is there; 0 is never reached.
+        // decode proves the length, so the id is there; 0 is never reached.
         let blob_id = blob::blob_id(bytes).unwrap_or(0);
         let key_id = blob::signature(bytes).map(|s| s.key_id);
+        // The model decoded straight into its place: a named temporary would be one more
+        // copy of it on the start-up stack.
         Ok(Self {
-            model,
+            model: blob::decode(bytes)?,
             blob_id,
             key_id,
         })
@@ -82,7 +90,7 @@ impl Classifier {
     }
 
     /// The validated model.
-    pub fn model(&self) -> &CheckedModel {
+    pub fn model(&self) -> &CheckedModel<I> {
         &self.model
     }
 }

@@ -12,11 +12,12 @@
 //!   [`OutputPin`](embedded_hal::digital::OutputPin)s. It owns its pins and
 //!   keeps one invariant: NO-GO is asserted whenever GO is not, and GO is
 //!   always dropped before anything else changes.
+//! - [`WindowSource`]: a [`SensorSource`] that also fills sample windows, for a model
+//!   some of whose channels are features of a signal (blob format version 3).
 //! - [`Station`]: the loop body tying the three together, with fault
-//!   reporting that tells a new fault from a repeated one.
-//! - [`WindowSource`] and [`SignalStation`]: the same for a model some of whose channels
-//!   are features of sample windows (blob format version 3); the board fills each window
-//!   into a buffer the caller owns.
+//!   reporting that tells a new fault from a repeated one; one station for readings
+//!   ([`Station::new`]) or readings and windows ([`Station::with_windows`], the board
+//!   filling each window into a buffer the caller owns).
 //!
 //! No heap, no floating point, no `unsafe`.
 #![no_std]
@@ -49,4 +50,4 @@ pub use driver::GoNoGoLines;
 pub use release_key::{ReleaseKey, key_id};
 pub use sensor::{SensorSource, WindowSource};
 pub use shared_model::{Decision, DecodeError, Fault, Verdict};
-pub use station::{SignalStation, Station, StationFault, Step};
+pub use station::{Gather, Station, StationFault, Step};

@@ -1,10 +1,21 @@
-//! One test station: classifier + sensors + lines, fail-safe.
+//! One test station: classifier + sensors + lines, fail-safe, for a model of readings or
+//! of readings and sample windows.
+//!
+//! The input kind is the station's type parameter `I` (`shared_model::Inputs`), chosen by
+//! the constructor and the source: [`Station::new`] / [`Station::with_key`] take a
+//! [`SensorSource`] and hold a model of readings ([`Readings`]: nothing held for
+//! signals, version-3 blobs refused); [`Station::with_windows`] takes a [`WindowSource`]
+//! and a sample buffer the caller owns and holds a `SignalSection` model (every blob
+//! version). Loading, stepping, fault reporting and the lines are one code path; only how
+//! a unit is gathered differs ([`Gather`]).
 
 use embedded_hal::digital::OutputPin;
 use heapless::Vec;
-use shared_model::{CheckedSignalModel, Decision, DecodeError, Fault, MAX_CHANNELS, SignalFault};
+use shared_model::{
+    CheckedModel, Decision, DecodeError, Fault, Inputs, MAX_CHANNELS, Readings, SignalFault,
+    SignalSection,
+};
 
-use crate::classifier::blob_in;
 use crate::{Classifier, GoNoGoLines, ReleaseKey, SensorSource, WindowSource};
 
 /// Why a step showed NO-GO without classifying.
@@ -17,8 +28,8 @@ pub enum StationFault<SE> {
     Sensor(SE),
     /// A reading was refused by the kernel (out of range).
     Reading(Fault),
-    /// A sample window was refused ([`SignalStation`]: too short a sample buffer for the
-    /// model's windows, or a sample outside its signal's range).
+    /// A sample window was refused (a station with windows: too short a sample buffer for
+    /// the model's windows, or a sample outside its signal's range).
     Window(SignalFault),
 }
 
@@ -37,9 +48,12 @@ pub enum Step<SE> {
     },
 }
 
-/// A go/no-go station: holds NO-GO from reset until a valid model and valid readings say otherwise.
-pub struct Station<S: SensorSource, G, N, R> {
-    classifier: Result<Classifier, DecodeError>,
+/// A go/no-go station: holds NO-GO from reset until a valid model and valid readings (and
+/// windows) say otherwise. `I` is the model's input kind (see the module docs).
+pub struct Station<'w, S: SensorSource, G, N, R, I: Inputs = Readings> {
+    classifier: Result<Classifier<I>, DecodeError>,
+    /// Every signal's window end to end (empty for a model of readings).
+    samples: &'w mut [i32],
     sensor: S,
     lines: GoNoGoLines<G, N, R>,
     last_fault: Option<StationFault<S::Error>>,
@@ -47,15 +61,9 @@ pub struct Station<S: SensorSource, G, N, R> {
     key: Option<ReleaseKey>,
 }
 
-impl<S, G, N, R, E> Station<S, G, N, R>
-where
-    S: SensorSource,
-    S::Error: Copy + PartialEq,
-    G: OutputPin<Error = E>,
-    N: OutputPin<Error = E>,
-    R: OutputPin<Error = E>,
-{
-    /// Validates the blob in `flash`; a bad blob leaves the station holding NO-GO.
+impl<S: SensorSource, G, N, R> Station<'static, S, G, N, R, Readings> {
+    /// A station for a model of readings: validates the blob in `flash` (format version 1
+    /// or 2); a bad blob, or one whose model needs windows, leaves the station holding NO-GO.
     ///
     /// `lines` are already in the safe state ([`GoNoGoLines::new`]).
     #[inline(always)]
@@ -76,15 +84,60 @@ where
         sensor: S,
         lines: GoNoGoLines<G, N, R>,
     ) -> Self {
+        Self::load(flash, key, &mut [], sensor, lines)
+    }
+}
+
+impl<'w, S: WindowSource, G, N, R> Station<'w, S, G, N, R, SignalSection> {
+    /// A station for a model with signal features: validates the blob in `flash` (any
+    /// format version; one without signals has every channel a reading), its signature
+    /// first when `key` is given. Each step reads the reading channels and fills one
+    /// window per signal into `samples`, a buffer the caller owns (a static or a DMA
+    /// target), which must hold every signal's window end to end.
+    ///
+    /// Always inlined, as [`Station::with_key`] is: the model is then built where it stays.
+    #[inline(always)]
+    pub fn with_windows(
+        flash: &[u8],
+        key: Option<ReleaseKey>,
+        samples: &'w mut [i32],
+        sensor: S,
+        lines: GoNoGoLines<G, N, R>,
+    ) -> Self {
+        Self::load(flash, key, samples, sensor, lines)
+    }
+}
+
+impl<'w, S: SensorSource, G, N, R, I: Inputs> Station<'w, S, G, N, R, I> {
+    /// The one constructor behind the public ones.
+    #[inline(always)]
+    fn load(
+        flash: &[u8],
+        key: Option<ReleaseKey>,
+        samples: &'w mut [i32],
+        sensor: S,
+        lines: GoNoGoLines<G, N, R>,
+    ) -> Self {
         Self {
             classifier: Classifier::load(flash, key.as_ref()),
+            samples,
             sensor,
             lines,
             last_fault: None,
             key,
         }
     }
+}
 
+impl<'w, S, G, N, R, E, I> Station<'w, S, G, N, R, I>
+where
+    S: SensorSource,
+    S::Error: Copy + PartialEq,
+    G: OutputPin<Error = E>,
+    N: OutputPin<Error = E>,
+    R: OutputPin<Error = E>,
+    I: Gather<S>,
+{
     /// Replaces the model (e.g. after the flash region was rewritten). A bad
     /// blob drops the old model too: the station must not keep running a model
     /// its flash no longer holds.
@@ -97,34 +150,117 @@ where
     }
 
     /// The model in use, or why there is none.
-    pub fn classifier(&self) -> Result<&Classifier, DecodeError> {
+    pub fn classifier(&self) -> Result<&Classifier<I>, DecodeError> {
         self.classifier.as_ref().map_err(|e| *e)
     }
 
-    /// Reads, classifies and shows one unit.
+    /// Reads (and fills), classifies and shows one unit.
     ///
     /// # Errors
     /// A pin error. The lines have then been driven as far as they could towards NO-GO.
     pub fn step(&mut self) -> Result<Step<S::Error>, E> {
         let decided = match &self.classifier {
             Err(e) => Err(StationFault::Blob(*e)),
-            Ok(c) => {
-                let mut buf: Vec<i32, MAX_CHANNELS> = Vec::new();
-                // channel_count <= MAX_CHANNELS by validation, so the resize cannot fail.
-                let _ = buf.resize(c.channel_count(), 0);
-                match self.sensor.read(&mut buf) {
-                    Err(e) => Err(StationFault::Sensor(e)),
-                    Ok(()) => c.classify(&buf).map_err(StationFault::Reading),
-                }
-            }
+            Ok(c) => I::unit(c.model(), &mut self.sensor, self.samples),
         };
         show(&mut self.lines, &mut self.last_fault, decided)
     }
 
-    /// Gives the sensor source and the lines back.
-    pub fn release(self) -> (S, GoNoGoLines<G, N, R>) {
-        (self.sensor, self.lines)
+    /// Gives the source, the sample buffer and the lines back.
+    pub fn release(self) -> (S, &'w mut [i32], GoNoGoLines<G, N, R>) {
+        (self.sensor, self.samples, self.lines)
     }
+}
+
+/// How a station of input kind `Self` gathers one unit from a source `S` and classifies it:
+/// the one place where readings and windows differ. Implemented for [`Readings`] (any
+/// [`SensorSource`]) and `SignalSection` (a [`WindowSource`]); not for other types.
+pub trait Gather<S: SensorSource>: Inputs {
+    /// Reads the unit (filling `samples` with its windows, if any) and classifies it.
+    ///
+    /// # Errors
+    /// The fault the station shows NO-GO for.
+    fn unit(
+        model: &CheckedModel<Self>,
+        sensor: &mut S,
+        samples: &mut [i32],
+    ) -> Result<Decision, StationFault<S::Error>>;
+}
+
+impl<S: SensorSource> Gather<S> for Readings {
+    #[inline]
+    fn unit(
+        model: &CheckedModel,
+        sensor: &mut S,
+        _samples: &mut [i32],
+    ) -> Result<Decision, StationFault<S::Error>> {
+        readings_unit(model, sensor)
+    }
+}
+
+/// A unit of a model without signals: one reading per channel, then the kernel.
+#[inline]
+fn readings_unit<I: Inputs, S: SensorSource>(
+    model: &CheckedModel<I>,
+    sensor: &mut S,
+) -> Result<Decision, StationFault<S::Error>> {
+    let mut buf: Vec<i32, MAX_CHANNELS> = Vec::new();
+    // channel_count <= MAX_CHANNELS by validation, so the resize cannot fail.
+    let _ = buf.resize(model.channel_count(), 0);
+    sensor.read(&mut buf).map_err(StationFault::Sensor)?;
+    model.classify(&buf).map_err(StationFault::Reading)
+}
+
+impl<S: WindowSource> Gather<S> for SignalSection {
+    /// The readings, then each window carved from `samples` in turn, then the kernel's
+    /// [`CheckedModel::classify_windows`]; a model without signals (a version-1 or 2 blob)
+    /// as a model of readings, which takes less stack for the same decision.
+    fn unit(
+        model: &CheckedModel<SignalSection>,
+        sensor: &mut S,
+        samples: &mut [i32],
+    ) -> Result<Decision, StationFault<S::Error>> {
+        if model.signal_count() == 0 {
+            return readings_unit(model, sensor);
+        }
+        windows_unit(model, sensor, samples)
+    }
+}
+
+/// A unit of a model with signals: the readings, then each window carved from `samples`
+/// in turn, then the kernel. Out of line, so that its frame (the readings, the windows'
+/// slices, the feature values) is not reserved when a model without signals steps.
+#[inline(never)]
+fn windows_unit<S: WindowSource>(
+    model: &CheckedModel<SignalSection>,
+    sensor: &mut S,
+    samples: &mut [i32],
+) -> Result<Decision, StationFault<S::Error>> {
+    let mut readings: Vec<i32, MAX_CHANNELS> = Vec::new();
+    // reading_count <= channel count <= MAX_CHANNELS by validation.
+    let _ = readings.resize(model.reading_count(), 0);
+    sensor.read(&mut readings).map_err(StationFault::Sensor)?;
+    let signals = &model.signals().signals;
+    let mut windows: Vec<&[i32], { shared_model::limits::MAX_SIGNALS }> = Vec::new();
+    let mut rest = samples;
+    for (i, spec) in signals.iter().enumerate() {
+        let Some((window, tail)) = rest.split_at_mut_checked(usize::from(spec.window)) else {
+            return Err(StationFault::Window(SignalFault::Windows {
+                expected: u8::try_from(signals.len()).unwrap_or(u8::MAX),
+                got: i,
+            }));
+        };
+        sensor.fill(i, window).map_err(StationFault::Sensor)?;
+        // At most MAX_SIGNALS windows: the push cannot fail.
+        let _ = windows.push(window);
+        rest = tail;
+    }
+    model
+        .classify_windows(&readings, &windows)
+        .map_err(|f| match f {
+            SignalFault::Reading(r) => StationFault::Reading(r),
+            other => StationFault::Window(other),
+        })
 }
 
 /// Shows a step's outcome: the verdict, or NO-GO for a fault, and whether the fault is new.
@@ -151,101 +287,4 @@ where
             Ok(Step::Faulted { fault, first })
         }
     }
-}
-
-/// A station for a model with signal features (blob format version 3): each step reads the
-/// reading channels and fills one window per signal into `samples`, a buffer the caller
-/// owns (a static or a DMA target), then classifies with
-/// [`CheckedSignalModel::classify_windows`]. Faults and lines behave as [`Station`]'s.
-pub struct SignalStation<'w, S: WindowSource, G, N, R> {
-    model: Result<CheckedSignalModel, DecodeError>,
-    samples: &'w mut [i32],
-    sensor: S,
-    lines: GoNoGoLines<G, N, R>,
-    last_fault: Option<StationFault<S::Error>>,
-}
-
-impl<'w, S, G, N, R, E> SignalStation<'w, S, G, N, R>
-where
-    S: WindowSource,
-    S::Error: Copy + PartialEq,
-    G: OutputPin<Error = E>,
-    N: OutputPin<Error = E>,
-    R: OutputPin<Error = E>,
-{
-    /// Validates the blob in `flash` (any format version; one without signals has every
-    /// channel a reading), its signature first when `key` is given. A bad blob leaves the
-    /// station holding NO-GO. `samples` must hold every signal's window end to end.
-    ///
-    /// Always inlined, as [`Station::with_key`] is: the model is then built where it stays.
-    #[inline(always)]
-    pub fn new(
-        flash: &[u8],
-        key: Option<&ReleaseKey>,
-        samples: &'w mut [i32],
-        sensor: S,
-        lines: GoNoGoLines<G, N, R>,
-    ) -> Self {
-        Self {
-            model: blob_in(flash, key).and_then(shared_model::blob::decode_signals),
-            samples,
-            sensor,
-            lines,
-            last_fault: None,
-        }
-    }
-
-    /// The model in use, or why there is none.
-    pub fn model(&self) -> Result<&CheckedSignalModel, DecodeError> {
-        self.model.as_ref().map_err(|e| *e)
-    }
-
-    /// Reads, fills, classifies and shows one unit.
-    ///
-    /// # Errors
-    /// A pin error. The lines have then been driven as far as they could towards NO-GO.
-    pub fn step(&mut self) -> Result<Step<S::Error>, E> {
-        let decided = match &self.model {
-            Err(e) => Err(StationFault::Blob(*e)),
-            Ok(m) => unit(m, &mut self.sensor, self.samples),
-        };
-        show(&mut self.lines, &mut self.last_fault, decided)
-    }
-
-    /// Gives the source, the sample buffer and the lines back.
-    pub fn release(self) -> (S, &'w mut [i32], GoNoGoLines<G, N, R>) {
-        (self.sensor, self.samples, self.lines)
-    }
-}
-
-/// One unit of a signal model: readings, then each window carved from `samples` in turn.
-fn unit<S: WindowSource>(
-    m: &CheckedSignalModel,
-    sensor: &mut S,
-    samples: &mut [i32],
-) -> Result<Decision, StationFault<S::Error>> {
-    let mut readings: Vec<i32, MAX_CHANNELS> = Vec::new();
-    // reading_count <= channel count <= MAX_CHANNELS by validation.
-    let _ = readings.resize(m.reading_count(), 0);
-    sensor.read(&mut readings).map_err(StationFault::Sensor)?;
-    let signals = &m.signals().signals;
-    let mut windows: Vec<&[i32], { shared_model::limits::MAX_SIGNALS }> = Vec::new();
-    let mut rest = samples;
-    for (i, spec) in signals.iter().enumerate() {
-        let Some((window, tail)) = rest.split_at_mut_checked(usize::from(spec.window)) else {
-            return Err(StationFault::Window(SignalFault::Windows {
-                expected: u8::try_from(signals.len()).unwrap_or(u8::MAX),
-                got: i,
-            }));
-        };
-        sensor.fill(i, window).map_err(StationFault::Sensor)?;
-        // At most MAX_SIGNALS windows: the push cannot fail.
-        let _ = windows.push(window);
-        rest = tail;
-    }
-    m.classify_windows(&readings, &windows)
-        .map_err(|f| match f {
-            SignalFault::Reading(r) => StationFault::Reading(r),
-            other => StationFault::Window(other),
-        })
 }

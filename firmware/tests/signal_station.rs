@@ -1,20 +1,18 @@
-//! The station of sample windows on the host: the verdict is the shared kernel's for the
+//! The station with sample windows on the host: the verdict is the shared kernel's for the
 //! windows the board filled, every fault shows NO-GO once, and the two kinds of blob stay
 //! apart (a station of readings refuses a model that needs windows).
 
 mod common;
 
 use common::recorded_lines as lines;
-use firmware::{SensorSource, SignalStation, Station, StationFault, Step, WindowSource};
+use firmware::{SensorSource, Station, StationFault, Step, WindowSource};
 use shared_model::features::{Feature, SignalSection, SignalSpec, Source};
-use shared_model::{
-    CheckedModel, CheckedSignalModel, DecodeError, FixedModel, SignalFault, WindowFault, blob,
-};
+use shared_model::{CheckedModel, DecodeError, FixedModel, SignalFault, WindowFault, blob};
 
 /// The example model (weights +100 on `a`, −100 on `b`, Q15 inputs over 0..=1000 centred at
 /// 500) with `a` the peak-to-peak of a 12-bit, 8-sample signal (0..=1000 counts of it
 /// reach the channel's whole range) and `b` a reading.
-fn model() -> CheckedSignalModel {
+fn model() -> CheckedModel<SignalSection> {
     let m = FixedModel::example_two_channel();
     let mut signals = SignalSection::default();
     signals
@@ -34,12 +32,12 @@ fn model() -> CheckedSignalModel {
         })
         .unwrap();
     signals.sources.push(Source::Reading).unwrap();
-    CheckedSignalModel::new(CheckedModel::new(m).unwrap(), signals).unwrap()
+    CheckedModel::with_inputs(m, signals).unwrap()
 }
 
-fn blob_of(m: &CheckedSignalModel) -> Vec<u8> {
+fn blob_of(m: &CheckedModel<SignalSection>) -> Vec<u8> {
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
-    let n = blob::encode_signals(m, &mut buf).unwrap();
+    let n = blob::encode(m, &mut buf).unwrap();
     buf[..n].to_vec()
 }
 
@@ -92,7 +90,7 @@ fn windows_are_classified_as_the_kernel_classifies_them() {
     let (lines, log) = lines();
     let mut samples = [0i32; 8];
     let board = Board(units.clone().into_iter(), None);
-    let mut st = SignalStation::new(&blob_of(&m), None, &mut samples, board, lines);
+    let mut st = Station::with_windows(&blob_of(&m), None, &mut samples, board, lines);
     for u in &units {
         let want = m
             .classify_windows(
@@ -138,7 +136,7 @@ fn every_fault_shows_nogo_once() {
     ];
     let (lines, log) = lines();
     let mut samples = [0i32; 8];
-    let mut st = SignalStation::new(
+    let mut st = Station::with_windows(
         &blob_of(&m),
         None,
         &mut samples,
@@ -187,7 +185,7 @@ fn a_sample_buffer_too_short_for_the_windows_is_a_fault() {
     let (lines, _) = lines();
     let mut samples = [0i32; 7];
     let units = vec![unit(100, [2048; 8])];
-    let mut st = SignalStation::new(
+    let mut st = Station::with_windows(
         &blob_of(&m),
         None,
         &mut samples,
@@ -228,7 +226,7 @@ fn the_two_kinds_of_blob_stay_apart() {
     );
     // A station of windows takes a version-1 blob: every channel a reading, no window.
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
-    let n = blob::encode(m.model(), &mut buf).unwrap();
+    let n = blob::encode(&CheckedModel::new(m.model().clone()).unwrap(), &mut buf).unwrap();
     let (lines_b, _) = lines();
     let mut samples = [0i32; 0];
     struct Both;
@@ -244,10 +242,10 @@ fn the_two_kinds_of_blob_stay_apart() {
             unreachable!("a model without signals asks for no window")
         }
     }
-    let mut st = SignalStation::new(&buf[..n], None, &mut samples, Both, lines_b);
-    assert_eq!(st.model().unwrap().signal_count(), 0);
+    let mut st = Station::with_windows(&buf[..n], None, &mut samples, Both, lines_b);
+    assert_eq!(st.classifier().unwrap().model().signal_count(), 0);
     assert_eq!(
         st.step().unwrap(),
-        Step::Decided(m.model().classify(&[900, 100]).unwrap())
+        Step::Decided(m.classify(&[900, 100]).unwrap())
     );
 }

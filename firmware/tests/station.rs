@@ -72,7 +72,7 @@ fn valid_blob_drives_go_nogo_recheck() {
         verdicts,
         [Verdict::Go, Verdict::NoGo, Verdict::Recheck, Verdict::Go]
     );
-    let (_, lines) = st.release();
+    let (_, _, lines) = st.release();
     let (mut go, mut nogo, rc) = lines.release();
     go.done();
     nogo.done();
@@ -102,7 +102,7 @@ fn invalid_blob_holds_nogo_and_never_asserts_go() {
             other => panic!("unexpected {other:?}"),
         }
     }
-    let (_, lines) = st.release();
+    let (_, _, lines) = st.release();
     let (mut go, mut nogo, rc) = lines.release();
     go.done();
     nogo.done();
@@ -112,7 +112,7 @@ fn invalid_blob_holds_nogo_and_never_asserts_go() {
 fn recorded_station(
     flash: &[u8],
     script: Vec<Result<[i32; 2], BusError>>,
-) -> (Station<Script, Rec, Rec, Rec>, Log) {
+) -> (Station<'static, Script, Rec, Rec, Rec>, Log) {
     let (lines, log) = recorded_lines();
     (Station::new(flash, Script::new(script), lines), log)
 }

@@ -9,10 +9,14 @@
 //! | 9       | N    | postcard encoding of [`FixedModel`]                      |
 //! | 9 + N   | 4    | CRC-32/ISO-HDLC of bytes `0 .. 9+N`, little-endian       |
 //!
-//! A model with signal features ([`CheckedSignalModel`]) is written as format version 3
-//! (4 signed) by [`encode_signals`]: the same bytes, with the signal section after the
-//! model in the payload; [`decode_signals`] reads every version, [`decode`] versions 1 and 2
-//! (a station that passes only readings must not load a model that needs windows).
+//! One encoder and one decoder serve both input kinds ([`Inputs`]). A model with signal
+//! features (a non-empty [`SignalSection`]) is written as format version 3 (4 signed): the
+//! same bytes, with the signal section after the model in the payload; any other model as
+//! version 1 (2 signed), whatever its kind. [`decode`] into a
+//! `CheckedModel<SignalSection>` reads every version (1 and 2 with an empty section); into
+//! a `CheckedModel` of [`Readings`](crate::model::Readings) versions 1 and 2 only
+//! ([`DecodeError::Signals`] for 3 and 4: a station that passes only readings must not
+//! load a model that needs windows).
 //! The full specification, with the payload's field order, is in
 //! `shared-model/FORMAT.md`. Stability rule: any change to this layout or to
 //! the payload's fields bumps [`FORMAT_VERSION`]; a decoder refuses versions
@@ -25,7 +29,7 @@ pub use crate::limits::{
     CRC_LEN, FORMAT_VERSION, HEADER_LEN, KEY_ID_LEN, MAGIC, MAX_BLOB_LEN, MAX_PAYLOAD_LEN,
     SIGNAL_VERSION, SIGNATURE_LEN, SIGNATURE_SECTION_LEN, SIGNED_SIGNAL_VERSION, SIGNED_VERSION,
 };
-use crate::model::{ChannelSpec, CheckedModel, CheckedSignalModel, FixedModel};
+use crate::model::{ChannelSpec, CheckedModel, FixedModel, Inputs};
 
 /// CRC-32/ISO-HDLC (poly 0x04C11DB7, reflected, init and xorout 0xFFFFFFFF): the CRC of
 /// zip, PNG and Ethernet. Bitwise, without a table, to keep ~1 KiB out of device flash;
@@ -85,36 +89,18 @@ pub fn signature(blob: &[u8]) -> Option<Signed<'_>> {
     })
 }
 
-/// Writes a version-2 blob for `model` up to and including `key_id` into `out` and
-/// returns that length: the bytes to sign. The caller writes the 64-byte signature
-/// right after them, at `out[n..n + SIGNATURE_LEN]`.
+/// Writes a signed blob for `model` (version 2, or 4 for a model with signal features) up
+/// to and including `key_id` into `out` and returns that length: the bytes to sign. The
+/// caller writes the 64-byte signature right after them, at `out[n..n + SIGNATURE_LEN]`.
 ///
 /// # Errors
 /// [`EncodeError::BufferTooSmall`] if `out` cannot hold the whole signed blob.
-pub fn encode_for_signing(
-    model: &CheckedModel,
+pub fn encode_for_signing<I: Inputs>(
+    model: &CheckedModel<I>,
     key_id: [u8; KEY_ID_LEN],
     out: &mut [u8],
 ) -> Result<usize, EncodeError> {
-    let n = encode_version(model, None, SIGNED_VERSION, out)?;
-    sign_section(n, key_id, out)
-}
-
-/// [`encode_for_signing`] for a model with signal features: version 4.
-///
-/// # Errors
-/// [`EncodeError::BufferTooSmall`] if `out` cannot hold the whole signed blob.
-pub fn encode_signals_for_signing(
-    model: &CheckedSignalModel,
-    key_id: [u8; KEY_ID_LEN],
-    out: &mut [u8],
-) -> Result<usize, EncodeError> {
-    let n = encode_version(
-        model.model(),
-        Some(model.signals()),
-        SIGNED_SIGNAL_VERSION,
-        out,
-    )?;
+    let n = encode_version(model, true, out)?;
     sign_section(n, key_id, out)
 }
 
@@ -130,33 +116,31 @@ fn sign_section(n: usize, key_id: [u8; KEY_ID_LEN], out: &mut [u8]) -> Result<us
     Ok(n + KEY_ID_LEN)
 }
 
-/// Writes the blob for `model` into `out` and returns its length.
+/// Writes the blob for `model` into `out` (version 1, or 3 for a model with signal
+/// features) and returns its length.
 ///
 /// # Errors
 /// [`EncodeError::BufferTooSmall`] if `out` is shorter than the blob; a
 /// buffer of [`MAX_BLOB_LEN`] bytes always suffices.
-pub fn encode(model: &CheckedModel, out: &mut [u8]) -> Result<usize, EncodeError> {
-    encode_version(model, None, FORMAT_VERSION, out)
+pub fn encode<I: Inputs>(model: &CheckedModel<I>, out: &mut [u8]) -> Result<usize, EncodeError> {
+    encode_version(model, false, out)
 }
 
-/// Writes the blob of a model with signal features into `out` (format version 3) and
-/// returns its length.
-///
-/// # Errors
-/// [`EncodeError::BufferTooSmall`] if `out` is shorter than the blob; a buffer of
-/// [`MAX_BLOB_LEN`] bytes always suffices.
-pub fn encode_signals(model: &CheckedSignalModel, out: &mut [u8]) -> Result<usize, EncodeError> {
-    encode_version(model.model(), Some(model.signals()), SIGNAL_VERSION, out)
-}
-
-/// Header, payload (the model, then the signal section if given) and CRC with the given
-/// version number.
-fn encode_version(
-    model: &CheckedModel,
-    signals: Option<&SignalSection>,
-    version: u16,
+/// Header, payload (the model, then its signal section if it has one) and CRC; the version
+/// says whether a section and a signature section follow (one layout per model: a model
+/// without signals is version 1 or 2 whatever its kind).
+fn encode_version<I: Inputs>(
+    model: &CheckedModel<I>,
+    signed: bool,
     out: &mut [u8],
 ) -> Result<usize, EncodeError> {
+    let signals = model.inputs().section();
+    let version = match (signals.is_some(), signed) {
+        (false, false) => FORMAT_VERSION,
+        (false, true) => SIGNED_VERSION,
+        (true, false) => SIGNAL_VERSION,
+        (true, true) => SIGNED_SIGNAL_VERSION,
+    };
     let (header, rest) = out
         .split_at_mut_checked(HEADER_LEN)
         .ok_or(EncodeError::BufferTooSmall)?;
@@ -185,57 +169,42 @@ fn encode_version(
     Ok(total)
 }
 
-/// Decodes and validates a blob. Never panics, whatever the bytes.
+/// Decodes and validates a blob into a model of input kind `I`. Never panics, whatever
+/// the bytes.
+///
+/// `CheckedModel<SignalSection>` takes every version (1 and 2 with an empty section);
+/// `CheckedModel` (readings) versions 1 and 2, and refuses 3 and 4 before reading further.
 ///
 /// # Errors
 /// The first problem found, in this order: [`DecodeError::Truncated`],
 /// [`DecodeError::BadMagic`], [`DecodeError::UnsupportedVersion`],
-/// [`DecodeError::ChannelOverCapacity`], [`DecodeError::TrailingBytes`],
-/// [`DecodeError::CrcMismatch`], [`DecodeError::MalformedPayload`],
-/// [`DecodeError::InconsistentLengths`], [`DecodeError::Invalid`].
-pub fn decode(bytes: &[u8]) -> Result<CheckedModel, DecodeError> {
+/// [`DecodeError::ChannelOverCapacity`], [`DecodeError::Signals`] (readings only),
+/// [`DecodeError::TrailingBytes`], [`DecodeError::CrcMismatch`],
+/// [`DecodeError::MalformedPayload`], [`DecodeError::InconsistentLengths`] (also a
+/// version-3 blob whose section is empty), [`DecodeError::Invalid`] (the model's or the
+/// section's [`ModelError`](crate::ModelError)).
+pub fn decode<I: Inputs>(bytes: &[u8]) -> Result<CheckedModel<I>, DecodeError> {
     let header = Header::read(bytes)?;
-    if header.has_signals() {
+    if header.has_signals() && !I::WINDOWS {
         return Err(DecodeError::Signals);
     }
     let payload = checked_payload(bytes, header)?;
-    let (model, rest) = take_model(payload)?;
-    model_of(model, rest, header)
-}
-
-/// Decodes and validates a blob of any version, a model with signal features (version 3
-/// or 4) or without (1 or 2, whose section is then empty). Never panics, whatever the
-/// bytes.
-///
-/// # Errors
-/// As [`decode`], with the signal section's checks: [`DecodeError::MalformedPayload`],
-/// [`DecodeError::InconsistentLengths`] (a version-3 blob whose section is empty),
-/// [`DecodeError::Invalid`] with the section's [`ModelError`](crate::ModelError).
-pub fn decode_signals(bytes: &[u8]) -> Result<CheckedSignalModel, DecodeError> {
-    let header = Header::read(bytes)?;
-    let payload = checked_payload(bytes, header)?;
     let (model, mut rest) = take_model(payload)?;
-    let mut signals = SignalSection::default();
-    if header.has_signals() {
-        rest = take_signals(rest, &mut signals)?;
+    let mut inputs = I::default();
+    // `I::WINDOWS` first: for readings the section's code drops out. The section is read
+    // in place: a section moved through an `Option` would be one more copy on the stack.
+    if I::WINDOWS && header.has_signals() {
+        let section = inputs.section_mut().ok_or(DecodeError::Signals)?;
+        rest = take_signals(rest, section)?;
         // A model without signals is written as version 1: one layout per model.
-        if signals.is_empty() {
+        if section.is_empty() {
             return Err(DecodeError::InconsistentLengths);
         }
     }
-    let model = model_of(model, rest, header)?;
-    Ok(CheckedSignalModel::new(model, signals)?)
-}
-
-/// The model once its payload is read: nothing may follow it, its channel count must be
-/// the header's, and it must validate. Inlined: taking the model by value through a call
-/// would copy it (2 KiB on the stack at start-up).
-#[inline(always)]
-fn model_of(model: FixedModel, rest: &[u8], header: Header) -> Result<CheckedModel, DecodeError> {
     if !rest.is_empty() || model.channels.len() != usize::from(header.channel_count) {
         return Err(DecodeError::InconsistentLengths);
     }
-    Ok(CheckedModel::new(model)?)
+    Ok(CheckedModel::with_inputs(model, inputs)?)
 }
 
 /// The payload of a blob whose length and CRC check.
@@ -421,9 +390,19 @@ mod tests {
     use crate::error::ModelError;
     use crate::features::{Feature, SignalSpec, Source};
     use crate::model::AuditMark;
-    use crate::model::CheckedSignalModel;
+    use crate::model::Readings;
     use proptest::prelude::*;
     use std::vec::Vec;
+
+    /// [`decode`] for a station that passes readings alone.
+    fn decode_readings(bytes: &[u8]) -> Result<CheckedModel<Readings>, DecodeError> {
+        decode(bytes)
+    }
+
+    /// [`decode`] for a station that passes windows too.
+    fn decode_windows(bytes: &[u8]) -> Result<CheckedModel<SignalSection>, DecodeError> {
+        decode(bytes)
+    }
 
     /// Any model as plain data (valid or not: the reader must match serde on both).
     fn arb_model() -> impl Strategy<Value = FixedModel> {
@@ -506,7 +485,7 @@ mod tests {
         CheckedModel::new(m).unwrap()
     }
 
-    fn encoded(m: &CheckedModel) -> Vec<u8> {
+    fn encoded<I: Inputs>(m: &CheckedModel<I>) -> Vec<u8> {
         let mut buf = [0u8; MAX_BLOB_LEN];
         let n = encode(m, &mut buf).unwrap();
         buf[..n].to_vec()
@@ -519,7 +498,7 @@ mod tests {
                 let m = model_with(channels, bits);
                 let b = encoded(&m);
                 assert_eq!(
-                    decode(&b).unwrap(),
+                    decode_readings(&b).unwrap(),
                     m,
                     "{channels} channels, {bits}-bit weights"
                 );
@@ -567,7 +546,7 @@ mod tests {
         for i in 0..b.len() * 8 {
             let mut f = b.clone();
             f[i / 8] ^= 1 << (i % 8);
-            assert!(decode(&f).is_err(), "flip of bit {i} accepted");
+            assert!(decode_readings(&f).is_err(), "flip of bit {i} accepted");
         }
     }
 
@@ -575,7 +554,7 @@ mod tests {
     fn every_truncation_is_rejected() {
         let b = encoded(&model_with(5, 16));
         for n in 0..b.len() {
-            let e = decode(&b[..n]).unwrap_err();
+            let e = decode_readings(&b[..n]).unwrap_err();
             assert!(
                 matches!(e, DecodeError::Truncated { .. }),
                 "length {n}: {e:?}"
@@ -587,21 +566,30 @@ mod tests {
     fn trailing_bytes_newer_version_and_capacity() {
         let mut b = encoded(&model_with(5, 16));
         b.push(0);
-        assert!(matches!(decode(&b), Err(DecodeError::TrailingBytes { .. })));
+        assert!(matches!(
+            decode_readings(&b),
+            Err(DecodeError::TrailingBytes { .. })
+        ));
         b.pop();
         let mut v = b.clone();
         v[4] = 5;
-        assert_eq!(decode(&v), Err(DecodeError::UnsupportedVersion(5)));
+        assert_eq!(decode_readings(&v), Err(DecodeError::UnsupportedVersion(5)));
         // Version 2 declares a signature section the bytes do not have.
         let mut v2 = b.clone();
         v2[4] = 2;
-        assert!(matches!(decode(&v2), Err(DecodeError::Truncated { .. })));
+        assert!(matches!(
+            decode_readings(&v2),
+            Err(DecodeError::Truncated { .. })
+        ));
         let mut c = b.clone();
         c[6] = 33;
-        assert_eq!(decode(&c), Err(DecodeError::ChannelOverCapacity(33)));
+        assert_eq!(
+            decode_readings(&c),
+            Err(DecodeError::ChannelOverCapacity(33))
+        );
         let mut m = b;
         m[0] = b'X';
-        assert_eq!(decode(&m), Err(DecodeError::BadMagic));
+        assert_eq!(decode_readings(&m), Err(DecodeError::BadMagic));
     }
 
     #[test]
@@ -621,7 +609,7 @@ mod tests {
         assert_eq!(buf[plain.len()..n], key_id);
         buf[n..n + SIGNATURE_LEN].copy_from_slice(&[0xAB; SIGNATURE_LEN]);
         let blob = &buf[..n + SIGNATURE_LEN];
-        assert_eq!(decode(blob).unwrap().model(), m.model());
+        assert_eq!(decode_readings(blob).unwrap().model(), m.model());
         let s = signature(blob).unwrap();
         assert_eq!(
             (s.key_id, s.signature, s.signed),
@@ -636,7 +624,7 @@ mod tests {
         let mut longer = blob.to_vec();
         longer.push(0);
         assert!(matches!(
-            decode(&longer),
+            decode_readings(&longer),
             Err(DecodeError::TrailingBytes { .. })
         ));
         assert!(signature(&longer).is_none());
@@ -659,26 +647,26 @@ mod tests {
         let good = model_with(5, 16);
         let mut buf = [0u8; MAX_BLOB_LEN];
         let payload = postcard::to_slice(good.model(), &mut buf).unwrap().to_vec();
-        assert_eq!(decode(&seal(5, &payload)).unwrap(), good);
+        assert_eq!(decode_readings(&seal(5, &payload)).unwrap(), good);
         assert_eq!(
-            decode(&seal(4, &payload)),
+            decode_readings(&seal(4, &payload)),
             Err(DecodeError::InconsistentLengths)
         );
         let mut extra = payload.clone();
         extra.push(0);
         assert_eq!(
-            decode(&seal(5, &extra)),
+            decode_readings(&seal(5, &extra)),
             Err(DecodeError::InconsistentLengths)
         );
         assert_eq!(
-            decode(&seal(5, &payload[..payload.len() - 3])),
+            decode_readings(&seal(5, &payload[..payload.len() - 3])),
             Err(DecodeError::MalformedPayload)
         );
         let mut bad = good.into_inner();
         bad.nogo_max = bad.go_min;
         let p = postcard::to_slice(&bad, &mut buf).unwrap().to_vec();
         assert_eq!(
-            decode(&seal(5, &p)),
+            decode_readings(&seal(5, &p)),
             Err(DecodeError::Invalid(ModelError::ThresholdsOutOfOrder))
         );
     }
@@ -701,7 +689,7 @@ mod tests {
         let m = CheckedModel::new(m).unwrap();
         let b = encoded(&m);
         assert!(b.len() <= MAX_BLOB_LEN, "{} > {}", b.len(), MAX_BLOB_LEN);
-        assert_eq!(decode(&b).unwrap(), m);
+        assert_eq!(decode_readings(&b).unwrap(), m);
         // And with the largest signal section, signed: every varint at its longest, every
         // channel a Band feature.
         let mut signals = SignalSection::default();
@@ -723,16 +711,16 @@ mod tests {
                 .push(Source::Feature { signal: 7, feature })
                 .unwrap();
         }
-        let m = CheckedSignalModel::new(m, signals).unwrap();
+        let m = CheckedModel::with_inputs(m.into_inner(), signals).unwrap();
         let mut buf = [0u8; MAX_BLOB_LEN];
-        let n = encode_signals_for_signing(&m, [7; KEY_ID_LEN], &mut buf).unwrap();
+        let n = encode_for_signing(&m, [7; KEY_ID_LEN], &mut buf).unwrap();
         assert!(n + SIGNATURE_LEN <= MAX_BLOB_LEN);
         assert_eq!(Header::read(&buf).unwrap().version, SIGNED_SIGNAL_VERSION);
     }
 
     /// The example model with channel `a` the band magnitude of a 12-bit, 64-sample signal
     /// and `b` still a reading.
-    fn with_signal() -> CheckedSignalModel {
+    fn with_signal() -> CheckedModel<SignalSection> {
         let mut m = FixedModel::example_two_channel();
         m.acc_bits = 64;
         let mut signals = SignalSection::default();
@@ -751,41 +739,81 @@ mod tests {
         };
         signals.sources.push(band).unwrap();
         signals.sources.push(Source::Reading).unwrap();
-        CheckedSignalModel::new(CheckedModel::new(m).unwrap(), signals).unwrap()
+        CheckedModel::with_inputs(m, signals).unwrap()
     }
 
-    fn encoded_signals(m: &CheckedSignalModel) -> Vec<u8> {
+    fn encoded_signals(m: &CheckedModel<SignalSection>) -> Vec<u8> {
         let mut buf = [0u8; MAX_BLOB_LEN];
-        let n = encode_signals(m, &mut buf).unwrap();
+        let n = encode(m, &mut buf).unwrap();
         buf[..n].to_vec()
     }
 
     #[test]
-    fn signals_travel_in_version_3_and_4_and_only_decode_signals_loads_them() {
+    fn signals_travel_in_version_3_and_4_and_only_a_windows_model_loads_them() {
         let m = with_signal();
         let b = encoded_signals(&m);
         assert_eq!(Header::read(&b).unwrap().version, SIGNAL_VERSION);
-        assert_eq!(decode_signals(&b).unwrap(), m);
+        assert_eq!(decode_windows(&b).unwrap(), m);
         // A station that passes readings alone must not load it.
-        assert_eq!(decode(&b), Err(DecodeError::Signals));
+        assert_eq!(decode_readings(&b), Err(DecodeError::Signals));
         // The model's own bytes come first, exactly version 1's payload; the section follows.
-        let v1 = encoded(m.model());
+        let v1 = encoded(&CheckedModel::new(m.model().clone()).unwrap());
         assert_eq!(Header::read(&v1).unwrap().version, FORMAT_VERSION);
         assert_eq!(
             &b[HEADER_LEN..v1.len() - CRC_LEN],
             &v1[HEADER_LEN..v1.len() - CRC_LEN]
         );
         // Version 1 read as a model with signals: every channel a reading.
-        let plain = decode_signals(&v1).unwrap();
+        let plain = decode_windows(&v1).unwrap();
         assert!(plain.signals().is_empty());
         assert_eq!(plain.model(), m.model());
         // Signed: version 4, and the signature section is found.
         let mut buf = [0u8; MAX_BLOB_LEN];
-        let n = encode_signals_for_signing(&m, [1; KEY_ID_LEN], &mut buf).unwrap();
+        let n = encode_for_signing(&m, [1; KEY_ID_LEN], &mut buf).unwrap();
         let signed = &buf[..n + SIGNATURE_LEN];
         assert_eq!(Header::read(signed).unwrap().version, SIGNED_SIGNAL_VERSION);
         assert_eq!(signature(signed).unwrap().key_id, [1; KEY_ID_LEN]);
-        assert_eq!(decode_signals(signed).unwrap(), m);
+        assert_eq!(decode_windows(signed).unwrap(), m);
+    }
+
+    #[test]
+    fn golden_bytes_of_a_model_with_a_signal() {
+        // Pinned layout of version 3: the example model (64-bit accumulator) with channel
+        // `a` the band magnitude of a 64-sample signal; any change is a format change.
+        let b = encoded_signals(&with_signal());
+        // The model's 53 bytes are version 1's, pinned by `golden_bytes_of_the_example_model`
+        // (here with a 64-bit accumulator); then the section.
+        let v1 = encoded(&CheckedModel::new(with_signal().into_inner()).unwrap());
+        let model = &v1[HEADER_LEN..v1.len() - CRC_LEN];
+        assert_eq!(
+            (model.len(), model[20]),
+            (53, 64),
+            "acc bits at payload byte 20"
+        );
+        let header: &[u8] = &[
+            0x4C, 0x47, 0x4D, 0x42, // magic "LGMB"
+            0x03, 0x00, // version 3
+            0x02, // channels
+            0x42, 0x00, // payload length 66: the model's 53 bytes, then the section's 13
+        ];
+        let section: &[u8] = &[
+            0x01, // signal vec length
+            // raw_min 0, raw_max 4095 (zigzag 8190 = FE 3F), offset 2048 (zigzag 4096 =
+            // 80 20), window 64
+            0x00, 0xFE, 0x3F, 0x80, 0x20, 0x40, // signal 0
+            0x02, // source vec length
+            0x01, 0x00, 0x08, 0x00, // Feature { signal 0, Band { coeff 0 } }
+            0x00, // Reading
+        ];
+        let want = [header, model, section].concat();
+        let want = &want[..];
+        let crc = CRC32.checksum(want).to_le_bytes();
+        assert_eq!(&b[..want.len()], want);
+        assert_eq!(&b[want.len()..], &crc);
+        // The same model held as a model of windows without signals is written as version 1.
+        let plain = with_signal().into_inner();
+        let empty = CheckedModel::with_inputs(plain.clone(), SignalSection::default()).unwrap();
+        assert_eq!(encoded(&empty), encoded(&CheckedModel::new(plain).unwrap()));
     }
 
     #[test]
@@ -802,13 +830,13 @@ mod tests {
         v.splice(n..n, [0u8, 0]);
         v[7] += 2;
         fix_crc(&mut v);
-        assert_eq!(decode_signals(&v), Err(DecodeError::InconsistentLengths));
+        assert_eq!(decode_windows(&v), Err(DecodeError::InconsistentLengths));
         // Version 1 with a section after the model: unread bytes.
         let mut v = encoded_signals(&with_signal());
         v[4] = 1;
         fix_crc(&mut v);
-        assert_eq!(decode_signals(&v), Err(DecodeError::InconsistentLengths));
-        assert_eq!(decode(&v), Err(DecodeError::InconsistentLengths));
+        assert_eq!(decode_windows(&v), Err(DecodeError::InconsistentLengths));
+        assert_eq!(decode_readings(&v), Err(DecodeError::InconsistentLengths));
         // A source naming a signal the model lacks; a source count that is not the channels'.
         let m = with_signal();
         let mut signals = m.signals().clone();
@@ -817,24 +845,24 @@ mod tests {
             feature: Feature::Mean,
         };
         assert_eq!(
-            CheckedSignalModel::new(m.model().clone(), signals.clone()),
+            CheckedModel::with_inputs(m.model().clone(), signals.clone()),
             Err(ModelError::SignalIndex { channel: 0 })
         );
         signals.sources.pop();
         assert_eq!(
-            CheckedSignalModel::new(m.model().clone(), signals),
+            CheckedModel::with_inputs(m.model().clone(), signals),
             Err(ModelError::Sources)
         );
     }
 
     proptest! {
-        /// Any bytes: decode_signals never panics, and agrees with decode on every blob
-        /// that has no signals.
+        /// Any bytes: decoding for windows never panics, and agrees with decoding for
+        /// readings on every blob that has no signals.
         #[test]
-        fn decode_signals_agrees_with_decode_on_any_bytes(bytes in prop::collection::vec(any::<u8>(), 0..200)) {
-            let ours = decode_signals(&bytes);
-            match decode(&bytes) {
-                Ok(m) => prop_assert_eq!(ours.map(|s| s.model().clone()), Ok(m)),
+        fn windows_and_readings_decoders_agree_on_any_bytes(bytes in prop::collection::vec(any::<u8>(), 0..200)) {
+            let ours = decode_windows(&bytes);
+            match decode_readings(&bytes) {
+                Ok(m) => prop_assert_eq!(ours.map(|s| s.model().clone()), Ok(m.into_inner())),
                 Err(DecodeError::Signals) => {}
                 Err(e) => prop_assert_eq!(ours.err(), Some(e)),
             }

@@ -159,7 +159,7 @@ pub enum DecodeError {
     /// The payload parsed but the model is not valid.
     Invalid(ModelError),
     /// The blob's model has signal features (version 3 or 4): it needs a station that
-    /// passes sample windows (`blob::decode_signals`), not readings alone.
+    /// passes sample windows (`CheckedModel<SignalSection>`), not readings alone.
     Signals,
     /// A signature is required and the blob has none (a version-1 or 3 blob).
     Unsigned,
@@ -183,7 +183,7 @@ impl fmt::Display for DecodeError {
                 crate::limits::SIGNED_SIGNAL_VERSION
             ),
             Self::Signals => f.write_str(
-                "blob's model has signal features: load it where sample windows are passed (decode_signals)",
+                "blob's model has signal features: load it where sample windows are passed",
             ),
             Self::TrailingBytes { expected, got } => {
                 write!(

@@ -1,4 +1,21 @@
-//! The integer inference kernel: raw readings → scaled inputs → score → verdict.
+//! The integer inference kernel: raw readings → scaled inputs → score, then the decision.
+//!
+//! Two steps, two types, so that another decision can be added without touching the
+//! arithmetic:
+//!
+//! 1. **Arithmetic** ([`CheckedModel::score`], [`CheckedModel::scale`],
+//!    [`CheckedModel::score_scaled`]): readings → one exact integer score, or a [`Fault`]
+//!    naming the refused reading. For a model with signals,
+//!    [`CheckedModel::classify_windows`] first turns each feature channel's window into its
+//!    reading ([`CheckedFeature::compute`]), then runs the same step.
+//! 2. **Decision** ([`crate::decision`]): the score → a [`Decision`] by the model's
+//!    [`Thresholds`] (GO / NO-GO / RECHECK). A fault of step 1 never reaches it; the
+//!    station shows NO-GO for it. [`CheckedModel::classify`] is the two in a row.
+//!
+//! A model of several classes would add a score per class to step 1 (the same steps per
+//! class row of weights) and its own rule beside [`Thresholds`] (say, one GO class and
+//! named failure classes, RECHECK when the two best scores are close); step 1's widths
+//! and proofs below stay as they are.
 //!
 //! Widths: readings `i32`; `r - offset` in `i32` (validation keeps the offset
 //! inside a range narrower than 2^31); the conversion product in `i64`
@@ -15,43 +32,11 @@
 //! without a 64-bit multiply (Cortex-M0/M0+) do in single instructions.
 #![warn(clippy::arithmetic_side_effects)]
 
+pub use crate::decision::{Decision, Thresholds, Verdict};
 use crate::error::{Fault, SignalFault, WindowFault};
-use crate::features::{CheckedFeature, Source};
+use crate::features::{CheckedFeature, SignalSpec, Source};
 use crate::limits::MAX_CHANNELS;
-use crate::model::{ChannelSpec, CheckedModel, CheckedSignalModel};
-
-/// The three outcomes a device shows.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub enum Verdict {
-    /// The unit passes.
-    Go,
-    /// The unit fails.
-    NoGo,
-    /// The score lies in the RECHECK band: retest the unit.
-    Recheck,
-}
-
-impl Verdict {
-    /// Upper-case name as the device and `replay` print it.
-    pub const fn as_str(self) -> &'static str {
-        match self {
-            Self::Go => "GO",
-            Self::NoGo => "NO-GO",
-            Self::Recheck => "RECHECK",
-        }
-    }
-}
-
-/// A classification: the exact integer score and the verdict it gives.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-#[cfg_attr(feature = "defmt", derive(defmt::Format))]
-pub struct Decision {
-    /// `bias + Σ weight_i · x_i`, in accumulator units.
-    pub score: i64,
-    /// The verdict for `score`.
-    pub verdict: Verdict,
-}
+use crate::model::{ChannelSpec, CheckedModel, Inputs};
 
 impl ChannelSpec {
     /// Scales one raw reading, or `None` if it lies outside the valid range.
@@ -98,7 +83,7 @@ impl ChannelSpec {
     }
 }
 
-impl CheckedModel {
+impl<I: Inputs> CheckedModel<I> {
     /// Scales every reading into `out` (scaled integer inputs, Q(input_bits-1)).
     ///
     /// # Errors
@@ -156,27 +141,40 @@ impl CheckedModel {
             })
     }
 
+    /// The decision step's rule: the model's thresholds.
+    #[inline]
+    pub fn thresholds(&self) -> Thresholds {
+        Thresholds::of(self.model())
+    }
+
     /// The verdict for a score, by the model's thresholds.
     #[inline]
     pub fn verdict(&self, score: i64) -> Verdict {
-        let m = self.model();
-        if score >= m.go_min {
-            Verdict::Go
-        } else if score <= m.nogo_max {
-            Verdict::NoGo
-        } else {
-            Verdict::Recheck
-        }
+        self.thresholds().verdict(score)
     }
 
-    /// Classifies one set of raw readings, one per channel in model order.
+    /// Classifies one set of raw readings, one per channel in model order (for a model
+    /// with signals, its feature channels' values in their places): the score
+    /// ([`score`](Self::score)), then the decision by the thresholds.
     ///
     /// This is the one function the host audit, `replay` and the firmware call.
     ///
     /// # Errors
     /// A [`Fault`] if the reading count is wrong or a reading is out of range;
     /// the device must then show NO-GO.
+    #[inline]
     pub fn classify(&self, raw: &[i32]) -> Result<Decision, Fault> {
+        let score = self.score(raw)?;
+        Ok(self.thresholds().decide(score))
+    }
+
+    /// The arithmetic step: the exact integer score of one set of raw readings, one per
+    /// channel in model order.
+    ///
+    /// # Errors
+    /// As [`classify`](Self::classify).
+    #[inline]
+    pub fn score(&self, raw: &[i32]) -> Result<i64, Fault> {
         let n = self.channel_count();
         if raw.len() != n {
             return Err(Fault::ReadingCount {
@@ -185,7 +183,7 @@ impl CheckedModel {
             });
         }
         if self.is_narrow() {
-            return self.classify_narrow(raw);
+            return self.score_narrow(raw);
         }
         let mut acc = self.model().bias;
         for (i, (c, &r)) in self.model().channels.iter().zip(raw).enumerate() {
@@ -196,19 +194,14 @@ impl CheckedModel {
             // |Σ| <= validated score bound < 2^63.
             acc = acc.wrapping_add(i64::from(c.weight).wrapping_mul(i64::from(x)));
         }
-        Ok(Decision {
-            score: acc,
-            verdict: self.verdict(acc),
-        })
+        Ok(acc)
     }
-}
 
-impl CheckedModel {
-    /// [`classify`](Self::classify) for a narrow model ([`is_narrow`](Self::is_narrow)):
+    /// [`score`](Self::score) for a narrow model ([`is_narrow`](Self::is_narrow)):
     /// the 32-bit accumulator is proved (|bias| + Σ|wᵢ|·max|xᵢ| < 2^31), so the sums and
     /// products below never wrap; the score is the same as the 64-bit path's.
     #[inline]
-    fn classify_narrow(&self, raw: &[i32]) -> Result<Decision, Fault> {
+    fn score_narrow(&self, raw: &[i32]) -> Result<i64, Fault> {
         // bias fits: |bias| is part of the proved bound.
         #[allow(clippy::cast_possible_truncation)]
         let mut acc = self.model().bias as i32;
@@ -219,11 +212,7 @@ impl CheckedModel {
             })?;
             acc = acc.wrapping_add(c.weight.wrapping_mul(x));
         }
-        let score = i64::from(acc);
-        Ok(Decision {
-            score,
-            verdict: self.verdict(score),
-        })
+        Ok(i64::from(acc))
     }
 }
 
@@ -231,18 +220,18 @@ fn count_u8(n: usize) -> u8 {
     u8::try_from(n).unwrap_or(u8::MAX)
 }
 
-/// Units of a model with signal features: readings and sample windows in, one decision out.
-impl CheckedSignalModel {
-    /// Channels fed by a reading (all of them in a model without signals).
+impl<I: Inputs> CheckedModel<I> {
+    /// Channels fed by a reading (all of them in a model without signals): what a
+    /// station's sensor source fills.
     pub fn reading_count(&self) -> usize {
-        (0..self.model().channel_count())
-            .filter(|&i| self.signals().source(i) == Source::Reading)
+        (0..self.channel_count())
+            .filter(|&i| self.source(i) == Source::Reading)
             .count()
     }
 
-    /// Signals whose windows [`classify_windows`](Self::classify_windows) takes.
+    /// Signals whose windows a station fills (none in a model without signals).
     pub fn signal_count(&self) -> usize {
-        self.signals().signals.len()
+        self.inputs().section().map_or(0, |s| s.signals.len())
     }
 
     /// Classifies a unit given the readings of its reading channels (in channel order) and
@@ -259,10 +248,11 @@ impl CheckedSignalModel {
         readings: &[i32],
         windows: &[&[i32]],
     ) -> Result<Decision, SignalFault> {
-        let section = self.signals();
-        if windows.len() != section.signals.len() {
+        // A model of readings has no signals: no window, every channel a reading.
+        let signals: &[SignalSpec] = self.inputs().section().map_or(&[], |s| &s.signals);
+        if windows.len() != signals.len() {
             return Err(SignalFault::Windows {
-                expected: count_u8(section.signals.len()),
+                expected: count_u8(signals.len()),
                 got: windows.len(),
             });
         }
@@ -273,16 +263,16 @@ impl CheckedSignalModel {
                 got: readings.len(),
             }));
         }
-        let n = self.model().channel_count();
+        let n = self.channel_count();
         let mut values = [0i32; MAX_CHANNELS];
         let mut next = readings.iter();
         for (i, v) in values.iter_mut().enumerate().take(n) {
-            *v = match section.source(i) {
+            *v = match self.source(i) {
                 Source::Reading => next.next().copied().unwrap_or(0),
                 Source::Feature { signal, feature } => {
                     let index = usize::from(signal);
                     let window = windows.get(index).copied().unwrap_or(&[]);
-                    let spec = section.signals.get(index).copied();
+                    let spec = signals.get(index).copied();
                     // Validation proved every feature; a refusal here would be a broken
                     // model, reported as a refused window rather than a panic.
                     let refused = SignalFault::Window {
@@ -301,7 +291,7 @@ impl CheckedSignalModel {
             };
         }
         let values = values.get(..n).unwrap_or(&[]);
-        self.model().classify(values).map_err(SignalFault::Reading)
+        self.classify(values).map_err(SignalFault::Reading)
     }
 }
 
@@ -312,7 +302,10 @@ mod tests {
 
     /// A two-channel model whose channel 0 is `feature` of a 12-bit signal of `window`
     /// samples and channel 1 a reading, with channel 0's range wide enough for any value.
-    fn signal_model(feature: crate::features::Feature, window: u16) -> CheckedSignalModel {
+    fn signal_model(
+        feature: crate::features::Feature,
+        window: u16,
+    ) -> CheckedModel<crate::features::SignalSection> {
         use crate::features::{SignalSection, SignalSpec, Source};
         let mut m = crate::model::FixedModel::example_two_channel();
         m.acc_bits = 64;
@@ -336,7 +329,7 @@ mod tests {
             .push(Source::Feature { signal: 0, feature })
             .unwrap();
         signals.sources.push(Source::Reading).unwrap();
-        CheckedSignalModel::new(CheckedModel::new(m).unwrap(), signals).unwrap()
+        CheckedModel::with_inputs(m, signals).unwrap()
     }
 
     #[test]
@@ -388,6 +381,26 @@ mod tests {
         );
     }
 
+    #[test]
+    fn a_model_of_readings_takes_no_window() {
+        // One path for both kinds: without signals a unit is its readings alone.
+        let m = example();
+        for raw in [[900, 100], [1001, 0], [0, 1000]] {
+            assert_eq!(
+                m.classify_windows(&raw, &[]),
+                m.classify(&raw).map_err(SignalFault::Reading)
+            );
+        }
+        assert_eq!(
+            m.classify_windows(&[900, 100], &[&[1]]),
+            Err(SignalFault::Windows {
+                expected: 0,
+                got: 1
+            })
+        );
+        assert_eq!((m.reading_count(), m.signal_count()), (2, 0));
+    }
+
     proptest! {
         /// Windows in, decision out: the same as computing each feature and classifying the
         /// readings it makes, for every feature.
@@ -407,7 +420,7 @@ mod tests {
             let value = CheckedFeature::new(spec, feature).unwrap().compute(&samples).unwrap();
             prop_assert_eq!(
                 m.classify_windows(&[reading], &[&samples]).unwrap(),
-                m.model().classify(&[value, reading]).unwrap()
+                m.classify(&[value, reading]).unwrap()
             );
         }
     }
@@ -458,26 +471,6 @@ mod tests {
         );
         assert!(m.classify(&[1000, 0]).is_ok());
         assert!(m.classify(&[0, 1000]).is_ok());
-    }
-
-    #[test]
-    fn thresholds_at_their_exact_edges() {
-        let mut fm = FixedModel::example_two_channel();
-        fm.nogo_max = -10;
-        fm.go_min = 10;
-        let m = CheckedModel::new(fm).unwrap();
-        let cases = [
-            (-11, Verdict::NoGo),
-            (-10, Verdict::NoGo),
-            (-9, Verdict::Recheck),
-            (0, Verdict::Recheck),
-            (9, Verdict::Recheck),
-            (10, Verdict::Go),
-            (11, Verdict::Go),
-        ];
-        for (score, want) in cases {
-            assert_eq!(m.verdict(score), want, "score {score}");
-        }
     }
 
     fn arb_channel() -> impl Strategy<Value = ChannelSpec> {

@@ -12,13 +12,17 @@
 //!
 //! [`limits`] holds the capacities and layout constants all three share; [`error`] the
 //! error enums. [`features`] reduces a window of raw samples to one integer reading (mean,
-//! RMS, band magnitude…), the same integer on the desk and on the device; a model whose
-//! channels include features ([`CheckedSignalModel`]) carries its signals in the blob
-//! (format version 3, [`blob::decode_signals`]) and classifies with
-//! [`CheckedSignalModel::classify_windows`]; a model without them pays nothing for it. Imports point one way: `limits` ←
-//! `error` ← `features` ← `model` ← `blob`, `kernel`.
-//! 3. [`kernel`]: raw readings → scaled integer inputs → integer score →
-//!    [`Verdict`]. Integer only, explicit widths.
+//! RMS, band magnitude…), the same integer on the desk and on the device. One
+//! [`CheckedModel`] serves both input kinds ([`Inputs`]): `CheckedModel` of [`Readings`]
+//! (the default, nothing held for signals) and `CheckedModel<SignalSection>`, whose
+//! channels may be features of sample windows; one [`blob::encode`] and one
+//! [`blob::decode`] write and read both (format version 3 for a model with signals), and
+//! [`CheckedModel::classify_windows`] classifies a unit of readings and windows. Imports
+//! point one way: `limits` ← `error` ← `features` ← `model` ← `decision` ← `blob`, `kernel`.
+//! 3. [`kernel`]: raw readings → scaled integer inputs → integer score (the arithmetic),
+//!    then [`decision`]: score → [`Verdict`] by the model's [`Thresholds`]. Integer only,
+//!    explicit widths; the two steps are apart so that a rule over several classes can be
+//!    added without touching the arithmetic.
 //!
 //! # Contract
 //!
@@ -38,7 +42,8 @@
 //! let checked = shared_model::CheckedModel::new(model.clone()).unwrap();
 //! let mut buf = [0u8; blob::MAX_BLOB_LEN];
 //! let n = blob::encode(&checked, &mut buf).unwrap();
-//! let back = blob::decode(&buf[..n]).unwrap();
+//! // A station that passes readings alone holds a `CheckedModel` (of `Readings`).
+//! let back: shared_model::CheckedModel = blob::decode(&buf[..n]).unwrap();
 //! assert_eq!(back.model(), checked.model());
 //! let d = back.classify(&[900, 100]).unwrap();
 //! assert_eq!(d.verdict, Verdict::Go);
@@ -75,6 +80,7 @@
 extern crate std;
 
 pub mod blob;
+pub mod decision;
 pub mod error;
 pub mod features;
 #[doc = include_str!("../FORMAT.md")]
@@ -83,9 +89,10 @@ pub mod kernel;
 pub mod limits;
 pub mod model;
 
+pub use decision::{Decision, Thresholds, Verdict};
 pub use error::{
     DecodeError, EncodeError, Fault, ModelError, SignalError, SignalFault, WindowFault,
 };
-pub use kernel::{Decision, Verdict};
+pub use features::SignalSection;
 pub use limits::{MAX_CHANNELS, NAME_CAPACITY};
-pub use model::{AuditMark, ChannelSpec, CheckedModel, CheckedSignalModel, FixedModel};
+pub use model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, Inputs, Readings};

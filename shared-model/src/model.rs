@@ -1,4 +1,5 @@
-//! The fixed-point model: plain data ([`FixedModel`]) and its validated form ([`CheckedModel`]).
+//! The fixed-point model: plain data ([`FixedModel`]) and its validated form ([`CheckedModel`]),
+//! for readings alone ([`Readings`]) or readings and sample windows ([`SignalSection`]).
 //!
 //! Per channel the device turns a raw reading `r` (ADC counts or sensor
 //! integer units) into a scaled integer input
@@ -205,34 +206,151 @@ pub(crate) fn scale_wide(c: &ChannelSpec, raw: i32) -> i128 {
     }
 }
 
-/// A model that passed validation; the kernel runs only on this type.
+/// What feeds a model's channels: the input kind a [`CheckedModel`] is validated for and
+/// a station passes. Two kinds exist and no others can be added outside this crate:
 ///
-/// Holding one is the proof that every reading inside the channels' valid
-/// ranges yields an exact score that fits the declared accumulator.
+/// - [`Readings`]: every channel is a reading (blob format versions 1 and 2). A zero-sized
+///   marker, so a model of readings carries, moves and validates nothing for signals.
+/// - [`SignalSection`]: readings and sample windows; some channels may be features of a
+///   signal's window (versions 3 and 4, and 1 and 2 read with an empty section).
+pub trait Inputs: Clone + core::fmt::Debug + PartialEq + Eq + Default + sealed::Sealed {
+    /// Whether a model of this kind may hold feature channels (and load versions 3 and 4).
+    const WINDOWS: bool;
+
+    /// The signal section, if this kind has one and it is not empty.
+    fn section(&self) -> Option<&SignalSection>;
+
+    /// The section to read a blob's into, in place; `None` where this kind has none.
+    fn section_mut(&mut self) -> Option<&mut SignalSection>;
+
+    /// Checks the inputs against the model's channels (part of [`CheckedModel::with_inputs`]).
+    ///
+    /// # Errors
+    /// [`ModelError::Sources`], [`ModelError::SignalIndex`] or [`ModelError::Signal`].
+    fn check(&self, model: &FixedModel) -> Result<(), ModelError>;
+}
+
+mod sealed {
+    /// Only this crate's input kinds: the blob and the kernel know no others.
+    pub trait Sealed {}
+    impl Sealed for super::Readings {}
+    impl Sealed for super::SignalSection {}
+}
+
+/// The input kind of a model whose channels are all readings (see [`Inputs`]).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Readings;
+
+impl Inputs for Readings {
+    const WINDOWS: bool = false;
+
+    #[inline(always)]
+    fn section(&self) -> Option<&SignalSection> {
+        None
+    }
+
+    #[inline(always)]
+    fn section_mut(&mut self) -> Option<&mut SignalSection> {
+        None
+    }
+
+    #[inline(always)]
+    fn check(&self, _model: &FixedModel) -> Result<(), ModelError> {
+        Ok(())
+    }
+}
+
+impl Inputs for SignalSection {
+    const WINDOWS: bool = true;
+
+    #[inline(always)]
+    fn section(&self) -> Option<&SignalSection> {
+        (!self.is_empty()).then_some(self)
+    }
+
+    #[inline(always)]
+    fn section_mut(&mut self) -> Option<&mut SignalSection> {
+        Some(self)
+    }
+
+    /// One source per channel, every feature's signal present, and every feature proved
+    /// not to overflow for any window of valid samples ([`CheckedFeature::new`]).
+    #[inline(always)]
+    fn check(&self, model: &FixedModel) -> Result<(), ModelError> {
+        if !self.is_empty() && self.sources.len() != model.channels.len() {
+            return Err(ModelError::Sources);
+        }
+        for (i, source) in self.sources.iter().enumerate() {
+            let channel = u8::try_from(i).unwrap_or(u8::MAX);
+            if let Source::Feature { signal, feature } = *source {
+                let spec = self
+                    .signals
+                    .get(usize::from(signal))
+                    .ok_or(ModelError::SignalIndex { channel })?;
+                CheckedFeature::new(*spec, feature)
+                    .map_err(|error| ModelError::Signal { channel, error })?;
+            }
+        }
+        Ok(())
+    }
+}
+
+/// A model that passed validation, with what feeds its channels; the kernel runs only on
+/// this type.
+///
+/// Holding one is the proof that every reading inside the channels' valid ranges yields
+/// an exact score that fits the declared accumulator, and, for a model with signals, that
+/// every feature channel's source is a proved feature of one of its signals.
+///
+/// `I` is the input kind ([`Inputs`]): [`Readings`] (the default; nothing for signals is
+/// held) or [`SignalSection`] (readings and windows). The kind is part of the type, so a
+/// station that passes readings alone cannot load a model that needs windows.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub struct CheckedModel {
+pub struct CheckedModel<I: Inputs = Readings> {
     model: FixedModel,
     /// Every product and sum fits 32 bits: a 32-bit accumulator is declared and proved,
     /// and each channel's conversion product `(r − offset)·multiplier` stays below 2^31
     /// with a shift of at most 31. The kernel then runs in 32-bit arithmetic only (one
     /// instruction per multiply on every 32-bit core, no 64-bit multiply routine).
     narrow: bool,
+    inputs: I,
 }
 
 impl CheckedModel {
-    /// Validates `model` and wraps it.
+    /// Validates a model of readings and wraps it: [`with_inputs`](Self::with_inputs) with
+    /// [`Readings`].
     ///
     /// # Errors
-    /// The first [`ModelError`] found: formats, ranges, conversions, weights,
-    /// threshold order, then the accumulator bound.
+    /// As [`with_inputs`](Self::with_inputs).
+    #[inline(always)]
     pub fn new(model: FixedModel) -> Result<Self, ModelError> {
+        Self::with_inputs(model, Readings)
+    }
+}
+
+impl<I: Inputs> CheckedModel<I> {
+    /// Validates `model` and its `inputs`, once, and wraps them.
+    ///
+    /// # Errors
+    /// The first [`ModelError`] found: formats, ranges, conversions, weights, threshold
+    /// order, the accumulator bound, then the inputs ([`Inputs::check`]).
+    ///
+    /// Always inlined: it moves the model, and on a device every move of it outlined is
+    /// kilobytes of start-up stack.
+    #[inline(always)]
+    pub fn with_inputs(model: FixedModel, inputs: I) -> Result<Self, ModelError> {
         model.validate()?;
+        inputs.check(&model)?;
         let narrow = model.acc_bits == 32
             && model
                 .channels
                 .iter()
                 .all(|c| c.shift <= 31 && conversion_product(c) < 1i128 << 31);
-        Ok(Self { model, narrow })
+        Ok(Self {
+            model,
+            narrow,
+            inputs,
+        })
     }
 
     /// Whether the kernel runs in 32-bit arithmetic only (see the type's docs): the
@@ -246,6 +364,11 @@ impl CheckedModel {
         &self.model
     }
 
+    /// What feeds the channels.
+    pub fn inputs(&self) -> &I {
+        &self.inputs
+    }
+
     /// Gives the plain model back, e.g. to edit and validate again.
     pub fn into_inner(self) -> FixedModel {
         self.model
@@ -255,56 +378,19 @@ impl CheckedModel {
     pub fn channel_count(&self) -> usize {
         self.model.channels.len()
     }
+
+    /// The source of channel `i`: always a reading in a model without signals.
+    pub fn source(&self, i: usize) -> Source {
+        self.inputs
+            .section()
+            .map_or(Source::Reading, |s| s.source(i))
+    }
 }
 
-/// A validated model some of whose channels are features of sample windows: the model and
-/// its [`SignalSection`]. A model whose channels are all readings stays a [`CheckedModel`]
-/// and pays nothing for signals; this type is for the stations that pass windows.
-///
-/// Validation adds to the model's: one source per channel, every feature's signal present,
-/// and every feature proved not to overflow for any window of valid samples
-/// ([`CheckedFeature::new`]).
-#[derive(Clone, Debug, PartialEq, Eq)]
-pub struct CheckedSignalModel {
-    model: CheckedModel,
-    signals: SignalSection,
-}
-
-impl CheckedSignalModel {
-    /// Validates `signals` against `model`.
-    ///
-    /// # Errors
-    /// [`ModelError::Sources`], [`ModelError::SignalIndex`] or [`ModelError::Signal`].
-    ///
-    /// Always inlined: it moves the model, and on a device every move of it outlined is
-    /// kilobytes of start-up stack.
-    #[inline(always)]
-    pub fn new(model: CheckedModel, signals: SignalSection) -> Result<Self, ModelError> {
-        if !signals.is_empty() && signals.sources.len() != model.channel_count() {
-            return Err(ModelError::Sources);
-        }
-        for (i, source) in signals.sources.iter().enumerate() {
-            let channel = u8::try_from(i).unwrap_or(u8::MAX);
-            if let Source::Feature { signal, feature } = *source {
-                let spec = signals
-                    .signals
-                    .get(usize::from(signal))
-                    .ok_or(ModelError::SignalIndex { channel })?;
-                CheckedFeature::new(*spec, feature)
-                    .map_err(|error| ModelError::Signal { channel, error })?;
-            }
-        }
-        Ok(Self { model, signals })
-    }
-
-    /// The model.
-    pub fn model(&self) -> &CheckedModel {
-        &self.model
-    }
-
-    /// The signals and each channel's source.
+impl CheckedModel<SignalSection> {
+    /// The signals and each channel's source (empty when every channel is a reading).
     pub fn signals(&self) -> &SignalSection {
-        &self.signals
+        &self.inputs
     }
 }
 

@@ -26,7 +26,7 @@ struct Slot<T> {
 const CLASSIFIER_TAG: u64 = 0x4C47_4D42_434C_5346; // "LGMBCLSF"
 const STATION_TAG: u64 = 0x4C47_4D42_5354_4E31; // "LGMBSTN1"
 
-type CStation = Station<CSensor, CLine, CLine, CLine>;
+type CStation = Station<'static, CSensor, CLine, CLine, CLine>;
 
 // The storage sizes in the header must hold the values: checked when this crate compiles.
 const _: () = assert!(size_of::<Slot<Classifier>>() <= size_of::<lg_classifier>());
@@ -233,7 +233,7 @@ unsafe fn load(
     let Some(bytes) = (unsafe { bytes_at(region_ptr, len) }) else {
         return lg_status::LG_ERR_NULL;
     };
-    let loaded = match key {
+    let loaded: Result<Classifier, _> = match key {
         #[cfg(feature = "signed")]
         Some(k) => Classifier::from_flash_signed(bytes, k),
         #[cfg(not(feature = "signed"))]

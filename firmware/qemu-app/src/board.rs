@@ -6,7 +6,7 @@ use core::convert::Infallible;
 use core::sync::atomic::{AtomicBool, Ordering};
 
 use embedded_hal::digital::{ErrorType, OutputPin};
-use firmware::SensorSource;
+use firmware::{SensorSource, WindowSource};
 
 // The runtime and the semihosting console of each architecture, under one set of names.
 #[cfg(target_arch = "arm")]
@@ -103,32 +103,58 @@ pub static GO: AtomicBool = AtomicBool::new(false);
 pub static NOGO: AtomicBool = AtomicBool::new(false);
 /// RECHECK line level.
 pub static RECHECK: AtomicBool = AtomicBool::new(false);
+/// Whether a linked-in row is one unit of the loaded model (set once the model is known).
+pub static ROWS_FIT: AtomicBool = AtomicBool::new(false);
 
-/// Plays linked-in vectors as sensor readings, one vector per read.
-pub struct Vectors {
+/// Plays linked-in rows, one unit per row: `read` starts a row and takes its readings,
+/// `fill` takes the next window's samples from the same row (a model of readings asks for
+/// none). A row must hold exactly one unit of the model ([`ROWS_FIT`]), else every read
+/// fails.
+pub struct Rows {
     pub data: &'static [i32],
     pub width: usize,
+    /// The row `read` starts next.
     pub next: usize,
+    /// The row being read, and the position in it.
+    pub row: usize,
+    pub at: usize,
 }
 
-/// The vectors ran out or do not fit the model.
+/// The rows ran out or do not fit the model.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct NoMoreReadings;
 
-impl SensorSource for Vectors {
-    type Error = NoMoreReadings;
-    fn read(&mut self, readings: &mut [i32]) -> Result<(), NoMoreReadings> {
-        if readings.len() != self.width {
-            return Err(NoMoreReadings);
-        }
-        let start = self.next.checked_mul(self.width).ok_or(NoMoreReadings)?;
-        let v = self
+impl Rows {
+    fn take(&mut self, out: &mut [i32]) -> Result<(), NoMoreReadings> {
+        let start = self.row.checked_mul(self.width).ok_or(NoMoreReadings)?;
+        let row = self
             .data
             .get(start..start + self.width)
             .ok_or(NoMoreReadings)?;
-        readings.copy_from_slice(v);
-        self.next += 1;
+        let v = row
+            .get(self.at..self.at + out.len())
+            .ok_or(NoMoreReadings)?;
+        out.copy_from_slice(v);
+        self.at += out.len();
         Ok(())
+    }
+}
+
+impl SensorSource for Rows {
+    type Error = NoMoreReadings;
+    fn read(&mut self, readings: &mut [i32]) -> Result<(), NoMoreReadings> {
+        if !ROWS_FIT.load(Ordering::SeqCst) {
+            return Err(NoMoreReadings);
+        }
+        (self.row, self.at) = (self.next, 0);
+        self.next += 1;
+        self.take(readings)
+    }
+}
+
+impl WindowSource for Rows {
+    fn fill(&mut self, _signal: usize, window: &mut [i32]) -> Result<(), NoMoreReadings> {
+        self.take(window)
     }
 }
 

@@ -1,7 +1,14 @@
 //! Example device application (Cortex-M0, M3, M4F, M33 and RV32IMAC under QEMU; the board
-//! module holds what differs): validates the model blob in flash, classifies the
-//! linked-in vectors, prints one line per vector over semihosting (the same lines
-//! as `linegate replay`), and exits QEMU: 0 after the vectors, 2 on a bad blob.
+//! module holds what differs): validates the model blob in flash, of readings (format
+//! version 1 or 2) or with signal features (3 or 4), classifies the linked-in units, prints
+//! one line per unit over semihosting (the same lines as `linegate replay`), and exits
+//! QEMU: 0 after the units, 1 on a bad blob.
+//!
+//! One station, [`Station::with_windows`], runs both kinds of blob: each row of
+//! LINEGATE_VECTORS is one unit, the reading channels' readings and then every signal's
+//! window of samples in the model's order (a model of readings has no windows, so a row is
+//! its readings). At start it computes every feature of a 1,024-sample window in functions
+//! named `cost_<feature>`, which `footprint.sh` counts in the QEMU trace.
 #![no_std]
 #![no_main]
 
@@ -11,6 +18,7 @@ use board::{debug, entry, hprintln};
 use firmware::{Classifier, Decision, Fault, GoNoGoLines, Station, StationFault, Step};
 #[cfg(target_arch = "arm")]
 use panic_semihosting as _;
+use shared_model::{SignalFault, SignalSection};
 
 /// On RISC-V there is no semihosting panic crate: report and exit with failure.
 #[cfg(target_arch = "riscv32")]
@@ -29,8 +37,98 @@ mod release_key {
     include!(concat!(env!("OUT_DIR"), "/release_key.rs"));
 }
 
+/// Samples the station may hold: every signal's window end to end (the demo's signal
+/// model: 256 vibration and 128 current samples).
+const SAMPLES: usize = 384;
+
+/// Samples of the window the feature costs are measured on.
+const COST_WINDOW: usize = 1024;
+
+/// One feature of a 1,024-sample window of a 12-bit signal.
+#[inline(always)]
+fn feature_of(feature: shared_model::features::Feature, window: &[i32]) -> i32 {
+    use shared_model::features::{CheckedFeature, SignalSpec};
+    let spec = SignalSpec {
+        raw_min: 0,
+        raw_max: 4095,
+        offset: 2048,
+        window: COST_WINDOW as u16,
+    };
+    CheckedFeature::new(spec, feature)
+        .ok()
+        .and_then(|f| f.compute(window).ok())
+        .unwrap_or(i32::MIN)
+}
+
+/// One function per feature, not inlined, named after it: the footprint script counts each
+/// one's instructions in the QEMU trace.
+macro_rules! cost {
+    ($($name:ident => $feature:expr;)*) => {$(
+        #[inline(never)]
+        fn $name(window: &[i32]) -> i32 {
+            use shared_model::features::Feature;
+            feature_of($feature, window)
+        }
+    )*};
+}
+
+cost! {
+    cost_mean => Feature::Mean;
+    cost_rms => Feature::Rms;
+    cost_min => Feature::Min;
+    cost_max => Feature::Max;
+    cost_peak_to_peak => Feature::PeakToPeak;
+    cost_abs_peak => Feature::AbsPeak;
+    cost_std_dev => Feature::StdDev;
+    cost_zero_crossings => Feature::ZeroCrossings;
+    // Bin 64 of 1024: round(2cos(2π/16)·2²⁹).
+    cost_band => Feature::Band { coeff: 992_008_094 };
+}
+
+/// Every feature once on a 1,024-sample window of a 12-bit signal (a tone and a ramp),
+/// with the stack each takes, for the footprint report. Not inlined: its 4 KiB window
+/// must not stay in `main`'s frame beside the station.
+#[inline(never)]
+fn feature_costs() {
+    let mut window = [0i32; COST_WINDOW];
+    for (i, s) in window.iter_mut().enumerate() {
+        // Bin 64's tone plus a slow ramp, in integers: a triangle of period 16.
+        let t = (i % 16) as i32;
+        let tri = if t < 8 { t } else { 16 - t };
+        *s = 2048 + (tri - 4) * 200 + (i as i32 % 97);
+    }
+    let window = core::hint::black_box(&window[..]);
+    let top = board::stack_pointer();
+    let painted = board::paint_stack(top);
+    let values = [
+        cost_mean(window),
+        cost_rms(window),
+        cost_min(window),
+        cost_max(window),
+        cost_peak_to_peak(window),
+        cost_abs_peak(window),
+        cost_std_dev(window),
+        cost_zero_crossings(window),
+        cost_band(window),
+    ];
+    let stack = board::stack_used(painted, top);
+    hprintln!("# features of a 1024-sample window: {:?}", values);
+    hprintln!(
+        "# stack bytes used by a feature of a 1024-sample window: {}",
+        stack
+    );
+}
+
 #[entry]
 fn main() -> ! {
+    feature_costs();
+    run()
+}
+
+/// The station over the linked-in units. Its own frame, not `main`'s: the feature costs'
+/// 4 KiB window must not stand on the stack beside the station (16 KiB on the M0 board).
+#[inline(never)]
+fn run() -> ! {
     let lines = match GoNoGoLines::new(
         board::Line(&board::GO),
         board::Line(&board::NOGO),
@@ -39,36 +137,53 @@ fn main() -> ! {
         Ok(l) => l,
         Err(e) => match e {},
     };
-    let sensor = board::Vectors {
+    let rows = board::Rows {
         data: &vectors::VECTORS,
         width: vectors::WIDTH,
         next: 0,
+        row: 0,
+        at: 0,
     };
     // A signed-release build (a key compiled in) loads only blobs signed with that key; a key
     // that is not a valid point loads nothing, so the station holds NO-GO.
     let key = release_key::RELEASE_KEY.map(|k| firmware::ReleaseKey::from_bytes(&k));
     // Stack for start-up (the blob's validation), counted from reset: main's own frame
-    // (which holds the station) included, so it is all the RAM the application needs.
+    // (which holds the station and its sample buffer) included, so it is all the RAM the
+    // application needs.
     let painted = board::paint_stack(board::stack_pointer());
-    let mut station = match key {
-        None => Station::new(board::model_region(), sensor, lines),
-        Some(Some(k)) => Station::with_key(board::model_region(), Some(k), sensor, lines),
-        Some(None) => Station::new(&[], sensor, lines),
+    let mut samples = [0i32; SAMPLES];
+    // One construction site: each would hold its own station in main's frame.
+    let (region, key) = match key {
+        None => (board::model_region(), None),
+        Some(Some(k)) => (board::model_region(), Some(k)),
+        Some(None) => (&[][..], None),
     };
+    let mut station = Station::with_windows(region, key, &mut samples, rows, lines);
     let startup = board::stack_used(painted, board::stack_start());
-    if let Ok(c) = station.classifier() {
-        board::model_line(
-            &c.model_id(),
-            c.blob_id(),
-            c.key_id().as_ref().map(|k| &k[..]),
-        );
-    }
-    if let Err(e) = station.classifier() {
-        let _ = station.step();
-        hprintln!("FAULT blob: {}", e);
-        report_lines();
-        debug::exit(Err(()));
-        board::idle()
+    match station.classifier() {
+        Ok(c) => {
+            board::model_line(
+                &c.model_id(),
+                c.blob_id(),
+                c.key_id().as_ref().map(|k| &k[..]),
+            );
+            let m = c.model();
+            let windows: usize = m
+                .signals()
+                .signals
+                .iter()
+                .map(|s| usize::from(s.window))
+                .sum();
+            let fits = m.reading_count() + windows == vectors::WIDTH;
+            board::ROWS_FIT.store(fits, core::sync::atomic::Ordering::SeqCst);
+        }
+        Err(e) => {
+            let _ = station.step();
+            hprintln!("FAULT blob: {}", e);
+            report_lines();
+            debug::exit(Err(()));
+            board::idle()
+        }
     }
     let count = vectors::VECTORS
         .len()
@@ -80,11 +195,13 @@ fn main() -> ! {
         let painted = board::paint_stack(top);
         let step = station.step();
         deepest = deepest.max(board::stack_used(painted, top));
-        // The kernel alone, once more, behind a call boundary the footprint script can count.
+        // The kernel alone, once more, behind a call boundary the footprint script can count
+        // (a model of readings: its row is one reading per channel).
         if let (Ok(c), Some(v)) = (
             station.classifier(),
             vectors::VECTORS.get(i * vectors::WIDTH..(i + 1) * vectors::WIDTH),
-        ) {
+        ) && c.model().signal_count() == 0
+        {
             let _ = core::hint::black_box(classify_once(c, v));
             // And the dot-product stage alone, on inputs already scaled.
             let mut x = [0i32; shared_model::MAX_CHANNELS];
@@ -97,11 +214,13 @@ fn main() -> ! {
         match step {
             Ok(Step::Decided(d)) => hprintln!("{} {} {}", i, d.verdict.as_str(), d.score),
             Ok(Step::Faulted {
-                fault: StationFault::Reading(shared_model::Fault::OutOfRange { channel, .. }),
+                fault: StationFault::Reading(Fault::OutOfRange { channel, .. }),
                 ..
-            }) => {
-                hprintln!("{} FAULT ch{}", i, channel)
-            }
+            }) => hprintln!("{} FAULT ch{}", i, channel),
+            Ok(Step::Faulted {
+                fault: StationFault::Window(SignalFault::Window { signal, .. }),
+                ..
+            }) => hprintln!("{} FAULT signal{}", i, signal),
             Ok(Step::Faulted { .. }) => hprintln!("{} FAULT count", i),
             Err(e) => match e {},
         }
@@ -118,13 +237,13 @@ fn main() -> ! {
 
 /// One classification by the shared kernel (not inlined, so its instructions can be counted).
 #[inline(never)]
-fn classify_once(c: &Classifier, raw: &[i32]) -> Result<Decision, Fault> {
+fn classify_once(c: &Classifier<SignalSection>, raw: &[i32]) -> Result<Decision, Fault> {
     c.classify(raw)
 }
 
 /// The dot-product stage only: bias + Σ weight·x over scaled inputs (not inlined, to be counted).
 #[inline(never)]
-fn score_once(c: &Classifier, x: &[i32]) -> i64 {
+fn score_once(c: &Classifier<SignalSection>, x: &[i32]) -> i64 {
     c.model().score_scaled(x)
 }
 

@@ -80,11 +80,11 @@ impl ReplayArgs {
                 blob.display()
             );
         }
-        let mut sink = Sink::new(replay::model_line(m.model(), &bytes), self.output.is_some());
+        let mut sink = Sink::new(replay::model_line(&m, &bytes), self.output.is_some());
         let mut vec_text = self
             .vectors
             .as_ref()
-            .map(|_| replay::model_line(m.model(), &bytes));
+            .map(|_| replay::model_line(&m, &bytes));
         let mut skipped = host_trainer::ingest::SkipReport::default();
         // New units have no verdict yet: replay scores logs without a label column.
         // Replay prints no digest of the log, so it hashes none.
@@ -95,31 +95,17 @@ impl ReplayArgs {
                 .log_args
                 .options_for_model(quiet, &fm, model, &mut settings)
         };
-        let streamed = if fm.signals.is_empty() {
-            let mut index = 0usize;
-            host_trainer::ingest::stream_units(&self.log, &opts, &fm.channels, &mut skipped, |u| {
-                sink.line(&replay::line(index, m.model(), u.raw));
-                if let Some(t) = vec_text.as_mut() {
-                    let row: Vec<String> = u.raw.iter().map(|r| r.to_string()).collect();
-                    t.push_str(&row.join(" "));
-                    t.push('\n');
-                }
-                index += 1;
-                Ok(())
-            })
-            .map(drop)
-        } else {
-            // Each unit's windows go to the device's entry point; the vectors hold the
-            // reading channels' raw readings and then every signal's window, as the example
-            // device application takes them.
-            replay::replay_signal_log(&self.log, &opts, &fm, &m, &mut skipped, |line, raw, w| {
+        // A bench log or a signal log, as the float model says; the vectors hold each
+        // unit's reading channels' raw readings and then every signal's window, as the
+        // example device application takes them.
+        let streamed =
+            replay::replay_log(&self.log, &opts, &fm, &m, &mut skipped, |line, raw, w| {
                 sink.line(line);
                 if let Some(t) = vec_text.as_mut() {
-                    t.push_str(&replay::signal_vector(raw, w));
+                    t.push_str(&replay::vector(raw, w));
                     t.push('\n');
                 }
-            })
-        };
+            });
         // On standard output the lines before an error are the device's too: they go out
         // before the error (none if the log failed before its first unit).
         let text = sink.finish(streamed.is_ok());

@@ -9,7 +9,10 @@ use host_trainer::ingest::{LogOptions, SkipReport};
 use host_trainer::release::values::{self, ChannelInfo, Selection, UnitValues};
 use host_trainer::release::{matching, replay};
 use host_trainer::train::float_model::FloatModel;
-use shared_model::CheckedSignalModel;
+use shared_model::{CheckedModel, SignalSection};
+
+/// The blob's model: of readings or with signal features.
+type Model = CheckedModel<SignalSection>;
 
 use super::args::LogArgs;
 use super::{CheckFailed, shown, to_json};
@@ -121,10 +124,7 @@ impl ValuesArgs {
     /// The blob checked against the model as replay checks it, or the model quantised
     /// plainly; with the blob's id (its CRC-32, hex) and replay's model line when there is
     /// a blob.
-    fn device_model(
-        &self,
-        fm: &FloatModel,
-    ) -> Result<(CheckedSignalModel, Option<(String, String)>)> {
+    fn device_model(&self, fm: &FloatModel) -> Result<(Model, Option<(String, String)>)> {
         let Some(path) = &self.blob else {
             let m = values::plain_model(fm, self.input_bits, self.weight_bits)?;
             return Ok((m, None));
@@ -145,13 +145,13 @@ impl ValuesArgs {
             ))),
         })?;
         let id = format!("{:08x}", shared_model::blob::blob_id(&bytes).unwrap_or(0));
-        let line = replay::model_line(m.model(), &bytes).trim_end().to_string();
+        let line = replay::model_line(&m, &bytes).trim_end().to_string();
         Ok((m, Some((id, line))))
     }
 
     /// The table's first line: replay's model line, or what stands in for the blob.
-    fn head(&self, model_line: Option<&str>, model: &CheckedSignalModel) -> String {
-        let id = host_trainer::digest::lower_hex(&model.model().model().model_id);
+    fn head(&self, model_line: Option<&str>, model: &Model) -> String {
+        let id = host_trainer::digest::lower_hex(&model.model().model_id);
         match model_line {
             Some(line) => line.to_string(),
             None => format!(
@@ -171,13 +171,8 @@ fn physical_text(v: Option<f64>, lsb: f64) -> String {
 
 /// The readable table: per unit a heading with its score and replay line, then one row per
 /// channel.
-fn table(
-    model: &CheckedSignalModel,
-    head: String,
-    info: &[ChannelInfo],
-    units: &[UnitValues],
-) -> String {
-    let q = model.model().model().input_bits - 1;
+fn table(model: &Model, head: String, info: &[ChannelInfo], units: &[UnitValues]) -> String {
+    let q = model.model().input_bits - 1;
     let mut out = format!(
         "{head}\n# physical = zero + lsb·raw (a reading: the log's value at the channel's resolution); raw: counts (a feature: its integer); scaled: the kernel's Q{q} input word\n"
     );
@@ -283,12 +278,12 @@ fn csv(info: &[ChannelInfo], units: &[UnitValues]) -> Result<String> {
 /// The model's channels and conversions, then every unit with its channels.
 fn json(
     fm: &FloatModel,
-    model: &CheckedSignalModel,
+    model: &Model,
     (blob_id, model_line): (Option<&str>, Option<&str>),
     info: &[ChannelInfo],
     units: &[UnitValues],
 ) -> String {
-    let m = model.model().model();
+    let m = model.model();
     let units: Vec<serde_json::Value> = units
         .iter()
         .map(|u| {

@@ -237,13 +237,14 @@ fn replay(
     out: &Path,
     prefix: &str,
 ) -> Result<(String, String, usize, usize), DemoError> {
-    use crate::release::replay::{line, model_line, replay_signal_log, signal_vector};
+    use crate::release::replay::{line, model_line, replay_log, vector};
     let refused = |e: shared_model::DecodeError| OutputError::Io {
         path: out.join(format!("{prefix}model.lgmb")),
         source: std::io::Error::other(e.to_string()),
     };
-    let model = shared_model::blob::decode_signals(blob).map_err(refused)?;
-    let mut lines = model_line(model.model(), blob);
+    let model: shared_model::CheckedModel<shared_model::SignalSection> =
+        shared_model::blob::decode(blob).map_err(refused)?;
+    let mut lines = model_line(&model, blob);
     let mut vectors = lines.clone();
     let (mut units, mut faults) = (0usize, 0usize);
     let mut each = |l: &str, v: String| {
@@ -256,11 +257,10 @@ fn replay(
         Replayed::Units(ds) => {
             for i in 0..ds.len() {
                 let raw = ds.raw_row(i);
-                let v: Vec<String> = raw.iter().map(i32::to_string).collect();
-                each(&line(i, model.model(), raw), v.join(" "));
+                each(&line(i, &model, raw, &[]), vector(raw, &[]));
             }
         }
-        Replayed::File(path) => replay_signal_log(
+        Replayed::File(path) => replay_log(
             path,
             &LogOptions {
                 label_optional: true,
@@ -269,7 +269,7 @@ fn replay(
             fm,
             &model,
             &mut Default::default(),
-            |l, raw, windows| each(l, signal_vector(raw, windows)),
+            |l, raw, windows| each(l, vector(raw, windows)),
         )?,
     }
     Ok((lines, vectors, units, faults))

@@ -1,7 +1,7 @@
 //! The blob release: the bytes `pack` writes for an audit outcome, marked passed or
 //! overridden and signed when a release key is given.
 
-use shared_model::{CheckedModel, CheckedSignalModel};
+use shared_model::{CheckedModel, Inputs, SignalSection};
 
 use crate::release::quantise::Quantised;
 
@@ -25,18 +25,22 @@ pub fn released_blob(
 ) -> Vec<u8> {
     let marked = mark(&q.model, release_mark(passed));
     if q.signals.is_empty() {
-        return match signer {
-            Some(k) => crate::release::sign::signed_blob(&marked, k),
-            None => crate::release::pack::blob_bytes(&marked),
-        };
+        return bytes(&marked, signer);
     }
     // A model with signals is never written without them: were the pair refused (which
     // `quantise` rules out), the blob would be empty and refused everywhere, not a blob
     // whose features a station would take for readings.
-    match (with_signals(q, marked), signer) {
-        (Some(m), Some(k)) => crate::release::sign::signed_signal_blob(&m, k),
-        (Some(m), None) => crate::release::pack::signal_blob_bytes(&m),
-        (None, _) => Vec::new(),
+    match with_signals(q, marked) {
+        Some(m) => bytes(&m, signer),
+        None => Vec::new(),
+    }
+}
+
+/// The blob of `model`, signed when a key is given.
+fn bytes<I: Inputs>(model: &CheckedModel<I>, signer: Option<&ed25519_dalek::SigningKey>) -> Vec<u8> {
+    match signer {
+        Some(k) => crate::release::sign::signed_blob(model, k),
+        None => crate::release::pack::blob_bytes(model),
     }
 }
 
@@ -51,11 +55,11 @@ pub fn mark(model: &CheckedModel, mark: shared_model::AuditMark) -> CheckedModel
 /// `None` for a model of readings, or if the pair were refused, which `quantise` rules out:
 /// it validated the same section against the same channels, and a mark or a move of the
 /// weights changes no channel's range.
-fn with_signals(q: &Quantised, model: CheckedModel) -> Option<CheckedSignalModel> {
+fn with_signals(q: &Quantised, model: CheckedModel) -> Option<CheckedModel<SignalSection>> {
     if q.signals.is_empty() {
         return None;
     }
-    CheckedSignalModel::new(model, q.signals.clone()).ok()
+    CheckedModel::with_inputs(model.into_inner(), q.signals.clone()).ok()
 }
 
 #[cfg(test)]

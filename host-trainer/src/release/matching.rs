@@ -14,8 +14,8 @@
 //! (the search never moves a value by more than one), and the first field that differs is
 //! named.
 
+use shared_model::CheckedModel;
 use shared_model::features::SignalSection;
-use shared_model::{CheckedModel, CheckedSignalModel};
 
 use crate::release::quantise::{QuantConfig, quantise};
 use crate::train::float_model::FloatModel;
@@ -96,11 +96,8 @@ pub enum Mismatch {
 ///
 /// # Errors
 /// [`Mismatch`] naming that field.
-pub fn check(
-    fm: &FloatModel,
-    model: &CheckedModel,
-    signals: &SignalSection,
-) -> Result<(), Mismatch> {
+pub fn check(fm: &FloatModel, model: &CheckedModel<SignalSection>) -> Result<(), Mismatch> {
+    let signals = model.signals();
     if signals.is_empty() != fm.signals.is_empty() {
         return Err(Mismatch::Signals {
             blob_has_signals: !signals.is_empty(),
@@ -236,9 +233,12 @@ pub fn check(
 ///
 /// # Errors
 /// The blob's [`shared_model::DecodeError`] as a string, or the [`Mismatch`].
-pub fn decode_from(fm: &FloatModel, bytes: &[u8]) -> Result<CheckedSignalModel, BlobMismatch> {
-    let m = shared_model::blob::decode_signals(bytes).map_err(BlobMismatch::Decode)?;
-    check(fm, m.model(), m.signals())?;
+pub fn decode_from(
+    fm: &FloatModel,
+    bytes: &[u8],
+) -> Result<CheckedModel<SignalSection>, BlobMismatch> {
+    let m = shared_model::blob::decode(bytes).map_err(BlobMismatch::Decode)?;
+    check(fm, &m)?;
     Ok(m)
 }
 

@@ -2,21 +2,14 @@
 
 use serde::Serialize;
 use shared_model::features::{SignalSpec, Source};
-use shared_model::{ChannelSpec, CheckedModel, CheckedSignalModel, DecodeError, blob};
+use shared_model::{ChannelSpec, CheckedModel, DecodeError, Inputs, SignalSection, blob};
 
-/// The blob bytes of a model.
-pub fn blob_bytes(model: &CheckedModel) -> Vec<u8> {
+/// The blob bytes of a model (format version 1, or 3 with signal features).
+pub fn blob_bytes<I: Inputs>(model: &CheckedModel<I>) -> Vec<u8> {
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
-    // MAX_BLOB_LEN holds any valid model, so encode cannot fail here.
+    // MAX_BLOB_LEN holds any valid model with its largest signal section, so encode
+    // cannot fail here.
     let n = blob::encode(model, &mut buf).unwrap_or(0);
-    buf[..n].to_vec()
-}
-
-/// The blob bytes of a model with signal features (format version 3).
-pub fn signal_blob_bytes(model: &CheckedSignalModel) -> Vec<u8> {
-    let mut buf = [0u8; blob::MAX_BLOB_LEN];
-    // MAX_BLOB_LEN holds any valid model with its largest signal section.
-    let n = blob::encode_signals(model, &mut buf).unwrap_or(0);
     buf[..n].to_vec()
 }
 
@@ -84,12 +77,8 @@ pub struct Inspection {
 
 /// Decodes a blob of any format version for display; a corrupt blob still shows what can
 /// be read.
-pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) {
-    let with_signals = blob::decode_signals(bytes);
-    let decoded = with_signals
-        .as_ref()
-        .map(|m| m.model().clone())
-        .map_err(|e| *e);
+pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel<SignalSection>, DecodeError>) {
+    let decoded = blob::decode::<SignalSection>(bytes);
     let header = blob::Header::read(bytes).ok();
     let (mut crc_stored, mut crc_computed) = (None, None);
     if let Some(h) = header {
@@ -128,11 +117,9 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel, DecodeError>) 
         signals: Vec::new(),
         sources: Vec::new(),
     };
-    if let Ok(m) = &with_signals {
+    if let Ok(m) = &decoded {
         ins.signals = m.signals().signals.iter().copied().collect();
         ins.sources = m.signals().sources.iter().copied().collect();
-    }
-    if let Ok(m) = &decoded {
         ins.narrow = Some(m.is_narrow());
         let m = m.model();
         ins.model_id = Some(crate::digest::lower_hex(&m.model_id));

@@ -19,9 +19,7 @@
 
 use rayon::prelude::*;
 use shared_model::features::SignalSection;
-use shared_model::{
-    AuditMark, ChannelSpec, CheckedModel, CheckedSignalModel, FixedModel, ModelError,
-};
+use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
 
 use crate::ingest::dataset::{Dataset, RawForm};
 use crate::train::float_model::FloatModel;
@@ -207,7 +205,7 @@ pub fn quantise(
     let plain = CheckedModel::new(model.clone())?;
     let signals = fm.signal_section();
     if !signals.is_empty() {
-        CheckedSignalModel::new(plain.clone(), signals.clone())?;
+        CheckedModel::with_inputs(model.clone(), signals.clone())?;
     }
     let mut q = Quantised {
         signals,

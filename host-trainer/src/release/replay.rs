@@ -5,32 +5,29 @@
 //! `<index> <GO|NO-GO|RECHECK> <score>` or `<index> FAULT ch<channel>`; for a model with
 //! signal features also `<index> FAULT signal<k>` (a window refused: a sample out of range,
 //! or a window shorter or longer than declared).
+//!
+//! One path for both kinds of model: a unit is its reading channels' raw readings and one
+//! window per signal (none for a model of readings), classified by the kernel's
+//! `classify_windows` ([`line()`]); [`replay_log`] reads a bench log or a signal log, as the
+//! float model says, and hands each unit's line and vector on.
 
-use shared_model::{CheckedModel, CheckedSignalModel, Fault, SignalFault};
+use shared_model::{CheckedModel, Fault, Inputs, SignalFault, SignalSection};
 
 use std::path::Path;
 
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
 use crate::ingest::signals::{ReadFor, device_readings, reading_channels, stream_signal_units};
-use crate::ingest::{LogOptions, SkipReport};
+use crate::ingest::{LogOptions, SkipReport, stream_units};
 use crate::train::float_model::FloatModel;
 
-/// The device's line for one set of raw readings.
-pub fn line(index: usize, model: &CheckedModel, raw: &[i32]) -> String {
-    match model.classify(raw) {
-        Ok(d) => format!("{index} {} {}", d.verdict.as_str(), d.score),
-        Err(Fault::OutOfRange { channel, .. }) => format!("{index} FAULT ch{channel}"),
-        Err(Fault::ReadingCount { .. }) => format!("{index} FAULT count"),
-    }
-}
-
-/// The device's line for one unit of a model with signal features: its reading channels'
-/// raw readings and one window per signal. A refused window is `FAULT signal<k>` (k the
-/// signal's index), a refused reading `FAULT ch<channel>`.
-pub fn signal_line(
+/// The device's line for one unit: its reading channels' raw readings (every channel's,
+/// for a model of readings) and one window per signal (none for a model of readings). A
+/// refused reading is `FAULT ch<channel>`, a refused window `FAULT signal<k>` (k the
+/// signal's index), a wrong reading count `FAULT count`.
+pub fn line<I: Inputs>(
     index: usize,
-    model: &CheckedSignalModel,
+    model: &CheckedModel<I>,
     readings: &[i32],
     windows: &[&[i32]],
 ) -> String {
@@ -39,34 +36,45 @@ pub fn signal_line(
         Err(SignalFault::Reading(Fault::OutOfRange { channel, .. })) => {
             format!("{index} FAULT ch{channel}")
         }
+        Err(SignalFault::Reading(Fault::ReadingCount { .. })) => format!("{index} FAULT count"),
         Err(SignalFault::Window { signal, .. }) => format!("{index} FAULT signal{signal}"),
         Err(_) => format!("{index} FAULT other"),
     }
 }
 
-/// Replays a signal log through `model` (a model with signal features, from the float
-/// model `fm`) as the device runs it: per unit in log order, `each` gets the device's line
-/// ([`signal_line`]) and the unit's raw readings and windows (for [`signal_vector`]).
+/// Replays a log through `model` (decoded from a blob of the float model `fm`) as the
+/// device runs it: a bench log for a model of readings, a signal log for a model with
+/// signal features. Per unit in log order, `each` gets the device's line ([`line()`]) and
+/// the unit's raw readings and windows (for [`vector`]; no windows for a bench log).
 ///
 /// # Errors
-/// The log's [`InputError`]: a unit that is not whole, unless skipped into `skipped`.
-pub fn replay_signal_log(
+/// The log's [`InputError`]: a row (or a unit) that cannot be read, unless skipped into
+/// `skipped`.
+pub fn replay_log(
     path: &Path,
     opts: &LogOptions,
     fm: &FloatModel,
-    model: &CheckedSignalModel,
+    model: &CheckedModel<SignalSection>,
     skipped: &mut SkipReport,
-    mut each: impl FnMut(&str, &[i32], &[Vec<i32>]),
+    mut each: impl FnMut(&str, &[i32], &[Vec<i32>]) + Send,
 ) -> Result<(), InputError> {
+    let mut index = 0usize;
+    if fm.signals.is_empty() {
+        stream_units(path, opts, &fm.channels, skipped, |u| {
+            each(&line(index, model, u.raw, &[]), u.raw, &[]);
+            index += 1;
+            Ok(())
+        })?;
+        return Ok(());
+    }
     let names: Vec<String> = reading_channels(&fm.channels)
         .map(|c| c.name.clone())
         .collect();
-    let mut index = 0usize;
     let read_for = ReadFor::Model { readings: &names };
     stream_signal_units(path, opts, &fm.signals, read_for, skipped, |u| {
         let raw = device_readings(&fm.channels, u);
         let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
-        each(&signal_line(index, model, &raw, &windows), &raw, u.windows);
+        each(&line(index, model, &raw, &windows), &raw, u.windows);
         index += 1;
         Ok(())
     })?;
@@ -74,8 +82,9 @@ pub fn replay_signal_log(
 }
 
 /// One unit as the example device takes it from its vectors: the reading channels' raw
-/// readings, then every signal's window, separated by spaces.
-pub fn signal_vector(readings: &[i32], windows: &[Vec<i32>]) -> String {
+/// readings, then every signal's window (none for a model of readings), separated by
+/// spaces.
+pub fn vector(readings: &[i32], windows: &[Vec<i32>]) -> String {
     let row: Vec<String> = readings
         .iter()
         .chain(windows.iter().flatten())
@@ -86,7 +95,7 @@ pub fn signal_vector(readings: &[i32], windows: &[Vec<i32>]) -> String {
 
 /// The first line, `# model <id> blob <blob id>`, with ` key <key id>` for a signed blob,
 /// as the device prints it; `blob` is the blob the model came from.
-pub fn model_line(model: &CheckedModel, blob: &[u8]) -> String {
+pub fn model_line<I: Inputs>(model: &CheckedModel<I>, blob: &[u8]) -> String {
     let key = shared_model::blob::signature(blob).map_or(String::new(), |s| {
         format!(" key {}", crate::digest::lower_hex(&s.key_id))
     });
@@ -97,11 +106,12 @@ pub fn model_line(model: &CheckedModel, blob: &[u8]) -> String {
     )
 }
 
-/// The model line, then every unit's line (trailing newline included).
+/// The model line, then every unit's line of a bench log already read (trailing newline
+/// included).
 pub fn replay(model: &CheckedModel, ds: &Dataset) -> String {
     let mut out = model_line(model, &crate::release::pack::blob_bytes(model));
     for i in 0..ds.len() {
-        out.push_str(&line(i, model, ds.raw_row(i)));
+        out.push_str(&line(i, model, ds.raw_row(i), &[]));
         out.push('\n');
     }
     out
@@ -112,8 +122,7 @@ pub fn replay(model: &CheckedModel, ds: &Dataset) -> String {
 pub fn vectors(model: &CheckedModel, ds: &Dataset) -> String {
     let mut out = model_line(model, &crate::release::pack::blob_bytes(model));
     for i in 0..ds.len() {
-        let row: Vec<String> = ds.raw_row(i).iter().map(|r| r.to_string()).collect();
-        out.push_str(&row.join(" "));
+        out.push_str(&vector(ds.raw_row(i), &[]));
         out.push('\n');
     }
     out

@@ -6,7 +6,7 @@
 //! [`stream_signal_units`] for a model, refused windows kept), and every number comes from
 //! the code the device runs: features from [`CheckedFeature::compute`], scaled inputs from
 //! [`CheckedModel::scale`](shared_model::CheckedModel::scale), the score from the kernel's
-//! classification, the line from [`replay::line`] / [`replay::signal_line`]. So what this
+//! classification, the line from [`replay::line()`]. So what this
 //! shows is what the device computed, channel by channel, including which channel it refused.
 
 use std::collections::BTreeSet;
@@ -14,7 +14,7 @@ use std::path::Path;
 
 use serde::Serialize;
 use shared_model::features::{CheckedFeature, Source};
-use shared_model::{CheckedSignalModel, SignalFault, WindowFault};
+use shared_model::{CheckedModel, SignalFault, SignalSection, WindowFault};
 
 use crate::error::InputError;
 use crate::ingest::scaling::ChannelScale;
@@ -158,10 +158,10 @@ pub struct ChannelInfo {
 
 /// The channels of `model` (conversions from the blob) with the names, units and physical
 /// conversions of the float model `fm` they match.
-pub fn channel_info(fm: &FloatModel, model: &CheckedSignalModel) -> Vec<ChannelInfo> {
+pub fn channel_info(fm: &FloatModel, model: &CheckedModel<SignalSection>) -> Vec<ChannelInfo> {
     fm.channels
         .iter()
-        .zip(&model.model().model().channels)
+        .zip(&model.model().channels)
         .map(|(c, b)| ChannelInfo {
             name: c.name.clone(),
             source: source_name(c),
@@ -189,7 +189,7 @@ pub fn plain_model(
     fm: &FloatModel,
     input_bits: u8,
     weight_bits: u8,
-) -> Result<CheckedSignalModel, QuantError> {
+) -> Result<CheckedModel<SignalSection>, QuantError> {
     let q = quantise(
         fm,
         None,
@@ -202,7 +202,7 @@ pub fn plain_model(
         },
     )?;
     // `quantise` validated the section against these channels, so the pair is accepted.
-    Ok(CheckedSignalModel::new(q.model, q.signals)?)
+    Ok(CheckedModel::with_inputs(q.model.into_inner(), q.signals)?)
 }
 
 /// `reading`, or `<feature> of <signal>`.
@@ -224,7 +224,7 @@ pub fn unit_values(
     log: &Path,
     opts: &LogOptions,
     fm: &FloatModel,
-    model: &CheckedSignalModel,
+    model: &CheckedModel<SignalSection>,
     sel: &Selection,
     skipped: &mut SkipReport,
 ) -> Result<Vec<UnitValues>, ValuesError> {
@@ -331,19 +331,19 @@ fn reading_unit(
     line: u64,
     unit_id: Option<String>,
     fm: &FloatModel,
-    model: &CheckedSignalModel,
+    model: &CheckedModel<SignalSection>,
     raw: &[i32],
 ) -> UnitValues {
     let raws: Vec<Result<i32, ChannelFault>> = raw.iter().map(|&r| Ok(r)).collect();
     let channels = channel_values(fm, model, &raws);
-    let decision = model.model().classify(raw).ok();
+    let decision = model.classify(raw).ok();
     finish(
         index,
         line,
         unit_id,
         channels,
         decision.map(|d| d.score),
-        replay::line(index, model.model(), raw),
+        replay::line(index, model, raw, &[]),
     )
 }
 
@@ -353,13 +353,13 @@ fn signal_unit(
     line: u64,
     unit_id: &str,
     fm: &FloatModel,
-    model: &CheckedSignalModel,
+    model: &CheckedModel<SignalSection>,
     readings: &[i32],
     windows: &[Vec<i32>],
 ) -> UnitValues {
     let section = model.signals();
     let mut next = readings.iter();
-    let raws: Vec<Result<i32, ChannelFault>> = (0..model.model().channel_count())
+    let raws: Vec<Result<i32, ChannelFault>> = (0..model.channel_count())
         .map(|i| match section.source(i) {
             Source::Reading => Ok(next.next().copied().unwrap_or(0)),
             Source::Feature { signal, feature } => {
@@ -383,7 +383,7 @@ fn signal_unit(
         Some(unit_id.to_string()),
         channels,
         decision.ok().map(|d| d.score),
-        replay::signal_line(index, model, readings, &slices),
+        replay::line(index, model, readings, &slices),
     )
 }
 
@@ -393,10 +393,10 @@ fn signal_unit(
 /// the valid range by validation), so a refused channel does not hide the others' inputs.
 fn channel_values(
     fm: &FloatModel,
-    model: &CheckedSignalModel,
+    model: &CheckedModel<SignalSection>,
     raws: &[Result<i32, ChannelFault>],
 ) -> Vec<ChannelValue> {
-    let specs = &model.model().model().channels;
+    let specs = &model.model().channels;
     let mut probe = Vec::with_capacity(raws.len());
     let mut faults = Vec::with_capacity(raws.len());
     for (r, c) in raws.iter().zip(specs) {
@@ -413,7 +413,7 @@ fn channel_values(
     }
     let mut scaled = vec![0i32; probe.len()];
     // `probe` holds one in-range value per channel, so `scale` cannot refuse it.
-    let ok = model.model().scale(&probe, &mut scaled).is_ok();
+    let ok = model.scale(&probe, &mut scaled).is_ok();
     raws.iter()
         .zip(&fm.channels)
         .zip(faults.into_iter().zip(scaled))

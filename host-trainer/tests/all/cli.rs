@@ -796,7 +796,10 @@ fn an_edited_model_file_is_refused_and_a_rewritten_blob_fails_inspect_against_th
     // A blob whose thresholds were rewritten and whose CRC was recomputed decodes, but is
     // not the audited blob.
     let blob = std::fs::read(d.join("demo/model.lgmb")).unwrap();
-    let mut m = shared_model::blob::decode(&blob).unwrap().model().clone();
+    let mut m = shared_model::blob::decode::<shared_model::Readings>(&blob)
+        .unwrap()
+        .model()
+        .clone();
     m.nogo_max = i64::MIN;
     m.go_min = i64::MIN + 1;
     let forged = shared_model::CheckedModel::new(m).unwrap();
@@ -1292,7 +1295,7 @@ fn failed_audit_opens_with_its_gates_and_units_in_reading_order() {
 #[test]
 fn inspect_shows_a_signal_blob_and_replay_says_it_reads_readings_only() {
     use shared_model::features::{Feature, SignalSection, SignalSpec, Source};
-    use shared_model::{CheckedModel, CheckedSignalModel, FixedModel, blob};
+    use shared_model::{CheckedModel, FixedModel, blob};
     let dir = tempfile::tempdir().unwrap();
     let mut signals = SignalSection::default();
     signals
@@ -1312,13 +1315,9 @@ fn inspect_shows_a_signal_blob_and_replay_says_it_reads_readings_only() {
         })
         .unwrap();
     signals.sources.push(Source::Reading).unwrap();
-    let m = CheckedSignalModel::new(
-        CheckedModel::new(FixedModel::example_two_channel()).unwrap(),
-        signals,
-    )
-    .unwrap();
+    let m = CheckedModel::with_inputs(FixedModel::example_two_channel(), signals).unwrap();
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
-    let n = blob::encode_signals(&m, &mut buf).unwrap();
+    let n = blob::encode(&m, &mut buf).unwrap();
     let path = write(dir.path(), "signals.lgmb", &buf[..n]);
     let o = linegate(&["inspect", path.to_str().unwrap()], dir.path());
     exits(&o, 0);

@@ -11,7 +11,10 @@ use shared_model::{CheckedModel, FixedModel, blob};
 /// The demo blob's model.
 fn demo_model(d: &Path) -> FixedModel {
     let bytes = std::fs::read(d.join("demo/model.lgmb")).unwrap();
-    blob::decode(&bytes).unwrap().model().clone()
+    blob::decode::<shared_model::Readings>(&bytes)
+        .unwrap()
+        .model()
+        .clone()
 }
 
 /// Writes `m` as a valid blob (a fresh CRC) named `name`; `None` if `m` does not validate.

@@ -4,7 +4,7 @@
 //! feature channel's range.
 #![no_main]
 
-use host_trainer::ingest::scaling::ChannelSheet;
+use host_trainer::ingest::sheet::ChannelSheet;
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {

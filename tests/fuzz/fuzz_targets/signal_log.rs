@@ -1,6 +1,6 @@
 //! Any bytes as a signal log (one row per sample), read as the CLI reads one: for training
 //! and `check` (`workflow::load` with a sheet of signals), for a model (`load_for_model`:
-//! holdout, audit) and for `replay` (`replay_signal_log`). The first byte picks the mode:
+//! holdout, audit) and for `replay` (`replay_log`). The first byte picks the mode:
 //! bit 0 clear, the rest is the log against a fixed sheet (signal `x`, its mean and
 //! peak-to-peak, reading channel `t`) and a model trained on it; bit 0 set, the rest is the
 //! sheet's text, a NUL byte, then the log. Bit 1 reads under `--skip-bad-rows`.
@@ -14,7 +14,8 @@ use std::sync::OnceLock;
 
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
-use host_trainer::ingest::scaling::{ChannelScale, ChannelSheet};
+use host_trainer::ingest::scaling::ChannelScale;
+use host_trainer::ingest::sheet::ChannelSheet;
 use host_trainer::ingest::{ScaleFrom, read};
 use host_trainer::ingest::SkipReport;
 use host_trainer::release::quantise::{QuantConfig, quantise};
@@ -23,7 +24,7 @@ use host_trainer::train::eval::TrainerKind;
 use host_trainer::train::float_model::FloatModel;
 use host_trainer::workflow::{self, CvTrainers, TrainRequest};
 use libfuzzer_sys::fuzz_target;
-use shared_model::CheckedSignalModel;
+use shared_model::{CheckedModel, SignalSection};
 
 /// Signal `x`: 4 samples, raw 0..=100; its mean and peak-to-peak; reading channel `t`.
 const SHEET: &str = "[[channel]]\nname = \"t\"\nmin = 0\nmax = 50\nlsb = 0.1\n\n\
@@ -42,7 +43,7 @@ fn dir() -> PathBuf {
 struct Fixed {
     sheet: PathBuf,
     model: FloatModel,
-    device: CheckedSignalModel,
+    device: CheckedModel<SignalSection>,
 }
 
 fn fixed() -> &'static Fixed {
@@ -87,7 +88,7 @@ fn fixed() -> &'static Fixed {
             .model;
         let q = quantise(&model, Some(&ds), QuantConfig::default()).unwrap();
         let blob = blob_release::released_blob(&q, true, None);
-        let device = shared_model::blob::decode_signals(&blob).unwrap();
+        let device = shared_model::blob::decode::<SignalSection>(&blob).unwrap();
         Fixed {
             sheet,
             model,
@@ -182,7 +183,7 @@ fuzz_target!(|data: &[u8]| {
 
 /// Replays the log twice through the fixed model: the same lines (or error) both times, and
 /// each unit handed on with one raw reading per reading channel and one window per signal.
-fn replay_twice(log: &Path, opts: &LogOptions, fm: &FloatModel, device: &CheckedSignalModel) {
+fn replay_twice(log: &Path, opts: &LogOptions, fm: &FloatModel, device: &CheckedModel<SignalSection>) {
     let readings = fm.channels.iter().filter(|c| c.source.is_none()).count();
     // As `replay` reads a log: labels optional, no digest.
     let opts = LogOptions {
@@ -193,7 +194,7 @@ fn replay_twice(log: &Path, opts: &LogOptions, fm: &FloatModel, device: &Checked
     let run = || {
         let mut lines = String::new();
         let mut skipped = SkipReport::default();
-        let r = replay::replay_signal_log(log, &opts, fm, device, &mut skipped, |line, raw, w| {
+        let r = replay::replay_log(log, &opts, fm, device, &mut skipped, |line, raw, w| {
             assert_eq!(raw.len(), readings);
             assert_eq!(w.len(), fm.signals.len());
             lines.push_str(line);

@@ -27,7 +27,7 @@ fn demo_outputs_decode_pass_audit_and_are_byte_identical_across_runs() {
     let bound = check_train.novikoff_bound.unwrap();
     assert!(check_train.perceptron_updates.unwrap() as f64 <= bound);
     let blob = std::fs::read(a.join("model.lgmb")).unwrap();
-    let m = shared_model::blob::decode(&blob).unwrap();
+    let m = shared_model::blob::decode::<shared_model::Readings>(&blob).unwrap();
     assert_eq!(m.model().audit, shared_model::AuditMark::Passed);
     let fm = FloatModel::read(&a.join("model.json")).unwrap();
     assert_eq!(

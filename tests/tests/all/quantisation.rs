@@ -298,7 +298,10 @@ fn audit_mark_survives_packing() {
     let marked = host_trainer::release::blob_release::mark(&q.model, AuditMark::Overridden);
     let bytes = host_trainer::release::pack::blob_bytes(&marked);
     assert_eq!(
-        shared_model::blob::decode(&bytes).unwrap().model().audit,
+        shared_model::blob::decode::<shared_model::Readings>(&bytes)
+            .unwrap()
+            .model()
+            .audit,
         AuditMark::Overridden
     );
     let r = audit(&q, &fm, &ds, &[], &[], AuditConfig::default());

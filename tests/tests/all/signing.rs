@@ -51,7 +51,7 @@ fn a_signed_blob_loads_and_every_forgery_is_refused() {
     let dir = tempfile::tempdir().unwrap();
     host_trainer::demo::run(&dir.path().join("d"), false).unwrap();
     let plain = std::fs::read(dir.path().join("d/model.lgmb")).unwrap();
-    let model = blob::decode(&plain).unwrap();
+    let model = blob::decode::<shared_model::Readings>(&plain).unwrap();
     let owner = ed25519_dalek::SigningKey::from_bytes(&[42u8; 32]);
     let device_key = ReleaseKey::from_bytes(owner.verifying_key().as_bytes()).unwrap();
     assert_eq!(
@@ -80,7 +80,7 @@ fn a_signed_blob_loads_and_every_forgery_is_refused() {
     buf[n..n + 64].copy_from_slice(&signed[signed.len() - 64..]);
     let forged = &buf[..n + 64];
     assert!(
-        blob::decode(forged).is_ok(),
+        blob::decode::<shared_model::Readings>(forged).is_ok(),
         "the forgery is a well-formed blob"
     );
     assert_eq!(

@@ -1,5 +1,5 @@
 //! Link-time proof of panic-freedom: the decode + classify + drive path for readings and for
-//! sample windows (`SignalStation`), and every signal feature of a window with its noise
+//! sample windows (`Station::with_windows`), and every signal feature of a window with its noise
 //! bound, linked with `panic-never`, whose panic handler is an undefined
 //! symbol. If any panic path survives optimisation, this binary fails to link.
 #![no_std]
@@ -10,7 +10,7 @@
 mod board;
 
 use board::entry;
-use firmware::{GoNoGoLines, SensorSource, SignalStation, Station, Step, WindowSource};
+use firmware::{GoNoGoLines, SensorSource, Station, Step, WindowSource};
 use panic_never as _;
 
 /// A value from outside the program (a DMA target or a register on a real board): the
@@ -115,10 +115,10 @@ fn main() -> ! {
     let Ok(readings_lines) = lines();
     let Ok(window_lines) = lines();
     let mut station = Station::new(board::model_region(), Inputs, readings_lines);
-    // The station of sample windows, on the same region: whichever kind of blob it holds,
-    // one of the two runs it, and both are linked and proved.
+    // The station with sample windows, on the same region: both input kinds are linked and
+    // proved.
     let mut samples = [0i32; WINDOW];
-    let mut windows = SignalStation::new(
+    let mut windows = Station::with_windows(
         board::model_region(),
         None,
         &mut samples,
