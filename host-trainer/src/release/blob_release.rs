@@ -37,7 +37,10 @@ pub fn released_blob(
 }
 
 /// The blob of `model`, signed when a key is given.
-fn bytes<I: Inputs>(model: &CheckedModel<I>, signer: Option<&ed25519_dalek::SigningKey>) -> Vec<u8> {
+fn bytes<I: Inputs>(
+    model: &CheckedModel<I>,
+    signer: Option<&ed25519_dalek::SigningKey>,
+) -> Vec<u8> {
     match signer {
         Some(k) => crate::release::sign::signed_blob(model, k),
         None => crate::release::pack::blob_bytes(model),
