@@ -88,7 +88,7 @@ pub fn json_keys_unique(text: &str) -> Result<(), String> {
 
     impl<'de> Visitor<'de> for Walk<'_> {
         type Value = ();
-        fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+        fn expecting(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
             f.write_str("a JSON value")
         }
         fn visit_bool<E>(self, _: bool) -> Result<(), E> {

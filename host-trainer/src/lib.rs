@@ -23,6 +23,24 @@
 //! [`Dataset`]: ingest::dataset::Dataset
 //! [`FloatModel`]: train::float_model::FloatModel
 #![forbid(unsafe_code)]
+#![deny(missing_docs)]
+// The library only returns: it prints nothing (progress goes through `progress`, which the
+// CLI installs), never exits, and a failure is an error value, not a panic.
+#![warn(
+    rust_2018_idioms,
+    unused_qualifications,
+    clippy::dbg_macro,
+    clippy::todo,
+    clippy::unimplemented,
+    clippy::print_stdout,
+    clippy::print_stderr,
+    clippy::exit,
+    clippy::mem_forget,
+    clippy::unwrap_used,
+    clippy::panic,
+    clippy::cast_lossless
+)]
+#![cfg_attr(test, allow(clippy::unwrap_used, clippy::panic))]
 // Errors carry file, line, column and the offending text; they are built once, on the
 // cold path, so their size does not matter.
 #![allow(clippy::result_large_err)]

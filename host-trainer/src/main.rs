@@ -3,6 +3,19 @@
 //! failed, blob corrupt or not matching), 2 usage, input or output error.
 
 #![forbid(unsafe_code)]
+// The command line prints and picks exit codes; it shares the library's other rules.
+#![warn(
+    rust_2018_idioms,
+    unused_qualifications,
+    clippy::dbg_macro,
+    clippy::todo,
+    clippy::unimplemented,
+    clippy::mem_forget,
+    clippy::unwrap_used,
+    clippy::panic,
+    clippy::cast_lossless
+)]
+#![cfg_attr(test, allow(clippy::unwrap_used, clippy::panic))]
 #![allow(clippy::result_large_err)]
 
 mod cli;

@@ -195,7 +195,7 @@ fn failed(e: blob_match::BlobCheck) -> anyhow::Error {
 }
 
 /// The signals of a format-3 blob and which channels are their features.
-fn print_signals(ins: &host_trainer::release::pack::Inspection) {
+fn print_signals(ins: &pack::Inspection) {
     use shared_model::features::Source;
     if ins.signals.is_empty() {
         return;

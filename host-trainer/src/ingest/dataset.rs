@@ -116,7 +116,7 @@ impl Dataset {
 
     /// The log's name for messages: its file, or for a log of several files the first and
     /// how many more (`day-1.csv and 2 more files`).
-    pub fn name(&self) -> std::path::PathBuf {
+    pub fn name(&self) -> PathBuf {
         match self.parts.len() {
             0 | 1 => self.path.clone(),
             n => format!("{} and {} more files", self.path.display(), n - 1).into(),

@@ -29,7 +29,7 @@ fn rows(
         None,
         &mut skipped,
         (
-            |_: &_, r: super::parse::Row<'_>| {
+            |_: &_, r: Row<'_>| {
                 out.push((
                     r.line,
                     r.values.to_vec(),
@@ -371,7 +371,7 @@ fn an_over_long_line_comes_after_the_errors_before_it() {
             None,
             None,
             &mut skipped,
-            (|_: &_, _: super::parse::Row<'_>| Ok(()), None),
+            (|_: &_, _: Row<'_>| Ok(()), None),
             Pass { block, hash: true },
         )
         .unwrap();

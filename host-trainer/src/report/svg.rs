@@ -60,7 +60,7 @@ fn legend(s: &SetSummary) -> String {
     }
 }
 
-fn binned_svg(b: &Binned) -> String {
+fn binned_svg(b: &Binned<'_>) -> String {
     let top = b
         .series
         .iter()

@@ -508,8 +508,10 @@ mod tests {
     fn a_budget_buys_the_costliest_errors_first() {
         // Two NO-GO units score above two GO units; one band of 2 units catches the pair in
         // the middle, which a threshold alone cannot sort.
-        let mut v: Vec<(f64, bool)> = (0..48).map(|k| (-1.0 - k as f64 * 0.01, false)).collect();
-        v.extend((0..48).map(|k| (1.0 + k as f64 * 0.01, true)));
+        let mut v: Vec<(f64, bool)> = (0..48)
+            .map(|k| (-1.0 - f64::from(k) * 0.01, false))
+            .collect();
+        v.extend((0..48).map(|k| (1.0 + f64::from(k) * 0.01, true)));
         v.extend([(0.1, false), (-0.1, true), (0.2, false), (-0.2, true)]);
         let h = held(&v);
         let none = RecheckBudgetCase::run(&h, 0.0);
@@ -541,7 +543,7 @@ mod tests {
     #[test]
     fn a_false_go_target_is_met_or_refused_with_the_units_it_needs() {
         let v: Vec<(f64, bool)> = (0..400)
-            .map(|k| ((k as f64 - 200.0) / 100.0, k % 3 != 0 && k > 150))
+            .map(|k| ((f64::from(k) - 200.0) / 100.0, k % 3 != 0 && k > 150))
             .collect();
         let h = held(&v);
         let op = choose(

@@ -252,7 +252,7 @@ mod tests {
             let go = k % 3 != 0;
             let shift = if go { 0.08 } else { -0.08 };
             let p: Vec<f64> = (0..5)
-                .map(|j| rng.gen_range(-0.3..0.3) + shift * (j as f64 + 1.0) / 3.0)
+                .map(|j| rng.gen_range(-0.3..0.3) + shift * (f64::from(j) + 1.0) / 3.0)
                 .collect();
             pts.push(p);
             labels.push(if go { 1 } else { -1 });
