@@ -11,8 +11,8 @@
 //!    by `shared_model`'s kernel, the same code the firmware runs.
 //! 4. [`report`]: the audit as Markdown, HTML and SVG.
 //!
-//! [`workflow`] runs the steps as single calls, [`release_flow`] the release step (the CLI
-//! and [`demo`] both use them);
+//! [`workflow`] runs the steps as single calls, the release step in `workflow::release`
+//! (the CLI and [`demo`] both use them);
 //! [`synth`] writes synthetic logs of any size; [`output`] writes files atomically and
 //! [`input`] opens them with bounds; [`digest`], [`error`] and [`confidence`] (exact binomial
 //! bounds on rates) are the leaves every step uses. Imports point down this
@@ -55,7 +55,6 @@ pub mod output;
 pub mod progress;
 pub mod project;
 pub mod release;
-pub mod release_flow;
 pub mod report;
 pub mod synth;
 pub mod train;

@@ -13,8 +13,10 @@ use host_trainer::release::applying::Apply;
 use host_trainer::release::gates::{AuditConfig, Limit};
 use host_trainer::release::quantise::QuantConfig;
 use host_trainer::release::sign;
-use host_trainer::release_flow::{self, ReleaseLogs, ReleaseOutcome, ReleaseRequest};
 use host_trainer::train::float_model::FloatModel;
+use host_trainer::workflow::release::{
+    self as release_step, ReleaseLogs, ReleaseOutcome, ReleaseRequest,
+};
 
 #[derive(Args, Clone)]
 pub struct LogArgs {
@@ -306,12 +308,12 @@ impl Release {
         self.others.iter().map(|(n, d)| (n.as_str(), d)).collect()
     }
 
-    /// The release step `audit` and `pack` share ([`release_flow::release`]), applying what
+    /// The release step `audit` and `pack` share ([`release_step::release`]), applying what
     /// `--apply-…` asked. Says on stderr what it chose, so no default changes a verdict
     /// silently.
     pub fn run(&mut self) -> Result<ReleaseOutcome> {
         let others = self.named_others();
-        let done = release_flow::release(&ReleaseRequest {
+        let done = release_step::release(&ReleaseRequest {
             fm: &self.fm,
             train: &self.train,
             others: &others,
@@ -375,14 +377,14 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
     if r.train.is_empty() {
         settings.push(Setting {
             flag: "--train".into(),
-            value: release_flow::recorded_training_files(&fm)
+            value: release_step::recorded_training_files(&fm)
                 .iter()
                 .map(|f| f.display().to_string())
                 .collect(),
             source: format!("model {}", model_path.display()),
         });
     }
-    let ReleaseLogs { train, others } = release_flow::load_logs(
+    let ReleaseLogs { train, others } = release_step::load_logs(
         &fm,
         model_path,
         (!r.train.is_empty()).then_some(r.train.as_slice()),

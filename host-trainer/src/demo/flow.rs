@@ -13,8 +13,8 @@ use crate::release::applying::Apply;
 use crate::release::audit_report::AuditReport;
 use crate::release::quantise::QuantError;
 use crate::release::sweep::SweepRow;
-use crate::release_flow::{self, ReleaseRequest};
 use crate::train::separability::SeparabilityReport;
+use crate::workflow::release::{self as release_step, ReleaseRequest};
 use crate::workflow::{self, TrainOutcome, TrainRequest};
 
 /// Where the demo places the model in flash: the last 4 KiB of the 256 KiB part the QEMU example uses.
@@ -158,7 +158,7 @@ pub(super) fn run_scenario(
     // Audit and pack: the release engineer's choices, the blob pack writes.
     let noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
     let others = [("holdout", &holdout_ds)];
-    let done = release_flow::release(&ReleaseRequest {
+    let done = release_step::release(&ReleaseRequest {
         apply: sc.apply,
         ..ReleaseRequest::new(fm, &train_ds, &others, &noise)
     })?;

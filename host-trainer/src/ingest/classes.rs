@@ -1,10 +1,12 @@
 //! The classes a log's labels name: a list of named classes, each with the label tokens
-//! that stand for it, one of which may be marked GO. A label cell maps to a class index
-//! ([`ClassId`]) in this list; the ±1 GO-vs-rest view every trainer reads
-//! ([`Dataset::labels`](super::dataset::Dataset::labels)) comes from the index by
-//! [`Classes::sign`]. Today the list is GO and NO-GO ([`Classes::go_nogo`], from
-//! `--go-labels` and `--nogo-labels`); more classes come by giving more token lists, and the
-//! readers, which only ask [`Classes::label`] or [`Classes::class_of`], stay as they are.
+//! that stand for it, one of which may be marked GO. A label cell maps to a class
+//! ([`Classes::class_of`]) and each unit keeps its class as a code
+//! ([`Classes::code`], kept in [`Dataset::labels`](super::dataset::Dataset::labels)): +1
+//! the GO class, −1 the first other class, −2 the next… With GO and NO-GO, the only list
+//! today ([`Classes::go_nogo`], from `--go-labels` and `--nogo-labels`), the codes are
+//! exactly the ±1 GO-vs-rest view every trainer reads. More classes come by giving more
+//! token lists: the readers, which only ask [`Classes::label`], and the per-unit storage
+//! stay as they are, and [`Classes::class_of_code`] gives each unit's class back.
 
 /// A class's place in its [`Classes`] list.
 pub type ClassId = u8;
@@ -76,21 +78,31 @@ impl Classes {
         if Some(id) == self.go { 1 } else { -1 }
     }
 
-    /// The label `token` stands for in the GO-vs-rest view ([`Self::sign`] of its class),
-    /// or `None` for a token of no class.
-    pub fn label(&self, token: &[u8]) -> Option<i8> {
-        self.class_of(token).map(|c| self.sign(c))
+    /// The code a unit of class `id` keeps: +1 for the GO class, −1 − k for the k-th
+    /// other class (in list order). Its sign is [`Self::sign`]; with two classes it is the
+    /// sign itself.
+    pub fn code(&self, id: ClassId) -> i8 {
+        if Some(id) == self.go {
+            return 1;
+        }
+        let before = (0..id).filter(|&k| Some(k) != self.go).count();
+        // ClassId is a u8 and a list holds at most 127 classes besides GO (`label` refuses
+        // a class past that), so the rank fits.
+        -1 - i8::try_from(before).unwrap_or(i8::MAX - 1)
     }
 
-    /// The class a GO-vs-rest label stands for while there are two classes (+1 the GO
-    /// class, −1 the other); `None` for 0 (no label) or when the view cannot tell.
-    pub fn class_of_sign(&self, label: i8) -> Option<ClassId> {
-        let go = self.go?;
-        match label {
-            1 => Some(go),
-            -1 if self.list.len() == 2 => Some(1 - go),
-            _ => None,
-        }
+    /// The code of the class `token` stands for ([`Self::code`]), or `None` for a token of
+    /// no class (or of a class past the 128th, which no code can hold).
+    pub fn label(&self, token: &[u8]) -> Option<i8> {
+        let id = self.class_of(token)?;
+        (id < 128).then(|| self.code(id))
+    }
+
+    /// The class a unit's code stands for; `None` for 0 (no label) or a code of no class.
+    pub fn class_of_code(&self, code: i8) -> Option<ClassId> {
+        (0..self.list.len())
+            .filter_map(|k| ClassId::try_from(k).ok())
+            .find(|&id| code != 0 && self.code(id) == code)
     }
 
     /// The classes' names, in order.
@@ -143,9 +155,9 @@ mod tests {
         assert_eq!(c.label(b"ok"), Some(1));
         assert_eq!(c.label(b"nogo"), Some(-1));
         assert_eq!(c.label(b""), None);
-        assert_eq!(c.class_of_sign(1), Some(0));
-        assert_eq!(c.class_of_sign(-1), Some(1));
-        assert_eq!(c.class_of_sign(0), None);
+        assert_eq!(c.class_of_code(1), Some(0));
+        assert_eq!(c.class_of_code(-1), Some(1));
+        assert_eq!(c.class_of_code(0), None);
         assert_eq!(c.tokens(), "GO: go, pass, ok; NO-GO: nogo, fail, ärger");
     }
 
@@ -156,22 +168,32 @@ mod tests {
         assert_eq!(c.label(b"y"), Some(-1));
     }
 
-    /// The seam a later issue uses: a third class is more tokens; every class but the GO
-    /// one is −1 in the trainers' view, and the reader's calls are the same.
+    /// The seam a later issue uses: a third class is more tokens; its units keep a code of
+    /// their own (−2), negative as every class but GO, so the trainers' GO-vs-rest view is
+    /// its sign, and the reader's calls are the same.
     #[test]
     fn more_classes_come_by_more_tokens() {
         let mut c = Classes::go_nogo(&own(&["go"]), &own(&["fail"]));
         c.list.push(Class {
-            name: "RECHECK".into(),
-            tokens: own(&["recheck"]),
+            name: "BEARING".into(),
+            tokens: own(&["bearing"]),
         });
-        assert_eq!(c.class_of(b"recheck"), Some(2));
-        assert_eq!(c.label(b"recheck"), Some(-1));
-        assert_eq!(
-            c.class_of_sign(-1),
-            None,
-            "three classes: −1 does not tell which"
-        );
-        assert_eq!(c.tokens(), "GO: go; NO-GO: fail; RECHECK: recheck");
+        assert_eq!(c.class_of(b"bearing"), Some(2));
+        assert_eq!(c.label(b"bearing"), Some(-2));
+        assert_eq!(c.label(b"fail"), Some(-1));
+        assert_eq!(c.class_of_code(-2), Some(2));
+        assert_eq!(c.class_of_code(-1), Some(1));
+        assert_eq!(c.class_of_code(-3), None);
+        assert_eq!(c.tokens(), "GO: go; NO-GO: fail; BEARING: bearing");
+    }
+
+    /// Pure diagnosis: no class is GO, and every class keeps a code of its own.
+    #[test]
+    fn without_a_go_class_every_class_has_its_own_negative_code() {
+        let mut c = Classes::go_nogo(&own(&["short"]), &own(&["crack"]));
+        c.go = None;
+        assert_eq!(c.label(b"short"), Some(-1));
+        assert_eq!(c.label(b"crack"), Some(-2));
+        assert_eq!(c.class_of_code(-2), Some(1));
     }
 }

@@ -36,9 +36,11 @@ pub struct Dataset {
     pub signals: Vec<SignalScale>,
     /// Raw readings, row-major: unit `i`, channel `j` at `i * dim + j`.
     pub raw: Vec<i32>,
-    /// Each unit's class in the GO-vs-rest view every trainer reads: +1 for the GO class of
-    /// [`classes`](Self::classes), −1 for any other, 0 for a unit without label (a log
-    /// scored without verdicts). The unit's class itself: [`class_of`](Self::class_of).
+    /// Each unit's class as its code ([`Classes::code`]): +1 the GO class of
+    /// [`classes`](Self::classes), −1, −2… the others, 0 a unit without label (a log scored
+    /// without verdicts). With GO and NO-GO (every log today) this is exactly the ±1
+    /// GO-vs-rest view every trainer reads; with more classes a trainer takes a view of its
+    /// own from the codes. The unit's class itself: [`class_of`](Self::class_of).
     pub labels: Vec<i8>,
     /// The classes the log's labels name (GO and NO-GO today), each with its tokens.
     pub classes: Classes,
@@ -90,7 +92,7 @@ impl Dataset {
     /// Unit `i`'s class: its index into [`classes`](Self::classes), from its label
     /// (`None` for a unit without label).
     pub fn class_of(&self, i: usize) -> Option<ClassId> {
-        self.classes.class_of_sign(*self.labels.get(i)?)
+        self.classes.class_of_code(*self.labels.get(i)?)
     }
 
     /// Each class's name and how many units it has, in class order.

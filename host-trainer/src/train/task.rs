@@ -58,6 +58,8 @@ pub trait AsBinary: Sync {
 }
 
 /// A log of GO and NO-GO units is the task GO against NO-GO (its labels are the signs).
+/// A log of more classes (codes −2… beside ±1) takes a one-vs-rest view of its own, built
+/// from the codes with [`Binary::new`], which refuses anything but ±1.
 impl AsBinary for Dataset {
     fn binary(&self) -> Binary<'_> {
         Binary {

@@ -1,6 +1,8 @@
 //! The steps a user runs, each as one call: load, check, train; the release step (the logs
-//! a model is audited on, quantise, audit, the blob) is `release_flow.rs`.
+//! a model is audited on, quantise, audit, the blob) is [`release`].
 //! The CLI and the demo both go through here, so they cannot drift apart.
+
+pub mod release;
 
 use std::path::{Path, PathBuf};
 
