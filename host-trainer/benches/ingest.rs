@@ -21,12 +21,17 @@ use std::time::Instant;
 
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::ingest::sheet::ChannelSheet;
-use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
+use host_trainer::ingest::{self, LogOptions, ScaleFrom};
 
 /// Seconds of one read of `log`.
 fn time_one(log: &Path, sheet: &ChannelSheet) -> f64 {
     let s = Instant::now();
-    let ds = read_log(log, &LogOptions::default(), ScaleFrom::Sheet(sheet)).unwrap();
+    let ds = ingest::read(
+        &[log.to_path_buf()],
+        &LogOptions::default(),
+        ScaleFrom::Sheet(sheet),
+    )
+    .unwrap();
     std::hint::black_box(&ds);
     s.elapsed().as_secs_f64()
 }
@@ -37,7 +42,12 @@ fn median(mut t: Vec<f64>) -> f64 {
 }
 
 fn read(log: &Path, sheet: &ChannelSheet) -> Dataset {
-    read_log(log, &LogOptions::default(), ScaleFrom::Sheet(sheet)).unwrap()
+    ingest::read(
+        &[log.to_path_buf()],
+        &LogOptions::default(),
+        ScaleFrom::Sheet(sheet),
+    )
+    .unwrap()
 }
 
 fn main() {

@@ -11,7 +11,7 @@ use std::process::Command;
 use std::time::Instant;
 
 use host_trainer::ingest::sheet::ChannelSheet;
-use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
+use host_trainer::ingest::{LogOptions, ScaleFrom, read};
 use host_trainer::release::audit::audit;
 use host_trainer::release::gates::AuditConfig;
 use host_trainer::release::quantise::{QuantConfig, quantise};
@@ -50,7 +50,12 @@ fn main() {
     let data_f32_mib = (rows * channels * 4) as f64 / (1024.0 * 1024.0);
 
     let t = Instant::now();
-    let ds = read_log(&log, &LogOptions::default(), ScaleFrom::Sheet(&sheet)).unwrap();
+    let ds = read(
+        &[log.to_path_buf()],
+        &LogOptions::default(),
+        ScaleFrom::Sheet(&sheet),
+    )
+    .unwrap();
     let t_ingest = t.elapsed().as_secs_f64();
     let idx = ds.all();
     let t = Instant::now();

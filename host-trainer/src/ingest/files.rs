@@ -19,8 +19,8 @@ use crate::ingest::signals::{read_signal_files, read_signal_log};
 /// Reads the files of one log (in the order given) into one [`Dataset`]: the one entry for
 /// bench logs and signal logs. When `from` declares signals (a sheet's `[[signal]]`s, a
 /// model's signals) each path is a signal log's file or folder, read by
-/// [`read_signal_files`] with its features computed; otherwise each is a bench log, read as
-/// [`read_log`] reads one. Several bench files must have the same channel columns, in the
+/// `read_signal_files` with its features computed; otherwise each is a bench log, read as
+/// `read_log` reads one. Several bench files must have the same channel columns, in the
 /// same order; a channel without a declared range gets the range observed over all of them,
 /// so every file is converted alike.
 ///

@@ -29,7 +29,7 @@ use crate::ingest::sheet::ChannelSheet;
 ///
 /// # Errors
 /// The first [`InputError`] (or, with `skip_bad_rows`, only errors that are not about one row).
-pub fn read_log(
+pub(crate) fn read_log(
     path: &Path,
     opts: &LogOptions,
     scale: ScaleFrom<'_>,

@@ -67,7 +67,7 @@ pub use crate::ingest::signal_units::{
 /// window the device would refuse (a sample outside its signal's valid range, a window
 /// shorter or longer than declared) or a reading outside its channel's range is an error;
 /// in a log read for a model the unit is kept as the FAULT the device gives.
-pub fn read_signal_log(
+pub(crate) fn read_signal_log(
     path: &Path,
     opts: &LogOptions,
     from: ScaleFrom<'_>,
@@ -83,7 +83,7 @@ pub fn read_signal_log(
 ///
 /// # Errors
 /// As [`read_signal_log`].
-pub fn read_signal_files(
+pub(crate) fn read_signal_files(
     path: &Path,
     files: &[PathBuf],
     opts: &LogOptions,

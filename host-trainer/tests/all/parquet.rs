@@ -13,7 +13,7 @@ use std::process::Command;
 use crate::common::{exits, linegate, write};
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::ingest::sheet::ChannelSheet;
-use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
+use host_trainer::ingest::{LogOptions, ScaleFrom, read};
 
 /// Runs a Python script with pyarrow; `false` (and a loud SKIPPED) without it.
 fn pyarrow(script: &str, args: &[&Path]) -> bool {
@@ -168,15 +168,15 @@ fn parquet_written_by_pyarrow_reads_as_the_csv_unit_for_unit() {
     let sheet_path = write(d, "sheet.toml", SHEET.as_bytes());
     let sheet = ChannelSheet::read(&sheet_path).unwrap();
     let opts = LogOptions::default();
-    let reference = read_log(&csv, &opts, ScaleFrom::Sheet(&sheet)).unwrap();
+    let reference = read(&[csv.to_path_buf()], &opts, ScaleFrom::Sheet(&sheet)).unwrap();
     assert_eq!(reference.len(), 3000);
-    let observed = read_log(&csv, &opts, ScaleFrom::Observed).unwrap();
+    let observed = read(&[csv.to_path_buf()], &opts, ScaleFrom::Observed).unwrap();
     for (path, what) in &forms {
-        let ds = read_log(path, &opts, ScaleFrom::Sheet(&sheet))
+        let ds = read(&[path.to_path_buf()], &opts, ScaleFrom::Sheet(&sheet))
             .unwrap_or_else(|e| panic!("{what}: {e}"));
         same_units(&reference, &ds, what);
         // Observed scaling sees the same minima and maxima.
-        let ds = read_log(path, &opts, ScaleFrom::Observed).unwrap();
+        let ds = read(&[path.to_path_buf()], &opts, ScaleFrom::Observed).unwrap();
         same_units(&observed, &ds, &format!("{what}, observed scaling"));
         // The file hashed is the Parquet file itself.
         assert_eq!(
@@ -189,9 +189,9 @@ fn parquet_written_by_pyarrow_reads_as_the_csv_unit_for_unit() {
         keep_times: true,
         ..LogOptions::default()
     };
-    let times = read_log(&csv, &opts, ScaleFrom::Sheet(&sheet)).unwrap();
+    let times = read(&[csv.to_path_buf()], &opts, ScaleFrom::Sheet(&sheet)).unwrap();
     for (path, what) in &forms {
-        let ds = read_log(path, &opts, ScaleFrom::Sheet(&sheet)).unwrap();
+        let ds = read(&[path.to_path_buf()], &opts, ScaleFrom::Sheet(&sheet)).unwrap();
         for i in [0, 1, 1499, 2999] {
             assert_eq!(times.times.get(i), ds.times.get(i), "{what}: timestamp {i}");
         }
@@ -252,8 +252,8 @@ with open(sys.argv[1] + "/counts.csv", "w", newline="") as f:
     let sheet_path = write(d, "counts.toml", sheet.as_bytes());
     let sheet = ChannelSheet::read(&sheet_path).unwrap();
     let opts = LogOptions::default();
-    let pq = read_log(&d.join("counts.parquet"), &opts, ScaleFrom::Sheet(&sheet)).unwrap();
-    let csv = read_log(&d.join("counts.csv"), &opts, ScaleFrom::Sheet(&sheet)).unwrap();
+    let pq = read(&[d.join("counts.parquet")], &opts, ScaleFrom::Sheet(&sheet)).unwrap();
+    let csv = read(&[d.join("counts.csv")], &opts, ScaleFrom::Sheet(&sheet)).unwrap();
     same_units(&csv, &pq, "integer columns");
     // The raw count is the integer in the CSV's text, parsed here without Linegate.
     let text = std::fs::read_to_string(d.join("counts.csv")).unwrap();
@@ -457,7 +457,7 @@ fn damaged_parquet_files_are_refused() {
     }
     for bytes in &cases {
         std::fs::write(&bad, bytes).unwrap();
-        let r = std::panic::catch_unwind(|| read_log(&bad, &opts, ScaleFrom::Observed));
+        let r = std::panic::catch_unwind(|| read(&[bad.to_path_buf()], &opts, ScaleFrom::Observed));
         match r {
             Ok(Err(e)) => {
                 refused += 1;
@@ -650,10 +650,12 @@ fn a_file_damaged_in_two_columns_gives_one_error_every_time() {
         ..LogOptions::default()
     };
     let errors: std::collections::BTreeSet<String> = (0..40)
-        .map(|_| match read_log(&path, &opts, ScaleFrom::Observed) {
-            Ok(_) => panic!("a damaged file was read"),
-            Err(e) => e.to_string(),
-        })
+        .map(
+            |_| match read(&[path.to_path_buf()], &opts, ScaleFrom::Observed) {
+                Ok(_) => panic!("a damaged file was read"),
+                Err(e) => e.to_string(),
+            },
+        )
         .collect();
     assert_eq!(errors.len(), 1, "{errors:#?}");
 }

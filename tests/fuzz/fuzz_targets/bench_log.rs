@@ -1,7 +1,7 @@
 //! Any bytes as a bench log: reading returns a dataset or an error, never panics.
 #![no_main]
 
-use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
+use host_trainer::ingest::{LogOptions, ScaleFrom, read};
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
@@ -16,7 +16,7 @@ fuzz_target!(|data: &[u8]| {
             skip_bad_rows: skip,
             ..LogOptions::default()
         };
-        if let Ok(ds) = read_log(&path, &opts, ScaleFrom::Observed) {
+        if let Ok(ds) = read(std::slice::from_ref(&path), &opts, ScaleFrom::Observed) {
             assert_eq!(ds.raw.len(), ds.len() * ds.dim());
             assert!(ds.len() > 0);
         }

@@ -1,11 +1,11 @@
-//! Any bytes as a Parquet bench log, read as the CLI reads a log file: `read_log` (check,
+//! Any bytes as a Parquet bench log, read as the CLI reads a log file: `ingest::read` (check,
 //! train) and `stream_units` (a trained model's scaling over a log of any length). Input that
 //! does not start with Parquet's magic gets it put in front, so every input reaches the
 //! Parquet reader. Never a panic; an accepted file reads the same twice, and streaming it
-//! with its own scaling gives the units `read_log` gave.
+//! with its own scaling gives the units `ingest::read` gave.
 #![no_main]
 
-use host_trainer::ingest::{LogOptions, ScaleFrom, SkipReport, read_log, stream_units};
+use host_trainer::ingest::{LogOptions, ScaleFrom, SkipReport, read, stream_units};
 use libfuzzer_sys::fuzz_target;
 
 /// The reader catches a panic inside the parquet crate (a damaged page) and reports a
@@ -42,14 +42,14 @@ fuzz_target!(|data: &[u8]| {
             skip_bad_rows: skip,
             ..LogOptions::default()
         };
-        let read = || {
-            read_log(&path, &opts, ScaleFrom::Observed)
+        let read_once = || {
+            read(std::slice::from_ref(&path), &opts, ScaleFrom::Observed)
                 .map(|ds| format!("{ds:?}"))
                 .map_err(|e| e.to_string())
         };
-        let first = read();
-        assert_eq!(first, read(), "a second read differs");
-        let Ok(ds) = read_log(&path, &opts, ScaleFrom::Observed) else {
+        let first = read_once();
+        assert_eq!(first, read_once(), "a second read differs");
+        let Ok(ds) = read(std::slice::from_ref(&path), &opts, ScaleFrom::Observed) else {
             continue;
         };
         assert!(!ds.is_empty());

@@ -70,18 +70,16 @@ fn fixed() -> &'static Fixed {
         let train_log = d.join("train.csv");
         std::fs::write(&train_log, log).unwrap();
         let (ds, sheet_file) =
-            workflow::load(&train_log, &LogOptions::default(), Some(&sheet)).unwrap();
+            workflow::load(std::slice::from_ref(&train_log), &LogOptions::default(), Some(&sheet)).unwrap();
         let req = TrainRequest {
-            trainer: TrainerKind::MaxMargin,
             epochs: 100,
             seed: 1,
-            c: 10.0,
+            c: host_trainer::train::c_choice::CPolicy::Fixed(10.0),
             max_false_go: None,
             folds: 0,
             cv_trainers: CvTrainers::All,
-            holdout_split: None,
-            progress: false,
             figures: host_trainer::train::separability::Figures::VERDICT,
+            ..TrainRequest::new(TrainerKind::MaxMargin)
         };
         let model = workflow::train_model(&ds, sheet_file.as_ref().map(|(_, f)| f), &req)
             .unwrap()
@@ -139,9 +137,9 @@ fuzz_target!(|data: &[u8]| {
             return;
         }
         twice(2, || {
-            workflow::load(&log, &opts, Some(&f.sheet)).map(|(ds, _)| ds)
+            workflow::load(std::slice::from_ref(&log), &opts, Some(&f.sheet)).map(|(ds, _)| ds)
         });
-        twice(2, || workflow::load_for_model(&log, &opts, &f.model));
+        twice(2, || workflow::load_for_model(std::slice::from_ref(&log), &opts, &f.model));
         replay_twice(&log, &opts, &f.model, &f.device);
         return;
     }
@@ -164,7 +162,7 @@ fuzz_target!(|data: &[u8]| {
     }
     let nf = sheet.features.len();
     twice(nf, || {
-        workflow::load(&log, &opts, Some(&sheet_path)).map(|(ds, _)| ds)
+        workflow::load(std::slice::from_ref(&log), &opts, Some(&sheet_path)).map(|(ds, _)| ds)
     });
     // A model's channels as training orders them: the readings, then the features.
     let channels: Vec<ChannelScale> =

@@ -278,7 +278,7 @@ fn soft_margin_on_overlapping_data_converges() {
 fn logs_above_the_lp_limit_are_decided_and_certified() {
     // Regression: on a 25 000-unit log the full LP is skipped; the verdict must still be
     // certified (a separator checked on every unit, or a verified common point of both hulls).
-    use host_trainer::ingest::{LogOptions, ScaleFrom, read_log};
+    use host_trainer::ingest::{LogOptions, ScaleFrom, read};
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("big.csv");
     let mut buf = Vec::new();
@@ -286,7 +286,12 @@ fn logs_above_the_lp_limit_are_decided_and_certified() {
     std::fs::write(&path, &buf).unwrap();
     let sheet =
         host_trainer::ingest::sheet::ChannelSheet::parse(&host_trainer::synth::sheet(8)).unwrap();
-    let ds = read_log(&path, &LogOptions::default(), ScaleFrom::Sheet(&sheet)).unwrap();
+    let ds = read(
+        std::slice::from_ref(&path),
+        &LogOptions::default(),
+        ScaleFrom::Sheet(&sheet),
+    )
+    .unwrap();
     assert!(ds.len() > host_trainer::train::separability::LP_FULL_LIMIT);
     let r = check(&ds, &ds.all(), 5, 1);
     assert!(r.separable, "{}", r.decided_by);
