@@ -32,7 +32,9 @@ fuzz_target!(|data: &[u8]| {
         let (lo, hi) = (signal.raw_min, signal.raw_max);
         let alternating: Vec<i32> = (0..n).map(|k| if k % 2 == 0 { lo } else { hi }).collect();
         for w in [vec![lo; n], vec![hi; n], alternating] {
-            let v = checked.compute(&w).expect("a window of valid samples is accepted");
+            let v = checked
+                .compute(&w)
+                .expect("a window of valid samples is accepted");
             assert!(
                 (f.raw_min..=f.raw_max).contains(&v),
                 "feature {} gives {v} outside [{}, {}]",

@@ -12,7 +12,14 @@ fuzz_target!(|data: &[u8]| {
     };
     if let Ok(fm) = FloatModel::from_text(std::path::Path::new("fuzz.json"), text) {
         for bits in [8u8, 16] {
-            let _ = quantise(&fm, None, QuantConfig { weight_bits: bits, ..QuantConfig::default() });
+            let _ = quantise(
+                &fm,
+                None,
+                QuantConfig {
+                    weight_bits: bits,
+                    ..QuantConfig::default()
+                },
+            );
         }
     }
 });

@@ -17,7 +17,10 @@ fn quiet_parquet_crate_panics() {
     ONCE.call_once(|| {
         let fuzzer = std::panic::take_hook();
         std::panic::set_hook(Box::new(move |info| {
-            if !info.location().is_some_and(|l| l.file().contains("/parquet-")) {
+            if !info
+                .location()
+                .is_some_and(|l| l.file().contains("/parquet-"))
+            {
                 fuzzer(info);
             }
         }));

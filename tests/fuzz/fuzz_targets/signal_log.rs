@@ -13,11 +13,11 @@ use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
 use host_trainer::ingest::LogOptions;
+use host_trainer::ingest::SkipReport;
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::ingest::scaling::ChannelScale;
 use host_trainer::ingest::sheet::ChannelSheet;
 use host_trainer::ingest::{ScaleFrom, read};
-use host_trainer::ingest::SkipReport;
 use host_trainer::release::quantise::{QuantConfig, quantise};
 use host_trainer::release::{blob_release, replay};
 use host_trainer::train::eval::TrainerKind;
@@ -61,7 +61,11 @@ fn fixed() -> &'static Fixed {
                     log += &format!(
                         "{id}{i},{k},{},{},{}\n",
                         base + i + k * (i % 3),
-                        if first { format!("{}", 20 + i) } else { String::new() },
+                        if first {
+                            format!("{}", 20 + i)
+                        } else {
+                            String::new()
+                        },
                         if first { label } else { "" }
                     );
                 }
@@ -69,8 +73,12 @@ fn fixed() -> &'static Fixed {
         }
         let train_log = d.join("train.csv");
         std::fs::write(&train_log, log).unwrap();
-        let (ds, sheet_file) =
-            workflow::load(std::slice::from_ref(&train_log), &LogOptions::default(), Some(&sheet)).unwrap();
+        let (ds, sheet_file) = workflow::load(
+            std::slice::from_ref(&train_log),
+            &LogOptions::default(),
+            Some(&sheet),
+        )
+        .unwrap();
         let req = TrainRequest {
             epochs: 100,
             seed: 1,
@@ -109,7 +117,10 @@ fn check_shape(ds: &Dataset, features: usize) {
     assert_eq!(ds.raw.len(), ds.len() * ds.dim());
     assert_eq!(ds.labels.len(), ds.len());
     assert_eq!(ds.lines.len(), ds.len());
-    assert_eq!(ds.scales.iter().filter(|c| c.source.is_some()).count(), features);
+    assert_eq!(
+        ds.scales.iter().filter(|c| c.source.is_some()).count(),
+        features
+    );
 }
 
 /// Reads `log` twice with `read`, checks both agree and the shape of an accepted dataset.
@@ -139,7 +150,9 @@ fuzz_target!(|data: &[u8]| {
         twice(2, || {
             workflow::load(std::slice::from_ref(&log), &opts, Some(&f.sheet)).map(|(ds, _)| ds)
         });
-        twice(2, || workflow::load_for_model(std::slice::from_ref(&log), &opts, &f.model));
+        twice(2, || {
+            workflow::load_for_model(std::slice::from_ref(&log), &opts, &f.model)
+        });
         replay_twice(&log, &opts, &f.model, &f.device);
         return;
     }
@@ -165,8 +178,12 @@ fuzz_target!(|data: &[u8]| {
         workflow::load(std::slice::from_ref(&log), &opts, Some(&sheet_path)).map(|(ds, _)| ds)
     });
     // A model's channels as training orders them: the readings, then the features.
-    let channels: Vec<ChannelScale> =
-        sheet.channels.iter().chain(&sheet.features).cloned().collect();
+    let channels: Vec<ChannelScale> = sheet
+        .channels
+        .iter()
+        .chain(&sheet.features)
+        .cloned()
+        .collect();
     twice(nf, || {
         read(
             std::slice::from_ref(&log),
@@ -181,7 +198,12 @@ fuzz_target!(|data: &[u8]| {
 
 /// Replays the log twice through the fixed model: the same lines (or error) both times, and
 /// each unit handed on with one raw reading per reading channel and one window per signal.
-fn replay_twice(log: &Path, opts: &LogOptions, fm: &FloatModel, device: &CheckedModel<SignalSection>) {
+fn replay_twice(
+    log: &Path,
+    opts: &LogOptions,
+    fm: &FloatModel,
+    device: &CheckedModel<SignalSection>,
+) {
     let readings = fm.channels.iter().filter(|c| c.source.is_none()).count();
     // As `replay` reads a log: labels optional, no digest.
     let opts = LogOptions {
