@@ -284,6 +284,17 @@ pub enum InputError {
         /// The only class.
         class: &'static str,
     },
+    /// The labels name more classes than GO and NO-GO, which today's trainers, audit and
+    /// device decide between.
+    #[error(
+        "{path}: the labels name {classes} classes; Linegate decides GO or NO-GO: map every failure label to the NO-GO tokens (--nogo-labels)"
+    )]
+    MoreClasses {
+        /// File.
+        path: PathBuf,
+        /// How many classes the list has.
+        classes: usize,
+    },
     /// Training ended without a direction to decide by (every weight zero, or not finite).
     #[error(
         "{path}: training found no separating direction ({detail}); no model written. The classes overlap too much for this trainer: run `linegate check` to see the units in conflict, or try --trainer pocket or a smaller --c"

@@ -37,10 +37,11 @@
     clippy::exit,
     clippy::mem_forget,
     clippy::unwrap_used,
+    clippy::expect_used,
     clippy::panic,
     clippy::cast_lossless
 )]
-#![cfg_attr(test, allow(clippy::unwrap_used, clippy::panic))]
+#![cfg_attr(test, allow(clippy::unwrap_used, clippy::expect_used, clippy::panic))]
 // Errors carry file, line, column and the offending text; they are built once, on the
 // cold path, so their size does not matter.
 #![allow(clippy::result_large_err)]

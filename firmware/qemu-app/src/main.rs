@@ -221,7 +221,14 @@ fn run() -> ! {
                 fault: StationFault::Window(SignalFault::Window { signal, .. }),
                 ..
             }) => hprintln!("{} FAULT signal{}", i, signal),
-            Ok(Step::Faulted { .. }) => hprintln!("{} FAULT count", i),
+            // As replay's line: a wrong reading count is `count`, any other fault `other`.
+            Ok(Step::Faulted {
+                fault:
+                    StationFault::Reading(Fault::ReadingCount { .. })
+                    | StationFault::Window(SignalFault::Reading(Fault::ReadingCount { .. })),
+                ..
+            }) => hprintln!("{} FAULT count", i),
+            Ok(Step::Faulted { .. }) => hprintln!("{} FAULT other", i),
             Err(e) => match e {},
         }
     }

@@ -4,7 +4,7 @@
 use std::io::IsTerminal;
 use std::path::PathBuf;
 
-use anyhow::{Context, Result};
+use anyhow::Result;
 use clap::Args;
 use host_trainer::ingest::LogOptions;
 use host_trainer::ingest::dataset::Dataset;
@@ -392,23 +392,7 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         &r.validate,
         &opts,
     )?;
-    let mut noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
-    for spec in &r.noise {
-        let (name, value) = spec
-            .split_once('=')
-            .with_context(|| format!("--noise '{spec}': expected CHANNEL=VALUE"))?;
-        let i = fm
-            .channels
-            .iter()
-            .position(|c| c.name == name)
-            .with_context(|| format!("--noise: no channel '{name}' in the model"))?;
-        let v: f64 = value
-            .parse()
-            .ok()
-            .filter(|v: &f64| v.is_finite() && *v >= 0.0)
-            .with_context(|| format!("--noise '{spec}': value must be a non-negative number"))?;
-        noise[i] = Some(v);
-    }
+    let noise = host_trainer::release::tolerance::declared_noise(&fm, &r.noise)?;
     let qc = QuantConfig {
         input_bits: r.input_bits,
         weight_bits: r.weight_bits,

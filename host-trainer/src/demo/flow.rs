@@ -32,6 +32,9 @@ pub enum DemoError {
     /// Quantisation failed.
     #[error(transparent)]
     Quant(#[from] QuantError),
+    /// A scenario lacks a log its flow needs (a defect of the built-in scenario).
+    #[error("the demo's {0} scenario has no {1} log")]
+    Scenario(&'static str, &'static str),
 }
 
 /// What a log of a scenario is for.
@@ -128,10 +131,16 @@ pub(super) fn run_scenario(
             .position(|l| l.2 == role)
             .map(|i| (&paths[i], sc.logs[i].0))
     };
+    let scenario = match sc.prefix.trim_end_matches('-') {
+        "" => "readings",
+        p => p,
+    };
+    let need =
+        |role: Role, what: &'static str| path_of(role).ok_or(DemoError::Scenario(scenario, what));
     let sheet_path = write_file(tmp, sc.sheet.0, &sc.sheet.1)?;
     let opts = LogOptions::default();
     // Provenance and reports name the files as the user will find them in `out`.
-    let (train_path, train_name) = path_of(Role::Train).expect("every scenario has a training log");
+    let (train_path, train_name) = need(Role::Train, "training")?;
     let (mut train_ds, sheet) =
         workflow::load(std::slice::from_ref(train_path), &opts, Some(&sheet_path))?;
     train_ds.path = out.join(train_name);
@@ -148,8 +157,7 @@ pub(super) fn run_scenario(
     };
     // Train.
     let mut train = workflow::train_model(&train_ds, sheet.as_ref(), &sc.train)?;
-    let (holdout_path, holdout_name) =
-        path_of(Role::Holdout).expect("every scenario has a holdout");
+    let (holdout_path, holdout_name) = need(Role::Holdout, "holdout")?;
     let mut holdout_ds =
         workflow::load_for_model(std::slice::from_ref(holdout_path), &opts, &train.model)?;
     holdout_ds.path = out.join(holdout_name);
@@ -165,7 +173,7 @@ pub(super) fn run_scenario(
     // Replay: the device's lines and input vectors, as `linegate replay` writes them.
     let replayed = match sc.replay {
         Role::Holdout => Replayed::Units(&holdout_ds),
-        role => Replayed::File(path_of(role).expect("the replayed log is the scenario's").0),
+        role => Replayed::File(need(role, "replayed")?.0),
     };
     let (replay, vectors, units, refused) = replay(&done.blob, fm, replayed, out, sc.prefix)?;
     // The files, in the order the user reads about them.

@@ -222,6 +222,11 @@ impl Dataset {
     /// Builds a dataset from points already in [-1, 1] (tests and references).
     ///
     /// Each channel gets range [-1, 1] at an lsb of 1e-9, so the scaled values equal the points to 1e-9.
+    ///
+    /// # Panics
+    /// On a point outside [-1, 1]: the caller's data is wrong, not a log's.
+    // Test and reference support only: a log never comes this way.
+    #[allow(clippy::expect_used)]
     pub fn from_scaled(points: &[Vec<f64>], labels: &[i8]) -> Self {
         let d = points.first().map_or(0, Vec::len);
         let scales: Vec<ChannelScale> = (0..d)
@@ -311,6 +316,7 @@ impl Dataset {
     pub fn subset(&self, idx: &[usize]) -> Self {
         let mut out = Self::empty(&self.path, self.scales.clone());
         out.signals = self.signals.clone();
+        out.classes = self.classes.clone();
         out.sha256 = self.sha256.clone();
         out.skipped = self.skipped.clone();
         out.parts = self.parts.clone();

@@ -266,15 +266,23 @@ pub(super) fn spread_checked(
     Ok(())
 }
 
-/// `ds`, unless it is empty or, for training (no model), holds one class only: the one
-/// rule for plain, Parquet and signal logs.
-/// The dataset carries `classes`, the list its labels were read with.
+/// `ds`, unless it is empty, names more than two classes, or, for training (no model),
+/// holds one class only: the one rule for plain, Parquet and signal logs. The dataset
+/// carries `classes`, the list its labels were read with.
 pub(super) fn checked_classes(
     path: &Path,
     mut ds: Dataset,
     for_model: bool,
     classes: Classes,
 ) -> Result<Dataset, InputError> {
+    // Every step after ingest reads a unit's code as its ±1 side; a third class's code
+    // (−2…) must not reach them until a step can decide between classes.
+    if classes.list.len() > 2 || ds.labels.iter().any(|&l| l < -1) {
+        return Err(InputError::MoreClasses {
+            path: path.into(),
+            classes: classes.list.len(),
+        });
+    }
     ds.classes = classes;
     if ds.is_empty() {
         return Err(no_rows(path, &ds.skipped));

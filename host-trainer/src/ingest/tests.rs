@@ -495,3 +495,22 @@ fn a_bench_log_headed_temp_and_temp_is_refused_as_a_signal_log_is() {
     assert_eq!(ds.class_counts(), vec![("GO", 1), ("NO-GO", 1)]);
     assert_eq!(ds.class_of(0), Some(0));
 }
+
+/// A third class's code must not reach the steps that read ±1: the one rule refuses it.
+#[test]
+fn a_log_of_three_classes_is_refused_until_a_step_decides_between_classes() {
+    use super::classes::{Class, Classes};
+    use super::dataset::Dataset;
+    let mut classes = Classes::go_nogo(&["go".into()], &["fail".into()]);
+    classes.list.push(Class {
+        name: "BEARING".into(),
+        tokens: vec!["bearing".into()],
+    });
+    let ds = Dataset::from_scaled(&[vec![0.5], vec![-0.5], vec![0.1]], &[1, -1, -2]);
+    let e = super::read::checked_classes(Path::new("three.csv"), ds, false, classes).unwrap_err();
+    assert!(
+        matches!(e, InputError::MoreClasses { classes: 3, .. }),
+        "{e}"
+    );
+    assert!(e.to_string().contains("--nogo-labels"), "{e}");
+}

@@ -99,9 +99,17 @@ pub fn made_from(blob: &Path, bytes: &[u8], model: &Path) -> Result<(), BlobChec
 /// [`BlobCheck::Report`] when it records another SHA-256 or none.
 pub fn audited_as(sha256: &str, report: &Path) -> Result<(), BlobCheck> {
     let text = crate::input::read_text(report, "audit report", crate::input::MAX_TEXT_FILE)?;
-    let named: NamedBlob =
-        serde_json::from_str(&text).map_err(|e| BlobCheck::NotJson(report.into(), e))?;
-    let recorded = named.blob_sha256();
+    // JSON that is no record (an array, a number, a repeated key) names no blob: the
+    // check fails (exit 1) rather than calling the file unreadable.
+    let named = match serde_json::from_str::<NamedBlob>(&text) {
+        Ok(named) => Some(named),
+        Err(e) => {
+            serde_json::from_str::<serde::de::IgnoredAny>(&text)
+                .map_err(|_| BlobCheck::NotJson(report.into(), e))?;
+            None
+        }
+    };
+    let recorded = named.as_ref().and_then(NamedBlob::blob_sha256);
     if recorded != Some(sha256) {
         return Err(BlobCheck::Report {
             report: report.into(),

@@ -7,9 +7,56 @@
 //! noise n (physical units, lsb per raw count) moves the score by at most
 //! |W|·(κ·n/lsb + 1) LSB; the radius is the sum over the channels with declared noise.
 
+use crate::ingest::names::same_name;
 use crate::release::audit_report::{ChannelTolerance, SetSummary, Tolerance, UnitRow};
 use crate::release::quantise::Quantised;
 use crate::train::float_model::FloatModel;
+
+/// A `--noise CHANNEL=VALUE` entry that cannot be used.
+#[derive(Debug, thiserror::Error, PartialEq)]
+pub enum NoiseSpecError {
+    /// No `=` in the entry.
+    #[error("--noise '{0}': expected CHANNEL=VALUE")]
+    Form(String),
+    /// The name is no channel of the model.
+    #[error("--noise: no channel '{0}' in the model")]
+    Channel(String),
+    /// The value is not a finite number ≥ 0.
+    #[error("--noise '{0}': value must be a non-negative number")]
+    Value(String),
+}
+
+/// Each channel's declared noise: the model's (from its sheet), with `--noise` entries
+/// (`CHANNEL=VALUE`, physical units) put over them; channel names compare as everywhere,
+/// without regard to case.
+///
+/// # Errors
+/// The first entry that cannot be used ([`NoiseSpecError`]).
+pub fn declared_noise(
+    fm: &FloatModel,
+    specs: &[String],
+) -> Result<Vec<Option<f64>>, NoiseSpecError> {
+    let mut noise: Vec<Option<f64>> = fm.channels.iter().map(|c| c.noise).collect();
+    for spec in specs {
+        let (name, value) = spec
+            .split_once('=')
+            .ok_or_else(|| NoiseSpecError::Form(spec.clone()))?;
+        let i = fm
+            .channels
+            .iter()
+            .position(|c| same_name(&c.name, name))
+            .ok_or_else(|| NoiseSpecError::Channel(name.into()))?;
+        let v: f64 = value
+            .parse()
+            .ok()
+            .filter(|v: &f64| v.is_finite() && *v >= 0.0)
+            .ok_or_else(|| NoiseSpecError::Value(spec.clone()))?;
+        if let Some(n) = noise.get_mut(i) {
+            *n = Some(v);
+        }
+    }
+    Ok(noise)
+}
 
 /// The most the declared noise can move a score, in LSB; `None` if no noise is declared.
 pub(super) fn noise_radius(q: &Quantised, fm: &FloatModel, noise: &[Option<f64>]) -> Option<f64> {

@@ -245,3 +245,36 @@ fn limits_parse_counts_and_rates() {
     // 1 % of 200 units is 2.
     assert!(Limit::Rate(0.01).allows(2, 200) && !Limit::Rate(0.01).allows(3, 200));
 }
+
+/// `--noise` names a channel as every other name does, without regard to case; the sheet's
+/// noise stays for the channels it does not name, and unusable entries are named.
+#[test]
+fn noise_entries_name_channels_without_regard_to_case() {
+    use host_trainer::release::tolerance::{NoiseSpecError, declared_noise};
+    let dir = tempfile::tempdir().unwrap();
+    let (fm, _, _) = demo(dir.path());
+    let k = fm
+        .channels
+        .iter()
+        .position(|c| c.name == "vibration_mg")
+        .unwrap();
+    let n = declared_noise(&fm, &["VIBRATION_MG=7.5".into()]).unwrap();
+    assert_eq!(n[k], Some(7.5));
+    for (j, c) in fm.channels.iter().enumerate() {
+        if j != k {
+            assert_eq!(n[j], c.noise, "{}", c.name);
+        }
+    }
+    assert_eq!(
+        declared_noise(&fm, &["vibration_mg".into()]),
+        Err(NoiseSpecError::Form("vibration_mg".into()))
+    );
+    assert_eq!(
+        declared_noise(&fm, &["humidity=1".into()]),
+        Err(NoiseSpecError::Channel("humidity".into()))
+    );
+    assert_eq!(
+        declared_noise(&fm, &["vibration_mg=-1".into()]),
+        Err(NoiseSpecError::Value("vibration_mg=-1".into()))
+    );
+}
