@@ -215,3 +215,69 @@ pub fn observed_over(
     }
     Ok((all, rows, skipped))
 }
+
+/// One unit of a log streamed for a trained model ([`stream`]).
+pub struct ModelUnit<'a> {
+    /// 1-based line of the unit's first row.
+    pub line: u64,
+    /// The unit id, if the log has a unit-id column (a signal log always has one).
+    pub id: Option<&'a [u8]>,
+    /// The unit's class code (+1 GO, −1 NO-GO), 0 when the log has no label column.
+    pub label: i8,
+    /// The raw readings of the model's reading channels as the device reads them (in range
+    /// or not); every channel's for a model of readings.
+    pub raw: &'a [i32],
+    /// Each signal's window of raw samples (none for a model of readings).
+    pub windows: &'a [Vec<i32>],
+}
+
+/// Streams a log through a trained model's channels without holding it: the one entry
+/// for bench logs and signal logs after training (`replay`, `values`). The model's
+/// signals decide the kind, as in [`read`]; refused windows reach `each` (the device
+/// shows them as FAULTs).
+///
+/// # Errors
+/// The first [`InputError`] (row and unit errors skipped and counted under
+/// `skip_bad_rows`), or whatever `each` returns.
+pub fn stream(
+    path: &std::path::Path,
+    opts: &LogOptions,
+    channels: &[ChannelScale],
+    signals: &[crate::ingest::signal_scale::SignalScale],
+    skipped: &mut SkipReport,
+    mut each: impl FnMut(ModelUnit<'_>) -> Result<(), InputError> + Send,
+) -> Result<(), InputError> {
+    use crate::ingest::signals::{ReadFor, device_readings, reading_channels};
+    if signals.is_empty() {
+        super::read::stream_units(path, opts, channels, skipped, |u| {
+            each(ModelUnit {
+                line: u.line,
+                id: u.unit,
+                label: u.label,
+                raw: u.raw,
+                windows: &[],
+            })
+        })?;
+        return Ok(());
+    }
+    let names: Vec<String> = reading_channels(channels).map(|c| c.name.clone()).collect();
+    let read_for = ReadFor::Model { readings: &names };
+    crate::ingest::signal_units::stream_signal_units(
+        path,
+        opts,
+        signals,
+        read_for,
+        skipped,
+        |u| {
+            let raw = device_readings(channels, u);
+            each(ModelUnit {
+                line: u.line,
+                id: Some(u.id.as_bytes()),
+                label: u.label,
+                raw: &raw,
+                windows: u.windows,
+            })
+        },
+    )?;
+    Ok(())
+}

@@ -12,7 +12,7 @@
 //! `records` (blocks, record ends, fields) → `header` (names and columns) →
 //! `parse` (one record to one row; `fast` for plain decimal records) → `scan`
 //! (the pipelined pass, rows in file order; Parquet through `parquet`, `parquet_file`,
-//! `parquet_cells`) → `read` (`read_log`, [`stream_units`]).
+//! `parquet_cells`) → `read` (`read_log`, [`stream_units`]); after training [`stream`] streams a bench or signal log for a model.
 //! `skip` says which errors are about one row and counts the rows skipped.
 //! [`scaling`] maps each channel's valid range to the kernel's inputs; [`sheet`] reads
 //! channel sheets and [`sheet_findings`] compares one with a log; [`dataset`] holds what
@@ -57,7 +57,7 @@ mod skip;
 #[cfg(test)]
 mod tests;
 
-pub use files::read;
+pub use files::{ModelUnit, read, stream};
 pub use options::{
     GO_TOKENS, LABEL_NAMES, LogOptions, MAX_READING, NOGO_TOKENS, ScaleFrom, TIME_NAMES, UNIT_NAMES,
 };

@@ -10,7 +10,7 @@
 //! [`image`] reads a blob back from any file `pack` writes and checks a pack's files agree;
 //! [`blob_match`] checks a blob against its key, model and audit report;
 //! [`replay`] prints the lines the device prints; [`sign`] holds the owner's release key
-//! and signs blobs (format version 2); [`keyfile`] reads and writes its key files.
+//! and signs blobs (format version 2, or 4 for a model with signal features); [`keyfile`] reads and writes its key files.
 //! [`features`] audits a model's signal features: ranges, overflow proofs and noise bounds.
 //! [`gates`] holds the release gates, each rate with its exact bounds
 //! (`crate::confidence`); [`units`] streams every unit's scores to `--units`;

@@ -17,8 +17,7 @@ use std::path::Path;
 
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
-use crate::ingest::signals::{ReadFor, device_readings, reading_channels, stream_signal_units};
-use crate::ingest::{LogOptions, SkipReport, stream_units};
+use crate::ingest::{LogOptions, SkipReport};
 use crate::train::float_model::FloatModel;
 
 /// The device's line for one unit: its reading channels' raw readings (every channel's,
@@ -59,26 +58,12 @@ pub fn replay_log(
     mut each: impl FnMut(&str, &[i32], &[Vec<i32>]) + Send,
 ) -> Result<(), InputError> {
     let mut index = 0usize;
-    if fm.signals.is_empty() {
-        stream_units(path, opts, &fm.channels, skipped, |u| {
-            each(&line(index, model, u.raw, &[]), u.raw, &[]);
-            index += 1;
-            Ok(())
-        })?;
-        return Ok(());
-    }
-    let names: Vec<String> = reading_channels(&fm.channels)
-        .map(|c| c.name.clone())
-        .collect();
-    let read_for = ReadFor::Model { readings: &names };
-    stream_signal_units(path, opts, &fm.signals, read_for, skipped, |u| {
-        let raw = device_readings(&fm.channels, u);
+    crate::ingest::stream(path, opts, &fm.channels, &fm.signals, skipped, |u| {
         let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
-        each(&line(index, model, &raw, &windows), &raw, u.windows);
+        each(&line(index, model, u.raw, &windows), u.raw, u.windows);
         index += 1;
         Ok(())
-    })?;
-    Ok(())
+    })
 }
 
 /// One unit as the example device takes it from its vectors: the reading channels' raw

@@ -1,5 +1,5 @@
 //! Signed releases: the owner's Ed25519 key pair (RFC 8032), signing a model blob at pack
-//! time (format version 2), and checking a signature against a public key.
+//! time (format version 2, or 4 for a model with signal features), and checking a signature against a public key.
 //!
 //! Key files (TOML, `format = "linegate-key"`; written 0600, never printed) are read and
 //! written by [`super::keyfile`]. Ed25519 signatures are deterministic, so the same inputs

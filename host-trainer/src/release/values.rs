@@ -2,8 +2,8 @@
 //! value, the raw integer, the kernel's scaled input word, and the unit's score and line.
 //!
 //! The log is read as `replay` reads it (bench logs streamed with the float model's
-//! scaling, out-of-range readings kept as the count the device reads; signal logs through
-//! [`stream_signal_units`] for a model, refused windows kept), and every number comes from
+//! scaling, out-of-range readings kept as the count the device reads; signal logs the same
+//! way, [`ingest::stream`](crate::ingest::stream), refused windows kept), and every number comes from
 //! the code the device runs: features from [`CheckedFeature::compute`], scaled inputs from
 //! [`CheckedModel::scale`](shared_model::CheckedModel::scale), the score from the kernel's
 //! classification, the line from [`replay::line()`]. So what this
@@ -18,8 +18,7 @@ use shared_model::{CheckedModel, SignalFault, SignalSection, WindowFault};
 
 use crate::error::InputError;
 use crate::ingest::scaling::ChannelScale;
-use crate::ingest::signals::{ReadFor, device_readings, reading_channels, stream_signal_units};
-use crate::ingest::{LogOptions, SkipReport, stream_units};
+use crate::ingest::{LogOptions, SkipReport};
 use crate::release::quantise::{QuantConfig, QuantError, quantise};
 use crate::release::replay;
 use crate::train::float_model::FloatModel;
@@ -232,33 +231,20 @@ pub fn unit_values(
     let mut out = Vec::new();
     let mut index = 0usize;
     let mut any_ids = false;
-    if fm.signals.is_empty() {
-        stream_units(log, opts, &fm.channels, skipped, |u| {
-            let id = u.unit.map(|b| String::from_utf8_lossy(b).into_owned());
-            any_ids |= id.is_some();
-            if pick.wants(u.line, id.as_deref()) {
-                out.push(reading_unit(index, u.line, id, fm, model, u.raw));
-            }
-            index += 1;
-            Ok(())
-        })?;
-    } else {
-        let names: Vec<String> = reading_channels(&fm.channels)
-            .map(|c| c.name.clone())
-            .collect();
-        let read_for = ReadFor::Model { readings: &names };
-        any_ids = true;
-        stream_signal_units(log, opts, &fm.signals, read_for, skipped, |u| {
-            if pick.wants(u.line, Some(u.id)) {
-                let readings = device_readings(&fm.channels, u);
-                out.push(signal_unit(
-                    index, u.line, u.id, fm, model, &readings, u.windows,
-                ));
-            }
-            index += 1;
-            Ok(())
-        })?;
-    }
+    crate::ingest::stream(log, opts, &fm.channels, &fm.signals, skipped, |u| {
+        let id = u.id.map(|b| String::from_utf8_lossy(b).into_owned());
+        any_ids |= id.is_some();
+        if pick.wants(u.line, id.as_deref()) {
+            out.push(if fm.signals.is_empty() {
+                reading_unit(index, u.line, id, fm, model, u.raw)
+            } else {
+                let id = id.unwrap_or_default();
+                signal_unit(index, u.line, &id, fm, model, u.raw, u.windows)
+            });
+        }
+        index += 1;
+        Ok(())
+    })?;
     pick.finish(log, any_ids)?;
     Ok(out)
 }
