@@ -986,6 +986,20 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
         out.contains(&format!("signed: key id {key_id}")) && out.contains("signature valid"),
         "{out}"
     );
+    // A report that is JSON but no record names no blob: the check fails (exit 1); a file
+    // that is not JSON cannot be read (exit 2).
+    for (text, code) in [
+        ("[1, 2]", 1),
+        ("null", 1),
+        ("{\"audit\": 3}", 1),
+        ("{oops", 2),
+    ] {
+        std::fs::write(d.join("odd.json"), text).unwrap();
+        exits(
+            &linegate(&["inspect", "signed.lgmb", "--report", "odd.json"], d),
+            code,
+        );
+    }
     // Another key's public file, an unsigned blob: exit 1.
     exits(
         &linegate(
