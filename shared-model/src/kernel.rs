@@ -256,6 +256,11 @@ impl<I: Inputs> CheckedModel<I> {
                 got: windows.len(),
             });
         }
+        // Every channel a reading: the readings are the channels' values as they are (the
+        // count is checked by `classify`, with the same fault).
+        if signals.is_empty() {
+            return self.classify(readings).map_err(SignalFault::Reading);
+        }
         let expected = self.reading_count();
         if readings.len() != expected {
             return Err(SignalFault::Reading(Fault::ReadingCount {

@@ -67,6 +67,7 @@ impl Classes {
     }
 
     /// The class `token` stands for (the first class whose tokens hold it), or `None`.
+    #[inline]
     pub fn class_of(&self, token: &[u8]) -> Option<ClassId> {
         let k = self.list.iter().position(|c| token_in(token, &c.tokens))?;
         ClassId::try_from(k).ok()
@@ -74,6 +75,7 @@ impl Classes {
 
     /// Class `id` in the GO-vs-rest view the trainers read: +1 for the GO class, −1 for
     /// every other.
+    #[inline]
     pub fn sign(&self, id: ClassId) -> i8 {
         if Some(id) == self.go { 1 } else { -1 }
     }
@@ -81,6 +83,7 @@ impl Classes {
     /// The code a unit of class `id` keeps: +1 for the GO class, −1 − k for the k-th
     /// other class (in list order). Its sign is [`Self::sign`]; with two classes it is the
     /// sign itself.
+    #[inline]
     pub fn code(&self, id: ClassId) -> i8 {
         if Some(id) == self.go {
             return 1;
@@ -93,6 +96,7 @@ impl Classes {
 
     /// The code of the class `token` stands for ([`Self::code`]), or `None` for a token of
     /// no class (or of a class past the 128th, which no code can hold).
+    #[inline]
     pub fn label(&self, token: &[u8]) -> Option<i8> {
         let id = self.class_of(token)?;
         (id < 128).then(|| self.code(id))
@@ -122,6 +126,7 @@ impl Classes {
 
 /// Whether `token` is one of `tokens` (lower case), compared case-insensitively. ASCII
 /// tokens (the usual case) need no allocation.
+#[inline]
 fn token_in(token: &[u8], tokens: &[String]) -> bool {
     if token.is_ascii() {
         tokens
