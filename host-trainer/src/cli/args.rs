@@ -11,6 +11,7 @@ use host_trainer::ingest::dataset::Dataset;
 use host_trainer::project::Setting;
 use host_trainer::release::applying::Apply;
 use host_trainer::release::gates::{AuditConfig, Limit};
+use host_trainer::release::model_gates::{self, GivenGates};
 use host_trainer::release::quantise::QuantConfig;
 use host_trainer::release::sign;
 use host_trainer::train::float_model::FloatModel;
@@ -393,16 +394,18 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         &opts,
     )?;
     let noise = host_trainer::release::tolerance::declared_noise(&fm, &r.noise)?;
+    let given = GivenGates {
+        max_false_go: r.max_false_go,
+        max_false_nogo: r.max_false_nogo,
+        max_recheck: r.max_recheck,
+        recheck_band: r.recheck_band,
+    };
     let qc = QuantConfig {
         input_bits: r.input_bits,
         weight_bits: r.weight_bits,
         optimise: !r.no_optimise,
         acc_bits: r.acc_bits,
-        recheck_band: match (r.recheck_band, &fm.operating_point) {
-            (Some(b), _) => b,
-            (None, Some(op)) => op.band,
-            (None, None) => 0.0,
-        },
+        recheck_band: model_gates::recheck_band(&given, &fm),
     };
     if let (Some(b), Some(op), false) = (r.recheck_band, &fm.operating_point, quiet)
         && b != op.band
@@ -414,7 +417,7 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
             );
         }
     }
-    let (gates, from_model) = default_gates(r, &fm, qc.recheck_band);
+    let (gates, from_model) = model_gates::model_gates(&given, &fm, qc.recheck_band);
     let ac = AuditConfig {
         min_margin_lsb: r.min_margin_lsb,
         max_flips: r.max_flips,
@@ -447,82 +450,4 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         from_model,
         settings,
     })
-}
-
-/// The false-GO and false-NO-GO gates: the flags', else the model's operating point's, else
-/// 0 and 1 %; with a sentence for each setting taken from the model.
-fn default_gates(
-    r: &ReleaseArgs,
-    fm: &FloatModel,
-    band: f64,
-) -> ((Limit, Limit, Limit), Vec<String>) {
-    use host_trainer::confidence::Rate;
-    use host_trainer::release::point_record::HeldOutRates;
-    use host_trainer::train::operating_point::Target;
-    let mut said = Vec::new();
-    let op = fm.operating_point.as_ref();
-    // The held-out rates the model's point was chosen on, as the report states them.
-    let rates = op.map(|op| HeldOutRates::new(&op.counts, op));
-    // Rounded up to 0.01 %: a gate that reads cleanly and is never below the bound.
-    let up = |r: f64| (r * 1e4).ceil() / 1e4;
-    if let (None, Some(op)) = (r.recheck_band, op) {
-        said.push(format!(
-            "RECHECK band ±{band} (model score units), chosen on {}",
-            op.source
-        ));
-    }
-    let fg = match (r.max_false_go, op.zip(rates.as_ref())) {
-        (Some(l), _) => l,
-        (None, None) => Limit::Count(0),
-        (None, Some((op, rates))) => {
-            let l = match op.target {
-                Target::FalseGo { rate, confidence } => Limit::Upper { rate, confidence },
-                Target::RecheckBudget { .. } => Limit::Rate(up(rates.false_go.upper)),
-            };
-            said.push(format!(
-                "false-GO gate {l} of each log's NO-GO units ({}: {} false GO among {} held-out NO-GO units); --max-false-go sets another",
-                match op.target {
-                    Target::FalseGo { .. } => "the target train met",
-                    Target::RecheckBudget { .. } => "the 95 % upper bound of the rate train measured",
-                },
-                op.counts.false_go,
-                op.nogo_units
-            ));
-            l
-        }
-    };
-    // At least the fixed default, or what train measured on held-out units if higher.
-    let mut measured = |given: Option<Limit>, floor: f64, rate: Option<&Rate>, what: &str| match (
-        given, rate,
-    ) {
-        (Some(l), _) => l,
-        (None, Some(r)) if r.of > 0 => {
-            let upper = up(r.upper);
-            if upper > floor {
-                said.push(format!(
-                    "{what} gate {:.2}% (the 95 % upper bound of the share train measured: {} of {} held-out units); a flag sets another",
-                    upper * 100.0,
-                    r.count,
-                    r.of
-                ));
-                Limit::Rate(upper)
-            } else {
-                Limit::Rate(floor)
-            }
-        }
-        _ => Limit::Rate(floor),
-    };
-    let fng = measured(
-        r.max_false_nogo,
-        0.01,
-        rates.as_ref().map(|r| &r.false_nogo),
-        "false-NO-GO (of each log's GO units)",
-    );
-    let recheck = measured(
-        r.max_recheck,
-        0.05,
-        rates.as_ref().map(|r| &r.recheck),
-        "RECHECK (of each log's units)",
-    );
-    ((fg, fng, recheck), said)
 }

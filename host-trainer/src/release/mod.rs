@@ -13,7 +13,8 @@
 //! and signs blobs (format version 2, or 4 for a model with signal features); [`keyfile`] reads and writes its key files.
 //! [`features`] audits a model's signal features: ranges, overflow proofs and noise bounds.
 //! [`gates`] holds the release gates, each rate with its exact bounds
-//! (`crate::confidence`); [`units`] streams every unit's scores to `--units`;
+//! (`crate::confidence`), and [`model_gates`] the gates and band a model's operating point
+//! sets when the flags leave them out; [`units`] streams every unit's scores to `--units`;
 //! [`values`] lists a unit's channel values as the device computes them.
 
 pub mod applying;
@@ -29,6 +30,7 @@ pub mod hex;
 pub mod image;
 pub mod keyfile;
 pub mod matching;
+pub mod model_gates;
 pub mod pack;
 pub mod point_record;
 pub mod quantise;
