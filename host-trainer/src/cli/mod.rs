@@ -152,6 +152,25 @@ impl std::fmt::Display for CheckFailed {
 
 impl std::error::Error for CheckFailed {}
 
+/// The blob `bytes` (read from `blob`) decoded for the float model `fm` (read from
+/// `model`): a damaged blob, or one another model packed, fails the check (exit 1).
+fn blob_of_model(
+    fm: &host_trainer::train::float_model::FloatModel,
+    bytes: &[u8],
+    blob: &std::path::Path,
+    model: &std::path::Path,
+) -> Result<shared_model::CheckedModel<shared_model::SignalSection>> {
+    use host_trainer::release::matching::{BlobMismatch, decode_from};
+    decode_from(fm, bytes).map_err(|e| match e {
+        BlobMismatch::Decode(e) => anyhow::Error::new(CheckFailed(format!("{}: {e}", blob.display()))),
+        BlobMismatch::Mismatch(e) => anyhow::Error::new(CheckFailed(format!(
+            "{}: not a blob of the float model {}: {e}; give the float model the blob was packed from",
+            blob.display(),
+            model.display()
+        ))),
+    })
+}
+
 /// Says on stderr how many rows of `path` were skipped as unreadable (`--skip-bad-rows`),
 /// by reason: a skipped row is a unit the report does not show, so it is never silent.
 fn warn_skipped(path: &std::path::Path, skipped: &host_trainer::ingest::SkipReport) {

@@ -9,7 +9,7 @@ use host_trainer::ingest::LogOptions;
 use super::CheckFailed;
 use super::args::LogArgs;
 use host_trainer::output::OutputSet;
-use host_trainer::release::{matching, replay, sign};
+use host_trainer::release::{replay, sign};
 use host_trainer::train::float_model::FloatModel;
 
 /// Flags of `linegate replay`.
@@ -60,16 +60,7 @@ impl ReplayArgs {
             "model blob",
             host_trainer::input::MAX_IMAGE_FILE,
         )?;
-        let m = matching::decode_from(&fm, &bytes).map_err(|e| match e {
-            matching::BlobMismatch::Decode(e) => {
-                anyhow::Error::new(CheckFailed(format!("{}: {e}", blob.display())))
-            }
-            matching::BlobMismatch::Mismatch(e) => anyhow::Error::new(CheckFailed(format!(
-                "{}: not a blob of the float model {}: {e}; give the float model the blob was packed from",
-                blob.display(),
-                model.display()
-            ))),
-        })?;
+        let m = super::blob_of_model(&fm, &bytes, blob, model)?;
         if let Some(k) = &self.public_key {
             let key = sign::read_public(k)?;
             sign::verify(&bytes, &key)

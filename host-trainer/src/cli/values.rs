@@ -6,8 +6,8 @@ use std::path::PathBuf;
 use anyhow::Result;
 use clap::Args;
 use host_trainer::ingest::{LogOptions, SkipReport};
+use host_trainer::release::replay;
 use host_trainer::release::values::{self, ChannelInfo, Selection, UnitValues};
-use host_trainer::release::{matching, replay};
 use host_trainer::train::float_model::FloatModel;
 use shared_model::{CheckedModel, SignalSection};
 
@@ -15,7 +15,7 @@ use shared_model::{CheckedModel, SignalSection};
 type Model = CheckedModel<SignalSection>;
 
 use super::args::LogArgs;
-use super::{CheckFailed, shown, to_json};
+use super::{shown, to_json};
 
 /// The CSV columns, in order (README, "values").
 pub const CSV_HEADER: [&str; 14] = [
@@ -134,16 +134,8 @@ impl ValuesArgs {
             "model blob",
             host_trainer::input::MAX_IMAGE_FILE,
         )?;
-        let m = matching::decode_from(fm, &bytes).map_err(|e| match e {
-            matching::BlobMismatch::Decode(e) => {
-                anyhow::Error::new(CheckFailed(format!("{}: {e}", path.display())))
-            }
-            matching::BlobMismatch::Mismatch(e) => anyhow::Error::new(CheckFailed(format!(
-                "{}: not a blob of the float model {}: {e}; give the float model the blob was packed from",
-                path.display(),
-                self.model.as_deref().unwrap_or(std::path::Path::new("")).display()
-            ))),
-        })?;
+        let model = self.model.as_deref().unwrap_or(std::path::Path::new(""));
+        let m = super::blob_of_model(fm, &bytes, path, model)?;
         let id = format!("{:08x}", shared_model::blob::blob_id(&bytes).unwrap_or(0));
         let line = replay::model_line(&m, &bytes).trim_end().to_string();
         Ok((m, Some((id, line))))
