@@ -25,7 +25,8 @@ use std::process::Command;
 use std::time::Instant;
 
 use host_trainer::ingest::LogOptions;
-use host_trainer::train::maxmargin::{SvmConfig, max_margin};
+use host_trainer::train::maxmargin::max_margin;
+use host_trainer::train::svm::SvmConfig;
 
 /// Median wall time of `runs` runs of `linegate args`, in seconds.
 fn time(bin: &Path, args: &[&str], runs: usize) -> f64 {

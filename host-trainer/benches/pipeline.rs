@@ -15,8 +15,9 @@ use host_trainer::ingest::{LogOptions, ScaleFrom, read};
 use host_trainer::release::audit::audit;
 use host_trainer::release::gates::AuditConfig;
 use host_trainer::release::quantise::{QuantConfig, quantise};
-use host_trainer::train::maxmargin::{SvmConfig, max_margin};
+use host_trainer::train::maxmargin::max_margin;
 use host_trainer::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
+use host_trainer::train::svm::SvmConfig;
 
 fn peak_rss_mib() -> f64 {
     std::fs::read_to_string("/proc/self/status")

@@ -32,7 +32,7 @@
 //! without a 64-bit multiply (Cortex-M0/M0+) do in single instructions.
 #![warn(clippy::arithmetic_side_effects)]
 
-pub use crate::decision::{Decision, Thresholds, Verdict};
+use crate::decision::{Decision, Thresholds, Verdict};
 use crate::error::{Fault, SignalFault, WindowFault};
 use crate::features::{CheckedFeature, SignalSpec, Source};
 use crate::limits::MAX_CHANNELS;

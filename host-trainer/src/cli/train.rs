@@ -15,8 +15,8 @@ use host_trainer::release::point_record::HeldOutRates;
 use host_trainer::train::c_choice::{self, CPolicy};
 use host_trainer::train::eval::TrainerKind;
 use host_trainer::train::float_model::HoldoutSplit;
-use host_trainer::train::maxmargin::ClassWeight;
 use host_trainer::train::operating_point::Target;
+use host_trainer::train::svm::ClassWeight;
 use host_trainer::workflow::{self, CvTrainers};
 
 /// Flags of `linegate train`.

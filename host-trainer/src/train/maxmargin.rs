@@ -11,9 +11,9 @@
 //! speaks of) are the same geometry in another convention: [`crate::train::novikoff`].
 
 use crate::train::hard_margin::hard_margin;
-pub use crate::train::soft_margin::SMO_LIMIT;
+use crate::train::soft_margin::SMO_LIMIT;
 use crate::train::soft_margin::{large_soft_margin, smo_margin};
-pub use crate::train::svm::{ClassWeight, SvmConfig, SvmRun};
+use crate::train::svm::{SvmConfig, SvmRun};
 use crate::train::task::AsBinary;
 
 /// Trains the free-bias maximum-margin classifier on the units `idx`.

@@ -20,10 +20,10 @@ use crate::train::eval::{
 };
 use crate::train::float_model::{FloatModel, InputFile, Provenance, SoftMargin, TrainingSummary};
 use crate::train::linear::threshold_for_false_go;
-use crate::train::maxmargin::ClassWeight;
 use crate::train::operating_point::{self, Target};
 use crate::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 use crate::train::separability::{Figures, SeparabilityReport, check_with};
+use crate::train::svm::ClassWeight;
 
 /// Reads a training log (one or several files) with an optional channel sheet. The sheet
 /// may be a project file's inline `[sheet]`.

@@ -9,10 +9,11 @@ use clarabel::solver::{
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::ingest::scaling::ChannelScale;
 use host_trainer::train::extent::radius;
-use host_trainer::train::maxmargin::{SvmConfig, max_margin};
+use host_trainer::train::maxmargin::max_margin;
 use host_trainer::train::novikoff::homogeneous_margin;
 use host_trainer::train::perceptron::{PerceptronConfig, PerceptronKind, perceptron};
 use host_trainer::train::separability::check;
+use host_trainer::train::svm::SvmConfig;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 
