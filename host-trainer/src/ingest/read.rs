@@ -1,5 +1,7 @@
-//! Whole logs: read into a dataset (observed ranges first where the sheet declares none),
-//! or streamed unit by unit for logs of any length.
+//! Whole bench logs: read into a dataset (observed ranges first where the sheet declares
+//! none), or streamed unit by unit for logs of any length; and the rules every log kind
+//! shares once read (`checked_classes`: units present, two classes, both present for
+//! training; `spread_checked`: no constant channel).
 
 use std::fs::File;
 use std::io::Read;
@@ -304,7 +306,7 @@ pub struct StreamedUnit<'a> {
     pub line: u64,
     /// Raw readings, in the order of `scales`.
     pub raw: &'a [i32],
-    /// The unit's class in the GO-vs-rest view (+1 GO, −1 any other class).
+    /// The unit's class code (`Classes::code`: +1 GO, −1 NO-GO), 0 without a label.
     pub label: i8,
     /// The unit id cell, if the log has a unit-id column.
     pub unit: Option<&'a [u8]>,

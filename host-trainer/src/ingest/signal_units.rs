@@ -26,8 +26,8 @@ pub struct SignalUnit<'a> {
     pub id: &'a str,
     /// 1-based line of the unit's first row.
     pub line: u64,
-    /// The unit's class in the GO-vs-rest view (+1 GO, −1 any other), 0 when the log has
-    /// no label column.
+    /// The unit's class code (`Classes::code`: +1 GO, −1 NO-GO), 0 when the log has no
+    /// label column.
     pub label: i8,
     /// The reading channels' values (physical), in the order the reader was given.
     pub readings: &'a [f64],
