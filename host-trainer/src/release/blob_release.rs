@@ -1,7 +1,7 @@
 //! The blob release: the bytes `pack` writes for an audit outcome, marked passed or
 //! overridden and signed when a release key is given.
 
-use shared_model::{CheckedModel, Inputs, SignalSection};
+use shared_model::CheckedModel;
 
 use crate::release::quantise::Quantised;
 
@@ -24,26 +24,18 @@ pub fn released_blob(
     signer: Option<&ed25519_dalek::SigningKey>,
 ) -> Vec<u8> {
     let marked = mark(&q.model, release_mark(passed));
-    if q.signals.is_empty() {
-        return bytes(&marked, signer);
-    }
-    // A model with signals is never written without them: were the pair refused (which
-    // `quantise` rules out), the blob would be empty and refused everywhere, not a blob
-    // whose features a station would take for readings.
-    match with_signals(q, marked) {
-        Some(m) => bytes(&m, signer),
-        None => Vec::new(),
-    }
-}
-
-/// The blob of `model`, signed when a key is given.
-fn bytes<I: Inputs>(
-    model: &CheckedModel<I>,
-    signer: Option<&ed25519_dalek::SigningKey>,
-) -> Vec<u8> {
+    // One encoder picks the version: `q`'s section is empty for a model of readings
+    // (version 1/2). A model with signals is never written without them: were the pair
+    // refused (which `quantise` rules out: it validated the same section against the same
+    // channels, and a mark or a move of the weights changes no channel's range), the blob
+    // would be empty and refused everywhere, not one whose features a station would take
+    // for readings.
+    let Ok(model) = CheckedModel::with_inputs(marked.into_inner(), q.signals.clone()) else {
+        return Vec::new();
+    };
     match signer {
-        Some(k) => crate::release::sign::signed_blob(model, k),
-        None => crate::release::pack::blob_bytes(model),
+        Some(k) => crate::release::sign::signed_blob(&model, k),
+        None => crate::release::pack::blob_bytes(&model),
     }
 }
 
@@ -52,17 +44,6 @@ pub fn mark(model: &CheckedModel, mark: shared_model::AuditMark) -> CheckedModel
     let mut m = model.model().clone();
     m.audit = mark;
     CheckedModel::new(m).unwrap_or_else(|_| model.clone())
-}
-
-/// `model` (`q`'s model, perhaps marked by the audit) with `q`'s signals, for a signal blob;
-/// `None` for a model of readings, or if the pair were refused, which `quantise` rules out:
-/// it validated the same section against the same channels, and a mark or a move of the
-/// weights changes no channel's range.
-fn with_signals(q: &Quantised, model: CheckedModel) -> Option<CheckedModel<SignalSection>> {
-    if q.signals.is_empty() {
-        return None;
-    }
-    CheckedModel::with_inputs(model.into_inner(), q.signals.clone()).ok()
 }
 
 #[cfg(test)]
