@@ -9,7 +9,9 @@
 //! 3. [`release`]: the float model → quantised fixed-point model → release audit → blob,
 //!    Intel HEX image, replay of the device's lines. Every fixed-point decision is made
 //!    by `shared_model`'s kernel, the same code the firmware runs.
-//! 4. [`report`]: the audit as Markdown, HTML and SVG.
+//! 4. [`field`]: after the release: scoring field logs, comparing two releases, drift
+//!    against the audit's baseline.
+//! 5. [`report`]: the audit (and what `field` finds) as Markdown, HTML and SVG.
 //!
 //! [`workflow`] runs the steps as single calls, the release step in `workflow::release`
 //! (the CLI and [`demo`] both use them);
@@ -50,6 +52,7 @@ pub mod confidence;
 pub mod demo;
 pub mod digest;
 pub mod error;
+pub mod field;
 pub mod ingest;
 pub mod input;
 pub mod output;

@@ -83,6 +83,7 @@ pub mod blob;
 pub mod decision;
 pub mod error;
 pub mod features;
+pub mod field;
 #[doc = include_str!("../FORMAT.md")]
 pub mod format {}
 pub mod kernel;
@@ -94,5 +95,6 @@ pub use error::{
     DecodeError, EncodeError, Fault, ModelError, SignalError, SignalFault, WindowFault,
 };
 pub use features::SignalSection;
+pub use field::{FieldFault, FieldPlan, FieldStats};
 pub use limits::{MAX_CHANNELS, NAME_CAPACITY};
 pub use model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, Inputs, Readings};

@@ -277,6 +277,7 @@ fn host_trainer_folders_follow_the_data_flow() {
         &["ingest"],
         &["train"],
         &["release"],
+        &["field"],
         &["report"],
         &["synth", "workflow"],
         &["demo"],
@@ -300,7 +301,7 @@ fn host_trainer_folders_follow_the_data_flow() {
         }
     }
     // The steps have their folders.
-    for dir in ["ingest", "train", "release", "report", "workflow"] {
+    for dir in ["ingest", "train", "release", "field", "report", "workflow"] {
         assert!(
             all.iter().any(|m| m.path == [dir.to_string()]),
             "no module {dir}"
