@@ -248,18 +248,37 @@ impl<I: Inputs> CheckedModel<I> {
         readings: &[i32],
         windows: &[&[i32]],
     ) -> Result<Decision, SignalFault> {
-        // A model of readings has no signals: no window, every channel a reading.
+        // A model of readings: the readings are the channels' values as they are (the
+        // count is checked by `classify`, with the same fault), no copy.
+        if self.signal_count() == 0 && windows.is_empty() {
+            return self.classify(readings).map_err(SignalFault::Reading);
+        }
+        let mut values = [0i32; MAX_CHANNELS];
+        let n = self.channel_values(readings, windows, &mut values)?;
+        self.classify(values.get(..n).unwrap_or(&[]))
+            .map_err(SignalFault::Reading)
+    }
+
+    /// The values the weights multiply, one per channel in model order, written into
+    /// `values`: a reading channel's reading, a feature channel's feature of its signal's
+    /// window. Returns the channel count. [`classify_windows`](Self::classify_windows) is
+    /// this, then [`classify`](Self::classify); the field statistics keep these values.
+    ///
+    /// # Errors
+    /// As [`classify_windows`](Self::classify_windows), except a value outside its
+    /// channel's range (that is `classify`'s refusal).
+    pub fn channel_values(
+        &self,
+        readings: &[i32],
+        windows: &[&[i32]],
+        values: &mut [i32; MAX_CHANNELS],
+    ) -> Result<usize, SignalFault> {
         let signals: &[SignalSpec] = self.inputs().section().map_or(&[], |s| &s.signals);
         if windows.len() != signals.len() {
             return Err(SignalFault::Windows {
                 expected: count_u8(signals.len()),
                 got: windows.len(),
             });
-        }
-        // Every channel a reading: the readings are the channels' values as they are (the
-        // count is checked by `classify`, with the same fault).
-        if signals.is_empty() {
-            return self.classify(readings).map_err(SignalFault::Reading);
         }
         let expected = self.reading_count();
         if readings.len() != expected {
@@ -269,7 +288,6 @@ impl<I: Inputs> CheckedModel<I> {
             }));
         }
         let n = self.channel_count();
-        let mut values = [0i32; MAX_CHANNELS];
         let mut next = readings.iter();
         for (i, v) in values.iter_mut().enumerate().take(n) {
             *v = match self.source(i) {
@@ -295,8 +313,7 @@ impl<I: Inputs> CheckedModel<I> {
                 }
             };
         }
-        let values = values.get(..n).unwrap_or(&[]);
-        self.classify(values).map_err(SignalFault::Reading)
+        Ok(n)
     }
 }
 
