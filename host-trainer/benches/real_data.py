@@ -273,7 +273,7 @@ def linegate_split(linegate, ds, tr, te, work):
         pack["flag"] = "--override-audit"
         run(linegate, ["pack", "--model", "model.json", "--train", "train.csv", "-o", "model.lgmb",
                        "--override-audit"], {0}, work)
-    p = run(linegate, ["replay", "--blob", "model.lgmb", "--model", "model.json", "test.csv"], {0}, work)
+    p = run(linegate, ["replay", "--form", "device", "--blob", "model.lgmb", "--model", "model.json", "test.csv"], {0}, work)
     verdicts = {}
     for line in p.stdout.splitlines():
         if not line or line.startswith("#"):

@@ -171,7 +171,7 @@ def main(argv):
                        "-o", f"{d}/m.lgmb", "--override-audit"], d)
         outs = {}
         for lay in LAYOUTS:
-            args = ["replay", f"{work}/test/{lay}", "--blob", f"{d}/m.lgmb", "--model", model]
+            args = ["replay", "--form", "device", f"{work}/test/{lay}", "--blob", f"{d}/m.lgmb", "--model", model]
             if lay == "long.csv":
                 args += ["--vectors", f"{d}/vectors.txt"]
             outs[lay] = run(linegate, args, d)

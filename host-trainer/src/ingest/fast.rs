@@ -14,7 +14,7 @@ use crate::ingest::classes::Classes;
 use crate::ingest::scaling::{ChannelScale, power_of_ten};
 
 /// What the fast path does with one column.
-#[derive(Clone, Copy, Debug)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
 enum Role {
     Skip,
     /// Under a trailing unnamed header column: must be empty.
@@ -22,6 +22,8 @@ enum Role {
     Channel(usize),
     Label,
     Unit,
+    /// The timestamp column, kept (under `keep_times`) as the unit id is.
+    Time,
 }
 
 /// A channel whose raw count is the decimal reading shifted by `k` places: lsb = 10⁻ᵏ
@@ -212,6 +214,8 @@ pub(super) struct FastRecord {
     pub label: i8,
     /// The unit-id field, as a range of the run.
     pub unit: Option<(usize, usize)>,
+    /// The timestamp field (under `keep_times`), as a range of the run.
+    pub time: Option<(usize, usize)>,
 }
 
 impl FastPlan {
@@ -225,10 +229,6 @@ impl FastPlan {
         decimal_comma: bool,
         opts: &LogOptions,
     ) -> Option<Self> {
-        // Timestamps are kept by the general path only (a holdout split by time is rare).
-        if opts.keep_times && cols.time.is_some() {
-            return None;
-        }
         // A delimiter that can be part of a number would make fields ambiguous.
         if delimiter.is_ascii_digit() || matches!(delimiter, b'.' | b'-' | b'"') {
             return None;
@@ -253,6 +253,9 @@ impl FastPlan {
         }
         if let Some(u) = cols.unit {
             *roles.get_mut(u)? = Role::Unit;
+        }
+        if let (Some(t), true) = (cols.time, opts.keep_times) {
+            *roles.get_mut(t)? = Role::Time;
         }
         for (j, &c) in cols.channels.iter().enumerate() {
             *roles.get_mut(c)? = Role::Channel(j);
@@ -283,6 +286,7 @@ impl FastPlan {
         // A log without a label column gives every unit label 0 (unknown).
         let mut label = self.unlabelled.then_some(0);
         let mut unit = None;
+        let mut time = None;
         for (c, &role) in self.roles.iter().enumerate() {
             let start = pos;
             let mut end;
@@ -333,13 +337,18 @@ impl FastPlan {
             let field = bytes.get(start..end)?;
             match role {
                 Role::Label => label = Some(self.classes.label(field)?),
-                Role::Unit => {
-                    // The general path trims ids; only untrimmed ones are read here.
+                Role::Unit | Role::Time => {
+                    // The general path trims ids and timestamps; only untrimmed ones are
+                    // read here.
                     let padded = |b: Option<&u8>| b.is_some_and(u8::is_ascii_whitespace);
                     if padded(field.first()) || padded(field.last()) {
                         return None;
                     }
-                    unit = Some((start, end));
+                    if role == Role::Unit {
+                        unit = Some((start, end));
+                    } else {
+                        time = Some((start, end));
+                    }
                 }
                 Role::Empty => {
                     if !field.trim_ascii().is_empty() {
@@ -356,6 +365,7 @@ impl FastPlan {
             FastRecord {
                 label: label?,
                 unit,
+                time,
             },
             pos,
         ))

@@ -222,6 +222,9 @@ pub struct ModelUnit<'a> {
     pub line: u64,
     /// The unit id, if the log has a unit-id column (a signal log always has one).
     pub id: Option<&'a [u8]>,
+    /// The timestamp cell (of the unit's first row), if the log has a timestamp column
+    /// and [`LogOptions::keep_times`] asks for it.
+    pub time: Option<&'a [u8]>,
     /// The unit's class code (+1 GO, −1 NO-GO), 0 when the log has no label column.
     pub label: i8,
     /// The raw readings of the model's reading channels as the device reads them (in range
@@ -253,6 +256,7 @@ pub fn stream(
             each(ModelUnit {
                 line: u.line,
                 id: u.unit,
+                time: u.time,
                 label: u.label,
                 raw: u.raw,
                 windows: &[],
@@ -273,6 +277,7 @@ pub fn stream(
             each(ModelUnit {
                 line: u.line,
                 id: Some(u.id.as_bytes()),
+                time: u.time.map(str::as_bytes),
                 label: u.label,
                 raw: &raw,
                 windows: u.windows,

@@ -208,6 +208,10 @@ impl Parser<'_> {
                             out.unit_bytes.extend_from_slice(&bytes[a..b]);
                             out.unit_ends.push(out.unit_bytes.len());
                         }
+                        if let Some((a, b)) = r.time {
+                            out.time_bytes.extend_from_slice(&bytes[a..b]);
+                            out.time_ends.push(out.time_bytes.len());
+                        }
                         out.labels.push(r.label);
                         out.lines.push(line);
                         end

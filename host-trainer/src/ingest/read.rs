@@ -310,6 +310,9 @@ pub struct StreamedUnit<'a> {
     pub label: i8,
     /// The unit id cell, if the log has a unit-id column.
     pub unit: Option<&'a [u8]>,
+    /// The timestamp cell, if the log has a timestamp column and
+    /// [`LogOptions::keep_times`] asks for it.
+    pub time: Option<&'a [u8]>,
 }
 
 /// Streams the units of a log converted to raw readings with `scales` (from a trained model),
@@ -338,6 +341,7 @@ pub fn stream_units(
                 raw: row.raw,
                 label: row.label,
                 unit: row.unit,
+                time: row.time,
             })
         },
         None,

@@ -159,6 +159,8 @@ struct View {
     lines: Vec<u64>,
     units: Vec<u8>,
     unit_ends: Vec<usize>,
+    times: Vec<u8>,
+    time_ends: Vec<usize>,
     errors: Vec<(usize, String)>,
 }
 
@@ -170,6 +172,8 @@ fn parsed_view(p: &Parsed) -> View {
         lines: p.lines.clone(),
         units: p.unit_bytes.clone(),
         unit_ends: p.unit_ends.clone(),
+        times: p.time_bytes.clone(),
+        time_ends: p.time_ends.clone(),
         errors: p.errors.iter().map(|(k, e)| (*k, e.to_string())).collect(),
     }
 }
@@ -230,8 +234,19 @@ proptest::proptest! {
             proptest::sample::select(vec!["\n", "\r\n", "\r", "\r\r\n", ""]),
         ), 0..40),
         raw in proptest::bool::ANY,
+        times in proptest::bool::ANY,
     ) {
-        let opts = record_options();
+        // With `times` the third column is the timestamp, kept (as replay keeps it).
+        let opts = if times {
+            LogOptions {
+                ignore: Vec::new(),
+                timestamp: Some("note".into()),
+                keep_times: true,
+                ..record_options()
+            }
+        } else {
+            record_options()
+        };
         let text = records_text(&records, ",");
         let plain = !text.contains('"');
         let (p, q) = both_paths(&opts, text.as_bytes(), plain, raw);

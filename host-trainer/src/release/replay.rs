@@ -11,7 +11,7 @@
 //! `classify_windows` ([`line()`]); [`replay_log`] reads a bench log or a signal log, as the
 //! float model says, and hands each unit's line and vector on.
 
-use shared_model::{CheckedModel, Fault, Inputs, SignalFault, SignalSection};
+use shared_model::{CheckedModel, Decision, Fault, Inputs, SignalFault, SignalSection};
 
 use std::path::Path;
 
@@ -30,15 +30,26 @@ pub fn line<I: Inputs>(
     readings: &[i32],
     windows: &[&[i32]],
 ) -> String {
-    match model.classify_windows(readings, windows) {
-        Ok(d) => format!("{index} {} {}", d.verdict.as_str(), d.score),
+    let mut out = String::new();
+    write_line(&mut out, index, &model.classify_windows(readings, windows));
+    out
+}
+
+/// Appends the device's line for the unit at `index` whose classification is `result`
+/// (what [`line()`] prints, without the line feed): for callers that classify once and
+/// print the line beside other fields.
+pub fn write_line(out: &mut String, index: usize, result: &Result<Decision, SignalFault>) {
+    use std::fmt::Write as _;
+    // Writing into a String cannot fail.
+    let _ = match result {
+        Ok(d) => write!(out, "{index} {} {}", d.verdict.as_str(), d.score),
         Err(SignalFault::Reading(Fault::OutOfRange { channel, .. })) => {
-            format!("{index} FAULT ch{channel}")
+            write!(out, "{index} FAULT ch{channel}")
         }
-        Err(SignalFault::Reading(Fault::ReadingCount { .. })) => format!("{index} FAULT count"),
-        Err(SignalFault::Window { signal, .. }) => format!("{index} FAULT signal{signal}"),
-        Err(_) => format!("{index} FAULT other"),
-    }
+        Err(SignalFault::Reading(Fault::ReadingCount { .. })) => write!(out, "{index} FAULT count"),
+        Err(SignalFault::Window { signal, .. }) => write!(out, "{index} FAULT signal{signal}"),
+        Err(_) => write!(out, "{index} FAULT other"),
+    };
 }
 
 /// Replays a log through `model` (decoded from a blob of the float model `fm`) as the

@@ -409,6 +409,8 @@ fn replay_prints_the_demo_lines() {
     let o = linegate(
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             "demo/model.lgmb",
             "--model",
@@ -627,6 +629,8 @@ fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
     let good = linegate(
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             "demo/model.lgmb",
             "--model",
@@ -638,6 +642,8 @@ fn units_the_device_would_fault_show_as_fault_with_indices_intact() {
     let bad = linegate(
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             "demo/model.lgmb",
             "--model",
@@ -726,6 +732,8 @@ fn rows_skipped_as_unreadable_are_reported_by_replay_and_audit() {
     let o = linegate(
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             "demo/model.lgmb",
             "--model",
@@ -891,6 +899,8 @@ fn replay_scores_new_units_without_a_label_column() {
         let o = linegate(
             &[
                 "replay",
+                "--form",
+                "device",
                 "--blob",
                 "demo/model.lgmb",
                 "--model",
@@ -1018,6 +1028,8 @@ fn a_release_signed_with_the_owners_key_is_checked_by_inspect_and_named_everywhe
     let o = linegate(
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             "signed.lgmb",
             "--model",
@@ -1363,6 +1375,8 @@ fn inspect_shows_a_signal_blob_and_replay_says_it_reads_readings_only() {
     let o = linegate(
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             path.to_str().unwrap(),
             "--model",

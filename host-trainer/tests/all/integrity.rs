@@ -27,6 +27,8 @@ fn write_model(d: &Path, name: &str, m: FixedModel) -> Option<()> {
 fn replay(d: &Path, blob: &str, model: &str, extra: &[&str]) -> std::process::Output {
     let mut a = vec![
         "replay",
+        "--form",
+        "device",
         "--blob",
         blob,
         "--model",
@@ -228,6 +230,8 @@ fn replay_prints_nothing_before_its_checks_and_writes_its_file_whole() {
     let run = |extra: &[&str]| {
         let mut a = vec![
             "replay",
+            "--form",
+            "device",
             "--blob",
             "demo/model.lgmb",
             "--model",
@@ -506,7 +510,7 @@ fn replay_lines_follow_the_grammar_the_readme_gives() {
             format!("demo/{model}"),
             format!("demo/{log}"),
         );
-        let o = linegate(&["replay", "--blob", &blob, "--model", &model, &log], d);
+        let o = linegate(&["replay", "--form", "device", "--blob", &blob, "--model", &model, &log], d);
         exits(&o, 0);
         let out = String::from_utf8(o.stdout).unwrap();
         let mut lines = out.lines();

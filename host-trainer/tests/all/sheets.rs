@@ -94,6 +94,8 @@ fn a_channel_named_apart_from_its_column_goes_through_every_command() {
     let o = linegate(
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             "model.lgmb",
             "--model",
@@ -120,6 +122,8 @@ fn a_channel_named_apart_from_its_column_goes_through_every_command() {
     let o = linegate(
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             "model.lgmb",
             "--model",

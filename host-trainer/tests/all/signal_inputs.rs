@@ -86,7 +86,7 @@ fn refused_windows_are_fault_units_in_replay_audit_and_holdout() {
     model(d);
     let o = linegate(
         &[
-            "replay", "hold.csv", "--blob", "m.lgmb", "--model", "m.json",
+            "replay", "--form", "device", "hold.csv", "--blob", "m.lgmb", "--model", "m.json",
         ],
         d,
     );
@@ -352,7 +352,7 @@ fn an_out_of_range_reading_in_an_evaluated_signal_log_is_a_fault_unit() {
     );
     let o = run(
         &[
-            "replay", "hold.csv", "--blob", "m.lgmb", "--model", "m.json",
+            "replay", "--form", "device", "hold.csv", "--blob", "m.lgmb", "--model", "m.json",
         ],
         0,
     );

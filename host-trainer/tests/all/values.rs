@@ -235,7 +235,7 @@ fn fault_units_show_the_refused_channel_and_every_line_is_replays() {
             .iter()
             .map(|u| u["device_line"].as_str().unwrap().to_string())
             .collect();
-        let mut r = vec!["replay"];
+        let mut r = vec!["replay", "--form", "device"];
         r.extend_from_slice(&cmd[..]);
         let o = linegate(&r, d);
         exits(&o, 0);

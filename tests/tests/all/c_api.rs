@@ -152,6 +152,8 @@ fn replayed_fixture(
         d,
         &[
             "replay",
+            "--form",
+            "device",
             "--blob",
             "m.lgmb",
             "--model",
