@@ -26,6 +26,7 @@ macro_rules! say_raw {
 mod args;
 mod audit;
 mod check;
+mod compare;
 mod demo;
 mod generate;
 mod inspect;
@@ -111,11 +112,16 @@ pub enum Cmd {
         after_help = "Example:\n  linegate inspect model.lgmb --model model.json --report audit.json\n\nExit codes: 0 the blob decodes and matches what was given; 1 corrupt, or it does not match the model, report or key; 2 usage or input error."
     )]
     Inspect(inspect::InspectArgs),
-    /// Run the device kernel over a log and print the device's lines (compare with `diff`).
+    /// Run the device kernel over a log: the device's lines, with unit ids and timestamps, or as CSV or JSON.
     #[command(
-        after_help = "Example:\n  linegate replay --blob model.lgmb --model model.json holdout.csv > host.txt\n\nExit codes: 0 every unit replayed (FAULT units included: they are device lines); 1 the blob is corrupt or does not match; 2 usage, input or output error."
+        after_help = "Example:\n  linegate replay --blob model.lgmb --model model.json field.csv                      # text: device line # unit=… time=… line=…\n  linegate replay --blob model.lgmb --model model.json holdout.csv --form device > host.txt   # diff with the device's serial log\n  linegate replay --blob model.lgmb --model model.json 'field/day-*.csv' --form csv > scored.csv\n  linegate replay --blob model.lgmb --model model.json field.csv --form json            # JSON Lines\n\nExit codes: 0 every unit replayed (FAULT units included: they are device lines); 1 the blob is corrupt or does not match; 2 usage, input or output error."
     )]
     Replay(replay::ReplayArgs),
+    /// Compare two releases on the same field logs: the units whose verdict changes, counts with bounds, margin shifts, a gate.
+    #[command(
+        after_help = "Example:\n  linegate compare field-*.csv --model model.json --blob model.lgmb --against model-v2.json --against-blob model-v2.lgmb --changes changes.csv --report change.md\n  linegate compare field.csv --model model.json --against retrained.json     # no blobs: both quantised plainly\n  linegate compare field.csv --model a.json --against b.json --allow-nogo-to-go 2\n\nA release is a float model with its blob (--model/--blob for A, the one in use; --against/--against-blob for B, the candidate), or a float model alone, then quantised plainly at --input-bits/--weight-bits as `linegate values` does. Each reads the log as its model says; both must read the same units.\n\nComputes, for every unit: both outcomes (GO, NO-GO, RECHECK, FAULT) and scores. Lists the units whose outcome changes (file, line, unit id, both scores), counts each transition (GO→NO-GO, NO-GO→GO, into or out of RECHECK or FAULT) with exact Clopper–Pearson bounds on its rate among all units, and the margin shift B − A (min, median, max) in float-score units: each release's score divided by its quantisation scale, minus its float model's threshold (both models have max |weight| = 1 over inputs scaled to [−1, 1]). --report writes a section a reviewer signs: the model, blob and key ids, the logs' SHA-256, the counts, every change, the gate's verdict, and lines for Reviewed by / Date / Decision. The output files are written all or nothing.\n\nExit codes: 0 the gate passed; 1 NO-GO→GO changes beyond those allowed (--allow-nogo-to-go; the files are written); 2 usage, input or output error (a blob not of its model included)."
+    )]
+    Compare(compare::CompareArgs),
     /// List each unit's channel values as the device computes them: physical, raw, scaled input, score.
     #[command(
         after_help = "Example:\n  linegate values --model model.json --blob model.lgmb holdout.csv --unit FAN-C00012\n  linegate values --model model.json --blob model.lgmb holdout.csv --line 14 --line 15\n  linegate values --model signal-model.json signal-field.csv --limit 3 --csv > values.csv\n  linegate values --model model.json holdout.csv --json       # no blob: the model quantised plainly\n\nComputes, per unit of the log (read as replay reads it): for each channel the physical value (zero + lsb·raw), the raw integer (a reading in counts; a feature of a signal log: the device's integer feature), the kernel's scaled input word; then the integer score and the unit's replay line (GO, NO-GO, RECHECK or FAULT, the same words). A refused reading or window shows as FAULT ch<n> or FAULT signal<k> in its channel's place.\n\nExit codes: 0 listed; 1 the blob is corrupt or not one the model produces; 2 usage, input or output error (an id or line no unit has is named; nothing is printed)."
@@ -283,6 +289,7 @@ pub fn run(cli: &Cli, settings: Vec<host_trainer::project::Setting>) -> Result<(
         Cmd::Inspect(a) => a.run(quiet),
         Cmd::Replay(a) => a.run(quiet, settings),
         Cmd::Values(a) => a.run(quiet, settings),
+        Cmd::Compare(a) => a.run(quiet, settings),
         Cmd::Sheet(a) => a.run(quiet),
         Cmd::Generate(a) => a.run(quiet),
         Cmd::Demo(a) => a.run(quiet),

@@ -6,4 +6,6 @@
 //! This step sits after `release` in the data flow: it reads released models, blobs and
 //! audit records and never changes them; `report` renders what it finds.
 
+pub mod compare;
+pub mod compare_report;
 pub mod score;

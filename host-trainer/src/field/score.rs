@@ -106,6 +106,18 @@ impl Outcome {
     }
 }
 
+impl serde::Serialize for Outcome {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(self.as_str())
+    }
+}
+
+impl serde::Serialize for Refused {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(&self.word())
+    }
+}
+
 /// One scored unit of a field log.
 pub struct Scored<'a> {
     /// Which file of the log (index into the files given).
