@@ -3,7 +3,9 @@
 
 mod cli;
 mod common;
+mod compare;
 mod exports;
+mod field_scoring;
 mod generate;
 mod holdout;
 mod hostile;

@@ -7,6 +7,7 @@ mod confidence;
 mod demo;
 mod device;
 mod features;
+mod field;
 mod house;
 mod images;
 mod quantisation;
