@@ -129,7 +129,7 @@ pub fn gate_text(c: &Comparison) -> String {
 /// first `show` changed units (the rest said, with where they are), the gate.
 pub fn summary(c: &Comparison, show: usize) -> String {
     let mut out = format!(
-        "A (in use):  {}\nB (candidate): {}\nlogs: {} file{}, {} units\n\n",
+        "A (in use):     {}\nB (candidate):  {}\nlogs: {} file{}, {} units\n\n",
         release_line(&c.a),
         release_line(&c.b),
         c.logs.len(),
