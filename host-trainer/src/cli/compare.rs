@@ -82,9 +82,9 @@ fn parse_allowed(s: &str) -> Result<Allowed, String> {
     if s.eq_ignore_ascii_case("all") {
         return Ok(Allowed::All);
     }
-    s.parse().map(Allowed::Count).map_err(|_| {
-        format!("'{s}' is not a count: give a number of NO-GO→GO changes, or all")
-    })
+    s.parse()
+        .map(Allowed::Count)
+        .map_err(|_| format!("'{s}' is not a count: give a number of NO-GO→GO changes, or all"))
 }
 
 fn parse_confidence(s: &str) -> Result<f64, String> {
@@ -97,11 +97,21 @@ fn parse_confidence(s: &str) -> Result<f64, String> {
 impl CompareArgs {
     /// Runs `linegate compare`: both releases over the log, the outputs written all or
     /// nothing, then the gate (exit 1 when it fails).
-    pub fn run(&self, quiet: bool, mut settings: Vec<host_trainer::project::Setting>) -> Result<()> {
+    pub fn run(
+        &self,
+        quiet: bool,
+        mut settings: Vec<host_trainer::project::Setting>,
+    ) -> Result<()> {
         let files = super::log_files(&self.log, "name the field log (or several files of it)")?;
         let fm_a = FloatModel::read(&self.model)?;
         let fm_b = FloatModel::read(&self.against)?;
-        let a = self.release(&fm_a, &self.model, self.blob.as_deref(), quiet, &mut settings)?;
+        let a = self.release(
+            &fm_a,
+            &self.model,
+            self.blob.as_deref(),
+            quiet,
+            &mut settings,
+        )?;
         let b = self.release(
             &fm_b,
             &self.against,

@@ -165,7 +165,9 @@ pub fn summary(c: &Comparison, show: usize) -> String {
                 "  {}:{}  {}  {} → {}  {}\n",
                 ch.file,
                 ch.line,
-                ch.unit_id.as_deref().map_or("-".into(), crate::error::shown),
+                ch.unit_id
+                    .as_deref()
+                    .map_or("-".into(), crate::error::shown),
                 outcome_text(&ch.a),
                 outcome_text(&ch.b),
                 shift(ch).map_or("-".into(), |s| format!("{s:+.6}"))
@@ -225,7 +227,10 @@ pub fn report(c: &Comparison) -> String {
     out.push_str(&row("scale (accumulator units per score unit)", &|s| {
         format!("{}", s.scale)
     }));
-    out.push_str(&format!("\nLogs ({} units):\n\n| file | SHA-256 |\n|---|---|\n", c.units));
+    out.push_str(&format!(
+        "\nLogs ({} units):\n\n| file | SHA-256 |\n|---|---|\n",
+        c.units
+    ));
     for l in &c.logs {
         out.push_str(&format!("| {} | `{}` |\n", cell(&l.path), l.sha256));
     }
@@ -243,10 +248,7 @@ pub fn report(c: &Comparison) -> String {
         ));
     }
     out.push_str(&format!("\n{}.\n", shift_text(c)));
-    out.push_str(&format!(
-        "\n### Changed units ({})\n\n",
-        c.changes.len()
-    ));
+    out.push_str(&format!("\n### Changed units ({})\n\n", c.changes.len()));
     if c.changes.is_empty() {
         out.push_str("None: every unit has the same outcome under both releases.\n");
     } else {

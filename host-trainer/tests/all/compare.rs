@@ -158,7 +158,13 @@ fn outputs_are_all_or_nothing_and_a_foreign_blob_is_an_error() {
     // --help teaches the flags and the exit codes.
     let o = linegate(&["compare", "--help"], d);
     let help = String::from_utf8(o.stdout).unwrap();
-    for want in ["--against-blob", "--allow-nogo-to-go", "Clopper", "Reviewed by", "Exit codes"] {
+    for want in [
+        "--against-blob",
+        "--allow-nogo-to-go",
+        "Clopper",
+        "Reviewed by",
+        "Exit codes",
+    ] {
         assert!(help.contains(want), "{want}");
     }
 }

@@ -5,12 +5,7 @@
 
 use crate::common::{demo, exits, linegate};
 
-const RELEASE: [&str; 4] = [
-    "--model",
-    "demo/model.json",
-    "--blob",
-    "demo/model.lgmb",
-];
+const RELEASE: [&str; 4] = ["--model", "demo/model.json", "--blob", "demo/model.lgmb"];
 
 fn replay(d: &std::path::Path, form: Option<&str>, logs: &[&str]) -> String {
     let mut args = vec!["-q", "replay"];
@@ -171,7 +166,10 @@ fn an_unlabelled_log_scores_with_empty_label_cells() {
     }
     let json = replay(d, Some("json"), &["new.csv"]);
     let u: serde_json::Value = serde_json::from_str(json.lines().nth(1).unwrap()).unwrap();
-    assert_eq!((&u["label"], &u["agrees"]), (&serde_json::Value::Null, &serde_json::Value::Null));
+    assert_eq!(
+        (&u["label"], &u["agrees"]),
+        (&serde_json::Value::Null, &serde_json::Value::Null)
+    );
 }
 
 #[test]

@@ -510,7 +510,12 @@ fn replay_lines_follow_the_grammar_the_readme_gives() {
             format!("demo/{model}"),
             format!("demo/{log}"),
         );
-        let o = linegate(&["replay", "--form", "device", "--blob", &blob, "--model", &model, &log], d);
+        let o = linegate(
+            &[
+                "replay", "--form", "device", "--blob", &blob, "--model", &model, &log,
+            ],
+            d,
+        );
         exits(&o, 0);
         let out = String::from_utf8(o.stdout).unwrap();
         let mut lines = out.lines();

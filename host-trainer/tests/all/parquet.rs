@@ -410,7 +410,9 @@ fn train_and_replay_from_parquet_match_csv() {
     );
     let replay = |log: &str| {
         let o = linegate(
-            &["replay", "--form", "device", "--blob", "m.lgmb", "--model", "pq.json", log],
+            &[
+                "replay", "--form", "device", "--blob", "m.lgmb", "--model", "pq.json", log,
+            ],
             d,
         );
         exits(&o, 0);

@@ -86,7 +86,12 @@ fn replays(d: &Path, model: &str, log: &str, logs: &[&str]) -> Vec<String> {
     );
     logs.iter()
         .map(|l| {
-            let o = linegate(&["replay", "--form", "device", l, "--blob", "r.lgmb", "--model", model], d);
+            let o = linegate(
+                &[
+                    "replay", "--form", "device", l, "--blob", "r.lgmb", "--model", model,
+                ],
+                d,
+            );
             exits(&o, 0);
             String::from_utf8(o.stdout).unwrap()
         })

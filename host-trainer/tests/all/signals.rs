@@ -115,7 +115,12 @@ fn signal_logs_train_pack_and_replay_as_an_independent_replay_computes() {
         ("demo/signal-field-synthetic.csv", true),
         ("demo/signal-holdout-synthetic.csv", false),
     ] {
-        let o = linegate(&["replay", "--form", "device", log, "--blob", "m.lgmb", "--model", "m.json"], d);
+        let o = linegate(
+            &[
+                "replay", "--form", "device", log, "--blob", "m.lgmb", "--model", "m.json",
+            ],
+            d,
+        );
         exits(&o, 0);
         let lines = String::from_utf8_lossy(&o.stdout).into_owned();
         assert_eq!(lines.contains("FAULT signal0"), faults, "{lines}");

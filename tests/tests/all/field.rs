@@ -160,13 +160,26 @@ fn compare_lists_exactly_the_units_a_pandas_join_finds_and_gates_nogo_to_go() {
             &LOGS,
             &a,
             &b_flags,
-            &["--changes", changes.as_str(), "--json", json.as_str(), "--report", report.as_str()],
+            &[
+                "--changes",
+                changes.as_str(),
+                "--json",
+                json.as_str(),
+                "--report",
+                report.as_str(),
+            ],
         ]
         .concat();
         run(&bin, d, &args, code);
         let md = std::fs::read_to_string(d.join(&report)).unwrap();
-        assert!(md.contains("Reviewed by:") && md.contains("Decision"), "{md}");
-        assert!(md.contains(if code == 0 { "PASSED" } else { "FAILED" }), "{md}");
+        assert!(
+            md.contains("Reviewed by:") && md.contains("Decision"),
+            "{md}"
+        );
+        assert!(
+            md.contains(if code == 0 { "PASSED" } else { "FAILED" }),
+            "{md}"
+        );
         let mut py = vec!["compare", a_csv, b_csv, changes.as_str(), json.as_str()];
         py.extend([a[1], b[1]]);
         py.extend(LOGS);
@@ -187,10 +200,9 @@ fn compare_lists_exactly_the_units_a_pandas_join_finds_and_gates_nogo_to_go() {
             .any(|l| l.starts_with("demo/drift-synthetic.csv")),
         "{forward}"
     );
-    let back_json: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(d.join("compare-back.json")).unwrap(),
-    )
-    .unwrap();
+    let back_json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(d.join("compare-back.json")).unwrap())
+            .unwrap();
     let n = back_json["gate"]["nogo_to_go"].as_u64().unwrap();
     assert!(n >= 1, "{back_json}");
     let back = [&["compare"][..], &LOGS, &second, &against(&first)].concat();
@@ -221,7 +233,13 @@ fn compare_lists_exactly_the_units_a_pandas_join_finds_and_gates_nogo_to_go() {
     std::fs::write(d.join("dropped.csv"), kept.join("\n") + "\n").unwrap();
     let Some((code, out)) = python(
         d,
-        &["compare", "a.csv", "b.csv", "dropped.csv", "compare-forward.json"],
+        &[
+            "compare",
+            "a.csv",
+            "b.csv",
+            "dropped.csv",
+            "compare-forward.json",
+        ],
     ) else {
         return;
     };

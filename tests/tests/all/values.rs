@@ -34,7 +34,11 @@ fn checked(bin: &Path, dir: &Path, model: &str, blob: &str, log: &str) -> Option
     let args = ["--model", model, "--blob", blob, log];
     let values = run(bin, dir, &[&["values", "-q", "--csv"][..], &args].concat());
     std::fs::write(dir.join(&csv), values).unwrap();
-    let replay = run(bin, dir, &[&["replay", "-q", "--form", "device"][..], &args].concat());
+    let replay = run(
+        bin,
+        dir,
+        &[&["replay", "-q", "--form", "device"][..], &args].concat(),
+    );
     std::fs::write(dir.join(&txt), replay).unwrap();
     let (code, text) = python(dir, &["check", blob, model, log, &csv, &txt])?;
     assert_eq!(code, Some(0), "{log}: values disagree with numpy:\n{text}");
