@@ -496,7 +496,7 @@ fn audit_lists_every_unit_with_the_kernel_scores() {
 fn every_subcommand_help_has_an_example() {
     let dir = tempfile::tempdir().unwrap();
     for cmd in [
-        "check", "train", "audit", "pack", "inspect", "replay", "generate", "demo",
+        "check", "train", "audit", "pack", "inspect", "replay", "compare", "generate", "demo",
     ] {
         let o = linegate(&[cmd, "--help"], dir.path());
         exits(&o, 0);
