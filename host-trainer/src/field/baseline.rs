@@ -57,7 +57,9 @@ pub fn read(path: &Path) -> Result<AuditBaseline, InputError> {
     let baseline: Baseline = serde_json::from_value(b.clone())
         .map_err(|e| format(format!("the audit record's `baseline` cannot be read: {e}")))?;
     if !baseline.scores.is_sorted() {
-        return Err(format("the baseline's scores are not sorted (the file was changed)".into()));
+        return Err(format(
+            "the baseline's scores are not sorted (the file was changed)".into(),
+        ));
     }
     Ok(AuditBaseline {
         model_id,

@@ -83,7 +83,9 @@ pub fn parse(
             return Err((
                 no,
                 col(w[0]),
-                format!("unit index {index} where {units} was next (lines must be whole and in order)"),
+                format!(
+                    "unit index {index} where {units} was next (lines must be whole and in order)"
+                ),
             ));
         }
         match w.as_slice() {
@@ -161,7 +163,10 @@ mod tests {
         assert_eq!(parse(text, "ab", "0000cafe", &mut r), Ok(6));
         let s = &r.stats;
         assert_eq!((s.go, s.nogo, s.recheck, s.faults), (1, 1, 1, 3));
-        assert_eq!((s.channel_faults[1], s.signal_faults[0], s.other_faults), (1, 1, 1));
+        assert_eq!(
+            (s.channel_faults[1], s.signal_faults[0], s.other_faults),
+            (1, 1, 1)
+        );
         let err = |t: &str| parse(t, "ab", "0000cafe", &mut run()).unwrap_err();
         assert_eq!(err("# model ab blob 0000cafe\n0 GO 5\n").0, 2);
         assert_eq!(err("# model ab blob 0000cafe\n1 GO 50\n").1, 1);

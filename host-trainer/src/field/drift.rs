@@ -6,7 +6,9 @@
 //!   is shown to use more than the budget: |Δ| − z·SE > allowed drift, SE the Welch standard
 //!   error √(s_b²/n_b + s_f²/n_f), z the normal quantile 1 − α/(2c) over the c channels with
 //!   a budget (Bonferroni). A device record keeps no spread: the baseline's is used.
-//! - **Scores**: the two-sample Kolmogorov–Smirnov test (`ks.rs`); alarm at p < α.
+//! - **Scores**: the two-sample Kolmogorov–Smirnov test (`ks.rs`) of the decided (GO and
+//!   NO-GO) units' scores; alarm at p < α. A record's histogram holds RECHECK units too, so
+//!   its test is of every scored unit, binned.
 //! - **Rates**: RECHECK and FAULT among all units, exact Clopper–Pearson intervals at
 //!   1 − α; alarm when the field's lower end exceeds the baseline's upper end.
 //! - **CUSUM**: the tabular CUSUM of each side's margins (Page, 1954; Montgomery §9.1) as the
@@ -184,7 +186,11 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
     let mut alarms = Vec::new();
     let conf = 1.0 - cfg.alpha;
     // Channels.
-    let budgeted = base.channels.iter().filter(|c| c.max_drift.is_some()).count();
+    let budgeted = base
+        .channels
+        .iter()
+        .filter(|c| c.max_drift.is_some())
+        .count();
     let z = Normal::new(0.0, 1.0).map_or(f64::NAN, |n| {
         n.inverse_cdf(1.0 - cfg.alpha / (2.0 * budgeted.max(1) as f64))
     });
@@ -245,13 +251,14 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
     // Scores.
     let ks = match run {
         Some(r) => ks::test(&base.scores, &r.sorted_scores()),
-        None => ks::binned_test(
-            &ks::binned_counts(&base.scores, stats),
-            &ks::record_counts(stats),
-        ),
+        None => {
+            let mut all = base.scores.clone();
+            all.extend(&base.recheck_scores);
+            ks::binned_test(&ks::binned_counts(&all, stats), &ks::record_counts(stats))
+        }
     };
     if ks.binned {
-        notes.push("a device record keeps scores by bin: D is taken over the bin edges against the baseline binned alike, a lower bound of the exact D".into());
+        notes.push("a device record keeps scores by bin, RECHECK units' among them: D is taken over the bin edges against the baseline's scored units binned alike (RECHECK included), a lower bound of that D".into());
     }
     let ks_alarm = ks.m > 0 && ks.n > 0 && ks.p < cfg.alpha;
     if ks_alarm {
@@ -282,15 +289,13 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
             alarm,
         }
     };
-    let recheck_rate = rate(
-        "RECHECK",
-        stats.recheck.into(),
-        base.recheck,
-        &mut alarms,
-    );
+    let recheck_rate = rate("RECHECK", stats.recheck.into(), base.recheck, &mut alarms);
     let fault_rate = rate("FAULT", stats.faults.into(), base.faults, &mut alarms);
     // CUSUM.
-    let side = |name: &str, s: &CusumState, p: &shared_model::field::CusumPlan, a: &mut Vec<String>| {
+    let side = |name: &str,
+                s: &CusumState,
+                p: &shared_model::field::CusumPlan,
+                a: &mut Vec<String>| {
         let down = s.alarm_down != 0;
         let up = s.alarm_up != 0 && cfg.two_sided;
         if down {

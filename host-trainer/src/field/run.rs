@@ -35,8 +35,11 @@ pub struct FieldRun {
     pub stats: FieldStats,
     /// The thresholds margins are measured from.
     pub thresholds: Thresholds,
-    /// The decided units' scores, in unit order (sorted by [`Self::sorted_scores`]).
+    /// The decided (GO and NO-GO) units' scores, in unit order (sorted by
+    /// [`Self::sorted_scores`]).
     pub scores: Vec<i64>,
+    /// Every scored unit's score (RECHECK too), in unit order.
+    pub all_scores: Vec<i64>,
     /// Per channel: values seen (each decided unit's), their running mean and M2 (Welford).
     channel: Vec<(u64, f64, f64)>,
     /// Whether the units came with their channel values (a log; not device lines).
@@ -58,6 +61,7 @@ impl FieldRun {
             stats: FieldStats::new(plan, channels, signals),
             thresholds,
             scores: Vec::new(),
+            all_scores: Vec::new(),
             channel: vec![(0, 0.0, 0.0); channels],
             has_values,
             chart: Vec::new(),
@@ -66,7 +70,12 @@ impl FieldRun {
 
     /// One unit of a log: its readings and windows through `model`'s kernel (the values the
     /// weights multiply, then the decision), counted as the device counts it.
-    pub fn unit<I: Inputs>(&mut self, model: &CheckedModel<I>, readings: &[i32], windows: &[&[i32]]) {
+    pub fn unit<I: Inputs>(
+        &mut self,
+        model: &CheckedModel<I>,
+        readings: &[i32],
+        windows: &[&[i32]],
+    ) {
         let mut values = [0i32; MAX_CHANNELS];
         let decided = model
             .channel_values(readings, windows, &mut values)
@@ -93,7 +102,10 @@ impl FieldRun {
         if self.stats.saturated {
             return;
         }
-        self.scores.push(d.score);
+        if d.verdict != Verdict::Recheck {
+            self.scores.push(d.score);
+        }
+        self.all_scores.push(d.score);
         if let Some(v) = values {
             for ((n, mean, m2), &x) in self.channel.iter_mut().zip(v) {
                 *n += 1;
@@ -106,7 +118,11 @@ impl FieldRun {
         let t = &self.thresholds;
         let (go, margin, state) = match d.verdict {
             Verdict::Go => (true, d.score.saturating_sub(t.go_min), self.stats.cusum_go),
-            Verdict::NoGo => (false, t.nogo_max.saturating_sub(d.score), self.stats.cusum_nogo),
+            Verdict::NoGo => (
+                false,
+                t.nogo_max.saturating_sub(d.score),
+                self.stats.cusum_nogo,
+            ),
             Verdict::Recheck => return,
         };
         self.chart.push(ChartPoint {
@@ -187,6 +203,7 @@ mod tests {
         assert_eq!(r.stats.cusum_go.down, 65);
         assert_eq!(r.stats.units, 7);
         assert_eq!(r.channel(0).unwrap().0, 6);
-        assert_eq!(r.sorted_scores(), vec![-30, 0, 30, 35, 40, 50]);
+        assert_eq!(r.sorted_scores(), vec![-30, 30, 35, 40, 50]);
+        assert_eq!(r.all_scores.len(), 6);
     }
 }

@@ -45,16 +45,20 @@ pub struct Baseline {
     pub recheck: u64,
     /// Units the device refused (FAULT).
     pub faults: u64,
-    /// The exact fixed-point scores of the decided units (GO, NO-GO and RECHECK), sorted.
+    /// The exact fixed-point scores of the decided units (GO and NO-GO), sorted.
     pub scores: Vec<i64>,
-    /// Per channel, the values the weights multiply over the decided units.
+    /// The RECHECK units' scores, sorted (the device's score histogram counts every scored
+    /// unit, so a record is compared with both lists together).
+    pub recheck_scores: Vec<i64>,
+    /// Per channel, the values the weights multiply over the scored units (GO, NO-GO and
+    /// RECHECK: the units whose values the device's record sums).
     pub channels: Vec<BaselineChannel>,
     /// The device plan: score bins and the two CUSUMs' settings.
     pub plan: PlanRecord,
 }
 
 /// One channel's values over the baseline's decided units, in raw units (the integers the
-/// weights multiply), with the audit's noise and drift budget in physical units.
+/// weights multiply) over the scored units, with the audit's noise and drift budget in physical units.
 #[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
 pub struct BaselineChannel {
     /// Channel name.
@@ -192,10 +196,7 @@ pub fn choose(names: &[&str]) -> (usize, &'static str) {
         return (i, "the audit's held-out log");
     }
     if names.len() > 1 {
-        return (
-            1,
-            "no held-out log was audited: the first validation log",
-        );
+        return (1, "no held-out log was audited: the first validation log");
     }
     (
         0,
@@ -217,27 +218,33 @@ pub fn baseline(
     let n = model.channels.len();
     let (mut go, mut nogo, mut recheck, mut faults) = (0u64, 0u64, 0u64, 0u64);
     let (mut scores, mut go_m, mut nogo_m) = (Vec::new(), Vec::new(), Vec::new());
+    let mut recheck_scores = Vec::new();
     let mut decided: Vec<usize> = Vec::new();
     for i in 0..ds.len() {
         let Ok(d) = q.model.classify(ds.raw_row(i)) else {
             faults += 1;
             continue;
         };
-        scores.push(d.score);
         decided.push(i);
         match d.verdict {
             Verdict::Go => {
+                scores.push(d.score);
                 go += 1;
                 go_m.push(d.score.saturating_sub(t.go_min));
             }
             Verdict::NoGo => {
+                scores.push(d.score);
                 nogo += 1;
                 nogo_m.push(t.nogo_max.saturating_sub(d.score));
             }
-            Verdict::Recheck => recheck += 1,
+            Verdict::Recheck => {
+                recheck_scores.push(d.score);
+                recheck += 1;
+            }
         }
     }
     scores.sort_unstable();
+    recheck_scores.sort_unstable();
     let channels = (0..n)
         .map(|c| {
             let values = || decided.iter().map(|&i| ds.raw_row(i)[c]);
@@ -258,10 +265,10 @@ pub fn baseline(
             }
         })
         .collect();
-    let (origin, shift) = bins_covering(
-        scores.first().copied().unwrap_or(0),
-        scores.last().copied().unwrap_or(0),
-    );
+    let ends = |f: fn(&[i64]) -> Option<&i64>| [f(&scores), f(&recheck_scores)];
+    let lo = ends(<[i64]>::first).into_iter().flatten().min();
+    let hi = ends(<[i64]>::last).into_iter().flatten().max();
+    let (origin, shift) = bins_covering(lo.copied().unwrap_or(0), hi.copied().unwrap_or(0));
     Baseline {
         log: name.into(),
         rule: rule.into(),
@@ -274,6 +281,7 @@ pub fn baseline(
         recheck,
         faults,
         scores,
+        recheck_scores,
         channels,
         plan: PlanRecord {
             blob_id: 0,
