@@ -5,10 +5,7 @@ use std::fmt::Write as _;
 use std::path::Path;
 
 use crate::error::InputError;
-use crate::release::audit_baseline::Baseline;
-
-/// Largest audit.json read: the baseline holds every held-out score.
-pub const MAX_AUDIT_FILE: u64 = 1 << 30;
+use crate::release::audit_baseline::{Baseline, MAX_AUDIT_FILE};
 
 /// What `drift` needs of an audit record: its model, blob and baseline.
 #[derive(Clone, Debug)]

@@ -22,6 +22,10 @@ use crate::release::audit_report::Tolerance;
 use crate::release::quantise::Quantised;
 use crate::train::float_model::FloatModel;
 
+/// Largest audit.json read back: the baseline holds every score of its log (a training log
+/// of millions of units makes a file of tens of MiB).
+pub const MAX_AUDIT_FILE: u64 = 1 << 30;
+
 /// The baseline a field log is compared with (see the module docs).
 #[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
 pub struct Baseline {

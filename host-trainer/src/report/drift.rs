@@ -104,7 +104,7 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     let _ = writeln!(s, "## Channels\n");
     let _ = writeln!(
         s,
-        "Each channel's mean over the decided units (the values the weights multiply, in physical units), its shift from the baseline in units of the declared noise and of the drift the audit allows it alone (the margin budget). Rule: alarm when the shift less z = {:.3} standard errors (Welch; the normal quantile 1 − α/2c, Bonferroni over the c channels with a budget) exceeds the budget.\n",
+        "Each channel's mean over the scored units (the values the weights multiply, in physical units), its shift from the baseline in units of the declared noise and of the drift the audit allows it alone (the margin budget). Rule: alarm when the shift less z = {:.3} standard errors (Welch; the normal quantile 1 − α/2c, Bonferroni over the c channels with a budget) exceeds the budget.\n",
         r.channel_z
     );
     if r.channels.is_empty() {
