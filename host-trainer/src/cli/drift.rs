@@ -46,7 +46,7 @@ pub struct DriftArgs {
     /// margins (units walking towards the boundary) alarm.
     #[arg(long)]
     pub two_sided: bool,
-    /// Write the report here: Markdown (with the CUSUM chart beside it as <stem>-cusum.svg),
+    /// Write the report here: Markdown (with the CUSUM chart beside it as STEM-cusum.svg),
     /// or HTML (chart inline) when the name ends in .html.
     #[arg(long, value_name = "FILE")]
     pub report: Option<PathBuf>,

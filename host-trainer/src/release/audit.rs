@@ -47,7 +47,10 @@ pub fn audit(
         .collect();
     let names: Vec<&str> = all.iter().map(|l| l.0).collect();
     let (at, rule) = choose(&names);
-    let base = baseline(q, fm, (all[at].0, rule), all[at].1, tolerance.as_ref());
+    let budget: Vec<(f64, f64)> = tolerance.as_ref().map_or(Vec::new(), |t| {
+        t.channels.iter().map(|c| (c.noise, c.max_drift)).collect()
+    });
+    let base = baseline(q, fm, (all[at].0, rule), all[at].1, &budget);
     let mut r = assemble(q, fm, bound, guaranteed, logs, tolerance);
     r.baseline = Some(base);
     r.passed = reasons.is_empty();

@@ -18,7 +18,6 @@ use shared_model::field::{CusumPlan, FIELD_BINS};
 use shared_model::{FieldPlan, Thresholds, Verdict};
 
 use crate::ingest::dataset::Dataset;
-use crate::release::audit_report::Tolerance;
 use crate::release::quantise::Quantised;
 use crate::train::float_model::FloatModel;
 
@@ -209,13 +208,14 @@ pub fn choose(names: &[&str]) -> (usize, &'static str) {
 }
 
 /// The baseline of log `name` (read as `ds`), chosen by `rule`, for the quantised model `q`
-/// of `fm`, with the audit's `tolerance` (if noise was declared).
+/// of `fm`, with each channel's declared noise and allowed drift from the audit's tolerance
+/// (`budget`: empty when no noise was declared).
 pub fn baseline(
     q: &Quantised,
     fm: &FloatModel,
     (name, rule): (&str, &str),
     ds: &Dataset,
-    tolerance: Option<&Tolerance>,
+    budget: &[(f64, f64)],
 ) -> Baseline {
     let model = q.model.model();
     let t = Thresholds::of(model);
@@ -254,7 +254,7 @@ pub fn baseline(
             let values = || decided.iter().map(|&i| ds.raw_row(i)[c]);
             let (mean, sd) = mean_sd(values().map(f64::from));
             let s = &fm.channels[c];
-            let tol = tolerance.and_then(|t| t.channels.get(c));
+            let tol = budget.get(c);
             BaselineChannel {
                 name: s.name.clone(),
                 unit: s.unit.clone(),
@@ -264,8 +264,8 @@ pub fn baseline(
                 sd,
                 min: values().min().unwrap_or(0),
                 max: values().max().unwrap_or(0),
-                noise: tol.map(|t| t.noise),
-                max_drift: tol.map(|t| t.max_drift).filter(|d| d.is_finite()),
+                noise: tol.map(|t| t.0),
+                max_drift: tol.map(|t| t.1).filter(|d| d.is_finite()),
             }
         })
         .collect();
