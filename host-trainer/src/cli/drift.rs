@@ -100,6 +100,13 @@ impl DriftArgs {
                 );
             }
             let stats = record::read_record(rec, &plan)?;
+            if usize::from(stats.channels) != channels {
+                bail!(
+                    "{}: the record keeps {} channels, the audited model has {channels}",
+                    rec.display(),
+                    stats.channels
+                );
+            }
             let mut r = drift(b, Field::Record(&stats), Source::Record, cfg);
             r.files = vec![rec.display().to_string()];
             (r, None)

@@ -360,3 +360,96 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
         chart: run.map(|r| r.chart.clone()).unwrap_or_default(),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::release::audit_baseline::{BaselineChannel, CusumRecord, PlanRecord};
+    use shared_model::Thresholds;
+
+    fn base() -> Baseline {
+        let side = CusumRecord {
+            units: 10,
+            mean: 50.0,
+            sd: 10.0,
+            target: 50,
+            slack: 5,
+            limit: 50,
+        };
+        Baseline {
+            log: "holdout".into(),
+            rule: "test".into(),
+            sha256: String::new(),
+            nogo_max: -10,
+            go_min: 10,
+            units: 100,
+            go: 50,
+            nogo: 49,
+            recheck: 1,
+            faults: 0,
+            scores: (0..99).map(|i| if i < 49 { -60 } else { 60 }).collect(),
+            recheck_scores: vec![0],
+            channels: vec![BaselineChannel {
+                name: "a".into(),
+                unit: "V".into(),
+                lsb: 0.5,
+                count: 100,
+                mean: 100.0,
+                sd: 10.0,
+                min: 70,
+                max: 130,
+                noise: Some(1.0),
+                max_drift: Some(2.0),
+            }],
+            plan: PlanRecord {
+                blob_id: 1,
+                origin: -100,
+                shift: 3,
+                go: side.clone(),
+                nogo: side,
+            },
+        }
+    }
+
+    /// By hand: 100 units of value 120 (raw) against a mean of 100 (sd 10 over 100): the
+    /// shift is 20 raw = 10 V, SE = 0.5·√(100/100 + 0) = 0.5 V, z = Φ⁻¹(0.995) ≈ 2.576, so the
+    /// shown shift 10 − 1.29 ≈ 8.71 V exceeds the 2 V budget; 10 noise units, 5 budgets.
+    /// The RECHECK rate 30 % (lower end above 16 %) against 1 % (upper end below 7 %)
+    /// alarms too; GO margins of 10 against μ₀ = 50, k = 5: C⁻ grows 35 a unit and passes
+    /// h = 50 at the second GO unit (unit 5: units 1–3 are RECHECK).
+    #[test]
+    fn each_rule_worked_by_hand() {
+        let b = base();
+        let t = Thresholds {
+            nogo_max: -10,
+            go_min: 10,
+        };
+        let mut run = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        for i in 0..100 {
+            let score = if i % 10 < 3 { 0 } else { 20 };
+            run.decided(&t.decide(score), Some(&[120]));
+        }
+        let cfg = DriftConfig {
+            alpha: 0.01,
+            two_sided: false,
+        };
+        let r = drift(&b, Field::Run(&run), Source::Log, cfg);
+        let c = &r.channels[0];
+        assert!((c.shift - 10.0).abs() < 1e-12 && (c.standard_error - 0.5).abs() < 1e-12);
+        assert_eq!((c.in_noise, c.of_budget), (Some(10.0), Some(5.0)));
+        assert!((r.channel_z - 2.5758293035489).abs() < 1e-9);
+        assert!(c.alarm);
+        assert!(r.recheck_rate.alarm && !r.fault_rate.alarm);
+        assert_eq!(r.cusum_go.alarm_down, 5);
+        assert!(r.cusum_go.alarm && !r.cusum_nogo.alarm);
+        assert_eq!(r.alarms.len(), 3 + usize::from(r.ks_alarm));
+        // The baseline's own scores and the baseline's mean: no KS and no channel alarm.
+        let mut same = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        for &s in b.scores.iter().chain(&b.recheck_scores) {
+            same.decided(&t.decide(s), Some(&[100]));
+        }
+        let r = drift(&b, Field::Run(&same), Source::Log, cfg);
+        assert!(!r.ks_alarm && r.ks.d == 0.0);
+        assert!(!r.channels[0].alarm);
+    }
+}

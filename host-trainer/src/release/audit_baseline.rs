@@ -11,7 +11,11 @@
 //! The plan's CUSUMs are the tabular CUSUM with the settings Montgomery recommends
 //! (*Introduction to Statistical Quality Control*, §9.1): target μ₀ = the side's mean margin
 //! over its decided units, allowance k = σ/2, decision interval h = 5σ, σ the margins'
-//! sample standard deviation.
+//! sample standard deviation. For normally distributed margins these settings give an
+//! in-control average run length of about 465 units per one-sided sum (a figure from memory
+//! of Montgomery's table, not checked here); margins are seldom normal (a side's margins are
+//! bounded below by 0 and skewed), so the run length on a line is what it is, and the drift
+//! report says which sum passed h at which unit rather than a false-alarm rate.
 
 use serde::{Deserialize, Serialize};
 use shared_model::field::{CusumPlan, FIELD_BINS};
