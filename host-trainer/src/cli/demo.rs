@@ -89,6 +89,23 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
         a.guaranteed,
         a.bound.total
     );
+    if let Some((on_drift, on_train)) = &r.drift {
+        let verdict = |d: &host_trainer::field::drift::DriftReport| {
+            if d.in_control() {
+                "in control".to_string()
+            } else {
+                format!("ALARM ({})", d.alarms.len())
+            }
+        };
+        say!(
+            "drift against the audit's baseline: second-shift log {} (KS p {:.3}, CUSUM of GO margins alarm at unit {}), training log {} (KS p {:.3}); see drift-report.md",
+            verdict(on_drift),
+            on_drift.ks.p,
+            on_drift.cusum_go.alarm_down,
+            verdict(on_train),
+            on_train.ks.p
+        );
+    }
     let g = &s.signals;
     let features = g
         .train

@@ -28,6 +28,7 @@ mod audit;
 mod check;
 mod compare;
 mod demo;
+mod drift;
 mod generate;
 mod inspect;
 mod key;
@@ -142,6 +143,11 @@ pub enum Cmd {
         after_help = "Example:\n  linegate demo --out-dir linegate-demo\n\nExit codes: 0 demo written; 2 output error (nothing half-written)."
     )]
     Demo(demo::DemoArgs),
+    /// Test a field log (or the device's lines or field record) for drift against the release audit's baseline; exit 1 on an alarm.
+    #[command(
+        after_help = "Example:\n  linegate drift field.csv --audit audit/audit.json --model model.json --blob model.lgmb --report drift.md\n  linegate drift --lines device.txt --audit audit/audit.json --json\n  linegate drift --record field.lgfr --audit audit/audit.json\n  linegate drift field.csv --audit audit/audit.json --model model.json --blob model.lgmb --record-out host.lgfr\n  linegate drift --audit audit/audit.json --plan              # the device plan, for firmware\n\nComputes, against the audit's baseline (its held-out log's scores, counts and channel figures): each channel's mean shift in units of its declared noise and of its allowed drift (alarm when the shift less z standard errors exceeds the budget; z Bonferroni over the channels at --alpha); the score distribution's two-sample Kolmogorov-Smirnov D and asymptotic p (Smirnov 1939; alarm at p < --alpha; on a record D over the bin edges, a lower bound); the RECHECK and FAULT rates with exact Clopper-Pearson intervals at 1 - alpha (alarm when the field's lower end exceeds the baseline's upper end); the tabular CUSUM of each side's margins, k = sigma/2, h = 5 sigma (Page 1954; Montgomery, Introduction to Statistical Quality Control, 9.1), stepped by the device's own field statistics (alarm when margins shrinking pass h; --two-sided: growing too).\n\nExit codes: 0 in control; 1 an alarm (or the blob is not the audited one); 2 usage, input or output error (an audit.json without a baseline: run the audit again)."
+    )]
+    Drift(drift::DriftArgs),
     /// Create the owner's release key pair, to sign model blobs that devices then require.
     Key(key::KeyArgs),
 }
@@ -293,6 +299,7 @@ pub fn run(cli: &Cli, settings: Vec<host_trainer::project::Setting>) -> Result<(
         Cmd::Sheet(a) => a.run(quiet),
         Cmd::Generate(a) => a.run(quiet),
         Cmd::Demo(a) => a.run(quiet),
+        Cmd::Drift(a) => a.run(quiet, settings),
         Cmd::Key(a) => a.run(quiet),
     }
 }

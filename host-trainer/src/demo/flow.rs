@@ -1,11 +1,12 @@
 //! The demo's one flow: each scenario goes through the same steps a user runs (data, train,
-//! audit, pack, replay), each step one library call, and adds its files to the demo's
+//! audit, pack, replay, drift), each step one library call, and adds its files to the demo's
 //! output set. What differs between the scenarios is data (`Scenario`), not code.
 
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
 use crate::error::{InputError, OutputError};
+use crate::field::drift::DriftReport;
 use crate::ingest::LogOptions;
 use crate::ingest::dataset::Dataset;
 use crate::output::OutputSet;
@@ -96,6 +97,9 @@ pub struct Outcome {
     pub replayed: usize,
     /// Replayed units the device refuses (FAULT).
     pub refused: usize,
+    /// `linegate drift` on the checked (drifted) log and on the training log, when the
+    /// scenario has a checked log and writes its full files.
+    pub drift: Option<(DriftReport, DriftReport)>,
 }
 
 /// Writes `text` to `dir/name` (the demo's scratch folder) and returns the path.
@@ -215,6 +219,31 @@ pub(super) fn run_scenario(
             crate::release::hex::to_hex(MODEL_REGION, &done.blob),
         );
     }
+    // Drift: the drifted log and the training log against the audit's baseline.
+    let drift = match (
+        sc.full,
+        path_of(Role::Checked),
+        done.report.baseline.as_ref(),
+    ) {
+        (true, Some((p, n)), Some(base)) => {
+            let test = |log: &Path, file: &str| field_drift(&done.blob, fm, base, log, file);
+            let on_drift = test(p, n)?;
+            let on_train = test(train_path, train_name)?;
+            set.add(
+                name("drift-report.md"),
+                crate::report::drift_markdown(
+                    &on_drift,
+                    Some(&format!("{}drift-report-cusum.svg", sc.prefix)),
+                ),
+            );
+            set.add(
+                name("drift-report-cusum.svg"),
+                crate::report::cusum_svg(&on_drift),
+            );
+            Some((on_drift, on_train))
+        }
+        _ => None,
+    };
     let replayed = sc.replay.name();
     set.add(name(&format!("replay-{replayed}.txt")), replay);
     set.add(name(&format!("vectors-{replayed}.txt")), vectors);
@@ -225,7 +254,45 @@ pub(super) fn run_scenario(
         sweep: done.sweep,
         replayed: units,
         refused,
+        drift,
     })
+}
+
+/// `linegate drift` on `log` (named `file` in the report) at its defaults (α = 0.01, lower
+/// CUSUM sums alarm), as the command runs it.
+fn field_drift(
+    blob: &[u8],
+    fm: &crate::train::float_model::FloatModel,
+    base: &crate::release::audit_baseline::Baseline,
+    log: &Path,
+    file: &str,
+) -> Result<DriftReport, DemoError> {
+    use crate::field::drift::{DriftConfig, Field, Source, drift};
+    let model: shared_model::CheckedModel<shared_model::SignalSection> =
+        shared_model::blob::decode(blob).map_err(|e| OutputError::Io {
+            path: log.into(),
+            source: std::io::Error::other(e.to_string()),
+        })?;
+    let t = shared_model::Thresholds::of(model.model());
+    let mut run = crate::field::run::FieldRun::new(
+        base.plan.field_plan(),
+        t,
+        model.channel_count(),
+        model.signal_count(),
+        true,
+    );
+    let opts = LogOptions {
+        label_optional: true,
+        ..LogOptions::default()
+    };
+    crate::field::record::run_log(log, &opts, fm, &model, &mut Default::default(), &mut run)?;
+    let cfg = DriftConfig {
+        alpha: 0.01,
+        two_sided: false,
+    };
+    let mut r = drift(base, Field::Run(&run), Source::Log, cfg);
+    r.files = vec![file.to_string()];
+    Ok(r)
 }
 
 /// The log a scenario replays: units already read, or a file the replay reads itself.

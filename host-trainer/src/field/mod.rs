@@ -5,7 +5,22 @@
 //!
 //! This step sits after `release` in the data flow: it reads released models, blobs and
 //! audit records and never changes them; `report` renders what it finds.
+//!
+//! Scoring: [`score`] writes replay's forms (device, text, CSV, JSON Lines). Change control:
+//! [`compare`] runs two releases over the same logs, [`compare_report`] writes what a
+//! reviewer signs.
+//!
+//! Drift: [`baseline`] reads the audit's baseline and prints the device plan; [`run`] feeds
+//! a field log's units (or the device's lines, [`device_lines`]) through the field
+//! statistics the device keeps; [`record`] reads and writes the device's field record;
+//! [`ks`] is the Kolmogorov–Smirnov test; [`drift`] the whole test with its rules.
 
+pub mod baseline;
 pub mod compare;
 pub mod compare_report;
+pub mod device_lines;
+pub mod drift;
+pub mod ks;
+pub mod record;
+pub mod run;
 pub mod score;

@@ -4,6 +4,7 @@
 //! the gates (`gates.rs`) turn the counts into the report (`audit_report.rs`).
 
 use crate::ingest::dataset::Dataset;
+use crate::release::audit_baseline::{baseline, choose};
 use crate::release::audit_report::{AuditReport, SetSummary, Tolerance, UnitRow};
 use crate::release::blob_release::released_blob;
 use crate::release::bound::{ErrorBound, error_bound};
@@ -41,7 +42,17 @@ pub fn audit(
     let reasons: Vec<String> = gates.iter().filter(|g| !g.passed).map(reason).collect();
     let at_risk = (std::mem::take(&mut logs.units_at_risk), logs.at_risk_count);
     let tolerance = risk.map(|radius| tolerance(q, fm, noise, &logs.sets, radius, at_risk));
+    let all: Vec<(&str, &Dataset)> = std::iter::once(("train", train))
+        .chain(others.iter().copied())
+        .collect();
+    let names: Vec<&str> = all.iter().map(|l| l.0).collect();
+    let (at, rule) = choose(&names);
+    let budget: Vec<(f64, f64)> = tolerance.as_ref().map_or(Vec::new(), |t| {
+        t.channels.iter().map(|c| (c.noise, c.max_drift)).collect()
+    });
+    let base = baseline(q, fm, (all[at].0, rule), all[at].1, &budget);
     let mut r = assemble(q, fm, bound, guaranteed, logs, tolerance);
+    r.baseline = Some(base);
     r.passed = reasons.is_empty();
     r.gates = gates;
     r.reasons = reasons;
@@ -188,6 +199,7 @@ fn assemble(
         c_choice: fm.provenance.c_choice.clone(),
         split: None,
         settings: Vec::new(),
+        baseline: None,
     }
 }
 

@@ -46,7 +46,11 @@ impl AuditRecord {
     /// # Errors
     /// The file cannot be read or is not an audit record.
     pub fn read(path: &Path) -> Result<Self, InputError> {
-        let text = crate::input::read_text(path, "audit record", crate::input::MAX_TEXT_FILE)?;
+        let text = crate::input::read_text(
+            path,
+            "audit record",
+            crate::release::audit_baseline::MAX_AUDIT_FILE,
+        )?;
         serde_json::from_str(&text).map_err(|e| InputError::Format {
             path: path.into(),
             message: format!("not an audit record (audit.json of `linegate audit --out-dir`): {e}"),

@@ -263,6 +263,10 @@ pub struct AuditReport {
     /// the CLI records it; `pack` compares its own with these.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub settings: Vec<crate::project::Setting>,
+    /// The field baseline `linegate drift` compares with: the held-out log's scores,
+    /// counts and channel figures, and the device plan.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub baseline: Option<crate::release::audit_baseline::Baseline>,
 }
 
 impl AuditReport {
@@ -271,6 +275,9 @@ impl AuditReport {
     pub fn name_blob(&mut self, blob: &[u8]) {
         self.blob_sha256 = crate::digest::sha256_hex(blob);
         self.blob_id = blob::blob_id(blob).map_or(String::new(), |id| format!("{id:08x}"));
+        if let Some(b) = self.baseline.as_mut() {
+            b.plan.blob_id = blob::blob_id(blob).unwrap_or(0);
+        }
         self.blob_bytes = blob.len();
         self.key_id = blob::signature(blob).map(|s| crate::digest::lower_hex(&s.key_id));
     }

@@ -98,7 +98,11 @@ pub fn made_from(blob: &Path, bytes: &[u8], model: &Path) -> Result<(), BlobChec
 /// [`BlobCheck::Input`] or [`BlobCheck::NotJson`] for a report that cannot be read,
 /// [`BlobCheck::Report`] when it records another SHA-256 or none.
 pub fn audited_as(sha256: &str, report: &Path) -> Result<(), BlobCheck> {
-    let text = crate::input::read_text(report, "audit report", crate::input::MAX_TEXT_FILE)?;
+    let text = crate::input::read_text(
+        report,
+        "audit report",
+        crate::release::audit_baseline::MAX_AUDIT_FILE,
+    )?;
     // JSON that is no record (an array, a number, a repeated key) names no blob: the
     // check fails (exit 1) rather than calling the file unreadable.
     let named = match serde_json::from_str::<NamedBlob>(&text) {

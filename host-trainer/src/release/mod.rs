@@ -11,6 +11,7 @@
 //! [`blob_match`] checks a blob against its key, model and audit report;
 //! [`replay`] prints the lines the device prints; [`sign`] holds the owner's release key
 //! and signs blobs (format version 2, or 4 for a model with signal features); [`keyfile`] reads and writes its key files.
+//! [`audit_baseline`] keeps what the model met on the held-out log for `drift`.
 //! [`features`] audits a model's signal features: ranges, overflow proofs and noise bounds.
 //! [`gates`] holds the release gates, each rate with its exact bounds
 //! (`crate::confidence`), and [`model_gates`] the gates and band a model's operating point
@@ -19,6 +20,7 @@
 
 pub mod applying;
 pub mod audit;
+pub mod audit_baseline;
 pub mod audit_record;
 pub mod audit_report;
 pub mod blob_match;

@@ -11,7 +11,7 @@ use crate::train::float_model::FloatModel;
 
 /// Page style: our own (slate text, one accent), tables ruled for print and never split
 /// across a page, readable in black and white.
-const STYLE: &str = "body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;color:#1f2933;max-width:62em;margin:2em auto;padding:0 1em;line-height:1.45}\
+pub(super) const STYLE: &str = "body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;color:#1f2933;max-width:62em;margin:2em auto;padding:0 1em;line-height:1.45}\
 h1{border-bottom:3px solid #0b6e4f;padding-bottom:.2em}h2{color:#0b6e4f;margin-top:1.6em}\
 table{border-collapse:collapse;margin:.6em 0;font-size:.92em;font-variant-numeric:tabular-nums}\
 th,td{border:1px solid #9aa5b1;padding:.25em .55em;text-align:left}th{background:#e4e7eb}\
@@ -50,7 +50,7 @@ fn verdict_banner(r: &AuditReport) -> String {
 }
 
 /// Text for HTML: the five characters that could start markup or end an attribute.
-fn escape(t: &str) -> String {
+pub(super) fn escape(t: &str) -> String {
     t.replace('&', "&amp;")
         .replace('<', "&lt;")
         .replace('>', "&gt;")
@@ -60,7 +60,7 @@ fn escape(t: &str) -> String {
 
 /// The Markdown report as HTML: tables become tables. Any HTML inside the text (a unit id
 /// from a log may hold some) is shown as text, never interpreted.
-fn render_markdown(md: &str) -> String {
+pub(super) fn render_markdown(md: &str) -> String {
     use pulldown_cmark::{Event, Options, Parser};
     let events = Parser::new_ext(md, Options::ENABLE_TABLES).map(|e| match e {
         Event::Html(t) | Event::InlineHtml(t) => Event::Text(t),

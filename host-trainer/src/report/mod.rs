@@ -1,9 +1,11 @@
 //! Reports of an audit: its [`document`] of typed sections, [`markdown`] (the sections in
 //! order), a self-contained [`html`] page with SVG charts placed by section
 //! ([`margin_bins_svg`], [`rounding_svg`], [`bars_svg`], [`sweep_svg`],
-//! [`trade_off_svg`]), and [`json`] for machines.
+//! [`trade_off_svg`]), and [`json`] for machines. The drift test's document:
+//! [`drift_markdown`], [`drift_html`], [`cusum_svg`].
 
 mod document;
+mod drift;
 mod html;
 mod json;
 mod markdown;
@@ -13,6 +15,7 @@ mod settings;
 mod svg;
 
 pub use document::{Document, Part, Section};
+pub use drift::{cusum_svg, drift_html, drift_markdown};
 pub use html::html;
 pub use json::json;
 pub use markdown::{document, markdown};

@@ -6,6 +6,7 @@ mod c_api;
 mod confidence;
 mod demo;
 mod device;
+mod drift;
 mod features;
 mod field;
 mod house;

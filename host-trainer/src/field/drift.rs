@@ -1,0 +1,455 @@
+//! The drift test: a field log (or the device's field record) against the audit's baseline.
+//! Four parts, each with its rule; any alarm makes the field out of control.
+//!
+//! - **Channels**: each channel's mean shift Δ (physical units), in units of its declared
+//!   noise and of its allowed drift (the margin budget the audit left). Alarm when the shift
+//!   is shown to use more than the budget: |Δ| − z·SE > allowed drift, SE the Welch standard
+//!   error √(s_b²/n_b + s_f²/n_f), z the normal quantile 1 − α/(2c) over the c channels with
+//!   a budget (Bonferroni). A device record keeps no spread: the baseline's is used.
+//! - **Scores**: the two-sample Kolmogorov–Smirnov test (`ks.rs`) of the decided (GO and
+//!   NO-GO) units' scores; alarm at p < α. A record's histogram holds RECHECK units too, so
+//!   its test is of every scored unit, binned.
+//! - **Rates**: RECHECK and FAULT among all units, exact Clopper–Pearson intervals at
+//!   1 − α; alarm when the field's lower end exceeds the baseline's upper end.
+//! - **CUSUM**: the tabular CUSUM of each side's margins (Page, 1954; Montgomery §9.1) as the
+//!   device keeps it; alarm when a lower sum (margins shrinking: units walking towards the
+//!   boundary) exceeds h. Upper sums (margins growing) are shown, and alarm only when asked
+//!   (`two_sided`).
+
+use serde::Serialize;
+use shared_model::FieldStats;
+use shared_model::field::CusumState;
+use statrs::distribution::{ContinuousCDF, Normal};
+
+use crate::confidence::Rate;
+use crate::field::ks::{self, KsTest};
+use crate::field::run::{ChartPoint, FieldRun};
+use crate::release::audit_baseline::Baseline;
+
+/// What the field was read from.
+#[derive(Clone, Copy, Debug, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum Source {
+    /// A log of readings, replayed through the blob's kernel.
+    Log,
+    /// The device's score lines.
+    Lines,
+    /// The device's field record.
+    Record,
+}
+
+/// The test's settings.
+#[derive(Clone, Copy, Debug)]
+pub struct DriftConfig {
+    /// The level of every test (KS, rates, channels before Bonferroni).
+    pub alpha: f64,
+    /// Alarm on the upper CUSUM sums too.
+    pub two_sided: bool,
+}
+
+/// One channel's shift.
+#[derive(Clone, Debug, Serialize)]
+pub struct ChannelShift {
+    /// Channel.
+    pub channel: String,
+    /// Physical unit.
+    pub unit: String,
+    /// Field values (decided units).
+    pub field_units: u64,
+    /// Baseline mean, physical units from raw (mean raw × lsb).
+    pub baseline_mean: f64,
+    /// Field mean, same units.
+    pub field_mean: f64,
+    /// Δ = field − baseline, physical units.
+    pub shift: f64,
+    /// Welch standard error of Δ, physical units.
+    pub standard_error: f64,
+    /// Δ in units of the declared noise (null without one).
+    pub in_noise: Option<f64>,
+    /// |Δ| over the allowed drift (the margin budget; null without one): above 1 uses more
+    /// than the budget.
+    pub of_budget: Option<f64>,
+    /// |Δ| − z·SE: the least shift the field shows, physical units.
+    pub shown_shift: f64,
+    /// The allowed drift, physical units.
+    pub budget: Option<f64>,
+    /// The shown shift exceeds the budget.
+    pub alarm: bool,
+}
+
+/// A rate of the field against the baseline's.
+#[derive(Clone, Debug, Serialize)]
+pub struct RateShift {
+    /// The field's rate with its interval.
+    pub field: Rate,
+    /// The baseline's.
+    pub baseline: Rate,
+    /// The field's lower end exceeds the baseline's upper end.
+    pub alarm: bool,
+}
+
+/// One side's CUSUM.
+#[derive(Clone, Debug, Serialize)]
+pub struct CusumSide {
+    /// μ₀, k and h.
+    pub target: i64,
+    /// k.
+    pub slack: i64,
+    /// h.
+    pub limit: i64,
+    /// The final state (sums and first alarm units, 0 never).
+    pub up: i64,
+    /// Lower sum at the end.
+    pub down: i64,
+    /// Unit number of the upper sum's first alarm (0 none).
+    pub alarm_up: u32,
+    /// Unit number of the lower sum's first alarm (0 none).
+    pub alarm_down: u32,
+    /// This side raised an alarm under the rule.
+    pub alarm: bool,
+}
+
+/// The whole test.
+#[derive(Clone, Debug, Serialize)]
+pub struct DriftReport {
+    /// What the field was read from.
+    pub source: Source,
+    /// The field's files.
+    pub files: Vec<String>,
+    /// α.
+    pub alpha: f64,
+    /// The upper CUSUM sums alarm too.
+    pub two_sided: bool,
+    /// The baseline's log and why.
+    pub baseline_log: String,
+    /// The rule that chose it.
+    pub baseline_rule: String,
+    /// Field units.
+    pub units: u64,
+    /// GO, NO-GO, RECHECK, FAULT counts.
+    pub go: u64,
+    /// NO-GO.
+    pub nogo: u64,
+    /// RECHECK.
+    pub recheck: u64,
+    /// FAULT.
+    pub faults: u64,
+    /// The record stopped counting at u32::MAX units.
+    pub saturated: bool,
+    /// Per channel (empty for device lines, which carry no values).
+    pub channels: Vec<ChannelShift>,
+    /// The Bonferroni z of the channel rule.
+    pub channel_z: f64,
+    /// The score distribution's test.
+    pub ks: KsTest,
+    /// The KS test's alarm.
+    pub ks_alarm: bool,
+    /// RECHECK among all units.
+    pub recheck_rate: RateShift,
+    /// FAULT among all units.
+    pub fault_rate: RateShift,
+    /// GO side.
+    pub cusum_go: CusumSide,
+    /// NO-GO side.
+    pub cusum_nogo: CusumSide,
+    /// Every alarm, one line each (empty: in control).
+    pub alarms: Vec<String>,
+    /// What the test could not do, and why.
+    pub notes: Vec<String>,
+    /// Each decided unit's CUSUM state (for the chart; not in the JSON).
+    #[serde(skip)]
+    pub chart: Vec<ChartPoint>,
+}
+
+impl DriftReport {
+    /// No alarm.
+    pub fn in_control(&self) -> bool {
+        self.alarms.is_empty()
+    }
+}
+
+/// What the field gave.
+pub enum Field<'a> {
+    /// Units seen one by one (a log or device lines).
+    Run(&'a FieldRun),
+    /// The device's record.
+    Record(&'a FieldStats),
+}
+
+/// Tests `field` against `base`.
+pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig) -> DriftReport {
+    let (stats, run) = match field {
+        Field::Run(r) => (&r.stats, Some(r)),
+        Field::Record(s) => (s, None),
+    };
+    let mut notes = Vec::new();
+    let mut alarms = Vec::new();
+    let conf = 1.0 - cfg.alpha;
+    // Channels.
+    let budgeted = base
+        .channels
+        .iter()
+        .filter(|c| c.max_drift.is_some())
+        .count();
+    let z = Normal::new(0.0, 1.0).map_or(f64::NAN, |n| {
+        n.inverse_cdf(1.0 - cfg.alpha / (2.0 * budgeted.max(1) as f64))
+    });
+    let mut channels = Vec::new();
+    let values_known = run.is_none_or(|r| r.has_values);
+    if !values_known {
+        notes.push("device lines carry no channel values: no channel shifts (give the log, or the device's field record)".into());
+    } else if budgeted == 0 {
+        notes.push("the audit declared no noise, so it left no drift budget: channel shifts are shown, none can alarm".into());
+    }
+    if run.is_none() && values_known {
+        notes.push("a device record keeps each channel's sum, not its spread: the standard error uses the baseline's spread".into());
+    }
+    for (c, b) in base.channels.iter().enumerate() {
+        let field = match run {
+            Some(r) => r.channel(c),
+            None => {
+                let n = u64::from(stats.go) + u64::from(stats.nogo) + u64::from(stats.recheck);
+                let sum = stats.sum.get(c).copied().unwrap_or(0);
+                (n > 0).then(|| (n, sum as f64 / n as f64, b.sd))
+            }
+        };
+        let Some((n, mean, sd)) = field else { continue };
+        if n == 0 {
+            continue;
+        }
+        let shift = (mean - b.mean) * b.lsb;
+        let se = b.lsb * (b.sd * b.sd / b.count.max(1) as f64 + sd * sd / n as f64).sqrt();
+        let shown = shift.abs() - z * se;
+        let alarm = b.max_drift.is_some_and(|d| shown > d);
+        if alarm {
+            alarms.push(format!(
+                "channel {}: mean shift {:+.4} {} (at least {:.4} at α = {}, Bonferroni over {budgeted}) uses more than its allowed drift {:.4} {}",
+                b.name,
+                shift,
+                b.unit,
+                shown,
+                cfg.alpha,
+                b.max_drift.unwrap_or(0.0),
+                b.unit
+            ));
+        }
+        channels.push(ChannelShift {
+            channel: b.name.clone(),
+            unit: b.unit.clone(),
+            field_units: n,
+            baseline_mean: b.mean * b.lsb,
+            field_mean: mean * b.lsb,
+            shift,
+            standard_error: se,
+            in_noise: b.noise.filter(|n| *n > 0.0).map(|n| shift / n),
+            of_budget: b.max_drift.map(|d| shift.abs() / d),
+            shown_shift: shown,
+            budget: b.max_drift,
+            alarm,
+        });
+    }
+    // Scores.
+    let ks = match run {
+        Some(r) => ks::test(&base.scores, &r.sorted_scores()),
+        None => {
+            let mut all = base.scores.clone();
+            all.extend(&base.recheck_scores);
+            ks::binned_test(&ks::binned_counts(&all, stats), &ks::record_counts(stats))
+        }
+    };
+    if ks.binned {
+        notes.push("a device record keeps scores by bin, RECHECK units' among them: D is taken over the bin edges against the baseline's scored units binned alike (RECHECK included), a lower bound of that D".into());
+    }
+    let ks_alarm = ks.m > 0 && ks.n > 0 && ks.p < cfg.alpha;
+    if ks_alarm {
+        alarms.push(format!(
+            "scores: Kolmogorov–Smirnov D = {:.4}, p = {:.2e} < α = {}",
+            ks.d, ks.p, cfg.alpha
+        ));
+    }
+    // Rates.
+    let units = u64::from(stats.units);
+    let rate = |what: &str, f: u64, b: u64, alarms: &mut Vec<String>| {
+        let field = Rate::new(f, units, conf);
+        let baseline = Rate::new(b, base.units, conf);
+        let alarm = units > 0 && field.low > baseline.high;
+        if alarm {
+            alarms.push(format!(
+                "{what} rate {:.2} % (lower end {:.2} %) above the baseline's {:.2} % (upper end {:.2} %), Clopper–Pearson at {:.0} %",
+                100.0 * field.rate,
+                100.0 * field.low,
+                100.0 * baseline.rate,
+                100.0 * baseline.high,
+                100.0 * conf
+            ));
+        }
+        RateShift {
+            field,
+            baseline,
+            alarm,
+        }
+    };
+    let recheck_rate = rate("RECHECK", stats.recheck.into(), base.recheck, &mut alarms);
+    let fault_rate = rate("FAULT", stats.faults.into(), base.faults, &mut alarms);
+    // CUSUM.
+    let side = |name: &str,
+                s: &CusumState,
+                p: &shared_model::field::CusumPlan,
+                a: &mut Vec<String>| {
+        let down = s.alarm_down != 0;
+        let up = s.alarm_up != 0 && cfg.two_sided;
+        if down {
+            a.push(format!(
+                "CUSUM of {name} margins: the lower sum passed h = {} at unit {} (margins shrinking towards the boundary)",
+                p.limit, s.alarm_down
+            ));
+        }
+        if up {
+            a.push(format!(
+                "CUSUM of {name} margins: the upper sum passed h = {} at unit {} (margins growing)",
+                p.limit, s.alarm_up
+            ));
+        }
+        CusumSide {
+            target: p.target,
+            slack: p.slack,
+            limit: p.limit,
+            up: s.up,
+            down: s.down,
+            alarm_up: s.alarm_up,
+            alarm_down: s.alarm_down,
+            alarm: down || up,
+        }
+    };
+    let cusum_go = side("GO", &stats.cusum_go, &stats.plan.go, &mut alarms);
+    let cusum_nogo = side("NO-GO", &stats.cusum_nogo, &stats.plan.nogo, &mut alarms);
+    for (n, s) in [("GO", &cusum_go), ("NO-GO", &cusum_nogo)] {
+        if !cfg.two_sided && s.alarm_up != 0 {
+            notes.push(format!("CUSUM of {n} margins: the upper sum passed h at unit {} (margins grew away from the boundary): shown, not an alarm (--two-sided makes it one)", s.alarm_up));
+        }
+    }
+    if stats.saturated {
+        notes.push("the record stopped counting at 4,294,967,295 units".into());
+    }
+    if units == 0 {
+        notes.push("the field has no units".into());
+    }
+    DriftReport {
+        source,
+        files: Vec::new(),
+        alpha: cfg.alpha,
+        two_sided: cfg.two_sided,
+        baseline_log: base.log.clone(),
+        baseline_rule: base.rule.clone(),
+        units,
+        go: stats.go.into(),
+        nogo: stats.nogo.into(),
+        recheck: stats.recheck.into(),
+        faults: stats.faults.into(),
+        saturated: stats.saturated,
+        channels,
+        channel_z: z,
+        ks,
+        ks_alarm,
+        recheck_rate,
+        fault_rate,
+        cusum_go,
+        cusum_nogo,
+        alarms,
+        notes,
+        chart: run.map(|r| r.chart.clone()).unwrap_or_default(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::release::audit_baseline::{BaselineChannel, CusumRecord, PlanRecord};
+    use shared_model::Thresholds;
+
+    fn base() -> Baseline {
+        let side = CusumRecord {
+            units: 10,
+            mean: 50.0,
+            sd: 10.0,
+            target: 50,
+            slack: 5,
+            limit: 50,
+        };
+        Baseline {
+            log: "holdout".into(),
+            rule: "test".into(),
+            sha256: String::new(),
+            nogo_max: -10,
+            go_min: 10,
+            units: 100,
+            go: 50,
+            nogo: 49,
+            recheck: 1,
+            faults: 0,
+            scores: (0..99).map(|i| if i < 49 { -60 } else { 60 }).collect(),
+            recheck_scores: vec![0],
+            channels: vec![BaselineChannel {
+                name: "a".into(),
+                unit: "V".into(),
+                lsb: 0.5,
+                count: 100,
+                mean: 100.0,
+                sd: 10.0,
+                min: 70,
+                max: 130,
+                noise: Some(1.0),
+                max_drift: Some(2.0),
+            }],
+            plan: PlanRecord {
+                blob_id: 1,
+                origin: -100,
+                shift: 3,
+                go: side.clone(),
+                nogo: side,
+            },
+        }
+    }
+
+    /// By hand: 100 units of value 120 (raw) against a mean of 100 (sd 10 over 100): the
+    /// shift is 20 raw = 10 V, SE = 0.5·√(100/100 + 0) = 0.5 V, z = Φ⁻¹(0.995) ≈ 2.576, so the
+    /// shown shift 10 − 1.29 ≈ 8.71 V exceeds the 2 V budget; 10 noise units, 5 budgets.
+    /// The RECHECK rate 30 % (lower end above 16 %) against 1 % (upper end below 7 %)
+    /// alarms too; GO margins of 10 against μ₀ = 50, k = 5: C⁻ grows 35 a unit and passes
+    /// h = 50 at the second GO unit (unit 5: units 1–3 are RECHECK).
+    #[test]
+    fn each_rule_worked_by_hand() {
+        let b = base();
+        let t = Thresholds {
+            nogo_max: -10,
+            go_min: 10,
+        };
+        let mut run = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        for i in 0..100 {
+            let score = if i % 10 < 3 { 0 } else { 20 };
+            run.decided(&t.decide(score), Some(&[120]));
+        }
+        let cfg = DriftConfig {
+            alpha: 0.01,
+            two_sided: false,
+        };
+        let r = drift(&b, Field::Run(&run), Source::Log, cfg);
+        let c = &r.channels[0];
+        assert!((c.shift - 10.0).abs() < 1e-12 && (c.standard_error - 0.5).abs() < 1e-12);
+        assert_eq!((c.in_noise, c.of_budget), (Some(10.0), Some(5.0)));
+        assert!((r.channel_z - 2.5758293035489).abs() < 1e-9);
+        assert!(c.alarm);
+        assert!(r.recheck_rate.alarm && !r.fault_rate.alarm);
+        assert_eq!(r.cusum_go.alarm_down, 5);
+        assert!(r.cusum_go.alarm && !r.cusum_nogo.alarm);
+        assert_eq!(r.alarms.len(), 3 + usize::from(r.ks_alarm));
+        // The baseline's own scores and the baseline's mean: no KS and no channel alarm.
+        let mut same = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        for &s in b.scores.iter().chain(&b.recheck_scores) {
+            same.decided(&t.decide(s), Some(&[100]));
+        }
+        let r = drift(&b, Field::Run(&same), Source::Log, cfg);
+        assert!(!r.ks_alarm && r.ks.d == 0.0);
+        assert!(!r.channels[0].alarm);
+    }
+}

@@ -1,0 +1,71 @@
+//! The device's field record (`shared_model::FieldStats`, FORMAT.md "Field record") read
+//! from a file and written for one, and a field log replayed into the statistics the device
+//! would keep over it.
+
+use std::path::Path;
+
+use shared_model::field::MAX_RECORD_LEN;
+use shared_model::{CheckedModel, FieldStats, SignalSection};
+
+use crate::error::InputError;
+use crate::field::run::FieldRun;
+use crate::ingest::{LogOptions, SkipReport};
+use crate::train::float_model::FloatModel;
+
+/// Reads a field record and checks it was kept under `plan` (the audit's).
+///
+/// # Errors
+/// [`InputError::Format`]: not a record (magic, version, CRC-32, counts), or one kept under
+/// another plan (another release, or a plan that is not the audit's).
+pub fn read_record(path: &Path, plan: &shared_model::FieldPlan) -> Result<FieldStats, InputError> {
+    let bytes = crate::input::read_bounded(path, "field record", MAX_RECORD_LEN as u64)?;
+    let format = |message: String| InputError::Format {
+        path: path.into(),
+        message,
+    };
+    let s = FieldStats::decode(&bytes).map_err(|e| format(e.to_string()))?;
+    if s.plan.blob_id != plan.blob_id {
+        return Err(format(format!(
+            "the record is of blob {:08x}; the audit is of blob {:08x}",
+            s.plan.blob_id, plan.blob_id
+        )));
+    }
+    if s.plan != *plan {
+        return Err(format(format!(
+            "the record was kept under another plan than the audit's (record {:?}, audit {:?}): give the device the plan `linegate drift --plan` prints",
+            s.plan, plan
+        )));
+    }
+    Ok(s)
+}
+
+/// The record's bytes.
+pub fn record_bytes(s: &FieldStats) -> Vec<u8> {
+    let mut buf = vec![0u8; s.record_len()];
+    let n = s.encode(&mut buf).unwrap_or(0);
+    buf.truncate(n);
+    buf
+}
+
+/// Replays the log `path` through `model` (the blob of `fm`) into `run`, unit by unit as
+/// the device steps; returns the units read.
+///
+/// # Errors
+/// The log's [`InputError`].
+pub fn run_log(
+    path: &Path,
+    opts: &LogOptions,
+    fm: &FloatModel,
+    model: &CheckedModel<SignalSection>,
+    skipped: &mut SkipReport,
+    run: &mut FieldRun,
+) -> Result<usize, InputError> {
+    let mut units = 0usize;
+    crate::ingest::stream(path, opts, &fm.channels, &fm.signals, skipped, |u| {
+        let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
+        run.unit(model, u.raw, &windows);
+        units += 1;
+        Ok(())
+    })?;
+    Ok(units)
+}
