@@ -74,6 +74,9 @@ pub fn parse(
         if line.trim().is_empty() {
             continue;
         }
+        // `replay`'s text form is the device's line, then ` # ` and what the log adds
+        // (device lines hold no `#`).
+        let line = line.find(" # ").map_or(line, |at| &line[..at]);
         let col = |word: &str| word.as_ptr() as usize - line.as_ptr() as usize + 1;
         let w: Vec<&str> = line.split_whitespace().collect();
         let index: usize = w[0]
@@ -159,7 +162,7 @@ mod tests {
     #[test]
     fn lines_are_read_and_checked() {
         let mut r = run();
-        let text = "# model ab blob 0000cafe\n0 GO 50\n1 NO-GO -20\n2 RECHECK 0\n3 FAULT ch1\n4 FAULT signal0\n5 FAULT count\n";
+        let text = "# model ab blob 0000cafe\n0 GO 50 # unit=U1 line=2\n1 NO-GO -20\n2 RECHECK 0\n3 FAULT ch1\n4 FAULT signal0\n5 FAULT count\n";
         assert_eq!(parse(text, "ab", "0000cafe", &mut r), Ok(6));
         let s = &r.stats;
         assert_eq!((s.go, s.nogo, s.recheck, s.faults), (1, 1, 1, 3));
