@@ -84,7 +84,11 @@ fn drift_alarms_on_the_drifted_log_and_not_on_the_training_log() {
         let o = linegate(
             &bin,
             d,
-            &[&["-q", "replay", "--form", "device", csv.as_str()][..], &release[2..]].concat(),
+            &[
+                &["-q", "replay", "--form", "device", csv.as_str()][..],
+                &release[2..],
+            ]
+            .concat(),
         );
         assert!(o.status.success());
         let lines = format!("lines-{log}.txt");
