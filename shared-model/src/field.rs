@@ -568,7 +568,11 @@ impl Writer<'_> {
     fn put(&mut self, bytes: &[u8]) {
         let end = self.at.saturating_add(bytes.len());
         if let Some(dst) = self.buf.get_mut(self.at..end) {
-            dst.copy_from_slice(bytes);
+            // Byte by byte, not `copy_from_slice`: its length check is a panic path the
+            // compiler keeps (a saturated `end` would make the lengths differ).
+            for (d, s) in dst.iter_mut().zip(bytes) {
+                *d = *s;
+            }
         }
         self.at = end;
     }
