@@ -129,7 +129,10 @@ fn field_plan() -> String {
                 .unwrap_or_else(|| panic!("{shown} line {}: 'key = integer' expected", n + 1));
             let (key, value) = (key.trim(), value.trim());
             let i = PLAN_KEYS.iter().position(|k| *k == key).unwrap_or_else(|| {
-                panic!("{shown} line {}: unknown key '{key}' (keys: {PLAN_KEYS:?})", n + 1)
+                panic!(
+                    "{shown} line {}: unknown key '{key}' (keys: {PLAN_KEYS:?})",
+                    n + 1
+                )
             });
             assert!(!seen[i], "{shown} line {}: '{key}' given twice", n + 1);
             seen[i] = true;
@@ -138,7 +141,10 @@ fn field_plan() -> String {
                 .unwrap_or_else(|_| panic!("{shown} line {}: '{value}' is not an integer", n + 1));
         }
         if let Some(i) = seen.iter().position(|s| !s) {
-            panic!("{shown}: no '{}' (every key is needed: {PLAN_KEYS:?})", PLAN_KEYS[i]);
+            panic!(
+                "{shown}: no '{}' (every key is needed: {PLAN_KEYS:?})",
+                PLAN_KEYS[i]
+            );
         }
         assert!(
             (0..=62).contains(&v[1]),

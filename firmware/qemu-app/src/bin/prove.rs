@@ -11,7 +11,9 @@
 mod board;
 
 use board::entry;
-use firmware::{CusumPlan, FieldPlan, FieldStats, GoNoGoLines, SensorSource, Station, Step, WindowSource};
+use firmware::{
+    CusumPlan, FieldPlan, FieldStats, GoNoGoLines, SensorSource, Station, Step, WindowSource,
+};
 use panic_never as _;
 
 /// A value from outside the program (a DMA target or a register on a real board): the
