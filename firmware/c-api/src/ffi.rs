@@ -434,14 +434,23 @@ pub unsafe extern "C" fn lg_station_init(
     } else {
         return lg_status::LG_ERR_NO_SIGNING;
     };
-    let station: CStation = Station::with_key(bytes, key, CSensor { read, ctx }, lines);
-    let status = match station.classifier() {
-        Ok(_) => lg_status::LG_OK,
-        Err(e) => status_of(e),
-    };
+    // Built straight into the caller's storage, not in a local first: a station is 3 KiB
+    // (its field statistics 1 KiB of it), and a local would stand on the stack beside
+    // the validation's frames.
     // SAFETY: as above.
-    unsafe { put(storage, STATION_TAG, station) };
-    status
+    unsafe {
+        put::<CStation>(
+            storage,
+            STATION_TAG,
+            Station::with_key(bytes, key, CSensor { read, ctx }, lines),
+        );
+    }
+    // SAFETY: just written behind its tag.
+    match unsafe { get::<CStation>(storage, STATION_TAG) }.map(|s| s.value.classifier()) {
+        Some(Ok(_)) => lg_status::LG_OK,
+        Some(Err(e)) => status_of(e),
+        None => lg_status::LG_ERR_NOT_LOADED,
+    }
 }
 
 /// Writes the station's model id (16 bytes, to `model_id`) and blob id (to `*blob_id`),
