@@ -585,6 +585,7 @@ fn signal_model_on_five_cores_agrees_with_the_host() {
     crate::device_field::write_plan(&plan_path, &plan);
     let field = crate::device_field::host_record(&buf[..n], &rows, plan);
     assert!(field.channel_faults[3] > 0 && field.signal_faults[0] > 0);
+    crate::device_field::python_reference(&buf[..n], &rows, &field, dir.path());
     on_every_core(
         "signals",
         &vpath,
@@ -654,6 +655,7 @@ fn demo_signal_model_on_five_cores_agrees_with_replay() {
         "field plan {plan:?}: GO CUSUM alarm at unit {}, {} faults",
         field.cusum_go.alarm_down, field.faults
     );
+    crate::device_field::python_reference(&blob, &vectors, &field, dir.path());
     on_every_core(
         "signals",
         &out.join("signal-vectors-field.txt"),

@@ -240,3 +240,41 @@ pub fn check_record(core: &str, stdout: &str, want: &FieldStats) {
     assert_eq!(&d, want, "{core}: field records differ");
     assert_eq!(got, &buf[..n], "{core}: field record bytes differ");
 }
+
+/// The host's record over a vectors file checked by an outside reference
+/// (`tests/verify/field_record.py`: the layout read with Python's struct, the CRC with
+/// zlib.crc32, every statistic and both CUSUMs recomputed from the units with Python's
+/// integers from FORMAT.md and the CUSUM's published recursion).
+pub fn python_reference(blob_bytes: &[u8], vectors: &str, field: &FieldStats, dir: &Path) {
+    let model: CheckedModel<SignalSection> = blob::decode(blob_bytes).unwrap();
+    let t = model.thresholds();
+    let mut units = format!("# thresholds {} {}\n", t.nogo_max, t.go_min);
+    for o in outcomes(&model, vectors) {
+        let line = match o {
+            Outcome::Decided(d, v) => {
+                let v: Vec<String> = v.iter().map(ToString::to_string).collect();
+                format!("{} {} {}", d.verdict.as_str(), d.score, v.join(" "))
+            }
+            Outcome::Faulted(FieldFault::Channel(c)) => format!("FAULT channel {c}"),
+            Outcome::Faulted(FieldFault::Signal(k)) => format!("FAULT signal {k}"),
+            Outcome::Faulted(FieldFault::Other) => "FAULT other".into(),
+        };
+        units.push_str(&line);
+        units.push('\n');
+    }
+    let mut buf = [0u8; shared_model::field::MAX_RECORD_LEN];
+    let n = field.encode(&mut buf).unwrap();
+    let (rec, txt) = (dir.join("field-record.bin"), dir.join("field-units.txt"));
+    std::fs::write(&rec, &buf[..n]).unwrap();
+    std::fs::write(&txt, units).unwrap();
+    let Some((code, out)) = crate::python_check(
+        "field record against Python",
+        "field_record.py",
+        &[rec.as_os_str(), txt.as_os_str()],
+        dir,
+    ) else {
+        return;
+    };
+    assert_eq!(code, Some(0), "{out}");
+    assert!(out.contains(" 0 mismatches"), "{out}");
+}
