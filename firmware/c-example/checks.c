@@ -103,7 +103,7 @@ int main(int argc, char **argv) {
           "a reading out of range: FAULT on its channel, NO-GO");
 
     /* The station: lines to NO-GO at once; faults hold NO-GO; the first of a run is marked. */
-    static lg_station s;
+    static lg_station s, never_station;
     uint8_t key[32] = {0};
     struct bench b = {true, true, INT32_MIN, {true, true, true}, 0};
     check(lg_station_init(&s, blob, len, key, read_all, set_line, &b) == LG_ERR_NO_SIGNING,
@@ -128,6 +128,41 @@ int main(int argc, char **argv) {
     check(lg_station_step(&s, &r) == LG_OK && r.fault == LG_FAULT_BLOB && r.verdict == LG_NOGO,
           "and shows NO-GO every step");
     check(lg_station_step(NULL, &r) == LG_ERR_NULL, "a step with no station");
+
+    /* The field statistics: every step counted, the record into the caller's buffer. */
+    lg_field f;
+    uint8_t rec[LG_FIELD_RECORD_MAX];
+    size_t rec_len = 0;
+    check(lg_station_field(&s, &f) == LG_OK && f.units == 1 && f.faults == 1 && f.other_faults == 1 &&
+              f.blob_id == 0,
+          "a station on a damaged blob counts its step as an other fault, for blob id 0");
+    check(lg_station_init(&s, blob, len, NULL, read_all, set_line, &b) == LG_OK, "station set up again");
+    lg_field_plan plan = {-1000, 4, {100, 10, 50}, {100, 10, 50}};
+    check(lg_station_set_field_plan(&s, &plan) == LG_OK, "a field plan");
+    plan.shift = 63;
+    check(lg_station_set_field_plan(&s, &plan) == LG_ERR_PLAN, "a bin shift above 62 is refused");
+    check(lg_station_set_field_plan(&s, NULL) == LG_ERR_NULL, "no plan");
+    check(lg_station_set_field_plan(NULL, &plan) == LG_ERR_NULL, "a plan for no station");
+    check(lg_station_step(&s, &r) == LG_OK && r.fault == LG_FAULT_RANGE, "a reading out of range");
+    b.sensor_ok = false;
+    check(lg_station_step(&s, &r) == LG_OK && r.fault == LG_FAULT_SENSOR, "a sensor failure");
+    b.sensor_ok = true;
+    check(lg_station_field(&s, &f) == LG_OK && f.units == 2 && f.other_faults == 1 && f.channel_faults[0] == 1 && f.plan.shift == 4 &&
+              f.plan.origin == -1000 && f.channels == n && f.blob_id == id,
+          "both steps counted under the plan, for the blob's id");
+    check(f.go + f.nogo + f.recheck + f.faults == f.units, "the counts add up");
+    check(lg_station_field_record(&s, rec, 10, &rec_len) == LG_ERR_BUFFER && rec_len == 288 + 20 * n,
+          "a buffer too short: the length needed is given");
+    check(lg_station_field_record(&s, rec, sizeof rec, &rec_len) == LG_OK && rec_len == 288 + 20 * n &&
+              memcmp(rec, "LGFR", 4) == 0,
+          "the record, magic first");
+    check(lg_station_field_record(&s, rec, sizeof rec, NULL) == LG_ERR_NULL, "no length to write to");
+    check(lg_station_field_record(&never_station, rec, sizeof rec, &rec_len) == LG_ERR_NOT_LOADED,
+          "a station never set up has no record");
+    check(lg_station_field_reset(&s) == LG_OK && lg_station_field(&s, &f) == LG_OK && f.units == 0 &&
+              f.plan.shift == 4,
+          "a reset clears the counts and keeps the plan");
+    check(lg_station_field_reset(NULL) == LG_ERR_NULL, "a reset of no station");
 
     printf("%d checks failed\n", failures);
     free(raw);

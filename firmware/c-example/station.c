@@ -5,6 +5,8 @@
  * them with the same kernel the host audit ran and drives the lines through the line
  * callback. One line per vector, the same lines as `linegate replay`:
  *   <index> <GO|NO-GO|RECHECK> <score>   or   <index> FAULT ch<channel>
+ * then the station's field record (its statistics over the units, under the zero plan) as
+ *   # field <lower-case hex of the record's bytes>
  * Output goes through board_write (host: stdout; device: semihosting). No heap, no libc. */
 #include "station.h"
 #include "linegate.h"
@@ -66,6 +68,7 @@ static void put_hex(const uint8_t *b, size_t n) {
 }
 
 static lg_station station; /* static: zeroed, lives as long as the program */
+static uint8_t record[LG_FIELD_RECORD_MAX]; /* the field record, written after the units */
 
 int run_station(const uint8_t *blob, size_t blob_len, const int32_t *vectors, size_t width,
                 size_t count) {
@@ -104,6 +107,12 @@ int run_station(const uint8_t *blob, size_t blob_len, const int32_t *vectors, si
         } else {
             put(" FAULT count");
         }
+        put("\n");
+    }
+    size_t record_len = 0;
+    if (lg_station_field_record(&station, record, sizeof record, &record_len) == LG_OK) {
+        put("# field ");
+        put_hex(record, record_len);
         put("\n");
     }
     put("# lines: GO=");

@@ -17,7 +17,9 @@
 //! - [`Station`]: the loop body tying the three together, with fault
 //!   reporting that tells a new fault from a repeated one; one station for readings
 //!   ([`Station::new`]) or readings and windows ([`Station::with_windows`], the board
-//!   filling each window into a buffer the caller owns).
+//!   filling each window into a buffer the caller owns). It keeps field statistics
+//!   ([`FieldStats`]: counts per verdict and per fault source, a score histogram, each
+//!   channel's figures, two CUSUMs) and writes them as a field record.
 //!
 //! No heap, no floating point, no `unsafe`.
 #![no_std]
@@ -49,5 +51,6 @@ pub use classifier::Classifier;
 pub use driver::GoNoGoLines;
 pub use release_key::{ReleaseKey, key_id};
 pub use sensor::{SensorSource, WindowSource};
-pub use shared_model::{Decision, DecodeError, Fault, Verdict};
+pub use shared_model::field::{CusumPlan, CusumState, FieldPlan, FieldStats, RecordError};
+pub use shared_model::{Decision, DecodeError, Fault, FieldFault, Verdict};
 pub use station::{Gather, Station, StationFault, Step};

@@ -8,12 +8,20 @@
 //! and a sample buffer the caller owns and holds a `SignalSection` model (every blob
 //! version). Loading, stepping, fault reporting and the lines are one code path; only how
 //! a unit is gathered differs ([`Gather`]).
+//!
+//! Every step also feeds the station's field statistics ([`FieldStats`], about 1 KiB, no
+//! heap): a decided unit with the values its weights multiplied, a faulted one with where
+//! the fault came from. [`Station::set_field_plan`] sets the histogram's bins and the
+//! CUSUMs, [`Station::field`] reads the statistics, [`Station::field_record`] writes them
+//! as a field record (`shared-model/FORMAT.md`) into a buffer the caller owns, and
+//! [`Station::reset_field`] starts them afresh.
 
 use embedded_hal::digital::OutputPin;
 use heapless::Vec;
+use shared_model::field::RecordError;
 use shared_model::{
-    CheckedModel, Decision, DecodeError, Fault, Inputs, MAX_CHANNELS, Readings, SignalFault,
-    SignalSection,
+    CheckedModel, Decision, DecodeError, Fault, FieldFault, FieldPlan, FieldStats, Inputs,
+    MAX_CHANNELS, Readings, SignalFault, SignalSection,
 };
 
 use crate::{Classifier, GoNoGoLines, ReleaseKey, SensorSource, WindowSource};
@@ -59,6 +67,8 @@ pub struct Station<'w, S: SensorSource, G, N, R, I: Inputs = Readings> {
     last_fault: Option<StationFault<S::Error>>,
     /// With a key, only blobs signed with it load (at start-up and on every reload).
     key: Option<ReleaseKey>,
+    /// What the station met since the statistics were last started (see [`Station::field`]).
+    field: FieldStats,
 }
 
 impl<S: SensorSource, G, N, R> Station<'static, S, G, N, R, Readings> {
@@ -118,15 +128,72 @@ impl<'w, S: SensorSource, G, N, R, I: Inputs> Station<'w, S, G, N, R, I> {
         sensor: S,
         lines: GoNoGoLines<G, N, R>,
     ) -> Self {
+        let classifier = Classifier::load(flash, key.as_ref());
+        let field = field_for(&classifier, FieldPlan::default());
         Self {
-            classifier: Classifier::load(flash, key.as_ref()),
+            classifier,
             samples,
             sensor,
             lines,
             last_fault: None,
             key,
+            field,
         }
     }
+
+    /// Keeps the field statistics under `plan` from now on: the histogram's bins and the
+    /// two CUSUMs' settings (in accumulator units, as `FieldPlan` says). The statistics start
+    /// afresh (counts kept under two plans would not add up). The plan's `blob_id` is not
+    /// taken: the record always names the blob the station loaded (0 when none is valid).
+    ///
+    /// Until a plan is set the station keeps its statistics under the zero plan: counts,
+    /// faults and channel figures as under any plan; bins of 1 unit from score 0; CUSUMs
+    /// with target, slack and limit 0.
+    pub fn set_field_plan(&mut self, plan: FieldPlan) {
+        self.field.plan = FieldPlan {
+            blob_id: self.field.plan.blob_id,
+            shift: plan.shift.min(62),
+            ..plan
+        };
+        self.field.reset();
+    }
+
+    /// The field statistics since start-up, the last reload, plan or reset: counts per
+    /// verdict and per fault source, the score histogram, each channel's least, greatest and
+    /// summed value, the two CUSUMs with the units of their first alarms.
+    pub fn field(&self) -> &FieldStats {
+        &self.field
+    }
+
+    /// Writes the field record (`shared-model/FORMAT.md`, "Field record") into `out`, a
+    /// buffer the caller owns, and returns its length: `288 + 20·channels + 4·signals` bytes,
+    /// at most `shared_model::field::MAX_RECORD_LEN` (960).
+    ///
+    /// # Errors
+    /// [`RecordError::BufferTooSmall`] when `out` is shorter than the record; nothing is
+    /// written then.
+    pub fn field_record(&self, out: &mut [u8]) -> Result<usize, RecordError> {
+        self.field.encode(out)
+    }
+
+    /// Starts the field statistics afresh under the same plan.
+    pub fn reset_field(&mut self) {
+        self.field.reset();
+    }
+}
+
+/// Empty statistics under `plan` for the model `classifier` holds (its blob id, channels
+/// and signals), or for no model (blob id 0, no channels).
+#[inline(always)]
+fn field_for<I: Inputs>(
+    classifier: &Result<Classifier<I>, DecodeError>,
+    plan: FieldPlan,
+) -> FieldStats {
+    let (blob_id, channels, signals) = classifier.as_ref().map_or((0, 0, 0), |c| {
+        let m = c.model();
+        (c.blob_id(), m.channel_count(), m.signal_count())
+    });
+    FieldStats::new(FieldPlan { blob_id, ..plan }, channels, signals)
 }
 
 impl<'w, S, G, N, R, E, I> Station<'w, S, G, N, R, I>
@@ -140,12 +207,14 @@ where
 {
     /// Replaces the model (e.g. after the flash region was rewritten). A bad
     /// blob drops the old model too: the station must not keep running a model
-    /// its flash no longer holds.
+    /// its flash no longer holds. The field statistics start afresh for the new blob
+    /// (its id, channels and signals), under the same plan.
     ///
     /// # Errors
     /// A pin error while showing NO-GO for the new model.
     pub fn reload(&mut self, flash: &[u8]) -> Result<(), E> {
         self.classifier = Classifier::load(flash, self.key.as_ref());
+        self.field = field_for(&self.classifier, self.field.plan);
         self.lines.safe()
     }
 
@@ -154,15 +223,19 @@ where
         self.classifier.as_ref().map_err(|e| *e)
     }
 
-    /// Reads (and fills), classifies and shows one unit.
+    /// Reads (and fills), classifies and shows one unit, and counts it in the field
+    /// statistics.
     ///
     /// # Errors
     /// A pin error. The lines have then been driven as far as they could towards NO-GO.
     pub fn step(&mut self) -> Result<Step<S::Error>, E> {
         let decided = match &self.classifier {
             Err(e) => Err(StationFault::Blob(*e)),
-            Ok(c) => I::unit(c.model(), &mut self.sensor, self.samples),
+            Ok(c) => I::unit(c.model(), &mut self.sensor, self.samples, &mut self.field),
         };
+        if let Err(f) = &decided {
+            self.field.faulted(field_fault(f));
+        }
         show(&mut self.lines, &mut self.last_fault, decided)
     }
 
@@ -172,11 +245,27 @@ where
     }
 }
 
+/// Where a fault comes from, as the field statistics count it: a reading out of range is its
+/// channel's, a refused window its signal's, anything else (a wrong count, a sensor failure,
+/// no valid model) other.
+fn field_fault<SE>(fault: &StationFault<SE>) -> FieldFault {
+    match *fault {
+        StationFault::Reading(Fault::OutOfRange { channel, .. })
+        | StationFault::Window(SignalFault::Reading(Fault::OutOfRange { channel, .. })) => {
+            FieldFault::Channel(channel)
+        }
+        StationFault::Window(SignalFault::Window { signal, .. }) => FieldFault::Signal(signal),
+        _ => FieldFault::Other,
+    }
+}
+
 /// How a station of input kind `Self` gathers one unit from a source `S` and classifies it:
 /// the one place where readings and windows differ. Implemented for [`Readings`] (any
 /// [`SensorSource`]) and `SignalSection` (a [`WindowSource`]); not for other types.
 pub trait Gather<S: SensorSource>: Inputs {
-    /// Reads the unit (filling `samples` with its windows, if any) and classifies it.
+    /// Reads the unit (filling `samples` with its windows, if any), classifies it and, when
+    /// it is decided, counts it in `field` with the values its weights multiplied (the
+    /// station counts faults itself).
     ///
     /// # Errors
     /// The fault the station shows NO-GO for.
@@ -184,6 +273,7 @@ pub trait Gather<S: SensorSource>: Inputs {
         model: &CheckedModel<Self>,
         sensor: &mut S,
         samples: &mut [i32],
+        field: &mut FieldStats,
     ) -> Result<Decision, StationFault<S::Error>>;
 }
 
@@ -193,37 +283,45 @@ impl<S: SensorSource> Gather<S> for Readings {
         model: &CheckedModel,
         sensor: &mut S,
         _samples: &mut [i32],
+        field: &mut FieldStats,
     ) -> Result<Decision, StationFault<S::Error>> {
-        readings_unit(model, sensor)
+        readings_unit(model, sensor, field)
     }
 }
 
-/// A unit of a model without signals: one reading per channel, then the kernel.
+/// A unit of a model without signals: one reading per channel, then the kernel. The
+/// readings are the values the weights multiply (what `CheckedModel::channel_values` gives
+/// for such a model), so the field statistics take them as they are: no copy.
 #[inline]
 fn readings_unit<I: Inputs, S: SensorSource>(
     model: &CheckedModel<I>,
     sensor: &mut S,
+    field: &mut FieldStats,
 ) -> Result<Decision, StationFault<S::Error>> {
     let mut buf: Vec<i32, MAX_CHANNELS> = Vec::new();
     // channel_count <= MAX_CHANNELS by validation, so the resize cannot fail.
     let _ = buf.resize(model.channel_count(), 0);
     sensor.read(&mut buf).map_err(StationFault::Sensor)?;
-    model.classify(&buf).map_err(StationFault::Reading)
+    let d = model.classify(&buf).map_err(StationFault::Reading)?;
+    field.decided(&model.thresholds(), &d, &buf);
+    Ok(d)
 }
 
 impl<S: WindowSource> Gather<S> for SignalSection {
     /// The readings, then each window carved from `samples` in turn, then the kernel's
-    /// [`CheckedModel::classify_windows`]; a model without signals (a version-1 or 2 blob)
-    /// as a model of readings, which takes less stack for the same decision.
+    /// [`CheckedModel::channel_values`] and [`CheckedModel::classify`] (what
+    /// `classify_windows` does); a model without signals (a version-1 or 2 blob) as a model
+    /// of readings, which takes less stack for the same decision.
     fn unit(
         model: &CheckedModel<SignalSection>,
         sensor: &mut S,
         samples: &mut [i32],
+        field: &mut FieldStats,
     ) -> Result<Decision, StationFault<S::Error>> {
         if model.signal_count() == 0 {
-            return readings_unit(model, sensor);
+            return readings_unit(model, sensor, field);
         }
-        windows_unit(model, sensor, samples)
+        windows_unit(model, sensor, samples, field)
     }
 }
 
@@ -235,6 +333,7 @@ fn windows_unit<S: WindowSource>(
     model: &CheckedModel<SignalSection>,
     sensor: &mut S,
     samples: &mut [i32],
+    field: &mut FieldStats,
 ) -> Result<Decision, StationFault<S::Error>> {
     let mut readings: Vec<i32, MAX_CHANNELS> = Vec::new();
     // reading_count <= channel count <= MAX_CHANNELS by validation.
@@ -255,12 +354,19 @@ fn windows_unit<S: WindowSource>(
         let _ = windows.push(window);
         rest = tail;
     }
-    model
-        .classify_windows(&readings, &windows)
+    // The values the weights multiply, then the kernel on them: `classify_windows`'s two
+    // steps, with the values kept for the field statistics.
+    let mut values = [0i32; MAX_CHANNELS];
+    let n = model
+        .channel_values(&readings, &windows, &mut values)
         .map_err(|f| match f {
             SignalFault::Reading(r) => StationFault::Reading(r),
             other => StationFault::Window(other),
-        })
+        })?;
+    let values = values.get(..n).unwrap_or(&[]);
+    let d = model.classify(values).map_err(StationFault::Reading)?;
+    field.decided(&model.thresholds(), &d, values);
+    Ok(d)
 }
 
 /// Shows a step's outcome: the verdict, or NO-GO for a fault, and whether the fault is new.

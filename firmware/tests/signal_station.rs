@@ -249,3 +249,110 @@ fn the_two_kinds_of_blob_stay_apart() {
         Step::Decided(m.classify(&[900, 100]).unwrap())
     );
 }
+
+/// The field statistics count every step: a decided unit with the values its weights
+/// multiplied (`channel_values`, the peak-to-peak and the reading), each fault by where it
+/// came from (sensor failures as other, a refused window as its signal's, a reading out of
+/// range as its channel's). The record is the one `FieldStats` writes for the same steps;
+/// the plan's blob id is the loaded blob's; reset and reload start afresh.
+#[test]
+fn field_statistics_count_every_step_as_the_shared_accumulator_does() {
+    use firmware::{CusumPlan, FieldFault, FieldPlan, FieldStats, RecordError};
+    let m = model();
+    let bytes = blob_of(&m);
+    let wide = [2048, 2500, 1600, 2048, 2400, 2000, 2048, 1700];
+    let quiet = [2048, 2050, 2046, 2048, 2049, 2047, 2048, 2048];
+    let mut bad_sample = wide;
+    bad_sample[3] = 4096;
+    let units = vec![
+        Unit {
+            reading: Ok(100),
+            window: Err(BusError),
+        },
+        unit(100, bad_sample),
+        unit(1001, wide),
+        unit(100, wide),
+        unit(900, quiet),
+    ];
+    let (lines, _) = lines();
+    let mut samples = [0i32; 8];
+    let mut st = Station::with_windows(
+        &bytes,
+        None,
+        &mut samples,
+        Board(units.clone().into_iter(), None),
+        lines,
+    );
+    let blob_id = blob::blob_id(&bytes).unwrap();
+    assert_eq!(
+        st.field().plan.blob_id,
+        blob_id,
+        "the record names the blob"
+    );
+    let plan = FieldPlan {
+        blob_id: 0xFFFF_FFFF, // not taken: the loaded blob's id is
+        origin: -8_000_000,
+        shift: 19,
+        go: CusumPlan {
+            target: 1_000_000,
+            slack: 1000,
+            limit: 10,
+        },
+        nogo: CusumPlan {
+            target: 0,
+            slack: 1000,
+            limit: 10,
+        },
+    };
+    st.set_field_plan(plan);
+    let mut want = FieldStats::new(FieldPlan { blob_id, ..plan }, 2, 1);
+    for u in &units {
+        st.step().unwrap();
+        let reading = [u.reading.unwrap()];
+        let Ok(window) = u.window.as_ref() else {
+            want.faulted(FieldFault::Other);
+            continue;
+        };
+        let mut values = [0i32; shared_model::MAX_CHANNELS];
+        match m.channel_values(&reading, &[window], &mut values) {
+            Err(SignalFault::Window { signal, .. }) => want.faulted(FieldFault::Signal(signal)),
+            Err(e) => panic!("{e}"),
+            Ok(n) => match m.classify(&values[..n]) {
+                Ok(d) => want.decided(&m.thresholds(), &d, &values[..n]),
+                Err(shared_model::Fault::OutOfRange { channel, .. }) => {
+                    want.faulted(FieldFault::Channel(channel))
+                }
+                Err(e) => panic!("{e}"),
+            },
+        }
+    }
+    assert_eq!(st.field(), &want);
+    assert_eq!(
+        (want.units, want.faults, want.other_faults),
+        (5, 3, 1),
+        "the log's units"
+    );
+    assert_eq!((want.signal_faults[0], want.channel_faults[1]), (1, 1));
+    assert_eq!(want.go + want.nogo, 2);
+    let mut rec = [0u8; shared_model::field::MAX_RECORD_LEN];
+    let n = st.field_record(&mut rec).unwrap();
+    let mut rec_want = [0u8; shared_model::field::MAX_RECORD_LEN];
+    assert_eq!(want.encode(&mut rec_want), Ok(n));
+    assert_eq!(rec[..n], rec_want[..n]);
+    assert_eq!(FieldStats::decode(&rec[..n]), Ok(want.clone()));
+    assert_eq!(
+        st.field_record(&mut rec[..n - 1]),
+        Err(RecordError::BufferTooSmall)
+    );
+    st.reset_field();
+    assert_eq!(st.field(), &FieldStats::new(want.plan, 2, 1));
+    // A reload with a damaged blob: no model, the statistics start afresh with blob id 0,
+    // and the next step counts as an other fault.
+    let mut damaged = bytes.clone();
+    damaged[12] ^= 1;
+    st.reload(&damaged).unwrap();
+    assert_eq!(st.field().plan.blob_id, 0);
+    assert_eq!(st.field().plan.origin, plan.origin, "the plan is kept");
+    st.step().unwrap();
+    assert_eq!((st.field().units, st.field().other_faults), (1, 1));
+}

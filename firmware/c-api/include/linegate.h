@@ -7,11 +7,23 @@
 #include <stddef.h>
 #include <stdint.h>
 
+// Bins of the field statistics' score histogram.
+#define LG_FIELD_BINS 32
+
+// Most channels a model has: the length of the field statistics' per-channel arrays.
+#define LG_MAX_CHANNELS 32
+
+// Most signals a model has: the length of the per-signal fault counts.
+#define LG_MAX_SIGNALS 8
+
+// Bytes of the largest field record (`288 + 20·channels + 4·signals` for a model).
+#define LG_FIELD_RECORD_MAX 960
+
 // 64-bit words of storage in an [`lg_classifier`].
 #define LG_CLASSIFIER_WORDS 320
 
 // 64-bit words of storage in an [`lg_station`].
-#define LG_STATION_WORDS 336
+#define LG_STATION_WORDS 400
 
 // Status of every call. `LG_OK` is 0; anything else means the call did nothing more
 // than report it, and a station holds NO-GO.
@@ -58,6 +70,8 @@ typedef enum lg_status {
   // A release key was given to a library built without signed releases (the `signed`
   // feature).
   LG_ERR_NO_SIGNING = 19,
+  // A field plan's bin shift is above 62.
+  LG_ERR_PLAN = 20,
 } lg_status;
 
 // The decision a device shows.
@@ -129,6 +143,90 @@ typedef bool (*lg_read_fn)(void *ctx, int32_t *raw, size_t n);
 
 // Drives one line high (`high` true) or low; returns true on success.
 typedef bool (*lg_line_fn)(void *ctx, enum lg_line line, bool high);
+
+// One CUSUM's settings, in accumulator units of the margin.
+typedef struct lg_cusum_plan {
+  // The in-control mean margin (μ₀).
+  int64_t target;
+  // The allowance k: shifts smaller than this are not accumulated.
+  int64_t slack;
+  // The decision interval h: a sum above it is an alarm.
+  int64_t limit;
+} lg_cusum_plan;
+
+// The field statistics' plan: the score histogram's bins and the two CUSUMs (the host
+// derives it from the release audit). The blob id is not part of it: the record names the
+// blob the station loaded.
+typedef struct lg_field_plan {
+  // Lower edge of bin 0, in accumulator units of the score.
+  int64_t origin;
+  // Each bin is `2^shift` accumulator units wide, 0..=62.
+  uint8_t shift;
+  // CUSUM over GO units' margins, `score − go_min`.
+  struct lg_cusum_plan go;
+  // CUSUM over NO-GO units' margins, `nogo_max − score`.
+  struct lg_cusum_plan nogo;
+} lg_field_plan;
+
+// A CUSUM's state.
+typedef struct lg_cusum {
+  // The upper sum C⁺: margins growing.
+  int64_t up;
+  // The lower sum C⁻: margins shrinking (units walking towards the boundary).
+  int64_t down;
+  // 1-based unit number at which `up` first exceeded the limit; 0 never.
+  uint32_t alarm_up;
+  // 1-based unit number at which `down` first exceeded the limit; 0 never.
+  uint32_t alarm_down;
+} lg_cusum;
+
+// The station's field statistics, as `lg_station_field` copies them out (the record's
+// fields; `shared-model/FORMAT.md`, "Field record", says what each one counts).
+typedef struct lg_field {
+  // The id (CRC-32) of the blob the statistics belong to; 0 when none is valid.
+  uint32_t blob_id;
+  // The plan they are kept under.
+  struct lg_field_plan plan;
+  // The model's channels: entries used in the per-channel arrays.
+  uint8_t channels;
+  // The model's signals: entries used in `signal_faults`.
+  uint8_t signals;
+  // Set when `units` reached 2³² − 1: nothing after that unit was counted.
+  bool saturated;
+  // Units seen (decided or faulted).
+  uint32_t units;
+  // Units decided GO.
+  uint32_t go;
+  // Units decided NO-GO.
+  uint32_t nogo;
+  // Units decided RECHECK.
+  uint32_t recheck;
+  // Units that faulted.
+  uint32_t faults;
+  // Faults charged to no channel or signal (a wrong count, the sensor callback, no
+  // valid model).
+  uint32_t other_faults;
+  // Decided units whose score lies below bin 0.
+  uint32_t below;
+  // Decided units whose score lies above the last bin.
+  uint32_t above;
+  // Decided units per score bin.
+  uint32_t bins[LG_FIELD_BINS];
+  // The CUSUM over GO units' margins.
+  struct lg_cusum cusum_go;
+  // The CUSUM over NO-GO units' margins.
+  struct lg_cusum cusum_nogo;
+  // Faults per channel (a reading out of its range).
+  uint32_t channel_faults[LG_MAX_CHANNELS];
+  // Faults per signal (a refused window).
+  uint32_t signal_faults[LG_MAX_SIGNALS];
+  // Least reading per channel over decided units (`INT32_MAX` before the first).
+  int32_t min[LG_MAX_CHANNELS];
+  // Greatest reading per channel over decided units (`INT32_MIN` before the first).
+  int32_t max[LG_MAX_CHANNELS];
+  // Sum of the readings per channel over decided units.
+  int64_t sum[LG_MAX_CHANNELS];
+} lg_field;
 
 #ifdef __cplusplus
 extern "C" {
@@ -227,6 +325,38 @@ enum lg_status lg_station_ids(const struct lg_station *s, uint8_t *model_id, uin
 // # Safety
 // `s` points to an `lg_station` set up by `lg_station_init`; `out` to an `lg_result`.
 enum lg_status lg_station_step(struct lg_station *s, struct lg_result *out);
+
+// Keeps the station's field statistics under `*plan` from now on (bins and CUSUMs, in
+// accumulator units) and starts them afresh. The record names the blob the station
+// loaded, not one the plan gives. `LG_ERR_PLAN` (nothing changed) for a shift above 62.
+//
+// # Safety
+// `s` points to an `lg_station`; `plan` to an `lg_field_plan`.
+enum lg_status lg_station_set_field_plan(struct lg_station *s, const struct lg_field_plan *plan);
+
+// Copies the station's field statistics (since init, plan or reset) into `*out`.
+//
+// # Safety
+// `s` points to an `lg_station`; `out` to an `lg_field`.
+enum lg_status lg_station_field(const struct lg_station *s, struct lg_field *out);
+
+// Writes the station's field record (`shared-model/FORMAT.md`, "Field record") into
+// `buf[0..cap]` and its length to `*len`. `LG_ERR_BUFFER` when `cap` is shorter than the
+// record: nothing is written to `buf`, and `*len` says the length needed (at most
+// `LG_FIELD_RECORD_MAX`).
+//
+// # Safety
+// `s` points to an `lg_station`; `buf` to `cap` writable bytes; `len` to a `size_t`.
+enum lg_status lg_station_field_record(const struct lg_station *s,
+                                       uint8_t *buf,
+                                       size_t cap,
+                                       size_t *len);
+
+// Starts the station's field statistics afresh under the same plan.
+//
+// # Safety
+// `s` points to an `lg_station`.
+enum lg_status lg_station_field_reset(struct lg_station *s);
 
 #if defined(LINEGATE_SIGNED)
 // Defined by the C firmware: drive NO-GO, then reset; never returns.

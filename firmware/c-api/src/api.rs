@@ -1,8 +1,13 @@
 //! The safe half: Linegate's Rust types to the C interface's, and back.
 
-use firmware::{Classifier, Decision, DecodeError, Fault, StationFault, Step, Verdict};
+use firmware::{
+    Classifier, CusumPlan, CusumState, Decision, DecodeError, Fault, FieldPlan, FieldStats,
+    StationFault, Step, Verdict,
+};
 
-use crate::{lg_fault, lg_result, lg_status, lg_verdict};
+use crate::{
+    lg_cusum, lg_cusum_plan, lg_fault, lg_field, lg_field_plan, lg_result, lg_status, lg_verdict,
+};
 
 /// The status a blob's validation error maps to.
 pub fn status_of(e: DecodeError) -> lg_status {
@@ -102,5 +107,74 @@ pub fn channel_name(c: &Classifier, index: usize, buf: &mut [u8]) -> lg_status {
             lg_status::LG_OK
         }
         None => lg_status::LG_ERR_BUFFER,
+    }
+}
+
+fn cusum_plan_of(p: &CusumPlan) -> lg_cusum_plan {
+    lg_cusum_plan {
+        target: p.target,
+        slack: p.slack,
+        limit: p.limit,
+    }
+}
+
+fn cusum_of(c: &CusumState) -> lg_cusum {
+    lg_cusum {
+        up: c.up,
+        down: c.down,
+        alarm_up: c.alarm_up,
+        alarm_down: c.alarm_down,
+    }
+}
+
+/// A C plan as the station takes it (its blob id is the station's own), or `LG_ERR_PLAN`
+/// for a bin shift above 62.
+pub fn plan_of(p: &lg_field_plan) -> Result<FieldPlan, lg_status> {
+    if p.shift > 62 {
+        return Err(lg_status::LG_ERR_PLAN);
+    }
+    let cusum = |c: &lg_cusum_plan| CusumPlan {
+        target: c.target,
+        slack: c.slack,
+        limit: c.limit,
+    };
+    Ok(FieldPlan {
+        blob_id: 0,
+        origin: p.origin,
+        shift: p.shift,
+        go: cusum(&p.go),
+        nogo: cusum(&p.nogo),
+    })
+}
+
+/// The field statistics as the C struct mirrors them.
+pub fn field_of(f: &FieldStats) -> lg_field {
+    lg_field {
+        blob_id: f.plan.blob_id,
+        plan: lg_field_plan {
+            origin: f.plan.origin,
+            shift: f.plan.shift,
+            go: cusum_plan_of(&f.plan.go),
+            nogo: cusum_plan_of(&f.plan.nogo),
+        },
+        channels: f.channels,
+        signals: f.signals,
+        saturated: f.saturated,
+        units: f.units,
+        go: f.go,
+        nogo: f.nogo,
+        recheck: f.recheck,
+        faults: f.faults,
+        other_faults: f.other_faults,
+        below: f.below,
+        above: f.above,
+        bins: f.bins,
+        cusum_go: cusum_of(&f.cusum_go),
+        cusum_nogo: cusum_of(&f.cusum_nogo),
+        channel_faults: f.channel_faults,
+        signal_faults: f.signal_faults,
+        min: f.min,
+        max: f.max,
+        sum: f.sum,
     }
 }

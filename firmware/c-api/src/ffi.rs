@@ -13,8 +13,8 @@ use embedded_hal::digital::{ErrorType, OutputPin};
 use firmware::ReleaseKey;
 use firmware::{Classifier, GoNoGoLines, SensorSource, Station};
 
-use crate::api::{channel_name, result_of, status_of, step_result};
-use crate::{lg_classifier, lg_line, lg_result, lg_station, lg_status};
+use crate::api::{channel_name, field_of, plan_of, result_of, status_of, step_result};
+use crate::{lg_classifier, lg_field, lg_field_plan, lg_line, lg_result, lg_station, lg_status};
 
 /// A value in caller-owned storage, behind a tag saying what it is.
 #[repr(C)]
@@ -434,14 +434,23 @@ pub unsafe extern "C" fn lg_station_init(
     } else {
         return lg_status::LG_ERR_NO_SIGNING;
     };
-    let station: CStation = Station::with_key(bytes, key, CSensor { read, ctx }, lines);
-    let status = match station.classifier() {
-        Ok(_) => lg_status::LG_OK,
-        Err(e) => status_of(e),
-    };
+    // Built straight into the caller's storage, not in a local first: a station is 3 KiB
+    // (its field statistics 1 KiB of it), and a local would stand on the stack beside
+    // the validation's frames.
     // SAFETY: as above.
-    unsafe { put(storage, STATION_TAG, station) };
-    status
+    unsafe {
+        put::<CStation>(
+            storage,
+            STATION_TAG,
+            Station::with_key(bytes, key, CSensor { read, ctx }, lines),
+        );
+    }
+    // SAFETY: just written behind its tag.
+    match unsafe { get::<CStation>(storage, STATION_TAG) }.map(|s| s.value.classifier()) {
+        Some(Ok(_)) => lg_status::LG_OK,
+        Some(Err(e)) => status_of(e),
+        None => lg_status::LG_ERR_NOT_LOADED,
+    }
 }
 
 /// Writes the station's model id (16 bytes, to `model_id`) and blob id (to `*blob_id`),
@@ -502,6 +511,119 @@ pub unsafe extern "C" fn lg_station_step(s: *mut lg_station, out: *mut lg_result
             lg_status::LG_OK
         }
         Err(LineFailed) => lg_status::LG_ERR_LINE,
+    }
+}
+
+/// The station set up in `s`, or why there is none.
+///
+/// # Safety
+/// `s` is NULL or points to an `lg_station`, not aliased during the borrow.
+unsafe fn station_mut<'a>(s: *mut lg_station) -> Result<&'a mut CStation, lg_status> {
+    if s.is_null() {
+        return Err(lg_status::LG_ERR_NULL);
+    }
+    // SAFETY: per the contract.
+    unsafe { get_mut::<CStation>(s.cast(), STATION_TAG) }
+        .map(|slot| &mut slot.value)
+        .ok_or(lg_status::LG_ERR_NOT_LOADED)
+}
+
+/// Keeps the station's field statistics under `*plan` from now on (bins and CUSUMs, in
+/// accumulator units) and starts them afresh. The record names the blob the station
+/// loaded, not one the plan gives. `LG_ERR_PLAN` (nothing changed) for a shift above 62.
+///
+/// # Safety
+/// `s` points to an `lg_station`; `plan` to an `lg_field_plan`.
+#[unsafe(no_mangle)]
+pub unsafe extern "C" fn lg_station_set_field_plan(
+    s: *mut lg_station,
+    plan: *const lg_field_plan,
+) -> lg_status {
+    // SAFETY: per the contract.
+    let station = match unsafe { station_mut(s) } {
+        Ok(st) => st,
+        Err(e) => return e,
+    };
+    if plan.is_null() {
+        return lg_status::LG_ERR_NULL;
+    }
+    // SAFETY: non-null, an lg_field_plan per the contract.
+    match plan_of(unsafe { &*plan }) {
+        Ok(p) => {
+            station.set_field_plan(p);
+            lg_status::LG_OK
+        }
+        Err(e) => e,
+    }
+}
+
+/// Copies the station's field statistics (since init, plan or reset) into `*out`.
+///
+/// # Safety
+/// `s` points to an `lg_station`; `out` to an `lg_field`.
+#[unsafe(no_mangle)]
+pub unsafe extern "C" fn lg_station_field(s: *const lg_station, out: *mut lg_field) -> lg_status {
+    if s.is_null() || out.is_null() {
+        return lg_status::LG_ERR_NULL;
+    }
+    // SAFETY: per the contract.
+    let Some(slot) = (unsafe { get::<CStation>(s.cast(), STATION_TAG) }) else {
+        return lg_status::LG_ERR_NOT_LOADED;
+    };
+    // SAFETY: non-null, an lg_field per the contract.
+    unsafe { out.write(field_of(slot.value.field())) };
+    lg_status::LG_OK
+}
+
+/// Writes the station's field record (`shared-model/FORMAT.md`, "Field record") into
+/// `buf[0..cap]` and its length to `*len`. `LG_ERR_BUFFER` when `cap` is shorter than the
+/// record: nothing is written to `buf`, and `*len` says the length needed (at most
+/// `LG_FIELD_RECORD_MAX`).
+///
+/// # Safety
+/// `s` points to an `lg_station`; `buf` to `cap` writable bytes; `len` to a `size_t`.
+#[unsafe(no_mangle)]
+pub unsafe extern "C" fn lg_station_field_record(
+    s: *const lg_station,
+    buf: *mut u8,
+    cap: usize,
+    len: *mut usize,
+) -> lg_status {
+    if s.is_null() || len.is_null() || (buf.is_null() && cap > 0) {
+        return lg_status::LG_ERR_NULL;
+    }
+    // SAFETY: per the contract.
+    let Some(slot) = (unsafe { get::<CStation>(s.cast(), STATION_TAG) }) else {
+        return lg_status::LG_ERR_NOT_LOADED;
+    };
+    let field = slot.value.field();
+    let need = field.record_len();
+    // SAFETY: non-null, a size_t per the contract.
+    unsafe { len.write(need) };
+    if cap < need {
+        return lg_status::LG_ERR_BUFFER;
+    }
+    // SAFETY: `cap` writable bytes per the contract (non-null: cap >= need > 0).
+    let out = unsafe { core::slice::from_raw_parts_mut(buf, cap) };
+    match field.encode(out) {
+        Ok(_) => lg_status::LG_OK,
+        Err(_) => lg_status::LG_ERR_BUFFER,
+    }
+}
+
+/// Starts the station's field statistics afresh under the same plan.
+///
+/// # Safety
+/// `s` points to an `lg_station`.
+#[unsafe(no_mangle)]
+pub unsafe extern "C" fn lg_station_field_reset(s: *mut lg_station) -> lg_status {
+    // SAFETY: per the contract.
+    match unsafe { station_mut(s) } {
+        Ok(st) => {
+            st.reset_field();
+            lg_status::LG_OK
+        }
+        Err(e) => e,
     }
 }
 

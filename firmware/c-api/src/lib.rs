@@ -11,6 +11,10 @@
 //! - [`lg_station_init`] / [`lg_station_step`] (and [`lg_station_ids`]) run the firmware's station: read the
 //!   sensors through a callback, classify, and drive the GO / NO-GO / RECHECK lines through
 //!   a callback, falling to NO-GO on any fault.
+//! - [`lg_station_set_field_plan`], [`lg_station_field`], [`lg_station_field_record`] and
+//!   [`lg_station_field_reset`]: the station's field statistics (counts per verdict and
+//!   fault source, a score histogram, each channel's figures, two CUSUMs), their plan, and
+//!   the field record (`shared-model/FORMAT.md`) written into a buffer the caller owns.
 //!
 //! Every function returns an [`lg_status`]; none panics: a device release build that could
 //! panic does not link (`panic-never`). With the `signed` feature (signed releases,
@@ -87,6 +91,8 @@ pub enum lg_status {
     /// A release key was given to a library built without signed releases (the `signed`
     /// feature).
     LG_ERR_NO_SIGNING = 19,
+    /// A field plan's bin shift is above 62.
+    LG_ERR_PLAN = 20,
 }
 
 /// The decision a device shows.
@@ -147,10 +153,116 @@ pub enum lg_line {
     LG_LINE_RECHECK = 2,
 }
 
+/// Bins of the field statistics' score histogram.
+pub const LG_FIELD_BINS: usize = 32;
+/// Most channels a model has: the length of the field statistics' per-channel arrays.
+pub const LG_MAX_CHANNELS: usize = 32;
+/// Most signals a model has: the length of the per-signal fault counts.
+pub const LG_MAX_SIGNALS: usize = 8;
+/// Bytes of the largest field record (`288 + 20·channels + 4·signals` for a model).
+pub const LG_FIELD_RECORD_MAX: usize = 960;
+
+const _: () = assert!(LG_FIELD_BINS == shared_model::field::FIELD_BINS);
+const _: () = assert!(LG_MAX_CHANNELS == shared_model::MAX_CHANNELS);
+const _: () = assert!(LG_MAX_SIGNALS == shared_model::limits::MAX_SIGNALS);
+const _: () = assert!(LG_FIELD_RECORD_MAX == shared_model::field::MAX_RECORD_LEN);
+
+/// One CUSUM's settings, in accumulator units of the margin.
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct lg_cusum_plan {
+    /// The in-control mean margin (μ₀).
+    pub target: i64,
+    /// The allowance k: shifts smaller than this are not accumulated.
+    pub slack: i64,
+    /// The decision interval h: a sum above it is an alarm.
+    pub limit: i64,
+}
+
+/// The field statistics' plan: the score histogram's bins and the two CUSUMs (the host
+/// derives it from the release audit). The blob id is not part of it: the record names the
+/// blob the station loaded.
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct lg_field_plan {
+    /// Lower edge of bin 0, in accumulator units of the score.
+    pub origin: i64,
+    /// Each bin is `2^shift` accumulator units wide, 0..=62.
+    pub shift: u8,
+    /// CUSUM over GO units' margins, `score − go_min`.
+    pub go: lg_cusum_plan,
+    /// CUSUM over NO-GO units' margins, `nogo_max − score`.
+    pub nogo: lg_cusum_plan,
+}
+
+/// A CUSUM's state.
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct lg_cusum {
+    /// The upper sum C⁺: margins growing.
+    pub up: i64,
+    /// The lower sum C⁻: margins shrinking (units walking towards the boundary).
+    pub down: i64,
+    /// 1-based unit number at which `up` first exceeded the limit; 0 never.
+    pub alarm_up: u32,
+    /// 1-based unit number at which `down` first exceeded the limit; 0 never.
+    pub alarm_down: u32,
+}
+
+/// The station's field statistics, as `lg_station_field` copies them out (the record's
+/// fields; `shared-model/FORMAT.md`, "Field record", says what each one counts).
+#[repr(C)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct lg_field {
+    /// The id (CRC-32) of the blob the statistics belong to; 0 when none is valid.
+    pub blob_id: u32,
+    /// The plan they are kept under.
+    pub plan: lg_field_plan,
+    /// The model's channels: entries used in the per-channel arrays.
+    pub channels: u8,
+    /// The model's signals: entries used in `signal_faults`.
+    pub signals: u8,
+    /// Set when `units` reached 2³² − 1: nothing after that unit was counted.
+    pub saturated: bool,
+    /// Units seen (decided or faulted).
+    pub units: u32,
+    /// Units decided GO.
+    pub go: u32,
+    /// Units decided NO-GO.
+    pub nogo: u32,
+    /// Units decided RECHECK.
+    pub recheck: u32,
+    /// Units that faulted.
+    pub faults: u32,
+    /// Faults charged to no channel or signal (a wrong count, the sensor callback, no
+    /// valid model).
+    pub other_faults: u32,
+    /// Decided units whose score lies below bin 0.
+    pub below: u32,
+    /// Decided units whose score lies above the last bin.
+    pub above: u32,
+    /// Decided units per score bin.
+    pub bins: [u32; LG_FIELD_BINS],
+    /// The CUSUM over GO units' margins.
+    pub cusum_go: lg_cusum,
+    /// The CUSUM over NO-GO units' margins.
+    pub cusum_nogo: lg_cusum,
+    /// Faults per channel (a reading out of its range).
+    pub channel_faults: [u32; LG_MAX_CHANNELS],
+    /// Faults per signal (a refused window).
+    pub signal_faults: [u32; LG_MAX_SIGNALS],
+    /// Least reading per channel over decided units (`INT32_MAX` before the first).
+    pub min: [i32; LG_MAX_CHANNELS],
+    /// Greatest reading per channel over decided units (`INT32_MIN` before the first).
+    pub max: [i32; LG_MAX_CHANNELS],
+    /// Sum of the readings per channel over decided units.
+    pub sum: [i64; LG_MAX_CHANNELS],
+}
+
 /// 64-bit words of storage in an [`lg_classifier`].
 pub const LG_CLASSIFIER_WORDS: usize = 320;
 /// 64-bit words of storage in an [`lg_station`].
-pub const LG_STATION_WORDS: usize = 336;
+pub const LG_STATION_WORDS: usize = 400;
 
 /// A validated model, in storage the caller owns (a static or a stack variable; no heap).
 /// Set it up with [`lg_load`]; its contents are private.

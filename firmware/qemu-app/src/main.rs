@@ -8,13 +8,15 @@
 //! LINEGATE_VECTORS is one unit, the reading channels' readings and then every signal's
 //! window of samples in the model's order (a model of readings has no windows, so a row is
 //! its readings). At start it computes every feature of a 1,024-sample window in functions
-//! named `cost_<feature>`, which `footprint.sh` counts in the QEMU trace.
+//! named `cost_<feature>`, which `footprint.sh` counts in the QEMU trace. After the units it
+//! prints its field record (the statistics kept under the plan LINEGATE_FIELD_PLAN names,
+//! see build.rs) as one line, `# field <lower-case hex of the record's bytes>`.
 #![no_std]
 #![no_main]
 
 mod board;
 
-use board::{debug, entry, hprintln};
+use board::{debug, entry, hprint, hprintln};
 use firmware::{Classifier, Decision, Fault, GoNoGoLines, Station, StationFault, Step};
 #[cfg(target_arch = "arm")]
 use panic_semihosting as _;
@@ -35,6 +37,10 @@ mod vectors {
 
 mod release_key {
     include!(concat!(env!("OUT_DIR"), "/release_key.rs"));
+}
+
+mod field_plan {
+    include!(concat!(env!("OUT_DIR"), "/field_plan.rs"));
 }
 
 /// Samples the station may hold: every signal's window end to end (the demo's signal
@@ -160,6 +166,7 @@ fn run() -> ! {
     };
     let mut station = Station::with_windows(region, key, &mut samples, rows, lines);
     let startup = board::stack_used(painted, board::stack_start());
+    station.set_field_plan(field_plan::PLAN);
     match station.classifier() {
         Ok(c) => {
             board::model_line(
@@ -232,6 +239,7 @@ fn run() -> ! {
             Err(e) => match e {},
         }
     }
+    print_field(station.field());
     hprintln!("# stack bytes used by one step: {}", deepest);
     hprintln!(
         "# stack bytes used from reset through start-up: {}",
@@ -252,6 +260,19 @@ fn classify_once(c: &Classifier<SignalSection>, raw: &[i32]) -> Result<Decision,
 #[inline(never)]
 fn score_once(c: &Classifier<SignalSection>, x: &[i32]) -> i64 {
     c.model().score_scaled(x)
+}
+
+/// Prints the field record as `# field <hex>`. Out of line: its buffer (up to 960 bytes)
+/// stands on the stack only while it prints, never beside the station at start-up.
+#[inline(never)]
+fn print_field(field: &shared_model::FieldStats) {
+    let mut record = [0u8; shared_model::field::MAX_RECORD_LEN];
+    let n = field.encode(&mut record).unwrap_or(0);
+    hprint!("# field ");
+    for b in record.get(..n).unwrap_or(&[]) {
+        hprint!("{:02x}", b);
+    }
+    hprintln!();
 }
 
 fn report_lines() {

@@ -214,7 +214,10 @@ fn c_example_on_the_host_matches_replay_and_holds_at_its_edges() {
     );
     let c = String::from_utf8(o.stdout).unwrap();
     let host: Vec<&str> = replay.lines().collect();
-    let device: Vec<&str> = c.lines().filter(|l| !l.starts_with("# lines")).collect();
+    let device: Vec<&str> = c
+        .lines()
+        .filter(|l| !l.starts_with("# lines") && !l.starts_with("# field"))
+        .collect();
     assert_eq!(host.len(), 100_001, "the model line and 100,000 units");
     assert_eq!(device.len(), host.len(), "one line per unit");
     for (i, (a, b)) in device.iter().zip(&host).enumerate() {
@@ -222,6 +225,13 @@ fn c_example_on_the_host_matches_replay_and_holds_at_its_edges() {
     }
     let faults = host.iter().filter(|l| l.contains(" FAULT ch")).count();
     assert_eq!(faults, faulted, "each damaged unit is a FAULT");
+    // The C station's field record (zero plan) is the host's over the same vectors, its
+    // channel faults included.
+    let blob = std::fs::read(d.join("m.lgmb")).unwrap();
+    let vectors = std::fs::read_to_string(d.join("v.txt")).unwrap();
+    let field = crate::device_field::host_record(&blob, &vectors, Default::default());
+    assert_eq!(field.faults as usize, faulted);
+    crate::device_field::check_record("C station on the host", &c, &field);
 
     // The interface's edges from C: NULLs, storage never set up, damaged blobs, names and
     // short buffers, wrong counts, a key without signed releases, failing callbacks.
@@ -263,6 +273,9 @@ fn c_example_on_cortex_m0_and_m4f_prints_what_replay_prints() {
     // 300 units, every 37th with a reading out of range.
     let (replay, _) = replayed_fixture(d, 2000, 5, 300, 37, "-99999999");
     assert_eq!(replay.lines().count(), 301);
+    let blob = std::fs::read(d.join("m.lgmb")).unwrap();
+    let vectors = std::fs::read_to_string(d.join("v.txt")).unwrap();
+    let field = crate::device_field::host_record(&blob, &vectors, Default::default());
     for (board, make, machine, cpu, target) in [
         (
             "Cortex-M0",
@@ -315,6 +328,7 @@ fn c_example_on_cortex_m0_and_m4f_prints_what_replay_prints() {
             .collect();
         let want: Vec<&str> = replay.lines().collect();
         assert_eq!(lines, want, "{board}: the device and replay differ");
+        crate::device_field::check_record(board, &out, &field);
         let last = want.last().unwrap();
         let go = if last.contains(" GO ") { 1 } else { 0 };
         assert!(

@@ -323,7 +323,8 @@ const BOARDS: [Board; 5] = [
     ),
 ];
 
-/// Builds the QEMU application with `vectors` linked in for every core of
+/// Builds the QEMU application with `vectors` linked in (and the field plan `plan`, when
+/// given) for every core of
 /// [`BOARDS`] (in `target/<folder>`), runs it with `blob` loaded raw at the board's model
 /// address, and hands each core's name and stdout to `check`. A core whose QEMU or Rust
 /// target is missing is SKIPPED (a failure in CI).
@@ -340,7 +341,13 @@ fn replay_lines(stdout: &str) -> Vec<&str> {
 /// different vectors: each builds and runs before the other builds.
 static SIGNAL_APP: std::sync::Mutex<()> = std::sync::Mutex::new(());
 
-fn on_every_core(folder: &str, vectors: &Path, blob: &Path, check: impl Fn(&str, &str)) {
+fn on_every_core(
+    folder: &str,
+    vectors: &Path,
+    blob: &Path,
+    plan: Option<&Path>,
+    check: impl Fn(&str, &str),
+) {
     let _serial =
         (folder == "signals").then(|| SIGNAL_APP.lock().unwrap_or_else(|e| e.into_inner()));
     let bin = "linegate-qemu-app";
@@ -359,13 +366,17 @@ fn on_every_core(folder: &str, vectors: &Path, blob: &Path, check: impl Fn(&str,
             crate::skip_or_fail(&format!("{core} under QEMU"), &why);
             continue;
         }
-        let st = Command::new("cargo")
+        let mut build = Command::new("cargo");
+        build
             .args(["build", "--release", "--bin", bin, "--target", target])
             .current_dir(&app)
             .env("LINEGATE_VECTORS", vectors)
-            .env("CARGO_TARGET_DIR", &target_dir)
-            .status()
-            .unwrap();
+            .env("CARGO_TARGET_DIR", &target_dir);
+        match plan {
+            Some(p) => build.env("LINEGATE_FIELD_PLAN", p),
+            None => build.env_remove("LINEGATE_FIELD_PLAN"),
+        };
+        let st = build.status().unwrap();
         assert!(st.success(), "{core}: build failed");
         let elf = target_dir.join(target).join("release").join(bin);
         let mut cmd = Command::new("timeout");
@@ -406,17 +417,30 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
     let (out, vpath) = demo_vectors(dir.path());
     let replay = std::fs::read_to_string(out.join("replay-holdout.txt")).unwrap();
     let want: Vec<&str> = replay.lines().take(301).collect();
-    on_every_core("cores", &vpath, &out.join("model.lgmb"), |core, stdout| {
-        assert_eq!(
-            replay_lines(stdout),
-            want,
-            "{core}: the device and replay differ"
-        );
-        let stack = lines_and_stack(stdout, want.last().unwrap(), core);
-        eprintln!(
-            "{core}: Rust example agrees with replay on 300 vectors; one step {stack} stack bytes"
-        );
-    });
+    // Without a plan the device keeps its statistics under the zero plan; its record must
+    // still be the host's over the same 300 units.
+    let blob = std::fs::read(out.join("model.lgmb")).unwrap();
+    let vectors = std::fs::read_to_string(&vpath).unwrap();
+    let field = crate::device_field::host_record(&blob, &vectors, Default::default());
+    assert_eq!(field.units, 300);
+    on_every_core(
+        "cores",
+        &vpath,
+        &out.join("model.lgmb"),
+        None,
+        |core, stdout| {
+            assert_eq!(
+                replay_lines(stdout),
+                want,
+                "{core}: the device and replay differ"
+            );
+            crate::device_field::check_record(core, stdout, &field);
+            let stack = lines_and_stack(stdout, want.last().unwrap(), core);
+            eprintln!(
+                "{core}: Rust example agrees with replay on 300 vectors; one step {stack} stack bytes"
+            );
+        },
+    );
 }
 
 /// A model with signal features (a band magnitude and a standard deviation of a 64-sample
@@ -553,29 +577,45 @@ fn signal_model_on_five_cores_agrees_with_the_host() {
         );
     }
     let vpath = dir.path().join("units.txt");
-    std::fs::write(&vpath, rows).unwrap();
-    on_every_core("signals", &vpath, &blob_path, |core, stdout| {
-        let got: Vec<&str> = stdout.lines().filter(|l| !l.starts_with("# ")).collect();
-        assert_eq!(got, want, "{core}: the device and the host differ");
-        let startup: usize = stdout
-            .lines()
-            .find_map(|l| l.strip_prefix("# stack bytes used from reset through start-up: "))
-            .unwrap()
-            .parse()
-            .unwrap();
-        // The model, its windows' buffer (1.5 KiB), the start-up and the feature costs'
-        // 4 KiB window (measured before the station, in its own frame) fit a 16 KiB
-        // Cortex-M0. One example for both kinds of blob: 10.5–12.9 KiB (12.9 on the M0,
-        // measured 2026-12-04); the bound leaves about 1 KiB for growth before a change
-        // must say why the stack grew.
-        assert!(
-            startup < 14 * 1024,
-            "{core}: start-up stack {startup} bytes"
-        );
-        eprintln!(
-            "{core}: example agrees with the host on 200 units; start-up stack {startup} bytes"
-        );
-    });
+    std::fs::write(&vpath, &rows).unwrap();
+    // The field record too: readings out of range (channel 3) and refused windows
+    // (signal 0) in its fault counts, under a plan from these units' scores.
+    let plan = crate::device_field::plan_for(&buf[..n], &rows);
+    let plan_path = dir.path().join("plan.txt");
+    crate::device_field::write_plan(&plan_path, &plan);
+    let field = crate::device_field::host_record(&buf[..n], &rows, plan);
+    assert!(field.channel_faults[3] > 0 && field.signal_faults[0] > 0);
+    crate::device_field::python_reference(&buf[..n], &rows, &field, dir.path());
+    on_every_core(
+        "signals",
+        &vpath,
+        &blob_path,
+        Some(&plan_path),
+        |core, stdout| {
+            let got: Vec<&str> = stdout.lines().filter(|l| !l.starts_with("# ")).collect();
+            assert_eq!(got, want, "{core}: the device and the host differ");
+            crate::device_field::check_record(core, stdout, &field);
+            let startup: usize = stdout
+                .lines()
+                .find_map(|l| l.strip_prefix("# stack bytes used from reset through start-up: "))
+                .unwrap()
+                .parse()
+                .unwrap();
+            // The model, its windows' buffer (1.5 KiB), the start-up and the feature costs'
+            // 4 KiB window (measured before the station, in its own frame) fit a 16 KiB
+            // Cortex-M0. One example for both kinds of blob: 10.5–12.9 KiB (12.9 on the M0,
+            // measured 2026-12-04); with the field statistics (about 1 KiB in the station)
+            // 12.0–12.2 KiB (12,260–12,472 bytes, the M0 highest, 2026-12-05). The bound
+            // leaves about 1.5 KiB for growth before a change must say why the stack grew.
+            assert!(
+                startup < 14 * 1024,
+                "{core}: start-up stack {startup} bytes"
+            );
+            eprintln!(
+                "{core}: example agrees with the host on 200 units; start-up stack {startup} bytes"
+            );
+        },
+    );
 }
 
 /// The demo's signal scenario (SYNTHETIC): the model trained, audited and packed from a
@@ -597,16 +637,37 @@ fn demo_signal_model_on_five_cores_agrees_with_replay() {
             "no {kind} in the field replay"
         );
     }
+    // The field record: under a plan from the log's scores (see `device_field::plan_for`)
+    // the CUSUMs move and the GO one alarms, and the refused windows are signal 0's faults.
+    let blob = std::fs::read(out.join("signal-model.lgmb")).unwrap();
+    let vectors = std::fs::read_to_string(out.join("signal-vectors-field.txt")).unwrap();
+    let plan = crate::device_field::plan_for(&blob, &vectors);
+    let plan_path = dir.path().join("plan.txt");
+    crate::device_field::write_plan(&plan_path, &plan);
+    let field = crate::device_field::host_record(&blob, &vectors, plan);
+    assert!(
+        field.cusum_go.alarm_down > 0,
+        "the GO CUSUM alarms: {field:?}"
+    );
+    assert!(field.cusum_go.down > 0 && field.cusum_nogo.up + field.cusum_nogo.down > 0);
+    assert!(field.signal_faults[0] > 0 && field.below > 0 && field.above > 0);
+    eprintln!(
+        "field plan {plan:?}: GO CUSUM alarm at unit {}, {} faults",
+        field.cusum_go.alarm_down, field.faults
+    );
+    crate::device_field::python_reference(&blob, &vectors, &field, dir.path());
     on_every_core(
         "signals",
         &out.join("signal-vectors-field.txt"),
         &out.join("signal-model.lgmb"),
+        Some(&plan_path),
         |core, stdout| {
             assert_eq!(
                 replay_lines(stdout),
                 want,
                 "{core}: the device and replay differ"
             );
+            crate::device_field::check_record(core, stdout, &field);
             eprintln!(
                 "{core}: example agrees with replay on {} field units",
                 want.len() - 1

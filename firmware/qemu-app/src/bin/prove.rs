@@ -1,6 +1,7 @@
 //! Link-time proof of panic-freedom: the decode + classify + drive path for readings and for
-//! sample windows (`Station::with_windows`), and every signal feature of a window with its noise
-//! bound, linked with `panic-never`, whose panic handler is an undefined
+//! sample windows (`Station::with_windows`), the field statistics (plan, counting in every
+//! step, the record written, read back and reset), and every signal feature of a window with
+//! its noise bound, linked with `panic-never`, whose panic handler is an undefined
 //! symbol. If any panic path survives optimisation, this binary fails to link.
 #![no_std]
 #![no_main]
@@ -10,7 +11,9 @@
 mod board;
 
 use board::entry;
-use firmware::{GoNoGoLines, SensorSource, Station, Step, WindowSource};
+use firmware::{
+    CusumPlan, FieldPlan, FieldStats, GoNoGoLines, SensorSource, Station, Step, WindowSource,
+};
 use panic_never as _;
 
 /// A value from outside the program (a DMA target or a register on a real board): the
@@ -103,6 +106,37 @@ fn observe_step(step: Step<()>) {
     }
 }
 
+/// A field plan the optimiser cannot know.
+fn plan() -> FieldPlan {
+    let cusum = || CusumPlan {
+        target: i64::from(outside()),
+        slack: i64::from(outside()),
+        limit: i64::from(outside()),
+    };
+    FieldPlan {
+        blob_id: outside() as u32,
+        origin: i64::from(outside()),
+        shift: outside() as u8,
+        go: cusum(),
+        nogo: cusum(),
+    }
+}
+
+/// The field statistics' calls a device makes besides the steps: the record into a buffer
+/// of a length the optimiser cannot know, read back, the counts read, and a reset when the
+/// outside world says so.
+fn field_calls(field: &FieldStats, record: &mut [u8; shared_model::field::MAX_RECORD_LEN]) {
+    let len = usize::try_from(outside()).unwrap_or(0);
+    let n = record
+        .get_mut(..len)
+        .map_or(Ok(0), |out| field.encode(out))
+        .unwrap_or(0);
+    observe(n as u32);
+    let back = record.get(..n).map(FieldStats::decode);
+    observe(back.map_or(1, |b| b.map_or(2, |s| s.units)));
+    observe(field.units ^ field.cusum_go.alarm_down ^ field.bins[0]);
+}
+
 #[entry]
 fn main() -> ! {
     let lines = || {
@@ -125,11 +159,21 @@ fn main() -> ! {
         Inputs,
         window_lines,
     );
+    station.set_field_plan(plan());
+    windows.set_field_plan(plan());
+    let mut record = [0u8; shared_model::field::MAX_RECORD_LEN];
     loop {
         window_features();
         let Ok(step) = station.step();
         observe_step(step);
         let Ok(step) = windows.step();
         observe_step(step);
+        field_calls(station.field(), &mut record);
+        let n = windows.field_record(&mut record).unwrap_or(0);
+        observe(n as u32);
+        if outside() == 1 {
+            station.reset_field();
+            windows.reset_field();
+        }
     }
 }
