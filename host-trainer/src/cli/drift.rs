@@ -32,7 +32,8 @@ pub struct DriftArgs {
     /// The blob the audit named (its kernel scores the logs; needed with logs).
     #[arg(long)]
     pub blob: Option<PathBuf>,
-    /// Instead of logs: the device's own score lines (`replay` prints the same lines).
+    /// Instead of logs: the device's own score lines (`replay --form device` prints the same
+    /// lines; its text form is read too).
     #[arg(long, value_name = "FILE", conflicts_with_all = ["logs", "record"])]
     pub lines: Option<PathBuf>,
     /// Instead of logs: the device's field record (its bytes, as the device wrote them).

@@ -346,7 +346,7 @@ fn on_every_core(
     vectors: &Path,
     blob: &Path,
     plan: Option<&Path>,
-    check: impl Fn(&str, &str),
+    mut check: impl FnMut(&str, &str),
 ) {
     let _serial =
         (folder == "signals").then(|| SIGNAL_APP.lock().unwrap_or_else(|e| e.into_inner()));
@@ -409,25 +409,80 @@ fn on_every_core(
 }
 
 /// The Rust example on every core of the device range, each on its QEMU board with the blob
-/// loaded raw at the board's model address: the same lines as `replay` for 300 holdout
-/// vectors, the lines left at the last verdict, and a small stack for one step.
+/// loaded raw at the board's model address, over the demo's drifted log (SYNTHETIC) under
+/// the field plan of the release audit: the same lines as `replay --form device`, the lines
+/// left at the last verdict, a small stack for one step, and the field record equal, byte
+/// for byte, to the one `linegate drift --record-out` computes over the same log. Read back
+/// by `linegate drift --record`, the device's own record raises the drift alarm (exit 1),
+/// as the desk test of the log does.
 #[test]
 fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
+    let bin = crate::c_api::linegate_bin();
     let dir = tempfile::tempdir().unwrap();
-    let (out, vpath) = demo_vectors(dir.path());
-    let replay = std::fs::read_to_string(out.join("replay-holdout.txt")).unwrap();
-    let want: Vec<&str> = replay.lines().take(301).collect();
-    // Without a plan the device keeps its statistics under the zero plan; its record must
-    // still be the host's over the same 300 units.
-    let blob = std::fs::read(out.join("model.lgmb")).unwrap();
-    let vectors = std::fs::read_to_string(&vpath).unwrap();
-    let field = crate::device_field::host_record(&blob, &vectors, Default::default());
-    assert_eq!(field.units, 300);
+    let d = dir.path();
+    let run = |args: &[&str]| {
+        Command::new(&bin)
+            .args(args)
+            .current_dir(d)
+            .output()
+            .unwrap()
+    };
+    assert!(run(&["-q", "demo", "--out-dir", "demo"]).status.success());
+    let release = ["--model", "demo/model.json", "--blob", "demo/model.lgmb"];
+    let o = run(&[
+        &[
+            "-q",
+            "replay",
+            "--form",
+            "device",
+            "demo/drift-synthetic.csv",
+        ][..],
+        &release,
+        &["--vectors", "vectors.txt", "-o", "lines.txt"],
+    ]
+    .concat());
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let o = run(&[
+        &[
+            "-q",
+            "drift",
+            "demo/drift-synthetic.csv",
+            "--audit",
+            "demo/audit.json",
+        ][..],
+        &release,
+        &["--record-out", "host.lgfr"],
+    ]
+    .concat());
+    assert_eq!(
+        o.status.code(),
+        Some(1),
+        "the drifted log alarms on the desk"
+    );
+    let replay = std::fs::read_to_string(d.join("lines.txt")).unwrap();
+    let want: Vec<&str> = replay.lines().collect();
+    assert!(want.len() > 300, "the drifted log's units: {}", want.len());
+    // The plan the audit recorded, as the device build takes it.
+    let plan = host_trainer::field::baseline::read(&d.join("demo/audit.json"))
+        .unwrap()
+        .baseline
+        .plan
+        .field_plan();
+    let plan_path = d.join("plan.txt");
+    crate::device_field::write_plan(&plan_path, &plan);
+    let host = std::fs::read(d.join("host.lgfr")).unwrap();
+    let field = shared_model::FieldStats::decode(&host).unwrap();
+    assert_eq!(field.plan, plan);
+    assert!(
+        field.cusum_go.alarm_down > 0,
+        "the GO margins shrink: {field:?}"
+    );
+    let mut device_record = None;
     on_every_core(
         "cores",
-        &vpath,
-        &out.join("model.lgmb"),
-        None,
+        &d.join("vectors.txt"),
+        &d.join("demo/model.lgmb"),
+        Some(&plan_path),
         |core, stdout| {
             assert_eq!(
                 replay_lines(stdout),
@@ -435,12 +490,33 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
                 "{core}: the device and replay differ"
             );
             crate::device_field::check_record(core, stdout, &field);
+            device_record.get_or_insert_with(|| crate::device_field::device_bytes(core, stdout));
             let stack = lines_and_stack(stdout, want.last().unwrap(), core);
             eprintln!(
-                "{core}: Rust example agrees with replay on 300 vectors; one step {stack} stack bytes"
+                "{core}: Rust example agrees with replay on {} drifted units, field record equal to the host's; one step {stack} stack bytes",
+                want.len() - 1
             );
         },
     );
+    // The device's own record, read back on the desk, raises the alarm.
+    if let Some(bytes) = device_record {
+        std::fs::write(d.join("device.lgfr"), bytes).unwrap();
+        let o = run(&[
+            "-q",
+            "drift",
+            "--record",
+            "device.lgfr",
+            "--audit",
+            "demo/audit.json",
+        ]);
+        assert_eq!(
+            o.status.code(),
+            Some(1),
+            "{}{}",
+            String::from_utf8_lossy(&o.stdout),
+            String::from_utf8_lossy(&o.stderr)
+        );
+    }
 }
 
 /// A model with signal features (a band magnitude and a standard deviation of a 64-sample

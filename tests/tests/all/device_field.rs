@@ -144,7 +144,7 @@ pub fn host_record(blob_bytes: &[u8], vectors: &str, plan: FieldPlan) -> FieldSt
 }
 
 /// The record a device printed (`# field <hex>`), as bytes.
-fn device_bytes(core: &str, stdout: &str) -> Vec<u8> {
+pub fn device_bytes(core: &str, stdout: &str) -> Vec<u8> {
     let hex = stdout
         .lines()
         .find_map(|l| l.strip_prefix("# field "))
