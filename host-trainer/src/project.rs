@@ -73,7 +73,7 @@ const RELEASE: &[&str] = &["audit", "pack"];
 
 /// The commands that read logs: a key of `[columns]` or `[sheet]` applies to these only.
 const READING: &[&str] = &[
-    "check", "train", "audit", "pack", "replay", "values", "sheet",
+    "check", "train", "audit", "pack", "replay", "values", "sheet", "compare", "drift",
 ];
 
 /// Every key a project file may hold, one per line.
@@ -133,8 +133,9 @@ const KEYS: &[Key] = &[
     key("outputs", "model", "model", &[], Kind::Path, "the float model"),
     key("outputs", "audit_dir", "report_dir", &["audit"], Kind::Path, "the folder of audit.md, audit.html and audit.json"),
     key("outputs", "audit_dir", "audited", &["pack"], Kind::Path, "the folder of the audit pack must match"),
+    key("outputs", "audit_dir", "audit", &["drift"], Kind::Path, "the folder of the audit.json drift reads its baseline from"),
     key("outputs", "blob", "output", &["pack"], Kind::Path, "the blob"),
-    key("outputs", "blob", "blob", &["replay", "values"], Kind::Path, "the blob"),
+    key("outputs", "blob", "blob", &["replay", "values", "compare", "drift"], Kind::Path, "the blob"),
 ];
 
 const fn key(

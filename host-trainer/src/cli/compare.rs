@@ -25,11 +25,13 @@ pub struct CompareArgs {
     pub log: Vec<PathBuf>,
     #[command(flatten)]
     pub log_args: LogArgs,
-    /// Release A, the one in use: its float model.
+    /// Release A, the one in use: its float model. Default: `[outputs] model` of the
+    /// project file.
     #[arg(long, value_name = "MODEL_JSON")]
-    pub model: PathBuf,
+    pub model: Option<PathBuf>,
     /// Release A's blob (it must be one --model produces). Without it, --model is
-    /// quantised plainly at --input-bits/--weight-bits, as `linegate values` does.
+    /// quantised plainly at --input-bits/--weight-bits, as `linegate values` does. Default:
+    /// `[outputs] blob` of the project file.
     #[arg(long, value_name = "BLOB")]
     pub blob: Option<PathBuf>,
     /// Release B, the candidate: its float model.
@@ -103,15 +105,10 @@ impl CompareArgs {
         mut settings: Vec<host_trainer::project::Setting>,
     ) -> Result<()> {
         let files = super::log_files(&self.log, "name the field log (or several files of it)")?;
-        let fm_a = FloatModel::read(&self.model)?;
+        let model_a = super::settings::required(&self.model, "--model", "[outputs] model")?;
+        let fm_a = FloatModel::read(model_a)?;
         let fm_b = FloatModel::read(&self.against)?;
-        let a = self.release(
-            &fm_a,
-            &self.model,
-            self.blob.as_deref(),
-            quiet,
-            &mut settings,
-        )?;
+        let a = self.release(&fm_a, model_a, self.blob.as_deref(), quiet, &mut settings)?;
         let b = self.release(
             &fm_b,
             &self.against,

@@ -23,13 +23,16 @@ pub struct DriftArgs {
     pub logs: Vec<PathBuf>,
     #[command(flatten)]
     pub log_args: LogArgs,
-    /// The release audit's audit.json (it holds the baseline and the device plan).
-    #[arg(long, value_name = "FILE")]
-    pub audit: PathBuf,
-    /// The float model (reads the logs; needed with logs).
+    /// The release audit's audit.json, or the folder holding it (it keeps the baseline and
+    /// the device plan). Default: `[outputs] audit_dir` of the project file.
+    #[arg(long, value_name = "FILE_OR_DIR")]
+    pub audit: Option<PathBuf>,
+    /// The float model (reads the logs; needed with logs). Default: `[outputs] model` of
+    /// the project file.
     #[arg(long)]
     pub model: Option<PathBuf>,
-    /// The blob the audit named (its kernel scores the logs; needed with logs).
+    /// The blob the audit named (its kernel scores the logs; needed with logs). Default:
+    /// `[outputs] blob` of the project file.
     #[arg(long)]
     pub blob: Option<PathBuf>,
     /// Instead of logs: the device's own score lines (`replay --form device` prints the same
@@ -72,7 +75,13 @@ impl DriftArgs {
         quiet: bool,
         mut settings: Vec<host_trainer::project::Setting>,
     ) -> Result<()> {
-        let audit = baseline::read(&self.audit)?;
+        let given = super::settings::required(&self.audit, "--audit", "[outputs] audit_dir")?;
+        let audit_path = if given.is_dir() {
+            given.join("audit.json")
+        } else {
+            given.to_path_buf()
+        };
+        let audit = baseline::read(&audit_path)?;
         if self.plan {
             say!("{}", baseline::plan_text(&audit).trim_end());
             return Ok(());
@@ -208,9 +217,8 @@ impl DriftArgs {
         let id = format!("{:08x}", shared_model::blob::blob_id(&bytes).unwrap_or(0));
         if id != audit.blob_id || Thresholds::of(m.model()) != thresholds {
             return Err(CheckFailed(format!(
-                "{}: blob {id} is not the blob the audit {} named ({}): give the audited blob",
+                "{}: blob {id} is not the blob the audit named ({}): give the audited blob",
                 blob.display(),
-                self.audit.display(),
                 audit.blob_id
             ))
             .into());
