@@ -154,7 +154,8 @@ pub struct FieldStats {
     pub recheck: u32,
     /// Units that faulted.
     pub faults: u32,
-    /// Set when `units` reached `u32::MAX`: nothing after that unit was counted.
+    /// Set when a unit arrived after `units` reached `u32::MAX`: that unit and every later one
+    /// went uncounted.
     pub saturated: bool,
     /// Faults of kind [`FieldFault::Other`].
     pub other_faults: u32,
@@ -212,7 +213,7 @@ impl core::fmt::Display for RecordError {
             Self::BadMagic => f.write_str("not a field record (magic is not LGFR)"),
             Self::UnsupportedVersion(v) => write!(f, "field record version {v} is not supported"),
             Self::BadHeader => f.write_str(
-                "field record header is invalid (too many channels or signals, a bin shift above 62, or a reserved byte not zero)",
+                "field record header is invalid (too many channels or signals, a bin shift above 62, a reserved byte not zero, or a saturation flag other than 0 or 1)",
             ),
             Self::BadCrc => f.write_str("field record CRC-32 does not match (damaged or changed)"),
             Self::TrailingBytes => f.write_str("bytes after the field record's CRC-32"),

@@ -214,7 +214,10 @@ def compare(a_csv, b_csv, changes_csv, compare_json, models=None, logs=()):
     if ref[0] != got_s[0] or not np.allclose(ref[1:], got_s[1:], rtol=1e-12, atol=1e-15):
         bad(f"margin shift: numpy {ref}, compare {got_s}")
     gate = c["gate"]
-    nogo_go = int(counts.get(("NO-GO", "GO"), 0))
+    # The gate counts the units A stops (NO-GO, or FAULT, shown as NO-GO) that B passes.
+    nogo_go = int(counts.get(("NO-GO", "GO"), 0)) + int(counts.get(("FAULT", "GO"), 0))
+    if gate["recheck_to_go"] != int(counts.get(("RECHECK", "GO"), 0)):
+        bad(f"gate {gate}: RECHECK→GO count")
     allowed = gate["allowed"]
     if gate["nogo_to_go"] != nogo_go or gate["passed"] != (allowed is None or nogo_go <= allowed):
         bad(f"gate {gate} with {nogo_go} NO-GO→GO changes")

@@ -220,11 +220,11 @@ typedef struct lg_field {
   uint32_t channel_faults[LG_MAX_CHANNELS];
   // Faults per signal (a refused window).
   uint32_t signal_faults[LG_MAX_SIGNALS];
-  // Least reading per channel over decided units (`INT32_MAX` before the first).
+  // Least value per channel over decided units (the reading, or for a feature channel the feature the weights multiplied) (`INT32_MAX` before the first).
   int32_t min[LG_MAX_CHANNELS];
-  // Greatest reading per channel over decided units (`INT32_MIN` before the first).
+  // Greatest value per channel over decided units (`INT32_MIN` before the first).
   int32_t max[LG_MAX_CHANNELS];
-  // Sum of the readings per channel over decided units.
+  // Sum of the values per channel over decided units.
   int64_t sum[LG_MAX_CHANNELS];
 } lg_field;
 

@@ -251,11 +251,11 @@ pub struct lg_field {
     pub channel_faults: [u32; LG_MAX_CHANNELS],
     /// Faults per signal (a refused window).
     pub signal_faults: [u32; LG_MAX_SIGNALS],
-    /// Least reading per channel over decided units (`INT32_MAX` before the first).
+    /// Least value per channel over decided units (the reading, or for a feature channel the feature the weights multiplied) (`INT32_MAX` before the first).
     pub min: [i32; LG_MAX_CHANNELS],
-    /// Greatest reading per channel over decided units (`INT32_MIN` before the first).
+    /// Greatest value per channel over decided units (`INT32_MIN` before the first).
     pub max: [i32; LG_MAX_CHANNELS],
-    /// Sum of the readings per channel over decided units.
+    /// Sum of the values per channel over decided units.
     pub sum: [i64; LG_MAX_CHANNELS],
 }
 

@@ -46,10 +46,9 @@ pub struct CompareArgs {
     /// For a release without a blob: weight word, 2..=32 bits.
     #[arg(long, default_value_t = 16)]
     pub weight_bits: u8,
-    /// NO-GO→GO changes (a unit A stops and B passes) the gate allows: a count, or
-    /// `all`; given without a value, any. Default: none (one fails the comparison,
-    /// exit 1).
-    #[arg(long, value_name = "N|all", num_args = 0..=1, default_missing_value = "all", value_parser = parse_allowed)]
+    /// NO-GO→GO changes (a unit A stops, NO-GO or FAULT, and B passes) the gate allows: a
+    /// count, or `all`. Default: none (one fails the comparison, exit 1).
+    #[arg(long, value_name = "N|all", value_parser = parse_allowed)]
     pub allow_nogo_to_go: Option<Allowed>,
     /// Confidence of the Clopper–Pearson bounds, in (0, 1).
     #[arg(long, default_value_t = 0.95, value_parser = parse_confidence)]
@@ -127,7 +126,7 @@ impl CompareArgs {
         let (mut skip_a, mut skip_b) = (SkipReport::default(), SkipReport::default());
         let c = compare::compare(&files, &a, &b, cfg, (&mut skip_a, &mut skip_b))?;
         if !quiet {
-            super::warn_skipped(&files[0], &skip_a);
+            super::warn_skipped(&super::files_name(&files), &skip_a);
         }
         let mut set = OutputSet::default();
         if let Some(p) = &self.changes {

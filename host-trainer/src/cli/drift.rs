@@ -213,15 +213,17 @@ impl DriftArgs {
             "model blob",
             host_trainer::input::MAX_IMAGE_FILE,
         )?;
-        let m = super::blob_of_model(&fm, &bytes, blob, model)?;
+        // A blob that is not the audited one is an error (exit 2), not an alarm (exit 1),
+        // which a CI job reads as drift.
+        let m =
+            super::blob_of_model(&fm, &bytes, blob, model).map_err(|e| anyhow::anyhow!("{e}"))?;
         let id = format!("{:08x}", shared_model::blob::blob_id(&bytes).unwrap_or(0));
         if id != audit.blob_id || Thresholds::of(m.model()) != thresholds {
-            return Err(CheckFailed(format!(
+            bail!(
                 "{}: blob {id} is not the blob the audit named ({}): give the audited blob",
                 blob.display(),
                 audit.blob_id
-            ))
-            .into());
+            );
         }
         let opts = LogOptions {
             label_optional: true,

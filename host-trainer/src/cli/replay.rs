@@ -147,7 +147,7 @@ impl ReplayArgs {
         let text = sink.finish(streamed.is_ok());
         streamed?;
         if !quiet {
-            super::warn_skipped(&files[0], &skipped);
+            super::warn_skipped(&super::files_name(&files), &skipped);
         }
         let mut set = OutputSet::default();
         if let (Some(o), Some(text)) = (&self.output, text) {

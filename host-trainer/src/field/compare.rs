@@ -13,11 +13,16 @@
 //! unit its quantisation used (`release::quantise`, recomputed from the float model and
 //! the blob's word lengths) and `threshold` the float model's GO/NO-GO threshold. Both
 //! float models have max |weight| = 1 over inputs scaled to [−1, 1], so a margin is the
-//! signed distance of the unit from that model's boundary on one common scale. The shift
-//! is B's margin minus A's, over units both releases decided (no FAULT on either side).
+//! signed distance of the unit from that model's boundary on a common scale when both
+//! models scale their channels alike (same offsets and ranges); models whose channel
+//! scalings differ measure margins against different input ranges, and the shift is then
+//! only a guide. The shift is B's margin minus A's, over units both releases decided (no
+//! FAULT on either side).
 //!
-//! The gate: a NO-GO→GO change (a unit the first release stopped and the second passes)
-//! fails the comparison unless allowed (a count, or any).
+//! The gate: a NO-GO→GO change (a unit the first release stopped, NO-GO or FAULT, which
+//! the device shows as NO-GO, and the second passes) fails the comparison unless allowed
+//! (a count, or any). RECHECK→GO changes (units the first release sent to a retest and the
+//! second passes outright) are counted beside the gate and named in its verdict.
 
 use std::path::PathBuf;
 
@@ -51,6 +56,11 @@ pub enum CompareError {
         /// Its line for release B (0: B had no such unit).
         line_b: u64,
     },
+    /// The logs held no unit (a header only, or every row skipped): nothing was compared.
+    #[error(
+        "the field logs hold no unit (a header only, or every row skipped): nothing to compare"
+    )]
+    NoUnits,
     /// A release's quantisation scale could not be recomputed.
     #[error("{model}: its score scale cannot be recomputed: {error}")]
     Scale {
@@ -186,8 +196,10 @@ pub struct Shift {
 /// The gate on NO-GO→GO changes.
 #[derive(Clone, Debug, Serialize)]
 pub struct Gate {
-    /// NO-GO→GO changes found.
+    /// NO-GO→GO changes found: NO-GO→GO and FAULT→GO (the device shows a FAULT as NO-GO).
     pub nogo_to_go: u64,
+    /// RECHECK→GO changes: not gated, named in the verdict for the reviewer.
+    pub recheck_to_go: u64,
     /// How many are allowed (`None`: any).
     pub allowed: Option<u64>,
     /// Whether the comparison passes.
@@ -333,6 +345,9 @@ pub fn compare(
         });
     }
     let units = first.len() as u64;
+    if units == 0 {
+        return Err(CompareError::NoUnits);
+    }
     let transitions = counts
         .iter()
         .map(|(&(from, to), &n)| Transition {
@@ -341,10 +356,9 @@ pub fn compare(
             rate: Rate::new(n, units, cfg.confidence),
         })
         .collect();
-    let nogo_to_go = counts
-        .get(&(Outcome::NoGo, Outcome::Go))
-        .copied()
-        .unwrap_or(0);
+    let count = |from| counts.get(&(from, Outcome::Go)).copied().unwrap_or(0);
+    let nogo_to_go = count(Outcome::NoGo) + count(Outcome::Fault);
+    let recheck_to_go = count(Outcome::Recheck);
     let logs = files
         .iter()
         .map(|f| {
@@ -364,6 +378,7 @@ pub fn compare(
         shift: shift_of(shifts),
         gate: Gate {
             nogo_to_go,
+            recheck_to_go,
             allowed: cfg.allowed,
             passed: cfg.allowed.is_none_or(|n| nogo_to_go <= n),
         },

@@ -117,8 +117,12 @@ pub fn gate_text(c: &Comparison) -> String {
         .gate
         .allowed
         .map_or("any allowed".to_string(), |n| format!("{n} allowed"));
+    let recheck = match c.gate.recheck_to_go {
+        0 => String::new(),
+        n => format!("; {n} RECHECK→GO (passed without the retest A asked for: review them)"),
+    };
     format!(
-        "{}: {} NO-GO→GO change{} ({allowed})",
+        "{}: {} NO-GO→GO change{} (FAULT→GO included; {allowed}){recheck}",
         if c.gate.passed { "PASSED" } else { "FAILED" },
         c.gate.nogo_to_go,
         if c.gate.nogo_to_go == 1 { "" } else { "s" }

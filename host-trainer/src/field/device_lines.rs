@@ -71,28 +71,44 @@ pub fn parse(
     let mut units = 0usize;
     for (i, line) in lines {
         let no = i + 1;
-        if line.trim().is_empty() {
-            continue;
-        }
         // `replay`'s text form is the device's line, then ` # ` and what the log adds
         // (device lines hold no `#`).
         let line = line.find(" # ").map_or(line, |at| &line[..at]);
         let col = |word: &str| word.as_ptr() as usize - line.as_ptr() as usize + 1;
         let w: Vec<&str> = line.split_whitespace().collect();
-        let index: usize = w[0]
-            .parse()
-            .map_err(|_| (no, col(w[0]), format!("'{}' is not a unit index", w[0])))?;
+        // Blank lines, and the device's other `#` lines (`# lines: …`, `# field <hex>`),
+        // are not units.
+        let Some(&first) = w.first() else { continue };
+        if first.starts_with('#') {
+            continue;
+        }
+        let index: usize = Some(first)
+            .filter(|f| f.bytes().all(|b| b.is_ascii_digit()))
+            .and_then(|f| f.parse().ok())
+            .ok_or_else(|| (no, col(first), format!("'{first}' is not a unit index")))?;
         if index != units {
             return Err((
                 no,
-                col(w[0]),
+                col(first),
                 format!(
                     "unit index {index} where {units} was next (lines must be whole and in order)"
                 ),
             ));
         }
         match w.as_slice() {
-            [_, "FAULT", what] => run.faulted(fault_of(what)),
+            [_, "FAULT", what] => {
+                let fault = fault_of(what, run.stats.channels, run.stats.signals).ok_or_else(|| {
+                    (
+                        no,
+                        col(what),
+                        format!(
+                            "'FAULT {what}': expected ch<channel> (below {}), signal<k> (below {}), count or other",
+                            run.stats.channels, run.stats.signals
+                        ),
+                    )
+                })?;
+                run.faulted(fault)
+            }
             [_, v, score] => {
                 let verdict = match *v {
                     "GO" => Verdict::Go,
@@ -106,9 +122,11 @@ pub fn parse(
                         ));
                     }
                 };
-                let score: i64 = score
-                    .parse()
-                    .map_err(|_| (no, col(score), format!("'{score}' is not a score")))?;
+                let digits = score.strip_prefix('-').unwrap_or(score);
+                let score: i64 = Some(score)
+                    .filter(|_| !digits.is_empty() && digits.bytes().all(|b| b.is_ascii_digit()))
+                    .and_then(|s| s.parse().ok())
+                    .ok_or_else(|| (no, col(score), format!("'{score}' is not a score")))?;
                 let d = run.thresholds.decide(score);
                 if d.verdict != verdict {
                     return Err((
@@ -135,14 +153,20 @@ pub fn parse(
     Ok(units)
 }
 
-/// `ch<c>` → that channel, `signal<k>` → that signal, anything else → other.
-fn fault_of(what: &str) -> FieldFault {
-    if let Some(c) = what.strip_prefix("ch").and_then(|c| c.parse().ok()) {
-        FieldFault::Channel(c)
-    } else if let Some(k) = what.strip_prefix("signal").and_then(|k| k.parse().ok()) {
-        FieldFault::Signal(k)
+/// `ch<c>` → that channel, `signal<k>` → that signal, `count` and `other` → other; `None`
+/// for a word the device does not print (or a channel or signal the model does not have).
+fn fault_of(what: &str, channels: u8, signals: u8) -> Option<FieldFault> {
+    let number = |s: &str| {
+        Some(s)
+            .filter(|s| !s.is_empty() && s.bytes().all(|b| b.is_ascii_digit()))
+            .and_then(|s| s.parse::<u8>().ok())
+    };
+    if let Some(c) = what.strip_prefix("ch").and_then(number) {
+        (c < channels).then_some(FieldFault::Channel(c))
+    } else if let Some(k) = what.strip_prefix("signal").and_then(number) {
+        (k < signals).then_some(FieldFault::Signal(k))
     } else {
-        FieldFault::Other
+        matches!(what, "count" | "other").then_some(FieldFault::Other)
     }
 }
 
@@ -175,5 +199,17 @@ mod tests {
         assert_eq!(err("# model ab blob 0000cafe\n1 GO 50\n").1, 1);
         assert!(err("# model cd blob 0000cafe\n").2.contains("model cd"));
         assert_eq!(err("# model ab blob 0000cafe\n0 GO x\n").1, 6);
+        // What the device does not print is refused where it stands, never counted.
+        assert_eq!(err("# model ab blob 0000cafe\n+0 GO 50\n").1, 1);
+        assert_eq!(err("# model ab blob 0000cafe\n0 GO +50\n").1, 6);
+        assert_eq!(err("# model ab blob 0000cafe\n0 FAULT bogus\n").1, 9);
+        assert_eq!(err("# model ab blob 0000cafe\n0 FAULT ch2\n").1, 9);
+        assert_eq!(err("# model ab blob 0000cafe\n0 FAULT signal1\n").1, 9);
+        assert_eq!(err("# model ab blob 0000cafe\n0 FAULT ch\n").1, 9);
+        // The device's other lines, blank ones and a text form's tail are not units.
+        let mut r = run();
+        let text =
+            "# model ab blob 0000cafe\n   # x\n # field 00\n\n0 GO 50\n# lines: GO=1 NO-GO=0\n";
+        assert_eq!(parse(text, "ab", "0000cafe", &mut r), Ok(1));
     }
 }

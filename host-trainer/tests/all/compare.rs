@@ -49,7 +49,7 @@ fn a_release_against_itself_changes_nothing_and_the_report_says_so() {
     let md = std::fs::read_to_string(d.join("r.md")).unwrap();
     for want in [
         "None: every unit has the same outcome",
-        "PASSED: 0 NO-GO→GO changes (0 allowed)",
+        "PASSED: 0 NO-GO→GO changes (FAULT→GO included; 0 allowed)",
         "Reviewed by:",
         "Date:",
         "Decision",

@@ -5,6 +5,7 @@ mod cli;
 mod common;
 mod compare;
 mod exports;
+mod field_errors;
 mod field_scoring;
 mod generate;
 mod holdout;

@@ -214,7 +214,6 @@ fn compare_lists_exactly_the_units_a_pandas_join_finds_and_gates_nogo_to_go() {
     let allow = n.to_string();
     for (extra, code) in [
         (vec!["--allow-nogo-to-go", allow.as_str()], 0),
-        (vec!["--allow-nogo-to-go"], 0),
         (vec!["--allow-nogo-to-go", "all"], 0),
     ] {
         let args = with(&extra);
