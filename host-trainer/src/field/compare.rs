@@ -319,7 +319,7 @@ pub fn compare(
         }
         if sa.outcome != sb.outcome {
             *counts.entry((sa.outcome, sb.outcome)).or_default() += 1;
-            let text = |b: Option<&[u8]>| b.map(|b| String::from_utf8_lossy(b).into_owned());
+            let text = |b: Option<&[u8]>| b.map(|b| super::score::bytes_text(b).into_owned());
             changes.push(Change {
                 file: files[u.file].display().to_string(),
                 line: u.line,

@@ -356,10 +356,10 @@ impl Printer {
         replay::write_line(out, u.index, &u.result);
         out.push_str(" #");
         if let Some(id) = u.id {
-            text_field(out, "unit", &String::from_utf8_lossy(id));
+            text_field(out, "unit", &bytes_text(id));
         }
         if let Some(t) = u.time {
-            text_field(out, "time", &String::from_utf8_lossy(t));
+            text_field(out, "time", &bytes_text(t));
         }
         if let Some((word, Some(name))) = self.fault(u) {
             let key = if word.starts_with("ch") {
@@ -380,9 +380,9 @@ impl Printer {
         let fault = self.fault(u);
         csv_field(out, &self.files[u.file]);
         let _ = write!(out, ",{},{},", u.line, u.index);
-        csv_field(out, &String::from_utf8_lossy(u.id.unwrap_or_default()));
+        csv_field(out, &bytes_text(u.id.unwrap_or_default()));
         out.push(',');
-        csv_field(out, &String::from_utf8_lossy(u.time.unwrap_or_default()));
+        csv_field(out, &bytes_text(u.time.unwrap_or_default()));
         let _ = write!(
             out,
             ",{},{},{},",
@@ -405,7 +405,7 @@ impl Printer {
     }
 
     fn json(&self, out: &mut String, u: &Scored<'_>) {
-        let text = |b: Option<&[u8]>| b.map(|b| String::from_utf8_lossy(b).into_owned());
+        let text = |b: Option<&[u8]>| b.map(|b| bytes_text(b).into_owned());
         let fault = self.fault(u);
         let v = serde_json::json!({
             "record": "unit",
@@ -472,9 +472,34 @@ pub fn path_digest(path: &Path) -> Result<String, InputError> {
     crate::digest::sha256_file(path).map_err(|e| InputError::io(path, e))
 }
 
+/// A cell's bytes as text: valid UTF-8 as it is, each invalid byte as `\xNN`, so two ids
+/// that differ in an invalid byte stay two ids (a lossy decoding would make both `\u{FFFD}`).
+pub fn bytes_text(b: &[u8]) -> std::borrow::Cow<'_, str> {
+    match std::str::from_utf8(b) {
+        Ok(s) => s.into(),
+        Err(_) => {
+            let mut out = String::with_capacity(b.len() + 8);
+            for chunk in b.utf8_chunks() {
+                out.push_str(chunk.valid());
+                for byte in chunk.invalid() {
+                    out.push_str(&format!("\\x{byte:02x}"));
+                }
+            }
+            out.into()
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn an_invalid_byte_in_an_id_is_written_as_its_hex_not_lost() {
+        assert_eq!(bytes_text(b"FAN-1"), "FAN-1");
+        assert_eq!(bytes_text(b"F\xffN-1"), "F\\xffN-1");
+        assert_ne!(bytes_text(b"F\xfeN"), bytes_text(b"F\xffN"));
+    }
 
     #[test]
     fn csv_fields_are_quoted_as_rfc_4180_says() {
