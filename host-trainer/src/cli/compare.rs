@@ -166,14 +166,9 @@ impl CompareArgs {
     ) -> Result<Release<'a>> {
         let (model, ids) = match blob {
             Some(path) => {
-                let bytes = host_trainer::input::read_bounded(
-                    path,
-                    "model blob",
-                    host_trainer::input::MAX_IMAGE_FILE,
-                )?;
                 // A blob that is not its model's is an error here (exit 2), not the
                 // gate's failure (exit 1), which a CI job reads as a NO-GO→GO change.
-                let m = super::blob_of_model(fm, &bytes, path, model_path)
+                let (bytes, m) = super::read_blob_of_model(fm, path, model_path)
                     .map_err(|e| anyhow::anyhow!("{e}"))?;
                 let ids = ReleaseIds::of_blob(&m, &bytes);
                 (m, ids)

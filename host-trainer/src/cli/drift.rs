@@ -208,15 +208,10 @@ impl DriftArgs {
             );
         };
         let fm = FloatModel::read(model)?;
-        let bytes = host_trainer::input::read_bounded(
-            blob,
-            "model blob",
-            host_trainer::input::MAX_IMAGE_FILE,
-        )?;
         // A blob that is not the audited one is an error (exit 2), not an alarm (exit 1),
         // which a CI job reads as drift.
-        let m =
-            super::blob_of_model(&fm, &bytes, blob, model).map_err(|e| anyhow::anyhow!("{e}"))?;
+        let (bytes, m) =
+            super::read_blob_of_model(&fm, blob, model).map_err(|e| anyhow::anyhow!("{e}"))?;
         let id = format!("{:08x}", shared_model::blob::blob_id(&bytes).unwrap_or(0));
         if id != audit.blob_id || Thresholds::of(m.model()) != thresholds {
             bail!(

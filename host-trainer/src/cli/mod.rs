@@ -166,6 +166,22 @@ impl std::error::Error for CheckFailed {}
 
 /// The blob `bytes` (read from `blob`) decoded for the float model `fm` (read from
 /// `model`): a damaged blob, or one another model packed, fails the check (exit 1).
+/// Reads the blob file at `blob` (bounded as an image) and checks it is a blob of `fm`
+/// ([`blob_of_model`]): its bytes and the model it holds.
+fn read_blob_of_model(
+    fm: &host_trainer::train::float_model::FloatModel,
+    blob: &std::path::Path,
+    model: &std::path::Path,
+) -> Result<(
+    Vec<u8>,
+    shared_model::CheckedModel<shared_model::SignalSection>,
+)> {
+    let bytes =
+        host_trainer::input::read_bounded(blob, "model blob", host_trainer::input::MAX_IMAGE_FILE)?;
+    let m = blob_of_model(fm, &bytes, blob, model)?;
+    Ok((bytes, m))
+}
+
 fn blob_of_model(
     fm: &host_trainer::train::float_model::FloatModel,
     bytes: &[u8],
@@ -183,8 +199,6 @@ fn blob_of_model(
     })
 }
 
-/// Says on stderr how many rows of `path` were skipped as unreadable (`--skip-bad-rows`),
-/// by reason: a skipped row is a unit the report does not show, so it is never silent.
 /// A log of several files named as `Dataset::name` names it: the first, and how many more.
 fn files_name(files: &[std::path::PathBuf]) -> std::path::PathBuf {
     match files {
@@ -194,6 +208,8 @@ fn files_name(files: &[std::path::PathBuf]) -> std::path::PathBuf {
     }
 }
 
+/// Says on stderr how many rows of `path` were skipped as unreadable (`--skip-bad-rows`),
+/// by reason: a skipped row is a unit the report does not show, so it is never silent.
 fn warn_skipped(path: &std::path::Path, skipped: &host_trainer::ingest::SkipReport) {
     if skipped.total > 0 {
         let reasons: Vec<String> = skipped

@@ -96,12 +96,7 @@ impl ReplayArgs {
         let model = super::settings::required(&self.model, "--model", "[outputs] model")?;
         let blob = super::settings::required(&self.blob, "--blob", "[outputs] blob")?;
         let fm = FloatModel::read(model)?;
-        let bytes = host_trainer::input::read_bounded(
-            blob,
-            "model blob",
-            host_trainer::input::MAX_IMAGE_FILE,
-        )?;
-        let m = super::blob_of_model(&fm, &bytes, blob, model)?;
+        let (bytes, m) = super::read_blob_of_model(&fm, blob, model)?;
         if let Some(k) = &self.public_key {
             let key = sign::read_public(k)?;
             sign::verify(&bytes, &key)

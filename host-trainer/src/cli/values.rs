@@ -129,13 +129,8 @@ impl ValuesArgs {
             let m = values::plain_model(fm, self.input_bits, self.weight_bits)?;
             return Ok((m, None));
         };
-        let bytes = host_trainer::input::read_bounded(
-            path,
-            "model blob",
-            host_trainer::input::MAX_IMAGE_FILE,
-        )?;
         let model = self.model.as_deref().unwrap_or(std::path::Path::new(""));
-        let m = super::blob_of_model(fm, &bytes, path, model)?;
+        let (bytes, m) = super::read_blob_of_model(fm, path, model)?;
         let id = format!("{:08x}", shared_model::blob::blob_id(&bytes).unwrap_or(0));
         let line = replay::model_line(&m, &bytes).trim_end().to_string();
         Ok((m, Some((id, line))))
