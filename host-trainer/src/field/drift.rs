@@ -502,6 +502,12 @@ mod tests {
         assert!((c.shown_shift - shown).abs() < 1e-12);
         assert!((c.of_budget.unwrap() - shown / 2.0).abs() < 1e-12);
         assert!(r.recheck_rate.p < 1e-6 && r.fault_rate.p == 1.0);
+        // The report's row: shown shift, budget, shown ÷ budget.
+        let md = crate::report::drift_markdown(&r, None);
+        assert!(
+            md.contains("| 10.00 | 8.7121 | 2.0000 | 4.36 | **ALARM** |"),
+            "{md}"
+        );
         assert!(c.alarm);
         assert!(r.recheck_rate.alarm && !r.fault_rate.alarm);
         assert_eq!(r.cusum_go.alarm_down, 5);

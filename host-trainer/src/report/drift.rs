@@ -122,7 +122,7 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
         for c in &r.channels {
             let _ = writeln!(
                 s,
-                "| {} ({}) | {:.4} | {:.4} | {:+.4} | {:.4} | {} | {} | {:.4} | {} | {} |",
+                "| {} ({}) | {:.4} | {:.4} | {:+.4} | {:.4} | {} | {:.4} | {} | {} | {} |",
                 md(&c.channel),
                 md(&c.unit),
                 c.baseline_mean,
