@@ -5,7 +5,7 @@ use std::fmt::Write as _;
 use std::path::Path;
 
 use crate::error::InputError;
-use crate::release::audit_baseline::{Baseline, MAX_AUDIT_FILE};
+use crate::release::audit_baseline::{Baseline, MAX_AUDIT_FILE, ROUGH_SIGMA_UNITS};
 
 /// What `drift` needs of an audit record: its model, blob and baseline.
 #[derive(Clone, Debug)]
@@ -85,9 +85,24 @@ pub fn plan_text(a: &AuditBaseline) -> String {
     );
     let _ = writeln!(
         s,
-        "// target = mean margin, slack = sd/2, limit = 5 sd; GO side over {} units (sd {:.1}), NO-GO side over {} units (sd {:.1}).",
+        "// target = mean margin, slack = sd/2, limit = 5 sd, each rounded to a whole LSB and slack and limit at least 1 LSB;\n// GO side over {} units (sd {:.1}), NO-GO side over {} units (sd {:.1}).",
         b.plan.go.units, b.plan.go.sd, b.plan.nogo.units, b.plan.nogo.sd
     );
+    for (name, side) in [("GO", &b.plan.go), ("NO-GO", &b.plan.nogo)] {
+        if side.limit == i64::MAX {
+            let _ = writeln!(
+                s,
+                "// CUSUM of {name} margins: no limit, the baseline had {} < 2 units on that side (limit = INT64_MAX: this side never alarms).",
+                side.units
+            );
+        } else if side.units < ROUGH_SIGMA_UNITS {
+            let _ = writeln!(
+                s,
+                "// CUSUM of {name} margins: sd from {} units (fewer than {ROUGH_SIGMA_UNITS}) is rough: slack and limit are too.",
+                side.units
+            );
+        }
+    }
     let _ = writeln!(s, "\n// C (designated initializer of the field plan):");
     let c = |x: &shared_model::field::CusumPlan| {
         format!(

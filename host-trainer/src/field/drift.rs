@@ -5,16 +5,22 @@
 //!   noise and of its allowed drift (the margin budget the audit left). Alarm when the shift
 //!   is shown to use more than the budget: |Δ| − z·SE > allowed drift, SE the Welch standard
 //!   error √(s_b²/n_b + s_f²/n_f), z the normal quantile 1 − α/(2c) over the c channels with
-//!   a budget (Bonferroni). A device record keeps no spread: the baseline's is used.
-//! - **Scores**: the two-sample Kolmogorov–Smirnov test (`ks.rs`) of the decided (GO and
-//!   NO-GO) units' scores; alarm at p < α. A record's histogram holds RECHECK units too, so
-//!   its test is of every scored unit, binned.
-//! - **Rates**: RECHECK and FAULT among all units, exact Clopper–Pearson intervals at
-//!   1 − α; alarm when the field's lower end exceeds the baseline's upper end.
+//!   a budget (Bonferroni). A device record keeps no spread: the baseline's is used. The
+//!   budget figure is that shown shift (floored at 0) over the budget: above 1 alarms.
+//! - **Scores**: the two-sample Kolmogorov–Smirnov test (`ks.rs`) of every scored unit's
+//!   score (GO, NO-GO and RECHECK; the baseline's likewise); alarm at p < α. A record keeps
+//!   the same units' scores by bin, so its D is a lower bound of the log's.
+//! - **Rates**: RECHECK and FAULT among all units, shown with exact Clopper–Pearson
+//!   intervals at 1 − α; alarm when Fisher's one-sided exact test (`fisher.rs`) of the
+//!   field's rate being greater than the baseline's gives p < α.
 //! - **CUSUM**: the tabular CUSUM of each side's margins (Page, 1954; Montgomery §9.1) as the
 //!   device keeps it; alarm when a lower sum (margins shrinking: units walking towards the
 //!   boundary) exceeds h. Upper sums (margins growing) are shown, and alarm only when asked
-//!   (`two_sided`).
+//!   (`two_sided`). A side whose baseline had fewer than two units has no limit and cannot
+//!   alarm; the report says so.
+//!
+//! A field of no units is not tested: [`DriftReport::require_units`] is the error the
+//! command line turns into exit 2.
 
 use serde::Serialize;
 use shared_model::FieldStats;
@@ -22,6 +28,7 @@ use shared_model::field::CusumState;
 use statrs::distribution::{ContinuousCDF, Normal};
 
 use crate::confidence::Rate;
+use crate::field::fisher;
 use crate::field::ks::{self, KsTest};
 use crate::field::run::{ChartPoint, FieldRun};
 use crate::release::audit_baseline::Baseline;
@@ -66,13 +73,16 @@ pub struct ChannelShift {
     pub standard_error: f64,
     /// Δ in units of the declared noise (null without one).
     pub in_noise: Option<f64>,
-    /// |Δ| over the allowed drift (the margin budget; null without one): above 1 uses more
-    /// than the budget.
+    /// The shown shift over the allowed drift (the margin budget): above 1 alarms. Null
+    /// without a budget, or with a zero one (`zero_budget`).
     pub of_budget: Option<f64>,
-    /// |Δ| − z·SE: the least shift the field shows, physical units.
+    /// max(0, |Δ| − z·SE): the least shift the field shows at the channel rule's level,
+    /// physical units.
     pub shown_shift: f64,
     /// The allowed drift, physical units.
     pub budget: Option<f64>,
+    /// The budget is zero: any shown shift alarms.
+    pub zero_budget: bool,
     /// The shown shift exceeds the budget.
     pub alarm: bool,
 }
@@ -84,7 +94,10 @@ pub struct RateShift {
     pub field: Rate,
     /// The baseline's.
     pub baseline: Rate,
-    /// The field's lower end exceeds the baseline's upper end.
+    /// Fisher's one-sided exact p-value of the field's rate being greater than the
+    /// baseline's (1 with no field units).
+    pub p: f64,
+    /// p < α.
     pub alarm: bool,
 }
 
@@ -161,10 +174,43 @@ pub struct DriftReport {
     pub chart: Vec<ChartPoint>,
 }
 
+/// Why a field could not be tested.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum DriftError {
+    /// The field has no units (an empty log, every row skipped, lines with only the model
+    /// line, or a record that counted none): nothing was tested.
+    NoUnits,
+}
+
+impl std::fmt::Display for DriftError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Self::NoUnits => write!(
+                f,
+                "the field has no units: nothing to test (an empty log, every row skipped, device lines with only the model line, or a record that counted none); give a field with units"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for DriftError {}
+
 impl DriftReport {
-    /// No alarm.
+    /// No alarm (an empty field is never in control: it carries a "no units" alarm).
     pub fn in_control(&self) -> bool {
         self.alarms.is_empty()
+    }
+
+    /// The report is of a field with units.
+    ///
+    /// # Errors
+    /// [`DriftError::NoUnits`]: the field has none, so no test ran (usage: exit 2).
+    pub fn require_units(&self) -> Result<(), DriftError> {
+        if self.units == 0 {
+            Err(DriftError::NoUnits)
+        } else {
+            Ok(())
+        }
     }
 }
 
@@ -219,8 +265,9 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
         }
         let shift = (mean - b.mean) * b.lsb;
         let se = b.lsb * (b.sd * b.sd / b.count.max(1) as f64 + sd * sd / n as f64).sqrt();
-        let shown = shift.abs() - z * se;
+        let shown = (shift.abs() - z * se).max(0.0);
         let alarm = b.max_drift.is_some_and(|d| shown > d);
+        let zero_budget = b.max_drift == Some(0.0);
         if alarm {
             alarms.push(format!(
                 "channel {}: mean shift {:+.4} {} (at least {:.4} at α = {}, Bonferroni over {budgeted}) uses more than its allowed drift {:.4} {}",
@@ -242,23 +289,24 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
             shift,
             standard_error: se,
             in_noise: b.noise.filter(|n| *n > 0.0).map(|n| shift / n),
-            of_budget: b.max_drift.map(|d| shift.abs() / d),
+            of_budget: b.max_drift.filter(|d| *d > 0.0).map(|d| shown / d),
             shown_shift: shown,
             budget: b.max_drift,
+            zero_budget,
             alarm,
         });
     }
-    // Scores.
+    // Scores: every scored unit (GO, NO-GO, RECHECK) on every path, as the record bins them,
+    // so that a record's binned D is a lower bound of the same log's exact D.
+    let mut all = base.scores.clone();
+    all.extend(&base.recheck_scores);
+    all.sort_unstable();
     let ks = match run {
-        Some(r) => ks::test(&base.scores, &r.sorted_scores()),
-        None => {
-            let mut all = base.scores.clone();
-            all.extend(&base.recheck_scores);
-            ks::binned_test(&ks::binned_counts(&all, stats), &ks::record_counts(stats))
-        }
+        Some(r) => ks::test(&all, &r.sorted_all_scores()),
+        None => ks::binned_test(&ks::binned_counts(&all, stats), &ks::record_counts(stats)),
     };
     if ks.binned {
-        notes.push("a device record keeps scores by bin, RECHECK units' among them: D is taken over the bin edges against the baseline's scored units binned alike (RECHECK included), a lower bound of that D".into());
+        notes.push("a device record keeps scores by bin: D is taken over the bin edges against the baseline's scored units binned alike, a lower bound of the D of the log it counted".into());
     }
     let ks_alarm = ks.m > 0 && ks.n > 0 && ks.p < cfg.alpha;
     if ks_alarm {
@@ -272,20 +320,21 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
     let rate = |what: &str, f: u64, b: u64, alarms: &mut Vec<String>| {
         let field = Rate::new(f, units, conf);
         let baseline = Rate::new(b, base.units, conf);
-        let alarm = units > 0 && field.low > baseline.high;
+        let p = fisher::greater(f, units, b, base.units);
+        let alarm = units > 0 && p < cfg.alpha;
         if alarm {
             alarms.push(format!(
-                "{what} rate {:.2} % (lower end {:.2} %) above the baseline's {:.2} % (upper end {:.2} %), Clopper–Pearson at {:.0} %",
+                "{what} rate {f} of {units} = {:.2} % above the baseline's {b} of {} = {:.2} %: Fisher's exact test (one-sided) p = {p:.2e} < α = {}",
                 100.0 * field.rate,
-                100.0 * field.low,
+                base.units,
                 100.0 * baseline.rate,
-                100.0 * baseline.high,
-                100.0 * conf
+                cfg.alpha
             ));
         }
         RateShift {
             field,
             baseline,
+            p,
             alarm,
         }
     };
@@ -331,8 +380,20 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
     if stats.saturated {
         notes.push("the record stopped counting at 4,294,967,295 units".into());
     }
+    for (n, p) in [("GO", &base.plan.go), ("NO-GO", &base.plan.nogo)] {
+        if p.limit == i64::MAX {
+            notes.push(format!(
+                "CUSUM of {n} margins: no limit, the baseline had {} < 2 units on that side",
+                p.units
+            ));
+        } else if p.units < crate::release::audit_baseline::ROUGH_SIGMA_UNITS {
+            notes.push(format!("CUSUM of {n} margins: σ comes from {} baseline units (fewer than {}), so k and h are rough", p.units, crate::release::audit_baseline::ROUGH_SIGMA_UNITS));
+        }
+    }
     if units == 0 {
-        notes.push("the field has no units".into());
+        // Never IN CONTROL: `require_units` is the error; this alarm keeps a caller that
+        // does not ask from passing an empty field.
+        alarms.push(DriftError::NoUnits.to_string());
     }
     DriftReport {
         source,
@@ -413,9 +474,8 @@ mod tests {
 
     /// By hand: 100 units of value 120 (raw) against a mean of 100 (sd 10 over 100): the
     /// shift is 20 raw = 10 V, SE = 0.5·√(100/100 + 0) = 0.5 V, z = Φ⁻¹(0.995) ≈ 2.576, so the
-    /// shown shift 10 − 1.29 ≈ 8.71 V exceeds the 2 V budget; 10 noise units, 5 budgets.
-    /// The RECHECK rate 30 % (lower end above 16 %) against 1 % (upper end below 7 %)
-    /// alarms too; GO margins of 10 against μ₀ = 50, k = 5: C⁻ grows 35 a unit and passes
+    /// shown shift 10 − 1.29 ≈ 8.71 V exceeds the 2 V budget (4.36 budgets); 10 noise units.
+    /// The RECHECK rate 30 of 100 against 1 of 100 alarms too (Fisher p far below α); GO margins of 10 against μ₀ = 50, k = 5: C⁻ grows 35 a unit and passes
     /// h = 50 at the second GO unit (unit 5: units 1–3 are RECHECK).
     #[test]
     fn each_rule_worked_by_hand() {
@@ -436,8 +496,18 @@ mod tests {
         let r = drift(&b, Field::Run(&run), Source::Log, cfg);
         let c = &r.channels[0];
         assert!((c.shift - 10.0).abs() < 1e-12 && (c.standard_error - 0.5).abs() < 1e-12);
-        assert_eq!((c.in_noise, c.of_budget), (Some(10.0), Some(5.0)));
+        assert_eq!(c.in_noise, Some(10.0));
         assert!((r.channel_z - 2.5758293035489).abs() < 1e-9);
+        let shown = 10.0 - r.channel_z * 0.5;
+        assert!((c.shown_shift - shown).abs() < 1e-12);
+        assert!((c.of_budget.unwrap() - shown / 2.0).abs() < 1e-12);
+        assert!(r.recheck_rate.p < 1e-6 && r.fault_rate.p == 1.0);
+        // The report's row: shown shift, budget, shown ÷ budget.
+        let md = crate::report::drift_markdown(&r, None);
+        assert!(
+            md.contains("| 10.00 | 8.7121 | 2.0000 | 4.36 | **ALARM** |"),
+            "{md}"
+        );
         assert!(c.alarm);
         assert!(r.recheck_rate.alarm && !r.fault_rate.alarm);
         assert_eq!(r.cusum_go.alarm_down, 5);
@@ -451,5 +521,142 @@ mod tests {
         let r = drift(&b, Field::Run(&same), Source::Log, cfg);
         assert!(!r.ks_alarm && r.ks.d == 0.0);
         assert!(!r.channels[0].alarm);
+        assert_eq!(
+            (r.channels[0].shown_shift, r.channels[0].of_budget),
+            (0.0, Some(0.0))
+        );
+        assert!(r.in_control() && r.require_units().is_ok());
+    }
+
+    /// Every f64 of the JSON is a number (serde_json writes NaN and ∞ as null), for a field
+    /// of no units, of one unit, and a record of one unit.
+    fn numbers_only(r: &DriftReport) {
+        let json = serde_json::to_string(r).unwrap();
+        assert!(!json.contains("null"), "{json}");
+    }
+
+    /// An empty field is an error, never IN CONTROL; a field of one unit gives only numbers.
+    #[test]
+    fn empty_and_single_unit_fields() {
+        let b = base();
+        let t = Thresholds {
+            nogo_max: -10,
+            go_min: 10,
+        };
+        let cfg = DriftConfig {
+            alpha: 0.01,
+            two_sided: false,
+        };
+        let empty = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        let r = drift(&b, Field::Run(&empty), Source::Log, cfg);
+        assert_eq!(r.require_units(), Err(DriftError::NoUnits));
+        assert!(!r.in_control());
+        numbers_only(&r);
+        let r = drift(&b, Field::Record(&empty.stats), Source::Record, cfg);
+        assert_eq!(r.require_units(), Err(DriftError::NoUnits));
+        numbers_only(&r);
+        let mut one = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        one.decided(&t.decide(60), Some(&[100]));
+        for field in [Field::Run(&one), Field::Record(&one.stats)] {
+            let r = drift(&b, field, Source::Log, cfg);
+            assert!(r.require_units().is_ok());
+            numbers_only(&r);
+        }
+    }
+
+    /// A zero budget: no ratio, said as such, and any shown shift alarms.
+    #[test]
+    fn a_zero_budget_is_said_distinctly() {
+        let mut b = base();
+        b.channels[0].max_drift = Some(0.0);
+        let t = Thresholds {
+            nogo_max: -10,
+            go_min: 10,
+        };
+        let mut run = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        for _ in 0..100 {
+            run.decided(&t.decide(60), Some(&[120]));
+        }
+        let cfg = DriftConfig {
+            alpha: 0.01,
+            two_sided: false,
+        };
+        let r = drift(&b, Field::Run(&run), Source::Log, cfg);
+        let c = &r.channels[0];
+        assert!(c.zero_budget && c.of_budget.is_none() && c.alarm);
+        let json = serde_json::to_value(c).unwrap();
+        assert_eq!(json["zero_budget"], true);
+        assert!(crate::report::drift_markdown(&r, None).contains("– (zero budget)"));
+    }
+
+    /// A side with fewer than two baseline units has no limit, and drift and the plan say
+    /// so; a σ from fewer than 30 units is called rough.
+    #[test]
+    fn cusum_without_a_limit_is_said() {
+        let mut b = base();
+        b.plan.nogo.units = 1;
+        b.plan.nogo.limit = i64::MAX;
+        let t = Thresholds {
+            nogo_max: -10,
+            go_min: 10,
+        };
+        let mut run = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        run.decided(&t.decide(60), Some(&[100]));
+        let cfg = DriftConfig {
+            alpha: 0.01,
+            two_sided: false,
+        };
+        let r = drift(&b, Field::Run(&run), Source::Log, cfg);
+        let notes = r.notes.join("\n");
+        assert!(
+            notes.contains(
+                "CUSUM of NO-GO margins: no limit, the baseline had 1 < 2 units on that side"
+            ),
+            "{notes}"
+        );
+        assert!(
+            notes.contains("CUSUM of GO margins: σ comes from 10 baseline units"),
+            "{notes}"
+        );
+        let a = crate::field::baseline::AuditBaseline {
+            model_id: "m".into(),
+            blob_id: "00000001".into(),
+            baseline: b,
+        };
+        let plan = crate::field::baseline::plan_text(&a);
+        assert!(
+            plan.contains("CUSUM of NO-GO margins: no limit, the baseline had 1 < 2 units"),
+            "{plan}"
+        );
+        assert!(
+            plan.contains("CUSUM of GO margins: sd from 10 units (fewer than 30) is rough"),
+            "{plan}"
+        );
+        assert!(plan.contains("at least 1 LSB"), "{plan}");
+    }
+
+    /// The Fisher rule where the old interval rule missed: 19 of 400 against 5 of 400
+    /// (p = 0.0029, scipy.stats.fisher_exact) alarms at α = 0.01 though the 99 % intervals
+    /// overlap.
+    #[test]
+    fn rates_alarm_by_fisher() {
+        let mut b = base();
+        (b.units, b.go, b.nogo, b.recheck) = (400, 200, 195, 5);
+        let t = Thresholds {
+            nogo_max: -10,
+            go_min: 10,
+        };
+        let mut run = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
+        for i in 0..400 {
+            run.decided(&t.decide(if i < 19 { 0 } else { 60 }), Some(&[100]));
+        }
+        let cfg = DriftConfig {
+            alpha: 0.01,
+            two_sided: false,
+        };
+        let r = drift(&b, Field::Run(&run), Source::Log, cfg);
+        let x = &r.recheck_rate;
+        assert!(x.field.low < x.baseline.high, "intervals overlap");
+        assert!((x.p - 0.002926315735239587).abs() < 1e-12 && x.alarm);
     }
 }

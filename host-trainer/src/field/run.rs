@@ -146,6 +146,14 @@ impl FieldRun {
         s
     }
 
+    /// Every scored unit's score (GO, NO-GO and RECHECK: the units the record's histogram
+    /// counts), sorted.
+    pub fn sorted_all_scores(&self) -> Vec<i64> {
+        let mut s = self.all_scores.clone();
+        s.sort_unstable();
+        s
+    }
+
     /// Channel `c`'s count, mean and sample standard deviation (raw units), when the units
     /// came with values.
     pub fn channel(&self, c: usize) -> Option<(u64, f64, f64)> {
@@ -204,6 +212,6 @@ mod tests {
         assert_eq!(r.stats.units, 7);
         assert_eq!(r.channel(0).unwrap().0, 6);
         assert_eq!(r.sorted_scores(), vec![-30, 30, 35, 40, 50]);
-        assert_eq!(r.all_scores.len(), 6);
+        assert_eq!(r.sorted_all_scores(), vec![-30, 0, 30, 35, 40, 50]);
     }
 }

@@ -11,7 +11,11 @@
 //! The plan's CUSUMs are the tabular CUSUM with the settings Montgomery recommends
 //! (*Introduction to Statistical Quality Control*, §9.1): target μ₀ = the side's mean margin
 //! over its decided units, allowance k = σ/2, decision interval h = 5σ, σ the margins'
-//! sample standard deviation. For normally distributed margins these settings give an
+//! sample standard deviation, each rounded to a whole score unit (LSB) and k and h at least
+//! 1 LSB: a σ that rounds to 0 (a side whose margins barely vary) would otherwise give
+//! k = h = 0, and any 1-LSB dip would alarm. A σ from fewer than [`ROUGH_SIGMA_UNITS`] units
+//! is rough, and the plan text and the drift report say so. A side with fewer than two
+//! units has no σ: its limit is `i64::MAX`, the side cannot alarm, and both say so. For normally distributed margins these settings give an
 //! in-control average run length of about 465 units per one-sided sum (a figure from memory
 //! of Montgomery's table, not checked here); margins are seldom normal (a side's margins are
 //! bounded below by 0 and skewed), so the run length on a line is what it is, and the drift
@@ -28,6 +32,10 @@ use crate::train::float_model::FloatModel;
 /// Largest audit.json read back: the baseline holds every score of its log (a training log
 /// of millions of units makes a file of tens of MiB).
 pub const MAX_AUDIT_FILE: u64 = 1 << 30;
+
+/// Below this many units on a side, the margins' σ (and so k and h) is rough: said beside the
+/// plan and in the drift report.
+pub const ROUGH_SIGMA_UNITS: u64 = 30;
 
 /// The baseline a field log is compared with (see the module docs).
 #[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
@@ -118,9 +126,9 @@ pub struct CusumRecord {
     pub sd: f64,
     /// μ₀ = round(mean).
     pub target: i64,
-    /// k = round(σ/2).
+    /// k = max(1, round(σ/2)).
     pub slack: i64,
-    /// h = round(5σ); `i64::MAX` (no alarm) with fewer than two units.
+    /// h = max(1, round(5σ)); `i64::MAX` (no alarm) with fewer than two units.
     pub limit: i64,
 }
 
@@ -147,7 +155,8 @@ impl CusumRecord {
         }
     }
 
-    /// Settings from one side's margins: μ₀ = mean, k = σ/2, h = 5σ (Montgomery §9.1).
+    /// Settings from one side's margins: μ₀ = mean, k = σ/2, h = 5σ (Montgomery §9.1), k and
+    /// h at least 1 LSB.
     fn of(margins: &[i64]) -> Self {
         let (mean, sd) = mean_sd(margins.iter().map(|&m| m as f64));
         let few = margins.len() < 2;
@@ -156,11 +165,11 @@ impl CusumRecord {
             mean,
             sd,
             target: mean.round() as i64,
-            slack: (sd / 2.0).round() as i64,
+            slack: ((sd / 2.0).round() as i64).max(1),
             limit: if few {
                 i64::MAX
             } else {
-                (5.0 * sd).round() as i64
+                ((5.0 * sd).round() as i64).max(1)
             },
         }
     }
@@ -323,6 +332,18 @@ mod tests {
         assert_eq!((c.target, c.slack, c.limit), (5, 1, 11));
         assert!((c.sd - (32.0f64 / 7.0).sqrt()).abs() < 1e-12);
         assert_eq!(CusumRecord::of(&[3]).limit, i64::MAX);
+        assert_eq!(CusumRecord::of(&[]).limit, i64::MAX);
+    }
+
+    /// Margins 7, 7, 7 (σ = 0) and 7, 7, 7, 8 (σ = 0.5: k = round(0.25) = 0, h = round(2.5)
+    /// = 3): k is floored at 1 LSB, and h where it would round to 0.
+    #[test]
+    fn cusum_settings_are_at_least_one_lsb() {
+        let c = CusumRecord::of(&[7, 7, 7]);
+        assert_eq!((c.target, c.slack, c.limit), (7, 1, 1));
+        let c = CusumRecord::of(&[7, 7, 7, 8]);
+        assert!((c.sd - 0.5).abs() < 1e-12);
+        assert_eq!((c.target, c.slack, c.limit), (7, 1, 3));
     }
 
     #[test]

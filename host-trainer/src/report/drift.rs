@@ -26,7 +26,7 @@ fn opt(v: Option<f64>, digits: usize) -> String {
 
 fn rate_row(name: &str, r: &RateShift) -> String {
     format!(
-        "| {name} | {} of {} = {} [{}, {}] | {} of {} = {} [{}, {}] | {} |\n",
+        "| {name} | {} of {} = {} [{}, {}] | {} of {} = {} [{}, {}] | {:.3e} | {} |\n",
         r.field.count,
         r.field.of,
         percent(r.field.rate),
@@ -37,6 +37,7 @@ fn rate_row(name: &str, r: &RateShift) -> String {
         percent(r.baseline.rate),
         percent(r.baseline.low),
         percent(r.baseline.high),
+        r.p,
         if r.alarm { "**ALARM**" } else { "–" }
     )
 }
@@ -49,11 +50,15 @@ fn cusum_row(name: &str, c: &CusumSide) -> String {
             u.to_string()
         }
     };
+    let limit = if c.limit == i64::MAX {
+        "none".to_string()
+    } else {
+        c.limit.to_string()
+    };
     format!(
-        "| {name} | {} | {} | {} | {} | {} | {} | {} | {} |\n",
+        "| {name} | {} | {} | {limit} | {} | {} | {} | {} | {} |\n",
         c.target,
         c.slack,
-        c.limit,
         c.down,
         unit(c.alarm_down),
         c.up,
@@ -104,7 +109,7 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     let _ = writeln!(s, "## Channels\n");
     let _ = writeln!(
         s,
-        "Each channel's mean over the scored units (the values the weights multiply, in physical units), its shift from the baseline in units of the declared noise and of the drift the audit allows it alone (the margin budget). Rule: alarm when the shift less z = {:.3} standard errors (Welch; the normal quantile 1 − α/2c, Bonferroni over the c channels with a budget) exceeds the budget.\n",
+        "Each channel's mean over the scored units (the values the weights multiply, in physical units) and its shift Δ from the baseline, in units of the declared noise. The shown shift is |Δ| less z = {:.3} standard errors (Welch; the normal quantile 1 − α/2c, Bonferroni over the c channels with a budget), floored at 0: the least shift the field shows. Rule: alarm when the shown shift exceeds the drift the audit allows the channel alone (the margin budget); \"shown ÷ budget\" above 1 alarms.\n",
         r.channel_z
     );
     if r.channels.is_empty() {
@@ -112,12 +117,12 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     } else {
         let _ = writeln!(
             s,
-            "| channel | baseline mean | field mean | shift | standard error | shift ÷ noise | shift ÷ budget | shown shift | budget | |\n|---|---|---|---|---|---|---|---|---|---|"
+            "| channel | baseline mean | field mean | shift | standard error | shift ÷ noise | shown shift | budget | shown ÷ budget | |\n|---|---|---|---|---|---|---|---|---|---|"
         );
         for c in &r.channels {
             let _ = writeln!(
                 s,
-                "| {} ({}) | {:.4} | {:.4} | {:+.4} | {:.4} | {} | {} | {:.4} | {} | {} |",
+                "| {} ({}) | {:.4} | {:.4} | {:+.4} | {:.4} | {} | {:.4} | {} | {} | {} |",
                 md(&c.channel),
                 md(&c.unit),
                 c.baseline_mean,
@@ -125,9 +130,17 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
                 c.shift,
                 c.standard_error,
                 opt(c.in_noise, 2),
-                opt(c.of_budget, 2),
                 c.shown_shift,
-                opt(c.budget, 4),
+                if c.zero_budget {
+                    "zero".into()
+                } else {
+                    opt(c.budget, 4)
+                },
+                if c.zero_budget {
+                    "– (zero budget)".into()
+                } else {
+                    opt(c.of_budget, 2)
+                },
                 if c.alarm { "**ALARM**" } else { "–" }
             );
         }
@@ -136,10 +149,10 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     let _ = writeln!(s, "## Score distribution\n");
     let _ = writeln!(
         s,
-        "Two-sample Kolmogorov–Smirnov test (Smirnov, 1939) of the decided units' scores against the baseline's: D = {:.4}{}, n = {} baseline and m = {} field scores, effective n = nm/(n + m) = {:.1}, asymptotic p = Q(D·√n_e) = {:.3e} (Kolmogorov's limiting distribution). Rule: alarm at p < α. {}\n",
+        "Two-sample Kolmogorov–Smirnov test (Smirnov, 1939) of every scored unit's score (GO, NO-GO and RECHECK) against the baseline's: D = {:.4}{}, n = {} baseline and m = {} field scores, effective n = nm/(n + m) = {:.1}, asymptotic p = Q(D·√n_e) = {:.3e} (Kolmogorov's limiting distribution). Rule: alarm at p < α. {}\n",
         r.ks.d,
         if r.ks.binned {
-            " (over bin edges: a lower bound of D)"
+            " (over bin edges: a lower bound of the D of the log the record counted)"
         } else {
             ""
         },
@@ -152,7 +165,7 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     let _ = writeln!(s, "## RECHECK and FAULT rates\n");
     let _ = writeln!(
         s,
-        "Among all units, with exact Clopper–Pearson intervals at {:.0} %. Rule: alarm when the field's lower end exceeds the baseline's upper end.\n\n| rate | field [interval] | baseline [interval] | |\n|---|---|---|---|",
+        "Among all units, with exact Clopper–Pearson intervals at {:.0} %. Rule: alarm when Fisher's exact test (Fisher, 1935; one-sided, the field's rate greater than the baseline's: the upper tail of the hypergeometric distribution of the field's count given both totals) gives p < α.\n\n| rate | field [interval] | baseline [interval] | Fisher p | |\n|---|---|---|---|---|",
         100.0 * (1.0 - r.alpha)
     );
     s.push_str(&rate_row("RECHECK", &r.recheck_rate));
@@ -161,7 +174,7 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     let _ = writeln!(s, "## CUSUM of the margins\n");
     let _ = writeln!(
         s,
-        "Tabular CUSUM (Page, 1954; settings after Montgomery, *Introduction to Statistical Quality Control*, §9.1) of each side's margins over the field units in order, GO units' `score − go_min` and NO-GO units' `nogo_max − score`, in score units: target μ₀ the baseline's mean margin, allowance k = σ/2, decision interval h = 5σ. The lower sum C⁻ = max(0, C⁻ + μ₀ − k − m) grows when margins shrink (units walking towards the boundary), the upper sum C⁺ when they grow. Rule: alarm when C⁻ passes h{}. Alarm units count all field units from 1.\n\n| side | μ₀ | k | h | C⁻ at end | C⁻ alarm at unit | C⁺ at end | C⁺ passed h at unit | |\n|---|---|---|---|---|---|---|---|---|",
+        "Tabular CUSUM (Page, 1954; settings after Montgomery, *Introduction to Statistical Quality Control*, §9.1) of each side's margins over the field units in order, GO units' `score − go_min` and NO-GO units' `nogo_max − score`, in score units: target μ₀ the baseline's mean margin, allowance k = σ/2, decision interval h = 5σ (each a whole score unit, k and h at least 1; h \"none\": the baseline had fewer than two units on that side, which cannot alarm). The lower sum C⁻ = max(0, C⁻ + μ₀ − k − m) grows when margins shrink (units walking towards the boundary), the upper sum C⁺ when they grow. Rule: alarm when C⁻ passes h{}. Alarm units count all field units from 1.\n\n| side | μ₀ | k | h | C⁻ at end | C⁻ alarm at unit | C⁺ at end | C⁺ passed h at unit | |\n|---|---|---|---|---|---|---|---|---|",
         if r.two_sided {
             " or C⁺ passes h (--two-sided)"
         } else {

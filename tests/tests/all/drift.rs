@@ -2,8 +2,9 @@
 //! `tests/verify/drift.py` recomputes the Kolmogorov–Smirnov D with
 //! `scipy.stats.ks_2samp` and its p-value with `scipy.special.kolmogorov` and
 //! `scipy.stats.kstwobign.sf`, the CUSUM from Page's (1954) published recursion with
-//! Montgomery's settings (§9.1), and the rates' Clopper–Pearson intervals with
-//! `scipy.stats.beta.ppf`.
+//! Montgomery's settings (§9.1), the rates' Clopper–Pearson intervals with
+//! `scipy.stats.beta.ppf`, and their one-sided Fisher exact p-values with
+//! `scipy.stats.fisher_exact(alternative="greater")` and `scipy.stats.hypergeom.sf`.
 
 use std::path::Path;
 use std::process::{Command, Output};
@@ -50,8 +51,13 @@ fn shared(v: &Value) -> Vec<&Value> {
     .collect()
 }
 
+/// The demo's logs against its audit's held-out baseline. The drifted log alarms on every
+/// path. The training log alarms by the log and the lines on the score distribution alone
+/// (D = 0.1025 over every scored unit, p = 0.0074 < α = 0.01: the model was fitted to those
+/// units, so their scores differ from held-out units'), not by its record, whose binned D
+/// (0.0875) is a lower bound. The held-out log itself is in control.
 #[test]
-fn drift_alarms_on_the_drifted_log_and_not_on_the_training_log() {
+fn drift_on_the_demo_logs() {
     let bin = crate::c_api::linegate_bin();
     let tmp = tempfile::tempdir().unwrap();
     let d = tmp.path();
@@ -70,7 +76,7 @@ fn drift_alarms_on_the_drifted_log_and_not_on_the_training_log() {
         "model.lgmb",
     ];
     let mut pairs: Vec<String> = Vec::new();
-    for (log, want) in [("drift", 1), ("train", 0), ("holdout", 0)] {
+    for (log, want, want_record) in [("drift", 1, 1), ("train", 1, 0), ("holdout", 0, 0)] {
         let csv = format!("{log}-synthetic.csv");
         let rec = format!("{log}.lgfr");
         // The log through the blob's kernel; the host's record of it.
@@ -99,7 +105,16 @@ fn drift_alarms_on_the_drifted_log_and_not_on_the_training_log() {
         assert_eq!(by_log["ks"], by_lines["ks"], "{log}");
         // The record of the log gives the same alarms, the binned KS test aside.
         let (code, by_record) = drift_json(&bin, d, &["--record", &rec, "--audit", "audit.json"]);
-        assert_eq!(code, Some(want), "{log} record: {by_record:#}");
+        assert_eq!(code, Some(want_record), "{log} record: {by_record:#}");
+        // Both over every scored unit: the record's D over bin edges is at most the log's.
+        let d_of = |v: &Value| v["ks"]["d"].as_f64().unwrap();
+        assert!(
+            d_of(&by_record) <= d_of(&by_log) + 1e-12,
+            "{log}: record D {} > log D {}",
+            d_of(&by_record),
+            d_of(&by_log)
+        );
+        assert_eq!(by_record["ks"]["m"], by_log["ks"]["m"], "{log}");
         assert_eq!(shared(&by_log), shared(&by_record), "{log}");
         assert_eq!(by_record["ks"]["binned"], true);
         let not_ks = |v: &Value| -> Vec<String> {
@@ -113,6 +128,13 @@ fn drift_alarms_on_the_drifted_log_and_not_on_the_training_log() {
                 .collect()
         };
         assert_eq!(not_ks(&by_log), not_ks(&by_record), "{log}");
+        if log == "train" {
+            let alarms = by_log["alarms"].as_array().unwrap();
+            assert!(
+                alarms.len() == 1 && by_log["ks_alarm"] == true,
+                "{by_log:#}"
+            );
+        }
         for (a, b) in by_log["channels"]
             .as_array()
             .unwrap()
@@ -126,11 +148,54 @@ fn drift_alarms_on_the_drifted_log_and_not_on_the_training_log() {
         pairs.push(lines);
         pairs.push(format!("{log}.json"));
     }
-    // The drifted log: the CUSUM of GO margins and the bearing temperature alarm.
+    // The drifted log: the CUSUM of GO margins, the bearing temperature and the RECHECK
+    // rate (19 of 400 against 5 of 400: Fisher p = 0.0029) alarm.
     let (_, v) = drift_json(&bin, d, &[&["drift-synthetic.csv"][..], &release].concat());
     let alarms = v["alarms"].to_string();
     assert!(alarms.contains("CUSUM of GO margins"), "{alarms}");
     assert!(alarms.contains("bearing_temp_rise_c"), "{alarms}");
+    assert!(alarms.contains("RECHECK rate 19 of 400"), "{alarms}");
+    // An empty field is not tested: a header-only log, every row skipped, lines with only
+    // the model line, a record of no units.
+    let header = std::fs::read_to_string(d.join("train-synthetic.csv")).unwrap();
+    let mut rows = header.lines();
+    let head = rows.next().unwrap();
+    std::fs::write(d.join("empty.csv"), format!("{head}\n")).unwrap();
+    let bad: String = rows
+        .take(3)
+        .map(|r| {
+            let mut f: Vec<&str> = r.split(',').collect();
+            f[2] = "not-a-number";
+            f.join(",") + "\n"
+        })
+        .collect();
+    std::fs::write(d.join("bad.csv"), format!("{head}\n{bad}")).unwrap();
+    let model_line = std::fs::read_to_string(d.join("lines-train.txt")).unwrap();
+    let model_line = model_line.lines().next().unwrap();
+    std::fs::write(d.join("empty-lines.txt"), format!("{model_line}\n")).unwrap();
+    let audit_b = host_trainer::field::baseline::read(&d.join("audit.json")).unwrap();
+    let plan = audit_b.baseline.plan.field_plan();
+    let stats = shared_model::FieldStats::new(plan, audit_b.baseline.channels.len(), 0);
+    std::fs::write(
+        d.join("empty.lgfr"),
+        host_trainer::field::record::record_bytes(&stats),
+    )
+    .unwrap();
+    for args in [
+        &[&["empty.csv"][..], &release].concat(),
+        &[&["bad.csv", "--skip-bad-rows"][..], &release].concat(),
+        &["--lines", "empty-lines.txt", "--audit", "audit.json"][..],
+        &["--record", "empty.lgfr", "--audit", "audit.json"][..],
+    ] {
+        let o = linegate(&bin, d, &[&["-q", "drift"][..], args].concat());
+        // Exit 2 where the command line asks `require_units` (the field has no units, a
+        // usage error); never 0.
+        assert!(matches!(o.status.code(), Some(1 | 2)), "{args:?}: {o:?}");
+        assert!(
+            String::from_utf8_lossy(&o.stderr).contains("the field has no units"),
+            "{args:?}: {o:?}"
+        );
+    }
     // The report, its chart, and the device plan.
     let o = linegate(
         &bin,
@@ -188,6 +253,45 @@ fn drift_alarms_on_the_drifted_log_and_not_on_the_training_log() {
         );
         assert!(text.contains(": 0 disagreeing"), "{text}");
     }
+}
+
+/// The one-sided Fisher p-value of the rates' rule against scipy's `fisher_exact` and
+/// `hypergeom.sf` (tests/verify/drift.py fisher) on tables with zeros and large counts.
+#[test]
+fn fisher_p_values_against_scipy() {
+    let tmp = tempfile::tempdir().unwrap();
+    let tables: Vec<Value> = [
+        (19, 400, 5, 400),
+        (30, 400, 5, 400),
+        (0, 1000, 0, 50_000),
+        (1, 1000, 0, 50_000),
+        (3, 10, 0, 10),
+        (0, 5, 3, 5),
+        (7, 20, 2, 30),
+        (400, 400, 0, 400),
+        (5, 1_000_000, 2, 1_000_000),
+        (1200, 1_000_000, 1000, 1_000_000),
+        (60, 1_000_000, 20, 3_000_000),
+        (40_000, 1_000_000, 30_000, 1_000_000),
+    ]
+    .iter()
+    .map(|&(k1, n1, k2, n2)| {
+        let p = host_trainer::field::fisher::greater(k1, n1, k2, n2);
+        serde_json::json!([k1, n1, k2, n2, p])
+    })
+    .collect();
+    let path = tmp.path().join("tables.json");
+    std::fs::write(&path, serde_json::to_string(&tables).unwrap()).unwrap();
+    let Some((code, text)) = crate::python_check(
+        WHAT,
+        "drift.py",
+        &["fisher".as_ref(), path.as_os_str()],
+        tmp.path(),
+    ) else {
+        return;
+    };
+    assert_eq!(code, Some(0), "{text}");
+    assert!(text.contains("12 tables: 0 disagreeing"), "{text}");
 }
 
 /// Real data: scikit-learn's bundled breast-cancer set (`drift.py cancer`), trained on half
