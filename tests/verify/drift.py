@@ -195,9 +195,13 @@ def main(audit_path, pairs):
             errs.append(f"{name}: sizes {(ks['n'], ks['m'])} != {(n, m)}")
         if not close(ks["p"], p_k) or not close(ks["p"], p_b):
             errs.append(f"{name}: p {ks['p']} != kolmogorov {p_k} / kstwobign.sf {p_b}")
+        # The family-wise level alpha is split over the four p-value tests (Bonferroni).
         alpha = r["alpha"]
-        if (ks["p"] < alpha) != r["ks_alarm"]:
-            errs.append(f"{name}: KS alarm {r['ks_alarm']} with p {ks['p']} at alpha {alpha}")
+        level = r["test_alpha"]
+        if not close(level, alpha / 4, 1e-15):
+            errs.append(f"{name}: per-test level {level} != alpha/4 = {alpha / 4}")
+        if (ks["p"] < level) != r["ks_alarm"]:
+            errs.append(f"{name}: KS alarm {r['ks_alarm']} with p {ks['p']} at alpha/4 {level}")
         # CUSUM per side, over the units in order (unit numbers count every unit from 1).
         for side, verdict, margin in (
             ("go", "GO", lambda s: s - go_min),
@@ -229,9 +233,9 @@ def main(audit_path, pairs):
             fa, fb = fisher_p(count, total, bcount, b["units"])
             if not p_close(x["p"], fa) or not p_close(x["p"], fb):
                 errs.append(f"{name}: {key} Fisher p {x['p']} != fisher_exact {fa} / hypergeom.sf {fb}")
-            want_alarm = total > 0 and fa < alpha
+            want_alarm = total > 0 and fa < level
             if x["alarm"] != want_alarm:
-                errs.append(f"{name}: {key} alarm {x['alarm']} != {want_alarm} (Fisher p {fa}, alpha {alpha})")
+                errs.append(f"{name}: {key} alarm {x['alarm']} != {want_alarm} (Fisher p {fa}, alpha/4 {level})")
             print(f"{name}: {key} {count}/{total} vs {bcount}/{b['units']}: Fisher p {x['p']:.6e} (scipy {fa:.6e})")
         print(
             f"{name}: D {ks['d']:.6f} (scipy {ref.statistic:.6f}), p {ks['p']:.6e} "

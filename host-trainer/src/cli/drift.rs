@@ -42,8 +42,11 @@ pub struct DriftArgs {
     /// Instead of logs: the device's field record (its bytes, as the device wrote them).
     #[arg(long, value_name = "FILE", conflicts_with_all = ["logs", "lines"])]
     pub record: Option<PathBuf>,
-    /// The level of every test: the KS p-value, the rates' Clopper–Pearson intervals (at
-    /// 1 − α) and the channel shifts (Bonferroni over the channels).
+    /// The family-wise level of the drift test's p-value tests: the channel shifts, the KS
+    /// p-value and the RECHECK and FAULT rates' one-sided Fisher exact p-values each run at
+    /// α/4 (Bonferroni; the channels further split over the channels), so an in-control
+    /// field alarms through them with probability at most α. The rates' Clopper–Pearson
+    /// intervals are shown at 1 − α.
     #[arg(long, default_value_t = 0.01)]
     pub alpha: f64,
     /// Also alarm when margins grow (the CUSUMs' upper sums); by default only shrinking
@@ -149,6 +152,7 @@ impl DriftArgs {
             r.files = files;
             (r, Some(record::record_bytes(&run.stats)))
         };
+        report.require_units()?;
         let mut set = OutputSet::default();
         if let Some(p) = &self.report {
             if p.extension()
@@ -264,7 +268,7 @@ fn summary(r: &DriftReport) {
         r.baseline_log
     );
     say!(
-        "  scores: KS D = {:.4}{}, p = {:.3e} (n = {}, m = {}; alarm at p < {})",
+        "  scores: KS D = {:.4}{}, p = {:.3e} (n = {}, m = {}; alarm at p < α/4 = {})",
         r.ks.d,
         if r.ks.binned {
             " (binned: lower bound)"
@@ -274,17 +278,18 @@ fn summary(r: &DriftReport) {
         r.ks.p,
         r.ks.n,
         r.ks.m,
-        r.alpha
+        r.test_alpha
     );
     for (n, x) in [("RECHECK", &r.recheck_rate), ("FAULT", &r.fault_rate)] {
         say!(
-            "  {n}: {:.2} % [{:.2}, {:.2}] against {:.2} % [{:.2}, {:.2}]",
+            "  {n}: {:.2} % [{:.2}, {:.2}] against {:.2} % [{:.2}, {:.2}], Fisher p = {:.3e}",
             100.0 * x.field.rate,
             100.0 * x.field.low,
             100.0 * x.field.high,
             100.0 * x.baseline.rate,
             100.0 * x.baseline.low,
-            100.0 * x.baseline.high
+            100.0 * x.baseline.high,
+            x.p
         );
     }
     for (n, c) in [("GO", &r.cusum_go), ("NO-GO", &r.cusum_nogo)] {
@@ -306,12 +311,17 @@ fn summary(r: &DriftReport) {
     }
     for c in &r.channels {
         say!(
-            "  {}: shift {:+.4} {} ({} noise, {} of the budget)",
+            "  {}: shift {:+.4} {} ({} noise, {})",
             super::shown(&c.channel),
             c.shift,
             super::shown(&c.unit),
             c.in_noise.map_or("-".into(), |v| format!("{v:+.2}")),
-            c.of_budget.map_or("-".into(), |v| format!("{v:.2}"))
+            if c.zero_budget {
+                "zero budget".to_string()
+            } else {
+                c.of_budget
+                    .map_or("no budget".into(), |v| format!("{v:.2} shown ÷ budget"))
+            }
         );
     }
     for n in &r.notes {

@@ -135,5 +135,17 @@ pub fn plan_text(a: &AuditBaseline) -> String {
         r(&p.go),
         r(&p.nogo)
     );
+    let _ = writeln!(
+        s,
+        "\n# Plan file (`key = integer` lines; the QEMU example's LINEGATE_FIELD_PLAN):\norigin = {}\nshift = {}\ngo_target = {}\ngo_slack = {}\ngo_limit = {}\nnogo_target = {}\nnogo_slack = {}\nnogo_limit = {}",
+        p.origin,
+        p.shift,
+        p.go.target,
+        p.go.slack,
+        p.go.limit,
+        p.nogo.target,
+        p.nogo.slack,
+        p.nogo.limit
+    );
     s
 }

@@ -45,10 +45,18 @@ pub enum Source {
     Record,
 }
 
+/// The p-value tests `alpha` is split over (Bonferroni): channels, scores, RECHECK rate,
+/// FAULT rate. One drift check answers with one exit code, so its false-alarm rate is the
+/// family's, not one test's.
+pub const TESTS: u32 = 4;
+
 /// The test's settings.
 #[derive(Clone, Copy, Debug)]
 pub struct DriftConfig {
-    /// The level of every test (KS, rates, channels before Bonferroni).
+    /// The family-wise level of the p-value tests: each of the [`TESTS`] (channels,
+    /// scores, RECHECK rate, FAULT rate) runs at `alpha / TESTS` (Bonferroni), the channels
+    /// further split over the channels, so that an in-control field alarms through any of
+    /// them with probability at most `alpha`. The CUSUMs are judged by their own limits.
     pub alpha: f64,
     /// Alarm on the upper CUSUM sums too.
     pub two_sided: bool,
@@ -129,8 +137,10 @@ pub struct DriftReport {
     pub source: Source,
     /// The field's files.
     pub files: Vec<String>,
-    /// α.
+    /// α, the family-wise level.
     pub alpha: f64,
+    /// The level each p-value test runs at: α / [`TESTS`].
+    pub test_alpha: f64,
     /// The upper CUSUM sums alarm too.
     pub two_sided: bool,
     /// The baseline's log and why.
@@ -231,6 +241,7 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
     let mut notes = Vec::new();
     let mut alarms = Vec::new();
     let conf = 1.0 - cfg.alpha;
+    let level = cfg.alpha / f64::from(TESTS);
     // Channels.
     let budgeted = base
         .channels
@@ -238,7 +249,7 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
         .filter(|c| c.max_drift.is_some())
         .count();
     let z = Normal::new(0.0, 1.0).map_or(f64::NAN, |n| {
-        n.inverse_cdf(1.0 - cfg.alpha / (2.0 * budgeted.max(1) as f64))
+        n.inverse_cdf(1.0 - level / (2.0 * budgeted.max(1) as f64))
     });
     let mut channels = Vec::new();
     let values_known = run.is_none_or(|r| r.has_values);
@@ -270,12 +281,12 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
         let zero_budget = b.max_drift == Some(0.0);
         if alarm {
             alarms.push(format!(
-                "channel {}: mean shift {:+.4} {} (at least {:.4} at α = {}, Bonferroni over {budgeted}) uses more than its allowed drift {:.4} {}",
+                "channel {}: mean shift {:+.4} {} (at least {:.4} at α/{TESTS} = {}, Bonferroni over {budgeted}) uses more than its allowed drift {:.4} {}",
                 b.name,
                 shift,
                 b.unit,
                 shown,
-                cfg.alpha,
+                level,
                 b.max_drift.unwrap_or(0.0),
                 b.unit
             ));
@@ -308,11 +319,11 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
     if ks.binned {
         notes.push("a device record keeps scores by bin: D is taken over the bin edges against the baseline's scored units binned alike, a lower bound of the D of the log it counted".into());
     }
-    let ks_alarm = ks.m > 0 && ks.n > 0 && ks.p < cfg.alpha;
+    let ks_alarm = ks.m > 0 && ks.n > 0 && ks.p < level;
     if ks_alarm {
         alarms.push(format!(
-            "scores: Kolmogorov–Smirnov D = {:.4}, p = {:.2e} < α = {}",
-            ks.d, ks.p, cfg.alpha
+            "scores: Kolmogorov–Smirnov D = {:.4}, p = {:.2e} < α/{TESTS} = {}",
+            ks.d, ks.p, level
         ));
     }
     // Rates.
@@ -321,14 +332,14 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
         let field = Rate::new(f, units, conf);
         let baseline = Rate::new(b, base.units, conf);
         let p = fisher::greater(f, units, b, base.units);
-        let alarm = units > 0 && p < cfg.alpha;
+        let alarm = units > 0 && p < level;
         if alarm {
             alarms.push(format!(
-                "{what} rate {f} of {units} = {:.2} % above the baseline's {b} of {} = {:.2} %: Fisher's exact test (one-sided) p = {p:.2e} < α = {}",
+                "{what} rate {f} of {units} = {:.2} % above the baseline's {b} of {} = {:.2} %: Fisher's exact test (one-sided) p = {p:.2e} < α/{TESTS} = {}",
                 100.0 * field.rate,
                 base.units,
                 100.0 * baseline.rate,
-                cfg.alpha
+                level
             ));
         }
         RateShift {
@@ -399,6 +410,7 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
         source,
         files: Vec::new(),
         alpha: cfg.alpha,
+        test_alpha: level,
         two_sided: cfg.two_sided,
         baseline_log: base.log.clone(),
         baseline_rule: base.rule.clone(),

@@ -83,7 +83,7 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     };
     let _ = writeln!(
         s,
-        "Field: {} ({source}), {} units: {} GO, {} NO-GO, {} RECHECK, {} FAULT.\n\nBaseline: the audit's log `{}` ({}). Level α = {} for every test.\n",
+        "Field: {} ({source}), {} units: {} GO, {} NO-GO, {} RECHECK, {} FAULT.\n\nBaseline: the audit's log `{}` ({}). Family-wise level α = {}: each of the four p-value tests (channels, scores, RECHECK rate, FAULT rate) runs at α/4 = {} (Bonferroni), so an in-control field alarms through them with probability at most α; the CUSUMs have their own limits.\n",
         r.files.iter().map(|f| md(f)).collect::<Vec<_>>().join(", "),
         r.units,
         r.go,
@@ -92,7 +92,8 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
         r.faults,
         md(&r.baseline_log),
         md(&r.baseline_rule),
-        r.alpha
+        r.alpha,
+        r.test_alpha
     );
     if r.alarms.is_empty() {
         let _ = writeln!(s, "No alarm.\n");
@@ -149,7 +150,7 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     let _ = writeln!(s, "## Score distribution\n");
     let _ = writeln!(
         s,
-        "Two-sample Kolmogorov–Smirnov test (Smirnov, 1939) of every scored unit's score (GO, NO-GO and RECHECK) against the baseline's: D = {:.4}{}, n = {} baseline and m = {} field scores, effective n = nm/(n + m) = {:.1}, asymptotic p = Q(D·√n_e) = {:.3e} (Kolmogorov's limiting distribution). Rule: alarm at p < α. {}\n",
+        "Two-sample Kolmogorov–Smirnov test (Smirnov, 1939) of every scored unit's score (GO, NO-GO and RECHECK) against the baseline's: D = {:.4}{}, n = {} baseline and m = {} field scores, effective n = nm/(n + m) = {:.1}, asymptotic p = Q(D·√n_e) = {:.3e} (Kolmogorov's limiting distribution). Rule: alarm at p < α/4. {}\n",
         r.ks.d,
         if r.ks.binned {
             " (over bin edges: a lower bound of the D of the log the record counted)"
@@ -165,7 +166,7 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     let _ = writeln!(s, "## RECHECK and FAULT rates\n");
     let _ = writeln!(
         s,
-        "Among all units, with exact Clopper–Pearson intervals at {:.0} %. Rule: alarm when Fisher's exact test (Fisher, 1935; one-sided, the field's rate greater than the baseline's: the upper tail of the hypergeometric distribution of the field's count given both totals) gives p < α.\n\n| rate | field [interval] | baseline [interval] | Fisher p | |\n|---|---|---|---|---|",
+        "Among all units, with exact Clopper–Pearson intervals at {:.0} %. Rule: alarm when Fisher's exact test (Fisher, 1935; one-sided, the field's rate greater than the baseline's: the upper tail of the hypergeometric distribution of the field's count given both totals) gives p < α/4.\n\n| rate | field [interval] | baseline [interval] | Fisher p | |\n|---|---|---|---|---|",
         100.0 * (1.0 - r.alpha)
     );
     s.push_str(&rate_row("RECHECK", &r.recheck_rate));

@@ -462,14 +462,18 @@ fn rust_example_on_m0_m3_m4f_m33_and_riscv_agrees_with_replay() {
     let replay = std::fs::read_to_string(d.join("lines.txt")).unwrap();
     let want: Vec<&str> = replay.lines().collect();
     assert!(want.len() > 300, "the drifted log's units: {}", want.len());
-    // The plan the audit recorded, as the device build takes it.
+    // The plan the audit recorded, as `drift --plan` prints it for the device build.
+    let o = run(&["-q", "drift", "--audit", "demo", "--plan"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let text = String::from_utf8(o.stdout).unwrap();
+    let plan_file = &text[text.find("# Plan file").expect("the plan file form")..];
+    let plan_path = d.join("plan.txt");
+    std::fs::write(&plan_path, plan_file).unwrap();
     let plan = host_trainer::field::baseline::read(&d.join("demo/audit.json"))
         .unwrap()
         .baseline
         .plan
         .field_plan();
-    let plan_path = d.join("plan.txt");
-    crate::device_field::write_plan(&plan_path, &plan);
     let host = std::fs::read(d.join("host.lgfr")).unwrap();
     let field = shared_model::FieldStats::decode(&host).unwrap();
     assert_eq!(field.plan, plan);
