@@ -485,8 +485,9 @@ mod tests {
     }
 
     /// By hand: 100 units of value 120 (raw) against a mean of 100 (sd 10 over 100): the
-    /// shift is 20 raw = 10 V, SE = 0.5·√(100/100 + 0) = 0.5 V, z = Φ⁻¹(0.995) ≈ 2.576, so the
-    /// shown shift 10 − 1.29 ≈ 8.71 V exceeds the 2 V budget (4.36 budgets); 10 noise units.
+    /// shift is 20 raw = 10 V, SE = 0.5·√(100/100 + 0) = 0.5 V, z = Φ⁻¹(1 − 0.01/4/2) ≈ 3.0233
+    /// (the family-wise α over four tests, two-sided, one channel; scipy.stats.norm.ppf), so
+    /// the shown shift 10 − 1.51 ≈ 8.49 V exceeds the 2 V budget (4.24 budgets); 10 noise units.
     /// The RECHECK rate 30 of 100 against 1 of 100 alarms too (Fisher p far below α); GO margins of 10 against μ₀ = 50, k = 5: C⁻ grows 35 a unit and passes
     /// h = 50 at the second GO unit (unit 5: units 1–3 are RECHECK).
     #[test]
@@ -509,7 +510,7 @@ mod tests {
         let c = &r.channels[0];
         assert!((c.shift - 10.0).abs() < 1e-12 && (c.standard_error - 0.5).abs() < 1e-12);
         assert_eq!(c.in_noise, Some(10.0));
-        assert!((r.channel_z - 2.5758293035489).abs() < 1e-9);
+        assert!((r.channel_z - 3.023341439739154).abs() < 1e-9);
         let shown = 10.0 - r.channel_z * 0.5;
         assert!((c.shown_shift - shown).abs() < 1e-12);
         assert!((c.of_budget.unwrap() - shown / 2.0).abs() < 1e-12);
@@ -517,7 +518,7 @@ mod tests {
         // The report's row: shown shift, budget, shown ÷ budget.
         let md = crate::report::drift_markdown(&r, None);
         assert!(
-            md.contains("| 10.00 | 8.7121 | 2.0000 | 4.36 | **ALARM** |"),
+            md.contains("| 10.00 | 8.4883 | 2.0000 | 4.24 | **ALARM** |"),
             "{md}"
         );
         assert!(c.alarm);
@@ -647,9 +648,9 @@ mod tests {
         assert!(plan.contains("at least 1 LSB"), "{plan}");
     }
 
-    /// The Fisher rule where the old interval rule missed: 19 of 400 against 5 of 400
-    /// (p = 0.0029, scipy.stats.fisher_exact) alarms at α = 0.01 though the 99 % intervals
-    /// overlap.
+    /// The Fisher rule where an interval rule misses: 19 of 400 against 5 of 400
+    /// (p = 0.0029, scipy.stats.fisher_exact) alarms at the family-wise α = 0.02 (each test at
+    /// α/4 = 0.005) though the 98 % intervals overlap, and not at α = 0.01 (α/4 = 0.0025).
     #[test]
     fn rates_alarm_by_fisher() {
         let mut b = base();
@@ -663,12 +664,19 @@ mod tests {
             run.decided(&t.decide(if i < 19 { 0 } else { 60 }), Some(&[100]));
         }
         let cfg = DriftConfig {
-            alpha: 0.01,
+            alpha: 0.02,
             two_sided: false,
         };
         let r = drift(&b, Field::Run(&run), Source::Log, cfg);
         let x = &r.recheck_rate;
         assert!(x.field.low < x.baseline.high, "intervals overlap");
         assert!((x.p - 0.002926315735239587).abs() < 1e-12 && x.alarm);
+        let r = drift(
+            &b,
+            Field::Run(&run),
+            Source::Log,
+            DriftConfig { alpha: 0.01, ..cfg },
+        );
+        assert!(!r.recheck_rate.alarm);
     }
 }
