@@ -7,7 +7,7 @@ here=$(cd "$(dirname "$0")" && pwd)
 secs=${1:-60}
 shift || true
 targets=("$@")
-[ ${#targets[@]} -gt 0 ] || targets=(blob_decode kernel bench_log channel_sheet hex_image model_file signal_log parquet_log)
+[ ${#targets[@]} -gt 0 ] || targets=(blob_decode kernel bench_log channel_sheet hex_image model_file signal_log parquet_log field_inputs)
 # cargo-fuzz needs nightly flags (-Z sanitizer); without a nightly toolchain the stable one
 # is told to accept them (RUSTC_BOOTSTRAP=1), which works for these targets.
 if rustup run nightly rustc --version >/dev/null 2>&1; then
