@@ -13,6 +13,8 @@ use shared_model::{
     SignalFault, Thresholds, Verdict,
 };
 
+use crate::release::audit_baseline::Moments;
+
 /// One decided GO or NO-GO unit's CUSUM state, after the unit.
 #[derive(Clone, Copy, Debug, Serialize, PartialEq, Eq)]
 pub struct ChartPoint {
@@ -35,13 +37,10 @@ pub struct FieldRun {
     pub stats: FieldStats,
     /// The thresholds margins are measured from.
     pub thresholds: Thresholds,
-    /// The decided (GO and NO-GO) units' scores, in unit order (sorted by
-    /// [`Self::sorted_scores`]).
-    pub scores: Vec<i64>,
-    /// Every scored unit's score (RECHECK too), in unit order.
+    /// Every scored unit's score (GO, NO-GO and RECHECK), in unit order.
     pub all_scores: Vec<i64>,
-    /// Per channel: values seen (each decided unit's), their running mean and M2 (Welford).
-    channel: Vec<(u64, f64, f64)>,
+    /// Per channel: the running moments of each decided unit's value.
+    channel: Vec<Moments>,
     /// Whether the units came with their channel values (a log; not device lines).
     pub has_values: bool,
     /// Every decided GO or NO-GO unit's CUSUM state, in order.
@@ -60,9 +59,8 @@ impl FieldRun {
         Self {
             stats: FieldStats::new(plan, channels, signals),
             thresholds,
-            scores: Vec::new(),
             all_scores: Vec::new(),
-            channel: vec![(0, 0.0, 0.0); channels],
+            channel: vec![Moments::default(); channels],
             has_values,
             chart: Vec::new(),
         }
@@ -102,17 +100,10 @@ impl FieldRun {
         if self.stats.saturated {
             return;
         }
-        if d.verdict != Verdict::Recheck {
-            self.scores.push(d.score);
-        }
         self.all_scores.push(d.score);
         if let Some(v) = values {
-            for ((n, mean, m2), &x) in self.channel.iter_mut().zip(v) {
-                *n += 1;
-                let x = f64::from(x);
-                let delta = x - *mean;
-                *mean += delta / *n as f64;
-                *m2 += delta * (x - *mean);
+            for (m, &x) in self.channel.iter_mut().zip(v) {
+                m.push(f64::from(x));
             }
         }
         let t = &self.thresholds;
@@ -139,13 +130,6 @@ impl FieldRun {
         self.stats.faulted(fault);
     }
 
-    /// The decided units' scores, sorted.
-    pub fn sorted_scores(&self) -> Vec<i64> {
-        let mut s = self.scores.clone();
-        s.sort_unstable();
-        s
-    }
-
     /// Every scored unit's score (GO, NO-GO and RECHECK: the units the record's histogram
     /// counts), sorted.
     pub fn sorted_all_scores(&self) -> Vec<i64> {
@@ -157,16 +141,11 @@ impl FieldRun {
     /// Channel `c`'s count, mean and sample standard deviation (raw units), when the units
     /// came with values.
     pub fn channel(&self, c: usize) -> Option<(u64, f64, f64)> {
-        let &(n, mean, m2) = self.channel.get(c)?;
+        let m = self.channel.get(c)?;
         if !self.has_values {
             return None;
         }
-        let sd = if n > 1 {
-            (m2 / (n - 1) as f64).sqrt()
-        } else {
-            0.0
-        };
-        Some((n, mean, sd))
+        Some((m.n, m.mean, m.sd()))
     }
 }
 
@@ -211,7 +190,6 @@ mod tests {
         assert_eq!(r.stats.cusum_go.down, 65);
         assert_eq!(r.stats.units, 7);
         assert_eq!(r.channel(0).unwrap().0, 6);
-        assert_eq!(r.sorted_scores(), vec![-30, 30, 35, 40, 50]);
         assert_eq!(r.sorted_all_scores(), vec![-30, 0, 30, 35, 40, 50]);
     }
 }

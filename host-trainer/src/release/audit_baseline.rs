@@ -175,21 +175,42 @@ impl CusumRecord {
     }
 }
 
+/// Running count, mean and sum of squared deviations (Welford's update): the baseline's
+/// figures over a held log and a field run's over a stream are the same arithmetic.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Moments {
+    /// Values seen.
+    pub n: u64,
+    /// Their mean.
+    pub mean: f64,
+    /// Sum of squared deviations from the mean.
+    pub m2: f64,
+}
+
+impl Moments {
+    /// One more value.
+    pub fn push(&mut self, x: f64) {
+        self.n += 1;
+        let d = x - self.mean;
+        self.mean += d / self.n as f64;
+        self.m2 += d * (x - self.mean);
+    }
+
+    /// The sample standard deviation (n − 1; 0 below two values).
+    pub fn sd(&self) -> f64 {
+        if self.n > 1 {
+            (self.m2 / (self.n - 1) as f64).sqrt()
+        } else {
+            0.0
+        }
+    }
+}
+
 /// Mean and sample standard deviation (n − 1; 0 below two values), by Welford's update.
 pub fn mean_sd(values: impl Iterator<Item = f64>) -> (f64, f64) {
-    let (mut n, mut mean, mut m2) = (0.0f64, 0.0f64, 0.0f64);
-    for v in values {
-        n += 1.0;
-        let d = v - mean;
-        mean += d / n;
-        m2 += d * (v - mean);
-    }
-    let sd = if n > 1.0 {
-        (m2 / (n - 1.0)).sqrt()
-    } else {
-        0.0
-    };
-    (mean, sd)
+    let mut m = Moments::default();
+    values.for_each(|v| m.push(v));
+    (m.mean, m.sd())
 }
 
 /// The bins covering `lo..=hi`: origin `lo`, the least shift whose 32 bins reach `hi`.
