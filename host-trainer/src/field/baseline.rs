@@ -135,9 +135,19 @@ pub fn plan_text(a: &AuditBaseline) -> String {
         r(&p.go),
         r(&p.nogo)
     );
-    let _ = writeln!(
+    let _ = write!(
         s,
-        "\n# Plan file (`key = integer` lines; the QEMU example's LINEGATE_FIELD_PLAN):\norigin = {}\nshift = {}\ngo_target = {}\ngo_slack = {}\ngo_limit = {}\nnogo_target = {}\nnogo_slack = {}\nnogo_limit = {}",
+        "\n# Plan file (`key = integer` lines; the QEMU example's LINEGATE_FIELD_PLAN):\n{}",
+        plan_file(&p)
+    );
+    s
+}
+
+/// `plan` as the example device build reads it (`LINEGATE_FIELD_PLAN`): one
+/// `key = integer` line per field the device uses (the blob id is the loaded blob's).
+pub fn plan_file(p: &shared_model::FieldPlan) -> String {
+    format!(
+        "origin = {}\nshift = {}\ngo_target = {}\ngo_slack = {}\ngo_limit = {}\nnogo_target = {}\nnogo_slack = {}\nnogo_limit = {}\n",
         p.origin,
         p.shift,
         p.go.target,
@@ -146,6 +156,5 @@ pub fn plan_text(a: &AuditBaseline) -> String {
         p.nogo.target,
         p.nogo.slack,
         p.nogo.limit
-    );
-    s
+    )
 }

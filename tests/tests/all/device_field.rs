@@ -111,15 +111,8 @@ pub fn plan_for(blob_bytes: &[u8], vectors: &str) -> FieldPlan {
 /// Writes `plan` as the example's build reads it (LINEGATE_FIELD_PLAN, `key = integer`).
 pub fn write_plan(path: &Path, p: &FieldPlan) {
     let text = format!(
-        "# field plan (accumulator units)\norigin = {}\nshift = {}\ngo_target = {}\ngo_slack = {}\ngo_limit = {}\nnogo_target = {}\nnogo_slack = {}\nnogo_limit = {}\n",
-        p.origin,
-        p.shift,
-        p.go.target,
-        p.go.slack,
-        p.go.limit,
-        p.nogo.target,
-        p.nogo.slack,
-        p.nogo.limit
+        "# field plan (accumulator units)\n{}",
+        host_trainer::field::baseline::plan_file(p)
     );
     std::fs::write(path, text).unwrap();
 }
