@@ -201,11 +201,9 @@ fn blob_of_model(
 
 /// A log of several files named as `Dataset::name` names it: the first, and how many more.
 fn files_name(files: &[std::path::PathBuf]) -> std::path::PathBuf {
-    match files {
-        [] => std::path::PathBuf::new(),
-        [one] => one.clone(),
-        [first, rest @ ..] => format!("{} and {} more files", first.display(), rest.len()).into(),
-    }
+    files.first().map_or_else(std::path::PathBuf::new, |first| {
+        host_trainer::ingest::dataset::log_name(first, files.len())
+    })
 }
 
 /// Says on stderr how many rows of `path` were skipped as unreadable (`--skip-bad-rows`),

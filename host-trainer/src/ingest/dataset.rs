@@ -69,6 +69,15 @@ pub struct LogPart {
     pub units: usize,
 }
 
+/// How messages name a log of `files` files whose first is `first`: the file itself, or
+/// "`first` and N more files".
+pub fn log_name(first: &Path, files: usize) -> PathBuf {
+    match files {
+        0 | 1 => first.to_path_buf(),
+        n => format!("{} and {} more files", first.display(), n - 1).into(),
+    }
+}
+
 impl Dataset {
     /// An empty dataset for `path` with the given scaling.
     pub fn empty(path: &Path, scales: Vec<ChannelScale>) -> Self {
@@ -119,10 +128,7 @@ impl Dataset {
     /// The log's name for messages: its file, or for a log of several files the first and
     /// how many more (`day-1.csv and 2 more files`).
     pub fn name(&self) -> PathBuf {
-        match self.parts.len() {
-            0 | 1 => self.path.clone(),
-            n => format!("{} and {} more files", self.path.display(), n - 1).into(),
-        }
+        log_name(&self.path, self.parts.len())
     }
 
     /// The file unit `i` came from (the log's own path for a log of one file).
