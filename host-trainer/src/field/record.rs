@@ -23,7 +23,22 @@ pub fn read_record(path: &Path, plan: &shared_model::FieldPlan) -> Result<FieldS
         path: path.into(),
         message,
     };
-    let s = FieldStats::decode(&bytes).map_err(|e| format(e.to_string()))?;
+    let s = FieldStats::decode(&bytes).map_err(|e| {
+        // The device prints its record as a `# field <hex>` line: saved as it is printed,
+        // the file is text, not the record's bytes.
+        let text = bytes.strip_prefix(b"# field ").unwrap_or(&bytes);
+        let hex = !text.is_empty()
+            && text
+                .iter()
+                .all(|b| b.is_ascii_hexdigit() || b.is_ascii_whitespace());
+        if e == shared_model::field::RecordError::BadMagic && hex {
+            format(format!(
+                "{e}: this is the record as hex text (the device's `# field <hex>` line); give its bytes (e.g. `xxd -r -p`)"
+            ))
+        } else {
+            format(e.to_string())
+        }
+    })?;
     if s.plan.blob_id != plan.blob_id {
         return Err(format(format!(
             "the record is of blob {:08x}; the audit is of blob {:08x}",

@@ -105,6 +105,19 @@ fn drift_and_compare_refuse_what_they_cannot_judge_with_exit_2() {
         err.contains("bad.txt") && err.contains("line 4, column 9"),
         "{err}"
     );
+    // The device's `# field <hex>` line saved as it is printed is text, not the record:
+    // said, with the way to its bytes.
+    let mut a = vec!["demo/holdout-synthetic.csv", "--record-out", "r.lgfr"];
+    a.extend(RELEASE);
+    exits(&drift(d, &a), 0);
+    let hex: String = std::fs::read(d.join("r.lgfr"))
+        .unwrap()
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect();
+    write(d, "r.txt", format!("# field {}\n", &hex[..400]).as_bytes());
+    let err = exits(&drift(d, &["--record", "r.txt"]), 2);
+    assert!(err.contains("r.txt") && err.contains("hex text"), "{err}");
     // Only the model line: no unit.
     write(
         d,
