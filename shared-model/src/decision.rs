@@ -35,10 +35,14 @@ impl Verdict {
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct Decision {
-    /// `bias + Σ weight_i · x_i`, in accumulator units.
+    /// Two-sided model: `bias + Σ weight_i · x_i`, in accumulator units. Model of
+    /// several classes: the leading class's lead over the runner-up (≥ 0), the same units.
     pub score: i64,
     /// The verdict for `score`.
     pub verdict: Verdict,
+    /// Model of several classes: the leading class (an index into its class rows), decided
+    /// or not (under RECHECK it is the class that led). `None` for a two-sided model.
+    pub class: Option<u8>,
 }
 
 /// The two-outcome rule with a RECHECK band: the model's thresholds, in accumulator units.
@@ -79,6 +83,7 @@ impl Thresholds {
         Decision {
             score,
             verdict: self.verdict(score),
+            class: None,
         }
     }
 }
@@ -108,7 +113,8 @@ mod tests {
                 t.decide(score),
                 Decision {
                     score,
-                    verdict: want
+                    verdict: want,
+                    class: None,
                 }
             );
         }

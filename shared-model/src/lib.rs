@@ -80,6 +80,7 @@
 extern crate std;
 
 pub mod blob;
+pub mod classes;
 pub mod decision;
 pub mod error;
 pub mod features;

@@ -25,6 +25,13 @@ pub const SIGNAL_VERSION: u16 = 3;
 /// A signed blob of a model with signal features: version 3's bytes, then a signature
 /// section.
 pub const SIGNED_SIGNAL_VERSION: u16 = 4;
+/// The blob layout version of a model of several classes: version 1's payload, then the
+/// signal section (empty for a model of readings), then the class section.
+pub const CLASS_VERSION: u16 = 5;
+/// A signed blob of a model of several classes: version 5's bytes, then a signature section.
+pub const SIGNED_CLASS_VERSION: u16 = 6;
+/// Most classes (rows of weights) one model may decide between.
+pub const MAX_CLASSES: usize = 8;
 /// Most signals (sample windows) one model may reduce to features.
 pub const MAX_SIGNALS: usize = 8;
 /// Bytes of a key id: the first 8 bytes of SHA-512 of the 32-byte Ed25519 public key.

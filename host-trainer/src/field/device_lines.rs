@@ -138,7 +138,14 @@ pub fn parse(
                         ),
                     ));
                 }
-                run.decided(&Decision { verdict, score }, None);
+                run.decided(
+                    &Decision {
+                        verdict,
+                        score,
+                        class: None,
+                    },
+                    None,
+                );
             }
             _ => {
                 return Err((

@@ -30,6 +30,7 @@ use crate::ingest::SkipReport;
 use crate::ingest::scaling::ChannelScale;
 use crate::ingest::signal_scale::SignalScale;
 use crate::train::c_choice::CChoice;
+use crate::train::class_rows::FloatClasses;
 use crate::train::linear::{Linear, ThresholdShift};
 use crate::train::operating_point::OperatingPoint;
 use crate::train::spread::Spread;
@@ -231,6 +232,11 @@ pub struct FloatModel {
     /// The threshold and RECHECK band chosen from held-out scores, if one was chosen.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub operating_point: Option<OperatingPoint>,
+    /// A model of several classes: its rows and decision rule. Then `weights`, `bias` and
+    /// `threshold` are unused (zeros), and every command that reads the model either
+    /// takes the classes or refuses the model naming what it cannot do with classes.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub classes: Option<FloatClasses>,
     /// Training figures.
     pub summary: TrainingSummary,
     /// SHA-256 (hex) of this file's JSON with this field empty: a file edited after
@@ -267,6 +273,7 @@ impl FloatModel {
             bias: linear.b / scale,
             threshold: threshold / scale,
             operating_point: None,
+            classes: None,
             summary,
             content_sha256: String::new(),
         };

@@ -15,6 +15,7 @@
 //! the file that carries the trained model to the release step.
 
 pub mod c_choice;
+pub mod class_rows;
 pub mod eval;
 pub mod extent;
 pub mod float_model;
