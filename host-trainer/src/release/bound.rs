@@ -18,6 +18,8 @@
 
 use serde::Serialize;
 
+use shared_model::FixedModel;
+
 use crate::release::quantise::Quantised;
 
 /// The rounding-error bound, in accumulator LSB.
@@ -38,37 +40,51 @@ pub struct ErrorBound {
 /// Computes the bound for a quantised model.
 pub fn error_bound(q: &Quantised) -> ErrorBound {
     let m = q.model.model();
-    let xmax: Vec<f64> = m
-        .channels
+    let xmax = input_maxima(m, &q.kappa);
+    let weights: Vec<f64> = m.channels.iter().map(|c| f64::from(c.weight)).collect();
+    bound_of(
+        &weights,
+        &q.ideal_weights,
+        &xmax,
+        m.bias as f64,
+        q.ideal_bias,
+    )
+}
+
+/// Each channel's largest scaled input |Xᵢ| (Xmaxᵢ) over its valid raw range, before the
+/// conversion's rounding: κᵢ·max|raw − offsetᵢ|.
+pub(crate) fn input_maxima(m: &FixedModel, kappa: &[f64]) -> Vec<f64> {
+    m.channels
         .iter()
-        .zip(&q.kappa)
+        .zip(kappa)
         .map(|(c, k)| {
             k * (f64::from(c.raw_max) - f64::from(c.offset))
                 .abs()
                 .max((f64::from(c.offset) - f64::from(c.raw_min)).abs())
         })
-        .collect();
-    let weights: Vec<i32> = m.channels.iter().map(|c| c.weight).collect();
-    bound_of(&weights, &q.ideal_weights, &xmax, m.bias, q.ideal_bias)
+        .collect()
 }
 
-/// The bound from its inputs: the integer weights and bias, their ideal real values, and
-/// each channel's largest scaled input |Xᵢ| (Xmaxᵢ).
-fn bound_of(
-    weights: &[i32],
+/// The bound from its inputs: the integer weights and bias (as f64, exact below 2⁵³), their
+/// ideal real values, and each channel's largest scaled input |Xᵢ| (Xmaxᵢ). Any linear map
+/// the kernel computes on the rounded inputs is covered, the difference of two class rows
+/// included (its integer and ideal weights are the rows' differences; the derivation above
+/// uses nothing else).
+pub(crate) fn bound_of(
+    weights: &[f64],
     ideal_weights: &[f64],
     xmax: &[f64],
-    bias: i64,
+    bias: f64,
     ideal_bias: f64,
 ) -> ErrorBound {
-    let inputs = 0.5 * weights.iter().map(|w| f64::from(*w).abs()).sum::<f64>();
+    let inputs = 0.5 * weights.iter().map(|w| w.abs()).sum::<f64>();
     let dw: Vec<f64> = weights
         .iter()
         .zip(ideal_weights)
-        .map(|(w, i)| (f64::from(*w) - i).abs())
+        .map(|(w, i)| (w - i).abs())
         .collect();
     let weight_part = dw.iter().zip(xmax).map(|(d, x)| d * x).sum::<f64>();
-    let bias = (bias as f64 - ideal_bias).abs();
+    let bias = (bias - ideal_bias).abs();
     let eps_w = dw.iter().copied().fold(0.0, f64::max);
     let n = weights.len() as f64;
     let textbook = 0.5 * ideal_weights.iter().map(|w| w.abs()).sum::<f64>()
@@ -170,7 +186,7 @@ mod tests {
     /// = 6.75 (every figure a dyadic fraction, so exact in f64).
     #[test]
     fn the_bound_of_a_two_channel_model_worked_by_hand() {
-        let b = bound_of(&[3, -2], &[2.75, -2.25], &[4.0, 10.0], 5, 5.5);
+        let b = bound_of(&[3.0, -2.0], &[2.75, -2.25], &[4.0, 10.0], 5.0, 5.5);
         assert_eq!(
             b,
             ErrorBound {
@@ -187,7 +203,7 @@ mod tests {
     /// form agrees (εw = 0).
     #[test]
     fn exact_weights_leave_only_the_input_rounding() {
-        let b = bound_of(&[7, -1], &[7.0, -1.0], &[100.0, 100.0], -3, -3.0);
+        let b = bound_of(&[7.0, -1.0], &[7.0, -1.0], &[100.0, 100.0], -3.0, -3.0);
         assert_eq!((b.inputs, b.weights, b.bias, b.total), (4.0, 0.0, 0.0, 4.0));
         assert_eq!(b.textbook, 4.0);
     }

@@ -17,6 +17,9 @@
 //! (`crate::confidence`), and [`model_gates`] the gates and band a model's operating point
 //! sets when the flags leave them out; [`units`] streams every unit's scores to `--units`;
 //! [`values`] lists a unit's channel values as the device computes them.
+//! A model of several classes: [`quantise_classes`] (every row in one Q-format, the gaps),
+//! [`class_tally`] (confusion matrix, flips, the per-pair rounding proof), [`class_gates`]
+//! (per class: false GO, misrouting) and [`class_audit`] (the audit and its units CSV).
 
 pub mod applying;
 pub mod audit;
@@ -26,6 +29,9 @@ pub mod audit_report;
 pub mod blob_match;
 pub mod blob_release;
 pub mod bound;
+pub mod class_audit;
+pub mod class_gates;
+pub mod class_tally;
 pub mod features;
 pub mod gates;
 pub mod hex;
@@ -36,6 +42,7 @@ pub mod model_gates;
 pub mod pack;
 pub mod point_record;
 pub mod quantise;
+pub mod quantise_classes;
 pub mod replay;
 pub mod sign;
 pub mod sweep;

@@ -19,7 +19,7 @@ const SET_COLOURS: [RGBColor; 4] = [
 ];
 
 /// The names of the margin histogram's bins, in multiples of the rounding bound B.
-fn bin_names() -> Vec<String> {
+pub(super) fn bin_names() -> Vec<String> {
     let mut v = vec!["≤ 0".to_string(), "0–B".to_string(), "B–2B".to_string()];
     for k in 1..MARGIN_BINS - 3 {
         v.push(format!("{}–{}B", 1u32 << k, 1u32 << (k + 1)));
@@ -29,21 +29,21 @@ fn bin_names() -> Vec<String> {
 }
 
 /// A histogram of every log side by side: bin i spans [i, i + 1) on the x axis.
-struct Binned<'a> {
-    caption: String,
-    x_desc: &'a str,
+pub(super) struct Binned<'a> {
+    pub(super) caption: String,
+    pub(super) x_desc: &'a str,
     /// Text under the axis, each at its x.
-    labels: Vec<(f64, String)>,
+    pub(super) labels: Vec<(f64, String)>,
     /// Each log's legend (its name and what the chart counts of it) and bin counts.
-    series: Vec<(String, Vec<u64>)>,
+    pub(super) series: Vec<(String, Vec<u64>)>,
     /// A band shaded grey behind the bars, from x to x, named at its top.
-    shaded: Option<(f64, f64, &'static str)>,
+    pub(super) shaded: Option<(f64, f64, &'static str)>,
     /// Bins drawn (from the first).
-    shown: usize,
+    pub(super) shown: usize,
     /// Red vertical lines, at these x, each named at its top.
-    marks: Vec<(f64, &'static str)>,
+    pub(super) marks: Vec<(f64, &'static str)>,
     /// Bins whose counts are written over the bar, in red, whenever they hold a unit.
-    counted: Vec<usize>,
+    pub(super) counted: Vec<usize>,
 }
 
 /// A log's legend on the unit charts: they count every unit but the FAULTs, which have no
@@ -60,7 +60,7 @@ fn legend(s: &SetSummary) -> String {
     }
 }
 
-fn binned_svg(b: &Binned<'_>) -> String {
+pub(super) fn binned_svg(b: &Binned<'_>) -> String {
     let top = b
         .series
         .iter()
