@@ -39,6 +39,22 @@ pub struct FixedRow {
     pub ideal_bias: f64,
 }
 
+/// A channel's conversion: `x = ((raw − offset)·multiplier + 2^(shift−1)) >> shift` for
+/// `raw_min ≤ raw ≤ raw_max` (no rounding term when `shift` is 0), else FAULT.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Conversion {
+    /// Lowest valid raw reading.
+    pub raw_min: i32,
+    /// Highest valid raw reading.
+    pub raw_max: i32,
+    /// Raw reading at the range's middle.
+    pub offset: i32,
+    /// Multiplier.
+    pub multiplier: i32,
+    /// Right shift.
+    pub shift: u8,
+}
+
 /// One unit of a listing (flips, tightest) and of the units CSV.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct ClassUnit {
@@ -96,6 +112,9 @@ pub struct ClassAudit {
     pub scale: f64,
     /// The channels, in order.
     pub channels: Vec<String>,
+    /// Each channel's conversion as the blob holds it (raw range, offset, multiplier,
+    /// shift): with `rows`, every device score can be recomputed from the readings.
+    pub conversions: Vec<Conversion>,
     /// The classes, in row order.
     pub classes: Vec<String>,
     /// The GO class's row, if any.
@@ -186,6 +205,17 @@ pub fn audit_classes(
         headroom_bits: i32::from(m.acc_bits) - i32::from(q.needed_bits),
         scale: q.scale,
         channels: fm.channels.iter().map(|c| c.name.clone()).collect(),
+        conversions: m
+            .channels
+            .iter()
+            .map(|c| Conversion {
+                raw_min: c.raw_min,
+                raw_max: c.raw_max,
+                offset: c.offset,
+                multiplier: c.multiplier,
+                shift: c.shift,
+            })
+            .collect(),
         classes: names,
         go: fc.go,
         go_gap: (q.section.go_gap, q.ideal_go_gap),
