@@ -342,7 +342,7 @@ impl Release {
 
 /// This process's command line as a shell would take it back: the program's name, then
 /// each argument, quoted with single quotes where it holds anything but plain characters.
-fn command_line() -> String {
+pub(super) fn command_line() -> String {
     let plain = |a: &str| {
         !a.is_empty()
             && a.bytes()

@@ -25,6 +25,7 @@ macro_rules! say_raw {
 
 mod args;
 mod audit;
+mod audit_classes;
 mod check;
 mod compare;
 mod demo;

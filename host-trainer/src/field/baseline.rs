@@ -46,6 +46,12 @@ pub fn read(path: &Path) -> Result<AuditBaseline, InputError> {
     };
     let model_id = text_of("model_id")?;
     let blob_id = text_of("blob_id")?;
+    // An audit of a model of several classes keeps no baseline yet, and says so.
+    if v.get("kind").and_then(serde_json::Value::as_str) == Some("classes") {
+        return Err(format(
+            "the audit of a model of several classes keeps no field baseline yet: `drift` checks two-sided (GO / NO-GO) releases only".into(),
+        ));
+    }
     let Some(b) = v.get("baseline") else {
         return Err(format(
             "this audit record has no field baseline (it was written before audits kept one): run `linegate audit` again with the same model and logs, then give its audit.json".into(),

@@ -8,12 +8,14 @@
 use std::io::Write;
 
 use serde::Serialize;
+use shared_model::{CheckedModel, Readings};
 
 use crate::confidence::DEFAULT_CONFIDENCE;
 use crate::ingest::dataset::{Dataset, RawForm};
+use crate::release::blob_release::release_mark;
 use crate::release::class_gates::class_gates;
 use crate::release::class_tally::{
-    ClassLog, PairBounds, TIGHTEST_CLASSES, UnitCheck, check_unit, class_rows, tally_classes,
+    ClassLog, PairBounds, TIGHTEST_CLASSES, UnitCheck, check_unit, tally_classes,
 };
 use crate::release::gates::{AuditConfig, Gate, Limit, reason};
 use crate::release::quantise_classes::QuantisedClasses;
@@ -91,9 +93,11 @@ pub struct ClassAudit {
     pub model_id: String,
     /// SHA-256 of the float model file's content.
     pub model_sha256: String,
-    /// SHA-256 of the blob the audit names (empty until one is made).
+    /// SHA-256 of the blob the audit names (version 5, or 6 signed).
     pub blob_sha256: String,
-    /// The blob's size in bytes (0 until one is made).
+    /// The blob's id (its CRC, as the device's lines name it).
+    pub blob_id: String,
+    /// The blob's size in bytes.
     pub blob_bytes: usize,
     /// Scaled input word.
     pub input_bits: u8,
@@ -151,6 +155,8 @@ pub struct ClassAudit {
     pub baseline_note: &'static str,
     /// The command line that asked for the audit.
     pub command_line: Option<String>,
+    /// What this audit does not cover that a two-sided one would (e.g. declared noise).
+    pub notes: Vec<String>,
 }
 
 /// Audits a quantised model of several classes on the training log and on `others`.
@@ -191,11 +197,12 @@ pub fn audit_classes(
     tight.sort_by(|a, b| a.0.total_cmp(&b.0));
     tight.truncate(TIGHTEST_CLASSES);
     let m = &q.fixed;
-    ClassAudit {
+    let mut r = ClassAudit {
         kind: "classes",
         model_id: fm.model_id.clone(),
         model_sha256: fm.content_digest(),
         blob_sha256: String::new(),
+        blob_id: String::new(),
         blob_bytes: 0,
         input_bits: m.input_bits,
         weight_bits: m.weight_bits,
@@ -247,6 +254,38 @@ pub fn audit_classes(
         baseline: None,
         baseline_note: NO_BASELINE,
         command_line: None,
+        notes: Vec::new(),
+    };
+    r.name_blob(&class_blob(q, r.passed, None));
+    r
+}
+
+impl ClassAudit {
+    /// Names `blob` (the bytes `pack` writes) in the report.
+    pub fn name_blob(&mut self, blob: &[u8]) {
+        self.blob_sha256 = crate::digest::sha256_hex(blob);
+        self.blob_id =
+            shared_model::blob::blob_id(blob).map_or(String::new(), |id| format!("{id:08x}"));
+        self.blob_bytes = blob.len();
+    }
+}
+
+/// The blob of a model of several classes (version 5, or 6 signed with `signer`), marked
+/// passed or overridden.
+pub fn class_blob(
+    q: &QuantisedClasses,
+    passed: bool,
+    signer: Option<&ed25519_dalek::SigningKey>,
+) -> Vec<u8> {
+    let mut m = q.fixed.clone();
+    m.audit = release_mark(passed);
+    // The mark changes nothing validation looks at, so the model validated again holds.
+    let Ok(model) = CheckedModel::with_outcomes(m, Readings, q.section.clone()) else {
+        return Vec::new();
+    };
+    match signer {
+        Some(k) => crate::release::sign::signed_blob(&model, k),
+        None => crate::release::pack::blob_bytes(&model),
     }
 }
 
@@ -264,7 +303,7 @@ fn unit_of(
         .iter()
         .map(|r| RawForm::new(ds, &r.weights, r.bias))
         .collect();
-    let u = check_unit(q, fc, &forms, pairs, ds, &class_rows(fc, ds), i);
+    let u = check_unit(q, fc, &forms, pairs, ds, i);
     row(set, q, ds, i, &u)
 }
 
@@ -315,9 +354,8 @@ pub fn write_class_units_csv(
             .iter()
             .map(|r| RawForm::new(ds, &r.weights, r.bias))
             .collect();
-        let class_of = class_rows(fc, ds);
         for i in 0..ds.len() {
-            let u = check_unit(q, fc, &forms, &pairs, ds, &class_of, i);
+            let u = check_unit(q, fc, &forms, &pairs, ds, i);
             let r = row(set, q, ds, i, &u);
             writeln!(
                 w,

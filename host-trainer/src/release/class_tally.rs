@@ -112,15 +112,14 @@ pub fn check_unit(
     forms: &[RawForm],
     pairs: &PairBounds,
     ds: &Dataset,
-    class_of: &[Option<usize>],
     i: usize,
 ) -> UnitCheck {
     let raw = ds.raw_row(i);
     let fs: Vec<f64> = forms.iter().map(|f| f.score(raw)).collect();
     let fd = fc.decide(&fs);
-    let class = ds
-        .class_of(i)
-        .and_then(|c| class_of.get(usize::from(c)).copied().flatten());
+    // The unit's label code names its row as every command reads it (+1 GO, −1 − k the
+    // k-th other class in row order).
+    let class = ds.labels.get(i).and_then(|&code| fc.row_of_code(code));
     let a = q.scale;
     let l = fd.leader;
     let (gap_float, gap) = if Some(l) == fc.go {
@@ -249,14 +248,6 @@ fn keep_tightest(v: &mut Vec<(f64, usize)>) {
     v.truncate(TIGHTEST_CLASSES);
 }
 
-/// Each of the log's classes (by index in its class list) as a row of the model, by name.
-pub fn class_rows(fc: &FloatClasses, ds: &Dataset) -> Vec<Option<usize>> {
-    ds.classes
-        .names()
-        .map(|n| fc.rows.iter().position(|r| r.name == n))
-        .collect()
-}
-
 /// Tallies log `name` (see the module docs).
 pub fn tally_classes(
     name: &str,
@@ -271,7 +262,6 @@ pub fn tally_classes(
         .iter()
         .map(|r| RawForm::new(ds, &r.weights, r.bias))
         .collect();
-    let class_of = class_rows(fc, ds);
     let edges = margin_bin_edges(1.0);
     const CHUNK: usize = 1 << 14;
     let total = (0..ds.len().div_ceil(CHUNK))
@@ -279,7 +269,7 @@ pub fn tally_classes(
         .map(|c| {
             let mut p = Part::new(k);
             for i in c * CHUNK..ds.len().min((c + 1) * CHUNK) {
-                let u = check_unit(q, fc, &forms, pairs, ds, &class_of, i);
+                let u = check_unit(q, fc, &forms, pairs, ds, i);
                 if u.device.is_none() {
                     p.faults += 1;
                 } else {

@@ -9,10 +9,12 @@
 //! pair of rows, and a move that helps one pair can hurt another). The gaps become
 //! accumulator units rounded up, at least 1: the device decides a class only where the
 //! float rule's lead, scaled, reaches the gap. The fixed model's own weights and bias are
-//! zero and its thresholds −1/0 (unused by a model of several classes).
+//! zero and its thresholds −1/0 (unused by a model of several classes). The model is
+//! validated with its section (`CheckedModel::with_outcomes`): rows, names, gaps, and that
+//! twice the widest row's bound fits the accumulator.
 
 use shared_model::classes::{ClassRow, ClassSection, NO_GO_CLASS};
-use shared_model::{AuditMark, CheckedModel, Decision, Fault, FixedModel};
+use shared_model::{AuditMark, CheckedModel, Decision, Fault, FixedModel, Readings};
 
 use crate::release::quantise::{
     QuantConfig, QuantError, channel_specs, conversions, to_q, word_scale,
@@ -24,12 +26,12 @@ use crate::train::float_model::FloatModel;
 /// of every pair of rows.
 #[derive(Clone, Debug)]
 pub struct QuantisedClasses {
+    /// The validated model with its class section (the kernel's `classify` decides).
+    pub model: CheckedModel<Readings, ClassSection>,
     /// The fixed model (its own weights and bias zero, thresholds −1/0).
     pub fixed: FixedModel,
     /// The class rows and gaps the blob carries.
     pub section: ClassSection,
-    /// One two-sided checked model per row, scoring it with the kernel.
-    rows: Vec<CheckedModel>,
     /// Accumulator units per float score unit (A).
     pub scale: f64,
     /// κᵢ = multiplierᵢ / 2^shiftᵢ per channel.
@@ -53,9 +55,7 @@ impl QuantisedClasses {
     /// # Errors
     /// The kernel's [`Fault`] for a refused reading (the device shows FAULT).
     pub fn classify(&self, raw: &[i32]) -> Result<Decision, Fault> {
-        let mut scores = [0i64; shared_model::limits::MAX_CLASSES];
-        let n = self.scores(raw, &mut scores)?;
-        Ok(self.section.decide(&scores[..n]))
+        self.model.classify(raw)
     }
 
     /// Every row's exact score for `raw` into `out`; the number of rows.
@@ -67,10 +67,7 @@ impl QuantisedClasses {
         raw: &[i32],
         out: &mut [i64; shared_model::limits::MAX_CLASSES],
     ) -> Result<usize, Fault> {
-        for (o, m) in out.iter_mut().zip(&self.rows) {
-            *o = m.score(raw)?;
-        }
-        Ok(self.rows.len())
+        self.model.class_scores(raw, out)
     }
 
     /// The number of classes.
@@ -123,7 +120,7 @@ pub fn quantise_classes(fm: &FloatModel, cfg: QuantConfig) -> Result<QuantisedCl
         channels: channel_specs(fm, &conv, &zero)?,
     };
     let section = section(fc, &ideal_weights, &ideal_bias, wmax, scale)?;
-    // Each row as a two-sided model of its own: its score bound, and the kernel's score.
+    // Each row as a two-sided model of its own, for its score bound R_k.
     let row_model = |base: &FixedModel, r: &ClassRow| {
         let mut m = base.clone();
         m.bias = r.bias;
@@ -150,17 +147,11 @@ pub fn quantise_classes(fm: &FloatModel, cfg: QuantConfig) -> Result<QuantisedCl
             fixed.acc_bits
         )));
     }
-    let mut rows = Vec::new();
-    for r in &section.rows {
-        let mut m = row_model(&fixed, r);
-        m.acc_bits = fixed.acc_bits;
-        rows.push(CheckedModel::new(m)?);
-    }
-    CheckedModel::new(fixed.clone())?;
+    let model = CheckedModel::with_outcomes(fixed.clone(), Readings, section.clone())?;
     Ok(QuantisedClasses {
+        model,
         fixed,
         section,
-        rows,
         scale,
         kappa,
         ideal_weights,

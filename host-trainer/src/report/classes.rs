@@ -97,6 +97,9 @@ pub fn class_document(r: &ClassAudit) -> Document {
         lsb(r.class_gap.1)
     );
     let _ = writeln!(s, "| field baseline | none: {} |", r.baseline_note);
+    for n in &r.notes {
+        let _ = writeln!(s, "| not covered | {} |", cell(n));
+    }
     d.open(Part::Decisions, &mut s);
     let _ = writeln!(s, "\n## Decisions\n");
     let _ = writeln!(

@@ -322,3 +322,115 @@ fn the_reports_show_the_matrix_the_proof_and_no_baseline() {
     assert!(json["baseline_note"].as_str().unwrap().contains("drift"));
     assert_eq!(json["logs"][0]["confusion"][0][0], 30);
 }
+
+/// `linegate audit` on a model of several classes, from the command line: the demo's
+/// two-sided model turned into rows GO (its row), NO-GO (the row negated) and "crack" (no
+/// unit of the demo's logs is a crack: a class without units is reported, not hidden).
+#[test]
+fn audit_on_a_class_model_writes_its_reports_and_drift_refuses_it() {
+    use crate::common::{demo, exits, linegate};
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    demo(d);
+    let mut fm = FloatModel::read(&d.join("demo/model.json")).unwrap();
+    let (w, b) = (fm.weights.clone(), fm.bias - fm.threshold);
+    fm.classes = Some(FloatClasses {
+        rule: ClassRule::OneVsRest,
+        go: Some(0),
+        go_gap: 0.01,
+        class_gap: 0.01,
+        rows: vec![
+            ClassRowF {
+                name: "GO".into(),
+                weights: w.clone(),
+                bias: b,
+            },
+            ClassRowF {
+                name: "NO-GO".into(),
+                weights: w.iter().map(|v| -v).collect(),
+                bias: -b,
+            },
+            ClassRowF {
+                name: "crack".into(),
+                weights: vec![0.0; w.len()],
+                bias: -10.0,
+            },
+        ],
+    });
+    std::fs::write(d.join("classes.json"), fm.to_json()).unwrap();
+    let o = linegate(
+        &[
+            "-q",
+            "audit",
+            "--model",
+            "classes.json",
+            "--out-dir",
+            "out",
+            "--units",
+            "units.csv",
+            "--max-misroute",
+            "0",
+            "--holdout",
+            "demo/holdout-synthetic.csv",
+        ],
+        d,
+    );
+    let text = std::fs::read_to_string(d.join("out/audit.json"))
+        .unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&o.stderr)));
+    let json: serde_json::Value = serde_json::from_str(&text).unwrap();
+    exits(&o, if json["passed"] == true { 0 } else { 1 });
+    assert_eq!(json["kind"], "classes");
+    assert_eq!(json["classes"], serde_json::json!(["GO", "NO-GO", "crack"]));
+    assert_eq!(json["max_misroute"], serde_json::json!({ "Count": 0 }));
+    assert_eq!(json["blob_sha256"].as_str().unwrap().len(), 64);
+    let logs = json["logs"].as_array().unwrap();
+    assert_eq!(logs.len(), 2, "train and holdout");
+    for l in logs {
+        // No unit is a crack; every other unit is in its row.
+        assert_eq!(l["class_units"][2], 0);
+        let units: u64 = l["class_units"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_u64().unwrap())
+            .sum();
+        assert_eq!(units, l["units"].as_u64().unwrap());
+    }
+    let md = std::fs::read_to_string(d.join("out/audit.md")).unwrap();
+    assert!(
+        md.contains("| true \\ decided | GO | NO-GO | crack | RECHECK | FAULT |"),
+        "{md}"
+    );
+    let html = std::fs::read_to_string(d.join("out/audit.html")).unwrap();
+    assert!(html.contains("<svg"));
+    let units = std::fs::read_to_string(d.join("units.csv")).unwrap();
+    let total: u64 = logs.iter().map(|l| l["units"].as_u64().unwrap()).sum();
+    assert_eq!(units.lines().count() as u64, total + 1);
+    // drift has no baseline to compare a class model's field with, and says so.
+    let o = linegate(
+        &[
+            "-q",
+            "drift",
+            "--audit",
+            "out/audit.json",
+            "demo/holdout-synthetic.csv",
+        ],
+        d,
+    );
+    let err = exits(&o, 2);
+    assert!(err.contains("several classes"), "{err}");
+    // --max-misroute on a two-sided model is refused, not ignored.
+    let o = linegate(
+        &[
+            "-q",
+            "audit",
+            "--model",
+            "demo/model.json",
+            "--max-misroute",
+            "1%",
+        ],
+        d,
+    );
+    let err = exits(&o, 2);
+    assert!(err.contains("--max-misroute"), "{err}");
+}
