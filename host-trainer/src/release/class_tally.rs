@@ -8,9 +8,10 @@
 //! weights are the two rows' differences: `bound.rs`'s derivation bounds |Dₖ − dₖ| by the
 //! pair's bound bₗₖ. The decision depends on the differences against L only (L leads while
 //! every Dₖ > 0; it is decided when every Dₖ reaches L's gap G), so the unit is PROVED when
-//! every k keeps its side of 0 and of G by more than bₗₖ: dₖ > bₗₖ, and dₖ − G ≥ … above
-//! or G − dₖ > bₗₖ below, the side being the float rule's (dₖ ≥ A·gap). Then the device
-//! decides exactly as the float rule. A unit's margin is the smallest of those distances in
+//! every k keeps its side of 0 and of G by more than bₗₖ: dₖ > bₗₖ, and dₖ − G > bₗₖ
+//! where the float rule has the lead reach the gap (dₖ ≥ A·gap), G − dₖ > bₗₖ where it
+//! does not. Then the device decides exactly as the float rule: a PROVED unit cannot
+//! flip. A unit's margin is the smallest of those distances in
 //! multiples of its pair's bound (in LSB when the bound is 0).
 
 use rayon::prelude::*;
@@ -44,31 +45,35 @@ impl PairBounds {
     pub fn of(q: &QuantisedClasses) -> Self {
         let xmax = input_maxima(&q.fixed, &q.kappa);
         let k = q.class_count();
-        let mut bounds = vec![vec![0.0; k]; k];
-        for a in 0..k {
-            for b in 0..k {
-                if a == b {
-                    continue;
-                }
-                let (ra, rb) = (&q.section.rows[a], &q.section.rows[b]);
-                let w: Vec<f64> = ra
-                    .weights
-                    .iter()
-                    .zip(&rb.weights)
-                    .map(|(x, y)| f64::from(*x) - f64::from(*y))
-                    .collect();
-                let ideal: Vec<f64> = q.ideal_weights[a]
-                    .iter()
-                    .zip(&q.ideal_weights[b])
-                    .map(|(x, y)| x - y)
-                    .collect();
-                let bias = ra.bias as f64 - rb.bias as f64;
-                let ideal_bias = q.ideal_bias[a] - q.ideal_bias[b];
-                bounds[a][b] = bound_of(&w, &ideal, &xmax, bias, ideal_bias).total;
-            }
-        }
+        let bounds = (0..k)
+            .map(|a| (0..k).map(|b| pair_bound(q, &xmax, a, b)).collect())
+            .collect();
         Self { classes: k, bounds }
     }
+}
+
+/// The bound of row `a` minus row `b` (0 for a row against itself).
+fn pair_bound(q: &QuantisedClasses, xmax: &[f64], a: usize, b: usize) -> f64 {
+    let (Some(ra), Some(rb)) = (q.section.rows.get(a), q.section.rows.get(b)) else {
+        return 0.0;
+    };
+    if a == b {
+        return 0.0;
+    }
+    let w: Vec<f64> = ra
+        .weights
+        .iter()
+        .zip(&rb.weights)
+        .map(|(x, y)| f64::from(*x) - f64::from(*y))
+        .collect();
+    let ideal: Vec<f64> = q.ideal_weights[a]
+        .iter()
+        .zip(&q.ideal_weights[b])
+        .map(|(x, y)| x - y)
+        .collect();
+    let bias = ra.bias as f64 - rb.bias as f64;
+    let ideal_bias = q.ideal_bias[a] - q.ideal_bias[b];
+    bound_of(&w, &ideal, xmax, bias, ideal_bias).total
 }
 
 /// What one unit came to.

@@ -19,7 +19,8 @@
 //! [`values`] lists a unit's channel values as the device computes them.
 //! A model of several classes: [`quantise_classes`] (every row in one Q-format, the gaps),
 //! [`class_tally`] (confusion matrix, flips, the per-pair rounding proof), [`class_gates`]
-//! (per class: false GO, misrouting) and [`class_audit`] (the audit and its units CSV).
+//! (per class: false GO, misrouting) and [`class_audit`] (the audit and its units CSV);
+//! [`words`] holds the pieces both quantisers start from.
 
 pub mod applying;
 pub mod audit;
@@ -50,3 +51,4 @@ pub mod tally;
 pub mod tolerance;
 pub mod units;
 pub mod values;
+pub mod words;

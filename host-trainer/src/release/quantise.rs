@@ -19,9 +19,10 @@
 
 use rayon::prelude::*;
 use shared_model::features::SignalSection;
-use shared_model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, ModelError};
+use shared_model::{AuditMark, CheckedModel, FixedModel, ModelError};
 
 use crate::ingest::dataset::{Dataset, RawForm};
+use crate::release::words::{WordError, channel_specs, conversions, word_scale};
 use crate::train::float_model::FloatModel;
 
 /// Quantiser settings.
@@ -66,6 +67,15 @@ pub enum QuantError {
     /// A class name is too long for the blob.
     #[error("class name '{0}' is longer than {max} bytes; name the class shorter in the log's class list", max = shared_model::NAME_CAPACITY)]
     ClassName(String),
+}
+
+impl From<WordError> for QuantError {
+    fn from(e: WordError) -> Self {
+        match e {
+            WordError::Format(f) => Self::Format(f),
+            WordError::Name(n) => Self::Name(n),
+        }
+    }
 }
 
 /// A quantised model with what the audit needs to bound its rounding error.
@@ -127,7 +137,7 @@ pub fn quantise(
     train: Option<&Dataset>,
     cfg: QuantConfig,
 ) -> Result<Quantised, QuantError> {
-    let (conv, kappa) = conversions(fm, cfg)?;
+    let (conv, kappa) = conversions(fm, cfg.input_bits, cfg.weight_bits)?;
     let ratio: Vec<f64> = fm
         .weights
         .iter()
@@ -136,7 +146,7 @@ pub fn quantise(
         .map(|((w, c), k)| w / (c.half as f64 * k))
         .collect();
     let max_r = ratio.iter().fold(0.0f64, |m, r| m.max(r.abs()));
-    let (scale, frac_bits, wmax) = word_scale(max_r, cfg);
+    let (scale, frac_bits, wmax) = word_scale(max_r, cfg.input_bits, cfg.weight_bits);
     let ideal_weights: Vec<f64> = ratio.iter().map(|r| r * scale).collect();
     let plain_weights: Vec<i32> = ideal_weights
         .iter()
@@ -228,80 +238,6 @@ pub fn quantise(
         }
     }
     Ok(q)
-}
-
-/// Each channel's conversion (multiplier, shift) at the input word and its
-/// κᵢ = multiplierᵢ / 2^shiftᵢ, once the word lengths are checked: what every quantiser
-/// (one row or several) starts from.
-///
-/// # Errors
-/// [`QuantError::Format`] for word lengths the blob does not support.
-pub(crate) fn conversions(
-    fm: &FloatModel,
-    cfg: QuantConfig,
-) -> Result<(Vec<(i32, u8)>, Vec<f64>), QuantError> {
-    if cfg.input_bits != 8 && cfg.input_bits != 16 || !(2..=32).contains(&cfg.weight_bits) {
-        return Err(QuantError::Format(format!(
-            "{}-bit inputs, {}-bit weights",
-            cfg.input_bits, cfg.weight_bits
-        )));
-    }
-    let conv: Vec<(i32, u8)> = fm
-        .channels
-        .iter()
-        .map(|c| c.conversion(cfg.input_bits))
-        .collect();
-    let kappa = conv
-        .iter()
-        .map(|&(m, s)| f64::from(m) / 2f64.powi(i32::from(s)))
-        .collect();
-    Ok((conv, kappa))
-}
-
-/// The accumulator scale A for the largest ideal weight ratio `max_r` (|wᵢ|/(halfᵢ·κᵢ) over
-/// every weight), the blob's fractional bits, and the largest weight word value.
-pub(crate) fn word_scale(max_r: f64, cfg: QuantConfig) -> (f64, u8, f64) {
-    let wmax = ((1i64 << (cfg.weight_bits - 1)) - 1) as f64;
-    let fx = i32::from(cfg.input_bits) - 1;
-    // A fills the weight word: the largest ideal weight is exactly ±Wmax. The float score's unit
-    // is arbitrary, so this costs nothing; a pure power of two would leave up to one bit unused.
-    let scale = if max_r > 0.0 {
-        wmax / max_r
-    } else {
-        2f64.powi(fx)
-    };
-    let k = (scale.log2().floor() as i32).clamp(fx, fx + 62);
-    (scale, (k - fx) as u8, wmax)
-}
-
-/// The blob's channel list: each channel's name, range, conversion and weight.
-///
-/// # Errors
-/// [`QuantError::Name`] for a name over 24 bytes, [`QuantError::Format`] for too many
-/// channels.
-pub(crate) fn channel_specs(
-    fm: &FloatModel,
-    conv: &[(i32, u8)],
-    weights: &[i32],
-) -> Result<heapless::Vec<ChannelSpec, { shared_model::MAX_CHANNELS }>, QuantError> {
-    let mut channels = heapless::Vec::new();
-    for ((c, &(multiplier, shift)), &weight) in fm.channels.iter().zip(conv).zip(weights) {
-        let name = heapless::String::try_from(c.name.as_str())
-            .map_err(|_| QuantError::Name(c.name.clone()))?;
-        let spec = ChannelSpec {
-            name,
-            raw_min: c.raw_min,
-            raw_max: c.raw_max,
-            offset: c.offset,
-            multiplier,
-            shift,
-            weight,
-        };
-        channels
-            .push(spec)
-            .map_err(|_| QuantError::Format(format!("{} channels", fm.channels.len())))?;
-    }
-    Ok(channels)
 }
 
 /// Which units the float model classifies correctly, by the score the audit computes (over
@@ -583,4 +519,148 @@ fn settled(
 }
 
 #[cfg(test)]
-mod tests;
+mod tests {
+    use super::*;
+    use fixed::types::extra::{U7, U15};
+    use fixed::{FixedI8, FixedI16};
+
+    /// The moved model's minimum margin over every unit the float model gets right,
+    /// recomputed here unit by unit with the kernel (the definition, not the pass).
+    fn brute_min_margin(m: &CheckedModel, fm: &FloatModel, ds: &Dataset) -> Option<f64> {
+        let correct = Correct::new(fm, ds);
+        let mut least = f64::INFINITY;
+        for i in (0..ds.len()).filter(|&i| correct.holds(i)) {
+            let d = m.classify(ds.raw_row(i)).ok()?;
+            least = least.min(fixed_margin(m.model(), d.score, ds.labels[i]));
+        }
+        least.is_finite().then_some(least)
+    }
+
+    #[test]
+    fn a_move_too_large_for_the_kept_units_asks_for_the_full_pass() {
+        // Two kept units of margins 5.5 and 10.5 out of three scored; channel a's weight
+        // moves by one, so a unit left out (margin ≥ 10.5) may lose up to Xmax + 1.
+        let plain = FixedModel::example_two_channel();
+        let mut moved = plain.clone();
+        moved.channels[0].weight += 1;
+        let rows = vec![(5.5, 1i8, vec![0, 0]), (10.5, -1, vec![0, 0])];
+        let after = [4.5, 9.5];
+        let settle = |xmax: f64, scored: usize, m: &FixedModel| {
+            let xmax = [xmax, xmax];
+            let bound = Bound {
+                ideal_w: &[0.0, 0.0],
+                ideal_b: 0.0,
+                xmax: &xmax,
+            };
+            settled(&plain, m, &bound, (&rows, &after), scored, Some(5.5))
+        };
+        // Reach 1·(4 + 1) = 5: 4.5 ≤ 10.5 − 5, settled.
+        assert_eq!(settle(4.0, 3, &moved), Some(4.5));
+        // Reach 7: a unit left out could fall to 3.5, below 4.5.
+        assert_eq!(settle(6.0, 3, &moved), None);
+        // Every scored unit kept: nothing left out to fear.
+        assert_eq!(settle(1e6, 2, &moved), Some(4.5));
+        // A RECHECK band: its units have no margin, the full pass decides.
+        let mut banded = moved.clone();
+        banded.go_min += 2;
+        assert_eq!(settle(4.0, 3, &banded), None);
+        // A refused reading in the search's pass: no margin to report from the kept units.
+        let bound = Bound {
+            ideal_w: &[0.0, 0.0],
+            ideal_b: 0.0,
+            xmax: &[4.0, 4.0],
+        };
+        assert_eq!(
+            settled(&plain, &moved, &bound, (&rows, &after), 3, None),
+            None
+        );
+    }
+
+    #[test]
+    fn kept_units_settle_the_moved_margin_only_when_they_must() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        let (mut used, mut moved_runs) = (0, 0);
+        for trial in 0..12 {
+            // More units than the search keeps (4,096), so the shortcut has something to prove.
+            let n = 6_000 + 1_000 * trial;
+            let w: Vec<f64> = (0..3).map(|_| rng.gen_range(-1.0..1.0)).collect();
+            let mut pts = Vec::new();
+            let mut labels = Vec::new();
+            while pts.len() < n {
+                let p: Vec<f64> = (0..3).map(|_| rng.gen_range(-1.0..1.0)).collect();
+                let s: f64 = p.iter().zip(&w).map(|(a, b)| a * b).sum();
+                if s.abs() > 0.02 {
+                    labels.push(if s > 0.0 { 1 } else { -1 });
+                    pts.push(p);
+                }
+            }
+            let ds = Dataset::from_scaled(&pts, &labels);
+            let req = crate::workflow::TrainRequest {
+                epochs: 3,
+                seed: trial as u64,
+                c: crate::train::c_choice::CPolicy::Fixed(10.0),
+                max_false_go: None,
+                folds: 0,
+                cv_trainers: crate::workflow::CvTrainers::Auto,
+                figures: crate::train::separability::Figures::VERDICT,
+                target: None,
+                ..crate::workflow::TrainRequest::new(crate::train::eval::TrainerKind::Averaged)
+            };
+            let fm = crate::workflow::train_model(&ds, None, &req).unwrap().model;
+            for weight_bits in [5u8, 6, 8] {
+                let cfg = QuantConfig {
+                    weight_bits,
+                    ..QuantConfig::default()
+                };
+                let q = quantise(&fm, Some(&ds), cfg).unwrap();
+                // Whichever way it was found, the reported margin is the definition's.
+                assert_eq!(
+                    q.optimised_min_margin,
+                    brute_min_margin(&q.model, &fm, &ds),
+                    "trial {trial}, {weight_bits}-bit weights"
+                );
+                if q.moves > 0 {
+                    moved_runs += 1;
+                    // And the shortcut itself, where it answers, agrees with a full pass.
+                    let plain = quantise(&fm, None, cfg).unwrap();
+                    let xmax = input_extremes(&plain);
+                    let bound = Bound {
+                        ideal_w: &plain.ideal_weights,
+                        ideal_b: plain.ideal_bias,
+                        xmax: &xmax,
+                    };
+                    let wmax = (1i64 << (weight_bits - 1)) - 1;
+                    let found = search(&plain.model, &ds, &Correct::new(&fm, &ds), wmax, &bound);
+                    if let Some(v) = found.moved {
+                        used += 1;
+                        let m = CheckedModel::new(found.model).unwrap();
+                        assert_eq!(Some(v), brute_min_margin(&m, &fm, &ds));
+                    }
+                }
+            }
+        }
+        // The test means something only if both happened.
+        assert!(
+            moved_runs > 0 && used > 0,
+            "moved {moved_runs}, shortcut used {used}"
+        );
+    }
+
+    #[test]
+    fn q_conversion_matches_the_fixed_crate_at_half_lsb_edges() {
+        // Reference: the `fixed` crate's from_num (round to nearest, ties to even).
+        for k in -300i32..300 {
+            for off in [-1e-9, 0.0, 1e-9] {
+                let v = (f64::from(k) + 0.5) / 128.0 + off; // exact half-LSB edges in Q7
+                if let Some(f) = FixedI8::<U7>::checked_from_num(v) {
+                    assert_eq!(to_q(v, 7), f64::from(f.to_bits()), "Q7 at {v}");
+                }
+                let v15 = (f64::from(k) + 0.5) / 32768.0 + off;
+                if let Some(f) = FixedI16::<U15>::checked_from_num(v15) {
+                    assert_eq!(to_q(v15, 15), f64::from(f.to_bits()), "Q15 at {v15}");
+                }
+            }
+        }
+    }
+}

@@ -2,7 +2,7 @@
 //! accumulator units, the class section the blob carries.
 //!
 //! The input word, the conversions and the weight word are chosen as for a two-sided model
-//! (`quantise.rs`'s [`conversions`], [`word_scale`], [`channel_specs`]): the largest
+//! (`words.rs`: [`conversions`], [`word_scale`], [`channel_specs`]): the largest
 //! |wₖᵢ|/(halfᵢ·κᵢ) over every row and channel sets the accumulator scale A, so the largest
 //! ideal weight of any row is the largest word value. Each row's weights and bias are
 //! rounded to nearest, ties to even ([`to_q`]); no ±1 LSB search (the class proof is per
@@ -16,9 +16,8 @@
 use shared_model::classes::{ClassRow, ClassSection, NO_GO_CLASS};
 use shared_model::{AuditMark, CheckedModel, Decision, Fault, FixedModel, Readings};
 
-use crate::release::quantise::{
-    QuantConfig, QuantError, channel_specs, conversions, to_q, word_scale,
-};
+use crate::release::quantise::{QuantConfig, QuantError, to_q};
+use crate::release::words::{channel_specs, conversions, word_scale};
 use crate::train::class_rows::FloatClasses;
 use crate::train::float_model::FloatModel;
 
@@ -90,7 +89,7 @@ pub fn quantise_classes(fm: &FloatModel, cfg: QuantConfig) -> Result<QuantisedCl
             "a model of several classes over signal features is not released yet; train it on a bench log".into(),
         ));
     }
-    let (conv, kappa) = conversions(fm, cfg)?;
+    let (conv, kappa) = conversions(fm, cfg.input_bits, cfg.weight_bits)?;
     let ratio = |w: &[f64]| -> Vec<f64> {
         w.iter()
             .zip(&fm.channels)
@@ -100,7 +99,7 @@ pub fn quantise_classes(fm: &FloatModel, cfg: QuantConfig) -> Result<QuantisedCl
     };
     let ratios: Vec<Vec<f64>> = fc.rows.iter().map(|r| ratio(&r.weights)).collect();
     let max_r = ratios.iter().flatten().fold(0.0f64, |m, r| m.max(r.abs()));
-    let (scale, frac_bits, wmax) = word_scale(max_r, cfg);
+    let (scale, frac_bits, wmax) = word_scale(max_r, cfg.input_bits, cfg.weight_bits);
     let ideal_weights: Vec<Vec<f64>> = ratios
         .iter()
         .map(|r| r.iter().map(|v| v * scale).collect())

@@ -171,10 +171,10 @@ fn pair_bounds_are_the_bound_of_each_difference_row() {
         for b in 0..3 {
             let (ra, rb) = (&q.section.rows[a], &q.section.rows[b]);
             let mut want = 0.0;
-            for i in 0..2 {
+            for (i, x) in xmax.iter().enumerate() {
                 let dw = f64::from(ra.weights[i]) - f64::from(rb.weights[i]);
                 let ideal = q.ideal_weights[a][i] - q.ideal_weights[b][i];
-                want += 0.5 * dw.abs() + (dw - ideal).abs() * xmax[i];
+                want += 0.5 * dw.abs() + (dw - ideal).abs() * x;
             }
             want += ((ra.bias - rb.bias) as f64 - (q.ideal_bias[a] - q.ideal_bias[b])).abs();
             if a == b {
