@@ -3,7 +3,7 @@
 
 use anyhow::Result;
 
-use super::CheckFailed;
+use super::{CheckFailed, to_json};
 use super::args::{Release, command_line};
 use super::audit::AuditArgs;
 use host_trainer::output::OutputSet;
@@ -77,7 +77,8 @@ pub fn run(args: &AuditArgs, rel: &Release, quiet: bool, misroute: Limit) -> Res
     }
     set.commit(args.force)?;
     if args.json {
-        say_raw!("{}", report::class_json(&r).trim_end());
+        // As the two-sided audit prints it: the report under "audit".
+        say_raw!("{}", to_json(&serde_json::json!({ "audit": r })));
     } else if !quiet {
         say_raw!("{md}");
     }
