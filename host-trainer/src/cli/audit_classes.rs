@@ -3,9 +3,9 @@
 
 use anyhow::Result;
 
-use super::{CheckFailed, to_json};
 use super::args::{Release, command_line};
 use super::audit::AuditArgs;
+use super::{CheckFailed, to_json};
 use host_trainer::output::OutputSet;
 use host_trainer::release::class_audit::{audit_classes, write_class_units_csv};
 use host_trainer::release::gates::Limit;

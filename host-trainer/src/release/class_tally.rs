@@ -120,8 +120,13 @@ pub fn check_unit(
     i: usize,
 ) -> UnitCheck {
     let raw = ds.raw_row(i);
-    let fs: Vec<f64> = forms.iter().map(|f| f.score(raw)).collect();
-    let fd = fc.decide(&fs);
+    // On the stack: this runs once per unit of every log.
+    let mut scores = [0.0f64; MAX_CLASSES];
+    for (s, f) in scores.iter_mut().zip(forms) {
+        *s = f.score(raw);
+    }
+    let fs = &scores[..forms.len().min(MAX_CLASSES)];
+    let fd = fc.decide(fs);
     // The unit's label code names its row as every command reads it (+1 GO, −1 − k the
     // k-th other class in row order).
     let class = ds.labels.get(i).and_then(|&code| fc.row_of_code(code));
