@@ -37,6 +37,7 @@ mod replay;
 pub mod settings;
 mod sheet;
 mod train;
+mod train_classes;
 mod values;
 
 use anyhow::Result;

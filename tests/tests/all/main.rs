@@ -3,6 +3,7 @@
 
 mod browser;
 mod c_api;
+mod classes_train;
 mod confidence;
 mod demo;
 mod device;
