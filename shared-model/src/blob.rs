@@ -16,20 +16,26 @@
 //! `CheckedModel<SignalSection>` reads every version (1 and 2 with an empty section); into
 //! a `CheckedModel` of [`Readings`](crate::model::Readings) versions 1 and 2 only
 //! ([`DecodeError::Signals`] for 3 and 4: a station that passes only readings must not
-//! load a model that needs windows).
+//! load a model that needs windows). A model of several classes (a non-empty
+//! [`ClassSection`]) is written as version 5 (6 signed): version 1's payload, the signal
+//! section (empty for a model of readings), then the class section. [`decode`] gives a
+//! two-sided model and refuses 5 and 6 ([`DecodeError::Classes`]); [`decode_classes`]
+//! reads every version into a model whose class section is empty for versions 1 to 4.
 //! The full specification, with the payload's field order, is in
 //! `shared-model/FORMAT.md`. Stability rule: any change to this layout or to
 //! the payload's fields bumps [`FORMAT_VERSION`]; a decoder refuses versions
 //! it does not know.
 
+use crate::classes::ClassSection;
 use crate::error::{DecodeError, EncodeError};
 use crate::features::SignalSection;
 use crate::limits::MAX_CHANNELS;
 pub use crate::limits::{
-    CRC_LEN, FORMAT_VERSION, HEADER_LEN, KEY_ID_LEN, MAGIC, MAX_BLOB_LEN, MAX_PAYLOAD_LEN,
-    SIGNAL_VERSION, SIGNATURE_LEN, SIGNATURE_SECTION_LEN, SIGNED_SIGNAL_VERSION, SIGNED_VERSION,
+    CLASS_VERSION, CRC_LEN, FORMAT_VERSION, HEADER_LEN, KEY_ID_LEN, MAGIC, MAX_BLOB_LEN,
+    MAX_PAYLOAD_LEN, SIGNAL_VERSION, SIGNATURE_LEN, SIGNATURE_SECTION_LEN, SIGNED_CLASS_VERSION,
+    SIGNED_SIGNAL_VERSION, SIGNED_VERSION,
 };
-use crate::model::{ChannelSpec, CheckedModel, FixedModel, Inputs};
+use crate::model::{ChannelSpec, CheckedModel, FixedModel, Inputs, Outcomes};
 
 /// CRC-32/ISO-HDLC (poly 0x04C11DB7, reflected, init and xorout 0xFFFFFFFF): the CRC of
 /// zip, PNG and Ethernet. Bitwise, without a table, to keep ~1 KiB out of device flash;
@@ -95,8 +101,8 @@ pub fn signature(blob: &[u8]) -> Option<Signed<'_>> {
 ///
 /// # Errors
 /// [`EncodeError::BufferTooSmall`] if `out` cannot hold the whole signed blob.
-pub fn encode_for_signing<I: Inputs>(
-    model: &CheckedModel<I>,
+pub fn encode_for_signing<I: Inputs, K: Outcomes>(
+    model: &CheckedModel<I, K>,
     key_id: [u8; KEY_ID_LEN],
     out: &mut [u8],
 ) -> Result<usize, EncodeError> {
@@ -122,24 +128,37 @@ fn sign_section(n: usize, key_id: [u8; KEY_ID_LEN], out: &mut [u8]) -> Result<us
 /// # Errors
 /// [`EncodeError::BufferTooSmall`] if `out` is shorter than the blob; a
 /// buffer of [`MAX_BLOB_LEN`] bytes always suffices.
-pub fn encode<I: Inputs>(model: &CheckedModel<I>, out: &mut [u8]) -> Result<usize, EncodeError> {
+pub fn encode<I: Inputs, K: Outcomes>(
+    model: &CheckedModel<I, K>,
+    out: &mut [u8],
+) -> Result<usize, EncodeError> {
     encode_version(model, false, out)
 }
 
 /// Header, payload (the model, then its signal section if it has one) and CRC; the version
 /// says whether a section and a signature section follow (one layout per model: a model
 /// without signals is version 1 or 2 whatever its kind).
-fn encode_version<I: Inputs>(
-    model: &CheckedModel<I>,
+fn encode_version<I: Inputs, K: Outcomes>(
+    model: &CheckedModel<I, K>,
     signed: bool,
     out: &mut [u8],
 ) -> Result<usize, EncodeError> {
+    let classes = model.classes();
     let signals = model.inputs().section();
-    let version = match (signals.is_some(), signed) {
-        (false, false) => FORMAT_VERSION,
-        (false, true) => SIGNED_VERSION,
-        (true, false) => SIGNAL_VERSION,
-        (true, true) => SIGNED_SIGNAL_VERSION,
+    let version = match (classes.is_some(), signals.is_some(), signed) {
+        (true, _, false) => CLASS_VERSION,
+        (true, _, true) => SIGNED_CLASS_VERSION,
+        (false, false, false) => FORMAT_VERSION,
+        (false, false, true) => SIGNED_VERSION,
+        (false, true, false) => SIGNAL_VERSION,
+        (false, true, true) => SIGNED_SIGNAL_VERSION,
+    };
+    // Versions 5 and 6 always carry the signal section, empty for a model of readings.
+    let empty = SignalSection::default();
+    let signals = if classes.is_some() {
+        Some(signals.unwrap_or(&empty))
+    } else {
+        signals
     };
     let (header, rest) = out
         .split_at_mut_checked(HEADER_LEN)
@@ -150,6 +169,12 @@ fn encode_version<I: Inputs>(
     if let Some(signals) = signals {
         let section = rest.get_mut(n..).ok_or(EncodeError::BufferTooSmall)?;
         n += postcard::to_slice(signals, section)
+            .map_err(|_| EncodeError::BufferTooSmall)?
+            .len();
+    }
+    if let Some(classes) = classes {
+        let section = rest.get_mut(n..).ok_or(EncodeError::BufferTooSmall)?;
+        n += postcard::to_slice(classes, section)
             .map_err(|_| EncodeError::BufferTooSmall)?
             .len();
     }
@@ -169,23 +194,49 @@ fn encode_version<I: Inputs>(
     Ok(total)
 }
 
-/// Decodes and validates a blob into a model of input kind `I`. Never panics, whatever
-/// the bytes.
+/// Decodes and validates a blob into a two-sided model of input kind `I`. Never panics,
+/// whatever the bytes.
 ///
-/// `CheckedModel<SignalSection>` takes every version (1 and 2 with an empty section);
+/// `CheckedModel<SignalSection>` takes versions 1 to 4 (1 and 2 with an empty section);
 /// `CheckedModel` (readings) versions 1 and 2, and refuses 3 and 4 before reading further.
+/// Versions 5 and 6 (several classes) are refused: [`decode_classes`] reads them.
 ///
 /// # Errors
 /// The first problem found, in this order: [`DecodeError::Truncated`],
 /// [`DecodeError::BadMagic`], [`DecodeError::UnsupportedVersion`],
-/// [`DecodeError::ChannelOverCapacity`], [`DecodeError::Signals`] (readings only),
-/// [`DecodeError::TrailingBytes`], [`DecodeError::CrcMismatch`],
-/// [`DecodeError::MalformedPayload`], [`DecodeError::InconsistentLengths`] (also a
-/// version-3 blob whose section is empty), [`DecodeError::Invalid`] (the model's or the
-/// section's [`ModelError`](crate::ModelError)).
+/// [`DecodeError::ChannelOverCapacity`], [`DecodeError::Classes`],
+/// [`DecodeError::Signals`] (readings only), [`DecodeError::TrailingBytes`],
+/// [`DecodeError::CrcMismatch`], [`DecodeError::MalformedPayload`],
+/// [`DecodeError::InconsistentLengths`] (also a version-3 blob whose section is empty),
+/// [`DecodeError::Invalid`] (the model's or the section's [`ModelError`](crate::ModelError)).
 pub fn decode<I: Inputs>(bytes: &[u8]) -> Result<CheckedModel<I>, DecodeError> {
+    decode_into(bytes)
+}
+
+/// Decodes and validates a blob of any version into a model that may decide between
+/// several classes: versions 1 to 4 give an empty class section (two-sided), 5 and 6 the
+/// blob's classes. Never panics, whatever the bytes.
+///
+/// # Errors
+/// As [`decode`], without [`DecodeError::Classes`]; a version-5 blob whose class section
+/// is empty is [`DecodeError::InconsistentLengths`], and one whose signal section is not
+/// empty read into readings is [`DecodeError::Signals`].
+pub fn decode_classes<I: Inputs>(
+    bytes: &[u8],
+) -> Result<CheckedModel<I, ClassSection>, DecodeError> {
+    decode_into(bytes)
+}
+
+/// [`decode`] and [`decode_classes`]: one reader for every version and kind.
+#[inline(always)]
+fn decode_into<I: Inputs, K: Outcomes>(bytes: &[u8]) -> Result<CheckedModel<I, K>, DecodeError> {
     let header = Header::read(bytes)?;
-    if header.has_signals() && !I::WINDOWS {
+    if header.has_classes() && !K::CLASSES {
+        return Err(DecodeError::Classes);
+    }
+    // A version-5 blob of readings carries an empty signal section: it is refused only if
+    // the section turns out not to be empty.
+    if header.has_signals() && !header.has_classes() && !I::WINDOWS {
         return Err(DecodeError::Signals);
     }
     let payload = checked_payload(bytes, header)?;
@@ -193,10 +244,23 @@ pub fn decode<I: Inputs>(bytes: &[u8]) -> Result<CheckedModel<I>, DecodeError> {
     let mut inputs = I::default();
     // `I::WINDOWS` first: for readings the section's code drops out. The section is read
     // in place: a section moved through an `Option` would be one more copy on the stack.
-    if I::WINDOWS && header.has_signals() {
-        let section = inputs.section_mut().ok_or(DecodeError::Signals)?;
-        rest = take_signals(rest, section)?;
-        // A model without signals is written as version 1: one layout per model.
+    if header.has_signals() {
+        match inputs.section_mut() {
+            Some(section) => {
+                rest = take_signals(rest, section)?;
+                // A model without signals is written as version 1 (or 5): one layout per model.
+                if section.is_empty() && !header.has_classes() {
+                    return Err(DecodeError::InconsistentLengths);
+                }
+            }
+            None => rest = skip_empty_signals(rest)?,
+        }
+    }
+    let mut outcomes = K::default();
+    if header.has_classes() {
+        let section = outcomes.classes_mut().ok_or(DecodeError::Classes)?;
+        rest = take_classes(rest, section)?;
+        // A two-sided model is written as versions 1 to 4: one layout per model.
         if section.is_empty() {
             return Err(DecodeError::InconsistentLengths);
         }
@@ -204,7 +268,7 @@ pub fn decode<I: Inputs>(bytes: &[u8]) -> Result<CheckedModel<I>, DecodeError> {
     if !rest.is_empty() || model.channels.len() != usize::from(header.channel_count) {
         return Err(DecodeError::InconsistentLengths);
     }
-    Ok(CheckedModel::with_inputs(model, inputs)?)
+    Ok(CheckedModel::with_outcomes(model, inputs, outcomes)?)
 }
 
 /// The payload of a blob whose length and CRC check.
@@ -317,6 +381,38 @@ fn take_signals<'a>(bytes: &'a [u8], section: &mut SignalSection) -> Result<&'a 
     Ok(rest)
 }
 
+/// The signal section of a version-5 blob read where only readings are passed: it must be
+/// empty (no signals, no sources), else the model needs windows.
+fn skip_empty_signals(bytes: &[u8]) -> Result<&[u8], DecodeError> {
+    let (signals, rest): (u32, _) = take(bytes)?;
+    let (sources, rest): (u32, _) = take(rest)?;
+    if signals != 0 || sources != 0 {
+        return Err(DecodeError::Signals);
+    }
+    Ok(rest)
+}
+
+/// The class section (format version 5) into `section`: its three numbers, then each row
+/// pushed in place (a row is small; the whole section read by serde would be built in
+/// frames of its own).
+#[inline(never)]
+fn take_classes<'a>(bytes: &'a [u8], section: &mut ClassSection) -> Result<&'a [u8], DecodeError> {
+    let (go, rest) = take(bytes)?;
+    let (go_gap, rest) = take(rest)?;
+    let (class_gap, rest) = take(rest)?;
+    (section.go, section.go_gap, section.class_gap) = (go, go_gap, class_gap);
+    let (count, mut rest): (u32, _) = take(rest)?;
+    for _ in 0..count {
+        let (row, r) = take(rest)?;
+        section
+            .rows
+            .push(row)
+            .map_err(|_| DecodeError::MalformedPayload)?;
+        rest = r;
+    }
+    Ok(rest)
+}
+
 /// The fixed header, as read from a blob.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct Header {
@@ -340,14 +436,23 @@ impl Header {
         }
     }
 
-    /// Whether the blob ends in a signature section (version 2 or 4).
+    /// Whether the blob ends in a signature section (version 2, 4 or 6).
     pub fn is_signed(&self) -> bool {
-        self.version == SIGNED_VERSION || self.version == SIGNED_SIGNAL_VERSION
+        matches!(
+            self.version,
+            SIGNED_VERSION | SIGNED_SIGNAL_VERSION | SIGNED_CLASS_VERSION
+        )
     }
 
-    /// Whether the payload carries the signal section after the model (version 3 or 4).
+    /// Whether the payload carries the signal section after the model (versions 3 to 6;
+    /// in 5 and 6 it may be empty).
     pub fn has_signals(&self) -> bool {
-        self.version == SIGNAL_VERSION || self.version == SIGNED_SIGNAL_VERSION
+        (SIGNAL_VERSION..=SIGNED_CLASS_VERSION).contains(&self.version)
+    }
+
+    /// Whether the payload ends with the class section (version 5 or 6).
+    pub fn has_classes(&self) -> bool {
+        self.version == CLASS_VERSION || self.version == SIGNED_CLASS_VERSION
     }
 
     /// Reads and checks the header: length, magic, version, channel capacity.
@@ -370,7 +475,7 @@ impl Header {
             .ok_or(truncated)?;
         let [_, _, _, _, v0, v1, channel_count, l0, l1] = *h;
         let version = u16::from_le_bytes([v0, v1]);
-        if !(FORMAT_VERSION..=SIGNED_SIGNAL_VERSION).contains(&version) {
+        if !(FORMAT_VERSION..=SIGNED_CLASS_VERSION).contains(&version) {
             return Err(DecodeError::UnsupportedVersion(version));
         }
         if usize::from(channel_count) > MAX_CHANNELS {

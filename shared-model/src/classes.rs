@@ -25,7 +25,9 @@ use heapless::{String, Vec};
 use serde::{Deserialize, Serialize};
 
 use crate::decision::{Decision, Verdict};
+use crate::error::ModelError;
 use crate::limits::{MAX_CHANNELS, MAX_CLASSES, NAME_CAPACITY};
+use crate::model::{FixedModel, input_bound};
 
 /// The `go` index of a section without a GO class (pure diagnosis: every class a failure).
 pub const NO_GO_CLASS: u8 = u8::MAX;
@@ -72,6 +74,95 @@ impl ClassSection {
         self.rows
             .get(usize::from(k))
             .map_or("", |r| r.name.as_str())
+    }
+
+    /// A small valid model of three classes for examples and tests: the two channels of
+    /// [`FixedModel::example_two_channel`] with its two-sided fields unused, and the
+    /// classes `good` (GO), `short` and `crack`.
+    pub fn example_three_class() -> (FixedModel, Self) {
+        let mut model = FixedModel::example_two_channel();
+        for c in model.channels.iter_mut() {
+            c.weight = 0;
+        }
+        (model.bias, model.nogo_max, model.go_min) = (0, -1, 0);
+        let row = |name: &str, bias: i64, w: [i32; 2]| ClassRow {
+            name: String::try_from(name).unwrap_or_default(),
+            bias,
+            weights: Vec::from_slice(&w).unwrap_or_default(),
+        };
+        let mut rows = Vec::new();
+        let _ = rows.push(row("good", 1000, [100, -100]));
+        let _ = rows.push(row("short", 0, [-100, 50]));
+        let _ = rows.push(row("crack", -500, [20, 100]));
+        let section = Self {
+            go: 0,
+            go_gap: 4096,
+            class_gap: 2048,
+            rows,
+        };
+        (model, section)
+    }
+
+    /// Validation of a non-empty section against its model (part of
+    /// `CheckedModel::with_outcomes`): 2..=8 rows, each with one weight per channel inside
+    /// the weight word and a unique non-empty name; the GO index a row or
+    /// [`NO_GO_CLASS`]; gaps ≥ 1; the model's two-sided fields unused; and the accumulator
+    /// proof: with `R_k = |bias_k| + Σ_j |w_kj|·max|x_j|`, `2·max_k R_k` fits the declared
+    /// accumulator, so every row's score and every difference of two rows' scores does.
+    pub(crate) fn check_rows(&self, model: &FixedModel) -> Result<(), ModelError> {
+        let count = self.rows.len();
+        if !(2..=MAX_CLASSES).contains(&count) {
+            return Err(ModelError::ClassCount(
+                u8::try_from(count).unwrap_or(u8::MAX),
+            ));
+        }
+        let unused = model.bias == 0
+            && model.nogo_max == -1
+            && model.go_min == 0
+            && model.channels.iter().all(|c| c.weight == 0);
+        if !unused {
+            return Err(ModelError::ClassUnusedFields);
+        }
+        if self.go != NO_GO_CLASS && usize::from(self.go) >= count {
+            return Err(ModelError::GoClass(self.go));
+        }
+        if self.go_gap < 1 || self.class_gap < 1 {
+            return Err(ModelError::ClassGap);
+        }
+        let weight_limit = (1i64 << (model.weight_bits.clamp(2, 32) - 1)) - 1;
+        let mut widest: i128 = 0;
+        for (k, row) in self.rows.iter().enumerate() {
+            let class = u8::try_from(k).unwrap_or(u8::MAX);
+            let named_before = self
+                .rows
+                .iter()
+                .take(k)
+                .any(|r| r.name.as_bytes() == row.name.as_bytes());
+            if row.name.is_empty() || named_before {
+                return Err(ModelError::ClassName { class });
+            }
+            if row.weights.len() != model.channels.len() {
+                return Err(ModelError::ClassWeights { class });
+            }
+            let mut bound = i128::from(row.bias).abs();
+            for (j, (&w, c)) in row.weights.iter().zip(&model.channels).enumerate() {
+                if i64::from(w).abs() > weight_limit {
+                    let channel = u8::try_from(j).unwrap_or(u8::MAX);
+                    return Err(ModelError::ClassWeightOutOfRange { class, channel });
+                }
+                bound = bound.saturating_add(i128::from(w).abs().saturating_mul(input_bound(c)));
+            }
+            widest = widest.max(bound);
+        }
+        let difference = widest.saturating_mul(2);
+        let needed_bits = u8::try_from(129 - difference.leading_zeros()).unwrap_or(u8::MAX);
+        if needed_bits > model.acc_bits {
+            return Err(ModelError::AccumulatorOverflow {
+                needed_bits,
+                declared_bits: model.acc_bits,
+            });
+        }
+        Ok(())
     }
 
     /// The decision for the classes' scores, one per row in row order (the rule of the
@@ -164,6 +255,81 @@ mod tests {
         assert_eq!(s.decide(&[100, 0, 0]).verdict, Verdict::NoGo);
         assert_eq!(s.decide(&[100, 0, 0]).class, Some(0));
         assert_eq!(s.decide(&[3, 0, 0]).verdict, Verdict::Recheck);
+    }
+
+    #[test]
+    fn validation_refuses_each_broken_field() {
+        use crate::features::SignalSection;
+        use crate::model::CheckedModel;
+        let (model, base) = ClassSection::example_three_class();
+        let check = |m: &FixedModel, c: ClassSection| {
+            CheckedModel::with_outcomes(m.clone(), SignalSection::default(), c).map(|_| ())
+        };
+        assert_eq!(check(&model, base.clone()), Ok(()));
+        type Edit = fn(&mut FixedModel, &mut ClassSection);
+        let cases: [(Edit, ModelError); 9] = [
+            (|_, c| c.rows.truncate(1), ModelError::ClassCount(1)),
+            (
+                |m, _| m.channels[0].weight = 1,
+                ModelError::ClassUnusedFields,
+            ),
+            (|m, _| m.go_min = 5, ModelError::ClassUnusedFields),
+            (|_, c| c.go = 3, ModelError::GoClass(3)),
+            (|_, c| c.class_gap = 0, ModelError::ClassGap),
+            (
+                |_, c| c.rows[2].name = String::try_from("short").unwrap(),
+                ModelError::ClassName { class: 2 },
+            ),
+            (
+                |_, c| c.rows[1].name.clear(),
+                ModelError::ClassName { class: 1 },
+            ),
+            (
+                |_, c| {
+                    c.rows[1].weights.pop();
+                },
+                ModelError::ClassWeights { class: 1 },
+            ),
+            (
+                |_, c| c.rows[2].weights[1] = 128,
+                ModelError::ClassWeightOutOfRange {
+                    class: 2,
+                    channel: 1,
+                },
+            ),
+        ];
+        for (edit, want) in cases {
+            let (mut m, mut c) = (model.clone(), base.clone());
+            edit(&mut m, &mut c);
+            assert_eq!(check(&m, c), Err(want));
+        }
+        // No GO class is allowed (diagnosis only).
+        let mut c = base.clone();
+        c.go = NO_GO_CLASS;
+        assert_eq!(check(&model, c), Ok(()));
+    }
+
+    #[test]
+    fn the_accumulator_proof_covers_the_difference_of_two_rows() {
+        use crate::features::SignalSection;
+        use crate::model::CheckedModel;
+        // Row bound R = |bias| + 2·127·32767; twice the widest row must fit 32 bits.
+        let (model, mut c) = ClassSection::example_three_class();
+        c.rows[0].weights = Vec::from_slice(&[127, 127]).unwrap();
+        let base = 2 * 127 * 32767_i64;
+        c.rows[0].bias = (1i64 << 30) - 1 - base;
+        let check = |c: ClassSection| {
+            CheckedModel::with_outcomes(model.clone(), SignalSection::default(), c).map(|_| ())
+        };
+        assert_eq!(check(c.clone()), Ok(()), "2·R = 2^31 − 2 fits 32 bits");
+        c.rows[0].bias += 1;
+        assert_eq!(
+            check(c),
+            Err(ModelError::AccumulatorOverflow {
+                needed_bits: 33,
+                declared_bits: 32
+            })
+        );
     }
 
     #[test]

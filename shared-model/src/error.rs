@@ -62,6 +62,32 @@ pub enum ModelError {
         /// Why.
         error: SignalError,
     },
+    /// A model of several classes needs 2..=8 class rows; it has this many.
+    ClassCount(u8),
+    /// A class row does not give one weight per channel.
+    ClassWeights {
+        /// Class index.
+        class: u8,
+    },
+    /// A class row's weight does not fit the declared weight word.
+    ClassWeightOutOfRange {
+        /// Class index.
+        class: u8,
+        /// Channel index.
+        channel: u8,
+    },
+    /// A class name is empty or repeats an earlier class's name.
+    ClassName {
+        /// Class index.
+        class: u8,
+    },
+    /// The GO class index names no class (and is not 255, "no GO class").
+    GoClass(u8),
+    /// A class gap below 1: equal scores would decide.
+    ClassGap,
+    /// A model of several classes must leave the two-sided fields unused: every channel's
+    /// weight and the bias 0, NO-GO maximum −1, GO minimum 0.
+    ClassUnusedFields,
 }
 
 impl fmt::Display for ModelError {
@@ -115,6 +141,27 @@ impl fmt::Display for ModelError {
                 )
             }
             Self::Signal { channel, error } => write!(f, "channel {channel}: {error}"),
+            Self::ClassCount(n) => write!(
+                f,
+                "a model of several classes needs 2 to {} class rows, not {n}",
+                crate::limits::MAX_CLASSES
+            ),
+            Self::ClassWeights { class } => {
+                write!(f, "class {class}: its row must give one weight per channel")
+            }
+            Self::ClassWeightOutOfRange { class, channel } => write!(
+                f,
+                "class {class}, channel {channel}: weight does not fit the declared weight word"
+            ),
+            Self::ClassName { class } => write!(
+                f,
+                "class {class}: its name is empty or repeats another class's"
+            ),
+            Self::GoClass(k) => write!(f, "GO class {k} names no class row"),
+            Self::ClassGap => f.write_str("class gaps must be at least 1"),
+            Self::ClassUnusedFields => f.write_str(
+                "a model of several classes must leave the two-sided weights, bias and thresholds at 0, 0, -1, 0",
+            ),
         }
     }
 }
@@ -161,6 +208,9 @@ pub enum DecodeError {
     /// The blob's model has signal features (version 3 or 4): it needs a station that
     /// passes sample windows (`CheckedModel<SignalSection>`), not readings alone.
     Signals,
+    /// The blob's model decides between several classes (version 5 or 6): it needs a
+    /// station that reports classes (`CheckedModel<_, ClassSection>`).
+    Classes,
     /// A signature is required and the blob has none (a version-1 or 3 blob).
     Unsigned,
     /// The blob is signed by a key this device does not hold.
@@ -180,10 +230,13 @@ impl fmt::Display for DecodeError {
                 f,
                 "blob format version {v} is not supported by this build (reads versions {} to {})",
                 crate::limits::FORMAT_VERSION,
-                crate::limits::SIGNED_SIGNAL_VERSION
+                crate::limits::SIGNED_CLASS_VERSION
             ),
             Self::Signals => f.write_str(
                 "blob's model has signal features: load it where sample windows are passed",
+            ),
+            Self::Classes => f.write_str(
+                "blob's model decides between several classes: load it where classes are reported",
             ),
             Self::TrailingBytes { expected, got } => {
                 write!(

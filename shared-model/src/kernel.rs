@@ -12,10 +12,11 @@
 //!    [`Thresholds`] (GO / NO-GO / RECHECK). A fault of step 1 never reaches it; the
 //!    station shows NO-GO for it. [`CheckedModel::classify`] is the two in a row.
 //!
-//! A model of several classes would add a score per class to step 1 (the same steps per
-//! class row of weights) and its own rule beside [`Thresholds`] (say, one GO class and
-//! named failure classes, RECHECK when the two best scores are close); step 1's widths
-//! and proofs below stay as they are.
+//! A model of several classes ([`crate::classes`]) scales the readings once, scores every
+//! class row on them in step 1 ([`CheckedModel::class_scores`]: the same widths, one
+//! accumulator per row) and decides by its rule ([`ClassSection::decide`](crate::classes::ClassSection::decide))
+//! in step 2. Validation proved twice the widest row's bound fits the accumulator, so
+//! every row's score and every difference of two rows' scores fits it too.
 //!
 //! Widths: readings `i32`; `r - offset` in `i32` (validation keeps the offset
 //! inside a range narrower than 2^31); the conversion product in `i64`
@@ -32,11 +33,12 @@
 //! without a 64-bit multiply (Cortex-M0/M0+) do in single instructions.
 #![warn(clippy::arithmetic_side_effects)]
 
+use crate::classes::ClassRow;
 use crate::decision::{Decision, Thresholds, Verdict};
 use crate::error::{Fault, SignalFault, WindowFault};
 use crate::features::{CheckedFeature, SignalSpec, Source};
-use crate::limits::MAX_CHANNELS;
-use crate::model::{ChannelSpec, CheckedModel, Inputs};
+use crate::limits::{MAX_CHANNELS, MAX_CLASSES};
+use crate::model::{ChannelSpec, CheckedModel, Inputs, Outcomes};
 
 impl ChannelSpec {
     /// Scales one raw reading, or `None` if it lies outside the valid range.
@@ -83,7 +85,7 @@ impl ChannelSpec {
     }
 }
 
-impl<I: Inputs> CheckedModel<I> {
+impl<I: Inputs, K: Outcomes> CheckedModel<I, K> {
     /// Scales every reading into `out` (scaled integer inputs, Q(input_bits-1)).
     ///
     /// # Errors
@@ -164,8 +166,62 @@ impl<I: Inputs> CheckedModel<I> {
     /// the device must then show NO-GO.
     #[inline]
     pub fn classify(&self, raw: &[i32]) -> Result<Decision, Fault> {
+        if let Some(classes) = self.classes() {
+            let mut scores = [0i64; MAX_CLASSES];
+            let n = self.class_scores(raw, &mut scores)?;
+            return Ok(classes.decide(scores.get(..n).unwrap_or(&[])));
+        }
         let score = self.score(raw)?;
         Ok(self.thresholds().decide(score))
+    }
+
+    /// The arithmetic step of a model of several classes: every class row's exact score
+    /// (`bias_k + Σ weight_kj · x_j`, accumulator units) on the readings scaled once,
+    /// written into `scores` in row order; returns the row count. A two-sided model gives
+    /// its one score ([`score`](Self::score)).
+    ///
+    /// # Errors
+    /// As [`classify`](Self::classify).
+    pub fn class_scores(
+        &self,
+        raw: &[i32],
+        scores: &mut [i64; MAX_CLASSES],
+    ) -> Result<usize, Fault> {
+        let Some(classes) = self.classes() else {
+            let score = self.score(raw)?;
+            if let Some(first) = scores.first_mut() {
+                *first = score;
+            }
+            return Ok(1);
+        };
+        let n = self.channel_count();
+        let mut x = [0i32; MAX_CHANNELS];
+        self.scale(raw, x.get_mut(..n).unwrap_or(&mut []))?;
+        let x = x.get(..n).unwrap_or(&[]);
+        for (row, out) in classes.rows.iter().zip(scores.iter_mut()) {
+            *out = self.row_score(row, x);
+        }
+        Ok(classes.rows.len())
+    }
+
+    /// One class row's score on scaled inputs in range. The validated bound (twice the
+    /// widest row's fits the accumulator) keeps every sum from wrapping; a narrow model
+    /// sums in 32 bits, as [`score_scaled`](Self::score_scaled) does.
+    #[inline]
+    fn row_score(&self, row: &ClassRow, x: &[i32]) -> i64 {
+        if self.is_narrow() {
+            #[allow(clippy::cast_possible_truncation)]
+            let bias = row.bias as i32;
+            let acc = row
+                .weights
+                .iter()
+                .zip(x)
+                .fold(bias, |acc, (&w, &xi)| acc.wrapping_add(w.wrapping_mul(xi)));
+            return i64::from(acc);
+        }
+        row.weights.iter().zip(x).fold(row.bias, |acc, (&w, &xi)| {
+            acc.wrapping_add(i64::from(w).wrapping_mul(i64::from(xi)))
+        })
     }
 
     /// The arithmetic step: the exact integer score of one set of raw readings, one per
@@ -220,7 +276,7 @@ fn count_u8(n: usize) -> u8 {
     u8::try_from(n).unwrap_or(u8::MAX)
 }
 
-impl<I: Inputs> CheckedModel<I> {
+impl<I: Inputs, K: Outcomes> CheckedModel<I, K> {
     /// Channels fed by a reading (all of them in a model without signals): what a
     /// station's sensor source fills.
     pub fn reading_count(&self) -> usize {

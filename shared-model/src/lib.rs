@@ -91,11 +91,14 @@ pub mod kernel;
 pub mod limits;
 pub mod model;
 
+pub use classes::{ClassRow, ClassSection, NO_GO_CLASS};
 pub use decision::{Decision, Thresholds, Verdict};
 pub use error::{
     DecodeError, EncodeError, Fault, ModelError, SignalError, SignalFault, WindowFault,
 };
 pub use features::SignalSection;
 pub use field::{FieldFault, FieldPlan, FieldStats};
-pub use limits::{MAX_CHANNELS, NAME_CAPACITY};
-pub use model::{AuditMark, ChannelSpec, CheckedModel, FixedModel, Inputs, Readings};
+pub use limits::{MAX_CHANNELS, MAX_CLASSES, NAME_CAPACITY};
+pub use model::{
+    AuditMark, ChannelSpec, CheckedModel, FixedModel, Inputs, Outcomes, Readings, TwoSided,
+};

@@ -46,7 +46,8 @@ pub const HEADER_LEN: usize = 9;
 pub const CRC_LEN: usize = 4;
 /// Largest payload a valid model can need (every varint at its longest, every name full):
 /// the model, then the signal section (each signal: three i32 and a u16; each source: tag,
-/// signal index, feature tag and coefficient).
+/// signal index, feature tag and coefficient), then the class section (GO index, two gaps,
+/// each row: name, bias, one weight per channel).
 pub const MAX_PAYLOAD_LEN: usize = 16
     + 5
     + 3 * 10
@@ -55,6 +56,10 @@ pub const MAX_PAYLOAD_LEN: usize = 16
     + 1
     + MAX_SIGNALS * (3 * 5 + 3)
     + 1
-    + MAX_CHANNELS * (5 + 1 + 5 + 5);
+    + MAX_CHANNELS * (5 + 1 + 5 + 5)
+    + 1
+    + 2 * 10
+    + 1
+    + MAX_CLASSES * (1 + NAME_CAPACITY + 10 + 1 + MAX_CHANNELS * 5);
 /// A buffer of this size holds any blob, signed or not.
 pub const MAX_BLOB_LEN: usize = HEADER_LEN + MAX_PAYLOAD_LEN + CRC_LEN + SIGNATURE_SECTION_LEN;

@@ -17,6 +17,7 @@
 use heapless::{String, Vec};
 use serde::{Deserialize, Serialize};
 
+use crate::classes::ClassSection;
 use crate::error::ModelError;
 use crate::features::{CheckedFeature, SignalSection, Source};
 use crate::limits::{MAX_CHANNELS, NAME_CAPACITY};
@@ -189,6 +190,14 @@ impl FixedModel {
     }
 }
 
+/// The largest |scaled input| channel `c` can give over its valid readings (at an end of
+/// its range: the conversion is monotonic).
+pub(crate) fn input_bound(c: &ChannelSpec) -> i128 {
+    scale_wide(c, c.raw_min)
+        .abs()
+        .max(scale_wide(c, c.raw_max).abs())
+}
+
 /// The largest |(r − offset)·multiplier| over the channel's valid readings (at an end of
 /// the range: the product is monotonic in r), which validation bounds for the kernel.
 fn conversion_product(c: &ChannelSpec) -> i128 {
@@ -231,10 +240,83 @@ pub trait Inputs: Clone + core::fmt::Debug + PartialEq + Eq + Default + sealed::
 }
 
 mod sealed {
-    /// Only this crate's input kinds: the blob and the kernel know no others.
+    /// Only this crate's input and outcome kinds: the blob and the kernel know no others.
     pub trait Sealed {}
     impl Sealed for super::Readings {}
     impl Sealed for super::SignalSection {}
+    impl Sealed for super::TwoSided {}
+    impl Sealed for super::ClassSection {}
+}
+
+/// What a model decides: the outcome kind a [`CheckedModel`] is validated for. Two kinds
+/// exist and no others can be added outside this crate:
+///
+/// - [`TwoSided`]: GO / NO-GO / RECHECK by the model's thresholds (blob versions 1 to 4).
+///   A zero-sized marker, so a two-sided model carries and moves nothing for classes.
+/// - [`ClassSection`]: GO or which failure class, or RECHECK, by the class rows (versions
+///   5 and 6; versions 1 to 4 read with an empty section are two-sided).
+pub trait Outcomes: Clone + core::fmt::Debug + PartialEq + Eq + Default + sealed::Sealed {
+    /// Whether a model of this kind may hold class rows (and load versions 5 and 6).
+    const CLASSES: bool;
+
+    /// The class section, if this kind has one and it is not empty.
+    fn classes(&self) -> Option<&ClassSection>;
+
+    /// The section to read a blob's into, in place; `None` where this kind has none.
+    fn classes_mut(&mut self) -> Option<&mut ClassSection>;
+
+    /// Checks the outcomes against the model (part of [`CheckedModel::with_outcomes`]).
+    ///
+    /// # Errors
+    /// A class error of [`ModelError`] or [`ModelError::AccumulatorOverflow`].
+    fn check(&self, model: &FixedModel) -> Result<(), ModelError>;
+}
+
+/// The outcome kind of a two-sided model (see [`Outcomes`]).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct TwoSided;
+
+impl Outcomes for TwoSided {
+    const CLASSES: bool = false;
+
+    #[inline(always)]
+    fn classes(&self) -> Option<&ClassSection> {
+        None
+    }
+
+    #[inline(always)]
+    fn classes_mut(&mut self) -> Option<&mut ClassSection> {
+        None
+    }
+
+    #[inline(always)]
+    fn check(&self, _model: &FixedModel) -> Result<(), ModelError> {
+        Ok(())
+    }
+}
+
+impl Outcomes for ClassSection {
+    const CLASSES: bool = true;
+
+    #[inline(always)]
+    fn classes(&self) -> Option<&ClassSection> {
+        (!self.is_empty()).then_some(self)
+    }
+
+    #[inline(always)]
+    fn classes_mut(&mut self) -> Option<&mut ClassSection> {
+        Some(self)
+    }
+
+    /// An empty section is a two-sided model; otherwise the rows, names, GO index, gaps,
+    /// unused two-sided fields and the accumulator bound of every row difference.
+    #[inline(always)]
+    fn check(&self, model: &FixedModel) -> Result<(), ModelError> {
+        if self.is_empty() {
+            return Ok(());
+        }
+        self.check_rows(model)
+    }
 }
 
 /// The input kind of a model whose channels are all readings (see [`Inputs`]).
@@ -305,8 +387,12 @@ impl Inputs for SignalSection {
 /// `I` is the input kind ([`Inputs`]): [`Readings`] (the default; nothing for signals is
 /// held) or [`SignalSection`] (readings and windows). The kind is part of the type, so a
 /// station that passes readings alone cannot load a model that needs windows.
+///
+/// `K` is the outcome kind ([`Outcomes`]): [`TwoSided`] (the default) or [`ClassSection`]
+/// (GO or which failure class). A station that only shows GO / NO-GO holds a two-sided
+/// model and cannot load a model of several classes.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub struct CheckedModel<I: Inputs = Readings> {
+pub struct CheckedModel<I: Inputs = Readings, K: Outcomes = TwoSided> {
     model: FixedModel,
     /// Every product and sum fits 32 bits: a 32-bit accumulator is declared and proved,
     /// and each channel's conversion product `(r − offset)·multiplier` stays below 2^31
@@ -314,6 +400,7 @@ pub struct CheckedModel<I: Inputs = Readings> {
     /// instruction per multiply on every 32-bit core, no 64-bit multiply routine).
     narrow: bool,
     inputs: I,
+    outcomes: K,
 }
 
 impl CheckedModel {
@@ -329,18 +416,32 @@ impl CheckedModel {
 }
 
 impl<I: Inputs> CheckedModel<I> {
-    /// Validates `model` and its `inputs`, once, and wraps them.
+    /// Validates `model` and its `inputs`, once, and wraps them as a two-sided model:
+    /// [`with_outcomes`](CheckedModel::with_outcomes) with [`TwoSided`].
+    ///
+    /// # Errors
+    /// As [`with_outcomes`](CheckedModel::with_outcomes).
+    #[inline(always)]
+    pub fn with_inputs(model: FixedModel, inputs: I) -> Result<Self, ModelError> {
+        Self::with_outcomes(model, inputs, TwoSided)
+    }
+}
+
+impl<I: Inputs, K: Outcomes> CheckedModel<I, K> {
+    /// Validates `model`, its `inputs` and its `outcomes`, once, and wraps them.
     ///
     /// # Errors
     /// The first [`ModelError`] found: formats, ranges, conversions, weights, threshold
-    /// order, the accumulator bound, then the inputs ([`Inputs::check`]).
+    /// order, the accumulator bound, then the inputs ([`Inputs::check`]), then the
+    /// outcomes ([`Outcomes::check`]).
     ///
     /// Always inlined: it moves the model, and on a device every move of it outlined is
     /// kilobytes of start-up stack.
     #[inline(always)]
-    pub fn with_inputs(model: FixedModel, inputs: I) -> Result<Self, ModelError> {
+    pub fn with_outcomes(model: FixedModel, inputs: I, outcomes: K) -> Result<Self, ModelError> {
         model.validate()?;
         inputs.check(&model)?;
+        outcomes.check(&model)?;
         let narrow = model.acc_bits == 32
             && model
                 .channels
@@ -350,7 +451,19 @@ impl<I: Inputs> CheckedModel<I> {
             model,
             narrow,
             inputs,
+            outcomes,
         })
+    }
+
+    /// The class section of a model of several classes; `None` for a two-sided model.
+    #[inline(always)]
+    pub fn classes(&self) -> Option<&ClassSection> {
+        self.outcomes.classes()
+    }
+
+    /// What the model decides (the class section, empty or not, or [`TwoSided`]).
+    pub fn outcomes(&self) -> &K {
+        &self.outcomes
     }
 
     /// Whether the kernel runs in 32-bit arithmetic only (see the type's docs): the
@@ -387,7 +500,7 @@ impl<I: Inputs> CheckedModel<I> {
     }
 }
 
-impl CheckedModel<SignalSection> {
+impl<K: Outcomes> CheckedModel<SignalSection, K> {
     /// The signals and each channel's source (empty when every channel is a reading).
     pub fn signals(&self) -> &SignalSection {
         &self.inputs

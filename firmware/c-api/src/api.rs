@@ -18,6 +18,8 @@ pub fn status_of(e: DecodeError) -> lg_status {
         // A model with signal features (version 3 or 4) needs sample windows, which this
         // interface does not pass yet: to it, the version is not one it reads.
         DecodeError::Signals => lg_status::LG_ERR_VERSION,
+        // A model of several classes (version 5 or 6) in a two-sided station: likewise.
+        DecodeError::Classes => lg_status::LG_ERR_VERSION,
         DecodeError::TrailingBytes { .. } => lg_status::LG_ERR_TRAILING_BYTES,
         DecodeError::CrcMismatch { .. } => lg_status::LG_ERR_CRC,
         DecodeError::ChannelOverCapacity(_) => lg_status::LG_ERR_TOO_MANY_CHANNELS,

@@ -3,7 +3,7 @@
 
 use std::path::{Path, PathBuf};
 
-use anyhow::Result;
+use anyhow::{Result, bail};
 use clap::Args;
 use host_trainer::field::compare::{self, CompareConfig, Release};
 use host_trainer::field::compare_report;
@@ -107,6 +107,15 @@ impl CompareArgs {
         let model_a = super::settings::required(&self.model, "--model", "[outputs] model")?;
         let fm_a = FloatModel::read(model_a)?;
         let fm_b = FloatModel::read(&self.against)?;
+        for (fm, path) in [(&fm_a, model_a), (&fm_b, self.against.as_path())] {
+            if fm.classes.is_some() {
+                bail!(
+                    "{}: a model of several classes; compare takes two-sided (GO / NO-GO) releases. \
+                     Replay both with `linegate replay --form csv` and compare their class columns",
+                    path.display()
+                );
+            }
+        }
         let a = self.release(&fm_a, model_a, self.blob.as_deref(), quiet, &mut settings)?;
         let b = self.release(
             &fm_b,

@@ -113,12 +113,24 @@ fn inspect(
                 ins.acc_bits.unwrap_or(0),
                 if ins.narrow == Some(true) { 32 } else { 64 }
             );
-            say!(
-                "bias {}; NO-GO at score <= {}; GO at score >= {}",
-                ins.bias.unwrap_or(0),
-                ins.nogo_max.unwrap_or(0),
-                ins.go_min.unwrap_or(0)
-            );
+            if let Some(c) = &ins.classes {
+                say!(
+                    "{} classes; GO class {}; a class is decided when it leads the runner-up by at least {} (GO) or {} (a failure class), else RECHECK",
+                    c.rows.len(),
+                    c.go_class
+                        .as_deref()
+                        .map_or("none (diagnosis only)".into(), super::shown),
+                    c.go_gap,
+                    c.class_gap
+                );
+            } else {
+                say!(
+                    "bias {}; NO-GO at score <= {}; GO at score >= {}",
+                    ins.bias.unwrap_or(0),
+                    ins.nogo_max.unwrap_or(0),
+                    ins.go_min.unwrap_or(0)
+                );
+            }
             // As wide as the longest name (up to 24 bytes), 18 at least as before.
             let w = ins
                 .channels
@@ -147,6 +159,7 @@ fn inspect(
                     c.weight
                 );
             }
+            print_classes(&ins);
             print_signals(&ins);
         }
     }
@@ -191,6 +204,24 @@ fn failed(e: blob_match::BlobCheck) -> anyhow::Error {
         anyhow::Error::new(e)
     } else {
         anyhow::Error::new(CheckFailed(e.to_string()))
+    }
+}
+
+/// The class rows of a format-5 blob: one line per class, its bias and weights in channel
+/// order (the channel table's weight column is unused, 0, in such a blob).
+fn print_classes(ins: &pack::Inspection) {
+    let Some(c) = &ins.classes else {
+        return;
+    };
+    say!("class rows (bias, then one weight per channel in the order above):");
+    for r in &c.rows {
+        let weights: Vec<String> = r.weights.iter().map(i32::to_string).collect();
+        say!(
+            "  {:<24} {:>11}  {}",
+            super::shown(&r.name),
+            r.bias,
+            weights.join(" ")
+        );
     }
 }
 

@@ -173,10 +173,7 @@ fn read_blob_of_model(
     fm: &host_trainer::train::float_model::FloatModel,
     blob: &std::path::Path,
     model: &std::path::Path,
-) -> Result<(
-    Vec<u8>,
-    shared_model::CheckedModel<shared_model::SignalSection>,
-)> {
+) -> Result<(Vec<u8>, host_trainer::release::pack::DeviceModel)> {
     let bytes =
         host_trainer::input::read_bounded(blob, "model blob", host_trainer::input::MAX_IMAGE_FILE)?;
     let m = blob_of_model(fm, &bytes, blob, model)?;
@@ -188,7 +185,7 @@ fn blob_of_model(
     bytes: &[u8],
     blob: &std::path::Path,
     model: &std::path::Path,
-) -> Result<shared_model::CheckedModel<shared_model::SignalSection>> {
+) -> Result<host_trainer::release::pack::DeviceModel> {
     use host_trainer::release::matching::{BlobMismatch, decode_from};
     decode_from(fm, bytes).map_err(|e| match e {
         BlobMismatch::Decode(e) => anyhow::Error::new(CheckFailed(format!("{}: {e}", blob.display()))),

@@ -108,7 +108,7 @@ impl ReplayArgs {
             );
         }
         let files = super::log_files(&self.log, "name the log (or several files of it)")?;
-        let printer = Printer::new(self.form.into(), &files, &fm);
+        let printer = Printer::new(self.form.into(), &files, &fm, &m);
         let ids = ReleaseIds::of_blob(&m, &bytes);
         let mut sink = Sink::new(printer.head(&ids), self.output.is_some());
         let mut vec_text = self

@@ -1,6 +1,7 @@
 //! `linegate values`: each unit's channel values as the device computes them (physical,
 //! raw, scaled input), its score and its replay line, as a table, CSV or JSON.
 
+use host_trainer::release::pack::DeviceModel;
 use std::path::PathBuf;
 
 use anyhow::Result;
@@ -9,10 +10,9 @@ use host_trainer::ingest::{LogOptions, SkipReport};
 use host_trainer::release::replay;
 use host_trainer::release::values::{self, ChannelInfo, Selection, UnitValues};
 use host_trainer::train::float_model::FloatModel;
-use shared_model::{CheckedModel, SignalSection};
 
 /// The blob's model: of readings or with signal features.
-type Model = CheckedModel<SignalSection>;
+type Model = DeviceModel;
 
 use super::args::LogArgs;
 use super::{shown, to_json};

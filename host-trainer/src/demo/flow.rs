@@ -268,8 +268,8 @@ fn field_drift(
     file: &str,
 ) -> Result<DriftReport, DemoError> {
     use crate::field::drift::{DriftConfig, Field, Source, drift};
-    let model: shared_model::CheckedModel<shared_model::SignalSection> =
-        shared_model::blob::decode(blob).map_err(|e| OutputError::Io {
+    let model: crate::release::pack::DeviceModel = shared_model::blob::decode_classes(blob)
+        .map_err(|e| OutputError::Io {
             path: log.into(),
             source: std::io::Error::other(e.to_string()),
         })?;
@@ -317,8 +317,8 @@ fn replay(
         path: out.join(format!("{prefix}model.lgmb")),
         source: std::io::Error::other(e.to_string()),
     };
-    let model: shared_model::CheckedModel<shared_model::SignalSection> =
-        shared_model::blob::decode(blob).map_err(refused)?;
+    let model: crate::release::pack::DeviceModel =
+        shared_model::blob::decode_classes(blob).map_err(refused)?;
     let mut lines = model_line(&model, blob);
     let mut vectors = lines.clone();
     let (mut units, mut faults) = (0usize, 0usize);

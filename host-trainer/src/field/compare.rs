@@ -24,10 +24,10 @@
 //! (a count, or any). RECHECK→GO changes (units the first release sent to a retest and the
 //! second passes outright) are counted beside the gate and named in its verdict.
 
+use crate::release::pack::DeviceModel;
 use std::path::PathBuf;
 
 use serde::Serialize;
-use shared_model::{CheckedModel, SignalSection};
 
 use super::score::{Outcome, Refused, ReleaseIds, Scored, label_word, path_digest, score_logs};
 use crate::confidence::Rate;
@@ -76,7 +76,7 @@ pub struct Release<'a> {
     /// The float model.
     pub fm: &'a FloatModel,
     /// The device's model: the blob's, or the float model quantised plainly.
-    pub model: CheckedModel<SignalSection>,
+    pub model: DeviceModel,
     /// Model id, blob id, key id, model line.
     pub ids: ReleaseIds,
     /// How the log is read for this release.
@@ -91,10 +91,7 @@ pub struct Release<'a> {
 ///
 /// # Errors
 /// The quantiser's refusal (the model does not fit those word lengths).
-pub fn score_scale(
-    fm: &FloatModel,
-    model: &CheckedModel<SignalSection>,
-) -> Result<f64, QuantError> {
+pub fn score_scale(fm: &FloatModel, model: &DeviceModel) -> Result<f64, QuantError> {
     let m = model.model();
     let q = quantise(
         fm,

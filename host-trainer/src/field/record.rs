@@ -2,10 +2,11 @@
 //! from a file and written for one, and a field log replayed into the statistics the device
 //! would keep over it.
 
+use crate::release::pack::DeviceModel;
 use std::path::Path;
 
+use shared_model::FieldStats;
 use shared_model::field::MAX_RECORD_LEN;
-use shared_model::{CheckedModel, FieldStats, SignalSection};
 
 use crate::error::InputError;
 use crate::field::run::FieldRun;
@@ -71,7 +72,7 @@ pub fn run_log(
     path: &Path,
     opts: &LogOptions,
     fm: &FloatModel,
-    model: &CheckedModel<SignalSection>,
+    model: &DeviceModel,
     skipped: &mut SkipReport,
     run: &mut FieldRun,
 ) -> Result<usize, InputError> {

@@ -10,7 +10,7 @@
 use serde::Serialize;
 use shared_model::{
     CheckedModel, Decision, Fault, FieldFault, FieldPlan, FieldStats, Inputs, MAX_CHANNELS,
-    SignalFault, Thresholds, Verdict,
+    Outcomes, SignalFault, Thresholds, Verdict,
 };
 
 use crate::release::audit_baseline::Moments;
@@ -68,9 +68,9 @@ impl FieldRun {
 
     /// One unit of a log: its readings and windows through `model`'s kernel (the values the
     /// weights multiply, then the decision), counted as the device counts it.
-    pub fn unit<I: Inputs>(
+    pub fn unit<I: Inputs, K: Outcomes>(
         &mut self,
-        model: &CheckedModel<I>,
+        model: &CheckedModel<I, K>,
         readings: &[i32],
         windows: &[&[i32]],
     ) {

@@ -31,14 +31,16 @@
 //! `fault` (the device's word after FAULT: `ch3`, `signal0`, `count`, `other`) and
 //! `fault_name` (the channel's or signal's name).
 
+use crate::release::pack::DeviceModel;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-use shared_model::{CheckedModel, Decision, Fault, SignalFault, SignalSection, Verdict};
+use shared_model::{ClassSection, Decision, Fault, SignalFault, Verdict};
 
 use crate::error::InputError;
 use crate::ingest::{LogOptions, SkipReport};
 use crate::release::replay;
+use crate::train::class_rows::FloatClasses;
 use crate::train::float_model::FloatModel;
 
 /// The CSV form's columns, in order.
@@ -223,7 +225,7 @@ pub fn score_logs(
     files: &[PathBuf],
     opts: &LogOptions,
     fm: &FloatModel,
-    model: &CheckedModel<SignalSection>,
+    model: &DeviceModel,
     skipped: &mut SkipReport,
     mut each: impl FnMut(&Scored<'_>) + Send,
 ) -> Result<(), InputError> {
@@ -264,7 +266,7 @@ pub struct ReleaseIds {
 
 impl ReleaseIds {
     /// The ids of `model`, decoded from `blob`.
-    pub fn of_blob(model: &CheckedModel<SignalSection>, blob: &[u8]) -> Self {
+    pub fn of_blob(model: &DeviceModel, blob: &[u8]) -> Self {
         Self {
             model_id: crate::digest::lower_hex(&model.model().model_id),
             blob_id: Some(format!(
@@ -284,17 +286,62 @@ pub struct Printer {
     files: Vec<String>,
     channels: Vec<String>,
     signals: Vec<String>,
+    /// The blob's classes (a model of several classes): names on every line, a `class`
+    /// column (csv) and key (json); `None` keeps the two-sided forms as they were.
+    classes: Option<ClassSection>,
+    /// Each class's name in the float model's row order, for the labels.
+    label_names: Option<Vec<String>>,
+    /// The float model's classes, to map a label code to its row.
+    float_classes: Option<FloatClasses>,
 }
 
 impl Printer {
-    /// A printer for the log of `files` scored with a blob of `fm`.
-    pub fn new(form: Form, files: &[PathBuf], fm: &FloatModel) -> Self {
+    /// A printer for the log of `files` scored with `model`, a blob of `fm`.
+    pub fn new(form: Form, files: &[PathBuf], fm: &FloatModel, model: &DeviceModel) -> Self {
         Self {
             form,
             files: files.iter().map(|p| p.display().to_string()).collect(),
             channels: fm.channels.iter().map(|c| c.name.clone()).collect(),
             signals: fm.signals.iter().map(|s| s.name.clone()).collect(),
+            classes: model.classes().cloned(),
+            label_names: fm
+                .classes
+                .as_ref()
+                .map(|c| c.rows.iter().map(|r| r.name.clone()).collect()),
+            float_classes: fm.classes.clone(),
         }
+    }
+
+    /// The label's word: the class's name for a model of several classes, else GO/NO-GO.
+    fn label<'s>(&'s self, u: &Scored<'_>) -> Option<&'s str> {
+        match (&self.float_classes, &self.label_names) {
+            (Some(c), Some(names)) => c
+                .row_of_code(u.label)
+                .and_then(|k| names.get(k))
+                .map(String::as_str),
+            _ => label_word(u.label),
+        }
+    }
+
+    /// Whether the decision is the label: for a model of several classes, a decided unit
+    /// whose class is the label's row (`None` under RECHECK, FAULT or without a label).
+    fn agrees(&self, u: &Scored<'_>) -> Option<bool> {
+        let Some(c) = &self.float_classes else {
+            return u.agrees();
+        };
+        let d = u.result.as_ref().ok()?;
+        if u.label == 0 || d.verdict == Verdict::Recheck {
+            return None;
+        }
+        let row = c.row_of_code(u.label)?;
+        Some(d.class.map(usize::from) == Some(row))
+    }
+
+    /// The leading class's name of a decided unit, for a model of several classes.
+    fn class_name(&self, u: &Scored<'_>) -> Option<&str> {
+        let classes = self.classes.as_ref()?;
+        let k = u.result.as_ref().ok()?.class?;
+        Some(classes.name(k))
     }
 
     /// What comes before the first unit (with its line end): the model line (device,
@@ -309,6 +356,9 @@ impl Printer {
                         out.push(',');
                     }
                     out.push_str(h);
+                }
+                if self.classes.is_some() {
+                    out.push_str(",class");
                 }
                 out.push_str("\r\n");
                 out
@@ -331,7 +381,7 @@ impl Printer {
     pub fn unit(&self, out: &mut String, u: &Scored<'_>) {
         match self.form {
             Form::Device => {
-                replay::write_line(out, u.index, &u.result);
+                replay::write_line(out, u.index, &u.result, self.classes.as_ref());
                 out.push('\n');
             }
             Form::Text => self.text(out, u),
@@ -353,7 +403,7 @@ impl Printer {
     }
 
     fn text(&self, out: &mut String, u: &Scored<'_>) {
-        replay::write_line(out, u.index, &u.result);
+        replay::write_line(out, u.index, &u.result, self.classes.as_ref());
         out.push_str(" #");
         if let Some(id) = u.id {
             text_field(out, "unit", &bytes_text(id));
@@ -386,8 +436,9 @@ impl Printer {
         let _ = write!(
             out,
             ",{},{},{},",
-            label_word(u.label).unwrap_or(""),
-            u.agrees().map_or("", |a| if a { "true" } else { "false" }),
+            self.label(u).unwrap_or(""),
+            self.agrees(u)
+                .map_or("", |a| if a { "true" } else { "false" }),
             Outcome::of(&u.result).as_str(),
         );
         if let Some(s) = u.score() {
@@ -401,26 +452,33 @@ impl Printer {
         } else {
             out.push(',');
         }
+        if self.classes.is_some() {
+            out.push(',');
+            csv_field(out, self.class_name(u).unwrap_or(""));
+        }
         out.push_str("\r\n");
     }
 
     fn json(&self, out: &mut String, u: &Scored<'_>) {
         let text = |b: Option<&[u8]>| b.map(|b| bytes_text(b).into_owned());
         let fault = self.fault(u);
-        let v = serde_json::json!({
+        let mut v = serde_json::json!({
             "record": "unit",
             "file": self.files[u.file],
             "line": u.line,
             "index": u.index,
             "unit_id": text(u.id),
             "timestamp": text(u.time),
-            "label": label_word(u.label),
-            "agrees": u.agrees(),
+            "label": self.label(u),
+            "agrees": self.agrees(u),
             "verdict": Outcome::of(&u.result).as_str(),
             "score": u.score(),
             "fault": fault.as_ref().map(|f| f.0.clone()),
             "fault_name": fault.as_ref().and_then(|f| f.1),
         });
+        if self.classes.is_some() {
+            v["class"] = serde_json::Value::from(self.class_name(u));
+        }
         let _ = writeln!(out, "{v}");
     }
 }

@@ -14,8 +14,7 @@
 //! (the search never moves a value by more than one), and the first field that differs is
 //! named.
 
-use shared_model::CheckedModel;
-use shared_model::features::SignalSection;
+use crate::release::pack::DeviceModel;
 
 use crate::release::quantise::{QuantConfig, quantise};
 use crate::train::float_model::FloatModel;
@@ -96,7 +95,7 @@ pub enum Mismatch {
 ///
 /// # Errors
 /// [`Mismatch`] naming that field.
-pub fn check(fm: &FloatModel, model: &CheckedModel<SignalSection>) -> Result<(), Mismatch> {
+pub fn check(fm: &FloatModel, model: &DeviceModel) -> Result<(), Mismatch> {
     let signals = model.signals();
     if signals.is_empty() != fm.signals.is_empty() {
         return Err(Mismatch::Signals {
@@ -233,11 +232,8 @@ pub fn check(fm: &FloatModel, model: &CheckedModel<SignalSection>) -> Result<(),
 ///
 /// # Errors
 /// The blob's [`shared_model::DecodeError`] as a string, or the [`Mismatch`].
-pub fn decode_from(
-    fm: &FloatModel,
-    bytes: &[u8],
-) -> Result<CheckedModel<SignalSection>, BlobMismatch> {
-    let m = shared_model::blob::decode(bytes).map_err(BlobMismatch::Decode)?;
+pub fn decode_from(fm: &FloatModel, bytes: &[u8]) -> Result<DeviceModel, BlobMismatch> {
+    let m = shared_model::blob::decode_classes(bytes).map_err(BlobMismatch::Decode)?;
     check(fm, &m)?;
     Ok(m)
 }

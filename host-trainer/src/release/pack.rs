@@ -2,10 +2,16 @@
 
 use serde::Serialize;
 use shared_model::features::{SignalSpec, Source};
-use shared_model::{ChannelSpec, CheckedModel, DecodeError, Inputs, SignalSection, blob};
+use shared_model::{
+    ChannelSpec, CheckedModel, ClassSection, DecodeError, Inputs, Outcomes, SignalSection, blob,
+};
 
-/// The blob bytes of a model (format version 1, or 3 with signal features).
-pub fn blob_bytes<I: Inputs>(model: &CheckedModel<I>) -> Vec<u8> {
+/// A model read from any blob the host takes: readings or signal features, two-sided or
+/// deciding between several classes (`blob::decode_classes` reads versions 1 to 6).
+pub type DeviceModel = CheckedModel<SignalSection, ClassSection>;
+
+/// The blob bytes of a model (format version 1, 3 with signal features, 5 with classes).
+pub fn blob_bytes<I: Inputs, K: Outcomes>(model: &CheckedModel<I, K>) -> Vec<u8> {
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
     // MAX_BLOB_LEN holds any valid model with its largest signal section, so encode
     // cannot fail here.
@@ -73,12 +79,58 @@ pub struct Inspection {
     pub signals: Vec<SignalSpec>,
     /// Each channel's source, a reading or a signal's feature (empty without signals).
     pub sources: Vec<Source>,
+    /// A model of several classes (format version 5 or 6): its classes and their rule.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub classes: Option<InspectedClasses>,
+}
+
+/// The class section of a blob, as `inspect` shows it.
+#[derive(Clone, Debug, Serialize)]
+pub struct InspectedClasses {
+    /// The GO class's name; `None` when no class is GO.
+    pub go_class: Option<String>,
+    /// Least lead (accumulator units) with which the GO class is decided.
+    pub go_gap: i64,
+    /// Least lead (accumulator units) with which a failure class is decided.
+    pub class_gap: i64,
+    /// Each class: name, bias and one weight per channel.
+    pub rows: Vec<InspectedRow>,
+}
+
+/// One class row of a blob.
+#[derive(Clone, Debug, Serialize)]
+pub struct InspectedRow {
+    /// The class's name.
+    pub name: String,
+    /// Bias, accumulator units.
+    pub bias: i64,
+    /// Weights in channel order.
+    pub weights: Vec<i32>,
+}
+
+impl InspectedClasses {
+    fn of(c: &ClassSection) -> Self {
+        Self {
+            go_class: c.go_class().map(|k| c.name(k).to_string()),
+            go_gap: c.go_gap,
+            class_gap: c.class_gap,
+            rows: c
+                .rows
+                .iter()
+                .map(|r| InspectedRow {
+                    name: r.name.to_string(),
+                    bias: r.bias,
+                    weights: r.weights.iter().copied().collect(),
+                })
+                .collect(),
+        }
+    }
 }
 
 /// Decodes a blob of any format version for display; a corrupt blob still shows what can
 /// be read.
-pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel<SignalSection>, DecodeError>) {
-    let decoded = blob::decode::<SignalSection>(bytes);
+pub fn inspect(bytes: &[u8]) -> (Inspection, Result<DeviceModel, DecodeError>) {
+    let decoded = blob::decode_classes::<SignalSection>(bytes);
     let header = blob::Header::read(bytes).ok();
     let (mut crc_stored, mut crc_computed) = (None, None);
     if let Some(h) = header {
@@ -116,8 +168,10 @@ pub fn inspect(bytes: &[u8]) -> (Inspection, Result<CheckedModel<SignalSection>,
         channels: Vec::new(),
         signals: Vec::new(),
         sources: Vec::new(),
+        classes: None,
     };
     if let Ok(m) = &decoded {
+        ins.classes = m.classes().map(InspectedClasses::of);
         ins.signals = m.signals().signals.iter().copied().collect();
         ins.sources = m.signals().sources.iter().copied().collect();
         ins.narrow = Some(m.is_narrow());

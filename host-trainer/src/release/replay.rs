@@ -2,7 +2,9 @@
 //!
 //! First line `# model <model id> blob <blob id>` (the blob id is the blob's CRC-32 in
 //! eight hex digits), then one line per unit in log order (0-based index):
-//! `<index> <GO|NO-GO|RECHECK> <score>` or `<index> FAULT ch<channel>`; for a model with
+//! `<index> <GO|NO-GO|RECHECK> <score>` (a model of several classes:
+//! `<index> <GO|NO-GO|RECHECK> <lead> <class>`, the leading class's name and its lead over
+//! the runner-up) or `<index> FAULT ch<channel>`; for a model with
 //! signal features also `<index> FAULT signal<k>` (a window refused: a sample out of range,
 //! or a window shorter or longer than declared).
 //!
@@ -11,7 +13,8 @@
 //! `classify_windows` ([`line()`]); [`replay_log`] reads a bench log or a signal log, as the
 //! float model says, and hands each unit's line and vector on.
 
-use shared_model::{CheckedModel, Decision, Fault, Inputs, SignalFault, SignalSection};
+use crate::release::pack::DeviceModel;
+use shared_model::{CheckedModel, ClassSection, Decision, Fault, Inputs, Outcomes, SignalFault};
 
 use std::path::Path;
 
@@ -24,25 +27,45 @@ use crate::train::float_model::FloatModel;
 /// for a model of readings) and one window per signal (none for a model of readings). A
 /// refused reading is `FAULT ch<channel>`, a refused window `FAULT signal<k>` (k the
 /// signal's index), a wrong reading count `FAULT count`.
-pub fn line<I: Inputs>(
+pub fn line<I: Inputs, K: Outcomes>(
     index: usize,
-    model: &CheckedModel<I>,
+    model: &CheckedModel<I, K>,
     readings: &[i32],
     windows: &[&[i32]],
 ) -> String {
     let mut out = String::new();
-    write_line(&mut out, index, &model.classify_windows(readings, windows));
+    write_line(
+        &mut out,
+        index,
+        &model.classify_windows(readings, windows),
+        model.classes(),
+    );
     out
 }
 
 /// Appends the device's line for the unit at `index` whose classification is `result`
 /// (what [`line()`] prints, without the line feed): for callers that classify once and
-/// print the line beside other fields.
-pub fn write_line(out: &mut String, index: usize, result: &Result<Decision, SignalFault>) {
+/// print the line beside other fields. `classes` is the model's class section (`None` for
+/// a two-sided model): a decided line then ends with the leading class's name.
+pub fn write_line(
+    out: &mut String,
+    index: usize,
+    result: &Result<Decision, SignalFault>,
+    classes: Option<&ClassSection>,
+) {
     use std::fmt::Write as _;
     // Writing into a String cannot fail.
     let _ = match result {
-        Ok(d) => write!(out, "{index} {} {}", d.verdict.as_str(), d.score),
+        Ok(d) => match (classes, d.class) {
+            (Some(c), Some(k)) => write!(
+                out,
+                "{index} {} {} {}",
+                d.verdict.as_str(),
+                d.score,
+                c.name(k)
+            ),
+            _ => write!(out, "{index} {} {}", d.verdict.as_str(), d.score),
+        },
         Err(SignalFault::Reading(Fault::OutOfRange { channel, .. })) => {
             write!(out, "{index} FAULT ch{channel}")
         }
@@ -64,7 +87,7 @@ pub fn replay_log(
     path: &Path,
     opts: &LogOptions,
     fm: &FloatModel,
-    model: &CheckedModel<SignalSection>,
+    model: &DeviceModel,
     skipped: &mut SkipReport,
     mut each: impl FnMut(&str, &[i32], &[Vec<i32>]) + Send,
 ) -> Result<(), InputError> {
@@ -91,7 +114,7 @@ pub fn vector(readings: &[i32], windows: &[Vec<i32>]) -> String {
 
 /// The first line, `# model <id> blob <blob id>`, with ` key <key id>` for a signed blob,
 /// as the device prints it; `blob` is the blob the model came from.
-pub fn model_line<I: Inputs>(model: &CheckedModel<I>, blob: &[u8]) -> String {
+pub fn model_line<I: Inputs, K: Outcomes>(model: &CheckedModel<I, K>, blob: &[u8]) -> String {
     let key = shared_model::blob::signature(blob).map_or(String::new(), |s| {
         format!(" key {}", crate::digest::lower_hex(&s.key_id))
     });

@@ -6,7 +6,7 @@
 //! give the same signed blob.
 
 use ed25519_dalek::{Signature, Signer, SigningKey, VerifyingKey};
-use shared_model::{CheckedModel, Inputs, blob};
+use shared_model::{CheckedModel, Inputs, Outcomes, blob};
 
 use crate::digest::lower_hex;
 
@@ -26,7 +26,10 @@ pub fn generate() -> Result<SigningKey, String> {
 pub use super::keyfile::{key_id, public_text, read_public, read_secret, secret_text};
 
 /// The signed blob for `model` (format version 2, or 4 with signal features).
-pub fn signed_blob<I: Inputs>(model: &CheckedModel<I>, key: &SigningKey) -> Vec<u8> {
+pub fn signed_blob<I: Inputs, K: Outcomes>(
+    model: &CheckedModel<I, K>,
+    key: &SigningKey,
+) -> Vec<u8> {
     let mut buf = [0u8; blob::MAX_BLOB_LEN];
     // MAX_BLOB_LEN holds any signed blob, so encoding cannot fail here.
     let n = blob::encode_for_signing(model, key_id(&key.verifying_key()), &mut buf).unwrap_or(0);

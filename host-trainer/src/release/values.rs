@@ -9,12 +9,13 @@
 //! classification, the line from [`replay::line()`]. So what this
 //! shows is what the device computed, channel by channel, including which channel it refused.
 
+use crate::release::pack::DeviceModel;
 use std::collections::BTreeSet;
 use std::path::Path;
 
 use serde::Serialize;
 use shared_model::features::{CheckedFeature, Source};
-use shared_model::{CheckedModel, SignalFault, SignalSection, WindowFault};
+use shared_model::{CheckedModel, SignalFault, WindowFault};
 
 use crate::error::InputError;
 use crate::ingest::scaling::ChannelScale;
@@ -157,7 +158,7 @@ pub struct ChannelInfo {
 
 /// The channels of `model` (conversions from the blob) with the names, units and physical
 /// conversions of the float model `fm` they match.
-pub fn channel_info(fm: &FloatModel, model: &CheckedModel<SignalSection>) -> Vec<ChannelInfo> {
+pub fn channel_info(fm: &FloatModel, model: &DeviceModel) -> Vec<ChannelInfo> {
     fm.channels
         .iter()
         .zip(&model.model().channels)
@@ -188,7 +189,7 @@ pub fn plain_model(
     fm: &FloatModel,
     input_bits: u8,
     weight_bits: u8,
-) -> Result<CheckedModel<SignalSection>, QuantError> {
+) -> Result<DeviceModel, QuantError> {
     let q = quantise(
         fm,
         None,
@@ -201,7 +202,11 @@ pub fn plain_model(
         },
     )?;
     // `quantise` validated the section against these channels, so the pair is accepted.
-    Ok(CheckedModel::with_inputs(q.model.into_inner(), q.signals)?)
+    Ok(CheckedModel::with_outcomes(
+        q.model.into_inner(),
+        q.signals,
+        shared_model::ClassSection::default(),
+    )?)
 }
 
 /// `reading`, or `<feature> of <signal>`.
@@ -223,7 +228,7 @@ pub fn unit_values(
     log: &Path,
     opts: &LogOptions,
     fm: &FloatModel,
-    model: &CheckedModel<SignalSection>,
+    model: &DeviceModel,
     sel: &Selection,
     skipped: &mut SkipReport,
 ) -> Result<Vec<UnitValues>, ValuesError> {
@@ -317,7 +322,7 @@ fn reading_unit(
     line: u64,
     unit_id: Option<String>,
     fm: &FloatModel,
-    model: &CheckedModel<SignalSection>,
+    model: &DeviceModel,
     raw: &[i32],
 ) -> UnitValues {
     let raws: Vec<Result<i32, ChannelFault>> = raw.iter().map(|&r| Ok(r)).collect();
@@ -339,7 +344,7 @@ fn signal_unit(
     line: u64,
     unit_id: &str,
     fm: &FloatModel,
-    model: &CheckedModel<SignalSection>,
+    model: &DeviceModel,
     readings: &[i32],
     windows: &[Vec<i32>],
 ) -> UnitValues {
@@ -379,7 +384,7 @@ fn signal_unit(
 /// the valid range by validation), so a refused channel does not hide the others' inputs.
 fn channel_values(
     fm: &FloatModel,
-    model: &CheckedModel<SignalSection>,
+    model: &DeviceModel,
     raws: &[Result<i32, ChannelFault>],
 ) -> Vec<ChannelValue> {
     let specs = &model.model().channels;

@@ -108,6 +108,19 @@ impl FloatClasses {
         }
     }
 
+    /// The row of the class a unit's label code stands for (+1 the GO class, −1 − k the
+    /// k-th other class in row order; see `ingest::classes`), or `None` for 0 (no label)
+    /// or a code of no row.
+    pub fn row_of_code(&self, code: i8) -> Option<usize> {
+        if code > 0 {
+            return self.go;
+        }
+        let rank = usize::try_from(-1 - i16::from(code)).ok()?;
+        (0..self.rows.len())
+            .filter(|&k| Some(k) != self.go)
+            .nth(rank)
+    }
+
     /// The largest weight magnitude over every row (the file normalises it to 1).
     pub fn largest_weight(&self) -> f64 {
         self.rows

@@ -187,8 +187,8 @@ fn trailing_bytes_newer_version_and_capacity() {
     ));
     b.pop();
     let mut v = b.clone();
-    v[4] = 5;
-    assert_eq!(decode_readings(&v), Err(DecodeError::UnsupportedVersion(5)));
+    v[4] = 7;
+    assert_eq!(decode_readings(&v), Err(DecodeError::UnsupportedVersion(7)));
     // Version 2 declares a signature section the bytes do not have.
     let mut v2 = b.clone();
     v2[4] = 2;
@@ -482,4 +482,101 @@ proptest! {
             Err(e) => prop_assert_eq!(ours.err(), Some(e)),
         }
     }
+}
+
+#[test]
+fn a_model_of_classes_round_trips_as_version_5_and_6_and_decides_by_its_rows() {
+    use crate::classes::ClassSection;
+    let (model, classes) = ClassSection::example_three_class();
+    let m = CheckedModel::with_outcomes(model, Readings, classes.clone()).unwrap();
+    let mut buf = [0u8; MAX_BLOB_LEN];
+    let n = encode(&m, &mut buf).unwrap();
+    assert_eq!(u16::from_le_bytes([buf[4], buf[5]]), CLASS_VERSION);
+    let back = decode_classes::<Readings>(&buf[..n]).unwrap();
+    assert_eq!(back, m);
+    let windows = decode_classes::<SignalSection>(&buf[..n]).unwrap();
+    assert_eq!(windows.classes(), Some(&classes));
+    // A station of two-sided models refuses it before the CRC.
+    assert_eq!(decode::<Readings>(&buf[..n]), Err(DecodeError::Classes));
+    assert_eq!(
+        decode::<SignalSection>(&buf[..n]),
+        Err(DecodeError::Classes)
+    );
+    // Signed: version 6, the same payload.
+    let mut signed = [0u8; MAX_BLOB_LEN];
+    let k = encode_for_signing(&m, [7; KEY_ID_LEN], &mut signed).unwrap();
+    assert_eq!(
+        u16::from_le_bytes([signed[4], signed[5]]),
+        SIGNED_CLASS_VERSION
+    );
+    let whole = k + SIGNATURE_LEN;
+    assert_eq!(decode_classes::<Readings>(&signed[..whole]).unwrap(), m);
+    // The decision: scores by hand. Readings (1000, 0) scale to (32767, −32767) (the
+    // example's full range): good 1000 + 100·32767 + 100·32767, short −100·32767 − 50·32767,
+    // crack −500 + 20·32767 − 100·32767.
+    let d = m.classify(&[1000, 0]).unwrap();
+    let good = 1000 + 200 * 32767_i64;
+    let short = -150 * 32767_i64;
+    let crack = -500 - 80 * 32767_i64;
+    assert_eq!(d.class, Some(0));
+    assert_eq!(d.score, good - crack, "crack is the runner-up");
+    assert_eq!(d.verdict, crate::decision::Verdict::Go);
+    let mut scores = [0i64; crate::limits::MAX_CLASSES];
+    assert_eq!(m.class_scores(&[1000, 0], &mut scores), Ok(3));
+    assert_eq!(scores[..3], [good, short, crack]);
+    // A two-sided blob read as classes has an empty section and decides as before.
+    let two = CheckedModel::new(FixedModel::example_two_channel()).unwrap();
+    let n2 = encode(&two, &mut buf).unwrap();
+    let read = decode_classes::<Readings>(&buf[..n2]).unwrap();
+    assert_eq!(read.classes(), None);
+    assert_eq!(read.classify(&[700, 300]), two.classify(&[700, 300]));
+}
+
+#[test]
+fn version_5_refuses_an_empty_class_section_and_signals_where_only_readings_pass() {
+    use crate::classes::ClassSection;
+    let (model, classes) = ClassSection::example_three_class();
+    // Hand-made version 5 with an empty class section: one layout per model.
+    let two = CheckedModel::new(FixedModel::example_two_channel()).unwrap();
+    let mut buf = [0u8; MAX_BLOB_LEN];
+    let n = encode(&two, &mut buf).unwrap();
+    let mut v = buf[..n - CRC_LEN].to_vec();
+    v[4] = 5;
+    v.extend_from_slice(&[0, 0]); // empty signal section
+    v.extend_from_slice(&[0, 0, 0, 0]); // go, go_gap, class_gap, no rows
+    let len = u16::try_from(v.len() - HEADER_LEN).unwrap();
+    v[7..9].copy_from_slice(&len.to_le_bytes());
+    let crc = CRC32.checksum(&v);
+    v.extend_from_slice(&crc.to_le_bytes());
+    assert_eq!(
+        decode_classes::<Readings>(&v),
+        Err(DecodeError::InconsistentLengths)
+    );
+    // A class model with a feature channel: readings-only stations refuse it.
+    let mut section = SignalSection::default();
+    section
+        .signals
+        .push(SignalSpec {
+            raw_min: 0,
+            raw_max: 1000,
+            offset: 0,
+            window: 8,
+        })
+        .unwrap();
+    section
+        .sources
+        .push(Source::Feature {
+            signal: 0,
+            feature: Feature::Mean,
+        })
+        .unwrap();
+    section.sources.push(Source::Reading).unwrap();
+    let m = CheckedModel::with_outcomes(model, section, classes).unwrap();
+    let n = encode(&m, &mut buf).unwrap();
+    assert_eq!(u16::from_le_bytes([buf[4], buf[5]]), CLASS_VERSION);
+    assert_eq!(
+        decode_classes::<Readings>(&buf[..n]),
+        Err(DecodeError::Signals)
+    );
+    assert_eq!(decode_classes::<SignalSection>(&buf[..n]).unwrap(), m);
 }
