@@ -227,6 +227,18 @@ pub fn decode_classes<I: Inputs>(
     decode_into(bytes)
 }
 
+/// Decodes and validates a blob into a model of input kind `I` and outcome kind `K`: what
+/// [`decode`] does for [`TwoSided`](crate::TwoSided) and [`decode_classes`] for
+/// [`ClassSection`], for code generic over the outcome kind (a station of either kind).
+/// Never panics, whatever the bytes.
+///
+/// # Errors
+/// As [`decode`] (`K` two-sided) or [`decode_classes`] (`K` a class section).
+#[inline(always)]
+pub fn decode_as<I: Inputs, K: Outcomes>(bytes: &[u8]) -> Result<CheckedModel<I, K>, DecodeError> {
+    decode_into(bytes)
+}
+
 /// [`decode`] and [`decode_classes`]: one reader for every version and kind.
 #[inline(always)]
 fn decode_into<I: Inputs, K: Outcomes>(bytes: &[u8]) -> Result<CheckedModel<I, K>, DecodeError> {
