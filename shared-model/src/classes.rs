@@ -103,6 +103,79 @@ impl ClassSection {
         (model, section)
     }
 
+    /// A model of `classes` classes (2..=[`MAX_CLASSES`]) over the channels and conversions
+    /// of `model`, for examples, device tests and the footprint: class `go` (or none, with
+    /// [`NO_GO_CLASS`]) named `go`, the others `fail1`, `fail2`…; each weight drawn from
+    /// `seed` (splitmix64) inside half the weight word, biases within a sixteenth of a row's
+    /// bound; both gaps a sixty-fourth of the widest row's bound (at least 1); the
+    /// accumulator the model's if the row difference fits it, else 64 bits. `None` if
+    /// `classes` or `go` is out of range or the result fails validation.
+    pub fn example_over(
+        model: &FixedModel,
+        classes: u8,
+        go: u8,
+        seed: u64,
+    ) -> Option<(FixedModel, Self)> {
+        let mut m = model.clone();
+        for c in m.channels.iter_mut() {
+            c.weight = 0;
+        }
+        (m.bias, m.nogo_max, m.go_min) = (0, -1, 0);
+        let mut state = seed;
+        let mut next = move || {
+            // splitmix64 (Steele, Lea and Flood, 2014).
+            state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+            let mut z = state;
+            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+            z ^ (z >> 31)
+        };
+        let half = (1i64 << (m.weight_bits.clamp(2, 32) - 2)).max(1);
+        let mut section = Self {
+            go,
+            go_gap: 1,
+            class_gap: 1,
+            rows: Vec::new(),
+        };
+        let mut widest: i128 = 1;
+        for k in 0..classes {
+            let mut name: String<NAME_CAPACITY> = String::new();
+            if k == go {
+                name.push_str("go").ok()?;
+            } else {
+                let n = if go < k { k } else { k + 1 };
+                core::fmt::write(&mut name, format_args!("fail{n}")).ok()?;
+            }
+            let mut weights = Vec::new();
+            let mut bound: i128 = 0;
+            for c in &m.channels {
+                let r = i64::try_from(next() % u64::try_from(2 * half + 1).ok()?).ok()?;
+                let w = i32::try_from(r - half).ok()?;
+                weights.push(w).ok()?;
+                bound += i128::from(w).abs() * input_bound(c);
+            }
+            let span = i64::try_from(bound / 16).ok()?.max(1);
+            let r = i64::try_from(next() % u64::try_from(2 * span + 1).ok()?).ok()?;
+            let bias = r - span;
+            widest = widest.max(bound + i128::from(bias).abs());
+            section
+                .rows
+                .push(ClassRow {
+                    name,
+                    bias,
+                    weights,
+                })
+                .ok()?;
+        }
+        let gap = i64::try_from(widest / 64).ok()?.max(1);
+        (section.go_gap, section.class_gap) = (gap, gap);
+        if section.check_rows(&m).is_err() {
+            m.acc_bits = 64;
+        }
+        section.check_rows(&m).ok()?;
+        Some((m, section))
+    }
+
     /// Validation of a non-empty section against its model (part of
     /// `CheckedModel::with_outcomes`): 2..=8 rows, each with one weight per channel inside
     /// the weight word and a unique non-empty name; the GO index a row or

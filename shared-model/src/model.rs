@@ -439,20 +439,51 @@ impl<I: Inputs, K: Outcomes> CheckedModel<I, K> {
     /// kilobytes of start-up stack.
     #[inline(always)]
     pub fn with_outcomes(model: FixedModel, inputs: I, outcomes: K) -> Result<Self, ModelError> {
-        model.validate()?;
-        inputs.check(&model)?;
-        outcomes.check(&model)?;
-        let narrow = model.acc_bits == 32
-            && model
+        let mut checked = Self {
+            model,
+            narrow: false,
+            inputs,
+            outcomes,
+        };
+        checked.check_in_place()?;
+        Ok(checked)
+    }
+
+    /// A model not yet validated, every part at its default, for the blob reader to fill in
+    /// place ([`parts_mut`](Self::parts_mut)) and then validate
+    /// ([`check_in_place`](Self::check_in_place)): built where it stays, a model of several
+    /// classes is not copied through the reader's frames (each copy of it is about 2 KiB of
+    /// start-up stack on a device).
+    #[inline(always)]
+    pub(crate) fn unchecked() -> Self {
+        Self {
+            model: FixedModel::default(),
+            narrow: false,
+            inputs: I::default(),
+            outcomes: K::default(),
+        }
+    }
+
+    /// The parts of a model from [`unchecked`](Self::unchecked), to fill in place.
+    #[inline(always)]
+    pub(crate) fn parts_mut(&mut self) -> (&mut FixedModel, &mut I, &mut K) {
+        (&mut self.model, &mut self.inputs, &mut self.outcomes)
+    }
+
+    /// The validation of [`with_outcomes`](Self::with_outcomes), in place: the model, then
+    /// the inputs, then the outcomes; then whether it runs narrow.
+    #[inline(always)]
+    pub(crate) fn check_in_place(&mut self) -> Result<(), ModelError> {
+        self.model.validate()?;
+        self.inputs.check(&self.model)?;
+        self.outcomes.check(&self.model)?;
+        self.narrow = self.model.acc_bits == 32
+            && self
+                .model
                 .channels
                 .iter()
                 .all(|c| c.shift <= 31 && conversion_product(c) < 1i128 << 31);
-        Ok(Self {
-            model,
-            narrow,
-            inputs,
-            outcomes,
-        })
+        Ok(())
     }
 
     /// The class section of a model of several classes; `None` for a two-sided model.

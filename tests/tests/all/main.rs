@@ -6,6 +6,7 @@ mod c_api;
 mod confidence;
 mod demo;
 mod device;
+mod device_classes;
 mod device_field;
 mod drift;
 mod features;
