@@ -238,3 +238,132 @@ fn class_models_on_five_cores_agree_with_the_host() {
         }
     }
 }
+
+/// The C example station with a blob of several classes: on the host (and the interface's
+/// class edges from C, `make checks`) and on the Cortex-M0 board under QEMU, it prints
+/// exactly the lines of the host's kernel, which are the Rust example's on five cores
+/// ([`class_models_on_five_cores_agree_with_the_host`]).
+#[test]
+fn c_example_runs_a_class_blob_on_the_host_and_on_cortex_m0() {
+    use crate::c_api::{build_c_library, tool};
+    use std::process::Command;
+    if let Err(why) = tool("gcc").and_then(|_| tool("make")) {
+        return crate::skip_or_fail("C example with a class blob", &why);
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let blob_bytes = class_blob(4, 0, 7);
+    let units = class_units(400, 33);
+    let want = expected_lines(&blob_bytes, &units);
+    std::fs::write(d.join("c.lgmb"), &blob_bytes).unwrap();
+    let text: String = units
+        .iter()
+        .map(|r| r.iter().map(i32::to_string).collect::<Vec<_>>().join(" ") + "\n")
+        .collect();
+    std::fs::write(d.join("v.txt"), text).unwrap();
+    let id = format!(" blob {:08x}", blob::blob_id(&blob_bytes).unwrap());
+    let check = |board: &str, out: &str| {
+        assert!(
+            out.lines()
+                .any(|l| l.starts_with("# model ") && l.ends_with(&id)),
+            "{board}: model line\n{out}"
+        );
+        let got: Vec<&str> = out.lines().filter(|l| !l.starts_with("# ")).collect();
+        assert_eq!(got, want, "{board}: the C station and the host differ");
+    };
+    let example = crate::root().join("firmware/c-example");
+    build_c_library(None);
+    let bin = d.join("station-host");
+    let st = Command::new("make")
+        .args(["-s", "host"])
+        .arg(format!("OUT={}", bin.display()))
+        .current_dir(&example)
+        .status()
+        .unwrap();
+    assert!(st.success(), "make host failed");
+    let o = Command::new(&bin)
+        .arg(d.join("c.lgmb"))
+        .arg(d.join("v.txt"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(0));
+    check(
+        "C station on the host",
+        &String::from_utf8(o.stdout).unwrap(),
+    );
+    // The class edges from C: a two-sided blob has no classes; the class blob's names,
+    // results and station.
+    let two_sided = {
+        let mut buf = [0u8; blob::MAX_BLOB_LEN];
+        let m = CheckedModel::new(FixedModel::example_two_channel()).unwrap();
+        let n = blob::encode(&m, &mut buf).unwrap();
+        buf[..n].to_vec()
+    };
+    std::fs::write(d.join("m.lgmb"), two_sided).unwrap();
+    let checks = d.join("checks");
+    let st = Command::new("make")
+        .args(["-s", "checks"])
+        .arg(format!("OUT={}", checks.display()))
+        .current_dir(&example)
+        .status()
+        .unwrap();
+    assert!(st.success(), "make checks failed");
+    let o = Command::new(&checks)
+        .arg(d.join("m.lgmb"))
+        .arg(d.join("c.lgmb"))
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert_eq!(o.status.code(), Some(0), "{text}");
+    assert!(!text.contains("FAILED"), "{text}");
+    assert!(text.contains("ok: a decision names a class"), "{text}");
+
+    if let Err(why) = tool("arm-none-eabi-gcc").and_then(|_| tool("qemu-system-arm")) {
+        return crate::skip_or_fail("C example with a class blob under QEMU", &why);
+    }
+    build_c_library(Some("thumbv6m-none-eabi"));
+    let st = Command::new("make")
+        .args(["-s", "m0"])
+        .arg(format!("BLOB={}", d.join("c.lgmb").display()))
+        .arg(format!("VECTORS={}", d.join("v.txt").display()))
+        .arg(format!("BUILD={}", d.display()))
+        .current_dir(&example)
+        .status()
+        .unwrap();
+    assert!(st.success(), "make m0 failed");
+    let o = Command::new("timeout")
+        .args([
+            "120",
+            "qemu-system-arm",
+            "-machine",
+            "microbit",
+            "-cpu",
+            "cortex-m0",
+        ])
+        .args([
+            "-nographic",
+            "-semihosting-config",
+            "enable=on,target=native",
+            "-kernel",
+        ])
+        .arg(d.join("station-m0.elf"))
+        .output()
+        .unwrap();
+    let out = String::from_utf8_lossy(&o.stdout).into_owned();
+    assert_eq!(o.status.code(), Some(0), "Cortex-M0: {out}");
+    check("C station on Cortex-M0", &out);
+    let stack: u32 = out
+        .lines()
+        .find_map(|l| l.strip_prefix("# stack bytes used: "))
+        .unwrap()
+        .parse()
+        .unwrap();
+    assert!(
+        stack < 12 * 1024,
+        "Cortex-M0: C station's stack {stack} bytes"
+    );
+    eprintln!(
+        "Cortex-M0: C example agrees with the host on {} units of a class blob; stack {stack} bytes",
+        units.len()
+    );
+}
