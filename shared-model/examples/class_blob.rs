@@ -2,7 +2,8 @@
 //! script's class model (`ClassSection::example_over`, weights drawn from a seed).
 //!
 //! Usage: `cargo run -p shared-model --example class_blob -- IN.lgmb OUT.lgmb CLASSES GO SEED`
-//! (`GO` the GO class's index, 255 for none).
+//! (`GO` the GO class's index, 255 for none). Prints which kernel the device runs for it
+//! (`device kernel in 32-bit` or `64-bit`).
 
 use shared_model::{CheckedModel, ClassSection, SignalSection, blob};
 
@@ -24,5 +25,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let mut buf = vec![0u8; blob::MAX_BLOB_LEN];
     let n = blob::encode(&model, &mut buf).map_err(|e| format!("{e}"))?;
     std::fs::write(output, &buf[..n])?;
+    let bits = if model.is_narrow() { 32 } else { 64 };
+    println!("device kernel in {bits}-bit");
     Ok(())
 }

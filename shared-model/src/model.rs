@@ -18,6 +18,7 @@ use heapless::{String, Vec};
 use serde::{Deserialize, Serialize};
 
 use crate::classes::ClassSection;
+use crate::decision::Thresholds;
 use crate::error::ModelError;
 use crate::features::{CheckedFeature, SignalSection, Source};
 use crate::limits::{MAX_CHANNELS, NAME_CAPACITY};
@@ -190,6 +191,18 @@ impl FixedModel {
     }
 }
 
+impl Thresholds {
+    /// The thresholds `model` declares. (Here, beside the model, so that the decision step
+    /// imports nothing of the model: the class rule it serves is named by the model.)
+    #[inline]
+    pub fn of(model: &FixedModel) -> Self {
+        Self {
+            nogo_max: model.nogo_max,
+            go_min: model.go_min,
+        }
+    }
+}
+
 /// The largest |scaled input| channel `c` can give over its valid readings (at an end of
 /// its range: the conversion is monotonic).
 pub(crate) fn input_bound(c: &ChannelSpec) -> i128 {
@@ -292,30 +305,6 @@ impl Outcomes for TwoSided {
     #[inline(always)]
     fn check(&self, _model: &FixedModel) -> Result<(), ModelError> {
         Ok(())
-    }
-}
-
-impl Outcomes for ClassSection {
-    const CLASSES: bool = true;
-
-    #[inline(always)]
-    fn classes(&self) -> Option<&ClassSection> {
-        (!self.is_empty()).then_some(self)
-    }
-
-    #[inline(always)]
-    fn classes_mut(&mut self) -> Option<&mut ClassSection> {
-        Some(self)
-    }
-
-    /// An empty section is a two-sided model; otherwise the rows, names, GO index, gaps,
-    /// unused two-sided fields and the accumulator bound of every row difference.
-    #[inline(always)]
-    fn check(&self, model: &FixedModel) -> Result<(), ModelError> {
-        if self.is_empty() {
-            return Ok(());
-        }
-        self.check_rows(model)
     }
 }
 

@@ -1,15 +1,18 @@
 //! The safe half: Linegate's Rust types to the C interface's, and back.
 
 use firmware::{
-    CusumPlan, CusumState, Decision, DecodeError, Fault, FieldPlan, FieldStats, StationFault, Step,
-    Verdict,
+    ClassSection, Classifier, CusumPlan, CusumState, Decision, DecodeError, Fault, FieldPlan,
+    FieldStats, StationFault, Step, Verdict,
 };
 
-use crate::ffi::CClassifier;
 use crate::{
     LG_NO_CLASS, lg_cusum, lg_cusum_plan, lg_fault, lg_field, lg_field_plan, lg_result, lg_status,
     lg_verdict,
 };
+
+/// The classifier C holds: a model of readings, two-sided (blob versions 1 and 2) or of
+/// several classes (5 and 6).
+pub type CClassifier = Classifier<shared_model::Readings, ClassSection>;
 
 /// The status a blob's validation error maps to.
 pub fn status_of(e: DecodeError) -> lg_status {

@@ -11,10 +11,10 @@ use core::mem::{align_of, size_of};
 use embedded_hal::digital::{ErrorType, OutputPin};
 #[cfg(feature = "signed")]
 use firmware::ReleaseKey;
-use firmware::{ClassSection, Classifier, GoNoGoLines, SensorSource, Station};
+use firmware::{ClassSection, GoNoGoLines, SensorSource, Station};
 use shared_model::Readings;
 
-use crate::api::{channel_name, field_of, plan_of, result_of, status_of, step_result};
+use crate::api::{CClassifier, channel_name, field_of, plan_of, result_of, status_of, step_result};
 use crate::{lg_classifier, lg_field, lg_field_plan, lg_line, lg_result, lg_station, lg_status};
 
 /// A value in caller-owned storage, behind a tag saying what it is.
@@ -27,9 +27,6 @@ struct Slot<T> {
 const CLASSIFIER_TAG: u64 = 0x4C47_4D42_434C_5346; // "LGMBCLSF"
 const STATION_TAG: u64 = 0x4C47_4D42_5354_4E31; // "LGMBSTN1"
 
-/// The classifier C holds: a model of readings, two-sided (blob versions 1 and 2) or of
-/// several classes (5 and 6).
-pub(crate) type CClassifier = Classifier<Readings, ClassSection>;
 /// The station C holds: readings, two-sided or of several classes.
 type CStation = Station<'static, CSensor, CLine, CLine, CLine, Readings, ClassSection>;
 
