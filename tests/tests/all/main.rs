@@ -8,6 +8,7 @@ mod classes_train;
 mod confidence;
 mod demo;
 mod device;
+mod device_classes;
 mod device_field;
 mod drift;
 mod features;
