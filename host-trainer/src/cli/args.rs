@@ -315,6 +315,11 @@ pub struct ReleaseArgs {
     /// then records the key id and the signed blob's SHA-256.
     #[arg(long, value_name = "KEY_FILE")]
     pub sign: Option<PathBuf>,
+    /// A model of several classes: the most units of a failure class that may be decided
+    /// another failure class (misrouted), per class and log: a count (0), a rate (1%) or a
+    /// rate the log must show at a confidence (1%@95%). Default 1%.
+    #[arg(long, value_name = "LIMIT")]
+    pub max_misroute: Option<Limit>,
 }
 
 impl ReleaseArgs {
@@ -355,6 +360,8 @@ pub struct Release {
     pub from_model: Vec<String>,
     /// Every setting with its source (recorded in the report; `pack` compares them).
     pub settings: Vec<Setting>,
+    /// The misrouting limit of a model of several classes (`--max-misroute`, else 1 %).
+    pub max_misroute: Limit,
 }
 
 impl Release {
@@ -421,6 +428,12 @@ pub(super) fn command_line() -> String {
 pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) -> Result<Release> {
     let model_path = super::settings::required(&r.model, "--model", "[outputs] model")?;
     let fm = FloatModel::read(model_path)?;
+    if r.max_misroute.is_some() && fm.classes.is_none() {
+        anyhow::bail!(
+            "--max-misroute applies to a model of several classes; {} is two-sided (GO / NO-GO)",
+            model_path.display()
+        );
+    }
     let mut opts = r
         .log_args
         .options_for_model(quiet, &fm, model_path, &mut settings);
@@ -503,5 +516,8 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         signer: r.sign.as_deref().map(sign::read_secret).transpose()?,
         from_model,
         settings,
+        max_misroute: r
+            .max_misroute
+            .unwrap_or(host_trainer::release::class_gates::DEFAULT_MISROUTE),
     })
 }

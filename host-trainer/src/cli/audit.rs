@@ -9,7 +9,6 @@ use clap::Args;
 use super::args::{Release, ReleaseArgs, release_inputs};
 use super::{CheckFailed, to_json};
 use host_trainer::output::OutputSet;
-use host_trainer::release::class_gates::DEFAULT_MISROUTE;
 use host_trainer::release::units;
 use host_trainer::report;
 
@@ -33,11 +32,6 @@ pub struct AuditArgs {
     /// Print the report as JSON.
     #[arg(long)]
     pub json: bool,
-    /// A model of several classes: the most units of a failure class that may be decided
-    /// another failure class (misrouted), per class and log: a count (0), a rate (1%) or a
-    /// rate the log must show at a confidence (1%@95%). Default 1%.
-    #[arg(long, value_name = "LIMIT")]
-    pub max_misroute: Option<host_trainer::release::gates::Limit>,
 }
 
 impl AuditArgs {
@@ -50,21 +44,10 @@ impl AuditArgs {
             units,
             force,
             json,
-            max_misroute,
         } = self;
         let mut rel = release_inputs(release, quiet, settings)?;
         if rel.fm.classes.is_some() {
-            return super::audit_classes::run(
-                self,
-                &rel,
-                quiet,
-                max_misroute.unwrap_or(DEFAULT_MISROUTE),
-            );
-        }
-        if max_misroute.is_some() {
-            anyhow::bail!(
-                "--max-misroute applies to a model of several classes; this model is two-sided (GO / NO-GO)"
-            );
+            return super::audit_classes::run(self, &rel, quiet);
         }
         let done = rel.run()?;
         let (q, r) = (done.q, done.report);

@@ -1,52 +1,34 @@
-//! `linegate audit` on a model of several classes: quantise its rows, audit (confusion
-//! matrix, gates per class, the per-pair rounding proof), write its reports.
+//! `linegate audit` and `linegate pack` on a model of several classes: quantise its rows,
+//! audit (confusion matrix, gates per class, the per-pair rounding proof), write its
+//! reports or its blob.
 
 use anyhow::Result;
 
 use super::args::{Release, command_line};
 use super::audit::AuditArgs;
+use super::pack::PackArgs;
 use super::{CheckFailed, to_json};
 use host_trainer::output::OutputSet;
-use host_trainer::release::class_audit::{audit_classes, write_class_units_csv};
-use host_trainer::release::gates::Limit;
-use host_trainer::release::quantise_classes::quantise_classes;
+use host_trainer::release::class_audit::{
+    ClassAudit, audit_classes, class_blob, write_class_units_csv,
+};
+use host_trainer::release::quantise_classes::{QuantisedClasses, quantise_classes};
 use host_trainer::report;
 
 /// Runs the class audit for `args` on the logs and settings `rel` holds.
-pub fn run(args: &AuditArgs, rel: &Release, quiet: bool, misroute: Limit) -> Result<()> {
-    let Some(fc) = rel.fm.classes.as_ref() else {
-        anyhow::bail!("the model has no classes");
-    };
-    // What the two-sided audit offers and this one does not yet: refused, never dropped.
-    if args.sweep || rel.apply.recommended_format || rel.apply.suggested_band {
+pub fn run(args: &AuditArgs, rel: &Release, quiet: bool) -> Result<()> {
+    if args.sweep {
         anyhow::bail!(
-            "--sweep and --apply-… are not available for a model of several classes yet; give the word lengths with --weight-bits/--input-bits"
+            "--sweep is not available for a model of several classes yet; give the word lengths with --weight-bits/--input-bits"
         );
     }
-    let q = quantise_classes(&rel.fm, rel.qc)?;
-    let others = rel.named_others();
-    let mut r = audit_classes(&q, &rel.fm, fc, &rel.train, &others, rel.ac, misroute);
-    r.command_line = Some(command_line());
-    // Declared noise (by flag or recorded in the model) has no gate here yet: said in the
-    // report and on stderr, never dropped in silence.
-    let noisy: Vec<&str> = rel
+    let (q, r) = release(rel, quiet)?;
+    let fc = rel
         .fm
-        .channels
-        .iter()
-        .zip(&rel.noise)
-        .filter(|(_, n)| n.is_some())
-        .map(|(c, _)| c.name.as_str())
-        .collect();
-    if !noisy.is_empty() {
-        let note = format!(
-            "declared sensor noise ({}) is not analysed for a model of several classes yet: no noise gate",
-            noisy.join(", ")
-        );
-        if !quiet {
-            eprintln!("note: {note}");
-        }
-        r.notes.push(note);
-    }
+        .classes
+        .as_ref()
+        .unwrap_or_else(|| unreachable!("release() checked"));
+    let others = rel.named_others();
     let doc = report::class_document(&r);
     let md = doc.markdown();
     let mut set = OutputSet::default();
@@ -86,4 +68,140 @@ pub fn run(args: &AuditArgs, rel: &Release, quiet: bool, misroute: Limit) -> Res
         return Err(CheckFailed(format!("audit failed: {}", r.reasons.join("; "))).into());
     }
     Ok(())
+}
+
+/// `linegate pack` of a model of several classes: the same release as [`run`]'s, then the
+/// blob (version 5, or 6 signed) written only if the audit passed (or `--override-audit`,
+/// recorded in the blob). With `--audited`, the record must be a class audit of the same
+/// model whose blob is byte for byte this one (its SHA-256 covers the rows, gaps, mark and
+/// signature).
+pub fn pack(args: &PackArgs, rel: &Release, quiet: bool, output: &std::path::Path) -> Result<()> {
+    let (q, r) = release(rel, quiet)?;
+    if !r.passed && !args.override_audit {
+        return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
+    }
+    let blob = class_blob(&q, r.passed, rel.signer.as_ref());
+    if let Some(given) = &args.audited {
+        let path = if given.is_dir() {
+            given.join("audit.json")
+        } else {
+            given.clone()
+        };
+        let record = ClassRecord::read(&path)?;
+        let mut differs = Vec::new();
+        if record.kind != "classes" {
+            differs.push("the record is a two-sided audit".to_string());
+        }
+        if record.model_id != rel.fm.model_id {
+            differs.push(format!(
+                "model id {} (audited {})",
+                rel.fm.model_id, record.model_id
+            ));
+        }
+        if record.blob_sha256 != r.blob_sha256 {
+            differs.push(format!(
+                "blob SHA-256 {} (audited {}): word lengths, gaps, signing key or audit outcome differ",
+                r.blob_sha256, record.blob_sha256
+            ));
+        }
+        if !differs.is_empty() {
+            return Err(CheckFailed(format!(
+                "{}: this is not the audited release, nothing written; what differs: {}",
+                path.display(),
+                differs.join("; ")
+            ))
+            .into());
+        }
+        if !record.passed && !args.override_audit {
+            return Err(CheckFailed(format!(
+                "{}: that audit failed ({}); nothing written",
+                path.display(),
+                record.reasons.join("; ")
+            ))
+            .into());
+        }
+    } else if !quiet {
+        eprintln!(
+            "note: no audit record given (--audited, or [outputs] audit_dir in the project file): pack audited the model itself with the settings above"
+        );
+    }
+    super::pack::write_blob(args, output, &blob, r.passed, &rel.fm.model_id, quiet)
+}
+
+/// What `pack --audited` reads of a class audit's audit.json.
+#[derive(serde::Deserialize)]
+struct ClassRecord {
+    #[serde(default)]
+    kind: String,
+    model_id: String,
+    blob_sha256: String,
+    passed: bool,
+    #[serde(default)]
+    reasons: Vec<String>,
+}
+
+impl ClassRecord {
+    fn read(path: &std::path::Path) -> Result<Self> {
+        if !path.exists() {
+            anyhow::bail!(
+                "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",
+                path.display()
+            );
+        }
+        let text = std::fs::read_to_string(path)?;
+        serde_json::from_str(&text).map_err(|e| {
+            anyhow::anyhow!(
+                "{}: not an audit record of a model of several classes: {e}",
+                path.display()
+            )
+        })
+    }
+}
+
+/// Quantises and audits a model of several classes as `audit` and `pack` both do,
+/// naming the blob `pack` writes (signed with the release key, if given).
+fn release(rel: &Release, quiet: bool) -> Result<(QuantisedClasses, ClassAudit)> {
+    let Some(fc) = rel.fm.classes.as_ref() else {
+        anyhow::bail!("the model has no classes");
+    };
+    // What the two-sided audit offers and this one does not yet: refused, never dropped.
+    if rel.apply.recommended_format || rel.apply.suggested_band {
+        anyhow::bail!(
+            "--apply-… is not available for a model of several classes yet; give the word lengths with --weight-bits/--input-bits"
+        );
+    }
+    let q = quantise_classes(&rel.fm, rel.qc)?;
+    let others = rel.named_others();
+    let mut r = audit_classes(
+        &q,
+        &rel.fm,
+        fc,
+        &rel.train,
+        &others,
+        rel.ac,
+        rel.max_misroute,
+    );
+    r.name_blob(&class_blob(&q, r.passed, rel.signer.as_ref()));
+    r.command_line = Some(command_line());
+    // Declared noise (by flag or recorded in the model) has no gate here yet: said in the
+    // report and on stderr, never dropped in silence.
+    let noisy: Vec<&str> = rel
+        .fm
+        .channels
+        .iter()
+        .zip(&rel.noise)
+        .filter(|(_, n)| n.is_some())
+        .map(|(c, _)| c.name.as_str())
+        .collect();
+    if !noisy.is_empty() {
+        let note = format!(
+            "declared sensor noise ({}) is not analysed for a model of several classes yet: no noise gate",
+            noisy.join(", ")
+        );
+        if !quiet {
+            eprintln!("note: {note}");
+        }
+        r.notes.push(note);
+    }
+    Ok((q, r))
 }

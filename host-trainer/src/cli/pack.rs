@@ -48,13 +48,14 @@ impl PackArgs {
             release,
             output,
             audited,
-            hex: hex_addr,
-            bin,
             override_audit,
-            force,
+            ..
         } = self;
         let output = super::settings::required(output, "-o/--output", "[outputs] blob")?;
         let mut rel = release_inputs(release, quiet, settings)?;
+        if rel.fm.classes.is_some() {
+            return super::audit_classes::pack(self, &rel, quiet, output);
+        }
         let done = rel.run()?;
         let (r, blob, fm) = (done.report, done.blob, rel.fm);
         if !r.passed && !override_audit {
@@ -105,43 +106,54 @@ impl PackArgs {
             ),
             None => {}
         }
-        let mut set = OutputSet::default();
-        release.name_inputs(&mut set);
-        set.add_as("blob (-o)", output, blob.clone());
-        if let Some(a) = hex_addr {
-            hex::check_placement(*a, blob.len())?;
-            set.add_as(
-                "Intel HEX image (--hex, the blob's name with .hex)",
-                output.with_extension("hex"),
-                hex::to_hex(*a, &blob),
-            );
-        }
-        if *bin {
-            set.add_as(
-                "raw image (--bin, the blob's name with .bin)",
-                output.with_extension("bin"),
-                blob.clone(),
-            );
-        }
-        let files = set.commit(*force)?;
-        if !quiet {
-            say!(
-                "audit {}; model id {}; blob id {:08x}; {} bytes",
-                if r.passed {
-                    "passed"
-                } else {
-                    "FAILED (override recorded in the blob)"
-                },
-                fm.model_id,
-                shared_model::blob::blob_id(&blob).unwrap_or(0),
-                blob.len()
-            );
-            for f in files {
-                say!("wrote {}", f.display());
-            }
-        }
-        Ok(())
+        write_blob(self, output, &blob, r.passed, &fm.model_id, quiet)
     }
+}
+
+/// Writes the blob and the images asked for, all or nothing, and says what was written.
+pub fn write_blob(
+    args: &PackArgs,
+    output: &std::path::Path,
+    blob: &[u8],
+    passed: bool,
+    model_id: &str,
+    quiet: bool,
+) -> Result<()> {
+    let mut set = OutputSet::default();
+    args.release.name_inputs(&mut set);
+    set.add_as("blob (-o)", output, blob.to_vec());
+    if let Some(a) = args.hex {
+        hex::check_placement(a, blob.len())?;
+        set.add_as(
+            "Intel HEX image (--hex, the blob's name with .hex)",
+            output.with_extension("hex"),
+            hex::to_hex(a, blob),
+        );
+    }
+    if args.bin {
+        set.add_as(
+            "raw image (--bin, the blob's name with .bin)",
+            output.with_extension("bin"),
+            blob.to_vec(),
+        );
+    }
+    let files = set.commit(args.force)?;
+    if !quiet {
+        say!(
+            "audit {}; model id {model_id}; blob id {:08x}; {} bytes",
+            if passed {
+                "passed"
+            } else {
+                "FAILED (override recorded in the blob)"
+            },
+            shared_model::blob::blob_id(blob).unwrap_or(0),
+            blob.len()
+        );
+        for f in files {
+            say!("wrote {}", f.display());
+        }
+    }
+    Ok(())
 }
 
 /// The flags that decide a release's blob and verdict (every flag `audit` and `pack`

@@ -10,13 +10,19 @@
 //! - the thresholds must be those of the float model's threshold with some RECHECK band
 //!   b ≥ 0: `nogo_max = ⌊τ·A − b⌋`, `go_min = ⌊τ·A + b⌋ + 1`.
 //!
+//! - a model of several classes: the class rows are rounded plainly (no search), so its
+//!   blob's rows, names, GO class and gaps must equal the class quantiser's exactly.
+//!
 //! So a bit flipped in any field that decides a verdict, with its CRC recomputed, is caught
 //! (the search never moves a value by more than one), and the first field that differs is
 //! named.
 
 use crate::release::pack::DeviceModel;
 
-use crate::release::quantise::{QuantConfig, quantise};
+use shared_model::{ClassSection, FixedModel};
+
+use crate::release::quantise::{QuantConfig, QuantError, quantise};
+use crate::release::quantise_classes::quantise_classes;
 use crate::train::float_model::FloatModel;
 
 /// Why a blob is not one its float model produces.
@@ -31,6 +37,16 @@ pub enum Mismatch {
     Signals {
         /// Whether the blob is the one with signals.
         blob_has_signals: bool,
+    },
+    /// A two-sided blob for a model of several classes, or the other way round.
+    #[error("{}", if *.blob_has_classes {
+        "the blob decides between several classes, but the float model is two-sided (GO / NO-GO)"
+    } else {
+        "the blob is two-sided (GO / NO-GO), but the float model decides between several classes"
+    })]
+    Classes {
+        /// Whether the blob is the one with classes.
+        blob_has_classes: bool,
     },
     /// Another model id: other training inputs.
     #[error("the blob's model id is {blob}, the float model's is {model}")]
@@ -124,55 +140,38 @@ pub fn check(fm: &FloatModel, model: &DeviceModel) -> Result<(), Mismatch> {
             &fm.channels.len(),
         );
     }
+    if model.classes().is_some() != fm.classes.is_some() {
+        return Err(Mismatch::Classes {
+            blob_has_classes: model.classes().is_some(),
+        });
+    }
     // The plain quantisation at the blob's words: no training log, no search. The
     // accumulator width is left to the blob (its overflow proof was checked on decode).
-    let q = quantise(
-        fm,
-        None,
-        QuantConfig {
-            input_bits: b.input_bits,
-            weight_bits: b.weight_bits,
-            optimise: false,
-            acc_bits: None,
-            recheck_band: 0.0,
-        },
-    )
-    .map_err(|e| Mismatch::Format {
+    let cfg = QuantConfig {
+        input_bits: b.input_bits,
+        weight_bits: b.weight_bits,
+        optimise: false,
+        acc_bits: None,
+        recheck_band: 0.0,
+    };
+    let format = |e: QuantError| Mismatch::Format {
         input_bits: b.input_bits,
         weight_bits: b.weight_bits,
         message: e.to_string(),
-    })?;
+    };
+    if let Some(classes) = model.classes() {
+        let q = quantise_classes(fm, cfg).map_err(format)?;
+        same_channels(b, &q.fixed)?;
+        // Rows are rounded plainly (no search), so a class blob of this model holds
+        // exactly these rows, names, GO class and gaps.
+        return match first_class_difference(classes, &q.section) {
+            None => Ok(()),
+            Some((what, blob, model)) => field(what, &blob, &model),
+        };
+    }
+    let q = quantise(fm, None, cfg).map_err(format)?;
     let p = q.model.model();
-    for (i, (c, e)) in b.channels.iter().zip(&p.channels).enumerate() {
-        let at = |what: &str| format!("channel {i} ({}) {what}", e.name);
-        if c.name != e.name {
-            return field(format!("channel {i} name"), &c.name, &e.name);
-        }
-        if (c.raw_min, c.raw_max) != (e.raw_min, e.raw_max) {
-            return field(
-                at("valid range"),
-                &format!("{}..={}", c.raw_min, c.raw_max),
-                &format!("{}..={}", e.raw_min, e.raw_max),
-            );
-        }
-        if c.offset != e.offset {
-            return field(at("offset"), &c.offset, &e.offset);
-        }
-        if (c.multiplier, c.shift) != (e.multiplier, e.shift) {
-            return field(
-                at("conversion"),
-                &format!("multiplier {} shift {}", c.multiplier, c.shift),
-                &format!("multiplier {} shift {}", e.multiplier, e.shift),
-            );
-        }
-    }
-    if b.weight_frac_bits != p.weight_frac_bits {
-        return field(
-            "weight fractional bits".into(),
-            &b.weight_frac_bits,
-            &p.weight_frac_bits,
-        );
-    }
+    same_channels(b, p)?;
     let expected = fm.signal_section();
     if *signals != expected {
         return field(
@@ -226,6 +225,108 @@ pub fn check(fm: &FloatModel, model: &DeviceModel) -> Result<(), Mismatch> {
         });
     }
     Ok(())
+}
+
+/// The channels (names, ranges, offsets, conversions) and the weights' fractional bits
+/// of blob `b` against the quantiser's `p` at the blob's words.
+fn same_channels(b: &FixedModel, p: &FixedModel) -> Result<(), Mismatch> {
+    let field = |field: String, blob: &dyn std::fmt::Display, model: &dyn std::fmt::Display| {
+        Err(Mismatch::Field {
+            field,
+            blob: blob.to_string(),
+            model: model.to_string(),
+        })
+    };
+    for (i, (c, e)) in b.channels.iter().zip(&p.channels).enumerate() {
+        let at = |what: &str| format!("channel {i} ({}) {what}", e.name);
+        if c.name != e.name {
+            return field(format!("channel {i} name"), &c.name, &e.name);
+        }
+        if (c.raw_min, c.raw_max) != (e.raw_min, e.raw_max) {
+            return field(
+                at("valid range"),
+                &format!("{}..={}", c.raw_min, c.raw_max),
+                &format!("{}..={}", e.raw_min, e.raw_max),
+            );
+        }
+        if c.offset != e.offset {
+            return field(at("offset"), &c.offset, &e.offset);
+        }
+        if (c.multiplier, c.shift) != (e.multiplier, e.shift) {
+            return field(
+                at("conversion"),
+                &format!("multiplier {} shift {}", c.multiplier, c.shift),
+                &format!("multiplier {} shift {}", e.multiplier, e.shift),
+            );
+        }
+    }
+    if b.weight_frac_bits != p.weight_frac_bits {
+        return field(
+            "weight fractional bits".into(),
+            &b.weight_frac_bits,
+            &p.weight_frac_bits,
+        );
+    }
+    Ok(())
+}
+
+/// The first field in which class section `blob` differs from `expected`: (field, blob's
+/// value, the float model's).
+fn first_class_difference(
+    blob: &ClassSection,
+    expected: &ClassSection,
+) -> Option<(String, String, String)> {
+    let go = |c: &ClassSection| {
+        c.go_class()
+            .map_or("none".to_string(), |k| c.name(k).to_string())
+    };
+    if blob.rows.len() != expected.rows.len() {
+        return Some((
+            "class count".into(),
+            blob.rows.len().to_string(),
+            expected.rows.len().to_string(),
+        ));
+    }
+    if go(blob) != go(expected) {
+        return Some(("GO class".into(), go(blob), go(expected)));
+    }
+    if (blob.go_gap, blob.class_gap) != (expected.go_gap, expected.class_gap) {
+        return Some((
+            "class gaps (GO, failure)".into(),
+            format!("{}, {}", blob.go_gap, blob.class_gap),
+            format!("{}, {}", expected.go_gap, expected.class_gap),
+        ));
+    }
+    for (k, (r, e)) in blob.rows.iter().zip(&expected.rows).enumerate() {
+        if r.name != e.name {
+            return Some((
+                format!("class {k} name"),
+                r.name.to_string(),
+                e.name.to_string(),
+            ));
+        }
+        if r.bias != e.bias {
+            return Some((
+                format!("class {k} ({}) bias", e.name),
+                r.bias.to_string(),
+                e.bias.to_string(),
+            ));
+        }
+        if let Some((j, (w, x))) = r
+            .weights
+            .iter()
+            .zip(&e.weights)
+            .enumerate()
+            .find(|(_, (w, x))| w != x)
+        {
+            return Some((
+                format!("class {k} ({}) weight of channel {j}", e.name),
+                w.to_string(),
+                x.to_string(),
+            ));
+        }
+    }
+    None
 }
 
 /// Decodes a blob of any format version and checks it comes from `fm` ([`check`]).

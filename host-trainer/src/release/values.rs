@@ -190,17 +190,23 @@ pub fn plain_model(
     input_bits: u8,
     weight_bits: u8,
 ) -> Result<DeviceModel, QuantError> {
-    let q = quantise(
-        fm,
-        None,
-        QuantConfig {
-            input_bits,
-            weight_bits,
-            optimise: false,
-            acc_bits: None,
-            recheck_band: fm.operating_point.as_ref().map_or(0.0, |op| op.band),
-        },
-    )?;
+    let cfg = QuantConfig {
+        input_bits,
+        weight_bits,
+        optimise: false,
+        acc_bits: None,
+        recheck_band: fm.operating_point.as_ref().map_or(0.0, |op| op.band),
+    };
+    if fm.classes.is_some() {
+        // The class quantiser rounds plainly: these are the rows a blob would hold.
+        let q = crate::release::quantise_classes::quantise_classes(fm, cfg)?;
+        return Ok(CheckedModel::with_outcomes(
+            q.fixed,
+            shared_model::SignalSection::default(),
+            q.section,
+        )?);
+    }
+    let q = quantise(fm, None, cfg)?;
     // `quantise` validated the section against these channels, so the pair is accepted.
     Ok(CheckedModel::with_outcomes(
         q.model.into_inner(),
