@@ -4,6 +4,7 @@
 mod browser;
 mod c_api;
 mod classes_audit;
+mod classes_e2e;
 mod classes_train;
 mod confidence;
 mod demo;
