@@ -419,6 +419,30 @@ fn audit_on_a_class_model_writes_its_reports_and_drift_refuses_it() {
     );
     let err = exits(&o, 2);
     assert!(err.contains("several classes"), "{err}");
+    // The project file's [gates] max_misroute, as the flag.
+    std::fs::write(
+        d.join("linegate.toml"),
+        "[gates]\nmax_misroute = \"2%@90%\"\n",
+    )
+    .unwrap();
+    let o = linegate(
+        &[
+            "-q",
+            "audit",
+            "--model",
+            "classes.json",
+            "--holdout",
+            "demo/holdout-synthetic.csv",
+            "--json",
+        ],
+        d,
+    );
+    let printed: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(
+        printed["audit"]["max_misroute"],
+        serde_json::json!({ "Upper": { "rate": 0.02, "confidence": 0.9 } })
+    );
+    std::fs::remove_file(d.join("linegate.toml")).unwrap();
     // --max-misroute on a two-sided model is refused, not ignored.
     let o = linegate(
         &[
