@@ -443,6 +443,15 @@ fn audit_on_a_class_model_writes_its_reports_and_drift_refuses_it() {
         serde_json::json!({ "Upper": { "rate": 0.02, "confidence": 0.9 } })
     );
     std::fs::remove_file(d.join("linegate.toml")).unwrap();
+    // The two-sided release step (pack) refuses it by name rather than reading its unused
+    // weights.
+    let o = linegate(
+        &["-q", "pack", "--model", "classes.json", "-o", "c.lgmb"],
+        d,
+    );
+    let err = exits(&o, 2);
+    assert!(err.contains("several classes"), "{err}");
+    assert!(!d.join("c.lgmb").exists());
     // --max-misroute on a two-sided model is refused, not ignored.
     let o = linegate(
         &[
