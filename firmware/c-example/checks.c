@@ -47,8 +47,8 @@ static bool set_line(void *ctx, lg_line line, bool high) {
 }
 
 int main(int argc, char **argv) {
-    if (argc != 2) {
-        fprintf(stderr, "usage: %s BLOB\n", argv[0]);
+    if (argc != 2 && argc != 3) {
+        fprintf(stderr, "usage: %s BLOB [CLASS-BLOB]\n", argv[0]);
         return 64;
     }
     size_t len = 0;
@@ -92,6 +92,11 @@ int main(int argc, char **argv) {
     check(lg_channel_name(&c, 0, name, need - 1) == LG_ERR_BUFFER, "a name without room for its NUL");
     check(lg_channel_name(&c, 0, name, need) == LG_OK && strlen(name) == need - 1, "a name with exactly its room");
     check(lg_channel_name(&c, n, name, sizeof name) == LG_ERR_INDEX, "a channel past the last");
+    uint8_t classes = 9;
+    check(lg_class_count(&c, &classes) == LG_OK && classes == 0, "a two-sided model has no classes");
+    check(lg_class_name(&c, 0, name, sizeof name) == LG_ERR_CLASS, "and no class names");
+    check(lg_class_count(&c, NULL) == LG_ERR_NULL, "a class count into NULL");
+    check(lg_class_count(&never_loaded, &classes) == LG_ERR_NOT_LOADED, "classes of a classifier never loaded");
 
     int32_t *raw = calloc(n + 1, sizeof *raw);
     check(lg_classify(&c, raw, n + 1, &r) == LG_OK && r.fault == LG_FAULT_COUNT && r.verdict == LG_NOGO,
@@ -163,6 +168,37 @@ int main(int argc, char **argv) {
               f.plan.shift == 4,
           "a reset clears the counts and keeps the plan");
     check(lg_station_field_reset(NULL) == LG_ERR_NULL, "a reset of no station");
+
+    /* A model of several classes (the second blob, version 5): names, results, station. */
+    if (argc == 3) {
+        size_t clen = 0;
+        unsigned char *cblob = slurp(argv[2], &clen);
+        check(cblob && lg_load(&c, cblob, clen) == LG_OK, "the class blob loads");
+        check(lg_class_count(&c, &classes) == LG_OK && classes >= 2 && classes <= 8, "its class count");
+        check(lg_class_name(&c, 0, name, sizeof name) == LG_OK && strlen(name) > 0, "its first class's name");
+        size_t cneed = strlen(name) + 1;
+        check(lg_class_name(&c, 0, name, cneed - 1) == LG_ERR_BUFFER, "a class name without room for its NUL");
+        check(lg_class_name(&c, classes, name, sizeof name) == LG_ERR_CLASS, "a class past the last");
+        check(lg_class_name(&c, 0, NULL, 8) == LG_ERR_NULL, "a class name into NULL");
+        check(lg_channel_count(&c, &n) == LG_OK && n >= 1, "its channel count");
+        int32_t *mid = calloc(n, sizeof *mid);
+        check(lg_classify(&c, mid, n, &r) == LG_OK && (r.fault != LG_FAULT_NONE || r.class_index < classes),
+              "a decision names a class");
+        check(lg_classify(&c, mid, n + 1, &r) == LG_OK && r.fault == LG_FAULT_COUNT && r.class_index == LG_NO_CLASS,
+              "a fault names none");
+        check(lg_station_init(&s, cblob, clen, NULL, read_all, set_line, &b) == LG_OK, "a class station");
+        check(lg_station_class_count(&s, &classes) == LG_OK && classes >= 2, "the station's class count");
+        check(lg_station_class_name(&s, 0, name, sizeof name) == LG_OK && strlen(name) > 0, "the station's class name");
+        check(lg_station_class_name(&s, 8, name, sizeof name) == LG_ERR_CLASS, "the station's class past the last");
+        check(lg_station_class_name(&never_station, 0, name, sizeof name) == LG_ERR_NOT_LOADED,
+              "class names of a station never set up");
+        check(lg_station_class_count(NULL, &classes) == LG_ERR_NULL, "class count of no station");
+        check(lg_station_init(&s, bad, 3, NULL, read_all, set_line, &b) == LG_ERR_TRUNCATED &&
+                  lg_station_class_count(&s, &classes) == LG_ERR_TRUNCATED,
+              "a station on a damaged blob has no classes and says why");
+        free(mid);
+        free(cblob);
+    }
 
     printf("%d checks failed\n", failures);
     free(raw);

@@ -5,6 +5,8 @@
  * them with the same kernel the host audit ran and drives the lines through the line
  * callback. One line per vector, the same lines as `linegate replay`:
  *   <index> <GO|NO-GO|RECHECK> <score>   or   <index> FAULT ch<channel>
+ * and for a model of several classes the leading class's name after the lead:
+ *   <index> <GO|NO-GO|RECHECK> <lead> <class name>
  * then the station's field record (its statistics over the units, under the zero plan) as
  *   # field <lower-case hex of the record's bytes>
  * Output goes through board_write (host: stdout; device: semihosting). No heap, no libc. */
@@ -89,6 +91,7 @@ int run_station(const uint8_t *blob, size_t blob_len, const int32_t *vectors, si
         put_hex(be, 4);
         put("\n");
     }
+    char name[32];
     for (size_t i = 0; i < count; i++) {
         lg_result r;
         if (lg_station_step(&station, &r) != LG_OK) {
@@ -99,6 +102,12 @@ int run_station(const uint8_t *blob, size_t blob_len, const int32_t *vectors, si
         if (r.fault == LG_FAULT_NONE) {
             put(r.verdict == LG_GO ? " GO " : r.verdict == LG_NOGO ? " NO-GO " : " RECHECK ");
             put_int(r.score);
+            /* A model of several classes names the leading class, decided or not. */
+            if (r.class_index != LG_NO_CLASS &&
+                lg_station_class_name(&station, r.class_index, name, sizeof name) == LG_OK) {
+                put(" ");
+                put(name);
+            }
         } else if (r.fault == LG_FAULT_RANGE) {
             put(" FAULT ch");
             put_int(r.channel);

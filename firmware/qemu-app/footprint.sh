@@ -5,7 +5,10 @@
 # (QEMU one-instruction-per-block trace): the dot product alone, the kernel's classify, and
 # the whole step (read + classify + drive lines). One Markdown table per target, then the
 # instructions per sample of every signal feature on a 1,024-sample window (the example's
-# `cost_*` functions, run at its start) and the stack one feature takes.
+# `cost_*` functions, run at its start) and the stack one feature takes. Then the same
+# figures for a model of 4 classes over the same 16 channels (weights drawn from a fixed
+# seed by shared-model's `class_blob` example): start-up and step stack of the class
+# station, its classify (every row scored, then the decision) and its whole step.
 # Usage: firmware/qemu-app/footprint.sh [target ...]
 #   (needs qemu-system-arm, qemu-system-riscv32 for RISC-V, binutils' nm, python3)
 set -euo pipefail
@@ -40,6 +43,10 @@ for w in 8 16; do
 done
 lg replay --blob "$work/m16-w8.lgmb" --model "$work/m16.json" "$work/gen16.csv" --vectors "$work/v.txt" > /dev/null
 head -5 "$work/v.txt" > "$work/v4.txt"  # the model line and 4 vectors
+for w in 8 16; do
+  (cd "$root" && cargo run -q -p shared-model --example class_blob -- \
+      "$work/m16-w$w.lgmb" "$work/c16-w$w.lgmb" 4 0 7) | grep -o '[0-9]*-bit' > "$work/ckernel-$w.txt"
+done
 while read -r target qemu machine cpu addr; do
   if [ ${#wanted[@]} -gt 0 ] && [[ ! " ${wanted[*]} " == *" $target "* ]]; then continue; fi
   if ! command -v "$qemu" >/dev/null; then
@@ -53,10 +60,12 @@ while read -r target qemu machine cpu addr; do
   fi
   elf="$here/target/footprint/$target/release/linegate-qemu-app"
   cpuarg=(-cpu "$cpu"); [ "$cpu" = - ] && cpuarg=(-bios none)
-  for w in 8 16; do
+  for w in 8 16 c8 c16; do
+    blob="$work/m16-w$w.lgmb"
+    case $w in c*) blob="$work/c16-w${w#c}.lgmb" ;; esac
     timeout 300 "$qemu" -machine "$machine" "${cpuarg[@]}" -nographic \
       -semihosting-config enable=on,target=native -kernel "$elf" \
-      -device loader,file="$work/m16-w$w.lgmb",addr="$addr",force-raw=on \
+      -device loader,file="$blob",addr="$addr",force-raw=on \
       -singlestep -d nochain,exec -D "$work/trace-$w.log" > "$work/out-$w.txt" 2>/dev/null < /dev/null || true
   done
   nm -C -S --size-sort "$elf" > "$work/syms.txt" 2>/dev/null || true
@@ -109,9 +118,11 @@ def containing(pc):
 def count(trace, pat):
     """Instructions from entry into the function matching `pat` until control is back in
     the function that called it (callees included); the worst of all calls."""
-    entry = next(((a, s, n) for a, s, n in funcs if re.search(pat, n)), None)
-    if not entry:
-        return None
+    # Every function the pattern names (a generic function has one per kind): the worst
+    # of those that ran.
+    counts = [c for c in (count_one(trace, e) for e in funcs if re.search(pat, e[2])) if c]
+    return max(counts) if counts else None
+def count_one(trace, entry):
     pcs = []
     for line in open(trace, errors="replace"):
         m = re.search(r"\[[0-9a-f]+/([0-9a-f]+)/", line)
@@ -153,5 +164,18 @@ if os.path.exists(f"{work}/trace-8.log"):
     print("| " + " | ".join(n.replace("_", " ") for n in names) + " |")
     print("|" + "---|" * len(names))
     print("| " + " | ".join("–" if c is None else f"{c / 1024:.1f}" for c in counts) + " |")
+print(f"\nA model of 4 classes × 16 channels (GO and three failure classes) on the class station\n")
+print("| weights | device kernel | stack from reset through start-up | stack, one step | classify (4 × 16) | whole step (4 × 16) |")
+print("|---|---|---|---|---|---|")
+for w in (8, 16):
+    out = open(f"{work}/out-c{w}.txt").read()
+    stack = re.search(r"stack bytes used by one step: (\d+)", out)
+    startup = re.search(r"stack bytes used from reset through start-up: (\d+)", out)
+    trace = f"{work}/trace-c{w}.log"
+    cols = [count(trace, p) for p in (r"classify_classes_once", r"Station.*::step$")]
+    kernel = open(f"{work}/ckernel-{w}.txt").read().strip() or "?"
+    cell = lambda v: "–" if v is None else f"{v} instructions"
+    print(f"| {w}-bit | {kernel} | {startup.group(1) if startup else '–'} B | {stack.group(1) if stack else '–'} B | "
+          + " | ".join(cell(c) for c in cols) + " |")
 PY
 done <<< "$boards"

@@ -1,15 +1,20 @@
 //! The model as the device holds it.
 
-use shared_model::{CheckedModel, Decision, DecodeError, Fault, Inputs, Readings, blob};
+use shared_model::{
+    CheckedModel, ClassSection, Decision, DecodeError, Fault, Inputs, Outcomes, Readings, TwoSided,
+    blob,
+};
 
 use crate::ReleaseKey;
 
 /// A validated model, ready to classify: of readings alone (`Classifier`, the default
 /// kind) or of readings and sample windows (`Classifier<SignalSection>`, which loads every
-/// blob format version), as `shared_model::Inputs` says.
+/// blob format version of two-sided models), as `shared_model::Inputs` says; two-sided
+/// (`K` = `TwoSided`, the default: GO / NO-GO / RECHECK) or of several classes
+/// (`K` = `ClassSection`: loads versions 1 to 6, two-sided blobs decide as before).
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub struct Classifier<I: Inputs = Readings> {
-    model: CheckedModel<I>,
+pub struct Classifier<I: Inputs = Readings, K: Outcomes = TwoSided> {
+    model: CheckedModel<I, K>,
     blob_id: u32,
     key_id: Option<[u8; blob::KEY_ID_LEN]>,
 }
@@ -38,10 +43,27 @@ impl Classifier {
     }
 }
 
-impl<I: Inputs> Classifier<I> {
-    /// Validates a blob in `region` into a model of input kind `I` (the one loader of
-    /// both kinds: [`from_flash`](Classifier::from_flash) for readings, the station's
-    /// `with_windows` for windows), checking its signature first when `key` is given.
+impl<I: Inputs> Classifier<I, ClassSection> {
+    /// Validates the blob in a flash region into a model that may decide between several
+    /// classes (format versions 1 to 6; a version-1 to 4 blob is two-sided and decides as
+    /// it always did), its signature checked first against `key` when one is given.
+    ///
+    /// # Errors
+    /// Any [`DecodeError`]; the device must then hold NO-GO.
+    #[inline(always)]
+    pub fn from_flash_classes(
+        region: &[u8],
+        key: Option<&ReleaseKey>,
+    ) -> Result<Self, DecodeError> {
+        Self::load(region, key)
+    }
+}
+
+impl<I: Inputs, K: Outcomes> Classifier<I, K> {
+    /// Validates a blob in `region` into a model of input kind `I` and outcome kind `K` (the
+    /// one loader of every kind: [`from_flash`](Classifier::from_flash) for readings, the
+    /// station's `with_windows` for windows), checking its signature first when `key` is
+    /// given.
     ///
     /// Always inlined: where `key` is a constant `None` the signature verifier then drops
     /// out of the image, which keeps an unsigned build's panic-never proof free of it.
@@ -54,7 +76,7 @@ impl<I: Inputs> Classifier<I> {
         // The model decoded straight into its place: a named temporary would be one more
         // copy of it on the start-up stack.
         Ok(Self {
-            model: blob::decode(bytes)?,
+            model: blob::decode_as(bytes)?,
             blob_id,
             key_id,
         })
@@ -90,8 +112,27 @@ impl<I: Inputs> Classifier<I> {
     }
 
     /// The validated model.
-    pub fn model(&self) -> &CheckedModel<I> {
+    pub fn model(&self) -> &CheckedModel<I, K> {
         &self.model
+    }
+
+    /// The classes of a model of several classes; `None` for a two-sided model.
+    pub fn classes(&self) -> Option<&ClassSection> {
+        self.model.classes()
+    }
+
+    /// How many classes the model decides between (0 for a two-sided model).
+    pub fn class_count(&self) -> usize {
+        self.classes().map_or(0, |c| c.rows.len())
+    }
+
+    /// The name of class `class` (as a step's `Decision::class` gives it), or `None` for a
+    /// two-sided model or an index past the classes.
+    pub fn class_name(&self, class: u8) -> Option<&str> {
+        self.classes()?
+            .rows
+            .get(usize::from(class))
+            .map(|r| r.name.as_str())
     }
 }
 

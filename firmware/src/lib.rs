@@ -52,5 +52,7 @@ pub use driver::GoNoGoLines;
 pub use release_key::{ReleaseKey, key_id};
 pub use sensor::{SensorSource, WindowSource};
 pub use shared_model::field::{CusumPlan, CusumState, FieldPlan, FieldStats, RecordError};
-pub use shared_model::{Decision, DecodeError, Fault, FieldFault, Verdict};
+pub use shared_model::{
+    ClassSection, Decision, DecodeError, Fault, FieldFault, Outcomes, TwoSided, Verdict,
+};
 pub use station::{Gather, Station, StationFault, Step};

@@ -15,13 +15,21 @@
 //! CUSUMs, [`Station::field`] reads the statistics, [`Station::field_record`] writes them
 //! as a field record (`shared-model/FORMAT.md`) into a buffer the caller owns, and
 //! [`Station::reset_field`] starts them afresh.
+//!
+//! The outcome kind is the type parameter `K` (`shared_model::Outcomes`): `TwoSided` (the
+//! default, zero-sized: GO / NO-GO / RECHECK by thresholds) or `ClassSection`
+//! ([`Station::with_classes`], [`Station::with_windows_and_classes`]: GO or which failure
+//! class, blob versions 1 to 6). The lines are driven alike: a failure class shows NO-GO,
+//! RECHECK as RECHECK, a fault NO-GO; the class is in each step's `Decision::class`, its
+//! name from [`Classifier::class_name`]. A class model's units go into the field statistics
+//! through `FieldStats::decided_classes` (the signed lead against the two gaps).
 
 use embedded_hal::digital::OutputPin;
 use heapless::Vec;
 use shared_model::field::RecordError;
 use shared_model::{
-    CheckedModel, Decision, DecodeError, Fault, FieldFault, FieldPlan, FieldStats, Inputs,
-    MAX_CHANNELS, Readings, SignalFault, SignalSection,
+    CheckedModel, ClassSection, Decision, DecodeError, Fault, FieldFault, FieldPlan, FieldStats,
+    Inputs, MAX_CHANNELS, Outcomes, Readings, SignalFault, SignalSection, TwoSided,
 };
 
 use crate::{Classifier, GoNoGoLines, ReleaseKey, SensorSource, WindowSource};
@@ -57,9 +65,10 @@ pub enum Step<SE> {
 }
 
 /// A go/no-go station: holds NO-GO from reset until a valid model and valid readings (and
-/// windows) say otherwise. `I` is the model's input kind (see the module docs).
-pub struct Station<'w, S: SensorSource, G, N, R, I: Inputs = Readings> {
-    classifier: Result<Classifier<I>, DecodeError>,
+/// windows) say otherwise. `I` is the model's input kind, `K` its outcome kind (see the
+/// module docs).
+pub struct Station<'w, S: SensorSource, G, N, R, I: Inputs = Readings, K: Outcomes = TwoSided> {
+    classifier: Result<Classifier<I, K>, DecodeError>,
     /// Every signal's window end to end (empty for a model of readings).
     samples: &'w mut [i32],
     sensor: S,
@@ -118,7 +127,42 @@ impl<'w, S: WindowSource, G, N, R> Station<'w, S, G, N, R, SignalSection> {
     }
 }
 
-impl<'w, S: SensorSource, G, N, R, I: Inputs> Station<'w, S, G, N, R, I> {
+impl<S: SensorSource, G, N, R> Station<'static, S, G, N, R, Readings, ClassSection> {
+    /// A station for a model of readings that may decide between several classes: loads
+    /// blob versions 1 and 2 (two-sided, decided as by [`Station::with_key`]) and 5 and 6
+    /// (classes; a model that needs windows is refused), the signature checked first
+    /// against `key` when one is given.
+    ///
+    /// Always inlined, as [`Station::with_key`] is.
+    #[inline(always)]
+    pub fn with_classes(
+        flash: &[u8],
+        key: Option<ReleaseKey>,
+        sensor: S,
+        lines: GoNoGoLines<G, N, R>,
+    ) -> Self {
+        Self::load(flash, key, &mut [], sensor, lines)
+    }
+}
+
+impl<'w, S: WindowSource, G, N, R> Station<'w, S, G, N, R, SignalSection, ClassSection> {
+    /// As [`Station::with_windows`], for a model that may decide between several classes:
+    /// loads every blob version (1 to 6).
+    ///
+    /// Always inlined, as [`Station::with_windows`] is.
+    #[inline(always)]
+    pub fn with_windows_and_classes(
+        flash: &[u8],
+        key: Option<ReleaseKey>,
+        samples: &'w mut [i32],
+        sensor: S,
+        lines: GoNoGoLines<G, N, R>,
+    ) -> Self {
+        Self::load(flash, key, samples, sensor, lines)
+    }
+}
+
+impl<'w, S: SensorSource, G, N, R, I: Inputs, K: Outcomes> Station<'w, S, G, N, R, I, K> {
     /// The one constructor behind the public ones.
     #[inline(always)]
     fn load(
@@ -185,8 +229,8 @@ impl<'w, S: SensorSource, G, N, R, I: Inputs> Station<'w, S, G, N, R, I> {
 /// Empty statistics under `plan` for the model `classifier` holds (its blob id, channels
 /// and signals), or for no model (blob id 0, no channels).
 #[inline(always)]
-fn field_for<I: Inputs>(
-    classifier: &Result<Classifier<I>, DecodeError>,
+fn field_for<I: Inputs, K: Outcomes>(
+    classifier: &Result<Classifier<I, K>, DecodeError>,
     plan: FieldPlan,
 ) -> FieldStats {
     let (blob_id, channels, signals) = classifier.as_ref().map_or((0, 0, 0), |c| {
@@ -196,7 +240,7 @@ fn field_for<I: Inputs>(
     FieldStats::new(FieldPlan { blob_id, ..plan }, channels, signals)
 }
 
-impl<'w, S, G, N, R, E, I> Station<'w, S, G, N, R, I>
+impl<'w, S, G, N, R, E, I, K> Station<'w, S, G, N, R, I, K>
 where
     S: SensorSource,
     S::Error: Copy + PartialEq,
@@ -204,6 +248,7 @@ where
     N: OutputPin<Error = E>,
     R: OutputPin<Error = E>,
     I: Gather<S>,
+    K: Outcomes,
 {
     /// Replaces the model (e.g. after the flash region was rewritten). A bad
     /// blob drops the old model too: the station must not keep running a model
@@ -219,7 +264,7 @@ where
     }
 
     /// The model in use, or why there is none.
-    pub fn classifier(&self) -> Result<&Classifier<I>, DecodeError> {
+    pub fn classifier(&self) -> Result<&Classifier<I, K>, DecodeError> {
         self.classifier.as_ref().map_err(|e| *e)
     }
 
@@ -269,18 +314,34 @@ pub trait Gather<S: SensorSource>: Inputs {
     ///
     /// # Errors
     /// The fault the station shows NO-GO for.
-    fn unit(
-        model: &CheckedModel<Self>,
+    fn unit<K: Outcomes>(
+        model: &CheckedModel<Self, K>,
         sensor: &mut S,
         samples: &mut [i32],
         field: &mut FieldStats,
     ) -> Result<Decision, StationFault<S::Error>>;
 }
 
+/// Counts a decided unit in the field statistics: by the model's thresholds, or for a model
+/// of several classes by its two-sided view (`FieldStats::decided_classes`). For a
+/// two-sided kind `classes()` is a constant `None`: the class branch drops out.
+#[inline(always)]
+fn count_decided<I: Inputs, K: Outcomes>(
+    model: &CheckedModel<I, K>,
+    field: &mut FieldStats,
+    d: &Decision,
+    values: &[i32],
+) {
+    match model.classes() {
+        Some(classes) => field.decided_classes(classes, d, values),
+        None => field.decided(&model.thresholds(), d, values),
+    }
+}
+
 impl<S: SensorSource> Gather<S> for Readings {
     #[inline]
-    fn unit(
-        model: &CheckedModel,
+    fn unit<K: Outcomes>(
+        model: &CheckedModel<Readings, K>,
         sensor: &mut S,
         _samples: &mut [i32],
         field: &mut FieldStats,
@@ -293,8 +354,8 @@ impl<S: SensorSource> Gather<S> for Readings {
 /// readings are the values the weights multiply (what `CheckedModel::channel_values` gives
 /// for such a model), so the field statistics take them as they are: no copy.
 #[inline]
-fn readings_unit<I: Inputs, S: SensorSource>(
-    model: &CheckedModel<I>,
+fn readings_unit<I: Inputs, K: Outcomes, S: SensorSource>(
+    model: &CheckedModel<I, K>,
     sensor: &mut S,
     field: &mut FieldStats,
 ) -> Result<Decision, StationFault<S::Error>> {
@@ -303,7 +364,7 @@ fn readings_unit<I: Inputs, S: SensorSource>(
     let _ = buf.resize(model.channel_count(), 0);
     sensor.read(&mut buf).map_err(StationFault::Sensor)?;
     let d = model.classify(&buf).map_err(StationFault::Reading)?;
-    field.decided(&model.thresholds(), &d, &buf);
+    count_decided(model, field, &d, &buf);
     Ok(d)
 }
 
@@ -312,8 +373,8 @@ impl<S: WindowSource> Gather<S> for SignalSection {
     /// [`CheckedModel::channel_values`] and [`CheckedModel::classify`] (what
     /// `classify_windows` does); a model without signals (a version-1 or 2 blob) as a model
     /// of readings, which takes less stack for the same decision.
-    fn unit(
-        model: &CheckedModel<SignalSection>,
+    fn unit<K: Outcomes>(
+        model: &CheckedModel<SignalSection, K>,
         sensor: &mut S,
         samples: &mut [i32],
         field: &mut FieldStats,
@@ -329,8 +390,8 @@ impl<S: WindowSource> Gather<S> for SignalSection {
 /// in turn, then the kernel. Out of line, so that its frame (the readings, the windows'
 /// slices, the feature values) is not reserved when a model without signals steps.
 #[inline(never)]
-fn windows_unit<S: WindowSource>(
-    model: &CheckedModel<SignalSection>,
+fn windows_unit<K: Outcomes, S: WindowSource>(
+    model: &CheckedModel<SignalSection, K>,
     sensor: &mut S,
     samples: &mut [i32],
     field: &mut FieldStats,
@@ -365,7 +426,7 @@ fn windows_unit<S: WindowSource>(
         })?;
     let values = values.get(..n).unwrap_or(&[]);
     let d = model.classify(values).map_err(StationFault::Reading)?;
-    field.decided(&model.thresholds(), &d, values);
+    count_decided(model, field, &d, values);
     Ok(d)
 }
 

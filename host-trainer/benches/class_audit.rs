@@ -46,6 +46,7 @@ fn classes(k: usize) -> Classes {
             })
             .collect(),
         go: Some(0),
+        declared: true,
     }
 }
 

@@ -106,6 +106,7 @@ fn main() {
         threshold_shift: None,
         skipped: Default::default(),
         soft_margin: None,
+        classes: None,
     };
     let fm = host_trainer::train::float_model::FloatModel::new(
         prov,

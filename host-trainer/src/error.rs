@@ -295,6 +295,18 @@ pub enum InputError {
         /// How many classes the list has.
         classes: usize,
     },
+    /// A declared class has no unit in the training log.
+    #[error(
+        "{path}: the labels name no unit of the class(es) {missing} (units per class: {counts}); training needs units of every declared class: drop the class's --class or add its units"
+    )]
+    ClassWithoutUnits {
+        /// File.
+        path: PathBuf,
+        /// The classes without units.
+        missing: String,
+        /// Units per class.
+        counts: String,
+    },
     /// Training ended without a direction to decide by (every weight zero, or not finite).
     #[error(
         "{path}: training found no separating direction ({detail}); no model written. The classes overlap too much for this trainer: run `linegate check` to see the units in conflict, or try --trainer pocket or a smaller --c"

@@ -46,6 +46,12 @@ pub enum MarginError {
         /// 1 / the smallest share of readings that must keep the margin.
         per: u32,
     },
+    /// A class count the device cannot hold.
+    #[error("--classes {classes}: a log of classes has 2 to 8 (the device's limit)")]
+    Classes {
+        /// The count asked for.
+        classes: usize,
+    },
 }
 
 /// The hidden hyperplane of `seed` (weights, their norm, bias) and the generator after it.
@@ -167,7 +173,24 @@ pub fn write_log_delimited(
     seed: u64,
     delimiter: u8,
 ) -> std::io::Result<()> {
-    check_margin(channels, margin, seed)
+    write_class_log_delimited(out, rows, channels, 2, margin, seed, delimiter)
+}
+
+/// [`write_log_delimited`] with `classes` classes (2: GO and NO-GO, exactly as
+/// [`write_log`]; more: GO, fault1, fault2…, see [`class_margin`]).
+///
+/// # Errors
+/// As [`write_log`]; a margin [`check_margin`] or [`class_margin`] refuses.
+pub fn write_class_log_delimited(
+    out: &mut impl Write,
+    rows: usize,
+    channels: usize,
+    classes: usize,
+    margin: f64,
+    seed: u64,
+    delimiter: u8,
+) -> std::io::Result<()> {
+    check_classes_margin(channels, classes, margin, seed)
         .map_err(|e| std::io::Error::new(std::io::ErrorKind::InvalidInput, e))?;
     let sep = char::from(delimiter);
     write!(out, "unit_id")?;
@@ -176,16 +199,154 @@ pub fn write_log_delimited(
     }
     writeln!(out, "{sep}label")?;
     let mut line = String::with_capacity(16 * channels);
-    units(rows, channels, margin, seed, |n, x, go| {
+    any_units(rows, channels, classes, margin, seed, |n, x, label| {
         line.clear();
         line.push_str(&format!("U{n}"));
         for v in x {
             line.push_str(&format!("{sep}{v:.3}"));
         }
         line.push(sep);
-        line.push_str(if go { "GO\n" } else { "NO-GO\n" });
+        line.push_str(label);
+        line.push('\n');
         out.write_all(line.as_bytes())
     })
+}
+
+/// Refuses a margin for `classes` classes ([`check_margin`] for two, [`class_margin`]
+/// above), and fewer than two or more than the device's classes.
+fn check_classes_margin(
+    channels: usize,
+    classes: usize,
+    margin: f64,
+    seed: u64,
+) -> Result<(), MarginError> {
+    if classes <= 2 {
+        check_margin(channels, margin, seed)
+    } else {
+        class_margin(channels, classes, margin, seed)
+    }
+}
+
+/// The label of class `k` of a log of several classes: GO, then fault1, fault2…
+pub fn class_label(k: usize) -> String {
+    if k == 0 {
+        "GO".into()
+    } else {
+        format!("fault{k}")
+    }
+}
+
+/// The hidden class rows of `seed` (one weight vector per class, no bias) and the
+/// generator after them: a unit's class is the row of highest score.
+fn class_rows(channels: usize, classes: usize, seed: u64) -> (Vec<Vec<f64>>, ChaCha8Rng) {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0xc1a5_5e5);
+    let rows = (0..classes)
+        .map(|_| (0..channels).map(|_| rng.gen_range(-1.0..1.0)).collect())
+        .collect();
+    (rows, rng)
+}
+
+/// One random reading (as [`draw`]) and its class and distance from the nearest boundary
+/// between its class and another (scaled units).
+fn draw_class(rng: &mut ChaCha8Rng, rows: &[Vec<f64>], x: &mut [f64]) -> (usize, f64) {
+    for v in x.iter_mut() {
+        *v = f64::from(rng.gen_range(0u32..1_000_000)) / 1000.0;
+    }
+    let s: Vec<f64> = rows
+        .iter()
+        .map(|w| {
+            w.iter()
+                .zip(x.iter())
+                .map(|(w, v)| w * (v / 500.0 - 1.0))
+                .sum()
+        })
+        .collect();
+    let best = (0..s.len()).fold(0, |b, k| if s[k] > s[b] { k } else { b });
+    let dist = (0..s.len())
+        .filter(|&k| k != best)
+        .map(|k| {
+            let norm = rows[best]
+                .iter()
+                .zip(&rows[k])
+                .map(|(a, b)| (a - b) * (a - b))
+                .sum::<f64>()
+                .sqrt();
+            (s[best] - s[k]) / norm.max(f64::MIN_POSITIVE)
+        })
+        .fold(f64::INFINITY, f64::min);
+    (best, dist)
+}
+
+/// Refuses a margin of a log of `classes` (3 to 8) classes that fewer than 1 in 100
+/// random readings keep (judged on 100,000 trial readings of their own stream), or a
+/// class count outside 2..=8.
+///
+/// # Errors
+/// [`MarginError`].
+pub fn class_margin(
+    channels: usize,
+    classes: usize,
+    margin: f64,
+    seed: u64,
+) -> Result<(), MarginError> {
+    if !margin.is_finite() || margin < 0.0 {
+        return Err(MarginError::NotFinite { margin });
+    }
+    if !(2..=shared_model::limits::MAX_CLASSES).contains(&classes) {
+        return Err(MarginError::Classes { classes });
+    }
+    let (rows, _) = class_rows(channels, classes, seed);
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    rng.set_stream(2);
+    let mut x = vec![0.0; channels];
+    let mut d: Vec<f64> = (0..TRIALS)
+        .map(|_| draw_class(&mut rng, &rows, &mut x).1)
+        .collect();
+    let k = (TRIALS as f64 * MIN_KEPT) as usize;
+    let (_, kth, _) = d.select_nth_unstable_by(k - 1, |a, b| b.total_cmp(a));
+    let largest = *kth;
+    if margin > largest {
+        return Err(MarginError::Unattainable {
+            margin: margin.to_string(),
+            channels,
+            seed,
+            reach: largest,
+            largest: (largest * 1e4).floor() / 1e4,
+            per: (1.0 / MIN_KEPT) as u32,
+        });
+    }
+    Ok(())
+}
+
+/// Calls `unit` with each unit's number, readings and label: GO/NO-GO by the hidden
+/// hyperplane for two classes, else GO, fault1… by the hidden class rows, units nearer a
+/// boundary than `margin` redrawn.
+fn any_units<E>(
+    rows: usize,
+    channels: usize,
+    classes: usize,
+    margin: f64,
+    seed: u64,
+    mut unit: impl FnMut(usize, &[f64], &str) -> Result<(), E>,
+) -> Result<(), E> {
+    if classes <= 2 {
+        return units(rows, channels, margin, seed, |n, x, go| {
+            unit(n, x, if go { "GO" } else { "NO-GO" })
+        });
+    }
+    let labels: Vec<String> = (0..classes).map(class_label).collect();
+    let (w, mut rng) = class_rows(channels, classes, seed);
+    let mut x = vec![0.0f64; channels];
+    let mut n = 0;
+    while n < rows {
+        let (k, dist) = draw_class(&mut rng, &w, &mut x);
+        if dist < margin {
+            continue;
+        }
+        unit(n, &x, &labels[k])?;
+        n += 1;
+    }
+    Ok(())
 }
 
 /// Calls `unit` with each unit's number, readings and verdict (true for GO).
@@ -225,6 +386,21 @@ pub fn write_log_parquet(
     margin: f64,
     seed: u64,
 ) -> Result<(), parquet::errors::ParquetError> {
+    write_class_log_parquet(out, rows, channels, 2, margin, seed)
+}
+
+/// [`write_log_parquet`] with `classes` classes (as [`write_class_log_delimited`]).
+///
+/// # Errors
+/// As [`write_log_parquet`].
+pub fn write_class_log_parquet(
+    out: &mut Vec<u8>,
+    rows: usize,
+    channels: usize,
+    classes: usize,
+    margin: f64,
+    seed: u64,
+) -> Result<(), parquet::errors::ParquetError> {
     use std::sync::Arc;
 
     use arrow_array::builder::{ArrayBuilder, Float64Builder, StringBuilder};
@@ -234,7 +410,7 @@ pub fn write_log_parquet(
     use parquet::basic::Compression;
     use parquet::file::properties::WriterProperties;
 
-    check_margin(channels, margin, seed)
+    check_classes_margin(channels, classes, margin, seed)
         .map_err(|e| parquet::errors::ParquetError::External(Box::new(e)))?;
     const GROUP: usize = 1_048_576;
     let mut fields = vec![Field::new("unit_id", DataType::Utf8, false)];
@@ -259,12 +435,12 @@ pub fn write_log_parquet(
         let batch = RecordBatch::try_new(schema.clone(), cols)?;
         writer.write(&batch)
     };
-    units(rows, channels, margin, seed, |n, x, go| {
+    any_units(rows, channels, classes, margin, seed, |n, x, label| {
         ids.append_value(format!("U{n}"));
         for (c, &v) in chans.iter_mut().zip(x) {
             c.append_value(v);
         }
-        labels.append_value(if go { "GO" } else { "NO-GO" });
+        labels.append_value(label);
         if ids.len() == GROUP {
             flush(&mut ids, &mut chans, &mut labels)?;
         }

@@ -227,6 +227,18 @@ pub fn decode_classes<I: Inputs>(
     decode_into(bytes)
 }
 
+/// Decodes and validates a blob into a model of input kind `I` and outcome kind `K`: what
+/// [`decode`] does for [`TwoSided`](crate::TwoSided) and [`decode_classes`] for
+/// [`ClassSection`], for code generic over the outcome kind (a station of either kind).
+/// Never panics, whatever the bytes.
+///
+/// # Errors
+/// As [`decode`] (`K` two-sided) or [`decode_classes`] (`K` a class section).
+#[inline(always)]
+pub fn decode_as<I: Inputs, K: Outcomes>(bytes: &[u8]) -> Result<CheckedModel<I, K>, DecodeError> {
+    decode_into(bytes)
+}
+
 /// [`decode`] and [`decode_classes`]: one reader for every version and kind.
 #[inline(always)]
 fn decode_into<I: Inputs, K: Outcomes>(bytes: &[u8]) -> Result<CheckedModel<I, K>, DecodeError> {
@@ -240,8 +252,11 @@ fn decode_into<I: Inputs, K: Outcomes>(bytes: &[u8]) -> Result<CheckedModel<I, K
         return Err(DecodeError::Signals);
     }
     let payload = checked_payload(bytes, header)?;
-    let (model, mut rest) = take_model(payload)?;
-    let mut inputs = I::default();
+    // The model is built where it is returned and filled in place: a model of several
+    // classes moved through this frame would be a copy of about 2 KiB each time.
+    let mut checked = CheckedModel::<I, K>::unchecked();
+    let (model, inputs, outcomes) = checked.parts_mut();
+    let mut rest = take_model_into(payload, model)?;
     // `I::WINDOWS` first: for readings the section's code drops out. The section is read
     // in place: a section moved through an `Option` would be one more copy on the stack.
     if header.has_signals() {
@@ -256,7 +271,6 @@ fn decode_into<I: Inputs, K: Outcomes>(bytes: &[u8]) -> Result<CheckedModel<I, K
             None => rest = skip_empty_signals(rest)?,
         }
     }
-    let mut outcomes = K::default();
     if header.has_classes() {
         let section = outcomes.classes_mut().ok_or(DecodeError::Classes)?;
         rest = take_classes(rest, section)?;
@@ -268,7 +282,8 @@ fn decode_into<I: Inputs, K: Outcomes>(bytes: &[u8]) -> Result<CheckedModel<I, K
     if !rest.is_empty() || model.channels.len() != usize::from(header.channel_count) {
         return Err(DecodeError::InconsistentLengths);
     }
-    Ok(CheckedModel::with_outcomes(model, inputs, outcomes)?)
+    checked.check_in_place()?;
+    Ok(checked)
 }
 
 /// The payload of a blob whose length and CRC check.
@@ -318,10 +333,10 @@ fn take<'a, T: serde::Deserialize<'a>>(bytes: &'a [u8]) -> Result<(T, &'a [u8]),
 /// reads for [`FixedModel`]: a struct is its fields in order, a sequence its varint length
 /// then its elements), with each channel pushed straight into the model. Reading the whole
 /// struct through serde builds the channel list in several stack frames (about 15 KiB on
-/// a Cortex-M, too much for a 16 KiB part); this reads it in one.
+/// a Cortex-M, too much for a 16 KiB part); this reads it in one, into a model the caller
+/// holds (its defaults overwritten field by field).
 #[inline(always)]
-fn take_model(payload: &[u8]) -> Result<(FixedModel, &[u8]), DecodeError> {
-    let mut m = FixedModel::default();
+fn take_model_into<'a>(payload: &'a [u8], m: &mut FixedModel) -> Result<&'a [u8], DecodeError> {
     let rest = payload;
     let rest = {
         let (v, r) = take(rest)?;
@@ -351,11 +366,20 @@ fn take_model(payload: &[u8]) -> Result<(FixedModel, &[u8]), DecodeError> {
             .map_err(|_| DecodeError::MalformedPayload)?;
         rest = r;
     }
+    Ok(rest)
+}
+
+/// The model of a payload and the bytes after it (`take_model_into` on a fresh model; the
+/// tests check it against serde's reader).
+#[cfg(test)]
+fn take_model(payload: &[u8]) -> Result<(FixedModel, &[u8]), DecodeError> {
+    let mut m = FixedModel::default();
+    let rest = take_model_into(payload, &mut m)?;
     Ok((m, rest))
 }
 
 /// The signal section after the model (format version 3), element by element into
-/// `section`, as [`take_model`] reads the channels: serde's reader for the whole section
+/// `section`, as [`take_model_into`] reads the channels: serde's reader for the whole section
 /// would build its lists in frames of their own. Kept out of line so that loading a
 /// version-1 blob does not reserve its stack.
 #[inline(never)]

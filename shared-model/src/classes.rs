@@ -25,9 +25,7 @@ use heapless::{String, Vec};
 use serde::{Deserialize, Serialize};
 
 use crate::decision::{Decision, Verdict};
-use crate::error::ModelError;
 use crate::limits::{MAX_CHANNELS, MAX_CLASSES, NAME_CAPACITY};
-use crate::model::{FixedModel, input_bound};
 
 /// The `go` index of a section without a GO class (pure diagnosis: every class a failure).
 pub const NO_GO_CLASS: u8 = u8::MAX;
@@ -74,95 +72,6 @@ impl ClassSection {
         self.rows
             .get(usize::from(k))
             .map_or("", |r| r.name.as_str())
-    }
-
-    /// A small valid model of three classes for examples and tests: the two channels of
-    /// [`FixedModel::example_two_channel`] with its two-sided fields unused, and the
-    /// classes `good` (GO), `short` and `crack`.
-    pub fn example_three_class() -> (FixedModel, Self) {
-        let mut model = FixedModel::example_two_channel();
-        for c in model.channels.iter_mut() {
-            c.weight = 0;
-        }
-        (model.bias, model.nogo_max, model.go_min) = (0, -1, 0);
-        let row = |name: &str, bias: i64, w: [i32; 2]| ClassRow {
-            name: String::try_from(name).unwrap_or_default(),
-            bias,
-            weights: Vec::from_slice(&w).unwrap_or_default(),
-        };
-        let mut rows = Vec::new();
-        let _ = rows.push(row("good", 1000, [100, -100]));
-        let _ = rows.push(row("short", 0, [-100, 50]));
-        let _ = rows.push(row("crack", -500, [20, 100]));
-        let section = Self {
-            go: 0,
-            go_gap: 4096,
-            class_gap: 2048,
-            rows,
-        };
-        (model, section)
-    }
-
-    /// Validation of a non-empty section against its model (part of
-    /// `CheckedModel::with_outcomes`): 2..=8 rows, each with one weight per channel inside
-    /// the weight word and a unique non-empty name; the GO index a row or
-    /// [`NO_GO_CLASS`]; gaps ≥ 1; the model's two-sided fields unused; and the accumulator
-    /// proof: with `R_k = |bias_k| + Σ_j |w_kj|·max|x_j|`, `2·max_k R_k` fits the declared
-    /// accumulator, so every row's score and every difference of two rows' scores does.
-    pub(crate) fn check_rows(&self, model: &FixedModel) -> Result<(), ModelError> {
-        let count = self.rows.len();
-        if !(2..=MAX_CLASSES).contains(&count) {
-            return Err(ModelError::ClassCount(
-                u8::try_from(count).unwrap_or(u8::MAX),
-            ));
-        }
-        let unused = model.bias == 0
-            && model.nogo_max == -1
-            && model.go_min == 0
-            && model.channels.iter().all(|c| c.weight == 0);
-        if !unused {
-            return Err(ModelError::ClassUnusedFields);
-        }
-        if self.go != NO_GO_CLASS && usize::from(self.go) >= count {
-            return Err(ModelError::GoClass(self.go));
-        }
-        if self.go_gap < 1 || self.class_gap < 1 {
-            return Err(ModelError::ClassGap);
-        }
-        let weight_limit = (1i64 << (model.weight_bits.clamp(2, 32) - 1)) - 1;
-        let mut widest: i128 = 0;
-        for (k, row) in self.rows.iter().enumerate() {
-            let class = u8::try_from(k).unwrap_or(u8::MAX);
-            let named_before = self
-                .rows
-                .iter()
-                .take(k)
-                .any(|r| r.name.as_bytes() == row.name.as_bytes());
-            if row.name.is_empty() || named_before {
-                return Err(ModelError::ClassName { class });
-            }
-            if row.weights.len() != model.channels.len() {
-                return Err(ModelError::ClassWeights { class });
-            }
-            let mut bound = i128::from(row.bias).abs();
-            for (j, (&w, c)) in row.weights.iter().zip(&model.channels).enumerate() {
-                if i64::from(w).abs() > weight_limit {
-                    let channel = u8::try_from(j).unwrap_or(u8::MAX);
-                    return Err(ModelError::ClassWeightOutOfRange { class, channel });
-                }
-                bound = bound.saturating_add(i128::from(w).abs().saturating_mul(input_bound(c)));
-            }
-            widest = widest.max(bound);
-        }
-        let difference = widest.saturating_mul(2);
-        let needed_bits = u8::try_from(129 - difference.leading_zeros()).unwrap_or(u8::MAX);
-        if needed_bits > model.acc_bits {
-            return Err(ModelError::AccumulatorOverflow {
-                needed_bits,
-                declared_bits: model.acc_bits,
-            });
-        }
-        Ok(())
     }
 
     /// The decision for the classes' scores, one per row in row order (the rule of the
@@ -212,6 +121,8 @@ impl ClassSection {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::error::ModelError;
+    use crate::model::FixedModel;
 
     fn section(go: u8, go_gap: i64, class_gap: i64) -> ClassSection {
         let mut rows = Vec::new();

@@ -6,8 +6,6 @@
 //! RECHECK ([`Thresholds::decide`]); a refused reading or window is a fault, and the device
 //! shows NO-GO for it (the station's part, not this module's).
 
-use crate::model::FixedModel;
-
 /// The three outcomes a device shows.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -56,15 +54,6 @@ pub struct Thresholds {
 }
 
 impl Thresholds {
-    /// The thresholds `model` declares.
-    #[inline]
-    pub fn of(model: &FixedModel) -> Self {
-        Self {
-            nogo_max: model.nogo_max,
-            go_min: model.go_min,
-        }
-    }
-
     /// The verdict for a score.
     #[inline]
     pub fn verdict(&self, score: i64) -> Verdict {

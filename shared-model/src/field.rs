@@ -13,6 +13,12 @@
 //! margins, one over GO units (`score − go_min`) and one over NO-GO units
 //! (`nogo_max − score`), each two-sided, with the unit number of its first alarm.
 //!
+//! A model of several classes is counted through its two-sided view ([`class_view`]): the
+//! score is the signed lead (positive when the GO class leads, negative when a failure
+//! class does), the thresholds `−class_gap` and `go_gap`; so the GO CUSUM follows GO units'
+//! lead past the GO gap and the NO-GO CUSUM the lead past the class gap of units routed to
+//! any failure class. Counts per verdict are the decisions' own; the class is not kept.
+//!
 //! Overflow, by design: every counter is a `u32` no greater than [`FieldStats::units`], and
 //! `units` stops at `u32::MAX`: the unit that would pass it is not counted and
 //! [`FieldStats::saturated`] is set, which freezes the whole record (a record that stopped
@@ -20,6 +26,7 @@
 //! magnitude at most 2³¹, so `|sum| < 2³² · 2³¹ = 2⁶³` fits `i64`. CUSUM steps use
 //! saturating `i64` arithmetic: a statistic that large has long raised its alarm.
 
+use crate::classes::ClassSection;
 use crate::decision::{Decision, Thresholds, Verdict};
 use crate::limits::{MAX_CHANNELS, MAX_SIGNALS};
 
@@ -340,6 +347,13 @@ impl FieldStats {
         }
     }
 
+    /// One decided unit of a model of several classes: counted as its two-sided view
+    /// ([`class_view`]): the signed lead against the thresholds `−class_gap` / `go_gap`.
+    pub fn decided_classes(&mut self, classes: &ClassSection, decision: &Decision, values: &[i32]) {
+        let (thresholds, view) = class_view(classes, decision);
+        self.decided(&thresholds, &view, values);
+    }
+
     /// One unit that faulted (the device showed NO-GO without a score).
     pub fn faulted(&mut self, fault: FieldFault) {
         if self.next_unit().is_none() {
@@ -529,6 +543,35 @@ impl FieldStats {
             && binned == decided
             && faults == u64::from(self.faults)
     }
+}
+
+/// The two-sided view of a class model's decision that the field statistics keep: the
+/// *signed lead* (the lead when the GO class leads, minus the lead when a failure class
+/// leads) under the thresholds `nogo_max = −class_gap`, `go_min = go_gap`. The view's
+/// verdict is the decision's own (GO leads by `go_gap` or more ⇔ signed lead ≥ `go_gap`; a
+/// failure class leads by `class_gap` or more ⇔ signed lead ≤ `−class_gap`), so the
+/// histogram holds GO-led units right of 0 and failure-led units left of it, the GO CUSUM
+/// follows `lead − go_gap` of GO units and the NO-GO CUSUM `lead − class_gap` of units
+/// routed to a failure class (whichever class): the margins past each decision's gap.
+pub fn class_view(classes: &ClassSection, decision: &Decision) -> (Thresholds, Decision) {
+    let go_led = decision.class.is_some() && decision.class == classes.go_class();
+    let score = if go_led {
+        decision.score
+    } else {
+        decision.score.saturating_neg()
+    };
+    let thresholds = Thresholds {
+        nogo_max: classes.class_gap.saturating_neg(),
+        go_min: classes.go_gap,
+    };
+    (
+        thresholds,
+        Decision {
+            score,
+            verdict: decision.verdict,
+            class: decision.class,
+        },
+    )
 }
 
 /// Where a score falls among the bins.

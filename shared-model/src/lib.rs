@@ -80,6 +80,7 @@
 extern crate std;
 
 pub mod blob;
+mod class_check;
 pub mod classes;
 pub mod decision;
 pub mod error;

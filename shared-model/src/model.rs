@@ -18,6 +18,7 @@ use heapless::{String, Vec};
 use serde::{Deserialize, Serialize};
 
 use crate::classes::ClassSection;
+use crate::decision::Thresholds;
 use crate::error::ModelError;
 use crate::features::{CheckedFeature, SignalSection, Source};
 use crate::limits::{MAX_CHANNELS, NAME_CAPACITY};
@@ -190,6 +191,18 @@ impl FixedModel {
     }
 }
 
+impl Thresholds {
+    /// The thresholds `model` declares. (Here, beside the model, so that the decision step
+    /// imports nothing of the model: the class rule it serves is named by the model.)
+    #[inline]
+    pub fn of(model: &FixedModel) -> Self {
+        Self {
+            nogo_max: model.nogo_max,
+            go_min: model.go_min,
+        }
+    }
+}
+
 /// The largest |scaled input| channel `c` can give over its valid readings (at an end of
 /// its range: the conversion is monotonic).
 pub(crate) fn input_bound(c: &ChannelSpec) -> i128 {
@@ -292,30 +305,6 @@ impl Outcomes for TwoSided {
     #[inline(always)]
     fn check(&self, _model: &FixedModel) -> Result<(), ModelError> {
         Ok(())
-    }
-}
-
-impl Outcomes for ClassSection {
-    const CLASSES: bool = true;
-
-    #[inline(always)]
-    fn classes(&self) -> Option<&ClassSection> {
-        (!self.is_empty()).then_some(self)
-    }
-
-    #[inline(always)]
-    fn classes_mut(&mut self) -> Option<&mut ClassSection> {
-        Some(self)
-    }
-
-    /// An empty section is a two-sided model; otherwise the rows, names, GO index, gaps,
-    /// unused two-sided fields and the accumulator bound of every row difference.
-    #[inline(always)]
-    fn check(&self, model: &FixedModel) -> Result<(), ModelError> {
-        if self.is_empty() {
-            return Ok(());
-        }
-        self.check_rows(model)
     }
 }
 
@@ -439,20 +428,51 @@ impl<I: Inputs, K: Outcomes> CheckedModel<I, K> {
     /// kilobytes of start-up stack.
     #[inline(always)]
     pub fn with_outcomes(model: FixedModel, inputs: I, outcomes: K) -> Result<Self, ModelError> {
-        model.validate()?;
-        inputs.check(&model)?;
-        outcomes.check(&model)?;
-        let narrow = model.acc_bits == 32
-            && model
+        let mut checked = Self {
+            model,
+            narrow: false,
+            inputs,
+            outcomes,
+        };
+        checked.check_in_place()?;
+        Ok(checked)
+    }
+
+    /// A model not yet validated, every part at its default, for the blob reader to fill in
+    /// place ([`parts_mut`](Self::parts_mut)) and then validate
+    /// ([`check_in_place`](Self::check_in_place)): built where it stays, a model of several
+    /// classes is not copied through the reader's frames (each copy of it is about 2 KiB of
+    /// start-up stack on a device).
+    #[inline(always)]
+    pub(crate) fn unchecked() -> Self {
+        Self {
+            model: FixedModel::default(),
+            narrow: false,
+            inputs: I::default(),
+            outcomes: K::default(),
+        }
+    }
+
+    /// The parts of a model from [`unchecked`](Self::unchecked), to fill in place.
+    #[inline(always)]
+    pub(crate) fn parts_mut(&mut self) -> (&mut FixedModel, &mut I, &mut K) {
+        (&mut self.model, &mut self.inputs, &mut self.outcomes)
+    }
+
+    /// The validation of [`with_outcomes`](Self::with_outcomes), in place: the model, then
+    /// the inputs, then the outcomes; then whether it runs narrow.
+    #[inline(always)]
+    pub(crate) fn check_in_place(&mut self) -> Result<(), ModelError> {
+        self.model.validate()?;
+        self.inputs.check(&self.model)?;
+        self.outcomes.check(&self.model)?;
+        self.narrow = self.model.acc_bits == 32
+            && self
+                .model
                 .channels
                 .iter()
                 .all(|c| c.shift <= 31 && conversion_product(c) < 1i128 << 31);
-        Ok(Self {
-            model,
-            narrow,
-            inputs,
-            outcomes,
-        })
+        Ok(())
     }
 
     /// The class section of a model of several classes; `None` for a two-sided model.

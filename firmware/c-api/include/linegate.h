@@ -7,6 +7,9 @@
 #include <stddef.h>
 #include <stdint.h>
 
+// `lg_result.class_index` of a two-sided model's result, and of a fault.
+#define LG_NO_CLASS 255
+
 // Bins of the field statistics' score histogram.
 #define LG_FIELD_BINS 32
 
@@ -20,10 +23,10 @@
 #define LG_FIELD_RECORD_MAX 960
 
 // 64-bit words of storage in an [`lg_classifier`].
-#define LG_CLASSIFIER_WORDS 320
+#define LG_CLASSIFIER_WORDS 432
 
 // 64-bit words of storage in an [`lg_station`].
-#define LG_STATION_WORDS 400
+#define LG_STATION_WORDS 600
 
 // Status of every call. `LG_OK` is 0; anything else means the call did nothing more
 // than report it, and a station holds NO-GO.
@@ -72,6 +75,8 @@ typedef enum lg_status {
   LG_ERR_NO_SIGNING = 19,
   // A field plan's bin shift is above 62.
   LG_ERR_PLAN = 20,
+  // A class index beyond the model's classes (a two-sided model has none).
+  LG_ERR_CLASS = 21,
 } lg_status;
 
 // The decision a device shows.
@@ -117,7 +122,8 @@ typedef struct lg_classifier {
 
 // The outcome of one classification or station step.
 typedef struct lg_result {
-  // The integer score (accumulator units); 0 on a fault.
+  // The integer score (accumulator units); 0 on a fault. For a model of several classes,
+  // the lead: the leading class's score minus the runner-up's (≥ 0).
   int64_t score;
   // The verdict shown: `LG_NOGO` on any fault.
   enum lg_verdict verdict;
@@ -129,6 +135,10 @@ typedef struct lg_result {
   int32_t raw;
   // For a station step: 1 the first time this fault is seen in a row (report it then).
   bool first;
+  // For a model of several classes: the leading class (decided, or named under
+  // `LG_RECHECK`), an index for `lg_class_name`; `LG_NO_CLASS` (255) for a two-sided
+  // model and on a fault. GO is the GO class decided; any failure class decided is NO-GO.
+  uint8_t class_index;
 } lg_result;
 
 // A station: model, sensor callback and line callback, in storage the caller owns. Set it
@@ -357,6 +367,38 @@ enum lg_status lg_station_field_record(const struct lg_station *s,
 // # Safety
 // `s` points to an `lg_station`.
 enum lg_status lg_station_field_reset(struct lg_station *s);
+
+// Writes how many classes the loaded model decides between to `*out`: 0 for a two-sided
+// model (blob version 1 or 2), 2 to 8 for a model of several classes (version 5 or 6).
+//
+// # Safety
+// `c` points to an `lg_classifier`; `out` to a `uint8_t`.
+enum lg_status lg_class_count(const struct lg_classifier *c, uint8_t *out);
+
+// Copies class `class`'s name (the index `lg_result.class_index` gives), NUL-terminated, into
+// `buf[0..cap]` (`LG_ERR_BUFFER` if it does not fit; `LG_ERR_CLASS` past the last class,
+// and for every index of a two-sided model).
+//
+// # Safety
+// `c` points to an `lg_classifier`; `buf` to `cap` writable bytes.
+enum lg_status lg_class_name(const struct lg_classifier *c, uint8_t class_, char *buf, size_t cap);
+
+// As `lg_class_count`, for the station's model; when its blob was refused, returns why
+// (the status `lg_station_init` returned) and writes nothing.
+//
+// # Safety
+// `s` points to an `lg_station`; `out` to a `uint8_t`.
+enum lg_status lg_station_class_count(const struct lg_station *s, uint8_t *out);
+
+// As `lg_class_name`, for the station's model (the class of an `lg_station_step` result);
+// when its blob was refused, returns why and writes nothing.
+//
+// # Safety
+// `s` points to an `lg_station`; `buf` to `cap` writable bytes.
+enum lg_status lg_station_class_name(const struct lg_station *s,
+                                     uint8_t class_,
+                                     char *buf,
+                                     size_t cap);
 
 #if defined(LINEGATE_SIGNED)
 // Defined by the C firmware: drive NO-GO, then reset; never returns.

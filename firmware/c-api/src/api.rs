@@ -1,13 +1,18 @@
 //! The safe half: Linegate's Rust types to the C interface's, and back.
 
 use firmware::{
-    Classifier, CusumPlan, CusumState, Decision, DecodeError, Fault, FieldPlan, FieldStats,
-    StationFault, Step, Verdict,
+    ClassSection, Classifier, CusumPlan, CusumState, Decision, DecodeError, Fault, FieldPlan,
+    FieldStats, StationFault, Step, Verdict,
 };
 
 use crate::{
-    lg_cusum, lg_cusum_plan, lg_fault, lg_field, lg_field_plan, lg_result, lg_status, lg_verdict,
+    LG_NO_CLASS, lg_cusum, lg_cusum_plan, lg_fault, lg_field, lg_field_plan, lg_result, lg_status,
+    lg_verdict,
 };
+
+/// The classifier C holds: a model of readings, two-sided (blob versions 1 and 2) or of
+/// several classes (5 and 6).
+pub type CClassifier = Classifier<shared_model::Readings, ClassSection>;
 
 /// The status a blob's validation error maps to.
 pub fn status_of(e: DecodeError) -> lg_status {
@@ -49,6 +54,7 @@ fn faulted(fault: lg_fault) -> lg_result {
         channel: 0,
         raw: 0,
         first: false,
+        class_index: LG_NO_CLASS,
     }
 }
 
@@ -69,6 +75,7 @@ pub fn result_of(r: Result<Decision, Fault>) -> lg_result {
         Ok(d) => lg_result {
             score: d.score,
             verdict: verdict_of(d.verdict),
+            class_index: d.class.unwrap_or(LG_NO_CLASS),
             ..faulted(lg_fault::LG_FAULT_NONE)
         },
         Err(f) => reading_fault(f),
@@ -94,16 +101,35 @@ pub fn step_result<SE>(s: Step<SE>) -> lg_result {
 }
 
 /// Copies channel `index`'s name into `buf` with a terminating NUL.
-pub fn channel_name(c: &Classifier, index: usize, buf: &mut [u8]) -> lg_status {
+pub fn channel_name(c: &CClassifier, index: usize, buf: &mut [u8]) -> lg_status {
     let Some(ch) = c.model().model().channels.get(index) else {
         return lg_status::LG_ERR_INDEX;
     };
-    let name = ch.name.as_bytes();
-    let Some(dst) = buf.get_mut(..name.len()) else {
+    copy_name(ch.name.as_bytes(), buf)
+}
+
+/// Copies class `class`'s name into `buf` with a terminating NUL (`LG_ERR_CLASS` past the
+/// classes, and for a two-sided model, which has none).
+pub fn class_name(c: &CClassifier, class: u8, buf: &mut [u8]) -> lg_status {
+    match c.class_name(class) {
+        Some(name) => copy_name(name.as_bytes(), buf),
+        None => lg_status::LG_ERR_CLASS,
+    }
+}
+
+/// `name` and a terminating NUL into `buf`, or `LG_ERR_BUFFER` (nothing written) when it
+/// does not fit. Byte by byte: no length check the optimiser must prove (a copy of the
+/// whole slice kept a panic path for a class's name on Cortex-M0).
+fn copy_name(name: &[u8], buf: &mut [u8]) -> lg_status {
+    if buf.len() <= name.len() {
         return lg_status::LG_ERR_BUFFER;
-    };
-    dst.copy_from_slice(name);
-    match buf.get_mut(name.len()) {
+    }
+    let mut rest = buf.iter_mut();
+    // `name` first: zip stops on it without taking one more byte of `rest`.
+    for (&s, d) in name.iter().zip(rest.by_ref()) {
+        *d = s;
+    }
+    match rest.next() {
         Some(nul) => {
             *nul = 0;
             lg_status::LG_OK

@@ -11,9 +11,10 @@ use core::mem::{align_of, size_of};
 use embedded_hal::digital::{ErrorType, OutputPin};
 #[cfg(feature = "signed")]
 use firmware::ReleaseKey;
-use firmware::{Classifier, GoNoGoLines, SensorSource, Station};
+use firmware::{ClassSection, GoNoGoLines, SensorSource, Station};
+use shared_model::Readings;
 
-use crate::api::{channel_name, field_of, plan_of, result_of, status_of, step_result};
+use crate::api::{CClassifier, channel_name, field_of, plan_of, result_of, status_of, step_result};
 use crate::{lg_classifier, lg_field, lg_field_plan, lg_line, lg_result, lg_station, lg_status};
 
 /// A value in caller-owned storage, behind a tag saying what it is.
@@ -26,11 +27,15 @@ struct Slot<T> {
 const CLASSIFIER_TAG: u64 = 0x4C47_4D42_434C_5346; // "LGMBCLSF"
 const STATION_TAG: u64 = 0x4C47_4D42_5354_4E31; // "LGMBSTN1"
 
-type CStation = Station<'static, CSensor, CLine, CLine, CLine>;
+/// The station C holds: readings, two-sided or of several classes.
+type CStation = Station<'static, CSensor, CLine, CLine, CLine, Readings, ClassSection>;
+
+mod classes;
+pub use classes::*;
 
 // The storage sizes in the header must hold the values: checked when this crate compiles.
-const _: () = assert!(size_of::<Slot<Classifier>>() <= size_of::<lg_classifier>());
-const _: () = assert!(align_of::<Slot<Classifier>>() <= align_of::<lg_classifier>());
+const _: () = assert!(size_of::<Slot<CClassifier>>() <= size_of::<lg_classifier>());
+const _: () = assert!(align_of::<Slot<CClassifier>>() <= align_of::<lg_classifier>());
 const _: () = assert!(size_of::<Slot<CStation>>() <= size_of::<lg_station>());
 const _: () = assert!(align_of::<Slot<CStation>>() <= align_of::<lg_station>());
 
@@ -233,12 +238,12 @@ unsafe fn load(
     let Some(bytes) = (unsafe { bytes_at(region_ptr, len) }) else {
         return lg_status::LG_ERR_NULL;
     };
-    let loaded: Result<Classifier, _> = match key {
+    let loaded = match key {
         #[cfg(feature = "signed")]
-        Some(k) => Classifier::from_flash_signed(bytes, k),
+        Some(k) => CClassifier::from_flash_classes(bytes, Some(k)),
         #[cfg(not(feature = "signed"))]
         Some(never) => match *never {},
-        None => Classifier::from_flash(bytes),
+        None => CClassifier::from_flash_classes(bytes, None),
     };
     match loaded {
         Ok(model) => {
@@ -254,12 +259,12 @@ unsafe fn load(
 ///
 /// # Safety
 /// `c` is NULL or points to an `lg_classifier`.
-unsafe fn classifier<'a>(c: *const lg_classifier) -> Result<&'a Classifier, lg_status> {
+unsafe fn classifier<'a>(c: *const lg_classifier) -> Result<&'a CClassifier, lg_status> {
     if c.is_null() {
         return Err(lg_status::LG_ERR_NULL);
     }
     // SAFETY: per the contract.
-    unsafe { get::<Classifier>(c.cast(), CLASSIFIER_TAG) }
+    unsafe { get::<CClassifier>(c.cast(), CLASSIFIER_TAG) }
         .map(|s| &s.value)
         .ok_or(lg_status::LG_ERR_NOT_LOADED)
 }
@@ -271,7 +276,7 @@ unsafe fn classifier<'a>(c: *const lg_classifier) -> Result<&'a Classifier, lg_s
 unsafe fn answer<T>(
     c: *const lg_classifier,
     out: *mut T,
-    f: impl FnOnce(&Classifier) -> T,
+    f: impl FnOnce(&CClassifier) -> T,
 ) -> lg_status {
     // SAFETY: per the contract.
     let model = match unsafe { classifier(c) } {
@@ -326,7 +331,7 @@ pub unsafe extern "C" fn lg_classify(
 #[unsafe(no_mangle)]
 pub unsafe extern "C" fn lg_model_id(c: *const lg_classifier, out: *mut u8) -> lg_status {
     // SAFETY: per the contract: `out` is 16 writable bytes, and [u8; 16] has alignment 1.
-    unsafe { answer(c, out.cast::<[u8; 16]>(), Classifier::model_id) }
+    unsafe { answer(c, out.cast::<[u8; 16]>(), CClassifier::model_id) }
 }
 
 /// Writes the loaded blob's id (its CRC-32, as `linegate replay` prints it) to `*out`.
@@ -336,7 +341,7 @@ pub unsafe extern "C" fn lg_model_id(c: *const lg_classifier, out: *mut u8) -> l
 #[unsafe(no_mangle)]
 pub unsafe extern "C" fn lg_blob_id(c: *const lg_classifier, out: *mut u32) -> lg_status {
     // SAFETY: per the contract.
-    unsafe { answer(c, out, Classifier::blob_id) }
+    unsafe { answer(c, out, CClassifier::blob_id) }
 }
 
 /// Writes the number of readings the model takes to `*out`.
@@ -346,7 +351,7 @@ pub unsafe extern "C" fn lg_blob_id(c: *const lg_classifier, out: *mut u32) -> l
 #[unsafe(no_mangle)]
 pub unsafe extern "C" fn lg_channel_count(c: *const lg_classifier, out: *mut usize) -> lg_status {
     // SAFETY: per the contract.
-    unsafe { answer(c, out, Classifier::channel_count) }
+    unsafe { answer(c, out, CClassifier::channel_count) }
 }
 
 /// Copies channel `index`'s name, NUL-terminated, into `buf[0..cap]`
@@ -442,7 +447,7 @@ pub unsafe extern "C" fn lg_station_init(
         put::<CStation>(
             storage,
             STATION_TAG,
-            Station::with_key(bytes, key, CSensor { read, ctx }, lines),
+            Station::with_classes(bytes, key, CSensor { read, ctx }, lines),
         );
     }
     // SAFETY: just written behind its tag.

@@ -7,7 +7,9 @@
 //!   caller-owned [`lg_classifier`] (no heap);
 //! - [`lg_classify`] turns one set of raw readings into score, verdict and fault;
 //! - [`lg_model_id`], [`lg_blob_id`], [`lg_channel_count`], [`lg_channel_name`] say what
-//!   was loaded;
+//!   was loaded; a model may decide between several classes (blob version 5 or 6): each
+//!   result's `class` names the leading one, [`lg_class_count`] / [`lg_class_name`] (and
+//!   [`lg_station_class_count`] / [`lg_station_class_name`]) say how many and what each is;
 //! - [`lg_station_init`] / [`lg_station_step`] (and [`lg_station_ids`]) run the firmware's station: read the
 //!   sensors through a callback, classify, and drive the GO / NO-GO / RECHECK lines through
 //!   a callback, falling to NO-GO on any fault.
@@ -93,6 +95,8 @@ pub enum lg_status {
     LG_ERR_NO_SIGNING = 19,
     /// A field plan's bin shift is above 62.
     LG_ERR_PLAN = 20,
+    /// A class index beyond the model's classes (a two-sided model has none).
+    LG_ERR_CLASS = 21,
 }
 
 /// The decision a device shows.
@@ -127,7 +131,8 @@ pub enum lg_fault {
 #[repr(C)]
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct lg_result {
-    /// The integer score (accumulator units); 0 on a fault.
+    /// The integer score (accumulator units); 0 on a fault. For a model of several classes,
+    /// the lead: the leading class's score minus the runner-up's (≥ 0).
     pub score: i64,
     /// The verdict shown: `LG_NOGO` on any fault.
     pub verdict: lg_verdict,
@@ -139,7 +144,15 @@ pub struct lg_result {
     pub raw: i32,
     /// For a station step: 1 the first time this fault is seen in a row (report it then).
     pub first: bool,
+    /// For a model of several classes: the leading class (decided, or named under
+    /// `LG_RECHECK`), an index for `lg_class_name`; `LG_NO_CLASS` (255) for a two-sided
+    /// model and on a fault. GO is the GO class decided; any failure class decided is NO-GO.
+    pub class_index: u8,
 }
+
+/// `lg_result.class_index` of a two-sided model's result, and of a fault.
+pub const LG_NO_CLASS: u8 = 255;
+const _: () = assert!(LG_NO_CLASS == shared_model::NO_GO_CLASS);
 
 /// The three lines a station drives.
 #[repr(C)]
@@ -260,9 +273,9 @@ pub struct lg_field {
 }
 
 /// 64-bit words of storage in an [`lg_classifier`].
-pub const LG_CLASSIFIER_WORDS: usize = 320;
+pub const LG_CLASSIFIER_WORDS: usize = 432;
 /// 64-bit words of storage in an [`lg_station`].
-pub const LG_STATION_WORDS: usize = 400;
+pub const LG_STATION_WORDS: usize = 600;
 
 /// A validated model, in storage the caller owns (a static or a stack variable; no heap).
 /// Set it up with [`lg_load`]; its contents are private.

@@ -11,13 +11,21 @@
 //! named `cost_<feature>`, which `footprint.sh` counts in the QEMU trace. After the units it
 //! prints its field record (the statistics kept under the plan LINEGATE_FIELD_PLAN names,
 //! see build.rs) as one line, `# field <lower-case hex of the record's bytes>`.
+//!
+//! A blob of several classes (format version 5 or 6, seen in its header) runs on
+//! [`Station::with_windows_and_classes`] instead, in a frame of its own so that a two-sided
+//! blob's start-up stack stays as it was; its unit lines name the leading class:
+//! `<i> <GO|NO-GO|RECHECK> <lead> <class name>` (FAULT lines as for any blob).
 #![no_std]
 #![no_main]
 
 mod board;
 
 use board::{debug, entry, hprint, hprintln};
-use firmware::{Classifier, Decision, Fault, GoNoGoLines, Station, StationFault, Step};
+use firmware::{
+    ClassSection, Classifier, Decision, Fault, GoNoGoLines, Outcomes, Station, StationFault, Step,
+    TwoSided,
+};
 #[cfg(target_arch = "arm")]
 use panic_semihosting as _;
 use shared_model::{SignalFault, SignalSection};
@@ -128,13 +136,84 @@ fn feature_costs() {
 #[entry]
 fn main() -> ! {
     feature_costs();
-    run()
+    let classes =
+        shared_model::blob::Header::read(board::model_region()).is_ok_and(|h| h.has_classes());
+    if classes {
+        run::<ClassSection>()
+    } else {
+        run::<TwoSided>()
+    }
+}
+
+/// The board's station for outcome kind `Self`.
+type BoardStation<'w, K> =
+    Station<'w, board::Rows, board::Line, board::Line, board::Line, SignalSection, K>;
+
+/// How the example builds its station and counts its kernel, per outcome kind.
+trait Kind: Outcomes {
+    /// The station over `region` (see [`Station::with_windows`]).
+    fn station<'w>(
+        region: &[u8],
+        key: Option<firmware::ReleaseKey>,
+        samples: &'w mut [i32],
+        rows: board::Rows,
+        lines: GoNoGoLines<board::Line, board::Line, board::Line>,
+    ) -> BoardStation<'w, Self>;
+
+    /// The kernel once, behind a call boundary the footprint script counts.
+    fn classify_counted(
+        c: &Classifier<SignalSection, Self>,
+        raw: &[i32],
+    ) -> Result<Decision, Fault>;
+}
+
+impl Kind for TwoSided {
+    #[inline(always)]
+    fn station<'w>(
+        region: &[u8],
+        key: Option<firmware::ReleaseKey>,
+        samples: &'w mut [i32],
+        rows: board::Rows,
+        lines: GoNoGoLines<board::Line, board::Line, board::Line>,
+    ) -> BoardStation<'w, Self> {
+        Station::with_windows(region, key, samples, rows, lines)
+    }
+
+    #[inline(always)]
+    fn classify_counted(
+        c: &Classifier<SignalSection, Self>,
+        raw: &[i32],
+    ) -> Result<Decision, Fault> {
+        classify_once(c, raw)
+    }
+}
+
+impl Kind for ClassSection {
+    #[inline(always)]
+    fn station<'w>(
+        region: &[u8],
+        key: Option<firmware::ReleaseKey>,
+        samples: &'w mut [i32],
+        rows: board::Rows,
+        lines: GoNoGoLines<board::Line, board::Line, board::Line>,
+    ) -> BoardStation<'w, Self> {
+        Station::with_windows_and_classes(region, key, samples, rows, lines)
+    }
+
+    #[inline(always)]
+    fn classify_counted(
+        c: &Classifier<SignalSection, Self>,
+        raw: &[i32],
+    ) -> Result<Decision, Fault> {
+        classify_classes_once(c, raw)
+    }
 }
 
 /// The station over the linked-in units. Its own frame, not `main`'s: the feature costs'
 /// 4 KiB window must not stand on the stack beside the station (16 KiB on the M0 board).
+/// One instance per outcome kind, each in its own frame.
 #[inline(never)]
-fn run() -> ! {
+fn run<K: Kind>() -> ! {
     let lines = match GoNoGoLines::new(
         board::Line(&board::GO),
         board::Line(&board::NOGO),
@@ -164,7 +243,7 @@ fn run() -> ! {
         Some(Some(k)) => (board::model_region(), Some(k)),
         Some(None) => (&[][..], None),
     };
-    let mut station = Station::with_windows(region, key, &mut samples, rows, lines);
+    let mut station = K::station(region, key, &mut samples, rows, lines);
     let startup = board::stack_used(painted, board::stack_start());
     station.set_field_plan(field_plan::PLAN);
     match station.classifier() {
@@ -209,17 +288,28 @@ fn run() -> ! {
             vectors::VECTORS.get(i * vectors::WIDTH..(i + 1) * vectors::WIDTH),
         ) && c.model().signal_count() == 0
         {
-            let _ = core::hint::black_box(classify_once(c, v));
+            let _ = core::hint::black_box(K::classify_counted(c, v));
             // And the dot-product stage alone, on inputs already scaled.
             let mut x = [0i32; shared_model::MAX_CHANNELS];
+            // (Two-sided models only: a class model's rows are scored by its classify.)
             if let Some(x) = x.get_mut(..v.len())
+                && c.classes().is_none()
                 && c.model().scale(v, x).is_ok()
             {
                 let _ = core::hint::black_box(score_once(c, x));
             }
         }
         match step {
-            Ok(Step::Decided(d)) => hprintln!("{} {} {}", i, d.verdict.as_str(), d.score),
+            Ok(Step::Decided(d)) => match (d.class, station.classifier()) {
+                (Some(k), Ok(c)) => hprintln!(
+                    "{} {} {} {}",
+                    i,
+                    d.verdict.as_str(),
+                    d.score,
+                    c.class_name(k).unwrap_or("?")
+                ),
+                _ => hprintln!("{} {} {}", i, d.verdict.as_str(), d.score),
+            },
             Ok(Step::Faulted {
                 fault: StationFault::Reading(Fault::OutOfRange { channel, .. }),
                 ..
@@ -256,9 +346,19 @@ fn classify_once(c: &Classifier<SignalSection>, raw: &[i32]) -> Result<Decision,
     c.classify(raw)
 }
 
+/// One classification of a model of several classes (not inlined, to be counted): scale
+/// once, score every row, decide.
+#[inline(never)]
+fn classify_classes_once(
+    c: &Classifier<SignalSection, ClassSection>,
+    raw: &[i32],
+) -> Result<Decision, Fault> {
+    c.classify(raw)
+}
+
 /// The dot-product stage only: bias + Σ weight·x over scaled inputs (not inlined, to be counted).
 #[inline(never)]
-fn score_once(c: &Classifier<SignalSection>, x: &[i32]) -> i64 {
+fn score_once<K: Outcomes>(c: &Classifier<SignalSection, K>, x: &[i32]) -> i64 {
     c.model().score_scaled(x)
 }
 

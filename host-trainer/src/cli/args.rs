@@ -43,6 +43,17 @@ pub struct LogArgs {
     /// NO-GO tokens (default: nogo,no-go,no_go,fail,ng,bad,reject).
     #[arg(long, value_delimiter = ',')]
     pub nogo_labels: Option<Vec<String>>,
+    /// A class of units and the label tokens that stand for it (case-insensitive), e.g.
+    /// --class GO=go,pass --class SHORT=short --class CRACK=crack,cracked. Repeat for each
+    /// class (2 to 8; names 1 to 24 bytes). With --class the labels name these classes
+    /// instead of GO and NO-GO (--go-labels/--nogo-labels then do not apply), and `train`
+    /// trains a model of classes: GO, one failure class, or RECHECK.
+    #[arg(long = "class", value_name = "NAME=TOKEN[,TOKEN…]", value_parser = host_trainer::ingest::classes::parse_class)]
+    pub classes: Vec<host_trainer::ingest::classes::Class>,
+    /// Which --class is GO (good units): a class name, or none (diagnosis only: every
+    /// class is a failure). Default: the class named GO; without one, name it here.
+    #[arg(long, value_name = "NAME|none", requires = "classes")]
+    pub go_class: Option<String>,
     /// Skip bad rows (counted and reported) instead of stopping at the first.
     #[arg(long)]
     pub skip_bad_rows: bool,
@@ -76,7 +87,28 @@ fn parse_delimiter(s: &str) -> Result<u8, String> {
 }
 
 impl LogArgs {
-    /// The reader options these flags ask for (`quiet` turns progress off).
+    /// The classes `--class` and `--go-class` declare (`None` without `--class`).
+    ///
+    /// # Errors
+    /// The list `Classes::declared` refuses (count, names, tokens, the GO class), naming
+    /// the classes and the flag.
+    pub fn declared_classes(&self) -> Result<Option<host_trainer::ingest::classes::Classes>> {
+        use host_trainer::ingest::classes::{Classes, GoClass};
+        if self.classes.is_empty() {
+            return Ok(None);
+        }
+        let go = self
+            .go_class
+            .as_deref()
+            .map_or(GoClass::Default, GoClass::parse);
+        Classes::declared(self.classes.clone(), &go)
+            .map(Some)
+            .map_err(|e| anyhow::anyhow!(e))
+    }
+
+    /// The reader options these flags ask for (`quiet` turns progress off). Declared
+    /// classes are checked by [`Self::declared_classes`], which `train` calls first; a list
+    /// it refuses is left out here (the other commands take their classes from the model).
     pub fn options(&self, quiet: bool) -> LogOptions {
         let d = LogOptions::default();
         let lower = |v: &Option<Vec<String>>, def: Vec<String>| {
@@ -91,6 +123,7 @@ impl LogArgs {
             ignore: self.ignore.clone(),
             go_labels: lower(&self.go_labels, d.go_labels),
             nogo_labels: lower(&self.nogo_labels, d.nogo_labels),
+            classes: self.declared_classes().ok().flatten(),
             skip_bad_rows: self.skip_bad_rows,
             max_line_len: d.max_line_len,
             max_rows: self.max_rows,
@@ -156,6 +189,27 @@ impl LogArgs {
         if self.nogo_labels.is_none() && rw.nogo_labels != d.nogo_labels {
             o.nogo_labels = rw.nogo_labels.clone();
             took("--nogo-labels", rw.nogo_labels.clone());
+        }
+        if self.classes.is_empty() && !rw.classes.is_empty() {
+            let go = rw
+                .go_class
+                .as_deref()
+                .map_or(host_trainer::ingest::classes::GoClass::None, |g| {
+                    host_trainer::ingest::classes::GoClass::parse(g)
+                });
+            // The model's own list, checked when it was trained.
+            if let Ok(c) = host_trainer::ingest::classes::Classes::declared(rw.classes.clone(), &go)
+            {
+                took(
+                    "--class",
+                    c.list
+                        .iter()
+                        .map(|c| format!("{}={}", c.name, c.tokens.join(",")))
+                        .collect(),
+                );
+                took("--go-class", vec![c.go_name()]);
+                o.classes = Some(c);
+            }
         }
         if !self.skip_bad_rows && rw.skip_bad_rows {
             o.skip_bad_rows = true;

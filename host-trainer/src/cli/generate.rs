@@ -24,6 +24,12 @@ pub struct GenerateArgs {
     /// Seed.
     #[arg(long, default_value_t = 1)]
     pub seed: u64,
+    /// Classes (2..=8). 2: GO and NO-GO by one hidden boundary; more: GO, fault1, fault2…,
+    /// each unit the class of the highest of hidden rows (train it with
+    /// --class GO=go --class FAULT1=fault1 …), units within --margin of a boundary between
+    /// two classes redrawn.
+    #[arg(long, default_value_t = 2)]
+    pub classes: usize,
     /// Output log: Parquet for .parquet or .pq, tab-separated for .tsv, .tab or .txt,
     /// comma-separated otherwise. The channel sheet goes beside it with extension .toml.
     #[arg(long, short)]
@@ -41,22 +47,31 @@ impl GenerateArgs {
             channels,
             margin,
             seed,
+            classes,
             output,
             force,
         } = self;
         if *channels == 0 || *channels > shared_model::MAX_CHANNELS {
             bail!("--channels must be 1..={}", shared_model::MAX_CHANNELS);
         }
-        host_trainer::synth::check_margin(*channels, *margin, *seed)?;
+        if *classes > 2 {
+            host_trainer::synth::class_margin(*channels, *classes, *margin, *seed)?;
+        } else if *classes == 2 {
+            host_trainer::synth::check_margin(*channels, *margin, *seed)?;
+        } else {
+            bail!("--classes {classes}: a log has 2 to 8 classes");
+        }
         let mut log = Vec::new();
         // The file says what it holds: Parquet for .parquet and .pq, tab-separated for
         // .tsv, .tab and .txt, comma-separated otherwise.
         if host_trainer::synth::is_parquet_path(output) {
-            host_trainer::synth::write_log_parquet(&mut log, *rows, *channels, *margin, *seed)?;
+            host_trainer::synth::write_class_log_parquet(
+                &mut log, *rows, *channels, *classes, *margin, *seed,
+            )?;
         } else {
             let delimiter = host_trainer::synth::delimiter_for(output);
-            host_trainer::synth::write_log_delimited(
-                &mut log, *rows, *channels, *margin, *seed, delimiter,
+            host_trainer::synth::write_class_log_delimited(
+                &mut log, *rows, *channels, *classes, *margin, *seed, delimiter,
             )?;
         }
         let mut set = OutputSet::default();

@@ -38,6 +38,7 @@ mod replay;
 pub mod settings;
 mod sheet;
 mod train;
+mod train_classes;
 mod values;
 
 use anyhow::Result;

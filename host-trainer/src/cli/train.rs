@@ -121,6 +121,12 @@ pub struct TrainArgs {
     /// Print the outcome as JSON.
     #[arg(long)]
     pub json: bool,
+    /// How a model of classes (--class) is trained. one-vs-rest: one row per class, each
+    /// class against the rest by --trainer; joint: every row at once by the multi-class
+    /// maximum margin (Crammer–Singer, penalty --c, trained on standard scores).
+    /// Default: one-vs-rest. Only with --class.
+    #[arg(long, value_enum, value_name = "one-vs-rest|joint")]
+    pub class_rule: Option<host_trainer::train::class_rows::ClassRule>,
 }
 
 impl TrainArgs {
@@ -150,6 +156,7 @@ impl TrainArgs {
             output,
             force,
             json,
+            class_rule,
         } = self;
         let output = super::settings::required(output, "-o/--output", "[outputs] model")?;
         let files = super::log_files(
@@ -159,6 +166,25 @@ impl TrainArgs {
         let log = &files[0];
         let mut opts = log_args.options(quiet);
         opts.keep_times = holdout_after.is_some();
+        opts.classes = log_args.declared_classes()?;
+        if opts.classes.is_none() && class_rule.is_some() {
+            anyhow::bail!(
+                "--class-rule trains a model of classes: declare the classes with --class NAME=TOKEN[,TOKEN…] (one per class)"
+            );
+        }
+        if opts.classes.is_some() {
+            for (given, flag) in [
+                (max_false_go.is_some(), "--max-false-go"),
+                (cv_output.is_some(), "--cv-output"),
+                (class_weight.trim() != "1,1", "--class-weight"),
+            ] {
+                if given {
+                    anyhow::bail!(
+                        "{flag} applies to a model of GO and NO-GO; a model of classes (--class) places its gaps by --false-go-target or --recheck-budget"
+                    );
+                }
+            }
+        }
         let (full, sheet) = workflow::load(&files, &opts, sheet.as_deref())?;
         // A holdout taken out of the training log: train on the rest, evaluate on it.
         let split = HoldoutSplit::asked(*holdout_fraction, *seed, holdout_after.as_deref());
@@ -195,6 +221,27 @@ impl TrainArgs {
             ),
             fixed => fixed.clone(),
         };
+        if opts.classes.is_some() {
+            let run = super::train_classes::ClassRun {
+                files: &files,
+                holdout,
+                sheet_path: self.sheet.as_deref(),
+                rule: class_rule.unwrap_or(host_trainer::train::class_rows::ClassRule::OneVsRest),
+                trainer: *trainer,
+                epochs: *epochs,
+                seed: *seed,
+                c,
+                false_go_weight: *false_go_weight,
+                recheck_budget: *recheck_budget,
+                false_go_target: false_go_target.clone(),
+                no_operating_point: *no_operating_point,
+                folds: *folds,
+                output,
+                force: *force,
+                json: *json,
+            };
+            return run.run(quiet, &opts, ds, held, holdout_split, sheet, settings);
+        }
         let target = match (false_go_target, max_false_go, no_operating_point) {
             (_, Some(_), _) | (_, _, true) => None,
             (Some(Limit::Upper { rate, confidence }), _, _) => Some(Target::FalseGo {

@@ -23,7 +23,8 @@ pub const GO_TOKENS: &[&str] = &["go", "pass", "ok", "good"];
 pub const NOGO_TOKENS: &[&str] = &["nogo", "no-go", "no_go", "fail", "ng", "bad", "reject"];
 
 /// One outcome a unit's label can name.
-#[derive(Clone, Debug, PartialEq, Eq)]
+#[derive(Clone, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Class {
     /// The class's name, as messages and reports say it.
     pub name: String,
@@ -38,6 +39,67 @@ pub struct Classes {
     pub list: Vec<Class>,
     /// The class that is GO (`+1` in the GO-vs-rest view), if any.
     pub go: Option<ClassId>,
+    /// Whether the list was declared (`--class`): then any number of classes up to
+    /// [`MAX_CLASSES`] reaches the steps that decide between classes. `false` for GO and
+    /// NO-GO from `--go-labels`/`--nogo-labels`, which every step reads as ±1.
+    pub declared: bool,
+}
+
+/// Most classes a model holds (the device's limit).
+pub const MAX_CLASSES: usize = shared_model::limits::MAX_CLASSES;
+
+/// Longest class name, in bytes (the device keeps 24).
+pub const MAX_CLASS_NAME: usize = 24;
+
+/// Which declared class is GO (`--go-class`).
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum GoClass {
+    /// The class named GO (case-insensitively); refused when no class has that name.
+    Default,
+    /// No class is GO: pure diagnosis.
+    None,
+    /// The class of this name (case-insensitively).
+    Named(String),
+}
+
+impl GoClass {
+    /// `--go-class`'s value: `none`, or a class name.
+    pub fn parse(s: &str) -> Self {
+        if s.trim().eq_ignore_ascii_case("none") {
+            Self::None
+        } else {
+            Self::Named(s.trim().to_string())
+        }
+    }
+}
+
+/// One `--class NAME=TOKEN[,TOKEN…]` value: the name and its tokens, lower case.
+///
+/// # Errors
+/// No `=`, an empty name or token, or a name beyond [`MAX_CLASS_NAME`] bytes.
+pub fn parse_class(s: &str) -> Result<Class, String> {
+    let Some((name, tokens)) = s.split_once('=') else {
+        return Err(format!(
+            "'{s}' is not a class: give NAME=TOKEN[,TOKEN…], e.g. SHORT=short,winding"
+        ));
+    };
+    let name = name.trim();
+    if name.is_empty() || name.len() > MAX_CLASS_NAME {
+        return Err(format!(
+            "'{s}': a class name is 1 to {MAX_CLASS_NAME} bytes (the device keeps that many); '{name}' is {}",
+            name.len()
+        ));
+    }
+    let tokens: Vec<String> = tokens.split(',').map(|t| t.trim().to_lowercase()).collect();
+    if tokens.iter().any(String::is_empty) {
+        return Err(format!(
+            "'{s}': a class's label tokens are comma-separated and none is empty"
+        ));
+    }
+    Ok(Class {
+        name: name.to_string(),
+        tokens,
+    })
 }
 
 impl Default for Classes {
@@ -63,7 +125,72 @@ impl Classes {
                 },
             ],
             go: Some(0),
+            declared: false,
         }
+    }
+
+    /// Declared classes (`--class`, in the order given) with `go` marking the GO class.
+    ///
+    /// # Errors
+    /// Fewer than two or more than [`MAX_CLASSES`] classes, a name twice (case-insensitively),
+    /// a token of two classes, or a GO class that is not among them (the message names the
+    /// classes and the flag).
+    pub fn declared(list: Vec<Class>, go: &GoClass) -> Result<Self, String> {
+        if list.len() < 2 || list.len() > MAX_CLASSES {
+            return Err(format!(
+                "--class is given {} times: a model of classes has 2 to {MAX_CLASSES} (the device's limit)",
+                list.len()
+            ));
+        }
+        for (k, a) in list.iter().enumerate() {
+            for b in &list[k + 1..] {
+                if a.name.eq_ignore_ascii_case(&b.name) {
+                    return Err(format!(
+                        "--class names the class '{}' twice ('{}' and '{}'); each class needs a name of its own",
+                        a.name, a.name, b.name
+                    ));
+                }
+                if let Some(t) = a.tokens.iter().find(|t| b.tokens.contains(t)) {
+                    return Err(format!(
+                        "--class: the label token '{t}' stands for both '{}' and '{}'; give it to one class",
+                        a.name, b.name
+                    ));
+                }
+            }
+        }
+        let find = |name: &str| {
+            list.iter()
+                .position(|c| c.name.eq_ignore_ascii_case(name))
+                .and_then(|k| ClassId::try_from(k).ok())
+        };
+        let names = list
+            .iter()
+            .map(|c| c.name.as_str())
+            .collect::<Vec<_>>()
+            .join(", ");
+        let go = match go {
+            GoClass::None => None,
+            GoClass::Default => Some(find(GO).ok_or_else(|| {
+                format!(
+                    "no class is named GO (the classes are {names}): name the class of good units with --go-class NAME, or give --go-class none for diagnosis without a GO class"
+                )
+            })?),
+            GoClass::Named(n) => Some(find(n).ok_or_else(|| {
+                format!("--go-class {n}: no class has that name (the classes are {names}); give one of them, or none")
+            })?),
+        };
+        Ok(Self {
+            list,
+            go,
+            declared: true,
+        })
+    }
+
+    /// The GO class's name, or `none`, as `--go-class` takes it.
+    pub fn go_name(&self) -> String {
+        self.go
+            .and_then(|g| self.list.get(usize::from(g)))
+            .map_or_else(|| "none".to_string(), |c| c.name.clone())
     }
 
     /// The class `token` stands for (the first class whose tokens hold it), or `None`.

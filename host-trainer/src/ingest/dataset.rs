@@ -349,7 +349,7 @@ impl Dataset {
     pub fn split_fraction(&self, fraction: f64, seed: u64) -> (Vec<usize>, Vec<usize>) {
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
         let (mut train, mut hold) = (Vec::new(), Vec::new());
-        for class in [1i8, -1] {
+        for class in self.strata() {
             let idx = self.shuffled_class(class, &mut rng);
             let n =
                 ((idx.len() as f64 * fraction).round() as usize).min(idx.len().saturating_sub(1));
@@ -388,6 +388,19 @@ impl Dataset {
         Ok((train, hold))
     }
 
+    /// The class codes folds and holdout splits stratify by, in draw order: GO (+1), then
+    /// NO-GO (−1); a log of declared classes adds −2, −3… (each class its own stratum).
+    fn strata(&self) -> Vec<i8> {
+        let more = if self.classes.declared {
+            self.classes.list.len()
+        } else {
+            1
+        };
+        std::iter::once(1i8)
+            .chain((1..=more).filter_map(|k| i8::try_from(k).ok().map(|k| -k)))
+            .collect()
+    }
+
     /// The units of one class in a seeded random order (folds and holdout splits draw
     /// GO first, then NO-GO, from one generator).
     fn shuffled_class(&self, class: i8, rng: &mut ChaCha8Rng) -> Vec<usize> {
@@ -412,7 +425,7 @@ impl Dataset {
     pub fn folds(&self, k: usize, seed: u64) -> Vec<Vec<usize>> {
         let mut rng = ChaCha8Rng::seed_from_u64(seed);
         let mut folds = vec![Vec::new(); k.max(1)];
-        for class in [1i8, -1] {
+        for class in self.strata() {
             let idx = self.shuffled_class(class, &mut rng);
             for (n, i) in idx.into_iter().enumerate() {
                 folds[n % k.max(1)].push(i);

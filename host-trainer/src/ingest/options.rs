@@ -1,6 +1,6 @@
 //! How a log is read: the options, the default column names and label tokens.
 
-use crate::ingest::classes::Classes;
+use crate::ingest::classes::{Class, Classes};
 use crate::ingest::scaling::ChannelScale;
 use crate::ingest::sheet::ChannelSheet;
 use crate::ingest::signal_scale::SignalScale;
@@ -38,6 +38,9 @@ pub struct LogOptions {
     pub go_labels: Vec<String>,
     /// NO-GO tokens, lower case.
     pub nogo_labels: Vec<String>,
+    /// Declared classes (`--class`, `--go-class`); `None`: GO and NO-GO from the token
+    /// lists above.
+    pub classes: Option<Classes>,
     /// Skip and count bad rows instead of failing.
     pub skip_bad_rows: bool,
     /// Longest accepted line, in bytes.
@@ -74,6 +77,7 @@ impl Default for LogOptions {
             ignore: Vec::new(),
             go_labels: GO_TOKENS.iter().map(|s| s.to_string()).collect(),
             nogo_labels: NOGO_TOKENS.iter().map(|s| s.to_string()).collect(),
+            classes: None,
             skip_bad_rows: false,
             max_line_len: 1 << 20,
             max_rows: 50_000_000,
@@ -88,11 +92,13 @@ impl Default for LogOptions {
 }
 
 impl LogOptions {
-    /// The classes the label column names, each with its tokens: GO (`go_labels`) and
-    /// NO-GO (`nogo_labels`). Readers map a label cell through this list only, so more
-    /// classes come by giving more tokens here.
+    /// The classes the label column names, each with its tokens: the declared classes,
+    /// else GO (`go_labels`) and NO-GO (`nogo_labels`). Readers map a label cell through
+    /// this list only.
     pub fn classes(&self) -> Classes {
-        Classes::go_nogo(&self.go_labels, &self.nogo_labels)
+        self.classes
+            .clone()
+            .unwrap_or_else(|| Classes::go_nogo(&self.go_labels, &self.nogo_labels))
     }
 
     /// The accepted label tokens, as error messages list them.
@@ -125,6 +131,12 @@ pub struct RecordedOptions {
     pub go_labels: Vec<String>,
     /// NO-GO tokens.
     pub nogo_labels: Vec<String>,
+    /// The declared classes with their tokens (`--class`), if declared.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub classes: Vec<Class>,
+    /// The GO class's name, or `none` (`--go-class`), when classes were declared.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub go_class: Option<String>,
     /// Whether bad rows were skipped and counted.
     #[serde(default)]
     pub skip_bad_rows: bool,
@@ -146,6 +158,8 @@ impl From<&LogOptions> for RecordedOptions {
             ignore: o.ignore.clone(),
             go_labels: o.go_labels.clone(),
             nogo_labels: o.nogo_labels.clone(),
+            classes: o.classes.as_ref().map_or_else(Vec::new, |c| c.list.clone()),
+            go_class: o.classes.as_ref().map(Classes::go_name),
             skip_bad_rows: o.skip_bad_rows,
             delimiter: o.delimiter.map(char::from),
             decimal_comma: o.decimal_comma,

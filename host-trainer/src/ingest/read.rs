@@ -268,18 +268,19 @@ pub(super) fn spread_checked(
     Ok(())
 }
 
-/// `ds`, unless it is empty, names more than two classes, or, for training (no model),
-/// holds one class only: the one rule for plain, Parquet and signal logs. The dataset
-/// carries `classes`, the list its labels were read with.
+/// `ds`, unless it is empty, names more than two classes without declaring them, or, for
+/// training (no model), holds one class only (of declared classes: lacks one): the one
+/// rule for plain, Parquet and signal logs. The dataset carries `classes`, the list its
+/// labels were read with.
 pub(super) fn checked_classes(
     path: &Path,
     mut ds: Dataset,
     for_model: bool,
     classes: Classes,
 ) -> Result<Dataset, InputError> {
-    // Every step after ingest reads a unit's code as its ±1 side; a third class's code
-    // (−2…) must not reach them until a step can decide between classes.
-    if classes.list.len() > 2 || ds.labels.iter().any(|&l| l < -1) {
+    // Every step of two outcomes reads a unit's code as its ±1 side; a third class's code
+    // (−2…) reaches only the steps that decide between declared classes.
+    if !classes.declared && (classes.list.len() > 2 || ds.labels.iter().any(|&l| l < -1)) {
         return Err(InputError::MoreClasses {
             path: path.into(),
             classes: classes.list.len(),
@@ -288,6 +289,28 @@ pub(super) fn checked_classes(
     ds.classes = classes;
     if ds.is_empty() {
         return Err(no_rows(path, &ds.skipped));
+    }
+    if ds.classes.declared {
+        if !for_model {
+            let counts = ds.class_counts();
+            let missing: Vec<&str> = counts
+                .iter()
+                .filter(|(_, n)| *n == 0)
+                .map(|(c, _)| *c)
+                .collect();
+            if !missing.is_empty() {
+                return Err(InputError::ClassWithoutUnits {
+                    path: path.into(),
+                    missing: missing.join(", "),
+                    counts: counts
+                        .iter()
+                        .map(|(c, n)| format!("{c} {n}"))
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                });
+            }
+        }
+        return Ok(ds);
     }
     let go = ds.labels.iter().filter(|&&l| l > 0).count();
     if !for_model && (go == 0 || go == ds.len()) {

@@ -13,7 +13,7 @@ use serde::{Deserialize, Serialize};
 use crate::train::linear::Linear;
 
 /// How the rows were trained.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, clap::ValueEnum)]
 #[serde(rename_all = "kebab-case")]
 pub enum ClassRule {
     /// One row per class, each trained by the chosen two-sided trainer as that class

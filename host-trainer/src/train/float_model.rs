@@ -191,6 +191,9 @@ pub struct TrainingSummary {
     /// The soft margin's objective and the training units' spread it was solved over.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub soft_margin: Option<SoftMargin>,
+    /// A model of several classes: each class's figures, the gaps, C, the joint objective.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub classes: Option<crate::train::class_model::ClassSummary>,
 }
 
 /// What the soft margin solved, for an outside solver to check.
@@ -299,7 +302,7 @@ impl FloatModel {
     /// Hash of the training inputs and settings and of everything that decides a verdict
     /// (scaling, weights, bias, threshold): the same inputs give the same id, and a model
     /// that decides differently has another.
-    fn derive_id(&self) -> String {
+    pub(crate) fn derive_id(&self) -> String {
         let mut h = Sha256::new();
         h.update(FORMAT.as_bytes());
         let p = &self.provenance;
@@ -367,6 +370,9 @@ impl FloatModel {
             h.update(b"band");
             let [boundary] = op.boundaries();
             h.update(boundary.band.to_le_bytes());
+        }
+        if let Some(c) = &self.classes {
+            crate::train::class_model::hash_classes(&mut h, c);
         }
         lower_hex(&h.finalize()[..16])
     }
@@ -473,16 +479,22 @@ impl FloatModel {
         let probe: serde_json::Value = serde_json::from_str(text)
             .map_err(|e| fmt(format!("not a Linegate float model: {e}")))?;
         let (tag, version) = (probe.get("format"), probe.get("format_version"));
-        let known = [FORMAT_VERSION, SIGNAL_FORMAT_VERSION].map(u64::from);
+        let known = [
+            FORMAT_VERSION,
+            SIGNAL_FORMAT_VERSION,
+            crate::train::class_model::CLASS_FORMAT_VERSION,
+        ]
+        .map(u64::from);
         if tag.and_then(|t| t.as_str()) != Some(FORMAT)
             || !version
                 .and_then(|v| v.as_u64())
                 .is_some_and(|v| known.contains(&v))
         {
             return Err(fmt(format!(
-                "not a Linegate float model this build reads: format {} version {} (reads '{FORMAT}' versions {FORMAT_VERSION} and {SIGNAL_FORMAT_VERSION}; retrain to write it)",
+                "not a Linegate float model this build reads: format {} version {} (reads '{FORMAT}' versions {FORMAT_VERSION}, {SIGNAL_FORMAT_VERSION} and {}; retrain to write it)",
                 tag.map_or("none".into(), |t| t.to_string()),
-                version.map_or("none".into(), |v| v.to_string())
+                version.map_or("none".into(), |v| v.to_string()),
+                crate::train::class_model::CLASS_FORMAT_VERSION
             )));
         }
         // From the text, not the probe, so an unknown field is named with its line.
@@ -510,12 +522,16 @@ impl FloatModel {
                 "weights, bias and threshold must be finite numbers".into()
             ));
         }
-        if m.weights.iter().all(|&w| w == 0.0) {
+        if m.classes.is_some() {
+            crate::train::class_model::check_classes(&m).map_err(fmt)?;
+        } else if m.weights.iter().all(|&w| w == 0.0) {
             return Err(fmt(
                 "every weight is zero: the model has no direction to decide by".into(),
             ));
         }
-        let want = if m.signals.is_empty() {
+        let want = if m.classes.is_some() {
+            crate::train::class_model::CLASS_FORMAT_VERSION
+        } else if m.signals.is_empty() {
             FORMAT_VERSION
         } else {
             SIGNAL_FORMAT_VERSION

@@ -15,7 +15,11 @@
 //! the file that carries the trained model to the release step.
 
 pub mod c_choice;
+pub mod class_model;
+pub mod class_point;
 pub mod class_rows;
+pub mod class_train;
+pub mod crammer_singer;
 pub mod eval;
 pub mod extent;
 pub mod float_model;
@@ -25,6 +29,7 @@ pub mod linear;
 pub mod maxmargin;
 pub mod mistake_scan;
 pub mod novikoff;
+pub mod one_vs_rest;
 pub mod operating_point;
 pub mod perceptron;
 pub mod separability;

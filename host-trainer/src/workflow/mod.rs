@@ -408,6 +408,7 @@ pub fn train_model(
             .soft
             .clone()
             .map(|(objective, spread)| SoftMargin { objective, spread }),
+        classes: None,
     };
     let provenance = Provenance {
         training_log: InputFile {

@@ -46,6 +46,7 @@ fn clusters(n: usize, spread: f64, seed: u64) -> Dataset {
             })
             .collect(),
         go: Some(0),
+        declared: true,
     };
     ds
 }

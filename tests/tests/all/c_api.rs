@@ -47,7 +47,7 @@ fn c_header_is_the_one_cbindgen_generates() {
     }
 }
 
-fn tool(name: &str) -> Result<(), String> {
+pub(crate) fn tool(name: &str) -> Result<(), String> {
     Command::new(name)
         .arg("--version")
         .output()

@@ -69,6 +69,7 @@ fn audit_case(dir: &Path) {
             })
             .collect(),
         go: go.map(|g| g as u8),
+        declared: true,
     };
     let train = dataset(&case["train"], &classes);
     let holdout = dataset(&case["holdout"], &classes);

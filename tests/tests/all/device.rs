@@ -341,7 +341,7 @@ fn replay_lines(stdout: &str) -> Vec<&str> {
 /// different vectors: each builds and runs before the other builds.
 static SIGNAL_APP: std::sync::Mutex<()> = std::sync::Mutex::new(());
 
-fn on_every_core(
+pub(crate) fn on_every_core(
     folder: &str,
     vectors: &Path,
     blob: &Path,

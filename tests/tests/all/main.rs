@@ -4,9 +4,11 @@
 mod browser;
 mod c_api;
 mod classes_audit;
+mod classes_train;
 mod confidence;
 mod demo;
 mod device;
+mod device_classes;
 mod device_field;
 mod drift;
 mod features;

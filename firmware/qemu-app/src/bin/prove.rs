@@ -1,7 +1,9 @@
 //! Link-time proof of panic-freedom: the decode + classify + drive path for readings and for
 //! sample windows (`Station::with_windows`), the field statistics (plan, counting in every
 //! step, the record written, read back and reset), and every signal feature of a window with
-//! its noise bound, linked with `panic-never`, whose panic handler is an undefined
+//! its noise bound, the stations of several classes (readings, `Station::with_classes`,
+//! and windows, `Station::with_windows_and_classes`: blob versions 1 to 6, each row's
+//! score, the class decision, the class's name), linked with `panic-never`, whose panic handler is an undefined
 //! symbol. If any panic path survives optimisation, this binary fails to link.
 #![no_std]
 #![no_main]
@@ -101,6 +103,7 @@ fn observe_step(step: Step<()>) {
             observe(d.score as u32);
             observe((d.score >> 32) as u32);
             observe(d.verdict as u32);
+            observe(d.class.map_or(255, u32::from));
         }
         Step::Faulted { first, .. } => observe(if first { 10 } else { 11 }),
     }
@@ -148,6 +151,8 @@ fn main() -> ! {
     };
     let Ok(readings_lines) = lines();
     let Ok(window_lines) = lines();
+    let Ok(class_lines) = lines();
+    let Ok(class_window_lines) = lines();
     let mut station = Station::new(board::model_region(), Inputs, readings_lines);
     // The station with sample windows, on the same region: both input kinds are linked and
     // proved.
@@ -159,8 +164,20 @@ fn main() -> ! {
         Inputs,
         window_lines,
     );
+    // The stations of several classes, both input kinds.
+    let mut classes = Station::with_classes(board::model_region(), None, Inputs, class_lines);
+    let mut class_samples = [0i32; WINDOW];
+    let mut class_windows = Station::with_windows_and_classes(
+        board::model_region(),
+        None,
+        &mut class_samples,
+        Inputs,
+        class_window_lines,
+    );
     station.set_field_plan(plan());
     windows.set_field_plan(plan());
+    classes.set_field_plan(plan());
+    class_windows.set_field_plan(plan());
     let mut record = [0u8; shared_model::field::MAX_RECORD_LEN];
     loop {
         window_features();
@@ -168,6 +185,26 @@ fn main() -> ! {
         observe_step(step);
         let Ok(step) = windows.step();
         observe_step(step);
+        let Ok(step) = classes.step();
+        if let (Step::Decided(d), Ok(c)) = (step, classes.classifier()) {
+            let name = d.class.and_then(|k| c.class_name(k)).unwrap_or("");
+            observe(name.len() as u32 ^ u32::from(name.bytes().next().unwrap_or(0)));
+            // Every row's exact score, as the kernel gives them.
+            let mut raw = [0i32; shared_model::MAX_CHANNELS];
+            for r in raw.iter_mut() {
+                *r = outside();
+            }
+            let n = usize::try_from(outside()).unwrap_or(0);
+            let mut scores = [0i64; shared_model::MAX_CLASSES];
+            let rows = raw
+                .get(..n)
+                .map_or(Ok(0), |r| c.model().class_scores(r, &mut scores));
+            observe(rows.unwrap_or(99) as u32 ^ scores[0] as u32);
+        }
+        observe_step(step);
+        let Ok(step) = class_windows.step();
+        observe_step(step);
+        field_calls(classes.field(), &mut record);
         field_calls(station.field(), &mut record);
         let n = windows.field_record(&mut record).unwrap_or(0);
         observe(n as u32);
