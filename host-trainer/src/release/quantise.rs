@@ -64,6 +64,11 @@ pub enum QuantError {
     /// A channel name is too long for the blob.
     #[error("channel name '{0}' is longer than {max} bytes", max = shared_model::NAME_CAPACITY)]
     Name(String),
+    /// A step of the two-sided release was asked to take a model of several classes.
+    #[error(
+        "{0} takes a two-sided (GO / NO-GO) model; this model has several classes (audit it with `linegate audit`)"
+    )]
+    Classes(&'static str),
     /// A class name is too long for the blob.
     #[error("class name '{0}' is longer than {max} bytes; name the class shorter in the log's class list", max = shared_model::NAME_CAPACITY)]
     ClassName(String),

@@ -297,8 +297,15 @@ pub struct ReleaseOutcome {
 /// records the request's settings and the model's holdout split, and names the blob's bytes.
 ///
 /// # Errors
-/// [`QuantError`] from the quantiser.
+/// [`QuantError`] from the quantiser; [`QuantError::Classes`] for a model of several
+/// classes.
 pub fn release(req: &ReleaseRequest<'_>) -> Result<ReleaseOutcome, QuantError> {
+    // The two-sided quantiser would read a class model's unused weights: refused by name.
+    if req.fm.classes.is_some() {
+        return Err(QuantError::Classes(
+            "the two-sided release step (pack, demo)",
+        ));
+    }
     let done = release_applying(
         req.fm, req.train, req.others, req.qc, req.noise, req.ac, req.apply,
     )?;

@@ -333,31 +333,26 @@ fn audit_on_a_class_model_writes_its_reports_and_drift_refuses_it() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     demo(d);
-    let mut fm = FloatModel::read(&d.join("demo/model.json")).unwrap();
-    let (w, b) = (fm.weights.clone(), fm.bias - fm.threshold);
-    fm.classes = Some(FloatClasses {
-        rule: ClassRule::OneVsRest,
-        go: Some(0),
-        go_gap: 0.01,
-        class_gap: 0.01,
-        rows: vec![
-            ClassRowF {
-                name: "GO".into(),
-                weights: w.clone(),
-                bias: b,
-            },
-            ClassRowF {
-                name: "NO-GO".into(),
-                weights: w.iter().map(|v| -v).collect(),
-                bias: -b,
-            },
-            ClassRowF {
-                name: "crack".into(),
-                weights: vec![0.0; w.len()],
-                bias: -10.0,
-            },
+    let two = FloatModel::read(&d.join("demo/model.json")).unwrap();
+    let (w, b) = (two.weights.clone(), two.bias - two.threshold);
+    let names: Vec<String> = ["GO", "NO-GO", "crack"].map(String::from).to_vec();
+    let row = |w: Vec<f64>, b: f64| host_trainer::train::linear::Linear { w, b };
+    let fm = FloatModel::with_classes(
+        two.provenance.clone(),
+        two.channels.clone(),
+        two.signals.clone(),
+        ClassRule::OneVsRest,
+        Some(0),
+        &names,
+        &[
+            row(w.clone(), b),
+            row(w.iter().map(|v| -v).collect(), -b),
+            row(vec![0.0; w.len()], -10.0),
         ],
-    });
+        0.01,
+        0.01,
+        two.summary.clone(),
+    );
     std::fs::write(d.join("classes.json"), fm.to_json()).unwrap();
     let o = linegate(
         &[
@@ -420,6 +415,39 @@ fn audit_on_a_class_model_writes_its_reports_and_drift_refuses_it() {
     );
     let err = exits(&o, 2);
     assert!(err.contains("several classes"), "{err}");
+    // The project file's [gates] max_misroute, as the flag.
+    std::fs::write(
+        d.join("linegate.toml"),
+        "[gates]\nmax_misroute = \"2%@90%\"\n",
+    )
+    .unwrap();
+    let o = linegate(
+        &[
+            "-q",
+            "audit",
+            "--model",
+            "classes.json",
+            "--holdout",
+            "demo/holdout-synthetic.csv",
+            "--json",
+        ],
+        d,
+    );
+    let printed: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(
+        printed["audit"]["max_misroute"],
+        serde_json::json!({ "Upper": { "rate": 0.02, "confidence": 0.9 } })
+    );
+    std::fs::remove_file(d.join("linegate.toml")).unwrap();
+    // The two-sided release step (pack) refuses it by name rather than reading its unused
+    // weights.
+    let o = linegate(
+        &["-q", "pack", "--model", "classes.json", "-o", "c.lgmb"],
+        d,
+    );
+    let err = exits(&o, 2);
+    assert!(err.contains("several classes"), "{err}");
+    assert!(!d.join("c.lgmb").exists());
     // --max-misroute on a two-sided model is refused, not ignored.
     let o = linegate(
         &[
