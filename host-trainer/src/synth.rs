@@ -239,7 +239,7 @@ pub fn class_label(k: usize) -> String {
 /// The hidden class rows of `seed` (one weight vector per class, no bias) and the
 /// generator after them: a unit's class is the row of highest score.
 fn class_rows(channels: usize, classes: usize, seed: u64) -> (Vec<Vec<f64>>, ChaCha8Rng) {
-    let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0xc1a5_5e5);
+    let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0x0c1a_55e5);
     let rows = (0..classes)
         .map(|_| (0..channels).map(|_| rng.gen_range(-1.0..1.0)).collect())
         .collect();

@@ -233,7 +233,7 @@ impl TrainArgs {
                 c,
                 false_go_weight: *false_go_weight,
                 recheck_budget: *recheck_budget,
-                false_go_target: false_go_target.clone(),
+                false_go_target: *false_go_target,
                 no_operating_point: *no_operating_point,
                 folds: *folds,
                 output,

@@ -504,11 +504,11 @@ mod tests {
         let mut l = Vec::new();
         for n in 0..300 {
             l.push(if n < 12 {
-                lead(1, 0, 0.01 * (n + 1) as f64)
+                lead(1, 0, 0.01 * f64::from(n + 1))
             } else {
                 lead(1, 1, 1.0)
             });
-            l.push(lead(0, 0, 0.5 + 0.001 * n as f64));
+            l.push(lead(0, 0, 0.5 + 0.001 * f64::from(n)));
         }
         let g = choose_gaps(
             &l,

@@ -5,7 +5,7 @@
 use crate::error::InputError;
 use crate::ingest::dataset::Dataset;
 use crate::train::c_choice::{CPolicy, DEFAULT_C, search_sample};
-use crate::train::class_model::{ClassFigures, ClassSummary, JointFigures};
+use crate::train::class_file::{ClassFigures, ClassSummary, JointFigures};
 use crate::train::class_point::{
     ClassCounts, ClassTarget, Lead, MIN_GAP, choose_c, choose_gaps, leads, out_of_fold,
 };

@@ -193,7 +193,7 @@ pub struct TrainingSummary {
     pub soft_margin: Option<SoftMargin>,
     /// A model of several classes: each class's figures, the gaps, C, the joint objective.
     #[serde(default, skip_serializing_if = "Option::is_none")]
-    pub classes: Option<crate::train::class_model::ClassSummary>,
+    pub classes: Option<crate::train::class_file::ClassSummary>,
 }
 
 /// What the soft margin solved, for an outside solver to check.
@@ -372,7 +372,7 @@ impl FloatModel {
             h.update(boundary.band.to_le_bytes());
         }
         if let Some(c) = &self.classes {
-            crate::train::class_model::hash_classes(&mut h, c);
+            crate::train::class_file::hash_classes(&mut h, c);
         }
         lower_hex(&h.finalize()[..16])
     }
@@ -482,7 +482,7 @@ impl FloatModel {
         let known = [
             FORMAT_VERSION,
             SIGNAL_FORMAT_VERSION,
-            crate::train::class_model::CLASS_FORMAT_VERSION,
+            crate::train::class_file::CLASS_FORMAT_VERSION,
         ]
         .map(u64::from);
         if tag.and_then(|t| t.as_str()) != Some(FORMAT)
@@ -494,7 +494,7 @@ impl FloatModel {
                 "not a Linegate float model this build reads: format {} version {} (reads '{FORMAT}' versions {FORMAT_VERSION}, {SIGNAL_FORMAT_VERSION} and {}; retrain to write it)",
                 tag.map_or("none".into(), |t| t.to_string()),
                 version.map_or("none".into(), |v| v.to_string()),
-                crate::train::class_model::CLASS_FORMAT_VERSION
+                crate::train::class_file::CLASS_FORMAT_VERSION
             )));
         }
         // From the text, not the probe, so an unknown field is named with its line.
@@ -523,14 +523,17 @@ impl FloatModel {
             ));
         }
         if m.classes.is_some() {
-            crate::train::class_model::check_classes(&m).map_err(fmt)?;
+            if let Some(c) = &m.classes {
+                crate::train::class_file::check_classes(c, m.channels.len(), m.format_version)
+                    .map_err(fmt)?;
+            }
         } else if m.weights.iter().all(|&w| w == 0.0) {
             return Err(fmt(
                 "every weight is zero: the model has no direction to decide by".into(),
             ));
         }
         let want = if m.classes.is_some() {
-            crate::train::class_model::CLASS_FORMAT_VERSION
+            crate::train::class_file::CLASS_FORMAT_VERSION
         } else if m.signals.is_empty() {
             FORMAT_VERSION
         } else {

@@ -15,6 +15,7 @@
 //! the file that carries the trained model to the release step.
 
 pub mod c_choice;
+pub mod class_file;
 pub mod class_model;
 pub mod class_point;
 pub mod class_rows;
