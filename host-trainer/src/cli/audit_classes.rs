@@ -183,6 +183,11 @@ fn release(rel: &Release, quiet: bool) -> Result<(QuantisedClasses, ClassAudit)>
     );
     r.name_blob(&class_blob(&q, r.passed, rel.signer.as_ref()));
     r.command_line = Some(command_line());
+    if !quiet {
+        for note in &r.notes {
+            eprintln!("note: {note}");
+        }
+    }
     // Declared noise (by flag or recorded in the model) has no gate here yet: said in the
     // report and on stderr, never dropped in silence.
     let noisy: Vec<&str> = rel

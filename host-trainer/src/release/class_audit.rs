@@ -15,10 +15,10 @@ use crate::ingest::dataset::{Dataset, RawForm};
 use crate::release::blob_release::release_mark;
 use crate::release::class_gates::class_gates;
 use crate::release::class_tally::{
-    ClassLog, PairBounds, TIGHTEST_CLASSES, UnitCheck, check_unit, tally_classes,
+    ClassLog, TIGHTEST_CLASSES, UnitCheck, check_unit, tally_classes,
 };
 use crate::release::gates::{AuditConfig, Gate, Limit, reason};
-use crate::release::quantise_classes::QuantisedClasses;
+use crate::release::quantise_classes::{PairBounds, QuantisedClasses};
 use crate::train::class_rows::FloatClasses;
 use crate::train::float_model::FloatModel;
 
@@ -169,7 +169,9 @@ pub fn audit_classes(
     cfg: AuditConfig,
     misroute: Limit,
 ) -> ClassAudit {
-    let pairs = PairBounds::of(q);
+    // The float rule at the device's gaps: both decide at the same edges.
+    let fc = &q.float_rule(fc);
+    let pairs = q.pairs.clone();
     let all: Vec<(&str, &Dataset)> = std::iter::once(("train", train))
         .chain(others.iter().copied())
         .collect();
@@ -254,7 +256,15 @@ pub fn audit_classes(
         baseline: None,
         baseline_note: NO_BASELINE,
         command_line: None,
-        notes: Vec::new(),
+        notes: q
+            .raised
+            .iter()
+            .map(|(what, from, to)| {
+                format!(
+                    "{what} raised from {from} to {to} accumulator units: just above the widest rounding bound of the pairs it decides, so a unit the float rule leaves tied stays RECHECK on the device; the float rule is held to the same gaps"
+                )
+            })
+            .collect(),
     };
     r.name_blob(&class_blob(q, r.passed, None));
     r
@@ -343,7 +353,8 @@ pub fn write_class_units_csv(
     fc: &FloatClasses,
     sets: &[(&str, &Dataset)],
 ) -> std::io::Result<()> {
-    let pairs = PairBounds::of(q);
+    let fc = &q.float_rule(fc);
+    let pairs = q.pairs.clone();
     writeln!(
         w,
         "set,line,unit,class,float,float_lead_lsb,device,device_class,device_lead,margin_multiple,proved"

@@ -21,60 +21,14 @@ use shared_model::limits::MAX_CLASSES;
 
 use crate::confidence::{DEFAULT_CONFIDENCE, Rate};
 use crate::ingest::dataset::{Dataset, RawForm};
-use crate::release::bound::{MARGIN_BINS, bound_of, input_maxima, margin_bin, margin_bin_edges};
-use crate::release::quantise_classes::QuantisedClasses;
+use crate::release::bound::{MARGIN_BINS, margin_bin, margin_bin_edges};
+use crate::release::quantise_classes::{PairBounds, QuantisedClasses};
 use crate::train::class_rows::FloatClasses;
 
 /// Units listed as the tightest of each log.
 pub const TIGHTEST_CLASSES: usize = 20;
 /// Units listed at most as flips (every flip is counted).
 const FLIPS_LISTED: usize = 100;
-
-/// The rounding bound of every pair of rows' score difference, in accumulator LSB.
-#[derive(Clone, Debug, PartialEq, Serialize)]
-pub struct PairBounds {
-    /// Classes.
-    pub classes: usize,
-    /// `bounds[a][b]`: the bound of row a minus row b (symmetric, 0 on the diagonal).
-    pub bounds: Vec<Vec<f64>>,
-}
-
-impl PairBounds {
-    /// The bounds of a quantised model's pairs of rows (`bound.rs`'s bound of each
-    /// difference row).
-    pub fn of(q: &QuantisedClasses) -> Self {
-        let xmax = input_maxima(&q.fixed, &q.kappa);
-        let k = q.class_count();
-        let bounds = (0..k)
-            .map(|a| (0..k).map(|b| pair_bound(q, &xmax, a, b)).collect())
-            .collect();
-        Self { classes: k, bounds }
-    }
-}
-
-/// The bound of row `a` minus row `b` (0 for a row against itself).
-fn pair_bound(q: &QuantisedClasses, xmax: &[f64], a: usize, b: usize) -> f64 {
-    let (Some(ra), Some(rb)) = (q.section.rows.get(a), q.section.rows.get(b)) else {
-        return 0.0;
-    };
-    if a == b {
-        return 0.0;
-    }
-    let w: Vec<f64> = ra
-        .weights
-        .iter()
-        .zip(&rb.weights)
-        .map(|(x, y)| f64::from(*x) - f64::from(*y))
-        .collect();
-    let ideal: Vec<f64> = q.ideal_weights[a]
-        .iter()
-        .zip(&q.ideal_weights[b])
-        .map(|(x, y)| x - y)
-        .collect();
-    let bias = ra.bias as f64 - rb.bias as f64;
-    let ideal_bias = q.ideal_bias[a] - q.ideal_bias[b];
-    bound_of(&w, &ideal, xmax, bias, ideal_bias).total
-}
 
 /// What one unit came to.
 #[derive(Clone, Copy, Debug, PartialEq)]

@@ -8,14 +8,20 @@
 //! rounded to nearest, ties to even ([`to_q`]); no ±1 LSB search (the class proof is per
 //! pair of rows, and a move that helps one pair can hurt another). The gaps become
 //! accumulator units rounded up, at least 1: the device decides a class only where the
-//! float rule's lead, scaled, reaches the gap. The fixed model's own weights and bias are
+//! float rule's lead, scaled, reaches the gap. Each gap is then raised, where it is
+//! smaller, to just above the widest rounding bound of the pairs of rows it decides
+//! ([`PairBounds`]): a unit the float rule leaves tied (lead 0) can lead by up to that bound
+//! on the device, and must stay RECHECK there too. The audit names every raise and holds
+//! the device to the float rule at the device's own gaps ([`QuantisedClasses::float_rule`]). The fixed model's own weights and bias are
 //! zero and its thresholds −1/0 (unused by a model of several classes). The model is
 //! validated with its section (`CheckedModel::with_outcomes`): rows, names, gaps, and that
 //! twice the widest row's bound fits the accumulator.
 
+use serde::Serialize;
 use shared_model::classes::{ClassRow, ClassSection, NO_GO_CLASS};
 use shared_model::{AuditMark, CheckedModel, Decision, Fault, FixedModel, Readings};
 
+use crate::release::bound::{bound_of, input_maxima};
 use crate::release::quantise::{QuantConfig, QuantError, to_q};
 use crate::release::words::{channel_specs, conversions, word_scale};
 use crate::train::class_rows::FloatClasses;
@@ -45,6 +51,10 @@ pub struct QuantisedClasses {
     pub ideal_class_gap: f64,
     /// Bits the largest difference of two rows' scores needs (sign included).
     pub needed_bits: u8,
+    /// The rounding bound of every pair of rows.
+    pub pairs: PairBounds,
+    /// Gaps the quantiser raised to the rounding floor (what, from, to; accumulator units).
+    pub raised: Vec<(&'static str, i64, i64)>,
 }
 
 impl QuantisedClasses {
@@ -73,6 +83,100 @@ impl QuantisedClasses {
     pub fn class_count(&self) -> usize {
         self.section.rows.len()
     }
+
+    /// The float rule at the device's gaps (each gap in accumulator units over A): the rule
+    /// the audit holds the device to, so that both decide at the same edges.
+    pub fn float_rule(&self, fc: &FloatClasses) -> FloatClasses {
+        FloatClasses {
+            go_gap: self.section.go_gap as f64 / self.scale,
+            class_gap: self.section.class_gap as f64 / self.scale,
+            ..fc.clone()
+        }
+    }
+}
+
+/// The rounding bound of every pair of rows' score difference, in accumulator LSB.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct PairBounds {
+    /// Classes.
+    pub classes: usize,
+    /// `bounds[a][b]`: the bound of row a minus row b (symmetric, 0 on the diagonal).
+    pub bounds: Vec<Vec<f64>>,
+}
+
+impl PairBounds {
+    /// The bounds of a quantised model's pairs of rows (`bound.rs`'s bound of each
+    /// difference row).
+    pub fn of(q: &QuantisedClasses) -> Self {
+        Self::of_rows(
+            &q.fixed,
+            &q.kappa,
+            &q.section,
+            &q.ideal_weights,
+            &q.ideal_bias,
+        )
+    }
+
+    /// The bounds of rows `section` (ideal values beside them) over `fixed`'s channels.
+    fn of_rows(
+        fixed: &FixedModel,
+        kappa: &[f64],
+        section: &ClassSection,
+        ideal_weights: &[Vec<f64>],
+        ideal_bias: &[f64],
+    ) -> Self {
+        let xmax = input_maxima(fixed, kappa);
+        let k = section.rows.len();
+        let bounds = (0..k)
+            .map(|a| {
+                (0..k)
+                    .map(|b| pair_bound(section, ideal_weights, ideal_bias, &xmax, a, b))
+                    .collect()
+            })
+            .collect();
+        Self { classes: k, bounds }
+    }
+
+    /// The largest bound of a pair that holds class `a` (any pair for `None`).
+    fn widest(&self, a: Option<usize>) -> f64 {
+        self.bounds
+            .iter()
+            .enumerate()
+            .filter(|&(k, _)| a.is_none_or(|a| a == k))
+            .flat_map(|(_, row)| row.iter().copied())
+            .fold(0.0, f64::max)
+    }
+}
+
+/// The bound of row `a` minus row `b` (0 for a row against itself).
+fn pair_bound(
+    section: &ClassSection,
+    ideal_weights: &[Vec<f64>],
+    ideal_bias: &[f64],
+    xmax: &[f64],
+    a: usize,
+    b: usize,
+) -> f64 {
+    let (Some(ra), Some(rb)) = (section.rows.get(a), section.rows.get(b)) else {
+        return 0.0;
+    };
+    if a == b {
+        return 0.0;
+    }
+    let w: Vec<f64> = ra
+        .weights
+        .iter()
+        .zip(&rb.weights)
+        .map(|(x, y)| f64::from(*x) - f64::from(*y))
+        .collect();
+    let ideal: Vec<f64> = ideal_weights[a]
+        .iter()
+        .zip(&ideal_weights[b])
+        .map(|(x, y)| x - y)
+        .collect();
+    let bias = ra.bias as f64 - rb.bias as f64;
+    let ideal_bias = ideal_bias[a] - ideal_bias[b];
+    bound_of(&w, &ideal, xmax, bias, ideal_bias).total
 }
 
 /// Quantises the classes of `fm` (see the module docs).
@@ -146,6 +250,24 @@ pub fn quantise_classes(fm: &FloatModel, cfg: QuantConfig) -> Result<QuantisedCl
             fixed.acc_bits
         )));
     }
+    let mut section = section;
+    let pairs = PairBounds::of_rows(&fixed, &kappa, &section, &ideal_weights, &ideal_bias);
+    // The rounding floor: a gap inside a pair's rounding bound would let the device decide
+    // units the float rule leaves tied (a lead of 0 rounds to up to the bound). Each gap is
+    // raised above the widest bound of the pairs it decides, and the audit says so.
+    let mut raised = Vec::new();
+    let go = fc.go;
+    let mut floor = |what: &'static str, gap: &mut i64, widest: f64| {
+        let least = widest.floor() as i64 + 1;
+        if *gap < least {
+            raised.push((what, *gap, least));
+            *gap = least;
+        }
+    };
+    if go.is_some() {
+        floor("GO gap", &mut section.go_gap, pairs.widest(go));
+    }
+    floor("class gap", &mut section.class_gap, pairs.widest(None));
     let model = CheckedModel::with_outcomes(fixed.clone(), Readings, section.clone())?;
     Ok(QuantisedClasses {
         model,
@@ -158,6 +280,8 @@ pub fn quantise_classes(fm: &FloatModel, cfg: QuantConfig) -> Result<QuantisedCl
         ideal_go_gap: fc.go_gap * scale,
         ideal_class_gap: fc.class_gap * scale,
         needed_bits,
+        pairs,
+        raised,
     })
 }
 

@@ -5,9 +5,9 @@ use host_trainer::ingest::classes::{Class, Classes};
 use host_trainer::ingest::dataset::Dataset;
 use host_trainer::release::class_audit::{ClassAudit, audit_classes, write_class_units_csv};
 use host_trainer::release::class_gates::DEFAULT_MISROUTE;
-use host_trainer::release::class_tally::PairBounds;
 use host_trainer::release::gates::{AuditConfig, Limit};
 use host_trainer::release::quantise::{QuantConfig, QuantError};
+use host_trainer::release::quantise_classes::PairBounds;
 use host_trainer::release::quantise_classes::{QuantisedClasses, quantise_classes};
 use host_trainer::report;
 use host_trainer::train::class_rows::{ClassRowF, ClassRule, FloatClasses};
@@ -439,15 +439,42 @@ fn audit_on_a_class_model_writes_its_reports_and_drift_refuses_it() {
         serde_json::json!({ "Upper": { "rate": 0.02, "confidence": 0.9 } })
     );
     std::fs::remove_file(d.join("linegate.toml")).unwrap();
-    // The two-sided release step (pack) refuses it by name rather than reading its unused
-    // weights.
-    let o = linegate(
-        &["-q", "pack", "--model", "classes.json", "-o", "c.lgmb"],
-        d,
+    // pack writes the class model's blob (version 5), the one the audit record names; a
+    // release with other words is refused against that record, nothing written.
+    let pack = |extra: &[&str], out: &str| {
+        let mut args = vec![
+            "-q",
+            "pack",
+            "--model",
+            "classes.json",
+            "--holdout",
+            "demo/holdout-synthetic.csv",
+            "--override-audit",
+            "--max-misroute",
+            "0",
+            "--audited",
+            "out",
+            "-o",
+            out,
+        ];
+        args.extend_from_slice(extra);
+        linegate(&args, d)
+    };
+    exits(&pack(&[], "c.lgmb"), 0);
+    let blob = std::fs::read(d.join("c.lgmb")).unwrap();
+    assert_eq!(u16::from_le_bytes([blob[4], blob[5]]), 5, "version 5");
+    assert_eq!(
+        shared_model::blob::blob_id(&blob).map(|id| format!("{id:08x}")),
+        Some(json["blob_id"].as_str().unwrap().to_string()),
+        "the blob the audit named"
     );
-    let err = exits(&o, 2);
-    assert!(err.contains("several classes"), "{err}");
-    assert!(!d.join("c.lgmb").exists());
+    exits(
+        &linegate(&["-q", "inspect", "c.lgmb", "--model", "classes.json"], d),
+        0,
+    );
+    let err = exits(&pack(&["--weight-bits", "8"], "c8.lgmb"), 1);
+    assert!(err.contains("not the audited release"), "{err}");
+    assert!(!d.join("c8.lgmb").exists());
     // --max-misroute on a two-sided model is refused, not ignored.
     let o = linegate(
         &[
