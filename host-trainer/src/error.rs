@@ -199,7 +199,7 @@ pub enum InputError {
     },
     /// The label cell is not a known GO or NO-GO token.
     #[error(
-        "{path}: {at}, column '{column}': unknown label '{value}' ({tokens}; set --go-labels / --nogo-labels)", column = shown(.column))]
+        "{path}: {at}, column '{column}': unknown label '{value}' ({tokens})", column = shown(.column))]
     UnknownLabel {
         /// File.
         path: PathBuf,
@@ -209,7 +209,7 @@ pub enum InputError {
         column: String,
         /// The cell.
         value: String,
-        /// The accepted tokens, as `GO: …; NO-GO: …`.
+        /// The accepted tokens, as `GO: …; NO-GO: …`, and the flags that map more.
         tokens: String,
     },
     /// The label cell is a number or boolean that no stated mapping covers.

@@ -122,7 +122,7 @@ const KEYS: &[Key] = &[
     key("gates", "max_false_go", "max_false_go", RELEASE, Kind::Value, "e.g. 0, \"0.1%\" or \"1%@95%\""),
     key("gates", "max_false_nogo", "max_false_nogo", RELEASE, Kind::Value, "e.g. \"1%\" or \"2%@95%\""),
     key("gates", "max_recheck", "max_recheck", RELEASE, Kind::Value, "e.g. \"5%\""),
-    key("gates", "max_misroute", "max_misroute", &["audit"], Kind::Value, "a model of several classes: failure units decided another failure class, e.g. \"1%\""),
+    key("gates", "max_misroute", "max_misroute", RELEASE, Kind::Value, "a model of several classes: failure units decided another failure class, e.g. \"1%\""),
     key("gates", "max_flips", "max_flips", RELEASE, Kind::Value, "most flipped decisions"),
     key("gates", "min_margin_lsb", "min_margin_lsb", RELEASE, Kind::Value, "smallest fixed margin, LSB"),
     key("gates", "require_guarantee", "no_require_guarantee", RELEASE, Kind::Switch { when: false }, "false: the rounding guarantee is not required"),

@@ -172,7 +172,10 @@ impl ClassSection {
                 .iter()
                 .take(k)
                 .any(|r| r.name.as_bytes() == row.name.as_bytes());
-            if row.name.is_empty() || named_before {
+            // One word of printable ASCII without `#`: the device prints the name last on
+            // its line, and `#` starts a line's comment.
+            let printable = row.name.bytes().all(|b| b.is_ascii_graphic() && b != b'#');
+            if row.name.is_empty() || named_before || !printable {
                 return Err(ModelError::ClassName { class });
             }
             if row.weights.len() != model.channels.len() {

@@ -76,7 +76,8 @@ pub enum ModelError {
         /// Channel index.
         channel: u8,
     },
-    /// A class name is empty or repeats an earlier class's name.
+    /// A class name is empty, repeats an earlier class's name, or is not printable ASCII
+    /// without spaces and `#`.
     ClassName {
         /// Class index.
         class: u8,
@@ -155,7 +156,7 @@ impl fmt::Display for ModelError {
             ),
             Self::ClassName { class } => write!(
                 f,
-                "class {class}: its name is empty or repeats another class's"
+                "class {class}: its name is empty, repeats another class's, or is not one word of printable ASCII without '#'"
             ),
             Self::GoClass(k) => write!(f, "GO class {k} names no class row"),
             Self::ClassGap => f.write_str("class gaps must be at least 1"),

@@ -87,6 +87,41 @@ fn parse_delimiter(s: &str) -> Result<u8, String> {
 }
 
 impl LogArgs {
+    /// Refuses `--class`/`--go-class` for a model whose classes they are not: a two-sided
+    /// model, or another list of names, another order or another GO class (the labels
+    /// would be coded in another order than the model's rows). Tokens may differ: a field
+    /// log may spell its labels otherwise.
+    fn same_classes_as(&self, fm: &FloatModel, path: &std::path::Path) -> Result<()> {
+        let Some(given) = self.declared_classes()? else {
+            return Ok(());
+        };
+        let Some(fc) = &fm.classes else {
+            anyhow::bail!(
+                "--class: {} is a two-sided (GO / NO-GO) model; --class applies to a model of several classes (map labels with --go-labels / --nogo-labels)",
+                path.display()
+            );
+        };
+        let names: Vec<&str> = given.names().collect();
+        let model: Vec<&str> = fc.rows.iter().map(|r| r.name.as_str()).collect();
+        let go = given.go.map(usize::from);
+        if names != model || go != fc.go {
+            let go_name = |g: Option<usize>, n: &[&str]| {
+                g.and_then(|k| n.get(k).copied())
+                    .unwrap_or("none")
+                    .to_string()
+            };
+            anyhow::bail!(
+                "--class/--go-class name the classes {} (GO: {}), but {} decides between {} (GO: {}), in that order; give its classes in its order, or leave --class out to read with the model's",
+                names.join(", "),
+                go_name(go, &names),
+                path.display(),
+                model.join(", "),
+                go_name(fc.go, &model)
+            );
+        }
+        Ok(())
+    }
+
     /// The classes `--class` and `--go-class` declare (`None` without `--class`).
     ///
     /// # Errors
@@ -141,16 +176,21 @@ impl LogArgs {
     /// The reader options for a log the model `fm` (read from `path`) reads: what these
     /// flags say, and where they say nothing, how the model's training log was read (each
     /// value so taken is added to `settings` with the model as its source).
+    ///
+    /// # Errors
+    /// `--class`/`--go-class` that are not the model's classes (names, order, GO class):
+    /// the labels would be coded in another order than the model's rows.
     pub fn options_for_model(
         &self,
         quiet: bool,
         fm: &FloatModel,
         path: &std::path::Path,
         settings: &mut Vec<Setting>,
-    ) -> LogOptions {
+    ) -> Result<LogOptions> {
+        self.same_classes_as(fm, path)?;
         let mut o = self.options(quiet);
         let Some(rw) = &fm.provenance.read_with else {
-            return o;
+            return Ok(o);
         };
         let mut took = |flag: &str, value: Vec<String>| {
             settings.retain(|s| s.flag != flag);
@@ -225,7 +265,7 @@ impl LogArgs {
             o.decimal_comma = Some(true);
             took("--decimal-comma", vec!["true".into()]);
         }
-        o
+        Ok(o)
     }
 }
 
@@ -436,7 +476,7 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
     }
     let mut opts = r
         .log_args
-        .options_for_model(quiet, &fm, model_path, &mut settings);
+        .options_for_model(quiet, &fm, model_path, &mut settings)?;
     opts.keep_times = fm
         .provenance
         .holdout_split

@@ -9,6 +9,7 @@ use super::audit::AuditArgs;
 use super::pack::PackArgs;
 use super::{CheckFailed, to_json};
 use host_trainer::output::OutputSet;
+use host_trainer::release::audit_record::{AuditRecord, Release as Record};
 use host_trainer::release::class_audit::{
     ClassAudit, audit_classes, class_blob, write_class_units_csv,
 };
@@ -73,8 +74,8 @@ pub fn run(args: &AuditArgs, rel: &Release, quiet: bool) -> Result<()> {
 /// `linegate pack` of a model of several classes: the same release as [`run`]'s, then the
 /// blob (version 5, or 6 signed) written only if the audit passed (or `--override-audit`,
 /// recorded in the blob). With `--audited`, the record must be a class audit of the same
-/// model whose blob is byte for byte this one (its SHA-256 covers the rows, gaps, mark and
-/// signature).
+/// release: the same model, logs (SHA-256), settings of the release flags and blob bytes
+/// (the two-sided audit's comparison, `AuditRecord::differences_of`).
 pub fn pack(args: &PackArgs, rel: &Release, quiet: bool, output: &std::path::Path) -> Result<()> {
     let (q, r) = release(rel, quiet)?;
     if !r.passed && !args.override_audit {
@@ -87,28 +88,17 @@ pub fn pack(args: &PackArgs, rel: &Release, quiet: bool, output: &std::path::Pat
         } else {
             given.clone()
         };
-        let record = ClassRecord::read(&path)?;
-        let mut differs = Vec::new();
-        if record.kind != "classes" {
-            differs.push("the record is a two-sided audit".to_string());
+        if !path.exists() {
+            anyhow::bail!(
+                "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",
+                path.display()
+            );
         }
-        if record.model_id != rel.fm.model_id {
-            differs.push(format!(
-                "model id {} (audited {})",
-                rel.fm.model_id, record.model_id
-            ));
-        }
-        if record.blob_sha256 != r.blob_sha256 {
-            differs.push(format!(
-                "blob SHA-256 {} (audited {}): word lengths, gaps, signing key or audit outcome differ",
-                r.blob_sha256, record.blob_sha256
-            ));
-        }
-        if !differs.is_empty() {
+        let record = AuditRecord::read(&path)?;
+        if record.kind.as_deref() != Some("classes") {
             return Err(CheckFailed(format!(
-                "{}: this is not the audited release, nothing written; what differs: {}",
-                path.display(),
-                differs.join("; ")
+                "{}: the record is a two-sided audit, and this model decides between several classes; nothing written",
+                path.display()
             ))
             .into());
         }
@@ -120,42 +110,40 @@ pub fn pack(args: &PackArgs, rel: &Release, quiet: bool, output: &std::path::Pat
             ))
             .into());
         }
+        let sets: Vec<(String, String)> = r
+            .sets
+            .iter()
+            .map(|s| (s.name.clone(), s.sha256.clone()))
+            .collect();
+        let now = Record {
+            settings: &r.settings,
+            model_id: &r.model_id,
+            sets: &sets,
+            key_id: r.key_id.as_deref(),
+            blob_sha256: &r.blob_sha256,
+        };
+        let differs = record.differences_of(&now, &super::pack::release_flags());
+        if !differs.is_empty() {
+            return Err(CheckFailed(format!(
+                "{}: this is not the audited release, nothing written; what differs: {}. Run the audit again with these settings, or pack with the audit's",
+                path.display(),
+                differs.join("; ")
+            ))
+            .into());
+        }
+        if !quiet {
+            eprintln!(
+                "the blob is the one the audit {} passed (same model, logs, settings and SHA-256 {})",
+                path.display(),
+                r.blob_sha256
+            );
+        }
     } else if !quiet {
         eprintln!(
             "note: no audit record given (--audited, or [outputs] audit_dir in the project file): pack audited the model itself with the settings above"
         );
     }
     super::pack::write_blob(args, output, &blob, r.passed, &rel.fm.model_id, quiet)
-}
-
-/// What `pack --audited` reads of a class audit's audit.json.
-#[derive(serde::Deserialize)]
-struct ClassRecord {
-    #[serde(default)]
-    kind: String,
-    model_id: String,
-    blob_sha256: String,
-    passed: bool,
-    #[serde(default)]
-    reasons: Vec<String>,
-}
-
-impl ClassRecord {
-    fn read(path: &std::path::Path) -> Result<Self> {
-        if !path.exists() {
-            anyhow::bail!(
-                "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",
-                path.display()
-            );
-        }
-        let text = std::fs::read_to_string(path)?;
-        serde_json::from_str(&text).map_err(|e| {
-            anyhow::anyhow!(
-                "{}: not an audit record of a model of several classes: {e}",
-                path.display()
-            )
-        })
-    }
 }
 
 /// Quantises and audits a model of several classes as `audit` and `pack` both do,
@@ -168,6 +156,14 @@ fn release(rel: &Release, quiet: bool) -> Result<(QuantisedClasses, ClassAudit)>
     if rel.apply.recommended_format || rel.apply.suggested_band {
         anyhow::bail!(
             "--apply-… is not available for a model of several classes yet; give the word lengths with --weight-bits/--input-bits"
+        );
+    }
+    // The class audit's margin is its proof (every unit's distance to a decision edge
+    // against its pair's rounding bound): a margin in LSB is not a gate it has yet.
+    if (rel.ac.min_margin_lsb - 1.0).abs() > 0.0 {
+        anyhow::bail!(
+            "--min-margin-lsb {} is not available for a model of several classes yet: its audit gates the rounding proof (every unit proved; --no-require-guarantee lifts it)",
+            rel.ac.min_margin_lsb
         );
     }
     let q = quantise_classes(&rel.fm, rel.qc)?;
@@ -183,6 +179,7 @@ fn release(rel: &Release, quiet: bool) -> Result<(QuantisedClasses, ClassAudit)>
     );
     r.name_blob(&class_blob(&q, r.passed, rel.signer.as_ref()));
     r.command_line = Some(command_line());
+    r.settings = rel.settings.clone();
     if !quiet {
         for note in &r.notes {
             eprintln!("note: {note}");

@@ -65,12 +65,40 @@ impl CheckArgs {
             super::warn_skipped(&ds.name(), &ds.skipped);
             super::warn_sheet(log, &ds, sheet.as_ref());
         }
+        // With declared classes the test is the GO class against every failure class
+        // together (the boundary a false GO crosses); said, never implied.
+        if ds.classes.declared {
+            let Some(go) = ds.classes.go else {
+                anyhow::bail!(
+                    "{}: check tests GO units against failure units, and --go-class none names no GO class; train with --class-rule joint to see how the classes separate",
+                    log.display()
+                );
+            };
+            let names: Vec<&str> = ds.classes.names().collect();
+            let others: Vec<&str> = names
+                .iter()
+                .enumerate()
+                .filter(|&(k, _)| k != usize::from(go))
+                .map(|(_, n)| *n)
+                .collect();
+            if !quiet && !*json {
+                say!(
+                    "classes: GO ({}) against every failure class together ({}); the failure classes among themselves are not tested",
+                    names[usize::from(go)],
+                    others.join(", ")
+                );
+            }
+        }
         let figures = Figures {
             margin: true,
             novikoff: *novikoff,
             perceptron: *novikoff,
         };
-        let r = separability::check_with(&ds, &ds.all(), *epochs, *seed, figures, None);
+        // The GO-vs-rest view: +1 for GO, −1 for every other class (a unit's class code is
+        // −1, −2… for the failure classes, and the test reads signs).
+        let signs: Vec<i8> = ds.labels.iter().map(|l| l.signum()).collect();
+        let task = host_trainer::train::task::Binary::new(&ds, &signs, "GO");
+        let r = separability::check_with(&task, &ds.all(), *epochs, *seed, figures, None);
         if *json {
             say_raw!("{}", to_json(&r));
         } else if !quiet {

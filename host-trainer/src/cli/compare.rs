@@ -204,7 +204,7 @@ impl CompareArgs {
             keep_times: true,
             ..self
                 .log_args
-                .options_for_model(quiet, fm, model_path, settings)
+                .options_for_model(quiet, fm, model_path, settings)?
         };
         Ok(Release {
             fm,

@@ -227,7 +227,9 @@ impl DriftArgs {
         let opts = LogOptions {
             label_optional: true,
             digest: false,
-            ..self.log_args.options_for_model(quiet, &fm, model, settings)
+            ..self
+                .log_args
+                .options_for_model(quiet, &fm, model, settings)?
         };
         let mut run = FieldRun::new(
             audit.baseline.plan.field_plan(),

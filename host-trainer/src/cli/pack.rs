@@ -160,7 +160,7 @@ pub fn write_blob(
 /// share): `pack` compares their values with the audit's. Files are left to their
 /// contents: the model's id, each log's SHA-256 and the blob's (key included) are compared
 /// themselves, so `logs/a.csv` and `./logs/a.csv` are the same log.
-fn release_flags() -> Vec<String> {
+pub(super) fn release_flags() -> Vec<String> {
     use clap::Args as _;
     const FILES: &[&str] = &["model", "train", "holdout", "validate", "sign"];
     ReleaseArgs::augment_args(clap::Command::new("release"))

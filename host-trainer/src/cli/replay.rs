@@ -125,7 +125,7 @@ impl ReplayArgs {
             keep_times: true,
             ..self
                 .log_args
-                .options_for_model(quiet, &fm, model, &mut settings)
+                .options_for_model(quiet, &fm, model, &mut settings)?
         };
         // A bench log or a signal log, as the float model says; the vectors hold each
         // unit's reading channels' raw readings and then every signal's window, as the

@@ -95,6 +95,13 @@ impl ClassRun<'_> {
             progress: !quiet,
         };
         let mut out = train_classes(&ds, sheet.as_ref().map(|(_, f)| f), &req)?;
+        // The release of a model of several classes takes readings only (its quantiser
+        // refuses feature channels): refused here, before a model file is written.
+        if !out.model.signals.is_empty() {
+            anyhow::bail!(
+                "a model of several classes over signal features cannot be released yet (audit and pack take readings only); train it on a bench log of the features' values"
+            );
+        }
         if !quiet {
             for n in &out.notes {
                 eprintln!("note: {n}");

@@ -97,7 +97,7 @@ impl ValuesArgs {
             digest: false,
             ..self
                 .log_args
-                .options_for_model(quiet, &fm, model_path, &mut settings)
+                .options_for_model(quiet, &fm, model_path, &mut settings)?
         };
         let sel = Selection {
             units: self.units.clone(),
@@ -141,6 +141,12 @@ impl ValuesArgs {
         let id = host_trainer::digest::lower_hex(&model.model().model_id);
         match model_line {
             Some(line) => line.to_string(),
+            // A class model's rows are rounded plainly, as its blob's are; its score is
+            // the leading class's lead over the runner-up.
+            None if model.classes().is_some() => format!(
+                "# model {id}, no blob: the classes quantised as a blob at {}-bit inputs, {}-bit weights holds them; score = the leading class's lead over the runner-up",
+                self.input_bits, self.weight_bits
+            ),
             None => format!(
                 "# model {id}, no blob: the float model quantised plainly ({}-bit inputs, {}-bit weights); a packed blob's weights may differ by 1 LSB: give --blob for its exact scores",
                 self.input_bits, self.weight_bits

@@ -76,7 +76,8 @@ impl GoClass {
 /// One `--class NAME=TOKEN[,TOKEN…]` value: the name and its tokens, lower case.
 ///
 /// # Errors
-/// No `=`, an empty name or token, or a name beyond [`MAX_CLASS_NAME`] bytes.
+/// No `=`, an empty name or token, a name beyond [`MAX_CLASS_NAME`] bytes, a name that is
+/// not one word of printable ASCII without `#`, or the name RECHECK or FAULT.
 pub fn parse_class(s: &str) -> Result<Class, String> {
     let Some((name, tokens)) = s.split_once('=') else {
         return Err(format!(
@@ -88,6 +89,21 @@ pub fn parse_class(s: &str) -> Result<Class, String> {
         return Err(format!(
             "'{s}': a class name is 1 to {MAX_CLASS_NAME} bytes (the device keeps that many); '{name}' is {}",
             name.len()
+        ));
+    }
+    // The device prints the name as the last word of its line: one word of printable
+    // ASCII, no `#` (where a line's comment starts), and not a word a line already uses.
+    if !name.bytes().all(|b| b.is_ascii_graphic() && b != b'#') {
+        return Err(format!(
+            "'{s}': a class name is one word of printable ASCII without '#' (the device prints it at the end of its line), e.g. SHORT or bearing_2"
+        ));
+    }
+    if ["RECHECK", "FAULT"]
+        .iter()
+        .any(|w| name.eq_ignore_ascii_case(w))
+    {
+        return Err(format!(
+            "'{s}': {name} is a word the device's lines use for an outcome; name the class otherwise"
         ));
     }
     let tokens: Vec<String> = tokens.split(',').map(|t| t.trim().to_lowercase()).collect();
@@ -239,6 +255,15 @@ impl Classes {
     /// The classes' names, in order.
     pub fn names(&self) -> impl Iterator<Item = &str> {
         self.list.iter().map(|c| c.name.as_str())
+    }
+
+    /// How a user maps another label token: the flags of this kind of class list.
+    pub fn how_to_map(&self) -> &'static str {
+        if self.declared {
+            "give each class its tokens: --class NAME=TOKEN,TOKEN"
+        } else {
+            "set --go-labels / --nogo-labels"
+        }
     }
 
     /// The accepted tokens, as error messages list them (`GO: go, pass; NO-GO: fail`).

@@ -340,7 +340,7 @@ pub(super) fn label_cell(
                 at,
                 column: column.to_string(),
                 value: cell_text(token),
-                tokens: classes.tokens(),
+                tokens: format!("{}; {}", classes.tokens(), classes.how_to_map()),
             },
         }
     })

@@ -173,10 +173,11 @@ impl Open {
                         format!("column '{}': label '{}': {hint}", cols.names[c], text(cell))
                     }
                     None => format!(
-                        "column '{}': unknown label '{}' ({}; set --go-labels / --nogo-labels)",
+                        "column '{}': unknown label '{}' ({}; {})",
                         cols.names[c],
                         text(cell),
-                        classes.tokens()
+                        classes.tokens(),
+                        classes.how_to_map()
                     ),
                 })?;
                 match self.label {

@@ -12,6 +12,9 @@ use crate::release::audit_report::AuditReport;
 /// The parts of an audit report a later `pack` is compared with.
 #[derive(Clone, Debug, Deserialize)]
 pub struct AuditRecord {
+    /// `classes` for the audit of a model of several classes; absent for a two-sided one.
+    #[serde(default)]
+    pub kind: Option<String>,
     /// The audited model's id.
     pub model_id: String,
     /// SHA-256 of the blob the audit named (as `pack` writes it).
@@ -29,6 +32,20 @@ pub struct AuditRecord {
     pub settings: Vec<Setting>,
     /// The logs audited.
     pub sets: Vec<RecordedSet>,
+}
+
+/// What a release about to be packed is, as a record is compared with it.
+pub struct Release<'a> {
+    /// Every setting with its source.
+    pub settings: &'a [Setting],
+    /// The model's id.
+    pub model_id: &'a str,
+    /// Each log's report name and SHA-256, in report order.
+    pub sets: &'a [(String, String)],
+    /// The release key's id, for a signed blob.
+    pub key_id: Option<&'a str>,
+    /// The blob's SHA-256.
+    pub blob_sha256: &'a str,
 }
 
 /// One audited log, as the record names it.
@@ -62,6 +79,26 @@ impl AuditRecord {
     /// verdict), the model, the logs and the blob's bytes. Empty: `now` is the audited
     /// release.
     pub fn differences(&self, now: &AuditReport, compared: &[String]) -> Vec<String> {
+        let sets: Vec<(String, String)> = now
+            .sets
+            .iter()
+            .map(|s| (s.name.clone(), s.sha256.clone()))
+            .collect();
+        self.differences_of(
+            &Release {
+                settings: &now.settings,
+                model_id: &now.model_id,
+                sets: &sets,
+                key_id: now.key_id.as_deref(),
+                blob_sha256: &now.blob_sha256,
+            },
+            compared,
+        )
+    }
+
+    /// [`differences`](Self::differences) against a release given by its facts (the
+    /// two-sided audit's report, or a class audit's).
+    pub fn differences_of(&self, now: &Release<'_>, compared: &[String]) -> Vec<String> {
         let mut out = Vec::new();
         for flag in compared {
             let was = self.settings.iter().find(|s| &s.flag == flag);
@@ -100,7 +137,7 @@ impl AuditRecord {
         let is: Vec<(&str, &str)> = now
             .sets
             .iter()
-            .map(|s| (s.name.as_str(), s.sha256.as_str()))
+            .map(|(n, h)| (n.as_str(), h.as_str()))
             .collect();
         if was != is {
             out.push(format!(
@@ -109,7 +146,7 @@ impl AuditRecord {
                 logs(is)
             ));
         }
-        if out.is_empty() && self.key_id != now.key_id {
+        if out.is_empty() && self.key_id.as_deref() != now.key_id {
             let key = |k: &Option<String>| {
                 k.as_ref()
                     .map_or("unsigned".to_string(), |k| format!("signed with key {k}"))
@@ -117,7 +154,7 @@ impl AuditRecord {
             out.push(format!(
                 "signature: the audit's blob was {}, pack's would be {} (the key is `--sign`, or [release] key)",
                 key(&self.key_id),
-                key(&now.key_id)
+                key(&now.key_id.map(String::from))
             ));
         }
         if out.is_empty() && self.blob_sha256 != now.blob_sha256 {

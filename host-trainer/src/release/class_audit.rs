@@ -26,6 +26,15 @@ use crate::train::float_model::FloatModel;
 pub const NO_BASELINE: &str =
     "no field baseline is kept for a model of several classes yet; `drift` refuses this model";
 
+/// One audited log, as the record names it.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ClassSet {
+    /// Its name in the report.
+    pub name: String,
+    /// Its SHA-256 (of a log of several files: the digest of their digests).
+    pub sha256: String,
+}
+
 /// One class row as the blob carries it, beside its ideal real values.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct FixedRow {
@@ -95,6 +104,12 @@ pub struct ClassAudit {
     pub model_sha256: String,
     /// SHA-256 of the blob the audit names (version 5, or 6 signed).
     pub blob_sha256: String,
+    /// The release key's id, for a signed blob.
+    pub key_id: Option<String>,
+    /// Every log audited: its report name and SHA-256 (what `pack --audited` compares).
+    pub sets: Vec<ClassSet>,
+    /// The settings of the release with their sources (what `pack --audited` compares).
+    pub settings: Vec<crate::project::Setting>,
     /// The blob's id (its CRC, as the device's lines name it).
     pub blob_id: String,
     /// The blob's size in bytes.
@@ -204,6 +219,15 @@ pub fn audit_classes(
         model_id: fm.model_id.clone(),
         model_sha256: fm.content_digest(),
         blob_sha256: String::new(),
+        key_id: None,
+        sets: all
+            .iter()
+            .map(|(n, ds)| ClassSet {
+                name: (*n).to_string(),
+                sha256: ds.sha256.clone(),
+            })
+            .collect(),
+        settings: Vec::new(),
         blob_id: String::new(),
         blob_bytes: 0,
         input_bits: m.input_bits,
@@ -274,6 +298,8 @@ impl ClassAudit {
     /// Names `blob` (the bytes `pack` writes) in the report.
     pub fn name_blob(&mut self, blob: &[u8]) {
         self.blob_sha256 = crate::digest::sha256_hex(blob);
+        self.key_id =
+            shared_model::blob::signature(blob).map(|s| crate::digest::lower_hex(&s.key_id));
         self.blob_id =
             shared_model::blob::blob_id(blob).map_or(String::new(), |id| format!("{id:08x}"));
         self.blob_bytes = blob.len();

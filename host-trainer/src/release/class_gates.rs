@@ -109,6 +109,22 @@ pub fn class_gates(
         rule: None,
         units_needed: None,
     });
+    // The rounding proof as the two-sided audit's guarantee: required unless
+    // --no-require-guarantee, every scored unit of every log proved.
+    if cfg.require_guarantee {
+        let unproved: usize = logs.iter().map(|l| l.unproved).sum();
+        out.push(Gate {
+            gate: "rounding proof",
+            log: "all".into(),
+            value: format!("{unproved} units not proved"),
+            limit: "0".into(),
+            passed: unproved == 0,
+            measured: Some(unproved as f64),
+            rate: None,
+            rule: None,
+            units_needed: None,
+        });
+    }
     out
 }
 

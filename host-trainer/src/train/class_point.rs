@@ -303,15 +303,32 @@ pub fn choose_gaps(
             ));
         };
         let go_re = go_led.iter().filter(|l| l.lead < go_gap).count();
-        let best = (0..fc.len())
+        let within = (0..fc.len())
             .filter(|&j| go_re + fs[j].1 <= cap)
-            .min_by(|&a, &b| fs[a].0.total_cmp(&fs[b].0).then(fs[a].1.cmp(&fs[b].1)))
-            .unwrap_or(0);
+            .min_by(|&a, &b| fs[a].0.total_cmp(&fs[b].0).then(fs[a].1.cmp(&fs[b].1)));
+        // The GO gap the target needs may already hold more units in RECHECK than the
+        // budget allows: then the smallest class gap, and the reason says so.
+        let (best, class_reason) = match within {
+            Some(j) => (
+                j,
+                format!(
+                    "the class gap of least cost with RECHECK at most {} % of the held-out units",
+                    crate::confidence::percent(share)
+                ),
+            ),
+            None => (
+                0,
+                format!(
+                    "RECHECK at most {} % of the held-out units cannot be met with this GO gap ({go_re} of {} units are RECHECK by it alone): the smallest class gap",
+                    crate::confidence::percent(share),
+                    leads.len()
+                ),
+            ),
+        };
         let reason = format!(
-            "the smallest GO gap whose false GO on the {failure_units} held-out failure units has an exact upper bound at most {} % at {} % confidence; the class gap of least cost with RECHECK at most {} % of the held-out units",
+            "the smallest GO gap whose false GO on the {failure_units} held-out failure units has an exact upper bound at most {} % at {} % confidence; {class_reason}",
             crate::confidence::percent(rate),
             crate::confidence::percent(confidence),
-            crate::confidence::percent(share)
         );
         return Ok(finish(go_gap, fc[best], reason));
     }
@@ -330,12 +347,21 @@ pub fn choose_gaps(
             }
         }
     }
-    let reason = format!(
-        "the gaps of least cost ({weight} × false GO + GO lost + misrouted = {}) on {} held-out units with RECHECK at most {} % of them",
-        best_key.0,
-        leads.len(),
-        crate::confidence::percent(share)
-    );
+    // No pair of gaps keeps RECHECK within the budget: the smallest gaps, said so.
+    let reason = if best_key.0.is_finite() {
+        format!(
+            "the gaps of least cost ({weight} × false GO + GO lost + misrouted = {}) on {} held-out units with RECHECK at most {} % of them",
+            best_key.0,
+            leads.len(),
+            crate::confidence::percent(share)
+        )
+    } else {
+        format!(
+            "no gaps keep RECHECK at most {} % of the {} held-out units: the smallest gaps",
+            crate::confidence::percent(share),
+            leads.len()
+        )
+    };
     Ok(finish(gc[best.0], fc[best.1], reason))
 }
 

@@ -237,17 +237,26 @@ fn sub_problem(a: f64, yi: usize, c: f64, b: &[f64], d: &mut [f64], out: &mut [f
 /// The primal objective of the module docs for rows `w` (bias last) on standard scores `z`.
 fn objective(w: &[f64], z: &[f64], y: &[usize], k: usize, d: usize, c: f64) -> f64 {
     let reg = 0.5 * w.iter().map(|v| v * v).sum::<f64>();
-    let loss: f64 = z
-        .par_chunks(d)
-        .zip(y.par_iter())
-        .map(|(x, &yi)| {
-            let own = dot(&w[yi * d..(yi + 1) * d], x);
-            (0..k)
-                .filter(|&m| m != yi)
-                .map(|m| 1.0 + dot(&w[m * d..(m + 1) * d], x) - own)
-                .fold(0.0f64, f64::max)
+    // Fixed chunks summed in order: a parallel sum's order would depend on the threads, and
+    // the objective is part of the model file's bytes.
+    const CHUNK: usize = 4096;
+    let partial: Vec<f64> = z
+        .par_chunks(d * CHUNK)
+        .zip(y.par_chunks(CHUNK))
+        .map(|(zs, ys)| {
+            zs.chunks(d)
+                .zip(ys)
+                .map(|(x, &yi)| {
+                    let own = dot(&w[yi * d..(yi + 1) * d], x);
+                    (0..k)
+                        .filter(|&m| m != yi)
+                        .map(|m| 1.0 + dot(&w[m * d..(m + 1) * d], x) - own)
+                        .fold(0.0f64, f64::max)
+                })
+                .sum::<f64>()
         })
-        .sum();
+        .collect();
+    let loss: f64 = partial.iter().sum();
     reg + c * loss
 }
 
