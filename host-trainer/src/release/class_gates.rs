@@ -184,6 +184,22 @@ mod tests {
         assert_eq!(find("misrouted", "short").measured, Some(2.0));
         assert!(find("false GO", "crack").passed && find("misrouted", "crack").passed);
         assert_eq!(find("RECHECK", "units").measured, Some(1.0));
+        // The flips, then the rounding proof (required by default): the log has no
+        // unproved unit.
+        assert_eq!(g[g.len() - 2].gate, "flips");
+        let proof = g.last().unwrap();
+        assert_eq!((proof.gate, proof.passed), ("rounding proof", true));
+        // Without the guarantee required there is no proof gate.
+        let lifted = AuditConfig {
+            require_guarantee: false,
+            ..AuditConfig::default()
+        };
+        let l = log(vec![
+            vec![1, 0, 0, 0, 0],
+            vec![0, 1, 0, 0, 0],
+            vec![0, 0, 1, 0, 0],
+        ]);
+        let g = class_gates(&[l], &names, Some(0), lifted, DEFAULT_MISROUTE);
         assert_eq!(g.last().unwrap().gate, "flips");
     }
 }

@@ -118,7 +118,8 @@ fn well_separated_classes_pass_with_every_unit_proved_and_no_flip() {
     }
     assert_eq!((l.flips, l.faults, l.unproved, l.proved), (0, 0, 0, 300));
     assert!(r.passed, "{:?}", r.reasons);
-    // Gates: false NO-GO of good; false GO and misrouted of short and crack; RECHECK; flips.
+    // Gates: false NO-GO of good; false GO and misrouted of short and crack; RECHECK; flips;
+    // the rounding proof (required by default).
     let names: Vec<&str> = r.gates.iter().map(|g| g.gate).collect();
     assert_eq!(
         names,
@@ -129,7 +130,8 @@ fn well_separated_classes_pass_with_every_unit_proved_and_no_flip() {
             "false GO",
             "misrouted",
             "RECHECK",
-            "flips"
+            "flips",
+            "rounding proof"
         ]
     );
     // The gaps in accumulator units: rounded up from A·gap, at least 1.
