@@ -54,7 +54,7 @@ impl PackArgs {
         let output = super::settings::required(output, "-o/--output", "[outputs] blob")?;
         let mut rel = release_inputs(release, quiet, settings)?;
         if rel.fm.classes.is_some() {
-            return super::audit_classes::pack(self, &rel, quiet, output);
+            return pack_classes(self, &rel, quiet, output);
         }
         let done = rel.run()?;
         let (r, blob, fm) = (done.report, done.blob, rel.fm);
@@ -160,7 +160,7 @@ pub fn write_blob(
 /// share): `pack` compares their values with the audit's. Files are left to their
 /// contents: the model's id, each log's SHA-256 and the blob's (key included) are compared
 /// themselves, so `logs/a.csv` and `./logs/a.csv` are the same log.
-pub(super) fn release_flags() -> Vec<String> {
+fn release_flags() -> Vec<String> {
     use clap::Args as _;
     const FILES: &[&str] = &["model", "train", "holdout", "validate", "sign"];
     ReleaseArgs::augment_args(clap::Command::new("release"))
@@ -177,4 +177,84 @@ fn parse_address(s: &str) -> Result<u32, String> {
         None => t.replace('_', "").parse(),
     };
     r.map_err(|_| format!("'{s}' is not an address (use e.g. 0x3F000 or 258048)"))
+}
+
+/// `linegate pack` of a model of several classes: the same release as [`run`]'s, then the
+/// blob (version 5, or 6 signed) written only if the audit passed (or `--override-audit`,
+/// recorded in the blob). With `--audited`, the record must be a class audit of the same
+/// release: the same model, logs (SHA-256), settings of the release flags and blob bytes
+/// (the two-sided audit's comparison, `AuditRecord::differences_of`).
+fn pack_classes(
+    args: &PackArgs,
+    rel: &super::args::Release,
+    quiet: bool,
+    output: &std::path::Path,
+) -> Result<()> {
+    let (q, r) = super::audit_classes::release(rel, quiet)?;
+    if !r.passed && !args.override_audit {
+        return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
+    }
+    let blob = host_trainer::release::class_audit::class_blob(&q, r.passed, rel.signer.as_ref());
+    if let Some(given) = &args.audited {
+        let path = if given.is_dir() {
+            given.join("audit.json")
+        } else {
+            given.clone()
+        };
+        if !path.exists() {
+            anyhow::bail!(
+                "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",
+                path.display()
+            );
+        }
+        let record = AuditRecord::read(&path)?;
+        if record.kind.as_deref() != Some("classes") {
+            return Err(CheckFailed(format!(
+                "{}: the record is a two-sided audit, and this model decides between several classes; nothing written",
+                path.display()
+            ))
+            .into());
+        }
+        if !record.passed && !args.override_audit {
+            return Err(CheckFailed(format!(
+                "{}: that audit failed ({}); nothing written",
+                path.display(),
+                record.reasons.join("; ")
+            ))
+            .into());
+        }
+        let sets: Vec<(String, String)> = r
+            .sets
+            .iter()
+            .map(|s| (s.name.clone(), s.sha256.clone()))
+            .collect();
+        let now = host_trainer::release::audit_record::Release {
+            settings: &r.settings,
+            model_id: &r.model_id,
+            sets: &sets,
+            key_id: r.key_id.as_deref(),
+            blob_sha256: &r.blob_sha256,
+        };
+        let differs = record.differences_of(&now, &release_flags());
+        if !differs.is_empty() {
+            return Err(CheckFailed(format!(
+                "{}: this is not the audited release, nothing written; what differs: {}. Run the audit again with these settings, or pack with the audit's",
+                path.display(),
+                differs.join("; ")
+            ))
+            .into());
+        }
+        if !quiet {
+            eprintln!(
+                "the blob is the one the audit {} passed (same model, logs, settings and SHA-256 {})",
+                path.display(),
+                r.blob_sha256
+            );
+        }
+    } else if !quiet {
+        eprintln!(
+            "note: no audit record given (--audited, or [outputs] audit_dir in the project file): pack audited the model itself with the settings above"
+        );
+    }
+    write_blob(args, output, &blob, r.passed, &rel.fm.model_id, quiet)
 }

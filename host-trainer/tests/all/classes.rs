@@ -214,3 +214,135 @@ fn a_log_of_go_and_nogo_trains_as_before_without_classes() {
     assert!(!text.contains("\"classes\""), "{text}");
     assert!(!text.contains("go_class"), "{text}");
 }
+
+/// After training, later commands read with the model's classes: `--class` naming another
+/// order (or at all, for a two-sided model) is refused rather than recoding the labels;
+/// `check --class` tests GO against every failure class together (±1, whatever the class
+/// codes), on a log that is separable that way; a class name that would break the device's
+/// line is refused; the joint model file is the same bytes whatever the thread count.
+#[test]
+fn later_commands_keep_the_models_classes_and_check_reads_go_against_the_rest() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // GO near the origin, CRACK far out, SHORT in the two other corners: GO against the
+    // rest is separable by one line; no class is the −1 "NO-GO" of a two-sided log.
+    let mut log = String::from("a,b,label\n");
+    for i in 0..40 {
+        let f = f64::from(i) / 40.0;
+        log += &format!("{f:.3},{:.3},go\n", 1.0 - f);
+        log += &format!("{:.3},{:.3},crack\n", 5.0 + f, 6.0 - f);
+        log += &format!("{:.3},{f:.3},short\n", 5.0 + f);
+        log += &format!("{f:.3},{:.3},short\n", 5.0 + f);
+    }
+    write(d, "log.csv", log.as_bytes());
+    let classes = [
+        "--class",
+        "GO=go",
+        "--class",
+        "SHORT=short",
+        "--class",
+        "CRACK=crack",
+    ];
+    let mut args = vec!["check", "log.csv"];
+    args.extend_from_slice(&classes);
+    let o = linegate(&args, d);
+    let out = exits(&o, 0);
+    let printed = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        printed.contains("GO (GO) against every failure class together")
+            && printed.contains("LINEARLY SEPARABLE"),
+        "{printed}{out}"
+    );
+    let mut args = vec![
+        "-q",
+        "train",
+        "log.csv",
+        "--class-rule",
+        "joint",
+        "--c",
+        "1",
+        "--folds",
+        "0",
+        "--no-operating-point",
+        "-o",
+        "m.json",
+    ];
+    args.extend_from_slice(&classes);
+    exits(&linegate(&args, d), 0);
+    // Another order of the same names: refused, naming both lists.
+    let o = linegate(
+        &[
+            "-q",
+            "audit",
+            "--model",
+            "m.json",
+            "--class",
+            "GO=go",
+            "--class",
+            "CRACK=crack",
+            "--class",
+            "SHORT=short",
+        ],
+        d,
+    );
+    let err = exits(&o, 2);
+    assert!(
+        err.contains("GO, CRACK, SHORT") && err.contains("GO, SHORT, CRACK"),
+        "{err}"
+    );
+    // The model's own list (other tokens allowed) is taken.
+    let o = linegate(
+        &[
+            "-q",
+            "audit",
+            "--model",
+            "m.json",
+            "--class",
+            "GO=go,ok",
+            "--class",
+            "SHORT=short",
+            "--class",
+            "CRACK=crack",
+        ],
+        d,
+    );
+    assert!(o.status.code() == Some(0) || o.status.code() == Some(1));
+    // A name the device's line could not carry.
+    for bad in ["BAD NAME=x", "A#B=x", "recheck=x"] {
+        let mut args = vec!["-q", "train", "log.csv", "--class", bad];
+        args.extend_from_slice(&classes);
+        let err = exits(&linegate(&args, d), 2);
+        assert!(
+            err.contains("class name") || err.contains("outcome"),
+            "{bad}: {err}"
+        );
+    }
+    // The joint model file does not depend on the thread count.
+    let run = |threads: &str, out: &str| {
+        let mut args = vec![
+            "-q",
+            "train",
+            "log.csv",
+            "--class-rule",
+            "joint",
+            "--c",
+            "1",
+            "--folds",
+            "0",
+            "--no-operating-point",
+            "-o",
+            out,
+        ];
+        args.extend_from_slice(&classes);
+        let o = std::process::Command::new(env!("CARGO_BIN_EXE_linegate"))
+            .arg("--no-project")
+            .args(&args)
+            .env("RAYON_NUM_THREADS", threads)
+            .current_dir(d)
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        std::fs::read(d.join(out)).unwrap()
+    };
+    assert_eq!(run("1", "t1.json"), run("2", "t2.json"));
+}
