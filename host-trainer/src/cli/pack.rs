@@ -179,7 +179,7 @@ fn parse_address(s: &str) -> Result<u32, String> {
     r.map_err(|_| format!("'{s}' is not an address (use e.g. 0x3F000 or 258048)"))
 }
 
-/// `linegate pack` of a model of several classes: the same release as [`run`]'s, then the
+/// `linegate pack` of a model of several classes: the same release as `audit`'s, then the
 /// blob (version 5, or 6 signed) written only if the audit passed (or `--override-audit`,
 /// recorded in the blob). With `--audited`, the record must be a class audit of the same
 /// release: the same model, logs (SHA-256), settings of the release flags and blob bytes

@@ -24,7 +24,7 @@ use host_trainer::train::eval::TrainerKind;
 use host_trainer::train::float_model::FloatModel;
 use host_trainer::workflow::{self, CvTrainers, TrainRequest};
 use libfuzzer_sys::fuzz_target;
-use shared_model::{CheckedModel, SignalSection};
+use shared_model::SignalSection;
 
 /// Signal `x`: 4 samples, raw 0..=100; its mean and peak-to-peak; reading channel `t`.
 const SHEET: &str = "[[channel]]\nname = \"t\"\nmin = 0\nmax = 50\nlsb = 0.1\n\n\
@@ -43,7 +43,7 @@ fn dir() -> PathBuf {
 struct Fixed {
     sheet: PathBuf,
     model: FloatModel,
-    device: CheckedModel<SignalSection>,
+    device: host_trainer::release::pack::DeviceModel,
 }
 
 fn fixed() -> &'static Fixed {
@@ -94,7 +94,7 @@ fn fixed() -> &'static Fixed {
             .model;
         let q = quantise(&model, Some(&ds), QuantConfig::default()).unwrap();
         let blob = blob_release::released_blob(&q, true, None);
-        let device = shared_model::blob::decode::<SignalSection>(&blob).unwrap();
+        let device = shared_model::blob::decode_classes::<SignalSection>(&blob).unwrap();
         Fixed {
             sheet,
             model,
@@ -202,7 +202,7 @@ fn replay_twice(
     log: &Path,
     opts: &LogOptions,
     fm: &FloatModel,
-    device: &CheckedModel<SignalSection>,
+    device: &host_trainer::release::pack::DeviceModel,
 ) {
     let readings = fm.channels.iter().filter(|c| c.source.is_none()).count();
     // As `replay` reads a log: labels optional, no digest.
