@@ -8,7 +8,7 @@ use clap::Args;
 use super::CheckFailed;
 use super::args::{ReleaseArgs, release_inputs};
 use host_trainer::output::OutputSet;
-use host_trainer::release::audit_record::AuditRecord;
+use host_trainer::release::audit_record::{AuditRecord, Release as Record};
 use host_trainer::release::hex;
 
 /// Flags of `linegate pack`.
@@ -45,11 +45,7 @@ impl PackArgs {
     /// Runs `linegate pack`.
     pub fn run(&self, quiet: bool, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
         let Self {
-            release,
-            output,
-            audited,
-            override_audit,
-            ..
+            release, output, ..
         } = self;
         let output = super::settings::required(output, "-o/--output", "[outputs] blob")?;
         let mut rel = release_inputs(release, quiet, settings)?;
@@ -58,55 +54,101 @@ impl PackArgs {
         }
         let done = rel.run()?;
         let (r, blob, fm) = (done.report, done.blob, rel.fm);
-        if !r.passed && !override_audit {
-            return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
-        }
-        match audited {
-            Some(given) => {
-                // The audit's folder names its record.
-                let path = &if given.is_dir() {
-                    given.join("audit.json")
-                } else {
-                    given.clone()
-                };
-                if !path.exists() {
-                    anyhow::bail!(
-                        "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",
-                        path.display()
-                    );
-                }
-                let record = AuditRecord::read(path)?;
-                if !record.passed && !override_audit {
-                    return Err(CheckFailed(format!(
-                        "{}: that audit failed ({}); nothing written",
-                        path.display(),
-                        record.reasons.join("; ")
-                    ))
-                    .into());
-                }
-                let differs = record.differences(&r, &release_flags());
-                if !differs.is_empty() {
-                    return Err(CheckFailed(format!(
-                        "{}: this is not the audited release, nothing written; what differs: {}. Run the audit again with these settings, or pack with the audit's",
-                        path.display(),
-                        differs.join("; ")
-                    ))
-                    .into());
-                }
-                if !quiet {
-                    eprintln!(
-                        "the blob is the one the audit {} passed (same model, logs, settings and SHA-256 {})",
-                        path.display(),
-                        r.blob_sha256
-                    );
-                }
-            }
-            None if !quiet => eprintln!(
-                "note: no audit record given (--audited, or [outputs] audit_dir in the project file): pack audited the model itself with the settings above"
-            ),
-            None => {}
-        }
+        let sets: Vec<(String, String)> = r
+            .sets
+            .iter()
+            .map(|s| (s.name.clone(), s.sha256.clone()))
+            .collect();
+        let now = Record {
+            settings: &r.settings,
+            model_id: &r.model_id,
+            sets: &sets,
+            key_id: r.key_id.as_deref(),
+            blob_sha256: &r.blob_sha256,
+        };
+        self.check_release(r.passed, &r.reasons, &now, None, quiet)?;
         write_blob(self, output, &blob, r.passed, &fm.model_id, quiet)
+    }
+}
+
+impl PackArgs {
+    /// What pack asks of a release before it writes a byte: its audit passed (or
+    /// `--override-audit`), and with `--audited`, the record is an audit of the same kind
+    /// (`kind`: `None` two-sided, `Some("classes")`), passed (or overridden), of the same
+    /// model, logs, settings of the release flags and blob bytes as `now`.
+    fn check_release(
+        &self,
+        passed: bool,
+        reasons: &[String],
+        now: &Record<'_>,
+        kind: Option<&str>,
+        quiet: bool,
+    ) -> Result<()> {
+        if !passed && !self.override_audit {
+            return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", reasons.join("; "))).into());
+        }
+        let Some(given) = &self.audited else {
+            if !quiet {
+                eprintln!(
+                    "note: no audit record given (--audited, or [outputs] audit_dir in the project file): pack audited the model itself with the settings above"
+                );
+            }
+            return Ok(());
+        };
+        // The audit's folder names its record.
+        let path = if given.is_dir() {
+            given.join("audit.json")
+        } else {
+            given.clone()
+        };
+        if !path.exists() {
+            anyhow::bail!(
+                "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",
+                path.display()
+            );
+        }
+        let record = AuditRecord::read(&path)?;
+        if record.kind.as_deref() != kind {
+            let what = |k: Option<&str>| {
+                if k == Some("classes") {
+                    "a model of several classes"
+                } else {
+                    "a two-sided (GO / NO-GO) model"
+                }
+            };
+            return Err(CheckFailed(format!(
+                "{}: the record is the audit of {}, and this model is {}; nothing written",
+                path.display(),
+                what(record.kind.as_deref()),
+                what(kind)
+            ))
+            .into());
+        }
+        if !record.passed && !self.override_audit {
+            return Err(CheckFailed(format!(
+                "{}: that audit failed ({}); nothing written",
+                path.display(),
+                record.reasons.join("; ")
+            ))
+            .into());
+        }
+        let differs = record.differences_of(now, &release_flags());
+        if !differs.is_empty() {
+            return Err(CheckFailed(format!(
+                "{}: this is not the audited release, nothing written; what differs: {}. Run the audit again with these settings, or pack with the audit's",
+                path.display(),
+                differs.join("; ")
+            ))
+            .into());
+        }
+        if !quiet {
+            eprintln!(
+                "the blob is the one the audit {} passed (same model, logs, settings and SHA-256 {})",
+                path.display(),
+                now.blob_sha256
+            );
+        }
+        Ok(())
     }
 }
 
@@ -191,70 +233,19 @@ fn pack_classes(
     output: &std::path::Path,
 ) -> Result<()> {
     let (q, r) = super::audit_classes::release(rel, quiet)?;
-    if !r.passed && !args.override_audit {
-        return Err(CheckFailed(format!("audit failed, nothing written: {} (pass --override-audit to pack anyway; the blob will record it)", r.reasons.join("; "))).into());
-    }
     let blob = host_trainer::release::class_audit::class_blob(&q, r.passed, rel.signer.as_ref());
-    if let Some(given) = &args.audited {
-        let path = if given.is_dir() {
-            given.join("audit.json")
-        } else {
-            given.clone()
-        };
-        if !path.exists() {
-            anyhow::bail!(
-                "{}: no audit record there; run `linegate audit` (with --out-dir, or [outputs] audit_dir) first: pack writes only the blob an audit passed",
-                path.display()
-            );
-        }
-        let record = AuditRecord::read(&path)?;
-        if record.kind.as_deref() != Some("classes") {
-            return Err(CheckFailed(format!(
-                "{}: the record is a two-sided audit, and this model decides between several classes; nothing written",
-                path.display()
-            ))
-            .into());
-        }
-        if !record.passed && !args.override_audit {
-            return Err(CheckFailed(format!(
-                "{}: that audit failed ({}); nothing written",
-                path.display(),
-                record.reasons.join("; ")
-            ))
-            .into());
-        }
-        let sets: Vec<(String, String)> = r
-            .sets
-            .iter()
-            .map(|s| (s.name.clone(), s.sha256.clone()))
-            .collect();
-        let now = host_trainer::release::audit_record::Release {
-            settings: &r.settings,
-            model_id: &r.model_id,
-            sets: &sets,
-            key_id: r.key_id.as_deref(),
-            blob_sha256: &r.blob_sha256,
-        };
-        let differs = record.differences_of(&now, &release_flags());
-        if !differs.is_empty() {
-            return Err(CheckFailed(format!(
-                "{}: this is not the audited release, nothing written; what differs: {}. Run the audit again with these settings, or pack with the audit's",
-                path.display(),
-                differs.join("; ")
-            ))
-            .into());
-        }
-        if !quiet {
-            eprintln!(
-                "the blob is the one the audit {} passed (same model, logs, settings and SHA-256 {})",
-                path.display(),
-                r.blob_sha256
-            );
-        }
-    } else if !quiet {
-        eprintln!(
-            "note: no audit record given (--audited, or [outputs] audit_dir in the project file): pack audited the model itself with the settings above"
-        );
-    }
+    let sets: Vec<(String, String)> = r
+        .sets
+        .iter()
+        .map(|s| (s.name.clone(), s.sha256.clone()))
+        .collect();
+    let now = Record {
+        settings: &r.settings,
+        model_id: &r.model_id,
+        sets: &sets,
+        key_id: r.key_id.as_deref(),
+        blob_sha256: &r.blob_sha256,
+    };
+    args.check_release(r.passed, &r.reasons, &now, Some("classes"), quiet)?;
     write_blob(args, output, &blob, r.passed, &rel.fm.model_id, quiet)
 }

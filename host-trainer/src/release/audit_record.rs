@@ -7,7 +7,6 @@ use serde::Deserialize;
 
 use crate::error::InputError;
 use crate::project::Setting;
-use crate::release::audit_report::AuditReport;
 
 /// The parts of an audit report a later `pack` is compared with.
 #[derive(Clone, Debug, Deserialize)]
@@ -74,30 +73,10 @@ impl AuditRecord {
         })
     }
 
-    /// What differs between this record and the audit `now` about to be packed, one line
-    /// each: the settings among `compared` flags (those that decide the blob and the
+    /// What differs between this record and the release `now` about to be packed, one
+    /// line each: the settings among `compared` flags (those that decide the blob and the
     /// verdict), the model, the logs and the blob's bytes. Empty: `now` is the audited
-    /// release.
-    pub fn differences(&self, now: &AuditReport, compared: &[String]) -> Vec<String> {
-        let sets: Vec<(String, String)> = now
-            .sets
-            .iter()
-            .map(|s| (s.name.clone(), s.sha256.clone()))
-            .collect();
-        self.differences_of(
-            &Release {
-                settings: &now.settings,
-                model_id: &now.model_id,
-                sets: &sets,
-                key_id: now.key_id.as_deref(),
-                blob_sha256: &now.blob_sha256,
-            },
-            compared,
-        )
-    }
-
-    /// [`differences`](Self::differences) against a release given by its facts (the
-    /// two-sided audit's report, or a class audit's).
+    /// release. The two-sided audit's report and a class audit's give their facts alike.
     pub fn differences_of(&self, now: &Release<'_>, compared: &[String]) -> Vec<String> {
         let mut out = Vec::new();
         for flag in compared {
