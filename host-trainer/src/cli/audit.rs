@@ -68,19 +68,11 @@ impl AuditArgs {
         let mut set = OutputSet::default();
         release.name_inputs(&mut set);
         if let Some(dir) = report_dir {
-            set.add_as(
-                "report audit.md (--out-dir)",
-                dir.join("audit.md"),
-                md.as_bytes(),
-            );
-            set.add_as(
-                "report audit.html (--out-dir)",
-                dir.join("audit.html"),
+            add_reports(
+                &mut set,
+                dir,
+                &md,
                 report::html(fm, &r, sw.as_ref(), &doc),
-            );
-            set.add_as(
-                "report audit.json (--out-dir)",
-                dir.join("audit.json"),
                 report::json(&r, sw.as_ref()),
             );
         }
@@ -129,19 +121,11 @@ fn run_classes(args: &AuditArgs, rel: &Release, quiet: bool) -> Result<()> {
     let mut set = OutputSet::default();
     args.release.name_inputs(&mut set);
     if let Some(dir) = &args.report_dir {
-        set.add_as(
-            "report audit.md (--out-dir)",
-            dir.join("audit.md"),
-            md.as_bytes(),
-        );
-        set.add_as(
-            "report audit.html (--out-dir)",
-            dir.join("audit.html"),
+        add_reports(
+            &mut set,
+            dir,
+            &md,
             report::class_html(&r, &doc),
-        );
-        set.add_as(
-            "report audit.json (--out-dir)",
-            dir.join("audit.json"),
             report::class_json(&r),
         );
     }
@@ -163,4 +147,29 @@ fn run_classes(args: &AuditArgs, rel: &Release, quiet: bool) -> Result<()> {
         return Err(CheckFailed(format!("audit failed: {}", r.reasons.join("; "))).into());
     }
     Ok(())
+}
+
+/// The report folder's three files (`--out-dir`), for either kind of model.
+fn add_reports(
+    set: &mut OutputSet,
+    dir: &std::path::Path,
+    md: &str,
+    html: impl Into<Vec<u8>>,
+    json: impl Into<Vec<u8>>,
+) {
+    set.add_as(
+        "report audit.md (--out-dir)",
+        dir.join("audit.md"),
+        md.as_bytes(),
+    );
+    set.add_as(
+        "report audit.html (--out-dir)",
+        dir.join("audit.html"),
+        html,
+    );
+    set.add_as(
+        "report audit.json (--out-dir)",
+        dir.join("audit.json"),
+        json,
+    );
 }
