@@ -103,7 +103,7 @@ impl FieldRun {
         self.all_scores.push(d.score);
         if let Some(v) = values {
             for (m, &x) in self.channel.iter_mut().zip(v) {
-                m.push(f64::from(x));
+                m.push(x);
             }
         }
         let t = &self.thresholds;
@@ -145,7 +145,7 @@ impl FieldRun {
         if !self.has_values {
             return None;
         }
-        Some((m.n, m.mean, m.sd()))
+        Some((m.n, m.mean(), m.sd()))
     }
 }
 

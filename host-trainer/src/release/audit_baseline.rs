@@ -175,42 +175,85 @@ impl CusumRecord {
     }
 }
 
-/// Running count, mean and sum of squared deviations (Welford's update): the baseline's
-/// figures over a held log and a field run's over a stream are the same arithmetic.
-#[derive(Clone, Copy, Debug, Default, PartialEq)]
+/// Count, sum and sum of squares of raw channel values, as exact integers: the figures do not
+/// depend on the order the values arrive in or on how a log is cut into parts, so parts
+/// counted apart merge bit for bit into the single pass's figures (|Σx²| < n·2⁶² fits i128
+/// for any count a u64 holds).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Moments {
     /// Values seen.
     pub n: u64,
-    /// Their mean.
-    pub mean: f64,
-    /// Sum of squared deviations from the mean.
-    pub m2: f64,
+    /// Their sum.
+    pub sum: i128,
+    /// The sum of their squares.
+    pub sum_sq: i128,
 }
 
 impl Moments {
     /// One more value.
-    pub fn push(&mut self, x: f64) {
+    pub fn push(&mut self, x: i32) {
+        let x = i128::from(x);
         self.n += 1;
-        let d = x - self.mean;
-        self.mean += d / self.n as f64;
-        self.m2 += d * (x - self.mean);
+        self.sum += x;
+        self.sum_sq += x * x;
     }
 
-    /// The sample standard deviation (n − 1; 0 below two values).
-    pub fn sd(&self) -> f64 {
-        if self.n > 1 {
-            (self.m2 / (self.n - 1) as f64).sqrt()
-        } else {
-            0.0
+    /// The values of `other` too.
+    pub fn merge(&mut self, other: &Self) {
+        self.n += other.n;
+        self.sum += other.sum;
+        self.sum_sq += other.sum_sq;
+    }
+
+    /// Their mean (0 for none).
+    pub fn mean(&self) -> f64 {
+        if self.n == 0 {
+            return 0.0;
         }
+        self.sum as f64 / self.n as f64
+    }
+
+    /// The sample standard deviation (n − 1; 0 below two values). The squared deviations
+    /// are summed about the nearest integer c to the mean, exactly (Σ(x−c)² = Σx² − 2cΣx +
+    /// nc²), then corrected by r²/n, r = Σx − nc, so no large difference cancels in floating
+    /// point.
+    pub fn sd(&self) -> f64 {
+        if self.n < 2 {
+            return 0.0;
+        }
+        let n = i128::from(self.n);
+        let c = (2 * self.sum + n).div_euclid(2 * n);
+        let r = self.sum - n * c;
+        let about_c = c
+            .checked_mul(self.sum)
+            .and_then(|cs| cs.checked_mul(2))
+            .and_then(|two_cs| self.sum_sq.checked_sub(two_cs))
+            .and_then(|d| n.checked_mul(c * c).and_then(|ncc| d.checked_add(ncc)));
+        let m2 = match about_c {
+            Some(s) => s as f64 - (r as f64) * (r as f64) / self.n as f64,
+            // Beyond i128 only for counts near u64::MAX: the plain formula, still a function
+            // of the exact sums alone.
+            None => self.sum_sq as f64 - (self.sum as f64) * (self.sum as f64) / self.n as f64,
+        };
+        (m2.max(0.0) / (self.n - 1) as f64).sqrt()
     }
 }
 
 /// Mean and sample standard deviation (n − 1; 0 below two values), by Welford's update.
 pub fn mean_sd(values: impl Iterator<Item = f64>) -> (f64, f64) {
-    let mut m = Moments::default();
-    values.for_each(|v| m.push(v));
-    (m.mean, m.sd())
+    let (mut n, mut mean, mut m2) = (0u64, 0.0f64, 0.0f64);
+    for x in values {
+        n += 1;
+        let d = x - mean;
+        mean += d / n as f64;
+        m2 += d * (x - mean);
+    }
+    let sd = if n > 1 {
+        (m2 / (n - 1) as f64).sqrt()
+    } else {
+        0.0
+    };
+    (mean, sd)
 }
 
 /// The bins covering `lo..=hi`: origin `lo`, the least shift whose 32 bins reach `hi`.
@@ -286,7 +329,9 @@ pub fn baseline(
     let channels = (0..n)
         .map(|c| {
             let values = || decided.iter().map(|&i| ds.raw_row(i)[c]);
-            let (mean, sd) = mean_sd(values().map(f64::from));
+            let mut m = Moments::default();
+            values().for_each(|x| m.push(x));
+            let (mean, sd) = (m.mean(), m.sd());
             let s = &fm.channels[c];
             let tol = budget.get(c);
             BaselineChannel {
@@ -334,6 +379,27 @@ pub fn baseline(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// By hand: 1, 2, 3, 4 have mean 2.5 and sample variance 5/3; values 2·10⁹ apart from
+    /// zero keep their spread of 1 exactly (a plain Σx² − (Σx)²/n in f64 loses it); two
+    /// halves merged give the whole's figures bit for bit.
+    #[test]
+    fn exact_moments_worked_by_hand() {
+        let of = |xs: &[i32]| {
+            let mut m = Moments::default();
+            xs.iter().for_each(|&x| m.push(x));
+            m
+        };
+        let m = of(&[1, 2, 3, 4]);
+        assert_eq!(m.mean(), 2.5);
+        assert_eq!(m.sd(), (5.0f64 / 3.0).sqrt());
+        let far = of(&[2_000_000_001, 2_000_000_002, 2_000_000_003]);
+        assert_eq!((far.mean(), far.sd()), (2_000_000_002.0, 1.0));
+        let mut halves = of(&[7, -3, 11]);
+        halves.merge(&of(&[5, 0]));
+        assert_eq!(halves, of(&[7, -3, 11, 5, 0]));
+        assert_eq!((of(&[9]).sd(), Moments::default().mean()), (0.0, 0.0));
+    }
 
     /// Worked by hand: scores 10..=41 span 31 < 32 bins of 1; 10..=42 spans 32: bins of 2.
     #[test]
