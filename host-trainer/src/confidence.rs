@@ -22,7 +22,7 @@ use serde::Serialize;
 pub const DEFAULT_CONFIDENCE: f64 = 0.95;
 
 /// A count out of a number of units, with its exact bounds.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, serde::Deserialize)]
 pub struct Rate {
     /// Units that went this way.
     pub count: u64,

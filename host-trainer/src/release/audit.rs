@@ -5,12 +5,13 @@
 
 use crate::ingest::dataset::Dataset;
 use crate::release::audit_baseline::{baseline, choose};
+use crate::release::audit_part::{AuditPart, Counter};
 use crate::release::audit_report::{AuditReport, SetSummary, Tolerance, UnitRow};
 use crate::release::blob_release::released_blob;
 use crate::release::bound::{ErrorBound, error_bound};
-use crate::release::gates::{AuditConfig, LogCounts, SetRates, gates, reason};
+use crate::release::gates::{AuditConfig, LogCounts, gates, reason};
 use crate::release::quantise::{Quantised, fixed_margin};
-use crate::release::tally::{TIGHTEST, tally};
+use crate::release::tally::TIGHTEST;
 use crate::release::tolerance::{noise_radius, tolerance};
 use crate::train::float_model::FloatModel;
 
@@ -74,7 +75,8 @@ struct Logs {
     float_min: f64,
 }
 
-/// Tallies the training log, then each of `others`, and lists their units.
+/// Tallies the training log, then each of `others` (each as one [`AuditPart`], the
+/// path an engine's partitions take too), and lists their units.
 fn tally_logs(
     q: &Quantised,
     fm: &FloatModel,
@@ -83,6 +85,7 @@ fn tally_logs(
     bound: f64,
     risk: Option<f64>,
 ) -> Logs {
+    let c = Counter { q, fm, bound, risk };
     let mut l = Logs {
         sets: Vec::new(),
         flips: Vec::new(),
@@ -93,31 +96,25 @@ fn tally_logs(
         min_all: f64::INFINITY,
         float_min: f64::INFINITY,
     };
-    let mut tight: Vec<(f64, &str, &Dataset, usize)> = Vec::new();
     for &(name, ds) in std::iter::once(&("train", train)).chain(others) {
-        let a = tally(name, q, fm, ds, bound, risk);
-        let row = |i: usize| unit_row(name, q, fm, ds, i);
-        l.units_at_risk.extend(a.at_risk.iter().map(|&i| row(i)));
+        let a = AuditPart::count(c, name, ds, None).finish();
+        l.units_at_risk.extend(a.units_at_risk);
         l.at_risk_count += a.at_risk_count;
-        l.flips.extend(a.flips.iter().map(|&(i, _)| row(i)));
-        l.wrong.extend(a.wrong.iter().map(|&i| row(i)));
-        tight.extend(a.tight.iter().map(|&(mg, i)| (mg, name, ds, i)));
-        l.min_all = l.min_all.min(a.min_fixed_abs);
+        l.flips.extend(a.flips);
+        l.wrong.extend(a.wrong);
+        l.tightest.extend(a.tightest);
+        l.min_all = l
+            .min_all
+            .min(a.min_fixed_margin_lsb.unwrap_or(f64::INFINITY));
         if name == "train" {
-            l.float_min = a.float_min;
+            l.float_min = a.float_min_margin_lsb.unwrap_or(f64::INFINITY);
         }
-        let mut s = a.s;
-        s.go_units = ds.labels.iter().filter(|&&l| l > 0).count();
-        s.nogo_units = s.units - s.go_units;
-        s.rates = SetRates::of(&s.counts());
-        l.sets.push(s);
+        l.sets.push(a.set);
     }
-    tight.sort_by(|a, b| a.0.total_cmp(&b.0));
-    tight.truncate(TIGHTEST);
-    l.tightest = tight
-        .iter()
-        .map(|&(_, n, ds, i)| unit_row(n, q, fm, ds, i))
-        .collect();
+    // Closest first over all logs; equal margins keep log order, then unit order.
+    l.tightest
+        .sort_by(|a, b| a.margin_lsb.total_cmp(&b.margin_lsb));
+    l.tightest.truncate(TIGHTEST);
     l
 }
 
@@ -221,11 +218,11 @@ pub(crate) fn unit_row(
         line: ds.lines[i],
         file: (!ds.parts.is_empty()).then(|| ds.file_of(i).display().to_string()),
         unit: ds.unit_name(i),
-        label: if ds.labels[i] > 0 { "GO" } else { "NO-GO" },
+        label: if ds.labels[i] > 0 { "GO" } else { "NO-GO" }.into(),
         float_score: fs,
-        float_verdict: if fs > fm.threshold { "GO" } else { "NO-GO" },
+        float_verdict: if fs > fm.threshold { "GO" } else { "NO-GO" }.into(),
         fixed_score: d.map(|d| d.score),
-        fixed_verdict: d.map_or("FAULT", |d| d.verdict.as_str()),
+        fixed_verdict: d.map_or("FAULT", |d| d.verdict.as_str()).into(),
         margin_lsb: margin,
         margin_physical: physical_margins(q, fm, margin),
     }

@@ -6,14 +6,16 @@
 //! Plain data: the audit pass (`audit.rs`) fills it, `report/` writes it, `audit_record.rs`
 //! reads the parts `pack` and `inspect` compare back.
 
-use serde::Serialize;
+use std::borrow::Cow;
+
+use serde::{Deserialize, Serialize};
 use shared_model::blob;
 
 use crate::release::bound::ErrorBound;
 use crate::release::gates::{Gate, LogCounts, SetRates};
 
 /// One unit in the audit listing.
-#[derive(Clone, Debug, Serialize)]
+#[derive(Clone, Debug, Serialize, Deserialize)]
 pub struct UnitRow {
     /// "train" or "holdout".
     pub set: String,
@@ -25,15 +27,15 @@ pub struct UnitRow {
     /// Unit id or "line N".
     pub unit: String,
     /// "GO" or "NO-GO".
-    pub label: &'static str,
+    pub label: Cow<'static, str>,
     /// Float score.
     pub float_score: f64,
     /// Float verdict.
-    pub float_verdict: &'static str,
+    pub float_verdict: Cow<'static, str>,
     /// Fixed score (accumulator units), or `None` on a fault.
     pub fixed_score: Option<i64>,
     /// Fixed verdict, or "FAULT".
-    pub fixed_verdict: &'static str,
+    pub fixed_verdict: Cow<'static, str>,
     /// Fixed margin in LSB.
     pub margin_lsb: f64,
     /// The same margin along each channel alone, in its physical unit.
@@ -41,7 +43,7 @@ pub struct UnitRow {
 }
 
 /// Per-log figures.
-#[derive(Clone, Debug, Default, Serialize)]
+#[derive(Clone, Debug, Default, Serialize, Deserialize)]
 pub struct SetSummary {
     /// "train" or "holdout".
     pub name: String,
@@ -50,7 +52,7 @@ pub struct SetSummary {
     /// SHA-256 of the log, hex (of a log of several files: the digest of their digests).
     pub sha256: String,
     /// The files of a log of several, each with its SHA-256 and units.
-    #[serde(skip_serializing_if = "Vec::is_empty")]
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub files: Vec<crate::ingest::dataset::LogPart>,
     /// Rows skipped as unreadable (`skip_bad_rows`): not units, so in no other count.
     pub skipped_rows: usize,

@@ -239,7 +239,7 @@ pub struct LogCounts<'a> {
 
 /// A log's decision rates, each among the units it can happen to, with exact bounds at
 /// [`DEFAULT_CONFIDENCE`].
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, serde::Deserialize)]
 pub struct SetRates {
     /// False GO among the log's NO-GO units.
     pub false_go: Rate,

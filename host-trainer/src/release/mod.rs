@@ -9,6 +9,8 @@
 //! checks a blob comes from a float model; [`hex`] writes and reads Intel HEX images;
 //! [`image`] reads a blob back from any file `pack` writes and checks a pack's files agree;
 //! [`blob_match`] checks a blob against its key, model and audit report;
+//! [`audit_part`] is one log's audit over part of its units (a file, a partition) with the
+//! exact merge an engine reduces parts with;
 //! [`replay`] prints the lines the device prints; [`sign`] holds the owner's release key
 //! and signs blobs (format version 2, or 4 for a model with signal features); [`keyfile`] reads and writes its key files.
 //! [`audit_baseline`] keeps what the model met on the held-out log for `drift`.
@@ -25,6 +27,7 @@
 pub mod applying;
 pub mod audit;
 pub mod audit_baseline;
+pub mod audit_part;
 pub mod audit_record;
 pub mod audit_report;
 pub mod blob_match;

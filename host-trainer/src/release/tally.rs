@@ -18,9 +18,9 @@ use crate::train::float_model::FloatModel;
 /// Units closest to the boundary kept per log.
 pub(super) const TIGHTEST: usize = 20;
 /// Units at risk from declared noise listed per log.
-const AT_RISK: usize = 1000;
+pub(super) const AT_RISK: usize = 1000;
 /// Units behind the decision gates listed per log.
-const WRONG: usize = 200;
+pub(super) const WRONG: usize = 200;
 
 /// Where a model's decisions change, in accumulator LSB: its edges (GO from `go_min`, NO-GO
 /// up to `nogo_max`) and how far each lies beyond the float threshold.
@@ -131,29 +131,12 @@ impl Tally {
     /// Adds the counts of the chunk after this one (chunks merge in file order, so the
     /// first units of the log are the ones listed).
     fn merge(mut self, b: Self) -> Self {
-        let (a, s) = (&mut self, b.s);
-        a.s.units += s.units;
-        a.s.float_correct += s.float_correct;
-        a.s.fixed_correct += s.fixed_correct;
-        a.s.flips += s.flips;
-        a.s.faults += s.faults;
-        a.s.recheck += s.recheck;
-        a.s.recheck_go += s.recheck_go;
-        a.s.false_go += s.false_go;
-        a.s.false_nogo += s.false_nogo;
-        a.s.noise_unsafe += s.noise_unsafe;
-        a.s.within_bound += s.within_bound;
-        add_counts(&mut a.s.margin_histogram, s.margin_histogram);
-        add_counts(&mut a.s.rounding_histogram, s.rounding_histogram);
-        a.s.rounding_max_lsb = a.s.rounding_max_lsb.max(s.rounding_max_lsb);
+        let a = &mut self;
+        Self::merge_summary(&mut a.s, &b.s);
         a.at_risk_count += b.at_risk_count;
-        a.s.min_margin_lsb = match (a.s.min_margin_lsb, s.min_margin_lsb) {
-            (Some(x), Some(y)) => Some(x.min(y)),
-            (x, y) => x.or(y),
-        };
         a.flips.extend(b.flips);
         a.tight.extend(b.tight);
-        sort_tightest(&mut a.tight);
+        sort_tightest(&mut a.tight, |t| t.1);
         a.min_fixed_abs = a.min_fixed_abs.min(b.min_fixed_abs);
         a.float_min = a.float_min.min(b.float_min);
         a.at_risk.extend(b.at_risk);
@@ -161,6 +144,29 @@ impl Tally {
         a.wrong.extend(b.wrong);
         a.wrong.truncate(WRONG);
         self
+    }
+
+    /// Adds the counts, histograms and extremes of `s` into `a` (the figures that are sums,
+    /// minima or maxima over units; the log's name, files and skipped rows are the caller's).
+    pub(super) fn merge_summary(a: &mut SetSummary, s: &SetSummary) {
+        a.units += s.units;
+        a.float_correct += s.float_correct;
+        a.fixed_correct += s.fixed_correct;
+        a.flips += s.flips;
+        a.faults += s.faults;
+        a.recheck += s.recheck;
+        a.recheck_go += s.recheck_go;
+        a.false_go += s.false_go;
+        a.false_nogo += s.false_nogo;
+        a.noise_unsafe += s.noise_unsafe;
+        a.within_bound += s.within_bound;
+        add_counts(&mut a.margin_histogram, s.margin_histogram.clone());
+        add_counts(&mut a.rounding_histogram, s.rounding_histogram.clone());
+        a.rounding_max_lsb = a.rounding_max_lsb.max(s.rounding_max_lsb);
+        a.min_margin_lsb = match (a.min_margin_lsb, s.min_margin_lsb) {
+            (Some(x), Some(y)) => Some(x.min(y)),
+            (x, y) => x.or(y),
+        };
     }
 
     /// Notes a unit behind a decision gate (the first `WRONG` of a log are kept, each once).
@@ -243,14 +249,15 @@ impl Tally {
         if self.tight.len() < TIGHTEST || margin < self.tight.last().map_or(f64::INFINITY, |t| t.0)
         {
             self.tight.push((margin, i));
-            sort_tightest(&mut self.tight);
+            sort_tightest(&mut self.tight, |t| t.1);
         }
     }
 }
 
-/// Orders the tightest units by margin, then file order, and keeps the first `TIGHTEST`.
-fn sort_tightest(tight: &mut Vec<(f64, usize)>) {
-    tight.sort_by(|x, y| x.0.total_cmp(&y.0).then(x.1.cmp(&y.1)));
+/// Orders the tightest units by margin, then place in the log (`place`), and keeps the first
+/// `TIGHTEST`.
+pub(super) fn sort_tightest<T, K: Ord>(tight: &mut Vec<(f64, T)>, place: impl Fn(&(f64, T)) -> K) {
+    tight.sort_by(|x, y| x.0.total_cmp(&y.0).then_with(|| place(x).cmp(&place(y))));
     tight.truncate(TIGHTEST);
 }
 

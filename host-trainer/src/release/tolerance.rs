@@ -59,7 +59,7 @@ pub fn declared_noise(
 }
 
 /// The most the declared noise can move a score, in LSB; `None` if no noise is declared.
-pub(super) fn noise_radius(q: &Quantised, fm: &FloatModel, noise: &[Option<f64>]) -> Option<f64> {
+pub(crate) fn noise_radius(q: &Quantised, fm: &FloatModel, noise: &[Option<f64>]) -> Option<f64> {
     if noise.iter().all(Option::is_none) {
         return None;
     }

@@ -33,7 +33,7 @@ fn physical(v: f64) -> String {
 /// The gate a unit behind the decision gates fails: false GO, false NO-GO (a FAULT on a
 /// GO unit included), or else the noise gate.
 fn gate_of(u: &UnitRow) -> &'static str {
-    match (u.label, u.fixed_verdict) {
+    match (u.label.as_ref(), u.fixed_verdict.as_ref()) {
         ("NO-GO", "GO") => "false GO",
         ("GO", "NO-GO" | "FAULT") => "false NO-GO",
         _ => "noise",

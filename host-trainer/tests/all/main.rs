@@ -1,6 +1,7 @@
 //! The `linegate` command and library, end to end: one test binary, a module per area.
 //! Run one area with e.g. `cargo test -p host-trainer --test all project::`.
 
+mod audit_parts;
 mod classes;
 mod classes_release;
 mod cli;
