@@ -6,7 +6,8 @@
 //! This step sits after `release` in the data flow: it reads released models, blobs and
 //! audit records and never changes them; `report` renders what it finds.
 //!
-//! Scoring: [`score`] writes replay's forms (device, text, CSV, JSON Lines). Change control:
+//! Scoring: [`score`] writes replay's forms (device, text, CSV, JSON Lines);
+//! [`replay_part`] gives one file's device lines and counts, merged in order over a log. Change control:
 //! [`compare`] runs two releases over the same logs, [`compare_report`] writes what a
 //! reviewer signs.
 //!
@@ -24,5 +25,6 @@ pub mod drift;
 pub mod fisher;
 pub mod ks;
 pub mod record;
+pub mod replay_part;
 pub mod run;
 pub mod score;
