@@ -19,10 +19,12 @@
 pub mod baseline;
 pub mod compare;
 pub mod compare_report;
+pub mod cusum_part;
 pub mod device_lines;
 pub mod drift;
 pub mod fisher;
 pub mod ks;
 pub mod record;
 pub mod run;
+pub mod run_part;
 pub mod score;

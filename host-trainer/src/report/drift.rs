@@ -187,6 +187,11 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     s.push('\n');
     if let Some(c) = chart {
         let _ = writeln!(s, "![CUSUM chart]({c})\n");
+    } else if r.merged {
+        let _ = writeln!(
+            s,
+            "The field was counted in parts and merged: each sum's final state and first alarm are exact, its path is not kept: no chart.\n"
+        );
     } else if r.chart.is_empty() {
         let _ = writeln!(
             s,
