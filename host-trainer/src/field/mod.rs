@@ -12,7 +12,8 @@
 //!
 //! Drift: [`baseline`] reads the audit's baseline and prints the device plan; [`run`] feeds
 //! a field log's units (or the device's lines, [`device_lines`]) through the field
-//! statistics the device keeps; [`record`] reads and writes the device's field record;
+//! statistics the device keeps, counted as a [`run_part`] (parts of a log counted apart merge
+//! into the single pass's figures exactly; [`cusum_part`] composes the CUSUMs); [`record`] reads and writes the device's field record;
 //! [`ks`] is the Kolmogorov–Smirnov test, [`fisher`] the rates' exact test; [`drift`] the
 //! whole test with its rules.
 

@@ -16,7 +16,7 @@ use shared_model::{
 };
 
 pub use crate::field::run_part::field_fault;
-use crate::field::run_part::{Outcome, RunPart, outcome};
+use crate::field::run_part::{Outcome, RunPart, RunPartError, outcome};
 
 /// One decided GO or NO-GO unit's CUSUM state, after the unit.
 #[derive(Clone, Copy, Debug, Serialize, PartialEq, Eq)]
@@ -64,14 +64,21 @@ impl FieldRun {
         }
     }
 
-    /// A run of a part counted elsewhere (checked by [`RunPart::into_run`]): no chart.
-    pub(crate) fn of_part(part: RunPart) -> Self {
-        Self {
+    /// The run `drift` takes from a part that covers a whole log (usually merged from the
+    /// log's parts, `RunPart::merge`), with no chart: a part keeps no per-unit path, and the
+    /// drift report says so.
+    ///
+    /// # Errors
+    /// [`RunPartError::TooManyUnits`] above `u32::MAX` units (the record's limit; a single
+    /// pass would have stopped counting there); [`RunPartError::Unsound`].
+    pub fn from_part(part: RunPart) -> Result<Self, RunPartError> {
+        part.stats()?;
+        Ok(Self {
             part,
             saturated: false,
             charted: false,
             chart: Vec::new(),
-        }
+        })
     }
 
     /// One unit of a log: its readings and windows through `model`'s kernel (the values the

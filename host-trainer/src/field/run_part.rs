@@ -3,7 +3,7 @@
 //! figures a single pass over the whole log gives, for any cut into consecutive parts and
 //! any tree of merges that keeps the parts in order.
 //!
-//! What a part keeps is what the drift test reads from a [`FieldRun`]: the counts per
+//! What a part keeps is what the drift test reads from a `FieldRun` (`field::run`): the counts per
 //! verdict and FAULT kind, the score bins, each channel's exact moments (count, Σx, Σx²) with
 //! its least and greatest value, every scored unit's score in unit order, and each side's
 //! two CUSUM sums as the part's effect on the state it is entered with ([`CusumPart`]:
@@ -11,14 +11,14 @@
 //! `i128` within a part, so nothing in a part or a merge saturates or wraps; the record's
 //! limits are applied once, where the merged part becomes statistics ([`RunPart::stats`]).
 //!
-//! Not kept: the per-unit CUSUM chart ([`FieldRun::chart`]), one point per decided unit and
+//! Not kept: the per-unit CUSUM chart (`FieldRun::chart`), one point per decided unit and
 //! only for display; a run made from a merged part has none, and the drift report says that
 //! no chart was drawn because the field was counted in parts.
 //!
 //! Limits, exactly:
 //! - The field record counts at most `u32::MAX` units; a single pass stops there and marks
 //!   itself saturated. A merged part of more units cannot tell which units the single pass
-//!   would have kept, so [`RunPart::stats`] and [`RunPart::into_run`] refuse it
+//!   would have kept, so [`RunPart::stats`] and `FieldRun::from_part` refuse it
 //!   ([`RunPartError::TooManyUnits`]); up to `u32::MAX` units every figure is the single
 //!   pass's, saturated flag (false) included.
 //! - The CUSUM sums use the device's saturating `i64` steps, reproduced exactly by the
@@ -40,7 +40,6 @@ use shared_model::{
 };
 
 use crate::field::cusum_part::CusumPart;
-use crate::field::run::FieldRun;
 use crate::release::audit_baseline::Moments;
 
 /// Why parts cannot be merged or turned into statistics.
@@ -524,16 +523,6 @@ impl RunPart {
         self.check()?;
         self.stats_with(false)
     }
-
-    /// The field run `drift` takes, from a part that covers a whole log (usually merged),
-    /// with no chart (a part keeps no per-unit path).
-    ///
-    /// # Errors
-    /// [`RunPartError::TooManyUnits`] above `u32::MAX` units; [`RunPartError::Unsound`].
-    pub fn into_run(self) -> Result<FieldRun, RunPartError> {
-        self.stats()?;
-        Ok(FieldRun::of_part(self))
-    }
 }
 
 /// Where a score falls among the bins.
@@ -558,5 +547,4 @@ fn bin_of(score: i64, origin: i64, shift: u8) -> Bin {
 }
 
 #[cfg(test)]
-#[path = "run_part_tests.rs"]
 mod tests;

@@ -4,6 +4,7 @@
 
 use super::*;
 use crate::field::drift::{DriftConfig, Field, Source, drift};
+use crate::field::run::FieldRun;
 use crate::release::audit_baseline::{Baseline, BaselineChannel, CusumRecord, PlanRecord};
 use proptest::prelude::*;
 
@@ -264,7 +265,7 @@ fn case() -> impl Strategy<
 }
 
 proptest! {
-    #![proptest_config(ProptestConfig::with_cases(400))]
+    #![proptest_config(ProptestConfig::with_cases(1000))]
 
     /// Any cut into consecutive parts, any merge tree: the merged part gives the single
     /// pass's statistics (every count, bin, channel figure, FAULT kind, both sides' sums and
@@ -301,7 +302,7 @@ proptest! {
         let tree = merge_tree(&parts, &choices, &mut 0);
         prop_assert_eq!(&tree, &left_fold);
         prop_assert_eq!(&tree, single.part());
-        let merged = through_postcard(&tree).into_run().unwrap();
+        let merged = FieldRun::from_part(through_postcard(&tree)).unwrap();
         assert_same(&merged, &want, "merged");
         prop_assert!(merged.chart.is_empty() && !merged.charted());
         let base = baseline(plan, channels);
@@ -368,6 +369,18 @@ fn an_alarm_across_a_boundary_worked_by_hand() {
     );
     assert_eq!(s.sum[0], 15);
     assert_eq!(s, reference(p, T, 1, 0, &log).stats);
+    // The drift test over the merged run: the same alarm, no chart.
+    let r = drift(
+        &baseline(p, 1),
+        Field::Run(&FieldRun::from_part(m).unwrap()),
+        Source::Log,
+        DriftConfig {
+            alpha: 0.01,
+            two_sided: false,
+        },
+    );
+    assert_eq!(r.cusum_go.alarm_down, 6);
+    assert!(r.merged && r.chart.is_empty());
 }
 
 /// Merging with an empty part changes nothing, either side.
@@ -457,5 +470,5 @@ fn the_unit_limit_is_refused_not_crossed() {
     let e = over.stats().unwrap_err();
     assert_eq!(e, RunPartError::TooManyUnits { units: 1 << 32 });
     assert!(e.to_string().contains("4,294,967,295"));
-    assert!(over.into_run().is_err());
+    assert!(FieldRun::from_part(over).is_err());
 }
