@@ -356,6 +356,10 @@ impl RunPart {
     pub fn merge(earlier: &Self, later: &Self) -> Result<Self, RunPartError> {
         earlier.check()?;
         later.check()?;
+        // Every count is at most its part's units (`check`), so no sum below can overflow.
+        if earlier.units.checked_add(later.units).is_none() {
+            return Err(RunPartError::TooManyUnits { units: u64::MAX });
+        }
         let (a, b) = (&earlier.settings, &later.settings);
         if a.plan() != b.plan() {
             return Err(RunPartError::Settings("plans"));
@@ -462,9 +466,13 @@ impl RunPart {
         )?;
         bad(
             self.channel.iter().all(|c| {
-                u128::from(c.moments.n) <= decided && (c.moments.n == 0) == (c.min > c.max)
+                let n = c.moments.n;
+                u128::from(n) <= decided
+                    && (n == 0) == (c.min > c.max)
+                    && c.moments.sum.unsigned_abs() <= u128::from(n) << 31
+                    && (0..=i128::from(n) << 62).contains(&c.moments.sum_sq)
             }),
-            "a channel's count does not fit its decided units or its least and greatest value",
+            "a channel's count does not fit its decided units, its least and greatest value, or its sums",
         )?;
         bad(
             self.cusum_go.is_sound(self.units) && self.cusum_nogo.is_sound(self.units),

@@ -449,6 +449,9 @@ fn parts_of_other_settings_or_changed_parts_are_refused() {
         Err(RunPartError::Unsound(_))
     ));
     assert!(changed.stats().is_err());
+    let mut c = a.clone();
+    c.channel[0].moments.sum = 1;
+    assert!(matches!(c.check(), Err(RunPartError::Unsound(_))));
     let mut b = a.clone();
     b.cusum_go.up.map.lo = -1;
     assert!(matches!(b.check(), Err(RunPartError::Unsound(_))));
