@@ -150,7 +150,7 @@ impl DriftArgs {
             let (run, files) = self.run_logs(quiet, &audit, thresholds, &mut settings)?;
             let mut r = drift(b, Field::Run(&run), Source::Log, cfg);
             r.files = files;
-            (r, Some(record::record_bytes(&run.stats)))
+            (r, Some(record::record_bytes(&run.stats())))
         };
         report.require_units()?;
         let mut set = OutputSet::default();

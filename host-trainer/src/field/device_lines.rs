@@ -97,13 +97,15 @@ pub fn parse(
         }
         match w.as_slice() {
             [_, "FAULT", what] => {
-                let fault = fault_of(what, run.stats.channels, run.stats.signals).ok_or_else(|| {
+                let (channels, signals) =
+                    (run.part().settings.channels, run.part().settings.signals);
+                let fault = fault_of(what, channels, signals).ok_or_else(|| {
                     (
                         no,
                         col(what),
                         format!(
                             "'FAULT {what}': expected ch<channel> (below {}), signal<k> (below {}), count or other",
-                            run.stats.channels, run.stats.signals
+                            channels, signals
                         ),
                     )
                 })?;
@@ -127,7 +129,7 @@ pub fn parse(
                     .filter(|_| !digits.is_empty() && digits.bytes().all(|b| b.is_ascii_digit()))
                     .and_then(|s| s.parse().ok())
                     .ok_or_else(|| (no, col(score), format!("'{score}' is not a score")))?;
-                let d = run.thresholds.decide(score);
+                let d = run.thresholds().decide(score);
                 if d.verdict != verdict {
                     return Err((
                         no,
@@ -195,7 +197,7 @@ mod tests {
         let mut r = run();
         let text = "# model ab blob 0000cafe\n0 GO 50 # unit=U1 line=2\n1 NO-GO -20\n2 RECHECK 0\n3 FAULT ch1\n4 FAULT signal0\n5 FAULT count\n";
         assert_eq!(parse(text, "ab", "0000cafe", &mut r), Ok(6));
-        let s = &r.stats;
+        let s = &r.stats();
         assert_eq!((s.go, s.nogo, s.recheck, s.faults), (1, 1, 1, 3));
         assert_eq!(
             (s.channel_faults[1], s.signal_faults[0], s.other_faults),

@@ -182,6 +182,11 @@ pub struct DriftReport {
     /// Each decided unit's CUSUM state (for the chart; not in the JSON).
     #[serde(skip)]
     pub chart: Vec<ChartPoint>,
+    /// The field was counted in parts and merged (`field::run_part`): the same figures,
+    /// but no per-unit CUSUM path, so no chart (not in the JSON, which is the single
+    /// pass's byte for byte).
+    #[serde(skip)]
+    pub merged: bool,
 }
 
 /// Why a field could not be tested.
@@ -234,8 +239,12 @@ pub enum Field<'a> {
 
 /// Tests `field` against `base`.
 pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig) -> DriftReport {
+    let run_stats;
     let (stats, run) = match field {
-        Field::Run(r) => (&r.stats, Some(r)),
+        Field::Run(r) => {
+            run_stats = r.stats();
+            (&run_stats, Some(r))
+        }
         Field::Record(s) => (s, None),
     };
     let mut notes = Vec::new();
@@ -252,7 +261,7 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
         n.inverse_cdf(1.0 - level / (2.0 * budgeted.max(1) as f64))
     });
     let mut channels = Vec::new();
-    let values_known = run.is_none_or(|r| r.has_values);
+    let values_known = run.is_none_or(FieldRun::has_values);
     if !values_known {
         notes.push("device lines carry no channel values: no channel shifts (give the log, or the device's field record)".into());
     } else if budgeted == 0 {
@@ -431,6 +440,7 @@ pub fn drift(base: &Baseline, field: Field<'_>, source: Source, cfg: DriftConfig
         alarms,
         notes,
         chart: run.map(|r| r.chart.clone()).unwrap_or_default(),
+        merged: run.is_some_and(|r| !r.charted()),
     }
 }
 
@@ -565,12 +575,12 @@ mod tests {
         assert_eq!(r.require_units(), Err(DriftError::NoUnits));
         assert!(!r.in_control());
         numbers_only(&r);
-        let r = drift(&b, Field::Record(&empty.stats), Source::Record, cfg);
+        let r = drift(&b, Field::Record(&empty.stats()), Source::Record, cfg);
         assert_eq!(r.require_units(), Err(DriftError::NoUnits));
         numbers_only(&r);
         let mut one = FieldRun::new(b.plan.field_plan(), t, 1, 0, true);
         one.decided(&t.decide(60), Some(&[100]));
-        for field in [Field::Run(&one), Field::Record(&one.stats)] {
+        for field in [Field::Run(&one), Field::Record(&one.stats())] {
             let r = drift(&b, field, Source::Log, cfg);
             assert!(r.require_units().is_ok());
             numbers_only(&r);

@@ -13,13 +13,15 @@
 //!
 //! Drift: [`baseline`] reads the audit's baseline and prints the device plan; [`run`] feeds
 //! a field log's units (or the device's lines, [`device_lines`]) through the field
-//! statistics the device keeps; [`record`] reads and writes the device's field record;
+//! statistics the device keeps, counted as a [`run_part`] (parts of a log counted apart merge
+//! into the single pass's figures exactly; [`cusum_part`] composes the CUSUMs); [`record`] reads and writes the device's field record;
 //! [`ks`] is the Kolmogorov–Smirnov test, [`fisher`] the rates' exact test; [`drift`] the
 //! whole test with its rules.
 
 pub mod baseline;
 pub mod compare;
 pub mod compare_report;
+pub mod cusum_part;
 pub mod device_lines;
 pub mod drift;
 pub mod fisher;
@@ -27,4 +29,5 @@ pub mod ks;
 pub mod record;
 pub mod replay_part;
 pub mod run;
+pub mod run_part;
 pub mod score;

@@ -1,19 +1,22 @@
 //! A field log's units, one at a time, into what the drift test needs: the field statistics
-//! themselves (`shared_model::FieldStats`, the accumulator the device runs, so the desk and
-//! the device step the CUSUMs alike), the decided units' exact scores, each channel's mean
-//! and spread, and each decided unit's CUSUM state for the chart.
+//! the device keeps (`shared_model::FieldStats`: the same counts, bins and saturating CUSUM
+//! steps, so the desk and the device agree), the decided units' exact scores, each channel's
+//! mean and spread, and each decided unit's CUSUM state for the chart.
 //!
-//! A unit is fed either from a log replayed through the blob's kernel ([`FieldRun::unit`],
-//! with the values the weights multiply) or from the device's own score line
-//! ([`FieldRun::decided`] without values).
+//! The counting is a [`RunPart`] (one arithmetic for a single pass and for parts of a log
+//! counted apart and merged); a run adds the per-unit chart and the record's stop at
+//! `u32::MAX` units. A unit is fed either from a log replayed through the blob's kernel
+//! ([`FieldRun::unit`], with the values the weights multiply) or from the device's own score
+//! line ([`FieldRun::decided`] without values).
 
 use serde::Serialize;
 use shared_model::{
-    CheckedModel, Decision, Fault, FieldFault, FieldPlan, FieldStats, Inputs, MAX_CHANNELS,
-    Outcomes, SignalFault, Thresholds, Verdict,
+    CheckedModel, Decision, FieldFault, FieldPlan, FieldStats, Inputs, Outcomes, Thresholds,
+    Verdict,
 };
 
-use crate::release::audit_baseline::Moments;
+pub use crate::field::run_part::field_fault;
+use crate::field::run_part::{Outcome, RunPart, RunPartError, outcome};
 
 /// One decided GO or NO-GO unit's CUSUM state, after the unit.
 #[derive(Clone, Copy, Debug, Serialize, PartialEq, Eq)]
@@ -33,17 +36,14 @@ pub struct ChartPoint {
 /// The field units seen so far.
 #[derive(Clone, Debug)]
 pub struct FieldRun {
-    /// The field statistics, kept under the baseline's plan.
-    pub stats: FieldStats,
-    /// The thresholds margins are measured from.
-    pub thresholds: Thresholds,
-    /// Every scored unit's score (GO, NO-GO and RECHECK), in unit order.
-    pub all_scores: Vec<i64>,
-    /// Per channel: the running moments of each decided unit's value.
-    channel: Vec<Moments>,
-    /// Whether the units came with their channel values (a log; not device lines).
-    pub has_values: bool,
-    /// Every decided GO or NO-GO unit's CUSUM state, in order.
+    /// The counting (at most `u32::MAX` units: the record's limit).
+    part: RunPart,
+    /// A unit arrived after `u32::MAX`: it and every later one went uncounted (the record's
+    /// `saturated`).
+    saturated: bool,
+    /// Whether the chart was kept unit by unit (false for a run made from a merged part).
+    charted: bool,
+    /// Every decided GO or NO-GO unit's CUSUM state, in order (empty when not `charted`).
     pub chart: Vec<ChartPoint>,
 }
 
@@ -57,13 +57,28 @@ impl FieldRun {
         has_values: bool,
     ) -> Self {
         Self {
-            stats: FieldStats::new(plan, channels, signals),
-            thresholds,
-            all_scores: Vec::new(),
-            channel: vec![Moments::default(); channels],
-            has_values,
+            part: RunPart::new(plan, thresholds, channels, signals, has_values),
+            saturated: false,
+            charted: true,
             chart: Vec::new(),
         }
+    }
+
+    /// The run `drift` takes from a part that covers a whole log (usually merged from the
+    /// log's parts, `RunPart::merge`), with no chart: a part keeps no per-unit path, and the
+    /// drift report says so.
+    ///
+    /// # Errors
+    /// [`RunPartError::TooManyUnits`] above `u32::MAX` units (the record's limit; a single
+    /// pass would have stopped counting there); [`RunPartError::Unsound`].
+    pub fn from_part(part: RunPart) -> Result<Self, RunPartError> {
+        part.stats()?;
+        Ok(Self {
+            part,
+            saturated: false,
+            charted: false,
+            chart: Vec::new(),
+        })
     }
 
     /// One unit of a log: its readings and windows through `model`'s kernel (the values the
@@ -74,66 +89,93 @@ impl FieldRun {
         readings: &[i32],
         windows: &[&[i32]],
     ) {
-        let mut values = [0i32; MAX_CHANNELS];
-        let decided = model
-            .channel_values(readings, windows, &mut values)
-            .and_then(|n| {
-                let v = values.get(..n).unwrap_or(&[]);
-                model
-                    .classify(v)
-                    .map(|d| (d, n))
-                    .map_err(SignalFault::Reading)
-            });
-        match decided {
-            Ok((d, n)) => self.decided(&d, Some(values.get(..n).unwrap_or(&[]))),
-            Err(e) => self.faulted(field_fault(&e)),
+        match outcome(model, readings, windows) {
+            Outcome::Decided(d, v, n) => self.decided(&d, Some(v.get(..n).unwrap_or(&[]))),
+            Outcome::Faulted(f) => self.faulted(f),
         }
+    }
+
+    /// Room for one more unit under the record's `u32::MAX`; else the run is saturated.
+    fn room(&mut self) -> bool {
+        if self.saturated || self.part.units >= u64::from(u32::MAX) {
+            self.saturated = true;
+            return false;
+        }
+        true
     }
 
     /// One decided unit (`values`: the values the weights multiplied, when known).
     pub fn decided(&mut self, d: &Decision, values: Option<&[i32]>) {
-        if self.stats.saturated {
+        if !self.room() {
             return;
         }
-        self.stats
-            .decided(&self.thresholds, d, values.unwrap_or(&[]));
-        if self.stats.saturated {
-            return;
-        }
-        self.all_scores.push(d.score);
-        if let Some(v) = values {
-            for (m, &x) in self.channel.iter_mut().zip(v) {
-                m.push(x);
-            }
-        }
-        let t = &self.thresholds;
-        let (go, margin, state) = match d.verdict {
-            Verdict::Go => (true, d.score.saturating_sub(t.go_min), self.stats.cusum_go),
+        self.part.decided(d, values);
+        let t = self.thresholds();
+        let (go, margin, side) = match d.verdict {
+            Verdict::Go => (true, d.score.saturating_sub(t.go_min), &self.part.cusum_go),
             Verdict::NoGo => (
                 false,
                 t.nogo_max.saturating_sub(d.score),
-                self.stats.cusum_nogo,
+                &self.part.cusum_nogo,
             ),
             Verdict::Recheck => return,
         };
+        // The run starts from 0: each sum is its map's image of 0.
         self.chart.push(ChartPoint {
-            unit: self.stats.units,
+            unit: u32::try_from(self.part.units).unwrap_or(u32::MAX),
             go,
             margin,
-            up: state.up,
-            down: state.down,
+            up: side.up.map.lo,
+            down: side.down.map.lo,
         });
     }
 
     /// One unit that faulted.
     pub fn faulted(&mut self, fault: FieldFault) {
-        self.stats.faulted(fault);
+        if self.room() {
+            self.part.faulted(fault);
+        }
+    }
+
+    /// The field statistics the device's record holds after these units.
+    pub fn stats(&self) -> FieldStats {
+        // The run never counts past u32::MAX units (`room`), so the part always converts;
+        // the empty statistics are never returned.
+        self.part.stats_with(self.saturated).unwrap_or_else(|_| {
+            let s = &self.part.settings;
+            FieldStats::new(s.plan(), s.channels.into(), s.signals.into())
+        })
+    }
+
+    /// The thresholds margins are measured from.
+    pub fn thresholds(&self) -> Thresholds {
+        self.part.settings.thresholds()
+    }
+
+    /// Whether the units came with their channel values (a log; not device lines).
+    pub fn has_values(&self) -> bool {
+        self.part.settings.has_values
+    }
+
+    /// Whether the chart was kept unit by unit (false for a run made from merged parts).
+    pub fn charted(&self) -> bool {
+        self.charted
+    }
+
+    /// The counting so far, as a part (the run's units from the start of its log).
+    pub fn part(&self) -> &RunPart {
+        &self.part
+    }
+
+    /// Every scored unit's score (GO, NO-GO and RECHECK), in unit order.
+    pub fn all_scores(&self) -> &[i64] {
+        &self.part.scores
     }
 
     /// Every scored unit's score (GO, NO-GO and RECHECK: the units the record's histogram
     /// counts), sorted.
     pub fn sorted_all_scores(&self) -> Vec<i64> {
-        let mut s = self.all_scores.clone();
+        let mut s = self.part.scores.clone();
         s.sort_unstable();
         s
     }
@@ -141,21 +183,11 @@ impl FieldRun {
     /// Channel `c`'s count, mean and sample standard deviation (raw units), when the units
     /// came with values.
     pub fn channel(&self, c: usize) -> Option<(u64, f64, f64)> {
-        let m = self.channel.get(c)?;
-        if !self.has_values {
+        let m = &self.part.channel.get(c)?.moments;
+        if !self.has_values() {
             return None;
         }
         Some((m.n, m.mean(), m.sd()))
-    }
-}
-
-/// The FAULT mapping every part of the project uses: a reading out of range is its
-/// channel's, a refused window its signal's, anything else (counts, sensor failure) other.
-pub fn field_fault(e: &SignalFault) -> FieldFault {
-    match e {
-        SignalFault::Reading(Fault::OutOfRange { channel, .. }) => FieldFault::Channel(*channel),
-        SignalFault::Window { signal, .. } => FieldFault::Signal(*signal),
-        _ => FieldFault::Other,
     }
 }
 
@@ -187,8 +219,8 @@ mod tests {
         r.faulted(FieldFault::Channel(0));
         let last_go = r.chart.iter().rev().find(|p| p.go).unwrap();
         assert_eq!((last_go.unit, last_go.down), (5, 65));
-        assert_eq!(r.stats.cusum_go.down, 65);
-        assert_eq!(r.stats.units, 7);
+        assert_eq!(r.stats().cusum_go.down, 65);
+        assert_eq!(r.stats().units, 7);
         assert_eq!(r.channel(0).unwrap().0, 6);
         assert_eq!(r.sorted_all_scores(), vec![-30, 0, 30, 35, 40, 50]);
     }

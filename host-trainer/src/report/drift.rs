@@ -187,6 +187,11 @@ pub fn drift_markdown(r: &DriftReport, chart: Option<&str>) -> String {
     s.push('\n');
     if let Some(c) = chart {
         let _ = writeln!(s, "![CUSUM chart]({c})\n");
+    } else if r.merged {
+        let _ = writeln!(
+            s,
+            "The field was counted in parts and merged: each sum's final state and first alarm are exact, its path is not kept: no chart.\n"
+        );
     } else if r.chart.is_empty() {
         let _ = writeln!(
             s,
@@ -309,4 +314,69 @@ pub fn drift_html(r: &DriftReport) -> String {
     page.push_str(&cusum_svg(r));
     page.push_str("\n</body></html>\n");
     page
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::field::drift::{DriftConfig, Field, Source, drift};
+    use crate::field::run::FieldRun;
+    use crate::field::run_part::RunPart;
+    use crate::release::audit_baseline::{Baseline, CusumRecord, PlanRecord};
+    use shared_model::Thresholds;
+
+    /// A run merged from parts draws no chart and says why; a record's wording stays.
+    #[test]
+    fn a_merged_run_says_why_there_is_no_chart() {
+        let side = CusumRecord {
+            units: 10,
+            mean: 50.0,
+            sd: 10.0,
+            target: 50,
+            slack: 5,
+            limit: 50,
+        };
+        let b = Baseline {
+            log: "holdout".into(),
+            rule: "test".into(),
+            sha256: String::new(),
+            nogo_max: -10,
+            go_min: 10,
+            units: 2,
+            go: 1,
+            nogo: 1,
+            recheck: 0,
+            faults: 0,
+            scores: vec![-60, 60],
+            recheck_scores: Vec::new(),
+            channels: Vec::new(),
+            plan: PlanRecord {
+                blob_id: 1,
+                origin: -100,
+                shift: 3,
+                go: side.clone(),
+                nogo: side,
+            },
+        };
+        let t = Thresholds {
+            nogo_max: -10,
+            go_min: 10,
+        };
+        let mut parts = [0, 1].map(|_| RunPart::new(b.plan.field_plan(), t, 0, 0, true));
+        parts[0].decided(&t.decide(60), None);
+        parts[1].decided(&t.decide(-60), None);
+        let merged = RunPart::merge(&parts[0], &parts[1]).unwrap();
+        let run = FieldRun::from_part(merged).unwrap();
+        let cfg = DriftConfig {
+            alpha: 0.01,
+            two_sided: false,
+        };
+        let r = drift(&b, Field::Run(&run), Source::Log, cfg);
+        assert!(cusum_svg(&r).is_empty());
+        let md = drift_markdown(&r, None);
+        assert!(md.contains("counted in parts and merged"), "{md}");
+        assert!(!md.contains("A device record keeps"), "{md}");
+        let r = drift(&b, Field::Record(&run.stats()), Source::Record, cfg);
+        assert!(drift_markdown(&r, None).contains("A device record keeps"));
+    }
 }

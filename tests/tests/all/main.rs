@@ -12,6 +12,7 @@ mod device;
 mod device_classes;
 mod device_field;
 mod drift;
+mod drift_parts;
 mod features;
 mod field;
 mod house;
