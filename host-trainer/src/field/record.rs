@@ -10,6 +10,7 @@ use shared_model::field::MAX_RECORD_LEN;
 
 use crate::error::InputError;
 use crate::field::run::FieldRun;
+use crate::field::run_part::RunPart;
 use crate::ingest::{LogOptions, SkipReport};
 use crate::train::float_model::FloatModel;
 
@@ -63,6 +64,25 @@ pub fn record_bytes(s: &FieldStats) -> Vec<u8> {
     buf
 }
 
+/// What a field log's units are counted into: a whole run (with its chart) or a part of a
+/// log (one file, merged later in log order).
+pub trait FieldUnits {
+    /// One unit's readings and windows through `model`'s kernel, counted.
+    fn count_unit(&mut self, model: &DeviceModel, readings: &[i32], windows: &[&[i32]]);
+}
+
+impl FieldUnits for FieldRun {
+    fn count_unit(&mut self, model: &DeviceModel, readings: &[i32], windows: &[&[i32]]) {
+        self.unit(model, readings, windows);
+    }
+}
+
+impl FieldUnits for RunPart {
+    fn count_unit(&mut self, model: &DeviceModel, readings: &[i32], windows: &[&[i32]]) {
+        self.unit(model, readings, windows);
+    }
+}
+
 /// Replays the log `path` through `model` (the blob of `fm`) into `run`, unit by unit as
 /// the device steps; returns the units read.
 ///
@@ -74,12 +94,12 @@ pub fn run_log(
     fm: &FloatModel,
     model: &DeviceModel,
     skipped: &mut SkipReport,
-    run: &mut FieldRun,
+    run: &mut (impl FieldUnits + Send),
 ) -> Result<usize, InputError> {
     let mut units = 0usize;
     crate::ingest::stream(path, opts, &fm.channels, &fm.signals, skipped, |u| {
         let windows: Vec<&[i32]> = u.windows.iter().map(Vec::as_slice).collect();
-        run.unit(model, u.raw, &windows);
+        run.count_unit(model, u.raw, &windows);
         units += 1;
         Ok(())
     })?;
