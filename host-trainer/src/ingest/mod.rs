@@ -31,7 +31,7 @@ pub mod draft;
 mod fast;
 mod files;
 mod header;
-pub(crate) mod names;
+pub mod names;
 pub mod options;
 mod parquet;
 mod parquet_cells;
