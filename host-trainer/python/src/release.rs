@@ -161,7 +161,7 @@ impl Release {
         let mut out = Vec::with_capacity(self.fm.channels.len());
         for c in &self.fm.channels {
             let col = c.log_column();
-            let Some(k) = host_trainer::ingest::names::find(&names, col) else {
+            let Some(k) = host_trainer::ingest::find_column(&names, col) else {
                 return Err(errors::log_error(
                     py,
                     format!(
@@ -177,7 +177,7 @@ impl Release {
             if let Some(j) = names
                 .iter()
                 .enumerate()
-                .position(|(j, n)| j != k && host_trainer::ingest::names::same_name(n, col))
+                .position(|(j, n)| j != k && host_trainer::ingest::same_name(n, col))
             {
                 return Err(errors::log_error(
                     py,
@@ -281,7 +281,7 @@ impl Release {
 
     /// Every row of `raw` (`d` per row) through the kernel: the arrays and replay's lines.
     fn decide<'py>(&self, py: Python<'py>, raw: &[i32], d: usize) -> PyResult<Bound<'py, PyDict>> {
-        let n = if d == 0 { 0 } else { raw.len() / d };
+        let n = raw.len().checked_div(d).unwrap_or(0);
         let mut verdict = Vec::with_capacity(n);
         let mut score = Vec::with_capacity(n);
         let mut fault = Vec::with_capacity(n);
@@ -309,7 +309,7 @@ impl Release {
                     score.push(0);
                     fault.push(match e {
                         SignalFault::Reading(Fault::OutOfRange { channel, .. }) => {
-                            i32::try_from(channel).unwrap_or(-2)
+                            i32::from(channel)
                         }
                         _ => -2,
                     });
