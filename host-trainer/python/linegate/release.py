@@ -185,7 +185,9 @@ class Release:
                 if cols
                 else np.zeros((len(data), 0), dtype=np.float64)
             )
-            return self._decisions(self._r.classify(np.ascontiguousarray(x), used, "<DataFrame>"))
+            return self._decisions(
+                self._r.classify(np.ascontiguousarray(x), used, "<DataFrame>")
+            )
         x = np.ascontiguousarray(np.asarray(data, dtype=np.float64))
         if x.ndim != 2:
             from .errors import UsageError
@@ -212,23 +214,26 @@ class Release:
         return self._decisions(self._r.classify_raw(np.ascontiguousarray(x)))
 
     def _decisions(self, d: dict) -> Decisions:
-        names = np.array(d["verdict_names"])
-        verdict = names[d["verdict"]] if len(d["verdict"]) else np.array([], dtype=names.dtype)
-        fc = d["fault_channel"]
-        chans = np.array(list(self.channels) + [""], dtype=object)
-        fault = np.array([f"ch{k}" if k >= 0 else ("" if v != 3 else "other") for k, v in zip(fc, d["verdict"])], dtype=str) if len(fc) else np.array([], dtype=str)
-        fault_channel = chans[np.where(fc >= 0, fc, len(self.channels))].astype(str) if len(fc) else np.array([], dtype=str)
-        cls = self.classes
+        """The native dict of codes → :class:`Decisions` (names looked up by index)."""
+        codes = np.asarray(d["verdict"], dtype=np.intp)
+        verdict = np.array(d["verdict_names"])[codes]
+        fc = np.asarray(d["fault_channel"], dtype=np.intp)
+        n = len(self.channels)
+        # A refused channel k: "ch<k>" (as the device's line says) and its name; -2 is a
+        # fault of another kind (not reachable with a checked column count).
+        tags = np.array([f"ch{k}" for k in range(n)] + ["other", ""])
+        names = np.array(list(self.channels) + ["", ""])
+        pick = np.where(fc >= 0, fc, np.where(codes == 3, n, n + 1))
         class_name = None
-        if cls is not None:
-            cnames = np.array(list(cls) + [""], dtype=object)
-            ci = d["class_index"]
-            class_name = cnames[np.where(ci >= 0, ci, len(cls))].astype(str) if len(ci) else np.array([], dtype=str)
+        if self.classes is not None:
+            ci = np.asarray(d["class_index"], dtype=np.intp)
+            cnames = np.array(list(self.classes) + [""])
+            class_name = cnames[np.where(ci >= 0, ci, len(self.classes))]
         return Decisions(
             verdict=verdict,
             score=d["score"],
-            fault=fault,
-            fault_channel=fault_channel,
+            fault=tags[pick],
+            fault_channel=names[pick],
             class_name=class_name,
             _lines=d["lines"],
         )

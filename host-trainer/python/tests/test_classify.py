@@ -150,3 +150,34 @@ def test_breast_cancer_trained_by_cli_equals_replay(cli, tmp_path):
     decided = d.verdict != "FAULT"
     agree = (d.verdict[decided] == "GO") == (bc.target.to_numpy()[decided] == 1)
     assert agree.mean() > 0.9
+
+
+def test_wine_classes_model_equals_replay(cli, tmp_path):
+    try:
+        from sklearn.datasets import load_wine
+    except ImportError:
+        skipped("scikit-learn missing: the class-model check (pip install scikit-learn)")
+    # scikit-learn's bundled wine set, its three cultivars as three classes (one GO).
+    wine = load_wine(as_frame=True)
+    names = ["good", "second", "third"]
+    df = wine.data.copy()
+    df.columns = [f"c{k}" for k in range(df.shape[1])]
+    df["label"] = [names[t] for t in wine.target]
+    df.to_csv(tmp_path / "wine.csv", index=False)
+    classes = [a for n in names for a in ("--class", f"{n}={n}")]
+    cli(["-q", "train", "wine.csv", *classes, "--go-class", "good", "--no-operating-point", "--c", "1",
+         "-o", "wine.json"], tmp_path)
+    cli(["-q", "pack", "--model", "wine.json", "--train", "wine.csv", "-o", "wine.lgmb", "--override-audit"],
+        tmp_path)
+    r = linegate.Release.load(tmp_path / "wine.json", tmp_path / "wine.lgmb")
+    assert r.classes == names
+    f = df.copy()
+    f.loc[4, "c0"] = 1e6  # out of range: FAULT
+    f.to_csv(tmp_path / "wine-fault.csv", index=False)
+    mine, d = both(r, f)
+    assert mine == replay_device(cli, tmp_path, "wine.json", "wine.lgmb", "wine-fault.csv")
+    assert d.verdict[4] == "FAULT" and d.class_name[4] == ""
+    decided = d.verdict != "FAULT"
+    # Each decided line ends with the leading class's name, as the arrays say.
+    assert all(line.endswith(" " + c) for line, c, ok in zip(d.lines(), d.class_name, decided) if ok)
+    assert "class" in d.to_frame().columns
