@@ -35,6 +35,18 @@ def skipped(what: str) -> None:
     pytest.skip(what)
 
 
+def read_toml(path: Path) -> dict:
+    """A TOML file (a channel sheet) read by Python's tomllib (3.11+) or tomli."""
+    try:
+        import tomllib
+    except ImportError:
+        try:
+            import tomli as tomllib  # type: ignore[no-redef]
+        except ImportError:
+            skipped("no TOML reader (Python 3.11's tomllib, or pip install tomli)")
+    return tomllib.loads(path.read_text(encoding="utf-8"))
+
+
 @pytest.fixture(scope="session")
 def linegate_bin() -> Path:
     b = _binary()

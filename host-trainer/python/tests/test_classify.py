@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 import linegate
-from conftest import replay_device, skipped
+from conftest import read_toml, replay_device, skipped
 
 
 def both(release, frame):
@@ -39,9 +39,7 @@ def test_frame_columns_found_by_name_any_order_any_case(demo, cli):
 def out_of_range(frame, release, demo):
     """The frame with rows pushed outside their channel's range (the sheet's), as
     invented FAULT units: row 3 above channel 0's max, row 10 below channel 2's min."""
-    import tomllib
-
-    sheet = tomllib.loads((demo / "channels.toml").read_text())
+    sheet = read_toml(demo / "channels.toml")
     by = {c["name"]: c for c in sheet["channel"]}
     f = frame.copy()
     c0, c2 = release.channels[0], release.channels[2]
@@ -51,7 +49,6 @@ def out_of_range(frame, release, demo):
 
 
 def test_fault_rows_equal_replay(demo, cli, tmp_path):
-    pytest.importorskip("tomllib")
     r = linegate.Release.load(demo / "model.json", demo / "model.lgmb")
     f = out_of_range(pd.read_csv(demo / "holdout-synthetic.csv"), r, demo)
     f.to_csv(tmp_path / "faults.csv", index=False)

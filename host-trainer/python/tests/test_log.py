@@ -8,6 +8,7 @@ import pandas as pd
 import pytest
 
 import linegate
+from conftest import read_toml
 
 
 def test_read_log_equals_pandas(demo):
@@ -24,9 +25,7 @@ def test_read_log_equals_pandas(demo):
     assert [log.classes[k] for k in log.class_index] == list(ref["verdict"])
     # Physical values are the cells to within half an lsb of each channel (the channel
     # sheet's lsb), and the raw counts are the cells divided by it, rounded.
-    import tomllib
-
-    sheet = {c["name"]: c for c in tomllib.loads((demo / "channels.toml").read_text())["channel"]}
+    sheet = {c["name"]: c for c in read_toml(demo / "channels.toml")["channel"]}
     for k, name in enumerate(log.channels):
         lsb, zero = sheet[name]["lsb"], sheet[name].get("zero", 0.0)
         cells = ref[name].to_numpy(dtype=float)
