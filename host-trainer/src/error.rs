@@ -472,7 +472,84 @@ impl std::fmt::Display for Place {
     }
 }
 
+/// Where an [`InputError`] points: its file, the row (when the error is about one) and
+/// the column's name (when about one), for front ends that carry them as fields.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Location<'a> {
+    /// The file.
+    pub path: &'a std::path::Path,
+    /// The row: a text log's line (from 1) or a Parquet log's row.
+    pub place: Option<Place>,
+    /// The column's (or channel's) name.
+    pub column: Option<&'a str>,
+}
+
 impl InputError {
+    /// The file, row and column this error names (each where it has one).
+    pub fn location(&self) -> Location<'_> {
+        use InputError as E;
+        let (path, place, column) = match self {
+            E::Missing {
+                path, at, column, ..
+            }
+            | E::NotNumeric {
+                path, at, column, ..
+            }
+            | E::NotFinite {
+                path, at, column, ..
+            }
+            | E::BeyondReading {
+                path, at, column, ..
+            }
+            | E::OutOfRange {
+                path, at, column, ..
+            }
+            | E::UnknownLabel {
+                path, at, column, ..
+            }
+            | E::UnmappedLabel {
+                path, at, column, ..
+            } => (path, Some(*at), Some(column)),
+            E::Ragged { path, line, .. }
+            | E::RepeatedHeader { path, line, .. }
+            | E::LineTooLong { path, line, .. }
+            | E::BareCr { path, line }
+            | E::Signal { path, line, .. } => (path, Some(Place::Line(*line)), None),
+            E::AliasClash { path, column, .. }
+            | E::ZeroSpread { path, column, .. }
+            | E::ColumnType { path, column, .. }
+            | E::UnknownColumn {
+                path, name: column, ..
+            } => (path, None, Some(column)),
+            E::Io { path, .. }
+            | E::NotAFile { path, .. }
+            | E::TooLarge { path, .. }
+            | E::Empty { path, .. }
+            | E::DuplicateHeader { path, .. }
+            | E::NoLabel { path, .. }
+            | E::TooManyRows { path, .. }
+            | E::HeaderNotUtf8 { path }
+            | E::NoRows { path, .. }
+            | E::OneClass { path, .. }
+            | E::MoreClasses { path, .. }
+            | E::ClassWithoutUnits { path, .. }
+            | E::NoDirection { path, .. }
+            | E::NotSeparable { path, .. }
+            | E::NoOperatingPoint { path, .. }
+            | E::TooManyChannels { path, .. }
+            | E::NoChannels { path, .. }
+            | E::Sheet { path, .. }
+            | E::Parquet { path, .. }
+            | E::KeyFileOpen { path, .. }
+            | E::Format { path, .. } => (path, None, None),
+        };
+        Location {
+            path,
+            place,
+            column: column.map(String::as_str),
+        }
+    }
+
     /// Wraps an I/O error with its file.
     pub fn io(path: impl Into<PathBuf>, source: std::io::Error) -> Self {
         Self::Io {

@@ -20,6 +20,10 @@
 //! bounds on rates) are the leaves every step uses. Imports point down this
 //! list only: no module imports one that imports it back.
 //!
+//! [`cli`] is the command layer on top of them all (flags, printing; `main.rs` parses
+//! the process's arguments, calls [`cli::run`] and picks the exit code), in the library so
+//! that other front ends (the Python package) run the same commands in process.
+//!
 //! The library returns typed errors; only the `linegate` binary picks exit codes.
 //!
 //! [`Dataset`]: ingest::dataset::Dataset
@@ -48,6 +52,10 @@
 // cold path, so their size does not matter.
 #![allow(clippy::result_large_err)]
 
+// The command layer prints its reports and ends the process quietly when stdout's reader
+// has gone (`say!`); the rest of the library does neither.
+#[allow(clippy::print_stdout, clippy::print_stderr, clippy::exit)]
+pub mod cli;
 pub mod confidence;
 pub mod demo;
 pub mod digest;

@@ -18,8 +18,7 @@
 #![cfg_attr(test, allow(clippy::unwrap_used, clippy::panic))]
 #![allow(clippy::result_large_err)]
 
-mod cli;
-
+use host_trainer::cli;
 use std::io::IsTerminal;
 use std::process::ExitCode;
 

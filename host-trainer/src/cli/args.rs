@@ -4,20 +4,18 @@
 use std::io::IsTerminal;
 use std::path::PathBuf;
 
+use crate::ingest::LogOptions;
+use crate::ingest::dataset::Dataset;
+use crate::project::Setting;
+use crate::release::applying::Apply;
+use crate::release::gates::{AuditConfig, Limit};
+use crate::release::model_gates::{self, GivenGates};
+use crate::release::quantise::QuantConfig;
+use crate::release::sign;
+use crate::train::float_model::FloatModel;
+use crate::workflow::release::{self as release_step, ReleaseLogs, ReleaseOutcome, ReleaseRequest};
 use anyhow::Result;
 use clap::Args;
-use host_trainer::ingest::LogOptions;
-use host_trainer::ingest::dataset::Dataset;
-use host_trainer::project::Setting;
-use host_trainer::release::applying::Apply;
-use host_trainer::release::gates::{AuditConfig, Limit};
-use host_trainer::release::model_gates::{self, GivenGates};
-use host_trainer::release::quantise::QuantConfig;
-use host_trainer::release::sign;
-use host_trainer::train::float_model::FloatModel;
-use host_trainer::workflow::release::{
-    self as release_step, ReleaseLogs, ReleaseOutcome, ReleaseRequest,
-};
 
 #[derive(Args, Clone)]
 pub struct LogArgs {
@@ -48,8 +46,8 @@ pub struct LogArgs {
     /// class (2 to 8; names 1 to 24 bytes). With --class the labels name these classes
     /// instead of GO and NO-GO (--go-labels/--nogo-labels then do not apply), and `train`
     /// trains a model of classes: GO, one failure class, or RECHECK.
-    #[arg(long = "class", value_name = "NAME=TOKEN[,TOKEN…]", value_parser = host_trainer::ingest::classes::parse_class)]
-    pub classes: Vec<host_trainer::ingest::classes::Class>,
+    #[arg(long = "class", value_name = "NAME=TOKEN[,TOKEN…]", value_parser = crate::ingest::classes::parse_class)]
+    pub classes: Vec<crate::ingest::classes::Class>,
     /// Which --class is GO (good units): a class name, or none (diagnosis only: every
     /// class is a failure). Default: the class named GO; without one, name it here.
     #[arg(long, value_name = "NAME|none", requires = "classes")]
@@ -127,8 +125,8 @@ impl LogArgs {
     /// # Errors
     /// The list `Classes::declared` refuses (count, names, tokens, the GO class), naming
     /// the classes and the flag.
-    pub fn declared_classes(&self) -> Result<Option<host_trainer::ingest::classes::Classes>> {
-        use host_trainer::ingest::classes::{Classes, GoClass};
+    pub fn declared_classes(&self) -> Result<Option<crate::ingest::classes::Classes>> {
+        use crate::ingest::classes::{Classes, GoClass};
         if self.classes.is_empty() {
             return Ok(None);
         }
@@ -234,12 +232,11 @@ impl LogArgs {
             let go = rw
                 .go_class
                 .as_deref()
-                .map_or(host_trainer::ingest::classes::GoClass::None, |g| {
-                    host_trainer::ingest::classes::GoClass::parse(g)
+                .map_or(crate::ingest::classes::GoClass::None, |g| {
+                    crate::ingest::classes::GoClass::parse(g)
                 });
             // The model's own list, checked when it was trained.
-            if let Ok(c) = host_trainer::ingest::classes::Classes::declared(rw.classes.clone(), &go)
-            {
+            if let Ok(c) = crate::ingest::classes::Classes::declared(rw.classes.clone(), &go) {
                 took(
                     "--class",
                     c.list
@@ -364,7 +361,7 @@ pub struct ReleaseArgs {
 
 impl ReleaseArgs {
     /// The files this command reads, for the output set: no output may replace one.
-    pub fn name_inputs(&self, set: &mut host_trainer::output::OutputSet) {
+    pub fn name_inputs(&self, set: &mut crate::output::OutputSet) {
         if let Some(m) = &self.model {
             set.input("float model (--model)", m);
         }
@@ -500,7 +497,7 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         &r.validate,
         &opts,
     )?;
-    let noise = host_trainer::release::tolerance::declared_noise(&fm, &r.noise)?;
+    let noise = crate::release::tolerance::declared_noise(&fm, &r.noise)?;
     let given = GivenGates {
         max_false_go: r.max_false_go,
         max_false_nogo: r.max_false_nogo,
@@ -558,6 +555,6 @@ pub fn release_inputs(r: &ReleaseArgs, quiet: bool, mut settings: Vec<Setting>) 
         settings,
         max_misroute: r
             .max_misroute
-            .unwrap_or(host_trainer::release::class_gates::DEFAULT_MISROUTE),
+            .unwrap_or(crate::release::class_gates::DEFAULT_MISROUTE),
     })
 }

@@ -8,9 +8,9 @@ use clap::Args;
 
 use super::args::{Release, ReleaseArgs, release_inputs};
 use super::{CheckFailed, to_json};
-use host_trainer::output::OutputSet;
-use host_trainer::release::units;
-use host_trainer::report;
+use crate::output::OutputSet;
+use crate::release::units;
+use crate::report;
 
 /// Flags of `linegate audit`.
 #[derive(Args)]
@@ -36,7 +36,7 @@ pub struct AuditArgs {
 
 impl AuditArgs {
     /// Runs `linegate audit`.
-    pub fn run(&self, quiet: bool, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
+    pub fn run(&self, quiet: bool, settings: Vec<crate::project::Setting>) -> Result<()> {
         let Self {
             release,
             sweep,
@@ -57,7 +57,7 @@ impl AuditArgs {
         } = &rel;
         let sw = if *sweep {
             let progress = !quiet && std::io::stderr().is_terminal();
-            Some(host_trainer::release::sweep::sweep(
+            Some(crate::release::sweep::sweep(
                 fm, train, &others, *qc, *ac, progress,
             )?)
         } else {
@@ -133,7 +133,7 @@ fn run_classes(args: &AuditArgs, rel: &Release, quiet: bool) -> Result<()> {
         let mut sets = vec![("train", &rel.train)];
         sets.extend(others.iter().copied());
         set.add_written("units CSV (--units)", path, args.force, |w| {
-            host_trainer::release::class_audit::write_class_units_csv(w, &q, fc, &sets)
+            crate::release::class_audit::write_class_units_csv(w, &q, fc, &sets)
         })?;
     }
     set.commit(args.force)?;

@@ -5,8 +5,8 @@
 use anyhow::Result;
 
 use super::args::{Release, command_line};
-use host_trainer::release::class_audit::{ClassAudit, audit_classes, class_blob};
-use host_trainer::release::quantise_classes::{QuantisedClasses, quantise_classes};
+use crate::release::class_audit::{ClassAudit, audit_classes, class_blob};
+use crate::release::quantise_classes::{QuantisedClasses, quantise_classes};
 
 /// Quantises and audits a model of several classes as `audit` and `pack` both do,
 /// naming the blob `pack` writes (signed with the release key, if given).

@@ -7,9 +7,9 @@ use clap::Args;
 
 use super::args::LogArgs;
 use super::{CheckFailed, to_json};
-use host_trainer::ingest::LogOptions;
-use host_trainer::train::separability::{self, Figures};
-use host_trainer::workflow;
+use crate::ingest::LogOptions;
+use crate::train::separability::{self, Figures};
+use crate::workflow;
 
 /// Flags of `linegate check`.
 #[derive(Args)]
@@ -97,7 +97,7 @@ impl CheckArgs {
         // The GO-vs-rest view: +1 for GO, −1 for every other class (a unit's class code is
         // −1, −2… for the failure classes, and the test reads signs).
         let signs: Vec<i8> = ds.labels.iter().map(|l| l.signum()).collect();
-        let task = host_trainer::train::task::Binary::new(&ds, &signs, "GO");
+        let task = crate::train::task::Binary::new(&ds, &signs, "GO");
         let r = separability::check_with(&task, &ds.all(), *epochs, *seed, figures, None);
         if *json {
             say_raw!("{}", to_json(&r));
@@ -116,7 +116,7 @@ impl CheckArgs {
     }
 }
 
-fn print_check(r: &separability::SeparabilityReport, ds: &host_trainer::ingest::dataset::Dataset) {
+fn print_check(r: &separability::SeparabilityReport, ds: &crate::ingest::dataset::Dataset) {
     say!(
         "{} units, {} channels: {}",
         r.units,

@@ -3,15 +3,15 @@
 
 use std::path::{Path, PathBuf};
 
+use crate::field::compare::{self, CompareConfig, Release};
+use crate::field::compare_report;
+use crate::field::score::ReleaseIds;
+use crate::ingest::{LogOptions, SkipReport};
+use crate::output::OutputSet;
+use crate::release::values;
+use crate::train::float_model::FloatModel;
 use anyhow::{Result, bail};
 use clap::Args;
-use host_trainer::field::compare::{self, CompareConfig, Release};
-use host_trainer::field::compare_report;
-use host_trainer::field::score::ReleaseIds;
-use host_trainer::ingest::{LogOptions, SkipReport};
-use host_trainer::output::OutputSet;
-use host_trainer::release::values;
-use host_trainer::train::float_model::FloatModel;
 
 use super::CheckFailed;
 use super::args::LogArgs;
@@ -98,11 +98,7 @@ fn parse_confidence(s: &str) -> Result<f64, String> {
 impl CompareArgs {
     /// Runs `linegate compare`: both releases over the log, the outputs written all or
     /// nothing, then the gate (exit 1 when it fails).
-    pub fn run(
-        &self,
-        quiet: bool,
-        mut settings: Vec<host_trainer::project::Setting>,
-    ) -> Result<()> {
+    pub fn run(&self, quiet: bool, mut settings: Vec<crate::project::Setting>) -> Result<()> {
         let files = super::log_files(&self.log, "name the field log (or several files of it)")?;
         let model_a = super::settings::required(&self.model, "--model", "[outputs] model")?;
         let fm_a = FloatModel::read(model_a)?;
@@ -171,7 +167,7 @@ impl CompareArgs {
         model_path: &Path,
         blob: Option<&Path>,
         quiet: bool,
-        settings: &mut Vec<host_trainer::project::Setting>,
+        settings: &mut Vec<crate::project::Setting>,
     ) -> Result<Release<'a>> {
         let (model, ids) = match blob {
             Some(path) => {
@@ -184,7 +180,7 @@ impl CompareArgs {
             }
             None => {
                 let m = values::plain_model(fm, self.input_bits, self.weight_bits)?;
-                let id = host_trainer::digest::lower_hex(&m.model().model_id);
+                let id = crate::digest::lower_hex(&m.model().model_id);
                 let ids = ReleaseIds {
                     model_line: format!("# model {id}"),
                     model_id: id,

@@ -5,7 +5,7 @@ use std::path::{Path, PathBuf};
 use anyhow::Result;
 use clap::Args;
 
-use host_trainer::demo;
+use crate::demo;
 
 /// Flags of `linegate demo`.
 #[derive(Args)]
@@ -75,7 +75,7 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
         );
     }
     let a = &r.audit;
-    let count = |f: fn(&host_trainer::release::audit_report::SetSummary) -> usize| -> usize {
+    let count = |f: fn(&crate::release::audit_report::SetSummary) -> usize| -> usize {
         a.sets.iter().map(f).sum()
     };
     say!(
@@ -90,7 +90,7 @@ fn print_demo(s: &demo::DemoSummary, out: &Path, took: std::time::Duration) {
         a.bound.total
     );
     if let Some((on_drift, on_train)) = &r.drift {
-        let verdict = |d: &host_trainer::field::drift::DriftReport| {
+        let verdict = |d: &crate::field::drift::DriftReport| {
             if d.in_control() {
                 "in control".to_string()
             } else {

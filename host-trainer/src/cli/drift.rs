@@ -3,14 +3,14 @@
 
 use std::path::{Path, PathBuf};
 
+use crate::field::baseline::{self, AuditBaseline};
+use crate::field::drift::{DriftConfig, DriftReport, Field, Source, drift};
+use crate::field::{device_lines, record, run::FieldRun};
+use crate::ingest::{LogOptions, SkipReport};
+use crate::output::OutputSet;
+use crate::train::float_model::FloatModel;
 use anyhow::{Result, bail};
 use clap::Args;
-use host_trainer::field::baseline::{self, AuditBaseline};
-use host_trainer::field::drift::{DriftConfig, DriftReport, Field, Source, drift};
-use host_trainer::field::{device_lines, record, run::FieldRun};
-use host_trainer::ingest::{LogOptions, SkipReport};
-use host_trainer::output::OutputSet;
-use host_trainer::train::float_model::FloatModel;
 use shared_model::Thresholds;
 
 use super::CheckFailed;
@@ -73,11 +73,7 @@ pub struct DriftArgs {
 
 impl DriftArgs {
     /// Runs `linegate drift`.
-    pub fn run(
-        &self,
-        quiet: bool,
-        mut settings: Vec<host_trainer::project::Setting>,
-    ) -> Result<()> {
+    pub fn run(&self, quiet: bool, mut settings: Vec<crate::project::Setting>) -> Result<()> {
         let given = super::settings::required(&self.audit, "--audit", "[outputs] audit_dir")?;
         let audit_path = if given.is_dir() {
             given.join("audit.json")
@@ -158,18 +154,15 @@ impl DriftArgs {
             if p.extension()
                 .is_some_and(|e| e.eq_ignore_ascii_case("html"))
             {
-                set.add(p, host_trainer::report::drift_html(&report));
+                set.add(p, crate::report::drift_html(&report));
             } else {
-                let svg = host_trainer::report::cusum_svg(&report);
+                let svg = crate::report::cusum_svg(&report);
                 let chart = (!svg.is_empty()).then(|| chart_path(p));
                 let name = chart
                     .as_ref()
                     .and_then(|c| c.file_name())
                     .map(|n| n.to_string_lossy().into_owned());
-                set.add(
-                    p,
-                    host_trainer::report::drift_markdown(&report, name.as_deref()),
-                );
+                set.add(p, crate::report::drift_markdown(&report, name.as_deref()));
                 if let Some(c) = chart {
                     set.add(c, svg);
                 }
@@ -204,7 +197,7 @@ impl DriftArgs {
         quiet: bool,
         audit: &AuditBaseline,
         thresholds: Thresholds,
-        settings: &mut Vec<host_trainer::project::Setting>,
+        settings: &mut Vec<crate::project::Setting>,
     ) -> Result<(FieldRun, Vec<String>)> {
         let (Some(model), Some(blob)) = (&self.model, &self.blob) else {
             bail!(

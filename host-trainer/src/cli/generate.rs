@@ -5,7 +5,7 @@ use std::path::PathBuf;
 use anyhow::{Result, bail};
 use clap::Args;
 
-use host_trainer::output::OutputSet;
+use crate::output::OutputSet;
 
 /// Flags of `linegate generate`.
 #[derive(Args)]
@@ -55,22 +55,22 @@ impl GenerateArgs {
             bail!("--channels must be 1..={}", shared_model::MAX_CHANNELS);
         }
         if *classes > 2 {
-            host_trainer::synth::class_margin(*channels, *classes, *margin, *seed)?;
+            crate::synth::class_margin(*channels, *classes, *margin, *seed)?;
         } else if *classes == 2 {
-            host_trainer::synth::check_margin(*channels, *margin, *seed)?;
+            crate::synth::check_margin(*channels, *margin, *seed)?;
         } else {
             bail!("--classes {classes}: a log has 2 to 8 classes");
         }
         let mut log = Vec::new();
         // The file says what it holds: Parquet for .parquet and .pq, tab-separated for
         // .tsv, .tab and .txt, comma-separated otherwise.
-        if host_trainer::synth::is_parquet_path(output) {
-            host_trainer::synth::write_class_log_parquet(
+        if crate::synth::is_parquet_path(output) {
+            crate::synth::write_class_log_parquet(
                 &mut log, *rows, *channels, *classes, *margin, *seed,
             )?;
         } else {
-            let delimiter = host_trainer::synth::delimiter_for(output);
-            host_trainer::synth::write_class_log_delimited(
+            let delimiter = crate::synth::delimiter_for(output);
+            crate::synth::write_class_log_delimited(
                 &mut log, *rows, *channels, *classes, *margin, *seed, delimiter,
             )?;
         }
@@ -79,7 +79,7 @@ impl GenerateArgs {
         set.add_as(
             "channel sheet (the log's name with .toml)",
             output.with_extension("toml"),
-            host_trainer::synth::sheet(*channels),
+            crate::synth::sheet(*channels),
         );
         for f in set.commit(*force)? {
             if !quiet {

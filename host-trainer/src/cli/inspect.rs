@@ -6,7 +6,7 @@ use anyhow::Result;
 use clap::Args;
 
 use super::{CheckFailed, to_json};
-use host_trainer::release::{blob_match, image, pack};
+use crate::release::{blob_match, image, pack};
 
 /// Flags of `linegate inspect`.
 #[derive(Args)]

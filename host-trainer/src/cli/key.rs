@@ -2,11 +2,11 @@
 
 use std::path::PathBuf;
 
+use crate::digest::lower_hex;
+use crate::output::OutputSet;
+use crate::release::sign;
 use anyhow::Result;
 use clap::{Args, Subcommand};
-use host_trainer::digest::lower_hex;
-use host_trainer::output::OutputSet;
-use host_trainer::release::sign;
 
 /// Flags of `linegate key`.
 #[derive(Args)]

@@ -34,6 +34,7 @@ mod generate;
 mod inspect;
 mod key;
 mod pack;
+pub mod read_log;
 mod replay;
 pub mod settings;
 mod sheet;
@@ -44,6 +45,7 @@ mod values;
 use anyhow::Result;
 use clap::{Parser, Subcommand};
 
+/// The command line: global flags and the subcommand.
 #[derive(Parser)]
 #[command(
     name = "linegate",
@@ -83,6 +85,7 @@ pub struct Cli {
     /// Ignore linegate.toml in the working folder.
     #[arg(long, global = true, conflicts_with = "project")]
     pub no_project: bool,
+    /// The subcommand to run.
     #[command(subcommand)]
     pub cmd: Cmd,
 }
@@ -171,23 +174,22 @@ impl std::error::Error for CheckFailed {}
 /// Reads the blob file at `blob` (bounded as an image) and checks it is a blob of `fm`
 /// ([`blob_of_model`]): its bytes and the model it holds.
 fn read_blob_of_model(
-    fm: &host_trainer::train::float_model::FloatModel,
+    fm: &crate::train::float_model::FloatModel,
     blob: &std::path::Path,
     model: &std::path::Path,
-) -> Result<(Vec<u8>, host_trainer::release::pack::DeviceModel)> {
-    let bytes =
-        host_trainer::input::read_bounded(blob, "model blob", host_trainer::input::MAX_IMAGE_FILE)?;
+) -> Result<(Vec<u8>, crate::release::pack::DeviceModel)> {
+    let bytes = crate::input::read_bounded(blob, "model blob", crate::input::MAX_IMAGE_FILE)?;
     let m = blob_of_model(fm, &bytes, blob, model)?;
     Ok((bytes, m))
 }
 
 fn blob_of_model(
-    fm: &host_trainer::train::float_model::FloatModel,
+    fm: &crate::train::float_model::FloatModel,
     bytes: &[u8],
     blob: &std::path::Path,
     model: &std::path::Path,
-) -> Result<host_trainer::release::pack::DeviceModel> {
-    use host_trainer::release::matching::{BlobMismatch, decode_from};
+) -> Result<crate::release::pack::DeviceModel> {
+    use crate::release::matching::{BlobMismatch, decode_from};
     decode_from(fm, bytes).map_err(|e| match e {
         BlobMismatch::Decode(e) => anyhow::Error::new(CheckFailed(format!("{}: {e}", blob.display()))),
         BlobMismatch::Mismatch(e) => anyhow::Error::new(CheckFailed(format!(
@@ -201,13 +203,13 @@ fn blob_of_model(
 /// A log of several files named as `Dataset::name` names it: the first, and how many more.
 fn files_name(files: &[std::path::PathBuf]) -> std::path::PathBuf {
     files.first().map_or_else(std::path::PathBuf::new, |first| {
-        host_trainer::ingest::dataset::log_name(first, files.len())
+        crate::ingest::dataset::log_name(first, files.len())
     })
 }
 
 /// Says on stderr how many rows of `path` were skipped as unreadable (`--skip-bad-rows`),
 /// by reason: a skipped row is a unit the report does not show, so it is never silent.
-fn warn_skipped(path: &std::path::Path, skipped: &host_trainer::ingest::SkipReport) {
+fn warn_skipped(path: &std::path::Path, skipped: &crate::ingest::SkipReport) {
     if skipped.total > 0 {
         let reasons: Vec<String> = skipped
             .by_reason
@@ -237,13 +239,13 @@ fn warn_skipped(path: &std::path::Path, skipped: &host_trainer::ingest::SkipRepo
 /// declared one), and a sheet channel the log does not have is not used.
 fn warn_sheet(
     log: &std::path::Path,
-    ds: &host_trainer::ingest::dataset::Dataset,
+    ds: &crate::ingest::dataset::Dataset,
     sheet: Option<&(
-        host_trainer::ingest::sheet::ChannelSheet,
-        host_trainer::train::float_model::InputFile,
+        crate::ingest::sheet::ChannelSheet,
+        crate::train::float_model::InputFile,
     )>,
 ) {
-    use host_trainer::ingest::sheet_findings::{SheetFinding, sheet_findings};
+    use crate::ingest::sheet_findings::{SheetFinding, sheet_findings};
     let Some((sheet, file)) = sheet else { return };
     for finding in sheet_findings(sheet, ds) {
         match finding {
@@ -274,7 +276,7 @@ fn log_files(given: &[std::path::PathBuf], how: &str) -> Result<Vec<std::path::P
     if given.is_empty() {
         anyhow::bail!("no log given: {how}");
     }
-    Ok(host_trainer::input::expand_files(given)?)
+    Ok(crate::input::expand_files(given)?)
 }
 
 /// Text from a file made safe for a terminal: control characters (an escape sequence in a
@@ -303,10 +305,10 @@ fn to_json<T: serde::Serialize>(v: &T) -> String {
 ///
 /// # Errors
 /// [`CheckFailed`] when a check ran and failed; any other error for usage, input or output.
-pub fn run(cli: &Cli, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
+pub fn run(cli: &Cli, settings: Vec<crate::project::Setting>) -> Result<()> {
     let quiet = cli.quiet;
     if !quiet {
-        host_trainer::progress::install(|l| eprintln!("{l}"));
+        crate::progress::install(|l| eprintln!("{l}"));
     }
     settings::announce(&settings, quiet);
     match &cli.cmd {

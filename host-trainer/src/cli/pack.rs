@@ -7,9 +7,9 @@ use clap::Args;
 
 use super::CheckFailed;
 use super::args::{ReleaseArgs, release_inputs};
-use host_trainer::output::OutputSet;
-use host_trainer::release::audit_record::{AuditRecord, Release as Record};
-use host_trainer::release::hex;
+use crate::output::OutputSet;
+use crate::release::audit_record::{AuditRecord, Release as Record};
+use crate::release::hex;
 
 /// Flags of `linegate pack`.
 #[derive(Args)]
@@ -43,7 +43,7 @@ pub struct PackArgs {
 
 impl PackArgs {
     /// Runs `linegate pack`.
-    pub fn run(&self, quiet: bool, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
+    pub fn run(&self, quiet: bool, settings: Vec<crate::project::Setting>) -> Result<()> {
         let Self {
             release, output, ..
         } = self;
@@ -233,7 +233,7 @@ fn pack_classes(
     output: &std::path::Path,
 ) -> Result<()> {
     let (q, r) = super::audit_classes::release(rel, quiet)?;
-    let blob = host_trainer::release::class_audit::class_blob(&q, r.passed, rel.signer.as_ref());
+    let blob = crate::release::class_audit::class_blob(&q, r.passed, rel.signer.as_ref());
     let sets: Vec<(String, String)> = r
         .sets
         .iter()

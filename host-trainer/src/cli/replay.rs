@@ -4,16 +4,16 @@
 
 use std::path::PathBuf;
 
+use crate::field::score::{self, Form, Printer, ReleaseIds};
+use crate::ingest::LogOptions;
 use anyhow::Result;
 use clap::Args;
-use host_trainer::field::score::{self, Form, Printer, ReleaseIds};
-use host_trainer::ingest::LogOptions;
 
 use super::CheckFailed;
 use super::args::LogArgs;
-use host_trainer::output::OutputSet;
-use host_trainer::release::{replay, sign};
-use host_trainer::train::float_model::FloatModel;
+use crate::output::OutputSet;
+use crate::release::{replay, sign};
+use crate::train::float_model::FloatModel;
 
 /// Flags of `linegate replay`.
 #[derive(Args)]
@@ -88,11 +88,7 @@ impl From<FormArg> for Form {
 impl ReplayArgs {
     /// Runs `linegate replay`. Every check that can fail on the blob, the model, the key or
     /// the log's header runs before the first line is printed.
-    pub fn run(
-        &self,
-        quiet: bool,
-        mut settings: Vec<host_trainer::project::Setting>,
-    ) -> Result<()> {
+    pub fn run(&self, quiet: bool, mut settings: Vec<crate::project::Setting>) -> Result<()> {
         let model = super::settings::required(&self.model, "--model", "[outputs] model")?;
         let blob = super::settings::required(&self.blob, "--blob", "[outputs] blob")?;
         let fm = FloatModel::read(model)?;
@@ -115,7 +111,7 @@ impl ReplayArgs {
             .vectors
             .as_ref()
             .map(|_| replay::model_line(&m, &bytes));
-        let mut skipped = host_trainer::ingest::SkipReport::default();
+        let mut skipped = crate::ingest::SkipReport::default();
         // New units have no verdict yet: replay scores logs without a label column.
         // Replay prints no digest of the log, so it hashes none. Timestamps are kept for
         // the forms that show them.

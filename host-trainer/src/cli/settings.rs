@@ -7,9 +7,9 @@
 use std::ffi::OsString;
 use std::path::{Path, PathBuf};
 
+use crate::project::{Injected, PROJECT_FILE, Project, Setting};
 use clap::parser::ValueSource;
 use clap::{ArgMatches, CommandFactory, FromArgMatches};
-use host_trainer::project::{Injected, PROJECT_FILE, Project, Setting};
 
 use super::Cli;
 
@@ -26,10 +26,7 @@ fn command() -> clap::Command {
     let c = Cli::command();
     let about = c
         .get_long_about()
-        .map(|a| {
-            a.to_string()
-                .replace("{KEYS}", &host_trainer::project::key_list())
-        })
+        .map(|a| a.to_string().replace("{KEYS}", &crate::project::key_list()))
         .unwrap_or_default();
     c.long_about(about)
 }
@@ -64,8 +61,14 @@ pub fn parse() -> Parsed {
     }
 }
 
-/// [`parse`] of the given arguments.
-fn parse_from(args: &[OsString]) -> Result<Parsed, clap::Error> {
+/// [`parse`] of the given argument list (the program name first, as
+/// `std::env::args_os` gives it), with the same project-file handling; help, version and
+/// usage errors come back as clap's error (its `kind()` says which) instead of exiting,
+/// so a front end running commands in process decides what they become.
+///
+/// # Errors
+/// clap's error for help, version, a usage error or an unreadable project file.
+pub fn parse_from(args: &[OsString]) -> Result<Parsed, clap::Error> {
     let first = command().try_get_matches_from(args)?;
     let Some((sub, given)) = first.subcommand().map(|(s, m)| (s.to_string(), m.clone())) else {
         return Cli::from_arg_matches(&first).map(|cli| Parsed {

@@ -6,7 +6,7 @@ use anyhow::Result;
 use clap::Args;
 
 use super::args::LogArgs;
-use host_trainer::output::OutputSet;
+use crate::output::OutputSet;
 
 /// Flags of `linegate sheet`.
 #[derive(Args)]
@@ -34,7 +34,7 @@ impl SheetArgs {
             &self.log,
             "name the bench log (or several files of it), or set [logs] train in the project file",
         )?;
-        let draft = host_trainer::ingest::draft::draft_sheet(&files, &opts)?;
+        let draft = crate::ingest::draft::draft_sheet(&files, &opts)?;
         if !quiet {
             super::warn_skipped(&files[0], &draft.skipped);
         }

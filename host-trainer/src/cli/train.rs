@@ -1,6 +1,6 @@
 //! `linegate train`: a float model from a bench log, with holdout and cross-validation.
 
-use host_trainer::confidence::rate_text;
+use crate::confidence::rate_text;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 
@@ -9,15 +9,15 @@ use clap::Args;
 
 use super::args::LogArgs;
 use super::to_json;
-use host_trainer::output::OutputSet;
-use host_trainer::release::gates::Limit;
-use host_trainer::release::point_record::HeldOutRates;
-use host_trainer::train::c_choice::{self, CPolicy};
-use host_trainer::train::eval::TrainerKind;
-use host_trainer::train::float_model::HoldoutSplit;
-use host_trainer::train::operating_point::Target;
-use host_trainer::train::svm::ClassWeight;
-use host_trainer::workflow::{self, CvTrainers};
+use crate::output::OutputSet;
+use crate::release::gates::Limit;
+use crate::release::point_record::HeldOutRates;
+use crate::train::c_choice::{self, CPolicy};
+use crate::train::eval::TrainerKind;
+use crate::train::float_model::HoldoutSplit;
+use crate::train::operating_point::Target;
+use crate::train::svm::ClassWeight;
+use crate::workflow::{self, CvTrainers};
 
 /// Flags of `linegate train`.
 #[derive(Args)]
@@ -126,12 +126,12 @@ pub struct TrainArgs {
     /// maximum margin (Crammer–Singer, penalty --c, trained on standard scores).
     /// Default: one-vs-rest. Only with --class.
     #[arg(long, value_enum, value_name = "one-vs-rest|joint")]
-    pub class_rule: Option<host_trainer::train::class_rows::ClassRule>,
+    pub class_rule: Option<crate::train::class_rows::ClassRule>,
 }
 
 impl TrainArgs {
     /// Runs `linegate train`.
-    pub fn run(&self, quiet: bool, settings: Vec<host_trainer::project::Setting>) -> Result<()> {
+    pub fn run(&self, quiet: bool, settings: Vec<crate::project::Setting>) -> Result<()> {
         let Self {
             log,
             log_args,
@@ -226,7 +226,7 @@ impl TrainArgs {
                 files: &files,
                 holdout,
                 sheet_path: self.sheet.as_deref(),
-                rule: class_rule.unwrap_or(host_trainer::train::class_rows::ClassRule::OneVsRest),
+                rule: class_rule.unwrap_or(crate::train::class_rows::ClassRule::OneVsRest),
                 trainer: *trainer,
                 epochs: *epochs,
                 seed: *seed,
@@ -253,7 +253,7 @@ impl TrainArgs {
             ),
             (None, None, false) => Some(Target::RecheckBudget {
                 share: recheck_budget
-                    .unwrap_or(host_trainer::train::operating_point::DEFAULT_RECHECK_BUDGET),
+                    .unwrap_or(crate::train::operating_point::DEFAULT_RECHECK_BUDGET),
                 false_go_weight: *false_go_weight,
             }),
         };
@@ -273,7 +273,7 @@ impl TrainArgs {
             read_with: Some((&opts).into()),
             settings,
             progress: !quiet && std::io::stderr().is_terminal(),
-            figures: host_trainer::train::separability::Figures::VERDICT,
+            figures: crate::train::separability::Figures::VERDICT,
         };
         let mut out = workflow::train_model(&ds, sheet.as_ref().map(|(_, f)| f), &req)?;
         if !quiet {
@@ -287,7 +287,7 @@ impl TrainArgs {
         let holdout_files = if holdout.is_empty() {
             Vec::new()
         } else {
-            host_trainer::input::expand_files(holdout)?
+            crate::input::expand_files(holdout)?
         };
         if !holdout_files.is_empty() {
             let hd = workflow::load_for_model(&holdout_files, &opts, &out.model)?;
@@ -328,7 +328,7 @@ impl TrainArgs {
 /// Says on stderr which channels had no declared range: their valid range is the training
 /// units' observed one widened by half its span, so a later unit beyond it is a FAULT (the
 /// device answers NO-GO), and its lsb was chosen from that range.
-fn warn_observed(ds: &host_trainer::ingest::dataset::Dataset, sheet: bool) {
+fn warn_observed(ds: &crate::ingest::dataset::Dataset, sheet: bool) {
     let observed: Vec<&str> = ds
         .scales
         .iter()
@@ -468,7 +468,7 @@ fn parse_share(s: &str) -> Result<f64, String> {
 }
 
 /// `--class-weight`: `GO,NOGO` multipliers, or `balanced` from the log's class counts.
-fn parse_class_weight(s: &str, ds: &host_trainer::ingest::dataset::Dataset) -> Result<ClassWeight> {
+fn parse_class_weight(s: &str, ds: &crate::ingest::dataset::Dataset) -> Result<ClassWeight> {
     if s.trim().eq_ignore_ascii_case("balanced") {
         let go = ds.labels.iter().filter(|&&l| l > 0).count().max(1) as f64;
         let nogo = (ds.len() as f64 - go).max(1.0);

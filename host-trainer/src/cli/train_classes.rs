@@ -5,19 +5,19 @@ use std::path::{Path, PathBuf};
 
 use anyhow::Result;
 
-use host_trainer::confidence::{Rate, rate_text};
-use host_trainer::ingest::LogOptions;
-use host_trainer::ingest::dataset::Dataset;
-use host_trainer::ingest::sheet::ChannelSheet;
-use host_trainer::output::OutputSet;
-use host_trainer::release::gates::Limit;
-use host_trainer::train::c_choice::CPolicy;
-use host_trainer::train::class_point::{ClassCounts, ClassTarget};
-use host_trainer::train::class_rows::ClassRule;
-use host_trainer::train::class_train::{ClassOutcome, ClassRequest, train_classes};
-use host_trainer::train::eval::TrainerKind;
-use host_trainer::train::float_model::{HoldoutSplit, InputFile};
-use host_trainer::workflow;
+use crate::confidence::{Rate, rate_text};
+use crate::ingest::LogOptions;
+use crate::ingest::dataset::Dataset;
+use crate::ingest::sheet::ChannelSheet;
+use crate::output::OutputSet;
+use crate::release::gates::Limit;
+use crate::train::c_choice::CPolicy;
+use crate::train::class_point::{ClassCounts, ClassTarget};
+use crate::train::class_rows::ClassRule;
+use crate::train::class_train::{ClassOutcome, ClassRequest, train_classes};
+use crate::train::eval::TrainerKind;
+use crate::train::float_model::{HoldoutSplit, InputFile};
+use crate::workflow;
 
 use super::to_json;
 
@@ -52,11 +52,11 @@ impl ClassRun<'_> {
         held: Option<Dataset>,
         holdout_split: Option<HoldoutSplit>,
         sheet: Option<(ChannelSheet, InputFile)>,
-        settings: Vec<host_trainer::project::Setting>,
+        settings: Vec<crate::project::Setting>,
     ) -> Result<()> {
         let share = self
             .recheck_budget
-            .unwrap_or(host_trainer::train::operating_point::DEFAULT_RECHECK_BUDGET);
+            .unwrap_or(crate::train::operating_point::DEFAULT_RECHECK_BUDGET);
         let target = match (&self.false_go_target, self.no_operating_point) {
             (_, true) => ClassTarget::Smallest,
             (Some(Limit::Upper { rate, confidence }), _) => ClassTarget::FalseGo {
@@ -113,7 +113,7 @@ impl ClassRun<'_> {
         let holdout_files = if self.holdout.is_empty() {
             Vec::new()
         } else {
-            host_trainer::input::expand_files(self.holdout)?
+            crate::input::expand_files(self.holdout)?
         };
         if !holdout_files.is_empty() {
             let hd = workflow::load_for_model(&holdout_files, opts, &out.model)?;
@@ -234,7 +234,7 @@ fn print_classes(o: &ClassOutcome, path: &Path) {
         let fg = Rate::new(
             g.counts.false_go as u64,
             g.failure_units as u64,
-            host_trainer::confidence::DEFAULT_CONFIDENCE,
+            crate::confidence::DEFAULT_CONFIDENCE,
         );
         say!(
             "  on those units: false GO {}; GO lost {}; misrouted {}; RECHECK {} of {}",

@@ -1,15 +1,15 @@
 //! `linegate values`: each unit's channel values as the device computes them (physical,
 //! raw, scaled input), its score and its replay line, as a table, CSV or JSON.
 
-use host_trainer::release::pack::DeviceModel;
+use crate::release::pack::DeviceModel;
 use std::path::PathBuf;
 
+use crate::ingest::{LogOptions, SkipReport};
+use crate::release::replay;
+use crate::release::values::{self, ChannelInfo, Selection, UnitValues};
+use crate::train::float_model::FloatModel;
 use anyhow::Result;
 use clap::Args;
-use host_trainer::ingest::{LogOptions, SkipReport};
-use host_trainer::release::replay;
-use host_trainer::release::values::{self, ChannelInfo, Selection, UnitValues};
-use host_trainer::train::float_model::FloatModel;
 
 /// The blob's model: of readings or with signal features.
 type Model = DeviceModel;
@@ -82,11 +82,7 @@ pub struct ValuesArgs {
 impl ValuesArgs {
     /// Runs `linegate values`. Nothing is printed unless the whole log was read and every
     /// unit asked for was found.
-    pub fn run(
-        &self,
-        quiet: bool,
-        mut settings: Vec<host_trainer::project::Setting>,
-    ) -> Result<()> {
+    pub fn run(&self, quiet: bool, mut settings: Vec<crate::project::Setting>) -> Result<()> {
         let model_path = super::settings::required(&self.model, "--model", "[outputs] model")?;
         let fm = FloatModel::read(model_path)?;
         let (model, blob) = self.device_model(&fm)?;
@@ -138,7 +134,7 @@ impl ValuesArgs {
 
     /// The table's first line: replay's model line, or what stands in for the blob.
     fn head(&self, model_line: Option<&str>, model: &Model) -> String {
-        let id = host_trainer::digest::lower_hex(&model.model().model_id);
+        let id = crate::digest::lower_hex(&model.model().model_id);
         match model_line {
             Some(line) => line.to_string(),
             // A class model's rows are rounded plainly, as its blob's are; its score is

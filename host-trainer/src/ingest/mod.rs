@@ -58,6 +58,8 @@ mod skip;
 mod tests;
 
 pub use files::{ModelUnit, read, stream};
+/// The column of a name and the name rule, as the reader finds a channel's column.
+pub use names::{find as find_column, same_name};
 pub use options::{
     GO_TOKENS, LABEL_NAMES, LogOptions, MAX_READING, NOGO_TOKENS, ScaleFrom, TIME_NAMES, UNIT_NAMES,
 };

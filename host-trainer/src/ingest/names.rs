@@ -12,7 +12,7 @@ use std::path::Path;
 use crate::error::{InputError, shell_word, shown};
 
 /// Whether two names are the same name (ASCII case-insensitively).
-pub(crate) fn same_name(a: &str, b: &str) -> bool {
+pub fn same_name(a: &str, b: &str) -> bool {
     a.eq_ignore_ascii_case(b)
 }
 
@@ -95,7 +95,7 @@ fn duplicate(path: &Path, names: &[String], j: usize, i: usize) -> InputError {
 }
 
 /// The column named `wanted` (the first, by [`same_name`]), if any.
-pub(crate) fn find(names: &[String], wanted: &str) -> Option<usize> {
+pub fn find(names: &[String], wanted: &str) -> Option<usize> {
     names.iter().position(|n| same_name(n, wanted))
 }
 
