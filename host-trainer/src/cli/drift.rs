@@ -75,11 +75,7 @@ impl DriftArgs {
     /// Runs `linegate drift`.
     pub fn run(&self, quiet: bool, mut settings: Vec<crate::project::Setting>) -> Result<()> {
         let given = super::settings::required(&self.audit, "--audit", "[outputs] audit_dir")?;
-        let audit_path = if given.is_dir() {
-            given.join("audit.json")
-        } else {
-            given.to_path_buf()
-        };
+        let audit_path = audit_record(given);
         let audit = baseline::read(&audit_path)?;
         if self.plan {
             say!("{}", baseline::plan_text(&audit).trim_end());
@@ -209,14 +205,7 @@ impl DriftArgs {
         // which a CI job reads as drift.
         let (bytes, m) =
             super::read_blob_of_model(&fm, blob, model).map_err(|e| anyhow::anyhow!("{e}"))?;
-        let id = format!("{:08x}", shared_model::blob::blob_id(&bytes).unwrap_or(0));
-        if id != audit.blob_id || Thresholds::of(m.model()) != thresholds {
-            bail!(
-                "{}: blob {id} is not the blob the audit named ({}): give the audited blob",
-                blob.display(),
-                audit.blob_id
-            );
-        }
+        the_audited_blob(audit, blob, &bytes, &m, thresholds)?;
         let opts = LogOptions {
             label_optional: true,
             digest: false,
@@ -240,6 +229,35 @@ impl DriftArgs {
             }
         }
         Ok((run, files.iter().map(|f| f.display().to_string()).collect()))
+    }
+}
+
+/// Refuses a blob that is not the one the audit named (its id, or the thresholds its
+/// baseline was measured against): exit 2, not an alarm, which a CI job reads as drift.
+pub(super) fn the_audited_blob(
+    audit: &AuditBaseline,
+    blob: &Path,
+    bytes: &[u8],
+    m: &crate::release::pack::DeviceModel,
+    thresholds: Thresholds,
+) -> Result<()> {
+    let id = format!("{:08x}", shared_model::blob::blob_id(bytes).unwrap_or(0));
+    if id != audit.blob_id || Thresholds::of(m.model()) != thresholds {
+        bail!(
+            "{}: blob {id} is not the blob the audit named ({}): give the audited blob",
+            blob.display(),
+            audit.blob_id
+        );
+    }
+    Ok(())
+}
+
+/// The audit record at `given` (its `audit.json`, or the folder holding it).
+pub(super) fn audit_record(given: &Path) -> PathBuf {
+    if given.is_dir() {
+        given.join("audit.json")
+    } else {
+        given.to_path_buf()
     }
 }
 

@@ -34,6 +34,7 @@ mod generate;
 mod inspect;
 mod key;
 mod pack;
+pub mod parts;
 pub mod read_log;
 mod replay;
 pub mod settings;

@@ -1,0 +1,168 @@
+//! Audit, replay and drift by parts: one file of a log per call (`host_trainer::cli::parts`:
+//! the file read and checked as the command reads a log), the part as `bytes` (so an engine
+//! moves it between processes), the library's exact merges, and the finished result as
+//! JSON. `linegate/parts.py` says what merges how; `linegate/dask.py` runs them on Dask.
+
+use std::path::PathBuf;
+
+use host_trainer::cli::parts as cmd;
+use host_trainer::field::drift::DriftConfig;
+use host_trainer::field::replay_part::ReplayPart;
+use host_trainer::release::audit_part::AuditPart;
+use pyo3::prelude::*;
+use pyo3::types::PyBytes;
+
+use crate::errors;
+
+/// Adds the parts' functions to the module.
+pub fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    m.add_function(wrap_pyfunction!(audit_part, m)?)?;
+    m.add_function(wrap_pyfunction!(merge_audit_parts, m)?)?;
+    m.add_function(wrap_pyfunction!(finish_audit, m)?)?;
+    m.add_function(wrap_pyfunction!(replay_part, m)?)?;
+    m.add_function(wrap_pyfunction!(merge_replay_parts, m)?)?;
+    m.add_function(wrap_pyfunction!(finish_replay, m)?)?;
+    m.add_function(wrap_pyfunction!(drift_start, m)?)?;
+    m.add_function(wrap_pyfunction!(drift_part, m)?)?;
+    m.add_function(wrap_pyfunction!(merge_drift_parts, m)?)?;
+    m.add_function(wrap_pyfunction!(finish_drift, m)?)
+}
+
+/// The bytes as a Python `bytes`, or the error as the package's exception.
+fn bytes(py: Python<'_>, made: anyhow::Result<Vec<u8>>) -> PyResult<Py<PyBytes>> {
+    made.map(|b| PyBytes::new(py, &b).unbind())
+        .map_err(|e| errors::from_anyhow(py, &e))
+}
+
+/// A part's bytes that do not read back, or parts that do not merge: `ReleaseError`.
+fn refused(py: Python<'_>, e: impl std::fmt::Display) -> PyErr {
+    errors::release_error(py, e.to_string())
+}
+
+/// One file of a log audited as `linegate audit` audits the log it names `name`; `part`
+/// is the file's place in the log, `noise` the `--noise` entries, `log_args` the log flags.
+#[pyfunction]
+#[pyo3(signature = (model, blob, file, name, part, noise=Vec::new(), log_args=Vec::new()))]
+#[allow(clippy::too_many_arguments)]
+fn audit_part(
+    py: Python<'_>,
+    model: PathBuf,
+    blob: Vec<u8>,
+    file: PathBuf,
+    name: String,
+    part: u32,
+    noise: Vec<String>,
+    log_args: Vec<String>,
+) -> PyResult<Py<PyBytes>> {
+    let made =
+        py.detach(|| cmd::audit_part(&model, &blob, &file, (&name, part), &noise, &log_args));
+    bytes(py, made)
+}
+
+/// Two audit parts of one log as one (either order gives the same bytes' meaning).
+#[pyfunction]
+fn merge_audit_parts(py: Python<'_>, a: Vec<u8>, b: Vec<u8>) -> PyResult<Py<PyBytes>> {
+    let merged = py.detach(|| {
+        AuditPart::from_bytes(&a)?
+            .merge(AuditPart::from_bytes(&b)?)
+            .map(|m| m.to_bytes())
+    });
+    merged
+        .map(|b| PyBytes::new(py, &b).unbind())
+        .map_err(|e| refused(py, e))
+}
+
+/// A log's audit from the merge of all its parts, as JSON.
+#[pyfunction]
+fn finish_audit(py: Python<'_>, part: Vec<u8>) -> PyResult<String> {
+    let a = AuditPart::from_bytes(&part).map_err(|e| refused(py, e))?;
+    serde_json::to_string(&a.finish()).map_err(|e| refused(py, e))
+}
+
+/// One file of a log through the blob: its device lines (numbered from 0) and counts.
+#[pyfunction]
+#[pyo3(signature = (model, blob, file, log_args=Vec::new()))]
+fn replay_part(
+    py: Python<'_>,
+    model: PathBuf,
+    blob: Vec<u8>,
+    file: PathBuf,
+    log_args: Vec<String>,
+) -> PyResult<Py<PyBytes>> {
+    let made = py.detach(|| cmd::replay_part(&model, &blob, &file, &log_args));
+    bytes(py, made)
+}
+
+/// Two replay parts as one: `earlier`'s units, then `later`'s.
+#[pyfunction]
+fn merge_replay_parts(py: Python<'_>, earlier: Vec<u8>, later: Vec<u8>) -> PyResult<Py<PyBytes>> {
+    let merged = py.detach(|| {
+        ReplayPart::from_bytes(&earlier)?
+            .merge(ReplayPart::from_bytes(&later)?)
+            .map(|m| m.to_bytes())
+    });
+    merged
+        .map(|b| PyBytes::new(py, &b).unbind())
+        .map_err(|e| refused(py, e))
+}
+
+/// A replay part's lines and counts, as JSON.
+#[pyfunction]
+fn finish_replay(py: Python<'_>, part: Vec<u8>) -> PyResult<String> {
+    let p = ReplayPart::from_bytes(&part).map_err(|e| refused(py, e))?;
+    serde_json::to_string(&p).map_err(|e| refused(py, e))
+}
+
+/// The empty drift part of the audit record `audit`'s plan, after checking the blob is
+/// the one the audit named.
+#[pyfunction]
+fn drift_start(
+    py: Python<'_>,
+    model: PathBuf,
+    blob: Vec<u8>,
+    audit: PathBuf,
+) -> PyResult<Py<PyBytes>> {
+    let made = py.detach(|| cmd::drift_start(&model, &blob, &audit));
+    bytes(py, made)
+}
+
+/// One file of a field log counted into a copy of `start`.
+#[pyfunction]
+#[pyo3(signature = (model, blob, start, file, log_args=Vec::new()))]
+fn drift_part(
+    py: Python<'_>,
+    model: PathBuf,
+    blob: Vec<u8>,
+    start: Vec<u8>,
+    file: PathBuf,
+    log_args: Vec<String>,
+) -> PyResult<Py<PyBytes>> {
+    let made = py.detach(|| cmd::drift_part(&model, &blob, &start, &file, &log_args));
+    bytes(py, made)
+}
+
+/// Two drift parts as one: `earlier`'s units, then `later`'s.
+#[pyfunction]
+fn merge_drift_parts(py: Python<'_>, earlier: Vec<u8>, later: Vec<u8>) -> PyResult<Py<PyBytes>> {
+    let made = py.detach(|| cmd::drift_merge(&earlier, &later));
+    bytes(py, made)
+}
+
+/// The drift report (`linegate drift --json`'s) over the field log of `files` whose parts
+/// merged into `merged`, against the baseline of `audit`.
+#[pyfunction]
+#[pyo3(signature = (audit, merged, files, alpha=0.01, two_sided=false))]
+fn finish_drift(
+    py: Python<'_>,
+    audit: PathBuf,
+    merged: Vec<u8>,
+    files: Vec<PathBuf>,
+    alpha: f64,
+    two_sided: bool,
+) -> PyResult<String> {
+    let cfg = DriftConfig { alpha, two_sided };
+    let report = py
+        .detach(|| cmd::drift_finish(&audit, &merged, &files, cfg))
+        .map_err(|e| errors::from_anyhow(py, &e))?;
+    serde_json::to_string(&report).map_err(|e| refused(py, e))
+}
