@@ -6,6 +6,8 @@ numpy array), logs read by Linegate's own reader (:func:`read_log`), and the com
 run in this process with the command line's settings (:func:`train`, :func:`audit`,
 :func:`pack`, :func:`compare`, :func:`replay`, :func:`drift`, :func:`check`, and
 :func:`run` for any command line). Errors are :class:`LinegateError` and its kinds.
+Logs larger than one process: :mod:`linegate.parts` (audit, replay and drift one file
+at a time, merged exactly) and :mod:`linegate.dask` (the same on a Dask cluster).
 
 Example::
 

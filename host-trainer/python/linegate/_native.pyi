@@ -56,3 +56,25 @@ def run(args: List[str]) -> int:
 
 def project_values(command: str, project: Optional[str] = None) -> Dict[str, List[str]]:
     """What the project file gives ``command``'s arguments (argument id → values)."""
+
+# Audit, replay and drift one file at a time (linegate.parts says what merges how).
+def audit_part(model: str, blob: bytes, file: str, name: str, part: int, noise: List[str] = ..., log_args: List[str] = ...) -> bytes:
+    """One file of a log audited as ``linegate audit`` audits the log it names ``name``."""
+def merge_audit_parts(a: bytes, b: bytes) -> bytes:
+    """Two audit parts of one log as one (either order); ReleaseError for other releases or logs."""
+def finish_audit(part: bytes) -> str:
+    """The log's audit (JSON) from the merge of all its parts."""
+def replay_part(model: str, blob: bytes, file: str, log_args: List[str] = ...) -> bytes:
+    """One file through the blob: device lines numbered from 0, and counts."""
+def merge_replay_parts(earlier: bytes, later: bytes) -> bytes:
+    """``earlier``'s units, then ``later``'s (renumbered)."""
+def finish_replay(part: bytes) -> str:
+    """The lines (without the model line) and counts, as JSON."""
+def drift_start(model: str, blob: bytes, audit: str) -> bytes:
+    """The empty drift part of the audit record's plan (the blob checked against it)."""
+def drift_part(model: str, blob: bytes, start: bytes, file: str, log_args: List[str] = ...) -> bytes:
+    """One file of a field log counted into a copy of ``start``."""
+def merge_drift_parts(earlier: bytes, later: bytes) -> bytes:
+    """``earlier``'s units, then ``later``'s (the CUSUMs composed)."""
+def finish_drift(audit: str, merged: bytes, files: List[str], alpha: float = 0.01, two_sided: bool = False) -> str:
+    """``linegate drift --json``'s report over the merged parts, as JSON."""
