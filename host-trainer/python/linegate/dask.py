@@ -21,7 +21,7 @@ Without a client the active one is used, or Dask's default scheduler. Needs
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any, Dict, Optional, Sequence, Union
+from typing import Any, Dict, Optional, Sequence, Tuple, Union
 
 from . import _native
 from .parts import DriftFigures, Job, LogAudit, PathArg, ReplayLines, log_files, tree_reduce
@@ -41,12 +41,13 @@ def _dask():
 
 
 def _job(model: PathArg, blob: PathArg, public_key: Optional[PathArg], log_args: Sequence[str],
-         noise: Optional[Dict[str, float]] = None) -> Job:
+         noise: Optional[Dict[str, float]] = None) -> Tuple[Job, Release]:
     """Checks the release once here (blob of this model, signature when a key is given),
     then hands the workers the model's path and the blob's bytes."""
-    Release.load(model, blob, public_key=public_key)
+    release = Release.load(model, blob, public_key=public_key)
     entries = [f"{k}={v!r}" for k, v in (noise or {}).items()]
-    return Job(str(Path(model).resolve()), Path(blob).read_bytes(), [str(a) for a in log_args], entries)
+    job = Job(str(Path(model).resolve()), Path(blob).read_bytes(), [str(a) for a in log_args], entries)
+    return job, release
 
 
 def _compute(delayed: Any, client: Any) -> bytes:
@@ -70,7 +71,7 @@ def audit(log: Log, model: PathArg, blob: PathArg, *, name: str, client: Any = N
     """
     dask = _dask()
     files = log_files(log)
-    job = _job(model, blob, public_key, log_args, noise)
+    job, _ = _job(model, blob, public_key, log_args, noise)
     parts = [dask.delayed(_native.audit_part, pure=True)(job.model, job.blob, f, name, k, job.noise, job.log_args)
              for k, f in enumerate(files)]
     merged = tree_reduce(parts, dask.delayed(_native.merge_audit_parts, pure=True))
@@ -83,11 +84,10 @@ def replay(log: Log, model: PathArg, blob: PathArg, *, client: Any = None,
     (model line first, units numbered over the whole log) and the outcome counts."""
     dask = _dask()
     files = log_files(log)
-    job = _job(model, blob, public_key, log_args)
+    job, release = _job(model, blob, public_key, log_args)
     parts = [dask.delayed(_native.replay_part, pure=True)(job.model, job.blob, f, job.log_args) for f in files]
     merged = tree_reduce(parts, dask.delayed(_native.merge_replay_parts, pure=True))
-    model_line = Release.load(model, blob).model_line or ""
-    return ReplayLines.of(_compute(merged, client), model_line)
+    return ReplayLines.of(_compute(merged, client), release.model_line or "")
 
 
 def drift(log: Log, model: PathArg, blob: PathArg, audit: PathArg, *, client: Any = None,
@@ -98,7 +98,7 @@ def drift(log: Log, model: PathArg, blob: PathArg, audit: PathArg, *, client: An
     is not drawn (the report's JSON never holds it)."""
     dask = _dask()
     files = log_files(log)
-    job = _job(model, blob, public_key, log_args)
+    job, _ = _job(model, blob, public_key, log_args)
     start = job.drift_start(str(audit))
     parts = [dask.delayed(_native.drift_part, pure=True)(job.model, job.blob, start, f, job.log_args)
              for f in files]

@@ -166,6 +166,9 @@ pub enum ReleasedError {
     /// The float model does not quantise at the blob's word lengths.
     #[error(transparent)]
     Quant(#[from] crate::release::quantise::QuantError),
+    /// The blob's model does not validate as a model of readings.
+    #[error("the blob's model does not validate as a two-sided model of readings: {0}")]
+    Model(String),
     /// A noise list of the wrong length.
     #[error("{given} noise values for a model of {channels} channels: give one per channel")]
     Noise {
@@ -207,7 +210,7 @@ impl Released {
             },
         )?;
         q.model = shared_model::CheckedModel::new(m.clone())
-            .map_err(|e| ReleasedError::Kind(format!("{}: {e:?}", fm.model_id)))?;
+            .map_err(|e| ReleasedError::Model(e.to_string()))?;
         let bound = crate::release::bound::error_bound(&q).total;
         let risk = crate::release::tolerance::noise_radius(&q, &fm, noise);
         Ok(Self { q, fm, bound, risk })
