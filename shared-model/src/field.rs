@@ -574,16 +574,21 @@ pub fn class_view(classes: &ClassSection, decision: &Decision) -> (Thresholds, D
     )
 }
 
-/// Where a score falls among the bins.
-enum Bin {
+/// Where a score falls among the record's bins.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Bin {
+    /// Below the first bin's origin.
     Below,
+    /// In bin `k` (0-based, below [`FIELD_BINS`]).
     At(usize),
+    /// Past the last bin.
     Above,
 }
 
 /// The bin of `score`: `(score − origin) >> shift`, with no division (cheap on a core
 /// without a divider) and no overflow (a difference that does not fit is out of range).
-fn bin_of(score: i64, origin: i64, shift: u8) -> Bin {
+/// The host's parts of a field log bin by this same rule.
+pub fn bin_of(score: i64, origin: i64, shift: u8) -> Bin {
     match score.checked_sub(origin) {
         Some(d) if d < 0 => Bin::Below,
         Some(d) => {

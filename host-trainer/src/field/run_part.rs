@@ -32,7 +32,7 @@
 //! Parts serialise with serde (integers only: no floating point to lose or to be infinite).
 
 use serde::{Deserialize, Serialize};
-use shared_model::field::{CusumPlan, FIELD_BINS};
+use shared_model::field::{Bin, CusumPlan, FIELD_BINS, bin_of};
 use shared_model::limits::MAX_SIGNALS;
 use shared_model::{
     CheckedModel, Decision, Fault, FieldFault, FieldPlan, FieldStats, Inputs, MAX_CHANNELS,
@@ -530,27 +530,6 @@ impl RunPart {
     pub fn stats(&self) -> Result<FieldStats, RunPartError> {
         self.check()?;
         self.stats_with(false)
-    }
-}
-
-/// Where a score falls among the bins.
-enum Bin {
-    Below,
-    At(usize),
-    Above,
-}
-
-/// The bin of `score`, as the record bins it: `(score − origin) >> shift`, a difference that
-/// does not fit `i64` lying outside the bins.
-fn bin_of(score: i64, origin: i64, shift: u8) -> Bin {
-    match score.checked_sub(origin) {
-        Some(d) if d < 0 => Bin::Below,
-        Some(d) => match usize::try_from(d >> u32::from(shift.min(62))) {
-            Ok(i) if i < FIELD_BINS => Bin::At(i),
-            _ => Bin::Above,
-        },
-        None if score < origin => Bin::Below,
-        None => Bin::Above,
     }
 }
 
