@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import numbers
 from os import PathLike
 from typing import Any, Dict, List
 
@@ -12,12 +13,20 @@ def flag_name(key: str) -> str:
 
 
 def value_text(v: Any) -> str:
-    """A flag's value as text: paths as they are, floats by ``repr`` (shortest exact)."""
+    """A flag's value as text: paths as they are, real numbers (numpy's included) by the
+    shortest text that reads back exactly, integers as integers."""
     if isinstance(v, PathLike):
         return str(v)
-    if isinstance(v, float):
-        return repr(v)
+    if isinstance(v, numbers.Integral) and not isinstance(v, bool):
+        return str(int(v))
+    if isinstance(v, numbers.Real):
+        return repr(float(v))
     return str(v)
+
+
+def _is(v: Any, truth: bool) -> bool:
+    """``v`` is the boolean ``truth`` (Python's or numpy's)."""
+    return type(v).__name__ in ("bool", "bool_") and bool(v) is truth
 
 
 def flags(options: Dict[str, Any]) -> List[str]:
@@ -26,9 +35,9 @@ def flags(options: Dict[str, Any]) -> List[str]:
     out: List[str] = []
     for key, v in options.items():
         name = flag_name(key)
-        if v is None or v is False:
+        if v is None or _is(v, False):
             continue
-        if v is True:
+        if _is(v, True):
             out.append(name)
         elif isinstance(v, (list, tuple)):
             for item in v:

@@ -20,12 +20,10 @@ Without a client the active one is used, or Dask's default scheduler. Needs
 
 from __future__ import annotations
 
-from pathlib import Path
-from typing import Any, Dict, Optional, Sequence, Tuple, Union
+from typing import Any, Dict, Optional, Sequence, Union
 
 from . import _native
-from .parts import DriftFigures, Job, LogAudit, PathArg, ReplayLines, log_files, tree_reduce
-from .release import Release
+from .parts import DriftFigures, LogAudit, PathArg, ReplayLines, prepare, tree_reduce
 
 __all__ = ["audit", "replay", "drift"]
 
@@ -40,16 +38,6 @@ def _dask():
     return dask
 
 
-def _job(model: PathArg, blob: PathArg, public_key: Optional[PathArg], log_args: Sequence[str],
-         noise: Optional[Dict[str, float]] = None) -> Tuple[Job, Release]:
-    """Checks the release once here (blob of this model, signature when a key is given),
-    then hands the workers the model's path and the blob's bytes."""
-    release = Release.load(model, blob, public_key=public_key)
-    entries = [f"{k}={v!r}" for k, v in (noise or {}).items()]
-    job = Job(str(Path(model).resolve()), Path(blob).read_bytes(), [str(a) for a in log_args], entries)
-    return job, release
-
-
 def _compute(delayed: Any, client: Any) -> bytes:
     if client is not None:
         return client.compute(delayed).result()
@@ -58,20 +46,22 @@ def _compute(delayed: Any, client: Any) -> bytes:
 
 def audit(log: Log, model: PathArg, blob: PathArg, *, name: str, client: Any = None,
           public_key: Optional[PathArg] = None, noise: Optional[Dict[str, float]] = None,
-          log_args: Sequence[str] = ()) -> LogAudit:
-    """The release's audit of ``log`` (a folder, glob or list of files: one task each),
-    as ``linegate audit`` reports the log it names ``name`` (``validation-1``,
-    ``holdout``…): counts, rates with exact bounds, histograms, the listed units.
-    ``noise``: ``--noise`` entries as a dict (channel → physical units) over the noise the
-    model declares.
+          log_args: Sequence[str] = (), project: Optional[PathArg] = None,
+          no_project: bool = False) -> LogAudit:
+    """The release's audit of ``log`` (a glob pattern, a list of files, or a folder's
+    Parquet files: one task each), as ``linegate audit`` reports the log it names ``name``
+    (``validation-1``, ``holdout``…): counts, rates with exact bounds, histograms, the
+    listed units. ``noise`` (channel → physical units) and ``log_args`` are the command's
+    ``--noise`` and log flags; the project file is read as the command reads it
+    (``project``, else ``linegate.toml`` here unless ``no_project``).
 
     Raises:
         ReleaseError: the blob is not this model's, or not signed by ``public_key``.
-        LogError: a file's error, with its file, line and column.
+        LogError: a file's error, with its file, line and column; files that are not one log.
     """
     dask = _dask()
-    files = log_files(log)
-    job, _ = _job(model, blob, public_key, log_args, noise)
+    job, files, _ = prepare("audit", log, model, blob, public_key=public_key, log_args=log_args, noise=noise,
+                            project=project, no_project=no_project)
     parts = [dask.delayed(_native.audit_part, pure=True)(job.model, job.blob, f, name, k, job.noise, job.log_args)
              for k, f in enumerate(files)]
     merged = tree_reduce(parts, dask.delayed(_native.merge_audit_parts, pure=True))
@@ -79,28 +69,33 @@ def audit(log: Log, model: PathArg, blob: PathArg, *, name: str, client: Any = N
 
 
 def replay(log: Log, model: PathArg, blob: PathArg, *, client: Any = None,
-           public_key: Optional[PathArg] = None, log_args: Sequence[str] = ()) -> ReplayLines:
+           public_key: Optional[PathArg] = None, log_args: Sequence[str] = (),
+           project: Optional[PathArg] = None, no_project: bool = False) -> ReplayLines:
     """``log`` through the blob's kernel: exactly ``linegate replay --form device``'s lines
-    (model line first, units numbered over the whole log) and the outcome counts."""
+    (model line first, units numbered over the whole log) and the outcome counts. The lines
+    of the whole log come back to this process."""
     dask = _dask()
-    files = log_files(log)
-    job, release = _job(model, blob, public_key, log_args)
-    parts = [dask.delayed(_native.replay_part, pure=True)(job.model, job.blob, f, job.log_args) for f in files]
+    job, files, release = prepare("replay", log, model, blob, public_key=public_key, log_args=log_args,
+                                  project=project, no_project=no_project)
+    parts = [dask.delayed(_native.replay_part, pure=True)(job.model, job.blob, f, k, job.log_args)
+             for k, f in enumerate(files)]
     merged = tree_reduce(parts, dask.delayed(_native.merge_replay_parts, pure=True))
-    return ReplayLines.of(_compute(merged, client), release.model_line or "")
+    return ReplayLines.of(_compute(merged, client), release.model_line or "", len(files))
 
 
 def drift(log: Log, model: PathArg, blob: PathArg, audit: PathArg, *, client: Any = None,
           public_key: Optional[PathArg] = None, log_args: Sequence[str] = (),
-          alpha: float = 0.01, two_sided: bool = False) -> DriftFigures:
+          alpha: float = 0.01, two_sided: bool = False, project: Optional[PathArg] = None,
+          no_project: bool = False) -> DriftFigures:
     """``log`` (the field) against the baseline the release's audit kept (``audit``: its
-    ``audit.json``): the report ``linegate drift --json`` writes. The per-unit CUSUM chart
-    is not drawn (the report's JSON never holds it)."""
+    ``audit.json`` or folder): the report ``linegate drift --json`` writes, ``alpha`` and
+    ``two_sided`` as its flags. The per-unit CUSUM chart is not drawn (the report's JSON
+    never holds it); every scored unit's score comes back to this process (8 bytes each)."""
     dask = _dask()
-    files = log_files(log)
-    job, _ = _job(model, blob, public_key, log_args)
+    job, files, _ = prepare("drift", log, model, blob, public_key=public_key, log_args=log_args,
+                            project=project, no_project=no_project)
     start = job.drift_start(str(audit))
-    parts = [dask.delayed(_native.drift_part, pure=True)(job.model, job.blob, start, f, job.log_args)
-             for f in files]
+    parts = [dask.delayed(_native.drift_part, pure=True)(job.model, job.blob, start, f, k, job.log_args)
+             for k, f in enumerate(files)]
     merged = tree_reduce(parts, dask.delayed(_native.merge_drift_parts, pure=True))
     return DriftFigures.of(audit, _compute(merged, client), files, alpha, two_sided)

@@ -20,14 +20,15 @@ The files must be readable where the work runs (a shared file system for a clust
 
 from __future__ import annotations
 
-import glob as _glob
 import json
+import warnings
 from dataclasses import dataclass, field
 from os import PathLike
 from pathlib import Path
 from typing import Any, Callable, Dict, List, Optional, Sequence, Union
 
 from . import _native
+from .errors import ReleaseError
 
 __all__ = [
     "log_files",
@@ -38,6 +39,7 @@ __all__ = [
     "merge_audit",
     "merge_replay",
     "merge_drift",
+    "prepare",
     "run_local",
     "tree_reduce",
 ]
@@ -46,30 +48,18 @@ PathArg = Union[str, "PathLike[str]"]
 
 
 def log_files(log: Union[PathArg, Sequence[PathArg]]) -> List[str]:
-    """The files of a log, in the order the command line reads them: a folder gives its
-    ``*.parquet``/``*.pq``/``*.csv``/``*.tsv`` files sorted by name; a glob pattern its
-    matches sorted; a list is taken as given.
+    """The files of a log, expanded and ordered by the command line's own rule (a quoted
+    glob pattern, or a list of files and patterns); a folder means its Parquet files,
+    ``<folder>/*.parquet``. Relative paths stay relative: the workers read them from their
+    own working folder (give absolute paths on a cluster).
 
     Raises:
-        ValueError: when nothing matches (a log of no files is refused, not empty).
+        UsageError: when nothing matches (a log of no files is refused, not empty).
     """
-    if isinstance(log, (str, PathLike)):
-        p = Path(log)
-        if p.is_dir():
-            found = sorted(
-                str(f)
-                for f in p.iterdir()
-                if f.is_file() and f.suffix.lower() in (".parquet", ".pq", ".csv", ".tsv", ".txt")
-            )
-        elif any(c in str(log) for c in "*?["):
-            found = sorted(_glob.glob(str(log)))
-        else:
-            found = [str(log)]
-    else:
-        found = [str(f) for f in log]
-    if not found:
-        raise ValueError(f"{log}: no log files there")
-    return found
+    given = [log] if isinstance(log, (str, PathLike)) else list(log)
+    if isinstance(log, (str, PathLike)) and Path(log).is_dir():
+        given = [str(Path(log) / "*.parquet")]
+    return [str(f) for f in _native.log_files([str(g) for g in given])]
 
 
 def tree_reduce(parts: List[Any], merge: Callable[[Any, Any], Any]) -> Any:
@@ -116,9 +106,9 @@ class Job:
         in the audit (``validation-1``, ``holdout``…)."""
         return _native.audit_part(self.model, self.blob, file, name, part, self.noise, self.log_args)
 
-    def replay_part(self, file: str) -> bytes:
-        """One file's replay part."""
-        return _native.replay_part(self.model, self.blob, file, self.log_args)
+    def replay_part(self, file: str, part: int) -> bytes:
+        """One file's replay part: ``part`` is its place in the log."""
+        return _native.replay_part(self.model, self.blob, file, part, self.log_args)
 
     def drift_start(self, audit: str) -> bytes:
         """The empty drift part every file is counted into: the plan of the audit record
@@ -126,9 +116,10 @@ class Job:
         named."""
         return _native.drift_start(self.model, self.blob, audit)
 
-    def drift_part(self, file: str, start: bytes) -> bytes:
-        """One file's drift part, counted into a copy of ``start``."""
-        return _native.drift_part(self.model, self.blob, start, file, self.log_args)
+    def drift_part(self, file: str, part: int, start: bytes) -> bytes:
+        """One file's drift part (``part`` its place in the log), counted into a copy of
+        ``start``."""
+        return _native.drift_part(self.model, self.blob, start, file, part, self.log_args)
 
 
 @dataclass(frozen=True)
@@ -188,10 +179,13 @@ class ReplayLines:
     skipped: int
 
     @staticmethod
-    def of(merged: bytes, model_line: str) -> "ReplayLines":
-        """The log's replay from the merge of all its parts and the release's model line
-        (:attr:`linegate.Release.model_line`)."""
-        d = json.loads(_native.finish_replay(merged))
+    def of(merged: bytes, model_line: str, files: int) -> "ReplayLines":
+        """The replay of a log of ``files`` files from the merge of all its parts, with the
+        release's model line (:attr:`linegate.Release.model_line`). Rows skipped under
+        ``--skip-bad-rows`` are counted in ``skipped`` and warned about, as the command
+        line warns."""
+        d = json.loads(_native.finish_replay(merged, files))
+        _warn_skipped(d["skipped"])
         return ReplayLines(
             lines=[model_line] + d["lines"].splitlines(),
             units=d["units"],
@@ -211,6 +205,7 @@ class DriftFigures:
     in_control: bool
     alarms: List[str]
     units: int
+    skipped: int
     data: Dict[str, Any] = field(repr=False)
 
     @staticmethod
@@ -219,8 +214,51 @@ class DriftFigures:
         """The drift report over the field log of ``files`` whose parts merged into
         ``merged``, against the baseline of ``audit``; ``alpha`` and ``two_sided`` as
         ``linegate drift``'s flags (same defaults)."""
-        d = json.loads(_native.finish_drift(str(audit), merged, [str(f) for f in files], alpha, two_sided))
-        return DriftFigures(in_control=not d["alarms"], alarms=d["alarms"], units=d["units"], data=d)
+        both = json.loads(_native.finish_drift(str(audit), merged, [str(f) for f in files], alpha, two_sided))
+        d = both["report"]
+        _warn_skipped(both["skipped"])
+        return DriftFigures(in_control=not d["alarms"], alarms=d["alarms"], units=d["units"],
+                            skipped=both["skipped"]["total"], data=d)
+
+
+def _warn_skipped(skipped: Dict[str, Any]) -> None:
+    if skipped.get("total"):
+        reasons = ", ".join(f"{n} {r}" for r, n in skipped.get("by_reason", {}).items())
+        warnings.warn(f"skipped {skipped['total']} rows under --skip-bad-rows ({reasons})", stacklevel=3)
+
+
+def prepare(command: str, log: Union[PathArg, Sequence[PathArg]], model: PathArg, blob: PathArg, *,
+            public_key: Optional[PathArg] = None, log_args: Sequence[str] = (),
+            noise: Optional[Dict[str, float]] = None, project: Optional[PathArg] = None,
+            no_project: bool = False) -> "tuple[Job, List[str], Any]":
+    """What every part of one run needs, checked once in this process: the log's files
+    (:func:`log_files`) checked to make one log as the command checks (no file twice, the
+    same channel columns), the settings resolved as ``command`` resolves them (``log_args``
+    and ``noise`` as given, then the project file's keys: ``project``, else
+    ``linegate.toml`` here unless ``no_project``), and the release (blob of this model,
+    signed by ``public_key`` when given). Returns the job, the files and the release.
+
+    Raises:
+        TypeError: ``log_args`` given as one string (give a list of flags).
+        ReleaseError, LogError, UsageError: as the command would.
+    """
+    from .release import Release
+
+    if isinstance(log_args, (str, bytes)):
+        raise TypeError("log_args: a list of flags, e.g. ['--label', 'verdict'], not one string")
+    blob_bytes = Path(blob).read_bytes()
+    release = Release.load(model, blob, public_key=public_key)
+    if Path(blob).read_bytes() != blob_bytes:
+        raise ReleaseError(f"{blob}: changed while it was being checked")
+    given = [str(a) for a in log_args]
+    for k, v in (noise or {}).items():
+        given += ["--noise", f"{k}={float(v)!r}"]
+    flags, noise_entries = _native.resolve(command, str(model), given,
+                                           None if project is None else str(project), no_project)
+    files = log_files(log)
+    _native.check_log(str(model), files, flags)
+    job = Job(str(Path(model).resolve()), blob_bytes, flags, noise_entries if command == "audit" else [])
+    return job, files, release
 
 
 def run_local(kind: str, files: Sequence[str], job: Job, **kw: Any) -> bytes:
@@ -230,8 +268,8 @@ def run_local(kind: str, files: Sequence[str], job: Job, **kw: Any) -> bytes:
         parts = [job.audit_part(f, k, kw["name"]) for k, f in enumerate(files)]
         return tree_reduce(parts, _native.merge_audit_parts)
     if kind == "replay":
-        return tree_reduce([job.replay_part(f) for f in files], _native.merge_replay_parts)
+        return tree_reduce([job.replay_part(f, k) for k, f in enumerate(files)], _native.merge_replay_parts)
     if kind == "drift":
         start = job.drift_start(kw["audit"])
-        return tree_reduce([job.drift_part(f, start) for f in files], _native.merge_drift_parts)
+        return tree_reduce([job.drift_part(f, k, start) for k, f in enumerate(files)], _native.merge_drift_parts)
     raise ValueError(f"{kind}: not a kind of parts (audit, replay or drift)")

@@ -9,6 +9,8 @@ same integer kernel (``shared_model``'s ``classify_windows``) the firmware runs.
 
 from __future__ import annotations
 
+import warnings
+
 from dataclasses import dataclass
 from os import PathLike
 from typing import TYPE_CHECKING, Any, List, Optional, Union
@@ -96,12 +98,20 @@ class Release:
         with ``public_key`` (a ``.pub`` file from ``linegate key new``) its signature must
         be valid for that key (unsigned, another key's or changed after signing is
         refused). Without ``blob`` the model is quantised plainly at 16-bit words, as
-        ``linegate values`` does without ``--blob`` (a packed blob may differ by 1 LSB).
+        ``linegate values`` does without ``--blob``: not a release, so its scores may differ
+        from a packed blob's (a ``UserWarning`` says so; ``blob_id`` is then ``None``).
 
         Raises:
             ReleaseError: the blob is damaged, not of this model, or its signature fails.
             LogError: the model, blob or key file cannot be read (file named).
         """
+        if blob is None:
+            warnings.warn(
+                f"{model}: no blob given, so the model is quantised plainly at 16-bit words "
+                "(as `linegate values` does): scores may differ from a packed blob's; give "
+                "blob= for the device's decisions",
+                stacklevel=2,
+            )
         return cls(
             _native.Release.load(
                 str(model),

@@ -84,11 +84,23 @@ pub fn chain(e: &anyhow::Error) -> String {
 }
 
 /// An error of the library or the command layer as the package's exception: the command
-/// line's `CheckFailed` (exit 1) → `CheckFailed`; an [`InputError`] anywhere in the chain
+/// line's `CheckFailed` (exit 1) → `CheckFailed`; parts of a release that do not fit →
+/// `ReleaseError`; an [`InputError`] anywhere in the chain
 /// → `LogError`; an output error → `LinegateError`; anything else (exit 2) → `UsageError`.
 pub fn from_anyhow(py: Python<'_>, e: &anyhow::Error) -> PyErr {
     if let Some(c) = e.downcast_ref::<host_trainer::cli::CheckFailed>() {
         return check_failed(py, c.0.clone());
+    }
+    // Parts of a release that do not fit together (or a blob that is not the model's).
+    if e.chain().any(|c| {
+        c.downcast_ref::<host_trainer::cli::parts::PartsRelease>()
+            .is_some()
+            || c.downcast_ref::<host_trainer::release::audit_part::MergeError>()
+                .is_some()
+            || c.downcast_ref::<host_trainer::release::audit_part::ReleasedError>()
+                .is_some()
+    }) {
+        return release_error(py, chain(e));
     }
     if let Some(input) = e.chain().find_map(|c| c.downcast_ref::<InputError>()) {
         return input_error_saying(py, input, chain(e));

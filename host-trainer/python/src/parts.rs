@@ -7,7 +7,6 @@ use std::path::PathBuf;
 
 use host_trainer::cli::parts as cmd;
 use host_trainer::field::drift::DriftConfig;
-use host_trainer::field::replay_part::ReplayPart;
 use host_trainer::release::audit_part::AuditPart;
 use pyo3::prelude::*;
 use pyo3::types::PyBytes;
@@ -16,6 +15,9 @@ use crate::errors;
 
 /// Adds the parts' functions to the module.
 pub fn register(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    m.add_function(wrap_pyfunction!(resolve, m)?)?;
+    m.add_function(wrap_pyfunction!(log_files, m)?)?;
+    m.add_function(wrap_pyfunction!(check_log, m)?)?;
     m.add_function(wrap_pyfunction!(audit_part, m)?)?;
     m.add_function(wrap_pyfunction!(merge_audit_parts, m)?)?;
     m.add_function(wrap_pyfunction!(finish_audit, m)?)?;
@@ -37,6 +39,36 @@ fn bytes(py: Python<'_>, made: anyhow::Result<Vec<u8>>) -> PyResult<Py<PyBytes>>
 /// A part's bytes that do not read back, or parts that do not merge: `ReleaseError`.
 fn refused(py: Python<'_>, e: impl std::fmt::Display) -> PyErr {
     errors::release_error(py, e.to_string())
+}
+
+/// `command`'s log flags and `--noise` entries for `model`: `flags` as given, then the
+/// project file's keys (`project`, else `linegate.toml` here unless `no_project`), as
+/// explicit flags for the workers.
+#[pyfunction]
+#[pyo3(signature = (command, model, flags, project=None, no_project=false))]
+fn resolve(
+    py: Python<'_>,
+    command: &str,
+    model: PathBuf,
+    flags: Vec<String>,
+    project: Option<PathBuf>,
+    no_project: bool,
+) -> PyResult<(Vec<String>, Vec<String>)> {
+    cmd::resolve(command, &model, &flags, project.as_deref(), no_project)
+        .map_err(|e| errors::from_anyhow(py, &e))
+}
+
+/// The log's files, expanded and ordered as the commands expand them.
+#[pyfunction]
+fn log_files(py: Python<'_>, given: Vec<PathBuf>) -> PyResult<Vec<PathBuf>> {
+    cmd::log_files(&given).map_err(|e| errors::from_anyhow(py, &e))
+}
+
+/// Refuses files that do not make one log (a file twice, channel columns that differ).
+#[pyfunction]
+fn check_log(py: Python<'_>, model: PathBuf, files: Vec<PathBuf>, flags: Vec<String>) -> PyResult<()> {
+    py.detach(|| cmd::check_log(&model, &files, &flags))
+        .map_err(|e| errors::from_anyhow(py, &e))
 }
 
 /// One file of a log audited as `linegate audit` audits the log it names `name`; `part`
@@ -75,41 +107,39 @@ fn merge_audit_parts(py: Python<'_>, a: Vec<u8>, b: Vec<u8>) -> PyResult<Py<PyBy
 /// A log's audit from the merge of all its parts, as JSON.
 #[pyfunction]
 fn finish_audit(py: Python<'_>, part: Vec<u8>) -> PyResult<String> {
-    let a = AuditPart::from_bytes(&part).map_err(|e| refused(py, e))?;
-    serde_json::to_string(&a.finish()).map_err(|e| refused(py, e))
+    let a = AuditPart::from_bytes(&part)
+        .and_then(AuditPart::finish)
+        .map_err(|e| refused(py, e))?;
+    serde_json::to_string(&a).map_err(|e| refused(py, e))
 }
 
-/// One file of a log through the blob: its device lines (numbered from 0) and counts.
+/// The `part`-th file of a log through the blob: its device lines (numbered from 0) and
+/// counts.
 #[pyfunction]
-#[pyo3(signature = (model, blob, file, log_args=Vec::new()))]
+#[pyo3(signature = (model, blob, file, part, log_args=Vec::new()))]
 fn replay_part(
     py: Python<'_>,
     model: PathBuf,
     blob: Vec<u8>,
     file: PathBuf,
+    part: u32,
     log_args: Vec<String>,
 ) -> PyResult<Py<PyBytes>> {
-    let made = py.detach(|| cmd::replay_part(&model, &blob, &file, &log_args));
+    let made = py.detach(|| cmd::replay_part(&model, &blob, (&file, part), &log_args));
     bytes(py, made)
 }
 
-/// Two replay parts as one: `earlier`'s units, then `later`'s.
+/// Two replay parts as one: `earlier`'s units, then `later`'s (neighbours in the log).
 #[pyfunction]
 fn merge_replay_parts(py: Python<'_>, earlier: Vec<u8>, later: Vec<u8>) -> PyResult<Py<PyBytes>> {
-    let merged = py.detach(|| {
-        ReplayPart::from_bytes(&earlier)?
-            .merge(ReplayPart::from_bytes(&later)?)
-            .map(|m| m.to_bytes())
-    });
-    merged
-        .map(|b| PyBytes::new(py, &b).unbind())
-        .map_err(|e| refused(py, e))
+    let made = py.detach(|| cmd::replay_merge(&earlier, &later));
+    bytes(py, made)
 }
 
-/// A replay part's lines and counts, as JSON.
+/// The lines and counts of a log of `files` files from the merge of all its parts, as JSON.
 #[pyfunction]
-fn finish_replay(py: Python<'_>, part: Vec<u8>) -> PyResult<String> {
-    let p = ReplayPart::from_bytes(&part).map_err(|e| refused(py, e))?;
+fn finish_replay(py: Python<'_>, merged: Vec<u8>, files: usize) -> PyResult<String> {
+    let p = cmd::replay_finish(&merged, files).map_err(|e| errors::from_anyhow(py, &e))?;
     serde_json::to_string(&p).map_err(|e| refused(py, e))
 }
 
@@ -126,22 +156,24 @@ fn drift_start(
     bytes(py, made)
 }
 
-/// One file of a field log counted into a copy of `start`.
+/// The `part`-th file of a field log counted into a copy of `start`.
 #[pyfunction]
-#[pyo3(signature = (model, blob, start, file, log_args=Vec::new()))]
+#[pyo3(signature = (model, blob, start, file, part, log_args=Vec::new()))]
+#[allow(clippy::too_many_arguments)]
 fn drift_part(
     py: Python<'_>,
     model: PathBuf,
     blob: Vec<u8>,
     start: Vec<u8>,
     file: PathBuf,
+    part: u32,
     log_args: Vec<String>,
 ) -> PyResult<Py<PyBytes>> {
-    let made = py.detach(|| cmd::drift_part(&model, &blob, &start, &file, &log_args));
+    let made = py.detach(|| cmd::drift_part(&model, &blob, &start, (&file, part), &log_args));
     bytes(py, made)
 }
 
-/// Two drift parts as one: `earlier`'s units, then `later`'s.
+/// Two drift parts as one: `earlier`'s units, then `later`'s (neighbours in the log).
 #[pyfunction]
 fn merge_drift_parts(py: Python<'_>, earlier: Vec<u8>, later: Vec<u8>) -> PyResult<Py<PyBytes>> {
     let made = py.detach(|| cmd::drift_merge(&earlier, &later));
@@ -149,7 +181,8 @@ fn merge_drift_parts(py: Python<'_>, earlier: Vec<u8>, later: Vec<u8>) -> PyResu
 }
 
 /// The drift report (`linegate drift --json`'s) over the field log of `files` whose parts
-/// merged into `merged`, against the baseline of `audit`.
+/// merged into `merged`, against the baseline of `audit`, and the rows skipped:
+/// `{"report": …, "skipped": …}`.
 #[pyfunction]
 #[pyo3(signature = (audit, merged, files, alpha=0.01, two_sided=false))]
 fn finish_drift(
@@ -161,8 +194,9 @@ fn finish_drift(
     two_sided: bool,
 ) -> PyResult<String> {
     let cfg = DriftConfig { alpha, two_sided };
-    let report = py
+    let (report, skipped) = py
         .detach(|| cmd::drift_finish(&audit, &merged, &files, cfg))
         .map_err(|e| errors::from_anyhow(py, &e))?;
-    serde_json::to_string(&report).map_err(|e| refused(py, e))
+    let both = serde_json::json!({"report": report, "skipped": skipped});
+    serde_json::to_string(&both).map_err(|e| refused(py, e))
 }

@@ -101,7 +101,8 @@ def test_any_partitioning_gives_the_single_process_audit_and_replay(client, rele
     assert got.tightest[: len(theirs)] == theirs
     assert got.faults == 25
     # The same merge in this process, in reversed file order: audit parts commute.
-    job = parts.Job(str(d / "m.json"), (d / "m.lgmb").read_bytes())
+    job, files2, _ = parts.prepare("audit", folder, d / "m.json", d / "m.lgmb", no_project=True)
+    assert files2 == files
     ps = [job.audit_part(f, k, "validation-1") for k, f in enumerate(files)]
     rev = parts.tree_reduce(ps[::-1], parts.merge_audit)
     assert parts.LogAudit.of(rev).data == got.data
@@ -135,12 +136,31 @@ def test_another_release_and_a_tampered_blob_are_refused(client, release, cli):
     (d / "bad.lgmb").write_bytes(bytes(bad))
     with pytest.raises(linegate.ReleaseError):
         lgdask.audit(d / "noise", d / "m.json", d / "bad.lgmb", name="validation-1", client=client)
-    # Parts of two different logs (names) do not merge.
-    job = parts.Job(str(d / "m.json"), (d / "m.lgmb").read_bytes())
-    files = parts.log_files(d / "noise")
+    job, files, _ = parts.prepare("audit", d / "noise", d / "m.json", d / "m.lgmb", no_project=True)
+    with pytest.raises(linegate.ReleaseError):
+        job.__class__(job.model, bytes(bad)).audit_part(files[0], 0, "validation-1")
     a, b = job.audit_part(files[0], 0, "validation-1"), job.audit_part(files[1], 1, "holdout")
+    c = job.audit_part(files[2], 2, "validation-1")
+    b1 = job.audit_part(files[1], 1, "validation-1")
+    # Parts of two different logs (names), a part merged twice, or a file left out: refused.
     with pytest.raises(linegate.ReleaseError):
         parts.merge_audit(a, b)
+    with pytest.raises(linegate.ReleaseError):
+        parts.merge_audit(parts.merge_audit(a, b1), b1)
+    with pytest.raises(linegate.ReleaseError):
+        parts.LogAudit.of(parts.merge_audit(a, c))
+    with pytest.raises(linegate.ReleaseError):
+        parts.LogAudit.of(a[: len(a) // 2])
+    # Replay parts merge only as neighbours of one release.
+    r0, r1, r2 = (job.replay_part(f, k) for k, f in enumerate(files))
+    with pytest.raises(linegate.ReleaseError):
+        parts.merge_replay(r0, r2)
+    with pytest.raises(linegate.ReleaseError):
+        parts.merge_replay(r1, r0)
+    with pytest.raises(linegate.ReleaseError):
+        parts.ReplayLines.of(parts.merge_replay(r0, r1), "", 3)
+    with pytest.raises(TypeError):
+        parts.prepare("audit", d / "noise", d / "m.json", d / "m.lgmb", log_args="--skip-bad-rows")
 
 
 def test_a_broken_file_names_file_line_and_column(client, release, cli, tmp_path):
@@ -205,3 +225,70 @@ def test_breast_cancer_cut_at_random_audits_and_replays_alike(client, tmp_path, 
         labels = np.concatenate([pq.read_table(f).column("label").to_numpy(zero_copy_only=False) for f in files])
         assert got.false_go == int(((words == "GO") & (labels == "NO-GO")).sum())
         assert got.false_nogo == int(((words != "GO") & (words != "RECHECK") & (labels == "GO")).sum())
+
+
+def test_files_that_are_not_one_log_are_refused_as_the_command_refuses_them(client, release, cli, tmp_path):
+    d, table = release
+    files = cut(table.slice(0, 600), [300], tmp_path / "dup")
+    copy = tmp_path / "dup" / "part-009.parquet"
+    copy.write_bytes(Path(files[0]).read_bytes())  # the same bytes under another name
+    p = cli(["--no-project", "-q", "audit", "--model", "m.json", "--validate", f"{tmp_path}/dup/*.parquet"], d,
+            check=False)
+    assert p.returncode == 2 and "same bytes" in p.stderr
+    with pytest.raises(linegate.ReleaseError, match="twice"):
+        lgdask.audit(tmp_path / "dup", d / "m.json", d / "m.lgmb", name="validation-1", client=client)
+    # A file with another channel column: the command line's own message, file named.
+    t = pq.read_table(files[1]).to_pandas().rename(columns={"ch05": "ch5x"})
+    (tmp_path / "mixed").mkdir()
+    pq.write_table(pa.Table.from_pandas(t, preserve_index=False), tmp_path / "mixed" / "b.parquet")
+    pq.write_table(pq.read_table(files[0]), tmp_path / "mixed" / "a.parquet")
+    with pytest.raises(linegate.LogError) as e:
+        lgdask.audit(tmp_path / "mixed", d / "m.json", d / "m.lgmb", name="validation-1", client=client)
+    assert e.value.file.endswith("b.parquet")
+
+
+def test_settings_come_from_the_project_file_and_flags_as_the_command_line_takes_them(client, release, cli, tmp_path):
+    d, table = release
+    folder = tmp_path / "proj" / "logs"
+    files = cut(table.slice(0, 1500), [400, 900], folder)
+    # A bad row, skipped under --skip-bad-rows by both and counted.
+    t = pq.read_table(files[1]).to_pandas()
+    t["ch04"] = t["ch04"].map(repr)
+    t.loc[t.index[3], "ch04"] = "n/a"
+    pq.write_table(pa.Table.from_pandas(t, preserve_index=False), files[1])
+    proj = tmp_path / "proj"
+    (proj / "linegate.toml").write_text("[gates]\nnoise = { ch01 = 20.0 }\n")
+    for f in ("m.json", "m.lgmb", "all.toml", "train.parquet"):
+        (proj / f).write_bytes((d / f).read_bytes())
+    cli(["-q", "audit", "--model", "m.json", "--validate", f"{folder}/*.parquet", "--out-dir", "rep",
+             "--skip-bad-rows"], proj, check=False)
+    report = json.loads((proj / "rep" / "audit.json").read_text())
+    got = lgdask.audit(folder, proj / "m.json", proj / "m.lgmb", name="validation-1", client=client,
+                       project=proj / "linegate.toml", log_args=["--skip-bad-rows"])
+    assert got.set == report["sets"][1]
+    assert got.set["skipped_rows"] == 1 and got.set["noise_unsafe"] > 0
+    lines = cli(["-q", "replay", f"{folder}/*.parquet", "--model", "m.json", "--blob", "m.lgmb", "--form",
+                 "device", "--skip-bad-rows"], proj).stdout.splitlines()
+    with pytest.warns(UserWarning, match="skipped 1 rows"):
+        rep = lgdask.replay(folder, proj / "m.json", proj / "m.lgmb", client=client, no_project=True,
+                            log_args=["--skip-bad-rows"])
+    assert rep.lines == lines and rep.skipped == 1
+
+
+def test_a_signed_blob_and_a_glob_across_folders(client, release, cli, tmp_path):
+    d, table = release
+    cli(["key", "new", "-o", str(tmp_path / "k")], d)
+    key, pub = tmp_path / "k.key", tmp_path / "k.pub"
+    cli(["--no-project", "-q", "pack", "--model", "m.json", "-o", str(tmp_path / "s.lgmb"), "--sign", str(key),
+         "--override-audit"], d)
+    for name, (a, n) in {"day": (0, 300), "day-1": (300, 500)}.items():
+        (tmp_path / name).mkdir()
+        pq.write_table(table.slice(a, n), tmp_path / name / "x.parquet")
+    pattern = f"{tmp_path}/day*/x.parquet"
+    lines = cli(["--no-project", "replay", pattern, "--model", "m.json", "--blob", str(tmp_path / "s.lgmb"),
+                 "--form", "device", "--public-key", str(pub)], d).stdout.splitlines()
+    rep = lgdask.replay(pattern, d / "m.json", tmp_path / "s.lgmb", public_key=pub, client=client, no_project=True)
+    assert rep.lines == lines
+    cli(["key", "new", "-o", str(tmp_path / "other")], d)
+    with pytest.raises(linegate.ReleaseError):
+        lgdask.replay(pattern, d / "m.json", tmp_path / "s.lgmb", public_key=tmp_path / "other.pub", client=client)

@@ -97,7 +97,7 @@ fn tally_logs(
         float_min: f64::INFINITY,
     };
     for &(name, ds) in std::iter::once(&("train", train)).chain(others) {
-        let a = AuditPart::count(c, name, ds, None).finish();
+        let a = AuditPart::count(c, name, ds, None).into_audit();
         l.units_at_risk.extend(a.units_at_risk);
         l.at_risk_count += a.at_risk_count;
         l.flips.extend(a.flips);

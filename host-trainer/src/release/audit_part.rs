@@ -87,6 +87,18 @@ pub enum MergeError {
     /// A part's bytes are not a part.
     #[error("not an audit part: {0}")]
     Bytes(String),
+    /// The same part, or the same file under two places, merged twice.
+    #[error(
+        "{0}: its units would count twice (a part merged twice, or the same file at two places of the log)"
+    )]
+    Twice(String),
+    /// The merged parts do not cover the log's files `0..n` (a file's part left out), or
+    /// their units do not add up.
+    #[error("the parts cover files {places} of the log: merge every file's part, each once")]
+    Incomplete {
+        /// The places covered.
+        places: String,
+    },
 }
 
 /// One log's audit over some of its units (see the module docs).
@@ -294,6 +306,17 @@ impl AuditPart {
                 b: other.s.name,
             });
         }
+        for (k, f) in &other.sources {
+            let twice = self.sources.get(k).map(|g| g.path.display().to_string()).or_else(|| {
+                self.sources
+                    .values()
+                    .find(|g| g.path == f.path || (!f.sha256.is_empty() && g.sha256 == f.sha256))
+                    .map(|g| format!("{} (the same bytes as {})", f.path.display(), g.path.display()))
+            });
+            if let Some(what) = twice {
+                return Err(MergeError::Twice(what));
+            }
+        }
         self.s.go_units += other.s.go_units;
         self.s.skipped_rows += other.s.skipped_rows;
         Tally::merge_summary(&mut self.s, &other.s);
@@ -330,7 +353,24 @@ impl AuditPart {
 
     /// The log's audit from all its parts: the file list and digest of the parts' files in
     /// order, the rates with their exact bounds, the listed units without their keys.
-    pub fn finish(self) -> LogAudit {
+    ///
+    /// # Errors
+    /// [`MergeError::Incomplete`] when the parts are not those of files `0..n`, each once.
+    pub fn finish(self) -> Result<LogAudit, MergeError> {
+        let places: Vec<u32> = self.sources.keys().copied().collect();
+        let counted: usize = self.sources.values().map(|f| f.units).sum();
+        let whole = places.iter().copied().eq(0..places.len() as u32)
+            && (places.is_empty() || counted == self.s.units);
+        if !whole {
+            return Err(MergeError::Incomplete {
+                places: format!("{places:?}"),
+            });
+        }
+        Ok(self.into_audit())
+    }
+
+    /// The audit of what the part counted (a whole log's, or all parts' once checked).
+    pub(super) fn into_audit(self) -> LogAudit {
         let mut s = self.s;
         let files: Vec<LogPart> = self.sources.into_values().collect();
         let several = if files.is_empty() {

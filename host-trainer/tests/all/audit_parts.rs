@@ -102,7 +102,7 @@ fn json(a: &LogAudit) -> String {
 fn the_blob_counts_as_the_release_audit_did() {
     let d = demo();
     let rel = Released::new(d.fm.clone(), &d.blob, &d.noise).unwrap();
-    let a = AuditPart::count(rel.counter(), "holdout", &d.holdout, None).finish();
+    let a = AuditPart::count(rel.counter(), "holdout", &d.holdout, None).finish().unwrap();
     let set = serde_json::to_value(&a.set).unwrap();
     assert_eq!(set, d.report["sets"][1], "holdout figures");
     let listed = |key: &str| -> Vec<serde_json::Value> {
@@ -127,7 +127,7 @@ fn the_blob_counts_as_the_release_audit_did() {
     let theirs = listed("tightest");
     assert_eq!(&ours.as_array().unwrap()[..theirs.len()], &theirs[..]);
     // The training log too, through the same counter.
-    let t = AuditPart::count(rel.counter(), "train", &d.train, None).finish();
+    let t = AuditPart::count(rel.counter(), "train", &d.train, None).finish().unwrap();
     assert_eq!(serde_json::to_value(&t.set).unwrap(), d.report["sets"][0]);
 }
 
@@ -147,6 +147,26 @@ fn parts_of_another_release_are_refused() {
     assert!(Released::new(d.fm.clone(), &tampered, &[]).is_err());
 }
 
+/// A part merged twice, the same file at two places, or a file's part left out: refused,
+/// never counted twice or silently short.
+#[test]
+fn parts_count_each_file_once_and_all_of_them() {
+    let d = demo();
+    let rel = Released::new(d.fm.clone(), &d.blob, &d.noise).unwrap();
+    let files = cut(&d.holdout, &[100, 250]);
+    let part = |k: usize| AuditPart::count(rel.counter(), "log", &files[k], Some(k as u32));
+    let twice = part(0).merge(part(1)).unwrap().merge(part(1));
+    assert!(matches!(twice, Err(MergeError::Twice(_))), "{twice:?}");
+    let mut same_bytes = files[2].clone();
+    same_bytes.path = "copy-of-part-0.csv".into();
+    same_bytes.sha256 = files[0].sha256.clone();
+    let copy = AuditPart::count(rel.counter(), "log", &same_bytes, Some(2));
+    assert!(matches!(part(0).merge(copy), Err(MergeError::Twice(_))));
+    let short = part(0).merge(part(2)).unwrap().finish();
+    assert!(matches!(short, Err(MergeError::Incomplete { .. })), "{short:?}");
+    assert!(part(0).merge(part(1)).unwrap().merge(part(2)).unwrap().finish().is_ok());
+}
+
 fn check_cut(train: bool, cuts: Vec<usize>, order: Vec<usize>) -> Result<(), TestCaseError> {
     let d = demo();
     let ds = if train { &d.train } else { &d.holdout };
@@ -154,7 +174,7 @@ fn check_cut(train: bool, cuts: Vec<usize>, order: Vec<usize>) -> Result<(), Tes
     let mut cuts: Vec<usize> = cuts.into_iter().map(|c| c % (ds.len() + 1)).collect();
     cuts.sort_unstable();
     let files = cut(ds, &cuts);
-    let single = AuditPart::count(rel.counter(), "log", &whole(&files), None).finish();
+    let single = AuditPart::count(rel.counter(), "log", &whole(&files), None).finish().unwrap();
     let parts: Vec<AuditPart> = (0u32..)
         .zip(&files)
         .map(|(k, f)| {
@@ -163,7 +183,7 @@ fn check_cut(train: bool, cuts: Vec<usize>, order: Vec<usize>) -> Result<(), Tes
             AuditPart::from_bytes(&p.to_bytes()).unwrap()
         })
         .collect();
-    let merged = merge_tree(parts, &order).unwrap().finish();
+    let merged = merge_tree(parts, &order).unwrap().finish().unwrap();
     prop_assert_eq!(json(&merged), json(&single));
     Ok(())
 }
