@@ -66,7 +66,12 @@ fn log_files(py: Python<'_>, given: Vec<PathBuf>) -> PyResult<Vec<PathBuf>> {
 
 /// Refuses files that do not make one log (a file twice, channel columns that differ).
 #[pyfunction]
-fn check_log(py: Python<'_>, model: PathBuf, files: Vec<PathBuf>, flags: Vec<String>) -> PyResult<()> {
+fn check_log(
+    py: Python<'_>,
+    model: PathBuf,
+    files: Vec<PathBuf>,
+    flags: Vec<String>,
+) -> PyResult<()> {
     py.detach(|| cmd::check_log(&model, &files, &flags))
         .map_err(|e| errors::from_anyhow(py, &e))
 }

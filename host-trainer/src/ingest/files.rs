@@ -150,7 +150,10 @@ fn same_role_columns(ds: &Dataset, next: &Dataset) -> Result<(), InputError> {
 
 /// The channel columns every file shares, or an error naming the first file that differs
 /// from the first file and how.
-pub(crate) fn same_columns(files: &[PathBuf], opts: &LogOptions) -> Result<Vec<String>, InputError> {
+pub(crate) fn same_columns(
+    files: &[PathBuf],
+    opts: &LogOptions,
+) -> Result<Vec<String>, InputError> {
     let first = header_channels(&files[0], opts)?;
     for f in &files[1..] {
         let other = header_channels(f, opts)?;

@@ -57,8 +57,8 @@ mod skip;
 #[cfg(test)]
 mod tests;
 
-pub use files::{ModelUnit, read, stream};
 pub(crate) use files::same_columns;
+pub use files::{ModelUnit, read, stream};
 /// The column of a name and the name rule, as the reader finds a channel's column.
 pub use names::{find as find_column, same_name};
 pub use options::{

@@ -307,12 +307,24 @@ impl AuditPart {
             });
         }
         for (k, f) in &other.sources {
-            let twice = self.sources.get(k).map(|g| g.path.display().to_string()).or_else(|| {
-                self.sources
-                    .values()
-                    .find(|g| g.path == f.path || (!f.sha256.is_empty() && g.sha256 == f.sha256))
-                    .map(|g| format!("{} (the same bytes as {})", f.path.display(), g.path.display()))
-            });
+            let twice = self
+                .sources
+                .get(k)
+                .map(|g| g.path.display().to_string())
+                .or_else(|| {
+                    self.sources
+                        .values()
+                        .find(|g| {
+                            g.path == f.path || (!f.sha256.is_empty() && g.sha256 == f.sha256)
+                        })
+                        .map(|g| {
+                            format!(
+                                "{} (the same bytes as {})",
+                                f.path.display(),
+                                g.path.display()
+                            )
+                        })
+                });
             if let Some(what) = twice {
                 return Err(MergeError::Twice(what));
             }
