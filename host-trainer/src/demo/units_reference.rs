@@ -3,7 +3,7 @@
 //! `release::units`, because it runs the demo.
 
 use crate::ingest::dataset::Dataset;
-use crate::release::audit::unit_row;
+use crate::release::audit_part::unit_row;
 use crate::release::quantise::Quantised;
 use crate::release::units::write_units_csv;
 use crate::train::float_model::FloatModel;

@@ -5,12 +5,12 @@
 
 use crate::ingest::dataset::Dataset;
 use crate::release::audit_baseline::{baseline, choose};
-use crate::release::audit_part::{AuditPart, Counter};
+use crate::release::audit_part::{AuditPart, Counter, physical_margins};
 use crate::release::audit_report::{AuditReport, SetSummary, Tolerance, UnitRow};
 use crate::release::blob_release::released_blob;
 use crate::release::bound::{ErrorBound, error_bound};
 use crate::release::gates::{AuditConfig, LogCounts, gates, reason};
-use crate::release::quantise::{Quantised, fixed_margin};
+use crate::release::quantise::Quantised;
 use crate::release::tally::TIGHTEST;
 use crate::release::tolerance::{noise_radius, tolerance};
 use crate::train::float_model::FloatModel;
@@ -198,50 +198,4 @@ fn assemble(
         settings: Vec::new(),
         baseline: None,
     }
-}
-
-/// One unit's row of the listings and of the units CSV.
-pub(crate) fn unit_row(
-    set: &str,
-    q: &Quantised,
-    fm: &FloatModel,
-    ds: &Dataset,
-    i: usize,
-) -> UnitRow {
-    let m = q.model.model();
-    let lin = fm.linear();
-    let fs = lin.scores(ds, &[i])[0];
-    let d = q.model.classify(ds.raw_row(i)).ok();
-    let margin = d.map_or(f64::NAN, |d| fixed_margin(m, d.score, ds.labels[i]));
-    UnitRow {
-        set: set.into(),
-        line: ds.lines[i],
-        file: (!ds.parts.is_empty()).then(|| ds.file_of(i).display().to_string()),
-        unit: ds.unit_name(i),
-        label: if ds.labels[i] > 0 { "GO" } else { "NO-GO" }.into(),
-        float_score: fs,
-        float_verdict: if fs > fm.threshold { "GO" } else { "NO-GO" }.into(),
-        fixed_score: d.map(|d| d.score),
-        fixed_verdict: d.map_or("FAULT", |d| d.verdict.as_str()).into(),
-        margin_lsb: margin,
-        margin_physical: physical_margins(q, fm, margin),
-    }
-}
-
-/// A margin of `lsb` accumulator units, expressed along each channel alone in its physical unit.
-fn physical_margins(q: &Quantised, fm: &FloatModel, lsb: f64) -> Vec<f64> {
-    q.model
-        .model()
-        .channels
-        .iter()
-        .zip(&q.kappa)
-        .zip(&fm.channels)
-        .map(|((c, k), s)| {
-            if c.weight == 0 {
-                f64::INFINITY
-            } else {
-                lsb / f64::from(c.weight).abs() / k * s.lsb
-            }
-        })
-        .collect()
 }

@@ -22,11 +22,10 @@ use std::collections::BTreeMap;
 use serde::{Deserialize, Serialize};
 
 use crate::ingest::dataset::{Dataset, LogPart, combined_digest, log_name};
-use crate::release::audit::unit_row;
 use crate::release::audit_report::{SetSummary, UnitRow};
 use crate::release::blob_release::released_blob;
 use crate::release::gates::SetRates;
-use crate::release::quantise::Quantised;
+use crate::release::quantise::{Quantised, fixed_margin};
 use crate::release::tally::{AT_RISK, Tally, WRONG, sort_tightest, tally};
 use crate::train::float_model::FloatModel;
 
@@ -449,4 +448,50 @@ fn file_of(ds: &Dataset) -> LogPart {
         sha256: ds.sha256.clone(),
         units: ds.len(),
     }
+}
+
+/// One unit's row of the listings and of the units CSV.
+pub(crate) fn unit_row(
+    set: &str,
+    q: &Quantised,
+    fm: &FloatModel,
+    ds: &Dataset,
+    i: usize,
+) -> UnitRow {
+    let m = q.model.model();
+    let lin = fm.linear();
+    let fs = lin.scores(ds, &[i])[0];
+    let d = q.model.classify(ds.raw_row(i)).ok();
+    let margin = d.map_or(f64::NAN, |d| fixed_margin(m, d.score, ds.labels[i]));
+    UnitRow {
+        set: set.into(),
+        line: ds.lines[i],
+        file: (!ds.parts.is_empty()).then(|| ds.file_of(i).display().to_string()),
+        unit: ds.unit_name(i),
+        label: if ds.labels[i] > 0 { "GO" } else { "NO-GO" }.into(),
+        float_score: fs,
+        float_verdict: if fs > fm.threshold { "GO" } else { "NO-GO" }.into(),
+        fixed_score: d.map(|d| d.score),
+        fixed_verdict: d.map_or("FAULT", |d| d.verdict.as_str()).into(),
+        margin_lsb: margin,
+        margin_physical: physical_margins(q, fm, margin),
+    }
+}
+
+/// A margin of `lsb` accumulator units, expressed along each channel alone in its physical unit.
+pub(crate) fn physical_margins(q: &Quantised, fm: &FloatModel, lsb: f64) -> Vec<f64> {
+    q.model
+        .model()
+        .channels
+        .iter()
+        .zip(&q.kappa)
+        .zip(&fm.channels)
+        .map(|((c, k), s)| {
+            if c.weight == 0 {
+                f64::INFINITY
+            } else {
+                lsb / f64::from(c.weight).abs() / k * s.lsb
+            }
+        })
+        .collect()
 }

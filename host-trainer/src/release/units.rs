@@ -3,7 +3,7 @@
 
 use std::io::Write;
 
-use super::audit::unit_row;
+use super::audit_part::unit_row;
 use super::quantise::Quantised;
 use crate::ingest::dataset::Dataset;
 use crate::train::float_model::FloatModel;
