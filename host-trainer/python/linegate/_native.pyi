@@ -1,6 +1,6 @@
 """Stubs of ``linegate._native``, the Rust side of the package (see ``src/``)."""
 
-from typing import Dict, List, Optional
+from typing import Dict, List, Optional, Tuple
 
 import numpy as np
 import numpy.typing as npt
@@ -58,23 +58,29 @@ def project_values(command: str, project: Optional[str] = None) -> Dict[str, Lis
     """What the project file gives ``command``'s arguments (argument id → values)."""
 
 # Audit, replay and drift one file at a time (linegate.parts says what merges how).
+def resolve(command: str, model: str, flags: List[str], project: Optional[str] = None, no_project: bool = False) -> Tuple[List[str], List[str], List[Tuple[str, List[str], str]]]:
+    """The command's settings: explicit log flags, --noise entries, other (flag, values, source)."""
+def log_files(given: List[str]) -> List[str]:
+    """The log's files, expanded and ordered as the commands expand them."""
+def check_log(command: str, model: str, files: List[str], flags: List[str]) -> None:
+    """Refuses files that do not make one log (a file twice, channel columns that differ)."""
 def audit_part(model: str, blob: bytes, file: str, name: str, part: int, noise: List[str] = ..., log_args: List[str] = ...) -> bytes:
     """One file of a log audited as ``linegate audit`` audits the log it names ``name``."""
 def merge_audit_parts(a: bytes, b: bytes) -> bytes:
     """Two audit parts of one log as one (either order); ReleaseError for other releases or logs."""
-def finish_audit(part: bytes) -> str:
-    """The log's audit (JSON) from the merge of all its parts."""
-def replay_part(model: str, blob: bytes, file: str, log_args: List[str] = ...) -> bytes:
+def finish_audit(part: bytes, files: int) -> str:
+    """The audit (JSON) of a log of ``files`` files from the merge of all its parts."""
+def replay_part(model: str, blob: bytes, file: str, part: int, log_args: List[str] = ...) -> bytes:
     """One file through the blob: device lines numbered from 0, and counts."""
 def merge_replay_parts(earlier: bytes, later: bytes) -> bytes:
     """``earlier``'s units, then ``later``'s (renumbered)."""
-def finish_replay(part: bytes) -> str:
+def finish_replay(part: bytes, files: int) -> str:
     """The lines (without the model line) and counts, as JSON."""
 def drift_start(model: str, blob: bytes, audit: str) -> bytes:
     """The empty drift part of the audit record's plan (the blob checked against it)."""
-def drift_part(model: str, blob: bytes, start: bytes, file: str, log_args: List[str] = ...) -> bytes:
+def drift_part(model: str, blob: bytes, start: bytes, file: str, part: int, log_args: List[str] = ...) -> bytes:
     """One file of a field log counted into a copy of ``start``."""
 def merge_drift_parts(earlier: bytes, later: bytes) -> bytes:
     """``earlier``'s units, then ``later``'s (the CUSUMs composed)."""
 def finish_drift(audit: str, merged: bytes, files: List[str], alpha: float = 0.01, two_sided: bool = False) -> str:
-    """``linegate drift --json``'s report over the merged parts, as JSON."""
+    """``{"report": linegate drift --json's report, "skipped": the skip report}`` as JSON."""

@@ -54,7 +54,7 @@ def log_files(log: Union[PathArg, Sequence[PathArg]]) -> List[str]:
     own working folder (give absolute paths on a cluster).
 
     Raises:
-        UsageError: when nothing matches (a log of no files is refused, not empty).
+        LogError: when nothing matches (a log of no files is refused, not empty).
     """
     given = [log] if isinstance(log, (str, PathLike)) else list(log)
     if isinstance(log, (str, PathLike)) and Path(log).is_dir():
@@ -144,9 +144,10 @@ class LogAudit:
     data: Dict[str, Any] = field(repr=False)
 
     @staticmethod
-    def of(merged: bytes) -> "LogAudit":
-        """The log's audit from the merge of all its parts."""
-        d = json.loads(_native.finish_audit(merged))
+    def of(merged: bytes, files: int) -> "LogAudit":
+        """The audit of a log of ``files`` files from the merge of all its parts
+        (``ReleaseError`` when a file's part is missing or counted twice)."""
+        d = json.loads(_native.finish_audit(merged, files))
         s = d["set"]
         return LogAudit(
             name=s["name"],
@@ -230,35 +231,49 @@ def _warn_skipped(skipped: Dict[str, Any]) -> None:
 def prepare(command: str, log: Union[PathArg, Sequence[PathArg]], model: PathArg, blob: PathArg, *,
             public_key: Optional[PathArg] = None, log_args: Sequence[str] = (),
             noise: Optional[Dict[str, float]] = None, project: Optional[PathArg] = None,
-            no_project: bool = False) -> "tuple[Job, List[str], Any]":
+            no_project: bool = False) -> "tuple[Job, List[str], Any, Dict[str, List[str]]]":
     """What every part of one run needs, checked once in this process: the log's files
     (:func:`log_files`) checked to make one log as the command checks (no file twice, the
     same channel columns), the settings resolved as ``command`` resolves them (``log_args``
     and ``noise`` as given, then the project file's keys: ``project``, else
     ``linegate.toml`` here unless ``no_project``), and the release (blob of this model,
-    signed by ``public_key`` when given). Returns the job, the files and the release.
+    signed by ``public_key`` when given, or by the project file's public key). Returns the
+    job, the files, the release and the command's other settings (flag → values:
+    ``--alpha``, ``--two-sided`` for a drift). A flag given in ``log_args`` that the parts
+    cannot apply (``--form``, a gate) is refused rather than ignored.
 
     Raises:
         TypeError: ``log_args`` given as one string (give a list of flags).
         ReleaseError, LogError, UsageError: as the command would.
     """
+    from .errors import UsageError
     from .release import Release
 
     if isinstance(log_args, (str, bytes)):
         raise TypeError("log_args: a list of flags, e.g. ['--label', 'verdict'], not one string")
+    given = [str(a) for a in log_args]
+    for k, v in (noise or {}).items():
+        given += ["--noise", f"{k}={float(v)!r}"]
+    flags, noise_entries, other = _native.resolve(command, str(model), given,
+                                                  None if project is None else str(project), no_project)
+    settings = {flag: values for flag, values, _ in other}
+    applied = {"--public-key"} | ({"--alpha", "--two-sided"} if command == "drift" else set())
+    # --model and the log are this call's own; any other flag given must be one the parts apply.
+    refused = [flag for flag, _, source in other
+               if source == "flag" and flag.startswith("--") and flag not in applied | {"--model"}]
+    if refused:
+        raise UsageError(f"log_args: {', '.join(refused)} is not a setting the parts apply (only the log flags"
+                         f"{', --noise' if command == 'audit' else ''} and {', '.join(sorted(applied))})")
+    if public_key is None and settings.get("--public-key"):
+        public_key = settings["--public-key"][0]
     blob_bytes = Path(blob).read_bytes()
     release = Release.load(model, blob, public_key=public_key)
     if Path(blob).read_bytes() != blob_bytes:
         raise ReleaseError(f"{blob}: changed while it was being checked")
-    given = [str(a) for a in log_args]
-    for k, v in (noise or {}).items():
-        given += ["--noise", f"{k}={float(v)!r}"]
-    flags, noise_entries = _native.resolve(command, str(model), given,
-                                           None if project is None else str(project), no_project)
     files = log_files(log)
-    _native.check_log(str(model), files, flags)
+    _native.check_log(command, str(model), files, flags)
     job = Job(str(Path(model).resolve()), blob_bytes, flags, noise_entries if command == "audit" else [])
-    return job, files, release
+    return job, files, release, settings
 
 
 def run_local(kind: str, files: Sequence[str], job: Job, **kw: Any) -> bytes:

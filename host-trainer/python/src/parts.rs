@@ -41,11 +41,13 @@ fn refused(py: Python<'_>, e: impl std::fmt::Display) -> PyErr {
     errors::release_error(py, e.to_string())
 }
 
-/// `command`'s log flags and `--noise` entries for `model`: `flags` as given, then the
-/// project file's keys (`project`, else `linegate.toml` here unless `no_project`), as
-/// explicit flags for the workers.
+/// `command`'s settings for `model`: `flags` as given, then the project file's keys
+/// (`project`, else `linegate.toml` here unless `no_project`): the log flags as explicit
+/// flags for the workers, the `--noise` entries, and every other setting as (flag, values,
+/// source).
 #[pyfunction]
 #[pyo3(signature = (command, model, flags, project=None, no_project=false))]
+#[allow(clippy::type_complexity)]
 fn resolve(
     py: Python<'_>,
     command: &str,
@@ -53,8 +55,9 @@ fn resolve(
     flags: Vec<String>,
     project: Option<PathBuf>,
     no_project: bool,
-) -> PyResult<(Vec<String>, Vec<String>)> {
+) -> PyResult<(Vec<String>, Vec<String>, Vec<(String, Vec<String>, String)>)> {
     cmd::resolve(command, &model, &flags, project.as_deref(), no_project)
+        .map(|r| (r.log_flags, r.noise, r.other))
         .map_err(|e| errors::from_anyhow(py, &e))
 }
 
@@ -64,15 +67,17 @@ fn log_files(py: Python<'_>, given: Vec<PathBuf>) -> PyResult<Vec<PathBuf>> {
     cmd::log_files(&given).map_err(|e| errors::from_anyhow(py, &e))
 }
 
-/// Refuses files that do not make one log (a file twice, channel columns that differ).
+/// Refuses files that do not make one log for `command` (a file twice, channel columns
+/// that differ).
 #[pyfunction]
 fn check_log(
     py: Python<'_>,
+    command: String,
     model: PathBuf,
     files: Vec<PathBuf>,
     flags: Vec<String>,
 ) -> PyResult<()> {
-    py.detach(|| cmd::check_log(&model, &files, &flags))
+    py.detach(|| cmd::check_log(&command, &model, &files, &flags))
         .map_err(|e| errors::from_anyhow(py, &e))
 }
 
@@ -109,11 +114,11 @@ fn merge_audit_parts(py: Python<'_>, a: Vec<u8>, b: Vec<u8>) -> PyResult<Py<PyBy
         .map_err(|e| refused(py, e))
 }
 
-/// A log's audit from the merge of all its parts, as JSON.
+/// The audit of a log of `files` files from the merge of all its parts, as JSON.
 #[pyfunction]
-fn finish_audit(py: Python<'_>, part: Vec<u8>) -> PyResult<String> {
+fn finish_audit(py: Python<'_>, part: Vec<u8>, files: usize) -> PyResult<String> {
     let a = AuditPart::from_bytes(&part)
-        .and_then(AuditPart::finish)
+        .and_then(|p| p.finish(files))
         .map_err(|e| refused(py, e))?;
     serde_json::to_string(&a).map_err(|e| refused(py, e))
 }

@@ -101,11 +101,11 @@ def test_any_partitioning_gives_the_single_process_audit_and_replay(client, rele
     assert got.tightest[: len(theirs)] == theirs
     assert got.faults == 25
     # The same merge in this process, in reversed file order: audit parts commute.
-    job, files2, _ = parts.prepare("audit", folder, d / "m.json", d / "m.lgmb", no_project=True)
+    job, files2, _, _ = parts.prepare("audit", folder, d / "m.json", d / "m.lgmb", no_project=True)
     assert files2 == files
     ps = [job.audit_part(f, k, "validation-1") for k, f in enumerate(files)]
     rev = parts.tree_reduce(ps[::-1], parts.merge_audit)
-    assert parts.LogAudit.of(rev).data == got.data
+    assert parts.LogAudit.of(rev, len(files)).data == got.data
     # Replay: the device's lines over the whole log, numbered across the files.
     lines = cli(["--no-project", "replay", f"cut-{seed}/*.parquet", "--model", "m.json", "--blob", "m.lgmb",
                  "--form", "device"], d).stdout.splitlines()
@@ -136,7 +136,7 @@ def test_another_release_and_a_tampered_blob_are_refused(client, release, cli):
     (d / "bad.lgmb").write_bytes(bytes(bad))
     with pytest.raises(linegate.ReleaseError):
         lgdask.audit(d / "noise", d / "m.json", d / "bad.lgmb", name="validation-1", client=client)
-    job, files, _ = parts.prepare("audit", d / "noise", d / "m.json", d / "m.lgmb", no_project=True)
+    job, files, _, _ = parts.prepare("audit", d / "noise", d / "m.json", d / "m.lgmb", no_project=True)
     with pytest.raises(linegate.ReleaseError):
         job.__class__(job.model, bytes(bad)).audit_part(files[0], 0, "validation-1")
     a, b = job.audit_part(files[0], 0, "validation-1"), job.audit_part(files[1], 1, "holdout")
@@ -148,9 +148,22 @@ def test_another_release_and_a_tampered_blob_are_refused(client, release, cli):
     with pytest.raises(linegate.ReleaseError):
         parts.merge_audit(parts.merge_audit(a, b1), b1)
     with pytest.raises(linegate.ReleaseError):
-        parts.LogAudit.of(parts.merge_audit(a, c))
+        parts.LogAudit.of(parts.merge_audit(a, c), 3)
+    with pytest.raises(linegate.ReleaseError):  # the last file's part left out
+        parts.LogAudit.of(parts.merge_audit(a, b1), 3)
     with pytest.raises(linegate.ReleaseError):
-        parts.LogAudit.of(a[: len(a) // 2])
+        parts.LogAudit.of(a[: len(a) // 2], 3)
+    # A drift start is not a file's part, and a file's part is not a start.
+    start = job.drift_start(str(d / "rep"))
+    d0, d1 = job.drift_part(files[0], 0, start), job.drift_part(files[1], 1, start)
+    with pytest.raises(linegate.ReleaseError):
+        parts.merge_drift(start, d1)
+    with pytest.raises(linegate.ReleaseError):
+        job.drift_part(files[1], 1, d0)
+    # A flag the parts cannot apply is refused, not ignored.
+    with pytest.raises(linegate.UsageError):
+        parts.prepare("audit", d / "noise", d / "m.json", d / "m.lgmb", log_args=["--max-false-go", "0.5"],
+                      no_project=True)
     # Replay parts merge only as neighbours of one release.
     r0, r1, r2 = (job.replay_part(f, k) for k, f in enumerate(files))
     with pytest.raises(linegate.ReleaseError):
@@ -292,3 +305,17 @@ def test_a_signed_blob_and_a_glob_across_folders(client, release, cli, tmp_path)
     cli(["key", "new", "-o", str(tmp_path / "other")], d)
     with pytest.raises(linegate.ReleaseError):
         lgdask.replay(pattern, d / "m.json", tmp_path / "s.lgmb", public_key=tmp_path / "other.pub", client=client)
+
+
+def test_field_logs_without_a_label_replay_and_drift_as_the_command_line_does(client, release, cli, tmp_path):
+    d, table = release
+    folder = tmp_path / "unlabelled"
+    cut(table.slice(0, 1200).drop(["label"]), [500], folder)
+    lines = cli(["--no-project", "replay", f"{folder}/*.parquet", "--model", "m.json", "--blob", "m.lgmb",
+                 "--form", "device"], d).stdout.splitlines()
+    assert lgdask.replay(folder, d / "m.json", d / "m.lgmb", client=client, no_project=True).lines == lines
+    p = cli(["--no-project", "-q", "drift", f"{folder}/*.parquet", "--audit", "rep", "--model", "m.json",
+             "--blob", "m.lgmb", "--json", "--alpha", "0.05"], d, check=False)
+    got = lgdask.drift(folder, d / "m.json", d / "m.lgmb", d / "rep", client=client, no_project=True,
+                       log_args=["--alpha", "0.05"])
+    assert got.data == json.loads(p.stdout)

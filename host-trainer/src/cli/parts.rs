@@ -46,10 +46,21 @@ struct LogFlags {
     log_args: LogArgs,
 }
 
-/// The log flags and `--noise` entries `command` (`audit`, `replay` or `drift`) reads a log
-/// for `model` with: `flags` as given, then the project file's keys (`project`, else
-/// `linegate.toml` in the working folder unless `no_project`), as the command line resolves
-/// them, returned as explicit flags a worker parses without any project file.
+/// A command's settings as the parts take them.
+pub struct Resolved {
+    /// The log flags, explicit (`--flag=value`, bare switches).
+    pub log_flags: Vec<String>,
+    /// The `--noise` entries.
+    pub noise: Vec<String>,
+    /// Every other setting: flag, values and source (flag, default, project file key), for
+    /// the caller to apply (`--public-key`, `--alpha`, …) or to refuse.
+    pub other: Vec<(String, Vec<String>, String)>,
+}
+
+/// The settings `command` (`audit`, `replay` or `drift`) reads a log for `model` with:
+/// `flags` as given, then the project file's keys (`project`, else `linegate.toml` in the
+/// working folder unless `no_project`), as the command line resolves them; the log flags
+/// as explicit flags a worker parses without any project file.
 ///
 /// # Errors
 /// A usage error of the flags or the project file.
@@ -59,7 +70,7 @@ pub fn resolve(
     flags: &[String],
     project: Option<&Path>,
     no_project: bool,
-) -> Result<(Vec<String>, Vec<String>)> {
+) -> Result<Resolved> {
     let mut argv: Vec<OsString> = vec!["linegate".into(), command.into()];
     if command == "replay" {
         argv.push("LOG".into());
@@ -78,7 +89,7 @@ pub fn resolve(
             .find(|a| a.get_long().is_some_and(|l| flag == format!("--{l}")))
             .map(|a| !a.get_action().takes_values())
     };
-    let (mut log_flags, mut noise) = (Vec::new(), Vec::new());
+    let (mut log_flags, mut noise, mut other) = (Vec::new(), Vec::new(), Vec::new());
     for s in parsed.settings {
         if s.flag == "--noise" {
             noise.extend(s.value);
@@ -86,15 +97,16 @@ pub fn resolve(
         }
         match switch(&s.flag) {
             Some(true) if s.value.iter().any(|v| v == "true") => log_flags.push(s.flag),
-            Some(false) => {
-                for v in s.value {
-                    log_flags.extend([s.flag.clone(), v]);
-                }
-            }
-            _ => {}
+            // `--flag=value`: a value that starts with `-` stays a value.
+            Some(false) => log_flags.extend(s.value.iter().map(|v| format!("{}={v}", s.flag))),
+            _ => other.push((s.flag, s.value, s.source)),
         }
     }
-    Ok((log_flags, noise))
+    Ok(Resolved {
+        log_flags,
+        noise,
+        other,
+    })
 }
 
 /// The files of the log `given` names (files or quoted glob patterns), expanded and ordered
@@ -106,13 +118,19 @@ pub fn log_files(given: &[PathBuf]) -> Result<Vec<PathBuf>> {
     super::log_files(given, "name the log (or several files of it)")
 }
 
-/// Refuses files that do not make one log, as the commands refuse them when they read a log
-/// of several files: the same file twice (by path), or channel columns that differ.
+/// Refuses files that do not make one log for `command`, as the commands refuse them when
+/// they read a log of several files: the same file twice (by path), or channel columns that
+/// differ.
 ///
 /// # Errors
 /// The first file that does not belong, named, with the command's message.
-pub fn check_log(model: &Path, files: &[PathBuf], flags: &[String]) -> Result<()> {
+pub fn check_log(command: &str, model: &Path, files: &[PathBuf], flags: &[String]) -> Result<()> {
     let (fm, opts) = model_options(model, flags)?;
+    // Replay and drift read field logs, which need no label column.
+    let opts = LogOptions {
+        label_optional: command != "audit",
+        ..opts
+    };
     for (k, f) in files.iter().enumerate() {
         if files[..k].contains(f) {
             bail!(crate::error::InputError::Format {
@@ -242,6 +260,11 @@ impl<T: PartBytes> Piece<T> {
         join: impl FnOnce(T, T) -> Result<T>,
     ) -> Result<Vec<u8>> {
         let (a, b) = (Self::of(earlier, what)?, Self::of(later, what)?);
+        if a.first > a.last || b.first > b.last {
+            bail!(PartsRelease(format!(
+                "a {what} start is not a part of a file: count a file into it first"
+            )));
+        }
         if a.release != b.release {
             bail!(PartsRelease(format!(
                 "{what} parts of different releases ({} and {}) do not merge",
@@ -392,9 +415,10 @@ pub fn drift_start(model: &Path, blob: &[u8], audit: &Path) -> Result<Vec<u8>> {
         m.signal_count(),
         true,
     );
+    // first > last: no file counted yet, so it never merges as a part.
     Piece {
         release: release_ids(&fm, blob),
-        first: 0,
+        first: 1,
         last: 0,
         skipped: SkipReport::default(),
         part,
@@ -422,6 +446,11 @@ pub fn drift_part(
         ..opts
     };
     let mut piece = Piece::<RunPart>::of(start, "drift")?;
+    if piece.first <= piece.last || piece.part.units != 0 {
+        bail!(PartsRelease(
+            "not a drift start: give drift_start's empty part, not a file's part".into()
+        ));
+    }
     if piece.release != release_ids(&fm, blob) {
         bail!(PartsRelease(format!(
             "the drift start was made for {}, not this release",

@@ -93,10 +93,14 @@ pub enum MergeError {
     Twice(String),
     /// The merged parts do not cover the log's files `0..n` (a file's part left out), or
     /// their units do not add up.
-    #[error("the parts cover files {places} of the log: merge every file's part, each once")]
+    #[error(
+        "the parts cover files {places} of a log of {files}: merge every file's part, each once"
+    )]
     Incomplete {
         /// The places covered.
         places: String,
+        /// The log's files.
+        files: usize,
     },
 }
 
@@ -366,22 +370,26 @@ impl AuditPart {
     /// order, the rates with their exact bounds, the listed units without their keys.
     ///
     /// # Errors
-    /// [`MergeError::Incomplete`] when the parts are not those of files `0..n`, each once.
-    pub fn finish(self) -> Result<LogAudit, MergeError> {
+    /// [`MergeError::Incomplete`] when the parts are not those of files `0..files`, each
+    /// once.
+    pub fn finish(self, files: usize) -> Result<LogAudit, MergeError> {
         let places: Vec<u32> = self.sources.keys().copied().collect();
         let counted: usize = self.sources.values().map(|f| f.units).sum();
-        let whole = places.iter().copied().eq(0..places.len() as u32)
-            && (places.is_empty() || counted == self.s.units);
+        let whole = places.len() == files
+            && places.iter().copied().eq(0..places.len() as u32)
+            && counted == self.s.units;
         if !whole {
             return Err(MergeError::Incomplete {
                 places: format!("{places:?}"),
+                files,
             });
         }
         Ok(self.into_audit())
     }
 
-    /// The audit of what the part counted (a whole log's, or all parts' once checked).
-    pub(super) fn into_audit(self) -> LogAudit {
+    /// The audit of what the part counted: a whole log counted as one part (`count` with
+    /// no part number), or all of a log's parts once [`finish`](Self::finish) checked them.
+    pub fn into_audit(self) -> LogAudit {
         let mut s = self.s;
         let files: Vec<LogPart> = self.sources.into_values().collect();
         let several = if files.is_empty() {

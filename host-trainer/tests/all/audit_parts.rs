@@ -102,9 +102,7 @@ fn json(a: &LogAudit) -> String {
 fn the_blob_counts_as_the_release_audit_did() {
     let d = demo();
     let rel = Released::new(d.fm.clone(), &d.blob, &d.noise).unwrap();
-    let a = AuditPart::count(rel.counter(), "holdout", &d.holdout, None)
-        .finish()
-        .unwrap();
+    let a = AuditPart::count(rel.counter(), "holdout", &d.holdout, None).into_audit();
     let set = serde_json::to_value(&a.set).unwrap();
     assert_eq!(set, d.report["sets"][1], "holdout figures");
     let listed = |key: &str| -> Vec<serde_json::Value> {
@@ -129,9 +127,7 @@ fn the_blob_counts_as_the_release_audit_did() {
     let theirs = listed("tightest");
     assert_eq!(&ours.as_array().unwrap()[..theirs.len()], &theirs[..]);
     // The training log too, through the same counter.
-    let t = AuditPart::count(rel.counter(), "train", &d.train, None)
-        .finish()
-        .unwrap();
+    let t = AuditPart::count(rel.counter(), "train", &d.train, None).into_audit();
     assert_eq!(serde_json::to_value(&t.set).unwrap(), d.report["sets"][0]);
 }
 
@@ -166,20 +162,19 @@ fn parts_count_each_file_once_and_all_of_them() {
     same_bytes.sha256 = files[0].sha256.clone();
     let copy = AuditPart::count(rel.counter(), "log", &same_bytes, Some(2));
     assert!(matches!(part(0).merge(copy), Err(MergeError::Twice(_))));
-    let short = part(0).merge(part(2)).unwrap().finish();
+    let short = part(0).merge(part(2)).unwrap().finish(3);
     assert!(
         matches!(short, Err(MergeError::Incomplete { .. })),
         "{short:?}"
     );
+    // The last file left out is seen too: the log has three files.
+    let last = part(0).merge(part(1)).unwrap().finish(3);
     assert!(
-        part(0)
-            .merge(part(1))
-            .unwrap()
-            .merge(part(2))
-            .unwrap()
-            .finish()
-            .is_ok()
+        matches!(last, Err(MergeError::Incomplete { .. })),
+        "{last:?}"
     );
+    let all = part(0).merge(part(1)).unwrap().merge(part(2)).unwrap();
+    assert!(all.finish(3).is_ok());
 }
 
 fn check_cut(train: bool, cuts: Vec<usize>, order: Vec<usize>) -> Result<(), TestCaseError> {
@@ -189,9 +184,7 @@ fn check_cut(train: bool, cuts: Vec<usize>, order: Vec<usize>) -> Result<(), Tes
     let mut cuts: Vec<usize> = cuts.into_iter().map(|c| c % (ds.len() + 1)).collect();
     cuts.sort_unstable();
     let files = cut(ds, &cuts);
-    let single = AuditPart::count(rel.counter(), "log", &whole(&files), None)
-        .finish()
-        .unwrap();
+    let single = AuditPart::count(rel.counter(), "log", &whole(&files), None).into_audit();
     let parts: Vec<AuditPart> = (0u32..)
         .zip(&files)
         .map(|(k, f)| {
@@ -200,7 +193,10 @@ fn check_cut(train: bool, cuts: Vec<usize>, order: Vec<usize>) -> Result<(), Tes
             AuditPart::from_bytes(&p.to_bytes()).unwrap()
         })
         .collect();
-    let merged = merge_tree(parts, &order).unwrap().finish().unwrap();
+    let merged = merge_tree(parts, &order)
+        .unwrap()
+        .finish(files.len())
+        .unwrap();
     prop_assert_eq!(json(&merged), json(&single));
     Ok(())
 }
