@@ -10,9 +10,10 @@ use shared_model::field::MAX_RECORD_LEN;
 
 use crate::error::InputError;
 use crate::field::run::FieldRun;
-use crate::field::run_part::RunPart;
+use crate::field::run_part::{Outcome, RunPart, outcome};
 use crate::ingest::{LogOptions, SkipReport};
 use crate::train::float_model::FloatModel;
+use shared_model::{Decision, FieldFault};
 
 /// Reads a field record and checks it was kept under `plan` (the audit's).
 ///
@@ -67,19 +68,36 @@ pub fn record_bytes(s: &FieldStats) -> Vec<u8> {
 /// What a field log's units are counted into: a whole run (with its chart) or a part of a
 /// log (one file, merged later in log order).
 pub trait FieldUnits {
-    /// One unit's readings and windows through `model`'s kernel, counted.
-    fn count_unit(&mut self, model: &DeviceModel, readings: &[i32], windows: &[&[i32]]);
+    /// One decided unit, with the values the weights multiplied.
+    fn decided_unit(&mut self, d: &Decision, values: &[i32]);
+    /// One unit the kernel refused.
+    fn faulted_unit(&mut self, fault: FieldFault);
+
+    /// One unit's readings and windows through `model`'s kernel (the values the weights
+    /// multiply, then the decision), counted as the device counts it.
+    fn count_unit(&mut self, model: &DeviceModel, readings: &[i32], windows: &[&[i32]]) {
+        match outcome(model, readings, windows) {
+            Outcome::Decided(d, v, n) => self.decided_unit(&d, v.get(..n).unwrap_or(&[])),
+            Outcome::Faulted(f) => self.faulted_unit(f),
+        }
+    }
 }
 
 impl FieldUnits for FieldRun {
-    fn count_unit(&mut self, model: &DeviceModel, readings: &[i32], windows: &[&[i32]]) {
-        self.unit(model, readings, windows);
+    fn decided_unit(&mut self, d: &Decision, values: &[i32]) {
+        self.decided(d, Some(values));
+    }
+    fn faulted_unit(&mut self, fault: FieldFault) {
+        self.faulted(fault);
     }
 }
 
 impl FieldUnits for RunPart {
-    fn count_unit(&mut self, model: &DeviceModel, readings: &[i32], windows: &[&[i32]]) {
-        self.unit(model, readings, windows);
+    fn decided_unit(&mut self, d: &Decision, values: &[i32]) {
+        self.decided(d, Some(values));
+    }
+    fn faulted_unit(&mut self, fault: FieldFault) {
+        self.faulted(fault);
     }
 }
 

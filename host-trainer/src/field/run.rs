@@ -6,17 +6,14 @@
 //! The counting is a [`RunPart`] (one arithmetic for a single pass and for parts of a log
 //! counted apart and merged); a run adds the per-unit chart and the record's stop at
 //! `u32::MAX` units. A unit is fed either from a log replayed through the blob's kernel
-//! ([`FieldRun::unit`], with the values the weights multiply) or from the device's own score
+//! ([`record::run_log`](crate::field::record::run_log), with the values the weights multiply) or from the device's own score
 //! line ([`FieldRun::decided`] without values).
 
 use serde::Serialize;
-use shared_model::{
-    CheckedModel, Decision, FieldFault, FieldPlan, FieldStats, Inputs, Outcomes, Thresholds,
-    Verdict,
-};
+use shared_model::{Decision, FieldFault, FieldPlan, FieldStats, Thresholds, Verdict};
 
 pub use crate::field::run_part::field_fault;
-use crate::field::run_part::{Outcome, RunPart, RunPartError, outcome};
+use crate::field::run_part::{RunPart, RunPartError};
 
 /// One decided GO or NO-GO unit's CUSUM state, after the unit.
 #[derive(Clone, Copy, Debug, Serialize, PartialEq, Eq)]
@@ -79,20 +76,6 @@ impl FieldRun {
             charted: false,
             chart: Vec::new(),
         })
-    }
-
-    /// One unit of a log: its readings and windows through `model`'s kernel (the values the
-    /// weights multiply, then the decision), counted as the device counts it.
-    pub fn unit<I: Inputs, K: Outcomes>(
-        &mut self,
-        model: &CheckedModel<I, K>,
-        readings: &[i32],
-        windows: &[&[i32]],
-    ) {
-        match outcome(model, readings, windows) {
-            Outcome::Decided(d, v, n) => self.decided(&d, Some(v.get(..n).unwrap_or(&[]))),
-            Outcome::Faulted(f) => self.faulted(f),
-        }
     }
 
     /// Room for one more unit under the record's `u32::MAX`; else the run is saturated.

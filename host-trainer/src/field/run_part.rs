@@ -283,19 +283,6 @@ impl RunPart {
         }
     }
 
-    /// One unit of a log through `model`'s kernel.
-    pub fn unit<I: Inputs, K: Outcomes>(
-        &mut self,
-        model: &CheckedModel<I, K>,
-        readings: &[i32],
-        windows: &[&[i32]],
-    ) {
-        match outcome(model, readings, windows) {
-            Outcome::Decided(d, v, n) => self.decided(&d, Some(v.get(..n).unwrap_or(&[]))),
-            Outcome::Faulted(f) => self.faulted(f),
-        }
-    }
-
     /// One decided unit (`values`: the values the weights multiplied, when known; extra
     /// values are ignored, missing ones leave their channel alone, as the record).
     pub fn decided(&mut self, d: &Decision, values: Option<&[i32]>) {
