@@ -81,21 +81,12 @@ impl DriftArgs {
             say!("{}", baseline::plan_text(&audit).trim_end());
             return Ok(());
         }
-        if !(self.alpha > 0.0 && self.alpha < 1.0) {
-            bail!(
-                "--alpha {}: the level must lie between 0 and 1 (e.g. 0.01)",
-                self.alpha
-            );
-        }
+        let cfg = config(self.alpha, self.two_sided)?;
         let b = &audit.baseline;
         let plan = b.plan.field_plan();
         let thresholds = Thresholds {
             nogo_max: b.nogo_max,
             go_min: b.go_min,
-        };
-        let cfg = DriftConfig {
-            alpha: self.alpha,
-            two_sided: self.two_sided,
         };
         let channels = b.channels.len();
         let (report, record_bytes) = if let Some(rec) = &self.record {
@@ -250,6 +241,14 @@ pub(super) fn the_audited_blob(
         );
     }
     Ok(())
+}
+
+/// The test's settings, the level refused outside (0, 1).
+pub(super) fn config(alpha: f64, two_sided: bool) -> Result<DriftConfig> {
+    if !(alpha > 0.0 && alpha < 1.0) {
+        bail!("--alpha {alpha}: the level must lie between 0 and 1 (e.g. 0.01)");
+    }
+    Ok(DriftConfig { alpha, two_sided })
 }
 
 /// The audit record at `given` (its `audit.json`, or the folder holding it).

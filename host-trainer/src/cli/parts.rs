@@ -25,6 +25,7 @@ use crate::field::record;
 use crate::field::replay_part::ReplayPart;
 use crate::field::run::FieldRun;
 use crate::field::run_part::RunPart;
+use crate::ingest::dataset::{LogPart, counted_twice};
 use crate::ingest::{LogOptions, SkipReport};
 use crate::release::audit_part::{AuditPart, Released};
 use crate::release::matching::{BlobMismatch, decode_from};
@@ -131,14 +132,18 @@ pub fn check_log(command: &str, model: &Path, files: &[PathBuf], flags: &[String
         label_optional: command != "audit",
         ..opts
     };
+    // Paths only here: each part's digest is compared when the parts merge.
+    let named = |f: &PathBuf| LogPart {
+        path: f.clone(),
+        sha256: String::new(),
+        units: 0,
+    };
     for (k, f) in files.iter().enumerate() {
-        if files[..k].contains(f) {
+        let earlier: Vec<LogPart> = files[..k].iter().map(named).collect();
+        if let Some(message) = counted_twice(&earlier, &named(f)) {
             bail!(crate::error::InputError::Format {
                 path: f.clone(),
-                message: format!(
-                    "this file is already part of the log ({}): its units would count twice",
-                    f.display()
-                ),
+                message,
             });
         }
     }
@@ -159,6 +164,25 @@ fn model_options(model: &Path, flags: &[String]) -> Result<(FloatModel, LogOptio
         .log_args
         .options_for_model(true, &fm, model, &mut Vec::new())?;
     Ok((fm, opts))
+}
+
+/// The float model, the blob's device model and the options for one file of a field log
+/// (`replay`, `drift`: no label needed, no digest; `keep_times` as the command keeps them).
+fn field_reader(
+    model: &Path,
+    blob: &[u8],
+    flags: &[String],
+    keep_times: bool,
+) -> Result<(FloatModel, DeviceModel, LogOptions)> {
+    let (fm, opts) = model_options(model, flags)?;
+    let m = device(&fm, blob, model)?;
+    let opts = LogOptions {
+        label_optional: true,
+        digest: false,
+        keep_times,
+        ..opts
+    };
+    Ok((fm, m, opts))
 }
 
 /// The blob's bytes decoded as a blob of `fm`, or [`PartsRelease`].
@@ -333,15 +357,8 @@ pub fn replay_part(
     (file, part): (&Path, u32),
     flags: &[String],
 ) -> Result<Vec<u8>> {
-    let (fm, opts) = model_options(model, flags)?;
-    let m = device(&fm, blob, model)?;
-    // As `replay` reads a log: no label needed, no digest, timestamps kept.
-    let opts = LogOptions {
-        label_optional: true,
-        digest: false,
-        keep_times: true,
-        ..opts
-    };
+    // As `replay` reads a log: timestamps kept for its forms.
+    let (fm, m, opts) = field_reader(model, blob, flags, true)?;
     let counted = ReplayPart::count(file, &opts, &fm, &m)?;
     Piece {
         release: release_ids(&fm, blob),
@@ -438,13 +455,7 @@ pub fn drift_part(
     (file, part): (&Path, u32),
     flags: &[String],
 ) -> Result<Vec<u8>> {
-    let (fm, opts) = model_options(model, flags)?;
-    let m = device(&fm, blob, model)?;
-    let opts = LogOptions {
-        label_optional: true,
-        digest: false,
-        ..opts
-    };
+    let (fm, m, opts) = field_reader(model, blob, flags, false)?;
     let mut piece = Piece::<RunPart>::of(start, "drift")?;
     if piece.first <= piece.last || piece.part.units != 0 {
         bail!(PartsRelease(
@@ -484,12 +495,7 @@ pub fn drift_finish(
     files: &[PathBuf],
     cfg: DriftConfig,
 ) -> Result<(DriftReport, SkipReport)> {
-    if !(cfg.alpha > 0.0 && cfg.alpha < 1.0) {
-        bail!(
-            "alpha {}: the level must lie between 0 and 1 (e.g. 0.01)",
-            cfg.alpha
-        );
-    }
+    let cfg = super::drift::config(cfg.alpha, cfg.two_sided)?;
     let a = baseline::read(&audit_record(audit))?;
     let piece = Piece::<RunPart>::of(merged, "drift")?;
     whole(piece.first, piece.last, files.len(), "drift")?;

@@ -69,6 +69,32 @@ pub struct LogPart {
     pub units: usize,
 }
 
+/// Why `next` cannot join a log of the files `earlier`, in words, when it is one of them:
+/// the same path (after resolving links), or the same bytes under another name (same
+/// SHA-256; an empty digest is not compared). Its units would count twice. The one rule for
+/// every log of several files: read whole ([`Dataset::append`]) or counted in parts.
+pub fn counted_twice(earlier: &[LogPart], next: &LogPart) -> Option<String> {
+    let same = |a: &Path, b: &Path| {
+        a == b || matches!((a.canonicalize(), b.canonicalize()), (Ok(x), Ok(y)) if x == y)
+    };
+    earlier.iter().find_map(|p| {
+        if same(&p.path, &next.path) {
+            Some(format!(
+                "this file is already part of the log ({}): its units would count twice",
+                p.path.display()
+            ))
+        } else if !p.sha256.is_empty() && p.sha256 == next.sha256 {
+            Some(format!(
+                "this file has the same bytes (SHA-256 {}) as {}, already part of the log: its units would count twice",
+                next.sha256,
+                p.path.display()
+            ))
+        } else {
+            None
+        }
+    })
+}
+
 /// How messages name a log of `files` files whose first is `first`: the file itself, or
 /// "`first` and N more files".
 pub fn log_name(first: &Path, files: usize) -> PathBuf {
@@ -159,9 +185,6 @@ impl Dataset {
     /// [`InputError::Format`](crate::error::InputError::Format) when `next` is a file the log already holds (the same path,
     /// or the same bytes under another name): its units would count twice.
     pub fn append(&mut self, next: Dataset) -> Result<(), crate::error::InputError> {
-        let same = |a: &Path, b: &Path| {
-            a == b || matches!((a.canonicalize(), b.canonicalize()), (Ok(x), Ok(y)) if x == y)
-        };
         // The files read so far: this log's one file until a second is appended.
         let first;
         let earlier: &[LogPart] = if self.parts.is_empty() {
@@ -174,21 +197,12 @@ impl Dataset {
         } else {
             &self.parts
         };
-        for p in earlier {
-            let message = if same(&p.path, &next.path) {
-                format!(
-                    "this file is already part of the log ({}): its units would count twice",
-                    p.path.display()
-                )
-            } else if !p.sha256.is_empty() && p.sha256 == next.sha256 {
-                format!(
-                    "this file has the same bytes (SHA-256 {}) as {}, already part of the log: its units would count twice",
-                    next.sha256,
-                    p.path.display()
-                )
-            } else {
-                continue;
-            };
+        let file = LogPart {
+            path: next.path.clone(),
+            sha256: next.sha256.clone(),
+            units: next.len(),
+        };
+        if let Some(message) = counted_twice(earlier, &file) {
             return Err(crate::error::InputError::Format {
                 path: next.path.clone(),
                 message,

@@ -21,7 +21,7 @@ use std::collections::BTreeMap;
 
 use serde::{Deserialize, Serialize};
 
-use crate::ingest::dataset::{Dataset, LogPart, combined_digest, log_name};
+use crate::ingest::dataset::{Dataset, LogPart, combined_digest, counted_twice, log_name};
 use crate::release::audit_report::{SetSummary, UnitRow};
 use crate::release::blob_release::released_blob;
 use crate::release::gates::SetRates;
@@ -87,9 +87,7 @@ pub enum MergeError {
     #[error("not an audit part: {0}")]
     Bytes(String),
     /// The same part, or the same file under two places, merged twice.
-    #[error(
-        "{0}: its units would count twice (a part merged twice, or the same file at two places of the log)"
-    )]
+    #[error("{0}")]
     Twice(String),
     /// The merged parts do not cover the log's files `0..n` (a file's part left out), or
     /// their units do not add up.
@@ -310,24 +308,14 @@ impl AuditPart {
             });
         }
         for (k, f) in &other.sources {
-            let twice = self
-                .sources
-                .get(k)
-                .map(|g| g.path.display().to_string())
-                .or_else(|| {
-                    self.sources
-                        .values()
-                        .find(|g| {
-                            g.path == f.path || (!f.sha256.is_empty() && g.sha256 == f.sha256)
-                        })
-                        .map(|g| {
-                            format!(
-                                "{} (the same bytes as {})",
-                                f.path.display(),
-                                g.path.display()
-                            )
-                        })
-                });
+            let earlier: Vec<LogPart> = self.sources.values().cloned().collect();
+            let twice = match self.sources.get(k) {
+                Some(g) => Some(format!(
+                    "the part of file {k} ({}) is merged twice: its units would count twice",
+                    g.path.display()
+                )),
+                None => counted_twice(&earlier, f),
+            };
             if let Some(what) = twice {
                 return Err(MergeError::Twice(what));
             }
